@@ -1,0 +1,15 @@
+"""beamaudit: patient-dose audit for x-ray examinations.
+
+The four stages install as subpackages: :mod:`beamaudit.ingest` (DICOM
+headers and dose reports), :mod:`beamaudit.model` (beam and dose physics),
+:mod:`beamaudit.api` (store, pipeline, reviews, REST, CLI) and
+:mod:`beamaudit.dashboards` (plotly figures and pages).
+
+Every dose figure beamaudit produces is an estimate, for quality assurance
+and optimisation. Clinical decisions about a patient need a qualified
+medical physicist; local regulations and licensed practice take precedence.
+"""
+
+__version__ = "0.1.0"
+
+__all__ = ["__version__"]

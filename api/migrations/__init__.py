@@ -1,0 +1,1 @@
+"""beamaudit stage package."""

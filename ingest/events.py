@@ -1,0 +1,188 @@
+"""Normalised records that ingest hands to the rest of beamaudit.
+
+One :class:`ExposureEvent` is one irradiation event (DICOM PS3.16: "one
+continuous irradiation"): the exposure of a radiograph described by an image
+header, one TID 10003 event of a projection dose report, or one TID 10013 CT
+acquisition. One :class:`AccumulatedDose` is one TID 10002 / TID 10012
+accumulation of a dose report. Every quantity carries its unit in its name and
+is already converted once, here at the edge (see ``mapping.py``); every field
+that was read keeps its provenance (tag or concept code) in ``provenance``.
+
+These are plain dataclasses with no behaviour of the store or the model: the
+bridge in ``beamaudit.api.pipeline`` turns them into rows and model inputs.
+"""
+
+from __future__ import annotations
+
+import dataclasses
+from dataclasses import dataclass, field
+from datetime import datetime
+from typing import Any, Literal
+
+__all__ = [
+    "AccumulatedDose",
+    "ExposureEvent",
+    "FilterLayer",
+    "ParseResult",
+    "SourceObject",
+]
+
+SourceKind = Literal["image_header", "rdsr"]
+
+
+@dataclass(frozen=True, slots=True)
+class FilterLayer:
+    """One beam filter as recorded: material (lower-case element name, e.g.
+    ``"aluminium"``, ``"copper"``) and thickness in mm (the minimum when a
+    range was given)."""
+
+    material: str
+    thickness_mm: float
+
+
+@dataclass(slots=True)
+class SourceObject:
+    """The DICOM object an ingest run read (one file or one received dataset)."""
+
+    sop_instance_uid: str
+    sop_class_uid: str
+    kind: SourceKind
+    modality: str | None = None
+    study_instance_uid: str | None = None
+    series_instance_uid: str | None = None
+
+
+@dataclass(slots=True)
+class ExposureEvent:
+    """One irradiation event, normalised; ``None`` means "not recorded".
+
+    ``event_key`` is unique per event across all sources: the Irradiation
+    Event UID (0008,3010) / (113769, DCM) when present, otherwise
+    ``"<SOP Instance UID>#<index>"``.
+    """
+
+    event_key: str
+    sop_instance_uid: str
+    sop_class_uid: str
+    source_kind: SourceKind
+    event_index: int = 0
+    irradiation_event_uid: str | None = None
+    modality: str | None = None
+    # identification and context
+    study_instance_uid: str | None = None
+    series_instance_uid: str | None = None
+    accession_number: str | None = None
+    study_datetime: datetime | None = None
+    event_datetime: datetime | None = None
+    institution_name: str | None = None
+    station_name: str | None = None
+    manufacturer: str | None = None
+    model_name: str | None = None
+    device_serial_number: str | None = None
+    device_observer_uid: str | None = None
+    protocol_name: str | None = None
+    study_description: str | None = None
+    series_description: str | None = None
+    body_part: str | None = None
+    view_position: str | None = None
+    event_type: str | None = None  # e.g. "stationary", "fluoroscopy", "ct_spiral", "ct_sequenced", "ct_localizer"
+    # patient (pseudonymised; never a name or birth date)
+    patient_pseudo_id: str | None = None
+    patient_age_years: float | None = None
+    patient_sex: str | None = None
+    patient_weight_kg: float | None = None
+    patient_height_m: float | None = None
+    # technique
+    kvp_kv: float | None = None
+    tube_current_ma: float | None = None
+    exposure_time_ms: float | None = None
+    exposure_mas: float | None = None
+    anode_material: str | None = None  # "tungsten", "molybdenum", "rhodium"
+    focal_spot_mm: float | None = None
+    grid: str | None = None
+    filters: tuple[FilterLayer, ...] = ()
+    filter_type: str | None = None  # free text of (0018,1160) or the SR filter type
+    # geometry
+    sid_mm: float | None = None  # source to detector
+    source_to_patient_mm: float | None = None  # (0018,1111): table side (DX/CR/MG) or isocentre (CT/XA)
+    source_to_entrance_mm: float | None = None  # (0040,0306)
+    source_to_isocenter_mm: float | None = None
+    source_to_table_mm: float | None = None
+    source_to_reference_point_mm: float | None = None
+    body_part_thickness_mm: float | None = None
+    magnification_factor: float | None = None
+    field_width_mm: float | None = None  # at the plane named by field_plane
+    field_height_mm: float | None = None
+    field_area_cm2: float | None = None
+    field_plane: str | None = None  # "detector" (collimator edges x imager pixel spacing) or "reported"
+    collimator_edges_px: tuple[int, int, int, int] | None = None  # left, right, upper, lower
+    imager_pixel_spacing_mm: tuple[float, float] | None = None  # row, column
+    detector_dimensions_mm: tuple[float, float] | None = None
+    # reported dose (as the device said it, converted to our units)
+    dap_gy_cm2: float | None = None
+    entrance_dose_mgy: float | None = None
+    entrance_dose_derivation: str | None = None
+    reference_point_air_kerma_mgy: float | None = None
+    organ_dose_mgy: float | None = None  # mammography: average glandular dose
+    hvl_mm_al: float | None = None
+    xray_output_mgy_per_mas: float | None = None
+    ctdivol_mgy: float | None = None
+    dlp_mgy_cm: float | None = None
+    ct_phantom_diameter_cm: float | None = None  # 16 or 32
+    water_equivalent_diameter_mm: float | None = None
+    ssde_mgy: float | None = None
+    ct_scan_length_mm: float | None = None
+    ct_pitch_factor: float | None = None
+    ct_total_collimation_mm: float | None = None
+    exposure_index: float | None = None
+    target_exposure_index: float | None = None
+    deviation_index: float | None = None
+    # fluoroscopy and interventional
+    fluoro_mode: str | None = None
+    pulse_rate_per_s: float | None = None
+    number_of_pulses: int | None = None
+    irradiation_duration_s: float | None = None
+    # where every value came from: field name -> "(0018,0060) KVP" or "(122130, DCM) Dose Area Product"
+    provenance: dict[str, str] = field(default_factory=dict)
+    notes: list[str] = field(default_factory=list)
+
+    def as_dict(self) -> dict[str, Any]:
+        """A JSON-ready dict (datetimes as ISO strings, filters as dicts)."""
+        out = dataclasses.asdict(self)
+        for key in ("study_datetime", "event_datetime"):
+            value = getattr(self, key)
+            out[key] = value.isoformat() if value is not None else None
+        out["filters"] = [dataclasses.asdict(f) for f in self.filters]
+        return out
+
+
+@dataclass(slots=True)
+class AccumulatedDose:
+    """A dose report's accumulation (TID 10002 for projection x-ray, TID 10012 for CT)."""
+
+    sop_instance_uid: str
+    study_instance_uid: str | None
+    acquisition_plane: str | None = None
+    dap_total_gy_cm2: float | None = None
+    fluoro_dap_total_gy_cm2: float | None = None
+    acquisition_dap_total_gy_cm2: float | None = None
+    reference_point_air_kerma_total_mgy: float | None = None
+    fluoro_reference_point_air_kerma_total_mgy: float | None = None
+    acquisition_reference_point_air_kerma_total_mgy: float | None = None
+    fluoro_time_total_s: float | None = None
+    acquisition_time_total_s: float | None = None
+    number_of_radiographic_frames: int | None = None
+    number_of_events: int | None = None
+    dlp_total_mgy_cm: float | None = None
+    agd_total_mgy: float | None = None
+    provenance: dict[str, str] = field(default_factory=dict)
+
+
+@dataclass(slots=True)
+class ParseResult:
+    """What one DICOM object yields: its identity, its events, its accumulations."""
+
+    source: SourceObject
+    events: list[ExposureEvent] = field(default_factory=list)
+    accumulated: list[AccumulatedDose] = field(default_factory=list)
+    warnings: list[str] = field(default_factory=list)
