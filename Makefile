@@ -1,0 +1,48 @@
+# beamaudit developer loop. `make demo` and `make test` do all the set-up on a fresh machine.
+PYTHON ?= python3
+VENV   := .venv
+PY     := $(VENV)/bin/python
+STAMP  := $(VENV)/.installed
+
+.PHONY: install demo serve test test-fast lint format bench clean
+
+$(STAMP): pyproject.toml
+	test -x $(PY) || $(PYTHON) -m venv $(VENV)
+	$(PY) -m pip install --quiet --upgrade pip
+	$(PY) -m pip install --quiet -e ".[test,dev]"
+	touch $(STAMP)
+
+install: $(STAMP)
+
+## The main job on the embedded default (SQLite): invented hospital, reviews, dashboards.
+demo: $(STAMP)
+	$(PY) -m beamaudit serve
+
+## Serve whatever the local database holds.
+serve: $(STAMP)
+	$(PY) -m beamaudit serve
+
+## The whole test suite (store tests on SQLite, and on PostgreSQL when BEAMAUDIT_TEST_POSTGRES_URL is set).
+test: $(STAMP)
+	$(PY) -m pytest
+
+## Everything but the slow and peer-dependent tests.
+test-fast: $(STAMP)
+	$(PY) -m pytest -m "not slow and not peer"
+
+lint: $(STAMP)
+	$(VENV)/bin/ruff check .
+	$(VENV)/bin/ruff format --check .
+	$(VENV)/bin/mypy _root ingest model api dashboards
+	$(VENV)/bin/lint-imports
+
+format: $(STAMP)
+	$(VENV)/bin/ruff format .
+	$(VENV)/bin/ruff check --fix .
+
+## Speed and memory targets, reported as ratios against a baseline measured in the same run.
+bench: $(STAMP)
+	@set -e; for b in benchmarks/bench_*.py; do echo "== $$b"; $(PY) $$b; done
+
+clean:
+	rm -rf build dist *.egg-info .pytest_cache .mypy_cache .ruff_cache artifacts demo-output

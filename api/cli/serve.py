@@ -1,0 +1,38 @@
+"""``beamaudit serve``: the REST API and the dashboards."""
+
+from __future__ import annotations
+
+from typing import Annotated
+
+import typer
+
+from beamaudit.api.cli._common import console, fail, load_settings
+
+__all__ = ["register"]
+
+
+def serve_command(
+    ctx: typer.Context,
+    host: Annotated[str, typer.Option(help="Address to listen on.")] = "127.0.0.1",
+    port: Annotated[int, typer.Option(min=1, max=65535, help="TCP port.")] = 8000,
+) -> None:
+    """Apply migrations, then serve the API (/api/v1) and the dashboards (/)."""
+    import uvicorn
+
+    from beamaudit.api.app import create_app
+    from beamaudit.api.store import StoreError, check_connection, make_engine, upgrade
+
+    settings = load_settings(ctx)
+    try:
+        engine = make_engine(settings.database_url)
+        check_connection(engine)
+        upgrade(engine)
+    except StoreError as exc:
+        fail(str(exc))
+    console.print(f"beamaudit serving on http://{host}:{port}/ (database: {settings.backend})")
+    uvicorn.run(create_app(settings, engine=engine), host=host, port=port, log_level="info")
+
+
+def register(app: typer.Typer) -> None:
+    """Add ``serve`` to ``app``."""
+    app.command("serve")(serve_command)

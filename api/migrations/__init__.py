@@ -1,1 +1,0 @@
-"""beamaudit stage package."""

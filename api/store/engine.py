@@ -1,0 +1,93 @@
+"""Engines and sessions for the store: SQLite (embedded default) or PostgreSQL.
+
+SQLite runs in WAL mode with foreign keys on and a busy timeout, so the
+listener, a scan and the API can write to one file without "database is
+locked" reaching a user. The caller owns the transaction
+(``with session_scope(factory) as session: ...``).
+"""
+
+from __future__ import annotations
+
+from collections.abc import Iterator
+from contextlib import contextmanager
+from typing import Any
+
+from sqlalchemy import create_engine, event, text
+from sqlalchemy.engine import Engine, make_url
+from sqlalchemy.exc import ArgumentError, DBAPIError, NoSuchModuleError, OperationalError
+from sqlalchemy.orm import Session, sessionmaker
+
+__all__ = ["StoreError", "check_connection", "make_engine", "make_session_factory", "session_scope"]
+
+SQLITE_BUSY_TIMEOUT_MS = 30_000
+
+
+class StoreError(RuntimeError):
+    """The store cannot be reached or used; the message is one line for a user."""
+
+
+def _sqlite_pragmas(dbapi_connection: Any, _record: Any) -> None:
+    cursor = dbapi_connection.cursor()
+    cursor.execute("PRAGMA journal_mode=WAL")
+    cursor.execute("PRAGMA foreign_keys=ON")
+    cursor.execute(f"PRAGMA busy_timeout={SQLITE_BUSY_TIMEOUT_MS}")
+    cursor.execute("PRAGMA synchronous=NORMAL")
+    cursor.close()
+
+
+def make_engine(database_url: str, **kwargs: Any) -> Engine:
+    """Create an engine for ``database_url``.
+
+    Raises
+    ------
+    StoreError
+        The URL is malformed or names a driver that is not installed.
+    """
+    try:
+        url = make_url(database_url)
+    except ArgumentError:
+        raise StoreError(f"database URL {database_url!r} is not a valid URL") from None
+    try:
+        if url.get_backend_name() == "sqlite":
+            connect_args = {"timeout": SQLITE_BUSY_TIMEOUT_MS / 1000, **kwargs.pop("connect_args", {})}
+            engine = create_engine(url, connect_args=connect_args, **kwargs)
+            event.listen(engine, "connect", _sqlite_pragmas)
+        else:
+            kwargs.setdefault("pool_pre_ping", True)
+            connect_args = {"connect_timeout": 10, **kwargs.pop("connect_args", {})}
+            engine = create_engine(url, connect_args=connect_args, **kwargs)
+    except (NoSuchModuleError, ArgumentError, ImportError) as exc:
+        raise StoreError(f"database URL {url.render_as_string()!r} cannot be used: {exc}") from None
+    return engine
+
+
+def check_connection(engine: Engine) -> None:
+    """Open one connection and run ``SELECT 1``; a failure becomes a one-line :class:`StoreError`."""
+    try:
+        with engine.connect() as conn:
+            conn.execute(text("SELECT 1"))
+    except (OperationalError, DBAPIError) as exc:
+        first = str(exc.orig if getattr(exc, "orig", None) else exc).strip().splitlines()
+        detail = first[0] if first else type(exc).__name__
+        raise StoreError(
+            f"cannot reach the database {engine.url.render_as_string(hide_password=True)}: {detail}"
+        ) from None
+
+
+def make_session_factory(engine: Engine) -> sessionmaker[Session]:
+    """A session factory bound to ``engine`` (objects stay usable after commit)."""
+    return sessionmaker(bind=engine, expire_on_commit=False)
+
+
+@contextmanager
+def session_scope(factory: sessionmaker[Session]) -> Iterator[Session]:
+    """One transaction: commit on success, roll back on any exception."""
+    session = factory()
+    try:
+        yield session
+        session.commit()
+    except BaseException:
+        session.rollback()
+        raise
+    finally:
+        session.close()

@@ -1,0 +1,426 @@
+"""The tables of beamaudit's store (SQLAlchemy 2 typed mappings).
+
+Reported and reconstructed values sit side by side in ``exposure_events``:
+``dap_gy_cm2`` is what the device said, ``recon_dap_gy_cm2`` what the beam and
+dose model made of the same exposure. API schemas live elsewhere
+(``beamaudit.api.schemas``); these classes are tables only.
+"""
+
+from __future__ import annotations
+
+from datetime import date, datetime
+from typing import Any
+
+from sqlalchemy import (
+    Boolean,
+    Date,
+    Float,
+    ForeignKey,
+    Index,
+    Integer,
+    String,
+    Text,
+    UniqueConstraint,
+)
+from sqlalchemy.orm import Mapped, mapped_column
+
+from beamaudit.api.store.base import Base, JSONValue, UTCDateTime, utcnow
+
+__all__ = [
+    "AccumulatedDoseRow",
+    "ApiToken",
+    "AuditLogEntry",
+    "Device",
+    "DicomwebSource",
+    "ExamTypeRow",
+    "ExposureEventRow",
+    "FlagRow",
+    "IngestError",
+    "MappingRuleRow",
+    "QAMeasurementRow",
+    "ReferenceLevelRow",
+    "ReferenceLevelSetRow",
+    "ReviewRun",
+    "Room",
+    "RoomCalibrationRow",
+    "Site",
+    "SourceObjectRow",
+    "Study",
+]
+
+
+class Site(Base):
+    """A hospital or clinic (an institution)."""
+
+    __tablename__ = "sites"
+    id: Mapped[int] = mapped_column(primary_key=True)
+    name: Mapped[str] = mapped_column(String, unique=True)
+    created_at: Mapped[datetime] = mapped_column(UTCDateTime(), default=utcnow)
+
+
+class Room(Base):
+    """An x-ray room (or mobile unit) and its beam configuration."""
+
+    __tablename__ = "rooms"
+    __table_args__ = (UniqueConstraint("site_id", "name"),)
+    id: Mapped[int] = mapped_column(primary_key=True)
+    site_id: Mapped[int] = mapped_column(ForeignKey("sites.id"))
+    name: Mapped[str] = mapped_column(String)
+    modality: Mapped[str | None] = mapped_column(String)
+    anode_material: Mapped[str] = mapped_column(String, default="tungsten")
+    anode_angle_deg: Mapped[float] = mapped_column(Float, default=12.0)
+    ripple_percent: Mapped[float] = mapped_column(Float, default=0.0)
+    #: total filtration layers [{material, thickness_mm}], inherent included; null: default assumed
+    filtration: Mapped[list[dict[str, Any]] | None] = mapped_column(JSONValue)
+    table_to_detector_mm: Mapped[float | None] = mapped_column(Float)
+    dap_ratio_tolerance: Mapped[float | None] = mapped_column(Float)
+    created_at: Mapped[datetime] = mapped_column(UTCDateTime(), default=utcnow)
+
+
+class Device(Base):
+    """One imaging device as it names itself in DICOM (station, serial, observer UID)."""
+
+    __tablename__ = "devices"
+    __table_args__ = (
+        UniqueConstraint("manufacturer", "model_name", "serial_number", "station_name"),
+    )
+    id: Mapped[int] = mapped_column(primary_key=True)
+    room_id: Mapped[int | None] = mapped_column(ForeignKey("rooms.id"), index=True)
+    station_name: Mapped[str] = mapped_column(String, default="")
+    manufacturer: Mapped[str] = mapped_column(String, default="")
+    model_name: Mapped[str] = mapped_column(String, default="")
+    serial_number: Mapped[str] = mapped_column(String, default="")
+    device_observer_uid: Mapped[str | None] = mapped_column(String)
+    institution_name: Mapped[str | None] = mapped_column(String)
+    first_seen_at: Mapped[datetime] = mapped_column(UTCDateTime(), default=utcnow)
+
+
+class QAMeasurementRow(Base):
+    """A quality-assurance measurement of a room's beam (output, optionally HVL)."""
+
+    __tablename__ = "qa_measurements"
+    id: Mapped[int] = mapped_column(primary_key=True)
+    room_id: Mapped[int] = mapped_column(ForeignKey("rooms.id"), index=True)
+    measured_on: Mapped[date] = mapped_column(Date)
+    kvp_kv: Mapped[float] = mapped_column(Float)
+    filtration: Mapped[list[dict[str, Any]] | None] = mapped_column(JSONValue)
+    distance_mm: Mapped[float] = mapped_column(Float)
+    output_ugy_per_mas: Mapped[float] = mapped_column(Float)
+    hvl_mm_al: Mapped[float | None] = mapped_column(Float)
+    note: Mapped[str | None] = mapped_column(Text)
+
+
+class RoomCalibrationRow(Base):
+    """The result of fitting a room's beam model to its QA measurements."""
+
+    __tablename__ = "room_calibrations"
+    id: Mapped[int] = mapped_column(primary_key=True)
+    room_id: Mapped[int] = mapped_column(ForeignKey("rooms.id"), index=True)
+    created_at: Mapped[datetime] = mapped_column(UTCDateTime(), default=utcnow)
+    output_scale: Mapped[float] = mapped_column(Float)
+    inherent_filtration_mm_al: Mapped[float | None] = mapped_column(Float)
+    residuals: Mapped[list[dict[str, Any]]] = mapped_column(JSONValue, default=list)
+    n_measurements: Mapped[int] = mapped_column(Integer)
+    active: Mapped[bool] = mapped_column(Boolean, default=True)
+
+
+class Study(Base):
+    """A study: the examination the reference levels per examination apply to."""
+
+    __tablename__ = "studies"
+    id: Mapped[int] = mapped_column(primary_key=True)
+    study_instance_uid: Mapped[str] = mapped_column(String, unique=True)
+    accession_number: Mapped[str | None] = mapped_column(String)
+    study_datetime: Mapped[datetime | None] = mapped_column(UTCDateTime(), index=True)
+    study_description: Mapped[str | None] = mapped_column(String)
+    patient_pseudo_id: Mapped[str | None] = mapped_column(String, index=True)
+    patient_age_years: Mapped[float | None] = mapped_column(Float)
+    patient_sex: Mapped[str | None] = mapped_column(String)
+    patient_weight_kg: Mapped[float | None] = mapped_column(Float)
+    patient_height_m: Mapped[float | None] = mapped_column(Float)
+    has_dose_report: Mapped[bool] = mapped_column(Boolean, default=False)
+    exam_type: Mapped[str | None] = mapped_column(String, index=True)
+    created_at: Mapped[datetime] = mapped_column(UTCDateTime(), default=utcnow)
+
+
+class SourceObjectRow(Base):
+    """One DICOM object we read: the unit of idempotence (its SOP Instance UID)."""
+
+    __tablename__ = "source_objects"
+    id: Mapped[int] = mapped_column(primary_key=True)
+    sop_instance_uid: Mapped[str] = mapped_column(String, unique=True)
+    sop_class_uid: Mapped[str] = mapped_column(String)
+    kind: Mapped[str] = mapped_column(String)  # image_header | rdsr
+    modality: Mapped[str | None] = mapped_column(String)
+    study_id: Mapped[int | None] = mapped_column(ForeignKey("studies.id"), index=True)
+    series_instance_uid: Mapped[str | None] = mapped_column(String)
+    received_via: Mapped[str] = mapped_column(String)  # scan | listen | pull | upload | demo
+    received_from: Mapped[str | None] = mapped_column(String)  # path, calling AE, URL
+    content_sha256: Mapped[str | None] = mapped_column(String)
+    received_at: Mapped[datetime] = mapped_column(UTCDateTime(), default=utcnow)
+
+
+class ExposureEventRow(Base):
+    """One irradiation event: technique, geometry, reported dose and reconstructed dose."""
+
+    __tablename__ = "exposure_events"
+    __table_args__ = (
+        Index("ix_exposure_events_room_time", "room_id", "event_datetime"),
+        Index("ix_exposure_events_exam_time", "exam_type", "event_datetime"),
+    )
+    id: Mapped[int] = mapped_column(primary_key=True)
+    event_key: Mapped[str] = mapped_column(String, unique=True)
+    source_object_id: Mapped[int] = mapped_column(ForeignKey("source_objects.id"), index=True)
+    study_id: Mapped[int | None] = mapped_column(ForeignKey("studies.id"), index=True)
+    device_id: Mapped[int | None] = mapped_column(ForeignKey("devices.id"), index=True)
+    room_id: Mapped[int | None] = mapped_column(ForeignKey("rooms.id"))
+    source_kind: Mapped[str] = mapped_column(String)
+    event_index: Mapped[int] = mapped_column(Integer, default=0)
+    exam_type: Mapped[str | None] = mapped_column(String)
+    #: true when a dose report of the same study carries this exposure (never counted twice)
+    superseded: Mapped[bool] = mapped_column(Boolean, default=False)
+    filters: Mapped[list[dict[str, Any]] | None] = mapped_column(JSONValue)
+    irradiation_event_uid: Mapped[str | None] = mapped_column(String)
+    modality: Mapped[str | None] = mapped_column(String)
+    accession_number: Mapped[str | None] = mapped_column(String)
+    study_datetime: Mapped[datetime | None] = mapped_column(UTCDateTime())
+    event_datetime: Mapped[datetime | None] = mapped_column(UTCDateTime())
+    institution_name: Mapped[str | None] = mapped_column(String)
+    station_name: Mapped[str | None] = mapped_column(String)
+    manufacturer: Mapped[str | None] = mapped_column(String)
+    model_name: Mapped[str | None] = mapped_column(String)
+    device_serial_number: Mapped[str | None] = mapped_column(String)
+    device_observer_uid: Mapped[str | None] = mapped_column(String)
+    protocol_name: Mapped[str | None] = mapped_column(String)
+    study_description: Mapped[str | None] = mapped_column(String)
+    series_description: Mapped[str | None] = mapped_column(String)
+    body_part: Mapped[str | None] = mapped_column(String)
+    view_position: Mapped[str | None] = mapped_column(String)
+    event_type: Mapped[str | None] = mapped_column(String)
+    patient_pseudo_id: Mapped[str | None] = mapped_column(String)
+    patient_age_years: Mapped[float | None] = mapped_column(Float)
+    patient_sex: Mapped[str | None] = mapped_column(String)
+    patient_weight_kg: Mapped[float | None] = mapped_column(Float)
+    patient_height_m: Mapped[float | None] = mapped_column(Float)
+    kvp_kv: Mapped[float | None] = mapped_column(Float)
+    tube_current_ma: Mapped[float | None] = mapped_column(Float)
+    exposure_time_ms: Mapped[float | None] = mapped_column(Float)
+    exposure_mas: Mapped[float | None] = mapped_column(Float)
+    anode_material: Mapped[str | None] = mapped_column(String)
+    focal_spot_mm: Mapped[float | None] = mapped_column(Float)
+    grid: Mapped[str | None] = mapped_column(String)
+    filter_type: Mapped[str | None] = mapped_column(String)
+    sid_mm: Mapped[float | None] = mapped_column(Float)
+    source_to_patient_mm: Mapped[float | None] = mapped_column(Float)
+    source_to_entrance_mm: Mapped[float | None] = mapped_column(Float)
+    source_to_isocenter_mm: Mapped[float | None] = mapped_column(Float)
+    source_to_table_mm: Mapped[float | None] = mapped_column(Float)
+    source_to_reference_point_mm: Mapped[float | None] = mapped_column(Float)
+    body_part_thickness_mm: Mapped[float | None] = mapped_column(Float)
+    magnification_factor: Mapped[float | None] = mapped_column(Float)
+    field_width_mm: Mapped[float | None] = mapped_column(Float)
+    field_height_mm: Mapped[float | None] = mapped_column(Float)
+    field_area_cm2: Mapped[float | None] = mapped_column(Float)
+    field_plane: Mapped[str | None] = mapped_column(String)
+    dap_gy_cm2: Mapped[float | None] = mapped_column(Float)
+    entrance_dose_mgy: Mapped[float | None] = mapped_column(Float)
+    entrance_dose_derivation: Mapped[str | None] = mapped_column(String)
+    reference_point_air_kerma_mgy: Mapped[float | None] = mapped_column(Float)
+    organ_dose_mgy: Mapped[float | None] = mapped_column(Float)
+    hvl_mm_al: Mapped[float | None] = mapped_column(Float)
+    xray_output_mgy_per_mas: Mapped[float | None] = mapped_column(Float)
+    ctdivol_mgy: Mapped[float | None] = mapped_column(Float)
+    dlp_mgy_cm: Mapped[float | None] = mapped_column(Float)
+    ct_phantom_diameter_cm: Mapped[float | None] = mapped_column(Float)
+    water_equivalent_diameter_mm: Mapped[float | None] = mapped_column(Float)
+    ssde_mgy: Mapped[float | None] = mapped_column(Float)
+    ct_scan_length_mm: Mapped[float | None] = mapped_column(Float)
+    ct_pitch_factor: Mapped[float | None] = mapped_column(Float)
+    ct_total_collimation_mm: Mapped[float | None] = mapped_column(Float)
+    exposure_index: Mapped[float | None] = mapped_column(Float)
+    target_exposure_index: Mapped[float | None] = mapped_column(Float)
+    deviation_index: Mapped[float | None] = mapped_column(Float)
+    fluoro_mode: Mapped[str | None] = mapped_column(String)
+    pulse_rate_per_s: Mapped[float | None] = mapped_column(Float)
+    number_of_pulses: Mapped[int | None] = mapped_column(Integer)
+    irradiation_duration_s: Mapped[float | None] = mapped_column(Float)
+    # reconstructed by beamaudit.model (recon_*), beside the reported values above
+    recon_status: Mapped[str | None] = mapped_column(String)  # ok | no_technique | failed
+    recon_hvl1_mm_al: Mapped[float | None] = mapped_column(Float)
+    recon_output_ugy_per_mas_1m: Mapped[float | None] = mapped_column(Float)
+    recon_incident_air_kerma_mgy: Mapped[float | None] = mapped_column(Float)
+    recon_esak_mgy: Mapped[float | None] = mapped_column(Float)
+    recon_entrance_dose_mgy: Mapped[float | None] = mapped_column(Float)
+    recon_dap_gy_cm2: Mapped[float | None] = mapped_column(Float)
+    recon_dap_u_gy_cm2: Mapped[float | None] = mapped_column(Float)
+    recon_esak_u_mgy: Mapped[float | None] = mapped_column(Float)
+    recon_backscatter_factor: Mapped[float | None] = mapped_column(Float)
+    recon_fsd_mm: Mapped[float | None] = mapped_column(Float)
+    recon_calibrated: Mapped[bool | None] = mapped_column(Boolean)
+    dap_ratio_reported_to_recon: Mapped[float | None] = mapped_column(Float)
+    recon_trail: Mapped[dict[str, Any] | None] = mapped_column(JSONValue)
+    provenance: Mapped[dict[str, str]] = mapped_column(JSONValue, default=dict)
+    notes: Mapped[list[str]] = mapped_column(JSONValue, default=list)
+    stored_at: Mapped[datetime] = mapped_column(UTCDateTime(), default=utcnow, index=True)
+
+
+class AccumulatedDoseRow(Base):
+    """A dose report's accumulated totals (TID 10002 / TID 10012)."""
+
+    __tablename__ = "accumulated_doses"
+    id: Mapped[int] = mapped_column(primary_key=True)
+    source_object_id: Mapped[int] = mapped_column(ForeignKey("source_objects.id"), index=True)
+    study_id: Mapped[int | None] = mapped_column(ForeignKey("studies.id"), index=True)
+    acquisition_plane: Mapped[str | None] = mapped_column(String)
+    dap_total_gy_cm2: Mapped[float | None] = mapped_column(Float)
+    fluoro_dap_total_gy_cm2: Mapped[float | None] = mapped_column(Float)
+    acquisition_dap_total_gy_cm2: Mapped[float | None] = mapped_column(Float)
+    reference_point_air_kerma_total_mgy: Mapped[float | None] = mapped_column(Float)
+    fluoro_time_total_s: Mapped[float | None] = mapped_column(Float)
+    number_of_events: Mapped[int | None] = mapped_column(Integer)
+    dlp_total_mgy_cm: Mapped[float | None] = mapped_column(Float)
+    agd_total_mgy: Mapped[float | None] = mapped_column(Float)
+    details: Mapped[dict[str, Any]] = mapped_column(JSONValue, default=dict)
+
+
+class IngestError(Base):
+    """A file or object we could not use, with its reason; the batch went on."""
+
+    __tablename__ = "ingest_errors"
+    id: Mapped[int] = mapped_column(primary_key=True)
+    occurred_at: Mapped[datetime] = mapped_column(UTCDateTime(), default=utcnow, index=True)
+    received_via: Mapped[str] = mapped_column(String)
+    source: Mapped[str] = mapped_column(String)  # path, "AE@host", URL
+    sop_instance_uid: Mapped[str | None] = mapped_column(String)
+    code: Mapped[str] = mapped_column(String)
+    reason: Mapped[str] = mapped_column(Text)
+
+
+class ExamTypeRow(Base):
+    """An entry of the exam-type catalogue."""
+
+    __tablename__ = "exam_types"
+    code: Mapped[str] = mapped_column(String, primary_key=True)
+    name: Mapped[str] = mapped_column(String)
+    modality: Mapped[str] = mapped_column(String)
+    level_applies_per: Mapped[str] = mapped_column(String)  # projection | examination
+    quantities: Mapped[list[str]] = mapped_column(JSONValue, default=list)
+    details: Mapped[dict[str, Any]] = mapped_column(JSONValue, default=dict)
+
+
+class MappingRuleRow(Base):
+    """One ordered rule mapping raw header values to an exam type (first match wins)."""
+
+    __tablename__ = "mapping_rules"
+    id: Mapped[int] = mapped_column(primary_key=True)
+    priority: Mapped[int] = mapped_column(Integer, index=True)
+    exam_type: Mapped[str] = mapped_column(String)
+    patterns: Mapped[dict[str, str]] = mapped_column(JSONValue, default=dict)
+    note: Mapped[str | None] = mapped_column(Text)
+
+
+class ReferenceLevelSetRow(Base):
+    """A versioned set of reference levels (local or national)."""
+
+    __tablename__ = "reference_level_sets"
+    __table_args__ = (UniqueConstraint("name", "version"),)
+    id: Mapped[int] = mapped_column(primary_key=True)
+    name: Mapped[str] = mapped_column(String)
+    kind: Mapped[str] = mapped_column(String)  # local | national
+    version: Mapped[str] = mapped_column(String)
+    effective_from: Mapped[date] = mapped_column(Date)
+    source: Mapped[str | None] = mapped_column(Text)
+    retired_at: Mapped[datetime | None] = mapped_column(UTCDateTime())
+    created_at: Mapped[datetime] = mapped_column(UTCDateTime(), default=utcnow)
+
+
+class ReferenceLevelRow(Base):
+    """One level: exam type, quantity, value and unit, with its source."""
+
+    __tablename__ = "reference_levels"
+    __table_args__ = (UniqueConstraint("set_id", "exam_type", "quantity"),)
+    id: Mapped[int] = mapped_column(primary_key=True)
+    set_id: Mapped[int] = mapped_column(ForeignKey("reference_level_sets.id", ondelete="CASCADE"))
+    exam_type: Mapped[str] = mapped_column(String)
+    quantity: Mapped[str] = mapped_column(String)
+    value: Mapped[float] = mapped_column(Float)
+    unit: Mapped[str] = mapped_column(String)
+    source: Mapped[str | None] = mapped_column(Text)
+
+
+class ReviewRun(Base):
+    """A review run, stored with everything needed to repeat it."""
+
+    __tablename__ = "review_runs"
+    id: Mapped[int] = mapped_column(primary_key=True)
+    kind: Mapped[str] = mapped_column(String)  # monthly | nightly
+    period: Mapped[str | None] = mapped_column(String, index=True)
+    parameters: Mapped[dict[str, Any]] = mapped_column(JSONValue, default=dict)
+    level_sets: Mapped[list[dict[str, Any]]] = mapped_column(JSONValue, default=list)
+    software_version: Mapped[str] = mapped_column(String)
+    status: Mapped[str] = mapped_column(String, default="pending")  # pending|running|done|failed
+    started_at: Mapped[datetime] = mapped_column(UTCDateTime(), default=utcnow)
+    finished_at: Mapped[datetime | None] = mapped_column(UTCDateTime())
+    result: Mapped[dict[str, Any] | None] = mapped_column(JSONValue)
+    error: Mapped[str | None] = mapped_column(Text)
+
+
+class FlagRow(Base):
+    """A finding of a review, with its reason and the numbers behind it."""
+
+    __tablename__ = "flags"
+    id: Mapped[int] = mapped_column(primary_key=True)
+    review_run_id: Mapped[int] = mapped_column(
+        ForeignKey("review_runs.id", ondelete="CASCADE"), index=True
+    )
+    kind: Mapped[str] = mapped_column(String, index=True)
+    severity: Mapped[str] = mapped_column(String)
+    reason: Mapped[str] = mapped_column(Text)
+    numbers: Mapped[dict[str, Any]] = mapped_column(JSONValue, default=dict)
+    event_id: Mapped[int | None] = mapped_column(ForeignKey("exposure_events.id"))
+    study_instance_uid: Mapped[str | None] = mapped_column(String)
+    room: Mapped[str | None] = mapped_column(String)
+    exam_type: Mapped[str | None] = mapped_column(String)
+    status: Mapped[str] = mapped_column(String, default="open")  # open | acknowledged | closed
+    created_at: Mapped[datetime] = mapped_column(UTCDateTime(), default=utcnow)
+
+
+class ApiToken(Base):
+    """An API token; only its hash is kept."""
+
+    __tablename__ = "api_tokens"
+    id: Mapped[int] = mapped_column(primary_key=True)
+    name: Mapped[str | None] = mapped_column(String)
+    role: Mapped[str] = mapped_column(String)  # viewer | physicist | admin
+    token_hash: Mapped[str] = mapped_column(String, unique=True)
+    created_at: Mapped[datetime] = mapped_column(UTCDateTime(), default=utcnow)
+    revoked_at: Mapped[datetime | None] = mapped_column(UTCDateTime())
+    last_used_at: Mapped[datetime | None] = mapped_column(UTCDateTime())
+
+
+class AuditLogEntry(Base):
+    """Who changed what, when, with the values before and after."""
+
+    __tablename__ = "audit_log"
+    id: Mapped[int] = mapped_column(primary_key=True)
+    at: Mapped[datetime] = mapped_column(UTCDateTime(), default=utcnow, index=True)
+    actor: Mapped[str] = mapped_column(String)  # "token:3 (physicist)" or "cli:<user>"
+    action: Mapped[str] = mapped_column(String)
+    entity: Mapped[str] = mapped_column(String)
+    entity_id: Mapped[str | None] = mapped_column(String)
+    before: Mapped[dict[str, Any] | None] = mapped_column(JSONValue)
+    after: Mapped[dict[str, Any] | None] = mapped_column(JSONValue)
+
+
+class DicomwebSource(Base):
+    """A DICOMweb server we pull from, with its watermark."""
+
+    __tablename__ = "dicomweb_sources"
+    id: Mapped[int] = mapped_column(primary_key=True)
+    name: Mapped[str] = mapped_column(String, unique=True)
+    url: Mapped[str] = mapped_column(String, unique=True)
+    modalities: Mapped[list[str]] = mapped_column(JSONValue, default=list)
+    watermark_date: Mapped[date | None] = mapped_column(Date)
+    last_pull_at: Mapped[datetime | None] = mapped_column(UTCDateTime())
+    last_pull_report: Mapped[dict[str, Any] | None] = mapped_column(JSONValue)
+    enabled: Mapped[bool] = mapped_column(Boolean, default=True)

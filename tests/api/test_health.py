@@ -1,0 +1,37 @@
+"""``GET /api/v1/health`` on both backends, and with the database gone."""
+
+from __future__ import annotations
+
+from fastapi.testclient import TestClient
+
+from beamaudit import __version__
+from beamaudit.api.app import create_app
+from beamaudit.api.settings import load
+from beamaudit.api.store import make_engine
+
+
+def test_health_ok(store) -> None:
+    settings = load(database_url=store.url)
+    with TestClient(create_app(settings, engine=store.engine)) as client:
+        response = client.get("/api/v1/health")
+    assert response.status_code == 200
+    assert response.json() == {"status": "ok", "version": __version__, "database": store.backend}
+
+
+def test_health_503_when_database_is_down() -> None:
+    url = "postgresql+psycopg://nobody@127.0.0.1:1/none"
+    settings = load(database_url=url)
+    with TestClient(create_app(settings, engine=make_engine(url))) as client:
+        response = client.get("/api/v1/health")
+    assert response.status_code == 503
+    body = response.json()
+    assert body["status"] == "unavailable"
+    assert body["database"] == "postgresql"
+    assert "cannot reach the database" in body["detail"]
+
+
+def test_openapi_schema_is_served() -> None:
+    settings = load(database_url="sqlite://")
+    with TestClient(create_app(settings)) as client:
+        schema = client.get("/api/v1/openapi.json").json()
+    assert schema["paths"]["/api/v1/health"]["get"]["operationId"] == "get_health"
