@@ -1,0 +1,135 @@
+"""Storing parsed objects: idempotence, conflicts, studies, devices, and header/report linking."""
+
+from __future__ import annotations
+
+from datetime import datetime
+
+from sqlalchemy import func, select
+
+from beamaudit.api.pipeline import Pipeline, content_hash, report_covers
+from beamaudit.api.store import models as m
+from beamaudit.ingest.errors import IngestError
+from beamaudit.ingest.events import ExposureEvent, FilterLayer, ParseResult, SourceObject
+
+STUDY = "1.2.826.0.1.3680043.8.498.1"
+
+
+def _result(sop: str, *, kind="image_header", modality="DX", n_events=1, study=STUDY, **kw):
+    src = SourceObject(
+        sop_instance_uid=sop,
+        sop_class_uid="1.2.840.10008.5.1.4.1.1.1.1" if kind == "image_header" else "1.2.840.10008.5.1.4.1.1.88.67",
+        kind=kind,
+        modality=modality,
+        study_instance_uid=study,
+    )
+    events = [
+        ExposureEvent(
+            event_key=f"{sop}#{i}",
+            sop_instance_uid=sop,
+            sop_class_uid=src.sop_class_uid,
+            source_kind=kind,
+            event_index=i,
+            modality=modality,
+            study_instance_uid=study,
+            station_name="RAD1",
+            manufacturer="Invented Medical",
+            model_name="Model R",
+            device_serial_number="SN-1",
+            institution_name="Hollowbrook General (invented)",
+            study_datetime=datetime(2026, 11, 3, 9, 30),
+            patient_weight_kg=72.0,
+            kvp_kv=81.0,
+            exposure_mas=10.0,
+            filters=(FilterLayer("aluminium", 2.5),),
+            dap_gy_cm2=0.12,
+            provenance={"kvp_kv": "(0018,0060) KVP"},
+            **kw,
+        )
+        for i in range(n_events)
+    ]
+    return ParseResult(source=src, events=events)
+
+
+def _count(store, model) -> int:
+    with store.session_factory() as s:
+        return s.scalar(select(func.count()).select_from(model))
+
+
+def test_store_creates_study_device_room_and_event(store) -> None:
+    out = Pipeline(store.session_factory).store(_result("1.2.3.1"), received_via="scan")
+    assert out.status == "stored" and out.events == 1
+    with store.session_factory() as s:
+        event = s.scalars(select(m.ExposureEventRow)).one()
+        assert event.kvp_kv == 81.0
+        assert event.filters == [{"material": "aluminium", "thickness_mm": 2.5}]
+        assert event.provenance == {"kvp_kv": "(0018,0060) KVP"}
+        assert event.study_datetime.tzinfo is not None
+        room = s.get(m.Room, event.room_id)
+        assert room.name == "RAD1"
+        study = s.get(m.Study, event.study_id)
+        assert study.patient_weight_kg == 72.0
+
+
+def test_same_instance_twice_is_one_event(store) -> None:
+    pipe = Pipeline(store.session_factory)
+    r = _result("1.2.3.2")
+    assert pipe.store(r, received_via="scan", sha256="a").status == "stored"
+    assert pipe.store(r, received_via="listen", sha256="a").status == "duplicate"
+    assert _count(store, m.ExposureEventRow) == 1
+    assert _count(store, m.SourceObjectRow) == 1
+
+
+def test_same_uid_different_content_is_a_conflict_and_keeps_the_first(store) -> None:
+    pipe = Pipeline(store.session_factory)
+    pipe.store(_result("1.2.3.3"), received_via="scan", sha256=content_hash(b"one"))
+    out = pipe.store(_result("1.2.3.3"), received_via="scan", sha256=content_hash(b"two"))
+    assert out.status == "conflict"
+    assert "different content" in out.reason
+    assert _count(store, m.ExposureEventRow) == 1
+
+
+def test_batch_with_a_repeat_inside_stores_each_object_once(store) -> None:
+    pipe = Pipeline(store.session_factory)
+    items = [(_result(f"1.2.3.4.{i % 3}"), None, None) for i in range(6)]
+    outcomes = pipe.store_many(items, received_via="scan")
+    assert [o.status for o in outcomes].count("stored") == 3
+    assert _count(store, m.SourceObjectRow) == 3
+
+
+def test_event_key_clash_across_objects_is_reported_not_lost(store) -> None:
+    pipe = Pipeline(store.session_factory)
+    a = _result("1.2.3.5.1")
+    b = _result("1.2.3.5.2")
+    b.events[0].event_key = a.events[0].event_key  # same Irradiation Event UID in two objects
+    pipe.store(a, received_via="scan")
+    out = pipe.store(b, received_via="scan")
+    assert out.status == "conflict"
+    assert _count(store, m.ExposureEventRow) == 1
+
+
+def test_dose_report_supersedes_header_events_whichever_arrives_first(store) -> None:
+    pipe = Pipeline(store.session_factory)
+    pipe.store(_result("1.2.3.6.1"), received_via="scan")  # header first
+    pipe.store(_result("1.2.3.6.9", kind="rdsr", n_events=2), received_via="listen")
+    pipe.store(_result("1.2.3.6.2"), received_via="scan")  # header after the report
+    with store.session_factory() as s:
+        rows = s.scalars(select(m.ExposureEventRow)).all()
+        headers = [r for r in rows if r.source_kind == "image_header"]
+        reports = [r for r in rows if r.source_kind == "rdsr"]
+    assert len(headers) == 2 and all(r.superseded for r in headers)
+    assert len(reports) == 2 and not any(r.superseded for r in reports)
+
+
+def test_ct_report_does_not_supersede_projection_headers() -> None:
+    assert report_covers(["CT"], "CT")
+    assert not report_covers(["CT"], "DX")
+    assert report_covers(["DX"], "DX")
+    assert not report_covers(["RF"], "CT")
+
+
+def test_errors_are_recorded_with_source_and_reason(store) -> None:
+    pipe = Pipeline(store.session_factory)
+    pipe.record_error(IngestError("not_dicom", "no DICM marker", "/data/readme.txt"), received_via="scan")
+    with store.session_factory() as s:
+        err = s.scalars(select(m.IngestError)).one()
+    assert (err.source, err.code, err.reason) == ("/data/readme.txt", "not_dicom", "no DICM marker")
