@@ -1,0 +1,42 @@
+"""Opening the store from a command: settings, engine, migrations, one-line errors."""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+
+import typer
+from sqlalchemy.engine import Engine
+from sqlalchemy.orm import Session, sessionmaker
+
+from beamaudit.api.cli._common import fail, load_settings
+from beamaudit.api.settings import Settings
+
+__all__ = ["OpenStore", "open_store"]
+
+
+@dataclass
+class OpenStore:
+    settings: Settings
+    engine: Engine
+    sessions: sessionmaker[Session]
+
+
+def open_store(ctx: typer.Context | None, *, migrate: bool = True) -> OpenStore:
+    """Settings, a reachable engine (migrated to head unless ``migrate`` is false), sessions."""
+    from beamaudit.api.store import (
+        StoreError,
+        check_connection,
+        make_engine,
+        make_session_factory,
+        upgrade,
+    )
+
+    settings = load_settings(ctx)
+    try:
+        engine = make_engine(settings.database_url)
+        check_connection(engine)
+        if migrate:
+            upgrade(engine)
+    except StoreError as exc:
+        fail(str(exc))
+    return OpenStore(settings, engine, make_session_factory(engine))
