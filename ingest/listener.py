@@ -1,0 +1,563 @@
+"""A C-STORE listener: the DICOM storage SCP through which modalities and PACS push objects.
+
+The listener is network plumbing only. It negotiates the storage classes beamaudit reads, turns
+each C-STORE request into a :class:`ReceivedObject` and hands it to a *handler* supplied by the
+caller (the application binds the parser and the store there). The C-STORE response reports what
+the handler said, mapped onto the Storage Service Class statuses of the standard:
+
+- success (0x0000) only after the handler returned ``ok``; the handler must return only once the
+  object (or the events read from it) is durably stored, because a sender that sees success may
+  delete its copy;
+- a handler that raises (other than an ``IngestError``), or reports a storage failure, gives
+  0xA700 "Refused: Out of Resources" with an Error Comment (the sender keeps the object and may
+  retry later);
+- a data set that cannot be decoded, or that the handler finds unusable (it returns
+  :meth:`StoreOutcome.cannot_understand` or raises ``IngestError``), gives a 0xC000-range
+  "Error: Cannot understand" with an Error Comment carrying the reason (retrying will not help).
+
+A failing handler never stops the listener: every association runs in its own thread and every
+failure is answered and logged. Logs name SOP Instance UIDs and AE titles, never patient names
+or IDs, and never an exception's message (a database error's text may quote data values).
+
+Examples
+--------
+>>> def handler(received: ReceivedObject) -> StoreOutcome:  # doctest: +SKIP
+...     store_durably(received.encoded)
+...     return StoreOutcome.stored()
+>>> with start_listener(ListenerConfig(port=11112), handler) as listener:  # doctest: +SKIP
+...     listener.wait()
+"""
+
+from __future__ import annotations
+
+import logging
+import re
+import threading
+import traceback
+from collections.abc import Callable, Iterable
+from dataclasses import dataclass, field
+from enum import IntEnum
+from types import TracebackType
+from typing import Any
+
+from pydicom.dataset import Dataset
+from pynetdicom import AE, ALL_TRANSFER_SYNTAXES, build_context, evt
+from pynetdicom.events import EventHandlerType
+from pynetdicom.presentation import PresentationContext
+
+from .errors import IngestError
+
+__all__ = [
+    "DOSE_REPORT_STORAGE_SOP_CLASSES",
+    "IMAGE_STORAGE_SOP_CLASSES",
+    "Listener",
+    "ListenerConfig",
+    "ListenerConfigError",
+    "ReceivedObject",
+    "StoreHandler",
+    "StoreOutcome",
+    "StoreStatus",
+    "start_listener",
+    "storage_contexts",
+]
+
+_LOG = logging.getLogger(__name__)
+
+# Storage SOP Class UIDs, PS3.4 Annex B.5 (Table B.5-1); names as in pydicom's UID dictionary.
+IMAGE_STORAGE_SOP_CLASSES: dict[str, str] = {
+    "1.2.840.10008.5.1.4.1.1.1": "Computed Radiography Image Storage",
+    "1.2.840.10008.5.1.4.1.1.1.1": "Digital X-Ray Image Storage - For Presentation",
+    "1.2.840.10008.5.1.4.1.1.1.1.1": "Digital X-Ray Image Storage - For Processing",
+    "1.2.840.10008.5.1.4.1.1.1.2": "Digital Mammography X-Ray Image Storage - For Presentation",
+    "1.2.840.10008.5.1.4.1.1.1.2.1": "Digital Mammography X-Ray Image Storage - For Processing",
+    "1.2.840.10008.5.1.4.1.1.13.1.3": "Breast Tomosynthesis Image Storage",
+    "1.2.840.10008.5.1.4.1.1.13.1.4": "Breast Projection X-Ray Image Storage - For Presentation",
+    "1.2.840.10008.5.1.4.1.1.13.1.5": "Breast Projection X-Ray Image Storage - For Processing",
+    "1.2.840.10008.5.1.4.1.1.12.1": "X-Ray Angiographic Image Storage",
+    "1.2.840.10008.5.1.4.1.1.12.1.1": "Enhanced XA Image Storage",
+    "1.2.840.10008.5.1.4.1.1.12.2": "X-Ray Radiofluoroscopic Image Storage",
+    "1.2.840.10008.5.1.4.1.1.12.2.1": "Enhanced XRF Image Storage",
+    "1.2.840.10008.5.1.4.1.1.2": "CT Image Storage",
+    "1.2.840.10008.5.1.4.1.1.2.1": "Enhanced CT Image Storage",
+    "1.2.840.10008.5.1.4.1.1.2.2": "Legacy Converted Enhanced CT Image Storage",
+}
+
+# The dose reports. pynetdicom's default StoragePresentationContexts lack the last two.
+DOSE_REPORT_STORAGE_SOP_CLASSES: dict[str, str] = {
+    "1.2.840.10008.5.1.4.1.1.88.67": "X-Ray Radiation Dose SR Storage",
+    "1.2.840.10008.5.1.4.1.1.88.76": "Enhanced X-Ray Radiation Dose SR Storage",
+    "1.2.840.10008.5.1.4.1.1.88.73": "Patient Radiation Dose SR Storage",
+}
+
+# Verification SOP Class (C-ECHO), PS3.4 Annex A.
+_VERIFICATION_SOP_CLASS = "1.2.840.10008.1.1"
+
+# AE Title (VR AE, PS3.5 Table 6.2-1): at most 16 characters of the default repertoire, no
+# backslash, no control characters; leading and trailing spaces are not significant.
+_AE_TITLE = re.compile(r"^[\x20-\x5B\x5D-\x7E]{1,16}$")
+# Error Comment (0000,0902) is LO: at most 64 characters (PS3.7 Annex C, PS3.5 Table 6.2-1).
+_ERROR_COMMENT_MAX = 64
+
+
+class StoreStatus(IntEnum):
+    """C-STORE response statuses used here (PS3.4 Annex B.2.3, Table B.2-1 "C-STORE Response
+    Status Values"; the same table as pynetdicom's ``STORAGE_SERVICE_CLASS_STATUS``).
+
+    ========  ========  ==============================================================
+    code      category  meaning
+    ========  ========  ==============================================================
+    0x0000    Success   stored
+    0xB000    Warning   Coercion of Data Elements
+    0xB006    Warning   Elements Discarded
+    0xB007    Warning   Data Set Does Not Match SOP Class
+    0xA7xx    Failure   Refused: Out of Resources
+    0xA9xx    Failure   Error: Data Set Does Not Match SOP Class
+    0xCxxx    Failure   Error: Cannot understand
+    ========  ========  ==============================================================
+    """
+
+    SUCCESS = 0x0000
+    COERCION_OF_DATA_ELEMENTS = 0xB000
+    ELEMENTS_DISCARDED = 0xB006
+    DATA_SET_DOES_NOT_MATCH_SOP_CLASS_WARNING = 0xB007
+    OUT_OF_RESOURCES = 0xA700
+    DATA_SET_DOES_NOT_MATCH_SOP_CLASS = 0xA900
+    CANNOT_UNDERSTAND = 0xC000
+
+
+_WARNING_STATUSES = frozenset({0xB000, 0xB006, 0xB007})
+
+
+def _is_failure_status(status: int) -> bool:
+    """True for the failure ranges of Table B.2-1 (A7xx, A9xx, Cxxx)."""
+    return 0xA700 <= status <= 0xA7FF or 0xA900 <= status <= 0xA9FF or 0xC000 <= status <= 0xCFFF
+
+
+class ListenerConfigError(IngestError):
+    """A listener setting that cannot work (an invalid AE title, a port out of range)."""
+
+    def __init__(self, reason: str) -> None:
+        super().__init__("bad_value", reason, "listener settings")
+
+    def __reduce__(self) -> tuple[Any, ...]:
+        return (type(self), (self.reason,))
+
+
+@dataclass(frozen=True, slots=True)
+class ReceivedObject:
+    """One object received by C-STORE, as the handler sees it.
+
+    Attributes
+    ----------
+    dataset : pydicom.dataset.Dataset
+        The decoded data set, with ``file_meta`` set from the negotiated presentation context.
+        Pixel Data is present as received (still encapsulated when compressed) and never decoded.
+    encoded : bytes
+        The object as a DICOM Part 10 file (preamble, file meta, data set exactly as the sender
+        encoded it): what an archive of received objects should write.
+    sop_class_uid, sop_instance_uid : str
+        From the data set (checked to agree with the C-STORE request).
+    transfer_syntax_uid : str
+        The transfer syntax of the presentation context the object came on.
+    calling_ae_title, called_ae_title : str
+        The sender's AE title and the one it called us by.
+    peer_address : tuple[str, int]
+        The sender's IP address and TCP port.
+    """
+
+    dataset: Dataset
+    encoded: bytes
+    sop_class_uid: str
+    sop_instance_uid: str
+    transfer_syntax_uid: str
+    calling_ae_title: str
+    called_ae_title: str
+    peer_address: tuple[str, int]
+
+
+@dataclass(frozen=True, slots=True)
+class StoreOutcome:
+    """What the handler reports for one received object.
+
+    Use the constructors: :meth:`stored` once the object is durably stored,
+    :meth:`refused` when storing failed for a reason that may pass (database down, disk full),
+    :meth:`cannot_understand` when the object itself is unusable (retrying will not help).
+
+    Attributes
+    ----------
+    ok : bool
+        True when the object is durably stored.
+    reason : str or None
+        Why it was not stored (required when ``ok`` is False). Sent to the sender as the Error
+        Comment (first 64 characters), so it must not carry patient data.
+    status : int
+        The C-STORE status to answer, from :class:`StoreStatus` or its ranges.
+    """
+
+    ok: bool
+    reason: str | None = None
+    status: int = StoreStatus.SUCCESS
+
+    def __post_init__(self) -> None:
+        if self.ok:
+            if self.status != StoreStatus.SUCCESS and self.status not in _WARNING_STATUSES:
+                raise ValueError(
+                    f"a stored object needs a success or warning status, not 0x{self.status:04X}"
+                )
+        else:
+            if not _is_failure_status(self.status):
+                raise ValueError(
+                    "a failed store needs a failure status (0xA7xx, 0xA9xx, 0xCxxx), "
+                    f"not 0x{self.status:04X}"
+                )
+            if not self.reason:
+                raise ValueError("a failed store needs a reason")
+
+    @classmethod
+    def stored(cls) -> StoreOutcome:
+        """The object is durably stored: answer 0x0000."""
+        return cls(ok=True)
+
+    @classmethod
+    def refused(cls, reason: str) -> StoreOutcome:
+        """Storing failed for a reason that may pass: answer 0xA700 Refused: Out of Resources."""
+        return cls(ok=False, reason=reason, status=StoreStatus.OUT_OF_RESOURCES)
+
+    @classmethod
+    def cannot_understand(cls, reason: str) -> StoreOutcome:
+        """The object is unusable (malformed, not a dose-bearing object): answer 0xC000."""
+        return cls(ok=False, reason=reason, status=StoreStatus.CANNOT_UNDERSTAND)
+
+
+StoreHandler = Callable[[ReceivedObject], StoreOutcome]
+"""Called once per C-STORE request, from the association's thread; must be thread-safe."""
+
+
+@dataclass(frozen=True, slots=True)
+class ListenerConfig:
+    """Settings of the C-STORE listener.
+
+    Attributes
+    ----------
+    ae_title : str
+        Our AE title (at most 16 characters).
+    host : str
+        The address to bind; the default answers only this machine.
+    port : int
+        TCP port; 0 lets the operating system choose (see :attr:`Listener.port`).
+    allowed_calling_aets : frozenset of str or None
+        When set, associations from any other calling AE title are rejected.
+    require_called_aet : bool
+        Reject associations that do not call us by ``ae_title``.
+    max_associations : int
+        Concurrent associations accepted.
+    sop_classes : tuple of str
+        The storage SOP Class UIDs accepted; by default the x-ray image classes and the dose
+        reports. Verification (C-ECHO) is always accepted.
+    network_timeout_s : float
+        Seconds an idle association is kept open.
+    """
+
+    ae_title: str = "BEAMAUDIT"
+    host: str = "127.0.0.1"
+    port: int = 11112
+    allowed_calling_aets: frozenset[str] | None = None
+    require_called_aet: bool = False
+    max_associations: int = 10
+    sop_classes: tuple[str, ...] = field(
+        default_factory=lambda: (*IMAGE_STORAGE_SOP_CLASSES, *DOSE_REPORT_STORAGE_SOP_CLASSES)
+    )
+    network_timeout_s: float = 60.0
+
+    def __post_init__(self) -> None:
+        _check_ae_title(self.ae_title, "ae_title")
+        if self.allowed_calling_aets is not None:
+            if not self.allowed_calling_aets:
+                raise ListenerConfigError(
+                    "allowed_calling_aets is empty, so every sender would be refused; "
+                    "give at least one AE title, or None to accept any"
+                )
+            for title in self.allowed_calling_aets:
+                _check_ae_title(title, "allowed_calling_aets")
+        if not 0 <= self.port <= 65535:
+            raise ListenerConfigError(f"port must be 0-65535, not {self.port}")
+        if self.max_associations < 1:
+            raise ListenerConfigError(
+                f"max_associations must be at least 1, not {self.max_associations}"
+            )
+        if not self.sop_classes:
+            raise ListenerConfigError("sop_classes is empty: the listener would accept nothing")
+        if self.network_timeout_s <= 0:
+            raise ListenerConfigError(
+                f"network_timeout_s must be positive, not {self.network_timeout_s}"
+            )
+
+
+def _check_ae_title(title: str, what: str) -> None:
+    if not isinstance(title, str) or not _AE_TITLE.match(title) or not title.strip():
+        raise ListenerConfigError(
+            f"{what}: {title!r} is not a valid AE title "
+            "(1-16 printable ASCII characters, no backslash)"
+        )
+
+
+def storage_contexts(sop_classes: Iterable[str]) -> list[PresentationContext]:
+    """The presentation contexts the listener supports: each storage class with every transfer
+    syntax pynetdicom knows (compressed ones included: pixel data is never decoded), plus
+    Verification (C-ECHO) with its default uncompressed syntaxes."""
+    contexts = [build_context(uid, ALL_TRANSFER_SYNTAXES) for uid in dict.fromkeys(sop_classes)]
+    contexts.append(build_context(_VERIFICATION_SOP_CLASS))
+    return contexts
+
+
+def _error_comment(reason: str) -> str:
+    """A reason as an Error Comment: printable ASCII without backslash, at most 64 characters."""
+    text = "".join(ch if " " <= ch <= "~" and ch != "\\" else "?" for ch in reason).strip()
+    if len(text) > _ERROR_COMMENT_MAX:
+        text = text[: _ERROR_COMMENT_MAX - 3] + "..."
+    return text or "failed"
+
+
+def _status_dataset(outcome: StoreOutcome) -> Dataset:
+    status = Dataset()
+    status.Status = int(outcome.status)
+    if not outcome.ok and outcome.reason:
+        status.ErrorComment = _error_comment(outcome.reason)
+    return status
+
+
+def _exception_name(exc: BaseException) -> str:
+    """``zlib.error``, ``ValueError``: the exception's class, qualified unless built in."""
+    module = type(exc).__module__
+    name = type(exc).__qualname__
+    return name if module == "builtins" else f"{module.rsplit('.', 1)[-1]}.{name}"
+
+
+def _where(exc: BaseException) -> str:
+    """Where an exception was raised (file:line in function), without its message."""
+    frames = traceback.extract_tb(exc.__traceback__)
+    if not frames:
+        return _exception_name(exc)
+    last = frames[-1]
+    filename = last.filename.rsplit("/", 1)[-1]
+    return f"{_exception_name(exc)} at {filename}:{last.lineno} in {last.name}"
+
+
+def _decode(event: evt.Event) -> tuple[ReceivedObject | None, StoreOutcome | None]:
+    """Decode the request into a ReceivedObject, or say why it cannot be understood."""
+    request = event.request
+    requested_class = str(getattr(request, "AffectedSOPClassUID", "") or "")
+    requested_instance = str(getattr(request, "AffectedSOPInstanceUID", "") or "")
+    try:
+        dataset = event.dataset
+        dataset.file_meta = event.file_meta
+        # pydicom parses lazily: walk every element now, so a malformed data set is refused here
+        # rather than half-read by the handler.
+        for _ in dataset.iterall():
+            pass
+        sop_class_uid = str(dataset.get("SOPClassUID", "") or "")
+        sop_instance_uid = str(dataset.get("SOPInstanceUID", "") or "")
+        encoded = event.encoded_dataset()
+    except Exception as exc:  # any decoding failure of a peer's bytes is answered, not raised
+        _LOG.warning(
+            "C-STORE %s: data set cannot be decoded (%s)", requested_instance or "?", _where(exc)
+        )
+        return None, StoreOutcome.cannot_understand(
+            f"data set cannot be decoded ({_exception_name(exc)})"
+        )
+    if not sop_instance_uid:
+        return None, StoreOutcome.cannot_understand("data set has no SOP Instance UID (0008,0018)")
+    if requested_instance and sop_instance_uid != requested_instance:
+        return None, StoreOutcome.cannot_understand(
+            "SOP Instance UID in the data set differs from the C-STORE request's"
+        )
+    if requested_class and sop_class_uid != requested_class:
+        return None, StoreOutcome(
+            ok=False,
+            reason=f"data set SOP Class {sop_class_uid or 'missing'} "
+            f"is not the requested {requested_class}",
+            status=StoreStatus.DATA_SET_DOES_NOT_MATCH_SOP_CLASS,
+        )
+    requestor = event.assoc.requestor
+    received = ReceivedObject(
+        dataset=dataset,
+        encoded=encoded,
+        sop_class_uid=sop_class_uid,
+        sop_instance_uid=sop_instance_uid,
+        transfer_syntax_uid=str(event.context.transfer_syntax),
+        calling_ae_title=str(requestor.ae_title).strip(),
+        called_ae_title=str(event.assoc.acceptor.ae_title).strip(),
+        peer_address=(str(requestor.address), int(requestor.port)),
+    )
+    return received, None
+
+
+def _handle_store(event: evt.Event, handler: StoreHandler) -> Dataset:
+    """EVT_C_STORE: decode, call the handler, map its outcome onto a C-STORE status."""
+    received, outcome = _decode(event)
+    uid = str(getattr(event.request, "AffectedSOPInstanceUID", "") or "?")
+    if received is not None:
+        try:
+            outcome = handler(received)
+        except IngestError as exc:  # the handler found the object unusable: retrying won't help
+            outcome = StoreOutcome.cannot_understand(f"{exc.code}: {exc.reason}")
+        except Exception as exc:  # the handler's failure becomes a failure status, never a crash
+            _LOG.error("C-STORE %s: handler failed: %s", uid, _where(exc))
+            outcome = StoreOutcome.refused(f"storage failed ({_exception_name(exc)})")
+        if not isinstance(outcome, StoreOutcome):
+            _LOG.error(
+                "C-STORE %s: handler returned %s, not a StoreOutcome", uid, type(outcome).__name__
+            )
+            outcome = StoreOutcome.refused("storage failed (handler returned no outcome)")
+    assert outcome is not None
+    if outcome.ok:
+        _LOG.info("C-STORE %s: stored (status 0x%04X)", uid, outcome.status)
+    else:
+        _LOG.warning(
+            "C-STORE %s: not stored (status 0x%04X): %s",
+            uid,
+            outcome.status,
+            _error_comment(outcome.reason or ""),
+        )
+    return _status_dataset(outcome)
+
+
+def _describe(event: evt.Event) -> str:
+    requestor = event.assoc.requestor
+    return f"{str(requestor.ae_title).strip() or '?'}@{requestor.address}:{requestor.port}"
+
+
+def _log_accepted(event: evt.Event) -> None:
+    _LOG.info("association accepted from %s", _describe(event))
+
+
+def _log_rejected(event: evt.Event) -> None:
+    _LOG.warning("association rejected from %s", _describe(event))
+
+
+def _log_released(event: evt.Event) -> None:
+    _LOG.info("association released by %s", _describe(event))
+
+
+def _log_aborted(event: evt.Event) -> None:
+    _LOG.warning("association aborted with %s", _describe(event))
+
+
+class Listener:
+    """A running C-STORE listener (returned by :func:`start_listener`).
+
+    Use as a context manager, or call :meth:`stop`. :meth:`wait` blocks until stopped.
+    """
+
+    def __init__(self, server: Any, config: ListenerConfig) -> None:
+        self._server = server
+        self._stopped = threading.Event()
+        self.config = config
+
+    @property
+    def address(self) -> tuple[str, int]:
+        """The bound (host, port); the port is the real one when the config asked for 0."""
+        host, port = self._server.server_address[:2]
+        return str(host), int(port)
+
+    @property
+    def port(self) -> int:
+        """The bound TCP port."""
+        return self.address[1]
+
+    @property
+    def stopped(self) -> bool:
+        """True once :meth:`stop` has run."""
+        return self._stopped.is_set()
+
+    def stop(self) -> None:
+        """Stop accepting, end the open associations and close the socket (idempotent)."""
+        if self._stopped.is_set():
+            return
+        self._server.shutdown()
+        self._stopped.set()
+        _LOG.info("listener %s on %s:%d stopped", self.config.ae_title, *self.address)
+
+    def wait(self, timeout_s: float | None = None) -> bool:
+        """Block until :meth:`stop` is called (by another thread or a signal handler), or
+        ``timeout_s`` passes; True when stopped. Ctrl-C stops the listener."""
+        try:
+            return self._stopped.wait(timeout_s)
+        except KeyboardInterrupt:
+            self.stop()
+            return True
+
+    def __enter__(self) -> Listener:
+        return self
+
+    def __exit__(
+        self,
+        exc_type: type[BaseException] | None,
+        exc: BaseException | None,
+        tb: TracebackType | None,
+    ) -> None:
+        self.stop()
+
+
+def start_listener(
+    config: ListenerConfig, handler: StoreHandler, *, block: bool = False
+) -> Listener:
+    """Start the C-STORE listener.
+
+    Parameters
+    ----------
+    config : ListenerConfig
+        AE title, address, accepted calling AE titles, limits.
+    handler : StoreHandler
+        Called for every received object, from the association's thread (so it must be
+        thread-safe); returns a :class:`StoreOutcome` once the object is durably stored, or why
+        not. An :class:`~beamaudit.ingest.errors.IngestError` it raises is answered 0xC000 with
+        its code and reason; any other exception 0xA700, and is logged; the listener goes on.
+    block : bool
+        When True, serve in this thread until stopped (Ctrl-C, or :meth:`Listener.stop` from a
+        signal handler or another thread), then return the stopped listener.
+
+    Returns
+    -------
+    Listener
+        The running listener (stopped already when ``block`` was True).
+
+    Raises
+    ------
+    ListenerConfigError
+        When the address cannot be bound (port in use, no permission).
+    """
+    ae = AE(ae_title=config.ae_title)
+    ae.supported_contexts = storage_contexts(config.sop_classes)
+    ae.maximum_associations = config.max_associations
+    ae.network_timeout = config.network_timeout_s
+    ae.require_called_aet = config.require_called_aet
+    if config.allowed_calling_aets is not None:
+        ae.require_calling_aet = sorted(config.allowed_calling_aets)
+    handlers: list[EventHandlerType] = [
+        (evt.EVT_C_STORE, _handle_store, [handler]),
+        (evt.EVT_ACCEPTED, _log_accepted),
+        (evt.EVT_REJECTED, _log_rejected),
+        (evt.EVT_RELEASED, _log_released),
+        (evt.EVT_ABORTED, _log_aborted),
+    ]
+    try:
+        server = ae.start_server((config.host, config.port), block=False, evt_handlers=handlers)
+    except OSError as exc:
+        raise ListenerConfigError(
+            f"cannot listen on {config.host}:{config.port}: {exc.strerror or exc}"
+        ) from exc
+    listener = Listener(server, config)
+    _LOG.info(
+        "listener %s on %s:%d accepting %d storage classes%s",
+        config.ae_title,
+        *listener.address,
+        len(dict.fromkeys(config.sop_classes)),
+        ""
+        if config.allowed_calling_aets is None
+        else f" from {len(config.allowed_calling_aets)} AE titles",
+    )
+    if block:
+        listener.wait()
+        listener.stop()
+    return listener
