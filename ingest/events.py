@@ -68,6 +68,11 @@ class ExposureEvent:
     event_index: int = 0
     irradiation_event_uid: str | None = None
     modality: str | None = None
+    # added by ingest: "projection" (CR, DX, MG, RF, XA, TID 10003) or "ct" (CT, TID 10013)
+    modality_family: str | None = None
+    # added by ingest: images of one CT acquisition share it ("<series UID>/acquisition <n>");
+    # CTDIvol and DAP in CT image headers are per acquisition, never to be summed over images
+    acquisition_key: str | None = None
     # identification and context
     study_instance_uid: str | None = None
     series_instance_uid: str | None = None
@@ -86,6 +91,9 @@ class ExposureEvent:
     body_part: str | None = None
     view_position: str | None = None
     event_type: str | None = None  # e.g. "stationary", "fluoroscopy", "ct_spiral", "ct_sequenced", "ct_localizer"
+    acquisition_plane: str | None = None  # added by ingest: "single", "plane_a", "plane_b"
+    # added by ingest: "fluoroscopy_guided", "integrated_projection", "cassette_based" (CID 10032)
+    acquisition_device_type: str | None = None
     # patient (pseudonymised; never a name or birth date)
     patient_pseudo_id: str | None = None
     patient_age_years: float | None = None

@@ -1,0 +1,232 @@
+"""Coded values of dose reports and image headers, mapped to beamaudit's words.
+
+Concept codes are pairs ``(CodeValue, CodingSchemeDesignator)``. Older dose
+reports use retired SNOMED-RT (``SRT``) codes; :func:`canonical` turns each into
+its current SNOMED CT (``SCT``) equivalent so that matching works on one
+spelling. The alias table is PS3.16's SRT-to-SCT mapping as shipped in pydicom
+3.0 (``pydicom.sr.coding.Code`` equality), restricted to the codes that occur in
+TID 10001-10015 (see DICOM-NOTES section 2.9; ``tests/ingest/test_codes.py``
+checks every row against pydicom's equality). Value sets are PS3.16 CIDs,
+named beside each table.
+"""
+
+from __future__ import annotations
+
+__all__ = [
+    "ACQUISITION_PLANES",
+    "ANODE_MATERIALS",
+    "CT_PHANTOM_DIAMETERS_CM",
+    "DEVICE_TYPES",
+    "ELEMENT_SYMBOLS",
+    "EVENT_TYPES",
+    "FILTER_MATERIALS",
+    "FILTER_TYPES",
+    "FLUORO_MODES",
+    "GRIDS",
+    "HEADER_MATERIALS",
+    "PROCEDURE_FAMILIES",
+    "RETIRED_CODES",
+    "CodeKey",
+    "canonical",
+    "material_from_meaning",
+]
+
+CodeKey = tuple[str, str]
+
+# retired code -> current code (SRT -> SCT per pydicom's PS3.16 mapping; one DCM code
+# retired within PS3.16: 113735 "Exposure Time" replaced by 113824)
+RETIRED_CODES: dict[CodeKey, CodeKey] = {
+    ("P5-06000", "SRT"): ("44491008", "SCT"),  # Fluoroscopy
+    ("P5-08001", "SRT"): ("116152004", "SCT"),  # Spiral Acquisition
+    ("P5-08000", "SRT"): ("77477000", "SCT"),  # Computed Tomography X-Ray
+    ("P5-40010", "SRT"): ("71651007", "SCT"),  # Mammography
+    ("G-C0E8", "SRT"): ("363703001", "SCT"),  # Has Intent
+    ("G-C171", "SRT"): ("272741003", "SCT"),  # Laterality
+    ("G-C036", "SRT"): ("370129005", "SCT"),  # Measurement Method
+    ("G-C32C", "SRT"): ("408730004", "SCT"),  # Procedure Context
+    ("R-FB8F1", "SRT"): ("702569007", "SCT"),  # Cone Beam Acquisition
+    ("C-16400", "SRT"): ("26194003", "SCT"),  # Tungsten
+    ("C-15000", "SRT"): ("71128006", "SCT"),  # Molybdenum
+    ("C-16700", "SRT"): ("59801003", "SCT"),  # Rhodium
+    ("C-12000", "SRT"): ("12503006", "SCT"),  # Aluminum
+    ("C-12700", "SRT"): ("66925006", "SCT"),  # Copper
+    ("C-13700", "SRT"): ("41967008", "SCT"),  # Silver
+    ("C-13200", "SRT"): ("88488004", "SCT"),  # Lead
+    ("C-13900", "SRT"): ("12597001", "SCT"),  # Tin
+    ("C-15600", "SRT"): ("45215009", "SCT"),  # Tantalum
+    ("A-2C090", "SRT"): ("15869005", "SCT"),  # Dosimeter
+    ("R-0038D", "SRT"): ("373066001", "SCT"),  # Yes
+    ("R-00339", "SRT"): ("373067005", "SCT"),  # No
+    ("113735", "DCM"): ("113824", "DCM"),  # Exposure Time (retired code of TID 10003B)
+}
+
+# the same SNOMED codes are written with scheme "SNM3" by some early writers
+_SCHEME_ALIASES = {"SNM3": "SRT", "SNOMED": "SRT", "99SDM": "SRT"}
+
+
+def canonical(value: str, scheme: str) -> CodeKey:
+    """The current spelling of code ``(value, scheme)``: retired SNOMED-RT codes
+    become their SNOMED CT equivalents, everything else is returned as given
+    (stripped).
+
+    Examples
+    --------
+    >>> canonical("P5-06000", "SRT")
+    ('44491008', 'SCT')
+    >>> canonical("122130", "DCM")
+    ('122130', 'DCM')
+    """
+    key = (value.strip(), scheme.strip().upper())
+    if key[1] in _SCHEME_ALIASES:
+        key = (key[0], _SCHEME_ALIASES[key[1]])
+    return RETIRED_CODES.get(key, key)
+
+
+# CID 10002 Irradiation Event Types and CID 10013 CT Acquisition Types
+EVENT_TYPES: dict[CodeKey, str] = {
+    ("113611", "DCM"): "stationary",
+    ("113612", "DCM"): "stepping",
+    ("113613", "DCM"): "rotational",
+    ("44491008", "SCT"): "fluoroscopy",
+    ("113804", "DCM"): "ct_sequenced",
+    ("116152004", "SCT"): "ct_spiral",
+    ("113805", "DCM"): "ct_localizer",  # Constant Angle Acquisition
+    ("113806", "DCM"): "ct_stationary",
+    ("113807", "DCM"): "ct_free",
+    ("702569007", "SCT"): "ct_cone_beam",
+}
+
+# CID 10006 X-Ray Filter Materials and CID 10016 Anode Target Materials (SCT)
+FILTER_MATERIALS: dict[CodeKey, str] = {
+    ("12503006", "SCT"): "aluminium",
+    ("66925006", "SCT"): "copper",
+    ("71128006", "SCT"): "molybdenum",
+    ("59801003", "SCT"): "rhodium",
+    ("41967008", "SCT"): "silver",
+    ("88488004", "SCT"): "lead",
+    ("12597001", "SCT"): "tin",
+    ("45215009", "SCT"): "tantalum",
+    ("767776000", "SCT"): "niobium",
+    ("767775001", "SCT"): "europium",
+    ("26194003", "SCT"): "tungsten",
+}
+ANODE_MATERIALS: dict[CodeKey, str] = {
+    ("26194003", "SCT"): "tungsten",
+    ("71128006", "SCT"): "molybdenum",
+    ("59801003", "SCT"): "rhodium",
+}
+
+# Defined Terms of (0018,7050) Filter Material and (0018,1191) Anode Target Material, PS3.3
+HEADER_MATERIALS: dict[str, str] = {
+    "ALUMINUM": "aluminium",
+    "ALUMINIUM": "aluminium",
+    "COPPER": "copper",
+    "MOLYBDENUM": "molybdenum",
+    "RHODIUM": "rhodium",
+    "NIOBIUM": "niobium",
+    "EUROPIUM": "europium",
+    "LEAD": "lead",
+    "SILVER": "silver",
+    "TIN": "tin",
+    "TANTALUM": "tantalum",
+    "TUNGSTEN": "tungsten",
+}
+
+# element symbols, for free-text filter descriptions such as "0.1Cu 1Al"
+ELEMENT_SYMBOLS: dict[str, str] = {
+    "Al": "aluminium",
+    "Cu": "copper",
+    "Mo": "molybdenum",
+    "Rh": "rhodium",
+    "Ag": "silver",
+    "Pb": "lead",
+    "Sn": "tin",
+    "Ta": "tantalum",
+    "Nb": "niobium",
+    "Eu": "europium",
+    "W": "tungsten",
+}
+
+
+def material_from_meaning(meaning: str) -> str | None:
+    """A material named by a code meaning we do not know by code.
+
+    Older reports carry SNOMED-RT compound codes (``C-1xxF9``, e.g. "Aluminum or
+    aluminum compound") that have no SCT equivalent in pydicom's table; their
+    meanings still name the element. Returns ``None`` when none is named.
+    """
+    text = meaning.lower()
+    for word, name in (
+        ("alumin", "aluminium"),
+        ("copper", "copper"),
+        ("molybden", "molybdenum"),
+        ("rhodium", "rhodium"),
+        ("silver", "silver"),
+        ("lead", "lead"),
+        ("tin", "tin"),
+        ("tantalum", "tantalum"),
+        ("niobium", "niobium"),
+        ("europium", "europium"),
+        ("tungsten", "tungsten"),
+    ):
+        if text.startswith(word) or f" {word}" in text:
+            return name
+    return None
+
+
+# CID 10007 X-Ray Filter Types
+FILTER_TYPES: dict[CodeKey, str] = {
+    ("113650", "DCM"): "strip",
+    ("113651", "DCM"): "wedge",
+    ("113652", "DCM"): "butterfly",
+    ("113653", "DCM"): "flat",
+    ("111609", "DCM"): "none",
+}
+
+# CID 10017 X-Ray Grids
+GRIDS: dict[CodeKey, str] = {
+    ("111640", "DCM"): "virtual",
+    ("111641", "DCM"): "fixed",
+    ("111642", "DCM"): "focused",
+    ("111643", "DCM"): "reciprocating",
+    ("111644", "DCM"): "parallel",
+    ("111645", "DCM"): "crossed",
+    ("111646", "DCM"): "none",
+}
+
+# CID 10004 Fluoro Modes
+FLUORO_MODES: dict[CodeKey, str] = {
+    ("113630", "DCM"): "continuous",
+    ("113631", "DCM"): "pulsed",
+}
+
+# CID 4052 Phantom Devices -> CTDI phantom diameter in cm (IEC 60601-2-44: head 16 cm,
+# body 32 cm). NEMA XR 21-2000 names no single diameter here, so it maps to None.
+CT_PHANTOM_DIAMETERS_CM: dict[CodeKey, float | None] = {
+    ("113690", "DCM"): 16.0,
+    ("113691", "DCM"): 32.0,
+    ("130541", "DCM"): 10.0,
+    ("113692", "DCM"): None,
+}
+
+# CID 10003 Equipment Plane Identification
+ACQUISITION_PLANES: dict[CodeKey, str] = {
+    ("113622", "DCM"): "single",
+    ("113620", "DCM"): "plane_a",
+    ("113621", "DCM"): "plane_b",
+    ("113890", "DCM"): "all",
+}
+
+# (121058, DCM, "Procedure reported") values -> modality family
+PROCEDURE_FAMILIES: dict[CodeKey, str] = {
+    ("113704", "DCM"): "projection",
+    ("71651007", "SCT"): "projection",  # Mammography, reported with TID 10001
+    ("77477000", "SCT"): "ct",
+}
+
+# CID 10032 Projection X-Ray Acquisition Device Types
+DEVICE_TYPES: dict[CodeKey, str] = {
+    ("113957", "DCM"): "fluoroscopy_guided",
+    ("113958", "DCM"): "integrated_projection",
+    ("113959", "DCM"): "cassette_based",
+}
