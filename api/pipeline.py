@@ -25,6 +25,7 @@ Idempotence and double counting
 from __future__ import annotations
 
 import hashlib
+import json
 import logging
 from collections.abc import Iterable
 from dataclasses import dataclass, field
@@ -38,7 +39,14 @@ from beamaudit.api.store import models as m
 from beamaudit.ingest.errors import IngestError
 from beamaudit.ingest.events import AccumulatedDose, ExposureEvent, ParseResult
 
-__all__ = ["CT_MODALITIES", "Pipeline", "StoreOutcome", "content_hash", "report_covers"]
+__all__ = [
+    "CT_MODALITIES",
+    "Pipeline",
+    "StoreOutcome",
+    "content_hash",
+    "report_covers",
+    "result_fingerprint",
+]
 
 log = logging.getLogger(__name__)
 
@@ -68,8 +76,24 @@ class StoreOutcome:
 
 
 def content_hash(data: bytes) -> str:
-    """SHA-256 of an object's bytes, to tell a repeat from a different object with the same UID."""
+    """SHA-256 of some bytes (hex)."""
     return hashlib.sha256(data).hexdigest()
+
+
+def result_fingerprint(result: ParseResult) -> str:
+    """A fingerprint of what an object says about its exposures.
+
+    Two copies of one object that arrive by different paths (a file, a C-STORE
+    with another transfer syntax) have different bytes but the same
+    fingerprint; an object that reuses a SOP Instance UID for other exposures
+    has a different one.
+    """
+    payload = [
+        {k: v for k, v in e.as_dict().items() if k not in {"provenance", "notes"}}
+        for e in result.events
+    ]
+    payload.append({"accumulated": [repr(a) for a in result.accumulated]})
+    return content_hash(json.dumps(payload, sort_keys=True, default=str).encode("utf-8"))
 
 
 def report_covers(report_modalities: Iterable[str | None], header_modality: str | None) -> bool:
@@ -185,6 +209,7 @@ class Pipeline:
         sha256: str | None,
     ) -> StoreOutcome:
         src = result.source
+        sha256 = sha256 or result_fingerprint(result)
         existing = session.execute(
             select(m.SourceObjectRow.id, m.SourceObjectRow.content_sha256).where(
                 m.SourceObjectRow.sop_instance_uid == src.sop_instance_uid

@@ -6,7 +6,7 @@ from datetime import datetime
 
 from sqlalchemy import func, select
 
-from beamaudit.api.pipeline import Pipeline, content_hash, report_covers
+from beamaudit.api.pipeline import Pipeline, content_hash, report_covers, result_fingerprint
 from beamaudit.api.store import models as m
 from beamaudit.ingest.errors import IngestError
 from beamaudit.ingest.events import ExposureEvent, FilterLayer, ParseResult, SourceObject
@@ -133,3 +133,21 @@ def test_errors_are_recorded_with_source_and_reason(store) -> None:
     with store.session_factory() as s:
         err = s.scalars(select(m.IngestError)).one()
     assert (err.source, err.code, err.reason) == ("/data/readme.txt", "not_dicom", "no DICM marker")
+
+
+def test_fingerprint_ignores_provenance_but_not_exposure_content() -> None:
+    a = _result("1.2.3.7")
+    b = _result("1.2.3.7")
+    b.events[0].provenance = {"kvp_kv": "(113733, DCM) KVP"}
+    assert result_fingerprint(a) == result_fingerprint(b)
+    b.events[0].kvp_kv = 90.0
+    assert result_fingerprint(a) != result_fingerprint(b)
+
+
+def test_same_uid_different_exposures_without_hash_is_a_conflict(store) -> None:
+    pipe = Pipeline(store.session_factory)
+    pipe.store(_result("1.2.3.8"), received_via="scan")
+    other = _result("1.2.3.8")
+    other.events[0].kvp_kv = 60.0
+    assert pipe.store(other, received_via="listen").status == "conflict"
+    assert pipe.store(_result("1.2.3.8"), received_via="listen").status == "duplicate"

@@ -1,0 +1,62 @@
+"""``beamaudit listen``: the C-STORE listener."""
+
+from __future__ import annotations
+
+from typing import Annotated
+
+import typer
+
+from beamaudit.api.cli._common import console, fail
+
+__all__ = ["register"]
+
+
+def listen_command(
+    ctx: typer.Context,
+    ae_title: Annotated[str | None, typer.Option(help="Our AE title (default from settings: BEAMAUDIT).")] = None,
+    port: Annotated[int | None, typer.Option(min=1, max=65535, help="TCP port (default 11112).")] = None,
+    host: Annotated[str | None, typer.Option(help="Address to bind (default from settings).")] = None,
+    allow: Annotated[
+        list[str] | None,
+        typer.Option("--allow", help="Accept only this calling AE title (repeatable)."),
+    ] = None,
+) -> None:
+    """Receive images and dose reports by C-STORE; answer success only once stored."""
+    from beamaudit.api.cli._store import open_store
+    from beamaudit.api.cli.scan import pseudonym_key
+    from beamaudit.api.pipeline import Pipeline
+    from beamaudit.api.receiving import make_store_handler
+    from beamaudit.api.reconstruct import reconstruct_events
+    from beamaudit.ingest.errors import IngestError
+    from beamaudit.ingest.listener import ListenerConfig, start_listener
+    from beamaudit.ingest.pseudonym import Pseudonymiser
+
+    store = open_store(ctx)
+    cfg = store.settings.listener
+    allowed = allow or cfg.allowed_calling_aets
+    try:
+        config = ListenerConfig(
+            ae_title=ae_title or cfg.ae_title,
+            host=host or cfg.host,
+            port=port or cfg.port,
+            allowed_calling_aets=frozenset(allowed) if allowed else None,
+        )
+        handler = make_store_handler(
+            Pipeline(store.sessions),
+            Pseudonymiser(pseudonym_key(store.settings.secret_key_path)),
+            after_store=lambda ids: reconstruct_events(store.sessions, ids),
+        )
+        listener = start_listener(config, handler)
+    except IngestError as exc:
+        fail(exc.reason)
+    console.print(
+        f"listening as {config.ae_title} on {listener.address[0]}:{listener.port} "
+        f"(database: {store.settings.backend}); Ctrl-C stops",
+        highlight=False,
+    )
+    listener.wait()
+
+
+def register(app: typer.Typer) -> None:
+    """Add ``listen`` to ``app``."""
+    app.command("listen")(listen_command)

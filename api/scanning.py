@@ -1,0 +1,175 @@
+"""The folder scan: walk paths, parse every DICOM object, store events, record errors.
+
+Parsing runs in this process or, with ``workers > 1``, in a process pool;
+storing runs here, in batches of :data:`BATCH_SIZE` objects per transaction.
+One bad file never stops the scan: it becomes an ingest error with its path
+and reason, and the scan goes on.
+"""
+
+from __future__ import annotations
+
+import os
+from collections import Counter
+from collections.abc import Callable, Iterable, Iterator, Sequence
+from concurrent.futures import ProcessPoolExecutor
+from dataclasses import dataclass, field
+from pathlib import Path
+from typing import Any
+
+from beamaudit.api.pipeline import Pipeline, StoreOutcome
+from beamaudit.ingest.errors import IngestError
+from beamaudit.ingest.events import ParseResult
+
+__all__ = ["BATCH_SIZE", "ScanSummary", "scan_paths"]
+
+BATCH_SIZE = 200
+
+_worker_pseudonymiser: Any = None
+
+
+@dataclass
+class ScanSummary:
+    """What a scan did; ``errors`` lists every rejected file with its reason."""
+
+    files: int = 0
+    objects: int = 0
+    events: int = 0
+    duplicates: int = 0
+    skipped: int = 0  # DICOMDIR indexes
+    errors: list[dict[str, str]] = field(default_factory=list)
+    stored_event_ids: list[int] = field(default_factory=list)
+
+    def errors_by_reason(self) -> Counter[str]:
+        return Counter(e["code"] for e in self.errors)
+
+    def as_dict(self) -> dict[str, Any]:
+        return {
+            "files": self.files,
+            "objects": self.objects,
+            "events": self.events,
+            "duplicates": self.duplicates,
+            "skipped": self.skipped,
+            "errors": self.errors,
+        }
+
+
+def _init_worker(key: bytes) -> None:
+    global _worker_pseudonymiser
+    from beamaudit.ingest.pseudonym import Pseudonymiser
+
+    _worker_pseudonymiser = Pseudonymiser(key)
+
+
+def _parse_one(path_text: str) -> tuple[str, str, ParseResult | IngestError | None]:
+    """``(path, kind, result)`` where kind is ``dicom``, ``dicomdir`` or ``error``."""
+    from beamaudit.ingest.folder import classify
+    from beamaudit.ingest.reader import read_file
+
+    path = Path(path_text)
+    try:
+        kind = classify(path)
+        if kind == "dicomdir":
+            return path_text, "dicomdir", None
+        if kind == "not_dicom":
+            return (
+                path_text,
+                "error",
+                IngestError("not_dicom", "not a DICOM file (no DICM marker, no DICOM elements)", path_text),
+            )
+        return path_text, "dicom", read_file(path, pseudonymiser=_worker_pseudonymiser)
+    except IngestError as exc:
+        return path_text, "error", exc.with_source(path_text)
+    except OSError as exc:
+        return path_text, "error", IngestError("unreadable", f"cannot read the file: {exc.strerror or exc}", path_text)
+
+
+def _parsed(
+    files: Iterable[Path], key: bytes, workers: int
+) -> Iterator[tuple[str, str, ParseResult | IngestError | None]]:
+    names = (str(p) for p in files)
+    if workers <= 1:
+        _init_worker(key)
+        yield from map(_parse_one, names)
+        return
+    with ProcessPoolExecutor(max_workers=workers, initializer=_init_worker, initargs=(key,)) as pool:
+        yield from pool.map(_parse_one, names, chunksize=32)
+
+
+def scan_paths(
+    paths: Sequence[Path],
+    *,
+    pipeline: Pipeline,
+    key: bytes,
+    workers: int = 1,
+    received_via: str = "scan",
+    on_file: Callable[[str], None] | None = None,
+) -> ScanSummary:
+    """Scan ``paths`` (files or folders, recursively) into the store.
+
+    Parameters
+    ----------
+    paths
+        Files and folders; DICOM files are recognised by content, not by name.
+    pipeline
+        Stores the parsed objects.
+    key
+        The pseudonymisation key.
+    workers
+        Parser processes (1: parse in this process).
+    on_file
+        Called once per file after it is handled (progress display).
+    """
+    from beamaudit.ingest.folder import iter_candidate_files
+
+    summary = ScanSummary()
+    batch: list[tuple[ParseResult, str | None, str | None]] = []
+    pending_errors: list[tuple[IngestError, str | None]] = []
+
+    def flush() -> None:
+        if batch:
+            outcomes = pipeline.store_many(batch, received_via=received_via)
+            for (_, source, _), outcome in zip(batch, outcomes, strict=True):
+                _count(summary, outcome, source, pending_errors)
+            batch.clear()
+        if pending_errors:
+            pipeline.record_errors(pending_errors, received_via=received_via)
+            pending_errors.clear()
+
+    for path_text, kind, result in _parsed(iter_candidate_files(paths), key, max(1, workers)):
+        summary.files += 1
+        if kind == "dicomdir":
+            summary.skipped += 1
+        elif isinstance(result, IngestError):
+            summary.errors.append({"source": path_text, "code": result.code, "reason": result.reason})
+            pending_errors.append((result, path_text))
+        elif isinstance(result, ParseResult):
+            batch.append((result, path_text, None))
+        if len(batch) >= BATCH_SIZE or len(pending_errors) >= BATCH_SIZE:
+            flush()
+        if on_file is not None:
+            on_file(path_text)
+    flush()
+    return summary
+
+
+def _count(
+    summary: ScanSummary,
+    outcome: StoreOutcome,
+    source: str | None,
+    pending_errors: list[tuple[IngestError, str | None]],
+) -> None:
+    if outcome.status == "stored":
+        summary.objects += 1
+        summary.events += outcome.events
+        summary.stored_event_ids.extend(outcome.event_ids)
+    elif outcome.status == "duplicate":
+        summary.duplicates += 1
+    else:
+        reason = outcome.reason or "conflicts with a stored object"
+        summary.errors.append({"source": source or outcome.sop_instance_uid, "code": "conflict", "reason": reason})
+        pending_errors.append((IngestError("bad_value", reason, source), source))
+
+
+def default_workers() -> int:
+    """One parser per core, at most 4."""
+    return max(1, min(4, os.cpu_count() or 1))
