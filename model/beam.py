@@ -408,17 +408,15 @@ def compute_beam(
     budget = propagate_linearised(
         figures,
         nominal_inputs,
-        {
-            "kv": kv_uncertainty_kv or 0.0,
-            "filtration_mm_al": filtration_uncertainty_mm_al or 0.0,
-            "output_scale_rel": cal.output_scale_uncertainty_rel,
-        },
-        bounds={
-            "kv": (a.kv_min, a.kv_max),
-            "filtration_mm_al": (-total_al, math.inf),
-            "output_scale_rel": (0.0, math.inf),
-        },
+        {"kv": kv_uncertainty_kv or 0.0, "filtration_mm_al": filtration_uncertainty_mm_al or 0.0},
+        bounds={"kv": (a.kv_min, a.kv_max), "filtration_mm_al": (-total_al, math.inf)},
         nominal_outputs=nominal,
+    )
+    uncertainty = dict(budget.standard_uncertainties)
+    # The output scale multiplies the output only: its contribution is exact, no re-evaluation.
+    scale_part = nominal["output_ugy_per_mas_1m"] * cal.output_scale_uncertainty_rel
+    uncertainty["output_ugy_per_mas_1m"] = math.hypot(
+        uncertainty["output_ugy_per_mas_1m"], scale_part
     )
     return BeamResult(
         kv=spec.kv,
@@ -427,7 +425,7 @@ def compute_beam(
         calibrated=cal.calibrated,
         filtration_assumed=filtration_assumed,
         assumptions=assumptions,
-        uncertainty=budget.standard_uncertainties,
+        uncertainty=uncertainty,
         filters=filters,
         anode=spec.anode,
         anode_angle_deg=spec.anode_angle_deg,
