@@ -55,7 +55,7 @@ from typing import Literal
 
 from beamaudit.model.defaults import GENERIC_EXAM, dose_default, exam_default
 from beamaudit.model.errors import ModelError
-from beamaudit.model.trail import WhyTrail
+from beamaudit.model.trail import TrailStep, WhyTrail
 
 __all__ = [
     "GeometryInputs",
@@ -110,6 +110,7 @@ class GeometryInputs:
     source_to_isocenter_mm : focus to the isocentre.
     source_to_table_mm, tube_side : focus to the tabletop, and whether the tube is above or below
         the table (default above).
+    source_to_reference_point_mm : focus to the dose report's reference point (for K_a,r).
     body_part_thickness_mm : patient thickness along the beam.
     magnification_factor : SID over source-object distance.
     field_width_mm, field_height_mm, field_plane_mm : field sides, and the distance of the plane
@@ -129,6 +130,7 @@ class GeometryInputs:
     source_to_isocenter_mm: float | None = None
     source_to_table_mm: float | None = None
     tube_side: TubeSide = "above"
+    source_to_reference_point_mm: float | None = None
     body_part_thickness_mm: float | None = None
     magnification_factor: float | None = None
     field_width_mm: float | None = None
@@ -192,7 +194,7 @@ class ResolvedGeometry:
     def assumptions(self) -> list[str]:
         """Notes of every assumed step of both trails, each once."""
         merged = self.distance_trail.copy()
-        merged.extend(self.field_trail)
+        merged.merge(self.field_trail)
         return merged.assumptions
 
 
@@ -214,11 +216,15 @@ class _Resolver:
         self.field_trail = WhyTrail()
         self._exam = exam_default(g.exam) if g.exam else None
         self._sid: tuple[float, float] | None = None
+        self._sid_step: TrailStep | None = None
         self._thickness: tuple[float, float] | None = None
+        self._thickness_step: TrailStep | None = None
         self.recorded_rel = dose_default("recorded_distance_relative_uncertainty").value
 
-    def source_of(self, name: str) -> str:
-        return self.g.provenance.get(name, "recorded")
+    def source_of(self, *names: str) -> str:
+        """Where the named inputs were read (their provenance, else "as given"), each once."""
+        found = dict.fromkeys(self.g.provenance.get(name, "as given") for name in names)
+        return "; ".join(found)
 
     def exam(self) -> tuple[str, bool]:
         """The exam row to take defaults from and whether it is the generic fallback."""
@@ -226,19 +232,26 @@ class _Resolver:
             return self._exam.exam, False
         return GENERIC_EXAM, True
 
+    def _share(self, trail: WhyTrail, step: TrailStep) -> None:
+        """Put an already-made step into another trail that also depends on it."""
+        if step not in trail.steps:
+            trail.extend([step])
+
     def sid(self, trail: WhyTrail) -> tuple[float, float]:
         """SID and its standard uncertainty (recorded, else the exam default)."""
         if self._sid is None:
             sid = _positive("sid_mm", self.g.sid_mm)
             if sid is not None:
                 self._sid = (sid, self.recorded_rel * sid)
-                trail.add("sid_mm", sid, "mm", equation="recorded", source=self.source_of("sid_mm"))
+                self._sid_step = trail.add(
+                    "sid_mm", sid, "mm", equation="recorded", source=self.source_of("sid_mm")
+                )
             else:
                 exam, generic = self.exam()
                 row = exam_default(exam)
                 rel = dose_default("default_sid_relative_uncertainty").value
                 self._sid = (row.sid_mm, rel * row.sid_mm)
-                trail.add(
+                self._sid_step = trail.add(
                     "sid_mm",
                     row.sid_mm,
                     "mm",
@@ -248,6 +261,8 @@ class _Resolver:
                     note=f"SID not recorded; {row.sid_mm:g} mm assumed "
                     f"({'no exam type known' if generic else 'default for ' + exam})",
                 )
+        elif self._sid_step is not None:
+            self._share(trail, self._sid_step)
         return self._sid
 
     def thickness(self, trail: WhyTrail) -> tuple[float, float]:
@@ -257,7 +272,7 @@ class _Resolver:
             if t is not None:
                 u = dose_default("recorded_thickness_uncertainty_mm").value
                 self._thickness = (t, u)
-                trail.add(
+                self._thickness_step = trail.add(
                     "body_part_thickness_mm",
                     t,
                     "mm",
@@ -268,7 +283,7 @@ class _Resolver:
                 exam, generic = self.exam()
                 row = exam_default(exam)
                 self._thickness = (row.thickness_mm, row.thickness_standard_uncertainty_mm)
-                trail.add(
+                self._thickness_step = trail.add(
                     "body_part_thickness_mm",
                     row.thickness_mm,
                     "mm",
@@ -280,6 +295,8 @@ class _Resolver:
                     note=f"patient thickness not recorded; {row.thickness_mm:g} mm assumed "
                     f"({'no exam type known' if generic else 'standard patient for ' + exam})",
                 )
+        elif self._thickness_step is not None:
+            self._share(trail, self._thickness_step)
         return self._thickness
 
     def gap(self, trail: WhyTrail) -> tuple[float, float]:
@@ -308,7 +325,8 @@ class _Resolver:
             equation="receptor-kind default",
             source=f"beamaudit data/dose_defaults.csv, {row.key}",
             assumed=True,
-            note=f"patient-to-receptor gap not known; {row.value:g} mm assumed ({receptor})",
+            note=f"patient-to-receptor gap not known; {row.value:g} mm assumed "
+            f"({'receptor kind not known' if receptor == 'unknown' else receptor})",
         )
         return row.value, row.standard_uncertainty or 0.0
 
@@ -454,7 +472,7 @@ class _Resolver:
                 area,
                 "cm²",
                 equation="A = w · h",
-                source=f"{self.source_of('field_width_mm')}; {self.source_of('field_height_mm')}",
+                source=self.source_of("field_width_mm", "field_height_mm"),
                 inputs={"field_width_mm": w, "field_height_mm": h, "plane_mm": plane},
             )
             return area, rel, w / _MM_PER_CM, h / _MM_PER_CM, plane, u_plane, "reported_sides"
@@ -470,8 +488,7 @@ class _Resolver:
                 "cm²",
                 equation="w = (right - left + 1) · column spacing; h = (lower - upper + 1) · row "
                 "spacing; A = w · h",
-                source=f"{self.source_of('collimator_edges_px')}; "
-                f"{self.source_of('imager_pixel_spacing_mm')}",
+                source=self.source_of("collimator_edges_px", "imager_pixel_spacing_mm"),
                 inputs={
                     "collimator_edges_px": list(g.collimator_edges_px or ()),
                     "imager_pixel_spacing_mm": list(g.imager_pixel_spacing_mm or ()),

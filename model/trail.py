@@ -176,6 +176,15 @@ class WhyTrail:
         """Append the steps of ``other`` (another trail or any iterable of steps), in order."""
         self._steps.extend(other)
 
+    def merge(self, other: Iterable[TrailStep]) -> None:
+        """Append the steps of ``other`` that this trail does not hold yet, in order.
+
+        For joining trails that share steps (the SID step of a distance and of a field trail).
+        """
+        for step in other:
+            if step not in self._steps:
+                self._steps.append(step)
+
     def copy(self) -> WhyTrail:
         """A new trail with the same steps (steps are immutable, so this is safe to extend)."""
         return WhyTrail(self._steps)
