@@ -60,11 +60,21 @@ class ValueReader:
         character set other than the default, Latin-1 or UTF-8).
     """
 
-    __slots__ = ("ds", "encoding")
+    __slots__ = ("_elements", "ds", "encoding")
 
     def __init__(self, ds: Dataset, encoding: str | None = "latin-1") -> None:
         self.ds = ds
         self.encoding = encoding
+        # pydicom keeps a dataset's elements in the dict ``_dict`` (tag -> raw or decoded
+        # element) since 1.0; reading it directly saves the Tag() conversion of
+        # Dataset.get_item on the ~80 look-ups per header. Fall back if it ever goes.
+        elements = getattr(ds, "_dict", None)
+        self._elements: dict[int, Any] | None = elements if isinstance(elements, dict) else None
+
+    def _get(self, tag: int) -> Any:
+        if self._elements is not None:
+            return self._elements.get(tag)
+        return self.ds.get_item(tag)
 
     @classmethod
     def for_dataset(cls, ds: Dataset) -> ValueReader:
@@ -88,7 +98,7 @@ class ValueReader:
     # -- numbers -------------------------------------------------------------------------
     def numbers(self, tag: int, keyword: str, vr: str) -> list[float] | None:
         """All values of a numeric element; ``None`` if absent or empty."""
-        elem = self.ds.get_item(tag)
+        elem = self._get(tag)
         if elem is None:
             return None
         if isinstance(elem, RawDataElement):
@@ -128,7 +138,7 @@ class ValueReader:
     # -- strings -------------------------------------------------------------------------
     def strings(self, tag: int, keyword: str, vr: str) -> list[str] | None:
         """All values of a string element, blanks stripped; ``None`` if absent or empty."""
-        elem = self.ds.get_item(tag)
+        elem = self._get(tag)
         if elem is None:
             return None
         if isinstance(elem, RawDataElement):
@@ -163,7 +173,7 @@ class ValueReader:
 
     def sequence(self, tag: int) -> list[Dataset]:
         """Items of a sequence element (empty list if absent)."""
-        if self.ds.get_item(tag) is None:
+        if self._get(tag) is None:
             return []
         value = self.ds[tag].value
         if value is None:

@@ -26,9 +26,11 @@ __all__ = [
     "HEADER_MATERIALS",
     "PROCEDURE_FAMILIES",
     "RETIRED_CODES",
+    "VIEW_MEANINGS",
     "CodeKey",
     "canonical",
     "material_from_meaning",
+    "view_from_meaning",
 ]
 
 CodeKey = tuple[str, str]
@@ -230,3 +232,30 @@ DEVICE_TYPES: dict[CodeKey, str] = {
     ("113958", "DCM"): "integrated_projection",
     ("113959", "DCM"): "cassette_based",
 }
+
+
+# Image View meanings (CID 4010 / 4014) -> the ViewPosition (0018,5101) Defined Terms used by
+# image headers, so that headers and reports group alike. Meanings from memory of PS3.16;
+# an unknown meaning is kept upper-cased.
+VIEW_MEANINGS: dict[str, str] = {
+    "postero-anterior": "PA",
+    "antero-posterior": "AP",
+    "left lateral": "LL",
+    "right lateral": "RL",
+    "lateral": "LAT",
+    "left anterior oblique": "LAO",
+    "right anterior oblique": "RAO",
+    "left posterior oblique": "LPO",
+    "right posterior oblique": "RPO",
+    "cranio-caudal": "CC",
+    "medio-lateral oblique": "MLO",
+    "medio-lateral": "ML",
+    "latero-medial": "LM",
+    "exaggerated cranio-caudal": "XCC",
+}
+
+
+def view_from_meaning(meaning: str) -> str:
+    """The ViewPosition-style term for an Image View code meaning."""
+    text = meaning.strip()
+    return VIEW_MEANINGS.get(text.lower(), text.upper())

@@ -30,6 +30,7 @@ PS3.16 TID 10001-10015 (see DICOM-NOTES sections 1 and 2).
 from __future__ import annotations
 
 from dataclasses import dataclass
+from dataclasses import field as dataclass_field
 from functools import cache
 from typing import Literal
 
@@ -79,6 +80,8 @@ class FieldMapping:
         Precedence among rows feeding the same field in the same context (lower wins).
     families
         Modality families the row applies to (header rows), ``None`` for all.
+    label
+        The provenance string of this row, e.g. ``"(0018,0060) KVP"``.
     """
 
     field: str
@@ -95,14 +98,17 @@ class FieldMapping:
     rank: int = 0
     families: frozenset[str] | None = None
 
-    @property
-    def label(self) -> str:
-        """The provenance string of this row."""
+    label: str = dataclass_field(init=False, repr=False, compare=False)
+
+    def __post_init__(self) -> None:
+        # the provenance string of this row, computed once
         if self.source == "header":
             assert self.tag is not None
-            return f"({self.tag >> 16:04X},{self.tag & 0xFFFF:04X}) {self.keyword}"
-        assert self.code is not None
-        return f"({self.code[0]}, {self.code[1]}) {self.meaning}"
+            text = f"({self.tag >> 16:04X},{self.tag & 0xFFFF:04X}) {self.keyword}"
+        else:
+            assert self.code is not None
+            text = f"({self.code[0]}, {self.code[1]}) {self.meaning}"
+        object.__setattr__(self, "label", text)
 
 
 @dataclass(frozen=True, slots=True)
@@ -176,6 +182,7 @@ MAPPING: tuple[FieldMapping, ...] = (
     _h("study_instance_uid", "StudyInstanceUID", 0x0020000D, "UI"),
     _h("series_instance_uid", "SeriesInstanceUID", 0x0020000E, "UI"),
     _h("irradiation_event_uid", "IrradiationEventUID", 0x00083010, "UI"),
+    _h("acquisition_key", "AcquisitionNumber", 0x00200012, "IS", families=_CT),
     _h("modality", "Modality", 0x00080060, "CS"),
     _h("accession_number", "AccessionNumber", 0x00080050, "SH"),
     _h("study_datetime", "StudyDate", 0x00080020, "DA"),
@@ -241,6 +248,9 @@ MAPPING: tuple[FieldMapping, ...] = (
     _h("collimator_edges_px", "CollimatorUpperHorizontalEdge", 0x00181706, "IS"),
     _h("collimator_edges_px", "CollimatorLowerHorizontalEdge", 0x00181708, "IS"),
     _h("field_width_mm", "ExposedArea", 0x00400303, "US", "mm", "mm"),
+    # image size, to check that collimator edges are pixel positions (field at the detector)
+    _h("field_width_mm", "Columns", 0x00280011, "US", rank=1),
+    _h("field_height_mm", "Rows", 0x00280010, "US"),
     # ---- dose as reported in image headers
     _h("dap_gy_cm2", "ImageAndFluoroscopyAreaDoseProduct", 0x0018115E, "DS", "dGy.cm2",
        "Gy.cm2"),

@@ -36,7 +36,7 @@ KEY_BYTES = 32  # 256-bit key, the SHA-256 block-size guidance of RFC 2104 secti
 PSEUDONYM_HEX_CHARS = 32  # 128 bits of the HMAC: collisions negligible for any registry
 _MIN_KEY_BYTES = 16
 
-_AGE = re.compile(r"^(\d{3})([DWMY])$")
+_AGE = re.compile(r"^(\d{1,3})([DWMY])$")
 _DAYS_PER_YEAR = 365.2425  # mean Gregorian year, for ages given in days or weeks
 
 

@@ -1,0 +1,382 @@
+"""Reading one DICOM object into a :class:`~beamaudit.ingest.events.ParseResult`.
+
+One ``dcmread(..., stop_before_pixels=True)`` per file, no second read:
+pixel data is never read. The SOP Class decides the parser: image headers
+(:mod:`.headers`) or dose reports (:mod:`.rdsr`). Anything unusable raises
+:class:`~beamaudit.ingest.errors.IngestError` with the source and reason; the
+caller records it and goes on.
+
+The patient is pseudonymised while reading (:mod:`.pseudonym`): the events
+carry the keyed-hash pseudonym and the age, never the Patient ID, name or
+birth date.
+"""
+
+from __future__ import annotations
+
+import io
+import os
+from typing import IO, Any
+
+from pydicom import dcmread
+from pydicom.dataset import Dataset
+from pydicom.errors import InvalidDicomError
+
+from ._context import FieldSink, read_context
+from ._values import ValueReader
+from .errors import IngestError
+from .events import ParseResult, SourceObject
+from .headers import header_events
+from .mapping import header_rows_by_field
+from .pseudonym import Pseudonymiser
+from .rdsr import is_dose_report_root, rdsr_events
+
+__all__ = [
+    "ACCEPTED_SOP_CLASSES",
+    "CT_SOP_CLASSES",
+    "DICOMDIR_SOP_CLASS",
+    "DOSE_REPORT_SOP_CLASSES",
+    "GENERIC_SR_SOP_CLASSES",
+    "HEAD_BYTES",
+    "IMAGE_SOP_CLASSES",
+    "classify_head",
+    "is_dicom_file",
+    "read_bytes",
+    "read_dataset",
+    "read_file",
+    "read_open_file",
+]
+
+# Storage SOP Class UIDs, PS3.4 Annex B.5 Table B.5-1 (names as in pydicom's UID dictionary)
+IMAGE_SOP_CLASSES: dict[str, str] = {
+    "1.2.840.10008.5.1.4.1.1.1": "Computed Radiography Image Storage",
+    "1.2.840.10008.5.1.4.1.1.1.1": "Digital X-Ray Image Storage - For Presentation",
+    "1.2.840.10008.5.1.4.1.1.1.1.1": "Digital X-Ray Image Storage - For Processing",
+    "1.2.840.10008.5.1.4.1.1.1.2": "Digital Mammography X-Ray Image Storage - For Presentation",
+    "1.2.840.10008.5.1.4.1.1.1.2.1": "Digital Mammography X-Ray Image Storage - For Processing",
+    "1.2.840.10008.5.1.4.1.1.13.1.3": "Breast Tomosynthesis Image Storage",
+    "1.2.840.10008.5.1.4.1.1.13.1.4": "Breast Projection X-Ray Image Storage - For Presentation",
+    "1.2.840.10008.5.1.4.1.1.13.1.5": "Breast Projection X-Ray Image Storage - For Processing",
+    "1.2.840.10008.5.1.4.1.1.12.1": "X-Ray Angiographic Image Storage",
+    "1.2.840.10008.5.1.4.1.1.12.1.1": "Enhanced XA Image Storage",
+    "1.2.840.10008.5.1.4.1.1.12.2": "X-Ray Radiofluoroscopic Image Storage",
+    "1.2.840.10008.5.1.4.1.1.12.2.1": "Enhanced XRF Image Storage",
+    "1.2.840.10008.5.1.4.1.1.2": "CT Image Storage",
+    "1.2.840.10008.5.1.4.1.1.2.1": "Enhanced CT Image Storage",
+    "1.2.840.10008.5.1.4.1.1.2.2": "Legacy Converted Enhanced CT Image Storage",
+}
+CT_SOP_CLASSES = frozenset(
+    {"1.2.840.10008.5.1.4.1.1.2", "1.2.840.10008.5.1.4.1.1.2.1", "1.2.840.10008.5.1.4.1.1.2.2"}
+)
+DOSE_REPORT_SOP_CLASSES: dict[str, str] = {
+    "1.2.840.10008.5.1.4.1.1.88.67": "X-Ray Radiation Dose SR Storage",
+    "1.2.840.10008.5.1.4.1.1.88.76": "Enhanced X-Ray Radiation Dose SR Storage",
+}
+# accepted only when the root concept is (113701, DCM) X-Ray Radiation Dose Report
+GENERIC_SR_SOP_CLASSES: dict[str, str] = {
+    "1.2.840.10008.5.1.4.1.1.88.22": "Enhanced SR Storage",
+    "1.2.840.10008.5.1.4.1.1.88.33": "Comprehensive SR Storage",
+    "1.2.840.10008.5.1.4.1.1.88.34": "Comprehensive 3D SR Storage",
+    "1.2.840.10008.5.1.4.1.1.88.35": "Extensible SR Storage",
+}
+#: Every SOP Class ingest reads (UID -> name); generic SR classes only with root (113701, DCM).
+ACCEPTED_SOP_CLASSES: dict[str, str] = {
+    **IMAGE_SOP_CLASSES,
+    **DOSE_REPORT_SOP_CLASSES,
+    **GENERIC_SR_SOP_CLASSES,
+}
+DICOMDIR_SOP_CLASS = "1.2.840.10008.1.3.10"  # Media Storage Directory Storage, PS3.4 Annex F
+
+HEAD_BYTES = 4096  # enough for the preamble, "DICM" and any real file meta group
+
+
+def _sop_name(uid: str) -> str:
+    try:
+        from pydicom.uid import UID
+
+        name = UID(uid).name
+    except (ValueError, TypeError):
+        return uid
+    return f"{name} ({uid})" if name and name != uid else uid
+
+
+def _required_uid(reader: ValueReader, field: str, ds: Dataset) -> str:
+    (row,) = [r for r in header_rows_by_field()[field] if r.rank == 0]
+    value = reader.string(row)
+    if value is None and field in ("sop_instance_uid", "sop_class_uid"):
+        meta = getattr(ds, "file_meta", None)
+        keyword = "MediaStorageSOPInstanceUID" if field == "sop_instance_uid" else (
+            "MediaStorageSOPClassUID")  # fmt: skip
+        if meta is not None and meta.get(keyword):
+            return str(meta.get(keyword)).strip()
+    if value is None:
+        raise IngestError("missing_attribute", f"{row.label} is missing or empty (Type 1)")
+    return value
+
+
+def read_dataset(ds: Dataset, *, pseudonymiser: Pseudonymiser, source: str) -> ParseResult:
+    """Parse a decoded dataset (from a file, a C-STORE, a DICOMweb pull).
+
+    Parameters
+    ----------
+    ds
+        The dataset; pixel data, if present, is not touched.
+    pseudonymiser
+        Turns the Patient ID into its pseudonym.
+    source
+        Where ``ds`` came from (path, ``"c-store:AE"``...), for errors.
+
+    Returns
+    -------
+    ParseResult
+        The object's identity, its events and (dose reports) accumulations.
+
+    Raises
+    ------
+    IngestError
+        ``missing_attribute``, ``unsupported_sop_class``, ``broken_template``,
+        ``out_of_range`` or ``bad_value``, with ``source`` set.
+    """
+    try:
+        return _parse(ds, pseudonymiser)
+    except IngestError as exc:
+        raise exc.with_source(source) from None
+
+
+def _parse(ds: Dataset, pseudonymiser: Pseudonymiser) -> ParseResult:
+    reader = ValueReader.for_dataset(ds)
+    sop_class = _required_uid(reader, "sop_class_uid", ds)
+    if sop_class == DICOMDIR_SOP_CLASS:
+        raise IngestError("unsupported_sop_class", "a DICOMDIR is a media index, not an exposure")
+    if sop_class not in ACCEPTED_SOP_CLASSES:
+        raise IngestError(
+            "unsupported_sop_class",
+            f"SOP Class {_sop_name(sop_class)} carries no x-ray exposure beamaudit reads",
+        )
+    is_report = sop_class not in IMAGE_SOP_CLASSES
+    if sop_class in GENERIC_SR_SOP_CLASSES and not is_dose_report_root(ds):
+        raise IngestError(
+            "unsupported_sop_class",
+            f"{_sop_name(sop_class)} whose root concept is not (113701, DCM) "
+            "X-Ray Radiation Dose Report: not a dose report",
+        )
+    sop_instance = _required_uid(reader, "sop_instance_uid", ds)
+    study = _required_uid(reader, "study_instance_uid", ds)
+    by_field = header_rows_by_field()
+    series = reader.string(by_field["series_instance_uid"][0])
+    modality = reader.string(by_field["modality"][0])
+    warnings: list[str] = []
+    context = FieldSink(warnings)
+    read_context(reader, context, pseudonymiser=pseudonymiser)
+    base: dict[str, Any] = {
+        "sop_instance_uid": sop_instance,
+        "sop_class_uid": sop_class,
+        "source_kind": "rdsr" if is_report else "image_header",
+        "modality": modality,
+        "study_instance_uid": study,
+        "series_instance_uid": series,
+        **context.values,
+    }
+    provenance = dict(context.provenance)
+    source = SourceObject(
+        sop_instance_uid=sop_instance,
+        sop_class_uid=sop_class,
+        kind="rdsr" if is_report else "image_header",
+        modality=modality,
+        study_instance_uid=study,
+        series_instance_uid=series,
+    )
+    if is_report:
+        events, accumulated = rdsr_events(
+            ds, base=base, base_provenance=provenance, warnings=warnings
+        )
+        result = ParseResult(source, events, accumulated, warnings)
+    else:
+        family = "ct" if sop_class in CT_SOP_CLASSES else "projection"
+        base["modality_family"] = family
+        events = header_events(
+            reader, base=base, base_provenance=provenance, family=family, warnings=warnings
+        )
+        result = ParseResult(source, events, [], warnings)
+    for event in result.events:
+        event.notes[:0] = context.notes
+    return result
+
+
+def classify_head(head: bytes) -> str:
+    """``"dicom"``, ``"dicomdir"`` or ``"not_dicom"`` from a file's first bytes.
+
+    DICOM when "DICM" sits at offset 128 (PS3.10 7.1), or when a file without
+    preamble starts with a plausible element of group 0002 or 0008 (explicit
+    or implicit VR little endian). A DICOMDIR is recognised by its Media
+    Storage SOP Class UID 1.2.840.10008.1.3.10 in the file meta group.
+    """
+    if len(head) >= 132 and head[128:132] == b"DICM":
+        return "dicomdir" if _meta_says_dicomdir(head[132:]) else "dicom"
+    if _plausible_first_element(head):
+        return "dicomdir" if _meta_says_dicomdir(head) else "dicom"
+    return "not_dicom"
+
+
+_VRS = frozenset(
+    b"AE AS AT CS DA DS DT FD FL IS LO LT OB OD OF OL OV OW PN SH SL SQ SS ST SV TM UC UI UL UN "
+    b"UR US UT UV".split()
+)
+
+
+def _plausible_first_element(head: bytes) -> bool:
+    if len(head) < 8:
+        return False
+    group = int.from_bytes(head[0:2], "little")
+    element = int.from_bytes(head[2:4], "little")
+    if group not in (0x0002, 0x0008) or element > 0x3FFF:
+        return False
+    if head[4:6] in _VRS:
+        return True
+    length = int.from_bytes(head[4:8], "little")  # implicit VR: 4-byte length
+    return length < 0x10000
+
+
+def _meta_says_dicomdir(meta: bytes) -> bool:
+    """Scan an explicit-VR little-endian group 0002 for (0002,0002)."""
+    pos = 0
+    while pos + 8 <= len(meta):
+        group = int.from_bytes(meta[pos : pos + 2], "little")
+        if group != 0x0002:
+            return False
+        element = int.from_bytes(meta[pos + 2 : pos + 4], "little")
+        vr = meta[pos + 4 : pos + 6]
+        if vr in (b"OB", b"OW", b"UN", b"UT", b"SQ", b"UC", b"UR", b"OV", b"OL"):
+            if pos + 12 > len(meta):
+                return False
+            length = int.from_bytes(meta[pos + 8 : pos + 12], "little")
+            start = pos + 12
+        else:
+            length = int.from_bytes(meta[pos + 6 : pos + 8], "little")
+            start = pos + 8
+        if element == 0x0002:
+            value = meta[start : start + length].rstrip(b"\x00 ")
+            return value == DICOMDIR_SOP_CLASS.encode()
+        pos = start + length
+    return False
+
+
+def _check_complete(ds: Dataset, fh: IO[bytes], size: int | None) -> None:
+    """Raise ``truncated`` if the object ends inside an element.
+
+    pydicom stops quietly at the end of the data: a last value shorter than
+    its declared length, or a partial element header left over, means the
+    file was cut. (A cut inside the pixel data is not seen: it is never read.)
+    """
+    keys = ds.keys()
+    if not keys:
+        raise IngestError("truncated", "the object ends before its first data element")
+    last_tag = next(reversed(keys))
+    raw = ds.get_item(last_tag)
+    length = getattr(raw, "length", None)
+    value = getattr(raw, "value", None)
+    value_tell = getattr(raw, "value_tell", None)
+    if isinstance(value, bytes) and length is not None and length != 0xFFFFFFFF:
+        if len(value) < length:
+            raise IngestError(
+                "truncated",
+                f"the object ends inside ({last_tag >> 16:04X},{last_tag & 0xFFFF:04X}): "
+                f"{len(value)} of {length} bytes",
+            )
+        if size is not None and value_tell is not None:
+            end = value_tell + length
+            position = fh.tell()
+            if position >= size and size > end:
+                raise IngestError(
+                    "truncated",
+                    f"the object ends inside an element header ({size - end} stray bytes)",
+                )
+
+
+def read_open_file(
+    fh: IO[bytes], *, pseudonymiser: Pseudonymiser, source: str, head: bytes | None = None
+) -> ParseResult:
+    """Parse an open binary file positioned at its start (one read, no pixels).
+
+    ``head``, if given, is the file's first bytes already read by the caller
+    (e.g. for :func:`classify_head`); the handle is rewound before reading.
+    """
+    if head is None:
+        head = fh.read(HEAD_BYTES)
+    fh.seek(0)
+    kind = classify_head(head)
+    if kind == "not_dicom":
+        raise IngestError(
+            "not_dicom", "no 'DICM' marker at byte 128 and no DICOM element at the start", source
+        )
+    if kind == "dicomdir":
+        raise IngestError(
+            "unsupported_sop_class", "a DICOMDIR is a media index, not an exposure", source
+        )
+    has_preamble = len(head) >= 132 and head[128:132] == b"DICM"
+    try:
+        size = os.fstat(fh.fileno()).st_size
+    except (AttributeError, OSError, io.UnsupportedOperation):
+        size = len(fh.getbuffer()) if isinstance(fh, io.BytesIO) else None
+    try:
+        ds = dcmread(fh, stop_before_pixels=True, force=not has_preamble)
+    except InvalidDicomError as exc:
+        raise IngestError("not_dicom", f"not a DICOM object: {exc}", source) from None
+    except EOFError as exc:
+        raise IngestError("truncated", f"the object ends early: {exc}", source) from None
+    except (ValueError, TypeError, KeyError, NotImplementedError, OverflowError) as exc:
+        raise IngestError("bad_value", f"cannot decode the object: {exc}", source) from None
+    try:
+        _check_complete(ds, fh, size)
+    except IngestError as exc:
+        raise exc.with_source(source) from None
+    return _decode_guard(ds, pseudonymiser, source)
+
+
+def _decode_guard(ds: Dataset, pseudonymiser: Pseudonymiser, source: str) -> ParseResult:
+    try:
+        return read_dataset(ds, pseudonymiser=pseudonymiser, source=source)
+    except IngestError:
+        raise
+    except (ValueError, TypeError, KeyError, AttributeError, EOFError, NotImplementedError) as exc:
+        # pydicom decoding a malformed nested element (a bad sequence, a wrong VR length)
+        raise IngestError(
+            "bad_value", f"cannot decode an element: {type(exc).__name__}: {exc}", source
+        ) from None
+
+
+def read_file(path: str | os.PathLike[str], *, pseudonymiser: Pseudonymiser) -> ParseResult:
+    """Parse the DICOM file at ``path`` (content decides, not the extension).
+
+    Raises
+    ------
+    IngestError
+        ``unreadable`` if the file cannot be opened, otherwise as
+        :func:`read_dataset`, plus ``not_dicom`` and ``truncated``.
+    """
+    source = str(path)
+    try:
+        fh = open(path, "rb")  # noqa: SIM115 - closed below, around one read
+    except OSError as exc:
+        raise IngestError("unreadable", f"cannot open: {exc.strerror}", source) from None
+    with fh:
+        try:
+            return read_open_file(fh, pseudonymiser=pseudonymiser, source=source)
+        except OSError as exc:
+            raise IngestError("unreadable", f"read failed: {exc.strerror}", source) from None
+
+
+def read_bytes(data: bytes, *, pseudonymiser: Pseudonymiser, source: str) -> ParseResult:
+    """Parse a DICOM object held in memory (a Part 10 file's bytes, or a
+    preamble-less encoding that starts with group 0002 or 0008)."""
+    return read_open_file(io.BytesIO(data), pseudonymiser=pseudonymiser, source=source)
+
+
+def is_dicom_file(path: str | os.PathLike[str]) -> bool | None:
+    """A fast content sniff: ``True`` for DICOM (DICOMDIR included), ``False``
+    if not, ``None`` if the file cannot be read."""
+    try:
+        with open(path, "rb") as fh:
+            head = fh.read(HEAD_BYTES)
+    except OSError:
+        return None
+    return classify_head(head) != "not_dicom"

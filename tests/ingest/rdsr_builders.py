@@ -1,0 +1,406 @@
+"""Synthetic Radiation Dose SRs for the ingest tests, built with beamaudit.ingest.sr_build.
+
+Every report here is invented test data following the PS3.16 templates
+(TID 10001 with TID 10002 / 10003 / 10003A-C and X-Ray Filters containers;
+TID 10011 with TID 10012 / 10013 / 10014). Concept codes are checked against
+pydicom's PS3.16 code dictionary in test_rdsr.py; values were chosen so that
+each unit conversion is visible (DAP in Gy·m², Exposure in µA·s, CT exposure
+time in s). No real file with a dose report ships in any installed package
+(DICOM-NOTES section 4), so these are the fixtures.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass, field
+from datetime import UTC, datetime
+
+from pydicom.dataset import Dataset
+from pydicom.uid import generate_uid
+
+from beamaudit.ingest.sr_build import (
+    Concept,
+    build_sr_document,
+    code_item,
+    container,
+    datetime_item,
+    num,
+    text,
+    uidref,
+)
+
+# ---- concepts (PS3.16; DICOM-NOTES section 2) ----
+REPORT: Concept = ("113701", "DCM", "X-Ray Radiation Dose Report")
+PROCEDURE_REPORTED: Concept = ("121058", "DCM", "Procedure reported")
+PROJECTION_XRAY: Concept = ("113704", "DCM", "Projection X-Ray")
+CT_XRAY: Concept = ("77477000", "SCT", "Computed Tomography X-Ray")
+CT_XRAY_SRT: Concept = ("P5-08000", "SRT", "Computed Tomography X-Ray")
+MAMMOGRAPHY: Concept = ("71651007", "SCT", "Mammography")
+HAS_INTENT: Concept = ("363703001", "SCT", "Has Intent")
+DIAGNOSTIC_INTENT: Concept = ("261004008", "SCT", "Diagnostic Intent")
+DEVICE_TYPE: Concept = ("122142", "DCM", "Acquisition Device Type")
+FLUORO_GUIDED: Concept = ("113957", "DCM", "Fluoroscopy-Guided Projection Radiography System")
+INTEGRATED: Concept = ("113958", "DCM", "Integrated Projection Radiography System")
+OBSERVER_TYPE: Concept = ("121005", "DCM", "Observer Type")
+DEVICE: Concept = ("121007", "DCM", "Device")
+DEVICE_OBSERVER_UID: Concept = ("121012", "DCM", "Device Observer UID")
+DEVICE_OBSERVER_NAME: Concept = ("121013", "DCM", "Device Observer Name")
+SCOPE: Concept = ("113705", "DCM", "Scope of Accumulation")
+STUDY: Concept = ("113014", "DCM", "Study")
+STUDY_UID: Concept = ("110180", "DCM", "Study Instance UID")
+ACCUMULATED: Concept = ("113702", "DCM", "Accumulated X-Ray Dose Data")
+PLANE: Concept = ("113764", "DCM", "Acquisition Plane")
+SINGLE_PLANE: Concept = ("113622", "DCM", "Single Plane")
+DAP_TOTAL: Concept = ("113722", "DCM", "Dose Area Product Total")
+RP_TOTAL: Concept = ("113725", "DCM", "Dose (RP) Total")
+FLUORO_DAP_TOTAL: Concept = ("113726", "DCM", "Fluoro Dose Area Product Total")
+FLUORO_RP_TOTAL: Concept = ("113728", "DCM", "Fluoro Dose (RP) Total")
+FLUORO_TIME_TOTAL: Concept = ("113730", "DCM", "Total Fluoro Time")
+ACQ_DAP_TOTAL: Concept = ("113727", "DCM", "Acquisition Dose Area Product Total")
+ACQ_RP_TOTAL: Concept = ("113729", "DCM", "Acquisition Dose (RP) Total")
+ACQ_TIME_TOTAL: Concept = ("113855", "DCM", "Total Acquisition Time")
+FRAMES_TOTAL: Concept = ("113731", "DCM", "Total Number of Radiographic Frames")
+SOURCE_OF_DOSE: Concept = ("113854", "DCM", "Source of Dose Information")
+AUTOMATED: Concept = ("113856", "DCM", "Automated Data Collection")
+EVENT: Concept = ("113706", "DCM", "Irradiation Event X-Ray Data")
+EVENT_UID: Concept = ("113769", "DCM", "Irradiation Event UID")
+STARTED: Concept = ("111526", "DCM", "DateTime Started")
+EVENT_TYPE: Concept = ("113721", "DCM", "Irradiation Event Type")
+FLUOROSCOPY: Concept = ("44491008", "SCT", "Fluoroscopy")
+FLUOROSCOPY_SRT: Concept = ("P5-06000", "SRT", "Fluoroscopy")
+STATIONARY: Concept = ("113611", "DCM", "Stationary Acquisition")
+PROTOCOL: Concept = ("125203", "DCM", "Acquisition Protocol")
+TARGET_REGION: Concept = ("123014", "DCM", "Target Region")
+CHEST: Concept = ("51185008", "SCT", "Chest")
+ABDOMEN: Concept = ("818981001", "SCT", "Abdomen")
+DAP: Concept = ("122130", "DCM", "Dose Area Product")
+DOSE_RP: Concept = ("113738", "DCM", "Dose (RP)")
+REFERENCE_POINT_DEFINITION: Concept = ("113780", "DCM", "Reference Point Definition")
+RP_15CM: Concept = ("113860", "DCM", "15cm from Isocenter toward Source")
+FLUORO_MODE: Concept = ("113732", "DCM", "Fluoro Mode")
+PULSED: Concept = ("113631", "DCM", "Pulsed")
+PULSE_RATE: Concept = ("113791", "DCM", "Pulse Rate")
+NUMBER_OF_PULSES: Concept = ("113768", "DCM", "Number of Pulses")
+IRRADIATION_DURATION: Concept = ("113742", "DCM", "Irradiation Duration")
+KVP: Concept = ("113733", "DCM", "KVP")
+TUBE_CURRENT: Concept = ("113734", "DCM", "X-Ray Tube Current")
+AVERAGE_TUBE_CURRENT: Concept = ("113767", "DCM", "Average X-Ray Tube Current")
+EXPOSURE_TIME: Concept = ("113824", "DCM", "Exposure Time")
+EXPOSURE: Concept = ("113736", "DCM", "Exposure")
+FOCAL_SPOT: Concept = ("113766", "DCM", "Focal Spot Size")
+ANODE: Concept = ("111632", "DCM", "Anode Target Material")
+TUNGSTEN: Concept = ("26194003", "SCT", "Tungsten")
+TUNGSTEN_SRT: Concept = ("C-16400", "SRT", "Tungsten")
+FILTERS: Concept = ("113771", "DCM", "X-Ray Filters")
+FILTER_TYPE: Concept = ("113772", "DCM", "X-Ray Filter Type")
+FLAT_FILTER: Concept = ("113653", "DCM", "Flat filter")
+FILTER_MATERIAL: Concept = ("113757", "DCM", "X-Ray Filter Material")
+COPPER: Concept = ("66925006", "SCT", "Copper")
+COPPER_SRT: Concept = ("C-12700", "SRT", "Copper")
+ALUMINUM: Concept = ("12503006", "SCT", "Aluminum")
+FILTER_MIN: Concept = ("113758", "DCM", "X-Ray Filter Thickness Minimum")
+FILTER_MAX: Concept = ("113773", "DCM", "X-Ray Filter Thickness Maximum")
+GRID: Concept = ("111635", "DCM", "X-Ray Grid")
+FOCUSED_GRID: Concept = ("111642", "DCM", "Focused grid")
+FIELD_AREA: Concept = ("113790", "DCM", "Collimated Field Area")
+SID: Concept = ("113750", "DCM", "Distance Source to Detector")
+SOURCE_TO_ISOCENTER: Concept = ("113748", "DCM", "Distance Source to Isocenter")
+EXPOSURE_INDEX: Concept = ("113845", "DCM", "Exposure Index")
+TARGET_EXPOSURE_INDEX: Concept = ("113846", "DCM", "Target Exposure Index")
+DEVIATION_INDEX: Concept = ("113847", "DCM", "Deviation Index")
+# CT
+CT_ACCUMULATED: Concept = ("113811", "DCM", "CT Accumulated Dose Data")
+TOTAL_EVENTS: Concept = ("113812", "DCM", "Total Number of Irradiation Events")
+DLP_TOTAL: Concept = ("113813", "DCM", "CT Dose Length Product Total")
+CT_ACQUISITION: Concept = ("113819", "DCM", "CT Acquisition")
+CT_ACQUISITION_TYPE: Concept = ("113820", "DCM", "CT Acquisition Type")
+SPIRAL: Concept = ("116152004", "SCT", "Spiral Acquisition")
+SPIRAL_SRT: Concept = ("P5-08001", "SRT", "Spiral Acquisition")
+CONSTANT_ANGLE: Concept = ("113805", "DCM", "Constant Angle Acquisition")
+CT_PARAMETERS: Concept = ("113822", "DCM", "CT Acquisition Parameters")
+SCANNING_LENGTH: Concept = ("113825", "DCM", "Scanning Length")
+SINGLE_COLLIMATION: Concept = ("113826", "DCM", "Nominal Single Collimation Width")
+TOTAL_COLLIMATION: Concept = ("113827", "DCM", "Nominal Total Collimation Width")
+PITCH: Concept = ("113828", "DCM", "Pitch Factor")
+NUMBER_OF_SOURCES: Concept = ("113823", "DCM", "Number of X-Ray Sources")
+CT_SOURCE: Concept = ("113831", "DCM", "CT X-Ray Source Parameters")
+SOURCE_ID: Concept = ("113832", "DCM", "Identification of the X-Ray Source")
+MAX_TUBE_CURRENT: Concept = ("113833", "DCM", "Maximum X-Ray Tube Current")
+ROTATION_TIME: Concept = ("113834", "DCM", "Exposure Time per Rotation")
+CT_DOSE: Concept = ("113829", "DCM", "CT Dose")
+MEAN_CTDIVOL: Concept = ("113830", "DCM", "Mean CTDIvol")
+PHANTOM_TYPE: Concept = ("113835", "DCM", "CTDIw Phantom Type")
+BODY_PHANTOM: Concept = ("113691", "DCM", "IEC Body Dosimetry Phantom")
+HEAD_PHANTOM: Concept = ("113690", "DCM", "IEC Head Dosimetry Phantom")
+DLP: Concept = ("113838", "DCM", "DLP")
+
+START = datetime(2024, 3, 5, 10, 15, 0, tzinfo=UTC)
+
+
+def _document_context(
+    procedure: Concept, study_uid: str, observer_uid: str, device_type: Concept | None
+) -> list[Dataset]:
+    items = [
+        code_item(
+            PROCEDURE_REPORTED, procedure, relationship="HAS CONCEPT MOD",
+            children=[code_item(HAS_INTENT, DIAGNOSTIC_INTENT, relationship="HAS CONCEPT MOD")],
+        ),
+    ]  # fmt: skip
+    if device_type is not None:
+        items.append(code_item(DEVICE_TYPE, device_type))
+    items += [
+        code_item(OBSERVER_TYPE, DEVICE, relationship="HAS OBS CONTEXT"),
+        uidref(DEVICE_OBSERVER_UID, observer_uid, relationship="HAS OBS CONTEXT"),
+        text(DEVICE_OBSERVER_NAME, "FLUORO-ROOM-2", relationship="HAS OBS CONTEXT"),
+        code_item(
+            SCOPE, STUDY, relationship="HAS OBS CONTEXT",
+            children=[uidref(STUDY_UID, study_uid, relationship="HAS PROPERTIES")],
+        ),
+    ]  # fmt: skip
+    return items
+
+
+@dataclass
+class FluoroEvent:
+    """One projection event of a synthetic report (values in the report's units)."""
+
+    uid: str = field(default_factory=generate_uid)
+    fluoroscopy: bool = True
+    kvp_kv: float = 78.0
+    dap_gy_m2: float = 2.5e-4
+    dose_rp_gy: float = 0.012
+    exposure_uas: float | None = None
+    exposure_time_ms: float | None = None
+    tube_current_ma: float = 11.5
+    pulses: int = 450
+    pulse_rate: float = 15.0
+    duration_s: float = 30.0
+    copper_mm: float = 0.3
+    aluminium_mm: float = 1.0
+    protocol: str = "Abdomen fluoro"
+    srt_codes: bool = False
+
+
+def _projection_event(index: int, ev: FluoroEvent) -> Dataset:
+    items: list[Dataset] = [
+        code_item(PLANE, SINGLE_PLANE, relationship="HAS CONCEPT MOD"),
+        uidref(EVENT_UID, ev.uid),
+        datetime_item(STARTED, START.replace(minute=15 + index)),
+        code_item(
+            EVENT_TYPE,
+            (FLUOROSCOPY_SRT if ev.srt_codes else FLUOROSCOPY) if ev.fluoroscopy else STATIONARY,
+        ),
+        text(PROTOCOL, ev.protocol),
+        code_item(TARGET_REGION, ABDOMEN),
+        num(DAP, ev.dap_gy_m2, "Gy.m2"),
+        # TID 10003B source data
+        num(DOSE_RP, ev.dose_rp_gy, "Gy"),
+        code_item(REFERENCE_POINT_DEFINITION, RP_15CM),
+    ]
+    if ev.fluoroscopy:
+        items += [
+            code_item(FLUORO_MODE, PULSED),
+            num(PULSE_RATE, ev.pulse_rate, "{pulse}/s"),
+            num(NUMBER_OF_PULSES, ev.pulses, "1"),
+            num(IRRADIATION_DURATION, ev.duration_s, "s"),
+            num(AVERAGE_TUBE_CURRENT, ev.tube_current_ma, "mA"),
+        ]
+    else:
+        items.append(num(TUBE_CURRENT, ev.tube_current_ma, "mA"))
+    items.append(num(KVP, ev.kvp_kv, "kV"))
+    if ev.exposure_time_ms is not None:
+        items.append(num(EXPOSURE_TIME, ev.exposure_time_ms, "ms"))
+    if ev.exposure_uas is not None:
+        items.append(num(EXPOSURE, ev.exposure_uas, "uA.s"))
+    items += [
+        num(FOCAL_SPOT, 0.6, "mm"),
+        code_item(ANODE, TUNGSTEN_SRT if ev.srt_codes else TUNGSTEN),
+        container(FILTERS, [
+            code_item(FILTER_TYPE, FLAT_FILTER),
+            code_item(FILTER_MATERIAL, COPPER_SRT if ev.srt_codes else COPPER),
+            num(FILTER_MIN, ev.copper_mm, "mm"),
+            num(FILTER_MAX, ev.copper_mm, "mm"),
+        ]),
+        container(FILTERS, [
+            code_item(FILTER_TYPE, FLAT_FILTER),
+            code_item(FILTER_MATERIAL, ALUMINUM),
+            num(FILTER_MIN, ev.aluminium_mm, "mm"),
+            num(FILTER_MAX, ev.aluminium_mm, "mm"),
+        ]),
+        code_item(GRID, FOCUSED_GRID),
+        num(FIELD_AREA, 0.04, "m2"),
+        # TID 10003C mechanical data
+        num(SOURCE_TO_ISOCENTER, 810.0, "mm"),
+        num(SID, 1150.0, "mm"),
+    ]  # fmt: skip
+    return container(EVENT, items)
+
+
+def fluoroscopy_report(
+    events: list[FluoroEvent] | None = None,
+    *,
+    study_uid: str | None = None,
+    srt_codes: bool = False,
+    **document: object,
+) -> Dataset:
+    """A TID 10001 report of a fluoroscopy-guided procedure: an accumulation and
+    several events (default: two fluoroscopy runs and one stationary acquisition)."""
+    study_uid = study_uid or generate_uid()
+    if events is None:
+        events = [
+            FluoroEvent(srt_codes=srt_codes),
+            FluoroEvent(kvp_kv=82.0, dap_gy_m2=4.0e-4, dose_rp_gy=0.02, pulses=300,
+                        duration_s=20.0, srt_codes=srt_codes),
+            FluoroEvent(fluoroscopy=False, kvp_kv=75.0, dap_gy_m2=1.5e-4, dose_rp_gy=0.008,
+                        exposure_uas=32000.0, exposure_time_ms=80.0, tube_current_ma=400.0,
+                        protocol="Abdomen acquisition", srt_codes=srt_codes),
+        ]  # fmt: skip
+    fluoro = [e for e in events if e.fluoroscopy]
+    acq = [e for e in events if not e.fluoroscopy]
+    accumulated = container(ACCUMULATED, [
+        code_item(PLANE, SINGLE_PLANE, relationship="HAS CONCEPT MOD"),
+        num(FLUORO_DAP_TOTAL, sum(e.dap_gy_m2 for e in fluoro), "Gy.m2"),
+        num(FLUORO_RP_TOTAL, sum(e.dose_rp_gy for e in fluoro), "Gy"),
+        num(FLUORO_TIME_TOTAL, sum(e.duration_s for e in fluoro), "s"),
+        num(ACQ_DAP_TOTAL, sum(e.dap_gy_m2 for e in acq), "Gy.m2"),
+        num(ACQ_RP_TOTAL, sum(e.dose_rp_gy for e in acq), "Gy"),
+        num(ACQ_TIME_TOTAL, sum((e.exposure_time_ms or 0.0) for e in acq) / 1000.0, "s"),
+        num(FRAMES_TOTAL, len(acq), "1"),
+        num(DAP_TOTAL, sum(e.dap_gy_m2 for e in events), "Gy.m2"),
+        num(RP_TOTAL, sum(e.dose_rp_gy for e in events), "Gy"),
+    ])  # fmt: skip
+    root = container(
+        REPORT,
+        [
+            *_document_context(
+                PROJECTION_XRAY, study_uid, "1.2.826.0.1.3680043.10.1.7", FLUORO_GUIDED
+            ),
+            accumulated,
+            *[_projection_event(i, e) for i, e in enumerate(events)],
+            code_item(SOURCE_OF_DOSE, AUTOMATED),
+        ],
+        relationship=None,
+    )
+    return build_sr_document(root, study_instance_uid=study_uid, **document)  # type: ignore[arg-type]
+
+
+def radiography_report(*, study_uid: str | None = None, event_uid: str | None = None,
+                       kvp_kv: float = 125.0, **document: object) -> Dataset:  # fmt: skip
+    """A TID 10001 report of one chest radiograph with exposure index data (TID 10003A)."""
+    study_uid = study_uid or generate_uid()
+    event = container(EVENT, [
+        code_item(PLANE, SINGLE_PLANE, relationship="HAS CONCEPT MOD"),
+        uidref(EVENT_UID, event_uid or generate_uid()),
+        datetime_item(STARTED, START),
+        code_item(EVENT_TYPE, STATIONARY),
+        text(PROTOCOL, "Chest PA"),
+        code_item(TARGET_REGION, CHEST),
+        num(DAP, 1.1e-5, "Gy.m2"),
+        num(EXPOSURE_INDEX, 250.0, "1"),
+        num(TARGET_EXPOSURE_INDEX, 400.0, "1"),
+        num(DEVIATION_INDEX, -2.0, "1"),
+        num(KVP, kvp_kv, "kV"),
+        num(EXPOSURE, 2500.0, "uA.s"),
+        num(EXPOSURE_TIME, 6.0, "ms"),
+        num(SID, 1800.0, "mm"),
+    ])  # fmt: skip
+    accumulated = container(ACCUMULATED, [
+        code_item(PLANE, SINGLE_PLANE, relationship="HAS CONCEPT MOD"),
+        num(DAP_TOTAL, 1.1e-5, "Gy.m2"),
+        num(FRAMES_TOTAL, 1, "1"),
+    ])  # fmt: skip
+    root = container(
+        REPORT,
+        [*_document_context(PROJECTION_XRAY, study_uid, "1.2.826.0.1.3680043.10.1.8", INTEGRATED),
+         accumulated, event, code_item(SOURCE_OF_DOSE, AUTOMATED)],
+        relationship=None,
+    )  # fmt: skip
+    return build_sr_document(root, study_instance_uid=study_uid, **document)  # type: ignore[arg-type]
+
+
+@dataclass
+class CtEvent:
+    """One CT acquisition of a synthetic report."""
+
+    uid: str = field(default_factory=generate_uid)
+    localizer: bool = False
+    kvp_kv: float = 120.0
+    tube_current_ma: float = 210.0
+    exposure_time_s: float = 7.5
+    scanning_length_mm: float = 420.0
+    pitch: float = 0.984
+    ctdivol_mgy: float = 12.4
+    dlp_mgy_cm: float = 560.5
+    head_phantom: bool = False
+    protocol: str = "Chest-abdomen-pelvis"
+
+
+def _ct_event(ev: CtEvent, srt_codes: bool) -> Dataset:
+    params = container(CT_PARAMETERS, [
+        num(EXPOSURE_TIME, ev.exposure_time_s, "s"),
+        num(SCANNING_LENGTH, ev.scanning_length_mm, "mm"),
+        num(SINGLE_COLLIMATION, 0.625, "mm"),
+        num(TOTAL_COLLIMATION, 40.0, "mm"),
+        *([] if ev.localizer else [num(PITCH, ev.pitch, "{ratio}")]),
+        num(NUMBER_OF_SOURCES, 1, "{X-Ray sources}"),
+        container(CT_SOURCE, [
+            text(SOURCE_ID, "A"),
+            num(KVP, ev.kvp_kv, "kV"),
+            num(MAX_TUBE_CURRENT, ev.tube_current_ma * 1.5, "mA"),
+            num(TUBE_CURRENT, ev.tube_current_ma, "mA"),
+            *([] if ev.localizer else [num(ROTATION_TIME, 0.5, "s")]),
+        ]),
+    ])  # fmt: skip
+    acquisition_type = CONSTANT_ANGLE if ev.localizer else (SPIRAL_SRT if srt_codes else SPIRAL)
+    items = [
+        text(PROTOCOL, ev.protocol),
+        code_item(TARGET_REGION, ABDOMEN),
+        code_item(CT_ACQUISITION_TYPE, acquisition_type),
+        uidref(EVENT_UID, ev.uid),
+        params,
+    ]
+    if not ev.localizer:  # localizers often carry no CT Dose container (DICOM-NOTES 2.7)
+        items.append(container(CT_DOSE, [
+            num(MEAN_CTDIVOL, ev.ctdivol_mgy, "mGy"),
+            code_item(PHANTOM_TYPE, HEAD_PHANTOM if ev.head_phantom else BODY_PHANTOM),
+            num(DLP, ev.dlp_mgy_cm, "mGy.cm"),
+        ]))  # fmt: skip
+    return container(CT_ACQUISITION, items)
+
+
+def ct_report(
+    events: list[CtEvent] | None = None,
+    *,
+    study_uid: str | None = None,
+    srt_codes: bool = False,
+    dlp_total_mgy_cm: float | None = None,
+    **document: object,
+) -> Dataset:
+    """A TID 10011 CT report: a localizer without CT Dose and a spiral acquisition.
+
+    ``srt_codes`` writes the retired SNOMED-RT codes of older reports
+    (P5-08000 CT X-Ray, P5-08001 Spiral Acquisition).
+    """
+    study_uid = study_uid or generate_uid()
+    if events is None:
+        events = [
+            CtEvent(localizer=True, tube_current_ma=20.0, exposure_time_s=3.1,
+                    scanning_length_mm=500.0, protocol="Scout"),
+            CtEvent(),
+        ]  # fmt: skip
+    total = dlp_total_mgy_cm
+    if total is None:
+        total = sum(e.dlp_mgy_cm for e in events if not e.localizer)
+    accumulated = container(CT_ACCUMULATED, [
+        num(TOTAL_EVENTS, len(events), "{events}"),
+        num(DLP_TOTAL, total, "mGy.cm"),
+    ])  # fmt: skip
+    procedure = CT_XRAY_SRT if srt_codes else CT_XRAY
+    root = container(
+        REPORT,
+        [*_document_context(procedure, study_uid, "1.2.826.0.1.3680043.10.1.9", None),
+         accumulated, *[_ct_event(e, srt_codes) for e in events],
+         code_item(SOURCE_OF_DOSE, AUTOMATED)],
+        relationship=None,
+    )  # fmt: skip
+    document.setdefault("station_name", "CT-1")
+    return build_sr_document(root, study_instance_uid=study_uid, **document)  # type: ignore[arg-type]
