@@ -185,3 +185,11 @@ def test_estimate_outside_the_table_adds_the_extrapolation_term() -> None:
 def test_estimate_rejects_negative_uncertainty() -> None:
     with pytest.raises(ModelError, match="must not be negative"):
         backscatter_estimate(hvl_mm_al=3.0, field_side_cm=20.0, hvl_standard_uncertainty_mm_al=-1)
+
+
+def test_header_states_the_phantom_dependence() -> None:
+    # Ma & Seuntjens, Phys Med Biol 44:131 (1999): B for soft tissue vs water differ by < 1 %,
+    # bone by up to 20 % (PUBLISHED-VALUES d, high) -- the reason one water table serves tissue
+    phantom = load_backscatter_table().metadata["phantom"]
+    assert "less than 1 percent" in phantom and "Ma & Seuntjens" in phantom
+    assert "bone" in phantom

@@ -254,3 +254,18 @@ def test_trails_serialise() -> None:
     geo = resolve_geometry(GeometryInputs(exam="abdomen_ap"))
     assert geo.distance_trail.to_json().startswith("[")
     assert geo.field_trail.to_json().startswith("[")
+
+
+def test_dose_defaults_are_documented() -> None:
+    from beamaudit.model.defaults import load_dose_defaults
+
+    rows = load_dose_defaults()
+    for kind in ("table_bucky", "wall_bucky", "direct", "unknown"):
+        gap = rows[f"gap_{kind}_mm"]
+        assert gap.unit == "mm" and gap.value >= 0
+        assert gap.standard_uncertainty is not None and gap.standard_uncertainty > 0
+    for row in rows.values():
+        assert row.source, row.key
+        assert row.source.startswith(("assumed", "the ")), row.key  # assumptions say so
+    with pytest.raises(ModelError, match="no dose default"):
+        dose_default("nonexistent")
