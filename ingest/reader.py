@@ -270,7 +270,7 @@ def _check_complete(ds: Dataset, fh: IO[bytes], size: int | None) -> None:
     keys = ds.keys()
     if not keys:
         raise IngestError("truncated", "the object ends before its first data element")
-    last_tag = next(reversed(keys))
+    last_tag = max(keys)  # elements are read in ascending tag order
     raw = ds.get_item(last_tag)
     length = getattr(raw, "length", None)
     value = getattr(raw, "value", None)
@@ -313,6 +313,7 @@ def read_open_file(
             "unsupported_sop_class", "a DICOMDIR is a media index, not an exposure", source
         )
     has_preamble = len(head) >= 132 and head[128:132] == b"DICM"
+    size: int | None
     try:
         size = os.fstat(fh.fileno()).st_size
     except (AttributeError, OSError, io.UnsupportedOperation):

@@ -1,0 +1,204 @@
+"""The folder source: walk paths, recognise DICOM by content, parse each file.
+
+PACS exports often have no file extension, so a file is recognised by what it
+holds: "DICM" at byte 128 (PS3.10 section 7.1), or, for files written without
+the preamble, a first element of group 0002 or 0008. A DICOMDIR (Media Storage
+SOP Class 1.2.840.10008.1.3.10) is an index of the other files, not an event:
+it is counted and skipped, never an error. Every other file that cannot be
+used becomes an :class:`~beamaudit.ingest.errors.IngestError` in its
+:class:`ScanOutcome`, and the walk goes on.
+
+Each file is opened once: its first bytes classify it, then the same handle is
+rewound and read by ``dcmread(..., stop_before_pixels=True)``.
+"""
+
+from __future__ import annotations
+
+import os
+import stat
+from collections import Counter
+from collections.abc import Iterable, Iterator
+from dataclasses import dataclass, field
+from pathlib import Path
+from typing import Literal
+
+from .errors import IngestError
+from .events import ParseResult
+from .pseudonym import Pseudonymiser
+from .reader import HEAD_BYTES, classify_head, read_open_file
+
+__all__ = [
+    "Classification",
+    "ScanOutcome",
+    "ScanSummary",
+    "classify",
+    "iter_candidate_files",
+    "scan",
+]
+
+Classification = Literal["dicom", "dicomdir", "not_dicom"]
+
+
+def iter_candidate_files(paths: Iterable[str | os.PathLike[str]]) -> Iterator[Path]:
+    """Every regular file under ``paths``, depth first, names sorted within each folder.
+
+    Symbolic links are followed, but each folder and each file is visited once
+    (by device and inode), so link loops end and a linked file is not counted
+    twice. A path that does not exist is yielded as given, for the caller to
+    report.
+    """
+    seen_dirs: set[tuple[int, int]] = set()
+    seen_files: set[tuple[int, int]] = set()
+    for raw in paths:
+        path = Path(raw)
+        try:
+            info = path.stat()
+        except OSError:
+            yield path
+            continue
+        if stat.S_ISDIR(info.st_mode):
+            yield from _walk(path, info, seen_dirs, seen_files)
+        elif stat.S_ISREG(info.st_mode):
+            key = (info.st_dev, info.st_ino)
+            if key not in seen_files:
+                seen_files.add(key)
+                yield path
+
+
+def _walk(
+    root: Path,
+    info: os.stat_result,
+    seen_dirs: set[tuple[int, int]],
+    seen_files: set[tuple[int, int]],
+) -> Iterator[Path]:
+    key = (info.st_dev, info.st_ino)
+    if key in seen_dirs:
+        return
+    seen_dirs.add(key)
+    try:
+        with os.scandir(root) as entries:
+            names = sorted(entries, key=lambda e: e.name)
+    except OSError:
+        return  # unreadable folder: nothing to yield (its files cannot be read either)
+    for entry in names:
+        try:
+            entry_info = entry.stat(follow_symlinks=True)
+        except OSError:
+            continue  # dangling link
+        child = root / entry.name
+        if stat.S_ISDIR(entry_info.st_mode):
+            yield from _walk(child, entry_info, seen_dirs, seen_files)
+        elif stat.S_ISREG(entry_info.st_mode):
+            file_key = (entry_info.st_dev, entry_info.st_ino)
+            if file_key not in seen_files:
+                seen_files.add(file_key)
+                yield child
+
+
+def classify(path: str | os.PathLike[str]) -> Classification:
+    """``"dicom"``, ``"dicomdir"`` or ``"not_dicom"`` by the file's content.
+
+    Raises
+    ------
+    IngestError
+        ``unreadable`` if the file cannot be read.
+    """
+    try:
+        with open(path, "rb") as fh:
+            head = fh.read(HEAD_BYTES)
+    except OSError as exc:
+        raise IngestError("unreadable", f"cannot read: {exc.strerror}", str(path)) from None
+    return classify_head(head)  # type: ignore[return-value]
+
+
+@dataclass(slots=True)
+class ScanOutcome:
+    """What one file gave: a result, a recorded error, or a skip (DICOMDIR)."""
+
+    path: Path
+    classification: Classification | None
+    result: ParseResult | None = None
+    error: IngestError | None = None
+
+    @property
+    def skipped(self) -> bool:
+        """True for a DICOMDIR (an index, counted but not an error)."""
+        return self.classification == "dicomdir"
+
+
+@dataclass(slots=True)
+class ScanSummary:
+    """Counts of a scan, kept up to date by :func:`scan` if one is passed in."""
+
+    files: int = 0
+    parsed: int = 0
+    events: int = 0
+    dicomdirs: int = 0
+    errors: int = 0
+    error_codes: Counter[str] = field(default_factory=Counter)
+
+    def add(self, outcome: ScanOutcome) -> None:
+        """Count one outcome."""
+        self.files += 1
+        if outcome.skipped:
+            self.dicomdirs += 1
+        elif outcome.error is not None:
+            self.errors += 1
+            self.error_codes[outcome.error.code] += 1
+        elif outcome.result is not None:
+            self.parsed += 1
+            self.events += len(outcome.result.events)
+
+
+def scan(
+    paths: Iterable[str | os.PathLike[str]],
+    *,
+    pseudonymiser: Pseudonymiser,
+    summary: ScanSummary | None = None,
+) -> Iterator[ScanOutcome]:
+    """Parse every file under ``paths``, one :class:`ScanOutcome` per file.
+
+    One bad file never stops the scan: its error is in its outcome. Files are
+    visited in the deterministic order of :func:`iter_candidate_files`.
+    """
+    for path in iter_candidate_files(paths):
+        outcome = _scan_one(path, pseudonymiser)
+        if summary is not None:
+            summary.add(outcome)
+        yield outcome
+
+
+def _scan_one(path: Path, pseudonymiser: Pseudonymiser) -> ScanOutcome:
+    source = str(path)
+    try:
+        fh = open(path, "rb")  # noqa: SIM115 - closed below
+    except FileNotFoundError:
+        return ScanOutcome(path, None, error=IngestError("unreadable", "no such file", source))
+    except OSError as exc:
+        return ScanOutcome(
+            path, None, error=IngestError("unreadable", f"cannot open: {exc.strerror}", source)
+        )
+    with fh:
+        try:
+            head = fh.read(HEAD_BYTES)
+        except OSError as exc:
+            error = IngestError("unreadable", f"read failed: {exc.strerror}", source)
+            return ScanOutcome(path, None, error=error)
+        kind: Classification = classify_head(head)  # type: ignore[assignment]
+        if kind == "dicomdir":
+            return ScanOutcome(path, kind)
+        if kind == "not_dicom":
+            error = IngestError(
+                "not_dicom",
+                "no 'DICM' marker at byte 128 and no DICOM element at the start",
+                source,
+            )
+            return ScanOutcome(path, kind, error=error)
+        try:
+            result = read_open_file(fh, pseudonymiser=pseudonymiser, source=source, head=head)
+        except IngestError as exc:
+            return ScanOutcome(path, kind, error=exc.with_source(source))
+        except OSError as exc:
+            error = IngestError("unreadable", f"read failed: {exc.strerror}", source)
+            return ScanOutcome(path, kind, error=error)
+        return ScanOutcome(path, kind, result=result)
