@@ -96,6 +96,8 @@ RADIATIVE_YIELD_G = 0.0
 _ELECTRON_REST_ENERGY_KEV = 510.99895
 #: Classical electron radius in cm (CODATA 2018).
 _CLASSICAL_ELECTRON_RADIUS_CM = 2.8179403262e-13
+#: h c in keV Angstrom (CODATA 2018), converting photon energy to wavelength.
+_HC_KEV_ANGSTROM = 12.398419843320026
 #: Avogadro constant in 1/mol (SI 2019, exact).
 _AVOGADRO_PER_MOL = 6.02214076e23
 #: Gauss-Legendre nodes over cos(theta) for the incoherent energy-transfer integral; 96 nodes
@@ -239,8 +241,14 @@ def _shell_mean_fluorescence_energy_kev(z: int) -> tuple[tuple[int, float], ...]
     return tuple(result)
 
 
+@lru_cache(maxsize=1)
+def _angle_nodes() -> tuple[FloatArray, FloatArray]:
+    nodes, weights = np.polynomial.legendre.leggauss(_ANGLE_NODES)
+    return nodes, weights
+
+
 def _incoherent_energy_transfer_cm2_g(z: int, energies: FloatArray) -> FloatArray:
-    cos_theta, weights = np.polynomial.legendre.leggauss(_ANGLE_NODES)
+    cos_theta, weights = _angle_nodes()
     theta = np.arccos(cos_theta)
     k = energies[:, None] / _ELECTRON_REST_ENERGY_KEV
     ratio = 1.0 / (1.0 + k * (1.0 - cos_theta[None, :]))  # E'/E
@@ -250,8 +258,9 @@ def _incoherent_energy_transfer_cm2_g(z: int, energies: FloatArray) -> FloatArra
         * ratio**2
         * (ratio + 1.0 / ratio - (1.0 - cos_theta[None, :] ** 2))
     )
-    q = xraylib_np.MomentTransf(energies, theta)
-    s = xraylib_np.SF_Compt(np.array([z], dtype=np.int64), q.ravel())[0].reshape(q.shape)
+    # Momentum transfer x = sin(theta/2) / lambda in 1/Angstrom, as xraylib's MomentTransf.
+    q = energies[:, None] / _HC_KEV_ANGSTROM * np.sin(0.5 * theta)[None, :]
+    s = np.array([xraylib.SF_Compt(z, float(x)) for x in q.ravel()]).reshape(q.shape)
     per_atom = 2.0 * np.pi * ((d_sigma * s * (1.0 - ratio)) @ weights)
     result: FloatArray = per_atom * _AVOGADRO_PER_MOL / xraylib.AtomicWeight(z)
     return result

@@ -85,6 +85,7 @@ from __future__ import annotations
 
 import json
 import math
+import re
 from dataclasses import dataclass
 from functools import lru_cache
 from importlib import resources
@@ -138,11 +139,11 @@ BREMSSTRAHLUNG_EFFICIENCY_PER_VOLT = 1.0e-9
 KRAMERS_CONSTANT_PER_KEV = 2.0e3 * BREMSSTRAHLUNG_EFFICIENCY_PER_VOLT
 #: Electron depth factor f_d: mean depth of the electrons of energy T as a fraction of the
 #: straight-ahead (CSDA) depth. Fitted by us (module docstring): least squares over the relative
-#: residuals of the IEC 61267:2005 RQR 2-10 first HVLs at one fixed filtration gives 0.325;
-#: rounded to 0.33. A fraction of the range is in line with electron-probe microanalysis
+#: residuals of the IEC 61267:2005 RQR 2-10 first HVLs at one fixed filtration gives 0.346;
+#: rounded to 0.35. A fraction of the range is in line with electron-probe microanalysis
 #: experience that x-rays in heavy targets are generated well inside the first third of the
 #: electron range (from memory).
-ELECTRON_DEPTH_FACTOR = 0.33
+ELECTRON_DEPTH_FACTOR = 0.35
 #: Exponent n of the Green & Cosslett (1968) K-yield law (U0 - 1)^n (from memory, medium).
 GREEN_COSSLETT_EXPONENT = 1.63
 #: Worthington & Tomlin (1956) constant b_K of the K-shell ionisation cross-section (from memory).
@@ -412,10 +413,11 @@ def k_shell_vacancies_per_electron(kv: npt.ArrayLike, *, anode: Anode) -> FloatA
 def _k_lines(key: str) -> tuple[tuple[float, ...], tuple[float, ...], tuple[float, ...]]:
     a = _anode_by_key(key)
     energies, rates = [], []
+    # Only the IUPAC-named lines (K-L3, K-M2, ...): Siegbahn aliases (KA1_LINE) and composite
+    # macros (KA_LINE) would count lines twice.
+    iupac = re.compile(r"^K[LMNOPQ]\d*_LINE$")
     for name in sorted(dir(xraylib)):
-        if not (name.startswith("K") and name.endswith("_LINE")) or name.count("_") != 1:
-            continue
-        if name in ("KA_LINE", "KB_LINE"):
+        if not iupac.match(name):
             continue
         line = getattr(xraylib, name)
         try:

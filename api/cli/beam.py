@@ -1,0 +1,142 @@
+"""``beamaudit beam``: the beam model's figures for one technique (output, HVLs, spectrum).
+
+Each ``--filter THICKNESS_MM:MATERIAL`` is one layer of the total filtration, inherent
+included; without ``--filter`` the default total filtration (2.5 mm Al) is used and flagged as
+assumed. Impossible input ends in one line on stderr and exit code 2.
+"""
+
+from __future__ import annotations
+
+import json
+from pathlib import Path
+from typing import TYPE_CHECKING, Annotated
+
+import typer
+
+from beamaudit.api.cli._common import console, fail
+
+if TYPE_CHECKING:
+    from beamaudit.model import BeamResult
+
+__all__ = ["register"]
+
+
+def _table(result: BeamResult) -> None:
+    from rich.table import Table
+
+    u = result.uncertainty
+    table = Table(title=f"Beam at {result.kv:g} kV", show_header=True, header_style="bold")
+    table.add_column("quantity")
+    table.add_column("value", justify="right")
+    table.add_column("std. uncertainty", justify="right")
+
+    def row(label: str, key: str, fmt: str) -> None:
+        value = getattr(result, key)
+        spread = u.get(key)
+        table.add_row(label, format(value, fmt), format(spread, fmt) if spread else "")
+
+    row("output at 1 m (µGy/mAs)", "output_ugy_per_mas_1m", ".1f")
+    row("first HVL (mm Al)", "hvl1_mm_al", ".2f")
+    row("second HVL (mm Al)", "hvl2_mm_al", ".2f")
+    row("homogeneity coefficient", "homogeneity", ".3f")
+    row("first HVL (mm Cu)", "hvl1_mm_cu", ".3f")
+    row("mean energy (keV)", "mean_energy_kev", ".1f")
+    row("effective energy (keV)", "effective_energy_kev", ".1f")
+    console.print(table)
+    from beamaudit.model.filtration import describe_filters
+
+    console.print(
+        f"tube: {result.anode} anode, {result.anode_angle_deg:g}°, ripple "
+        f"{result.ripple_percent:g} %; filtration: {describe_filters(result.filters)}"
+        f"{' (assumed)' if result.filtration_assumed else ''}",
+        highlight=False,
+    )
+    console.print(
+        "calibrated: yes" if result.calibrated else "calibrated: NO (default typical output)",
+        highlight=False,
+    )
+    for note in result.assumptions:
+        console.print(f"- {note}", highlight=False)
+    console.print(
+        "An estimate for quality assurance and optimisation, not a measurement.", highlight=False
+    )
+
+
+def _plot(result: BeamResult, path: Path) -> None:
+    import plotly.graph_objects as go
+
+    fig = go.Figure(
+        go.Scatter(
+            x=list(result.energies_kev),
+            y=list(result.fluence_per_mas_1m),
+            mode="lines",
+            line={"shape": "hvh"},
+            name="photon fluence",
+        )
+    )
+    fig.update_layout(
+        title=(
+            f"Spectrum at {result.kv:g} kV, HVL {result.hvl1_mm_al:.2f} mm Al"
+            f"{'' if result.calibrated else ' (uncalibrated)'}"
+        ),
+        xaxis_title="photon energy (keV)",
+        yaxis_title="photons per mm² per bin at 1 m per mAs",
+        template="simple_white",
+    )
+    try:
+        fig.write_html(str(path), include_plotlyjs=True, full_html=True)
+    except OSError as exc:
+        fail(f"cannot write {path}: {exc.strerror or exc}")
+
+
+def beam_command(
+    kv: Annotated[float, typer.Option("--kv", help="Peak tube voltage, kV.")],
+    filters: Annotated[
+        list[str] | None,
+        typer.Option(
+            "--filter",
+            help="One layer of the total filtration, THICKNESS_MM:MATERIAL (repeatable).",
+        ),
+    ] = None,
+    anode: Annotated[str, typer.Option("--anode", help="Anode material.")] = "W",
+    anode_angle: Annotated[
+        float, typer.Option("--anode-angle", help="Anode angle, degrees (6-22).")
+    ] = 12.0,
+    ripple: Annotated[
+        float, typer.Option("--ripple", help="Voltage ripple, percent (0 = constant potential).")
+    ] = 0.0,
+    as_json: Annotated[bool, typer.Option("--json", help="Print one JSON object.")] = False,
+    plot: Annotated[
+        Path | None,
+        typer.Option("--plot", help="Write the spectrum as a plotly HTML file.", dir_okay=False),
+    ] = None,
+) -> None:
+    """Output per mAs at 1 m, HVLs, energies and spectrum of one beam (model estimate)."""
+    from beamaudit.model import BeamSpec, ModelError, compute_beam, parse_filter
+
+    try:
+        layers = tuple(parse_filter(text) for text in filters) if filters else None
+        result = compute_beam(
+            BeamSpec(
+                kv=kv,
+                filters=layers,
+                anode=anode,
+                anode_angle_deg=anode_angle,
+                ripple_percent=ripple,
+            )
+        )
+    except ModelError as exc:
+        fail(str(exc))
+    if plot is not None:
+        _plot(result, plot)
+    if as_json:
+        typer.echo(json.dumps(result.as_dict()))
+    else:
+        _table(result)
+        if plot is not None:
+            console.print(f"spectrum written to {plot}", highlight=False)
+
+
+def register(app: typer.Typer) -> None:
+    """Add the ``beam`` command to ``app``."""
+    app.command("beam")(beam_command)
