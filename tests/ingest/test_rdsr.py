@@ -1,0 +1,249 @@
+"""Dose-report parsing on synthetic reports built to the PS3.16 templates.
+
+No Radiation Dose SR ships in any installed package (DICOM-NOTES section 4),
+so rdsr_builders.py writes them. Unit conversions checked: DAP Gy·m² ->
+Gy·cm² (x 1e4), Dose (RP) Gy -> mGy, Exposure µA·s -> mA·s, CT Exposure Time
+s -> ms (PS3.16 TID 10003B / 10013; SI prefixes).
+"""
+
+from __future__ import annotations
+
+import pytest
+import rdsr_builders
+from hypothesis import given, settings
+from hypothesis import strategies as st
+from ingest_samples import PSEUDONYMISER, to_bytes
+from pydicom.sr.coding import Code
+from pydicom.uid import generate_uid
+from rdsr_builders import (
+    DAP,
+    EVENT,
+    CtEvent,
+    FluoroEvent,
+    ct_report,
+    fluoroscopy_report,
+    radiography_report,
+)
+
+from beamaudit.ingest import FilterLayer, IngestError, read_bytes
+from beamaudit.ingest.rdsr import content_tree
+from beamaudit.ingest.sr_build import container
+
+
+def parse(ds):  # type: ignore[no-untyped-def]
+    return read_bytes(to_bytes(ds), pseudonymiser=PSEUDONYMISER, source="rdsr-test")
+
+
+def test_builder_concepts_are_ps3_16_codes() -> None:
+    # every concept the builders write exists in pydicom's PS3.16 code dictionary
+    import pydicom.sr._concepts_dict as concepts_dict
+
+    known = {
+        (code, scheme)
+        for scheme, by_keyword in concepts_dict.concepts.items()
+        for entries in by_keyword.values()
+        for code in entries
+    }
+    concepts = [v for k, v in vars(rdsr_builders).items() if k.isupper() and isinstance(v, tuple)]
+    for value, scheme, meaning in concepts:
+        if scheme == "SRT":
+            continue  # retired spellings, checked by test_codes
+        assert (value, scheme) in known, (value, scheme, meaning)
+
+
+def test_fluoroscopy_report_events_and_units() -> None:
+    result = parse(fluoroscopy_report())
+    assert result.source.kind == "rdsr"
+    assert len(result.events) == 3
+    first, second, acquisition = result.events
+    assert first.dap_gy_cm2 == 2.5  # 2.5e-4 Gy·m² x 1e4
+    assert first.reference_point_air_kerma_mgy == 12.0  # 0.012 Gy
+    assert first.event_type == "fluoroscopy"
+    assert first.fluoro_mode == "pulsed"
+    assert first.pulse_rate_per_s == 15.0
+    assert first.number_of_pulses == 450
+    assert first.irradiation_duration_s == 30.0
+    assert first.tube_current_ma == 11.5  # Average X-Ray Tube Current (113767)
+    assert first.kvp_kv == 78.0
+    assert second.kvp_kv == 82.0 and second.dap_gy_cm2 == 4.0
+    assert acquisition.event_type == "stationary"
+    assert acquisition.exposure_mas == 32.0  # 32000 µA·s
+    assert acquisition.exposure_time_ms == 80.0
+    assert acquisition.tube_current_ma == 400.0
+
+
+def test_fluoroscopy_report_filters_geometry_and_provenance() -> None:
+    event = parse(fluoroscopy_report()).events[0]
+    assert event.filters == (FilterLayer("copper", 0.3), FilterLayer("aluminium", 1.0))
+    assert event.filter_type == "flat"
+    assert event.anode_material == "tungsten"
+    assert event.grid == "focused"
+    assert event.field_area_cm2 == 400.0  # 0.04 m²
+    assert event.sid_mm == 1150.0 and event.source_to_isocenter_mm == 810.0
+    assert event.provenance["dap_gy_cm2"] == "(122130, DCM) Dose Area Product"
+    assert event.acquisition_device_type == "fluoroscopy_guided"
+    assert event.device_observer_uid == "1.2.826.0.1.3680043.10.1.7"
+    assert event.modality_family == "projection"
+
+
+def test_fluoroscopy_report_accumulated_dose() -> None:
+    (acc,) = parse(fluoroscopy_report()).accumulated
+    assert acc.acquisition_plane == "single"
+    assert acc.dap_total_gy_cm2 == 8.0
+    assert acc.fluoro_dap_total_gy_cm2 == 6.5
+    assert acc.acquisition_dap_total_gy_cm2 == 1.5
+    assert acc.reference_point_air_kerma_total_mgy == 40.0
+    assert acc.fluoro_time_total_s == 50.0
+    assert acc.number_of_radiographic_frames == 1
+    assert acc.number_of_events == 3
+
+
+def test_event_keys_are_irradiation_event_uids() -> None:
+    uids = [generate_uid() for _ in range(2)]
+    result = parse(fluoroscopy_report([FluoroEvent(uid=uids[0]), FluoroEvent(uid=uids[1])]))
+    assert [e.event_key for e in result.events] == uids
+    assert [e.event_index for e in result.events] == [0, 1]
+
+
+def test_ct_report_events_and_units() -> None:
+    result = parse(ct_report())
+    localizer, spiral = result.events
+    assert localizer.event_type == "ct_localizer"
+    assert localizer.ctdivol_mgy is None and localizer.dlp_mgy_cm is None  # no CT Dose container
+    assert spiral.event_type == "ct_spiral"
+    assert spiral.exposure_time_ms == 7500.0  # 7.5 s: CT events give seconds
+    assert spiral.ctdivol_mgy == 12.4
+    assert spiral.dlp_mgy_cm == 560.5
+    assert spiral.ct_phantom_diameter_cm == 32.0
+    assert spiral.kvp_kv == 120.0 and spiral.tube_current_ma == 210.0
+    assert spiral.ct_pitch_factor == 0.984
+    assert spiral.ct_scan_length_mm == 420.0
+    assert spiral.ct_total_collimation_mm == 40.0
+    assert spiral.modality == "CT" and spiral.modality_family == "ct"
+    (acc,) = result.accumulated
+    assert acc.dlp_total_mgy_cm == 560.5 and acc.number_of_events == 2
+    assert result.warnings == []
+
+
+def test_retired_snomed_rt_codes_match_their_current_equivalents() -> None:
+    current = parse(ct_report(srt_codes=False)).events[1]
+    legacy = parse(ct_report(srt_codes=True)).events[1]
+    assert legacy.event_type == current.event_type == "ct_spiral"
+    fluoro = parse(fluoroscopy_report(srt_codes=True)).events[0]
+    assert fluoro.event_type == "fluoroscopy"
+    assert fluoro.anode_material == "tungsten"
+    assert fluoro.filters[0] == FilterLayer("copper", 0.3)
+
+
+def test_dlp_total_disagreeing_with_events_is_a_warning() -> None:
+    result = parse(ct_report(dlp_total_mgy_cm=900.0))
+    assert any("differs from the sum" in w for w in result.warnings)
+
+
+def test_radiography_report_exposure_index() -> None:
+    (event,) = parse(radiography_report()).events
+    assert (event.exposure_index, event.target_exposure_index, event.deviation_index) == (
+        250.0,
+        400.0,
+        -2.0,
+    )
+    assert event.exposure_mas == 2.5 and event.dap_gy_cm2 == 0.11
+    assert event.body_part == "CHEST"
+
+
+def test_event_out_of_range_rejects_the_report_naming_the_event() -> None:
+    uid = generate_uid()
+    ds = fluoroscopy_report([FluoroEvent(), FluoroEvent(uid=uid, kvp_kv=175.0)])
+    with pytest.raises(
+        IngestError, match=rf"irradiation event 2 \({uid}\): \(113733, DCM\) KVP 175 kV"
+    ) as info:
+        parse(ds)
+    assert info.value.code == "out_of_range"
+
+
+def test_dap_unit_is_read_from_the_item() -> None:
+    ds = radiography_report()
+    tree = content_tree(ds)
+    event = next(c for c in tree.children if c.code == (EVENT[0], EVENT[1]))
+    dap_item = next(c for c in event.children if c.code == (DAP[0], DAP[1]))
+    units = dap_item.ds.MeasuredValueSequence[0].MeasurementUnitsCodeSequence[0]
+    dap_item.ds.MeasuredValueSequence[0].NumericValue = "1.1"
+    dap_item.ds.MeasuredValueSequence[0].FloatingPointValue = 1.1
+    units.CodeValue = "dGy.cm2"  # a writer using another unit of the same dimension
+    assert parse(ds).events[0].dap_gy_cm2 == pytest.approx(0.11)
+    units.CodeValue = "mGy"  # a unit of another dimension is refused
+    with pytest.raises(IngestError, match=r"cannot convert 'mGy' \(dose\) to 'Gy.cm2'"):
+        parse(ds)
+
+
+def test_report_without_events_is_a_broken_template() -> None:
+    from rdsr_builders import REPORT
+
+    from beamaudit.ingest.sr_build import build_sr_document
+
+    ds = build_sr_document(container(REPORT, [], relationship=None))
+    with pytest.raises(IngestError, match="holds no irradiation event") as info:
+        parse(ds)
+    assert info.value.code == "broken_template"
+
+
+def test_dose_sr_class_with_another_root_is_a_broken_template() -> None:
+    from beamaudit.ingest.sr_build import build_sr_document
+
+    ds = build_sr_document(
+        container(("126000", "DCM", "Imaging Measurement Report"), [], relationship=None)
+    )
+    with pytest.raises(IngestError, match=r"root content item is \(126000, DCM\)") as info:
+        parse(ds)
+    assert info.value.code == "broken_template"
+
+
+def test_comprehensive_sr_with_dose_report_root_is_accepted() -> None:
+    ds = ct_report()
+    ds.SOPClassUID = ds.file_meta.MediaStorageSOPClassUID = "1.2.840.10008.5.1.4.1.1.88.33"
+    assert len(parse(ds).events) == 2
+
+
+def test_comprehensive_sr_that_is_not_a_dose_report_is_unsupported() -> None:
+    from beamaudit.ingest.sr_build import build_sr_document
+
+    ds = build_sr_document(
+        container(("126000", "DCM", "Imaging Measurement Report"), [], relationship=None),
+        sop_class_uid="1.2.840.10008.5.1.4.1.1.88.33",
+    )
+    with pytest.raises(IngestError, match="not a dose report") as info:
+        parse(ds)
+    assert info.value.code == "unsupported_sop_class"
+
+
+def test_enhanced_xray_radiation_dose_sr_is_read_by_concept() -> None:
+    ds = fluoroscopy_report()
+    ds.SOPClassUID = ds.file_meta.MediaStorageSOPClassUID = "1.2.840.10008.5.1.4.1.1.88.76"
+    assert len(parse(ds).events) == 3
+
+
+def test_pydicom_code_equality_agrees_on_the_retired_codes_used() -> None:
+    # pydicom.sr.coding.Code equality maps SRT to SCT (DICOM-NOTES 2.9)
+    assert Code("P5-08001", "SRT", "x") == Code("116152004", "SCT", "y")
+    assert Code("P5-06000", "SRT", "x") == Code("44491008", "SCT", "y")
+
+
+@settings(max_examples=40, deadline=None)
+@given(
+    dap=st.floats(min_value=1e-9, max_value=1.0, allow_nan=False),
+    kvp=st.floats(min_value=20, max_value=150),
+)
+def test_dap_and_kvp_round_trip(dap: float, kvp: float) -> None:
+    ds = fluoroscopy_report([FluoroEvent(dap_gy_m2=dap, kvp_kv=kvp)])
+    (event,) = parse(ds).events
+    assert event.dap_gy_cm2 == pytest.approx(dap * 1e4, rel=1e-12)
+    assert event.kvp_kv == pytest.approx(kvp, rel=1e-12)
+
+
+@settings(max_examples=25, deadline=None)
+@given(n=st.integers(min_value=1, max_value=12))
+def test_number_of_ct_events_is_preserved(n: int) -> None:
+    events = [CtEvent(ctdivol_mgy=float(i + 1), dlp_mgy_cm=10.0 * (i + 1)) for i in range(n)]
+    result = parse(ct_report(events))
+    assert [e.ctdivol_mgy for e in result.events] == [float(i + 1) for i in range(n)]
+    assert result.accumulated[0].number_of_events == n
