@@ -61,6 +61,8 @@ _EVENT_COLUMNS = tuple(
     and name not in {"event_key", "source_kind", "event_index", "filters", "provenance", "notes"}
 )
 
+_RECEPTOR_FIELDS = ("collimator_edges_px", "imager_pixel_spacing_mm", "detector_dimensions_mm")
+
 StoreStatus = Literal["stored", "duplicate", "conflict"]
 
 
@@ -254,6 +256,12 @@ class Pipeline:
                 source_kind=event.source_kind,
                 event_index=event.event_index,
                 filters=[{"material": f.material, "thickness_mm": f.thickness_mm} for f in event.filters]
+                or None,
+                receptor_geometry={
+                    name: list(getattr(event, name))
+                    for name in _RECEPTOR_FIELDS
+                    if getattr(event, name) is not None
+                }
                 or None,
                 provenance=dict(event.provenance),
                 notes=list(event.notes) + list(result.warnings if event.event_index == 0 else []),

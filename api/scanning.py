@@ -9,6 +9,7 @@ and reason, and the scan goes on.
 from __future__ import annotations
 
 import os
+import warnings
 from collections import Counter
 from collections.abc import Callable, Iterable, Iterator, Sequence
 from concurrent.futures import ProcessPoolExecutor
@@ -62,25 +63,21 @@ def _init_worker(key: bytes) -> None:
 
 def _parse_one(path_text: str) -> tuple[str, str, ParseResult | IngestError | None]:
     """``(path, kind, result)`` where kind is ``dicom``, ``dicomdir`` or ``error``."""
-    from beamaudit.ingest.folder import classify
-    from beamaudit.ingest.reader import read_file
+    from beamaudit.ingest.folder import scan
 
-    path = Path(path_text)
-    try:
-        kind = classify(path)
-        if kind == "dicomdir":
-            return path_text, "dicomdir", None
-        if kind == "not_dicom":
-            return (
-                path_text,
-                "error",
-                IngestError("not_dicom", "not a DICOM file (no DICM marker, no DICOM elements)", path_text),
-            )
-        return path_text, "dicom", read_file(path, pseudonymiser=_worker_pseudonymiser)
-    except IngestError as exc:
-        return path_text, "error", exc.with_source(path_text)
-    except OSError as exc:
-        return path_text, "error", IngestError("unreadable", f"cannot read the file: {exc.strerror or exc}", path_text)
+    with warnings.catch_warnings(record=True) as caught:
+        warnings.simplefilter("always")
+        outcome = next(scan([path_text], pseudonymiser=_worker_pseudonymiser))
+    if outcome.result is not None and caught:
+        # pydicom's warnings about tolerated deviations become notes on the object
+        outcome.result.warnings.extend(
+            f"while reading: {w.message}" for w in caught if issubclass(w.category, UserWarning)
+        )
+    if outcome.skipped:
+        return path_text, "dicomdir", None
+    if outcome.error is not None:
+        return path_text, "error", outcome.error
+    return path_text, "dicom", outcome.result
 
 
 def _parsed(

@@ -118,6 +118,7 @@ class RoomCalibrationRow(Base):
     room_id: Mapped[int] = mapped_column(ForeignKey("rooms.id"), index=True)
     created_at: Mapped[datetime] = mapped_column(UTCDateTime(), default=utcnow)
     output_scale: Mapped[float] = mapped_column(Float)
+    output_scale_uncertainty_rel: Mapped[float | None] = mapped_column(Float)
     inherent_filtration_mm_al: Mapped[float | None] = mapped_column(Float)
     residuals: Mapped[list[dict[str, Any]]] = mapped_column(JSONValue, default=list)
     n_measurements: Mapped[int] = mapped_column(Integer)
@@ -180,6 +181,8 @@ class ExposureEventRow(Base):
     #: true when a dose report of the same study carries this exposure (never counted twice)
     superseded: Mapped[bool] = mapped_column(Boolean, default=False)
     filters: Mapped[list[dict[str, Any]] | None] = mapped_column(JSONValue)
+    #: collimator_edges_px, imager_pixel_spacing_mm, detector_dimensions_mm as recorded
+    receptor_geometry: Mapped[dict[str, list[float]] | None] = mapped_column(JSONValue)
     irradiation_event_uid: Mapped[str | None] = mapped_column(String)
     modality: Mapped[str | None] = mapped_column(String)
     modality_family: Mapped[str | None] = mapped_column(String)

@@ -2,7 +2,7 @@
 
 Revision ID: 0001
 Revises:
-Create Date: 2026-12-01 22:22:43.113444
+Create Date: 2026-12-01 22:34:06.696328
 """
 
 from __future__ import annotations
@@ -337,6 +337,7 @@ def upgrade() -> None:
             "created_at", beamaudit.api.store.base.UTCDateTime(timezone=True), nullable=False
         ),
         sa.Column("output_scale", sa.Float(), nullable=False),
+        sa.Column("output_scale_uncertainty_rel", sa.Float(), nullable=True),
         sa.Column("inherent_filtration_mm_al", sa.Float(), nullable=True),
         sa.Column("residuals", sa.JSON().with_variant(sa.JSON(), "sqlite"), nullable=False),
         sa.Column("n_measurements", sa.Integer(), nullable=False),
@@ -362,6 +363,7 @@ def upgrade() -> None:
         sa.Column("exam_type", sa.String(), nullable=True),
         sa.Column("superseded", sa.Boolean(), nullable=False),
         sa.Column("filters", sa.JSON().with_variant(sa.JSON(), "sqlite"), nullable=True),
+        sa.Column("receptor_geometry", sa.JSON().with_variant(sa.JSON(), "sqlite"), nullable=True),
         sa.Column("irradiation_event_uid", sa.String(), nullable=True),
         sa.Column("modality", sa.String(), nullable=True),
         sa.Column("modality_family", sa.String(), nullable=True),
