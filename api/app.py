@@ -5,11 +5,13 @@ Build it with :func:`create_app`; nothing happens at import time.
 
 from __future__ import annotations
 
+import logging
 from typing import Any
 
-from fastapi import FastAPI
+from fastapi import FastAPI, Request
 from fastapi.responses import JSONResponse
 from sqlalchemy.engine import Engine
+from sqlalchemy.exc import OperationalError
 
 from beamaudit import __version__
 from beamaudit.api.settings import Settings
@@ -24,6 +26,22 @@ CAUTION = (
 )
 
 API_PREFIX = "/api/v1"
+
+log = logging.getLogger(__name__)
+
+
+async def _unexpected_error(request: Request, exc: Exception) -> JSONResponse:
+    """The last resort: log the traceback for the operator, never show it to the client."""
+    log.error("unexpected error answering %s %s", request.method, request.url.path, exc_info=exc)
+    return JSONResponse(
+        {"detail": "internal error; the server log has the details"}, status_code=500
+    )
+
+
+async def _database_unavailable(request: Request, exc: Exception) -> JSONResponse:
+    """The database cannot be reached (or went away mid-request): 503, try again later."""
+    log.error("database error answering %s %s: %s", request.method, request.url.path, exc)
+    return JSONResponse({"detail": "the database is unavailable; try again later"}, status_code=503)
 
 
 def create_app(settings: Settings, *, engine: Engine | None = None) -> FastAPI:
@@ -65,4 +83,14 @@ def create_app(settings: Settings, *, engine: Engine | None = None) -> FastAPI:
             return JSONResponse(body, status_code=503)
         return body
 
+    from beamaudit.api.routes import api_router
+    from beamaudit.api.routes._openapi import customise_openapi
+
+    app.include_router(api_router(), prefix=API_PREFIX)
+    # -- dashboard pages (beamaudit.api.pages, written by the lead) go here:
+    # from beamaudit.api.pages import router as pages_router
+    # app.include_router(pages_router)
+    app.add_exception_handler(OperationalError, _database_unavailable)
+    app.add_exception_handler(Exception, _unexpected_error)
+    customise_openapi(app)
     return app
