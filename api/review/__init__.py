@@ -1,0 +1,76 @@
+"""Reviews of patient doses against diagnostic reference levels: the computational core.
+
+Pure functions over pandas DataFrames, no database. The pieces:
+
+* :mod:`.examtypes`: the exam-type catalogue and the rules that map raw header values to it;
+* :mod:`.levels`: local and national reference-level sets, versioned, with their CSV files;
+* :mod:`.stats`: group statistics, the confidence interval of the median, ICRP 135 minimum samples;
+* :mod:`.changepoint`: CUSUM change-points in monthly series;
+* :mod:`.flags`: the flags, each with its reason and numbers;
+* :mod:`.events`: the events table contract and the examination values derived from it;
+* :mod:`.run`: :func:`review`, its parameters and its reproducible result.
+
+Every figure is an estimate for quality assurance and optimisation; clinical decisions need a
+qualified medical physicist, and local regulations take precedence.
+"""
+
+from beamaudit.api.review.errors import CsvFormatError, ReviewError, ReviewInputError
+from beamaudit.api.review.examtypes import (
+    ExamCatalogue,
+    ExamType,
+    MappingRule,
+    MappingRules,
+    load_default_catalogue,
+    load_default_rules,
+    map_events,
+    match_rules,
+    read_catalogue_csv,
+    read_rules_csv,
+    unmapped_summary,
+    write_catalogue_csv,
+    write_rules_csv,
+)
+from beamaudit.api.review.flags import Flag
+from beamaudit.api.review.levels import (
+    AppliedLevel,
+    LevelEntry,
+    ReferenceLevelSet,
+    applicable_levels,
+    load_demo_local_levels,
+    load_national_levels,
+    read_levels_csv,
+    write_levels_csv,
+)
+from beamaudit.api.review.run import Period, ReviewParameters, ReviewResult, review
+
+__all__ = [
+    "AppliedLevel",
+    "CsvFormatError",
+    "ExamCatalogue",
+    "ExamType",
+    "Flag",
+    "LevelEntry",
+    "MappingRule",
+    "MappingRules",
+    "Period",
+    "ReferenceLevelSet",
+    "ReviewError",
+    "ReviewInputError",
+    "ReviewParameters",
+    "ReviewResult",
+    "applicable_levels",
+    "load_default_catalogue",
+    "load_default_rules",
+    "load_demo_local_levels",
+    "load_national_levels",
+    "map_events",
+    "match_rules",
+    "read_catalogue_csv",
+    "read_levels_csv",
+    "read_rules_csv",
+    "review",
+    "unmapped_summary",
+    "write_catalogue_csv",
+    "write_levels_csv",
+    "write_rules_csv",
+]
