@@ -280,7 +280,7 @@ def fluoroscopy_report(
         ],
         relationship=None,
     )
-    return build_sr_document(root, study_instance_uid=study_uid, **document)  # type: ignore[arg-type]
+    return build_sr_document(root, study_instance_uid=study_uid, **document)
 
 
 def radiography_report(*, study_uid: str | None = None, event_uid: str | None = None,
@@ -314,7 +314,7 @@ def radiography_report(*, study_uid: str | None = None, event_uid: str | None = 
          accumulated, event, code_item(SOURCE_OF_DOSE, AUTOMATED)],
         relationship=None,
     )  # fmt: skip
-    return build_sr_document(root, study_instance_uid=study_uid, **document)  # type: ignore[arg-type]
+    return build_sr_document(root, study_instance_uid=study_uid, **document)
 
 
 @dataclass
@@ -403,4 +403,4 @@ def ct_report(
         relationship=None,
     )  # fmt: skip
     document.setdefault("station_name", "CT-1")
-    return build_sr_document(root, study_instance_uid=study_uid, **document)  # type: ignore[arg-type]
+    return build_sr_document(root, study_instance_uid=study_uid, **document)

@@ -67,7 +67,8 @@ def test_ct_small_provenance_names_the_tags() -> None:
 
 
 def test_bad_sequence_ctdivol_is_read_as_is() -> None:
-    # DICOM-NOTES 4: KVP 120, mA 442, ExposureTime 1000, Exposure 442, CTDIvol 29.769628200000003 (FD)
+    # DICOM-NOTES 4: KVP 120, mA 442, ExposureTime 1000, Exposure 442,
+    # CTDIvol 29.769628200000003 (FD)
     event = one_event(sample("bad_sequence.dcm"))
     assert event.kvp_kv == 120.0
     assert event.tube_current_ma == 442.0
@@ -123,7 +124,9 @@ def test_ct_images_of_one_acquisition_share_an_acquisition_key() -> None:
     events = [one_event(str(p)) for p in paths]
     numbers = [int(dcmread(p, stop_before_pixels=True).AcquisitionNumber) for p in paths]
     assert len(set(numbers)) < len(numbers)  # the sample has two images of one acquisition
-    for (event_a, number_a), (event_b, number_b) in itertools.combinations(zip(events, numbers), 2):
+    for (event_a, number_a), (event_b, number_b) in itertools.combinations(
+        zip(events, numbers, strict=True), 2
+    ):
         assert (event_a.acquisition_key == event_b.acquisition_key) == (number_a == number_b)
     assert len({e.event_key for e in events}) == len(events)  # one event per image
     assert {e.kvp_kv for e in events} == {140.0}
@@ -313,7 +316,7 @@ def test_read_dataset_without_file_meta() -> None:
 
 @settings(max_examples=60, deadline=None)
 @given(kvp=st.decimals(min_value=20, max_value=150, places=2))
-def test_kvp_inside_range_reads_back_exactly(kvp) -> None:  # type: ignore[no-untyped-def]
+def test_kvp_inside_range_reads_back_exactly(kvp) -> None:
     text = format(kvp, "f")
     event = parse(header(KVP=text)).events[0]
     assert event.kvp_kv == float(text)
@@ -333,7 +336,7 @@ def test_kvp_outside_range_is_always_rejected(kvp: float) -> None:
 
 @settings(max_examples=60, deadline=None)
 @given(dap=st.decimals(min_value=0, max_value=99999, places=3))
-def test_dap_header_value_is_one_tenth_in_gy_cm2(dap) -> None:  # type: ignore[no-untyped-def]
+def test_dap_header_value_is_one_tenth_in_gy_cm2(dap) -> None:
     # 1 dGy·cm² = 0.1 Gy·cm² (SI prefixes)
     event = parse(header(ImageAndFluoroscopyAreaDoseProduct=format(dap, "f"))).events[0]
     assert event.dap_gy_cm2 == pytest.approx(float(dap) / 10, rel=1e-12, abs=1e-15)

@@ -8,13 +8,15 @@ s -> ms (PS3.16 TID 10003B / 10013; SI prefixes).
 
 from __future__ import annotations
 
+from typing import Any
+
 import pytest
 import rdsr_builders
 from hypothesis import given, settings
 from hypothesis import strategies as st
 from ingest_samples import PSEUDONYMISER, to_bytes
 from pydicom.sr.coding import Code
-from pydicom.uid import generate_uid
+from pydicom.uid import UID, generate_uid
 from rdsr_builders import (
     DAP,
     EVENT,
@@ -30,7 +32,7 @@ from beamaudit.ingest.rdsr import content_tree
 from beamaudit.ingest.sr_build import container
 
 
-def parse(ds):  # type: ignore[no-untyped-def]
+def parse(ds):
     return read_bytes(to_bytes(ds), pseudonymiser=PSEUDONYMISER, source="rdsr-test")
 
 
@@ -38,9 +40,10 @@ def test_builder_concepts_are_ps3_16_codes() -> None:
     # every concept the builders write exists in pydicom's PS3.16 code dictionary
     import pydicom.sr._concepts_dict as concepts_dict
 
+    all_concepts: dict[str, Any] = concepts_dict.concepts
     known = {
         (code, scheme)
-        for scheme, by_keyword in concepts_dict.concepts.items()
+        for scheme, by_keyword in all_concepts.items()
         for entries in by_keyword.values()
         for code in entries
     }
@@ -200,7 +203,7 @@ def test_dose_sr_class_with_another_root_is_a_broken_template() -> None:
 
 def test_comprehensive_sr_with_dose_report_root_is_accepted() -> None:
     ds = ct_report()
-    ds.SOPClassUID = ds.file_meta.MediaStorageSOPClassUID = "1.2.840.10008.5.1.4.1.1.88.33"
+    ds.SOPClassUID = ds.file_meta.MediaStorageSOPClassUID = UID("1.2.840.10008.5.1.4.1.1.88.33")
     assert len(parse(ds).events) == 2
 
 
@@ -218,7 +221,7 @@ def test_comprehensive_sr_that_is_not_a_dose_report_is_unsupported() -> None:
 
 def test_enhanced_xray_radiation_dose_sr_is_read_by_concept() -> None:
     ds = fluoroscopy_report()
-    ds.SOPClassUID = ds.file_meta.MediaStorageSOPClassUID = "1.2.840.10008.5.1.4.1.1.88.76"
+    ds.SOPClassUID = ds.file_meta.MediaStorageSOPClassUID = UID("1.2.840.10008.5.1.4.1.1.88.76")
     assert len(parse(ds).events) == 3
 
 
