@@ -1,0 +1,317 @@
+"""The events table a review reads, its checks, and the tables derived from it.
+
+Input table contract
+--------------------
+One row per irradiation event (DICOM PS3.16: one continuous irradiation), with these columns
+(extra columns are ignored):
+
+=========================  ============  ==========================================================
+column                     type          content
+=========================  ============  ==========================================================
+event_id                   int           unique per event
+study_uid                  str           Study Instance UID (the examination); never missing
+event_datetime             datetime64    UTC; naive values are taken as UTC, aware ones converted
+site, room, device         str or None   where the event happened
+modality                   str or None   DICOM modality: CR, DX, MG, RF, XA, CT
+exam_type                  str or None   catalogue exam type; None = not mapped
+patient_weight_kg          float         NaN when not recorded
+study_description,         str or None   raw header values (for mapping and the unmapped list)
+series_description,
+protocol_name, body_part,
+view_position
+dap_gy_cm2                 float         reported air kerma-area product
+recon_dap_gy_cm2           float         DAP reconstructed by the beam model
+esak_mgy                   float         entrance surface air kerma
+ref_point_air_kerma_mgy    float         K_a,r
+ctdivol_mgy, dlp_mgy_cm    float         CT dose indices
+agd_mgy                    float         mean glandular dose
+deviation_index            float         IEC 62494-1 DI
+fluoro_time_s              float         fluoroscopy time of the event
+=========================  ============  ==========================================================
+
+All float columns are NaN when absent. Doses, DAP, times and weights must not be negative (a
+negative value is rejected, never clamped).
+
+Units of analysis
+-----------------
+For an exam type whose level applies **per projection** every event is one examination value. For
+one that applies **per examination** the events of a study with that exam type are aggregated into
+one value per quantity, by :data:`~beamaudit.api.review.examtypes.DEFAULT_AGGREGATION` or the
+catalogue's override (DAP, DLP, K_a,r summed; CTDIvol and ESAK the largest), with the study's
+first event giving its time, site, room and device, and its first recorded weight the weight.
+"""
+
+from __future__ import annotations
+
+from collections.abc import Sequence
+
+import numpy as np
+import pandas as pd
+
+from beamaudit.api.review.errors import ReviewInputError
+from beamaudit.api.review.examtypes import ExamCatalogue
+from beamaudit.api.review.quantities import QUANTITIES
+
+__all__ = [
+    "DOSE_COLUMNS",
+    "EVENT_COLUMNS",
+    "FLOAT_COLUMNS",
+    "KEY_COLUMNS",
+    "TEXT_COLUMNS",
+    "UNIT_COLUMNS",
+    "build_units",
+    "group_codes",
+    "month_labels",
+    "prepare_events",
+    "study_table",
+]
+
+TEXT_COLUMNS = (
+    "study_uid",
+    "site",
+    "room",
+    "device",
+    "modality",
+    "exam_type",
+    "study_description",
+    "series_description",
+    "protocol_name",
+    "body_part",
+    "view_position",
+)
+#: Text columns stored as categoricals by :func:`prepare_events` (they are grouped on).
+KEY_COLUMNS = ("study_uid", "site", "room", "device", "modality", "exam_type")
+#: Every column that carries a dose value (for "no dose data at all").
+DOSE_COLUMNS = (
+    "dap_gy_cm2",
+    "recon_dap_gy_cm2",
+    "esak_mgy",
+    "ref_point_air_kerma_mgy",
+    "ctdivol_mgy",
+    "dlp_mgy_cm",
+    "agd_mgy",
+)
+FLOAT_COLUMNS = ("patient_weight_kg", *DOSE_COLUMNS, "deviation_index", "fluoro_time_s")
+_NON_NEGATIVE = (*DOSE_COLUMNS, "fluoro_time_s")
+EVENT_COLUMNS = ("event_id", "event_datetime", *TEXT_COLUMNS, *FLOAT_COLUMNS)
+_LOCATION = ("site", "room", "device")
+
+#: Columns of :func:`build_units` (one row per examination value).
+UNIT_COLUMNS = (
+    "unit_kind",
+    "event_id",
+    "study_uid",
+    "site",
+    "room",
+    "device",
+    "exam_type",
+    "month_key",
+    "patient_weight_kg",
+    "quantity",
+    "value",
+)
+
+_SHOWN_IDS = 5
+
+
+def _bad_ids(frame: pd.DataFrame, mask: np.ndarray) -> str:
+    ids = frame.loc[mask, "event_id"].head(_SHOWN_IDS).tolist()
+    more = int(mask.sum()) - len(ids)
+    return ", ".join(str(i) for i in ids) + (f" and {more} more" if more > 0 else "")
+
+
+def prepare_events(events: pd.DataFrame) -> pd.DataFrame:
+    """Check ``events`` against the contract and return a typed copy sorted by ``event_id``.
+
+    Text columns become ``object`` with ``None`` for missing (the :data:`KEY_COLUMNS` become
+    categoricals, so that grouping on them is fast), float columns ``float64``,
+    ``event_datetime`` naive UTC ``datetime64[ns]``, plus an integer ``month_key``
+    (``year * 12 + month - 1``). Sorting by ``event_id`` makes every later step independent of the
+    order rows arrive in, so the same events always give the same review.
+
+    Raises
+    ------
+    ReviewInputError
+        Missing columns, missing or repeated event ids, missing study UIDs or times, non-numeric
+        or negative values (naming up to five offending event ids).
+    """
+    missing = [c for c in EVENT_COLUMNS if c not in events.columns]
+    if missing:
+        raise ReviewInputError(f"the events table lacks the column(s) {', '.join(missing)}")
+    out = pd.DataFrame(index=pd.RangeIndex(len(events)))
+    ids = pd.to_numeric(events["event_id"].reset_index(drop=True), errors="coerce")
+    if ids.isna().any() or (len(ids) and not np.all(np.mod(ids.to_numpy(dtype=float), 1) == 0)):
+        raise ReviewInputError("event_id must be an integer on every row")
+    out["event_id"] = ids.astype(np.int64)
+    if out["event_id"].duplicated().any():
+        dup = out["event_id"][out["event_id"].duplicated()].head(_SHOWN_IDS).tolist()
+        raise ReviewInputError(f"event_id must be unique; repeated: {dup}")
+    try:
+        when = pd.to_datetime(events["event_datetime"].reset_index(drop=True), utc=True)
+    except (ValueError, TypeError) as exc:
+        raise ReviewInputError(f"event_datetime is not a date-time column: {exc}") from exc
+    out["event_datetime"] = when.dt.tz_localize(None).astype("datetime64[ns]")
+    if out["event_datetime"].isna().any():
+        raise ReviewInputError(
+            "event_datetime is missing for event(s) "
+            + _bad_ids(out, out["event_datetime"].isna().to_numpy())
+        )
+    for c in TEXT_COLUMNS:
+        col = events[c].reset_index(drop=True).astype(object)
+        col = col.where(col.notna(), None)
+        # the key columns become categorical: factorised once here, not at every grouping
+        out[c] = pd.Categorical(col) if c in KEY_COLUMNS else col
+    if out["study_uid"].isna().any():
+        raise ReviewInputError(
+            "study_uid is missing for event(s) " + _bad_ids(out, out["study_uid"].isna().to_numpy())
+        )
+    for c in FLOAT_COLUMNS:
+        try:
+            out[c] = pd.to_numeric(events[c].reset_index(drop=True), errors="raise").astype(
+                np.float64
+            )
+        except (ValueError, TypeError) as exc:
+            raise ReviewInputError(f"{c} must be numeric (NaN when absent): {exc}") from exc
+        values = out[c].to_numpy()
+        if np.isinf(values).any():
+            raise ReviewInputError(
+                f"{c} is infinite for event(s) {_bad_ids(out, np.isinf(values))}"
+            )
+    for c in _NON_NEGATIVE:
+        bad = out[c].to_numpy() < 0
+        if bad.any():
+            raise ReviewInputError(f"{c} is negative for event(s) {_bad_ids(out, bad)}")
+    bad = out["patient_weight_kg"].to_numpy() <= 0
+    if bad.any():
+        raise ReviewInputError(
+            f"patient_weight_kg is not positive for event(s) {_bad_ids(out, bad)}"
+        )
+    dt = out["event_datetime"].dt
+    out["month_key"] = (dt.year * 12 + dt.month - 1).astype(np.int64)
+    return out.sort_values("event_id", kind="mergesort").reset_index(drop=True)
+
+
+def group_codes(frame: pd.DataFrame, keys: Sequence[str]) -> tuple[np.ndarray, pd.DataFrame]:
+    """Group code of each row of ``frame`` by ``keys``, and the table of distinct keys.
+
+    The equivalent of ``frame.groupby(keys, sort=True, dropna=False).ngroup()`` and its group
+    index, computed by factorising each key column once and combining the integer codes, which is
+    several times faster on a million rows of text keys. Groups are numbered in the sorted order of
+    their keys (missing values last), so the numbering depends on the data only, not on row order.
+    """
+    n = len(frame)
+    key = np.zeros(n, dtype=np.int64)
+    for column in keys:
+        codes, uniques = pd.factorize(frame[column], use_na_sentinel=True)
+        key = key * (len(uniques) + 1) + (codes.astype(np.int64) + 1)
+        key = pd.factorize(key)[0].astype(np.int64)
+    if n == 0:
+        empty = pd.DataFrame({c: pd.Series([], dtype=object) for c in keys})
+        return np.zeros(0, dtype=np.int64), empty
+    _, first, inverse = np.unique(key, return_index=True, return_inverse=True)
+    table = frame.loc[:, list(keys)].iloc[first].reset_index(drop=True)
+    order = table.sort_values(list(keys), na_position="last", kind="mergesort").index.to_numpy()
+    rank = np.empty_like(order)
+    rank[order] = np.arange(len(order))
+    table = table.iloc[order].reset_index(drop=True)
+    for column in keys:  # the small key table in plain objects, None for missing
+        values = table[column].astype(object)
+        table[column] = values.where(values.notna(), None)
+    return rank[inverse.reshape(-1)].astype(np.int64), table
+
+
+def month_labels(month_keys: pd.Series | np.ndarray) -> np.ndarray:
+    """``YYYY-MM`` labels of integer month keys (``year * 12 + month - 1``)."""
+    keys = np.asarray(month_keys, dtype=np.int64)
+    uniques, inverse = np.unique(keys, return_inverse=True)
+    labels = np.array([f"{k // 12:04d}-{k % 12 + 1:02d}" for k in uniques], dtype=object)
+    return labels[inverse]
+
+
+def build_units(events: pd.DataFrame, catalogue: ExamCatalogue) -> pd.DataFrame:
+    """One row per examination value: the events (or study aggregates) of each reviewed quantity.
+
+    Parameters
+    ----------
+    events : DataFrame
+        Prepared events (:func:`prepare_events`) whose ``exam_type`` is in ``catalogue``.
+    catalogue : ExamCatalogue
+        Says per exam type whether its level applies per projection or per examination, its
+        quantities and the study aggregation.
+
+    Returns
+    -------
+    DataFrame
+        Columns :data:`UNIT_COLUMNS`; ``unit_kind`` is ``"event"`` (``event_id`` set) or
+        ``"study"`` (``event_id`` NA). Values that are NaN are left out.
+    """
+    per_study = {t.exam_type for t in catalogue if t.level_applies_per == "examination"}
+    is_study = events["exam_type"].isin(list(per_study)).to_numpy()
+    quantity_columns = list(QUANTITIES)
+    base = ["study_uid", *_LOCATION, "exam_type", "month_key", "patient_weight_kg"]
+
+    projections = events.loc[~is_study, ["event_id", *base, *quantity_columns]].copy()
+    projections.insert(0, "unit_kind", "event")
+    projections["event_id"] = projections["event_id"].astype("Int64")
+
+    exams = events.loc[is_study]
+    codes, studies = group_codes(exams, ["study_uid", "exam_type"])
+    grouped = exams.groupby(codes, sort=True)
+    # groupby().first() skips missing values: the location comes from the first event that has it
+    firsts = grouped[[*_LOCATION, "month_key", "patient_weight_kg"]].first()
+    for c in firsts.columns:
+        studies[c] = firsts[c].to_numpy()
+    sums = grouped[quantity_columns].sum(min_count=1)
+    maxima = grouped[quantity_columns].max()
+    means = grouped[quantity_columns].mean()
+    exam_codes, exam_names = pd.factorize(studies["exam_type"])
+    for q in quantity_columns:
+        rules = np.array([_aggregation(catalogue, e, q) for e in exam_names], dtype=object)
+        rule_of_row = rules[exam_codes] if len(exam_codes) else np.zeros(0, dtype=object)
+        studies[q] = np.select(
+            [rule_of_row == "sum", rule_of_row == "max"],
+            [sums[q].to_numpy(), maxima[q].to_numpy()],
+            default=means[q].to_numpy(),
+        )
+    for c in ("study_uid", *_LOCATION, "exam_type"):
+        if isinstance(events[c].dtype, pd.CategoricalDtype):  # keep the events' categories
+            studies[c] = pd.Categorical(studies[c], dtype=events[c].dtype)
+    studies.insert(0, "unit_kind", "study")
+    studies.insert(1, "event_id", pd.array([pd.NA] * len(studies), dtype="Int64"))
+
+    wide = pd.concat([projections, studies[projections.columns]], ignore_index=True)
+    parts = []
+    for q in quantity_columns:
+        with_q = [t.exam_type for t in catalogue if q in t.quantities]
+        rows = wide["exam_type"].isin(with_q).to_numpy() & wide[q].notna().to_numpy()
+        part = wide.loc[rows, ["unit_kind", "event_id", *base]].copy()
+        part["quantity"] = q
+        part["value"] = wide.loc[rows, q].to_numpy(dtype=np.float64)
+        parts.append(part)
+    units = pd.concat(parts, ignore_index=True) if parts else pd.DataFrame(columns=UNIT_COLUMNS)
+    return units.loc[:, list(UNIT_COLUMNS)]
+
+
+def _aggregation(catalogue: ExamCatalogue, exam_type: str, quantity: str) -> str:
+    exam = catalogue.get(exam_type)
+    if exam is None:
+        raise ReviewInputError(f"exam type {exam_type!r} is not in the catalogue")
+    return exam.aggregation_for(quantity)
+
+
+def study_table(events: pd.DataFrame, total_columns: Sequence[str]) -> pd.DataFrame:
+    """One row per study: location, modality and exam type of its first event that has them,
+    ``n_events``, ``has_dose`` (any dose value on any event) and the totals of ``total_columns``
+    (NaN when no event records them)."""
+    codes, out = group_codes(events, ["study_uid"])
+    grouped = events.groupby(codes, sort=True)
+    firsts = grouped[[*_LOCATION, "modality", "exam_type"]].first()
+    for c in firsts.columns:
+        out[c] = firsts[c].to_numpy()
+    out["n_events"] = grouped.size().to_numpy()
+    has_dose = events.loc[:, list(DOSE_COLUMNS)].notna().any(axis=1)
+    out["has_dose"] = has_dose.groupby(codes, sort=True).any().to_numpy(dtype=bool)
+    totals = grouped[list(total_columns)].sum(min_count=1)
+    for c in total_columns:
+        out[c] = totals[c].to_numpy()
+    return out

@@ -1,0 +1,756 @@
+"""Flags of a review: what needs attention, each with its reason and the numbers behind it.
+
+Each flag kind has its own function taking a plain table (documented per function) and returning a
+list of :class:`Flag`. The functions are vectorised: the table is filtered with array operations and
+a :class:`Flag` is built only for the rows that are flagged.
+
+Kinds, in the order results list them:
+
+=================================  ========  =======================================================
+kind                               severity  fires when
+=================================  ========  =======================================================
+``group_above_level``              action /  a group's median is above a local or national level:
+                                   warning   ``action`` if the confidence interval's lower bound is
+                                             above it, ``warning`` if the interval includes it
+``exam_above_investigation_level`` warning   one examination above ``multiple`` x the strictest
+                                             applicable level, or above its group's upper percentile
+``srdl_exceeded``                  action    a fluoroscopy study above an NCRP 168 substantial
+                                             radiation dose level
+``dap_ratio_out_of_tolerance``     warning   a room's monthly median of reported / reconstructed
+                                             DAP is outside 1 +/- tolerance (a meter or
+                                             configuration fault)
+``changepoint``                    warning   a CUSUM change in a room's monthly median or DAP ratio
+``deviation_index_out_of_range``   warning   an exposure's deviation index outside the range
+``no_dose_data``                   warning   a study whose events carry no dose value at all
+``unknown_exam_type``              warning   events carry an exam type the catalogue does not know
+``unmapped_events``                info      events that map to no exam type (listed for mapping)
+=================================  ========  =======================================================
+"""
+
+from __future__ import annotations
+
+import math
+from collections.abc import Mapping, Sequence
+from dataclasses import dataclass, field
+from types import MappingProxyType
+from typing import Any, Literal
+
+import numpy as np
+import pandas as pd
+
+from beamaudit.api.review.changepoint import cusum
+from beamaudit.api.review.events import group_codes
+from beamaudit.api.review.quantities import QUANTITIES
+
+__all__ = [
+    "DAP_RATIO_QUANTITY",
+    "FLAG_KINDS",
+    "NCRP168_SRDL",
+    "TG116_DI_RANGE",
+    "Flag",
+    "changepoints",
+    "dap_ratio_out_of_tolerance",
+    "deviation_index_out_of_range",
+    "exams_above_investigation_level",
+    "groups_above_level",
+    "no_dose_data",
+    "sort_flags",
+    "srdl_exceeded",
+    "unknown_exam_types",
+    "unmapped_events",
+]
+
+FlagKind = Literal[
+    "group_above_level",
+    "exam_above_investigation_level",
+    "srdl_exceeded",
+    "dap_ratio_out_of_tolerance",
+    "changepoint",
+    "deviation_index_out_of_range",
+    "no_dose_data",
+    "unknown_exam_type",
+    "unmapped_events",
+]
+FLAG_KINDS: tuple[FlagKind, ...] = (
+    "group_above_level",
+    "exam_above_investigation_level",
+    "srdl_exceeded",
+    "dap_ratio_out_of_tolerance",
+    "changepoint",
+    "deviation_index_out_of_range",
+    "no_dose_data",
+    "unknown_exam_type",
+    "unmapped_events",
+)
+Severity = Literal["action", "warning", "info"]
+
+#: Name of the reported / reconstructed DAP ratio series in monthly tables.
+DAP_RATIO_QUANTITY = "dap_ratio"
+
+#: NCRP Report 168 (2010) substantial radiation dose levels, from memory (PUBLISHED-VALUES h, high):
+#: K_a,r 5 Gy, P_KA 500 Gy·cm² (assumes a 100 cm² field at the skin), fluoroscopy time 60 min. The
+#: SRDL for peak skin dose (3 Gy) needs a skin-dose estimate the events table does not carry.
+NCRP168_SRDL: MappingProxyType[str, float] = MappingProxyType(
+    {"ref_point_air_kerma_mgy": 5000.0, "dap_gy_cm2": 500.0, "fluoro_time_s": 3600.0}
+)
+_SRDL_LABEL = MappingProxyType(
+    {
+        "ref_point_air_kerma_mgy": ("K_a,r", "mGy"),
+        "dap_gy_cm2": ("DAP", "Gy·cm²"),
+        "fluoro_time_s": ("fluoroscopy time", "s"),
+    }
+)
+
+#: Deviation-index range outside which an exposure is flagged: AAPM TG-116 (2009) action table as
+#: recalled (PUBLISHED-VALUES k, medium): DI > +3 excessive exposure, DI < -3 repeat; configurable.
+TG116_DI_RANGE = (-3.0, 3.0)
+
+Number = float | int | str | None
+
+
+@dataclass(frozen=True, slots=True)
+class Flag:
+    """One flag: what, how serious, why (a sentence with the numbers), and what it concerns.
+
+    ``numbers`` holds the figures the reason quotes (values in the units their names carry).
+    The concern fields that do not apply are ``None``; ``date`` is an ISO date or a ``YYYY-MM``
+    month (the month of a DAP ratio, the month a change-point starts).
+    """
+
+    kind: FlagKind
+    severity: Severity
+    reason: str
+    numbers: Mapping[str, Number] = field(default_factory=dict)
+    event_id: int | None = None
+    study_uid: str | None = None
+    site: str | None = None
+    room: str | None = None
+    device: str | None = None
+    exam_type: str | None = None
+    quantity: str | None = None
+    date: str | None = None
+
+    def concerns(self) -> dict[str, Any]:
+        """The non-empty concern fields."""
+        fields = (
+            "event_id",
+            "study_uid",
+            "site",
+            "room",
+            "device",
+            "exam_type",
+            "quantity",
+            "date",
+        )
+        return {f: getattr(self, f) for f in fields if getattr(self, f) is not None}
+
+    def to_json_dict(self) -> dict[str, Any]:
+        """Plain JSON types only (NaN becomes ``None``)."""
+        return {
+            "kind": self.kind,
+            "severity": self.severity,
+            "reason": self.reason,
+            "numbers": {k: _json_number(v) for k, v in self.numbers.items()},
+            "concerns": self.concerns(),
+        }
+
+
+def sort_flags(flags: Sequence[Flag]) -> list[Flag]:
+    """Flags in a stable order: by kind (as :data:`FLAG_KINDS`), then by what they concern."""
+    rank = {k: i for i, k in enumerate(FLAG_KINDS)}
+
+    def key(f: Flag) -> tuple[Any, ...]:
+        return (
+            rank[f.kind],
+            f.site or "",
+            f.room or "",
+            f.device or "",
+            f.exam_type or "",
+            f.quantity or "",
+            f.date or "",
+            f.study_uid or "",
+            -1 if f.event_id is None else f.event_id,
+            f.reason,
+        )
+
+    return sorted(flags, key=key)
+
+
+# ------------------------------------------------------------------------------------------ helpers
+def _json_number(v: Number) -> Number:
+    if isinstance(v, float) and not math.isfinite(v):
+        return None
+    return v
+
+
+def _fmt(x: float) -> str:
+    """A number for a sentence: 3 significant figures, no exponent below 10 000."""
+    if x is None or not math.isfinite(x):
+        return "n/a"
+    if abs(x) >= 10_000:
+        return f"{x:.0f}"
+    return f"{x:.3g}"
+
+
+def _str_or_none(v: object) -> str | None:
+    if v is None or (isinstance(v, float) and math.isnan(v)) or v is pd.NA:
+        return None
+    return str(v)
+
+
+def _int_or_none(v: object) -> int | None:
+    if v is None or v is pd.NA or (isinstance(v, float) and math.isnan(v)):
+        return None
+    return int(v)  # type: ignore[call-overload]
+
+
+def _float(v: object) -> float:
+    if v is None or v is pd.NA:
+        return float("nan")
+    return float(v)  # type: ignore[arg-type]
+
+
+def _where(row: Mapping[str, Any]) -> str:
+    parts = [
+        f"{key} {value}"
+        for key in ("room", "device", "site")
+        if (value := _str_or_none(row.get(key))) is not None
+    ]
+    return (" in " + ", ".join(parts)) if parts else ""
+
+
+def _fmt_apart(*values: float) -> list[str]:
+    """Format numbers with 3 to 6 significant figures: as few as keep distinct values distinct."""
+    for digits in range(3, 7):
+        texts = [
+            f"{v:.{digits}g}" if math.isfinite(v) and abs(v) < 10_000 else _fmt(v) for v in values
+        ]
+        distinct_values = len({v for v in values if math.isfinite(v)})
+        if (
+            len({t for t, v in zip(texts, values, strict=True) if math.isfinite(v)})
+            == distinct_values
+        ):
+            return texts
+    return texts
+
+
+def _unit(quantity: str) -> str:
+    return QUANTITIES[quantity].display_unit if quantity in QUANTITIES else ""
+
+
+def _label(quantity: str) -> str:
+    return QUANTITIES[quantity].label if quantity in QUANTITIES else quantity
+
+
+def _concern(row: Mapping[str, Any]) -> dict[str, Any]:
+    return {
+        "site": _str_or_none(row.get("site")),
+        "room": _str_or_none(row.get("room")),
+        "device": _str_or_none(row.get("device")),
+        "exam_type": _str_or_none(row.get("exam_type")),
+    }
+
+
+def _records(frame: pd.DataFrame) -> list[dict[str, Any]]:
+    """Rows as dicts, built from whole columns (``to_dict`` boxes every cell and is slow)."""
+    columns = {c: frame[c].tolist() for c in frame.columns}
+    names = list(columns)
+    return [dict(zip(names, row, strict=True)) for row in zip(*columns.values(), strict=True)]
+
+
+# --------------------------------------------------------------------------------------- the kinds
+def groups_above_level(groups: pd.DataFrame) -> list[Flag]:
+    """Groups whose median is above a reference level.
+
+    Parameters
+    ----------
+    groups : DataFrame
+        The review's group table (:data:`beamaudit.api.review.run.GROUP_COLUMNS`); used columns:
+        ``status``, ``site``/``room``/``device`` (those present), ``exam_type``, ``quantity``,
+        ``basis``, ``n_used``, ``median``, ``ci_low``, ``ci_high``, ``ci_coverage``,
+        ``reference_level``, ``ratio_to_level``, ``level_set``, ``level_kind``, ``level_version``.
+
+    Returns
+    -------
+    list of Flag
+        ``action`` for status ``above_level``, ``warning`` for ``possibly_above``.
+    """
+    flagged = groups[groups["status"].isin(["above_level", "possibly_above"])]
+    flags = []
+    for row in _records(flagged):
+        quantity = row["quantity"]
+        unit = _unit(quantity)
+        certain = row["status"] == "above_level"
+        who = "standard-size patients" if row["basis"] == "standard" else "patients"
+        coverage = _float(row["ci_coverage"])
+        median, low, high, level = _fmt_apart(
+            _float(row["median"]),
+            _float(row["ci_low"]),
+            _float(row["ci_high"]),
+            _float(row["reference_level"]),
+        )
+        if math.isnan(coverage):
+            ci_text = (
+                "no confidence interval exists at this sample size, so the excess is not certain"
+            )
+        else:
+            ci_text = (
+                f"the {coverage:.0%} confidence interval of the median, {low} to {high} {unit}, "
+                + (
+                    "lies above the level"
+                    if certain
+                    else "includes the level, so the excess is not certain"
+                )
+            )
+        reason = (
+            f"Median {_label(quantity)} {median} {unit} of {row['exam_type']}"
+            f"{_where(row)} ({row['n_used']} {who}) is {row['ratio_to_level']:.3g} × the "
+            f"{row['level_kind']} level {level} {unit} "
+            f"({row['level_set']}, version {row['level_version']}); {ci_text}."
+        )
+        flags.append(
+            Flag(
+                kind="group_above_level",
+                severity="action" if certain else "warning",
+                reason=reason,
+                numbers={
+                    "median": _float(row["median"]),
+                    "ci_low": _float(row["ci_low"]),
+                    "ci_high": _float(row["ci_high"]),
+                    "ci_coverage": coverage,
+                    "n_used": int(row["n_used"]),
+                    "reference_level": _float(row["reference_level"]),
+                    "ratio_to_level": _float(row["ratio_to_level"]),
+                    "level_set": row["level_set"],
+                    "level_version": row["level_version"],
+                },
+                quantity=quantity,
+                **_concern(row),
+            )
+        )
+    return flags
+
+
+def _limit_per_group(
+    frame: pd.DataFrame, keys: list[str], score: np.ndarray, limit: int | None
+) -> tuple[np.ndarray, pd.DataFrame]:
+    """Positions of at most ``limit`` rows per group of ``keys`` (highest ``score`` first, then
+    frame order), in frame order, and the groups that had more (their keys, ``n`` and ``limit``)."""
+    n = len(frame)
+    if limit is None or n == 0:
+        return np.arange(n), pd.DataFrame(columns=[*keys, "n"])
+    codes, table = group_codes(frame, keys)
+    order = np.lexsort((np.arange(n), -score, codes))
+    counts = np.bincount(codes, minlength=len(table))
+    starts = np.cumsum(counts) - counts
+    rank = np.arange(n) - starts[codes[order]]
+    kept = np.sort(order[rank < limit])
+    over = counts > limit
+    table = table.loc[over].reset_index(drop=True)
+    table["n"] = counts[over]
+    return kept, table
+
+
+def _overflow_flags(
+    overflow: pd.DataFrame, kind: FlagKind, limit: int | None, what: str
+) -> list[Flag]:
+    flags = []
+    for row in _records(overflow):
+        quantity = _str_or_none(row.get("quantity"))
+        exam = _str_or_none(row.get("exam_type")) or "unmapped events"
+        about = f" ({_label(quantity)})" if quantity else ""
+        flags.append(
+            Flag(
+                kind=kind,
+                severity="warning",
+                reason=(
+                    f"{int(row['n'])} examinations of {exam}{_where(row)}{about} {what}; the "
+                    f"{limit} most extreme are flagged one by one (limit per group: {limit})."
+                ),
+                numbers={"n_exceeding": int(row["n"]), "n_listed": limit},
+                quantity=quantity,
+                **_concern(row),
+            )
+        )
+    return flags
+
+
+def exams_above_investigation_level(
+    units: pd.DataFrame,
+    *,
+    multiple: float | None,
+    above_percentile: bool,
+    max_per_group: int | None = None,
+) -> list[Flag]:
+    """Single examinations above an investigation level.
+
+    An examination (an event for projection-level types, a study for examination-level ones) is
+    flagged when its value exceeds ``multiple`` x the strictest (lowest) applicable reference level,
+    or, with ``above_percentile``, when it exceeds its group's upper percentile.
+
+    Parameters
+    ----------
+    units : DataFrame
+        One row per examination and quantity with ``value``, ``quantity``, ``exam_type``,
+        ``event_id`` (for events, else NA), ``study_uid``, ``site``/``room``/``device`` (those
+        present), ``patient_weight_kg``, ``level_value``, ``level_set``, ``level_version``
+        (NaN/None without a level) and ``percentile_value`` with ``percentile`` (the group's
+        upper percentile and which percentile it is).
+    multiple : float or None
+        Multiple of the level; ``None`` switches the level rule off.
+    above_percentile : bool
+        Switches the percentile rule on.
+    max_per_group : int or None
+        At most this many examinations per group (location, exam type, quantity) get a flag of
+        their own, the highest values first; a group with more gets one more flag counting them.
+        ``None``: no limit.
+    """
+    value = units["value"].to_numpy(dtype=np.float64)
+    with np.errstate(invalid="ignore"):
+        by_level = (
+            value > multiple * units["level_value"].to_numpy(dtype=np.float64)
+            if multiple is not None
+            else np.zeros(len(units), dtype=bool)
+        )
+        by_pct = (
+            value > units["percentile_value"].to_numpy(dtype=np.float64)
+            if above_percentile
+            else np.zeros(len(units), dtype=bool)
+        )
+    hit = by_level | by_pct
+    exceeding = units.loc[hit]
+    keys = [c for c in ("site", "room", "device", "exam_type", "quantity") if c in units.columns]
+    kept, overflow = _limit_per_group(exceeding, keys, value[hit], max_per_group)
+    flags = _overflow_flags(
+        overflow, "exam_above_investigation_level", max_per_group, "exceed the investigation level"
+    )
+    for row, lvl, pct in zip(
+        _records(exceeding.iloc[kept]), by_level[hit][kept], by_pct[hit][kept], strict=True
+    ):
+        quantity = row["quantity"]
+        unit = _unit(quantity)
+        event_id = _int_or_none(row.get("event_id"))
+        what = f"exposure {event_id}" if event_id is not None else f"study {row['study_uid']}"
+        reasons = []
+        if lvl:
+            reasons.append(
+                f"{_float(row['value']) / _float(row['level_value']):.2f} × the level "
+                f"{_fmt(row['level_value'])} {unit} ({row['level_set']}, version "
+                f"{row['level_version']}), above the investigation level of {_fmt(multiple or 0)} ×"
+            )
+        if pct:
+            reasons.append(
+                f"above the group's {_fmt(row['percentile'])}th percentile "
+                f"{_fmt(row['percentile_value'])} {unit}"
+            )
+        weight = _float(row.get("patient_weight_kg"))
+        weight_text = (
+            f"patient weight {_fmt(weight)} kg" if not math.isnan(weight) else "weight not recorded"
+        )
+        reason = (
+            f"{_label(quantity)} {_fmt(row['value'])} {unit} of {what} ({row['exam_type']}"
+            f"{_where(row)}; {weight_text}) is " + " and ".join(reasons) + "."
+        )
+        flags.append(
+            Flag(
+                kind="exam_above_investigation_level",
+                severity="warning",
+                reason=reason,
+                numbers={
+                    "value": _float(row["value"]),
+                    "reference_level": _float(row["level_value"]),
+                    "investigation_multiple": multiple,
+                    "percentile": _float(row["percentile"]) if above_percentile else None,
+                    "percentile_value": _float(row["percentile_value"])
+                    if above_percentile
+                    else None,
+                    "patient_weight_kg": weight,
+                },
+                event_id=event_id,
+                study_uid=_str_or_none(row.get("study_uid")),
+                quantity=quantity,
+                **_concern(row),
+            )
+        )
+    return flags
+
+
+def srdl_exceeded(studies: pd.DataFrame, *, thresholds: Mapping[str, float]) -> list[Flag]:
+    """Fluoroscopy studies above an NCRP 168 substantial radiation dose level.
+
+    Parameters
+    ----------
+    studies : DataFrame
+        One row per study: ``study_uid``, ``site``/``room``/``device``, ``exam_type``, and the
+        study totals of the columns named in ``thresholds`` (NaN when not recorded).
+    thresholds : mapping
+        Column name -> level, e.g. :data:`NCRP168_SRDL`; one flag per study lists every level
+        exceeded (strictly above).
+    """
+    if len(studies) == 0 or not thresholds:
+        return []
+    masks = {}
+    with np.errstate(invalid="ignore"):
+        for column, level in thresholds.items():
+            masks[column] = studies[column].to_numpy(dtype=np.float64) > level
+    hit = np.logical_or.reduce(list(masks.values()))
+    flags = []
+    for position in np.flatnonzero(hit):
+        row = studies.iloc[position]
+        exceeded = [c for c in thresholds if masks[c][position]]
+        parts = []
+        numbers: dict[str, Number] = {}
+        for c in exceeded:
+            label, unit = _SRDL_LABEL.get(c, (c, ""))
+            parts.append(f"{label} {_fmt(row[c])} {unit} > {_fmt(thresholds[c])} {unit}")
+            numbers[c] = float(row[c])
+            numbers[f"{c}_srdl"] = float(thresholds[c])
+        reason = (
+            f"Study {row['study_uid']} ({_str_or_none(row.get('exam_type')) or 'unmapped'}"
+            f"{_where(row)}) exceeds the NCRP 168 substantial radiation dose level: "
+            + "; ".join(parts)
+            + ". Follow the patient up for possible skin effects as local procedure requires."
+        )
+        flags.append(
+            Flag(
+                kind="srdl_exceeded",
+                severity="action",
+                reason=reason,
+                numbers=numbers,
+                study_uid=str(row["study_uid"]),
+                **_concern(row),
+            )
+        )
+    return flags
+
+
+def dap_ratio_out_of_tolerance(
+    ratios: pd.DataFrame, *, tolerance: float, min_events: int
+) -> list[Flag]:
+    """Rooms whose monthly median of reported / reconstructed DAP is outside ``1 ± tolerance``.
+
+    Parameters
+    ----------
+    ratios : DataFrame
+        One row per room (and the other group keys present: ``site``, ``device``) and month with
+        ``month`` (``YYYY-MM``), ``n`` (events with both values) and ``median``.
+    tolerance : float
+        Allowed relative deviation of the ratio from 1.
+    min_events : int
+        Months with fewer events are not judged.
+    """
+    median = ratios["median"].to_numpy(dtype=np.float64)
+    n = ratios["n"].to_numpy()
+    with np.errstate(invalid="ignore"):
+        hit = (n >= min_events) & (np.abs(median - 1.0) > tolerance)
+    flags = []
+    for row in _records(ratios[hit]):
+        m = float(row["median"])
+        reason = (
+            f"Median ratio of reported to reconstructed DAP{_where(row)} in {row['month']} is "
+            f"{m:.2f} over {int(row['n'])} exposures, outside 1 ± {tolerance:.2f}: the reported "
+            f"DAP is {'higher' if m > 1 else 'lower'} than the beam model predicts; check the DAP "
+            f"meter's "
+            f"calibration and the room's model configuration (filtration, tube output)."
+        )
+        flags.append(
+            Flag(
+                kind="dap_ratio_out_of_tolerance",
+                severity="warning",
+                reason=reason,
+                numbers={"median_ratio": m, "n": int(row["n"]), "tolerance": tolerance},
+                date=str(row["month"]),
+                quantity=DAP_RATIO_QUANTITY,
+                site=_str_or_none(row.get("site")),
+                room=_str_or_none(row.get("room")),
+                device=_str_or_none(row.get("device")),
+            )
+        )
+    return flags
+
+
+def changepoints(
+    monthly: pd.DataFrame,
+    *,
+    series_keys: Sequence[str],
+    k: float,
+    h: float,
+    baseline_points: int,
+) -> list[Flag]:
+    """Change-points by CUSUM (:func:`beamaudit.api.review.changepoint.cusum`) in monthly series.
+
+    Parameters
+    ----------
+    monthly : DataFrame
+        One row per series and month: the ``series_keys`` columns, ``month`` (``YYYY-MM``) and
+        ``median``. Months too thin to use must already be dropped. ``quantity`` equal to
+        :data:`DAP_RATIO_QUANTITY` marks a DAP-ratio series.
+    series_keys : sequence of str
+        Columns that identify a series (e.g. site, room, exam_type, quantity).
+    k, h, baseline_points
+        CUSUM parameters (units of the series' robust SD; see :mod:`.changepoint`).
+    """
+    flags: list[Flag] = []
+    if len(monthly) == 0:
+        return flags
+    ordered = monthly.sort_values([*series_keys, "month"], kind="mergesort", na_position="first")
+    for key, series in ordered.groupby(list(series_keys), dropna=False, sort=False, observed=True):
+        values = series["median"].to_numpy(dtype=np.float64)
+        months = series["month"].astype(str).to_list()
+        result = cusum(values, k=k, h=h, baseline_points=baseline_points)
+        context = dict(zip(series_keys, key if isinstance(key, tuple) else (key,), strict=True))
+        quantity = str(context.get("quantity"))
+        if quantity == DAP_RATIO_QUANTITY:
+            what, unit = "median ratio of reported to reconstructed DAP", ""
+        else:
+            what = f"monthly median {_label(quantity)} of {context.get('exam_type')}"
+            unit = " " + _unit(quantity)
+        for change in result.changes:
+            reason = (
+                f"The {what}{_where(context)} shifted {change.direction} from about "
+                f"{_fmt(change.before)}{unit} to about {_fmt(change.after)}{unit} starting "
+                f"{months[change.index]} (CUSUM alarm in {months[change.alarm_index]}; k = {k:g}, "
+                f"h = {h:g} robust SD, SD {_fmt(result.sigma)}{unit}, {len(values)} months)."
+            )
+            flags.append(
+                Flag(
+                    kind="changepoint",
+                    severity="warning",
+                    reason=reason,
+                    numbers={
+                        "before": change.before,
+                        "after": change.after,
+                        "sigma": result.sigma,
+                        "k": k,
+                        "h": h,
+                        "cusum_value": change.cusum_value,
+                        "change_month": months[change.index],
+                        "alarm_month": months[change.alarm_index],
+                        "n_months": len(values),
+                    },
+                    date=months[change.index],
+                    quantity=quantity,
+                    site=_str_or_none(context.get("site")),
+                    room=_str_or_none(context.get("room")),
+                    device=_str_or_none(context.get("device")),
+                    exam_type=_str_or_none(context.get("exam_type")),
+                )
+            )
+    return flags
+
+
+def deviation_index_out_of_range(
+    events: pd.DataFrame, *, di_range: tuple[float, float], max_per_group: int | None = None
+) -> list[Flag]:
+    """Exposures whose deviation index (IEC 62494-1) lies outside ``di_range``.
+
+    ``events`` needs ``event_id``, ``study_uid``, ``deviation_index``, ``exam_type`` and the
+    location columns present. DI = 10 log10(EI/EI_T), so the detector received
+    :math:`10^{DI/10}` times its target exposure. ``max_per_group`` limits the flags per location
+    and exam type as in :func:`exams_above_investigation_level` (largest ``|DI|`` first).
+    """
+    low, high = di_range
+    di = events["deviation_index"].to_numpy(dtype=np.float64)
+    with np.errstate(invalid="ignore"):
+        hit = (di < low) | (di > high)
+    outside = events.loc[hit]
+    keys = [c for c in ("site", "room", "device", "exam_type") if c in events.columns]
+    kept, overflow = _limit_per_group(outside, keys, np.abs(di[hit]), max_per_group)
+    flags = _overflow_flags(
+        overflow,
+        "deviation_index_out_of_range",
+        max_per_group,
+        f"have a deviation index outside {low:+g} to {high:+g}",
+    )
+    for row in _records(outside.iloc[kept]):
+        value = float(row["deviation_index"])
+        factor = 10.0 ** (value / 10.0)
+        reason = (
+            f"Exposure {int(row['event_id'])} ({_str_or_none(row.get('exam_type')) or 'unmapped'}"
+            f"{_where(row)}) has deviation index {value:+.1f}, outside {low:+g} to {high:+g}: the "
+            f"detector received about {factor:.2g} × its target exposure "
+            f"({'over' if value > high else 'under'}exposure)."
+        )
+        flags.append(
+            Flag(
+                kind="deviation_index_out_of_range",
+                severity="warning",
+                reason=reason,
+                numbers={
+                    "deviation_index": value,
+                    "exposure_ratio_to_target": factor,
+                    "di_low": low,
+                    "di_high": high,
+                },
+                event_id=int(row["event_id"]),
+                study_uid=_str_or_none(row.get("study_uid")),
+                **_concern(row),
+            )
+        )
+    return flags
+
+
+def no_dose_data(studies: pd.DataFrame) -> list[Flag]:
+    """Studies none of whose events carries any dose value.
+
+    ``studies`` needs ``study_uid``, ``modality``, ``n_events``, ``has_dose`` (bool) and the
+    location and ``exam_type`` columns present.
+    """
+    flagged = studies[~studies["has_dose"].to_numpy(dtype=bool)]
+    flags = []
+    for row in _records(flagged):
+        reason = (
+            f"Study {row['study_uid']} ({_str_or_none(row.get('modality')) or 'modality unknown'}, "
+            f"{_str_or_none(row.get('exam_type')) or 'unmapped'}{_where(row)}) has "
+            f"{int(row['n_events'])} event(s) and no dose value at all: check that the device "
+            f"sends dose headers or a dose report."
+        )
+        flags.append(
+            Flag(
+                kind="no_dose_data",
+                severity="warning",
+                reason=reason,
+                numbers={"n_events": int(row["n_events"])},
+                study_uid=str(row["study_uid"]),
+                **_concern(row),
+            )
+        )
+    return flags
+
+
+def unknown_exam_types(events: pd.DataFrame, known: Sequence[str] | set[str]) -> list[Flag]:
+    """One flag per exam type in ``events["exam_type"]`` that the catalogue does not know."""
+    exam = events["exam_type"]
+    unknown = exam[exam.notna() & ~exam.isin(list(known))].astype(object)
+    counts = unknown.value_counts(sort=False).sort_index()
+    return [
+        Flag(
+            kind="unknown_exam_type",
+            severity="warning",
+            reason=(
+                f"{int(n)} event(s) carry the exam type {name!r}, which the catalogue does not "
+                f"know; they are left out of the groups until it is added or they are re-mapped."
+            ),
+            numbers={"n_events": int(n)},
+            exam_type=str(name),
+        )
+        for name, n in counts.items()
+    ]
+
+
+def unmapped_events(summary: pd.DataFrame) -> list[Flag]:
+    """One flag summarising the events that map to no exam type (from ``unmapped_summary``)."""
+    if len(summary) == 0:
+        return []
+    n_events = int(summary["n_events"].sum())
+    return [
+        Flag(
+            kind="unmapped_events",
+            severity="info",
+            reason=(
+                f"{n_events} event(s) in {len(summary)} distinct combination(s) of header values "
+                f"map to no exam type; they are listed for mapping and are not in any group."
+            ),
+            numbers={"n_events": n_events, "n_combinations": len(summary)},
+        )
+    ]

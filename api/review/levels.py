@@ -1,0 +1,476 @@
+"""Reference-level sets: local and national diagnostic reference levels, versioned by the date they
+take effect.
+
+A :class:`ReferenceLevelSet` is one version of one named set (``"UK NDRL (UKHSA)"`` version
+``"2024-11-20"``, in effect from 20 November 2024). Each holds at most one value per exam type and
+quantity. For a review date, :func:`applicable_levels` picks, for every set name, the **newest
+version in effect** on that date (the latest ``effective_from`` not after it); a newer version
+supersedes an older one entirely, so an exam type dropped from the newer version has no level from
+that set any more (it does not fall back to the older version).
+
+CSV layout (``beamaudit levels import FILE.csv`` / ``beamaudit levels export``)
+-------------------------------------------------------------------------------
+One row per value; the set's own fields repeat on each row and must agree within a set version.
+Lines before the header that start with ``#`` are comments (kept on export).
+
+==============  ========  ==================================================================
+column          required  content
+==============  ========  ==================================================================
+set_name        yes       name of the set, the same for all its versions
+kind            yes       ``national`` or ``local``
+version         yes       version label, unique within the set name (``2024-11-20``)
+effective_from  yes       ISO date the version takes effect (``2024-11-20``); unique within the
+                          set name
+set_source      no        the document the set comes from (or, for a local set, who decided it)
+exam_type       yes       an exam type of the catalogue (``ct_head``)
+quantity        yes       ``dap_gy_cm2``, ``esak_mgy``, ``ref_point_air_kerma_mgy``,
+                          ``ctdivol_mgy``, ``dlp_mgy_cm`` or ``agd_mgy``
+value           yes       the reference level, a positive number
+unit            yes       its unit; converted on import to the quantity's own unit (Gy.cm2,
+                          mGy, mGy.cm), e.g. ``mGy.cm2`` and ``cGy.cm2`` for DAP are accepted
+source          national  the published source of this value (table and row); required for
+                          national sets
+note            no        free text (e.g. the clinical indication an NDRL is defined for)
+==============  ========  ==================================================================
+
+Export always writes values in the quantity's own unit.
+"""
+
+from __future__ import annotations
+
+import math
+import re
+from collections.abc import Iterable, Sequence
+from dataclasses import dataclass, field
+from datetime import date
+from importlib import resources
+from types import MappingProxyType
+from typing import Literal, cast
+
+import pandas as pd
+
+from beamaudit.api.review._csv import CsvSource, read_table, write_table
+from beamaudit.api.review.errors import CsvFormatError, ReviewError
+from beamaudit.api.review.examtypes import ExamCatalogue
+from beamaudit.api.review.quantities import QUANTITIES, to_canonical_unit
+
+__all__ = [
+    "LEVELS_TABLE_COLUMNS",
+    "LEVEL_COLUMNS",
+    "AppliedLevel",
+    "LevelEntry",
+    "ReferenceLevelSet",
+    "applicable_levels",
+    "check_level_sets",
+    "levels_in_effect",
+    "levels_table",
+    "load_demo_local_levels",
+    "load_national_levels",
+    "read_levels_csv",
+    "write_levels_csv",
+]
+
+LevelKind = Literal["national", "local"]
+
+LEVEL_COLUMNS = (
+    "set_name",
+    "kind",
+    "version",
+    "effective_from",
+    "set_source",
+    "exam_type",
+    "quantity",
+    "value",
+    "unit",
+    "source",
+    "note",
+)
+_REQUIRED = (
+    "set_name",
+    "kind",
+    "version",
+    "effective_from",
+    "exam_type",
+    "quantity",
+    "value",
+    "unit",
+)
+_ISO_DATE = re.compile(r"^\d{4}-\d{2}-\d{2}$")
+
+#: Columns of :func:`levels_table`.
+LEVELS_TABLE_COLUMNS = (
+    "exam_type",
+    "quantity",
+    "level_set",
+    "level_kind",
+    "level_version",
+    "level_effective_from",
+    "reference_level",
+    "level_unit",
+    "level_source",
+)
+
+
+@dataclass(frozen=True, slots=True)
+class LevelEntry:
+    """One reference level: ``value`` in the quantity's own unit ``unit``."""
+
+    exam_type: str
+    quantity: str
+    value: float
+    unit: str
+    source: str = ""
+    note: str = ""
+
+
+@dataclass(frozen=True, slots=True)
+class ReferenceLevelSet:
+    """One version of a named reference-level set.
+
+    Raises
+    ------
+    ReviewError
+        Bad kind, an entry in a unit that is not the quantity's own, a non-positive value, or two
+        entries for the same exam type and quantity.
+    """
+
+    name: str
+    kind: LevelKind
+    version: str
+    effective_from: date
+    source: str
+    entries: tuple[LevelEntry, ...]
+    _index: MappingProxyType[tuple[str, str], LevelEntry] = field(
+        init=False, repr=False, compare=False
+    )
+
+    def __post_init__(self) -> None:
+        if self.kind not in ("national", "local"):
+            raise ReviewError(f"level set {self.name!r}: kind must be 'national' or 'local'")
+        index: dict[tuple[str, str], LevelEntry] = {}
+        for e in self.entries:
+            if e.quantity not in QUANTITIES or e.unit != QUANTITIES[e.quantity].unit:
+                raise ReviewError(
+                    f"level set {self.name!r} {self.version}: {e.exam_type} {e.quantity} must be "
+                    f"stored in the quantity's own unit"
+                )
+            if not (math.isfinite(e.value) and e.value > 0):
+                raise ReviewError(
+                    f"level set {self.name!r} {self.version}: {e.exam_type} {e.quantity} value "
+                    f"{e.value!r} is not a positive number"
+                )
+            if (e.exam_type, e.quantity) in index:
+                raise ReviewError(
+                    f"level set {self.name!r} {self.version}: two values for {e.exam_type} "
+                    f"{e.quantity}"
+                )
+            index[(e.exam_type, e.quantity)] = e
+        object.__setattr__(self, "_index", MappingProxyType(index))
+
+    def get(self, exam_type: str, quantity: str) -> LevelEntry | None:
+        """The entry for ``exam_type`` and ``quantity``, or ``None``."""
+        return self._index.get((exam_type, quantity))
+
+    def describe(self) -> dict[str, str]:
+        """The set's identity as plain strings (for a stored run)."""
+        return {
+            "name": self.name,
+            "kind": self.kind,
+            "version": self.version,
+            "effective_from": self.effective_from.isoformat(),
+            "source": self.source,
+        }
+
+
+@dataclass(frozen=True, slots=True)
+class AppliedLevel:
+    """A reference level that applies to one exam type and quantity on a date."""
+
+    set_name: str
+    kind: LevelKind
+    version: str
+    effective_from: date
+    exam_type: str
+    quantity: str
+    value: float
+    unit: str
+    source: str
+
+
+def check_level_sets(sets: Iterable[ReferenceLevelSet]) -> None:
+    """Check that versions of a set name agree on kind and never share a version or a date.
+
+    Raises
+    ------
+    ReviewError
+        Naming the set and the clash.
+    """
+    seen: dict[str, ReferenceLevelSet] = {}
+    versions: set[tuple[str, str]] = set()
+    dates: set[tuple[str, date]] = set()
+    for s in sets:
+        first = seen.setdefault(s.name, s)
+        if first.kind != s.kind:
+            raise ReviewError(f"level set {s.name!r} is both {first.kind} and {s.kind}")
+        if (s.name, s.version) in versions:
+            raise ReviewError(f"level set {s.name!r} has version {s.version!r} twice")
+        if (s.name, s.effective_from) in dates:
+            raise ReviewError(
+                f"level set {s.name!r} has two versions in effect from {s.effective_from}; "
+                f"the newer one would be ambiguous"
+            )
+        versions.add((s.name, s.version))
+        dates.add((s.name, s.effective_from))
+
+
+def levels_in_effect(sets: Sequence[ReferenceLevelSet], on_date: date) -> list[ReferenceLevelSet]:
+    """For every set name, its newest version in effect on ``on_date`` (local sets first).
+
+    Raises
+    ------
+    ReviewError
+        As :func:`check_level_sets`.
+    """
+    check_level_sets(sets)
+    newest: dict[str, ReferenceLevelSet] = {}
+    for s in sets:
+        if s.effective_from <= on_date and (
+            s.name not in newest or s.effective_from > newest[s.name].effective_from
+        ):
+            newest[s.name] = s
+    return sorted(newest.values(), key=lambda s: (s.kind != "local", s.name))
+
+
+def applicable_levels(
+    sets: Sequence[ReferenceLevelSet], exam_type: str, quantity: str, on_date: date
+) -> list[AppliedLevel]:
+    """The levels that apply to ``exam_type`` and ``quantity`` on ``on_date``.
+
+    One per set name at most: from the newest version of that set in effect on the date, if that
+    version has a value for the exam type and quantity. Local sets come first, then by name.
+
+    Examples
+    --------
+    >>> from datetime import date
+    >>> [a.value for a in applicable_levels(load_national_levels(), "ct_head", "dlp_mgy_cm",
+    ...                                     date(2025, 1, 1))]
+    [790.0]
+    """
+    out = []
+    for s in levels_in_effect(sets, on_date):
+        entry = s.get(exam_type, quantity)
+        if entry is not None:
+            out.append(
+                AppliedLevel(
+                    set_name=s.name,
+                    kind=s.kind,
+                    version=s.version,
+                    effective_from=s.effective_from,
+                    exam_type=exam_type,
+                    quantity=quantity,
+                    value=entry.value,
+                    unit=entry.unit,
+                    source=entry.source or s.source,
+                )
+            )
+    return out
+
+
+def levels_table(sets: Sequence[ReferenceLevelSet], on_date: date) -> pd.DataFrame:
+    """Every level in effect on ``on_date``, one row per set, exam type and quantity.
+
+    Columns :data:`LEVELS_TABLE_COLUMNS`; rows ordered local first, then set name, exam type,
+    quantity. This is :func:`applicable_levels` for all exam types at once, for joining to groups.
+    """
+    rows = [
+        {
+            "exam_type": e.exam_type,
+            "quantity": e.quantity,
+            "level_set": s.name,
+            "level_kind": s.kind,
+            "level_version": s.version,
+            "level_effective_from": s.effective_from.isoformat(),
+            "reference_level": e.value,
+            "level_unit": e.unit,
+            "level_source": e.source or s.source,
+        }
+        for s in levels_in_effect(sets, on_date)
+        for e in sorted(s.entries, key=lambda e: (e.exam_type, e.quantity))
+    ]
+    return pd.DataFrame(rows, columns=list(LEVELS_TABLE_COLUMNS))
+
+
+# ---------------------------------------------------------------------------------------- CSV files
+def read_levels_csv(
+    source: CsvSource, catalogue: ExamCatalogue | None = None
+) -> list[ReferenceLevelSet]:
+    """Read reference-level sets from a CSV file (layout in the module docstring).
+
+    Parameters
+    ----------
+    source : path or open file
+        The file.
+    catalogue : ExamCatalogue, optional
+        When given, every exam type must be in it.
+
+    Returns
+    -------
+    list of ReferenceLevelSet
+        In the order each set version first appears in the file.
+
+    Raises
+    ------
+    CsvFormatError
+        Every problem of the file, each with its line number.
+    """
+    table = read_table(source, required=_REQUIRED, optional=LEVEL_COLUMNS)
+    problems: list[tuple[int | None, str]] = []
+    heads: dict[tuple[str, str], tuple[int, dict[str, str]]] = {}
+    entries: dict[tuple[str, str], list[LevelEntry]] = {}
+    seen_entries: dict[tuple[str, str, str, str], int] = {}
+    for line, row in table.rows:
+        n_before = len(problems)
+        name, version = row["set_name"], row["version"]
+        if not name or not version:
+            problems.append((line, "set_name and version must not be empty"))
+            continue
+        if row["kind"] not in ("national", "local"):
+            problems.append((line, f"kind must be 'national' or 'local', got {row['kind']!r}"))
+        if not _ISO_DATE.match(row["effective_from"]):
+            problems.append(
+                (line, f"effective_from {row['effective_from']!r} is not a date YYYY-MM-DD")
+            )
+        else:
+            try:
+                date.fromisoformat(row["effective_from"])
+            except ValueError:
+                problems.append(
+                    (line, f"effective_from {row['effective_from']!r} is not a valid date")
+                )
+        key = (name, version)
+        head = {k: row[k] for k in ("kind", "effective_from", "set_source")}
+        if key in heads:
+            first_line, first = heads[key]
+            for k, v in head.items():
+                if v != first[k]:
+                    problems.append(
+                        (
+                            line,
+                            f"{k} {v!r} differs from {first[k]!r} on line {first_line} for "
+                            f"set {name!r} version {version!r}",
+                        )
+                    )
+        else:
+            heads[key] = (line, head)
+        exam_type, quantity = row["exam_type"], row["quantity"]
+        if not exam_type:
+            problems.append((line, "exam_type is empty"))
+        elif catalogue is not None and exam_type not in catalogue:
+            problems.append((line, f"exam_type {exam_type!r} is not in the catalogue"))
+        if quantity not in QUANTITIES:
+            problems.append((line, f"quantity {quantity!r} is not one of {', '.join(QUANTITIES)}"))
+        value = math.nan
+        try:
+            value = float(row["value"])
+        except ValueError:
+            problems.append((line, f"value {row['value']!r} is not a number"))
+        else:
+            if not (math.isfinite(value) and value > 0):
+                problems.append((line, f"value {row['value']!r} must be a positive number"))
+        if quantity in QUANTITIES and math.isfinite(value):
+            try:
+                value = to_canonical_unit(quantity, value, row["unit"])
+            except ReviewError as exc:
+                problems.append((line, str(exc)))
+        if row["kind"] == "national" and not row["source"]:
+            problems.append(
+                (line, "a national level needs its published source in the source column")
+            )
+        entry_key = (name, version, exam_type, quantity)
+        if entry_key in seen_entries:
+            problems.append(
+                (
+                    line,
+                    f"{exam_type} {quantity} already given on line {seen_entries[entry_key]} "
+                    f"for set {name!r} version {version!r}",
+                )
+            )
+        seen_entries.setdefault(entry_key, line)
+        if len(problems) == n_before:
+            entries.setdefault(key, []).append(
+                LevelEntry(
+                    exam_type=exam_type,
+                    quantity=quantity,
+                    value=value,
+                    unit=QUANTITIES[quantity].unit,
+                    source=row["source"],
+                    note=row["note"],
+                )
+            )
+    if problems:
+        raise CsvFormatError(table.source, problems)
+    sets = [
+        ReferenceLevelSet(
+            name=name,
+            kind=cast(LevelKind, head["kind"]),
+            version=version,
+            effective_from=date.fromisoformat(head["effective_from"]),
+            source=head["set_source"],
+            entries=tuple(entries.get((name, version), ())),
+        )
+        for (name, version), (_, head) in heads.items()
+    ]
+    try:
+        check_level_sets(sets)
+    except ReviewError as exc:
+        raise CsvFormatError(table.source, [(None, str(exc))]) from exc
+    return sets
+
+
+def write_levels_csv(
+    sets: Iterable[ReferenceLevelSet],
+    destination: CsvSource | None = None,
+    *,
+    comments: Sequence[str] = (),
+) -> str | None:
+    """Write ``sets`` in the CSV layout of the module docstring, values in their own unit.
+
+    Returns the text when ``destination`` is ``None``.
+    """
+    rows = (
+        {
+            "set_name": s.name,
+            "kind": s.kind,
+            "version": s.version,
+            "effective_from": s.effective_from.isoformat(),
+            "set_source": s.source,
+            "exam_type": e.exam_type,
+            "quantity": e.quantity,
+            "value": e.value,
+            "unit": e.unit,
+            "source": e.source,
+            "note": e.note,
+        }
+        for s in sets
+        for e in s.entries
+    )
+    return write_table(
+        cast("str | None", destination), columns=LEVEL_COLUMNS, rows=rows, comments=comments
+    )
+
+
+def _load(name: str) -> list[ReferenceLevelSet]:
+    with resources.files("beamaudit.api").joinpath("data", name).open("rb") as handle:
+        return read_levels_csv(handle)
+
+
+def load_national_levels() -> list[ReferenceLevelSet]:
+    """The shipped national sets (``beamaudit/api/data/national_levels.csv``), each value with its
+    published source."""
+    return _load("national_levels.csv")
+
+
+def load_demo_local_levels() -> list[ReferenceLevelSet]:
+    """The demo's local set (``beamaudit/api/data/demo_local_levels.csv``): **invented** values,
+    for demonstrations and tests only."""
+    return _load("demo_local_levels.csv")

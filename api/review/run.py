@@ -1,0 +1,737 @@
+"""A review run: every parameter, the review itself, and its reproducible result.
+
+:func:`review` takes the events of a period (the table documented in
+:mod:`beamaudit.api.review.events`), the reference-level sets and a :class:`ReviewParameters`, and
+returns a :class:`ReviewResult`: one row per group (``site``, ``room``, ``device`` as chosen by
+``group_by``, exam type and quantity) and applicable level, the flags, the unmapped events, and the
+period's monthly medians (to be stored as history for the next runs' change-points).
+
+The method is ICRP Publication 135's (2017): the facility value is the **median** of the group's
+standard-size patients (70 ± 10 kg mean weight, by including patients of 50-90 kg;
+PUBLISHED-VALUES e, high confidence), compared with each applicable local or national level as a
+ratio; groups with fewer patients than the minimum for their modality group get
+``insufficient_sample``, never a verdict;
+"above the level" is said with the confidence interval of the median (see
+:mod:`beamaudit.api.review.stats`).
+
+The levels are those in effect on ``levels_on`` (default: the first day of the period): a level that
+takes effect in the middle of a period applies from the next period on.
+
+Determinism: the events are sorted by ``event_id`` first and every table is sorted by its keys, so
+the same events and parameters give an identical result whatever order the rows come in.
+Re-running a stored run: ``review(events, levels=..., params=ReviewParameters.from_json_dict(d))``.
+
+Every figure is an estimate for quality assurance and optimisation; clinical decisions need a
+qualified medical physicist, and local regulations take precedence.
+"""
+
+from __future__ import annotations
+
+import calendar
+import math
+import re
+from collections.abc import Mapping, Sequence
+from dataclasses import dataclass, field, fields
+from datetime import date, datetime
+from types import MappingProxyType
+from typing import Any, Literal
+
+import numpy as np
+import pandas as pd
+
+import beamaudit
+from beamaudit.api.review import flags as fl
+from beamaudit.api.review.errors import ReviewError, ReviewInputError
+from beamaudit.api.review.events import (
+    build_units,
+    group_codes,
+    month_labels,
+    prepare_events,
+    study_table,
+)
+from beamaudit.api.review.examtypes import (
+    MODALITY_GROUPS,
+    ExamCatalogue,
+    MappingRules,
+    load_default_catalogue,
+    map_events,
+    unmapped_summary,
+)
+from beamaudit.api.review.levels import ReferenceLevelSet, levels_in_effect, levels_table
+from beamaudit.api.review.quantities import QUANTITIES
+from beamaudit.api.review.stats import DEFAULT_MINIMUM_SAMPLES, classify_status, group_statistics
+
+__all__ = [
+    "GROUP_COLUMNS",
+    "LOCATION_KEYS",
+    "MONTHLY_COLUMNS",
+    "Period",
+    "ReviewParameters",
+    "ReviewResult",
+    "review",
+]
+
+#: Location columns a review can group by (exam type and quantity are always group keys).
+LOCATION_KEYS = ("site", "room", "device")
+
+#: Columns of :attr:`ReviewResult.groups`.
+GROUP_COLUMNS = (
+    "site",
+    "room",
+    "device",
+    "exam_type",
+    "quantity",
+    "unit",
+    "modality_group",
+    "level_applies_per",
+    "n",
+    "n_standard",
+    "n_used",
+    "basis",
+    "n_minimum",
+    "median",
+    "q1",
+    "q3",
+    "mean",
+    "upper_percentile_value",
+    "ci_low",
+    "ci_high",
+    "ci_coverage",
+    "mean_weight_kg",
+    "level_set",
+    "level_kind",
+    "level_version",
+    "level_effective_from",
+    "reference_level",
+    "level_source",
+    "ratio_to_level",
+    "status",
+)
+
+#: Columns of :attr:`ReviewResult.monthly` and of the ``history`` table :func:`review` accepts:
+#: one row per series and month (``YYYY-MM``); ``quantity`` is a quantity name or ``"dap_ratio"``
+#: (reported / reconstructed DAP, ``exam_type`` None); ``n`` values and their ``median``.
+MONTHLY_COLUMNS = ("month", "site", "room", "device", "exam_type", "quantity", "n", "median")
+
+_MONTH = re.compile(r"^(\d{4})-(\d{2})$")
+
+
+@dataclass(frozen=True, slots=True)
+class Period:
+    """A review period ``[start, end)`` in UTC dates (``end`` exclusive)."""
+
+    start: date
+    end: date
+
+    def __post_init__(self) -> None:
+        if not self.start < self.end:
+            raise ReviewError(f"period start {self.start} must be before its end {self.end}")
+
+    @classmethod
+    def month(cls, year: int, month: int) -> Period:
+        """The calendar month ``year-month``."""
+        if not 1 <= month <= 12:
+            raise ReviewError(f"month must be 1-12, got {month}")
+        last = calendar.monthrange(year, month)[1]
+        start = date(year, month, 1)
+        return cls(start, date.fromordinal(start.toordinal() + last))
+
+    @classmethod
+    def parse(cls, text: str) -> Period:
+        """``"2025-03"`` (a calendar month) or ``"2025-01-01/2025-04-01"`` (end exclusive)."""
+        m = _MONTH.match(text.strip())
+        if m:
+            return cls.month(int(m.group(1)), int(m.group(2)))
+        start, sep, end = text.strip().partition("/")
+        try:
+            if sep:
+                return cls(date.fromisoformat(start), date.fromisoformat(end))
+        except ValueError:
+            pass
+        raise ReviewError(f"period {text!r} must be YYYY-MM or YYYY-MM-DD/YYYY-MM-DD")
+
+    @property
+    def label(self) -> str:
+        """``YYYY-MM`` for a calendar month, else ``start/end``."""
+        if self.start.day == 1 and Period.month(self.start.year, self.start.month) == self:
+            return f"{self.start.year:04d}-{self.start.month:02d}"
+        return f"{self.start.isoformat()}/{self.end.isoformat()}"
+
+    def to_json_dict(self) -> dict[str, str]:
+        return {"start": self.start.isoformat(), "end": self.end.isoformat(), "label": self.label}
+
+
+def _month_key(d: date) -> int:
+    return d.year * 12 + d.month - 1
+
+
+@dataclass(frozen=True, slots=True)
+class ReviewParameters:
+    """Every parameter of a review run (stored with the run so that it can be re-run).
+
+    Attributes
+    ----------
+    period : Period
+        The events reviewed (UTC).
+    sites, rooms, devices, exam_types : tuple of str or None
+        Scope filters; ``None`` is everything. The exam-type filter does not hide unmapped events
+        from the unmapped list.
+    group_by : tuple of str
+        Location keys of a group, from ``site``, ``room``, ``device`` (exam type and quantity are
+        always keys). Default site and room: ICRP 135 counts samples per room.
+    weight_window_kg : (float, float)
+        Standard-size patient window, inclusive. Default 50-90 kg, ICRP 135's example of how to
+        reach a mean of 70 ± 10 kg (PUBLISHED-VALUES e, high).
+    basis : {"standard", "all"}
+        Which patients the statistics use: standard-size only (ICRP 135), or all patients (where
+        weights are not recorded; the result then says so in each group's ``basis``).
+    minimum_samples : mapping
+        Minimum patients per modality group; merged over :data:`DEFAULT_MINIMUM_SAMPLES`.
+    confidence_level : float
+        Of the median's confidence interval (default 0.95).
+    levels_on : date or None
+        Date the levels are taken in effect on; default the period's first day.
+    investigation_multiple : float or None
+        Single examinations above this multiple of the strictest applicable level are flagged.
+        Default 2, **common practice** (no standard fixes it); ``None`` switches the rule off.
+    upper_percentile : float
+        Group percentile reported (default 95) and used by ``investigate_above_percentile``.
+    investigate_above_percentile : bool
+        Also flag single examinations above their group's upper percentile (off by default: by
+        construction about 5 % of all examinations are above the 95th percentile).
+    investigate_standard_only : bool
+        Apply the single-examination rules to standard-size patients only (default all, with the
+        patient's weight in the reason).
+    max_exam_flags_per_group : int or None
+        At most this many single-examination flags (investigation level, deviation index) per
+        group, the most extreme first; the rest are counted in one flag per group (default 50: a
+        review is read by people, and a group with hundreds of exceedances has one cause to find).
+        ``None`` lists every one.
+    dap_ratio_tolerance : float
+        Allowed deviation of a room's monthly median reported / reconstructed DAP from 1. Default
+        0.25 after the ±25 % overall accuracy IEC 60580 asks of DAP meters (**from memory**, not
+        read in the standard).
+    dap_ratio_min_events : int
+        Months with fewer events having both DAPs are not judged (default 20).
+    di_range : (float, float)
+        Deviation-index range; exposures outside are flagged. Default ±3, the AAPM TG-116 action
+        limits (from memory, medium confidence).
+    srdl_thresholds : mapping
+        NCRP 168 substantial radiation dose levels per study total (default :data:`NCRP168_SRDL`).
+    srdl_modalities : tuple of str
+        Modalities whose studies are checked against the SRDLs (default RF, XA).
+    cusum_k, cusum_h : float
+        CUSUM reference value and decision interval in robust SDs (default 0.5 and 5, Montgomery).
+    cusum_baseline_months : int
+        Leading months whose median is the CUSUM target (default 6).
+    changepoint_lookback_months : int
+        Months of history (before the period) searched for change-points (default 24).
+    """
+
+    period: Period
+    sites: tuple[str, ...] | None = None
+    rooms: tuple[str, ...] | None = None
+    devices: tuple[str, ...] | None = None
+    exam_types: tuple[str, ...] | None = None
+    group_by: tuple[str, ...] = ("site", "room")
+    weight_window_kg: tuple[float, float] = (50.0, 90.0)
+    basis: Literal["standard", "all"] = "standard"
+    minimum_samples: Mapping[str, int] = field(
+        default_factory=lambda: dict(DEFAULT_MINIMUM_SAMPLES)
+    )
+    confidence_level: float = 0.95
+    levels_on: date | None = None
+    investigation_multiple: float | None = 2.0
+    upper_percentile: float = 95.0
+    investigate_above_percentile: bool = False
+    investigate_standard_only: bool = False
+    max_exam_flags_per_group: int | None = 50
+    dap_ratio_tolerance: float = 0.25
+    dap_ratio_min_events: int = 20
+    di_range: tuple[float, float] = fl.TG116_DI_RANGE
+    srdl_thresholds: Mapping[str, float] = field(default_factory=lambda: dict(fl.NCRP168_SRDL))
+    srdl_modalities: tuple[str, ...] = ("RF", "XA")
+    cusum_k: float = 0.5
+    cusum_h: float = 5.0
+    cusum_baseline_months: int = 6
+    changepoint_lookback_months: int = 24
+
+    def __post_init__(self) -> None:
+        problems = []
+        for name in ("sites", "rooms", "devices", "exam_types"):
+            value = getattr(self, name)
+            if value is not None:
+                object.__setattr__(self, name, tuple(str(v) for v in value))
+        object.__setattr__(self, "group_by", tuple(self.group_by))
+        bad_keys = [k for k in self.group_by if k not in LOCATION_KEYS]
+        if bad_keys or len(set(self.group_by)) != len(self.group_by):
+            problems.append(f"group_by must be distinct keys of {', '.join(LOCATION_KEYS)}")
+        low, high = (float(v) for v in self.weight_window_kg)
+        if not 0 < low < high:
+            problems.append("weight_window_kg must be (low, high) with 0 < low < high")
+        object.__setattr__(self, "weight_window_kg", (low, high))
+        if self.basis not in ("standard", "all"):
+            problems.append("basis must be 'standard' or 'all'")
+        minimum = dict(DEFAULT_MINIMUM_SAMPLES)
+        for group, n in self.minimum_samples.items():
+            if group not in MODALITY_GROUPS:
+                problems.append(f"minimum_samples: unknown modality group {group!r}")
+            elif int(n) != n or n < 1:
+                problems.append(f"minimum_samples[{group!r}] must be a positive integer")
+            else:
+                minimum[group] = int(n)
+        object.__setattr__(self, "minimum_samples", MappingProxyType(minimum))
+        if not 0 < self.confidence_level < 1:
+            problems.append("confidence_level must be between 0 and 1")
+        if self.investigation_multiple is not None and not self.investigation_multiple > 0:
+            problems.append("investigation_multiple must be positive or None")
+        if self.max_exam_flags_per_group is not None and self.max_exam_flags_per_group < 1:
+            problems.append("max_exam_flags_per_group must be at least 1 or None")
+        if not 0 < self.upper_percentile < 100:
+            problems.append("upper_percentile must be between 0 and 100")
+        if not 0 < self.dap_ratio_tolerance < 1:
+            problems.append("dap_ratio_tolerance must be between 0 and 1")
+        if self.dap_ratio_min_events < 1:
+            problems.append("dap_ratio_min_events must be at least 1")
+        di_low, di_high = (float(v) for v in self.di_range)
+        if not di_low < di_high:
+            problems.append("di_range must be (low, high) with low < high")
+        object.__setattr__(self, "di_range", (di_low, di_high))
+        srdl = {}
+        for column, level in self.srdl_thresholds.items():
+            if column not in fl.NCRP168_SRDL:
+                problems.append(
+                    f"srdl_thresholds: {column!r} is not one of {', '.join(fl.NCRP168_SRDL)}"
+                )
+            elif not float(level) > 0:
+                problems.append(f"srdl_thresholds[{column!r}] must be positive")
+            else:
+                srdl[column] = float(level)
+        object.__setattr__(self, "srdl_thresholds", MappingProxyType(srdl))
+        object.__setattr__(self, "srdl_modalities", tuple(m.upper() for m in self.srdl_modalities))
+        if not (self.cusum_k > 0 and self.cusum_h > 0):
+            problems.append("cusum_k and cusum_h must be positive")
+        if self.cusum_baseline_months < 2 or self.changepoint_lookback_months < 0:
+            problems.append("cusum_baseline_months must be >= 2, changepoint_lookback_months >= 0")
+        if problems:
+            raise ReviewError("bad review parameters: " + "; ".join(problems))
+
+    @classmethod
+    def for_month(cls, year: int, month: int, **kwargs: Any) -> ReviewParameters:
+        """Parameters for the calendar month ``year-month`` (the default kind of period)."""
+        return cls(period=Period.month(year, month), **kwargs)
+
+    @property
+    def effective_levels_on(self) -> date:
+        """The date reference levels are taken in effect on."""
+        return self.levels_on or self.period.start
+
+    def to_json_dict(self) -> dict[str, Any]:
+        """Every parameter as plain JSON types (see :meth:`from_json_dict`)."""
+        out: dict[str, Any] = {}
+        for f in fields(self):
+            value = getattr(self, f.name)
+            if isinstance(value, Period):
+                value = value.to_json_dict()
+            elif isinstance(value, date):
+                value = value.isoformat()
+            elif isinstance(value, Mapping):
+                value = dict(sorted(value.items()))
+            elif isinstance(value, tuple):
+                value = list(value)
+            out[f.name] = value
+        return out
+
+    @classmethod
+    def from_json_dict(cls, data: Mapping[str, Any]) -> ReviewParameters:
+        """Parameters from :meth:`to_json_dict`'s output.
+
+        Raises
+        ------
+        ReviewError
+            Unknown keys or bad values.
+        """
+        known = {f.name for f in fields(cls)}
+        unknown = set(data) - known
+        if unknown:
+            raise ReviewError(f"unknown review parameter(s): {', '.join(sorted(unknown))}")
+        kwargs: dict[str, Any] = {}
+        for key, value in data.items():
+            if key == "period":
+                try:
+                    value = Period(
+                        date.fromisoformat(value["start"]), date.fromisoformat(value["end"])
+                    )
+                except (KeyError, TypeError, ValueError) as exc:
+                    raise ReviewError(f"bad period {value!r}") from exc
+            elif key == "levels_on" and value is not None:
+                value = date.fromisoformat(value)
+            elif isinstance(value, list):
+                value = tuple(value)
+            kwargs[key] = value
+        return cls(**kwargs)
+
+
+@dataclass(frozen=True)
+class ReviewResult:
+    """The outcome of :func:`review`.
+
+    Attributes
+    ----------
+    period, parameters
+        As given.
+    groups : DataFrame
+        Columns :data:`GROUP_COLUMNS`, one row per group and applicable level (a group without a
+        level has one row with status ``no_level``), sorted by the group keys, local levels first.
+    flags : tuple of Flag
+        Sorted by :func:`~beamaudit.api.review.flags.sort_flags`.
+    unmapped : DataFrame
+        :func:`~beamaudit.api.review.examtypes.unmapped_summary` of the period's events.
+    monthly : DataFrame
+        Columns :data:`MONTHLY_COLUMNS`: this period's monthly medians (the next run's history).
+    level_sets : tuple of dict
+        Identity (name, kind, version, date, source) of each level-set version in effect.
+    catalogue_fingerprint, software_version : str
+    n_events : int
+        Events in the period and scope.
+    """
+
+    period: Period
+    parameters: ReviewParameters
+    groups: pd.DataFrame
+    flags: tuple[fl.Flag, ...]
+    unmapped: pd.DataFrame
+    monthly: pd.DataFrame
+    level_sets: tuple[dict[str, str], ...]
+    catalogue_fingerprint: str
+    software_version: str
+    n_events: int
+
+    def to_json_dict(self) -> dict[str, Any]:
+        """The whole result in plain JSON types (NaN as ``None``, times as ISO strings)."""
+        return {
+            "period": self.period.to_json_dict(),
+            "software_version": self.software_version,
+            "parameters": self.parameters.to_json_dict(),
+            "level_sets": [dict(s) for s in self.level_sets],
+            "catalogue_fingerprint": self.catalogue_fingerprint,
+            "n_events": self.n_events,
+            "groups": _records(self.groups),
+            "flags": [f.to_json_dict() for f in self.flags],
+            "unmapped": _records(self.unmapped),
+            "monthly": _records(self.monthly),
+        }
+
+
+def _json_value(v: Any) -> Any:
+    if v is None or v is pd.NA:
+        return None
+    if isinstance(v, np.generic):
+        v = v.item()
+    if isinstance(v, float) and not math.isfinite(v):
+        return None
+    if isinstance(v, pd.Timestamp | datetime):
+        return v.isoformat()
+    return v
+
+
+def _records(frame: pd.DataFrame) -> list[dict[str, Any]]:
+    columns = list(frame.columns)
+    return [
+        {c: _json_value(v) for c, v in zip(columns, row, strict=True)}
+        for row in frame.itertuples(index=False, name=None)
+    ]
+
+
+# --------------------------------------------------------------------------------------- the review
+def _select(events: pd.DataFrame, params: ReviewParameters) -> pd.DataFrame:
+    start = np.datetime64(params.period.start.isoformat(), "ns")
+    end = np.datetime64(params.period.end.isoformat(), "ns")
+    when = events["event_datetime"].to_numpy()
+    keep = (when >= start) & (when < end)
+    for column, allowed in (
+        ("site", params.sites),
+        ("room", params.rooms),
+        ("device", params.devices),
+    ):
+        if allowed is not None:
+            keep &= events[column].isin(list(allowed)).to_numpy()
+    return events.loc[keep].reset_index(drop=True)
+
+
+def _with_location_keys(frame: pd.DataFrame, group_by: Sequence[str]) -> pd.DataFrame:
+    """Blank the location columns that are not group keys (so they do not split groups)."""
+    for c in LOCATION_KEYS:
+        if c not in group_by:
+            frame[c] = pd.Categorical.from_codes(np.full(len(frame), -1), categories=[])
+    return frame
+
+
+def _group_table(
+    units: pd.DataFrame,
+    levels: pd.DataFrame,
+    catalogue: ExamCatalogue,
+    params: ReviewParameters,
+) -> tuple[pd.DataFrame, np.ndarray, np.ndarray]:
+    """The group table, each unit's group code, and each group's upper percentile."""
+    keys = [*LOCATION_KEYS, "exam_type", "quantity"]
+    weight = units["patient_weight_kg"].to_numpy(dtype=np.float64)
+    low, high = params.weight_window_kg
+    standard = (weight >= low) & (weight <= high)
+    used = standard if params.basis == "standard" else np.ones(len(units), dtype=bool)
+    if len(units) == 0:
+        return pd.DataFrame(columns=list(GROUP_COLUMNS)), np.zeros(0, np.int64), np.zeros(0)
+    codes, table = group_codes(units, keys)
+    n_groups = len(table)
+    table["n"] = np.bincount(codes, minlength=n_groups).astype(np.int64)
+    values = units["value"].to_numpy(dtype=np.float64)
+    stats = group_statistics(
+        codes,
+        np.where(used, values, np.nan),
+        n_groups,
+        confidence_level=params.confidence_level,
+        upper_percentile=params.upper_percentile,
+    )
+    table["n_standard"] = np.bincount(codes, weights=standard, minlength=n_groups).astype(np.int64)
+    table["n_used"] = stats.n
+    table["basis"] = params.basis
+    for column, series in stats.to_frame().drop(columns="n").items():
+        table[column] = series.to_numpy()
+    has_weight = used & ~np.isnan(weight)
+    weight_sum = np.bincount(codes, weights=np.where(has_weight, weight, 0.0), minlength=n_groups)
+    weight_n = np.bincount(codes, weights=has_weight, minlength=n_groups)
+    with np.errstate(invalid="ignore", divide="ignore"):
+        table["mean_weight_kg"] = np.where(weight_n > 0, weight_sum / weight_n, np.nan)
+    exam = {t.exam_type: t for t in catalogue}
+    table["modality_group"] = table["exam_type"].map(lambda e: exam[e].modality_group)
+    table["level_applies_per"] = table["exam_type"].map(lambda e: exam[e].level_applies_per)
+    table["unit"] = table["quantity"].map(lambda q: QUANTITIES[q].unit)
+    table["n_minimum"] = table["modality_group"].map(dict(params.minimum_samples)).astype(np.int64)
+    table["_group"] = np.arange(n_groups)
+    merged = table.merge(levels, on=["exam_type", "quantity"], how="left", sort=False)
+    merged["_local_first"] = (merged["level_kind"] != "local").astype(int)
+    merged = merged.sort_values(
+        ["_group", "_local_first", "level_set"], kind="mergesort", na_position="last"
+    ).reset_index(drop=True)
+    level = merged["reference_level"].to_numpy(dtype=np.float64)
+    with np.errstate(invalid="ignore", divide="ignore"):
+        merged["ratio_to_level"] = merged["median"].to_numpy(dtype=np.float64) / level
+    merged["status"] = classify_status(
+        n=merged["n_used"].to_numpy(),
+        n_minimum=merged["n_minimum"].to_numpy(),
+        median=merged["median"].to_numpy(dtype=np.float64),
+        ci_low=merged["ci_low"].to_numpy(dtype=np.float64),
+        level=level,
+    )
+    out = merged.loc[:, list(GROUP_COLUMNS)]
+    for c in ("level_set", "level_kind", "level_version", "level_effective_from", "level_source"):
+        out[c] = out[c].astype(object).where(out[c].notna(), None)
+    return out, codes, stats.upper
+
+
+def _investigation_units(
+    units: pd.DataFrame,
+    levels: pd.DataFrame,
+    upper: np.ndarray,
+    codes: np.ndarray,
+    params: ReviewParameters,
+) -> pd.DataFrame:
+    """Units with their strictest applicable level and their group's upper percentile."""
+    frame = units.copy()
+    frame["percentile_value"] = upper[codes] if len(codes) else np.zeros(0)
+    frame["percentile"] = params.upper_percentile
+    if len(levels):
+        order = levels.sort_values(
+            ["exam_type", "quantity", "reference_level", "level_set"], kind="mergesort"
+        )
+        strictest = order.drop_duplicates(["exam_type", "quantity"], keep="first")
+    else:
+        strictest = levels
+    strictest = strictest.loc[
+        :, ["exam_type", "quantity", "reference_level", "level_set", "level_version"]
+    ]
+    frame = frame.merge(strictest, on=["exam_type", "quantity"], how="left", sort=False)
+    frame = frame.rename(columns={"reference_level": "level_value"})
+    if params.investigate_standard_only:
+        low, high = params.weight_window_kg
+        w = frame["patient_weight_kg"].to_numpy(dtype=np.float64)
+        frame = frame.loc[(w >= low) & (w <= high)]
+    return frame
+
+
+def _dap_ratios(events: pd.DataFrame, group_by: Sequence[str]) -> pd.DataFrame:
+    dap = events["dap_gy_cm2"].to_numpy(dtype=np.float64)
+    recon = events["recon_dap_gy_cm2"].to_numpy(dtype=np.float64)
+    both = (dap > 0) & (recon > 0)
+    frame = events.loc[both, [*LOCATION_KEYS, "month_key"]].copy()
+    frame["ratio"] = dap[both] / recon[both]
+    frame = _with_location_keys(frame, group_by)
+    out = _median_by(frame, [*LOCATION_KEYS, "month_key"], "ratio")
+    out["month"] = month_labels(out["month_key"])
+    out["exam_type"] = None
+    out["quantity"] = fl.DAP_RATIO_QUANTITY
+    return out.loc[:, list(MONTHLY_COLUMNS)]
+
+
+def _median_by(frame: pd.DataFrame, keys: list[str], column: str) -> pd.DataFrame:
+    codes, table = group_codes(frame, keys)
+    grouped = frame[column].groupby(codes, sort=True)
+    table["n"] = grouped.size().to_numpy(dtype=np.int64)
+    table["median"] = grouped.median().to_numpy(dtype=np.float64)
+    return table
+
+
+def _monthly_medians(units: pd.DataFrame, params: ReviewParameters) -> pd.DataFrame:
+    low, high = params.weight_window_kg
+    if params.basis == "standard":
+        w = units["patient_weight_kg"].to_numpy(dtype=np.float64)
+        units = units.loc[(w >= low) & (w <= high)]
+    out = _median_by(units, [*LOCATION_KEYS, "exam_type", "quantity", "month_key"], "value")
+    out["month"] = month_labels(out["month_key"])
+    return out.loc[:, list(MONTHLY_COLUMNS)]
+
+
+def _check_history(history: pd.DataFrame) -> pd.DataFrame:
+    missing = [c for c in MONTHLY_COLUMNS if c not in history.columns]
+    if missing:
+        raise ReviewInputError(f"the history table lacks the column(s) {', '.join(missing)}")
+    out = history.loc[:, list(MONTHLY_COLUMNS)].copy()
+    months = out["month"].astype(str)
+    if not months.str.fullmatch(r"\d{4}-\d{2}").all():
+        raise ReviewInputError("history month values must be YYYY-MM")
+    out["month"] = months
+    for c in ("site", "room", "device", "exam_type", "quantity"):
+        out[c] = out[c].astype(object).where(out[c].notna(), None)
+    try:
+        out["n"] = pd.to_numeric(out["n"]).astype(np.int64)
+        out["median"] = pd.to_numeric(out["median"]).astype(np.float64)
+    except (ValueError, TypeError) as exc:
+        raise ReviewInputError(f"history n and median must be numeric: {exc}") from exc
+    return out
+
+
+def _changepoint_series(
+    monthly: pd.DataFrame,
+    history: pd.DataFrame | None,
+    catalogue: ExamCatalogue,
+    params: ReviewParameters,
+) -> pd.DataFrame:
+    """History (within the lookback, before the period) plus this period, thin months dropped."""
+    frames = [monthly]
+    if history is not None and len(history):
+        past = _check_history(history)
+        first = _month_key(params.period.start)
+        keys = np.array([int(m[:4]) * 12 + int(m[5:7]) - 1 for m in past["month"]], dtype=np.int64)
+        keep = (keys < first) & (keys >= first - params.changepoint_lookback_months)
+        past = _with_location_keys(past.loc[keep].copy(), params.group_by)
+        frames.insert(0, past)
+    series = pd.concat(frames, ignore_index=True) if len(frames) > 1 else monthly.copy()
+    group_of = {t.exam_type: t.modality_group for t in catalogue}
+    minimum = dict(params.minimum_samples)
+    # months thinner than the group's minimum sample (unknown exam types: never enough) are dropped
+    needed = series["exam_type"].map(group_of).map(minimum).fillna(np.iinfo(np.int64).max)
+    is_ratio = (series["quantity"] == fl.DAP_RATIO_QUANTITY).to_numpy()
+    needed = np.where(is_ratio, params.dap_ratio_min_events, needed.to_numpy(dtype=np.float64))
+    series = series.loc[series["n"].to_numpy() >= needed]
+    return series.drop_duplicates([*LOCATION_KEYS, "exam_type", "quantity", "month"], keep="last")
+
+
+def review(
+    events: pd.DataFrame,
+    *,
+    levels: Sequence[ReferenceLevelSet],
+    params: ReviewParameters,
+    history: pd.DataFrame | None = None,
+    catalogue: ExamCatalogue | None = None,
+    rules: MappingRules | None = None,
+) -> ReviewResult:
+    """Review the events of ``params.period`` against reference levels.
+
+    Parameters
+    ----------
+    events : DataFrame
+        The events table (contract in :mod:`beamaudit.api.review.events`); events outside the
+        period or scope are ignored, so a superset may be passed.
+    levels : sequence of ReferenceLevelSet
+        Every version of every set (local and national); those in effect are chosen here.
+    params : ReviewParameters
+        Every parameter of the run.
+    history : DataFrame, optional
+        Earlier months' medians (columns :data:`MONTHLY_COLUMNS`, e.g. earlier results'
+        ``monthly``) for change-points; months inside the period are ignored.
+    catalogue : ExamCatalogue, optional
+        Default: the shipped catalogue.
+    rules : MappingRules, optional
+        When given, events without an exam type are mapped with them first (mapped ones are kept).
+
+    Returns
+    -------
+    ReviewResult
+
+    Raises
+    ------
+    ReviewInputError
+        The events or history table breaks its contract.
+    ReviewError
+        Inconsistent level sets.
+    """
+    catalogue = catalogue or load_default_catalogue()
+    in_effect = levels_in_effect(levels, params.effective_levels_on)
+    level_rows = levels_table(in_effect, params.effective_levels_on)
+    prepared = _select(prepare_events(events), params)
+    if rules is not None and len(prepared):
+        given = prepared["exam_type"].astype(object)
+        filled = given.where(given.notna(), map_events(prepared, rules))
+        prepared["exam_type"] = pd.Categorical(filled.where(filled.notna(), None))
+    unmapped = unmapped_summary(prepared)
+    scoped = prepared
+    if params.exam_types is not None:
+        scoped = prepared.loc[prepared["exam_type"].isin(list(params.exam_types))].reset_index(
+            drop=True
+        )
+    known = scoped["exam_type"].isin([t.exam_type for t in catalogue]).to_numpy()
+
+    located = build_units(scoped.loc[known], catalogue)  # each unit keeps its own location
+    units = _with_location_keys(located.copy(), params.group_by)
+    groups, codes, upper = _group_table(units, level_rows, catalogue, params)
+    flags: list[fl.Flag] = []
+    flags += fl.groups_above_level(groups)
+    flags += fl.exams_above_investigation_level(
+        _investigation_units(located, level_rows, upper, codes, params),
+        multiple=params.investigation_multiple,
+        above_percentile=params.investigate_above_percentile,
+        max_per_group=params.max_exam_flags_per_group,
+    )
+    studies = study_table(scoped, list(params.srdl_thresholds))
+    fluoro = studies.loc[studies["modality"].isin(list(params.srdl_modalities))]
+    flags += fl.srdl_exceeded(fluoro, thresholds=params.srdl_thresholds)
+    ratios = _dap_ratios(scoped, params.group_by)
+    flags += fl.dap_ratio_out_of_tolerance(
+        ratios, tolerance=params.dap_ratio_tolerance, min_events=params.dap_ratio_min_events
+    )
+    monthly = pd.concat([_monthly_medians(units, params), ratios], ignore_index=True)
+    flags += fl.changepoints(
+        _changepoint_series(monthly, history, catalogue, params),
+        series_keys=[*LOCATION_KEYS, "exam_type", "quantity"],
+        k=params.cusum_k,
+        h=params.cusum_h,
+        baseline_points=params.cusum_baseline_months,
+    )
+    flags += fl.deviation_index_out_of_range(
+        scoped, di_range=params.di_range, max_per_group=params.max_exam_flags_per_group
+    )
+    flags += fl.no_dose_data(studies)
+    flags += fl.unknown_exam_types(scoped, {t.exam_type for t in catalogue})
+    flags += fl.unmapped_events(unmapped)
+    return ReviewResult(
+        period=params.period,
+        parameters=params,
+        groups=groups,
+        flags=tuple(fl.sort_flags(flags)),
+        unmapped=unmapped,
+        monthly=monthly,
+        level_sets=tuple(s.describe() for s in in_effect),
+        catalogue_fingerprint=catalogue.fingerprint(),
+        software_version=beamaudit.__version__,
+        n_events=len(scoped),
+    )
