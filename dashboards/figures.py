@@ -340,7 +340,26 @@ def build_distribution(
         A table breaks its contract, or ``quantity`` is not a dose column.
     """
     _check_quantity(quantity)
-    table = EVENTS.validate(events)
+    return _distribution(
+        EVENTS.validate(events),
+        None if levels is None else LEVELS.validate(levels),
+        quantity=quantity,
+        exam_type=exam_type,
+        log_y=log_y,
+        title=title,
+    )
+
+
+def _distribution(
+    table: pd.DataFrame,
+    levels: pd.DataFrame | None,
+    *,
+    quantity: str,
+    exam_type: str,
+    log_y: bool = False,
+    title: str | None = None,
+) -> go.Figure:
+    """:func:`build_distribution` on tables already validated (``EVENTS``, ``LEVELS``)."""
     rows = table[(table["exam_type"] == exam_type) & table[quantity].notna()]
     fig = go.Figure()
     _style(
@@ -395,8 +414,7 @@ def build_distribution(
     return fig
 
 
-def _draw_levels(fig: go.Figure, levels: TableLike, *, exam_type: str, quantity: str) -> None:
-    table = LEVELS.validate(levels)
+def _draw_levels(fig: go.Figure, table: pd.DataFrame, *, exam_type: str, quantity: str) -> None:
     mine = table[
         (table["exam_type"] == exam_type)
         & (table["quantity"] == quantity)
@@ -459,7 +477,20 @@ def build_room_history(
         One line trace per examination type, then one marker trace named
         ``"Change detected"`` if any change point exists.
     """
-    table = ROOM_HISTORY.validate(history)
+    return _room_history(
+        ROOM_HISTORY.validate(history), quantity=quantity, room=room, log_y=log_y, title=title
+    )
+
+
+def _room_history(
+    table: pd.DataFrame,
+    *,
+    quantity: str,
+    room: str | None = None,
+    log_y: bool | None = None,
+    title: str | None = None,
+) -> go.Figure:
+    """:func:`build_room_history` on a ``ROOM_HISTORY`` table already validated."""
     rows = table[table["quantity"] == quantity].sort_values("month")
     default = f"{room + ': ' if room else ''}monthly median {quantity_short(quantity)}"
     fig = go.Figure()
@@ -572,7 +603,13 @@ def build_dap_ratio_history(
     TableError
         The table breaks its contract, or the band differs within a month.
     """
-    table = ROOM_HISTORY.validate(history)
+    return _dap_ratio_history(ROOM_HISTORY.validate(history), room=room, title=title)
+
+
+def _dap_ratio_history(
+    table: pd.DataFrame, *, room: str | None = None, title: str | None = None
+) -> go.Figure:
+    """:func:`build_dap_ratio_history` on a ``ROOM_HISTORY`` table already validated."""
     rows = table[table["dap_ratio_median"].notna()].sort_values("month")
     default = f"{room + ': ' if room else ''}reported ÷ reconstructed DAP"
     fig = go.Figure()
@@ -628,8 +665,9 @@ def build_dap_ratio_history(
                 hovertemplate="%{x|%b %Y}: %{y:.3f}<extra>%{fullData.name}</extra>",
             )
         )
+    drawn = pd.concat([part for _, part in groups])
     if not band.empty:
-        merged = rows.merge(band, on="month", suffixes=("_row", ""))
+        merged = drawn.merge(band, on="month", suffixes=("_row", ""))
         outside = merged[
             (merged["dap_ratio_median"] < merged["tolerance_low"])
             | (merged["dap_ratio_median"] > merged["tolerance_high"])

@@ -30,7 +30,15 @@ from markupsafe import Markup
 from beamaudit.dashboards import figures
 from beamaudit.dashboards.errors import DashboardError
 from beamaudit.dashboards.records import parse_exam
-from beamaudit.dashboards.tables import EVENTS, FLAGS, GROUPS, LEVELS, ROOM_HISTORY, TableLike
+from beamaudit.dashboards.tables import (
+    EVENTS,
+    FLAGS,
+    GROUPS,
+    LEVELS,
+    PERIOD_PATTERN,
+    ROOM_HISTORY,
+    TableLike,
+)
 from beamaudit.dashboards.wording import (
     CAUTION,
     FLAG_STATUS_WORDS,
@@ -70,7 +78,6 @@ ROUTES: dict[str, str] = {
     "login": "/login",
 }
 
-_PERIOD = re.compile(r"^\d{4}-(0[1-9]|1[0-2])$")
 _NAV = (
     ("/", "Overview", "overview"),
     ("/distributions", "Distributions", "distributions"),
@@ -189,7 +196,7 @@ def _distributions_href(**filters: str | None) -> str:
 
 
 def _check_period(period: str, what: str = "period") -> str:
-    if not isinstance(period, str) or not _PERIOD.match(period):
+    if not isinstance(period, str) or not PERIOD_PATTERN.match(period):
         raise DashboardError(f"{what} must be a month written YYYY-MM, got {period!r}")
     return period
 
@@ -395,9 +402,7 @@ def _distribution_blocks(
         for q in quantities:
             if q not in rows.columns or not rows[q].notna().any():
                 continue
-            fig = figures.build_distribution(
-                rows, quantity=q, exam_type=exam, levels=levels, log_y=log_y
-            )
+            fig = figures._distribution(rows, levels, quantity=q, exam_type=exam, log_y=log_y)
             if width_px is not None:
                 fig.update_layout(width=width_px)
             fig_id = f"{id_prefix}-{len(blocks)}"
@@ -492,12 +497,12 @@ def render_room(
     table = ROOM_HISTORY.validate(history)
     quantities = sorted(table.loc[table["median"].notna(), "quantity"].unique())
     blocks = [
-        _figure_block(figures.build_room_history(table, quantity=q, room=room), f"history-{i}")
+        _figure_block(figures._room_history(table, quantity=q, room=room), f"history-{i}")
         for i, q in enumerate(quantities)
     ]
     ratio_block = None
     if table["dap_ratio_median"].notna().any():
-        ratio_block = _figure_block(figures.build_dap_ratio_history(table, room=room), "dap-ratio")
+        ratio_block = _figure_block(figures._dap_ratio_history(table, room=room), "dap-ratio")
     flag_rows = _flag_rows(FLAGS.validate(flags if flags is not None else []), room=room)
     changes = table[table["change_point"]].sort_values("month")
     return _render(
@@ -792,10 +797,11 @@ def render_committee_report(
         event_table = EVENTS.validate(events)
         concern = table[table["status"].isin(["above_level", "possibly_above"])]
         pairs = sorted(set(zip(concern["exam_type"], concern["quantity"], strict=True)))
+        level_table = LEVELS.validate(table)
         for k, (exam, q) in enumerate(p for p in pairs if p[1] in figures.EVENT_QUANTITIES):
             blocks += _distribution_blocks(
                 event_table,
-                LEVELS.validate(table),
+                level_table,
                 exam_type=exam,
                 quantity=q,
                 log_y=False,

@@ -72,6 +72,7 @@ The drill-down of one examination is a nested record rather than a table; see
 
 from __future__ import annotations
 
+import re
 from collections.abc import Callable, Iterable, Mapping
 from dataclasses import dataclass, field
 from typing import Any, Literal, TypeAlias
@@ -86,6 +87,7 @@ __all__ = [
     "FLAGS",
     "GROUPS",
     "LEVELS",
+    "PERIOD_PATTERN",
     "ROOM_HISTORY",
     "Column",
     "Rule",
@@ -345,6 +347,9 @@ def _coerce_time(table: str, col: Column, raw: pd.Series, empty: pd.Series) -> p
 
 
 _STATUSES = ("above_level", "possibly_above", "below_level", "insufficient_sample", "no_level")
+#: A review period: a calendar month written ``YYYY-MM``.
+PERIOD_PATTERN = re.compile(r"^\d{4}-(0[1-9]|1[0-2])$")
+
 _OPTIONAL: dict[str, Any] = {"required": False, "nullable": True, "minimum": 0}
 _QUANTITY = "DRL quantity: a field name with its unit suffix, e.g. 'dap_gy_cm2'"
 
@@ -404,6 +409,12 @@ FLAGS = TableSpec(
         Column("period", "str", "", "review period, YYYY-MM"),
         Column("status", "str", "", "flag status", choices=("open", "acknowledged", "closed")),
         Column("raised_at", "datetime", "", "when raised (UTC)", required=False, nullable=True),
+    ),
+    rules=(
+        Rule(
+            "'period' must be a month written YYYY-MM",
+            lambda t: ~t["period"].map(lambda p: bool(PERIOD_PATTERN.match(str(p)))).astype(bool),
+        ),
     ),
 )
 
