@@ -255,7 +255,9 @@ class Pipeline:
                 room_id=room.id if room else None,
                 source_kind=event.source_kind,
                 event_index=event.event_index,
-                filters=[{"material": f.material, "thickness_mm": f.thickness_mm} for f in event.filters]
+                filters=[
+                    {"material": f.material, "thickness_mm": f.thickness_mm} for f in event.filters
+                ]
                 or None,
                 receptor_geometry={
                     name: list(getattr(event, name))

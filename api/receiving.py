@@ -45,7 +45,9 @@ def make_store_handler(
         except IngestError as exc:
             try:
                 pipeline.record_error(
-                    exc, received_via=received_via, source=source,
+                    exc,
+                    received_via=received_via,
+                    source=source,
                     sop_instance_uid=received.sop_instance_uid,
                 )
             except SQLAlchemyError:
@@ -59,10 +61,13 @@ def make_store_handler(
         if outcome.status == "conflict":
             pipeline.record_error(
                 IngestError("bad_value", outcome.reason or "conflict", source),
-                received_via=received_via, source=source,
+                received_via=received_via,
+                source=source,
                 sop_instance_uid=received.sop_instance_uid,
             )
-            return StoreOutcome.cannot_understand(outcome.reason or "conflicts with a stored object")
+            return StoreOutcome.cannot_understand(
+                outcome.reason or "conflicts with a stored object"
+            )
         if after_store is not None and outcome.event_ids:
             try:
                 after_store(outcome.event_ids)

@@ -95,16 +95,35 @@ class _BeamCache:
     def __init__(self) -> None:
         self._cache: dict[tuple[Any, ...], Any] = {}
 
-    def get(self, *, kvp_kv: float, filters: tuple[Any, ...] | None, room: m.Room | None, calibration: Any) -> Any:
+    def get(
+        self,
+        *,
+        kvp_kv: float,
+        filters: tuple[Any, ...] | None,
+        room: m.Room | None,
+        calibration: Any,
+    ) -> Any:
         from beamaudit.model import BeamInputs, BeamSpec, compute_beam, tissue_to_air_ratio
 
         anode = _anode_symbol(room.anode_material if room else None)
         angle = room.anode_angle_deg if room else 12.0
         ripple = room.ripple_percent if room else 0.0
-        key = (round(kvp_kv, 1), filters, anode, angle, ripple, id(calibration) if calibration else None)
+        key = (
+            round(kvp_kv, 1),
+            filters,
+            anode,
+            angle,
+            ripple,
+            id(calibration) if calibration else None,
+        )
         if key not in self._cache:
-            spec = BeamSpec(kv=round(kvp_kv, 1), filters=filters, anode=anode,
-                            anode_angle_deg=angle, ripple_percent=ripple)
+            spec = BeamSpec(
+                kv=round(kvp_kv, 1),
+                filters=filters,
+                anode=anode,
+                anode_angle_deg=angle,
+                ripple_percent=ripple,
+            )
             result = compute_beam(spec, calibration=calibration)
             self._cache[key] = BeamInputs.from_beam_result(
                 result, tissue_to_air_ratio=float(tissue_to_air_ratio(result))
@@ -112,8 +131,16 @@ class _BeamCache:
         return self._cache[key]
 
 
-def _filters(room: m.Room | None, event: m.ExposureEventRow) -> tuple[Any, ...] | None:
-    """Room filtration (or None: the model's default, assumed) plus the event's added filters."""
+def _filters(
+    room: m.Room | None, event: m.ExposureEventRow, calibration: Any
+) -> tuple[Any, ...] | None:
+    """The beam's filtration for the model.
+
+    With a calibration that fitted the room's inherent filtration, only the
+    event's added filters are passed (the model adds the fitted inherent
+    filtration). Otherwise: the room's configured total filtration (or the
+    model's default, assumed) plus the event's added filters.
+    """
     from beamaudit.model import FilterSpec, default_filters
 
     layers: list[Any] = []
@@ -124,6 +151,8 @@ def _filters(room: m.Room | None, event: m.ExposureEventRow) -> tuple[Any, ...] 
         for f in (event.filters or [])
         if float(f.get("thickness_mm") or 0) > 0
     ]
+    if calibration is not None and calibration.inherent_filtration_mm_al is not None:
+        return tuple(event_layers)
     if not layers and not event_layers:
         return None
     if not layers:
@@ -173,12 +202,16 @@ def reconstruct_events(
         with session_factory.begin() as session:
             rooms: dict[int, m.Room | None] = {}
             calibrations: dict[int, Any] = {}
-            for event in session.scalars(select(m.ExposureEventRow).where(m.ExposureEventRow.id.in_(chunk))):
+            for event in session.scalars(
+                select(m.ExposureEventRow).where(m.ExposureEventRow.id.in_(chunk))
+            ):
                 room = None
                 if event.room_id is not None:
                     if event.room_id not in rooms:
                         rooms[event.room_id] = session.get(m.Room, event.room_id)
-                        calibrations[event.room_id] = calibration_for_room(session, rooms[event.room_id])
+                        calibrations[event.room_id] = calibration_for_room(
+                            session, rooms[event.room_id]
+                        )
                     room = rooms[event.room_id]
                 calibration = calibrations.get(event.room_id) if event.room_id else None
                 _reconstruct_one(event, room, calibration, cache, summary)
@@ -186,7 +219,11 @@ def reconstruct_events(
 
 
 def _reconstruct_one(
-    event: m.ExposureEventRow, room: m.Room | None, calibration: Any, cache: _BeamCache, summary: ReconSummary
+    event: m.ExposureEventRow,
+    room: m.Room | None,
+    calibration: Any,
+    cache: _BeamCache,
+    summary: ReconSummary,
 ) -> None:
     from beamaudit.model import ModelError, dose_from_beam
 
@@ -199,7 +236,12 @@ def _reconstruct_one(
         summary.no_technique += 1
         return
     try:
-        beam = cache.get(kvp_kv=event.kvp_kv, filters=_filters(room, event), room=room, calibration=calibration)
+        beam = cache.get(
+            kvp_kv=event.kvp_kv,
+            filters=_filters(room, event, calibration),
+            room=room,
+            calibration=calibration,
+        )
         dose = dose_from_beam(
             beam,
             exposure_mas=event.exposure_mas,
@@ -223,7 +265,9 @@ def _reconstruct_one(
     event.recon_esak_mgy = dose.esak.value if dose.esak else None
     event.recon_esak_u_mgy = dose.esak.standard_uncertainty if dose.esak else None
     event.recon_entrance_dose_mgy = dose.entrance_dose.value if dose.entrance_dose else None
-    event.recon_backscatter_factor = dose.backscatter_factor.value if dose.backscatter_factor else None
+    event.recon_backscatter_factor = (
+        dose.backscatter_factor.value if dose.backscatter_factor else None
+    )
     event.recon_fsd_mm = dose.fsd.value
     event.recon_calibrated = dose.calibrated
     event.dap_ratio_reported_to_recon = (

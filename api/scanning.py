@@ -88,7 +88,9 @@ def _parsed(
         _init_worker(key)
         yield from map(_parse_one, names)
         return
-    with ProcessPoolExecutor(max_workers=workers, initializer=_init_worker, initargs=(key,)) as pool:
+    with ProcessPoolExecutor(
+        max_workers=workers, initializer=_init_worker, initargs=(key,)
+    ) as pool:
         yield from pool.map(_parse_one, names, chunksize=32)
 
 
@@ -137,7 +139,9 @@ def scan_paths(
         if kind == "dicomdir":
             summary.skipped += 1
         elif isinstance(result, IngestError):
-            summary.errors.append({"source": path_text, "code": result.code, "reason": result.reason})
+            summary.errors.append(
+                {"source": path_text, "code": result.code, "reason": result.reason}
+            )
             pending_errors.append((result, path_text))
         elif isinstance(result, ParseResult):
             batch.append((result, path_text, None))
@@ -163,7 +167,9 @@ def _count(
         summary.duplicates += 1
     else:
         reason = outcome.reason or "conflicts with a stored object"
-        summary.errors.append({"source": source or outcome.sop_instance_uid, "code": "conflict", "reason": reason})
+        summary.errors.append(
+            {"source": source or outcome.sop_instance_uid, "code": "conflict", "reason": reason}
+        )
         pending_errors.append((IngestError("bad_value", reason, source), source))
 
 

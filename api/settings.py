@@ -71,9 +71,7 @@ class Settings(BaseSettings):
     @classmethod
     def _known_backend(cls, value: str) -> str:
         if not (value.startswith("sqlite") or value.startswith("postgresql")):
-            raise ValueError(
-                "database_url must start with sqlite:/// or postgresql+psycopg://"
-            )
+            raise ValueError("database_url must start with sqlite:/// or postgresql+psycopg://")
         if value.startswith("postgresql://") or value.startswith("postgres://"):
             value = "postgresql+psycopg://" + value.split("://", 1)[1]
         return value

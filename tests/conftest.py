@@ -8,43 +8,22 @@ is a failure, not a skip.
 
 from __future__ import annotations
 
-import os
 import sys
 import uuid
 from collections.abc import Iterator
-from dataclasses import dataclass
 from pathlib import Path
 
 import pytest
 
-sys.path.insert(0, str(Path(__file__).parent))
+# Tests run in importlib mode (test files may share base names across folders); their
+# helper modules (peers.py, rdsr_builders.py, ...) are imported by name from their folder.
+_TESTS = Path(__file__).parent
+_FOLDERS = sorted(p for p in _TESTS.rglob("*") if p.is_dir() and p.name != "__pycache__")
+for _folder in [_TESTS, *_FOLDERS]:
+    if str(_folder) not in sys.path:
+        sys.path.insert(0, str(_folder))
 
-POSTGRES_ENV = "BEAMAUDIT_TEST_POSTGRES_URL"
-
-
-def in_ci() -> bool:
-    return os.environ.get("CI") == "true"
-
-
-@dataclass
-class StoreHandle:
-    """What a store test needs: the URL, an engine and a session factory, migrated to head."""
-
-    backend: str
-    url: str
-    engine: object
-    session_factory: object
-    connect_args: dict[str, object]
-
-
-def _postgres_url() -> str | None:
-    url = os.environ.get(POSTGRES_ENV)
-    if not url:
-        reason = f"{POSTGRES_ENV} is not set (PostgreSQL store tests need it)"
-        if in_ci():
-            pytest.fail(f"CI=true but {reason}")
-        pytest.skip(reason)
-    return url
+from store_support import StoreHandle, _postgres_url, in_ci  # noqa: E402,F401
 
 
 @pytest.fixture(params=["sqlite", pytest.param("postgresql", marks=pytest.mark.postgres)])

@@ -12,7 +12,15 @@ from rich.console import Console
 if TYPE_CHECKING:
     from beamaudit.api.settings import Settings
 
-__all__ = ["EXIT_FAILURE", "EXIT_PARTIAL", "EXIT_USAGE", "console", "err_console", "fail", "load_settings"]
+__all__ = [
+    "EXIT_FAILURE",
+    "EXIT_PARTIAL",
+    "EXIT_USAGE",
+    "console",
+    "err_console",
+    "fail",
+    "load_settings",
+]
 
 #: Exit codes every command shares (0 is success).
 EXIT_PARTIAL = 1  # some input was rejected, everything else done

@@ -13,9 +13,15 @@ __all__ = ["register"]
 
 def listen_command(
     ctx: typer.Context,
-    ae_title: Annotated[str | None, typer.Option(help="Our AE title (default from settings: BEAMAUDIT).")] = None,
-    port: Annotated[int | None, typer.Option(min=1, max=65535, help="TCP port (default 11112).")] = None,
-    host: Annotated[str | None, typer.Option(help="Address to bind (default from settings).")] = None,
+    ae_title: Annotated[
+        str | None, typer.Option(help="Our AE title (default from settings: BEAMAUDIT).")
+    ] = None,
+    port: Annotated[
+        int | None, typer.Option(min=1, max=65535, help="TCP port (default 11112).")
+    ] = None,
+    host: Annotated[
+        str | None, typer.Option(help="Address to bind (default from settings).")
+    ] = None,
     allow: Annotated[
         list[str] | None,
         typer.Option("--allow", help="Accept only this calling AE title (repeatable)."),

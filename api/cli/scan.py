@@ -11,7 +11,7 @@ import typer
 
 from beamaudit.api.cli._common import EXIT_PARTIAL, console, fail
 
-__all__ = ["register", "pseudonym_key"]
+__all__ = ["pseudonym_key", "register"]
 
 
 def pseudonym_key(path: Path) -> bytes:
@@ -34,7 +34,9 @@ def scan_command(
     workers: Annotated[
         int, typer.Option(min=1, max=64, help="Parser processes (default 1: in this process).")
     ] = 1,
-    as_json: Annotated[bool, typer.Option("--json", help="Print the summary as one JSON object.")] = False,
+    as_json: Annotated[
+        bool, typer.Option("--json", help="Print the summary as one JSON object.")
+    ] = False,
 ) -> None:
     """Scan folders of DICOM files: store their exposure events, record every rejected file.
 
@@ -57,13 +59,20 @@ def scan_command(
     show_progress = sys.stderr.isatty() and not as_json
     if show_progress:
         progress = Progress(
-            TextColumn("scanning"), BarColumn(), MofNCompleteColumn(), TimeElapsedColumn(),
-            transient=True, console=console,
+            TextColumn("scanning"),
+            BarColumn(),
+            MofNCompleteColumn(),
+            TimeElapsedColumn(),
+            transient=True,
+            console=console,
         )
         with progress:
             task = progress.add_task("scan", total=None)
             summary = scan_paths(
-                paths, pipeline=pipeline, key=key, workers=workers,
+                paths,
+                pipeline=pipeline,
+                key=key,
+                workers=workers,
                 on_file=lambda _p: progress.advance(task),
             )
     else:

@@ -36,12 +36,16 @@ def create_command(
     store = open_store(ctx)
     with store.sessions.begin() as session:
         token_id, token = create_token(session, role=role, name=name, actor=_actor())  # type: ignore[arg-type]
-    console.print(f"token {token_id} ({role}) created; it is shown only this once:", highlight=False)
+    console.print(
+        f"token {token_id} ({role}) created; it is shown only this once:", highlight=False
+    )
     typer.echo(token)
 
 
 @token_app.command("revoke")
-def revoke_command(ctx: typer.Context, token_id: Annotated[int, typer.Argument(metavar="ID")]) -> None:
+def revoke_command(
+    ctx: typer.Context, token_id: Annotated[int, typer.Argument(metavar="ID")]
+) -> None:
     """Revoke a token by its id."""
     from beamaudit.api.auth import AuthError, revoke_token
     from beamaudit.api.cli._store import open_store

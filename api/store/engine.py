@@ -49,7 +49,10 @@ def make_engine(database_url: str, **kwargs: Any) -> Engine:
         raise StoreError(f"database URL {database_url!r} is not a valid URL") from None
     try:
         if url.get_backend_name() == "sqlite":
-            connect_args = {"timeout": SQLITE_BUSY_TIMEOUT_MS / 1000, **kwargs.pop("connect_args", {})}
+            connect_args = {
+                "timeout": SQLITE_BUSY_TIMEOUT_MS / 1000,
+                **kwargs.pop("connect_args", {}),
+            }
             engine = create_engine(url, connect_args=connect_args, **kwargs)
             event.listen(engine, "connect", _sqlite_pragmas)
         else:

@@ -31,7 +31,7 @@ def test_migrated_tables_match_the_models(store) -> None:
 
 @pytest.mark.postgres
 def test_sqlite_and_postgresql_yield_the_same_tables_and_columns(tmp_path) -> None:
-    from conftest import _postgres_url  # noqa: PLC0415
+    from store_support import _postgres_url
 
     sqlite_engine = make_engine(f"sqlite:///{tmp_path / 'a.db'}")
     upgrade(sqlite_engine)
