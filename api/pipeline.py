@@ -99,7 +99,7 @@ def result_fingerprint(result: ParseResult) -> str:
 
 
 def report_covers(report_modalities: Iterable[str | None], header_modality: str | None) -> bool:
-    """Whether a dose report whose events have ``report_modalities`` describes an image-header event.
+    """Whether a dose report with ``report_modalities`` describes an image-header event.
 
     A CT dose report (TID 10011) covers CT headers; a projection report (TID 10001)
     covers projection headers (CR, DX, MG, RF, XA).

@@ -71,7 +71,7 @@ def make_store_handler(
         if after_store is not None and outcome.event_ids:
             try:
                 after_store(outcome.event_ids)
-            except Exception:  # noqa: BLE001 - reconstruction can be redone; the object is stored
+            except Exception:  # reconstruction can be redone; the object is stored
                 log.exception("reconstruction after storing %s failed", received.sop_instance_uid)
         return StoreOutcome.stored()
 
