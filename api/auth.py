@@ -23,9 +23,9 @@ from beamaudit.api.store.base import utcnow
 
 __all__ = [
     "ROLES",
+    "TOKEN_PREFIX",
     "Principal",
     "Role",
-    "TOKEN_PREFIX",
     "authenticate",
     "create_token",
     "has_role",

@@ -90,7 +90,9 @@ class ExposureEvent:
     series_description: str | None = None
     body_part: str | None = None
     view_position: str | None = None
-    event_type: str | None = None  # e.g. "stationary", "fluoroscopy", "ct_spiral", "ct_sequenced", "ct_localizer"
+    event_type: str | None = (
+        None  # e.g. "stationary", "fluoroscopy", "ct_spiral", "ct_sequenced", "ct_localizer"
+    )
     acquisition_plane: str | None = None  # added by ingest: "single", "plane_a", "plane_b"
     # added by ingest: "fluoroscopy_guided", "integrated_projection", "cassette_based" (CID 10032)
     acquisition_device_type: str | None = None
@@ -112,7 +114,9 @@ class ExposureEvent:
     filter_type: str | None = None  # free text of (0018,1160) or the SR filter type
     # geometry
     sid_mm: float | None = None  # source to detector
-    source_to_patient_mm: float | None = None  # (0018,1111): table side (DX/CR/MG) or isocentre (CT/XA)
+    source_to_patient_mm: float | None = (
+        None  # (0018,1111): table side (DX/CR/MG) or isocentre (CT/XA)
+    )
     source_to_entrance_mm: float | None = None  # (0040,0306)
     source_to_isocenter_mm: float | None = None
     source_to_table_mm: float | None = None
@@ -122,7 +126,9 @@ class ExposureEvent:
     field_width_mm: float | None = None  # at the plane named by field_plane
     field_height_mm: float | None = None
     field_area_cm2: float | None = None
-    field_plane: str | None = None  # "detector" (collimator edges x imager pixel spacing) or "reported"
+    field_plane: str | None = (
+        None  # "detector" (collimator edges x imager pixel spacing) or "reported"
+    )
     collimator_edges_px: tuple[int, int, int, int] | None = None  # left, right, upper, lower
     imager_pixel_spacing_mm: tuple[float, float] | None = None  # row, column
     detector_dimensions_mm: tuple[float, float] | None = None
@@ -150,7 +156,7 @@ class ExposureEvent:
     pulse_rate_per_s: float | None = None
     number_of_pulses: int | None = None
     irradiation_duration_s: float | None = None
-    # where every value came from: field name -> "(0018,0060) KVP" or "(122130, DCM) Dose Area Product"
+    # where every value came from: field -> "(0018,0060) KVP" or "(122130, DCM) Dose Area Product"
     provenance: dict[str, str] = field(default_factory=dict)
     notes: list[str] = field(default_factory=list)
 

@@ -267,10 +267,16 @@ def _check_complete(ds: Dataset, fh: IO[bytes], size: int | None) -> None:
     its declared length, or a partial element header left over, means the
     file was cut. (A cut inside the pixel data is not seen: it is never read.)
     """
-    keys = ds.keys()
-    if not keys:
-        raise IngestError("truncated", "the object ends before its first data element")
-    last_tag = max(keys)  # elements are read in ascending tag order
+    elements = getattr(ds, "_dict", None)  # pydicom's element dict, in reading order
+    if isinstance(elements, dict):
+        if not elements:
+            raise IngestError("truncated", "the object ends before its first data element")
+        last_tag = int(next(reversed(elements)))
+    else:
+        keys = [int(k) for k in ds.keys()]
+        if not keys:
+            raise IngestError("truncated", "the object ends before its first data element")
+        last_tag = max(keys)
     raw = ds.get_item(last_tag)
     length = getattr(raw, "length", None)
     value = getattr(raw, "value", None)

@@ -16,7 +16,17 @@ ROOT = Path(__file__).resolve().parents[1]
 def wheel_names(tmp_path_factory) -> list[str]:
     out = tmp_path_factory.mktemp("wheel")
     subprocess.run(
-        [sys.executable, "-m", "build", "--wheel", "--no-isolation", "--skip-dependency-check", "--outdir", str(out), str(ROOT)],
+        [
+            sys.executable,
+            "-m",
+            "build",
+            "--wheel",
+            "--no-isolation",
+            "--skip-dependency-check",
+            "--outdir",
+            str(out),
+            str(ROOT),
+        ],
         check=True,
         capture_output=True,
         timeout=300,

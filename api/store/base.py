@@ -3,7 +3,7 @@
 from __future__ import annotations
 
 from datetime import UTC, datetime
-from typing import Any
+from typing import Any, ClassVar
 
 from sqlalchemy import JSON, DateTime, MetaData
 from sqlalchemy.engine import Dialect
@@ -60,4 +60,4 @@ class Base(DeclarativeBase):
     """Every table's base: one ``MetaData`` with a naming convention."""
 
     metadata = MetaData(naming_convention=NAMING_CONVENTION)
-    type_annotation_map: dict[Any, Any] = {datetime: UTCDateTime()}
+    type_annotation_map: ClassVar[dict[Any, Any]] = {datetime: UTCDateTime()}

@@ -65,7 +65,7 @@ def make_engine(database_url: str, **kwargs: Any) -> Engine:
 
 
 def check_connection(engine: Engine) -> None:
-    """Open one connection and run ``SELECT 1``; a failure becomes a one-line :class:`StoreError`."""
+    """Run ``SELECT 1``; a failure becomes a one-line :class:`StoreError`."""
     try:
         with engine.connect() as conn:
             conn.execute(text("SELECT 1"))

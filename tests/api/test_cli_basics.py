@@ -23,7 +23,9 @@ def test_help_lists_the_commands(capsys) -> None:
         assert command in out
 
 
-@pytest.mark.parametrize("argv", [["db", "--help"], ["db", "upgrade", "--help"], ["serve", "--help"]])
+@pytest.mark.parametrize(
+    "argv", [["db", "--help"], ["db", "upgrade", "--help"], ["serve", "--help"]]
+)
 def test_every_command_has_help(argv, capsys) -> None:
     assert main(argv) == 0
     assert "Usage" in capsys.readouterr().out

@@ -17,7 +17,9 @@ STUDY = "1.2.826.0.1.3680043.8.498.1"
 def _result(sop: str, *, kind="image_header", modality="DX", n_events=1, study=STUDY, **kw):
     src = SourceObject(
         sop_instance_uid=sop,
-        sop_class_uid="1.2.840.10008.5.1.4.1.1.1.1" if kind == "image_header" else "1.2.840.10008.5.1.4.1.1.88.67",
+        sop_class_uid="1.2.840.10008.5.1.4.1.1.1.1"
+        if kind == "image_header"
+        else "1.2.840.10008.5.1.4.1.1.88.67",
         kind=kind,
         modality=modality,
         study_instance_uid=study,
@@ -129,7 +131,9 @@ def test_ct_report_does_not_supersede_projection_headers() -> None:
 
 def test_errors_are_recorded_with_source_and_reason(store) -> None:
     pipe = Pipeline(store.session_factory)
-    pipe.record_error(IngestError("not_dicom", "no DICM marker", "/data/readme.txt"), received_via="scan")
+    pipe.record_error(
+        IngestError("not_dicom", "no DICM marker", "/data/readme.txt"), received_via="scan"
+    )
     with store.session_factory() as s:
         err = s.scalars(select(m.IngestError)).one()
     assert (err.source, err.code, err.reason) == ("/data/readme.txt", "not_dicom", "no DICM marker")

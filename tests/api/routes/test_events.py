@@ -5,11 +5,10 @@ from __future__ import annotations
 from datetime import datetime
 
 import pytest
+from api_support import parse_result, seed
 from sqlalchemy import update
 
 from beamaudit.api.store import models as m
-
-from .conftest import parse_result, seed
 
 
 @pytest.fixture

@@ -3,11 +3,10 @@
 from __future__ import annotations
 
 import pytest
+from api_support import parse_result, seed
 
 from beamaudit.model.calibration import QAMeasurement, calibrate_room
 from beamaudit.model.filtration import FilterSpec
-
-from .conftest import parse_result, seed
 
 # Invented QA results of a radiographic room (demo values, in the range of a typical tube).
 MEASUREMENTS = [

@@ -3,11 +3,10 @@
 from __future__ import annotations
 
 import pytest
+from api_support import parse_result, seed
 from sqlalchemy import select
 
 from beamaudit.api.store import models as m
-
-from .conftest import parse_result, seed
 
 
 @pytest.fixture
