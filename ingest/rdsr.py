@@ -480,6 +480,7 @@ def rdsr_events(
     is_mammo = doc.values.get("procedure_code") == _MAMMOGRAPHY
     sop = str(base["sop_instance_uid"])
     events: list[ExposureEvent] = []
+    seen_uids: set[str] = set()
     for index, (family, sink) in enumerate(contents.events):
         if procedure_family is not None and procedure_family != family:
             sink.notes.append(
@@ -491,6 +492,10 @@ def rdsr_events(
             warnings.append(
                 f"irradiation event {index + 1} has no Irradiation Event UID (113769, DCM)"
             )
+        elif uid in seen_uids:
+            warnings.append(f"irradiation event {index + 1} repeats Irradiation Event UID {uid}")
+        else:
+            seen_uids.add(uid)
         event_key = uid if uid is not None else f"{sop}#{index}"
         fields = dict(base)
         fields.update(values)

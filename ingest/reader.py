@@ -273,7 +273,7 @@ def _check_complete(ds: Dataset, fh: IO[bytes], size: int | None) -> None:
             raise IngestError("truncated", "the object ends before its first data element")
         last_tag = int(next(reversed(elements)))
     else:
-        keys = [int(k) for k in ds.keys()]
+        keys = [int(k) for k in ds.keys()]  # noqa: SIM118 - iterating a Dataset yields elements
         if not keys:
             raise IngestError("truncated", "the object ends before its first data element")
         last_tag = max(keys)
