@@ -49,6 +49,7 @@ from .errors import IngestError
 
 __all__ = [
     "DOSE_REPORT_STORAGE_SOP_CLASSES",
+    "GENERIC_SR_STORAGE_SOP_CLASSES",
     "IMAGE_STORAGE_SOP_CLASSES",
     "Listener",
     "ListenerConfig",
@@ -91,6 +92,15 @@ DOSE_REPORT_STORAGE_SOP_CLASSES: dict[str, str] = {
 
 # Verification SOP Class (C-ECHO), PS3.4 Annex A.
 _VERIFICATION_SOP_CLASS = "1.2.840.10008.1.1"
+
+# Legacy devices send dose reports (root concept (113701, DCM)) in these general SR classes
+# (DICOM-NOTES 2.1); the handler decides by content and answers 0xC000 for any other report.
+GENERIC_SR_STORAGE_SOP_CLASSES: dict[str, str] = {
+    "1.2.840.10008.5.1.4.1.1.88.22": "Enhanced SR Storage",
+    "1.2.840.10008.5.1.4.1.1.88.33": "Comprehensive SR Storage",
+    "1.2.840.10008.5.1.4.1.1.88.34": "Comprehensive 3D SR Storage",
+    "1.2.840.10008.5.1.4.1.1.88.35": "Extensible SR Storage",
+}
 
 # AE Title (VR AE, PS3.5 Table 6.2-1): at most 16 characters of the default repertoire, no
 # backslash, no control characters; leading and trailing spaces are not significant.
@@ -252,8 +262,9 @@ class ListenerConfig:
     max_associations : int
         Concurrent associations accepted.
     sop_classes : tuple of str
-        The storage SOP Class UIDs accepted; by default the x-ray image classes and the dose
-        reports. Verification (C-ECHO) is always accepted.
+        The storage SOP Class UIDs accepted; by default the x-ray image classes, the dose
+        reports and the general SR classes legacy devices send dose reports in. Verification
+        (C-ECHO) is always accepted.
     network_timeout_s : float
         Seconds an idle association is kept open.
     """
@@ -265,7 +276,11 @@ class ListenerConfig:
     require_called_aet: bool = False
     max_associations: int = 10
     sop_classes: tuple[str, ...] = field(
-        default_factory=lambda: (*IMAGE_STORAGE_SOP_CLASSES, *DOSE_REPORT_STORAGE_SOP_CLASSES)
+        default_factory=lambda: (
+            *IMAGE_STORAGE_SOP_CLASSES,
+            *DOSE_REPORT_STORAGE_SOP_CLASSES,
+            *GENERIC_SR_STORAGE_SOP_CLASSES,
+        )
     )
     network_timeout_s: float = 60.0
 

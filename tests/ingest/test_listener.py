@@ -147,6 +147,13 @@ def test_contexts_include_the_dose_reports_pynetdicom_presets_lack() -> None:
     assert "1.2.840.10008.1.1" in uids  # Verification, PS3.4 Annex A
 
 
+def test_default_classes_cover_everything_the_reader_accepts() -> None:
+    # the listener keeps its own list (it must not depend on the parsers); this catches drift
+    from beamaudit.ingest.reader import ACCEPTED_SOP_CLASSES
+
+    assert set(ACCEPTED_SOP_CLASSES) <= set(ListenerConfig().sop_classes)
+
+
 def test_storage_contexts_accept_compressed_transfer_syntaxes() -> None:
     ct = next(
         cx for cx in storage_contexts([CT_IMAGE_STORAGE]) if cx.abstract_syntax == CT_IMAGE_STORAGE
