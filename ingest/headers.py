@@ -223,7 +223,7 @@ def _read_numbers(sink: FieldSink, group: _Views, family: str, n_events: int) ->
 
 def _read_text(sink: FieldSink, views: list[ValueReader], family: str) -> None:
     for field in _EVENT_TEXT:
-        found = _string(views, _rows(field, family))
+        found = _string(views, tuple(r for r in _rows(field, family) if r.vr != "SQ"))
         if found is not None:
             sink.put(field, found[0], found[1].label)
     if "view_position" not in sink.values:

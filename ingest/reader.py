@@ -86,6 +86,7 @@ ACCEPTED_SOP_CLASSES: dict[str, str] = {
 }
 DICOMDIR_SOP_CLASS = "1.2.840.10008.1.3.10"  # Media Storage Directory Storage, PS3.4 Annex F
 
+_DEFLATED = "1.2.840.10008.1.2.1.99"  # Deflated Explicit VR Little Endian, PS3.5 A.5
 HEAD_BYTES = 4096  # enough for the preamble, "DICM" and any real file meta group
 
 
@@ -288,7 +289,10 @@ def _check_complete(ds: Dataset, fh: IO[bytes], size: int | None) -> None:
                 f"the object ends inside ({last_tag >> 16:04X},{last_tag & 0xFFFF:04X}): "
                 f"{len(value)} of {length} bytes",
             )
-        if size is not None and value_tell is not None:
+        meta = getattr(ds, "file_meta", None)
+        deflated = meta is not None and meta.get("TransferSyntaxUID") == _DEFLATED
+        # positions of a deflated object are in the inflated stream, not in the file
+        if size is not None and value_tell is not None and not deflated:
             end = value_tell + length
             position = fh.tell()
             if position >= size and size > end:

@@ -340,3 +340,24 @@ def test_dap_header_value_is_one_tenth_in_gy_cm2(dap) -> None:
     # 1 dGy·cm² = 0.1 Gy·cm² (SI prefixes)
     event = parse(header(ImageAndFluoroscopyAreaDoseProduct=format(dap, "f"))).events[0]
     assert event.dap_gy_cm2 == pytest.approx(float(dap) / 10, rel=1e-12, abs=1e-15)
+
+
+def test_mammography_header_units_and_coded_view() -> None:
+    # (0040,0316) OrganDose in dGy (average glandular dose for MG, PS3.3 C.8.7.8):
+    # 0.0123 dGy = 1.23 mGy
+    view = Dataset()
+    view.CodeValue, view.CodingSchemeDesignator = "399162004", "SCT"
+    view.CodeMeaning = "cranio-caudal"
+    ds = header("1.2.840.10008.5.1.4.1.1.1.2", "MG", KVP="28", ExposureInmAs=63.5,
+                OrganDose="0.0123", EntranceDoseInmGy="5.2", BodyPartThickness="45",
+                AnodeTargetMaterial="MOLYBDENUM", FilterMaterial="RHODIUM",
+                FilterThicknessMinimum="0.025", ViewCodeSequence=Sequence([view]))  # fmt: skip
+    event = parse(ds).events[0]
+    assert event.organ_dose_mgy == pytest.approx(1.23)
+    assert event.entrance_dose_mgy == 5.2
+    assert event.kvp_kv == 28.0 and event.exposure_mas == 63.5
+    assert event.body_part_thickness_mm == 45.0
+    assert event.anode_material == "molybdenum"
+    assert event.filters == (FilterLayer("rhodium", 0.025),)
+    assert event.view_position == "CC"
+    assert event.modality_family == "projection"

@@ -5,11 +5,14 @@ from __future__ import annotations
 import json
 from pathlib import Path
 
+import data_store
+import pydicom
 import pytest
 from ingest_samples import DICOMDIR_TESTS, PSEUDONYMISER, header, sample, to_bytes
 from pydicom import dcmread
 from pydicom.filebase import DicomBytesIO
 from pydicom.filewriter import write_dataset
+from pydicom.uid import UID
 
 from beamaudit.ingest import (
     ACCEPTED_SOP_CLASSES,
@@ -140,3 +143,32 @@ def test_no_patient_identifier_name_or_birth_date_leaves_ingest() -> None:
     assert event.patient_pseudo_id == PSEUDONYMISER.pseudonymise(str(ds.PatientID))
     assert event.patient_age_years is not None  # computed from the birth date, which is dropped
     assert "birth date discarded" in event.provenance["patient_age_years"]
+
+
+def test_deflated_transfer_syntax_is_read() -> None:
+    ds = header(KVP="66")
+    ds.file_meta.TransferSyntaxUID = UID("1.2.840.10008.1.2.1.99")  # Deflated Explicit VR LE
+    result = read_bytes(to_bytes(ds), pseudonymiser=PSEUDONYMISER, source="deflated")
+    assert result.events[0].kvp_kv == 66.0
+
+
+def _installed_sample_files() -> list[Path]:
+    roots = [
+        Path(pydicom.data.__file__).parent / "test_files",
+        Path(data_store.__file__).parent / "data",
+    ]
+    return sorted(p for root in roots for p in root.rglob("*") if p.is_file())
+
+
+def test_every_installed_sample_file_parses_or_gives_an_ingest_error() -> None:
+    # robustness over all files of pydicom's wheel and pydicom-data: never a crash
+    counts: dict[str, int] = {}
+    for path in _installed_sample_files():
+        try:
+            read_file(path, pseudonymiser=PSEUDONYMISER)
+            counts["parsed"] = counts.get("parsed", 0) + 1
+        except IngestError as exc:
+            counts[exc.code] = counts.get(exc.code, 0) + 1
+    assert counts["parsed"] >= 50
+    assert counts["unsupported_sop_class"] >= 50  # MR, US, RT, SC...
+    assert counts.get("truncated", 0) >= 1  # rtplan_truncated.dcm
