@@ -5,7 +5,7 @@ from __future__ import annotations
 from datetime import date, datetime
 from typing import Annotated, Any, Literal
 
-from pydantic import AfterValidator, Field, HttpUrl, StringConstraints
+from pydantic import AfterValidator, Field, HttpUrl, StringConstraints, TypeAdapter
 
 from beamaudit.api.schemas._base import (
     InputModel,
@@ -69,17 +69,22 @@ class AuditPage(Page[AuditEntryRead]):
 
 
 # -- DICOMweb sources -----------------------------------------------------------------------------
-def _url(value: HttpUrl) -> str:
-    return clean_text(str(value))
+def _http_url(value: str) -> str:
+    """An http(s) URL, normalised by pydantic's ``HttpUrl``, kept as text."""
+    return clean_text(str(_HTTP_URL.validate_python(value)))
 
+
+_HTTP_URL: TypeAdapter[HttpUrl] = TypeAdapter(HttpUrl)
 
 SourceUrl = Annotated[
-    HttpUrl,
+    str,
     Field(
+        max_length=2000,
+        json_schema_extra={"format": "uri"},
         description="the server's DICOMweb root, http(s)",
         examples=["http://pacs.example.org/dicom-web"],
     ),
-    AfterValidator(_url),
+    AfterValidator(_http_url),
 ]
 ModalityCode = Annotated[str, StringConstraints(pattern=r"^[A-Z0-9]{2,16}$")]
 Modalities = Annotated[
