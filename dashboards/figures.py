@@ -258,7 +258,7 @@ def build_overview_heatmap(
             zmax=_RATIO_SPAN_LOG2,
             zmid=0.0,
             colorbar={
-                "title": {"text": "Median ÷ level (1)"},
+                "title": {"text": "Median ÷ level (1)", "side": "right"},
                 "tickvals": ticks,
                 "ticktext": [f"{t:g}" for t in _RATIO_TICKS],
             },

@@ -25,7 +25,6 @@ from urllib.parse import quote, urlencode
 import jinja2
 import pandas as pd
 import plotly.graph_objects as go
-from markupsafe import Markup
 
 from beamaudit.dashboards import figures
 from beamaudit.dashboards.errors import DashboardError
@@ -215,7 +214,7 @@ def _periods(period: str | None, periods: Sequence[str]) -> list[str]:
 class _FigureBlock:
     id: str
     label: str
-    json: Markup
+    json: str  # escaped for a <script> element; the template marks it safe
     static: bool = False
 
 
@@ -230,9 +229,7 @@ def _figure_block(fig: go.Figure, fig_id: str, *, static: bool = False) -> _Figu
         .replace("\u2029", "\\u2029")
     )
     title = fig.layout.title.text or fig_id
-    return _FigureBlock(
-        id=fig_id, label=re.sub(r"<[^>]+>", " ", title), json=Markup(text), static=static
-    )
+    return _FigureBlock(id=fig_id, label=re.sub(r"<[^>]+>", " ", title), json=text, static=static)
 
 
 def _fmt(value: Any, digits: int = 3) -> str:
@@ -816,8 +813,8 @@ def render_committee_report(
         context=PageContext(facility=facility, software_version=software_version),
         page_title=f"Dose review {period}" + (f", {facility}" if facility else ""),
         has_figures=True,
-        inline_css=Markup(_css_text()),
-        inline_plotly=Markup(_plotly_text()),
+        inline_css=_css_text(),
+        inline_plotly=_plotly_text(),
         period=period,
         facility=facility,
         method_paragraphs=[p.strip() for p in re.split(r"\n\s*\n", method) if p.strip()],

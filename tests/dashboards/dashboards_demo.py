@@ -68,7 +68,7 @@ def make_events() -> list[dict[str, Any]]:
                     "room": room,
                     "exam_type": exam,
                     "patient_weight_kg": round(weight, 1),
-                    "standard_patient": bool(50 <= weight <= 90),
+                    "standard_patient": bool(50 <= weight <= 90),  # ICRP 135: 70 ± 10 kg
                     "kvp_kv": kvp,
                     "exposure_mas": round(mas * value / dap, 2),
                     "dap_gy_cm2": round(value, 4),
@@ -113,9 +113,8 @@ def make_groups(events: list[dict[str, Any]]) -> list[dict[str, Any]]:
     keys = sorted({(e["room"], e["exam_type"]) for e in events})
     for room, exam in keys:
         mine = [e for e in events if e["room"] == room and e["exam_type"] == exam]
-        quantities = ("ctdivol_mgy", "dlp_mgy_cm") if exam.startswith("CT") else ("dap_gy_cm2",)
-        if not exam.startswith("CT"):
-            quantities += ("esak_mgy",)
+        ct = exam.startswith("CT")
+        quantities = ("ctdivol_mgy", "dlp_mgy_cm") if ct else ("dap_gy_cm2", "esak_mgy")
         for q in quantities:
             std = np.array([e[q] for e in mine if e["standard_patient"]], dtype=float)
             n_std = len(std)

@@ -312,6 +312,8 @@ def test_every_value_axis_states_its_unit(
             assert title in _CATEGORY_AXES or title.endswith(")"), title
 
 
+# Okabe M, Ito K, Color Universal Design (2002): a palette kept apart under common colour-vision
+# deficiencies; the ink colour #1d2a33 is near-black.
 def test_every_colour_is_okabe_ito_or_grey(
     demo_events: Rows, demo_groups: Rows, demo_history: Rows, demo_exam: dict[str, Any]
 ) -> None:

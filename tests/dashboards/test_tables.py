@@ -112,9 +112,9 @@ def test_a_bad_period_is_named(demo_flags: Rows) -> None:
 
 def test_not_a_table() -> None:
     with pytest.raises(TableError, match="expected a DataFrame or a list of rows"):
-        LEVELS.validate("levels.csv")  # type: ignore[arg-type]
+        LEVELS.validate("levels.csv")
     with pytest.raises(TableError, match="row 0 is a int"):
-        LEVELS.validate([1])  # type: ignore[list-item]
+        LEVELS.validate([1])
 
 
 def test_table_errors_are_dashboard_errors_and_value_errors() -> None:
