@@ -44,6 +44,8 @@ def build_dose_sr(
     *,
     study_date: str = "20240115",
     study_instance_uid: str | None = None,
+    patient_id: str = "SYNTH-PATIENT-1",
+    patient_name: str = "Synthetic^DoseReport",
     dap_total_gy_m2: float = 0.00123,
 ) -> Dataset:
     """A minimal synthetic dose report with file meta (Explicit VR Little Endian)."""
@@ -63,8 +65,8 @@ def build_dose_sr(
     ds.SeriesNumber = 900
     ds.InstanceNumber = 1
     ds.ReferringPhysicianName = ""
-    ds.PatientName = "Synthetic^DoseReport"
-    ds.PatientID = "SYNTH-PATIENT-1"
+    ds.PatientName = patient_name
+    ds.PatientID = patient_id
     ds.PatientBirthDate = ""
     ds.PatientSex = "O"
     ds.Manufacturer = "beamaudit test fixture (synthetic)"
