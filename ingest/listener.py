@@ -32,6 +32,7 @@ from __future__ import annotations
 
 import logging
 import re
+import signal
 import threading
 import traceback
 from collections.abc import Callable, Iterable
@@ -466,7 +467,9 @@ class Listener:
 
     def __init__(self, server: Any, config: ListenerConfig) -> None:
         self._server = server
+        self._stop_requested = threading.Event()
         self._stopped = threading.Event()
+        self._lock = threading.Lock()
         self.config = config
 
     @property
@@ -485,22 +488,30 @@ class Listener:
         """True once :meth:`stop` has run."""
         return self._stopped.is_set()
 
+    def request_stop(self) -> None:
+        """Ask whoever is in :meth:`wait` to stop the listener (safe in a signal handler)."""
+        self._stop_requested.set()
+
     def stop(self) -> None:
         """Stop accepting, end the open associations and close the socket (idempotent)."""
-        if self._stopped.is_set():
-            return
-        self._server.shutdown()
-        self._stopped.set()
+        with self._lock:
+            if self._stopped.is_set():
+                return
+            self._stop_requested.set()
+            self._server.shutdown()
+            self._stopped.set()
         _LOG.info("listener %s on %s:%d stopped", self.config.ae_title, *self.address)
 
     def wait(self, timeout_s: float | None = None) -> bool:
-        """Block until :meth:`stop` is called (by another thread or a signal handler), or
-        ``timeout_s`` passes; True when stopped. Ctrl-C stops the listener."""
+        """Block until a stop is requested (:meth:`request_stop`, :meth:`stop`, Ctrl-C) and
+        then stop the listener, or until ``timeout_s`` passes; True when stopped."""
         try:
-            return self._stopped.wait(timeout_s)
+            requested = self._stop_requested.wait(timeout_s)
         except KeyboardInterrupt:
+            requested = True
+        if requested:
             self.stop()
-            return True
+        return requested
 
     def __enter__(self) -> Listener:
         return self
@@ -529,8 +540,9 @@ def start_listener(
         not. An :class:`~beamaudit.ingest.errors.IngestError` it raises is answered 0xC000 with
         its code and reason; any other exception 0xA700, and is logged; the listener goes on.
     block : bool
-        When True, serve in this thread until stopped (Ctrl-C, or :meth:`Listener.stop` from a
-        signal handler or another thread), then return the stopped listener.
+        When True, serve in this thread until Ctrl-C, SIGTERM (when called from the main
+        thread: ``beamaudit listen`` under a service manager) or :meth:`Listener.request_stop`
+        from another thread, then return the stopped listener.
 
     Returns
     -------
@@ -573,6 +585,20 @@ def start_listener(
         else f" from {len(config.allowed_calling_aets)} AE titles",
     )
     if block:
-        listener.wait()
-        listener.stop()
+        _serve_until_stopped(listener)
     return listener
+
+
+def _serve_until_stopped(listener: Listener) -> None:
+    """Wait in this thread until Ctrl-C, SIGTERM (when this is the main thread) or a stop
+    request, then stop the listener; SIGTERM's previous handler is put back afterwards."""
+    in_main_thread = threading.current_thread() is threading.main_thread()
+    previous: Any = None
+    if in_main_thread:
+        previous = signal.signal(signal.SIGTERM, lambda signum, frame: listener.request_stop())
+    try:
+        listener.wait()
+    finally:
+        listener.stop()
+        if in_main_thread:
+            signal.signal(signal.SIGTERM, previous if previous is not None else signal.SIG_DFL)

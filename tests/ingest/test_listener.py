@@ -15,7 +15,9 @@ from __future__ import annotations
 
 import logging
 import os
+import signal
 import subprocess
+import sys
 import threading
 from collections.abc import Iterator
 from dataclasses import dataclass, field
@@ -29,7 +31,7 @@ from net_samples import (
     build_dose_sr,
     write_dose_sr,
 )
-from peers import free_port, require_peer, which_or_none
+from peers import free_port, require_peer, wait_for_tcp, which_or_none
 from pydicom import dcmread
 from pydicom.data import get_testdata_file
 from pydicom.dataset import FileMetaDataset
@@ -343,6 +345,48 @@ def test_listener_on_a_fixed_port(dcmtk: dict[str, str], handler: DiskHandler) -
         )
         assert result.returncode == 0, result.stderr
     assert running.stopped
+
+
+_BLOCKING_SERVICE = """
+import logging, sys
+from pathlib import Path
+from beamaudit.ingest.listener import ListenerConfig, StoreOutcome, start_listener
+
+logging.basicConfig(level=logging.INFO, stream=sys.stderr)
+folder = Path(sys.argv[2])
+
+def handler(obj):
+    (folder / (obj.sop_instance_uid + ".dcm")).write_bytes(obj.encoded)
+    return StoreOutcome.stored()
+
+listener = start_listener(ListenerConfig(port=int(sys.argv[1])), handler, block=True)
+print("stopped" if listener.stopped else "running", flush=True)
+"""
+
+
+@pytest.mark.peer
+def test_blocking_listener_serves_until_sigterm(dcmtk: dict[str, str], tmp_path: Path) -> None:
+    port = free_port()
+    service = subprocess.Popen(
+        [sys.executable, "-c", _BLOCKING_SERVICE, str(port), str(tmp_path)],
+        stdout=subprocess.PIPE,
+        stderr=subprocess.PIPE,
+        text=True,
+    )
+    try:
+        assert wait_for_tcp(port, timeout_s=20), "the listener did not start"
+        result = _storescu(dcmtk, port, _testdata("CT_small.dcm"))
+        assert result.returncode == 0, result.stderr
+        service.send_signal(signal.SIGTERM)
+        out, err = service.communicate(timeout=20)
+    finally:
+        if service.poll() is None:
+            service.kill()
+            service.communicate()
+    assert service.returncode == 0, err
+    assert out.strip() == "stopped"
+    assert "listener BEAMAUDIT on 127.0.0.1" in err and "stopped" in err
+    assert len(list(tmp_path.glob("*.dcm"))) == 1
 
 
 # --------------------------------------------------------------------------- pynetdicom SCU
