@@ -81,11 +81,18 @@ def _walk(
     except OSError:
         return  # unreadable folder: nothing to yield (its files cannot be read either)
     for entry in names:
+        child = root / entry.name
         try:
+            if not entry.is_symlink() and entry.is_file(follow_symlinks=False):
+                # a plain file lives on its folder's device; inode() needs no system call
+                file_key = (info.st_dev, entry.inode())
+                if file_key not in seen_files:
+                    seen_files.add(file_key)
+                    yield child
+                continue
             entry_info = entry.stat(follow_symlinks=True)
         except OSError:
-            continue  # dangling link
-        child = root / entry.name
+            continue  # dangling link, or the entry vanished
         if stat.S_ISDIR(entry_info.st_mode):
             yield from _walk(child, entry_info, seen_dirs, seen_files)
         elif stat.S_ISREG(entry_info.st_mode):
@@ -195,7 +202,9 @@ def _scan_one(path: Path, pseudonymiser: Pseudonymiser) -> ScanOutcome:
             )
             return ScanOutcome(path, kind, error=error)
         try:
-            result = read_open_file(fh, pseudonymiser=pseudonymiser, source=source, head=head)
+            result = read_open_file(
+                fh, pseudonymiser=pseudonymiser, source=source, head=head, classification=kind
+            )
         except IngestError as exc:
             return ScanOutcome(path, kind, error=exc.with_source(source))
         except OSError as exc:

@@ -303,17 +303,23 @@ def _check_complete(ds: Dataset, fh: IO[bytes], size: int | None) -> None:
 
 
 def read_open_file(
-    fh: IO[bytes], *, pseudonymiser: Pseudonymiser, source: str, head: bytes | None = None
+    fh: IO[bytes],
+    *,
+    pseudonymiser: Pseudonymiser,
+    source: str,
+    head: bytes | None = None,
+    classification: str | None = None,
 ) -> ParseResult:
     """Parse an open binary file positioned at its start (one read, no pixels).
 
-    ``head``, if given, is the file's first bytes already read by the caller
-    (e.g. for :func:`classify_head`); the handle is rewound before reading.
+    ``head``, if given, is the file's first bytes already read by the caller,
+    and ``classification`` what :func:`classify_head` said of them; the handle
+    is rewound before reading.
     """
     if head is None:
         head = fh.read(HEAD_BYTES)
     fh.seek(0)
-    kind = classify_head(head)
+    kind = classify_head(head) if classification is None else classification
     if kind == "not_dicom":
         raise IngestError(
             "not_dicom", "no 'DICM' marker at byte 128 and no DICOM element at the start", source
