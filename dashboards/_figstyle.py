@@ -1,0 +1,90 @@
+"""Shared look of the figures: fonts, ink, grid, series colours and symbols.
+
+Colours are Okabe-Ito (see :mod:`beamaudit.dashboards.wording`); each series
+also gets its own marker symbol, so no series is told apart by colour alone.
+"""
+
+from __future__ import annotations
+
+import math
+
+import plotly.graph_objects as go
+
+from beamaudit.dashboards.wording import OKABE_ITO
+
+__all__ = ["FONT", "GRID", "HEIGHT_PX", "INK", "PAPER", "fmt", "no_data", "series", "style"]
+
+HEIGHT_PX = 420
+INK = "#1d2a33"
+GRID = "#e3e0d8"
+PAPER = "#ffffff"
+FONT = "DejaVu Sans, Verdana, sans-serif"
+# Series colours, in order (Okabe-Ito, without yellow, which is too light on white).
+SERIES = ("blue", "orange", "bluish_green", "reddish_purple", "vermillion", "sky_blue", "black")
+SYMBOLS = ("circle", "square", "diamond", "triangle-up", "cross", "star", "hexagon")
+
+
+def series(i: int) -> tuple[str, str]:
+    return OKABE_ITO[SERIES[i % len(SERIES)]], SYMBOLS[i % len(SYMBOLS)]
+
+
+def style(
+    fig: go.Figure, *, title: str | None, x_title: str, y_title: str, legend: bool = True
+) -> go.Figure:
+    axis = {
+        "showgrid": True,
+        "gridcolor": GRID,
+        "zeroline": False,
+        "linecolor": INK,
+        "ticks": "outside",
+        "tickcolor": INK,
+        "automargin": True,
+    }
+    fig.update_layout(
+        title={
+            "text": title or "",
+            "x": 0.0,
+            "xanchor": "left",
+            "xref": "paper",
+            "y": 0.98,
+            "yref": "container",
+            "yanchor": "top",
+            "font": {"size": 15},
+        },
+        font={"family": FONT, "size": 13, "color": INK},
+        paper_bgcolor=PAPER,
+        plot_bgcolor=PAPER,
+        margin={"l": 70, "r": 30, "t": (40 if legend else 0) + (56 if title else 20), "b": 60},
+        legend={
+            "orientation": "h",
+            "yanchor": "bottom",
+            "y": 1.02,
+            "x": 0.0,
+            "traceorder": "normal",
+            "font": {"size": 12},
+        },
+        hoverlabel={"font": {"family": FONT}},
+        height=HEIGHT_PX,
+    )
+    fig.update_xaxes(title={"text": x_title}, **axis)
+    fig.update_yaxes(title={"text": y_title}, **axis)
+    return fig
+
+
+def no_data(fig: go.Figure, message: str) -> go.Figure:
+    fig.add_annotation(
+        text=message,
+        xref="paper",
+        yref="paper",
+        x=0.5,
+        y=0.5,
+        showarrow=False,
+        font={"size": 15},
+    )
+    return fig
+
+
+def fmt(value: float | None, digits: int = 3) -> str:
+    if value is None or (isinstance(value, float) and math.isnan(value)):
+        return "–"
+    return f"{value:.{digits}g}"

@@ -1,0 +1,281 @@
+"""Figures of one room over time: monthly medians, reported against reconstructed DAP."""
+
+from __future__ import annotations
+
+import math
+
+import pandas as pd
+import plotly.graph_objects as go
+
+from beamaudit.dashboards._figstyle import INK, no_data, series, style
+from beamaudit.dashboards.errors import TableError
+from beamaudit.dashboards.tables import ROOM_HISTORY, TableLike
+from beamaudit.dashboards.wording import OKABE_ITO, quantity_short
+
+__all__ = ["LOG_AXIS_SPAN", "build_dap_ratio_history", "build_room_history"]
+
+#: Span of medians (max / min) over which a room history gets a log axis by default.
+LOG_AXIS_SPAN = 10.0
+
+
+# ----------------------------------------------------------------- history
+
+
+def build_room_history(
+    history: TableLike,
+    *,
+    quantity: str,
+    room: str | None = None,
+    log_y: bool | None = None,
+    title: str | None = None,
+) -> go.Figure:
+    """Monthly medians of one quantity in one room, one line per examination type.
+
+    Months where the review detected a change are marked with a large open
+    star on top of the line's own marker, and named in the hover text.
+
+    Parameters
+    ----------
+    history : table
+        The ``ROOM_HISTORY`` table of one room.
+    quantity : str
+        The quantity to draw (a field name with its unit suffix).
+    room : str, optional
+        Room name, for the default title.
+    log_y : bool, optional
+        Logarithmic axis; by default chosen when the medians span more than
+        a factor of :data:`LOG_AXIS_SPAN` (examinations of very different dose
+        share the axis).
+    title : str, optional
+        Figure title.
+
+    Returns
+    -------
+    plotly.graph_objects.Figure
+        One line trace per examination type, then one marker trace named
+        ``"Change detected"`` if any change point exists.
+    """
+    return _room_history(
+        ROOM_HISTORY.validate(history), quantity=quantity, room=room, log_y=log_y, title=title
+    )
+
+
+def _room_history(
+    table: pd.DataFrame,
+    *,
+    quantity: str,
+    room: str | None = None,
+    log_y: bool | None = None,
+    title: str | None = None,
+) -> go.Figure:
+    """:func:`build_room_history` on a ``ROOM_HISTORY`` table already validated."""
+    rows = table[table["quantity"] == quantity].sort_values("month")
+    default = f"{room + ': ' if room else ''}monthly median {quantity_short(quantity)}"
+    fig = go.Figure()
+    style(
+        fig,
+        title=title if title is not None else default,
+        x_title="Month",
+        y_title=f"Median {quantity_short(quantity)}",
+    )
+    if rows.empty:
+        return no_data(fig, "No monthly medians")
+    for i, (exam_type, part) in enumerate(rows.groupby("exam_type", sort=True)):
+        colour, symbol = series(i)
+        fig.add_trace(
+            go.Scatter(
+                x=list(part["month"]),
+                y=list(part["median"]),
+                mode="lines+markers",
+                name=str(exam_type),
+                line={"color": colour, "width": 2},
+                marker={"symbol": symbol, "color": colour, "size": 7},
+                customdata=list(part["n"]),
+                hovertemplate=(
+                    "%{x|%b %Y}: %{y:.3g}, n = %{customdata}<extra>%{fullData.name}</extra>"
+                ),
+            )
+        )
+    changes = rows[rows["change_point"] & rows["median"].notna()]
+    if not changes.empty:
+        fig.add_trace(
+            go.Scatter(
+                x=list(changes["month"]),
+                y=list(changes["median"]),
+                mode="markers",
+                name="Change detected",
+                marker={
+                    "symbol": "star-open",
+                    "size": 18,
+                    "color": INK,
+                    "line": {"width": 2},
+                },
+                customdata=list(changes["exam_type"]),
+                hovertemplate="Change detected in %{x|%b %Y}<br>%{customdata}<extra></extra>",
+            )
+        )
+    fig.update_xaxes(tickformat="%b %Y", dtick="M1" if rows["month"].nunique() <= 12 else "M3")
+    medians = rows["median"].dropna()
+    positive = medians[medians > 0]
+    if log_y is None:
+        log_y = len(positive) == len(medians) and positive.max() > LOG_AXIS_SPAN * positive.min()
+    if log_y:
+        fig.update_yaxes(type="log", tickvals=_log_ticks(positive), tickformat=".3g")
+    else:
+        fig.update_yaxes(rangemode="tozero")
+    fig.update_layout(showlegend=True)
+    return fig
+
+
+def _log_ticks(values: pd.Series) -> list[float]:
+    """Ticks at 1, 2 and 5 times the powers of ten that span ``values`` (and one step beyond)."""
+    if values.empty:
+        return []
+    low = math.floor(math.log10(float(values.min())))
+    high = math.ceil(math.log10(float(values.max())))
+    ticks = [m * 10.0**k for k in range(low, high + 1) for m in (1, 2, 5)]
+    lo, hi = float(values.min()) / 2, float(values.max()) * 2
+    return [t for t in ticks if lo <= t <= hi]
+
+
+def _monthly_band(rows: pd.DataFrame) -> pd.DataFrame:
+    band = rows.dropna(subset=["tolerance_low", "tolerance_high"])
+    spread = band.groupby("month")[["tolerance_low", "tolerance_high"]].nunique()
+    clash = spread[(spread > 1).any(axis=1)]
+    if not clash.empty:
+        months = ", ".join(m.strftime("%Y-%m") for m in clash.index[:3])
+        raise TableError(
+            f"room history table: the DAP tolerance band differs between rows of the same month "
+            f"({months}); it is a property of the room and month"
+        )
+    return band.groupby("month")[["tolerance_low", "tolerance_high"]].first().reset_index()
+
+
+def build_dap_ratio_history(
+    history: TableLike, *, room: str | None = None, title: str | None = None
+) -> go.Figure:
+    """The median ratio of reported to reconstructed DAP per month, with its band.
+
+    A ratio of 1 means the modality's DAP and the reconstruction agree. The
+    shaded band is the accepted tolerance; months outside it get a large
+    cross. If every row of a month carries the same ratio, one line is drawn
+    for the room; otherwise one per examination type.
+
+    Parameters
+    ----------
+    history : table
+        The ``ROOM_HISTORY`` table of one room.
+    room : str, optional
+        Room name, for the default title.
+    title : str, optional
+        Figure title.
+
+    Returns
+    -------
+    plotly.graph_objects.Figure
+        Traces in order: band lower edge, band upper edge (filled, named
+        ``"Tolerance band"``), the ratio line(s), ``"Outside the band"`` markers.
+
+    Raises
+    ------
+    TableError
+        The table breaks its contract, or the band differs within a month.
+    """
+    return _dap_ratio_history(ROOM_HISTORY.validate(history), room=room, title=title)
+
+
+def _dap_ratio_history(
+    table: pd.DataFrame, *, room: str | None = None, title: str | None = None
+) -> go.Figure:
+    """:func:`build_dap_ratio_history` on a ``ROOM_HISTORY`` table already validated."""
+    rows = table[table["dap_ratio_median"].notna()].sort_values("month")
+    default = f"{room + ': ' if room else ''}reported ÷ reconstructed DAP"
+    fig = go.Figure()
+    style(
+        fig,
+        title=title if title is not None else default,
+        x_title="Month",
+        y_title="Reported ÷ reconstructed DAP (1)",
+    )
+    if rows.empty:
+        return no_data(fig, "No DAP comparisons")
+    band = _monthly_band(table)
+    if not band.empty:
+        fig.add_trace(
+            go.Scatter(
+                x=list(band["month"]),
+                y=list(band["tolerance_low"]),
+                mode="lines",
+                line={"color": "#9a9a9a", "width": 1, "dash": "dot"},
+                name="Tolerance band (lower edge)",
+                showlegend=False,
+                hovertemplate="lower edge %{y:.2f}<extra></extra>",
+            )
+        )
+        fig.add_trace(
+            go.Scatter(
+                x=list(band["month"]),
+                y=list(band["tolerance_high"]),
+                mode="lines",
+                line={"color": "#9a9a9a", "width": 1, "dash": "dot"},
+                fill="tonexty",
+                fillcolor="rgba(86,180,233,0.18)",
+                name="Tolerance band",
+                hovertemplate="upper edge %{y:.2f}<extra></extra>",
+            )
+        )
+    one_line = bool((rows.groupby("month")["dap_ratio_median"].nunique() <= 1).all())
+    groups = (
+        [("All examinations", rows.drop_duplicates("month"))]
+        if one_line
+        else list(rows.groupby("exam_type", sort=True))
+    )
+    for i, (name, part) in enumerate(groups):
+        colour, symbol = series(i)
+        fig.add_trace(
+            go.Scatter(
+                x=list(part["month"]),
+                y=list(part["dap_ratio_median"]),
+                mode="lines+markers",
+                name=str(name),
+                line={"color": colour, "width": 2},
+                marker={"symbol": symbol, "color": colour, "size": 7},
+                hovertemplate="%{x|%b %Y}: %{y:.3f}<extra>%{fullData.name}</extra>",
+            )
+        )
+    drawn = pd.concat([part for _, part in groups])
+    if not band.empty:
+        merged = drawn.merge(band, on="month", suffixes=("_row", ""))
+        outside = merged[
+            (merged["dap_ratio_median"] < merged["tolerance_low"])
+            | (merged["dap_ratio_median"] > merged["tolerance_high"])
+        ]
+        if not outside.empty:
+            fig.add_trace(
+                go.Scatter(
+                    x=list(outside["month"]),
+                    y=list(outside["dap_ratio_median"]),
+                    mode="markers",
+                    name="Outside the band",
+                    marker={
+                        "symbol": "x-thin-open",
+                        "size": 16,
+                        "color": OKABE_ITO["vermillion"],
+                        "line": {"width": 3, "color": OKABE_ITO["vermillion"]},
+                    },
+                    hovertemplate="%{x|%b %Y}: %{y:.3f} is outside the band<extra></extra>",
+                )
+            )
+    fig.add_hline(
+        y=1.0,
+        line={"color": INK, "width": 1, "dash": "dot"},
+        annotation={
+            "text": "reported = reconstructed",
+            "xanchor": "right",
+            "x": 1.0,
+            "yanchor": "top",
+            "font": {"size": 11},
+        },
+    )
+    fig.update_xaxes(tickformat="%b %Y")
+    return fig
