@@ -16,8 +16,12 @@ at the first point of the run that led to the alarm, :math:`i - N^+ + 1`, where 
 the consecutive points with :math:`C^+ > 0`, and the new mean is estimated as
 :math:`\mu_0 + K + C_i^+/N^+` (or :math:`\mu_0 - K - C_i^-/N^-`) (Montgomery, same section).
 
-After an alarm both sums restart at zero with the target moved to the estimated new mean, so a
-persisting shift is reported once and each later alarm is a further change.
+After an alarm both sums restart at zero with the target moved to the new level, estimated
+robustly as the median of the points from the estimated change up to ``baseline_points`` points
+after the alarm (the analysis is retrospective, so those points are known); a persisting shift is
+thus reported once and each later alarm is a further change. (Montgomery's run-mean estimate of the
+new level is kept in :attr:`ChangePoint.run_mean`; it is diluted when a noisy point just before the
+step starts the run, which would make a persisting shift alarm twice.)
 
 Parameters, in units of the series' robust standard deviation :math:`\sigma`:
 
@@ -63,7 +67,7 @@ SIGMA_FLOOR_RELATIVE = 1e-9
 
 @dataclass(frozen=True, slots=True)
 class ChangePoint:
-    """One detected change.
+    r"""One detected change.
 
     Attributes
     ----------
@@ -75,9 +79,11 @@ class ChangePoint:
     before : float
         Target (level) before the change.
     after : float
-        Estimated level after the change.
+        Estimated level after the change (median of the new regime; see the module docstring).
+    run_mean : float
+        Montgomery's estimate :math:`\mu_0 \pm K + C^\pm/N^\pm`, the mean of the run.
     cusum_value : float
-        :math:`C^\\pm` at the alarm, in the series' units.
+        :math:`C^\pm` at the alarm, in the series' units.
     """
 
     index: int
@@ -85,6 +91,7 @@ class ChangePoint:
     direction: Literal["up", "down"]
     before: float
     after: float
+    run_mean: float
     cusum_value: float
 
 
@@ -179,13 +186,22 @@ def cusum(
         n_down = n_down + 1 if c_down > 0 else 0
         upper[i], lower[i] = c_up, c_down
         if c_up > big_h or c_down > big_h:
-            if c_up > big_h:
-                after = mu + big_k + c_up / n_up
-                change = ChangePoint(i - n_up + 1, i, "up", mu, after, c_up)
-            else:
-                after = mu - big_k - c_down / n_down
-                change = ChangePoint(i - n_down + 1, i, "down", mu, after, c_down)
-            changes.append(change)
+            up = c_up > big_h
+            run = n_up if up else n_down
+            start = i - run + 1
+            run_mean = mu + big_k + c_up / n_up if up else mu - big_k - c_down / n_down
+            after = float(np.median(x[start : i + 1 + baseline_points]))
+            changes.append(
+                ChangePoint(
+                    index=start,
+                    alarm_index=i,
+                    direction="up" if up else "down",
+                    before=mu,
+                    after=after,
+                    run_mean=run_mean,
+                    cusum_value=c_up if up else c_down,
+                )
+            )
             mu = after
             c_up = c_down = 0.0
             n_up = n_down = 0

@@ -183,13 +183,21 @@ def _json_number(v: Number) -> Number:
     return v
 
 
+def _sig(x: float, digits: int) -> str:
+    """``x`` to ``digits`` significant figures, never in exponent form, trailing zeros dropped
+    (integers of more digits are shown whole: 5200, not 5.2e+03)."""
+    if x == 0:
+        return "0"
+    magnitude = math.floor(math.log10(abs(x)))
+    text = f"{x:.{max(digits - 1 - magnitude, 0)}f}"
+    return text.rstrip("0").rstrip(".") if "." in text else text
+
+
 def _fmt(x: float) -> str:
-    """A number for a sentence: 3 significant figures, no exponent below 10 000."""
+    """A number for a sentence: 3 significant figures."""
     if x is None or not math.isfinite(x):
         return "n/a"
-    if abs(x) >= 10_000:
-        return f"{x:.0f}"
-    return f"{x:.3g}"
+    return _sig(x, 3)
 
 
 def _str_or_none(v: object) -> str | None:
@@ -221,16 +229,11 @@ def _where(row: Mapping[str, Any]) -> str:
 
 def _fmt_apart(*values: float) -> list[str]:
     """Format numbers with 3 to 6 significant figures: as few as keep distinct values distinct."""
+    finite = [v for v in values if math.isfinite(v)]
     for digits in range(3, 7):
-        texts = [
-            f"{v:.{digits}g}" if math.isfinite(v) and abs(v) < 10_000 else _fmt(v) for v in values
-        ]
-        distinct_values = len({v for v in values if math.isfinite(v)})
-        if (
-            len({t for t, v in zip(texts, values, strict=True) if math.isfinite(v)})
-            == distinct_values
-        ):
-            return texts
+        texts = [_sig(v, digits) if math.isfinite(v) else "n/a" for v in values]
+        if len({_sig(v, digits) for v in finite}) == len(set(finite)):
+            break
     return texts
 
 

@@ -85,8 +85,9 @@ def test_catalogue_quantities_follow_icrp_135(modality_group: str, allowed: set[
 
 def test_level_applies_per_projection_for_views_and_per_examination_for_ct_and_fluoro() -> None:
     catalogue = load_default_catalogue()
-    assert catalogue.get("chest_pa").level_applies_per == "projection"  # type: ignore[union-attr]
-    assert catalogue.get("mammo_cc").level_applies_per == "projection"  # type: ignore[union-attr]
+    for exam in ("chest_pa", "mammo_cc"):
+        t = catalogue.get(exam)
+        assert t is not None and t.level_applies_per == "projection"
     for t in catalogue:
         if t.modality_group in ("ct", "fluoroscopy", "interventional"):
             assert t.level_applies_per == "examination", t.exam_type
