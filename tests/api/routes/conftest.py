@@ -21,6 +21,7 @@ from sqlalchemy import delete, text
 from beamaudit.api.store import Base, make_engine, make_session_factory, upgrade
 
 POSTGRES_ENV = "BEAMAUDIT_TEST_POSTGRES_URL"
+SMALL_UPLOAD_BYTES = 4096
 
 
 def _postgres_url() -> str:
@@ -74,3 +75,10 @@ def api(shared_store: StoreHandle, tmp_path: Any) -> Iterator[Api]:
     """The app on an emptied store of each backend, with one token per role."""
     empty_store(shared_store)
     yield from make_api(shared_store, tmp_path)
+
+
+@pytest.fixture
+def small_upload_api(shared_store: StoreHandle, tmp_path: Any) -> Iterator[Api]:
+    """As ``api``, with uploads limited to :data:`SMALL_UPLOAD_BYTES`."""
+    empty_store(shared_store)
+    yield from make_api(shared_store, tmp_path, api={"max_upload_bytes": SMALL_UPLOAD_BYTES})
