@@ -14,8 +14,12 @@ Idempotence and double counting
   content) and the first is kept. A race between two ingest nodes on the same
   UID ends the same way: the unique constraint decides, the loser rolls back
   and reports a duplicate.
-* An event's ``event_key`` (the Irradiation Event UID, else
-  ``<SOP Instance UID>#<index>``) is unique too, so an event is never stored twice.
+* An event is identified by its object and its index in it, so an event is
+  never stored twice. Its ``event_key`` (the Irradiation Event UID, else
+  ``<SOP Instance UID>#<index>``) is *not* unique: the images of one CT
+  acquisition share it, and so do an image header and the dose-report event of
+  the same irradiation. Reviews count an acquisition once (by
+  ``acquisition_key``) and leave superseded header events out.
 * A study whose exposures are described by a dose report takes its events from
   the report: every image-header event of that study whose modality the
   report covers (projection x-ray for TID 10001, CT for TID 10011) is marked

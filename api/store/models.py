@@ -166,12 +166,15 @@ class ExposureEventRow(Base):
 
     __tablename__ = "exposure_events"
     __table_args__ = (
+        UniqueConstraint("source_object_id", "event_index"),
         Index("ix_exposure_events_room_time", "room_id", "event_datetime"),
         Index("ix_exposure_events_exam_time", "exam_type", "event_datetime"),
     )
     id: Mapped[int] = mapped_column(primary_key=True)
-    event_key: Mapped[str] = mapped_column(String, unique=True)
-    source_object_id: Mapped[int] = mapped_column(ForeignKey("source_objects.id"), index=True)
+    #: Irradiation Event UID, else "<SOP Instance UID>#<index>"; shared by the images of one
+    #: irradiation and by a dose report's event for it, so not unique (see pipeline docstring)
+    event_key: Mapped[str] = mapped_column(String, index=True)
+    source_object_id: Mapped[int] = mapped_column(ForeignKey("source_objects.id"))
     study_id: Mapped[int | None] = mapped_column(ForeignKey("studies.id"), index=True)
     device_id: Mapped[int | None] = mapped_column(ForeignKey("devices.id"), index=True)
     room_id: Mapped[int | None] = mapped_column(ForeignKey("rooms.id"))

@@ -2,7 +2,7 @@
 
 Revision ID: 0001
 Revises:
-Create Date: 2026-12-01 22:34:06.696328
+Create Date: 2026-12-01 22:45:46.443237
 """
 
 from __future__ import annotations
@@ -468,7 +468,11 @@ def upgrade() -> None:
             ["study_id"], ["studies.id"], name=op.f("fk_exposure_events_study_id_studies")
         ),
         sa.PrimaryKeyConstraint("id", name=op.f("pk_exposure_events")),
-        sa.UniqueConstraint("event_key", name=op.f("uq_exposure_events_event_key")),
+        sa.UniqueConstraint(
+            "source_object_id",
+            "event_index",
+            name=op.f("uq_exposure_events_source_object_id_event_index"),
+        ),
     )
     with op.batch_alter_table("exposure_events", schema=None) as batch_op:
         batch_op.create_index(
@@ -478,13 +482,13 @@ def upgrade() -> None:
             batch_op.f("ix_exposure_events_device_id"), ["device_id"], unique=False
         )
         batch_op.create_index(
+            batch_op.f("ix_exposure_events_event_key"), ["event_key"], unique=False
+        )
+        batch_op.create_index(
             "ix_exposure_events_exam_time", ["exam_type", "event_datetime"], unique=False
         )
         batch_op.create_index(
             "ix_exposure_events_room_time", ["room_id", "event_datetime"], unique=False
-        )
-        batch_op.create_index(
-            batch_op.f("ix_exposure_events_source_object_id"), ["source_object_id"], unique=False
         )
         batch_op.create_index(
             batch_op.f("ix_exposure_events_stored_at"), ["stored_at"], unique=False
@@ -535,9 +539,9 @@ def downgrade() -> None:
     with op.batch_alter_table("exposure_events", schema=None) as batch_op:
         batch_op.drop_index(batch_op.f("ix_exposure_events_study_id"))
         batch_op.drop_index(batch_op.f("ix_exposure_events_stored_at"))
-        batch_op.drop_index(batch_op.f("ix_exposure_events_source_object_id"))
         batch_op.drop_index("ix_exposure_events_room_time")
         batch_op.drop_index("ix_exposure_events_exam_time")
+        batch_op.drop_index(batch_op.f("ix_exposure_events_event_key"))
         batch_op.drop_index(batch_op.f("ix_exposure_events_device_id"))
         batch_op.drop_index(batch_op.f("ix_exposure_events_acquisition_key"))
 

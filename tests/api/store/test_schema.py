@@ -67,5 +67,7 @@ def test_idempotence_keys_are_unique(store, table) -> None:
     insp = inspect(store.engine)
     uniques = {tuple(u["column_names"]) for u in insp.get_unique_constraints(table)}
     uniques |= {tuple(i["column_names"]) for i in insp.get_indexes(table) if i.get("unique")}
-    key = "event_key" if table == "exposure_events" else "sop_instance_uid"
-    assert (key,) in uniques
+    key = (
+        ("source_object_id", "event_index") if table == "exposure_events" else ("sop_instance_uid",)
+    )
+    assert key in uniques
