@@ -120,7 +120,7 @@ def _room_history(
     if log_y is None:
         log_y = len(positive) == len(medians) and positive.max() > LOG_AXIS_SPAN * positive.min()
     if log_y:
-        fig.update_yaxes(type="log", tickvals=_log_ticks(positive), tickformat=".3g")
+        fig.update_yaxes(type="log", tickvals=_log_ticks(positive), tickformat="~g")
     else:
         fig.update_yaxes(rangemode="tozero")
     fig.update_layout(showlegend=True)

@@ -121,6 +121,8 @@ def _handler(pages: dict[str, bytes], files: dict[str, bytes], site: _Site) -> t
                 return
             self.send_response(200)
             self.send_header("Content-Type", kind)
+            if path.startswith("/static/"):
+                self.send_header("Cache-Control", "max-age=600")  # one parse of plotly.js
             self.send_header("Content-Length", str(len(body)))
             self.end_headers()
             self.wfile.write(body)
@@ -149,7 +151,8 @@ def site() -> Iterator[_Site]:
 
 
 @pytest.fixture(scope="module")
-def browser() -> Iterator[Any]:
+def context() -> Iterator[Any]:
+    """A playwright browser context in Debian's Chromium."""
     require_peer("Chromium", CHROMIUM.exists(), "apt-get install -y chromium")
     try:
         from playwright.sync_api import sync_playwright
@@ -160,9 +163,11 @@ def browser() -> Iterator[Any]:
         chromium = pw.chromium.launch(
             executable_path=str(CHROMIUM), headless=True, args=LAUNCH_ARGS
         )
+        shared = chromium.new_context(viewport={"width": 1280, "height": 900})
         try:
-            yield chromium
+            yield shared  # one context for every page: plotly.js is fetched and parsed once
         finally:
+            shared.close()
             chromium.close()
 
 
@@ -172,8 +177,8 @@ class _Visit:
     errors: list[str]
 
 
-def _visit(browser: Any, url: str) -> _Visit:
-    page = browser.new_page(viewport={"width": 1280, "height": 900})
+def _visit(context: Any, url: str) -> _Visit:
+    page = context.new_page()
     page.set_default_timeout(PAGE_TIMEOUT_MS)
     errors: list[str] = []
     page.on("console", lambda m: errors.append(m.text) if m.type == "error" else None)
@@ -183,8 +188,8 @@ def _visit(browser: Any, url: str) -> _Visit:
 
 
 @pytest.mark.parametrize("path", list(SHOT_NAMES), ids=list(SHOT_NAMES.values()))
-def test_page_renders_its_figures_without_errors(browser: Any, site: _Site, path: str) -> None:
-    visit = _visit(browser, site.base_url + path)
+def test_page_renders_its_figures_without_errors(context: Any, site: _Site, path: str) -> None:
+    visit = _visit(context, site.base_url + path)
     page = visit.page
     try:
         expected = page.locator("div.figure").count()
@@ -207,8 +212,8 @@ def test_page_renders_its_figures_without_errors(browser: Any, site: _Site, path
         page.close()
 
 
-def test_overview_table_sorts_on_click(browser: Any, site: _Site) -> None:
-    page = _visit(browser, site.base_url + "/").page
+def test_overview_table_sorts_on_click(context: Any, site: _Site) -> None:
+    page = _visit(context, site.base_url + "/").page
     try:
         header = page.locator("table.groups th", has_text="n (standard)")
         header.click()
@@ -233,9 +238,9 @@ def test_overview_table_sorts_on_click(browser: Any, site: _Site) -> None:
         page.close()
 
 
-def test_report_asks_for_nothing_else_and_prints(browser: Any, site: _Site) -> None:
+def test_report_asks_for_nothing_else_and_prints(context: Any, site: _Site) -> None:
     site.requests.clear()
-    visit = _visit(browser, site.base_url + "/reports/2026-03")
+    visit = _visit(context, site.base_url + "/reports/2026-03")
     page = visit.page
     try:
         page.wait_for_selector(".js-plotly-plot .main-svg")
