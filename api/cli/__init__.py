@@ -18,7 +18,18 @@ from beamaudit import __version__
 __all__ = ["app", "main"]
 
 #: command modules, in the order their commands appear in ``--help``
-COMMAND_MODULES = ("db", "serve", "scan", "listen", "export", "explain", "beam", "dose", "token")
+COMMAND_MODULES = (
+    "db",
+    "serve",
+    "scan",
+    "listen",
+    "pull",
+    "export",
+    "explain",
+    "beam",
+    "dose",
+    "token",
+)
 
 app = typer.Typer(
     name="beamaudit",

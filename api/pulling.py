@@ -1,0 +1,146 @@
+"""DICOMweb pulls into the store, with a watermark per source.
+
+``pull_source`` resolves ``--since`` (a date, or ``last`` = the source's
+watermark), pulls the instance metadata of the matching studies
+(:func:`beamaudit.ingest.dicomweb.pull`, never pixel data), parses and stores
+each instance, records every unusable one as an ingest error, reconstructs the
+new events, then moves the source's watermark (held back to the oldest study
+the server failed to deliver). Instances already stored are not even fetched.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass, field
+from datetime import date
+from typing import Any
+
+from sqlalchemy import select
+from sqlalchemy.orm import Session, sessionmaker
+
+from beamaudit.api.pipeline import Pipeline
+from beamaudit.api.reconstruct import reconstruct_events
+from beamaudit.api.store import models as m
+from beamaudit.api.store.base import utcnow
+from beamaudit.ingest.errors import IngestError
+
+__all__ = ["PullOutcome", "get_or_create_source", "pull_source"]
+
+
+@dataclass
+class PullOutcome:
+    source: str
+    since: date
+    studies: int = 0
+    instances: int = 0
+    events: int = 0
+    duplicates: int = 0
+    skipped_known: int = 0
+    errors: list[dict[str, str]] = field(default_factory=list)
+    watermark: date | None = None
+
+    def as_dict(self) -> dict[str, Any]:
+        return {
+            "source": self.source,
+            "since": self.since.isoformat(),
+            "studies": self.studies,
+            "instances": self.instances,
+            "events": self.events,
+            "duplicates": self.duplicates,
+            "skipped_known": self.skipped_known,
+            "errors": self.errors,
+            "watermark": self.watermark.isoformat() if self.watermark else None,
+        }
+
+
+def get_or_create_source(
+    session: Session, url: str, *, name: str | None = None, modalities: list[str] | None = None
+) -> m.DicomwebSource:
+    """The source row for ``url`` (made on first use, named after the URL)."""
+    row = session.scalar(select(m.DicomwebSource).where(m.DicomwebSource.url == url))
+    if row is None:
+        row = m.DicomwebSource(name=name or url, url=url, modalities=modalities or [])
+        session.add(row)
+        session.flush()
+    return row
+
+
+def pull_source(
+    sessions: sessionmaker[Session],
+    *,
+    url: str,
+    since: str,
+    modalities: list[str] | None,
+    pseudonymiser: Any,
+    until: date | None = None,
+) -> PullOutcome:
+    """Pull one DICOMweb source into the store (see the module docstring).
+
+    Raises
+    ------
+    IngestError
+        ``--since`` cannot be resolved (``last`` before any pull, not a date).
+    """
+    from beamaudit.ingest.dicomweb import DicomwebSource, next_watermark, pull, resolve_since
+    from beamaudit.ingest.reader import ACCEPTED_SOP_CLASSES, read_dataset
+
+    with sessions.begin() as session:
+        row = get_or_create_source(session, url, modalities=modalities)
+        source_id, watermark = row.id, row.watermark_date
+        mods = modalities or list(row.modalities or []) or None
+    since_date = resolve_since(since, watermark)
+    pipeline = Pipeline(sessions)
+    outcome = PullOutcome(source=url, since=since_date)
+    new_event_ids: list[int] = []
+
+    def known(uid: str) -> bool:
+        with sessions() as s:
+            return (
+                s.scalar(
+                    select(m.SourceObjectRow.id).where(m.SourceObjectRow.sop_instance_uid == uid)
+                )
+                is not None
+            )
+
+    def on_instance(ds: Any, wado_url: str) -> None:
+        result = read_dataset(ds, pseudonymiser=pseudonymiser, source=wado_url)
+        stored = pipeline.store(result, received_via="pull", received_from=wado_url)
+        if stored.status == "stored":
+            outcome.events += stored.events
+            new_event_ids.extend(stored.event_ids)
+        elif stored.status == "duplicate":
+            outcome.duplicates += 1
+        else:
+            raise IngestError(
+                "bad_value", stored.reason or "conflicts with a stored object", wado_url
+            )
+
+    report = pull(
+        DicomwebSource(url),
+        since=since_date,
+        until=until,
+        modalities=mods,
+        on_instance=on_instance,
+        known_sop_instance_uids=known,
+        sop_classes=set(ACCEPTED_SOP_CLASSES),
+    )
+    outcome.studies = report.studies
+    outcome.instances = report.instances
+    outcome.skipped_known = report.skipped_known
+    outcome.errors = [{"source": p.source, "reason": p.reason} for p in report.errors]
+    if report.errors:
+        pipeline.record_errors(
+            [(IngestError("unreadable", p.reason, p.source), p.source) for p in report.errors],
+            received_via="pull",
+        )
+    reconstruct_events(sessions, new_event_ids)
+    with sessions.begin() as session:
+        row = session.get(m.DicomwebSource, source_id)
+        assert row is not None
+        row.watermark_date = next_watermark(watermark, report)
+        row.last_pull_at = utcnow()
+        row.last_pull_report = outcome.as_dict() | {"warnings": len(report.warnings)}
+        outcome.watermark = row.watermark_date
+        row.last_pull_report["watermark"] = (
+            row.watermark_date.isoformat() if row.watermark_date else None
+        )
+    return outcome
