@@ -29,6 +29,7 @@ EVENT_QUANTITIES: tuple[str, ...] = (
     "ctdivol_mgy",
     "dlp_mgy_cm",
     "ref_point_air_kerma_mgy",
+    "agd_mgy",
 )
 
 

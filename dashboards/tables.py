@@ -35,7 +35,7 @@ The contracts
     status                    –        ``above_level``, ``possibly_above``,
                                        ``below_level``, ``insufficient_sample``,
                                        ``no_level``
-    status_reason             –        the review's reason, in words
+    status_reason             –        the review's reason, in words (optional)
     ========================= ======== ===========================================
 
 ``FLAGS``
@@ -49,8 +49,9 @@ The contracts
     ``event_datetime`` (UTC), ``room``, ``exam_type``, ``patient_weight_kg``,
     ``standard_patient`` (bool), ``kvp_kv``, ``exposure_mas``, ``dap_gy_cm2``
     (reported), ``recon_dap_gy_cm2`` (reconstructed), ``esak_mgy``,
-    ``ctdivol_mgy``, ``dlp_mgy_cm``, ``ref_point_air_kerma_mgy``; the dose
-    columns may be empty where a modality does not give them.
+    ``ctdivol_mgy``, ``dlp_mgy_cm``, ``ref_point_air_kerma_mgy`` and optionally
+    ``agd_mgy`` (mean glandular dose); the dose columns may be empty where a
+    modality does not give them.
 
 ``ROOM_HISTORY``
     One row per (month, exam_type, quantity) of one room: ``month``
@@ -386,7 +387,7 @@ GROUPS = TableSpec(
         Column("level_set", "str", "", "name of the level set", nullable=True),
         Column("ratio_to_level", "float", "1", "median / level", nullable=True, minimum=0),
         Column("status", "str", "", "review status", choices=_STATUSES),
-        Column("status_reason", "str", "", "the review's reason", nullable=True),
+        Column("status_reason", "str", "", "the review's reason", required=False, nullable=True),
     ),
     rules=(
         _QUANTITY_HAS_UNIT,
@@ -441,6 +442,15 @@ EVENTS = TableSpec(
         _dose("ctdivol_mgy", "volume CT air kerma index"),
         _dose("dlp_mgy_cm", "CT air kerma-length product"),
         _dose("ref_point_air_kerma_mgy", "air kerma at the reference point"),
+        Column(
+            "agd_mgy",
+            "float",
+            "agd_mgy",
+            "mean glandular dose",
+            required=False,
+            nullable=True,
+            minimum=0,
+        ),
     ),
 )
 

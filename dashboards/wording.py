@@ -168,6 +168,7 @@ _LABELS: dict[str, str] = {
     "entrance_surface_dose_mgy": "Entrance surface dose (ESD)",
     "ssde_mgy": "Size-specific dose estimate (SSDE)",
     "mean_glandular_dose_mgy": "Mean glandular dose (MGD)",
+    "agd_mgy": "Mean glandular dose (AGD)",
     "kvp_kv": "Tube voltage",
     "exposure_mas": "Tube current-exposure time product",
     "tube_current_ma": "Tube current",
@@ -194,6 +195,7 @@ _SHORT: dict[str, str] = {
     "entrance_surface_dose_mgy": "ESD",
     "ssde_mgy": "SSDE",
     "mean_glandular_dose_mgy": "MGD",
+    "agd_mgy": "AGD",
 }
 
 _UNITLESS = re.compile(r"^[a-z][a-z0-9_]*$")
