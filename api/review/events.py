@@ -80,7 +80,7 @@ TEXT_COLUMNS = (
     "view_position",
 )
 #: Text columns stored as categoricals by :func:`prepare_events` (they are grouped on).
-KEY_COLUMNS = ("study_uid", "site", "room", "device", "modality", "exam_type")
+KEY_COLUMNS = ("site", "room", "device", "modality", "exam_type")
 #: Every column that carries a dose value (for "no dose data at all").
 DOSE_COLUMNS = (
     "dap_gy_cm2",
@@ -126,8 +126,9 @@ def prepare_events(events: pd.DataFrame) -> pd.DataFrame:
     Text columns become ``object`` with ``None`` for missing (the :data:`KEY_COLUMNS` become
     categoricals, so that grouping on them is fast), float columns ``float64``,
     ``event_datetime`` naive UTC ``datetime64[ns]``, plus an integer ``month_key``
-    (``year * 12 + month - 1``). Sorting by ``event_id`` makes every later step independent of the
-    order rows arrive in, so the same events always give the same review.
+    (``year * 12 + month - 1``) and an integer ``study_code`` per study. Sorting by ``event_id``
+    makes every later step independent of the order rows arrive in, so the same events always give
+    the same review.
 
     Raises
     ------
@@ -158,9 +159,10 @@ def prepare_events(events: pd.DataFrame) -> pd.DataFrame:
         )
     for c in TEXT_COLUMNS:
         col = events[c].reset_index(drop=True).astype(object)
-        col = col.where(col.notna(), None)
-        # the key columns become categorical: factorised once here, not at every grouping
-        out[c] = pd.Categorical(col) if c in KEY_COLUMNS else col
+        if c in KEY_COLUMNS:  # categorical: factorised once here, not at every grouping
+            out[c] = pd.Categorical(col)
+        else:
+            out[c] = col.where(col.notna(), None)
     if out["study_uid"].isna().any():
         raise ReviewInputError(
             "study_uid is missing for event(s) " + _bad_ids(out, out["study_uid"].isna().to_numpy())
@@ -188,7 +190,10 @@ def prepare_events(events: pd.DataFrame) -> pd.DataFrame:
         )
     dt = out["event_datetime"].dt
     out["month_key"] = (dt.year * 12 + dt.month - 1).astype(np.int64)
-    return out.sort_values("event_id", kind="mergesort").reset_index(drop=True)
+    out = out.sort_values("event_id", kind="mergesort").reset_index(drop=True)
+    # integer study codes (by first appearance in event_id order) for grouping by study
+    out["study_code"] = pd.factorize(out["study_uid"])[0].astype(np.int64)
+    return out
 
 
 def group_codes(frame: pd.DataFrame, keys: Sequence[str]) -> tuple[np.ndarray, pd.DataFrame]:
@@ -201,10 +206,20 @@ def group_codes(frame: pd.DataFrame, keys: Sequence[str]) -> tuple[np.ndarray, p
     """
     n = len(frame)
     key = np.zeros(n, dtype=np.int64)
+    key_size = 1
     for column in keys:
-        codes, uniques = pd.factorize(frame[column], use_na_sentinel=True)
-        key = key * (len(uniques) + 1) + (codes.astype(np.int64) + 1)
-        key = pd.factorize(key)[0].astype(np.int64)
+        series = frame[column]
+        if isinstance(series.dtype, pd.CategoricalDtype):  # already factorised: its codes
+            codes = series.cat.codes.to_numpy(dtype=np.int64)
+            size = len(series.cat.categories)
+        else:
+            raw_codes, uniques = pd.factorize(series, use_na_sentinel=True)
+            codes, size = raw_codes.astype(np.int64), len(uniques)
+        if key_size * (size + 1) >= 2**62:  # keep the mixed-radix key inside int64
+            key = pd.factorize(key)[0].astype(np.int64)
+            key_size = int(key.max()) + 1 if n else 1
+        key = key * (size + 1) + (codes + 1)
+        key_size *= size + 1
     if n == 0:
         empty = pd.DataFrame({c: pd.Series([], dtype=object) for c in keys})
         return np.zeros(0, dtype=np.int64), empty
@@ -250,15 +265,11 @@ def build_units(events: pd.DataFrame, catalogue: ExamCatalogue) -> pd.DataFrame:
     quantity_columns = list(QUANTITIES)
     base = ["study_uid", *_LOCATION, "exam_type", "month_key", "patient_weight_kg"]
 
-    projections = events.loc[~is_study, ["event_id", *base, *quantity_columns]].copy()
-    projections.insert(0, "unit_kind", "event")
-    projections["event_id"] = projections["event_id"].astype("Int64")
-
     exams = events.loc[is_study]
-    codes, studies = group_codes(exams, ["study_uid", "exam_type"])
+    codes, studies = group_codes(exams, ["study_code", "exam_type"])
     grouped = exams.groupby(codes, sort=True)
     # groupby().first() skips missing values: the location comes from the first event that has it
-    firsts = grouped[[*_LOCATION, "month_key", "patient_weight_kg"]].first()
+    firsts = grouped[["study_uid", *_LOCATION, "month_key", "patient_weight_kg"]].first()
     for c in firsts.columns:
         studies[c] = firsts[c].to_numpy()
     sums = grouped[quantity_columns].sum(min_count=1)
@@ -273,22 +284,43 @@ def build_units(events: pd.DataFrame, catalogue: ExamCatalogue) -> pd.DataFrame:
             [sums[q].to_numpy(), maxima[q].to_numpy()],
             default=means[q].to_numpy(),
         )
-    for c in ("study_uid", *_LOCATION, "exam_type"):
+    for c in (*_LOCATION, "exam_type"):
         if isinstance(events[c].dtype, pd.CategoricalDtype):  # keep the events' categories
             studies[c] = pd.Categorical(studies[c], dtype=events[c].dtype)
-    studies.insert(0, "unit_kind", "study")
-    studies.insert(1, "event_id", pd.array([pd.NA] * len(studies), dtype="Int64"))
 
-    wide = pd.concat([projections, studies[projections.columns]], ignore_index=True)
-    parts = []
-    for q in quantity_columns:
+    projections = events.loc[~is_study, ["event_id", *base, *quantity_columns]]
+    n_events = len(projections)
+    wide = pd.concat(
+        [projections.drop(columns="event_id"), studies[[*base, *quantity_columns]]],
+        ignore_index=True,
+    )
+    event_ids = np.concatenate(
+        [projections["event_id"].to_numpy(dtype=np.int64), np.full(len(studies), -1, np.int64)]
+    )
+    # one row per (examination, quantity) with a value: positions into ``wide``, taken at once
+    positions, quantity_codes = [], []
+    for index, q in enumerate(quantity_columns):
         with_q = [t.exam_type for t in catalogue if q in t.quantities]
         rows = wide["exam_type"].isin(with_q).to_numpy() & wide[q].notna().to_numpy()
-        part = wide.loc[rows, ["unit_kind", "event_id", *base]].copy()
-        part["quantity"] = q
-        part["value"] = wide.loc[rows, q].to_numpy(dtype=np.float64)
-        parts.append(part)
-    units = pd.concat(parts, ignore_index=True) if parts else pd.DataFrame(columns=UNIT_COLUMNS)
+        positions.append(np.flatnonzero(rows))
+        quantity_codes.append(np.full(int(rows.sum()), index, dtype=np.int64))
+    taken = np.concatenate(positions)
+    units = wide.iloc[taken][base].reset_index(drop=True)
+    values = np.concatenate(
+        [
+            wide[q].to_numpy(dtype=np.float64)[p]
+            for q, p in zip(quantity_columns, positions, strict=True)
+        ]
+    )
+    is_event = taken < n_events
+    units.insert(
+        0, "unit_kind", pd.Categorical.from_codes(np.where(is_event, 0, 1), ["event", "study"])
+    )
+    ids = pd.array(event_ids[taken], dtype="Int64")
+    ids[~is_event] = pd.NA
+    units.insert(1, "event_id", ids)
+    units["quantity"] = pd.Categorical.from_codes(np.concatenate(quantity_codes), quantity_columns)
+    units["value"] = values
     return units.loc[:, list(UNIT_COLUMNS)]
 
 
@@ -303,9 +335,9 @@ def study_table(events: pd.DataFrame, total_columns: Sequence[str]) -> pd.DataFr
     """One row per study: location, modality and exam type of its first event that has them,
     ``n_events``, ``has_dose`` (any dose value on any event) and the totals of ``total_columns``
     (NaN when no event records them)."""
-    codes, out = group_codes(events, ["study_uid"])
+    codes, out = group_codes(events, ["study_code"])
     grouped = events.groupby(codes, sort=True)
-    firsts = grouped[[*_LOCATION, "modality", "exam_type"]].first()
+    firsts = grouped[["study_uid", *_LOCATION, "modality", "exam_type"]].first()
     for c in firsts.columns:
         out[c] = firsts[c].to_numpy()
     out["n_events"] = grouped.size().to_numpy()
@@ -314,4 +346,4 @@ def study_table(events: pd.DataFrame, total_columns: Sequence[str]) -> pd.DataFr
     totals = grouped[list(total_columns)].sum(min_count=1)
     for c in total_columns:
         out[c] = totals[c].to_numpy()
-    return out
+    return out.drop(columns="study_code")
