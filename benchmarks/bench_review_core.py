@@ -58,8 +58,8 @@ def synthetic_month(n: int) -> pd.DataFrame:
             "study_description": None,
             "series_description": None,
             "protocol_name": None,
-            "body_part": np.where(is_ct, None, "CHEST"),
-            "view_position": np.where(is_ct, None, rng.choice(np.array(["PA", "LL", "AP"]), n)),
+            "body_part": np.where(is_ct, "HEAD", "CHEST"),
+            "view_position": rng.choice(np.array(["PA", "LL", "AP"]), n),
         }
     )
     dap = rng.lognormal(np.log(0.09), 0.45, n)
