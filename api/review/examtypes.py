@@ -357,6 +357,22 @@ class MappingRule:
     note: str = ""
     line: int | None = None
 
+    def __post_init__(self) -> None:
+        object.__setattr__(self, "patterns", tuple((str(f), str(p)) for f, p in self.patterns))
+        for field_name, pattern in self.patterns:
+            if field_name not in RULE_FIELDS:
+                raise ReviewInputError(
+                    f"mapping rule {self.priority}: unknown field {field_name!r}; the fields are "
+                    f"{', '.join(RULE_FIELDS)}"
+                )
+            try:
+                compile_pattern(pattern)
+            except re.error as exc:
+                raise ReviewInputError(
+                    f"mapping rule {self.priority}: invalid regular expression {pattern!r} "
+                    f"for {field_name}: {exc}"
+                ) from exc
+
     def to_row(self) -> dict[str, object]:
         """The rule as a CSV row."""
         row: dict[str, object] = {"priority": self.priority, "exam_type": self.exam_type}

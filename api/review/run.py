@@ -74,7 +74,7 @@ __all__ = [
 #: Location columns a review can group by (exam type and quantity are always group keys).
 LOCATION_KEYS = ("site", "room", "device")
 
-#: Columns of :attr:`ReviewResult.groups`.
+#: Columns of :attr:`ReviewResult.groups_df`.
 GROUP_COLUMNS = (
     "site",
     "room",
@@ -108,7 +108,7 @@ GROUP_COLUMNS = (
     "status",
 )
 
-#: Columns of :attr:`ReviewResult.monthly` and of the ``history`` table :func:`review` accepts:
+#: Columns of :attr:`ReviewResult.monthly_df` and of the ``history_df`` table :func:`review` takes:
 #: one row per series and month (``YYYY-MM``); ``quantity`` is a quantity name or ``"dap_ratio"``
 #: (reported / reconstructed DAP, ``exam_type`` None); ``n`` values and their ``median``.
 MONTHLY_COLUMNS = ("month", "site", "room", "device", "exam_type", "quantity", "n", "median")
@@ -380,14 +380,14 @@ class ReviewResult:
     ----------
     period, parameters
         As given.
-    groups : DataFrame
+    groups_df : DataFrame
         Columns :data:`GROUP_COLUMNS`, one row per group and applicable level (a group without a
         level has one row with status ``no_level``), sorted by the group keys, local levels first.
     flags : tuple of Flag
         Sorted by :func:`~beamaudit.api.review.flags.sort_flags`.
-    unmapped : DataFrame
+    unmapped_df : DataFrame
         :func:`~beamaudit.api.review.examtypes.unmapped_summary` of the period's events.
-    monthly : DataFrame
+    monthly_df : DataFrame
         Columns :data:`MONTHLY_COLUMNS`: this period's monthly medians (the next run's history).
     level_sets : tuple of dict
         Identity (name, kind, version, date, source) of each level-set version in effect.
@@ -398,10 +398,10 @@ class ReviewResult:
 
     period: Period
     parameters: ReviewParameters
-    groups: pd.DataFrame
+    groups_df: pd.DataFrame
     flags: tuple[fl.Flag, ...]
-    unmapped: pd.DataFrame
-    monthly: pd.DataFrame
+    unmapped_df: pd.DataFrame
+    monthly_df: pd.DataFrame
     level_sets: tuple[dict[str, str], ...]
     catalogue_fingerprint: str
     software_version: str
@@ -416,10 +416,10 @@ class ReviewResult:
             "level_sets": [dict(s) for s in self.level_sets],
             "catalogue_fingerprint": self.catalogue_fingerprint,
             "n_events": self.n_events,
-            "groups": _records(self.groups),
+            "groups": _records(self.groups_df),
             "flags": [f.to_json_dict() for f in self.flags],
-            "unmapped": _records(self.unmapped),
-            "monthly": _records(self.monthly),
+            "unmapped": _records(self.unmapped_df),
+            "monthly": _records(self.monthly_df),
         }
 
 
@@ -641,7 +641,7 @@ def review(
     *,
     levels: Sequence[ReferenceLevelSet],
     params: ReviewParameters,
-    history: pd.DataFrame | None = None,
+    history_df: pd.DataFrame | None = None,
     catalogue: ExamCatalogue | None = None,
     rules: MappingRules | None = None,
 ) -> ReviewResult:
@@ -656,9 +656,9 @@ def review(
         Every version of every set (local and national); those in effect are chosen here.
     params : ReviewParameters
         Every parameter of the run.
-    history : DataFrame, optional
+    history_df : DataFrame, optional
         Earlier months' medians (columns :data:`MONTHLY_COLUMNS`, e.g. earlier results'
-        ``monthly``) for change-points; months inside the period are ignored.
+        ``monthly_df``) for change-points; months inside the period are ignored.
     catalogue : ExamCatalogue, optional
         Default: the shipped catalogue.
     rules : MappingRules, optional
@@ -711,7 +711,7 @@ def review(
     )
     monthly = pd.concat([_monthly_medians(units, params), ratios], ignore_index=True)
     flags += fl.changepoints(
-        _changepoint_series(monthly, history, catalogue, params),
+        _changepoint_series(monthly, history_df, catalogue, params),
         series_keys=[*LOCATION_KEYS, "exam_type", "quantity"],
         k=params.cusum_k,
         h=params.cusum_h,
@@ -726,10 +726,10 @@ def review(
     return ReviewResult(
         period=params.period,
         parameters=params,
-        groups=groups,
+        groups_df=groups,
         flags=tuple(fl.sort_flags(flags)),
-        unmapped=unmapped,
-        monthly=monthly,
+        unmapped_df=unmapped,
+        monthly_df=monthly,
         level_sets=tuple(s.describe() for s in in_effect),
         catalogue_fingerprint=catalogue.fingerprint(),
         software_version=beamaudit.__version__,

@@ -346,6 +346,14 @@ def test_repeated_priority_is_an_error() -> None:
         MappingRules(rules=(MappingRule(1, "a", (("modality", "DX"),)), MappingRule(1, "b", ())))
 
 
+def test_a_rule_built_in_code_is_checked_too() -> None:
+    # rules kept elsewhere (the store) are built directly; a bad one never exists
+    with pytest.raises(ReviewInputError, match="unknown field 'colour'"):
+        MappingRule(10, "chest_pa", (("colour", "red"),))
+    with pytest.raises(ReviewInputError, match="invalid regular expression"):
+        MappingRule(10, "chest_pa", (("modality", "re:(DX"),))
+
+
 def test_rules_validate_against_a_catalogue_afterwards() -> None:
     rules = rules_from("priority,exam_type,modality\n10,nonexistent,DX\n")
     with pytest.raises(CsvFormatError, match="line 2: exam_type 'nonexistent'"):

@@ -36,7 +36,7 @@ def chest_rows(dap: list[float], weights: list[float], **extra: Any) -> list[dic
 
 
 def group(result: Any, **keys: str) -> pd.DataFrame:
-    frame = result.groups
+    frame = result.groups_df
     for k, v in keys.items():
         frame = frame[frame[k] == v]
     return frame.reset_index(drop=True)
@@ -117,7 +117,7 @@ def test_minimum_samples_are_configurable(make_events) -> None:
 def test_groups_without_a_level_are_listed_with_no_level(make_events) -> None:
     rows = [{"exam_type": "knee_lat", "dap_gy_cm2": 0.05, "patient_weight_kg": 70.0}] * 25
     result = review(make_events(rows), levels=LEVELS, params=MARCH)
-    (row,) = result.groups.to_dict("records")
+    (row,) = result.groups_df.to_dict("records")
     assert row["status"] == "no_level" and row["level_set"] is None
     assert math.isnan(row["ratio_to_level"]) and row["n"] == 25
 
@@ -129,7 +129,7 @@ def test_every_applicable_level_gets_its_row_local_first(make_events) -> None:
     assert esak["level_kind"].tolist() == ["local", "national"]
     assert esak["reference_level"].tolist() == [0.13, 0.4]
     assert esak["status"].tolist() == ["above_level", "below_level"]
-    assert list(result.groups.columns) == list(GROUP_COLUMNS)
+    assert list(result.groups_df.columns) == list(GROUP_COLUMNS)
 
 
 # ------------------------------------------------------------------------- examination values
@@ -164,10 +164,10 @@ def test_levels_in_effect_on_the_first_day_of_the_period(make_events) -> None:
     ]
     november = review(make_events(rows), levels=LEVELS, params=ReviewParameters.for_month(2024, 11))
     # the UK NDRLs take effect on 20 November 2024: not yet for a November review
-    assert set(november.groups["level_kind"]) == {"local"}
+    assert set(november.groups_df["level_kind"]) == {"local"}
     later = ReviewParameters.for_month(2024, 11, levels_on=date(2024, 11, 30))
     assert "national" in set(
-        review(make_events(rows), levels=LEVELS, params=later).groups["level_kind"]
+        review(make_events(rows), levels=LEVELS, params=later).groups_df["level_kind"]
     )
 
 
@@ -193,15 +193,15 @@ def test_scope_filters_and_grouping_by_device(make_events) -> None:
     only_r2 = review(
         events, levels=LEVELS, params=ReviewParameters.for_month(2025, 3, rooms=["R2"])
     )
-    assert set(only_r2.groups["room"]) == {"R2"} and only_r2.n_events == 40
-    assert set(only_r2.groups["n"]) == {40}
+    assert set(only_r2.groups_df["room"]) == {"R2"} and only_r2.n_events == 40
+    assert set(only_r2.groups_df["n"]) == {40}
     by_device = review(
         events,
         levels=LEVELS,
         params=ReviewParameters.for_month(2025, 3, group_by=("room", "device")),
     )
-    assert sorted(set(by_device.groups["device"])) == ["D1", "D2", "D3"]
-    assert set(by_device.groups["site"]) == {None}
+    assert sorted(set(by_device.groups_df["device"])) == ["D1", "D2", "D3"]
+    assert set(by_device.groups_df["site"]) == {None}
 
 
 def test_exam_type_scope_keeps_the_unmapped_list(make_events) -> None:
@@ -210,8 +210,8 @@ def test_exam_type_scope_keeps_the_unmapped_list(make_events) -> None:
     rows += [{"exam_type": "abdomen_ap", "dap_gy_cm2": 2.0, "patient_weight_kg": 70.0}] * 20
     params = ReviewParameters.for_month(2025, 3, exam_types=["abdomen_ap"])
     result = review(make_events(rows), levels=LEVELS, params=params)
-    assert set(result.groups["exam_type"]) == {"abdomen_ap"}
-    assert result.unmapped["n_events"].tolist() == [3]
+    assert set(result.groups_df["exam_type"]) == {"abdomen_ap"}
+    assert result.unmapped_df["n_events"].tolist() == [3]
     assert "unmapped_events" in kinds(result)
 
 
@@ -223,8 +223,8 @@ def test_rules_fill_in_missing_exam_types_only(make_events) -> None:
     ]
     params = ReviewParameters.for_month(2025, 3, basis="all")
     result = review(make_events(rows), levels=LEVELS, params=params, rules=load_default_rules())
-    assert sorted(set(result.groups["exam_type"])) == ["chest_lat", "chest_pa"]
-    assert result.unmapped["body_part"].tolist() == ["FOOT"]
+    assert sorted(set(result.groups_df["exam_type"])) == ["chest_lat", "chest_pa"]
+    assert result.unmapped_df["body_part"].tolist() == ["FOOT"]
 
 
 # -------------------------------------------------------------------------- flags through review
@@ -274,7 +274,7 @@ def test_dap_ratio_flag_per_room_and_month(make_events) -> None:
     (flag,) = [f for f in result.flags if f.kind == "dap_ratio_out_of_tolerance"]
     assert (flag.room, flag.date) == ("R2", "2025-03")
     assert flag.numbers["median_ratio"] == pytest.approx(1.4)
-    ratios = result.monthly[result.monthly["quantity"] == "dap_ratio"]
+    ratios = result.monthly_df[result.monthly_df["quantity"] == "dap_ratio"]
     assert ratios["room"].tolist() == ["R1", "R2", "R3"]
 
 
@@ -294,7 +294,7 @@ def test_changepoint_against_stored_history(make_events) -> None:
         }
     )
     rows = chest_rows([0.15] * 25, [70.0] * 25)
-    result = review(make_events(rows), levels=LEVELS, params=MARCH, history=history)
+    result = review(make_events(rows), levels=LEVELS, params=MARCH, history_df=history)
     (flag,) = [f for f in result.flags if f.kind == "changepoint"]
     assert (flag.room, flag.exam_type, flag.date) == ("R1", "chest_pa", "2025-03")
     assert flag.numbers["before"] == pytest.approx(0.100)
@@ -303,21 +303,21 @@ def test_changepoint_against_stored_history(make_events) -> None:
     # thin months do not count: with n below the minimum the history is ignored
     thin = history.assign(n=5)
     assert "changepoint" not in kinds(
-        review(make_events(rows), levels=LEVELS, params=MARCH, history=thin)
+        review(make_events(rows), levels=LEVELS, params=MARCH, history_df=thin)
     )
 
 
 def test_monthly_table_is_the_next_runs_history(make_events) -> None:
     rows = chest_rows([0.1] * 25, [70.0] * 25)
     result = review(make_events(rows), levels=LEVELS, params=MARCH)
-    assert list(result.monthly.columns) == list(MONTHLY_COLUMNS)
-    row = result.monthly[result.monthly["quantity"] == "dap_gy_cm2"].iloc[0]
+    assert list(result.monthly_df.columns) == list(MONTHLY_COLUMNS)
+    row = result.monthly_df[result.monthly_df["quantity"] == "dap_gy_cm2"].iloc[0]
     assert (row["month"], row["n"], row["median"]) == ("2025-03", 25, 0.1)
     april = review(
         make_events(rows, event_datetime=pd.Timestamp("2025-04-02")),
         levels=LEVELS,
         params=ReviewParameters.for_month(2025, 4),
-        history=result.monthly,
+        history_df=result.monthly_df,
     )
     assert april.n_events == 25
 
@@ -328,7 +328,7 @@ def test_unknown_exam_types_are_flagged_not_grouped(make_events) -> None:
     result = review(make_events(rows), levels=LEVELS, params=MARCH)
     (flag,) = [f for f in result.flags if f.kind == "unknown_exam_type"]
     assert flag.exam_type == "chest_xray"
-    assert set(result.groups["n"]) == {2}
+    assert set(result.groups_df["n"]) == {2}
 
 
 # ------------------------------------------------------------------------------- reproducibility
@@ -388,7 +388,7 @@ def test_json_layout(make_events) -> None:
 def test_empty_events_give_an_empty_review(make_events) -> None:
     events = make_events([])
     result = review(events, levels=LEVELS, params=MARCH)
-    assert result.n_events == 0 and len(result.groups) == 0 and result.flags == ()
+    assert result.n_events == 0 and len(result.groups_df) == 0 and result.flags == ()
     json.dumps(result.to_json_dict(), allow_nan=False)
 
 
@@ -416,10 +416,10 @@ def test_events_that_break_the_contract_are_refused(make_events, change, message
 def test_history_that_breaks_its_contract_is_refused(make_events) -> None:
     events = make_events(chest_rows([0.1], [70.0]))
     with pytest.raises(ReviewInputError, match="history table lacks"):
-        review(events, levels=LEVELS, params=MARCH, history=pd.DataFrame({"month": ["2025-01"]}))
+        review(events, levels=LEVELS, params=MARCH, history_df=pd.DataFrame({"month": ["2025-01"]}))
     bad = pd.DataFrame({c: ["x"] for c in MONTHLY_COLUMNS})
     with pytest.raises(ReviewInputError, match="YYYY-MM"):
-        review(events, levels=LEVELS, params=MARCH, history=bad)
+        review(events, levels=LEVELS, params=MARCH, history_df=bad)
 
 
 # ---------------------------------------------------------------------------------- parameters
