@@ -159,6 +159,9 @@ def prepare_events(events: pd.DataFrame) -> pd.DataFrame:
         )
     for c in TEXT_COLUMNS:
         col = events[c].reset_index(drop=True).astype(object)
+        if pd.api.types.infer_dtype(col, skipna=True) not in ("string", "empty"):
+            present = col.notna().to_numpy()  # numbers in a text column (room 3): as text
+            col[present] = col[present].astype(str)
         if c in KEY_COLUMNS:  # categorical: factorised once here, not at every grouping
             out[c] = pd.Categorical(col)
         else:

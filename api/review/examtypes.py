@@ -60,7 +60,6 @@ import hashlib
 import re
 from collections.abc import Iterator, Mapping
 from dataclasses import dataclass, field
-from functools import cache
 from importlib import resources
 from types import MappingProxyType
 from typing import Literal, cast
@@ -323,7 +322,6 @@ def write_catalogue_csv(
 
 
 # ------------------------------------------------------------------------------------------- rules
-@cache
 def compile_pattern(pattern: str) -> re.Pattern[str]:
     """Compile one pattern cell (syntax in the module docstring) to a case-insensitive regex.
 

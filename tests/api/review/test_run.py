@@ -385,6 +385,19 @@ def test_json_layout(make_events) -> None:
     assert len(data["catalogue_fingerprint"]) == 64
 
 
+def test_without_any_level_set_every_group_has_no_level(make_events) -> None:
+    result = review(make_events(chest_rows([0.1] * 25, [70.0] * 25)), levels=[], params=MARCH)
+    assert result.groups_df["status"].tolist() == ["no_level"]
+    assert result.level_sets == ()
+
+
+def test_numbers_in_text_columns_are_read_as_text(make_events) -> None:
+    events = make_events(chest_rows([0.1] * 25, [70.0] * 25))
+    events["room"] = [3] * 20 + ["3A"] * 5
+    result = review(events, levels=LEVELS, params=MARCH)
+    assert sorted(set(result.groups_df["room"])) == ["3", "3A"]
+
+
 def test_empty_events_give_an_empty_review(make_events) -> None:
     events = make_events([])
     result = review(events, levels=LEVELS, params=MARCH)
