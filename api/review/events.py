@@ -158,13 +158,17 @@ def prepare_events(events: pd.DataFrame) -> pd.DataFrame:
             + _bad_ids(out, out["event_datetime"].isna().to_numpy())
         )
     for c in TEXT_COLUMNS:
-        col = events[c].reset_index(drop=True).astype(object)
-        if pd.api.types.infer_dtype(col, skipna=True) not in ("string", "empty"):
+        col = events[c].reset_index(drop=True)
+        if not isinstance(col.dtype, pd.StringDtype) and pd.api.types.infer_dtype(
+            col, skipna=True
+        ) not in ("string", "empty"):
+            col = col.astype(object)
             present = col.notna().to_numpy()  # numbers in a text column (room 3): as text
             col[present] = col[present].astype(str)
         if c in KEY_COLUMNS:  # categorical: factorised once here, not at every grouping
             out[c] = pd.Categorical(col)
         else:
+            col = col.astype(object)
             out[c] = col.where(col.notna(), None)
     if out["study_uid"].isna().any():
         raise ReviewInputError(
@@ -246,16 +250,21 @@ def month_labels(month_keys: pd.Series | np.ndarray) -> np.ndarray:
     return labels[inverse]
 
 
-def build_units(events: pd.DataFrame, catalogue: ExamCatalogue) -> pd.DataFrame:
+def build_units(
+    events: pd.DataFrame, catalogue: ExamCatalogue, include: np.ndarray | None = None
+) -> pd.DataFrame:
     """One row per examination value: the events (or study aggregates) of each reviewed quantity.
 
     Parameters
     ----------
     events : DataFrame
-        Prepared events (:func:`prepare_events`) whose ``exam_type`` is in ``catalogue``.
+        Prepared events (:func:`prepare_events`).
     catalogue : ExamCatalogue
         Says per exam type whether its level applies per projection or per examination, its
         quantities and the study aggregation.
+    include : array of bool, optional
+        The events to use (default: those whose exam type is in the catalogue); an event whose
+        exam type is not in the catalogue is never used.
 
     Returns
     -------
@@ -263,8 +272,11 @@ def build_units(events: pd.DataFrame, catalogue: ExamCatalogue) -> pd.DataFrame:
         Columns :data:`UNIT_COLUMNS`; ``unit_kind`` is ``"event"`` (``event_id`` set) or
         ``"study"`` (``event_id`` NA). Values that are NaN are left out.
     """
-    per_study = {t.exam_type for t in catalogue if t.level_applies_per == "examination"}
-    is_study = events["exam_type"].isin(list(per_study)).to_numpy()
+    per_study = [t.exam_type for t in catalogue if t.level_applies_per == "examination"]
+    per_event = [t.exam_type for t in catalogue if t.level_applies_per == "projection"]
+    use = np.ones(len(events), dtype=bool) if include is None else np.asarray(include, dtype=bool)
+    is_study = use & events["exam_type"].isin(per_study).to_numpy()
+    is_event = use & events["exam_type"].isin(per_event).to_numpy()
     quantity_columns = list(QUANTITIES)
     base = ["study_uid", *_LOCATION, "exam_type", "month_key", "patient_weight_kg"]
 
@@ -291,7 +303,7 @@ def build_units(events: pd.DataFrame, catalogue: ExamCatalogue) -> pd.DataFrame:
         if isinstance(events[c].dtype, pd.CategoricalDtype):  # keep the events' categories
             studies[c] = pd.Categorical(studies[c], dtype=events[c].dtype)
 
-    projections = events.loc[~is_study, ["event_id", *base, *quantity_columns]]
+    projections = events.loc[is_event, ["event_id", *base, *quantity_columns]]
     n_events = len(projections)
     wide = pd.concat(
         [projections.drop(columns="event_id"), studies[[*base, *quantity_columns]]],
@@ -315,12 +327,12 @@ def build_units(events: pd.DataFrame, catalogue: ExamCatalogue) -> pd.DataFrame:
             for q, p in zip(quantity_columns, positions, strict=True)
         ]
     )
-    is_event = taken < n_events
+    from_event = taken < n_events
     units.insert(
-        0, "unit_kind", pd.Categorical.from_codes(np.where(is_event, 0, 1), ["event", "study"])
+        0, "unit_kind", pd.Categorical.from_codes(np.where(from_event, 0, 1), ["event", "study"])
     )
     ids = pd.array(event_ids[taken], dtype="Int64")
-    ids[~is_event] = pd.NA
+    ids[~from_event] = pd.NA
     units.insert(1, "event_id", ids)
     units["quantity"] = pd.Categorical.from_codes(np.concatenate(quantity_codes), quantity_columns)
     units["value"] = values

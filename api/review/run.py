@@ -689,9 +689,7 @@ def review(
         scoped = prepared.loc[prepared["exam_type"].isin(list(params.exam_types))].reset_index(
             drop=True
         )
-    known = scoped["exam_type"].isin([t.exam_type for t in catalogue]).to_numpy()
-
-    located = build_units(scoped.loc[known], catalogue)  # each unit keeps its own location
+    located = build_units(scoped, catalogue)  # each unit keeps its own location
     units = _with_location_keys(located.copy(), params.group_by)
     groups, codes, upper = _group_table(units, level_rows, catalogue, params)
     flags: list[fl.Flag] = []
