@@ -15,6 +15,7 @@ from __future__ import annotations
 
 import io
 import os
+import zlib
 from typing import IO, Any
 
 from pydicom import dcmread
@@ -342,6 +343,13 @@ def read_open_file(
         raise IngestError("truncated", f"the object ends early: {exc}", source) from None
     except (ValueError, TypeError, KeyError, NotImplementedError, OverflowError) as exc:
         raise IngestError("bad_value", f"cannot decode the object: {exc}", source) from None
+    except OSError as exc:
+        if exc.errno is not None:
+            raise  # a real I/O error: the caller reports the file as unreadable
+        # pydicom's "No tag to read at file position ...": a sequence or item never closed
+        raise IngestError("truncated", f"the object ends early: {exc}", source) from None
+    except _UNDECODABLE as exc:
+        raise IngestError("bad_value", _undecodable_reason(exc), source) from None
     try:
         _check_complete(ds, fh, size)
     except IngestError as exc:
@@ -359,6 +367,19 @@ def _decode_guard(ds: Dataset, pseudonymiser: Pseudonymiser, source: str) -> Par
         raise IngestError(
             "bad_value", f"cannot decode an element: {type(exc).__name__}: {exc}", source
         ) from None
+    except _UNDECODABLE as exc:
+        raise IngestError("bad_value", _undecodable_reason(exc), source) from None
+
+
+#: failures of pydicom on hostile structure: a "deflated" body that is not a deflate stream,
+#: sequences nested past Python's recursion limit
+_UNDECODABLE: tuple[type[BaseException], ...] = (zlib.error, RecursionError)
+
+
+def _undecodable_reason(exc: BaseException) -> str:
+    if isinstance(exc, RecursionError):
+        return "sequences nest too deeply to be read (PS3.16 templates nest fewer than 10 levels)"
+    return f"the deflated data set cannot be inflated: {exc}"
 
 
 def read_file(path: str | os.PathLike[str], *, pseudonymiser: Pseudonymiser) -> ParseResult:
