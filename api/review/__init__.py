@@ -15,6 +15,7 @@ qualified medical physicist, and local regulations take precedence.
 """
 
 from beamaudit.api.review.errors import CsvFormatError, ReviewError, ReviewInputError
+from beamaudit.api.review.events import EVENT_COLUMNS, prepare_events
 from beamaudit.api.review.examtypes import (
     ExamCatalogue,
     ExamType,
@@ -41,9 +42,19 @@ from beamaudit.api.review.levels import (
     read_levels_csv,
     write_levels_csv,
 )
-from beamaudit.api.review.run import Period, ReviewParameters, ReviewResult, review
+from beamaudit.api.review.run import (
+    GROUP_COLUMNS,
+    MONTHLY_COLUMNS,
+    Period,
+    ReviewParameters,
+    ReviewResult,
+    review,
+)
 
 __all__ = [
+    "EVENT_COLUMNS",
+    "GROUP_COLUMNS",
+    "MONTHLY_COLUMNS",
     "AppliedLevel",
     "CsvFormatError",
     "ExamCatalogue",
@@ -65,6 +76,7 @@ __all__ = [
     "load_national_levels",
     "map_events",
     "match_rules",
+    "prepare_events",
     "read_catalogue_csv",
     "read_levels_csv",
     "read_rules_csv",
