@@ -15,6 +15,7 @@ from __future__ import annotations
 
 import io
 import os
+import re
 import zlib
 from typing import IO, Any
 
@@ -109,10 +110,22 @@ def _required_uid(reader: ValueReader, field: str, ds: Dataset) -> str:
         keyword = "MediaStorageSOPInstanceUID" if field == "sop_instance_uid" else (
             "MediaStorageSOPClassUID")  # fmt: skip
         if meta is not None and meta.get(keyword):
-            return str(meta.get(keyword)).strip()
+            value = str(meta.get(keyword)).strip()
     if value is None:
         raise IngestError("missing_attribute", f"{row.label} is missing or empty (Type 1)")
+    if not _UID_TEXT.match(value):
+        shown = value if len(value) <= 80 else f"{value[:40]}... ({len(value)} characters)"
+        raise IngestError(
+            "bad_value",
+            f"{row.label} {shown!r} cannot be a UID (at most 64 printable characters, PS3.5 9.1)",
+        )
     return value
+
+
+# PS3.5 9.1: a UID is at most 64 characters of digits and dots. Read tolerantly (some devices
+# write letters or leading zeros), but never store what cannot be a UID at all: over 64
+# characters, spaces, control or non-ASCII characters, or a backslash (a second value).
+_UID_TEXT = re.compile(r"^[\x21-\x5b\x5d-\x7e]{1,64}$")
 
 
 def read_dataset(ds: Dataset, *, pseudonymiser: Pseudonymiser, source: str) -> ParseResult:
