@@ -13,7 +13,17 @@ from fastapi import APIRouter
 __all__ = ["ROUTE_MODULES", "api_router"]
 
 #: route modules of this package, each with a module-level ``router``
-ROUTE_MODULES = ("events", "rooms", "qa", "ingest", "upload", "sources", "admin")
+ROUTE_MODULES = (
+    "events",
+    "rooms",
+    "qa",
+    "catalogue",
+    "levels",
+    "ingest",
+    "upload",
+    "sources",
+    "admin",
+)
 
 
 def api_router() -> APIRouter:

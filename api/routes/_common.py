@@ -15,8 +15,9 @@ from datetime import UTC, date, datetime, time, timedelta
 from enum import Enum
 from typing import Annotated, Any, NoReturn, TypeVar
 
-from fastapi import HTTPException, Path, Query, status
+from fastapi import HTTPException, Path, Query, Request, status
 from fastapi.exceptions import RequestValidationError
+from pydantic import BaseModel, ValidationError
 from sqlalchemy import Select
 from sqlalchemy.exc import IntegrityError
 from sqlalchemy.orm import InstrumentedAttribute, Session
@@ -27,11 +28,13 @@ from beamaudit.api.schemas._base import EARLIEST_DATE, LATEST_DATE, MAX_ID, Erro
 __all__ = [
     "AUTH_RESPONSES",
     "CONFLICT",
+    "CSV_ANSWER",
     "NOT_FOUND",
     "IdPath",
     "PageParams",
     "Period",
     "audit",
+    "csv_invalid",
     "decode_cursor",
     "encode_cursor",
     "flush",
@@ -41,6 +44,8 @@ __all__ = [
     "page_params",
     "paginate",
     "period_params",
+    "read_csv_body",
+    "revalidate",
     "snapshot",
 ]
 
@@ -62,11 +67,75 @@ DEFAULT_LIMIT = 100
 _CURSOR_PREFIX = "v1:"
 
 RowT = TypeVar("RowT")
+ModelT = TypeVar("ModelT", bound=BaseModel)
+
+#: largest CSV table an import accepts
+MAX_CSV_BYTES = 8 * 1024 * 1024
+CSV_MEDIA_TYPES = ("text/csv", "text/plain", "application/csv")
+#: the request body of a CSV import, for the OpenAPI schema
+CSV_REQUEST_BODY: dict[str, Any] = {
+    "required": True,
+    "content": {"text/csv": {"schema": {"type": "string"}}},
+}
+#: the answer of a CSV export, for the OpenAPI schema
+CSV_ANSWER: dict[int | str, dict[str, Any]] = {
+    200: {"content": {"text/csv": {"schema": {"type": "string"}}}, "description": "A CSV file."}
+}
+CSV_RESPONSES: dict[int | str, dict[str, Any]] = {
+    413: {"model": ErrorBody, "description": "The file is larger than the limit."},
+    415: {"model": ErrorBody, "description": "Not text/csv."},
+}
 
 
 def invalid(where: tuple[str, ...], message: str) -> NoReturn:
     """Answer 422 in FastAPI's own shape, naming the field (``("query", "cursor")``)."""
     raise RequestValidationError([{"loc": where, "msg": message, "type": "value_error"}])
+
+
+def revalidate(model: type[ModelT], data: dict[str, Any]) -> ModelT:
+    """``data`` checked as ``model`` (a row merged with a change); failures answer 422."""
+    try:
+        return model.model_validate(data)
+    except ValidationError as exc:
+        raise RequestValidationError(
+            [
+                {"loc": ("body", *err["loc"]), "msg": err["msg"], "type": err["type"]}
+                for err in exc.errors(include_url=False, include_input=False)
+            ]
+        ) from None
+
+
+async def read_csv_body(request: Request, limit: int = MAX_CSV_BYTES) -> bytes:
+    """The body of a CSV import, refused (413) once it passes ``limit`` bytes, 415 if not CSV."""
+    media_type = request.headers.get("content-type", "").split(";")[0].strip().lower()
+    if media_type not in CSV_MEDIA_TYPES:
+        raise HTTPException(
+            status.HTTP_415_UNSUPPORTED_MEDIA_TYPE, detail="send the table as text/csv"
+        )
+    chunks: list[bytes] = []
+    size = 0
+    async for chunk in request.stream():
+        size += len(chunk)
+        if size > limit:
+            raise HTTPException(
+                status.HTTP_413_CONTENT_TOO_LARGE, detail=f"the file is larger than {limit} bytes"
+            )
+        chunks.append(chunk)
+    return b"".join(chunks)
+
+
+def csv_invalid(exc: Any) -> NoReturn:
+    """A :class:`~beamaudit.api.review.errors.CsvFormatError` as a 422, one entry per problem."""
+    raise RequestValidationError(
+        [
+            {
+                "loc": ("body", "line", line) if line is not None else ("body",),
+                "msg": msg,
+                "type": "value_error",
+            }
+            for line, msg in exc.problems
+        ]
+    )
 
 
 # -- lookups and writes ---------------------------------------------------------------------------

@@ -8,6 +8,7 @@ from datetime import datetime
 from typing import Any
 
 import httpx
+import pytest
 from fastapi.testclient import TestClient
 
 from beamaudit.api.app import create_app
@@ -143,3 +144,7 @@ def seed(store: Any, results: list[ParseResult]) -> list[int]:
         assert outcome.status == "stored", outcome
         ids.extend(outcome.event_ids)
     return ids
+
+
+#: for tests of request validation only, which answers before any SQL is sent: SQLite suffices
+validation_only = pytest.mark.parametrize("shared_store", ["sqlite"], indirect=True)

@@ -5,7 +5,7 @@ from __future__ import annotations
 from datetime import datetime
 
 import pytest
-from api_support import parse_result, seed
+from api_support import parse_result, seed, validation_only
 from sqlalchemy import update
 
 from beamaudit.api.store import models as m
@@ -170,6 +170,7 @@ def test_unknown_ids_are_404(api, path) -> None:
     assert api.get(path).status_code == 404
 
 
+@validation_only
 @pytest.mark.parametrize(
     ("params", "field"),
     [

@@ -6,6 +6,7 @@ import io
 from pathlib import Path
 
 import pytest
+from api_support import validation_only
 from pydicom.data import get_testdata_file
 from pydicom.dataset import Dataset, FileMetaDataset
 from pydicom.uid import ExplicitVRLittleEndian, generate_uid
@@ -127,6 +128,7 @@ def test_body_over_the_limit_is_413_while_streaming(small_upload_api) -> None:
     assert small_upload_api.get("/ingest-errors").json()["items"] == []  # nothing was processed
 
 
+@validation_only
 @pytest.mark.parametrize(
     ("kwargs", "code"),
     [
