@@ -482,6 +482,12 @@ def mu_en_ratio(
         raise ModelError("energies_kev and weights must have the same shape")
     if not np.all(np.isfinite(w)) or np.any(w < 0.0) or not np.any(w > 0.0):
         raise ModelError("weights must be finite, non-negative and not all zero")
-    num = mass_energy_absorption_cm2_g(numerator, energies)
-    den = mass_energy_absorption_cm2_g(denominator, energies)
+    grid = energy_bin_centres_kev()
+    if energies.shape == grid.shape and np.array_equal(energies, grid):
+        # the beam model's own grid: use the cached coefficients
+        num = grid_mass_energy_absorption_cm2_g(numerator)
+        den = grid_mass_energy_absorption_cm2_g(denominator)
+    else:
+        num = mass_energy_absorption_cm2_g(numerator, energies)
+        den = mass_energy_absorption_cm2_g(denominator, energies)
     return float(np.sum(w * num) / np.sum(w * den))

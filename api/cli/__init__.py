@@ -24,6 +24,7 @@ COMMAND_MODULES = (
     "scan",
     "listen",
     "pull",
+    "review",
     "export",
     "explain",
     "beam",

@@ -1,0 +1,363 @@
+"""``beamaudit review``, ``levels``, ``examtypes`` and ``nightly``: audits against reference levels."""
+
+from __future__ import annotations
+
+import json
+import sys
+from datetime import UTC, datetime, timedelta
+from pathlib import Path
+from typing import Annotated, Any
+
+import typer
+
+from beamaudit.api.cli._common import console, err_console, fail
+
+__all__ = ["register"]
+
+levels_app = typer.Typer(help="Reference-level sets (local and national).", no_args_is_help=True)
+examtypes_app = typer.Typer(help="The exam-type catalogue and mapping rules.", no_args_is_help=True)
+
+
+def _previous_month() -> str:
+    first = datetime.now(UTC).date().replace(day=1)
+    last = first - timedelta(days=1)
+    return f"{last.year:04d}-{last.month:02d}"
+
+
+def review_command(
+    ctx: typer.Context,
+    month: Annotated[
+        str | None, typer.Option(help="Calendar month YYYY-MM (default: the previous month).")
+    ] = None,
+    room: Annotated[list[str] | None, typer.Option(help="Only this room (repeatable).")] = None,
+    nightly: Annotated[
+        bool, typer.Option("--nightly", help="Flag exams stored since the last nightly run.")
+    ] = False,
+    as_json: Annotated[bool, typer.Option("--json", help="Print the result as JSON.")] = False,
+    csv_path: Annotated[Path | None, typer.Option("--csv", help="Write the groups as CSV.")] = None,
+    xlsx_path: Annotated[
+        Path | None, typer.Option("--xlsx", help="Write groups and flags as XLSX.")
+    ] = None,
+) -> None:
+    """Review a month's exams against the reference levels; store the run and its flags."""
+    from beamaudit.api.cli._store import open_store
+    from beamaudit.api.review import ReviewError
+
+    store = open_store(ctx)
+    try:
+        if nightly:
+            run_id, new_flags = _nightly(store)
+        else:
+            run_id = _monthly(store, month or _previous_month(), room)
+            new_flags = None
+    except ReviewError as exc:
+        fail(str(exc))
+    body = _stored_result(store, run_id)
+    if body.get("status") == "failed":
+        fail(f"review run {run_id} failed: {body.get('error')}")
+    result = body["result"]
+    if csv_path is not None or xlsx_path is not None:
+        from beamaudit.api.review_export import write_csv, write_xlsx
+
+        if csv_path is not None:
+            write_csv(result, csv_path)
+        if xlsx_path is not None:
+            write_xlsx(result, xlsx_path)
+    if as_json:
+        out = _json_summary(run_id, result)
+        if new_flags is not None:
+            out["new_flags"] = new_flags
+        typer.echo(json.dumps(out, indent=2, default=str))
+    else:
+        _print(run_id, result, new_flags)
+
+
+def _monthly(store: Any, month: str, rooms: list[str] | None) -> int:
+    from beamaudit.api.review import Period, ReviewParameters
+    from beamaudit.api.reviews import run_review
+
+    period = Period.parse(month)
+    params = ReviewParameters(period=period, rooms=tuple(rooms) if rooms else None)
+    return run_review(store.sessions, params, kind="monthly")
+
+
+def _nightly(store: Any) -> tuple[int, int]:
+    """Review the current month so far; count flags on exams stored since the last nightly run."""
+    from sqlalchemy import select
+
+    from beamaudit.api.review import Period, ReviewParameters
+    from beamaudit.api.reviews import run_review
+    from beamaudit.api.store import models as m
+
+    with store.sessions() as session:
+        last = session.scalar(
+            select(m.ReviewRun.started_at)
+            .where(m.ReviewRun.kind == "nightly", m.ReviewRun.status == "done")
+            .order_by(m.ReviewRun.started_at.desc())
+            .limit(1)
+        )
+    today = datetime.now(UTC).date()
+    start = today.replace(day=1)
+    period = Period(start, today + timedelta(days=1))
+    run_id = run_review(store.sessions, ReviewParameters(period=period), kind="nightly")
+    with store.sessions() as session:
+        stmt = (
+            select(m.FlagRow.id)
+            .join(m.ExposureEventRow, m.ExposureEventRow.id == m.FlagRow.event_id)
+            .where(m.FlagRow.review_run_id == run_id)
+        )
+        if last is not None:
+            stmt = stmt.where(m.ExposureEventRow.stored_at > last)
+        new = len(session.scalars(stmt).all())
+    return run_id, new
+
+
+def _stored_result(store: Any, run_id: int) -> dict[str, Any]:
+    from beamaudit.api.store import models as m
+
+    with store.sessions() as session:
+        run = session.get(m.ReviewRun, run_id)
+        assert run is not None
+        return {"status": run.status, "error": run.error, "result": run.result or {}}
+
+
+GROUP_FIELDS = (
+    "site", "room", "device", "exam_type", "quantity", "unit", "n", "n_standard", "median",
+    "q1", "q3", "mean", "ci_low", "ci_high", "reference_level", "level_set", "level_kind",
+    "level_version", "ratio_to_level", "status",
+)  # fmt: skip
+
+
+def _json_summary(run_id: int, result: dict[str, Any]) -> dict[str, Any]:
+    return {
+        "run_id": run_id,
+        "period": result["period"]["label"],
+        "software_version": result["software_version"],
+        "level_sets": result["level_sets"],
+        "n_events": result["n_events"],
+        "groups": [{k: g.get(k) for k in GROUP_FIELDS} for g in result["groups"]],
+        "flags": result["flags"],
+        "unmapped": result["unmapped"],
+    }
+
+
+STATUS_WORDS = {
+    "above_level": "above the level",
+    "possibly_above": "possibly above",
+    "below_level": "below the level",
+    "insufficient_sample": "too few patients",
+    "no_level": "no level",
+}
+
+
+def _print(run_id: int, result: dict[str, Any], new_flags: int | None) -> None:
+    from rich.table import Table
+
+    console.print(
+        f"review run {run_id}, period {result['period']['label']}: {result['n_events']} events, "
+        f"{len(result['groups'])} group rows, {len(result['flags'])} flags",
+        highlight=False,
+    )
+    table = Table(
+        "room", "exam type", "quantity", "n (std)", "median", "95% CI", "level", "ratio", "status"
+    )
+    for g in result["groups"]:
+        if g.get("reference_level") is None and g["status"] == "no_level":
+            continue
+        table.add_row(
+            str(g["room"]), str(g["exam_type"]), str(g["quantity"]),
+            f"{g['n']} ({g['n_standard']})", _f(g["median"]),
+            f"{_f(g['ci_low'])}-{_f(g['ci_high'])}", _f(g["reference_level"]),
+            _f(g["ratio_to_level"]), STATUS_WORDS.get(g["status"], g["status"]),
+        )  # fmt: skip
+    console.print(table)
+    for flag in result["flags"][:40]:
+        console.print(f"  [{flag['kind']}] {flag['reason']}", highlight=False, markup=False)
+    if len(result["flags"]) > 40:
+        console.print(f"  ... and {len(result['flags']) - 40} more (--json for all)")
+    if new_flags is not None:
+        console.print(f"new flags since the last nightly run: {new_flags}")
+    console.print(
+        "[dim]Estimates for quality assurance and optimisation; clinical decisions need a qualified medical physicist.[/dim]"
+    )
+
+
+def _f(value: Any) -> str:
+    if value is None:
+        return "-"
+    if isinstance(value, float):
+        return f"{value:.3g}"
+    return str(value)
+
+
+def nightly_command(
+    ctx: typer.Context,
+    as_json: Annotated[bool, typer.Option("--json", help="Print the report as JSON.")] = False,
+) -> None:
+    """Pull every configured DICOMweb source, then run the nightly review.
+
+    Exit code 0: nothing new flagged; 1: new flags; 2: failure (a source or the review).
+    """
+    from sqlalchemy import select
+
+    from beamaudit.api.cli._store import open_store
+    from beamaudit.api.cli.scan import pseudonym_key
+    from beamaudit.api.pulling import pull_source
+    from beamaudit.api.review import ReviewError
+    from beamaudit.api.store import models as m
+    from beamaudit.ingest.errors import IngestError
+    from beamaudit.ingest.pseudonym import Pseudonymiser
+
+    store = open_store(ctx)
+    pseudonymiser = Pseudonymiser(pseudonym_key(store.settings.secret_key_path))
+    with store.sessions() as session:
+        sources = [
+            (s.url, list(s.modalities or []), s.watermark_date)
+            for s in session.scalars(select(m.DicomwebSource).where(m.DicomwebSource.enabled))
+        ]
+    report: dict[str, Any] = {"pulls": [], "failed": []}
+    for url, modalities, watermark in sources:
+        try:
+            since = (
+                "last" if watermark else (datetime.now(UTC).date() - timedelta(days=1)).isoformat()
+            )
+            outcome = pull_source(
+                store.sessions, url=url, since=since, modalities=modalities or None,
+                pseudonymiser=pseudonymiser,
+            )  # fmt: skip
+            report["pulls"].append(outcome.as_dict())
+        except IngestError as exc:
+            report["failed"].append({"source": url, "reason": exc.reason})
+    try:
+        run_id, new_flags = _nightly(store)
+    except ReviewError as exc:
+        report["failed"].append({"source": "review", "reason": str(exc)})
+        run_id, new_flags = None, 0
+    report["review_run_id"] = run_id
+    report["new_flags"] = new_flags
+    if as_json:
+        typer.echo(json.dumps(report, indent=2, default=str))
+    else:
+        for p in report["pulls"]:
+            console.print(
+                f"pulled {p['source']}: {p['events']} new events, {len(p['errors'])} rejected",
+                highlight=False,
+            )
+        for f in report["failed"]:
+            err_console.print(f"failed: {f['source']}: {f['reason']}", markup=False)
+        console.print(f"nightly review run {run_id}: {new_flags} new flags", highlight=False)
+    if report["failed"]:
+        raise typer.Exit(2)
+    if new_flags:
+        raise typer.Exit(1)
+
+
+@levels_app.command("import")
+def levels_import(
+    ctx: typer.Context,
+    path: Annotated[
+        Path, typer.Argument(metavar="FILE.csv", help="Levels CSV (layout: api/data/README.md).")
+    ],
+) -> None:
+    """Import reference-level set versions from a CSV file (all or none)."""
+    from beamaudit.api.cli._store import open_store
+    from beamaudit.api.review import CsvFormatError, ReviewError, read_levels_csv
+    from beamaudit.api.reviews import ensure_catalogue, store_level_sets
+
+    if not path.is_file():
+        fail(f"no such file: {path}")
+    store = open_store(ctx)
+    try:
+        with store.sessions.begin() as session:
+            catalogue, _ = ensure_catalogue(session)
+            sets = read_levels_csv(path, catalogue)
+            rows = store_level_sets(session, sets)
+            names = [f"{r.name} {r.version}" for r in rows]
+    except CsvFormatError as exc:
+        fail(str(exc))
+    except ReviewError as exc:
+        fail(str(exc))
+    console.print(f"imported {len(names)} set version(s): {', '.join(names)}", highlight=False)
+
+
+@levels_app.command("export")
+def levels_export(
+    ctx: typer.Context,
+    output: Annotated[
+        Path | None, typer.Option("--output", "-o", help="File (default: stdout).")
+    ] = None,
+    include_retired: Annotated[bool, typer.Option(help="Also retired sets.")] = False,
+) -> None:
+    """Export every stored reference-level set as CSV (the layout ``levels import`` reads)."""
+    from beamaudit.api.cli._store import open_store
+    from beamaudit.api.review import write_levels_csv
+    from beamaudit.api.routes._review_rows import level_sets_from_store
+
+    store = open_store(ctx)
+    with store.sessions() as session:
+        sets = [s for _, s in level_sets_from_store(session, include_retired=include_retired)]
+    text = write_levels_csv(sets) or ""
+    if output is None:
+        sys.stdout.write(text)
+    else:
+        output.write_text(text, encoding="utf-8")
+
+
+@levels_app.command("list")
+def levels_list(ctx: typer.Context) -> None:
+    """List stored reference-level sets."""
+    from rich.table import Table
+    from sqlalchemy import select
+
+    from beamaudit.api.cli._store import open_store
+    from beamaudit.api.store import models as m
+
+    store = open_store(ctx)
+    table = Table("id", "name", "kind", "version", "effective from", "retired")
+    with store.sessions() as session:
+        for r in session.scalars(
+            select(m.ReferenceLevelSetRow).order_by(m.ReferenceLevelSetRow.id)
+        ):
+            table.add_row(str(r.id), r.name, r.kind, r.version, str(r.effective_from),
+                          "yes" if r.retired_at else "")  # fmt: skip
+    console.print(table)
+
+
+@examtypes_app.command("export")
+def examtypes_export(
+    ctx: typer.Context,
+    what: Annotated[str, typer.Argument(help="catalogue or rules")] = "rules",
+) -> None:
+    """Export the exam-type catalogue or the mapping rules as CSV to standard output."""
+    from beamaudit.api.cli._store import open_store
+    from beamaudit.api.review import write_catalogue_csv, write_rules_csv
+    from beamaudit.api.reviews import ensure_catalogue
+
+    if what not in {"catalogue", "rules"}:
+        fail(f"export what? catalogue or rules, not {what!r}")
+    store = open_store(ctx)
+    with store.sessions.begin() as session:
+        catalogue, rules = ensure_catalogue(session)
+    sys.stdout.write(
+        (write_catalogue_csv(catalogue) if what == "catalogue" else write_rules_csv(rules)) or ""
+    )
+
+
+@examtypes_app.command("remap")
+def examtypes_remap(ctx: typer.Context) -> None:
+    """Map every stored event to an exam type again (after the rules changed)."""
+    from beamaudit.api.cli._store import open_store
+    from beamaudit.api.reviews import map_stored_events
+
+    store = open_store(ctx)
+    with store.sessions.begin() as session:
+        n = map_stored_events(session)
+    console.print(f"{n} events mapped to an exam type")
+
+
+def register(app: typer.Typer) -> None:
+    """Add ``review``, ``nightly``, ``levels`` and ``examtypes`` to ``app``."""
+    app.command("review")(review_command)
+    app.command("nightly")(nightly_command)
+    app.add_typer(levels_app, name="levels")
+    app.add_typer(examtypes_app, name="examtypes")

@@ -1,0 +1,73 @@
+"""A stored review result (its JSON) as CSV and XLSX, for committees' own spreadsheets."""
+
+from __future__ import annotations
+
+import csv
+import io
+from pathlib import Path
+from typing import Any
+
+__all__ = ["GROUP_EXPORT_COLUMNS", "groups_csv_text", "write_csv", "write_xlsx", "xlsx_bytes"]
+
+GROUP_EXPORT_COLUMNS = (
+    "site", "room", "device", "exam_type", "quantity", "unit", "n", "n_standard", "basis",
+    "median", "q1", "q3", "mean", "ci_low", "ci_high", "ci_coverage", "reference_level",
+    "level_set", "level_kind", "level_version", "level_source", "ratio_to_level", "status",
+)  # fmt: skip
+FLAG_EXPORT_COLUMNS = ("kind", "severity", "reason", "room", "exam_type", "event_id", "study_uid")
+
+CAUTION = (
+    "Estimates for quality assurance and optimisation; clinical decisions about a patient need "
+    "a qualified medical physicist; local regulations and licensed practice take precedence."
+)
+
+
+def groups_csv_text(result: dict[str, Any]) -> str:
+    """The groups of a result as CSV text (one row per group and level)."""
+    out = io.StringIO()
+    writer = csv.writer(out, lineterminator="\n")
+    writer.writerow(GROUP_EXPORT_COLUMNS)
+    for g in result.get("groups", []):
+        writer.writerow(["" if g.get(c) is None else g.get(c) for c in GROUP_EXPORT_COLUMNS])
+    return out.getvalue()
+
+
+def write_csv(result: dict[str, Any], path: Path) -> None:
+    path.write_text(groups_csv_text(result), encoding="utf-8")
+
+
+def xlsx_bytes(result: dict[str, Any]) -> bytes:
+    """A workbook: groups, flags, and a sheet stating the period, method and caution."""
+    from openpyxl import Workbook
+
+    wb = Workbook()
+    about = wb.active
+    about.title = "about"
+    period = result.get("period", {})
+    about.append(["period", period.get("label")])
+    about.append(["software version", result.get("software_version")])
+    about.append(["events", result.get("n_events")])
+    about.append(["method", "ICRP Publication 135: median of standard-size patients vs levels"])
+    for s in result.get("level_sets", []):
+        about.append(["level set", f"{s.get('name')} {s.get('version')} ({s.get('kind')})"])
+    about.append(["caution", CAUTION])
+    groups = wb.create_sheet("groups")
+    groups.append(list(GROUP_EXPORT_COLUMNS))
+    for g in result.get("groups", []):
+        groups.append([g.get(c) for c in GROUP_EXPORT_COLUMNS])
+    flags = wb.create_sheet("flags")
+    flags.append(list(FLAG_EXPORT_COLUMNS))
+    for f in result.get("flags", []):
+        flags.append(
+            [
+                f.get(c) if not isinstance(f.get(c), dict | list) else str(f.get(c))
+                for c in FLAG_EXPORT_COLUMNS
+            ]
+        )
+    buf = io.BytesIO()
+    wb.save(buf)
+    return buf.getvalue()
+
+
+def write_xlsx(result: dict[str, Any], path: Path) -> None:
+    path.write_bytes(xlsx_bytes(result))
