@@ -1,0 +1,323 @@
+"""Simulation of the radiography rooms (DX rooms, the CR room, the mobile unit).
+
+Per day a Poisson number of studies (the room's rate), each a procedure drawn from the room's
+exam mix, each view exposed as :mod:`beamaudit.api.demo.physics` says: patient thickness from
+weight, tube charge from the AEC (or the radiographer's judgement on the R10 mAs scale), field
+from the collimation, true DAP from the room's tube output, reported DAP from the room's DAP
+meter. The planted findings of these rooms (see :data:`beamaudit.api.demo.plants.PLANTED`) are
+applied here: the DAP meter fault, the doubled AEC dose level, the failed dose link, the unmapped
+protocol name and the radiography outliers.
+"""
+
+from __future__ import annotations
+
+import math
+from dataclasses import dataclass
+from datetime import date, timedelta
+
+import numpy as np
+
+from beamaudit.api.demo.context import SimulationContext, at
+from beamaudit.api.demo.physics import (
+    TubeOutput,
+    aec_exposure_mas,
+    exposure_dap_gy_cm2,
+    patient_thickness_mm,
+)
+from beamaudit.api.demo.plants import OutlierPlan, PlantedPlan
+from beamaudit.api.demo.records import RadiographStudy, RadiographView
+from beamaudit.api.demo.scenario import PROCEDURES, RoomSpec, ViewProgram
+
+__all__ = ["RadiographyPlan", "simulate_radiography"]
+
+#: Patient exit surface to image receptor, mm: the same common-practice gaps as beamaudit's
+#: model defaults (``model/data/dose_defaults.csv``).
+RECEPTOR_GAP_MM = {"wall_bucky": 40.0, "table_bucky": 60.0, "direct": 10.0}
+#: Tube current the generator picks, mA (fixed mA stations; common practice).
+_TUBE_CURRENT_MA = {"wall_bucky": 500.0, "table_bucky": 400.0, "direct": 250.0}
+_MOBILE_TUBE_CURRENT_MA = 100.0
+#: Spreads (log-standard deviations or standard deviations), invented.
+_THICKNESS_SPREAD = 0.05  # body build at a given weight
+_AEC_SPREAD = 0.06  # AEC termination reproducibility
+_FIELD_SPREAD = 0.05  # collimation habits, per side
+_METER_SPREAD = 0.03  # DAP meter reading reproducibility
+_DI_NOISE_DB = 0.25  # detector and processing
+_ESTIMATE_SPREAD = 0.08  # the radiographer's judgement of the charge a manual view needs
+#: Large patients under AEC: above this multiple of the standard charge the radiographer adds
+#: 10 kV; by the "15 % rule" of the trade, 15 % more kV halves the charge for the same detector
+#: exposure (common practice rule of thumb).
+_KV_STEP_ABOVE = 2.0
+_KV_STEP_KV = 10.0
+_FIFTEEN_PERCENT = 0.15
+
+
+@dataclass(frozen=True)
+class RadiographyPlan:
+    """The dates of this run's planted radiography findings."""
+
+    plan: PlantedPlan
+    meter_date: date
+    change_date: date
+    no_dose_date: date
+    unmapped_date: date
+
+
+def _clipped(rng: np.random.Generator, sigma: float) -> float:
+    """A normal draw of standard deviation ``sigma``, clipped at two standard deviations."""
+    return float(np.clip(rng.normal(0.0, sigma), -2.0 * sigma, 2.0 * sigma))
+
+
+def _edges(extent_mm: float, detector_mm: float, spacing_mm: float) -> tuple[int, int, float]:
+    """Collimator edges (1-based pixel positions, inclusive) of a centred field, and its size."""
+    n_pixels = round(detector_mm / spacing_mm)
+    width_px = int(np.clip(round(extent_mm / spacing_mm), 2, n_pixels))
+    first = (n_pixels - width_px) // 2 + 1
+    return first, first + width_px - 1, width_px * spacing_mm
+
+
+class _RoomSimulator:
+    def __init__(self, room: RoomSpec, ctx: SimulationContext, dates: RadiographyPlan) -> None:
+        assert room.programs is not None
+        self.room = room
+        self.programs = room.programs
+        self.ctx = ctx
+        self.dates = dates
+        self.plan = dates.plan
+        self.rng = ctx.rng(f"room:{room.key}")
+        self.tube = TubeOutput(
+            filters=room.filtration,
+            anode_angle_deg=room.anode_angle_deg,
+            efficiency=room.output_efficiency,
+        )
+        self.room_digit = {"rad1": 1, "rad2": 2, "cr1": 3, "mobile1": 4}.get(room.key, 9)
+
+    # ---------------------------------------------------------------------------- one view
+    def _view(
+        self,
+        study: RadiographStudy,
+        index: int,
+        key: str,
+        when_h: float,
+        laterality: str,
+        technique_recorded: bool,
+    ) -> RadiographView:
+        room, rng, day = self.room, self.rng, study.start.date()
+        prog: ViewProgram = self.programs[key]
+        mas_ref, ei_target = prog.mas_ref, room.target_exposure_index
+        changed = (
+            room.key == self.plan.change_room
+            and key == self.plan.change_program
+            and day >= self.dates.change_date
+        )
+        if changed:  # AEC dose level and target EI raised together: DI stays near 0
+            mas_ref *= self.plan.change_factor
+            ei_target *= self.plan.change_factor
+        weight = study.patient.weight_kg
+        thickness = float(
+            patient_thickness_mm(
+                thickness_ref_mm=prog.thickness_ref_mm,
+                weight_kg=weight,
+                exponent=prog.thickness_exponent,
+            )
+        ) * math.exp(rng.normal(0.0, _THICKNESS_SPREAD))
+        thickness = round(thickness)
+        needed = float(
+            aec_exposure_mas(
+                mas_ref=mas_ref,
+                thickness_mm=thickness,
+                thickness_ref_mm=prog.thickness_ref_mm,
+                doubling_mm=prog.doubling_mm,
+                efficiency=room.output_efficiency,
+            )
+        )
+        kv = prog.kvp_kv
+        if prog.aec and needed * room.output_efficiency / mas_ref > _KV_STEP_ABOVE:
+            # a large patient: the radiographer raises the kV, and the AEC needs less charge
+            kv += _KV_STEP_KV
+            needed /= 2.0 ** (_KV_STEP_KV / prog.kvp_kv / _FIFTEEN_PERCENT)
+        if prog.aec:
+            used = needed * math.exp(_clipped(rng, _AEC_SPREAD))
+        else:  # the radiographer's estimate of what is needed, set on the R10 mAs scale
+            estimate = needed * math.exp(_clipped(rng, _ESTIMATE_SPREAD))
+            used = 10.0 ** (round(10.0 * math.log10(estimate)) / 10.0)
+        used = round(used, 2)
+        sid = prog.sid_mm
+        if room.kind == "mobile":  # bedside: the unit measures the SID, never twice the same
+            sid = 5.0 * round(float(np.clip(rng.normal(prog.sid_mm, 40.0), 880.0, 1200.0)) / 5.0)
+        gap = RECEPTOR_GAP_MM[prog.receptor]
+        to_patient = sid - gap
+        ma = _MOBILE_TUBE_CURRENT_MA if room.kind == "mobile" else _TUBE_CURRENT_MA[prog.receptor]
+        left, right, width_mm = _edges(
+            prog.field_cm[0] * 10.0 * math.exp(rng.normal(0.0, _FIELD_SPREAD)),
+            room.detector_mm[0],
+            room.pixel_spacing_mm,
+        )
+        upper, lower, height_mm = _edges(
+            prog.field_cm[1] * 10.0 * math.exp(rng.normal(0.0, _FIELD_SPREAD)),
+            room.detector_mm[1],
+            room.pixel_spacing_mm,
+        )
+        output = float(self.tube.output_ugy_per_mas_1m(kv))
+        dap_true = float(
+            exposure_dap_gy_cm2(
+                output_ugy_per_mas_1m=output,
+                exposure_mas=used,
+                sid_mm=sid,
+                field_area_cm2=width_mm * height_mm / 100.0,
+            )
+        )
+        meter = room.dap_meter_factor * math.exp(rng.normal(0.0, _METER_SPREAD))
+        if room.key == self.plan.dap_meter_room and day >= self.dates.meter_date:
+            meter *= self.plan.dap_meter_factor
+        di = 10.0 * math.log10(used / needed) + _clipped(rng, _DI_NOISE_DB)
+        protocol, series, body_part, exam_type = (
+            prog.protocol_name,
+            prog.protocol_name,
+            prog.body_part,
+            prog.exam_type,
+        )
+        planted: list[str] = []
+        unmapped = (
+            room.key == self.plan.unmapped_room
+            and key in self.plan.unmapped_programs
+            and day >= self.dates.unmapped_date
+        )
+        if unmapped:  # a new reader menu entry that fills no body part
+            protocol = series = self.plan.unmapped_protocol_name
+            body_part, exam_type = None, None
+            planted.append("unmapped_protocol")
+        if changed:
+            planted.append("change_point")
+        if room.key == self.plan.dap_meter_room and day >= self.dates.meter_date:
+            planted.append("dap_ratio")
+        when = study.start + timedelta(minutes=2 * index + float(rng.uniform(0, 1.5)))
+        return RadiographView(
+            index=index,
+            program=key,
+            exam_type=exam_type,
+            protocol_name=protocol,
+            series_description=series,
+            body_part=body_part,
+            view_position=prog.view_position,
+            laterality=laterality,
+            sop_uid=self.ctx.uids.uid("image", study.study_uid, index),
+            event_uid=self.ctx.uids.uid("event", study.study_uid, index),
+            acquired=when,
+            aec=prog.aec,
+            grid=prog.grid,
+            kvp_kv=kv,
+            exposure_mas=used,
+            tube_current_ma=ma,
+            exposure_time_ms=used / ma * 1000.0,
+            sid_mm=sid,
+            source_to_patient_mm=to_patient,
+            source_to_entrance_mm=to_patient - thickness,
+            thickness_mm=thickness,
+            field_width_mm=width_mm,
+            field_height_mm=height_mm,
+            collimator_edges_px=(left, right, upper, lower),
+            output_ugy_per_mas_1m=output,
+            dap_true_gy_cm2=dap_true,
+            dap_reported_gy_cm2=dap_true * meter,
+            exposure_index=ei_target * 10.0 ** (di / 10.0),
+            target_exposure_index=ei_target,
+            deviation_index=di,
+            technique_recorded=technique_recorded,
+            planted=planted,
+        )
+
+    # --------------------------------------------------------------------------- one study
+    def study(self, day: date, hour: float, procedure_key: str, seq: int) -> RadiographStudy:
+        room, rng, ctx = self.room, self.rng, self.ctx
+        procedure = PROCEDURES[procedure_key]
+        patient = ctx.patients.patient(day, age_mean_y=room.age_mean_y, age_sd_y=room.age_sd_y)
+        accession = f"HB{day:%Y%m%d}{self.room_digit}{seq:02d}"
+        study_uid = ctx.uids.uid("study", room.key, accession)
+        study = RadiographStudy(
+            room=room.key,
+            study_uid=study_uid,
+            series_uid=ctx.uids.uid("series", study_uid),
+            accession=accession,
+            patient=patient,
+            start=at(day, hour),
+            procedure=procedure_key,
+            study_description=procedure.study_description,
+            weight_recorded=bool(rng.random() < room.weight_recorded_fraction),
+        )
+        paired = procedure_key in ("hip", "knee")
+        laterality = ("R" if rng.random() < 0.5 else "L") if paired else "U"
+        recorded = bool(rng.random() < room.technique_recorded_fraction)
+        for index, key in enumerate(procedure.views):
+            study.views.append(self._view(study, index, key, hour, laterality, recorded))
+        return study
+
+    def run(self) -> list[RadiographStudy]:
+        room, rng = self.room, self.rng
+        keys = [k for k, _ in room.procedures]
+        weights = np.array([w for _, w in room.procedures], dtype=float)
+        weights /= weights.sum()
+        late = 24.0 if room.kind == "mobile" else 17.5
+        early = 0.0 if room.kind == "mobile" else 8.0
+        studies: list[RadiographStudy] = []
+        for day in self.ctx.calendar.days():
+            rate = room.studies_per_weekday if day.weekday() < 5 else room.studies_per_weekend_day
+            n = int(rng.poisson(rate))
+            for seq, hour in enumerate(np.sort(rng.uniform(early, late - 0.25, n))):
+                key = keys[int(rng.choice(len(keys), p=weights))]
+                studies.append(self.study(day, float(hour), key, seq))
+        for outlier in self.plan.outliers:
+            if outlier.room == room.key:
+                studies.append(self._outlier(outlier))
+        if room.key == self.plan.no_dose_room:
+            self._plant_no_dose(studies)
+        studies.sort(key=lambda s: s.start)
+        return studies
+
+    # ---------------------------------------------------------------------------- plants
+    def _outlier(self, outlier: OutlierPlan) -> RadiographStudy:
+        calendar = self.ctx.calendar
+        day = calendar.weekday_on_or_after(outlier.month_index, outlier.day)
+        procedure = next(
+            k
+            for k, _ in self.room.procedures
+            if any(self.programs[v].exam_type == outlier.exam_type for v in PROCEDURES[k].views)
+        )
+        study = self.study(day, 11.0, procedure, 90)
+        level = self.ctx.reference_level(outlier.exam_type, outlier.quantity, day)
+        assert level is not None, f"no reference level for the planted outlier {outlier.key}"
+        for view in study.views:
+            if view.exam_type != outlier.exam_type:
+                continue
+            factor = outlier.target_ratio * level[0] / view.dap_reported_gy_cm2
+            old_mas = view.exposure_mas
+            view.exposure_mas = round(old_mas * factor, 1)
+            scale = view.exposure_mas / old_mas  # DAP is proportional to the tube charge
+            view.exposure_time_ms = view.exposure_mas / view.tube_current_ma * 1000.0
+            view.dap_true_gy_cm2 *= scale
+            view.dap_reported_gy_cm2 *= scale
+            view.aec = False
+            assert view.deviation_index is not None and view.target_exposure_index is not None
+            view.deviation_index += 10.0 * math.log10(scale)
+            view.exposure_index = view.target_exposure_index * 10.0 ** (view.deviation_index / 10)
+            view.planted.append("exam_above_investigation_level")
+        study.planted.append(outlier.key)
+        return study
+
+    def _plant_no_dose(self, studies: list[RadiographStudy]) -> None:
+        """The dose link fails for ``no_dose_exams`` consecutive studies from the planned day."""
+        start = self.dates.no_dose_date
+        chosen = [s for s in sorted(studies, key=lambda s: s.start) if s.start.date() >= start]
+        for study in chosen[: self.plan.no_dose_exams]:
+            study.planted.append("no_dose_data")
+            for view in study.views:
+                view.technique_recorded = False
+                view.dose_recorded = False
+                view.exposure_index = view.target_exposure_index = view.deviation_index = None
+                view.planted.append("no_dose_data")
+
+
+def simulate_radiography(
+    room: RoomSpec, ctx: SimulationContext, dates: RadiographyPlan
+) -> list[RadiographStudy]:
+    """Every study of one radiography room over the context's calendar, planted findings in."""
+    return _RoomSimulator(room, ctx, dates).run()
