@@ -19,6 +19,7 @@ ROUTE_MODULES = (
     "qa",
     "catalogue",
     "levels",
+    "reviews",
     "ingest",
     "upload",
     "sources",

@@ -15,12 +15,12 @@ from datetime import UTC, date, datetime, time, timedelta
 from enum import Enum
 from typing import Annotated, Any, NoReturn, TypeVar
 
-from fastapi import HTTPException, Path, Query, Request, status
+from fastapi import Depends, HTTPException, Path, Query, Request, status
 from fastapi.exceptions import RequestValidationError
 from pydantic import BaseModel, ValidationError
 from sqlalchemy import Select
 from sqlalchemy.exc import IntegrityError
-from sqlalchemy.orm import InstrumentedAttribute, Session
+from sqlalchemy.orm import InstrumentedAttribute, Session, sessionmaker
 
 from beamaudit.api.auth import Principal, record_change
 from beamaudit.api.schemas._base import EARLIEST_DATE, LATEST_DATE, MAX_ID, ErrorBody, clean_text
@@ -33,6 +33,7 @@ __all__ = [
     "IdPath",
     "PageParams",
     "Period",
+    "SessionFactory",
     "audit",
     "csv_invalid",
     "decode_cursor",
@@ -61,6 +62,15 @@ CONFLICT: dict[int | str, dict[str, Any]] = {
 }
 
 IdPath = Annotated[int, Path(ge=1, le=MAX_ID, description="row id")]
+
+
+def get_session_factory(request: Request) -> sessionmaker[Session]:
+    """The app's session factory, for work that runs its own transactions (reviews)."""
+    factory: sessionmaker[Session] = request.app.state.session_factory
+    return factory
+
+
+SessionFactory = Annotated[sessionmaker[Session], Depends(get_session_factory)]
 
 MAX_LIMIT = 500
 DEFAULT_LIMIT = 100

@@ -10,7 +10,7 @@ import io
 from datetime import UTC, datetime
 from typing import Annotated, Any
 
-from fastapi import APIRouter, HTTPException, Path, Query, Request, status
+from fastapi import APIRouter, Depends, HTTPException, Path, Query, Request, status
 from fastapi.concurrency import run_in_threadpool
 from fastapi.responses import Response
 from sqlalchemy import func, select
@@ -60,7 +60,25 @@ from beamaudit.api.schemas.catalogue import (
 )
 from beamaudit.api.store import models as m
 
-__all__ = ["router"]
+__all__ = ["CatalogueSession", "router"]
+
+
+def catalogue_session(session: DbSession, who: Physicist) -> Session:
+    """The request's session, after an empty store got the shipped catalogue and rules.
+
+    The review bridge seeds them on first use (:func:`beamaudit.api.reviews.ensure_catalogue`);
+    the catalogue routes do the same, so that what they show is what a review would use.
+    """
+    from beamaudit.api.reviews import ensure_catalogue
+
+    ensure_catalogue(session, actor=who.actor)
+    session.commit()
+    return session
+
+
+#: a physicist's session on a store whose catalogue is seeded
+CatalogueSession = Annotated[Session, Depends(catalogue_session)]
+
 
 router = APIRouter(tags=["catalogue"], responses=AUTH_RESPONSES)
 
@@ -137,7 +155,7 @@ def _uses_of(session: Session, code: str) -> list[str]:
 
 # -- exam types -----------------------------------------------------------------------------------
 @router.get("/exam-types", operation_id="list_exam_types", response_model=list[ExamTypeRead])
-def list_exam_types(session: DbSession, _: Physicist) -> list[ExamTypeRead]:
+def list_exam_types(session: CatalogueSession, _: Physicist) -> list[ExamTypeRead]:
     """The exam-type catalogue, by identifier."""
     return [_exam_type_read(r) for r in session.scalars(select(T).order_by(T.code))]
 
@@ -148,7 +166,7 @@ def list_exam_types(session: DbSession, _: Physicist) -> list[ExamTypeRead]:
     response_class=Response,
     responses=CSV_ANSWER,
 )
-def export_exam_types_csv(session: DbSession, _: Physicist) -> Response:
+def export_exam_types_csv(session: CatalogueSession, _: Physicist) -> Response:
     """The catalogue as a CSV file (the layout ``beamaudit`` reads)."""
     catalogue = ExamCatalogue(
         types=catalogue_from_store(session).types, comments=(_exported_comment("exam types"),)
@@ -220,7 +238,7 @@ def _import_catalogue(
 )
 async def import_exam_types_csv(
     request: Request,
-    session: DbSession,
+    session: CatalogueSession,
     who: Physicist,
     replace: Annotated[
         bool,
@@ -242,7 +260,7 @@ async def import_exam_types_csv(
     response_model=ExamTypeRead,
     responses=NOT_FOUND,
 )
-def get_exam_type(exam_type: CodePath, session: DbSession, _: Physicist) -> ExamTypeRead:
+def get_exam_type(exam_type: CodePath, session: CatalogueSession, _: Physicist) -> ExamTypeRead:
     """One exam type."""
     return _exam_type_read(get_or_404(session, T, exam_type, "exam type"))
 
@@ -254,7 +272,9 @@ def get_exam_type(exam_type: CodePath, session: DbSession, _: Physicist) -> Exam
     status_code=status.HTTP_201_CREATED,
     responses=CONFLICT,
 )
-def create_exam_type(body: ExamTypeCreate, session: DbSession, who: Physicist) -> ExamTypeRead:
+def create_exam_type(
+    body: ExamTypeCreate, session: CatalogueSession, who: Physicist
+) -> ExamTypeRead:
     """Add an exam type to the catalogue."""
     if session.get(T, body.exam_type) is not None:
         raise HTTPException(
@@ -282,7 +302,7 @@ def create_exam_type(body: ExamTypeCreate, session: DbSession, who: Physicist) -
     responses=NOT_FOUND,
 )
 def update_exam_type(
-    exam_type: CodePath, body: ExamTypeUpdate, session: DbSession, who: Physicist
+    exam_type: CodePath, body: ExamTypeUpdate, session: CatalogueSession, who: Physicist
 ) -> ExamTypeRead:
     """Change an exam type; the result is checked as a whole (aggregation against quantities)."""
     row = get_or_404(session, T, exam_type, "exam type")
@@ -311,7 +331,7 @@ def update_exam_type(
     status_code=status.HTTP_204_NO_CONTENT,
     responses={**NOT_FOUND, **CONFLICT},
 )
-def delete_exam_type(exam_type: CodePath, session: DbSession, who: Physicist) -> None:
+def delete_exam_type(exam_type: CodePath, session: CatalogueSession, who: Physicist) -> None:
     """Remove an exam type no mapping rule or reference level uses."""
     row = get_or_404(session, T, exam_type, "exam type")
     uses = _uses_of(session, exam_type)
@@ -346,7 +366,7 @@ def _check_rule(session: Session, exam_type: str, priority: int, rule_id: int | 
 @router.get(
     "/mapping-rules", operation_id="list_mapping_rules", response_model=list[MappingRuleRead]
 )
-def list_mapping_rules(session: DbSession, _: Physicist) -> list[MappingRuleRead]:
+def list_mapping_rules(session: CatalogueSession, _: Physicist) -> list[MappingRuleRead]:
     """The mapping rules in the order they are tried (ascending priority; first match wins)."""
     return [
         MappingRuleRead.model_validate(r) for r in session.scalars(select(R).order_by(R.priority))
@@ -359,7 +379,7 @@ def list_mapping_rules(session: DbSession, _: Physicist) -> list[MappingRuleRead
     response_class=Response,
     responses=CSV_ANSWER,
 )
-def export_mapping_rules_csv(session: DbSession, _: Physicist) -> Response:
+def export_mapping_rules_csv(session: CatalogueSession, _: Physicist) -> Response:
     """The mapping rules as a CSV file (the layout ``beamaudit`` reads)."""
     rules = MappingRules(
         rules=rules_from_store(session).rules, comments=(_exported_comment("mapping rules"),)
@@ -421,7 +441,7 @@ def _read_rules(session: Session, data: bytes) -> MappingRules:
     responses=CSV_RESPONSES,
 )
 async def import_mapping_rules_csv(
-    request: Request, session: DbSession, who: Physicist
+    request: Request, session: CatalogueSession, who: Physicist
 ) -> list[MappingRuleRead]:
     """Replace every mapping rule with the rules of a CSV file (checked against the catalogue)."""
     data = await read_csv_body(request)
@@ -435,7 +455,7 @@ async def import_mapping_rules_csv(
     response_model=MappingRuleRead,
     responses=NOT_FOUND,
 )
-def get_mapping_rule(rule_id: IdPath, session: DbSession, _: Physicist) -> MappingRuleRead:
+def get_mapping_rule(rule_id: IdPath, session: CatalogueSession, _: Physicist) -> MappingRuleRead:
     """One mapping rule."""
     return MappingRuleRead.model_validate(get_or_404(session, R, rule_id, "mapping rule"))
 
@@ -448,7 +468,7 @@ def get_mapping_rule(rule_id: IdPath, session: DbSession, _: Physicist) -> Mappi
     responses=CONFLICT,
 )
 def create_mapping_rule(
-    body: MappingRuleCreate, session: DbSession, who: Physicist
+    body: MappingRuleCreate, session: CatalogueSession, who: Physicist
 ) -> MappingRuleRead:
     """Add a mapping rule (its priority must be free; its exam type in the catalogue)."""
     _check_rule(session, body.exam_type, body.priority, None)
@@ -474,7 +494,7 @@ def create_mapping_rule(
     responses={**NOT_FOUND, **CONFLICT},
 )
 def update_mapping_rule(
-    rule_id: IdPath, body: MappingRuleUpdate, session: DbSession, who: Physicist
+    rule_id: IdPath, body: MappingRuleUpdate, session: CatalogueSession, who: Physicist
 ) -> MappingRuleRead:
     """Change a mapping rule."""
     row = get_or_404(session, R, rule_id, "mapping rule")
@@ -509,7 +529,7 @@ def update_mapping_rule(
     status_code=status.HTTP_204_NO_CONTENT,
     responses=NOT_FOUND,
 )
-def delete_mapping_rule(rule_id: IdPath, session: DbSession, who: Physicist) -> None:
+def delete_mapping_rule(rule_id: IdPath, session: CatalogueSession, who: Physicist) -> None:
     """Remove a mapping rule (events it mapped keep their exam type until mapped again)."""
     row = get_or_404(session, R, rule_id, "mapping rule")
     audit(

@@ -18,7 +18,7 @@ from sqlalchemy.orm import Session
 
 from beamaudit import __version__
 from beamaudit.api.auth import Principal
-from beamaudit.api.deps import DbSession, Physicist
+from beamaudit.api.deps import Physicist
 from beamaudit.api.review.errors import CsvFormatError, ReviewError
 from beamaudit.api.review.levels import (
     ReferenceLevelSet,
@@ -46,6 +46,7 @@ from beamaudit.api.routes._review_rows import (
     level_set_from_rows,
     level_sets_from_store,
 )
+from beamaudit.api.routes.catalogue import CatalogueSession
 from beamaudit.api.schemas._base import ShortText
 from beamaudit.api.schemas.levels import (
     LevelCreate,
@@ -155,7 +156,7 @@ def _store_set(session: Session, who: Principal, body: LevelSetCreate) -> m.Refe
 
 @router.get("/level-sets", operation_id="list_level_sets", response_model=list[LevelSetRead])
 def list_level_sets(
-    session: DbSession,
+    session: CatalogueSession,
     _: Physicist,
     include_retired: Annotated[bool, Query(description="also list retired sets")] = False,
     name: Annotated[ShortText | None, Query(description="only the versions of this set")] = None,
@@ -188,7 +189,7 @@ def _csv(sets: list[ReferenceLevelSet], filename: str) -> Response:
     responses=CSV_ANSWER,
 )
 def export_level_sets_csv(
-    session: DbSession,
+    session: CatalogueSession,
     _: Physicist,
     include_retired: Annotated[bool, Query(description="also export retired sets")] = False,
 ) -> Response:
@@ -235,7 +236,7 @@ def _import(session: Session, who: Principal, data: bytes) -> list[LevelSetRead]
     responses={**CSV_RESPONSES, **CONFLICT},
 )
 async def import_level_sets_csv(
-    request: Request, session: DbSession, who: Physicist
+    request: Request, session: CatalogueSession, who: Physicist
 ) -> list[LevelSetRead]:
     """Add the set versions of a CSV file (all or none; every problem answered with its line)."""
     data = await read_csv_body(request)
@@ -248,7 +249,7 @@ async def import_level_sets_csv(
     response_model=LevelSetRead,
     responses=NOT_FOUND,
 )
-def get_level_set(set_id: IdPath, session: DbSession, _: Physicist) -> LevelSetRead:
+def get_level_set(set_id: IdPath, session: CatalogueSession, _: Physicist) -> LevelSetRead:
     """One set version with its levels."""
     return _read(session, get_or_404(session, S, set_id, "reference-level set"))
 
@@ -259,7 +260,7 @@ def get_level_set(set_id: IdPath, session: DbSession, _: Physicist) -> LevelSetR
     response_class=Response,
     responses={**CSV_ANSWER, **NOT_FOUND},
 )
-def export_level_set_csv(set_id: IdPath, session: DbSession, _: Physicist) -> Response:
+def export_level_set_csv(set_id: IdPath, session: CatalogueSession, _: Physicist) -> Response:
     """One set version as a CSV file."""
     row = get_or_404(session, S, set_id, "reference-level set")
     return _csv(
@@ -274,7 +275,9 @@ def export_level_set_csv(set_id: IdPath, session: DbSession, _: Physicist) -> Re
     status_code=status.HTTP_201_CREATED,
     responses=CONFLICT,
 )
-def create_level_set(body: LevelSetCreate, session: DbSession, who: Physicist) -> LevelSetRead:
+def create_level_set(
+    body: LevelSetCreate, session: CatalogueSession, who: Physicist
+) -> LevelSetRead:
     """Add a set version; its exam types must be in the catalogue."""
     row = _store_set(session, who, body)
     session.commit()
@@ -288,7 +291,7 @@ def create_level_set(body: LevelSetCreate, session: DbSession, who: Physicist) -
     responses={**NOT_FOUND, **CONFLICT},
 )
 def update_level_set(
-    set_id: IdPath, body: LevelSetUpdate, session: DbSession, who: Physicist
+    set_id: IdPath, body: LevelSetUpdate, session: CatalogueSession, who: Physicist
 ) -> LevelSetRead:
     """Change a set version that is not retired (``levels`` replaces all its levels)."""
     row = get_or_404(session, S, set_id, "reference-level set")
@@ -347,7 +350,7 @@ def update_level_set(
     response_model=LevelSetRead,
     responses=NOT_FOUND,
 )
-def retire_level_set(set_id: IdPath, session: DbSession, who: Physicist) -> LevelSetRead:
+def retire_level_set(set_id: IdPath, session: CatalogueSession, who: Physicist) -> LevelSetRead:
     """Stop applying a set version (kept for the reviews that used it; retiring twice: no-op)."""
     row = get_or_404(session, S, set_id, "reference-level set")
     if row.retired_at is None:

@@ -85,6 +85,18 @@ def make_api(store: Any, tmp_path: Any, **settings: Any) -> Iterator[Api]:
         yield Api(client, store, tokens, ids)
 
 
+#: invented technique and dose of the parsed objects (demo values)
+DEFAULT_EVENT_FIELDS: dict[str, Any] = {
+    "patient_pseudo_id": "0123456789abcdef0123456789abcdef",
+    "patient_weight_kg": 72.0,
+    "kvp_kv": 81.0,
+    "exposure_mas": 10.0,
+    "filters": (FilterLayer("aluminium", 2.5),),
+    "dap_gy_cm2": 0.12,
+    "provenance": {"kvp_kv": "(0018,0060) KVP"},
+}
+
+
 def parse_result(
     sop: str,
     *,
@@ -121,14 +133,7 @@ def parse_result(
             institution_name="Hollowbrook General (invented)",
             study_datetime=when,
             event_datetime=when,
-            patient_pseudo_id="0123456789abcdef0123456789abcdef",
-            patient_weight_kg=72.0,
-            kvp_kv=81.0,
-            exposure_mas=10.0,
-            filters=(FilterLayer("aluminium", 2.5),),
-            dap_gy_cm2=0.12,
-            provenance={"kvp_kv": "(0018,0060) KVP"},
-            **event_fields,
+            **(DEFAULT_EVENT_FIELDS | event_fields),
         )
         for i in range(n_events)
     ]

@@ -1,0 +1,302 @@
+"""Review runs: start one, follow its status, read its result as JSON, CSV or XLSX, its flags.
+
+A review reads a period's events and compares them with the reference levels in effect
+(:mod:`beamaudit.api.reviews` on the store, :mod:`beamaudit.api.review` the core). It is CPU work:
+the starting route is a plain function, which FastAPI runs in its thread pool, so the event loop
+stays free while it runs; the answer is the finished run (``done`` or ``failed``).
+
+Viewers read runs, results and flags, but never study UIDs or event ids: those are removed from
+what a viewer is answered.
+"""
+
+from __future__ import annotations
+
+from datetime import date
+from typing import Annotated, Any
+
+from fastapi import APIRouter, Depends, HTTPException, Query, status
+from fastapi.responses import Response
+from sqlalchemy import func, select
+
+from beamaudit.api.app import CAUTION
+from beamaudit.api.auth import Principal, has_role
+from beamaudit.api.deps import DbSession, Physicist, Viewer
+from beamaudit.api.routes._common import (
+    AUTH_RESPONSES,
+    CONFLICT,
+    CSV_ANSWER,
+    NOT_FOUND,
+    IdPath,
+    PageParams,
+    SessionFactory,
+    audit,
+    get_or_404,
+    invalid,
+    not_found,
+    page_params,
+    paginate,
+)
+from beamaudit.api.schemas._base import EARLIEST_DATE, LATEST_DATE, ShortText
+from beamaudit.api.schemas.reviews import (
+    FlagRead,
+    FlagUpdate,
+    ReviewCreate,
+    ReviewRunPage,
+    ReviewRunRead,
+    ReviewRunSummary,
+)
+from beamaudit.api.store import models as m
+
+__all__ = ["VIEWER_HIDDEN_KEYS", "for_viewer", "router"]
+
+router = APIRouter(tags=["reviews"], responses=AUTH_RESPONSES)
+
+RUN = m.ReviewRun
+F = m.FlagRow
+#: keys a viewer is never shown, wherever they sit in a result
+VIEWER_HIDDEN_KEYS = frozenset(
+    {
+        "event_id",
+        "event_ids",
+        "study_uid",
+        "study_instance_uid",
+        "sop_instance_uid",
+        "accession_number",
+        "patient_pseudo_id",
+        "irradiation_event_uid",
+    }
+)
+XLSX = "application/vnd.openxmlformats-officedocument.spreadsheetml.sheet"
+NOT_DONE: dict[int | str, dict[str, Any]] = {
+    409: {"description": "The run has no result (still running, or failed)."}
+}
+
+
+def for_viewer(value: Any) -> Any:
+    """``value`` without the keys of :data:`VIEWER_HIDDEN_KEYS`, at any depth."""
+    if isinstance(value, dict):
+        return {k: for_viewer(v) for k, v in value.items() if k not in VIEWER_HIDDEN_KEYS}
+    if isinstance(value, list):
+        return [for_viewer(v) for v in value]
+    return value
+
+
+def _is_physicist(who: Principal) -> bool:
+    return has_role(who.role, "physicist")
+
+
+def _read(session: DbSession, run: m.ReviewRun) -> ReviewRunRead:
+    n_flags = (
+        session.scalar(select(func.count()).select_from(F).where(F.review_run_id == run.id)) or 0
+    )
+    return ReviewRunRead(
+        **ReviewRunSummary.model_validate(run).model_dump(),
+        parameters=run.parameters or {},
+        level_sets=run.level_sets or [],
+        n_flags=n_flags,
+        caution=CAUTION,
+    )
+
+
+def _parameters(body: ReviewCreate) -> Any:
+    from beamaudit.api.review import Period, ReviewError, ReviewParameters
+
+    try:
+        period = Period.parse(body.period)
+    except (ReviewError, ValueError) as exc:
+        invalid(("body", "period"), str(exc))
+    if not (period.start >= EARLIEST_DATE and period.end <= LATEST_DATE):
+        invalid(("body", "period"), f"must lie between {EARLIEST_DATE} and {LATEST_DATE}")
+    if "period" in body.parameters:
+        invalid(("body", "parameters", "period"), "give the period as the body's period field")
+    kwargs: dict[str, Any] = {}
+    for name, value in body.parameters.items():
+        if name == "levels_on" and isinstance(value, str):
+            try:
+                value = date.fromisoformat(value)
+            except ValueError:
+                invalid(("body", "parameters", name), "must be a date YYYY-MM-DD")
+        elif isinstance(value, list):
+            value = tuple(value)
+        kwargs[name] = value
+    try:
+        return ReviewParameters(period=period, **kwargs)
+    except ReviewError as exc:
+        invalid(("body", "parameters"), str(exc))
+    except (TypeError, ValueError) as exc:  # an unknown name or a value of the wrong type
+        invalid(("body", "parameters"), f"bad review parameters: {exc}")
+
+
+@router.post(
+    "/reviews",
+    operation_id="start_review",
+    response_model=ReviewRunRead,
+    status_code=status.HTTP_201_CREATED,
+)
+def start_review(body: ReviewCreate, sessions: SessionFactory, who: Physicist) -> ReviewRunRead:
+    """Run a review of the period and store it; answers the finished run (done or failed).
+
+    The run keeps its parameters, the level-set versions used and the software version, so it
+    can be repeated.
+    """
+    from beamaudit.api.reviews import run_review
+
+    params = _parameters(body)
+    run_id = run_review(sessions, params, kind=body.kind, actor=who.actor)
+    with sessions() as session:
+        run = session.get(RUN, run_id)
+        assert run is not None
+        return _read(session, run)
+
+
+@router.get("/reviews", operation_id="list_reviews", response_model=ReviewRunPage)
+def list_reviews(
+    session: DbSession,
+    _: Viewer,
+    page: Annotated[PageParams, Depends(page_params)],
+    period: Annotated[ShortText | None, Query(description="e.g. 2026-11")] = None,
+    status_: Annotated[
+        ShortText | None, Query(alias="status", description="pending, running, done or failed")
+    ] = None,
+) -> ReviewRunPage:
+    """Review runs, newest first."""
+    stmt = select(RUN)
+    if period is not None:
+        stmt = stmt.where(RUN.period == period)
+    if status_ is not None:
+        stmt = stmt.where(RUN.status == status_)
+    rows, cursor = paginate(session, stmt, RUN.id, page)
+    return ReviewRunPage(
+        items=[ReviewRunSummary.model_validate(r) for r in rows], next_cursor=cursor
+    )
+
+
+@router.get(
+    "/reviews/{run_id}",
+    operation_id="get_review",
+    response_model=ReviewRunRead,
+    responses=NOT_FOUND,
+)
+def get_review(run_id: IdPath, session: DbSession, _: Viewer) -> ReviewRunRead:
+    """One run: status, parameters, the level sets it used."""
+    return _read(session, get_or_404(session, RUN, run_id, "review run"))
+
+
+def _result(session: DbSession, run_id: int, who: Principal) -> dict[str, Any]:
+    run = get_or_404(session, RUN, run_id, "review run")
+    if run.status != "done" or run.result is None:
+        detail = f"review run {run_id} is {run.status}" + (f": {run.error}" if run.error else "")
+        raise HTTPException(status.HTTP_409_CONFLICT, detail=detail)
+    result: dict[str, Any] = dict(run.result)
+    return result if _is_physicist(who) else for_viewer(result)
+
+
+@router.get(
+    "/reviews/{run_id}/result",
+    operation_id="get_review_result",
+    response_model=dict[str, Any],
+    responses={**NOT_FOUND, **NOT_DONE},
+)
+def get_review_result(run_id: IdPath, session: DbSession, who: Viewer) -> dict[str, Any]:
+    """The run's whole result: groups with their medians and levels, flags, unmapped events."""
+    return _result(session, run_id, who)
+
+
+@router.get(
+    "/reviews/{run_id}/result.csv",
+    operation_id="get_review_result_csv",
+    response_class=Response,
+    responses={**CSV_ANSWER, **NOT_FOUND, **NOT_DONE},
+)
+def get_review_result_csv(run_id: IdPath, session: DbSession, who: Viewer) -> Response:
+    """The run's groups as CSV (one row per group and reference level)."""
+    from beamaudit.api.review_export import groups_csv_text
+
+    text = groups_csv_text(_result(session, run_id, who))
+    return Response(
+        text,
+        media_type="text/csv; charset=utf-8",
+        headers={"Content-Disposition": f'attachment; filename="review_{run_id}.csv"'},
+    )
+
+
+@router.get(
+    "/reviews/{run_id}/result.xlsx",
+    operation_id="get_review_result_xlsx",
+    response_class=Response,
+    responses={
+        200: {
+            "content": {XLSX: {"schema": {"type": "string", "format": "binary"}}},
+            "description": "XLSX",
+        },
+        **NOT_FOUND,
+        **NOT_DONE,
+    },
+)
+def get_review_result_xlsx(run_id: IdPath, session: DbSession, who: Viewer) -> Response:
+    """The run as a workbook: the period and method, the groups, the flags."""
+    from beamaudit.api.review_export import xlsx_bytes
+
+    data = xlsx_bytes(_result(session, run_id, who))
+    return Response(
+        data,
+        media_type=XLSX,
+        headers={"Content-Disposition": f'attachment; filename="review_{run_id}.xlsx"'},
+    )
+
+
+def _flag_read(flag: m.FlagRow, who: Principal) -> FlagRead:
+    read = FlagRead.model_validate(flag)
+    if _is_physicist(who):
+        return read
+    return read.model_copy(
+        update={"event_id": None, "study_instance_uid": None, "numbers": for_viewer(read.numbers)}
+    )
+
+
+@router.get(
+    "/reviews/{run_id}/flags",
+    operation_id="list_review_flags",
+    response_model=list[FlagRead],
+    responses=NOT_FOUND,
+)
+def list_review_flags(
+    run_id: IdPath,
+    session: DbSession,
+    who: Viewer,
+    kind: Annotated[ShortText | None, Query(description="e.g. group_above_level")] = None,
+) -> list[FlagRead]:
+    """The run's flags, in the order the review listed them."""
+    get_or_404(session, RUN, run_id, "review run")
+    stmt = select(F).where(F.review_run_id == run_id).order_by(F.id)
+    if kind is not None:
+        stmt = stmt.where(F.kind == kind)
+    return [_flag_read(f, who) for f in session.scalars(stmt)]
+
+
+@router.patch(
+    "/reviews/{run_id}/flags/{flag_id}",
+    operation_id="update_review_flag",
+    response_model=FlagRead,
+    responses={**NOT_FOUND, **CONFLICT},
+)
+def update_review_flag(
+    run_id: IdPath, flag_id: IdPath, body: FlagUpdate, session: DbSession, who: Physicist
+) -> FlagRead:
+    """Acknowledge or close a flag (or open it again)."""
+    flag = session.get(F, flag_id)
+    if flag is None or flag.review_run_id != run_id:
+        not_found(f"flag of review run {run_id}", flag_id)
+    if flag.status != body.status:
+        audit(
+            session,
+            who,
+            action="update",
+            entity="flag",
+            entity_id=flag.id,
+            before={"status": flag.status},
+            after={"status": body.status},
+        )
+        flag.status = body.status
+        session.commit()
+    return _flag_read(flag, who)
