@@ -9,6 +9,7 @@ import logging
 from typing import Any
 
 from fastapi import FastAPI, Request
+from fastapi.exceptions import RequestValidationError
 from fastapi.responses import JSONResponse
 from sqlalchemy.engine import Engine
 from sqlalchemy.exc import OperationalError
@@ -36,6 +37,43 @@ async def _unexpected_error(request: Request, exc: Exception) -> JSONResponse:
     return JSONResponse(
         {"detail": "internal error; the server log has the details"}, status_code=500
     )
+
+
+async def _invalid_request(request: Request, exc: Exception) -> JSONResponse:
+    """422 for a request that may be answered; who may not gets 401 or 403 first.
+
+    FastAPI decodes a JSON body before the route's dependencies run, so a malformed body would
+    otherwise be answered 422 before the token is looked at.
+    """
+    from fastapi.exception_handlers import request_validation_exception_handler
+    from fastapi.routing import APIRoute
+    from starlette.concurrency import run_in_threadpool
+
+    from beamaudit.api.auth import authenticate, has_role
+    from beamaudit.api.deps import presented_token
+    from beamaudit.api.routes._openapi import required_role
+
+    route = request.scope.get("route")
+    role = required_role(route) if isinstance(route, APIRoute) else None
+    if role is not None:
+
+        def who() -> Any:
+            with request.app.state.session_factory() as session:
+                return authenticate(session, presented_token(request))
+
+        principal = await run_in_threadpool(who)
+        if principal is None:
+            return JSONResponse(
+                {"detail": "a valid API token is required (Authorization: Bearer <token>)"},
+                status_code=401,
+                headers={"WWW-Authenticate": "Bearer"},
+            )
+        if not has_role(principal.role, role):
+            return JSONResponse(
+                {"detail": f"this needs the {role} role; the token has {principal.role}"},
+                status_code=403,
+            )
+    return await request_validation_exception_handler(request, exc)  # type: ignore[arg-type]
 
 
 async def _database_unavailable(request: Request, exc: Exception) -> JSONResponse:
@@ -93,6 +131,7 @@ def create_app(settings: Settings, *, engine: Engine | None = None) -> FastAPI:
 
     app.include_router(pages_router)
     app.add_exception_handler(_LoginRedirect, login_redirect_handler)
+    app.add_exception_handler(RequestValidationError, _invalid_request)
     app.add_exception_handler(OperationalError, _database_unavailable)
     app.add_exception_handler(Exception, _unexpected_error)
     customise_openapi(app)

@@ -94,3 +94,12 @@ def test_schema_states_each_operations_role(api) -> None:
     assert events["x-required-role"] == "physicist"
     assert events["security"] == [{"bearerToken": []}]
     assert "security" not in schema["paths"]["/api/v1/health"]["get"]
+
+
+def test_malformed_body_is_401_without_a_token_and_403_to_a_too_low_role(api) -> None:
+    # FastAPI decodes a JSON body before the token is checked; the answer must still be 401/403
+    garbage = {"content": b"{not json", "headers": {"Content-Type": "application/json"}}
+    assert api.post("/sites", as_=None, **garbage).status_code == 401
+    assert api.post("/sites", as_="viewer", **garbage).status_code == 403
+    response = api.post("/sites", as_="physicist", **garbage)
+    assert response.status_code == 422 and response.json()["detail"][0]["type"] == "json_invalid"
