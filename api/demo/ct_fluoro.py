@@ -226,6 +226,7 @@ _REFERENCE_POINT_MM = _SOURCE_TO_TABLE_MM + 10.0  # 1 cm above the tabletop
 _DETECTOR_CLEARANCE_MM = 150.0  # patient surface to the image receptor, on average
 _SPOT_MA = 300.0
 _FLUORO_SPREAD = 0.10
+_ABC_MAX_FACTOR = 1.6  # tube current limit of pulsed fluoroscopy, relative to the standard patient
 _METER_SPREAD = 0.03
 
 
@@ -314,13 +315,21 @@ class _Fluoro:
         start = at(day, hour)
         size = patient.weight_kg / STANDARD_WEIGHT_KG
         kv = float(round(np.clip(protocol.kv_ref * size**0.25, 65.0, 110.0)))
-        ma = protocol.ma_ref * size**1.5 * math.exp(rng.normal(0.0, _FLUORO_SPREAD))
+        # automatic brightness control, up to the generator's pulsed-fluoroscopy limit
+        ma = protocol.ma_ref * min(size**1.5, _ABC_MAX_FACTOR)
+        ma *= math.exp(rng.normal(0.0, _FLUORO_SPREAD))
         total_s = fluoro_time_s
         if total_s is None:
             total_s = protocol.fluoro_time_median_s * math.exp(
                 rng.normal(0.0, protocol.fluoro_time_sigma)
             )
-            total_s = float(np.clip(total_s, 15.0, 1500.0))
+            total_s = float(
+                np.clip(
+                    total_s,
+                    0.4 * protocol.fluoro_time_median_s,
+                    2.2 * protocol.fluoro_time_median_s,
+                )
+            )
         n_runs = int(rng.integers(protocol.runs[0], protocol.runs[1] + 1))
         n_spots = (
             spots
@@ -368,7 +377,8 @@ class _Fluoro:
             )
             clock += timedelta(seconds=float(run_s) + 20.0)
             for _ in spots_after[run]:
-                spot_mas = protocol.spot_mas * size**1.5 * math.exp(rng.normal(0.0, 0.1))
+                spot_mas = protocol.spot_mas * min(size**1.5, _ABC_MAX_FACTOR)
+                spot_mas *= math.exp(rng.normal(0.0, 0.1))
                 spot_ms = spot_mas / _SPOT_MA * 1000.0
                 events.append(
                     self._event(

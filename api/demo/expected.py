@@ -2,14 +2,18 @@
 
 Every expected figure of the manifest (planted ratios, monthly medians, the highest healthy
 values that keep unplanted flags quiet) is measured on the very exposures that were written, so
-the manifest never promises what the files do not hold.
+the manifest never promises what the files do not hold. Flag kinds are the review core's
+(:data:`beamaudit.api.review.flags.FLAG_KINDS`), and the thresholds the plants are designed
+against are the review core's defaults (:class:`beamaudit.api.review.run.ReviewParameters`),
+except the CUSUM baseline, which a review of only a few months must shorten
+(:data:`DESIGN_CUSUM_BASELINE_MONTHS`).
 """
 
 from __future__ import annotations
 
 import statistics
 from collections import defaultdict
-from collections.abc import Iterable
+from collections.abc import Iterable, Iterator
 from dataclasses import dataclass, field
 from datetime import date
 from typing import Any
@@ -18,12 +22,40 @@ from beamaudit.api.demo.context import SimulationContext
 from beamaudit.api.demo.manifest import PlantedFinding
 from beamaudit.api.demo.plants import OutlierPlan
 from beamaudit.api.demo.radiography import RadiographyPlan
-from beamaudit.api.demo.records import CtStudy, FluoroStudy, RadiographStudy
+from beamaudit.api.demo.records import CtStudy, FluoroStudy, Patient, RadiographStudy
 from beamaudit.api.demo.scenario import RoomSpec
+from beamaudit.api.review.run import ReviewParameters
 
-__all__ = ["Generated", "expected_findings", "group_medians", "quiet_numbers"]
+__all__ = [
+    "DESIGN_CUSUM_BASELINE_MONTHS",
+    "Generated",
+    "design_parameters",
+    "expected_findings",
+    "group_medians",
+    "quiet_numbers",
+]
 
-_LOCAL_KIND = "local"
+#: CUSUM baseline the demo's change is designed for: two months before the change of a four-month
+#: run (the review core's default of 6 months needs a longer history).
+DESIGN_CUSUM_BASELINE_MONTHS = 2
+_OUTLIER_TAG = "exam_above_investigation_level"
+
+
+def design_parameters() -> dict[str, Any]:
+    """The review settings the plants are designed against (review defaults, short baseline)."""
+    defaults = ReviewParameters.for_month(2000, 1)  # any month: only the defaults are read
+    return {
+        "investigation_multiple": defaults.investigation_multiple,
+        "dap_ratio_tolerance": defaults.dap_ratio_tolerance,
+        "dap_ratio_min_events": defaults.dap_ratio_min_events,
+        "di_range": list(defaults.di_range),
+        "weight_window_kg": list(defaults.weight_window_kg),
+        "basis": defaults.basis,
+        "cusum_k": defaults.cusum_k,
+        "cusum_h": defaults.cusum_h,
+        "cusum_baseline_months": DESIGN_CUSUM_BASELINE_MONTHS,
+        "minimum_samples": {"radiography": 20, "fluoroscopy": 20, "ct": 20},
+    }
 
 
 @dataclass
@@ -41,47 +73,80 @@ def _month(day: date) -> str:
     return f"{day.year:04d}-{day.month:02d}"
 
 
-def _exam_values(gen: Generated) -> Iterable[tuple[str, str, date, str, float, str | None]]:
-    """(room, exam type, date, quantity, reported value, planted outlier key) of every value a
-    review compares with a level: per view for radiography, per study for CT and fluoroscopy."""
+def _standard(patient: Patient, weight_recorded: bool) -> bool:
+    """Inside the review's standard-size window, as the file records the weight (whole kg)."""
+    low, high = design_parameters()["weight_window_kg"]
+    return weight_recorded and low <= round(patient.weight_kg) <= high
+
+
+@dataclass(frozen=True, slots=True)
+class _Value:
+    room: str
+    exam_type: str
+    day: date
+    quantity: str
+    value: float
+    standard: bool
+    outlier: str | None
+
+
+def _outlier_key(planted: list[str]) -> str | None:
+    return next((p for p in planted if p.startswith("outlier_")), None)
+
+
+def _exam_values(gen: Generated) -> Iterator[_Value]:
+    """Every reported value a review compares with a level: per view for radiography, per study
+    for CT and fluoroscopy."""
     for key, studies in gen.radiography.items():
         for s in studies:
-            outlier = next((p for p in s.planted if p.startswith("outlier_")), None)
+            std = _standard(s.patient, s.weight_recorded)
+            outlier = _outlier_key(s.planted)
             for v in s.views:
                 if v.exam_type is not None and v.dose_recorded:
-                    is_out = outlier if "exam_above_investigation_level" in v.planted else None
-                    yield (
-                        key,
-                        v.exam_type,
-                        v.acquired.date(),
-                        "dap_gy_cm2",
-                        v.dap_reported_gy_cm2,
-                        is_out,
+                    out = outlier if _OUTLIER_TAG in v.planted else None
+                    day = v.acquired.date()
+                    yield _Value(
+                        key, v.exam_type, day, "dap_gy_cm2", v.dap_reported_gy_cm2, std, out
                     )
     for key, ct_studies in gen.ct.items():
         for c in ct_studies:
-            outlier = next((p for p in c.planted if p.startswith("outlier_")), None)
-            day = c.start.date()
-            yield key, c.exam_type, day, "ctdivol_mgy", c.ctdivol_max_mgy, outlier
-            yield key, c.exam_type, day, "dlp_mgy_cm", c.dlp_total_mgy_cm, outlier
+            std, out, day = (
+                _standard(c.patient, c.weight_recorded),
+                _outlier_key(c.planted),
+                c.start.date(),
+            )
+            yield _Value(key, c.exam_type, day, "ctdivol_mgy", c.ctdivol_max_mgy, std, out)
+            yield _Value(key, c.exam_type, day, "dlp_mgy_cm", c.dlp_total_mgy_cm, std, out)
     for key, fl_studies in gen.fluoro.items():
         for f in fl_studies:
-            outlier = next((p for p in f.planted if p.startswith("outlier_")), None)
-            day = f.start.date()
-            yield key, f.exam_type, day, "dap_gy_cm2", f.dap_total_reported_gy_cm2, outlier
-            yield key, f.exam_type, day, "ref_point_air_kerma_mgy", f.rp_total_reported_mgy, outlier
+            std, out, day = (
+                _standard(f.patient, f.weight_recorded),
+                _outlier_key(f.planted),
+                f.start.date(),
+            )
+            yield _Value(key, f.exam_type, day, "dap_gy_cm2", f.dap_total_reported_gy_cm2, std, out)
+            yield _Value(
+                key, f.exam_type, day, "ref_point_air_kerma_mgy", f.rp_total_reported_mgy, std, out
+            )
+
+
+def _median(values: list[float]) -> float | None:
+    return round(statistics.median(values), 6) if values else None
 
 
 def group_medians(gen: Generated, ctx: SimulationContext) -> list[dict[str, Any]]:
-    """Per room, exam type, month and reported quantity: n, median and the shipped levels."""
-    groups: dict[tuple[str, str, str, str], list[float]] = defaultdict(list)
-    for room, exam, day, quantity, value, _ in _exam_values(gen):
-        groups[(room, exam, _month(day), quantity)].append(value)
+    """Per room, exam type, month and reported quantity: n, median and the shipped levels, for
+    all patients and for standard-size ones."""
+    groups: dict[tuple[str, str, str, str], list[_Value]] = defaultdict(list)
+    for v in _exam_values(gen):
+        groups[(v.room, v.exam_type, _month(v.day), v.quantity)].append(v)
     out = []
     for (room, exam, month, quantity), values in sorted(groups.items()):
         first = date(int(month[:4]), int(month[5:]), 1)
         levels = ctx.levels(exam, quantity, first)
-        median = statistics.median(values)
+        every = [v.value for v in values]
+        standard = [v.value for v in values if v.standard]
+        med, med_std = _median(every), _median(standard)
         out.append(
             {
                 "room": gen.rooms[room].name,
@@ -89,38 +154,67 @@ def group_medians(gen: Generated, ctx: SimulationContext) -> list[dict[str, Any]
                 "exam_type": exam,
                 "month": month,
                 "quantity": quantity,
-                "n": len(values),
-                "median": round(median, 6),
+                "n": len(every),
+                "median": med,
+                "n_standard": len(standard),
+                "median_standard": med_std,
                 "levels": levels,
-                "median_to_level": {k: round(median / v, 4) for k, v in levels.items()},
+                "median_to_level": {k: round(med / v, 4) for k, v in levels.items()} if med else {},
+                "median_standard_to_level": (
+                    {k: round(med_std / v, 4) for k, v in levels.items()} if med_std else {}
+                ),
             }
         )
     return out
 
 
-def _ratio_of_medians(values: dict[str, list[float]]) -> dict[str, Any]:
-    return {m: {"n": len(v), "median": round(statistics.median(v), 4)} for m, v in values.items()}
+def _by_month(values: dict[str, list[float]]) -> dict[str, Any]:
+    return {m: {"n": len(v), "median": _median(v)} for m, v in sorted(values.items())}
 
 
-def _dap_ratio(gen: Generated, dates: RadiographyPlan, ctx: SimulationContext) -> PlantedFinding:
+def _finding(gen: Generated, room_key: str | None, **fields_: Any) -> PlantedFinding:
+    room = gen.rooms[room_key] if room_key else None
+    return PlantedFinding(
+        room=room.name if room else None,
+        room_key=room_key,
+        station_name=room.station_name if room else None,
+        **fields_,
+    )
+
+
+def _dap_ratio(gen: Generated, dates: RadiographyPlan) -> list[PlantedFinding]:
     plan = dates.plan
     room = gen.rooms[plan.dap_meter_room]
+    tolerance = design_parameters()["dap_ratio_tolerance"]
     before: list[float] = []
     after: list[float] = []
     monthly: dict[str, list[float]] = defaultdict(list)
+    standard_dap: dict[tuple[str, str], list[float]] = defaultdict(list)
     for s in gen.radiography[room.key]:
+        std = _standard(s.patient, s.weight_recorded)
         for v in s.views:
-            if not (v.dose_recorded and v.technique_recorded) or v.exam_type is None:
+            if v.exam_type is None or not v.dose_recorded:
+                continue
+            if std:
+                standard_dap[(v.exam_type, _month(v.acquired.date()))].append(v.dap_reported_gy_cm2)
+            if not v.technique_recorded:
                 continue
             ratio = v.dap_reported_gy_cm2 / v.dap_true_gy_cm2
             (after if v.acquired.date() >= dates.meter_date else before).append(ratio)
             monthly[_month(v.acquired.date())].append(ratio)
-    return PlantedFinding(
+    by_month = _by_month(monthly)
+    outside = [m for m, r in by_month.items() if abs(r["median"] - 1.0) > tolerance]
+    months = sorted(monthly)
+    minimum = design_parameters()["minimum_samples"]["radiography"]
+    exam_types = sorted({e for e, _ in standard_dap})
+    stepping = [
+        e for e in exam_types if all(len(standard_dap.get((e, m), [])) >= minimum for m in months)
+    ]
+    main = _finding(
+        gen,
+        room.key,
         id="dap_meter_fault",
-        kind="dap_ratio",
-        room=room.name,
-        room_key=room.key,
-        station_name=room.station_name,
+        kind="dap_ratio_out_of_tolerance",
         exam_type=None,
         quantity="dap_gy_cm2",
         date=dates.meter_date.isoformat(),
@@ -130,25 +224,60 @@ def _dap_ratio(gen: Generated, dates: RadiographyPlan, ctx: SimulationContext) -
             f"{dates.meter_date:%d %B %Y} and its calibration factor was not entered: from that "
             f"day the room reports {plan.dap_meter_factor:.2f} times the DAP it delivers. "
             "Technique, tube output (the room's QA) and patients are unchanged, so beamaudit's "
-            "reconstruction stays put while the reported DAP jumps. Side effect, by design: every "
-            f"reported-DAP median of {room.name} steps up by the same factor on that day (the "
-            "reconstructed ESAK does not)."
+            "reconstruction stays put while the reported DAP jumps."
         ),
         expected={
             "planted_factor": plan.dap_meter_factor,
-            "reported_to_true_before": {
-                "n": len(before),
-                "median": round(statistics.median(before), 4),
-            },
-            "reported_to_true_after": {
-                "n": len(after),
-                "median": round(statistics.median(after), 4),
-            },
-            "reported_to_true_by_month": _ratio_of_medians(monthly),
-            "note": "true = the DAP the room delivered (what a calibrated reconstruction should "
-            "find, within the model's uncertainty)",
+            "tolerance": tolerance,
+            "months_outside_tolerance": outside,
+            "reported_to_true_before": {"n": len(before), "median": _median(before)},
+            "reported_to_true_after": {"n": len(after), "median": _median(after)},
+            "reported_to_true_by_month": by_month,
+            "note": "true = the DAP the room delivered, what a calibrated reconstruction should "
+            "find within the model's uncertainty; RAD 1's QA measurements must be loaded",
         },
     )
+    ratio_step = _finding(
+        gen,
+        room.key,
+        id="dap_meter_fault_ratio_step",
+        kind="changepoint",
+        exam_type=None,
+        quantity="dap_ratio",
+        date=f"{outside[0]}-01" if outside else None,
+        month=outside[0] if outside else None,
+        description=f"the monthly median DAP ratio of {room.name} steps up by the meter fault",
+        expected={"direction": "up", "by_month": by_month},
+        consequence_of="dap_meter_fault",
+    )
+    dap_steps = _finding(
+        gen,
+        room.key,
+        id="dap_meter_fault_reported_dap_steps",
+        kind="changepoint",
+        exam_type=None,
+        quantity="dap_gy_cm2",
+        date=dates.meter_date.isoformat(),
+        month=_month(dates.meter_date),
+        description=(
+            f"every reported-DAP median of {room.name} steps up by the meter factor (the "
+            "reconstructed ESAK does not); a change-point may be found in the exam types whose "
+            "every month has enough standard-size patients"
+        ),
+        expected={
+            "direction": "up",
+            "factor": plan.dap_meter_factor,
+            "exam_types_with_full_monthly_series": stepping,
+            "monthly_standard_median_dap_gy_cm2": {
+                f"{e} {m}": {"n": len(vs), "median": _median(vs)}
+                for (e, m), vs in sorted(standard_dap.items())
+                if e in stepping
+            },
+        },
+        consequence_of="dap_meter_fault",
+        required=False,
+    )
+    return [main, ratio_step, dap_steps]
 
 
 def _change_point(gen: Generated, dates: RadiographyPlan, ctx: SimulationContext) -> PlantedFinding:
@@ -156,27 +285,30 @@ def _change_point(gen: Generated, dates: RadiographyPlan, ctx: SimulationContext
     room = gen.rooms[plan.change_room]
     assert room.programs is not None
     exam = room.programs[plan.change_program].exam_type
-    monthly: dict[str, list[float]] = defaultdict(list)
+    every: dict[str, list[float]] = defaultdict(list)
+    standard: dict[str, list[float]] = defaultdict(list)
     for s in gen.radiography[room.key]:
+        std = _standard(s.patient, s.weight_recorded)
         for v in s.views:
             if (
                 v.program == plan.change_program
                 and v.dose_recorded
-                and "exam_above_investigation_level" not in v.planted
+                and _OUTLIER_TAG not in v.planted
             ):
-                monthly[_month(v.acquired.date())].append(v.dap_reported_gy_cm2)
+                every[_month(v.acquired.date())].append(v.dap_reported_gy_cm2)
+                if std:
+                    standard[_month(v.acquired.date())].append(v.dap_reported_gy_cm2)
     months = ctx.calendar.labels()
     first_changed = _month(dates.change_date)
-    before = [x for m, vs in monthly.items() if m < first_changed for x in vs]
-    after = [x for m, vs in monthly.items() if m >= first_changed for x in vs]
+    before = [x for m, vs in standard.items() if m < first_changed for x in vs]
+    after = [x for m, vs in standard.items() if m >= first_changed for x in vs]
     level = ctx.reference_level(exam, "dap_gy_cm2", dates.change_date)
     assert level is not None
-    return PlantedFinding(
+    return _finding(
+        gen,
+        room.key,
         id="aec_dose_doubled",
-        kind="change_point",
-        room=room.name,
-        room_key=room.key,
-        station_name=room.station_name,
+        kind="changepoint",
         exam_type=exam,
         quantity="dap_gy_cm2",
         date=dates.change_date.isoformat(),
@@ -184,75 +316,119 @@ def _change_point(gen: Generated, dates: RadiographyPlan, ctx: SimulationContext
         description=(
             f"On {dates.change_date:%d %B %Y} a service engineer raised the AEC dose level of "
             f"{room.name}'s table bucky for the abdomen program (a complaint about image noise) "
-            "and "
-            f"the program's target exposure index with it, so the deviation index stayed near 0 "
-            f"and nobody noticed: from {first_changed} the tube charge, the DAP and the ESAK of "
-            f"every abdomen AP in {room.name} are {plan.change_factor:g} times what they were."
+            "and the program's target exposure index with it, so the deviation index stayed "
+            f"near 0 and nobody noticed: from {first_changed} the tube charge, the DAP and the "
+            f"ESAK of every abdomen AP in {room.name} are {plan.change_factor:g} times what they "
+            "were. The new median stays below the level: no group_above_level."
         ),
         expected={
             "planted_factor": plan.change_factor,
+            "direction": "up",
             "last_month_before": months[months.index(first_changed) - 1],
             "first_changed_month": first_changed,
             "quantities": ["dap_gy_cm2", "esak_mgy"],
-            "monthly_median_dap_gy_cm2": _ratio_of_medians(monthly),
-            "median_after_over_before": round(
+            "monthly_median_dap_gy_cm2": _by_month(every),
+            "monthly_standard_median_dap_gy_cm2": _by_month(standard),
+            "standard_median_after_over_before": round(
                 statistics.median(after) / statistics.median(before), 3
             ),
             "level": {"set": level[1], "value": level[0]},
-            "median_after_to_level": round(statistics.median(after) / level[0], 3),
+            "standard_median_after_to_level": round(statistics.median(after) / level[0], 3),
         },
     )
 
 
-def _outlier_finding(
-    gen: Generated, outlier: OutlierPlan, ctx: SimulationContext
-) -> PlantedFinding:
-    room = gen.rooms[outlier.room]
+def _strictest_ratio(
+    ctx: SimulationContext, exam: str, quantity: str, day: date, value: float
+) -> dict[str, Any]:
+    levels = ctx.levels(exam, quantity, day)
+    return {
+        "value": round(value, 4),
+        "levels": levels,
+        "ratio_to_level": {k: round(value / v, 3) for k, v in levels.items()},
+        "ratio_to_strictest": round(value / min(levels.values()), 3) if levels else None,
+    }
+
+
+def _outlier(gen: Generated, outlier: OutlierPlan, ctx: SimulationContext) -> list[PlantedFinding]:
     numbers: dict[str, Any] = {"target_ratio": outlier.target_ratio}
-    study_uid, sops, day = "", [], None
+    extra: list[PlantedFinding] = []
+    values: dict[str, dict[str, Any]] = {}
     if outlier.room in gen.radiography:
         study = next(s for s in gen.radiography[outlier.room] if outlier.key in s.planted)
-        view = next(v for v in study.views if "exam_above_investigation_level" in v.planted)
+        view = next(v for v in study.views if _OUTLIER_TAG in v.planted)
         study_uid, sops, day = study.study_uid, [view.sop_uid], view.acquired.date()
-        values = {"dap_gy_cm2": view.dap_reported_gy_cm2}
+        values["dap_gy_cm2"] = _strictest_ratio(
+            ctx, outlier.exam_type, "dap_gy_cm2", day, view.dap_reported_gy_cm2
+        )
+        # the reconstructed ESAK is at least the incident air kerma (backscatter factor > 1)
+        kai = (
+            view.output_ugy_per_mas_1m
+            * view.exposure_mas
+            * (1000.0 / view.source_to_entrance_mm) ** 2
+            / 1000.0
+        )
+        values["esak_mgy"] = _strictest_ratio(ctx, outlier.exam_type, "esak_mgy", day, kai)
+        values["esak_mgy"]["note"] = "value = incident air kerma, a lower bound of the ESAK"
         numbers.update(
             accession=study.accession,
             event_uid=view.event_uid,
             exposure_mas=view.exposure_mas,
             kvp_kv=view.kvp_kv,
-            deviation_index=round(view.deviation_index or 0.0, 1),
+        )
+        di = round(view.deviation_index or 0.0, 1)
+        extra.append(
+            _finding(
+                gen,
+                outlier.room,
+                id=f"{outlier.key}_deviation_index",
+                kind="deviation_index_out_of_range",
+                exam_type=outlier.exam_type,
+                quantity=None,
+                date=day.isoformat(),
+                month=_month(day),
+                description=f"the same exposure overexposed the detector: DI {di:+.1f}",
+                expected={"deviation_index": di, "event_uid": view.event_uid},
+                study_instance_uids=[study_uid],
+                sop_instance_uids=sops,
+                paths=[gen.paths[s] for s in sops],
+                consequence_of=outlier.key,
+            )
         )
     elif outlier.room in gen.ct:
         ct = next(s for s in gen.ct[outlier.room] if outlier.key in s.planted)
         study_uid, day = ct.study_uid, ct.start.date()
         sops = [ct.report_sop_uid] + [a.image_sop_uid for a in ct.acquisitions if a.image_sop_uid]
-        values = {"dlp_mgy_cm": ct.dlp_total_mgy_cm, "ctdivol_mgy": ct.ctdivol_max_mgy}
+        values["dlp_mgy_cm"] = _strictest_ratio(
+            ctx, outlier.exam_type, "dlp_mgy_cm", day, ct.dlp_total_mgy_cm
+        )
+        values["ctdivol_mgy"] = _strictest_ratio(
+            ctx, outlier.exam_type, "ctdivol_mgy", day, ct.ctdivol_max_mgy
+        )
         numbers.update(accession=ct.accession, acquisitions=len(ct.acquisitions))
     else:
         fl = next(s for s in gen.fluoro[outlier.room] if outlier.key in s.planted)
         study_uid, day, sops = fl.study_uid, fl.start.date(), [fl.report_sop_uid]
-        values = {
-            "dap_gy_cm2": fl.dap_total_reported_gy_cm2,
-            "ref_point_air_kerma_mgy": fl.rp_total_reported_mgy,
-        }
-        numbers.update(
-            accession=fl.accession,
-            fluoro_time_s=round(sum(e.duration_s for e in fl.events if e.fluoroscopy), 1),
+        values["dap_gy_cm2"] = _strictest_ratio(
+            ctx, outlier.exam_type, "dap_gy_cm2", day, fl.dap_total_reported_gy_cm2
         )
-    numbers["values"] = {}
-    for quantity, value in values.items():
-        levels = ctx.levels(outlier.exam_type, quantity, day)
-        numbers["values"][quantity] = {
-            "value": round(value, 4),
-            "levels": levels,
-            "ratio_to_level": {k: round(value / v, 3) for k, v in levels.items()},
-        }
-    return PlantedFinding(
+        values["ref_point_air_kerma_mgy"] = _strictest_ratio(
+            ctx, outlier.exam_type, "ref_point_air_kerma_mgy", day, fl.rp_total_reported_mgy
+        )
+        fluoro_s = sum(e.duration_s for e in fl.events if e.fluoroscopy)
+        numbers.update(accession=fl.accession, fluoro_time_s=round(fluoro_s, 1))
+    multiple = design_parameters()["investigation_multiple"]
+    numbers["values"] = values
+    numbers["quantities_above_investigation_level"] = sorted(
+        q
+        for q, v in values.items()
+        if v["ratio_to_strictest"] and v["ratio_to_strictest"] > multiple
+    )
+    main = _finding(
+        gen,
+        outlier.room,
         id=outlier.key,
-        kind="exam_above_investigation_level",
-        room=room.name,
-        room_key=room.key,
-        station_name=room.station_name,
+        kind=_OUTLIER_TAG,
         exam_type=outlier.exam_type,
         quantity=outlier.quantity,
         date=day.isoformat(),
@@ -263,6 +439,7 @@ def _outlier_finding(
         sop_instance_uids=sops,
         paths=[gen.paths[s] for s in sops],
     )
+    return [main, *extra]
 
 
 def _no_dose(gen: Generated, dates: RadiographyPlan) -> PlantedFinding:
@@ -271,12 +448,11 @@ def _no_dose(gen: Generated, dates: RadiographyPlan) -> PlantedFinding:
     studies = [s for s in gen.radiography[room.key] if "no_dose_data" in s.planted]
     sops = [v.sop_uid for s in studies for v in s.views]
     first = studies[0].start.date()
-    return PlantedFinding(
+    return _finding(
+        gen,
+        room.key,
         id="dose_link_failed",
         kind="no_dose_data",
-        room=room.name,
-        room_key=room.key,
-        station_name=room.station_name,
         exam_type=None,
         quantity=None,
         date=first.isoformat(),
@@ -284,7 +460,7 @@ def _no_dose(gen: Generated, dates: RadiographyPlan) -> PlantedFinding:
         description=(
             f"After a battery swap on {first:%d %B %Y} {room.name}'s detector ran unpaired from "
             f"the generator for {len(studies)} examinations: their images carry no kV, no mAs, "
-            "no DAP, no geometry and no exposure index."
+            "no DAP, no geometry and no exposure index (one flag per study)."
         ),
         expected={
             "studies": len(studies),
@@ -310,12 +486,11 @@ def _unmapped(gen: Generated, dates: RadiographyPlan) -> PlantedFinding:
     first = min(v.acquired.date() for _, v in views)
     assert room.programs is not None
     intended = sorted({room.programs[p].exam_type for p in plan.unmapped_programs})
-    return PlantedFinding(
+    return _finding(
+        gen,
+        room.key,
         id="new_reader_menu",
-        kind="unmapped_protocol",
-        room=room.name,
-        room_key=room.key,
-        station_name=room.station_name,
+        kind="unmapped_events",
         exam_type=None,
         quantity=None,
         date=first.isoformat(),
@@ -323,14 +498,16 @@ def _unmapped(gen: Generated, dates: RadiographyPlan) -> PlantedFinding:
         description=(
             f"From {first:%d %B %Y} the radiographers of {room.name} use a new reader menu entry, "
             f"'{plan.unmapped_protocol_name}', for knee series; it fills no Body Part Examined, "
-            "so no mapping rule recognises the exposures (they are knee AP and lateral views)."
+            "so no mapping rule recognises the exposures (they are knee AP and lateral views). "
+            "These are the only unmapped events of the demo."
         ),
         expected={
             "protocol_name": plan.unmapped_protocol_name,
             "body_part": None,
             "study_description": sorted({s.study_description for s, _ in views}),
             "view_positions": sorted({v.view_position for _, v in views}),
-            "events": len(views),
+            "n_events": len(views),
+            "n_combinations": len({(v.view_position, s.study_description) for s, v in views}),
             "studies": len({s.study_uid for s, _ in views}),
             "intended_exam_types": intended,
         },
@@ -341,60 +518,80 @@ def expected_findings(
     gen: Generated, ctx: SimulationContext, dates: RadiographyPlan
 ) -> list[PlantedFinding]:
     """Every planted finding with its expected numbers (broken files are added by the writer)."""
-    findings = [
-        _dap_ratio(gen, dates, ctx),
-        _change_point(gen, dates, ctx),
-        *(_outlier_finding(gen, o, ctx) for o in dates.plan.outliers),
-        _no_dose(gen, dates),
-        _unmapped(gen, dates),
-    ]
+    findings = [*_dap_ratio(gen, dates), _change_point(gen, dates, ctx)]
+    for outlier in dates.plan.outliers:
+        findings += _outlier(gen, outlier, ctx)
+    findings += [_no_dose(gen, dates), _unmapped(gen, dates)]
     return findings
 
 
+def _highest_healthy(gen: Generated, ctx: SimulationContext) -> dict[str, dict[str, Any]]:
+    highest: dict[str, dict[str, Any]] = {}
+    for v in _exam_values(gen):
+        if v.outlier is not None:
+            continue
+        levels = ctx.levels(v.exam_type, v.quantity, v.day)
+        if not levels:
+            continue
+        ratio = v.value / min(levels.values())
+        if ratio > highest.get(v.quantity, {"ratio_to_strictest": 0.0})["ratio_to_strictest"]:
+            highest[v.quantity] = {
+                "ratio_to_strictest": round(ratio, 3),
+                "room_key": v.room,
+                "exam_type": v.exam_type,
+                "date": v.day.isoformat(),
+                "value": round(v.value, 4),
+            }
+    return highest
+
+
 def quiet_numbers(
-    gen: Generated, ctx: SimulationContext, medians: list[dict[str, Any]], dates: RadiographyPlan
+    gen: Generated,
+    ctx: SimulationContext,
+    medians: Iterable[dict[str, Any]],
+    dates: RadiographyPlan,
 ) -> list[dict[str, Any]]:
     """The findings deliberately **not** planted, with the numbers that keep them quiet."""
-    top: dict[str, tuple[float, dict[str, Any]]] = {}
+    top: dict[str, dict[str, Any]] = {}
     for row in medians:
-        for set_name, ratio in row["median_to_level"].items():
-            if ratio > top.get(set_name, (0.0, {}))[0]:
-                top[set_name] = (ratio, row)
-    highest_exam: dict[str, dict[str, Any]] = {}
-    for room, exam, day, quantity, value, outlier in _exam_values(gen):
-        if outlier is not None:
-            continue
-        for set_name, level in ctx.levels(exam, quantity, day).items():
-            ratio = value / level
-            key = f"{set_name} / {quantity}"
-            if ratio > highest_exam.get(key, {"ratio": 0.0})["ratio"]:
-                highest_exam[key] = {
-                    "ratio": round(ratio, 3),
-                    "room_key": room,
-                    "exam_type": exam,
-                    "date": day.isoformat(),
-                    "value": round(value, 4),
-                    "level": level,
+        for set_name, ratio in row["median_standard_to_level"].items():
+            if ratio > top.get(set_name, {"ratio": 0.0})["ratio"]:
+                top[set_name] = {
+                    "ratio": ratio,
+                    **{
+                        f: row[f]
+                        for f in ("room_key", "exam_type", "month", "quantity", "n_standard")
+                    },
                 }
     di = [
         v.deviation_index
         for ss in gen.radiography.values()
         for s in ss
         for v in s.views
-        if v.deviation_index is not None and "exam_above_investigation_level" not in v.planted
+        if v.deviation_index is not None and _OUTLIER_TAG not in v.planted
     ]
     meter_ratios = {
-        key: round(
-            statistics.median(
+        key: _median(
+            [
                 v.dap_reported_gy_cm2 / v.dap_true_gy_cm2
                 for s in studies
                 for v in s.views
                 if v.dose_recorded and v.technique_recorded
-            ),
-            4,
+            ]
         )
         for key, studies in gen.radiography.items()
         if key != dates.plan.dap_meter_room
+    }
+    fluoro_max = {
+        "dap_gy_cm2": max(f.dap_total_reported_gy_cm2 for ss in gen.fluoro.values() for f in ss),
+        "ref_point_air_kerma_mgy": max(
+            f.rp_total_reported_mgy for ss in gen.fluoro.values() for f in ss
+        ),
+        "fluoro_time_s": max(
+            sum(e.duration_s for e in f.events if e.fluoroscopy)
+            for ss in gen.fluoro.values()
+            for f in ss
+        ),
     }
     return [
         {
@@ -402,37 +599,37 @@ def quiet_numbers(
             "reason": "no group is planted above a level: every monthly median of every room and "
             "exam type stays below each shipped level (the doubled abdomen AP of "
             f"{gen.rooms[dates.plan.change_room].name} included)",
-            "highest_median_to_level": {
-                k: {
-                    "ratio": v[0],
-                    **{f: v[1][f] for f in ("room_key", "exam_type", "month", "quantity", "n")},
-                }
-                for k, v in top.items()
-            },
+            "highest_standard_median_to_level": top,
         },
         {
             "kind": "exam_above_investigation_level",
             "reason": "only the planted outliers are far above their levels; the highest healthy "
-            "single value per level set and quantity is listed, so an investigation level must "
-            "lie above these ratios",
-            "highest_healthy_exam_to_level": highest_exam,
+            "reported value per quantity is listed against its strictest level (an investigation "
+            "level must lie above these ratios; ESAK is reconstructed and not listed)",
+            "highest_healthy_to_strictest": _highest_healthy(gen, ctx),
         },
         {
-            "kind": "deviation_index",
+            "kind": "srdl_exceeded",
+            "reason": "no fluoroscopy study reaches an NCRP 168 substantial radiation dose level "
+            "(500 Gy.cm2, 5000 mGy, 60 min), the planted enema included",
+            "largest_study": {k: round(v, 2) for k, v in fluoro_max.items()},
+        },
+        {
+            "kind": "deviation_index_out_of_range",
             "reason": "deviation indices of healthy radiographs stay near 0 (AEC, or the "
-            "radiographer's judgement on the R10 mAs scale)",
+            "radiographer's judgement on the R10 mAs scale); only the two radiography outliers "
+            "are outside -3 to +3",
             "within_plus_minus_1": round(sum(abs(x) <= 1.0 for x in di) / len(di), 4),
             "largest_absolute": round(max(abs(x) for x in di), 2),
         },
         {
-            "kind": "dap_ratio",
+            "kind": "dap_ratio_out_of_tolerance",
             "reason": "the other radiography rooms' DAP meters read within a few percent of the "
             "delivered DAP (reported / true, median over the period)",
             "reported_to_true_median": meter_ratios,
         },
         {
-            "kind": "unmapped_protocol",
-            "reason": "every other protocol, body part and view maps to an exam type with the "
-            "shipped mapping rules",
+            "kind": "unknown_exam_type",
+            "reason": "every mapped event's exam type is in the shipped catalogue",
         },
     ]

@@ -28,7 +28,13 @@ from beamaudit.api.demo.context import Calendar, SimulationContext, UidFactory, 
 from beamaudit.api.demo.ct_fluoro import simulate_ct, simulate_fluoro
 from beamaudit.api.demo.dicom_objects import CR_IMAGE, CT_IMAGE, DX_PRESENTATION, XRAY_DOSE_SR
 from beamaudit.api.demo.errors import DemoError
-from beamaudit.api.demo.expected import Generated, expected_findings, group_medians, quiet_numbers
+from beamaudit.api.demo.expected import (
+    Generated,
+    design_parameters,
+    expected_findings,
+    group_medians,
+    quiet_numbers,
+)
 from beamaudit.api.demo.manifest import FORMAT, QARecord, RoomEntry, ScenarioManifest
 from beamaudit.api.demo.physics import TubeOutput
 from beamaudit.api.demo.plants import PLANTED
@@ -249,6 +255,7 @@ def generate_scenario(
         not_planted=quiet_numbers(gen, ctx, medians, dates),
         group_medians=medians,
         files={"readme": "README.md", "truth_events": "truth_events.csv"},
+        review_parameters=design_parameters(),
         software_version=beamaudit.__version__,
     )
     writer.truth_table(output_dir / "truth_events.csv")

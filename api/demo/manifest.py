@@ -15,7 +15,9 @@ Written as ``<output>/manifest.json`` (UTF-8, sorted keys, 2-space indent); read
 * ``not_planted``: findings the scenario deliberately does **not** plant, with the numbers that
   keep them quiet (``group_above_level``...);
 * ``group_medians``: per room, exam type, month and reported quantity, the number of values, the
-  median and the applicable shipped levels (what the monthly reviews will see);
+  median and the applicable shipped levels, for all patients and for standard-size patients
+  (50-90 kg with a recorded weight, the review's default basis);
+* ``review_parameters``: the review settings the plants were designed against;
 * ``files``: relative paths of ``README.md`` and ``truth_events.csv``.
 
 All paths are relative to the manifest's folder, with ``/`` separators.
@@ -102,9 +104,13 @@ class RoomEntry:
 class PlantedFinding:
     """One finding the scenario plants.
 
-    ``date`` is the first affected day (ISO), ``month`` its month; ``expected`` holds the numbers
-    (computed from the generated data); ``study_instance_uids`` / ``sop_instance_uids`` list the
-    objects concerned when they are few (outliers, missing dose data, broken files).
+    ``kind`` is the review core's flag kind (:data:`beamaudit.api.review.flags.FLAG_KINDS`) or
+    ``ingest_error``. ``date`` is the first affected day (ISO), ``month`` its month; ``expected``
+    holds the numbers (computed from the generated data); ``study_instance_uids`` /
+    ``sop_instance_uids`` list the objects concerned when they are few. ``consequence_of`` names
+    the finding this one follows from (an outlier's deviation index, a meter fault's step in the
+    monthly medians); ``required`` is False for a consequence the review *may* surface, depending
+    on sample sizes and its change-point settings.
     """
 
     id: str
@@ -121,6 +127,8 @@ class PlantedFinding:
     study_instance_uids: list[str] = field(default_factory=list)
     sop_instance_uids: list[str] = field(default_factory=list)
     paths: list[str] = field(default_factory=list)
+    consequence_of: str | None = None
+    required: bool = True
 
 
 @dataclass(slots=True)
@@ -139,6 +147,7 @@ class ScenarioManifest:
     not_planted: list[dict[str, Any]]
     group_medians: list[dict[str, Any]]
     files: dict[str, str]
+    review_parameters: dict[str, Any]
     software_version: str
     invented: bool = True
     format: str = FORMAT

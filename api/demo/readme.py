@@ -33,8 +33,17 @@ def _room_rows(manifest: ScenarioManifest) -> list[str]:
 def _finding_block(f: PlantedFinding) -> list[str]:
     where = ", ".join(x for x in (f.room, f.exam_type, f.quantity) if x)
     when = f" from {f.date}" if f.date else ""
-    lines = [f"- **{f.kind}** (`{f.id}`){': ' + where if where else ''}{when}. {f.description}"]
-    numbers = {k: v for k, v in f.expected.items() if not isinstance(v, dict | list)}
+    tail = ""
+    if f.consequence_of:
+        tail = f" Follows from `{f.consequence_of}`" + ("." if f.required else "; may fire.")
+    head = f"- **{f.kind}** (`{f.id}`){': ' + where if where else ''}{when}."
+    text = f.description[:1].upper() + f.description[1:]
+    lines = [f"{head} {text}{'' if text.endswith('.') else '.'}{tail}"]
+    numbers = {
+        k: (", ".join(map(str, v)) if isinstance(v, list) else v)
+        for k, v in f.expected.items()
+        if not isinstance(v, dict) and not (isinstance(v, list) and len(v) > 8)
+    }
     if numbers:
         lines.append("  Numbers: " + "; ".join(f"{k} {_fmt(v)}" for k, v in numbers.items()) + ".")
     if f.kind == "exam_above_investigation_level":
@@ -83,7 +92,7 @@ def render_readme(manifest: ScenarioManifest) -> str:
         "HVL at 60-120 kV, invented) are in `manifest.json`.",
         "",
         "How the invented rooms expose their patients: tube output is beamaudit's own beam model "
-        "for the room's filtration times an invented room efficiency; the AEC (or a size chart) "
+        "for the room's filtration times an invented efficiency; the AEC (or the radiographer) "
         "sets the mAs from patient thickness, which follows weight (75 +/- 15 kg adults); DAP is "
         "the air kerma at the receptor times the collimated field; each DAP meter adds its own "
         "invented calibration error and a 3 % reading spread. See `beamaudit.api.demo.physics` "
