@@ -81,17 +81,52 @@ def test_result_as_csv_and_xlsx(api, november) -> None:
     assert book.sheetnames == ["about", "groups", "flags"]
 
 
-def test_viewer_sees_no_study_uids_or_event_ids(api, november) -> None:
-    run_id = api.post(
-        "/reviews", json={"period": "2026-11", "parameters": {"investigation_multiple": 2.0}}
-    ).json()["id"]
-    physicist = api.get(f"/reviews/{run_id}/result", as_="physicist").text
+def test_viewer_sees_no_study_uids_or_event_ids(api) -> None:
+    from beamaudit.api.store import models as m
+
+    # a stored run whose result and flags name an exam (as the core's exam-level flags do)
+    concerns = {"event_id": 7, "study_uid": "1.2.7.300", "room": "RAD1", "exam_type": "chest_pa"}
+    flag = {
+        "kind": "exam_above_investigation_level",
+        "severity": "warning",
+        "reason": "DAP above 2 x the level",
+        "numbers": {"dap_gy_cm2": 0.41},
+        "concerns": concerns,
+    }
+    with api.store.session_factory.begin() as s:
+        run = m.ReviewRun(
+            kind="monthly",
+            period="2026-11",
+            software_version="test",
+            status="done",
+            result={"n_events": 30, "groups": [], "flags": [flag], "unmapped": []},
+        )
+        s.add(run)
+        s.flush()
+        s.add(
+            m.FlagRow(
+                review_run_id=run.id,
+                kind=flag["kind"],
+                severity="warning",
+                reason=flag["reason"],
+                numbers=flag["numbers"],
+                study_instance_uid="1.2.7.300",
+                room="RAD1",
+                exam_type="chest_pa",
+            )
+        )
+        run_id = run.id
+    physicist = api.get(f"/reviews/{run_id}/result", as_="physicist").json()
+    assert physicist["flags"][0]["concerns"]["study_uid"] == "1.2.7.300"
     viewer = api.get(f"/reviews/{run_id}/result", as_="viewer").json()
-    assert "1.2.7." in physicist  # the exams above the investigation level, by study UID
+    assert viewer["flags"][0]["concerns"] == {"room": "RAD1", "exam_type": "chest_pa"}
     assert "1.2.7." not in str(viewer)
-    assert "event_id" not in str(viewer) and "study_uid" not in str(viewer)
-    flags = api.get(f"/reviews/{run_id}/flags", as_="viewer").json()
-    assert flags and all(f["event_id"] is None and f["study_instance_uid"] is None for f in flags)
+    (seen,) = api.get(f"/reviews/{run_id}/flags", as_="viewer").json()
+    assert seen["event_id"] is None and seen["study_instance_uid"] is None
+    assert (
+        api.get(f"/reviews/{run_id}/flags", as_="physicist").json()[0]["study_instance_uid"]
+        == "1.2.7.300"
+    )
     workbook = api.get(f"/reviews/{run_id}/result.xlsx", as_="viewer").content
     sheet = load_workbook(io.BytesIO(workbook), read_only=True)["flags"]
     assert not any("1.2.7." in str(c) for row in sheet.iter_rows(values_only=True) for c in row)
