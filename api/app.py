@@ -125,9 +125,12 @@ def create_app(settings: Settings, *, engine: Engine | None = None) -> FastAPI:
     from beamaudit.api.routes._openapi import customise_openapi
 
     app.include_router(api_router(), prefix=API_PREFIX)
-    # -- dashboard pages (beamaudit.api.pages, written by the lead) go here:
-    # from beamaudit.api.pages import router as pages_router
-    # app.include_router(pages_router)
+    # -- dashboard pages
+    from beamaudit.api.pages import _LoginRedirect, login_redirect_handler
+    from beamaudit.api.pages import router as pages_router
+
+    app.include_router(pages_router)
+    app.add_exception_handler(_LoginRedirect, login_redirect_handler)
     app.add_exception_handler(RequestValidationError, _invalid_request)
     app.add_exception_handler(OperationalError, _database_unavailable)
     app.add_exception_handler(Exception, _unexpected_error)

@@ -18,7 +18,7 @@ from sqlalchemy import select
 from sqlalchemy.orm import Session, sessionmaker
 
 from beamaudit.api.pipeline import Pipeline
-from beamaudit.api.reconstruct import reconstruct_events
+from beamaudit.api.postprocess import process_new_events
 from beamaudit.api.store import models as m
 from beamaudit.api.store.base import utcnow
 from beamaudit.ingest.errors import IngestError
@@ -132,7 +132,7 @@ def pull_source(
             [(IngestError("unreadable", p.reason, p.source), p.source) for p in report.errors],
             received_via="pull",
         )
-    reconstruct_events(sessions, new_event_ids)
+    process_new_events(sessions, new_event_ids)
     with sessions.begin() as session:
         row = session.get(m.DicomwebSource, source_id)
         assert row is not None

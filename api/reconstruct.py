@@ -275,3 +275,26 @@ def _reconstruct_one(
     )
     event.recon_trail = dose.as_dict()
     summary.reconstructed += 1
+
+
+def beam_for_event(session: Session, event: m.ExposureEventRow) -> Any:
+    """The beam (spectrum, HVL, output) the model used for ``event``, or None without technique."""
+    from beamaudit.model import BeamSpec, ModelError, compute_beam
+
+    if not event.kvp_kv or event.modality_family == "ct":
+        return None
+    room = session.get(m.Room, event.room_id) if event.room_id else None
+    calibration = calibration_for_room(session, room)
+    try:
+        return compute_beam(
+            BeamSpec(
+                kv=round(event.kvp_kv, 1),
+                filters=_filters(room, event, calibration),
+                anode=_anode_symbol(room.anode_material if room else None),
+                anode_angle_deg=room.anode_angle_deg if room else 12.0,
+                ripple_percent=room.ripple_percent if room else 0.0,
+            ),
+            calibration=calibration,
+        )
+    except ModelError:
+        return None

@@ -24,9 +24,8 @@ from dataclasses import replace
 from datetime import UTC, date, datetime
 from typing import Any
 
-import numpy as np
 import pandas as pd
-from sqlalchemy import func, select
+from sqlalchemy import String, bindparam, case, cast, func, select
 from sqlalchemy.orm import Session, sessionmaker
 
 from beamaudit import __version__
@@ -60,25 +59,25 @@ __all__ = [
     "stored_flags_frame",
 ]
 
+
+def _if_unmapped(column: Any) -> Any:
+    """Header text is needed only to map events that have no exam type yet."""
+    return case((m.ExposureEventRow.exam_type.is_(None), column), else_=None)
+
+
 _EVENT_SELECT = (
     m.ExposureEventRow.id.label("event_id"),
-    func.coalesce(m.ExposureEventRow.event_datetime, m.ExposureEventRow.study_datetime).label(
-        "event_datetime"
-    ),
-    m.Study.study_instance_uid.label("study_uid"),
+    # the study's id as text stands for its UID here (no join, short strings); flags map it back
+    cast(m.ExposureEventRow.study_id, String).label("study_uid"),
     m.ExposureEventRow.room_id,
     m.ExposureEventRow.device_id,
     m.ExposureEventRow.modality,
-    m.ExposureEventRow.modality_family,
-    m.ExposureEventRow.source_kind,
-    m.ExposureEventRow.acquisition_key,
     m.ExposureEventRow.exam_type,
-    m.ExposureEventRow.study_description,
-    m.ExposureEventRow.series_description,
-    m.ExposureEventRow.protocol_name,
-    m.ExposureEventRow.body_part,
-    m.ExposureEventRow.view_position,
-    m.ExposureEventRow.event_type,
+    _if_unmapped(m.ExposureEventRow.study_description).label("study_description"),
+    _if_unmapped(m.ExposureEventRow.series_description).label("series_description"),
+    _if_unmapped(m.ExposureEventRow.protocol_name).label("protocol_name"),
+    _if_unmapped(m.ExposureEventRow.body_part).label("body_part"),
+    _if_unmapped(m.ExposureEventRow.view_position).label("view_position"),
     m.ExposureEventRow.patient_weight_kg,
     m.ExposureEventRow.dap_gy_cm2,
     m.ExposureEventRow.recon_dap_gy_cm2,
@@ -88,7 +87,10 @@ _EVENT_SELECT = (
     m.ExposureEventRow.dlp_mgy_cm,
     m.ExposureEventRow.organ_dose_mgy.label("agd_mgy"),
     m.ExposureEventRow.deviation_index,
-    m.ExposureEventRow.irradiation_duration_s,
+    case(
+        (m.ExposureEventRow.event_type == "fluoroscopy", m.ExposureEventRow.irradiation_duration_s),
+        else_=None,
+    ).label("fluoro_time_s"),
 )
 
 
@@ -117,59 +119,85 @@ def _names(session: Session) -> tuple[dict[int, tuple[str, str]], dict[int, str]
     return rooms, devices
 
 
+def _fetch(session: Session, stmt: Any, values: dict[str, Any]) -> pd.DataFrame:
+    """Run ``stmt`` on the raw DBAPI cursor (no per-row object or type processing).
+
+    One month of a large registry is a million rows; building SQLAlchemy rows
+    and converting each timestamp in Python would cost most of the review's time.
+    """
+    conn = session.connection()
+    compiled = stmt.compile(dialect=conn.dialect)
+    values = {**compiled.params, **values}  # literals of the statement, then the caller's values
+    args: Any = (
+        tuple(values[k] for k in compiled.positiontup or ()) if compiled.positional else values
+    )
+    cursor = conn.connection.dbapi_connection.cursor()
+    try:
+        cursor.execute(str(compiled), args)
+        columns = [d[0] for d in cursor.description]
+        rows = cursor.fetchall()
+    finally:
+        cursor.close()
+    return pd.DataFrame.from_records(rows, columns=columns)
+
+
 def events_frame(session: Session, *, start: date, end: date) -> pd.DataFrame:
-    """The review core's events table for events in ``[start, end)`` (UTC dates)."""
+    """The review core's events table for events in ``[start, end)`` (UTC dates).
+
+    Done in SQL where it is cheaper than in Python: the time comes as seconds
+    since the epoch, fluoroscopy time only for fluoroscopy events, header text
+    only for events still without an exam type, and the repeated slices of a
+    CT acquisition (image headers sharing an acquisition key) are left out.
+    """
+    E = m.ExposureEventRow
+    when = func.coalesce(E.event_datetime, E.study_datetime)
+    sqlite = session.get_bind().dialect.name == "sqlite"
+    epoch = (func.julianday(when) - 2440587.5) * 86400.0 if sqlite else func.extract("epoch", when)
+    first_slices = (
+        select(func.min(E.id))
+        .where(E.acquisition_key.is_not(None), E.source_kind == "image_header")
+        .group_by(E.acquisition_key)
+    )
     stmt = (
-        select(*_EVENT_SELECT)
-        .outerjoin(m.Study, m.Study.id == m.ExposureEventRow.study_id)
-        .where(m.ExposureEventRow.superseded.is_(False))
+        select(*_EVENT_SELECT, epoch.label("epoch_s"))
+        .where(E.superseded.is_(False))
+        .where(when >= bindparam("t0"))
+        .where(when < bindparam("t1"))
         .where(
-            func.coalesce(m.ExposureEventRow.event_datetime, m.ExposureEventRow.study_datetime)
-            >= _as_utc(start)
-        )
-        .where(
-            func.coalesce(m.ExposureEventRow.event_datetime, m.ExposureEventRow.study_datetime)
-            < _as_utc(end)
+            E.acquisition_key.is_(None) | (E.source_kind != "image_header") | E.id.in_(first_slices)
         )
     )
-    result = session.execute(stmt)
-    frame = pd.DataFrame(result.fetchall(), columns=list(result.keys()))
+    t0, t1 = _as_utc(start), _as_utc(end)
+    if sqlite:  # stored as UTC wall time text
+        values: dict[str, Any] = {
+            "t0": t0.strftime("%Y-%m-%d %H:%M:%S.%f"),
+            "t1": t1.strftime("%Y-%m-%d %H:%M:%S.%f"),
+        }
+    else:
+        values = {"t0": t0, "t1": t1}
+    frame = _fetch(session, stmt, values)
     if frame.empty:
-        frame = pd.DataFrame(columns=[c.name for c in _EVENT_SELECT])
-    # one row per CT acquisition from image headers (slices share the acquisition's CTDIvol)
-    ct_headers = (frame["source_kind"] == "image_header") & frame["acquisition_key"].notna()
-    if ct_headers.any():
-        keep = ~ct_headers | ~frame.loc[:, ["acquisition_key"]].assign(
-            _k=frame["acquisition_key"].where(ct_headers)
-        )["_k"].duplicated(keep="first")
-        frame = frame.loc[keep]
+        frame = pd.DataFrame(columns=[*(c.name for c in _EVENT_SELECT), "epoch_s"])
     rooms, devices = _names(session)
-    room_ids = frame["room_id"].astype("Int64")
+    room_ids = frame["room_id"].astype("float64")
+    room_names = {float(k): v[0] for k, v in rooms.items()}
+    site_names = {float(k): v[1] for k, v in rooms.items()}
+    device_names = {float(k): v for k, v in devices.items()}
+    seconds = pd.to_numeric(frame["epoch_s"], errors="coerce").astype("float64")
     frame = frame.assign(
-        room=[rooms[i][0] if pd.notna(i) and i in rooms else "(no room)" for i in room_ids],
-        site=[rooms[i][1] if pd.notna(i) and i in rooms else "(no site)" for i in room_ids],
-        device=[
-            devices.get(int(i), "(unknown device)") if pd.notna(i) else "(unknown device)"
-            for i in frame["device_id"].astype("Int64")
-        ],
-        fluoro_time_s=frame["irradiation_duration_s"].where(
-            frame["event_type"] == "fluoroscopy", np.nan
+        room=room_ids.map(room_names).astype(object).fillna("(no room)"),
+        site=room_ids.map(site_names).astype(object).fillna("(no site)"),
+        device=frame["device_id"]
+        .astype("float64")
+        .map(device_names)
+        .astype(object)
+        .fillna("(unknown device)"),
+        study_uid=frame["study_uid"].where(
+            frame["study_uid"].notna(), "(event " + frame["event_id"].astype(str) + ")"
         ),
-        study_uid=frame["study_uid"].fillna(frame["event_id"].map(lambda i: f"(event {i})")),
-        event_datetime=pd.to_datetime(frame["event_datetime"], utc=True),
+        event_datetime=pd.to_datetime(seconds.round(3), unit="s", utc=True),
     )
-    frame = frame.drop(
-        columns=[
-            "room_id",
-            "device_id",
-            "modality_family",
-            "source_kind",
-            "acquisition_key",
-            "event_type",
-            "irradiation_duration_s",
-        ]
-    )
-    return frame.reset_index(drop=True)
+    return frame.drop(columns=["room_id", "device_id", "epoch_s"]).reset_index(drop=True)
 
 
 def ensure_catalogue(
@@ -286,6 +314,23 @@ def execute_review(
     return result, used
 
 
+def _study_uids_in_flags(session: Session, flags: list[dict[str, Any]]) -> None:
+    """Put the Study Instance UID where the events table carried the study's id."""
+    concerns = [f.get("concerns") or {} for f in flags]
+    ids = {int(c["study_uid"]) for c in concerns if str(c.get("study_uid") or "").isdigit()}
+    if not ids:
+        return
+    uids = dict(
+        session.execute(
+            select(m.Study.id, m.Study.study_instance_uid).where(m.Study.id.in_(ids))
+        ).all()
+    )
+    for c in concerns:
+        value = str(c.get("study_uid") or "")
+        if value.isdigit():
+            c["study_uid"] = uids.get(int(value), value)
+
+
 def run_review(
     sessions: sessionmaker[Session],
     params: ReviewParameters,
@@ -313,6 +358,7 @@ def run_review(
         with sessions.begin() as session:
             result, used = execute_review(session, params)
             body = result.to_json_dict()
+            _study_uids_in_flags(session, body["flags"])
             run = session.get(m.ReviewRun, run_id)
             assert run is not None
             run.level_sets = used
@@ -320,6 +366,7 @@ def run_review(
             run.status = "done"
             run.finished_at = utcnow()
             for flag in body["flags"]:
+                where = flag.get("concerns") or {}
                 session.add(
                     m.FlagRow(
                         review_run_id=run_id,
@@ -327,10 +374,10 @@ def run_review(
                         severity=flag.get("severity") or "info",
                         reason=flag["reason"],
                         numbers=flag.get("numbers") or {},
-                        event_id=flag.get("event_id"),
-                        study_instance_uid=flag.get("study_uid"),
-                        room=flag.get("room"),
-                        exam_type=flag.get("exam_type"),
+                        event_id=where.get("event_id"),
+                        study_instance_uid=where.get("study_uid"),
+                        room=where.get("room"),
+                        exam_type=where.get("exam_type"),
                     )
                 )
     except ReviewError as exc:

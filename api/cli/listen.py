@@ -31,8 +31,8 @@ def listen_command(
     from beamaudit.api.cli._store import open_store
     from beamaudit.api.cli.scan import pseudonym_key
     from beamaudit.api.pipeline import Pipeline
+    from beamaudit.api.postprocess import process_new_events
     from beamaudit.api.receiving import make_store_handler
-    from beamaudit.api.reconstruct import reconstruct_events
     from beamaudit.ingest.errors import IngestError
     from beamaudit.ingest.listener import ListenerConfig, start_listener
     from beamaudit.ingest.pseudonym import Pseudonymiser
@@ -50,7 +50,7 @@ def listen_command(
         handler = make_store_handler(
             Pipeline(store.sessions),
             Pseudonymiser(pseudonym_key(store.settings.secret_key_path)),
-            after_store=lambda ids: reconstruct_events(store.sessions, ids),
+            after_store=lambda ids: process_new_events(store.sessions, ids),
         )
         listener = start_listener(config, handler)
     except IngestError as exc:

@@ -47,7 +47,7 @@ def scan_command(
 
     from beamaudit.api.cli._store import open_store
     from beamaudit.api.pipeline import Pipeline
-    from beamaudit.api.reconstruct import reconstruct_events
+    from beamaudit.api.postprocess import process_new_events
     from beamaudit.api.scanning import scan_paths
 
     missing = [str(p) for p in paths if not p.exists()]
@@ -77,7 +77,7 @@ def scan_command(
             )
     else:
         summary = scan_paths(paths, pipeline=pipeline, key=key, workers=workers)
-    recon = reconstruct_events(store.sessions, summary.stored_event_ids)
+    recon = process_new_events(store.sessions, summary.stored_event_ids)
     if as_json:
         body = summary.as_dict() | {"reconstructed": recon.as_dict()}
         typer.echo(json.dumps(body, indent=2))

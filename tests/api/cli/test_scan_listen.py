@@ -20,8 +20,8 @@ from sqlalchemy import func, select
 
 from beamaudit.api.cli import main
 from beamaudit.api.pipeline import Pipeline
+from beamaudit.api.postprocess import process_new_events
 from beamaudit.api.receiving import make_store_handler
-from beamaudit.api.reconstruct import reconstruct_events
 from beamaudit.api.store import make_engine, make_session_factory, upgrade
 from beamaudit.api.store import models as m
 from beamaudit.ingest.listener import ListenerConfig, start_listener
@@ -125,7 +125,7 @@ def test_storescu_to_the_listener_stores_each_instance_once(tmp_path) -> None:
     handler = make_store_handler(
         Pipeline(sessions),
         Pseudonymiser(b"k" * 32),
-        after_store=lambda ids: reconstruct_events(sessions, ids),
+        after_store=lambda ids: process_new_events(sessions, ids),
     )
     dcmsend = which_or_none("dcmsend")
     folder = _sample_folder(tmp_path)

@@ -1,0 +1,133 @@
+"""The dashboard pages served by the API: authentication, and each page on stored reviews.
+
+Data are invented (a fictional hospital); the review method checked here is the
+pages' plumbing, not the statistics (those are tested in tests/api/review).
+"""
+
+from __future__ import annotations
+
+from datetime import datetime, timedelta
+
+import numpy as np
+import pytest
+from fastapi.testclient import TestClient
+
+from beamaudit.api.app import create_app
+from beamaudit.api.auth import create_token
+from beamaudit.api.pipeline import Pipeline
+from beamaudit.api.review import Period, ReviewParameters
+from beamaudit.api.reviews import run_review
+from beamaudit.api.settings import load
+from beamaudit.ingest.events import ExposureEvent, ParseResult, SourceObject
+
+CAUTION_WORDS = "estimate"
+
+
+def _store_exams(store, n_per_month: int = 25) -> str:
+    rng = np.random.default_rng(3)
+    pipe = Pipeline(store.session_factory)
+    first_uid = ""
+    k = 0
+    for month in (9, 10):
+        for room in ("RAD A", "RAD B"):
+            for _ in range(n_per_month):
+                k += 1
+                sop, study = f"2.25.77{k}", f"2.25.88{k}"
+                first_uid = first_uid or study
+                when = datetime(2026, month, 2) + timedelta(hours=int(rng.integers(0, 600)))
+                event = ExposureEvent(
+                    event_key=f"{sop}#0", sop_instance_uid=sop,
+                    sop_class_uid="1.2.840.10008.5.1.4.1.1.1.1", source_kind="image_header",
+                    modality="DX", modality_family="projection", study_instance_uid=study,
+                    study_datetime=when, event_datetime=when,
+                    institution_name="Fernmoor Infirmary (invented)", station_name=room,
+                    manufacturer="Invented", model_name="DR-1", device_serial_number=room,
+                    study_description="XR CHEST", protocol_name="Chest PA", body_part="CHEST",
+                    view_position="PA", patient_weight_kg=float(rng.normal(72, 8)),
+                    kvp_kv=110.0, exposure_mas=2.0, sid_mm=1800.0,
+                    body_part_thickness_mm=230.0, field_width_mm=350.0, field_height_mm=430.0,
+                    dap_gy_cm2=float(rng.lognormal(np.log(0.08), 0.3)),
+                )  # fmt: skip
+                src = SourceObject(sop, event.sop_class_uid, "image_header", "DX", study)
+                pipe.store(ParseResult(source=src, events=[event]), received_via="test")
+    from beamaudit.api.postprocess import process_new_events
+
+    with store.session_factory() as s:
+        from sqlalchemy import select
+
+        from beamaudit.api.store import models as m
+
+        ids = s.scalars(select(m.ExposureEventRow.id)).all()
+    process_new_events(store.session_factory, ids)
+    for month in (9, 10):
+        run_review(store.session_factory, ReviewParameters(period=Period.month(2026, month)))
+    return first_uid
+
+
+@pytest.fixture
+def site(store):
+    uid = _store_exams(store)
+    with store.session_factory.begin() as s:
+        _, viewer = create_token(s, role="viewer", name="committee")
+        _, physicist = create_token(s, role="physicist", name="physicist")
+    app = create_app(load(database_url=store.url), engine=store.engine)
+    with TestClient(app) as client:
+        yield client, viewer, physicist, uid
+
+
+def _get(client, path, token):
+    return client.get(path, headers={"Authorization": f"Bearer {token}"})
+
+
+def test_pages_without_a_token_go_to_login(site) -> None:
+    client, *_ = site
+    r = client.get("/flags?kind=x", follow_redirects=False)
+    assert r.status_code == 303
+    assert r.headers["location"].startswith("/login?next=/flags")
+    assert client.get("/login").status_code == 200
+
+
+@pytest.mark.parametrize(
+    "path",
+    ["/", "/?period=2026-09", "/distributions", "/rooms/RAD%20A", "/flags", "/reports/2026-10"],
+)
+def test_each_page_renders_for_a_viewer(site, path) -> None:
+    client, viewer, _, _ = site
+    r = _get(client, path, viewer)
+    assert r.status_code == 200, r.text[:500]
+    assert CAUTION_WORDS in r.text.lower()
+    assert '<script src="http' not in r.text  # no script from another host (no CDN)
+
+
+def test_exam_drilldown_needs_the_physicist_role(site) -> None:
+    client, viewer, physicist, uid = site
+    assert _get(client, f"/exams/{uid}", viewer).status_code == 403
+    r = _get(client, f"/exams/{uid}", physicist)
+    assert r.status_code == 200
+    assert "plotly" in r.text.lower()  # the spectrum figure
+    assert _get(client, "/exams/2.25.0", physicist).status_code == 404
+
+
+def test_login_sets_a_session_cookie_that_pages_accept(site) -> None:
+    client, viewer, _, _ = site
+    bad = client.post("/login", data={"token": "bat_wrong", "next": "/"})
+    assert bad.status_code == 401
+    ok = client.post("/login", data={"token": viewer, "next": "/flags"}, follow_redirects=False)
+    assert ok.status_code == 303 and ok.headers["location"] == "/flags"
+    assert "httponly" in ok.headers["set-cookie"].lower()
+    assert client.get("/flags").status_code == 200  # the cookie now authenticates
+
+
+def test_login_never_redirects_off_site(site) -> None:
+    client, viewer, _, _ = site
+    r = client.post(
+        "/login", data={"token": viewer, "next": "//evil.example"}, follow_redirects=False
+    )
+    assert r.headers["location"] == "/"
+
+
+def test_static_files_and_unknown_period(site) -> None:
+    client, viewer, _, _ = site
+    assert client.get("/static/plotly.min.js").status_code == 200
+    assert client.get("/static/../settings.py").status_code == 404
+    assert _get(client, "/?period=2030-01", viewer).status_code == 404
