@@ -64,7 +64,7 @@ def hash_token(token: str) -> str:
 
 def has_role(role: str, needed: Role) -> bool:
     """Whether ``role`` includes the rights of ``needed``."""
-    return role in ROLES and ROLES.index(role) >= ROLES.index(needed)  # type: ignore[arg-type]
+    return role in ROLES and ROLES.index(role) >= ROLES.index(needed)
 
 
 def create_token(

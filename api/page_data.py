@@ -93,19 +93,34 @@ def flags_table(session: Session, run_ids: list[int] | None = None) -> pd.DataFr
                 "exam_type": r.exam_type,
                 "event_id": r.event_id,
                 "study_uid": r.study_instance_uid,
-                "period": period_of.get(r.review_run_id) if _is_month(period_of.get(r.review_run_id)) else None,
+                "period": (
+                    period_of.get(r.review_run_id)
+                    if _is_month(period_of.get(r.review_run_id))
+                    else None
+                ),
                 "status": r.status,
                 "raised_at": r.created_at,
             }
             for r in rows
         ],
-        columns=["flag_id", "kind", "severity", "reason", "room", "exam_type", "event_id",
-                 "study_uid", "period", "status", "raised_at"],
-    )  # fmt: skip
+        columns=[
+            "flag_id",
+            "kind",
+            "severity",
+            "reason",
+            "room",
+            "exam_type",
+            "event_id",
+            "study_uid",
+            "period",
+            "status",
+            "raised_at",
+        ],
+    )
 
 
 def _is_month(text: str | None) -> bool:
-    return bool(text) and len(text) == 7 and text[4] == "-"  # type: ignore[index]
+    return text is not None and len(text) == 7 and text[4] == "-"
 
 
 def room_history(session: Session, room: str, *, until: str | None = None) -> pd.DataFrame:
@@ -174,15 +189,25 @@ def _why(trail: dict[str, Any] | None) -> list[dict[str, Any]]:
     steps = []
     for step in chosen.get("trail", []):
         value = step.get("value")
-        steps.append({
-            "quantity": step.get("quantity") or "",
-            "value": float(value) if isinstance(value, int | float) and not isinstance(value, bool) else None,
-            "unit": step.get("unit") or "",
-            "equation": step.get("equation") or "",
-            "source": step.get("source") or "",
-            "inputs": {k: str(v) for k, v in (step.get("inputs") or {}).items()},
-            "assumed": [step["note"]] if step.get("assumed") and step.get("note") else bool(step.get("assumed")),
-        })  # fmt: skip
+        steps.append(
+            {
+                "quantity": step.get("quantity") or "",
+                "value": (
+                    float(value)
+                    if isinstance(value, int | float) and not isinstance(value, bool)
+                    else None
+                ),
+                "unit": step.get("unit") or "",
+                "equation": step.get("equation") or "",
+                "source": step.get("source") or "",
+                "inputs": {k: str(v) for k, v in (step.get("inputs") or {}).items()},
+                "assumed": (
+                    [step["note"]]
+                    if step.get("assumed") and step.get("note")
+                    else bool(step.get("assumed"))
+                ),
+            }
+        )
     return steps
 
 
@@ -307,7 +332,7 @@ def exam_record(
                 "period",
                 "status",
             ],
-        ),  # fmt: skip
+        ),
         "exposures": exposures,
     }
 

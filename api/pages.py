@@ -36,7 +36,7 @@ class _LoginRedirect(Exception):
         self.next_path = next_path
 
 
-def _page_principal(role: str):  # type: ignore[no-untyped-def]
+def _page_principal(role: str):
     def check(request: Request, session: DbSession) -> Principal:
         principal = authenticate(session, presented_token(request))
         if principal is None:
@@ -133,8 +133,13 @@ def _overview(session: Session, period: str | None, ctx: Any) -> str:
 
         from beamaudit.api.page_data import GROUP_KEYS
 
-        return render_overview(pd.DataFrame(columns=[*GROUP_KEYS, "status_reason"]),
-                               period=_this_month(), periods=known, open_flags=0, context=ctx)  # fmt: skip
+        return render_overview(
+            pd.DataFrame(columns=[*GROUP_KEYS, "status_reason"]),
+            period=_this_month(),
+            periods=known,
+            open_flags=0,
+            context=ctx,
+        )
     flags = flags_table(session, [run.id])
     open_flags = int((flags["status"] == "open").sum()) if len(flags) else 0
     return render_overview(groups_table(run), period=run.period or "", periods=known,
@@ -165,7 +170,7 @@ def _distributions(session: Session, period: str | None, exam_type: str | None,
         raise HTTPException(404, "no finished review to show")
     p = Period.parse(run.period)
     window = tuple((run.parameters or {}).get("weight_window_kg") or (50.0, 90.0))
-    events = distribution_events(session, start=p.start, end=p.end, window=window)  # type: ignore[arg-type]
+    events = distribution_events(session, start=p.start, end=p.end, window=window)
     return render_distributions(
         events, levels=groups_table(run), exam_type=exam_type, quantity=quantity,
         period=run.period, periods=periods(session), log_y=log_y, context=ctx,

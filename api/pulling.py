@@ -134,13 +134,13 @@ def pull_source(
         )
     process_new_events(sessions, new_event_ids)
     with sessions.begin() as session:
-        row = session.get(m.DicomwebSource, source_id)
-        assert row is not None
-        row.watermark_date = next_watermark(watermark, report)
-        row.last_pull_at = utcnow()
-        row.last_pull_report = outcome.as_dict() | {"warnings": len(report.warnings)}
-        outcome.watermark = row.watermark_date
-        row.last_pull_report["watermark"] = (
-            row.watermark_date.isoformat() if row.watermark_date else None
+        source = session.get(m.DicomwebSource, source_id)
+        assert source is not None
+        source.watermark_date = next_watermark(watermark, report)
+        source.last_pull_at = utcnow()
+        source.last_pull_report = outcome.as_dict() | {"warnings": len(report.warnings)}
+        outcome.watermark = source.watermark_date
+        source.last_pull_report["watermark"] = (
+            source.watermark_date.isoformat() if source.watermark_date else None
         )
     return outcome

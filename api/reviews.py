@@ -25,7 +25,7 @@ from datetime import UTC, date, datetime
 from typing import Any
 
 import pandas as pd
-from sqlalchemy import String, bindparam, case, cast, func, select
+from sqlalchemy import String, Table, bindparam, case, cast, func, select
 from sqlalchemy.orm import Session, sessionmaker
 
 from beamaudit import __version__
@@ -131,7 +131,9 @@ def _fetch(session: Session, stmt: Any, values: dict[str, Any]) -> pd.DataFrame:
     args: Any = (
         tuple(values[k] for k in compiled.positiontup or ()) if compiled.positional else values
     )
-    cursor = conn.connection.dbapi_connection.cursor()
+    dbapi_connection = conn.connection.dbapi_connection
+    assert dbapi_connection is not None  # a checked-out connection has its DBAPI connection
+    cursor = dbapi_connection.cursor()
     try:
         cursor.execute(str(compiled), args)
         columns = [d[0] for d in cursor.description]
@@ -257,11 +259,13 @@ def map_stored_events(session: Session, event_ids: list[int] | None = None) -> i
     frame = pd.DataFrame(rows, columns=[c.key for c in cols])
     frame["room"] = [rooms.get(i, ("", ""))[0] if pd.notna(i) else None for i in frame["room_id"]]
     mapped = map_events(frame, rules)
+    events_table = m.ExposureEventRow.__table__
+    assert isinstance(events_table, Table)  # a declarative class maps one Table
     n = 0
     for event_id, exam_type in zip(frame["id"], mapped, strict=True):
         value = None if exam_type is None or (isinstance(exam_type, float)) else str(exam_type)
         session.execute(
-            m.ExposureEventRow.__table__.update()
+            events_table.update()
             .where(m.ExposureEventRow.id == int(event_id))
             .values(exam_type=value)
         )
@@ -359,12 +363,12 @@ def run_review(
             result, used = execute_review(session, params)
             body = result.to_json_dict()
             _study_uids_in_flags(session, body["flags"])
-            run = session.get(m.ReviewRun, run_id)
-            assert run is not None
-            run.level_sets = used
-            run.result = body
-            run.status = "done"
-            run.finished_at = utcnow()
+            done = session.get(m.ReviewRun, run_id)
+            assert done is not None
+            done.level_sets = used
+            done.result = body
+            done.status = "done"
+            done.finished_at = utcnow()
             for flag in body["flags"]:
                 where = flag.get("concerns") or {}
                 session.add(
@@ -382,11 +386,11 @@ def run_review(
                 )
     except ReviewError as exc:
         with sessions.begin() as session:
-            run = session.get(m.ReviewRun, run_id)
-            assert run is not None
-            run.status = "failed"
-            run.error = str(exc)
-            run.finished_at = utcnow()
+            failed = session.get(m.ReviewRun, run_id)
+            assert failed is not None
+            failed.status = "failed"
+            failed.error = str(exc)
+            failed.finished_at = utcnow()
     return run_id
 
 
@@ -407,7 +411,7 @@ def stored_flags_frame(session: Session, run_id: int) -> pd.DataFrame:
                 "status": r.status,
             }
             for r in rows
-        ]  # fmt: skip
+        ]
     )
 
 

@@ -38,7 +38,7 @@ import math
 from dataclasses import dataclass, field
 from functools import lru_cache
 from importlib import resources
-from typing import Any
+from typing import Any, TypedDict
 
 import numpy as np
 from scipy.optimize import least_squares
@@ -191,6 +191,14 @@ class RoomCalibration:
         return out
 
 
+class _TubeKwargs(TypedDict):
+    """The tube a calibration belongs to, passed on as keyword arguments."""
+
+    anode: str
+    anode_angle_deg: float
+    ripple_percent: float
+
+
 def _predict(
     m: QAMeasurement,
     inherent_mm_al: float | None,
@@ -246,7 +254,7 @@ def calibrate_room(
     items = tuple(measurements)
     if not items:
         raise ModelError("a room calibration needs at least one QA measurement")
-    tube = {
+    tube: _TubeKwargs = {
         "anode": get_anode(anode).key,
         "anode_angle_deg": anode_angle_deg,
         "ripple_percent": ripple_percent,

@@ -1,4 +1,4 @@
-"""``beamaudit review``, ``levels``, ``examtypes`` and ``nightly``: audits against reference levels."""
+"""``beamaudit review``, ``levels``, ``examtypes``, ``nightly``: audits against reference levels."""
 
 from __future__ import annotations
 
@@ -178,7 +178,8 @@ def _print(run_id: int, result: dict[str, Any], new_flags: int | None) -> None:
     if new_flags is not None:
         console.print(f"new flags since the last nightly run: {new_flags}")
     console.print(
-        "[dim]Estimates for quality assurance and optimisation; clinical decisions need a qualified medical physicist.[/dim]"
+        "[dim]Estimates for quality assurance and optimisation; "
+        "clinical decisions need a qualified medical physicist.[/dim]"
     )
 
 

@@ -87,7 +87,7 @@ def scan_command(
         raise typer.Exit(EXIT_PARTIAL)
 
 
-def _print_summary(summary, recon) -> None:  # type: ignore[no-untyped-def]
+def _print_summary(summary, recon) -> None:
     console.print(
         f"files read {summary.files}; objects stored {summary.objects} "
         f"({summary.events} exposure events); duplicates {summary.duplicates}; "

@@ -35,7 +35,7 @@ def create_command(
         fail(f"--role must be one of {', '.join(ROLES)}, not {role!r}")
     store = open_store(ctx)
     with store.sessions.begin() as session:
-        token_id, token = create_token(session, role=role, name=name, actor=_actor())  # type: ignore[arg-type]
+        token_id, token = create_token(session, role=role, name=name, actor=_actor())
     console.print(
         f"token {token_id} ({role}) created; it is shown only this once:", highlight=False
     )

@@ -97,7 +97,7 @@ CSV_RESPONSES: dict[int | str, dict[str, Any]] = {
 }
 
 
-def invalid(where: tuple[str, ...], message: str) -> NoReturn:
+def invalid(where: tuple[str | int, ...], message: str) -> NoReturn:
     """Answer 422 in FastAPI's own shape, naming the field (``("query", "cursor")``)."""
     raise RequestValidationError([{"loc": where, "msg": message, "type": "value_error"}])
 

@@ -35,11 +35,12 @@ def _role_checks() -> dict[Callable[..., Any], Role]:
     from beamaudit.api import deps
 
     checks: dict[Callable[..., Any], Role] = {}
-    for role, annotated in (
+    dependencies: tuple[tuple[Role, Any], ...] = (
         ("viewer", deps.Viewer),
         ("physicist", deps.Physicist),
         ("admin", deps.Admin),
-    ):
+    )
+    for role, annotated in dependencies:
         depends = get_args(annotated)[1]
         checks[depends.dependency] = role
     return checks

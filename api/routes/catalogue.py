@@ -179,22 +179,22 @@ def _import_catalogue(
 ) -> list[ExamTypeRead]:
     incoming = {t.exam_type for t in catalogue.types}
     if replace:
-        for row in session.scalars(select(T).where(T.code.not_in(incoming))):
-            uses = _uses_of(session, row.code)
+        for stale in session.scalars(select(T).where(T.code.not_in(incoming))):
+            uses = _uses_of(session, stale.code)
             if uses:
                 invalid(
                     ("query", "replace"),
-                    f"exam type {row.code!r} is not in the file but {', '.join(uses)} use it",
+                    f"exam type {stale.code!r} is not in the file but {', '.join(uses)} use it",
                 )
             audit(
                 session,
                 who,
                 action="delete",
                 entity="exam_type",
-                entity_id=row.code,
-                before=_exam_type_audit(row),
+                entity_id=stale.code,
+                before=_exam_type_audit(stale),
             )
-            session.delete(row)
+            session.delete(stale)
     for t in catalogue.types:
         values = exam_type_row_values(t)
         row = session.get(T, t.exam_type)

@@ -8,7 +8,7 @@ set is kept (past reviews name it) but no longer applies and can no longer chang
 from __future__ import annotations
 
 import io
-from typing import Annotated, Any
+from typing import Annotated, Any, cast
 
 from fastapi import APIRouter, HTTPException, Query, Request, status
 from fastapi.concurrency import run_in_threadpool
@@ -21,6 +21,7 @@ from beamaudit.api.auth import Principal
 from beamaudit.api.deps import Physicist
 from beamaudit.api.review.errors import CsvFormatError, ReviewError
 from beamaudit.api.review.levels import (
+    LevelKind,
     ReferenceLevelSet,
     check_level_sets,
     read_levels_csv,
@@ -315,7 +316,7 @@ def update_level_set(
             )
     candidate = LevelSetCreate(
         name=row.name,
-        kind=row.kind,
+        kind=cast(LevelKind, row.kind),  # stored from a validated LevelSetCreate
         version=changes.get("version", row.version),
         effective_from=changes.get("effective_from", row.effective_from),
         source=changes.get("source", row.source),
