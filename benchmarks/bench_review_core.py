@@ -96,7 +96,8 @@ def main() -> int:
     print(f"  baseline pandas groupby median, {N_EVENTS:,} events: {baseline_s:.2f} s")
     print(
         f"  review of {result.n_events:,} events: {review_s:.2f} s (core target < {TARGET_S} s "
-        f"including the store's query), {len(result.groups_df)} group rows, {len(result.flags)} flags"
+        f"including the store's query), {len(result.groups_df)} group rows, "
+        f"{len(result.flags)} flags"
     )
     print(f"  ratio review / baseline: {review_s / baseline_s:.1f}")
     print(

@@ -15,8 +15,9 @@ from sqlalchemy.engine import Engine
 
 from beamaudit.api.store import models as m
 
-EXAMS = ("chest_pa", "chest_lat", "abdomen_ap", "pelvis_ap", "lumbar_spine_ap", "lumbar_spine_lat",
-         "skull_ap", "hip", "knee", "thoracic_spine_ap", "cervical_spine_ap", "shoulder")  # fmt: skip
+EXAMS = ("chest_pa", "chest_lat", "abdomen_ap", "pelvis_ap", "lumbar_spine_ap",
+         "lumbar_spine_lat", "skull_ap", "hip", "knee", "thoracic_spine_ap",
+         "cervical_spine_ap", "shoulder")  # fmt: skip
 
 
 def fill(
@@ -52,8 +53,10 @@ def fill(
             )  # fmt: skip
             conn.execute(
                 insert(m.SourceObjectRow),
-                [{"id": int(i), "sop_instance_uid": f"2.25.9{i}", "sop_class_uid": "1.2.840.10008.5.1.4.1.1.1.1",
-                  "kind": "image_header", "modality": "DX", "study_id": int(s), "received_via": "bench"}
+                [{"id": int(i), "sop_instance_uid": f"2.25.9{i}",
+                  "sop_class_uid": "1.2.840.10008.5.1.4.1.1.1.1",
+                  "kind": "image_header", "modality": "DX", "study_id": int(s),
+                  "received_via": "bench"}
                  for i, s in zip(ids, study, strict=True)],
             )  # fmt: skip
             conn.execute(
@@ -66,5 +69,6 @@ def fill(
                   "patient_weight_kg": float(w), "dap_gy_cm2": float(d),
                   "recon_dap_gy_cm2": float(d) / 1.02, "recon_esak_mgy": float(d) * 1.3,
                   "provenance": {}, "notes": []}
-                 for i, s, r, e, t, d, w in zip(ids, study, room, exam, seconds, dap, weight, strict=True)],
+                 for i, s, r, e, t, d, w in zip(
+                     ids, study, room, exam, seconds, dap, weight, strict=True)],
             )  # fmt: skip
