@@ -16,7 +16,7 @@ install: $(STAMP)
 
 ## The main job on the embedded default (SQLite): invented hospital, reviews, dashboards.
 demo: $(STAMP)
-	$(PY) -m beamaudit serve
+	$(PY) -m beamaudit demo --output demo-output
 
 ## Serve whatever the local database holds.
 serve: $(STAMP)

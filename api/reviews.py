@@ -321,6 +321,20 @@ def execute_review(
 def _study_uids_in_flags(session: Session, flags: list[dict[str, Any]]) -> None:
     """Put the Study Instance UID where the events table carried the study's id."""
     concerns = [f.get("concerns") or {} for f in flags]
+    event_ids = {
+        int(c["event_id"]) for c in concerns if c.get("event_id") and not c.get("study_uid")
+    }
+    if event_ids:  # a flag on one exposure names its study too (the pages link to it)
+        study_of = dict(
+            session.execute(
+                select(m.ExposureEventRow.id, m.ExposureEventRow.study_id).where(
+                    m.ExposureEventRow.id.in_(event_ids)
+                )
+            ).all()
+        )
+        for c in concerns:
+            if c.get("event_id") and not c.get("study_uid") and study_of.get(int(c["event_id"])):
+                c["study_uid"] = str(study_of[int(c["event_id"])])
     ids = {int(c["study_uid"]) for c in concerns if str(c.get("study_uid") or "").isdigit()}
     if not ids:
         return

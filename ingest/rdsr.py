@@ -501,6 +501,11 @@ def rdsr_events(
         fields.update(values)
         fields["modality_family"] = family
         fields["modality"] = "CT" if family == "ct" else ("MG" if is_mammo else None)
+        guided = fields.get("acquisition_device_type") == "fluoroscopy_guided"
+        if fields["modality"] is None and (guided or fields.get("event_type") == "fluoroscopy"):
+            # a fluoroscopy-guided system's report (CID 10032 113957): the room is RF/XA; RF is
+            # what the mapping rules of fluoroscopic examinations look for
+            fields["modality"] = "RF"
         event_prov = dict(provenance)
         event_prov.update(sink.provenance)
         events.append(

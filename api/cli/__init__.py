@@ -30,6 +30,7 @@ COMMAND_MODULES = (
     "beam",
     "dose",
     "token",
+    "demo",
 )
 
 app = typer.Typer(

@@ -579,6 +579,7 @@ def changepoints(
     k: float,
     h: float,
     baseline_points: int,
+    min_relative_change: float = 0.0,
 ) -> list[Flag]:
     """Change-points by CUSUM (:func:`beamaudit.api.review.changepoint.cusum`) in monthly series.
 
@@ -592,6 +593,10 @@ def changepoints(
         Columns that identify a series (e.g. site, room, exam_type, quantity).
     k, h, baseline_points
         CUSUM parameters (units of the series' robust SD; see :mod:`.changepoint`).
+    min_relative_change : float
+        A change whose level after differs from the level before by less than this fraction
+        is not flagged: with a few months the robust SD is estimated from very few points and
+        CUSUM alarms on shifts too small to matter to a dose audit.
     """
     flags: list[Flag] = []
     if len(monthly) == 0:
@@ -609,6 +614,9 @@ def changepoints(
             what = f"monthly median {_label(quantity)} of {context.get('exam_type')}"
             unit = " " + _unit(quantity)
         for change in result.changes:
+            base = abs(change.before) if change.before else 0.0
+            if base and abs(change.after - change.before) / base < min_relative_change:
+                continue
             reason = (
                 f"The {what}{_where(context)} shifted {change.direction} from about "
                 f"{_fmt(change.before)}{unit} to about {_fmt(change.after)}{unit} starting "

@@ -224,6 +224,10 @@ class ReviewParameters:
         CUSUM reference value and decision interval in robust SDs (default 0.5 and 5, Montgomery).
     cusum_baseline_months : int
         Leading months whose median is the CUSUM target (default 6).
+    changepoint_min_relative_change : float
+        Changes smaller than this fraction of the level before are not flagged (default 0.2:
+        common practice for dose audits, where a 20 % shift in a room's median is worth a look;
+        smaller ones are within month-to-month noise of typical sample sizes).
     changepoint_lookback_months : int
         Months of history (before the period) searched for change-points (default 24).
     """
@@ -255,6 +259,7 @@ class ReviewParameters:
     cusum_h: float = 5.0
     cusum_baseline_months: int = 6
     changepoint_lookback_months: int = 24
+    changepoint_min_relative_change: float = 0.2
 
     def __post_init__(self) -> None:
         problems = []
@@ -714,6 +719,7 @@ def review(
         k=params.cusum_k,
         h=params.cusum_h,
         baseline_points=params.cusum_baseline_months,
+        min_relative_change=params.changepoint_min_relative_change,
     )
     flags += fl.deviation_index_out_of_range(
         scoped, di_range=params.di_range, max_per_group=params.max_exam_flags_per_group

@@ -1,0 +1,140 @@
+"""``beamaudit demo``: the whole job on an invented hospital, then the dashboards."""
+
+from __future__ import annotations
+
+import json
+import time
+from pathlib import Path
+from typing import Annotated, Any
+
+import typer
+
+from beamaudit.api.cli._common import EXIT_PARTIAL, console, fail
+
+__all__ = ["register"]
+
+
+def demo_command(
+    output: Annotated[
+        Path, typer.Option(help="Folder for the files and the demo database.")
+    ] = Path("demo-output"),
+    months: Annotated[int, typer.Option(min=3, max=24, help="Months of exams to invent.")] = 4,
+    seed: Annotated[int, typer.Option(min=0, help="Seed of every random draw.")] = 0,
+    end_month: Annotated[
+        str | None, typer.Option(help="Last month YYYY-MM (default: the last complete month).")
+    ] = None,
+    serve: Annotated[
+        bool, typer.Option("--serve/--no-serve", help="Serve the dashboards after.")
+    ] = True,
+    port: Annotated[int, typer.Option(min=1, max=65535)] = 8000,
+    as_json: Annotated[bool, typer.Option("--json", help="Print the findings as JSON.")] = False,
+) -> None:
+    """Invent a hospital's exams as DICOM files, ingest them by folder scan and C-STORE, review
+    every month, show what was found beside what was planted, and serve the dashboards.
+
+    Everything is invented. Exit code 1 when a planted finding was not found or an unplanted
+    flag was raised.
+    """
+    import shutil
+
+    from beamaudit.api.auth import create_token
+    from beamaudit.api.demo.errors import DemoError
+    from beamaudit.api.demo_run import compare_with_plan, run_demo
+    from beamaudit.api.store import make_engine, make_session_factory, upgrade
+    from beamaudit.ingest.pseudonym import load_or_create_key
+
+    t0 = time.perf_counter()
+    output.mkdir(parents=True, exist_ok=True)
+    db = output / "beamaudit-demo.db"
+    for stale in output.glob("beamaudit-demo.db*"):
+        stale.unlink()
+    if (output / "dicom").exists():
+        shutil.rmtree(output / "dicom")
+    url = f"sqlite:///{db.resolve()}"
+    engine = make_engine(url)
+    upgrade(engine)
+    sessions = make_session_factory(engine)
+    key = load_or_create_key(output / "demo-pseudonym.key")
+    try:
+        outcome = run_demo(
+            sessions, output=output, months=months, seed=seed, key=key, end_month=end_month
+        )
+    except DemoError as exc:
+        fail(str(exc))
+    report = compare_with_plan(outcome)
+    missed = [p for p in report["planted"] if not p["found"] and p.get("required", True)]
+    elapsed = time.perf_counter() - t0
+    if as_json:
+        typer.echo(
+            json.dumps(
+                {
+                    **report,
+                    "elapsed_s": elapsed,
+                    "scan": outcome.scan,
+                    "cstore": outcome.cstore,
+                    "database": url,
+                },
+                indent=2,
+                default=str,
+            )
+        )
+    else:
+        _print(outcome, report, elapsed, db)
+    if serve:
+        with sessions.begin() as session:
+            _, token = create_token(session, role="physicist", name="demo physicist", actor="demo")
+        console.print(
+            f"\nDashboards: http://127.0.0.1:{port}/  (sign in with this token: {token})",
+            highlight=False,
+        )
+        import uvicorn
+
+        from beamaudit.api.app import create_app
+        from beamaudit.api.settings import load
+
+        uvicorn.run(
+            create_app(load(database_url=url), engine=engine),
+            host="127.0.0.1",
+            port=port,
+            log_level="warning",
+        )
+        return
+    if missed or report["unplanted"]:
+        raise typer.Exit(EXIT_PARTIAL)
+
+
+def _print(outcome: Any, report: dict[str, Any], elapsed: float, db: Path) -> None:
+    m = outcome.manifest
+    console.print(
+        f"[bold]{m['institution']}[/bold] (invented): {len(m['rooms'])} rooms, months "
+        f"{m['months'][0]} to {m['months'][-1]}; {m['counts']['files']} DICOM files",
+        highlight=False,
+    )
+    s = outcome.scan
+    console.print(
+        f"folder scan: {s['files']} files, {s['events']} events, {len(s['errors'])} rejected; "
+        f"C-STORE: {outcome.cstore.get('success', 0)} stored, "
+        f"{outcome.cstore.get('failure', 0)} refused",
+        highlight=False,
+    )
+    console.print("\nplanted findings:")
+    for p in report["planted"]:
+        mark = "[green]found[/green]" if p["found"] else "[red]NOT FOUND[/red]"
+        console.print(f"  {mark}  {p['plant']} ({p['kind']})", highlight=False)
+        if p["by"]:
+            console.print(f"         {p['by'][0][:160]}", markup=False, highlight=False)
+    console.print(f"\nflags not planted by the scenario: {len(report['unplanted'])}")
+    for f in report["unplanted"][:10]:
+        console.print(f"  [{f['kind']}] {f['reason'][:160]}", markup=False, highlight=False)
+    console.print(
+        f"\ndone in {elapsed:.0f} s; database {db}. Where to look: the overview (/) for the "
+        "month, the room pages for the DAP-meter fault and the doubled exam, the flags page for "
+        "single exams.",
+        highlight=False,
+    )
+    console.print("[dim]All data are invented. Every dose figure is an estimate.[/dim]")
+
+
+def register(app: typer.Typer) -> None:
+    """Add ``demo`` to ``app``."""
+    app.command("demo")(demo_command)
