@@ -56,6 +56,8 @@ __all__ = [
     "ListenerConfig",
     "ListenerConfigError",
     "ReceivedObject",
+    "RejectHandler",
+    "RejectedObject",
     "StoreHandler",
     "StoreOutcome",
     "StoreStatus",
@@ -245,6 +247,37 @@ StoreHandler = Callable[[ReceivedObject], StoreOutcome]
 
 
 @dataclass(frozen=True, slots=True)
+class RejectedObject:
+    """A C-STORE request the listener answered with a failure before any handler saw it: a data
+    set that cannot be decoded, has no SOP Instance UID, or is of another class than requested.
+
+    Attributes
+    ----------
+    sop_instance_uid, sop_class_uid : str
+        As the C-STORE request names them ("" when absent).
+    calling_ae_title : str
+        The sender's AE title.
+    peer_address : tuple of (str, int)
+        The sender's address and port.
+    reason : str
+        Why it was refused (no patient data: names of exceptions and attributes only).
+    status : int
+        The status answered.
+    """
+
+    sop_instance_uid: str
+    sop_class_uid: str
+    calling_ae_title: str
+    peer_address: tuple[str, int]
+    reason: str
+    status: int
+
+
+RejectHandler = Callable[[RejectedObject], object]
+"""Told of every request refused before the handler ran (to record it); must be thread-safe."""
+
+
+@dataclass(frozen=True, slots=True)
 class ListenerConfig:
     """Settings of the C-STORE listener.
 
@@ -408,10 +441,14 @@ def _decode(event: evt.Event) -> tuple[ReceivedObject | None, StoreOutcome | Non
     return received, None
 
 
-def _handle_store(event: evt.Event, handler: StoreHandler) -> Dataset:
+def _handle_store(
+    event: evt.Event, handler: StoreHandler, on_rejected: RejectHandler | None = None
+) -> Dataset:
     """EVT_C_STORE: decode, call the handler, map its outcome onto a C-STORE status."""
     received, outcome = _decode(event)
     uid = str(getattr(event.request, "AffectedSOPInstanceUID", "") or "?")
+    if received is None and on_rejected is not None and outcome is not None:
+        _tell_rejected(event, outcome, on_rejected)
     if received is not None:
         try:
             outcome = handler(received)
@@ -436,6 +473,27 @@ def _handle_store(event: evt.Event, handler: StoreHandler) -> Dataset:
             _error_comment(outcome.reason or ""),
         )
     return _status_dataset(outcome)
+
+
+def _tell_rejected(event: evt.Event, outcome: StoreOutcome, on_rejected: RejectHandler) -> None:
+    request = event.request
+    requestor = event.assoc.requestor
+    rejected = RejectedObject(
+        sop_instance_uid=str(getattr(request, "AffectedSOPInstanceUID", "") or ""),
+        sop_class_uid=str(getattr(request, "AffectedSOPClassUID", "") or ""),
+        calling_ae_title=str(requestor.ae_title).strip(),
+        peer_address=(str(requestor.address), int(requestor.port)),
+        reason=outcome.reason or "refused",
+        status=int(outcome.status),
+    )
+    try:
+        on_rejected(rejected)
+    except Exception as exc:  # recording is best effort: the sender has its answer anyway
+        _LOG.error(
+            "C-STORE %s: recording the refusal failed: %s",
+            rejected.sop_instance_uid or "?",
+            _where(exc),
+        )
 
 
 def _describe(event: evt.Event) -> str:
@@ -526,7 +584,11 @@ class Listener:
 
 
 def start_listener(
-    config: ListenerConfig, handler: StoreHandler, *, block: bool = False
+    config: ListenerConfig,
+    handler: StoreHandler,
+    *,
+    block: bool = False,
+    on_rejected: RejectHandler | None = None,
 ) -> Listener:
     """Start the C-STORE listener.
 
@@ -543,6 +605,10 @@ def start_listener(
         When True, serve in this thread until Ctrl-C, SIGTERM (when called from the main
         thread: ``beamaudit listen`` under a service manager) or :meth:`Listener.request_stop`
         from another thread, then return the stopped listener.
+    on_rejected : RejectHandler, optional
+        Told of every request refused before ``handler`` saw it (undecodable data set, no SOP
+        Instance UID, another class than requested), so that the refusal can be recorded.
+        When None, the handler's own ``on_rejected`` attribute is used if it has one.
 
     Returns
     -------
@@ -554,6 +620,8 @@ def start_listener(
     ListenerConfigError
         When the address cannot be bound (port in use, no permission).
     """
+    if on_rejected is None:
+        on_rejected = getattr(handler, "on_rejected", None)
     ae = AE(ae_title=config.ae_title)
     ae.supported_contexts = storage_contexts(config.sop_classes)
     ae.maximum_associations = config.max_associations
@@ -562,7 +630,7 @@ def start_listener(
     if config.allowed_calling_aets is not None:
         ae.require_calling_aet = sorted(config.allowed_calling_aets)
     handlers: list[EventHandlerType] = [
-        (evt.EVT_C_STORE, _handle_store, [handler]),
+        (evt.EVT_C_STORE, _handle_store, [handler, on_rejected]),
         (evt.EVT_ACCEPTED, _log_accepted),
         (evt.EVT_REJECTED, _log_rejected),
         (evt.EVT_RELEASED, _log_released),
