@@ -24,13 +24,21 @@ Idempotence and double counting
   the report: every image-header event of that study whose modality the
   report covers (projection x-ray for TID 10001, CT for TID 10011) is marked
   ``superseded`` and left out of reviews, whichever of the two arrived first.
+
+Text that reaches the store
+---------------------------
+Control characters in what a device wrote (a NUL inside a Station Name, stray escape bytes)
+are replaced by U+FFFD before anything is queried or stored: PostgreSQL refuses NUL in text and
+JSON, and a stored value should never hide a character nobody can see.
 """
 
 from __future__ import annotations
 
+import dataclasses
 import hashlib
 import json
 import logging
+import re
 from collections.abc import Iterable
 from dataclasses import dataclass, field
 from typing import Any, Literal
@@ -48,6 +56,7 @@ __all__ = [
     "Pipeline",
     "StoreOutcome",
     "content_hash",
+    "printable",
     "report_covers",
     "result_fingerprint",
 ]
@@ -102,6 +111,39 @@ def result_fingerprint(result: ParseResult) -> str:
     return content_hash(json.dumps(payload, sort_keys=True, default=str).encode("utf-8"))
 
 
+_CONTROL = re.compile(r"[\x00-\x08\x0b\x0c\x0e-\x1f\x7f]")  # C0 controls but TAB, LF, CR
+
+
+def printable(text: str) -> str:
+    """``text`` with every control character but TAB, LF and CR replaced by U+FFFD."""
+    return _CONTROL.sub("\ufffd", text) if _CONTROL.search(text) else text
+
+
+def _printable_value(value: Any) -> Any:
+    if isinstance(value, str):
+        return printable(value)
+    if isinstance(value, list):
+        return [_printable_value(v) for v in value]
+    if isinstance(value, tuple):
+        return tuple(_printable_value(v) for v in value)
+    if isinstance(value, dict):
+        return {_printable_value(k): _printable_value(v) for k, v in value.items()}
+    if dataclasses.is_dataclass(value) and not isinstance(value, type):
+        _make_printable(value)
+    return value
+
+
+def _make_printable(obj: Any) -> None:
+    for f in dataclasses.fields(obj):
+        value = getattr(obj, f.name)
+        cleaned = _printable_value(value)
+        if cleaned is not value and cleaned != value:
+            if type(obj).__dataclass_params__.frozen:
+                object.__setattr__(obj, f.name, cleaned)
+            else:
+                setattr(obj, f.name, cleaned)
+
+
 def report_covers(report_modalities: Iterable[str | None], header_modality: str | None) -> bool:
     """Whether a dose report with ``report_modalities`` describes an image-header event.
 
@@ -133,10 +175,10 @@ class Pipeline:
         with self._sessions.begin() as session:
             row = m.IngestError(
                 received_via=received_via,
-                source=error.source or source or "(unknown)",
-                sop_instance_uid=sop_instance_uid,
+                source=printable(error.source or source or "(unknown)"),
+                sop_instance_uid=printable(sop_instance_uid) if sop_instance_uid else None,
                 code=error.code,
-                reason=error.reason,
+                reason=printable(error.reason),
             )
             session.add(row)
             session.flush()
@@ -151,9 +193,9 @@ class Pipeline:
                 session.add(
                     m.IngestError(
                         received_via=received_via,
-                        source=error.source or source or "(unknown)",
+                        source=printable(error.source or source or "(unknown)"),
                         code=error.code,
-                        reason=error.reason,
+                        reason=printable(error.reason),
                     )
                 )
 
@@ -181,6 +223,8 @@ class Pipeline:
         ``items`` holds ``(result, received_from, sha256)`` triples. Every object
         is stored or reported (duplicate / conflict); none is lost.
         """
+        for result, _, _ in items:
+            _make_printable(result)
         try:
             with self._sessions.begin() as session:
                 return [
