@@ -9,6 +9,7 @@ stored with different content" (the first object is kept).
 from __future__ import annotations
 
 import json
+import re
 from pathlib import Path
 
 import pytest
@@ -42,8 +43,9 @@ def test_the_corpus_is_large_and_every_case_names_known_codes() -> None:
         assert (case.first is not None) == (case.expected == ("conflict",)), case.id
     # every kind of damage the issue lists is in it, and every code a file can earn
     ids = " ".join(c.id for c in corpus)
-    for word in ("text-file", "truncated-", "no-meta", "meta-", "mixed", "vr-", "nested-",
-                 "huge-", "1000", "negative", "nan", "infinite", "report-", "same-uid"):  # fmt: skip
+    words = ("text-file", "truncated-", "no-meta", "meta-", "mixed", "vr-", "nested-", "huge-",
+             "1000", "negative", "nan", "infinite", "report-", "same-uid")  # fmt: skip
+    for word in words:
         assert word in ids, word
     codes = {code for c in corpus for code in c.expected}
     assert codes >= ERROR_CODES - {"unreadable", "bad_key"}
@@ -76,7 +78,7 @@ def _assert_recorded(errors: list[m.IngestError], case: Case) -> None:
     assert error.reason, case.id
     if case.expected == ("conflict",):
         assert error.code == "bad_value", case.id
-        assert error.reason and __import__("re").search(CONFLICT_REASON, error.reason), error.reason
+        assert error.reason and re.search(CONFLICT_REASON, error.reason), error.reason
     else:
         assert error.code in case.expected, f"{case.id}: {error.code} ({error.reason})"
 
@@ -197,7 +199,7 @@ def test_listener_answers_and_records_every_case(store, tmp_path: Path, chunked_
                 assert rows[0].received_via == "listen"
                 assert rows[0].reason
                 if case.expected == ("conflict",):
-                    assert __import__("re").search(CONFLICT_REASON, rows[0].reason)
+                    assert re.search(CONFLICT_REASON, rows[0].reason)
         finally:
             assoc.release()
         # the listener is still up and stores a good object after all that
