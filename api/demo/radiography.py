@@ -170,6 +170,8 @@ class _RoomSimulator:
         if room.key == self.plan.dap_meter_room and day >= self.dates.meter_date:
             meter *= self.plan.dap_meter_factor
         di = 10.0 * math.log10(used / needed) + _clipped(rng, _DI_NOISE_DB)
+        body_part: str | None
+        exam_type: str | None
         protocol, series, body_part, exam_type = (
             prog.protocol_name,
             prog.protocol_name,
