@@ -60,12 +60,29 @@ def _check_geometry(sid_mm: float, thickness_mm: float, fsd_mm: float | None) ->
             )
 
 
-def _room_calibration(room: str) -> RoomCalibration:
-    """The stored calibration of a room: not available until the store provides a lookup."""
-    fail(
-        f"--room {room}: room lookup needs the calibration store, which is not ready yet; "
-        "run without --room for an uncalibrated estimate"
-    )
+def _room_calibration(room: str) -> RoomCalibration | None:
+    """The stored room's active calibration from QA measurements (None: the room has none)."""
+    import click
+    from sqlalchemy import select
+
+    from beamaudit.api.cli._common import err_console
+    from beamaudit.api.cli._store import open_store
+    from beamaudit.api.reconstruct import calibration_for_room
+    from beamaudit.api.store import models as m
+
+    store = open_store(click.get_current_context(silent=True))  # type: ignore[arg-type]
+    with store.sessions() as session:
+        rows = session.scalars(select(m.Room).where(m.Room.name == room)).all()
+        if not rows:
+            fail(f"--room {room}: no room of that name in the store (beamaudit's rooms are named "
+                 "after the devices' station names)")  # fmt: skip
+        if len(rows) > 1:
+            fail(f"--room {room}: {len(rows)} rooms of that name at different sites")
+        calibration = calibration_for_room(session, rows[0])
+    if calibration is None:
+        err_console.print(f"note: room {room} has no calibration from QA measurements yet; "
+                          "the estimate is uncalibrated", highlight=False)  # fmt: skip
+    return calibration
 
 
 def _value_pm(value: float, uncertainty: float) -> str:

@@ -127,7 +127,6 @@ def _one_error_line(result) -> str:
         (["--fsd-mm", "1700"], "impossible geometry"),
         (["--filter", "2.5"], "THICKNESS_MM:MATERIAL"),
         (["--filter", "2.5:Unobtainium"], "Unobtainium"),
-        (["--room", "R1"], "room lookup needs the calibration store"),
         (["--mas", "-3"], "exposure_mas"),
     ],
 )
@@ -147,3 +146,30 @@ def test_parse_field_cm() -> None:
     assert parse_field_cm("18.5×24") == (18.5, 24.0)
     with pytest.raises(ValueError, match="zero area"):
         parse_field_cm("0x10")
+
+
+def test_room_option_uses_the_stored_calibration(settings_env, capsys) -> None:
+    import json
+
+    from beamaudit.api.cli import main
+    from beamaudit.api.store import make_engine, make_session_factory, upgrade
+    from beamaudit.api.store import models as m
+
+    engine = make_engine(f"sqlite:///{settings_env}")
+    upgrade(engine)
+    with make_session_factory(engine).begin() as s:
+        site = m.Site(name="Fernmoor Infirmary (invented)")
+        s.add(site)
+        s.flush()
+        room = m.Room(site_id=site.id, name="RAD A")
+        s.add(room)
+        s.flush()
+        s.add(m.RoomCalibrationRow(room_id=room.id, output_scale=0.8, n_measurements=3,
+                                   inherent_filtration_mm_al=None, residuals=[]))  # fmt: skip
+    engine.dispose()
+    base = ["dose", "--kv", "81", "--mas", "10", "--sid-mm", "1800", "--field-cm", "35x43",
+            "--thickness-mm", "220", "--json"]  # fmt: skip
+    assert main([*base, "--room", "RAD A"]) == 0
+    assert json.loads(capsys.readouterr().out)["calibrated"] is True
+    assert main([*base, "--room", "NOWHERE"]) == 2
+    assert "no room of that name" in capsys.readouterr().err
