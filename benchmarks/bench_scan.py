@@ -1,0 +1,146 @@
+"""Benchmark: a folder scan into SQLite against a bare pydicom read loop (issue #5).
+
+Target: ``beamaudit scan`` over at least 5,000 image-header files, end to end into a SQLite
+store (content sniffing, one ``dcmread`` per file, pseudonymisation, parsing, storing in batched
+transactions, reconstruction of the stored events), runs at no less than 70 % of the rate of a
+bare ``dcmread(path, stop_before_pixels=True)`` loop over the same files, measured in the same
+run. Prints both rates and their ratio; exits 1 when the ratio is below the target. Plain script:
+``python benchmarks/bench_scan.py [N_FILES]``. The files are invented DX/CR/MG headers written
+with pydicom into a temporary folder (no pixel data: headers are what a dose audit reads).
+"""
+
+from __future__ import annotations
+
+import contextlib
+import io
+import json
+import os
+import random
+import sys
+import tempfile
+import time
+from pathlib import Path
+
+from pydicom import dcmread
+from pydicom.dataset import Dataset, FileMetaDataset
+from pydicom.uid import ExplicitVRLittleEndian, generate_uid
+
+N_FILES = 5_000
+TARGET_RATIO = 0.70
+ROUNDS = 3  # the best of three for each side: the machine is shared
+
+# SOP Class UIDs, PS3.4 Table B.5-1
+_CLASSES = {
+    "DX": "1.2.840.10008.5.1.4.1.1.1.1",
+    "CR": "1.2.840.10008.5.1.4.1.1.1",
+    "MG": "1.2.840.10008.5.1.4.1.1.1.2",
+}
+
+
+def _header(i: int, rng: random.Random) -> Dataset:
+    """An invented projection header (demo values; the patient is made up)."""
+    modality = ("DX", "DX", "CR", "MG")[i % 4]
+    ds = Dataset()
+    ds.SpecificCharacterSet = "ISO_IR 100"
+    ds.SOPClassUID = _CLASSES[modality]
+    ds.SOPInstanceUID = generate_uid()
+    ds.StudyDate = f"2024{1 + i % 12:02d}{1 + i % 28:02d}"
+    ds.StudyTime = "101500"
+    ds.AccessionNumber = f"BENCH{i // 3:06d}"
+    ds.Modality = modality
+    ds.Manufacturer = "Bench Imaging (invented)"
+    ds.InstitutionName = "Kestrel Bay General (invented)"
+    ds.StationName = f"ROOM{i % 6}"
+    ds.StudyDescription = "XR CHEST" if modality != "MG" else "MAMMO SCREENING"
+    ds.ManufacturerModelName = "BenchDR"
+    ds.PatientName = f"Invented^Patient{i // 3}"
+    ds.PatientID = f"BENCH-{i // 3:06d}"
+    ds.PatientBirthDate = "19700101"
+    ds.PatientSex = "F"
+    ds.PatientAge = "054Y"
+    ds.BodyPartExamined = "CHEST" if modality != "MG" else "BREAST"
+    ds.KVP = f"{rng.choice((70, 81, 90, 102, 110, 125)) if modality != 'MG' else 28}"
+    ds.DistanceSourceToDetector = "1800" if modality != "MG" else "650"
+    ds.ExposureTime = rng.randint(4, 40)
+    ds.XRayTubeCurrent = rng.randint(100, 500)
+    ds.ExposureInuAs = rng.randint(800, 20_000)
+    ds.ImageAndFluoroscopyAreaDoseProduct = f"{rng.uniform(0.2, 2.5):.3f}"
+    ds.ProtocolName = "Chest PA" if modality != "MG" else "CC"
+    ds.StudyInstanceUID = generate_uid()
+    ds.SeriesInstanceUID = generate_uid()
+    ds.ViewPosition = "PA" if modality != "MG" else "CC"
+    meta = FileMetaDataset()
+    meta.MediaStorageSOPClassUID = ds.SOPClassUID
+    meta.MediaStorageSOPInstanceUID = ds.SOPInstanceUID
+    meta.TransferSyntaxUID = ExplicitVRLittleEndian
+    ds.file_meta = meta
+    return ds
+
+
+def _write_files(folder: Path, n: int) -> list[Path]:
+    rng = random.Random(20240305)
+    paths = []
+    for i in range(n):
+        sub = folder / f"{i // 500:03d}"
+        sub.mkdir(exist_ok=True)
+        path = sub / f"IM{i:06d}"  # no extension, as PACS exports
+        _header(i, rng).save_as(path, enforce_file_format=True)
+        paths.append(path)
+    return paths
+
+
+def _bare_loop(paths: list[Path]) -> float:
+    start = time.perf_counter()
+    for path in paths:
+        dcmread(path, stop_before_pixels=True)
+    return time.perf_counter() - start
+
+
+def _scan(folder: Path, work: Path, round_no: int) -> tuple[float, dict[str, object]]:
+    from beamaudit.api.cli import main
+
+    os.environ["BEAMAUDIT_DATABASE_URL"] = f"sqlite:///{work / f'bench-{round_no}.db'}"
+    os.environ["BEAMAUDIT_SECRET_KEY_PATH"] = str(work / "bench.key")
+    out = io.StringIO()
+    start = time.perf_counter()
+    with contextlib.redirect_stdout(out):
+        code = main(["scan", str(folder), "--json"])
+    elapsed = time.perf_counter() - start
+    if code != 0:
+        raise SystemExit(f"the scan exited {code}: {out.getvalue()[-2000:]}")
+    summary: dict[str, object] = json.loads(out.getvalue())
+    return elapsed, summary
+
+
+def main(argv: list[str]) -> int:
+    n = int(argv[1]) if len(argv) > 1 else N_FILES
+    with tempfile.TemporaryDirectory(prefix="beamaudit-bench-scan-") as tmp:
+        work = Path(tmp)
+        folder = work / "export"
+        folder.mkdir()
+        paths = _write_files(folder, n)
+        os.environ.pop("BEAMAUDIT_CONFIG", None)
+        _bare_loop(paths[:200])  # warm the page cache and pydicom's dictionaries
+        _scan_warm = work / "warm"
+        _scan_warm.mkdir()
+        for path in paths[:50]:
+            (_scan_warm / path.name).write_bytes(path.read_bytes())
+        _scan(_scan_warm, work, 99)  # imports, migrations, the beam model's data
+        bare_s = min(_bare_loop(paths) for _ in range(ROUNDS))
+        scans = [_scan(folder, work, r) for r in range(ROUNDS)]
+        scan_s, summary = min(scans, key=lambda s: s[0])
+    if summary.get("objects") != n or summary.get("errors"):
+        print(f"the scan did not store every file: {summary}", file=sys.stderr)
+        return 1
+    bare_rate = n / bare_s
+    scan_rate = n / scan_s
+    ratio = scan_rate / bare_rate
+    print(f"files: {n} invented DX/CR/MG headers (no pixel data)")
+    print(f"bare dcmread(stop_before_pixels=True) loop: {bare_rate:8.0f} files/s ({bare_s:.2f} s)")
+    print(f"beamaudit scan into SQLite, end to end:     {scan_rate:8.0f} files/s ({scan_s:.2f} s)")
+    print(f"ratio scan / bare read: {ratio:.2f} (target >= {TARGET_RATIO:.2f})")
+    return 0 if ratio >= TARGET_RATIO else 1
+
+
+if __name__ == "__main__":
+    sys.exit(main(sys.argv))
