@@ -62,6 +62,8 @@ def groups_table(run: m.ReviewRun) -> pd.DataFrame:
     """The overview's GROUPS table from a stored run."""
     rows = []
     for g in (run.result or {}).get("groups", []):
+        if g.get("reference_level") is None:  # the overview sets medians against levels
+            continue
         row = {k: g.get(k) for k in GROUP_KEYS}
         row["status_reason"] = STATUS_REASON.get(g.get("status"), "")
         rows.append(row)
@@ -85,13 +87,13 @@ def flags_table(session: Session, run_ids: list[int] | None = None) -> pd.DataFr
     return pd.DataFrame(
         [
             {
-                "flag_id": r.id,
+                "flag_id": str(r.id),
                 "kind": r.kind,
                 "severity": r.severity,
                 "reason": r.reason,
                 "room": r.room,
                 "exam_type": r.exam_type,
-                "event_id": r.event_id,
+                "event_id": None if r.event_id is None else str(r.event_id),
                 "study_uid": r.study_instance_uid,
                 "period": (
                     period_of.get(r.review_run_id)
@@ -293,9 +295,14 @@ def exam_record(
             "spectrum": _spectrum(session, e) if e.recon_status == "ok" else None,
         })  # fmt: skip
     weight = study.patient_weight_kg
-    flags = session.scalars(
-        select(m.FlagRow).where(m.FlagRow.study_instance_uid == study_uid).order_by(m.FlagRow.id)
+    flag_rows = session.execute(
+        select(m.FlagRow, m.ReviewRun.period)
+        .join(m.ReviewRun, m.ReviewRun.id == m.FlagRow.review_run_id)
+        .where(m.FlagRow.study_instance_uid == study_uid, m.ReviewRun.kind == "monthly")
+        .order_by(m.FlagRow.id)
     ).all()
+    flags = [f for f, period in flag_rows if _is_month(period)]
+    periods_of = {f.id: period for f, period in flag_rows}
     return {
         "study_uid": study_uid,
         "room": room_name,
@@ -314,9 +321,9 @@ def exam_record(
                     "reason": f.reason,
                     "room": f.room,
                     "exam_type": f.exam_type,
-                    "event_id": f.event_id,
+                    "event_id": None if f.event_id is None else str(f.event_id),
                     "study_uid": f.study_instance_uid,
-                    "period": None,
+                    "period": periods_of[f.id],
                     "status": f.status,
                 }
                 for f in flags

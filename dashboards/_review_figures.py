@@ -146,6 +146,9 @@ def build_overview_heatmap(
             z[i][j] = max(-_RATIO_SPAN_LOG2, min(_RATIO_SPAN_LOG2, math.log2(ratio)))
         hover[i][j] = _cell_hover(rows)
     ticks = [math.log2(t) for t in _RATIO_TICKS]
+    crowded = len(x_values) > 10  # many examinations: slanted labels, cell text only on hover
+    if len(x_values) > 16:
+        text = _grid(shape, "")
     common = {
         "x": x_values,
         "y": y_values,
@@ -155,7 +158,7 @@ def build_overview_heatmap(
         "hovertemplate": "%{customdata}<extra></extra>",
         "xgap": 3,
         "ygap": 3,
-        "textfont": {"size": 11 if rooms_across else 13},
+        "textfont": {"size": 10 if crowded else (11 if rooms_across else 13)},
     }
     fig.add_trace(
         go.Heatmap(
@@ -183,10 +186,16 @@ def build_overview_heatmap(
         )
     )
     fig.update_xaxes(
-        categoryorder="array", categoryarray=x_values, showgrid=False, ticks="", tickangle=0
+        categoryorder="array",
+        categoryarray=x_values,
+        showgrid=False,
+        ticks="",
+        tickangle=-40 if crowded else 0,
     )
     fig.update_yaxes(categoryorder="array", categoryarray=y_values, showgrid=False, ticks="")
-    fig.update_layout(height=max(280, (56 if rooms_across else 64) * len(y_values) + 200))
+    fig.update_layout(
+        height=max(280, (56 if rooms_across else 64) * len(y_values) + (320 if crowded else 200))
+    )
     return fig
 
 
