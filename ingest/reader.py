@@ -16,12 +16,13 @@ from __future__ import annotations
 import io
 import os
 import re
+import struct
 import zlib
 from typing import IO, Any
 
 from pydicom import dcmread
 from pydicom.dataset import Dataset
-from pydicom.errors import InvalidDicomError
+from pydicom.errors import BytesLengthException, InvalidDicomError
 
 from ._context import FieldSink, read_context
 from ._values import ValueReader
@@ -382,14 +383,29 @@ def _decode_guard(ds: Dataset, pseudonymiser: Pseudonymiser, source: str) -> Par
         ) from None
     except _UNDECODABLE as exc:
         raise IngestError("bad_value", _undecodable_reason(exc), source) from None
+    except OSError as exc:
+        if exc.errno is not None:
+            raise
+        # a sequence parsed on first use that runs past the end of its bytes
+        raise IngestError("truncated", f"a sequence ends early: {exc}", source) from None
 
 
 #: failures of pydicom on hostile structure: a "deflated" body that is not a deflate stream,
-#: sequences nested past Python's recursion limit
-_UNDECODABLE: tuple[type[BaseException], ...] = (zlib.error, RecursionError)
+#: sequences nested past Python's recursion limit, a binary value whose length is no multiple
+#: of its VR's value size, or too short to unpack
+_UNDECODABLE: tuple[type[BaseException], ...] = (
+    zlib.error,
+    RecursionError,
+    BytesLengthException,
+    struct.error,
+)
 
 
 def _undecodable_reason(exc: BaseException) -> str:
+    if isinstance(exc, struct.error):
+        return f"a binary value is shorter than its VR needs: {exc}"
+    if isinstance(exc, BytesLengthException):
+        return f"a value's length does not fit its VR: {exc}".split(". To replace")[0]
     if isinstance(exc, RecursionError):
         return "sequences nest too deeply to be read (PS3.16 templates nest fewer than 10 levels)"
     return f"the deflated data set cannot be inflated: {exc}"
