@@ -83,6 +83,7 @@ def _assert_recorded(errors: list[m.IngestError], case: Case) -> None:
         assert error.code in case.expected, f"{case.id}: {error.code} ({error.reason})"
 
 
+@pytest.mark.slow
 def test_folder_scan_records_every_case_and_stores_the_rest(store, tmp_path: Path) -> None:
     folder = tmp_path / "corpus"
     by_name = _write_corpus(folder)

@@ -173,15 +173,15 @@ def test_listener_pull_and_uploads_at_once_store_each_instance_once(
 @pytest.mark.slow
 @pytest.mark.postgres
 def test_two_listeners_and_two_scanners_on_one_postgresql(tmp_path: Path) -> None:
-    files = _instances(240, "nodes")
+    files = _instances(160, "nodes")
     uids = sorted(_uid_of(f) for f in files)
     folders = [tmp_path / "node-a", tmp_path / "node-b"]
-    # scanner A reads 0-139, scanner B 100-239; the listeners get 60-179, alternately
-    for folder, part in zip(folders, (files[:140], files[100:]), strict=True):
+    # scanner A reads 0-99, scanner B 60-159; the listeners get 40-119, alternately
+    for folder, part in zip(folders, (files[:100], files[60:]), strict=True):
         folder.mkdir()
         for i, data in enumerate(part):
             (folder / f"IM{i:05d}").write_bytes(data)
-    to_listeners = files[60:180]
+    to_listeners = files[40:120]
     with shared_store("postgresql", tmp_path) as store:
         ports = [free_port(), free_port()]
         listeners = [["listen", "--host", "127.0.0.1", "--port", str(p)] for p in ports]
@@ -219,5 +219,5 @@ def test_two_listeners_and_two_scanners_on_one_postgresql(tmp_path: Path) -> Non
         scans = [json.loads(log.read_text()[log.read_text().index("{") :]) for log in logs[2:]]
         # what one node stored the other saw as a duplicate: together, each file once
         assert sum(s["objects"] for s in scans) <= len(uids)
-        assert sum(s["objects"] + s["duplicates"] for s in scans) == 280
+        assert sum(s["objects"] + s["duplicates"] for s in scans) == 200
         _no_lock_reached_anyone(*(log.read_text() for log in logs))
