@@ -12,8 +12,9 @@ Idempotence and double counting
   a *duplicate* and changes nothing. If its content hash differs from the stored
   one, the second object is recorded as an ingest error (same UID, different
   content) and the first is kept. A race between two ingest nodes on the same
-  UID ends the same way: the unique constraint decides, the loser rolls back
-  and reports a duplicate.
+  UID, or on a row two objects share (study, device, room, site), ends the same
+  way: the unique constraint decides, the loser rolls back and tries again in a
+  fresh transaction, which sees the winner's rows.
 * An event is identified by its object and its index in it, so an event is
   never stored twice. Its ``event_key`` (the Irradiation Event UID, else
   ``<SOP Instance UID>#<index>``) is *not* unique: the images of one CT
@@ -77,6 +78,9 @@ _EVENT_COLUMNS = tuple(
 _RECEPTOR_FIELDS = ("collimator_edges_px", "imager_pixel_spacing_mm", "detector_dimensions_mm")
 
 StoreStatus = Literal["stored", "duplicate", "conflict"]
+
+#: fresh transactions tried for one object whose insert lost a race to another ingest node
+_RACE_ATTEMPTS = 5
 
 
 @dataclass(slots=True)
@@ -225,29 +229,44 @@ class Pipeline:
         """
         for result, _, _ in items:
             _make_printable(result)
+        if len(items) == 1:
+            return [self._store_alone(items[0], received_via)]
         try:
             with self._sessions.begin() as session:
                 return [
                     self._store_one(session, r, received_via, src, sha) for r, src, sha in items
                 ]
         except IntegrityError:
-            if len(items) == 1:
-                return [self._after_race(items[0][0])]
-            return [self.store_many([item], received_via=received_via)[0] for item in items]
+            return [self._store_alone(item, received_via) for item in items]
 
-    def _after_race(self, result: ParseResult) -> StoreOutcome:
-        uid = result.source.sop_instance_uid
-        with self._sessions() as session:
-            exists = session.scalar(
-                select(m.SourceObjectRow.id).where(m.SourceObjectRow.sop_instance_uid == uid)
-            )
-        if exists is not None:
-            return StoreOutcome("duplicate", uid)
+    def _store_alone(
+        self, item: tuple[ParseResult, str | None, str | None], received_via: str
+    ) -> StoreOutcome:
+        """One object in its own transaction, tried again after losing a race.
+
+        Another ingest node may commit the same object, or a row this object shares with others
+        (its study, device, room or site), between our look-up and our insert: the unique
+        constraint refuses our insert. A fresh transaction then sees the winner's rows, and the
+        object is stored beside them, or found a duplicate (or a conflict) of the winner's.
+        """
+        result, received_from, sha256 = item
+        detail = ""
+        for _ in range(_RACE_ATTEMPTS):
+            try:
+                with self._sessions.begin() as session:
+                    return self._store_one(session, result, received_via, received_from, sha256)
+            except IntegrityError as exc:
+                detail = str(exc.orig).splitlines()[0] if exc.orig is not None else str(exc)
+        log.error(
+            "storing %s lost %d races in a row: %s",
+            result.source.sop_instance_uid,
+            _RACE_ATTEMPTS,
+            detail,
+        )
         return StoreOutcome(
             "conflict",
-            uid,
-            reason="an event of this object is already stored under another object "
-            "(same Irradiation Event UID)",
+            result.source.sop_instance_uid,
+            reason=f"refused by the store's unique constraints {_RACE_ATTEMPTS} times: {detail}",
         )
 
     def _store_one(
