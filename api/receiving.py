@@ -21,6 +21,7 @@ from sqlalchemy.exc import SQLAlchemyError
 from beamaudit.api.pipeline import Pipeline
 from beamaudit.ingest.errors import ErrorCode, IngestError
 from beamaudit.ingest.listener import ReceivedObject, RejectedObject, StoreOutcome
+from beamaudit.ingest.pseudonym import Pseudonymiser
 
 __all__ = ["StoreHandler", "make_store_handler"]
 
@@ -45,7 +46,7 @@ class StoreHandler:
 
 def make_store_handler(
     pipeline: Pipeline,
-    pseudonymiser: object,
+    pseudonymiser: Pseudonymiser,
     *,
     after_store: Callable[[list[int]], object] | None = None,
     received_via: str = "listen",

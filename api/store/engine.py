@@ -20,6 +20,9 @@ from sqlalchemy.orm import Session, sessionmaker
 __all__ = ["StoreError", "check_connection", "make_engine", "make_session_factory", "session_scope"]
 
 SQLITE_BUSY_TIMEOUT_MS = 30_000
+POOL_SIZE = 10
+POOL_MAX_OVERFLOW = 50
+POOL_TIMEOUT_S = 60
 
 
 class StoreError(RuntimeError):
@@ -47,6 +50,13 @@ def make_engine(database_url: str, **kwargs: Any) -> Engine:
         url = make_url(database_url)
     except ArgumentError:
         raise StoreError(f"database URL {database_url!r} is not a valid URL") from None
+    in_memory = url.get_backend_name() == "sqlite" and url.database in (None, "", ":memory:")
+    if not in_memory:
+        # the API serves many clients at once from its thread pool: enough connections that a
+        # burst waits in the pool queue rather than failing (SQLite serialises writers anyway)
+        kwargs.setdefault("pool_size", POOL_SIZE)
+        kwargs.setdefault("max_overflow", POOL_MAX_OVERFLOW)
+        kwargs.setdefault("pool_timeout", POOL_TIMEOUT_S)
     try:
         if url.get_backend_name() == "sqlite":
             connect_args = {
