@@ -98,6 +98,15 @@ def create_app(settings: Settings, *, engine: Engine | None = None) -> FastAPI:
         redoc_url=None,
     )
     app.state.settings = settings
+    if settings.api.cors_origins:  # off unless origins are configured
+        from fastapi.middleware.cors import CORSMiddleware
+
+        app.add_middleware(
+            CORSMiddleware,
+            allow_origins=list(settings.api.cors_origins),
+            allow_methods=["GET", "POST", "PATCH", "PUT", "DELETE"],
+            allow_headers=["Authorization", "Content-Type"],
+        )
     app.state.engine = engine
     app.state.session_factory = make_session_factory(engine)
 

@@ -35,3 +35,14 @@ def test_openapi_schema_is_served() -> None:
     with TestClient(create_app(settings)) as client:
         schema = client.get("/api/v1/openapi.json").json()
     assert schema["paths"]["/api/v1/health"]["get"]["operationId"] == "get_health"
+
+
+def test_cors_is_off_by_default_and_on_for_configured_origins() -> None:
+    origin = {"Origin": "https://ward.example", "Access-Control-Request-Method": "GET"}
+    with TestClient(create_app(load(database_url="sqlite://"))) as client:
+        r = client.options("/api/v1/health", headers=origin)
+        assert "access-control-allow-origin" not in r.headers
+    settings = load(database_url="sqlite://", api={"cors_origins": ["https://ward.example"]})
+    with TestClient(create_app(settings)) as client:
+        r = client.options("/api/v1/health", headers=origin)
+        assert r.headers["access-control-allow-origin"] == "https://ward.example"
