@@ -261,16 +261,19 @@ def map_stored_events(session: Session, event_ids: list[int] | None = None) -> i
     mapped = map_events(frame, rules)
     events_table = m.ExposureEventRow.__table__
     assert isinstance(events_table, Table)  # a declarative class maps one Table
-    n = 0
+    by_value: dict[str | None, list[int]] = {}
     for event_id, exam_type in zip(frame["id"], mapped, strict=True):
         value = None if exam_type is None or (isinstance(exam_type, float)) else str(exam_type)
-        session.execute(
-            events_table.update()
-            .where(m.ExposureEventRow.id == int(event_id))
-            .values(exam_type=value)
-        )
-        n += value is not None
-    return n
+        by_value.setdefault(value, []).append(int(event_id))
+    # one UPDATE per exam type (in chunks of ids), not one per event
+    for value, ids in by_value.items():
+        for start in range(0, len(ids), 900):
+            session.execute(
+                events_table.update()
+                .where(m.ExposureEventRow.id.in_(ids[start : start + 900]))
+                .values(exam_type=value)
+            )
+    return sum(len(ids) for value, ids in by_value.items() if value is not None)
 
 
 def _lookback_start(period: Period, months: int) -> date:
