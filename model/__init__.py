@@ -9,7 +9,8 @@ QA and optimisation.
 Dose figures: geometry from what an exposure carries (:mod:`.geometry`, documented defaults in
 :mod:`.defaults`), the dose chain (:mod:`.dose`), backscatter factors (:mod:`.backscatter`),
 every figure of one exposure with its uncertainty and why trail (:mod:`.exposure`,
-:mod:`.trail`), fluoroscopy and CT accumulations (:mod:`.fluoro_ct`), the size-specific dose
+:mod:`.trail`), the same figures of many stored exposures at once as arrays (:mod:`.bulk`),
+fluoroscopy and CT accumulations (:mod:`.fluoro_ct`), the size-specific dose
 estimate (:mod:`.ssde`) and unit conversions (:mod:`.units`).
 """
 
@@ -24,8 +25,10 @@ from beamaudit.model.attenuation import (
 )
 from beamaudit.model.backscatter import (
     BackscatterEstimate,
+    BackscatterEstimates,
     BackscatterTable,
     backscatter_estimate,
+    backscatter_estimates,
     backscatter_factor,
     equivalent_square_side_cm,
     load_backscatter_table,
@@ -39,6 +42,7 @@ from beamaudit.model.beam import (
     tissue_to_air_ratio,
 )
 from beamaudit.model.beamtable import BeamTable
+from beamaudit.model.bulk import BulkDose, dose_from_beams
 from beamaudit.model.calibration import (
     CalibrationResidual,
     QAMeasurement,
@@ -108,12 +112,14 @@ from beamaudit.model.trail import TrailStep, WhyTrail
 __all__ = [
     "DEFAULT_TOTAL_FILTRATION_MM_AL",
     "BackscatterEstimate",
+    "BackscatterEstimates",
     "BackscatterTable",
     "BeamConfig",
     "BeamInputs",
     "BeamResult",
     "BeamSpec",
     "BeamTable",
+    "BulkDose",
     "CalibrationResidual",
     "CtAcquisition",
     "CtAcquisitionDose",
@@ -139,6 +145,7 @@ __all__ = [
     "accumulate_projection_events",
     "air_kerma_at_distance_mgy",
     "backscatter_estimate",
+    "backscatter_estimates",
     "backscatter_factor",
     "calibrate_room",
     "compare_reported",
@@ -151,6 +158,7 @@ __all__ = [
     "default_filters",
     "dose_default",
     "dose_from_beam",
+    "dose_from_beams",
     "effective_diameter_cm",
     "energy_bin_centres_kev",
     "entrance_surface_air_kerma_mgy",

@@ -25,10 +25,9 @@ from __future__ import annotations
 
 import csv
 import functools
-import math
 from dataclasses import dataclass, field
 from importlib import resources
-from typing import Literal
+from typing import Literal, NamedTuple
 
 import numpy as np
 from numpy.typing import ArrayLike, NDArray
@@ -37,14 +36,19 @@ from beamaudit.model.errors import ModelError
 
 __all__ = [
     "BackscatterEstimate",
+    "BackscatterEstimates",
     "BackscatterTable",
     "backscatter_estimate",
+    "backscatter_estimates",
     "backscatter_factor",
     "equivalent_square_side_cm",
     "load_backscatter_table",
 ]
 
 OutOfRange = Literal["raise", "nearest"]
+#: Out-of-table policy of the elementwise :func:`backscatter_estimates`: the nearest edge (with the
+#: extension term in the uncertainty), or NaN.
+OutOfRangeElementwise = Literal["nearest", "nan"]
 
 _DATA_PACKAGE = "beamaudit.model.data"
 _TABLE_FILES = {"water": "backscatter_water.csv"}
@@ -266,33 +270,84 @@ def backscatter_factor(
     return _interpolate(table, hvl_c, side_c)
 
 
-def _linear_extrapolation(
-    table: BackscatterTable, hvl: float, side: float
-) -> tuple[float, list[str]]:
-    """B extended linearly beyond the table from its two edge rows/columns, with notes."""
+def _linear_extension(
+    table: BackscatterTable,
+    hvl: NDArray[np.float64],
+    side: NDArray[np.float64],
+    h_c: NDArray[np.float64],
+    s_c: NDArray[np.float64],
+    value: NDArray[np.float64],
+) -> NDArray[np.float64]:
+    """B extended linearly beyond the table from its two edge rows/columns (elementwise).
+
+    ``h_c``, ``s_c`` are the arguments clipped to the table and ``value`` B there; inside the
+    table the result is ``value`` itself.
+    """
+    hs, ss = table.hvl_mm_al, table.field_side_cm
+    # field side: slope of the first (below) or last (above) pair of columns
+    k = np.where(side < ss[0], 0, ss.size - 2)
+    b0 = _interpolate(table, h_c, ss[k])
+    b1 = _interpolate(table, h_c, ss[k + 1])
+    side_out = (side < ss[0]) | (side > ss[-1])
+    side_term = np.where(side_out, (b1 - b0) / (ss[k + 1] - ss[k]) * (side - s_c), 0.0)
+    # HVL above the table: slope of the last pair of rows (below it is never extended)
+    c0 = _interpolate(table, np.full_like(h_c, hs[-2]), s_c)
+    c1 = _interpolate(table, np.full_like(h_c, hs[-1]), s_c)
+    hvl_term = np.where(hvl > hs[-1], (c1 - c0) / (hs[-1] - hs[-2]) * (hvl - h_c), 0.0)
+    return np.asarray(value + side_term + hvl_term)
+
+
+def _edge_notes(table: BackscatterTable, hvl: float, side: float) -> list[str]:
+    """One sentence per table edge that stood in for a point outside the table."""
     hs, ss = table.hvl_mm_al, table.field_side_cm
     notes: list[str] = []
-    h_c = min(max(hvl, hs[0]), hs[-1])
-    s_c = min(max(side, ss[0]), ss[-1])
-    value = float(_interpolate(table, np.asarray(h_c), np.asarray(s_c)))
     if side < ss[0] or side > ss[-1]:
-        k = 0 if side < ss[0] else -2
-        b0 = float(_interpolate(table, np.asarray(h_c), np.asarray(ss[k])))
-        b1 = float(_interpolate(table, np.asarray(h_c), np.asarray(ss[k + 1])))
-        value += (b1 - b0) / (ss[k + 1] - ss[k]) * (side - s_c)
+        s_c = min(max(side, ss[0]), ss[-1])
         notes.append(
             f"field side {side:.3g} cm at the entrance is outside the backscatter table "
             f"({ss[0]:g}-{ss[-1]:g} cm); B taken at the nearest edge ({s_c:g} cm)"
         )
     if hvl > hs[-1]:
-        b0 = float(_interpolate(table, np.asarray(hs[-2]), np.asarray(s_c)))
-        b1 = float(_interpolate(table, np.asarray(hs[-1]), np.asarray(s_c)))
-        value += (b1 - b0) / (hs[-1] - hs[-2]) * (hvl - h_c)
         notes.append(
             f"HVL {hvl:.3g} mm Al is above the backscatter table ({hs[-1]:g} mm Al); B taken at "
             "the table's highest HVL"
         )
-    return value, notes
+    return notes
+
+
+def _estimate_kernel(
+    table: BackscatterTable,
+    hvl: NDArray[np.float64],
+    side: NDArray[np.float64],
+    u_hvl: NDArray[np.float64],
+    u_side: NDArray[np.float64],
+) -> tuple[NDArray[np.float64], NDArray[np.float64], NDArray[np.bool_]]:
+    """(B, u(B), extrapolated) elementwise, for arguments already checked (see the callers).
+
+    Points outside the table take the nearest edge, with the extension term in u(B).
+    """
+    hs, ss = table.hvl_mm_al, table.field_side_cm
+    h_c = np.clip(hvl, hs[0], hs[-1])
+    s_c = np.clip(side, ss[0], ss[-1])
+    value = _interpolate(table, h_c, s_c)
+    # local slopes: central differences of the interpolant, one-sided at the table's edges
+    h_lo = np.maximum(h_c - _HVL_STEP_MM_AL, hs[0])
+    h_hi = np.minimum(h_c + _HVL_STEP_MM_AL, hs[-1])
+    db_dh = (_interpolate(table, h_hi, s_c) - _interpolate(table, h_lo, s_c)) / (h_hi - h_lo)
+    s_lo = np.maximum(s_c - _SIDE_STEP_CM, ss[0])
+    s_hi = np.minimum(s_c + _SIDE_STEP_CM, ss[-1])
+    db_ds = (_interpolate(table, h_c, s_hi) - _interpolate(table, h_c, s_lo)) / (s_hi - s_lo)
+    linear = _linear_extension(table, hvl, side, h_c, s_c, value)
+    # a non-finite argument uncertainty gives a non-finite u(B) (0 · inf = NaN), without a warning
+    with np.errstate(invalid="ignore", over="ignore"):
+        variance = (
+            (table.cell_relative_standard_uncertainty * value) ** 2
+            + (db_dh * u_hvl) ** 2
+            + (db_ds * u_side) ** 2
+            + (value - linear) ** 2 / 3.0
+        )
+    extrapolated = (side < ss[0]) | (side > ss[-1]) | (hvl > hs[-1])
+    return np.asarray(value), np.asarray(np.sqrt(variance)), np.asarray(extrapolated)
 
 
 @dataclass(frozen=True)
@@ -364,49 +419,137 @@ def backscatter_estimate(
     if hvl_standard_uncertainty_mm_al < 0 or field_side_standard_uncertainty_cm < 0:
         raise ModelError("standard uncertainties must not be negative")
     table = load_backscatter_table(phantom)
-    value = float(
-        backscatter_factor(
-            hvl_mm_al=hvl_mm_al,
-            field_side_cm=field_side_cm,
-            phantom=phantom,
-            out_of_range=out_of_range,
-        )
+    hvl = np.asarray(hvl_mm_al, dtype=np.float64)
+    side = np.asarray(field_side_cm, dtype=np.float64)
+    _check_range(table, hvl, side, out_of_range)
+    value, u, _ = _estimate_kernel(
+        table,
+        hvl,
+        side,
+        np.asarray(hvl_standard_uncertainty_mm_al, dtype=np.float64),
+        np.asarray(field_side_standard_uncertainty_cm, dtype=np.float64),
     )
-    hs, ss = table.hvl_mm_al, table.field_side_cm
-    h_c = min(max(hvl_mm_al, hs[0]), hs[-1])
-    s_c = min(max(field_side_cm, ss[0]), ss[-1])
-
-    def slope(axis_values: NDArray[np.float64], at: float, step: float, along_hvl: bool) -> float:
-        lo = max(at - step, float(axis_values[0]))
-        hi = min(at + step, float(axis_values[-1]))
-        if along_hvl:
-            b_lo = _interpolate(table, np.asarray(lo), np.asarray(s_c))
-            b_hi = _interpolate(table, np.asarray(hi), np.asarray(s_c))
-        else:
-            b_lo = _interpolate(table, np.asarray(h_c), np.asarray(lo))
-            b_hi = _interpolate(table, np.asarray(h_c), np.asarray(hi))
-        return float(b_hi - b_lo) / (hi - lo)
-
-    db_dh = slope(hs, h_c, _HVL_STEP_MM_AL, along_hvl=True)
-    db_ds = slope(ss, s_c, _SIDE_STEP_CM, along_hvl=False)
-    linear, edge_notes = _linear_extrapolation(table, hvl_mm_al, field_side_cm)
-    variance = (
-        (table.cell_relative_standard_uncertainty * value) ** 2
-        + (db_dh * hvl_standard_uncertainty_mm_al) ** 2
-        + (db_ds * field_side_standard_uncertainty_cm) ** 2
-        + (value - linear) ** 2 / 3.0
-    )
+    edge_notes = _edge_notes(table, float(hvl_mm_al), float(field_side_cm))
     notes = [
         f"backscatter factor from the {table.phantom}-phantom table of {table.citation}; "
         "cells written from memory, to be confirmed against the original (trust to about 5 %)",
         *edge_notes,
     ]
     return BackscatterEstimate(
-        value=value,
-        standard_uncertainty=math.sqrt(variance),
+        value=float(value),
+        standard_uncertainty=float(u),
         hvl_mm_al=float(hvl_mm_al),
         field_side_cm=float(field_side_cm),
         extrapolated=bool(edge_notes),
         notes=notes,
         source=table.citation,
+    )
+
+
+class BackscatterEstimates(NamedTuple):
+    """Backscatter factors of many beams and fields, as float64/bool arrays of one shape.
+
+    ``value`` and ``standard_uncertainty`` are NaN where no factor exists (see
+    :func:`backscatter_estimates`); ``extrapolated`` is True where the nearest table edge stood in
+    for a point outside the table.
+    """
+
+    value: NDArray[np.float64]
+    standard_uncertainty: NDArray[np.float64]
+    extrapolated: NDArray[np.bool_]
+
+
+def backscatter_estimates(
+    *,
+    hvl_mm_al: ArrayLike,
+    field_side_cm: ArrayLike,
+    hvl_standard_uncertainty_mm_al: ArrayLike = 0.0,
+    field_side_standard_uncertainty_cm: ArrayLike = 0.0,
+    phantom: str = "water",
+    out_of_range: OutOfRangeElementwise = "nearest",
+) -> BackscatterEstimates:
+    """B and its standard uncertainty for many beams and fields at once (elementwise).
+
+    The same figures as :func:`backscatter_estimate` (one call of it per element gives the same
+    value and uncertainty), without notes and without raising on a bad element:
+
+    .. math::
+
+        u^2(B) = (u_\\text{cell} B)^2 + \\left(\\frac{\\partial B}{\\partial h} u(h)\\right)^2
+        + \\left(\\frac{\\partial B}{\\partial s} u(s)\\right)^2
+        + \\frac{(B_\\text{edge} - B_\\text{linear})^2}{3}
+
+    (bilinear interpolation in the shipped table, see the module docstring; first-order
+    propagation, JCGM 100:2008 "GUM" eq. 10; the last term only outside the table, a rectangular
+    distribution of half-width the edge-to-linear-extension difference).
+
+    Parameters
+    ----------
+    hvl_mm_al, field_side_cm : array_like
+        First HVL, mm Al, and side of the (equivalent) square field at the entrance, cm.
+    hvl_standard_uncertainty_mm_al, field_side_standard_uncertainty_cm : array_like
+        Their standard uncertainties (0 when unknown).
+    phantom : str
+        Table to use (``"water"``).
+    out_of_range : {"nearest", "nan"}
+        A field side outside the table, or an HVL above it: the nearest edge of the table (as
+        ``backscatter_estimate(..., out_of_range="nearest")``), or NaN.
+
+    Returns
+    -------
+    BackscatterEstimates
+        ``(value, standard_uncertainty, extrapolated)`` broadcast over the inputs. NaN (and not
+        extrapolated) where :func:`backscatter_estimate` raises: an HVL or field side that is not
+        a positive finite number, an HVL below the table (never extrapolated), a negative
+        uncertainty; and outside the table with ``out_of_range="nan"``. A NaN or infinite
+        uncertainty of an argument gives a NaN or infinite ``standard_uncertainty``, as there.
+
+    Raises
+    ------
+    ModelError
+        Only for an unknown phantom or ``out_of_range`` policy (never for an element).
+
+    Examples
+    --------
+    >>> est = backscatter_estimates(hvl_mm_al=[3.0, 0.4], field_side_cm=[20.0, 20.0])
+    >>> est.value.round(3).tolist(), est.extrapolated.tolist()
+    ([1.37, nan], [False, False])
+    """
+    if out_of_range not in ("nearest", "nan"):
+        raise ModelError(f"out_of_range must be 'nearest' or 'nan', not {out_of_range!r}")
+    table = load_backscatter_table(phantom)
+    hvl, side, u_hvl, u_side = np.broadcast_arrays(
+        *(
+            np.asarray(a, dtype=np.float64)
+            for a in (
+                hvl_mm_al,
+                field_side_cm,
+                hvl_standard_uncertainty_mm_al,
+                field_side_standard_uncertainty_cm,
+            )
+        )
+    )
+    hs, ss = table.hvl_mm_al, table.field_side_cm
+    with np.errstate(invalid="ignore"):
+        ok = (
+            np.isfinite(hvl)
+            & (hvl > 0)
+            & np.isfinite(side)
+            & (side > 0)
+            & (hvl >= hs[0])
+            & ~(u_hvl < 0)
+            & ~(u_side < 0)
+        )
+        if out_of_range == "nan":
+            ok &= (hvl <= hs[-1]) & (side >= ss[0]) & (side <= ss[-1])
+    # evaluate at a harmless point where there is no estimate, then blank those out
+    safe_hvl = np.where(ok, hvl, hs[0])
+    safe_side = np.where(ok, side, ss[0])
+    value, u, extrapolated = _estimate_kernel(
+        table, safe_hvl, safe_side, np.where(ok, u_hvl, 0.0), np.where(ok, u_side, 0.0)
+    )
+    return BackscatterEstimates(
+        value=np.where(ok, value, np.nan),
+        standard_uncertainty=np.where(ok, u, np.nan),
+        extrapolated=extrapolated & ok,
     )
