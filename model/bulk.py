@@ -232,8 +232,10 @@ def dose_from_beams(
         clean[hit] = False
 
     # 1. mAs (as _check_mas: the message shows the value as it was passed)
+    one_mas = np.ndim(exposure_mas) == 0
+
     def raw_mas(i: int) -> Any:
-        return exposure_mas[i] if np.ndim(exposure_mas) else exposure_mas  # type: ignore[index]
+        return exposure_mas if one_mas else exposure_mas[i]  # type: ignore[index]
 
     with np.errstate(invalid="ignore"):
         fail(
