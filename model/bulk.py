@@ -178,7 +178,9 @@ def dose_from_beams(
     Element i equals ``dose_from_beam(beams[i], exposure_mas=exposure_mas[i],
     geometry=geometries[i])`` figure by figure (values and standard uncertainties; equations
     in the module docstring). An exposure for which that raises :class:`ModelError` gets its
-    message in ``errors[i]`` and NaN figures; the others are unaffected. One difference: an
+    message in ``errors[i]`` and NaN figures; the others are unaffected. The checks come in the
+    order ``dose_from_beam`` meets them, its why trail's refusal of a non-finite number
+    included, so the message is the one it would give. One difference: an
     output of exactly 0 µGy/mAs, where ``dose_from_beam`` stops on a division by zero, gets the
     message of any other non-positive output.
 

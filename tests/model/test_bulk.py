@@ -193,7 +193,8 @@ def test_edge_cases_match_dose_from_beam() -> None:
         (BEAM, -2.0, GEOMETRY),
         (BEAM, math.nan, GEOMETRY),
         (BEAM, math.inf, GEOMETRY),
-        # beam numbers dose_from_beam refuses
+        # beam numbers dose_from_beam refuses (the why trail refuses non-finite numbers too)
+        (beam(kvp_kv=math.nan), 10.0, GEOMETRY),
         (beam(output_ugy_per_mas_1m=-50.0), 10.0, GEOMETRY),
         (beam(output_ugy_per_mas_1m=math.nan), 10.0, GEOMETRY),
         (beam(output_ugy_per_mas_1m=math.inf), 10.0, GEOMETRY),
