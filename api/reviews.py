@@ -20,12 +20,14 @@
 
 from __future__ import annotations
 
+import gc
 from dataclasses import replace
 from datetime import UTC, date, datetime
 from typing import Any
 
+import numpy as np
 import pandas as pd
-from sqlalchemy import String, Table, bindparam, case, cast, func, select
+from sqlalchemy import Table, bindparam, case, func, or_, select
 from sqlalchemy.orm import Session, sessionmaker
 
 from beamaudit import __version__
@@ -55,42 +57,52 @@ __all__ = [
     "events_frame",
     "map_stored_events",
     "month_period",
+    "review_events",
     "run_review",
     "stored_flags_frame",
 ]
 
 
-def _if_unmapped(column: Any) -> Any:
-    """Header text is needed only to map events that have no exam type yet."""
-    return case((m.ExposureEventRow.exam_type.is_(None), column), else_=None)
-
-
-_EVENT_SELECT = (
-    m.ExposureEventRow.id.label("event_id"),
-    # the study's id as text stands for its UID here (no join, short strings); flags map it back
-    cast(m.ExposureEventRow.study_id, String).label("study_uid"),
-    m.ExposureEventRow.room_id,
-    m.ExposureEventRow.device_id,
-    m.ExposureEventRow.modality,
-    m.ExposureEventRow.exam_type,
-    _if_unmapped(m.ExposureEventRow.study_description).label("study_description"),
-    _if_unmapped(m.ExposureEventRow.series_description).label("series_description"),
-    _if_unmapped(m.ExposureEventRow.protocol_name).label("protocol_name"),
-    _if_unmapped(m.ExposureEventRow.body_part).label("body_part"),
-    _if_unmapped(m.ExposureEventRow.view_position).label("view_position"),
-    m.ExposureEventRow.patient_weight_kg,
-    m.ExposureEventRow.dap_gy_cm2,
-    m.ExposureEventRow.recon_dap_gy_cm2,
-    m.ExposureEventRow.recon_esak_mgy.label("esak_mgy"),
-    m.ExposureEventRow.reference_point_air_kerma_mgy.label("ref_point_air_kerma_mgy"),
-    m.ExposureEventRow.ctdivol_mgy,
-    m.ExposureEventRow.dlp_mgy_cm,
-    m.ExposureEventRow.organ_dose_mgy.label("agd_mgy"),
-    m.ExposureEventRow.deviation_index,
-    case(
-        (m.ExposureEventRow.event_type == "fluoroscopy", m.ExposureEventRow.irradiation_duration_s),
-        else_=None,
-    ).label("fluoro_time_s"),
+_E = m.ExposureEventRow
+#: Columns every event has (or mostly has), read for every event of the period.
+_DENSE_SELECT = (
+    _E.id.label("event_id"),
+    _E.study_id,
+    _E.room_id,
+    _E.device_id,
+    _E.modality,
+    _E.exam_type,
+    _E.patient_weight_kg,
+    _E.dap_gy_cm2,
+    _E.recon_dap_gy_cm2,
+    _E.recon_esak_mgy.label("esak_mgy"),
+    _E.deviation_index,
+)
+#: Columns only some kinds of event carry: read for the events that have at least one of them.
+_SPARSE_COLUMNS: tuple[tuple[str, Any], ...] = (
+    ("ref_point_air_kerma_mgy", _E.reference_point_air_kerma_mgy),
+    ("ctdivol_mgy", _E.ctdivol_mgy),
+    ("dlp_mgy_cm", _E.dlp_mgy_cm),
+    ("agd_mgy", _E.organ_dose_mgy),
+    ("fluoro_time_s", case((_E.event_type == "fluoroscopy", _E.irradiation_duration_s))),
+)
+#: Header text: read only for the events still without an exam type (to map them).
+_TEXT_COLUMNS: tuple[tuple[str, Any], ...] = tuple(
+    (c.key, c)
+    for c in (
+        _E.study_description,
+        _E.series_description,
+        _E.protocol_name,
+        _E.body_part,
+        _E.view_position,
+    )
+)
+_FLOAT_NAMES = (
+    "patient_weight_kg",
+    "dap_gy_cm2",
+    "recon_dap_gy_cm2",
+    "esak_mgy",
+    "deviation_index",
 )
 
 
@@ -119,11 +131,13 @@ def _names(session: Session) -> tuple[dict[int, tuple[str, str]], dict[int, str]
     return rooms, devices
 
 
-def _fetch(session: Session, stmt: Any, values: dict[str, Any]) -> pd.DataFrame:
-    """Run ``stmt`` on the raw DBAPI cursor (no per-row object or type processing).
+def _fetch(session: Session, stmt: Any, values: dict[str, Any]) -> np.ndarray:
+    """Run ``stmt`` on the raw DBAPI cursor; the rows as a 2-D object array (one column each).
 
-    One month of a large registry is a million rows; building SQLAlchemy rows
-    and converting each timestamp in Python would cost most of the review's time.
+    One month of a large registry is a million rows: no SQLAlchemy row objects and no per-row
+    type processing, and the garbage collector paused while the row tuples are built (they hold
+    only numbers and strings, so there are no cycles to find; scanning a growing list of a million
+    tuples would cost more than reading them).
     """
     conn = session.connection()
     compiled = stmt.compile(dialect=conn.dialect)
@@ -134,23 +148,26 @@ def _fetch(session: Session, stmt: Any, values: dict[str, Any]) -> pd.DataFrame:
     dbapi_connection = conn.connection.dbapi_connection
     assert dbapi_connection is not None  # a checked-out connection has its DBAPI connection
     cursor = dbapi_connection.cursor()
+    paused = gc.isenabled()
+    gc.disable()
     try:
         cursor.execute(str(compiled), args)
-        columns = [d[0] for d in cursor.description]
+        width = len(cursor.description)
         rows = cursor.fetchall()
+        table = np.array(rows, dtype=object) if rows else np.empty((0, width), dtype=object)
+        del rows
     finally:
+        if paused:
+            gc.enable()
         cursor.close()
-    return pd.DataFrame.from_records(rows, columns=columns)
+    return table.reshape(-1, width)
 
 
-def events_frame(session: Session, *, start: date, end: date) -> pd.DataFrame:
-    """The review core's events table for events in ``[start, end)`` (UTC dates).
-
-    Done in SQL where it is cheaper than in Python: the time comes as seconds
-    since the epoch, fluoroscopy time only for fluoroscopy events, header text
-    only for events still without an exam type, and the repeated slices of a
-    CT acquisition (image headers sharing an acquisition key) are left out.
-    """
+def _period_conditions(
+    session: Session, *, start: date, end: date
+) -> tuple[list[Any], Any, dict[str, Any]]:
+    """The WHERE conditions of the events in ``[start, end)``, their time in seconds since the
+    epoch, and the values of the conditions' parameters."""
     E = m.ExposureEventRow
     when = func.coalesce(E.event_datetime, E.study_datetime)
     sqlite = session.get_bind().dialect.name == "sqlite"
@@ -160,15 +177,12 @@ def events_frame(session: Session, *, start: date, end: date) -> pd.DataFrame:
         .where(E.acquisition_key.is_not(None), E.source_kind == "image_header")
         .group_by(E.acquisition_key)
     )
-    stmt = (
-        select(*_EVENT_SELECT, epoch.label("epoch_s"))
-        .where(E.superseded.is_(False))
-        .where(when >= bindparam("t0"))
-        .where(when < bindparam("t1"))
-        .where(
-            E.acquisition_key.is_(None) | (E.source_kind != "image_header") | E.id.in_(first_slices)
-        )
-    )
+    conditions = [
+        E.superseded.is_(False),
+        when >= bindparam("t0"),
+        when < bindparam("t1"),
+        E.acquisition_key.is_(None) | (E.source_kind != "image_header") | E.id.in_(first_slices),
+    ]
     t0, t1 = _as_utc(start), _as_utc(end)
     if sqlite:  # stored as UTC wall time text
         values: dict[str, Any] = {
@@ -177,29 +191,107 @@ def events_frame(session: Session, *, start: date, end: date) -> pd.DataFrame:
         }
     else:
         values = {"t0": t0, "t1": t1}
-    frame = _fetch(session, stmt, values)
-    if frame.empty:
-        frame = pd.DataFrame(columns=[*(c.name for c in _EVENT_SELECT), "epoch_s"])
-    rooms, devices = _names(session)
-    room_ids = frame["room_id"].astype("float64")
-    room_names = {float(k): v[0] for k, v in rooms.items()}
-    site_names = {float(k): v[1] for k, v in rooms.items()}
-    device_names = {float(k): v for k, v in devices.items()}
-    seconds = pd.to_numeric(frame["epoch_s"], errors="coerce").astype("float64")
-    frame = frame.assign(
-        room=room_ids.map(room_names).astype(object).fillna("(no room)"),
-        site=room_ids.map(site_names).astype(object).fillna("(no site)"),
-        device=frame["device_id"]
-        .astype("float64")
-        .map(device_names)
-        .astype(object)
-        .fillna("(unknown device)"),
-        study_uid=frame["study_uid"].where(
-            frame["study_uid"].notna(), "(event " + frame["event_id"].astype(str) + ")"
-        ),
-        event_datetime=pd.to_datetime(seconds.round(3), unit="s", utc=True),
+    return conditions, epoch, values
+
+
+def _names_column(ids: np.ndarray, names: dict[int, str], missing: str) -> pd.Categorical:
+    """Names of the rows' ids (``missing`` for no id or an unknown one), as a categorical."""
+    keys = pd.Index(np.array(list(names), dtype=np.float64))
+    position = keys.get_indexer(ids)
+    labels = np.array([*names.values(), missing], dtype=object)
+    categories, label_code = np.unique(labels, return_inverse=True)
+    codes = label_code.reshape(-1)[np.where(position < 0, len(keys), position)]
+    return pd.Categorical.from_codes(codes, categories=categories)
+
+
+def _study_column(study_ids: np.ndarray, event_ids: np.ndarray) -> pd.Categorical:
+    """The study's id as text (it stands for its UID here; flags map it back), or
+    ``(event N)`` for an event without a study, as a categorical."""
+    has = ~np.isnan(study_ids)
+    codes = np.empty(len(study_ids), dtype=np.int64)
+    known, uniques = pd.factorize(study_ids[has])
+    codes[has] = known
+    codes[~has] = len(uniques) + np.arange(int((~has).sum()))
+    labels = [str(int(u)) for u in uniques] + [f"(event {i})" for i in event_ids[~has]]
+    return pd.Categorical.from_codes(codes, categories=pd.Index(labels, dtype=object))
+
+
+def _text_categorical(values: np.ndarray) -> pd.Categorical:
+    return pd.Categorical(pd.Series(values, dtype=object))
+
+
+def review_events(session: Session, *, start: date, end: date) -> pd.DataFrame:
+    """The review core's events table for events in ``[start, end)`` (UTC dates), sorted by
+    ``event_id``, with the key columns (``site``, ``room``, ``device``, ``modality``,
+    ``exam_type``) and ``study_uid`` as categoricals.
+
+    Done in SQL where it is cheaper than in Python: the time comes as seconds since the epoch,
+    fluoroscopy time only for fluoroscopy events, and the repeated slices of a CT acquisition
+    (image headers sharing an acquisition key) are left out. Only the columns that (nearly) every
+    event has are read for every event; the dose columns only some kinds of event carry (K_a,r,
+    CT indices, glandular dose, fluoroscopy time) are read for the events that have one, and
+    header text for the events still without an exam type.
+    """
+    E = m.ExposureEventRow
+    conditions, epoch, values = _period_conditions(session, start=start, end=end)
+    dense = _fetch(
+        session, select(*_DENSE_SELECT, epoch.label("epoch_s")).where(*conditions), values
     )
-    return frame.drop(columns=["room_id", "device_id", "epoch_s"]).reset_index(drop=True)
+    event_ids = dense[:, 0].astype(np.int64)
+    if len(event_ids) > 1 and not (np.diff(event_ids) > 0).all():
+        order = np.argsort(event_ids, kind="stable")
+        dense, event_ids = dense[order], event_ids[order]
+    n = len(event_ids)
+    rooms, devices = _names(session)
+    room_ids = dense[:, 2].astype(np.float64)
+    seconds = pd.Series(dense[:, 11].astype(np.float64))
+    columns: dict[str, Any] = {
+        "event_id": event_ids,
+        "study_uid": _study_column(dense[:, 1].astype(np.float64), event_ids),
+        "event_datetime": pd.to_datetime(seconds.round(3), unit="s", utc=True),
+        "site": _names_column(room_ids, {k: v[1] for k, v in rooms.items()}, "(no site)"),
+        "room": _names_column(room_ids, {k: v[0] for k, v in rooms.items()}, "(no room)"),
+        "device": _names_column(dense[:, 3].astype(np.float64), devices, "(unknown device)"),
+        "modality": _text_categorical(dense[:, 4]),
+        "exam_type": _text_categorical(dense[:, 5]),
+    }
+    for offset, name in enumerate(_FLOAT_NAMES):
+        columns[name] = dense[:, 6 + offset].astype(np.float64)
+    del dense
+    sparse = _fetch(
+        session,
+        select(E.id, *(c.label(name) for name, c in _SPARSE_COLUMNS)).where(
+            *conditions, or_(*(c.is_not(None) for _, c in _SPARSE_COLUMNS))
+        ),
+        values,
+    )
+    at = np.searchsorted(event_ids, sparse[:, 0].astype(np.int64))
+    for offset, (name, _) in enumerate(_SPARSE_COLUMNS):
+        column = np.full(n, np.nan)
+        column[at] = sparse[:, 1 + offset].astype(np.float64)
+        columns[name] = column
+    text = _fetch(
+        session,
+        select(E.id, *(c for _, c in _TEXT_COLUMNS)).where(*conditions, E.exam_type.is_(None)),
+        values,
+    )
+    at = np.searchsorted(event_ids, text[:, 0].astype(np.int64))
+    for offset, (name, _) in enumerate(_TEXT_COLUMNS):
+        column = np.full(n, None, dtype=object)
+        column[at] = text[:, 1 + offset]
+        columns[name] = column
+    return pd.DataFrame(columns)
+
+
+def events_frame(session: Session, *, start: date, end: date) -> pd.DataFrame:
+    """The review core's events table for events in ``[start, end)`` (UTC dates), in plain
+    columns (text as objects, ``None`` where missing); :func:`review_events` is the same table
+    with categorical keys, as the review reads it."""
+    frame = review_events(session, start=start, end=end)
+    for c in ("study_uid", "site", "room", "device", "modality", "exam_type"):
+        values = frame[c].astype(object)
+        frame[c] = values.where(values.notna(), None)
+    return frame
 
 
 def ensure_catalogue(
@@ -291,7 +383,7 @@ def _history(
     if months <= 0:
         return None
     start = _lookback_start(params.period, months)
-    events = events_frame(session, start=start, end=params.period.start)
+    events = review_events(session, start=start, end=params.period.start)
     if events.empty:
         return None
     earlier = replace(
@@ -308,7 +400,7 @@ def execute_review(
     catalogue, rules = ensure_catalogue(session)
     pairs = level_sets_from_store(session)
     levels = [s for _, s in pairs]
-    events = events_frame(session, start=params.period.start, end=params.period.end)
+    events = review_events(session, start=params.period.start, end=params.period.end)
     history = _history(session, params, levels, catalogue)
     result = review(
         events, levels=levels, params=params, history_df=history, catalogue=catalogue, rules=rules

@@ -157,9 +157,16 @@ def prepare_events(events: pd.DataFrame) -> pd.DataFrame:
             "event_datetime is missing for event(s) "
             + _bad_ids(out, out["event_datetime"].isna().to_numpy())
         )
+    study_codes = None
     for c in TEXT_COLUMNS:
         col = events[c].reset_index(drop=True)
-        if not isinstance(col.dtype, pd.StringDtype) and pd.api.types.infer_dtype(
+        if _is_text_categorical(col):  # already factorised (as the store hands events over)
+            if c in KEY_COLUMNS:
+                out[c] = _sorted_categories(col.array)
+                continue
+            if c == "study_uid":
+                study_codes = col.cat.codes.to_numpy(dtype=np.int64)
+        elif not isinstance(col.dtype, pd.StringDtype) and pd.api.types.infer_dtype(
             col, skipna=True
         ) not in ("string", "empty"):
             col = col.astype(object)
@@ -197,10 +204,41 @@ def prepare_events(events: pd.DataFrame) -> pd.DataFrame:
         )
     dt = out["event_datetime"].dt
     out["month_key"] = (dt.year * 12 + dt.month - 1).astype(np.int64)
-    out = out.sort_values("event_id", kind="mergesort").reset_index(drop=True)
+    ids = out["event_id"].to_numpy()
+    if not (np.diff(ids) > 0).all():  # (a stable sort of sorted rows would change nothing)
+        order = np.argsort(ids, kind="stable")
+        out = out.take(order).reset_index(drop=True)
+        if study_codes is not None:
+            study_codes = study_codes[order]
     # integer study codes (by first appearance in event_id order) for grouping by study
-    out["study_code"] = pd.factorize(out["study_uid"])[0].astype(np.int64)
+    by = out["study_uid"] if study_codes is None else study_codes  # same partition, faster
+    out["study_code"] = pd.factorize(by)[0].astype(np.int64)
     return out
+
+
+def _is_text_categorical(col: pd.Series) -> bool:
+    return isinstance(col.dtype, pd.CategoricalDtype) and pd.api.types.infer_dtype(
+        col.cat.categories, skipna=True
+    ) in ("string", "empty")
+
+
+def _sorted_categories(values: pd.Categorical) -> pd.Categorical:
+    """The categorical ``pd.Categorical(values.astype(object))`` would give: only the categories
+    in use, sorted, with object categories (computed on the categories, not the rows)."""
+    used = values.remove_unused_categories()
+    categories = pd.Index(list(used.categories))
+    order = np.argsort(categories.to_numpy(), kind="stable")
+    return pd.Categorical.from_codes(
+        _recode(used.codes, order), categories=categories[order], validate=False
+    )
+
+
+def _recode(codes: np.ndarray, order: np.ndarray) -> np.ndarray:
+    """Codes into ``categories`` as codes into ``categories[order]`` (-1 stays -1)."""
+    position = np.empty(len(order) + 1, dtype=np.int64)
+    position[order] = np.arange(len(order))
+    position[-1] = -1
+    return position[codes.astype(np.int64)]
 
 
 def group_codes(frame: pd.DataFrame, keys: Sequence[str]) -> tuple[np.ndarray, pd.DataFrame]:
@@ -230,7 +268,11 @@ def group_codes(frame: pd.DataFrame, keys: Sequence[str]) -> tuple[np.ndarray, p
     if n == 0:
         empty = pd.DataFrame({c: pd.Series([], dtype=object) for c in keys})
         return np.zeros(0, dtype=np.int64), empty
-    _, first, inverse = np.unique(key, return_index=True, return_inverse=True)
+    # codes by first appearance (hashing, no sort of the rows); the first row of each code is
+    # where the running maximum of the codes steps up
+    inverse, _ = pd.factorize(key)
+    steps = np.maximum.accumulate(inverse)
+    first = np.flatnonzero(np.concatenate(([True], steps[1:] > steps[:-1])))
     table = frame.loc[:, list(keys)].iloc[first].reset_index(drop=True)
     order = table.sort_values(list(keys), na_position="last", kind="mergesort").index.to_numpy()
     rank = np.empty_like(order)

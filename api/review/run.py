@@ -43,6 +43,7 @@ import beamaudit
 from beamaudit.api.review import flags as fl
 from beamaudit.api.review.errors import ReviewError, ReviewInputError
 from beamaudit.api.review.events import (
+    DOSE_COLUMNS,
     build_units,
     group_codes,
     month_labels,
@@ -641,6 +642,23 @@ def _changepoint_series(
     return series.drop_duplicates([*LOCATION_KEYS, "exam_type", "quantity", "month"], keep="last")
 
 
+def _studies_that_may_flag(events: pd.DataFrame, params: ReviewParameters) -> np.ndarray:
+    """The events of the studies a study-level flag can concern: those with no dose value on any
+    event (``no_dose_data``) and those with an event of an SRDL modality (``srdl_exceeded``
+    looks at studies whose first modality is one). The study table of these events has the same
+    rows for these studies as the study table of all events."""
+    study = events["study_code"].to_numpy()
+    if len(study) == 0:
+        return np.zeros(0, dtype=bool)
+    n_studies = int(study.max()) + 1
+    has_dose = events.loc[:, list(DOSE_COLUMNS)].notna().to_numpy().any(axis=1)
+    keep = np.bincount(study, weights=has_dose, minlength=n_studies) == 0
+    if params.srdl_thresholds:
+        srdl = events["modality"].isin(list(params.srdl_modalities)).to_numpy()
+        keep |= np.bincount(study, weights=srdl, minlength=n_studies) > 0
+    return keep[study]
+
+
 def review(
     events: pd.DataFrame,
     *,
@@ -684,9 +702,11 @@ def review(
     in_effect = levels_in_effect(levels, params.effective_levels_on)
     level_rows = levels_table(in_effect, params.effective_levels_on)
     prepared = _select(prepare_events(events), params)
-    if rules is not None and len(prepared):
-        given = prepared["exam_type"].astype(object)
-        filled = given.where(given.notna(), map_events(prepared, rules))
+    missing_type = prepared["exam_type"].isna().to_numpy()
+    if rules is not None and missing_type.any():  # the rules map each event on its own values
+        given = prepared["exam_type"].astype(object).to_numpy(copy=True)
+        given[missing_type] = map_events(prepared.loc[missing_type], rules).to_numpy()
+        filled = pd.Series(given, dtype=object)
         prepared["exam_type"] = pd.Categorical(filled.where(filled.notna(), None))
     unmapped = unmapped_summary(prepared)
     scoped = prepared
@@ -705,7 +725,9 @@ def review(
         above_percentile=params.investigate_above_percentile,
         max_per_group=params.max_exam_flags_per_group,
     )
-    studies = study_table(scoped, list(params.srdl_thresholds))
+    studies = study_table(
+        scoped.loc[_studies_that_may_flag(scoped, params)], list(params.srdl_thresholds)
+    )
     fluoro = studies.loc[studies["modality"].isin(list(params.srdl_modalities))]
     flags += fl.srdl_exceeded(fluoro, thresholds=params.srdl_thresholds)
     ratios = _dap_ratios(scoped, params.group_by)
