@@ -14,6 +14,7 @@ import pandas as pd
 from sqlalchemy import select
 from sqlalchemy.orm import Session
 
+from beamaudit.api.reconstruct import trail_for_event
 from beamaudit.api.store import models as m
 
 __all__ = [
@@ -247,7 +248,7 @@ def exam_record(
         room_name = room.name if room else room_name
     exposures = []
     for e in events:
-        trail = e.recon_trail or {}
+        trail = trail_for_event(session, e) or {}
         comparisons = {c["quantity"]: c for c in trail.get("comparisons", [])}
         dose: dict[str, Any] = {}
         for name, key in _DOSE_FIGURES:

@@ -42,13 +42,14 @@ import logging
 import re
 from collections.abc import Iterable
 from dataclasses import dataclass, field
-from typing import Any, Literal
+from typing import Any, Literal, cast
 
-from sqlalchemy import select, update
+from sqlalchemy import Table, bindparam, insert, select, update
 from sqlalchemy.exc import IntegrityError
 from sqlalchemy.orm import Session, sessionmaker
 
 from beamaudit.api.store import models as m
+from beamaudit.api.store.base import utcnow
 from beamaudit.ingest.errors import IngestError
 from beamaudit.ingest.events import AccumulatedDose, ExposureEvent, ParseResult
 
@@ -57,6 +58,7 @@ __all__ = [
     "Pipeline",
     "StoreOutcome",
     "content_hash",
+    "prepare",
     "printable",
     "report_covers",
     "result_fingerprint",
@@ -105,14 +107,67 @@ def result_fingerprint(result: ParseResult) -> str:
     Two copies of one object that arrive by different paths (a file, a C-STORE
     with another transfer syntax) have different bytes but the same
     fingerprint; an object that reuses a SOP Instance UID for other exposures
-    has a different one.
+    has a different one. It is the SHA-256 of the JSON of every event's
+    fields but ``provenance`` and ``notes`` (datetimes in ISO form, filters as
+    dicts, as :meth:`ExposureEvent.as_dict` gives them) followed by the
+    accumulations' reprs; built without copying the events.
     """
-    payload = [
-        {k: v for k, v in e.as_dict().items() if k not in {"provenance", "notes"}}
-        for e in result.events
-    ]
+    payload: list[dict[str, Any]] = [_event_payload(e) for e in result.events]
     payload.append({"accumulated": [repr(a) for a in result.accumulated]})
     return content_hash(json.dumps(payload, sort_keys=True, default=str).encode("utf-8"))
+
+
+_FINGERPRINT_SKIP = frozenset({"provenance", "notes"})
+
+
+def _event_payload(event: ExposureEvent) -> dict[str, Any]:
+    out: dict[str, Any] = {}
+    for f in _event_fields():
+        if f in _FINGERPRINT_SKIP:
+            continue
+        value = getattr(event, f)
+        if f in ("study_datetime", "event_datetime"):
+            value = value.isoformat() if value is not None else None
+        elif f == "filters":
+            value = [_plain(x) for x in value]
+        elif not isinstance(value, str | int | float | type(None)):
+            value = _plain(value)
+        out[f] = value
+    return out
+
+
+def _event_fields() -> tuple[str, ...]:
+    return _EVENT_FIELDS
+
+
+_EVENT_FIELDS = tuple(f.name for f in dataclasses.fields(ExposureEvent))
+
+
+def _plain(value: Any) -> Any:
+    """What :func:`dataclasses.asdict` makes of ``value`` (without the deep copies)."""
+    if dataclasses.is_dataclass(value) and not isinstance(value, type):
+        return {f.name: _plain(getattr(value, f.name)) for f in dataclasses.fields(value)}
+    if isinstance(value, list | tuple):
+        return type(value)(_plain(v) for v in value)
+    if isinstance(value, dict):
+        return {_plain(k): _plain(v) for k, v in value.items()}
+    return value
+
+
+def _prepared_sha(result: ParseResult, sha256: str | None) -> str:
+    fingerprint = prepare(result)
+    return sha256 or fingerprint
+
+
+def prepare(result: ParseResult) -> str:
+    """Make ``result`` safe to store and return its fingerprint.
+
+    Replaces control characters in every text (see :func:`printable`) and
+    computes :func:`result_fingerprint`. Parser processes call it, so the
+    storing process only writes.
+    """
+    _make_printable(result)
+    return result_fingerprint(result)
 
 
 _CONTROL = re.compile(r"[\x00-\x08\x0b\x0c\x0e-\x1f\x7f]")  # C0 controls but TAB, LF, CR
@@ -221,21 +276,22 @@ class Pipeline:
         items: list[tuple[ParseResult, str | None, str | None]],
         *,
         received_via: str,
+        prepared: bool = False,
     ) -> list[StoreOutcome]:
         """Store several objects in one transaction; falls back to one by one on a conflict.
 
         ``items`` holds ``(result, received_from, sha256)`` triples. Every object
-        is stored or reported (duplicate / conflict); none is lost.
+        is stored or reported (duplicate / conflict); none is lost. ``prepared``
+        says the results already went through :func:`prepare` (a parser process
+        did it) and carry their fingerprints as ``sha256``.
         """
-        for result, _, _ in items:
-            _make_printable(result)
+        if not prepared:
+            items = [(r, src, _prepared_sha(r, sha)) for r, src, sha in items]
         if len(items) == 1:
             return [self._store_alone(items[0], received_via)]
         try:
             with self._sessions.begin() as session:
-                return [
-                    self._store_one(session, r, received_via, src, sha) for r, src, sha in items
-                ]
+                return _BatchWriter(session, received_via).store(items)
         except IntegrityError:
             return [self._store_alone(item, received_via) for item in items]
 
@@ -249,12 +305,12 @@ class Pipeline:
         constraint refuses our insert. A fresh transaction then sees the winner's rows, and the
         object is stored beside them, or found a duplicate (or a conflict) of the winner's.
         """
-        result, received_from, sha256 = item
+        result = item[0]
         detail = ""
         for _ in range(_RACE_ATTEMPTS):
             try:
                 with self._sessions.begin() as session:
-                    return self._store_one(session, result, received_via, received_from, sha256)
+                    return _BatchWriter(session, received_via).store([item])[0]
             except IntegrityError as exc:
                 detail = str(exc.orig).splitlines()[0] if exc.orig is not None else str(exc)
         log.error(
@@ -269,206 +325,395 @@ class Pipeline:
             reason=f"refused by the store's unique constraints {_RACE_ATTEMPTS} times: {detail}",
         )
 
-    def _store_one(
-        self,
-        session: Session,
-        result: ParseResult,
-        received_via: str,
-        received_from: str | None,
-        sha256: str | None,
-    ) -> StoreOutcome:
-        src = result.source
-        sha256 = sha256 or result_fingerprint(result)
-        existing = session.execute(
-            select(m.SourceObjectRow.id, m.SourceObjectRow.content_sha256).where(
-                m.SourceObjectRow.sop_instance_uid == src.sop_instance_uid
-            )
-        ).first()
-        if existing is not None:
-            if sha256 and existing.content_sha256 and existing.content_sha256 != sha256:
-                return StoreOutcome(
-                    "conflict",
-                    src.sop_instance_uid,
-                    reason=(
-                        f"SOP Instance UID {src.sop_instance_uid} is already stored with "
-                        "different content; the first object was kept"
-                    ),
+
+_STUDY_FIELDS = (
+    "accession_number",
+    "study_datetime",
+    "study_description",
+    "patient_pseudo_id",
+    "patient_age_years",
+    "patient_sex",
+    "patient_weight_kg",
+    "patient_height_m",
+)
+
+#: keys of the lookup rows for device identity (the devices table's unique constraint)
+_DEVICE_KEY = ("manufacturer", "model_name", "serial_number", "station_name")
+
+_ACCUMULATED_COLUMNS = tuple(
+    name
+    for name in m.AccumulatedDoseRow.__table__.columns.keys()  # noqa: SIM118
+    if name in AccumulatedDose.__dataclass_fields__
+    and name not in {"study_id", "sop_instance_uid", "id"}
+)
+_ACCUMULATED_DETAILS = tuple(
+    name
+    for name in AccumulatedDose.__dataclass_fields__
+    if name not in _ACCUMULATED_COLUMNS and name not in {"sop_instance_uid", "study_instance_uid"}
+)
+
+#: parameters per IN (...) list: below SQLite's and PostgreSQL's limits
+_IN_CHUNK = 500
+
+
+def _chunks(values: list[Any], size: int = _IN_CHUNK) -> Iterable[list[Any]]:
+    for start in range(0, len(values), size):
+        yield values[start : start + size]
+
+
+def _table(model: type[Any]) -> Table:
+    """The Core table of a mapped class (typed for set-wise statements)."""
+    return cast(Table, model.__table__)
+
+
+class _BatchWriter:
+    """Stores a batch of prepared objects in one transaction with set-wise statements.
+
+    Look-ups are made once per batch (which objects are stored already, which studies and
+    devices exist), rows are inserted with one multi-row statement per table, and the linking of
+    image headers with dose reports runs once per study that has a report. Devices, rooms and
+    sites seen for the first time are created through the ORM (rare: once per device).
+    """
+
+    def __init__(self, session: Session, received_via: str) -> None:
+        self.session = session
+        self.conn = session.connection()
+        self.received_via = received_via
+        self.now = utcnow()
+
+    def store(self, items: list[tuple[ParseResult, str | None, str | None]]) -> list[StoreOutcome]:
+        outcomes: list[StoreOutcome | None] = [None] * len(items)
+        existing = self._existing_objects([r.source.sop_instance_uid for r, _, _ in items])
+        fresh: list[int] = []
+        for i, (result, _, sha256) in enumerate(items):
+            uid = result.source.sop_instance_uid
+            if uid in existing:
+                stored_sha = existing[uid]
+                if sha256 and stored_sha and stored_sha != sha256:
+                    outcomes[i] = StoreOutcome(
+                        "conflict",
+                        uid,
+                        reason=(
+                            f"SOP Instance UID {uid} is already stored with different content; "
+                            "the first object was kept"
+                        ),
+                    )
+                else:
+                    outcomes[i] = StoreOutcome("duplicate", uid)
+                continue
+            existing[uid] = sha256  # a second copy later in this batch is a duplicate
+            fresh.append(i)
+        if fresh:
+            for i, outcome in zip(fresh, self._insert([items[i] for i in fresh]), strict=True):
+                outcomes[i] = outcome
+        return [o for o in outcomes if o is not None]
+
+    # -- look-ups -------------------------------------------------------------------------
+    def _existing_objects(self, uids: list[str]) -> dict[str, str | None]:
+        t = _table(m.SourceObjectRow)
+        found: dict[str, str | None] = {}
+        for chunk in _chunks(sorted(set(uids))):
+            for uid, sha in self.conn.execute(
+                select(t.c.sop_instance_uid, t.c.content_sha256).where(
+                    t.c.sop_instance_uid.in_(chunk)
                 )
-            return StoreOutcome("duplicate", src.sop_instance_uid)
-
-        study = self._study(session, result)
-        source_row = m.SourceObjectRow(
-            sop_instance_uid=src.sop_instance_uid,
-            sop_class_uid=src.sop_class_uid,
-            kind=src.kind,
-            modality=src.modality,
-            study_id=study.id if study else None,
-            series_instance_uid=src.series_instance_uid,
-            received_via=received_via,
-            received_from=received_from,
-            content_sha256=sha256,
-        )
-        session.add(source_row)
-        session.flush()
-
-        rows = []
-        for event in result.events:
-            device, room = self._device_and_room(session, event)
-            row = m.ExposureEventRow(
-                event_key=event.event_key,
-                source_object_id=source_row.id,
-                study_id=study.id if study else None,
-                device_id=device.id if device else None,
-                room_id=room.id if room else None,
-                source_kind=event.source_kind,
-                event_index=event.event_index,
-                filters=[
-                    {"material": f.material, "thickness_mm": f.thickness_mm} for f in event.filters
-                ]
-                or None,
-                receptor_geometry={
-                    name: list(getattr(event, name))
-                    for name in _RECEPTOR_FIELDS
-                    if getattr(event, name) is not None
-                }
-                or None,
-                provenance=dict(event.provenance),
-                notes=list(event.notes) + list(result.warnings if event.event_index == 0 else []),
-                **{name: getattr(event, name) for name in _EVENT_COLUMNS},
-            )
-            rows.append(row)
-        session.add_all(rows)
-        for acc in result.accumulated:
-            session.add(self._accumulated_row(acc, source_row.id, study.id if study else None))
-        session.flush()
-        if study is not None:
-            self._link(session, study, result)
-        return StoreOutcome(
-            "stored", src.sop_instance_uid, events=len(rows), event_ids=[r.id for r in rows]
-        )
-
-    # -- helpers --------------------------------------------------------------------------
-    def _study(self, session: Session, result: ParseResult) -> m.Study | None:
-        uid = result.source.study_instance_uid
-        if not uid:
-            return None
-        study = session.scalar(select(m.Study).where(m.Study.study_instance_uid == uid))
-        first = result.events[0] if result.events else None
-        if study is None:
-            study = m.Study(study_instance_uid=uid)
-            session.add(study)
-        if first is not None:
-            for name in (
-                "accession_number",
-                "study_datetime",
-                "study_description",
-                "patient_pseudo_id",
-                "patient_age_years",
-                "patient_sex",
-                "patient_weight_kg",
-                "patient_height_m",
             ):
-                value = getattr(first, name)
-                if value is not None and getattr(study, name) is None:
-                    setattr(study, name, value)
-        if result.source.kind == "rdsr":
-            study.has_dose_report = True
+                found[uid] = sha
+        return found
+
+    def _studies(self, results: list[ParseResult]) -> dict[str, int]:
+        """Study ids by Study Instance UID: existing studies completed, new ones inserted."""
+        t = _table(m.Study)
+        uids = sorted({r.source.study_instance_uid for r in results if r.source.study_instance_uid})
+        current: dict[str, dict[str, Any]] = {}
+        for chunk in _chunks(uids):
+            for row in self.conn.execute(
+                select(
+                    t.c.id,
+                    t.c.study_instance_uid,
+                    t.c.has_dose_report,
+                    *(t.c[n] for n in _STUDY_FIELDS),
+                ).where(t.c.study_instance_uid.in_(chunk))
+            ).mappings():
+                current[row["study_instance_uid"]] = dict(row)
+        changed: set[str] = set()
+        new: dict[str, dict[str, Any]] = {}
+        for result in results:
+            uid = result.source.study_instance_uid
+            if not uid:
+                continue
+            if uid in current:
+                study, is_new = current[uid], False
+            else:
+                study = new.setdefault(
+                    uid,
+                    {"study_instance_uid": uid, "has_dose_report": False, "created_at": self.now}
+                    | dict.fromkeys(_STUDY_FIELDS),
+                )
+                is_new = True
+            first = result.events[0] if result.events else None
+            if first is not None:
+                for name in _STUDY_FIELDS:
+                    value = getattr(first, name)
+                    if value is not None and study[name] is None:
+                        study[name] = value
+                        if not is_new:
+                            changed.add(uid)
+            if result.source.kind == "rdsr" and not study["has_dose_report"]:
+                study["has_dose_report"] = True
+                if not is_new:
+                    changed.add(uid)
+        ids = {uid: row["id"] for uid, row in current.items()}
+        if changed:
+            self.conn.execute(
+                update(t)
+                .where(t.c.id == bindparam("b_id"))
+                .values({n: bindparam(f"b_{n}") for n in (*_STUDY_FIELDS, "has_dose_report")}),
+                [
+                    {"b_id": current[uid]["id"]}
+                    | {f"b_{n}": current[uid][n] for n in (*_STUDY_FIELDS, "has_dose_report")}
+                    for uid in sorted(changed)
+                ],
+            )
+        if new:
+            self.conn.execute(insert(t), list(new.values()))
+            ids.update(self._ids_by(t.c.study_instance_uid, list(new)))
+        self.with_report = {uid for uid, row in (current | new).items() if row["has_dose_report"]}
+        return ids
+
+    def _ids_by(self, column: Any, keys: list[str]) -> dict[str, int]:
+        """Ids of the rows just inserted, by their unique key (multi-row inserts return none)."""
+        table = column.table
+        ids: dict[str, int] = {}
+        for chunk in _chunks(keys):
+            for key, row_id in self.conn.execute(
+                select(column, table.c.id).where(column.in_(chunk))
+            ):
+                ids[key] = row_id
+        return ids
+
+    def _device_rooms(
+        self, events: Iterable[ExposureEvent]
+    ) -> dict[tuple[str, str, str, str], tuple[int, int]]:
+        """(device id, room id) per device key; devices, rooms and sites created when new."""
+        keys: dict[tuple[str, str, str, str], ExposureEvent] = {}
+        for event in events:
+            key = _device_key(event)
+            if any(key):
+                keys.setdefault(key, event)
+        out: dict[tuple[str, str, str, str], tuple[int, int]] = {}
+        if not keys:
+            return out
+        t = _table(m.Device)
+        stations = sorted({k[3] for k in keys})
+        for chunk in _chunks(stations):
+            for row in self.conn.execute(
+                select(t.c.id, t.c.room_id, *(t.c[n] for n in _DEVICE_KEY)).where(
+                    t.c.station_name.in_(chunk)
+                )
+            ):
+                key = (row.manufacturer, row.model_name, row.serial_number, row.station_name)
+                if key in keys and row.room_id is not None:
+                    out[key] = (row.id, row.room_id)
+        for key, event in keys.items():
+            if key not in out:
+                device, room = _device_and_room(self.session, event)
+                out[key] = (device.id, room.id)
+        return out
+
+    # -- inserts --------------------------------------------------------------------------
+    def _insert(
+        self, items: list[tuple[ParseResult, str | None, str | None]]
+    ) -> list[StoreOutcome]:
+        results = [r for r, _, _ in items]
+        study_ids = self._studies(results)
+        devices = self._device_rooms(e for r in results for e in r.events)
+        so = _table(m.SourceObjectRow)
+        source_rows = [
+            {
+                "sop_instance_uid": r.source.sop_instance_uid,
+                "sop_class_uid": r.source.sop_class_uid,
+                "kind": r.source.kind,
+                "modality": r.source.modality,
+                "study_id": study_ids.get(r.source.study_instance_uid or ""),
+                "series_instance_uid": r.source.series_instance_uid,
+                "received_via": self.received_via,
+                "received_from": received_from,
+                "content_sha256": sha256,
+                "received_at": self.now,
+            }
+            for r, received_from, sha256 in items
+        ]
+        self.conn.execute(insert(so), source_rows)
+        by_uid = self._ids_by(
+            so.c.sop_instance_uid, [str(r["sop_instance_uid"]) for r in source_rows]
+        )
+        source_ids = [by_uid[str(r["sop_instance_uid"])] for r in source_rows]
+        event_rows: list[dict[str, Any]] = []
+        owners: list[int] = []  # index of the item each event row belongs to
+        acc_rows: list[dict[str, Any]] = []
+        for k, (result, source_id) in enumerate(zip(results, source_ids, strict=True)):
+            study_id = study_ids.get(result.source.study_instance_uid or "")
+            for event in result.events:
+                device_id, room_id = devices.get(_device_key(event), (None, None))
+                event_rows.append(
+                    _event_row(event, result, source_id, study_id, device_id, room_id, self.now)
+                )
+                owners.append(k)
+            acc_rows.extend(
+                _accumulated_row(acc, source_id, study_id) for acc in result.accumulated
+            )
+        event_ids: list[int] = []
+        if event_rows:
+            ev = _table(m.ExposureEventRow)
+            self.conn.execute(insert(ev), event_rows)
+            found: dict[tuple[int, int], int] = {}
+            for chunk in _chunks(source_ids):
+                for row in self.conn.execute(
+                    select(ev.c.id, ev.c.source_object_id, ev.c.event_index).where(
+                        ev.c.source_object_id.in_(chunk)
+                    )
+                ):
+                    found[(row.source_object_id, row.event_index)] = row.id
+            event_ids = [found[(r["source_object_id"], r["event_index"])] for r in event_rows]
+        if acc_rows:
+            self.conn.execute(insert(_table(m.AccumulatedDoseRow)), acc_rows)
+        for study_id in sorted({study_ids[uid] for uid in self.with_report if uid in study_ids}):
+            _link(self.conn, study_id)
+        per_item: list[list[int]] = [[] for _ in items]
+        for k, event_id in zip(owners, event_ids, strict=True):
+            per_item[k].append(event_id)
+        return [
+            StoreOutcome("stored", r.source.sop_instance_uid, events=len(ids), event_ids=ids)
+            for r, ids in zip(results, per_item, strict=True)
+        ]
+
+
+def _device_key(event: ExposureEvent) -> tuple[str, str, str, str]:
+    return (
+        event.manufacturer or "",
+        event.model_name or "",
+        event.device_serial_number or "",
+        event.station_name or "",
+    )
+
+
+def _event_row(
+    event: ExposureEvent,
+    result: ParseResult,
+    source_object_id: int,
+    study_id: int | None,
+    device_id: int | None,
+    room_id: int | None,
+    now: Any,
+) -> dict[str, Any]:
+    row: dict[str, Any] = {name: getattr(event, name) for name in _EVENT_COLUMNS}
+    receptor = {
+        name: list(getattr(event, name))
+        for name in _RECEPTOR_FIELDS
+        if getattr(event, name) is not None
+    }
+    row.update(
+        event_key=event.event_key,
+        source_object_id=source_object_id,
+        study_id=study_id,
+        device_id=device_id,
+        room_id=room_id,
+        source_kind=event.source_kind,
+        event_index=event.event_index,
+        superseded=False,
+        filters=[{"material": f.material, "thickness_mm": f.thickness_mm} for f in event.filters]
+        or None,
+        receptor_geometry=receptor or None,
+        provenance=dict(event.provenance),
+        notes=list(event.notes) + list(result.warnings if event.event_index == 0 else []),
+        stored_at=now,
+    )
+    return row
+
+
+def _accumulated_row(
+    acc: AccumulatedDose, source_object_id: int, study_id: int | None
+) -> dict[str, Any]:
+    row: dict[str, Any] = {name: getattr(acc, name) for name in _ACCUMULATED_COLUMNS}
+    row.update(
+        source_object_id=source_object_id,
+        study_id=study_id,
+        details={name: getattr(acc, name) for name in _ACCUMULATED_DETAILS},
+    )
+    return row
+
+
+def _device_and_room(session: Session, event: ExposureEvent) -> tuple[m.Device, m.Room]:
+    """The device of ``event`` and its room, created when seen for the first time."""
+    key = dict(zip(_DEVICE_KEY, _device_key(event), strict=True))
+    device = session.scalar(select(m.Device).filter_by(**key))
+    if device is None:
+        device = m.Device(
+            **key,
+            device_observer_uid=event.device_observer_uid,
+            institution_name=event.institution_name,
+        )
+        session.add(device)
         session.flush()
-        return study
+    room = session.get(m.Room, device.room_id) if device.room_id else None
+    if room is None:
+        room = _default_room(session, event)
+        device.room_id = room.id
+        session.flush()
+    return device, room
 
-    def _device_and_room(
-        self, session: Session, event: ExposureEvent
-    ) -> tuple[m.Device | None, m.Room | None]:
-        key = {
-            "manufacturer": event.manufacturer or "",
-            "model_name": event.model_name or "",
-            "serial_number": event.device_serial_number or "",
-            "station_name": event.station_name or "",
-        }
-        if not any(key.values()):
-            return None, None
-        device = session.scalar(select(m.Device).filter_by(**key))
-        if device is None:
-            device = m.Device(
-                **key,
-                device_observer_uid=event.device_observer_uid,
-                institution_name=event.institution_name,
-            )
-            session.add(device)
-            session.flush()
-        room = session.get(m.Room, device.room_id) if device.room_id else None
-        if room is None:
-            room = self._default_room(session, event)
-            device.room_id = room.id
-        return device, room
 
-    def _default_room(self, session: Session, event: ExposureEvent) -> m.Room:
-        """A device seen for the first time gets the room named by its station name.
+def _default_room(session: Session, event: ExposureEvent) -> m.Room:
+    """A device seen for the first time gets the room named by its station name.
 
-        Physicists can rename rooms and move devices later (API and CLI); the
-        default keeps every event attached to some room, never dropped.
-        """
-        site_name = event.institution_name or "(unnamed site)"
-        site = session.scalar(select(m.Site).where(m.Site.name == site_name))
-        if site is None:
-            site = m.Site(name=site_name)
-            session.add(site)
-            session.flush()
-        room_name = (
-            event.station_name
-            or " ".join(x for x in (event.manufacturer, event.model_name) if x)
-            or "(unnamed room)"
+    Physicists can rename rooms and move devices later (API and CLI); the
+    default keeps every event attached to some room, never dropped.
+    """
+    site_name = event.institution_name or "(unnamed site)"
+    site = session.scalar(select(m.Site).where(m.Site.name == site_name))
+    if site is None:
+        site = m.Site(name=site_name)
+        session.add(site)
+        session.flush()
+    room_name = (
+        event.station_name
+        or " ".join(x for x in (event.manufacturer, event.model_name) if x)
+        or "(unnamed room)"
+    )
+    room = session.scalar(select(m.Room).filter_by(site_id=site.id, name=room_name))
+    if room is None:
+        room = m.Room(site_id=site.id, name=room_name, modality=event.modality)
+        session.add(room)
+        session.flush()
+    return room
+
+
+def _link(conn: Any, study_id: int) -> None:
+    """Mark image-header events of a study that a dose report of the study describes."""
+    ev = _table(m.ExposureEventRow)
+    report_modalities = conn.scalars(
+        select(ev.c.modality)
+        .where(ev.c.study_id == study_id, ev.c.source_kind == "rdsr")
+        .distinct()
+    ).all()
+    header_modalities = conn.scalars(
+        select(ev.c.modality)
+        .where(
+            ev.c.study_id == study_id,
+            ev.c.source_kind == "image_header",
+            ev.c.superseded.is_(False),
         )
-        room = session.scalar(select(m.Room).filter_by(site_id=site.id, name=room_name))
-        if room is None:
-            room = m.Room(site_id=site.id, name=room_name, modality=event.modality)
-            session.add(room)
-            session.flush()
-        return room
-
-    @staticmethod
-    def _accumulated_row(
-        acc: AccumulatedDose, source_object_id: int, study_id: int | None
-    ) -> m.AccumulatedDoseRow:
-        columns = {
-            name: getattr(acc, name)
-            for name in m.AccumulatedDoseRow.__table__.columns.keys()  # noqa: SIM118
-            if name in AccumulatedDose.__dataclass_fields__ and name not in {"study_id"}
-        }
-        columns.pop("sop_instance_uid", None)
-        details: dict[str, Any] = {
-            name: getattr(acc, name)
-            for name in AccumulatedDose.__dataclass_fields__
-            if name not in columns and name not in {"sop_instance_uid", "study_instance_uid"}
-        }
-        return m.AccumulatedDoseRow(
-            source_object_id=source_object_id, study_id=study_id, details=details, **columns
-        )
-
-    @staticmethod
-    def _link(session: Session, study: m.Study, result: ParseResult) -> None:
-        """Mark image-header events of ``study`` that a dose report of the study describes."""
-        report_modalities = session.scalars(
-            select(m.ExposureEventRow.modality)
-            .where(m.ExposureEventRow.study_id == study.id)
-            .where(m.ExposureEventRow.source_kind == "rdsr")
-            .distinct()
-        ).all()
-        if not study.has_dose_report:
-            return
-        header_modalities = session.scalars(
-            select(m.ExposureEventRow.modality)
-            .where(m.ExposureEventRow.study_id == study.id)
-            .where(m.ExposureEventRow.source_kind == "image_header")
-            .where(m.ExposureEventRow.superseded.is_(False))
-            .distinct()
-        ).all()
-        covered = [mod for mod in header_modalities if report_covers(report_modalities, mod)]
-        if covered:
-            session.execute(
-                update(m.ExposureEventRow)
-                .where(m.ExposureEventRow.study_id == study.id)
-                .where(m.ExposureEventRow.source_kind == "image_header")
-                .where(m.ExposureEventRow.modality.in_(covered))
-                .values(superseded=True)
+        .distinct()
+    ).all()
+    covered = [mod for mod in header_modalities if report_covers(report_modalities, mod)]
+    if covered:
+        conn.execute(
+            update(ev)
+            .where(
+                ev.c.study_id == study_id,
+                ev.c.source_kind == "image_header",
+                ev.c.modality.in_(covered),
             )
+            .values(superseded=True)
+        )

@@ -21,16 +21,23 @@ CTDIvol and DLP, reported by the scanner); a model failure is
 from __future__ import annotations
 
 import logging
-from collections.abc import Sequence
+import math
+from collections.abc import Iterable, Sequence
 from dataclasses import dataclass
-from typing import Any
+from typing import Any, cast
 
-from sqlalchemy import select
+from sqlalchemy import Table, bindparam, select, update
 from sqlalchemy.orm import Session, sessionmaker
 
 from beamaudit.api.store import models as m
 
-__all__ = ["ReconSummary", "calibration_for_room", "reconstruct_events"]
+__all__ = [
+    "RECIPE_KIND",
+    "ReconSummary",
+    "calibration_for_room",
+    "reconstruct_events",
+    "trail_for_event",
+]
 
 log = logging.getLogger(__name__)
 
@@ -55,17 +62,15 @@ class ReconSummary:
 
 def calibration_for_room(session: Session, room: m.Room | None) -> Any:
     """The room's active :class:`beamaudit.model.RoomCalibration`, or ``None`` (uncalibrated)."""
-    from beamaudit.model import RoomCalibration
-
     if room is None:
         return None
-    row = session.scalar(
-        select(m.RoomCalibrationRow)
-        .where(m.RoomCalibrationRow.room_id == room.id, m.RoomCalibrationRow.active.is_(True))
-        .order_by(m.RoomCalibrationRow.created_at.desc(), m.RoomCalibrationRow.id.desc())
-        .limit(1)
-    )
-    if row is None:
+    return _calibration_from_row(_active_calibration_row(session, room.id), room)
+
+
+def _calibration_from_row(row: m.RoomCalibrationRow | None, room: m.Room | None) -> Any:
+    from beamaudit.model import RoomCalibration
+
+    if row is None or room is None:
         return None
     kwargs: dict[str, Any] = {}
     if row.output_scale_uncertainty_rel is not None:
@@ -131,9 +136,7 @@ class _BeamCache:
         return self._cache[key]
 
 
-def _filters(
-    room: m.Room | None, event: m.ExposureEventRow, calibration: Any
-) -> tuple[Any, ...] | None:
+def _filters(room: m.Room | None, event: Any, calibration: Any) -> tuple[Any, ...] | None:
     """The beam's filtration for the model.
 
     With a calibration that fitted the room's inherent filtration, only the
@@ -160,7 +163,7 @@ def _filters(
     return tuple(layers + event_layers)
 
 
-def _geometry(event: m.ExposureEventRow, room: m.Room | None) -> Any:
+def _geometry(event: Any, room: m.Room | None) -> Any:
     from beamaudit.model import GeometryInputs, find_exam
 
     prov = dict(event.provenance or {})
@@ -185,58 +188,277 @@ def _geometry(event: m.ExposureEventRow, room: m.Room | None) -> Any:
     )
 
 
-def _receptor(event: m.ExposureEventRow, name: str) -> Any:
+def _receptor(event: Any, name: str) -> Any:
     value = (event.receptor_geometry or {}).get(name)
     return tuple(float(v) for v in value) if value else None
+
+
+#: columns of an event the model reads
+_INPUT_COLUMNS = (
+    "id",
+    "room_id",
+    "modality",
+    "modality_family",
+    "kvp_kv",
+    "exposure_mas",
+    "filters",
+    "provenance",
+    "notes",
+    "receptor_geometry",
+    "sid_mm",
+    "source_to_patient_mm",
+    "source_to_entrance_mm",
+    "source_to_isocenter_mm",
+    "source_to_table_mm",
+    "source_to_reference_point_mm",
+    "body_part_thickness_mm",
+    "magnification_factor",
+    "field_width_mm",
+    "field_height_mm",
+    "field_area_cm2",
+    "body_part",
+    "view_position",
+    "dap_gy_cm2",
+)
+
+#: stored figures: column <- BulkDose attribute
+_FIGURE_COLUMNS = {
+    "recon_hvl1_mm_al": "hvl1_mm_al",
+    "recon_output_ugy_per_mas_1m": "output_ugy_per_mas_1m",
+    "recon_incident_air_kerma_mgy": "incident_air_kerma_mgy",
+    "recon_dap_gy_cm2": "dap_gy_cm2",
+    "recon_dap_u_gy_cm2": "dap_standard_uncertainty_gy_cm2",
+    "recon_esak_mgy": "esak_mgy",
+    "recon_esak_u_mgy": "esak_standard_uncertainty_mgy",
+    "recon_entrance_dose_mgy": "entrance_dose_mgy",
+    "recon_backscatter_factor": "backscatter_factor",
+    "recon_fsd_mm": "fsd_mm",
+}
+
+#: what ``recon_trail`` holds for figures made in bulk: how to make the trail again
+RECIPE_KIND = "recipe"
+
+
+def _table(model: type[Any]) -> Table:
+    """The Core table of a mapped class (typed for set-wise statements)."""
+    return cast(Table, model.__table__)
+
+
+def _room_snapshot(room: m.Room | None) -> dict[str, Any] | None:
+    if room is None:
+        return None
+    return {
+        "id": room.id,
+        "anode_material": room.anode_material,
+        "anode_angle_deg": room.anode_angle_deg,
+        "ripple_percent": room.ripple_percent,
+        "filtration": room.filtration,
+        "table_to_detector_mm": room.table_to_detector_mm,
+    }
+
+
+def _calibration_snapshot(row: m.RoomCalibrationRow | None) -> dict[str, Any] | None:
+    if row is None:
+        return None
+    return {
+        "id": row.id,
+        "output_scale": row.output_scale,
+        "output_scale_uncertainty_rel": row.output_scale_uncertainty_rel,
+        "inherent_filtration_mm_al": row.inherent_filtration_mm_al,
+        "n_measurements": row.n_measurements,
+    }
+
+
+def _active_calibration_row(session: Session, room_id: int) -> m.RoomCalibrationRow | None:
+    return session.scalar(
+        select(m.RoomCalibrationRow)
+        .where(m.RoomCalibrationRow.room_id == room_id, m.RoomCalibrationRow.active.is_(True))
+        .order_by(m.RoomCalibrationRow.created_at.desc(), m.RoomCalibrationRow.id.desc())
+        .limit(1)
+    )
 
 
 def reconstruct_events(
     session_factory: sessionmaker[Session], event_ids: Sequence[int]
 ) -> ReconSummary:
-    """Reconstruct the given events (in chunks, one transaction each)."""
+    """Reconstruct the given events (in chunks, one transaction each).
+
+    The figures of a chunk are computed together (:func:`beamaudit.model.dose_from_beams`) and
+    written with one statement per kind of outcome. The why trail is not stored per event:
+    ``recon_trail`` keeps the recipe (room configuration and calibration as used, model
+    version), from which :func:`trail_for_event` makes the full trail again on demand.
+    """
     summary = ReconSummary()
     cache = _BeamCache()
+    rooms: dict[int, m.Room | None] = {}
+    calibrations: dict[int, Any] = {}
+    recipes: dict[int | None, dict[str, Any]] = {}
     ids = list(event_ids)
     for start in range(0, len(ids), CHUNK):
         chunk = ids[start : start + CHUNK]
         with session_factory.begin() as session:
-            rooms: dict[int, m.Room | None] = {}
-            calibrations: dict[int, Any] = {}
-            for event in session.scalars(
-                select(m.ExposureEventRow).where(m.ExposureEventRow.id.in_(chunk))
-            ):
-                room = None
-                if event.room_id is not None:
-                    if event.room_id not in rooms:
-                        rooms[event.room_id] = session.get(m.Room, event.room_id)
-                        calibrations[event.room_id] = calibration_for_room(
-                            session, rooms[event.room_id]
-                        )
-                    room = rooms[event.room_id]
-                calibration = calibrations.get(event.room_id) if event.room_id else None
-                _reconstruct_one(event, room, calibration, cache, summary)
+            for room_id in {r for r in _room_ids(session, chunk) if r not in rooms}:
+                recipe = _recipe(
+                    session.get(m.Room, room_id), _active_calibration_row(session, room_id)
+                )
+                # detached copies: they outlive this chunk's transaction
+                room = _room_from_snapshot(recipe["room"])
+                rooms[room_id] = room
+                calibrations[room_id] = _calibration_from_snapshot(recipe["calibration"], room)
+                recipes[room_id] = recipe
+            _reconstruct_chunk(session, chunk, rooms, calibrations, recipes, cache, summary)
     return summary
 
 
-def _reconstruct_one(
-    event: m.ExposureEventRow,
-    room: m.Room | None,
-    calibration: Any,
+def _room_ids(session: Session, chunk: list[int]) -> set[int]:
+    ev = _table(m.ExposureEventRow)
+    return {
+        r
+        for r in session.scalars(
+            select(ev.c.room_id).where(ev.c.id.in_(chunk), ev.c.room_id.is_not(None)).distinct()
+        )
+    }
+
+
+def _recipe(room: m.Room | None, calibration: m.RoomCalibrationRow | None) -> dict[str, Any]:
+    from beamaudit import __version__
+
+    return {
+        "kind": RECIPE_KIND,
+        "software_version": __version__,
+        "room": _room_snapshot(room),
+        "calibration": _calibration_snapshot(calibration),
+    }
+
+
+def _reconstruct_chunk(
+    session: Session,
+    chunk: list[int],
+    rooms: dict[int, m.Room | None],
+    calibrations: dict[int, Any],
+    recipes: dict[int | None, dict[str, Any]],
     cache: _BeamCache,
     summary: ReconSummary,
 ) -> None:
+    from beamaudit.model import ModelError, dose_from_beams
+
+    ev = _table(m.ExposureEventRow)
+    events = session.execute(
+        select(*(ev.c[name] for name in _INPUT_COLUMNS)).where(ev.c.id.in_(chunk))
+    ).all()
+    not_applicable: list[int] = []
+    no_technique: list[int] = []
+    failed: list[dict[str, Any]] = []
+    todo: list[Any] = []
+    beams: list[Any] = []
+    geometries: list[Any] = []
+    for event in events:
+        room = rooms.get(event.room_id) if event.room_id is not None else None
+        calibration = calibrations.get(event.room_id) if event.room_id is not None else None
+        if event.modality_family == "ct" or event.modality == "CT":
+            not_applicable.append(event.id)
+            continue
+        if not event.kvp_kv or not event.exposure_mas:
+            no_technique.append(event.id)
+            continue
+        try:
+            beam = cache.get(
+                kvp_kv=event.kvp_kv,
+                filters=_filters(room, event, calibration),
+                room=room,
+                calibration=calibration,
+            )
+            geometry = _geometry(event, room)
+        except ModelError as exc:
+            failed.append(_failure(event, exc))
+            continue
+        todo.append(event)
+        beams.append(beam)
+        geometries.append(geometry)
+    done: list[dict[str, Any]] = []
+    if todo:
+        bulk = dose_from_beams(
+            beams, exposure_mas=[e.exposure_mas for e in todo], geometries=geometries
+        )
+        columns = {col: getattr(bulk, attr) for col, attr in _FIGURE_COLUMNS.items()}
+        for i, event in enumerate(todo):
+            error = bulk.errors[i]
+            if error is not None:
+                failed.append(_failure(event, error))
+                continue
+            values: dict[str, Any] = {col: _finite(arr[i]) for col, arr in columns.items()}
+            dap = values["recon_dap_gy_cm2"]
+            values["recon_calibrated"] = bool(bulk.calibrated[i])
+            values["dap_ratio_reported_to_recon"] = (
+                event.dap_gy_cm2 / dap if event.dap_gy_cm2 and dap else None
+            )
+            values["recon_trail"] = recipes.get(event.room_id) or _recipe(None, None)
+            values["b_id"] = event.id
+            done.append(values)
+    cleared = {col: None for col in (*_FIGURE_COLUMNS, "recon_calibrated")} | {
+        "dap_ratio_reported_to_recon": None,
+        "recon_trail": None,
+    }
+    for status, event_ids in (("not_applicable", not_applicable), ("no_technique", no_technique)):
+        for part in _id_chunks(event_ids):
+            session.execute(
+                update(ev).where(ev.c.id.in_(part)).values(recon_status=status, **cleared)
+            )
+    if done:
+        names = [*_FIGURE_COLUMNS, "recon_calibrated", "dap_ratio_reported_to_recon", "recon_trail"]
+        session.execute(
+            update(ev)
+            .where(ev.c.id == bindparam("b_id"))
+            .values(recon_status="ok", **{n: bindparam(n) for n in names}),
+            done,
+        )
+    if failed:
+        session.execute(
+            update(ev)
+            .where(ev.c.id == bindparam("b_id"))
+            .values(recon_status="failed", notes=bindparam("b_notes"), **cleared),
+            failed,
+        )
+    summary.reconstructed += len(done)
+    summary.no_technique += len(no_technique)
+    summary.not_applicable += len(not_applicable)
+    summary.failed += len(failed)
+
+
+def _failure(event: Any, error: Any) -> dict[str, Any]:
+    return {"b_id": event.id, "b_notes": [*(event.notes or []), f"reconstruction failed: {error}"]}
+
+
+def _finite(value: Any) -> float | None:
+    x = float(value)
+    return x if math.isfinite(x) else None
+
+
+def _id_chunks(ids: list[int], size: int = 500) -> Iterable[list[int]]:
+    for start in range(0, len(ids), size):
+        yield ids[start : start + size]
+
+
+def trail_for_event(session: Session, event: m.ExposureEventRow) -> dict[str, Any] | None:
+    """The why trail of an event's reconstructed figures (``ExposureDose.as_dict()``).
+
+    Figures made in bulk keep only their recipe (the room's beam configuration and calibration
+    as they were used); the trail is made again from it and the event's own stored inputs with
+    :func:`beamaudit.model.dose_from_beam`, the same model as the stored figures. Should the
+    result differ from what is stored (another software version made the figures), the trail
+    says so in its ``notes``. Events reconstructed with a stored trail return it as it is.
+    """
     from beamaudit.model import ModelError, dose_from_beam
 
-    if event.modality_family == "ct" or event.modality == "CT":
-        event.recon_status = "not_applicable"
-        summary.not_applicable += 1
-        return
-    if not event.kvp_kv or not event.exposure_mas:
-        event.recon_status = "no_technique"
-        summary.no_technique += 1
-        return
+    stored = event.recon_trail
+    if not stored or stored.get("kind") != RECIPE_KIND:
+        return stored
+    if event.recon_status != "ok" or not event.kvp_kv or not event.exposure_mas:
+        return None
+    room = _room_from_snapshot(stored.get("room"))
+    calibration = _calibration_from_snapshot(stored.get("calibration"), room)
     try:
-        beam = cache.get(
+        beam = _BeamCache().get(
             kvp_kv=event.kvp_kv,
             filters=_filters(room, event, calibration),
             room=room,
@@ -252,29 +474,44 @@ def _reconstruct_one(
             reported_reference_point_air_kerma_mgy=event.reference_point_air_kerma_mgy,
         )
     except ModelError as exc:
-        event.recon_status = "failed"
-        event.notes = [*(event.notes or []), f"reconstruction failed: {exc}"]
-        summary.failed += 1
-        return
-    event.recon_status = "ok"
-    event.recon_hvl1_mm_al = dose.hvl1_mm_al
-    event.recon_output_ugy_per_mas_1m = dose.output_ugy_per_mas_1m
-    event.recon_incident_air_kerma_mgy = dose.incident_air_kerma.value
-    event.recon_dap_gy_cm2 = dose.dap.value
-    event.recon_dap_u_gy_cm2 = dose.dap.standard_uncertainty
-    event.recon_esak_mgy = dose.esak.value if dose.esak else None
-    event.recon_esak_u_mgy = dose.esak.standard_uncertainty if dose.esak else None
-    event.recon_entrance_dose_mgy = dose.entrance_dose.value if dose.entrance_dose else None
-    event.recon_backscatter_factor = (
-        dose.backscatter_factor.value if dose.backscatter_factor else None
+        return {"notes": [f"the trail could not be made again: {exc}"], "recipe": stored}
+    out: dict[str, Any] = dose.as_dict()
+    out["recipe"] = stored
+    stored_dap = event.recon_dap_gy_cm2
+    if stored_dap and not math.isclose(dose.dap.value, stored_dap, rel_tol=1e-9):
+        out.setdefault("notes", []).append(
+            f"the stored DAP ({stored_dap:.6g} Gy·cm²) was made by software version "
+            f"{stored.get('software_version')}; this trail, made now, gives "
+            f"{dose.dap.value:.6g} Gy·cm²"
+        )
+    return out
+
+
+def _room_from_snapshot(snapshot: dict[str, Any] | None) -> m.Room | None:
+    if not snapshot:
+        return None
+    return m.Room(
+        id=snapshot.get("id"),
+        name="(as used)",
+        anode_material=snapshot.get("anode_material") or "tungsten",
+        anode_angle_deg=snapshot.get("anode_angle_deg", 12.0),
+        ripple_percent=snapshot.get("ripple_percent", 0.0),
+        filtration=snapshot.get("filtration"),
+        table_to_detector_mm=snapshot.get("table_to_detector_mm"),
     )
-    event.recon_fsd_mm = dose.fsd.value
-    event.recon_calibrated = dose.calibrated
-    event.dap_ratio_reported_to_recon = (
-        event.dap_gy_cm2 / dose.dap.value if event.dap_gy_cm2 and dose.dap.value else None
+
+
+def _calibration_from_snapshot(snapshot: dict[str, Any] | None, room: m.Room | None) -> Any:
+    if not snapshot:
+        return None
+    row = m.RoomCalibrationRow(
+        id=snapshot.get("id"),
+        output_scale=snapshot["output_scale"],
+        output_scale_uncertainty_rel=snapshot.get("output_scale_uncertainty_rel"),
+        inherent_filtration_mm_al=snapshot.get("inherent_filtration_mm_al"),
+        n_measurements=snapshot.get("n_measurements") or 0,
     )
-    event.recon_trail = dose.as_dict()
-    summary.reconstructed += 1
+    return _calibration_from_row(row, room)
 
 
 def beam_for_event(session: Session, event: m.ExposureEventRow) -> Any:

@@ -8,6 +8,9 @@ and reason, and the scan goes on.
 
 from __future__ import annotations
 
+import itertools
+import multiprocessing
+import multiprocessing.context
 import os
 import warnings
 from collections import Counter
@@ -17,7 +20,7 @@ from dataclasses import dataclass, field
 from pathlib import Path
 from typing import Any
 
-from beamaudit.api.pipeline import Pipeline, StoreOutcome
+from beamaudit.api.pipeline import Pipeline, StoreOutcome, prepare
 from beamaudit.ingest.errors import IngestError
 from beamaudit.ingest.events import ParseResult
 
@@ -61,8 +64,12 @@ def _init_worker(key: bytes) -> None:
     _worker_pseudonymiser = Pseudonymiser(key)
 
 
-def _parse_one(path_text: str) -> tuple[str, str, ParseResult | IngestError | None]:
-    """``(path, kind, result)`` where kind is ``dicom``, ``dicomdir`` or ``error``."""
+def _parse_one(path_text: str) -> tuple[str, str, ParseResult | IngestError | None, str | None]:
+    """``(path, kind, result, fingerprint)``; kind is ``dicom``, ``dicomdir`` or ``error``.
+
+    The result is prepared for storing here (:func:`beamaudit.api.pipeline.prepare`), in the
+    parser process, so the storing process only writes.
+    """
     from beamaudit.ingest.folder import scan
 
     with warnings.catch_warnings(record=True) as caught:
@@ -74,24 +81,53 @@ def _parse_one(path_text: str) -> tuple[str, str, ParseResult | IngestError | No
             f"while reading: {w.message}" for w in caught if issubclass(w.category, UserWarning)
         )
     if outcome.skipped:
-        return path_text, "dicomdir", None
+        return path_text, "dicomdir", None, None
     if outcome.error is not None:
-        return path_text, "error", outcome.error
-    return path_text, "dicom", outcome.result
+        return path_text, "error", outcome.error, None
+    assert outcome.result is not None
+    return path_text, "dicom", outcome.result, prepare(outcome.result)
+
+
+#: with fewer files than this a scan parses in its own process (a pool costs more to start)
+POOL_THRESHOLD = 64
 
 
 def _parsed(
     files: Iterable[Path], key: bytes, workers: int
-) -> Iterator[tuple[str, str, ParseResult | IngestError | None]]:
+) -> Iterator[tuple[str, str, ParseResult | IngestError | None, str | None]]:
     names = (str(p) for p in files)
     if workers <= 1:
         _init_worker(key)
         yield from map(_parse_one, names)
         return
+    head = list(itertools.islice(names, POOL_THRESHOLD))
+    if len(head) < POOL_THRESHOLD:
+        _init_worker(key)
+        yield from map(_parse_one, head)
+        return
     with ProcessPoolExecutor(
-        max_workers=workers, initializer=_init_worker, initargs=(key,)
+        max_workers=workers,
+        mp_context=_parser_context(),
+        initializer=_init_worker,
+        initargs=(key,),
     ) as pool:
-        yield from pool.map(_parse_one, names, chunksize=32)
+        yield from pool.map(_parse_one, itertools.chain(head, names), chunksize=32)
+
+
+def _parser_context() -> multiprocessing.context.BaseContext:
+    """Where parser processes come from: a fork server, never a fork of this process.
+
+    A forked parser would inherit this process's open database connections: killed mid-batch,
+    this process would leave parsers holding the socket of its open transaction (PostgreSQL
+    then keeps its locks, and the next scan waits on them), and sibling parsers holding each
+    other's pipes alive. Children of the fork server (started once per process, with the
+    parsing modules imported) inherit neither, and exit when this process goes.
+    """
+    if "forkserver" not in multiprocessing.get_all_start_methods():
+        return multiprocessing.get_context("spawn")
+    context = multiprocessing.get_context("forkserver")
+    context.set_forkserver_preload(["beamaudit.api.scanning", "beamaudit.ingest.folder"])
+    return context
 
 
 def scan_paths(
@@ -126,7 +162,7 @@ def scan_paths(
 
     def flush() -> None:
         if batch:
-            outcomes = pipeline.store_many(batch, received_via=received_via)
+            outcomes = pipeline.store_many(batch, received_via=received_via, prepared=True)
             for (_, source, _), outcome in zip(batch, outcomes, strict=True):
                 _count(summary, outcome, source, pending_errors)
             batch.clear()
@@ -134,7 +170,8 @@ def scan_paths(
             pipeline.record_errors(pending_errors, received_via=received_via)
             pending_errors.clear()
 
-    for path_text, kind, result in _parsed(iter_candidate_files(paths), key, max(1, workers)):
+    parsed = _parsed(iter_candidate_files(paths), key, max(1, workers))
+    for path_text, kind, result, fingerprint in parsed:
         summary.files += 1
         if kind == "dicomdir":
             summary.skipped += 1
@@ -144,7 +181,7 @@ def scan_paths(
             )
             pending_errors.append((result, path_text))
         elif isinstance(result, ParseResult):
-            batch.append((result, path_text, None))
+            batch.append((result, path_text, fingerprint))
         if len(batch) >= BATCH_SIZE or len(pending_errors) >= BATCH_SIZE:
             flush()
         if on_file is not None:

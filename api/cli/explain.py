@@ -12,8 +12,12 @@ from beamaudit.api.cli._common import console, fail
 __all__ = ["event_explanation", "register"]
 
 
-def event_explanation(event: Any) -> dict[str, Any]:
-    """A JSON-ready explanation of one stored event (an ``ExposureEventRow``)."""
+def event_explanation(event: Any, trail: dict[str, Any] | None = None) -> dict[str, Any]:
+    """A JSON-ready explanation of one stored event (an ``ExposureEventRow``).
+
+    ``trail`` is the why trail of its figures (:func:`beamaudit.api.reconstruct.trail_for_event`);
+    the stored one when not given.
+    """
     reported = {
         name: getattr(event, name)
         for name in (
@@ -68,7 +72,7 @@ def event_explanation(event: Any) -> dict[str, Any]:
         "dap_ratio_reported_to_recon": event.dap_ratio_reported_to_recon,
         "provenance": event.provenance or {},
         "notes": event.notes or [],
-        "why": event.recon_trail,
+        "why": trail if trail is not None else event.recon_trail,
         "caution": (
             "every figure is an estimate for quality assurance and optimisation; clinical "
             "decisions need a qualified medical physicist"
@@ -83,6 +87,7 @@ def explain_command(
 ) -> None:
     """Show one stored exposure: reported beside reconstructed, and how each figure was made."""
     from beamaudit.api.cli._store import open_store
+    from beamaudit.api.reconstruct import trail_for_event
     from beamaudit.api.store import models as m
 
     store = open_store(ctx)
@@ -90,7 +95,7 @@ def explain_command(
         event = session.get(m.ExposureEventRow, event_id)
         if event is None:
             fail(f"no exposure event with id {event_id}")
-        data = event_explanation(event)
+        data = event_explanation(event, trail_for_event(session, event))
     if as_json:
         typer.echo(json.dumps(data, indent=2, default=str))
         return

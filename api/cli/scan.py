@@ -32,8 +32,14 @@ def scan_command(
         typer.Argument(help="Files or folders (walked recursively; DICOM recognised by content)."),
     ],
     workers: Annotated[
-        int, typer.Option(min=1, max=64, help="Parser processes (default 1: in this process).")
-    ] = 1,
+        int | None,
+        typer.Option(
+            min=1,
+            max=64,
+            help="Parser processes (default: one per core, at most 4; a scan of fewer than "
+            "64 files parses in this process).",
+        ),
+    ] = None,
     as_json: Annotated[
         bool, typer.Option("--json", help="Print the summary as one JSON object.")
     ] = False,
@@ -48,7 +54,7 @@ def scan_command(
     from beamaudit.api.cli._store import open_store
     from beamaudit.api.pipeline import Pipeline
     from beamaudit.api.postprocess import process_new_events
-    from beamaudit.api.scanning import scan_paths
+    from beamaudit.api.scanning import default_workers, scan_paths
 
     missing = [str(p) for p in paths if not p.exists()]
     if missing:
@@ -56,6 +62,7 @@ def scan_command(
     store = open_store(ctx)
     key = pseudonym_key(store.settings.secret_key_path)
     pipeline = Pipeline(store.sessions)
+    workers = workers or default_workers()
     show_progress = sys.stderr.isatty() and not as_json
     if show_progress:
         progress = Progress(

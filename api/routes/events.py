@@ -14,6 +14,7 @@ from sqlalchemy import ColumnElement, Select, and_, exists, func, or_, select
 
 from beamaudit.api.app import CAUTION
 from beamaudit.api.deps import DbSession, Physicist
+from beamaudit.api.reconstruct import trail_for_event
 from beamaudit.api.routes._common import (
     AUTH_RESPONSES,
     NOT_FOUND,
@@ -240,7 +241,7 @@ def get_event(event_id: IdPath, session: DbSession, _: Physicist) -> EventDetail
         reported=_group(EventReported, row),
         reconstructed=_group(EventReconstructed, row, prefix="recon_"),
         dose_breakdown=dose_breakdown(row),
-        recon_trail=row.recon_trail,
+        recon_trail=trail_for_event(session, row),
         provenance=row.provenance or {},
         notes=row.notes or [],
         flags=[EventFlag.model_validate(f) for f in flags],

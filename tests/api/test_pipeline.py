@@ -155,3 +155,33 @@ def test_same_uid_different_exposures_without_hash_is_a_conflict(store) -> None:
     other.events[0].kvp_kv = 60.0
     assert pipe.store(other, received_via="listen").status == "conflict"
     assert pipe.store(_result("1.2.3.8"), received_via="listen").status == "duplicate"
+
+
+def _defined_fingerprint(result: ParseResult) -> str:
+    """The fingerprint as documented: the JSON of ``as_dict()`` without provenance and notes."""
+    import json
+
+    payload = [
+        {k: v for k, v in e.as_dict().items() if k not in {"provenance", "notes"}}
+        for e in result.events
+    ]
+    payload.append({"accumulated": [repr(a) for a in result.accumulated]})
+    return content_hash(json.dumps(payload, sort_keys=True, default=str).encode("utf-8"))
+
+
+def test_fingerprint_is_the_documented_one_for_real_files() -> None:
+    # pydicom's bundled files (CT, CR, MR, ...) and a built dose report: the fast fingerprint
+    # must equal the documented definition, or stored objects would look changed on a re-scan
+    from pydicom.data import get_testdata_file
+
+    from beamaudit.ingest.folder import scan
+    from beamaudit.ingest.pseudonym import Pseudonymiser
+
+    names = ["CT_small.dcm", "MR_small.dcm", "rtplan.dcm", "JPEG2000.dcm", "SC_rgb.dcm"]
+    paths = [p for p in (get_testdata_file(n) for n in names) if p]
+    outcomes = scan(paths, pseudonymiser=Pseudonymiser(b"k" * 32))
+    results = [o.result for o in outcomes if o.result is not None]
+    results.append(_result("1.2.3.9", n_events=3, body_part_thickness_mm=210.0))
+    assert results
+    for result in results:
+        assert result_fingerprint(result) == _defined_fingerprint(result)
