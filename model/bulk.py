@@ -6,8 +6,9 @@ figure), as float64 arrays of length n in a :class:`BulkDose`. It is for reconst
 stored exposures (ingest, re-reconstruction after a calibration change); the trail of any one
 exposure is regenerated on demand with :func:`dose_from_beam`, which stays the reference.
 
-Per exposure only the geometry is resolved in Python (:func:`resolve_geometry`, with its order
-of preference); everything numeric is vectorised over the arrays. With :math:`Y` the tube
+Per exposure only the geometry is resolved in Python (:func:`resolve_geometry` with
+``trail=False``: its order of preference and its checks, no trail kept); everything numeric is
+vectorised over the arrays. With :math:`Y` the tube
 output at :math:`d_0` = 1 m, :math:`P_{It}` the mAs, :math:`d_{FSD}` the focus-to-skin
 distance, :math:`A(d)` the field at the plane :math:`d`, :math:`B` the backscatter factor and
 :math:`\\overline{(\\mu_{en}/\\rho)}_{t,a}` the spectrum-averaged tissue/air ratio:
@@ -257,7 +258,7 @@ def dose_from_beams(
             key = found = None
         if found is None:
             try:
-                found = resolve_geometry(g)
+                found = resolve_geometry(g, trail=False)
             except ModelError as exc:
                 errors[i] = str(exc)
                 clean[i] = False

@@ -49,9 +49,9 @@ and differences above; the assumed ones are rows of ``data/dose_defaults.csv``.
 from __future__ import annotations
 
 import math
-from collections.abc import Mapping
+from collections.abc import Iterable, Mapping
 from dataclasses import dataclass, field, fields
-from typing import Literal
+from typing import Any, Literal, Protocol
 
 from beamaudit.model.defaults import GENERIC_EXAM, dose_default, exam_default
 from beamaudit.model.errors import ModelError
@@ -169,7 +169,9 @@ class ResolvedGeometry:
     entrance_field_area_cm2 : the field at the entrance surface.
     entrance_field_side_cm, entrance_field_side_standard_uncertainty_cm : side of its equivalent
         square, :math:`2ab/(a+b)` (or :math:`\\sqrt{A}` when only the area is known).
-    distance_trail, field_trail : the steps that made the FSD and the field.
+    distance_trail, field_trail : the steps that made the FSD and the field; both empty when
+        resolved with ``trail=False`` (then :attr:`assumptions` is empty too, which says
+        nothing about what was assumed).
     """
 
     fsd_mm: float
@@ -207,13 +209,117 @@ def _positive(name: str, value: float | None) -> float | None:
     return number
 
 
-class _Resolver:
-    """One resolution: keeps the trail and resolves SID and thickness at most once each."""
+class _Trail(Protocol):
+    """What :class:`_Resolver` needs of a trail: a :class:`WhyTrail`, or one that keeps nothing."""
 
-    def __init__(self, g: GeometryInputs) -> None:
+    @property
+    def steps(self) -> tuple[TrailStep, ...]: ...
+
+    def add(
+        self,
+        quantity: str,
+        value: Any,
+        unit: str,
+        *,
+        equation: str,
+        source: str,
+        inputs: Mapping[str, Any] | None = None,
+        assumed: bool = False,
+        note: str | None = None,
+    ) -> TrailStep | None: ...
+
+    def extend(self, other: Iterable[TrailStep]) -> None: ...
+
+
+_AS_IS = frozenset({int, str, bool, type(None)})
+
+
+def _recordable_as_is(value: object) -> bool:
+    """True for a value a why trail records unchanged: None, bool, int, str, a finite float,
+    or a list of those. False means "not sure", not "refused".
+
+    (``v - v == 0`` holds exactly for a finite float; cheaper than ``math.isfinite``.)
+    """
+    kind = type(value)
+    if kind is float:
+        return value - value == 0.0  # type: ignore[operator]
+    if kind in _AS_IS:
+        return True
+    if kind is list:
+        return all(
+            type(v) in _AS_IS or (type(v) is float and v - v == 0.0)
+            for v in value  # type: ignore[attr-defined]
+        )
+    return False
+
+
+class _UnkeptTrail:
+    """Stands in for a :class:`WhyTrail` when no trail is wanted: keeps no step.
+
+    It still refuses what :meth:`WhyTrail.add` refuses (a number JSON cannot carry: NaN, an
+    infinity, a type that is not JSON-ready), with the same :class:`ModelError`, so that a
+    resolution without a trail fails exactly where one with a trail does. The common case (the
+    value and every input a finite float, an int, a str, a bool, None or a list of those) is
+    checked here; a step with any other value is made as a real :class:`TrailStep`, which
+    accepts or refuses it as a trail would, and is then dropped.
+    """
+
+    __slots__ = ()
+
+    @property
+    def steps(self) -> tuple[TrailStep, ...]:
+        return ()
+
+    def add(
+        self,
+        quantity: str,
+        value: Any,
+        unit: str,
+        *,
+        equation: str,
+        source: str,
+        inputs: Mapping[str, Any] | None = None,
+        assumed: bool = False,
+        note: str | None = None,
+    ) -> None:
+        if quantity and (note or not assumed) and _recordable_as_is(value):
+            if inputs is None:
+                return
+            for v in inputs.values():
+                if not _recordable_as_is(v):
+                    break
+            else:
+                return
+        TrailStep(
+            quantity=quantity,
+            value=value,
+            unit=unit,
+            equation=equation,
+            source=source,
+            inputs=dict(inputs or {}),
+            assumed=assumed,
+            note=note,
+        )
+
+    def extend(self, other: Iterable[TrailStep]) -> None:
+        return
+
+
+#: The one trail that keeps nothing (it holds no state, so it can be shared).
+_UNKEPT = _UnkeptTrail()
+
+
+class _Resolver:
+    """One resolution: writes the trails and resolves SID and thickness at most once each.
+
+    The trails are :class:`WhyTrail` objects, or both :data:`_UNKEPT` for a resolution without
+    a trail (the same steps taken, with the same checks, errors and numbers; none kept).
+    """
+
+    def __init__(self, g: GeometryInputs, distance_trail: _Trail, field_trail: _Trail) -> None:
         self.g = g
-        self.distance_trail = WhyTrail()
-        self.field_trail = WhyTrail()
+        self.distance_trail = distance_trail
+        self.field_trail = field_trail
         self._exam = exam_default(g.exam) if g.exam else None
         self._sid: tuple[float, float] | None = None
         self._sid_step: TrailStep | None = None
@@ -232,12 +338,12 @@ class _Resolver:
             return self._exam.exam, False
         return GENERIC_EXAM, True
 
-    def _share(self, trail: WhyTrail, step: TrailStep) -> None:
+    def _share(self, trail: _Trail, step: TrailStep) -> None:
         """Put an already-made step into another trail that also depends on it."""
         if step not in trail.steps:
             trail.extend([step])
 
-    def sid(self, trail: WhyTrail) -> tuple[float, float]:
+    def sid(self, trail: _Trail) -> tuple[float, float]:
         """SID and its standard uncertainty (recorded, else the exam default)."""
         if self._sid is None:
             sid = _positive("sid_mm", self.g.sid_mm)
@@ -265,7 +371,7 @@ class _Resolver:
             self._share(trail, self._sid_step)
         return self._sid
 
-    def thickness(self, trail: WhyTrail) -> tuple[float, float]:
+    def thickness(self, trail: _Trail) -> tuple[float, float]:
         """Patient thickness and its standard uncertainty (recorded, else the exam default)."""
         if self._thickness is None:
             t = _positive("body_part_thickness_mm", self.g.body_part_thickness_mm)
@@ -299,7 +405,7 @@ class _Resolver:
             self._share(trail, self._thickness_step)
         return self._thickness
 
-    def gap(self, trail: WhyTrail) -> tuple[float, float]:
+    def gap(self, trail: _Trail) -> tuple[float, float]:
         """Patient exit surface to image receptor: the room's, else the receptor default."""
         room_gap = self.g.table_to_detector_gap_mm
         if room_gap is not None:
@@ -567,25 +673,32 @@ class _Resolver:
         return None
 
 
-def resolve_geometry(inputs: GeometryInputs) -> ResolvedGeometry:
+def resolve_geometry(inputs: GeometryInputs, *, trail: bool = True) -> ResolvedGeometry:
     """Resolve FSD and field for one exposure, in the order of preference of this module.
 
     Parameters
     ----------
     inputs : GeometryInputs
         What the exposure carries (all optional).
+    trail : bool
+        Keep the why trails (default). With False the same rules are applied and the same
+        checks made (a why trail's refusal of a number it cannot record included, so the same
+        inputs raise the same :class:`ModelError`), giving the same numbers, but no step is
+        kept: ``distance_trail`` and ``field_trail`` are empty. For many exposures at once
+        (:func:`beamaudit.model.bulk.dose_from_beams`), whose trails are made again on demand.
 
     Returns
     -------
     ResolvedGeometry
         FSD, field at its plane and at the entrance, their standard uncertainties, and the
-        trails that made them.
+        trails that made them (empty with ``trail=False``).
 
     Raises
     ------
     ModelError
         Impossible geometry (a patient thicker than the distance to the receptor, a field of
-        zero area), non-positive values, an unknown exam type or receptor kind.
+        zero area), non-positive values, an unknown exam type or receptor kind, a number the
+        why trail cannot record.
 
     Examples
     --------
@@ -600,7 +713,11 @@ def resolve_geometry(inputs: GeometryInputs) -> ResolvedGeometry:
             f"unknown receptor kind {inputs.receptor!r} (known: table_bucky, wall_bucky, "
             "direct, unknown)"
         )
-    r = _Resolver(inputs)
+    distance_trail, field_trail = WhyTrail(), WhyTrail()
+    if trail:
+        r = _Resolver(inputs, distance_trail, field_trail)
+    else:
+        r = _Resolver(inputs, _UNKEPT, _UNKEPT)
     fsd, u_fsd, distance_source = r.fsd()
     area, rel_area, w_cm, h_cm, plane, u_plane, field_source = r.field()
     scale = fsd / plane
@@ -649,8 +766,8 @@ def resolve_geometry(inputs: GeometryInputs) -> ResolvedGeometry:
         entrance_field_area_cm2=entrance_area,
         entrance_field_side_cm=side,
         entrance_field_side_standard_uncertainty_cm=u_side,
-        distance_trail=r.distance_trail,
-        field_trail=r.field_trail,
+        distance_trail=distance_trail,
+        field_trail=field_trail,
     )
 
 

@@ -3,12 +3,22 @@
 from __future__ import annotations
 
 import math
+import re
+from dataclasses import fields
+from decimal import Decimal
+from typing import Any
 
+import numpy as np
 import pytest
 
 from beamaudit.model.defaults import dose_default, exam_default, find_exam, load_exam_defaults
 from beamaudit.model.errors import ModelError
-from beamaudit.model.geometry import GeometryInputs, field_area_at_distance_cm2, resolve_geometry
+from beamaudit.model.geometry import (
+    GeometryInputs,
+    ResolvedGeometry,
+    field_area_at_distance_cm2,
+    resolve_geometry,
+)
 
 
 def test_source_to_entrance_wins() -> None:
@@ -269,3 +279,116 @@ def test_dose_defaults_are_documented() -> None:
         assert row.source.startswith(("assumed", "the ")), row.key  # assumptions say so
     with pytest.raises(ModelError, match="no dose default"):
         dose_default("nonexistent")
+
+
+# -- without a trail: the same numbers and the same errors ------------------------------------
+
+
+def figures(geo: ResolvedGeometry) -> dict[str, object]:
+    """Everything of a resolved geometry but its trails."""
+    return {f.name: getattr(geo, f.name) for f in fields(geo) if not f.name.endswith("_trail")}
+
+
+def outcome(g: GeometryInputs, *, trail: bool) -> dict[str, object] | str:
+    """The figures of resolve_geometry(g, trail=trail), or the message of its ModelError."""
+    try:
+        geo = resolve_geometry(g, trail=trail)
+    except ModelError as exc:
+        return str(exc)
+    if not trail:
+        assert len(geo.distance_trail) == 0 and len(geo.field_trail) == 0
+    return figures(geo)
+
+
+EDGES_PX = (0, 1000, 0, 800)
+NUMPY_EDGES_PX: Any = tuple(np.float64(v) for v in EDGES_PX)
+DECIMAL_EDGES_PX: Any = tuple(Decimal(v) for v in EDGES_PX)  # not JSON-ready
+SPACING_MM = (0.15, 0.15)
+
+
+@pytest.mark.parametrize(
+    ("g", "message"),
+    [
+        # every rule of this module, with a trail that records every kind of input
+        (GeometryInputs(sid_mm=1000.0, body_part_thickness_mm=200.0), None),
+        (GeometryInputs(source_to_entrance_mm=700.0, field_area_cm2=600.0), None),
+        (GeometryInputs(source_to_table_mm=900.0, tube_side="below", exam="chest_pa"), None),
+        (GeometryInputs(source_to_isocenter_mm=750.0, receptor="direct"), None),
+        (GeometryInputs(sid_mm=1200, magnification_factor=1.2, field_plane_mm=1000.0), None),
+        (GeometryInputs(collimator_edges_px=EDGES_PX, imager_pixel_spacing_mm=SPACING_MM), None),
+        (
+            GeometryInputs(
+                collimator_edges_px=NUMPY_EDGES_PX,
+                imager_pixel_spacing_mm=SPACING_MM,
+                detector_dimensions_mm=(430.0, 430.0),
+            ),
+            None,
+        ),
+        (GeometryInputs(collimator_edges_px=(-1, 9, 0, 9), imager_pixel_spacing_mm=(1, 1)), None),
+        (GeometryInputs(sid_mm=1000.0, table_to_detector_gap_mm=np.float64(50.0)), None),
+        # checks of the rules
+        (GeometryInputs(sid_mm=1000.0, body_part_thickness_mm=1200.0), "impossible geometry"),
+        (GeometryInputs(source_to_entrance_mm=math.nan), "source_to_entrance_mm must be"),
+        (GeometryInputs(exam="foot_ap"), "unknown exam type"),
+        (
+            GeometryInputs(sid_mm=900.0, table_to_detector_gap_mm=-1.0),
+            "table_to_detector_gap_mm must be >= 0",
+        ),
+        # numbers the why trail refuses (JSON cannot carry them): refused without a trail too
+        (
+            GeometryInputs(sid_mm=1000.0, field_width_mm=1e200, field_height_mm=1e200),
+            "why trail: field_area_cm2 is inf, which cannot be recorded",
+        ),
+        (
+            GeometryInputs(
+                source_to_entrance_mm=800.0, field_area_cm2=1e300, field_area_plane_mm=1e-9
+            ),
+            "why trail: entrance_field_area_cm2 is inf, which cannot be recorded",
+        ),
+        (
+            GeometryInputs(detector_dimensions_mm=(1e200, 1e200)),
+            "why trail: field_area_cm2 is inf",
+        ),
+        (
+            GeometryInputs(
+                collimator_edges_px=(math.nan, 100.0, 0.0, 100.0),
+                imager_pixel_spacing_mm=SPACING_MM,
+            ),
+            "why trail: field_area_cm2 is nan",
+        ),
+        (
+            # edges skipped (a negative one), with the NaN one kept in the skipped step
+            GeometryInputs(
+                collimator_edges_px=(-1.0, math.nan, 0.0, 10.0),
+                imager_pixel_spacing_mm=SPACING_MM,
+            ),
+            "why trail: collimator_edges_px.inputs.collimator_edges_px is nan",
+        ),
+        (
+            GeometryInputs(
+                collimator_edges_px=DECIMAL_EDGES_PX,
+                imager_pixel_spacing_mm=SPACING_MM,
+            ),
+            "why trail: field_area_cm2.inputs.collimator_edges_px has type Decimal, not JSON-ready",
+        ),
+    ],
+)
+def test_without_a_trail_the_same_numbers_and_errors(
+    g: GeometryInputs, message: str | None
+) -> None:
+    kept = outcome(g, trail=True)
+    if message is None:
+        assert isinstance(kept, dict), kept
+    else:
+        assert isinstance(kept, str) and kept.startswith(message)
+        with pytest.raises(ModelError, match="^" + re.escape(message)):
+            resolve_geometry(g, trail=False)
+    assert outcome(g, trail=False) == kept
+
+
+def test_without_a_trail_the_trails_are_empty() -> None:
+    kept = resolve_geometry(GeometryInputs(exam="abdomen_ap"))
+    geo = resolve_geometry(GeometryInputs(exam="abdomen_ap"), trail=False)
+    assert figures(geo) == figures(kept) and kept.assumptions
+    assert geo.distance_trail.steps == () and geo.field_trail.steps == ()
+    assert geo.assumptions == []  # says nothing: no trail was kept
