@@ -6,8 +6,9 @@
    rooms are stored (as a physicist would enter them), so reconstruction uses
    them.
 3. Rooms delivered by "folder" are read by the folder scan; rooms delivered by
-   "cstore" are sent over DICOM C-STORE to the listener on a free loopback
-   port; the broken files go through the folder scan too.
+   "cstore" are sent over DICOM C-STORE to listeners on free loopback ports
+   (two listener processes on the one database, as two ingest nodes); the
+   broken files go through the folder scan too.
 4. The national and the (invented) local reference-level sets are imported,
    and a monthly review runs for every month of the scenario.
 5. :func:`compare_with_plan` sets the flags beside the planted findings.
@@ -18,9 +19,19 @@ Everything here is invented; nothing is a real patient, person or hospital.
 from __future__ import annotations
 
 import json
+import logging
+import multiprocessing
+import multiprocessing.context
+import socket
+import time
 from collections import Counter
+from collections.abc import Iterator
+from concurrent.futures import ThreadPoolExecutor
+from contextlib import contextmanager
 from dataclasses import dataclass, field
 from datetime import date
+from multiprocessing.connection import Connection
+from multiprocessing.process import BaseProcess
 from pathlib import Path
 from typing import Any
 
@@ -28,9 +39,12 @@ from sqlalchemy import select
 from sqlalchemy.orm import Session, sessionmaker
 
 from beamaudit.api.auth import record_change
+from beamaudit.api.demo.errors import DemoError
 from beamaudit.api.store import models as m
 
 __all__ = ["DemoOutcome", "compare_with_plan", "run_demo"]
+
+log = logging.getLogger(__name__)
 
 
 @dataclass
@@ -41,6 +55,24 @@ class DemoOutcome:
     run_ids: dict[str, int] = field(default_factory=dict)
     flags: list[dict[str, Any]] = field(default_factory=list)
     ingest_errors: list[dict[str, str]] = field(default_factory=list)
+    #: seconds spent in each phase, in the order they ran (``generate``, ``scan``, ...)
+    timings: dict[str, float] = field(default_factory=dict)
+
+
+def _phase_timer(timings: dict[str, float]) -> Any:
+    """``phase = _phase_timer(t)``; ``with phase("scan"):`` adds the block's seconds to ``t``."""
+
+    @contextmanager
+    def phase(name: str) -> Iterator[None]:
+        t0 = time.perf_counter()
+        try:
+            yield
+        finally:
+            elapsed = time.perf_counter() - t0
+            timings[name] = timings.get(name, 0.0) + elapsed
+            log.debug("demo phase %s: %.2f s", name, elapsed)
+
+    return phase
 
 
 def _setup_rooms(sessions: sessionmaker[Session], manifest: dict[str, Any]) -> None:
@@ -133,28 +165,174 @@ def _setup_rooms(sessions: sessionmaker[Session], manifest: dict[str, Any]) -> N
             )
 
 
-def _send_cstore(folder: Path, port: int) -> dict[str, int]:
-    """Send every file under ``folder`` to the listener with a pynetdicom SCU, one association."""
-    from pydicom import dcmread
+#: Listener processes the C-STORE rooms are sent to, as a hospital runs several ingest nodes on
+#: one database (DEPLOYMENT.md): the listener parses in its association's thread, so one process
+#: uses one core, and the dose reports' parsing would otherwise leave the second core idle.
+CSTORE_NODES = 2
+_CALLING_AE = "DEMO_MODALITY"
+_CALLED_AE = "BEAMAUDIT"
+_NODE_TIMEOUT_S = 120.0
+
+
+def _node_context() -> (
+    multiprocessing.context.SpawnContext | multiprocessing.context.ForkServerContext
+):
+    """A fork server (the listener processes inherit no database connection of this one)."""
+    if "forkserver" not in multiprocessing.get_all_start_methods():
+        return multiprocessing.get_context("spawn")
+    return multiprocessing.get_context("forkserver")
+
+
+def _listener_node(database_url: str, key: bytes, conn: Connection) -> None:
+    """One ingest node: ``beamaudit listen``'s handler on its own engine, in its own process.
+
+    Sends ``("port", n)`` once listening (or ``("error", text)``), then stores what arrives until
+    anything is received on ``conn``, then sends ``("ids", event ids it stored)``.
+    """
+    from beamaudit.api.pipeline import Pipeline
+    from beamaudit.api.receiving import make_store_handler
+    from beamaudit.api.store import make_engine, make_session_factory
+    from beamaudit.ingest.listener import ListenerConfig, start_listener
+    from beamaudit.ingest.pseudonym import Pseudonymiser
+
+    try:
+        engine = make_engine(database_url)
+        received: list[int] = []
+        handler = make_store_handler(
+            Pipeline(make_session_factory(engine)),
+            Pseudonymiser(key),
+            after_store=received.extend,
+        )
+        listener = start_listener(ListenerConfig(ae_title=_CALLED_AE, port=0), handler)
+    except Exception as exc:  # told to the demo, which ends with one line
+        conn.send(("error", f"{type(exc).__name__}: {exc}"))
+        return
+    with listener:
+        conn.send(("port", listener.port))
+        conn.recv()
+    engine.dispose()
+    conn.send(("ids", received))
+
+
+class _Nodes:
+    """Listener processes on free loopback ports; :meth:`stop` returns the stored event ids."""
+
+    def __init__(self, database_url: str, key: bytes, count: int) -> None:
+        context = _node_context()
+        self._procs: list[tuple[BaseProcess, Connection]] = []
+        self.ports: list[int] = []
+        try:
+            for _ in range(count):
+                ours, theirs = context.Pipe()
+                proc = context.Process(
+                    target=_listener_node, args=(database_url, key, theirs), daemon=True
+                )
+                proc.start()
+                theirs.close()
+                self._procs.append((proc, ours))
+            for _, conn in self._procs:
+                self.ports.append(int(self._answer(conn, "port")))
+        except BaseException:
+            self.close()
+            raise
+
+    @staticmethod
+    def _answer(conn: Connection, kind: str) -> Any:
+        if not conn.poll(_NODE_TIMEOUT_S):
+            raise DemoError(f"the demo's listener process gave no answer in {_NODE_TIMEOUT_S:g} s")
+        try:
+            got, value = conn.recv()
+        except EOFError:
+            raise DemoError("the demo's listener process ended unexpectedly") from None
+        if got != kind:
+            raise DemoError(f"the demo's listener process failed: {value}")
+        return value
+
+    def stop(self) -> list[int]:
+        ids: list[int] = []
+        try:
+            for _, conn in self._procs:
+                conn.send("stop")
+            for proc, conn in self._procs:
+                ids.extend(self._answer(conn, "ids"))
+                proc.join(_NODE_TIMEOUT_S)
+        finally:
+            self.close()
+        return ids
+
+    def close(self) -> None:
+        """End every listener process still running (after a failure)."""
+        for proc, conn in self._procs:
+            if proc.is_alive():
+                proc.terminate()
+                proc.join(10)
+            conn.close()
+
+
+@contextmanager
+def _files_sent_undecoded() -> Iterator[None]:
+    """Have pynetdicom send a file's data set as its bytes are (as a modality sends what it has
+    stored), not decoded into a pydicom Dataset and encoded again: for a dose report of a few
+    hundred content items that costs more than the listener's work. The flag is process-wide in
+    pynetdicom; it is put back afterwards."""
+    from pynetdicom import _config
+
+    before = _config.STORE_SEND_CHUNKED_DATASET
+    _config.STORE_SEND_CHUNKED_DATASET = True
+    try:
+        yield
+    finally:
+        _config.STORE_SEND_CHUNKED_DATASET = before
+
+
+def _send_cstore(files: list[Path], port: int, sop_classes: list[str]) -> Counter[str]:
+    """Send ``files`` (Explicit VR Little Endian Part 10 files) on one association."""
+    from pydicom.uid import ExplicitVRLittleEndian
     from pynetdicom import AE
 
-    files = sorted(p for p in folder.rglob("*") if p.is_file())
-    datasets = [dcmread(p) for p in files]
-    ae = AE(ae_title="DEMO_MODALITY")
-    for uid in sorted({str(ds.SOPClassUID) for ds in datasets}):
-        ae.add_requested_context(uid)
     counts: Counter[str] = Counter()
-    assoc = ae.associate("127.0.0.1", port, ae_title="BEAMAUDIT")
+    if not files:
+        return counts
+    ae = AE(ae_title=_CALLING_AE)
+    for uid in sop_classes:
+        ae.add_requested_context(uid, [ExplicitVRLittleEndian])
+    assoc = ae.associate("127.0.0.1", port, ae_title=_CALLED_AE)
     if not assoc.is_established:
-        raise RuntimeError("the demo could not open an association with its own listener")
+        raise DemoError("the demo could not open an association with its own listener")
     try:
-        for ds in datasets:
-            status = assoc.send_c_store(ds)
+        # a request goes out as several writes (command, then data set): without TCP_NODELAY
+        # Nagle's algorithm holds the data set until the peer's delayed ACK (about 40 ms each)
+        sock = getattr(getattr(assoc.dul, "socket", None), "socket", None)
+        if sock is not None:
+            sock.setsockopt(socket.IPPROTO_TCP, socket.TCP_NODELAY, 1)
+        for path in files:
+            status = assoc.send_c_store(path)
             code = int(getattr(status, "Status", 0xFFFF))
             counts["success" if code == 0 else "failure"] += 1
     finally:
         assoc.release()
-    return dict(counts)
+    return counts
+
+
+def _send_all(files: list[Path], ports: list[int], sop_classes: list[str]) -> Counter[str]:
+    """Deal ``files`` over one association per port, all sending at once."""
+    streams = [files[i :: len(ports)] for i in range(len(ports))]
+    counts: Counter[str] = Counter()
+    with _files_sent_undecoded(), ThreadPoolExecutor(max_workers=len(ports)) as pool:
+        for c in pool.map(_send_cstore, streams, ports, [sop_classes] * len(ports)):
+            counts.update(c)
+    return counts
+
+
+def _database_url(sessions: sessionmaker[Session]) -> str | None:
+    """The URL another process can open the demo database with (None: an in-memory one)."""
+    bind = sessions.kw.get("bind")
+    url = getattr(bind, "url", None)
+    if url is None or (
+        url.get_backend_name() == "sqlite" and url.database in (None, "", ":memory:")
+    ):
+        return None
+    return str(url.render_as_string(hide_password=False))
 
 
 def run_demo(
@@ -166,8 +344,14 @@ def run_demo(
     key: bytes,
     end_month: str | None = None,
     workers: int = 2,
+    cstore_nodes: int = CSTORE_NODES,
 ) -> DemoOutcome:
-    """Generate, ingest through the real paths, import levels, review every month."""
+    """Generate, ingest through the real paths, import levels, review every month.
+
+    ``workers`` parser processes read the folder rooms; the C-STORE rooms go to
+    ``cstore_nodes`` listener processes on the same database (0, or an in-memory database: one
+    listener in this process). ``DemoOutcome.timings`` has the seconds of every phase.
+    """
     from beamaudit.api.demo.generate import generate_scenario
     from beamaudit.api.pipeline import Pipeline
     from beamaudit.api.postprocess import process_new_events
@@ -183,37 +367,59 @@ def run_demo(
     from beamaudit.ingest.listener import ListenerConfig, start_listener
     from beamaudit.ingest.pseudonym import Pseudonymiser
 
+    timings: dict[str, float] = {}
+    phase = _phase_timer(timings)
     dicom = output / "dicom"
-    generate_scenario(dicom, months=months, seed=seed, end_month=end_month)
-    manifest = json.loads((dicom / "manifest.json").read_text(encoding="utf-8"))
-    outcome = DemoOutcome(manifest=manifest)
-    _setup_rooms(sessions, manifest)
-    with sessions.begin() as session:
-        ensure_catalogue(session, actor="demo")
-        store_level_sets(
-            session, [*load_national_levels(), *load_demo_local_levels()], actor="demo"
-        )
+    with phase("generate"):
+        generate_scenario(dicom, months=months, seed=seed, end_month=end_month)
+        manifest = json.loads((dicom / "manifest.json").read_text(encoding="utf-8"))
+    outcome = DemoOutcome(manifest=manifest, timings=timings)
+    with phase("setup"):
+        _setup_rooms(sessions, manifest)
+        with sessions.begin() as session:
+            ensure_catalogue(session, actor="demo")
+            store_level_sets(
+                session, [*load_national_levels(), *load_demo_local_levels()], actor="demo"
+            )
     pipeline = Pipeline(sessions)
     folders = [dicom / r["path"] for r in manifest["rooms"] if r["delivery"] == "folder"]
-    summary = scan_paths([*folders, dicom / "broken"], pipeline=pipeline, key=key, workers=workers)
+    with phase("scan"):
+        summary = scan_paths(
+            [*folders, dicom / "broken"], pipeline=pipeline, key=key, workers=workers
+        )
     outcome.scan = summary.as_dict()
-    received: list[int] = []  # reconstructed in one batch after the sends
-    handler = make_store_handler(pipeline, Pseudonymiser(key), after_store=received.extend)
-    with start_listener(ListenerConfig(port=0), handler) as listener:
-        for r in manifest["rooms"]:
-            if r["delivery"] == "cstore":
-                for k, v in _send_cstore(dicom / r["path"], listener.port).items():
-                    outcome.cstore[k] = outcome.cstore.get(k, 0) + v
-    process_new_events(sessions, [*summary.stored_event_ids, *received])
+    cstore_rooms = [r for r in manifest["rooms"] if r["delivery"] == "cstore"]
+    files = [p for r in cstore_rooms for p in sorted((dicom / r["path"]).rglob("*")) if p.is_file()]
+    sop_classes = sorted({uid for r in cstore_rooms for uid in r["sop_classes"]})
+    url = _database_url(sessions) if cstore_nodes > 0 else None
+    with phase("cstore"):
+        # the listeners' stored events are reconstructed in one batch after the sends
+        if url is not None:
+            nodes = _Nodes(url, key, cstore_nodes)
+            try:
+                counts = _send_all(files, nodes.ports, sop_classes)
+            except BaseException:
+                nodes.close()
+                raise
+            received = nodes.stop()
+        else:  # an in-memory database: one listener in this process
+            received = []
+            handler = make_store_handler(pipeline, Pseudonymiser(key), after_store=received.extend)
+            with start_listener(ListenerConfig(ae_title=_CALLED_AE, port=0), handler) as listener:
+                counts = _send_all(files, [listener.port], sop_classes)
+    outcome.cstore = dict(counts)
+    with phase("postprocess"):
+        process_new_events(sessions, [*summary.stored_event_ids, *received])
     params = manifest.get("review_parameters") or {}
     known = set(ReviewParameters.__dataclass_fields__)
     overrides: dict[str, Any] = {
         k: (tuple(v) if isinstance(v, list) else v) for k, v in params.items() if k in known
     }
-    for month in manifest["months"]:
-        p = ReviewParameters(period=Period.parse(month), **overrides)
-        outcome.run_ids[month] = run_review(sessions, p, kind="monthly", actor="demo")
-    with sessions() as session:
+    with phase("reviews"):
+        for month in manifest["months"]:
+            p = ReviewParameters(period=Period.parse(month), **overrides)
+            outcome.run_ids[month] = run_review(sessions, p, kind="monthly", actor="demo")
+    with phase("collect"), sessions() as session:
         for month, run_id in outcome.run_ids.items():
             run = session.get(m.ReviewRun, run_id)
             for f in (run.result or {}).get("flags", []) if run else []:

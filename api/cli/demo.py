@@ -61,8 +61,10 @@ def demo_command(
         )
     except DemoError as exc:
         fail(str(exc))
+    t_summary = time.perf_counter()
     report = compare_with_plan(outcome)
     missed = [p for p in report["planted"] if not p["found"] and p.get("required", True)]
+    outcome.timings["compare"] = time.perf_counter() - t_summary
     elapsed = time.perf_counter() - t0
     if as_json:
         typer.echo(
@@ -70,6 +72,7 @@ def demo_command(
                 {
                     **report,
                     "elapsed_s": elapsed,
+                    "timings_s": {k: round(v, 2) for k, v in outcome.timings.items()},
                     "scan": outcome.scan,
                     "cstore": outcome.cstore,
                     "database": url,
@@ -132,6 +135,8 @@ def _print(outcome: Any, report: dict[str, Any], elapsed: float, db: Path) -> No
         "single exams.",
         highlight=False,
     )
+    phases = ", ".join(f"{k} {v:.1f}" for k, v in outcome.timings.items())
+    console.print(f"[dim]seconds per phase: {phases}[/dim]", highlight=False)
     console.print("[dim]All data are invented. Every dose figure is an estimate.[/dim]")
 
 
