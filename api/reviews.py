@@ -27,7 +27,19 @@ from typing import Any
 
 import numpy as np
 import pandas as pd
-from sqlalchemy import Table, bindparam, case, func, or_, select
+from sqlalchemy import (
+    Float,
+    String,
+    Table,
+    bindparam,
+    case,
+    cast,
+    func,
+    literal_column,
+    or_,
+    select,
+)
+from sqlalchemy.dialects.postgresql import ARRAY
 from sqlalchemy.orm import Session, sessionmaker
 
 from beamaudit import __version__
@@ -65,7 +77,7 @@ __all__ = [
 
 _E = m.ExposureEventRow
 #: Columns every event has (or mostly has), read for every event of the period.
-_DENSE_SELECT = (
+_DENSE_SELECT: tuple[Any, ...] = (
     _E.id.label("event_id"),
     _E.study_id,
     _E.room_id,
@@ -140,7 +152,7 @@ def _fetch(session: Session, stmt: Any, values: dict[str, Any]) -> np.ndarray:
     tuples would cost more than reading them).
     """
     conn = session.connection()
-    compiled = stmt.compile(dialect=conn.dialect)
+    compiled = stmt.compile(dialect=conn.dialect, compile_kwargs={"render_postcompile": True})
     values = {**compiled.params, **values}  # literals of the statement, then the caller's values
     args: Any = (
         tuple(values[k] for k in compiled.positiontup or ()) if compiled.positional else values
@@ -171,7 +183,11 @@ def _period_conditions(
     E = m.ExposureEventRow
     when = func.coalesce(E.event_datetime, E.study_datetime)
     sqlite = session.get_bind().dialect.name == "sqlite"
-    epoch = (func.julianday(when) - 2440587.5) * 86400.0 if sqlite else func.extract("epoch", when)
+    epoch = (
+        (func.julianday(when) - 2440587.5) * 86400.0
+        if sqlite
+        else cast(func.extract("epoch", when), Float)  # numeric would come as Decimal objects
+    )
     first_slices = (
         select(func.min(E.id))
         .where(E.acquisition_key.is_not(None), E.source_kind == "image_header")
@@ -192,6 +208,20 @@ def _period_conditions(
     else:
         values = {"t0": t0, "t1": t1}
     return conditions, epoch, values
+
+
+#: Ids per ``IN`` list (SQLite's default limit on parameters is 32766 since 3.32).
+_IDS_PER_QUERY = 5000
+
+
+def _positions(event_ids: np.ndarray, ids: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+    """Positions of ``ids`` in the sorted ``event_ids``, for those of ``ids`` found there."""
+    ids = ids.astype(np.int64)
+    if len(event_ids) == 0:
+        return np.zeros(0, dtype=np.int64), np.zeros(len(ids), dtype=bool)
+    at = np.minimum(np.searchsorted(event_ids, ids), len(event_ids) - 1)
+    found = event_ids[at] == ids
+    return at[found], found
 
 
 def _names_column(ids: np.ndarray, names: dict[int, str], missing: str) -> pd.Categorical:
@@ -220,6 +250,105 @@ def _text_categorical(values: np.ndarray) -> pd.Categorical:
     return pd.Categorical(pd.Series(values, dtype=object))
 
 
+def _dense_by_rows(
+    session: Session, conditions: list[Any], epoch: Any, values: dict[str, Any]
+) -> dict[str, Any]:
+    """The dense columns from the rows of a plain query (any backend)."""
+    rows = _fetch(
+        session, select(*_DENSE_SELECT, epoch.label("epoch_s")).where(*conditions), values
+    )
+    names = [c.key for c in _DENSE_SELECT]
+    out: dict[str, Any] = {"event_id": rows[:, 0].astype(np.int64)}
+    for offset, name in enumerate(names[1:], start=1):
+        if name in ("modality", "exam_type"):
+            out[name] = _text_categorical(rows[:, offset])
+        else:
+            out[name] = rows[:, offset].astype(np.float64)
+    out["epoch_s"] = rows[:, len(names)].astype(np.float64)
+    return out
+
+
+_COPY_SIGNATURE = b"PGCOPY\n\xff\r\n\x00"
+
+
+def _dense_by_copy(
+    session: Session, conditions: list[Any], epoch: Any, values: dict[str, Any]
+) -> dict[str, Any] | None:
+    """The dense columns by one binary ``COPY`` (PostgreSQL), parsed as a NumPy record array.
+
+    Every column goes as ``float8`` (ids are far below 2**53, so exactly), NULL as NaN, and the
+    two text columns as positions in the lists of the period's distinct values, so that every
+    row has the same width and the whole result is one ``frombuffer``: no Python object per
+    value. None when a row is not as expected (a text value that was not in the lists because it
+    was committed in between): then the rows are read the plain way.
+    """
+    E = m.ExposureEventRow
+    pairs = session.execute(
+        select(E.modality, E.exam_type).where(*conditions).distinct(), values
+    ).all()
+    lists = {
+        "modality": sorted({p[0] for p in pairs if p[0] is not None}),
+        "exam_type": sorted({p[1] for p in pairs if p[1] is not None}),
+    }
+    nan: Any = literal_column("'NaN'::float8")
+
+    def number(column: Any) -> Any:
+        return func.coalesce(cast(column, Float), nan)
+
+    def position(column: Any, name: str) -> Any:  # 1-based; NaN for NULL, -1 if not listed
+        found = func.array_position(bindparam(f"{name}_list", type_=ARRAY(String)), column)
+        return func.coalesce(cast(found, Float), case((column.is_(None), nan), else_=-1.0))
+
+    selected = [position(c, c.key) if c.key in lists else number(c) for c in _DENSE_SELECT] + [
+        number(epoch)
+    ]
+    stmt = select(*selected).where(*conditions)
+    conn = session.connection()
+    compiled = stmt.compile(dialect=conn.dialect, compile_kwargs={"render_postcompile": True})
+    params = {**compiled.params, **values, **{f"{k}_list": v for k, v in lists.items()}}
+    dbapi_connection = conn.connection.dbapi_connection
+    assert dbapi_connection is not None
+    buffer = bytearray()
+    query = f"COPY ({compiled}) TO STDOUT (FORMAT BINARY)"
+    cursor: Any = dbapi_connection.cursor()  # psycopg's, which can COPY
+    with cursor, cursor.copy(query, params) as copy:
+        for block in copy:
+            buffer += block
+    width = len(selected)
+    # binary COPY: signature, flags (int32), header extension length (int32) and extension;
+    # per row the field count (int16), then per field its length (int32) and value; trailer -1
+    if buffer[:11] != _COPY_SIGNATURE:
+        return None
+    start = 19 + int.from_bytes(buffer[15:19], "big")
+    fields = [("n", ">i2")]
+    for j in range(width):
+        fields += [(f"length{j}", ">i4"), (f"value{j}", ">f8")]
+    row = np.dtype(fields)
+    body = memoryview(buffer)[start : len(buffer) - 2]
+    if len(body) % row.itemsize:
+        return None
+    table = np.frombuffer(body, dtype=row)
+    if not (table["n"] == width).all() or not all(
+        (table[f"length{j}"] == 8).all() for j in range(width)
+    ):
+        return None
+    column = [table[f"value{j}"].astype(np.float64) for j in range(width)]
+    out: dict[str, Any] = {"event_id": column[0].astype(np.int64)}
+    for j, c in enumerate(_DENSE_SELECT[1:], start=1):
+        if c.key in lists:
+            codes = column[j]
+            if (codes == -1).any():
+                return None
+            categories = pd.Index(lists[c.key], dtype=object)
+            out[c.key] = pd.Categorical.from_codes(
+                np.where(np.isnan(codes), -1, codes - 1).astype(np.int64), categories=categories
+            )
+        else:
+            out[c.key] = column[j]
+    out["epoch_s"] = column[width - 1]
+    return out
+
+
 def review_events(session: Session, *, start: date, end: date) -> pd.DataFrame:
     """The review core's events table for events in ``[start, end)`` (UTC dates), sorted by
     ``event_id``, with the key columns (``site``, ``room``, ``device``, ``modality``,
@@ -234,29 +363,30 @@ def review_events(session: Session, *, start: date, end: date) -> pd.DataFrame:
     """
     E = m.ExposureEventRow
     conditions, epoch, values = _period_conditions(session, start=start, end=end)
-    dense = _fetch(
-        session, select(*_DENSE_SELECT, epoch.label("epoch_s")).where(*conditions), values
-    )
-    event_ids = dense[:, 0].astype(np.int64)
+    dense = None
+    if session.get_bind().dialect.name == "postgresql":
+        dense = _dense_by_copy(session, conditions, epoch, values)
+    if dense is None:
+        dense = _dense_by_rows(session, conditions, epoch, values)
+    event_ids = dense["event_id"]
     if len(event_ids) > 1 and not (np.diff(event_ids) > 0).all():
         order = np.argsort(event_ids, kind="stable")
-        dense, event_ids = dense[order], event_ids[order]
+        dense = {k: v[order] for k, v in dense.items()}
+        event_ids = dense["event_id"]
     n = len(event_ids)
     rooms, devices = _names(session)
-    room_ids = dense[:, 2].astype(np.float64)
-    seconds = pd.Series(dense[:, 11].astype(np.float64))
+    room_ids = dense["room_id"]
     columns: dict[str, Any] = {
         "event_id": event_ids,
-        "study_uid": _study_column(dense[:, 1].astype(np.float64), event_ids),
-        "event_datetime": pd.to_datetime(seconds.round(3), unit="s", utc=True),
+        "study_uid": _study_column(dense["study_id"], event_ids),
+        "event_datetime": pd.to_datetime(pd.Series(dense["epoch_s"]).round(3), unit="s", utc=True),
         "site": _names_column(room_ids, {k: v[1] for k, v in rooms.items()}, "(no site)"),
         "room": _names_column(room_ids, {k: v[0] for k, v in rooms.items()}, "(no room)"),
-        "device": _names_column(dense[:, 3].astype(np.float64), devices, "(unknown device)"),
-        "modality": _text_categorical(dense[:, 4]),
-        "exam_type": _text_categorical(dense[:, 5]),
+        "device": _names_column(dense["device_id"], devices, "(unknown device)"),
+        "modality": dense["modality"],
+        "exam_type": dense["exam_type"],
+        **{name: dense[name] for name in _FLOAT_NAMES},
     }
-    for offset, name in enumerate(_FLOAT_NAMES):
-        columns[name] = dense[:, 6 + offset].astype(np.float64)
     del dense
     sparse = _fetch(
         session,
@@ -265,21 +395,23 @@ def review_events(session: Session, *, start: date, end: date) -> pd.DataFrame:
         ),
         values,
     )
-    at = np.searchsorted(event_ids, sparse[:, 0].astype(np.int64))
+    # (a later query may see events committed since the first: only those it read are kept)
+    at, found = _positions(event_ids, sparse[:, 0])
     for offset, (name, _) in enumerate(_SPARSE_COLUMNS):
         column = np.full(n, np.nan)
-        column[at] = sparse[:, 1 + offset].astype(np.float64)
+        column[at] = sparse[found, 1 + offset].astype(np.float64)
         columns[name] = column
-    text = _fetch(
-        session,
-        select(E.id, *(c for _, c in _TEXT_COLUMNS)).where(*conditions, E.exam_type.is_(None)),
-        values,
-    )
-    at = np.searchsorted(event_ids, text[:, 0].astype(np.int64))
-    for offset, (name, _) in enumerate(_TEXT_COLUMNS):
-        column = np.full(n, None, dtype=object)
-        column[at] = text[:, 1 + offset]
-        columns[name] = column
+    text_columns = {name: np.full(n, None, dtype=object) for name, _ in _TEXT_COLUMNS}
+    unmapped = event_ids[pd.isna(columns["exam_type"])]
+    for first in range(0, len(unmapped), _IDS_PER_QUERY):  # by id: exactly the events read
+        chunk = [int(i) for i in unmapped[first : first + _IDS_PER_QUERY]]
+        text = _fetch(
+            session, select(E.id, *(c for _, c in _TEXT_COLUMNS)).where(E.id.in_(chunk)), {}
+        )
+        at, found = _positions(event_ids, text[:, 0])
+        for offset, column in enumerate(text_columns.values()):
+            column[at] = text[found, 1 + offset]
+    columns.update(text_columns)
     return pd.DataFrame(columns)
 
 
