@@ -44,12 +44,13 @@ from collections.abc import Iterable
 from dataclasses import dataclass, field
 from typing import Any, Literal, cast
 
-from sqlalchemy import Table, bindparam, insert, select, update
+from sqlalchemy import Table, select, update
 from sqlalchemy.exc import IntegrityError
 from sqlalchemy.orm import Session, sessionmaker
 
 from beamaudit.api.store import models as m
 from beamaudit.api.store.base import utcnow
+from beamaudit.api.store.bulk import insert_rows, update_rows
 from beamaudit.ingest.errors import IngestError
 from beamaudit.ingest.events import AccumulatedDose, ExposureEvent, ParseResult
 
@@ -112,9 +113,14 @@ def result_fingerprint(result: ParseResult) -> str:
     dicts, as :meth:`ExposureEvent.as_dict` gives them) followed by the
     accumulations' reprs; built without copying the events.
     """
+    return content_hash(_fingerprint_text(result).encode("utf-8"))
+
+
+def _fingerprint_text(result: ParseResult) -> str:
+    """The JSON text that :func:`result_fingerprint` hashes."""
     payload: list[dict[str, Any]] = [_event_payload(e) for e in result.events]
     payload.append({"accumulated": [repr(a) for a in result.accumulated]})
-    return content_hash(json.dumps(payload, sort_keys=True, default=str).encode("utf-8"))
+    return json.dumps(payload, sort_keys=True, default=str)
 
 
 _FINGERPRINT_SKIP = frozenset({"provenance", "notes"})
@@ -166,11 +172,41 @@ def prepare(result: ParseResult) -> str:
     computes :func:`result_fingerprint`. Parser processes call it, so the
     storing process only writes.
     """
-    _make_printable(result)
-    return result_fingerprint(result)
+    text = _fingerprint_text(result)
+    if _ESCAPED_CONTROL.search(text) or _CONTROL.search(_unfingerprinted_text(result)):
+        _make_printable(result)  # rare: walk every field, then fingerprint what is stored
+        text = _fingerprint_text(result)
+    return content_hash(text.encode("utf-8"))
 
 
 _CONTROL = re.compile(r"[\x00-\x08\x0b\x0c\x0e-\x1f\x7f]")  # C0 controls but TAB, LF, CR
+
+#: the same characters as the fingerprint's JSON writes them: ``\b``, ``\f`` and ``\u00XX``
+#: escapes of the event fields' text, and ``\xXX`` escapes (backslash doubled by JSON) inside
+#: the accumulations' reprs. A text that merely contains such a sequence (a literal backslash
+#: before ``b``, say) takes the slow path too, which is harmless.
+_ESCAPED_CONTROL = re.compile(
+    r"\\[bf]|\\u00(?:0[0-8bcef]|1[0-9a-f]|7f)|\\\\x(?:0[0-8bcef]|1[0-9a-f]|7f)"
+)
+
+
+def _unfingerprinted_text(result: ParseResult) -> str:
+    """Every text of ``result`` the fingerprint leaves out, joined (for the control check)."""
+    source = result.source
+    parts: list[str] = [
+        source.sop_instance_uid,
+        source.sop_class_uid,
+        source.kind,
+        source.modality or "",
+        source.study_instance_uid or "",
+        source.series_instance_uid or "",
+        *result.warnings,
+    ]
+    for event in result.events:
+        parts.extend(event.provenance)
+        parts.extend(event.provenance.values())
+        parts.extend(event.notes)
+    return "\n".join(parts)
 
 
 def printable(text: str) -> str:
@@ -465,18 +501,17 @@ class _BatchWriter:
                     changed.add(uid)
         ids = {uid: row["id"] for uid, row in current.items()}
         if changed:
-            self.conn.execute(
-                update(t)
-                .where(t.c.id == bindparam("b_id"))
-                .values({n: bindparam(f"b_{n}") for n in (*_STUDY_FIELDS, "has_dose_report")}),
+            update_rows(
+                self.conn,
+                t,
                 [
-                    {"b_id": current[uid]["id"]}
-                    | {f"b_{n}": current[uid][n] for n in (*_STUDY_FIELDS, "has_dose_report")}
+                    {"id": current[uid]["id"]}
+                    | {n: current[uid][n] for n in (*_STUDY_FIELDS, "has_dose_report")}
                     for uid in sorted(changed)
                 ],
             )
         if new:
-            self.conn.execute(insert(t), list(new.values()))
+            insert_rows(self.conn, t, list(new.values()))
             ids.update(self._ids_by(t.c.study_instance_uid, list(new)))
         self.with_report = {uid for uid, row in (current | new).items() if row["has_dose_report"]}
         return ids
@@ -544,7 +579,7 @@ class _BatchWriter:
             }
             for r, received_from, sha256 in items
         ]
-        self.conn.execute(insert(so), source_rows)
+        insert_rows(self.conn, so, source_rows)
         by_uid = self._ids_by(
             so.c.sop_instance_uid, [str(r["sop_instance_uid"]) for r in source_rows]
         )
@@ -566,7 +601,7 @@ class _BatchWriter:
         event_ids: list[int] = []
         if event_rows:
             ev = _table(m.ExposureEventRow)
-            self.conn.execute(insert(ev), event_rows)
+            insert_rows(self.conn, ev, event_rows)
             found: dict[tuple[int, int], int] = {}
             for chunk in _chunks(source_ids):
                 for row in self.conn.execute(
@@ -577,7 +612,7 @@ class _BatchWriter:
                     found[(row.source_object_id, row.event_index)] = row.id
             event_ids = [found[(r["source_object_id"], r["event_index"])] for r in event_rows]
         if acc_rows:
-            self.conn.execute(insert(_table(m.AccumulatedDoseRow)), acc_rows)
+            insert_rows(self.conn, _table(m.AccumulatedDoseRow), acc_rows)
         for study_id in sorted({study_ids[uid] for uid in self.with_report if uid in study_ids}):
             _link(self.conn, study_id)
         per_item: list[list[int]] = [[] for _ in items]

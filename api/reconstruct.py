@@ -26,10 +26,11 @@ from collections.abc import Iterable, Sequence
 from dataclasses import dataclass
 from typing import Any, cast
 
-from sqlalchemy import Table, bindparam, select, update
+from sqlalchemy import Table, select, update
 from sqlalchemy.orm import Session, sessionmaker
 
 from beamaudit.api.store import models as m
+from beamaudit.api.store.bulk import update_rows
 
 __all__ = [
     "RECIPE_KIND",
@@ -386,14 +387,15 @@ def _reconstruct_chunk(
             if error is not None:
                 failed.append(_failure(event, error))
                 continue
-            values: dict[str, Any] = {col: _finite(arr[i]) for col, arr in columns.items()}
+            values: dict[str, Any] = {"recon_status": "ok"}
+            values.update((col, _finite(arr[i])) for col, arr in columns.items())
             dap = values["recon_dap_gy_cm2"]
             values["recon_calibrated"] = bool(bulk.calibrated[i])
             values["dap_ratio_reported_to_recon"] = (
                 event.dap_gy_cm2 / dap if event.dap_gy_cm2 and dap else None
             )
             values["recon_trail"] = recipes.get(event.room_id) or _recipe(None, None)
-            values["b_id"] = event.id
+            values["id"] = event.id
             done.append(values)
     cleared = {col: None for col in (*_FIGURE_COLUMNS, "recon_calibrated")} | {
         "dap_ratio_reported_to_recon": None,
@@ -404,21 +406,9 @@ def _reconstruct_chunk(
             session.execute(
                 update(ev).where(ev.c.id.in_(part)).values(recon_status=status, **cleared)
             )
-    if done:
-        names = [*_FIGURE_COLUMNS, "recon_calibrated", "dap_ratio_reported_to_recon", "recon_trail"]
-        session.execute(
-            update(ev)
-            .where(ev.c.id == bindparam("b_id"))
-            .values(recon_status="ok", **{n: bindparam(n) for n in names}),
-            done,
-        )
-    if failed:
-        session.execute(
-            update(ev)
-            .where(ev.c.id == bindparam("b_id"))
-            .values(recon_status="failed", notes=bindparam("b_notes"), **cleared),
-            failed,
-        )
+    conn = session.connection()
+    update_rows(conn, ev, done)
+    update_rows(conn, ev, [row | cleared for row in failed])
     summary.reconstructed += len(done)
     summary.no_technique += len(no_technique)
     summary.not_applicable += len(not_applicable)
@@ -426,7 +416,11 @@ def _reconstruct_chunk(
 
 
 def _failure(event: Any, error: Any) -> dict[str, Any]:
-    return {"b_id": event.id, "b_notes": [*(event.notes or []), f"reconstruction failed: {error}"]}
+    return {
+        "id": event.id,
+        "recon_status": "failed",
+        "notes": [*(event.notes or []), f"reconstruction failed: {error}"],
+    }
 
 
 def _finite(value: Any) -> float | None:

@@ -4,12 +4,26 @@ from __future__ import annotations
 
 from datetime import datetime
 
+import pytest
 from sqlalchemy import func, select
 
-from beamaudit.api.pipeline import Pipeline, content_hash, report_covers, result_fingerprint
+from beamaudit.api.pipeline import (
+    Pipeline,
+    _make_printable,
+    content_hash,
+    prepare,
+    report_covers,
+    result_fingerprint,
+)
 from beamaudit.api.store import models as m
 from beamaudit.ingest.errors import IngestError
-from beamaudit.ingest.events import ExposureEvent, FilterLayer, ParseResult, SourceObject
+from beamaudit.ingest.events import (
+    AccumulatedDose,
+    ExposureEvent,
+    FilterLayer,
+    ParseResult,
+    SourceObject,
+)
 
 STUDY = "1.2.826.0.1.3680043.8.498.1"
 
@@ -185,3 +199,80 @@ def test_fingerprint_is_the_documented_one_for_real_files() -> None:
     assert results
     for result in results:
         assert result_fingerprint(result) == _defined_fingerprint(result)
+
+
+# prepare() looks for control characters in the fingerprint's JSON and in the few texts the
+# fingerprint leaves out, and walks the whole object only when it finds one. Every C0 control
+# but TAB, LF and CR, and DEL (the set printable() replaces), in every kind of place a text sits,
+# must give what the full walk gives.
+_CONTROLS = [chr(c) for c in (*range(0x00, 0x09), 0x0B, 0x0C, *range(0x0E, 0x20), 0x7F)]
+
+
+def _place_protocol(r: ParseResult, c: str) -> None:
+    r.events[0].protocol_name = f"Chest{c}PA"
+
+
+def _place_filter(r: ParseResult, c: str) -> None:
+    r.events[0].filters = (FilterLayer(f"Al{c}", 2.5),)
+
+
+def _place_provenance_value(r: ParseResult, c: str) -> None:
+    r.events[0].provenance["kvp_kv"] = f"(0018,0060){c}"
+
+
+def _place_provenance_key(r: ParseResult, c: str) -> None:
+    r.events[0].provenance[f"k{c}"] = "(0018,0060)"
+
+
+def _place_note(r: ParseResult, c: str) -> None:
+    r.events[0].notes.append(f"note{c}")
+
+
+def _place_accumulated(r: ParseResult, c: str) -> None:
+    r.accumulated[0].acquisition_plane = f"single{c}"
+
+
+def _place_warning(r: ParseResult, c: str) -> None:
+    r.warnings.append(f"while reading: {c}")
+
+
+def _place_source(r: ParseResult, c: str) -> None:
+    r.source.modality = f"DX{c}"
+
+
+_PLACES = [
+    _place_protocol,
+    _place_filter,
+    _place_provenance_value,
+    _place_provenance_key,
+    _place_note,
+    _place_accumulated,
+    _place_warning,
+    _place_source,
+]
+
+
+def _with_accumulation() -> ParseResult:
+    result = _result("1.2.826.0.1.3680043.8.498.77")
+    result.accumulated.append(AccumulatedDose(sop_instance_uid="1.2.3", study_instance_uid=STUDY))
+    return result
+
+
+@pytest.mark.parametrize("place", _PLACES, ids=lambda f: f.__name__[7:])
+def test_prepare_finds_every_control_character_wherever_it_sits(place) -> None:
+    for char in _CONTROLS:
+        fast, slow = _with_accumulation(), _with_accumulation()
+        place(fast, char)
+        place(slow, char)
+        fingerprint = prepare(fast)
+        _make_printable(slow)
+        assert fast == slow, hex(ord(char))
+        assert fingerprint == result_fingerprint(slow), hex(ord(char))
+
+
+def test_prepare_leaves_clean_text_alone_and_fingerprints_it() -> None:
+    result = _with_accumulation()
+    result.events[0].protocol_name = "Chest\tPA\r\n \\b \\u0001 Ünïcode"  # allowed, or look-alikes
+    expected = result_fingerprint(result)
+    assert prepare(result) == expected
+    assert result.events[0].protocol_name == "Chest\tPA\r\n \\b \\u0001 Ünïcode"
