@@ -200,12 +200,25 @@ class ResolvedGeometry:
         return merged.assumptions
 
 
+#: the largest and the smallest distance (mm), area (cm2) or factor a geometry input may carry:
+#: far beyond any x-ray room (a SID of 1e9 mm is 1000 km, 1e-9 mm a thousandth of a micron),
+#: and far enough inside the floating-point range that the squares, ratios and products of the
+#: rules above stay finite
+INPUT_CEILING = 1e9
+INPUT_FLOOR = 1e-9
+
+
 def _positive(name: str, value: float | None) -> float | None:
     if value is None:
         return None
     number = float(value)
     if not (math.isfinite(number) and number > 0):
         raise ModelError(f"{name} must be a positive finite number, not {value!r}")
+    if not INPUT_FLOOR <= number <= INPUT_CEILING:
+        raise ModelError(
+            f"{name} {number:g} is beyond any x-ray geometry "
+            f"(from {INPUT_FLOOR:g} to {INPUT_CEILING:g})"
+        )
     return number
 
 
@@ -409,8 +422,11 @@ class _Resolver:
         """Patient exit surface to image receptor: the room's, else the receptor default."""
         room_gap = self.g.table_to_detector_gap_mm
         if room_gap is not None:
-            if not (math.isfinite(room_gap) and room_gap >= 0):
-                raise ModelError(f"table_to_detector_gap_mm must be >= 0, not {room_gap!r}")
+            if not (math.isfinite(room_gap) and 0 <= room_gap <= INPUT_CEILING):
+                raise ModelError(
+                    f"table_to_detector_gap_mm must be >= 0 and at most {INPUT_CEILING:g}, "
+                    f"not {room_gap!r}"
+                )
             u = self.recorded_rel * float(room_gap)
             trail.add(
                 "table_to_detector_gap_mm",

@@ -122,7 +122,12 @@ def _print(outcome: Any, report: dict[str, Any], elapsed: float, db: Path) -> No
     )
     console.print("\nplanted findings:")
     for p in report["planted"]:
-        mark = "[green]found[/green]" if p["found"] else "[red]NOT FOUND[/red]"
+        if p["found"]:
+            mark = "[green]found[/green]"
+        elif p["required"]:
+            mark = "[red]NOT FOUND[/red]"
+        else:  # a consequence the review may or may not surface (see the demo's README)
+            mark = "[dim]not seen (may fire)[/dim]"
         console.print(f"  {mark}  {p['plant']} ({p['kind']})", highlight=False)
         if p["by"]:
             console.print(f"         {p['by'][0][:160]}", markup=False, highlight=False)

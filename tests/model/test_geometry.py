@@ -334,20 +334,29 @@ SPACING_MM = (0.15, 0.15)
             GeometryInputs(sid_mm=900.0, table_to_detector_gap_mm=-1.0),
             "table_to_detector_gap_mm must be >= 0",
         ),
-        # numbers the why trail refuses (JSON cannot carry them): refused without a trail too
+        # inputs far outside any x-ray geometry, whose squares and ratios would overflow
+        # (once an OverflowError in the FSD's uncertainty): refused with and without a trail
         (
             GeometryInputs(sid_mm=1000.0, field_width_mm=1e200, field_height_mm=1e200),
-            "why trail: field_area_cm2 is inf, which cannot be recorded",
+            "field_width_mm 1e+200 is beyond any x-ray geometry (from 1e-09 to 1e+09)",
         ),
         (
             GeometryInputs(
                 source_to_entrance_mm=800.0, field_area_cm2=1e300, field_area_plane_mm=1e-9
             ),
-            "why trail: entrance_field_area_cm2 is inf, which cannot be recorded",
+            "field_area_cm2 1e+300 is beyond any x-ray geometry",
         ),
         (
-            GeometryInputs(detector_dimensions_mm=(1e200, 1e200)),
-            "why trail: field_area_cm2 is inf",
+            GeometryInputs(
+                source_to_entrance_mm=800.0, field_area_cm2=100.0, field_area_plane_mm=1e-300
+            ),
+            "field_area_plane_mm 1e-300 is beyond any x-ray geometry",
+        ),
+        (GeometryInputs(detector_dimensions_mm=(1e200, 1e200)), "detector width 1e+200 is beyond"),
+        (GeometryInputs(sid_mm=1e308, body_part_thickness_mm=220.0), "sid_mm 1e+308 is beyond"),
+        (
+            GeometryInputs(sid_mm=1800.0, table_to_detector_gap_mm=1e300),
+            "table_to_detector_gap_mm must be >= 0 and at most 1e+09",
         ),
         (
             GeometryInputs(
