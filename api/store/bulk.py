@@ -6,7 +6,7 @@ which on SQLite costs more than the insert itself. On SQLite these helpers build
 once, convert every value with the very bind processor SQLAlchemy would use for its column
 (``TypeEngine.dialect_impl(dialect).bind_processor(dialect)``: UTC timestamps, JSON, booleans
 exactly as the ORM writes them) and hand the tuples to the driver's ``executemany``. Rows that
-need anything more (a column default SQLAlchemy fills in, rows with different keys) and other
+need anything more (a column default SQLAlchemy fills in) and other
 databases go through Core unchanged; PostgreSQL keeps SQLAlchemy's multi-row ``VALUES``.
 """
 
@@ -24,7 +24,11 @@ _Processor = Callable[[Any], Any] | None
 
 
 def insert_rows(conn: Connection, table: Table, rows: Sequence[dict[str, Any]]) -> None:
-    """``INSERT`` every row of ``rows`` (dicts of column name to value) into ``table``."""
+    """``INSERT`` every row of ``rows`` into ``table``.
+
+    ``rows`` are dicts of column name to value, all with the same keys (as Core's executemany
+    requires).
+    """
     if not rows:
         return
     names = list(rows[0])
