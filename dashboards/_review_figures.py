@@ -185,12 +185,17 @@ def build_overview_heatmap(
             **common,
         )
     )
+    # crowded: each label on one line, steeply slanted, so that neighbours never overlap
+    labels = [v.replace("<br>", " · ") for v in x_values] if crowded else x_values
     fig.update_xaxes(
         categoryorder="array",
         categoryarray=x_values,
+        tickvals=x_values,
+        ticktext=labels,
         showgrid=False,
         ticks="",
-        tickangle=-40 if crowded else 0,
+        tickangle=-60 if crowded else 0,
+        tickfont={"size": 11} if crowded else None,
     )
     fig.update_yaxes(categoryorder="array", categoryarray=y_values, showgrid=False, ticks="")
     fig.update_layout(
