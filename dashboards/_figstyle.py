@@ -12,7 +12,18 @@ import plotly.graph_objects as go
 
 from beamaudit.dashboards.wording import OKABE_ITO
 
-__all__ = ["FONT", "GRID", "HEIGHT_PX", "INK", "PAPER", "fmt", "no_data", "series", "style"]
+__all__ = [
+    "FONT",
+    "GRID",
+    "HEIGHT_PX",
+    "INK",
+    "PAPER",
+    "fmt",
+    "legend_below_when_long",
+    "no_data",
+    "series",
+    "style",
+]
 
 HEIGHT_PX = 420
 INK = "#1d2a33"
@@ -69,6 +80,24 @@ def style(
     fig.update_xaxes(title={"text": x_title}, **axis)
     fig.update_yaxes(title={"text": y_title}, **axis)
     return fig
+
+
+#: above this many legend entries a legend goes below the plot (above, it covers the title)
+_LEGEND_ABOVE_MAX = 4
+_LEGEND_ROW_PX = 22
+
+
+def legend_below_when_long(fig: go.Figure) -> None:
+    """Move a long legend of a :func:`style`-d figure under the x axis, and make the figure
+    taller by its rows (about three entries to a row in a half-width card)."""
+    entries = sum(1 for trace in fig.data if trace.showlegend is not False)
+    if entries <= _LEGEND_ABOVE_MAX:
+        return
+    fig.update_layout(
+        legend={"orientation": "h", "yanchor": "top", "y": -0.22, "x": 0.0},
+        margin={"t": 56},
+        height=HEIGHT_PX + math.ceil(entries / 3) * _LEGEND_ROW_PX,
+    )
 
 
 def no_data(fig: go.Figure, message: str) -> go.Figure:

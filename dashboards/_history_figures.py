@@ -7,7 +7,13 @@ import math
 import pandas as pd
 import plotly.graph_objects as go
 
-from beamaudit.dashboards._figstyle import HEIGHT_PX, INK, no_data, series, style
+from beamaudit.dashboards._figstyle import (
+    INK,
+    legend_below_when_long,
+    no_data,
+    series,
+    style,
+)
 from beamaudit.dashboards.errors import TableError
 from beamaudit.dashboards.tables import ROOM_HISTORY, TableLike
 from beamaudit.dashboards.wording import OKABE_ITO, quantity_short
@@ -114,7 +120,7 @@ def _room_history(
                 hovertemplate="Change detected in %{x|%b %Y}<br>%{customdata}<extra></extra>",
             )
         )
-    fig.update_xaxes(tickformat="%b %Y", dtick="M1" if rows["month"].nunique() <= 12 else "M3")
+    _month_axis(fig, rows["month"])
     medians = rows["median"].dropna()
     positive = medians[medians > 0]
     if log_y is None:
@@ -124,26 +130,13 @@ def _room_history(
     else:
         fig.update_yaxes(rangemode="tozero")
     fig.update_layout(showlegend=True)
-    _legend_below_when_long(fig)
+    legend_below_when_long(fig)
     return fig
 
 
-#: above this many legend entries the legend goes below the plot (it would cover the title)
-_LEGEND_ABOVE_MAX = 4
-_LEGEND_ROW_PX = 22
-
-
-def _legend_below_when_long(fig: go.Figure) -> None:
-    """Move a long legend under the x axis, and make the figure taller by its rows."""
-    entries = sum(1 for trace in fig.data if trace.showlegend is not False)
-    if entries <= _LEGEND_ABOVE_MAX:
-        return
-    rows = math.ceil(entries / 3)  # about three entries per row in a half-width card
-    fig.update_layout(
-        legend={"orientation": "h", "yanchor": "top", "y": -0.22, "x": 0.0},
-        margin={"t": 56},
-        height=HEIGHT_PX + rows * _LEGEND_ROW_PX,
-    )
+def _month_axis(fig: go.Figure, months: pd.Series) -> None:
+    """One tick per month (per quarter beyond a year), labelled "Nov 2026"."""
+    fig.update_xaxes(tickformat="%b %Y", dtick="M1" if months.nunique() <= 12 else "M3")
 
 
 def _log_ticks(values: pd.Series) -> list[float]:
@@ -296,5 +289,5 @@ def _dap_ratio_history(
             "font": {"size": 11},
         },
     )
-    fig.update_xaxes(tickformat="%b %Y", dtick="M1" if table["month"].nunique() <= 12 else "M3")
+    _month_axis(fig, table["month"])
     return fig

@@ -79,15 +79,14 @@ def _fast(
         return False
     if any(n not in table.c for n in names):
         return False
-    if defaults_needed:
-        given = set(names)
-        for column in table.columns:
-            if column.name in given or column.primary_key:
-                continue
-            if column.default is not None or column.onupdate is not None:
-                return False  # SQLAlchemy fills these in; let it
-    elif any(c.onupdate is not None for c in table.columns if c.name not in names):
-        return False
+    # columns left out that SQLAlchemy would fill in (on insert its defaults, on update its
+    # onupdate values): let it
+    given = set(names)
+    for column in table.columns:
+        if column.name in given or column.primary_key:
+            continue
+        if (column.default if defaults_needed else column.onupdate) is not None:
+            return False
     width = len(names)
     return all(len(row) == width and all(n in row for n in names) for row in rows)
 
