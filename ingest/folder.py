@@ -34,6 +34,7 @@ __all__ = [
     "classify",
     "iter_candidate_files",
     "scan",
+    "scan_file",
 ]
 
 Classification = Literal["dicom", "dicomdir", "not_dicom"]
@@ -169,13 +170,14 @@ def scan(
     visited in the deterministic order of :func:`iter_candidate_files`.
     """
     for path in iter_candidate_files(paths):
-        outcome = _scan_one(path, pseudonymiser)
+        outcome = scan_file(path, pseudonymiser)
         if summary is not None:
             summary.add(outcome)
         yield outcome
 
 
-def _scan_one(path: Path, pseudonymiser: Pseudonymiser) -> ScanOutcome:
+def scan_file(path: Path, pseudonymiser: Pseudonymiser) -> ScanOutcome:
+    """One file's :class:`ScanOutcome` (a file the walk of :func:`scan` found, or any path)."""
     source = str(path)
     try:
         fh = open(path, "rb")  # noqa: SIM115 - closed below

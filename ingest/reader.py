@@ -21,10 +21,13 @@ import zlib
 from typing import IO, Any
 
 from pydicom import dcmread
+from pydicom.dataelem import RawDataElement
 from pydicom.dataset import Dataset, FileMetaDataset
 from pydicom.errors import BytesLengthException, InvalidDicomError
 from pydicom.filereader import read_dataset as read_pydicom_dataset
+from pydicom.tag import BaseTag
 from pydicom.uid import AllTransferSyntaxes, ExplicitVRLittleEndian, ImplicitVRLittleEndian
+from pydicom.valuerep import EXPLICIT_VR_LENGTH_32
 
 from ._context import FieldSink, read_context
 from ._values import ValueReader
@@ -255,21 +258,18 @@ def _plausible_first_element(head: bytes) -> bool:
 
 
 def _meta_says_dicomdir(meta: bytes) -> bool:
-    """Scan an explicit-VR little-endian group 0002 for (0002,0002)."""
+    """Whether an explicit-VR little-endian group 0002 names the DICOMDIR class in (0002,0002)."""
     pos = 0
     while pos + 8 <= len(meta):
-        group = int.from_bytes(meta[pos : pos + 2], "little")
+        group, element, vr, length = _EXPLICIT_HEADER.unpack_from(meta, pos)
         if group != 0x0002:
             return False
-        element = int.from_bytes(meta[pos + 2 : pos + 4], "little")
-        vr = meta[pos + 4 : pos + 6]
-        if vr in (b"OB", b"OW", b"UN", b"UT", b"SQ", b"UC", b"UR", b"OV", b"OL"):
+        if vr in _LONG_VRS:
             if pos + 12 > len(meta):
                 return False
-            length = int.from_bytes(meta[pos + 8 : pos + 12], "little")
+            (length,) = _LONG_LENGTH.unpack_from(meta, pos + 8)
             start = pos + 12
         else:
-            length = int.from_bytes(meta[pos + 6 : pos + 8], "little")
             start = pos + 8
         if element == 0x0002:
             value = meta[start : start + length].rstrip(b"\x00 ")
@@ -307,7 +307,7 @@ def _check_complete(ds: Dataset, fh: IO[bytes], size: int | None) -> None:
                 f"{len(value)} of {length} bytes",
             )
         meta = getattr(ds, "file_meta", None)
-        deflated = meta is not None and meta.get("TransferSyntaxUID") == _DEFLATED
+        deflated = meta is not None and _raw_uid(meta.get_item(0x00020010)) == _DEFLATED
         # positions of a deflated object are in the inflated stream, not in the file
         if size is not None and value_tell is not None and not deflated:
             end = value_tell + length
@@ -352,7 +352,7 @@ def read_open_file(
     except (AttributeError, OSError, io.UnsupportedOperation):
         size = len(fh.getbuffer()) if isinstance(fh, io.BytesIO) else None
     try:
-        common = _read_common(fh, size) if has_preamble else None
+        common = _read_common(fh, head, size) if has_preamble else None
         if common is None:
             ds = dcmread(fh, stop_before_pixels=True, force=not has_preamble)
         else:
@@ -397,10 +397,6 @@ def _raw_uid(element: Any) -> str | None:
     return str(value).rstrip("\x00 ") if isinstance(value, str) else None
 
 
-def _not_meta(tag: int, vr: str | None, length: int) -> bool:
-    return tag >> 16 != 0x0002
-
-
 #: pydicom's own stop_before_pixels test: Pixel Data, Float and Double Float Pixel Data
 _PIXEL_TAGS = frozenset({0x7FE00010, 0x7FE00009, 0x7FE00008})
 
@@ -414,39 +410,44 @@ def _at_pixels(tag: int, vr: str | None, length: int) -> bool:
 _IN_MEMORY_BYTES = 1 << 20
 
 
-def _read_common(fh: IO[bytes], size: int | None) -> tuple[Dataset, IO[bytes]] | None:
+def _read_common(fh: IO[bytes], head: bytes, size: int | None) -> tuple[Dataset, IO[bytes]] | None:
     """The data set of a Part 10 file in the common case, read with pydicom's ``read_dataset``.
 
     ``dcmread`` reads the same elements with the same element parser, plus a command-set
     group, a second copy of the file meta and a ``FileDataset`` wrapper: about twice the work
     for a header. This path takes a file with preamble and "DICM", a well-formed explicit-VR
-    file meta group and a plain transfer syntax (:data:`_PLAIN_SYNTAXES`) whose data set
-    starts after group 0002 with a group above 0000; for anything else it returns ``None``
-    with the handle rewound, and the caller uses ``dcmread``, which then reads (or refuses)
-    the file as it always did. Pixel data is never read.
+    file meta group within ``head`` (the file's first bytes, already read) and a plain
+    transfer syntax (:data:`_PLAIN_SYNTAXES`) whose data set starts after group 0002 with a
+    group above 0000; for anything else it returns ``None`` with the handle rewound, and the
+    caller uses ``dcmread``, which then reads (or refuses) the file as it always did. Pixel
+    data is never read.
 
-    Returns the data set (its ``file_meta`` set) and the handle it was read from (positions
-    as in the file: a small file is read from a copy in memory).
+    Returns the data set (its ``file_meta`` set, from the same raw elements pydicom would
+    make) and the handle it was read from (positions as in the file: a small file is read
+    from a copy in memory).
     """
-    source = fh
-    if size is not None and size <= _IN_MEMORY_BYTES and not isinstance(fh, io.BytesIO):
+    found = _meta_elements(head, 132)
+    if found is None:
+        return None
+    elements, start = found
+    syntax = _raw_uid(elements.get(0x00020010))  # Transfer Syntax UID
+    if (
+        syntax not in _PLAIN_SYNTAXES
+        or start + 2 > len(head)
+        or head[start : start + 2]
+        == (
+            b"\x00\x00"  # a command group (0000,eeee): dcmread's business
+        )
+    ):
+        return None
+    source: IO[bytes]
+    if size is not None and size <= len(head):
+        source = io.BytesIO(head)
+    elif size is not None and size <= _IN_MEMORY_BYTES and not isinstance(fh, io.BytesIO):
         fh.seek(0)
         source = io.BytesIO(fh.read())
-    source.seek(132)
-    try:
-        meta = FileMetaDataset(
-            read_pydicom_dataset(
-                source, is_implicit_VR=False, is_little_endian=True, stop_when=_not_meta
-            )
-        )
-        syntax = _raw_uid(meta.get_item(0x00020010))  # Transfer Syntax UID
-        start = source.tell()
-        first = source.read(2)
-    except Exception:  # any doubt about the meta group: dcmread reads it, or refuses it
-        syntax, first = None, b""
-    if syntax not in _PLAIN_SYNTAXES or len(first) < 2 or first == b"\x00\x00":
-        fh.seek(0)
-        return None
+    else:
+        source = fh
     source.seek(start)
     ds = read_pydicom_dataset(
         source,
@@ -454,8 +455,53 @@ def _read_common(fh: IO[bytes], size: int | None) -> tuple[Dataset, IO[bytes]] |
         is_little_endian=True,
         stop_when=_at_pixels,
     )
-    ds.file_meta = meta
+    ds.file_meta = FileMetaDataset(elements)
     return ds, source
+
+
+#: explicit-VR value representations whose length takes 4 bytes after 2 reserved (PS3.5 7.1.2)
+_LONG_VRS = frozenset(v.encode("ascii") for v in EXPLICIT_VR_LENGTH_32)
+
+
+def _meta_elements(data: bytes, offset: int) -> tuple[dict[BaseTag, RawDataElement], int] | None:
+    """The explicit-VR little-endian group 0002 starting at ``offset`` of ``data``.
+
+    Returns its elements as pydicom's raw elements (what ``read_dataset`` makes of them) and
+    the offset just past the group, or ``None`` when the group is not plainly readable within
+    ``data``: an unknown VR (an implicit-VR meta group, say), an undefined length, a value
+    running past the end of ``data``, no element at all.
+    """
+    elements: dict[BaseTag, RawDataElement] = {}
+    pos = offset
+    end = len(data)
+    while pos + 8 <= end:
+        group, element, vr, length = _EXPLICIT_HEADER.unpack_from(data, pos)
+        if group != 0x0002:
+            break
+        if vr not in _VRS:
+            return None
+        if vr in _LONG_VRS:
+            if pos + 12 > end:
+                return None
+            (length,) = _LONG_LENGTH.unpack_from(data, pos + 8)
+            value_at = pos + 12
+        else:
+            value_at = pos + 8
+        if length == 0xFFFFFFFF or value_at + length > end:
+            return None
+        tag = BaseTag(0x00020000 | element)
+        elements[tag] = RawDataElement(
+            tag, vr.decode("ascii"), length, data[value_at : value_at + length], value_at,
+            False, True,
+        )  # fmt: skip
+        pos = value_at + length
+    if not elements or pos + 8 > end:
+        return None
+    return elements, pos
+
+
+_EXPLICIT_HEADER = struct.Struct("<HH2sH")
+_LONG_LENGTH = struct.Struct("<L")
 
 
 def _decode_guard(ds: Dataset, pseudonymiser: Pseudonymiser, source: str) -> ParseResult:

@@ -37,7 +37,7 @@ _SHIPPED = sorted(
 def _outcome(data: bytes, *, common: bool, monkeypatch: pytest.MonkeyPatch) -> object:
     with monkeypatch.context() as patch:
         if not common:
-            patch.setattr(reader, "_read_common", lambda fh, size: None)
+            patch.setattr(reader, "_read_common", lambda fh, head, size: None)
         with warnings.catch_warnings(record=True) as caught:
             warnings.simplefilter("always")
             try:
@@ -86,8 +86,8 @@ def test_plain_files_take_the_common_path(monkeypatch: pytest.MonkeyPatch) -> No
     seen: list[object] = []
     original = reader._read_common
 
-    def spy(fh: object, size: int | None) -> object:
-        out = original(fh, size)  # type: ignore[arg-type]
+    def spy(fh: object, head: bytes, size: int | None) -> object:
+        out = original(fh, head, size)  # type: ignore[arg-type]
         seen.append(out)
         return out
 
@@ -96,3 +96,15 @@ def test_plain_files_take_the_common_path(monkeypatch: pytest.MonkeyPatch) -> No
         io.BytesIO(encode(dx_header("plain"))), pseudonymiser=PSEUDONYMISER, source="x"
     )
     assert seen and seen[0] is not None
+
+
+@pytest.mark.parametrize("path", _SHIPPED, ids=lambda p: p.name)
+def test_file_meta_is_the_one_dcmread_reads(path: Path) -> None:
+    # the common path takes the file meta group from the file's first bytes itself
+    data = path.read_bytes()[: 1 << 20]
+    common = reader._read_common(io.BytesIO(data), data[: reader.HEAD_BYTES], len(data))
+    if common is None:
+        return  # not a plain Part 10 file: dcmread reads it (test_shipped_files_read_alike)
+    ours = common[0].file_meta
+    theirs = pydicom.dcmread(io.BytesIO(data), stop_before_pixels=True).file_meta
+    assert [(e.tag, e.VR, e.value) for e in ours] == [(e.tag, e.VR, e.value) for e in theirs]
