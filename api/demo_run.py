@@ -190,6 +190,7 @@ def _listener_node(database_url: str, key: bytes, conn: Connection) -> None:
     anything is received on ``conn``, then sends ``("ids", event ids it stored)``.
     """
     from beamaudit.api.pipeline import Pipeline
+    from beamaudit.api.postprocess import Completion
     from beamaudit.api.receiving import make_store_handler
     from beamaudit.api.store import make_engine, make_session_factory
     from beamaudit.ingest.listener import ListenerConfig, start_listener
@@ -199,7 +200,7 @@ def _listener_node(database_url: str, key: bytes, conn: Connection) -> None:
         engine = make_engine(database_url)
         received: list[int] = []
         handler = make_store_handler(
-            Pipeline(make_session_factory(engine)),
+            Pipeline(make_session_factory(engine), completion=Completion()),
             Pseudonymiser(key),
             after_store=received.extend,
         )
@@ -354,7 +355,7 @@ def run_demo(
     """
     from beamaudit.api.demo.generate import generate_scenario
     from beamaudit.api.pipeline import Pipeline
-    from beamaudit.api.postprocess import process_new_events
+    from beamaudit.api.postprocess import Completion
     from beamaudit.api.receiving import make_store_handler
     from beamaudit.api.review import (
         Period,
@@ -381,7 +382,7 @@ def run_demo(
             store_level_sets(
                 session, [*load_national_levels(), *load_demo_local_levels()], actor="demo"
             )
-    pipeline = Pipeline(sessions)
+    pipeline = Pipeline(sessions, completion=Completion())  # exam types and figures stored too
     folders = [dicom / r["path"] for r in manifest["rooms"] if r["delivery"] == "folder"]
     with phase("scan"):
         summary = scan_paths(
@@ -393,7 +394,6 @@ def run_demo(
     sop_classes = sorted({uid for r in cstore_rooms for uid in r["sop_classes"]})
     url = _database_url(sessions) if cstore_nodes > 0 else None
     with phase("cstore"):
-        # the listeners' stored events are reconstructed in one batch after the sends
         if url is not None:
             nodes = _Nodes(url, key, cstore_nodes)
             try:
@@ -401,15 +401,12 @@ def run_demo(
             except BaseException:
                 nodes.close()
                 raise
-            received = nodes.stop()
+            nodes.stop()
         else:  # an in-memory database: one listener in this process
-            received = []
-            handler = make_store_handler(pipeline, Pseudonymiser(key), after_store=received.extend)
+            handler = make_store_handler(pipeline, Pseudonymiser(key))
             with start_listener(ListenerConfig(ae_title=_CALLED_AE, port=0), handler) as listener:
                 counts = _send_all(files, [listener.port], sop_classes)
     outcome.cstore = dict(counts)
-    with phase("postprocess"):
-        process_new_events(sessions, [*summary.stored_event_ids, *received])
     params = manifest.get("review_parameters") or {}
     known = set(ReviewParameters.__dataclass_fields__)
     overrides: dict[str, Any] = {

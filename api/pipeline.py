@@ -39,10 +39,11 @@ import dataclasses
 import hashlib
 import json
 import logging
+import operator
 import re
 from collections.abc import Iterable
 from dataclasses import dataclass, field
-from typing import Any, Literal, cast
+from typing import TYPE_CHECKING, Any, Literal, cast
 
 from sqlalchemy import Table, select, update
 from sqlalchemy.exc import IntegrityError
@@ -52,7 +53,7 @@ from beamaudit.api.store import models as m
 from beamaudit.api.store.base import utcnow
 from beamaudit.api.store.bulk import insert_rows, update_rows
 from beamaudit.ingest.errors import IngestError
-from beamaudit.ingest.events import AccumulatedDose, ExposureEvent, ParseResult
+from beamaudit.ingest.events import AccumulatedDose, ExposureEvent, FilterLayer, ParseResult
 
 __all__ = [
     "CT_MODALITIES",
@@ -64,6 +65,9 @@ __all__ = [
     "report_covers",
     "result_fingerprint",
 ]
+
+if TYPE_CHECKING:
+    from beamaudit.api.postprocess import Completion
 
 log = logging.getLogger(__name__)
 
@@ -77,6 +81,8 @@ _EVENT_COLUMNS = tuple(
     if name in ExposureEvent.__dataclass_fields__
     and name not in {"event_key", "source_kind", "event_index", "filters", "provenance", "notes"}
 )
+
+_event_column_values = operator.attrgetter(*_EVENT_COLUMNS)
 
 _RECEPTOR_FIELDS = ("collimator_edges_px", "imager_pixel_spacing_mm", "detector_dimensions_mm")
 
@@ -117,36 +123,50 @@ def result_fingerprint(result: ParseResult) -> str:
 
 
 def _fingerprint_text(result: ParseResult) -> str:
-    """The JSON text that :func:`result_fingerprint` hashes."""
-    payload: list[dict[str, Any]] = [_event_payload(e) for e in result.events]
+    """The JSON text that :func:`result_fingerprint` hashes.
+
+    The JSON of sorted keys: each event's fields are laid out in sorted order already, so
+    ``json`` need not sort them, unless a field holds something other than its declared type
+    (then everything is sorted as :func:`json.dumps` sorts it; the text is the same).
+    """
+    payload: list[dict[str, Any]] = []
+    laid_out = True
+    for event in result.events:
+        fields, plain = _event_payload(event)
+        payload.append(fields)
+        laid_out = laid_out and plain
     payload.append({"accumulated": [repr(a) for a in result.accumulated]})
-    return json.dumps(payload, sort_keys=True, default=str)
+    return json.dumps(payload, sort_keys=not laid_out, default=str)
 
 
 _FINGERPRINT_SKIP = frozenset({"provenance", "notes"})
-
-
-def _event_payload(event: ExposureEvent) -> dict[str, Any]:
-    out: dict[str, Any] = {}
-    for f in _event_fields():
-        if f in _FINGERPRINT_SKIP:
-            continue
-        value = getattr(event, f)
-        if f in ("study_datetime", "event_datetime"):
-            value = value.isoformat() if value is not None else None
-        elif f == "filters":
-            value = [_plain(x) for x in value]
-        elif not isinstance(value, str | int | float | type(None)):
-            value = _plain(value)
-        out[f] = value
-    return out
-
-
-def _event_fields() -> tuple[str, ...]:
-    return _EVENT_FIELDS
-
-
 _EVENT_FIELDS = tuple(f.name for f in dataclasses.fields(ExposureEvent))
+_PAYLOAD_FIELDS = tuple(sorted(f for f in _EVENT_FIELDS if f not in _FINGERPRINT_SKIP))
+_payload_values = operator.attrgetter(*_PAYLOAD_FIELDS)
+_DATETIME_FIELDS = ("study_datetime", "event_datetime")
+#: what JSON writes without nested objects; by ExposureEvent's types only ``filters`` (a
+#: tuple of FilterLayer, whose dicts' keys come sorted) holds anything else
+_SCALARS = (str, int, float, type(None), tuple)
+
+
+def _event_payload(event: ExposureEvent) -> tuple[dict[str, Any], bool]:
+    """``as_dict()`` of ``event`` without provenance and notes, keys sorted, as JSON would
+    write it; and whether every field held its declared type (no nested object to sort)."""
+    out = dict(zip(_PAYLOAD_FIELDS, _payload_values(event), strict=True))
+    for f in _DATETIME_FIELDS:
+        value = out[f]
+        if value is not None:
+            out[f] = value.isoformat()
+    filters = out["filters"]
+    out["filters"] = [_plain(x) for x in filters]
+    plain = all(type(x) is FilterLayer for x in filters)
+    for f, value in out.items():
+        if not isinstance(value, _SCALARS) and f != "filters":
+            out[f] = _plain(value)  # not by the types, but written as as_dict() would
+            plain = False
+        elif type(value) is tuple and not all(isinstance(v, _SCALARS) for v in value):
+            plain = False
+    return out, plain
 
 
 def _plain(value: Any) -> Any:
@@ -252,10 +272,19 @@ def report_covers(report_modalities: Iterable[str | None], header_modality: str 
 
 
 class Pipeline:
-    """Stores parsed objects; one instance per process, sharing one session factory."""
+    """Stores parsed objects; one instance per process, sharing one session factory.
 
-    def __init__(self, session_factory: sessionmaker[Session]) -> None:
+    With a ``completion`` (:class:`beamaudit.api.postprocess.Completion`) every event is
+    stored with its exam type and reconstructed figures, computed in the transaction that
+    stores it; without one, events are stored as read and
+    :func:`beamaudit.api.postprocess.process_new_events` completes them afterwards.
+    """
+
+    def __init__(
+        self, session_factory: sessionmaker[Session], *, completion: Completion | None = None
+    ) -> None:
         self._sessions = session_factory
+        self.completion = completion
 
     # -- errors ---------------------------------------------------------------------------
     def record_error(
@@ -327,7 +356,7 @@ class Pipeline:
             return [self._store_alone(items[0], received_via)]
         try:
             with self._sessions.begin() as session:
-                return _BatchWriter(session, received_via).store(items)
+                return _BatchWriter(session, received_via, self.completion).store(items)
         except IntegrityError:
             return [self._store_alone(item, received_via) for item in items]
 
@@ -346,7 +375,7 @@ class Pipeline:
         for _ in range(_RACE_ATTEMPTS):
             try:
                 with self._sessions.begin() as session:
-                    return _BatchWriter(session, received_via).store([item])[0]
+                    return _BatchWriter(session, received_via, self.completion).store([item])[0]
             except IntegrityError as exc:
                 detail = str(exc.orig).splitlines()[0] if exc.orig is not None else str(exc)
         log.error(
@@ -411,10 +440,13 @@ class _BatchWriter:
     sites seen for the first time are created through the ORM (rare: once per device).
     """
 
-    def __init__(self, session: Session, received_via: str) -> None:
+    def __init__(
+        self, session: Session, received_via: str, completion: Completion | None = None
+    ) -> None:
         self.session = session
         self.conn = session.connection()
         self.received_via = received_via
+        self.completion = completion
         self.now = utcnow()
 
     def store(self, items: list[tuple[ParseResult, str | None, str | None]]) -> list[StoreOutcome]:
@@ -601,6 +633,8 @@ class _BatchWriter:
         event_ids: list[int] = []
         if event_rows:
             ev = _table(m.ExposureEventRow)
+            if self.completion is not None:
+                self.completion.complete(self.session, event_rows)
             insert_rows(self.conn, ev, event_rows)
             found: dict[tuple[int, int], int] = {}
             for chunk in _chunks(source_ids):
@@ -642,7 +676,7 @@ def _event_row(
     room_id: int | None,
     now: Any,
 ) -> dict[str, Any]:
-    row: dict[str, Any] = {name: getattr(event, name) for name in _EVENT_COLUMNS}
+    row: dict[str, Any] = dict(zip(_EVENT_COLUMNS, _event_column_values(event), strict=True))
     receptor = {
         name: list(getattr(event, name))
         for name in _RECEPTOR_FIELDS

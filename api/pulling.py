@@ -18,7 +18,7 @@ from sqlalchemy import select
 from sqlalchemy.orm import Session, sessionmaker
 
 from beamaudit.api.pipeline import Pipeline
-from beamaudit.api.postprocess import process_new_events
+from beamaudit.api.postprocess import Completion
 from beamaudit.api.store import models as m
 from beamaudit.api.store.base import utcnow
 from beamaudit.ingest.errors import IngestError
@@ -88,7 +88,7 @@ def pull_source(
         source_id, watermark = row.id, row.watermark_date
         mods = modalities or list(row.modalities or []) or None
     since_date = resolve_since(since, watermark)
-    pipeline = Pipeline(sessions)
+    pipeline = Pipeline(sessions, completion=Completion())  # exam types and figures too
     outcome = PullOutcome(source=url, since=since_date)
     new_event_ids: list[int] = []
 
@@ -132,7 +132,6 @@ def pull_source(
             [(IngestError("unreadable", p.reason, p.source), p.source) for p in report.errors],
             received_via="pull",
         )
-    process_new_events(sessions, new_event_ids)
     with sessions.begin() as session:
         source = session.get(m.DicomwebSource, source_id)
         assert source is not None

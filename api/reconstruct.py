@@ -24,6 +24,7 @@ import logging
 import math
 from collections.abc import Iterable, Sequence
 from dataclasses import dataclass
+from functools import cache, lru_cache
 from typing import Any, cast
 
 from sqlalchemy import Table, select, update
@@ -33,9 +34,12 @@ from beamaudit.api.store import models as m
 from beamaudit.api.store.bulk import update_rows
 
 __all__ = [
+    "FIGURES_CLEARED",
     "RECIPE_KIND",
     "ReconSummary",
+    "RoomBeams",
     "calibration_for_room",
+    "figures",
     "reconstruct_events",
     "trail_for_event",
 ]
@@ -120,7 +124,7 @@ class _BeamCache:
             anode,
             angle,
             ripple,
-            id(calibration) if calibration else None,
+            calibration,  # a frozen dataclass: equal calibrations give equal beams
         )
         if key not in self._cache:
             spec = BeamSpec(
@@ -164,10 +168,34 @@ def _filters(room: m.Room | None, event: Any, calibration: Any) -> tuple[Any, ..
     return tuple(layers + event_layers)
 
 
-def _geometry(event: Any, room: m.Room | None) -> Any:
-    from beamaudit.model import GeometryInputs, find_exam
+def _filters_key(filters: Any) -> Any:
+    """A hashable stand-in for an event's recorded filters (a list of dicts, or nothing)."""
+    if not filters:
+        return None
+    return tuple((f.get("material"), f.get("thickness_mm")) for f in filters)
 
-    prov = dict(event.provenance or {})
+
+@lru_cache(maxsize=4096)
+def _exam(body_part: str | None, view_position: str | None) -> str | None:
+    from beamaudit.model import find_exam
+
+    return find_exam(body_part=body_part, view_position=view_position)
+
+
+def _texts(provenance: dict[str, Any]) -> dict[str, Any]:
+    """The provenance the model's trail can name: every value a text (a stored event's JSON
+    could hold anything; what ingest writes is texts only, checked at C speed)."""
+    try:
+        "".join(provenance.values())
+    except TypeError:
+        return {k: v for k, v in provenance.items() if isinstance(v, str)}
+    return provenance
+
+
+def _geometry(event: Any, room: m.Room | None) -> Any:
+    GeometryInputs = _model().GeometryInputs  # the model's class
+
+    prov = event.provenance or {}
     return GeometryInputs(
         sid_mm=event.sid_mm,
         source_to_patient_mm=event.source_to_patient_mm if event.modality_family != "ct" else None,
@@ -183,10 +211,18 @@ def _geometry(event: Any, room: m.Room | None) -> Any:
         collimator_edges_px=_receptor(event, "collimator_edges_px"),
         imager_pixel_spacing_mm=_receptor(event, "imager_pixel_spacing_mm"),
         detector_dimensions_mm=_receptor(event, "detector_dimensions_mm"),
-        exam=find_exam(body_part=event.body_part, view_position=event.view_position),
+        exam=_exam(event.body_part, event.view_position),
         table_to_detector_gap_mm=room.table_to_detector_mm if room else None,
-        provenance={k: v for k, v in prov.items() if isinstance(v, str)},
+        provenance=_texts(prov),
     )
+
+
+@cache
+def _model() -> Any:
+    """``beamaudit.model``, imported on first use (it loads NumPy, SciPy and xraylib)."""
+    import beamaudit.model
+
+    return beamaudit.model
 
 
 def _receptor(event: Any, name: str) -> Any:
@@ -270,6 +306,21 @@ def _calibration_snapshot(row: m.RoomCalibrationRow | None) -> dict[str, Any] | 
     }
 
 
+def _active_calibration_rows(
+    session: Session, room_ids: list[int]
+) -> dict[int, m.RoomCalibrationRow]:
+    """Each room's active calibration, as :func:`_active_calibration_row` picks it."""
+    t = m.RoomCalibrationRow
+    out: dict[int, m.RoomCalibrationRow] = {}
+    for row in session.scalars(
+        select(t)
+        .where(t.room_id.in_(room_ids), t.active.is_(True))
+        .order_by(t.room_id, t.created_at.desc(), t.id.desc())
+    ):
+        out.setdefault(row.room_id, row)
+    return out
+
+
 def _active_calibration_row(session: Session, room_id: int) -> m.RoomCalibrationRow | None:
     return session.scalar(
         select(m.RoomCalibrationRow)
@@ -290,25 +341,43 @@ def reconstruct_events(
     version), from which :func:`trail_for_event` makes the full trail again on demand.
     """
     summary = ReconSummary()
-    cache = _BeamCache()
-    rooms: dict[int, m.Room | None] = {}
-    calibrations: dict[int, Any] = {}
-    recipes: dict[int | None, dict[str, Any]] = {}
+    rooms = RoomBeams()
     ids = list(event_ids)
     for start in range(0, len(ids), CHUNK):
         chunk = ids[start : start + CHUNK]
         with session_factory.begin() as session:
-            for room_id in {r for r in _room_ids(session, chunk) if r not in rooms}:
-                recipe = _recipe(
-                    session.get(m.Room, room_id), _active_calibration_row(session, room_id)
-                )
-                # detached copies: they outlive this chunk's transaction
-                room = _room_from_snapshot(recipe["room"])
-                rooms[room_id] = room
-                calibrations[room_id] = _calibration_from_snapshot(recipe["calibration"], room)
-                recipes[room_id] = recipe
-            _reconstruct_chunk(session, chunk, rooms, calibrations, recipes, cache, summary)
+            rooms.load(session, _room_ids(session, chunk))
+            _reconstruct_chunk(session, chunk, rooms, summary)
     return summary
+
+
+class RoomBeams:
+    """The rooms' beam configurations and active calibrations, as the model takes them.
+
+    Loaded once per room (detached copies: they outlive the transaction that read them), with
+    the beams computed so far (one per distinct beam), for one run of reconstruction: a scan,
+    one chunk of stored events.
+    """
+
+    def __init__(self) -> None:
+        self.rooms: dict[int, m.Room | None] = {}
+        self.calibrations: dict[int, Any] = {}
+        self.recipes: dict[int | None, dict[str, Any]] = {}
+        self.cache = _BeamCache()
+
+    def load(self, session: Session, room_ids: Iterable[int]) -> None:
+        """Read the rooms not read yet (two queries, whatever their number)."""
+        wanted = sorted({r for r in room_ids if r not in self.rooms})
+        if not wanted:
+            return
+        found = {r.id: r for r in session.scalars(select(m.Room).where(m.Room.id.in_(wanted)))}
+        active = _active_calibration_rows(session, wanted)
+        for room_id in wanted:
+            recipe = _recipe(found.get(room_id), active.get(room_id))
+            room = _room_from_snapshot(recipe["room"])
+            self.rooms[room_id] = room
+            self.calibrations[room_id] = _calibration_from_snapshot(recipe["calibration"], room)
+            self.recipes[room_id] = recipe
 
 
 def _room_ids(session: Session, chunk: list[int]) -> set[int]:
@@ -332,100 +401,135 @@ def _recipe(room: m.Room | None, calibration: m.RoomCalibrationRow | None) -> di
     }
 
 
-def _reconstruct_chunk(
-    session: Session,
-    chunk: list[int],
-    rooms: dict[int, m.Room | None],
-    calibrations: dict[int, Any],
-    recipes: dict[int | None, dict[str, Any]],
-    cache: _BeamCache,
-    summary: ReconSummary,
-) -> None:
+#: the figure columns, as a reconstruction that ends without figures leaves them
+FIGURES_CLEARED: dict[str, Any] = {col: None for col in (*_FIGURE_COLUMNS, "recon_calibrated")} | {
+    "dap_ratio_reported_to_recon": None,
+    "recon_trail": None,
+}
+
+
+def figures(events: Sequence[Any], rooms: RoomBeams) -> list[dict[str, Any]]:
+    """The reconstruction columns of each event, in order.
+
+    ``events`` are stored rows or rows about to be stored: anything with the attributes of
+    :data:`_INPUT_COLUMNS` (``id`` aside). Each dict holds ``recon_status`` (``ok``,
+    ``not_applicable`` for CT, ``no_technique`` without kV or mAs, ``failed``) and, for
+    ``ok``, the figures, ``recon_calibrated``, ``dap_ratio_reported_to_recon`` and
+    ``recon_trail`` (the recipe); for ``failed``, ``notes`` with the event's notes and the
+    reason appended. The rooms of the events must be loaded in ``rooms``.
+    """
     from beamaudit.model import ModelError, dose_from_beams
 
-    ev = _table(m.ExposureEventRow)
-    events = session.execute(
-        select(*(ev.c[name] for name in _INPUT_COLUMNS)).where(ev.c.id.in_(chunk))
-    ).all()
-    not_applicable: list[int] = []
-    no_technique: list[int] = []
-    failed: list[dict[str, Any]] = []
-    todo: list[Any] = []
+    out: list[dict[str, Any]] = []
+    todo: list[int] = []
     beams: list[Any] = []
     geometries: list[Any] = []
-    for event in events:
-        room = rooms.get(event.room_id) if event.room_id is not None else None
-        calibration = calibrations.get(event.room_id) if event.room_id is not None else None
+    # the beam of an event depends on its room, kV and added filters only: one look-up each
+    beam_of: dict[tuple[Any, ...], Any] = {}
+    for k, event in enumerate(events):
+        room = rooms.rooms.get(event.room_id) if event.room_id is not None else None
         if event.modality_family == "ct" or event.modality == "CT":
-            not_applicable.append(event.id)
+            out.append({"recon_status": "not_applicable"})
             continue
         if not event.kvp_kv or not event.exposure_mas:
-            no_technique.append(event.id)
+            out.append({"recon_status": "no_technique"})
             continue
+        key = (event.room_id, event.kvp_kv, _filters_key(event.filters))
         try:
-            beam = cache.get(
-                kvp_kv=event.kvp_kv,
-                filters=_filters(room, event, calibration),
-                room=room,
-                calibration=calibration,
-            )
+            if key not in beam_of:
+                calibration = (
+                    rooms.calibrations.get(event.room_id) if event.room_id is not None else None
+                )
+                try:
+                    beam_of[key] = rooms.cache.get(
+                        kvp_kv=event.kvp_kv,
+                        filters=_filters(room, event, calibration),
+                        room=room,
+                        calibration=calibration,
+                    )
+                except ModelError as exc:
+                    beam_of[key] = exc
+            beam = beam_of[key]
+            if isinstance(beam, ModelError):
+                raise beam
             geometry = _geometry(event, room)
         except ModelError as exc:
-            failed.append(_failure(event, exc))
+            out.append(_failure(event, exc))
             continue
-        todo.append(event)
+        out.append({})
+        todo.append(k)
         beams.append(beam)
         geometries.append(geometry)
-    done: list[dict[str, Any]] = []
     if todo:
         bulk = dose_from_beams(
-            beams, exposure_mas=[e.exposure_mas for e in todo], geometries=geometries
+            beams, exposure_mas=[events[k].exposure_mas for k in todo], geometries=geometries
         )
-        columns = {col: getattr(bulk, attr) for col, attr in _FIGURE_COLUMNS.items()}
-        for i, event in enumerate(todo):
+        names = tuple(_FIGURE_COLUMNS)
+        # per event, the figures as Python floats, None where not finite
+        rows = zip(*(_finite_list(getattr(bulk, a)) for a in _FIGURE_COLUMNS.values()), strict=True)
+        for i, (k, figures_row) in enumerate(zip(todo, rows, strict=True)):
+            event = events[k]
             error = bulk.errors[i]
             if error is not None:
-                failed.append(_failure(event, error))
+                out[k] = _failure(event, error)
                 continue
-            values: dict[str, Any] = {"recon_status": "ok"}
-            values.update((col, _finite(arr[i])) for col, arr in columns.items())
+            values: dict[str, Any] = {
+                "recon_status": "ok",
+                **dict(zip(names, figures_row, strict=True)),
+            }
             dap = values["recon_dap_gy_cm2"]
             values["recon_calibrated"] = bool(bulk.calibrated[i])
             values["dap_ratio_reported_to_recon"] = (
                 event.dap_gy_cm2 / dap if event.dap_gy_cm2 and dap else None
             )
-            values["recon_trail"] = recipes.get(event.room_id) or _recipe(None, None)
-            values["id"] = event.id
-            done.append(values)
-    cleared = {col: None for col in (*_FIGURE_COLUMNS, "recon_calibrated")} | {
-        "dap_ratio_reported_to_recon": None,
-        "recon_trail": None,
-    }
-    for status, event_ids in (("not_applicable", not_applicable), ("no_technique", no_technique)):
+            values["recon_trail"] = rooms.recipes.get(event.room_id) or _recipe(None, None)
+            out[k] = values
+    return out
+
+
+def _reconstruct_chunk(
+    session: Session, chunk: list[int], rooms: RoomBeams, summary: ReconSummary
+) -> None:
+    ev = _table(m.ExposureEventRow)
+    events = session.execute(
+        select(*(ev.c[name] for name in _INPUT_COLUMNS)).where(ev.c.id.in_(chunk))
+    ).all()
+    by_status: dict[str, list[int]] = {"not_applicable": [], "no_technique": []}
+    done: list[dict[str, Any]] = []
+    failed: list[dict[str, Any]] = []
+    for event, values in zip(events, figures(events, rooms), strict=True):
+        status = values["recon_status"]
+        if status in by_status:
+            by_status[status].append(event.id)
+        elif status == "ok":
+            done.append(values | {"id": event.id})
+        else:
+            failed.append(values | FIGURES_CLEARED | {"id": event.id})
+    for status, event_ids in by_status.items():
         for part in _id_chunks(event_ids):
             session.execute(
-                update(ev).where(ev.c.id.in_(part)).values(recon_status=status, **cleared)
+                update(ev).where(ev.c.id.in_(part)).values(recon_status=status, **FIGURES_CLEARED)
             )
     conn = session.connection()
     update_rows(conn, ev, done)
-    update_rows(conn, ev, [row | cleared for row in failed])
+    update_rows(conn, ev, failed)
     summary.reconstructed += len(done)
-    summary.no_technique += len(no_technique)
-    summary.not_applicable += len(not_applicable)
+    summary.no_technique += len(by_status["no_technique"])
+    summary.not_applicable += len(by_status["not_applicable"])
     summary.failed += len(failed)
 
 
 def _failure(event: Any, error: Any) -> dict[str, Any]:
     return {
-        "id": event.id,
         "recon_status": "failed",
         "notes": [*(event.notes or []), f"reconstruction failed: {error}"],
     }
 
 
-def _finite(value: Any) -> float | None:
-    x = float(value)
-    return x if math.isfinite(x) else None
+def _finite_list(values: Any) -> list[float | None]:
+    """The values as Python floats, ``None`` for NaN and infinities."""
+    isfinite = math.isfinite
+    return [x if isfinite(x) else None for x in map(float, values)]
 
 
 def _id_chunks(ids: list[int], size: int = 500) -> Iterable[list[int]]:

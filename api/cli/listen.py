@@ -31,7 +31,7 @@ def listen_command(
     from beamaudit.api.cli._store import open_store
     from beamaudit.api.cli.scan import pseudonym_key
     from beamaudit.api.pipeline import Pipeline
-    from beamaudit.api.postprocess import process_new_events
+    from beamaudit.api.postprocess import Completion
     from beamaudit.api.receiving import make_store_handler
     from beamaudit.ingest.errors import IngestError
     from beamaudit.ingest.listener import ListenerConfig, start_listener
@@ -48,9 +48,8 @@ def listen_command(
             allowed_calling_aets=frozenset(allowed) if allowed else None,
         )
         handler = make_store_handler(
-            Pipeline(store.sessions),
+            Pipeline(store.sessions, completion=Completion()),
             Pseudonymiser(pseudonym_key(store.settings.secret_key_path)),
-            after_store=lambda ids: process_new_events(store.sessions, ids),
         )
         listener = start_listener(config, handler)
     except IngestError as exc:

@@ -53,15 +53,18 @@ def scan_command(
 
     from beamaudit.api.cli._store import open_store
     from beamaudit.api.pipeline import Pipeline
-    from beamaudit.api.postprocess import process_new_events
-    from beamaudit.api.scanning import default_workers, scan_paths
+    from beamaudit.api.postprocess import Completion
+    from beamaudit.api.scanning import default_workers, freeze_heap, scan_paths
 
     missing = [str(p) for p in paths if not p.exists()]
     if missing:
         fail(f"no such file or folder: {', '.join(missing)}")
     store = open_store(ctx)
     key = pseudonym_key(store.settings.secret_key_path)
-    pipeline = Pipeline(store.sessions)
+    completion = Completion()  # exam types and figures, stored with the events
+    pipeline = Pipeline(store.sessions, completion=completion)
+    completion.load_modules()
+    freeze_heap()
     workers = workers or default_workers()
     show_progress = sys.stderr.isatty() and not as_json
     if show_progress:
@@ -84,7 +87,7 @@ def scan_command(
             )
     else:
         summary = scan_paths(paths, pipeline=pipeline, key=key, workers=workers)
-    recon = process_new_events(store.sessions, summary.stored_event_ids)
+    recon = completion.summary
     if as_json:
         body = summary.as_dict() | {"reconstructed": recon.as_dict()}
         typer.echo(json.dumps(body, indent=2))

@@ -110,10 +110,11 @@ def _pseudonymiser(request: Request) -> Any:
 def _ingest_one(request: Request, fh: IO[bytes], name: str, who: str) -> UploadFileResult:
     """Parse and store one file (runs in the thread pool)."""
     from beamaudit.api.pipeline import Pipeline
+    from beamaudit.api.postprocess import Completion
     from beamaudit.ingest.errors import IngestError
     from beamaudit.ingest.reader import read_open_file
 
-    pipeline = Pipeline(request.app.state.session_factory)
+    pipeline = Pipeline(request.app.state.session_factory, completion=Completion())
     source = f"upload:{name}"
     try:
         parsed = read_open_file(fh, pseudonymiser=request.app.state.pseudonymiser, source=source)
@@ -213,11 +214,6 @@ async def upload_dicom(request: Request, who: Physicist) -> UploadResult:
             fh.close()
         if form is not None:
             await form.close()
-    stored_ids = [i for r in results for i in r.event_ids]
-    if stored_ids:
-        from beamaudit.api.reconstruct import reconstruct_events
-
-        await run_in_threadpool(reconstruct_events, request.app.state.session_factory, stored_ids)
     return UploadResult(
         files=results,
         stored=sum(r.status == "stored" for r in results),

@@ -3,6 +3,7 @@
 from __future__ import annotations
 
 from datetime import datetime
+from pathlib import Path
 
 import pytest
 from sqlalchemy import func, select
@@ -186,19 +187,43 @@ def _defined_fingerprint(result: ParseResult) -> str:
 def test_fingerprint_is_the_documented_one_for_real_files() -> None:
     # pydicom's bundled files (CT, CR, MR, ...) and a built dose report: the fast fingerprint
     # must equal the documented definition, or stored objects would look changed on a re-scan
+    import os
+
+    import data_store
+    import pydicom
     from pydicom.data import get_testdata_file
+    from rdsr_builders import ct_report, fluoroscopy_report
 
     from beamaudit.ingest.folder import scan
     from beamaudit.ingest.pseudonym import Pseudonymiser
+    from beamaudit.ingest.reader import read_dataset
 
     names = ["CT_small.dcm", "MR_small.dcm", "rtplan.dcm", "JPEG2000.dcm", "SC_rgb.dcm"]
     paths = [p for p in (get_testdata_file(n) for n in names) if p]
-    outcomes = scan(paths, pseudonymiser=Pseudonymiser(b"k" * 32))
+    # and every file pydicom and pydicom-data ship that parses (installed, none downloaded)
+    for folder in (
+        Path(os.path.dirname(pydicom.data.__file__)) / "test_files",
+        Path(os.path.dirname(data_store.__file__)) / "data",
+    ):
+        paths.extend(str(p) for p in sorted(folder.rglob("*.dcm")) if p.stat().st_size < 8 << 20)
+    pseudonymiser = Pseudonymiser(b"k" * 32)
+    outcomes = scan(paths, pseudonymiser=pseudonymiser)
     results = [o.result for o in outcomes if o.result is not None]
     results.append(_result("1.2.3.9", n_events=3, body_part_thickness_mm=210.0))
-    assert results
+    for report in (fluoroscopy_report(), ct_report()):
+        results.append(read_dataset(report, pseudonymiser=pseudonymiser, source="built"))
+    assert len(results) > 10
     for result in results:
         assert result_fingerprint(result) == _defined_fingerprint(result)
+
+
+def test_fingerprint_of_values_outside_their_declared_types_is_the_documented_one() -> None:
+    # a field holding something its type does not declare is written as as_dict() writes it,
+    # keys sorted at every level (here the fast layout cannot be used)
+    result = _result("1.2.3.10", n_events=2)
+    result.events[0].protocol_name = {"zeta": 1, "alpha": [2, {"y": 1, "x": 2}]}  # type: ignore[assignment]
+    result.events[1].collimator_edges_px = ({"b": 1, "a": 2}, 1, 2, 3)  # type: ignore[assignment]
+    assert result_fingerprint(result) == _defined_fingerprint(result)
 
 
 # prepare() looks for control characters in the fingerprint's JSON and in the few texts the
