@@ -15,8 +15,10 @@ from __future__ import annotations
 from collections.abc import Callable, Sequence
 from typing import Any
 
-from sqlalchemy import Table, bindparam, insert, update
+from sqlalchemy import JSON, Table, bindparam, insert, update
 from sqlalchemy.engine import Connection
+
+from beamaudit.api.store.base import UTCDateTime
 
 __all__ = ["insert_rows", "update_rows"]
 
@@ -87,8 +89,10 @@ def _fast(
             continue
         if (column.default if defaults_needed else column.onupdate) is not None:
             return False
-    width = len(names)
-    return all(len(row) == width and all(n in row for n in names) for row in rows)
+    keys = rows[0].keys()
+    if len(keys) != len(names) or any(n not in keys for n in names):
+        return False
+    return all(row.keys() == keys for row in rows)  # dict views compare as sets, in C
 
 
 def _tuples(
@@ -102,18 +106,76 @@ def _tuples(
     for name, process in zip(names, processors, strict=True):
         values = [row[name] for row in rows]
         if process is not None:
-            values = _processed(values, process)
+            kind = table.c[name].type
+            if isinstance(kind, JSON):
+                values = _processed_documents(values, process)
+            elif isinstance(kind, UTCDateTime):
+                values = _processed_by_value(values, process)
+            else:
+                values = _processed(values, process)
         columns.append(values)
     return list(zip(*columns, strict=True))
 
 
 def _processed(values: list[Any], process: Callable[[Any], Any]) -> list[Any]:
-    """Each value through ``process``; a value that is the very object before it is reused."""
+    """Each value through ``process`` (numbers, timestamps, booleans: cheap, one call each)."""
+    return list(map(process, values))
+
+
+def _processed_by_value(values: list[Any], process: Callable[[Any], Any]) -> list[Any]:
+    """Timestamps through ``process``, each distinct one once (a batch shares its storing
+    time and its studies' times; equal timestamps are the same instant, stored alike)."""
+    done: dict[Any, Any] = {}
     out: list[Any] = []
-    last: Any = object()
-    last_out: Any = None
     for value in values:
-        if value is not last:
-            last, last_out = value, process(value)
-        out.append(last_out)
+        if value not in done:
+            done[value] = process(value)
+        out.append(done[value])
     return out
+
+
+def _processed_documents(values: list[Any], process: Callable[[Any], Any]) -> list[Any]:
+    """JSON values through ``process``, each distinct document serialised once.
+
+    Rows of a batch repeat their documents: one recipe object per room, provenance maps and
+    note lists with the same texts. A value is looked up by its identity, and a flat dict or
+    list of texts also by its content (texts compare and serialise alike; numbers would not:
+    ``1 == 1.0 == True``), so equal documents get the very text they would have got.
+    """
+    by_id: dict[int, Any] = {}
+    by_content: dict[tuple[Any, ...], Any] = {}
+    out: list[Any] = []
+    for value in values:
+        key = id(value)
+        if key in by_id:
+            out.append(by_id[key])
+            continue
+        content = _text_content(value)
+        if content is None:
+            done = process(value)
+        elif content in by_content:
+            done = by_content[content]
+        else:
+            done = by_content[content] = process(value)
+        by_id[key] = done
+        out.append(done)
+    return out
+
+
+def _text_content(value: Any) -> tuple[Any, ...] | None:
+    """A hashable stand-in for a dict of texts or a list of texts; ``None`` for anything else.
+
+    ``str.join`` checks that every item is a text (subclasses included, which serialise as
+    texts too) at C speed: it raises ``TypeError`` on anything else.
+    """
+    try:
+        if type(value) is dict:
+            "".join(value)
+            "".join(value.values())
+            return ("dict", *value.items())
+        if type(value) is list:
+            "".join(value)
+            return ("list", *value)
+    except TypeError:
+        return None
+    return None

@@ -67,7 +67,44 @@ def _rows() -> list[dict]:
             "x": -0.0,
         },
         {"label": "d", "at": None, "doc": _SHARED, "flag": True, "x": 1e-300},
+        # the instant of row "b" written in UTC (equal timestamps: serialised once), and the
+        # same wall time naive (not equal to an aware one)
+        {
+            "label": "b-utc",
+            "at": datetime(2026, 11, 3, 7, 30, tzinfo=UTC),
+            "doc": None,
+            "flag": None,
+            "x": None,
+        },
+        {
+            "label": "a-again",
+            "at": datetime(2026, 11, 3, 9, 30),
+            "doc": None,
+            "flag": None,
+            "x": None,
+        },
         {"label": "é\tü", "at": None, "doc": ["text", "ü"], "flag": False, "x": 2.0},
+        # equal documents that are different objects (serialised once by content), the same
+        # keys in another order, numbers equal in Python but not in JSON, lists of texts
+        *(
+            {"label": f"doc{i}", "at": None, "doc": doc, "flag": None, "x": None}
+            for i, doc in enumerate(
+                [
+                    {"kvp_kv": "(0018,0060) KVP", "sid_mm": "(0018,1110)"},
+                    {"kvp_kv": "(0018,0060) KVP", "sid_mm": "(0018,1110)"},
+                    {"sid_mm": "(0018,1110)", "kvp_kv": "(0018,0060) KVP"},
+                    {"k": 1},
+                    {"k": 1.0},
+                    {"k": True},
+                    [],
+                    [],
+                    ["a note"],
+                    ["a note"],
+                    [1, "1"],
+                    {"k": "é\u0000"},
+                ]
+            )
+        ),
     ]
 
 
