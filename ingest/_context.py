@@ -124,8 +124,11 @@ def read_context(reader: ValueReader, sink: FieldSink, *, pseudonymiser: Pseudon
     Names are never read.
     """
     rows = header_rows_by_field()
+    present = reader.present
     for field in _CONTEXT_TEXT:
         for row in rows[field]:
+            if row.tag not in present:
+                continue
             text = reader.string(row)
             if text is not None:
                 sink.put(field, text, row.label)

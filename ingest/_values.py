@@ -44,6 +44,16 @@ _PLAIN_CHARSETS = {
 _STRIP = b" \x00"
 
 
+class _Everything:
+    """A container that holds every tag (for a dataset whose elements cannot be listed)."""
+
+    def __contains__(self, tag: object) -> bool:
+        return True
+
+
+_EVERYTHING = _Everything()
+
+
 def _tag_text(tag: int) -> str:
     return f"({tag >> 16:04X},{tag & 0xFFFF:04X})"
 
@@ -60,7 +70,7 @@ class ValueReader:
         character set other than the default, Latin-1 or UTF-8).
     """
 
-    __slots__ = ("_elements", "ds", "encoding")
+    __slots__ = ("_elements", "ds", "encoding", "present")
 
     def __init__(self, ds: Dataset, encoding: str | None = "latin-1") -> None:
         self.ds = ds
@@ -70,6 +80,9 @@ class ValueReader:
         # Dataset.get_item on the ~80 look-ups per header. Fall back if it ever goes.
         elements = getattr(ds, "_dict", None)
         self._elements: dict[int, Any] | None = elements if isinstance(elements, dict) else None
+        #: the tags present (a container to test ``tag in``), so that callers trying many
+        #: attributes in turn skip the absent ones without a call; everything if unknown
+        self.present: Any = self._elements if self._elements is not None else _EVERYTHING
 
     def _get(self, tag: int) -> Any:
         if self._elements is not None:

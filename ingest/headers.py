@@ -158,8 +158,11 @@ def _numbers(
     views: Iterable[ValueReader], rows: tuple[FieldMapping, ...]
 ) -> tuple[list[float], FieldMapping, int] | None:
     for index, view in enumerate(views):
+        present = view.present
         for row in rows:
             assert row.tag is not None and row.keyword is not None and row.vr is not None
+            if row.tag not in present:
+                continue
             values = view.numbers(row.tag, row.keyword, row.vr)
             if values is not None:
                 return values, row, index
@@ -170,7 +173,10 @@ def _string(
     views: Iterable[ValueReader], rows: tuple[FieldMapping, ...]
 ) -> tuple[str, FieldMapping] | None:
     for view in views:
+        present = view.present
         for row in rows:
+            if row.tag not in present:
+                continue
             text = view.string(row)
             if text is not None:
                 return text, row

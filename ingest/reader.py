@@ -18,10 +18,10 @@ import os
 import re
 import struct
 import zlib
-from typing import IO, Any
+from typing import IO, Any, BinaryIO, cast
 
 from pydicom import dcmread
-from pydicom.dataelem import RawDataElement
+from pydicom.dataelem import DataElement, RawDataElement
 from pydicom.dataset import Dataset, FileMetaDataset
 from pydicom.errors import BytesLengthException, InvalidDicomError
 from pydicom.filereader import read_dataset as read_pydicom_dataset
@@ -351,6 +351,7 @@ def read_open_file(
         size = os.fstat(fh.fileno()).st_size
     except (AttributeError, OSError, io.UnsupportedOperation):
         size = len(fh.getbuffer()) if isinstance(fh, io.BytesIO) else None
+    ds: Dataset
     try:
         common = _read_common(fh, head, size) if has_preamble else None
         if common is None:
@@ -430,15 +431,9 @@ def _read_common(fh: IO[bytes], head: bytes, size: int | None) -> tuple[Dataset,
     if found is None:
         return None
     elements, start = found
-    syntax = _raw_uid(elements.get(0x00020010))  # Transfer Syntax UID
-    if (
-        syntax not in _PLAIN_SYNTAXES
-        or start + 2 > len(head)
-        or head[start : start + 2]
-        == (
-            b"\x00\x00"  # a command group (0000,eeee): dcmread's business
-        )
-    ):
+    syntax = _raw_uid(elements.get(BaseTag(0x00020010)))  # Transfer Syntax UID
+    command_group = head[start : start + 2] == b"\x00\x00"  # (0000,eeee): dcmread's business
+    if syntax not in _PLAIN_SYNTAXES or start + 2 > len(head) or command_group:
         return None
     source: IO[bytes]
     if size is not None and size <= len(head):
@@ -450,12 +445,12 @@ def _read_common(fh: IO[bytes], head: bytes, size: int | None) -> tuple[Dataset,
         source = fh
     source.seek(start)
     ds = read_pydicom_dataset(
-        source,
+        cast(BinaryIO, source),
         is_implicit_VR=syntax == str(ImplicitVRLittleEndian),
         is_little_endian=True,
         stop_when=_at_pixels,
     )
-    ds.file_meta = FileMetaDataset(elements)
+    ds.file_meta = FileMetaDataset(cast(dict[BaseTag, DataElement | RawDataElement], elements))
     return ds, source
 
 
