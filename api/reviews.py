@@ -21,8 +21,10 @@
 from __future__ import annotations
 
 import gc
+from concurrent.futures import ThreadPoolExecutor
 from dataclasses import replace
 from datetime import UTC, date, datetime
+from pathlib import Path
 from typing import Any
 
 import numpy as np
@@ -63,6 +65,7 @@ from beamaudit.api.routes._review_rows import (
 )
 from beamaudit.api.store import models as m
 from beamaudit.api.store.base import utcnow
+from beamaudit.api.store.engine import SQLITE_BUSY_TIMEOUT_MS
 
 __all__ = [
     "ensure_catalogue",
@@ -239,8 +242,8 @@ def _study_column(study_ids: np.ndarray, event_ids: np.ndarray) -> pd.Categorica
     ``(event N)`` for an event without a study, as a categorical."""
     has = ~np.isnan(study_ids)
     codes = np.empty(len(study_ids), dtype=np.int64)
-    known, uniques = pd.factorize(study_ids[has])
-    codes[has] = known
+    uniques, known = np.unique(study_ids[has], return_inverse=True)  # ids sorted: by id order
+    codes[has] = known.reshape(-1)
     codes[~has] = len(uniques) + np.arange(int((~has).sum()))
     labels = [str(int(u)) for u in uniques] + [f"(event {i})" for i in event_ids[~has]]
     return pd.Categorical.from_codes(codes, categories=pd.Index(labels, dtype=object))
@@ -282,14 +285,7 @@ def _dense_by_copy(
     value. None when a row is not as expected (a text value that was not in the lists because it
     was committed in between): then the rows are read the plain way.
     """
-    E = m.ExposureEventRow
-    pairs = session.execute(
-        select(E.modality, E.exam_type).where(*conditions).distinct(), values
-    ).all()
-    lists = {
-        "modality": sorted({p[0] for p in pairs if p[0] is not None}),
-        "exam_type": sorted({p[1] for p in pairs if p[1] is not None}),
-    }
+    lists = _dense_lists(session, conditions, values)
     nan: Any = literal_column("'NaN'::float8")
 
     def number(column: Any) -> Any:
@@ -332,7 +328,25 @@ def _dense_by_copy(
         (table[f"length{j}"] == 8).all() for j in range(width)
     ):
         return None
-    column = [table[f"value{j}"].astype(np.float64) for j in range(width)]
+    return _dense_from_columns([table[f"value{j}"].astype(np.float64) for j in range(width)], lists)
+
+
+def _dense_lists(session: Session, conditions: list[Any], values: dict[str, Any]) -> dict[str, Any]:
+    """The period's distinct modalities and exam types, sorted: text columns travel as their
+    1-based positions in these lists."""
+    E = m.ExposureEventRow
+    pairs = _fetch(session, select(E.modality, E.exam_type).where(*conditions).distinct(), values)
+    return {
+        "modality": sorted({p for p in pairs[:, 0] if p is not None}),
+        "exam_type": sorted({p for p in pairs[:, 1] if p is not None}),
+    }
+
+
+def _dense_from_columns(column: list[np.ndarray], lists: dict[str, Any]) -> dict[str, Any] | None:
+    """The dense columns from the all-number form (ids and values as floats, NaN for NULL, text
+    as 1-based positions in ``lists``, -1 for a text not listed); None when a text was not
+    listed (it was committed after the lists were read)."""
+    width = len(column)
     out: dict[str, Any] = {"event_id": column[0].astype(np.int64)}
     for j, c in enumerate(_DENSE_SELECT[1:], start=1):
         if c.key in lists:
@@ -347,6 +361,126 @@ def _dense_by_copy(
             out[c.key] = column[j]
     out["epoch_s"] = column[width - 1]
     return out
+
+
+#: -DBL_MAX, the stand-in for NULL in the all-REAL reads from SQLite (SQLite has no NaN: it
+#: stores a NaN as NULL); no stored quantity, id or time comes near it
+_SQLITE_NULL = -1.7976931348623157e308
+
+
+def _sqlite_file(session: Session) -> str | None:
+    """The path of the session's SQLite database file, or None (another backend, in memory)."""
+    url = session.connection().engine.url
+    if url.get_backend_name() != "sqlite" or url.query:
+        return None
+    database = url.database or ""
+    if database in ("", ":memory:") or database.startswith("file:"):
+        return None
+    return database
+
+
+def _dense_by_arrow(
+    session: Session, conditions: list[Any], epoch: Any, values: dict[str, Any]
+) -> dict[str, Any] | None:
+    """The dense and the sparse columns from SQLite in one read through the ADBC SQLite driver.
+
+    The sqlite3 module makes a Python object of every value it returns (twelve million for a
+    month of a million events); the ADBC driver (Apache Arrow's database connectivity) writes the
+    values into Arrow arrays in C, which NumPy and pandas take as they are. Every number is read
+    as REAL (``_SQLITE_NULL`` for NULL: SQLite has no NaN) and the two texts as texts ('' for
+    NULL), so that every column has one type whatever its first rows hold; the sparse columns
+    come in the same read (a second pass over the table costs more than carrying them).
+
+    The driver reads the database file through a connection of its own: None (the rows are read
+    the plain way) when the store is not a plain file, when the driver is missing, or when the
+    events it sees are not the session's (the session holds uncommitted events of its own, or
+    events were committed in between).
+    """
+    path = _sqlite_file(session)
+    if path is None:
+        return None
+    try:
+        import adbc_driver_sqlite.dbapi as adbc
+        from adbc_driver_manager import Error as DriverError
+    except ImportError:  # an install without the driver: the plain way
+        return None
+    nothing: Any = literal_column(repr(_SQLITE_NULL))
+    texts = ("modality", "exam_type")
+
+    def number(column: Any) -> Any:
+        return func.coalesce(cast(column, Float), nothing)
+
+    selected = [
+        func.coalesce(c, "") if c.key in texts else number(c) for c in _DENSE_SELECT
+    ] + [number(epoch)] + [number(c) for _, c in _SPARSE_COLUMNS]  # fmt: skip
+    E = m.ExposureEventRow
+    census = select(func.count(), func.max(E.id))
+    conn = session.connection()
+    compiled = (
+        select(*selected)
+        .where(*conditions)
+        .compile(dialect=conn.dialect, compile_kwargs={"render_postcompile": True})
+    )
+    params = {**compiled.params, **values}
+    args = tuple(params[k] for k in compiled.positiontup or ())
+    expected = tuple(session.execute(census).one())
+    uri = Path(path).resolve().as_uri()
+    # two readers, on the events of even and of odd id (the driver works outside the GIL;
+    # each pass tests every row, but decodes only its half, whatever ids the period holds)
+    sql = f"{compiled} AND {E.__tablename__}.id % 2 = ?"
+    parts = [(sql, (*args, 0)), (sql, (*args, 1))]
+
+    def read(part: tuple[str, tuple[Any, ...]]) -> Any:
+        with adbc.connect(uri) as arrow, arrow.cursor() as cursor:
+            # reads only; waits out a writer's lock as the store's own connections do
+            cursor.execute(f"PRAGMA busy_timeout = {SQLITE_BUSY_TIMEOUT_MS}")
+            cursor.execute(str(census.compile(dialect=conn.dialect)))
+            if tuple(cursor.fetchone() or ()) != expected:
+                return None
+            cursor.execute(*part)
+            return cursor.fetch_arrow_table()
+
+    try:
+        with ThreadPoolExecutor(max_workers=2) as pool:
+            halves = list(pool.map(read, parts))
+    except DriverError:  # the driver could not read the file: the plain way reads it
+        return None
+    if any(half is None for half in halves):
+        return None
+    import pyarrow
+
+    # one chunk per column (the driver hands rows over in batches of a thousand), in id order
+    table = pyarrow.concat_tables(halves).combine_chunks()
+    ids = table.column(0).to_numpy()
+    if len(ids) > 1 and not (np.diff(ids) > 0).all():
+        table = table.take(np.argsort(ids, kind="stable"))  # two sorted runs: merged
+    out: dict[str, Any] = {}
+    names = [c.key for c in _DENSE_SELECT] + ["epoch_s"] + [n for n, _ in _SPARSE_COLUMNS]
+    for j, name in enumerate(names):
+        column = table.column(j)
+        if name in texts:
+            out[name] = _arrow_categorical(column)
+            continue
+        numbers = column.to_numpy()
+        if numbers.dtype != np.float64:  # REAL by the query: anything else is not understood
+            return None
+        out[name] = np.where(numbers == _SQLITE_NULL, np.nan, numbers)
+    out["event_id"] = out["event_id"].astype(np.int64)
+    return out
+
+
+def _arrow_categorical(column: Any) -> pd.Categorical:
+    """A text column read as Arrow ('' standing for NULL) as a categorical of its texts."""
+    encoded = column.combine_chunks().dictionary_encode()
+    categories = np.asarray(encoded.dictionary.to_pylist(), dtype=object)
+    codes = encoded.indices.to_numpy(zero_copy_only=False).astype(np.int64)
+    # categories sorted, '' (NULL) out, as pandas factorises the texts themselves
+    order = np.argsort(categories, kind="stable")
+    kept = order[categories[order] != ""]
+    recode = np.full(len(categories) + 1, -1, dtype=np.int64)  # the last: a null index
+    recode[kept] = np.arange(len(kept))
+    codes = recode[np.where(codes < 0, len(categories), codes)]
+    return pd.Categorical.from_codes(codes, categories=pd.Index(categories[kept], dtype=object))
 
 
 def review_events(session: Session, *, start: date, end: date) -> pd.DataFrame:
@@ -364,8 +498,11 @@ def review_events(session: Session, *, start: date, end: date) -> pd.DataFrame:
     E = m.ExposureEventRow
     conditions, epoch, values = _period_conditions(session, start=start, end=end)
     dense = None
-    if session.get_bind().dialect.name == "postgresql":
+    backend = session.get_bind().dialect.name
+    if backend == "postgresql":
         dense = _dense_by_copy(session, conditions, epoch, values)
+    elif backend == "sqlite":
+        dense = _dense_by_arrow(session, conditions, epoch, values)
     if dense is None:
         dense = _dense_by_rows(session, conditions, epoch, values)
     event_ids = dense["event_id"]
@@ -387,20 +524,23 @@ def review_events(session: Session, *, start: date, end: date) -> pd.DataFrame:
         "exam_type": dense["exam_type"],
         **{name: dense[name] for name in _FLOAT_NAMES},
     }
+    if all(name in dense for name, _ in _SPARSE_COLUMNS):  # read with the dense columns
+        columns.update((name, dense[name]) for name, _ in _SPARSE_COLUMNS)
+    else:
+        sparse = _fetch(
+            session,
+            select(E.id, *(c.label(name) for name, c in _SPARSE_COLUMNS)).where(
+                *conditions, or_(*(c.is_not(None) for _, c in _SPARSE_COLUMNS))
+            ),
+            values,
+        )
+        # (a later query may see events committed since the first: only those it read are kept)
+        at, found = _positions(event_ids, sparse[:, 0])
+        for offset, (name, _) in enumerate(_SPARSE_COLUMNS):
+            column = np.full(n, np.nan)
+            column[at] = sparse[found, 1 + offset].astype(np.float64)
+            columns[name] = column
     del dense
-    sparse = _fetch(
-        session,
-        select(E.id, *(c.label(name) for name, c in _SPARSE_COLUMNS)).where(
-            *conditions, or_(*(c.is_not(None) for _, c in _SPARSE_COLUMNS))
-        ),
-        values,
-    )
-    # (a later query may see events committed since the first: only those it read are kept)
-    at, found = _positions(event_ids, sparse[:, 0])
-    for offset, (name, _) in enumerate(_SPARSE_COLUMNS):
-        column = np.full(n, np.nan)
-        column[at] = sparse[found, 1 + offset].astype(np.float64)
-        columns[name] = column
     text_columns = {name: np.full(n, None, dtype=object) for name, _ in _TEXT_COLUMNS}
     unmapped = event_ids[pd.isna(columns["exam_type"])]
     for first in range(0, len(unmapped), _IDS_PER_QUERY):  # by id: exactly the events read

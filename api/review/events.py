@@ -164,8 +164,10 @@ def prepare_events(events: pd.DataFrame) -> pd.DataFrame:
             if c in KEY_COLUMNS:
                 out[c] = _sorted_categories(col.array)
                 continue
-            if c == "study_uid":
+            if c == "study_uid":  # kept as it is: a million texts cost more than their codes
                 study_codes = col.cat.codes.to_numpy(dtype=np.int64)
+                out[c] = col
+                continue
         elif not isinstance(col.dtype, pd.StringDtype) and pd.api.types.infer_dtype(
             col, skipna=True
         ) not in ("string", "empty"):
@@ -225,11 +227,15 @@ def _is_text_categorical(col: pd.Series) -> bool:
 def _sorted_categories(values: pd.Categorical) -> pd.Categorical:
     """The categorical ``pd.Categorical(values.astype(object))`` would give: only the categories
     in use, sorted, with object categories (computed on the categories, not the rows)."""
-    used = values.remove_unused_categories()
-    categories = pd.Index(list(used.categories))
+    codes = np.asarray(values.codes, dtype=np.int64)
+    # the categories in use, by counting (pandas' remove_unused_categories sorts every row)
+    in_use = np.flatnonzero(np.bincount(codes + 1, minlength=len(values.categories) + 1)[1:])
+    categories = pd.Index(list(values.categories[in_use]))
     order = np.argsort(categories.to_numpy(), kind="stable")
+    dense = np.full(len(values.categories) + 1, -1, dtype=np.int64)  # old code -> in-use code
+    dense[in_use] = np.arange(len(in_use))
     return pd.Categorical.from_codes(
-        _recode(used.codes, order), categories=categories[order], validate=False
+        _recode(dense[codes], order), categories=categories[order], validate=False
     )
 
 

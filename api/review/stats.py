@@ -198,6 +198,19 @@ class GroupStatistics:
         )
 
 
+def _group_order(codes: np.ndarray, values: np.ndarray, n_groups: int) -> np.ndarray:
+    """The order that sorts by group, then by value within a group (ties by position).
+
+    The same order as ``np.lexsort((values, codes))`` in two stable passes, values first: a
+    stable sort keeps the value order within each group, and small group codes sort by radix.
+    """
+    by_value = np.argsort(values, kind="stable")
+    grouped = codes[by_value]
+    if n_groups <= np.iinfo(np.int16).max:
+        grouped = grouped.astype(np.int16)
+    return by_value[np.argsort(grouped, kind="stable")]
+
+
 def group_statistics(
     codes: np.ndarray,
     values: np.ndarray,
@@ -240,8 +253,7 @@ def group_statistics(
     codes, values = codes[keep], values[keep]
     if len(codes) and (codes.min() < 0 or codes.max() >= n_groups):
         raise ReviewError("group codes out of range")
-    order = np.lexsort((values, codes))
-    sorted_values = values[order]
+    sorted_values = values[_group_order(codes, values, n_groups)]
     n = np.bincount(codes, minlength=n_groups).astype(np.int64)
     starts = np.cumsum(n) - n
     has = n > 0

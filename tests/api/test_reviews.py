@@ -236,3 +236,52 @@ def test_review_events_of_an_empty_period(store) -> None:
     assert len(frame) == 0
     assert "event_id" in frame.columns and "fluoro_time_s" in frame.columns
     assert frame["dap_gy_cm2"].dtype == np.float64
+
+
+def test_sqlite_reads_through_arrow_and_the_plain_way_alike(store, monkeypatch) -> None:
+    # SQLite: the columns come through the ADBC driver (its own connections to the file); the
+    # plain rows of the session's connection must give the very same table
+    if store.backend != "sqlite":
+        return  # PostgreSQL has its COPY path, compared by the test above
+    import beamaudit.api.reviews as reviews
+
+    _fill(store.session_factory, seed=5)
+    taken: list[bool] = []
+    arrow = reviews._dense_by_arrow
+
+    def spy(*args: Any) -> Any:
+        out = arrow(*args)
+        taken.append(out is not None)
+        return out
+
+    monkeypatch.setattr(reviews, "_dense_by_arrow", spy)
+    with store.session_factory() as session:
+        through_arrow = review_events(session, start=START, end=END)
+    monkeypatch.setattr(reviews, "_dense_by_arrow", lambda *args: None)
+    with store.session_factory() as session:
+        plain = review_events(session, start=START, end=END)
+    assert taken == [True]
+    pd.testing.assert_frame_equal(through_arrow, plain)
+
+
+def test_events_the_session_has_not_committed_are_read_too(store) -> None:
+    # the Arrow reader sees only committed events: with uncommitted ones in the session it
+    # must leave the reading to the session's connection
+    _fill(store.session_factory, n=60, seed=3)
+    with store.session_factory.begin() as session:
+        before = len(review_events(session, start=START, end=END))
+        session.execute(  # ids given, as _fill gives them (PostgreSQL's sequences stay at 1)
+            insert(m.SourceObjectRow),
+            {"id": 9001, "sop_instance_uid": "2.25.777", "sop_class_uid": "1.2.3",
+             "kind": "image_header", "received_via": "test"},
+        )  # fmt: skip
+        session.execute(
+            insert(m.ExposureEventRow),
+            {"id": 9001, "event_key": "2.25.777#0", "source_object_id": 9001, "event_index": 0,
+             "source_kind": "image_header", "superseded": False, "modality": "DX",
+             "event_datetime": datetime(2026, 3, 15, tzinfo=UTC), "dap_gy_cm2": 0.2},
+        )  # fmt: skip
+        after = review_events(session, start=START, end=END)
+        session.rollback()
+    assert len(after) == before + 1
+    assert after["dap_gy_cm2"].iloc[-1] == 0.2

@@ -188,3 +188,14 @@ def test_status_rules() -> None:
         "possibly_above",  # no interval at this n: never a certain "above"
         "below_level",  # CI low equal to the level is not above it
     ]
+
+
+@pytest.mark.parametrize("n_groups", [1, 7, 40_000])
+def test_group_order_is_numpy_lexsort(n_groups: int) -> None:
+    # the two-pass order must be numpy's lexsort((values, codes)) exactly, ties included
+    from beamaudit.api.review.stats import _group_order
+
+    rng = np.random.default_rng(n_groups)
+    codes = rng.integers(0, n_groups, 20_000)
+    values = np.round(rng.lognormal(0.0, 1.0, 20_000), 1)  # rounded: many ties
+    assert np.array_equal(_group_order(codes, values, n_groups), np.lexsort((values, codes)))
