@@ -190,7 +190,6 @@ def _listener_node(database_url: str, key: bytes, conn: Connection) -> None:
     anything is received on ``conn``, then sends ``("ids", event ids it stored)``.
     """
     from beamaudit.api.pipeline import Pipeline
-    from beamaudit.api.postprocess import Completion
     from beamaudit.api.receiving import make_store_handler
     from beamaudit.api.store import make_engine, make_session_factory
     from beamaudit.ingest.listener import ListenerConfig, start_listener
@@ -199,8 +198,8 @@ def _listener_node(database_url: str, key: bytes, conn: Connection) -> None:
     try:
         engine = make_engine(database_url)
         received: list[int] = []
-        handler = make_store_handler(
-            Pipeline(make_session_factory(engine), completion=Completion()),
+        handler = make_store_handler(  # completed in one batch after the sends (below)
+            Pipeline(make_session_factory(engine)),
             Pseudonymiser(key),
             after_store=received.extend,
         )
@@ -355,7 +354,7 @@ def run_demo(
     """
     from beamaudit.api.demo.generate import generate_scenario
     from beamaudit.api.pipeline import Pipeline
-    from beamaudit.api.postprocess import Completion
+    from beamaudit.api.postprocess import Completion, process_new_events
     from beamaudit.api.receiving import make_store_handler
     from beamaudit.api.review import (
         Period,
@@ -394,6 +393,8 @@ def run_demo(
     sop_classes = sorted({uid for r in cstore_rooms for uid in r["sop_classes"]})
     url = _database_url(sessions) if cstore_nodes > 0 else None
     with phase("cstore"):
+        # the listener processes store as they receive; their events are completed (exam
+        # types, figures) in one batch after the sends, the in-process listener's as it stores
         if url is not None:
             nodes = _Nodes(url, key, cstore_nodes)
             try:
@@ -401,12 +402,15 @@ def run_demo(
             except BaseException:
                 nodes.close()
                 raise
-            nodes.stop()
+            received = nodes.stop()
         else:  # an in-memory database: one listener in this process
+            received = []
             handler = make_store_handler(pipeline, Pseudonymiser(key))
             with start_listener(ListenerConfig(ae_title=_CALLED_AE, port=0), handler) as listener:
                 counts = _send_all(files, [listener.port], sop_classes)
     outcome.cstore = dict(counts)
+    with phase("postprocess"):
+        process_new_events(sessions, received)
     params = manifest.get("review_parameters") or {}
     known = set(ReviewParameters.__dataclass_fields__)
     overrides: dict[str, Any] = {

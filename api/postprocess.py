@@ -137,11 +137,12 @@ class Completion:
 
     def _current_rules(self, session: Session) -> Any:
         """The stored rules (the shipped ones seeded into an empty store), read per batch."""
-        t = m.MappingRuleRow
+        # the rules as stored, patterns as their JSON text: compared, not decoded
         stored = tuple(
-            (r.priority, r.exam_type, tuple(sorted((r.patterns or {}).items())), r.note)
-            for r in session.execute(
-                select(t.priority, t.exam_type, t.patterns, t.note).order_by(t.priority)
+            tuple(r)
+            for r in session.connection().exec_driver_sql(
+                "SELECT priority, exam_type, CAST(patterns AS TEXT), note FROM mapping_rules "
+                "ORDER BY priority"
             )
         )
         if not stored:

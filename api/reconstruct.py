@@ -281,7 +281,24 @@ def _table(model: type[Any]) -> Table:
     return cast(Table, model.__table__)
 
 
-def _room_snapshot(room: m.Room | None) -> dict[str, Any] | None:
+#: what of a room the model uses (its snapshot in a recipe)
+_ROOM_BEAM_COLUMNS = (
+    "anode_material",
+    "anode_angle_deg",
+    "ripple_percent",
+    "filtration",
+    "table_to_detector_mm",
+)
+#: what of a calibration the model uses
+_CALIBRATION_COLUMNS = (
+    "output_scale",
+    "output_scale_uncertainty_rel",
+    "inherent_filtration_mm_al",
+    "n_measurements",
+)
+
+
+def _room_snapshot(room: Any) -> dict[str, Any] | None:
     if room is None:
         return None
     return {
@@ -294,7 +311,7 @@ def _room_snapshot(room: m.Room | None) -> dict[str, Any] | None:
     }
 
 
-def _calibration_snapshot(row: m.RoomCalibrationRow | None) -> dict[str, Any] | None:
+def _calibration_snapshot(row: Any) -> dict[str, Any] | None:
     if row is None:
         return None
     return {
@@ -306,16 +323,15 @@ def _calibration_snapshot(row: m.RoomCalibrationRow | None) -> dict[str, Any] | 
     }
 
 
-def _active_calibration_rows(
-    session: Session, room_ids: list[int]
-) -> dict[int, m.RoomCalibrationRow]:
-    """Each room's active calibration, as :func:`_active_calibration_row` picks it."""
-    t = m.RoomCalibrationRow
-    out: dict[int, m.RoomCalibrationRow] = {}
-    for row in session.scalars(
-        select(t)
-        .where(t.room_id.in_(room_ids), t.active.is_(True))
-        .order_by(t.room_id, t.created_at.desc(), t.id.desc())
+def _active_calibration_rows(session: Session, room_ids: list[int]) -> dict[int, Any]:
+    """Each room's active calibration (its columns the model uses), as
+    :func:`_active_calibration_row` picks it."""
+    t = _table(m.RoomCalibrationRow)
+    out: dict[int, Any] = {}
+    for row in session.execute(
+        select(t.c.id, t.c.room_id, *(t.c[n] for n in _CALIBRATION_COLUMNS))
+        .where(t.c.room_id.in_(room_ids), t.c.active.is_(True))
+        .order_by(t.c.room_id, t.c.created_at.desc(), t.c.id.desc())
     ):
         out.setdefault(row.room_id, row)
     return out
@@ -370,7 +386,9 @@ class RoomBeams:
         wanted = sorted({r for r in room_ids if r not in self.rooms})
         if not wanted:
             return
-        found = {r.id: r for r in session.scalars(select(m.Room).where(m.Room.id.in_(wanted)))}
+        t = _table(m.Room)
+        columns = [t.c[n] for n in ("id", *_ROOM_BEAM_COLUMNS)]
+        found = {r.id: r for r in session.execute(select(*columns).where(t.c.id.in_(wanted)))}
         active = _active_calibration_rows(session, wanted)
         for room_id in wanted:
             recipe = _recipe(found.get(room_id), active.get(room_id))
@@ -390,7 +408,7 @@ def _room_ids(session: Session, chunk: list[int]) -> set[int]:
     }
 
 
-def _recipe(room: m.Room | None, calibration: m.RoomCalibrationRow | None) -> dict[str, Any]:
+def _recipe(room: Any, calibration: Any) -> dict[str, Any]:
     from beamaudit import __version__
 
     return {
