@@ -21,7 +21,9 @@
 from __future__ import annotations
 
 import gc
+from collections.abc import Iterator
 from concurrent.futures import ThreadPoolExecutor
+from contextlib import contextmanager
 from dataclasses import replace
 from datetime import UTC, date, datetime
 from pathlib import Path
@@ -245,7 +247,12 @@ def _study_column(study_ids: np.ndarray, event_ids: np.ndarray) -> pd.Categorica
     uniques, known = np.unique(study_ids[has], return_inverse=True)  # ids sorted: by id order
     codes[has] = known.reshape(-1)
     codes[~has] = len(uniques) + np.arange(int((~has).sum()))
-    labels = [str(int(u)) for u in uniques] + [f"(event {i})" for i in event_ids[~has]]
+    labels = np.concatenate(
+        [
+            uniques.astype(np.int64).astype(str).astype(object),  # the ids' decimal digits
+            np.array([f"(event {i})" for i in event_ids[~has]], dtype=object),
+        ]
+    )
     return pd.Categorical.from_codes(codes, categories=pd.Index(labels, dtype=object))
 
 
@@ -277,7 +284,8 @@ _COPY_SIGNATURE = b"PGCOPY\n\xff\r\n\x00"
 def _dense_by_copy(
     session: Session, conditions: list[Any], epoch: Any, values: dict[str, Any]
 ) -> dict[str, Any] | None:
-    """The dense columns by one binary ``COPY`` (PostgreSQL), parsed as a NumPy record array.
+    """The dense columns by one binary ``COPY`` (PostgreSQL), parsed as a NumPy record array:
+    the way through the session's own connection when the ADBC driver cannot connect.
 
     Every column goes as ``float8`` (ids are far below 2**53, so exactly), NULL as NaN, and the
     two text columns as positions in the lists of the period's distinct values, so that every
@@ -382,20 +390,118 @@ def _sqlite_file(session: Session) -> str | None:
 def _dense_by_arrow(
     session: Session, conditions: list[Any], epoch: Any, values: dict[str, Any]
 ) -> dict[str, Any] | None:
-    """The dense and the sparse columns from SQLite in one read through the ADBC SQLite driver.
+    """The dense and the sparse columns in one read through an ADBC driver, as Arrow arrays.
 
-    The sqlite3 module makes a Python object of every value it returns (twelve million for a
-    month of a million events); the ADBC driver (Apache Arrow's database connectivity) writes the
+    The DBAPI drivers make a Python object of every value they return (twelve million for a
+    month of a million events); the ADBC drivers (Apache Arrow's database connectivity) write the
     values into Arrow arrays in C, which NumPy and pandas take as they are. Every number is read
-    as REAL (``_SQLITE_NULL`` for NULL: SQLite has no NaN) and the two texts as texts ('' for
-    NULL), so that every column has one type whatever its first rows hold; the sparse columns
-    come in the same read (a second pass over the table costs more than carrying them).
+    as a double and the two texts as texts ('' for NULL), so that every column has one type
+    whatever its first rows hold; the sparse columns come in the same read (a second pass over
+    the table costs more than carrying them).
 
-    The driver reads the database file through a connection of its own: None (the rows are read
-    the plain way) when the store is not a plain file, when the driver is missing, or when the
-    events it sees are not the session's (the session holds uncommitted events of its own, or
-    events were committed in between).
+    * SQLite (a database file): the ADBC SQLite driver, in two threads (events of even and of odd
+      id; it works outside the GIL), numbers with ``_SQLITE_NULL`` for NULL (SQLite has no NaN).
+    * PostgreSQL: the ADBC PostgreSQL driver (binary ``COPY`` parsed in C), one connection (a
+      second one measured no faster: the server is the bound), NULL as Arrow's null.
+
+    The driver reads through a connection of its own: None (the rows are read another way) when
+    the store is not a plain file or the server refuses the driver's connection, when the driver
+    is missing, or when the events it sees are not the session's (the session holds uncommitted
+    events of its own, or events were committed in between: count and highest id differ).
     """
+    backend = session.get_bind().dialect.name
+    if backend == "sqlite":
+        reader = _sqlite_arrow_reader(session)
+    elif backend == "postgresql":
+        reader = _postgres_arrow_reader(session)
+    else:
+        reader = None
+    if reader is None:
+        return None
+    connect, DriverError = reader
+    dialect = session.get_bind().dialect
+    texts = ("modality", "exam_type")
+    nothing: Any = literal_column(repr(_SQLITE_NULL)) if backend == "sqlite" else None
+
+    def number(column: Any) -> Any:
+        as_float = cast(column, Float)
+        return as_float if nothing is None else func.coalesce(as_float, nothing)
+
+    selected = [
+        func.coalesce(c, "") if c.key in texts else number(c) for c in _DENSE_SELECT
+    ] + [number(epoch)] + [number(c) for _, c in _SPARSE_COLUMNS]  # fmt: skip
+    E = m.ExposureEventRow
+    census = select(func.count(), func.max(E.id))
+    expected = tuple(session.execute(census).one())
+    census_sql = str(census.compile(dialect=dialect))
+    if backend == "sqlite":
+        compiled = (
+            select(*selected)
+            .where(*conditions)
+            .compile(dialect=dialect, compile_kwargs={"render_postcompile": True})
+        )
+        params = {**compiled.params, **values}
+        args = tuple(params[k] for k in compiled.positiontup or ())
+        # two readers, on the events of even and of odd id: each pass tests every row, but
+        # decodes only its half, whatever ids the period holds
+        sql = f"{compiled} AND {E.__tablename__}.id % 2 = ?"
+        parts: list[tuple[str, tuple[Any, ...]]] = [(sql, (*args, 0)), (sql, (*args, 1))]
+    else:
+        # values written into the statement (the period's bounds and constant texts, none from
+        # a user): the driver runs a statement without parameters as a binary COPY, a third
+        # faster than one with parameters
+        compiled = (
+            select(*selected)
+            .where(*conditions)
+            .params(**values)
+            .compile(dialect=dialect, compile_kwargs={"literal_binds": True})
+        )
+        parts = [(str(compiled), ())]
+
+    def read(part: tuple[str, tuple[Any, ...]]) -> Any:
+        with connect() as cursor:
+            cursor.execute(census_sql)
+            if tuple(cursor.fetchone() or ()) != expected:
+                return None
+            sql, args = part
+            cursor.execute(sql, args or None)
+            return cursor.fetch_arrow_table()
+
+    try:
+        if len(parts) == 1:
+            pieces = [read(parts[0])]
+        else:
+            with ThreadPoolExecutor(max_workers=len(parts)) as pool:
+                pieces = list(pool.map(read, parts))
+    except DriverError:  # the driver could not read the store: another way reads it
+        return None
+    if any(piece is None for piece in pieces):
+        return None
+    import pyarrow
+
+    # one chunk per column (the drivers hand rows over in batches), in id order
+    table = pyarrow.concat_tables(pieces).combine_chunks()
+    ids = table.column(0).to_numpy(zero_copy_only=False)
+    if len(ids) > 1 and not (np.diff(ids) > 0).all():
+        table = table.take(np.argsort(ids, kind="stable"))  # sorted runs or none: merged
+    out: dict[str, Any] = {}
+    names = [c.key for c in _DENSE_SELECT] + ["epoch_s"] + [n for n, _ in _SPARSE_COLUMNS]
+    for j, name in enumerate(names):
+        column = table.column(j)
+        if name in texts:
+            out[name] = _arrow_categorical(column)
+            continue
+        if not pyarrow.types.is_float64(column.type):  # double by the query: else not understood
+            return None
+        numbers = column.to_numpy(zero_copy_only=False)  # Arrow's nulls as NaN
+        out[name] = np.where(numbers == _SQLITE_NULL, np.nan, numbers)
+    out["event_id"] = out["event_id"].astype(np.int64)
+    return out
+
+
+def _sqlite_arrow_reader(session: Session) -> tuple[Any, Any] | None:
+    """How to read the session's SQLite file through the ADBC SQLite driver: a cursor factory
+    and the driver's error class; None when that cannot be done."""
     path = _sqlite_file(session)
     if path is None:
         return None
@@ -404,69 +510,43 @@ def _dense_by_arrow(
         from adbc_driver_manager import Error as DriverError
     except ImportError:  # an install without the driver: the plain way
         return None
-    nothing: Any = literal_column(repr(_SQLITE_NULL))
-    texts = ("modality", "exam_type")
-
-    def number(column: Any) -> Any:
-        return func.coalesce(cast(column, Float), nothing)
-
-    selected = [
-        func.coalesce(c, "") if c.key in texts else number(c) for c in _DENSE_SELECT
-    ] + [number(epoch)] + [number(c) for _, c in _SPARSE_COLUMNS]  # fmt: skip
-    E = m.ExposureEventRow
-    census = select(func.count(), func.max(E.id))
-    conn = session.connection()
-    compiled = (
-        select(*selected)
-        .where(*conditions)
-        .compile(dialect=conn.dialect, compile_kwargs={"render_postcompile": True})
-    )
-    params = {**compiled.params, **values}
-    args = tuple(params[k] for k in compiled.positiontup or ())
-    expected = tuple(session.execute(census).one())
     uri = Path(path).resolve().as_uri()
-    # two readers, on the events of even and of odd id (the driver works outside the GIL;
-    # each pass tests every row, but decodes only its half, whatever ids the period holds)
-    sql = f"{compiled} AND {E.__tablename__}.id % 2 = ?"
-    parts = [(sql, (*args, 0)), (sql, (*args, 1))]
 
-    def read(part: tuple[str, tuple[Any, ...]]) -> Any:
+    @contextmanager
+    def connect() -> Iterator[Any]:
         with adbc.connect(uri) as arrow, arrow.cursor() as cursor:
             # reads only; waits out a writer's lock as the store's own connections do
             cursor.execute(f"PRAGMA busy_timeout = {SQLITE_BUSY_TIMEOUT_MS}")
-            cursor.execute(str(census.compile(dialect=conn.dialect)))
-            if tuple(cursor.fetchone() or ()) != expected:
-                return None
-            cursor.execute(*part)
-            return cursor.fetch_arrow_table()
+            yield cursor  # census and read in one transaction: one snapshot of the file
 
+    return connect, DriverError
+
+
+def _postgres_arrow_reader(session: Session) -> tuple[Any, Any] | None:
+    """How to read the session's PostgreSQL database through the ADBC PostgreSQL driver (the
+    session's URL as a libpq URI, its ``search_path`` set on the driver's connection, census and
+    read in one repeatable-read transaction); None when the driver is missing."""
     try:
-        with ThreadPoolExecutor(max_workers=2) as pool:
-            halves = list(pool.map(read, parts))
-    except DriverError:  # the driver could not read the file: the plain way reads it
+        import adbc_driver_postgresql.dbapi as adbc
+        from adbc_driver_manager import Error as DriverError
+    except ImportError:
         return None
-    if any(half is None for half in halves):
-        return None
-    import pyarrow
+    url = session.connection().engine.url
+    uri = url.set(drivername="postgresql").render_as_string(hide_password=False)
+    search_path = session.execute(select(func.current_setting("search_path"))).scalar()
 
-    # one chunk per column (the driver hands rows over in batches of a thousand), in id order
-    table = pyarrow.concat_tables(halves).combine_chunks()
-    ids = table.column(0).to_numpy()
-    if len(ids) > 1 and not (np.diff(ids) > 0).all():
-        table = table.take(np.argsort(ids, kind="stable"))  # two sorted runs: merged
-    out: dict[str, Any] = {}
-    names = [c.key for c in _DENSE_SELECT] + ["epoch_s"] + [n for n, _ in _SPARSE_COLUMNS]
-    for j, name in enumerate(names):
-        column = table.column(j)
-        if name in texts:
-            out[name] = _arrow_categorical(column)
-            continue
-        numbers = column.to_numpy()
-        if numbers.dtype != np.float64:  # REAL by the query: anything else is not understood
-            return None
-        out[name] = np.where(numbers == _SQLITE_NULL, np.nan, numbers)
-    out["event_id"] = out["event_id"].astype(np.int64)
-    return out
+    @contextmanager
+    def connect() -> Iterator[Any]:
+        with adbc.connect(uri, autocommit=True) as arrow, arrow.cursor() as cursor:
+            cursor.execute("SELECT set_config('search_path', $1, false)", (search_path,))
+            cursor.fetchall()
+            cursor.execute("BEGIN ISOLATION LEVEL REPEATABLE READ READ ONLY")
+            try:
+                yield cursor
+            finally:
+                cursor.execute("ROLLBACK")
+
+    return connect, DriverError
 
 
 def _arrow_categorical(column: Any) -> pd.Categorical:
@@ -497,12 +577,9 @@ def review_events(session: Session, *, start: date, end: date) -> pd.DataFrame:
     """
     E = m.ExposureEventRow
     conditions, epoch, values = _period_conditions(session, start=start, end=end)
-    dense = None
-    backend = session.get_bind().dialect.name
-    if backend == "postgresql":
+    dense = _dense_by_arrow(session, conditions, epoch, values)
+    if dense is None and session.get_bind().dialect.name == "postgresql":
         dense = _dense_by_copy(session, conditions, epoch, values)
-    elif backend == "sqlite":
-        dense = _dense_by_arrow(session, conditions, epoch, values)
     if dense is None:
         dense = _dense_by_rows(session, conditions, epoch, values)
     event_ids = dense["event_id"]

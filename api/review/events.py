@@ -44,6 +44,7 @@ first event giving its time, site, room and device, and its first recorded weigh
 from __future__ import annotations
 
 from collections.abc import Sequence
+from typing import Any
 
 import numpy as np
 import pandas as pd
@@ -333,8 +334,11 @@ def build_units(
     grouped = exams.groupby(codes, sort=True)
     # groupby().first() skips missing values: the location comes from the first event that has it
     firsts = grouped[["study_uid", *_LOCATION, "month_key", "patient_weight_kg"]].first()
-    for c in firsts.columns:
-        studies[c] = firsts[c].to_numpy()
+    for c in firsts.columns:  # categoricals stay categoricals (with the events' categories)
+        column = firsts[c]
+        studies[c] = (
+            column.array if isinstance(column.dtype, pd.CategoricalDtype) else column.to_numpy()
+        )
     sums = grouped[quantity_columns].sum(min_count=1)
     maxima = grouped[quantity_columns].max()
     means = grouped[quantity_columns].mean()
@@ -353,28 +357,28 @@ def build_units(
 
     projections = events.loc[is_event, ["event_id", *base, *quantity_columns]]
     n_events = len(projections)
-    wide = pd.concat(
-        [projections.drop(columns="event_id"), studies[[*base, *quantity_columns]]],
-        ignore_index=True,
-    )
+    # the projections' rows, then the examinations' ("wide"), one column at a time
     event_ids = np.concatenate(
         [projections["event_id"].to_numpy(dtype=np.int64), np.full(len(studies), -1, np.int64)]
     )
-    # one row per (examination, quantity) with a value: positions into ``wide``, taken at once
-    positions, quantity_codes = [], []
+    wide_exam_type = pd.Series(_stacked(projections["exam_type"], studies["exam_type"]))
+    # one row per (examination, quantity) with a value: positions into the wide rows
+    positions, quantity_codes, value_parts = [], [], []
     for index, q in enumerate(quantity_columns):
         with_q = [t.exam_type for t in catalogue if q in t.quantities]
-        rows = wide["exam_type"].isin(with_q).to_numpy() & wide[q].notna().to_numpy()
+        wide_q = np.concatenate(
+            [projections[q].to_numpy(dtype=np.float64), studies[q].to_numpy(dtype=np.float64)]
+        )
+        rows = wide_exam_type.isin(with_q).to_numpy() & ~np.isnan(wide_q)
         positions.append(np.flatnonzero(rows))
+        value_parts.append(wide_q[rows])
         quantity_codes.append(np.full(int(rows.sum()), index, dtype=np.int64))
     taken = np.concatenate(positions)
-    units = wide.iloc[taken][base].reset_index(drop=True)
-    values = np.concatenate(
-        [
-            wide[q].to_numpy(dtype=np.float64)[p]
-            for q, p in zip(quantity_columns, positions, strict=True)
-        ]
+    units = pd.DataFrame(
+        {c: _stacked(projections[c], studies[c], taken) for c in base},
+        index=pd.RangeIndex(len(taken)),
     )
+    values = np.concatenate(value_parts)
     from_event = taken < n_events
     units.insert(
         0, "unit_kind", pd.Categorical.from_codes(np.where(from_event, 0, 1), ["event", "study"])
@@ -385,6 +389,24 @@ def build_units(
     units["quantity"] = pd.Categorical.from_codes(np.concatenate(quantity_codes), quantity_columns)
     units["value"] = values
     return units.loc[:, list(UNIT_COLUMNS)]
+
+
+def _stacked(first: pd.Series, second: pd.Series, taken: np.ndarray | None = None) -> Any:
+    """The values of ``first`` then ``second`` (at positions ``taken``, default all) as one
+    array: a categorical when both are categoricals of the same categories (their codes stacked,
+    no object per row), otherwise as ``pd.concat`` would give them."""
+    if (
+        isinstance(first.dtype, pd.CategoricalDtype)
+        and isinstance(second.dtype, pd.CategoricalDtype)
+        and first.cat.categories.equals(second.cat.categories)  # in the same order
+        and first.cat.ordered == second.cat.ordered
+    ):
+        codes = np.concatenate([first.cat.codes.to_numpy(), second.cat.codes.to_numpy()])
+        if taken is not None:
+            codes = codes[taken]
+        return pd.Categorical.from_codes(codes, dtype=first.dtype)
+    both = pd.concat([first, second], ignore_index=True)
+    return (both if taken is None else both.iloc[taken]).array
 
 
 def _aggregation(catalogue: ExamCatalogue, exam_type: str, quantity: str) -> str:

@@ -238,11 +238,10 @@ def test_review_events_of_an_empty_period(store) -> None:
     assert frame["dap_gy_cm2"].dtype == np.float64
 
 
-def test_sqlite_reads_through_arrow_and_the_plain_way_alike(store, monkeypatch) -> None:
-    # SQLite: the columns come through the ADBC driver (its own connections to the file); the
-    # plain rows of the session's connection must give the very same table
-    if store.backend != "sqlite":
-        return  # PostgreSQL has its COPY path, compared by the test above
+def test_the_arrow_copy_and_plain_reads_give_the_same_table(store, monkeypatch) -> None:
+    # the columns come through an ADBC driver (its own connection to the store); on PostgreSQL
+    # the binary COPY through the session's connection is the next way, and plain rows the last:
+    # each must give the very same table
     import beamaudit.api.reviews as reviews
 
     _fill(store.session_factory, seed=5)
@@ -254,14 +253,53 @@ def test_sqlite_reads_through_arrow_and_the_plain_way_alike(store, monkeypatch) 
         taken.append(out is not None)
         return out
 
+    def read() -> pd.DataFrame:
+        with store.session_factory() as session:
+            return review_events(session, start=START, end=END)
+
     monkeypatch.setattr(reviews, "_dense_by_arrow", spy)
-    with store.session_factory() as session:
-        through_arrow = review_events(session, start=START, end=END)
-    monkeypatch.setattr(reviews, "_dense_by_arrow", lambda *args: None)
-    with store.session_factory() as session:
-        plain = review_events(session, start=START, end=END)
+    through_arrow = read()
     assert taken == [True]
-    pd.testing.assert_frame_equal(through_arrow, plain)
+    monkeypatch.setattr(reviews, "_dense_by_arrow", lambda *args: None)
+    if store.backend == "postgresql":
+        copied = reviews._dense_by_copy
+        taken.clear()
+        monkeypatch.setattr(reviews, "_dense_by_copy", lambda *a: taken.append(True) or copied(*a))
+        pd.testing.assert_frame_equal(read(), through_arrow)
+        assert taken == [True]
+        monkeypatch.setattr(reviews, "_dense_by_copy", lambda *args: None)
+    pd.testing.assert_frame_equal(read(), through_arrow)
+
+
+def test_a_store_the_driver_cannot_reach_is_read_through_the_session(store, monkeypatch) -> None:
+    # the driver's own connection is refused (a password given only to the store's engine, say):
+    # the review reads through the session's connection, with the same result
+    import beamaudit.api.reviews as reviews
+
+    _fill(store.session_factory, n=90, seed=9)
+    with store.session_factory() as session:
+        expected = review_events(session, start=START, end=END)
+    name = "_postgres_arrow_reader" if store.backend == "postgresql" else "_sqlite_arrow_reader"
+    reader = getattr(reviews, name)
+    monkeypatch.setattr(reviews, name, lambda session: _refusing(reader(session)))
+    with store.session_factory() as session:
+        pd.testing.assert_frame_equal(review_events(session, start=START, end=END), expected)
+
+
+def _refusing(reader: Any) -> Any:
+    """A reader whose connections fail as a refused one does (the driver's error)."""
+    from contextlib import contextmanager
+
+    from adbc_driver_manager import AdbcStatusCode, OperationalError
+
+    _, error = reader
+
+    @contextmanager
+    def connect() -> Any:
+        raise OperationalError("connection refused (test)", status_code=AdbcStatusCode.IO)
+        yield
+
+    return connect, error
 
 
 def test_events_the_session_has_not_committed_are_read_too(store) -> None:
