@@ -28,7 +28,7 @@ from beamaudit.api.review.quantities import normalise_unit, to_canonical_unit
 HEADER = ",".join(LEVEL_COLUMNS)
 UK = "UK NDRL (UKHSA)"
 BSS = "IAEA BSS 115 guidance levels"
-DEMO = "Demo General Hospital local DRLs (INVENTED)"
+DEMO = "Hollowbrook General Hospital local DRLs (INVENTED)"
 
 
 def national(name: str) -> ReferenceLevelSet:

@@ -371,7 +371,7 @@ def test_json_layout(make_events) -> None:
     assert {s["name"] for s in data["level_sets"]} == {
         "UK NDRL (UKHSA)",
         "IAEA BSS 115 guidance levels",
-        "Demo General Hospital local DRLs (INVENTED)",
+        "Hollowbrook General Hospital local DRLs (INVENTED)",
     }
     group_keys = {
         "room", "exam_type", "quantity", "n", "n_standard", "median", "ci_low", "ci_high",
