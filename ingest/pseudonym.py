@@ -13,11 +13,13 @@ date) and the birth date is discarded by the caller.
 
 from __future__ import annotations
 
+import contextlib
 import hashlib
 import hmac
 import os
 import re
 import secrets
+import tempfile
 from datetime import date
 from pathlib import Path
 
@@ -85,6 +87,12 @@ class Pseudonymiser:
 def load_or_create_key(path: Path) -> bytes:
     """The key in ``path``, creating a random one (owner read/write only) on first use.
 
+    The key is written whole to a private temporary file beside ``path`` and then hard-linked
+    into place, which fails if ``path`` exists: processes that start together on a fresh install
+    (two listeners, a listener and a scan) each see no key file or the whole key, never a file
+    still being written, and the first key linked is the one every process uses. On a file
+    system without hard links the key file is created exclusively and written in place.
+
     Raises
     ------
     IngestError
@@ -92,17 +100,8 @@ def load_or_create_key(path: Path) -> bytes:
         or written.
     """
     path = Path(path)
-    try:
-        fd = os.open(path, os.O_WRONLY | os.O_CREAT | os.O_EXCL, 0o600)
-    except FileExistsError:
-        pass
-    except OSError as exc:
-        raise IngestError("bad_key", f"cannot create key file: {exc.strerror}", str(path)) from exc
-    else:
-        with os.fdopen(fd, "wb") as fh:
-            fh.write(secrets.token_bytes(KEY_BYTES))
-            fh.flush()
-            os.fsync(fh.fileno())
+    if not path.exists():
+        _create_key(path)
     try:
         key = path.read_bytes()
     except OSError as exc:
@@ -114,6 +113,42 @@ def load_or_create_key(path: Path) -> bytes:
             str(path),
         )
     return key
+
+
+def _create_key(path: Path) -> None:
+    """A new random key at ``path``, unless a key is there already (:func:`load_or_create_key`)."""
+    key = secrets.token_bytes(KEY_BYTES)
+    try:
+        fd, temporary = tempfile.mkstemp(dir=path.parent, prefix=f".{path.name}.", suffix=".new")
+    except OSError as exc:  # mkstemp creates the file for its owner only (0600)
+        raise IngestError("bad_key", f"cannot create key file: {exc.strerror}", str(path)) from exc
+    try:
+        with os.fdopen(fd, "wb") as fh:
+            fh.write(key)
+            fh.flush()
+            os.fsync(fh.fileno())
+        try:
+            os.link(temporary, path)
+            return
+        except FileExistsError:
+            return  # another process linked its key first: that key is the key
+        except OSError:
+            pass  # no hard links on this file system: created exclusively below
+    except OSError as exc:
+        raise IngestError("bad_key", f"cannot write key file: {exc.strerror}", str(path)) from exc
+    finally:
+        with contextlib.suppress(OSError):
+            os.unlink(temporary)
+    try:
+        fd = os.open(path, os.O_WRONLY | os.O_CREAT | os.O_EXCL, 0o600)
+    except FileExistsError:
+        return
+    except OSError as exc:
+        raise IngestError("bad_key", f"cannot create key file: {exc.strerror}", str(path)) from exc
+    with os.fdopen(fd, "wb") as fh:
+        fh.write(key)
+        fh.flush()
+        os.fsync(fh.fileno())
 
 
 def age_from_age_string(value: str) -> float | None:

@@ -4,9 +4,11 @@ from __future__ import annotations
 
 import hashlib
 import hmac
+import multiprocessing
 import stat
 from datetime import date, timedelta
 from pathlib import Path
+from typing import Any
 
 import pytest
 from hypothesis import given
@@ -105,3 +107,54 @@ def test_pseudonym_is_deterministic_hex(patient_id: str) -> None:
     value = p.pseudonymise(patient_id)
     assert value == p.pseudonymise(patient_id)
     assert len(value) == 32 and all(c in "0123456789abcdef" for c in value)
+
+
+def _load_after(barrier: Any, path: Path, out: Any) -> None:
+    barrier.wait()
+    try:
+        out.put(load_or_create_key(path))
+    except IngestError as exc:
+        out.put(str(exc))
+
+
+def test_processes_starting_together_share_one_whole_key(tmp_path: Path) -> None:
+    # two listeners started at once on a fresh install both create the key on first use: each
+    # must read the whole key the first one wrote, never a file still being written (seen as
+    # "key file holds 0 bytes" before the key was written whole and linked into place)
+    context = multiprocessing.get_context("fork")
+    for attempt in range(12):
+        path = tmp_path / f"race-{attempt}.key"
+        n = 6
+        barrier, out = context.Barrier(n), context.Queue()
+        workers = [context.Process(target=_load_after, args=(barrier, path, out)) for _ in range(n)]
+        for w in workers:
+            w.start()
+        keys = [out.get(timeout=30) for _ in workers]
+        for w in workers:
+            w.join(timeout=30)
+        assert all(isinstance(k, bytes) for k in keys), [
+            k for k in keys if not isinstance(k, bytes)
+        ]
+        assert len(set(keys)) == 1 and len(keys[0]) == 32
+        assert path.read_bytes() == keys[0]
+        assert stat.S_IMODE(path.stat().st_mode) == 0o600
+    assert sorted(p.name for p in tmp_path.iterdir()) == sorted(
+        f"race-{i}.key" for i in range(12)
+    )  # no temporary file left behind
+
+
+def test_key_is_created_in_place_where_hard_links_are_refused(tmp_path: Path, monkeypatch) -> None:
+    # some network and FUSE file systems refuse hard links (EPERM): the key file is then
+    # created exclusively and written in place, with the same permissions and no file left over
+    import beamaudit.ingest.pseudonym as pseudonym
+
+    def refuse(*args: object) -> None:
+        raise PermissionError(1, "Operation not permitted")
+
+    monkeypatch.setattr(pseudonym.os, "link", refuse)
+    path = tmp_path / "nolinks.key"
+    key = load_or_create_key(path)
+    assert len(key) == 32 and path.read_bytes() == key
+    assert stat.S_IMODE(path.stat().st_mode) == 0o600
+    assert load_or_create_key(path) == key
+    assert [p.name for p in tmp_path.iterdir()] == ["nolinks.key"]
