@@ -391,6 +391,25 @@ _NONNEG = FieldLimit(0.0, None)
 _POSITIVE = FieldLimit(0.0, None, low_open=True)
 _TECHNIQUE_ZERO = "a recorded 0 means not recorded (CR readers write 0)"  # common practice
 
+
+def _ceiling(high: float, basis: str) -> FieldLimit:
+    """A dose quantity's sanity ceiling: far above any exposure a patient receives, it catches
+    a corrupt value or a unit off by orders of magnitude, never a real extreme exam."""
+    return FieldLimit(0.0, high, why=f"ceiling: {basis}")
+
+
+# 1,000 x the substantial radiation dose levels of NCRP Report 168 (2010; values from memory,
+# see reference/PUBLISHED-VALUES.md): Ka,r 5,000 mGy, PKA 500 Gy.cm2, peak skin dose 3,000 mGy,
+# fluoroscopy time 60 min
+_DAP_CEILING = _ceiling(5e5, "1,000 x NCRP 168's 500 Gy·cm² substantial-dose level")
+_KAR_CEILING = _ceiling(5e6, "1,000 x NCRP 168's 5 Gy substantial-dose level")
+_SKIN_CEILING = _ceiling(3e6, "1,000 x NCRP 168's 3 Gy peak-skin-dose level")
+_TIME_CEILING = _ceiling(3.6e6, "1,000 x NCRP 168's 60 min fluoroscopy level")
+# CT has no NCRP 168 level: 1,000 Gy CTDIvol is a thousand times the highest CTDIvol any
+# protocol reaches (brain perfusion, about 1 Gy: common practice); DLP allows 100 cm of it
+_CTDI_CEILING = _ceiling(1e6, "1,000 Gy (a thousand times a brain-perfusion CTDIvol)")
+_DLP_CEILING = _ceiling(1e8, "1,000 Gy over 100 cm")
+
 FIELD_LIMITS: dict[str, FieldLimit] = {
     # the project's physical range for diagnostic x-ray tubes (ARCHITECTURE "Bad input")
     "kvp_kv": FieldLimit(20.0, 150.0, zero_means_absent=True, why=_TECHNIQUE_ZERO),
@@ -409,15 +428,15 @@ FIELD_LIMITS: dict[str, FieldLimit] = {
     "field_width_mm": _POSITIVE,
     "field_height_mm": _POSITIVE,
     "field_area_cm2": _POSITIVE,
-    "dap_gy_cm2": _NONNEG,
-    "entrance_dose_mgy": _NONNEG,
-    "reference_point_air_kerma_mgy": _NONNEG,
-    "organ_dose_mgy": _NONNEG,
+    "dap_gy_cm2": _DAP_CEILING,
+    "entrance_dose_mgy": _SKIN_CEILING,
+    "reference_point_air_kerma_mgy": _KAR_CEILING,
+    "organ_dose_mgy": _SKIN_CEILING,
     "hvl_mm_al": _POSITIVE,
     "xray_output_mgy_per_mas": _POSITIVE,
-    "ctdivol_mgy": _NONNEG,
-    "dlp_mgy_cm": _NONNEG,
-    "ssde_mgy": _NONNEG,
+    "ctdivol_mgy": _CTDI_CEILING,
+    "dlp_mgy_cm": _DLP_CEILING,
+    "ssde_mgy": _CTDI_CEILING,
     "water_equivalent_diameter_mm": _POSITIVE,
     "ct_scan_length_mm": _NONNEG,
     "ct_pitch_factor": _POSITIVE,
@@ -426,21 +445,21 @@ FIELD_LIMITS: dict[str, FieldLimit] = {
     "target_exposure_index": _NONNEG,
     "pulse_rate_per_s": _NONNEG,
     "number_of_pulses": _NONNEG,
-    "irradiation_duration_s": _NONNEG,
+    "irradiation_duration_s": _TIME_CEILING,
     "thickness_min_mm": _NONNEG,
     "thickness_max_mm": _NONNEG,
-    "dap_total_gy_cm2": _NONNEG,
-    "fluoro_dap_total_gy_cm2": _NONNEG,
-    "acquisition_dap_total_gy_cm2": _NONNEG,
-    "reference_point_air_kerma_total_mgy": _NONNEG,
-    "fluoro_reference_point_air_kerma_total_mgy": _NONNEG,
-    "acquisition_reference_point_air_kerma_total_mgy": _NONNEG,
-    "fluoro_time_total_s": _NONNEG,
-    "acquisition_time_total_s": _NONNEG,
+    "dap_total_gy_cm2": _DAP_CEILING,
+    "fluoro_dap_total_gy_cm2": _DAP_CEILING,
+    "acquisition_dap_total_gy_cm2": _DAP_CEILING,
+    "reference_point_air_kerma_total_mgy": _KAR_CEILING,
+    "fluoro_reference_point_air_kerma_total_mgy": _KAR_CEILING,
+    "acquisition_reference_point_air_kerma_total_mgy": _KAR_CEILING,
+    "fluoro_time_total_s": _TIME_CEILING,
+    "acquisition_time_total_s": _TIME_CEILING,
     "number_of_radiographic_frames": _NONNEG,
     "number_of_events": _NONNEG,
-    "dlp_total_mgy_cm": _NONNEG,
-    "agd_total_mgy": _NONNEG,
+    "dlp_total_mgy_cm": _DLP_CEILING,
+    "agd_total_mgy": _SKIN_CEILING,
     # demographics: dropped with a warning, never rejecting the exposures
     "patient_weight_kg": FieldLimit(
         0.0,

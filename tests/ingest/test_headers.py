@@ -155,14 +155,33 @@ def parse(ds: Dataset):
             r"\(0018,1110\) DistanceSourceToDetector 0 mm is outside > 0",
         ),
         ("ImageAndFluoroscopyAreaDoseProduct", "-1.5", r"AreaDoseProduct -0.15 Gy.cm2 is outside"),
+        # dose ceilings: 1,000 x the NCRP Report 168 substantial radiation dose levels (from
+        # memory, PUBLISHED-VALUES: PKA 500 Gy.cm2, peak skin dose 3 Gy); CTDIvol 1,000 Gy
+        (
+            "ImageAndFluoroscopyAreaDoseProduct",
+            "1e300",
+            r"AreaDoseProduct 1e\+299 Gy.cm2 is outside 0-500000 Gy.cm2 \(ceiling: 1,000 x NCRP",
+        ),
+        ("EntranceDoseInmGy", "4e6", r"EntranceDoseInmGy 4e\+06 mGy is outside 0-3e\+06 mGy"),
+        ("CTDIvol", 2e6, r"CTDIvol 2e\+06 mGy is outside 0-1e\+06 mGy"),
     ],
 )
-def test_values_outside_physical_range_are_rejected(keyword: str, value: str, message: str) -> None:
+def test_values_outside_physical_range_are_rejected(
+    keyword: str, value: object, message: str
+) -> None:
     ds = header(**{keyword: value})
     with pytest.raises(IngestError, match=message) as info:
         parse(ds)
     assert info.value.code == "out_of_range"
     assert info.value.source == "test"
+
+
+def test_extreme_but_real_doses_are_kept() -> None:
+    # a long interventional procedure's 2,000 Gy.cm2 (written in dGy.cm2) and a brain-perfusion
+    # CTDIvol of 1,500 mGy are high but real (common practice): stored, not refused
+    event = parse(header(ImageAndFluoroscopyAreaDoseProduct="20000")).events[0]
+    assert event.dap_gy_cm2 == pytest.approx(2000.0)
+    assert parse(header(CTDIvol=1500.0)).events[0].ctdivol_mgy == pytest.approx(1500.0)
 
 
 def test_wrong_value_for_vr_is_a_bad_value() -> None:
