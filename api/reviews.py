@@ -488,6 +488,13 @@ def _dense_by_arrow(
     names = [c.key for c in _DENSE_SELECT] + ["epoch_s"] + [n for n, _ in _SPARSE_COLUMNS]
     for j, name in enumerate(names):
         column = table.column(j)
+        if len(column) == 0:  # no rows: SQLite's driver gives such columns no type
+            out[name] = (
+                pd.Categorical([], categories=pd.Index([], dtype=object))
+                if name in texts
+                else np.zeros(0, dtype=np.float64)
+            )
+            continue
         if name in texts:
             out[name] = _arrow_categorical(column)
             continue

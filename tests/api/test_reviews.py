@@ -271,6 +271,28 @@ def test_the_arrow_copy_and_plain_reads_give_the_same_table(store, monkeypatch) 
     pd.testing.assert_frame_equal(read(), through_arrow)
 
 
+def test_an_empty_period_through_the_driver_is_the_plain_empty_table(store, monkeypatch) -> None:
+    # a period without events (the change-point history of a new store): the driver's columns
+    # come without a type; the table must still be the plain way's, without a second read
+    import beamaudit.api.reviews as reviews
+
+    _fill(store.session_factory, n=60, seed=4)
+    arrow = reviews._dense_by_arrow
+    taken: list[bool] = []
+    monkeypatch.setattr(
+        reviews, "_dense_by_arrow", lambda *a: (out := arrow(*a), taken.append(out is not None))[0]
+    )
+    with store.session_factory() as session:
+        through_arrow = review_events(session, start=date(2030, 1, 1), end=date(2030, 2, 1))
+    assert taken == [True]
+    monkeypatch.setattr(reviews, "_dense_by_arrow", lambda *args: None)
+    monkeypatch.setattr(reviews, "_dense_by_copy", lambda *args: None)
+    with store.session_factory() as session:
+        plain = review_events(session, start=date(2030, 1, 1), end=date(2030, 2, 1))
+    assert len(plain) == 0
+    pd.testing.assert_frame_equal(through_arrow, plain)
+
+
 def test_a_store_the_driver_cannot_reach_is_read_through_the_session(store, monkeypatch) -> None:
     # the driver's own connection is refused (a password given only to the store's engine, say):
     # the review reads through the session's connection, with the same result
