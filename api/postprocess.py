@@ -107,15 +107,7 @@ class Completion:
         for row, values in zip(rows, figures(events, rooms), strict=True):
             row.update(FIGURES_CLEARED)  # every row the same columns (one executemany)
             row.update(values)
-            status = values["recon_status"]
-            if status == "ok":
-                self.summary.reconstructed += 1
-            elif status == "no_technique":
-                self.summary.no_technique += 1
-            elif status == "not_applicable":
-                self.summary.not_applicable += 1
-            else:
-                self.summary.failed += 1
+            self.summary.add(values["recon_status"])
 
     def _map(self, session: Session, rows: list[dict[str, Any]], room_ids: set[int]) -> None:
         rules = self._current_rules(session)

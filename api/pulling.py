@@ -90,7 +90,6 @@ def pull_source(
     since_date = resolve_since(since, watermark)
     pipeline = Pipeline(sessions, completion=Completion())  # exam types and figures too
     outcome = PullOutcome(source=url, since=since_date)
-    new_event_ids: list[int] = []
 
     def known(uid: str) -> bool:
         with sessions() as s:
@@ -106,7 +105,6 @@ def pull_source(
         stored = pipeline.store(result, received_via="pull", received_from=wado_url)
         if stored.status == "stored":
             outcome.events += stored.events
-            new_event_ids.extend(stored.event_ids)
         elif stored.status == "duplicate":
             outcome.duplicates += 1
         else:

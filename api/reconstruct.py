@@ -56,6 +56,18 @@ class ReconSummary:
     not_applicable: int = 0
     failed: int = 0
 
+    def add(self, status: str, n: int = 1) -> None:
+        """Count ``n`` events that ended with ``status`` (``recon_status``; ``ok`` counts as
+        reconstructed, anything unknown as failed)."""
+        if status == "ok":
+            self.reconstructed += n
+        elif status == "no_technique":
+            self.no_technique += n
+        elif status == "not_applicable":
+            self.not_applicable += n
+        else:
+            self.failed += n
+
     def as_dict(self) -> dict[str, int]:
         return {
             "reconstructed": self.reconstructed,
@@ -453,21 +465,10 @@ def figures(events: Sequence[Any], rooms: RoomBeams) -> list[dict[str, Any]]:
             out.append({"recon_status": "no_technique"})
             continue
         key = (event.room_id, event.kvp_kv, _filters_key(event.filters))
+        if key not in beam_of:
+            beam_of[key] = _beam(event, room, rooms)
+        beam = beam_of[key]
         try:
-            if key not in beam_of:
-                calibration = (
-                    rooms.calibrations.get(event.room_id) if event.room_id is not None else None
-                )
-                try:
-                    beam_of[key] = rooms.cache.get(
-                        kvp_kv=event.kvp_kv,
-                        filters=_filters(room, event, calibration),
-                        room=room,
-                        calibration=calibration,
-                    )
-                except ModelError as exc:
-                    beam_of[key] = exc
-            beam = beam_of[key]
             if isinstance(beam, ModelError):
                 raise beam
             geometry = _geometry(event, room)
@@ -505,6 +506,23 @@ def figures(events: Sequence[Any], rooms: RoomBeams) -> list[dict[str, Any]]:
     return out
 
 
+def _beam(event: Any, room: Any, rooms: RoomBeams) -> Any:
+    """The beam of ``event`` in ``room``, or the model's error (kept for the events that share
+    the beam)."""
+    from beamaudit.model import ModelError
+
+    calibration = rooms.calibrations.get(event.room_id) if event.room_id is not None else None
+    try:
+        return rooms.cache.get(
+            kvp_kv=event.kvp_kv,
+            filters=_filters(room, event, calibration),
+            room=room,
+            calibration=calibration,
+        )
+    except ModelError as exc:
+        return exc
+
+
 def _reconstruct_chunk(
     session: Session, chunk: list[int], rooms: RoomBeams, summary: ReconSummary
 ) -> None:
@@ -531,10 +549,10 @@ def _reconstruct_chunk(
     conn = session.connection()
     update_rows(conn, ev, done)
     update_rows(conn, ev, failed)
-    summary.reconstructed += len(done)
-    summary.no_technique += len(by_status["no_technique"])
-    summary.not_applicable += len(by_status["not_applicable"])
-    summary.failed += len(failed)
+    summary.add("ok", len(done))
+    for status, event_ids in by_status.items():
+        summary.add(status, len(event_ids))
+    summary.add("failed", len(failed))
 
 
 def _failure(event: Any, error: Any) -> dict[str, Any]:

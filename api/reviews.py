@@ -21,10 +21,10 @@
 from __future__ import annotations
 
 import gc
-from collections.abc import Iterator
+from collections.abc import Callable, Iterator
 from concurrent.futures import ThreadPoolExecutor
-from contextlib import contextmanager
-from dataclasses import replace
+from contextlib import AbstractContextManager, contextmanager
+from dataclasses import dataclass, replace
 from datetime import UTC, date, datetime
 from pathlib import Path
 from typing import Any
@@ -409,23 +409,19 @@ def _dense_by_arrow(
     is missing, or when the events it sees are not the session's (the session holds uncommitted
     events of its own, or events were committed in between: count and highest id differ).
     """
-    backend = session.get_bind().dialect.name
-    if backend == "sqlite":
-        reader = _sqlite_arrow_reader(session)
-    elif backend == "postgresql":
-        reader = _postgres_arrow_reader(session)
-    else:
-        reader = None
-    if reader is None:
+    reader = {"sqlite": _sqlite_arrow_reader, "postgresql": _postgres_arrow_reader}.get(
+        session.get_bind().dialect.name
+    )
+    source = reader(session) if reader is not None else None
+    if source is None:
         return None
-    connect, DriverError = reader
-    dialect = session.get_bind().dialect
     texts = ("modality", "exam_type")
-    nothing: Any = literal_column(repr(_SQLITE_NULL)) if backend == "sqlite" else None
 
     def number(column: Any) -> Any:
         as_float = cast(column, Float)
-        return as_float if nothing is None else func.coalesce(as_float, nothing)
+        if source.null is None:
+            return as_float
+        return func.coalesce(as_float, literal_column(repr(source.null)))
 
     selected = [
         func.coalesce(c, "") if c.key in texts else number(c) for c in _DENSE_SELECT
@@ -433,33 +429,11 @@ def _dense_by_arrow(
     E = m.ExposureEventRow
     census = select(func.count(), func.max(E.id))
     expected = tuple(session.execute(census).one())
-    census_sql = str(census.compile(dialect=dialect))
-    if backend == "sqlite":
-        compiled = (
-            select(*selected)
-            .where(*conditions)
-            .compile(dialect=dialect, compile_kwargs={"render_postcompile": True})
-        )
-        params = {**compiled.params, **values}
-        args = tuple(params[k] for k in compiled.positiontup or ())
-        # two readers, on the events of even and of odd id: each pass tests every row, but
-        # decodes only its half, whatever ids the period holds
-        sql = f"{compiled} AND {E.__tablename__}.id % 2 = ?"
-        parts: list[tuple[str, tuple[Any, ...]]] = [(sql, (*args, 0)), (sql, (*args, 1))]
-    else:
-        # values written into the statement (the period's bounds and constant texts, none from
-        # a user): the driver runs a statement without parameters as a binary COPY, a third
-        # faster than one with parameters
-        compiled = (
-            select(*selected)
-            .where(*conditions)
-            .params(**values)
-            .compile(dialect=dialect, compile_kwargs={"literal_binds": True})
-        )
-        parts = [(str(compiled), ())]
+    census_sql = str(census.compile(dialect=session.get_bind().dialect))
+    parts = source.statements(select(*selected).where(*conditions), values)
 
     def read(part: tuple[str, tuple[Any, ...]]) -> Any:
-        with connect() as cursor:
+        with source.connect() as cursor:
             cursor.execute(census_sql)
             if tuple(cursor.fetchone() or ()) != expected:
                 return None
@@ -468,12 +442,9 @@ def _dense_by_arrow(
             return cursor.fetch_arrow_table()
 
     try:
-        if len(parts) == 1:
-            pieces = [read(parts[0])]
-        else:
-            with ThreadPoolExecutor(max_workers=len(parts)) as pool:
-                pieces = list(pool.map(read, parts))
-    except DriverError:  # the driver could not read the store: another way reads it
+        with ThreadPoolExecutor(max_workers=len(parts)) as pool:  # the drivers leave the GIL
+            pieces = list(pool.map(read, parts))
+    except source.error:  # the driver could not read the store: another way reads it
         return None
     if any(piece is None for piece in pieces):
         return None
@@ -501,14 +472,34 @@ def _dense_by_arrow(
         if not pyarrow.types.is_float64(column.type):  # double by the query: else not understood
             return None
         numbers = column.to_numpy(zero_copy_only=False)  # Arrow's nulls as NaN
-        out[name] = np.where(numbers == _SQLITE_NULL, np.nan, numbers)
+        out[name] = (
+            numbers if source.null is None else np.where(numbers == source.null, np.nan, numbers)
+        )
     out["event_id"] = out["event_id"].astype(np.int64)
     return out
 
 
-def _sqlite_arrow_reader(session: Session) -> tuple[Any, Any] | None:
-    """How to read the session's SQLite file through the ADBC SQLite driver: a cursor factory
-    and the driver's error class; None when that cannot be done."""
+@dataclass(frozen=True)
+class _ArrowSource:
+    """How an ADBC driver reads the session's store."""
+
+    #: a context manager giving a cursor of the driver's own connection, in one snapshot
+    connect: Callable[[], AbstractContextManager[Any]]
+    #: the driver's error class (a connection refused, a file it cannot read)
+    error: type[Exception]
+    #: the number standing for NULL in number columns; None: Arrow's own null
+    null: float | None
+    #: the statements (SQL and arguments) that read the period, given the select and its values
+    statements: Callable[[Any, dict[str, Any]], list[tuple[str, tuple[Any, ...]]]]
+
+
+def _sqlite_arrow_reader(session: Session) -> _ArrowSource | None:
+    """The ADBC SQLite driver on the session's database file; None when that cannot be done.
+
+    Two statements, read in two threads: the events of even and of odd id (each pass tests
+    every row, but decodes only its half, whatever ids the period holds). Numbers come with
+    ``_SQLITE_NULL`` for NULL (SQLite has no NaN).
+    """
     path = _sqlite_file(session)
     if path is None:
         return None
@@ -518,6 +509,7 @@ def _sqlite_arrow_reader(session: Session) -> tuple[Any, Any] | None:
     except ImportError:  # an install without the driver: the plain way
         return None
     uri = Path(path).resolve().as_uri()
+    dialect = session.get_bind().dialect
 
     @contextmanager
     def connect() -> Iterator[Any]:
@@ -526,13 +518,24 @@ def _sqlite_arrow_reader(session: Session) -> tuple[Any, Any] | None:
             cursor.execute(f"PRAGMA busy_timeout = {SQLITE_BUSY_TIMEOUT_MS}")
             yield cursor  # census and read in one transaction: one snapshot of the file
 
-    return connect, DriverError
+    def statements(stmt: Any, values: dict[str, Any]) -> list[tuple[str, tuple[Any, ...]]]:
+        compiled = stmt.compile(dialect=dialect, compile_kwargs={"render_postcompile": True})
+        params = {**compiled.params, **values}
+        args = tuple(params[k] for k in compiled.positiontup or ())
+        sql = f"{compiled} AND {m.ExposureEventRow.__tablename__}.id % 2 = ?"
+        return [(sql, (*args, 0)), (sql, (*args, 1))]
+
+    return _ArrowSource(connect, DriverError, _SQLITE_NULL, statements)
 
 
-def _postgres_arrow_reader(session: Session) -> tuple[Any, Any] | None:
-    """How to read the session's PostgreSQL database through the ADBC PostgreSQL driver (the
-    session's URL as a libpq URI, its ``search_path`` set on the driver's connection, census and
-    read in one repeatable-read transaction); None when the driver is missing."""
+def _postgres_arrow_reader(session: Session) -> _ArrowSource | None:
+    """The ADBC PostgreSQL driver on the session's database; None when the driver is missing.
+
+    Its own connection: the session's URL as a libpq URI, the session's ``search_path`` set,
+    census and read in one repeatable-read transaction. One statement, the values written
+    into it (the period's bounds and constant texts, none from a user): the driver runs a
+    statement without parameters as a binary COPY, a third faster than one with parameters.
+    """
     try:
         import adbc_driver_postgresql.dbapi as adbc
         from adbc_driver_manager import Error as DriverError
@@ -541,6 +544,7 @@ def _postgres_arrow_reader(session: Session) -> tuple[Any, Any] | None:
     url = session.connection().engine.url
     uri = url.set(drivername="postgresql").render_as_string(hide_password=False)
     search_path = session.execute(select(func.current_setting("search_path"))).scalar()
+    dialect = session.get_bind().dialect
 
     @contextmanager
     def connect() -> Iterator[Any]:
@@ -553,7 +557,13 @@ def _postgres_arrow_reader(session: Session) -> tuple[Any, Any] | None:
             finally:
                 cursor.execute("ROLLBACK")
 
-    return connect, DriverError
+    def statements(stmt: Any, values: dict[str, Any]) -> list[tuple[str, tuple[Any, ...]]]:
+        compiled = stmt.params(**values).compile(
+            dialect=dialect, compile_kwargs={"literal_binds": True}
+        )
+        return [(str(compiled), ())]
+
+    return _ArrowSource(connect, DriverError, None, statements)
 
 
 def _arrow_categorical(column: Any) -> pd.Categorical:

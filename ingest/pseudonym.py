@@ -123,28 +123,38 @@ def _create_key(path: Path) -> None:
     except OSError as exc:  # mkstemp creates the file for its owner only (0600)
         raise IngestError("bad_key", f"cannot create key file: {exc.strerror}", str(path)) from exc
     try:
-        with os.fdopen(fd, "wb") as fh:
-            fh.write(key)
-            fh.flush()
-            os.fsync(fh.fileno())
-        try:
-            os.link(temporary, path)
+        _write_whole(fd, key)
+        if _linked(temporary, path):
             return
-        except FileExistsError:
-            return  # another process linked its key first: that key is the key
-        except OSError:
-            pass  # no hard links on this file system: created exclusively below
     except OSError as exc:
         raise IngestError("bad_key", f"cannot write key file: {exc.strerror}", str(path)) from exc
     finally:
         with contextlib.suppress(OSError):
             os.unlink(temporary)
+    # no hard links on this file system: the key file is created exclusively and written
     try:
         fd = os.open(path, os.O_WRONLY | os.O_CREAT | os.O_EXCL, 0o600)
     except FileExistsError:
         return
     except OSError as exc:
         raise IngestError("bad_key", f"cannot create key file: {exc.strerror}", str(path)) from exc
+    _write_whole(fd, key)
+
+
+def _linked(temporary: str, path: Path) -> bool:
+    """Link ``temporary`` at ``path``; True when ``path`` holds a key now (this one, or another
+    process's linked first), False when the file system refuses hard links."""
+    try:
+        os.link(temporary, path)
+    except FileExistsError:
+        return True
+    except OSError:
+        return False
+    return True
+
+
+def _write_whole(fd: int, key: bytes) -> None:
+    """Write ``key`` to the open file ``fd`` and to the disk, then close it."""
     with os.fdopen(fd, "wb") as fh:
         fh.write(key)
         fh.flush()

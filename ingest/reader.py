@@ -18,6 +18,7 @@ import os
 import re
 import struct
 import zlib
+from collections.abc import Iterator
 from typing import IO, Any, BinaryIO, cast
 
 from pydicom import dcmread
@@ -259,23 +260,32 @@ def _plausible_first_element(head: bytes) -> bool:
 
 def _meta_says_dicomdir(meta: bytes) -> bool:
     """Whether an explicit-VR little-endian group 0002 names the DICOMDIR class in (0002,0002)."""
-    pos = 0
-    while pos + 8 <= len(meta):
-        group, element, vr, length = _EXPLICIT_HEADER.unpack_from(meta, pos)
-        if group != 0x0002:
-            return False
-        if vr in _LONG_VRS:
-            if pos + 12 > len(meta):
-                return False
-            (length,) = _LONG_LENGTH.unpack_from(meta, pos + 8)
-            start = pos + 12
-        else:
-            start = pos + 8
+    for element, _, start, length in _group_0002(meta, 0):
         if element == 0x0002:
             value = meta[start : start + length].rstrip(b"\x00 ")
             return value == DICOMDIR_SOP_CLASS.encode()
-        pos = start + length
     return False
+
+
+def _group_0002(data: bytes, offset: int) -> Iterator[tuple[int, bytes, int, int]]:
+    """Element number, VR, value offset and value length of each element of the explicit-VR
+    little-endian group 0002 starting at ``offset`` of ``data``, as their headers say (values
+    are not checked); stops at another group or at a header that ``data`` cuts short."""
+    pos = offset
+    end = len(data)
+    while pos + 8 <= end:
+        group, element, vr, length = _EXPLICIT_HEADER.unpack_from(data, pos)
+        if group != 0x0002:
+            return
+        if vr in _LONG_VRS:  # 2 reserved bytes, then a 4-byte length (PS3.5 7.1.2)
+            if pos + 12 > end:
+                return
+            (length,) = _LONG_LENGTH.unpack_from(data, pos + 8)
+            value_at = pos + 12
+        else:
+            value_at = pos + 8
+        yield element, vr, value_at, length
+        pos = value_at + length
 
 
 def _check_complete(ds: Dataset, fh: IO[bytes], size: int | None) -> None:
@@ -469,20 +479,8 @@ def _meta_elements(data: bytes, offset: int) -> tuple[dict[BaseTag, RawDataEleme
     elements: dict[BaseTag, RawDataElement] = {}
     pos = offset
     end = len(data)
-    while pos + 8 <= end:
-        group, element, vr, length = _EXPLICIT_HEADER.unpack_from(data, pos)
-        if group != 0x0002:
-            break
-        if vr not in _VRS:
-            return None
-        if vr in _LONG_VRS:
-            if pos + 12 > end:
-                return None
-            (length,) = _LONG_LENGTH.unpack_from(data, pos + 8)
-            value_at = pos + 12
-        else:
-            value_at = pos + 8
-        if length == 0xFFFFFFFF or value_at + length > end:
+    for element, vr, value_at, length in _group_0002(data, offset):
+        if vr not in _VRS or length == 0xFFFFFFFF or value_at + length > end:
             return None
         tag = BaseTag(0x00020000 | element)
         elements[tag] = RawDataElement(
@@ -490,7 +488,8 @@ def _meta_elements(data: bytes, offset: int) -> tuple[dict[BaseTag, RawDataEleme
             False, True,
         )  # fmt: skip
         pos = value_at + length
-    if not elements or pos + 8 > end:
+    # the group ended at the header of another group, not at the end of ``data``
+    if not elements or pos + 8 > end or data[pos : pos + 2] == b"\x02\x00":
         return None
     return elements, pos
 

@@ -308,20 +308,19 @@ def test_a_store_the_driver_cannot_reach_is_read_through_the_session(store, monk
         pd.testing.assert_frame_equal(review_events(session, start=START, end=END), expected)
 
 
-def _refusing(reader: Any) -> Any:
-    """A reader whose connections fail as a refused one does (the driver's error)."""
+def _refusing(source: Any) -> Any:
+    """A driver source whose connections fail as a refused one does (the driver's error)."""
     from contextlib import contextmanager
+    from dataclasses import replace
 
     from adbc_driver_manager import AdbcStatusCode, OperationalError
-
-    _, error = reader
 
     @contextmanager
     def connect() -> Any:
         raise OperationalError("connection refused (test)", status_code=AdbcStatusCode.IO)
         yield
 
-    return connect, error
+    return replace(source, connect=connect)
 
 
 def test_events_the_session_has_not_committed_are_read_too(store) -> None:
