@@ -10,8 +10,9 @@ Dose figures: geometry from what an exposure carries (:mod:`.geometry`, document
 :mod:`.defaults`), the dose chain (:mod:`.dose`), backscatter factors (:mod:`.backscatter`),
 every figure of one exposure with its uncertainty and why trail (:mod:`.exposure`,
 :mod:`.trail`), the same figures of many stored exposures at once as arrays (:mod:`.bulk`),
-fluoroscopy and CT accumulations (:mod:`.fluoro_ct`), the size-specific dose
-estimate (:mod:`.ssde`) and unit conversions (:mod:`.units`).
+fluoroscopy and CT accumulations (:mod:`.fluoro_ct`), the CT patient's water-equivalent
+diameter from axial images (:mod:`.ct_size`) and from localizers (:mod:`.ct_localizer`), the
+size-specific dose estimate (:mod:`.ssde`) and unit conversions (:mod:`.units`).
 """
 
 from beamaudit.model.attenuation import (
@@ -49,6 +50,21 @@ from beamaudit.model.calibration import (
     RoomCalibration,
     calibrate_room,
     default_calibration,
+)
+from beamaudit.model.ct_localizer import (
+    LocalizerCalibration,
+    LocalizerSizes,
+    PhantomLocalizer,
+    calibration_from_phantoms,
+    localizer_sizes,
+)
+from beamaudit.model.ct_size import (
+    AxialSizes,
+    ContourMethod,
+    ScanRangeSize,
+    axial_sizes,
+    patient_mask,
+    scan_range_size,
 )
 from beamaudit.model.defaults import (
     DefaultValue,
@@ -111,6 +127,7 @@ from beamaudit.model.trail import TrailStep, WhyTrail
 
 __all__ = [
     "DEFAULT_TOTAL_FILTRATION_MM_AL",
+    "AxialSizes",
     "BackscatterEstimate",
     "BackscatterEstimates",
     "BackscatterTable",
@@ -121,6 +138,7 @@ __all__ = [
     "BeamTable",
     "BulkDose",
     "CalibrationResidual",
+    "ContourMethod",
     "CtAcquisition",
     "CtAcquisitionDose",
     "CtStudyDose",
@@ -130,24 +148,30 @@ __all__ = [
     "ExposureDose",
     "FilterSpec",
     "GeometryInputs",
+    "LocalizerCalibration",
+    "LocalizerSizes",
     "Material",
     "ModelError",
+    "PhantomLocalizer",
     "ProjectionAccumulation",
     "ProjectionEvent",
     "QAMeasurement",
     "ReportedVsReconstructed",
     "ResolvedGeometry",
     "RoomCalibration",
+    "ScanRangeSize",
     "SizeSpecificDose",
     "TrailStep",
     "TubeSpectrum",
     "WhyTrail",
     "accumulate_projection_events",
     "air_kerma_at_distance_mgy",
+    "axial_sizes",
     "backscatter_estimate",
     "backscatter_estimates",
     "backscatter_factor",
     "calibrate_room",
+    "calibration_from_phantoms",
     "compare_reported",
     "compute_beam",
     "compute_exposure_dose",
@@ -170,6 +194,7 @@ __all__ = [
     "incident_air_kerma_mgy",
     "inverse_square_air_kerma_mgy",
     "load_backscatter_table",
+    "localizer_sizes",
     "mass_attenuation_cm2_g",
     "mass_energy_absorption_cm2_g",
     "material",
@@ -177,8 +202,10 @@ __all__ = [
     "mu_en_ratio",
     "output_at_distance_ugy_per_mas",
     "parse_filter",
+    "patient_mask",
     "relative_uncertainty_of_product",
     "resolve_geometry",
+    "scan_range_size",
     "size_specific_dose_estimate",
     "ssde_conversion_factor",
     "tissue_to_air_ratio",
