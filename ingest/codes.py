@@ -211,6 +211,28 @@ CT_PHANTOM_DIAMETERS_CM: dict[CodeKey, float | None] = {
     ("113692", "DCM"): None,
 }
 
+# CID 10024 Water Equivalent Diameter Method (and the method codes TID 10013 also uses beside
+# it); codes and meanings checked against pydicom's PS3.16 dictionary in the tests
+WATER_EQUIVALENT_DIAMETER_METHODS: dict[CodeKey, str] = {
+    ("113981", "DCM"): "representative_value",
+    ("113982", "DCM"): "integrated_across_scan_range",
+    ("113983", "DCM"): "from_raw_data",
+    ("113984", "DCM"): "from_localizer",
+    ("113992", "DCM"): "from_limited_fov_images",
+    ("113990", "DCM"): "average_of_dw_z",
+    ("113987", "DCM"): "aapm220",
+}
+
+# CID 10023 Size Specific Dose Estimation Method for CT
+SSDE_METHODS: dict[CodeKey, str] = {
+    ("113934", "DCM"): "aapm204_lateral",
+    ("113935", "DCM"): "aapm204_ap",
+    ("113936", "DCM"): "aapm204_lateral_plus_ap",
+    ("113937", "DCM"): "aapm204_from_age",
+    ("113988", "DCM"): "from_water_equivalent_diameter",
+    ("113989", "DCM"): "average_of_ssde_z",
+}
+
 # CID 10003 Equipment Plane Identification
 ACQUISITION_PLANES: dict[CodeKey, str] = {
     ("113622", "DCM"): "single",

@@ -146,6 +146,16 @@ class ExposureEvent:
     ct_phantom_diameter_cm: float | None = None  # 16 or 32
     water_equivalent_diameter_mm: float | None = None
     ssde_mgy: float | None = None
+    # patient size as the scanner reported it (TID 10013 size-specific dose rows, (0018,1272))
+    water_equivalent_diameter_method: str | None = None  # CID 10024, e.g. "from_localizer"
+    ssde_method: str | None = None  # CID 10023, e.g. "from_water_equivalent_diameter"
+    ct_lateral_dimension_mm: float | None = None  # (113931, DCM) Measured Lateral Dimension
+    ct_ap_dimension_mm: float | None = None  # (113932, DCM) Measured AP Dimension
+    effective_diameter_mm: float | None = None  # (113933, DCM) Derived Effective Diameter
+    # the acquisition's scan range (TID 10014), patient coordinates of frame_of_reference_uid
+    ct_scan_z_top_mm: float | None = None
+    ct_scan_z_bottom_mm: float | None = None
+    frame_of_reference_uid: str | None = None
     ct_scan_length_mm: float | None = None
     ct_pitch_factor: float | None = None
     ct_total_collimation_mm: float | None = None

@@ -34,6 +34,7 @@ from .codes import (
     CT_PHANTOM_DIAMETERS_CM,
     ELEMENT_SYMBOLS,
     HEADER_MATERIALS,
+    WATER_EQUIVALENT_DIAMETER_METHODS,
     canonical,
     view_from_meaning,
 )
@@ -441,6 +442,28 @@ def _read_ct_phantom(sink: FieldSink, views: list[ValueReader]) -> None:
         return
 
 
+def _read_ct_size_method(sink: FieldSink, views: list[ValueReader]) -> None:
+    """(0018,1272) WaterEquivalentDiameterCalculationMethodCodeSequence (CID 10024)."""
+    (row,) = header_rows_by_field()["water_equivalent_diameter_method"]
+    assert row.tag is not None
+    for view in views:
+        items = view.sequence(row.tag)
+        if not items:
+            continue
+        item = items[0]
+        code = canonical(
+            str(item.get("CodeValue", "")), str(item.get("CodingSchemeDesignator", ""))
+        )
+        method = WATER_EQUIVALENT_DIAMETER_METHODS.get(code)
+        if method is None:
+            sink.notes.append(f"{row.label} ({code[0]}, {code[1]}) is not a known Dw method")
+        else:
+            sink.put(
+                "water_equivalent_diameter_method", method, f"{row.label} ({code[0]}, {code[1]})"
+            )
+        return
+
+
 def _read_event_datetime(sink: FieldSink, reader: ValueReader) -> None:
     dt_row, date_row, time_row = header_rows_by_field()["event_datetime"]
     text = reader.string(dt_row)
@@ -521,6 +544,7 @@ def header_events(
         _read_geometry(sink, views)
         if family == "ct":
             _read_ct_phantom(sink, views)
+            _read_ct_size_method(sink, views)
         _read_event_datetime(sink, reader)
         event_key = event_uid if event_uid is not None else f"{sop}#{index}"
         acquisition_key = event_uid

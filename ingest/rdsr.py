@@ -37,6 +37,8 @@ from .codes import (
     FLUORO_MODES,
     GRIDS,
     PROCEDURE_FAMILIES,
+    SSDE_METHODS,
+    WATER_EQUIVALENT_DIAMETER_METHODS,
     CodeKey,
     canonical,
     material_from_meaning,
@@ -244,7 +246,31 @@ def _number_value(sink: FieldSink, name: str, hits: list[_Found]) -> None:
         sink.put(name, result, label)
 
 
+def _size_methods(sink: FieldSink, hits: list[_Found]) -> None:
+    """(370129005, SCT) Measurement Method items: a CID 10023 value names how the SSDE was
+    made, a CID 10024 value how the water-equivalent diameter was; other methods (of an
+    effective dose, say) are not size methods and are passed over."""
+    for hit in hits:
+        coded = _coded(hit.item)
+        if coded is None:
+            continue
+        code, meaning = coded
+        label = f"{hit.item.label} = ({code[0]}, {code[1]}) {meaning}"
+        if code in SSDE_METHODS and "ssde_method" not in sink.values:
+            sink.put("ssde_method", SSDE_METHODS[code], label)
+        elif (
+            code in WATER_EQUIVALENT_DIAMETER_METHODS
+            and "water_equivalent_diameter_method" not in sink.values
+        ):
+            sink.put(
+                "water_equivalent_diameter_method", WATER_EQUIVALENT_DIAMETER_METHODS[code], label
+            )
+
+
 def _code_value(sink: FieldSink, name: str, hits: list[_Found]) -> None:
+    if name == "size_method":
+        _size_methods(sink, hits)
+        return
     hit = hits[0]
     coded = _coded(hit.item)
     if coded is None:

@@ -102,8 +102,12 @@ def container(
     return item
 
 
-def num(concept: Concept, value: float, unit: str, *, relationship: str = "CONTAINS") -> Dataset:
-    """A NUM item with its UCUM unit (e.g. ``"Gy.m2"``, ``"mGy"``, ``"uA.s"``)."""
+def num(
+    concept: Concept, value: float, unit: str, *, relationship: str = "CONTAINS",
+    children: Iterable[Dataset] = (),
+) -> Dataset:  # fmt: skip
+    """A NUM item with its UCUM unit (e.g. ``"Gy.m2"``, ``"mGy"``, ``"uA.s"``), and the items
+    that qualify it (``children``)."""
     if isinstance(value, bool) or not isinstance(value, int | float):
         raise TypeError(f"a NUM value must be a number, not {value!r}")
     if not unit:
@@ -116,6 +120,9 @@ def num(concept: Concept, value: float, unit: str, *, relationship: str = "CONTA
         [code((unit, "UCUM", _UCUM_MEANINGS.get(unit, unit)))]
     )
     item.MeasuredValueSequence = Sequence([measured])
+    kids = list(children)
+    if kids:
+        item.ContentSequence = Sequence(kids)
     return item
 
 

@@ -132,6 +132,19 @@ PHANTOM_TYPE: Concept = ("113835", "DCM", "CTDIw Phantom Type")
 BODY_PHANTOM: Concept = ("113691", "DCM", "IEC Body Dosimetry Phantom")
 HEAD_PHANTOM: Concept = ("113690", "DCM", "IEC Head Dosimetry Phantom")
 DLP: Concept = ("113838", "DCM", "DLP")
+EFFECTIVE_DOSE: Concept = ("113839", "DCM", "Effective Dose")
+SSDE: Concept = ("113930", "DCM", "Size Specific Dose Estimate")
+MEASUREMENT_METHOD: Concept = ("370129005", "SCT", "Measurement Method")
+FROM_DW: Concept = ("113988", "DCM", "Estimated from Water Equivalent Diameter")
+AAPM204_LAT: Concept = ("113934", "DCM", "AAPM 204 Lateral Dimension")
+WATER_EQUIVALENT_DIAMETER: Concept = ("113980", "DCM", "Water Equivalent Diameter")
+DW_FROM_LOCALIZER: Concept = ("113984", "DCM", "Water Equivalent Diameter From Localizer")
+LATERAL_DIMENSION: Concept = ("113931", "DCM", "Measured Lateral Dimension")
+AP_DIMENSION: Concept = ("113932", "DCM", "Measured AP Dimension")
+EFFECTIVE_DIAMETER: Concept = ("113933", "DCM", "Derived Effective Diameter")
+Z_TOP: Concept = ("113897", "DCM", "Top Z Location of Scanning Length")
+Z_BOTTOM: Concept = ("113898", "DCM", "Bottom Z Location of Scanning Length")
+FRAME_OF_REFERENCE: Concept = ("112227", "DCM", "Frame of Reference UID")
 
 START = datetime(2024, 3, 5, 10, 15, 0, tzinfo=UTC)
 
@@ -332,12 +345,57 @@ class CtEvent:
     dlp_mgy_cm: float = 560.5
     head_phantom: bool = False
     protocol: str = "Chest-abdomen-pelvis"
+    # the scanner's size-specific dose estimate (TID 10013), written when ssde_mgy is set
+    ssde_mgy: float | None = None
+    ssde_method: Concept = FROM_DW
+    dw_mm: float | None = None
+    dw_method: Concept = DW_FROM_LOCALIZER
+    lateral_mm: float | None = None
+    ap_mm: float | None = None
+    effective_diameter_mm: float | None = None
+    # TID 10014 scan range in patient coordinates, written when set
+    z_top_bottom_mm: tuple[float, float] | None = None
+    frame_of_reference_uid: str | None = None
+
+
+def _size_items(ev: CtEvent) -> list[Dataset]:
+    """TID 10013's effective dose (with a measurement method that is no size method) and its
+    size-specific dose estimate, its method and the sizes it used."""
+    if ev.ssde_mgy is None:
+        return []
+    method = code_item(MEASUREMENT_METHOD, ev.ssde_method, relationship="HAS CONCEPT MOD")
+    sizes = [method]
+    for concept, value in ((LATERAL_DIMENSION, ev.lateral_mm), (AP_DIMENSION, ev.ap_mm),
+                           (EFFECTIVE_DIAMETER, ev.effective_diameter_mm)):  # fmt: skip
+        if value is not None:
+            sizes.append(num(concept, value, "mm", relationship="HAS PROPERTIES"))
+    if ev.dw_mm is not None:
+        dw_method = code_item(MEASUREMENT_METHOD, ev.dw_method, relationship="HAS CONCEPT MOD")
+        sizes.append(
+            num(WATER_EQUIVALENT_DIAMETER, ev.dw_mm, "mm", relationship="HAS PROPERTIES",
+                children=[dw_method])
+        )  # fmt: skip
+    effective_method = ("113810", "DCM", "End of X-Ray Irradiation")  # not a size method
+    return [
+        num(EFFECTIVE_DOSE, 4.2, "mSv", children=[
+            code_item(MEASUREMENT_METHOD, effective_method, relationship="HAS CONCEPT MOD")]),
+        num(SSDE, ev.ssde_mgy, "mGy", children=sizes),
+    ]  # fmt: skip
 
 
 def _ct_event(ev: CtEvent, srt_codes: bool) -> Dataset:
+    scan_range = []
+    if ev.z_top_bottom_mm is not None:
+        scan_range = [
+            num(Z_TOP, ev.z_top_bottom_mm[0], "mm"),
+            num(Z_BOTTOM, ev.z_top_bottom_mm[1], "mm"),
+        ]
+    if ev.frame_of_reference_uid is not None:
+        scan_range.append(uidref(FRAME_OF_REFERENCE, ev.frame_of_reference_uid))
     params = container(CT_PARAMETERS, [
         num(EXPOSURE_TIME, ev.exposure_time_s, "s"),
         num(SCANNING_LENGTH, ev.scanning_length_mm, "mm"),
+        *scan_range,
         num(SINGLE_COLLIMATION, 0.625, "mm"),
         num(TOTAL_COLLIMATION, 40.0, "mm"),
         *([] if ev.localizer else [num(PITCH, ev.pitch, "{ratio}")]),
@@ -363,6 +421,7 @@ def _ct_event(ev: CtEvent, srt_codes: bool) -> Dataset:
             num(MEAN_CTDIVOL, ev.ctdivol_mgy, "mGy"),
             code_item(PHANTOM_TYPE, HEAD_PHANTOM if ev.head_phantom else BODY_PHANTOM),
             num(DLP, ev.dlp_mgy_cm, "mGy.cm"),
+            *_size_items(ev),
         ]))  # fmt: skip
     return container(CT_ACQUISITION, items)
 

@@ -7,6 +7,8 @@ from pydicom.sr.coding import Code
 
 from beamaudit.ingest.codes import (
     RETIRED_CODES,
+    SSDE_METHODS,
+    WATER_EQUIVALENT_DIAMETER_METHODS,
     canonical,
     material_from_meaning,
     view_from_meaning,
@@ -47,3 +49,27 @@ def test_view_from_meaning() -> None:
     assert view_from_meaning("postero-anterior") == "PA"
     assert view_from_meaning("medio-lateral oblique") == "MLO"
     assert view_from_meaning("something else") == "SOMETHING ELSE"
+
+
+def _dictionary() -> dict[tuple[str, str], tuple[str, list[int]]]:
+    import pydicom.sr._concepts_dict as concepts_dict
+
+    return {
+        (code, scheme): entry
+        for scheme, by_keyword in concepts_dict.concepts.items()
+        for entries in by_keyword.values()
+        for code, entry in entries.items()
+    }
+
+
+@pytest.mark.parametrize("code", sorted(SSDE_METHODS))
+def test_ssde_methods_are_cid_10023(code: tuple[str, str]) -> None:
+    # PS3.16 CID 10023 Size Specific Dose Estimation Method for CT, in pydicom's dictionary
+    assert 10023 in _dictionary()[code][1]
+
+
+@pytest.mark.parametrize("code", sorted(WATER_EQUIVALENT_DIAMETER_METHODS))
+def test_water_equivalent_diameter_methods_are_ps3_16_codes(code: tuple[str, str]) -> None:
+    # CID 10024 Water Equivalent Diameter Method, and the Dw method codes beside it
+    meaning = _dictionary()[code][0]
+    assert "Water Equivalent Diameter" in meaning or "Dw" in meaning or meaning == "AAPM 220"

@@ -380,3 +380,25 @@ def test_mammography_header_units_and_coded_view() -> None:
     assert event.filters == (FilterLayer("rhodium", 0.025),)
     assert event.view_position == "CC"
     assert event.modality_family == "projection"
+
+
+def test_ct_header_water_equivalent_diameter_and_its_method() -> None:
+    # (0018,1271) WaterEquivalentDiameter (mm) with (0018,1272) its method, CID 10024
+    method = Dataset()
+    method.CodeValue = "113982"
+    method.CodingSchemeDesignator = "DCM"
+    method.CodeMeaning = "Water Equivalent Diameter Integrated Across Scan Range"
+    ds = header(
+        "1.2.840.10008.5.1.4.1.1.2", "CT", WaterEquivalentDiameter=262.5,
+        WaterEquivalentDiameterCalculationMethodCodeSequence=Sequence([method]),
+    )  # fmt: skip
+    (event,) = parse(ds).events
+    assert event.water_equivalent_diameter_mm == 262.5
+    assert event.water_equivalent_diameter_method == "integrated_across_scan_range"
+    assert event.provenance["water_equivalent_diameter_method"] == (
+        "(0018,1272) WaterEquivalentDiameterCalculationMethodCodeSequence (113982, DCM)"
+    )
+    method.CodeValue = "999999"
+    (event,) = parse(ds).events
+    assert event.water_equivalent_diameter_method is None
+    assert any("not a known Dw method" in note for note in event.notes)

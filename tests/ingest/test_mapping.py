@@ -24,7 +24,13 @@ _MEANINGS = {
     for code, (meaning, _cids) in entries.items()
 }
 # fields read only to decide something (not stored as such)
-_DECISION_FIELDS = {"procedure_reported", "material", "thickness_min_mm", "thickness_max_mm"}
+_DECISION_FIELDS = {
+    "procedure_reported",
+    "material",
+    "thickness_min_mm",
+    "thickness_max_mm",
+    "size_method",  # read into ssde_method or water_equivalent_diameter_method by its value
+}
 
 
 @pytest.mark.parametrize("row", header_rows(), ids=lambda r: r.keyword)

@@ -250,3 +250,44 @@ def test_number_of_ct_events_is_preserved(n: int) -> None:
     result = parse(ct_report(events))
     assert [e.ctdivol_mgy for e in result.events] == [float(i + 1) for i in range(n)]
     assert result.accumulated[0].number_of_events == n
+
+
+def test_scanner_size_attributes_of_a_ct_event() -> None:
+    # TID 10013's size-specific dose estimate with its method (CID 10023), the sizes it used
+    # and the water-equivalent diameter with its own method (CID 10024); codes from
+    # pydicom's PS3.16 dictionary (test_builder_concepts_are_ps3_16_codes)
+    frame = generate_uid()
+    spiral = CtEvent(
+        ssde_mgy=15.1, dw_mm=281.5, lateral_mm=340.0, ap_mm=240.0, effective_diameter_mm=285.6,
+        z_top_bottom_mm=(-120.0, -540.0), frame_of_reference_uid=frame,
+    )  # fmt: skip
+    result = parse(ct_report([spiral]))
+    (event,) = result.events
+    assert event.ssde_mgy == 15.1
+    assert event.ssde_method == "from_water_equivalent_diameter"
+    assert event.water_equivalent_diameter_mm == 281.5
+    assert event.water_equivalent_diameter_method == "from_localizer"
+    assert (event.ct_lateral_dimension_mm, event.ct_ap_dimension_mm) == (340.0, 240.0)
+    assert event.effective_diameter_mm == 285.6
+    assert (event.ct_scan_z_top_mm, event.ct_scan_z_bottom_mm) == (-120.0, -540.0)
+    assert event.frame_of_reference_uid == frame
+    assert event.provenance["ssde_method"] == (
+        "(370129005, SCT) Measurement Method = (113988, DCM) "
+        "Estimated from Water Equivalent Diameter"
+    )
+    assert event.provenance["effective_diameter_mm"] == "(113933, DCM) Derived Effective Diameter"
+    assert result.warnings == []
+
+
+def test_aapm_204_ssde_method_and_no_dw() -> None:
+    spiral = CtEvent(ssde_mgy=16.0, ssde_method=rdsr_builders.AAPM204_LAT, lateral_mm=330.0)
+    (event,) = parse(ct_report([spiral])).events
+    assert event.ssde_method == "aapm204_lateral"
+    assert event.water_equivalent_diameter_mm is None
+    assert event.water_equivalent_diameter_method is None
+    assert event.ct_lateral_dimension_mm == 330.0
+
+
+def test_negative_size_rejects_the_report() -> None:
+    with pytest.raises(IngestError, match=r"Measured Lateral Dimension -3 mm is outside > 0"):
+        parse(ct_report([CtEvent(ssde_mgy=16.0, lateral_mm=-3.0)]))
