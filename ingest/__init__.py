@@ -4,8 +4,11 @@ Image headers (CR, DX, MG, RF, XA, CT; classic and enhanced multi-frame) and
 Radiation Dose Structured Reports become :class:`ExposureEvent` records with
 units converted once and the provenance (tag or concept code) of every
 value; patient identifiers are pseudonymised with a keyed hash before
-anything leaves this package; pixel data is never read. Unusable input
-raises :class:`IngestError` with its source, code and reason.
+anything leaves this package; pixel data is never read, except on request
+by :mod:`beamaudit.ingest.ct_images` (the few CT images a patient's size
+needs, chosen from their headers; imported on demand, it brings NumPy and
+the pixel decoders). Unusable input raises :class:`IngestError` with its
+source, code and reason.
 
 Sources: files and folders (:func:`read_file`, :func:`scan`), in-memory
 objects (:func:`read_bytes`, :func:`read_dataset`); the C-STORE listener and
