@@ -140,6 +140,16 @@ def _spacing(pixel_spacing_mm: ArrayLike) -> tuple[float, float]:
     return float(spacing[0]), float(spacing[1])
 
 
+def _label_max(
+    values: NDArray[np.float64], labels: NDArray[np.int_], n: int
+) -> NDArray[np.float64]:
+    """The largest of ``values`` in each of the labels 1..n (one pass, no sort)."""
+    out = np.full(n + 1, -np.inf)
+    inside = labels > 0
+    np.maximum.at(out, labels[inside], values[inside])
+    return out[1:]
+
+
 def _distance_to(inside: NDArray[np.bool_], spacing: tuple[float, float]) -> NDArray[np.float64]:
     """Distance (mm) from each pixel of ``inside`` to the nearest pixel outside it, the image
     border counting as outside (0 outside)."""
@@ -172,7 +182,7 @@ def _mask_and_truncation(
     labels, n = ndimage.label(core, structure=_EIGHT_CONNECTED)
     ids = np.arange(1, n + 1)
     sizes = np.bincount(labels.ravel(), minlength=n + 1)[1:]
-    radius = np.asarray(ndimage.maximum(depth, labels, ids), dtype=np.float64)
+    radius = _label_max(depth, labels, n)
     keep = (sizes == sizes.max()) | (radius >= method.min_part_radius_mm)
     kept = np.isin(labels, ids[keep])
     if method.table_cut_mm > 0:
@@ -198,8 +208,8 @@ def _small_attachments(
     labels, n = ndimage.label(rest, structure=_EIGHT_CONNECTED)
     gap = ndimage.distance_transform_edt(~patient, sampling=spacing)
     ids = np.arange(1, n + 1)
-    nearest = np.asarray(ndimage.minimum(gap, labels, ids), dtype=np.float64)
-    farthest = np.asarray(ndimage.maximum(gap, labels, ids), dtype=np.float64)
+    nearest = -_label_max(-gap, labels, n)
+    farthest = _label_max(gap, labels, n)
     touching = nearest <= 1.5 * max(spacing) + 1e-9
     return np.isin(labels, ids[touching & (farthest <= reach_mm)])
 
