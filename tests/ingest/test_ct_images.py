@@ -361,3 +361,14 @@ def test_compressed_pixels_without_a_transfer_syntax_are_refused() -> None:
     del ds.file_meta
     with pytest.raises(IngestError, match="compressed and no \\(0002,0010\\)"):
         ct_size_image(ds)
+
+
+def test_attribute_table_matches_ps3_6() -> None:
+    # every (tag, keyword, VR) read here, against pydicom's data dictionary
+    from pydicom.datadict import dictionary_VR, keyword_for_tag
+
+    from beamaudit.ingest.ct_images import _TAGS
+
+    for tag, keyword, vr in _TAGS.values():
+        assert keyword_for_tag(tag) == keyword
+        assert vr in dictionary_VR(tag)
