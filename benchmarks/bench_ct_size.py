@@ -85,9 +85,7 @@ def _dataset(values: np.ndarray, **attrs: object) -> Dataset:
     intercept = float(ds.RescaleIntercept)
     ds.PixelData = np.round(values - intercept).astype(np.int16).tobytes()
     ds["PixelData"].VR = "OW"
-    ds.file_meta = FileMetaDataset()
-    ds.file_meta.MediaStorageSOPClassUID = ds.SOPClassUID
-    ds.file_meta.MediaStorageSOPInstanceUID = ds.SOPInstanceUID
+    ds.file_meta = FileMetaDataset()  # the rest is filled in when it is written
     ds.file_meta.TransferSyntaxUID = ExplicitVRLittleEndian
     return ds
 

@@ -22,7 +22,7 @@ size only when they are pixel positions inside the image.
 from __future__ import annotations
 
 import re
-from collections.abc import Iterable
+from collections.abc import Iterable, Mapping
 from datetime import datetime
 from functools import cache
 
@@ -35,6 +35,7 @@ from .codes import (
     ELEMENT_SYMBOLS,
     HEADER_MATERIALS,
     WATER_EQUIVALENT_DIAMETER_METHODS,
+    CodeKey,
     canonical,
     view_from_meaning,
 )
@@ -422,8 +423,16 @@ def _read_geometry(sink: FieldSink, views: list[ValueReader]) -> None:
             sink.put("field_plane", "reported", exposed_row.label)
 
 
-def _read_ct_phantom(sink: FieldSink, views: list[ValueReader]) -> None:
-    (row,) = header_rows_by_field()["ct_phantom_diameter_cm"]
+def _read_ct_code(
+    sink: FieldSink,
+    views: list[ValueReader],
+    field: str,
+    table: Mapping[CodeKey, object],
+    what: str,
+) -> None:
+    """A CT code sequence attribute (the first item of the nearest view) through ``table``;
+    a code the table maps to None is known but has no value, one it lacks gets a note."""
+    (row,) = header_rows_by_field()[field]
     assert row.tag is not None
     for view in views:
         items = view.sequence(row.tag)
@@ -433,34 +442,11 @@ def _read_ct_phantom(sink: FieldSink, views: list[ValueReader]) -> None:
         code = canonical(
             str(item.get("CodeValue", "")), str(item.get("CodingSchemeDesignator", ""))
         )
-        if code in CT_PHANTOM_DIAMETERS_CM:
-            diameter = CT_PHANTOM_DIAMETERS_CM[code]
-            if diameter is not None:
-                sink.put("ct_phantom_diameter_cm", diameter, f"{row.label} ({code[0]}, {code[1]})")
-        else:
-            sink.notes.append(f"{row.label} ({code[0]}, {code[1]}) is not a known CTDI phantom")
-        return
-
-
-def _read_ct_size_method(sink: FieldSink, views: list[ValueReader]) -> None:
-    """(0018,1272) WaterEquivalentDiameterCalculationMethodCodeSequence (CID 10024)."""
-    (row,) = header_rows_by_field()["water_equivalent_diameter_method"]
-    assert row.tag is not None
-    for view in views:
-        items = view.sequence(row.tag)
-        if not items:
-            continue
-        item = items[0]
-        code = canonical(
-            str(item.get("CodeValue", "")), str(item.get("CodingSchemeDesignator", ""))
-        )
-        method = WATER_EQUIVALENT_DIAMETER_METHODS.get(code)
-        if method is None:
-            sink.notes.append(f"{row.label} ({code[0]}, {code[1]}) is not a known Dw method")
-        else:
-            sink.put(
-                "water_equivalent_diameter_method", method, f"{row.label} ({code[0]}, {code[1]})"
-            )
+        label = f"{row.label} ({code[0]}, {code[1]})"
+        if code not in table:
+            sink.notes.append(f"{label} is not a known {what}")
+        elif table[code] is not None:
+            sink.put(field, table[code], label)
         return
 
 
@@ -543,8 +529,13 @@ def header_events(
         _read_filters(sink, views, reader)
         _read_geometry(sink, views)
         if family == "ct":
-            _read_ct_phantom(sink, views)
-            _read_ct_size_method(sink, views)
+            _read_ct_code(
+                sink, views, "ct_phantom_diameter_cm", CT_PHANTOM_DIAMETERS_CM, "CTDI phantom"
+            )
+            _read_ct_code(
+                sink, views, "water_equivalent_diameter_method",
+                WATER_EQUIVALENT_DIAMETER_METHODS, "Dw method",
+            )  # fmt: skip
         _read_event_datetime(sink, reader)
         event_key = event_uid if event_uid is not None else f"{sop}#{index}"
         acquisition_key = event_uid

@@ -178,9 +178,6 @@ def ct_dataset(
         ds.PixelPaddingValue = padding_value
     ds.PixelData = stored.tobytes()
     ds["PixelData"].VR = "OW"
-    meta = FileMetaDataset()
-    meta.MediaStorageSOPClassUID = ds.SOPClassUID
-    meta.MediaStorageSOPInstanceUID = ds.SOPInstanceUID
-    meta.TransferSyntaxUID = ExplicitVRLittleEndian
-    ds.file_meta = meta
+    ds.file_meta = FileMetaDataset()  # the rest is filled in when it is written
+    ds.file_meta.TransferSyntaxUID = ExplicitVRLittleEndian
     return ds
