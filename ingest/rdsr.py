@@ -36,7 +36,11 @@ from .codes import (
     FILTER_TYPES,
     FLUORO_MODES,
     GRIDS,
+    PATIENT_ORIENTATION_MODIFIERS,
+    PATIENT_ORIENTATIONS,
+    PATIENT_TABLE_RELATIONSHIPS,
     PROCEDURE_FAMILIES,
+    REFERENCE_POINTS,
     CodeKey,
     canonical,
     material_from_meaning,
@@ -244,10 +248,22 @@ def _number_value(sink: FieldSink, name: str, hits: list[_Found]) -> None:
         sink.put(name, result, label)
 
 
+#: coded fields of the skin-dose geometry: their value set, an unknown code keeping its meaning
+_POSITION_CODES: dict[str, dict[CodeKey, str]] = {
+    "reference_point_definition": REFERENCE_POINTS,
+    "patient_table_relationship": PATIENT_TABLE_RELATIONSHIPS,
+    "patient_orientation": PATIENT_ORIENTATIONS,
+    "patient_orientation_modifier": PATIENT_ORIENTATION_MODIFIERS,
+}
+
+
 def _code_value(sink: FieldSink, name: str, hits: list[_Found]) -> None:
     hit = hits[0]
     coded = _coded(hit.item)
     if coded is None:
+        if name == "reference_point_definition" and hit.item.value_type == "TEXT":
+            # TID 10003B rows 2 and 3: the same concept as TEXT or as CODE
+            sink.put(name, _text(hit.item, "TextValue"), hit.item.label)
         return
     code, meaning = coded
     label = f"{hit.item.label} = ({code[0]}, {code[1]}) {meaning}"
@@ -278,6 +294,8 @@ def _code_value(sink: FieldSink, name: str, hits: list[_Found]) -> None:
         sink.put("procedure_code", code, label)
     elif name == "acquisition_device_type":
         value = DEVICE_TYPES.get(code)
+    elif name in _POSITION_CODES:
+        value = _POSITION_CODES[name].get(code) or meaning.strip().lower() or None
     else:
         value = meaning or None
     if value is None:
