@@ -360,8 +360,8 @@ def skin_grid(patient: PatientModel, *, cell_mm: float = 10.0) -> SkinGrid:
     n_along = max(1, round(patient.height_mm / cell_mm))
     d_around = perimeter / n_around
     d_along = patient.height_mm / n_along
-    around = -perimeter / 4.0 + (np.arange(n_around) + 0.5) * d_around
-    along = (np.arange(n_along) + 0.5) * d_along
+    around = -perimeter / 4.0 + (np.arange(n_around, dtype=np.float64) + 0.5) * d_around
+    along = (np.arange(n_along, dtype=np.float64) + 0.5) * d_along
     around.setflags(write=False)
     along.setflags(write=False)
     return SkinGrid(patient, around, along, d_around, d_along)
