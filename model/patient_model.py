@@ -246,7 +246,7 @@ def patient_model(
             fill_h, fill_m, who = ref_h, ref_m, "the MIRD reference adult (70 kg)"
         missing = [n for n, v in (("height", height), ("mass", mass)) if v is None]
         assumptions.append(
-            f"patient {' and '.join(missing)} not recorded: {who}'s used "
+            f"patient {' and '.join(missing)} not recorded: those of {who} used "
             f"({fill_h / 1000.0:.2f} m, {fill_m:g} kg)"
         )
         if height is None and mass is None:

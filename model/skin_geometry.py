@@ -379,7 +379,7 @@ def resolve_beams(
     relationship = first.patient_table_relationship if first else None
     first = next((e for e in events if e.patient_orientation_modifier), None)
     modifier = first.patient_orientation_modifier if first else None
-    m, position_notes = orientation_matrix(relationship, modifier)
+    m, procedure_notes = orientation_matrix(relationship, modifier)
     if (
         len(
             {
@@ -390,19 +390,19 @@ def resolve_beams(
         )
         > 1
     ):
-        position_notes.append("the events record different patient positions: the first used")
+        procedure_notes.append("the events record different patient positions: the first used")
     landmark = room.isocenter_landmark
     if landmark is None:
         region = next((e.body_part for e in events if e.body_part), None)
         landmark = landmark_for_region(region)
         if landmark is None:
             landmark = "trunk"
-            notes.add(
+            procedure_notes.append(
                 "no target region: the middle of the trunk taken to lie at the isocentre "
                 "(placing the map along the body only)"
             )
         else:
-            notes.add(
+            procedure_notes.append(
                 f"the {landmark} (target region {region}) taken to lie at the isocentre "
                 "at the reference table position (placing the map along the body only)"
             )
@@ -415,13 +415,15 @@ def resolve_beams(
     if mattress is None:
         default = skin_default("mattress_thickness_mm")
         mattress = default.value
-        notes.add(
+        procedure_notes.append(
             f"table pad thickness {default.value:g} mm assumed under the skin "
             "(a thicker pad would lower the back's dose from an under-table tube)"
         )
     if room.table_top_below_isocenter_mm is None:
         table_top_ref = -(half_vertical + mattress)
-        notes.add("patient taken as centred on the isocentre at the reference table position")
+        procedure_notes.append(
+            "patient taken as centred on the isocentre at the reference table position"
+        )
     else:
         table_top_ref = -room.table_top_below_isocenter_mm
     refs = {
@@ -433,7 +435,7 @@ def resolve_beams(
         if value is None:
             refs[axis] = _median([getattr(e, f"table_{axis}_position_mm") for e in events])
             if refs[axis] is not None:
-                notes.add(
+                procedure_notes.append(
                     f"table {axis} reference: the median over the procedure (the room gives none)"
                 )
     table_width = room.table_width_mm or skin_default("table_width_mm").value
@@ -567,7 +569,7 @@ def resolve_beams(
     table_point = p0 - (half_vertical + mattress) * table_normal
     table_across = m.T @ _X
     total = len(events)
-    all_notes = [*position_notes, *notes.lines(total)]
+    all_notes = [*procedure_notes, *notes.lines(total)]
     if room.kar_calibration_factor != 1.0:
         all_notes.append(
             f"K_a,r multiplied by the room's calibration factor {room.kar_calibration_factor:g}"
