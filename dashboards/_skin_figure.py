@@ -19,7 +19,7 @@ import plotly.graph_objects as go
 from numpy.typing import NDArray
 from plotly.subplots import make_subplots
 
-from beamaudit.dashboards._figstyle import FONT, GRID, INK, PAPER
+from beamaudit.dashboards._figstyle import AXIS, FONT, INK, PAPER, no_data
 from beamaudit.dashboards.errors import TableError
 from beamaudit.dashboards.wording import CAUTION, OKABE_ITO
 
@@ -246,15 +246,7 @@ def build_skin_dose_map(record: Mapping[str, Any], *, title: str | None = None) 
 def _mark_peak(fig: go.Figure, data: dict[str, Any], half: int) -> None:
     peak = data["peak"]
     if not isinstance(peak, Mapping) or data["psd_gy"] <= 0:
-        fig.add_annotation(
-            text="No dose reached the skin in this model",
-            xref="paper",
-            yref="paper",
-            x=0.5,
-            y=0.5,
-            showarrow=False,
-            font={"size": 15},
-        )
+        no_data(fig, "No dose reached the skin in this model")
         return
     side = "back" if int(peak.get("around_index", 0)) < half else "front"
     x = float(_panel_x(np.array([float(peak["around_mm"]) / 10.0]), data["perimeter_cm"], side)[0])
@@ -333,14 +325,7 @@ def _style(
         margin={"l": 70, "r": 30, "t": 90, "b": 150},
         legend={"orientation": "h", "yanchor": "bottom", "y": 1.04, "x": 0.0, "font": {"size": 12}},
     )
-    axis = {
-        "showgrid": True,
-        "gridcolor": GRID,
-        "zeroline": False,
-        "linecolor": INK,
-        "ticks": "outside",
-        "tickcolor": INK,
-    }
+    axis = dict(AXIS)
     for col in (1, 2):
         side_words = "patient's right →" if col == 1 else "patient's left →"
         fig.update_xaxes(

@@ -27,6 +27,7 @@ from numpy.typing import NDArray
 
 from beamaudit.model.defaults import _read_table
 from beamaudit.model.errors import ModelError
+from beamaudit.model.fluoro_ct import _value
 
 if TYPE_CHECKING:
     from beamaudit.model.skin_dose import SkinDoseMap
@@ -109,15 +110,6 @@ class LevelCheck:
         )
 
 
-def _checked(name: str, value: float | None) -> float | None:
-    if value is None:
-        return None
-    number = float(value)
-    if not (math.isfinite(number) and number >= 0):
-        raise ModelError(f"{name} must be zero or a positive finite number, not {value!r}")
-    return number
-
-
 def substantial_dose_levels_crossed(
     *,
     peak_skin_dose_mgy: float | None = None,
@@ -149,18 +141,18 @@ def substantial_dose_levels_crossed(
     [None, True, None, None]
     """
     values = {
-        "peak_skin_dose": _checked("peak_skin_dose_mgy", peak_skin_dose_mgy),
-        "reference_point_air_kerma": _checked(
+        "peak_skin_dose": _value("peak_skin_dose_mgy", peak_skin_dose_mgy),
+        "reference_point_air_kerma": _value(
             "reference_point_air_kerma_mgy", reference_point_air_kerma_mgy
         ),
-        "air_kerma_area_product": _checked("dap_gy_cm2", dap_gy_cm2),
+        "air_kerma_area_product": _value("dap_gy_cm2", dap_gy_cm2),
         "fluoroscopy_time": (
             None
             if fluoroscopy_time_s is None
-            else _checked("fluoroscopy_time_s", fluoroscopy_time_s) / 60.0  # type: ignore[operator]
+            else _value("fluoroscopy_time_s", fluoroscopy_time_s) / 60.0  # type: ignore[operator]
         ),
     }
-    field = _checked("skin_field_area_cm2", skin_field_area_cm2)
+    field = _value("skin_field_area_cm2", skin_field_area_cm2)
     out = []
     for key, level in substantial_dose_levels().items():
         threshold = level.value

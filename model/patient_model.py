@@ -46,7 +46,7 @@ from dataclasses import dataclass
 import numpy as np
 from numpy.typing import NDArray
 
-from beamaudit.model.defaults import DefaultValue, _read_table
+from beamaudit.model.defaults import DefaultValue, load_named_constants
 from beamaudit.model.errors import ModelError
 
 __all__ = [
@@ -86,30 +86,6 @@ _MASS_RANGE_KG = (3.0, 400.0)
 _ADULT_AGE_YEARS = 18.0
 
 
-class _Table:
-    """The rows of ``data/skin_dose_defaults.csv`` (read once)."""
-
-    @staticmethod
-    @functools.cache
-    def rows() -> dict[str, DefaultValue]:
-        _, rows = _read_table("skin_dose_defaults.csv")
-        try:
-            return {
-                row["key"]: DefaultValue(
-                    key=row["key"],
-                    value=float(row["value"]),
-                    unit=row["unit"],
-                    standard_uncertainty=(
-                        float(row["standard_uncertainty"]) if row["standard_uncertainty"] else None
-                    ),
-                    source=row["source"],
-                )
-                for row in rows
-            }
-        except (KeyError, ValueError) as exc:
-            raise ModelError(f"skin_dose_defaults.csv does not parse: {exc}") from exc
-
-
 def skin_default(key: str) -> DefaultValue:
     """One named constant of ``data/skin_dose_defaults.csv``.
 
@@ -119,7 +95,7 @@ def skin_default(key: str) -> DefaultValue:
         For a key not in the table.
     """
     try:
-        return _Table.rows()[key]
+        return load_named_constants("skin_dose_defaults.csv")[key]
     except KeyError:
         raise ModelError(f"no skin-dose default named {key!r}") from None
 

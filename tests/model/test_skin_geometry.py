@@ -12,10 +12,11 @@ import math
 
 import numpy as np
 import pytest
+from skin_samples import SOD, skin_event
 
 from beamaudit.model import ModelError
 from beamaudit.model.patient_model import body_landmark_fraction, patient_model
-from beamaudit.model.skin_events import SkinEvent, SkinRoom
+from beamaudit.model.skin_events import SkinRoom
 from beamaudit.model.skin_geometry import (
     detector_axes,
     detector_direction,
@@ -23,26 +24,6 @@ from beamaudit.model.skin_geometry import (
     reference_point_distance_mm,
     resolve_beams,
 )
-
-SOD = 810.0
-
-
-def event(**kw: object) -> SkinEvent:
-    values: dict[str, object] = {
-        "reference_point_air_kerma_mgy": 100.0,
-        "positioner_primary_angle_deg": 0.0,
-        "positioner_secondary_angle_deg": 0.0,
-        "source_to_isocenter_mm": SOD,
-        "sid_mm": 1150.0,
-        "field_width_mm": 200.0,
-        "field_height_mm": 200.0,
-        "reference_point_definition": "isocenter_15cm_toward_source",
-        "patient_table_relationship": "headfirst",
-        "patient_orientation_modifier": "supine",
-        "body_part": "ABDOMEN",
-    }
-    values.update(kw)
-    return SkinEvent(**values)  # type: ignore[arg-type]
 
 
 @pytest.mark.parametrize(
@@ -100,7 +81,7 @@ def test_unrecorded_position_is_supine_head_first_and_noted() -> None:
 def test_iec_60601_2_43_reference_point_is_15_cm_toward_the_focus() -> None:
     # IEC 60601-2-43: 15 cm from the isocentre toward the focal spot (from memory, high)
     assert reference_point_distance_mm(source_to_isocenter_mm=810.0) == 660.0
-    beams = resolve_beams([event()], patient=patient_model(), room=SkinRoom())
+    beams = resolve_beams([skin_event()], patient=patient_model(), room=SkinRoom())
     assert beams.reference_distance_mm[0] == 660.0
     with pytest.raises(ModelError, match="15 cm"):
         reference_point_distance_mm(source_to_isocenter_mm=100.0)
@@ -114,7 +95,7 @@ def _patient_origin() -> tuple[float, float]:
 
 def test_pa_beam_of_a_centred_supine_patient_comes_from_below_the_back() -> None:
     y_land, t = _patient_origin()
-    beams = resolve_beams([event()], patient=patient_model(), room=SkinRoom())
+    beams = resolve_beams([skin_event()], patient=patient_model(), room=SkinRoom())
     # patient centred on the isocentre: the focus 810 mm below the body's axis, at the landmark
     assert beams.source[0] == pytest.approx([0.0, -y_land, -SOD])
     assert beams.axis[0] == pytest.approx([0.0, 0.0, 1.0])
@@ -126,7 +107,11 @@ def test_pa_beam_of_a_centred_supine_patient_comes_from_below_the_back() -> None
 def test_lao_90_source_sits_at_the_patients_right_whichever_way_the_patient_lies() -> None:
     for relationship in ("headfirst", "feetfirst"):
         beams = resolve_beams(
-            [event(positioner_primary_angle_deg=90.0, patient_table_relationship=relationship)],
+            [
+                skin_event(
+                    positioner_primary_angle_deg=90.0, patient_table_relationship=relationship
+                )
+            ],
             patient=patient_model(),
             room=SkinRoom(),
         )
@@ -144,12 +129,12 @@ def test_table_travel_moves_the_patient_relative_to_the_beams() -> None:
         table_top_below_isocenter_mm=150.0,
     )
     y_land, t = _patient_origin()
-    moved = event(
+    moved = skin_event(
         table_longitudinal_position_mm=100.0,
         table_lateral_position_mm=30.0,
         table_height_position_mm=-50.0,
     )
-    beams = resolve_beams([event(), moved], patient=patient_model(), room=room)
+    beams = resolve_beams([skin_event(), moved], patient=patient_model(), room=room)
     base, shifted = beams.source
     # the table toward the head by 100 mm: the fixed focus lies 100 mm further toward the feet
     assert shifted[1] - base[1] == pytest.approx(-100.0)
@@ -162,7 +147,7 @@ def test_table_travel_moves_the_patient_relative_to_the_beams() -> None:
 
 
 def test_median_table_position_is_the_reference_when_the_room_gives_none() -> None:
-    events = [event(table_height_position_mm=h) for h in (100.0, 120.0, 200.0)]
+    events = [skin_event(table_height_position_mm=h) for h in (100.0, 120.0, 200.0)]
     beams = resolve_beams(events, patient=patient_model(), room=SkinRoom())
     # reference 120 (the median): the first event's table 20 mm above it (height + downward)
     assert beams.source[0][2] - beams.source[1][2] == pytest.approx(-20.0)
@@ -176,7 +161,7 @@ def test_head_tilt_turns_table_and_patient_about_the_point_under_the_isocentre()
     y_land, t = _patient_origin()
     room = SkinRoom(table_top_below_isocenter_mm=150.0)
     beams = resolve_beams(
-        [event(table_head_tilt_angle_deg=10.0)], patient=patient_model(), room=room
+        [skin_event(table_head_tilt_angle_deg=10.0)], patient=patient_model(), room=room
     )
     s, c = math.sin(math.radians(10.0)), math.cos(math.radians(10.0))
     assert beams.source[0] == pytest.approx([0.0, -y_land - 660.0 * s, -(660.0 * c + t)])
@@ -187,14 +172,14 @@ def test_distance_source_to_table_plane_places_the_tabletop() -> None:
     # a vertical central ray: the tabletop 600 mm from the focus, i.e. 210 mm below the
     # isocentre; the body's axis 100 mm above it
     beams = resolve_beams(
-        [event(source_to_table_mm=600.0)], patient=patient_model(), room=SkinRoom()
+        [skin_event(source_to_table_mm=600.0)], patient=patient_model(), room=SkinRoom()
     )
     assert beams.source[0][2] == pytest.approx(-(600.0 + 100.0))
     assert any("Distance Source to Table Plane" in n for n in beams.notes)
 
 
 def test_rotational_acquisition_is_spread_over_its_arc() -> None:
-    rot = event(
+    rot = skin_event(
         event_type="rotational",
         positioner_primary_angle_deg=-100.0,
         positioner_primary_end_angle_deg=100.0,
@@ -207,7 +192,7 @@ def test_rotational_acquisition_is_spread_over_its_arc() -> None:
 
 
 def test_stepping_acquisition_is_spread_over_its_travel() -> None:
-    step = event(
+    step = skin_event(
         event_type="stepping",
         table_longitudinal_position_mm=0.0,
         table_longitudinal_end_position_mm=300.0,
@@ -229,7 +214,9 @@ def test_stepping_acquisition_is_spread_over_its_travel() -> None:
 )
 def test_events_that_cannot_be_placed_are_listed_with_the_reason(kwargs, reason) -> None:
     beams = resolve_beams(
-        [event(), event(label="uid-2", **kwargs)], patient=patient_model(), room=SkinRoom()
+        [skin_event(), skin_event(label="uid-2", **kwargs)],
+        patient=patient_model(),
+        room=SkinRoom(),
     )
     assert beams.size == 1
     ((index, label, why),) = beams.skipped
@@ -239,7 +226,7 @@ def test_events_that_cannot_be_placed_are_listed_with_the_reason(kwargs, reason)
 def test_kar_from_dap_over_the_reference_field_when_not_recorded() -> None:
     # field 200 x 200 mm at 1150 mm: at the reference point (660 mm) 114.78 mm square,
     # 131.74 cm2; DAP 10 Gy cm2 = 10,000 mGy cm2 -> K_a,r 75.9 mGy
-    ev = event(reference_point_air_kerma_mgy=None, dap_gy_cm2=10.0)
+    ev = skin_event(reference_point_air_kerma_mgy=None, dap_gy_cm2=10.0)
     beams = resolve_beams([ev], patient=patient_model(), room=SkinRoom())
     area = (200.0 * 660.0 / 1150.0) ** 2 / 100.0
     assert beams.kerma_at_reference_mgy[0] == pytest.approx(10_000.0 / area)
@@ -247,7 +234,7 @@ def test_kar_from_dap_over_the_reference_field_when_not_recorded() -> None:
 
 def test_field_from_dap_over_kar_when_no_field_is_recorded() -> None:
     # DAP / K_a,r = 5000 mGy cm2 / 50 mGy = 100 cm2 at 660 mm: 10 cm square, 17.42 cm at 1150
-    ev = event(
+    ev = skin_event(
         field_width_mm=None,
         field_height_mm=None,
         dap_gy_cm2=5.0,
@@ -260,6 +247,6 @@ def test_field_from_dap_over_kar_when_no_field_is_recorded() -> None:
 def test_tabletop_reference_point_from_the_table_height() -> None:
     # 1 cm above the tabletop, tabletop 150 mm below the isocentre, vertical ray from 810 below
     room = SkinRoom(table_top_below_isocenter_mm=150.0)
-    ev = event(reference_point_definition="tabletop_1cm_above")
+    ev = skin_event(reference_point_definition="tabletop_1cm_above")
     beams = resolve_beams([ev], patient=patient_model(), room=room)
     assert beams.reference_distance_mm[0] == pytest.approx(810.0 - 150.0 + 10.0)
