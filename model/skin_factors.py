@@ -177,8 +177,9 @@ class _Beam(NamedTuple):
 
 
 #: Path-length factors (1/cos) at which a beam's table transmission is tabulated, then
-#: interpolated; longer paths (rays within 6 degrees of the table plane) are computed directly.
-_PATH_GRID = np.linspace(1.0, 10.0, 901)
+#: interpolated linearly (within 1e-4 of the direct sum, tested); longer paths (rays within 6
+#: degrees of the table plane) are computed directly.
+_PATH_GRID = np.geomspace(1.0, 10.0, 121)
 
 
 @functools.lru_cache(maxsize=512)

@@ -88,3 +88,12 @@ def test_fixed_factors_per_event_and_checks() -> None:
         FixedBeamFactors(backscatter_factor=0.0)
     with pytest.raises(ModelError, match="event 2"):
         fixed.table_transmission(2, ev(), np.array([1.0]))
+
+
+def test_tabulated_transmission_matches_the_direct_sum() -> None:
+    from beamaudit.model.skin_factors import _al_transmission, _beam
+
+    paths = np.linspace(1.0, 9.9, 300)
+    tabulated = FACTORS.table_transmission(0, ev(), paths).values
+    direct = _al_transmission(_beam(80.0, (("copper", 0.3),), 2.5), 1.2, paths)
+    assert np.max(np.abs(tabulated / direct - 1.0)) < 1e-4
