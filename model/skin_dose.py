@@ -304,8 +304,11 @@ def skin_dose_map(
     half_diagonal = 0.5 * math.hypot(grid.cell_around_mm, grid.cell_along_mm)
     records: list[_EventAtCells] = []
     sources: dict[str, None] = {}
+    failed: dict[int, str] = {}
     for e in range(beams.size):
         parent = int(beams.parent[e])
+        if parent in failed:
+            continue
         event = events[parent]
         src, axis, e_u, e_v = beams.source[e], beams.axis[e], beams.e_u[e], beams.e_v[e]
         sid, hw, hh = beams.sid_mm[e], beams.half_width_mm[e], beams.half_height_mm[e]
@@ -354,11 +357,6 @@ def skin_dose_map(
                 )
                 crossed = inside & (r_n > 0) & (np.abs(lateral) <= beams.table_half_width_mm)
                 path = np.where(crossed, np.sqrt(dist2) / np.abs(r_n), 1.0)
-            if np.any(crossed):
-                t_values = factors.table_transmission(parent, event, path[crossed])
-                transmission[crossed] = t_values.values
-                u_table = t_values.relative_standard_uncertainty
-                sources[t_values.source] = None
         field_side_cm = (
             2.0
             * (2 * hw)
@@ -368,8 +366,18 @@ def skin_dose_map(
             / sid
             / 10.0
         )
-        b = factors.backscatter(parent, event, field_side_cm)
-        f = factors.tissue_to_air(parent, event)
+        try:
+            if np.any(crossed):
+                t_values = factors.table_transmission(parent, event, path[crossed])
+                transmission[crossed] = t_values.values
+                u_table = t_values.relative_standard_uncertainty
+                sources[t_values.source] = None
+            b = factors.backscatter(parent, event, field_side_cm)
+            f = factors.tissue_to_air(parent, event)
+        except ModelError as exc:
+            # the event's beam factors do not compute: the event is listed, never dropped
+            failed.setdefault(parent, f"beam factors: {exc}")
+            continue
         sources[b.source] = None
         sources[f.source] = None
         per_point = np.where(inside, kerma * transmission, 0.0) * (b.value * f.value)
@@ -397,6 +405,9 @@ def skin_dose_map(
                 u_table=u_table,
             )
         )
+    for parent, reason in failed.items():
+        beams.skipped.append((parent, events[parent].label, reason))
+    beams.skipped.sort()
     return _summarise(events, grid, dose.reshape(grid.shape), beams, records, room, sources)
 
 
@@ -470,7 +481,7 @@ def _summarise(
             key=lambda c: -c.dose_mgy,
         )
     )
-    used = len(set(beams.parent.tolist()))
+    used = len(set(beams.parent.tolist()) - {index for index, _, _ in beams.skipped})
     assumptions = [*grid.patient.assumptions, *beams.notes]
     if room.kar_relative_standard_uncertainty is None:
         assumptions.append(

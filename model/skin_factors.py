@@ -44,6 +44,7 @@ from beamaudit.model.attenuation import (
     energy_bin_centres_kev,
     grid_linear_attenuation_per_mm,
     grid_mass_energy_absorption_cm2_g,
+    material,
     mu_en_ratio,
 )
 from beamaudit.model.backscatter import backscatter_estimates
@@ -227,6 +228,22 @@ def _backscatter(hvl_mm_al: float, field_side_cm: float) -> tuple[float, float, 
     return float(est.value), float(est.standard_uncertainty), bool(est.extrapolated)
 
 
+@functools.lru_cache(maxsize=256)
+def _known_layers(
+    filters: tuple[tuple[str, float], ...],
+) -> tuple[tuple[tuple[str, float], ...], tuple[str, ...]]:
+    """The filter layers whose material the model knows, and the names of the others."""
+    known, unknown = [], []
+    for name, thickness in filters:
+        try:
+            material(name)
+        except ModelError:
+            unknown.append(name)
+        else:
+            known.append((name, thickness))
+    return tuple(known), tuple(unknown)
+
+
 @dataclass(frozen=True)
 class SpectrumBeamFactors:
     """The default factors, from each event's spectrum with today's model (module docstring).
@@ -255,7 +272,7 @@ class SpectrumBeamFactors:
         kvp = event.kvp_kv
         if kvp is None:
             kvp = skin_default("default_kvp_kv").value
-        return round(float(kvp), 1), event.filters, float(inherent)
+        return round(float(kvp), 1), _known_layers(event.filters)[0], float(inherent)
 
     def _beam(self, event: SkinEvent) -> _Beam:
         try:
@@ -269,6 +286,9 @@ class SpectrumBeamFactors:
             notes.append("inherent 2.5 mm Al assumed")
         if event.kvp_kv is None:
             notes.append(f"kVp not recorded: {skin_default('default_kvp_kv').value:g} kV assumed")
+        unknown = _known_layers(event.filters)[1]
+        if unknown:
+            notes.append(f"filter of {', '.join(unknown)} not in the model's materials: left out")
         return "event's spectrum" + (f" ({'; '.join(notes)})" if notes else "")
 
     def table_transmission(

@@ -278,3 +278,36 @@ def test_patient_size_changes_the_skin_distance() -> None:
     assert broad.peak_skin_dose_mgy / slim.peak_skin_dose_mgy == pytest.approx(
         ((SOD - t_slim) / (SOD - t_broad)) ** 2, rel=2e-3
     )
+
+
+class _FailingFor:
+    """Beam factors that cannot be computed for one event (as a beam outside the model)."""
+
+    def __init__(self, bad: int) -> None:
+        self.bad = bad
+        self.ok = FixedBeamFactors()
+
+    def table_transmission(self, index, event, path):
+        return self.ok.table_transmission(index, event, path)
+
+    def backscatter(self, index, event, side):
+        if index == self.bad:
+            raise ModelError("HVL below the backscatter table")
+        return self.ok.backscatter(index, event, side)
+
+    def tissue_to_air(self, index, event):
+        return self.ok.tissue_to_air(index, event)
+
+
+def test_an_event_whose_factors_fail_is_listed_and_the_rest_mapped() -> None:
+    events = [skin_event(), skin_event(label="odd", positioner_primary_angle_deg=180.0)]
+    m = skin_dose_map(events, factors=_FailingFor(1))
+    assert m.events_used == 1
+    assert m.events_skipped == ((1, "odd", "beam factors: HVL below the backscatter table"),)
+    assert m.peak_side == "back"
+
+
+def test_a_filter_the_model_does_not_know_is_left_out_and_said() -> None:
+    m = skin_dose_map([skin_event(filters=(("copper", 0.1), ("tantalum", 0.05)))])
+    assert m.events_used == 1
+    assert any("tantalum not in the model's materials" in s for s in m.factor_sources)
