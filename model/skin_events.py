@@ -108,8 +108,9 @@ class SkinEvent:
     def from_fields(cls, values: Mapping[str, Any], *, label_field: str = "event_key") -> SkinEvent:
         """An event from a mapping named as ingest's event records (``ExposureEvent.as_dict()``).
 
-        Keys it does not know are ignored; ``filters`` may be ``(material, thickness_mm)`` pairs
-        or mappings with those keys; ``label`` is taken from ``values[label_field]``.
+        Keys it does not know are ignored; ``filters`` may be ``(material, thickness_mm)`` pairs,
+        mappings with those keys or objects with those attributes (ingest's ``FilterLayer``);
+        ``label`` is taken from ``values[label_field]``.
         """
         known = {f.name for f in fields(cls)} - {"filters", "label"}
         kwargs: dict[str, Any] = {k: values[k] for k in known if values.get(k) is not None}
@@ -117,6 +118,8 @@ class SkinEvent:
         for layer in values.get("filters") or ():
             if isinstance(layer, Mapping):
                 layers.append((layer["material"], layer["thickness_mm"]))
+            elif hasattr(layer, "material") and hasattr(layer, "thickness_mm"):
+                layers.append((layer.material, layer.thickness_mm))
             else:
                 material, thickness = layer
                 layers.append((material, thickness))

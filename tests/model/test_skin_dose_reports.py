@@ -75,3 +75,14 @@ def test_assumptions_name_the_room_defaults_used() -> None:
     assert "table pad" in text and "uncalibrated" in text
     assert "inherent 2.5 mm Al assumed" in " ".join(m.factor_sources)
     assert m.uncertainty.expanded_pct == pytest.approx(52.0, abs=5.0)
+
+
+def test_events_convert_from_the_records_themselves_too() -> None:
+    result = read_bytes(
+        to_bytes(fluoroscopy_report([_run(1.0, 30.0)])), pseudonymiser=PSEUDONYMISER, source="t"
+    )
+    (event,) = result.events
+    values = {name: getattr(event, name) for name in ("filters", "kvp_kv", "event_key")}
+    converted = SkinEvent.from_fields(values)
+    assert converted.filters == (("copper", 0.3), ("aluminium", 1.0))
+    assert converted.label == event.event_key
