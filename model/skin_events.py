@@ -85,6 +85,7 @@ class SkinEvent:
     table_cradle_tilt_angle_deg: float | None = None
     table_horizontal_rotation_angle_deg: float | None = None
     patient_table_relationship: str | None = None
+    patient_orientation: str | None = None
     patient_orientation_modifier: str | None = None
     body_part: str | None = None
     label: str | None = None

@@ -250,3 +250,10 @@ def test_tabletop_reference_point_from_the_table_height() -> None:
     ev = skin_event(reference_point_definition="tabletop_1cm_above")
     beams = resolve_beams([ev], patient=patient_model(), room=room)
     assert beams.reference_distance_mm[0] == pytest.approx(810.0 - 150.0 + 10.0)
+
+
+def test_an_upright_patient_is_modelled_lying_and_said_so() -> None:
+    beams = resolve_beams(
+        [skin_event(patient_orientation="erect")], patient=patient_model(), room=SkinRoom()
+    )
+    assert any("erect" in n and "lying" in n for n in beams.notes)
