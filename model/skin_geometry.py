@@ -380,7 +380,7 @@ def resolve_beams(
     first = next((e for e in events if e.patient_orientation_modifier), None)
     modifier = first.patient_orientation_modifier if first else None
     m, procedure_notes = orientation_matrix(relationship, modifier)
-    upright = sorted({e.patient_orientation for e in events} & {"erect", "semi_erect"})
+    upright = sorted({e.patient_orientation or "" for e in events} & {"erect", "semi_erect"})
     if upright:
         procedure_notes.append(
             f"patient recorded {' and '.join(upright).replace('_', '-')}: modelled lying on the "
