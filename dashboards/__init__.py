@@ -16,6 +16,7 @@ from beamaudit.dashboards.figures import (
     build_distribution,
     build_overview_heatmap,
     build_room_history,
+    build_skin_dose_map,
     build_spectrum,
 )
 from beamaudit.dashboards.pages import (
@@ -57,6 +58,7 @@ __all__ = [
     "build_distribution",
     "build_overview_heatmap",
     "build_room_history",
+    "build_skin_dose_map",
     "build_spectrum",
     "exam_href",
     "flags_href",

@@ -13,6 +13,7 @@ import plotly.graph_objects as go
 from beamaudit.dashboards.wording import OKABE_ITO
 
 __all__ = [
+    "AXIS",
     "FONT",
     "GRID",
     "HEIGHT_PX",
@@ -39,18 +40,22 @@ def series(i: int) -> tuple[str, str]:
     return OKABE_ITO[SERIES[i % len(SERIES)]], SYMBOLS[i % len(SYMBOLS)]
 
 
+#: The look of every axis: light grid, ink line and outside ticks, room for long labels.
+AXIS: dict[str, object] = {
+    "showgrid": True,
+    "gridcolor": GRID,
+    "zeroline": False,
+    "linecolor": INK,
+    "ticks": "outside",
+    "tickcolor": INK,
+    "automargin": True,
+}
+
+
 def style(
     fig: go.Figure, *, title: str | None, x_title: str, y_title: str, legend: bool = True
 ) -> go.Figure:
-    axis = {
-        "showgrid": True,
-        "gridcolor": GRID,
-        "zeroline": False,
-        "linecolor": INK,
-        "ticks": "outside",
-        "tickcolor": INK,
-        "automargin": True,
-    }
+    axis = dict(AXIS)
     fig.update_layout(
         title={
             "text": title or "",

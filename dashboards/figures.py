@@ -14,6 +14,7 @@ builder                        table
 :func:`build_room_history`      ``ROOM_HISTORY`` of one room
 :func:`build_dap_ratio_history` ``ROOM_HISTORY`` of one room
 :func:`build_spectrum`          one exposure's spectrum mapping
+:func:`build_skin_dose_map`     one procedure's skin-dose map record
 =============================  ============================================
 """
 
@@ -27,6 +28,7 @@ from beamaudit.dashboards._review_figures import (
     build_distribution,
     build_overview_heatmap,
 )
+from beamaudit.dashboards._skin_figure import build_skin_dose_map
 from beamaudit.dashboards._spectrum_figure import build_spectrum
 
 __all__ = [
@@ -36,5 +38,6 @@ __all__ = [
     "build_distribution",
     "build_overview_heatmap",
     "build_room_history",
+    "build_skin_dose_map",
     "build_spectrum",
 ]

@@ -24,7 +24,11 @@ __all__ = [
     "FLUORO_MODES",
     "GRIDS",
     "HEADER_MATERIALS",
+    "PATIENT_ORIENTATIONS",
+    "PATIENT_ORIENTATION_MODIFIERS",
+    "PATIENT_TABLE_RELATIONSHIPS",
     "PROCEDURE_FAMILIES",
+    "REFERENCE_POINTS",
     "RETIRED_CODES",
     "VIEW_MEANINGS",
     "CodeKey",
@@ -60,6 +64,17 @@ RETIRED_CODES: dict[CodeKey, CodeKey] = {
     ("R-0038D", "SRT"): ("373066001", "SCT"),  # Yes
     ("R-00339", "SRT"): ("373067005", "SCT"),  # No
     ("113735", "DCM"): ("113824", "DCM"),  # Exposure Time (retired code of TID 10003B)
+    # patient position on the table (CID 19, 20, 21), read for skin-dose maps
+    ("F-10470", "SRT"): ("102540008", "SCT"),  # headfirst
+    ("F-10480", "SRT"): ("102541007", "SCT"),  # feet-first
+    ("F-10450", "SRT"): ("102538003", "SCT"),  # recumbent
+    ("F-10460", "SRT"): ("102539006", "SCT"),  # semi-erect
+    ("F-10340", "SRT"): ("40199007", "SCT"),  # supine
+    ("F-10310", "SRT"): ("1240000", "SCT"),  # prone
+    ("F-10319", "SRT"): ("102536004", "SCT"),  # left lateral decubitus
+    ("F-10317", "SRT"): ("102535000", "SCT"),  # right lateral decubitus
+    ("R-10515", "SRT"): ("399220000", "SCT"),  # transverse
+    ("R-10516", "SRT"): ("399366008", "SCT"),  # oblique
 }
 
 # the same SNOMED codes are written with scheme "SNM3" by some early writers
@@ -253,6 +268,51 @@ DEVICE_TYPES: dict[CodeKey, str] = {
     ("113957", "DCM"): "fluoroscopy_guided",
     ("113958", "DCM"): "integrated_projection",
     ("113959", "DCM"): "cassette_based",
+}
+
+
+# ---- patient position and reference point of fluoroscopy dose reports (TID 10003, 10003B);
+#      read for skin-dose maps. An unknown code of these value sets keeps its meaning, lower-cased.
+
+# CID 10025 Radiation Dose Reference Points: where K_a,r (113738, DCM) "Dose (RP)" is stated
+REFERENCE_POINTS: dict[CodeKey, str] = {
+    ("113860", "DCM"): "isocenter_15cm_toward_source",  # IEC 60601-2-43 interventional
+    ("113861", "DCM"): "image_input_30cm_in_front",
+    ("113862", "DCM"): "tabletop_1cm_above",
+    ("113863", "DCM"): "tabletop_30cm_above",
+    ("113864", "DCM"): "table_centerline_15cm",
+    ("113865", "DCM"): "breast_support_4_2cm_above",
+    ("113941", "DCM"): "detector_plane",
+    ("113964", "DCM"): "patient_surface",
+    ("113965", "DCM"): "source_100cm",
+}
+
+# CID 21 Patient Equipment Relationship: (113745, DCM) "Patient Table Relationship"
+PATIENT_TABLE_RELATIONSHIPS: dict[CodeKey, str] = {
+    ("102540008", "SCT"): "headfirst",
+    ("102541007", "SCT"): "feetfirst",
+    ("399220000", "SCT"): "transverse",
+    ("399366008", "SCT"): "oblique",
+    ("126830", "DCM"): "left_first",
+    ("126831", "DCM"): "right_first",
+    ("126832", "DCM"): "posterior_first",
+    ("126833", "DCM"): "anterior_first",
+}
+
+# CID 19 Patient Orientation: (113743, DCM) "Patient Orientation"
+PATIENT_ORIENTATIONS: dict[CodeKey, str] = {
+    ("102538003", "SCT"): "recumbent",
+    ("C86043", "NCIT"): "erect",
+    ("102539006", "SCT"): "semi_erect",
+}
+
+# CID 20 Patient Orientation Modifier: (113744, DCM), a concept modifier of the orientation
+PATIENT_ORIENTATION_MODIFIERS: dict[CodeKey, str] = {
+    ("40199007", "SCT"): "supine",
+    ("1240000", "SCT"): "prone",
+    ("102536004", "SCT"): "left_lateral_decubitus",
+    ("102535000", "SCT"): "right_lateral_decubitus",
+    ("10904000", "SCT"): "standing",
 }
 
 

@@ -167,6 +167,28 @@ class ExposureEvent:
     pulse_rate_per_s: float | None = None
     number_of_pulses: int | None = None
     irradiation_duration_s: float | None = None
+    # fluoroscopy and interventional geometry (TID 10003 / 10003B / 10003C), for skin-dose maps:
+    # the positioner as PS3.3 C.8.7.5 defines it (primary: RAO -, LAO +; secondary: caudal -,
+    # cranial +), the table in the device's own frame (positions from an arbitrary reference)
+    reference_point_definition: str | None = None  # CID 10025 key, or the report's text
+    pulse_width_ms: float | None = None
+    positioner_primary_angle_deg: float | None = None
+    positioner_secondary_angle_deg: float | None = None
+    positioner_primary_end_angle_deg: float | None = None  # rotational acquisitions
+    positioner_secondary_end_angle_deg: float | None = None
+    column_angulation_deg: float | None = None
+    table_head_tilt_angle_deg: float | None = None
+    table_horizontal_rotation_angle_deg: float | None = None
+    table_cradle_tilt_angle_deg: float | None = None
+    table_longitudinal_position_mm: float | None = None
+    table_lateral_position_mm: float | None = None
+    table_height_position_mm: float | None = None
+    table_longitudinal_end_position_mm: float | None = None  # stepping acquisitions
+    table_lateral_end_position_mm: float | None = None
+    table_height_end_position_mm: float | None = None
+    patient_table_relationship: str | None = None  # "headfirst", "feetfirst" (CID 21)
+    patient_orientation: str | None = None  # "recumbent", "erect" (CID 19)
+    patient_orientation_modifier: str | None = None  # "supine", "prone" (CID 20)
     # where every value came from: field -> "(0018,0060) KVP" or "(122130, DCM) Dose Area Product"
     provenance: dict[str, str] = field(default_factory=dict)
     notes: list[str] = field(default_factory=list)

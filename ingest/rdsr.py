@@ -36,7 +36,11 @@ from .codes import (
     FILTER_TYPES,
     FLUORO_MODES,
     GRIDS,
+    PATIENT_ORIENTATION_MODIFIERS,
+    PATIENT_ORIENTATIONS,
+    PATIENT_TABLE_RELATIONSHIPS,
     PROCEDURE_FAMILIES,
+    REFERENCE_POINTS,
     SSDE_METHODS,
     WATER_EQUIVALENT_DIAMETER_METHODS,
     CodeKey,
@@ -267,6 +271,15 @@ def _size_methods(sink: FieldSink, hits: list[_Found]) -> None:
             )
 
 
+#: coded fields of the skin-dose geometry: their value set, an unknown code keeping its meaning
+_POSITION_CODES: dict[str, dict[CodeKey, str]] = {
+    "reference_point_definition": REFERENCE_POINTS,
+    "patient_table_relationship": PATIENT_TABLE_RELATIONSHIPS,
+    "patient_orientation": PATIENT_ORIENTATIONS,
+    "patient_orientation_modifier": PATIENT_ORIENTATION_MODIFIERS,
+}
+
+
 def _code_value(sink: FieldSink, name: str, hits: list[_Found]) -> None:
     if name == "size_method":
         _size_methods(sink, hits)
@@ -274,6 +287,9 @@ def _code_value(sink: FieldSink, name: str, hits: list[_Found]) -> None:
     hit = hits[0]
     coded = _coded(hit.item)
     if coded is None:
+        if name == "reference_point_definition" and hit.item.value_type == "TEXT":
+            # TID 10003B rows 2 and 3: the same concept as TEXT or as CODE
+            sink.put(name, _text(hit.item, "TextValue"), hit.item.label)
         return
     code, meaning = coded
     label = f"{hit.item.label} = ({code[0]}, {code[1]}) {meaning}"
@@ -304,6 +320,8 @@ def _code_value(sink: FieldSink, name: str, hits: list[_Found]) -> None:
         sink.put("procedure_code", code, label)
     elif name == "acquisition_device_type":
         value = DEVICE_TYPES.get(code)
+    elif name in _POSITION_CODES:
+        value = _POSITION_CODES[name].get(code) or meaning.strip().lower() or None
     else:
         value = meaning or None
     if value is None:

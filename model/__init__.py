@@ -13,6 +13,12 @@ every figure of one exposure with its uncertainty and why trail (:mod:`.exposure
 fluoroscopy and CT accumulations (:mod:`.fluoro_ct`), the CT patient's water-equivalent
 diameter from axial images (:mod:`.ct_size`) and from localizers (:mod:`.ct_localizer`), the
 size-specific dose estimate (:mod:`.ssde`) and unit conversions (:mod:`.units`).
+
+Skin dose of fluoroscopy and interventional procedures: the patient on the table
+(:mod:`.patient_model`), the room frame and the C-arm (:mod:`.skin_geometry`), each event's
+numbers and the room's (:mod:`.skin_events`), the table, backscatter and tissue factors
+(:mod:`.skin_factors`), the skin-dose map and peak skin dose (:mod:`.skin_dose`), and the NCRP
+168 follow-up levels with cumulative skin dose (:mod:`.followup`).
 """
 
 from beamaudit.model.attenuation import (
@@ -108,12 +114,25 @@ from beamaudit.model.fluoro_ct import (
     ct_acquisition_dose,
     ct_study_dose,
 )
+from beamaudit.model.followup import (
+    FOLLOW_UP_LEVELS_MGY,
+    CumulativeSkinDose,
+    LevelCheck,
+    cumulative_skin_dose,
+    substantial_dose_levels,
+    substantial_dose_levels_crossed,
+)
 from beamaudit.model.geometry import (
     GeometryInputs,
     ResolvedGeometry,
     field_area_at_distance_cm2,
     resolve_geometry,
 )
+from beamaudit.model.patient_model import PatientModel, SkinGrid, patient_model, skin_grid
+from beamaudit.model.skin_dose import SkinDoseMap, skin_dose_map
+from beamaudit.model.skin_events import SkinEvent, SkinRoom
+from beamaudit.model.skin_factors import BeamFactors, FixedBeamFactors, SpectrumBeamFactors
+from beamaudit.model.skin_geometry import reference_point_distance_mm
 from beamaudit.model.spectrum import TubeSpectrum, tube_spectrum
 from beamaudit.model.ssde import (
     SizeSpecificDose,
@@ -127,11 +146,13 @@ from beamaudit.model.trail import TrailStep, WhyTrail
 
 __all__ = [
     "DEFAULT_TOTAL_FILTRATION_MM_AL",
+    "FOLLOW_UP_LEVELS_MGY",
     "AxialSizes",
     "BackscatterEstimate",
     "BackscatterEstimates",
     "BackscatterTable",
     "BeamConfig",
+    "BeamFactors",
     "BeamInputs",
     "BeamResult",
     "BeamSpec",
@@ -142,16 +163,20 @@ __all__ = [
     "CtAcquisition",
     "CtAcquisitionDose",
     "CtStudyDose",
+    "CumulativeSkinDose",
     "DefaultValue",
     "DoseFigure",
     "ExamDefault",
     "ExposureDose",
     "FilterSpec",
+    "FixedBeamFactors",
     "GeometryInputs",
+    "LevelCheck",
     "LocalizerCalibration",
     "LocalizerSizes",
     "Material",
     "ModelError",
+    "PatientModel",
     "PhantomLocalizer",
     "ProjectionAccumulation",
     "ProjectionEvent",
@@ -161,6 +186,11 @@ __all__ = [
     "RoomCalibration",
     "ScanRangeSize",
     "SizeSpecificDose",
+    "SkinDoseMap",
+    "SkinEvent",
+    "SkinGrid",
+    "SkinRoom",
+    "SpectrumBeamFactors",
     "TrailStep",
     "TubeSpectrum",
     "WhyTrail",
@@ -177,6 +207,7 @@ __all__ = [
     "compute_exposure_dose",
     "ct_acquisition_dose",
     "ct_study_dose",
+    "cumulative_skin_dose",
     "dap_gy_cm2",
     "default_calibration",
     "default_filters",
@@ -203,11 +234,17 @@ __all__ = [
     "output_at_distance_ugy_per_mas",
     "parse_filter",
     "patient_mask",
+    "patient_model",
+    "reference_point_distance_mm",
     "relative_uncertainty_of_product",
     "resolve_geometry",
     "scan_range_size",
     "size_specific_dose_estimate",
+    "skin_dose_map",
+    "skin_grid",
     "ssde_conversion_factor",
+    "substantial_dose_levels",
+    "substantial_dose_levels_crossed",
     "tissue_to_air_ratio",
     "tube_spectrum",
     "water_equivalent_diameter_cm",

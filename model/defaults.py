@@ -31,6 +31,7 @@ __all__ = [
     "find_exam",
     "load_dose_defaults",
     "load_exam_defaults",
+    "load_named_constants",
 ]
 
 _DATA_PACKAGE = "beamaudit.model.data"
@@ -110,7 +111,20 @@ def load_exam_defaults() -> dict[str, ExamDefault]:
 @functools.cache
 def load_dose_defaults() -> dict[str, DefaultValue]:
     """All named constants by key (read once, then cached; treat as read-only)."""
-    _, rows = _read_table("dose_defaults.csv")
+    return load_named_constants("dose_defaults.csv")
+
+
+@functools.cache
+def load_named_constants(name: str) -> dict[str, DefaultValue]:
+    """The rows of a named-constants file of ``data/`` (columns ``key, value, unit,
+    standard_uncertainty, source``) by key; read once, then cached (treat as read-only).
+
+    Raises
+    ------
+    ModelError
+        A file that does not parse.
+    """
+    _, rows = _read_table(name)
     try:
         return {
             row["key"]: DefaultValue(
@@ -125,7 +139,7 @@ def load_dose_defaults() -> dict[str, DefaultValue]:
             for row in rows
         }
     except (KeyError, ValueError) as exc:
-        raise ModelError(f"dose_defaults.csv does not parse: {exc}") from exc
+        raise ModelError(f"{name} does not parse: {exc}") from exc
 
 
 def exam_default(exam: str) -> ExamDefault:

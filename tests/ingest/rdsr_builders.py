@@ -104,6 +104,32 @@ FOCUSED_GRID: Concept = ("111642", "DCM", "Focused grid")
 FIELD_AREA: Concept = ("113790", "DCM", "Collimated Field Area")
 SID: Concept = ("113750", "DCM", "Distance Source to Detector")
 SOURCE_TO_ISOCENTER: Concept = ("113748", "DCM", "Distance Source to Isocenter")
+# TID 10003 / 10003B / 10003C geometry for skin-dose maps
+PULSE_WIDTH: Concept = ("113793", "DCM", "Pulse Width")
+PRIMARY_ANGLE: Concept = ("112011", "DCM", "Positioner Primary Angle")
+SECONDARY_ANGLE: Concept = ("112012", "DCM", "Positioner Secondary Angle")
+PRIMARY_END_ANGLE: Concept = ("113739", "DCM", "Positioner Primary End Angle")
+SECONDARY_END_ANGLE: Concept = ("113740", "DCM", "Positioner Secondary End Angle")
+TABLE_HEAD_TILT: Concept = ("113754", "DCM", "Table Head Tilt Angle")
+TABLE_HORIZONTAL_ROTATION: Concept = ("113755", "DCM", "Table Horizontal Rotation Angle")
+TABLE_CRADLE_TILT: Concept = ("113756", "DCM", "Table Cradle Tilt Angle")
+TABLE_LONGITUDINAL: Concept = ("113751", "DCM", "Table Longitudinal Position")
+TABLE_LATERAL: Concept = ("113752", "DCM", "Table Lateral Position")
+TABLE_HEIGHT: Concept = ("113753", "DCM", "Table Height Position")
+TABLE_LONGITUDINAL_END: Concept = ("113759", "DCM", "Table Longitudinal End Position")
+SOURCE_TO_REFERENCE_POINT: Concept = ("113737", "DCM", "Distance Source to Reference Point")
+SOURCE_TO_TABLE: Concept = ("113792", "DCM", "Distance Source to Table Plane")
+FIELD_HEIGHT: Concept = ("113788", "DCM", "Collimated Field Height")
+FIELD_WIDTH: Concept = ("113789", "DCM", "Collimated Field Width")
+ROTATIONAL: Concept = ("113613", "DCM", "Rotational Acquisition")
+PATIENT_TABLE_RELATIONSHIP: Concept = ("113745", "DCM", "Patient Table Relationship")
+HEADFIRST: Concept = ("102540008", "SCT", "headfirst")
+FEETFIRST_SRT: Concept = ("F-10480", "SRT", "feet-first")
+PATIENT_ORIENTATION: Concept = ("113743", "DCM", "Patient Orientation")
+RECUMBENT: Concept = ("102538003", "SCT", "recumbent")
+PATIENT_ORIENTATION_MODIFIER: Concept = ("113744", "DCM", "Patient Orientation Modifier")
+SUPINE: Concept = ("40199007", "SCT", "supine")
+PRONE: Concept = ("1240000", "SCT", "prone")
 EXPOSURE_INDEX: Concept = ("113845", "DCM", "Exposure Index")
 TARGET_EXPOSURE_INDEX: Concept = ("113846", "DCM", "Target Exposure Index")
 DEVIATION_INDEX: Concept = ("113847", "DCM", "Deviation Index")
@@ -191,6 +217,68 @@ class FluoroEvent:
     aluminium_mm: float = 1.0
     protocol: str = "Abdomen fluoro"
     srt_codes: bool = False
+    field_area_m2: float = 0.04
+    rotational: bool = False  # an acquisition (fluoroscopy False) of type Rotational
+    source_to_isocenter_mm: float = 810.0
+    sid_mm: float = 1150.0
+    # TID 10003C mechanical data and the patient's position; None leaves the item out
+    geometry: EventGeometry | None = None
+
+
+@dataclass
+class EventGeometry:
+    """Where the beam and the patient were during one synthetic event (report units)."""
+
+    primary_angle_deg: float = 0.0
+    secondary_angle_deg: float = 0.0
+    primary_end_angle_deg: float | None = None
+    secondary_end_angle_deg: float | None = None
+    table_longitudinal_mm: float = 412.0
+    table_lateral_mm: float = -3.5
+    table_height_mm: float = 185.0
+    table_longitudinal_end_mm: float | None = None
+    table_head_tilt_deg: float | None = None
+    table_cradle_tilt_deg: float | None = None
+    table_horizontal_rotation_deg: float | None = None
+    source_to_reference_point_mm: float | None = None
+    source_to_table_mm: float | None = None
+    field_height_mm: float | None = 160.0
+    field_width_mm: float | None = 160.0
+    pulse_width_ms: float | None = 6.5
+    prone: bool = False
+    feet_first_srt: bool = False
+    reference_point_text: str | None = None  # TID 10003B row 2 (TEXT) instead of the code
+
+
+def _geometry_items(geo: EventGeometry) -> list[Dataset]:
+    """TID 10003 patient-position rows and TID 10003C mechanical rows of one event."""
+    items: list[Dataset] = [
+        code_item(PATIENT_TABLE_RELATIONSHIP, FEETFIRST_SRT if geo.feet_first_srt else HEADFIRST),
+        code_item(PATIENT_ORIENTATION, RECUMBENT, children=[
+            code_item(PATIENT_ORIENTATION_MODIFIER, PRONE if geo.prone else SUPINE,
+                      relationship="HAS CONCEPT MOD"),
+        ]),
+        num(PRIMARY_ANGLE, geo.primary_angle_deg, "deg"),
+        num(SECONDARY_ANGLE, geo.secondary_angle_deg, "deg"),
+        num(TABLE_LONGITUDINAL, geo.table_longitudinal_mm, "mm"),
+        num(TABLE_LATERAL, geo.table_lateral_mm, "mm"),
+        num(TABLE_HEIGHT, geo.table_height_mm, "mm"),
+    ]  # fmt: skip
+    optional = (
+        (PRIMARY_END_ANGLE, geo.primary_end_angle_deg, "deg"),
+        (SECONDARY_END_ANGLE, geo.secondary_end_angle_deg, "deg"),
+        (TABLE_LONGITUDINAL_END, geo.table_longitudinal_end_mm, "mm"),
+        (TABLE_HEAD_TILT, geo.table_head_tilt_deg, "deg"),
+        (TABLE_CRADLE_TILT, geo.table_cradle_tilt_deg, "deg"),
+        (TABLE_HORIZONTAL_ROTATION, geo.table_horizontal_rotation_deg, "deg"),
+        (SOURCE_TO_REFERENCE_POINT, geo.source_to_reference_point_mm, "mm"),
+        (SOURCE_TO_TABLE, geo.source_to_table_mm, "mm"),
+        (FIELD_HEIGHT, geo.field_height_mm, "mm"),
+        (FIELD_WIDTH, geo.field_width_mm, "mm"),
+        (PULSE_WIDTH, geo.pulse_width_ms, "ms"),
+    )
+    items += [num(concept, value, unit) for concept, value, unit in optional if value is not None]
+    return items
 
 
 def _projection_event(index: int, ev: FluoroEvent) -> Dataset:
@@ -200,14 +288,20 @@ def _projection_event(index: int, ev: FluoroEvent) -> Dataset:
         datetime_item(STARTED, START.replace(minute=15 + index)),
         code_item(
             EVENT_TYPE,
-            (FLUOROSCOPY_SRT if ev.srt_codes else FLUOROSCOPY) if ev.fluoroscopy else STATIONARY,
+            (FLUOROSCOPY_SRT if ev.srt_codes else FLUOROSCOPY)
+            if ev.fluoroscopy
+            else (ROTATIONAL if ev.rotational else STATIONARY),
         ),
         text(PROTOCOL, ev.protocol),
         code_item(TARGET_REGION, ABDOMEN),
         num(DAP, ev.dap_gy_m2, "Gy.m2"),
         # TID 10003B source data
         num(DOSE_RP, ev.dose_rp_gy, "Gy"),
-        code_item(REFERENCE_POINT_DEFINITION, RP_15CM),
+        (
+            text(REFERENCE_POINT_DEFINITION, ev.geometry.reference_point_text)
+            if ev.geometry is not None and ev.geometry.reference_point_text is not None
+            else code_item(REFERENCE_POINT_DEFINITION, RP_15CM)
+        ),
     ]
     if ev.fluoroscopy:
         items += [
@@ -240,11 +334,13 @@ def _projection_event(index: int, ev: FluoroEvent) -> Dataset:
             num(FILTER_MAX, ev.aluminium_mm, "mm"),
         ]),
         code_item(GRID, FOCUSED_GRID),
-        num(FIELD_AREA, 0.04, "m2"),
+        num(FIELD_AREA, ev.field_area_m2, "m2"),
         # TID 10003C mechanical data
-        num(SOURCE_TO_ISOCENTER, 810.0, "mm"),
-        num(SID, 1150.0, "mm"),
+        num(SOURCE_TO_ISOCENTER, ev.source_to_isocenter_mm, "mm"),
+        num(SID, ev.sid_mm, "mm"),
     ]  # fmt: skip
+    if ev.geometry is not None:
+        items += _geometry_items(ev.geometry)
     return container(EVENT, items)
 
 

@@ -291,3 +291,97 @@ def test_aapm_204_ssde_method_and_no_dw() -> None:
 def test_negative_size_rejects_the_report() -> None:
     with pytest.raises(IngestError, match=r"Measured Lateral Dimension -3 mm is outside > 0"):
         parse(ct_report([CtEvent(ssde_mgy=16.0, lateral_mm=-3.0)]))
+
+
+# ---- TID 10003C mechanical data and the patient's position (skin-dose geometry) ----
+
+
+def _geometry_report(**geometry: Any) -> Any:
+    return parse(
+        fluoroscopy_report([FluoroEvent(geometry=rdsr_builders.EventGeometry(**geometry))])
+    )
+
+
+def test_positioner_table_and_patient_position_are_read_in_our_units() -> None:
+    # PS3.16 TID 10003C: angles in deg, table positions in mm from the device's own reference
+    (event,) = _geometry_report(
+        primary_angle_deg=-30.0,
+        secondary_angle_deg=20.0,
+        table_head_tilt_deg=5.0,
+        table_cradle_tilt_deg=-2.0,
+        table_horizontal_rotation_deg=90.0,
+        source_to_reference_point_mm=660.0,
+        source_to_table_mm=595.0,
+    ).events
+    assert event.positioner_primary_angle_deg == -30.0  # RAO 30
+    assert event.positioner_secondary_angle_deg == 20.0  # CRA 20
+    assert event.table_longitudinal_position_mm == 412.0
+    assert event.table_lateral_position_mm == -3.5
+    assert event.table_height_position_mm == 185.0
+    assert event.table_head_tilt_angle_deg == 5.0
+    assert event.table_cradle_tilt_angle_deg == -2.0
+    assert event.table_horizontal_rotation_angle_deg == 90.0
+    assert event.source_to_reference_point_mm == 660.0
+    assert event.source_to_table_mm == 595.0
+    assert event.field_height_mm == 160.0 and event.field_width_mm == 160.0
+    assert event.pulse_width_ms == 6.5
+    assert event.reference_point_definition == "isocenter_15cm_toward_source"
+    assert event.patient_table_relationship == "headfirst"
+    assert event.patient_orientation == "recumbent"
+    assert event.patient_orientation_modifier == "supine"
+    assert event.provenance["positioner_primary_angle_deg"] == (
+        "(112011, DCM) Positioner Primary Angle"
+    )
+    assert event.provenance["table_height_position_mm"] == "(113753, DCM) Table Height Position"
+
+
+def test_fluoroscopy_technique_of_each_event_is_kept() -> None:
+    # kVp, added filters (Cu, Al), pulse data, fluoro mode, event type, K_a,r and DAP per event
+    report = fluoroscopy_report(
+        [
+            FluoroEvent(kvp_kv=71.0, copper_mm=0.9, pulses=120, pulse_rate=7.5, duration_s=16.0),
+            FluoroEvent(fluoroscopy=False, rotational=True, kvp_kv=90.0, copper_mm=0.1),
+        ]
+    )
+    fluoro, rotational = parse(report).events
+    assert (fluoro.kvp_kv, fluoro.event_type, fluoro.fluoro_mode) == (71.0, "fluoroscopy", "pulsed")
+    assert fluoro.filters == (FilterLayer("copper", 0.9), FilterLayer("aluminium", 1.0))
+    assert (fluoro.number_of_pulses, fluoro.pulse_rate_per_s) == (120, 7.5)
+    assert fluoro.irradiation_duration_s == 16.0
+    assert (fluoro.dap_gy_cm2, fluoro.reference_point_air_kerma_mgy) == (2.5, 12.0)
+    assert rotational.event_type == "rotational" and rotational.kvp_kv == 90.0
+    assert rotational.fluoro_mode is None
+
+
+def test_rotational_and_stepping_end_values_are_read() -> None:
+    (event,) = _geometry_report(
+        primary_angle_deg=-100.0, primary_end_angle_deg=100.0, table_longitudinal_end_mm=812.0
+    ).events
+    assert event.positioner_primary_end_angle_deg == 100.0
+    assert event.table_longitudinal_end_position_mm == 812.0
+
+
+def test_retired_position_codes_and_prone_patients() -> None:
+    (event,) = _geometry_report(prone=True, feet_first_srt=True).events
+    assert event.patient_table_relationship == "feetfirst"  # F-10480 SRT read as 102541007 SCT
+    assert event.patient_orientation_modifier == "prone"
+
+
+def test_reference_point_definition_as_text_is_kept_as_written() -> None:
+    (event,) = _geometry_report(reference_point_text="15 cm below isocentre").events
+    assert event.reference_point_definition == "15 cm below isocentre"
+
+
+def test_a_geometry_value_out_of_range_is_dropped_with_a_warning_not_the_report() -> None:
+    result = _geometry_report(table_head_tilt_deg=135.0)
+    (event,) = result.events
+    assert event.table_head_tilt_angle_deg is None
+    assert event.reference_point_air_kerma_mgy == 12.0  # the dose stays
+    assert any("Table Head Tilt Angle 135" in w for w in result.warnings)
+
+
+def test_events_without_mechanical_data_leave_the_geometry_unset() -> None:
+    event = parse(fluoroscopy_report()).events[0]
+    assert event.positioner_primary_angle_deg is None
+    assert event.table_height_position_mm is None
+    assert event.patient_table_relationship is None
