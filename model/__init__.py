@@ -12,6 +12,11 @@ every figure of one exposure with its uncertainty and why trail (:mod:`.exposure
 :mod:`.trail`), the same figures of many stored exposures at once as arrays (:mod:`.bulk`),
 fluoroscopy and CT accumulations (:mod:`.fluoro_ct`), the size-specific dose
 estimate (:mod:`.ssde`) and unit conversions (:mod:`.units`).
+
+Mammography: the beam at the breast for Mo, Rh, W and Ag anodes (:mod:`.mammography`), the
+mean glandular dose by the Dance method (:mod:`.glandular_dose`) from coefficient tables
+(:mod:`.dance_coefficients`) computed by beamaudit's own breast Monte Carlo
+(:mod:`.breast_montecarlo`, :mod:`.photon_interactions`; generators, not run-time code).
 """
 
 from beamaudit.model.attenuation import (
@@ -49,6 +54,11 @@ from beamaudit.model.calibration import (
     RoomCalibration,
     calibrate_room,
     default_calibration,
+)
+from beamaudit.model.dance_coefficients import (
+    OfficialCoefficients,
+    load_official_coefficients,
+    typical_glandularity,
 )
 from beamaudit.model.defaults import (
     DefaultValue,
@@ -98,6 +108,12 @@ from beamaudit.model.geometry import (
     field_area_at_distance_cm2,
     resolve_geometry,
 )
+from beamaudit.model.glandular_dose import (
+    GlandularDose,
+    TomosynthesisAcquisition,
+    mean_glandular_dose,
+)
+from beamaudit.model.mammography import BreastBeam, MammographyTechnique, breast_beam
 from beamaudit.model.spectrum import TubeSpectrum, tube_spectrum
 from beamaudit.model.ssde import (
     SizeSpecificDose,
@@ -119,6 +135,7 @@ __all__ = [
     "BeamResult",
     "BeamSpec",
     "BeamTable",
+    "BreastBeam",
     "BulkDose",
     "CalibrationResidual",
     "CtAcquisition",
@@ -130,8 +147,11 @@ __all__ = [
     "ExposureDose",
     "FilterSpec",
     "GeometryInputs",
+    "GlandularDose",
+    "MammographyTechnique",
     "Material",
     "ModelError",
+    "OfficialCoefficients",
     "ProjectionAccumulation",
     "ProjectionEvent",
     "QAMeasurement",
@@ -139,6 +159,7 @@ __all__ = [
     "ResolvedGeometry",
     "RoomCalibration",
     "SizeSpecificDose",
+    "TomosynthesisAcquisition",
     "TrailStep",
     "TubeSpectrum",
     "WhyTrail",
@@ -147,6 +168,7 @@ __all__ = [
     "backscatter_estimate",
     "backscatter_estimates",
     "backscatter_factor",
+    "breast_beam",
     "calibrate_room",
     "compare_reported",
     "compute_beam",
@@ -170,10 +192,12 @@ __all__ = [
     "incident_air_kerma_mgy",
     "inverse_square_air_kerma_mgy",
     "load_backscatter_table",
+    "load_official_coefficients",
     "mass_attenuation_cm2_g",
     "mass_energy_absorption_cm2_g",
     "material",
     "material_names",
+    "mean_glandular_dose",
     "mu_en_ratio",
     "output_at_distance_ugy_per_mas",
     "parse_filter",
@@ -183,6 +207,7 @@ __all__ = [
     "ssde_conversion_factor",
     "tissue_to_air_ratio",
     "tube_spectrum",
+    "typical_glandularity",
     "water_equivalent_diameter_cm",
     "water_equivalent_diameter_from_image_cm",
 ]

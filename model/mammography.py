@@ -326,6 +326,11 @@ def breast_beam(
         assumptions.append(text)
     if note is not None:
         assumptions.append(note)
+    if not result.calibrated:
+        assumptions.append(
+            "the default output scale was found for radiography tubes at 60-120 kV; at "
+            "mammography voltages it is a rough guide until the room's output is measured"
+        )
     scale = (1000.0 / r_ref) ** 2 * 1.0e-3  # µGy at 1 m -> mGy at r_ref
     kerma = result.output_ugy_per_mas_1m * scale
     u_kerma = result.uncertainty.get("output_ugy_per_mas_1m", 0.0) * scale
