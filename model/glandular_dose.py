@@ -383,7 +383,10 @@ def _choose_glandularity(
     if glandularity is not None:
         g = float(glandularity)
         if not (math.isfinite(g) and 0.001 <= g <= 1.0):
-            raise ModelError(f"glandularity {glandularity} is outside 0.001-1 (0.1-100 %)")
+            raise ModelError(
+                f"glandularity {glandularity} is outside 0.001-1: it is a mass fraction "
+                "(0.3 for 30 %)"
+            )
         trail.add("glandularity", g, "1", equation="given", source="caller")
         return g
     if age_years is not None and not (math.isfinite(age_years) and 0.0 < age_years < 130.0):
