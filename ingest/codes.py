@@ -24,6 +24,7 @@ __all__ = [
     "FLUORO_MODES",
     "GRIDS",
     "HEADER_MATERIALS",
+    "LATERALITIES",
     "PATIENT_ORIENTATIONS",
     "PATIENT_ORIENTATION_MODIFIERS",
     "PATIENT_TABLE_RELATIONSHIPS",
@@ -75,6 +76,11 @@ RETIRED_CODES: dict[CodeKey, CodeKey] = {
     ("F-10317", "SRT"): ("102535000", "SCT"),  # right lateral decubitus
     ("R-10515", "SRT"): ("399220000", "SCT"),  # transverse
     ("R-10516", "SRT"): ("399366008", "SCT"),  # oblique
+    ("G-A100", "SRT"): ("24028007", "SCT"),  # Right
+    ("G-A101", "SRT"): ("7771000", "SCT"),  # Left
+    ("G-A102", "SRT"): ("51440002", "SCT"),  # Bilateral
+    ("T-04020", "SRT"): ("73056007", "SCT"),  # Right breast
+    ("T-04030", "SRT"): ("80248007", "SCT"),  # Left breast
 }
 
 # the same SNOMED codes are written with scheme "SNM3" by some early writers
@@ -198,6 +204,16 @@ FILTER_TYPES: dict[CodeKey, str] = {
     ("113652", "DCM"): "butterfly",
     ("113653", "DCM"): "flat",
     ("111609", "DCM"): "none",
+}
+
+# CID 244 Laterality (Target Region's modifier in TID 10003) and CID 6022 Side (the modifier of
+# TID 10005 Accumulated Average Glandular Dose) -> "L", "R", "B"
+LATERALITIES: dict[CodeKey, str] = {
+    ("7771000", "SCT"): "L",  # Left
+    ("24028007", "SCT"): "R",  # Right
+    ("51440002", "SCT"): "B",  # Bilateral (Right and left)
+    ("80248007", "SCT"): "L",  # Left breast
+    ("73056007", "SCT"): "R",  # Right breast
 }
 
 # CID 10017 X-Ray Grids

@@ -189,6 +189,18 @@ class ExposureEvent:
     patient_table_relationship: str | None = None  # "headfirst", "feetfirst" (CID 21)
     patient_orientation: str | None = None  # "recumbent", "erect" (CID 19)
     patient_orientation_modifier: str | None = None  # "supine", "prone" (CID 20)
+    # mammography (Mammography Image, Enhanced Mammography Image, Breast View and Breast
+    # Tomosynthesis Acquisition modules; TID 10003 rows of a mammography dose report)
+    compression_force_n: float | None = None
+    compression_pressure_kpa: float | None = None
+    compression_contact_area_mm2: float | None = None
+    paddle_description: str | None = None
+    image_laterality: str | None = None  # "L", "R" or "B" (both)
+    breast_implant_present: bool | None = None
+    organ_exposed: str | None = None  # (0040,0318), e.g. "BREAST": what organ_dose_mgy is of
+    mammography_acquisition: str | None = None  # "2d" or "tomosynthesis"
+    tomo_scan_arc_deg: float | None = None  # total arc of the tube's sweep
+    tomo_projections: int | None = None  # projections of the sweep
     # where every value came from: field -> "(0018,0060) KVP" or "(122130, DCM) Dose Area Product"
     provenance: dict[str, str] = field(default_factory=dict)
     notes: list[str] = field(default_factory=list)
@@ -233,7 +245,10 @@ class AccumulatedDose:
     number_of_radiographic_frames: int | None = None
     number_of_events: int | None = None
     dlp_total_mgy_cm: float | None = None
-    agd_total_mgy: float | None = None
+    agd_total_mgy: float | None = None  # TID 10005 value without a breast side
+    # TID 10005 Accumulated Average Glandular Dose per breast (CID 6022 Side)
+    agd_left_mgy: float | None = None
+    agd_right_mgy: float | None = None
     provenance: dict[str, str] = field(default_factory=dict)
 
 

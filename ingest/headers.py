@@ -87,6 +87,10 @@ _EVENT_NUMBERS = (
     "target_exposure_index",
     "deviation_index",
     "irradiation_duration_s",
+    "compression_force_n",
+    "compression_pressure_kpa",
+    "compression_contact_area_mm2",
+    "tomo_scan_arc_deg",
 )
 _EVENT_TEXT = (
     "protocol_name",
@@ -94,6 +98,8 @@ _EVENT_TEXT = (
     "view_position",
     "filter_type",
     "entrance_dose_derivation",
+    "paddle_description",
+    "organ_exposed",
 )
 _DOSE_FIELDS = frozenset({"dap_gy_cm2", "entrance_dose_mgy", "organ_dose_mgy"})
 _SUMMED_OVER_FRAMES = frozenset({"exposure_mas", "exposure_time_ms"})
@@ -104,6 +110,27 @@ _PER_FRAME = 0x52009230
 _SHARED = 0x52009229
 _XRAY_FILTER_SEQUENCE = 0x00189556
 _XRAY_ACQUISITION_DOSE_SEQUENCE = 0x00189542
+_XRAY_3D_ACQUISITION_SEQUENCE = 0x00189507  # Breast Tomosynthesis Acquisition module
+
+# Storage SOP Classes of breast imaging (PS3.4 B.5): Digital Mammography X-Ray (presentation,
+# processing), Breast Tomosynthesis, Breast Projection X-Ray (presentation, processing)
+_BREAST_SOP_CLASSES = frozenset(
+    {
+        "1.2.840.10008.5.1.4.1.1.1.2",
+        "1.2.840.10008.5.1.4.1.1.1.2.1",
+        "1.2.840.10008.5.1.4.1.1.13.1.3",
+        "1.2.840.10008.5.1.4.1.1.13.1.4",
+        "1.2.840.10008.5.1.4.1.1.13.1.5",
+    }
+)
+_BREAST_TOMOSYNTHESIS_SOP_CLASS = "1.2.840.10008.5.1.4.1.1.13.1.3"
+# (0020,0062) Image Laterality and (0020,0060) Laterality, Enumerated Values (PS3.3 C.7.6.2,
+# C.7.3.1): L left, R right, B both; U (unpaired) says nothing of a breast's side
+_LATERALITIES = {"L": "L", "R": "R", "B": "B"}
+# (0028,1300) Breast Implant Present, Enumerated Values YES, NO (PS3.3 C.8.11.7)
+_YES_NO = {"YES": True, "NO": False}
+# summed over a tomosynthesis sweep's projections when the acquisition gives no total
+_PER_PROJECTION_SUMS = ("exposure_mas", "organ_dose_mgy", "entrance_dose_mgy")
 
 
 class _Views:
@@ -140,7 +167,7 @@ def _group_frames(reader: ValueReader, uid_row: FieldMapping) -> list[tuple[str 
     """One ``(irradiation event UID, views)`` per event of the object."""
     top_extra = [
         reader.child(item)
-        for tag in (_XRAY_ACQUISITION_DOSE_SEQUENCE,)
+        for tag in (_XRAY_ACQUISITION_DOSE_SEQUENCE, _XRAY_3D_ACQUISITION_SEQUENCE)
         for item in reader.sequence(tag)[:1]
     ]
     shared_fg = reader.sequence(_SHARED)
@@ -450,6 +477,72 @@ def _read_ct_code(
         return
 
 
+def _read_mammography(
+    sink: FieldSink, views: list[ValueReader], reader: ValueReader, base: dict[str, object]
+) -> None:
+    """Laterality, implant, 2D or tomosynthesis, and a tomosynthesis sweep's projections."""
+    by_field = header_rows_by_field()
+    found = _string(views, by_field["image_laterality"])
+    if found is not None:
+        side = _LATERALITIES.get(found[0].upper())
+        if side is not None:
+            sink.put("image_laterality", side, found[1].label)
+        elif found[0].upper() != "U":
+            sink.warnings.append(f"{found[1].label} {found[0]!r} is not L, R, B or U; not kept")
+    found = _string(views, by_field["breast_implant_present"])
+    if found is not None:
+        if found[0].upper() in _YES_NO:
+            sink.put("breast_implant_present", _YES_NO[found[0].upper()], found[1].label)
+        else:
+            sink.warnings.append(f"{found[1].label} {found[0]!r} is not YES or NO; not kept")
+    acquisition_row, image_type_row = by_field["mammography_acquisition"]
+    assert acquisition_row.tag is not None and image_type_row.tag is not None
+    acquisitions = reader.sequence(acquisition_row.tag)
+    sop_class = str(base.get("sop_class_uid") or "")
+    if acquisitions:
+        sink.put("mammography_acquisition", "tomosynthesis", acquisition_row.label)
+        _read_projections(sink, reader.child(acquisitions[0]))
+        return
+    if sop_class == _BREAST_TOMOSYNTHESIS_SOP_CLASS:
+        sink.put("mammography_acquisition", "tomosynthesis", "(0008,0016) SOPClassUID")
+        return
+    if sop_class not in _BREAST_SOP_CLASSES and str(base.get("modality") or "") != "MG":
+        return
+    assert image_type_row.keyword is not None and image_type_row.vr is not None
+    image_type = reader.strings(image_type_row.tag, image_type_row.keyword, image_type_row.vr)
+    if image_type and any("TOMO" in value.upper() for value in image_type):
+        joined = "\\".join(image_type)
+        sink.put("mammography_acquisition", "tomosynthesis", f"{image_type_row.label} {joined}")
+    else:
+        sink.put("mammography_acquisition", "2d", "(0008,0016) SOPClassUID, (0008,0008) ImageType")
+
+
+def _read_projections(sink: FieldSink, acquisition: ValueReader) -> None:
+    """Projections of one Breast Tomosynthesis Acquisition item; totals summed from them where
+    the item gives none."""
+    (row,) = header_rows_by_field()["tomo_projections"]
+    assert row.tag is not None
+    projections = [acquisition.child(item) for item in acquisition.sequence(row.tag)]
+    if not projections:
+        return
+    sink.put("tomo_projections", len(projections), row.label)
+    for field in _PER_PROJECTION_SUMS:
+        if field in sink.values:
+            continue
+        rows = _rows(field, "projection")
+        found = [_numbers([p], rows) for p in projections]
+        if not all(found):
+            if any(found):
+                sink.notes.append(
+                    f"{field} recorded for some projections only: no total over the sweep"
+                )
+            continue
+        total = sum(f[0][0] for f in found if f is not None)
+        first = next(f for f in found if f is not None)[1]
+        label = f"{row.label} > {first.label}, summed over {len(projections)} projections"
+        sink.quantity(field, total, label, from_unit=first.unit, to_unit=first.our_unit)
+
+
 def _read_event_datetime(sink: FieldSink, reader: ValueReader) -> None:
     dt_row, date_row, time_row = header_rows_by_field()["event_datetime"]
     text = reader.string(dt_row)
@@ -525,6 +618,8 @@ def header_events(
             sink.put("irradiation_event_uid", event_uid, uid_row.label)
         _read_numbers(sink, group, family, len(groups))
         _read_text(sink, views, family)
+        if family == "projection":
+            _read_mammography(sink, views, reader, base)
         _read_focal_spot(sink, views)
         _read_filters(sink, views, reader)
         _read_geometry(sink, views)

@@ -273,6 +273,22 @@ MAPPING: tuple[FieldMapping, ...] = (
     _h("exposure_index", "ExposureIndex", 0x00181411, "DS", "1", "1"),
     _h("target_exposure_index", "TargetExposureIndex", 0x00181412, "DS", "1", "1"),
     _h("deviation_index", "DeviationIndex", 0x00181413, "DS", "1", "1"),
+    # ---- mammography (Mammography Image, Enhanced Mammography Image, Breast View, Breast
+    #      Tomosynthesis Acquisition modules, PS3.3 C.8.11.7, C.8.32, C.8.21.3.4)
+    _h("compression_force_n", "CompressionForce", 0x001811A2, "DS", "N", "N"),
+    _h("compression_pressure_kpa", "CompressionPressure", 0x001811A3, "DS", "kPa", "kPa"),
+    _h("compression_contact_area_mm2", "CompressionContactArea", 0x001811A5, "DS", "mm2",
+       "mm2"),
+    _h("paddle_description", "PaddleDescription", 0x001811A4, "LO"),
+    _h("image_laterality", "ImageLaterality", 0x00200062, "CS"),
+    _h("image_laterality", "FrameLaterality", 0x00209072, "CS", rank=1),
+    _h("image_laterality", "Laterality", 0x00200060, "CS", rank=2),
+    _h("breast_implant_present", "BreastImplantPresent", 0x00281300, "CS"),
+    _h("organ_exposed", "OrganExposed", 0x00400318, "CS"),
+    _h("tomo_scan_arc_deg", "PrimaryPositionerScanArc", 0x00189508, "FL", "deg", "deg"),
+    _h("tomo_projections", "PerProjectionAcquisitionSequence", 0x00189538, "SQ"),
+    _h("mammography_acquisition", "XRay3DAcquisitionSequence", 0x00189507, "SQ"),
+    _h("mammography_acquisition", "ImageType", 0x00080008, "CS", rank=1),
     # ---- dose report: document level (TID 10001 / 10011 and TID 1002 observer context)
     _c("document", "procedure_reported", "121058", "Procedure reported", "CODE"),
     _c("document", "acquisition_device_type", "122142", "Acquisition Device Type", "CODE"),
@@ -369,6 +385,15 @@ MAPPING: tuple[FieldMapping, ...] = (
     _c("projection_event", "patient_orientation", "113743", "Patient Orientation", "CODE"),
     _c("projection_event", "patient_orientation_modifier", "113744",
        "Patient Orientation Modifier", "CODE"),
+    # mammography rows of TID 10003 (laterality: the modifier of Target Region, CID 244)
+    _c("projection_event", "compression_force_n", "111647", "Compression Force", "NUM",
+       "N", "N"),
+    _c("projection_event", "compression_pressure_kpa", "111648", "Compression Pressure", "NUM",
+       "kPa", "kPa"),
+    _c("projection_event", "compression_contact_area_mm2", "111649",
+       "Compression Contact Area", "NUM", "mm2", "mm2"),
+    _c("projection_event", "image_laterality", "272741003", "Laterality", "CODE",
+       scheme="SCT"),
     # ---- one X-Ray Filters container (inside TID 10003B)
     _c("filter", "filter_type", "113772", "X-Ray Filter Type", "CODE"),
     _c("filter", "material", "113757", "X-Ray Filter Material", "CODE"),
@@ -546,6 +571,21 @@ FIELD_LIMITS: dict[str, FieldLimit] = {
         FieldLimit(-1e5, 1e5, action="drop", why="a table travel within 100 m"),
     ),
     "pulse_width_ms": FieldLimit(0.0, 1000.0, low_open=True, zero_means_absent=True, action="drop"),
+    "agd_left_mgy": _SKIN_CEILING,
+    "agd_right_mgy": _SKIN_CEILING,
+    # mammography compression and the tube's sweep: context, not dose, so a wrong value is
+    # dropped with a warning. 1,000 N is five times the 200 N (45 lb) at which MQSA caps a
+    # powered paddle (21 CFR 900.12(e); from memory)
+    "compression_force_n": FieldLimit(
+        0.0,
+        1000.0,
+        zero_means_absent=True,
+        action="drop",
+        why="ceiling: 1,000 N, five times MQSA's powered maximum",
+    ),
+    "compression_pressure_kpa": FieldLimit(0.0, None, action="drop"),
+    "compression_contact_area_mm2": FieldLimit(0.0, None, action="drop"),
+    "tomo_scan_arc_deg": FieldLimit(0.0, 360.0, action="drop"),
     # demographics: dropped with a warning, never rejecting the exposures
     "patient_weight_kg": FieldLimit(
         0.0,

@@ -36,6 +36,7 @@ from .codes import (
     FILTER_TYPES,
     FLUORO_MODES,
     GRIDS,
+    LATERALITIES,
     PATIENT_ORIENTATION_MODIFIERS,
     PATIENT_ORIENTATIONS,
     PATIENT_TABLE_RELATIONSHIPS,
@@ -70,6 +71,7 @@ _CT_ACCUMULATED: CodeKey = ("113811", "DCM")
 _XRAY_FILTERS: CodeKey = ("113771", "DCM")
 _CT_SOURCE: CodeKey = ("113831", "DCM")
 _MAMMOGRAPHY: CodeKey = ("71651007", "SCT")
+_LATERALITY: CodeKey = ("272741003", "SCT")
 _CONTAINERS_OF_INTEREST = frozenset(
     {_PROJECTION_EVENT, _CT_EVENT, _PROJECTION_ACCUMULATED, _CT_ACCUMULATED}
 )
@@ -322,6 +324,8 @@ def _code_value(sink: FieldSink, name: str, hits: list[_Found]) -> None:
         value = DEVICE_TYPES.get(code)
     elif name in _POSITION_CODES:
         value = _POSITION_CODES[name].get(code) or meaning.strip().lower() or None
+    elif name == "image_laterality":
+        value = LATERALITIES.get(code)
     else:
         value = meaning or None
     if value is None:
@@ -371,10 +375,39 @@ def _filters(sink: FieldSink, hits: list[_Found]) -> None:
         sink.put("filter_type", "+".join(dict.fromkeys(types)), label)
 
 
+def _glandular_dose_by_side(sink: FieldSink, hits: list[_Found]) -> None:
+    """TID 10005: one Accumulated Average Glandular Dose per breast, told apart by its
+    Laterality modifier (CID 6022 Side; CID 244 spellings accepted). A value without a side,
+    or of both, is the unlateralised total."""
+    by_side: dict[str, list[_Found]] = {}
+    for hit in hits:
+        side = None
+        for child in hit.item.children:
+            if child.code == _LATERALITY and child.value_type == "CODE":
+                coded = _coded(child)
+                side = LATERALITIES.get(coded[0]) if coded is not None else None
+                if side is None:
+                    sink.notes.append(f"{hit.item.label}: laterality not understood, no side")
+        field = {"L": "agd_left_mgy", "R": "agd_right_mgy"}.get(side or "", "agd_total_mgy")
+        by_side.setdefault(field, []).append(hit)
+    sides = {"agd_left_mgy": "left breast", "agd_right_mgy": "right breast"}
+    for field, side_hits in by_side.items():
+        part = FieldSink(sink.warnings)
+        _number_value(part, field, side_hits)
+        sink.notes.extend(part.notes)
+        if field in part.values:
+            label = part.provenance[field]
+            if field in sides:
+                label += f" > (272741003, SCT) Laterality: {sides[field]}"
+            sink.put(field, part.values[field], label)
+
+
 def _fill(sink: FieldSink, found: dict[str, list[_Found]]) -> None:
     for name, hits in found.items():
         vt = hits[0].row.value_type
-        if vt == "NUM":
+        if name == "agd_total_mgy":
+            _glandular_dose_by_side(sink, hits)
+        elif vt == "NUM":
             _number_value(sink, name, hits)
         elif vt == "CODE":
             _code_value(sink, name, hits)
@@ -545,6 +578,8 @@ def rdsr_events(
         fields.update(values)
         fields["modality_family"] = family
         fields["modality"] = "CT" if family == "ct" else ("MG" if is_mammo else None)
+        if is_mammo and family == "projection":
+            _mammography_acquisition(fields, sink)
         guided = fields.get("acquisition_device_type") == "fluoroscopy_guided"
         if fields["modality"] is None and (guided or fields.get("event_type") == "fluoroscopy"):
             # a fluoroscopy-guided system's report (CID 10032 113957): the room is RF/XA; RF is
@@ -586,6 +621,22 @@ def rdsr_events(
             )
         )
     return events, accumulated
+
+
+def _mammography_acquisition(fields: dict[str, Any], sink: FieldSink) -> None:
+    """2D or tomosynthesis for an event of a mammography report: a Rotational Acquisition
+    (CID 10002) is a tomosynthesis sweep, a Stationary Acquisition a 2D view; without an event
+    type, an acquisition protocol naming tomosynthesis decides (noted)."""
+    event_type = fields.get("event_type")
+    if event_type in ("rotational", "stationary"):
+        fields["mammography_acquisition"] = "tomosynthesis" if event_type == "rotational" else "2d"
+        sink.provenance["mammography_acquisition"] = sink.provenance["event_type"]
+        return
+    protocol = str(fields.get("protocol_name") or "")
+    if "tomo" in protocol.lower():
+        fields["mammography_acquisition"] = "tomosynthesis"
+        sink.provenance["mammography_acquisition"] = sink.provenance["protocol_name"]
+        sink.notes.append("tomosynthesis inferred from the acquisition protocol's name")
 
 
 def _check_dlp_total(total: float, events: list[ExposureEvent], warnings: list[str]) -> None:

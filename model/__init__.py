@@ -19,6 +19,11 @@ Skin dose of fluoroscopy and interventional procedures: the patient on the table
 numbers and the room's (:mod:`.skin_events`), the table, backscatter and tissue factors
 (:mod:`.skin_factors`), the skin-dose map and peak skin dose (:mod:`.skin_dose`), and the NCRP
 168 follow-up levels with cumulative skin dose (:mod:`.followup`).
+
+Mammography: the beam at the breast for Mo, Rh, W and Ag anodes (:mod:`.mammography`), the
+mean glandular dose by the Dance method (:mod:`.glandular_dose`) from coefficient tables
+(:mod:`.dance_coefficients`) computed by beamaudit's own breast Monte Carlo
+(:mod:`.breast_montecarlo`, :mod:`.photon_interactions`; generators, not run-time code).
 """
 
 from beamaudit.model.attenuation import (
@@ -71,6 +76,11 @@ from beamaudit.model.ct_size import (
     axial_sizes,
     patient_mask,
     scan_range_size,
+)
+from beamaudit.model.dance_coefficients import (
+    OfficialCoefficients,
+    load_official_coefficients,
+    typical_glandularity,
 )
 from beamaudit.model.defaults import (
     DefaultValue,
@@ -128,6 +138,12 @@ from beamaudit.model.geometry import (
     field_area_at_distance_cm2,
     resolve_geometry,
 )
+from beamaudit.model.glandular_dose import (
+    GlandularDose,
+    TomosynthesisAcquisition,
+    mean_glandular_dose,
+)
+from beamaudit.model.mammography import BreastBeam, MammographyTechnique, breast_beam
 from beamaudit.model.patient_model import PatientModel, SkinGrid, patient_model, skin_grid
 from beamaudit.model.skin_dose import SkinDoseMap, skin_dose_map
 from beamaudit.model.skin_events import SkinEvent, SkinRoom
@@ -157,6 +173,7 @@ __all__ = [
     "BeamResult",
     "BeamSpec",
     "BeamTable",
+    "BreastBeam",
     "BulkDose",
     "CalibrationResidual",
     "ContourMethod",
@@ -171,11 +188,14 @@ __all__ = [
     "FilterSpec",
     "FixedBeamFactors",
     "GeometryInputs",
+    "GlandularDose",
     "LevelCheck",
     "LocalizerCalibration",
     "LocalizerSizes",
+    "MammographyTechnique",
     "Material",
     "ModelError",
+    "OfficialCoefficients",
     "PatientModel",
     "PhantomLocalizer",
     "ProjectionAccumulation",
@@ -191,6 +211,7 @@ __all__ = [
     "SkinGrid",
     "SkinRoom",
     "SpectrumBeamFactors",
+    "TomosynthesisAcquisition",
     "TrailStep",
     "TubeSpectrum",
     "WhyTrail",
@@ -200,6 +221,7 @@ __all__ = [
     "backscatter_estimate",
     "backscatter_estimates",
     "backscatter_factor",
+    "breast_beam",
     "calibrate_room",
     "calibration_from_phantoms",
     "compare_reported",
@@ -225,11 +247,13 @@ __all__ = [
     "incident_air_kerma_mgy",
     "inverse_square_air_kerma_mgy",
     "load_backscatter_table",
+    "load_official_coefficients",
     "localizer_sizes",
     "mass_attenuation_cm2_g",
     "mass_energy_absorption_cm2_g",
     "material",
     "material_names",
+    "mean_glandular_dose",
     "mu_en_ratio",
     "output_at_distance_ugy_per_mas",
     "parse_filter",
@@ -247,6 +271,7 @@ __all__ = [
     "substantial_dose_levels_crossed",
     "tissue_to_air_ratio",
     "tube_spectrum",
+    "typical_glandularity",
     "water_equivalent_diameter_cm",
     "water_equivalent_diameter_from_image_cm",
 ]

@@ -367,7 +367,11 @@ def compute_beam(
     else:
         filters = spec.filters
     a = get_anode(spec.anode)
-    if spec.kv < a.validated_kv_min:
+    if a.validated_kv_min is None:
+        assumptions.append(
+            f"the {a.label} anode model is not checked against any published beam quality"
+        )
+    elif spec.kv < a.validated_kv_min:
         assumptions.append(
             f"{spec.kv:g} kV is below {a.validated_kv_min:g} kV, the lowest voltage the "
             f"{a.label} model is checked at"

@@ -387,7 +387,10 @@ def default_calibration(
 
     The scale is the geometric-mean ratio of the published fit (converted from its 40 in
     reference distance to 1 m by the inverse-square law) to the model at the fit's voltages,
-    with the default 2.5 mm Al total filtration assumed for the surveyed units.
+    with the default 2.5 mm Al total filtration assumed for the surveyed units. An anode whose
+    voltage range misses the fit's voltages (Mo, Rh, Ag: 20-50 kV) takes the scale of a
+    tungsten tube of the same angle and ripple: the scale corrects the model's bremsstrahlung
+    yield constant, which does not depend on the anode.
 
     Parameters
     ----------
@@ -400,10 +403,32 @@ def default_calibration(
         ``calibrated=False``, relative output uncertainty from the data file (0.4).
     """
     data = _typical_output()
-    key = get_anode(anode).key
+    a = get_anode(anode)
+    key = a.key
     filters = (FilterSpec("Al", float(data["assumed_total_filtration_mm_al"])),)
     to_1m = (float(data["reference_distance_mm"]) / REFERENCE_DISTANCE_MM) ** 2
     kvs = [float(k) for k in data["fit_kv"]]
+    if not all(a.kv_min <= k <= a.kv_max for k in kvs):
+        # The survey's tubes are tungsten radiography tubes. The scale corrects the model's
+        # bremsstrahlung yield constant, which is the same for every anode, so an anode whose
+        # range misses the survey's voltages (the mammography anodes) takes the tungsten scale.
+        tungsten = default_calibration(
+            anode="W", anode_angle_deg=anode_angle_deg, ripple_percent=ripple_percent
+        )
+        return RoomCalibration(
+            output_scale=tungsten.output_scale,
+            inherent_filtration_mm_al=None,
+            calibrated=False,
+            output_scale_uncertainty_rel=tungsten.output_scale_uncertainty_rel,
+            anode=key,
+            anode_angle_deg=anode_angle_deg,
+            ripple_percent=ripple_percent,
+            source=(
+                f"default: the scale of a tungsten tube of the same angle and ripple "
+                f"({tungsten.source.removeprefix('default: ')}); no typical output of a "
+                f"{a.label} tube is at hand"
+            ),
+        )
     published = [
         to_1m * float(data["coefficient_ugy_per_mas"]) * k ** float(data["exponent"]) for k in kvs
     ]

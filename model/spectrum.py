@@ -188,8 +188,8 @@ class Anode:
         omega_K (xraylib).
     kv_min, kv_max : float
         Tube-voltage range accepted, kV.
-    validated_kv_min : float
-        Lowest tube voltage checked against published beam qualities.
+    validated_kv_min : float or None
+        Lowest tube voltage checked against published beam qualities (None: none checked).
     supported : bool
         Whether beams may be computed with this anode yet.
     """
@@ -204,7 +204,7 @@ class Anode:
     k_fluorescence_yield: float
     kv_min: float
     kv_max: float
-    validated_kv_min: float
+    validated_kv_min: float | None
     supported: bool
 
 
@@ -230,7 +230,9 @@ def _anode_by_key(key: str) -> Anode:
         k_fluorescence_yield=float(xraylib.FluorYield(z, xraylib.K_SHELL)),
         kv_min=float(entry["kv_min"]),
         kv_max=float(entry["kv_max"]),
-        validated_kv_min=float(entry["validated_kv_min"]),
+        validated_kv_min=(
+            None if entry["validated_kv_min"] is None else float(entry["validated_kv_min"])
+        ),
         supported=bool(entry["supported"]),
     )
 
@@ -241,7 +243,7 @@ def get_anode(name: str | Anode, *, require_supported: bool = True) -> Anode:
     Parameters
     ----------
     name : str or Anode
-        ``"W"`` or ``"tungsten"``; ``"Mo"`` and ``"Rh"`` are known but not supported yet.
+        ``"W"`` or ``"tungsten"``, ``"Mo"``, ``"Rh"``, ``"Ag"`` (see ``data/anodes.json``).
     require_supported : bool
         Raise for anodes the model is not yet validated for.
 

@@ -172,6 +172,28 @@ Z_TOP: Concept = ("113897", "DCM", "Top Z Location of Scanning Length")
 Z_BOTTOM: Concept = ("113898", "DCM", "Bottom Z Location of Scanning Length")
 FRAME_OF_REFERENCE: Concept = ("112227", "DCM", "Frame of Reference UID")
 
+# mammography (TID 10003 mammography rows, TID 10005)
+ROTATIONAL: Concept = ("113613", "DCM", "Rotational Acquisition")
+BREAST: Concept = ("76752008", "SCT", "Breast")
+LATERALITY: Concept = ("272741003", "SCT", "Laterality")
+LATERALITY_SRT: Concept = ("G-C171", "SRT", "Laterality")
+LEFT: Concept = ("7771000", "SCT", "Left")
+RIGHT: Concept = ("24028007", "SCT", "Right")
+LEFT_SRT: Concept = ("G-A101", "SRT", "Left")
+LEFT_BREAST: Concept = ("80248007", "SCT", "Left breast")
+RIGHT_BREAST: Concept = ("73056007", "SCT", "Right breast")
+LEFT_BREAST_SRT: Concept = ("T-04030", "SRT", "Left breast")
+IMAGE_VIEW: Concept = ("111031", "DCM", "Image View")
+CRANIO_CAUDAL: Concept = ("399162004", "SCT", "cranio-caudal")
+MEDIO_LATERAL_OBLIQUE: Concept = ("399368009", "SCT", "medio-lateral oblique")
+COMPRESSION_THICKNESS: Concept = ("111633", "DCM", "Compression Thickness")
+COMPRESSION_FORCE: Concept = ("111647", "DCM", "Compression Force")
+ENTRANCE_AT_RP: Concept = ("111636", "DCM", "Entrance Exposure at RP")
+AGD: Concept = ("111631", "DCM", "Average Glandular Dose")
+ACCUMULATED_AGD: Concept = ("111637", "DCM", "Accumulated Average Glandular Dose")
+HVL: Concept = ("111634", "DCM", "Half Value Layer")
+RHODIUM: Concept = ("59801003", "SCT", "Rhodium")
+
 START = datetime(2024, 3, 5, 10, 15, 0, tzinfo=UTC)
 
 
@@ -558,4 +580,104 @@ def ct_report(
         relationship=None,
     )  # fmt: skip
     document.setdefault("station_name", "CT-1")
+    return build_sr_document(root, study_instance_uid=study_uid, **document)
+
+
+@dataclass
+class MammoEvent:
+    """One mammography exposure of a synthetic report."""
+
+    uid: str = field(default_factory=generate_uid)
+    left: bool = True
+    view: Concept = CRANIO_CAUDAL
+    tomosynthesis: bool = False
+    kvp_kv: float = 29.0
+    exposure_uas: float = 98000.0
+    thickness_mm: float = 52.0
+    force_n: float = 110.0
+    entrance_mgy: float = 6.1
+    agd_mgy: float = 1.42
+    hvl_mm: float = 0.52
+    srt_codes: bool = False
+
+
+def _mammography_event(index: int, ev: MammoEvent) -> Dataset:
+    side = (LEFT_SRT if ev.srt_codes else LEFT) if ev.left else RIGHT
+    laterality = LATERALITY_SRT if ev.srt_codes else LATERALITY
+    return container(EVENT, [
+        code_item(PLANE, SINGLE_PLANE, relationship="HAS CONCEPT MOD"),
+        uidref(EVENT_UID, ev.uid),
+        datetime_item(STARTED, START.replace(minute=15 + index)),
+        code_item(EVENT_TYPE, ROTATIONAL if ev.tomosynthesis else STATIONARY),
+        text(PROTOCOL, ("Tomo " if ev.tomosynthesis else "") + ev.view[2]),
+        code_item(TARGET_REGION, BREAST, children=[
+            code_item(laterality, side, relationship="HAS CONCEPT MOD")]),
+        code_item(IMAGE_VIEW, ev.view),
+        num(COMPRESSION_THICKNESS, ev.thickness_mm, "mm"),
+        num(COMPRESSION_FORCE, ev.force_n, "N"),
+        num(ENTRANCE_AT_RP, ev.entrance_mgy, "mGy"),
+        num(HVL, ev.hvl_mm, "mm"),
+        # TID 10003B source data
+        num(AGD, ev.agd_mgy, "mGy"),
+        num(KVP, ev.kvp_kv, "kV"),
+        num(EXPOSURE, ev.exposure_uas, "uA.s"),
+        code_item(ANODE, TUNGSTEN),
+        container(FILTERS, [
+            code_item(FILTER_TYPE, FLAT_FILTER),
+            code_item(FILTER_MATERIAL, RHODIUM),
+            num(FILTER_MIN, 0.05, "mm"),
+            num(FILTER_MAX, 0.05, "mm"),
+        ]),
+    ])  # fmt: skip
+
+
+def _with_side(item: Dataset, side: Concept, laterality: Concept = LATERALITY) -> Dataset:
+    """``item`` with a Laterality modifier (as TID 10005 writes the breast side)."""
+    from pydicom.sequence import Sequence
+
+    item.ContentSequence = Sequence([code_item(laterality, side, relationship="HAS CONCEPT MOD")])
+    return item
+
+
+def mammography_report(
+    events: list[MammoEvent] | None = None,
+    *,
+    study_uid: str | None = None,
+    srt_codes: bool = False,
+    accumulated_by_side: bool = True,
+    **document: object,
+) -> Dataset:
+    """A TID 10001 mammography report (procedure (71651007, SCT)): by default a left CC, a
+    left tomosynthesis sweep and a right MLO, with TID 10005 accumulated glandular dose per
+    breast (CID 6022 Side modifiers)."""
+    study_uid = study_uid or generate_uid()
+    if events is None:
+        events = [
+            MammoEvent(srt_codes=srt_codes),
+            MammoEvent(tomosynthesis=True, agd_mgy=1.71, exposure_uas=62000.0, kvp_kv=31.0,
+                       srt_codes=srt_codes),
+            MammoEvent(left=False, view=MEDIO_LATERAL_OBLIQUE, agd_mgy=1.30, thickness_mm=48.0,
+                       force_n=95.0),
+        ]  # fmt: skip
+    left = sum(e.agd_mgy for e in events if e.left)
+    right = sum(e.agd_mgy for e in events if not e.left)
+    if accumulated_by_side:
+        left_side = LEFT_BREAST_SRT if srt_codes else LEFT_BREAST
+        laterality = LATERALITY_SRT if srt_codes else LATERALITY
+        agd_items = [
+            _with_side(num(ACCUMULATED_AGD, round(left, 6), "mGy"), left_side, laterality),
+            _with_side(num(ACCUMULATED_AGD, round(right, 6), "mGy"), RIGHT_BREAST, laterality),
+        ]
+    else:
+        agd_items = [num(ACCUMULATED_AGD, round(left + right, 6), "mGy")]
+    accumulated = container(
+        ACCUMULATED, [code_item(PLANE, SINGLE_PLANE, relationship="HAS CONCEPT MOD"), *agd_items]
+    )
+    root = container(
+        REPORT,
+        [*_document_context(MAMMOGRAPHY, study_uid, "1.2.826.0.1.3680043.10.1.9", INTEGRATED),
+         accumulated, *[_mammography_event(i, e) for i, e in enumerate(events)],
+         code_item(SOURCE_OF_DOSE, AUTOMATED)],
+        relationship=None,
+    )  # fmt: skip
     return build_sr_document(root, study_instance_uid=study_uid, **document)

@@ -402,3 +402,136 @@ def test_ct_header_water_equivalent_diameter_and_its_method() -> None:
     (event,) = parse(ds).events
     assert event.water_equivalent_diameter_method is None
     assert any("not a known Dw method" in note for note in event.notes)
+
+
+# ---- mammography headers: Mammography Image (PS3.3 C.8.11.7), Breast View, Enhanced
+#      Mammography Image and Breast Tomosynthesis Acquisition (C.8.21.3.4) modules
+
+MG_FOR_PRESENTATION = "1.2.840.10008.5.1.4.1.1.1.2"
+BREAST_TOMOSYNTHESIS = "1.2.840.10008.5.1.4.1.1.13.1.3"
+BREAST_PROJECTION = "1.2.840.10008.5.1.4.1.1.13.1.4"
+
+
+def _mlo() -> Sequence:
+    view = Dataset()
+    view.CodeValue, view.CodingSchemeDesignator = "399368009", "SCT"
+    view.CodeMeaning = "medio-lateral oblique"
+    return Sequence([view])
+
+
+def test_mammography_header_fields() -> None:
+    ds = header(MG_FOR_PRESENTATION, "MG", KVP="29", ExposureInuAs="98000",
+                OrganDose="0.0142", OrganExposed="BREAST", EntranceDoseInmGy="6.1",
+                HalfValueLayer="0.52", BodyPartThickness="52", CompressionForce="110.5",
+                PaddleDescription="24x30 standard", ImageLaterality="R",
+                BreastImplantPresent="NO", PatientAge="055Y", AnodeTargetMaterial="TUNGSTEN",
+                FilterMaterial="RHODIUM", FilterThicknessMinimum="0.05",
+                ViewCodeSequence=_mlo(), ImageType=["ORIGINAL", "PRIMARY"])  # fmt: skip
+    event = parse(ds).events[0]
+    assert event.exposure_mas == 98.0  # (0018,1153) ExposureInuAs: 98000 uAs
+    assert event.organ_dose_mgy == pytest.approx(1.42)  # (0040,0316) OrganDose in dGy
+    assert event.organ_exposed == "BREAST"
+    assert event.entrance_dose_mgy == 6.1 and event.hvl_mm_al == 0.52
+    assert event.body_part_thickness_mm == 52.0 and event.compression_force_n == 110.5
+    assert event.paddle_description == "24x30 standard"
+    assert event.image_laterality == "R" and event.breast_implant_present is False
+    assert event.patient_age_years == 55.0
+    assert event.view_position == "MLO"
+    assert event.mammography_acquisition == "2d"
+    assert event.provenance["compression_force_n"] == "(0018,11A2) CompressionForce"
+    assert event.provenance["image_laterality"] == "(0020,0062) ImageLaterality"
+    assert event.provenance["exposure_mas"] == "(0018,1153) ExposureInuAs"
+
+
+@pytest.mark.parametrize(("dgy", "mgy"), [("0.0123", 1.23), ("0.5", 50.0), ("1", 100.0)])
+def test_organ_dose_is_in_decigray(dgy: str, mgy: float) -> None:
+    # DICOM PS3.3 C.8.7.8: Organ Dose (0040,0316) "in dGy"; 1 dGy = 100 mGy (SI prefixes)
+    event = parse(header(MG_FOR_PRESENTATION, "MG", OrganDose=dgy)).events[0]
+    assert event.organ_dose_mgy == pytest.approx(mgy)
+
+
+def test_tomo_image_type_marks_a_tomosynthesis_projection() -> None:
+    ds = header(MG_FOR_PRESENTATION, "MG", KVP="31", ImageType=["ORIGINAL", "PRIMARY", "TOMO"])
+    event = parse(ds).events[0]
+    assert event.mammography_acquisition == "tomosynthesis"
+    assert event.provenance["mammography_acquisition"].startswith("(0008,0008) ImageType")
+
+
+def test_breast_tomosynthesis_acquisition_sums_its_projections() -> None:
+    # the acquisition's values sit in XRay3DAcquisitionSequence (0018,9507); without a total
+    # ExposureInmAs the projections' are summed (15 x 4.2 mAs), OrganDose likewise (dGy)
+    projections = []
+    for i in range(15):
+        p = Dataset()
+        p.ExposureInmAs = 4.2
+        p.OrganDose = "0.0011"
+        p.PositionerPrimaryAngle = str(-7.5 + i * 15.0 / 14)
+        projections.append(p)
+    acquisition = Dataset()
+    acquisition.KVP = "31"
+    acquisition.AnodeTargetMaterial = "TUNGSTEN"
+    acquisition.FilterMaterial = "ALUMINUM"
+    acquisition.FilterThicknessMinimum = "0.7"
+    acquisition.BodyPartThickness = "55"
+    acquisition.CompressionForce = "98"
+    acquisition.HalfValueLayer = "0.61"
+    acquisition.PrimaryPositionerScanArc = 15.0
+    acquisition.PerProjectionAcquisitionSequence = Sequence(projections)
+    ds = header(BREAST_TOMOSYNTHESIS, "MG", ImageLaterality="L",
+                XRay3DAcquisitionSequence=Sequence([acquisition]))  # fmt: skip
+    (event,) = parse(ds).events
+    assert event.mammography_acquisition == "tomosynthesis"
+    assert event.tomo_projections == 15 and event.tomo_scan_arc_deg == 15.0
+    assert event.exposure_mas == pytest.approx(63.0)
+    assert event.organ_dose_mgy == pytest.approx(1.65)
+    assert "summed over 15 projections" in event.provenance["exposure_mas"]
+    assert event.kvp_kv == 31.0 and event.body_part_thickness_mm == 55.0
+    assert event.compression_force_n == 98.0 and event.hvl_mm_al == 0.61
+    assert event.anode_material == "tungsten"
+    assert event.filters == (FilterLayer("aluminium", 0.7),)
+    assert event.image_laterality == "L"
+
+
+def test_breast_projection_frame_laterality_from_functional_groups() -> None:
+    anatomy = Dataset()
+    anatomy.FrameLaterality = "L"
+    frame = Dataset()
+    frame.FrameAnatomySequence = Sequence([anatomy])
+    dose = Dataset()
+    dose.ExposureInmAs = 71.0
+    dose.OrganDose = "0.012"
+    frame.XRayAcquisitionDoseSequence = Sequence([dose])
+    ds = header(BREAST_PROJECTION, "MG", KVP="28", NumberOfFrames=1,
+                PerFrameFunctionalGroupsSequence=Sequence([frame]))  # fmt: skip
+    (event,) = parse(ds).events
+    assert event.image_laterality == "L"
+    assert event.provenance["image_laterality"] == "(0020,9072) FrameLaterality"
+    assert event.exposure_mas == 71.0 and event.organ_dose_mgy == pytest.approx(1.2)
+    assert event.mammography_acquisition == "2d"
+
+
+@pytest.mark.parametrize(
+    ("keyword", "value", "warning"),
+    [
+        ("ImageLaterality", "X", "is not L, R, B or U"),
+        ("BreastImplantPresent", "MAYBE", "is not YES or NO"),
+        ("CompressionForce", "5000", "CompressionForce 5000 N is outside"),
+    ],
+)
+def test_bad_mammography_context_is_dropped_with_a_warning(
+    keyword: str, value: str, warning: str
+) -> None:
+    result = parse(header(MG_FOR_PRESENTATION, "MG", KVP="28", **{keyword: value}))
+    (event,) = result.events
+    assert event.kvp_kv == 28.0  # the exposure is kept
+    assert any(warning in w for w in result.warnings), result.warnings
+
+
+def test_unpaired_laterality_is_no_breast_side() -> None:
+    (event,) = parse(header(MG_FOR_PRESENTATION, "MG", ImageLaterality="U")).events
+    assert event.image_laterality is None
+
+
+def test_non_breast_images_get_no_mammography_mode() -> None:
+    (event,) = parse(header(KVP="70")).events
+    assert event.mammography_acquisition is None

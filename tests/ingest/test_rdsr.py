@@ -22,8 +22,10 @@ from rdsr_builders import (
     EVENT,
     CtEvent,
     FluoroEvent,
+    MammoEvent,
     ct_report,
     fluoroscopy_report,
+    mammography_report,
     radiography_report,
 )
 
@@ -385,3 +387,68 @@ def test_events_without_mechanical_data_leave_the_geometry_unset() -> None:
     assert event.positioner_primary_angle_deg is None
     assert event.table_height_position_mm is None
     assert event.patient_table_relationship is None
+
+
+# ---- mammography: TID 10003 mammography rows and TID 10005 (DICOM-NOTES 2.4-2.6)
+
+
+def test_mammography_report_events() -> None:
+    result = parse(mammography_report())
+    cc, tomo, mlo = result.events
+    assert {e.modality for e in result.events} == {"MG"}
+    # Exposure 98000 uA.s = 98 mAs; Average Glandular Dose (111631) and Entrance Exposure at RP
+    # (111636) in mGy; Compression Thickness (111633) mm; Compression Force (111647) N
+    assert cc.exposure_mas == 98.0 and cc.kvp_kv == 29.0
+    assert cc.organ_dose_mgy == 1.42 and cc.entrance_dose_mgy == 6.1
+    assert cc.body_part_thickness_mm == 52.0 and cc.compression_force_n == 110.0
+    assert cc.hvl_mm_al == 0.52
+    assert cc.anode_material == "tungsten"
+    assert cc.filters == (FilterLayer("rhodium", 0.05),)
+    assert cc.view_position == "CC" and mlo.view_position == "MLO"
+    assert (cc.image_laterality, tomo.image_laterality, mlo.image_laterality) == ("L", "L", "R")
+    assert cc.provenance["compression_force_n"] == "(111647, DCM) Compression Force"
+    assert cc.provenance["image_laterality"].startswith("(272741003, SCT) Laterality")
+
+
+def test_mammography_report_tells_tomosynthesis_from_2d() -> None:
+    # CID 10002: a tomosynthesis sweep is a Rotational Acquisition, a 2D view a Stationary one
+    cc, tomo, mlo = parse(mammography_report()).events
+    assert (cc.mammography_acquisition, tomo.mammography_acquisition) == ("2d", "tomosynthesis")
+    assert tomo.provenance["mammography_acquisition"].startswith("(113721, DCM)")
+    assert mlo.mammography_acquisition == "2d"
+
+
+def test_accumulated_glandular_dose_per_breast() -> None:
+    # TID 10005: one Accumulated Average Glandular Dose per breast, CID 6022 Side modifier
+    (acc,) = parse(mammography_report()).accumulated
+    assert acc.agd_left_mgy == pytest.approx(1.42 + 1.71)
+    assert acc.agd_right_mgy == pytest.approx(1.30)
+    assert acc.agd_total_mgy is None
+    assert "Laterality: left breast" in acc.provenance["agd_left_mgy"]
+
+
+def test_accumulated_glandular_dose_in_retired_snomed_spellings() -> None:
+    # G-C171 Laterality and T-04030 Left breast (SNOMED-RT) are the same as 272741003 and
+    # 80248007 (SNOMED CT), per pydicom's mapping
+    result = parse(mammography_report(srt_codes=True))
+    (acc,) = result.accumulated
+    assert acc.agd_left_mgy == pytest.approx(3.13)
+    assert result.events[0].image_laterality == "L"
+
+
+def test_accumulated_glandular_dose_without_a_side_is_the_total() -> None:
+    (acc,) = parse(mammography_report(accumulated_by_side=False)).accumulated
+    assert acc.agd_total_mgy == pytest.approx(4.43)
+    assert acc.agd_left_mgy is None and acc.agd_right_mgy is None
+
+
+def test_mammography_protocol_decides_tomosynthesis_without_an_event_type() -> None:
+    ds = mammography_report([MammoEvent(tomosynthesis=True)])
+    event = ds.ContentSequence[-2]  # the one event container
+    event.ContentSequence = [
+        item for item in event.ContentSequence
+        if item.ConceptNameCodeSequence[0].CodeValue != "113721"
+    ]  # fmt: skip
+    (parsed,) = parse(ds).events
+    assert parsed.mammography_acquisition == "tomosynthesis"
+    assert any("inferred from the acquisition protocol" in n for n in parsed.notes)

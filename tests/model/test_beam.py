@@ -242,7 +242,7 @@ def test_tissue_to_air_ratio_is_that_of_trs_457() -> None:
         ({"kv": float("nan")}, "outside"),
         ({"kv": 80.0, "anode_angle_deg": 30.0}, "anode angle"),
         ({"kv": 80.0, "ripple_percent": 120.0}, "ripple"),
-        ({"kv": 80.0, "anode": "Mo"}, "not supported yet"),
+        ({"kv": 80.0, "anode": "Mo"}, "outside 20-50 kV for a molybdenum anode"),
     ],
 )
 def test_impossible_beams_are_rejected(kwargs: dict[str, float], match: str) -> None:

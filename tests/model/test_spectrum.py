@@ -160,7 +160,7 @@ def test_ripple_softens_the_beam() -> None:
         ({"kv": 400.0}, "outside 20-150 kV"),
         ({"kv": 80.0, "ripple_percent": -1.0}, "ripple"),
         ({"kv": 80.0, "anode": "Pb"}, "unknown anode"),
-        ({"kv": 30.0, "anode": "Mo"}, "not supported yet"),
+        ({"kv": 80.0, "anode": "Mo"}, "outside 20-50 kV for a molybdenum anode"),
     ],
 )
 def test_impossible_input_is_a_model_error(kwargs: dict[str, object], match: str) -> None:
