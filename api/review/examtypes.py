@@ -217,7 +217,7 @@ class ExamCatalogue:
 
         A catalogue that bands no exam type is hashed without the ``paediatric_bands`` column, so
         it keeps the fingerprint it had before the column existed."""
-        columns = CATALOGUE_COLUMNS
+        columns: tuple[str, ...] = CATALOGUE_COLUMNS
         if not any(t.paediatric_bands for t in self.types):
             columns = tuple(c for c in CATALOGUE_COLUMNS if c != "paediatric_bands")
         text = write_table(None, columns=columns, rows=map(_catalogue_row, self.types))

@@ -24,7 +24,14 @@ kind                               severity  fires when
 ``no_dose_data``                   warning   a study whose events carry no dose value at all
 ``unknown_exam_type``              warning   events carry an exam type the catalogue does not know
 ``unmapped_events``                info      events that map to no exam type (listed for mapping)
+``low_dose_review``                info      a group's median is below a fraction of its lowest
+                                             level, or below the site's 25th percentile of room
+                                             medians: review image quality (optimisation works
+                                             both ways)
 =================================  ========  =======================================================
+
+Flags about a group carry its clinical indication and patient group (``clinical_indication``,
+``patient_group``; ``None`` for the main group of adults and patients of unrecorded age).
 """
 
 from __future__ import annotations
@@ -53,6 +60,7 @@ __all__ = [
     "deviation_index_out_of_range",
     "exams_above_investigation_level",
     "groups_above_level",
+    "low_dose_review",
     "no_dose_data",
     "sort_flags",
     "srdl_exceeded",
@@ -70,6 +78,7 @@ FlagKind = Literal[
     "no_dose_data",
     "unknown_exam_type",
     "unmapped_events",
+    "low_dose_review",
 ]
 FLAG_KINDS: tuple[FlagKind, ...] = (
     "group_above_level",
@@ -81,6 +90,7 @@ FLAG_KINDS: tuple[FlagKind, ...] = (
     "no_dose_data",
     "unknown_exam_type",
     "unmapped_events",
+    "low_dose_review",
 )
 Severity = Literal["action", "warning", "info"]
 
@@ -129,6 +139,8 @@ class Flag:
     exam_type: str | None = None
     quantity: str | None = None
     date: str | None = None
+    clinical_indication: str | None = None
+    patient_group: str | None = None
 
     def concerns(self) -> dict[str, Any]:
         """The non-empty concern fields."""
@@ -141,6 +153,8 @@ class Flag:
             "exam_type",
             "quantity",
             "date",
+            "clinical_indication",
+            "patient_group",
         )
         return {f: getattr(self, f) for f in fields if getattr(self, f) is not None}
 
@@ -170,6 +184,8 @@ def sort_flags(flags: Sequence[Flag]) -> list[Flag]:
             f.date or "",
             f.study_uid or "",
             -1 if f.event_id is None else f.event_id,
+            f.clinical_indication or "",
+            f.patient_group or "",
             f.reason,
         )
 
@@ -251,7 +267,25 @@ def _concern(row: Mapping[str, Any]) -> dict[str, Any]:
         "room": _str_or_none(row.get("room")),
         "device": _str_or_none(row.get("device")),
         "exam_type": _str_or_none(row.get("exam_type")),
+        "clinical_indication": _str_or_none(row.get("clinical_indication")),
+        "patient_group": _str_or_none(row.get("patient_group")),
     }
+
+
+def _exam_text(row: Mapping[str, Any]) -> str:
+    """The exam type with its indication and patient group: ``ct_head (acute_stroke; children
+    1-<6 years)``."""
+    parts = [
+        text
+        for text in (
+            _str_or_none(row.get("clinical_indication")),
+            _str_or_none(row.get("patient_group_label"))
+            if _str_or_none(row.get("patient_group")) is not None
+            else None,
+        )
+        if text
+    ]
+    return f"{row['exam_type']}" + (f" ({'; '.join(parts)})" if parts else "")
 
 
 def _records(frame: pd.DataFrame) -> list[dict[str, Any]]:
@@ -306,7 +340,7 @@ def groups_above_level(groups: pd.DataFrame) -> list[Flag]:
                 )
             )
         reason = (
-            f"Median {_label(quantity)} {median} {unit} of {row['exam_type']}"
+            f"Median {_label(quantity)} {median} {unit} of {_exam_text(row)}"
             f"{_where(row)} ({row['n_used']} {who}) is {row['ratio_to_level']:.3g} × the "
             f"{row['level_kind']} level {level} {unit} "
             f"({row['level_set']}, version {row['level_version']}); {ci_text}."
@@ -765,3 +799,136 @@ def unmapped_events(summary: pd.DataFrame) -> list[Flag]:
             numbers={"n_events": n_events, "n_combinations": len(summary)},
         )
     ]
+
+
+def low_dose_review(
+    groups: pd.DataFrame,
+    site_values: pd.DataFrame,
+    *,
+    fraction: float | None,
+    use_site_percentile: bool,
+) -> list[Flag]:
+    """Groups whose median is far below the levels or the site's other rooms: review image quality.
+
+    IAEA GSR Part 3 (2014) asks for optimisation of protection, which a dose far below the level
+    does not complete by itself: the images must still answer the clinical question. One flag per
+    group that has a verdict (``n_used`` at least ``n_minimum``) when its median is below
+    ``fraction`` x its strictest (lowest) applicable level, or below the 25th percentile of the
+    room medians of its site (``site_values``'s ``room_median_p25``, present only where enough
+    rooms contribute). The wording asks for an image-quality review and does not suggest raising
+    the dose.
+
+    Parameters
+    ----------
+    groups : DataFrame
+        The review's group table (one row per group and level).
+    site_values : DataFrame
+        :func:`beamaudit.api.review.site_values.site_values` of the same groups.
+    fraction : float or None
+        Fraction of a level below which a median is flagged; ``None`` switches the rule off.
+    use_site_percentile : bool
+        Switches the site's 25th-percentile rule on.
+    """
+    if len(groups) == 0:
+        return []
+    judged = groups.loc[groups["n_used"].to_numpy() >= groups["n_minimum"].to_numpy()].copy()
+    site_keys = ["site", "exam_type", "clinical_indication", "patient_group", "quantity"]
+    p25 = (
+        site_values.loc[:, [*site_keys, "room_median_p25", "n_rooms"]]
+        if use_site_percentile
+        else None
+    )
+    median = judged["median"].to_numpy(dtype=np.float64)
+    level = judged["reference_level"].to_numpy(dtype=np.float64)
+    with np.errstate(invalid="ignore"):
+        below_level = (
+            median < fraction * level if fraction is not None else np.zeros(len(judged), bool)
+        )
+    judged["_below_level"] = below_level
+    group_keys = [
+        c
+        for c in (
+            "site",
+            "room",
+            "device",
+            "exam_type",
+            "clinical_indication",
+            "patient_group",
+            "quantity",
+        )
+        if c in judged.columns
+    ]
+    flags = []
+    for _, part in judged.groupby(group_keys, dropna=False, sort=True):
+        row = _records(part.iloc[:1])[0]
+        # the strictest (lowest) level decides: a group far below an old, high level but near
+        # the local one is not far below "the level"
+        with_level = part.loc[part["reference_level"].notna()]
+        strictest = (
+            with_level.sort_values(["reference_level", "level_set"], kind="mergesort").iloc[:1]
+            if len(with_level)
+            else with_level
+        )
+        hits = strictest.loc[strictest["_below_level"]]
+        percentile_value = math.nan
+        n_rooms = 0
+        if p25 is not None:
+            match = p25
+            for k in site_keys:
+                value = row.get(k)
+                match = (
+                    match.loc[match[k].isna()]
+                    if _str_or_none(value) is None
+                    else match.loc[match[k] == value]
+                )
+            if len(match):
+                percentile_value = _float(match["room_median_p25"].iloc[0])
+                n_rooms = int(match["n_rooms"].iloc[0])
+        below_p25 = math.isfinite(percentile_value) and _float(row["median"]) < percentile_value
+        if not len(hits) and not below_p25:
+            continue
+        quantity = row["quantity"]
+        unit = _unit(quantity)
+        parts = []
+        numbers: dict[str, Number] = {"median": _float(row["median"]), "n_used": int(row["n_used"])}
+        if len(hits):
+            lowest = hits.iloc[0]
+            parts.append(
+                f"{_float(lowest['ratio_to_level']):.2f} × the {lowest['level_kind']} level "
+                f"{_fmt(_float(lowest['reference_level']))} {unit} ({lowest['level_set']}, version "
+                f"{lowest['level_version']}), below {_fmt(fraction or 0)} × the level"
+            )
+            numbers.update(
+                {
+                    "reference_level": _float(lowest["reference_level"]),
+                    "ratio_to_level": _float(lowest["ratio_to_level"]),
+                    "level_set": str(lowest["level_set"]),
+                    "level_version": str(lowest["level_version"]),
+                    "low_dose_fraction": fraction,
+                }
+            )
+        if below_p25:
+            parts.append(
+                f"below the 25th percentile {_fmt(percentile_value)} {unit} of the medians of "
+                f"the site's {n_rooms} rooms"
+            )
+            numbers.update({"site_room_median_p25": percentile_value, "site_n_rooms": n_rooms})
+        reason = (
+            f"Median {_label(quantity)} {_fmt(_float(row['median']))} {unit} of {_exam_text(row)}"
+            f"{_where(row)} ({int(row['n_used'])} patients) is " + " and ".join(parts) + ". "
+            "Review the image quality of a sample of these examinations with the reporting "
+            "radiologists: a low dose is not a fault in itself, and the protocol needs a change "
+            "only if the images do not answer the clinical question (optimisation, IAEA GSR "
+            "Part 3)."
+        )
+        flags.append(
+            Flag(
+                kind="low_dose_review",
+                severity="info",
+                reason=reason,
+                numbers=numbers,
+                quantity=quantity,
+                **_concern(row),
+            )
+        )
+    return flags
