@@ -13,6 +13,10 @@ every figure of one exposure with its uncertainty and why trail (:mod:`.exposure
 fluoroscopy and CT accumulations (:mod:`.fluoro_ct`), the CT patient's water-equivalent
 diameter from axial images (:mod:`.ct_size`) and from localizers (:mod:`.ct_localizer`), the
 size-specific dose estimate (:mod:`.ssde`) and unit conversions (:mod:`.units`).
+
+Effective dose: population-average estimates from DLP and DAP with sourced coefficients and ICRP 103
+tissue weights (:mod:`.effective_dose`), and the cumulative effective dose per pseudonymised patient
+over a window for the quality assurance of recurrent imaging (:mod:`.recurrent`).
 """
 
 from beamaudit.model.attenuation import (
@@ -84,6 +88,11 @@ from beamaudit.model.dose import (
     inverse_square_air_kerma_mgy,
     relative_uncertainty_of_product,
 )
+from beamaudit.model.effective_dose import (
+    EffectiveDoseEstimates,
+    ct_effective_dose_msv,
+    dap_effective_dose_msv,
+)
 from beamaudit.model.errors import ModelError
 from beamaudit.model.exposure import (
     BeamInputs,
@@ -114,6 +123,7 @@ from beamaudit.model.geometry import (
     field_area_at_distance_cm2,
     resolve_geometry,
 )
+from beamaudit.model.recurrent import CumulativeDoses, cumulative_effective_dose
 from beamaudit.model.spectrum import TubeSpectrum, tube_spectrum
 from beamaudit.model.ssde import (
     SizeSpecificDose,
@@ -142,8 +152,10 @@ __all__ = [
     "CtAcquisition",
     "CtAcquisitionDose",
     "CtStudyDose",
+    "CumulativeDoses",
     "DefaultValue",
     "DoseFigure",
+    "EffectiveDoseEstimates",
     "ExamDefault",
     "ExposureDose",
     "FilterSpec",
@@ -176,7 +188,10 @@ __all__ = [
     "compute_beam",
     "compute_exposure_dose",
     "ct_acquisition_dose",
+    "ct_effective_dose_msv",
     "ct_study_dose",
+    "cumulative_effective_dose",
+    "dap_effective_dose_msv",
     "dap_gy_cm2",
     "default_calibration",
     "default_filters",
