@@ -831,20 +831,7 @@ def low_dose_review(
     """
     if len(groups) == 0:
         return []
-    judged = groups.loc[groups["n_used"].to_numpy() >= groups["n_minimum"].to_numpy()].copy()
-    site_keys = ["site", "exam_type", "clinical_indication", "patient_group", "quantity"]
-    p25 = (
-        site_values.loc[:, [*site_keys, "room_median_p25", "n_rooms"]]
-        if use_site_percentile
-        else None
-    )
-    median = judged["median"].to_numpy(dtype=np.float64)
-    level = judged["reference_level"].to_numpy(dtype=np.float64)
-    with np.errstate(invalid="ignore"):
-        below_level = (
-            median < fraction * level if fraction is not None else np.zeros(len(judged), bool)
-        )
-    judged["_below_level"] = below_level
+    judged = groups.loc[groups["n_used"].to_numpy() >= groups["n_minimum"].to_numpy()]
     group_keys = [
         c
         for c in (
@@ -858,41 +845,52 @@ def low_dose_review(
         )
         if c in judged.columns
     ]
-    flags = []
-    for _, part in judged.groupby(group_keys, dropna=False, sort=True):
-        row = _records(part.iloc[:1])[0]
-        # the strictest (lowest) level decides: a group far below an old, high level but near
-        # the local one is not far below "the level"
-        with_level = part.loc[part["reference_level"].notna()]
-        strictest = (
-            with_level.sort_values(["reference_level", "level_set"], kind="mergesort").iloc[:1]
-            if len(with_level)
-            else with_level
+    # one row per group: the strictest (lowest) level decides, so a group far below an old, high
+    # level but near the local one is not "far below the level" (levels sort before no level)
+    ordered = judged.sort_values(
+        [*group_keys, "reference_level", "level_set"], kind="mergesort", na_position="last"
+    )
+    rows = ordered.drop_duplicates(group_keys, keep="first").copy()
+    median = rows["median"].to_numpy(dtype=np.float64)
+    level = rows["reference_level"].to_numpy(dtype=np.float64)
+    with np.errstate(invalid="ignore"):
+        below_level = (
+            median < fraction * level if fraction is not None else np.zeros(len(rows), bool)
         )
-        hits = strictest.loc[strictest["_below_level"]]
-        percentile_value = math.nan
-        n_rooms = 0
-        if p25 is not None:
-            match = p25
-            for k in site_keys:
-                value = row.get(k)
-                match = (
-                    match.loc[match[k].isna()]
-                    if _str_or_none(value) is None
-                    else match.loc[match[k] == value]
-                )
-            if len(match):
-                percentile_value = _float(match["room_median_p25"].iloc[0])
-                n_rooms = int(match["n_rooms"].iloc[0])
-        below_p25 = math.isfinite(percentile_value) and _float(row["median"]) < percentile_value
-        if not len(hits) and not below_p25:
-            continue
+    site_keys = ["site", "exam_type", "clinical_indication", "patient_group", "quantity"]
+    p25 = np.full(len(rows), np.nan)
+    n_rooms_of = np.zeros(len(rows), dtype=np.int64)
+    if use_site_percentile and len(site_values) and len(rows):
+
+        def key_frame(frame: pd.DataFrame) -> pd.DataFrame:
+            return pd.DataFrame(
+                {k: frame[k].astype(object).where(frame[k].notna(), "\x00") for k in site_keys}
+            )
+
+        lookup = key_frame(site_values)
+        lookup["_p25"] = site_values["room_median_p25"].to_numpy(dtype=np.float64)
+        lookup["_n_rooms"] = site_values["n_rooms"].to_numpy(dtype=np.int64)
+        merged = key_frame(rows).merge(lookup, on=site_keys, how="left", sort=False)
+        p25 = merged["_p25"].to_numpy(dtype=np.float64)
+        n_rooms_of = merged["_n_rooms"].fillna(0).to_numpy(dtype=np.int64)
+    with np.errstate(invalid="ignore"):
+        below_p25 = median < p25
+    flagged = below_level | below_p25
+    flags = []
+    for row, hit_level, hit_p25, percentile_value, n_rooms in zip(
+        _records(rows.loc[flagged]),
+        below_level[flagged],
+        below_p25[flagged],
+        p25[flagged],
+        n_rooms_of[flagged],
+        strict=True,
+    ):
         quantity = row["quantity"]
         unit = _unit(quantity)
         parts = []
         numbers: dict[str, Number] = {"median": _float(row["median"]), "n_used": int(row["n_used"])}
-        if len(hits):
-            lowest = hits.iloc[0]
+        if hit_level:
+            lowest = row
             parts.append(
                 f"{_float(lowest['ratio_to_level']):.2f} × the {lowest['level_kind']} level "
                 f"{_fmt(_float(lowest['reference_level']))} {unit} ({lowest['level_set']}, version "
@@ -907,12 +905,14 @@ def low_dose_review(
                     "low_dose_fraction": fraction,
                 }
             )
-        if below_p25:
+        if hit_p25:
             parts.append(
                 f"below the 25th percentile {_fmt(percentile_value)} {unit} of the medians of "
                 f"the site's {n_rooms} rooms"
             )
-            numbers.update({"site_room_median_p25": percentile_value, "site_n_rooms": n_rooms})
+            numbers.update(
+                {"site_room_median_p25": float(percentile_value), "site_n_rooms": int(n_rooms)}
+            )
         reason = (
             f"Median {_label(quantity)} {_fmt(_float(row['median']))} {unit} of {_exam_text(row)}"
             f"{_where(row)} ({int(row['n_used'])} patients) is " + " and ".join(parts) + ". "

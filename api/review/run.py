@@ -58,6 +58,7 @@ import pandas as pd
 import beamaudit
 from beamaudit.api.review import flags as fl
 from beamaudit.api.review.bands import (
+    SPECIAL_GROUPS,
     PatientGroups,
     assign_patient_groups,
     load_default_patient_groups,
@@ -901,13 +902,21 @@ def review(
         )
     located = build_units(scoped, catalogue)  # each unit keeps its own location
     banding = {t.exam_type: t.paediatric_bands for t in catalogue}
-    located["patient_group"] = assign_patient_groups(
+    exam_types = located["exam_type"]
+    if isinstance(exam_types.dtype, pd.CategoricalDtype):  # map the categories, not the rows
+        per_code = np.array([banding.get(c, "") for c in exam_types.cat.categories] + [""], object)
+        exam_banding = per_code[exam_types.cat.codes.to_numpy()]
+    else:
+        exam_banding = exam_types.astype(object).map(banding).to_numpy(dtype=object)
+    groups_of_units = assign_patient_groups(
         bands,
-        banding=located["exam_type"].astype(object).map(banding).to_numpy(dtype=object),
+        banding=exam_banding,
         age_years=located["patient_age_years"].to_numpy(dtype=np.float64),
         weight_kg=located["patient_weight_kg"].to_numpy(dtype=np.float64),
         paediatric_age_limit_years=params.paediatric_age_limit_years,
     )
+    names = [g.patient_group for g in bands] + list(SPECIAL_GROUPS)  # grouped by their codes
+    located["patient_group"] = pd.Categorical(groups_of_units, categories=names)
     units = _with_location_keys(located.copy(), params.group_by)
     groups, codes, upper = _group_table(units, level_rows, catalogue, params, bands)
     sites = site_values(

@@ -74,7 +74,8 @@ def test_head_exams_are_banded_by_age(make_events) -> None:
     ]
     groups = review(make_events(rows), levels=[], params=MARCH).groups_df
     dlp = groups[groups["quantity"] == "dlp_mgy_cm"]
-    assert dlp["patient_group"].tolist() == ["age_0_3m", "age_1_6y", "age_3m_1y", "age_6y_up"]
+    # bands in their natural (file) order
+    assert dlp["patient_group"].tolist() == ["age_0_3m", "age_3m_1y", "age_1_6y", "age_6y_up"]
 
 
 # ------------------------------------------------------------------------- clinical indications
