@@ -32,9 +32,7 @@ Two shortcuts estimate it from what a dose report holds:
 
 from __future__ import annotations
 
-import csv
 import functools
-import io
 import math
 import os
 from collections.abc import Mapping
@@ -46,6 +44,7 @@ from typing import Any
 import numpy as np
 from numpy.typing import ArrayLike, NDArray
 
+from beamaudit.model._datafile import parse_commented_csv
 from beamaudit.model.errors import ModelError
 
 __all__ = [
@@ -77,17 +76,9 @@ DEFAULT_K_SET = "AAPM Report 96"
 
 def _parse(text: str, source: str) -> tuple[dict[str, str], list[dict[str, str]]]:
     """``# key: value`` header lines and the CSV rows of a self-describing data file."""
-    header: dict[str, str] = {}
-    body: list[str] = []
-    for line in text.splitlines():
-        if line.startswith("#"):
-            key, _, value = line[1:].partition(":")
-            header[key.strip()] = value.strip()
-        elif line.strip():
-            body.append(line)
-    if not body:
+    if not any(line.strip() and not line.startswith("#") for line in text.splitlines()):
         raise ModelError(f"{source}: no header row")
-    return header, list(csv.DictReader(io.StringIO("\n".join(body))))
+    return parse_commented_csv(text)
 
 
 def _text(path: str | os.PathLike[str] | None, name: str) -> tuple[str, str]:
@@ -313,6 +304,17 @@ def _as_array(values: ArrayLike | str | None, n: int, dtype: Any) -> NDArray[Any
     return array
 
 
+def _blank(n: int) -> tuple[NDArray[Any], NDArray[Any], NDArray[Any], NDArray[Any], NDArray[Any]]:
+    """Doses and coefficients NaN, source, confidence and reason empty, for ``n`` exams."""
+    return (
+        np.full(n, np.nan),
+        np.full(n, np.nan),
+        np.full(n, "", dtype=object),
+        np.full(n, "", dtype=object),
+        np.full(n, "", dtype=object),
+    )
+
+
 def ct_effective_dose_msv(
     dlp_mgy_cm: ArrayLike,
     *,
@@ -367,11 +369,7 @@ def ct_effective_dose_msv(
         raise ModelError(f"unknown coefficient set {coefficient_set!r}")
     if (dlp < 0).any() or (ages < 0).any():
         raise ModelError("DLP and age must not be negative")
-    out = np.full(n, np.nan)
-    k = np.full(n, np.nan)
-    source = np.full(n, "", dtype=object)
-    confidence = np.full(n, "", dtype=object)
-    reason = np.full(n, "", dtype=object)
+    out, k, source, confidence, reason = _blank(n)
     for i in range(n):  # few distinct (region, age band) pairs; a plain loop keeps it readable
         if regions[i] not in known:
             reason[i] = (
@@ -424,11 +422,7 @@ def dap_effective_dose_msv(
     exams = _as_array(exam_type, n, object)
     if (dap < 0).any():
         raise ModelError("DAP must not be negative")
-    out = np.full(n, np.nan)
-    c = np.full(n, np.nan)
-    source = np.full(n, "", dtype=object)
-    confidence = np.full(n, "", dtype=object)
-    reason = np.full(n, "", dtype=object)
+    out, c, source, confidence, reason = _blank(n)
     for i in range(n):
         row = table.rows.get(str(exams[i]))
         if row is None:

@@ -603,10 +603,7 @@ def map_events(events: pd.DataFrame, rules: MappingRules) -> pd.Series:
     ReviewInputError
         ``events`` lacks one of :data:`EVENT_FIELDS`.
     """
-    index = _match_rule_index(events, rules)
-    # index -1 (no rule matched) picks the trailing None
-    names = np.array([r.exam_type for r in rules.rules] + [None], dtype=object)
-    return pd.Series(names[index], index=events.index, name="exam_type", dtype=object)
+    return map_events_with_indication(events, rules)["exam_type"]
 
 
 def map_events_with_indication(events: pd.DataFrame, rules: MappingRules) -> pd.DataFrame:
@@ -624,6 +621,7 @@ def map_events_with_indication(events: pd.DataFrame, rules: MappingRules) -> pd.
         ``events`` lacks one of :data:`EVENT_FIELDS`.
     """
     index = _match_rule_index(events, rules)
+    # index -1 (no rule matched) picks the trailing None
     names = np.array([r.exam_type for r in rules.rules] + [None], dtype=object)
     indications = np.array([r.clinical_indication or None for r in rules.rules] + [None], object)
     return pd.DataFrame(

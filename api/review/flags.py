@@ -52,6 +52,7 @@ from beamaudit.api.review.quantities import QUANTITIES
 __all__ = [
     "DAP_RATIO_QUANTITY",
     "FLAG_KINDS",
+    "GROUP_KEYS",
     "NCRP168_SRDL",
     "TG116_DI_RANGE",
     "Flag",
@@ -93,6 +94,17 @@ FLAG_KINDS: tuple[FlagKind, ...] = (
     "low_dose_review",
 )
 Severity = Literal["action", "warning", "info"]
+
+#: The keys of a review group (the first columns of the group table).
+GROUP_KEYS = (
+    "site",
+    "room",
+    "device",
+    "exam_type",
+    "clinical_indication",
+    "patient_group",
+    "quantity",
+)
 
 #: Name of the reported / reconstructed DAP ratio series in monthly tables.
 DAP_RATIO_QUANTITY = "dap_ratio"
@@ -832,19 +844,7 @@ def low_dose_review(
     if len(groups) == 0:
         return []
     judged = groups.loc[groups["n_used"].to_numpy() >= groups["n_minimum"].to_numpy()]
-    group_keys = [
-        c
-        for c in (
-            "site",
-            "room",
-            "device",
-            "exam_type",
-            "clinical_indication",
-            "patient_group",
-            "quantity",
-        )
-        if c in judged.columns
-    ]
+    group_keys = [c for c in GROUP_KEYS if c in judged.columns]
     # one row per group: the strictest (lowest) level decides, so a group far below an old, high
     # level but near the local one is not "far below the level" (levels sort before no level)
     ordered = judged.sort_values(

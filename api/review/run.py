@@ -107,13 +107,7 @@ LOCATION_KEYS = ("site", "room", "device")
 
 #: Columns of :attr:`ReviewResult.groups_df`.
 GROUP_COLUMNS = (
-    "site",
-    "room",
-    "device",
-    "exam_type",
-    "clinical_indication",
-    "patient_group",
-    "quantity",
+    *fl.GROUP_KEYS,
     "unit",
     "modality_group",
     "level_applies_per",
@@ -342,24 +336,19 @@ class ReviewParameters:
         object.__setattr__(self, "weight_window_kg", (low, high))
         if self.basis not in ("standard", "all"):
             problems.append("basis must be 'standard' or 'all'")
-        minimum = dict(DEFAULT_MINIMUM_SAMPLES)
-        for group, n in self.minimum_samples.items():
-            if group not in MODALITY_GROUPS:
-                problems.append(f"minimum_samples: unknown modality group {group!r}")
-            elif int(n) != n or n < 1:
-                problems.append(f"minimum_samples[{group!r}] must be a positive integer")
-            else:
-                minimum[group] = int(n)
-        object.__setattr__(self, "minimum_samples", MappingProxyType(minimum))
-        preferred = dict(PREFERRED_SAMPLES)
-        for group, n in self.preferred_samples.items():
-            if group not in MODALITY_GROUPS:
-                problems.append(f"preferred_samples: unknown modality group {group!r}")
-            elif int(n) != n or n < 1:
-                problems.append(f"preferred_samples[{group!r}] must be a positive integer")
-            else:
-                preferred[group] = int(n)
-        object.__setattr__(self, "preferred_samples", MappingProxyType(preferred))
+        for name, defaults in (
+            ("minimum_samples", DEFAULT_MINIMUM_SAMPLES),
+            ("preferred_samples", PREFERRED_SAMPLES),
+        ):
+            merged = dict(defaults)
+            for group, n in getattr(self, name).items():
+                if group not in MODALITY_GROUPS:
+                    problems.append(f"{name}: unknown modality group {group!r}")
+                elif int(n) != n or n < 1:
+                    problems.append(f"{name}[{group!r}] must be a positive integer")
+                else:
+                    merged[group] = int(n)
+            object.__setattr__(self, name, MappingProxyType(merged))
         if not self.paediatric_age_limit_years > 0:
             problems.append("paediatric_age_limit_years must be positive")
         if not (self.standard_mean_weight_kg > 0 and self.standard_mean_weight_tolerance_kg >= 0):
@@ -577,7 +566,7 @@ def _group_table(
     bands: PatientGroups,
 ) -> tuple[pd.DataFrame, np.ndarray, np.ndarray]:
     """The group table, each unit's group code, and each group's upper percentile."""
-    keys = [*LOCATION_KEYS, "exam_type", "clinical_indication", "patient_group", "quantity"]
+    keys = list(fl.GROUP_KEYS)
     weight = units["patient_weight_kg"].to_numpy(dtype=np.float64)
     low, high = params.weight_window_kg
     standard = (weight >= low) & (weight <= high)

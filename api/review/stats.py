@@ -144,23 +144,7 @@ def median_ci_ranks(
     >>> int(r), int(s), round(float(c), 4)
     (6, 15, 0.9586)
     """
-    if not 0.0 < confidence_level < 1.0:
-        raise ReviewError(f"confidence_level must be between 0 and 1, got {confidence_level!r}")
-    n_arr = np.atleast_1d(np.asarray(n, dtype=np.int64))
-    if (n_arr < 0).any():
-        raise ReviewError("sample sizes must not be negative")
-    half_alpha = (1.0 - confidence_level) / 2.0
-    k = sps.binom.ppf(half_alpha, n_arr, 0.5)  # smallest k with P(B <= k) >= alpha/2
-    k = np.nan_to_num(k, nan=-1.0).astype(np.int64)
-    tail_k = sps.binom.cdf(k, n_arr, 0.5)
-    j = np.where(tail_k <= half_alpha * (1.0 + _TAIL_RTOL), k, k - 1)  # largest j: P(B<=j) <= a/2
-    r = j + 1
-    ok = (r >= 1) & (n_arr > 0)
-    tail = sps.binom.cdf(j, n_arr, 0.5)
-    coverage = np.where(ok, 1.0 - 2.0 * tail, np.nan)
-    r = np.where(ok, r, 0)
-    s = np.where(ok, n_arr + 1 - r, 0)
-    return r, s, coverage
+    return quantile_ci_ranks(n, 0.5, confidence_level)  # symmetric at p = 1/2: s = n + 1 - r
 
 
 @dataclass(frozen=True, slots=True)
