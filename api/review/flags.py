@@ -284,6 +284,11 @@ def _concern(row: Mapping[str, Any]) -> dict[str, Any]:
     }
 
 
+def _who(row: Mapping[str, Any]) -> str:
+    """Whom a group's median is of: ICRP 135's standard-size patients, or all its patients."""
+    return "standard-size patients" if row.get("basis") == "standard" else "patients"
+
+
 def _exam_text(row: Mapping[str, Any]) -> str:
     """The exam type with its indication and patient group: ``ct_head (acute_stroke; children
     1-<6 years)``."""
@@ -330,7 +335,7 @@ def groups_above_level(groups: pd.DataFrame) -> list[Flag]:
         quantity = row["quantity"]
         unit = _unit(quantity)
         certain = row["status"] == "above_level"
-        who = "standard-size patients" if row["basis"] == "standard" else "patients"
+        who = _who(row)
         coverage = _float(row["ci_coverage"])
         median, low, high, level = _fmt_apart(
             _float(row["median"]),
@@ -915,7 +920,7 @@ def low_dose_review(
             )
         reason = (
             f"Median {_label(quantity)} {_fmt(_float(row['median']))} {unit} of {_exam_text(row)}"
-            f"{_where(row)} ({int(row['n_used'])} patients) is " + " and ".join(parts) + ". "
+            f"{_where(row)} ({int(row['n_used'])} {_who(row)}) is " + " and ".join(parts) + ". "
             "Review the image quality of a sample of these examinations with the reporting "
             "radiologists: a low dose is not a fault in itself, and the protocol needs a change "
             "only if the images do not answer the clinical question (optimisation, IAEA GSR "
