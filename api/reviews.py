@@ -901,7 +901,11 @@ def store_level_sets(
         A set version that is stored already, or an exam type the catalogue lacks.
     """
     from beamaudit.api.review import ReviewError
+    from beamaudit.api.review.levels import levels_the_store_cannot_keep
 
+    refusal = levels_the_store_cannot_keep(sets)
+    if refusal is not None:
+        raise ReviewError(refusal)
     catalogue, _ = ensure_catalogue(session)
     known = {t.exam_type for t in catalogue.types}
     rows = []

@@ -24,6 +24,10 @@ Mammography: the beam at the breast for Mo, Rh, W and Ag anodes (:mod:`.mammogra
 mean glandular dose by the Dance method (:mod:`.glandular_dose`) from coefficient tables
 (:mod:`.dance_coefficients`) computed by beamaudit's own breast Monte Carlo
 (:mod:`.breast_montecarlo`, :mod:`.photon_interactions`; generators, not run-time code).
+
+Effective dose: population-average estimates from DLP and DAP with sourced coefficients and ICRP 103
+tissue weights (:mod:`.effective_dose`), and the cumulative effective dose per pseudonymised patient
+over a window for the quality assurance of recurrent imaging (:mod:`.recurrent`).
 """
 
 from beamaudit.model.attenuation import (
@@ -100,6 +104,11 @@ from beamaudit.model.dose import (
     inverse_square_air_kerma_mgy,
     relative_uncertainty_of_product,
 )
+from beamaudit.model.effective_dose import (
+    EffectiveDoseEstimates,
+    ct_effective_dose_msv,
+    dap_effective_dose_msv,
+)
 from beamaudit.model.errors import ModelError
 from beamaudit.model.exposure import (
     BeamInputs,
@@ -145,6 +154,7 @@ from beamaudit.model.glandular_dose import (
 )
 from beamaudit.model.mammography import BreastBeam, MammographyTechnique, breast_beam
 from beamaudit.model.patient_model import PatientModel, SkinGrid, patient_model, skin_grid
+from beamaudit.model.recurrent import CumulativeDoses, cumulative_effective_dose
 from beamaudit.model.skin_dose import SkinDoseMap, skin_dose_map
 from beamaudit.model.skin_events import SkinEvent, SkinRoom
 from beamaudit.model.skin_factors import BeamFactors, FixedBeamFactors, SpectrumBeamFactors
@@ -180,9 +190,11 @@ __all__ = [
     "CtAcquisition",
     "CtAcquisitionDose",
     "CtStudyDose",
+    "CumulativeDoses",
     "CumulativeSkinDose",
     "DefaultValue",
     "DoseFigure",
+    "EffectiveDoseEstimates",
     "ExamDefault",
     "ExposureDose",
     "FilterSpec",
@@ -228,8 +240,11 @@ __all__ = [
     "compute_beam",
     "compute_exposure_dose",
     "ct_acquisition_dose",
+    "ct_effective_dose_msv",
     "ct_study_dose",
+    "cumulative_effective_dose",
     "cumulative_skin_dose",
+    "dap_effective_dose_msv",
     "dap_gy_cm2",
     "default_calibration",
     "default_filters",

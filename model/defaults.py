@@ -15,12 +15,11 @@ All are assumptions unless the row names a publication, and every use of one is 
 
 from __future__ import annotations
 
-import csv
 import functools
-import io
 from dataclasses import dataclass
 from importlib import resources
 
+from beamaudit.model._datafile import parse_commented_csv
 from beamaudit.model.errors import ModelError
 
 __all__ = [
@@ -69,16 +68,9 @@ class DefaultValue:
 
 
 def _read_table(name: str) -> tuple[dict[str, str], list[dict[str, str]]]:
-    text = resources.files(_DATA_PACKAGE).joinpath(name).read_text(encoding="utf-8")
-    header: dict[str, str] = {}
-    body: list[str] = []
-    for line in text.splitlines():
-        if line.startswith("#"):
-            key, _, value = line[1:].partition(":")
-            header[key.strip()] = value.strip()
-        elif line.strip():
-            body.append(line)
-    return header, list(csv.DictReader(io.StringIO("\n".join(body))))
+    return parse_commented_csv(
+        resources.files(_DATA_PACKAGE).joinpath(name).read_text(encoding="utf-8")
+    )
 
 
 @functools.cache

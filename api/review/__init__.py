@@ -2,9 +2,13 @@
 
 Pure functions over pandas DataFrames, no database. The pieces:
 
-* :mod:`.examtypes`: the exam-type catalogue and the rules that map raw header values to it;
+* :mod:`.examtypes`: the exam-type catalogue and the rules that map raw header values to it (and
+  to a clinical indication);
+* :mod:`.bands`: the paediatric patient groups (ICRP 135, EC RP 185 weight and age bands);
 * :mod:`.levels`: local and national reference-level sets, versioned, with their CSV files;
-* :mod:`.stats`: group statistics, the confidence interval of the median, ICRP 135 minimum samples;
+* :mod:`.stats`: group statistics, confidence intervals of the median and of any quantile, ICRP 135
+  minimum and preferred samples;
+* :mod:`.site_values`: ICRP 135 typical values and proposed local DRLs over a site's rooms;
 * :mod:`.changepoint`: CUSUM change-points in monthly series;
 * :mod:`.flags`: the flags, each with its reason and numbers;
 * :mod:`.events`: the events table contract and the examination values derived from it;
@@ -14,6 +18,13 @@ Every figure is an estimate for quality assurance and optimisation; clinical dec
 qualified medical physicist, and local regulations take precedence.
 """
 
+from beamaudit.api.review.bands import (
+    PatientGroup,
+    PatientGroups,
+    load_default_patient_groups,
+    read_patient_groups_csv,
+    write_patient_groups_csv,
+)
 from beamaudit.api.review.errors import CsvFormatError, ReviewError, ReviewInputError
 from beamaudit.api.review.events import EVENT_COLUMNS, prepare_events
 from beamaudit.api.review.examtypes import (
@@ -24,6 +35,7 @@ from beamaudit.api.review.examtypes import (
     load_default_catalogue,
     load_default_rules,
     map_events,
+    map_events_with_indication,
     match_rules,
     read_catalogue_csv,
     read_rules_csv,
@@ -50,11 +62,13 @@ from beamaudit.api.review.run import (
     ReviewResult,
     review,
 )
+from beamaudit.api.review.site_values import SITE_VALUE_COLUMNS, site_values
 
 __all__ = [
     "EVENT_COLUMNS",
     "GROUP_COLUMNS",
     "MONTHLY_COLUMNS",
+    "SITE_VALUE_COLUMNS",
     "AppliedLevel",
     "CsvFormatError",
     "ExamCatalogue",
@@ -63,6 +77,8 @@ __all__ = [
     "LevelEntry",
     "MappingRule",
     "MappingRules",
+    "PatientGroup",
+    "PatientGroups",
     "Period",
     "ReferenceLevelSet",
     "ReviewError",
@@ -71,18 +87,23 @@ __all__ = [
     "ReviewResult",
     "applicable_levels",
     "load_default_catalogue",
+    "load_default_patient_groups",
     "load_default_rules",
     "load_demo_local_levels",
     "load_national_levels",
     "map_events",
+    "map_events_with_indication",
     "match_rules",
     "prepare_events",
     "read_catalogue_csv",
     "read_levels_csv",
+    "read_patient_groups_csv",
     "read_rules_csv",
     "review",
+    "site_values",
     "unmapped_summary",
     "write_catalogue_csv",
     "write_levels_csv",
+    "write_patient_groups_csv",
     "write_rules_csv",
 ]

@@ -32,13 +32,24 @@ fluoro_time_s              float         fluoroscopy time of the event
 All float columns are NaN when absent. Doses, DAP, times and weights must not be negative (a
 negative value is rejected, never clamped).
 
+Optional columns (:data:`OPTIONAL_COLUMNS`; a table without them reads as if every value were
+missing):
+
+=========================  ============  ==========================================================
+patient_age_years          float         age at the examination; NaN when not recorded; paediatric
+                                         patients are grouped by it (:mod:`.bands`)
+clinical_indication        str or None   the examination's clinical indication (``acute_stroke``),
+                                         e.g. set by a mapping rule; levels may be set for one
+=========================  ============  ==========================================================
+
 Units of analysis
 -----------------
 For an exam type whose level applies **per projection** every event is one examination value. For
 one that applies **per examination** the events of a study with that exam type are aggregated into
 one value per quantity, by :data:`~beamaudit.api.review.examtypes.DEFAULT_AGGREGATION` or the
 catalogue's override (DAP, DLP, K_a,r summed; CTDIvol and ESAK the largest), with the study's
-first event giving its time, site, room and device, and its first recorded weight the weight.
+first event giving its time, site, room and device, and its first recorded weight, age and
+indication its own.
 """
 
 from __future__ import annotations
@@ -58,6 +69,7 @@ __all__ = [
     "EVENT_COLUMNS",
     "FLOAT_COLUMNS",
     "KEY_COLUMNS",
+    "OPTIONAL_COLUMNS",
     "TEXT_COLUMNS",
     "UNIT_COLUMNS",
     "build_units",
@@ -95,6 +107,8 @@ DOSE_COLUMNS = (
 FLOAT_COLUMNS = ("patient_weight_kg", *DOSE_COLUMNS, "deviation_index", "fluoro_time_s")
 _NON_NEGATIVE = (*DOSE_COLUMNS, "fluoro_time_s")
 EVENT_COLUMNS = ("event_id", "event_datetime", *TEXT_COLUMNS, *FLOAT_COLUMNS)
+#: Columns an events table may carry beyond :data:`EVENT_COLUMNS` (missing values when absent).
+OPTIONAL_COLUMNS = ("patient_age_years", "clinical_indication")
 _LOCATION = ("site", "room", "device")
 
 #: Columns of :func:`build_units` (one row per examination value).
@@ -108,6 +122,8 @@ UNIT_COLUMNS = (
     "exam_type",
     "month_key",
     "patient_weight_kg",
+    "patient_age_years",
+    "clinical_indication",
     "quantity",
     "value",
 )
@@ -159,10 +175,15 @@ def prepare_events(events: pd.DataFrame) -> pd.DataFrame:
             + _bad_ids(out, out["event_datetime"].isna().to_numpy())
         )
     study_codes = None
-    for c in TEXT_COLUMNS:
+    n_rows = len(events)
+    for c in (*TEXT_COLUMNS, "clinical_indication"):
+        if c not in events.columns:  # an optional column: every value missing
+            out[c] = pd.Categorical.from_codes(np.full(n_rows, -1), categories=pd.Index([], object))
+            continue
         col = events[c].reset_index(drop=True)
+        is_key = c in KEY_COLUMNS or c == "clinical_indication"
         if _is_text_categorical(col):  # already factorised (as the store hands events over)
-            if c in KEY_COLUMNS:
+            if is_key:
                 out[c] = _sorted_categories(col.array)
                 continue
             if c == "study_uid":  # kept as it is: a million texts cost more than their codes
@@ -175,7 +196,7 @@ def prepare_events(events: pd.DataFrame) -> pd.DataFrame:
             col = col.astype(object)
             present = col.notna().to_numpy()  # numbers in a text column (room 3): as text
             col[present] = col[present].astype(str)
-        if c in KEY_COLUMNS:  # categorical: factorised once here, not at every grouping
+        if is_key:  # categorical: factorised once here, not at every grouping
             out[c] = pd.Categorical(col)
         else:
             col = col.astype(object)
@@ -184,7 +205,10 @@ def prepare_events(events: pd.DataFrame) -> pd.DataFrame:
         raise ReviewInputError(
             "study_uid is missing for event(s) " + _bad_ids(out, out["study_uid"].isna().to_numpy())
         )
-    for c in FLOAT_COLUMNS:
+    for c in (*FLOAT_COLUMNS, "patient_age_years"):
+        if c not in events.columns:
+            out[c] = np.full(n_rows, np.nan)
+            continue
         try:
             out[c] = pd.to_numeric(events[c].reset_index(drop=True), errors="raise").astype(
                 np.float64
@@ -196,7 +220,7 @@ def prepare_events(events: pd.DataFrame) -> pd.DataFrame:
             raise ReviewInputError(
                 f"{c} is infinite for event(s) {_bad_ids(out, np.isinf(values))}"
             )
-    for c in _NON_NEGATIVE:
+    for c in (*_NON_NEGATIVE, "patient_age_years"):
         bad = out[c].to_numpy() < 0
         if bad.any():
             raise ReviewInputError(f"{c} is negative for event(s) {_bad_ids(out, bad)}")
@@ -327,13 +351,30 @@ def build_units(
     is_study = use & events["exam_type"].isin(per_study).to_numpy()
     is_event = use & events["exam_type"].isin(per_event).to_numpy()
     quantity_columns = list(QUANTITIES)
-    base = ["study_uid", *_LOCATION, "exam_type", "month_key", "patient_weight_kg"]
+    base = [
+        "study_uid",
+        *_LOCATION,
+        "exam_type",
+        "month_key",
+        "patient_weight_kg",
+        "patient_age_years",
+        "clinical_indication",
+    ]
 
     exams = events.loc[is_study]
     codes, studies = group_codes(exams, ["study_code", "exam_type"])
     grouped = exams.groupby(codes, sort=True)
     # groupby().first() skips missing values: the location comes from the first event that has it
-    firsts = grouped[["study_uid", *_LOCATION, "month_key", "patient_weight_kg"]].first()
+    firsts = grouped[
+        [
+            "study_uid",
+            *_LOCATION,
+            "month_key",
+            "patient_weight_kg",
+            "patient_age_years",
+            "clinical_indication",
+        ]
+    ].first()
     for c in firsts.columns:  # categoricals stay categoricals (with the events' categories)
         column = firsts[c]
         studies[c] = (
@@ -351,7 +392,7 @@ def build_units(
             [sums[q].to_numpy(), maxima[q].to_numpy()],
             default=means[q].to_numpy(),
         )
-    for c in (*_LOCATION, "exam_type"):
+    for c in (*_LOCATION, "exam_type", "clinical_indication"):
         if isinstance(events[c].dtype, pd.CategoricalDtype):  # keep the events' categories
             studies[c] = pd.Categorical(studies[c], dtype=events[c].dtype)
 

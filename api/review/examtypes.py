@@ -43,12 +43,19 @@ aggregation         no        examination types only: ``quantity=rule`` pairs se
                               spaces, rule ``sum``, ``max`` or ``mean``, overriding
                               :data:`DEFAULT_AGGREGATION`
 description         no        free text
+paediatric_bands    no        how children are grouped for paediatric levels: ``weight`` (body
+                              examinations) or ``age`` (head examinations), after ICRP 135 and
+                              EC RP 185 (see :mod:`beamaudit.api.review.bands`); empty = children
+                              are not banded
 ==================  ========  ================================================================
 
 Mapping-rule CSV columns (``mapping_rules.csv``)
 ------------------------------------------------
 ``priority`` (required, integer, unique: lower is tried first), ``exam_type`` (required, a catalogue
-identifier), the pattern columns ``modality``, ``room``, ``body_part``, ``view_position``,
+identifier), ``clinical_indication`` (optional, lower-case ``[a-z0-9_]``: the clinical indication
+the rule sets with the exam type, e.g. ``acute_stroke`` for a head CT whose description names a
+stroke; a level may apply to an exam type and an indication), the pattern columns ``modality``,
+``room``, ``body_part``, ``view_position``,
 ``study_description``, ``series_description``, ``protocol_name``, ``any_description`` (all optional,
 empty = any), and ``note`` (optional free text).
 """
@@ -87,6 +94,7 @@ __all__ = [
     "load_default_catalogue",
     "load_default_rules",
     "map_events",
+    "map_events_with_indication",
     "match_rules",
     "read_catalogue_csv",
     "read_rules_csv",
@@ -129,8 +137,11 @@ CATALOGUE_COLUMNS = (
     "quantities",
     "aggregation",
     "description",
+    "paediatric_bands",
 )
 _CATALOGUE_REQUIRED = CATALOGUE_COLUMNS[:6]
+PaediatricBands = Literal["", "weight", "age"]
+_PAEDIATRIC_BANDS = ("", "weight", "age")
 
 #: Raw header fields of the events table that rules look at.
 EVENT_FIELDS = (
@@ -144,7 +155,7 @@ EVENT_FIELDS = (
 )
 _DESCRIPTION_FIELDS = ("study_description", "series_description", "protocol_name")
 RULE_FIELDS = (*EVENT_FIELDS, "any_description")
-RULE_COLUMNS = ("priority", "exam_type", *RULE_FIELDS, "note")
+RULE_COLUMNS = ("priority", "exam_type", "clinical_indication", *RULE_FIELDS, "note")
 
 _IDENTIFIER = re.compile(r"^[a-z0-9][a-z0-9_]*$")
 _DICOM_MODALITY = re.compile(r"^[A-Z0-9]{2,16}$")
@@ -163,6 +174,7 @@ class ExamType:
     quantities: tuple[str, ...]
     aggregation: tuple[tuple[str, Aggregation], ...] = ()
     description: str = ""
+    paediatric_bands: PaediatricBands = ""
 
     def aggregation_for(self, quantity: str) -> Aggregation:
         """The rule that turns a study's events into one value of ``quantity``."""
@@ -201,8 +213,14 @@ class ExamCatalogue:
         return pd.DataFrame([_catalogue_row(t) for t in self.types], columns=CATALOGUE_COLUMNS)
 
     def fingerprint(self) -> str:
-        """SHA-256 of the catalogue's CSV form (without comments): identifies it in a stored run."""
-        text = write_table(None, columns=CATALOGUE_COLUMNS, rows=map(_catalogue_row, self.types))
+        """SHA-256 of the catalogue's CSV form (without comments): identifies it in a stored run.
+
+        A catalogue that bands no exam type is hashed without the ``paediatric_bands`` column, so
+        it keeps the fingerprint it had before the column existed."""
+        columns: tuple[str, ...] = CATALOGUE_COLUMNS
+        if not any(t.paediatric_bands for t in self.types):
+            columns = tuple(c for c in CATALOGUE_COLUMNS if c != "paediatric_bands")
+        text = write_table(None, columns=columns, rows=map(_catalogue_row, self.types))
         return hashlib.sha256(cast(str, text).encode("utf-8")).hexdigest()
 
 
@@ -216,6 +234,7 @@ def _catalogue_row(t: ExamType) -> dict[str, str]:
         "quantities": " ".join(t.quantities),
         "aggregation": " ".join(f"{q}={r}" for q, r in t.aggregation),
         "description": t.description,
+        "paediatric_bands": t.paediatric_bands,
     }
 
 
@@ -291,6 +310,11 @@ def read_catalogue_csv(source: CsvSource) -> ExamCatalogue:
                 aggregation.append((quantity, cast(Aggregation, rule)))
         if aggregation and per == "projection":
             problems.append((line, "aggregation applies only to examination-level exam types"))
+        bands = row["paediatric_bands"]
+        if bands not in _PAEDIATRIC_BANDS:
+            problems.append(
+                (line, f"paediatric_bands must be 'weight', 'age' or empty, got {bands!r}")
+            )
         if len(problems) == n_before:
             types.append(
                 ExamType(
@@ -302,6 +326,7 @@ def read_catalogue_csv(source: CsvSource) -> ExamCatalogue:
                     quantities=quantities,
                     aggregation=tuple(aggregation),
                     description=row["description"],
+                    paediatric_bands=cast(PaediatricBands, bands),
                 )
             )
     if problems:
@@ -354,9 +379,15 @@ class MappingRule:
     patterns: tuple[tuple[str, str], ...]
     note: str = ""
     line: int | None = None
+    clinical_indication: str = ""
 
     def __post_init__(self) -> None:
         object.__setattr__(self, "patterns", tuple((str(f), str(p)) for f, p in self.patterns))
+        if self.clinical_indication and not _IDENTIFIER.match(self.clinical_indication):
+            raise ReviewInputError(
+                f"mapping rule {self.priority}: clinical_indication {self.clinical_indication!r} "
+                f"must be lower-case [a-z0-9_]"
+            )
         for field_name, pattern in self.patterns:
             if field_name not in RULE_FIELDS:
                 raise ReviewInputError(
@@ -373,7 +404,11 @@ class MappingRule:
 
     def to_row(self) -> dict[str, object]:
         """The rule as a CSV row."""
-        row: dict[str, object] = {"priority": self.priority, "exam_type": self.exam_type}
+        row: dict[str, object] = {
+            "priority": self.priority,
+            "exam_type": self.exam_type,
+            "clinical_indication": self.clinical_indication,
+        }
         row.update(dict(self.patterns))
         row["note"] = self.note
         return row
@@ -442,6 +477,11 @@ def read_rules_csv(source: CsvSource, catalogue: ExamCatalogue | None = None) ->
             problems.append((line, "exam_type is empty"))
         elif catalogue is not None and exam_type not in catalogue:
             problems.append((line, f"exam_type {exam_type!r} is not in the catalogue"))
+        indication = row["clinical_indication"]
+        if indication and not _IDENTIFIER.match(indication):
+            problems.append(
+                (line, f"clinical_indication {indication!r} must be lower-case [a-z0-9_]")
+            )
         patterns = tuple((f, row[f]) for f in RULE_FIELDS if row[f])
         for f, pattern in patterns:
             try:
@@ -451,7 +491,7 @@ def read_rules_csv(source: CsvSource, catalogue: ExamCatalogue | None = None) ->
         if not patterns:
             problems.append((line, "the rule has no pattern and would match every event"))
         if len(problems) == n_before:
-            rules.append(MappingRule(priority, exam_type, patterns, row["note"], line))
+            rules.append(MappingRule(priority, exam_type, patterns, row["note"], line, indication))
     if problems:
         raise CsvFormatError(table.source, problems)
     return MappingRules(rules=tuple(rules), comments=table.comments, source=table.source)
@@ -563,10 +603,32 @@ def map_events(events: pd.DataFrame, rules: MappingRules) -> pd.Series:
     ReviewInputError
         ``events`` lacks one of :data:`EVENT_FIELDS`.
     """
+    return map_events_with_indication(events, rules)["exam_type"]
+
+
+def map_events_with_indication(events: pd.DataFrame, rules: MappingRules) -> pd.DataFrame:
+    """Exam type and clinical indication of each event, both from its first matching rule.
+
+    Returns
+    -------
+    DataFrame
+        Columns ``exam_type`` and ``clinical_indication`` (``None`` where no rule matches or the
+        matching rule sets no indication), aligned with ``events.index``.
+
+    Raises
+    ------
+    ReviewInputError
+        ``events`` lacks one of :data:`EVENT_FIELDS`.
+    """
     index = _match_rule_index(events, rules)
     # index -1 (no rule matched) picks the trailing None
     names = np.array([r.exam_type for r in rules.rules] + [None], dtype=object)
-    return pd.Series(names[index], index=events.index, name="exam_type", dtype=object)
+    indications = np.array([r.clinical_indication or None for r in rules.rules] + [None], object)
+    return pd.DataFrame(
+        {"exam_type": names[index], "clinical_indication": indications[index]},
+        index=events.index,
+        dtype=object,
+    )
 
 
 def unmapped_summary(events: pd.DataFrame, exam_types: pd.Series | None = None) -> pd.DataFrame:

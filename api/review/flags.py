@@ -24,7 +24,14 @@ kind                               severity  fires when
 ``no_dose_data``                   warning   a study whose events carry no dose value at all
 ``unknown_exam_type``              warning   events carry an exam type the catalogue does not know
 ``unmapped_events``                info      events that map to no exam type (listed for mapping)
+``low_dose_review``                info      a group's median is below a fraction of its lowest
+                                             level, or below the site's 25th percentile of room
+                                             medians: review image quality (optimisation works
+                                             both ways)
 =================================  ========  =======================================================
+
+Flags about a group carry its clinical indication and patient group (``clinical_indication``,
+``patient_group``; ``None`` for the main group of adults and patients of unrecorded age).
 """
 
 from __future__ import annotations
@@ -45,6 +52,7 @@ from beamaudit.api.review.quantities import QUANTITIES
 __all__ = [
     "DAP_RATIO_QUANTITY",
     "FLAG_KINDS",
+    "GROUP_KEYS",
     "NCRP168_SRDL",
     "TG116_DI_RANGE",
     "Flag",
@@ -53,6 +61,7 @@ __all__ = [
     "deviation_index_out_of_range",
     "exams_above_investigation_level",
     "groups_above_level",
+    "low_dose_review",
     "no_dose_data",
     "sort_flags",
     "srdl_exceeded",
@@ -70,6 +79,7 @@ FlagKind = Literal[
     "no_dose_data",
     "unknown_exam_type",
     "unmapped_events",
+    "low_dose_review",
 ]
 FLAG_KINDS: tuple[FlagKind, ...] = (
     "group_above_level",
@@ -81,8 +91,20 @@ FLAG_KINDS: tuple[FlagKind, ...] = (
     "no_dose_data",
     "unknown_exam_type",
     "unmapped_events",
+    "low_dose_review",
 )
 Severity = Literal["action", "warning", "info"]
+
+#: The keys of a review group (the first columns of the group table).
+GROUP_KEYS = (
+    "site",
+    "room",
+    "device",
+    "exam_type",
+    "clinical_indication",
+    "patient_group",
+    "quantity",
+)
 
 #: Name of the reported / reconstructed DAP ratio series in monthly tables.
 DAP_RATIO_QUANTITY = "dap_ratio"
@@ -129,6 +151,8 @@ class Flag:
     exam_type: str | None = None
     quantity: str | None = None
     date: str | None = None
+    clinical_indication: str | None = None
+    patient_group: str | None = None
 
     def concerns(self) -> dict[str, Any]:
         """The non-empty concern fields."""
@@ -141,6 +165,8 @@ class Flag:
             "exam_type",
             "quantity",
             "date",
+            "clinical_indication",
+            "patient_group",
         )
         return {f: getattr(self, f) for f in fields if getattr(self, f) is not None}
 
@@ -170,6 +196,8 @@ def sort_flags(flags: Sequence[Flag]) -> list[Flag]:
             f.date or "",
             f.study_uid or "",
             -1 if f.event_id is None else f.event_id,
+            f.clinical_indication or "",
+            f.patient_group or "",
             f.reason,
         )
 
@@ -251,7 +279,30 @@ def _concern(row: Mapping[str, Any]) -> dict[str, Any]:
         "room": _str_or_none(row.get("room")),
         "device": _str_or_none(row.get("device")),
         "exam_type": _str_or_none(row.get("exam_type")),
+        "clinical_indication": _str_or_none(row.get("clinical_indication")),
+        "patient_group": _str_or_none(row.get("patient_group")),
     }
+
+
+def _who(row: Mapping[str, Any]) -> str:
+    """Whom a group's median is of: ICRP 135's standard-size patients, or all its patients."""
+    return "standard-size patients" if row.get("basis") == "standard" else "patients"
+
+
+def _exam_text(row: Mapping[str, Any]) -> str:
+    """The exam type with its indication and patient group: ``ct_head (acute_stroke; children
+    1-<6 years)``."""
+    parts = [
+        text
+        for text in (
+            _str_or_none(row.get("clinical_indication")),
+            _str_or_none(row.get("patient_group_label"))
+            if _str_or_none(row.get("patient_group")) is not None
+            else None,
+        )
+        if text
+    ]
+    return f"{row['exam_type']}" + (f" ({'; '.join(parts)})" if parts else "")
 
 
 def _records(frame: pd.DataFrame) -> list[dict[str, Any]]:
@@ -284,7 +335,7 @@ def groups_above_level(groups: pd.DataFrame) -> list[Flag]:
         quantity = row["quantity"]
         unit = _unit(quantity)
         certain = row["status"] == "above_level"
-        who = "standard-size patients" if row["basis"] == "standard" else "patients"
+        who = _who(row)
         coverage = _float(row["ci_coverage"])
         median, low, high, level = _fmt_apart(
             _float(row["median"]),
@@ -306,7 +357,7 @@ def groups_above_level(groups: pd.DataFrame) -> list[Flag]:
                 )
             )
         reason = (
-            f"Median {_label(quantity)} {median} {unit} of {row['exam_type']}"
+            f"Median {_label(quantity)} {median} {unit} of {_exam_text(row)}"
             f"{_where(row)} ({row['n_used']} {who}) is {row['ratio_to_level']:.3g} × the "
             f"{row['level_kind']} level {level} {unit} "
             f"({row['level_set']}, version {row['level_version']}); {ci_text}."
@@ -765,3 +816,124 @@ def unmapped_events(summary: pd.DataFrame) -> list[Flag]:
             numbers={"n_events": n_events, "n_combinations": len(summary)},
         )
     ]
+
+
+def low_dose_review(
+    groups: pd.DataFrame,
+    site_values: pd.DataFrame,
+    *,
+    fraction: float | None,
+    use_site_percentile: bool,
+) -> list[Flag]:
+    """Groups whose median is far below the levels or the site's other rooms: review image quality.
+
+    IAEA GSR Part 3 (2014) asks for optimisation of protection, which a dose far below the level
+    does not complete by itself: the images must still answer the clinical question. One flag per
+    group that has a verdict (``n_used`` at least ``n_minimum``) when its median is below
+    ``fraction`` x its strictest (lowest) applicable level, or below the 25th percentile of the
+    room medians of its site (``site_values``'s ``room_median_p25``, present only where enough
+    rooms contribute). The wording asks for an image-quality review and does not suggest raising
+    the dose.
+
+    Parameters
+    ----------
+    groups : DataFrame
+        The review's group table (one row per group and level).
+    site_values : DataFrame
+        :func:`beamaudit.api.review.site_values.site_values` of the same groups.
+    fraction : float or None
+        Fraction of a level below which a median is flagged; ``None`` switches the rule off.
+    use_site_percentile : bool
+        Switches the site's 25th-percentile rule on.
+    """
+    if len(groups) == 0:
+        return []
+    judged = groups.loc[groups["n_used"].to_numpy() >= groups["n_minimum"].to_numpy()]
+    group_keys = [c for c in GROUP_KEYS if c in judged.columns]
+    # one row per group: the strictest (lowest) level decides, so a group far below an old, high
+    # level but near the local one is not "far below the level" (levels sort before no level)
+    ordered = judged.sort_values(
+        [*group_keys, "reference_level", "level_set"], kind="mergesort", na_position="last"
+    )
+    rows = ordered.drop_duplicates(group_keys, keep="first").copy()
+    median = rows["median"].to_numpy(dtype=np.float64)
+    level = rows["reference_level"].to_numpy(dtype=np.float64)
+    with np.errstate(invalid="ignore"):
+        below_level = (
+            median < fraction * level if fraction is not None else np.zeros(len(rows), bool)
+        )
+    site_keys = ["site", "exam_type", "clinical_indication", "patient_group", "quantity"]
+    p25 = np.full(len(rows), np.nan)
+    n_rooms_of = np.zeros(len(rows), dtype=np.int64)
+    if use_site_percentile and len(site_values) and len(rows):
+
+        def key_frame(frame: pd.DataFrame) -> pd.DataFrame:
+            return pd.DataFrame(
+                {k: frame[k].astype(object).where(frame[k].notna(), "\x00") for k in site_keys}
+            )
+
+        lookup = key_frame(site_values)
+        lookup["_p25"] = site_values["room_median_p25"].to_numpy(dtype=np.float64)
+        lookup["_n_rooms"] = site_values["n_rooms"].to_numpy(dtype=np.int64)
+        merged = key_frame(rows).merge(lookup, on=site_keys, how="left", sort=False)
+        p25 = merged["_p25"].to_numpy(dtype=np.float64)
+        n_rooms_of = merged["_n_rooms"].fillna(0).to_numpy(dtype=np.int64)
+    with np.errstate(invalid="ignore"):
+        below_p25 = median < p25
+    flagged = below_level | below_p25
+    flags = []
+    for row, hit_level, hit_p25, percentile_value, n_rooms in zip(
+        _records(rows.loc[flagged]),
+        below_level[flagged],
+        below_p25[flagged],
+        p25[flagged],
+        n_rooms_of[flagged],
+        strict=True,
+    ):
+        quantity = row["quantity"]
+        unit = _unit(quantity)
+        parts = []
+        numbers: dict[str, Number] = {"median": _float(row["median"]), "n_used": int(row["n_used"])}
+        if hit_level:
+            lowest = row
+            parts.append(
+                f"{_float(lowest['ratio_to_level']):.2f} × the {lowest['level_kind']} level "
+                f"{_fmt(_float(lowest['reference_level']))} {unit} ({lowest['level_set']}, version "
+                f"{lowest['level_version']}), below {_fmt(fraction or 0)} × the level"
+            )
+            numbers.update(
+                {
+                    "reference_level": _float(lowest["reference_level"]),
+                    "ratio_to_level": _float(lowest["ratio_to_level"]),
+                    "level_set": str(lowest["level_set"]),
+                    "level_version": str(lowest["level_version"]),
+                    "low_dose_fraction": fraction,
+                }
+            )
+        if hit_p25:
+            parts.append(
+                f"below the 25th percentile {_fmt(percentile_value)} {unit} of the medians of "
+                f"the site's {n_rooms} rooms"
+            )
+            numbers.update(
+                {"site_room_median_p25": float(percentile_value), "site_n_rooms": int(n_rooms)}
+            )
+        reason = (
+            f"Median {_label(quantity)} {_fmt(_float(row['median']))} {unit} of {_exam_text(row)}"
+            f"{_where(row)} ({int(row['n_used'])} {_who(row)}) is " + " and ".join(parts) + ". "
+            "Review the image quality of a sample of these examinations with the reporting "
+            "radiologists: a low dose is not a fault in itself, and the protocol needs a change "
+            "only if the images do not answer the clinical question (optimisation, IAEA GSR "
+            "Part 3)."
+        )
+        flags.append(
+            Flag(
+                kind="low_dose_review",
+                severity="info",
+                reason=reason,
+                numbers=numbers,
+                quantity=quantity,
+                **_concern(row),
+            )
+        )
+    return flags

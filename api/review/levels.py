@@ -2,9 +2,18 @@
 take effect.
 
 A :class:`ReferenceLevelSet` is one version of one named set (``"UK NDRL (UKHSA)"`` version
-``"2024-11-20"``, in effect from 20 November 2024). Each holds at most one value per exam type and
-quantity. For a review date, :func:`applicable_levels` picks, for every set name, the **newest
-version in effect** on that date (the latest ``effective_from`` not after it); a newer version
+``"2024-11-20"``, in effect from 20 November 2024). Each holds at most one value per exam type,
+quantity, patient group and clinical indication.
+
+A level's **patient group** is empty for adults (the ICRP 135 standard-size patient) or names a
+paediatric band (:mod:`beamaudit.api.review.bands`: ``weight_15_30kg``, ``age_1_6y``); an adult
+level never applies to a band, nor a band's level to adults. Its **clinical indication** is empty
+(the level applies to every examination of the type) or names one (``acute_stroke``): it then
+applies only to examinations of that indication, and for those it takes the place of the same set's
+level without an indication.
+
+For a review date, :func:`applicable_levels` picks, for every set name, the **newest version in
+effect** on that date (the latest ``effective_from`` not after it); a newer version
 supersedes an older one entirely, so an exam type dropped from the newer version has no level from
 that set any more (it does not fall back to the older version).
 
@@ -31,9 +40,13 @@ unit            yes       its unit; converted on import to the quantity's own un
 source          national  the published source of this value (table and row); required for
                           national sets
 note            no        free text (e.g. the clinical indication an NDRL is defined for)
+patient_group   no        empty for adults, or a paediatric band (``weight_15_30kg``)
+clinical_       no        empty, or the clinical indication the level is set for, lower-case
+indication                ``[a-z0-9_]`` (``acute_stroke``)
 ==============  ========  ==================================================================
 
-Export always writes values in the quantity's own unit.
+Export always writes values in the quantity's own unit, and writes the last two columns only when
+a level uses them (so files of adult levels keep their layout).
 """
 
 from __future__ import annotations
@@ -50,6 +63,7 @@ from typing import Literal, cast
 import pandas as pd
 
 from beamaudit.api.review._csv import CsvSource, read_table, write_table
+from beamaudit.api.review.bands import PatientGroups, load_default_patient_groups
 from beamaudit.api.review.errors import CsvFormatError, ReviewError
 from beamaudit.api.review.examtypes import ExamCatalogue
 from beamaudit.api.review.quantities import QUANTITIES, to_canonical_unit
@@ -57,6 +71,7 @@ from beamaudit.api.review.quantities import QUANTITIES, to_canonical_unit
 __all__ = [
     "LEVELS_TABLE_COLUMNS",
     "LEVEL_COLUMNS",
+    "LEVEL_OPTIONAL_COLUMNS",
     "AppliedLevel",
     "LevelEntry",
     "ReferenceLevelSet",
@@ -64,6 +79,7 @@ __all__ = [
     "check_level_sets",
     "levels_in_effect",
     "levels_table",
+    "levels_the_store_cannot_keep",
     "load_demo_local_levels",
     "load_national_levels",
     "read_levels_csv",
@@ -85,6 +101,9 @@ LEVEL_COLUMNS = (
     "source",
     "note",
 )
+#: Columns a level file may add to :data:`LEVEL_COLUMNS`.
+LEVEL_OPTIONAL_COLUMNS = ("patient_group", "clinical_indication")
+_IDENTIFIER = re.compile(r"^[a-z0-9][a-z0-9_]*$")
 _REQUIRED = (
     "set_name",
     "kind",
@@ -108,12 +127,16 @@ LEVELS_TABLE_COLUMNS = (
     "reference_level",
     "level_unit",
     "level_source",
+    "patient_group",
+    "clinical_indication",
 )
 
 
 @dataclass(frozen=True, slots=True)
 class LevelEntry:
-    """One reference level: ``value`` in the quantity's own unit ``unit``."""
+    """One reference level: ``value`` in the quantity's own unit ``unit``, for adults
+    (``patient_group`` empty) or a paediatric band, for every examination of the type
+    (``clinical_indication`` empty) or one indication."""
 
     exam_type: str
     quantity: str
@@ -121,6 +144,13 @@ class LevelEntry:
     unit: str
     source: str = ""
     note: str = ""
+    patient_group: str = ""
+    clinical_indication: str = ""
+
+    @property
+    def key(self) -> tuple[str, str, str, str]:
+        """``(exam_type, quantity, patient_group, clinical_indication)``: unique within a set."""
+        return (self.exam_type, self.quantity, self.patient_group, self.clinical_indication)
 
 
 @dataclass(frozen=True, slots=True)
@@ -140,14 +170,14 @@ class ReferenceLevelSet:
     effective_from: date
     source: str
     entries: tuple[LevelEntry, ...]
-    _index: MappingProxyType[tuple[str, str], LevelEntry] = field(
+    _index: MappingProxyType[tuple[str, str, str, str], LevelEntry] = field(
         init=False, repr=False, compare=False
     )
 
     def __post_init__(self) -> None:
         if self.kind not in ("national", "local"):
             raise ReviewError(f"level set {self.name!r}: kind must be 'national' or 'local'")
-        index: dict[tuple[str, str], LevelEntry] = {}
+        index: dict[tuple[str, str, str, str], LevelEntry] = {}
         for e in self.entries:
             if e.quantity not in QUANTITIES or e.unit != QUANTITIES[e.quantity].unit:
                 raise ReviewError(
@@ -159,17 +189,40 @@ class ReferenceLevelSet:
                     f"level set {self.name!r} {self.version}: {e.exam_type} {e.quantity} value "
                     f"{e.value!r} is not a positive number"
                 )
-            if (e.exam_type, e.quantity) in index:
+            for name, text in (
+                ("patient_group", e.patient_group),
+                ("indication", e.clinical_indication),
+            ):
+                if text and not _IDENTIFIER.match(text):
+                    raise ReviewError(
+                        f"level set {self.name!r} {self.version}: {e.exam_type} {e.quantity} "
+                        f"{name} {text!r} must be lower-case [a-z0-9_]"
+                    )
+            if e.key in index:
                 raise ReviewError(
                     f"level set {self.name!r} {self.version}: two values for {e.exam_type} "
-                    f"{e.quantity}"
+                    f"{e.quantity}{_qualifier(e.patient_group, e.clinical_indication)}"
                 )
-            index[(e.exam_type, e.quantity)] = e
+            index[e.key] = e
         object.__setattr__(self, "_index", MappingProxyType(index))
 
-    def get(self, exam_type: str, quantity: str) -> LevelEntry | None:
-        """The entry for ``exam_type`` and ``quantity``, or ``None``."""
-        return self._index.get((exam_type, quantity))
+    def get(
+        self,
+        exam_type: str,
+        quantity: str,
+        patient_group: str = "",
+        clinical_indication: str = "",
+    ) -> LevelEntry | None:
+        """The entry that applies to ``exam_type`` and ``quantity`` for ``patient_group`` (empty:
+        adults) and ``clinical_indication`` (empty: none recorded), or ``None``.
+
+        The entry for the indication itself is preferred; else the one without an indication.
+        """
+        if clinical_indication:
+            found = self._index.get((exam_type, quantity, patient_group, clinical_indication))
+            if found is not None:
+                return found
+        return self._index.get((exam_type, quantity, patient_group, ""))
 
     def describe(self) -> dict[str, str]:
         """The set's identity as plain strings (for a stored run)."""
@@ -195,6 +248,38 @@ class AppliedLevel:
     value: float
     unit: str
     source: str
+
+
+def _qualifier(patient_group: str, clinical_indication: str) -> str:
+    parts = [f"patient group {patient_group}"] if patient_group else []
+    parts += [f"indication {clinical_indication}"] if clinical_indication else []
+    return f" ({', '.join(parts)})" if parts else ""
+
+
+def levels_the_store_cannot_keep(sets: Iterable[ReferenceLevelSet]) -> str | None:
+    """Why ``sets`` cannot go into the store yet, or ``None``.
+
+    The store keeps adult levels for every indication only; a level for a paediatric band or a
+    clinical indication stored without them would be applied to adults or to every indication, so
+    such files are refused whole (the review core reads them from files meanwhile).
+    """
+    qualified = [
+        f"{s.name} {s.version}: {e.exam_type} {e.quantity}"
+        f"{_qualifier(e.patient_group, e.clinical_indication)}"
+        for s in sets
+        for e in s.entries
+        if e.patient_group or e.clinical_indication
+    ]
+    if not qualified:
+        return None
+    shown = "; ".join(qualified[:5]) + (
+        f"; and {len(qualified) - 5} more" if len(qualified) > 5 else ""
+    )
+    return (
+        f"the store cannot keep levels for a patient group or clinical indication yet ({shown}): "
+        "stored without them they would apply to adults or to every indication, so nothing was "
+        "imported"
+    )
 
 
 def check_level_sets(sets: Iterable[ReferenceLevelSet]) -> None:
@@ -242,12 +327,19 @@ def levels_in_effect(sets: Sequence[ReferenceLevelSet], on_date: date) -> list[R
 
 
 def applicable_levels(
-    sets: Sequence[ReferenceLevelSet], exam_type: str, quantity: str, on_date: date
+    sets: Sequence[ReferenceLevelSet],
+    exam_type: str,
+    quantity: str,
+    on_date: date,
+    *,
+    patient_group: str = "",
+    clinical_indication: str = "",
 ) -> list[AppliedLevel]:
     """The levels that apply to ``exam_type`` and ``quantity`` on ``on_date``.
 
     One per set name at most: from the newest version of that set in effect on the date, if that
-    version has a value for the exam type and quantity. Local sets come first, then by name.
+    version has a value for the exam type and quantity, for ``patient_group`` (empty: adults) and
+    ``clinical_indication`` (as :meth:`ReferenceLevelSet.get`). Local sets come first, then by name.
 
     Examples
     --------
@@ -258,7 +350,7 @@ def applicable_levels(
     """
     out = []
     for s in levels_in_effect(sets, on_date):
-        entry = s.get(exam_type, quantity)
+        entry = s.get(exam_type, quantity, patient_group, clinical_indication)
         if entry is not None:
             out.append(
                 AppliedLevel(
@@ -279,8 +371,10 @@ def applicable_levels(
 def levels_table(sets: Sequence[ReferenceLevelSet], on_date: date) -> pd.DataFrame:
     """Every level in effect on ``on_date``, one row per set, exam type and quantity.
 
-    Columns :data:`LEVELS_TABLE_COLUMNS`; rows ordered local first, then set name, exam type,
-    quantity. This is :func:`applicable_levels` for all exam types at once, for joining to groups.
+    Columns :data:`LEVELS_TABLE_COLUMNS` (``patient_group`` and ``clinical_indication`` empty
+    strings where the level has none); rows ordered local first, then set name, exam type,
+    quantity, patient group, indication. This is :func:`applicable_levels` for all exam types at
+    once, for joining to groups.
     """
     rows = [
         {
@@ -293,16 +387,20 @@ def levels_table(sets: Sequence[ReferenceLevelSet], on_date: date) -> pd.DataFra
             "reference_level": e.value,
             "level_unit": e.unit,
             "level_source": e.source or s.source,
+            "patient_group": e.patient_group,
+            "clinical_indication": e.clinical_indication,
         }
         for s in levels_in_effect(sets, on_date)
-        for e in sorted(s.entries, key=lambda e: (e.exam_type, e.quantity))
+        for e in sorted(s.entries, key=lambda e: e.key)
     ]
     return pd.DataFrame(rows, columns=list(LEVELS_TABLE_COLUMNS))
 
 
 # ---------------------------------------------------------------------------------------- CSV files
 def read_levels_csv(
-    source: CsvSource, catalogue: ExamCatalogue | None = None
+    source: CsvSource,
+    catalogue: ExamCatalogue | None = None,
+    patient_groups: PatientGroups | None = None,
 ) -> list[ReferenceLevelSet]:
     """Read reference-level sets from a CSV file (layout in the module docstring).
 
@@ -312,6 +410,8 @@ def read_levels_csv(
         The file.
     catalogue : ExamCatalogue, optional
         When given, every exam type must be in it.
+    patient_groups : PatientGroups, optional
+        When given, every patient group must be one of its bands (default: the shipped bands).
 
     Returns
     -------
@@ -323,11 +423,14 @@ def read_levels_csv(
     CsvFormatError
         Every problem of the file, each with its line number.
     """
-    table = read_table(source, required=_REQUIRED, optional=LEVEL_COLUMNS)
+    table = read_table(
+        source, required=_REQUIRED, optional=(*LEVEL_COLUMNS, *LEVEL_OPTIONAL_COLUMNS)
+    )
+    bands = patient_groups if patient_groups is not None else load_default_patient_groups()
     problems: list[tuple[int | None, str]] = []
     heads: dict[tuple[str, str], tuple[int, dict[str, str]]] = {}
     entries: dict[tuple[str, str], list[LevelEntry]] = {}
-    seen_entries: dict[tuple[str, str, str, str], int] = {}
+    seen_entries: dict[tuple[str, ...], int] = {}
     for line, row in table.rows:
         n_before = len(problems)
         name, version = row["set_name"], row["version"]
@@ -382,17 +485,30 @@ def read_levels_csv(
                 value = to_canonical_unit(quantity, value, row["unit"])
             except ReviewError as exc:
                 problems.append((line, str(exc)))
+        group, indication = row["patient_group"], row["clinical_indication"]
+        if group and group not in bands:
+            problems.append(
+                (
+                    line,
+                    f"patient_group {group!r} is not a band of {bands.source} (bands: "
+                    f"{', '.join(g.patient_group for g in bands)})",
+                )
+            )
+        if indication and not _IDENTIFIER.match(indication):
+            problems.append(
+                (line, f"clinical_indication {indication!r} must be lower-case [a-z0-9_]")
+            )
         if row["kind"] == "national" and not row["source"]:
             problems.append(
                 (line, "a national level needs its published source in the source column")
             )
-        entry_key = (name, version, exam_type, quantity)
+        entry_key = (name, version, exam_type, quantity, group, indication)
         if entry_key in seen_entries:
             problems.append(
                 (
                     line,
-                    f"{exam_type} {quantity} already given on line {seen_entries[entry_key]} "
-                    f"for set {name!r} version {version!r}",
+                    f"{exam_type} {quantity}{_qualifier(group, indication)} already given on "
+                    f"line {seen_entries[entry_key]} for set {name!r} version {version!r}",
                 )
             )
         seen_entries.setdefault(entry_key, line)
@@ -405,6 +521,8 @@ def read_levels_csv(
                     unit=QUANTITIES[quantity].unit,
                     source=row["source"],
                     note=row["note"],
+                    patient_group=group,
+                    clinical_indication=indication,
                 )
             )
     if problems:
@@ -437,6 +555,9 @@ def write_levels_csv(
 
     Returns the text when ``destination`` is ``None``.
     """
+    sets = list(sets)
+    qualified = any(e.patient_group or e.clinical_indication for s in sets for e in s.entries)
+    columns = (*LEVEL_COLUMNS, *LEVEL_OPTIONAL_COLUMNS) if qualified else LEVEL_COLUMNS
     rows = (
         {
             "set_name": s.name,
@@ -450,12 +571,14 @@ def write_levels_csv(
             "unit": e.unit,
             "source": e.source,
             "note": e.note,
+            "patient_group": e.patient_group,
+            "clinical_indication": e.clinical_indication,
         }
         for s in sets
         for e in s.entries
     )
     return write_table(
-        cast("str | None", destination), columns=LEVEL_COLUMNS, rows=rows, comments=comments
+        cast("str | None", destination), columns=columns, rows=rows, comments=comments
     )
 
 

@@ -17,6 +17,22 @@ ratio; groups with fewer patients than the minimum for their modality group get
 The levels are those in effect on ``levels_on`` (default: the first day of the period): a level that
 takes effect in the middle of a period applies from the next period on.
 
+Groups are also split by **clinical indication** (the events' optional ``clinical_indication``) and
+**patient group**: children (``patient_age_years`` below ``paediatric_age_limit_years``) of an exam
+type with ``paediatric_bands`` are grouped by the ICRP 135 / EC RP 185 weight or age bands of
+:mod:`beamaudit.api.review.bands`, all of a band's patients used (``basis`` ``band``); adults and
+patients of unrecorded age form the main group (``patient_group`` None) as before. A level applies
+to the groups of its patient group, and to those of its indication (a level without one to every
+indication). Each group row carries ICRP 135's sample rule (``n_minimum``, ``n_preferred``,
+``sample_check``) and, for the main group, whether the sample's mean weight is near the standard
+70 kg (``mean_weight_check``: within ``standard_mean_weight_kg`` ±
+``standard_mean_weight_tolerance_kg``, 70 ± 10 kg after the ICRP 135 glossary's standard-size adult,
+PUBLISHED-VALUES e, high); ``n_no_weight`` and ``n_no_age`` count patients without them.
+
+Over the rooms of a site, :mod:`beamaudit.api.review.site_values` gives ICRP 135's typical value
+and a proposed local DRL (``site_values_df``), and the ``low_dose_review`` flag asks for an image-
+quality review of groups far below their level or the site's other rooms.
+
 Determinism: the events are sorted by ``event_id`` first and every table is sorted by its keys, so
 the same events and parameters give an identical result whatever order the rows come in.
 Re-running a stored run: ``review(events, levels=..., params=ReviewParameters.from_json_dict(d))``.
@@ -41,6 +57,12 @@ import pandas as pd
 
 import beamaudit
 from beamaudit.api.review import flags as fl
+from beamaudit.api.review.bands import (
+    SPECIAL_GROUPS,
+    PatientGroups,
+    assign_patient_groups,
+    load_default_patient_groups,
+)
 from beamaudit.api.review.errors import ReviewError, ReviewInputError
 from beamaudit.api.review.events import (
     DOSE_COLUMNS,
@@ -55,12 +77,20 @@ from beamaudit.api.review.examtypes import (
     ExamCatalogue,
     MappingRules,
     load_default_catalogue,
-    map_events,
+    map_events_with_indication,
     unmapped_summary,
 )
 from beamaudit.api.review.levels import ReferenceLevelSet, levels_in_effect, levels_table
 from beamaudit.api.review.quantities import QUANTITIES
-from beamaudit.api.review.stats import DEFAULT_MINIMUM_SAMPLES, classify_status, group_statistics
+from beamaudit.api.review.site_values import SITE_VALUE_COLUMNS as _SITE_VALUE_COLUMNS
+from beamaudit.api.review.site_values import site_values
+from beamaudit.api.review.stats import (
+    DEFAULT_MINIMUM_SAMPLES,
+    PREFERRED_SAMPLES,
+    classify_status,
+    group_statistics,
+    sample_checks,
+)
 
 __all__ = [
     "GROUP_COLUMNS",
@@ -77,11 +107,7 @@ LOCATION_KEYS = ("site", "room", "device")
 
 #: Columns of :attr:`ReviewResult.groups_df`.
 GROUP_COLUMNS = (
-    "site",
-    "room",
-    "device",
-    "exam_type",
-    "quantity",
+    *fl.GROUP_KEYS,
     "unit",
     "modality_group",
     "level_applies_per",
@@ -107,6 +133,13 @@ GROUP_COLUMNS = (
     "level_source",
     "ratio_to_level",
     "status",
+    "patient_group_label",
+    "n_no_weight",
+    "n_no_age",
+    "n_preferred",
+    "sample_check",
+    "mean_weight_check",
+    "level_clinical_indication",
 )
 
 #: Columns of :attr:`ReviewResult.monthly_df` and of the ``history_df`` table :func:`review` takes:
@@ -231,6 +264,24 @@ class ReviewParameters:
         smaller ones are within month-to-month noise of typical sample sizes).
     changepoint_lookback_months : int
         Months of history (before the period) searched for change-points (default 24).
+    paediatric_age_limit_years : float
+        Patients younger than this are children, grouped by the paediatric bands of their exam type
+        (default 18, the age of majority: **common practice**).
+    preferred_samples : mapping
+        Preferred patients per modality group; merged over :data:`PREFERRED_SAMPLES` (ICRP 135).
+    standard_mean_weight_kg, standard_mean_weight_tolerance_kg : float
+        A main group's sample is near the standard patient when its mean weight is within
+        this tolerance of this weight (default 70 ± 10 kg, the ICRP 135 glossary's standard-size
+        adult, PUBLISHED-VALUES e, high).
+    min_rooms_for_local_level : int
+        Rooms (with enough patients each) a site needs for a proposed local DRL and for the
+        25th-percentile rule of the low-dose review (default 10, the low end of ICRP 135's
+        "reasonable number (e.g. 10-20)" of rooms, PUBLISHED-VALUES e, high).
+    low_dose_fraction : float or None
+        A judged group whose median is below this fraction of a level gets a ``low_dose_review``
+        flag (default 0.5, **common practice**, no standard fixes it); ``None`` switches it off.
+    low_dose_below_site_p25 : bool
+        Also flag groups below the 25th percentile of their site's room medians (default on).
     """
 
     period: Period
@@ -261,6 +312,13 @@ class ReviewParameters:
     cusum_baseline_months: int = 6
     changepoint_lookback_months: int = 24
     changepoint_min_relative_change: float = 0.2
+    paediatric_age_limit_years: float = 18.0
+    preferred_samples: Mapping[str, int] = field(default_factory=lambda: dict(PREFERRED_SAMPLES))
+    standard_mean_weight_kg: float = 70.0
+    standard_mean_weight_tolerance_kg: float = 10.0
+    min_rooms_for_local_level: int = 10
+    low_dose_fraction: float | None = 0.5
+    low_dose_below_site_p25: bool = True
 
     def __post_init__(self) -> None:
         problems = []
@@ -278,15 +336,31 @@ class ReviewParameters:
         object.__setattr__(self, "weight_window_kg", (low, high))
         if self.basis not in ("standard", "all"):
             problems.append("basis must be 'standard' or 'all'")
-        minimum = dict(DEFAULT_MINIMUM_SAMPLES)
-        for group, n in self.minimum_samples.items():
-            if group not in MODALITY_GROUPS:
-                problems.append(f"minimum_samples: unknown modality group {group!r}")
-            elif int(n) != n or n < 1:
-                problems.append(f"minimum_samples[{group!r}] must be a positive integer")
-            else:
-                minimum[group] = int(n)
-        object.__setattr__(self, "minimum_samples", MappingProxyType(minimum))
+        for name, defaults in (
+            ("minimum_samples", DEFAULT_MINIMUM_SAMPLES),
+            ("preferred_samples", PREFERRED_SAMPLES),
+        ):
+            merged = dict(defaults)
+            for group, n in getattr(self, name).items():
+                if group not in MODALITY_GROUPS:
+                    problems.append(f"{name}: unknown modality group {group!r}")
+                elif int(n) != n or n < 1:
+                    problems.append(f"{name}[{group!r}] must be a positive integer")
+                else:
+                    merged[group] = int(n)
+            object.__setattr__(self, name, MappingProxyType(merged))
+        if not self.paediatric_age_limit_years > 0:
+            problems.append("paediatric_age_limit_years must be positive")
+        if not (self.standard_mean_weight_kg > 0 and self.standard_mean_weight_tolerance_kg >= 0):
+            problems.append(
+                "standard_mean_weight_kg must be positive and its tolerance not negative"
+            )
+        if int(self.min_rooms_for_local_level) != self.min_rooms_for_local_level or (
+            self.min_rooms_for_local_level < 2
+        ):
+            problems.append("min_rooms_for_local_level must be an integer of at least 2")
+        if self.low_dose_fraction is not None and not 0 < self.low_dose_fraction < 1:
+            problems.append("low_dose_fraction must be between 0 and 1, or None")
         if not 0 < self.confidence_level < 1:
             problems.append("confidence_level must be between 0 and 1")
         if self.investigation_multiple is not None and not self.investigation_multiple > 0:
@@ -400,6 +474,11 @@ class ReviewResult:
     catalogue_fingerprint, software_version : str
     n_events : int
         Events in the period and scope.
+    site_values_df : DataFrame
+        Columns :data:`~beamaudit.api.review.site_values.SITE_VALUE_COLUMNS`: typical values and
+        proposed local DRLs over each site's rooms.
+    patient_groups : dict
+        Identity (source, fingerprint) of the paediatric bands used.
     """
 
     period: Period
@@ -412,6 +491,10 @@ class ReviewResult:
     catalogue_fingerprint: str
     software_version: str
     n_events: int
+    site_values_df: pd.DataFrame = field(
+        default_factory=lambda: pd.DataFrame(columns=list(_SITE_VALUE_COLUMNS))
+    )
+    patient_groups: dict[str, str] = field(default_factory=dict)
 
     def to_json_dict(self) -> dict[str, Any]:
         """The whole result in plain JSON types (NaN as ``None``, times as ISO strings)."""
@@ -426,6 +509,8 @@ class ReviewResult:
             "flags": [f.to_json_dict() for f in self.flags],
             "unmapped": _records(self.unmapped_df),
             "monthly": _records(self.monthly_df),
+            "site_values": _records(self.site_values_df),
+            "patient_groups": dict(self.patient_groups),
         }
 
 
@@ -478,13 +563,15 @@ def _group_table(
     levels: pd.DataFrame,
     catalogue: ExamCatalogue,
     params: ReviewParameters,
+    bands: PatientGroups,
 ) -> tuple[pd.DataFrame, np.ndarray, np.ndarray]:
     """The group table, each unit's group code, and each group's upper percentile."""
-    keys = [*LOCATION_KEYS, "exam_type", "quantity"]
+    keys = list(fl.GROUP_KEYS)
     weight = units["patient_weight_kg"].to_numpy(dtype=np.float64)
     low, high = params.weight_window_kg
     standard = (weight >= low) & (weight <= high)
-    used = standard if params.basis == "standard" else np.ones(len(units), dtype=bool)
+    banded = units["patient_group"].notna().to_numpy()
+    used = (standard | banded) if params.basis == "standard" else np.ones(len(units), dtype=bool)
     if len(units) == 0:
         return pd.DataFrame(columns=list(GROUP_COLUMNS)), np.zeros(0, np.int64), np.zeros(0)
     codes, table = group_codes(units, keys)
@@ -500,7 +587,15 @@ def _group_table(
     )
     table["n_standard"] = np.bincount(codes, weights=standard, minlength=n_groups).astype(np.int64)
     table["n_used"] = stats.n
-    table["basis"] = params.basis
+    group_banded = table["patient_group"].notna().to_numpy()
+    table["basis"] = np.where(group_banded, "band", params.basis).astype(object)
+    table["n_no_weight"] = np.bincount(codes, weights=np.isnan(weight), minlength=n_groups).astype(
+        np.int64
+    )
+    age = units["patient_age_years"].to_numpy(dtype=np.float64)
+    table["n_no_age"] = np.bincount(codes, weights=np.isnan(age), minlength=n_groups).astype(
+        np.int64
+    )
     for column, series in stats.to_frame().drop(columns="n").items():
         table[column] = series.to_numpy()
     has_weight = used & ~np.isnan(weight)
@@ -513,8 +608,34 @@ def _group_table(
     table["level_applies_per"] = table["exam_type"].map(lambda e: exam[e].level_applies_per)
     table["unit"] = table["quantity"].map(lambda q: QUANTITIES[q].unit)
     table["n_minimum"] = table["modality_group"].map(dict(params.minimum_samples)).astype(np.int64)
+    table["n_preferred"] = np.maximum(
+        table["modality_group"].map(dict(params.preferred_samples)).to_numpy(dtype=np.int64),
+        table["n_minimum"].to_numpy(),
+    )
+    table["sample_check"] = sample_checks(
+        table["n_used"].to_numpy(), table["n_minimum"].to_numpy(), table["n_preferred"].to_numpy()
+    )
+    mean_weight = table["mean_weight_kg"].to_numpy(dtype=np.float64)
+    with np.errstate(invalid="ignore"):
+        near = (
+            np.abs(mean_weight - params.standard_mean_weight_kg)
+            <= params.standard_mean_weight_tolerance_kg
+        )
+    table["mean_weight_check"] = np.select(
+        [group_banded, np.isnan(mean_weight), near],
+        ["not_applicable", "not_recorded", "ok"],
+        default="outside_tolerance",
+    ).astype(object)
+    table["patient_group_label"] = [
+        None if g is None else bands.label(g) for g in table["patient_group"].tolist()
+    ]
     table["_group"] = np.arange(n_groups)
-    merged = table.merge(levels, on=["exam_type", "quantity"], how="left", sort=False)
+    merged = table.merge(
+        _applicable_levels(table, levels).drop(columns=["exam_type", "quantity"]),
+        on="_group",
+        how="left",
+        sort=False,
+    )
     merged["_local_first"] = (merged["level_kind"] != "local").astype(int)
     merged = merged.sort_values(
         ["_group", "_local_first", "level_set"], kind="mergesort", na_position="last"
@@ -530,9 +651,48 @@ def _group_table(
         level=level,
     )
     out = merged.loc[:, list(GROUP_COLUMNS)]
-    for c in ("level_set", "level_kind", "level_version", "level_effective_from", "level_source"):
+    for c in (
+        "level_set",
+        "level_kind",
+        "level_version",
+        "level_effective_from",
+        "level_source",
+        "level_clinical_indication",
+    ):
         out[c] = out[c].astype(object).where(out[c].notna(), None)
     return out, codes, stats.upper
+
+
+def _applicable_levels(keys: pd.DataFrame, levels: pd.DataFrame) -> pd.DataFrame:
+    """The levels that apply to each row of ``keys`` (``_group``, ``exam_type``, ``quantity``,
+    ``patient_group``, ``clinical_indication``): one row per key row and level set, those without
+    a level left out.
+
+    A level applies to its own patient group (an empty one to the main group, ``None``), and to
+    every indication when it has none, or to its own; a set's level for the row's indication takes
+    the place of the same set's level without one (``level_clinical_indication`` says which).
+    """
+    frame = keys.loc[:, ["_group", "exam_type", "quantity"]].copy()
+    frame["_pg"] = keys["patient_group"].astype(object).where(keys["patient_group"].notna(), "")
+    frame["_ind"] = (
+        keys["clinical_indication"].astype(object).where(keys["clinical_indication"].notna(), "")
+    )
+    for c in ("exam_type", "quantity"):
+        frame[c] = frame[c].astype(object)
+    lv = levels.rename(
+        columns={"patient_group": "_pg", "clinical_indication": "level_clinical_indication"}
+    )
+    merged = frame.merge(lv, on=["exam_type", "quantity", "_pg"], how="inner", sort=False)
+    level_indication = merged["level_clinical_indication"].astype(object)
+    applies = (level_indication == "") | (level_indication == merged["_ind"])
+    merged = merged.loc[applies.to_numpy()].copy()
+    merged["_specific"] = (merged["level_clinical_indication"] != "").astype(int)
+    merged = merged.sort_values(["_group", "level_set", "_specific"], kind="mergesort")
+    merged = merged.drop_duplicates(["_group", "level_set"], keep="last")
+    merged["level_clinical_indication"] = merged["level_clinical_indication"].where(
+        merged["level_clinical_indication"] != "", None
+    )
+    return merged.drop(columns=["_pg", "_ind", "_specific"])
 
 
 def _investigation_units(
@@ -546,18 +706,22 @@ def _investigation_units(
     frame = units.copy()
     frame["percentile_value"] = upper[codes] if len(codes) else np.zeros(0)
     frame["percentile"] = params.upper_percentile
-    if len(levels):
-        order = levels.sort_values(
-            ["exam_type", "quantity", "reference_level", "level_set"], kind="mergesort"
-        )
-        strictest = order.drop_duplicates(["exam_type", "quantity"], keep="first")
-    else:
-        strictest = levels
-    strictest = strictest.loc[
-        :, ["exam_type", "quantity", "reference_level", "level_set", "level_version"]
+    # the strictest applicable level of each distinct (exam type, quantity, group, indication)
+    key_codes, keys = group_codes(
+        frame, ["exam_type", "quantity", "patient_group", "clinical_indication"]
+    )
+    keys["_group"] = np.arange(len(keys))
+    applied = _applicable_levels(keys, levels)
+    strictest = applied.sort_values(["_group", "reference_level", "level_set"], kind="mergesort")
+    strictest = strictest.drop_duplicates("_group", keep="first").set_index("_group")
+    position = strictest.index.get_indexer(key_codes)  # -1 (no level) takes the padding
+    frame["level_value"] = np.append(strictest["reference_level"].to_numpy(np.float64), np.nan)[
+        position
     ]
-    frame = frame.merge(strictest, on=["exam_type", "quantity"], how="left", sort=False)
-    frame = frame.rename(columns={"reference_level": "level_value"})
+    for c in ("level_set", "level_version"):
+        frame[c] = np.append(strictest[c].to_numpy(dtype=object), np.array([None], object))[
+            position
+        ]
     if params.investigate_standard_only:
         low, high = params.weight_window_kg
         w = frame["patient_weight_kg"].to_numpy(dtype=np.float64)
@@ -588,6 +752,9 @@ def _median_by(frame: pd.DataFrame, keys: list[str], column: str) -> pd.DataFram
 
 
 def _monthly_medians(units: pd.DataFrame, params: ReviewParameters) -> pd.DataFrame:
+    """Monthly medians of the main groups (children in bands have series of their own in no
+    history table yet)."""
+    units = units.loc[units["patient_group"].isna().to_numpy()]
     low, high = params.weight_window_kg
     if params.basis == "standard":
         w = units["patient_weight_kg"].to_numpy(dtype=np.float64)
@@ -667,6 +834,7 @@ def review(
     history_df: pd.DataFrame | None = None,
     catalogue: ExamCatalogue | None = None,
     rules: MappingRules | None = None,
+    patient_groups: PatientGroups | None = None,
 ) -> ReviewResult:
     """Review the events of ``params.period`` against reference levels.
 
@@ -685,7 +853,10 @@ def review(
     catalogue : ExamCatalogue, optional
         Default: the shipped catalogue.
     rules : MappingRules, optional
-        When given, events without an exam type are mapped with them first (mapped ones are kept).
+        When given, events without an exam type are mapped with them first (mapped ones are kept),
+        and so is their clinical indication when the events carry none.
+    patient_groups : PatientGroups, optional
+        The paediatric bands. Default: the shipped ones (ICRP 135, EC RP 185).
 
     Returns
     -------
@@ -699,15 +870,19 @@ def review(
         Inconsistent level sets.
     """
     catalogue = catalogue or load_default_catalogue()
+    bands = patient_groups if patient_groups is not None else load_default_patient_groups()
     in_effect = levels_in_effect(levels, params.effective_levels_on)
     level_rows = levels_table(in_effect, params.effective_levels_on)
     prepared = _select(prepare_events(events), params)
     missing_type = prepared["exam_type"].isna().to_numpy()
     if rules is not None and missing_type.any():  # the rules map each event on its own values
-        given = prepared["exam_type"].astype(object).to_numpy(copy=True)
-        given[missing_type] = map_events(prepared.loc[missing_type], rules).to_numpy()
-        filled = pd.Series(given, dtype=object)
-        prepared["exam_type"] = pd.Categorical(filled.where(filled.notna(), None))
+        mapped = map_events_with_indication(prepared.loc[missing_type], rules)
+        for column in ("exam_type", "clinical_indication"):
+            given = prepared[column].astype(object).to_numpy(copy=True)
+            fill = missing_type & pd.isna(given)
+            given[fill] = mapped[column].to_numpy()[pd.isna(given[missing_type])]
+            filled = pd.Series(given, dtype=object)
+            prepared[column] = pd.Categorical(filled.where(filled.notna(), None))
     unmapped = unmapped_summary(prepared)
     scoped = prepared
     if params.exam_types is not None:
@@ -715,8 +890,30 @@ def review(
             drop=True
         )
     located = build_units(scoped, catalogue)  # each unit keeps its own location
+    banding = {t.exam_type: t.paediatric_bands for t in catalogue}
+    exam_types = located["exam_type"]
+    if isinstance(exam_types.dtype, pd.CategoricalDtype):  # map the categories, not the rows
+        per_code = np.array([banding.get(c, "") for c in exam_types.cat.categories] + [""], object)
+        exam_banding = per_code[exam_types.cat.codes.to_numpy()]
+    else:
+        exam_banding = exam_types.astype(object).map(banding).to_numpy(dtype=object)
+    groups_of_units = assign_patient_groups(
+        bands,
+        banding=exam_banding,
+        age_years=located["patient_age_years"].to_numpy(dtype=np.float64),
+        weight_kg=located["patient_weight_kg"].to_numpy(dtype=np.float64),
+        paediatric_age_limit_years=params.paediatric_age_limit_years,
+    )
+    names = [g.patient_group for g in bands] + list(SPECIAL_GROUPS)  # grouped by their codes
+    located["patient_group"] = pd.Categorical(groups_of_units, categories=names)
     units = _with_location_keys(located.copy(), params.group_by)
-    groups, codes, upper = _group_table(units, level_rows, catalogue, params)
+    groups, codes, upper = _group_table(units, level_rows, catalogue, params, bands)
+    sites = site_values(
+        groups,
+        location_keys=params.group_by,
+        min_rooms=params.min_rooms_for_local_level,
+        confidence_level=params.confidence_level,
+    )
     flags: list[fl.Flag] = []
     flags += fl.groups_above_level(groups)
     flags += fl.exams_above_investigation_level(
@@ -749,6 +946,12 @@ def review(
     flags += fl.no_dose_data(studies)
     flags += fl.unknown_exam_types(scoped, {t.exam_type for t in catalogue})
     flags += fl.unmapped_events(unmapped)
+    flags += fl.low_dose_review(
+        groups,
+        sites,
+        fraction=params.low_dose_fraction,
+        use_site_percentile=params.low_dose_below_site_p25,
+    )
     return ReviewResult(
         period=params.period,
         parameters=params,
@@ -760,4 +963,6 @@ def review(
         catalogue_fingerprint=catalogue.fingerprint(),
         software_version=beamaudit.__version__,
         n_events=len(scoped),
+        site_values_df=sites,
+        patient_groups=bands.describe(),
     )

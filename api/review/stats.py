@@ -41,6 +41,24 @@ below which a group gets ``insufficient_sample`` instead of a verdict. ICRP Publ
 * CT: 20, set equal to radiography as **common practice**; not in PUBLISHED-VALUES (confidence low).
 
 They are defaults: :class:`~beamaudit.api.review.run.ReviewParameters` takes any table.
+:data:`PREFERRED_SAMPLES` gives the sizes ICRP 135 prefers (radiography and diagnostic
+fluoroscopy 30, PUBLISHED-VALUES e, medium; mammography 50; interventional 30; CT 30 as
+**common practice**, like radiography): a group between the two is judged, and its row says the
+sample is below the preferred size.
+
+Confidence interval of any quantile
+-----------------------------------
+The same argument holds for the population :math:`p`-quantile with
+:math:`B \sim \mathrm{Binomial}(n, p)` (Conover 1999, §3.2): :math:`[x_{(r)}, x_{(s)}]` covers it
+with probability :math:`F(s-1) - F(r-1)`, :math:`F` the binomial distribution function. We take
+:math:`r` the largest rank with :math:`F(r-1) \le \alpha/2` and :math:`s` the smallest with
+:math:`1 - F(s-1) \le \alpha/2` (equal tails of at most :math:`\alpha/2` each; for
+:math:`p = 1/2` these are the median's ranks above). Away from the median one bound can be
+missing while the other exists: for the 75th percentile of 10 values no upper rank reaches 97.5 %
+(:math:`0.75^{10} = 0.056 > 0.025`), so the interval is one-sided and its missing bound is NaN.
+:func:`quantile_ci` serves the ICRP 135 typical value (median of room medians) and proposed local
+DRL (75th percentile of room medians); the ranks are those of
+``scipy.stats.quantile_test(x, p=p).confidence_interval`` (checked in the tests).
 """
 
 from __future__ import annotations
@@ -57,13 +75,18 @@ from beamaudit.api.review.errors import ReviewError
 
 __all__ = [
     "DEFAULT_MINIMUM_SAMPLES",
+    "PREFERRED_SAMPLES",
     "STATUSES",
     "GroupStatistics",
     "MedianCI",
+    "QuantileCI",
     "classify_status",
     "group_statistics",
     "median_ci",
     "median_ci_ranks",
+    "quantile_ci",
+    "quantile_ci_ranks",
+    "sample_checks",
 ]
 
 Status = Literal["above_level", "possibly_above", "below_level", "insufficient_sample", "no_level"]
@@ -78,6 +101,11 @@ STATUSES: tuple[Status, ...] = (
 #: Minimum patients per group by modality group (ICRP 135 §3 from memory; see the module docstring).
 DEFAULT_MINIMUM_SAMPLES: MappingProxyType[str, int] = MappingProxyType(
     {"radiography": 20, "fluoroscopy": 20, "mammography": 50, "interventional": 30, "ct": 20}
+)
+
+#: Preferred patients per group by modality group (ICRP 135 §3 from memory; module docstring).
+PREFERRED_SAMPLES: MappingProxyType[str, int] = MappingProxyType(
+    {"radiography": 30, "fluoroscopy": 30, "mammography": 50, "interventional": 30, "ct": 30}
 )
 
 # Relative slack when comparing a binomial tail with alpha/2: the tails are dyadic rationals and
@@ -116,23 +144,7 @@ def median_ci_ranks(
     >>> int(r), int(s), round(float(c), 4)
     (6, 15, 0.9586)
     """
-    if not 0.0 < confidence_level < 1.0:
-        raise ReviewError(f"confidence_level must be between 0 and 1, got {confidence_level!r}")
-    n_arr = np.atleast_1d(np.asarray(n, dtype=np.int64))
-    if (n_arr < 0).any():
-        raise ReviewError("sample sizes must not be negative")
-    half_alpha = (1.0 - confidence_level) / 2.0
-    k = sps.binom.ppf(half_alpha, n_arr, 0.5)  # smallest k with P(B <= k) >= alpha/2
-    k = np.nan_to_num(k, nan=-1.0).astype(np.int64)
-    tail_k = sps.binom.cdf(k, n_arr, 0.5)
-    j = np.where(tail_k <= half_alpha * (1.0 + _TAIL_RTOL), k, k - 1)  # largest j: P(B<=j) <= a/2
-    r = j + 1
-    ok = (r >= 1) & (n_arr > 0)
-    tail = sps.binom.cdf(j, n_arr, 0.5)
-    coverage = np.where(ok, 1.0 - 2.0 * tail, np.nan)
-    r = np.where(ok, r, 0)
-    s = np.where(ok, n_arr + 1 - r, 0)
-    return r, s, coverage
+    return quantile_ci_ranks(n, 0.5, confidence_level)  # symmetric at p = 1/2: s = n + 1 - r
 
 
 @dataclass(frozen=True, slots=True)
@@ -328,4 +340,111 @@ def classify_status(
         [no_level, too_few, above, possibly],
         ["no_level", "insufficient_sample", "above_level", "possibly_above"],
         default="below_level",
+    ).astype(object)
+
+
+@dataclass(frozen=True, slots=True)
+class QuantileCI:
+    """A sample quantile with its order-statistic confidence interval (bounds NaN where missing).
+
+    ``coverage`` is that of the interval as given: two-sided when both bounds exist, one-sided
+    (:math:`[x_{(r)}, \\infty)` or :math:`(-\\infty, x_{(s)}]`) when only one does, NaN when none.
+    """
+
+    p: float
+    n: int
+    value: float
+    low: float
+    high: float
+    rank_low: int
+    rank_high: int
+    coverage: float
+
+
+def quantile_ci_ranks(
+    n: np.ndarray | int, p: float, confidence_level: float = 0.95
+) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+    """Exact binomial ranks of the distribution-free confidence interval of the ``p``-quantile.
+
+    Parameters
+    ----------
+    n : int or array of int
+        Sample sizes.
+    p : float
+        The quantile, strictly between 0 and 1 (0.75 for the third quartile).
+    confidence_level : float
+        Wanted coverage :math:`1 - \\alpha`, strictly between 0 and 1.
+
+    Returns
+    -------
+    r, s : arrays of int
+        1-based ranks of the lower and upper bounds; 0 where that bound does not exist.
+    coverage : array of float
+        Exact coverage of the interval as it exists (see :class:`QuantileCI`); NaN without bounds.
+
+    Raises
+    ------
+    ReviewError
+        ``p`` or ``confidence_level`` outside (0, 1), or a negative ``n``.
+
+    Examples
+    --------
+    >>> r, s, c = quantile_ci_ranks(10, 0.75)
+    >>> int(r[0]), int(s[0]), round(float(c[0]), 4)
+    (5, 0, 0.9803)
+    """
+    if not 0.0 < p < 1.0:
+        raise ReviewError(f"the quantile p must be between 0 and 1, got {p!r}")
+    if not 0.0 < confidence_level < 1.0:
+        raise ReviewError(f"confidence_level must be between 0 and 1, got {confidence_level!r}")
+    n_arr = np.atleast_1d(np.asarray(n, dtype=np.int64))
+    if (n_arr < 0).any():
+        raise ReviewError("sample sizes must not be negative")
+    half_alpha = (1.0 - confidence_level) / 2.0
+    k = np.nan_to_num(sps.binom.ppf(half_alpha, n_arr, p), nan=-1.0).astype(np.int64)
+    j = np.where(sps.binom.cdf(k, n_arr, p) <= half_alpha * (1.0 + _TAIL_RTOL), k, k - 1)
+    r = np.where((j >= 0) & (n_arr > 0), j + 1, 0)
+    # smallest k with F(k) >= 1 - alpha/2; the upper bound is x_(k+1) when k + 1 <= n
+    upper_k = np.nan_to_num(sps.binom.ppf(1.0 - half_alpha, n_arr, p), nan=-1.0).astype(np.int64)
+    upper_k = np.where(
+        sps.binom.sf(upper_k - 1, n_arr, p) <= half_alpha * (1.0 + _TAIL_RTOL),
+        upper_k - 1,
+        upper_k,
+    )  # guard against ppf rounding one rank too far
+    s = np.where((upper_k + 1 <= n_arr) & (upper_k >= 0) & (n_arr > 0), upper_k + 1, 0)
+    lower_tail = np.where(r > 0, sps.binom.cdf(r - 1, n_arr, p), 0.0)
+    upper_mass = np.where(s > 0, sps.binom.cdf(s - 1, n_arr, p), 1.0)
+    coverage = np.where((r > 0) | (s > 0), upper_mass - lower_tail, np.nan)
+    return r, s, coverage
+
+
+def quantile_ci(
+    values: np.ndarray | list[float], p: float, confidence_level: float = 0.95
+) -> QuantileCI:
+    """The sample ``p``-quantile (linear interpolation, Hyndman & Fan definition 7) and its
+    distribution-free confidence interval (see the module docstring). NaN values are ignored."""
+    x = np.sort(np.asarray(values, dtype=np.float64))
+    x = x[~np.isnan(x)]
+    r, s, coverage = quantile_ci_ranks(len(x), p, confidence_level)
+    ri, si = int(r[0]), int(s[0])
+    return QuantileCI(
+        p=p,
+        n=len(x),
+        value=float(np.quantile(x, p)) if len(x) else float("nan"),
+        low=float(x[ri - 1]) if ri else float("nan"),
+        high=float(x[si - 1]) if si else float("nan"),
+        rank_low=ri,
+        rank_high=si,
+        coverage=float(coverage[0]),
+    )
+
+
+def sample_checks(n: np.ndarray, n_minimum: np.ndarray, n_preferred: np.ndarray) -> np.ndarray:
+    """ICRP 135's sample-size rule per group: ``below_minimum`` (no verdict), ``below_preferred``
+    (judged, but fewer patients than ICRP 135 prefers) or ``ok``."""
+    n = np.asarray(n)
+    return np.select(
+        [n < np.asarray(n_minimum), n < np.asarray(n_preferred)],
+        ["below_minimum", "below_preferred"],
+        default="ok",
     ).astype(object)

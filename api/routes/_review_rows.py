@@ -39,6 +39,7 @@ def exam_type_from_row(row: m.ExamTypeRow) -> ExamType:
         quantities=tuple(row.quantities or ()),
         aggregation=tuple((q, cast(Any, r)) for q, r in (details.get("aggregation") or {}).items()),
         description=details.get("description", ""),
+        paediatric_bands=details.get("paediatric_bands", ""),
     )
 
 
@@ -54,6 +55,7 @@ def exam_type_row_values(t: ExamType) -> dict[str, Any]:
             "dicom_modalities": list(t.dicom_modalities),
             "aggregation": dict(t.aggregation),
             "description": t.description,
+            "paediatric_bands": t.paediatric_bands,
         },
     }
 

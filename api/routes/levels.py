@@ -24,6 +24,7 @@ from beamaudit.api.review.levels import (
     LevelKind,
     ReferenceLevelSet,
     check_level_sets,
+    levels_the_store_cannot_keep,
     read_levels_csv,
     write_levels_csv,
 )
@@ -202,6 +203,9 @@ def export_level_sets_csv(
 def _import(session: Session, who: Principal, data: bytes) -> list[LevelSetRead]:
     try:
         sets = read_levels_csv(io.BytesIO(data), catalogue_from_store(session))
+        refusal = levels_the_store_cannot_keep(sets)
+        if refusal is not None:
+            raise CsvFormatError("<request body>", [(None, refusal)])
     except CsvFormatError as exc:
         csv_invalid(exc)
     rows = []

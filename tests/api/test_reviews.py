@@ -15,6 +15,7 @@ from typing import Any
 
 import numpy as np
 import pandas as pd
+import pytest
 from sqlalchemy import insert, select
 
 from beamaudit.api.review import Period, ReviewParameters, review
@@ -344,3 +345,22 @@ def test_events_the_session_has_not_committed_are_read_too(store) -> None:
         session.rollback()
     assert len(after) == before + 1
     assert after["dap_gy_cm2"].iloc[-1] == 0.2
+
+
+def test_levels_the_store_cannot_keep_are_refused_whole(store) -> None:
+    # a paediatric band's level stored without its band would apply to adults: refused, nothing kept
+    from beamaudit.api.review import ReviewError
+    from beamaudit.api.review.levels import LevelEntry, ReferenceLevelSet
+    from beamaudit.api.reviews import store_level_sets
+
+    band = LevelEntry("chest_pa", "dap_gy_cm2", 0.02, "Gy.cm2", patient_group="weight_15_30kg")
+    invented = ReferenceLevelSet(
+        "Paed (invented)", "local", "1", date(2026, 1, 1), "tests", (band,)
+    )
+    with (
+        pytest.raises(ReviewError, match="cannot keep levels for a patient group"),
+        store.session_factory.begin() as session,
+    ):
+        store_level_sets(session, [invented])
+    with store.session_factory() as session:
+        assert session.scalars(select(m.ReferenceLevelSetRow)).all() == []

@@ -10,7 +10,7 @@ import numpy as np
 import pandas as pd
 import pytest
 
-from beamaudit.api.review.events import EVENT_COLUMNS, FLOAT_COLUMNS
+from beamaudit.api.review.events import EVENT_COLUMNS, FLOAT_COLUMNS, OPTIONAL_COLUMNS
 
 EventsFactory = Callable[..., pd.DataFrame]
 
@@ -33,6 +33,8 @@ def build_events(rows: Sequence[Mapping[str, Any]], **defaults: Any) -> pd.DataF
 
     ``event_id`` defaults to the row number + 1, ``study_uid`` to one study per event,
     ``event_datetime`` to 2025-03-10 UTC; ``defaults`` apply to every row that lacks the column.
+    The optional columns (``patient_age_years``, ``clinical_indication``) are kept when a row or
+    the defaults name them.
     """
     records = []
     for i, row in enumerate(rows):
@@ -44,7 +46,10 @@ def build_events(rows: Sequence[Mapping[str, Any]], **defaults: Any) -> pd.DataF
         record.update(defaults)
         record.update(row)
         records.append(record)
-    frame = pd.DataFrame(records, columns=list(EVENT_COLUMNS))
+    optional = [c for c in OPTIONAL_COLUMNS if any(c in r for r in records)]
+    frame = pd.DataFrame(records, columns=[*EVENT_COLUMNS, *optional])
+    if "patient_age_years" in optional:
+        frame["patient_age_years"] = frame["patient_age_years"].astype(np.float64)
     for c in FLOAT_COLUMNS:
         frame[c] = frame[c].astype(np.float64)
     frame["event_datetime"] = pd.to_datetime(frame["event_datetime"])

@@ -2,11 +2,13 @@
 
 from __future__ import annotations
 
+import hashlib
 import io
 
 import pandas as pd
 import pytest
 
+from beamaudit.api.review._csv import write_table
 from beamaudit.api.review.errors import CsvFormatError, ReviewInputError
 from beamaudit.api.review.examtypes import (
     CATALOGUE_COLUMNS,
@@ -18,6 +20,7 @@ from beamaudit.api.review.examtypes import (
     load_default_catalogue,
     load_default_rules,
     map_events,
+    map_events_with_indication,
     match_rules,
     read_catalogue_csv,
     read_rules_csv,
@@ -26,7 +29,7 @@ from beamaudit.api.review.examtypes import (
     write_rules_csv,
 )
 
-CATALOGUE_HEADER = ",".join(CATALOGUE_COLUMNS)
+CATALOGUE_HEADER = ",".join(CATALOGUE_COLUMNS[:8])  # files written before paediatric_bands
 
 
 def raw(**fields: object) -> dict[str, object]:
@@ -400,3 +403,57 @@ def test_unmapped_summary_takes_a_mapping_result_and_is_empty_when_all_map() -> 
     summary = unmapped_summary(events, mapped)
     assert len(summary) == 0
     assert "n_events" in summary.columns
+
+
+# ----------------------------------------------------------------------- clinical indications
+def test_a_rule_sets_the_clinical_indication_with_the_exam_type() -> None:
+    rules = rules_from(
+        "priority,exam_type,clinical_indication,any_description\n"
+        "10,ct_head,acute_stroke,re:\\bstroke\\b\n"
+        "20,ct_head,,re:\\bhead\\b\n"
+    )
+    events = pd.DataFrame(
+        [raw(study_description="CT HEAD STROKE"), raw(study_description="CT HEAD"), raw()]
+    )
+    mapped = map_events_with_indication(events, rules)
+    assert mapped["exam_type"].tolist() == ["ct_head", "ct_head", None]
+    assert mapped["clinical_indication"].tolist() == ["acute_stroke", None, None]
+    assert map_events(events, rules).tolist() == ["ct_head", "ct_head", None]  # unchanged
+
+
+def test_shipped_rules_set_the_stroke_indication_of_a_head_ct() -> None:
+    events = pd.DataFrame(
+        [
+            raw(modality="CT", study_description="CT Head - Stroke protocol"),
+            raw(modality="CT", protocol_name="BRAIN ROUTINE"),
+        ]
+    )
+    mapped = map_events_with_indication(events, load_default_rules())
+    assert mapped["exam_type"].tolist() == ["ct_head", "ct_head"]
+    assert mapped["clinical_indication"].tolist() == ["acute_stroke", None]
+
+
+def test_rule_indications_round_trip_and_are_checked() -> None:
+    rules = load_default_rules()
+    again = read_rules_csv(io.StringIO(write_rules_csv(rules) or ""))
+    assert [r.clinical_indication for r in again.rules] == [
+        r.clinical_indication for r in rules.rules
+    ]
+    with pytest.raises(CsvFormatError, match="line 2: clinical_indication 'Acute stroke'"):
+        rules_from("priority,exam_type,clinical_indication,modality\n10,ct_head,Acute stroke,CT\n")
+
+
+def test_catalogue_paediatric_bands_are_checked() -> None:
+    header = ",".join(CATALOGUE_COLUMNS)
+    text = f"{header}\nchest_pa,Chest PA,radiography,DX,projection,dap_gy_cm2,,,height\n"
+    with pytest.raises(CsvFormatError, match="paediatric_bands must be"):
+        read_catalogue_csv(io.StringIO(text))
+
+
+def test_a_catalogue_without_bands_keeps_its_fingerprint_without_the_column() -> None:
+    text = f"{CATALOGUE_HEADER}\nchest_pa,Chest PA,radiography,DX,projection,dap_gy_cm2,,\n"
+    catalogue = read_catalogue_csv(io.StringIO(text))
+    legacy = write_table(
+        None, columns=CATALOGUE_COLUMNS[:8], rows=[catalogue.to_frame().iloc[0].to_dict()]
+    )
+    assert catalogue.fingerprint() == hashlib.sha256((legacy or "").encode()).hexdigest()

@@ -281,3 +281,71 @@ def test_versions_and_order_of_a_file() -> None:
     sets = read(row(version="1"), row(version="2", effective_from="2026-01-01", value="0.09"))
     assert [(s.version, s.entries[0].value) for s in sets] == [("1", 0.1), ("2", 0.09)]
     assert applicable_levels(sets, "chest_pa", "dap_gy_cm2", date(2026, 1, 2))[0].value == 0.09
+
+
+# ----------------------------------------------------------- patient groups and indications
+QUALIFIED = HEADER + ",patient_group,clinical_indication"
+
+
+def qualified(group: str = "", indication: str = "", **cells: str) -> str:
+    return row(**cells) + f",{group},{indication}"
+
+
+def read_qualified(*rows: str) -> list[ReferenceLevelSet]:
+    return read_levels_csv(io.StringIO(QUALIFIED + "\n" + "\n".join(rows) + "\n"))
+
+
+def test_levels_for_a_paediatric_band_and_an_indication() -> None:
+    (s,) = read_qualified(
+        qualified(exam_type="ct_head", quantity="dlp_mgy_cm", value="900", unit="mGy.cm"),
+        qualified(
+            "", "acute_stroke", exam_type="ct_head", quantity="dlp_mgy_cm", value="800",
+            unit="mGy.cm",
+        ),
+        qualified("age_1_6y", exam_type="ct_head", quantity="dlp_mgy_cm", value="400",
+                  unit="mGy.cm"),
+    )  # fmt: skip
+    get = s.get
+    assert get("ct_head", "dlp_mgy_cm").value == 900  # type: ignore[union-attr]
+    assert get("ct_head", "dlp_mgy_cm", "", "acute_stroke").value == 800  # type: ignore[union-attr]
+    assert get("ct_head", "dlp_mgy_cm", "", "trauma").value == 900  # type: ignore[union-attr]
+    assert get("ct_head", "dlp_mgy_cm", "age_1_6y").value == 400  # type: ignore[union-attr]
+    assert get("ct_head", "dlp_mgy_cm", "age_6y_up") is None  # an adult level is not a child's
+    applied = applicable_levels([s], "ct_head", "dlp_mgy_cm", date(2025, 3, 1),
+                                patient_group="age_1_6y")  # fmt: skip
+    assert [a.value for a in applied] == [400]
+    table = levels_table([s], date(2025, 3, 1))
+    assert table["patient_group"].tolist() == ["", "", "age_1_6y"]
+    assert table["clinical_indication"].tolist() == ["", "acute_stroke", ""]
+
+
+def test_qualified_levels_round_trip_and_plain_files_keep_their_layout() -> None:
+    sets = read_qualified(qualified("weight_15_30kg", exam_type="chest_pa", value="0.05"))
+    text = write_levels_csv(sets) or ""
+    assert text.splitlines()[0] == QUALIFIED
+    assert read_levels_csv(io.StringIO(text))[0].entries == sets[0].entries
+    plain = write_levels_csv(load_demo_local_levels()) or ""
+    header = next(line for line in plain.splitlines() if not line.startswith("#"))
+    assert header == HEADER
+
+
+@pytest.mark.parametrize(
+    ("line", "message"),
+    [
+        (qualified("weight_15_30"), "patient_group 'weight_15_30' is not a band"),
+        (qualified("", "Acute Stroke"), "clinical_indication 'Acute Stroke' must be lower-case"),
+    ],
+)
+def test_bad_groups_and_indications_are_refused(line: str, message: str) -> None:
+    with pytest.raises(CsvFormatError, match=f"line 2: {message}"):
+        read_qualified(line)
+
+
+def test_a_band_and_an_indication_do_not_clash_with_the_plain_level() -> None:
+    band = "weight_15_30kg"
+    sets = read_qualified(
+        qualified(), qualified(band), qualified("", "pneumonia"), qualified(band, "pneumonia")
+    )
+    assert len(sets[0].entries) == 4
+    with pytest.raises(CsvFormatError, match=r"\(patient group weight_15_30kg\) already given"):
+        read_qualified(qualified("weight_15_30kg"), qualified("weight_15_30kg"))

@@ -12,10 +12,14 @@ from scipy import stats as sps
 from beamaudit.api.review.errors import ReviewError
 from beamaudit.api.review.stats import (
     DEFAULT_MINIMUM_SAMPLES,
+    PREFERRED_SAMPLES,
     classify_status,
     group_statistics,
     median_ci,
     median_ci_ranks,
+    quantile_ci,
+    quantile_ci_ranks,
+    sample_checks,
 )
 
 
@@ -199,3 +203,55 @@ def test_group_order_is_numpy_lexsort(n_groups: int) -> None:
     codes = rng.integers(0, n_groups, 20_000)
     values = np.round(rng.lognormal(0.0, 1.0, 20_000), 1)  # rounded: many ties
     assert np.array_equal(_group_order(codes, values, n_groups), np.lexsort((values, codes)))
+
+
+# ------------------------------------------------------------------------ any quantile's interval
+@pytest.mark.parametrize("n", range(0, 120))
+def test_quantile_ranks_at_one_half_are_the_median_ranks(n: int) -> None:
+    r, s, coverage = median_ci_ranks(n)
+    qr, qs, qcoverage = quantile_ci_ranks(n, 0.5)
+    assert (int(qr[0]), int(qs[0])) == (int(r[0]), int(s[0]))
+    if r[0]:
+        assert float(qcoverage[0]) == pytest.approx(float(coverage[0]), rel=1e-12)
+
+
+@pytest.mark.parametrize("p", [0.25, 0.75, 0.9])
+@pytest.mark.parametrize("n", [1, 3, 5, 8, 10, 11, 12, 15, 20, 30, 50])
+def test_quantile_interval_matches_scipy_quantile_test(p: float, n: int) -> None:
+    # scipy.stats.quantile_test(x, p=p).confidence_interval: the order-statistic interval of the
+    # p-quantile, NaN for a bound that no rank reaches
+    rng = np.random.default_rng(n)
+    x = rng.lognormal(0.0, 0.5, n)
+    ours = quantile_ci(x, p)
+    theirs = sps.quantile_test(x, p=p).confidence_interval(confidence_level=0.95)
+    for a, b in ((ours.low, theirs.low), (ours.high, theirs.high)):
+        assert (math.isnan(a) and math.isnan(b)) or a == b
+    assert ours.value == pytest.approx(np.quantile(x, p))
+
+
+def test_third_quartile_of_ten_values_by_hand() -> None:
+    # B ~ Binomial(10, 0.75): P(B <= 4) = 0.0197 <= 0.025 < P(B <= 5) = 0.0781, so the lower
+    # bound is x_(5); P(B = 10) = 0.75^10 = 0.0563 > 0.025, so no upper rank reaches 97.5 % and
+    # the interval [x_(5), inf) is one-sided, with coverage 1 - 0.0197 = 0.9803.
+    x = [float(v) for v in range(1, 11)]
+    ci = quantile_ci(x, 0.75)
+    assert ci.value == pytest.approx(7.75)  # Hyndman & Fan 7: x_(7) + 0.75 (x_(8) - x_(7))
+    assert (ci.rank_low, ci.rank_high, ci.low) == (5, 0, 5.0)
+    assert math.isnan(ci.high)
+    assert ci.coverage == pytest.approx(1 - sps.binom.cdf(4, 10, 0.75))
+    assert ci.coverage == pytest.approx(0.9803, abs=5e-5)
+
+
+def test_quantile_interval_refuses_bad_arguments() -> None:
+    with pytest.raises(ReviewError, match="quantile p"):
+        quantile_ci_ranks(10, 1.0)
+    with pytest.raises(ReviewError, match="confidence_level"):
+        quantile_ci_ranks(10, 0.75, confidence_level=1.5)
+
+
+def test_icrp_135_sample_checks() -> None:
+    # ICRP 135: at least 20, preferably 30 patients per room for radiography (from memory, medium)
+    checks = sample_checks(np.array([19, 20, 29, 30]), np.full(4, 20), np.full(4, 30))
+    assert checks.tolist() == ["below_minimum", "below_preferred", "below_preferred", "ok"]
+    assert PREFERRED_SAMPLES["radiography"] == 30 and PREFERRED_SAMPLES["mammography"] == 50
+    assert all(PREFERRED_SAMPLES[g] >= DEFAULT_MINIMUM_SAMPLES[g] for g in PREFERRED_SAMPLES)

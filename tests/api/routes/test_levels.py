@@ -167,3 +167,22 @@ def test_unknown_set_is_404_and_viewer_is_403(api) -> None:
     assert api.get("/level-sets/424242").status_code == 404
     assert api.post("/level-sets/424242/retire").status_code == 404
     assert api.get("/level-sets", as_="viewer").status_code == 403
+
+
+def test_levels_for_a_band_or_an_indication_are_refused_whole_not_stored_as_adult(
+    api, catalogue
+) -> None:
+    # the store keeps no patient group or indication yet: storing such a level without them would
+    # apply a child's level to adults, so the file is refused with the reason and nothing is kept
+    text = (
+        "set_name,kind,version,effective_from,set_source,exam_type,quantity,value,unit,source,"
+        "note,patient_group,clinical_indication\n"
+        "Paed (invented),local,1,2026-01-01,tests,chest_pa,dap_gy_cm2,0.1,Gy.cm2,,,,\n"
+        "Paed (invented),local,1,2026-01-01,tests,chest_pa,dap_gy_cm2,0.02,Gy.cm2,,,"
+        "weight_15_30kg,\n"
+    )
+    response = api.post("/level-sets.csv", content=text.encode(), headers=CSV, as_="physicist")
+    assert response.status_code == 422
+    assert "cannot keep levels for a patient group" in response.text
+    assert "patient group weight_15_30kg" in response.text
+    assert api.get("/level-sets").json() == []
