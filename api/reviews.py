@@ -49,6 +49,7 @@ from sqlalchemy.orm import Session, sessionmaker
 
 from beamaudit import __version__
 from beamaudit.api.auth import record_change
+from beamaudit.api.findings import store_flags
 from beamaudit.api.review import (
     ExamCatalogue,
     MappingRules,
@@ -66,6 +67,7 @@ from beamaudit.api.routes._review_rows import (
     level_sets_from_store,
     rules_from_store,
 )
+from beamaudit.api.runs import NoEventsError, UnknownNameError, scope_of, this_process
 from beamaudit.api.store import models as m
 from beamaudit.api.store.base import utcnow
 from beamaudit.api.store.engine import SQLITE_BUSY_TIMEOUT_MS
@@ -875,6 +877,44 @@ def _study_uids_in_flags(session: Session, flags: list[dict[str, Any]]) -> None:
             c["study_uid"] = uids.get(int(value), value)
 
 
+def _check_scope(session: Session, params: ReviewParameters) -> dict[str, Any]:
+    """The scope's names checked against the store (:class:`UnknownNameError` for one it does
+    not know); the events' conditions the scope adds (on the room, device and exam type ids)."""
+    rooms, devices = _names(session)
+    catalogue, _ = ensure_catalogue(session)
+    known = {
+        "sites": ("site", {site for _, site in rooms.values()}),
+        "rooms": ("room", {name for name, _ in rooms.values()}),
+        "devices": ("device", set(devices.values())),
+        "exam_types": ("exam type", {t.exam_type for t in catalogue.types}),
+    }
+    for key, (what, names) in known.items():
+        for name in getattr(params, key) or ():
+            if name not in names:
+                raise UnknownNameError(what, name, sorted(names))
+    E = m.ExposureEventRow
+    conditions: dict[str, Any] = {}
+    if params.sites:
+        conditions["sites"] = E.room_id.in_([i for i, (_, s) in rooms.items() if s in params.sites])
+    if params.rooms:
+        conditions["rooms"] = E.room_id.in_([i for i, (r, _) in rooms.items() if r in params.rooms])
+    if params.devices:
+        conditions["devices"] = E.device_id.in_(
+            [i for i, d in devices.items() if d in params.devices]
+        )
+    if params.exam_types:
+        conditions["exam_types"] = E.exam_type.in_(list(params.exam_types))
+    return conditions
+
+
+def _has_events(session: Session, params: ReviewParameters, scope: dict[str, Any]) -> bool:
+    """Whether the period holds at least one event in the scope."""
+    conditions, _, _ = _period_conditions(session, start=params.period.start, end=params.period.end)
+    stmt = select(m.ExposureEventRow.id).where(*conditions, *scope.values()).limit(1)
+    bounds = {"t0": _as_utc(params.period.start), "t1": _as_utc(params.period.end)}  # typed
+    return session.execute(stmt, bounds).first() is not None
+
+
 def run_review(
     sessions: sessionmaker[Session],
     params: ReviewParameters,
@@ -882,22 +922,47 @@ def run_review(
     kind: str = "monthly",
     actor: str = "cli",
 ) -> int:
-    """Run and store a review; returns the :class:`ReviewRun` id (status ``done`` or ``failed``)."""
+    """Run and store a review; returns the :class:`ReviewRun` id (status ``done`` or ``failed``).
+
+    The run keeps its scope (the filters of ``params``) and the process running it; its flags are
+    stored as occurrences of their findings (:func:`beamaudit.api.findings.store_flags`).
+
+    Raises
+    ------
+    UnknownNameError
+        The scope names a room, site, device or exam type the store does not know.
+    NoEventsError
+        The period holds no event in the scope. Neither stores anything.
+    """
     from beamaudit.api.review import ReviewError
 
     with sessions.begin() as session:
+        scope = _check_scope(session, params)
+        if not _has_events(session, params, scope):
+            where = "; ".join(
+                f"{k.replace('_', ' ')} {', '.join(getattr(params, k))}" for k in scope
+            )
+            raise NoEventsError(
+                f"no events in {params.period.label} ({where or 'whole site'}): no review stored"
+            )
+        parameters = params.to_json_dict()
         run = m.ReviewRun(
             kind=kind,
             period=params.period.label,
-            parameters=params.to_json_dict(),
+            period_start=params.period.start,
+            period_end=params.period.end,
+            scope=scope_of(parameters),
+            whole_site=not scope_of(parameters),
+            parameters=parameters,
             software_version=__version__,
             status="running",
+            runner=this_process(),
         )
         session.add(run)
         session.flush()
         run_id = run.id
         record_change(session, actor=actor, action="start", entity="review_run", entity_id=run_id,
-                      after={"kind": kind, "period": run.period})  # fmt: skip
+                      after={"kind": kind, "period": run.period, "scope": run.scope})  # fmt: skip
     try:
         with sessions.begin() as session:
             result, used = execute_review(session, params)
@@ -909,28 +974,27 @@ def run_review(
             done.result = body
             done.status = "done"
             done.finished_at = utcnow()
-            for flag in body["flags"]:
-                where = flag.get("concerns") or {}
-                session.add(
-                    m.FlagRow(
-                        review_run_id=run_id,
-                        kind=flag["kind"],
-                        severity=flag.get("severity") or "info",
-                        reason=flag["reason"],
-                        numbers=flag.get("numbers") or {},
-                        event_id=where.get("event_id"),
-                        study_instance_uid=where.get("study_uid"),
-                        room=where.get("room"),
-                        exam_type=where.get("exam_type"),
-                    )
-                )
-    except ReviewError as exc:
+            counts = store_flags(session, done, body["flags"])
+            record_change(
+                session, actor=actor, action="finish", entity="review_run", entity_id=run_id,
+                after={"status": "done", "n_events": body["n_events"],
+                       "findings": counts.as_dict()},
+            )  # fmt: skip
+    except Exception as exc:  # recorded on the run, never left 'running'; only ReviewError is ours
         with sessions.begin() as session:
             failed = session.get(m.ReviewRun, run_id)
             assert failed is not None
             failed.status = "failed"
-            failed.error = str(exc)
+            failed.error = (
+                str(exc) if isinstance(exc, ReviewError) else f"{type(exc).__name__}: {exc}"
+            )
             failed.finished_at = utcnow()
+            record_change(
+                session, actor=actor, action="fail", entity="review_run", entity_id=run_id,
+                after={"status": "failed", "error": failed.error},
+            )  # fmt: skip
+        if not isinstance(exc, ReviewError):
+            raise
     return run_id
 
 

@@ -18,13 +18,15 @@ import os
 import signal
 import subprocess
 import sys
+import time
 from pathlib import Path
+from typing import Any
 
 import httpx
 import pytest
 from corpus import dx_header, encode
 from peers import free_port, wait_for_http
-from procs import SharedStore, beamaudit_process, shared_store
+from procs import SharedStore, beamaudit_process, shared_store, start_beamaudit
 from sqlalchemy import select
 
 from beamaudit.api.auth import create_token
@@ -129,7 +131,7 @@ def test_writes_after_distributions_and_a_command_line_write_reach_the_disk(
                 path = f"/api/v1/reviews/{seeded['run_id']}/flags/{seeded['flag_id']}"
                 changed = client.patch(
                     path,
-                    json={"status": "acknowledged"},
+                    json={"status": "acknowledged", "note": "known protocol; mapping on its way"},
                     headers=_bearer(physicist),
                 )
                 assert changed.status_code == 200, changed.text
@@ -144,11 +146,14 @@ def test_writes_after_distributions_and_a_command_line_write_reach_the_disk(
         with store.sessions() as session:
             flag = session.get(m.FlagRow, seeded["flag_id"])
             assert flag is not None
-            assert flag.status == "acknowledged"
+            assert (flag.finding.status, flag.finding.note) == (
+                "acknowledged",
+                "known protocol; mapping on its way",
+            )
             audited = session.scalars(
                 select(m.AuditLogEntry).where(
-                    m.AuditLogEntry.entity == "flag",
-                    m.AuditLogEntry.entity_id == str(seeded["flag_id"]),
+                    m.AuditLogEntry.entity == "finding",
+                    m.AuditLogEntry.entity_id == str(flag.finding_id),
                 )
             ).all()
             assert [e.after["status"] for e in audited if e.after] == ["acknowledged"]
@@ -189,3 +194,105 @@ def test_tokens_made_and_revoked_on_the_command_line_count_at_once_on_a_running_
                     == 303
                 )
             _stop(server)
+
+
+def _hold_the_run(store: SharedStore, run_id: int) -> Any:
+    """A connection of this process holding what the review must write last: on SQLite the
+    database's write lock, on PostgreSQL the run's row. Returns the connection (roll it back)."""
+    if store.backend == "sqlite":
+        import sqlite3
+
+        path = store.url.removeprefix("sqlite:///")
+        held = sqlite3.connect(path, isolation_level=None, timeout=30)
+        held.execute("BEGIN IMMEDIATE")
+        return held
+    held = store.engine.raw_connection()
+    cursor = held.cursor()
+    cursor.execute("SELECT id FROM review_runs WHERE id = %s FOR UPDATE", (run_id,))
+    return held
+
+
+def _status(store: SharedStore, run_id: int, held: Any = None) -> tuple[str, str | None]:
+    if held is not None and store.backend == "sqlite":  # inside the held transaction
+        row = held.execute("SELECT status, error FROM review_runs WHERE id = ?", (run_id,))
+        return tuple(row.fetchone())  # type: ignore[return-value]
+    with store.sessions() as session:
+        run = session.get(m.ReviewRun, run_id)
+        assert run is not None
+        return run.status, run.error
+
+
+def _kill_a_running_review(store: SharedStore, tmp_path: Path) -> int:
+    """Start ``beamaudit review``, catch it between its start and its result, SIGKILL it.
+
+    The review stores its run as ``running`` first; this process then takes what the review
+    must write last, so the review waits there, and is killed waiting. Returns the run's id.
+    """
+    for attempt in range(5):
+        with store.sessions() as session:
+            known = set(session.scalars(select(m.ReviewRun.id)))
+        log = tmp_path / f"review-{attempt}.log"
+        review = start_beamaudit(["review", "--month", MONTH], store, log)
+        run_id = None
+        deadline = time.monotonic() + 120
+        while run_id is None and time.monotonic() < deadline and review.poll() is None:
+            with store.sessions() as session:
+                new = set(session.scalars(select(m.ReviewRun.id))) - known
+            run_id = min(new) if new else None
+            time.sleep(0.002)
+        assert run_id is not None or review.returncode == 0, log.read_text()
+        if run_id is None:
+            continue  # it finished between two looks: try again
+        store.engine.dispose()
+        held = _hold_the_run(store, run_id)
+        try:
+            if _status(store, run_id, held)[0] != "running":
+                review.wait(timeout=60)
+                continue  # finished before the hold: try again
+            time.sleep(0.5)  # the review reads, then waits for what is held
+            os.kill(review.pid, signal.SIGKILL)
+            review.wait(timeout=60)
+        finally:
+            held.rollback()
+            held.close()
+        return run_id
+    pytest.fail("the review always finished before it could be held")
+
+
+@pytest.mark.slow
+@pytest.mark.parametrize("backend", BACKENDS)
+def test_a_review_killed_mid_way_is_marked_failed_when_the_service_next_starts(
+    backend: str, tmp_path: Path
+) -> None:
+    from beamaudit.api.runs import this_process
+
+    with shared_store(backend, tmp_path) as store:
+        _export(tmp_path / "first", [f"first-{i}" for i in range(24)] + ["first-odd"])
+        _cli(store, "scan", str(tmp_path / "first"))
+        # a run of a process still alive (this one) must be left alone
+        with store.sessions.begin() as session:
+            alive = m.ReviewRun(kind="monthly", period=MONTH, software_version="test",
+                                status="running", runner=this_process())  # fmt: skip
+            session.add(alive)
+            session.flush()
+            alive_id = alive.id
+        killed = _kill_a_running_review(store, tmp_path)
+        assert _status(store, killed) == ("running", None)  # what the kill left
+        port = free_port()
+        serve = ["serve", "--host", "127.0.0.1", "--port", str(port)]
+        with beamaudit_process(serve, store, tmp_path / "serve.log") as server:
+            assert wait_for_http(f"http://127.0.0.1:{port}/api/v1/health", timeout_s=60)
+            _stop(server)
+        status, error = _status(store, killed)
+        assert status == "failed"
+        assert error is not None and "did not finish" in error and "serve" in error
+        assert _status(store, alive_id) == ("running", None)
+        with store.sessions() as session:
+            entries = session.scalars(
+                select(m.AuditLogEntry).where(
+                    m.AuditLogEntry.entity == "review_run",
+                    m.AuditLogEntry.entity_id == str(killed),
+                    m.AuditLogEntry.action == "fail",
+                )
+            ).all()
+        assert len(entries) == 1
