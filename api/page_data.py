@@ -72,6 +72,10 @@ def period_runs(session: Session, period: str) -> list[dict[str, Any]]:
             state = f"superseded: {run.supersede_reason or ''}".rstrip(": ")
         elif record is not None and run.id == record.id:
             state = "the record of the month"
+        elif run.status == "done" and run.whole_site and run.period == period:
+            state = "done; a later review of the month is the record"
+        elif run.status == "failed":
+            state = f"failed: {run.error or ''}".rstrip(": ")
         else:
             state = run.status
         out.append(

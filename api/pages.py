@@ -105,13 +105,24 @@ async def http_error_handler(request: Request, exc: Exception) -> Response:
     return error_page(exc.status_code, message, getattr(exc, "headers", None))
 
 
+#: what a page's parameter must be, in words, for the 400 page
+_EXPECTED = {
+    "period": "a month written YYYY-MM (such as 2026-11)",
+    "status": "open, acknowledged or closed",
+    "scale": "log or linear",
+}
+
+
 def invalid_page(exc: Any) -> HTMLResponse:
     """400: the page's query or path parameters, what is wrong with each."""
     problems = []
     for error in exc.errors():
         where = ".".join(str(x) for x in error.get("loc", ())[1:]) or "the request"
-        problems.append(f"{where}: {error.get('msg', 'not valid')}")
-    return error_page(400, "Parameters not understood: " + "; ".join(problems) + ".")
+        if where in _EXPECTED and error.get("type") == "string_pattern_mismatch":
+            problems.append(f"{where} must be {_EXPECTED[where]}, not {error.get('input')!r}")
+        else:
+            problems.append(f"{where}: {error.get('msg', 'not valid')}")
+    return error_page(400, "This page cannot be shown: " + "; ".join(problems) + ".")
 
 
 def dashboard_error_handler(request: Request, exc: Exception) -> Response:

@@ -67,7 +67,13 @@ from beamaudit.api.routes._review_rows import (
     level_sets_from_store,
     rules_from_store,
 )
-from beamaudit.api.runs import NoEventsError, UnknownNameError, scope_of, this_process
+from beamaudit.api.runs import (
+    NoEventsError,
+    UnknownNameError,
+    scope_of,
+    scope_words,
+    this_process,
+)
 from beamaudit.api.store import models as m
 from beamaudit.api.store.base import utcnow
 from beamaudit.api.store.engine import SQLITE_BUSY_TIMEOUT_MS
@@ -938,14 +944,10 @@ def run_review(
 
     with sessions.begin() as session:
         scope = _check_scope(session, params)
-        if not _has_events(session, params, scope):
-            where = "; ".join(
-                f"{k.replace('_', ' ')} {', '.join(getattr(params, k))}" for k in scope
-            )
-            raise NoEventsError(
-                f"no events in {params.period.label} ({where or 'whole site'}): no review stored"
-            )
         parameters = params.to_json_dict()
+        if not _has_events(session, params, scope):
+            where = scope_words(scope_of(parameters))
+            raise NoEventsError(f"no events in {params.period.label} ({where}): no review stored")
         run = m.ReviewRun(
             kind=kind,
             period=params.period.label,

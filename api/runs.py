@@ -49,6 +49,7 @@ __all__ = [
     "record_run_ids",
     "scope_of",
     "scope_text",
+    "scope_words",
     "supersede_run",
     "this_process",
 ]
@@ -99,15 +100,20 @@ def scope_of(parameters: Mapping[str, Any]) -> dict[str, list[str]]:
     return {k: list(parameters[k]) for k in SCOPE_KEYS if parameters.get(k)}
 
 
+def scope_words(scope: Mapping[str, Sequence[str]]) -> str:
+    """Scope filters in words: ``room RAD A; exam types chest_pa, chest_lat``, or ``whole site``."""
+    parts = []
+    for key, (one, many) in SCOPE_KEYS.items():
+        values = scope.get(key) or []
+        if values:
+            parts.append(f"{one if len(values) == 1 else many} {', '.join(values)}")
+    return "; ".join(parts) or "whole site"
+
+
 def scope_text(run: m.ReviewRun) -> str:
     """The run's scope in words: ``whole site, 2026-11``, ``room RAD A, 2026-11``,
     ``whole site, 2026-08-01 to 2026-10-31``."""
-    parts = []
-    for key, (one, many) in SCOPE_KEYS.items():
-        values = (run.scope or {}).get(key) or []
-        if values:
-            parts.append(f"{one if len(values) == 1 else many} {', '.join(values)}")
-    where = "; ".join(parts) or "whole site"
+    where = scope_words(run.scope or {})
     period = run.period or ""
     if "/" in period and run.period_start is not None and run.period_end is not None:
         last = run.period_end - timedelta(days=1)
