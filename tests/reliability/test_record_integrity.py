@@ -19,6 +19,8 @@ import signal
 import subprocess
 import sys
 import time
+from collections.abc import Iterator
+from contextlib import contextmanager
 from pathlib import Path
 from typing import Any
 
@@ -96,6 +98,23 @@ def _stop(process: subprocess.Popen[bytes]) -> None:
     process.wait(timeout=60)
 
 
+@contextmanager
+def _serving(
+    store: SharedStore, tmp_path: Path
+) -> Iterator[tuple[subprocess.Popen[bytes], httpx.Client]]:
+    """``beamaudit serve`` (a real uvicorn process) answering on a free port, and a client of it;
+    stopped gracefully when the block ends, if the block did not stop it."""
+    port = free_port()
+    base = f"http://127.0.0.1:{port}"
+    serve = ["serve", "--host", "127.0.0.1", "--port", str(port)]
+    with beamaudit_process(serve, store, tmp_path / "serve.log") as server:
+        assert wait_for_http(f"{base}/api/v1/health", timeout_s=60)
+        with httpx.Client(base_url=base, timeout=60) as client:
+            yield server, client
+        if server.poll() is None:
+            _stop(server)
+
+
 @pytest.mark.slow
 @pytest.mark.parametrize("backend", BACKENDS)
 def test_writes_after_distributions_and_a_command_line_write_reach_the_disk(
@@ -104,38 +123,31 @@ def test_writes_after_distributions_and_a_command_line_write_reach_the_disk(
     with shared_store(backend, tmp_path) as store:
         seeded = _seed(store, tmp_path)
         physicist = str(seeded["physicist"])
-        port = free_port()
-        base = f"http://127.0.0.1:{port}"
-        serve = ["serve", "--host", "127.0.0.1", "--port", str(port)]
-        with beamaudit_process(serve, store, tmp_path / "serve.log") as server:
-            assert wait_for_http(f"{base}/api/v1/health", timeout_s=60)
-            with httpx.Client(base_url=base, timeout=60) as client:
-                drawn = client.get("/distributions", headers=_bearer(physicist))
-                assert drawn.status_code == 200, drawn.text[:500]
-                # command-line writes in processes of their own, while the server runs
-                created = _cli(store, "token", "create", "--role", "viewer", "--name", "new")
-                new_token = created.stdout.strip().splitlines()[-1]
-                _cli(store, "token", "revoke", str(seeded["leaving_id"]))
-                _export(tmp_path / "second", [f"second-{i}" for i in range(5)])
-                _cli(store, "scan", str(tmp_path / "second"))
-                # the server sees each at once
-                assert client.get("/api/v1/reviews", headers=_bearer(new_token)).status_code == 200
-                revoked = client.get("/api/v1/reviews", headers=_bearer(str(seeded["leaving"])))
-                assert revoked.status_code == 401
-                events = client.get(
-                    "/api/v1/events", params={"limit": 500}, headers=_bearer(physicist)
-                )
-                assert events.status_code == 200
-                assert len(events.json()["items"]) == 25 + 5
-                # a flag acknowledged through the API
-                path = f"/api/v1/reviews/{seeded['run_id']}/flags/{seeded['flag_id']}"
-                changed = client.patch(
-                    path,
-                    json={"status": "acknowledged", "note": "known protocol; mapping on its way"},
-                    headers=_bearer(physicist),
-                )
-                assert changed.status_code == 200, changed.text
-                assert changed.json()["status"] == "acknowledged"
+        with _serving(store, tmp_path) as (server, client):
+            drawn = client.get("/distributions", headers=_bearer(physicist))
+            assert drawn.status_code == 200, drawn.text[:500]
+            # command-line writes in processes of their own, while the server runs
+            created = _cli(store, "token", "create", "--role", "viewer", "--name", "new")
+            new_token = created.stdout.strip().splitlines()[-1]
+            _cli(store, "token", "revoke", str(seeded["leaving_id"]))
+            _export(tmp_path / "second", [f"second-{i}" for i in range(5)])
+            _cli(store, "scan", str(tmp_path / "second"))
+            # the server sees each at once
+            assert client.get("/api/v1/reviews", headers=_bearer(new_token)).status_code == 200
+            revoked = client.get("/api/v1/reviews", headers=_bearer(str(seeded["leaving"])))
+            assert revoked.status_code == 401
+            events = client.get("/api/v1/events", params={"limit": 500}, headers=_bearer(physicist))
+            assert events.status_code == 200
+            assert len(events.json()["items"]) == 25 + 5
+            # a flag acknowledged through the API
+            path = f"/api/v1/reviews/{seeded['run_id']}/flags/{seeded['flag_id']}"
+            changed = client.patch(
+                path,
+                json={"status": "acknowledged", "note": "known protocol; mapping on its way"},
+                headers=_bearer(physicist),
+            )
+            assert changed.status_code == 200, changed.text
+            assert changed.json()["status"] == "acknowledged"
             _stop(server)
             log = (tmp_path / "serve.log").read_text()
             # uvicorn stops gracefully, then ends by the signal it was sent
@@ -176,23 +188,17 @@ def test_tokens_made_and_revoked_on_the_command_line_count_at_once_on_a_running_
 ) -> None:
     with shared_store(backend, tmp_path) as store:
         store.engine.dispose()
-        port = free_port()
-        base = f"http://127.0.0.1:{port}"
-        serve = ["serve", "--host", "127.0.0.1", "--port", str(port)]
-        with beamaudit_process(serve, store, tmp_path / "serve.log") as server:
-            assert wait_for_http(f"{base}/api/v1/health", timeout_s=60)
-            with httpx.Client(base_url=base, timeout=60) as client:
-                made = _cli(store, "token", "create", "--role", "viewer", "--name", "committee")
-                token = made.stdout.strip().splitlines()[-1]
-                token_id = made.stdout.split()[1]
-                assert client.get("/api/v1/reviews", headers=_bearer(token)).status_code == 200
-                client.get("/", headers=_bearer(token))  # a page drawn between the two
-                _cli(store, "token", "revoke", token_id)
-                assert client.get("/api/v1/reviews", headers=_bearer(token)).status_code == 401
-                assert (
-                    client.get("/", headers=_bearer(token), follow_redirects=False).status_code
-                    == 303
-                )
+        with _serving(store, tmp_path) as (server, client):
+            made = _cli(store, "token", "create", "--role", "viewer", "--name", "committee")
+            token = made.stdout.strip().splitlines()[-1]
+            token_id = made.stdout.split()[1]
+            assert client.get("/api/v1/reviews", headers=_bearer(token)).status_code == 200
+            client.get("/", headers=_bearer(token))  # a page drawn between the two
+            _cli(store, "token", "revoke", token_id)
+            assert client.get("/api/v1/reviews", headers=_bearer(token)).status_code == 401
+            assert (
+                client.get("/", headers=_bearer(token), follow_redirects=False).status_code == 303
+            )
             _stop(server)
 
 
@@ -278,10 +284,7 @@ def test_a_review_killed_mid_way_is_marked_failed_when_the_service_next_starts(
             alive_id = alive.id
         killed = _kill_a_running_review(store, tmp_path)
         assert _status(store, killed) == ("running", None)  # what the kill left
-        port = free_port()
-        serve = ["serve", "--host", "127.0.0.1", "--port", str(port)]
-        with beamaudit_process(serve, store, tmp_path / "serve.log") as server:
-            assert wait_for_http(f"http://127.0.0.1:{port}/api/v1/health", timeout_s=60)
+        with _serving(store, tmp_path) as (server, _):
             _stop(server)
         status, error = _status(store, killed)
         assert status == "failed"

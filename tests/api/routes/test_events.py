@@ -2,13 +2,12 @@
 
 from __future__ import annotations
 
-from datetime import date, datetime
+from datetime import datetime
 
 import pytest
-from api_support import parse_result, seed, validation_only
+from api_support import parse_result, seed, stored_run, validation_only
 from sqlalchemy import update
 
-from beamaudit.api.findings import store_flags
 from beamaudit.api.store import models as m
 
 
@@ -104,23 +103,13 @@ def test_room_site_and_device_filters(api, events) -> None:
 
 
 def test_flag_filter_finds_flagged_events(api, events) -> None:
-    with api.store.session_factory.begin() as s:
-        run = m.ReviewRun(
-            kind="monthly",
-            period="2026-11",
-            period_start=date(2026, 11, 1),
-            period_end=date(2026, 12, 1),
-            software_version="test",
-        )
-        s.add(run)
-        s.flush()
-        flag = {
-            "kind": "dap_ratio",
-            "severity": "warning",
-            "reason": "reported DAP 20 % above reconstruction",
-            "concerns": {"event_id": events[0]},
-        }
-        store_flags(s, run, [flag])
+    flag = {
+        "kind": "dap_ratio",
+        "severity": "warning",
+        "reason": "reported DAP 20 % above reconstruction",
+        "concerns": {"event_id": events[0]},
+    }
+    stored_run(api.store, [flag])
     body = api.get("/events", params={"flag": "dap_ratio"}).json()
     assert [e["id"] for e in body["items"]] == [events[0]]
     exams = api.get("/exams", params={"flag": "dap_ratio"}).json()["items"]

@@ -8,13 +8,11 @@ from __future__ import annotations
 
 import csv
 import io
-from datetime import date, datetime
+from datetime import datetime
 
 import pytest
-from api_support import parse_result, seed
+from api_support import parse_result, seed, stored_run
 from openpyxl import load_workbook
-
-from beamaudit.api.findings import store_flags
 
 LOCAL_LEVELS = {
     "name": "Hollowbrook local DRLs (invented)",
@@ -84,7 +82,6 @@ def test_result_as_csv_and_xlsx(api, november) -> None:
 
 
 def test_viewer_sees_no_study_uids_or_event_ids(api) -> None:
-    from beamaudit.api.store import models as m
 
     # a stored run whose result and flags name an exam (as the core's exam-level flags do)
     concerns = {"event_id": 7, "study_uid": "1.2.7.300", "room": "RAD1", "exam_type": "chest_pa"}
@@ -95,21 +92,13 @@ def test_viewer_sees_no_study_uids_or_event_ids(api) -> None:
         "numbers": {"dap_gy_cm2": 0.41},
         "concerns": concerns,
     }
-    with api.store.session_factory.begin() as s:
-        run = m.ReviewRun(
-            kind="monthly",
-            period="2026-11",
-            period_start=date(2026, 11, 1),
-            period_end=date(2026, 12, 1),
-            software_version="test",
-            status="done",
-            result={"n_events": 30, "groups": [], "flags": [flag], "unmapped": []},
-        )
-        s.add(run)
-        s.flush()
-        stored = {k: v for k, v in concerns.items() if k != "event_id"}  # no such event stored
-        store_flags(s, run, [{**flag, "concerns": stored}])
-        run_id = run.id
+    stored = {k: v for k, v in concerns.items() if k != "event_id"}  # no such event stored
+    run_id = stored_run(
+        api.store,
+        [{**flag, "concerns": stored}],
+        status="done",
+        result={"n_events": 30, "groups": [], "flags": [flag], "unmapped": []},
+    )
     physicist = api.get(f"/reviews/{run_id}/result", as_="physicist").json()
     assert physicist["flags"][0]["concerns"]["study_uid"] == "1.2.7.300"
     viewer = api.get(f"/reviews/{run_id}/result", as_="viewer").json()
