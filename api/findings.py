@@ -163,6 +163,27 @@ def _previous_flags(session: Session, finding_ids: Sequence[int]) -> dict[int, m
     return out
 
 
+def _add_findings(session: Session, period: str, fresh: Mapping[str, tuple[str, Any]]) -> None:
+    """Insert the findings of ``fresh`` (key -> kind, subject) as ``open``; a key another
+    transaction inserted meanwhile (a review of the same month at the same time) is kept as it is,
+    so both runs' flags are occurrences of the one finding."""
+    from sqlalchemy.dialects import postgresql, sqlite
+
+    dialect = session.get_bind().dialect.name
+    insert = postgresql.insert if dialect == "postgresql" else sqlite.insert
+    rows = [
+        {"key": key, "kind": kind, "period": period, "subject": subject, "status": "open",
+         "created_at": utcnow()}
+        for key, (kind, subject) in fresh.items()
+    ]  # fmt: skip
+    for first in range(0, len(rows), _CHUNK):
+        session.execute(
+            insert(m.Finding)
+            .values(rows[first : first + _CHUNK])
+            .on_conflict_do_nothing(index_elements=["key"])
+        )
+
+
 def store_flags(
     session: Session, run: m.ReviewRun, flags: Sequence[Mapping[str, Any]]
 ) -> FindingCounts:
@@ -178,29 +199,28 @@ def store_flags(
         subject = finding_subject(flag["kind"], concerns, numbers)
         keyed.append((finding_key(flag["kind"], period, subject), subject, flag))
     found = _existing(session, sorted({k for k, _, _ in keyed}))
+    known = set(found)
     previous = _previous_flags(session, [f.id for f in found.values()])
+    fresh = {key: (flag["kind"], subject) for key, subject, flag in keyed if key not in known}
+    if fresh:
+        _add_findings(session, period, fresh)
+        found.update(_existing(session, sorted(fresh)))
     new = again = changed = 0
-    for key, subject, flag in keyed:
-        finding = found.get(key)
+    for key, _, flag in keyed:
+        finding = found[key]
         numbers = dict(flag.get("numbers") or {})
         severity = flag.get("severity") or "info"
-        changes: dict[str, Any] | None = None
-        if finding is None:
-            finding = m.Finding(key=key, kind=flag["kind"], period=period, subject=subject,
-                                status="open")  # fmt: skip
-            session.add(finding)
-            session.flush()
-            found[key] = finding
+        before = previous.get(finding.id)
+        changes: dict[str, Any] | None
+        if before is not None:
+            changes = number_changes(
+                before.numbers or {}, numbers, severity=(before.severity, severity)
+            )
+        else:  # found for the first time (or its earlier runs were deleted: nothing to compare)
+            changes = None if key not in known else {}
+        if changes is None:
             new += 1
         else:
-            before = previous.get(finding.id)
-            changes = (
-                {}
-                if before is None
-                else number_changes(
-                    before.numbers or {}, numbers, severity=(before.severity, severity)
-                )
-            )
             again += 1
             changed += bool(changes)
         where = flag.get("concerns") or {}
