@@ -10,7 +10,7 @@ from typing import Any
 
 from fastapi import FastAPI, Request
 from fastapi.exceptions import RequestValidationError
-from fastapi.responses import JSONResponse
+from fastapi.responses import JSONResponse, Response
 from sqlalchemy.engine import Engine
 from sqlalchemy.exc import OperationalError
 
@@ -39,7 +39,7 @@ async def _unexpected_error(request: Request, exc: Exception) -> JSONResponse:
     )
 
 
-async def _invalid_request(request: Request, exc: Exception) -> JSONResponse:
+async def _invalid_request(request: Request, exc: Exception) -> Response:
     """422 for a request that may be answered; who may not gets 401 or 403 first.
 
     FastAPI decodes a JSON body before the route's dependencies run, so a malformed body would
@@ -51,8 +51,11 @@ async def _invalid_request(request: Request, exc: Exception) -> JSONResponse:
 
     from beamaudit.api.auth import authenticate, has_role
     from beamaudit.api.deps import presented_token
+    from beamaudit.api.pages import invalid_page, is_page
     from beamaudit.api.routes._openapi import required_role
 
+    if is_page(request):  # a page's parameters: who may not see it was sent away before this
+        return invalid_page(exc)
     route = request.scope.get("route")
     role = required_role(route) if isinstance(route, APIRoute) else None
     if role is not None:
@@ -135,11 +138,21 @@ def create_app(settings: Settings, *, engine: Engine | None = None) -> FastAPI:
 
     app.include_router(api_router(), prefix=API_PREFIX)
     # -- dashboard pages
-    from beamaudit.api.pages import _LoginRedirect, login_redirect_handler
+    from starlette.exceptions import HTTPException as StarletteHTTPException
+
+    from beamaudit.api.pages import (
+        _LoginRedirect,
+        dashboard_error_handler,
+        http_error_handler,
+        login_redirect_handler,
+    )
     from beamaudit.api.pages import router as pages_router
+    from beamaudit.dashboards import DashboardError
 
     app.include_router(pages_router)
     app.add_exception_handler(_LoginRedirect, login_redirect_handler)
+    app.add_exception_handler(StarletteHTTPException, http_error_handler)  # pages: HTML
+    app.add_exception_handler(DashboardError, dashboard_error_handler)
     app.add_exception_handler(RequestValidationError, _invalid_request)
     app.add_exception_handler(OperationalError, _database_unavailable)
     app.add_exception_handler(Exception, _unexpected_error)

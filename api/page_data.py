@@ -15,13 +15,16 @@ from sqlalchemy import select
 from sqlalchemy.orm import Session
 
 from beamaudit.api.reconstruct import trail_for_event
+from beamaudit.api.runs import record_periods, record_run, record_run_ids, scope_text
 from beamaudit.api.store import models as m
 
 __all__ = [
+    "changes_text",
     "exam_record",
     "flags_table",
     "groups_table",
     "latest_run",
+    "period_runs",
     "periods",
     "room_history",
 ]
@@ -40,23 +43,52 @@ STATUS_REASON = {
 
 
 def periods(session: Session) -> list[str]:
-    """Periods with a finished monthly review, newest first."""
-    rows = session.scalars(
-        select(m.ReviewRun.period)
-        .where(m.ReviewRun.kind == "monthly", m.ReviewRun.status == "done")
-        .distinct()
-    ).all()
-    return sorted((p for p in rows if p), reverse=True)
+    """Periods with a record (a finished whole-site monthly review), newest first."""
+    return record_periods(session)
 
 
 def latest_run(session: Session, period: str | None) -> m.ReviewRun | None:
-    """The newest finished monthly run of ``period`` (default: of the newest period)."""
-    stmt = select(m.ReviewRun).where(m.ReviewRun.kind == "monthly", m.ReviewRun.status == "done")
-    if period:
-        stmt = stmt.where(m.ReviewRun.period == period)
-    else:
-        stmt = stmt.order_by(m.ReviewRun.period.desc())
-    return session.scalar(stmt.order_by(m.ReviewRun.id.desc()).limit(1))
+    """The record of ``period`` (default: of the newest period): its newest finished,
+    whole-site monthly run that is not superseded (:func:`beamaudit.api.runs.record_run`)."""
+    return record_run(session, period)
+
+
+def period_runs(session: Session, period: str) -> list[dict[str, Any]]:
+    """Every run that reviewed some of the calendar month ``period``, newest first: the record,
+    and beside it the runs of a room or exam type, date ranges, superseded and failed runs."""
+    from beamaudit.api.review import Period
+
+    month = Period.parse(period)
+    R = m.ReviewRun
+    runs = session.scalars(
+        select(R)
+        .where(R.period_start < month.end, R.period_end > month.start)
+        .order_by(R.id.desc())
+    ).all()
+    record = record_run(session, period)
+    out = []
+    for run in runs:
+        if run.superseded_at is not None:
+            state = f"superseded: {run.supersede_reason or ''}".rstrip(": ")
+        elif record is not None and run.id == record.id:
+            state = "the record of the month"
+        elif run.status == "done" and run.whole_site and run.period == period:
+            state = "done; a later review of the month is the record"
+        elif run.status == "failed":
+            state = f"failed: {run.error or ''}".rstrip(": ")
+        else:
+            state = run.status
+        out.append(
+            {
+                "id": run.id,
+                "kind": run.kind,
+                "scope": scope_text(run),
+                "state": state,
+                "started_at": run.started_at,
+                "record": record is not None and run.id == record.id,
+            }
+        )
+    return out
 
 
 def groups_table(run: m.ReviewRun) -> pd.DataFrame:
@@ -72,54 +104,67 @@ def groups_table(run: m.ReviewRun) -> pd.DataFrame:
     return frame
 
 
+FLAG_COLUMNS = ("flag_id", "kind", "severity", "reason", "room", "exam_type", "event_id",
+                "study_uid", "period", "status", "raised_at", "note", "changed")  # fmt: skip
+
+
 def flags_table(session: Session, run_ids: list[int] | None = None) -> pd.DataFrame:
-    """The FLAGS table of the given runs (default: every monthly run, newest run per period)."""
-    runs = session.scalars(
-        select(m.ReviewRun).where(m.ReviewRun.status == "done").order_by(m.ReviewRun.id)
-    ).all()
-    newest: dict[tuple[str, str | None], m.ReviewRun] = {}
-    for run in runs:
-        newest[(run.kind, run.period)] = run
-    wanted = run_ids or [r.id for (kind, _), r in newest.items() if kind == "monthly"]
-    period_of = {r.id: r.period for r in runs}
+    """The FLAGS table of the given runs (default: the record of every period), with each
+    flag's finding's triage and what changed since the finding's previous flag."""
+    wanted = run_ids if run_ids is not None else list(record_run_ids(session).values())
+    period_of: dict[int, str | None] = {
+        run_id: period
+        for run_id, period in session.execute(
+            select(m.ReviewRun.id, m.ReviewRun.period).where(m.ReviewRun.id.in_(wanted))
+        )
+    }
     rows = session.scalars(
         select(m.FlagRow).where(m.FlagRow.review_run_id.in_(wanted)).order_by(m.FlagRow.id)
     ).all()
-    return pd.DataFrame(
-        [
-            {
-                "flag_id": str(r.id),
-                "kind": r.kind,
-                "severity": r.severity,
-                "reason": r.reason,
-                "room": r.room,
-                "exam_type": r.exam_type,
-                "event_id": None if r.event_id is None else str(r.event_id),
-                "study_uid": r.study_instance_uid,
-                "period": (
-                    period_of.get(r.review_run_id)
-                    if _is_month(period_of.get(r.review_run_id))
-                    else None
-                ),
-                "status": r.status,
-                "raised_at": r.created_at,
-            }
-            for r in rows
-        ],
-        columns=[
-            "flag_id",
-            "kind",
-            "severity",
-            "reason",
-            "room",
-            "exam_type",
-            "event_id",
-            "study_uid",
-            "period",
-            "status",
-            "raised_at",
-        ],
-    )
+    return pd.DataFrame([_flag_row(r, period_of.get(r.review_run_id)) for r in rows],
+                        columns=list(FLAG_COLUMNS))  # fmt: skip
+
+
+def _flag_row(flag: m.FlagRow, period: str | None) -> dict[str, Any]:
+    finding = flag.finding
+    note = None
+    if finding.note:
+        note = f"{finding.note} ({finding.status_by or 'unknown'}"
+        note += f", {finding.status_at:%Y-%m-%d})" if finding.status_at else ")"
+    return {
+        "flag_id": str(flag.id),
+        "kind": flag.kind,
+        "severity": flag.severity,
+        "reason": flag.reason,
+        "room": flag.room,
+        "exam_type": flag.exam_type,
+        "event_id": None if flag.event_id is None else str(flag.event_id),
+        "study_uid": flag.study_instance_uid,
+        "period": period if _is_month(period) else None,
+        "status": finding.status,
+        "raised_at": flag.created_at,
+        "note": note,
+        "changed": changes_text(flag.changes),
+    }
+
+
+def changes_text(changes: dict[str, Any] | None) -> str | None:
+    """What changed since the finding's previous flag, in words (None: nothing, or new)."""
+    if not changes:
+        return None
+    parts = []
+    for name, change in changes.items():
+        before, after = change.get("before"), change.get("after")
+        parts.append(f"{name.replace('_', ' ')} {_value(before)} → {_value(after)}")
+    return "changed since the last review: " + "; ".join(parts)
+
+
+def _value(value: Any) -> str:
+    if value is None:
+        return "–"
+    if isinstance(value, float):
+        return f"{value:.3g}"
+    return str(value)
 
 
 def _is_month(text: str | None) -> bool:
@@ -129,16 +174,15 @@ def _is_month(text: str | None) -> bool:
 def room_history(session: Session, room: str, *, until: str | None = None) -> pd.DataFrame:
     """ROOM_HISTORY for ``room``: the monthly medians of the stored runs' periods.
 
-    Each period's medians come from its newest run's ``monthly`` table; the DAP
+    Each period's medians come from its record's ``monthly`` table; the DAP
     ratio (reported / reconstructed) and its tolerance band from the same run;
     change points from the runs' ``changepoint`` flags.
     """
+    records = record_run_ids(session)
     runs = {
         r.period: r
         for r in session.scalars(
-            select(m.ReviewRun)
-            .where(m.ReviewRun.kind == "monthly", m.ReviewRun.status == "done")
-            .order_by(m.ReviewRun.id)
+            select(m.ReviewRun).where(m.ReviewRun.id.in_(list(records.values())))
         )
     }
     rows: list[dict[str, Any]] = []
@@ -296,10 +340,11 @@ def exam_record(
             "spectrum": _spectrum(session, e) if e.recon_status == "ok" else None,
         })  # fmt: skip
     weight = study.patient_weight_kg
+    records = list(record_run_ids(session).values())
     flag_rows = session.execute(
         select(m.FlagRow, m.ReviewRun.period)
         .join(m.ReviewRun, m.ReviewRun.id == m.FlagRow.review_run_id)
-        .where(m.FlagRow.study_instance_uid == study_uid, m.ReviewRun.kind == "monthly")
+        .where(m.FlagRow.study_instance_uid == study_uid, m.ReviewRun.id.in_(records))
         .order_by(m.FlagRow.id)
     ).all()
     flags = [f for f, period in flag_rows if _is_month(period)]

@@ -21,9 +21,10 @@
 from __future__ import annotations
 
 import gc
+import json
+import logging
 from collections.abc import Callable, Iterator
-from concurrent.futures import ThreadPoolExecutor
-from contextlib import AbstractContextManager, contextmanager
+from contextlib import contextmanager
 from dataclasses import dataclass, replace
 from datetime import UTC, date, datetime
 from pathlib import Path
@@ -48,6 +49,7 @@ from sqlalchemy.orm import Session, sessionmaker
 
 from beamaudit import __version__
 from beamaudit.api.auth import record_change
+from beamaudit.api.findings import store_flags
 from beamaudit.api.review import (
     ExamCatalogue,
     MappingRules,
@@ -65,6 +67,13 @@ from beamaudit.api.routes._review_rows import (
     level_sets_from_store,
     rules_from_store,
 )
+from beamaudit.api.runs import (
+    NoEventsError,
+    UnknownNameError,
+    scope_of,
+    scope_words,
+    this_process,
+)
 from beamaudit.api.store import models as m
 from beamaudit.api.store.base import utcnow
 from beamaudit.api.store.engine import SQLITE_BUSY_TIMEOUT_MS
@@ -79,6 +88,8 @@ __all__ = [
     "stored_flags_frame",
 ]
 
+
+log = logging.getLogger(__name__)
 
 _E = m.ExposureEventRow
 #: Columns every event has (or mostly has), read for every event of the period.
@@ -399,8 +410,11 @@ def _dense_by_arrow(
     whatever its first rows hold; the sparse columns come in the same read (a second pass over
     the table costs more than carrying them).
 
-    * SQLite (a database file): the ADBC SQLite driver, in two threads (events of even and of odd
-      id; it works outside the GIL), numbers with ``_SQLITE_NULL`` for NULL (SQLite has no NaN).
+    * SQLite (a database file): the ADBC SQLite driver in a short-lived process of its own
+      (:mod:`beamaudit.api.sqlite_arrow`: the driver has its own copy of the SQLite library, which
+      must never open the file inside a process that uses Python's ``sqlite3`` on it), in two
+      threads (events of even and of odd id), numbers with ``_SQLITE_NULL`` for NULL (SQLite has
+      no NaN); the rows come back as an Arrow IPC stream.
     * PostgreSQL: the ADBC PostgreSQL driver (binary ``COPY`` parsed in C), one connection (a
       second one measured no faster: the server is the bound), NULL as Arrow's null.
 
@@ -430,28 +444,17 @@ def _dense_by_arrow(
     census = select(func.count(), func.max(E.id))
     expected = tuple(session.execute(census).one())
     census_sql = str(census.compile(dialect=session.get_bind().dialect))
-    parts = source.statements(select(*selected).where(*conditions), values)
-
-    def read(part: tuple[str, tuple[Any, ...]]) -> Any:
-        with source.connect() as cursor:
-            cursor.execute(census_sql)
-            if tuple(cursor.fetchone() or ()) != expected:
-                return None
-            sql, args = part
-            cursor.execute(sql, args or None)
-            return cursor.fetch_arrow_table()
-
-    try:
-        with ThreadPoolExecutor(max_workers=len(parts)) as pool:  # the drivers leave the GIL
-            pieces = list(pool.map(read, parts))
-    except source.error:  # the driver could not read the store: another way reads it
+    statements = source.statements(select(*selected).where(*conditions), values)
+    if statements is None:
         return None
-    if any(piece is None for piece in pieces):
+    pieces = source.read(census_sql, expected, statements)
+    if pieces is None:
         return None
     import pyarrow
 
-    # one chunk per column (the drivers hand rows over in batches), in id order
-    table = pyarrow.concat_tables(pieces).combine_chunks()
+    # one chunk per column (the drivers hand rows over in batches), in id order; a part without
+    # rows has columns without a type ('permissive' takes the other parts' types)
+    table = pyarrow.concat_tables(pieces, promote_options="permissive").combine_chunks()
     ids = table.column(0).to_numpy(zero_copy_only=False)
     if len(ids) > 1 and not (np.diff(ids) > 0).all():
         table = table.take(np.argsort(ids, kind="stable"))  # sorted runs or none: merged
@@ -483,49 +486,104 @@ def _dense_by_arrow(
 class _ArrowSource:
     """How an ADBC driver reads the session's store."""
 
-    #: a context manager giving a cursor of the driver's own connection, in one snapshot
-    connect: Callable[[], AbstractContextManager[Any]]
-    #: the driver's error class (a connection refused, a file it cannot read)
-    error: type[Exception]
+    #: the statements (SQL with every value written in) that read the period, given the select
+    #: and its values; None when they cannot be written so
+    statements: Callable[[Any, dict[str, Any]], list[str] | None]
+    #: reads the statements (census checked against the expected one in the same snapshot):
+    #: their Arrow tables, or None (census differs, the driver cannot read the store)
+    read: Callable[[str, tuple[Any, ...], list[str]], list[Any] | None]
     #: the number standing for NULL in number columns; None: Arrow's own null
     null: float | None
-    #: the statements (SQL and arguments) that read the period, given the select and its values
-    statements: Callable[[Any, dict[str, Any]], list[tuple[str, tuple[Any, ...]]]]
+
+
+def _sqlite_literal(value: Any) -> str | None:
+    """``value`` as a SQLite literal (texts quoted, numbers as they are); None for other types."""
+    if isinstance(value, str):
+        return "'" + value.replace("'", "''") + "'"
+    if isinstance(value, int | float) and not isinstance(value, bool):
+        return repr(value)
+    return None
 
 
 def _sqlite_arrow_reader(session: Session) -> _ArrowSource | None:
-    """The ADBC SQLite driver on the session's database file; None when that cannot be done.
+    """The ADBC SQLite driver on the session's database file, in a process of its own; None when
+    that cannot be done (the store is not a plain file).
 
-    Two statements, read in two threads: the events of even and of odd id (each pass tests
-    every row, but decodes only its half, whatever ids the period holds). Numbers come with
-    ``_SQLITE_NULL`` for NULL (SQLite has no NaN).
+    Two statements, read in two threads of that process: the events of even and of odd id (each
+    pass tests every row, but decodes only its half, whatever ids the period holds). Numbers come
+    with ``_SQLITE_NULL`` for NULL (SQLite has no NaN). The values are written into the statements
+    (the period's bounds and constant texts, none from a user).
     """
     path = _sqlite_file(session)
     if path is None:
         return None
-    try:
-        import adbc_driver_sqlite.dbapi as adbc
-        from adbc_driver_manager import Error as DriverError
-    except ImportError:  # an install without the driver: the plain way
-        return None
     uri = Path(path).resolve().as_uri()
     dialect = session.get_bind().dialect
 
-    @contextmanager
-    def connect() -> Iterator[Any]:
-        with adbc.connect(uri) as arrow, arrow.cursor() as cursor:
-            # reads only; waits out a writer's lock as the store's own connections do
-            cursor.execute(f"PRAGMA busy_timeout = {SQLITE_BUSY_TIMEOUT_MS}")
-            yield cursor  # census and read in one transaction: one snapshot of the file
+    def statements(stmt: Any, values: dict[str, Any]) -> list[str] | None:
+        out = []
+        for parity in (0, 1):
+            half = stmt.where(m.ExposureEventRow.id % 2 == parity)
+            compiled = half.compile(dialect=dialect, compile_kwargs={"render_postcompile": True})
+            params = {**compiled.params, **values}
+            literals = [_sqlite_literal(params[k]) for k in compiled.positiontup or ()]
+            pieces = str(compiled).split("?")
+            if len(pieces) != len(literals) + 1:
+                return None  # a '?' that is not a parameter
+            sql = pieces[0]
+            for literal, piece in zip(literals, pieces[1:], strict=True):
+                if literal is None:
+                    return None  # a value of another type
+                sql += literal + piece
+            out.append(sql)
+        return out
 
-    def statements(stmt: Any, values: dict[str, Any]) -> list[tuple[str, tuple[Any, ...]]]:
-        compiled = stmt.compile(dialect=dialect, compile_kwargs={"render_postcompile": True})
-        params = {**compiled.params, **values}
-        args = tuple(params[k] for k in compiled.positiontup or ())
-        sql = f"{compiled} AND {m.ExposureEventRow.__tablename__}.id % 2 = ?"
-        return [(sql, (*args, 0)), (sql, (*args, 1))]
+    def read(census: str, expected: tuple[Any, ...], sqls: list[str]) -> list[Any] | None:
+        request = {
+            "uri": uri,
+            "busy_timeout_ms": SQLITE_BUSY_TIMEOUT_MS,
+            "census": census,
+            "expected": list(expected),
+            "statements": sqls,
+        }
+        table = _read_in_a_process(request)
+        return None if table is None else [table]
 
-    return _ArrowSource(connect, DriverError, _SQLITE_NULL, statements)
+    return _ArrowSource(statements, read, _SQLITE_NULL)
+
+
+def _read_in_a_process(request: dict[str, Any]) -> Any:
+    """Run :mod:`beamaudit.api.sqlite_arrow` on ``request``; its Arrow table, or None (the driver
+    is missing or could not read the file, or the census differed: the reason is logged)."""
+    import subprocess
+    import sys
+    import tempfile
+
+    import pyarrow
+    import pyarrow.ipc
+
+    command = [sys.executable, "-m", "beamaudit.api.sqlite_arrow"]
+    with (
+        tempfile.TemporaryFile() as errors,
+        subprocess.Popen(
+            command, stdin=subprocess.PIPE, stdout=subprocess.PIPE, stderr=errors
+        ) as child,
+    ):
+        assert child.stdin is not None and child.stdout is not None
+        try:
+            child.stdin.write(json.dumps(request).encode())
+            child.stdin.close()
+            table = pyarrow.ipc.open_stream(child.stdout).read_all()
+        except (OSError, pyarrow.ArrowInvalid):  # it ended without an answer
+            table = None
+        status = child.wait()
+        if status != 0 or table is None:
+            errors.seek(0)
+            reason = errors.read().decode(errors="replace").strip()
+            log.info("the review read the other way: the Arrow reader ended with status %s%s",
+                     status, f" ({reason.splitlines()[-1]})" if reason else "")  # fmt: skip
+            return None
+    return table
 
 
 def _postgres_arrow_reader(session: Session) -> _ArrowSource | None:
@@ -557,13 +615,28 @@ def _postgres_arrow_reader(session: Session) -> _ArrowSource | None:
             finally:
                 cursor.execute("ROLLBACK")
 
-    def statements(stmt: Any, values: dict[str, Any]) -> list[tuple[str, tuple[Any, ...]]]:
+    def statements(stmt: Any, values: dict[str, Any]) -> list[str] | None:
         compiled = stmt.params(**values).compile(
             dialect=dialect, compile_kwargs={"literal_binds": True}
         )
-        return [(str(compiled), ())]
+        return [str(compiled)]
 
-    return _ArrowSource(connect, DriverError, None, statements)
+    def read(census: str, expected: tuple[Any, ...], sqls: list[str]) -> list[Any] | None:
+        def one(sql: str) -> Any:
+            with connect() as cursor:
+                cursor.execute(census)
+                if tuple(cursor.fetchone() or ()) != expected:
+                    return None
+                cursor.execute(sql)
+                return cursor.fetch_arrow_table()
+
+        try:
+            pieces = [one(sql) for sql in sqls]
+        except DriverError:  # the server refused the driver's connection: another way reads it
+            return None
+        return None if any(p is None for p in pieces) else pieces
+
+    return _ArrowSource(statements, read, None)
 
 
 def _arrow_categorical(column: Any) -> pd.Categorical:
@@ -810,6 +883,44 @@ def _study_uids_in_flags(session: Session, flags: list[dict[str, Any]]) -> None:
             c["study_uid"] = uids.get(int(value), value)
 
 
+def _check_scope(session: Session, params: ReviewParameters) -> dict[str, Any]:
+    """The scope's names checked against the store (:class:`UnknownNameError` for one it does
+    not know); the events' conditions the scope adds (on the room, device and exam type ids)."""
+    rooms, devices = _names(session)
+    catalogue, _ = ensure_catalogue(session)
+    known = {
+        "sites": ("site", {site for _, site in rooms.values()}),
+        "rooms": ("room", {name for name, _ in rooms.values()}),
+        "devices": ("device", set(devices.values())),
+        "exam_types": ("exam type", {t.exam_type for t in catalogue.types}),
+    }
+    for key, (what, names) in known.items():
+        for name in getattr(params, key) or ():
+            if name not in names:
+                raise UnknownNameError(what, name, sorted(names))
+    E = m.ExposureEventRow
+    conditions: dict[str, Any] = {}
+    if params.sites:
+        conditions["sites"] = E.room_id.in_([i for i, (_, s) in rooms.items() if s in params.sites])
+    if params.rooms:
+        conditions["rooms"] = E.room_id.in_([i for i, (r, _) in rooms.items() if r in params.rooms])
+    if params.devices:
+        conditions["devices"] = E.device_id.in_(
+            [i for i, d in devices.items() if d in params.devices]
+        )
+    if params.exam_types:
+        conditions["exam_types"] = E.exam_type.in_(list(params.exam_types))
+    return conditions
+
+
+def _has_events(session: Session, params: ReviewParameters, scope: dict[str, Any]) -> bool:
+    """Whether the period holds at least one event in the scope."""
+    conditions, _, _ = _period_conditions(session, start=params.period.start, end=params.period.end)
+    stmt = select(m.ExposureEventRow.id).where(*conditions, *scope.values()).limit(1)
+    bounds = {"t0": _as_utc(params.period.start), "t1": _as_utc(params.period.end)}  # typed
+    return session.execute(stmt, bounds).first() is not None
+
+
 def run_review(
     sessions: sessionmaker[Session],
     params: ReviewParameters,
@@ -817,22 +928,43 @@ def run_review(
     kind: str = "monthly",
     actor: str = "cli",
 ) -> int:
-    """Run and store a review; returns the :class:`ReviewRun` id (status ``done`` or ``failed``)."""
+    """Run and store a review; returns the :class:`ReviewRun` id (status ``done`` or ``failed``).
+
+    The run keeps its scope (the filters of ``params``) and the process running it; its flags are
+    stored as occurrences of their findings (:func:`beamaudit.api.findings.store_flags`).
+
+    Raises
+    ------
+    UnknownNameError
+        The scope names a room, site, device or exam type the store does not know.
+    NoEventsError
+        The period holds no event in the scope. Neither stores anything.
+    """
     from beamaudit.api.review import ReviewError
 
     with sessions.begin() as session:
+        scope = _check_scope(session, params)
+        parameters = params.to_json_dict()
+        if not _has_events(session, params, scope):
+            where = scope_words(scope_of(parameters))
+            raise NoEventsError(f"no events in {params.period.label} ({where}): no review stored")
         run = m.ReviewRun(
             kind=kind,
             period=params.period.label,
-            parameters=params.to_json_dict(),
+            period_start=params.period.start,
+            period_end=params.period.end,
+            scope=scope_of(parameters),
+            whole_site=not scope_of(parameters),
+            parameters=parameters,
             software_version=__version__,
             status="running",
+            runner=this_process(),
         )
         session.add(run)
         session.flush()
         run_id = run.id
         record_change(session, actor=actor, action="start", entity="review_run", entity_id=run_id,
-                      after={"kind": kind, "period": run.period})  # fmt: skip
+                      after={"kind": kind, "period": run.period, "scope": run.scope})  # fmt: skip
     try:
         with sessions.begin() as session:
             result, used = execute_review(session, params)
@@ -844,28 +976,27 @@ def run_review(
             done.result = body
             done.status = "done"
             done.finished_at = utcnow()
-            for flag in body["flags"]:
-                where = flag.get("concerns") or {}
-                session.add(
-                    m.FlagRow(
-                        review_run_id=run_id,
-                        kind=flag["kind"],
-                        severity=flag.get("severity") or "info",
-                        reason=flag["reason"],
-                        numbers=flag.get("numbers") or {},
-                        event_id=where.get("event_id"),
-                        study_instance_uid=where.get("study_uid"),
-                        room=where.get("room"),
-                        exam_type=where.get("exam_type"),
-                    )
-                )
-    except ReviewError as exc:
+            counts = store_flags(session, done, body["flags"])
+            record_change(
+                session, actor=actor, action="finish", entity="review_run", entity_id=run_id,
+                after={"status": "done", "n_events": body["n_events"],
+                       "findings": counts.as_dict()},
+            )  # fmt: skip
+    except Exception as exc:  # recorded on the run, never left 'running'; only ReviewError is ours
         with sessions.begin() as session:
             failed = session.get(m.ReviewRun, run_id)
             assert failed is not None
             failed.status = "failed"
-            failed.error = str(exc)
+            failed.error = (
+                str(exc) if isinstance(exc, ReviewError) else f"{type(exc).__name__}: {exc}"
+            )
             failed.finished_at = utcnow()
+            record_change(
+                session, actor=actor, action="fail", entity="review_run", entity_id=run_id,
+                after={"status": "failed", "error": failed.error},
+            )  # fmt: skip
+        if not isinstance(exc, ReviewError):
+            raise
     return run_id
 
 

@@ -165,6 +165,9 @@ def flag_rows(table: pd.DataFrame, **only: str | None) -> list[dict[str, Any]]:
             "study_uid": r["study_uid"] or "",
             "exam_href": _web.exam_href(r["study_uid"]) if r["study_uid"] else "",
             "event_id": r["event_id"] or "",
+            "note": (r["note"] if "note" in r and isinstance(r["note"], str) else "") or "",
+            "changed": (r["changed"] if "changed" in r and isinstance(r["changed"], str) else "")
+            or "",
         }
         for _, r in table.iterrows()
     ]

@@ -40,6 +40,7 @@ __all__ = [
     "plotly_js_path",
     "render_committee_report",
     "render_distributions",
+    "render_error",
     "render_exam",
     "render_flags",
     "render_login",
@@ -60,6 +61,7 @@ def render_overview(
     period: str,
     periods: Sequence[str] = (),
     open_flags: int | None = None,
+    runs: Sequence[Mapping[str, Any]] = (),
     context: PageContext | None = None,
 ) -> str:
     """The period overview (served at ``/``).
@@ -74,6 +76,9 @@ def render_overview(
         Periods offered by the period picker (``period`` is always offered).
     open_flags : int, optional
         Number of open flags in the period, linked to the flags list.
+    runs : sequence of mappings, optional
+        The review runs of the period, listed under the groups: ``id``, ``kind``, ``scope`` (in
+        words), ``state`` (in words), ``started_at`` (UTC) and ``record`` (the run shown).
     context : PageContext, optional
         Facility, version, user.
 
@@ -105,6 +110,7 @@ def render_overview(
         open_flags=open_flags,
         flags_href=flags_href(period=period, status="open"),
         report_href=report_href(period),
+        runs=[{**r, "started": _rows.when(r.get("started_at"))} for r in runs],
     )
 
 
@@ -364,6 +370,41 @@ def render_flags(
             ),
             ("status", "Status", status or "", list(FLAG_STATUS_WORDS.items())),
         ],
+    )
+
+
+def render_error(
+    status_code: int,
+    message: str,
+    *,
+    title: str | None = None,
+    context: PageContext | None = None,
+) -> str:
+    """A page saying why a request was refused (served with ``status_code``).
+
+    Parameters
+    ----------
+    status_code : int
+        The HTTP status (400 a bad parameter, 403 a role too low, 404 nothing by that name).
+    message : str
+        What was wrong, in one or two sentences (e.g. naming the closest known name).
+    title : str, optional
+        The heading; by default one for the status.
+    context : PageContext, optional
+        Facility, version, user.
+    """
+    default = {
+        400: "That request cannot be answered",
+        401: "Sign in first",
+        403: "Not for this role",
+        404: "Not found",
+    }.get(status_code, "Something went wrong")
+    return _web.render_page(
+        "error.html",
+        context=context,
+        page_title=title or default,
+        status_code=status_code,
+        message=message,
     )
 
 

@@ -42,7 +42,8 @@ The contracts
     One row per flag raised by the review: ``kind``, ``severity``, ``reason``,
     ``room``, ``exam_type``, ``event_id``, ``study_uid``, ``period``
     (``YYYY-MM``), ``status`` (``open``, ``acknowledged``, ``closed``), and
-    optionally ``flag_id`` and ``raised_at`` (UTC).
+    optionally ``flag_id``, ``raised_at`` (UTC), ``note`` (why it was acknowledged or closed,
+    and by whom) and ``changed`` (what changed since the finding's previous review).
 
 ``EVENTS``
     One row per irradiation event: ``event_id``, ``study_uid``,
@@ -410,6 +411,22 @@ FLAGS = TableSpec(
         Column("period", "str", "", "review period, YYYY-MM"),
         Column("status", "str", "", "flag status", choices=("open", "acknowledged", "closed")),
         Column("raised_at", "datetime", "", "when raised (UTC)", required=False, nullable=True),
+        Column(
+            "note",
+            "str",
+            "",
+            "why the finding was acknowledged or closed, and by whom",
+            required=False,
+            nullable=True,
+        ),
+        Column(
+            "changed",
+            "str",
+            "",
+            "what changed since the finding's previous review",
+            required=False,
+            nullable=True,
+        ),
     ),
     rules=(
         Rule(

@@ -22,7 +22,11 @@ class OpenStore:
 
 
 def open_store(ctx: typer.Context | None, *, migrate: bool = True) -> OpenStore:
-    """Settings, a reachable engine (migrated to head unless ``migrate`` is false), sessions."""
+    """Settings, a reachable engine (migrated to head unless ``migrate`` is false), sessions.
+
+    Opened to write (``migrate``), the store's review runs cut short (their process gone) are
+    marked failed first, with the reason (:func:`beamaudit.api.runs.fail_interrupted_runs`).
+    """
     from beamaudit.api.store import (
         StoreError,
         check_connection,
@@ -39,4 +43,9 @@ def open_store(ctx: typer.Context | None, *, migrate: bool = True) -> OpenStore:
             upgrade(engine)
     except StoreError as exc:
         fail(str(exc))
-    return OpenStore(settings, engine, make_session_factory(engine))
+    sessions = make_session_factory(engine)
+    if migrate:
+        from beamaudit.api.runs import fail_interrupted_runs
+
+        fail_interrupted_runs(sessions, started=ctx.command_path if ctx else "beamaudit")
+    return OpenStore(settings, engine, sessions)

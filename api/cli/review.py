@@ -10,7 +10,7 @@ from typing import Annotated, Any
 
 import typer
 
-from beamaudit.api.cli._common import console, err_console, fail
+from beamaudit.api.cli._common import EXIT_PARTIAL, console, err_console, fail
 
 __all__ = ["register"]
 
@@ -30,6 +30,9 @@ def review_command(
         str | None, typer.Option(help="Calendar month YYYY-MM (default: the previous month).")
     ] = None,
     room: Annotated[list[str] | None, typer.Option(help="Only this room (repeatable).")] = None,
+    exam_type: Annotated[
+        list[str] | None, typer.Option(help="Only this exam type, by code (repeatable).")
+    ] = None,
     nightly: Annotated[
         bool, typer.Option("--nightly", help="Flag exams stored since the last nightly run.")
     ] = False,
@@ -39,17 +42,29 @@ def review_command(
         Path | None, typer.Option("--xlsx", help="Write groups and flags as XLSX.")
     ] = None,
 ) -> None:
-    """Review a month's exams against the reference levels; store the run and its flags."""
+    """Review a month's exams against the reference levels; store the run and its flags.
+
+    A review of the whole site is the month's record (the pages and the committee report show
+    it); one of a room or an exam type is stored beside it. Exit code 0: reviewed; 1: no events
+    in the month (nothing stored); 2: an unknown room or exam type, or a failure.
+    """
     from beamaudit.api.cli._store import open_store
     from beamaudit.api.review import ReviewError
+    from beamaudit.api.runs import NoEventsError
 
     store = open_store(ctx)
     try:
         if nightly:
-            run_id, new_flags = _nightly(store)
+            outcome = _nightly(store)
+            if outcome is None:
+                console.print("nightly review: no events yet this month; no review stored")
+                return
+            run_id, new_flags = outcome
         else:
-            run_id = _monthly(store, month or _previous_month(), room)
+            run_id = _monthly(store, month or _previous_month(), room, exam_type)
             new_flags = None
+    except NoEventsError as exc:
+        fail(str(exc), code=EXIT_PARTIAL)
     except ReviewError as exc:
         fail(str(exc))
     body = _stored_result(store, run_id)
@@ -64,29 +79,37 @@ def review_command(
         if xlsx_path is not None:
             write_xlsx(result, xlsx_path)
     if as_json:
-        out = _json_summary(run_id, result)
+        out = _json_summary(run_id, result, body["scope"])
         if new_flags is not None:
             out["new_flags"] = new_flags
         typer.echo(json.dumps(out, indent=2, default=str))
     else:
-        _print(run_id, result, new_flags)
+        _print(run_id, result, new_flags, body["scope_text"])
 
 
-def _monthly(store: Any, month: str, rooms: list[str] | None) -> int:
+def _monthly(store: Any, month: str, rooms: list[str] | None, exam_types: list[str] | None) -> int:
     from beamaudit.api.review import Period, ReviewParameters
     from beamaudit.api.reviews import run_review
 
     period = Period.parse(month)
-    params = ReviewParameters(period=period, rooms=tuple(rooms) if rooms else None)
+    params = ReviewParameters(
+        period=period,
+        rooms=tuple(rooms) if rooms else None,
+        exam_types=tuple(exam_types) if exam_types else None,
+    )
     return run_review(store.sessions, params, kind="monthly")
 
 
-def _nightly(store: Any) -> tuple[int, int]:
-    """Review the current month so far; count flags on exams stored since the last nightly run."""
+def _nightly(store: Any) -> tuple[int, int] | None:
+    """Review the current month so far; count flags on exams stored since the last nightly run.
+
+    None when the month holds no event yet (nothing reviewed, nothing stored).
+    """
     from sqlalchemy import select
 
     from beamaudit.api.review import Period, ReviewParameters
     from beamaudit.api.reviews import run_review
+    from beamaudit.api.runs import NoEventsError
     from beamaudit.api.store import models as m
 
     with store.sessions() as session:
@@ -99,7 +122,10 @@ def _nightly(store: Any) -> tuple[int, int]:
     today = datetime.now(UTC).date()
     start = today.replace(day=1)
     period = Period(start, today + timedelta(days=1))
-    run_id = run_review(store.sessions, ReviewParameters(period=period), kind="nightly")
+    try:
+        run_id = run_review(store.sessions, ReviewParameters(period=period), kind="nightly")
+    except NoEventsError:
+        return None
     with store.sessions() as session:
         stmt = (
             select(m.FlagRow.id)
@@ -113,12 +139,19 @@ def _nightly(store: Any) -> tuple[int, int]:
 
 
 def _stored_result(store: Any, run_id: int) -> dict[str, Any]:
+    from beamaudit.api.runs import scope_text
     from beamaudit.api.store import models as m
 
     with store.sessions() as session:
         run = session.get(m.ReviewRun, run_id)
         assert run is not None
-        return {"status": run.status, "error": run.error, "result": run.result or {}}
+        return {
+            "status": run.status,
+            "error": run.error,
+            "result": run.result or {},
+            "scope": run.scope or {},
+            "scope_text": scope_text(run),
+        }
 
 
 GROUP_FIELDS = (
@@ -128,10 +161,11 @@ GROUP_FIELDS = (
 )  # fmt: skip
 
 
-def _json_summary(run_id: int, result: dict[str, Any]) -> dict[str, Any]:
+def _json_summary(run_id: int, result: dict[str, Any], scope: dict[str, Any]) -> dict[str, Any]:
     return {
         "run_id": run_id,
         "period": result["period"]["label"],
+        "scope": scope,
         "software_version": result["software_version"],
         "level_sets": result["level_sets"],
         "n_events": result["n_events"],
@@ -150,11 +184,11 @@ STATUS_WORDS = {
 }
 
 
-def _print(run_id: int, result: dict[str, Any], new_flags: int | None) -> None:
+def _print(run_id: int, result: dict[str, Any], new_flags: int | None, scope: str) -> None:
     from rich.table import Table
 
     console.print(
-        f"review run {run_id}, period {result['period']['label']}: {result['n_events']} events, "
+        f"review run {run_id} ({scope}): {result['n_events']} events, "
         f"{len(result['groups'])} group rows, {len(result['flags'])} flags",
         highlight=False,
     )
@@ -229,11 +263,14 @@ def nightly_command(
             report["pulls"].append(outcome.as_dict())
         except IngestError as exc:
             report["failed"].append({"source": url, "reason": exc.reason})
+    run_id: int | None = None
+    new_flags = 0
     try:
-        run_id, new_flags = _nightly(store)
+        reviewed = _nightly(store)
+        if reviewed is not None:
+            run_id, new_flags = reviewed
     except ReviewError as exc:
         report["failed"].append({"source": "review", "reason": str(exc)})
-        run_id, new_flags = None, 0
     report["review_run_id"] = run_id
     report["new_flags"] = new_flags
     if as_json:
@@ -246,7 +283,10 @@ def nightly_command(
             )
         for f in report["failed"]:
             err_console.print(f"failed: {f['source']}: {f['reason']}", markup=False)
-        console.print(f"nightly review run {run_id}: {new_flags} new flags", highlight=False)
+        if run_id is None and not report["failed"]:
+            console.print("nightly review: no events yet this month; no review stored")
+        else:
+            console.print(f"nightly review run {run_id}: {new_flags} new flags", highlight=False)
     if report["failed"]:
         raise typer.Exit(2)
     if new_flags:

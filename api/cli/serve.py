@@ -16,11 +16,19 @@ def serve_command(
     host: Annotated[str, typer.Option(help="Address to listen on.")] = "127.0.0.1",
     port: Annotated[int, typer.Option(min=1, max=65535, help="TCP port.")] = 8000,
 ) -> None:
-    """Apply migrations, then serve the API (/api/v1) and the dashboards (/)."""
+    """Apply migrations, mark review runs cut short as failed, then serve the API (/api/v1) and
+    the dashboards (/)."""
     import uvicorn
 
     from beamaudit.api.app import create_app
-    from beamaudit.api.store import StoreError, check_connection, make_engine, upgrade
+    from beamaudit.api.runs import fail_interrupted_runs
+    from beamaudit.api.store import (
+        StoreError,
+        check_connection,
+        make_engine,
+        make_session_factory,
+        upgrade,
+    )
 
     settings = load_settings(ctx)
     try:
@@ -29,6 +37,9 @@ def serve_command(
         upgrade(engine)
     except StoreError as exc:
         fail(str(exc))
+    failed = fail_interrupted_runs(make_session_factory(engine), started="beamaudit serve")
+    if failed:
+        console.print(f"review runs cut short, now marked failed: {', '.join(map(str, failed))}")
     console.print(f"beamaudit serving on http://{host}:{port}/ (database: {settings.backend})")
     uvicorn.run(create_app(settings, engine=engine), host=host, port=port, log_level="info")
 

@@ -3,7 +3,14 @@
 A review reads a period's events and compares them with the reference levels in effect
 (:mod:`beamaudit.api.reviews` on the store, :mod:`beamaudit.api.review` the core). It is CPU work:
 the starting route is a plain function, which FastAPI runs in its thread pool, so the event loop
-stays free while it runs; the answer is the finished run (``done`` or ``failed``).
+stays free while it runs; the answer is the finished run (``done`` or ``failed``). A scope naming
+a room or exam type the store does not know is a 404 naming the closest known one; a period with
+no event in scope is a 409; neither stores a run.
+
+A run keeps its scope; the record of a month (:func:`beamaudit.api.runs.record_run`) is what the
+pages show. Admins supersede or delete runs. Flags are occurrences of findings
+(:mod:`beamaudit.api.findings`): triage (status and note) is the finding's, and carries over to
+later runs.
 
 Viewers read runs, results and flags, but never study UIDs or event ids: those are removed from
 what a viewer is answered.
@@ -20,7 +27,7 @@ from sqlalchemy import func, select
 
 from beamaudit.api.app import CAUTION
 from beamaudit.api.auth import Principal, has_role
-from beamaudit.api.deps import DbSession, Physicist, Viewer
+from beamaudit.api.deps import Admin, DbSession, Physicist, Viewer
 from beamaudit.api.routes._common import (
     AUTH_RESPONSES,
     CONFLICT,
@@ -29,14 +36,13 @@ from beamaudit.api.routes._common import (
     IdPath,
     PageParams,
     SessionFactory,
-    audit,
     get_or_404,
     invalid,
     not_found,
     page_params,
     paginate,
 )
-from beamaudit.api.schemas._base import EARLIEST_DATE, LATEST_DATE, ShortText
+from beamaudit.api.schemas._base import EARLIEST_DATE, LATEST_DATE, ErrorBody, ShortText, Text
 from beamaudit.api.schemas.reviews import (
     FlagRead,
     FlagUpdate,
@@ -44,6 +50,7 @@ from beamaudit.api.schemas.reviews import (
     ReviewRunPage,
     ReviewRunRead,
     ReviewRunSummary,
+    RunSupersede,
 )
 from beamaudit.api.store import models as m
 
@@ -85,12 +92,28 @@ def _is_physicist(who: Principal) -> bool:
     return has_role(who.role, "physicist")
 
 
+def _summary(run: m.ReviewRun, records: dict[str, int]) -> ReviewRunSummary:
+    from beamaudit.api.runs import scope_text
+
+    return ReviewRunSummary(
+        **{
+            name: getattr(run, name)
+            for name in ReviewRunSummary.model_fields
+            if name not in ("scope_text", "record")
+        },
+        scope_text=scope_text(run),
+        record=records.get(run.period or "") == run.id,
+    )
+
+
 def _read(session: DbSession, run: m.ReviewRun) -> ReviewRunRead:
+    from beamaudit.api.runs import record_run_ids
+
     n_flags = (
         session.scalar(select(func.count()).select_from(F).where(F.review_run_id == run.id)) or 0
     )
     return ReviewRunRead(
-        **ReviewRunSummary.model_validate(run).model_dump(),
+        **_summary(run, record_run_ids(session)).model_dump(),
         parameters=run.parameters or {},
         level_sets=run.level_sets or [],
         n_flags=n_flags,
@@ -132,17 +155,29 @@ def _parameters(body: ReviewCreate) -> Any:
     operation_id="start_review",
     response_model=ReviewRunRead,
     status_code=status.HTTP_201_CREATED,
-)
+    responses={
+        404: {"model": ErrorBody, "description": "The scope names an unknown room, exam type, "
+              "site or device (the closest known name is given)."},
+        409: {"model": ErrorBody, "description": "No event in the period and scope."},
+    },
+)  # fmt: skip
 def start_review(body: ReviewCreate, sessions: SessionFactory, who: Physicist) -> ReviewRunRead:
     """Run a review of the period and store it; answers the finished run (done or failed).
 
-    The run keeps its parameters, the level-set versions used and the software version, so it
-    can be repeated.
+    The run keeps its parameters, its scope, the level-set versions used and the software
+    version, so it can be repeated. A whole-site review of a calendar month becomes the month's
+    record; a review of a room, exam type or date range is stored beside it.
     """
     from beamaudit.api.reviews import run_review
+    from beamaudit.api.runs import NoEventsError, UnknownNameError
 
     params = _parameters(body)
-    run_id = run_review(sessions, params, kind=body.kind, actor=who.actor)
+    try:
+        run_id = run_review(sessions, params, kind=body.kind, actor=who.actor)
+    except UnknownNameError as exc:
+        raise HTTPException(status.HTTP_404_NOT_FOUND, detail=str(exc)) from None
+    except NoEventsError as exc:
+        raise HTTPException(status.HTTP_409_CONFLICT, detail=str(exc)) from None
     with sessions() as session:
         run = session.get(RUN, run_id)
         assert run is not None
@@ -159,16 +194,17 @@ def list_reviews(
         ShortText | None, Query(alias="status", description="pending, running, done or failed")
     ] = None,
 ) -> ReviewRunPage:
-    """Review runs, newest first."""
+    """Review runs, newest first, each with its scope and whether it is its month's record."""
+    from beamaudit.api.runs import record_run_ids
+
     stmt = select(RUN)
     if period is not None:
         stmt = stmt.where(RUN.period == period)
     if status_ is not None:
         stmt = stmt.where(RUN.status == status_)
     rows, cursor = paginate(session, stmt, RUN.id, page)
-    return ReviewRunPage(
-        items=[ReviewRunSummary.model_validate(r) for r in rows], next_cursor=cursor
-    )
+    records = record_run_ids(session)
+    return ReviewRunPage(items=[_summary(r, records) for r in rows], next_cursor=cursor)
 
 
 @router.get(
@@ -246,11 +282,24 @@ def get_review_result_xlsx(run_id: IdPath, session: DbSession, who: Viewer) -> R
 
 
 def _flag_read(flag: m.FlagRow, who: Principal) -> FlagRead:
-    read = FlagRead.model_validate(flag)
+    finding = flag.finding
+    read = FlagRead.model_validate(
+        {
+            **{name: getattr(flag, name) for name in FlagRead.model_fields if hasattr(flag, name)},
+            "note": finding.note,
+            "status_by": finding.status_by,
+            "status_at": finding.status_at,
+        }
+    )
     if _is_physicist(who):
         return read
     return read.model_copy(
-        update={"event_id": None, "study_instance_uid": None, "numbers": for_viewer(read.numbers)}
+        update={
+            "event_id": None,
+            "study_instance_uid": None,
+            "numbers": for_viewer(read.numbers),
+            "changes": for_viewer(read.changes),
+        }
     )
 
 
@@ -278,25 +327,72 @@ def list_review_flags(
     "/reviews/{run_id}/flags/{flag_id}",
     operation_id="update_review_flag",
     response_model=FlagRead,
-    responses={**NOT_FOUND, **CONFLICT},
+    responses=NOT_FOUND,
 )
 def update_review_flag(
     run_id: IdPath, flag_id: IdPath, body: FlagUpdate, session: DbSession, who: Physicist
 ) -> FlagRead:
-    """Acknowledge or close a flag (or open it again)."""
+    """Triage the flag's finding: acknowledge or close it (with a note saying why), or open it
+    again. The triage is the finding's: every run's flag of the same finding shows it, and later
+    runs carry it over. Audited."""
+    from beamaudit.api.findings import TriageError, triage
+
     flag = session.get(F, flag_id)
     if flag is None or flag.review_run_id != run_id:
         not_found(f"flag of review run {run_id}", flag_id)
-    if flag.status != body.status:
-        audit(
-            session,
-            who,
-            action="update",
-            entity="flag",
-            entity_id=flag.id,
-            before={"status": flag.status},
-            after={"status": body.status},
-        )
-        flag.status = body.status
-        session.commit()
+    try:
+        triage(session, flag, status=body.status, note=body.note, actor=who.actor)
+    except TriageError as exc:
+        invalid(("body", "note"), str(exc))
+    session.commit()
     return _flag_read(flag, who)
+
+
+@router.post(
+    "/reviews/{run_id}/supersede",
+    operation_id="supersede_review",
+    response_model=ReviewRunRead,
+    responses={**NOT_FOUND, **CONFLICT},
+)
+def supersede_review(
+    run_id: IdPath, body: RunSupersede, session: DbSession, who: Admin
+) -> ReviewRunRead:
+    """Mark a finished run superseded, with the reason: it stays readable, but is no longer its
+    month's record (the month's previous record, if any, stands again). Audited."""
+    from beamaudit.api.runs import RunStateError, supersede_run
+
+    run = get_or_404(session, RUN, run_id, "review run")
+    try:
+        supersede_run(session, run, reason=body.reason, actor=who.actor)
+    except RunStateError as exc:
+        raise HTTPException(status.HTTP_409_CONFLICT, detail=str(exc)) from None
+    session.commit()
+    return _read(session, run)
+
+
+@router.delete(
+    "/reviews/{run_id}",
+    operation_id="delete_review",
+    status_code=status.HTTP_204_NO_CONTENT,
+    response_class=Response,
+    responses={**NOT_FOUND, **CONFLICT},
+)
+def delete_review(
+    run_id: IdPath,
+    session: DbSession,
+    who: Admin,
+    reason: Annotated[Text, Query(min_length=1, description="why the run is deleted")],
+) -> Response:
+    """Delete a run and its flags (their findings and triage stay: a later run that finds the
+    same carries the triage over). Audited with the run's description and the reason."""
+    from beamaudit.api.runs import RunStateError, delete_run
+
+    if not reason.strip():
+        invalid(("query", "reason"), "must not be blank")
+    run = get_or_404(session, RUN, run_id, "review run")
+    try:
+        delete_run(session, run, reason=reason.strip(), actor=who.actor)
+    except RunStateError as exc:
+        raise HTTPException(status.HTTP_409_CONFLICT, detail=str(exc)) from None
+    session.commit()
+    return Response(status_code=status.HTTP_204_NO_CONTENT)

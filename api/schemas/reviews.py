@@ -2,12 +2,12 @@
 
 from __future__ import annotations
 
-from datetime import datetime
+from datetime import date, datetime
 from typing import Annotated, Any, Literal
 
-from pydantic import Field, StringConstraints
+from pydantic import AfterValidator, Field, StringConstraints
 
-from beamaudit.api.schemas._base import InputModel, Page, ReadModel
+from beamaudit.api.schemas._base import InputModel, Page, ReadModel, Text, clean_text
 
 __all__ = [
     "FlagRead",
@@ -16,6 +16,7 @@ __all__ = [
     "ReviewRunPage",
     "ReviewRunRead",
     "ReviewRunSummary",
+    "RunSupersede",
 ]
 
 
@@ -42,14 +43,31 @@ class ReviewCreate(InputModel):
 
 
 class ReviewRunSummary(ReadModel):
+    """A run, its scope, and whether it is its period's record."""
+
     id: int
     kind: str
     period: str | None
+    period_start: date | None
+    period_end: date | None = Field(description="exclusive")
+    scope: dict[str, list[str]] = Field(
+        description="the filters that narrowed the run (sites, rooms, devices, exam_types); "
+        "{} for the whole site"
+    )
+    whole_site: bool
+    scope_text: str = Field(examples=["room RAD A, 2026-11", "whole site, 2026-11"])
+    record: bool = Field(
+        description="the run is its month's record: the newest finished whole-site monthly run "
+        "of a calendar month, not superseded (the pages and the committee report show it)"
+    )
     status: str = Field(description="pending, running, done or failed")
     software_version: str
     started_at: datetime
     finished_at: datetime | None
     error: str | None
+    superseded_at: datetime | None
+    superseded_by: str | None
+    supersede_reason: str | None
 
 
 class ReviewRunPage(Page[ReviewRunSummary]):
@@ -66,24 +84,47 @@ class ReviewRunRead(ReviewRunSummary):
 
 
 class FlagRead(ReadModel):
-    """A finding of a review: its reason and the numbers behind it.
+    """A review's flag: its reason and the numbers behind it, and the triage of its finding.
 
-    ``event_id`` and ``study_instance_uid`` are shown to physicists only.
+    A flag is one run's occurrence of a finding; a later run that finds the same thing (kind,
+    subject, period) adds a flag to the same finding, whose triage carries over. ``event_id`` and
+    ``study_instance_uid`` are shown to physicists only.
     """
 
     id: int
     review_run_id: int
+    finding_id: int
     kind: str
     severity: str
     reason: str
     numbers: dict[str, Any]
+    changes: dict[str, Any] | None = Field(
+        description="what differs from the finding's previous flag, {name: {before, after}}; "
+        "null when the finding was new"
+    )
     room: str | None
     exam_type: str | None
     event_id: int | None
     study_instance_uid: str | None
-    status: str = Field(description="open, acknowledged or closed")
+    status: str = Field(description="the finding's: open, acknowledged or closed")
+    note: str | None = Field(description="why it was acknowledged or closed")
+    status_by: str | None
+    status_at: datetime | None
     created_at: datetime
 
 
 class FlagUpdate(InputModel):
+    """The triage of a flag's finding; acknowledging or closing needs a note."""
+
     status: Literal["open", "acknowledged", "closed"]
+    note: Text | None = Field(default=None, description="why (needed to acknowledge or close)")
+
+
+class RunSupersede(InputModel):
+    """Why a run no longer stands as its period's record."""
+
+    reason: Annotated[
+        str,
+        StringConstraints(strip_whitespace=True, min_length=1, max_length=4000),
+        AfterValidator(clean_text),
+    ]

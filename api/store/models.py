@@ -22,7 +22,7 @@ from sqlalchemy import (
     Text,
     UniqueConstraint,
 )
-from sqlalchemy.orm import Mapped, mapped_column
+from sqlalchemy.orm import Mapped, mapped_column, relationship
 
 from beamaudit.api.store.base import Base, JSONValue, UTCDateTime, utcnow
 
@@ -34,6 +34,7 @@ __all__ = [
     "DicomwebSource",
     "ExamTypeRow",
     "ExposureEventRow",
+    "Finding",
     "FlagRow",
     "IngestError",
     "MappingRuleRow",
@@ -359,40 +360,90 @@ class ReferenceLevelRow(Base):
 
 
 class ReviewRun(Base):
-    """A review run, stored with everything needed to repeat it."""
+    """A review run, stored with everything needed to repeat it, and its scope.
+
+    The record of a calendar month (what the pages and the committee report show) is its newest
+    ``monthly`` run that is ``done``, whole-site and not superseded; runs of a room, an exam type
+    or a date range are kept beside it and never replace it.
+    """
 
     __tablename__ = "review_runs"
     id: Mapped[int] = mapped_column(primary_key=True)
     kind: Mapped[str] = mapped_column(String)  # monthly | nightly
+    #: ``YYYY-MM`` for a calendar month, else ``YYYY-MM-DD/YYYY-MM-DD`` (end exclusive)
     period: Mapped[str | None] = mapped_column(String, index=True)
+    period_start: Mapped[date | None] = mapped_column(Date)
+    period_end: Mapped[date | None] = mapped_column(Date)  # exclusive
+    #: the filters that narrowed the run ({"rooms": [...], "exam_types": [...], ...}); {}: none
+    scope: Mapped[dict[str, list[str]]] = mapped_column(JSONValue, default=dict)
+    #: no filter narrowed the run (whether its period is a calendar month is its ``period``)
+    whole_site: Mapped[bool] = mapped_column(Boolean, default=True)
     parameters: Mapped[dict[str, Any]] = mapped_column(JSONValue, default=dict)
     level_sets: Mapped[list[dict[str, Any]]] = mapped_column(JSONValue, default=list)
     software_version: Mapped[str] = mapped_column(String)
     status: Mapped[str] = mapped_column(String, default="pending")  # pending|running|done|failed
+    #: the process running the run ("host boot-id pid start-ticks"), to tell a run cut short
+    #: (its process gone) from one still running
+    runner: Mapped[str | None] = mapped_column(String)
     started_at: Mapped[datetime] = mapped_column(UTCDateTime(), default=utcnow)
     finished_at: Mapped[datetime | None] = mapped_column(UTCDateTime())
     result: Mapped[dict[str, Any] | None] = mapped_column(JSONValue)
     error: Mapped[str | None] = mapped_column(Text)
+    superseded_at: Mapped[datetime | None] = mapped_column(UTCDateTime())
+    superseded_by: Mapped[str | None] = mapped_column(String)  # the actor, as the audit log
+    supersede_reason: Mapped[str | None] = mapped_column(Text)
+
+
+class Finding(Base):
+    """What reviews found, with an identity that outlives a run: its kind, its subject (room,
+    exam type, event or study, quantity, level set as they apply) and its period.
+
+    A later run that finds it again adds a flag to the same finding, so its triage (status, who,
+    when, a note) carries over; ``key`` is the SHA-256 of the identity
+    (:func:`beamaudit.api.findings.finding_key`).
+    """
+
+    __tablename__ = "findings"
+    id: Mapped[int] = mapped_column(primary_key=True)
+    key: Mapped[str] = mapped_column(String, unique=True)
+    kind: Mapped[str] = mapped_column(String)
+    #: ``YYYY-MM`` (a run within one calendar month), else the run's ``start/end``
+    period: Mapped[str] = mapped_column(String, index=True)
+    subject: Mapped[dict[str, Any]] = mapped_column(JSONValue, default=dict)
+    status: Mapped[str] = mapped_column(String, default="open")  # open | acknowledged | closed
+    note: Mapped[str | None] = mapped_column(Text)
+    status_by: Mapped[str | None] = mapped_column(String)  # the actor, as the audit log
+    status_at: Mapped[datetime | None] = mapped_column(UTCDateTime())
+    created_at: Mapped[datetime] = mapped_column(UTCDateTime(), default=utcnow)
 
 
 class FlagRow(Base):
-    """A finding of a review, with its reason and the numbers behind it."""
+    """A finding as one review run raised it, with its reason and the numbers behind it."""
 
     __tablename__ = "flags"
     id: Mapped[int] = mapped_column(primary_key=True)
     review_run_id: Mapped[int] = mapped_column(
         ForeignKey("review_runs.id", ondelete="CASCADE"), index=True
     )
+    finding_id: Mapped[int] = mapped_column(ForeignKey("findings.id"), index=True)
     kind: Mapped[str] = mapped_column(String, index=True)
     severity: Mapped[str] = mapped_column(String)
     reason: Mapped[str] = mapped_column(Text)
     numbers: Mapped[dict[str, Any]] = mapped_column(JSONValue, default=dict)
+    #: what differs from the finding's previous flag: ``{name: {"before": x, "after": y}}``
+    #: (``severity`` too); null when the finding was new
+    changes: Mapped[dict[str, Any] | None] = mapped_column(JSONValue)
     event_id: Mapped[int | None] = mapped_column(ForeignKey("exposure_events.id"))
     study_instance_uid: Mapped[str | None] = mapped_column(String)
     room: Mapped[str | None] = mapped_column(String)
     exam_type: Mapped[str | None] = mapped_column(String)
-    status: Mapped[str] = mapped_column(String, default="open")  # open | acknowledged | closed
     created_at: Mapped[datetime] = mapped_column(UTCDateTime(), default=utcnow)
+    finding: Mapped[Finding] = relationship(lazy="joined", innerjoin=True)
+
+    @property
+    def status(self) -> str:
+        """The finding's triage status (``open``, ``acknowledged``, ``closed``)."""
+        return self.finding.status
 
 
 class ApiToken(Base):

@@ -59,6 +59,15 @@ def _store_exams(store, n_per_month: int = 25) -> str:
 
         ids = s.scalars(select(m.ExposureEventRow.id)).all()
     process_new_events(store.session_factory, ids)
+    from beamaudit.api.review import LevelEntry, ReferenceLevelSet
+    from beamaudit.api.reviews import store_level_sets
+
+    local = ReferenceLevelSet(
+        "Fernmoor local DRLs (invented)", "local", "2026-1", datetime(2026, 1, 1).date(), "",
+        (LevelEntry("chest_pa", "dap_gy_cm2", 0.05, "Gy.cm2"),),
+    )  # fmt: skip
+    with store.session_factory.begin() as s:
+        store_level_sets(s, [local], actor="test")
     for month in (9, 10):
         run_review(store.session_factory, ReviewParameters(period=Period.month(2026, month)))
     return first_uid
@@ -131,3 +140,90 @@ def test_static_files_and_unknown_period(site) -> None:
     assert client.get("/static/plotly.min.js").status_code == 200
     assert client.get("/static/../settings.py").status_code == 404
     assert _get(client, "/?period=2030-01", viewer).status_code == 404
+
+
+def _open_flags_shown(client, token, period: str) -> tuple[int, str]:
+    """The overview's count of open flags and the flags page's rows for ``period``."""
+    import re
+
+    overview = _get(client, f"/?period={period}", token).text
+    count = re.search(r"(\d+) open flag", overview)
+    flags = _get(client, f"/flags?period={period}", token).text
+    return (int(count.group(1)) if count else 0), flags
+
+
+def test_a_room_run_never_replaces_the_month(site, store) -> None:
+    # a review of one room (or of a room the store does not know) is listed with its scope;
+    # the overview, the flags page and the committee report keep the whole-site review
+    client, viewer, _, _ = site
+    open_before, flags_before = _open_flags_shown(client, viewer, "2026-10")
+    report_before = _get(client, "/reports/2026-10", viewer).text
+    assert open_before > 0 and "RAD B" in flags_before
+    params = ReviewParameters(period=Period.month(2026, 10), rooms=("RAD A",))
+    room_run = run_review(store.session_factory, params)
+    open_after, flags_after = _open_flags_shown(client, viewer, "2026-10")
+    assert open_after == open_before
+    assert "RAD B" in flags_after  # the other room's flags are still the month's
+    report = _get(client, "/reports/2026-10", viewer).text
+    assert f"Review run {room_run}," not in report
+    assert report.count("RAD B") == report_before.count("RAD B")
+    overview = _get(client, "/?period=2026-10", viewer).text
+    assert "room RAD A" in overview  # listed, as what it is
+
+
+def test_a_date_range_run_leaves_every_page_standing(site, store) -> None:
+    client, viewer, _, _ = site
+    run_review(
+        store.session_factory,
+        ReviewParameters(period=Period.parse("2026-09-01/2026-11-01")),
+    )
+    for path in ("/", "/flags", "/distributions", "/reports/2026-10", "/rooms/RAD%20A"):
+        r = _get(client, path, viewer)
+        assert r.status_code == 200, (path, r.text[:300])
+    assert "Review of 2026-10" in _get(client, "/", viewer).text
+
+
+BAD_PARAMETERS = (
+    "/flags?period=2026-13",
+    "/distributions?quantity=bogus",
+    "/distributions?period=2026-1",
+    "/?period=October",
+    "/reports/2026-13",
+    "/flags?status=pending",
+    "/flags?kind=nothing_like_it",
+)
+UNKNOWN_THINGS = (
+    ("/rooms/RAD%20AX", "RAD A"),  # the closest known room is named
+    ("/?period=2030-01", "2030-01"),
+    ("/reports/2030-01", "2030-01"),
+    ("/distributions?exam_type=chest_pq", "chest_pa"),
+    ("/flags?room=RAD%20BX", "RAD B"),
+    ("/no/such/page", "no such page"),
+)
+
+
+def test_bad_page_parameters_are_400_pages(site) -> None:
+    client, viewer, _, _ = site
+    for path in BAD_PARAMETERS:
+        r = _get(client, path, viewer)
+        assert r.status_code == 400, (path, r.text[:300])
+        assert r.headers["content-type"].startswith("text/html"), path
+        assert "<html" in r.text and CAUTION_WORDS in r.text.lower()
+
+
+def test_unknown_things_are_404_pages_for_a_browser(site) -> None:
+    client, viewer, _, _ = site
+    for path, words in UNKNOWN_THINGS:
+        r = _get(client, path, viewer)
+        assert r.status_code == 404, (path, r.text[:300])
+        assert r.headers["content-type"].startswith("text/html"), path
+        assert words in r.text, (path, r.text[r.text.find("<main>") : r.text.find("</main>")])
+
+
+def test_unknown_study_is_a_404_page_and_the_api_answers_json(site) -> None:
+    client, _, physicist, _ = site
+    page = _get(client, "/exams/2.25.0", physicist)
+    assert page.status_code == 404 and page.headers["content-type"].startswith("text/html")
+    api = _get(client, "/api/v1/reviews/424242", physicist)
+    assert api.status_code == 404 and api.headers["content-type"] == "application/json"
+    assert api.json()["detail"]

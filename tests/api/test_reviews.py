@@ -295,33 +295,31 @@ def test_an_empty_period_through_the_driver_is_the_plain_empty_table(store, monk
 
 
 def test_a_store_the_driver_cannot_reach_is_read_through_the_session(store, monkeypatch) -> None:
-    # the driver's own connection is refused (a password given only to the store's engine, say):
-    # the review reads through the session's connection, with the same result
+    # the driver cannot read the store (PostgreSQL: a password given only to the store's engine
+    # refuses its connection; SQLite: a file its process cannot open): the review reads through
+    # the session's connection, with the same result
+    import adbc_driver_postgresql.dbapi
+    from adbc_driver_manager import AdbcStatusCode, OperationalError
+
     import beamaudit.api.reviews as reviews
 
     _fill(store.session_factory, n=90, seed=9)
     with store.session_factory() as session:
         expected = review_events(session, start=START, end=END)
-    name = "_postgres_arrow_reader" if store.backend == "postgresql" else "_sqlite_arrow_reader"
-    reader = getattr(reviews, name)
-    monkeypatch.setattr(reviews, name, lambda session: _refusing(reader(session)))
+
+    def refuse(*args: Any, **kwargs: Any) -> Any:
+        raise OperationalError("connection refused (test)", status_code=AdbcStatusCode.IO)
+
+    monkeypatch.setattr(adbc_driver_postgresql.dbapi, "connect", refuse)
+    monkeypatch.setattr(reviews, "_sqlite_file", lambda session: "/nonexistent/store.db")
+    arrow = reviews._dense_by_arrow
+    taken: list[bool] = []
+    monkeypatch.setattr(
+        reviews, "_dense_by_arrow", lambda *a: (out := arrow(*a), taken.append(out is not None))[0]
+    )
     with store.session_factory() as session:
         pd.testing.assert_frame_equal(review_events(session, start=START, end=END), expected)
-
-
-def _refusing(source: Any) -> Any:
-    """A driver source whose connections fail as a refused one does (the driver's error)."""
-    from contextlib import contextmanager
-    from dataclasses import replace
-
-    from adbc_driver_manager import AdbcStatusCode, OperationalError
-
-    @contextmanager
-    def connect() -> Any:
-        raise OperationalError("connection refused (test)", status_code=AdbcStatusCode.IO)
-        yield
-
-    return replace(source, connect=connect)
+    assert taken == [False]
 
 
 def test_events_the_session_has_not_committed_are_read_too(store) -> None:
@@ -364,3 +362,86 @@ def test_levels_the_store_cannot_keep_are_refused_whole(store) -> None:
         store_level_sets(session, [invented])
     with store.session_factory() as session:
         assert session.scalars(select(m.ReferenceLevelSetRow)).all() == []
+
+
+def _one_event(sessions: Any, event_id: int, when: datetime, **values: Any) -> None:
+    """One stored event (a source object of its own), as a new site's first exams are."""
+    with sessions.begin() as s:
+        if s.get(m.Site, 1) is None:
+            s.execute(insert(m.Site), {"id": 1, "name": "Site A (invented)"})
+            s.execute(insert(m.Room), {"id": 3, "site_id": 1, "name": "ROOM 3"})
+        s.execute(
+            insert(m.SourceObjectRow),
+            {"id": event_id, "sop_instance_uid": f"2.25.6{event_id}", "sop_class_uid": "1.2.3",
+             "kind": "image_header", "received_via": "test"},
+        )  # fmt: skip
+        s.execute(
+            insert(m.ExposureEventRow),
+            {"id": event_id, "event_key": f"k{event_id}", "source_object_id": event_id,
+             "event_index": 0, "source_kind": "image_header", "superseded": False,
+             "room_id": 3, "modality": "DX", "exam_type": "chest_pa", "event_datetime": when,
+             "patient_weight_kg": 70.0, "dap_gy_cm2": 0.1, "provenance": {}, "notes": [],
+             **values},
+        )  # fmt: skip
+
+
+def test_a_month_of_one_event_is_reviewed(store) -> None:
+    # a new site's first exam: one of the two read halves (even and odd ids) holds no event
+    _one_event(store.session_factory, 1, datetime(2026, 3, 4, 10, tzinfo=UTC))
+    params = ReviewParameters(period=Period(START, END))
+    with store.session_factory.begin() as session:
+        frame = review_events(session, start=START, end=END)
+        result, _ = execute_review(session, params)
+    assert list(frame["event_id"]) == [1]
+    assert frame["dap_gy_cm2"].tolist() == [0.1]
+    assert result.n_events == 1
+
+
+def test_a_month_whose_history_holds_single_events_is_reviewed(store) -> None:
+    # the change-point history reads earlier months the same way: months of one event each,
+    # and months of none, before a month of one event
+    _one_event(store.session_factory, 2, datetime(2025, 12, 20, tzinfo=UTC))
+    _one_event(store.session_factory, 5, datetime(2026, 1, 9, tzinfo=UTC), dap_gy_cm2=None)
+    _one_event(store.session_factory, 8, datetime(2026, 3, 2, tzinfo=UTC))
+    with store.session_factory.begin() as session:
+        history = review_events(session, start=date(2024, 3, 1), end=START)
+        result, _ = execute_review(session, ReviewParameters(period=Period(START, END)))
+    assert list(history["event_id"]) == [2, 5]
+    assert math.isnan(history["dap_gy_cm2"].iloc[1])
+    assert result.n_events == 1
+
+
+_ONE_LIBRARY = """
+import sys
+from datetime import date
+from pathlib import Path
+from beamaudit.api.reviews import review_events
+from beamaudit.api.store import make_engine, make_session_factory
+engine = make_engine(sys.argv[1])
+with make_session_factory(engine)() as session:
+    n = len(review_events(session, start=date(2026, 3, 1), end=date(2026, 4, 1)))
+maps = Path("/proc/self/maps").read_text()
+print(n, "adbc_driver_sqlite" in maps or "libadbc_driver_sqlite" in maps)
+"""
+
+
+def test_the_review_read_never_loads_a_second_sqlite_library(tmp_path) -> None:
+    # POSIX locks belong to a process: a second copy of SQLite closing the file would drop the
+    # locks of the process's own connections (and lose its later writes). The fast read runs the
+    # driver in a process of its own, so the reading process never maps the driver's library.
+    import subprocess
+    import sys
+
+    from beamaudit.api.store import make_engine, make_session_factory, upgrade
+
+    url = f"sqlite:///{tmp_path / 'store.db'}"
+    engine = make_engine(url)
+    upgrade(engine)
+    _fill(make_session_factory(engine), n=60, seed=2)
+    engine.dispose()
+    done = subprocess.run(
+        [sys.executable, "-c", _ONE_LIBRARY, url], capture_output=True, text=True, timeout=120
+    )
+    assert done.returncode == 0, done.stderr
+    n, loaded = done.stdout.split()
+    assert int(n) > 0 and loaded == "False"

@@ -153,3 +153,28 @@ def seed(store: Any, results: list[ParseResult]) -> list[int]:
 
 #: for tests of request validation only, which answers before any SQL is sent: SQLite suffices
 validation_only = pytest.mark.parametrize("shared_store", ["sqlite"], indirect=True)
+
+
+def stored_run(store: Any, flags: list[dict[str, Any]], **fields: Any) -> int:
+    """A review run of November 2026 stored as the review stores one (``fields`` over the
+    defaults), with ``flags`` (the core's JSON) as occurrences of their findings; its id."""
+    from datetime import date
+
+    from beamaudit.api.findings import store_flags
+    from beamaudit.api.store import models as m
+
+    with store.session_factory.begin() as session:
+        run = m.ReviewRun(
+            **{
+                "kind": "monthly",
+                "period": "2026-11",
+                "period_start": date(2026, 11, 1),
+                "period_end": date(2026, 12, 1),
+                "software_version": "test",
+                **fields,
+            }
+        )
+        session.add(run)
+        session.flush()
+        store_flags(session, run, flags)
+        return run.id

@@ -5,7 +5,7 @@ from __future__ import annotations
 from datetime import datetime
 
 import pytest
-from api_support import parse_result, seed, validation_only
+from api_support import parse_result, seed, stored_run, validation_only
 from sqlalchemy import update
 
 from beamaudit.api.store import models as m
@@ -103,19 +103,13 @@ def test_room_site_and_device_filters(api, events) -> None:
 
 
 def test_flag_filter_finds_flagged_events(api, events) -> None:
-    with api.store.session_factory.begin() as s:
-        run = m.ReviewRun(kind="monthly", period="2026-11", software_version="test")
-        s.add(run)
-        s.flush()
-        s.add(
-            m.FlagRow(
-                review_run_id=run.id,
-                kind="dap_ratio",
-                severity="warning",
-                reason="reported DAP 20 % above reconstruction",
-                event_id=events[0],
-            )
-        )
+    flag = {
+        "kind": "dap_ratio",
+        "severity": "warning",
+        "reason": "reported DAP 20 % above reconstruction",
+        "concerns": {"event_id": events[0]},
+    }
+    stored_run(api.store, [flag])
     body = api.get("/events", params={"flag": "dap_ratio"}).json()
     assert [e["id"] for e in body["items"]] == [events[0]]
     exams = api.get("/exams", params={"flag": "dap_ratio"}).json()["items"]

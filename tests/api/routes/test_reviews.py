@@ -11,7 +11,7 @@ import io
 from datetime import datetime
 
 import pytest
-from api_support import parse_result, seed
+from api_support import parse_result, seed, stored_run
 from openpyxl import load_workbook
 
 LOCAL_LEVELS = {
@@ -82,7 +82,6 @@ def test_result_as_csv_and_xlsx(api, november) -> None:
 
 
 def test_viewer_sees_no_study_uids_or_event_ids(api) -> None:
-    from beamaudit.api.store import models as m
 
     # a stored run whose result and flags name an exam (as the core's exam-level flags do)
     concerns = {"event_id": 7, "study_uid": "1.2.7.300", "room": "RAD1", "exam_type": "chest_pa"}
@@ -93,29 +92,13 @@ def test_viewer_sees_no_study_uids_or_event_ids(api) -> None:
         "numbers": {"dap_gy_cm2": 0.41},
         "concerns": concerns,
     }
-    with api.store.session_factory.begin() as s:
-        run = m.ReviewRun(
-            kind="monthly",
-            period="2026-11",
-            software_version="test",
-            status="done",
-            result={"n_events": 30, "groups": [], "flags": [flag], "unmapped": []},
-        )
-        s.add(run)
-        s.flush()
-        s.add(
-            m.FlagRow(
-                review_run_id=run.id,
-                kind=flag["kind"],
-                severity="warning",
-                reason=flag["reason"],
-                numbers=flag["numbers"],
-                study_instance_uid="1.2.7.300",
-                room="RAD1",
-                exam_type="chest_pa",
-            )
-        )
-        run_id = run.id
+    stored = {k: v for k, v in concerns.items() if k != "event_id"}  # no such event stored
+    run_id = stored_run(
+        api.store,
+        [{**flag, "concerns": stored}],
+        status="done",
+        result={"n_events": 30, "groups": [], "flags": [flag], "unmapped": []},
+    )
     physicist = api.get(f"/reviews/{run_id}/result", as_="physicist").json()
     assert physicist["flags"][0]["concerns"]["study_uid"] == "1.2.7.300"
     viewer = api.get(f"/reviews/{run_id}/result", as_="viewer").json()
@@ -132,20 +115,74 @@ def test_viewer_sees_no_study_uids_or_event_ids(api) -> None:
     assert not any("1.2.7." in str(c) for row in sheet.iter_rows(values_only=True) for c in row)
 
 
-def test_flag_status_is_changed_by_physicists_and_audited(api, november) -> None:
+def _group_flag(api, run_id: int) -> dict:
+    flags = api.get(f"/reviews/{run_id}/flags", params={"kind": "group_above_level"}).json()
+    assert len(flags) == 1, flags
+    return flags[0]
+
+
+NOTE = "DAP meter checked on 2026-12-02; the chest protocol is under review"
+
+
+def test_flag_triage_needs_a_physicist_and_a_note_and_is_audited(api, november) -> None:
     run_id = api.post("/reviews", json={"period": "2026-11"}).json()["id"]
-    flag = api.get(f"/reviews/{run_id}/flags", params={"kind": "group_above_level"}).json()[0]
+    flag = _group_flag(api, run_id)
     path = f"/reviews/{run_id}/flags/{flag['id']}"
-    assert api.patch(path, json={"status": "acknowledged"}, as_="viewer").status_code == 403
-    changed = api.patch(path, json={"status": "acknowledged"}, as_="physicist")
-    assert changed.status_code == 200 and changed.json()["status"] == "acknowledged"
-    log = api.get("/audit-log", params={"entity": "flag"}).json()["items"]
-    assert [(e["before"], e["after"]) for e in log] == [
-        ({"status": "open"}, {"status": "acknowledged"})
-    ]
     assert (
-        api.patch(f"/reviews/{run_id}/flags/424242", json={"status": "closed"}).status_code == 404
+        api.patch(path, json={"status": "acknowledged", "note": NOTE}, as_="viewer").status_code
+        == 403
     )
+    for body in ({"status": "acknowledged"}, {"status": "closed", "note": "  "}):
+        refused = api.patch(path, json=body, as_="physicist")
+        assert refused.status_code == 422, refused.text
+        assert ["body", "note"] in [d["loc"] for d in refused.json()["detail"]]
+    changed = api.patch(path, json={"status": "acknowledged", "note": NOTE}, as_="physicist")
+    assert changed.status_code == 200, changed.text
+    read = changed.json()
+    assert (read["status"], read["note"]) == ("acknowledged", NOTE)
+    assert read["status_by"].startswith(f"token:{api.token_ids['physicist']}")
+    assert read["status_at"] is not None
+    log = api.get("/audit-log", params={"entity": "finding"}).json()["items"]
+    assert [(e["entity_id"], e["before"], e["after"]) for e in log] == [
+        (
+            str(flag["finding_id"]),
+            {"status": "open", "note": None},
+            {"status": "acknowledged", "note": NOTE, "flag_id": flag["id"]},
+        )
+    ]
+    reopened = api.patch(path, json={"status": "open"}, as_="physicist")  # no note needed
+    assert reopened.status_code == 200 and reopened.json()["status"] == "open"
+    assert api.patch(f"/reviews/{run_id}/flags/424242", json={"status": "open"}).status_code == 404
+
+
+def test_triage_carries_over_to_a_later_run_with_what_changed(api, november) -> None:
+    first = api.post("/reviews", json={"period": "2026-11"}).json()["id"]
+    flag = _group_flag(api, first)
+    assert flag["status"] == "open" and flag["changes"] is None  # found for the first time
+    path = f"/reviews/{first}/flags/{flag['id']}"
+    assert api.patch(path, json={"status": "acknowledged", "note": NOTE}).status_code == 200
+    # five more exams arrive; the month is reviewed again (by hand, then by the nightly run)
+    seed(
+        api.store,
+        [
+            parse_result(f"1.2.8.{i}", study=f"1.2.8.{i}00", when=datetime(2026, 11, 20, 10),
+                         body_part="CHEST", view_position="PA", dap_gy_cm2=0.9)
+            for i in range(5)
+        ],
+    )  # fmt: skip
+    second = api.post("/reviews", json={"period": "2026-11"}).json()["id"]
+    again = _group_flag(api, second)
+    assert again["id"] != flag["id"] and again["finding_id"] == flag["finding_id"]
+    assert (again["status"], again["note"]) == ("acknowledged", NOTE)
+    assert again["changes"]["n_used"] == {"before": 30, "after": 35}
+    assert again["changes"]["median"]["before"] == pytest.approx(flag["numbers"]["median"])
+    assert "level_set" not in again["changes"]  # what did not change is not listed
+    nightly = api.post("/reviews", json={"period": "2026-11-01/2026-11-30", "kind": "nightly"})
+    assert nightly.status_code == 201, nightly.text
+    third = _group_flag(api, nightly.json()["id"])
+    assert third["finding_id"] == flag["finding_id"] and third["status"] == "acknowledged"
+    # the first run's flag is the same finding: it shows the same triage
+    assert _group_flag(api, first)["status"] == "acknowledged"
 
 
 def test_a_run_with_no_result_is_409(api) -> None:
@@ -192,3 +229,70 @@ def test_bad_review_requests_are_422(api, body, loc) -> None:
 
 def test_viewer_cannot_start_a_review(api) -> None:
     assert api.post("/reviews", json={"period": "2026-11"}, as_="viewer").status_code == 403
+
+
+def test_runs_keep_their_scope_and_only_a_whole_site_month_is_the_record(api, november) -> None:
+    whole = api.post("/reviews", json={"period": "2026-11"}).json()
+    assert whole["scope"] == {} and whole["whole_site"] and whole["record"]
+    assert whole["scope_text"] == "whole site, 2026-11"
+    room = api.post("/reviews", json={"period": "2026-11", "parameters": {"rooms": ["RAD1"]}})
+    assert room.status_code == 201, room.text
+    assert room.json()["scope"] == {"rooms": ["RAD1"]}
+    assert not room.json()["whole_site"] and not room.json()["record"]
+    assert room.json()["scope_text"] == "room RAD1, 2026-11"
+    ranged = api.post("/reviews", json={"period": "2026-10-15/2026-12-01"}).json()
+    assert ranged["whole_site"] and not ranged["record"]
+    assert ranged["scope_text"] == "whole site, 2026-10-15 to 2026-11-30"
+    assert (ranged["period_start"], ranged["period_end"]) == ("2026-10-15", "2026-12-01")
+    listed = {r["id"]: r["record"] for r in api.get("/reviews", as_="viewer").json()["items"]}
+    assert listed == {whole["id"]: True, room.json()["id"]: False, ranged["id"]: False}
+
+
+def test_unknown_room_or_exam_type_is_404_naming_the_closest_and_stores_nothing(
+    api, november
+) -> None:
+    for parameters, closest in (
+        ({"rooms": ["RAD 1"]}, "RAD1"),
+        ({"exam_types": ["chest_pq"]}, "chest_pa"),
+        ({"sites": ["Holowbrook General (invented)"]}, "Hollowbrook General (invented)"),
+    ):
+        r = api.post("/reviews", json={"period": "2026-11", "parameters": parameters})
+        assert r.status_code == 404, r.text
+        assert closest in r.json()["detail"]
+    assert api.get("/reviews").json()["items"] == []
+
+
+def test_a_period_without_events_is_refused_and_stores_nothing(api, november) -> None:
+    r = api.post("/reviews", json={"period": "2026-12"})
+    assert r.status_code == 409, r.text
+    assert "no events" in r.json()["detail"] and "2026-12" in r.json()["detail"]
+    assert api.get("/reviews").json()["items"] == []
+
+
+def test_admin_supersedes_and_deletes_runs_and_both_are_audited(api, november) -> None:
+    first = api.post("/reviews", json={"period": "2026-11"}).json()["id"]
+    second = api.post("/reviews", json={"period": "2026-11"}).json()["id"]
+    assert api.get(f"/reviews/{second}").json()["record"]
+    reason = {"reason": "run before the corrected local levels were imported"}
+    assert api.post(f"/reviews/{second}/supersede", json=reason, as_="physicist").status_code == 403
+    assert api.post(f"/reviews/{second}/supersede", json={}).status_code == 422
+    superseded = api.post(f"/reviews/{second}/supersede", json=reason)
+    assert superseded.status_code == 200, superseded.text
+    body = superseded.json()
+    assert body["superseded_at"] and not body["record"]
+    assert body["superseded_by"].startswith(f"token:{api.token_ids['admin']}")
+    assert api.get(f"/reviews/{first}").json()["record"]  # the earlier run is the record again
+    assert api.post(f"/reviews/{second}/supersede", json=reason).status_code == 409
+    n_flags = len(api.get(f"/reviews/{first}/flags").json())
+    assert n_flags > 0
+    assert api.delete(f"/reviews/{first}", as_="physicist").status_code == 403
+    assert api.delete(f"/reviews/{first}").status_code == 422  # a reason is required
+    gone = api.delete(f"/reviews/{first}", params={"reason": "a test run"})
+    assert gone.status_code == 204, gone.text
+    assert api.get(f"/reviews/{first}").status_code == 404
+    assert api.get(f"/reviews/{first}/flags").status_code == 404
+    log = api.get("/audit-log", params={"entity": "review_run"}).json()["items"]
+    actions = {(e["action"], e["entity_id"]) for e in log}
+    assert {("supersede", str(second)), ("delete", str(first))} <= actions
+    deleted = next(e for e in log if e["action"] == "delete")
+    assert deleted["before"]["n_flags"] == n_flags and deleted["after"] == {"reason": "a test run"}
