@@ -267,6 +267,19 @@ def _meta_says_dicomdir(meta: bytes) -> bool:
     return False
 
 
+def _meta_cut_short(head: bytes, size: int | None) -> bool:
+    """Whether a file with a preamble ends inside a value of its group 0002 (as the element
+    headers in its first bytes declare it): a cut there, not a bad value, is what failed."""
+    if size is None or len(head) < 132 or head[128:132] != b"DICM":
+        return False
+    for element, _, start, length in _group_0002(head, 132):
+        if start + length > size:
+            return True
+        if element == 0x0000 and length == 4:  # (0002,0000) File Meta Information Group Length
+            return size < start + 4 + int.from_bytes(head[start : start + 4], "little")
+    return size <= 132 + 12  # not even the group length's whole element
+
+
 def _group_0002(data: bytes, offset: int) -> Iterator[tuple[int, bytes, int, int]]:
     """Element number, VR, value offset and value length of each element of the explicit-VR
     little-endian group 0002 starting at ``offset`` of ``data``, as their headers say (values
@@ -380,6 +393,10 @@ def read_open_file(
         # pydicom's "No tag to read at file position ...": a sequence or item never closed
         raise IngestError("truncated", f"the object ends early: {exc}", source) from None
     except _UNDECODABLE as exc:
+        if _meta_cut_short(head, size):
+            raise IngestError(
+                "truncated", "the object ends inside its file meta group", source
+            ) from None
         raise IngestError("bad_value", _undecodable_reason(exc), source) from None
     try:
         _check_complete(ds, fh, size)

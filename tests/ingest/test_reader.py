@@ -68,7 +68,13 @@ def test_missing_file_is_unreadable(tmp_path: Path) -> None:
 
 @pytest.mark.parametrize("keep", [0.3, 0.6, 0.9])
 def test_truncated_header_is_reported(tmp_path: Path, keep: float) -> None:
-    data = to_bytes(header(KVP="80", StationName="ROOM-1", ProtocolName="Chest PA erect, 180 cm"))
+    # fixed UIDs: generated ones vary in length, and a cut that happens to land on an element
+    # boundary after the required attributes leaves a readable (shorter) header
+    ds = header(KVP="80", StationName="ROOM-1", ProtocolName="Chest PA erect, 180 cm",
+                SOPInstanceUID="2.25.101", StudyInstanceUID="2.25.102",
+                SeriesInstanceUID="2.25.103")  # fmt: skip
+    ds.file_meta.MediaStorageSOPInstanceUID = ds.SOPInstanceUID
+    data = to_bytes(ds)
     path = tmp_path / "cut"
     path.write_bytes(data[: int(len(data) * keep)])
     with pytest.raises(IngestError) as info:
@@ -172,3 +178,18 @@ def test_every_installed_sample_file_parses_or_gives_an_ingest_error() -> None:
     assert counts["parsed"] >= 50
     assert counts["unsupported_sop_class"] >= 50  # MR, US, RT, SC...
     assert counts.get("truncated", 0) >= 1  # rtplan_truncated.dcm
+
+
+def test_every_cut_inside_the_file_meta_group_is_truncated(tmp_path: Path) -> None:
+    # DICOM PS3.10 7.1: the preamble, "DICM", then group 0002 (explicit VR little endian); a
+    # file cut anywhere in it is a cut file, whatever the element its end falls in
+    ds = header(KVP="80", SOPInstanceUID="2.25.101")
+    ds.file_meta.MediaStorageSOPInstanceUID = ds.SOPInstanceUID
+    data = to_bytes(ds)
+    meta_end = data.index(b"\x08\x00", 132)  # the first element of group 0008
+    path = tmp_path / "cut"
+    for cut in range(133, meta_end):
+        path.write_bytes(data[:cut])
+        with pytest.raises(IngestError) as info:
+            read_file(path, pseudonymiser=PSEUDONYMISER)
+        assert info.value.code == "truncated", (cut, info.value)
