@@ -84,6 +84,9 @@ async def _database_unavailable(request: Request, exc: Exception) -> JSONRespons
 
 def create_app(settings: Settings, *, engine: Engine | None = None) -> FastAPI:
     """Assemble the application for ``settings`` (the engine is made if not given)."""
+    from beamaudit.api.logs import configure_logging
+
+    configure_logging()  # one line per record, library warnings without data values
     engine = engine if engine is not None else make_engine(settings.database_url)
     app = FastAPI(
         title="beamaudit",

@@ -24,6 +24,7 @@ from typing import Any
 from beamaudit.api.pipeline import Pipeline, StoreOutcome, prepare
 from beamaudit.ingest.errors import IngestError
 from beamaudit.ingest.events import ParseResult
+from beamaudit.ingest.scrub import remove_values
 
 __all__ = ["BATCH_SIZE", "ScanSummary", "freeze_heap", "scan_paths"]
 
@@ -93,7 +94,9 @@ def _parse_one(path_text: str) -> tuple[str, str, ParseResult | IngestError | No
     if outcome.result is not None and caught:
         # pydicom's warnings about tolerated deviations become notes on the object
         outcome.result.warnings.extend(
-            f"while reading: {w.message}" for w in caught if issubclass(w.category, UserWarning)
+            f"while reading: {remove_values(str(w.message))}"
+            for w in caught
+            if issubclass(w.category, UserWarning)
         )
     if outcome.skipped:
         return path_text, "dicomdir", None, None

@@ -33,13 +33,3 @@ def _postgres_url() -> str | None:
             pytest.fail(f"CI=true but {reason}")
         pytest.skip(reason)
     return url
-
-
-def cli_url(store: StoreHandle) -> str:
-    """The store's URL as a ``beamaudit`` command reaches it (a PostgreSQL test schema included)."""
-    options = str(store.connect_args.get("options", ""))
-    if not options:
-        return store.url
-    schema = options.removeprefix("-csearch_path=")
-    separator = "&" if "?" in store.url else "?"
-    return f"{store.url}{separator}options=-csearch_path%3D{schema}"

@@ -17,9 +17,12 @@ def serve_command(
     port: Annotated[int, typer.Option(min=1, max=65535, help="TCP port.")] = 8000,
 ) -> None:
     """Apply migrations, then serve the API (/api/v1) and the dashboards (/)."""
+    import logging
+
     import uvicorn
 
     from beamaudit.api.app import create_app
+    from beamaudit.api.logs import configure_logging
     from beamaudit.api.store import StoreError, check_connection, make_engine, upgrade
 
     settings = load_settings(ctx)
@@ -30,7 +33,11 @@ def serve_command(
     except StoreError as exc:
         fail(str(exc))
     console.print(f"beamaudit serving on http://{host}:{port}/ (database: {settings.backend})")
-    uvicorn.run(create_app(settings, engine=engine), host=host, port=port, log_level="info")
+    app = create_app(settings, engine=engine)
+    config = uvicorn.Config(app, host=host, port=port, log_level="info")
+    server = uvicorn.Server(config)  # uvicorn's logging is set up now: filter its handlers too
+    configure_logging(logging.INFO)
+    server.run()
 
 
 def register(app: typer.Typer) -> None:

@@ -10,27 +10,41 @@ from __future__ import annotations
 import csv
 import io
 import json
+import subprocess
+import sys
 
 import pytest
 from api_support import parse_result, seed
-from store_support import cli_url
-
-from beamaudit.api.cli import main
+from procs import shared_store
 
 LINK = '=HYPERLINK("http://attacker.invalid","open")'
 
 
-@pytest.fixture
-def cli_store(store, tmp_path, monkeypatch):
-    monkeypatch.setenv("BEAMAUDIT_DATABASE_URL", cli_url(store))
-    monkeypatch.setenv("BEAMAUDIT_SECRET_KEY_PATH", str(tmp_path / "secret.key"))
-    monkeypatch.delenv("BEAMAUDIT_CONFIG", raising=False)
-    return store
+class _Handle:
+    def __init__(self, store) -> None:
+        self.session_factory = store.sessions
 
 
-def test_export_events_csv_neutralises_formulas_and_carries_uids(cli_store, capsys) -> None:
+def _export(store, fmt: str) -> str:
+    done = subprocess.run(
+        [sys.executable, "-m", "beamaudit", "export", "events", "--format", fmt],
+        env=store.env(), capture_output=True, text=True, timeout=120,
+    )  # fmt: skip
+    assert done.returncode == 0, done.stderr
+    return done.stdout
+
+
+@pytest.mark.parametrize(
+    "backend", ["sqlite", pytest.param("postgresql", marks=pytest.mark.postgres)]
+)
+def test_export_events_csv_neutralises_formulas_and_carries_uids(backend, tmp_path) -> None:
+    with shared_store(backend, tmp_path) as store:
+        _check(store)
+
+
+def _check(store) -> None:
     seed(
-        cli_store,
+        _Handle(store),
         [
             parse_result(
                 "1.2.826.0.1.3680043.8.498.77",
@@ -41,8 +55,7 @@ def test_export_events_csv_neutralises_formulas_and_carries_uids(cli_store, caps
             )
         ],
     )
-    assert main(["export", "events", "--format", "csv"]) == 0
-    (row,) = list(csv.DictReader(io.StringIO(capsys.readouterr().out)))
+    (row,) = list(csv.DictReader(io.StringIO(_export(store, "csv"))))
     assert row["station_name"] == "'" + LINK
     assert row["protocol_name"] == "'-2+3"
     assert row["series_description"] == "'@SUM(A1)"
@@ -52,7 +65,6 @@ def test_export_events_csv_neutralises_formulas_and_carries_uids(cli_store, caps
     for value in row.values():
         assert not value.startswith(("=", "+", "@", "\t", "\r")), value
 
-    assert main(["export", "events", "--format", "json"]) == 0
-    (item,) = json.loads(capsys.readouterr().out)
+    (item,) = json.loads(_export(store, "json"))
     assert item["station_name"] == LINK  # JSON carries the value as it is
     assert item["sop_instance_uid"] == "1.2.826.0.1.3680043.8.498.77"

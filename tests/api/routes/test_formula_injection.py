@@ -99,9 +99,7 @@ def test_level_set_csv_export_is_safe_and_round_trips(api) -> None:
         "version": "-1",
         "effective_from": "2026-01-01",
         "source": "@committee",
-        "levels": [
-            {"exam_type": "chest_pa", "quantity": "dap_gy_cm2", "value": 0.1}
-        ],
+        "levels": [{"exam_type": "chest_pa", "quantity": "dap_gy_cm2", "value": 0.1}],
     }
     created = api.post("/level-sets", json=body, as_="physicist")
     assert created.status_code == 201, created.text
