@@ -50,6 +50,14 @@ def listen_command(
             host=host or cfg.host,
             port=port or cfg.port,
             allowed_calling_aets=frozenset(allowed) if allowed else None,
+            max_associations=cfg.max_associations,
+            max_associations_per_ae=min(cfg.max_associations_per_ae, cfg.max_associations),
+            max_connections=cfg.max_connections,
+            max_objects_in_flight=cfg.max_objects_in_flight,
+            max_object_bytes=cfg.max_object_bytes,
+            request_timeout_s=cfg.request_timeout_s,
+            network_timeout_s=cfg.idle_timeout_s,
+            association_timeout_s=cfg.association_timeout_s,
         )
         handler = make_store_handler(
             Pipeline(store.sessions, completion=Completion()),
