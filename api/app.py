@@ -49,8 +49,8 @@ async def _invalid_request(request: Request, exc: Exception) -> JSONResponse:
     from fastapi.routing import APIRoute
     from starlette.concurrency import run_in_threadpool
 
-    from beamaudit.api.auth import authenticate, has_role
-    from beamaudit.api.deps import presented_token
+    from beamaudit.api.auth import has_role
+    from beamaudit.api.deps import csrf_problem, identify
     from beamaudit.api.routes._openapi import required_role
 
     route = request.scope.get("route")
@@ -59,15 +59,19 @@ async def _invalid_request(request: Request, exc: Exception) -> JSONResponse:
 
         def who() -> Any:
             with request.app.state.session_factory() as session:
-                return authenticate(session, presented_token(request))
+                return identify(request, session)
 
-        principal = await run_in_threadpool(who)
-        if principal is None:
+        identity = await run_in_threadpool(who)
+        if identity is None:
             return JSONResponse(
                 {"detail": "a valid API token is required (Authorization: Bearer <token>)"},
                 status_code=401,
                 headers={"WWW-Authenticate": "Bearer"},
             )
+        problem = csrf_problem(request, identity)
+        if problem is not None:
+            return JSONResponse({"detail": problem}, status_code=403)
+        principal = identity.principal
         if not has_role(principal.role, role):
             return JSONResponse(
                 {"detail": f"this needs the {role} role; the token has {principal.role}"},

@@ -73,12 +73,16 @@ class PageContext:
     software_version : str
         beamaudit's version, shown in the footer (the API passes it).
     signed_in_as : str
-        Who is signed in, shown in the masthead; empty to show nothing.
+        Who is signed in, shown in the masthead with a sign-out link; empty to show nothing.
+    csrf_token : str
+        The browser session's CSRF token, in a ``<meta name="csrf-token">`` for the page's own
+        scripts (a change made with the session cookie sends it as ``X-CSRF-Token``).
     """
 
     facility: str = ""
     software_version: str = ""
     signed_in_as: str = ""
+    csrf_token: str = ""
 
 
 # ------------------------------------------------------------------ files

@@ -33,6 +33,9 @@ __all__ = [
 class TokenCreate(InputModel):
     role: Literal["viewer", "physicist", "admin"]
     name: Name | None = Field(default=None, description="who or what the token is for")
+    expires_in_days: int | None = Field(
+        default=None, ge=1, le=3650, description="days the token stays valid; none: until revoked"
+    )
 
 
 class TokenRead(ReadModel):
@@ -43,7 +46,8 @@ class TokenRead(ReadModel):
     role: str
     created_at: datetime
     revoked_at: datetime | None
-    last_used_at: datetime | None
+    last_used_at: datetime | None = Field(description="last use, to the minute")
+    expires_at: datetime | None = Field(default=None, description="none: valid until revoked")
 
 
 class TokenCreated(TokenRead):
