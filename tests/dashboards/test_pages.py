@@ -215,7 +215,7 @@ def test_exam_page_shows_technique_dose_spectrum_and_why(pages: dict[str, str]) 
     assert "uses an assumed value" in words
     assert "Assumed: patient thickness 22 cm (no measured value)" in words
     assert sorted(page.figures) == ["spectrum-0", "spectrum-1"]
-    nav = 3  # Overview, Distributions, Flags
+    nav = 4  # Overview, Distributions, Flags, and Sign out beside who is signed in
     assert page.links[nav : nav + 3] == ["/rooms/West%20DR%201", "/", "/rooms/West%20DR%201"]
 
 
