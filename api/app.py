@@ -86,6 +86,39 @@ async def _database_unavailable(request: Request, exc: Exception) -> JSONRespons
     return JSONResponse({"detail": "the database is unavailable; try again later"}, status_code=503)
 
 
+def _add_docs(app: FastAPI) -> None:
+    """The interactive API docs at ``/api/v1/docs`` for signed-in users, with Swagger UI's
+    files served from the ``swagger-ui-bundle`` package (no public CDN)."""
+    from pathlib import Path
+
+    from fastapi import Depends, HTTPException
+    from fastapi.openapi.docs import get_swagger_ui_html
+    from fastapi.responses import FileResponse, HTMLResponse
+
+    from beamaudit.api.pages import page_viewer
+
+    files = {"swagger-ui-bundle.js": "application/javascript", "swagger-ui.css": "text/css"}
+
+    @app.get(f"{API_PREFIX}/docs", include_in_schema=False)
+    def docs(_: Any = Depends(page_viewer)) -> HTMLResponse:  # noqa: B008
+        return get_swagger_ui_html(
+            openapi_url=f"{API_PREFIX}/openapi.json",
+            title="beamaudit API",
+            swagger_js_url=f"{API_PREFIX}/docs/swagger-ui-bundle.js",
+            swagger_css_url=f"{API_PREFIX}/docs/swagger-ui.css",
+            swagger_favicon_url="data:,",
+        )
+
+    @app.get(f"{API_PREFIX}/docs/{{name}}", include_in_schema=False)
+    def docs_file(name: str) -> FileResponse:
+        import swagger_ui_bundle
+
+        if name not in files:  # a fixed list: no path from the request reaches the file system
+            raise HTTPException(404, "no such file")
+        path = Path(swagger_ui_bundle.swagger_ui_path) / name
+        return FileResponse(path, media_type=files[name], headers={"Cache-Control": "max-age=3600"})
+
+
 def create_app(settings: Settings, *, engine: Engine | None = None) -> FastAPI:
     """Assemble the application for ``settings`` (the engine is made if not given)."""
     from beamaudit.api.logs import configure_logging
@@ -101,10 +134,13 @@ def create_app(settings: Settings, *, engine: Engine | None = None) -> FastAPI:
             f"**Caution.** {CAUTION}"
         ),
         openapi_url=f"{API_PREFIX}/openapi.json",
-        docs_url=f"{API_PREFIX}/docs",
+        docs_url=None,  # api.docs: served below with the service's own assets, signed in only
         redoc_url=None,
     )
     app.state.settings = settings
+    from beamaudit.api.security_headers import SecurityHeaders
+
+    app.add_middleware(SecurityHeaders)
     if settings.api.cors_origins:  # off unless origins are configured
         from fastapi.middleware.cors import CORSMiddleware
 
@@ -146,6 +182,8 @@ def create_app(settings: Settings, *, engine: Engine | None = None) -> FastAPI:
     from beamaudit.api.pages import router as pages_router
 
     app.include_router(pages_router)
+    if settings.api.docs:
+        _add_docs(app)
     app.add_exception_handler(_LoginRedirect, login_redirect_handler)
     app.add_exception_handler(RequestValidationError, _invalid_request)
     app.add_exception_handler(OperationalError, _database_unavailable)

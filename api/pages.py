@@ -61,7 +61,9 @@ def _page_principal(role: str):
     return check
 
 
-PageViewer = Annotated[Principal, Depends(_page_principal("viewer"))]
+#: a dependency: the signed-in viewer (or higher) of a page, else a redirect to the login page
+page_viewer = _page_principal("viewer")
+PageViewer = Annotated[Principal, Depends(page_viewer)]
 PagePhysicist = Annotated[Principal, Depends(_page_principal("physicist"))]
 
 
