@@ -188,8 +188,19 @@ def scan_paths(
             pipeline.record_errors(pending_errors, received_via=received_via)
             pending_errors.clear()
 
-    parsed = _parsed(iter_candidate_files(paths), key, max(1, workers))
+    unreadable: list[IngestError] = []  # folders that cannot be listed: their files are lost
+
+    def note_unreadable_folders() -> None:
+        while unreadable:
+            error = unreadable.pop(0)
+            summary.errors.append(
+                {"source": error.source or "", "code": error.code, "reason": error.reason}
+            )
+            pending_errors.append((error, error.source))
+
+    parsed = _parsed(iter_candidate_files(paths, unreadable.append), key, max(1, workers))
     for path_text, kind, result, fingerprint in parsed:
+        note_unreadable_folders()
         summary.files += 1
         if kind == "dicomdir":
             summary.skipped += 1
@@ -204,6 +215,7 @@ def scan_paths(
             flush()
         if on_file is not None:
             on_file(path_text)
+    note_unreadable_folders()
     flush()
     return summary
 

@@ -87,6 +87,9 @@ def read_table(
         number of cells (each problem with its line number).
     """
     name, text = _read_text(source)
+    if "\x00" in text:
+        line = text.count("\n", 0, text.index("\x00")) + 1
+        raise CsvFormatError(name, [(line, "holds a NUL byte: save the table as CSV text")])
     lines = text.splitlines(keepends=True)
     offset = 0
     comments: list[str] = []
@@ -119,7 +122,7 @@ def read_table(
     if missing:
         problems.append((header_line, f"missing column(s): {', '.join(missing)}"))
     if problems:
-        raise CsvFormatError(name, problems)
+        raise CsvFormatError(name, _first(problems))
 
     rows: list[tuple[int, dict[str, str]]] = []
     previous = reader.line_num
@@ -142,8 +145,19 @@ def read_table(
         row.update({h: unquote_text(c.strip()) for h, c in zip(header, cells, strict=True)})
         rows.append((start, row))
     if problems:
-        raise CsvFormatError(name, problems)
+        raise CsvFormatError(name, _first(problems))
     return CsvTable(source=name, comments=tuple(comments), rows=tuple(rows))
+
+
+#: problems reported at most per file (a file of a million wrong columns says so in a page)
+MAX_PROBLEMS = 50
+
+
+def _first(problems: list[tuple[int | None, str]]) -> list[tuple[int | None, str]]:
+    if len(problems) <= MAX_PROBLEMS:
+        return problems
+    more = len(problems) - MAX_PROBLEMS
+    return [*problems[:MAX_PROBLEMS], (None, f"... and {more} more problems")]
 
 
 def write_table(
