@@ -59,12 +59,12 @@ def log_warning(
     _WARNINGS.warning("%s (%s): %s", category.__name__, module, remove_values(str(message)))
 
 
-class _StderrHandler(logging.StreamHandler):  # type: ignore[type-arg]
+class _StderrHandler(logging.StreamHandler):
     """Writes to the ``sys.stderr`` of the moment (a test's capture, a redirected stream)."""
 
     _beamaudit = True
 
-    @property  # type: ignore[override]
+    @property
     def stream(self) -> Any:
         import sys
 
@@ -85,9 +85,9 @@ def configure_logging(level: int = logging.WARNING) -> None:
     warnings through it (see the module docstring)."""
     root = logging.getLogger()
     if not any(getattr(h, "_beamaudit", False) for h in root.handlers):
-        handler = _StderrHandler()
-        handler.setFormatter(logging.Formatter(FORMAT))
-        root.addHandler(handler)
+        ours = _StderrHandler()
+        ours.setFormatter(logging.Formatter(FORMAT))
+        root.addHandler(ours)
     if root.level > level:
         root.setLevel(level)
     for name in ("", "uvicorn", "uvicorn.error", "uvicorn.access"):

@@ -233,7 +233,9 @@ class _BoundedAdapter(HTTPAdapter):
         self._origin = allowed_origin
         self._limits = limits
 
-    def send(self, request: Any, stream: bool = False, **kwargs: Any) -> Any:
+    def send(  # type: ignore[override]
+        self, request: Any, stream: bool = False, **kwargs: Any
+    ) -> Any:
         if origin(request.url) != self._origin:
             raise AnswerRefused(
                 f"the server sent the pull to another origin ({origin(request.url)}); "

@@ -667,7 +667,9 @@ class _Guard:
             )  # fmt: skip
             with self._lock:
                 self._received[key] = 0
-            event.assoc.dul.socket.close()
+            connection = event.assoc.dul.socket
+            if connection is not None:
+                connection.close()
 
     def object_done(self, assoc: Any) -> None:
         with self._lock:

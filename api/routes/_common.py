@@ -156,8 +156,8 @@ def check_csv_shape(data: bytes, *, max_columns: int, max_line: int) -> None:
 
     nul = data.find(b"\x00")
     if nul >= 0:
-        line = data.count(b"\n", 0, nul) + 1
-        bad(f"line {line} holds a NUL byte: save the table as CSV text")
+        where = data.count(b"\n", 0, nul) + 1
+        bad(f"line {where} holds a NUL byte: save the table as CSV text")
     header_seen = False
     for number, line in enumerate(data.split(b"\n"), start=1):
         if len(line) > max_line:
