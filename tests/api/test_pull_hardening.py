@@ -19,13 +19,12 @@ from pathlib import Path
 
 import pytest
 from fake_pacs import Study, dx_metadata, fake_pacs
-from procs import counts, shared_store
-from sqlalchemy import String, cast, select
+from procs import counts, every_value, shared_store
+from sqlalchemy import select
 
 from beamaudit.api.pipeline import Pipeline  # noqa: F401  (the store the pull writes through)
 from beamaudit.api.pulling import pull_source
 from beamaudit.api.settings import load
-from beamaudit.api.store import Base
 from beamaudit.api.store import models as m
 from beamaudit.ingest.dicomweb import DicomwebSource, PullError
 from beamaudit.ingest.pseudonym import Pseudonymiser
@@ -57,15 +56,6 @@ def _run(store, *args: str, **env: str) -> subprocess.CompletedProcess[str]:
         [sys.executable, "-m", "beamaudit", *args], env=store.env(**env),
         capture_output=True, text=True, timeout=180,
     )  # fmt: skip
-
-
-def _every_value(store) -> str:
-    parts: list[str] = []
-    with store.sessions() as session:
-        for table in Base.metadata.sorted_tables:
-            for row in session.execute(select(*(cast(c, String) for c in table.columns))):
-                parts.extend(str(v) for v in row if v is not None)
-    return "\n".join(parts)
 
 
 # ------------------------------------------------------------------------------- failures
@@ -199,7 +189,7 @@ def test_a_login_is_named_in_the_settings_sent_as_basic_auth_and_stored_nowhere(
         assert all(auth and auth.startswith("Basic ") for _, auth in pacs.seen[-3:])
         listed = _run(store, "sources", "list", **env)
         assert "SITEA" in listed.stdout
-        for text in (done.stdout, done.stderr, listed.stdout, _every_value(store)):
+        for text in (done.stdout, done.stderr, listed.stdout, every_value(store)):
             assert PASSWORD not in text
         with store.sessions() as s:
             assert s.scalars(select(m.DicomwebSource.credentials)).all() == ["SITEA"]
@@ -269,7 +259,7 @@ def test_the_migration_takes_logins_out_of_stored_urls(backend: str, tmp_path: P
             ))  # fmt: skip
         upgrade(engine)
         engine.dispose()
-        stored = _every_value(store)
+        stored = every_value(store)
         assert PASSWORD not in stored
         assert "https://pacs.invalid/dicom-web" in stored
 

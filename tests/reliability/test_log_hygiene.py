@@ -21,11 +21,8 @@ from api_support import make_api
 from corpus import _raw, dx_header, encode
 from fake_pacs import Study, dx_metadata, fake_pacs
 from peers import free_port, wait_for_tcp
-from procs import beamaudit_process, counts, shared_store
+from procs import beamaudit_process, counts, every_value, shared_store
 from pynetdicom import AE
-from sqlalchemy import String, cast, select
-
-from beamaudit.api.store import Base
 
 BIRTH_DATE = "1943-11-07"
 SPELLINGS = ("1943-11-07", "19431107", "1943/11/07", "1943.11.07")
@@ -37,15 +34,6 @@ EXPLICIT_LE = "1.2.840.10008.1.2.1"
 def _clean(text: str, where: str) -> None:
     for spelling in SPELLINGS:
         assert spelling not in text, f"{spelling!r} in {where}:\n{text}"
-
-
-def _store_text(store) -> str:
-    parts: list[str] = []
-    with store.sessions() as session:
-        for table in Base.metadata.sorted_tables:
-            for row in session.execute(select(*(cast(c, String) for c in table.columns))):
-                parts.extend(str(v) for v in row if v is not None)
-    return "\n".join(parts)
 
 
 def _header_with_birth_date(name: str):
@@ -71,7 +59,7 @@ def test_pull_prints_and_stores_no_birth_date(backend: str, tmp_path: Path) -> N
         assert "Invalid value for VR DA" in pull.stderr  # the warning is logged, without value
         _clean(pull.stdout + pull.stderr, "the pull's console")
         assert counts(store)["events"] == 1
-        _clean(_store_text(store), "the store")
+        _clean(every_value(store), "the store")
 
 
 @pytest.mark.slow
@@ -89,7 +77,7 @@ def test_listener_logs_no_birth_date(backend: str, tmp_path: Path) -> None:
             assert assoc.send_c_store(_header_with_birth_date("hygiene-listen")).Status == 0
             assoc.release()
         assert counts(store)["events"] == 1
-        _clean(_store_text(store), "the store")
+        _clean(every_value(store), "the store")
     text = log.read_text()
     assert "C-STORE" in text  # the listener's log was written
     _clean(text, "the listener's log")
@@ -121,7 +109,7 @@ def test_scan_and_upload_keep_no_birth_date(
             reply = api.post("/upload", content=data, headers={"Content-Type": "application/dicom"})
             assert reply.json()["files"][0]["status"] == "stored", reply.text
         assert counts(store)["events"] == 2
-        _clean(_store_text(store), "the store")
+        _clean(every_value(store), "the store")
     captured = capsys.readouterr()
     _clean(captured.out + captured.err, "the console")
     _clean(caplog.text, "the log records")
