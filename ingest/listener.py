@@ -315,7 +315,7 @@ class ListenerConfig:
         count against ``max_associations``.
     max_objects_in_flight : int
         Received objects decoded and stored at once (the others wait, then are refused with
-        0xA700 "out of resources" after ``network_timeout_s``).
+        0xA700 "out of resources" after half of ``network_timeout_s``).
     max_object_bytes : int
         Largest object accepted; a sender that sends more in one object has its association
         aborted as soon as it passes the limit. Objects are received into temporary files
@@ -503,7 +503,9 @@ def _handle_store(
     if guard is None:
         return _store_one(event, handler, on_rejected)
     guard.object_done(event.assoc)
-    if not guard.in_flight.acquire(timeout=guard.config.network_timeout_s):
+    # half the idle limit: the refusal reaches the sender well before its association would
+    # count as silent
+    if not guard.in_flight.acquire(timeout=guard.config.network_timeout_s / 2):
         uid = str(getattr(event.request, "AffectedSOPInstanceUID", "") or "?")
         _LOG.warning("C-STORE %s: refused, %d objects in flight already", uid,
                      guard.config.max_objects_in_flight)  # fmt: skip

@@ -57,8 +57,11 @@ def _send(port: int, calling: str = "CT_MAIN", **sr: object) -> int | None:
     assoc = ae.associate("127.0.0.1", port, ae_title="BEAMAUDIT")
     if not assoc.is_established:
         return None
+    raw = assoc.dul.socket.socket if assoc.dul.socket else None
     status = assoc.send_c_store(build_dose_sr(**sr))
     assoc.release()
+    if raw is not None:
+        raw.close()  # pynetdicom leaves it open when the listener closed first
     return int(status.Status) if "Status" in status else None
 
 
@@ -157,7 +160,8 @@ def test_objects_in_flight_are_bounded() -> None:
         gate.wait(10)
         return StoreOutcome.stored()
 
-    config = ListenerConfig(port=0, max_objects_in_flight=2, network_timeout_s=3.0)
+    # refused after 5 s of waiting; the two stored ones are answered at 6 s, well within 10 s
+    config = ListenerConfig(port=0, max_objects_in_flight=2, network_timeout_s=10.0)
     with start_listener(config, slow) as listener:
         statuses: list[int | None] = []
         threads = [
@@ -166,7 +170,7 @@ def test_objects_in_flight_are_bounded() -> None:
         ]
         for t in threads:
             t.start()
-        time.sleep(4.0)
+        time.sleep(6.0)
         assert len(running) == 2  # two in the handler; the others waited, then were refused
         gate.set()
         for t in threads:
