@@ -88,7 +88,7 @@ async def _database_unavailable(request: Request, exc: Exception) -> JSONRespons
 
 def _add_docs(app: FastAPI) -> None:
     """The interactive API docs at ``/api/v1/docs`` for signed-in users, with Swagger UI's
-    files served from the ``swagger-ui-bundle`` package (no public CDN)."""
+    files (version 5: OpenAPI 3.1) served from the ``swagger-ui-py`` package (no public CDN)."""
     from pathlib import Path
 
     from fastapi import Depends, HTTPException
@@ -111,11 +111,11 @@ def _add_docs(app: FastAPI) -> None:
 
     @app.get(f"{API_PREFIX}/docs/{{name}}", include_in_schema=False)
     def docs_file(name: str) -> FileResponse:
-        import swagger_ui_bundle
+        import swagger_ui
 
         if name not in files:  # a fixed list: no path from the request reaches the file system
             raise HTTPException(404, "no such file")
-        path = Path(swagger_ui_bundle.swagger_ui_path) / name
+        path = Path(swagger_ui.__file__).parent / "static" / name
         return FileResponse(path, media_type=files[name], headers={"Cache-Control": "max-age=3600"})
 
 

@@ -36,13 +36,29 @@ class OneLineFilter(logging.Filter):
     takes the values out of the records of the DICOM libraries (:data:`DATA_LIBRARIES`)."""
 
     def filter(self, record: logging.LogRecord) -> bool:
-        message = record.getMessage()
-        safe = escape_controls(message)
         if record.name.split(".", 1)[0] in DATA_LIBRARIES:
-            safe = remove_values(safe)
-        if safe != message or record.args:
-            record.msg, record.args = safe, None
+            # the libraries' own records: the whole message, values out, on one line
+            record.msg, record.args = escape_controls(remove_values(record.getMessage())), None
+            return True
+        # ours, uvicorn's...: each text escaped where it is, so that a formatter reading the
+        # arguments (uvicorn's access log does) still finds them
+        if isinstance(record.msg, str):
+            record.msg = escape_controls(record.msg)
+        if isinstance(record.args, tuple):
+            record.args = tuple(_escaped(a) for a in record.args)
+        elif isinstance(record.args, dict):
+            record.args = {k: _escaped(v) for k, v in record.args.items()}
         return True
+
+
+def _escaped(value: Any) -> Any:
+    """A log argument as text on one line; numbers and values without control characters kept
+    as they are (a ``%d`` or ``%r`` still finds what it expects)."""
+    if value is None or isinstance(value, int | float):
+        return value
+    text = value if isinstance(value, str) else str(value)
+    safe = escape_controls(text)
+    return safe if isinstance(value, str) or safe != text else value
 
 
 def log_warning(

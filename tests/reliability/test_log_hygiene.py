@@ -131,3 +131,18 @@ def test_a_newline_in_a_logged_value_cannot_forge_a_log_line(
     err = capsys.readouterr().err
     assert "/flags?room=RAD1\\n2026-12-01" in err
     assert not any(line.startswith(forged) for line in err.splitlines())
+
+
+def test_uvicorn_access_lines_keep_their_format_and_one_line() -> None:
+    """uvicorn's access formatter reads the record's arguments: they stay, escaped."""
+    from uvicorn.logging import AccessFormatter
+
+    from beamaudit.api.logs import OneLineFilter
+
+    record = logging.LogRecord(
+        "uvicorn.access", logging.INFO, __file__, 1, '%s - "%s %s HTTP/%s" %d',
+        ("127.0.0.1:50000", "GET", "/flags?room=RAD1\nforged", "1.1", 200), None,
+    )  # fmt: skip
+    assert OneLineFilter().filter(record)
+    line = AccessFormatter('%(client_addr)s - "%(request_line)s" %(status_code)s').format(record)
+    assert line == '127.0.0.1:50000 - "GET /flags?room=RAD1\\nforged HTTP/1.1" 200 OK'
