@@ -49,8 +49,8 @@ async def _invalid_request(request: Request, exc: Exception) -> Response:
     from fastapi.routing import APIRoute
     from starlette.concurrency import run_in_threadpool
 
-    from beamaudit.api.auth import authenticate, has_role
-    from beamaudit.api.deps import presented_token
+    from beamaudit.api.auth import has_role
+    from beamaudit.api.deps import csrf_problem, identify
     from beamaudit.api.pages import invalid_page, is_page
     from beamaudit.api.routes._openapi import required_role
 
@@ -62,15 +62,19 @@ async def _invalid_request(request: Request, exc: Exception) -> Response:
 
         def who() -> Any:
             with request.app.state.session_factory() as session:
-                return authenticate(session, presented_token(request))
+                return identify(request, session)
 
-        principal = await run_in_threadpool(who)
-        if principal is None:
+        identity = await run_in_threadpool(who)
+        if identity is None:
             return JSONResponse(
                 {"detail": "a valid API token is required (Authorization: Bearer <token>)"},
                 status_code=401,
                 headers={"WWW-Authenticate": "Bearer"},
             )
+        problem = csrf_problem(request, identity)
+        if problem is not None:
+            return JSONResponse({"detail": problem}, status_code=403)
+        principal = identity.principal
         if not has_role(principal.role, role):
             return JSONResponse(
                 {"detail": f"this needs the {role} role; the token has {principal.role}"},
@@ -85,8 +89,44 @@ async def _database_unavailable(request: Request, exc: Exception) -> JSONRespons
     return JSONResponse({"detail": "the database is unavailable; try again later"}, status_code=503)
 
 
+def _add_docs(app: FastAPI) -> None:
+    """The interactive API docs at ``/api/v1/docs`` for signed-in users, with Swagger UI's
+    files (version 5: OpenAPI 3.1) served from the ``swagger-ui-py`` package (no public CDN)."""
+    from pathlib import Path
+
+    from fastapi import Depends, HTTPException
+    from fastapi.openapi.docs import get_swagger_ui_html
+    from fastapi.responses import FileResponse, HTMLResponse
+
+    from beamaudit.api.pages import page_viewer
+
+    files = {"swagger-ui-bundle.js": "application/javascript", "swagger-ui.css": "text/css"}
+
+    @app.get(f"{API_PREFIX}/docs", include_in_schema=False)
+    def docs(_: Any = Depends(page_viewer)) -> HTMLResponse:  # noqa: B008
+        return get_swagger_ui_html(
+            openapi_url=f"{API_PREFIX}/openapi.json",
+            title="beamaudit API",
+            swagger_js_url=f"{API_PREFIX}/docs/swagger-ui-bundle.js",
+            swagger_css_url=f"{API_PREFIX}/docs/swagger-ui.css",
+            swagger_favicon_url="data:,",
+        )
+
+    @app.get(f"{API_PREFIX}/docs/{{name}}", include_in_schema=False)
+    def docs_file(name: str) -> FileResponse:
+        import swagger_ui
+
+        if name not in files:  # a fixed list: no path from the request reaches the file system
+            raise HTTPException(404, "no such file")
+        path = Path(swagger_ui.__file__).parent / "static" / name
+        return FileResponse(path, media_type=files[name], headers={"Cache-Control": "max-age=3600"})
+
+
 def create_app(settings: Settings, *, engine: Engine | None = None) -> FastAPI:
     """Assemble the application for ``settings`` (the engine is made if not given)."""
+    from beamaudit.api.logs import configure_logging
+
+    configure_logging()  # one line per record, library warnings without data values
     engine = engine if engine is not None else make_engine(settings.database_url)
     app = FastAPI(
         title="beamaudit",
@@ -97,10 +137,13 @@ def create_app(settings: Settings, *, engine: Engine | None = None) -> FastAPI:
             f"**Caution.** {CAUTION}"
         ),
         openapi_url=f"{API_PREFIX}/openapi.json",
-        docs_url=f"{API_PREFIX}/docs",
+        docs_url=None,  # api.docs: served below with the service's own assets, signed in only
         redoc_url=None,
     )
     app.state.settings = settings
+    from beamaudit.api.security_headers import SecurityHeaders
+
+    app.add_middleware(SecurityHeaders)
     if settings.api.cors_origins:  # off unless origins are configured
         from fastapi.middleware.cors import CORSMiddleware
 
@@ -150,6 +193,8 @@ def create_app(settings: Settings, *, engine: Engine | None = None) -> FastAPI:
     from beamaudit.dashboards import DashboardError
 
     app.include_router(pages_router)
+    if settings.api.docs:
+        _add_docs(app)
     app.add_exception_handler(_LoginRedirect, login_redirect_handler)
     app.add_exception_handler(StarletteHTTPException, http_error_handler)  # pages: HTML
     app.add_exception_handler(DashboardError, dashboard_error_handler)

@@ -1,7 +1,9 @@
 """The dashboard pages, served behind the API's authentication.
 
-Pages accept the API token as ``Authorization: Bearer`` or as the session
-cookie the login page sets (HttpOnly, SameSite=Strict). A page asked for
+Pages accept the API token as ``Authorization: Bearer``, or the session cookie
+that signing in on the login page sets: a browser session of its own (HttpOnly,
+SameSite=Strict, Secure over HTTPS, ``api.session_hours`` long), never the token
+itself; signing out ends it in the store. A page asked for
 without a valid token redirects to ``/login``; one whose role is too low
 answers 403. The period overview is ``/``. The exam drill-down shows
 individual events and needs the physicist role; the other pages show reviews
@@ -15,7 +17,7 @@ there is one), each as an HTML page; under ``/api/v1`` the same errors stay JSON
 
 from __future__ import annotations
 
-from datetime import date
+from datetime import date, timedelta
 from pathlib import Path
 from typing import Annotated, Any, NoReturn
 from urllib.parse import quote
@@ -26,8 +28,14 @@ from fastapi.responses import FileResponse, HTMLResponse, RedirectResponse, Resp
 from sqlalchemy.orm import Session
 
 from beamaudit import __version__
-from beamaudit.api.auth import Principal, authenticate, has_role
-from beamaudit.api.deps import SESSION_COOKIE, DbSession, presented_token
+from beamaudit.api.auth import (
+    Principal,
+    authenticate,
+    end_browser_session,
+    has_role,
+    open_browser_session,
+)
+from beamaudit.api.deps import SESSION_COOKIE, DbSession, identify, same_origin
 
 __all__ = ["router"]
 
@@ -43,10 +51,12 @@ class _LoginRedirect(Exception):
 
 def _page_principal(role: str):
     def check(request: Request, session: DbSession) -> Principal:
-        principal = authenticate(session, presented_token(request))
-        if principal is None:
+        identity = identify(request, session)
+        if identity is None:
             path = request.url.path + (f"?{request.url.query}" if request.url.query else "")
             raise _LoginRedirect(path)
+        principal = identity.principal
+        request.state.csrf_token = identity.csrf_token or ""
         if not has_role(principal.role, role):  # type: ignore[arg-type]
             raise HTTPException(
                 403, f"this page needs the {role} role; the token has {principal.role}"
@@ -56,7 +66,9 @@ def _page_principal(role: str):
     return check
 
 
-PageViewer = Annotated[Principal, Depends(_page_principal("viewer"))]
+#: a dependency: the signed-in viewer (or higher) of a page, else a redirect to the login page
+page_viewer = _page_principal("viewer")
+PageViewer = Annotated[Principal, Depends(page_viewer)]
 PagePhysicist = Annotated[Principal, Depends(_page_principal("physicist"))]
 
 
@@ -67,6 +79,7 @@ def _context(request: Request, who: Principal) -> Any:
         facility="",
         software_version=__version__,
         signed_in_as=f"{who.name or 'token ' + str(who.token_id)} ({who.role})",
+        csrf_token=getattr(request.state, "csrf_token", ""),
     )
 
 
@@ -167,23 +180,31 @@ def login(
 ) -> Response:
     from beamaudit.dashboards import render_login
 
+    if request.headers.get("origin") and not same_origin(request):
+        raise HTTPException(403, "sign in on this site's own login page")
     principal = authenticate(session, token.strip())
     if principal is None:
         return HTMLResponse(
             render_login(error="That token is not valid.", next_path=next), status_code=401
         )
+    hours = request.app.state.settings.api.session_hours
+    cookie, _ = open_browser_session(session, principal, max_age=timedelta(hours=hours))
+    session.commit()
     target = next if next.startswith("/") and not next.startswith("//") else "/"
     response = RedirectResponse(target, status_code=303)
     response.set_cookie(
-        SESSION_COOKIE, token.strip(), httponly=True, samesite="strict",
-        secure=request.url.scheme == "https", max_age=12 * 3600,
+        SESSION_COOKIE, cookie, httponly=True, samesite="strict",
+        secure=request.url.scheme == "https", max_age=int(hours * 3600),
     )  # fmt: skip
     return response
 
 
 @router.post("/logout")
 @router.get("/logout")
-def logout() -> Response:
+def logout(request: Request, session: DbSession) -> Response:
+    """Sign out: the session ends in the store (the cookie is worthless from now on)."""
+    end_browser_session(session, request.cookies.get(SESSION_COOKIE))
+    session.commit()
     response = RedirectResponse("/login", status_code=303)
     response.delete_cookie(SESSION_COOKIE)
     return response

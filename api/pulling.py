@@ -6,6 +6,11 @@ watermark), pulls the instance metadata of the matching studies
 each instance, records every unusable one as an ingest error, reconstructs the
 new events, then moves the source's watermark (held back to the oldest study
 the server failed to deliver). Instances already stored are not even fetched.
+
+A source's login is named, never stored: ``dicomweb_sources.credentials`` holds the name of a
+``[pull.credentials.NAME]`` entry of the settings (user name and password, or a password file),
+sent as HTTP Basic authentication (:func:`source_login`). A URL holding ``user:password@`` is
+refused. The pull's time limits, answer cap and retries come from ``[pull]`` (:func:`pull_limits`).
 """
 
 from __future__ import annotations
@@ -23,7 +28,7 @@ from beamaudit.api.store import models as m
 from beamaudit.api.store.base import utcnow
 from beamaudit.ingest.errors import IngestError
 
-__all__ = ["PullOutcome", "get_or_create_source", "pull_source"]
+__all__ = ["PullOutcome", "get_or_create_source", "pull_limits", "pull_source", "source_login"]
 
 
 @dataclass
@@ -52,15 +57,66 @@ class PullOutcome:
         }
 
 
+def source_login(settings: Any, name: str | None) -> tuple[str, str] | None:
+    """The (user, password) of the login ``name`` in ``[pull.credentials]``; None for no name.
+
+    Raises
+    ------
+    IngestError
+        No login of that name in the settings, or its password file cannot be read.
+    """
+    from beamaudit.api.settings import SettingsError
+
+    if not name:
+        return None
+    # names are matched without case: environment variables reach the settings lower-cased
+    logins = {key.casefold(): value for key, value in settings.pull.credentials.items()}
+    login = logins.get(name.casefold())
+    if login is None:
+        raise IngestError(
+            "unreadable",
+            f"no login named {name!r} in the settings (pull.credentials.{name}: username and "
+            "password or password_file)",
+        )
+    try:
+        return login.username, login.secret()
+    except SettingsError as exc:
+        raise IngestError("unreadable", str(exc)) from None
+
+
+def pull_limits(settings: Any) -> Any:
+    """The ``[pull]`` settings as :class:`beamaudit.ingest.dicomweb.PullLimits`."""
+    from beamaudit.ingest.dicomweb import PullLimits
+
+    p = settings.pull
+    return PullLimits(
+        request_timeout_s=p.request_timeout_s,
+        answer_timeout_s=p.answer_timeout_s,
+        pull_timeout_s=p.pull_timeout_s,
+        max_answer_bytes=p.max_answer_bytes,
+        retry_attempts=p.retry_attempts,
+    )
+
+
 def get_or_create_source(
-    session: Session, url: str, *, name: str | None = None, modalities: list[str] | None = None
+    session: Session,
+    url: str,
+    *,
+    name: str | None = None,
+    modalities: list[str] | None = None,
+    credentials: str | None = None,
 ) -> m.DicomwebSource:
-    """The source row for ``url`` (made on first use, named after the URL)."""
+    """The source row for ``url`` (made on first use, named after the URL); a login name given
+    is kept on it."""
     row = session.scalar(select(m.DicomwebSource).where(m.DicomwebSource.url == url))
     if row is None:
-        row = m.DicomwebSource(name=name or url, url=url, modalities=modalities or [])
+        row = m.DicomwebSource(
+            name=name or url, url=url, modalities=modalities or [], credentials=credentials
+        )
         session.add(row)
         session.flush()
+    elif credentials:
+        row.credentials = credentials
     return row
 
 
@@ -72,21 +128,38 @@ def pull_source(
     modalities: list[str] | None,
     pseudonymiser: Any,
     until: date | None = None,
+    settings: Any = None,
+    credentials: str | None = None,
 ) -> PullOutcome:
     """Pull one DICOMweb source into the store (see the module docstring).
+
+    ``settings`` gives the logins and limits (``[pull]``; defaults when None); ``credentials``
+    names the source's login (kept on the source; else the one already kept is used).
 
     Raises
     ------
     IngestError
-        ``--since`` cannot be resolved (``last`` before any pull, not a date).
+        ``--since`` cannot be resolved (``last`` before any pull, not a date), the URL holds a
+        login, the login named is not in the settings, or the server cannot be searched.
     """
-    from beamaudit.ingest.dicomweb import DicomwebSource, next_watermark, pull, resolve_since
+    from beamaudit.ingest.dicomweb import (
+        DicomwebSource,
+        PullLimits,
+        next_watermark,
+        pull,
+        resolve_since,
+    )
     from beamaudit.ingest.reader import ACCEPTED_SOP_CLASSES, read_dataset
 
+    client_source = DicomwebSource(url, limits=PullLimits())  # refuses a URL with a login
     with sessions.begin() as session:
-        row = get_or_create_source(session, url, modalities=modalities)
-        source_id, watermark = row.id, row.watermark_date
+        row = get_or_create_source(session, url, modalities=modalities, credentials=credentials)
+        source_id, watermark, login_name = row.id, row.watermark_date, row.credentials
         mods = modalities or list(row.modalities or []) or None
+    if settings is not None:
+        client_source = DicomwebSource(
+            url, auth=source_login(settings, login_name), limits=pull_limits(settings)
+        )
     since_date = resolve_since(since, watermark)
     pipeline = Pipeline(sessions, completion=Completion())  # exam types and figures too
     outcome = PullOutcome(source=url, since=since_date)
@@ -113,7 +186,7 @@ def pull_source(
             )
 
     report = pull(
-        DicomwebSource(url),
+        client_source,
         since=since_date,
         until=until,
         modalities=mods,

@@ -1,4 +1,9 @@
-"""A stored review result (its JSON) as CSV and XLSX, for committees' own spreadsheets."""
+"""A stored review result (its JSON) as CSV and XLSX, for committees' own spreadsheets.
+
+Every text cell is spreadsheet-safe (:func:`beamaudit.api.review.spreadsheet.safe_cell`): a room
+or level set named ``=HYPERLINK(...)`` is written as the text ``'=HYPERLINK(...)``, never as a
+formula; numbers stay numbers.
+"""
 
 from __future__ import annotations
 
@@ -6,6 +11,8 @@ import csv
 import io
 from pathlib import Path
 from typing import Any
+
+from beamaudit.api.review.spreadsheet import safe_cell
 
 __all__ = ["GROUP_EXPORT_COLUMNS", "groups_csv_text", "write_csv", "write_xlsx", "xlsx_bytes"]
 
@@ -28,7 +35,9 @@ def groups_csv_text(result: dict[str, Any]) -> str:
     writer = csv.writer(out, lineterminator="\n")
     writer.writerow(GROUP_EXPORT_COLUMNS)
     for g in result.get("groups", []):
-        writer.writerow(["" if g.get(c) is None else g.get(c) for c in GROUP_EXPORT_COLUMNS])
+        writer.writerow(
+            ["" if g.get(c) is None else safe_cell(g.get(c)) for c in GROUP_EXPORT_COLUMNS]
+        )
     return out.getvalue()
 
 
@@ -44,29 +53,38 @@ def xlsx_bytes(result: dict[str, Any]) -> bytes:
     about = wb.active
     about.title = "about"
     period = result.get("period", {})
-    about.append(["period", period.get("label")])
-    about.append(["software version", result.get("software_version")])
-    about.append(["events", result.get("n_events")])
-    about.append(["method", "ICRP Publication 135: median of standard-size patients vs levels"])
+    _append(about, ["period", period.get("label")])
+    _append(about, ["software version", result.get("software_version")])
+    _append(about, ["events", result.get("n_events")])
+    _append(about, ["method", "ICRP Publication 135: median of standard-size patients vs levels"])
     for s in result.get("level_sets", []):
-        about.append(["level set", f"{s.get('name')} {s.get('version')} ({s.get('kind')})"])
-    about.append(["caution", CAUTION])
+        _append(about, ["level set", f"{s.get('name')} {s.get('version')} ({s.get('kind')})"])
+    _append(about, ["caution", CAUTION])
     groups = wb.create_sheet("groups")
-    groups.append(list(GROUP_EXPORT_COLUMNS))
+    _append(groups, list(GROUP_EXPORT_COLUMNS))
     for g in result.get("groups", []):
-        groups.append([g.get(c) for c in GROUP_EXPORT_COLUMNS])
+        _append(groups, [g.get(c) for c in GROUP_EXPORT_COLUMNS])
     flags = wb.create_sheet("flags")
-    flags.append(list(FLAG_EXPORT_COLUMNS))
+    _append(flags, list(FLAG_EXPORT_COLUMNS))
     for f in result.get("flags", []):
-        flags.append(
+        _append(
+            flags,
             [
                 f.get(c) if not isinstance(f.get(c), dict | list) else str(f.get(c))
                 for c in FLAG_EXPORT_COLUMNS
-            ]
+            ],
         )
     buf = io.BytesIO()
     wb.save(buf)
     return buf.getvalue()
+
+
+def _append(sheet: Any, values: list[Any]) -> None:
+    """One row of a sheet; every text stored as a string cell (never a formula) and made safe."""
+    sheet.append([safe_cell(v) for v in values])
+    for cell in sheet[sheet.max_row]:
+        if isinstance(cell.value, str):
+            cell.data_type = "s"  # openpyxl would otherwise store a text starting "=" as formula
 
 
 def write_xlsx(result: dict[str, Any], path: Path) -> None:

@@ -24,6 +24,7 @@ from typing import Any
 from beamaudit.api.pipeline import Pipeline, StoreOutcome, prepare
 from beamaudit.ingest.errors import IngestError
 from beamaudit.ingest.events import ParseResult
+from beamaudit.ingest.scrub import remove_values
 
 __all__ = ["BATCH_SIZE", "ScanSummary", "freeze_heap", "scan_paths"]
 
@@ -93,7 +94,9 @@ def _parse_one(path_text: str) -> tuple[str, str, ParseResult | IngestError | No
     if outcome.result is not None and caught:
         # pydicom's warnings about tolerated deviations become notes on the object
         outcome.result.warnings.extend(
-            f"while reading: {w.message}" for w in caught if issubclass(w.category, UserWarning)
+            f"while reading: {remove_values(str(w.message))}"
+            for w in caught
+            if issubclass(w.category, UserWarning)
         )
     if outcome.skipped:
         return path_text, "dicomdir", None, None
@@ -185,8 +188,19 @@ def scan_paths(
             pipeline.record_errors(pending_errors, received_via=received_via)
             pending_errors.clear()
 
-    parsed = _parsed(iter_candidate_files(paths), key, max(1, workers))
+    unreadable: list[IngestError] = []  # folders that cannot be listed: their files are lost
+
+    def note_unreadable_folders() -> None:
+        while unreadable:
+            error = unreadable.pop(0)
+            summary.errors.append(
+                {"source": error.source or "", "code": error.code, "reason": error.reason}
+            )
+            pending_errors.append((error, error.source))
+
+    parsed = _parsed(iter_candidate_files(paths, unreadable.append), key, max(1, workers))
     for path_text, kind, result, fingerprint in parsed:
+        note_unreadable_folders()
         summary.files += 1
         if kind == "dicomdir":
             summary.skipped += 1
@@ -201,6 +215,7 @@ def scan_paths(
             flush()
         if on_file is not None:
             on_file(path_text)
+    note_unreadable_folders()
     flush()
     return summary
 

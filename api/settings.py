@@ -22,7 +22,7 @@ import tomllib
 from pathlib import Path
 from typing import Any
 
-from pydantic import BaseModel, Field, ValidationError, field_validator
+from pydantic import BaseModel, Field, SecretStr, ValidationError, field_validator, model_validator
 from pydantic_settings import (
     BaseSettings,
     PydanticBaseSettingsSource,
@@ -30,7 +30,15 @@ from pydantic_settings import (
     TomlConfigSettingsSource,
 )
 
-__all__ = ["ListenerSettings", "Settings", "SettingsError", "load"]
+__all__ = [
+    "ApiSettings",
+    "ListenerSettings",
+    "PullCredentials",
+    "PullSettings",
+    "Settings",
+    "SettingsError",
+    "load",
+]
 
 
 class SettingsError(ValueError):
@@ -44,6 +52,22 @@ class ListenerSettings(BaseModel):
     host: str = "0.0.0.0"
     port: int = Field(default=11112, ge=1, le=65535)
     allowed_calling_aets: list[str] = Field(default_factory=list)
+    #: associations at once (counted from the association request on)
+    max_associations: int = Field(default=10, ge=1, le=1000)
+    #: associations at once from one calling AE title
+    max_associations_per_ae: int = Field(default=4, ge=1, le=1000)
+    #: TCP connections at once, associated or not yet
+    max_connections: int = Field(default=64, ge=1, le=10000)
+    #: received objects decoded and stored at once
+    max_objects_in_flight: int = Field(default=4, ge=1, le=100)
+    #: largest object accepted (1 GiB: a breast tomosynthesis object fits; its pixels stay on disk)
+    max_object_bytes: int = Field(default=1024 * 1024 * 1024, ge=1024)
+    #: seconds a new connection has to ask for an association
+    request_timeout_s: float = Field(default=10.0, gt=0, le=3600)
+    #: seconds an association may stay silent
+    idle_timeout_s: float = Field(default=30.0, gt=0, le=86400)
+    #: seconds an association may last in all
+    association_timeout_s: float = Field(default=3600.0, gt=0, le=7 * 86400)
 
 
 class ApiSettings(BaseModel):
@@ -51,6 +75,71 @@ class ApiSettings(BaseModel):
 
     max_upload_bytes: int = Field(default=512 * 1024 * 1024, gt=0)
     cors_origins: list[str] = Field(default_factory=list)  # empty: CORS off
+    #: hours a browser session lasts after signing in
+    session_hours: float = Field(default=12.0, gt=0, le=24 * 30)
+    #: origins besides the service's own whose pages may make changes with the session cookie
+    #: (a reverse proxy that rewrites Host); empty: only the service's own
+    trusted_origins: list[str] = Field(default_factory=list)
+    #: serve the interactive API docs at /api/v1/docs (assets served by the service itself)
+    docs: bool = False
+    #: largest CSV import (level sets, exam types, rules), its widest row and most columns
+    max_csv_bytes: int = Field(default=8 * 1024 * 1024, ge=1024)
+    max_csv_columns: int = Field(default=64, ge=2, le=10000)
+    max_csv_row_chars: int = Field(default=16384, ge=256)
+
+
+class PullCredentials(BaseModel):
+    """A login for DICOMweb sources (``[pull.credentials.NAME]``), sent as HTTP Basic auth.
+
+    Give ``password`` (better through the environment:
+    ``BEAMAUDIT_PULL__CREDENTIALS__NAME__PASSWORD``) or ``password_file`` (a file readable by the
+    service only, holding the password); never a password inside a URL.
+    """
+
+    username: str = Field(min_length=1)
+    password: SecretStr | None = None
+    password_file: Path | None = None
+
+    @model_validator(mode="after")
+    def _one_password(self) -> PullCredentials:
+        if (self.password is None) == (self.password_file is None):
+            raise ValueError("give exactly one of password and password_file")
+        return self
+
+    def secret(self) -> str:
+        """The password (read from ``password_file`` when given that way).
+
+        Raises
+        ------
+        SettingsError
+            The password file cannot be read.
+        """
+        if self.password is not None:
+            return self.password.get_secret_value()
+        assert self.password_file is not None
+        try:
+            return self.password_file.read_text(encoding="utf-8").strip()
+        except OSError as exc:
+            raise SettingsError(
+                f"cannot read the password file {self.password_file}: {exc.strerror}"
+            ) from None
+
+
+class PullSettings(BaseModel):
+    """DICOMweb pulls (``beamaudit pull``, ``nightly``)."""
+
+    #: logins by name; a source names its login with ``--credentials NAME``
+    credentials: dict[str, PullCredentials] = Field(default_factory=dict)
+    #: seconds to connect and between two reads of one answer
+    request_timeout_s: float = Field(default=30.0, gt=0, le=3600)
+    #: seconds one whole answer may take (a server dripping bytes is cut off then)
+    answer_timeout_s: float = Field(default=120.0, gt=0, le=86400)
+    #: seconds one pull of one source may take in all
+    pull_timeout_s: float = Field(default=3600.0, gt=0, le=7 * 86400)
+    #: largest answer read (a search or a series' metadata)
+    max_answer_bytes: int = Field(default=64 * 1024 * 1024, ge=1024)
+    #: attempts per request when the server answers 408, 429, 500, 502, 503 or 504
+    retry_attempts: int = Field(default=3, ge=1, le=10)
 
 
 class Settings(BaseSettings):
@@ -64,6 +153,7 @@ class Settings(BaseSettings):
     secret_key_path: Path = Path("beamaudit-secret.key")
     listener: ListenerSettings = Field(default_factory=ListenerSettings)
     api: ApiSettings = Field(default_factory=ApiSettings)
+    pull: PullSettings = Field(default_factory=PullSettings)
     standard_weight_kg: float = Field(default=70.0, gt=0)
     standard_weight_window_kg: float = Field(default=10.0, ge=0)
 

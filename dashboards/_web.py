@@ -32,6 +32,7 @@ __all__ = [
     "distributions_href",
     "exam_href",
     "figure_block",
+    "figure_text",
     "flags_href",
     "fmt",
     "period_choices",
@@ -73,12 +74,16 @@ class PageContext:
     software_version : str
         beamaudit's version, shown in the footer (the API passes it).
     signed_in_as : str
-        Who is signed in, shown in the masthead; empty to show nothing.
+        Who is signed in, shown in the masthead with a sign-out link; empty to show nothing.
+    csrf_token : str
+        The browser session's CSRF token, in a ``<meta name="csrf-token">`` for the page's own
+        scripts (a change made with the session cookie sends it as ``X-CSRF-Token``).
     """
 
     facility: str = ""
     software_version: str = ""
     signed_in_as: str = ""
+    csrf_token: str = ""
 
 
 # ------------------------------------------------------------------ files
@@ -196,8 +201,29 @@ class FigureBlock:
     static: bool = False
 
 
+#: plotly's own markup that our figures use; any other tag in a figure's texts (a room named
+#: ``<a href=...>`` would be a live link, ``<span style=...>`` restyles the chart) is shown as
+#: text: its ``<`` becomes ``&lt;``, which plotly displays as ``<`` without reading a tag
+_FIGURE_TAGS = re.compile(r"<(?!/?(?:br|b|i|em|sup|sub|extra)>)")
+_FIGURE_TAGS_IN_JSON = re.compile(r"\\u003c(?!(?:/|\\u002f)?(?:br|b|i|em|sup|sub|extra)\\u003e)")
+
+
+def figure_text(text: str) -> str:
+    """``text`` as a figure shows it: every tag but plotly's plain formatting (``<br>``, ``<b>``,
+    ``<i>``, ``<em>``, ``<sup>``, ``<sub>``, ``<extra>``) written so that it shows as text.
+
+    Examples
+    --------
+    >>> figure_text('<a href="http://x">room</a><br>DAP')
+    '&lt;a href="http://x">room&lt;/a><br>DAP'
+    """
+    return _FIGURE_TAGS.sub("&lt;", text)
+
+
 def figure_block(fig: go.Figure, fig_id: str, *, static: bool = False) -> FigureBlock:
     # Escape what could close the <script> element or start markup; JSON.parse reads it back.
+    # plotly writes < > / in strings as \u003c \u003e \u002f; make it so whatever the version,
+    # then every tag but plotly's plain formatting becomes "&lt;" (as figure_text, in JSON).
     text = (
         fig.to_json()
         .replace("<", "\\u003c")
@@ -206,6 +232,7 @@ def figure_block(fig: go.Figure, fig_id: str, *, static: bool = False) -> Figure
         .replace("\u2028", "\\u2028")
         .replace("\u2029", "\\u2029")
     )
+    text = _FIGURE_TAGS_IN_JSON.sub(r"\\u0026lt;", text)
     title = fig.layout.title.text or fig_id
     return FigureBlock(id=fig_id, label=re.sub(r"<[^>]+>", " ", title), json=text, static=static)
 

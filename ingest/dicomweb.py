@@ -24,14 +24,17 @@ searches, never a duplicate.
 from __future__ import annotations
 
 import logging
+import time
 from collections.abc import Callable, Collection, Container, Iterable, Sequence
 from dataclasses import dataclass, field
 from datetime import date, datetime
-from typing import Any, NamedTuple
+from typing import Any, NamedTuple, TypeVar
+from urllib.parse import urlsplit
 
 import requests
 from dicomweb_client import DICOMwebClient
 from pydicom.dataset import Dataset
+from requests.adapters import HTTPAdapter
 
 from .dicom_json import all_values, dataset_from_metadata, first_value
 from .errors import IngestError
@@ -40,6 +43,7 @@ __all__ = [
     "DOSE_REPORT_MODALITY",
     "DicomwebSource",
     "PullError",
+    "PullLimits",
     "PullProblem",
     "PullReport",
     "next_watermark",
@@ -76,6 +80,10 @@ class PullError(IngestError):
 
     def __reduce__(self) -> tuple[Any, ...]:
         return (type(self), (self.reason, self.source))
+
+
+class PullTimeout(PullError):
+    """The pull's own time (``pull_timeout_s``) is up."""
 
 
 class PullProblem(NamedTuple):
@@ -155,6 +163,118 @@ def _says_more_results(warning: str) -> bool:
     return "additional results" in text or ("exceeded" in text and "result" in text)
 
 
+@dataclass(frozen=True, slots=True)
+class PullLimits:
+    """What one pull may cost, against a slow, huge or failing server.
+
+    Attributes
+    ----------
+    request_timeout_s : float
+        Seconds to connect, and to wait for each piece of an answer.
+    answer_timeout_s : float
+        Seconds one whole answer may take (a server dripping a byte every few seconds is cut
+        off then).
+    pull_timeout_s : float
+        Seconds the whole pull may take; then it stops, says so, and the watermark stays at
+        the first study not pulled.
+    max_answer_bytes : int
+        Largest answer read (a search result, a series' metadata); a larger one is refused
+        as it arrives, never held whole.
+    retry_attempts : int
+        Attempts per request when the server answers 408, 429, 500, 502, 503 or 504, with
+        1 s, 2 s, 4 s... between them; then the request fails with one line.
+    """
+
+    request_timeout_s: float = 30.0
+    answer_timeout_s: float = 120.0
+    pull_timeout_s: float = 3600.0
+    max_answer_bytes: int = 64 * 1024 * 1024
+    retry_attempts: int = 3
+
+    def __post_init__(self) -> None:
+        for name in ("request_timeout_s", "answer_timeout_s", "pull_timeout_s"):
+            if getattr(self, name) <= 0:
+                raise PullError(f"{name} must be positive, not {getattr(self, name)}")
+        if self.max_answer_bytes < 1 or self.retry_attempts < 1:
+            raise PullError("max_answer_bytes and retry_attempts must be at least 1")
+
+
+#: statuses worth asking again (PS3.18 8.7.3 and RFC 9110: timeout, too many requests, server
+#: error, bad gateway, unavailable, gateway timeout)
+RETRIED_STATUSES = frozenset({408, 429, 500, 502, 503, 504})
+
+
+class AnswerRefused(requests.RequestException):
+    """An answer the pull will not read: too large, too slow, or from another origin."""
+
+
+def origin(url: str) -> str:
+    """``scheme://host:port`` of a URL (the port made explicit)."""
+    parts = urlsplit(url)
+    port = parts.port or (443 if parts.scheme == "https" else 80)
+    return f"{parts.scheme}://{(parts.hostname or '').lower()}:{port}"
+
+
+def without_login(url: str) -> str:
+    """``url`` with any ``user:password@`` taken out (for messages about a refused URL)."""
+    parts = urlsplit(url)
+    if "@" not in parts.netloc:
+        return url
+    return parts._replace(netloc=parts.netloc.rsplit("@", 1)[1]).geturl()
+
+
+class _BoundedAdapter(HTTPAdapter):
+    """Transport that reads every answer in pieces, under a size cap and a whole-answer time
+    limit, and sends nothing to another origin than the configured one (a redirect elsewhere
+    is refused, so no credentials or queries follow it)."""
+
+    def __init__(self, allowed_origin: str, limits: PullLimits) -> None:
+        super().__init__(max_retries=0)
+        self._origin = allowed_origin
+        self._limits = limits
+
+    def send(  # type: ignore[override]
+        self, request: Any, stream: bool = False, **kwargs: Any
+    ) -> Any:
+        if origin(request.url) != self._origin:
+            raise AnswerRefused(
+                f"the server sent the pull to another origin ({origin(request.url)}); "
+                "only the configured one is followed"
+            )
+        response = super().send(request, stream=True, **kwargs)
+        cap = self._limits.max_answer_bytes
+        declared = response.headers.get("Content-Length", "")
+        if declared.isdigit() and int(declared) > cap:
+            response.close()
+            raise AnswerRefused(f"the answer is {declared} bytes, over max_answer_bytes ({cap})")
+        deadline = time.monotonic() + self._limits.answer_timeout_s
+        chunks: list[bytes] = []
+        size = 0
+        try:
+            while True:
+                chunk = response.raw.read1(65536, decode_content=True)
+                if not chunk:
+                    break
+                size += len(chunk)
+                if size > cap:
+                    raise AnswerRefused(f"the answer passed max_answer_bytes ({cap} bytes)")
+                if time.monotonic() > deadline:
+                    raise AnswerRefused(
+                        f"the answer took longer than answer_timeout_s "
+                        f"({self._limits.answer_timeout_s:g} s)"
+                    )
+                chunks.append(chunk)
+        except BaseException:
+            response.close()
+            raise
+        response._content = b"".join(chunks)
+        response._content_consumed = True
+        return response
+
+
+_T = TypeVar("_T")
+
+
 class DicomwebSource:
     """A DICOMweb origin server to pull from.
 
@@ -168,12 +288,21 @@ class DicomwebSource:
     timeout_s : float
         Seconds to wait for each response.
     headers : dict of str, optional
-        Extra request headers (an ``Authorization`` token).
-    retry_attempts : int
-        Attempts per request when the server answers 408, 429, 503 or 504 (dicomweb-client's
-        exponential back-off: 1 s, 2 s, 4 s...); 1 for none.
+        Extra request headers.
+    retry_attempts : int, optional
+        Overrides ``limits.retry_attempts`` (1 for none).
     max_pages : int
         Pages asked for at most per search when the server keeps saying more results remain.
+    auth : (str, str), optional
+        User name and password, sent as HTTP Basic authentication (RFC 7617): the login of a
+        PACS is given here, from the settings, never inside the URL.
+    limits : PullLimits, optional
+        Time limits, answer size cap and retries (defaults: :class:`PullLimits`).
+
+    Raises
+    ------
+    PullError
+        Not an http(s) URL, a URL holding a login (``user:password@``), a bad setting.
     """
 
     def __init__(
@@ -181,27 +310,59 @@ class DicomwebSource:
         url: str,
         *,
         session: requests.Session | None = None,
-        timeout_s: float = 30.0,
+        timeout_s: float | None = None,
         headers: dict[str, str] | None = None,
-        retry_attempts: int = 5,
+        retry_attempts: int | None = None,
         max_pages: int = 100,
+        auth: tuple[str, str] | None = None,
+        limits: PullLimits | None = None,
     ) -> None:
         if not url.startswith(("http://", "https://")):
-            raise PullError(f"a DICOMweb URL starts with http:// or https://, not {url!r}", url)
-        if timeout_s <= 0:
-            raise PullError(f"timeout_s must be positive, not {timeout_s}", url)
-        if retry_attempts < 1 or max_pages < 1:
+            raise PullError(
+                f"a DICOMweb URL starts with http:// or https://, not {without_login(url)!r}"
+            )
+        parts = urlsplit(url)
+        if parts.username is not None or parts.password is not None:
+            raise PullError(
+                "the DICOMweb URL holds a login (user:password@); give the login as pull "
+                "credentials in the settings (pull.credentials.NAME) instead, never in a URL",
+                without_login(url),
+            )
+        limits = limits or PullLimits()
+        if timeout_s is not None or retry_attempts is not None:
+            try:
+                limits = PullLimits(
+                    request_timeout_s=limits.request_timeout_s if timeout_s is None else timeout_s,
+                    answer_timeout_s=limits.answer_timeout_s,
+                    pull_timeout_s=limits.pull_timeout_s,
+                    max_answer_bytes=limits.max_answer_bytes,
+                    retry_attempts=(
+                        limits.retry_attempts if retry_attempts is None else retry_attempts
+                    ),
+                )
+            except PullError as exc:
+                raise PullError(exc.reason, url) from None
+        if max_pages < 1:
             raise PullError("retry_attempts and max_pages must be at least 1", url)
         self.url = url.rstrip("/")
-        self.timeout_s = timeout_s
+        self.limits = limits
+        self.timeout_s = limits.request_timeout_s
         self.max_pages = max_pages
+        self.deadline: float | None = None  # monotonic time the current pull must end by
         self._header_warnings: list[str] = []
         self._session = session if session is not None else requests.Session()
+        self._session.max_redirects = 5
+        if auth is not None:
+            self._session.auth = requests.auth.HTTPBasicAuth(*auth)
+        adapter = _BoundedAdapter(origin(self.url), limits)
+        self._session.mount("http://", adapter)
+        self._session.mount("https://", adapter)
         self._session.hooks.setdefault("response", []).append(self._note_warning)
         self._client = DICOMwebClient(
-            url=self.url, session=self._session, headers=headers, timeout=timeout_s
+            url=self.url, session=self._session, headers=headers, timeout=limits.request_timeout_s
         )
-        self._client.set_http_retry_params(retry=retry_attempts > 1, max_attempts=retry_attempts)
+        # retries are ours (_call): bounded, within the pull's time, ending in one clear line
+        self._client.set_http_retry_params(retry=True, max_attempts=1, retriable_error_codes=())
 
     @property
     def client(self) -> DICOMwebClient:
@@ -211,6 +372,35 @@ class DicomwebSource:
     def instance_url(self, study_uid: str, series_uid: str, sop_instance_uid: str) -> str:
         """The WADO-RS URL of one instance: the ``source`` given to ``on_instance``."""
         return f"{self.url}/studies/{study_uid}/series/{series_uid}/instances/{sop_instance_uid}"
+
+    def call(self, function: Callable[..., _T], *args: Any, **kwargs: Any) -> _T:
+        """``function(*args, **kwargs)`` (a request), asked again on a retried status
+        (:data:`RETRIED_STATUSES`) up to ``limits.retry_attempts`` times with 1 s, 2 s, 4 s...
+        between, never past the pull's deadline; the last failure propagates."""
+        attempt = 1
+        while True:
+            self.check_deadline()
+            try:
+                return function(*args, **kwargs)
+            except requests.HTTPError as exc:
+                status = exc.response.status_code if exc.response is not None else None
+                if status not in RETRIED_STATUSES or attempt >= self.limits.retry_attempts:
+                    raise
+                pause = min(2.0 ** (attempt - 1), 30.0)
+                if self.deadline is not None and time.monotonic() + pause > self.deadline:
+                    raise
+                _LOG.info("%s answered %s; asking again in %g s", self.url, status, pause)
+                time.sleep(pause)
+                attempt += 1
+
+    def check_deadline(self) -> None:
+        """Raise :class:`PullTimeout` once the pull's ``pull_timeout_s`` has passed."""
+        if self.deadline is not None and time.monotonic() > self.deadline:
+            raise PullTimeout(
+                f"the pull took longer than pull_timeout_s ({self.limits.pull_timeout_s:g} s); "
+                "what was not pulled is asked for next time",
+                self.url,
+            )
 
     def _note_warning(self, response: requests.Response, *args: Any, **kwargs: Any) -> None:
         warning = response.headers.get("Warning")
@@ -227,7 +417,7 @@ class DicomwebSource:
         offset = 0
         for _ in range(self.max_pages):
             self._header_warnings.clear()
-            page = method(**kwargs, offset=offset or None)
+            page = self.call(method, **kwargs, offset=offset or None)
             said = list(self._header_warnings)
             more = any(_says_more_results(w) for w in said)
             notes.extend(w for w in said if not _says_more_results(w))
@@ -316,7 +506,7 @@ def next_watermark(
         candidate = failed if candidate is None else min(candidate, failed)
     if candidate is None:
         return previous
-    candidate = min(candidate, today or date.today())
+    candidate = min(candidate, today or date.today())  # pull() already leaves future dates out
     if previous is None:
         return candidate
     return max(previous, candidate)
@@ -485,7 +675,13 @@ def pull(
     if modalities is not None:
         wanted = list(dict.fromkeys(m.strip().upper() for m in modalities if m.strip())) or None
     report = PullReport(source=source.url, since=since, until=until)
-    studies = _find_studies(source, since, until, wanted, report)
+    started = date.today()  # the watermark never moves past the pull's own start
+    source.deadline = time.monotonic() + source.limits.pull_timeout_s
+    try:
+        studies = _find_studies(source, since, until, wanted, report)
+    except BaseException:
+        source.deadline = None
+        raise
     _LOG.info(
         "pull from %s: %d studies from %s to %s", source.url, len(studies), since, until or "now"
     )
@@ -497,12 +693,34 @@ def pull(
         sop_classes=sop_classes,
         series_modalities=None if wanted is None else {*wanted, DOSE_REPORT_MODALITY},
     )
-    for study in studies:
-        report.studies += 1
-        if _pull_study(state, study):
-            report._complete(study.study_date)
-        else:
-            report._incomplete(study.study_date)
+    future = 0
+    try:
+        for index, study in enumerate(studies):
+            try:
+                source.check_deadline()
+                complete = _pull_study(state, study)
+            except PullTimeout as exc:
+                report.errors.append(PullProblem(source.url, exc.reason))
+                for rest in studies[index:]:
+                    report._incomplete(rest.study_date)
+                break
+            report.studies += 1
+            if not complete:
+                report._incomplete(study.study_date)
+            elif study.study_date is not None and study.study_date > started:
+                future += 1  # a wrong modality clock: pulled, but the watermark stays behind
+            else:
+                report._complete(study.study_date)
+    finally:
+        source.deadline = None
+    if future:
+        report.warnings.append(
+            PullProblem(
+                source.url,
+                f"{future} studies are dated after today ({started}); the watermark does not "
+                "follow them",
+            )
+        )
     _LOG.info(
         "pull from %s: %d instances delivered, %d already known, %d errors",
         source.url,
@@ -586,11 +804,13 @@ def _pull_series(state: _Pull, study_uid: str, series_uid: str) -> bool:
     if wanted:
         client = state.source.client
         try:
+            call = state.source.call
             if len(wanted) == len(search.results):  # the whole series: one request
-                metadata = client.retrieve_series_metadata(study_uid, series_uid)
+                metadata = call(client.retrieve_series_metadata, study_uid, series_uid)
             else:
                 metadata = [
-                    client.retrieve_instance_metadata(study_uid, series_uid, uid) for uid in wanted
+                    call(client.retrieve_instance_metadata, study_uid, series_uid, uid)
+                    for uid in wanted
                 ]
         except _SERVER_FAILURES as exc:
             report.errors.append(

@@ -6,7 +6,8 @@ the preamble, a first element of group 0002 or 0008. A DICOMDIR (Media Storage
 SOP Class 1.2.840.10008.1.3.10) is an index of the other files, not an event:
 it is counted and skipped, never an error. Every other file that cannot be
 used becomes an :class:`~beamaudit.ingest.errors.IngestError` in its
-:class:`ScanOutcome`, and the walk goes on.
+:class:`ScanOutcome`, and the walk goes on; so does a folder that cannot be
+listed (its outcome names the folder and the reason).
 
 Each file is opened once: its first bytes classify it, then the same handle is
 rewound and read by ``dcmread(..., stop_before_pixels=True)``.
@@ -17,7 +18,7 @@ from __future__ import annotations
 import os
 import stat
 from collections import Counter
-from collections.abc import Iterable, Iterator
+from collections.abc import Callable, Iterable, Iterator
 from dataclasses import dataclass, field
 from pathlib import Path
 from typing import Literal
@@ -40,13 +41,18 @@ __all__ = [
 Classification = Literal["dicom", "dicomdir", "not_dicom"]
 
 
-def iter_candidate_files(paths: Iterable[str | os.PathLike[str]]) -> Iterator[Path]:
+def iter_candidate_files(
+    paths: Iterable[str | os.PathLike[str]],
+    on_unreadable: Callable[[IngestError], object] | None = None,
+) -> Iterator[Path]:
     """Every regular file under ``paths``, depth first, names sorted within each folder.
 
     Symbolic links are followed, but each folder and each file is visited once
     (by device and inode), so link loops end and a linked file is not counted
     twice. A path that does not exist is yielded as given, for the caller to
-    report.
+    report. A folder that cannot be listed (no permission, an I/O error) is
+    told to ``on_unreadable`` as an ``unreadable`` error naming the folder and
+    the reason, since its files are not scanned; the walk goes on.
     """
     seen_dirs: set[tuple[int, int]] = set()
     seen_files: set[tuple[int, int]] = set()
@@ -58,7 +64,7 @@ def iter_candidate_files(paths: Iterable[str | os.PathLike[str]]) -> Iterator[Pa
             yield path
             continue
         if stat.S_ISDIR(info.st_mode):
-            yield from _walk(path, info, seen_dirs, seen_files)
+            yield from _walk(path, info, seen_dirs, seen_files, on_unreadable)
         elif stat.S_ISREG(info.st_mode):
             key = (info.st_dev, info.st_ino)
             if key not in seen_files:
@@ -71,6 +77,7 @@ def _walk(
     info: os.stat_result,
     seen_dirs: set[tuple[int, int]],
     seen_files: set[tuple[int, int]],
+    on_unreadable: Callable[[IngestError], object] | None,
 ) -> Iterator[Path]:
     key = (info.st_dev, info.st_ino)
     if key in seen_dirs:
@@ -79,8 +86,17 @@ def _walk(
     try:
         with os.scandir(root) as entries:
             names = sorted(entries, key=lambda e: e.name)
-    except OSError:
-        return  # unreadable folder: nothing to yield (its files cannot be read either)
+    except OSError as exc:
+        if on_unreadable is not None:  # its files cannot be read either: say so, go on
+            on_unreadable(
+                IngestError(
+                    "unreadable",
+                    f"folder cannot be read ({exc.strerror or type(exc).__name__}); "
+                    "its files were not scanned",
+                    str(root),
+                )
+            )
+        return
     for entry in names:
         child = root / entry.name
         try:
@@ -95,7 +111,7 @@ def _walk(
         except OSError:
             continue  # dangling link, or the entry vanished
         if stat.S_ISDIR(entry_info.st_mode):
-            yield from _walk(child, entry_info, seen_dirs, seen_files)
+            yield from _walk(child, entry_info, seen_dirs, seen_files, on_unreadable)
         elif stat.S_ISREG(entry_info.st_mode):
             file_key = (entry_info.st_dev, entry_info.st_ino)
             if file_key not in seen_files:
@@ -169,8 +185,19 @@ def scan(
     One bad file never stops the scan: its error is in its outcome. Files are
     visited in the deterministic order of :func:`iter_candidate_files`.
     """
-    for path in iter_candidate_files(paths):
-        outcome = scan_file(path, pseudonymiser)
+    unreadable: list[IngestError] = []
+
+    def folders() -> Iterator[ScanOutcome]:
+        while unreadable:
+            error = unreadable.pop(0)
+            yield ScanOutcome(Path(error.source or "."), None, error=error)
+
+    for path in iter_candidate_files(paths, unreadable.append):
+        for outcome in (*folders(), scan_file(path, pseudonymiser)):
+            if summary is not None:
+                summary.add(outcome)
+            yield outcome
+    for outcome in folders():
         if summary is not None:
             summary.add(outcome)
         yield outcome

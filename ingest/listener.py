@@ -300,7 +300,27 @@ class ListenerConfig:
         reports and the general SR classes legacy devices send dose reports in. Verification
         (C-ECHO) is always accepted.
     network_timeout_s : float
-        Seconds an idle association is kept open.
+        Seconds an established association may stay silent before it is closed.
+    request_timeout_s : float
+        Seconds a new TCP connection has to ask for an association (A-ASSOCIATE-RQ) before it
+        is closed: a connection that never asks holds no place for long.
+    association_timeout_s : float
+        Seconds an association may last in all; a sender dripping data is cut off then.
+    max_associations_per_ae : int
+        Concurrent associations from one calling AE title: one sender holding associations
+        idle leaves room for the others.
+    max_connections : int
+        TCP connections handled at once, associated or not yet (the hard cap; pynetdicom's
+        ``maximum_associations``). Connections that have not asked for an association do not
+        count against ``max_associations``.
+    max_objects_in_flight : int
+        Received objects decoded and stored at once (the others wait, then are refused with
+        0xA700 "out of resources" after half of ``network_timeout_s``).
+    max_object_bytes : int
+        Largest object accepted; a sender that sends more in one object has its association
+        aborted as soon as it passes the limit. Objects are received into temporary files
+        (pynetdicom's chunked receiving), never whole into memory, and only the header before
+        Pixel Data is read.
     """
 
     ae_title: str = "BEAMAUDIT"
@@ -316,7 +336,13 @@ class ListenerConfig:
             *GENERIC_SR_STORAGE_SOP_CLASSES,
         )
     )
-    network_timeout_s: float = 60.0
+    network_timeout_s: float = 30.0
+    request_timeout_s: float = 10.0
+    association_timeout_s: float = 3600.0
+    max_associations_per_ae: int = 4
+    max_connections: int = 64
+    max_objects_in_flight: int = 4
+    max_object_bytes: int = 1024 * 1024 * 1024
 
     def __post_init__(self) -> None:
         _check_ae_title(self.ae_title, "ae_title")
@@ -336,10 +362,17 @@ class ListenerConfig:
             )
         if not self.sop_classes:
             raise ListenerConfigError("sop_classes is empty: the listener would accept nothing")
-        if self.network_timeout_s <= 0:
-            raise ListenerConfigError(
-                f"network_timeout_s must be positive, not {self.network_timeout_s}"
-            )
+        for name in ("network_timeout_s", "request_timeout_s", "association_timeout_s"):
+            if getattr(self, name) <= 0:
+                raise ListenerConfigError(f"{name} must be positive, not {getattr(self, name)}")
+        for name in (
+            "max_associations_per_ae",
+            "max_connections",
+            "max_objects_in_flight",
+            "max_object_bytes",
+        ):
+            if getattr(self, name) < 1:
+                raise ListenerConfigError(f"{name} must be at least 1, not {getattr(self, name)}")
 
 
 def _check_ae_title(title: str, what: str) -> None:
@@ -392,13 +425,33 @@ def _where(exc: BaseException) -> str:
     return f"{_exception_name(exc)} at {filename}:{last.lineno} in {last.name}"
 
 
+def _read_received(event: evt.Event) -> tuple[Dataset, bytes]:
+    """The received data set and its Part 10 bytes, up to Pixel Data when received to a file.
+
+    With pynetdicom's chunked receiving the object sits in a temporary file: only the part
+    before Pixel Data (7FE0,0010) is read, so an image of hundreds of megabytes costs the
+    header's memory. Otherwise the object came in memory and is taken whole.
+    """
+    path = getattr(event.request, "_dataset_path", None)
+    if path is None:
+        return event.dataset, event.encoded_dataset()
+    from pydicom import dcmread
+
+    with open(path, "rb") as fh:
+        dataset = dcmread(fh, stop_before_pixels=True)
+        end = fh.tell()
+        fh.seek(0)
+        encoded = fh.read(end)
+    return dataset, encoded
+
+
 def _decode(event: evt.Event) -> tuple[ReceivedObject | None, StoreOutcome | None]:
     """Decode the request into a ReceivedObject, or say why it cannot be understood."""
     request = event.request
     requested_class = str(getattr(request, "AffectedSOPClassUID", "") or "")
     requested_instance = str(getattr(request, "AffectedSOPInstanceUID", "") or "")
     try:
-        dataset = event.dataset
+        dataset, encoded = _read_received(event)
         dataset.file_meta = event.file_meta
         # pydicom parses lazily: walk every element now, so a malformed data set is refused here
         # rather than half-read by the handler.
@@ -406,7 +459,6 @@ def _decode(event: evt.Event) -> tuple[ReceivedObject | None, StoreOutcome | Non
             pass
         sop_class_uid = str(dataset.get("SOPClassUID", "") or "")
         sop_instance_uid = str(dataset.get("SOPInstanceUID", "") or "")
-        encoded = event.encoded_dataset()
     except Exception as exc:  # any decoding failure of a peer's bytes is answered, not raised
         _LOG.warning(
             "C-STORE %s: data set cannot be decoded (%s)", requested_instance or "?", _where(exc)
@@ -442,9 +494,40 @@ def _decode(event: evt.Event) -> tuple[ReceivedObject | None, StoreOutcome | Non
 
 
 def _handle_store(
-    event: evt.Event, handler: StoreHandler, on_rejected: RejectHandler | None = None
+    event: evt.Event,
+    handler: StoreHandler,
+    on_rejected: RejectHandler | None = None,
+    guard: _Guard | None = None,
 ) -> Dataset:
     """EVT_C_STORE: decode, call the handler, map its outcome onto a C-STORE status."""
+    if guard is None:
+        return _store_one(event, handler, on_rejected)
+    guard.object_done(event.assoc)
+    # half the idle limit: the refusal reaches the sender well before its association would
+    # count as silent
+    if not guard.in_flight.acquire(timeout=guard.config.network_timeout_s / 2):
+        uid = str(getattr(event.request, "AffectedSOPInstanceUID", "") or "?")
+        _LOG.warning("C-STORE %s: refused, %d objects in flight already", uid,
+                     guard.config.max_objects_in_flight)  # fmt: skip
+        return _status_dataset(StoreOutcome.refused("busy: too many objects at once; retry"))
+    try:
+        return _store_one(event, handler, on_rejected)
+    finally:
+        guard.in_flight.release()
+        _restart_idle_timer(event.assoc)
+
+
+def _restart_idle_timer(assoc: Any) -> None:
+    """The time spent storing is not the sender's silence: ``network_timeout_s`` counts anew
+    once the answer is ready (pynetdicom counts from the last data received)."""
+    timer = getattr(getattr(assoc, "dul", None), "_idle_timer", None)
+    if timer is not None:
+        timer.restart()
+
+
+def _store_one(
+    event: evt.Event, handler: StoreHandler, on_rejected: RejectHandler | None
+) -> Dataset:
     received, outcome = _decode(event)
     uid = str(getattr(event.request, "AffectedSOPInstanceUID", "") or "?")
     if received is None and on_rejected is not None and outcome is not None:
@@ -515,6 +598,114 @@ def _log_released(event: evt.Event) -> None:
 
 def _log_aborted(event: evt.Event) -> None:
     _LOG.warning("association aborted with %s", _describe(event))
+
+
+# PS3.8 9.3.4 A-ASSOCIATE-RJ: result 2 rejected-transient, source 3 service-provider
+# (presentation), reason 2 local-limit-exceeded (as pynetdicom answers its own limit)
+_REJECT_TRANSIENT, _SOURCE_PROVIDER_PRESENTATION, _LOCAL_LIMIT_EXCEEDED = 0x02, 0x03, 0x02
+
+
+class _Guard:
+    """The listener's limits beyond pynetdicom's own: associations in all and per calling AE
+    title (counted from the A-ASSOCIATE-RQ on, so bare TCP connections hold no place), an
+    association's whole lifetime, objects in flight, and the size of one object."""
+
+    def __init__(self, config: ListenerConfig) -> None:
+        self.config = config
+        self.in_flight = threading.BoundedSemaphore(config.max_objects_in_flight)
+        self._lock = threading.Lock()
+        self._admitted: dict[int, tuple[str, threading.Timer]] = {}
+        self._received: dict[int, int] = {}
+        self._sockets: dict[int, Any] = {}
+
+    def on_opened(self, event: evt.Event) -> None:
+        """EVT_CONN_OPEN: remember the connection's socket, to close it for sure at the end."""
+        raw = getattr(getattr(event.assoc.dul, "socket", None), "socket", None)
+        if raw is not None:
+            with self._lock:
+                self._sockets[id(event.assoc)] = raw
+
+    def on_requested(self, event: evt.Event) -> None:
+        """EVT_REQUESTED: admit the association, or reject it (transient, local limit)."""
+        assoc = event.assoc
+        primitive = assoc.requestor.primitive
+        calling = str(getattr(primitive, "calling_ae_title", "") or "").strip()
+        with self._lock:
+            same_ae = sum(1 for ae, _ in self._admitted.values() if ae == calling)
+            full = len(self._admitted) >= self.config.max_associations
+            if not full and same_ae < self.config.max_associations_per_ae:
+                timer = threading.Timer(self.config.association_timeout_s, self._expire, [assoc])
+                timer.daemon = True
+                self._admitted[id(assoc)] = (calling, timer)
+                timer.start()
+                return
+        _LOG.warning(
+            "association from %s@%s refused: %s", calling or "?", assoc.requestor.address,
+            "the listener is at max_associations" if full
+            else "that AE title is at max_associations_per_ae",
+        )  # fmt: skip
+        assoc.acse.send_reject(
+            _REJECT_TRANSIENT, _SOURCE_PROVIDER_PRESENTATION, _LOCAL_LIMIT_EXCEEDED
+        )
+
+    def _expire(self, assoc: Any) -> None:
+        _LOG.warning(
+            "association from %s aborted: open longer than association_timeout_s (%.0f s)",
+            str(assoc.requestor.ae_title).strip(), self.config.association_timeout_s,
+        )  # fmt: skip
+        assoc.abort()
+
+    def on_data(self, event: evt.Event) -> None:
+        """EVT_DATA_RECV: count the bytes of the object being received; past
+        ``max_object_bytes`` the connection is closed (the association aborts)."""
+        key = id(event.assoc)
+        with self._lock:
+            total = self._received.get(key, 0) + len(event.data)
+            self._received[key] = total
+        if total > self.config.max_object_bytes + 65536:  # a PDU's framing over the object
+            _LOG.warning(
+                "association from %s aborted: object larger than max_object_bytes (%d)",
+                _describe(event), self.config.max_object_bytes,
+            )  # fmt: skip
+            with self._lock:
+                self._received[key] = 0
+            connection = event.assoc.dul.socket
+            if connection is not None:
+                connection.close()
+
+    def object_done(self, assoc: Any) -> None:
+        with self._lock:
+            self._received[id(assoc)] = 0
+
+    def on_closed(self, event: evt.Event) -> None:
+        """EVT_CONN_CLOSE: free the association's place; remove an unfinished object's file."""
+        key = id(event.assoc)
+        with self._lock:
+            admitted = self._admitted.pop(key, None)
+            self._received.pop(key, None)
+            raw = self._sockets.pop(key, None)
+        if admitted is not None:
+            admitted[1].cancel()
+        if raw is not None:
+            # pynetdicom skips close() when shutdown() fails (a peer already gone): under a
+            # flood of dropped connections that would leak a descriptor each time
+            raw.close()
+        _remove_partial_file(event.assoc)
+
+
+def _remove_partial_file(assoc: Any) -> None:
+    """pynetdicom leaves the temporary file of an object cut off mid-transfer: remove it."""
+    import os
+
+    message = getattr(getattr(assoc, "dimse", None), "message", None)
+    handle = getattr(message, "_data_set_file", None)
+    if handle is None:
+        return
+    try:
+        handle.close()
+        os.unlink(handle.name)
+    except OSError:
+        pass
 
 
 class Listener:
@@ -622,15 +813,27 @@ def start_listener(
     """
     if on_rejected is None:
         on_rejected = getattr(handler, "on_rejected", None)
+    from pynetdicom import _config as pynetdicom_config
+
+    # objects arrive into temporary files, not memory (pynetdicom removes each after the
+    # handler; _Guard.on_closed removes one cut off mid-transfer)
+    pynetdicom_config.STORE_RECV_CHUNKED_DATASET = True
+    guard = _Guard(config)
     ae = AE(ae_title=config.ae_title)
     ae.supported_contexts = storage_contexts(config.sop_classes)
-    ae.maximum_associations = config.max_associations
+    ae.maximum_associations = max(config.max_connections, config.max_associations)
     ae.network_timeout = config.network_timeout_s
+    ae.acse_timeout = config.request_timeout_s
+    ae.dimse_timeout = config.network_timeout_s
     ae.require_called_aet = config.require_called_aet
     if config.allowed_calling_aets is not None:
         ae.require_calling_aet = sorted(config.allowed_calling_aets)
     handlers: list[EventHandlerType] = [
-        (evt.EVT_C_STORE, _handle_store, [handler, on_rejected]),
+        (evt.EVT_C_STORE, _handle_store, [handler, on_rejected, guard]),
+        (evt.EVT_REQUESTED, guard.on_requested),
+        (evt.EVT_DATA_RECV, guard.on_data),
+        (evt.EVT_CONN_OPEN, guard.on_opened),
+        (evt.EVT_CONN_CLOSE, guard.on_closed),
         (evt.EVT_ACCEPTED, _log_accepted),
         (evt.EVT_REJECTED, _log_rejected),
         (evt.EVT_RELEASED, _log_released),

@@ -70,6 +70,9 @@ def _root(
         typer.Option("--version", callback=_version, is_eager=True, help="Print the version."),
     ] = False,
 ) -> None:
+    from beamaudit.api.logs import configure_logging
+
+    configure_logging()  # one line per record; library warnings without data values
     ctx.obj = {"config": config}
 
 

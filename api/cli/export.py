@@ -1,4 +1,13 @@
-"""``beamaudit export``: stored events in their canonical fields, as CSV or JSON."""
+"""``beamaudit export``: stored events in their canonical fields, as CSV or JSON.
+
+Each event carries its Study Instance UID and SOP Instance UID (last two columns), so that a
+physicist can find the study in PACS. The export reads the database directly, so it is the
+operator's (who holds the configuration) as the event API is the physicist role's.
+
+The CSV is spreadsheet-safe: a text cell starting with ``=``, ``+``, ``-``, ``@``, tab or CR (a
+Station Name or protocol sent by a modality) is prefixed with ``'``; numbers stay numbers. The
+JSON carries the values as they are.
+"""
 
 from __future__ import annotations
 
@@ -51,6 +60,7 @@ def export_events(
     from sqlalchemy import select
 
     from beamaudit.api.cli._store import open_store
+    from beamaudit.api.review.spreadsheet import safe_cell
     from beamaudit.api.store import models as m
 
     if fmt not in {"csv", "json"}:
@@ -62,9 +72,16 @@ def export_events(
         except ValueError:
             fail(f"--since must be a date YYYY-MM-DD, not {since!r}")
     store = open_store(ctx)
-    columns = _columns()
-    stmt = select(*(m.ExposureEventRow.__table__.c[c] for c in columns)).order_by(
-        m.ExposureEventRow.id
+    columns = [*_columns(), "study_instance_uid", "sop_instance_uid"]
+    stmt = (
+        select(
+            *(m.ExposureEventRow.__table__.c[c] for c in _columns()),
+            m.Study.study_instance_uid,
+            m.SourceObjectRow.sop_instance_uid,
+        )
+        .outerjoin(m.Study, m.Study.id == m.ExposureEventRow.study_id)
+        .join(m.SourceObjectRow, m.SourceObjectRow.id == m.ExposureEventRow.source_object_id)
+        .order_by(m.ExposureEventRow.id)
     )
     if since_dt is not None:
         stmt = stmt.where(m.ExposureEventRow.event_datetime >= since_dt)
@@ -74,7 +91,7 @@ def export_events(
             writer = csv.writer(sys.stdout, lineterminator="\n")
             writer.writerow(columns)
             for row in rows:
-                writer.writerow(["" if v is None else _plain(v) for v in row])
+                writer.writerow(["" if v is None else safe_cell(_plain(v)) for v in row])
         else:
             sys.stdout.write("[")
             for i, row in enumerate(rows):

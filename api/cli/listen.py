@@ -28,8 +28,11 @@ def listen_command(
     ] = None,
 ) -> None:
     """Receive images and dose reports by C-STORE; answer success only once stored."""
+    import logging
+
     from beamaudit.api.cli._store import open_store
     from beamaudit.api.cli.scan import pseudonym_key
+    from beamaudit.api.logs import configure_logging
     from beamaudit.api.pipeline import Pipeline
     from beamaudit.api.postprocess import Completion
     from beamaudit.api.receiving import make_store_handler
@@ -37,6 +40,7 @@ def listen_command(
     from beamaudit.ingest.listener import ListenerConfig, start_listener
     from beamaudit.ingest.pseudonym import Pseudonymiser
 
+    configure_logging(logging.INFO)  # associations and stored objects, for the operator
     store = open_store(ctx)
     cfg = store.settings.listener
     allowed = allow or cfg.allowed_calling_aets
@@ -46,6 +50,14 @@ def listen_command(
             host=host or cfg.host,
             port=port or cfg.port,
             allowed_calling_aets=frozenset(allowed) if allowed else None,
+            max_associations=cfg.max_associations,
+            max_associations_per_ae=min(cfg.max_associations_per_ae, cfg.max_associations),
+            max_connections=cfg.max_connections,
+            max_objects_in_flight=cfg.max_objects_in_flight,
+            max_object_bytes=cfg.max_object_bytes,
+            request_timeout_s=cfg.request_timeout_s,
+            network_timeout_s=cfg.idle_timeout_s,
+            association_timeout_s=cfg.association_timeout_s,
         )
         handler = make_store_handler(
             Pipeline(store.sessions, completion=Completion()),

@@ -24,20 +24,31 @@ def pull_command(
         list[str] | None, typer.Option("--modality", help="Modality in study (repeatable).")
     ] = None,
     as_json: Annotated[bool, typer.Option("--json", help="Print one JSON object.")] = False,
+    credentials: Annotated[
+        str | None,
+        typer.Option(
+            "--credentials",
+            help="Name of the login in the settings ([pull.credentials.NAME]); kept on the source.",
+        ),
+    ] = None,
 ) -> None:
     """Pull instance metadata (never pixel data) from a DICOMweb server into the store.
 
+    A login is never part of the URL: name one of the settings with --credentials.
     Exit code 0 when every instance was used, 1 when some were rejected, 2 on a
     usage error or an unreachable server.
     """
     from beamaudit.api.cli._store import open_store
     from beamaudit.api.cli.scan import pseudonym_key
     from beamaudit.api.pulling import pull_source
+    from beamaudit.ingest.dicomweb import DicomwebSource
     from beamaudit.ingest.errors import IngestError
     from beamaudit.ingest.pseudonym import Pseudonymiser
 
-    if not dicomweb.startswith(("http://", "https://")):
-        fail(f"--dicomweb must be an http(s) URL, not {dicomweb!r}")
+    try:
+        DicomwebSource(dicomweb)  # an http(s) URL without a login, or one clear line
+    except IngestError as exc:
+        fail(exc.reason)
     store = open_store(ctx)
     pseudonymiser = Pseudonymiser(pseudonym_key(store.settings.secret_key_path))
     try:
@@ -47,6 +58,8 @@ def pull_command(
             since=since,
             modalities=[m.upper() for m in modality] if modality else None,
             pseudonymiser=pseudonymiser,
+            settings=store.settings,
+            credentials=credentials,
         )
     except IngestError as exc:
         fail(exc.reason)
@@ -72,17 +85,32 @@ def sources_add(
     name: Annotated[str, typer.Argument(help="A name for the source.")],
     url: Annotated[str, typer.Argument(help="DICOMweb root URL.")],
     modality: Annotated[list[str] | None, typer.Option("--modality", help="Repeatable.")] = None,
+    credentials: Annotated[
+        str | None,
+        typer.Option(
+            "--credentials", help="Name of its login in the settings ([pull.credentials.NAME])."
+        ),
+    ] = None,
 ) -> None:
-    """Add a DICOMweb source for the nightly pull."""
+    """Add a DICOMweb source for the nightly pull (a login is named, never put in the URL)."""
     from sqlalchemy import select
 
     from beamaudit.api.auth import record_change
     from beamaudit.api.cli._store import open_store
+    from beamaudit.api.pulling import source_login
     from beamaudit.api.store import models as m
+    from beamaudit.ingest.dicomweb import DicomwebSource
+    from beamaudit.ingest.errors import IngestError
 
-    if not url.startswith(("http://", "https://")):
-        fail(f"URL must be http(s), not {url!r}")
+    try:
+        DicomwebSource(url)  # an http(s) URL without a login, or one clear line
+    except IngestError as exc:
+        fail(exc.reason)
     store = open_store(ctx)
+    try:
+        source_login(store.settings, credentials)
+    except IngestError as exc:
+        fail(exc.reason)
     with store.sessions.begin() as session:
         clash = session.scalar(
             select(m.DicomwebSource).where(
@@ -92,13 +120,15 @@ def sources_add(
         if clash is not None:
             fail(f"a source with that name or URL exists already (id {clash.id})")
         row = m.DicomwebSource(
-            name=name, url=url.rstrip("/"), modalities=[x.upper() for x in modality or []]
-        )
+            name=name, url=url.rstrip("/"), modalities=[x.upper() for x in modality or []],
+            credentials=credentials,
+        )  # fmt: skip
         session.add(row)
         session.flush()
         record_change(
             session, actor="cli", action="create", entity="dicomweb_source", entity_id=row.id,
-            after={"name": name, "url": row.url, "modalities": row.modalities},
+            after={"name": name, "url": row.url, "modalities": row.modalities,
+                   "credentials": credentials},
         )  # fmt: skip
     console.print(f"source {name} added")
 
@@ -113,11 +143,12 @@ def sources_list(ctx: typer.Context) -> None:
     from beamaudit.api.store import models as m
 
     store = open_store(ctx)
-    table = Table("id", "name", "url", "modalities", "watermark", "last pull (UTC)")
+    table = Table("id", "name", "url", "login", "modalities", "watermark", "last pull (UTC)")
     with store.sessions() as session:
         for row in session.scalars(select(m.DicomwebSource).order_by(m.DicomwebSource.id)):
             table.add_row(
-                str(row.id), row.name, row.url, ",".join(row.modalities or []) or "all",
+                str(row.id), row.name, row.url, row.credentials or "-",
+                ",".join(row.modalities or []) or "all",
                 str(row.watermark_date or "-"),
                 f"{row.last_pull_at:%Y-%m-%d %H:%M}" if row.last_pull_at else "-",
             )  # fmt: skip

@@ -251,6 +251,8 @@ def nightly_command(
             for s in session.scalars(select(m.DicomwebSource).where(m.DicomwebSource.enabled))
         ]
     report: dict[str, Any] = {"pulls": [], "failed": []}
+    # a source that fails (unreachable, refusing, too slow, no login) is reported; the other
+    # sources and the review go on, and the exit code says 2
     for url, modalities, watermark in sources:
         try:
             since = (
@@ -258,7 +260,7 @@ def nightly_command(
             )
             outcome = pull_source(
                 store.sessions, url=url, since=since, modalities=modalities or None,
-                pseudonymiser=pseudonymiser,
+                pseudonymiser=pseudonymiser, settings=store.settings,
             )  # fmt: skip
             report["pulls"].append(outcome.as_dict())
         except IngestError as exc:

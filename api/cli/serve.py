@@ -18,9 +18,12 @@ def serve_command(
 ) -> None:
     """Apply migrations, mark review runs cut short as failed, then serve the API (/api/v1) and
     the dashboards (/)."""
+    import logging
+
     import uvicorn
 
     from beamaudit.api.app import create_app
+    from beamaudit.api.logs import configure_logging
     from beamaudit.api.runs import fail_interrupted_runs
     from beamaudit.api.store import (
         StoreError,
@@ -41,7 +44,11 @@ def serve_command(
     if failed:
         console.print(f"review runs cut short, now marked failed: {', '.join(map(str, failed))}")
     console.print(f"beamaudit serving on http://{host}:{port}/ (database: {settings.backend})")
-    uvicorn.run(create_app(settings, engine=engine), host=host, port=port, log_level="info")
+    app = create_app(settings, engine=engine)
+    config = uvicorn.Config(app, host=host, port=port, log_level="info")
+    server = uvicorn.Server(config)  # uvicorn's logging is set up now: filter its handlers too
+    configure_logging(logging.INFO)
+    server.run()
 
 
 def register(app: typer.Typer) -> None:

@@ -26,16 +26,26 @@ def create_command(
     ctx: typer.Context,
     role: Annotated[str, typer.Option(help="viewer, physicist or admin.")],
     name: Annotated[str | None, typer.Option(help="Who or what the token is for.")] = None,
+    expires_in_days: Annotated[
+        int | None,
+        typer.Option(min=1, max=3650, help="Days the token stays valid (default: until revoked)."),
+    ] = None,
 ) -> None:
     """Make a token and print it once (only its hash is kept)."""
+    from datetime import timedelta
+
     from beamaudit.api.auth import ROLES, create_token
     from beamaudit.api.cli._store import open_store
+    from beamaudit.api.store.base import utcnow
 
     if role not in ROLES:
         fail(f"--role must be one of {', '.join(ROLES)}, not {role!r}")
+    expires = None if expires_in_days is None else utcnow() + timedelta(days=expires_in_days)
     store = open_store(ctx)
     with store.sessions.begin() as session:
-        token_id, token = create_token(session, role=role, name=name, actor=_actor())
+        token_id, token = create_token(
+            session, role=role, name=name, actor=_actor(), expires_at=expires
+        )
     console.print(
         f"token {token_id} ({role}) created; it is shown only this once:", highlight=False
     )
@@ -61,7 +71,7 @@ def revoke_command(
 
 @token_app.command("list")
 def list_command(ctx: typer.Context) -> None:
-    """List tokens (id, name, role, created, revoked); never the tokens themselves."""
+    """List tokens (id, name, role, created, expires, last used, revoked); never the tokens."""
     from rich.table import Table
     from sqlalchemy import select
 
@@ -69,7 +79,9 @@ def list_command(ctx: typer.Context) -> None:
     from beamaudit.api.store import models as m
 
     store = open_store(ctx)
-    table = Table("id", "name", "role", "created (UTC)", "revoked (UTC)")
+    table = Table(
+        "id", "name", "role", "created (UTC)", "expires (UTC)", "last used (UTC)", "revoked (UTC)"
+    )
     with store.sessions() as session:
         for row in session.scalars(select(m.ApiToken).order_by(m.ApiToken.id)):
             table.add_row(
@@ -77,6 +89,8 @@ def list_command(ctx: typer.Context) -> None:
                 row.name or "",
                 row.role,
                 f"{row.created_at:%Y-%m-%d %H:%M}",
+                f"{row.expires_at:%Y-%m-%d %H:%M}" if row.expires_at else "",
+                f"{row.last_used_at:%Y-%m-%d %H:%M}" if row.last_used_at else "",
                 f"{row.revoked_at:%Y-%m-%d %H:%M}" if row.revoked_at else "",
             )
     console.print(table)

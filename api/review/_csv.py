@@ -5,6 +5,9 @@ before the header that are blank or start with ``#`` are comments: they are kept
 where its values come from) and written back on export. After the header, blank lines are skipped.
 Column names are matched exactly after stripping spaces; an unknown or missing column is an error,
 so that a typo in a header never silently empties a column. Cell values are stripped.
+
+Text cells are written spreadsheet-safe (:mod:`beamaudit.api.review.spreadsheet`: a text starting
+with ``=``, ``+``, ``-``, ``@``, tab or CR gets a leading ``'``) and read back without that mark.
 """
 
 from __future__ import annotations
@@ -18,6 +21,7 @@ from pathlib import Path
 from typing import IO, Any
 
 from beamaudit.api.review.errors import CsvFormatError
+from beamaudit.api.review.spreadsheet import safe_text, unquote_text
 
 __all__ = ["CsvSource", "CsvTable", "read_table", "write_table"]
 
@@ -83,6 +87,9 @@ def read_table(
         number of cells (each problem with its line number).
     """
     name, text = _read_text(source)
+    if "\x00" in text:
+        line = text.count("\n", 0, text.index("\x00")) + 1
+        raise CsvFormatError(name, [(line, "holds a NUL byte: save the table as CSV text")])
     lines = text.splitlines(keepends=True)
     offset = 0
     comments: list[str] = []
@@ -115,7 +122,7 @@ def read_table(
     if missing:
         problems.append((header_line, f"missing column(s): {', '.join(missing)}"))
     if problems:
-        raise CsvFormatError(name, problems)
+        raise CsvFormatError(name, _first(problems))
 
     rows: list[tuple[int, dict[str, str]]] = []
     previous = reader.line_num
@@ -135,11 +142,22 @@ def read_table(
             problems.append((start, f"{len(cells)} cells where the header has {len(header)}"))
             continue
         row = {c: "" for c in known}
-        row.update({h: c.strip() for h, c in zip(header, cells, strict=True)})
+        row.update({h: unquote_text(c.strip()) for h, c in zip(header, cells, strict=True)})
         rows.append((start, row))
     if problems:
-        raise CsvFormatError(name, problems)
+        raise CsvFormatError(name, _first(problems))
     return CsvTable(source=name, comments=tuple(comments), rows=tuple(rows))
+
+
+#: problems reported at most per file (a file of a million wrong columns says so in a page)
+MAX_PROBLEMS = 50
+
+
+def _first(problems: list[tuple[int | None, str]]) -> list[tuple[int | None, str]]:
+    if len(problems) <= MAX_PROBLEMS:
+        return problems
+    more = len(problems) - MAX_PROBLEMS
+    return [*problems[:MAX_PROBLEMS], (None, f"... and {more} more problems")]
 
 
 def write_table(
@@ -179,4 +197,6 @@ def _cell(value: object) -> str:
         if value.is_integer() and abs(value) < 1e15:
             return str(int(value))
         return repr(value)
-    return str(value)
+    if isinstance(value, int):
+        return str(value)
+    return safe_text(str(value))  # a text a spreadsheet would run as a formula gets a '

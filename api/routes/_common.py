@@ -79,7 +79,7 @@ _CURSOR_PREFIX = "v1:"
 RowT = TypeVar("RowT")
 ModelT = TypeVar("ModelT", bound=BaseModel)
 
-#: largest CSV table an import accepts
+#: largest CSV table an import accepts (the default of ``api.max_csv_bytes``)
 MAX_CSV_BYTES = 8 * 1024 * 1024
 CSV_MEDIA_TYPES = ("text/csv", "text/plain", "application/csv")
 #: the request body of a CSV import, for the OpenAPI schema
@@ -92,6 +92,10 @@ CSV_ANSWER: dict[int | str, dict[str, Any]] = {
     200: {"content": {"text/csv": {"schema": {"type": "string"}}}, "description": "A CSV file."}
 }
 CSV_RESPONSES: dict[int | str, dict[str, Any]] = {
+    400: {
+        "model": ErrorBody,
+        "description": "Not a CSV table: a NUL byte, a line or a header past the limits.",
+    },
     413: {"model": ErrorBody, "description": "The file is larger than the limit."},
     415: {"model": ErrorBody, "description": "Not text/csv."},
 }
@@ -115,8 +119,13 @@ def revalidate(model: type[ModelT], data: dict[str, Any]) -> ModelT:
         ) from None
 
 
-async def read_csv_body(request: Request, limit: int = MAX_CSV_BYTES) -> bytes:
-    """The body of a CSV import, refused (413) once it passes ``limit`` bytes, 415 if not CSV."""
+async def read_csv_body(request: Request, limit: int | None = None) -> bytes:
+    """The body of a CSV import: 415 if not CSV, 413 once it passes ``limit`` bytes
+    (``api.max_csv_bytes``), 400 with the reason when it holds a NUL byte, a line longer than
+    ``api.max_csv_row_chars`` or a header of more than ``api.max_csv_columns`` columns: such a
+    file is no table, and parsing it whole would cost seconds and memory for nothing."""
+    api = request.app.state.settings.api
+    limit = api.max_csv_bytes if limit is None else limit
     media_type = request.headers.get("content-type", "").split(";")[0].strip().lower()
     if media_type not in CSV_MEDIA_TYPES:
         raise HTTPException(
@@ -131,7 +140,35 @@ async def read_csv_body(request: Request, limit: int = MAX_CSV_BYTES) -> bytes:
                 status.HTTP_413_CONTENT_TOO_LARGE, detail=f"the file is larger than {limit} bytes"
             )
         chunks.append(chunk)
-    return b"".join(chunks)
+    data = b"".join(chunks)
+    check_csv_shape(data, max_columns=api.max_csv_columns, max_line=api.max_csv_row_chars)
+    return data
+
+
+def check_csv_shape(data: bytes, *, max_columns: int, max_line: int) -> None:
+    """Refuse (400, with the line) a body holding a NUL byte, a line longer than ``max_line``
+    bytes, or a header (the first line that is neither blank nor a ``#`` comment) of more than
+    ``max_columns`` columns."""
+    import csv
+
+    def bad(message: str) -> NoReturn:
+        raise HTTPException(status.HTTP_400_BAD_REQUEST, detail=message)
+
+    nul = data.find(b"\x00")
+    if nul >= 0:
+        where = data.count(b"\n", 0, nul) + 1
+        bad(f"line {where} holds a NUL byte: save the table as CSV text")
+    header_seen = False
+    for number, line in enumerate(data.split(b"\n"), start=1):
+        if len(line) > max_line:
+            bad(f"line {number} is longer than {max_line} bytes (api.max_csv_row_chars)")
+        text = line.strip()
+        if header_seen or not text or text.startswith(b"#"):
+            continue
+        header_seen = True
+        columns = next(csv.reader([line.decode("utf-8", "replace")]), [])
+        if len(columns) > max_columns:
+            bad(f"the header (line {number}) has {len(columns)} columns; at most {max_columns}")
 
 
 def csv_invalid(exc: Any) -> NoReturn:

@@ -55,7 +55,16 @@ def list_tokens(session: DbSession, _: Admin) -> list[TokenRead]:
 )
 def create_api_token(body: TokenCreate, session: DbSession, who: Admin) -> TokenCreated:
     """Make a token; the answer is the only time the token is shown."""
-    token_id, token = create_token(session, role=body.role, name=body.name, actor=who.actor)
+    expires = None
+    if body.expires_in_days is not None:
+        from datetime import timedelta
+
+        from beamaudit.api.store.base import utcnow
+
+        expires = utcnow() + timedelta(days=body.expires_in_days)
+    token_id, token = create_token(
+        session, role=body.role, name=body.name, actor=who.actor, expires_at=expires
+    )
     session.commit()
     row = session.get(m.ApiToken, token_id)
     return TokenCreated(**TokenRead.model_validate(row).model_dump(), token=token)

@@ -159,7 +159,31 @@ def list_events(
 ) -> EventPage:
     """Exposure events, newest first; the period applies to the event's time (else its study's)."""
     rows, cursor = paginate(session, _events_query(filters, period, superseded), E.id, page)
-    return EventPage(items=[EventSummary.model_validate(r) for r in rows], next_cursor=cursor)
+    studies = _uids(session, m.Study.id, m.Study.study_instance_uid, {r.study_id for r in rows})
+    sources = _uids(
+        session,
+        m.SourceObjectRow.id,
+        m.SourceObjectRow.sop_instance_uid,
+        {r.source_object_id for r in rows},
+    )
+    items = [
+        EventSummary.model_validate(r).model_copy(
+            update={
+                "study_instance_uid": studies.get(r.study_id),
+                "sop_instance_uid": sources.get(r.source_object_id),
+            }
+        )
+        for r in rows
+    ]
+    return EventPage(items=items, next_cursor=cursor)
+
+
+def _uids(session: Any, key: Any, uid: Any, ids: set[int | None]) -> dict[int, str]:
+    """The UIDs of a page's studies or source objects, by row id, in one query."""
+    wanted = [i for i in ids if i is not None]
+    if not wanted:
+        return {}
+    return {k: v for k, v in session.execute(select(key, uid).where(key.in_(wanted)))}
 
 
 def _ratio(reported: float | None, reconstructed: float | None) -> float | None:

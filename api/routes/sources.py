@@ -23,7 +23,7 @@ __all__ = ["router"]
 
 router = APIRouter(tags=["sources"], responses=AUTH_RESPONSES)
 
-SOURCE_FIELDS = ("name", "url", "modalities", "enabled", "watermark_date")
+SOURCE_FIELDS = ("name", "url", "credentials", "modalities", "enabled", "watermark_date")
 S = m.DicomwebSource
 
 

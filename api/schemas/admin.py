@@ -33,6 +33,9 @@ __all__ = [
 class TokenCreate(InputModel):
     role: Literal["viewer", "physicist", "admin"]
     name: Name | None = Field(default=None, description="who or what the token is for")
+    expires_in_days: int | None = Field(
+        default=None, ge=1, le=3650, description="days the token stays valid; none: until revoked"
+    )
 
 
 class TokenRead(ReadModel):
@@ -43,7 +46,8 @@ class TokenRead(ReadModel):
     role: str
     created_at: datetime
     revoked_at: datetime | None
-    last_used_at: datetime | None
+    last_used_at: datetime | None = Field(description="last use, to the minute")
+    expires_at: datetime | None = Field(default=None, description="none: valid until revoked")
 
 
 class TokenCreated(TokenRead):
@@ -70,8 +74,14 @@ class AuditPage(Page[AuditEntryRead]):
 
 # -- DICOMweb sources -----------------------------------------------------------------------------
 def _http_url(value: str) -> str:
-    """An http(s) URL, normalised by pydantic's ``HttpUrl``, kept as text."""
-    return clean_text(str(_HTTP_URL.validate_python(value)))
+    """An http(s) URL, normalised by pydantic's ``HttpUrl``, kept as text; never with a login."""
+    url = _HTTP_URL.validate_python(value)
+    if url.username or url.password:
+        raise ValueError(
+            "the URL holds a login (user:password@); name a login of the settings in "
+            "'credentials' instead (pull.credentials.NAME), never a password in a URL"
+        )
+    return clean_text(str(url))
 
 
 _HTTP_URL: TypeAdapter[HttpUrl] = TypeAdapter(HttpUrl)
@@ -92,9 +102,17 @@ Modalities = Annotated[
 ]
 
 
+Credentials = Annotated[
+    str,
+    StringConstraints(pattern=r"^[A-Za-z0-9_.-]{1,64}$"),
+    Field(description="the name of a login in the settings (pull.credentials.NAME), not the login"),
+]
+
+
 class SourceCreate(InputModel):
     name: Name
     url: SourceUrl
+    credentials: Credentials | None = None
     modalities: Modalities = Field(default_factory=list)
     enabled: bool = True
     watermark_date: date | None = Field(
@@ -109,6 +127,7 @@ class SourceUpdate(InputModel):
 
     name: Name | None = None
     url: SourceUrl | None = None
+    credentials: Credentials | None = None
     modalities: Modalities | None = None
     enabled: bool | None = None
     watermark_date: date | None = None
@@ -121,6 +140,7 @@ class SourceRead(ReadModel):
     id: int
     name: str
     url: str
+    credentials: str | None = Field(default=None, description="the name of its login, if any")
     modalities: list[str]
     enabled: bool
     watermark_date: date | None

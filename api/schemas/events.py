@@ -40,6 +40,12 @@ class EventSummary(ReadModel):
     study_id: int | None
     room_id: int | None
     device_id: int | None
+    study_instance_uid: str | None = Field(
+        default=None, description="the study's Study Instance UID (0020,000D), to find it in PACS"
+    )
+    sop_instance_uid: str | None = Field(
+        default=None, description="SOP Instance UID (0008,0018) of the header or dose report"
+    )
     source_kind: str = Field(description="image_header or rdsr")
     modality: str | None
     exam_type: str | None

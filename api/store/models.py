@@ -457,6 +457,24 @@ class ApiToken(Base):
     created_at: Mapped[datetime] = mapped_column(UTCDateTime(), default=utcnow)
     revoked_at: Mapped[datetime | None] = mapped_column(UTCDateTime())
     last_used_at: Mapped[datetime | None] = mapped_column(UTCDateTime())
+    expires_at: Mapped[datetime | None] = mapped_column(UTCDateTime())  # None: no expiry
+
+
+class BrowserSession(Base):
+    """A signed-in browser: its cookie (kept only as SHA-256), CSRF token and expiry.
+
+    The cookie is a random value of its own, never the API token it was opened with; signing
+    out, the token's revocation or expiry, and ``expires_at`` end it.
+    """
+
+    __tablename__ = "browser_sessions"
+    id: Mapped[int] = mapped_column(primary_key=True)
+    session_hash: Mapped[str] = mapped_column(String, unique=True)
+    csrf_token: Mapped[str] = mapped_column(String)
+    token_id: Mapped[int] = mapped_column(ForeignKey("api_tokens.id"), index=True)
+    created_at: Mapped[datetime] = mapped_column(UTCDateTime(), default=utcnow)
+    expires_at: Mapped[datetime] = mapped_column(UTCDateTime())
+    ended_at: Mapped[datetime | None] = mapped_column(UTCDateTime())
 
 
 class AuditLogEntry(Base):
@@ -485,3 +503,5 @@ class DicomwebSource(Base):
     last_pull_at: Mapped[datetime | None] = mapped_column(UTCDateTime())
     last_pull_report: Mapped[dict[str, Any] | None] = mapped_column(JSONValue)
     enabled: Mapped[bool] = mapped_column(Boolean, default=True)
+    # the name of a login in the settings (pull.credentials.NAME); never the login itself
+    credentials: Mapped[str | None] = mapped_column(String)

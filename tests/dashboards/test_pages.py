@@ -171,7 +171,9 @@ def test_names_are_escaped_in_markup_and_figures(demo_groups: Rows) -> None:
     assert "</script><b>" not in html
     assert "&lt;/script&gt;&lt;b&gt;x&lt;/b&gt;" in html
     figure = _Page(html).figures["overview-heatmap"]
-    assert "</script><b>x</b>" in figure["data"][0]["y"]  # the JSON reads back intact
+    # the JSON reads back intact, the closing tag written as text for plotly (shown "</script>"),
+    # plotly's own <b> kept
+    assert "&lt;/script><b>x</b>" in figure["data"][0]["y"]
 
 
 def test_distributions_default_to_the_reviewed_quantities(pages: dict[str, str]) -> None:
@@ -215,7 +217,7 @@ def test_exam_page_shows_technique_dose_spectrum_and_why(pages: dict[str, str]) 
     assert "uses an assumed value" in words
     assert "Assumed: patient thickness 22 cm (no measured value)" in words
     assert sorted(page.figures) == ["spectrum-0", "spectrum-1"]
-    nav = 3  # Overview, Distributions, Flags
+    nav = 4  # Overview, Distributions, Flags, and Sign out beside who is signed in
     assert page.links[nav : nav + 3] == ["/rooms/West%20DR%201", "/", "/rooms/West%20DR%201"]
 
 

@@ -25,7 +25,14 @@ from sqlalchemy.orm import Session, sessionmaker
 from beamaudit.api.store import make_engine, make_session_factory, upgrade
 from beamaudit.api.store import models as m
 
-__all__ = ["SharedStore", "beamaudit_process", "counts", "shared_store", "start_beamaudit"]
+__all__ = [
+    "SharedStore",
+    "beamaudit_process",
+    "counts",
+    "every_value",
+    "shared_store",
+    "start_beamaudit",
+]
 
 POSTGRES_ENV = "BEAMAUDIT_TEST_POSTGRES_URL"
 
@@ -100,6 +107,20 @@ def counts(store: SharedStore) -> dict[str, Any]:
         "objects_without_events": orphans,
         "errors": errors,
     }
+
+
+def every_value(store: SharedStore) -> str:
+    """Every value of every table as text, one a line (to search for what must not be stored)."""
+    from sqlalchemy import String, cast
+
+    from beamaudit.api.store import Base
+
+    parts: list[str] = []
+    with store.sessions() as session:
+        for table in Base.metadata.sorted_tables:
+            for row in session.execute(select(*(cast(c, String) for c in table.columns))):
+                parts.extend(str(v) for v in row if v is not None)
+    return "\n".join(parts)
 
 
 def start_beamaudit(

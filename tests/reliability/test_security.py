@@ -122,3 +122,42 @@ def test_listener_accepts_only_the_configured_calling_ae_titles(tmp_path: Path) 
                 else:
                     assert assoc.is_rejected
         assert counts(store)["objects"] == 1
+
+
+@pytest.mark.slow
+def test_listener_serves_a_legitimate_sender_under_idle_connections_and_associations(
+    tmp_path: Path,
+) -> None:
+    """10 bare TCP connections and 10 idle associations from an allowed AE title held open:
+    the listener (``max_associations`` from the settings) still stores a third sender's object."""
+    import socket
+
+    port = free_port()
+    with shared_store("sqlite", tmp_path) as store:
+        args = ["listen", "--host", "127.0.0.1", "--port", str(port)]
+        env = {
+            "BEAMAUDIT_LISTENER__ALLOWED_CALLING_AETS": '["DR_ROOM1", "CT_MAIN"]',
+            "BEAMAUDIT_LISTENER__MAX_ASSOCIATIONS": "10",
+        }
+        with beamaudit_process(args, store, tmp_path / "listen.log", **env):
+            assert wait_for_tcp(port, timeout_s=60)
+            bare = [socket.create_connection(("127.0.0.1", port)) for _ in range(10)]
+            held = []
+            for _ in range(10):
+                ae = AE(ae_title="DR_ROOM1")
+                ae.add_requested_context(DX_PRESENTATION, EXPLICIT_LE)
+                held.append(ae.associate("127.0.0.1", port, ae_title="BEAMAUDIT"))
+            try:
+                ae = AE(ae_title="CT_MAIN")
+                ae.add_requested_context(DX_PRESENTATION, EXPLICIT_LE)
+                assoc = ae.associate("127.0.0.1", port, ae_title="BEAMAUDIT")
+                assert assoc.is_established
+                assert assoc.send_c_store(dx_header("legitimate-under-load")).Status == 0
+                assoc.release()
+            finally:
+                for a in held:
+                    if a.is_established:
+                        a.release()
+                for s in bare:
+                    s.close()
+        assert counts(store)["objects"] == 1

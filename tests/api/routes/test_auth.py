@@ -70,7 +70,10 @@ def test_revoked_token_is_401(api) -> None:
 
 
 def test_session_cookie_authenticates(api) -> None:
-    api.client.cookies.set("beamaudit_session", api.tokens["physicist"])
+    signed_in = api.client.post(
+        "/login", data={"token": api.tokens["physicist"]}, follow_redirects=False
+    )
+    assert signed_in.status_code == 303
     try:
         assert api.get("/rooms", as_=None).status_code == 200
     finally:

@@ -182,3 +182,14 @@ def test_bad_queries_are_422_naming_the_field(api, params, field) -> None:
     response = api.get("/events", params=params)
     assert response.status_code == 422
     assert field in [d["loc"][-1] for d in response.json()["detail"]]
+
+
+def test_events_carry_study_and_sop_instance_uids_for_physicists_only(api, events) -> None:
+    """A physicist traces a figure back to PACS by its UIDs; a viewer reads no event at all."""
+    items = api.get("/events", as_="physicist").json()["items"]
+    by_sop = {i["sop_instance_uid"]: i["study_instance_uid"] for i in items}
+    assert by_sop == {"1.2.3.1": "1.2.3.100", "1.2.3.2": "1.2.3.200", "1.2.3.3": "1.2.3.300"}
+    detail = api.get(f"/events/{events[0]}", as_="physicist").json()
+    assert (detail["study_instance_uid"], detail["sop_instance_uid"]) == ("1.2.3.100", "1.2.3.1")
+    assert api.get("/events", as_="viewer").status_code == 403
+    assert api.get(f"/events/{events[0]}", as_="viewer").status_code == 403

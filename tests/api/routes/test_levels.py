@@ -106,7 +106,9 @@ def test_update_replaces_levels_then_retire_freezes_the_set(api, catalogue) -> N
     with api.store.session_factory() as s:
         entries = list(
             s.scalars(
-                select(m.AuditLogEntry).where(m.AuditLogEntry.entity == "reference_level_set")
+                select(m.AuditLogEntry)
+                .where(m.AuditLogEntry.entity == "reference_level_set")
+                .order_by(m.AuditLogEntry.id)  # PostgreSQL returns rows in no set order
             )
         )
     assert [e.action for e in entries] == ["create", "update", "retire"]

@@ -17,7 +17,13 @@ def room(api):
 
 def audit_entries(api, entity):
     with api.store.session_factory() as s:
-        return list(s.scalars(select(m.AuditLogEntry).where(m.AuditLogEntry.entity == entity)))
+        return list(
+            s.scalars(
+                select(m.AuditLogEntry)
+                .where(m.AuditLogEntry.entity == entity)
+                .order_by(m.AuditLogEntry.id)  # PostgreSQL returns rows in no set order
+            )
+        )
 
 
 def test_first_seen_device_has_a_default_room(api, room) -> None:
