@@ -10,8 +10,9 @@ Dose figures: geometry from what an exposure carries (:mod:`.geometry`, document
 :mod:`.defaults`), the dose chain (:mod:`.dose`), backscatter factors (:mod:`.backscatter`),
 every figure of one exposure with its uncertainty and why trail (:mod:`.exposure`,
 :mod:`.trail`), the same figures of many stored exposures at once as arrays (:mod:`.bulk`),
-fluoroscopy and CT accumulations (:mod:`.fluoro_ct`), the size-specific dose
-estimate (:mod:`.ssde`) and unit conversions (:mod:`.units`).
+fluoroscopy and CT accumulations (:mod:`.fluoro_ct`) and the size-specific dose
+estimate (:mod:`.ssde`). :mod:`.exposure` and :mod:`.bulk` share one dose chain
+(:mod:`._chain`). Every error on bad input is a :class:`ModelError` (:mod:`.errors`).
 """
 
 from beamaudit.model.attenuation import (

@@ -12,9 +12,11 @@ calibration; it runs the beam model (:func:`beamaudit.model.compute_beam`) and r
 - the air kerma at the reference point of a dose report, where its distance is known,
 
 each as a :class:`DoseFigure` (value, unit, standard uncertainty, trail), and the values the
-device reported beside the reconstructed ones with their ratio. The equations are those of
-:mod:`beamaudit.model.dose`; :func:`dose_from_beam` does the same from plain beam numbers, so
-the dose chain can be used and tested without the beam model.
+device reported beside the reconstructed ones with their ratio. :func:`dose_from_beam` does the
+same from plain beam numbers, so the dose chain can be used and tested without the beam model.
+Its numbers come from the one dose chain of :mod:`beamaudit.model._chain` (equations there),
+the same that :func:`beamaudit.model.dose_from_beams` runs over many exposures at once; this
+module writes the why trail of one exposure around them.
 
 Uncertainty: relative standard uncertainties of the beam output, the distances, the field and
 the backscatter factor are combined in quadrature (first order, inputs treated as
@@ -30,18 +32,17 @@ from collections.abc import Mapping, Sequence
 from dataclasses import dataclass, field
 from typing import TYPE_CHECKING, Any
 
-from beamaudit.model.backscatter import backscatter_estimate
-from beamaudit.model.defaults import dose_default
-from beamaudit.model.dose import (
-    ReportedVsReconstructed,
-    air_kerma_at_distance_mgy,
-    compare_reported,
-    dap_gy_cm2,
-    entrance_surface_air_kerma_mgy,
-    entrance_surface_dose_mgy,
-    incident_air_kerma_mgy,
-    relative_uncertainty_of_product,
+import numpy as np
+
+from beamaudit.model._chain import (
+    BEAM_NUMBERS,
+    GEOMETRY_NUMBERS,
+    ChainFigures,
+    Failures,
+    run_chain,
 )
+from beamaudit.model.backscatter import backscatter_estimate
+from beamaudit.model.dose import ReportedVsReconstructed, compare_reported
 from beamaudit.model.errors import ModelError
 from beamaudit.model.geometry import GeometryInputs, ResolvedGeometry, resolve_geometry
 from beamaudit.model.trail import WhyTrail
@@ -309,216 +310,43 @@ def dose_from_beam(
     """
     mas = _check_mas(exposure_mas)
     geo = resolve_geometry(geometry)
+    failures = Failures(1)
+    chain = run_chain(
+        failures,
+        beam_numbers=np.array([BEAM_NUMBERS(beam)], dtype=np.float64),
+        mas=np.array([mas]),
+        geometry_numbers=np.array([GEOMETRY_NUMBERS(geo)], dtype=np.float64),
+        d_ref_raw=[geometry.source_to_reference_point_mm],
+    )
+    if failures.errors[0] is not None:
+        raise ModelError(failures.errors[0])
+    c = _Scalars(chain)
     beam_trail = _beam_trail(beam, mas)
-    extra_notes: list[str] = []
-    mas_rel = dose_default("reported_exposure_mas_relative_uncertainty").value
-    y_rel = beam.output_standard_uncertainty_ugy_per_mas_1m / beam.output_ugy_per_mas_1m
-
-    # focus-to-skin distance
-    fsd_trail = geo.distance_trail.copy()
-    fsd = DoseFigure("fsd_mm", geo.fsd_mm, "mm", geo.fsd_standard_uncertainty_mm, fsd_trail)
-
-    # incident air kerma
-    k_i = float(
-        incident_air_kerma_mgy(
-            output_ugy_per_mas_1m=beam.output_ugy_per_mas_1m, exposure_mas=mas, fsd_mm=geo.fsd_mm
-        )
+    notes: list[str] = []
+    fsd = DoseFigure(
+        "fsd_mm", geo.fsd_mm, "mm", geo.fsd_standard_uncertainty_mm, geo.distance_trail.copy()
     )
-    k_i_rel = relative_uncertainty_of_product(
-        (y_rel, 1), (mas_rel, 1), (geo.fsd_standard_uncertainty_mm / geo.fsd_mm, -2)
-    )
-    k_i_trail = beam_trail.copy()
-    k_i_trail.merge(geo.distance_trail)
-    k_i_trail.add(
-        "incident_air_kerma_mgy",
-        k_i,
-        "mGy",
-        equation="K_a,i = Y(1 m) · P_It · (1 m / FSD)²",
-        source="inverse-square law; IAEA TRS 457 (2007) §7",
-        inputs={
-            "output_ugy_per_mas_1m": beam.output_ugy_per_mas_1m,
-            "exposure_mas": mas,
-            "fsd_mm": geo.fsd_mm,
-        },
-    )
-    incident = DoseFigure("incident_air_kerma_mgy", k_i, "mGy", k_i * k_i_rel, k_i_trail)
-
-    # DAP at the plane the field is known at
-    k_plane = float(
-        air_kerma_at_distance_mgy(
-            output_ugy_per_mas_1m=beam.output_ugy_per_mas_1m,
-            exposure_mas=mas,
-            distance_mm=geo.field_plane_mm,
-        )
-    )
-    dap_value = float(dap_gy_cm2(air_kerma_mgy=k_plane, field_area_cm2=geo.field_area_at_plane_cm2))
-    dap_rel = relative_uncertainty_of_product(
-        (y_rel, 1),
-        (mas_rel, 1),
-        (geo.field_area_relative_uncertainty, 1),
-        (geo.field_plane_standard_uncertainty_mm / geo.field_plane_mm, -2),
-    )
-    dap_trail = beam_trail.copy()
-    dap_trail.merge(geo.field_trail)
-    dap_trail.add(
-        "air_kerma_at_field_plane_mgy",
-        k_plane,
-        "mGy",
-        equation="K(d) = Y(1 m) · P_It · (1 m / d)²",
-        source="inverse-square law; IAEA TRS 457 (2007) §7",
-        inputs={"distance_mm": geo.field_plane_mm},
-    )
-    dap_trail.add(
-        "dap_gy_cm2",
-        dap_value,
-        "Gy·cm²",
-        equation="P_KA = K(d) · A(d), the same at every plane",
-        source="ICRU Report 74 (2005); IAEA TRS 457 (2007)",
-        inputs={"air_kerma_mgy": k_plane, "field_area_cm2": geo.field_area_at_plane_cm2},
-    )
-    dap = DoseFigure("dap_gy_cm2", dap_value, "Gy·cm²", dap_value * dap_rel, dap_trail)
-
-    # backscatter, ESAK, ESD
-    bsf = esak = esd = None
-    try:
-        b = backscatter_estimate(
-            hvl_mm_al=beam.hvl1_mm_al,
-            field_side_cm=geo.entrance_field_side_cm,
-            hvl_standard_uncertainty_mm_al=beam.hvl1_standard_uncertainty_mm_al,
-            field_side_standard_uncertainty_cm=geo.entrance_field_side_standard_uncertainty_cm,
-            out_of_range="nearest",
-        )
-    except ModelError as exc:
-        extra_notes.append(f"no entrance surface air kerma or dose: {exc}")
-    else:
-        b_trail = WhyTrail()
-        b_trail.add(
-            "hvl1_mm_al",
-            beam.hvl1_mm_al,
-            "mm Al",
-            equation="computed from the spectrum model"
-            if not beam.calibrated
-            else "beam model with the room calibration",
-            source=beam.source,
-            inputs={"standard_uncertainty": beam.hvl1_standard_uncertainty_mm_al},
-        )
-        b_trail.merge(geo.distance_trail)
-        b_trail.merge(geo.field_trail)
-        for note in (
-            *b.notes,
-            "backscatter factor of a water phantom used for soft tissue (they differ by less "
-            "than 1 %, Ma & Seuntjens, Phys Med Biol 44:131, 1999)",
-        ):
-            b_trail.add(
-                "backscatter_table",
-                None,
-                "",
-                equation="table choice",
-                source=b.source,
-                assumed=True,
-                note=note,
-            )
-        b_trail.add(
-            "backscatter_factor",
-            b.value,
-            "1",
-            equation="bilinear interpolation in HVL and equivalent-square field side",
-            source=b.source,
-            inputs={
-                "hvl1_mm_al": b.hvl_mm_al,
-                "entrance_field_side_cm": b.field_side_cm,
-                "standard_uncertainty": b.standard_uncertainty,
-            },
-        )
-        bsf = DoseFigure("backscatter_factor", b.value, "1", b.standard_uncertainty, b_trail)
-        k_e = float(
-            entrance_surface_air_kerma_mgy(incident_air_kerma_mgy=k_i, backscatter_factor=b.value)
-        )
-        k_e_rel = relative_uncertainty_of_product(
-            (k_i_rel, 1), (b.standard_uncertainty / b.value, 1)
-        )
-        esak_trail = k_i_trail.copy()
-        esak_trail.merge(b_trail)
-        esak_trail.add(
-            "esak_mgy",
-            k_e,
-            "mGy",
-            equation="K_a,e = K_a,i · B",
-            source="ICRU Report 74 (2005); IAEA TRS 457 (2007)",
-            inputs={"incident_air_kerma_mgy": k_i, "backscatter_factor": b.value},
-        )
-        esak = DoseFigure("esak_mgy", k_e, "mGy", k_e * k_e_rel, esak_trail)
-        ratio_rel = dose_default("tissue_to_air_ratio_relative_uncertainty").value
-        d = float(
-            entrance_surface_dose_mgy(
-                entrance_surface_air_kerma_mgy=k_e, tissue_to_air_ratio=beam.tissue_to_air_ratio
-            )
-        )
-        esd_trail = esak_trail.copy()
-        esd_trail.add(
-            "tissue_to_air_ratio",
-            beam.tissue_to_air_ratio,
-            "1",
-            equation="spectrum-averaged (μen/ρ) soft tissue / air",
-            source=f"{beam.source}; tissue ICRU-44 soft tissue",
-            inputs={"relative_standard_uncertainty": ratio_rel},
-        )
-        esd_trail.add(
-            "entrance_dose_mgy",
-            d,
-            "mGy",
-            equation="D = K_a,e · (μen/ρ)_tissue,air",
-            source="IAEA TRS 457 (2007) §7",
-            inputs={"esak_mgy": k_e, "tissue_to_air_ratio": beam.tissue_to_air_ratio},
-        )
-        d_rel = relative_uncertainty_of_product((k_e_rel, 1), (ratio_rel, 1))
-        esd = DoseFigure("entrance_dose_mgy", d, "mGy", d * d_rel, esd_trail)
-
-    # reference point
-    ref_figure = None
-    d_ref = geometry.source_to_reference_point_mm
-    if d_ref is not None:
-        if not (math.isfinite(d_ref) and d_ref > 0):
-            raise ModelError(f"source_to_reference_point_mm must be positive, not {d_ref!r}")
-        k_r = float(
-            air_kerma_at_distance_mgy(
-                output_ugy_per_mas_1m=beam.output_ugy_per_mas_1m,
-                exposure_mas=mas,
-                distance_mm=d_ref,
-            )
-        )
-        rel_d = dose_default("recorded_distance_relative_uncertainty").value
-        k_r_rel = relative_uncertainty_of_product((y_rel, 1), (mas_rel, 1), (rel_d, -2))
-        ref_trail = beam_trail.copy()
-        ref_trail.add(
-            "reference_point_air_kerma_mgy",
-            k_r,
-            "mGy",
-            equation="K_a,r = Y(1 m) · P_It · (1 m / d_ref)²",
-            source="inverse-square law; reference point per IEC 60601-2-43",
-            inputs={"source_to_reference_point_mm": float(d_ref)},
-        )
-        ref_figure = DoseFigure(
-            "reference_point_air_kerma_mgy", k_r, "mGy", k_r * k_r_rel, ref_trail
-        )
-
+    incident = _incident_figure(beam, geo, beam_trail, c)
+    dap = _dap_figure(beam, geo, beam_trail, c)
+    bsf, esak, esd = _entrance_figures(beam, geo, incident, c, notes)
+    reference = _reference_figure(beam_trail, geometry, c)
     comparisons = _comparisons(
         dap=dap,
         incident=incident,
-        reference=ref_figure,
+        reference=reference,
         reported_dap_gy_cm2=reported_dap_gy_cm2,
         reported_entrance_dose_mgy=reported_entrance_dose_mgy,
         entrance_dose_derivation=entrance_dose_derivation,
         reported_reference_point_air_kerma_mgy=reported_reference_point_air_kerma_mgy,
         reported_source=reported_source,
-        notes=extra_notes,
+        notes=notes,
     )
-    figures = [f for f in (dap, incident, bsf, esak, esd, ref_figure, fsd) if f is not None]
+    figures = [f for f in (dap, incident, bsf, esak, esd, reference, fsd) if f is not None]
     assumptions: dict[str, None] = {}
     for f in figures:
         for note in f.trail.assumptions:
             assumptions.setdefault(note, None)
-    for note in extra_notes:
+    for note in notes:
         assumptions.setdefault(note, None)
     return ExposureDose(
         kvp_kv=beam.kvp_kv,
@@ -532,11 +360,194 @@ def dose_from_beam(
         backscatter_factor=bsf,
         esak=esak,
         entrance_dose=esd,
-        reference_point_air_kerma=ref_figure,
+        reference_point_air_kerma=reference,
         fsd=fsd,
         comparisons=comparisons,
         assumptions=list(assumptions),
     )
+
+
+class _Scalars:
+    """The chain's numbers of its only exposure, as Python floats (``c.k_i``, ``c.dap``...)."""
+
+    def __init__(self, chain: ChainFigures) -> None:
+        self._chain = chain
+
+    def __getattr__(self, name: str) -> Any:
+        value = getattr(self._chain, name)
+        return float(value[0]) if isinstance(value, np.ndarray) else value
+
+    def has(self, name: str) -> bool:
+        return bool(getattr(self._chain, name)[0])
+
+
+_INVERSE_SQUARE = "inverse-square law; IAEA TRS 457 (2007) §7"
+
+
+def _incident_figure(
+    beam: BeamInputs, geo: ResolvedGeometry, beam_trail: WhyTrail, c: _Scalars
+) -> DoseFigure:
+    """K_a,i = Y(1 m) P_It (1 m / FSD)^2, with its trail."""
+    trail = beam_trail.copy()
+    trail.merge(geo.distance_trail)
+    trail.add(
+        "incident_air_kerma_mgy",
+        c.k_i,
+        "mGy",
+        equation="K_a,i = Y(1 m) · P_It · (1 m / FSD)²",
+        source=_INVERSE_SQUARE,
+        inputs={
+            "output_ugy_per_mas_1m": beam.output_ugy_per_mas_1m,
+            "exposure_mas": c.mas,
+            "fsd_mm": geo.fsd_mm,
+        },
+    )
+    return DoseFigure("incident_air_kerma_mgy", c.k_i, "mGy", c.k_i * c.k_i_rel, trail)
+
+
+def _dap_figure(
+    beam: BeamInputs, geo: ResolvedGeometry, beam_trail: WhyTrail, c: _Scalars
+) -> DoseFigure:
+    """P_KA = K(d) A(d) at the plane the field is known at, with its trail."""
+    trail = beam_trail.copy()
+    trail.merge(geo.field_trail)
+    trail.add(
+        "air_kerma_at_field_plane_mgy",
+        c.k_plane,
+        "mGy",
+        equation="K(d) = Y(1 m) · P_It · (1 m / d)²",
+        source=_INVERSE_SQUARE,
+        inputs={"distance_mm": geo.field_plane_mm},
+    )
+    trail.add(
+        "dap_gy_cm2",
+        c.dap,
+        "Gy·cm²",
+        equation="P_KA = K(d) · A(d), the same at every plane",
+        source="ICRU Report 74 (2005); IAEA TRS 457 (2007)",
+        inputs={"air_kerma_mgy": c.k_plane, "field_area_cm2": geo.field_area_at_plane_cm2},
+    )
+    return DoseFigure("dap_gy_cm2", c.dap, "Gy·cm²", c.dap * c.dap_rel, trail)
+
+
+def _backscatter_figure(
+    beam: BeamInputs, geo: ResolvedGeometry, c: _Scalars, notes: list[str]
+) -> DoseFigure | None:
+    """B with its trail, or None (and the reason in ``notes``) when the beam has none."""
+    try:
+        b = backscatter_estimate(
+            hvl_mm_al=beam.hvl1_mm_al,
+            field_side_cm=geo.entrance_field_side_cm,
+            hvl_standard_uncertainty_mm_al=beam.hvl1_standard_uncertainty_mm_al,
+            field_side_standard_uncertainty_cm=geo.entrance_field_side_standard_uncertainty_cm,
+            out_of_range="nearest",
+        )
+    except ModelError as exc:
+        notes.append(f"no entrance surface air kerma or dose: {exc}")
+        return None
+    trail = WhyTrail()
+    trail.add(
+        "hvl1_mm_al",
+        beam.hvl1_mm_al,
+        "mm Al",
+        equation="computed from the spectrum model"
+        if not beam.calibrated
+        else "beam model with the room calibration",
+        source=beam.source,
+        inputs={"standard_uncertainty": beam.hvl1_standard_uncertainty_mm_al},
+    )
+    trail.merge(geo.distance_trail)
+    trail.merge(geo.field_trail)
+    for note in (
+        *b.notes,
+        "backscatter factor of a water phantom used for soft tissue (they differ by less "
+        "than 1 %, Ma & Seuntjens, Phys Med Biol 44:131, 1999)",
+    ):
+        trail.add(
+            "backscatter_table",
+            None,
+            "",
+            equation="table choice",
+            source=b.source,
+            assumed=True,
+            note=note,
+        )
+    trail.add(
+        "backscatter_factor",
+        c.b,
+        "1",
+        equation="bilinear interpolation in HVL and equivalent-square field side",
+        source=b.source,
+        inputs={
+            "hvl1_mm_al": beam.hvl1_mm_al,
+            "entrance_field_side_cm": geo.entrance_field_side_cm,
+            "standard_uncertainty": c.u_b,
+        },
+    )
+    return DoseFigure("backscatter_factor", c.b, "1", c.u_b, trail)
+
+
+def _entrance_figures(
+    beam: BeamInputs,
+    geo: ResolvedGeometry,
+    incident: DoseFigure,
+    c: _Scalars,
+    notes: list[str],
+) -> tuple[DoseFigure | None, DoseFigure | None, DoseFigure | None]:
+    """B, K_a,e = K_a,i B and D = K_a,e (mu_en/rho)_t,a, with their trails (or three Nones)."""
+    if not c.has("has_b"):
+        _backscatter_figure(beam, geo, c, notes)  # says why there is none
+        return None, None, None
+    bsf = _backscatter_figure(beam, geo, c, notes)
+    assert bsf is not None
+    esak_trail = incident.trail.copy()
+    esak_trail.merge(bsf.trail)
+    esak_trail.add(
+        "esak_mgy",
+        c.k_e,
+        "mGy",
+        equation="K_a,e = K_a,i · B",
+        source="ICRU Report 74 (2005); IAEA TRS 457 (2007)",
+        inputs={"incident_air_kerma_mgy": c.k_i, "backscatter_factor": c.b},
+    )
+    esak = DoseFigure("esak_mgy", c.k_e, "mGy", c.k_e * c.k_e_rel, esak_trail)
+    esd_trail = esak_trail.copy()
+    esd_trail.add(
+        "tissue_to_air_ratio",
+        beam.tissue_to_air_ratio,
+        "1",
+        equation="spectrum-averaged (μen/ρ) soft tissue / air",
+        source=f"{beam.source}; tissue ICRU-44 soft tissue",
+        inputs={"relative_standard_uncertainty": c.ratio_rel},
+    )
+    esd_trail.add(
+        "entrance_dose_mgy",
+        c.d,
+        "mGy",
+        equation="D = K_a,e · (μen/ρ)_tissue,air",
+        source="IAEA TRS 457 (2007) §7",
+        inputs={"esak_mgy": c.k_e, "tissue_to_air_ratio": beam.tissue_to_air_ratio},
+    )
+    esd = DoseFigure("entrance_dose_mgy", c.d, "mGy", c.d * c.d_rel, esd_trail)
+    return bsf, esak, esd
+
+
+def _reference_figure(
+    beam_trail: WhyTrail, geometry: GeometryInputs, c: _Scalars
+) -> DoseFigure | None:
+    """K_a,r at the reference point, where its distance is known."""
+    if not c.has("has_ref"):
+        return None
+    trail = beam_trail.copy()
+    trail.add(
+        "reference_point_air_kerma_mgy",
+        c.k_r,
+        "mGy",
+        equation="K_a,r = Y(1 m) · P_It · (1 m / d_ref)²",
+        source="inverse-square law; reference point per IEC 60601-2-43",
+        inputs={"source_to_reference_point_mm": c.d_ref},
+    )
+    return DoseFigure("reference_point_air_kerma_mgy", c.k_r, "mGy", c.k_r * c.k_r_rel, trail)
 
 
 def _comparisons(
