@@ -31,6 +31,7 @@ __all__ = [
     "find_exam",
     "load_dose_defaults",
     "load_exam_defaults",
+    "parse_described_csv",
 ]
 
 _DATA_PACKAGE = "beamaudit.model.data"
@@ -69,6 +70,11 @@ class DefaultValue:
 
 def _read_table(name: str) -> tuple[dict[str, str], list[dict[str, str]]]:
     text = resources.files(_DATA_PACKAGE).joinpath(name).read_text(encoding="utf-8")
+    return parse_described_csv(text)
+
+
+def parse_described_csv(text: str) -> tuple[dict[str, str], list[dict[str, str]]]:
+    """A self-describing data file: its ``# key: value`` header and its CSV rows as dicts."""
     header: dict[str, str] = {}
     body: list[str] = []
     for line in text.splitlines():
