@@ -7,7 +7,10 @@ Beam model: the thick-target spectrum of a tungsten anode (:mod:`.spectrum`), in
 QA and optimisation.
 
 Dose figures: geometry from what an exposure carries (:mod:`.geometry`, documented defaults in
-:mod:`.defaults`), the dose chain (:mod:`.dose`), backscatter factors (:mod:`.backscatter`),
+:mod:`.defaults`), the dose chain (:mod:`.dose`), backscatter factors from beamaudit's own Monte
+Carlo kernels weighted by each beam's spectrum (:mod:`.backscatter_kernels`, made by
+:mod:`.montecarlo_kernels`; the HVL tables in :mod:`.backscatter`), the table top and mattress
+of an under-couch tube (:mod:`.patient_support`),
 every figure of one exposure with its uncertainty and why trail (:mod:`.exposure`,
 :mod:`.trail`), the same figures of many stored exposures at once as arrays (:mod:`.bulk`),
 fluoroscopy and CT accumulations (:mod:`.fluoro_ct`) and the size-specific dose
@@ -33,6 +36,12 @@ from beamaudit.model.backscatter import (
     backscatter_factor,
     equivalent_square_side_cm,
     load_backscatter_table,
+)
+from beamaudit.model.backscatter_kernels import (
+    BackscatterCurve,
+    BackscatterKernels,
+    backscatter_curve,
+    load_backscatter_kernels,
 )
 from beamaudit.model.beam import (
     BeamConfig,
@@ -99,6 +108,12 @@ from beamaudit.model.geometry import (
     field_area_at_distance_cm2,
     resolve_geometry,
 )
+from beamaudit.model.patient_support import (
+    PatientSupport,
+    SupportTransmission,
+    default_patient_support,
+    support_transmission,
+)
 from beamaudit.model.spectrum import TubeSpectrum, tube_spectrum
 from beamaudit.model.ssde import (
     SizeSpecificDose,
@@ -112,8 +127,10 @@ from beamaudit.model.trail import TrailStep, WhyTrail
 
 __all__ = [
     "DEFAULT_TOTAL_FILTRATION_MM_AL",
+    "BackscatterCurve",
     "BackscatterEstimate",
     "BackscatterEstimates",
+    "BackscatterKernels",
     "BackscatterTable",
     "BeamConfig",
     "BeamInputs",
@@ -133,6 +150,7 @@ __all__ = [
     "GeometryInputs",
     "Material",
     "ModelError",
+    "PatientSupport",
     "ProjectionAccumulation",
     "ProjectionEvent",
     "QAMeasurement",
@@ -140,11 +158,13 @@ __all__ = [
     "ResolvedGeometry",
     "RoomCalibration",
     "SizeSpecificDose",
+    "SupportTransmission",
     "TrailStep",
     "TubeSpectrum",
     "WhyTrail",
     "accumulate_projection_events",
     "air_kerma_at_distance_mgy",
+    "backscatter_curve",
     "backscatter_estimate",
     "backscatter_estimates",
     "backscatter_factor",
@@ -157,6 +177,7 @@ __all__ = [
     "dap_gy_cm2",
     "default_calibration",
     "default_filters",
+    "default_patient_support",
     "dose_default",
     "dose_from_beam",
     "dose_from_beams",
@@ -170,6 +191,7 @@ __all__ = [
     "find_exam",
     "incident_air_kerma_mgy",
     "inverse_square_air_kerma_mgy",
+    "load_backscatter_kernels",
     "load_backscatter_table",
     "mass_attenuation_cm2_g",
     "mass_energy_absorption_cm2_g",
@@ -182,6 +204,7 @@ __all__ = [
     "resolve_geometry",
     "size_specific_dose_estimate",
     "ssde_conversion_factor",
+    "support_transmission",
     "tissue_to_air_ratio",
     "tube_spectrum",
     "water_equivalent_diameter_cm",

@@ -12,8 +12,9 @@ factor and :math:`\\overline{(\\mu_{en}/\\rho)}_{t,a}` the spectrum-averaged tis
 
 - incident air kerma (inverse-square law, IAEA TRS 457, 2007, §7):
   :math:`K_{a,i} = Y\\,P_{It}\\,(d_0/d_{FSD})^2`;
-- air kerma-area product (ICRU Report 74, 2005): :math:`P_{KA} = K(d)\\,A(d)` with
-  :math:`K(d) = Y\\,P_{It}\\,(d_0/d)^2`;
+- air kerma-area product (ICRU Report 74, 2005): :math:`P_{KA} = K(d)\\,A(d)\\,f` with
+  :math:`K(d) = Y\\,P_{It}\\,(d_0/d)^2` on the axis and :math:`f` the field's mean kerma over its
+  axis kerma (off-axis inverse-square law, :func:`beamaudit.model.dose.off_axis_factor`);
 - entrance surface air kerma :math:`K_{a,e} = K_{a,i}\\,B` (ICRU 74; IAEA TRS 457);
 - entrance surface dose :math:`D = K_{a,e}\\,\\overline{(\\mu_{en}/\\rho)}_{t,a}`
   (IAEA TRS 457 §7);
@@ -41,11 +42,12 @@ from typing import Any
 import numpy as np
 from numpy.typing import NDArray
 
-from beamaudit.model.backscatter import backscatter_estimates
+from beamaudit.model.backscatter_kernels import BackscatterValues, backscatter_from_curves
 from beamaudit.model.defaults import dose_default
-from beamaudit.model.dose import REFERENCE_DISTANCE_MM
+from beamaudit.model.dose import REFERENCE_DISTANCE_MM, off_axis_factor
+from beamaudit.model.errors import ModelError
 
-__all__ = ["ChainFigures", "Failures", "run_chain"]
+__all__ = ["ChainFigures", "Curves", "Failures", "collect_curves", "run_chain"]
 
 _MGY_PER_UGY = 1.0e-3  # µGy to mGy
 _GY_PER_MGY = 1.0e-3  # mGy·cm² to Gy·cm²
@@ -60,7 +62,11 @@ BEAM_NUMBERS = attrgetter(
     "hvl1_mm_al",
     "hvl1_standard_uncertainty_mm_al",
     "tissue_to_air_ratio",
+    "entrance_transmission",
+    "entrance_transmission_standard_uncertainty",
 )
+#: Columns of :data:`BEAM_NUMBERS`.
+N_BEAM_NUMBERS = 8
 #: The numbers of a :class:`beamaudit.model.ResolvedGeometry` the chain reads, in this order.
 GEOMETRY_NUMBERS = attrgetter(
     "fsd_mm",
@@ -71,7 +77,11 @@ GEOMETRY_NUMBERS = attrgetter(
     "field_area_relative_uncertainty",
     "entrance_field_side_cm",
     "entrance_field_side_standard_uncertainty_cm",
+    "field_width_at_plane_cm",
+    "field_height_at_plane_cm",
 )
+#: Columns of :data:`GEOMETRY_NUMBERS` (a side not known is NaN).
+N_GEOMETRY_NUMBERS = 10
 
 
 class Failures:
@@ -134,6 +144,48 @@ def relative_uncertainty_of_product(*terms: tuple[Floats | float, float]) -> Flo
 
 
 @dataclass(frozen=True)
+class Curves:
+    """The backscatter curves of the beams and which one each exposure uses.
+
+    ``values`` and ``statistical`` have shape (k, m): k distinct curves at the kernels' m field
+    sides; ``rows`` (length n) gives each exposure's curve, or -1 for a beam without one (its B
+    then comes from its HVL; see :mod:`beamaudit.model.backscatter_kernels`).
+    """
+
+    values: Floats
+    statistical: Floats
+    rows: NDArray[np.intp]
+
+
+def collect_curves(beams: Sequence[Any]) -> tuple[Floats, Curves]:
+    """The beams' :data:`BEAM_NUMBERS` (n, 8) and their backscatter curves, each distinct curve
+    once (curves are shared objects: one per distinct beam)."""
+    n = len(beams)
+    index: dict[int, int] = {}
+    distinct: list[Any] = []
+    rows = np.full(n, -1, dtype=np.intp)
+    numbers = np.array([BEAM_NUMBERS(b) for b in beams], dtype=np.float64).reshape(
+        n, N_BEAM_NUMBERS
+    )
+    curves = [b.backscatter_curve for b in beams]
+    for i in (i for i, c in enumerate(curves) if c is not None):
+        curve = curves[i]
+        k = index.get(id(curve))
+        if k is None:
+            k = index[id(curve)] = len(distinct)
+            distinct.append(curve)
+        rows[i] = k
+    m = len(distinct[0].value) if distinct else 0
+    if any(len(c.value) != m for c in distinct):
+        raise ModelError("backscatter curves of different field sides in one call")
+    values = np.array([c.value for c in distinct], dtype=np.float64).reshape(len(distinct), m)
+    stat = np.array([c.statistical_uncertainty for c in distinct], dtype=np.float64).reshape(
+        len(distinct), m
+    )
+    return numbers, Curves(values=values, statistical=stat, rows=rows)
+
+
+@dataclass(frozen=True)
 class ChainFigures:
     """Every number of the chain for n exposures (float64 arrays of length n).
 
@@ -151,6 +203,8 @@ class ChainFigures:
     ratio: Floats
     ratio_rel: float
     mas_rel: float
+    t: Floats
+    u_t: Floats
     fsd: Floats
     u_fsd: Floats
     plane: Floats
@@ -160,10 +214,16 @@ class ChainFigures:
     k_i: Floats
     k_i_rel: Floats
     k_plane: Floats
+    off_axis: Floats
     dap: Floats
     dap_rel: Floats
     b: Floats
     u_b: Floats
+    b_statistical: Floats
+    b_above_fields: NDArray[np.bool_]
+    b_below_fields: NDArray[np.bool_]
+    b_above_hvls: NDArray[np.bool_]
+    has_curve: NDArray[np.bool_]
     k_e: Floats
     k_e_rel: Floats
     d: Floats
@@ -183,6 +243,7 @@ def run_chain(
     mas: Floats,
     geometry_numbers: Floats,
     d_ref_raw: Sequence[Any],
+    curves: Curves,
 ) -> ChainFigures:
     """The figures of n exposures whose mAs and geometry were checked (see ``failures``).
 
@@ -192,29 +253,35 @@ def run_chain(
         Where the mAs and geometry checks already failed; the checks here add to it, in the
         order the per-exposure trail meets them, so each exposure keeps the message of the first
         check it fails.
-    beam_numbers : ndarray, shape (n, 6)
+    beam_numbers : ndarray, shape (n, 8)
         :data:`BEAM_NUMBERS` of each exposure's beam.
     mas : ndarray, shape (n,)
         mAs.
-    geometry_numbers : ndarray, shape (n, 8)
+    geometry_numbers : ndarray, shape (n, 10)
         :data:`GEOMETRY_NUMBERS` of each resolved geometry (NaN where it failed).
     d_ref_raw : sequence
         Each exposure's source-to-reference-point distance as given (None: not known).
+    curves : Curves
+        The beams' backscatter curves.
     """
     n = mas.shape[0]
-    kvp, y, u_y, hvl, u_hvl, ratio = beam_numbers.reshape(n, 6).T
-    fsd, u_fsd, plane, u_plane, area, rel_area, side, u_side = geometry_numbers.reshape(n, 8).T
+    kvp, y, u_y, hvl, u_hvl, ratio, t, u_t = beam_numbers.reshape(n, N_BEAM_NUMBERS).T
+    fsd, u_fsd, plane, u_plane, area, rel_area, side, u_side, width, height = (
+        geometry_numbers.reshape(n, N_GEOMETRY_NUMBERS).T
+    )
     has_ref = np.fromiter((d is not None for d in d_ref_raw), dtype=bool, count=n)
     d_ref = np.array([np.nan if d is None else d for d in d_ref_raw], dtype=np.float64)
     mas_rel = dose_default("reported_exposure_mas_relative_uncertainty").value
     with np.errstate(divide="ignore", invalid="ignore", over="ignore"):
-        y_rel = _check_beam(failures, kvp, y, u_y)
+        y_rel = _check_beam(failures, kvp, y, u_y, t, u_t)
+        off_axis = _off_axis(area, width, height, plane)
         k_i, k_i_rel, k_plane, dap, dap_rel = _kerma_and_dap(
-            failures, y=y, y_rel=y_rel, mas=mas, mas_rel=mas_rel, geometry=(
-                fsd, u_fsd, plane, u_plane, area, rel_area
+            failures, y=y, y_rel=y_rel, mas=mas, mas_rel=mas_rel, t=t, t_rel=u_t / t, geometry=(
+                fsd, u_fsd, plane, u_plane, area, rel_area, off_axis
             )
         )  # fmt: skip
-        b, u_b, has_b = _backscatter(failures, hvl, u_hvl, side, u_side)
+        bs = _backscatter(failures, hvl, u_hvl, side, u_side, curves)
+        b, u_b, has_b = bs.value, bs.standard_uncertainty, np.isfinite(bs.value)
         k_e, k_e_rel, d, d_rel, ratio_rel = _entrance(
             failures, k_i=k_i, k_i_rel=k_i_rel, b=b, u_b=u_b, has_b=has_b, ratio=ratio
         )
@@ -224,21 +291,33 @@ def run_chain(
         )  # fmt: skip
     return ChainFigures(
         mas=mas, y=y, y_rel=y_rel, hvl=hvl, u_hvl=u_hvl, ratio=ratio, ratio_rel=ratio_rel,
-        mas_rel=mas_rel, fsd=fsd, u_fsd=u_fsd, plane=plane, area=area, side=side, u_side=u_side,
-        k_i=k_i, k_i_rel=k_i_rel, k_plane=k_plane, dap=dap, dap_rel=dap_rel, b=b, u_b=u_b,
+        mas_rel=mas_rel, t=t, u_t=u_t, fsd=fsd, u_fsd=u_fsd, plane=plane, area=area, side=side,
+        u_side=u_side, k_i=k_i, k_i_rel=k_i_rel, k_plane=k_plane, off_axis=off_axis, dap=dap,
+        dap_rel=dap_rel, b=b,
+        u_b=u_b, b_statistical=bs.statistical, b_above_fields=bs.above_fields,
+        b_below_fields=bs.below_fields, b_above_hvls=bs.above_hvls, has_curve=curves.rows >= 0,
         k_e=k_e, k_e_rel=k_e_rel, d=d, d_rel=d_rel, d_ref=d_ref, k_r=k_r, k_r_rel=k_r_rel,
         has_b=has_b, has_ref=has_ref, clean=failures.clean.copy(),
     )  # fmt: skip
 
 
-def _check_beam(failures: Failures, kvp: Floats, y: Floats, u_y: Floats) -> Floats:
-    """The beam's own trail step, then the tube output; returns u(Y)/Y."""
+def _check_beam(
+    failures: Failures, kvp: Floats, y: Floats, u_y: Floats, t: Floats, u_t: Floats
+) -> Floats:
+    """The beam's own trail step, the tube output, the entrance transmission; returns u(Y)/Y."""
     failures.untrailable(kvp, "kvp_kv")
     failures.untrailable(y, "output_ugy_per_mas_1m")
     failures.untrailable(u_y, "output_ugy_per_mas_1m.inputs.standard_uncertainty")
     failures.fail(
         ~(y > 0),
         lambda i: f"output_ugy_per_mas_1m must be a positive finite number, not {float(y[i])!r}",
+    )
+    failures.fail(
+        ~((t > 0) & (t <= 1)) | ~(u_t >= 0) | ~np.isfinite(u_t),
+        lambda i: (
+            f"entrance transmission must be in (0, 1] with a finite uncertainty, not "
+            f"{float(t[i])!r} +- {float(u_t[i])!r}"
+        ),
     )
     return np.asarray(u_y / y)
 
@@ -250,16 +329,19 @@ def _kerma_and_dap(
     y_rel: Floats,
     mas: Floats,
     mas_rel: float,
-    geometry: tuple[Floats, Floats, Floats, Floats, Floats, Floats],
+    t: Floats,
+    t_rel: Floats,
+    geometry: tuple[Floats, Floats, Floats, Floats, Floats, Floats, Floats],
 ) -> tuple[Floats, Floats, Floats, Floats, Floats]:
-    """Incident air kerma (inverse-square law) and DAP at the field's plane (ICRU 74)."""
-    fsd, u_fsd, plane, u_plane, area, rel_area = geometry
+    """Incident air kerma at the skin (inverse-square law, times the transmission of a table in
+    the beam) and DAP at the field's plane (ICRU 74; free in air, on the tube side)."""
+    fsd, u_fsd, plane, u_plane, area, rel_area, off_axis = geometry
     fsd_rel = u_fsd / fsd
     plane_rel = u_plane / plane
-    k_i = y * mas * (REFERENCE_DISTANCE_MM / fsd) ** 2 * _MGY_PER_UGY
+    k_i = y * mas * (REFERENCE_DISTANCE_MM / fsd) ** 2 * _MGY_PER_UGY * t
     failures.refused_relative(y_rel)
     failures.refused_relative(fsd_rel)
-    k_i_rel = relative_uncertainty_of_product((y_rel, 1), (mas_rel, 1), (fsd_rel, -2))
+    k_i_rel = relative_uncertainty_of_product((y_rel, 1), (mas_rel, 1), (fsd_rel, -2), (t_rel, 1))
     failures.untrailable(k_i, "incident_air_kerma_mgy")
     k_plane = y * mas * (REFERENCE_DISTANCE_MM / plane) ** 2 * _MGY_PER_UGY
     failures.fail(
@@ -272,7 +354,7 @@ def _kerma_and_dap(
         ~(np.isfinite(area) & (area > 0)),
         lambda i: f"field_area_cm2 must be a positive finite number, not {float(area[i])!r}",
     )
-    dap = k_plane * area * _GY_PER_MGY
+    dap = k_plane * area * off_axis * _GY_PER_MGY
     failures.refused_relative(rel_area)
     failures.refused_relative(plane_rel)
     dap_rel = relative_uncertainty_of_product(
@@ -282,17 +364,41 @@ def _kerma_and_dap(
     return k_i, k_i_rel, k_plane, dap, dap_rel
 
 
-def _backscatter(
-    failures: Failures, hvl: Floats, u_hvl: Floats, side: Floats, u_side: Floats
-) -> tuple[Floats, Floats, NDArray[np.bool_]]:
-    """B and u(B) where there is one (no factor is not an error)."""
-    b, u_b, _ = backscatter_estimates(
-        hvl_mm_al=np.where(failures.clean, hvl, np.nan),
-        field_side_cm=side,
-        hvl_standard_uncertainty_mm_al=u_hvl,
-        field_side_standard_uncertainty_cm=u_side,
-        out_of_range="nearest",
+def _off_axis(area: Floats, width: Floats, height: Floats, plane: Floats) -> Floats:
+    """The field's mean kerma over its axis kerma (:func:`beamaudit.model.dose.off_axis_factor`);
+    a field known only by its area is taken as the square of that area."""
+    square = np.sqrt(area)
+    sides_known = np.isfinite(width) & np.isfinite(height)
+    w = np.where(sides_known, width, square)
+    h = np.where(sides_known, height, square)
+    good = np.isfinite(w) & (w > 0) & np.isfinite(h) & (h > 0) & np.isfinite(plane) & (plane > 0)
+    factor = off_axis_factor(
+        field_width_cm=np.where(good, w, 1.0),
+        field_height_cm=np.where(good, h, 1.0),
+        distance_mm=np.where(good, plane, 1000.0),
     )
+    return np.where(good, factor, 1.0)
+
+
+def _backscatter(
+    failures: Failures,
+    hvl: Floats,
+    u_hvl: Floats,
+    side: Floats,
+    u_side: Floats,
+    curves: Curves,
+) -> BackscatterValues:
+    """B and u(B) where there is one (no factor is not an error)."""
+    bs = backscatter_from_curves(
+        curves=curves.values,
+        curves_statistical=curves.statistical,
+        rows=curves.rows,
+        hvl_mm_al=np.where(failures.clean, hvl, np.nan),
+        hvl_standard_uncertainty_mm_al=u_hvl,
+        field_side_cm=side,
+        field_side_standard_uncertainty_cm=u_side,
+    )
+    b, u_b = bs.value, bs.standard_uncertainty
     has_b = np.isfinite(b)
     # the checks of the factor's trail step, only where there is a factor
     failures.untrailable(np.where(has_b, u_hvl, 0.0), "hvl1_mm_al.inputs.standard_uncertainty")
@@ -303,7 +409,7 @@ def _backscatter(
         has_b & (b < 1.0),
         lambda i: f"backscatter_factor must be at least 1, not {float(b[i])!r}",
     )
-    return b, u_b, has_b
+    return bs
 
 
 def _entrance(

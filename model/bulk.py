@@ -25,11 +25,12 @@ import numpy as np
 from numpy.typing import ArrayLike, NDArray
 
 from beamaudit.model._chain import (
-    BEAM_NUMBERS,
     GEOMETRY_NUMBERS,
+    N_GEOMETRY_NUMBERS,
     ChainFigures,
     Failures,
     check_mas,
+    collect_curves,
     run_chain,
 )
 from beamaudit.model.errors import ModelError
@@ -163,7 +164,7 @@ def dose_from_beams(
     ...                      field_height_mm=300.0)
     >>> bulk = dose_from_beams([beam, beam], exposure_mas=[10.0, -1.0], geometries=[geo, geo])
     >>> bulk.dap_gy_cm2.round(4).tolist(), bulk.errors[1]
-    ([0.45, nan], 'exposure_mas must be a positive finite number of mAs, not -1.0')
+    ([0.4434, nan], 'exposure_mas must be a positive finite number of mAs, not -1.0')
     """
     n = len(beams)
     if len(geometries) != n:
@@ -177,13 +178,14 @@ def dose_from_beams(
 
     check_mas(failures, mas, raw_mas)
     geometry_numbers = _resolve_all(geometries, failures)
-    beam_numbers = np.array([BEAM_NUMBERS(b) for b in beams], dtype=np.float64).reshape(n, 6)
+    beam_numbers, curves = collect_curves(beams)
     chain = run_chain(
         failures,
         beam_numbers=beam_numbers,
         mas=mas,
         geometry_numbers=geometry_numbers,
         d_ref_raw=[g.source_to_reference_point_mm for g in geometries],
+        curves=curves,
     )
     calibrated = np.fromiter((bool(b.calibrated) for b in beams), dtype=bool, count=n)
     return _bulk(chain, calibrated, tuple(failures.errors))
@@ -191,7 +193,7 @@ def dose_from_beams(
 
 def _resolve_all(geometries: Sequence[GeometryInputs], failures: Failures) -> Floats:
     """The chain's numbers of each geometry still clean (NaN elsewhere); equal ones once."""
-    out = np.full((len(geometries), 8), np.nan)
+    out = np.full((len(geometries), N_GEOMETRY_NUMBERS), np.nan)
     resolved: dict[tuple[Any, ...], ResolvedGeometry] = {}
     for i in np.flatnonzero(failures.clean).tolist():
         g = geometries[i]
