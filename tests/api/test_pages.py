@@ -131,3 +131,12 @@ def test_static_files_and_unknown_period(site) -> None:
     assert client.get("/static/plotly.min.js").status_code == 200
     assert client.get("/static/../settings.py").status_code == 404
     assert _get(client, "/?period=2030-01", viewer).status_code == 404
+
+
+def test_exam_page_shows_b_with_its_source_and_uncertainty(site) -> None:
+    client, _, physicist, uid = site
+    text = _get(client, f"/exams/{uid}", physicist).text
+    assert "Backscatter factor (B)" in text
+    assert "Monte Carlo backscatter kernels" in text
+    row = text[text.index("Backscatter factor (B)") :][:600]
+    assert " ± " in row  # the estimate with one standard uncertainty
