@@ -311,6 +311,13 @@ def exam_record(
                 fig["reported"] = float(comparisons[name]["reported"])
                 fig["ratio"] = float(comparisons[name]["ratio"])
             dose[name] = fig
+        if trail.get("backscatter_factor") is not None:
+            dose["backscatter_factor"] = {
+                "value": float(trail["backscatter_factor"]),
+                "unit": "1",
+                "uncertainty": float(trail.get("backscatter_factor_standard_uncertainty") or 0),
+                "source": trail.get("backscatter_factor_source") or "",
+            }
         for name, attr in (
             ("ctdivol_mgy", "ctdivol_mgy"),
             ("dlp_mgy_cm", "dlp_mgy_cm"),

@@ -6,11 +6,20 @@ incident and entrance surface air kerma, entrance dose, DAP, their
 uncertainties, the reported/reconstructed DAP ratio and the why trail.
 
 The beam of a room is the room's configured total filtration (inherent
-included; the IEC 60601-1-3 minimum of 2.5 mm Al is assumed when the room has
-none) plus the added filters the event itself records, and the room's active
-calibration from QA measurements when there is one. The beam quantities are
-computed once per distinct beam (kV to 0.1 kV, filtration, tube, calibration)
-in a batch and reused.
+included; the IEC 60601-1-3 minimum of 2.5 mm Al is assumed, and said in the
+trail, when the room has none) plus the added filters the event itself records,
+and the room's active calibration from QA measurements when there is one. With
+the tube below the table (the room's ``tube_side``; for XA and RF when the room
+does not say, assumed) the table top and mattress are in the beam: the room's
+``table_transmission`` (measured) or ``table_filtration`` (layers), else the
+model's documented default (assumed). The beam quantities are computed once per
+distinct beam (kV to 0.1 kV, filtration, tube, calibration, table) in a batch
+and reused.
+
+Distances are read by what their IOD defines: Distance Source to Patient
+(0018,1111) is to the table side in DX, CR and MG images and to the isocentre
+in XA and XRF images (DICOM PS3.3 C.8.7.5, C.8.7.6), where the entrance surface
+is taken half a patient thickness before the isocentre.
 
 Events without kV or mAs (CR readers record 0) keep ``recon_status =
 "no_technique"``; CT events are ``"not_applicable"`` (their dose quantities are
@@ -124,8 +133,10 @@ class _BeamCache:
         filters: tuple[Any, ...] | None,
         room: m.Room | None,
         calibration: Any,
+        support: Any = None,
+        notes: tuple[str, ...] = (),
     ) -> Any:
-        from beamaudit.model import BeamInputs, BeamSpec, compute_beam, tissue_to_air_ratio
+        from beamaudit.model import BeamInputs, BeamSpec, compute_beam
 
         anode = _anode_symbol(room.anode_material if room else None)
         angle = room.anode_angle_deg if room else 12.0
@@ -137,6 +148,8 @@ class _BeamCache:
             angle,
             ripple,
             calibration,  # a frozen dataclass: equal calibrations give equal beams
+            support,
+            notes,
         )
         if key not in self._cache:
             spec = BeamSpec(
@@ -148,20 +161,31 @@ class _BeamCache:
             )
             result = compute_beam(spec, calibration=calibration)
             self._cache[key] = BeamInputs.from_beam_result(
-                result, tissue_to_air_ratio=float(tissue_to_air_ratio(result))
+                result, patient_support=support, assumptions=notes
             )
         return self._cache[key]
 
 
-def _filters(room: m.Room | None, event: Any, calibration: Any) -> tuple[Any, ...] | None:
-    """The beam's filtration for the model.
+#: what the model assumes for an event that belongs to no room
+_NO_ROOM_NOTE = "no room known: a tungsten anode of 12 degrees at constant potential assumed"
+#: what the model assumes when a room records added filters but no total filtration
+_DEFAULT_INHERENT_NOTE = (
+    "the room has no filtration configured: {al:g} mm Al (IEC 60601-1-3 minimum) assumed in "
+    "front of the event's added filters"
+)
+
+
+def _filters(
+    room: m.Room | None, event: Any, calibration: Any
+) -> tuple[tuple[Any, ...] | None, tuple[str, ...]]:
+    """The beam's filtration for the model, and what it assumed.
 
     With a calibration that fitted the room's inherent filtration, only the
     event's added filters are passed (the model adds the fitted inherent
     filtration). Otherwise: the room's configured total filtration (or the
     model's default, assumed) plus the event's added filters.
     """
-    from beamaudit.model import FilterSpec, default_filters
+    from beamaudit.model import DEFAULT_TOTAL_FILTRATION_MM_AL, FilterSpec, default_filters
 
     layers: list[Any] = []
     if room is not None and room.filtration:
@@ -172,12 +196,60 @@ def _filters(room: m.Room | None, event: Any, calibration: Any) -> tuple[Any, ..
         if float(f.get("thickness_mm") or 0) > 0
     ]
     if calibration is not None and calibration.inherent_filtration_mm_al is not None:
-        return tuple(event_layers)
+        return tuple(event_layers), ()
     if not layers and not event_layers:
-        return None
+        return None, ()  # the model's default, noted by the model
+    notes: tuple[str, ...] = ()
     if not layers:
         layers.extend(default_filters())
-    return tuple(layers + event_layers)
+        notes = (_DEFAULT_INHERENT_NOTE.format(al=DEFAULT_TOTAL_FILTRATION_MM_AL),)
+    return tuple(layers + event_layers), notes
+
+
+#: modalities whose image headers give Distance Source to Patient (0018,1111) as the distance
+#: from the source to the isocentre (DICOM PS3.3 C.8.7.5 XA Positioner Module; the XRF
+#: Positioner Module C.8.7.6 the same, from memory); elsewhere it is to the table side
+_ISOCENTRE_MODALITIES = frozenset({"XA", "RF"})
+_ISOCENTRE_PROVENANCE = (
+    "(0018,1111) DistanceSourceToPatient, source to isocentre in XA and XRF images "
+    "(DICOM PS3.3 C.8.7.5 XA Positioner, C.8.7.6 XRF Positioner)"
+)
+#: modalities whose tube is taken as below the table when the room does not say
+_UNDER_COUCH_MODALITIES = frozenset({"XA", "RF"})
+
+
+def _tube_side(room: m.Room | None, event: Any) -> tuple[str, str | None]:
+    """The tube's side of the table for ``event``, and the assumption when the room is silent."""
+    if room is not None and room.tube_side in ("above", "below"):
+        return room.tube_side, None
+    modality = (event.modality or "").upper()
+    if modality in _UNDER_COUCH_MODALITIES:
+        return "below", (
+            f"tube taken as below the table (the usual for {modality}; the room does not say)"
+        )
+    return "above", None
+
+
+def _patient_support(room: m.Room | None, side: str) -> Any:
+    """The room's table top and mattress in the beam of a tube below the table, or None."""
+    from beamaudit.model import FilterSpec
+    from beamaudit.model.patient_support import PatientSupport, default_patient_support
+
+    if side != "below":
+        return None
+    if room is not None and room.table_transmission is not None:
+        return PatientSupport(
+            measured_transmission=float(room.table_transmission),
+            source="room configuration (measured table transmission)",
+        )
+    if room is not None and room.table_filtration:
+        return PatientSupport(
+            layers=tuple(
+                FilterSpec(f["material"], float(f["thickness_mm"])) for f in room.table_filtration
+            ),
+            source="room configuration (table top and mattress)",
+        )
+    return default_patient_support()
 
 
 def _filters_key(filters: Any) -> Any:
@@ -207,13 +279,23 @@ def _texts(provenance: dict[str, Any]) -> dict[str, Any]:
 def _geometry(event: Any, room: m.Room | None) -> Any:
     GeometryInputs = _model().GeometryInputs  # the model's class
 
-    prov = event.provenance or {}
+    prov = dict(_texts(event.provenance or {}))
+    to_patient = event.source_to_patient_mm if event.modality_family != "ct" else None
+    to_isocentre = event.source_to_isocenter_mm
+    if (event.modality or "").upper() in _ISOCENTRE_MODALITIES and to_patient is not None:
+        # (0018,1111) of an XA or XRF image is the distance to the isocentre, not to the table
+        if to_isocentre is None:
+            to_isocentre = to_patient
+            prov["source_to_isocenter_mm"] = _ISOCENTRE_PROVENANCE
+        to_patient = None
+    side, _ = _tube_side(room, event)
     return GeometryInputs(
         sid_mm=event.sid_mm,
-        source_to_patient_mm=event.source_to_patient_mm if event.modality_family != "ct" else None,
+        source_to_patient_mm=to_patient,
         source_to_entrance_mm=event.source_to_entrance_mm,
-        source_to_isocenter_mm=event.source_to_isocenter_mm,
+        source_to_isocenter_mm=to_isocentre,
         source_to_table_mm=event.source_to_table_mm,
+        tube_side=side,
         source_to_reference_point_mm=event.source_to_reference_point_mm,
         body_part_thickness_mm=event.body_part_thickness_mm,
         magnification_factor=event.magnification_factor,
@@ -225,7 +307,7 @@ def _geometry(event: Any, room: m.Room | None) -> Any:
         detector_dimensions_mm=_receptor(event, "detector_dimensions_mm"),
         exam=_exam(event.body_part, event.view_position),
         table_to_detector_gap_mm=room.table_to_detector_mm if room else None,
-        provenance=_texts(prov),
+        provenance=prov,
     )
 
 
@@ -300,6 +382,9 @@ _ROOM_BEAM_COLUMNS = (
     "ripple_percent",
     "filtration",
     "table_to_detector_mm",
+    "tube_side",
+    "table_filtration",
+    "table_transmission",
 )
 #: what of a calibration the model uses
 _CALIBRATION_COLUMNS = (
@@ -320,6 +405,9 @@ def _room_snapshot(room: Any) -> dict[str, Any] | None:
         "ripple_percent": room.ripple_percent,
         "filtration": room.filtration,
         "table_to_detector_mm": room.table_to_detector_mm,
+        "tube_side": room.tube_side,
+        "table_filtration": room.table_filtration,
+        "table_transmission": room.table_transmission,
     }
 
 
@@ -464,7 +552,12 @@ def figures(events: Sequence[Any], rooms: RoomBeams) -> list[dict[str, Any]]:
         if not event.kvp_kv or not event.exposure_mas:
             out.append({"recon_status": "no_technique"})
             continue
-        key = (event.room_id, event.kvp_kv, _filters_key(event.filters))
+        key = (
+            event.room_id,
+            event.kvp_kv,
+            _filters_key(event.filters),
+            _tube_side(room, event),
+        )
         if key not in beam_of:
             beam_of[key] = _beam(event, room, rooms)
         beam = beam_of[key]
@@ -513,14 +606,26 @@ def _beam(event: Any, room: Any, rooms: RoomBeams) -> Any:
 
     calibration = rooms.calibrations.get(event.room_id) if event.room_id is not None else None
     try:
-        return rooms.cache.get(
-            kvp_kv=event.kvp_kv,
-            filters=_filters(room, event, calibration),
-            room=room,
-            calibration=calibration,
-        )
+        return _event_beam(event, room, calibration, rooms.cache)
     except ModelError as exc:
         return exc
+
+
+def _event_beam(event: Any, room: Any, calibration: Any, cache: _BeamCache) -> Any:
+    """The model's beam inputs of ``event`` in ``room``: filtration, calibration, and the table
+    top and mattress when the tube is below the table, with what was assumed."""
+    filters, notes = _filters(room, event, calibration)
+    side, side_note = _tube_side(room, event)
+    if room is None:
+        notes += (_NO_ROOM_NOTE,)
+    return cache.get(
+        kvp_kv=event.kvp_kv,
+        filters=filters,
+        room=room,
+        calibration=calibration,
+        support=_patient_support(room, side),
+        notes=notes + ((side_note,) if side_note else ()),
+    )
 
 
 def _reconstruct_chunk(
@@ -592,12 +697,7 @@ def trail_for_event(session: Session, event: m.ExposureEventRow) -> dict[str, An
     room = _room_from_snapshot(stored.get("room"))
     calibration = _calibration_from_snapshot(stored.get("calibration"), room)
     try:
-        beam = _BeamCache().get(
-            kvp_kv=event.kvp_kv,
-            filters=_filters(room, event, calibration),
-            room=room,
-            calibration=calibration,
-        )
+        beam = _event_beam(event, room, calibration, _BeamCache())
         dose = dose_from_beam(
             beam,
             exposure_mas=event.exposure_mas,
@@ -611,13 +711,16 @@ def trail_for_event(session: Session, event: m.ExposureEventRow) -> dict[str, An
         return {"notes": [f"the trail could not be made again: {exc}"], "recipe": stored}
     out: dict[str, Any] = dose.as_dict()
     out["recipe"] = stored
-    stored_dap = event.recon_dap_gy_cm2
-    if stored_dap and not math.isclose(dose.dap.value, stored_dap, rel_tol=1e-9):
-        out.setdefault("notes", []).append(
-            f"the stored DAP ({stored_dap:.6g} Gy·cm²) was made by software version "
-            f"{stored.get('software_version')}; this trail, made now, gives "
-            f"{dose.dap.value:.6g} Gy·cm²"
-        )
+    for name, unit, stored_value, now in (
+        ("DAP", "Gy·cm²", event.recon_dap_gy_cm2, dose.dap.value),
+        ("incident air kerma", "mGy", event.recon_incident_air_kerma_mgy,
+         dose.incident_air_kerma.value),
+    ):  # fmt: skip
+        if stored_value and not math.isclose(now, stored_value, rel_tol=1e-9):
+            out.setdefault("notes", []).append(
+                f"the stored {name} ({stored_value:.6g} {unit}) was made by software version "
+                f"{stored.get('software_version')}; this trail, made now, gives {now:.6g} {unit}"
+            )
     return out
 
 
@@ -632,6 +735,9 @@ def _room_from_snapshot(snapshot: dict[str, Any] | None) -> m.Room | None:
         ripple_percent=snapshot.get("ripple_percent", 0.0),
         filtration=snapshot.get("filtration"),
         table_to_detector_mm=snapshot.get("table_to_detector_mm"),
+        tube_side=snapshot.get("tube_side"),
+        table_filtration=snapshot.get("table_filtration"),
+        table_transmission=snapshot.get("table_transmission"),
     )
 
 
@@ -660,7 +766,7 @@ def beam_for_event(session: Session, event: m.ExposureEventRow) -> Any:
         return compute_beam(
             BeamSpec(
                 kv=round(event.kvp_kv, 1),
-                filters=_filters(room, event, calibration),
+                filters=_filters(room, event, calibration)[0],
                 anode=_anode_symbol(room.anode_material if room else None),
                 anode_angle_deg=room.anode_angle_deg if room else 12.0,
                 ripple_percent=room.ripple_percent if room else 0.0,

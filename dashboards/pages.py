@@ -284,6 +284,7 @@ def render_exam(
                         "unit": d.unit,
                         "reported": _web.fmt(d.reported) if d.reported is not None else "–",
                         "ratio": f"{d.ratio:.2f}" if d.ratio is not None else "–",
+                        "source": d.source,
                     }
                     for d in exposure.dose
                 ],

@@ -27,6 +27,7 @@ The contract (keys of the mapping; ``?`` marks an optional key)::
                                                       same unit as value
                                  reported?    float   the modality's own figure, same unit
                                  ratio?       float   reported / value (1)
+                                 source?      str     where the estimate comes from
                              }
         why?                 list of steps, in the order they were computed: {
                                  quantity     str     field name of the result
@@ -88,6 +89,7 @@ class DoseFigure:
     uncertainty: float | None = None
     reported: float | None = None
     ratio: float | None = None
+    source: str = ""
 
 
 @dataclass(frozen=True)
@@ -256,6 +258,7 @@ def _dose(name: str, raw: Any, path: str) -> DoseFigure:
         uncertainty=_number(raw.get("uncertainty"), f"{path}.uncertainty", minimum=0),
         reported=_number(raw.get("reported"), f"{path}.reported"),
         ratio=_number(raw.get("ratio"), f"{path}.ratio", minimum=0),
+        source=_text(raw.get("source") or "", f"{path}.source", optional=True),
     )
 
 

@@ -181,6 +181,9 @@ _LABELS: dict[str, str] = {
     "total_filtration_mm_al": "Total filtration",
     "patient_weight_kg": "Patient weight",
     "field_area_cm2": "Field area at the detector",
+    "backscatter_factor": "Backscatter factor (B)",
+    "fsd_mm": "Focus-to-skin distance",
+    "table_transmission": "Table top and mattress transmission",
 }
 
 # Short names for figure axes and table cells.

@@ -7,12 +7,16 @@ Beam model: the thick-target spectrum of a tungsten anode (:mod:`.spectrum`), in
 QA and optimisation.
 
 Dose figures: geometry from what an exposure carries (:mod:`.geometry`, documented defaults in
-:mod:`.defaults`), the dose chain (:mod:`.dose`), backscatter factors (:mod:`.backscatter`),
+:mod:`.defaults`), the dose chain (:mod:`.dose`), backscatter factors from beamaudit's own Monte
+Carlo kernels weighted by each beam's spectrum (:mod:`.backscatter_kernels`, made by
+:mod:`.montecarlo_kernels`; the HVL tables in :mod:`.backscatter`), the table top and mattress
+of an under-couch tube (:mod:`.patient_support`),
 every figure of one exposure with its uncertainty and why trail (:mod:`.exposure`,
 :mod:`.trail`), the same figures of many stored exposures at once as arrays (:mod:`.bulk`),
 fluoroscopy and CT accumulations (:mod:`.fluoro_ct`), the CT patient's water-equivalent
-diameter from axial images (:mod:`.ct_size`) and from localizers (:mod:`.ct_localizer`), the
-size-specific dose estimate (:mod:`.ssde`) and unit conversions (:mod:`.units`).
+diameter from axial images (:mod:`.ct_size`) and from localizers (:mod:`.ct_localizer`) and the
+size-specific dose estimate (:mod:`.ssde`). :mod:`.exposure` and :mod:`.bulk` share one dose
+chain (:mod:`._chain`). Every error on bad input is a :class:`ModelError` (:mod:`.errors`).
 
 Skin dose of fluoroscopy and interventional procedures: the patient on the table
 (:mod:`.patient_model`), the room frame and the C-arm (:mod:`.skin_geometry`), each event's
@@ -48,6 +52,12 @@ from beamaudit.model.backscatter import (
     backscatter_factor,
     equivalent_square_side_cm,
     load_backscatter_table,
+)
+from beamaudit.model.backscatter_kernels import (
+    BackscatterCurve,
+    BackscatterKernels,
+    backscatter_curve,
+    load_backscatter_kernels,
 )
 from beamaudit.model.beam import (
     BeamConfig,
@@ -154,6 +164,12 @@ from beamaudit.model.glandular_dose import (
 )
 from beamaudit.model.mammography import BreastBeam, MammographyTechnique, breast_beam
 from beamaudit.model.patient_model import PatientModel, SkinGrid, patient_model, skin_grid
+from beamaudit.model.patient_support import (
+    PatientSupport,
+    SupportTransmission,
+    default_patient_support,
+    support_transmission,
+)
 from beamaudit.model.recurrent import CumulativeDoses, cumulative_effective_dose
 from beamaudit.model.skin_dose import SkinDoseMap, skin_dose_map
 from beamaudit.model.skin_events import SkinEvent, SkinRoom
@@ -174,8 +190,10 @@ __all__ = [
     "DEFAULT_TOTAL_FILTRATION_MM_AL",
     "FOLLOW_UP_LEVELS_MGY",
     "AxialSizes",
+    "BackscatterCurve",
     "BackscatterEstimate",
     "BackscatterEstimates",
+    "BackscatterKernels",
     "BackscatterTable",
     "BeamConfig",
     "BeamFactors",
@@ -209,6 +227,7 @@ __all__ = [
     "ModelError",
     "OfficialCoefficients",
     "PatientModel",
+    "PatientSupport",
     "PhantomLocalizer",
     "ProjectionAccumulation",
     "ProjectionEvent",
@@ -223,6 +242,7 @@ __all__ = [
     "SkinGrid",
     "SkinRoom",
     "SpectrumBeamFactors",
+    "SupportTransmission",
     "TomosynthesisAcquisition",
     "TrailStep",
     "TubeSpectrum",
@@ -230,6 +250,7 @@ __all__ = [
     "accumulate_projection_events",
     "air_kerma_at_distance_mgy",
     "axial_sizes",
+    "backscatter_curve",
     "backscatter_estimate",
     "backscatter_estimates",
     "backscatter_factor",
@@ -248,6 +269,7 @@ __all__ = [
     "dap_gy_cm2",
     "default_calibration",
     "default_filters",
+    "default_patient_support",
     "dose_default",
     "dose_from_beam",
     "dose_from_beams",
@@ -261,6 +283,7 @@ __all__ = [
     "find_exam",
     "incident_air_kerma_mgy",
     "inverse_square_air_kerma_mgy",
+    "load_backscatter_kernels",
     "load_backscatter_table",
     "load_official_coefficients",
     "localizer_sizes",
@@ -284,6 +307,7 @@ __all__ = [
     "ssde_conversion_factor",
     "substantial_dose_levels",
     "substantial_dose_levels_crossed",
+    "support_transmission",
     "tissue_to_air_ratio",
     "tube_spectrum",
     "typical_glandularity",

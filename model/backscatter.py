@@ -7,9 +7,14 @@ backscatter factor is the ratio (ICRU Report 74; IAEA TRS 457, 2007)
 
     B = \\frac{K_{a,e}}{K_{a,i}}
 
-It depends on the beam quality (first HVL), the field size at the entrance surface and the
-phantom material, and hardly on the focus distance. beamaudit ships one table, for a water
-phantom, as package data (``data/backscatter_water.csv``) whose header says where it comes from
+It depends on the beam quality, the field size at the entrance surface and the phantom
+material, and hardly on the focus distance. **The dose chain takes B from beamaudit's own Monte
+Carlo kernels weighted by each beam's spectrum** (:mod:`beamaudit.model.backscatter_kernels`);
+this module keeps the tables indexed by first HVL and field side, and their bilinear
+interpolation: ``"soft_tissue_mc"``, the kernels weighted by reference tungsten spectra (for a
+beam known only by its HVL), and ``"water"``, the table shipped before, now a cross-check.
+
+The ``"water"`` table (``data/backscatter_water.csv``) says in its header where it comes from
 and how far it can be trusted: the cells were written **from memory** of the IPEM Report 88 table
 (after Petoussi-Henss et al., Phys Med Biol 43:2237, 1998) and must be confirmed against the
 original before B is relied on tighter than about 5 %. An independent Monte Carlo of the same
@@ -56,7 +61,12 @@ OutOfRange = Literal["raise", "nearest"]
 OutOfRangeElementwise = Literal["nearest", "nan"]
 
 _DATA_PACKAGE = "beamaudit.model.data"
-_TABLE_FILES = {"water": "backscatter_water.csv"}
+#: "water": the table written from memory (a cross-check now); "soft_tissue_mc": beamaudit's Monte
+#: Carlo kernels by HVL (:mod:`beamaudit.model.backscatter_kernels`)
+_TABLE_FILES = {
+    "water": "backscatter_water.csv",
+    "soft_tissue_mc": "backscatter_soft_tissue_by_hvl.csv",
+}
 #: Step for the numerical derivative of B in HVL (mm Al) and field side (cm), used to carry the
 #: HVL and field-size uncertainties into B (first-order propagation, JCGM 100:2008 eq. 10).
 _HVL_STEP_MM_AL = 0.05

@@ -38,6 +38,8 @@ from beamaudit.model.spectrum import get_anode
 from beamaudit.model.uncertainty import propagate_linearised
 
 __all__ = [
+    "ANODE_ANGLE_CHECK",
+    "ANODE_ANGLE_CHECKED_DEG",
     "ANODE_ANGLE_MAX_DEG",
     "ANODE_ANGLE_MIN_DEG",
     "DEFAULT_AIR_PATH_MM",
@@ -51,10 +53,19 @@ __all__ = [
 
 FloatArray = npt.NDArray[np.float64]
 
-#: Anode angles accepted, degrees: the range of diagnostic tubes the model is meant for (the
-#: issue's 6-22 degrees; common practice for general radiography, fluoroscopy and CT tubes).
+#: Anode angles accepted, degrees: the range of diagnostic tubes the model is meant for (common
+#: practice for general radiography, fluoroscopy and CT tubes).
 ANODE_ANGLE_MIN_DEG = 6.0
 ANODE_ANGLE_MAX_DEG = 22.0
+#: The anode angle the model's figures were checked at, degrees, and how (said wherever the angle
+#: is shown, so a user does not take the accepted range for a validated one).
+ANODE_ANGLE_CHECKED_DEG = 12.0
+ANODE_ANGLE_CHECK = (
+    f"anode angles {ANODE_ANGLE_MIN_DEG:g}-{ANODE_ANGLE_MAX_DEG:g} degrees are accepted; the "
+    f"model was checked at {ANODE_ANGLE_CHECKED_DEG:g} degrees against the IEC 61267:2005 RQR 2-10 "
+    "first HVLs and homogeneity coefficients, and over 6-22 degrees only for the direction of "
+    "the heel effect (common practice)"
+)
 #: Default air path from the focus, mm: the 1 m at which output is quoted.
 DEFAULT_AIR_PATH_MM = REFERENCE_DISTANCE_MM
 
@@ -295,35 +306,11 @@ def _with_al_change(filters: tuple[FilterSpec, ...], delta_mm: float) -> tuple[F
     return tuple(out)
 
 
-def compute_beam(
-    spec: BeamSpec,
-    *,
-    calibration: RoomCalibration | None = None,
-    kv_uncertainty_kv: float | None = None,
-    filtration_uncertainty_mm_al: float | None = None,
-) -> BeamResult:
-    """Compute the beam quantities of one beam.
-
-    Parameters
-    ----------
-    spec : BeamSpec
-    calibration : RoomCalibration, optional
-        The room's calibration; None uses :func:`default_calibration` (figures uncalibrated).
-    kv_uncertainty_kv : float, optional
-        Standard uncertainty of the tube voltage, kV (None: taken as exact).
-    filtration_uncertainty_mm_al : float, optional
-        Standard uncertainty of the total filtration, mm Al (None: exact, or the calibration's
-        inherent-filtration uncertainty when it fitted one).
-
-    Returns
-    -------
-    BeamResult
-
-    Raises
-    ------
-    ModelError
-        The calibration belongs to another tube, or an uncertainty is out of range.
-    """
+def _setup(
+    spec: BeamSpec, calibration: RoomCalibration | None, filtration_uncertainty_mm_al: float | None
+) -> tuple[RoomCalibration, tuple[FilterSpec, ...], bool, list[str], float | None]:
+    """The calibration and total filtration a beam uses, and every assumption they bring:
+    (calibration, filters, filtration assumed, assumptions, filtration uncertainty)."""
     assumptions: list[str] = []
     if calibration is None:
         cal = default_calibration(
@@ -381,6 +368,48 @@ def compute_beam(
             f"voltage ripple {spec.ripple_percent:g} %: rectified-sine waveform, "
             "constant tube current"
         )
+    if spec.anode_angle_deg != ANODE_ANGLE_CHECKED_DEG:
+        assumptions.append(
+            f"anode angle {spec.anode_angle_deg:g} degrees: the model was checked at "
+            f"{ANODE_ANGLE_CHECKED_DEG:g} degrees (IEC 61267 RQR qualities) and elsewhere only "
+            "for the direction of the heel effect"
+        )
+    return cal, filters, filtration_assumed, assumptions, filtration_uncertainty_mm_al
+
+
+def compute_beam(
+    spec: BeamSpec,
+    *,
+    calibration: RoomCalibration | None = None,
+    kv_uncertainty_kv: float | None = None,
+    filtration_uncertainty_mm_al: float | None = None,
+) -> BeamResult:
+    """Compute the beam quantities of one beam.
+
+    Parameters
+    ----------
+    spec : BeamSpec
+    calibration : RoomCalibration, optional
+        The room's calibration; None uses :func:`default_calibration` (figures uncalibrated).
+    kv_uncertainty_kv : float, optional
+        Standard uncertainty of the tube voltage, kV (None: taken as exact).
+    filtration_uncertainty_mm_al : float, optional
+        Standard uncertainty of the total filtration, mm Al (None: exact, or the calibration's
+        inherent-filtration uncertainty when it fitted one).
+
+    Returns
+    -------
+    BeamResult
+
+    Raises
+    ------
+    ModelError
+        The calibration belongs to another tube, or an uncertainty is out of range.
+    """
+    cal, filters, filtration_assumed, assumptions, filtration_uncertainty_mm_al = _setup(
+        spec, calibration, filtration_uncertainty_mm_al
+    )
+    a = get_anode(spec.anode)
 
     def figures(inputs: Mapping[str, float], *, with_spectrum: bool = False) -> dict[str, Any]:
         raw = evaluate_unscaled(

@@ -50,6 +50,7 @@ __all__ = [
     "entrance_surface_dose_mgy",
     "incident_air_kerma_mgy",
     "inverse_square_air_kerma_mgy",
+    "off_axis_factor",
     "relative_uncertainty_of_product",
 ]
 
@@ -138,6 +139,54 @@ def dap_gy_cm2(*, air_kerma_mgy: ArrayLike, field_area_cm2: ArrayLike) -> NDArra
     k = _positive("air_kerma_mgy", air_kerma_mgy, allow_zero=True)
     a = _positive("field_area_cm2", field_area_cm2)
     return np.asarray(k * a * _GY_PER_MGY)
+
+
+#: Gauss-Legendre nodes for the off-axis integral: 8 reach machine precision for any field of up
+#: to 60 x 60 cm at 65 cm (checked against adaptive quadrature in tests/model/test_dose.py)
+_GAUSS_NODES, _GAUSS_WEIGHTS = np.polynomial.legendre.leggauss(8)
+#: Fields evaluated together (keeps the temporaries of many fields within the caches).
+_OFF_AXIS_BLOCK = 65_536
+
+
+def off_axis_factor(
+    *, field_width_cm: ArrayLike, field_height_cm: ArrayLike, distance_mm: ArrayLike
+) -> NDArray[np.float64]:
+    r"""Mean over a rectangular field of the air kerma, relative to the kerma on the axis.
+
+    A point focus gives a point of the plane at distance :math:`d` and off-axis position
+    :math:`(x, y)` the kerma :math:`K(d)\,d^2/(d^2 + x^2 + y^2)` (inverse-square law along the
+    ray; air attenuation neglected), so the kerma-area product of a field :math:`2a \times 2b`
+    centred on the axis is :math:`P_{KA} = K(d)\,A\,f` with (ICRU Report 74: :math:`P_{KA}` is
+    the integral of the air kerma over the beam area)
+
+    .. math::
+
+        f = \frac{1}{ab}\int_0^a\!\!\int_0^b \frac{d^2}{d^2 + x^2 + y^2}\,dy\,dx
+          = \frac{1}{ab}\int_0^a \frac{d^2}{\sqrt{d^2 + x^2}}
+            \arctan\frac{b}{\sqrt{d^2 + x^2}}\,dx
+
+    evaluated by 8-point Gauss-Legendre quadrature in :math:`x` (the same at every plane: it
+    depends on :math:`a/d` and :math:`b/d` only). 35 x 43 cm at 1 m: f = 0.975. The heel effect
+    is not included.
+
+    Examples
+    --------
+    >>> round(float(off_axis_factor(field_width_cm=35.0, field_height_cm=43.0,
+    ...                             distance_mm=1000.0)), 4)
+    0.9753
+    """
+    w = np.asarray(field_width_cm, dtype=np.float64)
+    h = np.asarray(field_height_cm, dtype=np.float64)
+    d = np.asarray(distance_mm, dtype=np.float64) / 10.0
+    a, b, d = (np.ravel(v) for v in np.broadcast_arrays(w / 2.0, h / 2.0, d))
+    out = np.empty(a.shape)
+    for start in range(0, a.size, _OFF_AXIS_BLOCK):
+        part = slice(start, start + _OFF_AXIS_BLOCK)
+        d2 = (d[part] ** 2)[:, None]
+        x = a[part, None] * (_GAUSS_NODES + 1.0) / 2.0
+        r = np.sqrt(d2 + x * x)
+        out[part] = (d2 / r * np.arctan(b[part, None] / r)) @ _GAUSS_WEIGHTS / (2.0 * b[part])
+    return out.reshape(np.broadcast_shapes(w.shape, h.shape, np.shape(distance_mm)))
 
 
 def incident_air_kerma_mgy(

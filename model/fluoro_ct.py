@@ -251,6 +251,7 @@ class CtAcquisition:
     effective_diameter_cm: float | None = None
     acquisition_type: str | None = None
     label: str | None = None
+    body_region: str | None = None  # "head" or "body" (the SSDE fit: AAPM 293 or AAPM 204)
 
 
 @dataclass(frozen=True)
@@ -283,7 +284,9 @@ def ct_acquisition_dose(acquisition: CtAcquisition) -> CtAcquisitionDose:
     scan length :math:`L` (an underestimate for helical scans, which irradiate beyond the
     imaged length; noted). With both, the report's DLP is kept beside the product. SSDE follows
     :func:`beamaudit.model.ssde.size_specific_dose_estimate`, preferring the water-equivalent
-    diameter (AAPM 220) over the effective diameter (AAPM 204).
+    diameter (AAPM 220) over the effective diameter (AAPM 204), with the fit of the acquisition's
+    body region: AAPM 293 for the head, AAPM 204 for the body (assumed, and noted for a 16 cm
+    phantom, when the region is not recorded).
     """
     a = acquisition
     trail = WhyTrail()
@@ -342,13 +345,7 @@ def ct_acquisition_dose(acquisition: CtAcquisition) -> CtAcquisitionDose:
                 note="SSDE not computed: the CTDIvol phantom (16 or 32 cm) is not recorded",
             )
         else:
-            ssde = size_specific_dose_estimate(
-                ctdivol_mgy=ctdivol,
-                diameter_cm=size_cm,
-                phantom_diameter_cm=phantom,
-                diameter_kind=kind,
-            )
-            trail.extend(ssde.trail)
+            ssde = _ssde(trail, a, ctdivol=ctdivol, size_cm=size_cm, kind=kind, phantom=phantom)
     return CtAcquisitionDose(
         label=a.label,
         acquisition_type=a.acquisition_type,
@@ -360,6 +357,44 @@ def ct_acquisition_dose(acquisition: CtAcquisition) -> CtAcquisitionDose:
         comparisons=comparisons,
         trail=trail,
     )
+
+
+def _ssde(
+    trail: WhyTrail,
+    a: CtAcquisition,
+    *,
+    ctdivol: float,
+    size_cm: float,
+    kind: str,
+    phantom: float,
+) -> SizeSpecificDose | None:
+    """The SSDE of one acquisition by the fit of its body region (AAPM 293 head, AAPM 204 body),
+    its steps added to ``trail``; None (with the reason) when no fit applies."""
+    region = a.body_region
+    if region is None:
+        region = "body"
+        if round(phantom) == 16:
+            trail.add(
+                "body_region", "body", "", equation="assumed", source="CT acquisition",
+                assumed=True, note="body region not recorded: the AAPM 204 body fit is used for "
+                "a CTDIvol of the 16 cm phantom (a head would take the AAPM 293 head fit)",
+            )  # fmt: skip
+    if region == "head" and round(phantom) != 16:
+        trail.add(
+            "ssde_mgy", None, "mGy", equation="not computed", source="AAPM Report 293",
+            assumed=True, note=f"SSDE not computed: a head CTDIvol of the {phantom:g} cm phantom "
+            "(the AAPM 293 head fit refers to the 16 cm phantom)",
+        )  # fmt: skip
+        return None
+    ssde = size_specific_dose_estimate(
+        ctdivol_mgy=ctdivol,
+        diameter_cm=size_cm,
+        phantom_diameter_cm=phantom,
+        diameter_kind=kind,
+        body_region=region,
+    )
+    trail.extend(ssde.trail)
+    return ssde
 
 
 @dataclass(frozen=True)

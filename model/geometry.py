@@ -14,9 +14,11 @@ Entrance distance (FSD), first that applies:
    C.8.11.7), i.e. the exit side of a patient between tube and support;
 3. ``source_to_table_mm``: with the tube above the table the patient's entrance is the table
    distance minus the thickness; with the tube below, the patient lies on the tabletop and the
-   entrance is at the table (table and mattress attenuation not modelled, noted);
-4. ``source_to_isocenter_mm`` minus half the thickness (CT and XA: the patient taken as centred
-   on the isocentre, assumed, with an extra centring uncertainty);
+   entrance is at the table (the mattress's thickness neglected, noted; the table top and
+   mattress's attenuation belongs to the beam, :mod:`beamaudit.model.patient_support`);
+4. ``source_to_isocenter_mm`` minus half the thickness (CT, XA and XRF, whose (0018,1111) is to
+   the isocentre: the patient taken as centred on the isocentre, assumed, with an extra centring
+   uncertainty);
 5. ``sid_mm / magnification_factor`` minus the thickness: Estimated Radiographic Magnification
    Factor (0018,1114) is SID over source-object distance; the object plane is taken as the
    support plane of (0018,1111) (assumed);
@@ -104,7 +106,7 @@ class GeometryInputs:
     ----------
     sid_mm : focus to image receptor (SID).
     source_to_patient_mm : DX/CR/MG meaning of (0018,1111), to the support side nearest the
-        patient. (For CT and XA, where (0018,1111) is to the isocentre, pass
+        patient. (For CT, XA and XRF, where (0018,1111) is to the isocentre, pass
         ``source_to_isocenter_mm`` instead.)
     source_to_entrance_mm : focus to the patient's entrance surface.
     source_to_isocenter_mm : focus to the isocentre.
@@ -482,8 +484,8 @@ class _Resolver:
                 source=self.source_of("source_to_table_mm"),
                 inputs={"source_to_table_mm": table},
                 assumed=True,
-                note="tube below the table: entrance taken at the tabletop; mattress thickness "
-                "and table attenuation not modelled",
+                note="tube below the table: entrance taken at the tabletop (the mattress's "
+                "thickness neglected)",
             )
             return table, rel * table, "source_to_table"
         iso = _positive("source_to_isocenter_mm", g.source_to_isocenter_mm)

@@ -186,6 +186,7 @@ __all__ = [
     "sample_scatter_cosines",
     "simulate_backscatter",
     "spectrum_for_hvl",
+    "transport",
 ]
 
 FloatArray = npt.NDArray[np.float64]
@@ -658,20 +659,55 @@ def _transport_batch(
     rng: np.random.Generator,
 ) -> tuple[FloatArray, int]:
     """Follow ``n`` histories; return per-history scores (n, 4) and the number of collisions."""
-    scores = np.zeros((n, 4))
     disc_area = math.pi * disc_radius_cm**2
     pos, u = _sample_entry_points(n, field_side_cm, fsd_cm, rng)
     e = energies_kev[np.searchsorted(cumulative, rng.random(n), side="right")]
+    scores, collisions = transport(
+        pos,
+        u,
+        e,
+        data=data,
+        phantom=phantom,
+        exclusion_radius_cm=exclusion_radius_cm,
+        disc_radius_cm=disc_radius_cm,
+        rng=rng,
+    )
     # primary photons entering through the disc (surface-crossing estimator, denominator)
     in_disc = pos[:, 0] ** 2 + pos[:, 1] ** 2 < disc_radius_cm**2
     cos_in = np.maximum(u[:, 2], COS_CAP)
     scores[:, 0] = np.where(
         in_disc, data.interp(data.air_kerma_factor, e) / (disc_area * cos_in), 0
     )
+    return scores, collisions
+
+
+def transport(
+    pos: FloatArray,
+    u: FloatArray,
+    e: FloatArray,
+    *,
+    data: InteractionData,
+    phantom: SlabPhantom,
+    exclusion_radius_cm: float,
+    disc_radius_cm: float | None,
+    rng: np.random.Generator,
+) -> tuple[FloatArray, int]:
+    """Follow photons entering the phantom at ``pos`` (z = 0) in directions ``u``, energies ``e``.
+
+    Returns per-history scores, shape (n, 4): column 0 zero (the caller's primary through the
+    disc), 1 scatter out through the disc (zero when ``disc_radius_cm`` is None), 2 and 3 the
+    next-event point estimator of the scatter air kerma at the origin with exclusion radius
+    :math:`R_0` and :math:`2R_0` (keV/g per photon, before the caller's normalisation); and the
+    number of collisions followed. See the module docstring for the estimators.
+    """
+    n = e.shape[0]
+    scores = np.zeros((n, 4))
+    disc_r = 0.0 if disc_radius_cm is None else disc_radius_cm
+    pos = pos.copy()
+    e = e.copy()
     ids = np.arange(n)
     wt = np.ones(n)
     hx, hy, depth = 0.5 * phantom.width_cm, 0.5 * phantom.length_cm, phantom.depth_cm
-    r0 = exclusion_radius_cm
     collisions = 0
     for _ in range(MAX_COLLISIONS):
         if ids.size == 0:
@@ -685,46 +721,15 @@ def _transport_batch(
             & (np.abs(new[:, 0]) < hx)
             & (np.abs(new[:, 1]) < hy)
         )
-        # photons leaving through the entrance surface cross the disc plane on their way out
-        leaving_top = ~inside & (u[:, 2] < 0.0)
-        if np.any(leaving_top):
-            lt = np.flatnonzero(leaving_top)
-            s_top = -pos[lt, 2] / u[lt, 2]
-            cx = pos[lt, 0] + s_top * u[lt, 0]
-            cy = pos[lt, 1] + s_top * u[lt, 1]
-            hit = (cx * cx + cy * cy < disc_radius_cm**2) & (s_top < step[lt])
-            hit_cos = np.abs(u[lt, 2])
-            hit_cos = np.where(hit_cos < COS_CAP, COS_CAP_VALUE, hit_cos)
-            gain = wt[lt] * data.interp(data.air_kerma_factor, e[lt]) / (disc_area * hit_cos)
-            scores[ids[lt], 1] += np.where(hit, gain, 0.0)
+        if disc_r > 0.0:
+            _score_disc_exits(scores, ids, pos, u, e, wt, step, inside, data, disc_r)
         keep = np.flatnonzero(inside)
         ids, pos, u, e, wt = ids[keep], new[keep], u[keep], e[keep], wt[keep]
         if ids.size == 0:
             break
         collisions += ids.size
-        # next-event estimator toward the scoring point (0, 0, 0)
-        r = np.linalg.norm(pos, axis=1)
-        to_point = -pos / np.maximum(r, 1e-300)[:, None]
-        t_d = np.clip(1.0 - np.sum(u * to_point, axis=1), 0.0, 2.0)
-        inverse_r2 = 1.0 / np.maximum(r, 1e-300) ** 2
-        geometry = np.where(r > r0, inverse_r2, 3.0 / r0**2)
-        geometry_2r0 = np.where(r > 2.0 * r0, inverse_r2, 0.75 / r0**2)
-        f_coh = data.interp(data.coherent_fraction, e)
-        scatter_prob = 1.0 - data.interp(data.photo_fraction, e)
-        k = e / ELECTRON_REST_ENERGY_KEV
-        e_incoh = e / (1.0 + k * t_d)
-        p_incoh = _angular_density_per_sr(data, e, t_d, coherent=False)
-        gain = (
-            (1.0 - f_coh)
-            * p_incoh
-            * np.exp(-data.interp(data.mu_per_cm, e_incoh) * r)
-            * data.interp(data.air_kerma_factor, e_incoh)
-        )
-        if data.coherent:
-            p_coh = _angular_density_per_sr(data, e, t_d, coherent=True)
-            gain += f_coh * p_coh * np.exp(-mu[keep] * r) * data.interp(data.air_kerma_factor, e)
-        scores[ids, 2] += wt * scatter_prob * geometry * gain
-        scores[ids, 3] += wt * scatter_prob * geometry_2r0 * gain
+        scatter_prob = _score_next_event(scores, ids, pos, u, e, wt, mu[keep], data,
+                                         exclusion_radius_cm)  # fmt: skip
         # implicit capture, then Russian roulette on light photons
         wt = wt * scatter_prob
         light = wt < ROULETTE_WEIGHT
@@ -735,22 +740,95 @@ def _transport_batch(
             ids, pos, u, e, wt = ids[alive], pos[alive], u[alive], e[alive], wt[alive]
         if ids.size == 0:
             break
-        # scatter: channel, angle, energy, direction
-        coh = rng.random(ids.size) < data.interp(data.coherent_fraction, e)
-        t = np.empty(ids.size)
-        if np.any(coh):
-            t[coh] = _sample_t(data, e[coh], rng, coherent=True)
-        inc = ~coh
-        if np.any(inc):
-            t[inc] = _sample_t(data, e[inc], rng, coherent=False)
-            e[inc] = e[inc] / (1.0 + e[inc] / ELECTRON_REST_ENERGY_KEV * t[inc])
-        u = _rotate(u, 1.0 - t, rng.uniform(0.0, 2.0 * np.pi, ids.size))
+        u, e = _scatter(u, e, data, rng)
         hot = e >= ENERGY_CUTOFF_KEV
         if not np.all(hot):
             ids, pos, u, e, wt = ids[hot], pos[hot], u[hot], e[hot], wt[hot]
     else:
         raise ModelError(f"photons still alive after {MAX_COLLISIONS} collisions")
     return scores, collisions
+
+
+def _score_disc_exits(
+    scores: FloatArray,
+    ids: npt.NDArray[np.intp],
+    pos: FloatArray,
+    u: FloatArray,
+    e: FloatArray,
+    wt: FloatArray,
+    step: FloatArray,
+    inside: npt.NDArray[np.bool_],
+    data: InteractionData,
+    disc_r: float,
+) -> None:
+    """Photons leaving through the entrance surface cross the disc plane on their way out:
+    the surface-crossing estimator's scatter (column 1)."""
+    leaving_top = ~inside & (u[:, 2] < 0.0)
+    if not np.any(leaving_top):
+        return
+    lt = np.flatnonzero(leaving_top)
+    s_top = -pos[lt, 2] / u[lt, 2]
+    cx = pos[lt, 0] + s_top * u[lt, 0]
+    cy = pos[lt, 1] + s_top * u[lt, 1]
+    hit = (cx * cx + cy * cy < disc_r**2) & (s_top < step[lt])
+    hit_cos = np.abs(u[lt, 2])
+    hit_cos = np.where(hit_cos < COS_CAP, COS_CAP_VALUE, hit_cos)
+    disc_area = math.pi * disc_r**2
+    gain = wt[lt] * data.interp(data.air_kerma_factor, e[lt]) / (disc_area * hit_cos)
+    scores[ids[lt], 1] += np.where(hit, gain, 0.0)
+
+
+def _score_next_event(
+    scores: FloatArray,
+    ids: npt.NDArray[np.intp],
+    pos: FloatArray,
+    u: FloatArray,
+    e: FloatArray,
+    wt: FloatArray,
+    mu: FloatArray,
+    data: InteractionData,
+    r0: float,
+) -> FloatArray:
+    """The next-event estimator toward the scoring point (0, 0, 0) at this collision (columns
+    2 and 3, exclusion radius R0 and 2 R0); returns the scattering probability 1 - tau/mu."""
+    r = np.linalg.norm(pos, axis=1)
+    to_point = -pos / np.maximum(r, 1e-300)[:, None]
+    t_d = np.clip(1.0 - np.sum(u * to_point, axis=1), 0.0, 2.0)
+    inverse_r2 = 1.0 / np.maximum(r, 1e-300) ** 2
+    geometry = np.where(r > r0, inverse_r2, 3.0 / r0**2)
+    geometry_2r0 = np.where(r > 2.0 * r0, inverse_r2, 0.75 / r0**2)
+    f_coh = data.interp(data.coherent_fraction, e)
+    scatter_prob = 1.0 - data.interp(data.photo_fraction, e)
+    k = e / ELECTRON_REST_ENERGY_KEV
+    e_incoh = e / (1.0 + k * t_d)
+    p_incoh = _angular_density_per_sr(data, e, t_d, coherent=False)
+    gain = (
+        (1.0 - f_coh)
+        * p_incoh
+        * np.exp(-data.interp(data.mu_per_cm, e_incoh) * r)
+        * data.interp(data.air_kerma_factor, e_incoh)
+    )
+    if data.coherent:
+        p_coh = _angular_density_per_sr(data, e, t_d, coherent=True)
+        gain += f_coh * p_coh * np.exp(-mu * r) * data.interp(data.air_kerma_factor, e)
+    scores[ids, 2] += wt * scatter_prob * geometry * gain
+    scores[ids, 3] += wt * scatter_prob * geometry_2r0 * gain
+    return np.asarray(scatter_prob)
+
+
+def _scatter(
+    u: FloatArray, e: FloatArray, data: InteractionData, rng: np.random.Generator
+) -> tuple[FloatArray, FloatArray]:
+    """One scattering of every photon: channel, angle, energy (in place), direction."""
+    coh = rng.random(e.size) < data.interp(data.coherent_fraction, e)
+    t = np.empty(e.size)
+    if np.any(coh):
+        t[coh] = _sample_t(data, e[coh], rng, coherent=True)
+    inc = ~coh
+    if np.any(inc):
+        t[inc] = _sample_t(data, e[inc], rng, coherent=False)
+        e[inc] = e[inc] / (1.0 + e[inc] / ELECTRON_REST_ENERGY_KEV * t[inc])
+    return _rotate(u, 1.0 - t, rng.uniform(0.0, 2.0 * np.pi, e.size)), e
 
 
 def simulate_backscatter(

@@ -1,4 +1,4 @@
-"""Size-specific dose estimate for CT (AAPM Reports 204 and 220).
+r"""Size-specific dose estimate for CT (AAPM Reports 204, 220 and 293).
 
 CTDIvol describes a dosimetry phantom (16 cm or 32 cm PMMA), not the patient. AAPM Report 204
 (2011) scales it by a conversion factor that depends on the patient's size; its appendix fits
@@ -6,27 +6,39 @@ the factor as an exponential in the effective diameter :math:`D` (cm):
 
 .. math::
 
-    \\mathrm{SSDE} = f(D)\\,\\mathrm{CTDI_{vol}}, \\qquad f(D) = a\\,e^{-bD}
+    \mathrm{SSDE} = f(D)\,\mathrm{CTDI_{vol}}, \qquad f(D) = a\,e^{-bD}
 
-with (AAPM 204 appendix) :math:`a = 3.704369`, :math:`b = 0.03671937\\ \\mathrm{cm^{-1}}` for
+with (AAPM 204 appendix) :math:`a = 3.704369`, :math:`b = 0.03671937\ \mathrm{cm^{-1}}` for
 CTDIvol referred to the 32 cm phantom and :math:`a = 1.874799`,
-:math:`b = 0.03871313\\ \\mathrm{cm^{-1}}` for the 16 cm phantom.
+:math:`b = 0.03871313\ \mathrm{cm^{-1}}` for the 16 cm phantom. These are fits for the
+**body** (trunk).
 
-The effective diameter of AAPM 204 is :math:`D = \\sqrt{AP \\cdot LAT}`. AAPM Report 220 (2014)
+The effective diameter of AAPM 204 is :math:`D = \sqrt{AP \cdot LAT}`. AAPM Report 220 (2014)
 replaces it with the water-equivalent diameter, which accounts for the patient's attenuation
 (eq. 2-3 there):
 
 .. math::
 
-    A_w = \\sum_{ROI} \\left(\\frac{\\mathrm{CT}(x, y)}{1000} + 1\\right) A_{pixel}
-        = \\left(\\frac{\\overline{\\mathrm{CT}}_{ROI}}{1000} + 1\\right) A_{ROI},
-    \\qquad D_w = 2\\sqrt{\\frac{A_w}{\\pi}}
+    A_w = \sum_{ROI} \left(\frac{\mathrm{CT}(x, y)}{1000} + 1\right) A_{pixel}
+        = \left(\frac{\overline{\mathrm{CT}}_{ROI}}{1000} + 1\right) A_{ROI},
+    \qquad D_w = 2\sqrt{\frac{A_w}{\pi}}
 
 and uses :math:`D_w` in place of :math:`D` in the AAPM 204 fit.
 
-The fits are tabulated in AAPM 204 for diameters of about 8 to 45 cm (memory, medium
-confidence); outside that range :func:`ssde_conversion_factor` raises unless extrapolation is
-asked for.
+For the **head**, AAPM Report 293 (2019) gives its own fit against the CTDIvol of the 16 cm
+phantom, in the water-equivalent diameter (from memory, medium confidence; the coefficients are
+those of PUBLISHED-VALUES section n):
+
+.. math::
+
+    f_{head}(D_w) = 1.9852\,e^{-0.0486\,D_w}
+
+so a 16 cm adult head gets :math:`f \approx 0.91` and an infant's 10 cm head
+:math:`f \approx 1.22`. Each :class:`SizeSpecificDose` says which report's fit it used.
+
+The body fits are tabulated in AAPM 204 for diameters of about 8 to 45 cm and the head fit in
+AAPM 293 for about 6 to 24 cm (both from memory, medium and low confidence); outside those
+ranges :func:`ssde_conversion_factor` raises unless extrapolation is asked for.
 """
 
 from __future__ import annotations
@@ -43,6 +55,8 @@ from beamaudit.model.trail import WhyTrail
 __all__ = [
     "AAPM204_FIT",
     "AAPM204_VALID_DIAMETER_CM",
+    "AAPM293_HEAD_FIT",
+    "AAPM293_VALID_DIAMETER_CM",
     "SizeSpecificDose",
     "effective_diameter_cm",
     "size_specific_dose_estimate",
@@ -58,11 +72,28 @@ AAPM204_FIT: dict[int, tuple[float, float]] = {
 }
 #: Range of diameters (cm) over which AAPM 204 tabulates the factors (memory, medium confidence).
 AAPM204_VALID_DIAMETER_CM = (8.0, 45.0)
+#: AAPM Report 293 (2019) head fit f = a·exp(-b·Dw), CTDIvol of the 16 cm phantom: (a, b in 1/cm)
+#: (from memory, medium confidence; PUBLISHED-VALUES section n).
+AAPM293_HEAD_FIT = (1.9852, 0.0486)
+#: Range of water-equivalent head diameters (cm) AAPM 293 tabulates (from memory, low confidence).
+AAPM293_VALID_DIAMETER_CM = (6.0, 24.0)
+#: The report whose fit each region uses, for trails and records.
+SSDE_REPORT = {"body": "AAPM Report 204 (2011)", "head": "AAPM Report 293 (2019)"}
+_SHORT = {"body": "AAPM 204", "head": "AAPM 293"}
 _MM2_PER_CM2 = 100.0
 
 
-def _fit(phantom_diameter_cm: float) -> tuple[float, float]:
+def _fit(phantom_diameter_cm: float, body_region: str = "body") -> tuple[float, float]:
+    if body_region not in SSDE_REPORT:
+        raise ModelError(f"body region must be 'body' or 'head', not {body_region!r}")
     key = round(float(phantom_diameter_cm))
+    if body_region == "head":
+        if key != 16 or abs(key - float(phantom_diameter_cm)) > 1e-9:
+            raise ModelError(
+                "the AAPM 293 head fit refers to the CTDIvol of the 16 cm phantom, not "
+                f"{phantom_diameter_cm!r} cm"
+            )
+        return AAPM293_HEAD_FIT
     if key not in AAPM204_FIT or abs(key - float(phantom_diameter_cm)) > 1e-9:
         raise ModelError(
             f"CTDIvol phantom must be 16 or 32 cm for the AAPM 204 fit, not {phantom_diameter_cm!r}"
@@ -70,38 +101,49 @@ def _fit(phantom_diameter_cm: float) -> tuple[float, float]:
     return AAPM204_FIT[key]
 
 
+def _valid_range(body_region: str) -> tuple[float, float]:
+    return AAPM293_VALID_DIAMETER_CM if body_region == "head" else AAPM204_VALID_DIAMETER_CM
+
+
 def ssde_conversion_factor(
     *,
     diameter_cm: ArrayLike,
     phantom_diameter_cm: float = 32.0,
     allow_extrapolation: bool = False,
+    body_region: str = "body",
 ) -> NDArray[np.float64]:
-    """AAPM 204 size conversion factor :math:`f = a\\,e^{-bD}` (vectorised).
+    r"""Size conversion factor :math:`f = a\,e^{-bD}` (vectorised): AAPM 204 for the body,
+    AAPM 293 for the head.
 
     Parameters
     ----------
     diameter_cm : array_like
-        Effective diameter (AAPM 204) or water-equivalent diameter (AAPM 220), cm.
+        Effective diameter (AAPM 204) or water-equivalent diameter (AAPM 220, 293), cm.
     phantom_diameter_cm : {32, 16}
-        Phantom the CTDIvol refers to.
+        Phantom the CTDIvol refers to (16 for the head).
     allow_extrapolation : bool
-        Evaluate the fit outside the tabulated range (8-45 cm) instead of raising.
+        Evaluate the fit outside its tabulated range instead of raising.
+    body_region : {"body", "head"}
+        Which fit: AAPM 204 (body) or AAPM 293 (head).
 
     Examples
     --------
     >>> round(float(ssde_conversion_factor(diameter_cm=20.0)), 3)
     1.777
+    >>> round(float(ssde_conversion_factor(diameter_cm=16.0, phantom_diameter_cm=16,
+    ...                                    body_region="head")), 3)
+    0.912
     """
-    a, b = _fit(phantom_diameter_cm)
+    a, b = _fit(phantom_diameter_cm, body_region)
     d = np.asarray(diameter_cm, dtype=np.float64)
     if not np.all(np.isfinite(d) & (d > 0)):
         raise ModelError("diameter must be a positive finite number of cm")
-    lo, hi = AAPM204_VALID_DIAMETER_CM
+    lo, hi = _valid_range(body_region)
     if not allow_extrapolation and np.any((d < lo) | (d > hi)):
         bad = float(np.ravel(d[(d < lo) | (d > hi)] if d.ndim else d)[0])
         raise ModelError(
-            f"diameter {bad:g} cm is outside the AAPM 204 range ({lo:g}-{hi:g} cm); "
-            "pass allow_extrapolation=True to extend the fit"
+            f"diameter {bad:g} cm is outside the {_SHORT[body_region]} range "
+            f"({lo:g}-{hi:g} cm); pass allow_extrapolation=True to extend the fit"
         )
     return np.asarray(a * np.exp(-b * d))
 
@@ -179,7 +221,8 @@ def water_equivalent_diameter_from_image_cm(
 
 @dataclass(frozen=True)
 class SizeSpecificDose:
-    """One SSDE with its factor, the size it used and the trail of how it was made."""
+    """One SSDE with its factor, the size it used, the report whose fit it used (``report``)
+    and the trail of how it was made."""
 
     ssde_mgy: float
     conversion_factor: float
@@ -189,6 +232,8 @@ class SizeSpecificDose:
     ctdivol_mgy: float
     extrapolated: bool
     trail: WhyTrail
+    body_region: str = "body"
+    report: str = SSDE_REPORT["body"]
 
 
 def size_specific_dose_estimate(
@@ -199,8 +244,9 @@ def size_specific_dose_estimate(
     diameter_kind: str = "water_equivalent",
     diameter_source: str = "recorded",
     allow_extrapolation: bool = False,
+    body_region: str = "body",
 ) -> SizeSpecificDose:
-    """SSDE of one CT acquisition: :math:`\\mathrm{SSDE} = a e^{-bD}\\,\\mathrm{CTDI_{vol}}`.
+    r"""SSDE of one CT acquisition: :math:`\mathrm{SSDE} = a e^{-bD}\,\mathrm{CTDI_{vol}}`.
 
     Parameters
     ----------
@@ -209,13 +255,15 @@ def size_specific_dose_estimate(
     diameter_cm : float
         Patient size, cm.
     phantom_diameter_cm : {32, 16}
-        Phantom the CTDIvol refers to.
+        Phantom the CTDIvol refers to (16 for the head).
     diameter_kind : {"water_equivalent", "effective"}
         Which size ``diameter_cm`` is (AAPM 220 D_w or AAPM 204 effective diameter).
     diameter_source : str
         Where the diameter came from (for the trail).
     allow_extrapolation : bool
         As for :func:`ssde_conversion_factor`; recorded as an assumption when used.
+    body_region : {"body", "head"}
+        The AAPM 204 body fit or the AAPM 293 head fit (module docstring).
     """
     if not (math.isfinite(ctdivol_mgy) and ctdivol_mgy >= 0):
         raise ModelError(f"CTDIvol must be zero or a positive finite number, not {ctdivol_mgy!r}")
@@ -223,16 +271,50 @@ def size_specific_dose_estimate(
         raise ModelError(
             f"diameter_kind must be water_equivalent or effective, not {diameter_kind!r}"
         )
-    lo, hi = AAPM204_VALID_DIAMETER_CM
-    extrapolated = not (lo <= diameter_cm <= hi)
     f = float(
         ssde_conversion_factor(
             diameter_cm=diameter_cm,
             phantom_diameter_cm=phantom_diameter_cm,
             allow_extrapolation=allow_extrapolation,
+            body_region=body_region,
         )
     )
-    a, b = _fit(phantom_diameter_cm)
+    lo, hi = _valid_range(body_region)
+    extrapolated = not (lo <= diameter_cm <= hi)
+    trail = _ssde_trail(
+        f, ctdivol_mgy=ctdivol_mgy, diameter_cm=diameter_cm,
+        phantom_diameter_cm=phantom_diameter_cm, diameter_kind=diameter_kind,
+        diameter_source=diameter_source, body_region=body_region, extrapolated=extrapolated,
+    )  # fmt: skip
+    return SizeSpecificDose(
+        ssde_mgy=f * ctdivol_mgy,
+        conversion_factor=f,
+        diameter_cm=float(diameter_cm),
+        diameter_kind=diameter_kind,
+        phantom_diameter_cm=float(phantom_diameter_cm),
+        ctdivol_mgy=float(ctdivol_mgy),
+        extrapolated=extrapolated,
+        trail=trail,
+        body_region=body_region,
+        report=SSDE_REPORT[body_region],
+    )
+
+
+def _ssde_trail(
+    f: float,
+    *,
+    ctdivol_mgy: float,
+    diameter_cm: float,
+    phantom_diameter_cm: float,
+    diameter_kind: str,
+    diameter_source: str,
+    body_region: str,
+    extrapolated: bool,
+) -> WhyTrail:
+    """The three steps of an SSDE: the size, the factor (which report's fit), the product."""
+    a, b = _fit(phantom_diameter_cm, body_region)
+    report = SSDE_REPORT[body_region]
+    lo, hi = _valid_range(body_region)
     trail = WhyTrail()
     size_ref = "AAPM Report 220 (2014)" if diameter_kind == "water_equivalent" else "AAPM 204"
     trail.add(
@@ -241,38 +323,40 @@ def size_specific_dose_estimate(
         "cm",
         equation="recorded" if diameter_source == "recorded" else "computed",
         source=f"{diameter_source}; size as defined in {size_ref}",
+        assumed=body_region == "head" and diameter_kind == "effective",
+        note="effective diameter used for a head, whose fit (AAPM 293) is defined in the "
+        "water-equivalent diameter (the skull makes them differ)"
+        if body_region == "head" and diameter_kind == "effective"
+        else None,
+    )
+    fit = (
+        "AAPM Report 293 (2019) head fit, 16 cm phantom (coefficients from memory, medium "
+        "confidence)"
+        if body_region == "head"
+        else f"AAPM Report 204 (2011) appendix fit, body, {round(phantom_diameter_cm)} cm phantom"
     )
     trail.add(
         "ssde_conversion_factor",
         f,
         "1",
         equation="f = a · exp(-b · D)",
-        source=f"AAPM Report 204 (2011) appendix fit, {round(phantom_diameter_cm)} cm phantom",
+        source=fit,
         inputs={"a": a, "b_per_cm": b, "diameter_cm": float(diameter_cm)},
         assumed=extrapolated,
         note=(
-            f"diameter {diameter_cm:g} cm outside the AAPM 204 range ({lo:g}-{hi:g} cm); "
+            f"diameter {diameter_cm:g} cm outside the {_SHORT[body_region]} range "
+            f"({lo:g}-{hi:g} cm); "
             "fit extrapolated"
             if extrapolated
             else None
         ),
     )
-    ssde = f * ctdivol_mgy
     trail.add(
         "ssde_mgy",
-        ssde,
+        f * ctdivol_mgy,
         "mGy",
         equation="SSDE = f · CTDIvol",
-        source="AAPM Report 204 (2011)",
+        source=report,
         inputs={"ctdivol_mgy": float(ctdivol_mgy), "ssde_conversion_factor": f},
     )
-    return SizeSpecificDose(
-        ssde_mgy=ssde,
-        conversion_factor=f,
-        diameter_cm=float(diameter_cm),
-        diameter_kind=diameter_kind,
-        phantom_diameter_cm=float(phantom_diameter_cm),
-        ctdivol_mgy=float(ctdivol_mgy),
-        extrapolated=extrapolated,
-        trail=trail,
-    )
+    return trail

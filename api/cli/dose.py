@@ -14,6 +14,7 @@ from __future__ import annotations
 import json
 import math
 import re
+from dataclasses import dataclass
 from typing import TYPE_CHECKING, Annotated, Any
 
 import typer
@@ -60,15 +61,50 @@ def _check_geometry(sid_mm: float, thickness_mm: float, fsd_mm: float | None) ->
             )
 
 
-def _room_calibration(room: str) -> RoomCalibration | None:
-    """The stored room's active calibration from QA measurements (None: the room has none)."""
+@dataclass(frozen=True)
+class _RoomBeam:
+    """What ``--room`` takes from a stored room: its tube, filtration, table and calibration."""
+
+    name: str
+    anode: str
+    anode_angle_deg: float
+    ripple_percent: float
+    filters: tuple[Any, ...] | None
+    support: Any
+    calibration: RoomCalibration | None
+
+    def model_arguments(self) -> dict[str, Any]:
+        """The tube, table and calibration as :func:`compute_exposure_dose` takes them."""
+        return {
+            "anode": self.anode,
+            "anode_angle_deg": self.anode_angle_deg,
+            "ripple_percent": self.ripple_percent,
+            "calibration": self.calibration,
+            "patient_support": self.support,
+        }
+
+
+#: where each geometry value of ``dose`` comes from, for the trail
+_PROVENANCE = {
+    "sid_mm": "--sid-mm",
+    "body_part_thickness_mm": "--thickness-mm",
+    "field_width_mm": "--field-cm",
+    "field_height_mm": "--field-cm",
+    "source_to_entrance_mm": "--fsd-mm",
+    "field_plane_mm": "--sid-mm (the field is given at the image receptor)",
+}
+
+
+def _room_beam(room: str) -> _RoomBeam:
+    """The stored room's beam configuration and active calibration from QA measurements."""
     import click
     from sqlalchemy import select
 
     from beamaudit.api.cli._common import err_console
     from beamaudit.api.cli._store import open_store
-    from beamaudit.api.reconstruct import calibration_for_room
+    from beamaudit.api.reconstruct import _anode_symbol, _patient_support, calibration_for_room
     from beamaudit.api.store import models as m
+    from beamaudit.model import FilterSpec
 
     store = open_store(click.get_current_context(silent=True))  # type: ignore[arg-type]
     with store.sessions() as session:
@@ -78,11 +114,26 @@ def _room_calibration(room: str) -> RoomCalibration | None:
                  "after the devices' station names)")  # fmt: skip
         if len(rows) > 1:
             fail(f"--room {room}: {len(rows)} rooms of that name at different sites")
-        calibration = calibration_for_room(session, rows[0])
+        row = rows[0]
+        calibration = calibration_for_room(session, row)
+        filters = (
+            tuple(FilterSpec(f["material"], float(f["thickness_mm"])) for f in row.filtration)
+            if row.filtration
+            else None
+        )
+        beam = _RoomBeam(
+            name=room,
+            anode=_anode_symbol(row.anode_material),
+            anode_angle_deg=row.anode_angle_deg,
+            ripple_percent=row.ripple_percent,
+            filters=filters,
+            support=_patient_support(row, row.tube_side or "above"),
+            calibration=calibration,
+        )
     if calibration is None:
         err_console.print(f"note: room {room} has no calibration from QA measurements yet; "
                           "the estimate is uncalibrated", highlight=False)  # fmt: skip
-    return calibration
+    return beam
 
 
 def _value_pm(value: float, uncertainty: float) -> str:
@@ -145,7 +196,12 @@ def dose_command(
         ),
     ] = None,
     room: Annotated[
-        str | None, typer.Option("--room", help="Use this room's stored calibration.")
+        str | None,
+        typer.Option(
+            "--room",
+            help="Use this stored room's tube, filtration (unless --filter), table and "
+            "calibration.",
+        ),
     ] = None,
     as_json: Annotated[bool, typer.Option("--json", help="Print one JSON object.")] = False,
 ) -> None:
@@ -163,17 +219,11 @@ def dose_command(
     except ValueError as exc:
         fail(str(exc))
     _check_geometry(sid_mm, thickness_mm, fsd_mm)
-    calibration = _room_calibration(room) if room is not None else None
+    room_beam = _room_beam(room) if room is not None else None
     try:
         layers = None if not filters else tuple(parse_filter(text) for text in filters)
-        provenance = {
-            "sid_mm": "--sid-mm",
-            "body_part_thickness_mm": "--thickness-mm",
-            "field_width_mm": "--field-cm",
-            "field_height_mm": "--field-cm",
-            "source_to_entrance_mm": "--fsd-mm",
-            "field_plane_mm": "--sid-mm (the field is given at the image receptor)",
-        }
+        if layers is None and room_beam is not None:
+            layers = room_beam.filters  # the room's total filtration, when it has one
         geometry = GeometryInputs(
             sid_mm=sid_mm,
             body_part_thickness_mm=thickness_mm,
@@ -181,21 +231,26 @@ def dose_command(
             field_width_mm=width_cm * _MM_PER_CM,
             field_height_mm=height_cm * _MM_PER_CM,
             field_plane_mm=sid_mm,
-            provenance=provenance,
+            provenance=_PROVENANCE,
         )
         result = compute_exposure_dose(
             kvp_kv=kv,
             exposure_mas=mas,
             filters=layers,
-            calibration=calibration,
             geometry=geometry,
+            **(room_beam.model_arguments() if room_beam is not None else {}),
         )
     except ModelError as exc:
         fail(str(exc))
-    filtration = describe_filters(layers) if layers else "default (assumed)"
+    # the filtration the beam model used: given, the room's, a calibration's fitted inherent
+    # filtration, or the default (then marked assumed)
+    filtration = describe_filters(result.filters) + (
+        " (assumed)" if result.filtration_assumed else ""
+    )
     if as_json:
         payload = result.as_dict()
-        payload["filters"] = [layer.as_dict() for layer in layers] if layers else None
+        payload["filters"] = [layer.as_dict() for layer in result.filters]
+        payload["filtration_assumed"] = result.filtration_assumed
         typer.echo(json.dumps(payload, ensure_ascii=False, allow_nan=False))
     else:
         typer.echo(_text_report(result, filtration))

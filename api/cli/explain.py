@@ -148,6 +148,19 @@ def _print(data: dict[str, Any]) -> None:
         highlight=False,
     )
     why = data["why"] or {}
+    if why.get("backscatter_factor") is not None:
+        console.print(
+            f"backscatter factor B = {why['backscatter_factor']:.3f} ± "
+            f"{why.get('backscatter_factor_standard_uncertainty') or 0:.3f} (one standard "
+            f"uncertainty): {why.get('backscatter_factor_source') or 'source not recorded'}",
+            highlight=False,
+            markup=False,
+        )
+    if why.get("table_transmission") is not None:
+        console.print(
+            f"table top and mattress in the beam: transmission {why['table_transmission']:.3f}",
+            highlight=False,
+        )
     for line in why.get("assumptions", []):
         console.print(f"  assumed: {line}", highlight=False, markup=False)
     for note in data["notes"]:

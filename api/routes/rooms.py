@@ -52,6 +52,9 @@ ROOM_FIELDS = (
     "filtration",
     "table_to_detector_mm",
     "dap_ratio_tolerance",
+    "tube_side",
+    "table_filtration",
+    "table_transmission",
 )
 
 

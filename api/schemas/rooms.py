@@ -3,7 +3,7 @@
 from __future__ import annotations
 
 from datetime import date, datetime
-from typing import Annotated, Any
+from typing import Annotated, Any, Literal
 
 from pydantic import AfterValidator, Field
 
@@ -112,6 +112,15 @@ Tolerance = Annotated[
     ),
 ]
 Anode = Annotated[str, Field(min_length=1, max_length=40), AfterValidator(_known_anode)]
+TubeSide = Annotated[
+    Literal["above", "below"],
+    Field(description="x-ray tube above or below the table; null: below for XA and RF, above "
+          "otherwise (assumed)"),
+]  # fmt: skip
+TableTransmission = Annotated[
+    FiniteFloat,
+    Field(gt=0, le=1, description="measured air-kerma transmission of table top and mattress"),
+]
 Modality = Annotated[ShortText, Field(max_length=16, examples=["DX"])]
 
 
@@ -135,6 +144,13 @@ class RoomUpdate(InputModel):
     )
     table_to_detector_mm: Gap | None = None
     dap_ratio_tolerance: Tolerance | None = None
+    tube_side: TubeSide | None = None
+    table_filtration: Annotated[list[FilterLayer], Field(max_length=5)] | None = Field(
+        default=None,
+        description="table top and mattress of a tube below the table, as layers; null: the "
+        "measured transmission, else a documented default (assumed)",
+    )
+    table_transmission: TableTransmission | None = None
 
     _not_null = not_null("name", "anode_material", "anode_angle_deg", "ripple_percent")
 
@@ -150,6 +166,9 @@ class RoomRead(ReadModel):
     filtration: list[FilterLayerRead] | None
     table_to_detector_mm: float | None
     dap_ratio_tolerance: float | None
+    tube_side: str | None = None
+    table_filtration: list[FilterLayerRead] | None = None
+    table_transmission: float | None = None
     created_at: datetime
 
 

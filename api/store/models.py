@@ -76,6 +76,12 @@ class Room(Base):
     table_to_detector_mm: Mapped[float | None] = mapped_column(Float)
     dap_ratio_tolerance: Mapped[float | None] = mapped_column(Float)
     created_at: Mapped[datetime] = mapped_column(UTCDateTime(), default=utcnow)
+    #: "above" or "below" the table; null: below for XA and RF, above otherwise (assumed)
+    tube_side: Mapped[str | None] = mapped_column(String)
+    #: table top and mattress of a tube below the table, as layers [{material, thickness_mm}]
+    table_filtration: Mapped[list[dict[str, Any]] | None] = mapped_column(JSONValue)
+    #: measured air-kerma transmission of table top and mattress (used instead of the layers)
+    table_transmission: Mapped[float | None] = mapped_column(Float)
 
 
 class Device(Base):

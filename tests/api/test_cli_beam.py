@@ -116,3 +116,25 @@ def test_impossible_input_is_one_line_and_exit_2(
     assert message in err
     assert len(err.strip().splitlines()) == 1
     assert "Traceback" not in result.output
+
+
+def test_summary_leads_with_what_a_dose_audit_uses(app: typer.Typer) -> None:
+    result = runner.invoke(app, ["beam", "--kv", "80"])
+    assert result.exit_code == 0, result.output
+    out = result.output
+    rows = [out.index(label) for label in ("output at 1 m", "first HVL (mm Al)", "mean energy")]
+    assert rows == sorted(rows)
+    assert "second HVL (mm Al)" not in out and "homogeneity coefficient" not in out
+    # the anode angle is stated with the angle the model was checked at
+    assert "12° (the angle the model was checked at)" in out
+
+
+def test_all_shows_the_rest_and_the_anode_angle_check(app: typer.Typer) -> None:
+    result = runner.invoke(app, ["beam", "--kv", "80", "--all", "--anode-angle", "16"])
+    assert result.exit_code == 0, result.output
+    out = " ".join(result.output.split())
+    for label in ("second HVL (mm Al)", "homogeneity coefficient", "first HVL (mm Cu)",
+                  "effective energy (keV)"):  # fmt: skip
+        assert label in out
+    assert "checked at 12 degrees against the IEC 61267:2005 RQR 2-10" in out
+    assert "anode angle 16 degrees: the model was checked at 12 degrees" in out

@@ -84,9 +84,13 @@ def test_json_has_the_promised_keys(app: typer.Typer) -> None:
     ]
     # FSD = 1800 - 50 (default gap, assumed) - 220
     assert data["fsd_mm"] == pytest.approx(1530.0)
-    # DAP by hand from the JSON's own output: K(1800) · 1505 cm²
+    # DAP by hand from the JSON's own output: K(1800) · 1505 cm² · f, f the field's mean kerma
+    # over its axis kerma (off-axis inverse-square law, by quadrature of its definition)
+    from scipy.integrate import dblquad
+
+    f = dblquad(lambda y, x: 180.0**2 / (180.0**2 + x * x + y * y), -17.5, 17.5, -21.5, 21.5)[0]
     k_sid_mgy = data["output_ugy_per_mas_1m"] * 10 / 1.8**2 / 1000
-    assert data["dap_gy_cm2"] == pytest.approx(k_sid_mgy * 1505 / 1000)
+    assert data["dap_gy_cm2"] == pytest.approx(k_sid_mgy * f / 1000, rel=1e-7)
     assert data["esak_mgy"] == pytest.approx(
         data["incident_air_kerma_mgy"] * data["backscatter_factor"]
     )
@@ -148,10 +152,8 @@ def test_parse_field_cm() -> None:
         parse_field_cm("0x10")
 
 
-def test_room_option_uses_the_stored_calibration(settings_env, capsys) -> None:
-    import json
-
-    from beamaudit.api.cli import main
+def _rooms(settings_env, *rooms: dict) -> None:
+    """Store rooms (Room columns as dicts; ``output_scale`` adds an active calibration)."""
     from beamaudit.api.store import make_engine, make_session_factory, upgrade
     from beamaudit.api.store import models as m
 
@@ -161,15 +163,55 @@ def test_room_option_uses_the_stored_calibration(settings_env, capsys) -> None:
         site = m.Site(name="Fernmoor Infirmary (invented)")
         s.add(site)
         s.flush()
-        room = m.Room(site_id=site.id, name="RAD A")
-        s.add(room)
-        s.flush()
-        s.add(m.RoomCalibrationRow(room_id=room.id, output_scale=0.8, n_measurements=3,
-                                   inherent_filtration_mm_al=None, residuals=[]))  # fmt: skip
+        for columns in rooms:
+            scale = columns.pop("output_scale", None)
+            room = m.Room(site_id=site.id, **columns)
+            s.add(room)
+            s.flush()
+            if scale is not None:
+                calibration = m.RoomCalibrationRow(
+                    room_id=room.id, output_scale=scale, n_measurements=3, residuals=[]
+                )
+                s.add(calibration)
     engine.dispose()
+
+
+def test_room_option_uses_the_stored_calibration(settings_env, capsys) -> None:
+    import json
+
+    from beamaudit.api.cli import main
+
+    _rooms(settings_env, {"name": "RAD A", "output_scale": 0.8})
     base = ["dose", "--kv", "81", "--mas", "10", "--sid-mm", "1800", "--field-cm", "35x43",
             "--thickness-mm", "220", "--json"]  # fmt: skip
     assert main([*base, "--room", "RAD A"]) == 0
     assert json.loads(capsys.readouterr().out)["calibrated"] is True
     assert main([*base, "--room", "NOWHERE"]) == 2
     assert "no room of that name" in capsys.readouterr().err
+
+
+def test_room_option_says_which_filtration_it_used(settings_env, capsys) -> None:
+    # a room with its own total filtration: the report names it, never "default (assumed)"
+    import json
+
+    from beamaudit.api.cli import main
+
+    filtration = [{"material": "aluminium", "thickness_mm": 3.0},
+                  {"material": "copper", "thickness_mm": 0.1}]  # fmt: skip
+    _rooms(settings_env, {"name": "RAD B", "filtration": filtration}, {"name": "RAD C"})
+    base = ["dose", "--kv", "81", "--mas", "10", "--sid-mm", "1800", "--field-cm", "35x43",
+            "--thickness-mm", "220"]  # fmt: skip
+    assert main([*base, "--room", "RAD B"]) == 0
+    out = capsys.readouterr().out
+    assert "filtration 3 mm Al + 0.1 mm Cu," in out and "assumed)" not in out.split("\n")[0]
+    assert main([*base, "--room", "RAD B", "--json"]) == 0
+    data = json.loads(capsys.readouterr().out)
+    assert data["filters"] == [
+        {"material": "Al", "thickness_mm": 3.0},
+        {"material": "Cu", "thickness_mm": 0.1},
+    ]
+    assert data["filtration_assumed"] is False
+    # a room without filtration: the default, said to be assumed
+    assert main([*base, "--room", "RAD C"]) == 0
+    first = capsys.readouterr().out.split("\n")[0]
+    assert "filtration 2.5 mm Al (assumed)" in first

@@ -227,3 +227,12 @@ def test_unknown_study_is_a_404_page_and_the_api_answers_json(site) -> None:
     api = _get(client, "/api/v1/reviews/424242", physicist)
     assert api.status_code == 404 and api.headers["content-type"] == "application/json"
     assert api.json()["detail"]
+
+
+def test_exam_page_shows_b_with_its_source_and_uncertainty(site) -> None:
+    client, _, physicist, uid = site
+    text = _get(client, f"/exams/{uid}", physicist).text
+    assert "Backscatter factor (B)" in text
+    assert "Monte Carlo backscatter kernels" in text
+    row = text[text.index("Backscatter factor (B)") :][:600]
+    assert " ± " in row  # the estimate with one standard uncertainty

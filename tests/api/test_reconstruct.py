@@ -11,6 +11,7 @@ from __future__ import annotations
 import math
 from dataclasses import replace
 
+import pytest
 from sqlalchemy import select
 
 from beamaudit.api.pipeline import Pipeline
@@ -70,12 +71,10 @@ def _store(store, events: list[ExposureEvent], sop: str = "1.2.3.100") -> list[i
 
 def _one_by_one(session, row: m.ExposureEventRow):
     """The figures of ``row`` from the model called for this one event (no store, no bulk)."""
-    from beamaudit.api.reconstruct import _filters
+    from beamaudit.api.reconstruct import _event_beam
 
     room = session.get(m.Room, row.room_id)
-    beam = _BeamCache().get(
-        kvp_kv=row.kvp_kv, filters=_filters(room, row, None), room=room, calibration=None
-    )
+    beam = _event_beam(row, room, None, _BeamCache())
     return dose_from_beam(
         beam,
         exposure_mas=row.exposure_mas,
@@ -183,3 +182,131 @@ def test_a_trail_stored_whole_is_returned_as_it_is(store) -> None:
             "dap_gy_cm2": 0.1,
             "steps": [],
         }
+
+
+# -- distances by their IOD's definition, the table, and what was assumed -------------------------
+# Hand-worked examples from the DICOM definitions: Distance Source to Patient (0018,1111) is the
+# distance from the source to the table, support or bucky side nearest the patient in DX, CR and
+# MG images (PS3.3 C.8.11.7, DX Positioning) and from the source to the isocentre in XA and XRF
+# images (PS3.3 C.8.7.5 XA Positioner, read in a standard excerpt; C.8.7.6 XRF Positioner, from
+# memory). With the patient taken as centred on the isocentre the entrance surface lies half a
+# thickness before it: FSD = 765 - 220 / 2 = 655 mm (not 765 - 220 = 545 mm, which would make the
+# incident air kerma (655/545)^2 = 1.44 times too high). Under-couch tubes see the table top and
+# mattress (tests/model/test_patient_support.py for the physics).
+
+
+def _reconstructed(store, event, sop: str, **room_settings) -> tuple[m.ExposureEventRow, dict]:
+    ids = _store(store, [event], sop)
+    if room_settings:
+        with store.session_factory.begin() as s:
+            room = s.get(m.Room, s.get(m.ExposureEventRow, ids[0]).room_id)
+            for name, value in room_settings.items():
+                setattr(room, name, value)
+    reconstruct_events(store.session_factory, ids)
+    with store.session_factory() as s:
+        row = s.get(m.ExposureEventRow, ids[0])
+        s.expunge(row)
+        return row, trail_for_event(s, s.merge(row)) or {}
+
+
+def _fluoro(sop: str, modality: str, **kw):
+    return _event(
+        sop,
+        0,
+        modality=modality,
+        source_to_patient_mm=765.0,
+        body_part_thickness_mm=220.0,
+        sid_mm=1100.0,
+        field_width_mm=200.0,
+        field_height_mm=200.0,
+        provenance={"source_to_patient_mm": "(0018,1111) DistanceSourceToPatient"},
+        **kw,
+    )
+
+
+@pytest.mark.parametrize("modality", ["XA", "RF"])
+def test_xa_and_xrf_distance_source_to_patient_is_to_the_isocentre(store, modality: str) -> None:
+    row, trail = _reconstructed(store, _fluoro("1.2.3.31", modality), "1.2.3.31")
+    assert row.recon_status == "ok"
+    assert row.recon_fsd_mm == pytest.approx(765.0 - 220.0 / 2)  # 655 mm
+    fsd_steps = [s for s in trail["figures"]["fsd_mm"]["trail"] if s["quantity"] == "fsd_mm"]
+    assert fsd_steps[-1]["equation"] == "FSD = d_iso - t/2"
+    assert "source to isocentre in XA and XRF images" in fsd_steps[-1]["source"]
+    assert "patient taken as centred on the isocentre" in trail["assumptions"]
+
+
+def test_dx_distance_source_to_patient_stays_the_table_side(store) -> None:
+    event = _event(
+        "1.2.3.40", 0, source_to_patient_mm=1000.0, body_part_thickness_mm=220.0,
+        provenance={"source_to_patient_mm": "(0018,1111) DistanceSourceToPatient"},
+    )  # fmt: skip
+    row, _ = _reconstructed(store, event, "1.2.3.40")
+    assert row.recon_fsd_mm == pytest.approx(1000.0 - 220.0)
+
+
+def test_an_xa_room_that_does_not_say_gets_the_default_table(store) -> None:
+    row, trail = _reconstructed(store, _fluoro("1.2.3.50", "XA"), "1.2.3.50")
+    transmission = trail["table_transmission"]
+    assert 0.6 < transmission < 0.9
+    # K_a,i = Y P_It (1 m / FSD)^2 T, by hand from the trail's own numbers
+    by_hand = trail["output_ugy_per_mas_1m"] * 4.0 * (1000.0 / 655.0) ** 2 / 1000 * transmission
+    assert row.recon_incident_air_kerma_mgy == pytest.approx(by_hand, rel=1e-9)
+    notes = " ".join(trail["assumptions"])
+    assert "tube taken as below the table (the usual for XA" in notes
+    assert "table top and mattress taken as 1.5 mm Al" in notes
+
+
+def test_room_settings_for_the_table(store) -> None:
+    measured, trail = _reconstructed(
+        store, _fluoro("1.2.3.60", "XA"), "1.2.3.60", tube_side="below", table_transmission=0.8
+    )
+    assert trail["table_transmission"] == 0.8
+    assert not any("tube taken as below" in a for a in trail["assumptions"])
+    over, trail_over = _reconstructed(
+        store, _fluoro("1.2.3.61", "RF", station_name="RF-OVER"), "1.2.3.61", tube_side="above"
+    )
+    assert trail_over["table_transmission"] is None
+    assert over.recon_incident_air_kerma_mgy == pytest.approx(
+        measured.recon_incident_air_kerma_mgy / 0.8 * over.recon_output_ugy_per_mas_1m
+        / measured.recon_output_ugy_per_mas_1m, rel=1e-9
+    )  # fmt: skip
+    _, trail_layers = _reconstructed(
+        store, _fluoro("1.2.3.62", "XA", station_name="XA-LAYERS"), "1.2.3.62",
+        table_filtration=[{"material": "aluminium", "thickness_mm": 0.8}],
+    )  # fmt: skip
+    # 0.8 mm Al of table and mattress transmit more than the 1.5 mm Al default
+    _, trail_default = _reconstructed(
+        store, _fluoro("1.2.3.63", "XA", station_name="XA-D"), "1.2.3.63"
+    )
+    assert trail_layers["table_transmission"] > trail_default["table_transmission"]
+    assert not any("no room setting" in a for a in trail_layers["assumptions"])
+
+
+def test_default_inherent_filtration_before_added_filters_is_said(store) -> None:
+    # the event records an added 1 mm Al; the room has no filtration configured: the model puts
+    # the IEC 60601-1-3 minimum in front of it, and says so (it changes every figure)
+    row, trail = _reconstructed(store, _event("1.2.3.70", 0), "1.2.3.70")
+    assert row.recon_status == "ok"
+    assert any(
+        "the room has no filtration configured: 2.5 mm Al" in a for a in trail["assumptions"]
+    )
+    steps = trail["figures"]["incident_air_kerma_mgy"]["trail"]
+    assert any(s["assumed"] and "no filtration configured" in (s["note"] or "") for s in steps)
+
+
+def test_a_room_with_filtration_assumes_nothing_about_it(store) -> None:
+    row, trail = _reconstructed(
+        store, _event("1.2.3.71", 0, station_name="RAD-FILTERED"), "1.2.3.71",
+        filtration=[{"material": "aluminium", "thickness_mm": 2.7}],
+    )  # fmt: skip
+    assert row.recon_status == "ok"
+    assert not any("filtration" in a for a in trail["assumptions"])
+
+
+def test_trail_says_where_b_comes_from(store) -> None:
+    _, trail = _reconstructed(store, _event("1.2.3.80", 0, station_name="RAD-B"), "1.2.3.80")
+    assert "beamaudit Monte Carlo backscatter kernels" in trail["backscatter_factor_source"]
+    assert (
+        "weighted by this beam's incident air-kerma spectrum" in trail["backscatter_factor_source"]
+    )
+    assert trail["backscatter_factor_standard_uncertainty"] > 0

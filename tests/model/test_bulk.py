@@ -21,8 +21,13 @@ from hypothesis import HealthCheck, given, settings
 from hypothesis import strategies as st
 
 import beamaudit.model as model
-from beamaudit.model.backscatter import backscatter_estimate, backscatter_estimates
+from beamaudit.model.backscatter import (
+    backscatter_estimate,
+    backscatter_estimates,
+    load_backscatter_table,
+)
 from beamaudit.model.bulk import BulkDose, dose_from_beams
+from beamaudit.model.dose import off_axis_factor
 from beamaudit.model.errors import ModelError
 from beamaudit.model.exposure import BeamInputs, ExposureDose, dose_from_beam
 from beamaudit.model.geometry import GeometryInputs, resolve_geometry
@@ -45,6 +50,11 @@ GEOMETRY = GeometryInputs(
     field_width_mm=300.0,
     field_height_mm=300.0,
 )
+
+
+#: the 30 x 30 cm field of GEOMETRY at 1 m: its mean kerma over its axis kerma (off-axis
+#: inverse-square law; off_axis_factor is checked by quadrature in test_dose.py)
+F30 = float(off_axis_factor(field_width_cm=30.0, field_height_cm=30.0, distance_mm=1000.0))
 FIGURES = (
     ("dap", "dap_gy_cm2", "dap_standard_uncertainty_gy_cm2"),
     (
@@ -64,6 +74,14 @@ FIGURES = (
 )
 FLOAT_ARRAYS = (*(name for _, v, u in FIGURES for name in (v, u)), "hvl1_mm_al")
 FLOAT_ARRAYS = (*FLOAT_ARRAYS, "output_ugy_per_mas_1m")
+
+
+def by_hvl_cell(hvl_mm_al: float, side_cm: float) -> float:
+    """A cell of the shipped backscatter table by HVL (Monte Carlo kernels)."""
+    table = load_backscatter_table("soft_tissue_mc")
+    i = int(np.flatnonzero(table.hvl_mm_al == hvl_mm_al)[0])
+    j = int(np.flatnonzero(table.field_side_cm == side_cm)[0])
+    return float(table.factors[i, j])
 
 
 def beam(**changes: object) -> BeamInputs:
@@ -125,23 +143,26 @@ def test_worked_example_by_hand() -> None:
     # FSD = SID - gap - thickness = 1000 - 50 - 200 = 750 mm
     # inverse-square law, IAEA TRS 457 (2007) §7:
     #   K_a,i = Y(1 m) · P_It · (1 m / FSD)² = 50 µGy/mAs · 10 mAs · (1000/750)² = 0.888889 mGy
-    # ICRU Report 74 (2005): P_KA = K(d) · A(d) at the detector plane
-    #   = 50 · 10 · (1000/1000)² µGy · 900 cm² = 0.5 mGy · 900 cm² = 0.45 Gy·cm²
-    # K_a,e = K_a,i · B (ICRU 74; IAEA TRS 457), B(3.0 mm Al, 22.5 cm square) midway between the
-    #   shipped cells 1.37 (20 cm) and 1.38 (25 cm) = 1.375 (from memory, IPEM Report 88 table)
+    # ICRU Report 74 (2005): P_KA = K(d) · A(d) · f at the detector plane
+    #   = 50 · 10 · (1000/1000)² µGy · 900 cm² · f = 0.5 mGy · 900 cm² · f = 0.45 Gy·cm² · f,
+    #   f the field's mean kerma over its axis kerma (off-axis inverse-square law)
+    # K_a,e = K_a,i · B (ICRU 74; IAEA TRS 457); a beam without its spectrum takes B from the
+    #   shipped table by HVL (beamaudit's Monte Carlo kernels): B(3.0 mm Al, 22.5 cm square)
+    #   midway between the cells of the 20 and 25 cm columns
     # D = K_a,e · 1.06 (tissue/air ratio as given)
+    b = by_hvl_cell(3.0, 20.0) / 2 + by_hvl_cell(3.0, 25.0) / 2
     bulk = dose_from_beams([BEAM], exposure_mas=[10.0], geometries=[GEOMETRY])
     k_i = 50.0 * 10.0 * (1000.0 / 750.0) ** 2 * 1e-3
     assert bulk.fsd_mm[0] == 750.0
     assert bulk.incident_air_kerma_mgy[0] == pytest.approx(0.888889, rel=1e-6)
-    assert bulk.dap_gy_cm2[0] == pytest.approx(0.45, rel=1e-12)
-    assert bulk.backscatter_factor[0] == pytest.approx(1.375, rel=1e-12)
-    assert bulk.esak_mgy[0] == pytest.approx(k_i * 1.375, rel=1e-12)
-    assert bulk.entrance_dose_mgy[0] == pytest.approx(k_i * 1.375 * 1.06, rel=1e-12)
+    assert bulk.dap_gy_cm2[0] == pytest.approx(0.45 * F30, rel=1e-9)
+    assert bulk.backscatter_factor[0] == pytest.approx(b, rel=1e-12)
+    assert bulk.esak_mgy[0] == pytest.approx(k_i * b, rel=1e-12)
+    assert bulk.entrance_dose_mgy[0] == pytest.approx(k_i * b * 1.06, rel=1e-12)
     # JCGM 100:2008 eq. 12: u(P_KA)/P_KA = sqrt(0.10² (output) + 0.05² (reported field,
     # dose_defaults.csv) + (2 · 0.01)² (recorded SID, exponent -2))
     assert bulk.dap_standard_uncertainty_gy_cm2[0] == pytest.approx(
-        0.45 * math.sqrt(0.10**2 + 0.05**2 + (2 * 0.01) ** 2), rel=1e-12
+        0.45 * F30 * math.sqrt(0.10**2 + 0.05**2 + (2 * 0.01) ** 2), rel=1e-9
     )
     assert bulk.calibrated[0] and bulk.errors == (None,)
     assert math.isnan(bulk.reference_point_air_kerma_mgy[0])
@@ -230,7 +251,7 @@ def test_figures_and_errors_of_one_exposure_do_not_touch_the_others() -> None:
     assert bulk.errors[0] is None
     assert bulk.errors[1] == "exposure_mas must be a positive finite number of mAs, not -1.0"
     assert bulk.errors[2] is not None and "impossible geometry" in bulk.errors[2]
-    assert bulk.dap_gy_cm2[0] == pytest.approx(0.45) and np.isnan(bulk.dap_gy_cm2[1:]).all()
+    assert bulk.dap_gy_cm2[0] == pytest.approx(0.45 * F30) and np.isnan(bulk.dap_gy_cm2[1:]).all()
 
 
 def test_zero_output_is_an_error_message() -> None:
@@ -266,7 +287,7 @@ def test_empty() -> None:
 
 def test_one_mas_for_all_and_misaligned_arguments() -> None:
     bulk = dose_from_beams([BEAM, BEAM], exposure_mas=10.0, geometries=[GEOMETRY, GEOMETRY])
-    assert bulk.dap_gy_cm2.tolist() == pytest.approx([0.45, 0.45])
+    assert bulk.dap_gy_cm2.tolist() == pytest.approx([0.45 * F30, 0.45 * F30])
     with pytest.raises(ModelError, match="2 beams but 1 geometries"):
         dose_from_beams([BEAM, BEAM], exposure_mas=10.0, geometries=[GEOMETRY])
     with pytest.raises(ModelError, match="not one value per beam"):

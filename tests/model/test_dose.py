@@ -177,3 +177,38 @@ def test_compare_reported_keeps_both_and_the_ratio() -> None:
     assert cmp.as_dict()["reported_source"] == "(0018,115E)"
     with pytest.raises(ModelError, match="reported dap"):
         compare_reported(quantity="dap", unit="Gy·cm²", reported=0.0, reconstructed=1.0)
+
+
+# -- the field's mean kerma over its axis kerma (off-axis inverse-square law) ------------------
+# P_KA is the integral of the air kerma over the beam area (ICRU Report 74); a point focus gives
+# a point (x, y) of the plane at distance d the axis kerma times d^2 / (d^2 + x^2 + y^2). Checked
+# against scipy's adaptive two-dimensional quadrature of that definition.
+@pytest.mark.parametrize(
+    ("width_cm", "height_cm", "distance_mm"),
+    [(35.0, 43.0, 1000.0), (35.0, 43.0, 1150.0), (35.0, 43.0, 1800.0), (10.0, 10.0, 1000.0),
+     (24.0, 30.0, 650.0), (40.0, 40.0, 1000.0), (1.0, 60.0, 1000.0)],
+)  # fmt: skip
+def test_off_axis_factor_by_quadrature(
+    width_cm: float, height_cm: float, distance_mm: float
+) -> None:
+    from scipy.integrate import dblquad
+
+    from beamaudit.model.dose import off_axis_factor
+
+    d2 = (distance_mm / 10.0) ** 2
+    a, b = width_cm / 2, height_cm / 2
+    integral, _ = dblquad(lambda y, x: d2 / (d2 + x * x + y * y), -a, a, -b, b, epsabs=1e-12)
+    expected = integral / (width_cm * height_cm)
+    got = off_axis_factor(
+        field_width_cm=width_cm, field_height_cm=height_cm, distance_mm=distance_mm
+    )
+    assert float(got) == pytest.approx(expected, rel=1e-9)
+
+
+def test_off_axis_factor_is_below_one_and_tends_to_one_for_small_fields() -> None:
+    from beamaudit.model.dose import off_axis_factor
+
+    f = off_axis_factor(field_width_cm=[0.1, 10.0, 35.0], field_height_cm=[0.1, 10.0, 43.0],
+                        distance_mm=1000.0)  # fmt: skip
+    assert f[0] == pytest.approx(1.0, abs=1e-6)
+    assert 1.0 > f[1] > f[2] > 0.97

@@ -13,6 +13,8 @@ import math
 
 import pytest
 
+from beamaudit.model.backscatter import load_backscatter_table
+from beamaudit.model.dose import off_axis_factor
 from beamaudit.model.errors import ModelError
 from beamaudit.model.exposure import BeamInputs, compute_exposure_dose, dose_from_beam
 from beamaudit.model.geometry import GeometryInputs
@@ -36,22 +38,33 @@ GEOMETRY = GeometryInputs(
 )
 
 
+#: the 30 x 30 cm field of GEOMETRY at 1 m: its mean kerma over its axis kerma (off-axis
+#: inverse-square law; off_axis_factor is checked by quadrature in test_dose.py)
+F30 = float(off_axis_factor(field_width_cm=30.0, field_height_cm=30.0, distance_mm=1000.0))
+
+
 def test_chain_by_hand() -> None:
     # FSD = 1000 - 50 - 200 = 750 mm
     # K_a,i = 50 µGy/mAs · 10 mAs · (1000/750)² = 888.89 µGy = 0.88889 mGy
-    # field 30 x 30 cm at 1000 mm -> 22.5 x 22.5 cm at 750 mm; B(3.0 mm Al, 22.5 cm) = midway
-    # between 1.37 (20 cm) and 1.38 (25 cm) = 1.375
-    # K_a,e = 0.88889 · 1.375 = 1.22222 mGy; D = 1.22222 · 1.06 = 1.29556 mGy
-    # P_KA = K(1000 mm) · A(1000 mm) = 0.5 mGy · 900 cm² = 450 mGy·cm² = 0.45 Gy·cm²
+    # field 30 x 30 cm at 1000 mm -> 22.5 x 22.5 cm at 750 mm; a beam given without its
+    # spectrum takes B(3.0 mm Al, 22.5 cm) from the shipped table by HVL (beamaudit's Monte
+    # Carlo kernels), midway between its 20 cm and 25 cm cells
+    # K_a,e = 0.88889 · B mGy; D = K_a,e · 1.06
+    # P_KA = K(1000 mm) · A(1000 mm) · f = 0.5 mGy · 900 cm² · f = 0.45 Gy·cm² · f, f the
+    # field's mean kerma over its axis kerma (off-axis inverse-square law, ICRU 74's integral)
+    table = load_backscatter_table("soft_tissue_mc")
+    row = list(table.hvl_mm_al).index(3.0)
+    b = (table.factors[row, list(table.field_side_cm).index(20.0)]
+         + table.factors[row, list(table.field_side_cm).index(25.0)]) / 2  # fmt: skip
     r = dose_from_beam(BEAM, exposure_mas=10.0, geometry=GEOMETRY)
     assert r.fsd.value == 750.0
     assert r.incident_air_kerma.value == pytest.approx(0.888889, rel=1e-6)
-    assert r.backscatter_factor is not None and r.backscatter_factor.value == pytest.approx(1.375)
-    assert r.esak is not None and r.esak.value == pytest.approx(1.222222, rel=1e-6)
+    assert r.backscatter_factor is not None and r.backscatter_factor.value == pytest.approx(b)
+    assert r.esak is not None and r.esak.value == pytest.approx(0.888889 * b, rel=1e-6)
     assert r.entrance_dose is not None and r.entrance_dose.value == pytest.approx(
-        1.295556, rel=1e-6
+        0.888889 * b * 1.06, rel=1e-6
     )
-    assert r.dap.value == pytest.approx(0.45)
+    assert r.dap.value == pytest.approx(0.45 * F30, rel=1e-9)
     assert r.geometry.entrance_field_side_cm == pytest.approx(22.5)
 
 
@@ -105,7 +118,7 @@ def test_reported_values_are_kept_beside_the_reconstruction() -> None:
         reported_source="image header",
     )
     by = {c.quantity: c for c in r.comparisons}
-    assert by["dap_gy_cm2"].ratio == pytest.approx(0.5 / 0.45)
+    assert by["dap_gy_cm2"].ratio == pytest.approx(0.5 / (0.45 * F30))
     assert by["dap_gy_cm2"].reported_source == "image header"
     assert by["incident_air_kerma_mgy"].ratio == pytest.approx(0.8 / 0.888889, rel=1e-6)
     # K_a,r at 700 mm: 0.5 mGy · (1000/700)² = 1.020408 mGy (inverse-square law, by hand)
@@ -129,7 +142,8 @@ def test_reference_point_without_distance_is_noted() -> None:
 
 
 def test_low_hvl_leaves_esak_empty_with_a_reason() -> None:
-    soft = BeamInputs(**{**BEAM.__dict__, "hvl1_mm_al": 0.5})
+    # below the table by HVL (from 0.3 mm Al) a beam without its spectrum gets no B
+    soft = BeamInputs(**{**BEAM.__dict__, "hvl1_mm_al": 0.2})
     r = dose_from_beam(soft, exposure_mas=10.0, geometry=GEOMETRY)
     assert r.esak is None and r.entrance_dose is None and r.backscatter_factor is None
     assert r.incident_air_kerma.value > 0

@@ -55,3 +55,15 @@ def test_export_csv_and_json_agree_and_carry_no_patient_identifier(scanned, caps
 def test_export_bad_options(scanned, capsys) -> None:
     assert main(["export", "events", "--format", "xml"]) == 2
     assert main(["export", "events", "--since", "yesterday"]) == 2
+
+
+def test_explain_shows_b_with_its_source_and_uncertainty(scanned, capsys) -> None:
+    assert main(["explain", "1", "--json"]) == 0
+    why = json.loads(capsys.readouterr().out)["why"]
+    assert why["backscatter_factor"] > 1.0
+    assert why["backscatter_factor_standard_uncertainty"] > 0
+    assert "Monte Carlo backscatter kernels" in why["backscatter_factor_source"]
+    assert main(["explain", "1"]) == 0
+    text = " ".join(capsys.readouterr().out.split())
+    assert "backscatter factor B = " in text and "one standard uncertainty" in text
+    assert "Monte Carlo backscatter kernels" in text
