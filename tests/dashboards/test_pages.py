@@ -424,7 +424,8 @@ def test_physicists_get_triage_forms_that_patch_the_api(pages: dict[str, str]) -
     row = html[html.index('id="flag-122"') :].split("</tr>")[0]  # acknowledged already
     assert re.search(r'value="acknowledged" disabled', row)
     assert re.search(r'value="closed" checked', row)
-    assert "Hip prosthesis: AEC under metal" in row  # the note so far, to edit
+    assert "Hip prosthesis: AEC under metal" in row  # the note so far, beside the reason
+    assert '<textarea name="note" rows="3" maxlength="4000"></textarea>' in row  # a new note
     for verb in ("Acknowledge", "Close", "Reopen"):
         assert verb in _Page(html).words
 
