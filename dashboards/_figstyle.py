@@ -23,6 +23,7 @@ __all__ = [
     "legend_below_when_long",
     "no_data",
     "series",
+    "series_dash",
     "style",
 ]
 
@@ -34,10 +35,19 @@ FONT = "DejaVu Sans, Verdana, sans-serif"
 # Series colours, in order (Okabe-Ito, without yellow, which is too light on white).
 SERIES = ("blue", "orange", "bluish_green", "reddish_purple", "vermillion", "sky_blue", "black")
 SYMBOLS = ("circle", "square", "diamond", "triangle-up", "cross", "star", "hexagon")
+DASHES = ("solid", "dash", "dot", "dashdot")
 
 
 def series(i: int) -> tuple[str, str]:
-    return OKABE_ITO[SERIES[i % len(SERIES)]], SYMBOLS[i % len(SYMBOLS)]
+    """Colour and marker of series ``i``: no two of the first 49 series share both (the marker
+    moves on by one each time the colours start again)."""
+    n = len(SERIES)
+    return OKABE_ITO[SERIES[i % n]], SYMBOLS[(i + i // n) % len(SYMBOLS)]
+
+
+def series_dash(i: int) -> str:
+    """Line style of series ``i``: solid for the first round of colours, then dashed, dotted..."""
+    return DASHES[(i // len(SERIES)) % len(DASHES)]
 
 
 #: The look of every axis: light grid, ink line and outside ticks, room for long labels.

@@ -3,6 +3,7 @@
 from __future__ import annotations
 
 import math
+from collections.abc import Mapping
 
 import pandas as pd
 import plotly.graph_objects as go
@@ -12,11 +13,12 @@ from beamaudit.dashboards._figstyle import (
     legend_below_when_long,
     no_data,
     series,
+    series_dash,
     style,
 )
 from beamaudit.dashboards.errors import TableError
 from beamaudit.dashboards.tables import ROOM_HISTORY, TableLike
-from beamaudit.dashboards.wording import OKABE_ITO, quantity_short
+from beamaudit.dashboards.wording import OKABE_ITO, exam_name, quantity_short
 
 __all__ = ["LOG_AXIS_SPAN", "build_dap_ratio_history", "build_room_history"]
 
@@ -34,11 +36,14 @@ def build_room_history(
     room: str | None = None,
     log_y: bool | None = None,
     title: str | None = None,
+    exam_names: Mapping[str, str] | None = None,
 ) -> go.Figure:
     """Monthly medians of one quantity in one room, one line per examination type.
 
     Months where the review detected a change are marked with a large open
-    star on top of the line's own marker, and named in the hover text.
+    star on top of the line's own marker, and named in the hover text. No two
+    lines share colour and marker (and beyond seven lines, the line style
+    changes too).
 
     Parameters
     ----------
@@ -54,15 +59,22 @@ def build_room_history(
         share the axis).
     title : str, optional
         Figure title.
+    exam_names : mapping, optional
+        Examination code -> the catalogue's name (lines are named by it).
 
     Returns
     -------
     plotly.graph_objects.Figure
-        One line trace per examination type, then one marker trace named
-        ``"Change detected"`` if any change point exists.
+        One line trace per examination type (by name), then one marker trace
+        named ``"Change detected"`` if any change point exists.
     """
     return _room_history(
-        ROOM_HISTORY.validate(history), quantity=quantity, room=room, log_y=log_y, title=title
+        ROOM_HISTORY.validate(history),
+        quantity=quantity,
+        room=room,
+        log_y=log_y,
+        title=title,
+        exam_names=exam_names,
     )
 
 
@@ -73,9 +85,11 @@ def _room_history(
     room: str | None = None,
     log_y: bool | None = None,
     title: str | None = None,
+    exam_names: Mapping[str, str] | None = None,
 ) -> go.Figure:
     """:func:`build_room_history` on a ``ROOM_HISTORY`` table already validated."""
     rows = table[table["quantity"] == quantity].sort_values("month")
+    rows = rows.assign(exam_type=rows["exam_type"].map(lambda e: exam_name(e, exam_names)))
     default = f"{room + ': ' if room else ''}monthly median {quantity_short(quantity)}"
     fig = go.Figure()
     style(
@@ -86,7 +100,8 @@ def _room_history(
     )
     if rows.empty:
         return no_data(fig, "No monthly medians")
-    for i, (exam_type, part) in enumerate(rows.groupby("exam_type", sort=True)):
+    ordered = sorted(rows.groupby("exam_type", sort=False), key=lambda item: str(item[0]).lower())
+    for i, (exam_type, part) in enumerate(ordered):
         colour, symbol = series(i)
         fig.add_trace(
             go.Scatter(
@@ -94,7 +109,7 @@ def _room_history(
                 y=list(part["median"]),
                 mode="lines+markers",
                 name=str(exam_type),
-                line={"color": colour, "width": 2},
+                line={"color": colour, "width": 2, "dash": series_dash(i)},
                 marker={"symbol": symbol, "color": colour, "size": 7},
                 customdata=list(part["n"]),
                 hovertemplate=(
@@ -164,7 +179,11 @@ def _monthly_band(rows: pd.DataFrame) -> pd.DataFrame:
 
 
 def build_dap_ratio_history(
-    history: TableLike, *, room: str | None = None, title: str | None = None
+    history: TableLike,
+    *,
+    room: str | None = None,
+    title: str | None = None,
+    exam_names: Mapping[str, str] | None = None,
 ) -> go.Figure:
     """The median ratio of reported to reconstructed DAP per month, with its band.
 
@@ -193,11 +212,17 @@ def build_dap_ratio_history(
     TableError
         The table breaks its contract, or the band differs within a month.
     """
-    return _dap_ratio_history(ROOM_HISTORY.validate(history), room=room, title=title)
+    return _dap_ratio_history(
+        ROOM_HISTORY.validate(history), room=room, title=title, exam_names=exam_names
+    )
 
 
 def _dap_ratio_history(
-    table: pd.DataFrame, *, room: str | None = None, title: str | None = None
+    table: pd.DataFrame,
+    *,
+    room: str | None = None,
+    title: str | None = None,
+    exam_names: Mapping[str, str] | None = None,
 ) -> go.Figure:
     """:func:`build_dap_ratio_history` on a ``ROOM_HISTORY`` table already validated."""
     rows = table[table["dap_ratio_median"].notna()].sort_values("month")
@@ -207,7 +232,7 @@ def _dap_ratio_history(
         fig,
         title=title if title is not None else default,
         x_title="Month",
-        y_title="Reported ÷ reconstructed DAP (1)",
+        y_title="Reported ÷ reconstructed DAP",
     )
     if rows.empty:
         return no_data(fig, "No DAP comparisons")
@@ -244,6 +269,7 @@ def _dap_ratio_history(
     )
     for i, (name, part) in enumerate(groups):
         colour, symbol = series(i)
+        name = exam_name(str(name), exam_names)
         fig.add_trace(
             go.Scatter(
                 x=list(part["month"]),

@@ -6,22 +6,27 @@ Package-internal, shared by :mod:`beamaudit.dashboards.pages` and
 
 from __future__ import annotations
 
+from collections.abc import Mapping
 from typing import Any
 
 import pandas as pd
 
 from beamaudit.dashboards import _review_figures, _web
-from beamaudit.dashboards.figures import EVENT_QUANTITIES
+from beamaudit.dashboards.distributions import ExamTypes
+from beamaudit.dashboards.rounding import format_level, format_number
 from beamaudit.dashboards.wording import (
+    FLAG_KIND_WORDS,
     FLAG_STATUS_WORDS,
     LEVEL_KIND_WORDS,
+    SEVERITY_WORDS,
     STATUS_LOOK,
+    exam_name,
     quantity_short,
-    quantity_unit,
+    words_for,
 )
 
 __all__ = [
-    "distribution_blocks",
+    "distribution_block",
     "flag_rows",
     "group_rows",
     "level_sets",
@@ -32,12 +37,13 @@ __all__ = [
 
 
 def comparison(row: pd.Series) -> dict[str, Any]:
-    """One level a group is compared with, in words."""
+    """One level a group is compared with, in words: ``"National level 10 mGy"`` and, when the
+    review gave one, the ratio (``"0.43×"``)."""
     if pd.isna(row["reference_level"]):
-        level = "–"
+        level = ""
     else:
-        kind = {"local": "Local", "national": "National"}.get(row["level_kind"], "Level")
-        level = f"{kind} {_web.fmt(row['reference_level'])} {quantity_unit(row['quantity'])}"
+        kind = LEVEL_KIND_WORDS.get(row["level_kind"], "Level")
+        level = f"{kind} {format_level(row['reference_level'], row['quantity'])}"
     return {
         "level": level,
         "level_set": row["level_set"] or "",
@@ -47,7 +53,9 @@ def comparison(row: pd.Series) -> dict[str, Any]:
     }
 
 
-def group_rows(table: pd.DataFrame, period: str | None) -> list[dict[str, Any]]:
+def group_rows(
+    table: pd.DataFrame, period: str | None, names: Mapping[str, str] | None = None
+) -> list[dict[str, Any]]:
     """One row per (room, exam_type, quantity), its comparisons with each level inside.
 
     The row's status is its most urgent comparison's; its ratio the largest.
@@ -66,6 +74,7 @@ def group_rows(table: pd.DataFrame, period: str | None) -> list[dict[str, Any]]:
                 "room": room,
                 "room_href": _web.room_href(room),
                 "exam_type": exam,
+                "exam_name": exam_name(exam, names),
                 "exam_href": _web.distributions_href(
                     exam_type=exam, quantity=quantity, period=period
                 ),
@@ -73,9 +82,11 @@ def group_rows(table: pd.DataFrame, period: str | None) -> list[dict[str, Any]]:
                 "quantity_label": quantity_short(quantity),
                 "n": int(first["n"]),
                 "n_standard": int(first["n_standard"]),
-                "median": _web.fmt(first["median"]),
+                "median": format_number(first["median"]),
                 "median_value": _web.sort_value(first["median"]),
-                "quartiles": f"{_web.fmt(first['q1'])} – {_web.fmt(first['q3'])}",
+                "quartiles": ""
+                if pd.isna(first["q1"]) and pd.isna(first["q3"])
+                else f"{format_number(first['q1'])} – {format_number(first['q3'])}",
                 "comparisons": comparisons,
                 "ratio": "–" if pd.isna(ratio) else f"{ratio:.2f}",
                 "ratio_value": _web.sort_value(ratio),
@@ -98,79 +109,103 @@ def level_sets(table: pd.DataFrame) -> list[tuple[str, str]]:
 
 
 def status_counts(rows: list[dict[str, Any]]) -> list[tuple[str, int]]:
-    """How many groups (rows of :func:`_group_rows`) have each status, most urgent first."""
+    """How many groups (rows of :func:`group_rows`) have each status, most urgent first."""
     counts: dict[str, int] = {}
     for row in rows:
         counts[row["status"]] = counts.get(row["status"], 0) + 1
     return sorted(counts.items(), key=lambda item: STATUS_LOOK[item[0]].rank)
 
 
-def distribution_blocks(
+def distribution_block(
     events: pd.DataFrame,
     levels: pd.DataFrame | None,
     *,
-    exam_type: str | None,
-    quantity: str | None,
+    exam_type: str,
+    quantity: str,
+    catalogue: ExamTypes,
     log_y: bool,
     static: bool = False,
     width_px: int | None = None,
-    id_prefix: str = "dist",
-) -> list[tuple[str, str, _web.FigureBlock]]:
-    blocks: list[tuple[str, str, _web.FigureBlock]] = []
-    exam_types = sorted(events["exam_type"].unique()) if exam_type is None else [exam_type]
-    for exam in exam_types:
-        rows = events[events["exam_type"] == exam]
-        if quantity is not None:
-            quantities = [quantity]
-        elif levels is not None and (levels["exam_type"] == exam).any():
-            # the quantities the review covers for this examination
-            covered = set(levels.loc[levels["exam_type"] == exam, "quantity"])
-            quantities = [q for q in EVENT_QUANTITIES if q in covered]
-        else:
-            quantities = list(EVENT_QUANTITIES)
-        for q in quantities:
-            if q not in rows.columns or not rows[q].notna().any():
-                continue
-            fig = _review_figures._distribution(
-                rows, levels, quantity=q, exam_type=exam, log_y=log_y
-            )
-            if width_px is not None:
-                fig.update_layout(width=width_px)
-            fig_id = f"{id_prefix}-{len(blocks)}"
-            blocks.append((exam, q, _web.figure_block(fig, fig_id, static=static)))
-    return blocks
+    fig_id: str = "dist-0",
+) -> _web.FigureBlock | None:
+    """The figure block of one distribution, or ``None`` when it has no value to draw."""
+    rows = events[events["exam_type"] == exam_type]
+    if quantity not in rows.columns or not rows[quantity].notna().any():
+        return None
+    fig = _review_figures._distribution(
+        rows,
+        levels,
+        quantity=quantity,
+        exam_type=exam_type,
+        log_y=log_y,
+        exam_name=catalogue.name(exam_type),
+        per_study=catalogue.study_rule(exam_type, quantity),
+    )
+    if width_px is not None:
+        fig.update_layout(width=width_px)
+    return _web.figure_block(fig, fig_id, static=static)
 
 
-def flag_rows(table: pd.DataFrame, **only: str | None) -> list[dict[str, Any]]:
+def _flag_link(row: pd.Series, period: str | None) -> tuple[str, str]:
+    """Where a flag's subject can be seen: (words, path)."""
+    if row["study_uid"]:
+        return "the exam", _web.exam_href(row["study_uid"])
+    if row["kind"] == "unmapped_events":
+        return "the unmapped protocols", _web.unmapped_href(period or row["period"])
+    return "", ""
+
+
+def flag_rows(
+    table: pd.DataFrame, names: Mapping[str, str] | None = None, **only: str | None
+) -> list[dict[str, Any]]:
+    """Display rows of a ``FLAGS`` table (filtered by the ``only`` columns' values), open first."""
     for key, value in only.items():
         if value:
             table = table[table[key] == value]
     status_order = {"open": 0, "acknowledged": 1, "closed": 2}
-    table = table.assign(_order=table["status"].map(status_order)).sort_values(
-        ["_order", "period", "room", "kind"],
-        ascending=[True, False, True, True],
+    severity_order = {"action": 0, "warning": 1, "info": 2}
+    table = table.assign(
+        _order=table["status"].map(status_order),
+        _severity=table["severity"].map(lambda s: severity_order.get(s, 1)),
+    ).sort_values(
+        ["_order", "period", "_severity", "room", "kind"],
+        ascending=[True, False, True, True, True],
         na_position="last",
     )
-    return [
-        {
-            "kind": r["kind"],
-            "severity": r["severity"],
-            "reason": r["reason"],
-            "room": r["room"] or "",
-            "room_href": _web.room_href(r["room"]) if r["room"] else "",
-            "exam_type": r["exam_type"] or "",
-            "period": r["period"],
-            "status": r["status"],
-            "status_words": FLAG_STATUS_WORDS[r["status"]],
-            "study_uid": r["study_uid"] or "",
-            "exam_href": _web.exam_href(r["study_uid"]) if r["study_uid"] else "",
-            "event_id": r["event_id"] or "",
-            "note": (r["note"] if "note" in r and isinstance(r["note"], str) else "") or "",
-            "changed": (r["changed"] if "changed" in r and isinstance(r["changed"], str) else "")
-            or "",
-        }
-        for _, r in table.iterrows()
-    ]
+    out = []
+    for _, r in table.iterrows():
+        link_words, link = _flag_link(r, None)
+        run_id, flag_id = r.get("run_id"), r.get("flag_id")
+        out.append(
+            {
+                "flag_id": flag_id or "",
+                "kind": r["kind"],
+                "kind_words": words_for(FLAG_KIND_WORDS, r["kind"]),
+                "severity": r["severity"],
+                "severity_words": words_for(SEVERITY_WORDS, r["severity"]),
+                "reason": r["reason"],
+                "room": r["room"] or "",
+                "room_href": _web.room_href(r["room"]) if r["room"] else "",
+                "exam_type": r["exam_type"] or "",
+                "exam_name": exam_name(r["exam_type"], names, empty=""),
+                "period": r["period"],
+                "status": r["status"],
+                "status_words": FLAG_STATUS_WORDS[r["status"]],
+                "study_uid": r["study_uid"] or "",
+                "exam_href": _web.exam_href(r["study_uid"]) if r["study_uid"] else "",
+                "link_words": link_words,
+                "link": link,
+                "event_id": r["event_id"] or "",
+                "note": _text(r.get("note")),
+                "changed": _text(r.get("changed")),
+                "triage_href": _web.triage_href(run_id, flag_id) if run_id and flag_id else "",
+            }
+        )
+    return out
+
+
+def _text(value: Any) -> str:
+    return value if isinstance(value, str) else ""
 
 
 def plain(value: Any) -> str:

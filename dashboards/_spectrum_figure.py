@@ -7,8 +7,9 @@ from typing import Any
 
 import plotly.graph_objects as go
 
-from beamaudit.dashboards._figstyle import GRID, INK, style
+from beamaudit.dashboards._figstyle import INK, style
 from beamaudit.dashboards.records import Spectrum, parse_spectrum
+from beamaudit.dashboards.rounding import format_quantity
 from beamaudit.dashboards.wording import OKABE_ITO
 
 __all__ = ["build_spectrum"]
@@ -22,7 +23,7 @@ def build_spectrum(
     kvp_kv: float | None = None,
     title: str | None = None,
 ) -> go.Figure:
-    """The reconstructed photon spectrum, with its HVL and tube output stated.
+    """The reconstructed photon spectrum, with its HVL and tube output in the subtitle.
 
     Parameters
     ----------
@@ -38,7 +39,8 @@ def build_spectrum(
     Returns
     -------
     plotly.graph_objects.Figure
-        One filled line trace; HVL and output in an annotation.
+        One filled line trace; HVL and output in the title's subtitle; the x axis ends a
+        little past the tube voltage.
     """
     spec = spectrum if isinstance(spectrum, Spectrum) else parse_spectrum(spectrum)
     fig = go.Figure()
@@ -62,28 +64,25 @@ def build_spectrum(
     )
     notes = []
     if spec.hvl1_mm_al is not None:
-        notes.append(f"HVL₁ {spec.hvl1_mm_al:.2f} mm Al")
+        notes.append(f"HVL₁ {format_quantity(spec.hvl1_mm_al, 'mm Al')}")
     if spec.output_ugy_per_mas_1m is not None:
-        notes.append(f"Output {spec.output_ugy_per_mas_1m:.3g} µGy/mAs at 1 m")
+        notes.append(f"output {format_quantity(spec.output_ugy_per_mas_1m, 'µGy/mAs at 1 m')}")
     if notes:
-        fig.add_annotation(
-            text="<br>".join(notes),
-            xref="paper",
-            yref="paper",
-            x=0.02,
-            y=0.95,
-            xanchor="left",
-            showarrow=False,
-            align="left",
-            bgcolor="rgba(255,255,255,0.85)",
-            bordercolor=GRID,
+        # beside the title, never over the curve (the K lines stand where a box would go)
+        fig.update_layout(
+            title={"subtitle": {"text": " · ".join(notes), "font": {"size": 12}}}, margin={"t": 84}
         )
     if kvp_kv is not None:
         fig.add_vline(
             x=float(kvp_kv),
             line={"color": INK, "dash": "dot", "width": 1},
-            annotation={"text": f"{kvp_kv:g} kVp", "yanchor": "top", "y": 1.0},
+            annotation={
+                "text": f"{kvp_kv:g} kV",
+                "yanchor": "bottom",
+                "y": 1.0,
+                "xanchor": "right",
+            },
         )
+        fig.update_xaxes(range=[0, float(kvp_kv) * 1.08])
     fig.update_yaxes(rangemode="tozero", exponentformat="power")
-    fig.update_xaxes(rangemode="tozero")
     return fig

@@ -21,10 +21,11 @@ import plotly.graph_objects as go
 
 from beamaudit.dashboards.errors import DashboardError
 from beamaudit.dashboards.tables import PERIOD_PATTERN
-from beamaudit.dashboards.wording import CAUTION, STATUS_LOOK
+from beamaudit.dashboards.wording import CAUTION, STATUS_LOOK, VOCABULARY
 
 __all__ = [
     "ROUTES",
+    "TRIAGE_PATH",
     "FigureBlock",
     "PageContext",
     "check_period",
@@ -35,6 +36,7 @@ __all__ = [
     "figure_text",
     "flags_href",
     "fmt",
+    "ingest_errors_href",
     "period_choices",
     "plotly_js_path",
     "plotly_text",
@@ -43,6 +45,8 @@ __all__ = [
     "room_href",
     "sort_value",
     "static_files",
+    "triage_href",
+    "unmapped_href",
 ]
 
 #: URL paths of the pages, as the API serves them.
@@ -53,6 +57,8 @@ ROUTES: dict[str, str] = {
     "exam": "/exams/{study_uid}",
     "flags": "/flags",
     "report": "/reports/{period}",
+    "ingest_errors": "/ingest-errors",
+    "unmapped": "/unmapped",
     "login": "/login",
 }
 
@@ -60,7 +66,12 @@ _NAV = (
     ("/", "Overview", "overview"),
     ("/distributions", "Distributions", "distributions"),
     ("/flags", "Flags", "flags"),
+    ("/unmapped", "Unmapped protocols", "unmapped"),
+    ("/ingest-errors", "Rejected files", "ingest_errors"),
 )
+
+#: The API path a flag's triage is sent to (``PATCH``, JSON ``{"status": ..., "note": ...}``).
+TRIAGE_PATH = "/api/v1/reviews/{run_id}/flags/{flag_id}"
 
 
 @dataclass(frozen=True)
@@ -128,6 +139,7 @@ def _environment() -> jinja2.Environment:
         lstrip_blocks=True,
     )
     env.globals["status_look"] = STATUS_LOOK
+    env.globals["words"] = VOCABULARY
     return env
 
 
@@ -173,8 +185,24 @@ def flags_href(**filters: str | None) -> str:
 
 
 def distributions_href(**filters: str | None) -> str:
+    """Path of the distributions page, showing ``exam_type``, ``quantity`` of ``period``."""
     query = urlencode({k: v for k, v in filters.items() if v})
     return ROUTES["distributions"] + (f"?{query}" if query else "")
+
+
+def unmapped_href(period: str | None = None) -> str:
+    """Path of the unmapped protocols page (of ``period``)."""
+    return ROUTES["unmapped"] + (f"?{urlencode({'period': period})}" if period else "")
+
+
+def ingest_errors_href() -> str:
+    """Path of the rejected files page."""
+    return ROUTES["ingest_errors"]
+
+
+def triage_href(run_id: str, flag_id: str) -> str:
+    """The API path that triages one flag (``PATCH``)."""
+    return TRIAGE_PATH.format(run_id=quote(run_id, safe=""), flag_id=quote(flag_id, safe=""))
 
 
 def check_period(period: str, what: str = "period") -> str:

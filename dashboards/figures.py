@@ -18,16 +18,13 @@ builder                        table
 =============================  ============================================
 """
 
+from beamaudit.dashboards._heatmap_figure import build_overview_heatmap
 from beamaudit.dashboards._history_figures import (
     LOG_AXIS_SPAN,
     build_dap_ratio_history,
     build_room_history,
 )
-from beamaudit.dashboards._review_figures import (
-    EVENT_QUANTITIES,
-    build_distribution,
-    build_overview_heatmap,
-)
+from beamaudit.dashboards._review_figures import EVENT_QUANTITIES, build_distribution
 from beamaudit.dashboards._skin_figure import build_skin_dose_map
 from beamaudit.dashboards._spectrum_figure import build_spectrum
 

@@ -15,41 +15,68 @@ from __future__ import annotations
 from collections.abc import Mapping, Sequence
 from typing import Any
 
-from beamaudit.dashboards import _history_figures, _rows, _web, figures
+import pandas as pd
+
+from beamaudit.dashboards import _exam_page, _history_figures, _rows, _web, figures
+from beamaudit.dashboards._heatmap_figure import heatmap_key
+from beamaudit.dashboards._intake_pages import render_ingest_errors, render_unmapped
 from beamaudit.dashboards._web import (
     ROUTES,
     PageContext,
     exam_href,
     flags_href,
+    ingest_errors_href,
     plotly_js_path,
     report_href,
     room_href,
     static_files,
+    unmapped_href,
 )
+from beamaudit.dashboards.attention import rank_attention
+from beamaudit.dashboards.distributions import ExamTypes, pick_distribution
 from beamaudit.dashboards.errors import DashboardError
 from beamaudit.dashboards.records import parse_exam
 from beamaudit.dashboards.report import render_committee_report
 from beamaudit.dashboards.tables import EVENTS, FLAGS, GROUPS, LEVELS, ROOM_HISTORY, TableLike
-from beamaudit.dashboards.wording import FLAG_STATUS_WORDS, quantity_label, quantity_short
+from beamaudit.dashboards.wording import (
+    FLAG_KIND_WORDS,
+    FLAG_STATUS_WORDS,
+    SEVERITY_WORDS,
+    STATUS_LOOK,
+    TRIAGE_ACTIONS,
+    exam_name,
+    quantity_label,
+    quantity_short,
+    words_for,
+)
 
 __all__ = [
     "ROUTES",
     "PageContext",
     "exam_href",
     "flags_href",
+    "ingest_errors_href",
     "plotly_js_path",
     "render_committee_report",
     "render_distributions",
     "render_error",
     "render_exam",
     "render_flags",
+    "render_ingest_errors",
     "render_login",
     "render_overview",
     "render_room",
+    "render_unmapped",
     "report_href",
     "room_href",
     "static_files",
+    "unmapped_href",
 ]
+
+#: attention lines shown before "and N more"
+ATTENTION_SHOWN = 8
+#: a room history with more lines than this takes the page's whole width
+_LINES_IN_HALF_CARD = 7
 
 
 # ------------------------------------------------------------------ pages
@@ -60,11 +87,13 @@ def render_overview(
     *,
     period: str,
     periods: Sequence[str] = (),
+    attention: TableLike | None = None,
     open_flags: int | None = None,
     runs: Sequence[Mapping[str, Any]] = (),
+    exam_types: TableLike | None = None,
     context: PageContext | None = None,
 ) -> str:
-    """The period overview (served at ``/``).
+    """The period overview (served at ``/``): what needs attention, the heatmap, the rest.
 
     Parameters
     ----------
@@ -74,11 +103,18 @@ def render_overview(
         The review period shown, ``YYYY-MM``.
     periods : sequence of str
         Periods offered by the period picker (``period`` is always offered).
+    attention : table, optional
+        The ``ATTENTION`` table of ``period``: its open findings, one line each (see
+        :func:`beamaudit.dashboards.attention.attention_from_flags`); ranked here, the first
+        :data:`ATTENTION_SHOWN` listed, the rest counted with a link to the flags. Without it,
+        the page points to the flags list instead.
     open_flags : int, optional
         Number of open flags in the period, linked to the flags list.
     runs : sequence of mappings, optional
         The review runs of the period, listed under the groups: ``id``, ``kind``, ``scope`` (in
         words), ``state`` (in words), ``started_at`` (UTC) and ``record`` (the run shown).
+    exam_types : table, optional
+        The ``EXAM_TYPES`` table: examinations are shown by their catalogue names.
     context : PageContext, optional
         Facility, version, user.
 
@@ -89,13 +125,26 @@ def render_overview(
     """
     _web.check_period(period)
     table = GROUPS.validate(groups)
-    rows = _rows.group_rows(table, period)
+    names = ExamTypes(exam_types).names
+    rows = _rows.group_rows(table, period, names)
+    lines = None
+    if attention is not None:
+        ranked = rank_attention(attention)
+        lines = [
+            {
+                **r,
+                "severity_words": words_for(SEVERITY_WORDS, r["severity"]),
+                "kind_words": words_for(FLAG_KIND_WORDS, r["kind"]),
+            }
+            for r in ranked.to_dict("records")
+        ]
+    levelled = table[table["status"] != "no_level"]
     return _web.render_page(
         "overview.html",
         context=context,
         page_title=f"Review of {period}",
         active="overview",
-        has_figures=not table.empty,
+        has_figures=not levelled.empty,
         period=period,
         periods=_web.period_choices(period, periods),
         rows=rows,
@@ -103,10 +152,15 @@ def render_overview(
         status_counts=_rows.status_counts(rows),
         heatmap=_web.figure_block(
             figures.build_overview_heatmap(
-                table, title="Median ÷ reference level, by room and examination"
+                table, title="Median ÷ reference level, by room and examination", exam_names=names
             ),
             "overview-heatmap",
-        ),
+        )
+        if not levelled.empty
+        else None,
+        key=heatmap_key(),
+        attention=None if lines is None else lines[:ATTENTION_SHOWN],
+        attention_more=0 if lines is None else max(len(lines) - ATTENTION_SHOWN, 0),
         open_flags=open_flags,
         flags_href=flags_href(period=period, status="open"),
         report_href=report_href(period),
@@ -123,26 +177,33 @@ def render_distributions(
     period: str | None = None,
     periods: Sequence[str] = (),
     log_y: bool = False,
+    exam_types: TableLike | None = None,
     context: PageContext | None = None,
 ) -> str:
-    """Distributions per room against the reference levels (served at ``/distributions``).
+    """One distribution per room against the reference levels (served at ``/distributions``).
+
+    The page shows one chart: the reader's choice of examination and quantity, or else the most
+    urgent group's (:func:`beamaudit.dashboards.distributions.pick_distribution`), with a picker
+    for the others. An examination-level type (a fluoroscopy or CT study) shows one value per
+    study, its events aggregated by the catalogue's rule.
 
     Parameters
     ----------
     events : table
-        The ``EVENTS`` table of the period.
+        The ``EVENTS`` table of the period (the chosen examination's events are enough).
     levels : table, optional
-        A ``LEVELS`` table (the ``GROUPS`` table will do).
+        A ``LEVELS`` table (the ``GROUPS`` table will do); it also lists the examinations the
+        picker offers.
     exam_type, quantity : str, optional
-        Show only this examination type / quantity (the filter form's values).
-        Without ``quantity``, each examination shows the quantities ``levels``
-        lists for it (all dose columns present, if it lists none).
+        The examination type (code) and quantity to show (the picker's values).
     period : str, optional
         The period shown (``YYYY-MM``), for the picker.
     periods : sequence of str
         Periods offered by the picker.
     log_y : bool
         Logarithmic dose axes (the form sends ``scale=log`` for this).
+    exam_types : table, optional
+        The ``EXAM_TYPES`` table: names, and which types are judged per examination.
     context : PageContext, optional
         Facility, version, user.
     """
@@ -154,21 +215,36 @@ def render_distributions(
         raise DashboardError(
             f"quantity '{quantity}' is not one of {', '.join(figures.EVENT_QUANTITIES)}"
         )
-    blocks = _rows.distribution_blocks(
-        table, level_table, exam_type=exam_type, quantity=quantity, log_y=log_y
+    catalogue = ExamTypes(exam_types)
+    available = {
+        str(exam): [q for q in figures.EVENT_QUANTITIES if part[q].notna().any()]
+        for exam, part in table.groupby("exam_type", sort=True)
+    }
+    chosen = pick_distribution(
+        level_table, exam_type=exam_type, quantity=quantity, available=available
     )
-    present = [q for q in figures.EVENT_QUANTITIES if table[q].notna().any()]
+    block = None
+    if chosen is not None:
+        block = _rows.distribution_block(
+            table, level_table, exam_type=chosen[0], quantity=chosen[1],
+            catalogue=catalogue, log_y=log_y,
+        )  # fmt: skip
+    exam_choices = _exam_choices(level_table, available, catalogue)
+    chosen_exam, chosen_quantity = chosen if chosen is not None else ("", "")
+    quantities = available.get(chosen_exam) or list(figures.EVENT_QUANTITIES)
     return _web.render_page(
         "distributions.html",
         context=context,
         page_title="Distributions" + (f" of {period}" if period else ""),
         active="distributions",
-        has_figures=bool(blocks),
-        blocks=blocks,
-        exam_types=sorted(table["exam_type"].unique()),
-        quantities=[(q, quantity_short(q)) for q in present],
-        exam_type=exam_type or "",
-        quantity=quantity or "",
+        has_figures=block is not None,
+        block=block,
+        exam_choices=exam_choices,
+        quantities=[(q, quantity_short(q)) for q in quantities],
+        exam_type=chosen_exam,
+        exam_words=catalogue.name(chosen_exam) if chosen_exam else "",
+        quantity=chosen_quantity,
+        per_study=bool(chosen_exam and catalogue.study_rule(chosen_exam, chosen_quantity)),
         period=period or "",
         periods=_web.period_choices(period, periods),
         log_y=log_y,
@@ -178,11 +254,29 @@ def render_distributions(
     )
 
 
+def _exam_choices(
+    levels: pd.DataFrame | None, available: Mapping[str, list[str]], catalogue: ExamTypes
+) -> list[tuple[str, str]]:
+    """The picker's examinations: (code, name marked with its most urgent status's symbol)."""
+    worst: dict[str, int] = {}
+    if levels is not None:
+        for exam, status in zip(levels["exam_type"], levels["status"], strict=True):
+            if status in STATUS_LOOK:
+                worst[exam] = min(worst.get(exam, 9), STATUS_LOOK[status].rank)
+    symbols = {look.rank: look.symbol for look in STATUS_LOOK.values()}
+    codes = sorted(set(available) | set(worst), key=lambda c: catalogue.name(c).lower())
+    return [
+        (c, f"{symbols[worst[c]]} {catalogue.name(c)}" if c in worst else catalogue.name(c))
+        for c in codes
+    ]
+
+
 def render_room(
     room: str,
     history: TableLike,
     *,
     flags: TableLike | None = None,
+    exam_types: TableLike | None = None,
     context: PageContext | None = None,
 ) -> str:
     """A room's history (served at ``/rooms/{room}``).
@@ -195,23 +289,30 @@ def render_room(
         The ``ROOM_HISTORY`` table of this room.
     flags : table, optional
         A ``FLAGS`` table; the room's flags that are not closed are listed.
+    exam_types : table, optional
+        The ``EXAM_TYPES`` table, for the examinations' names.
     context : PageContext, optional
         Facility, version, user.
     """
     table = ROOM_HISTORY.validate(history)
+    names = ExamTypes(exam_types).names
     quantities = sorted(table.loc[table["median"].notna(), "quantity"].unique())
-    blocks = [
-        _web.figure_block(
-            _history_figures._room_history(table, quantity=q, room=room), f"history-{i}"
+    blocks = []
+    for i, q in enumerate(quantities):
+        lines = table.loc[(table["quantity"] == q) & table["median"].notna(), "exam_type"].nunique()
+        block = _web.figure_block(
+            _history_figures._room_history(table, quantity=q, room=room, exam_names=names),
+            f"history-{i}",
         )
-        for i, q in enumerate(quantities)
-    ]
+        blocks.append((block, lines > _LINES_IN_HALF_CARD))
     ratio_block = None
     if table["dap_ratio_median"].notna().any():
         ratio_block = _web.figure_block(
-            _history_figures._dap_ratio_history(table, room=room), "dap-ratio"
+            _history_figures._dap_ratio_history(table, room=room, exam_names=names), "dap-ratio"
         )
-    flag_rows = _rows.flag_rows(FLAGS.validate(flags if flags is not None else []), room=room)
+    flag_rows = _rows.flag_rows(
+        FLAGS.validate(flags if flags is not None else []), names, room=room
+    )
     changes = table[table["change_point"]].sort_values("month")
     return _web.render_page(
         "room.html",
@@ -223,7 +324,7 @@ def render_room(
         blocks=blocks,
         ratio_block=ratio_block,
         changes=[
-            (m.strftime("%B %Y"), e, quantity_short(q))
+            (m.strftime("%B %Y"), exam_name(e, names), quantity_short(q))
             for m, e, q in zip(
                 changes["month"], changes["exam_type"], changes["quantity"], strict=True
             )
@@ -237,9 +338,13 @@ def render_exam(
     exam: Mapping[str, Any],
     *,
     back_href: str | None = None,
+    exam_types: TableLike | None = None,
     context: PageContext | None = None,
 ) -> str:
     """An examination's drill-down (served at ``/exams/{study_uid}``).
+
+    Exposures are listed in time order; every number is rounded to what it means and carries
+    its unit; an estimate shows its standard uncertainty where one was computed.
 
     Parameters
     ----------
@@ -247,75 +352,29 @@ def render_exam(
         The drill-down record; contract in :mod:`beamaudit.dashboards.records`.
     back_href : str, optional
         Where "back" goes; defaults to the room's page.
+    exam_types : table, optional
+        The ``EXAM_TYPES`` table, for the examination's name.
     context : PageContext, optional
         Facility, version, user.
     """
     detail = parse_exam(exam)
-    exposures = []
-    for i, exposure in enumerate(detail.exposures):
-        technique = dict(exposure.technique)
-        spectrum_block = None
-        if exposure.spectrum is not None:
-            kvp = technique.get("kvp_kv")
-            spectrum_block = _web.figure_block(
-                figures.build_spectrum(
-                    exposure.spectrum,
-                    kvp_kv=float(kvp) if isinstance(kvp, (int, float)) else None,
-                    title=f"Reconstructed spectrum, exposure {i + 1}",
-                ),
-                f"spectrum-{i}",
-            )
-        exposures.append(
-            {
-                "number": i + 1,
-                "event_id": exposure.event_id,
-                "when": _rows.when(exposure.event_datetime),
-                "technique": [
-                    (quantity_label(k), _web.fmt(v, 4) if isinstance(v, float) else _rows.plain(v))
-                    for k, v in exposure.technique
-                ],
-                "dose": [
-                    {
-                        "label": quantity_label(d.name, with_unit=False),
-                        "value": _web.fmt(d.value),
-                        "uncertainty": _web.fmt(d.uncertainty, 2)
-                        if d.uncertainty is not None
-                        else "",
-                        "unit": d.unit,
-                        "reported": _web.fmt(d.reported) if d.reported is not None else "–",
-                        "ratio": f"{d.ratio:.2f}" if d.ratio is not None else "–",
-                        "source": d.source,
-                    }
-                    for d in exposure.dose
-                ],
-                "why": [
-                    {
-                        "label": quantity_label(s.quantity, with_unit=False),
-                        "value": _web.fmt(s.value, 4),
-                        "unit": s.unit,
-                        "equation": s.equation,
-                        "source": s.source,
-                        "inputs": [f"{k} = {v}" if v else k for k, v in s.inputs],
-                        "assumed": s.assumed,
-                        "assumptions": s.assumptions,
-                    }
-                    for s in exposure.why
-                ],
-                "spectrum": spectrum_block,
-            }
-        )
+    names = ExamTypes(exam_types).names
+    exposures = _exam_page.exposure_views(detail)
+    title = exam_name(detail.exam_type, names)
     return _web.render_page(
         "exam.html",
         context=context,
-        page_title=f"{detail.exam_type}, {detail.room}",
+        page_title=f"{title}, {detail.room}",
         active="",
         has_figures=any(e["spectrum"] is not None for e in exposures),
         exam=detail,
+        title=title,
+        info=_exam_page.info_lines(detail),
         when=_rows.when(detail.study_datetime),
         weight=_web.fmt(detail.patient_weight_kg) if detail.patient_weight_kg is not None else "–",
-        standard={True: "yes", False: "no", None: "not known"}[detail.standard_patient],
+        standard=_exam_page.standard_words(detail.standard_patient),
         exposures=exposures,
-        flag_rows=_rows.flag_rows(detail.flags),
+        flag_rows=_rows.flag_rows(detail.flags, names),
         back_href=back_href or room_href(detail.room),
         room_href=room_href(detail.room),
     )
@@ -328,9 +387,16 @@ def render_flags(
     room: str | None = None,
     period: str | None = None,
     status: str | None = None,
+    can_triage: bool = False,
+    exam_types: TableLike | None = None,
     context: PageContext | None = None,
 ) -> str:
-    """The flags list with filters (served at ``/flags``).
+    """The flags list with filters (served at ``/flags``), and triage for physicists.
+
+    With ``can_triage``, each flag that carries ``run_id`` and ``flag_id`` gets a form to
+    acknowledge, close or reopen its finding with a note; the page's script sends it as
+    ``PATCH /api/v1/reviews/{run_id}/flags/{flag_id}`` with the session's CSRF token
+    (``X-CSRF-Token``, from the page's ``<meta name="csrf-token">``), and shows the answer.
 
     Parameters
     ----------
@@ -338,6 +404,10 @@ def render_flags(
         The whole ``FLAGS`` table; the filters' choices come from it.
     kind, room, period, status : str, optional
         Filter values (the query parameters of the same names); empty shows all.
+    can_triage : bool
+        The reader may triage (a physicist or admin signed in by a browser session).
+    exam_types : table, optional
+        The ``EXAM_TYPES`` table, for the examinations' names.
     context : PageContext, optional
         Facility, version, user.
     """
@@ -348,7 +418,8 @@ def render_flags(
         )
     if period:
         _web.check_period(period)
-    rows = _rows.flag_rows(table, kind=kind, room=room, period=period, status=status)
+    names = ExamTypes(exam_types).names
+    rows = _rows.flag_rows(table, names, kind=kind, room=room, period=period, status=status)
 
     def choices(column: str) -> list[str]:
         return sorted({v for v in table[column] if v})
@@ -360,18 +431,17 @@ def render_flags(
         active="flags",
         rows=rows,
         total=len(table),
+        can_triage=can_triage and bool(context and context.csrf_token),
+        triage_actions=TRIAGE_ACTIONS,
         filters=[
-            ("kind", "Kind", kind or "", [(v, v) for v in choices("kind")]),
+            ("kind", "Kind", kind or "",
+             [(v, words_for(FLAG_KIND_WORDS, v)) for v in choices("kind")]),
             ("room", "Room", room or "", [(v, v) for v in choices("room")]),
-            (
-                "period",
-                "Period",
-                period or "",
-                [(v, v) for v in sorted(choices("period"), reverse=True)],
-            ),
+            ("period", "Period", period or "",
+             [(v, v) for v in sorted(choices("period"), reverse=True)]),
             ("status", "Status", status or "", list(FLAG_STATUS_WORDS.items())),
         ],
-    )
+    )  # fmt: skip
 
 
 def render_error(

@@ -13,13 +13,19 @@ from datetime import UTC, datetime
 import plotly.graph_objects as go
 
 from beamaudit.dashboards import _rows, _web, figures
+from beamaudit.dashboards._heatmap_figure import heatmap_key
+from beamaudit.dashboards.attention import rank_attention
+from beamaudit.dashboards.distributions import ExamTypes
 from beamaudit.dashboards.errors import DashboardError
+from beamaudit.dashboards.rounding import format_level
 from beamaudit.dashboards.tables import EVENTS, FLAGS, GROUPS, LEVELS, TableLike
 from beamaudit.dashboards.wording import (
     FLAG_STATUS_WORDS,
     LEVEL_KIND_WORDS,
+    SEVERITY_WORDS,
     STATUS_LOOK,
     quantity_short,
+    words_for,
 )
 
 __all__ = ["render_committee_report"]
@@ -35,14 +41,18 @@ def render_committee_report(
     software_version: str,
     events: TableLike | None = None,
     flags: TableLike | None = None,
+    attention: TableLike | None = None,
+    exam_types: TableLike | None = None,
     facility: str = "",
     generated_at: datetime | None = None,
 ) -> str:
     """A self-contained committee report for one review period (served at ``/reports/{period}``).
 
-    The page inlines its style sheet and plotly.js, makes no request and
-    prints on A4. It states the method, the reference-level sets used, the
-    software version and the caution about estimates.
+    The page inlines its style sheet and plotly.js, makes no request, and prints on A4 (on
+    screen it is as wide as the window allows, up to a comfortable reading width). It opens with
+    what needs attention, then states the method, the reference-level sets used, the results,
+    the software version and the caution about estimates. Links back to the other pages are
+    shown on screen, not on paper.
 
     Parameters
     ----------
@@ -56,9 +66,13 @@ def render_committee_report(
         beamaudit's version.
     events : table, optional
         The ``EVENTS`` table of the period; adds a distribution figure for each
-        examination and quantity whose median is, or may be, over a level.
+        examination and quantity whose median is, or may be, above a level.
     flags : table, optional
         The ``FLAGS`` table; the period's flags are summarised.
+    attention : table, optional
+        The ``ATTENTION`` table of the period (as the overview's); its lines open the report.
+    exam_types : table, optional
+        The ``EXAM_TYPES`` table: names, and which types are judged per examination.
     facility : str
         Hospital or department name.
     generated_at : datetime, optional
@@ -70,22 +84,28 @@ def render_committee_report(
     if not software_version.strip():
         raise DashboardError("the committee report needs the software version")
     table = GROUPS.validate(groups)
-    rows = _rows.group_rows(table, None)
+    catalogue = ExamTypes(exam_types)
+    rows = _rows.group_rows(table, None, catalogue.names)
     stamp = (generated_at or datetime.now(UTC)).astimezone(UTC)
     applied = (
         table[table["reference_level"].notna()]
         .drop_duplicates(["level_set", "level_kind", "exam_type", "quantity", "reference_level"])
-        .sort_values(["level_kind", "level_set", "exam_type", "quantity"])
+        .assign(_name=lambda t: t["exam_type"].map(catalogue.name))
+        .sort_values(["level_kind", "level_set", "_name", "quantity"])
     )
-    n_columns = len(table.drop_duplicates(["exam_type", "quantity"]))
-    heatmap = _report_figure(
-        figures.build_overview_heatmap(
-            table,
-            rooms_across=n_columns > table["room"].nunique(),
-            title="Median ÷ reference level",
-        ),
-        "report-heatmap",
-    )
+    levelled = table[table["status"] != "no_level"]
+    heatmap = None
+    if not levelled.empty:
+        heatmap = _report_figure(
+            figures.build_overview_heatmap(
+                table,
+                title="Median ÷ reference level",
+                exam_names=catalogue.names,
+                width_px=_REPORT_WIDTH_PX,
+                colour_bar=False,  # the key above the figure names the colours
+            ),
+            "report-heatmap",
+        )
     blocks: list[tuple[str, str, _web.FigureBlock]] = []
     if events is not None:
         event_table = EVENTS.validate(events)
@@ -93,23 +113,25 @@ def render_committee_report(
         pairs = sorted(set(zip(concern["exam_type"], concern["quantity"], strict=True)))
         level_table = LEVELS.validate(table)
         for k, (exam, q) in enumerate(p for p in pairs if p[1] in figures.EVENT_QUANTITIES):
-            blocks += _rows.distribution_blocks(
-                event_table,
-                level_table,
-                exam_type=exam,
-                quantity=q,
-                log_y=False,
-                static=True,
-                width_px=_REPORT_WIDTH_PX,
-                id_prefix=f"report-dist-{k}",
-            )
+            block = _rows.distribution_block(
+                event_table, level_table, exam_type=exam, quantity=q, catalogue=catalogue,
+                log_y=False, static=True, width_px=_REPORT_WIDTH_PX, fig_id=f"report-dist-{k}",
+            )  # fmt: skip
+            if block is not None:
+                blocks.append((exam, q, block))
     flag_table = FLAGS.validate(flags if flags is not None else [])
-    period_flags = _rows.flag_rows(flag_table, period=period)
+    period_flags = _rows.flag_rows(flag_table, catalogue.names, period=period)
+    lines = None
+    if attention is not None:
+        lines = [
+            {**r, "severity_words": words_for(SEVERITY_WORDS, r["severity"])}
+            for r in rank_attention(attention).to_dict("records")
+        ]
     return _web.render_page(
         "report.html",
         context=_web.PageContext(facility=facility, software_version=software_version),
         page_title=f"Dose review {period}" + (f", {facility}" if facility else ""),
-        has_figures=True,
+        has_figures=heatmap is not None or bool(blocks),
         inline_css=_web.css_text(),
         inline_plotly=_web.plotly_text(),
         period=period,
@@ -121,21 +143,28 @@ def render_committee_report(
         rows=rows,
         level_sets=_rows.level_sets(table),
         heatmap=heatmap,
+        key=heatmap_key(),
         blocks=blocks,
+        attention=lines,
         level_rows=[
             {
                 "set": r["level_set"] or "(unnamed)",
                 "kind": LEVEL_KIND_WORDS.get(r["level_kind"], "–"),
-                "exam_type": r["exam_type"],
+                "exam_type": catalogue.name(r["exam_type"]),
                 "quantity": quantity_short(r["quantity"]),
-                "value": _web.fmt(r["reference_level"]),
+                "value": format_level(r["reference_level"]),
             }
             for _, r in applied.iterrows()
         ],
         flag_rows=[r for r in period_flags if r["status"] != "closed"],
-        flag_counts={s: sum(r["status"] == s for r in period_flags) for s in FLAG_STATUS_WORDS},
-        flag_words=FLAG_STATUS_WORDS,
+        flag_counts=[
+            (words, sum(r["status"] == s for r in period_flags))
+            for s, words in FLAG_STATUS_WORDS.items()
+        ],
         status_words={k: v.long for k, v in STATUS_LOOK.items()},
+        overview_href=_web.ROUTES["overview"] + f"?period={period}",
+        flags_href=_web.flags_href(period=period),
+        distributions_href=_web.distributions_href(period=period),
     )
 
 

@@ -29,7 +29,8 @@ The contracts
     median, q1, q3, mean      quantity median, quartiles and mean of the quantity
     ci_low, ci_high           quantity confidence interval of the median (optional)
     reference_level           quantity the level compared with (empty if none)
-    level_kind                –        ``local`` or ``national`` (empty if none)
+    level_kind                –        ``local``, ``national`` or ``international``
+                                       (guidance such as IAEA BSS 115; empty if none)
     level_set                 –        name of the published or local level set
     ratio_to_level            1        median / reference_level (empty if none)
     status                    –        ``above_level``, ``possibly_above``,
@@ -43,7 +44,13 @@ The contracts
     ``room``, ``exam_type``, ``event_id``, ``study_uid``, ``period``
     (``YYYY-MM``), ``status`` (``open``, ``acknowledged``, ``closed``), and
     optionally ``flag_id``, ``raised_at`` (UTC), ``note`` (why it was acknowledged or closed,
-    and by whom) and ``changed`` (what changed since the finding's previous review).
+    and by whom), ``changed`` (what changed since the finding's previous review),
+    ``run_id`` (the review run that raised it: with ``flag_id`` it makes the triage
+    address ``PATCH /api/v1/reviews/{run_id}/flags/{flag_id}``), ``quantity`` (the
+    quantity it concerns, a field name with its unit suffix) and ``numbers`` (the
+    figures its reason quotes, a mapping as the review core stores them; the
+    overview's attention lines are written from them, see
+    :func:`beamaudit.dashboards.attention.attention_from_flags`).
 
 ``EVENTS``
     One row per irradiation event: ``event_id``, ``study_uid``,
@@ -65,8 +72,44 @@ The contracts
 
 ``LEVELS``
     Reference levels to draw on distributions: ``exam_type``, ``quantity``,
-    ``reference_level`` (quantity's unit), ``level_kind``, ``level_set``.
-    The ``GROUPS`` table satisfies it.
+    ``reference_level`` (quantity's unit), ``level_kind``, ``level_set``, and
+    optionally ``status`` and ``ratio_to_level`` (the distributions page then opens
+    on the most urgent group's chart). The ``GROUPS`` table satisfies it.
+
+``EXAM_TYPES``
+    The catalogue, as far as people read it: ``exam_type`` (the code the other
+    tables carry), ``name`` (what every page shows instead of the code), and
+    optionally ``level_applies_per`` (``projection``: one value per exposure;
+    ``examination``: one value per study, its events aggregated) and
+    ``aggregation`` (``quantity=rule`` pairs, rule ``sum``, ``max`` or ``mean``;
+    pass the rule the review used for every quantity, see
+    :func:`beamaudit.dashboards.distributions.study_values` for the default).
+
+``ATTENTION``
+    The overview's "what needs attention" lines, one per open finding (or group
+    of findings of one kind and place): ``kind`` (a flag kind, or
+    ``rejected_files``), ``severity`` (``action``, ``warning``, ``info``),
+    ``headline`` (one line with its numbers), ``href`` (where to look),
+    ``size`` (how far from expected: a factor >= 1, or a count for findings
+    counted in exams or files), ``count`` (how many flags, exams or files the
+    line stands for), and optionally ``tier`` (its kind's rank, 0 first;
+    default :data:`beamaudit.dashboards.attention.KIND_TIERS`), ``room``,
+    ``exam_type`` and ``detail`` (a second line). Build it from the ``FLAGS``
+    table with :func:`beamaudit.dashboards.attention.attention_from_flags`;
+    :func:`beamaudit.dashboards.attention.rank_attention` orders it.
+
+``INGEST_ERRORS``
+    Objects refused at ingest, one row each: ``occurred_at`` (UTC),
+    ``received_via``, ``source`` (path, ``AE@host`` or URL),
+    ``sop_instance_uid`` (if read), ``code`` and ``reason``.
+
+``UNMAPPED``
+    The header values of events that map to no examination type, one row per
+    distinct combination: ``modality``, ``room``, ``body_part``,
+    ``view_position``, ``study_description``, ``series_description``,
+    ``protocol_name`` (each may be empty), ``n_events``, and optionally
+    ``n_studies``, ``first_seen`` and ``last_seen`` (UTC), as the review's
+    unmapped summary lists them.
 
 The drill-down of one examination is a nested record rather than a table; see
 :mod:`beamaudit.dashboards.records`.
@@ -75,22 +118,23 @@ The drill-down of one examination is a nested record rather than a table; see
 from __future__ import annotations
 
 import re
-from collections.abc import Callable, Iterable, Mapping
-from dataclasses import dataclass, field
-from typing import Any, Literal, TypeAlias
+from typing import Any
 
-import pandas as pd
-
-from beamaudit.dashboards.errors import TableError
-from beamaudit.dashboards.wording import quantity_unit
+from beamaudit.dashboards._tablespec import Column, Rule, TableLike, TableSpec, as_frame
+from beamaudit.dashboards.wording import LEVEL_KIND_WORDS, quantity_unit
 
 __all__ = [
+    "ATTENTION",
     "EVENTS",
+    "EXAM_TYPES",
     "FLAGS",
     "GROUPS",
+    "INGEST_ERRORS",
     "LEVELS",
     "PERIOD_PATTERN",
     "ROOM_HISTORY",
+    "UNMAPPED",
+    "UNMAPPED_FIELDS",
     "Column",
     "Rule",
     "TableLike",
@@ -98,262 +142,22 @@ __all__ = [
     "as_frame",
 ]
 
-#: What a table argument may be: a DataFrame, or an iterable of row mappings.
-TableLike: TypeAlias = "pd.DataFrame | Iterable[Mapping[str, Any]]"
-
-Kind = Literal["str", "float", "int", "bool", "datetime", "month"]
-
-_SHOW_AT_MOST = 3
-
-
-@dataclass(frozen=True)
-class Column:
-    """One column of a table contract.
-
-    Attributes
-    ----------
-    name : str
-        Column name, with its unit suffix where it has a unit.
-    kind : {"str", "float", "int", "bool", "datetime", "month"}
-        What the values are. ``datetime`` values become UTC timestamps;
-        ``month`` values (``"2026-03"``, a date or a timestamp) become the
-        first day of their month.
-    unit : str
-        Unit of the values (``"1"`` for a ratio or count, ``""`` for text,
-        ``"quantity"`` where the row's ``quantity`` names it).
-    description : str
-        What the column means.
-    required : bool
-        The column must be present (even if some values are empty).
-    nullable : bool
-        Values may be empty (``None`` / NaN).
-    choices : tuple of str, optional
-        The only values allowed.
-    minimum : float, optional
-        Smallest value allowed (numbers only).
-    """
-
-    name: str
-    kind: Kind
-    unit: str
-    description: str
-    required: bool = True
-    nullable: bool = False
-    choices: tuple[str, ...] | None = None
-    minimum: float | None = None
-
-
-@dataclass(frozen=True)
-class Rule:
-    """A check across the columns of a validated table.
-
-    Attributes
-    ----------
-    description : str
-        What must hold, in words (used in the error message).
-    bad_rows : callable
-        Takes the coerced DataFrame, returns a boolean Series, true where the
-        rule fails (missing values should give false).
-    """
-
-    description: str
-    bad_rows: Callable[[pd.DataFrame], pd.Series]
-
-
-@dataclass(frozen=True)
-class TableSpec:
-    """A table contract: a name and its columns.
-
-    Parameters
-    ----------
-    name : str
-        Name used in error messages (``"groups"``).
-    columns : tuple of Column
-        The columns, in display order.
-    rules : tuple of Rule
-        Checks across columns, run after each column is coerced.
-    """
-
-    name: str
-    columns: tuple[Column, ...]
-    rules: tuple[Rule, ...] = ()
-    _by_name: dict[str, Column] = field(init=False, repr=False, compare=False)
-
-    def __post_init__(self) -> None:
-        object.__setattr__(self, "_by_name", {c.name: c for c in self.columns})
-
-    @property
-    def names(self) -> tuple[str, ...]:
-        """Column names in order."""
-        return tuple(c.name for c in self.columns)
-
-    def column(self, name: str) -> Column:
-        """The column called ``name``."""
-        return self._by_name[name]
-
-    def validate(self, data: TableLike) -> pd.DataFrame:
-        """Check ``data`` against this contract and return a clean copy.
-
-        Parameters
-        ----------
-        data : DataFrame or iterable of mappings
-            The table, one row per mapping.
-
-        Returns
-        -------
-        DataFrame
-            The contract's columns only, in order, values coerced to their kind,
-            with a fresh ``RangeIndex``.
-
-        Raises
-        ------
-        TableError
-            A required column is missing, or a value is empty where it may not
-            be, of the wrong kind, outside its choices or below its minimum.
-        """
-        frame = as_frame(data, self.name)
-        if frame.empty and len(frame.columns) == 0:
-            frame = pd.DataFrame(columns=list(self.names))
-        missing = [c.name for c in self.columns if c.required and c.name not in frame.columns]
-        if missing:
-            raise TableError(
-                f"{self.name} table: missing column(s) {_quoted(missing)}; "
-                f"the contract is {_quoted(self.names)}"
-            )
-        out = pd.DataFrame(index=pd.RangeIndex(len(frame)))
-        for col in self.columns:
-            raw = (
-                frame[col.name].reset_index(drop=True)
-                if col.name in frame.columns
-                else pd.Series([None] * len(frame), dtype=object)
-            )
-            out[col.name] = _coerce(self.name, col, raw)
-        for rule in self.rules:
-            bad = rule.bad_rows(out).fillna(False).astype(bool)
-            if bad.any():
-                rows = list(bad[bad].index[:_SHOW_AT_MOST])
-                raise TableError(f"{self.name} table: {rule.description}; fails in row(s) {rows}")
-        return out
-
-
-def as_frame(data: TableLike, name: str) -> pd.DataFrame:
-    """Turn a DataFrame or an iterable of row mappings into a DataFrame.
-
-    Raises
-    ------
-    TableError
-        ``data`` is neither, or a row is not a mapping.
-    """
-    if isinstance(data, pd.DataFrame):
-        return data
-    if isinstance(data, (str, bytes, Mapping)) or not isinstance(data, Iterable):
-        raise TableError(
-            f"{name} table: expected a DataFrame or a list of rows (mappings), "
-            f"got {type(data).__name__}"
-        )
-    rows = list(data)
-    for i, row in enumerate(rows):
-        if not isinstance(row, Mapping):
-            raise TableError(f"{name} table: row {i} is a {type(row).__name__}, expected a mapping")
-    return pd.DataFrame.from_records(rows) if rows else pd.DataFrame()
-
-
-def _quoted(names: Iterable[str]) -> str:
-    return ", ".join(f"'{n}'" for n in names)
-
-
-def _where(table: str, col: Column, bad: pd.Series, what: str) -> TableError:
-    rows = list(bad[bad].index[:_SHOW_AT_MOST])
-    more = "" if int(bad.sum()) <= _SHOW_AT_MOST else f" (and {int(bad.sum()) - len(rows)} more)"
-    return TableError(
-        f"{table} table, column '{col.name}': {what} in row(s) {rows}{more}; "
-        f"{col.description}" + (f" [{col.unit}]" if col.unit not in ("", "1") else "")
-    )
-
-
-def _is_empty(raw: pd.Series) -> pd.Series:
-    blank = raw.map(lambda v: isinstance(v, str) and v.strip() == "").astype(bool)
-    return raw.isna() | blank
-
-
-def _coerce(table: str, col: Column, raw: pd.Series) -> pd.Series:
-    empty = _is_empty(raw)
-    if not col.nullable and empty.any():
-        raise _where(table, col, empty, "empty value")
-    if col.kind == "str":
-        bad = ~empty & ~raw.map(lambda v: isinstance(v, str))
-        if bad.any():
-            raise _where(table, col, bad, "not text")
-        values = raw.astype(object).where(~empty, None)
-        if col.choices is not None:
-            bad = ~empty & ~values.isin(col.choices)
-            if bad.any():
-                shown = sorted({str(v) for v in values[bad]})[:_SHOW_AT_MOST]
-                raise _where(
-                    table,
-                    col,
-                    bad,
-                    f"value(s) {_quoted(shown)} not among {_quoted(col.choices)}",
-                )
-        return values
-    if col.kind in ("float", "int"):
-        bad = ~empty & raw.map(lambda v: isinstance(v, (bool, str)))
-        if bad.any():
-            raise _where(table, col, bad, "not a number")
-        numbers = pd.to_numeric(raw.where(~empty, None), errors="coerce").astype(float)
-        bad = ~empty & numbers.isna()
-        if bad.any():
-            raise _where(table, col, bad, "not a number")
-        if col.kind == "int":
-            bad = ~empty & (numbers != numbers.round())
-            if bad.any():
-                raise _where(table, col, bad, "not a whole number")
-        if col.minimum is not None:
-            bad = ~empty & (numbers < col.minimum)
-            if bad.any():
-                raise _where(table, col, bad, f"value below {col.minimum:g}")
-        return numbers.astype("Int64") if col.kind == "int" else numbers
-    if col.kind == "bool":
-        bad = ~empty & ~raw.map(lambda v: isinstance(v, bool) or type(v).__name__ == "bool")
-        if bad.any():
-            raise _where(table, col, bad, "not true/false")
-        return raw.astype(object).where(~empty, None).map(lambda v: None if v is None else bool(v))
-    return _coerce_time(table, col, raw, empty)
-
-
-def _coerce_time(table: str, col: Column, raw: pd.Series, empty: pd.Series) -> pd.Series:
-    def parse(v: Any) -> pd.Timestamp | None:
-        if v is None or (not isinstance(v, str) and pd.isna(v)):
-            return None
-        if col.kind == "month" and isinstance(v, pd.Period):
-            v = v.to_timestamp()
-        try:
-            stamp = pd.Timestamp(v)
-        except (ValueError, TypeError):
-            return None
-        if stamp is pd.NaT:
-            return None
-        stamp = stamp.tz_localize("UTC") if stamp.tzinfo is None else stamp.tz_convert("UTC")
-        if col.kind == "month":
-            stamp = stamp.tz_localize(None).to_period("M").to_timestamp()
-        return stamp
-
-    parsed = raw.astype(object).where(~empty, None).map(parse)
-    bad = ~empty & parsed.isna()
-    if bad.any():
-        what = "not a month (YYYY-MM)" if col.kind == "month" else "not a date and time"
-        raise _where(table, col, bad, what)
-    if col.kind == "month":
-        return pd.to_datetime(parsed)
-    return pd.to_datetime(parsed, utc=True)
-
-
 _STATUSES = ("above_level", "possibly_above", "below_level", "insufficient_sample", "no_level")
 #: A review period: a calendar month written ``YYYY-MM``.
 PERIOD_PATTERN = re.compile(r"^\d{4}-(0[1-9]|1[0-2])$")
 
 _OPTIONAL: dict[str, Any] = {"required": False, "nullable": True, "minimum": 0}
+_TEXT: dict[str, Any] = {"required": False, "nullable": True}
 _QUANTITY = "DRL quantity: a field name with its unit suffix, e.g. 'dap_gy_cm2'"
+
+_LEVEL_KIND = Column(
+    "level_kind",
+    "str",
+    "",
+    "kind of reference level",
+    nullable=True,
+    choices=tuple(LEVEL_KIND_WORDS),
+)
 
 _QUANTITY_HAS_UNIT = Rule(
     "'quantity' must be a field name ending in its unit, e.g. 'dap_gy_cm2', 'esak_mgy'",
@@ -377,14 +181,7 @@ GROUPS = TableSpec(
         Column(
             "reference_level", "float", "quantity", "level compared with", nullable=True, minimum=0
         ),
-        Column(
-            "level_kind",
-            "str",
-            "",
-            "kind of reference level",
-            nullable=True,
-            choices=("local", "national"),
-        ),
+        _LEVEL_KIND,
         Column("level_set", "str", "", "name of the level set", nullable=True),
         Column("ratio_to_level", "float", "1", "median / level", nullable=True, minimum=0),
         Column("status", "str", "", "review status", choices=_STATUSES),
@@ -427,6 +224,9 @@ FLAGS = TableSpec(
             required=False,
             nullable=True,
         ),
+        Column("run_id", "str", "", "the review run that raised the flag", **_TEXT),
+        Column("quantity", "str", "", "the quantity it concerns (unit suffix)", **_TEXT),
+        Column("numbers", "mapping", "", "the figures its reason quotes, by name", **_TEXT),
     ),
     rules=(
         Rule(
@@ -506,15 +306,114 @@ LEVELS = TableSpec(
         Column("exam_type", "str", "", "examination type"),
         Column("quantity", "str", "", _QUANTITY),
         Column("reference_level", "float", "quantity", "reference level", nullable=True, minimum=0),
-        Column(
-            "level_kind",
-            "str",
-            "",
-            "kind of reference level",
-            nullable=True,
-            choices=("local", "national"),
-        ),
+        _LEVEL_KIND,
         Column("level_set", "str", "", "name of the level set", nullable=True),
+        Column("status", "str", "", "review status", required=False, nullable=True,
+               choices=_STATUSES),
+        Column("ratio_to_level", "float", "1", "median / level", **_OPTIONAL),
     ),
     rules=(_QUANTITY_HAS_UNIT,),
+)  # fmt: skip
+
+
+_AGGREGATION = re.compile(r"^(?:[a-z][a-z0-9_]*=(?:sum|max|mean)(?:\s+|$))*$")
+
+EXAM_TYPES = TableSpec(
+    "exam types",
+    (
+        Column("exam_type", "str", "", "examination type code, as the review names it"),
+        Column("name", "str", "", "the catalogue's name for it, shown to people"),
+        Column(
+            "level_applies_per",
+            "str",
+            "",
+            "what one value is: one exposure (projection) or one study (examination)",
+            required=False,
+            nullable=True,
+            choices=("projection", "examination"),
+        ),
+        Column(
+            "aggregation",
+            "str",
+            "",
+            "examination types: how a study's events make one value, 'quantity=rule' pairs "
+            "(rule sum, max or mean) separated by spaces",
+            **_TEXT,
+        ),
+    ),
+    rules=(
+        Rule(
+            "'aggregation' must be 'quantity=rule' pairs, rule sum, max or mean",
+            lambda t: t["aggregation"].map(
+                lambda a: a is not None and not _AGGREGATION.match(str(a).strip())
+            ),
+        ),
+    ),
 )
+
+_SEVERITIES = ("action", "warning", "info")
+
+ATTENTION = TableSpec(
+    "attention",
+    (
+        Column("kind", "str", "", "what kind of finding (a flag kind, or 'rejected_files')"),
+        Column("severity", "str", "", "how serious: action, warning or info", choices=_SEVERITIES),
+        Column("headline", "str", "", "one line saying what was found, with its numbers"),
+        Column("href", "str", "", "where to look at it or act on it (a path of the service)"),
+        Column(
+            "size",
+            "float",
+            "1",
+            "how far from what is expected, for ranking within a severity and tier: the factor "
+            "(1.36 for 36 % high, a factor below 1 counted as its inverse) or, for findings "
+            "counted in exams or files, the count",
+            minimum=0,
+        ),
+        Column("count", "int", "1", "how many flags, exams or files the line stands for",
+               minimum=1),
+        Column("tier", "int", "1", "rank of its kind (0 first); by default the kind's",
+               required=False, nullable=True, minimum=0),
+        Column("room", "str", "", "room name", **_TEXT),
+        Column("exam_type", "str", "", "examination type code", **_TEXT),
+        Column("detail", "str", "", "a second line: the review's reason in full", **_TEXT),
+    ),
+)  # fmt: skip
+
+INGEST_ERRORS = TableSpec(
+    "ingest errors",
+    (
+        Column("occurred_at", "datetime", "", "when the object was refused (UTC)"),
+        Column("received_via", "str", "", "how it came: scan, C-STORE, DICOMweb pull, upload"),
+        Column("source", "str", "", "where it came from: a path, 'AE@host' or a URL"),
+        Column("sop_instance_uid", "str", "", "its SOP Instance UID, if it could be read",
+               **_TEXT),
+        Column("code", "str", "", "the kind of fault, a short code"),
+        Column("reason", "str", "", "what was wrong, in words"),
+    ),
+)  # fmt: skip
+
+UNMAPPED = TableSpec(
+    "unmapped",
+    (
+        *(
+            Column(name, "str", "", f"the header's {words}", **_TEXT)
+            for name, words in (
+                ("modality", "Modality (0008,0060)"),
+                ("room", "room (from the device)"),
+                ("body_part", "Body Part Examined (0018,0015)"),
+                ("view_position", "View Position (0018,5101)"),
+                ("study_description", "Study Description (0008,1030)"),
+                ("series_description", "Series Description (0008,103E)"),
+                ("protocol_name", "Protocol Name (0018,1030)"),
+            )
+        ),
+        Column("n_events", "int", "1", "events with these values", minimum=1),
+        Column("n_studies", "int", "1", "studies with these values", required=False,
+               nullable=True, minimum=0),
+        Column("first_seen", "datetime", "", "first event (UTC)", required=False, nullable=True),
+        Column("last_seen", "datetime", "", "last event (UTC)", required=False, nullable=True),
+    ),
+)  # fmt: skip
+
+#: the header columns of ``UNMAPPED``, in the order the page shows them
+UNMAPPED_FIELDS: tuple[str, ...] = UNMAPPED.names[:7]

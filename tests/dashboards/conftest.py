@@ -5,7 +5,16 @@ from __future__ import annotations
 from typing import Any
 
 import pytest
-from dashboards_demo import make_events, make_exam, make_flags, make_groups, make_history
+from dashboards_demo import (
+    EXAM_TYPES,
+    make_events,
+    make_exam,
+    make_flags,
+    make_groups,
+    make_history,
+    make_ingest_errors,
+    make_unmapped,
+)
 
 
 @pytest.fixture(scope="session")
@@ -31,3 +40,18 @@ def demo_history() -> list[dict[str, Any]]:
 @pytest.fixture
 def demo_exam() -> dict[str, Any]:
     return make_exam()
+
+
+@pytest.fixture
+def demo_exam_types() -> list[dict[str, Any]]:
+    return [dict(e) for e in EXAM_TYPES]
+
+
+@pytest.fixture
+def demo_ingest_errors() -> list[dict[str, Any]]:
+    return make_ingest_errors()
+
+
+@pytest.fixture
+def demo_unmapped() -> list[dict[str, Any]]:
+    return make_unmapped()

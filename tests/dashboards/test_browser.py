@@ -3,14 +3,18 @@
 The pages are rendered from the invented Kestrel Bay data and served by a tiny
 stdlib HTTP server on 127.0.0.1 (a free port), which also serves
 ``/static/plotly.min.js`` from the installed plotly package and our style
-sheet, as the API does. Each page must draw every plotly figure it holds and
-log no console error; a screenshot of each lands in ``artifacts/screenshots/``.
-Nothing is downloaded: playwright drives /usr/bin/chromium.
+sheet, as the API does, and answers the flags page's triage ``PATCH`` as the API
+would (checking the CSRF header). Each page must draw every plotly figure it
+holds, log no console error and fit its window; screenshots of each, at
+1400 x 900 and 1920 x 1080 (whole page and first screen), land in
+``artifacts/screenshots/``. Nothing is downloaded: playwright drives
+/usr/bin/chromium.
 """
 
 from __future__ import annotations
 
 import http.server
+import json
 import threading
 from collections.abc import Iterator
 from dataclasses import dataclass, field
@@ -19,6 +23,7 @@ from typing import Any
 
 import pytest
 from dashboards_demo import (
+    EXAM_TYPES,
     FACILITY,
     METHOD,
     PERIOD,
@@ -28,19 +33,24 @@ from dashboards_demo import (
     make_flags,
     make_groups,
     make_history,
+    make_ingest_errors,
+    make_unmapped,
 )
 from peers import require_peer
 
 from beamaudit.dashboards import (
     CAUTION,
     PageContext,
+    attention_from_flags,
     render_committee_report,
     render_distributions,
     render_exam,
     render_flags,
+    render_ingest_errors,
     render_login,
     render_overview,
     render_room,
+    render_unmapped,
     static_files,
 )
 
@@ -60,40 +70,65 @@ SCREENSHOTS = Path(__file__).resolve().parents[2] / "artifacts" / "screenshots"
 PAGE_TIMEOUT_MS = 15_000
 
 
+CSRF_TOKEN = "csrf-token-of-the-test-session"
+
+
 def _pages() -> dict[str, str]:
     events = make_events()
     groups = make_groups(events)
     flags = make_flags()
-    context = PageContext(facility=FACILITY, software_version="0.1.0", signed_in_as="a.physicist")
+    errors = make_ingest_errors()
+    context = PageContext(
+        facility=FACILITY,
+        software_version="0.1.0",
+        signed_in_as="a.physicist (physicist)",
+        csrf_token=CSRF_TOKEN,
+    )
+    attention = attention_from_flags(
+        [f for f in flags if f["period"] == PERIOD],
+        ingest_errors=errors,
+        exam_types=EXAM_TYPES,
+        period=PERIOD,
+    )
     return {
-        "/": render_overview(groups, period=PERIOD, periods=PERIODS, open_flags=3, context=context),
+        "/": render_overview(
+            groups, period=PERIOD, periods=PERIODS, attention=attention, open_flags=13,
+            exam_types=EXAM_TYPES, context=context,
+        ),
         "/distributions": render_distributions(
-            events, levels=groups, period=PERIOD, periods=PERIODS, context=context
+            events, levels=groups, period=PERIOD, periods=PERIODS, exam_types=EXAM_TYPES,
+            context=context,
+        ),
+        "/distributions-enema": render_distributions(
+            events, levels=groups, exam_type="fluoro_barium_enema", period=PERIOD,
+            periods=PERIODS, exam_types=EXAM_TYPES, context=context,
         ),
         "/rooms/West%20DR%201": render_room(
-            "West DR 1", make_history(), flags=flags, context=context
+            "West DR 1", make_history(), flags=flags, exam_types=EXAM_TYPES, context=context
         ),
-        "/exams/2.25.7311000070": render_exam(make_exam(), context=context),
-        "/flags": render_flags(flags, context=context),
+        "/exams/2.25.7311000070": render_exam(make_exam(), exam_types=EXAM_TYPES, context=context),
+        "/flags": render_flags(flags, can_triage=True, exam_types=EXAM_TYPES, context=context),
+        "/unmapped": render_unmapped(
+            make_unmapped(), period=PERIOD, periods=PERIODS, context=context
+        ),
+        "/ingest-errors": render_ingest_errors(errors, context=context),
         "/login": render_login(error="That token was not accepted.", context=context),
         "/reports/2026-03": render_committee_report(
-            groups,
-            period=PERIOD,
-            method=METHOD,
-            software_version="0.1.0",
-            events=events,
-            flags=flags,
-            facility=FACILITY,
+            groups, period=PERIOD, method=METHOD, software_version="0.1.0", events=events,
+            flags=flags, attention=attention, exam_types=EXAM_TYPES, facility=FACILITY,
         ),
-    }
+    }  # fmt: skip
 
 
 SHOT_NAMES = {
     "/": "overview",
     "/distributions": "distributions",
+    "/distributions-enema": "distributions-enema",
     "/rooms/West%20DR%201": "room",
     "/exams/2.25.7311000070": "exam",
     "/flags": "flags",
+    "/unmapped": "unmapped",
+    "/ingest-errors": "ingest-errors",
     "/login": "login",
     "/reports/2026-03": "report",
 }
@@ -103,13 +138,24 @@ SHOT_NAMES = {
 class _Site:
     base_url: str
     requests: list[str] = field(default_factory=list)
+    #: triage requests the page sent: (path, X-CSRF-Token header, JSON body)
+    patches: list[tuple[str, str, dict[str, Any]]] = field(default_factory=list)
+
+
+def _triage_answer(path: str, body: dict[str, Any]) -> tuple[int, dict[str, Any]]:
+    """What the API answers a triage (its rules: a note is needed to acknowledge or close)."""
+    flag_id = path.rsplit("/", 1)[-1]
+    if body.get("status") in ("acknowledged", "closed") and not (body.get("note") or "").strip():
+        return 422, {"detail": [{"msg": "a note is needed to set a finding acknowledged"}]}
+    return 200, {"id": int(flag_id), "review_run_id": 41, "status": body["status"],
+                 "note": body.get("note"), "kind": "changepoint"}  # fmt: skip
 
 
 def _handler(pages: dict[str, bytes], files: dict[str, bytes], site: _Site) -> type:
     class Handler(http.server.BaseHTTPRequestHandler):
         def do_GET(self) -> None:
             path = self.path.split("?", 1)[0]
-            site.requests.append(path)
+            site.requests.append(self.path)
             if path.startswith("/static/") and path[len("/static/") :] in files:
                 name = path[len("/static/") :]
                 body = files[name]
@@ -119,9 +165,26 @@ def _handler(pages: dict[str, bytes], files: dict[str, bytes], site: _Site) -> t
             else:
                 self.send_error(404)
                 return
-            self.send_response(200)
+            self._send(200, body, kind, cache=path.startswith("/static/"))
+
+        def do_PATCH(self) -> None:
+            length = int(self.headers.get("Content-Length") or 0)
+            body = json.loads(self.rfile.read(length) or b"{}")
+            site.patches.append((self.path, self.headers.get("X-CSRF-Token", ""), body))
+            if not self.path.startswith("/api/v1/reviews/41/flags/"):
+                self.send_error(404)
+                return
+            if self.headers.get("X-CSRF-Token") != CSRF_TOKEN:
+                status, answer = 403, {"detail": "a change made with the session cookie needs "
+                                                 "the X-CSRF-Token header"}  # fmt: skip
+            else:
+                status, answer = _triage_answer(self.path, body)
+            self._send(status, json.dumps(answer).encode(), "application/json")
+
+        def _send(self, status: int, body: bytes, kind: str, *, cache: bool = False) -> None:
+            self.send_response(status)
             self.send_header("Content-Type", kind)
-            if path.startswith("/static/"):
+            if cache:
                 self.send_header("Cache-Control", "max-age=600")  # one parse of plotly.js
             self.send_header("Content-Length", str(len(body)))
             self.end_headers()
@@ -163,7 +226,7 @@ def context() -> Iterator[Any]:
         chromium = pw.chromium.launch(
             executable_path=str(CHROMIUM), headless=True, args=LAUNCH_ARGS
         )
-        shared = chromium.new_context(viewport={"width": 1280, "height": 900})
+        shared = chromium.new_context(viewport={"width": 1400, "height": 900})
         try:
             yield shared  # one context for every page: plotly.js is fetched and parsed once
         finally:
@@ -177,8 +240,9 @@ class _Visit:
     errors: list[str]
 
 
-def _visit(context: Any, url: str) -> _Visit:
+def _visit(context: Any, url: str, size: tuple[int, int] = (1400, 900)) -> _Visit:
     page = context.new_page()
+    page.set_viewport_size({"width": size[0], "height": size[1]})
     page.set_default_timeout(PAGE_TIMEOUT_MS)
     errors: list[str] = []
     page.on("console", lambda m: errors.append(m.text) if m.type == "error" else None)
@@ -187,27 +251,180 @@ def _visit(context: Any, url: str) -> _Visit:
     return _Visit(page, errors)
 
 
+def _wait_for_figures(page: Any, path: str) -> None:
+    expected = page.locator("div.figure").count()
+    if not expected:
+        return
+    page.wait_for_function(
+        "n => document.querySelectorAll('.js-plotly-plot .main-svg').length >= n",
+        arg=expected,
+    )
+    for i in range(expected):
+        figure = page.locator("div.figure").nth(i)
+        assert figure.locator(".main-svg").count() >= 1, f"figure {i} on {path}"
+        assert figure.locator("g.trace, g.heatmaplayer image").count() >= 1 or (
+            figure.locator(".annotation-text").count() >= 1
+        ), f"figure {i} on {path} drew nothing"
+
+
+#: the window sizes every page is looked at in: a laptop's and a desktop's
+SIZES = ((1400, 900), (1920, 1080))
+
+
+@pytest.mark.parametrize("size", SIZES, ids=lambda s: f"{s[0]}x{s[1]}")
 @pytest.mark.parametrize("path", list(SHOT_NAMES), ids=list(SHOT_NAMES.values()))
-def test_page_renders_its_figures_without_errors(context: Any, site: _Site, path: str) -> None:
-    visit = _visit(context, site.base_url + path)
+def test_page_renders_its_figures_without_errors(
+    context: Any, site: _Site, path: str, size: tuple[int, int]
+) -> None:
+    visit = _visit(context, site.base_url + path, size)
     page = visit.page
     try:
-        expected = page.locator("div.figure").count()
-        if expected:
-            page.wait_for_function(
-                "n => document.querySelectorAll('.js-plotly-plot .main-svg').length >= n",
-                arg=expected,
-            )
-            for i in range(expected):
-                figure = page.locator("div.figure").nth(i)
-                assert figure.locator(".main-svg").count() >= 1, f"figure {i} on {path}"
-                assert figure.locator("g.trace, g.heatmaplayer image").count() >= 1 or (
-                    figure.locator(".annotation-text").count() >= 1
-                ), f"figure {i} on {path} drew nothing"
+        _wait_for_figures(page, path)
         assert CAUTION in page.inner_text("p.caution")
+        # nothing wider than the window: no column cut off, no sideways scrolling of the page
+        assert page.evaluate("document.documentElement.scrollWidth") <= size[0], path
         SCREENSHOTS.mkdir(parents=True, exist_ok=True)
-        page.screenshot(path=str(SCREENSHOTS / f"{SHOT_NAMES[path]}.png"), full_page=True)
+        name = f"{SHOT_NAMES[path]}-{size[0]}x{size[1]}"
+        page.screenshot(path=str(SCREENSHOTS / f"{name}.png"), full_page=True)
+        page.screenshot(path=str(SCREENSHOTS / f"{name}-first-screen.png"))
         assert visit.errors == [], visit.errors
+    finally:
+        page.close()
+
+
+def test_the_first_screen_names_the_months_main_findings(context: Any, site: _Site) -> None:
+    # a committee member reads the planted DAP-meter fault, the doubled dose and the 187 Gy·cm²
+    # enema without scrolling a 1400 x 900 window
+    page = _visit(context, site.base_url + "/").page
+    try:
+        wanted = (
+            "West DR 1: reported DAP 1.35 × the reconstruction",
+            "Abdomen AP in West DR 2: monthly median up 2.1 ×",
+            "Barium enema in Fluoro 1: one examination at DAP 187 Gy·cm²",
+        )
+        for words in wanted:
+            line = page.locator("ol.attention-list a.headline", has_text=words)
+            assert line.count() == 1, words
+            box = line.bounding_box()
+            assert box is not None and box["y"] + box["height"] <= 900, (words, box)
+        first = page.locator("ol.attention-list li").first.bounding_box()
+        heatmap = page.locator("#overview-heatmap").bounding_box()
+        assert first is not None and heatmap is not None and first["y"] < heatmap["y"]
+    finally:
+        page.close()
+
+
+def test_the_overview_uses_the_whole_window(context: Any, site: _Site) -> None:
+    page = _visit(context, site.base_url + "/", (1920, 1080)).page
+    try:
+        width = page.evaluate("document.querySelector('main').getBoundingClientRect().width")
+        assert width > 1800  # no column of 1280 px in a wide window
+        _wait_for_figures(page, "/")
+        heat = page.locator("#overview-heatmap .main-svg").first.bounding_box()
+        assert heat is not None and heat["width"] > 1700
+    finally:
+        page.close()
+
+
+def test_heatmap_cells_carry_their_words(context: Any, site: _Site) -> None:
+    page = _visit(context, site.base_url + "/").page
+    try:
+        _wait_for_figures(page, "/")
+        texts = page.eval_on_selector_all(
+            "#overview-heatmap text", "nodes => nodes.map(n => n.textContent)"
+        )
+        assert any(t.startswith("▲") and t.endswith("×") for t in texts)
+        assert "○ too few" in texts
+        assert "Median ÷ level" in texts  # the colour bar's title, without "(1)"
+    finally:
+        page.close()
+
+
+def test_distribution_legend_shows_the_points_symbols(context: Any, site: _Site) -> None:
+    page = _visit(context, site.base_url + "/distributions").page
+    try:
+        _wait_for_figures(page, "/distributions")
+        legend = page.locator("g.legend")
+        assert legend.locator("text", has_text="Standard-size patients").count() == 1
+        assert legend.locator("path.scatterpts").count() >= 2  # the circle and the diamond
+        assert legend.locator("path.legendbox").count() == 0  # not a box's square
+    finally:
+        page.close()
+
+
+def test_choosing_another_examination_opens_its_own_chart(context: Any, site: _Site) -> None:
+    page = _visit(context, site.base_url + "/distributions").page
+    try:
+        site.requests.clear()
+        with page.expect_navigation():
+            page.select_option("select[name=exam_type]", "ct_head")
+        sent = [r for r in site.requests if r.startswith("/distributions?")]
+        assert sent and "exam_type=ct_head" in sent[-1]
+        assert "quantity=" not in sent[-1]  # the new examination takes its own quantity
+    finally:
+        page.close()
+
+
+def _open_triage(page: Any, flag_id: str) -> Any:
+    row = page.locator(f"tr#flag-{flag_id}")
+    row.locator("details.triage summary").click()
+    return row
+
+
+def test_a_physicist_acknowledges_a_finding_with_a_note(context: Any, site: _Site) -> None:
+    page = _visit(context, site.base_url + "/flags").page
+    try:
+        site.patches.clear()
+        row = _open_triage(page, "105")
+        row.locator("textarea[name=note]").fill("AEC dose level raised by the vendor; recalled")
+        row.locator("form.triage-form button").click()
+        page.wait_for_function(
+            "() => document.querySelector('tr#flag-105 .flag-status').textContent === "
+            "'Acknowledged'"
+        )
+        assert site.patches == [
+            (
+                "/api/v1/reviews/41/flags/105",
+                CSRF_TOKEN,
+                {"status": "acknowledged", "note": "AEC dose level raised by the vendor; recalled"},
+            )
+        ]
+        assert "Saved: Acknowledged." in row.locator(".triage-result").inner_text()
+        assert "AEC dose level raised" in row.locator(".note-text").inner_text()
+        assert row.locator("input[value=acknowledged]").is_disabled()
+        assert row.get_attribute("class") == "flag-acknowledged"
+    finally:
+        page.close()
+
+
+def test_triage_without_a_note_is_not_sent(context: Any, site: _Site) -> None:
+    page = _visit(context, site.base_url + "/flags").page
+    try:
+        site.patches.clear()
+        row = _open_triage(page, "106")
+        row.locator("input[value=closed]").check()
+        row.locator("form.triage-form button").click()
+        assert "Say why in the note" in row.locator(".triage-result").inner_text()
+        assert site.patches == []
+        assert row.locator(".flag-status").inner_text() == "Open"
+    finally:
+        page.close()
+
+
+def test_a_refused_triage_says_why(context: Any, site: _Site) -> None:
+    page = _visit(context, site.base_url + "/flags").page
+    try:
+        page.evaluate(
+            "document.querySelector('meta[name=csrf-token]').setAttribute('content', 'stale')"
+        )
+        row = _open_triage(page, "104")
+        row.locator("textarea[name=note]").fill("DAP chamber recalibrated on 2026-04-02")
+        row.locator("form.triage-form button").click()
+        result = row.locator(".triage-result")
+        page.wait_for_function(
+            "el => el.textContent.includes('X-CSRF-Token')", arg=result.element_handle()
+        )
+        assert row.locator(".flag-status").inner_text() == "Open"
     finally:
         page.close()
 
@@ -238,6 +455,20 @@ def test_overview_table_sorts_on_click(context: Any, site: _Site) -> None:
         page.close()
 
 
+def test_report_tables_keep_every_column_on_screen(context: Any, site: _Site) -> None:
+    page = _visit(context, site.base_url + "/reports/2026-03").page
+    try:
+        main = page.locator("main").bounding_box()
+        assert main is not None
+        for i in range(page.locator("main table").count()):
+            box = page.locator("main table").nth(i).bounding_box()
+            assert box is not None and box["x"] + box["width"] <= main["x"] + main["width"] + 1
+        links = page.locator("nav a").evaluate_all("nodes => nodes.map(n => n.textContent)")
+        assert links == ["Overview of 2026-03", "Distributions", "Flags of 2026-03"]
+    finally:
+        page.close()
+
+
 def test_report_asks_for_nothing_else_and_prints(context: Any, site: _Site) -> None:
     site.requests.clear()
     visit = _visit(context, site.base_url + "/reports/2026-03")
@@ -247,6 +478,7 @@ def test_report_asks_for_nothing_else_and_prints(context: Any, site: _Site) -> N
         assert site.requests == ["/reports/2026-03"]  # self-contained: no script, style, image
         page.emulate_media(media="print")
         assert page.is_visible("p.caution")
+        assert not page.is_visible("nav")  # the links back are for the screen
         SCREENSHOTS.mkdir(parents=True, exist_ok=True)
         page.screenshot(path=str(SCREENSHOTS / "report-print.png"), full_page=True)
         pdf = page.pdf(format="A4", print_background=True)

@@ -9,7 +9,17 @@ import pandas as pd
 import pytest
 
 from beamaudit.dashboards.errors import DashboardError, TableError
-from beamaudit.dashboards.tables import EVENTS, FLAGS, GROUPS, LEVELS, ROOM_HISTORY
+from beamaudit.dashboards.tables import (
+    ATTENTION,
+    EVENTS,
+    EXAM_TYPES,
+    FLAGS,
+    GROUPS,
+    INGEST_ERRORS,
+    LEVELS,
+    ROOM_HISTORY,
+    UNMAPPED,
+)
 from beamaudit.dashboards.wording import quantity_unit
 
 Rows = list[dict[str, Any]]
@@ -64,7 +74,7 @@ def test_missing_columns_are_named(demo_groups: Rows) -> None:
         ("n", 30.5, "column 'n': not a whole number"),
         ("median", -1.0, "column 'median': value below 0"),
         ("status", "above", "'above' not among"),
-        ("level_kind", "regional", "'regional' not among 'local', 'national'"),
+        ("level_kind", "regional", "'regional' not among 'local', 'national', 'international'"),
         ("room", None, "column 'room': empty value in row\\(s\\) \\[1\\]"),
         ("room", "  ", "column 'room': empty value"),
         ("quantity", "dap", "'quantity' must be a field name ending in its unit"),
@@ -130,3 +140,27 @@ def test_every_number_column_carries_its_unit(spec: Any) -> None:
         assert column.description
         if column.kind == "float" and column.unit not in ("1", "quantity"):
             assert quantity_unit(column.name), column.name  # e.g. patient_weight_kg
+
+
+@pytest.mark.parametrize(
+    "spec", [ATTENTION, EXAM_TYPES, INGEST_ERRORS, UNMAPPED], ids=lambda s: s.name
+)
+def test_the_new_contracts_describe_every_column(spec: Any) -> None:
+    for column in spec.columns:
+        assert column.description
+        if column.kind == "float" and column.unit not in ("1", "quantity"):
+            assert quantity_unit(column.name), column.name
+
+
+def test_international_guidance_is_a_level_kind(demo_groups: Rows) -> None:
+    rows = [g for g in demo_groups if g["level_kind"] == "international"]
+    assert rows and set(GROUPS.validate(rows)["level_kind"]) == {"international"}
+
+
+def test_a_flag_carries_its_numbers_as_a_mapping(demo_flags: Rows) -> None:
+    table = FLAGS.validate(demo_flags)
+    assert table.loc[0, "numbers"]["ratio_to_level"] == pytest.approx(1.283)
+    bad = copy.deepcopy(demo_flags)
+    bad[0]["numbers"] = [1, 2]
+    with pytest.raises(TableError, match=r"column 'numbers': not a mapping of names to values"):
+        FLAGS.validate(bad)

@@ -1,0 +1,154 @@
+"""An examination's drill-down as the page shows it: readable names, numbers rounded with units.
+
+Package-internal, used by :func:`beamaudit.dashboards.pages.render_exam`.
+"""
+
+from __future__ import annotations
+
+import math
+from typing import Any
+
+import pandas as pd
+
+from beamaudit.dashboards import _web, figures
+from beamaudit.dashboards.records import DoseFigure, ExamDetail, Exposure, WhyStep
+from beamaudit.dashboards.rounding import (
+    EMPTY,
+    format_estimate,
+    format_number,
+    format_quantity,
+    is_number,
+)
+from beamaudit.dashboards.wording import quantity_label, user_text
+
+__all__ = ["exposure_views", "info_lines", "standard_words"]
+
+#: info keys that repeat what the page states itself (the number of exposures)
+_REPEATED_INFO = frozenset({"events", "exposures", "number of events", "number of exposures"})
+#: trail inputs that qualify the step's own value rather than name another quantity
+_UNCERTAINTY = "standard_uncertainty"
+_RELATIVE = "model_relative_uncertainty"
+
+
+def _unit(unit: str) -> str:
+    return "" if unit in ("1", "") else unit
+
+
+def info_lines(detail: ExamDetail) -> list[tuple[str, str]]:
+    """The header's extra lines, without one that repeats the number of exposures."""
+    out = []
+    for label, value in detail.info:
+        if label.strip().lower() in _REPEATED_INFO:
+            continue
+        words = label.replace("_", " ").strip()
+        out.append((words[:1].upper() + words[1:], value or EMPTY))
+    return out
+
+
+def _in_time_order(exposures: tuple[Exposure, ...]) -> list[Exposure]:
+    def key(item: tuple[int, Exposure]) -> tuple[int, Any, int]:
+        i, e = item
+        return (e.event_datetime is None, e.event_datetime or pd.Timestamp(0, tz="UTC"), i)
+
+    return [e for _, e in sorted(enumerate(exposures), key=key)]
+
+
+def _technique(technique: tuple[tuple[str, Any], ...]) -> list[tuple[str, str]]:
+    rows = []
+    for name, value in technique:
+        if isinstance(value, bool) or value is None:
+            shown = {True: "yes", False: "no", None: EMPTY}[value]
+        elif is_number(value):
+            shown = format_quantity(value, name)
+        else:
+            shown = str(value)
+        rows.append((quantity_label(name, with_unit=False), shown))
+    return rows
+
+
+def _dose(d: DoseFigure) -> dict[str, str]:
+    unit = _unit(d.unit)
+    return {
+        "label": quantity_label(d.name, with_unit=False),
+        "value": format_estimate(d.value, d.uncertainty, d.unit),
+        "unit": unit,
+        "uncertain": "" if d.uncertainty and d.uncertainty > 0 else "not estimated",
+        "reported": format_number(d.reported, d.unit) if d.reported is not None else EMPTY,
+        "ratio": format_number(d.ratio) if d.ratio is not None else EMPTY,
+        "source": user_text(d.source),
+    }
+
+
+def _number_of(text: str) -> float | None:
+    try:
+        value = float(text)
+    except ValueError:
+        return None
+    return value if math.isfinite(value) else None
+
+
+def _input(name: str, text: str) -> str:
+    label = quantity_label(name, with_unit=False)
+    value = _number_of(text) if text else None
+    if name == _RELATIVE and value is not None:
+        return f"{label} {format_number(value * 100, digits=2)} %"
+    if value is not None:
+        return f"{label} {format_quantity(value, name)}"
+    return f"{label}: {text}" if text else label
+
+
+def _step(s: WhyStep) -> dict[str, Any]:
+    inputs = dict(s.inputs)
+    u_text = inputs.pop(_UNCERTAINTY, None)
+    u = _number_of(u_text) if u_text else None
+    unit = _unit(s.unit)
+    if s.value is None:
+        value = ""
+    else:
+        value = format_estimate(s.value, u, s.unit) + (f" {unit}" if unit else "")
+    return {
+        "label": quantity_label(s.quantity, with_unit=False),
+        "value": value,
+        "no_uncertainty": u is not None and u <= 0,
+        "equation": s.equation,
+        "source": user_text(s.source),
+        "inputs": [_input(k, v) for k, v in inputs.items()],
+        "assumed": s.assumed,
+        "assumptions": [user_text(a) for a in s.assumptions],
+    }
+
+
+def exposure_views(detail: ExamDetail) -> list[dict[str, Any]]:
+    """The exposures in time order, each as the template shows it."""
+    views = []
+    for number, exposure in enumerate(_in_time_order(detail.exposures), start=1):
+        technique = dict(exposure.technique)
+        spectrum_block = None
+        if exposure.spectrum is not None:
+            kvp = technique.get("kvp_kv")
+            spectrum_block = _web.figure_block(
+                figures.build_spectrum(
+                    exposure.spectrum,
+                    kvp_kv=float(kvp) if isinstance(kvp, int | float) and is_number(kvp) else None,
+                    title=f"Reconstructed spectrum, exposure {number}",
+                ),
+                f"spectrum-{number}",
+            )
+        views.append(
+            {
+                "number": number,
+                "event_id": exposure.event_id,
+                "when": "–"
+                if exposure.event_datetime is None
+                else exposure.event_datetime.strftime("%Y-%m-%d %H:%M:%S UTC"),
+                "technique": _technique(exposure.technique),
+                "dose": [_dose(d) for d in exposure.dose],
+                "why": [_step(s) for s in exposure.why],
+                "spectrum": spectrum_block,
+            }
+        )
+    return views
+
+
+def standard_words(value: bool | None) -> str:
+    return {True: "yes", False: "no", None: "not known"}[value]
