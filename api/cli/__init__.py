@@ -25,6 +25,7 @@ COMMAND_MODULES = (
     "listen",
     "pull",
     "review",
+    "notify",
     "export",
     "explain",
     "beam",
