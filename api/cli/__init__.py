@@ -32,6 +32,7 @@ COMMAND_MODULES = (
     "dose",
     "mgd",
     "token",
+    "conformance",
     "demo",
 )
 
