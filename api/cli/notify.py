@@ -19,7 +19,7 @@ def send_notifications(store: Any, *, trigger: str, review_run_id: int | None = 
     from beamaudit.api.notify import notify_new_findings
 
     deliveries = notify_new_findings(
-        store.sessions, store.settings, trigger=trigger, review_run_id=review_run_id
+        store.sessions, store.settings.notify, trigger=trigger, review_run_id=review_run_id
     )
     for d in deliveries:
         if d.status == "sent":

@@ -284,7 +284,7 @@ def nightly_command(
     from beamaudit.api.notify import notify_new_findings
 
     deliveries = notify_new_findings(
-        store.sessions, store.settings, trigger="nightly", review_run_id=run_id
+        store.sessions, store.settings.notify, trigger="nightly", review_run_id=run_id
     )
     report["notifications"] = [d.__dict__ for d in deliveries]
     for d in deliveries:

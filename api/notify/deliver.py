@@ -21,7 +21,7 @@ from sqlalchemy.orm import Session, sessionmaker
 
 from beamaudit.api.notify.channels import DeliveryError, post_webhook, send_smtp, write_outbox
 from beamaudit.api.notify.digest import Digest, build_digest
-from beamaudit.api.settings import NotifyRecipient, Settings
+from beamaudit.api.settings import NotifyRecipient, NotifySettings
 from beamaudit.api.store import models as m
 
 __all__ = ["OUTBOX_RECIPIENT", "Delivery", "notify_and_log", "notify_new_findings"]
@@ -55,9 +55,8 @@ class Delivery:
         )
 
 
-def _routes(settings: Settings, name: str, rule: NotifyRecipient) -> list[tuple[str, str]]:
+def _routes(notify: NotifySettings, rule: NotifyRecipient) -> list[tuple[str, str]]:
     """(channel, target) pairs of one recipient."""
-    notify = settings.notify
     routes: list[tuple[str, str]] = []
     if rule.emails:
         if notify.smtp is not None:
@@ -89,7 +88,7 @@ def _attempt(
 
 def notify_new_findings(
     sessions: sessionmaker[Session],
-    settings: Settings,
+    notify: NotifySettings,
     *,
     trigger: str,
     review_run_id: int | None = None,
@@ -100,7 +99,6 @@ def notify_new_findings(
     Never raises for a delivery that failed (its reason is in the result and the log); a
     database that cannot be read raises as usual.
     """
-    notify = settings.notify
     if not notify.enabled:
         return []
     recipients = dict(notify.recipients) or {
@@ -115,9 +113,9 @@ def notify_new_findings(
             )  # fmt: skip
         if digest.quiet and not rule.quiet_digest:
             continue
-        for channel, target in _routes(settings, name, rule):
+        for channel, target in _routes(notify, rule):
             attempts, error = _attempt(
-                _sender(settings, rule, channel, digest), notify.attempts, notify.backoff_s, sleep
+                _sender(notify, rule, channel, digest), notify.attempts, notify.backoff_s, sleep
             )
             delivery = Delivery(
                 name, channel, target, "failed" if error else "sent", digest.total, attempts, error
@@ -139,7 +137,7 @@ def notify_new_findings(
 
 def notify_and_log(
     sessions: sessionmaker[Session],
-    settings: Settings,
+    notify: NotifySettings,
     *,
     trigger: str,
     review_run_id: int | None = None,
@@ -150,7 +148,7 @@ def notify_and_log(
 
     try:
         deliveries = notify_new_findings(
-            sessions, settings, trigger=trigger, review_run_id=review_run_id
+            sessions, notify, trigger=trigger, review_run_id=review_run_id
         )
     except SQLAlchemyError as exc:
         log.warning(
@@ -164,9 +162,8 @@ def notify_and_log(
 
 
 def _sender(
-    settings: Settings, rule: NotifyRecipient, channel: str, digest: Digest
+    notify: NotifySettings, rule: NotifyRecipient, channel: str, digest: Digest
 ) -> Callable[[], object]:
-    notify = settings.notify
     if channel == "smtp":
         assert notify.smtp is not None
         smtp = notify.smtp

@@ -189,7 +189,7 @@ def start_review(
     from beamaudit.api.notify import notify_and_log
 
     background.add_task(
-        notify_and_log, sessions, request.app.state.settings, trigger="review",
+        notify_and_log, sessions, request.app.state.settings.notify, trigger="review",
         review_run_id=run_id,
     )  # fmt: skip
     with sessions() as session:

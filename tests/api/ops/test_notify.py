@@ -80,7 +80,7 @@ def _every_stored_value(sessions: Any) -> str:
 def test_the_outbox_takes_every_new_finding_once_when_nothing_is_configured(store, tmp_path):
     _review(store.session_factory)
     settings = _settings(tmp_path, store)
-    [delivery] = notify_new_findings(store.session_factory, settings, trigger="nightly")
+    [delivery] = notify_new_findings(store.session_factory, settings.notify, trigger="nightly")
     assert (delivery.channel, delivery.status, delivery.findings) == ("outbox", "sent", 3)
     [line] = (tmp_path / "outbox.jsonl").read_text().splitlines()
     digest = json.loads(line)
@@ -91,9 +91,9 @@ def test_the_outbox_takes_every_new_finding_once_when_nothing_is_configured(stor
     )
     assert "Every dose figure" in digest["caution"]
     assert STUDY_UID not in line and "study_uid" not in line  # no patient identifier
-    assert notify_new_findings(store.session_factory, settings, trigger="nightly") == []
+    assert notify_new_findings(store.session_factory, settings.notify, trigger="nightly") == []
     _review(store.session_factory)  # the same findings found again: nothing new
-    assert notify_new_findings(store.session_factory, settings, trigger="nightly") == []
+    assert notify_new_findings(store.session_factory, settings.notify, trigger="nightly") == []
 
 
 def test_rules_choose_kinds_severities_and_rooms_per_recipient(store, tmp_path):
@@ -103,13 +103,13 @@ def test_rules_choose_kinds_severities_and_rooms_per_recipient(store, tmp_path):
         "rad_b": {"role": "room lead", "rooms": ["RAD B"], "min_severity": "info"},
         "physics": {"kinds": ["exam_above_investigation_level"], "quiet_digest": True},
     })  # fmt: skip
-    sent = notify_new_findings(store.session_factory, settings, trigger="review")
+    sent = notify_new_findings(store.session_factory, settings.notify, trigger="review")
     assert {(d.recipient, d.findings) for d in sent} == {
         ("committee", 1),
         ("rad_b", 2),
         ("physics", 1),
     }
-    again = notify_new_findings(store.session_factory, settings, trigger="review")
+    again = notify_new_findings(store.session_factory, settings.notify, trigger="review")
     assert [(d.recipient, d.findings) for d in again] == [("physics", 0)]  # quiet digest asked
 
 
@@ -122,7 +122,7 @@ def test_smtp_with_starttls_and_login_on_loopback(store, tmp_path, caplog):
             "username": "beamaudit", "password": PASSWORD,
             "sender": "beamaudit@hollowbrook.example", "ca_file": str(peer.cert),
         }, recipients={"physics": {"emails": ["physics@hollowbrook.example"]}})  # fmt: skip
-        [delivery] = notify_new_findings(store.session_factory, settings, trigger="nightly")
+        [delivery] = notify_new_findings(store.session_factory, settings.notify, trigger="nightly")
     assert delivery.status == "sent", delivery.error
     assert peer.logins == ["beamaudit"]
     [envelope] = peer.messages
@@ -147,7 +147,7 @@ def test_a_mail_server_down_costs_one_line_after_the_retries(store, tmp_path):
         "host": "127.0.0.1", "port": free_port(), "sender": "beamaudit@hollowbrook.example",
     }, recipients={"physics": {"emails": ["physics@hollowbrook.example"]}})  # fmt: skip
     [delivery] = notify_new_findings(
-        store.session_factory, settings, trigger="nightly", sleep=waits.append
+        store.session_factory, settings.notify, trigger="nightly", sleep=waits.append
     )
     assert (delivery.status, delivery.attempts, waits) == ("failed", 3, [0.5, 1.0])
     assert "\n" not in delivery.line()
@@ -169,7 +169,7 @@ def test_a_refused_login_is_not_retried(store, tmp_path):
             "ca_file": str(peer.cert),
         }, recipients={"physics": {"emails": ["physics@hollowbrook.example"]}})  # fmt: skip
         [delivery] = notify_new_findings(
-            store.session_factory, settings, trigger="nightly", sleep=waits.append
+            store.session_factory, settings.notify, trigger="nightly", sleep=waits.append
         )
     assert (delivery.status, delivery.attempts, waits) == ("failed", 1, [])
     assert "refused the login (535)" in (delivery.error or "")
@@ -187,7 +187,7 @@ def test_webhook_signed_and_retried_after_503(store, tmp_path, caplog, monkeypat
         })  # fmt: skip
         assert settings.notify.recipients["oncall"].webhook.key() == SECRET.encode()  # from env
         [delivery] = notify_new_findings(
-            store.session_factory, settings, trigger="nightly", sleep=waits.append
+            store.session_factory, settings.notify, trigger="nightly", sleep=waits.append
         )
     assert (delivery.status, delivery.attempts, waits) == ("sent", 2, [0.5])
     assert peer.verdicts == ["good", "good"]
@@ -202,14 +202,14 @@ def test_a_webhook_with_another_secret_refuses_and_the_findings_stay_new(store, 
     with webhook_receiver(b"the receiver's own secret") as peer:
         settings = _settings(tmp_path, store, recipients={
             "oncall": {"webhook": {"url": peer.url, "secret": SECRET}}})  # fmt: skip
-        [failed] = notify_new_findings(store.session_factory, settings, trigger="nightly")
+        [failed] = notify_new_findings(store.session_factory, settings.notify, trigger="nightly")
         assert (failed.status, failed.attempts, peer.verdicts) == ("failed", 1, ["bad signature"])
         origin = peer.url.rsplit("/hooks", 1)[0]
         assert failed.error == f"the webhook {origin} answered 401"
     with webhook_receiver(SECRET.encode()) as peer:
         settings = _settings(tmp_path, store, recipients={
             "oncall": {"webhook": {"url": peer.url, "secret": SECRET}}})  # fmt: skip
-        [sent] = notify_new_findings(store.session_factory, settings, trigger="nightly")
+        [sent] = notify_new_findings(store.session_factory, settings.notify, trigger="nightly")
     assert (sent.status, sent.findings) == ("sent", 2)  # the same findings, sent this time
 
 
