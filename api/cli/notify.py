@@ -16,7 +16,7 @@ __all__ = ["register", "send_notifications"]
 def send_notifications(store: Any, *, trigger: str, review_run_id: int | None = None) -> bool:
     """Send every recipient's digest; one line per delivery (failures on stderr). True when
     every delivery went through. Never raises for a failed delivery: the review is stored."""
-    from beamaudit.api.notify import notify_new_findings
+    from beamaudit.api.runs.notify import notify_new_findings
 
     deliveries = notify_new_findings(
         store.sessions, store.settings.notify, trigger=trigger, review_run_id=review_run_id
@@ -43,7 +43,7 @@ def notify_command(
 
     store = open_store(ctx)
     if dry_run:
-        from beamaudit.api.notify import OUTBOX_RECIPIENT, build_digest
+        from beamaudit.api.runs.notify import OUTBOX_RECIPIENT, build_digest
         from beamaudit.api.settings import NotifyRecipient
 
         notify = store.settings.notify

@@ -22,9 +22,8 @@ def serve_command(
 
     import uvicorn
 
-    from beamaudit.api.app import create_app
     from beamaudit.api.logs import configure_logging
-    from beamaudit.api.runs import fail_interrupted_runs
+    from beamaudit.api.runs.record import fail_interrupted_runs
     from beamaudit.api.store import (
         StoreError,
         check_connection,
@@ -32,6 +31,7 @@ def serve_command(
         make_session_factory,
         upgrade,
     )
+    from beamaudit.api.web.app import create_app
 
     settings = load_settings(ctx)
     try:
@@ -46,7 +46,7 @@ def serve_command(
     console.print(f"beamaudit serving on http://{host}:{port}/ (database: {settings.backend})")
     app = create_app(settings, engine=engine)
     if settings.metrics.enabled and settings.metrics.bind:
-        from beamaudit.api.metrics import collector, start_metrics_server
+        from beamaudit.api.web.metrics import collector, start_metrics_server
 
         try:
             start_metrics_server(settings.metrics.bind, collector(app.state.session_factory))

@@ -12,7 +12,7 @@ import pytest
 from pydicom.uid import UID
 from pynetdicom import AE
 
-from beamaudit.api.conformance import conformance_statement, listener_sop_classes
+from beamaudit.api.cli.conformance import conformance_statement, listener_sop_classes
 from beamaudit.ingest.listener import ListenerConfig, StoreOutcome, start_listener
 
 SHIPPED = Path(__file__).parents[3] / "docs" / "DICOM-CONFORMANCE.md"

@@ -14,15 +14,15 @@ from peers import free_port
 from prometheus_client.parser import text_string_to_metric_families
 from pynetdicom import AE
 
-from beamaudit.api.findings import store_flags
-from beamaudit.api.metrics import (
+from beamaudit.api.runs.findings import store_flags
+from beamaudit.api.store import models as m
+from beamaudit.api.web.metrics import (
     AssociationCounter,
     Family,
     collector,
     render,
     start_metrics_server,
 )
-from beamaudit.api.store import models as m
 
 
 def _samples(text: str) -> dict[tuple[str, tuple[tuple[str, str], ...]], float]:

@@ -24,8 +24,8 @@ from notify_peers import smtp_server, webhook_receiver
 from peers import free_port
 from sqlalchemy import select
 
-from beamaudit.api.findings import store_flags
-from beamaudit.api.notify import notify_new_findings, sign, verify_signature
+from beamaudit.api.runs.findings import store_flags
+from beamaudit.api.runs.notify import notify_new_findings, sign, verify_signature
 from beamaudit.api.settings import load
 from beamaudit.api.store import models as m
 
@@ -89,7 +89,7 @@ def test_the_outbox_takes_every_new_finding_once_when_nothing_is_configured(stor
     assert digest["findings"][0]["link"].startswith(
         "https://dose.hollowbrook.example/flags?kind=group_above_level&period=2026-11&room=RAD+A"
     )
-    assert "Every dose figure" in digest["caution"]
+    assert "qualified medical physicist" in digest["caution"]
     assert STUDY_UID not in line and "study_uid" not in line  # no patient identifier
     assert notify_new_findings(store.session_factory, settings.notify, trigger="nightly") == []
     _review(store.session_factory)  # the same findings found again: nothing new
