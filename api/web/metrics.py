@@ -102,52 +102,37 @@ def render(families: Iterable[Family]) -> str:
     return "\n".join(lines) + "\n"
 
 
+def _counts(session: Session, fam: Family, **columns: Any) -> Family:
+    """``fam`` with one sample per group of ``columns`` (label name = column), its row count."""
+    cols = list(columns.values())
+    for *values, n in session.execute(select(*cols, func.count()).group_by(*cols)):
+        fam.add(n, **dict(zip(columns, values, strict=True)))
+    return fam
+
+
+def _count(session: Session, *where: Any, table: Any) -> int:
+    return session.scalar(select(func.count()).select_from(table).where(*where)) or 0
+
+
 def store_families(session: Session) -> list[Family]:
     """Every store-derived metric (see the module docstring)."""
-    fams: list[Family] = []
-
-    received = Family("beamaudit_objects_received_total", "counter",
-                      "DICOM objects stored, by the path they came in by.")  # fmt: skip
-    for via, n in session.execute(
-        select(m.SourceObjectRow.received_via, func.count()).group_by(
-            m.SourceObjectRow.received_via
-        )
-    ):
-        received.add(n, via=via)
-    fams.append(received)
-
-    rejected = Family(
-        "beamaudit_objects_rejected_total", "counter",
-        "Files and objects that could not be used (ingest errors), by path.",
-    )  # fmt: skip
-    for via, n in session.execute(
-        select(m.IngestError.received_via, func.count()).group_by(m.IngestError.received_via)
-    ):
-        rejected.add(n, via=via)
-    fams.append(rejected)
-
-    events = session.scalar(select(func.count()).select_from(m.ExposureEventRow)) or 0
-    fams.append(Family("beamaudit_events_stored_total", "counter",
-                       "Irradiation events stored.").add(events))  # fmt: skip
-    failed = (
-        session.scalar(select(func.count()).where(m.ExposureEventRow.recon_status == "failed")) or 0
-    )
-    fams.append(
-        Family(
-            "beamaudit_reconstruction_failures_total", "counter",
-            "Events whose beam and dose reconstruction failed.",
-        ).add(failed)
-    )  # fmt: skip
-
-    runs = Family("beamaudit_review_runs_total", "counter", "Review runs, by kind and status.")
-    for kind, status, n in session.execute(
-        select(m.ReviewRun.kind, m.ReviewRun.status, func.count()).group_by(
-            m.ReviewRun.kind, m.ReviewRun.status
-        )
-    ):
-        runs.add(n, kind=kind, status=status)
-    fams.append(runs)
-
+    fams = [
+        _counts(session, Family("beamaudit_objects_received_total", "counter",
+                                "DICOM objects stored, by the path they came in by."),
+                via=m.SourceObjectRow.received_via),
+        _counts(session, Family("beamaudit_objects_rejected_total", "counter",
+                                "Files and objects not used (ingest errors), by path."),
+                via=m.IngestError.received_via),
+        Family("beamaudit_events_stored_total", "counter", "Irradiation events stored.")
+        .add(_count(session, table=m.ExposureEventRow)),
+        Family("beamaudit_reconstruction_failures_total", "counter",
+               "Events whose beam and dose reconstruction failed.")
+        .add(_count(session, m.ExposureEventRow.recon_status == "failed",
+                    table=m.ExposureEventRow)),
+        _counts(session, Family("beamaudit_review_runs_total", "counter",
+                                "Review runs, by kind and status."),
+                kind=m.ReviewRun.kind, status=m.ReviewRun.status),
+    ]  # fmt: skip
     durations = [
         (finished - started).total_seconds()
         for started, finished in session.execute(
@@ -157,30 +142,17 @@ def store_families(session: Session) -> list[Family]:
         )
         if finished is not None
     ]
-    fams.append(
+    fams += [
         Family("beamaudit_review_run_duration_seconds", "summary",
                "Seconds finished review runs took.")
-        .add(sum(durations), "_sum").add(len(durations), "_count")
-    )  # fmt: skip
-
-    flags = Family("beamaudit_flags_total", "counter", "Flags raised by review runs.")
-    for kind, severity, n in session.execute(
-        select(m.FlagRow.kind, m.FlagRow.severity, func.count()).group_by(
-            m.FlagRow.kind, m.FlagRow.severity
-        )
-    ):
-        flags.add(n, kind=kind, severity=severity)
-    fams.append(flags)
-
-    findings = Family("beamaudit_findings", "gauge", "Findings, by kind and triage status.")
-    for kind, status, n in session.execute(
-        select(m.Finding.kind, m.Finding.status, func.count()).group_by(
-            m.Finding.kind, m.Finding.status
-        )
-    ):
-        findings.add(n, kind=kind, status=status)
-    fams.append(findings)
-
+        .add(sum(durations), "_sum").add(len(durations), "_count"),
+        _counts(session, Family("beamaudit_flags_total", "counter",
+                                "Flags raised by review runs."),
+                kind=m.FlagRow.kind, severity=m.FlagRow.severity),
+        _counts(session, Family("beamaudit_findings", "gauge",
+                                "Findings, by kind and triage status."),
+                kind=m.Finding.kind, status=m.Finding.status),
+    ]  # fmt: skip
     duration = Family("beamaudit_pull_duration_seconds", "gauge",
                       "Seconds the last pull of each DICOMweb source took.")  # fmt: skip
     errors = Family("beamaudit_pull_errors", "gauge",
@@ -199,16 +171,11 @@ def store_families(session: Session) -> list[Family]:
         if report.get("duration_s") is not None:
             duration.add(float(report["duration_s"]), source=name)
     fams += [duration, errors, when]
-
-    sent = Family("beamaudit_notifications_total", "counter",
-                  "Digests of new findings, by channel and status (sent, failed).")  # fmt: skip
-    for channel, status, n in session.execute(
-        select(
-            m.NotificationDelivery.channel, m.NotificationDelivery.status, func.count()
-        ).group_by(m.NotificationDelivery.channel, m.NotificationDelivery.status)
-    ):
-        sent.add(n, channel=channel, status=status)
-    fams.append(sent)
+    fams.append(
+        _counts(session, Family("beamaudit_notifications_total", "counter",
+                                "Digests of new findings, by channel and status (sent, failed)."),
+                channel=m.NotificationDelivery.channel, status=m.NotificationDelivery.status)
+    )  # fmt: skip
     return fams
 
 
