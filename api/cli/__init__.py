@@ -26,12 +26,14 @@ COMMAND_MODULES = (
     "listen",
     "pull",
     "review",
+    "notify",
     "export",
     "explain",
     "beam",
     "dose",
     "mgd",
     "token",
+    "conformance",
     "demo",
 )
 
@@ -70,10 +72,22 @@ def _root(
         bool,
         typer.Option("--version", callback=_version, is_eager=True, help="Print the version."),
     ] = False,
+    log_format: Annotated[
+        str,
+        typer.Option(
+            "--log-format",
+            envvar="BEAMAUDIT_LOG_FORMAT",
+            help="Log lines as text or json (one JSON object a line); no patient data either way.",
+        ),
+    ] = "text",
 ) -> None:
-    from beamaudit.api.logs import configure_logging
+    from beamaudit.api.cli._common import fail
+    from beamaudit.api.logs import LOG_FORMATS, configure_logging
 
-    configure_logging()  # one line per record; library warnings without data values
+    if log_format not in LOG_FORMATS:
+        fail(f"--log-format must be one of {', '.join(LOG_FORMATS)}, not {log_format!r}")
+    # one line per record; library warnings without data values
+    configure_logging(log_format=log_format)  # type: ignore[arg-type]
     ctx.obj = {"config": config}
 
 
