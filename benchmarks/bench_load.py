@@ -94,11 +94,13 @@ def _wait_dicom(port: int, timeout_s: float = 60.0) -> None:
     """Until a C-ECHO is answered (a bare TCP probe would hold an association slot a while)."""
     from pynetdicom import AE
 
+    from beamaudit.ingest.sender import open_association
+
     ae = AE(ae_title="LOADECHO")
     ae.add_requested_context("1.2.840.10008.1.1")  # Verification, PS3.4 Annex A
     deadline = time.monotonic() + timeout_s
     while time.monotonic() < deadline:
-        assoc = ae.associate(HOST, port, ae_title="BEAMAUDIT")
+        assoc = open_association(ae, HOST, port, ae_title="BEAMAUDIT")
         if assoc.is_established:
             assoc.send_c_echo()
             assoc.release()
@@ -169,10 +171,12 @@ def _baseline(base: str) -> tuple[float, list[float]]:
 def _store_client(port: int, rec: Recorder, seed: int) -> None:
     from pynetdicom import AE
 
+    from beamaudit.ingest.sender import open_association
+
     rng = random.Random(seed)
     ae = AE(ae_title=f"LOAD{seed:02d}")
     ae.add_requested_context(DX, ExplicitVRLittleEndian)
-    assoc = ae.associate(HOST, port, ae_title="BEAMAUDIT")
+    assoc = open_association(ae, HOST, port, ae_title="BEAMAUDIT")
     if not assoc.is_established:
         rec.add(0.0, "association not established")
         return
