@@ -19,12 +19,8 @@ def _imported_after(statement: str) -> list[str]:
 
 
 def test_the_command_line_and_the_store_import_no_heavy_library() -> None:
-    assert (
-        _imported_after(
-            "import beamaudit.api.cli, beamaudit.api.cli._store, beamaudit.api.runs, beamaudit.api.logs"
-        )
-        == []
-    )
+    modules = "beamaudit.api.cli, beamaudit.api.cli._store, beamaudit.api.runs, beamaudit.api.logs"
+    assert _imported_after(f"import {modules}") == []
 
 
 def test_the_packages_load_their_parts_on_first_use() -> None:
