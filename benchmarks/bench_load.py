@@ -109,6 +109,19 @@ def _wait_dicom(port: int, timeout_s: float = 60.0) -> None:
     raise SystemExit(f"no DICOM listener on {HOST}:{port}")
 
 
+def service_env(work: Path, database: str) -> tuple[dict[str, str], list[str]]:
+    """The environment of a benchmark's ``beamaudit`` processes, with their store migrated (the
+    SQLite file ``work/database``, or ``$BEAMAUDIT_BENCH_DATABASE_URL``), and the command."""
+    env = {k: v for k, v in os.environ.items() if not k.startswith("BEAMAUDIT_")}
+    env["BEAMAUDIT_DATABASE_URL"] = os.environ.get(
+        "BEAMAUDIT_BENCH_DATABASE_URL", f"sqlite:///{work / database}"
+    )
+    env["BEAMAUDIT_SECRET_KEY_PATH"] = str(work / "pseudonym.key")
+    beamaudit = [sys.executable, "-m", "beamaudit"]
+    subprocess.run([*beamaudit, "db", "upgrade"], env=env, check=True, capture_output=True)
+    return env, beamaudit
+
+
 def _percentile(values: list[float], q: float) -> float:
     ordered = sorted(values)
     return ordered[min(len(ordered) - 1, round(q * (len(ordered) - 1)))]
@@ -206,13 +219,7 @@ def main(argv: list[str]) -> int:
     load_s = float(argv[1]) if len(argv) > 1 else LOAD_S
     with tempfile.TemporaryDirectory(prefix="beamaudit-bench-load-") as tmp:
         work = Path(tmp)
-        env = {k: v for k, v in os.environ.items() if not k.startswith("BEAMAUDIT_")}
-        env["BEAMAUDIT_DATABASE_URL"] = os.environ.get(
-            "BEAMAUDIT_BENCH_DATABASE_URL", f"sqlite:///{work / 'load.db'}"
-        )
-        env["BEAMAUDIT_SECRET_KEY_PATH"] = str(work / "pseudonym.key")
-        beamaudit = [sys.executable, "-m", "beamaudit"]
-        subprocess.run([*beamaudit, "db", "upgrade"], env=env, check=True, capture_output=True)
+        env, beamaudit = service_env(work, "load.db")
         made = subprocess.run(
             [*beamaudit, "token", "create", "--role", "physicist", "--name", "load test"],
             env=env, check=True, capture_output=True, text=True,

@@ -12,16 +12,16 @@ Exits 1 when a target is missed. Plain script: ``python benchmarks/bench_startup
 from __future__ import annotations
 
 import argparse
-import os
 import resource
-import signal
-import socket
 import subprocess
 import sys
 import tempfile
 import time
 import urllib.request
 from pathlib import Path
+
+from bench_listener import stop
+from bench_load import _free_port, service_env
 
 TARGET = 3.0
 HOST = "127.0.0.1"
@@ -36,12 +36,6 @@ def _cpu_seconds(cmd: list[str], env: dict[str, str]) -> tuple[float, float]:
     after = resource.getrusage(resource.RUSAGE_CHILDREN)
     cpu = (after.ru_utime - before.ru_utime) + (after.ru_stime - before.ru_stime)
     return cpu, wall
-
-
-def _free_port() -> int:
-    with socket.socket() as sock:
-        sock.bind((HOST, 0))
-        return int(sock.getsockname()[1])
 
 
 def _serve_seconds(beamaudit: list[str], env: dict[str, str]) -> float:
@@ -62,12 +56,7 @@ def _serve_seconds(beamaudit: list[str], env: dict[str, str]) -> float:
                 time.sleep(0.02)
         raise SystemExit("beamaudit serve did not answer in 120 s")
     finally:
-        server.send_signal(signal.SIGINT)
-        try:
-            server.wait(timeout=20)
-        except subprocess.TimeoutExpired:
-            server.kill()
-            server.wait()
+        stop(server)
 
 
 def main(argv: list[str] | None = None) -> int:
@@ -76,11 +65,7 @@ def main(argv: list[str] | None = None) -> int:
     args = parser.parse_args(argv)
     with tempfile.TemporaryDirectory(prefix="beamaudit-bench-startup-") as tmp:
         work = Path(tmp)
-        env = {k: v for k, v in os.environ.items() if not k.startswith("BEAMAUDIT_")}
-        env["BEAMAUDIT_DATABASE_URL"] = f"sqlite:///{work / 'small.db'}"
-        env["BEAMAUDIT_SECRET_KEY_PATH"] = str(work / "pseudonym.key")
-        beamaudit = [sys.executable, "-m", "beamaudit"]
-        subprocess.run([*beamaudit, "db", "upgrade"], env=env, check=True, capture_output=True)
+        env, beamaudit = service_env(work, "small.db")
         commands = {
             "baseline: python -c 'import sqlalchemy'": [sys.executable, "-c", "import sqlalchemy"],
             "beamaudit --help": [*beamaudit, "--help"],

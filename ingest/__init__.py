@@ -24,8 +24,9 @@ Examples
 120.0
 """
 
-import importlib
-from typing import TYPE_CHECKING, Any
+from typing import TYPE_CHECKING
+
+from beamaudit import lazy_exports
 
 if TYPE_CHECKING:
     from .errors import ERROR_CODES, IngestError
@@ -119,14 +120,4 @@ __all__ = [
 ]
 
 
-def __getattr__(name: str) -> Any:
-    module = _LAZY.get(name)
-    if module is None:
-        raise AttributeError(f"module {__name__!r} has no attribute {name!r}")
-    value = getattr(importlib.import_module(module), name)
-    globals()[name] = value
-    return value
-
-
-def __dir__() -> list[str]:
-    return sorted({*globals(), *__all__})
+__getattr__ = lazy_exports(__name__, _LAZY)

@@ -18,8 +18,9 @@ Every figure is an estimate for quality assurance and optimisation; clinical dec
 qualified medical physicist, and local regulations take precedence.
 """
 
-import importlib
-from typing import TYPE_CHECKING, Any
+from typing import TYPE_CHECKING
+
+from beamaudit import lazy_exports
 
 if TYPE_CHECKING:
     from beamaudit.api.review.bands import (
@@ -159,14 +160,4 @@ __all__ = [
 ]
 
 
-def __getattr__(name: str) -> Any:
-    module = _LAZY.get(name)
-    if module is None:
-        raise AttributeError(f"module {__name__!r} has no attribute {name!r}")
-    value = getattr(importlib.import_module(module), name)
-    globals()[name] = value
-    return value
-
-
-def __dir__() -> list[str]:
-    return sorted({*globals(), *__all__})
+__getattr__ = lazy_exports(__name__, _LAZY)
