@@ -24,7 +24,6 @@ import json
 import logging
 import multiprocessing
 import multiprocessing.context
-import socket
 import time
 from collections import Counter
 from collections.abc import Iterator
@@ -295,21 +294,18 @@ def _send_cstore(files: list[Path], port: int, sop_classes: list[str]) -> Counte
     from pydicom.uid import ExplicitVRLittleEndian
     from pynetdicom import AE
 
+    from beamaudit.ingest.sender import open_association
+
     counts: Counter[str] = Counter()
     if not files:
         return counts
     ae = AE(ae_title=_CALLING_AE)
     for uid in sop_classes:
         ae.add_requested_context(uid, [ExplicitVRLittleEndian])
-    assoc = ae.associate("127.0.0.1", port, ae_title=_CALLED_AE)
+    assoc = open_association(ae, "127.0.0.1", port, ae_title=_CALLED_AE)
     if not assoc.is_established:
         raise DemoError("the demo could not open an association with its own listener")
     try:
-        # a request goes out as several writes (command, then data set): without TCP_NODELAY
-        # Nagle's algorithm holds the data set until the peer's delayed ACK (about 40 ms each)
-        sock = getattr(getattr(assoc.dul, "socket", None), "socket", None)
-        if sock is not None:
-            sock.setsockopt(socket.IPPROTO_TCP, socket.TCP_NODELAY, 1)
         for path in files:
             status = assoc.send_c_store(path)
             code = int(getattr(status, "Status", 0xFFFF))
