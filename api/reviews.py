@@ -749,6 +749,7 @@ def ensure_catalogue(
                     exam_type=r.exam_type,
                     patterns=dict(r.patterns),
                     note=r.note,
+                    clinical_indication=r.clinical_indication or None,
                 )
             )
         session.flush()
@@ -1032,11 +1033,7 @@ def store_level_sets(
         A set version that is stored already, or an exam type the catalogue lacks.
     """
     from beamaudit.api.review import ReviewError
-    from beamaudit.api.review.levels import levels_the_store_cannot_keep
 
-    refusal = levels_the_store_cannot_keep(sets)
-    if refusal is not None:
-        raise ReviewError(refusal)
     catalogue, _ = ensure_catalogue(session)
     known = {t.exam_type for t in catalogue.types}
     rows = []
@@ -1065,6 +1062,7 @@ def store_level_sets(
             m.ReferenceLevelRow(
                 set_id=row.id, exam_type=e.exam_type, quantity=e.quantity,
                 value=e.value, unit=e.unit, source=e.source or None,
+                patient_group=e.patient_group, clinical_indication=e.clinical_indication,
             )
             for e in s.entries
         )  # fmt: skip

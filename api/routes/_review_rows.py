@@ -69,7 +69,13 @@ def rules_from_store(session: Session) -> MappingRules:
     rows = session.scalars(select(m.MappingRuleRow).order_by(m.MappingRuleRow.priority))
     return MappingRules(
         rules=tuple(
-            MappingRule(r.priority, r.exam_type, tuple((r.patterns or {}).items()), r.note or "")
+            MappingRule(
+                r.priority,
+                r.exam_type,
+                tuple((r.patterns or {}).items()),
+                r.note or "",
+                clinical_indication=r.clinical_indication or "",
+            )
             for r in rows
         ),
         source="the store",
@@ -86,7 +92,15 @@ def level_set_from_rows(
         effective_from=row.effective_from,
         source=row.source or "",
         entries=tuple(
-            LevelEntry(l.exam_type, l.quantity, l.value, l.unit, l.source or "")
+            LevelEntry(
+                l.exam_type,
+                l.quantity,
+                l.value,
+                l.unit,
+                l.source or "",
+                patient_group=l.patient_group or "",
+                clinical_indication=l.clinical_indication or "",
+            )
             for l in levels  # noqa: E741
         ),
     )
@@ -105,7 +119,9 @@ def level_sets_from_store(
     out = []
     for row in session.scalars(stmt):
         levels = session.scalars(
-            select(L).where(L.set_id == row.id).order_by(L.exam_type, L.quantity)
+            select(L)
+            .where(L.set_id == row.id)
+            .order_by(L.exam_type, L.quantity, L.patient_group, L.clinical_indication)
         )
         out.append((row, level_set_from_rows(row, levels)))
     return out

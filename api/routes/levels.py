@@ -24,7 +24,6 @@ from beamaudit.api.review.levels import (
     LevelKind,
     ReferenceLevelSet,
     check_level_sets,
-    levels_the_store_cannot_keep,
     read_levels_csv,
     write_levels_csv,
 )
@@ -70,7 +69,11 @@ L = m.ReferenceLevelRow
 
 def _levels(session: Session, set_id: int) -> list[m.ReferenceLevelRow]:
     return list(
-        session.scalars(select(L).where(L.set_id == set_id).order_by(L.exam_type, L.quantity))
+        session.scalars(
+            select(L)
+            .where(L.set_id == set_id)
+            .order_by(L.exam_type, L.quantity, L.patient_group, L.clinical_indication)
+        )
     )
 
 
@@ -125,7 +128,15 @@ def _candidate(body: LevelSetCreate) -> ReferenceLevelSet:
         effective_from=body.effective_from,
         source=body.source or "",
         entries=tuple(
-            LevelEntry(x.exam_type, x.quantity, x.value, x.unit or "", x.source or "")
+            LevelEntry(
+                x.exam_type,
+                x.quantity,
+                x.value,
+                x.unit or "",
+                x.source or "",
+                patient_group=x.patient_group,
+                clinical_indication=x.clinical_indication,
+            )
             for x in body.levels
         ),
     )
@@ -203,9 +214,6 @@ def export_level_sets_csv(
 def _import(session: Session, who: Principal, data: bytes) -> list[LevelSetRead]:
     try:
         sets = read_levels_csv(io.BytesIO(data), catalogue_from_store(session))
-        refusal = levels_the_store_cannot_keep(sets)
-        if refusal is not None:
-            raise CsvFormatError("<request body>", [(None, refusal)])
     except CsvFormatError as exc:
         csv_invalid(exc)
     rows = []
@@ -223,6 +231,8 @@ def _import(session: Session, who: Principal, data: bytes) -> list[LevelSetRead]
                     value=e.value,
                     unit=e.unit,
                     source=e.source or None,
+                    patient_group=e.patient_group,
+                    clinical_indication=e.clinical_indication,
                 )
                 for e in s.entries
             ],
