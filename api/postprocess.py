@@ -1,4 +1,5 @@
-"""What happens to new events: exam-type mapping, then reconstruction.
+"""What happens to new events: exam-type mapping (and the rule's clinical indication), then
+reconstruction and the effective-dose estimate (:mod:`beamaudit.api.effective_doses`).
 
 Two ways to the same columns:
 
@@ -51,13 +52,16 @@ _RULE_INPUTS = (
 
 def process_new_events(sessions: sessionmaker[Session], event_ids: Sequence[int]) -> ReconSummary:
     """Map the events to exam types (stored rules) and reconstruct their dose figures."""
+    from beamaudit.api.effective_doses import fill_effective_doses
     from beamaudit.api.reviews import map_stored_events
 
     ids = list(event_ids)
     for start in range(0, len(ids), CHUNK):
         with sessions.begin() as session:
             map_stored_events(session, ids[start : start + CHUNK])
-    return reconstruct_events(sessions, ids)
+    summary = reconstruct_events(sessions, ids)
+    fill_effective_doses(sessions, ids)
+    return summary
 
 
 class Completion:
@@ -73,7 +77,8 @@ class Completion:
     def __init__(self) -> None:
         self._rules_key: tuple[Any, ...] | None = None
         self._rules: Any = None
-        self._exam_types: dict[tuple[str | None, ...], str | None] = {}
+        #: (exam type, clinical indication) of each combination of raw values
+        self._exam_types: dict[tuple[str | None, ...], tuple[str | None, str | None]] = {}
         self._beams = RoomBeams().cache
         self._lock = threading.Lock()  # a listener stores from several threads
         self.summary = ReconSummary()
@@ -108,6 +113,10 @@ class Completion:
             row.update(FIGURES_CLEARED)  # every row the same columns (one executemany)
             row.update(values)
             self.summary.add(values["recon_status"])
+        from beamaudit.api.effective_doses import effective_dose_values
+
+        for row, values in zip(rows, effective_dose_values(rows), strict=True):
+            row.update(values)
 
     def _map(self, session: Session, rows: list[dict[str, Any]], room_ids: set[int]) -> None:
         rules = self._current_rules(session)
@@ -119,13 +128,19 @@ class Completion:
         if unknown:
             import pandas as pd
 
-            from beamaudit.api.review import map_events
+            from beamaudit.api.review.examtypes import map_events_with_indication
 
             frame = pd.DataFrame(unknown, columns=[*_RULE_INPUTS, "room"], dtype=object)
-            for key, exam_type in zip(unknown, map_events(frame, rules), strict=True):
-                self._exam_types[key] = None if exam_type is None else str(exam_type)
+            mapped = map_events_with_indication(frame, rules)
+            for key, exam_type, indication in zip(
+                unknown, mapped["exam_type"], mapped["clinical_indication"], strict=True
+            ):
+                self._exam_types[key] = (
+                    None if exam_type is None else str(exam_type),
+                    None if exam_type is None or indication is None else str(indication),
+                )
         for row, key in zip(rows, keys, strict=True):
-            row["exam_type"] = self._exam_types[key]
+            row["exam_type"], row["clinical_indication"] = self._exam_types[key]
 
     def _current_rules(self, session: Session) -> Any:
         """The stored rules (the shipped ones seeded into an empty store), read per batch."""
@@ -133,7 +148,8 @@ class Completion:
         stored = tuple(
             tuple(r)
             for r in session.connection().exec_driver_sql(
-                "SELECT priority, exam_type, CAST(patterns AS TEXT), note FROM mapping_rules "
+                "SELECT priority, exam_type, CAST(patterns AS TEXT), note, clinical_indication "
+                "FROM mapping_rules "
                 "ORDER BY priority"
             )
         )

@@ -58,9 +58,9 @@ from beamaudit.api.review import (
     ReviewResult,
     load_default_catalogue,
     load_default_rules,
-    map_events,
     review,
 )
+from beamaudit.api.review.examtypes import map_events_with_indication
 from beamaudit.api.routes._review_rows import (
     catalogue_from_store,
     exam_type_row_values,
@@ -83,6 +83,7 @@ __all__ = [
     "events_frame",
     "map_stored_events",
     "month_period",
+    "period_conditions",
     "review_events",
     "run_review",
     "stored_flags_frame",
@@ -101,6 +102,7 @@ _DENSE_SELECT: tuple[Any, ...] = (
     _E.modality,
     _E.exam_type,
     _E.patient_weight_kg,
+    _E.patient_age_years,
     _E.dap_gy_cm2,
     _E.recon_dap_gy_cm2,
     _E.recon_esak_mgy.label("esak_mgy"),
@@ -127,6 +129,7 @@ _TEXT_COLUMNS: tuple[tuple[str, Any], ...] = tuple(
 )
 _FLOAT_NAMES = (
     "patient_weight_kg",
+    "patient_age_years",
     "dap_gy_cm2",
     "recon_dap_gy_cm2",
     "esak_mgy",
@@ -224,6 +227,15 @@ def _period_conditions(
     else:
         values = {"t0": t0, "t1": t1}
     return conditions, epoch, values
+
+
+def period_conditions(
+    session: Session, *, start: date, end: date
+) -> tuple[list[Any], Any, dict[str, Any]]:
+    """The WHERE conditions of the events a review of ``[start, end)`` reads (superseded events
+    and repeated CT slices left out), their time as seconds since the epoch, and the values of
+    the conditions' parameters for the DBAPI cursor (pass typed datetimes to a session)."""
+    return _period_conditions(session, start=start, end=end)
 
 
 #: Ids per ``IN`` list (SQLite's default limit on parameters is 32766 since 3.32).
@@ -708,6 +720,16 @@ def review_events(session: Session, *, start: date, end: date) -> pd.DataFrame:
             column[at] = sparse[found, 1 + offset].astype(np.float64)
             columns[name] = column
     del dense
+    # the clinical indication: few events carry one (a rule set it), read for those only
+    indication = np.full(n, None, dtype=object)
+    marked = _fetch(
+        session,
+        select(E.id, E.clinical_indication).where(*conditions, E.clinical_indication.is_not(None)),
+        values,
+    )
+    at, found = _positions(event_ids, marked[:, 0])
+    indication[at] = marked[found, 1]
+    columns["clinical_indication"] = indication
     text_columns = {name: np.full(n, None, dtype=object) for name, _ in _TEXT_COLUMNS}
     unmapped = event_ids[pd.isna(columns["exam_type"])]
     for first in range(0, len(unmapped), _IDS_PER_QUERY):  # by id: exactly the events read
@@ -790,22 +812,25 @@ def map_stored_events(session: Session, event_ids: list[int] | None = None) -> i
     rooms, _ = _names(session)
     frame = pd.DataFrame(rows, columns=[c.key for c in cols])
     frame["room"] = [rooms.get(i, ("", ""))[0] if pd.notna(i) else None for i in frame["room_id"]]
-    mapped = map_events(frame, rules)
+    mapped = map_events_with_indication(frame, rules)
     events_table = m.ExposureEventRow.__table__
     assert isinstance(events_table, Table)  # a declarative class maps one Table
-    by_value: dict[str | None, list[int]] = {}
-    for event_id, exam_type in zip(frame["id"], mapped, strict=True):
+    by_value: dict[tuple[str | None, str | None], list[int]] = {}
+    for event_id, exam_type, indication in zip(
+        frame["id"], mapped["exam_type"], mapped["clinical_indication"], strict=True
+    ):
         value = None if exam_type is None or (isinstance(exam_type, float)) else str(exam_type)
-        by_value.setdefault(value, []).append(int(event_id))
-    # one UPDATE per exam type (in chunks of ids), not one per event
-    for value, ids in by_value.items():
+        why = None if value is None or not isinstance(indication, str) else indication
+        by_value.setdefault((value, why), []).append(int(event_id))
+    # one UPDATE per exam type and indication (in chunks of ids), not one per event
+    for (value, why), ids in by_value.items():
         for start in range(0, len(ids), 900):
             session.execute(
                 events_table.update()
                 .where(m.ExposureEventRow.id.in_(ids[start : start + 900]))
-                .values(exam_type=value)
+                .values(exam_type=value, clinical_indication=why)
             )
-    return sum(len(ids) for value, ids in by_value.items() if value is not None)
+    return sum(len(ids) for (value, _), ids in by_value.items() if value is not None)
 
 
 def _lookback_start(period: Period, months: int) -> date:
