@@ -77,6 +77,11 @@ def _levels(session: Session, set_id: int) -> list[m.ReferenceLevelRow]:
     )
 
 
+def read_set(session: Session, row: m.ReferenceLevelSetRow) -> LevelSetRead:
+    """A stored set version as the API shows it."""
+    return _read(session, row)
+
+
 def _read(session: Session, row: m.ReferenceLevelSetRow) -> LevelSetRead:
     return LevelSetRead(
         id=row.id,
