@@ -16,7 +16,6 @@ from dataclasses import asdict, dataclass
 from datetime import date
 from typing import Any
 
-from sqlalchemy import select
 from sqlalchemy.orm import Session
 
 from beamaudit.api.auth import record_change
@@ -52,18 +51,14 @@ def _key(row: Mapping[str, Any]) -> ProposalKey:
 
 
 def record_run(session: Session, run_id: int | None = None) -> m.ReviewRun | None:
-    """The run ``run_id`` when done, else (None) the newest done whole-site run with a result."""
-    R = m.ReviewRun
-    if run_id is not None:
-        run = session.get(R, run_id)
-        return run if run is not None and run.status == "done" and run.result else None
-    stmt = (
-        select(R)
-        .where(R.status == "done", R.whole_site.is_(True), R.superseded_at.is_(None))
-        .order_by(R.period_end.desc(), R.id.desc())
-        .limit(1)
-    )
-    return session.scalars(stmt).first()
+    """The run ``run_id`` when it is done, else (None) the record of the newest month
+    (:func:`beamaudit.api.runs.record_run`)."""
+    from beamaudit.api.runs import record_run as month_record
+
+    if run_id is None:
+        return month_record(session, None)
+    run = session.get(m.ReviewRun, run_id)
+    return run if run is not None and run.status == "done" and run.result else None
 
 
 def proposal_rows(run: m.ReviewRun) -> list[dict[str, Any]]:
