@@ -28,7 +28,7 @@ from dataclasses import dataclass
 from datetime import UTC, date, datetime, timedelta
 from functools import cache
 from importlib import resources
-from typing import Any
+from typing import Any, cast
 
 import numpy as np
 from sqlalchemy import Table, select
@@ -241,7 +241,7 @@ def recurrent_exposure(
     ).all()
     studies: dict[Any, list[Any]] = {}
     for study_id, event_id, key, event_at, study_at, dose in rows:
-        at = event_at or study_at
+        at = cast(datetime, event_at or study_at)  # the query asks for one of them
         name = study_id if study_id is not None else f"event {event_id}"
         entry = studies.setdefault(name, [key, at, math.nan])
         entry[0] = entry[0] or key

@@ -117,9 +117,10 @@ def adopt_proposals(
     adopted = []
     for k in wanted:
         r = proposed[k]
-        value = r.get("proposed_local_drl")
-        if not _finite(value):
+        raw: Any = r.get("proposed_local_drl")
+        if not _finite(raw):
             raise AdoptionError(f"the proposal for {k.exam_type} {k.quantity} has no value")
+        value = float(raw)
         cite = (
             f"proposed local DRL of review run {run.id} ({run.period}, {site}): 75th percentile "
             f"of {r.get('n_rooms')} room medians (ICRP 135)"
@@ -127,14 +128,14 @@ def adopt_proposals(
         entry = LevelEntry(
             k.exam_type,
             k.quantity,
-            float(value),
+            value,
             str(r.get("unit") or ""),
             cite,
             patient_group=k.patient_group,
             clinical_indication=k.clinical_indication,
         )
         entries[entry.key] = entry
-        adopted.append({**asdict(k), "value": float(value), "n_rooms": r.get("n_rooms")})
+        adopted.append({**asdict(k), "value": value, "n_rooms": r.get("n_rooms")})
     candidate = ReferenceLevelSet(
         name=set_name,
         kind="local",
