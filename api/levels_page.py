@@ -14,6 +14,7 @@ from sqlalchemy.orm import Session
 
 from beamaudit.api.local_levels import proposal_rows, record_run
 from beamaudit.api.review.bands import load_default_patient_groups
+from beamaudit.api.review.levels import levels_in_effect
 from beamaudit.api.review.quantities import QUANTITIES
 from beamaudit.api.routes._review_rows import catalogue_from_store, level_sets_from_store
 
@@ -21,6 +22,11 @@ __all__ = ["ADOPT_PATH", "levels_page_data"]
 
 #: where the page sends adopted proposals
 ADOPT_PATH = "/api/v1/local-level-proposals/adopt"
+
+
+def _display_unit(name: str, unit: Any) -> str:
+    q = QUANTITIES.get(name)
+    return q.display_unit if q is not None else str(unit or "")
 
 
 def _quantity_label(name: str) -> str:
@@ -41,6 +47,7 @@ def levels_page_data(session: Session, *, physicist: bool, today: date) -> dict[
                 **r,
                 "exam_name": names.get(str(r.get("exam_type")), r.get("exam_type")),
                 "quantity_label": _quantity_label(str(r.get("quantity"))),
+                "unit": _display_unit(str(r.get("quantity")), r.get("unit")),
                 "patient_group_label": bands.label(r.get("patient_group")).replace(
                     "adults and patients of unrecorded age", "adults"
                 ),
@@ -48,8 +55,10 @@ def levels_page_data(session: Session, *, physicist: bool, today: date) -> dict[
         )
     levels = []
     local_names: list[str] = []
-    for row, s in level_sets_from_store(session):
-        if s.effective_from > today:
+    stored = level_sets_from_store(session)
+    in_force = {id(s) for s in levels_in_effect([s for _, s in stored], today)}
+    for _, s in stored:
+        if id(s) not in in_force:
             continue
         if s.kind == "local" and s.name not in local_names:
             local_names.append(s.name)
@@ -67,11 +76,8 @@ def levels_page_data(session: Session, *, physicist: bool, today: date) -> dict[
                     "patient_group": bands.label(e.patient_group) if e.patient_group else "",
                     "clinical_indication": e.clinical_indication,
                     "value": e.value,
-                    "unit": QUANTITIES[e.quantity].display_unit
-                    if e.quantity in QUANTITIES
-                    else e.unit,
+                    "unit": _display_unit(e.quantity, e.unit),
                     "source": e.source,
-                    "_set_id": row.id,
                 }
             )
     recurrent = None

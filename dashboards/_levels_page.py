@@ -115,6 +115,7 @@ def render_levels(
         for x in levels
     ]
     sites = sorted({r["site"] for r in rows if r["proposed"]})
+    every_site = {r["site"] for r in rows}
     patients = []
     if recurrent is not None:
         patients = [
@@ -138,6 +139,7 @@ def render_levels(
         can_adopt=can_adopt and n_proposed > 0,
         adopt_path=adopt_path,
         sites=sites,
+        one_site=next(iter(every_site)) if len(every_site) == 1 else "",
         local_set_names=list(local_set_names),
         recurrent=recurrent,
         patients=patients,
