@@ -21,7 +21,7 @@ from sqlalchemy.orm import Session
 from beamaudit.api.auth import record_change
 from beamaudit.api.review import ReviewError
 from beamaudit.api.review.levels import LevelEntry, ReferenceLevelSet, check_level_sets
-from beamaudit.api.routes._review_rows import level_sets_from_store
+from beamaudit.api.routes._review_rows import level_rows, level_sets_from_store
 from beamaudit.api.store import models as m
 
 __all__ = ["AdoptionError", "ProposalKey", "adopt_proposals", "proposal_rows", "record_run"]
@@ -155,19 +155,7 @@ def adopt_proposals(
     )
     session.add(row)
     session.flush()
-    session.add_all(
-        m.ReferenceLevelRow(
-            set_id=row.id,
-            exam_type=e.exam_type,
-            quantity=e.quantity,
-            value=e.value,
-            unit=e.unit,
-            source=e.source or None,
-            patient_group=e.patient_group,
-            clinical_indication=e.clinical_indication,
-        )
-        for e in candidate.entries
-    )
+    session.add_all(level_rows(row.id, candidate.entries))
     session.flush()
     record_change(
         session,

@@ -64,6 +64,7 @@ from beamaudit.api.review.examtypes import map_events_with_indication
 from beamaudit.api.routes._review_rows import (
     catalogue_from_store,
     exam_type_row_values,
+    level_rows,
     level_sets_from_store,
     rules_from_store,
 )
@@ -1083,14 +1084,7 @@ def store_level_sets(
         )  # fmt: skip
         session.add(row)
         session.flush()
-        session.add_all(
-            m.ReferenceLevelRow(
-                set_id=row.id, exam_type=e.exam_type, quantity=e.quantity,
-                value=e.value, unit=e.unit, source=e.source or None,
-                patient_group=e.patient_group, clinical_indication=e.clinical_indication,
-            )
-            for e in s.entries
-        )  # fmt: skip
+        session.add_all(level_rows(row.id, s.entries))
         record_change(
             session, actor=actor, action="import", entity="reference_level_set", entity_id=row.id,
             after={"name": s.name, "version": s.version, "kind": s.kind, "levels": len(s.entries)},

@@ -41,7 +41,7 @@ def _proposal_row(r: Mapping[str, Any], index: int) -> dict[str, Any]:
         "exam_name": r.get("exam_name") or r.get("exam_type"),
         "indication": r.get("clinical_indication") or "",
         "group": r.get("patient_group") or "",
-        "group_label": r.get("patient_group_label") or "adults",
+        "group_label": r.get("patient_group_label") or r.get("patient_group") or "adults",
         "quantity": r.get("quantity"),
         "quantity_label": r.get("quantity_label") or r.get("quantity"),
         "unit": unit,

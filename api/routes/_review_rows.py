@@ -19,11 +19,14 @@ from beamaudit.api.review.levels import LevelEntry, ReferenceLevelSet
 from beamaudit.api.store import models as m
 
 __all__ = [
+    "LEVEL_FIELDS",
     "catalogue_from_store",
     "exam_type_from_row",
     "exam_type_row_values",
+    "level_rows",
     "level_set_from_rows",
     "level_sets_from_store",
+    "level_values",
     "rules_from_store",
 ]
 
@@ -104,6 +107,30 @@ def level_set_from_rows(
             for l in levels  # noqa: E741
         ),
     )
+
+
+#: what a stored level keeps of its :class:`LevelEntry` (an empty source kept as null)
+LEVEL_FIELDS = (
+    "exam_type",
+    "quantity",
+    "value",
+    "unit",
+    "source",
+    "patient_group",
+    "clinical_indication",
+)
+
+
+def level_values(entry: LevelEntry) -> dict[str, Any]:
+    """The stored columns of ``entry`` (also the fields of the API's level schema)."""
+    values = {name: getattr(entry, name) for name in LEVEL_FIELDS}
+    values["source"] = entry.source or None
+    return values
+
+
+def level_rows(set_id: int, entries: Iterable[LevelEntry]) -> list[m.ReferenceLevelRow]:
+    """The ``reference_levels`` rows that keep ``entries`` in the set ``set_id``."""
+    return [m.ReferenceLevelRow(set_id=set_id, **level_values(e)) for e in entries]
 
 
 def level_sets_from_store(

@@ -46,6 +46,7 @@ from beamaudit.api.routes._review_rows import (
     catalogue_from_store,
     level_set_from_rows,
     level_sets_from_store,
+    level_values,
 )
 from beamaudit.api.routes.catalogue import CatalogueSession
 from beamaudit.api.schemas._base import ShortText
@@ -229,18 +230,7 @@ def _import(session: Session, who: Principal, data: bytes) -> list[LevelSetRead]
             version=s.version,
             effective_from=s.effective_from,
             source=s.source or None,
-            levels=[
-                LevelCreate(
-                    exam_type=e.exam_type,
-                    quantity=e.quantity,
-                    value=e.value,
-                    unit=e.unit,
-                    source=e.source or None,
-                    patient_group=e.patient_group,
-                    clinical_indication=e.clinical_indication,
-                )
-                for e in s.entries
-            ],
+            levels=[LevelCreate(**level_values(e)) for e in s.entries],
         )
         rows.append(_store_set(session, who, body))
     session.commit()

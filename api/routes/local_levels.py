@@ -23,7 +23,8 @@ from beamaudit.api.local_levels import (
     proposal_rows,
     record_run,
 )
-from beamaudit.api.routes._common import AUTH_RESPONSES, CONFLICT, NOT_FOUND
+from beamaudit.api.routes._common import AUTH_RESPONSES, CONFLICT, NOT_FOUND, invalid
+from beamaudit.api.schemas._base import EARLIEST_DATE, LATEST_DATE, MAX_ID
 from beamaudit.api.schemas.levels import LevelSetRead
 from beamaudit.api.schemas.local_levels import ProposalAdopt, ProposalsRead, RecurrentRead
 
@@ -42,7 +43,8 @@ def list_local_level_proposals(
     session: DbSession,
     _: Viewer,
     run_id: Annotated[
-        int | None, Query(ge=1, description="a done run; default the newest whole-site run")
+        int | None,
+        Query(ge=1, le=MAX_ID, description="a done run; default the newest whole-site run"),
     ] = None,
 ) -> ProposalsRead:
     """Typical values and proposed local DRLs of a review run, beside the current levels."""
@@ -113,6 +115,8 @@ def list_recurrent_exposure(
     """Pseudonymised patients whose cumulative effective dose in the window reached the level."""
     from beamaudit.api.effective_doses import recurrent_exposure
 
+    if as_of is not None and not EARLIEST_DATE <= as_of <= LATEST_DATE:
+        invalid(("query", "as_of"), f"as_of must lie between {EARLIEST_DATE} and {LATEST_DATE}")
     found = recurrent_exposure(
         session, as_of=as_of or date.today(), window_years=window_years, level_msv=level_msv
     )

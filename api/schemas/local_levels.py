@@ -9,6 +9,7 @@ from typing import Annotated, Any
 from pydantic import Field
 
 from beamaudit.api.schemas._base import (
+    Id,
     InputModel,
     Name,
     ReadModel,
@@ -50,7 +51,7 @@ class ProposalChoice(InputModel):
 class ProposalAdopt(InputModel):
     """Adopt proposals of one run and site as a new version of a local set (audited)."""
 
-    run_id: int = Field(ge=1)
+    run_id: Id
     site: ShortText
     set_name: Name = Field(description="the local set; a new version of it is stored")
     version: Name

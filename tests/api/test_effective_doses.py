@@ -12,7 +12,7 @@ from typing import Any
 
 import pandas as pd
 import pytest
-from sqlalchemy import insert
+from stored_rows import add_event
 
 from beamaudit.api.effective_doses import effective_dose_values, recurrent_exposure
 from beamaudit.api.store import models as m
@@ -70,20 +70,8 @@ def test_no_estimate_without_a_sourced_coefficient_and_the_reason_is_kept(row, r
 def _exam(sessions: Any, n: int, key: str | None, when: datetime, dose: float | None) -> None:
     """One stored study of one CT event with an effective-dose estimate (invented)."""
     with sessions.begin() as s:
-        s.execute(insert(m.Study), {"id": n, "study_instance_uid": f"2.25.91{n}"})
-        s.execute(
-            insert(m.SourceObjectRow),
-            {"id": n, "sop_instance_uid": f"2.25.92{n}", "sop_class_uid": "1.2.3",
-             "kind": "rdsr", "received_via": "test"},
-        )  # fmt: skip
-        s.execute(
-            insert(m.ExposureEventRow),
-            {"id": n, "event_key": f"k{n}", "source_object_id": n, "study_id": n,
-             "event_index": 0, "source_kind": "rdsr", "superseded": False, "modality": "CT",
-             "exam_type": "ct_abdomen_pelvis", "event_datetime": when,
-             "patient_pseudo_id": key, "effective_dose_msv": dose, "provenance": {},
-             "notes": []},
-        )  # fmt: skip
+        add_event(s, n, study_uid=f"2.25.91{n}", modality="CT", exam_type="ct_abdomen_pelvis",
+                  event_datetime=when, patient_pseudo_id=key, effective_dose_msv=dose)  # fmt: skip
 
 
 def test_the_recurrent_list_sums_a_hand_made_history(store) -> None:

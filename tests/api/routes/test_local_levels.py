@@ -7,6 +7,7 @@ from datetime import UTC, date, datetime
 
 import pytest
 from sqlalchemy import insert, select
+from stored_rows import add_event
 
 from beamaudit.api.store import models as m
 
@@ -101,20 +102,9 @@ def test_what_is_not_proposed_cannot_be_adopted(api, run_id) -> None:
 def test_the_recurrent_list_shows_pseudonyms_counts_and_sums_only(api) -> None:
     with api.store.session_factory.begin() as s:
         for n, dose in enumerate((60.0, 45.0), start=1):
-            s.execute(insert(m.Study), {"id": n, "study_instance_uid": f"2.25.81{n}"})
-            s.execute(
-                insert(m.SourceObjectRow),
-                {"id": n, "sop_instance_uid": f"2.25.82{n}", "sop_class_uid": "1.2.3",
-                 "kind": "rdsr", "received_via": "test"},
-            )  # fmt: skip
-            s.execute(
-                insert(m.ExposureEventRow),
-                {"id": n, "event_key": f"k{n}", "source_object_id": n, "study_id": n,
-                 "event_index": 0, "source_kind": "rdsr", "superseded": False,
-                 "modality": "CT", "event_datetime": datetime(2026, n, 5, tzinfo=UTC),
-                 "patient_pseudo_id": "PSEUDO-R", "effective_dose_msv": dose,
-                 "provenance": {}, "notes": []},
-            )  # fmt: skip
+            when = datetime(2026, n, 5, tzinfo=UTC)
+            add_event(s, n, study_uid=f"2.25.81{n}", modality="CT", event_datetime=when,
+                      patient_pseudo_id="PSEUDO-R", effective_dose_msv=dose)  # fmt: skip
     body = api.get("/recurrent-exposure?as_of=2026-03-01", as_="physicist").json()
     assert [p["patient_key"] for p in body["patients"]] == ["PSEUDO-R"]
     assert body["patients"][0]["cumulative_dose_msv"] == 105.0
@@ -124,3 +114,4 @@ def test_the_recurrent_list_shows_pseudonyms_counts_and_sums_only(api) -> None:
     }  # fmt: skip
     assert "must never decide" in body["caution"]
     assert api.get("/recurrent-exposure", as_="viewer").status_code == 403
+    assert api.get("/recurrent-exposure?as_of=0001-01-01", as_="physicist").status_code == 422
