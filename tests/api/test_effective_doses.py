@@ -14,7 +14,8 @@ import pandas as pd
 import pytest
 from stored_rows import add_event
 
-from beamaudit.api.effective_doses import effective_dose_values, recurrent_exposure
+from beamaudit.api.intake.effective_doses import effective_dose_values
+from beamaudit.api.runs.recurrent import recurrent_exposure
 from beamaudit.api.store import models as m
 
 
@@ -105,7 +106,7 @@ def test_the_recurrent_list_sums_a_hand_made_history(store) -> None:
 
 
 def test_the_review_read_hands_over_age_and_indication(store) -> None:
-    from beamaudit.api.reviews import review_events
+    from beamaudit.api.runs.reviews import review_events
 
     _exam(store.session_factory, 1, "PSEUDO-A", datetime(2026, 3, 2, tzinfo=UTC), 2.0)
     _exam(store.session_factory, 2, "PSEUDO-B", datetime(2026, 3, 3, tzinfo=UTC), 2.0)
