@@ -249,3 +249,25 @@ def test_a_dicomweb_pull_gives_the_columns_of_the_scan(backend: str, tmp_path: P
     scanned_store = tmp_path / "scanned"
     scanned_store.mkdir()
     assert pulled == _scan_elsewhere(folder, scanned_store)
+
+
+def test_a_stored_review_groups_the_views_by_thickness_band(store, tmp_path) -> None:
+    from beamaudit.api.review import Period, ReviewParameters
+    from beamaudit.api.reviews import run_review
+
+    folder, _, _ = _objects(tmp_path)
+    _scan(store.session_factory, folder, tmp_path)
+    run_id = run_review(store.session_factory, ReviewParameters(period=Period.month(2024, 3)))
+    with store.session_factory() as s:
+        run = s.get(m.ReviewRun, run_id)
+        assert run is not None and run.status == "done"
+        groups = {
+            (g["exam_type"], g["patient_group"]): g["n"]
+            for g in run.result["groups"]
+            if g["quantity"] == "agd_mgy"
+        }
+    # the report's views: CC 52 mm and the sweep 52 mm in the band, MLO 48 mm outside it
+    assert groups == {
+        ("mammo_cc", "breast_50_60mm"): 2,
+        ("mammo_mlo", "breast_outside_thickness_band"): 1,
+    }
