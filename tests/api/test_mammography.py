@@ -271,3 +271,29 @@ def test_a_stored_review_groups_the_views_by_thickness_band(store, tmp_path) -> 
         ("mammo_cc", "breast_50_60mm"): 2,
         ("mammo_mlo", "breast_outside_thickness_band"): 1,
     }
+
+
+def test_explain_and_export_name_the_mammography_figures(settings_env, tmp_path, capsys) -> None:
+    import csv
+    import io
+    import json
+
+    from beamaudit.api.cli import main
+
+    folder, _, _ = _objects(tmp_path)
+    assert main(["scan", str(folder)]) == 0
+    capsys.readouterr()
+    assert main(["export", "events", "--format", "csv"]) == 0
+    rows = list(csv.DictReader(io.StringIO(capsys.readouterr().out)))
+    header = next(r for r in rows if r["source_kind"] == "image_header")
+    for column in ("recon_mgd_mgy", "organ_dose_mgy", "agd_ratio_reported_to_recon",
+                   "recon_glandularity_percent", "recon_target_filter", "recon_mgd_coefficients",
+                   "recon_mgd_method", "image_laterality", "compression_force_n"):  # fmt: skip
+        assert header[column] != "", column
+    assert main(["explain", header["id"], "--json"]) == 0
+    explained = json.loads(capsys.readouterr().out)
+    assert explained["mammography"]["mgd_mgy"] == pytest.approx(float(header["recon_mgd_mgy"]))
+    assert explained["mammography"]["reported_agd_mgy"] == pytest.approx(1.31)
+    assert main(["explain", header["id"]]) == 0
+    text = capsys.readouterr().out
+    assert "mean glandular dose (AGD)" in text and "W/Rh" in text
