@@ -266,9 +266,11 @@ def test_a_stored_review_groups_the_views_by_thickness_band(store, tmp_path) -> 
             for g in run.result["groups"]
             if g["quantity"] == "agd_mgy"
         }
-    # the report's views: CC 52 mm and the sweep 52 mm in the band, MLO 48 mm outside it
+    # the report's views: CC 52 mm in the band, the sweep (protocol "Tomo CC": an exam type of
+    # its own) 52 mm in the band, MLO 48 mm outside it
     assert groups == {
-        ("mammo_cc", "breast_50_60mm"): 2,
+        ("mammo_cc", "breast_50_60mm"): 1,
+        ("mammo_tomo_cc", "breast_50_60mm"): 1,
         ("mammo_mlo", "breast_outside_thickness_band"): 1,
     }
 

@@ -70,3 +70,31 @@ def test_a_band_that_is_no_band_is_refused() -> None:
 def test_names_and_labels() -> None:
     assert band_name((45.5, 60)) == "breast_45p5_60mm"
     assert band_label("breast_45p5_60mm").startswith("compressed breast 45.5-60 mm")
+
+
+@pytest.mark.parametrize(
+    ("view", "study", "protocol", "expected"),
+    [
+        ("CC", "SCREENING MAMMOGRAPHY", "RCC", ("mammo_cc", "screening")),
+        ("MLO", "Screening", "Tomo LMLO", ("mammo_tomo_mlo", "screening")),
+        ("CC", "Diagnostic mammogram", "LCC", ("mammo_cc", "diagnostic")),
+        ("MLO", "Symptomatic clinic", "DBT R MLO", ("mammo_tomo_mlo", "diagnostic")),
+        ("CC", None, "DBT LCC", ("mammo_tomo_cc", None)),
+        ("CC", None, None, ("mammo_cc", None)),
+    ],
+)
+def test_shipped_rules_keep_2d_and_tomosynthesis_screening_and_diagnostic_apart(
+    view: str, study: str | None, protocol: str | None, expected: tuple[str, str | None]
+) -> None:
+    import pandas as pd
+
+    from beamaudit.api.review import load_default_rules
+    from beamaudit.api.review.examtypes import map_events_with_indication
+
+    frame = pd.DataFrame(
+        [{"modality": "MG", "room": None, "body_part": "BREAST", "view_position": view,
+          "study_description": study, "series_description": None, "protocol_name": protocol}],
+        dtype=object,
+    )  # fmt: skip
+    mapped = map_events_with_indication(frame, load_default_rules())
+    assert (mapped["exam_type"][0], mapped["clinical_indication"][0]) == expected
