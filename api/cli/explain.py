@@ -135,7 +135,7 @@ def _print(data: dict[str, Any]) -> None:
         console.print("superseded: the study's dose report carries this exposure")
     table = Table("quantity", "reported", "reconstructed", "ratio", "unit")
     rec = data["reconstructed"]
-    rows = (
+    rows: tuple[tuple[str, Any, Any, str], ...] = (
         ("DAP", data["reported"]["dap_gy_cm2"], rec["dap_gy_cm2"], "Gy·cm²"),
         (
             "incident air kerma",
