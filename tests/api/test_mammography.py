@@ -21,10 +21,10 @@ from rdsr_builders import mammography_report
 from sqlalchemy import select
 from test_mammography_paths import _mg_header
 
-from beamaudit.api.pipeline import Pipeline
-from beamaudit.api.postprocess import Completion
-from beamaudit.api.reconstruct import RoomBeams, figures, trail_for_event
-from beamaudit.api.scanning import scan_paths
+from beamaudit.api.intake.pipeline import Pipeline
+from beamaudit.api.intake.postprocess import Completion
+from beamaudit.api.intake.reconstruct import RoomBeams, figures, trail_for_event
+from beamaudit.api.intake.scanning import scan_paths
 from beamaudit.api.store import models as m
 from beamaudit.ingest.pseudonym import Pseudonymiser, load_or_create_key
 from beamaudit.model import FilterSpec
@@ -190,7 +190,7 @@ def test_the_trail_is_made_again_with_the_stored_figure(store, tmp_path) -> None
 @pytest.mark.peer
 def test_c_store_gives_the_columns_of_the_scan(store, tmp_path) -> None:
 
-    from beamaudit.api.receiving import make_store_handler
+    from beamaudit.api.intake.receiving import make_store_handler
     from beamaudit.ingest.listener import ListenerConfig, start_listener
 
     storescu = which_or_none("storescu")
@@ -233,7 +233,7 @@ def test_a_dicomweb_pull_gives_the_columns_of_the_scan(backend: str, tmp_path: P
     from fake_pacs import Study, fake_pacs
     from procs import shared_store
 
-    from beamaudit.api.pulling import pull_source
+    from beamaudit.api.intake.pulling import pull_source
 
     folder, header, report = _objects(tmp_path)
     studies = [
@@ -253,7 +253,7 @@ def test_a_dicomweb_pull_gives_the_columns_of_the_scan(backend: str, tmp_path: P
 
 def test_a_stored_review_groups_the_views_by_thickness_band(store, tmp_path) -> None:
     from beamaudit.api.review import Period, ReviewParameters
-    from beamaudit.api.reviews import run_review
+    from beamaudit.api.runs.reviews import run_review
 
     folder, _, _ = _objects(tmp_path)
     _scan(store.session_factory, folder, tmp_path)

@@ -12,9 +12,9 @@ from fastapi.testclient import TestClient
 from rdsr_builders import mammography_report
 from test_mammography_paths import _mg_header
 
-from beamaudit.api.pipeline import Pipeline
-from beamaudit.api.postprocess import Completion
-from beamaudit.api.scanning import scan_paths
+from beamaudit.api.intake.pipeline import Pipeline
+from beamaudit.api.intake.postprocess import Completion
+from beamaudit.api.intake.scanning import scan_paths
 from beamaudit.ingest.pseudonym import load_or_create_key
 
 
