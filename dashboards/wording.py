@@ -309,6 +309,21 @@ _LABELS: dict[str, str] = {
     "statistical_uncertainty": "Statistical uncertainty",
     "model_relative_uncertainty": "Relative model uncertainty",
     "fluoro_time_s": "Fluoroscopy time",
+    # mammography (the exam page's technique rows and the Dance method's trail)
+    "mgd_mgy": "Mean glandular dose (DG)",
+    "compressed_thickness_mm": "Compressed breast thickness",
+    "thickness_mm": "Compressed breast thickness",
+    "compression_force_n": "Compression force (N)",
+    "target_filter": "Target/filter",
+    "view_position": "View",
+    "image_laterality": "Breast",
+    "mammography_acquisition": "Acquisition",
+    "glandularity": "Glandularity (mass fraction)",
+    "glandularity_percent": "Glandularity used (%)",
+    "g": "g (50 % glandular, reference beam)",
+    "c": "c (glandularity)",
+    "s": "s (spectrum)",
+    "tomo_factor": "T (tomosynthesis)",
 }
 
 # Short names for figure axes and table cells.

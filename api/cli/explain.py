@@ -70,6 +70,7 @@ def event_explanation(event: Any, trail: dict[str, Any] | None = None) -> dict[s
         "reconstructed": reconstructed,
         "recon_status": event.recon_status,
         "dap_ratio_reported_to_recon": event.dap_ratio_reported_to_recon,
+        "mammography": _mammography(event),
         "provenance": event.provenance or {},
         "notes": event.notes or [],
         "why": trail if trail is not None else event.recon_trail,
@@ -78,6 +79,15 @@ def event_explanation(event: Any, trail: dict[str, Any] | None = None) -> dict[s
             "decisions need a qualified medical physicist"
         ),
     }
+
+
+def _mammography(event: Any) -> dict[str, Any] | None:
+    """A mammography event's breast, compression and D_G beside the device's AGD (as the API's
+    ``mammography`` block), else None."""
+    from beamaudit.api.intake.mammography import is_mammography
+    from beamaudit.api.web.routes.events import event_mammography
+
+    return event_mammography(event).model_dump() if is_mammography(event) else None
 
 
 def explain_command(
@@ -125,7 +135,7 @@ def _print(data: dict[str, Any]) -> None:
         console.print("superseded: the study's dose report carries this exposure")
     table = Table("quantity", "reported", "reconstructed", "ratio", "unit")
     rec = data["reconstructed"]
-    rows = (
+    rows: tuple[tuple[str, Any, Any, str], ...] = (
         ("DAP", data["reported"]["dap_gy_cm2"], rec["dap_gy_cm2"], "Gy·cm²"),
         (
             "incident air kerma",
@@ -138,6 +148,9 @@ def _print(data: dict[str, Any]) -> None:
         ("HVL", data["reported"]["hvl_mm_al"], rec["hvl1_mm_al"], "mm Al"),
         ("tube output at 1 m", None, rec["output_ugy_per_mas_1m"], "µGy/mAs"),
     )
+    mammo = data.get("mammography")
+    if mammo is not None:
+        rows += (("mean glandular dose (AGD)", mammo["reported_agd_mgy"], mammo["mgd_mgy"], "mGy"),)
     for name, reported, recon, unit in rows:
         ratio = reported / recon if reported and recon else None
         table.add_row(name, _fmt(reported), _fmt(recon), _fmt(ratio), unit)
@@ -147,6 +160,18 @@ def _print(data: dict[str, Any]) -> None:
         + ("" if rec["calibrated"] else " (uncalibrated room)"),
         highlight=False,
     )
+    if mammo is not None and mammo["mgd_mgy"] is not None:
+        console.print(
+            f"{mammo['view_position'] or '?'} {mammo['image_laterality'] or '?'}, "
+            f"{mammo['target_filter']}, {_fmt(mammo['compressed_thickness_mm'])} mm, "
+            f"glandularity {_fmt(mammo['glandularity_percent'])} %"
+            + (" (typical, assumed)" if mammo["glandularity_assumed"] else "")
+            + f"; g {_fmt(mammo['g'])}, c {_fmt(mammo['c'])}, s {_fmt(mammo['s'])}"
+            + (f", T {_fmt(mammo['t'])}" if mammo["t"] is not None else "")
+            + f"; {mammo['method']}; coefficients: {mammo['coefficients']}",
+            highlight=False,
+            markup=False,
+        )
     why = data["why"] or {}
     if why.get("backscatter_factor") is not None:
         console.print(

@@ -219,6 +219,12 @@ def radiograph(room: RoomSpec, study: RadiographStudy, view: RadiographView) -> 
     ds["InstanceNumber"] = view.index + 1
     ds["PatientOrientation"] = ["P", "F"] if view.view_position in ("LL", "RL") else ["L", "F"]
     ds["ImageLaterality"] = view.laterality
+    presentation_pixels(ds, room)
+    return ds
+
+
+def presentation_pixels(ds: Dataset, room: RoomSpec) -> None:
+    """The display attributes and the thumbnail pixels of a projection image for presentation."""
     ds["PixelIntensityRelationship"] = "LOG"
     ds["PixelIntensityRelationshipSign"] = 1
     ds["RescaleIntercept"] = "0"
@@ -232,7 +238,6 @@ def radiograph(room: RoomSpec, study: RadiographStudy, view: RadiographView) -> 
     rows = round(room.detector_mm[1] / room.pixel_spacing_mm)
     columns = round(room.detector_mm[0] / room.pixel_spacing_mm)
     _image_pixels(ds, rows, columns)
-    return ds
 
 
 def ct_image(room: RoomSpec, study: CtStudy, acquisition_index: int) -> Dataset:

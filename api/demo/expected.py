@@ -73,6 +73,7 @@ class Generated:
     radiography: dict[str, list[RadiographStudy]] = field(default_factory=dict)
     ct: dict[str, list[CtStudy]] = field(default_factory=dict)
     fluoro: dict[str, list[FluoroStudy]] = field(default_factory=dict)
+    mammography: dict[str, list[Any]] = field(default_factory=dict)  # MammoStudy
     paths: dict[str, str] = field(default_factory=dict)  # SOP Instance UID -> relative path
 
 
@@ -572,7 +573,46 @@ def expected_findings(
     for outlier in dates.plan.outliers:
         findings += _outlier(gen, outlier, ctx)
     findings += [_no_dose(gen, dates), _unmapped(gen, dates), _recurrent(gen, dates)]
+    if gen.mammography:
+        findings.append(_mammography_band(gen, ctx))
     return findings
+
+
+def _mammography_band(gen: Generated, ctx: SimulationContext) -> PlantedFinding:
+    """The mammography room's CC views above the local level in the thickness band."""
+    from beamaudit.api.demo.mammography import MAMMOGRAPHY_PLAN as plan
+
+    room = gen.rooms[plan.room]
+    low, high = plan.band_mm
+    monthly: dict[str, list[float]] = defaultdict(list)
+    for s in gen.mammography[room.key]:
+        for v in s.views:
+            if v.exam_type == plan.exam_type and low <= v.thickness_mm < high:
+                monthly[_month(v.acquired.date())].append(v.agd_mgy)
+    first = gen.mammography[room.key][0].start.date()
+    levels = ctx.levels(plan.exam_type, "agd_mgy", first)
+    median = _median([x for values in monthly.values() for x in values]) or 0.0
+    return _finding(
+        gen,
+        room.key,
+        id="mammography_cc_above_local_level",
+        kind="group_above_level",
+        exam_type=plan.exam_type,
+        quantity="agd_mgy",
+        date=first.isoformat(),
+        month=_month(first),
+        description=(
+            f"{room.name} (W/Rh) runs its CC views at about 1.2 times the local level in the "
+            f"{low:g}-{high:g} mm compressed-thickness band, every month: the unit's AEC was set "
+            "up for a higher dose level than the site agreed; its MLO views stay below theirs"
+        ),
+        expected={
+            "patient_group": f"breast_{low:g}_{high:g}mm",
+            "levels": levels,
+            "by_month": _by_month(monthly),
+            "median_to_level": {k: round(median / v, 3) for k, v in levels.items()},
+        },
+    )
 
 
 def _highest_healthy(gen: Generated, ctx: SimulationContext) -> dict[str, dict[str, Any]]:
@@ -646,9 +686,10 @@ def quiet_numbers(
     return [
         {
             "kind": "group_above_level",
-            "reason": "no group is planted above a level: every monthly median of every room and "
-            "exam type stays below each shipped level (the doubled abdomen AP of "
-            f"{gen.rooms[dates.plan.change_room].name} included)",
+            "reason": "no group is planted above a level but the mammography room's CC views "
+            "in the thickness band: every monthly median of every radiography, CT and "
+            "fluoroscopy room and exam type stays below each shipped level (the doubled "
+            f"abdomen AP of {gen.rooms[dates.plan.change_room].name} included)",
             "highest_standard_median_to_level": top,
         },
         {

@@ -35,6 +35,7 @@ from beamaudit.api.demo.expected import (
     group_medians,
     quiet_numbers,
 )
+from beamaudit.api.demo.mammography import MAMMOGRAPHY_IMAGE, simulate_mammography
 from beamaudit.api.demo.manifest import FORMAT, QARecord, RoomEntry, ScenarioManifest
 from beamaudit.api.demo.physics import TubeOutput
 from beamaudit.api.demo.plants import PLANTED
@@ -48,7 +49,7 @@ __all__ = ["MAX_MONTHS", "MIN_MONTHS", "default_end_month", "generate_scenario"]
 MIN_MONTHS = 3  # a baseline month, the planted changes, and a month after them
 MAX_MONTHS = 24
 _OWNED = ("folder", "cstore", "broken", "manifest.json", "README.md", "truth_events.csv")
-_MATERIALS = {"Al": "aluminium", "Cu": "copper"}
+_MATERIALS = {"Al": "aluminium", "Cu": "copper", "Rh": "rhodium"}
 _QA_KV = (60.0, 70.0, 80.0, 90.0, 100.0, 110.0, 120.0)
 _SOP_CLASSES = {
     "radiography": [DX_PRESENTATION],
@@ -56,6 +57,7 @@ _SOP_CLASSES = {
     "cr": [CR_IMAGE],
     "fluoroscopy": [XRAY_DOSE_SR],
     "ct": [XRAY_DOSE_SR, CT_IMAGE],
+    "mammography": [MAMMOGRAPHY_IMAGE],
 }
 
 
@@ -123,7 +125,11 @@ def _room_entry(
     room: RoomSpec, ctx: SimulationContext, gen: Generated, writer: Writer
 ) -> RoomEntry:
     studies = (
-        gen.radiography.get(room.key) or gen.ct.get(room.key) or gen.fluoro.get(room.key) or []
+        gen.radiography.get(room.key)
+        or gen.ct.get(room.key)
+        or gen.fluoro.get(room.key)
+        or gen.mammography.get(room.key)
+        or []
     )
     table_gap = RECEPTOR_GAP_MM["table_bucky"] if room.kind in ("radiography", "cr") else None
     return RoomEntry(
@@ -142,7 +148,7 @@ def _room_entry(
         anode_material="tungsten",
         anode_angle_deg=room.anode_angle_deg,
         ripple_percent=0.0,
-        inherent_filtration=_layers((("Al", room.inherent_al_mm),)),
+        inherent_filtration=_layers((("Al", room.inherent_al_mm),)) if room.inherent_al_mm else [],
         added_filtration=_layers(room.added_filters),
         filtration=_layers(room.filtration),
         table_to_detector_mm=table_gap,
@@ -218,6 +224,8 @@ def generate_scenario(
             gen.ct[room.key] = simulate_ct(room, ctx, plan)
         elif room.kind == "fluoroscopy":
             gen.fluoro[room.key] = simulate_fluoro(room, ctx, plan)
+        elif room.kind == "mammography":
+            gen.mammography[room.key] = simulate_mammography(room, ctx)
         else:
             gen.radiography[room.key] = simulate_radiography(room, ctx, dates)
     writer = Writer(output_dir, gen)
@@ -226,6 +234,8 @@ def generate_scenario(
             writer.ct(room, UidFactory.device_uid(room.key))
         elif room.kind == "fluoroscopy":
             writer.fluoro(room, UidFactory.device_uid(room.key))
+        elif room.kind == "mammography":
+            writer.mammography(room)
         else:
             writer.radiography(room)
     model_room = gen.rooms[plan.dap_meter_room]

@@ -48,7 +48,7 @@ INVENTED_NOTICE = (
 
 Receptor = Literal["wall_bucky", "table_bucky", "direct"]
 Delivery = Literal["folder", "cstore"]
-RoomKind = Literal["radiography", "mobile", "cr", "fluoroscopy", "ct"]
+RoomKind = Literal["radiography", "mobile", "cr", "fluoroscopy", "ct", "mammography"]
 
 
 @dataclass(frozen=True, slots=True)
@@ -500,6 +500,33 @@ ROOMS: tuple[RoomSpec, ...] = (
         weight_recorded_fraction=0.95,
         age_mean_y=62.0,
         age_sd_y=16.0,
+    ),
+    # a W/Rh screening unit (beamaudit.api.demo.mammography); listed last, so that the other
+    # rooms' random draws are those they were before it was added
+    RoomSpec(
+        key="mammo1",
+        name="MAMMO 1",
+        station_name="HGH-MAMMO1",
+        kind="mammography",
+        modality="MG",
+        delivery="folder",
+        manufacturer="Larkspur Medical",
+        model_name="LK-Breast 3",
+        serial_number="LKB-30418",
+        software_versions="LK 3.1.7",
+        anode_angle_deg=16.0,
+        inherent_al_mm=0.0,
+        added_filters=(("Rh", 0.05),),
+        output_efficiency=1.0,
+        dap_meter_factor=1.0,
+        detector_mm=(240.0, 300.0),
+        pixel_spacing_mm=10.0,
+        studies_per_weekday=4.0,
+        studies_per_weekend_day=0.0,
+        target_exposure_index=0.0,
+        weight_recorded_fraction=0.0,
+        age_mean_y=58.0,
+        age_sd_y=6.0,
     ),
 )
 

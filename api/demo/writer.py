@@ -51,8 +51,21 @@ TRUTH_COLUMNS = (
     "ctdivol_mgy",
     "dlp_mgy_cm",
     "deviation_index",
+    "agd_reported_mgy",
+    "thickness_mm",
     "planted",
 )
+
+
+def _view_ids(study: Any, view: Any) -> dict[str, Any]:
+    """The truth table's identification of one image: its study, object, event and time."""
+    return {
+        "study_instance_uid": study.study_uid,
+        "accession": study.accession,
+        "sop_instance_uid": view.sop_uid,
+        "event_uid": view.event_uid,
+        "event_datetime": view.acquired.isoformat(),
+    }
 
 
 def _blank(value: Any) -> Any:
@@ -94,11 +107,7 @@ class Writer:
                 self._truth(
                     room,
                     path,
-                    study_instance_uid=s.study_uid,
-                    accession=s.accession,
-                    sop_instance_uid=v.sop_uid,
-                    event_uid=v.event_uid,
-                    event_datetime=v.acquired.isoformat(),
+                    **_view_ids(s, v),
                     exam_type=v.exam_type,
                     protocol_name=v.protocol_name,
                     kvp_kv=v.kvp_kv if technique else None,
@@ -113,6 +122,28 @@ class Writer:
                     deviation_index=(
                         round(v.deviation_index, 2) if v.deviation_index is not None else None
                     ),
+                    planted=";".join(v.planted),
+                )
+
+    def mammography(self, room: RoomSpec) -> None:
+        """Every image of the mammography room."""
+        from beamaudit.api.demo.mammography import mammogram
+
+        for s in self.gen.mammography[room.key]:
+            month = f"{s.start:%Y-%m}"
+            for v in s.views:
+                name = f"{s.accession}_{v.index + 1}.dcm"
+                path = self._write(room, mammogram(room, s, v), name, month)
+                self._truth(
+                    room,
+                    path,
+                    **_view_ids(s, v),
+                    exam_type=v.exam_type,
+                    protocol_name=f"{v.laterality}{v.view_position}",
+                    kvp_kv=v.kvp_kv,
+                    exposure_mas=v.exposure_mas,
+                    agd_reported_mgy=v.agd_mgy,
+                    thickness_mm=v.thickness_mm,
                     planted=";".join(v.planted),
                 )
 

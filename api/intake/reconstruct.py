@@ -39,6 +39,12 @@ from typing import Any, cast
 from sqlalchemy import Table, select, update
 from sqlalchemy.orm import Session, sessionmaker
 
+from beamaudit.api.intake.mammography import (
+    MAMMOGRAPHY_FIGURES_CLEARED,
+    is_mammography,
+    mammography_figures,
+    mammography_trail,
+)
 from beamaudit.api.store import models as m
 from beamaudit.api.store.bulk import update_rows
 
@@ -113,7 +119,7 @@ def _calibration_from_row(row: m.RoomCalibrationRow | None, room: m.Room | None)
     )
 
 
-_ANODES = {"tungsten": "W", "molybdenum": "Mo", "rhodium": "Rh"}
+_ANODES = {"tungsten": "W", "molybdenum": "Mo", "rhodium": "Rh", "silver": "Ag"}
 
 
 def _anode_symbol(material: str | None) -> str:
@@ -350,6 +356,14 @@ _INPUT_COLUMNS = (
     "body_part",
     "view_position",
     "dap_gy_cm2",
+    # mammography (beamaudit.api.mammography)
+    "anode_material",
+    "patient_age_years",
+    "mammography_acquisition",
+    "tomo_scan_arc_deg",
+    "tomo_projections",
+    "organ_dose_mgy",
+    "organ_exposed",
 )
 
 #: stored figures: column <- BulkDose attribute
@@ -520,10 +534,14 @@ def _recipe(room: Any, calibration: Any) -> dict[str, Any]:
 
 
 #: the figure columns, as a reconstruction that ends without figures leaves them
-FIGURES_CLEARED: dict[str, Any] = {col: None for col in (*_FIGURE_COLUMNS, "recon_calibrated")} | {
-    "dap_ratio_reported_to_recon": None,
-    "recon_trail": None,
-}
+FIGURES_CLEARED: dict[str, Any] = (
+    {col: None for col in (*_FIGURE_COLUMNS, "recon_calibrated")}
+    | {
+        "dap_ratio_reported_to_recon": None,
+        "recon_trail": None,
+    }
+    | MAMMOGRAPHY_FIGURES_CLEARED
+)
 
 
 def figures(events: Sequence[Any], rooms: RoomBeams) -> list[dict[str, Any]]:
@@ -551,6 +569,9 @@ def figures(events: Sequence[Any], rooms: RoomBeams) -> list[dict[str, Any]]:
             continue
         if not event.kvp_kv or not event.exposure_mas:
             out.append({"recon_status": "no_technique"})
+            continue
+        if is_mammography(event):  # the Dance method's figures, not the radiography ones
+            out.append(_mammography(event, room, rooms))
             continue
         key = (
             event.room_id,
@@ -597,6 +618,17 @@ def figures(events: Sequence[Any], rooms: RoomBeams) -> list[dict[str, Any]]:
             values["recon_trail"] = rooms.recipes.get(event.room_id) or _recipe(None, None)
             out[k] = values
     return out
+
+
+def _mammography(event: Any, room: Any, rooms: RoomBeams) -> dict[str, Any]:
+    from beamaudit.model import ModelError
+
+    calibration = rooms.calibrations.get(event.room_id) if event.room_id is not None else None
+    recipe = rooms.recipes.get(event.room_id) or _recipe(None, None)
+    try:
+        return mammography_figures(event, room, calibration, recipe)
+    except ModelError as exc:
+        return _failure(event, exc)
 
 
 def _beam(event: Any, room: Any, rooms: RoomBeams) -> Any:
@@ -696,6 +728,8 @@ def trail_for_event(session: Session, event: m.ExposureEventRow) -> dict[str, An
         return None
     room = _room_from_snapshot(stored.get("room"))
     calibration = _calibration_from_snapshot(stored.get("calibration"), room)
+    if is_mammography(event):
+        return _mammography_trail(event, room, calibration, stored)
     try:
         beam = _event_beam(event, room, calibration, _BeamCache())
         dose = dose_from_beam(
@@ -721,6 +755,25 @@ def trail_for_event(session: Session, event: m.ExposureEventRow) -> dict[str, An
                 f"the stored {name} ({stored_value:.6g} {unit}) was made by software version "
                 f"{stored.get('software_version')}; this trail, made now, gives {now:.6g} {unit}"
             )
+    return out
+
+
+def _mammography_trail(
+    event: m.ExposureEventRow, room: m.Room | None, calibration: Any, stored: dict[str, Any]
+) -> dict[str, Any]:
+    from beamaudit.model import ModelError
+
+    try:
+        out = mammography_trail(event, room, calibration)
+    except ModelError as exc:
+        return {"notes": [f"the trail could not be made again: {exc}"], "recipe": stored}
+    out["recipe"] = stored
+    now, kept = out["mgd_mgy"], event.recon_mgd_mgy
+    if kept and not math.isclose(now, kept, rel_tol=1e-9):
+        out.setdefault("notes", []).append(
+            f"the stored mean glandular dose ({kept:.6g} mGy) was made by software version "
+            f"{stored.get('software_version')}; this trail, made now, gives {now:.6g} mGy"
+        )
     return out
 
 

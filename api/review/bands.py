@@ -59,6 +59,7 @@ import numpy as np
 
 from beamaudit.api.review._csv import CsvSource, read_table, write_table
 from beamaudit.api.review.errors import CsvFormatError, ReviewError
+from beamaudit.api.review.mammography import band_label, is_thickness_group
 
 __all__ = [
     "BANDINGS",
@@ -183,6 +184,8 @@ class PatientGroups:
         if name == OUTSIDE_BANDS:
             return "children outside every band"
         band = self.get(name)
+        if band is None and is_thickness_group(name):
+            return band_label(name)
         return f"children {band.label}" if band is not None else name
 
     def fingerprint(self) -> str:

@@ -40,6 +40,9 @@ patient_age_years          float         age at the examination; NaN when not re
                                          patients are grouped by it (:mod:`.bands`)
 clinical_indication        str or None   the examination's clinical indication (``acute_stroke``),
                                          e.g. set by a mapping rule; levels may be set for one
+breast_thickness_mm        float         mammography: the compressed breast thickness (NaN when not
+                                         recorded); mammography groups are set by its band
+                                         (:mod:`.mammography`)
 =========================  ============  ==========================================================
 
 Units of analysis
@@ -108,7 +111,7 @@ FLOAT_COLUMNS = ("patient_weight_kg", *DOSE_COLUMNS, "deviation_index", "fluoro_
 _NON_NEGATIVE = (*DOSE_COLUMNS, "fluoro_time_s")
 EVENT_COLUMNS = ("event_id", "event_datetime", *TEXT_COLUMNS, *FLOAT_COLUMNS)
 #: Columns an events table may carry beyond :data:`EVENT_COLUMNS` (missing values when absent).
-OPTIONAL_COLUMNS = ("patient_age_years", "clinical_indication")
+OPTIONAL_COLUMNS = ("patient_age_years", "clinical_indication", "breast_thickness_mm")
 _LOCATION = ("site", "room", "device")
 
 #: Columns of :func:`build_units` (one row per examination value).
@@ -124,6 +127,7 @@ UNIT_COLUMNS = (
     "patient_weight_kg",
     "patient_age_years",
     "clinical_indication",
+    "breast_thickness_mm",
     "quantity",
     "value",
 )
@@ -205,7 +209,7 @@ def prepare_events(events: pd.DataFrame) -> pd.DataFrame:
         raise ReviewInputError(
             "study_uid is missing for event(s) " + _bad_ids(out, out["study_uid"].isna().to_numpy())
         )
-    for c in (*FLOAT_COLUMNS, "patient_age_years"):
+    for c in (*FLOAT_COLUMNS, "patient_age_years", "breast_thickness_mm"):
         if c not in events.columns:
             out[c] = np.full(n_rows, np.nan)
             continue
@@ -220,7 +224,7 @@ def prepare_events(events: pd.DataFrame) -> pd.DataFrame:
             raise ReviewInputError(
                 f"{c} is infinite for event(s) {_bad_ids(out, np.isinf(values))}"
             )
-    for c in (*_NON_NEGATIVE, "patient_age_years"):
+    for c in (*_NON_NEGATIVE, "patient_age_years", "breast_thickness_mm"):
         bad = out[c].to_numpy() < 0
         if bad.any():
             raise ReviewInputError(f"{c} is negative for event(s) {_bad_ids(out, bad)}")
@@ -359,6 +363,7 @@ def build_units(
         "patient_weight_kg",
         "patient_age_years",
         "clinical_indication",
+        "breast_thickness_mm",
     ]
 
     exams = events.loc[is_study]
@@ -373,6 +378,7 @@ def build_units(
             "patient_weight_kg",
             "patient_age_years",
             "clinical_indication",
+            "breast_thickness_mm",
         ]
     ].first()
     for c in firsts.columns:  # categoricals stay categoricals (with the events' categories)

@@ -81,6 +81,14 @@ from beamaudit.api.review.examtypes import (
     unmapped_summary,
 )
 from beamaudit.api.review.levels import ReferenceLevelSet, levels_in_effect, levels_table
+from beamaudit.api.review.mammography import (
+    DEFAULT_THICKNESS_BAND_MM,
+    OUTSIDE_THICKNESS_BAND,
+    THICKNESS_NOT_RECORDED,
+    assign_thickness_bands,
+    band_name,
+    check_band,
+)
 from beamaudit.api.review.quantities import QUANTITIES
 from beamaudit.api.review.site_values import SITE_VALUE_COLUMNS as _SITE_VALUE_COLUMNS
 from beamaudit.api.review.site_values import site_values
@@ -193,6 +201,9 @@ class Period:
 
     def to_json_dict(self) -> dict[str, str]:
         return {"start": self.start.isoformat(), "end": self.end.isoformat(), "label": self.label}
+
+
+THICKNESS_SPECIAL_GROUPS = (OUTSIDE_THICKNESS_BAND, THICKNESS_NOT_RECORDED)
 
 
 def _month_key(d: date) -> int:
@@ -319,6 +330,8 @@ class ReviewParameters:
     min_rooms_for_local_level: int = 10
     low_dose_fraction: float | None = 0.5
     low_dose_below_site_p25: bool = True
+    #: mammography: the compressed-thickness band the views are compared in (mm, low <= t < high)
+    breast_thickness_band_mm: tuple[float, float] = DEFAULT_THICKNESS_BAND_MM
 
     def __post_init__(self) -> None:
         problems = []
@@ -334,6 +347,11 @@ class ReviewParameters:
         if not 0 < low < high:
             problems.append("weight_window_kg must be (low, high) with 0 < low < high")
         object.__setattr__(self, "weight_window_kg", (low, high))
+        band = check_band(self.breast_thickness_band_mm)
+        if band is None:
+            problems.append("breast_thickness_band_mm must be (low, high) with 0 < low < high")
+        else:
+            object.__setattr__(self, "breast_thickness_band_mm", band)
         if self.basis not in ("standard", "all"):
             problems.append("basis must be 'standard' or 'all'")
         for name, defaults in (
@@ -674,6 +692,13 @@ def _applicable_levels(keys: pd.DataFrame, levels: pd.DataFrame) -> pd.DataFrame
     """
     frame = keys.loc[:, ["_group", "exam_type", "quantity"]].copy()
     frame["_pg"] = keys["patient_group"].astype(object).where(keys["patient_group"].notna(), "")
+    # a mammography band takes the exam type's levels without a patient group (module docstring
+    # of .mammography); the groups outside it take none
+    frame["_pg"] = frame["_pg"].where(
+        ~frame["_pg"].str.startswith("breast_", na=False)
+        | frame["_pg"].isin(THICKNESS_SPECIAL_GROUPS),
+        "",
+    )
     frame["_ind"] = (
         keys["clinical_indication"].astype(object).where(keys["clinical_indication"].notna(), "")
     )
@@ -904,7 +929,15 @@ def review(
         weight_kg=located["patient_weight_kg"].to_numpy(dtype=np.float64),
         paediatric_age_limit_years=params.paediatric_age_limit_years,
     )
+    mammography = {t.exam_type for t in catalogue if t.modality_group == "mammography"}
+    groups_of_units = assign_thickness_bands(
+        groups_of_units,
+        mammography=located["exam_type"].isin(list(mammography)).to_numpy(),
+        thickness_mm=located["breast_thickness_mm"].to_numpy(dtype=np.float64),
+        band_mm=params.breast_thickness_band_mm,
+    )
     names = [g.patient_group for g in bands] + list(SPECIAL_GROUPS)  # grouped by their codes
+    names += [band_name(params.breast_thickness_band_mm), *THICKNESS_SPECIAL_GROUPS]
     located["patient_group"] = pd.Categorical(groups_of_units, categories=names)
     units = _with_location_keys(located.copy(), params.group_by)
     groups, codes, upper = _group_table(units, level_rows, catalogue, params, bands)

@@ -108,6 +108,8 @@ _SPARSE_COLUMNS: tuple[tuple[str, Any], ...] = (
     ("dlp_mgy_cm", _E.dlp_mgy_cm),
     ("agd_mgy", _E.organ_dose_mgy),
     ("fluoro_time_s", case((_E.event_type == "fluoroscopy", _E.irradiation_duration_s))),
+    # mammography's groups are set by the compressed thickness (review/mammography.py)
+    ("breast_thickness_mm", case((_E.modality == "MG", _E.body_part_thickness_mm))),
 )
 #: Header text: read only for the events still without an exam type (to map them).
 _TEXT_COLUMNS: tuple[tuple[str, Any], ...] = tuple(

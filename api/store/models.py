@@ -269,6 +269,18 @@ class ExposureEventRow(Base):
     effective_dose_msv: Mapped[float | None] = mapped_column(Float)
     effective_dose_source: Mapped[str | None] = mapped_column(Text)
     effective_dose_reason: Mapped[str | None] = mapped_column(Text)
+    # mammography (MG headers, TID 10003 rows of a mammography dose report); the compressed
+    # breast thickness is body_part_thickness_mm, the device's AGD organ_dose_mgy
+    compression_force_n: Mapped[float | None] = mapped_column(Float)
+    compression_pressure_kpa: Mapped[float | None] = mapped_column(Float)
+    compression_contact_area_mm2: Mapped[float | None] = mapped_column(Float)
+    paddle_description: Mapped[str | None] = mapped_column(String)
+    image_laterality: Mapped[str | None] = mapped_column(String)  # L, R, B
+    breast_implant_present: Mapped[bool | None] = mapped_column(Boolean)
+    organ_exposed: Mapped[str | None] = mapped_column(String)
+    mammography_acquisition: Mapped[str | None] = mapped_column(String)  # 2d | tomosynthesis
+    tomo_scan_arc_deg: Mapped[float | None] = mapped_column(Float)
+    tomo_projections: Mapped[int | None] = mapped_column(Integer)
     # reconstructed by beamaudit.model (recon_*), beside the reported values above
     recon_status: Mapped[str | None] = mapped_column(String)  # ok | no_technique | failed
     recon_hvl1_mm_al: Mapped[float | None] = mapped_column(Float)
@@ -283,6 +295,20 @@ class ExposureEventRow(Base):
     recon_fsd_mm: Mapped[float | None] = mapped_column(Float)
     recon_calibrated: Mapped[bool | None] = mapped_column(Boolean)
     dap_ratio_reported_to_recon: Mapped[float | None] = mapped_column(Float)
+    # mammography: mean glandular dose D_G = K g c s (x T) by the Dance method, per view; the
+    # HVL (with the paddle) and K are recon_hvl1_mm_al and recon_incident_air_kerma_mgy
+    recon_mgd_mgy: Mapped[float | None] = mapped_column(Float)
+    recon_mgd_u_mgy: Mapped[float | None] = mapped_column(Float)
+    recon_glandularity_percent: Mapped[float | None] = mapped_column(Float)
+    recon_glandularity_assumed: Mapped[bool | None] = mapped_column(Boolean)
+    recon_target_filter: Mapped[str | None] = mapped_column(String)  # "W/Rh"
+    recon_mgd_g: Mapped[float | None] = mapped_column(Float)
+    recon_mgd_c: Mapped[float | None] = mapped_column(Float)
+    recon_mgd_s: Mapped[float | None] = mapped_column(Float)
+    recon_mgd_t: Mapped[float | None] = mapped_column(Float)  # tomosynthesis only
+    recon_mgd_coefficients: Mapped[str | None] = mapped_column(String)  # which table
+    recon_mgd_method: Mapped[str | None] = mapped_column(String)
+    agd_ratio_reported_to_recon: Mapped[float | None] = mapped_column(Float)
     recon_trail: Mapped[dict[str, Any] | None] = mapped_column(JSONValue)
     provenance: Mapped[dict[str, str]] = mapped_column(JSONValue, default=dict)
     notes: Mapped[list[str]] = mapped_column(JSONValue, default=list)
@@ -305,6 +331,8 @@ class AccumulatedDoseRow(Base):
     number_of_events: Mapped[int | None] = mapped_column(Integer)
     dlp_total_mgy_cm: Mapped[float | None] = mapped_column(Float)
     agd_total_mgy: Mapped[float | None] = mapped_column(Float)
+    agd_left_mgy: Mapped[float | None] = mapped_column(Float)  # TID 10005, per breast
+    agd_right_mgy: Mapped[float | None] = mapped_column(Float)
     details: Mapped[dict[str, Any]] = mapped_column(JSONValue, default=dict)
 
 

@@ -14,9 +14,11 @@ import pandas as pd
 from sqlalchemy import select
 from sqlalchemy.orm import Session
 
+from beamaudit.api.intake.mammography import is_mammography
 from beamaudit.api.intake.reconstruct import trail_for_event
 from beamaudit.api.runs.record import record_periods, record_run, record_run_ids, scope_text
 from beamaudit.api.store import models as m
+from beamaudit.api.web.mammography_record import mammography_exposure
 
 __all__ = [
     "changes_text",
@@ -233,8 +235,13 @@ def _why(trail: dict[str, Any] | None) -> list[dict[str, Any]]:
         return []
     figures = trail.get("figures") or {}
     chosen = figures.get("esak_mgy") or figures.get("dap_gy_cm2") or {}
+    return why_steps(chosen.get("trail", []))
+
+
+def why_steps(trail_steps: list[dict[str, Any]]) -> list[dict[str, Any]]:
+    """The model's trail steps as the exam record's ``why`` steps."""
     steps = []
-    for step in chosen.get("trail", []):
+    for step in trail_steps:
         value = step.get("value")
         steps.append(
             {
@@ -293,6 +300,10 @@ def exam_record(
     exposures = []
     for e in events:
         trail = trail_for_event(session, e) or {}
+        if is_mammography(e) and e.recon_status == "ok":
+            why = why_steps(trail.get("trail", []))
+            exposures.append(mammography_exposure(e, trail) | {"why": why})
+            continue
         comparisons = {c["quantity"]: c for c in trail.get("comparisons", [])}
         dose: dict[str, Any] = {}
         for name, key in _DOSE_FIGURES:

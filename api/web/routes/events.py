@@ -12,6 +12,7 @@ from typing import Annotated, Any
 from fastapi import APIRouter, Depends, Query
 from sqlalchemy import ColumnElement, Select, and_, exists, func, or_, select
 
+from beamaudit.api.intake.mammography import is_mammography
 from beamaudit.api.intake.reconstruct import trail_for_event
 from beamaudit.api.store import models as m
 from beamaudit.api.web.app import CAUTION
@@ -45,6 +46,7 @@ from beamaudit.api.web.schemas.events import (
     ExamPage,
     ExamSummary,
 )
+from beamaudit.api.web.schemas.mammography import EventMammography
 
 __all__ = ["router"]
 
@@ -60,6 +62,8 @@ _COMPARED: tuple[tuple[str, str, str | None, str, str | None], ...] = (
     ("incident_air_kerma_mgy", "mGy", None, "recon_incident_air_kerma_mgy", None),
     ("esak_mgy", "mGy", None, "recon_esak_mgy", "recon_esak_u_mgy"),
     ("entrance_dose_mgy", "mGy", None, "recon_entrance_dose_mgy", None),
+    # mammography: the device's AGD (Organ Dose) beside our D_G (Dance method)
+    ("agd_mgy", "mGy", "organ_dose_mgy", "recon_mgd_mgy", "recon_mgd_u_mgy"),
 )
 #: Reported-only quantities shown in the breakdown when present.
 _REPORTED_ONLY: tuple[tuple[str, str], ...] = (
@@ -67,7 +71,6 @@ _REPORTED_ONLY: tuple[tuple[str, str], ...] = (
     ("ctdivol_mgy", "mGy"),
     ("dlp_mgy_cm", "mGy·cm"),
     ("ssde_mgy", "mGy"),
-    ("organ_dose_mgy", "mGy"),
 )
 
 
@@ -204,6 +207,8 @@ def dose_breakdown(row: m.ExposureEventRow) -> list[DoseComparison]:
         ratio = _ratio(reported, recon)
         if quantity == "dap_gy_cm2" and row.dap_ratio_reported_to_recon is not None:
             ratio = row.dap_ratio_reported_to_recon
+        if quantity == "agd_mgy":
+            ratio = row.agd_ratio_reported_to_recon  # None for a dose of another organ
         out.append(
             DoseComparison(
                 quantity=quantity,
@@ -228,6 +233,39 @@ def dose_breakdown(row: m.ExposureEventRow) -> list[DoseComparison]:
                 )
             )
     return out
+
+
+def event_mammography(row: m.ExposureEventRow) -> EventMammography:
+    """The mammography fields of ``row``, recorded beside reconstructed."""
+    return EventMammography(
+        view_position=row.view_position,
+        image_laterality=row.image_laterality,
+        acquisition=row.mammography_acquisition,
+        compressed_thickness_mm=row.body_part_thickness_mm,
+        compression_force_n=row.compression_force_n,
+        compression_pressure_kpa=row.compression_pressure_kpa,
+        compression_contact_area_mm2=row.compression_contact_area_mm2,
+        paddle_description=row.paddle_description,
+        breast_implant_present=row.breast_implant_present,
+        organ_exposed=row.organ_exposed,
+        tomo_scan_arc_deg=row.tomo_scan_arc_deg,
+        tomo_projections=row.tomo_projections,
+        reported_agd_mgy=row.organ_dose_mgy,
+        mgd_mgy=row.recon_mgd_mgy,
+        mgd_u_mgy=row.recon_mgd_u_mgy,
+        ratio_reported_to_reconstructed=row.agd_ratio_reported_to_recon,
+        target_filter=row.recon_target_filter,
+        hvl1_mm_al=row.recon_hvl1_mm_al,
+        incident_air_kerma_mgy=row.recon_incident_air_kerma_mgy,
+        glandularity_percent=row.recon_glandularity_percent,
+        glandularity_assumed=row.recon_glandularity_assumed,
+        g=row.recon_mgd_g,
+        c=row.recon_mgd_c,
+        s=row.recon_mgd_s,
+        t=row.recon_mgd_t,
+        coefficients=row.recon_mgd_coefficients,
+        method=row.recon_mgd_method,
+    )
 
 
 def _group(model: type[Any], row: Any, prefix: str = "") -> Any:
@@ -267,6 +305,7 @@ def get_event(event_id: IdPath, session: DbSession, _: Physicist) -> EventDetail
         reconstructed=_group(EventReconstructed, row, prefix="recon_"),
         effective_dose=_group(EventEffectiveDose, row),
         dose_breakdown=dose_breakdown(row),
+        mammography=event_mammography(row) if is_mammography(row) else None,
         recon_trail=trail_for_event(session, row),
         provenance=row.provenance or {},
         notes=row.notes or [],

@@ -13,6 +13,7 @@ from typing import Any
 from pydantic import Field
 
 from beamaudit.api.web.schemas.base import Page, ReadModel
+from beamaudit.api.web.schemas.mammography import EventMammography
 from beamaudit.api.web.schemas.rooms import FilterLayerRead
 
 __all__ = [
@@ -22,6 +23,7 @@ __all__ = [
     "EventEffectiveDose",
     "EventFlag",
     "EventGeometry",
+    "EventMammography",
     "EventPage",
     "EventPatient",
     "EventReconstructed",
@@ -63,6 +65,20 @@ class EventSummary(ReadModel):
     recon_dap_gy_cm2: float | None
     recon_esak_mgy: float | None
     dap_ratio_reported_to_recon: float | None
+    view_position: str | None = Field(default=None, description="e.g. CC, MLO, PA")
+    image_laterality: str | None = Field(default=None, description="mammography: L, R or B")
+    body_part_thickness_mm: float | None = Field(
+        default=None, description="mammography: the compressed breast thickness"
+    )
+    organ_dose_mgy: float | None = Field(
+        default=None, description="mammography: the device's average glandular dose (AGD)"
+    )
+    recon_mgd_mgy: float | None = Field(
+        default=None, description="mammography: our mean glandular dose (Dance method)"
+    )
+    agd_ratio_reported_to_recon: float | None = Field(
+        default=None, description="mammography: the device's AGD / ours"
+    )
 
 
 class EventPage(Page[EventSummary]):
@@ -216,6 +232,9 @@ class EventDetail(ReadModel):
     reconstructed: EventReconstructed
     effective_dose: EventEffectiveDose
     dose_breakdown: list[DoseComparison]
+    mammography: EventMammography | None = Field(
+        default=None, description="mammography events: the breast, compression and D_G"
+    )
     recon_trail: dict[str, Any] | None = Field(
         description="how each reconstructed figure was made, step by step"
     )
@@ -245,7 +264,13 @@ class AccumulatedDoseRead(ReadModel):
     fluoro_time_total_s: float | None
     number_of_events: int | None
     dlp_total_mgy_cm: float | None
-    agd_total_mgy: float | None
+    agd_total_mgy: float | None = Field(description="TID 10005 without a breast side")
+    agd_left_mgy: float | None = Field(
+        default=None, description="TID 10005 accumulated AGD, left breast"
+    )
+    agd_right_mgy: float | None = Field(
+        default=None, description="TID 10005 accumulated AGD, right breast"
+    )
 
 
 class ExamSummary(ReadModel):

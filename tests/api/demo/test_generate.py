@@ -248,10 +248,11 @@ def test_every_file_is_dicom_and_a_sample_reencodes_identically(
         classes[str(ds.SOPClassUID)] += 1
         assert ds.file_meta.TransferSyntaxUID == "1.2.840.10008.1.2.1"
         assert ds.PatientComments.startswith("INVENTED")
-    # DX, CR, CT images and X-Ray Radiation Dose SRs (PS3.4 Table B.5-1)
+    # DX, CR, CT, Digital Mammography images and X-Ray Radiation Dose SRs (PS3.4 Table B.5-1)
     assert set(classes) == {
         "1.2.840.10008.5.1.4.1.1.1.1",
         "1.2.840.10008.5.1.4.1.1.1",
+        "1.2.840.10008.5.1.4.1.1.1.2",
         "1.2.840.10008.5.1.4.1.1.2",
         "1.2.840.10008.5.1.4.1.1.88.67",
     }
@@ -284,10 +285,39 @@ def test_ingest_reads_what_the_truth_table_says(
                 assert event.dap_gy_cm2 is None
             if row["ctdivol_mgy"]:
                 assert event.ctdivol_mgy == pytest.approx(float(row["ctdivol_mgy"]), rel=1e-3)
+            if row["agd_reported_mgy"]:  # Organ Dose (0040,0316) written in dGy (PS3.3)
+                assert event.organ_dose_mgy == pytest.approx(float(row["agd_reported_mgy"]))
+                assert event.body_part_thickness_mm == float(row["thickness_mm"])
             if row["field_area_cm2"] and event.field_area_cm2 is not None:
                 assert event.field_area_cm2 == pytest.approx(float(row["field_area_cm2"]), rel=1e-3)
             assert event.patient_pseudo_id and not event.patient_pseudo_id.startswith("HB")
     assert checked > 500
+
+
+@pytest.mark.slow
+def test_the_mammography_room_is_w_rh_with_its_band_planted(
+    demo: tuple[Path, ScenarioManifest],
+) -> None:
+    root, manifest = demo
+    (finding,) = [f for f in manifest.planted_findings if f.id.startswith("mammography")]
+    assert finding.kind == "group_above_level" and finding.exam_type == "mammo_cc"
+    assert finding.expected["patient_group"] == "breast_50_60mm"
+    for month in finding.expected["by_month"].values():
+        # ICRP 135: about 50 views per group for mammography (from memory, medium); the band's
+        # median planted at 1.2 x the invented local level of mammo_cc (2.0 mGy)
+        assert month["n"] >= 50
+        assert 1.1 <= month["median"] / 2.0 <= 1.3
+    pseudonymiser = Pseudonymiser(b"\x01" * 32)
+    files = sorted((root / "folder" / "mammo1").rglob("*.dcm"))
+    views = Counter()
+    for path in files[::41]:  # 41: every view in turn (a study has four)
+        (event,) = read_file(path, pseudonymiser=pseudonymiser).events
+        assert (event.modality, event.anode_material) == ("MG", "tungsten")
+        assert [(f.material, f.thickness_mm) for f in event.filters] == [("rhodium", 0.05)]
+        assert event.organ_exposed == "BREAST" and event.mammography_acquisition == "2d"
+        assert event.image_laterality in ("L", "R") and 20 <= event.body_part_thickness_mm <= 100
+        views[event.view_position] += 1
+    assert set(views) == {"CC", "MLO"}
 
 
 @pytest.mark.slow
@@ -440,6 +470,7 @@ def test_planted_findings_are_listed_with_review_kinds(demo: tuple[Path, Scenari
         "deviation_index_out_of_range": 2,
         "no_dose_data": 1,
         "unmapped_events": 1,
+        "group_above_level": 1,  # the mammography room's CC views in the 50-60 mm band
         "ingest_error": 3,
         "recurrent_exposure": 1,  # found on the recurrent-exposure list, not by a flag
     }

@@ -97,9 +97,9 @@ def test_icrp_135_minimum_sample_for_radiography(make_events, n: int, status: st
 
 @pytest.mark.parametrize(("n", "status"), [(49, "insufficient_sample"), (50, "below_level")])
 def test_icrp_135_minimum_sample_for_mammography(make_events, n: int, status: str) -> None:
-    # ICRP 135: 50 patients for mammography (from memory, medium)
+    # ICRP 135: 50 patients for mammography (from memory, medium); views of the 50-60 mm band
     rows = [
-        {"exam_type": "mammo_cc", "modality": "MG", "agd_mgy": 1.2, "patient_weight_kg": 70.0}
+        {"exam_type": "mammo_cc", "modality": "MG", "agd_mgy": 1.2, "breast_thickness_mm": 55.0}
     ] * n
     result = review(make_events(rows), levels=LEVELS, params=MARCH)
     local = group(result, quantity="agd_mgy", level_kind="local")

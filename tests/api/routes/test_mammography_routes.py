@@ -1,0 +1,87 @@
+"""Mammography through the REST API and the exam page: per view our D_G beside the device's
+AGD with what it was made with, and the accumulated AGD per breast (synthetic MG header and
+mammography report of the ingest tests; no real MG object is available, DICOM-NOTES section 4).
+"""
+
+from __future__ import annotations
+
+from pathlib import Path
+
+import pytest
+from fastapi.testclient import TestClient
+from rdsr_builders import mammography_report
+from test_mammography_paths import _mg_header
+
+from beamaudit.api.intake.pipeline import Pipeline
+from beamaudit.api.intake.postprocess import Completion
+from beamaudit.api.intake.scanning import scan_paths
+from beamaudit.ingest.pseudonym import load_or_create_key
+
+
+@pytest.fixture
+def mg(api, tmp_path: Path):
+    header, report = _mg_header(), mammography_report()
+    folder = tmp_path / "in"
+    folder.mkdir()
+    header.save_as(folder / "header.dcm", enforce_file_format=True)
+    report.save_as(folder / "report.dcm", enforce_file_format=True)
+    scan_paths(
+        [folder],
+        pipeline=Pipeline(api.store.session_factory, completion=Completion()),
+        key=load_or_create_key(tmp_path / "k.key"),
+    )
+    return header, report
+
+
+def test_event_list_and_detail_carry_the_view_and_both_doses(api, mg) -> None:
+    items = api.get("/events", params={"modality": "MG"}, as_="physicist").json()["items"]
+    header = next(i for i in items if i["source_kind"] == "image_header")
+    assert header["view_position"] == "CC" and header["image_laterality"] == "L"
+    assert header["body_part_thickness_mm"] == 49.0
+    assert header["organ_dose_mgy"] == pytest.approx(1.31)  # 0.0131 dGy (DICOM PS3.3)
+    assert header["agd_ratio_reported_to_recon"] == pytest.approx(1.31 / header["recon_mgd_mgy"])
+    body = api.get(f"/events/{header['id']}", as_="physicist").json()
+    mammo = body["mammography"]
+    assert mammo["target_filter"] == "W/Rh" and mammo["acquisition"] == "2d"
+    assert mammo["compressed_thickness_mm"] == 49.0 and mammo["compression_force_n"] == 104.0
+    assert mammo["glandularity_assumed"] is True and 0 < mammo["glandularity_percent"] < 100
+    assert mammo["coefficients"] == "beamaudit Monte Carlo"
+    assert mammo["method"].startswith("Dance method") and mammo["t"] is None
+    assert mammo["mgd_mgy"] == pytest.approx(header["recon_mgd_mgy"])
+    rows = {r["quantity"]: r for r in body["dose_breakdown"]}
+    assert rows["agd_mgy"]["reported"] == pytest.approx(1.31)
+    assert rows["agd_mgy"]["reconstructed"] == pytest.approx(mammo["mgd_mgy"])
+    assert rows["agd_mgy"]["ratio_reported_to_reconstructed"] == pytest.approx(
+        mammo["ratio_reported_to_reconstructed"]
+    )
+    assert body["recon_trail"]["mgd_mgy"] == pytest.approx(mammo["mgd_mgy"])
+    assert "estimate" in body["caution"]
+
+
+def test_a_non_mammography_event_has_no_mammography_block(api, mg) -> None:
+    from api_support import parse_result, seed
+
+    (event_id,) = seed(api.store, [parse_result("1.2.3.9", study="1.2.3.900")])
+    assert api.get(f"/events/{event_id}", as_="physicist").json()["mammography"] is None
+
+
+def test_the_exam_gives_the_accumulated_agd_per_breast(api, mg) -> None:
+    _, report = mg
+    exams = api.get("/exams", as_="physicist").json()["items"]
+    exam = next(e for e in exams if e["study_instance_uid"] == report.StudyInstanceUID)
+    (acc,) = api.get(f"/exams/{exam['id']}", as_="physicist").json()["accumulated"]
+    assert acc["agd_left_mgy"] == pytest.approx(3.13)
+    assert acc["agd_right_mgy"] == pytest.approx(1.30)
+    assert acc["agd_total_mgy"] is None
+
+
+def test_the_exam_page_shows_our_dose_beside_the_device_s(api, mg) -> None:
+    header, _ = mg
+    client: TestClient = api.client
+    page = client.get(f"/exams/{header.StudyInstanceUID}", headers=api.headers("physicist"))
+    assert page.status_code == 200, page.text[:300]
+    text = page.text
+    assert "Mean glandular dose (AGD)" in text
+    assert "W/Rh" in text and "Compressed breast thickness" in text
+    assert "Glandularity used" in text and "s (spectrum)" in text
+    assert "1.31" in text  # the device's AGD beside ours
