@@ -29,6 +29,7 @@ COMMAND_MODULES = (
     "explain",
     "beam",
     "dose",
+    "skin",
     "mgd",
     "token",
     "demo",
