@@ -103,7 +103,8 @@ def _print(data: dict[str, Any]) -> None:
         )
         out.append(
             "skin area at or above 2 Gy "
-            f"{_num(data['area_above_2gy_cm2'], 'cm²')}, 3 Gy {_num(data['area_above_3gy_cm2'], 'cm²')}, "
+            f"{_num(data['area_above_2gy_cm2'], 'cm²')}, "
+            f"3 Gy {_num(data['area_above_3gy_cm2'], 'cm²')}, "
             f"5 Gy {_num(data['area_above_5gy_cm2'], 'cm²')}"
         )
     crossed = [c["text"] for c in data["level_checks"] if c.get("crossed")]
