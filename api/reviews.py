@@ -74,6 +74,7 @@ from beamaudit.api.runs import (
     scope_words,
     this_process,
 )
+from beamaudit.api.skin_doses import add_skin_dose_flags
 from beamaudit.api.store import models as m
 from beamaudit.api.store.base import utcnow
 from beamaudit.api.store.engine import SQLITE_BUSY_TIMEOUT_MS
@@ -970,6 +971,7 @@ def run_review(
             result, used = execute_review(session, params)
             body = result.to_json_dict()
             _study_uids_in_flags(session, body["flags"])
+            add_skin_dose_flags(session, body["flags"], parameters)
             done = session.get(m.ReviewRun, run_id)
             assert done is not None
             done.level_sets = used

@@ -406,3 +406,95 @@ class _RecordMap:
     dose_mgy: Any
     peak_skin_dose_mgy: float
     assumptions: tuple[str, ...]
+
+
+def add_skin_dose_flags(
+    session: Session, flags: list[dict[str, Any]], parameters: Mapping[str, Any]
+) -> int:
+    """Put the stored peak skin doses into a review's NCRP 168 flags (``srdl_exceeded``).
+
+    A procedure of the period whose PSD reached the NCRP 168 level gets it added to its
+    ``srdl_exceeded`` flag (numbers ``peak_skin_dose_mgy`` and ``peak_skin_dose_mgy_srdl``, and
+    the reason), or a flag of its own when no other level was crossed. Only procedures with an
+    event within the run's period and scope (sites, rooms, exam types) count. Returns how many
+    flags gained a PSD. ``flags`` are the review's JSON flags (``Flag.to_json_dict()``), changed in place.
+    """
+    from beamaudit.model.followup import substantial_dose_levels
+
+    level = substantial_dose_levels()["peak_skin_dose"].value
+    period = parameters.get("period") or {}
+    start, end = str(period.get("start") or ""), str(period.get("end") or "")  # end exclusive
+    query = (
+        select(
+            m.Study.study_instance_uid,
+            m.Study.exam_type,
+            m.SkinDoseRow.peak_skin_dose_mgy,
+            m.SkinDoseRow.uncertainty_pct,
+            m.Room.name,
+            m.Site.name,
+            m.ExposureEventRow.event_datetime,
+        )
+        .join(m.Study, m.Study.id == m.SkinDoseRow.study_id)
+        .join(m.ExposureEventRow, m.ExposureEventRow.study_id == m.Study.id)
+        .outerjoin(m.Room, m.Room.id == m.ExposureEventRow.room_id)
+        .outerjoin(m.Site, m.Site.id == m.Room.site_id)
+        .where(m.SkinDoseRow.status == "ok", m.SkinDoseRow.peak_skin_dose_mgy >= level)
+    )
+    by_study: dict[str, tuple[Any, ...]] = {}
+    for uid, exam_type, psd, u_pct, room, site, when in session.execute(query).all():
+        # events are judged by their own time, as the review does
+        if when is None or not (start <= when.date().isoformat() < end):
+            continue
+        if not _in_scope(parameters, room=room, site=site, exam_type=exam_type):
+            continue
+        by_study.setdefault(uid, (exam_type, float(psd), u_pct, room, site))
+    existing = {
+        (f.get("concerns") or {}).get("study_uid"): f
+        for f in flags
+        if f.get("kind") == "srdl_exceeded"
+    }
+    added = 0
+    for uid, (exam_type, psd, u_pct, room, site) in by_study.items():
+        text = (
+            f"peak skin dose {psd:.0f} mGy (estimated, ±{u_pct or 0:.0f} %, k = 2) >= {level:g} mGy"
+        )
+        flag = existing.get(uid)
+        if flag is None:
+            flag = {
+                "kind": "srdl_exceeded",
+                "severity": "action",
+                "reason": (
+                    f"Study {uid} ({exam_type or 'unmapped'}"
+                    f"{' in room ' + room if room else ''}) exceeds the NCRP 168 substantial "
+                    f"radiation dose level: {text}. Follow the patient up for possible skin "
+                    "effects as local procedure requires."
+                ),
+                "numbers": {},
+                "concerns": {
+                    k: v
+                    for k, v in (
+                        ("study_uid", uid),
+                        ("site", site),
+                        ("room", room),
+                        ("exam_type", exam_type),
+                    )
+                    if v is not None
+                },
+            }
+            flags.append(flag)
+        else:
+            flag["reason"] = flag["reason"].replace("level: ", f"level: {text}; ", 1)
+        flag["numbers"]["peak_skin_dose_mgy"] = psd
+        flag["numbers"]["peak_skin_dose_mgy_srdl"] = level
+        added += 1
+    return added
+
+
+def _in_scope(
+    parameters: Mapping[str, Any], *, room: str | None, site: str | None, exam_type: str | None
+) -> bool:
+    for key, value in (("rooms", room), ("sites", site), ("exam_types", exam_type)):
+        wanted = parameters.get(key)
+        if wanted and value not in wanted:
+            return False
+    return True

@@ -162,3 +162,33 @@ def test_the_skin_command_prints_psd_areas_levels_and_the_caution(
     assert main(["skin", "1.2.3.nothing"]) == 2
     err = capsys.readouterr().err
     assert "no study" in err and "Traceback" not in err
+
+
+def test_a_review_flags_the_procedure_whose_psd_reached_3_gy(store, tmp_path) -> None:
+    from beamaudit.api.review import Period, ReviewParameters
+    from beamaudit.api.reviews import run_review
+
+    folder = tmp_path / "in"
+    folder.mkdir()
+    # PSD above 3 Gy while K_a,r (4.4 Gy), DAP and time stay below their NCRP 168 levels:
+    # only the skin dose can flag it
+    hot = fluoroscopy_report(
+        [run(2.2, -2.0), run(2.2, 2.0)], study_uid="1.2.826.0.1.3680043.10.1.994"
+    )
+    (folder / "hot.dcm").write_bytes(to_bytes(hot))
+    scan(store, folder, tmp_path)
+    found = rows(store)["994"]
+    with store.session_factory.begin() as s:
+        when = s.scalar(select(m.ExposureEventRow.event_datetime))
+    assert found.peak_skin_dose_mgy > 3000.0, found.peak_skin_dose_mgy
+    assert found.levels_crossed == ["peak_skin_dose"]
+    run_id = run_review(
+        store.session_factory, ReviewParameters(period=Period.month(when.year, when.month))
+    )
+    with store.session_factory() as s:
+        run_row = s.get(m.ReviewRun, run_id)
+        flags = [f for f in run_row.result["flags"] if f["kind"] == "srdl_exceeded"]
+    (flag,) = flags
+    assert flag["concerns"]["study_uid"].endswith("994")
+    assert flag["numbers"]["peak_skin_dose_mgy"] == pytest.approx(found.peak_skin_dose_mgy)
+    assert "peak skin dose" in flag["reason"] and "Follow the patient up" in flag["reason"]
