@@ -336,12 +336,13 @@ def _room_names(session: Session) -> set[str]:
 
 def _exam(session: Session, study_uid: str, ctx: Any) -> str:
     from beamaudit.api.page_data import exam_record
+    from beamaudit.api.skin_doses import skin_page_record
     from beamaudit.dashboards import render_exam
 
     record = exam_record(session, study_uid)
     if record is None:
         raise HTTPException(404, f"There is no study {study_uid!r} in the store.")
-    return render_exam(record, context=ctx)
+    return render_exam(record, context=ctx, skin_dose=skin_page_record(session, study_uid))
 
 
 @router.get("/exams/{study_uid}", response_class=HTMLResponse)

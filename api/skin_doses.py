@@ -416,8 +416,8 @@ def add_skin_dose_flags(
     A procedure of the period whose PSD reached the NCRP 168 level gets it added to its
     ``srdl_exceeded`` flag (numbers ``peak_skin_dose_mgy`` and ``peak_skin_dose_mgy_srdl``, and
     the reason), or a flag of its own when no other level was crossed. Only procedures with an
-    event within the run's period and scope (sites, rooms, exam types) count. Returns how many
-    flags gained a PSD. ``flags`` are the review's JSON flags (``Flag.to_json_dict()``), changed in place.
+    event within the run's period and scope (sites, rooms, exam types) count. Returns how
+    many flags gained a PSD. ``flags`` are the review's JSON flags, changed in place.
     """
     from beamaudit.model.followup import substantial_dose_levels
 
@@ -498,3 +498,27 @@ def _in_scope(
         if wanted and value not in wanted:
             return False
     return True
+
+
+def skin_page_record(session: Session, study_uid: str) -> dict[str, Any] | None:
+    """The exam page's skin-dose input (``render_exam(skin_dose=)``), or None."""
+    row = session.execute(
+        select(m.SkinDoseRow)
+        .join(m.Study, m.Study.id == m.SkinDoseRow.study_id)
+        .where(m.Study.study_instance_uid == study_uid)
+    ).scalar_one_or_none()
+    if row is None:
+        return None
+    return {
+        "status": row.status,
+        "reason": row.reason,
+        "peak_skin_dose_mgy": row.peak_skin_dose_mgy,
+        "area_above_2gy_cm2": row.area_above_2gy_cm2,
+        "area_above_3gy_cm2": row.area_above_3gy_cm2,
+        "area_above_5gy_cm2": row.area_above_5gy_cm2,
+        "uncertainty_pct": row.uncertainty_pct,
+        "events_used": row.events_used,
+        "level_checks": list(row.level_checks or []),
+        "followup_status": row.followup_status,
+        "record": row.record,
+    }

@@ -340,6 +340,7 @@ def render_exam(
     back_href: str | None = None,
     exam_types: TableLike | None = None,
     context: PageContext | None = None,
+    skin_dose: Mapping[str, Any] | None = None,
 ) -> str:
     """An examination's drill-down (served at ``/exams/{study_uid}``).
 
@@ -356,8 +357,15 @@ def render_exam(
         The ``EXAM_TYPES`` table, for the examination's name.
     context : PageContext, optional
         Facility, version, user.
+    skin_dose : mapping, optional
+        A fluoroscopy or interventional procedure's skin dose: ``status``, ``reason``,
+        ``peak_skin_dose_mgy``, ``area_above_2gy_cm2`` / ``3gy`` / ``5gy``, ``uncertainty_pct``,
+        ``events_used``, ``level_checks`` (each with ``crossed`` and ``text``),
+        ``followup_status`` and ``record`` (the map record, drawn by
+        :func:`~beamaudit.dashboards.figures.build_skin_dose_map`).
     """
     detail = parse_exam(exam)
+    skin = _exam_page.skin_view(skin_dose) if skin_dose is not None else None
     names = ExamTypes(exam_types).names
     exposures = _exam_page.exposure_views(detail)
     title = exam_name(detail.exam_type, names)
@@ -366,7 +374,9 @@ def render_exam(
         context=context,
         page_title=f"{title}, {detail.room}",
         active="",
-        has_figures=any(e["spectrum"] is not None for e in exposures),
+        has_figures=any(e["spectrum"] is not None for e in exposures)
+        or (skin is not None and skin["figure"] is not None),
+        skin=skin,
         exam=detail,
         title=title,
         info=_exam_page.info_lines(detail),
