@@ -522,3 +522,21 @@ def skin_page_record(session: Session, study_uid: str) -> dict[str, Any] | None:
         "followup_status": row.followup_status,
         "record": row.record,
     }
+
+
+def followup_page_data(session: Session, window_days: float) -> dict[str, Any]:
+    """The flags page's follow-up section (``render_flags(followup=)``)."""
+    return {
+        "items": followup_rows(session),
+        "window_days": window_days,
+        "cumulative": [
+            {
+                "patient_pseudo_id": e.patient_pseudo_id,
+                "procedures": len(e.study_uids),
+                "peak_skin_dose_mgy": e.peak_skin_dose_mgy,
+                "upper_bound_mgy": e.upper_bound_mgy,
+                "method": e.method,
+            }
+            for e in cumulative_skin_doses(session, window_days=window_days)
+        ],
+    }

@@ -197,3 +197,39 @@ def skin_view(skin: Mapping[str, Any]) -> dict[str, Any]:
         "assumptions": list((record or {}).get("assumptions") or []),
         "figure": figure,
     }
+
+
+def followup_view(followup: Mapping[str, Any]) -> dict[str, Any]:
+    """The flags page's follow-up section: one row per procedure, one per patient's total."""
+
+    def mgy(value: Any) -> str:
+        return "–" if value is None else f"{float(value):,.0f} mGy"
+
+    items = []
+    for item in followup.get("items") or []:
+        when = item.get("study_datetime")
+        items.append(
+            {
+                "study_uid": item["study_instance_uid"],
+                "when": when.strftime("%Y-%m-%d") if hasattr(when, "strftime") else "–",
+                "psd": mgy(item.get("peak_skin_dose_mgy")),
+                "levels": [c["text"] for c in item.get("level_checks") or [] if c.get("crossed")],
+                "status": FOLLOWUP_WORDS.get(str(item.get("followup_status")), "–"),
+                "note": item.get("followup_note") or "",
+            }
+        )
+    cumulative = [
+        {
+            "patient": c["patient_pseudo_id"],
+            "procedures": c["procedures"],
+            "psd": mgy(c["peak_skin_dose_mgy"]),
+            "upper": mgy(c["upper_bound_mgy"]),
+            "added": "maps added" if str(c["method"]).startswith("maps_added") else "peaks added",
+        }
+        for c in followup.get("cumulative") or []
+    ]
+    return {
+        "procedures": items,
+        "cumulative": cumulative,
+        "window_days": followup.get("window_days"),
+    }

@@ -400,6 +400,7 @@ def render_flags(
     can_triage: bool = False,
     exam_types: TableLike | None = None,
     context: PageContext | None = None,
+    followup: Mapping[str, Any] | None = None,
 ) -> str:
     """The flags list with filters (served at ``/flags``), and triage for physicists.
 
@@ -420,6 +421,13 @@ def render_flags(
         The ``EXAM_TYPES`` table, for the examinations' names.
     context : PageContext, optional
         Facility, version, user.
+    followup : mapping, optional
+        Patients to follow up after fluoroscopy or interventional procedures (physicists only):
+        ``items`` (procedures at or above an NCRP 168 level: ``study_instance_uid``,
+        ``study_datetime``, ``peak_skin_dose_mgy``, ``level_checks``, ``followup_status``,
+        ``followup_note``), ``window_days`` and ``cumulative`` (per pseudonymised patient:
+        ``patient_pseudo_id``, ``procedures``, ``peak_skin_dose_mgy``, ``upper_bound_mgy``,
+        ``method``).
     """
     table = FLAGS.validate(flags)
     if status and status not in FLAG_STATUS_WORDS:
@@ -443,6 +451,7 @@ def render_flags(
         total=len(table),
         can_triage=can_triage and bool(context and context.csrf_token),
         triage_actions=TRIAGE_ACTIONS,
+        followup=_exam_page.followup_view(followup) if followup is not None else None,
         filters=[
             ("kind", "Kind", kind or "",
              [(v, words_for(FLAG_KIND_WORDS, v)) for v in choices("kind")]),
