@@ -14,6 +14,7 @@ and its note are kept when the map is computed again.
 
 from __future__ import annotations
 
+import functools
 import logging
 import math
 from collections.abc import Iterable, Mapping, Sequence
@@ -31,13 +32,13 @@ log = logging.getLogger(__name__)
 
 __all__ = [
     "FOLLOWUP_STATES",
-    "SKIN_GEOMETRY_FIELDS",
     "SKIN_MODALITIES",
     "CumulativeEntry",
     "compute_study_skin_dose",
     "cumulative_skin_doses",
     "followup_rows",
     "set_followup",
+    "skin_geometry_fields",
     "skin_geometry_of",
     "studies_with_geometry",
     "update_skin_doses",
@@ -48,33 +49,28 @@ SKIN_MODALITIES = frozenset({"XA", "RF"})
 #: Follow-up states, in the order a patient goes through them.
 FOLLOWUP_STATES = ("open", "patient_informed", "follow_up_booked", "closed")
 
-#: SkinEvent fields that the events table keeps only in ``skin_geometry`` (JSON)
-SKIN_GEOMETRY_FIELDS: tuple[str, ...] = (
-    "positioner_primary_angle_deg",
-    "positioner_secondary_angle_deg",
-    "positioner_primary_end_angle_deg",
-    "positioner_secondary_end_angle_deg",
-    "reference_point_definition",
-    "table_longitudinal_position_mm",
-    "table_lateral_position_mm",
-    "table_height_position_mm",
-    "table_longitudinal_end_position_mm",
-    "table_lateral_end_position_mm",
-    "table_height_end_position_mm",
-    "table_head_tilt_angle_deg",
-    "table_cradle_tilt_angle_deg",
-    "table_horizontal_rotation_angle_deg",
-    "patient_table_relationship",
-    "patient_orientation",
-    "patient_orientation_modifier",
-)
+
+@functools.cache
+def skin_geometry_fields() -> tuple[str, ...]:
+    """SkinEvent fields that the events table keeps only in ``skin_geometry`` (JSON): positioner
+    angles, table positions and tilts, reference point definition, patient position (read on
+    first use: importing the model is left to the storing process)."""
+    from beamaudit.ingest.events import ExposureEvent
+    from beamaudit.model.skin_events import SkinEvent
+
+    columns = set(m.ExposureEventRow.__table__.columns.keys())
+    return tuple(
+        f.name
+        for f in fields(SkinEvent)
+        if f.name in ExposureEvent.__dataclass_fields__ and f.name not in columns
+    )
 
 
 def skin_geometry_of(event: Any) -> dict[str, Any] | None:
     """The ``skin_geometry`` JSON of an ingest event (None when it records none)."""
     values = {
         name: getattr(event, name, None)
-        for name in SKIN_GEOMETRY_FIELDS
+        for name in skin_geometry_fields()
         if getattr(event, name, None) is not None
     }
     return values or None
@@ -96,7 +92,7 @@ def _skin_room(room: m.Room | None) -> Any:
 
     if room is None:
         return SkinRoom()
-    signs = {
+    signs: dict[str, Any] = {
         name: int(value)
         for name, value in (
             ("longitudinal_sign", room.table_longitudinal_sign),
@@ -447,7 +443,7 @@ def add_skin_dose_flags(
             continue
         if not _in_scope(parameters, room=room, site=site, exam_type=exam_type):
             continue
-        by_study.setdefault(uid, (exam_type, float(psd), u_pct, room, site))
+        by_study.setdefault(uid, (exam_type, float(psd or 0.0), u_pct, room, site))
     existing = {
         (f.get("concerns") or {}).get("study_uid"): f
         for f in flags

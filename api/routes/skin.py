@@ -45,7 +45,7 @@ def _read(skin: m.SkinDoseRow, study: m.Study) -> SkinDoseRead:
         events_used=skin.events_used,
         events_at_peak=list(skin.events_at_peak or []),
         levels_crossed=list(skin.levels_crossed or []),
-        level_checks=list(skin.level_checks or []),  # type: ignore[arg-type]
+        level_checks=list(skin.level_checks or []),
         followup_status=skin.followup_status,  # type: ignore[arg-type]
         followup_note=skin.followup_note,
         followup_by=skin.followup_by,

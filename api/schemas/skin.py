@@ -21,20 +21,20 @@ __all__ = [
 FollowUpStatus = Literal["open", "patient_informed", "follow_up_booked", "closed"]
 
 
-class LevelCheckRead(ReadModel):
-    """A procedure's value beside one NCRP 168 substantial radiation dose level."""
+class _FollowUp(ReadModel):
+    """Where a procedure's follow-up stands, and its NCRP 168 levels."""
 
-    key: str
-    quantity: str
-    level: float
-    unit: str
-    value: float | None
-    crossed: bool | None
-    ratio: float | None
-    text: str
+    levels_crossed: list[str]
+    level_checks: list[dict[str, Any]] = Field(
+        description="each level: key, quantity, level, unit, value, crossed, ratio, text"
+    )
+    followup_status: FollowUpStatus
+    followup_note: str | None
+    followup_by: str | None
+    followup_at: datetime | None
 
 
-class SkinDoseRead(ReadModel):
+class SkinDoseRead(_FollowUp):
     """A procedure's skin-dose estimate (every figure an estimate: see ``caution``)."""
 
     exam_id: int
@@ -49,19 +49,13 @@ class SkinDoseRead(ReadModel):
     uncertainty_pct: float | None = Field(description="expanded uncertainty of the PSD, k = 2")
     events_used: int | None
     events_at_peak: list[dict[str, Any]]
-    levels_crossed: list[str]
-    level_checks: list[LevelCheckRead]
-    followup_status: FollowUpStatus
-    followup_note: str | None
-    followup_by: str | None
-    followup_at: datetime | None
     record: dict[str, Any] | None = Field(
         description="the map record: cells, dose per cell, peak, patient model, assumptions"
     )
     caution: str
 
 
-class FollowUpItem(ReadModel):
+class FollowUpItem(_FollowUp):
     """A procedure that reached an NCRP 168 level, and where its follow-up stands."""
 
     study_instance_uid: str
@@ -72,12 +66,6 @@ class FollowUpItem(ReadModel):
     peak_skin_dose_mgy: float | None
     area_above_3gy_cm2: float | None
     uncertainty_pct: float | None
-    levels_crossed: list[str]
-    level_checks: list[LevelCheckRead]
-    followup_status: FollowUpStatus
-    followup_note: str | None
-    followup_by: str | None
-    followup_at: datetime | None
 
 
 class CumulativeSkinDoseRead(ReadModel):
