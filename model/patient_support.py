@@ -34,11 +34,7 @@ from dataclasses import dataclass
 import numpy as np
 from numpy.typing import ArrayLike, NDArray
 
-from beamaudit.model.attenuation import (
-    energy_bin_centres_kev,
-    grid_mass_energy_absorption_cm2_g,
-    mass_energy_absorption_cm2_g,
-)
+from beamaudit.model.attenuation import mass_energy_absorption_on
 from beamaudit.model.defaults import dose_default
 from beamaudit.model.errors import ModelError
 from beamaudit.model.filtration import FilterSpec, describe_filters, transmission
@@ -142,15 +138,6 @@ def _kerma_transmission(
     return float(np.sum(kerma * t) / np.sum(kerma))
 
 
-def _air_mu_en(energies_kev: Floats) -> Floats:
-    """(mu_en/rho) of air at the energies: the model grid's cached values when they are its bin
-    centres (every spectrum the model makes), else computed."""
-    grid = energy_bin_centres_kev()
-    if energies_kev.shape == grid.shape and np.array_equal(energies_kev, grid):
-        return grid_mass_energy_absorption_cm2_g("air")
-    return mass_energy_absorption_cm2_g("air", energies_kev)
-
-
 def support_transmission(
     energies_kev: ArrayLike, photon_fluence: ArrayLike, support: PatientSupport
 ) -> tuple[SupportTransmission, Floats]:
@@ -184,7 +171,7 @@ def support_transmission(
             note="table transmission measured at one beam quality, used at every tube voltage; "
             "the backscatter factor and tissue/air ratio use the beam in front of the table",
         ), phi
-    kerma = phi * e * _air_mu_en(e)
+    kerma = phi * e * mass_energy_absorption_on("air", e)
     t = _kerma_transmission(kerma, support.layers)
     du = support.thickness_standard_uncertainty_mm_al
     u = 0.5 * abs(_kerma_transmission(kerma, support.layers, -du) - _kerma_transmission(
