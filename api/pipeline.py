@@ -650,7 +650,9 @@ class _BatchWriter:
             insert_rows(self.conn, _table(m.AccumulatedDoseRow), acc_rows)
         for study_id in sorted({study_ids[uid] for uid in self.with_report if uid in study_ids}):
             _link(self.conn, study_id)
-        skin_studies = studies_with_geometry(event_rows)
+        # the skin-dose maps of fluoroscopy studies with geometry, like the other figures: here
+        # with a completion, else by process_new_events
+        skin_studies = studies_with_geometry(event_rows) if self.completion is not None else ()
         if skin_studies:
             update_skin_doses(self.session, skin_studies)
         per_item: list[list[int]] = [[] for _ in items]

@@ -50,14 +50,19 @@ _RULE_INPUTS = (
 
 
 def process_new_events(sessions: sessionmaker[Session], event_ids: Sequence[int]) -> ReconSummary:
-    """Map the events to exam types (stored rules) and reconstruct their dose figures."""
+    """Map the events to exam types (stored rules), reconstruct their dose figures, and compute
+    the skin-dose maps of their fluoroscopy studies with geometry."""
     from beamaudit.api.reviews import map_stored_events
+    from beamaudit.api.skin_doses import update_stored_skin_doses
 
     ids = list(event_ids)
     for start in range(0, len(ids), CHUNK):
         with sessions.begin() as session:
             map_stored_events(session, ids[start : start + CHUNK])
-    return reconstruct_events(sessions, ids)
+    summary = reconstruct_events(sessions, ids)
+    with sessions.begin() as session:
+        update_stored_skin_doses(session, ids)
+    return summary
 
 
 class Completion:

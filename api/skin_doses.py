@@ -42,6 +42,7 @@ __all__ = [
     "skin_geometry_of",
     "studies_with_geometry",
     "update_skin_doses",
+    "update_stored_skin_doses",
 ]
 
 #: Modalities whose procedures get a skin-dose map (fluoroscopy, interventional).
@@ -258,6 +259,24 @@ def update_skin_doses(session: Session, study_ids: Iterable[int]) -> int:
                 n += 1
     session.flush()
     return n
+
+
+def update_stored_skin_doses(session: Session, event_ids: Sequence[int]) -> int:
+    """:func:`update_skin_doses` for the studies of events already stored (a listener's events
+    completed after the sends); returns how many maps were computed."""
+    e = m.ExposureEventRow
+    ids = list(event_ids)
+    rows: list[dict[str, Any]] = []
+    for start in range(0, len(ids), 500):
+        rows += [
+            dict(r._mapping)
+            for r in session.execute(
+                select(e.study_id, e.modality, e.skin_geometry).where(
+                    e.id.in_(ids[start : start + 500]), e.modality.in_(sorted(SKIN_MODALITIES))
+                )
+            )
+        ]
+    return update_skin_doses(session, studies_with_geometry(rows))
 
 
 def set_followup(

@@ -192,3 +192,22 @@ def test_a_review_flags_the_procedure_whose_psd_reached_3_gy(store, tmp_path) ->
     assert flag["concerns"]["study_uid"].endswith("994")
     assert flag["numbers"]["peak_skin_dose_mgy"] == pytest.approx(found.peak_skin_dose_mgy)
     assert "peak skin dose" in flag["reason"] and "Follow the patient up" in flag["reason"]
+
+
+def test_events_stored_without_completion_get_their_map_when_completed(store, tmp_path) -> None:
+    # a listener node storing as read (the demo's): the maps come with process_new_events
+    from beamaudit.api.postprocess import process_new_events
+
+    write_reports(tmp_path / "in")
+    summary = scan_paths(
+        [tmp_path / "in"],
+        pipeline=Pipeline(store.session_factory),
+        key=load_or_create_key(tmp_path / "k.key"),
+    )
+    assert summary.objects == 3 and rows(store) == {}
+    with store.session_factory() as s:
+        ids = list(s.scalars(select(m.ExposureEventRow.id)))
+    process_new_events(store.session_factory, ids)
+    found = rows(store)
+    assert set(found) == {"991", "992", "993"}
+    assert found["991"].peak_skin_dose_mgy > 3000.0
