@@ -211,3 +211,33 @@ def test_events_stored_without_completion_get_their_map_when_completed(store, tm
     found = rows(store)
     assert set(found) == {"991", "992", "993"}
     assert found["991"].peak_skin_dose_mgy > 3000.0
+
+
+def test_a_pulled_dose_report_gets_its_skin_dose(store) -> None:
+    # DICOMweb pull from a scripted loopback server (tests/ingest/fake_pacs.py): the report's
+    # metadata as DICOM JSON (PS3.18 F.2), read and stored through the pull path
+    from fake_pacs import Study, fake_pacs
+
+    from beamaudit.api.pulling import pull_source
+    from beamaudit.ingest.pseudonym import Pseudonymiser
+
+    report = fluoroscopy_report(
+        [run(3.0, -4.0), run(3.0, 4.0)], study_uid="1.2.826.0.1.3680043.10.1.996"
+    )
+    meta = report.to_json_dict()
+    meta["00080016"] = {"vr": "UI", "Value": [str(report.SOPClassUID)]}
+    meta["00080018"] = {"vr": "UI", "Value": [str(report.SOPInstanceUID)]}
+    day = str(report.get("StudyDate") or "20261103")
+    with fake_pacs(studies=[Study(str(report.StudyInstanceUID), day, [meta])]) as pacs:
+        outcome = pull_source(
+            store.session_factory,
+            url=pacs.url,
+            since="2000-01-01",
+            modalities=None,
+            pseudonymiser=Pseudonymiser(b"k" * 32),
+        )
+    assert outcome is not None
+    found = rows(store)
+    assert set(found) == {"996"}, outcome
+    assert found["996"].peak_skin_dose_mgy > 3000.0
+    assert "peak_skin_dose" in found["996"].levels_crossed
