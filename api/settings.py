@@ -30,6 +30,8 @@ from pydantic_settings import (
     TomlConfigSettingsSource,
 )
 
+from beamaudit.api.errors import ApiError
+
 __all__ = [
     "ApiSettings",
     "ListenerSettings",
@@ -41,7 +43,7 @@ __all__ = [
 ]
 
 
-class SettingsError(ValueError):
+class SettingsError(ApiError, ValueError):
     """The configuration cannot be used; the message says which setting and why."""
 
 

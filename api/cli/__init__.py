@@ -8,6 +8,7 @@ exit code 2; a command that finished but rejected some input exits 1.
 from __future__ import annotations
 
 import importlib
+import sys
 from pathlib import Path
 from typing import Annotated
 
@@ -79,11 +80,18 @@ def _root(
 
 def main(argv: list[str] | None = None) -> int:
     """Run the command line; returns the exit code (for tests: ``main(["--help"])``)."""
+    from beamaudit.errors import BeamauditError
+
     try:
         app(args=argv, prog_name="beamaudit", standalone_mode=True)
     except SystemExit as exc:
         code = exc.code
         return code if isinstance(code, int) else (0 if code is None else 1)
+    except BeamauditError as exc:
+        # the last net under every command: an error of any stage is one line, never a traceback
+        message = " ".join(str(exc).split()) or type(exc).__name__
+        sys.stderr.write(f"error: {message}\n")
+        return 2
     return 0
 
 

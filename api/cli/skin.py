@@ -64,7 +64,7 @@ def skin_command(
     from sqlalchemy import select
 
     from beamaudit.api.cli._store import open_store
-    from beamaudit.api.skin_doses import compute_study_skin_dose
+    from beamaudit.api.intake.skin import compute_study_skin_dose
     from beamaudit.api.store import models as m
 
     store = open_store(ctx)

@@ -14,11 +14,11 @@ from ingest_samples import to_bytes
 from rdsr_builders import EventGeometry, FluoroEvent, fluoroscopy_report
 from sqlalchemy import select
 
-from beamaudit.api.pipeline import Pipeline
-from beamaudit.api.postprocess import Completion
-from beamaudit.api.scanning import scan_paths
-from beamaudit.api.skin_doses import cumulative_skin_doses, followup_rows, set_followup
+from beamaudit.api.intake.pipeline import Pipeline
+from beamaudit.api.intake.postprocess import Completion
+from beamaudit.api.intake.scanning import scan_paths
 from beamaudit.api.store import models as m
+from beamaudit.api.store.skin_doses import cumulative_skin_doses, followup_rows, set_followup
 from beamaudit.ingest.pseudonym import load_or_create_key
 
 
@@ -166,7 +166,7 @@ def test_the_skin_command_prints_psd_areas_levels_and_the_caution(
 
 def test_a_review_flags_the_procedure_whose_psd_reached_3_gy(store, tmp_path) -> None:
     from beamaudit.api.review import Period, ReviewParameters
-    from beamaudit.api.reviews import run_review
+    from beamaudit.api.runs.reviews import run_review
 
     folder = tmp_path / "in"
     folder.mkdir()
@@ -196,7 +196,7 @@ def test_a_review_flags_the_procedure_whose_psd_reached_3_gy(store, tmp_path) ->
 
 def test_events_stored_without_completion_get_their_map_when_completed(store, tmp_path) -> None:
     # a listener node storing as read (the demo's): the maps come with process_new_events
-    from beamaudit.api.postprocess import process_new_events
+    from beamaudit.api.intake.postprocess import process_new_events
 
     write_reports(tmp_path / "in")
     summary = scan_paths(
@@ -218,7 +218,7 @@ def test_a_pulled_dose_report_gets_its_skin_dose(store) -> None:
     # metadata as DICOM JSON (PS3.18 F.2), read and stored through the pull path
     from fake_pacs import Study, fake_pacs
 
-    from beamaudit.api.pulling import pull_source
+    from beamaudit.api.intake.pulling import pull_source
     from beamaudit.ingest.pseudonym import Pseudonymiser
 
     report = fluoroscopy_report(
