@@ -315,6 +315,9 @@ class Settings(BaseSettings):
     metrics: MetricsSettings = Field(default_factory=MetricsSettings)
     standard_weight_kg: float = Field(default=70.0, gt=0)
     standard_weight_window_kg: float = Field(default=10.0, ge=0)
+    #: window of the cumulative skin dose of one patient's procedures, days (NCRP 168 asks for
+    #: earlier procedures to be taken into account; 60 days: the issue's default, assumed)
+    skin_dose_window_days: float = Field(default=60.0, gt=0, le=3650)
 
     @field_validator("database_url")
     @classmethod

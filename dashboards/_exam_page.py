@@ -6,6 +6,7 @@ Package-internal, used by :func:`beamaudit.dashboards.pages.render_exam`.
 from __future__ import annotations
 
 import math
+from collections.abc import Mapping
 from typing import Any
 
 import pandas as pd
@@ -152,3 +153,83 @@ def exposure_views(detail: ExamDetail) -> list[dict[str, Any]]:
 
 def standard_words(value: bool | None) -> str:
     return {True: "yes", False: "no", None: "not known"}[value]
+
+
+#: Follow-up states in words (API values: open, patient_informed, follow_up_booked, closed).
+FOLLOWUP_WORDS = {
+    "open": "to follow up",
+    "patient_informed": "patient informed",
+    "follow_up_booked": "follow-up booked",
+    "closed": "closed",
+}
+
+
+def skin_view(skin: Mapping[str, Any]) -> dict[str, Any]:
+    """The exam page's skin-dose section: figures in words and the map (or why there is none)."""
+
+    def mgy(value: Any) -> str:
+        return "–" if value is None else f"{float(value):,.0f} mGy"
+
+    def cm2(value: Any) -> str:
+        return "–" if value is None else f"{float(value):,.0f} cm²"
+
+    record = skin.get("record")
+    figure = None
+    if skin.get("status") == "ok" and record:
+        figure = _web.figure_block(figures.build_skin_dose_map(record), "skin-map", static=True)
+    u = skin.get("uncertainty_pct")
+    return {
+        "ok": skin.get("status") == "ok",
+        "reason": skin.get("reason"),
+        "facts": [
+            (
+                "Peak skin dose",
+                mgy(skin.get("peak_skin_dose_mgy"))
+                + ("" if u is None else f" (± {float(u):.0f} %, k = 2)"),
+            ),
+            ("Skin at or above 2 Gy", cm2(skin.get("area_above_2gy_cm2"))),
+            ("Skin at or above 3 Gy", cm2(skin.get("area_above_3gy_cm2"))),
+            ("Skin at or above 5 Gy", cm2(skin.get("area_above_5gy_cm2"))),
+            ("Events in the map", str(skin.get("events_used") or "–")),
+            ("Follow-up", FOLLOWUP_WORDS.get(str(skin.get("followup_status")), "–")),
+        ],
+        "crossed": [c["text"] for c in skin.get("level_checks") or [] if c.get("crossed")],
+        "assumptions": list((record or {}).get("assumptions") or []),
+        "figure": figure,
+    }
+
+
+def followup_view(followup: Mapping[str, Any]) -> dict[str, Any]:
+    """The flags page's follow-up section: one row per procedure, one per patient's total."""
+
+    def mgy(value: Any) -> str:
+        return "–" if value is None else f"{float(value):,.0f} mGy"
+
+    items = []
+    for item in followup.get("items") or []:
+        when = item.get("study_datetime")
+        items.append(
+            {
+                "study_uid": item["study_instance_uid"],
+                "when": when.strftime("%Y-%m-%d") if hasattr(when, "strftime") else "–",
+                "psd": mgy(item.get("peak_skin_dose_mgy")),
+                "levels": [c["text"] for c in item.get("level_checks") or [] if c.get("crossed")],
+                "status": FOLLOWUP_WORDS.get(str(item.get("followup_status")), "–"),
+                "note": item.get("followup_note") or "",
+            }
+        )
+    cumulative = [
+        {
+            "patient": c["patient_pseudo_id"],
+            "procedures": c["procedures"],
+            "psd": mgy(c["peak_skin_dose_mgy"]),
+            "upper": mgy(c["upper_bound_mgy"]),
+            "added": "maps added" if str(c["method"]).startswith("maps_added") else "peaks added",
+        }
+        for c in followup.get("cumulative") or []
+    ]
+    return {
+        "procedures": items,
+        "cumulative": cumulative,
+        "window_days": followup.get("window_days"),
+    }

@@ -342,6 +342,7 @@ def render_exam(
     back_href: str | None = None,
     exam_types: TableLike | None = None,
     context: PageContext | None = None,
+    skin_dose: Mapping[str, Any] | None = None,
 ) -> str:
     """An examination's drill-down (served at ``/exams/{study_uid}``).
 
@@ -358,8 +359,15 @@ def render_exam(
         The ``EXAM_TYPES`` table, for the examination's name.
     context : PageContext, optional
         Facility, version, user.
+    skin_dose : mapping, optional
+        A fluoroscopy or interventional procedure's skin dose: ``status``, ``reason``,
+        ``peak_skin_dose_mgy``, ``area_above_2gy_cm2`` / ``3gy`` / ``5gy``, ``uncertainty_pct``,
+        ``events_used``, ``level_checks`` (each with ``crossed`` and ``text``),
+        ``followup_status`` and ``record`` (the map record, drawn by
+        :func:`~beamaudit.dashboards.figures.build_skin_dose_map`).
     """
     detail = parse_exam(exam)
+    skin = _exam_page.skin_view(skin_dose) if skin_dose is not None else None
     names = ExamTypes(exam_types).names
     exposures = _exam_page.exposure_views(detail)
     title = exam_name(detail.exam_type, names)
@@ -368,7 +376,9 @@ def render_exam(
         context=context,
         page_title=f"{title}, {detail.room}",
         active="",
-        has_figures=any(e["spectrum"] is not None for e in exposures),
+        has_figures=any(e["spectrum"] is not None for e in exposures)
+        or (skin is not None and skin["figure"] is not None),
+        skin=skin,
         exam=detail,
         title=title,
         info=_exam_page.info_lines(detail),
@@ -392,6 +402,7 @@ def render_flags(
     can_triage: bool = False,
     exam_types: TableLike | None = None,
     context: PageContext | None = None,
+    followup: Mapping[str, Any] | None = None,
 ) -> str:
     """The flags list with filters (served at ``/flags``), and triage for physicists.
 
@@ -412,6 +423,13 @@ def render_flags(
         The ``EXAM_TYPES`` table, for the examinations' names.
     context : PageContext, optional
         Facility, version, user.
+    followup : mapping, optional
+        Patients to follow up after fluoroscopy or interventional procedures (physicists only):
+        ``items`` (procedures at or above an NCRP 168 level: ``study_instance_uid``,
+        ``study_datetime``, ``peak_skin_dose_mgy``, ``level_checks``, ``followup_status``,
+        ``followup_note``), ``window_days`` and ``cumulative`` (per pseudonymised patient:
+        ``patient_pseudo_id``, ``procedures``, ``peak_skin_dose_mgy``, ``upper_bound_mgy``,
+        ``method``).
     """
     table = FLAGS.validate(flags)
     if status and status not in FLAG_STATUS_WORDS:
@@ -435,6 +453,7 @@ def render_flags(
         total=len(table),
         can_triage=can_triage and bool(context and context.csrf_token),
         triage_actions=TRIAGE_ACTIONS,
+        followup=_exam_page.followup_view(followup) if followup is not None else None,
         filters=[
             ("kind", "Kind", kind or "",
              [(v, words_for(FLAG_KIND_WORDS, v)) for v in choices("kind")]),

@@ -388,6 +388,15 @@ def energy_bin_edges_kev() -> FloatArray:
     return edges
 
 
+def mass_energy_absorption_on(name: str | Material, energies_kev: FloatArray) -> FloatArray:
+    """μen/ρ (cm²/g) at ``energies_kev``: the grid's cached values when they are the grid's bin
+    centres (every spectrum the model makes), else :func:`mass_energy_absorption_cm2_g`."""
+    grid = energy_bin_centres_kev()
+    if energies_kev.shape == grid.shape and np.array_equal(energies_kev, grid):
+        return grid_mass_energy_absorption_cm2_g(name)
+    return mass_energy_absorption_cm2_g(name, energies_kev)
+
+
 @lru_cache(maxsize=1)
 def energy_bin_centres_kev() -> FloatArray:
     """Centres of the fixed energy grid's bins, keV (read-only array).

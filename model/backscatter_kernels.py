@@ -60,7 +60,7 @@ import numpy as np
 from numpy.typing import ArrayLike, NDArray
 
 from beamaudit.model._datafile import parse_commented_csv
-from beamaudit.model.attenuation import mass_energy_absorption_cm2_g
+from beamaudit.model.attenuation import mass_energy_absorption_on
 from beamaudit.model.backscatter import BackscatterTable, load_backscatter_table
 from beamaudit.model.errors import ModelError
 
@@ -249,7 +249,7 @@ def backscatter_curve(
         raise ModelError(
             f"photon energies must lie in 0-{kernels.energies_kev[-1]:g} keV for the kernels"
         )
-    kerma = phi * e * mass_energy_absorption_cm2_g("air", e)
+    kerma = phi * e * mass_energy_absorption_on("air", e)
     w = kerma / kerma.sum()
     weights = w @ _interpolation_matrix(tuple(e.tolist()), tuple(kernels.energies_kev.tolist()))
     value = weights @ kernels.factors

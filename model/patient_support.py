@@ -34,7 +34,7 @@ from dataclasses import dataclass
 import numpy as np
 from numpy.typing import ArrayLike, NDArray
 
-from beamaudit.model.attenuation import mass_energy_absorption_cm2_g
+from beamaudit.model.attenuation import mass_energy_absorption_on
 from beamaudit.model.defaults import dose_default
 from beamaudit.model.errors import ModelError
 from beamaudit.model.filtration import FilterSpec, describe_filters, transmission
@@ -171,7 +171,7 @@ def support_transmission(
             note="table transmission measured at one beam quality, used at every tube voltage; "
             "the backscatter factor and tissue/air ratio use the beam in front of the table",
         ), phi
-    kerma = phi * e * mass_energy_absorption_cm2_g("air", e)
+    kerma = phi * e * mass_energy_absorption_on("air", e)
     t = _kerma_transmission(kerma, support.layers)
     du = support.thickness_standard_uncertainty_mm_al
     u = 0.5 * abs(_kerma_transmission(kerma, support.layers, -du) - _kerma_transmission(

@@ -12,15 +12,20 @@ table). It asks a :class:`BeamFactors` for the three; anything with these three 
 do, so better physics plugs in without touching the map:
 
 - :class:`SpectrumBeamFactors` (the default) computes all three from each event's own
-  spectrum with what :mod:`beamaudit.model` has today: the tube spectrum and filtration of
+  spectrum with the dose chain's physics (issue #20): the tube spectrum and filtration of
   :mod:`~beamaudit.model.spectrum` / :mod:`~beamaudit.model.filtration` (tungsten anode, the
   event's kVp and added filters over an inherent filtration of 2.5 mm Al, IEC 60601-1-3's
-  minimum, unless the room gives its own); the table and pad as an aluminium equivalent
-  (narrow-beam transmission of the spectrum's air kerma, along the ray's oblique path); B
-  interpolated in the shipped water table (:mod:`~beamaudit.model.backscatter`) at the
-  spectrum's first HVL and the field at the skin; the ratio of mass energy-absorption
-  coefficients of ICRU-44 soft tissue to air weighted by the spectrum's air kerma
-  (:func:`~beamaudit.model.attenuation.mu_en_ratio`).
+  minimum, unless the room gives its own); the table and pad as the dose chain's patient
+  support (:func:`~beamaudit.model.patient_support.support_transmission`: the room's aluminium
+  equivalent or measured transmission, else
+  :func:`~beamaudit.model.patient_support.default_patient_support`, assumed), the layers
+  scaled by the ray's oblique path; B from beamaudit's Monte Carlo kernels weighted by the
+  spectrum's incident air kerma (:func:`~beamaudit.model.backscatter_kernels.backscatter_curve`,
+  :func:`~beamaudit.model.backscatter_kernels.backscatter_from_curves`) at the field at the
+  skin (the spectrum in front of the table: the map asks for B once per event, whether or not
+  its rays cross the table; the table hardens the beam and raises B by a percent or two); the
+  ratio of mass energy-absorption coefficients of ICRU-44 soft tissue to air weighted by the
+  spectrum's air kerma (:func:`~beamaudit.model.attenuation.mu_en_ratio`).
 - :class:`FixedBeamFactors` takes the three as per-event numbers (a measured table
   transmission, factors computed elsewhere, or the hand-worked cases of the tests); the table
   transmission at perpendicular incidence :math:`T_\perp` becomes :math:`T_\perp^{1/\cos\varphi}`
@@ -42,16 +47,21 @@ from numpy.typing import ArrayLike, NDArray
 from beamaudit.model._engine import evaluate_unscaled
 from beamaudit.model.attenuation import (
     energy_bin_centres_kev,
-    grid_linear_attenuation_per_mm,
     grid_mass_energy_absorption_cm2_g,
     material,
     mu_en_ratio,
 )
-from beamaudit.model.backscatter import backscatter_estimates
+from beamaudit.model.backscatter_kernels import backscatter_curve, backscatter_from_curves
 from beamaudit.model.defaults import dose_default
 from beamaudit.model.errors import ModelError
-from beamaudit.model.filtration import DEFAULT_TOTAL_FILTRATION_MM_AL, FilterSpec
+from beamaudit.model.filtration import DEFAULT_TOTAL_FILTRATION_MM_AL, FilterSpec, transmission
 from beamaudit.model.patient_model import skin_default
+from beamaudit.model.patient_support import (
+    PatientSupport,
+    SupportTransmission,
+    default_patient_support,
+    support_transmission,
+)
 from beamaudit.model.skin_events import SkinEvent
 
 __all__ = [
@@ -171,10 +181,13 @@ class FixedBeamFactors:
 
 
 class _Beam(NamedTuple):
-    energy_fluence: FloatArray  # per bin, at 1 m (relative)
-    air_kerma_spectrum: FloatArray  # energy fluence x mu_en/rho of air, per bin
+    energies_kev: FloatArray  # bin centres of the model's grid
+    photon_fluence: FloatArray  # photons per bin at 1 m (relative)
     hvl1_mm_al: float
     tissue_to_air: float
+    backscatter_sides_cm: FloatArray  # the kernels' field sides
+    backscatter_curve: FloatArray  # B of this spectrum at those sides
+    backscatter_statistical: FloatArray
 
 
 #: Path-length factors (1/cos) at which a beam's table transmission is tabulated, then
@@ -185,7 +198,8 @@ _PATH_GRID = np.geomspace(1.0, 10.0, 121)
 
 @functools.lru_cache(maxsize=512)
 def _beam(kvp_kv: float, filters: tuple[tuple[str, float], ...], inherent_mm_al: float) -> _Beam:
-    """The event's filtered spectrum at 1 m (tungsten anode, 12° anode angle, no ripple)."""
+    """The event's filtered spectrum at 1 m (tungsten anode, 12° anode angle, no ripple), with
+    its backscatter curve from the Monte Carlo kernels."""
     layers = (FilterSpec("Al", inherent_mm_al), *(FilterSpec(m, t) for m, t in filters))
     raw = evaluate_unscaled(
         kv=kvp_kv,
@@ -195,37 +209,51 @@ def _beam(kvp_kv: float, filters: tuple[tuple[str, float], ...], inherent_mm_al:
         ripple_percent=0.0,
         air_path_mm=1000.0,
     )
-    psi = raw.energies_kev * raw.fluence_per_mas_1m
-    kerma = psi * grid_mass_energy_absorption_cm2_g("air")
-    for array in (psi, kerma):
+    energies = np.asarray(raw.energies_kev, dtype=np.float64)
+    phi = np.asarray(raw.fluence_per_mas_1m, dtype=np.float64)
+    ratio = mu_en_ratio(energy_bin_centres_kev(), energies * phi, "soft_tissue", "air")
+    curve = backscatter_curve(energies, phi)
+    arrays = (
+        energies.copy(),
+        phi.copy(),
+        np.asarray(curve.field_side_cm),
+        np.asarray(curve.value),
+        np.asarray(curve.statistical_uncertainty),
+    )
+    for array in arrays:
         array.setflags(write=False)
-    ratio = mu_en_ratio(energy_bin_centres_kev(), psi, "soft_tissue", "air")
-    return _Beam(psi, kerma, float(raw.hvl1_mm_al), ratio)
+    return _Beam(arrays[0], arrays[1], float(raw.hvl1_mm_al), ratio, *arrays[2:])
 
 
-def _al_transmission(beam: _Beam, thickness_mm: float, paths: FloatArray) -> FloatArray:
-    """Narrow-beam air-kerma transmission of ``thickness_mm`` Al times each path factor."""
-    mu = grid_linear_attenuation_per_mm("Al")
-    attenuated = np.exp(-np.outer(paths * thickness_mm, mu)) @ beam.air_kerma_spectrum
-    result: FloatArray = attenuated / beam.air_kerma_spectrum.sum()
-    return result
+def _support_transmission(beam: _Beam, support: PatientSupport, paths: FloatArray) -> FloatArray:
+    """The support's air-kerma transmission of the beam along each path factor: narrow-beam
+    attenuation of its layers over ``path`` times their thickness, as
+    :func:`~beamaudit.model.patient_support.support_transmission` computes at ``path`` 1
+    (tested)."""
+    per_bin = transmission(support.layers)
+    kerma = beam.energies_kev * beam.photon_fluence * grid_mass_energy_absorption_cm2_g("air")
+    with np.errstate(divide="ignore"):
+        log_t = np.where(per_bin > 0, np.log(np.where(per_bin > 0, per_bin, 1.0)), -np.inf)
+    flat = np.ravel(paths)
+    result: FloatArray = (np.exp(np.outer(flat, log_t)) @ kerma) / kerma.sum()
+    return result.reshape(np.shape(paths))
 
 
 @functools.lru_cache(maxsize=512)
-def _al_transmission_table(
-    kvp_kv: float, filters: tuple[tuple[str, float], ...], inherent_mm_al: float, thickness: float
+def _support_table(
+    key: tuple[float, tuple[tuple[str, float], ...], float], support: PatientSupport
 ) -> FloatArray:
-    table = _al_transmission(_beam(kvp_kv, filters, inherent_mm_al), thickness, _PATH_GRID)
+    table = _support_transmission(_beam(*key), support, _PATH_GRID)
     table.setflags(write=False)
     return table
 
 
-@functools.lru_cache(maxsize=4096)
-def _backscatter(hvl_mm_al: float, field_side_cm: float) -> tuple[float, float, bool]:
-    est = backscatter_estimates(
-        hvl_mm_al=hvl_mm_al, field_side_cm=field_side_cm, out_of_range="nearest"
-    )
-    return float(est.value), float(est.standard_uncertainty), bool(est.extrapolated)
+@functools.lru_cache(maxsize=512)
+def _perpendicular(
+    key: tuple[float, tuple[tuple[str, float], ...], float], support: PatientSupport
+) -> SupportTransmission:
+    beam = _beam(*key)
+    return support_transmission(beam.energies_kev, beam.photon_fluence, support)[0]
 
 
 @functools.lru_cache(maxsize=256)
@@ -246,7 +274,8 @@ def _known_layers(
 
 @dataclass(frozen=True)
 class SpectrumBeamFactors:
-    """The default factors, from each event's spectrum with today's model (module docstring).
+    """The default factors, from each event's spectrum with the model's physics (module
+    docstring).
 
     Parameters
     ----------
@@ -254,16 +283,21 @@ class SpectrumBeamFactors:
         The tube's inherent filtration, mm Al; ``None``: 2.5 mm Al (IEC 60601-1-3's minimum,
         assumed).
     table_al_equivalent_mm : float, optional
-        Table and pad as mm Al; ``None``: 1.2 mm Al (21 CFR 1020.30(n), from memory; assumed).
+        Table and pad as mm Al; ``None``: the dose chain's default patient support
+        (:func:`~beamaudit.model.patient_support.default_patient_support`, assumed).
     table_transmission_measured : float, optional
         The room's measured transmission of table and pad at perpendicular incidence; when
         given it is used (as :math:`T_\\perp^{1/\\cos\\varphi}`) instead of the aluminium
         equivalent.
+    patient_support : PatientSupport, optional
+        The room's table and mattress as the dose chain states them (layers or a measured
+        transmission); when given it wins over the two above.
     """
 
     inherent_filtration_mm_al: float | None = None
     table_al_equivalent_mm: float | None = None
     table_transmission_measured: float | None = None
+    patient_support: PatientSupport | None = None
 
     def _key(self, event: SkinEvent) -> tuple[float, tuple[tuple[str, float], ...], float]:
         inherent = self.inherent_filtration_mm_al
@@ -291,41 +325,82 @@ class SpectrumBeamFactors:
             notes.append(f"filter of {', '.join(unknown)} not in the model's materials: left out")
         return "event's spectrum" + (f" ({'; '.join(notes)})" if notes else "")
 
-    def table_transmission(
-        self, index: int, event: SkinEvent, path_length_factor: FloatArray
-    ) -> TransmissionValues:
-        u_rel = skin_default("table_transmission_relative_uncertainty").value
-        paths = np.asarray(path_length_factor, dtype=np.float64)
+    def support(self) -> PatientSupport:
+        """The table and pad as the dose chain's :class:`PatientSupport`."""
+        if self.patient_support is not None:
+            return self.patient_support
         if self.table_transmission_measured is not None:
             t = float(self.table_transmission_measured)
             if not 0 < t <= 1:
                 raise ModelError("a measured table transmission must lie in (0, 1]")
-            return TransmissionValues(
-                np.power(t, paths), u_rel, "room's measured table transmission"
+            return PatientSupport(
+                measured_transmission=float(self.table_transmission_measured),
+                source="room's measured table transmission",
             )
-        thickness = self.table_al_equivalent_mm
-        source = f"table and pad as {thickness} mm Al (room)"
-        if thickness is None:
-            thickness = skin_default("table_al_equivalent_mm").value
-            source = f"table and pad as {thickness:g} mm Al (assumed, 21 CFR 1020.30(n) limit)"
-        key = self._key(event)
-        self._beam(event)  # a clear error for a beam that does not compute
-        values = np.interp(paths, _PATH_GRID, _al_transmission_table(*key, float(thickness)))
+        if self.table_al_equivalent_mm is not None:
+            return PatientSupport(
+                layers=(FilterSpec("Al", float(self.table_al_equivalent_mm)),),
+                thickness_standard_uncertainty_mm_al=skin_default(
+                    "table_al_equivalent_mm"
+                ).standard_uncertainty
+                or 0.0,
+                source=f"table and pad as {self.table_al_equivalent_mm:g} mm Al (room)",
+            )
+        return default_patient_support()
+
+    def table_transmission(
+        self, index: int, event: SkinEvent, path_length_factor: FloatArray
+    ) -> TransmissionValues:
+        paths = np.asarray(path_length_factor, dtype=np.float64)
+        support = self.support()
+        beam = self._beam(event)
+        perpendicular = _perpendicular(self._key(event), support)
+        # the skin model's own allowance (table scatter, pad and make unknown) unless the
+        # support's thickness uncertainty says more
+        u_rel = max(
+            perpendicular.standard_uncertainty / perpendicular.value,
+            skin_default("table_transmission_relative_uncertainty").value,
+        )
+        if support.measured_transmission is not None:
+            values = np.power(support.measured_transmission, paths)
+            return TransmissionValues(values, u_rel, "room's measured table transmission")
+        values = np.interp(paths, _PATH_GRID, _support_table(self._key(event), support))
         far = paths > _PATH_GRID[-1]
         if np.any(far):
-            values[far] = _al_transmission(_beam(*key), float(thickness), paths[far])
-        return TransmissionValues(values, u_rel, f"{source}, {self._describe(event)}")
+            values[far] = _support_transmission(beam, support, paths[far])
+        what = perpendicular.description
+        origin = "assumed, the dose chain's default" if support.assumed else "room"
+        return TransmissionValues(
+            values,
+            u_rel,
+            f"table and pad as {what} ({origin}; narrow-beam, table scatter not modelled), "
+            f"{self._describe(event)}",
+        )
 
     def backscatter(self, index: int, event: SkinEvent, field_side_cm: float) -> FactorValue:
         beam = self._beam(event)
-        value, u, extrapolated = _backscatter(round(beam.hvl1_mm_al, 2), round(field_side_cm, 1))
+        values = backscatter_from_curves(
+            curves=beam.backscatter_curve[np.newaxis, :],
+            curves_statistical=beam.backscatter_statistical[np.newaxis, :],
+            rows=np.zeros(1, dtype=np.intp),
+            hvl_mm_al=np.array([beam.hvl1_mm_al]),
+            hvl_standard_uncertainty_mm_al=np.zeros(1),
+            field_side_cm=np.array([float(field_side_cm)]),
+            field_side_standard_uncertainty_cm=np.zeros(1),
+        )
+        value = float(values.value[0])
         if not math.isfinite(value):
-            raise ModelError(f"no backscatter factor for HVL {beam.hvl1_mm_al:.3g} mm Al")
-        note = " (beyond the table: its nearest edge)" if extrapolated else ""
+            raise ModelError(f"no backscatter factor for a field of {field_side_cm:.3g} cm")
+        note = ""
+        if values.above_fields[0]:
+            note = " (field beyond the kernels: their largest field)"
+        elif values.below_fields[0]:
+            note = " (field below the kernels: toward the pencil-beam limit)"
         return FactorValue(
             value,
-            u / value,
-            f"water backscatter table at the beam's HVL and field{note}, {self._describe(event)}",
+            float(values.standard_uncertainty[0]) / value,
+            f"Monte Carlo backscatter kernels (ICRU-44 soft tissue) weighted by the "
+            f"{self._describe(event)}{note}",
         )
 
     def tissue_to_air(self, index: int, event: SkinEvent) -> FactorValue:

@@ -31,6 +31,7 @@ COMMAND_MODULES = (
     "explain",
     "beam",
     "dose",
+    "skin",
     "mgd",
     "token",
     "conformance",

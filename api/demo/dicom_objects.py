@@ -391,6 +391,7 @@ def fluoro_dose_report(room: RoomSpec, study: FluoroStudy, *, device_uid: str) -
             source_to_table_mm=e.source_to_table_mm,
             source_to_rp_mm=e.source_to_rp_mm,
             focal_spot_mm=0.6 if e.fluoroscopy else 1.0,
+            geometry=e.geometry,
         )
         for e in study.events
     ]

@@ -19,6 +19,7 @@ from datetime import date
 from typing import Any
 
 from beamaudit.api.demo.context import SimulationContext
+from beamaudit.api.demo.interventional import INTERVENTIONAL_PLANTS
 from beamaudit.api.demo.manifest import PlantedFinding
 from beamaudit.api.demo.plants import OutlierPlan
 from beamaudit.api.demo.radiography import RadiographyPlan
@@ -575,6 +576,7 @@ def expected_findings(
     findings += [_no_dose(gen, dates), _unmapped(gen, dates), _recurrent(gen, dates)]
     if gen.mammography:
         findings.append(_mammography_band(gen, ctx))
+    findings += _skin_dose_plants(gen)
     return findings
 
 
@@ -613,6 +615,59 @@ def _mammography_band(gen: Generated, ctx: SimulationContext) -> PlantedFinding:
             "median_to_level": {k: round(median / v, 3) for k, v in levels.items()},
         },
     )
+
+
+def _is_skin_plant(planted: list[str]) -> bool:
+    return any(p in INTERVENTIONAL_PLANTS for p in planted)
+
+
+_SKIN_STORIES = {
+    "skin_dose_overlapping": (
+        "Two long runs from nearly the same direction (5 degrees LAO and RAO) overlap on one "
+        "patch of the back: the peak skin dose passes NCRP 168's 3 Gy while K_a,r stays below its "
+        "5 Gy. Only the skin-dose map finds this patient."
+    ),
+    "skin_dose_spread": (
+        "Eight runs from eight directions around the patient: K_a,r passes NCRP 168's 5 Gy, but "
+        "the dose is spread over the skin and the peak skin dose stays well below 3 Gy."
+    ),
+}
+
+
+def _skin_dose_plants(gen: Generated) -> list[PlantedFinding]:
+    """The interventional room's two procedures at an NCRP 168 level (``srdl_exceeded``)."""
+    found = []
+    for key, studies in gen.fluoro.items():
+        for f in studies:
+            plant = next((p for p in f.planted if p in INTERVENTIONAL_PLANTS), None)
+            if plant is None:
+                continue
+            fluoro_s = sum(e.duration_s for e in f.events if e.fluoroscopy)
+            found.append(
+                _finding(
+                    gen,
+                    key,
+                    id=plant,
+                    kind="srdl_exceeded",
+                    exam_type=f.exam_type,
+                    quantity=None,
+                    date=f.start.date().isoformat(),
+                    month=_month(f.start.date()),
+                    description=_SKIN_STORIES[plant],
+                    expected={
+                        "accession": f.accession,
+                        "ref_point_air_kerma_mgy": round(f.rp_total_reported_mgy, 1),
+                        "dap_gy_cm2": round(f.dap_total_reported_gy_cm2, 2),
+                        "fluoro_time_s": round(fluoro_s, 1),
+                        "events": len(f.events),
+                        "peak_skin_dose_above_3gy": plant == "skin_dose_overlapping",
+                    },
+                    study_instance_uids=[f.study_uid],
+                    sop_instance_uids=[f.report_sop_uid],
+                    paths=[gen.paths[f.report_sop_uid]],
+                )
+            )
+    return found
 
 
 def _highest_healthy(gen: Generated, ctx: SimulationContext) -> dict[str, dict[str, Any]]:
@@ -672,15 +727,14 @@ def quiet_numbers(
         for key, studies in gen.radiography.items()
         if key != dates.plan.dap_meter_room
     }
+    quiet_fluoro = [
+        f for key, ss in gen.fluoro.items() for f in ss if not _is_skin_plant(f.planted)
+    ]  # the interventional room's two planted procedures are findings, not quiet numbers
     fluoro_max = {
-        "dap_gy_cm2": max(f.dap_total_reported_gy_cm2 for ss in gen.fluoro.values() for f in ss),
-        "ref_point_air_kerma_mgy": max(
-            f.rp_total_reported_mgy for ss in gen.fluoro.values() for f in ss
-        ),
+        "dap_gy_cm2": max(f.dap_total_reported_gy_cm2 for f in quiet_fluoro),
+        "ref_point_air_kerma_mgy": max(f.rp_total_reported_mgy for f in quiet_fluoro),
         "fluoro_time_s": max(
-            sum(e.duration_s for e in f.events if e.fluoroscopy)
-            for ss in gen.fluoro.values()
-            for f in ss
+            sum(e.duration_s for e in f.events if e.fluoroscopy) for f in quiet_fluoro
         ),
     }
     return [
@@ -702,7 +756,8 @@ def quiet_numbers(
         {
             "kind": "srdl_exceeded",
             "reason": "no fluoroscopy study reaches an NCRP 168 substantial radiation dose level "
-            "(500 Gy.cm2, 5000 mGy, 60 min), the planted enema included",
+            "(500 Gy.cm2, 5000 mGy, 60 min), the planted enema included, but the two planted "
+            "interventional procedures",
             "largest_study": {k: round(v, 2) for k, v in fluoro_max.items()},
         },
         {

@@ -35,6 +35,7 @@ from beamaudit.api.demo.expected import (
     group_medians,
     quiet_numbers,
 )
+from beamaudit.api.demo.interventional import simulate_interventional
 from beamaudit.api.demo.mammography import MAMMOGRAPHY_IMAGE, simulate_mammography
 from beamaudit.api.demo.manifest import FORMAT, QARecord, RoomEntry, ScenarioManifest
 from beamaudit.api.demo.physics import TubeOutput
@@ -56,6 +57,7 @@ _SOP_CLASSES = {
     "mobile": [DX_PRESENTATION],
     "cr": [CR_IMAGE],
     "fluoroscopy": [XRAY_DOSE_SR],
+    "interventional": [XRAY_DOSE_SR],
     "ct": [XRAY_DOSE_SR, CT_IMAGE],
     "mammography": [MAMMOGRAPHY_IMAGE],
 }
@@ -226,13 +228,15 @@ def generate_scenario(
             gen.fluoro[room.key] = simulate_fluoro(room, ctx, plan)
         elif room.kind == "mammography":
             gen.mammography[room.key] = simulate_mammography(room, ctx)
+        elif room.kind == "interventional":
+            gen.fluoro[room.key] = simulate_interventional(room, ctx)
         else:
             gen.radiography[room.key] = simulate_radiography(room, ctx, dates)
     writer = Writer(output_dir, gen)
     for room in ROOMS:
         if room.kind == "ct":
             writer.ct(room, UidFactory.device_uid(room.key))
-        elif room.kind == "fluoroscopy":
+        elif room.kind in ("fluoroscopy", "interventional"):
             writer.fluoro(room, UidFactory.device_uid(room.key))
         elif room.kind == "mammography":
             writer.mammography(room)

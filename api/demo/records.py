@@ -151,6 +151,18 @@ class CtStudy:
         return max(a.ctdivol_mgy or 0.0 for a in self.acquisitions)
 
 
+@dataclass(frozen=True, slots=True)
+class CArmGeometry:
+    """Where an interventional C-arm and its table were during one event (TID 10003C)."""
+
+    primary_angle_deg: float
+    secondary_angle_deg: float
+    source_to_isocenter_mm: float
+    table_longitudinal_mm: float
+    table_lateral_mm: float
+    table_height_mm: float
+
+
 @dataclass(slots=True)
 class FluoroEvent:
     """One TID 10003 event: a pulsed fluoroscopy run or one spot image."""
@@ -176,6 +188,8 @@ class FluoroEvent:
     dap_true_gy_cm2: float
     dap_reported_gy_cm2: float
     dose_rp_reported_mgy: float
+    #: the interventional room's C-arm and table (None: the fluoroscopy room reports none)
+    geometry: CArmGeometry | None = None
 
 
 @dataclass(slots=True)

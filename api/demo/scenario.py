@@ -48,7 +48,9 @@ INVENTED_NOTICE = (
 
 Receptor = Literal["wall_bucky", "table_bucky", "direct"]
 Delivery = Literal["folder", "cstore"]
-RoomKind = Literal["radiography", "mobile", "cr", "fluoroscopy", "ct", "mammography"]
+RoomKind = Literal[
+    "radiography", "mobile", "cr", "fluoroscopy", "interventional", "ct", "mammography"
+]
 
 
 @dataclass(frozen=True, slots=True)
@@ -527,6 +529,33 @@ ROOMS: tuple[RoomSpec, ...] = (
         weight_recorded_fraction=0.0,
         age_mean_y=58.0,
         age_sd_y=6.0,
+    ),
+    # an interventional C-arm whose dose reports carry the beam and table geometry (TID 10003C);
+    # its procedures are few and planted (beamaudit.api.demo.interventional)
+    RoomSpec(
+        key="angio1",
+        name="ANGIO 1",
+        station_name="HGH-IR1",
+        kind="interventional",
+        modality="XA",
+        delivery="cstore",
+        manufacturer="Halden & Pike Radiologic",
+        model_name="HP-XA 4",
+        serial_number="HPXA4-0077",
+        software_versions="HPX 4.2",
+        anode_angle_deg=11.0,
+        inherent_al_mm=2.5,
+        added_filters=(("Cu", 0.3),),
+        output_efficiency=1.0,
+        dap_meter_factor=1.0,
+        detector_mm=(300.0, 300.0),
+        pixel_spacing_mm=10.0,
+        studies_per_weekday=0.0,
+        studies_per_weekend_day=0.0,
+        target_exposure_index=0.0,
+        weight_recorded_fraction=1.0,
+        age_mean_y=66.0,
+        age_sd_y=10.0,
     ),
 )
 

@@ -159,6 +159,19 @@ FILTER_MATERIALS: dict[str, Concept] = {
     "Cu": ("66925006", "SCT", "Copper"),
 }
 
+# TID 10003 patient position and TID 10003C mechanical data (interventional room)
+PATIENT_TABLE_RELATIONSHIP = _dcm("113745", "Patient Table Relationship")
+HEADFIRST = ("102540008", "SCT", "headfirst")
+PATIENT_ORIENTATION = _dcm("113743", "Patient Orientation")
+RECUMBENT = ("102538003", "SCT", "recumbent")
+PATIENT_ORIENTATION_MODIFIER = _dcm("113744", "Patient Orientation Modifier")
+SUPINE = ("40199007", "SCT", "supine")
+POSITIONER_PRIMARY_ANGLE = _dcm("112011", "Positioner Primary Angle")
+POSITIONER_SECONDARY_ANGLE = _dcm("112012", "Positioner Secondary Angle")
+SOURCE_TO_ISOCENTER = _dcm("113748", "Distance Source to Isocenter")
+TABLE_LONGITUDINAL = _dcm("113751", "Table Longitudinal Position")
+TABLE_LATERAL = _dcm("113752", "Table Lateral Position")
+TABLE_HEIGHT = _dcm("113753", "Table Height Position")
 GY_M2 = _unit("Gy.m2")
 GY = _unit("Gy")
 MS = _unit("ms")
@@ -167,6 +180,7 @@ KV = _unit("kV")
 MA = _unit("mA")
 UAS = _unit("uA.s")
 MM = _unit("mm")
+DEG = _unit("deg")
 M2 = _unit("m2")
 MGY = _unit("mGy")
 MGY_CM = _unit("mGy.cm")
@@ -323,6 +337,26 @@ class ProjectionEventContent:
     source_to_table_mm: float
     source_to_rp_mm: float
     focal_spot_mm: float
+    #: TID 10003C mechanical data and the patient's position (``records.CArmGeometry``)
+    geometry: Any = None
+
+
+def _geometry_items(g: Any) -> list[Item]:
+    """TID 10003 patient position and TID 10003C positioner and table rows of one event."""
+    orientation = code(PATIENT_ORIENTATION, RECUMBENT)
+    orientation["ContentSequence"] = [
+        code(PATIENT_ORIENTATION_MODIFIER, SUPINE, relationship="HAS CONCEPT MOD")
+    ]
+    return [
+        code(PATIENT_TABLE_RELATIONSHIP, HEADFIRST),
+        orientation,
+        num(POSITIONER_PRIMARY_ANGLE, g.primary_angle_deg, DEG),
+        num(POSITIONER_SECONDARY_ANGLE, g.secondary_angle_deg, DEG),
+        num(SOURCE_TO_ISOCENTER, g.source_to_isocenter_mm, MM),
+        num(TABLE_LONGITUDINAL, g.table_longitudinal_mm, MM),
+        num(TABLE_LATERAL, g.table_lateral_mm, MM),
+        num(TABLE_HEIGHT, g.table_height_mm, MM),
+    ]
 
 
 def _projection_event(event: ProjectionEventContent) -> Item:
@@ -375,6 +409,8 @@ def _projection_event(event: ProjectionEventContent) -> Item:
         num(SOURCE_TO_TABLE, event.source_to_table_mm, MM),
         num(SOURCE_TO_RP, event.source_to_rp_mm, MM),
     ]
+    if event.geometry is not None:
+        items += _geometry_items(event.geometry)
     return container(EVENT, items)
 
 

@@ -49,6 +49,7 @@ from sqlalchemy import Table, select, update
 from sqlalchemy.exc import IntegrityError
 from sqlalchemy.orm import Session, sessionmaker
 
+from beamaudit.api.intake.skin import skin_geometry_of, studies_with_geometry, update_skin_doses
 from beamaudit.api.store import models as m
 from beamaudit.api.store.base import utcnow
 from beamaudit.api.store.bulk import insert_rows, update_rows
@@ -649,6 +650,11 @@ class _BatchWriter:
             insert_rows(self.conn, _table(m.AccumulatedDoseRow), acc_rows)
         for study_id in sorted({study_ids[uid] for uid in self.with_report if uid in study_ids}):
             _link(self.conn, study_id)
+        # the skin-dose maps of fluoroscopy studies with geometry, like the other figures: here
+        # with a completion, else by process_new_events
+        skin_studies = studies_with_geometry(event_rows) if self.completion is not None else ()
+        if skin_studies:
+            update_skin_doses(self.session, skin_studies)
         per_item: list[list[int]] = [[] for _ in items]
         for k, event_id in zip(owners, event_ids, strict=True):
             per_item[k].append(event_id)
@@ -694,6 +700,7 @@ def _event_row(
         filters=[{"material": f.material, "thickness_mm": f.thickness_mm} for f in event.filters]
         or None,
         receptor_geometry=receptor or None,
+        skin_geometry=skin_geometry_of(event),
         provenance=dict(event.provenance),
         notes=list(event.notes) + list(result.warnings if event.event_index == 0 else []),
         stored_at=now,

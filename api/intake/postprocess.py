@@ -52,8 +52,11 @@ _RULE_INPUTS = (
 
 
 def process_new_events(sessions: sessionmaker[Session], event_ids: Sequence[int]) -> ReconSummary:
-    """Map the events to exam types (stored rules) and reconstruct their dose figures."""
+    """Map the events to exam types (stored rules), reconstruct their dose figures, estimate
+    their effective doses, and compute the skin-dose maps of their fluoroscopy studies with
+    geometry."""
     from beamaudit.api.intake.effective_doses import fill_effective_doses
+    from beamaudit.api.intake.skin import update_stored_skin_doses
     from beamaudit.api.store.review_rows import map_stored_events
 
     ids = list(event_ids)
@@ -62,6 +65,8 @@ def process_new_events(sessions: sessionmaker[Session], event_ids: Sequence[int]
             map_stored_events(session, ids[start : start + CHUNK])
     summary = reconstruct_events(sessions, ids)
     fill_effective_doses(sessions, ids)
+    with sessions.begin() as session:
+        update_stored_skin_doses(session, ids)
     return summary
 
 

@@ -72,6 +72,7 @@ from beamaudit.api.store.review_rows import (
     level_sets_from_store,
     room_and_device_names,
 )
+from beamaudit.api.store.skin_doses import add_skin_dose_flags
 
 __all__ = [
     "events_frame",
@@ -897,6 +898,7 @@ def run_review(
             result, used = execute_review(session, params)
             body = result.to_json_dict()
             _study_uids_in_flags(session, body["flags"])
+            add_skin_dose_flags(session, body["flags"], parameters)
             done = session.get(m.ReviewRun, run_id)
             assert done is not None
             done.level_sets = used

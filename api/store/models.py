@@ -46,6 +46,7 @@ __all__ = [
     "Room",
     "RoomCalibrationRow",
     "Site",
+    "SkinDoseRow",
     "SourceObjectRow",
     "Study",
 ]
@@ -83,6 +84,17 @@ class Room(Base):
     table_filtration: Mapped[list[dict[str, Any]] | None] = mapped_column(JSONValue)
     #: measured air-kerma transmission of table top and mattress (used instead of the layers)
     table_transmission: Mapped[float | None] = mapped_column(Float)
+    # skin-dose geometry (beamaudit.model.skin_events.SkinRoom; null: its documented default)
+    #: the reported table positions (mm) that are the reference; null: the procedure's median
+    table_reference_longitudinal_mm: Mapped[float | None] = mapped_column(Float)
+    table_reference_lateral_mm: Mapped[float | None] = mapped_column(Float)
+    table_reference_height_mm: Mapped[float | None] = mapped_column(Float)
+    #: +1 or -1: which way a reported increase moves the table (see skin_geometry)
+    table_longitudinal_sign: Mapped[int | None] = mapped_column(Integer)
+    table_lateral_sign: Mapped[int | None] = mapped_column(Integer)
+    table_height_sign: Mapped[int | None] = mapped_column(Integer)
+    #: height of the tabletop below the isocentre at the reference position, mm
+    table_top_below_isocenter_mm: Mapped[float | None] = mapped_column(Float)
 
 
 class Device(Base):
@@ -194,6 +206,9 @@ class ExposureEventRow(Base):
     filters: Mapped[list[dict[str, Any]] | None] = mapped_column(JSONValue)
     #: collimator_edges_px, imager_pixel_spacing_mm, detector_dimensions_mm as recorded
     receptor_geometry: Mapped[dict[str, list[float]] | None] = mapped_column(JSONValue)
+    #: fluoroscopy and interventional geometry (TID 10003/10003B/10003C) not kept in columns:
+    #: positioner angles, table positions and tilts, reference point, patient position
+    skin_geometry: Mapped[dict[str, Any] | None] = mapped_column(JSONValue)
     irradiation_event_uid: Mapped[str | None] = mapped_column(String)
     modality: Mapped[str | None] = mapped_column(String)
     modality_family: Mapped[str | None] = mapped_column(String)
@@ -334,6 +349,37 @@ class AccumulatedDoseRow(Base):
     agd_left_mgy: Mapped[float | None] = mapped_column(Float)  # TID 10005, per breast
     agd_right_mgy: Mapped[float | None] = mapped_column(Float)
     details: Mapped[dict[str, Any]] = mapped_column(JSONValue, default=dict)
+
+
+class SkinDoseRow(Base):
+    """A procedure's (study's) skin-dose estimate, its NCRP 168 levels and its follow-up."""
+
+    __tablename__ = "skin_doses"
+    id: Mapped[int] = mapped_column(primary_key=True)
+    study_id: Mapped[int] = mapped_column(ForeignKey("studies.id"), unique=True)
+    computed_at: Mapped[datetime] = mapped_column(UTCDateTime(), default=utcnow)
+    #: ok | failed (the reason in ``reason``)
+    status: Mapped[str] = mapped_column(String)
+    reason: Mapped[str | None] = mapped_column(Text)
+    peak_skin_dose_mgy: Mapped[float | None] = mapped_column(Float)
+    area_above_2gy_cm2: Mapped[float | None] = mapped_column(Float)
+    area_above_3gy_cm2: Mapped[float | None] = mapped_column(Float)
+    area_above_5gy_cm2: Mapped[float | None] = mapped_column(Float)
+    uncertainty_pct: Mapped[float | None] = mapped_column(Float)
+    events_used: Mapped[int | None] = mapped_column(Integer)
+    #: [{event_index, label, dose_mgy, share}] at the peak
+    events_at_peak: Mapped[list[dict[str, Any]]] = mapped_column(JSONValue, default=list)
+    #: keys of the NCRP 168 levels reached (peak_skin_dose, reference_point_air_kerma, ...)
+    levels_crossed: Mapped[list[str]] = mapped_column(JSONValue, default=list)
+    #: every level beside the procedure's value
+    level_checks: Mapped[list[dict[str, Any]]] = mapped_column(JSONValue, default=list)
+    #: the map record (SkinDoseMap.as_record())
+    record: Mapped[dict[str, Any] | None] = mapped_column(JSONValue)
+    #: follow-up: open | patient_informed | follow_up_booked | closed
+    followup_status: Mapped[str] = mapped_column(String, default="open")
+    followup_note: Mapped[str | None] = mapped_column(Text)
+    followup_by: Mapped[str | None] = mapped_column(String)
+    followup_at: Mapped[datetime | None] = mapped_column(UTCDateTime())
 
 
 class IngestError(Base):

@@ -335,13 +335,14 @@ def _room_names(session: Session) -> set[str]:
 
 
 def _exam(session: Session, study_uid: str, ctx: Any) -> str:
+    from beamaudit.api.store.skin_doses import skin_page_record
     from beamaudit.api.web.page_data import exam_record
     from beamaudit.dashboards import render_exam
 
     record = exam_record(session, study_uid)
     if record is None:
         raise HTTPException(404, f"There is no study {study_uid!r} in the store.")
-    return render_exam(record, context=ctx)
+    return render_exam(record, context=ctx, skin_dose=skin_page_record(session, study_uid))
 
 
 @router.get("/exams/{study_uid}", response_class=HTMLResponse)
@@ -352,7 +353,7 @@ async def exam_page(
 
 
 def _flags(session: Session, kind: str | None, room: str | None, period: str | None,
-           status: str | None, ctx: Any) -> str:  # fmt: skip
+           status: str | None, ctx: Any, followup: Any = None) -> str:  # fmt: skip
     from beamaudit.api.web.page_data import flags_table
     from beamaudit.dashboards import render_flags
 
@@ -362,7 +363,7 @@ def _flags(session: Session, kind: str | None, room: str | None, period: str | N
         if room not in known:
             _unknown("room", room, known)
     return render_flags(table, kind=kind, room=room, period=period, status=status,
-                        context=ctx)  # fmt: skip
+                        context=ctx, followup=followup)  # fmt: skip
 
 
 @router.get("/flags", response_class=HTMLResponse)
@@ -377,8 +378,14 @@ async def flags_page(
 
     if kind and kind not in FLAG_KINDS:
         raise HTTPException(400, f"kind {kind!r} is not one of {', '.join(FLAG_KINDS)}.")
+    followup = None
+    if has_role(who.role, "physicist"):  # rows about single patients: physicists only
+        from beamaudit.api.store.skin_doses import followup_page_data
+
+        window = request.app.state.settings.skin_dose_window_days
+        followup = await run_in_threadpool(followup_page_data, session, window)
     return await run_in_threadpool(
-        _flags, session, kind, room, period, status, _context(request, who)
+        _flags, session, kind, room, period, status, _context(request, who), followup
     )
 
 

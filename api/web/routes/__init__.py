@@ -15,6 +15,7 @@ __all__ = ["ROUTE_MODULES", "api_router"]
 #: route modules of this package, each with a module-level ``router``
 ROUTE_MODULES = (
     "events",
+    "skin",
     "rooms",
     "qa",
     "catalogue",

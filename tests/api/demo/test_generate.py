@@ -342,8 +342,12 @@ def test_shipped_rules_map_every_event_as_planned(
             if e.irradiation_event_uid not in truth:
                 continue
             # projection dose reports do not say which modality the room is; the fluoroscopy
-            # room's events are RF (see the report: the parser leaves the modality empty)
+            # room's events are RF (see the report: the parser leaves the modality empty); the
+            # interventional room's are XA, its room's modality (a fluoroscopy-guided report
+            # reads as RF)
             modality = e.modality or ("RF" if "fluoro1" in path.parts else None)
+            if "angio1" in path.parts:
+                modality = "XA"
             rows.append(
                 {
                     "event_uid": e.irradiation_event_uid,
@@ -473,12 +477,19 @@ def test_planted_findings_are_listed_with_review_kinds(demo: tuple[Path, Scenari
         "group_above_level": 1,  # the mammography room's CC views in the 50-60 mm band
         "ingest_error": 3,
         "recurrent_exposure": 1,  # found on the recurrent-exposure list, not by a flag
+        "srdl_exceeded": 2,  # the interventional room's two procedures (NCRP 168)
     }
     (recurrent,) = manifest.findings("recurrent_exposure")
     assert recurrent.expected["studies"] == 10
     # ten three-phase CTs of 3 x 5.9 mGy x 40 cm = 708 mGy.cm each, at k = 0.015 mSv/(mGy.cm)
     # (AAPM Report 96 Table 4, adult abdomen-pelvis; from memory): 10.6 mSv each, 106 mSv in all
     assert recurrent.expected["cumulative_effective_dose_msv"] == pytest.approx(106.2, abs=0.1)
+    skin = {f.id: f for f in manifest.findings("srdl_exceeded")}
+    assert set(skin) == {"skin_dose_overlapping", "skin_dose_spread"}
+    # NCRP Report 168 (PUBLISHED-VALUES h): K_a,r 5000 mGy; the overlapping one stays below it
+    assert skin["skin_dose_overlapping"].expected["ref_point_air_kerma_mgy"] < 5000
+    assert skin["skin_dose_spread"].expected["ref_point_air_kerma_mgy"] > 5000
+    assert all(f.room == "ANGIO 1" for f in skin.values())
     meter = manifest.findings("dap_ratio_out_of_tolerance")[0]
     assert meter.room == "RAD 1"
     assert meter.expected["reported_to_true_after"]["median"] == pytest.approx(1.35, abs=0.02)

@@ -1,0 +1,56 @@
+"""Skin-dose routes: a dose report with geometry uploaded, its map record, the NCRP 168
+follow-up list and an audited follow-up step. Both backends; reports built to PS3.16 by
+tests/ingest/rdsr_builders.py (invented data)."""
+
+from __future__ import annotations
+
+from ingest_samples import to_bytes
+from rdsr_builders import EventGeometry, FluoroEvent, fluoroscopy_report
+
+DICOM = {"Content-Type": "application/dicom"}
+
+
+def _run(kar_gy: float, primary_deg: float) -> FluoroEvent:
+    return FluoroEvent(
+        dose_rp_gy=kar_gy,
+        dap_gy_m2=kar_gy * (0.16 * 660.0 / 1150.0) ** 2,
+        pulses=900,
+        geometry=EventGeometry(primary_angle_deg=primary_deg),
+    )
+
+
+def test_uploaded_report_has_a_skin_map_and_a_follow_up(api) -> None:
+    hot = to_bytes(fluoroscopy_report([_run(3.0, -4.0), _run(3.0, 4.0)]))
+    light = to_bytes(fluoroscopy_report([_run(0.2, 0.0)]))
+    for data in (hot, light):
+        assert api.post("/upload", content=data, headers=DICOM, as_="physicist").status_code == 200
+    exams = api.get("/exams", as_="physicist").json()["items"]
+    records = {e["id"]: api.get(f"/exams/{e['id']}/skin-dose", as_="physicist") for e in exams}
+    assert all(r.status_code == 200 for r in records.values())
+    by_psd = sorted((r.json() for r in records.values()), key=lambda r: r["peak_skin_dose_mgy"])
+    low, high = by_psd
+    assert high["peak_skin_dose_mgy"] > 3000.0 > low["peak_skin_dose_mgy"]
+    assert "peak_skin_dose" in high["levels_crossed"] and low["levels_crossed"] == []
+    assert high["record"]["map"]["dose_mgy"] and "physicist" in high["caution"]
+    listed = api.get("/skin-doses/follow-up", as_="physicist").json()
+    assert [i["study_instance_uid"] for i in listed["items"]] == [high["study_instance_uid"]]
+    assert listed["window_days"] == 60.0
+    step = api.patch(
+        f"/exams/{high['exam_id']}/skin-dose/follow-up",
+        json={"status": "follow_up_booked", "note": "dermatology in 3 weeks"},
+        as_="physicist",
+    )
+    assert step.status_code == 200 and step.json()["followup_status"] == "follow_up_booked"
+    bad = api.patch(
+        f"/exams/{high['exam_id']}/skin-dose/follow-up", json={"status": "done"}, as_="physicist"
+    )
+    assert bad.status_code == 422
+    assert api.get(f"/exams/{high['exam_id']}/skin-dose", as_="viewer").status_code == 403
+    closed = api.patch(
+        f"/exams/{high['exam_id']}/skin-dose/follow-up",
+        json={"status": "closed", "note": "no skin effect at 6 weeks"},
+        as_="physicist",
+    )
+    assert closed.status_code == 200
+    assert api.get("/skin-doses/follow-up", as_="physicist").json()["items"] == []
+    assert api.get("/exams/999999/skin-dose", as_="physicist").status_code == 404

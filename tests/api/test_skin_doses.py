@@ -1,0 +1,243 @@
+"""Peak skin dose on the store: computed after ingest from a dose report with geometry.
+
+The dose reports are built to DICOM PS3.16 TID 10001/10003 by tests/ingest/rdsr_builders.py
+(invented data; no Radiation Dose SR ships in any installed package). Both backends.
+"""
+
+from __future__ import annotations
+
+from datetime import datetime
+from pathlib import Path
+
+import pytest
+from ingest_samples import to_bytes
+from rdsr_builders import EventGeometry, FluoroEvent, fluoroscopy_report
+from sqlalchemy import select
+
+from beamaudit.api.intake.pipeline import Pipeline
+from beamaudit.api.intake.postprocess import Completion
+from beamaudit.api.intake.scanning import scan_paths
+from beamaudit.api.store import models as m
+from beamaudit.api.store.skin_doses import cumulative_skin_doses, followup_rows, set_followup
+from beamaudit.ingest.pseudonym import load_or_create_key
+
+
+def run(kar_gy: float, primary_deg: float) -> FluoroEvent:
+    return FluoroEvent(
+        dose_rp_gy=kar_gy,
+        # DAP = K_a,r x the field at the reference point (160 mm at 1150 mm is 91.8 mm at 660 mm)
+        dap_gy_m2=kar_gy * (0.16 * 660.0 / 1150.0) ** 2,
+        field_area_m2=0.04,
+        pulses=900,
+        geometry=EventGeometry(primary_angle_deg=primary_deg, secondary_angle_deg=0.0),
+    )
+
+
+def write_reports(folder: Path) -> None:
+    folder.mkdir(parents=True, exist_ok=True)
+    # the same 6 Gy of K_a,r in each: two overlapping projections, six spread around
+    hot = fluoroscopy_report(
+        [run(3.0, -4.0), run(3.0, 4.0)], study_uid="1.2.826.0.1.3680043.10.1.991"
+    )
+    cool = fluoroscopy_report(
+        [run(1.0, a) for a in (-120, -60, 0, 60, 120, 180)],
+        study_uid="1.2.826.0.1.3680043.10.1.992",
+    )
+    light = fluoroscopy_report([run(0.2, 0.0)], study_uid="1.2.826.0.1.3680043.10.1.993")
+    for name, report in (("hot", hot), ("cool", cool), ("light", light)):
+        (folder / f"{name}.dcm").write_bytes(to_bytes(report))
+
+
+def scan(store, folder: Path, tmp_path: Path) -> None:
+    scan_paths(
+        [folder],
+        pipeline=Pipeline(store.session_factory, completion=Completion()),
+        key=load_or_create_key(tmp_path / "k.key"),
+    )
+
+
+def rows(store) -> dict[str, m.SkinDoseRow]:
+    with store.session_factory() as s:
+        pairs = s.execute(
+            select(m.Study.study_instance_uid, m.SkinDoseRow).join(
+                m.SkinDoseRow, m.SkinDoseRow.study_id == m.Study.id
+            )
+        ).all()
+        for _, row in pairs:
+            s.expunge(row)
+    return {uid[-3:]: row for uid, row in pairs}
+
+
+def test_a_scanned_dose_report_gets_its_skin_dose_and_ncrp_168_levels(store, tmp_path) -> None:
+    write_reports(tmp_path / "in")
+    scan(store, tmp_path / "in", tmp_path)
+    found = rows(store)
+    assert set(found) == {"991", "992", "993"}
+    hot, cool, light = found["991"], found["992"], found["993"]
+    assert all(r.status == "ok" for r in (hot, cool, light))
+    # NCRP 168: PSD 3 Gy, K_a,r 5 Gy (from memory, medium-high; model/data)
+    assert hot.peak_skin_dose_mgy > 3000.0 > cool.peak_skin_dose_mgy
+    assert (
+        "peak_skin_dose" in hot.levels_crossed and "reference_point_air_kerma" in hot.levels_crossed
+    )
+    assert "peak_skin_dose" not in cool.levels_crossed
+    assert "reference_point_air_kerma" in cool.levels_crossed
+    assert light.levels_crossed == []
+    assert hot.area_above_3gy_cm2 > 0 and cool.area_above_3gy_cm2 == 0
+    assert sorted(c["event_index"] for c in hot.events_at_peak) == [0, 1]
+    assert 15.0 <= hot.uncertainty_pct <= 60.0
+    assert hot.record is not None and hot.record["map"]["dose_mgy"]
+    # the room's table transmission and the Monte Carlo backscatter were used
+    assert any("Monte Carlo" in s for s in hot.record["factor_sources"])
+
+
+def test_scanning_again_keeps_the_follow_up_and_the_list_shows_it(store, tmp_path) -> None:
+    write_reports(tmp_path / "in")
+    scan(store, tmp_path / "in", tmp_path)
+    with store.session_factory.begin() as s:
+        study_id = s.scalar(select(m.Study.id).where(m.Study.study_instance_uid.endswith("991")))
+        set_followup(s, study_id, status="patient_informed", note="told at discharge", by="phys")
+    with store.session_factory() as s:
+        listed = followup_rows(s)
+    assert [r["study_instance_uid"][-3:] for r in listed] == ["991", "992"] or [
+        r["study_instance_uid"][-3:] for r in listed
+    ] == ["992", "991"]
+    hot = next(r for r in listed if r["study_instance_uid"].endswith("991"))
+    assert hot["followup_status"] == "patient_informed"
+    with store.session_factory.begin() as s, pytest.raises(ValueError, match="one of"):
+        set_followup(s, study_id, status="done", note=None, by=None)
+
+
+def test_cumulative_skin_dose_adds_one_patients_procedures_in_the_window(store, tmp_path) -> None:
+    write_reports(tmp_path / "in")
+    scan(store, tmp_path / "in", tmp_path)
+    with store.session_factory.begin() as s:
+        studies = s.scalars(select(m.Study)).all()
+        for study in studies:  # one patient, three procedures a week apart
+            study.patient_pseudo_id = "P-ONE"
+        for k, study in enumerate(sorted(studies, key=lambda x: x.study_instance_uid)):
+            study.study_datetime = datetime(2026, 11, 1 + 7 * k, 10, 0)
+    with store.session_factory() as s:
+        (entry,) = cumulative_skin_doses(s, window_days=60.0, as_of=datetime(2026, 11, 30))
+        single = max(r.peak_skin_dose_mgy for r in rows(store).values())
+    assert entry.patient_pseudo_id == "P-ONE" and len(entry.study_uids) == 3
+    # the cumulative peak lies between the highest single PSD and the sum of the PSDs
+    assert single <= entry.peak_skin_dose_mgy + 1e-6 <= entry.upper_bound_mgy + 1e-6
+    with store.session_factory() as s:
+        assert cumulative_skin_doses(s, window_days=5.0, as_of=datetime(2026, 11, 30)) == []
+
+
+def test_the_skin_command_prints_psd_areas_levels_and_the_caution(
+    settings_env, tmp_path, capsys
+) -> None:
+    # the command line end to end on SQLite (the store functions run on both backends above)
+    import json
+
+    from beamaudit.api.cli import main
+
+    write_reports(tmp_path / "in")
+    assert main(["scan", str(tmp_path / "in")]) == 0
+    capsys.readouterr()
+    from sqlalchemy import create_engine
+
+    engine = create_engine(f"sqlite:///{settings_env}")
+    with engine.connect() as conn:
+        uids = [r[0] for r in conn.execute(select(m.Study.study_instance_uid))]
+    engine.dispose()
+    outputs = {}
+    for uid in uids:
+        assert main(["skin", uid, "--json"]) == 0
+        data = json.loads(capsys.readouterr().out)
+        for key in ("peak_skin_dose_mgy", "area_above_3gy_cm2", "events_used", "assumptions"):
+            assert key in data
+        outputs[uid] = data
+    hot_uid = max(outputs, key=lambda u: outputs[u]["peak_skin_dose_mgy"])
+    hot = outputs[hot_uid]
+    assert hot["peak_skin_dose_mgy"] > 3000.0 and "peak_skin_dose" in hot["levels_crossed"]
+    assert hot["uncertainty_pct"] > 0
+    assert main(["skin", hot_uid]) == 0
+    out = capsys.readouterr().out
+    assert "peak skin dose" in out and "NCRP 168" in out
+    assert "qualified medical physicist" in out
+    assert main(["skin", "1.2.3.nothing"]) == 2
+    err = capsys.readouterr().err
+    assert "no study" in err and "Traceback" not in err
+
+
+def test_a_review_flags_the_procedure_whose_psd_reached_3_gy(store, tmp_path) -> None:
+    from beamaudit.api.review import Period, ReviewParameters
+    from beamaudit.api.runs.reviews import run_review
+
+    folder = tmp_path / "in"
+    folder.mkdir()
+    # PSD above 3 Gy while K_a,r (4.4 Gy), DAP and time stay below their NCRP 168 levels:
+    # only the skin dose can flag it
+    hot = fluoroscopy_report(
+        [run(2.2, -2.0), run(2.2, 2.0)], study_uid="1.2.826.0.1.3680043.10.1.994"
+    )
+    (folder / "hot.dcm").write_bytes(to_bytes(hot))
+    scan(store, folder, tmp_path)
+    found = rows(store)["994"]
+    with store.session_factory.begin() as s:
+        when = s.scalar(select(m.ExposureEventRow.event_datetime))
+    assert found.peak_skin_dose_mgy > 3000.0, found.peak_skin_dose_mgy
+    assert found.levels_crossed == ["peak_skin_dose"]
+    run_id = run_review(
+        store.session_factory, ReviewParameters(period=Period.month(when.year, when.month))
+    )
+    with store.session_factory() as s:
+        run_row = s.get(m.ReviewRun, run_id)
+        flags = [f for f in run_row.result["flags"] if f["kind"] == "srdl_exceeded"]
+    (flag,) = flags
+    assert flag["concerns"]["study_uid"].endswith("994")
+    assert flag["numbers"]["peak_skin_dose_mgy"] == pytest.approx(found.peak_skin_dose_mgy)
+    assert "peak skin dose" in flag["reason"] and "Follow the patient up" in flag["reason"]
+
+
+def test_events_stored_without_completion_get_their_map_when_completed(store, tmp_path) -> None:
+    # a listener node storing as read (the demo's): the maps come with process_new_events
+    from beamaudit.api.intake.postprocess import process_new_events
+
+    write_reports(tmp_path / "in")
+    summary = scan_paths(
+        [tmp_path / "in"],
+        pipeline=Pipeline(store.session_factory),
+        key=load_or_create_key(tmp_path / "k.key"),
+    )
+    assert summary.objects == 3 and rows(store) == {}
+    with store.session_factory() as s:
+        ids = list(s.scalars(select(m.ExposureEventRow.id)))
+    process_new_events(store.session_factory, ids)
+    found = rows(store)
+    assert set(found) == {"991", "992", "993"}
+    assert found["991"].peak_skin_dose_mgy > 3000.0
+
+
+def test_a_pulled_dose_report_gets_its_skin_dose(store) -> None:
+    # DICOMweb pull from a scripted loopback server (tests/ingest/fake_pacs.py): the report's
+    # metadata as DICOM JSON (PS3.18 F.2), read and stored through the pull path
+    from fake_pacs import Study, fake_pacs
+
+    from beamaudit.api.intake.pulling import pull_source
+    from beamaudit.ingest.pseudonym import Pseudonymiser
+
+    report = fluoroscopy_report(
+        [run(3.0, -4.0), run(3.0, 4.0)], study_uid="1.2.826.0.1.3680043.10.1.996"
+    )
+    meta = report.to_json_dict()
+    meta["00080016"] = {"vr": "UI", "Value": [str(report.SOPClassUID)]}
+    meta["00080018"] = {"vr": "UI", "Value": [str(report.SOPInstanceUID)]}
+    day = str(report.get("StudyDate") or "20261103")
+    with fake_pacs(studies=[Study(str(report.StudyInstanceUID), day, [meta])]) as pacs:
+        outcome = pull_source(
+            store.session_factory,
+            url=pacs.url,
+            since="2000-01-01",
+            modalities=None,
+            pseudonymiser=Pseudonymiser(b"k" * 32),
+        )
+    assert outcome is not None
+    found = rows(store)
+    assert set(found) == {"996"}, outcome
+    assert found["996"].peak_skin_dose_mgy > 3000.0
+    assert "peak_skin_dose" in found["996"].levels_crossed

@@ -1,0 +1,80 @@
+"""The skin-dose section of the exam page and the follow-up section of the flags page
+(invented records, shaped as the API hands them over)."""
+
+from __future__ import annotations
+
+from datetime import datetime
+from typing import Any
+
+from test_skin_figure import make_record
+
+from beamaudit.dashboards import render_exam, render_flags
+
+LEVEL = {
+    "key": "peak_skin_dose",
+    "crossed": True,
+    "text": "peak skin dose 4000 mGy, 1.33 x the 3000 mGy level (at or above)",
+}
+
+
+def skin(**changes: Any) -> dict[str, Any]:
+    values = {
+        "status": "ok",
+        "reason": None,
+        "peak_skin_dose_mgy": 4000.0,
+        "area_above_2gy_cm2": 120.0,
+        "area_above_3gy_cm2": 90.0,
+        "area_above_5gy_cm2": 0.0,
+        "uncertainty_pct": 48.0,
+        "events_used": 2,
+        "level_checks": [LEVEL],
+        "followup_status": "open",
+        "record": make_record(),
+    }
+    values.update(changes)
+    return values
+
+
+def test_exam_page_draws_the_map_and_names_the_levels_reached(demo_exam) -> None:
+    page = render_exam(demo_exam, skin_dose=skin())
+    assert 'id="skin-dose"' in page and 'data-figure="skin-map"' in page
+    assert "4,000 mGy (± 48 %, k = 2)" in page
+    assert "follow the patient up" in page and LEVEL["text"] in page
+    assert render_exam(demo_exam).count('id="skin-dose"') == 0
+
+
+def test_exam_page_says_why_a_map_is_missing(demo_exam) -> None:
+    page = render_exam(
+        demo_exam, skin_dose=skin(status="failed", reason="skin-dose map not computed: x")
+    )
+    assert "skin-dose map not computed: x" in page and 'data-figure="skin-map"' not in page
+
+
+def test_flags_page_lists_patients_to_follow_up(demo_flags) -> None:
+    followup = {
+        "items": [
+            {
+                "study_instance_uid": "1.2.3.4",
+                "study_datetime": datetime(2026, 11, 3, 10),
+                "peak_skin_dose_mgy": 4000.0,
+                "level_checks": [LEVEL],
+                "followup_status": "follow_up_booked",
+                "followup_note": "dermatology in 3 weeks",
+            }
+        ],
+        "window_days": 60.0,
+        "cumulative": [
+            {
+                "patient_pseudo_id": "P-1",
+                "procedures": 2,
+                "peak_skin_dose_mgy": 5200.0,
+                "upper_bound_mgy": 6100.0,
+                "method": "maps_added",
+            }
+        ],
+    }
+    page = render_flags(demo_flags, followup=followup)
+    assert 'id="follow-up"' in page and 'href="/exams/1.2.3.4#skin-dose"' in page
+    assert "follow-up booked" in page and "dermatology in 3 weeks" in page
+    assert "within 60 days" in page and "5,200 mGy" in page and "maps added" in page
+    assert 'id="follow-up"' not in render_flags(demo_flags)
