@@ -362,8 +362,10 @@ def run_demo(
         load_demo_local_levels,
         load_national_levels,
     )
-    from beamaudit.api.reviews import ensure_catalogue, run_review, store_level_sets
+    from beamaudit.api.reviews import run_review
     from beamaudit.api.scanning import scan_paths
+    from beamaudit.api.store.catalogue import ensure_catalogue
+    from beamaudit.api.store.level_sets import add_level_sets
     from beamaudit.ingest.listener import ListenerConfig, start_listener
     from beamaudit.ingest.pseudonym import Pseudonymiser
 
@@ -378,7 +380,7 @@ def run_demo(
         _setup_rooms(sessions, manifest)
         with sessions.begin() as session:
             ensure_catalogue(session, actor="demo")
-            store_level_sets(
+            add_level_sets(
                 session, [*load_national_levels(), *load_demo_local_levels()], actor="demo"
             )
     pipeline = Pipeline(sessions, completion=Completion())  # exam types and figures stored too

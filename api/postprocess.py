@@ -138,7 +138,7 @@ class Completion:
             )
         )
         if not stored:
-            from beamaudit.api.reviews import ensure_catalogue
+            from beamaudit.api.store.catalogue import ensure_catalogue
 
             _, rules = ensure_catalogue(session)
             self._rules_key, self._rules = None, rules

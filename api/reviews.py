@@ -52,20 +52,14 @@ from beamaudit.api.auth import record_change
 from beamaudit.api.findings import store_flags
 from beamaudit.api.review import (
     ExamCatalogue,
-    MappingRules,
     Period,
     ReviewParameters,
     ReviewResult,
-    load_default_catalogue,
-    load_default_rules,
     map_events,
     review,
 )
 from beamaudit.api.routes._review_rows import (
-    catalogue_from_store,
-    exam_type_row_values,
     level_sets_from_store,
-    rules_from_store,
 )
 from beamaudit.api.runs import (
     NoEventsError,
@@ -76,6 +70,7 @@ from beamaudit.api.runs import (
 )
 from beamaudit.api.store import models as m
 from beamaudit.api.store.base import utcnow
+from beamaudit.api.store.catalogue import ensure_catalogue
 from beamaudit.api.store.engine import SQLITE_BUSY_TIMEOUT_MS
 
 __all__ = [
@@ -733,35 +728,6 @@ def events_frame(session: Session, *, start: date, end: date) -> pd.DataFrame:
     return frame
 
 
-def ensure_catalogue(
-    session: Session, *, actor: str = "system"
-) -> tuple[ExamCatalogue, MappingRules]:
-    """The stored catalogue and rules; seeds the shipped ones into an empty store."""
-    if session.scalar(select(func.count()).select_from(m.ExamTypeRow)) == 0:
-        catalogue = load_default_catalogue()
-        for t in catalogue.types:
-            session.add(m.ExamTypeRow(**exam_type_row_values(t)))
-        rules = load_default_rules(catalogue)
-        for r in rules.rules:
-            session.add(
-                m.MappingRuleRow(
-                    priority=r.priority,
-                    exam_type=r.exam_type,
-                    patterns=dict(r.patterns),
-                    note=r.note,
-                )
-            )
-        session.flush()
-        record_change(
-            session,
-            actor=actor,
-            action="seed",
-            entity="exam_catalogue",
-            after={"exam_types": len(catalogue.types), "mapping_rules": len(rules.rules)},
-        )
-    return catalogue_from_store(session), rules_from_store(session)
-
-
 def map_stored_events(session: Session, event_ids: list[int] | None = None) -> int:
     """Set ``exam_type`` of stored events from the mapping rules; returns how many were mapped.
 
@@ -1019,59 +985,3 @@ def stored_flags_frame(session: Session, run_id: int) -> pd.DataFrame:
             for r in rows
         ]
     )
-
-
-def store_level_sets(
-    session: Session, sets: list[Any], *, actor: str = "cli"
-) -> list[m.ReferenceLevelSetRow]:
-    """Add reference-level set versions (all or none; the caller owns the transaction).
-
-    Raises
-    ------
-    ReviewError
-        A set version that is stored already, or an exam type the catalogue lacks.
-    """
-    from beamaudit.api.review import ReviewError
-    from beamaudit.api.review.levels import levels_the_store_cannot_keep
-
-    refusal = levels_the_store_cannot_keep(sets)
-    if refusal is not None:
-        raise ReviewError(refusal)
-    catalogue, _ = ensure_catalogue(session)
-    known = {t.exam_type for t in catalogue.types}
-    rows = []
-    for s in sets:
-        unknown = sorted({e.exam_type for e in s.entries} - known)
-        if unknown:
-            raise ReviewError(
-                f"set {s.name!r} {s.version}: exam types not in the catalogue: {', '.join(unknown)}"
-            )
-        clash = session.scalar(
-            select(m.ReferenceLevelSetRow.id).where(
-                m.ReferenceLevelSetRow.name == s.name, m.ReferenceLevelSetRow.version == s.version
-            )
-        )
-        if clash is not None:
-            raise ReviewError(
-                f"set {s.name!r} version {s.version!r} is stored already (id {clash})"
-            )
-        row = m.ReferenceLevelSetRow(
-            name=s.name, kind=s.kind, version=s.version,
-            effective_from=s.effective_from, source=s.source or None,
-        )  # fmt: skip
-        session.add(row)
-        session.flush()
-        session.add_all(
-            m.ReferenceLevelRow(
-                set_id=row.id, exam_type=e.exam_type, quantity=e.quantity,
-                value=e.value, unit=e.unit, source=e.source or None,
-            )
-            for e in s.entries
-        )  # fmt: skip
-        record_change(
-            session, actor=actor, action="import", entity="reference_level_set", entity_id=row.id,
-            after={"name": s.name, "version": s.version, "kind": s.kind, "levels": len(s.entries)},
-        )  # fmt: skip
-        rows.append(row)
-    session.flush()
-    return rows

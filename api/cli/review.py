@@ -305,7 +305,8 @@ def levels_import(
     """Import reference-level set versions from a CSV file (all or none)."""
     from beamaudit.api.cli._store import open_store
     from beamaudit.api.review import CsvFormatError, ReviewError, read_levels_csv
-    from beamaudit.api.reviews import ensure_catalogue, store_level_sets
+    from beamaudit.api.store.catalogue import ensure_catalogue
+    from beamaudit.api.store.level_sets import add_level_sets
 
     if not path.is_file():
         fail(f"no such file: {path}")
@@ -314,7 +315,7 @@ def levels_import(
         with store.sessions.begin() as session:
             catalogue, _ = ensure_catalogue(session)
             sets = read_levels_csv(path, catalogue)
-            rows = store_level_sets(session, sets)
+            rows = add_level_sets(session, sets, actor="cli")
             names = [f"{r.name} {r.version}" for r in rows]
     except CsvFormatError as exc:
         fail(str(exc))
@@ -374,7 +375,7 @@ def examtypes_export(
     """Export the exam-type catalogue or the mapping rules as CSV to standard output."""
     from beamaudit.api.cli._store import open_store
     from beamaudit.api.review import write_catalogue_csv, write_rules_csv
-    from beamaudit.api.reviews import ensure_catalogue
+    from beamaudit.api.store.catalogue import ensure_catalogue
 
     if what not in {"catalogue", "rules"}:
         fail(f"export what? catalogue or rules, not {what!r}")

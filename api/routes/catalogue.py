@@ -8,7 +8,7 @@ from __future__ import annotations
 
 import io
 from datetime import UTC, datetime
-from typing import Annotated, Any
+from typing import Annotated, Any, cast
 
 from fastapi import APIRouter, Depends, HTTPException, Path, Query, Request, status
 from fastapi.concurrency import run_in_threadpool
@@ -21,6 +21,7 @@ from beamaudit.api.deps import DbSession, Physicist
 from beamaudit.api.review.errors import CsvFormatError, ReviewError
 from beamaudit.api.review.examtypes import (
     ExamCatalogue,
+    ExamType,
     MappingRules,
     read_catalogue_csv,
     read_rules_csv,
@@ -59,6 +60,7 @@ from beamaudit.api.schemas.catalogue import (
     MappingRuleUpdate,
 )
 from beamaudit.api.store import models as m
+from beamaudit.api.store.catalogue import ensure_catalogue
 
 __all__ = ["CatalogueSession", "router"]
 
@@ -69,8 +71,6 @@ def catalogue_session(session: DbSession, who: Physicist) -> Session:
     The review bridge seeds them on first use (:func:`beamaudit.api.reviews.ensure_catalogue`);
     the catalogue routes do the same, so that what they show is what a review would use.
     """
-    from beamaudit.api.reviews import ensure_catalogue
-
     ensure_catalogue(session, actor=who.actor)
     session.commit()
     return session
@@ -104,19 +104,21 @@ def _exam_type_read(row: m.ExamTypeRow) -> ExamTypeRead:
     )
 
 
-def _exam_type_values(body: ExamTypeCreate) -> dict[str, Any]:
-    return {
-        "code": body.exam_type,
-        "name": body.name,
-        "modality": body.modality_group,
-        "level_applies_per": body.level_applies_per,
-        "quantities": list(body.quantities),
-        "details": {
-            "dicom_modalities": list(body.dicom_modalities),
-            "aggregation": dict(body.aggregation),
-            "description": body.description,
-        },
-    }
+def _exam_type_values(body: ExamTypeCreate, *, paediatric_bands: str = "") -> dict[str, Any]:
+    """The row's values, through the store's one mapping (a change keeps the row's banding)."""
+    return exam_type_row_values(
+        ExamType(
+            exam_type=body.exam_type,
+            name=body.name,
+            modality_group=body.modality_group,
+            dicom_modalities=tuple(body.dicom_modalities),
+            level_applies_per=body.level_applies_per,
+            quantities=tuple(body.quantities),
+            aggregation=tuple(cast(Any, body.aggregation).items()),
+            description=body.description,
+            paediatric_bands=cast(Any, paediatric_bands),
+        )
+    )
 
 
 def _exam_type_audit(row: m.ExamTypeRow) -> dict[str, Any]:
@@ -308,7 +310,8 @@ def update_exam_type(
     row = get_or_404(session, T, exam_type, "exam type")
     before = _exam_type_audit(row)
     merged = revalidate(ExamTypeCreate, {**before, **body.model_dump(exclude_unset=True)})
-    for name, value in _exam_type_values(merged).items():
+    banding = exam_type_from_row(row).paediatric_bands
+    for name, value in _exam_type_values(merged, paediatric_bands=banding).items():
         setattr(row, name, value)
     after = _exam_type_audit(row)
     if after != before:

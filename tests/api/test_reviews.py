@@ -349,7 +349,7 @@ def test_levels_the_store_cannot_keep_are_refused_whole(store) -> None:
     # a paediatric band's level stored without its band would apply to adults: refused, nothing kept
     from beamaudit.api.review import ReviewError
     from beamaudit.api.review.levels import LevelEntry, ReferenceLevelSet
-    from beamaudit.api.reviews import store_level_sets
+    from beamaudit.api.store.level_sets import add_level_sets
 
     band = LevelEntry("chest_pa", "dap_gy_cm2", 0.02, "Gy.cm2", patient_group="weight_15_30kg")
     invented = ReferenceLevelSet(
@@ -359,7 +359,7 @@ def test_levels_the_store_cannot_keep_are_refused_whole(store) -> None:
         pytest.raises(ReviewError, match="cannot keep levels for a patient group"),
         store.session_factory.begin() as session,
     ):
-        store_level_sets(session, [invented])
+        add_level_sets(session, [invented])
     with store.session_factory() as session:
         assert session.scalars(select(m.ReferenceLevelSetRow)).all() == []
 
