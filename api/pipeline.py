@@ -72,7 +72,6 @@ if TYPE_CHECKING:
 log = logging.getLogger(__name__)
 
 CT_MODALITIES = frozenset({"CT"})
-PROJECTION_MODALITIES = frozenset({"CR", "DX", "MG", "RF", "XA", "DR", "PX"})
 
 #: ExposureEvent fields stored as columns of the same name
 _EVENT_COLUMNS = tuple(

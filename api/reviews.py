@@ -77,10 +77,8 @@ __all__ = [
     "ensure_catalogue",
     "events_frame",
     "map_stored_events",
-    "month_period",
     "review_events",
     "run_review",
-    "stored_flags_frame",
 ]
 
 
@@ -127,11 +125,6 @@ _FLOAT_NAMES = (
     "esak_mgy",
     "deviation_index",
 )
-
-
-def month_period(text: str) -> Period:
-    """``YYYY-MM`` as a :class:`Period` (raises ``ReviewError`` on a bad month)."""
-    return Period.parse(text)
 
 
 def _as_utc(value: date) -> datetime:
@@ -964,24 +957,3 @@ def run_review(
         if not isinstance(exc, ReviewError):
             raise
     return run_id
-
-
-def stored_flags_frame(session: Session, run_id: int) -> pd.DataFrame:
-    """The flags of one stored run as a table."""
-    rows = session.scalars(select(m.FlagRow).where(m.FlagRow.review_run_id == run_id)).all()
-    return pd.DataFrame(
-        [
-            {
-                "flag_id": r.id,
-                "kind": r.kind,
-                "severity": r.severity,
-                "reason": r.reason,
-                "room": r.room,
-                "exam_type": r.exam_type,
-                "event_id": r.event_id,
-                "study_uid": r.study_instance_uid,
-                "status": r.status,
-            }
-            for r in rows
-        ]
-    )
