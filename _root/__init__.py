@@ -12,4 +12,12 @@ medical physicist; local regulations and licensed practice take precedence.
 
 __version__ = "0.1.0"
 
-__all__ = ["__version__"]
+#: The caution beside every dose figure (pages, API answers, exports, command output): the one
+#: wording; every stage may import the package root, so every stage uses this constant.
+CAUTION = (
+    "Every dose figure shown here is an estimate, for quality assurance and optimisation. "
+    "Clinical decisions about a patient need a qualified medical physicist; "
+    "local regulations and licensed practice take precedence."
+)
+
+__all__ = ["CAUTION", "__version__"]

@@ -10,6 +10,7 @@ from typing import Annotated, Any
 
 import typer
 
+from beamaudit import CAUTION
 from beamaudit.api.cli._common import EXIT_PARTIAL, console, err_console, fail
 
 __all__ = ["register"]
@@ -211,10 +212,7 @@ def _print(run_id: int, result: dict[str, Any], new_flags: int | None, scope: st
         console.print(f"  ... and {len(result['flags']) - 40} more (--json for all)")
     if new_flags is not None:
         console.print(f"new flags since the last nightly run: {new_flags}")
-    console.print(
-        "[dim]Estimates for quality assurance and optimisation; "
-        "clinical decisions need a qualified medical physicist.[/dim]"
-    )
+    console.print(f"[dim]{CAUTION}[/dim]", soft_wrap=True)
 
 
 def _f(value: Any) -> str:

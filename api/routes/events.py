@@ -12,7 +12,7 @@ from typing import Annotated, Any
 from fastapi import APIRouter, Depends, Query
 from sqlalchemy import ColumnElement, Select, and_, exists, func, or_, select
 
-from beamaudit.api.app import CAUTION
+from beamaudit import CAUTION
 from beamaudit.api.deps import DbSession, Physicist
 from beamaudit.api.reconstruct import trail_for_event
 from beamaudit.api.routes._common import (

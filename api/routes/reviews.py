@@ -25,7 +25,7 @@ from fastapi import APIRouter, Depends, HTTPException, Query, status
 from fastapi.responses import Response
 from sqlalchemy import func, select
 
-from beamaudit.api.app import CAUTION
+from beamaudit import CAUTION
 from beamaudit.api.auth import Principal, has_role
 from beamaudit.api.deps import Admin, DbSession, Physicist, Viewer
 from beamaudit.api.routes._common import (
