@@ -115,8 +115,11 @@ def result_fingerprint(result: ParseResult) -> str:
     fingerprint; an object that reuses a SOP Instance UID for other exposures
     has a different one. It is the SHA-256 of the JSON of every event's
     fields but ``provenance`` and ``notes`` (datetimes in ISO form, filters as
-    dicts, as :meth:`ExposureEvent.as_dict` gives them) followed by the
-    accumulations' reprs; built without copying the events.
+    dicts, as :meth:`ExposureEvent.as_dict` gives them), keys sorted, followed
+    by the accumulations' reprs; built without copying the events. A field
+    added to :class:`ExposureEvent` after the first stored objects
+    (not in ``_FINGERPRINT_ALWAYS``) is left out while it is None, so adding
+    a field never turns a re-sent object into a conflict.
     """
     return content_hash(_fingerprint_text(result).encode("utf-8"))
 
@@ -141,6 +144,94 @@ def _fingerprint_text(result: ParseResult) -> str:
 _FINGERPRINT_SKIP = frozenset({"provenance", "notes"})
 _EVENT_FIELDS = tuple(f.name for f in dataclasses.fields(ExposureEvent))
 _PAYLOAD_FIELDS = tuple(sorted(f for f in _EVENT_FIELDS if f not in _FINGERPRINT_SKIP))
+#: the event fields every fingerprint holds, null or not: those of the first stored objects
+#: (beamaudit 0.1.0 as first released); a field added since is written only when it has a value,
+#: so an object stored by an older version and sent again keeps its fingerprint
+_FINGERPRINT_ALWAYS = frozenset(
+    [
+        "accession_number",
+        "acquisition_device_type",
+        "acquisition_key",
+        "acquisition_plane",
+        "anode_material",
+        "body_part",
+        "body_part_thickness_mm",
+        "collimator_edges_px",
+        "ct_phantom_diameter_cm",
+        "ct_pitch_factor",
+        "ct_scan_length_mm",
+        "ct_total_collimation_mm",
+        "ctdivol_mgy",
+        "dap_gy_cm2",
+        "detector_dimensions_mm",
+        "deviation_index",
+        "device_observer_uid",
+        "device_serial_number",
+        "dlp_mgy_cm",
+        "entrance_dose_derivation",
+        "entrance_dose_mgy",
+        "event_datetime",
+        "event_index",
+        "event_key",
+        "event_type",
+        "exposure_index",
+        "exposure_mas",
+        "exposure_time_ms",
+        "field_area_cm2",
+        "field_height_mm",
+        "field_plane",
+        "field_width_mm",
+        "filter_type",
+        "filters",
+        "fluoro_mode",
+        "focal_spot_mm",
+        "grid",
+        "hvl_mm_al",
+        "imager_pixel_spacing_mm",
+        "institution_name",
+        "irradiation_duration_s",
+        "irradiation_event_uid",
+        "kvp_kv",
+        "magnification_factor",
+        "manufacturer",
+        "modality",
+        "modality_family",
+        "model_name",
+        "number_of_pulses",
+        "organ_dose_mgy",
+        "patient_age_years",
+        "patient_height_m",
+        "patient_pseudo_id",
+        "patient_sex",
+        "patient_weight_kg",
+        "protocol_name",
+        "pulse_rate_per_s",
+        "reference_point_air_kerma_mgy",
+        "series_description",
+        "series_instance_uid",
+        "sid_mm",
+        "sop_class_uid",
+        "sop_instance_uid",
+        "source_kind",
+        "source_to_entrance_mm",
+        "source_to_isocenter_mm",
+        "source_to_patient_mm",
+        "source_to_reference_point_mm",
+        "source_to_table_mm",
+        "ssde_mgy",
+        "station_name",
+        "study_datetime",
+        "study_description",
+        "study_instance_uid",
+        "target_exposure_index",
+        "tube_current_ma",
+        "view_position",
+        "water_equivalent_diameter_mm",
+        "xray_output_mgy_per_mas",
+    ]
+)
+#: fields added since, left out of the fingerprint while they are None
+_FINGERPRINT_WHEN_SET = tuple(f for f in _PAYLOAD_FIELDS if f not in _FINGERPRINT_ALWAYS)
 _payload_values = operator.attrgetter(*_PAYLOAD_FIELDS)
 _DATETIME_FIELDS = ("study_datetime", "event_datetime")
 #: what JSON writes without nested objects; by ExposureEvent's types only ``filters`` (a
@@ -148,10 +239,23 @@ _DATETIME_FIELDS = ("study_datetime", "event_datetime")
 _SCALARS = (str, int, float, type(None), tuple)
 
 
+def _every_field_fingerprint(result: ParseResult) -> str:
+    """The fingerprint as versions before ``_FINGERPRINT_WHEN_SET`` wrote it: every field of
+    this version, null or not (only asked when the fingerprint differs from a stored one)."""
+    payload: list[dict[str, Any]] = [
+        {k: v for k, v in e.as_dict().items() if k not in _FINGERPRINT_SKIP} for e in result.events
+    ]
+    payload.append({"accumulated": [repr(a) for a in result.accumulated]})
+    return content_hash(json.dumps(payload, sort_keys=True, default=str).encode("utf-8"))
+
+
 def _event_payload(event: ExposureEvent) -> tuple[dict[str, Any], bool]:
     """``as_dict()`` of ``event`` without provenance and notes, keys sorted, as JSON would
     write it; and whether every field held its declared type (no nested object to sort)."""
     out = dict(zip(_PAYLOAD_FIELDS, _payload_values(event), strict=True))
+    for f in _FINGERPRINT_WHEN_SET:
+        if out[f] is None:
+            del out[f]
     for f in _DATETIME_FIELDS:
         value = out[f]
         if value is not None:
@@ -456,7 +560,12 @@ class _BatchWriter:
             uid = result.source.sop_instance_uid
             if uid in existing:
                 stored_sha = existing[uid]
-                if sha256 and stored_sha and stored_sha != sha256:
+                if (
+                    sha256
+                    and stored_sha
+                    and stored_sha != sha256
+                    and stored_sha != _every_field_fingerprint(result)
+                ):
                     outcomes[i] = StoreOutcome(
                         "conflict",
                         uid,
