@@ -22,9 +22,11 @@ Idempotence and double counting
   the same irradiation. Reviews count an acquisition once (by
   ``acquisition_key``) and leave superseded header events out.
 * A study whose exposures are described by a dose report takes its events from
-  the report: every image-header event of that study whose modality the
-  report covers (projection x-ray for TID 10001, CT for TID 10011) is marked
-  ``superseded`` and left out of reviews, whichever of the two arrived first.
+  the report: an image-header event with the Irradiation Event UID of a report
+  event (in any study), and every image-header event of a study whose modality
+  family the study's report covers (projection x-ray for TID 10001, CT for
+  TID 10011), is marked ``superseded`` and left out of reviews, whichever of the
+  two arrived first. The rule is ``beamaudit.ingest.linking``'s, the only one.
 
 Text that reaches the store
 ---------------------------
@@ -45,7 +47,7 @@ from collections.abc import Iterable
 from dataclasses import dataclass, field
 from typing import TYPE_CHECKING, Any, Literal, cast
 
-from sqlalchemy import Table, select, update
+from sqlalchemy import Table, or_, select, update
 from sqlalchemy.exc import IntegrityError
 from sqlalchemy.orm import Session, sessionmaker
 
@@ -54,6 +56,7 @@ from beamaudit.api.store.base import utcnow
 from beamaudit.api.store.bulk import insert_rows, update_rows
 from beamaudit.ingest.errors import IngestError
 from beamaudit.ingest.events import AccumulatedDose, ExposureEvent, FilterLayer, ParseResult
+from beamaudit.ingest.linking import link_header_events_to_reports, report_covers
 
 __all__ = [
     "CT_MODALITIES",
@@ -360,18 +363,6 @@ def _make_printable(obj: Any) -> None:
                 object.__setattr__(obj, f.name, cleaned)
             else:
                 setattr(obj, f.name, cleaned)
-
-
-def report_covers(report_modalities: Iterable[str | None], header_modality: str | None) -> bool:
-    """Whether a dose report with ``report_modalities`` describes an image-header event.
-
-    A CT dose report (TID 10011) covers CT headers; a projection report (TID 10001)
-    covers projection headers (CR, DX, MG, RF, XA).
-    """
-    mods = {x for x in report_modalities if x}
-    if header_modality in CT_MODALITIES:
-        return bool(mods & CT_MODALITIES)
-    return bool(mods - CT_MODALITIES) or not mods
 
 
 class Pipeline:
@@ -755,8 +746,11 @@ class _BatchWriter:
             event_ids = [found[(r["source_object_id"], r["event_index"])] for r in event_rows]
         if acc_rows:
             insert_rows(self.conn, _table(m.AccumulatedDoseRow), acc_rows)
-        for study_id in sorted({study_ids[uid] for uid in self.with_report if uid in study_ids}):
-            _link(self.conn, study_id)
+        _link(
+            self.conn,
+            sorted({study_ids[uid] for uid in self.with_report if uid in study_ids}),
+            sorted({e.irradiation_event_uid for r in results for e in r.events} - {None, ""}),
+        )
         per_item: list[list[int]] = [[] for _ in items]
         for k, event_id in zip(owners, event_ids, strict=True):
             per_item[k].append(event_id)
@@ -866,31 +860,49 @@ def _default_room(session: Session, event: ExposureEvent) -> m.Room:
     return room
 
 
-def _link(conn: Any, study_id: int) -> None:
-    """Mark image-header events of a study that a dose report of the study describes."""
-    ev = _table(m.ExposureEventRow)
-    report_modalities = conn.scalars(
-        select(ev.c.modality)
-        .where(ev.c.study_id == study_id, ev.c.source_kind == "rdsr")
-        .distinct()
-    ).all()
-    header_modalities = conn.scalars(
-        select(ev.c.modality)
-        .where(
-            ev.c.study_id == study_id,
-            ev.c.source_kind == "image_header",
-            ev.c.superseded.is_(False),
-        )
-        .distinct()
-    ).all()
-    covered = [mod for mod in header_modalities if report_covers(report_modalities, mod)]
-    if covered:
-        conn.execute(
-            update(ev)
-            .where(
-                ev.c.study_id == study_id,
-                ev.c.source_kind == "image_header",
-                ev.c.modality.in_(covered),
+def _link(conn: Any, study_ids: list[int], event_uids: list[str | None]) -> None:
+    """Mark the image-header events a dose report describes (``ingest/linking.py``'s rule).
+
+    The rule is given every stored event it may link after a batch: those of the batch's studies
+    that have a dose report, and those sharing an Irradiation Event UID of the batch's events with
+    a report event (whichever arrived first, in any study).
+    """
+    ev, so, st = _table(m.ExposureEventRow), _table(m.SourceObjectRow), _table(m.Study)
+    rows: dict[int, Any] = {}
+
+    def read(*where: Any) -> None:
+        stmt = (
+            select(
+                ev.c.id,
+                ev.c.source_kind,
+                ev.c.event_index,
+                ev.c.event_key,
+                ev.c.modality,
+                ev.c.modality_family,
+                ev.c.irradiation_event_uid,
+                so.c.sop_instance_uid,
+                st.c.study_instance_uid,
             )
-            .values(superseded=True)
+            .join(so, so.c.id == ev.c.source_object_id)
+            .outerjoin(st, st.c.id == ev.c.study_id)
+            .where(or_(ev.c.source_kind == "rdsr", ev.c.superseded.is_(False)), *where)
         )
+        rows.update((row.id, row) for row in conn.execute(stmt))
+
+    for chunk in _chunks(study_ids):
+        read(ev.c.study_id.in_(chunk))
+    uids = [u for u in event_uids if u]
+    for chunk in _chunks(uids):  # event_key is the Irradiation Event UID when there is one
+        read(ev.c.event_key.in_(chunk), ev.c.source_kind == "rdsr")
+    reported = sorted(
+        {r.irradiation_event_uid for r in rows.values() if r.source_kind == "rdsr"} & set(uids)
+    )
+    for chunk in _chunks(reported):
+        read(ev.c.event_key.in_(chunk), ev.c.source_kind == "image_header")
+    by_event = {(r.sop_instance_uid, r.event_index): r.id for r in rows.values()}
+    superseded = sorted(
+        by_event[(link.sop_instance_uid, link.event_index)]
+        for link in link_header_events_to_reports(rows.values())
+    )
+    for chunk in _chunks(superseded):
+        conn.execute(update(ev).where(ev.c.id.in_(chunk)).values(superseded=True))

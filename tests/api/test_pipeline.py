@@ -353,3 +353,30 @@ def test_an_object_stored_by_an_older_version_sent_again_is_a_duplicate(store, s
     changed = _pinned_result()
     changed.events[0].kvp_kv = 90.0
     assert pipe.store(changed, received_via="listen").status == "conflict"
+
+
+@pytest.mark.parametrize("report_first", [False, True])
+def test_a_header_with_a_reports_irradiation_event_uid_is_superseded_across_studies(
+    store, report_first
+) -> None:
+    # ingest/linking.py rule 2a: a report filed in a study of its own still carries the
+    # Irradiation Event UID (113769, DCM) the image header has in (0008,3010)
+    uid = "1.2.826.0.1.3680043.10.1234.77"
+    header = _result("1.2.3.11.1", study="1.2.3.11")
+    report = _result("1.2.3.11.9", kind="rdsr", study="1.2.3.12")
+    for event in (header.events[0], report.events[0]):
+        event.irradiation_event_uid = event.event_key = uid
+    other = _result("1.2.3.11.2", study="1.2.3.11")  # same study, no UID: stands on its own
+    pipe = Pipeline(store.session_factory)
+    for r in [report, header, other] if report_first else [header, other, report]:
+        assert pipe.store(r, received_via="scan").status == "stored"
+    with store.session_factory() as s:
+        superseded = dict(
+            s.execute(
+                select(m.SourceObjectRow.sop_instance_uid, m.ExposureEventRow.superseded).join(
+                    m.SourceObjectRow,
+                    m.SourceObjectRow.id == m.ExposureEventRow.source_object_id,
+                )
+            ).all()
+        )
+    assert superseded == {"1.2.3.11.1": True, "1.2.3.11.2": False, "1.2.3.11.9": False}
