@@ -749,7 +749,7 @@ class _BatchWriter:
         _link(
             self.conn,
             sorted({study_ids[uid] for uid in self.with_report if uid in study_ids}),
-            sorted({e.irradiation_event_uid for r in results for e in r.events} - {None, ""}),
+            sorted({e.irradiation_event_uid or "" for r in results for e in r.events} - {""}),
         )
         per_item: list[list[int]] = [[] for _ in items]
         for k, event_id in zip(owners, event_ids, strict=True):
@@ -860,7 +860,7 @@ def _default_room(session: Session, event: ExposureEvent) -> m.Room:
     return room
 
 
-def _link(conn: Any, study_ids: list[int], event_uids: list[str | None]) -> None:
+def _link(conn: Any, study_ids: list[int], event_uids: list[str]) -> None:
     """Mark the image-header events a dose report describes (``ingest/linking.py``'s rule).
 
     The rule is given every stored event it may link after a batch: those of the batch's studies
