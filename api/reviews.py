@@ -238,9 +238,9 @@ def _names_column(ids: np.ndarray, names: dict[int, str], missing: str) -> pd.Ca
     return pd.Categorical.from_codes(codes, categories=categories)
 
 
-def _study_column(study_ids: np.ndarray, event_ids: np.ndarray) -> pd.Categorical:
-    """The study's id as text (it stands for its UID here; flags map it back), or
-    ``(event N)`` for an event without a study, as a categorical."""
+def _study_column(session: Session, study_ids: np.ndarray, event_ids: np.ndarray) -> pd.Categorical:
+    """The study's Study Instance UID, or ``(event N)`` for an event without a study, as a
+    categorical (the events carry the study's id: each distinct study is looked up once)."""
     has = ~np.isnan(study_ids)
     codes = np.empty(len(study_ids), dtype=np.int64)
     uniques, known = np.unique(study_ids[has], return_inverse=True)  # ids sorted: by id order
@@ -248,11 +248,25 @@ def _study_column(study_ids: np.ndarray, event_ids: np.ndarray) -> pd.Categorica
     codes[~has] = len(uniques) + np.arange(int((~has).sum()))
     labels = np.concatenate(
         [
-            uniques.astype(np.int64).astype(str).astype(object),  # the ids' decimal digits
+            _study_uids(session, uniques.astype(np.int64)),
             np.array([f"(event {i})" for i in event_ids[~has]], dtype=object),
         ]
     )
     return pd.Categorical.from_codes(codes, categories=pd.Index(labels, dtype=object))
+
+
+def _study_uids(session: Session, ids: np.ndarray) -> np.ndarray:
+    """The Study Instance UIDs of the studies ``ids`` (sorted), in one query over their range."""
+    if not len(ids):
+        return np.array([], dtype=object)
+    found = dict(
+        session.execute(
+            select(m.Study.id, m.Study.study_instance_uid).where(
+                m.Study.id.between(int(ids[0]), int(ids[-1]))
+            )
+        ).all()
+    )
+    return np.array([found.get(int(i), f"(study {i})") for i in ids], dtype=object)
 
 
 def _text_categorical(values: np.ndarray) -> pd.Categorical:
@@ -670,7 +684,7 @@ def review_events(session: Session, *, start: date, end: date) -> pd.DataFrame:
     room_ids = dense["room_id"]
     columns: dict[str, Any] = {
         "event_id": event_ids,
-        "study_uid": _study_column(dense["study_id"], event_ids),
+        "study_uid": _study_column(session, dense["study_id"], event_ids),
         "event_datetime": pd.to_datetime(pd.Series(dense["epoch_s"]).round(3), unit="s", utc=True),
         "site": _names_column(room_ids, {k: v[1] for k, v in rooms.items()}, "(no site)"),
         "room": _names_column(room_ids, {k: v[0] for k, v in rooms.items()}, "(no room)"),
@@ -812,34 +826,23 @@ def execute_review(
 
 
 def _study_uids_in_flags(session: Session, flags: list[dict[str, Any]]) -> None:
-    """Put the Study Instance UID where the events table carried the study's id."""
+    """Name the study of a flag on one exposure (the pages link to it) by its Study Instance UID."""
     concerns = [f.get("concerns") or {} for f in flags]
     event_ids = {
         int(c["event_id"]) for c in concerns if c.get("event_id") and not c.get("study_uid")
     }
-    if event_ids:  # a flag on one exposure names its study too (the pages link to it)
-        study_of = dict(
-            session.execute(
-                select(m.ExposureEventRow.id, m.ExposureEventRow.study_id).where(
-                    m.ExposureEventRow.id.in_(event_ids)
-                )
-            ).all()
-        )
-        for c in concerns:
-            if c.get("event_id") and not c.get("study_uid") and study_of.get(int(c["event_id"])):
-                c["study_uid"] = str(study_of[int(c["event_id"])])
-    ids = {int(c["study_uid"]) for c in concerns if str(c.get("study_uid") or "").isdigit()}
-    if not ids:
+    if not event_ids:
         return
-    uids = dict(
+    study_of = dict(
         session.execute(
-            select(m.Study.id, m.Study.study_instance_uid).where(m.Study.id.in_(ids))
+            select(m.ExposureEventRow.id, m.Study.study_instance_uid)
+            .join(m.Study, m.Study.id == m.ExposureEventRow.study_id)
+            .where(m.ExposureEventRow.id.in_(event_ids))
         ).all()
     )
     for c in concerns:
-        value = str(c.get("study_uid") or "")
-        if value.isdigit():
-            c["study_uid"] = uids.get(int(value), value)
+        if c.get("event_id") and not c.get("study_uid") and study_of.get(int(c["event_id"])):
+            c["study_uid"] = study_of[int(c["event_id"])]
 
 
 def _check_scope(session: Session, params: ReviewParameters) -> dict[str, Any]:
