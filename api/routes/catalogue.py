@@ -106,19 +106,11 @@ def _exam_type_read(row: m.ExamTypeRow) -> ExamTypeRead:
 
 def _exam_type_values(body: ExamTypeCreate, *, paediatric_bands: str = "") -> dict[str, Any]:
     """The row's values, through the store's one mapping (a change keeps the row's banding)."""
-    return exam_type_row_values(
-        ExamType(
-            exam_type=body.exam_type,
-            name=body.name,
-            modality_group=body.modality_group,
-            dicom_modalities=tuple(body.dicom_modalities),
-            level_applies_per=body.level_applies_per,
-            quantities=tuple(body.quantities),
-            aggregation=tuple(cast(Any, body.aggregation).items()),
-            description=body.description,
-            paediatric_bands=cast(Any, paediatric_bands),
-        )
-    )
+    fields = body.model_dump()
+    for name in ("dicom_modalities", "quantities"):
+        fields[name] = tuple(fields[name])
+    fields["aggregation"] = tuple(fields["aggregation"].items())
+    return exam_type_row_values(ExamType(**fields, paediatric_bands=cast(Any, paediatric_bands)))
 
 
 def _exam_type_audit(row: m.ExamTypeRow) -> dict[str, Any]:
