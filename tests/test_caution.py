@@ -28,7 +28,7 @@ def test_the_caution_says_what_the_project_promises() -> None:
 
 
 def test_every_stage_uses_the_one_constant() -> None:
-    from beamaudit.api.app import CAUTION as api_caution
+    from beamaudit.api.web.app import CAUTION as api_caution
     from beamaudit.dashboards import CAUTION as dashboards_caution
     from beamaudit.model.exposure import ESTIMATE_NOTICE
 

@@ -37,10 +37,10 @@ def demo_command(
     """
     import shutil
 
-    from beamaudit.api.auth import create_token
     from beamaudit.api.demo.errors import DemoError
-    from beamaudit.api.demo_run import compare_with_plan, run_demo
+    from beamaudit.api.demo.run import compare_with_plan, run_demo
     from beamaudit.api.store import make_engine, make_session_factory, upgrade
+    from beamaudit.api.store.auth import create_token
     from beamaudit.ingest.pseudonym import load_or_create_key
 
     t0 = time.perf_counter()
@@ -92,8 +92,8 @@ def demo_command(
         )
         import uvicorn
 
-        from beamaudit.api.app import create_app
         from beamaudit.api.settings import load
+        from beamaudit.api.web.app import create_app
 
         uvicorn.run(
             create_app(load(database_url=url), engine=engine),

@@ -32,10 +32,10 @@ def listen_command(
 
     from beamaudit.api.cli._store import open_store
     from beamaudit.api.cli.scan import pseudonym_key
+    from beamaudit.api.intake.pipeline import Pipeline
+    from beamaudit.api.intake.postprocess import Completion
+    from beamaudit.api.intake.receiving import make_store_handler
     from beamaudit.api.logs import configure_logging
-    from beamaudit.api.pipeline import Pipeline
-    from beamaudit.api.postprocess import Completion
-    from beamaudit.api.receiving import make_store_handler
     from beamaudit.ingest.errors import IngestError
     from beamaudit.ingest.listener import ListenerConfig, start_listener
     from beamaudit.ingest.pseudonym import Pseudonymiser

@@ -51,7 +51,7 @@ def review_command(
     """
     from beamaudit.api.cli._store import open_store
     from beamaudit.api.review import ReviewError
-    from beamaudit.api.runs import NoEventsError
+    from beamaudit.api.runs.record import NoEventsError
 
     store = open_store(ctx)
     try:
@@ -73,7 +73,7 @@ def review_command(
         fail(f"review run {run_id} failed: {body.get('error')}")
     result = body["result"]
     if csv_path is not None or xlsx_path is not None:
-        from beamaudit.api.review_export import write_csv, write_xlsx
+        from beamaudit.api.runs.export import write_csv, write_xlsx
 
         if csv_path is not None:
             write_csv(result, csv_path)
@@ -90,7 +90,7 @@ def review_command(
 
 def _monthly(store: Any, month: str, rooms: list[str] | None, exam_types: list[str] | None) -> int:
     from beamaudit.api.review import Period, ReviewParameters
-    from beamaudit.api.reviews import run_review
+    from beamaudit.api.runs.reviews import run_review
 
     period = Period.parse(month)
     params = ReviewParameters(
@@ -109,8 +109,8 @@ def _nightly(store: Any) -> tuple[int, int] | None:
     from sqlalchemy import select
 
     from beamaudit.api.review import Period, ReviewParameters
-    from beamaudit.api.reviews import run_review
-    from beamaudit.api.runs import NoEventsError
+    from beamaudit.api.runs.record import NoEventsError
+    from beamaudit.api.runs.reviews import run_review
     from beamaudit.api.store import models as m
 
     with store.sessions() as session:
@@ -140,7 +140,7 @@ def _nightly(store: Any) -> tuple[int, int] | None:
 
 
 def _stored_result(store: Any, run_id: int) -> dict[str, Any]:
-    from beamaudit.api.runs import scope_text
+    from beamaudit.api.runs.record import scope_text
     from beamaudit.api.store import models as m
 
     with store.sessions() as session:
@@ -235,7 +235,7 @@ def nightly_command(
 
     from beamaudit.api.cli._store import open_store
     from beamaudit.api.cli.scan import pseudonym_key
-    from beamaudit.api.pulling import pull_source
+    from beamaudit.api.intake.pulling import pull_source
     from beamaudit.api.review import ReviewError
     from beamaudit.api.store import models as m
     from beamaudit.ingest.errors import IngestError
@@ -303,8 +303,8 @@ def levels_import(
     """Import reference-level set versions from a CSV file (all or none)."""
     from beamaudit.api.cli._store import open_store
     from beamaudit.api.review import CsvFormatError, ReviewError, read_levels_csv
-    from beamaudit.api.store.catalogue import ensure_catalogue
     from beamaudit.api.store.level_sets import add_level_sets
+    from beamaudit.api.store.review_rows import ensure_catalogue
 
     if not path.is_file():
         fail(f"no such file: {path}")
@@ -333,7 +333,7 @@ def levels_export(
     """Export every stored reference-level set as CSV (the layout ``levels import`` reads)."""
     from beamaudit.api.cli._store import open_store
     from beamaudit.api.review import write_levels_csv
-    from beamaudit.api.routes._review_rows import level_sets_from_store
+    from beamaudit.api.store.review_rows import level_sets_from_store
 
     store = open_store(ctx)
     with store.sessions() as session:
@@ -373,7 +373,7 @@ def examtypes_export(
     """Export the exam-type catalogue or the mapping rules as CSV to standard output."""
     from beamaudit.api.cli._store import open_store
     from beamaudit.api.review import write_catalogue_csv, write_rules_csv
-    from beamaudit.api.store.catalogue import ensure_catalogue
+    from beamaudit.api.store.review_rows import ensure_catalogue
 
     if what not in {"catalogue", "rules"}:
         fail(f"export what? catalogue or rules, not {what!r}")
@@ -389,7 +389,7 @@ def examtypes_export(
 def examtypes_remap(ctx: typer.Context) -> None:
     """Map every stored event to an exam type again (after the rules changed)."""
     from beamaudit.api.cli._store import open_store
-    from beamaudit.api.reviews import map_stored_events
+    from beamaudit.api.store.review_rows import map_stored_events
 
     store = open_store(ctx)
     with store.sessions.begin() as session:

@@ -22,9 +22,8 @@ def serve_command(
 
     import uvicorn
 
-    from beamaudit.api.app import create_app
     from beamaudit.api.logs import configure_logging
-    from beamaudit.api.runs import fail_interrupted_runs
+    from beamaudit.api.runs.record import fail_interrupted_runs
     from beamaudit.api.store import (
         StoreError,
         check_connection,
@@ -32,6 +31,7 @@ def serve_command(
         make_session_factory,
         upgrade,
     )
+    from beamaudit.api.web.app import create_app
 
     settings = load_settings(ctx)
     try:

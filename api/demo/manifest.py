@@ -70,8 +70,8 @@ class RoomEntry:
     ``filtration`` is the total filtration, inherent first; ``inherent_filtration`` and
     ``added_filtration`` split it. Image headers and dose reports carry only the added filters
     (DICOM's X-Ray Filtration module and TID 10003B name the filters in the beam, not the tube's
-    inherent filtration). :mod:`beamaudit.api.reconstruct` adds each event's recorded filters to
-    the room's configured filtration, so configure the store's ``rooms.filtration`` with
+    inherent filtration). :mod:`beamaudit.api.intake.reconstruct` adds each event's recorded
+    filters to the room's configured filtration, so configure the store's ``rooms.filtration`` with
     ``inherent_filtration`` (configuring ``filtration`` would count the added filter twice).
     ``qa_measurements`` (RAD 1 only) list the added filter as their filtration: they carry HVLs,
     so the calibration fits the inherent filtration.

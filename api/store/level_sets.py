@@ -20,7 +20,6 @@ from typing import Any, cast
 from sqlalchemy import select
 from sqlalchemy.orm import Session
 
-from beamaudit.api.auth import record_change
 from beamaudit.api.review.errors import ReviewError
 from beamaudit.api.review.levels import (
     ReferenceLevelSet,
@@ -28,7 +27,8 @@ from beamaudit.api.review.levels import (
     levels_the_store_cannot_keep,
 )
 from beamaudit.api.store import models as m
-from beamaudit.api.store.catalogue import ensure_catalogue
+from beamaudit.api.store.auth import record_change
+from beamaudit.api.store.review_rows import ensure_catalogue
 
 __all__ = [
     "LevelSetConflict",

@@ -3,7 +3,7 @@
 Reported and reconstructed values sit side by side in ``exposure_events``:
 ``dap_gy_cm2`` is what the device said, ``recon_dap_gy_cm2`` what the beam and
 dose model made of the same exposure. API schemas live elsewhere
-(``beamaudit.api.schemas``); these classes are tables only.
+(``beamaudit.api.web.schemas``); these classes are tables only.
 """
 
 from __future__ import annotations
@@ -406,7 +406,7 @@ class Finding(Base):
 
     A later run that finds it again adds a flag to the same finding, so its triage (status, who,
     when, a note) carries over; ``key`` is the SHA-256 of the identity
-    (:func:`beamaudit.api.findings.finding_key`).
+    (:func:`beamaudit.api.store.finding_identity.finding_key`).
     """
 
     __tablename__ = "findings"

@@ -12,12 +12,12 @@ import numpy as np
 import pytest
 from fastapi.testclient import TestClient
 
-from beamaudit.api.app import create_app
-from beamaudit.api.auth import create_token
-from beamaudit.api.pipeline import Pipeline
+from beamaudit.api.intake.pipeline import Pipeline
 from beamaudit.api.review import Period, ReviewParameters
-from beamaudit.api.reviews import run_review
+from beamaudit.api.runs.reviews import run_review
 from beamaudit.api.settings import load
+from beamaudit.api.store.auth import create_token
+from beamaudit.api.web.app import create_app
 from beamaudit.ingest.events import ExposureEvent, ParseResult, SourceObject
 
 CAUTION_WORDS = "estimate"
@@ -50,7 +50,7 @@ def _store_exams(store, n_per_month: int = 25) -> str:
                 )  # fmt: skip
                 src = SourceObject(sop, event.sop_class_uid, "image_header", "DX", study)
                 pipe.store(ParseResult(source=src, events=[event]), received_via="test")
-    from beamaudit.api.postprocess import process_new_events
+    from beamaudit.api.intake.postprocess import process_new_events
 
     with store.session_factory() as s:
         from sqlalchemy import select

@@ -8,7 +8,7 @@ from pathlib import Path
 import pytest
 from sqlalchemy import func, select, update
 
-from beamaudit.api.pipeline import (
+from beamaudit.api.intake.pipeline import (
     Pipeline,
     _make_printable,
     content_hash,
@@ -177,7 +177,7 @@ def _defined_fingerprint(result: ParseResult) -> str:
     and without the fields added since the first stored objects while they are None."""
     import json
 
-    from beamaudit.api.pipeline import _FINGERPRINT_ALWAYS
+    from beamaudit.api.intake.pipeline import _FINGERPRINT_ALWAYS
 
     payload = [
         {

@@ -14,8 +14,8 @@ from dataclasses import replace
 import pytest
 from sqlalchemy import select
 
-from beamaudit.api.pipeline import Pipeline
-from beamaudit.api.reconstruct import (
+from beamaudit.api.intake.pipeline import Pipeline
+from beamaudit.api.intake.reconstruct import (
     RECIPE_KIND,
     _BeamCache,
     _geometry,
@@ -71,7 +71,7 @@ def _store(store, events: list[ExposureEvent], sop: str = "1.2.3.100") -> list[i
 
 def _one_by_one(session, row: m.ExposureEventRow):
     """The figures of ``row`` from the model called for this one event (no store, no bulk)."""
-    from beamaudit.api.reconstruct import _event_beam
+    from beamaudit.api.intake.reconstruct import _event_beam
 
     room = session.get(m.Room, row.room_id)
     beam = _event_beam(row, room, None, _BeamCache())
@@ -323,7 +323,7 @@ def _recalibrate(store, event_id: int, **values) -> None:
 
 def test_the_exam_page_draws_the_beam_of_the_recipe_after_a_recalibration(store) -> None:
     # the page's spectrum and HVL come from the stored recipe, as the why trail beside them does
-    from beamaudit.api.page_data import exam_record
+    from beamaudit.api.web.page_data import exam_record
 
     ids = _store(store, [_event("1.2.3.103", 0)], "1.2.3.103")
     _recalibrate(store, ids[0], output_scale=1.3, inherent_filtration_mm_al=2.5, n_measurements=4)

@@ -1,4 +1,5 @@
-"""The store's events table for reviews (``beamaudit.api.reviews``) against a plain computation.
+"""The store's events table for reviews (``beamaudit.api.runs.reviews``) against a plain
+computation.
 
 ``review_events`` reads a period's events column by column, the sparse dose columns and the header
 text in queries of their own; here the same table is built the straightforward way (every stored
@@ -19,14 +20,13 @@ import pytest
 from sqlalchemy import insert, select
 
 from beamaudit.api.review import Period, ReviewParameters, review
-from beamaudit.api.reviews import (
-    ensure_catalogue,
+from beamaudit.api.runs.reviews import (
     events_frame,
     execute_review,
     review_events,
 )
-from beamaudit.api.routes._review_rows import level_sets_from_store
 from beamaudit.api.store import models as m
+from beamaudit.api.store.review_rows import ensure_catalogue, level_sets_from_store
 
 START, END = date(2026, 3, 1), date(2026, 4, 1)
 MODALITIES = ("DX", "CR", "CT", "RF", "XA", "MG", None)
@@ -244,7 +244,7 @@ def test_the_arrow_copy_and_plain_reads_give_the_same_table(store, monkeypatch) 
     # the columns come through an ADBC driver (its own connection to the store); on PostgreSQL
     # the binary COPY through the session's connection is the next way, and plain rows the last:
     # each must give the very same table
-    import beamaudit.api.reviews as reviews
+    import beamaudit.api.runs.reviews as reviews
 
     _fill(store.session_factory, seed=5)
     taken: list[bool] = []
@@ -276,7 +276,7 @@ def test_the_arrow_copy_and_plain_reads_give_the_same_table(store, monkeypatch) 
 def test_an_empty_period_through_the_driver_is_the_plain_empty_table(store, monkeypatch) -> None:
     # a period without events (the change-point history of a new store): the driver's columns
     # come without a type; the table must still be the plain way's, without a second read
-    import beamaudit.api.reviews as reviews
+    import beamaudit.api.runs.reviews as reviews
 
     _fill(store.session_factory, n=60, seed=4)
     arrow = reviews._dense_by_arrow
@@ -302,7 +302,7 @@ def test_a_store_the_driver_cannot_reach_is_read_through_the_session(store, monk
     import adbc_driver_postgresql.dbapi
     from adbc_driver_manager import AdbcStatusCode, OperationalError
 
-    import beamaudit.api.reviews as reviews
+    import beamaudit.api.runs.reviews as reviews
 
     _fill(store.session_factory, n=90, seed=9)
     with store.session_factory() as session:
@@ -416,7 +416,7 @@ _ONE_LIBRARY = """
 import sys
 from datetime import date
 from pathlib import Path
-from beamaudit.api.reviews import review_events
+from beamaudit.api.runs.reviews import review_events
 from beamaudit.api.store import make_engine, make_session_factory
 engine = make_engine(sys.argv[1])
 with make_session_factory(engine)() as session:
@@ -450,7 +450,7 @@ def test_the_review_read_never_loads_a_second_sqlite_library(tmp_path) -> None:
 
 def test_the_distribution_page_names_studies_by_their_study_instance_uid(store) -> None:
     # the events carry the study's store id; the page links to /exams/<Study Instance UID>
-    from beamaudit.api.page_data import distribution_events
+    from beamaudit.api.web.page_data import distribution_events
 
     _fill(store.session_factory)
     with store.session_factory() as session:

@@ -22,9 +22,9 @@ from pynetdicom import AE
 from sqlalchemy import func, select
 
 from beamaudit.api.cli import main
-from beamaudit.api.pipeline import Pipeline
-from beamaudit.api.receiving import make_store_handler
-from beamaudit.api.scanning import scan_paths
+from beamaudit.api.intake.pipeline import Pipeline
+from beamaudit.api.intake.receiving import make_store_handler
+from beamaudit.api.intake.scanning import scan_paths
 from beamaudit.api.store import models as m
 from beamaudit.ingest.errors import ERROR_CODES
 from beamaudit.ingest.listener import ListenerConfig, StoreStatus, start_listener

@@ -31,8 +31,8 @@ from procs import SharedStore, beamaudit_process, counts, shared_store
 from pynetdicom import AE
 from sqlalchemy import select
 
-from beamaudit.api.auth import create_token
 from beamaudit.api.store import models as m
+from beamaudit.api.store.auth import create_token
 
 DX_PRESENTATION = "1.2.840.10008.5.1.4.1.1.1.1"
 EXPLICIT_LE = "1.2.840.10008.1.2.1"

@@ -20,7 +20,7 @@ from peers import free_port, wait_for_tcp
 from procs import beamaudit_process, counts, shared_store
 from pynetdicom import AE
 
-from beamaudit.api.scanning import BATCH_SIZE
+from beamaudit.api.intake.scanning import BATCH_SIZE
 
 N_SCAN = BATCH_SIZE * 3 + 57  # several batches and a partial one
 N_SEND = 60

@@ -124,7 +124,7 @@ def test_a_newline_in_a_logged_value_cannot_forge_a_log_line(
 
     configure_logging()
     forged = "2026-12-01 00:00:00,000 ERROR beamaudit: forged by the sender"
-    logging.getLogger("beamaudit.api.app").error(
+    logging.getLogger("beamaudit.api.web.app").error(
         "unexpected error answering %s %s", "GET", "/flags?room=RAD1\n" + forged
     )
     logging.getLogger("uvicorn.error").error("Invalid HTTP request: %r\r\n%s", "x", forged)

@@ -22,9 +22,9 @@ from procs import SharedStore, shared_store
 from pynetdicom import AE
 from sqlalchemy import String, cast, select
 
-from beamaudit.api.pipeline import Pipeline
-from beamaudit.api.receiving import make_store_handler
-from beamaudit.api.scanning import scan_paths
+from beamaudit.api.intake.pipeline import Pipeline
+from beamaudit.api.intake.receiving import make_store_handler
+from beamaudit.api.intake.scanning import scan_paths
 from beamaudit.api.store import Base
 from beamaudit.api.store.migrate import upgrade
 from beamaudit.ingest.listener import ListenerConfig, start_listener

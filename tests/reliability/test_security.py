@@ -17,7 +17,7 @@ from procs import beamaudit_process, counts, shared_store
 from pynetdicom import AE
 from sqlalchemy import select
 
-import beamaudit.api.auth as auth
+import beamaudit.api.store.auth as auth
 from beamaudit.api.store import models as m
 
 DX_PRESENTATION = "1.2.840.10008.5.1.4.1.1.1.1"

@@ -220,7 +220,7 @@ def test_viewer_cannot_read_or_edit_the_catalogue(api) -> None:
 def test_changing_an_exam_type_keeps_its_paediatric_bands(api, catalogue) -> None:
     # the shipped catalogue bands chest PA by weight (ICRP 135; EC RP 185); the REST change and the
     # CSV import write through one mapping, so renaming it must not stop children being banded
-    from beamaudit.api.routes._review_rows import catalogue_from_store
+    from beamaudit.api.store.review_rows import catalogue_from_store
 
     assert api.patch("/exam-types/chest_pa", json={"name": "Chest PA (renamed)"}).status_code == 200
     with api.store.session_factory() as session:
