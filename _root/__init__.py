@@ -17,7 +17,15 @@ from typing import Any
 
 __version__ = "0.1.0"
 
-__all__ = ["__version__", "lazy_exports"]
+#: The caution beside every dose figure (pages, API answers, exports, command output): the one
+#: wording; every stage may import the package root, so every stage uses this constant.
+CAUTION = (
+    "Every dose figure shown here is an estimate, for quality assurance and optimisation. "
+    "Clinical decisions about a patient need a qualified medical physicist; "
+    "local regulations and licensed practice take precedence."
+)
+
+__all__ = ["CAUTION", "__version__", "lazy_exports"]
 
 
 def lazy_exports(package: str, names: dict[str, str]) -> Callable[[str], Any]:

@@ -15,6 +15,8 @@ import re
 from collections.abc import Mapping
 from dataclasses import dataclass
 
+from beamaudit import CAUTION as _CAUTION
+
 __all__ = [
     "CAUTION",
     "FLAG_KIND_WORDS",
@@ -36,11 +38,7 @@ __all__ = [
 ]
 
 #: The caution shown on every page and in every report.
-CAUTION = (
-    "Every dose figure shown here is an estimate, for quality assurance and optimisation. "
-    "Clinical decisions about a patient need a qualified medical physicist; "
-    "local regulations and licensed practice take precedence."
-)
+CAUTION = _CAUTION  # the package's one wording (beamaudit.CAUTION)
 
 #: Okabe-Ito colours by name (hex sRGB).
 OKABE_ITO: dict[str, str] = {

@@ -12,13 +12,16 @@ anything is summed or reviewed):
       (113769, DCM) of a report event (rule ``"irradiation_event_uid"``), or
    b. its study (Study Instance UID) has a dose report with at least one event
       of the same modality family, ``"projection"`` (CR, DX, MG, RF, XA,
-      TID 10003) or ``"ct"`` (CT, TID 10013) (rule ``"study_modality_family"``).
+      TID 10003) or ``"ct"`` (CT, TID 10013) (rule ``"study_modality_family"``);
+      an event read without a family takes its modality's (CT: ``"ct"``,
+      anything else: ``"projection"``).
 
 3. Every other header event stands on its own (a study without a dose report,
    or whose report covers another modality family).
 
 The function is pure: it decides from the events it is given and marks
-nothing; the store records the decision. Uniqueness itself comes from the
+nothing; the store (``beamaudit.api.pipeline``) gives it the stored events a
+batch may link, its own and earlier ones, and records the decision. Uniqueness itself comes from the
 keys: ``event_key`` (the Irradiation Event UID when present, otherwise
 ``"<SOP Instance UID>#<index>"``) and ``sop_instance_uid``; header and report
 events of the same irradiation share the ``event_key`` when both carry the
@@ -31,13 +34,63 @@ from __future__ import annotations
 
 from collections.abc import Iterable
 from dataclasses import dataclass
-from typing import Literal
+from typing import Literal, Protocol
 
-from .events import ExposureEvent
-
-__all__ = ["HeaderLink", "LinkRule", "link_header_events_to_reports"]
+__all__ = [
+    "HeaderLink",
+    "LinkRule",
+    "LinkableEvent",
+    "link_header_events_to_reports",
+    "modality_family_of",
+    "report_covers",
+]
 
 LinkRule = Literal["irradiation_event_uid", "study_modality_family"]
+
+
+class LinkableEvent(Protocol):
+    """What the rule reads of an event: an :class:`~beamaudit.ingest.events.ExposureEvent`, or a
+    stored event row with the same names."""
+
+    @property
+    def source_kind(self) -> str: ...
+    @property
+    def sop_instance_uid(self) -> str: ...
+    @property
+    def event_index(self) -> int: ...
+    @property
+    def event_key(self) -> str: ...
+    @property
+    def study_instance_uid(self) -> str | None: ...
+    @property
+    def modality(self) -> str | None: ...
+    @property
+    def modality_family(self) -> str | None: ...
+    @property
+    def irradiation_event_uid(self) -> str | None: ...
+
+
+def _family(modality_family: str | None, modality: str | None) -> str:
+    """The event's family, else its modality's: ``"ct"`` for CT, ``"projection"`` otherwise."""
+    if modality_family:
+        return modality_family
+    return "ct" if modality == "CT" else "projection"
+
+
+def modality_family_of(event: LinkableEvent) -> str:
+    """``"ct"`` or ``"projection"``: the family the event was read as, else its modality's."""
+    return _family(event.modality_family, event.modality)
+
+
+def report_covers(report_modalities: Iterable[str | None], header_modality: str | None) -> bool:
+    """Whether a dose report whose events have ``report_modalities`` covers a header's modality.
+
+    Rule 2b by modality alone: a CT dose report (TID 10011) covers CT headers; a projection
+    report (TID 10001) covers projection headers (CR, DX, MG, RF, XA); a report whose events
+    name no modality is a projection report.
+    """
+    families = {_family(None, x) for x in report_modalities if x} or {"projection"}
+    return _family(None, header_modality) in families
 
 
 @dataclass(frozen=True, slots=True)
@@ -51,7 +104,7 @@ class HeaderLink:
     rule: LinkRule
 
 
-def link_header_events_to_reports(events: Iterable[ExposureEvent]) -> list[HeaderLink]:
+def link_header_events_to_reports(events: Iterable[LinkableEvent]) -> list[HeaderLink]:
     """Which image-header events are superseded by a dose report (see module doc).
 
     Parameters
@@ -73,9 +126,9 @@ def link_header_events_to_reports(events: Iterable[ExposureEvent]) -> list[Heade
             continue
         if event.irradiation_event_uid:
             by_event_uid.setdefault(event.irradiation_event_uid, event.sop_instance_uid)
-        if event.study_instance_uid and event.modality_family:
+        if event.study_instance_uid:
             by_study_family.setdefault(
-                (event.study_instance_uid, event.modality_family), event.sop_instance_uid
+                (event.study_instance_uid, modality_family_of(event)), event.sop_instance_uid
             )
     links: list[HeaderLink] = []
     for event in all_events:
@@ -85,8 +138,8 @@ def link_header_events_to_reports(events: Iterable[ExposureEvent]) -> list[Heade
         rule: LinkRule | None = None
         if event.irradiation_event_uid and event.irradiation_event_uid in by_event_uid:
             report, rule = by_event_uid[event.irradiation_event_uid], "irradiation_event_uid"
-        elif event.study_instance_uid and event.modality_family:
-            key = (event.study_instance_uid, event.modality_family)
+        elif event.study_instance_uid:
+            key = (event.study_instance_uid, modality_family_of(event))
             if key in by_study_family:
                 report, rule = by_study_family[key], "study_modality_family"
         if report is not None and rule is not None:

@@ -35,6 +35,7 @@ from typing import TYPE_CHECKING, Any
 
 import numpy as np
 
+from beamaudit import CAUTION
 from beamaudit.model._chain import (
     GEOMETRY_NUMBERS,
     ChainFigures,
@@ -74,10 +75,7 @@ __all__ = [
 ]
 
 #: Said once beside every set of figures.
-ESTIMATE_NOTICE = (
-    "estimate for quality assurance and optimisation; clinical decisions need a qualified "
-    "medical physicist, and local regulations and licensed practice take precedence"
-)
+ESTIMATE_NOTICE = CAUTION
 
 
 @dataclass(frozen=True)

@@ -70,6 +70,7 @@ import numpy as np
 import numpy.typing as npt
 from scipy.optimize import brentq
 
+from beamaudit import CAUTION
 from beamaudit.model._engine import evaluate_unscaled
 from beamaudit.model.attenuation import energy_bin_centres_kev, grid_mass_energy_absorption_cm2_g
 from beamaudit.model.calibration import RoomCalibration
@@ -110,10 +111,7 @@ REFERENCE_FILTER = FilterSpec("Mo", 0.030)
 _REFERENCE_KV = (20.0, 28.0)
 _REFERENCE_MAX_AL_MM = 10.0
 _METHOD = "Dance method: Dance 1990; Dance et al. 2000, 2009, 2011"
-_NOTICE = (
-    "estimate for quality assurance and optimisation; clinical decisions need a qualified "
-    "medical physicist, and local regulations and licensed practice take precedence"
-)
+_NOTICE = CAUTION
 
 
 @dataclass(frozen=True)

@@ -14,7 +14,7 @@ from typing import Annotated
 
 import typer
 
-from beamaudit import __version__
+from beamaudit import CAUTION, __version__
 
 __all__ = ["app", "main"]
 
@@ -42,8 +42,7 @@ app = typer.Typer(
     name="beamaudit",
     help=(
         "Audit patient doses from x-ray examinations against diagnostic reference levels. "
-        "Every dose figure is an estimate for quality assurance and optimisation; clinical "
-        "decisions about a patient need a qualified medical physicist."
+        + CAUTION
     ),
     no_args_is_help=True,
     add_completion=False,

@@ -16,6 +16,7 @@ from typing import TYPE_CHECKING, Annotated
 
 import typer
 
+from beamaudit import CAUTION
 from beamaudit.api.cli._common import console, fail
 
 if TYPE_CHECKING:
@@ -84,9 +85,7 @@ def _table(result: BeamResult, *, everything: bool) -> None:
             "(--all: second HVL, HVL in Cu, homogeneity, effective energy, anode-angle check)",
             highlight=False,
         )
-    console.print(
-        "An estimate for quality assurance and optimisation, not a measurement.", highlight=False
-    )
+    console.print(CAUTION, highlight=False, soft_wrap=True)
 
 
 def _plot(result: BeamResult, path: Path) -> None:

@@ -172,7 +172,7 @@ def _text_report(result: ExposureDose, filtration: str) -> str:
         lines.extend(f"  - {a}" for a in result.assumptions)
     from beamaudit.model.exposure import ESTIMATE_NOTICE
 
-    lines.append(f"note: {ESTIMATE_NOTICE}.")
+    lines.append(f"note: {ESTIMATE_NOTICE}")
     return "\n".join(lines)
 
 

@@ -7,6 +7,7 @@ from typing import Annotated, Any
 
 import typer
 
+from beamaudit import CAUTION
 from beamaudit.api.cli._common import console, fail
 
 __all__ = ["event_explanation", "register"]
@@ -74,10 +75,7 @@ def event_explanation(event: Any, trail: dict[str, Any] | None = None) -> dict[s
         "provenance": event.provenance or {},
         "notes": event.notes or [],
         "why": trail if trail is not None else event.recon_trail,
-        "caution": (
-            "every figure is an estimate for quality assurance and optimisation; clinical "
-            "decisions need a qualified medical physicist"
-        ),
+        "caution": CAUTION,
     }
 
 

@@ -15,6 +15,7 @@ from typing import TYPE_CHECKING, Annotated
 
 import typer
 
+from beamaudit import CAUTION
 from beamaudit.api.cli._common import console, fail
 
 if TYPE_CHECKING:
@@ -63,11 +64,7 @@ def _table(result: GlandularDose) -> None:
     )
     for note in result.assumptions:
         console.print(f"- {note}", highlight=False)
-    console.print(
-        "An estimate for quality assurance and optimisation, not a measurement; clinical "
-        "decisions need a qualified medical physicist.",
-        highlight=False,
-    )
+    console.print(CAUTION, highlight=False, soft_wrap=True)
 
 
 def mgd_command(

@@ -10,6 +10,7 @@ from typing import Annotated, Any
 
 import typer
 
+from beamaudit import CAUTION
 from beamaudit.api.cli._common import EXIT_PARTIAL, console, err_console, fail
 
 __all__ = ["register"]
@@ -215,10 +216,7 @@ def _print(run_id: int, result: dict[str, Any], new_flags: int | None, scope: st
         console.print(f"  ... and {len(result['flags']) - 40} more (--json for all)")
     if new_flags is not None:
         console.print(f"new flags since the last nightly run: {new_flags}")
-    console.print(
-        "[dim]Estimates for quality assurance and optimisation; "
-        "clinical decisions need a qualified medical physicist.[/dim]"
-    )
+    console.print(f"[dim]{CAUTION}[/dim]", soft_wrap=True)
 
 
 def _f(value: Any) -> str:
@@ -325,7 +323,7 @@ def levels_import(
     """Import reference-level set versions from a CSV file (all or none)."""
     from beamaudit.api.cli._store import open_store
     from beamaudit.api.review import CsvFormatError, ReviewError, read_levels_csv
-    from beamaudit.api.runs.reviews import store_level_sets
+    from beamaudit.api.store.level_sets import add_level_sets
     from beamaudit.api.store.review_rows import ensure_catalogue
 
     if not path.is_file():
@@ -335,7 +333,7 @@ def levels_import(
         with store.sessions.begin() as session:
             catalogue, _ = ensure_catalogue(session)
             sets = read_levels_csv(path, catalogue)
-            rows = store_level_sets(session, sets)
+            rows = add_level_sets(session, sets, actor="cli")
             names = [f"{r.name} {r.version}" for r in rows]
     except CsvFormatError as exc:
         fail(str(exc))

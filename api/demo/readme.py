@@ -4,6 +4,7 @@ from __future__ import annotations
 
 from typing import Any
 
+from beamaudit import CAUTION
 from beamaudit.api.demo.manifest import PlantedFinding, ScenarioManifest
 
 __all__ = ["render_readme"]
@@ -69,8 +70,7 @@ def render_readme(manifest: ScenarioManifest) -> str:
         "common practice in adult radiography, fluoroscopy and CT, but they are no one's "
         "measurements and no recommendation. The local reference levels the demo is measured "
         "against are the invented set shipped with beamaudit "
-        "(`beamaudit/api/data/demo_local_levels.csv`). Every dose figure beamaudit derives is an "
-        "estimate for quality assurance; clinical decisions need a qualified medical physicist.",
+        "(`beamaudit/api/data/demo_local_levels.csv`). " + CAUTION,
         "",
         f"Seed {manifest.seed}; months {', '.join(manifest.months)} "
         f"({manifest.start_date} to {manifest.end_date}); {counts['studies']} studies, "

@@ -368,7 +368,8 @@ def run_demo(
         load_demo_local_levels,
         load_national_levels,
     )
-    from beamaudit.api.runs.reviews import run_review, store_level_sets
+    from beamaudit.api.runs.reviews import run_review
+    from beamaudit.api.store.level_sets import add_level_sets
     from beamaudit.api.store.review_rows import ensure_catalogue
     from beamaudit.ingest.listener import ListenerConfig, start_listener
     from beamaudit.ingest.pseudonym import Pseudonymiser
@@ -384,7 +385,7 @@ def run_demo(
         _setup_rooms(sessions, manifest)
         with sessions.begin() as session:
             ensure_catalogue(session, actor="demo")
-            store_level_sets(
+            add_level_sets(
                 session, [*load_national_levels(), *load_demo_local_levels()], actor="demo"
             )
     pipeline = Pipeline(sessions, completion=Completion())  # exam types and figures stored too

@@ -37,7 +37,6 @@ __all__ = [
     "Procedure",
     "RoomSpec",
     "ViewProgram",
-    "room_by_key",
 ]
 
 INSTITUTION = "Hollowbrook General Hospital"
@@ -703,17 +702,3 @@ FLUORO_PROTOCOLS: tuple[tuple[FluoroProtocol, float], ...] = (
         0.30,
     ),
 )
-
-
-def room_by_key(key: str) -> RoomSpec:
-    """The room with ``key``.
-
-    Raises
-    ------
-    KeyError
-        No room has that key.
-    """
-    for room in ROOMS:
-        if room.key == key:
-            return room
-    raise KeyError(f"no demo room {key!r}; rooms: {', '.join(r.key for r in ROOMS)}")

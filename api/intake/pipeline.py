@@ -22,9 +22,11 @@ Idempotence and double counting
   the same irradiation. Reviews count an acquisition once (by
   ``acquisition_key``) and leave superseded header events out.
 * A study whose exposures are described by a dose report takes its events from
-  the report: every image-header event of that study whose modality the
-  report covers (projection x-ray for TID 10001, CT for TID 10011) is marked
-  ``superseded`` and left out of reviews, whichever of the two arrived first.
+  the report: an image-header event with the Irradiation Event UID of a report
+  event (in any study), and every image-header event of a study whose modality
+  family the study's report covers (projection x-ray for TID 10001, CT for
+  TID 10011), is marked ``superseded`` and left out of reviews, whichever of the
+  two arrived first. The rule is ``beamaudit.ingest.linking``'s, the only one.
 
 Text that reaches the store
 ---------------------------
@@ -45,7 +47,7 @@ from collections.abc import Iterable
 from dataclasses import dataclass, field
 from typing import TYPE_CHECKING, Any, Literal, cast
 
-from sqlalchemy import Table, select, update
+from sqlalchemy import Table, or_, select, update
 from sqlalchemy.exc import IntegrityError
 from sqlalchemy.orm import Session, sessionmaker
 
@@ -55,6 +57,7 @@ from beamaudit.api.store.base import utcnow
 from beamaudit.api.store.bulk import insert_rows, update_rows
 from beamaudit.ingest.errors import IngestError
 from beamaudit.ingest.events import AccumulatedDose, ExposureEvent, FilterLayer, ParseResult
+from beamaudit.ingest.linking import link_header_events_to_reports, report_covers
 
 __all__ = [
     "CT_MODALITIES",
@@ -73,7 +76,6 @@ if TYPE_CHECKING:
 log = logging.getLogger(__name__)
 
 CT_MODALITIES = frozenset({"CT"})
-PROJECTION_MODALITIES = frozenset({"CR", "DX", "MG", "RF", "XA", "DR", "PX"})
 
 #: ExposureEvent fields stored as columns of the same name
 _EVENT_COLUMNS = tuple(
@@ -117,8 +119,11 @@ def result_fingerprint(result: ParseResult) -> str:
     fingerprint; an object that reuses a SOP Instance UID for other exposures
     has a different one. It is the SHA-256 of the JSON of every event's
     fields but ``provenance`` and ``notes`` (datetimes in ISO form, filters as
-    dicts, as :meth:`ExposureEvent.as_dict` gives them) followed by the
-    accumulations' reprs; built without copying the events.
+    dicts, as :meth:`ExposureEvent.as_dict` gives them), keys sorted, followed
+    by the accumulations' reprs; built without copying the events. A field
+    added to :class:`ExposureEvent` after the first stored objects
+    (not in ``_FINGERPRINT_ALWAYS``) is left out while it is None, so adding
+    a field never turns a re-sent object into a conflict.
     """
     return content_hash(_fingerprint_text(result).encode("utf-8"))
 
@@ -143,6 +148,94 @@ def _fingerprint_text(result: ParseResult) -> str:
 _FINGERPRINT_SKIP = frozenset({"provenance", "notes"})
 _EVENT_FIELDS = tuple(f.name for f in dataclasses.fields(ExposureEvent))
 _PAYLOAD_FIELDS = tuple(sorted(f for f in _EVENT_FIELDS if f not in _FINGERPRINT_SKIP))
+#: the event fields every fingerprint holds, null or not: those of the first stored objects
+#: (beamaudit 0.1.0 as first released); a field added since is written only when it has a value,
+#: so an object stored by an older version and sent again keeps its fingerprint
+_FINGERPRINT_ALWAYS = frozenset(
+    [
+        "accession_number",
+        "acquisition_device_type",
+        "acquisition_key",
+        "acquisition_plane",
+        "anode_material",
+        "body_part",
+        "body_part_thickness_mm",
+        "collimator_edges_px",
+        "ct_phantom_diameter_cm",
+        "ct_pitch_factor",
+        "ct_scan_length_mm",
+        "ct_total_collimation_mm",
+        "ctdivol_mgy",
+        "dap_gy_cm2",
+        "detector_dimensions_mm",
+        "deviation_index",
+        "device_observer_uid",
+        "device_serial_number",
+        "dlp_mgy_cm",
+        "entrance_dose_derivation",
+        "entrance_dose_mgy",
+        "event_datetime",
+        "event_index",
+        "event_key",
+        "event_type",
+        "exposure_index",
+        "exposure_mas",
+        "exposure_time_ms",
+        "field_area_cm2",
+        "field_height_mm",
+        "field_plane",
+        "field_width_mm",
+        "filter_type",
+        "filters",
+        "fluoro_mode",
+        "focal_spot_mm",
+        "grid",
+        "hvl_mm_al",
+        "imager_pixel_spacing_mm",
+        "institution_name",
+        "irradiation_duration_s",
+        "irradiation_event_uid",
+        "kvp_kv",
+        "magnification_factor",
+        "manufacturer",
+        "modality",
+        "modality_family",
+        "model_name",
+        "number_of_pulses",
+        "organ_dose_mgy",
+        "patient_age_years",
+        "patient_height_m",
+        "patient_pseudo_id",
+        "patient_sex",
+        "patient_weight_kg",
+        "protocol_name",
+        "pulse_rate_per_s",
+        "reference_point_air_kerma_mgy",
+        "series_description",
+        "series_instance_uid",
+        "sid_mm",
+        "sop_class_uid",
+        "sop_instance_uid",
+        "source_kind",
+        "source_to_entrance_mm",
+        "source_to_isocenter_mm",
+        "source_to_patient_mm",
+        "source_to_reference_point_mm",
+        "source_to_table_mm",
+        "ssde_mgy",
+        "station_name",
+        "study_datetime",
+        "study_description",
+        "study_instance_uid",
+        "target_exposure_index",
+        "tube_current_ma",
+        "view_position",
+        "water_equivalent_diameter_mm",
+        "xray_output_mgy_per_mas",
+    ]
+)
+#: fields added since, left out of the fingerprint while they are None
+_FINGERPRINT_WHEN_SET = tuple(f for f in _PAYLOAD_FIELDS if f not in _FINGERPRINT_ALWAYS)
 _payload_values = operator.attrgetter(*_PAYLOAD_FIELDS)
 _DATETIME_FIELDS = ("study_datetime", "event_datetime")
 #: what JSON writes without nested objects; by ExposureEvent's types only ``filters`` (a
@@ -150,10 +243,23 @@ _DATETIME_FIELDS = ("study_datetime", "event_datetime")
 _SCALARS = (str, int, float, type(None), tuple)
 
 
+def _every_field_fingerprint(result: ParseResult) -> str:
+    """The fingerprint as versions before ``_FINGERPRINT_WHEN_SET`` wrote it: every field of
+    this version, null or not (only asked when the fingerprint differs from a stored one)."""
+    payload: list[dict[str, Any]] = [
+        {k: v for k, v in e.as_dict().items() if k not in _FINGERPRINT_SKIP} for e in result.events
+    ]
+    payload.append({"accumulated": [repr(a) for a in result.accumulated]})
+    return content_hash(json.dumps(payload, sort_keys=True, default=str).encode("utf-8"))
+
+
 def _event_payload(event: ExposureEvent) -> tuple[dict[str, Any], bool]:
     """``as_dict()`` of ``event`` without provenance and notes, keys sorted, as JSON would
     write it; and whether every field held its declared type (no nested object to sort)."""
     out = dict(zip(_PAYLOAD_FIELDS, _payload_values(event), strict=True))
+    for f in _FINGERPRINT_WHEN_SET:
+        if out[f] is None:
+            del out[f]
     for f in _DATETIME_FIELDS:
         value = out[f]
         if value is not None:
@@ -258,18 +364,6 @@ def _make_printable(obj: Any) -> None:
                 object.__setattr__(obj, f.name, cleaned)
             else:
                 setattr(obj, f.name, cleaned)
-
-
-def report_covers(report_modalities: Iterable[str | None], header_modality: str | None) -> bool:
-    """Whether a dose report with ``report_modalities`` describes an image-header event.
-
-    A CT dose report (TID 10011) covers CT headers; a projection report (TID 10001)
-    covers projection headers (CR, DX, MG, RF, XA).
-    """
-    mods = {x for x in report_modalities if x}
-    if header_modality in CT_MODALITIES:
-        return bool(mods & CT_MODALITIES)
-    return bool(mods - CT_MODALITIES) or not mods
 
 
 class Pipeline:
@@ -458,7 +552,12 @@ class _BatchWriter:
             uid = result.source.sop_instance_uid
             if uid in existing:
                 stored_sha = existing[uid]
-                if sha256 and stored_sha and stored_sha != sha256:
+                if (
+                    sha256
+                    and stored_sha
+                    and stored_sha != sha256
+                    and stored_sha != _every_field_fingerprint(result)
+                ):
                     outcomes[i] = StoreOutcome(
                         "conflict",
                         uid,
@@ -648,8 +747,11 @@ class _BatchWriter:
             event_ids = [found[(r["source_object_id"], r["event_index"])] for r in event_rows]
         if acc_rows:
             insert_rows(self.conn, _table(m.AccumulatedDoseRow), acc_rows)
-        for study_id in sorted({study_ids[uid] for uid in self.with_report if uid in study_ids}):
-            _link(self.conn, study_id)
+        _link(
+            self.conn,
+            sorted({study_ids[uid] for uid in self.with_report if uid in study_ids}),
+            sorted({e.irradiation_event_uid or "" for r in results for e in r.events} - {""}),
+        )
         # the skin-dose maps of fluoroscopy studies with geometry, like the other figures: here
         # with a completion, else by process_new_events
         skin_studies = studies_with_geometry(event_rows) if self.completion is not None else ()
@@ -765,31 +867,49 @@ def _default_room(session: Session, event: ExposureEvent) -> m.Room:
     return room
 
 
-def _link(conn: Any, study_id: int) -> None:
-    """Mark image-header events of a study that a dose report of the study describes."""
-    ev = _table(m.ExposureEventRow)
-    report_modalities = conn.scalars(
-        select(ev.c.modality)
-        .where(ev.c.study_id == study_id, ev.c.source_kind == "rdsr")
-        .distinct()
-    ).all()
-    header_modalities = conn.scalars(
-        select(ev.c.modality)
-        .where(
-            ev.c.study_id == study_id,
-            ev.c.source_kind == "image_header",
-            ev.c.superseded.is_(False),
-        )
-        .distinct()
-    ).all()
-    covered = [mod for mod in header_modalities if report_covers(report_modalities, mod)]
-    if covered:
-        conn.execute(
-            update(ev)
-            .where(
-                ev.c.study_id == study_id,
-                ev.c.source_kind == "image_header",
-                ev.c.modality.in_(covered),
+def _link(conn: Any, study_ids: list[int], event_uids: list[str]) -> None:
+    """Mark the image-header events a dose report describes (``ingest/linking.py``'s rule).
+
+    The rule is given every stored event it may link after a batch: those of the batch's studies
+    that have a dose report, and those sharing an Irradiation Event UID of the batch's events with
+    a report event (whichever arrived first, in any study).
+    """
+    ev, so, st = _table(m.ExposureEventRow), _table(m.SourceObjectRow), _table(m.Study)
+    rows: dict[int, Any] = {}
+
+    def read(*where: Any) -> None:
+        stmt = (
+            select(
+                ev.c.id,
+                ev.c.source_kind,
+                ev.c.event_index,
+                ev.c.event_key,
+                ev.c.modality,
+                ev.c.modality_family,
+                ev.c.irradiation_event_uid,
+                so.c.sop_instance_uid,
+                st.c.study_instance_uid,
             )
-            .values(superseded=True)
+            .join(so, so.c.id == ev.c.source_object_id)
+            .outerjoin(st, st.c.id == ev.c.study_id)
+            .where(or_(ev.c.source_kind == "rdsr", ev.c.superseded.is_(False)), *where)
         )
+        rows.update((row.id, row) for row in conn.execute(stmt))
+
+    for chunk in _chunks(study_ids):
+        read(ev.c.study_id.in_(chunk))
+    uids = [u for u in event_uids if u]
+    for chunk in _chunks(uids):  # event_key is the Irradiation Event UID when there is one
+        read(ev.c.event_key.in_(chunk), ev.c.source_kind == "rdsr")
+    reported = sorted(
+        {r.irradiation_event_uid for r in rows.values() if r.source_kind == "rdsr"} & set(uids)
+    )
+    for chunk in _chunks(reported):
+        read(ev.c.event_key.in_(chunk), ev.c.source_kind == "image_header")
+    by_event = {(r.sop_instance_uid, r.event_index): r.id for r in rows.values()}
+    superseded = sorted(
+        by_event[(link.sop_instance_uid, link.event_index)]
+        for link in link_header_events_to_reports(rows.values())
+    )
+    for chunk in _chunks(superseded):
+        conn.execute(update(ev).where(ev.c.id.in_(chunk)).values(superseded=True))

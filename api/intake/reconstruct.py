@@ -807,14 +807,23 @@ def _calibration_from_snapshot(snapshot: dict[str, Any] | None, room: m.Room | N
     return _calibration_from_row(row, room)
 
 
-def beam_for_event(session: Session, event: m.ExposureEventRow) -> Any:
-    """The beam (spectrum, HVL, output) the model used for ``event``, or None without technique."""
+def beam_for_event(event: m.ExposureEventRow) -> Any:
+    """The beam (spectrum, HVL, output) the model used for ``event``, from its stored recipe alone.
+
+    The room's beam configuration and calibration are those of the recipe, as they were when
+    the figures were made, not the room's current ones: after a recalibration the exam page's
+    spectrum and HVL still agree with the stored figures and the why trail beside them. None
+    without technique, for CT, or for an event without a recipe (not reconstructed).
+    """
     from beamaudit.model import BeamSpec, ModelError, compute_beam
 
+    recipe = event.recon_trail
     if not event.kvp_kv or event.modality_family == "ct":
         return None
-    room = session.get(m.Room, event.room_id) if event.room_id else None
-    calibration = calibration_for_room(session, room)
+    if not recipe or recipe.get("kind") != RECIPE_KIND:
+        return None
+    room = _room_from_snapshot(recipe.get("room"))
+    calibration = _calibration_from_snapshot(recipe.get("calibration"), room)
     try:
         return compute_beam(
             BeamSpec(

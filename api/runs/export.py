@@ -12,6 +12,7 @@ import io
 from pathlib import Path
 from typing import Any
 
+from beamaudit import CAUTION
 from beamaudit.api.review.spreadsheet import safe_cell
 
 __all__ = ["GROUP_EXPORT_COLUMNS", "groups_csv_text", "write_csv", "write_xlsx", "xlsx_bytes"]
@@ -22,11 +23,6 @@ GROUP_EXPORT_COLUMNS = (
     "level_set", "level_kind", "level_version", "level_source", "ratio_to_level", "status",
 )  # fmt: skip
 FLAG_EXPORT_COLUMNS = ("kind", "severity", "reason", "room", "exam_type", "event_id", "study_uid")
-
-CAUTION = (
-    "Estimates for quality assurance and optimisation; clinical decisions about a patient need "
-    "a qualified medical physicist; local regulations and licensed practice take precedence."
-)
 
 
 def groups_csv_text(result: dict[str, Any]) -> str:

@@ -19,10 +19,10 @@ from typing import Any
 from sqlalchemy.orm import Session
 
 from beamaudit.api.review import ReviewError
-from beamaudit.api.review.levels import LevelEntry, ReferenceLevelSet, check_level_sets
+from beamaudit.api.review.levels import LevelEntry, ReferenceLevelSet
 from beamaudit.api.store import models as m
-from beamaudit.api.store.auth import record_change
-from beamaudit.api.store.review_rows import level_rows, level_sets_from_store
+from beamaudit.api.store.level_sets import add_level_sets
+from beamaudit.api.store.review_rows import level_sets_from_store
 
 __all__ = ["AdoptionError", "ProposalKey", "adopt_proposals", "proposal_rows", "record_run"]
 
@@ -144,27 +144,11 @@ def adopt_proposals(
         source=source,
         entries=tuple(entries[k] for k in sorted(entries)),
     )
-    try:
-        check_level_sets([*(s for _, s in versions), candidate])
-    except ReviewError as exc:
-        raise AdoptionError(str(exc)) from None
     if any(s.version == version for _, s in versions):
         raise AdoptionError(f"level set {set_name!r} has a version {version!r} already")
-    row = m.ReferenceLevelSetRow(
-        name=set_name, kind="local", version=version, effective_from=effective_from, source=source
-    )
-    session.add(row)
-    session.flush()
-    session.add_all(level_rows(row.id, candidate.entries))
-    session.flush()
-    record_change(
-        session,
-        actor=actor,
-        action="adopt_proposals",
-        entity="reference_level_set",
-        entity_id=row.id,
-        before={"set": set_name, "version": base.version if base else None, "levels": before},
-        after={
+    audit = {
+        "before": {"set": set_name, "version": base.version if base else None, "levels": before},
+        "after": {
             "set": set_name,
             "version": version,
             "effective_from": effective_from.isoformat(),
@@ -173,5 +157,11 @@ def adopt_proposals(
             "adopted": adopted,
             "levels": {"|".join(e.key): e.value for e in candidate.entries},
         },
-    )
+    }
+    try:
+        (row,) = add_level_sets(
+            session, [candidate], actor=actor, action="adopt_proposals", audit=audit
+        )
+    except ReviewError as exc:
+        raise AdoptionError(str(exc)) from None
     return row

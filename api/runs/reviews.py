@@ -68,7 +68,6 @@ from beamaudit.api.store.base import utcnow
 from beamaudit.api.store.engine import SQLITE_BUSY_TIMEOUT_MS
 from beamaudit.api.store.review_rows import (
     ensure_catalogue,
-    level_rows,
     level_sets_from_store,
     room_and_device_names,
 )
@@ -76,11 +75,8 @@ from beamaudit.api.store.skin_doses import add_skin_dose_flags
 
 __all__ = [
     "events_frame",
-    "month_period",
-    "period_conditions",
     "review_events",
     "run_review",
-    "stored_flags_frame",
 ]
 
 
@@ -131,11 +127,6 @@ _FLOAT_NAMES = (
     "esak_mgy",
     "deviation_index",
 )
-
-
-def month_period(text: str) -> Period:
-    """``YYYY-MM`` as a :class:`Period` (raises ``ReviewError`` on a bad month)."""
-    return Period.parse(text)
 
 
 def _as_utc(value: date) -> datetime:
@@ -242,9 +233,9 @@ def _names_column(ids: np.ndarray, names: dict[int, str], missing: str) -> pd.Ca
     return pd.Categorical.from_codes(codes, categories=categories)
 
 
-def _study_column(study_ids: np.ndarray, event_ids: np.ndarray) -> pd.Categorical:
-    """The study's id as text (it stands for its UID here; flags map it back), or
-    ``(event N)`` for an event without a study, as a categorical."""
+def _study_column(session: Session, study_ids: np.ndarray, event_ids: np.ndarray) -> pd.Categorical:
+    """The study's Study Instance UID, or ``(event N)`` for an event without a study, as a
+    categorical (the events carry the study's id: each distinct study is looked up once)."""
     has = ~np.isnan(study_ids)
     codes = np.empty(len(study_ids), dtype=np.int64)
     uniques, known = np.unique(study_ids[has], return_inverse=True)  # ids sorted: by id order
@@ -252,11 +243,25 @@ def _study_column(study_ids: np.ndarray, event_ids: np.ndarray) -> pd.Categorica
     codes[~has] = len(uniques) + np.arange(int((~has).sum()))
     labels = np.concatenate(
         [
-            uniques.astype(np.int64).astype(str).astype(object),  # the ids' decimal digits
+            _study_uids(session, uniques.astype(np.int64)),
             np.array([f"(event {i})" for i in event_ids[~has]], dtype=object),
         ]
     )
     return pd.Categorical.from_codes(codes, categories=pd.Index(labels, dtype=object))
+
+
+def _study_uids(session: Session, ids: np.ndarray) -> np.ndarray:
+    """The Study Instance UIDs of the studies ``ids`` (sorted), in one query over their range."""
+    if not len(ids):
+        return np.array([], dtype=object)
+    found = dict(
+        session.execute(
+            select(m.Study.id, m.Study.study_instance_uid).where(
+                m.Study.id.between(int(ids[0]), int(ids[-1]))
+            )
+        ).all()
+    )
+    return np.array([found.get(int(i), f"(study {i})") for i in ids], dtype=object)
 
 
 def _text_categorical(values: np.ndarray) -> pd.Categorical:
@@ -674,7 +679,7 @@ def review_events(session: Session, *, start: date, end: date) -> pd.DataFrame:
     room_ids = dense["room_id"]
     columns: dict[str, Any] = {
         "event_id": event_ids,
-        "study_uid": _study_column(dense["study_id"], event_ids),
+        "study_uid": _study_column(session, dense["study_id"], event_ids),
         "event_datetime": pd.to_datetime(pd.Series(dense["epoch_s"]).round(3), unit="s", utc=True),
         "site": _names_column(room_ids, {k: v[1] for k, v in rooms.items()}, "(no site)"),
         "room": _names_column(room_ids, {k: v[0] for k, v in rooms.items()}, "(no room)"),
@@ -781,34 +786,23 @@ def execute_review(
 
 
 def _study_uids_in_flags(session: Session, flags: list[dict[str, Any]]) -> None:
-    """Put the Study Instance UID where the events table carried the study's id."""
+    """Name the study of a flag on one exposure (the pages link to it) by its Study Instance UID."""
     concerns = [f.get("concerns") or {} for f in flags]
     event_ids = {
         int(c["event_id"]) for c in concerns if c.get("event_id") and not c.get("study_uid")
     }
-    if event_ids:  # a flag on one exposure names its study too (the pages link to it)
-        study_of = dict(
-            session.execute(
-                select(m.ExposureEventRow.id, m.ExposureEventRow.study_id).where(
-                    m.ExposureEventRow.id.in_(event_ids)
-                )
-            ).all()
-        )
-        for c in concerns:
-            if c.get("event_id") and not c.get("study_uid") and study_of.get(int(c["event_id"])):
-                c["study_uid"] = str(study_of[int(c["event_id"])])
-    ids = {int(c["study_uid"]) for c in concerns if str(c.get("study_uid") or "").isdigit()}
-    if not ids:
+    if not event_ids:
         return
-    uids = dict(
+    study_of = dict(
         session.execute(
-            select(m.Study.id, m.Study.study_instance_uid).where(m.Study.id.in_(ids))
+            select(m.ExposureEventRow.id, m.Study.study_instance_uid)
+            .join(m.Study, m.Study.id == m.ExposureEventRow.study_id)
+            .where(m.ExposureEventRow.id.in_(event_ids))
         ).all()
     )
     for c in concerns:
-        value = str(c.get("study_uid") or "")
-        if value.isdigit():
-            c["study_uid"] = uids.get(int(value), value)
+        if c.get("event_id") and not c.get("study_uid") and study_of.get(int(c["event_id"])):
+            c["study_uid"] = study_of[int(c["event_id"])]
 
 
 def _check_scope(session: Session, params: ReviewParameters) -> dict[str, Any]:
@@ -927,70 +921,3 @@ def run_review(
         if not isinstance(exc, ReviewError):
             raise
     return run_id
-
-
-def stored_flags_frame(session: Session, run_id: int) -> pd.DataFrame:
-    """The flags of one stored run as a table."""
-    rows = session.scalars(select(m.FlagRow).where(m.FlagRow.review_run_id == run_id)).all()
-    return pd.DataFrame(
-        [
-            {
-                "flag_id": r.id,
-                "kind": r.kind,
-                "severity": r.severity,
-                "reason": r.reason,
-                "room": r.room,
-                "exam_type": r.exam_type,
-                "event_id": r.event_id,
-                "study_uid": r.study_instance_uid,
-                "status": r.status,
-            }
-            for r in rows
-        ]
-    )
-
-
-def store_level_sets(
-    session: Session, sets: list[Any], *, actor: str = "cli"
-) -> list[m.ReferenceLevelSetRow]:
-    """Add reference-level set versions (all or none; the caller owns the transaction).
-
-    Raises
-    ------
-    ReviewError
-        A set version that is stored already, or an exam type the catalogue lacks.
-    """
-    from beamaudit.api.review import ReviewError
-
-    catalogue, _ = ensure_catalogue(session)
-    known = {t.exam_type for t in catalogue.types}
-    rows = []
-    for s in sets:
-        unknown = sorted({e.exam_type for e in s.entries} - known)
-        if unknown:
-            raise ReviewError(
-                f"set {s.name!r} {s.version}: exam types not in the catalogue: {', '.join(unknown)}"
-            )
-        clash = session.scalar(
-            select(m.ReferenceLevelSetRow.id).where(
-                m.ReferenceLevelSetRow.name == s.name, m.ReferenceLevelSetRow.version == s.version
-            )
-        )
-        if clash is not None:
-            raise ReviewError(
-                f"set {s.name!r} version {s.version!r} is stored already (id {clash})"
-            )
-        row = m.ReferenceLevelSetRow(
-            name=s.name, kind=s.kind, version=s.version,
-            effective_from=s.effective_from, source=s.source or None,
-        )  # fmt: skip
-        session.add(row)
-        session.flush()
-        session.add_all(level_rows(row.id, s.entries))
-        record_change(
-            session, actor=actor, action="import", entity="reference_level_set", entity_id=row.id,
-            after={"name": s.name, "version": s.version, "kind": s.kind, "levels": len(s.entries)},
-        )  # fmt: skip
-        rows.append(row)
-    session.flush()
-    return rows

@@ -14,17 +14,12 @@ from fastapi.responses import JSONResponse, Response
 from sqlalchemy.engine import Engine
 from sqlalchemy.exc import OperationalError
 
-from beamaudit import __version__
+from beamaudit import CAUTION, __version__
 from beamaudit.api.settings import Settings
 from beamaudit.api.store import StoreError, check_connection, make_engine, make_session_factory
 
 __all__ = ["CAUTION", "create_app"]
 
-CAUTION = (
-    "Every dose figure here is an estimate, for quality assurance and optimisation. "
-    "Clinical decisions about a patient need a qualified medical physicist; local "
-    "regulations and licensed practice take precedence."
-)
 
 API_PREFIX = "/api/v1"
 

@@ -23,7 +23,6 @@ from urllib.parse import urlsplit
 from fastapi import Depends, HTTPException, Request, status
 from sqlalchemy.orm import Session
 
-from beamaudit.api.settings import Settings
 from beamaudit.api.store.auth import Principal, Role, authenticate, browser_identity, has_role
 
 __all__ = [
@@ -33,7 +32,6 @@ __all__ = [
     "DbSession",
     "Identity",
     "get_session",
-    "get_settings",
     "identify",
     "require_role",
 ]
@@ -50,11 +48,6 @@ def get_session(request: Request) -> Iterator[Session]:
         yield session
     finally:
         session.close()
-
-
-def get_settings(request: Request) -> Settings:
-    settings: Settings = request.app.state.settings
-    return settings
 
 
 DbSession = Annotated[Session, Depends(get_session)]

@@ -265,10 +265,11 @@ def why_steps(trail_steps: list[dict[str, Any]]) -> list[dict[str, Any]]:
     return steps
 
 
-def _spectrum(session: Session, event: m.ExposureEventRow) -> dict[str, Any] | None:
+def _spectrum(event: m.ExposureEventRow) -> dict[str, Any] | None:
+    """The beam of the event's stored recipe (never the room's current calibration)."""
     from beamaudit.api.intake.reconstruct import beam_for_event
 
-    beam = beam_for_event(session, event)
+    beam = beam_for_event(event)
     if beam is None:
         return None
     energies = np.asarray(beam.energies_kev, dtype=float)
@@ -355,7 +356,7 @@ def exam_record(
             "technique": technique,
             "dose": dose,
             "why": _why(trail),
-            "spectrum": _spectrum(session, e) if e.recon_status == "ok" else None,
+            "spectrum": _spectrum(e) if e.recon_status == "ok" else None,
         })  # fmt: skip
     weight = study.patient_weight_kg
     records = list(record_run_ids(session).values())

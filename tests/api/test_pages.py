@@ -60,14 +60,14 @@ def _store_exams(store, n_per_month: int = 25) -> str:
         ids = s.scalars(select(m.ExposureEventRow.id)).all()
     process_new_events(store.session_factory, ids)
     from beamaudit.api.review import LevelEntry, ReferenceLevelSet
-    from beamaudit.api.runs.reviews import store_level_sets
+    from beamaudit.api.store.level_sets import add_level_sets
 
     local = ReferenceLevelSet(
         "Fernmoor local DRLs (invented)", "local", "2026-1", datetime(2026, 1, 1).date(), "",
         (LevelEntry("chest_pa", "dap_gy_cm2", 0.05, "Gy.cm2"),),
     )  # fmt: skip
     with store.session_factory.begin() as s:
-        store_level_sets(s, [local], actor="test")
+        add_level_sets(s, [local], actor="test")
     for month in (9, 10):
         run_review(store.session_factory, ReviewParameters(period=Period.month(2026, month)))
     return first_uid

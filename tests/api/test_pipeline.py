@@ -6,7 +6,7 @@ from datetime import datetime
 from pathlib import Path
 
 import pytest
-from sqlalchemy import func, select
+from sqlalchemy import func, select, update
 
 from beamaudit.api.intake.pipeline import (
     Pipeline,
@@ -173,11 +173,18 @@ def test_same_uid_different_exposures_without_hash_is_a_conflict(store) -> None:
 
 
 def _defined_fingerprint(result: ParseResult) -> str:
-    """The fingerprint as documented: the JSON of ``as_dict()`` without provenance and notes."""
+    """The fingerprint as documented: the JSON of ``as_dict()`` without provenance and notes,
+    and without the fields added since the first stored objects while they are None."""
     import json
 
+    from beamaudit.api.intake.pipeline import _FINGERPRINT_ALWAYS
+
     payload = [
-        {k: v for k, v in e.as_dict().items() if k not in {"provenance", "notes"}}
+        {
+            k: v
+            for k, v in e.as_dict().items()
+            if k not in {"provenance", "notes"} and (k in _FINGERPRINT_ALWAYS or v is not None)
+        }
         for e in result.events
     ]
     payload.append({"accumulated": [repr(a) for a in result.accumulated]})
@@ -301,3 +308,75 @@ def test_prepare_leaves_clean_text_alone_and_fingerprints_it() -> None:
     expected = result_fingerprint(result)
     assert prepare(result) == expected
     assert result.events[0].protocol_name == "Chest\tPA\r\n \\b \\u0001 Ünïcode"
+
+
+def _pinned_result(sop: str = "1.2.826.0.1.3680043.10.1234.1") -> ParseResult:
+    """The object whose fingerprints older versions wrote (values invented)."""
+    study = "1.2.826.0.1.3680043.10.1234"
+    src = SourceObject(
+        sop_instance_uid=sop, sop_class_uid="1.2.840.10008.5.1.4.1.1.1.1", kind="image_header",
+        modality="DX", study_instance_uid=study,
+    )  # fmt: skip
+    event = ExposureEvent(
+        event_key=f"{sop}#0", sop_instance_uid=sop, sop_class_uid=src.sop_class_uid,
+        source_kind="image_header", event_index=0, modality="DX", study_instance_uid=study,
+        station_name="RAD1", manufacturer="Invented Medical", model_name="Model R",
+        study_datetime=datetime(2026, 11, 3, 9, 30), kvp_kv=81.0, exposure_mas=10.0,
+        filters=(FilterLayer("aluminium", 2.5),), dap_gy_cm2=0.12,
+        provenance={"kvp_kv": "(0018,0060) KVP"},
+    )  # fmt: skip
+    return ParseResult(source=src, events=[event])
+
+
+#: ``result_fingerprint`` of :func:`_pinned_result` as the first version that stored fingerprints
+#: computed it (commit 8de1067: the JSON of every field of ExposureEvent as it then was)
+FIRST_VERSION_FINGERPRINT = "1ee0ccc36f49934a5d3671592943c49a9d4151c4da1758a09dac3502f9d57e10"
+#: and as the versions just before fields added later were left out while None (every field of
+#: this version, null included)
+EVERY_FIELD_FINGERPRINT = "944408fdd2fc0a3a62731aeb5eef35bcc97313a87a2c3089a59c3e7f27e76f9a"
+
+
+def test_a_field_added_since_the_first_stored_objects_leaves_the_fingerprint_alone() -> None:
+    result = _pinned_result()
+    assert result_fingerprint(result) == FIRST_VERSION_FINGERPRINT
+    result.events[0].pulse_width_ms = 5.0  # a later field with a value changes it
+    assert result_fingerprint(result) != FIRST_VERSION_FINGERPRINT
+
+
+@pytest.mark.parametrize("stored_as", [FIRST_VERSION_FINGERPRINT, EVERY_FIELD_FINGERPRINT])
+def test_an_object_stored_by_an_older_version_sent_again_is_a_duplicate(store, stored_as) -> None:
+    pipe = Pipeline(store.session_factory)
+    assert pipe.store(_pinned_result(), received_via="scan").status == "stored"
+    with store.session_factory.begin() as s:  # as the older version stored it
+        s.execute(update(m.SourceObjectRow).values(content_sha256=stored_as))
+    assert pipe.store(_pinned_result(), received_via="listen").status == "duplicate"
+    changed = _pinned_result()
+    changed.events[0].kvp_kv = 90.0
+    assert pipe.store(changed, received_via="listen").status == "conflict"
+
+
+@pytest.mark.parametrize("report_first", [False, True])
+def test_a_header_with_a_reports_irradiation_event_uid_is_superseded_across_studies(
+    store, report_first
+) -> None:
+    # ingest/linking.py rule 2a: a report filed in a study of its own still carries the
+    # Irradiation Event UID (113769, DCM) the image header has in (0008,3010)
+    uid = "1.2.826.0.1.3680043.10.1234.77"
+    header = _result("1.2.3.11.1", study="1.2.3.11")
+    report = _result("1.2.3.11.9", kind="rdsr", study="1.2.3.12")
+    for event in (header.events[0], report.events[0]):
+        event.irradiation_event_uid = event.event_key = uid
+    other = _result("1.2.3.11.2", study="1.2.3.11")  # same study, no UID: stands on its own
+    pipe = Pipeline(store.session_factory)
+    for r in [report, header, other] if report_first else [header, other, report]:
+        assert pipe.store(r, received_via="scan").status == "stored"
+    with store.session_factory() as s:
+        superseded = dict(
+            s.execute(
+                select(m.SourceObjectRow.sop_instance_uid, m.ExposureEventRow.superseded).join(
+                    m.SourceObjectRow,
+                    m.SourceObjectRow.id == m.ExposureEventRow.source_object_id,
+                )
+            ).all()
+        )
+    assert superseded == {"1.2.3.11.1": True, "1.2.3.11.2": False, "1.2.3.11.9": False}

@@ -310,3 +310,29 @@ def test_trail_says_where_b_comes_from(store) -> None:
         "weighted by this beam's incident air-kerma spectrum" in trail["backscatter_factor_source"]
     )
     assert trail["backscatter_factor_standard_uncertainty"] > 0
+
+
+def _recalibrate(store, event_id: int, **values) -> None:
+    """The event's room gets a new active calibration (the older ones retired)."""
+    with store.session_factory.begin() as s:
+        room_id = s.get(m.ExposureEventRow, event_id).room_id
+        for cal in s.scalars(select(m.RoomCalibrationRow)):
+            cal.active = False
+        s.add(m.RoomCalibrationRow(room_id=room_id, residuals=[], active=True, **values))
+
+
+def test_the_exam_page_draws_the_beam_of_the_recipe_after_a_recalibration(store) -> None:
+    # the page's spectrum and HVL come from the stored recipe, as the why trail beside them does
+    from beamaudit.api.web.page_data import exam_record
+
+    ids = _store(store, [_event("1.2.3.103", 0)], "1.2.3.103")
+    _recalibrate(store, ids[0], output_scale=1.3, inherent_filtration_mm_al=2.5, n_measurements=4)
+    reconstruct_events(store.session_factory, ids)
+    # recalibrated afterwards, with more filtration: a harder beam now
+    _recalibrate(store, ids[0], output_scale=0.5, inherent_filtration_mm_al=4.0, n_measurements=2)
+    with store.session_factory() as s:
+        row = s.get(m.ExposureEventRow, ids[0])
+        record = exam_record(s, STUDY)
+    assert record is not None
+    (exposure,) = record["exposures"]
+    assert math.isclose(exposure["spectrum"]["hvl1_mm_al"], row.recon_hvl1_mm_al, rel_tol=1e-9)

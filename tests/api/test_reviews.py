@@ -129,6 +129,7 @@ def _plain_table(session: Any) -> pd.DataFrame:
     rooms = {r.id: r for r in session.scalars(select(m.Room))}
     sites = {s.id: s.name for s in session.scalars(select(m.Site))}
     devices = {d.id: d for d in session.scalars(select(m.Device))}
+    studies = {s.id: s.study_instance_uid for s in session.scalars(select(m.Study))}
     t0, t1 = datetime(2026, 3, 1, tzinfo=UTC), datetime(2026, 4, 1, tzinfo=UTC)
     out = []
     for e in sorted(events, key=lambda e: e.id):
@@ -158,7 +159,7 @@ def _plain_table(session: Any) -> pd.DataFrame:
         out.append(
             {
                 "event_id": e.id,
-                "study_uid": str(e.study_id) if e.study_id is not None else f"(event {e.id})",
+                "study_uid": studies[e.study_id] if e.study_id is not None else f"(event {e.id})",
                 "event_datetime": pd.Timestamp(when),
                 "site": sites[room.site_id] if room else "(no site)",
                 "room": room.name if room else "(no room)",
@@ -348,7 +349,7 @@ def test_levels_for_a_band_and_an_indication_are_kept_with_them(store) -> None:
     # a paediatric band's level stored without its band would apply to adults: the store keeps
     # the band and the indication, and reads them back as they were
     from beamaudit.api.review.levels import LevelEntry, ReferenceLevelSet
-    from beamaudit.api.runs.reviews import store_level_sets
+    from beamaudit.api.store.level_sets import add_level_sets
     from beamaudit.api.store.review_rows import level_sets_from_store
 
     entries = (
@@ -360,7 +361,7 @@ def test_levels_for_a_band_and_an_indication_are_kept_with_them(store) -> None:
         "Paed (invented)", "local", "1", date(2026, 1, 1), "tests", entries
     )
     with store.session_factory.begin() as session:
-        store_level_sets(session, [invented])
+        add_level_sets(session, [invented])
     with store.session_factory() as session:
         ((_, back),) = level_sets_from_store(session)
     assert sorted(e.key for e in back.entries) == sorted(e.key for e in entries)
@@ -449,3 +450,16 @@ def test_the_review_read_never_loads_a_second_sqlite_library(tmp_path) -> None:
     assert done.returncode == 0, done.stderr
     n, loaded = done.stdout.split()
     assert int(n) > 0 and loaded == "False"
+
+
+def test_the_distribution_page_names_studies_by_their_study_instance_uid(store) -> None:
+    # the events carry the study's store id; the page links to /exams/<Study Instance UID>
+    from beamaudit.api.web.page_data import distribution_events
+
+    _fill(store.session_factory)
+    with store.session_factory() as session:
+        frame = distribution_events(session, start=START, end=END, window=(50.0, 90.0))
+        uids = set(session.scalars(select(m.Study.study_instance_uid)))
+    assert len(frame)
+    assert all(u in uids or u.startswith("(event ") for u in frame["study_uid"])
+    assert any(u in uids for u in frame["study_uid"])

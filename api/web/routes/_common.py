@@ -23,7 +23,7 @@ from sqlalchemy.exc import IntegrityError
 from sqlalchemy.orm import InstrumentedAttribute, Session, sessionmaker
 
 from beamaudit.api.store.auth import Principal, record_change
-from beamaudit.api.web.schemas.base import EARLIEST_DATE, LATEST_DATE, MAX_ID, ErrorBody, clean_text
+from beamaudit.api.web.schemas.base import EARLIEST_DATE, LATEST_DATE, MAX_ID, ErrorBody
 
 __all__ = [
     "AUTH_RESPONSES",
@@ -354,13 +354,3 @@ def period_params(
         _day_start(date_from) if date_from else None,
         _day_start(date_to) + timedelta(days=1) if date_to else None,
     )
-
-
-def text_query(value: str | None, name: str) -> str | None:
-    """A free-text query value, refused (422) if neither store can compare it."""
-    if value is None:
-        return None
-    try:
-        return clean_text(value)
-    except ValueError as exc:
-        invalid(("query", name), str(exc))

@@ -8,7 +8,7 @@ from __future__ import annotations
 
 import io
 from datetime import UTC, datetime
-from typing import Annotated, Any
+from typing import Annotated, Any, cast
 
 from fastapi import APIRouter, Depends, HTTPException, Path, Query, Request, status
 from fastapi.concurrency import run_in_threadpool
@@ -20,6 +20,7 @@ from beamaudit import __version__
 from beamaudit.api.review.errors import CsvFormatError, ReviewError
 from beamaudit.api.review.examtypes import (
     ExamCatalogue,
+    ExamType,
     MappingRules,
     read_catalogue_csv,
     read_rules_csv,
@@ -29,6 +30,7 @@ from beamaudit.api.review.examtypes import (
 from beamaudit.api.store import models as m
 from beamaudit.api.store.review_rows import (
     catalogue_from_store,
+    ensure_catalogue,
     exam_type_from_row,
     exam_type_row_values,
     rules_from_store,
@@ -70,8 +72,6 @@ def catalogue_session(session: DbSession, who: Physicist) -> Session:
     (:func:`beamaudit.api.store.review_rows.ensure_catalogue`); the catalogue routes do the same,
     so that what they show is what a review would use.
     """
-    from beamaudit.api.store.review_rows import ensure_catalogue
-
     ensure_catalogue(session, actor=who.actor)
     session.commit()
     return session
@@ -105,19 +105,13 @@ def _exam_type_read(row: m.ExamTypeRow) -> ExamTypeRead:
     )
 
 
-def _exam_type_values(body: ExamTypeCreate) -> dict[str, Any]:
-    return {
-        "code": body.exam_type,
-        "name": body.name,
-        "modality": body.modality_group,
-        "level_applies_per": body.level_applies_per,
-        "quantities": list(body.quantities),
-        "details": {
-            "dicom_modalities": list(body.dicom_modalities),
-            "aggregation": dict(body.aggregation),
-            "description": body.description,
-        },
-    }
+def _exam_type_values(body: ExamTypeCreate, *, paediatric_bands: str = "") -> dict[str, Any]:
+    """The row's values, through the store's one mapping (a change keeps the row's banding)."""
+    fields = body.model_dump()
+    for name in ("dicom_modalities", "quantities"):
+        fields[name] = tuple(fields[name])
+    fields["aggregation"] = tuple(fields["aggregation"].items())
+    return exam_type_row_values(ExamType(**fields, paediatric_bands=cast(Any, paediatric_bands)))
 
 
 def _exam_type_audit(row: m.ExamTypeRow) -> dict[str, Any]:
@@ -309,7 +303,8 @@ def update_exam_type(
     row = get_or_404(session, T, exam_type, "exam type")
     before = _exam_type_audit(row)
     merged = revalidate(ExamTypeCreate, {**before, **body.model_dump(exclude_unset=True)})
-    for name, value in _exam_type_values(merged).items():
+    banding = exam_type_from_row(row).paediatric_bands
+    for name, value in _exam_type_values(merged, paediatric_bands=banding).items():
         setattr(row, name, value)
     after = _exam_type_audit(row)
     if after != before:

@@ -12,10 +12,10 @@ from typing import Annotated, Any
 from fastapi import APIRouter, Depends, Query
 from sqlalchemy import ColumnElement, Select, and_, exists, func, or_, select
 
+from beamaudit import CAUTION
 from beamaudit.api.intake.mammography import is_mammography
 from beamaudit.api.intake.reconstruct import trail_for_event
 from beamaudit.api.store import models as m
-from beamaudit.api.web.app import CAUTION
 from beamaudit.api.web.deps import DbSession, Physicist
 from beamaudit.api.web.routes._common import (
     AUTH_RESPONSES,

@@ -1,7 +1,8 @@
 """Reference-level sets: create, read, update, retire, and CSV import and export.
 
 A set version is identified by its name and version; versions of one name must agree on their
-kind and take effect on different dates (the review core's :func:`check_level_sets`). A retired
+kind and take effect on different dates (checked by the store's one writer of level sets,
+:mod:`beamaudit.api.store.level_sets`, which the command line uses too). A retired
 set is kept (past reviews name it) but no longer applies and can no longer change.
 """
 
@@ -21,18 +22,22 @@ from beamaudit.api.review.errors import CsvFormatError, ReviewError
 from beamaudit.api.review.levels import (
     LevelKind,
     ReferenceLevelSet,
-    check_level_sets,
     read_levels_csv,
     write_levels_csv,
 )
 from beamaudit.api.store import models as m
 from beamaudit.api.store.auth import Principal
 from beamaudit.api.store.base import utcnow
+from beamaudit.api.store.level_sets import (
+    LevelSetConflict,
+    add_level_sets,
+    check_stored_versions,
+    level_set_view,
+)
 from beamaudit.api.store.review_rows import (
     catalogue_from_store,
     level_set_from_rows,
     level_sets_from_store,
-    level_values,
 )
 from beamaudit.api.web.deps import Physicist
 from beamaudit.api.web.routes._common import (
@@ -98,7 +103,7 @@ def _read(session: Session, row: m.ReferenceLevelSetRow) -> LevelSetRead:
 
 
 def _audit_view(session: Session, row: m.ReferenceLevelSetRow) -> dict[str, Any]:
-    return _read(session, row).model_dump(mode="json", exclude={"id", "created_at"})
+    return level_set_view(session, row)
 
 
 def _check_exam_types(session: Session, levels: list[LevelCreate]) -> None:
@@ -109,19 +114,6 @@ def _check_exam_types(session: Session, levels: list[LevelCreate]) -> None:
                 ("body", "levels", i, "exam_type"),
                 f"exam type {level.exam_type!r} is not in the catalogue",
             )
-
-
-def _check_versions(session: Session, candidate: ReferenceLevelSet, exclude_id: int | None) -> None:
-    """The candidate against the stored versions of its name (kind, version, date)."""
-    others = [
-        s
-        for row, s in level_sets_from_store(session, include_retired=False)
-        if row.name == candidate.name and row.id != exclude_id
-    ]
-    try:
-        check_level_sets([*others, candidate])
-    except ReviewError as exc:
-        raise HTTPException(status.HTTP_409_CONFLICT, detail=str(exc)) from None
 
 
 def _candidate(body: LevelSetCreate) -> ReferenceLevelSet:
@@ -148,29 +140,16 @@ def _candidate(body: LevelSetCreate) -> ReferenceLevelSet:
     )
 
 
-def _store_set(session: Session, who: Principal, body: LevelSetCreate) -> m.ReferenceLevelSetRow:
-    _check_exam_types(session, body.levels)
-    _check_versions(session, _candidate(body), None)
-    row = S(
-        name=body.name,
-        kind=body.kind,
-        version=body.version,
-        effective_from=body.effective_from,
-        source=body.source,
-    )
-    session.add(row)
-    flush(session, f"level set {body.name!r} has a version {body.version!r} already")
-    session.add_all(L(set_id=row.id, **x.model_dump()) for x in body.levels)
-    session.flush()
-    audit(
-        session,
-        who,
-        action="create",
-        entity="reference_level_set",
-        entity_id=row.id,
-        after=_audit_view(session, row),
-    )
-    return row
+def _add(session: Session, who: Principal, sets: list[ReferenceLevelSet]) -> list[S]:
+    """The store's one writer of level sets; a clash answers 409, anything else 422."""
+    try:
+        return add_level_sets(session, sets, actor=who.actor)
+    except LevelSetConflict as exc:
+        session.rollback()
+        raise HTTPException(status.HTTP_409_CONFLICT, detail=str(exc)) from None
+    except ReviewError as exc:
+        session.rollback()
+        invalid(("body",), str(exc))
 
 
 @router.get("/level-sets", operation_id="list_level_sets", response_model=list[LevelSetRead])
@@ -222,17 +201,7 @@ def _import(session: Session, who: Principal, data: bytes) -> list[LevelSetRead]
         sets = read_levels_csv(io.BytesIO(data), catalogue_from_store(session))
     except CsvFormatError as exc:
         csv_invalid(exc)
-    rows = []
-    for s in sets:
-        body = LevelSetCreate(
-            name=s.name,
-            kind=s.kind,
-            version=s.version,
-            effective_from=s.effective_from,
-            source=s.source or None,
-            levels=[LevelCreate(**level_values(e)) for e in s.entries],
-        )
-        rows.append(_store_set(session, who, body))
+    rows = _add(session, who, sets)
     session.commit()
     return [_read(session, r) for r in rows]
 
@@ -289,7 +258,8 @@ def create_level_set(
     body: LevelSetCreate, session: CatalogueSession, who: Physicist
 ) -> LevelSetRead:
     """Add a set version; its exam types must be in the catalogue."""
-    row = _store_set(session, who, body)
+    _check_exam_types(session, body.levels)
+    (row,) = _add(session, who, [_candidate(body)])
     session.commit()
     return _read(session, row)
 
@@ -332,7 +302,10 @@ def update_level_set(
         levels=levels,
     )
     _check_exam_types(session, candidate.levels)
-    _check_versions(session, _candidate(candidate), row.id)
+    try:
+        check_stored_versions(session, [_candidate(candidate)], replacing=row.id)
+    except LevelSetConflict as exc:
+        raise HTTPException(status.HTTP_409_CONFLICT, detail=str(exc)) from None
     for name, value in changes.items():
         setattr(row, name, value)
     if body.levels is not None:

@@ -25,9 +25,9 @@ from fastapi import APIRouter, BackgroundTasks, Depends, HTTPException, Query, R
 from fastapi.responses import Response
 from sqlalchemy import func, select
 
+from beamaudit import CAUTION
 from beamaudit.api.store import models as m
 from beamaudit.api.store.auth import Principal, has_role
-from beamaudit.api.web.app import CAUTION
 from beamaudit.api.web.deps import Admin, DbSession, Physicist, Viewer
 from beamaudit.api.web.routes._common import (
     AUTH_RESPONSES,

@@ -7,7 +7,6 @@ events is one line saying so, exit 1; neither stores a run. Events are invented.
 from __future__ import annotations
 
 from datetime import datetime
-from urllib.parse import quote
 
 import pytest
 from api_support import parse_result, seed
@@ -18,36 +17,18 @@ from beamaudit.api.store import models as m
 
 
 @pytest.fixture
-def cli_store(store, monkeypatch, tmp_path):
-    """The store, reachable by URL from the command line; ten PA chests in two rooms.
-
-    The commands run in this process: the engines they make are disposed of afterwards (a
-    command's process would close its connections by ending).
-    """
-    import beamaudit.api.store as store_module
-
-    made = []
-    make_engine = store_module.make_engine
-    monkeypatch.setattr(
-        store_module, "make_engine", lambda *a, **k: made.append(make_engine(*a, **k)) or made[-1]
-    )
-    url = store.url
-    if store.backend == "postgresql":  # the test's own schema, as the store's engine uses it
-        url += "?options=" + quote(str(store.connect_args["options"]))
-    monkeypatch.setenv("BEAMAUDIT_DATABASE_URL", url)
-    monkeypatch.setenv("BEAMAUDIT_SECRET_KEY_PATH", str(tmp_path / "secret.key"))
-    monkeypatch.delenv("BEAMAUDIT_CONFIG", raising=False)
+def cli_store(cli_url):
+    """The store, reachable by URL from the command line (``conftest.py``); ten PA chests in two
+    rooms."""
     seed(
-        store,
+        cli_url,
         [
             parse_result(f"1.2.9.{i}", study=f"1.2.9.{i}00", station=("RAD1", "RAD2")[i % 2],
                          when=datetime(2026, 11, 2 + i, 10), body_part="CHEST", view_position="PA")
             for i in range(10)
         ],
     )  # fmt: skip
-    yield store
-    for engine in made:
-        engine.dispose()
+    return cli_url
 
 
 def _runs(store) -> int:

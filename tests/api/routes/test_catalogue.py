@@ -215,3 +215,15 @@ def test_rules_csv_naming_unknown_exam_types_is_refused(api) -> None:
 def test_viewer_cannot_read_or_edit_the_catalogue(api) -> None:
     assert api.get("/exam-types", as_="viewer").status_code == 403
     assert api.post("/exam-types", json=CHEST_PA, as_="viewer").status_code == 403
+
+
+def test_changing_an_exam_type_keeps_its_paediatric_bands(api, catalogue) -> None:
+    # the shipped catalogue bands chest PA by weight (ICRP 135; EC RP 185); the REST change and the
+    # CSV import write through one mapping, so renaming it must not stop children being banded
+    from beamaudit.api.store.review_rows import catalogue_from_store
+
+    assert api.patch("/exam-types/chest_pa", json={"name": "Chest PA (renamed)"}).status_code == 200
+    with api.store.session_factory() as session:
+        chest = catalogue_from_store(session).get("chest_pa")
+    assert chest is not None
+    assert (chest.name, chest.paediatric_bands) == ("Chest PA (renamed)", "weight")

@@ -200,3 +200,22 @@ def test_a_level_for_an_unknown_band_is_422(api, catalogue) -> None:
     assert "is not a band" in response.text
     twice = LOCAL | {"levels": [level, level | {"clinical_indication": "acute_stroke"}]}
     assert api.post("/level-sets", json=twice).status_code == 201
+
+
+def test_a_csv_version_clashing_with_a_stored_one_is_409_as_on_the_command_line(
+    api, catalogue
+) -> None:
+    # the same file `beamaudit levels import` refuses (tests/api/cli/test_levels.py)
+    head = "set_name,kind,version,effective_from,set_source,exam_type,quantity,value,unit,source\n"
+    local = head + "X (invented),local,v1,2025-01-01,tests,chest_pa,dap_gy_cm2,0.2,Gy.cm2,\n"
+    national = (
+        head + "X (invented),national,v2,2025-01-01,tests,chest_pa,dap_gy_cm2,0.2,Gy.cm2,t1\n"
+    )
+    assert api.post("/level-sets.csv", content=local.encode(), headers=CSV).status_code == 201
+    response = api.post("/level-sets.csv", content=national.encode(), headers=CSV)
+    assert response.status_code == 409
+    assert "both local and national" in response.json()["detail"]
+    both = local + national.split("\n", 1)[1]
+    response = api.post("/level-sets.csv", content=both.encode(), headers=CSV)
+    assert response.status_code == 422 and "both local and national" in response.text
+    assert [s["version"] for s in api.get("/level-sets").json()] == ["v1"]

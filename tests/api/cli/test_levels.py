@@ -1,0 +1,86 @@
+"""``beamaudit levels import`` and ``export``: the store's one writer of level sets, as REST uses.
+
+A file whose versions clash with the stored versions of their set name (another kind, the same
+effective date) is refused with one line, exit 2, nothing stored, so that every later review can
+still read the sets; a file ``levels export`` wrote is read back by ``levels import``. Levels are
+invented.
+"""
+
+from __future__ import annotations
+
+from sqlalchemy import select
+
+from beamaudit.api.cli import main
+from beamaudit.api.store import models as m
+
+HEAD = "set_name,kind,version,effective_from,set_source,exam_type,quantity,value,unit,source,note\n"
+LOCAL = "X (invented),local,v1,2025-01-01,tests,chest_pa,dap_gy_cm2,0.2,Gy.cm2,,\n"
+NATIONAL_SAME_DAY = (
+    "X (invented),national,v2,2025-01-01,tests,chest_pa,dap_gy_cm2,0.2,Gy.cm2,invented table 1,\n"
+)
+
+
+def _sets(store) -> list[str]:
+    """The stored set versions, ``name version``."""
+    with store.session_factory() as session:
+        rows = session.execute(select(m.ReferenceLevelSetRow.name, m.ReferenceLevelSetRow.version))
+        return sorted(f"{name} {version}" for name, version in rows)
+
+
+def _one_line(err: str) -> str:
+    """The refusal: one line, no traceback."""
+    (line,) = err.strip().splitlines()
+    return line
+
+
+def test_a_version_clashing_with_a_stored_one_is_refused_in_one_line(
+    cli_url, tmp_path, capsys
+) -> None:
+    first, second = tmp_path / "first.csv", tmp_path / "second.csv"
+    first.write_text(HEAD + LOCAL, encoding="utf-8")
+    second.write_text(HEAD + NATIONAL_SAME_DAY, encoding="utf-8")
+    assert main(["levels", "import", str(first)]) == 0
+    capsys.readouterr()
+    assert main(["levels", "import", str(second)]) == 2
+    line = _one_line(capsys.readouterr().err)
+    assert "X (invented)" in line and "local" in line and "national" in line
+    assert "Traceback" not in line
+    assert _sets(cli_url) == ["X (invented) v1"]
+
+
+def test_a_file_naming_one_set_both_local_and_national_is_refused(
+    cli_url, tmp_path, capsys
+) -> None:
+    both = tmp_path / "both.csv"
+    both.write_text(HEAD + LOCAL + NATIONAL_SAME_DAY, encoding="utf-8")
+    assert main(["levels", "import", str(both)]) == 2
+    assert "both local and national" in _one_line(capsys.readouterr().err)
+    assert _sets(cli_url) == []
+
+
+def test_what_levels_export_writes_levels_import_reads_again(cli_url, tmp_path, capsys) -> None:
+    from beamaudit.api.review.levels import read_levels_csv
+
+    shipped = tmp_path / "national.csv"
+    from importlib import resources
+
+    shipped.write_bytes(
+        resources.files("beamaudit.api").joinpath("data", "national_levels.csv").read_bytes()
+    )
+    assert main(["levels", "import", str(shipped)]) == 0
+    exported = tmp_path / "exported.csv"
+    assert main(["levels", "export", "--output", str(exported)]) == 0
+    before = read_levels_csv(exported)
+    with cli_url.session_factory.begin() as session:  # a fresh store of the same catalogue
+        session.query(m.ReferenceLevelRow).delete()
+        session.query(m.ReferenceLevelSetRow).delete()
+    capsys.readouterr()
+    assert main(["levels", "import", str(exported)]) == 0, capsys.readouterr().err
+    again = tmp_path / "again.csv"
+    assert main(["levels", "export", "--output", str(again)]) == 0
+    assert read_levels_csv(again) == before
+    # importing the same versions twice is one line naming the stored one, nothing added
+    n = _sets(cli_url)
+    assert main(["levels", "import", str(exported)]) == 2
+    assert "stored already" in _one_line(capsys.readouterr().err)
+    assert _sets(cli_url) == n
