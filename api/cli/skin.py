@@ -20,7 +20,7 @@ __all__ = ["register", "skin_summary"]
 
 def skin_summary(skin: Any, study: Any) -> dict[str, Any]:
     """A JSON-ready summary of one stored skin-dose row."""
-    from beamaudit.dashboards.wording import CAUTION
+    from beamaudit import CAUTION
 
     record = skin.record or {}
     return {

@@ -23,6 +23,7 @@ from urllib.parse import urlsplit
 from fastapi import Depends, HTTPException, Request, status
 from sqlalchemy.orm import Session
 
+from beamaudit.api.settings import Settings
 from beamaudit.api.store.auth import Principal, Role, authenticate, browser_identity, has_role
 
 __all__ = [
@@ -32,6 +33,7 @@ __all__ = [
     "DbSession",
     "Identity",
     "get_session",
+    "get_settings",
     "identify",
     "require_role",
 ]
@@ -51,6 +53,12 @@ def get_session(request: Request) -> Iterator[Session]:
 
 
 DbSession = Annotated[Session, Depends(get_session)]
+
+
+def get_settings(request: Request) -> Settings:
+    """The application's settings (a dependency)."""
+    settings: Settings = request.app.state.settings
+    return settings
 
 
 def bearer_token(request: Request) -> str | None:

@@ -14,6 +14,7 @@ from typing import Annotated
 
 from fastapi import APIRouter, HTTPException, Query, status
 
+from beamaudit import CAUTION
 from beamaudit.api.runs.local_levels import (
     AdoptionError,
     ProposalKey,
@@ -21,7 +22,6 @@ from beamaudit.api.runs.local_levels import (
     proposal_rows,
     record_run,
 )
-from beamaudit.api.web.app import CAUTION
 from beamaudit.api.web.deps import DbSession, Physicist, Viewer
 from beamaudit.api.web.routes._common import AUTH_RESPONSES, CONFLICT, NOT_FOUND, invalid
 from beamaudit.api.web.schemas.base import EARLIEST_DATE, LATEST_DATE, MAX_ID

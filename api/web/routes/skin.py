@@ -10,11 +10,11 @@ from typing import Annotated
 from fastapi import APIRouter, Depends
 from sqlalchemy import select
 
+from beamaudit import CAUTION
 from beamaudit.api.settings import Settings
 from beamaudit.api.store import models as m
 from beamaudit.api.store.auth import record_change
 from beamaudit.api.store.skin_doses import cumulative_skin_doses, followup_rows, set_followup
-from beamaudit.api.web.app import CAUTION
 from beamaudit.api.web.deps import DbSession, Physicist, get_settings
 from beamaudit.api.web.routes._common import (
     AUTH_RESPONSES,
