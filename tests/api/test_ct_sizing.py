@@ -92,6 +92,22 @@ def test_a_scanned_series_gets_its_dw_and_ssde_reading_only_the_chosen_images(
         assert event.size_ssde_mgy == pytest.approx(10.0 * f, rel=1e-6)
         assert event.size_ssde_report == "AAPM Report 204 (2011)"
         assert event.size_trail is not None and event.size_trail["steps"]
+    # the REST detail and the exam page show Dw and SSDE with the method and the report
+    from beamaudit.api.web.page_data import exam_record
+    from beamaudit.api.web.routes.events import dose_breakdown, event_size
+
+    with store.session_factory() as s:
+        study_uid = s.scalar(select(m.Study.study_instance_uid))
+        record = exam_record(s, study_uid)
+    assert record is not None
+    dose = record["exposures"][0]["dose"]
+    assert dose["water_equivalent_diameter_cm"]["unit"] == "cm"
+    assert "axial images: 9 used" in dose["water_equivalent_diameter_cm"]["source"]
+    assert dose["ssde_mgy"]["source"].startswith("AAPM Report 204 (2011)")
+    size = event_size(events[0])
+    assert size.method == "axial_images" and size.ssde_report == "AAPM Report 204 (2011)"
+    (ssde,) = [c for c in dose_breakdown(events[0]) if c.quantity == "ssde_mgy"]
+    assert ssde.reconstructed == events[0].size_ssde_mgy and ssde.reported is None
 
 
 def test_an_unreadable_chosen_image_is_an_ingest_error_and_the_events_stay(

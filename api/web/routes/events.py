@@ -38,6 +38,7 @@ from beamaudit.api.web.schemas.events import (
     EventPatient,
     EventReconstructed,
     EventReported,
+    EventSize,
     EventSummary,
     EventTechnique,
     ExamDetail,
@@ -59,13 +60,14 @@ _COMPARED: tuple[tuple[str, str, str | None, str, str | None], ...] = (
     ("incident_air_kerma_mgy", "mGy", None, "recon_incident_air_kerma_mgy", None),
     ("esak_mgy", "mGy", None, "recon_esak_mgy", "recon_esak_u_mgy"),
     ("entrance_dose_mgy", "mGy", None, "recon_entrance_dose_mgy", None),
+    # CT: the scanner's SSDE beside SSDE from our Dw (api/intake/ct_sizing.py)
+    ("ssde_mgy", "mGy", "ssde_mgy", "size_ssde_mgy", None),
 )
 #: Reported-only quantities shown in the breakdown when present.
 _REPORTED_ONLY: tuple[tuple[str, str], ...] = (
     ("reference_point_air_kerma_mgy", "mGy"),
     ("ctdivol_mgy", "mGy"),
     ("dlp_mgy_cm", "mGy·cm"),
-    ("ssde_mgy", "mGy"),
     ("organ_dose_mgy", "mGy"),
 )
 
@@ -203,6 +205,8 @@ def dose_breakdown(row: m.ExposureEventRow) -> list[DoseComparison]:
         ratio = _ratio(reported, recon)
         if quantity == "dap_gy_cm2" and row.dap_ratio_reported_to_recon is not None:
             ratio = row.dap_ratio_reported_to_recon
+        if quantity == "ssde_mgy" and row.ssde_ratio_reported_to_size is not None:
+            ratio = row.ssde_ratio_reported_to_size
         out.append(
             DoseComparison(
                 quantity=quantity,
@@ -227,6 +231,26 @@ def dose_breakdown(row: m.ExposureEventRow) -> list[DoseComparison]:
                 )
             )
     return out
+
+
+def event_size(row: m.ExposureEventRow) -> EventSize:
+    """The patient size of ``row``: ours from the images beside the scanner's."""
+    return EventSize(
+        dw_mean_cm=row.size_dw_mean_cm,
+        dw_centre_cm=row.size_dw_centre_cm,
+        method=row.size_method,
+        images_used=row.size_images_used,
+        truncated_share=row.size_truncated_share,
+        ssde_mgy=row.size_ssde_mgy,
+        ssde_report=row.size_ssde_report,
+        ssde_ratio_reported_to_size=row.ssde_ratio_reported_to_size,
+        scanner_dw_mm=row.water_equivalent_diameter_mm,
+        scanner_dw_method=row.water_equivalent_diameter_method,
+        scanner_ssde_method=row.ssde_method,
+        scanner_effective_diameter_mm=row.effective_diameter_mm,
+        scan_z_top_mm=row.ct_scan_z_top_mm,
+        scan_z_bottom_mm=row.ct_scan_z_bottom_mm,
+    )
 
 
 def _group(model: type[Any], row: Any, prefix: str = "") -> Any:
@@ -264,6 +288,7 @@ def get_event(event_id: IdPath, session: DbSession, _: Physicist) -> EventDetail
         geometry=_group(EventGeometry, row),
         reported=_group(EventReported, row),
         reconstructed=_group(EventReconstructed, row, prefix="recon_"),
+        size=event_size(row),
         dose_breakdown=dose_breakdown(row),
         recon_trail=trail_for_event(session, row),
         provenance=row.provenance or {},
