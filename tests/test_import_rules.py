@@ -49,13 +49,30 @@ def _our_imports(path: Path, stage: str) -> list[tuple[int, str]]:
     return found
 
 
+#: modules of the package root (``_root/``, installed as ``beamaudit``) every stage may import
+PACKAGE_ROOT_MODULES = {p.stem for p in (ROOT / "_root").glob("*.py")} - {"__init__", "__main__"}
+
+
+def test_package_root_imports_no_stage() -> None:
+    """The package root (version, caution, the error root) sits below every stage: it imports none
+    of them (``__main__`` only starts the command line)."""
+    bad = []
+    for path in sorted((ROOT / "_root").glob("*.py")):
+        if path.stem == "__main__":
+            continue
+        for lineno, target in _our_imports(path, "_root"):
+            if target in STAGES:
+                bad.append(f"{path.relative_to(ROOT)}:{lineno} imports {target}")
+    assert not bad, "import rule broken:\n" + "\n".join(bad)
+
+
 @pytest.mark.parametrize("stage", STAGES)
 def test_stage_imports_only_what_it_may(stage: str) -> None:
     bad = []
     for path in sorted((ROOT / stage).rglob("*.py")):
         for lineno, target in _our_imports(path, stage):
-            if target == "beamaudit":
-                continue  # the package root (version) is allowed everywhere
+            if target == "beamaudit" or target in PACKAGE_ROOT_MODULES:
+                continue  # the package root (version, caution, error root) is allowed anywhere
             if target not in ALLOWED[stage]:
                 bad.append(f"{path.relative_to(ROOT)}:{lineno} imports {target}")
     assert not bad, "import rule broken:\n" + "\n".join(bad)
@@ -168,3 +185,47 @@ def test_no_underscore_module_from_outside_its_package(stage: str) -> None:
             if name.startswith("_") and not name.startswith("__") and parent != package:
                 bad.append(f"{path.relative_to(ROOT)}:{lineno} imports {module}")
     assert not bad, "underscore module imported from another package:\n" + "\n".join(bad)
+
+
+def test_one_error_root_per_stage_under_one_project_root() -> None:
+    """Each stage's errors derive from its stage root, and every stage root from BeamauditError."""
+    import importlib
+    import inspect
+
+    from beamaudit.errors import BeamauditError
+
+    roots = {
+        "ingest": "beamaudit.ingest.errors:IngestError",
+        "model": "beamaudit.model.errors:ModelError",
+        "api": "beamaudit.api.errors:ApiError",
+        "dashboards": "beamaudit.dashboards.errors:DashboardError",
+    }
+    loose = []
+    for stage, spec in roots.items():
+        module_name, _, class_name = spec.partition(":")
+        root = getattr(importlib.import_module(module_name), class_name)
+        assert issubclass(root, BeamauditError), spec
+        for path in sorted((ROOT / stage).rglob("*.py")):
+            if "migrations" in path.parts or path.name == "__main__.py":
+                continue
+            tree = ast.parse(path.read_text(encoding="utf-8"))
+            names = [
+                n.name
+                for n in tree.body
+                if isinstance(n, ast.ClassDef)
+                and n.name.endswith("Error")
+                and not n.name.startswith("_")
+            ]
+            if not names:
+                continue
+            rel = path.relative_to(ROOT).with_suffix("")
+            module = importlib.import_module("beamaudit." + ".".join(rel.parts))
+            for name in names:
+                cls = getattr(module, name)
+                if (
+                    inspect.isclass(cls)
+                    and issubclass(cls, Exception)
+                    and not issubclass(cls, root)
+                ):
+                    loose.append(f"{rel}.{name}")
+    assert not loose, "errors outside their stage's root: " + ", ".join(loose)

@@ -75,6 +75,8 @@ def demo_command(
                     "timings_s": {k: round(v, 2) for k, v in outcome.timings.items()},
                     "scan": outcome.scan,
                     "cstore": outcome.cstore,
+                    "notifications": outcome.notifications,
+                    "outbox": str(outcome.outbox) if outcome.outbox else None,
                     "database": url,
                 },
                 indent=2,
@@ -134,6 +136,7 @@ def _print(outcome: Any, report: dict[str, Any], elapsed: float, db: Path) -> No
     console.print(f"\nflags not planted by the scenario: {len(report['unplanted'])}")
     for f in report["unplanted"][:10]:
         console.print(f"  [{f['kind']}] {f['reason'][:160]}", markup=False, highlight=False)
+    _print_notifications(outcome)
     console.print(
         f"\ndone in {elapsed:.0f} s; database {db}. Where to look: the overview (/) for the "
         "month, the room pages for the DAP-meter fault and the doubled exam, the flags page for "
@@ -143,6 +146,30 @@ def _print(outcome: Any, report: dict[str, Any], elapsed: float, db: Path) -> No
     phases = ", ".join(f"{k} {v:.1f}" for k, v in outcome.timings.items())
     console.print(f"[dim]seconds per phase: {phases}[/dim]", highlight=False)
     console.print("[dim]All data are invented. Every dose figure is an estimate.[/dim]")
+
+
+def _print_notifications(outcome: Any) -> None:
+    """The nightly notification step: what was sent where, and the digest's first lines."""
+    import json
+
+    console.print("\nnightly notifications (no mail server or webhook configured: the outbox):")
+    if not outcome.notifications:
+        console.print("  nothing new to tell", highlight=False)
+        return
+    for d in outcome.notifications:
+        console.print(
+            f"  {d['recipient']}: {d['findings']} new findings, {d['status']} to {d['target']}",
+            markup=False, highlight=False,
+        )  # fmt: skip
+    lines = outcome.outbox.read_text(encoding="utf-8").splitlines() if outcome.outbox else []
+    if lines:
+        digest = json.loads(lines[-1])
+        console.print(f"  subject: {digest['subject']}", markup=False, highlight=False)
+        for item in digest["findings"][:3]:
+            console.print(
+                f"    [{item['severity']}] {item['reason'][:110]}", markup=False, highlight=False
+            )
+            console.print(f"      {item['link']}", markup=False, highlight=False)
 
 
 def register(app: typer.Typer) -> None:

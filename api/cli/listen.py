@@ -69,6 +69,18 @@ def listen_command(
         listener = start_listener(config, handler)
     except IngestError as exc:
         fail(exc.reason)
+    metrics = store.settings.metrics
+    if metrics.enabled and metrics.listener_bind:
+        from beamaudit.api.web.metrics import AssociationCounter, collector, start_metrics_server
+
+        counter = AssociationCounter()
+        counter.bind(listener)
+        try:
+            start_metrics_server(metrics.listener_bind, collector(store.sessions, counter.family))
+        except OSError as exc:
+            listener.stop()
+            fail(f"cannot serve /metrics on {metrics.listener_bind}: {exc.strerror or exc}")
+        console.print(f"metrics on http://{metrics.listener_bind}/metrics", highlight=False)
     console.print(
         f"listening as {config.ae_title} on {listener.address[0]}:{listener.port} "
         f"(database: {store.settings.backend}); Ctrl-C stops",

@@ -70,6 +70,10 @@ def review_command(
     body = _stored_result(store, run_id)
     if body.get("status") == "failed":
         fail(f"review run {run_id} failed: {body.get('error')}")
+    from beamaudit.api.cli.notify import send_notifications
+
+    # a delivery that fails is one line on stderr; the review is stored whatever happens
+    send_notifications(store, trigger="nightly" if nightly else "review", review_run_id=run_id)
     result = body["result"]
     if csv_path is not None or xlsx_path is not None:
         from beamaudit.api.runs.export import write_csv, write_xlsx
@@ -229,9 +233,11 @@ def nightly_command(
     ctx: typer.Context,
     as_json: Annotated[bool, typer.Option("--json", help="Print the report as JSON.")] = False,
 ) -> None:
-    """Pull every configured DICOMweb source, then run the nightly review.
+    """Pull every configured DICOMweb source, run the nightly review, then send the digests of
+    new findings ([notify]; the outbox file when no server is configured).
 
-    Exit code 0: nothing new flagged; 1: new flags; 2: failure (a source or the review).
+    Exit code 0: nothing new flagged; 1: new flags; 2: failure (a source, the review or a
+    notification; the review is stored whatever a notification does).
     """
     from sqlalchemy import select
 
@@ -275,6 +281,17 @@ def nightly_command(
         report["failed"].append({"source": "review", "reason": str(exc)})
     report["review_run_id"] = run_id
     report["new_flags"] = new_flags
+    from beamaudit.api.runs.notify import notify_new_findings
+
+    deliveries = notify_new_findings(
+        store.sessions, store.settings.notify, trigger="nightly", review_run_id=run_id
+    )
+    report["notifications"] = [d.__dict__ for d in deliveries]
+    for d in deliveries:
+        if d.status != "sent":
+            report["failed"].append(
+                {"source": f"notify {d.recipient} by {d.channel}", "reason": d.error}
+            )
     if as_json:
         typer.echo(json.dumps(report, indent=2, default=str))
     else:
@@ -283,6 +300,9 @@ def nightly_command(
                 f"pulled {p['source']}: {p['events']} new events, {len(p['errors'])} rejected",
                 highlight=False,
             )
+        for d in deliveries:
+            if d.status == "sent":
+                console.print(d.line(), highlight=False, markup=False)
         for f in report["failed"]:
             err_console.print(f"failed: {f['source']}: {f['reason']}", markup=False)
         if run_id is None and not report["failed"]:

@@ -45,6 +45,14 @@ def serve_command(
         console.print(f"review runs cut short, now marked failed: {', '.join(map(str, failed))}")
     console.print(f"beamaudit serving on http://{host}:{port}/ (database: {settings.backend})")
     app = create_app(settings, engine=engine)
+    if settings.metrics.enabled and settings.metrics.bind:
+        from beamaudit.api.web.metrics import collector, start_metrics_server
+
+        try:
+            start_metrics_server(settings.metrics.bind, collector(app.state.session_factory))
+        except OSError as exc:
+            fail(f"cannot serve /metrics on {settings.metrics.bind}: {exc.strerror or exc}")
+        console.print(f"metrics on http://{settings.metrics.bind}/metrics", highlight=False)
     config = uvicorn.Config(app, host=host, port=port, log_level="info")
     server = uvicorn.Server(config)  # uvicorn's logging is set up now: filter its handlers too
     configure_logging(logging.INFO)

@@ -11,7 +11,9 @@
    broken files go through the folder scan too.
 4. The national and the (invented) local reference-level sets are imported,
    and a monthly review runs for every month of the scenario.
-5. :func:`compare_with_plan` sets the flags beside the planted findings.
+5. The nightly notification step sends the digest of the new findings: with no mail server or
+   webhook configured (the demo never uses one), it is written to ``DIR/outbox.jsonl``.
+6. :func:`compare_with_plan` sets the flags beside the planted findings.
 
 Everything here is invented; nothing is a real patient, person or hospital.
 """
@@ -22,7 +24,6 @@ import json
 import logging
 import multiprocessing
 import multiprocessing.context
-import socket
 import time
 from collections import Counter
 from collections.abc import Iterator
@@ -57,6 +58,9 @@ class DemoOutcome:
     ingest_errors: list[dict[str, str]] = field(default_factory=list)
     #: seconds spent in each phase, in the order they ran (``generate``, ``scan``, ...)
     timings: dict[str, float] = field(default_factory=dict)
+    #: the nightly notification step's deliveries (to the outbox file) and the file
+    notifications: list[dict[str, Any]] = field(default_factory=list)
+    outbox: Path | None = None
 
 
 def _phase_timer(timings: dict[str, float]) -> Any:
@@ -290,21 +294,18 @@ def _send_cstore(files: list[Path], port: int, sop_classes: list[str]) -> Counte
     from pydicom.uid import ExplicitVRLittleEndian
     from pynetdicom import AE
 
+    from beamaudit.ingest.sender import open_association
+
     counts: Counter[str] = Counter()
     if not files:
         return counts
     ae = AE(ae_title=_CALLING_AE)
     for uid in sop_classes:
         ae.add_requested_context(uid, [ExplicitVRLittleEndian])
-    assoc = ae.associate("127.0.0.1", port, ae_title=_CALLED_AE)
+    assoc = open_association(ae, "127.0.0.1", port, ae_title=_CALLED_AE)
     if not assoc.is_established:
         raise DemoError("the demo could not open an association with its own listener")
     try:
-        # a request goes out as several writes (command, then data set): without TCP_NODELAY
-        # Nagle's algorithm holds the data set until the peer's delayed ACK (about 40 ms each)
-        sock = getattr(getattr(assoc.dul, "socket", None), "socket", None)
-        if sock is not None:
-            sock.setsockopt(socket.IPPROTO_TCP, socket.TCP_NODELAY, 1)
         for path in files:
             status = assoc.send_c_store(path)
             code = int(getattr(status, "Status", 0xFFFF))
@@ -421,6 +422,16 @@ def run_demo(
         for month in manifest["months"]:
             p = ReviewParameters(period=Period.parse(month), **overrides)
             outcome.run_ids[month] = run_review(sessions, p, kind="monthly", actor="demo")
+    with phase("notify"):
+        from beamaudit.api.runs.notify import notify_new_findings
+        from beamaudit.api.settings import NotifySettings
+
+        # only the outbox: the demo's findings are invented and must reach no one's mailbox
+        outcome.outbox = output / "outbox.jsonl"
+        outcome.outbox.unlink(missing_ok=True)
+        notify = NotifySettings(outbox=outcome.outbox, recipients={})
+        deliveries = notify_new_findings(sessions, notify, trigger="nightly")
+        outcome.notifications = [d.__dict__ for d in deliveries]
     with phase("collect"), sessions() as session:
         for month, run_id in outcome.run_ids.items():
             run = session.get(m.ReviewRun, run_id)

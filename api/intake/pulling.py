@@ -17,6 +17,7 @@ refused. The pull's time limits, answer cap and retries come from ``[pull]`` (:f
 
 from __future__ import annotations
 
+import time
 from dataclasses import dataclass, field
 from datetime import date
 from typing import Any
@@ -157,6 +158,7 @@ def pull_source(
     )
     from beamaudit.ingest.reader import ACCEPTED_SOP_CLASSES, read_dataset
 
+    started = time.monotonic()
     client_source = DicomwebSource(url, limits=PullLimits())  # refuses a URL with a login
     with sessions.begin() as session:
         row = get_or_create_source(session, url, modalities=modalities, credentials=credentials)
@@ -221,7 +223,10 @@ def pull_source(
         assert source is not None
         source.watermark_date = next_watermark(watermark, report)
         source.last_pull_at = utcnow()
-        source.last_pull_report = outcome.as_dict() | {"warnings": len(report.warnings)}
+        source.last_pull_report = outcome.as_dict() | {
+            "warnings": len(report.warnings),
+            "duration_s": round(time.monotonic() - started, 3),  # /metrics shows it
+        }
         outcome.watermark = source.watermark_date
         source.last_pull_report["watermark"] = (
             source.watermark_date.isoformat() if source.watermark_date else None

@@ -26,6 +26,7 @@ from typing import Any
 from sqlalchemy import func, select
 from sqlalchemy.orm import Session
 
+from beamaudit.api.errors import ApiError
 from beamaudit.api.store import models as m
 from beamaudit.api.store.auth import record_change
 from beamaudit.api.store.base import utcnow
@@ -51,7 +52,7 @@ NEEDS_A_NOTE = ("acknowledged", "closed")
 _CHUNK = 500
 
 
-class TriageError(ValueError):
+class TriageError(ApiError, ValueError):
     """A triage that cannot be recorded (an unknown status, a missing note)."""
 
 

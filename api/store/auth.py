@@ -25,6 +25,7 @@ from typing import Any, Literal
 from sqlalchemy import select, update
 from sqlalchemy.orm import Session
 
+from beamaudit.api.errors import ApiError
 from beamaudit.api.store import models as m
 from beamaudit.api.store.base import utcnow
 
@@ -50,7 +51,7 @@ ROLES: tuple[Role, ...] = ("viewer", "physicist", "admin")
 TOKEN_PREFIX = "bat_"
 
 
-class AuthError(ValueError):
+class AuthError(ApiError, ValueError):
     """A token operation that cannot be done (unknown id, bad role)."""
 
 

@@ -38,6 +38,7 @@ __all__ = [
     "FlagRow",
     "IngestError",
     "MappingRuleRow",
+    "NotificationDelivery",
     "QAMeasurementRow",
     "ReferenceLevelRow",
     "ReferenceLevelSetRow",
@@ -532,3 +533,28 @@ class DicomwebSource(Base):
     enabled: Mapped[bool] = mapped_column(Boolean, default=True)
     # the name of a login in the settings (pull.credentials.NAME); never the login itself
     credentials: Mapped[str | None] = mapped_column(String)
+
+
+class NotificationDelivery(Base):
+    """One digest of new findings sent (or not) to one recipient: the delivery log.
+
+    ``last_finding_id`` is the newest finding the digest covered: the next digest to the same
+    recipient lists findings after the one last ``sent``, so a failed delivery loses nothing.
+    The secret a webhook is signed with and the mail server's password are never stored here.
+    """
+
+    __tablename__ = "notification_deliveries"
+    id: Mapped[int] = mapped_column(primary_key=True)
+    recipient: Mapped[str] = mapped_column(String, index=True)
+    channel: Mapped[str] = mapped_column(String)  # smtp | webhook | outbox
+    #: the addresses, the webhook URL or the outbox file
+    target: Mapped[str] = mapped_column(Text)
+    trigger: Mapped[str] = mapped_column(String)  # nightly | review | command | demo
+    review_run_id: Mapped[int | None] = mapped_column(Integer)
+    status: Mapped[str] = mapped_column(String)  # sent | failed
+    attempts: Mapped[int] = mapped_column(Integer, default=0)
+    error: Mapped[str | None] = mapped_column(Text)
+    findings: Mapped[int] = mapped_column(Integer, default=0)
+    last_finding_id: Mapped[int | None] = mapped_column(Integer)
+    digest_sha256: Mapped[str] = mapped_column(String)
+    created_at: Mapped[datetime] = mapped_column(UTCDateTime(), default=utcnow, index=True)

@@ -195,6 +195,9 @@ def create_app(settings: Settings, *, engine: Engine | None = None) -> FastAPI:
     app.include_router(pages_router)
     if settings.api.docs:
         _add_docs(app)
+    from beamaudit.api.web.metrics import add_metrics_route
+
+    add_metrics_route(app, settings)  # [metrics]: off, admin token, or an address of its own
     app.add_exception_handler(_LoginRedirect, login_redirect_handler)
     app.add_exception_handler(StarletteHTTPException, http_error_handler)  # pages: HTML
     app.add_exception_handler(DashboardError, dashboard_error_handler)

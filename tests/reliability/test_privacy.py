@@ -29,6 +29,7 @@ from beamaudit.api.store import Base
 from beamaudit.api.store.migrate import upgrade
 from beamaudit.ingest.listener import ListenerConfig, start_listener
 from beamaudit.ingest.pseudonym import Pseudonymiser, load_or_create_key
+from beamaudit.ingest.sender import open_association
 
 #: every spelling of the invented patient that must never leave ingest
 SECRETS = (
@@ -63,7 +64,7 @@ def _ingest_everywhere(store: SharedStore, tmp_path: Path) -> int:
     ):
         ae = AE(ae_title="PRIVACY")
         ae.add_requested_context(DX_PRESENTATION, EXPLICIT_LE)
-        assoc = ae.associate("127.0.0.1", port, ae_title="BEAMAUDIT")
+        assoc = open_association(ae, "127.0.0.1", port, ae_title="BEAMAUDIT")
         for i in range(3):
             assert assoc.send_c_store(dx_header(f"privacy-listen-{i}")).Status == 0
         bad = dx_header("privacy-listen-bad", KVP="900")  # an error that names the object

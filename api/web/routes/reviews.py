@@ -21,7 +21,7 @@ from __future__ import annotations
 from datetime import date
 from typing import Annotated, Any
 
-from fastapi import APIRouter, Depends, HTTPException, Query, status
+from fastapi import APIRouter, BackgroundTasks, Depends, HTTPException, Query, Request, status
 from fastapi.responses import Response
 from sqlalchemy import func, select
 
@@ -161,8 +161,16 @@ def _parameters(body: ReviewCreate) -> Any:
         409: {"model": ErrorBody, "description": "No event in the period and scope."},
     },
 )  # fmt: skip
-def start_review(body: ReviewCreate, sessions: SessionFactory, who: Physicist) -> ReviewRunRead:
+def start_review(
+    body: ReviewCreate,
+    sessions: SessionFactory,
+    who: Physicist,
+    request: Request,
+    background: BackgroundTasks,
+) -> ReviewRunRead:
     """Run a review of the period and store it; answers the finished run (done or failed).
+
+    After answering, the digests of new findings are sent (the ``[notify]`` settings).
 
     The run keeps its parameters, its scope, the level-set versions used and the software
     version, so it can be repeated. A whole-site review of a calendar month becomes the month's
@@ -178,6 +186,12 @@ def start_review(body: ReviewCreate, sessions: SessionFactory, who: Physicist) -
         raise HTTPException(status.HTTP_404_NOT_FOUND, detail=str(exc)) from None
     except NoEventsError as exc:
         raise HTTPException(status.HTTP_409_CONFLICT, detail=str(exc)) from None
+    from beamaudit.api.runs.notify import notify_and_log
+
+    background.add_task(
+        notify_and_log, sessions, request.app.state.settings.notify, trigger="review",
+        review_run_id=run_id,
+    )  # fmt: skip
     with sessions() as session:
         run = session.get(RUN, run_id)
         assert run is not None

@@ -70,6 +70,7 @@ class Api:
 
 
 def make_api(store: Any, tmp_path: Any, **settings: Any) -> Iterator[Api]:
+    settings.setdefault("notify", {"outbox": tmp_path / "outbox.jsonl"})  # digests stay here
     app = create_app(
         load(database_url=store.url, secret_key_path=tmp_path / "pseudonym.key", **settings),
         engine=store.engine,
