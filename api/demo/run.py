@@ -56,6 +56,10 @@ class DemoOutcome:
     run_ids: dict[str, int] = field(default_factory=dict)
     flags: list[dict[str, Any]] = field(default_factory=list)
     ingest_errors: list[dict[str, str]] = field(default_factory=list)
+    #: the recurrent-exposure list at the end of the demo's months: pseudonyms, counts, sums
+    recurrent: list[dict[str, Any]] = field(default_factory=list)
+    #: the patient pseudonym of each study the scenario planted for that list
+    recurrent_planted: dict[str, str] = field(default_factory=dict)
     #: seconds spent in each phase, in the order they ran (``generate``, ``scan``, ...)
     timings: dict[str, float] = field(default_factory=dict)
     #: the nightly notification step's deliveries (to the outbox file) and the file
@@ -441,7 +445,35 @@ def run_demo(
             {"source": e.source, "code": e.code, "reason": e.reason}
             for e in session.scalars(select(m.IngestError).order_by(m.IngestError.id))
         ]
+        _collect_recurrent(session, outcome)
     return outcome
+
+
+def _collect_recurrent(session: Session, outcome: DemoOutcome) -> None:
+    """The recurrent-exposure list at the end of the months, and the planted studies' patient."""
+    from datetime import date, timedelta
+
+    from beamaudit.api.runs.recurrent import recurrent_exposure
+
+    last = max(outcome.manifest["months"])
+    year, month = (int(x) for x in last.split("-"))
+    end = date(year + month // 12, month % 12 + 1, 1) - timedelta(days=1)
+    outcome.recurrent = recurrent_exposure(session, as_of=end).patients
+    uids = [
+        u
+        for p in outcome.manifest["planted_findings"]
+        if p["kind"] == "recurrent_exposure"
+        for u in p.get("study_instance_uids") or []
+    ]
+    if uids:
+        outcome.recurrent_planted = {
+            uid: key or ""
+            for uid, key in session.execute(
+                select(m.Study.study_instance_uid, m.Study.patient_pseudo_id).where(
+                    m.Study.study_instance_uid.in_(uids)
+                )
+            )
+        }
 
 
 _KIND_OF_PLANT = {
@@ -462,6 +494,23 @@ def compare_with_plan(outcome: DemoOutcome) -> dict[str, Any]:
     found = []
     for plant in outcome.manifest["planted_findings"]:
         kind = _KIND_OF_PLANT.get(plant["kind"], plant["kind"])
+        if kind == "recurrent_exposure":
+            keys = set(outcome.recurrent_planted.values())
+            hits = [p for p in outcome.recurrent if p["patient_key"] in keys]
+            found.append(
+                {
+                    "plant": plant["id"],
+                    "kind": kind,
+                    "found": len(keys) == 1 and bool(hits),
+                    "required": plant.get("required", True),
+                    "by": [
+                        f"{p['n_exams_in_window']} examinations, "
+                        f"{p['cumulative_dose_msv']:.0f} mSv (estimate)"
+                        for p in hits
+                    ],
+                }
+            )
+            continue
         if kind == "ingest_error":
             name = Path(plant.get("paths", [""])[0] or plant["id"]).name
             hits = [e for e in outcome.ingest_errors if Path(e["source"]).name == name]

@@ -1,4 +1,5 @@
-"""What happens to new events: exam-type mapping, then reconstruction.
+"""What happens to new events: exam-type mapping (and the rule's clinical indication), then
+reconstruction and the effective-dose estimate (:mod:`beamaudit.api.intake.effective_doses`).
 
 Two ways to the same columns:
 
@@ -8,8 +9,9 @@ Two ways to the same columns:
 * :func:`process_new_events` maps and reconstructs events already stored (an upload, events
   stored before their room was configured, a re-run after the rules changed).
 
-Both use the same mapping (:func:`beamaudit.api.store.review_rows.exam_types_of`) and the same
-model run (:func:`beamaudit.api.intake.reconstruct.figures`), and give the same values.
+Both use the same mapping
+(:func:`beamaudit.api.store.review_rows.exam_types_and_indications_of`) and the same model run
+(:func:`beamaudit.api.intake.reconstruct.figures`), and give the same values.
 """
 
 from __future__ import annotations
@@ -51,13 +53,16 @@ _RULE_INPUTS = (
 
 def process_new_events(sessions: sessionmaker[Session], event_ids: Sequence[int]) -> ReconSummary:
     """Map the events to exam types (stored rules) and reconstruct their dose figures."""
+    from beamaudit.api.intake.effective_doses import fill_effective_doses
     from beamaudit.api.store.review_rows import map_stored_events
 
     ids = list(event_ids)
     for start in range(0, len(ids), CHUNK):
         with sessions.begin() as session:
             map_stored_events(session, ids[start : start + CHUNK])
-    return reconstruct_events(sessions, ids)
+    summary = reconstruct_events(sessions, ids)
+    fill_effective_doses(sessions, ids)
+    return summary
 
 
 class Completion:
@@ -73,7 +78,8 @@ class Completion:
     def __init__(self) -> None:
         self._rules_key: tuple[Any, ...] | None = None
         self._rules: Any = None
-        self._exam_types: dict[tuple[str | None, ...], str | None] = {}
+        #: (exam type, clinical indication) of each combination of raw values
+        self._exam_types: dict[tuple[str | None, ...], tuple[str | None, str | None]] = {}
         self._beams = RoomBeams().cache
         self._lock = threading.Lock()  # a listener stores from several threads
         self.summary = ReconSummary()
@@ -107,6 +113,10 @@ class Completion:
             row.update(FIGURES_CLEARED)  # every row the same columns (one executemany)
             row.update(values)
             self.summary.add(values["recon_status"])
+        from beamaudit.api.intake.effective_doses import effective_dose_values
+
+        for row, values in zip(rows, effective_dose_values(rows), strict=True):
+            row.update(values)
 
     def _map(self, session: Session, rows: list[dict[str, Any]], room_ids: set[int]) -> None:
         rules = self._current_rules(session)
@@ -118,13 +128,14 @@ class Completion:
         if unknown:
             import pandas as pd
 
-            from beamaudit.api.store.review_rows import exam_types_of
+            from beamaudit.api.store.review_rows import exam_types_and_indications_of
 
             frame = pd.DataFrame(unknown, columns=[*_RULE_INPUTS, "room"], dtype=object)
-            for key, exam_type in zip(unknown, exam_types_of(frame, rules), strict=True):
-                self._exam_types[key] = exam_type
+            mapped = exam_types_and_indications_of(frame, rules)
+            for key, pair in zip(unknown, mapped, strict=True):
+                self._exam_types[key] = pair
         for row, key in zip(rows, keys, strict=True):
-            row["exam_type"] = self._exam_types[key]
+            row["exam_type"], row["clinical_indication"] = self._exam_types[key]
 
     def _current_rules(self, session: Session) -> Any:
         """The stored rules (the shipped ones seeded into an empty store), read per batch."""
@@ -132,7 +143,8 @@ class Completion:
         stored = tuple(
             tuple(r)
             for r in session.connection().exec_driver_sql(
-                "SELECT priority, exam_type, CAST(patterns AS TEXT), note FROM mapping_rules "
+                "SELECT priority, exam_type, CAST(patterns AS TEXT), note, clinical_indication "
+                "FROM mapping_rules "
                 "ORDER BY priority"
             )
         )

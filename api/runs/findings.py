@@ -6,7 +6,8 @@ Finding`, the same finding whenever a later run finds it again. Its identity is
 * its **kind** (``group_above_level``, ``exam_above_investigation_level``, ...);
 * its **subject**: the fields of the flag's concern that name what it is about (site, room,
   device, exam type, quantity, event, study, and the month a DAP ratio or a change-point is
-  dated), and for a group above a level the level set it is above (a group above both the local
+  dated, a group's clinical indication and paediatric band when it has them), and for a group
+  above a level the level set it is above (a group above both the local
   and the national level is two findings);
 * its **period**: the calendar month when the run's period lies within one month (a month
   reviewed again by hand, or month-to-date by the nightly run, finds the same findings), else

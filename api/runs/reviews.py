@@ -68,6 +68,7 @@ from beamaudit.api.store.base import utcnow
 from beamaudit.api.store.engine import SQLITE_BUSY_TIMEOUT_MS
 from beamaudit.api.store.review_rows import (
     ensure_catalogue,
+    level_rows,
     level_sets_from_store,
     room_and_device_names,
 )
@@ -75,6 +76,7 @@ from beamaudit.api.store.review_rows import (
 __all__ = [
     "events_frame",
     "month_period",
+    "period_conditions",
     "review_events",
     "run_review",
     "stored_flags_frame",
@@ -93,6 +95,7 @@ _DENSE_SELECT: tuple[Any, ...] = (
     _E.modality,
     _E.exam_type,
     _E.patient_weight_kg,
+    _E.patient_age_years,
     _E.dap_gy_cm2,
     _E.recon_dap_gy_cm2,
     _E.recon_esak_mgy.label("esak_mgy"),
@@ -119,6 +122,7 @@ _TEXT_COLUMNS: tuple[tuple[str, Any], ...] = tuple(
 )
 _FLOAT_NAMES = (
     "patient_weight_kg",
+    "patient_age_years",
     "dap_gy_cm2",
     "recon_dap_gy_cm2",
     "esak_mgy",
@@ -200,6 +204,15 @@ def _period_conditions(
     else:
         values = {"t0": t0, "t1": t1}
     return conditions, epoch, values
+
+
+def period_conditions(
+    session: Session, *, start: date, end: date
+) -> tuple[list[Any], Any, dict[str, Any]]:
+    """The WHERE conditions of the events a review of ``[start, end)`` reads (superseded events
+    and repeated CT slices left out), their time as seconds since the epoch, and the values of
+    the conditions' parameters for the DBAPI cursor (pass typed datetimes to a session)."""
+    return _period_conditions(session, start=start, end=end)
 
 
 #: Ids per ``IN`` list (SQLite's default limit on parameters is 32766 since 3.32).
@@ -684,6 +697,16 @@ def review_events(session: Session, *, start: date, end: date) -> pd.DataFrame:
             column[at] = sparse[found, 1 + offset].astype(np.float64)
             columns[name] = column
     del dense
+    # the clinical indication: few events carry one (a rule set it), read for those only
+    indication = np.full(n, None, dtype=object)
+    marked = _fetch(
+        session,
+        select(E.id, E.clinical_indication).where(*conditions, E.clinical_indication.is_not(None)),
+        values,
+    )
+    at, found = _positions(event_ids, marked[:, 0])
+    indication[at] = marked[found, 1]
+    columns["clinical_indication"] = indication
     text_columns = {name: np.full(n, None, dtype=object) for name, _ in _TEXT_COLUMNS}
     unmapped = event_ids[pd.isna(columns["exam_type"])]
     for first in range(0, len(unmapped), _IDS_PER_QUERY):  # by id: exactly the events read
@@ -934,11 +957,7 @@ def store_level_sets(
         A set version that is stored already, or an exam type the catalogue lacks.
     """
     from beamaudit.api.review import ReviewError
-    from beamaudit.api.review.levels import levels_the_store_cannot_keep
 
-    refusal = levels_the_store_cannot_keep(sets)
-    if refusal is not None:
-        raise ReviewError(refusal)
     catalogue, _ = ensure_catalogue(session)
     known = {t.exam_type for t in catalogue.types}
     rows = []
@@ -963,13 +982,7 @@ def store_level_sets(
         )  # fmt: skip
         session.add(row)
         session.flush()
-        session.add_all(
-            m.ReferenceLevelRow(
-                set_id=row.id, exam_type=e.exam_type, quantity=e.quantity,
-                value=e.value, unit=e.unit, source=e.source or None,
-            )
-            for e in s.entries
-        )  # fmt: skip
+        session.add_all(level_rows(row.id, s.entries))
         record_change(
             session, actor=actor, action="import", entity="reference_level_set", entity_id=row.id,
             after={"name": s.name, "version": s.version, "kind": s.kind, "levels": len(s.entries)},

@@ -32,6 +32,8 @@ IDENTITY_FIELDS = (
     "event_id",
     "study_uid",
     "date",
+    "clinical_indication",
+    "patient_group",
 )
 #: relative difference below which two stored numbers are the same (JSON round trips)
 _SAME = 1e-12

@@ -283,6 +283,13 @@ class ExposureEventRow(Base):
     pulse_rate_per_s: Mapped[float | None] = mapped_column(Float)
     number_of_pulses: Mapped[int | None] = mapped_column(Integer)
     irradiation_duration_s: Mapped[float | None] = mapped_column(Float)
+    #: set with the exam type by the mapping rule that matched (``acute_stroke``); null: none
+    clinical_indication: Mapped[str | None] = mapped_column(String)
+    #: population-average estimate (beamaudit.model.effective_dose), with the coefficient's
+    #: citation; null with the reason in ``effective_dose_reason`` where none is sourced
+    effective_dose_msv: Mapped[float | None] = mapped_column(Float)
+    effective_dose_source: Mapped[str | None] = mapped_column(Text)
+    effective_dose_reason: Mapped[str | None] = mapped_column(Text)
     # reconstructed by beamaudit.model (recon_*), beside the reported values above
     recon_status: Mapped[str | None] = mapped_column(String)  # ok | no_technique | failed
     recon_hvl1_mm_al: Mapped[float | None] = mapped_column(Float)
@@ -356,6 +363,8 @@ class MappingRuleRow(Base):
     exam_type: Mapped[str] = mapped_column(String)
     patterns: Mapped[dict[str, str]] = mapped_column(JSONValue, default=dict)
     note: Mapped[str | None] = mapped_column(Text)
+    #: the clinical indication the rule sets with the exam type (``acute_stroke``); null: none
+    clinical_indication: Mapped[str | None] = mapped_column(String)
 
 
 class ReferenceLevelSetRow(Base):
@@ -374,10 +383,21 @@ class ReferenceLevelSetRow(Base):
 
 
 class ReferenceLevelRow(Base):
-    """One level: exam type, quantity, value and unit, with its source."""
+    """One level: exam type, quantity, value and unit, with its source; for adults (empty
+    ``patient_group``) or a paediatric band, for every examination of the type (empty
+    ``clinical_indication``) or one indication."""
 
     __tablename__ = "reference_levels"
-    __table_args__ = (UniqueConstraint("set_id", "exam_type", "quantity"),)
+    __table_args__ = (
+        UniqueConstraint(
+            "set_id",
+            "exam_type",
+            "quantity",
+            "patient_group",
+            "clinical_indication",
+            name="uq_reference_levels_level",
+        ),
+    )
     id: Mapped[int] = mapped_column(primary_key=True)
     set_id: Mapped[int] = mapped_column(ForeignKey("reference_level_sets.id", ondelete="CASCADE"))
     exam_type: Mapped[str] = mapped_column(String)
@@ -385,6 +405,8 @@ class ReferenceLevelRow(Base):
     value: Mapped[float] = mapped_column(Float)
     unit: Mapped[str] = mapped_column(String)
     source: Mapped[str | None] = mapped_column(Text)
+    patient_group: Mapped[str] = mapped_column(String, default="", server_default="")
+    clinical_indication: Mapped[str] = mapped_column(String, default="", server_default="")
 
 
 class ReviewRun(Base):

@@ -26,20 +26,24 @@ from beamaudit.api.review.examtypes import (
     MappingRules,
     load_default_catalogue,
     load_default_rules,
-    map_events,
+    map_events_with_indication,
 )
 from beamaudit.api.review.levels import LevelEntry, ReferenceLevelSet
 from beamaudit.api.store import models as m
 from beamaudit.api.store.auth import record_change
 
 __all__ = [
+    "LEVEL_FIELDS",
     "catalogue_from_store",
     "ensure_catalogue",
     "exam_type_from_row",
     "exam_type_row_values",
+    "exam_types_and_indications_of",
     "exam_types_of",
+    "level_rows",
     "level_set_from_rows",
     "level_sets_from_store",
+    "level_values",
     "map_stored_events",
     "room_and_device_names",
     "rules_from_store",
@@ -87,7 +91,13 @@ def rules_from_store(session: Session) -> MappingRules:
     rows = session.scalars(select(m.MappingRuleRow).order_by(m.MappingRuleRow.priority))
     return MappingRules(
         rules=tuple(
-            MappingRule(r.priority, r.exam_type, tuple((r.patterns or {}).items()), r.note or "")
+            MappingRule(
+                r.priority,
+                r.exam_type,
+                tuple((r.patterns or {}).items()),
+                r.note or "",
+                clinical_indication=r.clinical_indication or "",
+            )
             for r in rows
         ),
         source="the store",
@@ -104,10 +114,42 @@ def level_set_from_rows(
         effective_from=row.effective_from,
         source=row.source or "",
         entries=tuple(
-            LevelEntry(l.exam_type, l.quantity, l.value, l.unit, l.source or "")
+            LevelEntry(
+                l.exam_type,
+                l.quantity,
+                l.value,
+                l.unit,
+                l.source or "",
+                patient_group=l.patient_group or "",
+                clinical_indication=l.clinical_indication or "",
+            )
             for l in levels  # noqa: E741
         ),
     )
+
+
+#: what a stored level keeps of its :class:`LevelEntry` (an empty source kept as null)
+LEVEL_FIELDS = (
+    "exam_type",
+    "quantity",
+    "value",
+    "unit",
+    "source",
+    "patient_group",
+    "clinical_indication",
+)
+
+
+def level_values(entry: LevelEntry) -> dict[str, Any]:
+    """The stored columns of ``entry`` (also the fields of the API's level schema)."""
+    values = {name: getattr(entry, name) for name in LEVEL_FIELDS}
+    values["source"] = entry.source or None
+    return values
+
+
+def level_rows(set_id: int, entries: Iterable[LevelEntry]) -> list[m.ReferenceLevelRow]:
+    """The ``reference_levels`` rows that keep ``entries`` in the set ``set_id``."""
+    return [m.ReferenceLevelRow(set_id=set_id, **level_values(e)) for e in entries]
 
 
 def level_sets_from_store(
@@ -123,7 +165,9 @@ def level_sets_from_store(
     out = []
     for row in session.scalars(stmt):
         levels = session.scalars(
-            select(L).where(L.set_id == row.id).order_by(L.exam_type, L.quantity)
+            select(L)
+            .where(L.set_id == row.id)
+            .order_by(L.exam_type, L.quantity, L.patient_group, L.clinical_indication)
         )
         out.append((row, level_set_from_rows(row, levels)))
     return out
@@ -149,10 +193,25 @@ def room_and_device_names(session: Session) -> tuple[dict[int, tuple[str, str]],
 def exam_types_of(events: pd.DataFrame, rules: MappingRules) -> list[str | None]:
     """The exam type of each event by the rules (:func:`beamaudit.api.review.map_events`),
     ``None`` where no rule matches."""
-    return [
-        None if exam_type is None or isinstance(exam_type, float) else str(exam_type)
-        for exam_type in map_events(events, rules)
-    ]
+    return [exam_type for exam_type, _ in exam_types_and_indications_of(events, rules)]
+
+
+def exam_types_and_indications_of(
+    events: pd.DataFrame, rules: MappingRules
+) -> list[tuple[str | None, str | None]]:
+    """The exam type and clinical indication of each event by its first matching rule
+    (:func:`beamaudit.api.review.examtypes.map_events_with_indication`); ``None`` where no rule
+    matches or the rule sets no indication."""
+    mapped = map_events_with_indication(events, rules)
+    out: list[tuple[str | None, str | None]] = []
+    for exam_type, indication in zip(
+        mapped["exam_type"], mapped["clinical_indication"], strict=True
+    ):
+        if exam_type is None or isinstance(exam_type, float):
+            out.append((None, None))
+        else:
+            out.append((str(exam_type), indication if isinstance(indication, str) else None))
+    return out
 
 
 def ensure_catalogue(
@@ -171,6 +230,7 @@ def ensure_catalogue(
                     exam_type=r.exam_type,
                     patterns=dict(r.patterns),
                     note=r.note,
+                    clinical_indication=r.clinical_indication or None,
                 )
             )
         session.flush()
@@ -213,15 +273,16 @@ def map_stored_events(session: Session, event_ids: list[int] | None = None) -> i
     frame["room"] = [rooms.get(i, ("", ""))[0] if pd.notna(i) else None for i in frame["room_id"]]
     events_table = m.ExposureEventRow.__table__
     assert isinstance(events_table, Table)  # a declarative class maps one Table
-    by_value: dict[str | None, list[int]] = {}
-    for event_id, value in zip(frame["id"], exam_types_of(frame, rules), strict=True):
-        by_value.setdefault(value, []).append(int(event_id))
-    # one UPDATE per exam type (in chunks of ids), not one per event
-    for value, ids in by_value.items():
+    by_value: dict[tuple[str | None, str | None], list[int]] = {}
+    mapped = exam_types_and_indications_of(frame, rules)
+    for event_id, pair in zip(frame["id"], mapped, strict=True):
+        by_value.setdefault(pair, []).append(int(event_id))
+    # one UPDATE per exam type and indication (in chunks of ids), not one per event
+    for (value, indication), ids in by_value.items():
         for start in range(0, len(ids), 900):
             session.execute(
                 events_table.update()
                 .where(m.ExposureEventRow.id.in_(ids[start : start + 900]))
-                .values(exam_type=value)
+                .values(exam_type=value, clinical_indication=indication)
             )
-    return sum(len(ids) for value, ids in by_value.items() if value is not None)
+    return sum(len(ids) for (value, _), ids in by_value.items() if value is not None)

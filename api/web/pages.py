@@ -382,6 +382,21 @@ async def flags_page(
     )
 
 
+def _levels(session: Session, physicist: bool, ctx: Any) -> str:
+    from beamaudit.api.web.levels_page import levels_page_data
+    from beamaudit.dashboards import render_levels
+
+    data = levels_page_data(session, physicist=physicist, today=date.today())
+    return render_levels(**data, context=ctx)
+
+
+@router.get("/levels", response_class=HTMLResponse)
+async def levels_page(request: Request, session: DbSession, who: PageViewer) -> str:
+    """Proposed local DRLs beside the levels in force; for physicists, the recurrent list."""
+    physicist = has_role(who.role, "physicist")
+    return await run_in_threadpool(_levels, session, physicist, _context(request, who))
+
+
 def _report(session: Session, period: str) -> str:
     from beamaudit.api.web.page_data import flags_table, groups_table, latest_run, periods
     from beamaudit.dashboards import render_committee_report

@@ -98,7 +98,15 @@ def test_pages_without_a_token_go_to_login(site) -> None:
 
 @pytest.mark.parametrize(
     "path",
-    ["/", "/?period=2026-09", "/distributions", "/rooms/RAD%20A", "/flags", "/reports/2026-10"],
+    [
+        "/",
+        "/?period=2026-09",
+        "/distributions",
+        "/rooms/RAD%20A",
+        "/flags",
+        "/reports/2026-10",
+        "/levels",
+    ],
 )
 def test_each_page_renders_for_a_viewer(site, path) -> None:
     client, viewer, _, _ = site
@@ -106,6 +114,17 @@ def test_each_page_renders_for_a_viewer(site, path) -> None:
     assert r.status_code == 200, r.text[:500]
     assert CAUTION_WORDS in r.text.lower()
     assert '<script src="http' not in r.text  # no script from another host (no CDN)
+
+
+def test_the_levels_page_shows_typical_values_beside_the_levels_in_force(site) -> None:
+    client, viewer, physicist, _ = site
+    page = _get(client, "/levels", viewer).text
+    assert "Typical value" in page and "Proposed local DRL" in page
+    assert "none: 2 of 10 rooms needed" in page  # two rooms: a typical value, no proposal
+    assert "Fernmoor local DRLs (invented)" in page
+    assert "Recurrent exposure" not in page  # pseudonyms are for physicists
+    full = _get(client, "/levels", physicist).text
+    assert "Recurrent exposure" in full and "must never decide" in full
 
 
 def test_exam_drilldown_needs_the_physicist_role(site) -> None:

@@ -16,7 +16,6 @@ from typing import Any
 
 import numpy as np
 import pandas as pd
-import pytest
 from sqlalchemy import insert, select
 
 from beamaudit.api.review import Period, ReviewParameters, review
@@ -345,23 +344,28 @@ def test_events_the_session_has_not_committed_are_read_too(store) -> None:
     assert after["dap_gy_cm2"].iloc[-1] == 0.2
 
 
-def test_levels_the_store_cannot_keep_are_refused_whole(store) -> None:
-    # a paediatric band's level stored without its band would apply to adults: refused, nothing kept
-    from beamaudit.api.review import ReviewError
+def test_levels_for_a_band_and_an_indication_are_kept_with_them(store) -> None:
+    # a paediatric band's level stored without its band would apply to adults: the store keeps
+    # the band and the indication, and reads them back as they were
     from beamaudit.api.review.levels import LevelEntry, ReferenceLevelSet
     from beamaudit.api.runs.reviews import store_level_sets
+    from beamaudit.api.store.review_rows import level_sets_from_store
 
-    band = LevelEntry("chest_pa", "dap_gy_cm2", 0.02, "Gy.cm2", patient_group="weight_15_30kg")
-    invented = ReferenceLevelSet(
-        "Paed (invented)", "local", "1", date(2026, 1, 1), "tests", (band,)
+    entries = (
+        LevelEntry("chest_pa", "dap_gy_cm2", 0.1, "Gy.cm2"),
+        LevelEntry("chest_pa", "dap_gy_cm2", 0.02, "Gy.cm2", patient_group="weight_15_30kg"),
+        LevelEntry("ct_head", "dlp_mgy_cm", 600.0, "mGy.cm", clinical_indication="acute_stroke"),
     )
-    with (
-        pytest.raises(ReviewError, match="cannot keep levels for a patient group"),
-        store.session_factory.begin() as session,
-    ):
+    invented = ReferenceLevelSet(
+        "Paed (invented)", "local", "1", date(2026, 1, 1), "tests", entries
+    )
+    with store.session_factory.begin() as session:
         store_level_sets(session, [invented])
     with store.session_factory() as session:
-        assert session.scalars(select(m.ReferenceLevelSetRow)).all() == []
+        ((_, back),) = level_sets_from_store(session)
+    assert sorted(e.key for e in back.entries) == sorted(e.key for e in entries)
+    assert back.get("chest_pa", "dap_gy_cm2", "weight_15_30kg").value == 0.02
+    assert back.get("chest_pa", "dap_gy_cm2").value == 0.1
 
 
 def _one_event(sessions: Any, event_id: int, when: datetime, **values: Any) -> None:

@@ -19,6 +19,7 @@ ROUTE_MODULES = (
     "qa",
     "catalogue",
     "levels",
+    "local_levels",
     "reviews",
     "ingest",
     "upload",

@@ -403,6 +403,7 @@ def _replace_rules(session: Session, who: Any, rules: MappingRules) -> list[Mapp
                 exam_type=rule.exam_type,
                 patterns=dict(rule.patterns),
                 note=rule.note or None,
+                clinical_indication=rule.clinical_indication or None,
             )
         )
     session.flush()

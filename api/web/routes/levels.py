@@ -22,7 +22,6 @@ from beamaudit.api.review.levels import (
     LevelKind,
     ReferenceLevelSet,
     check_level_sets,
-    levels_the_store_cannot_keep,
     read_levels_csv,
     write_levels_csv,
 )
@@ -33,6 +32,7 @@ from beamaudit.api.store.review_rows import (
     catalogue_from_store,
     level_set_from_rows,
     level_sets_from_store,
+    level_values,
 )
 from beamaudit.api.web.deps import Physicist
 from beamaudit.api.web.routes._common import (
@@ -70,8 +70,17 @@ L = m.ReferenceLevelRow
 
 def _levels(session: Session, set_id: int) -> list[m.ReferenceLevelRow]:
     return list(
-        session.scalars(select(L).where(L.set_id == set_id).order_by(L.exam_type, L.quantity))
+        session.scalars(
+            select(L)
+            .where(L.set_id == set_id)
+            .order_by(L.exam_type, L.quantity, L.patient_group, L.clinical_indication)
+        )
     )
+
+
+def read_set(session: Session, row: m.ReferenceLevelSetRow) -> LevelSetRead:
+    """A stored set version as the API shows it."""
+    return _read(session, row)
 
 
 def _read(session: Session, row: m.ReferenceLevelSetRow) -> LevelSetRead:
@@ -125,7 +134,15 @@ def _candidate(body: LevelSetCreate) -> ReferenceLevelSet:
         effective_from=body.effective_from,
         source=body.source or "",
         entries=tuple(
-            LevelEntry(x.exam_type, x.quantity, x.value, x.unit or "", x.source or "")
+            LevelEntry(
+                x.exam_type,
+                x.quantity,
+                x.value,
+                x.unit or "",
+                x.source or "",
+                patient_group=x.patient_group,
+                clinical_indication=x.clinical_indication,
+            )
             for x in body.levels
         ),
     )
@@ -203,9 +220,6 @@ def export_level_sets_csv(
 def _import(session: Session, who: Principal, data: bytes) -> list[LevelSetRead]:
     try:
         sets = read_levels_csv(io.BytesIO(data), catalogue_from_store(session))
-        refusal = levels_the_store_cannot_keep(sets)
-        if refusal is not None:
-            raise CsvFormatError("<request body>", [(None, refusal)])
     except CsvFormatError as exc:
         csv_invalid(exc)
     rows = []
@@ -216,16 +230,7 @@ def _import(session: Session, who: Principal, data: bytes) -> list[LevelSetRead]
             version=s.version,
             effective_from=s.effective_from,
             source=s.source or None,
-            levels=[
-                LevelCreate(
-                    exam_type=e.exam_type,
-                    quantity=e.quantity,
-                    value=e.value,
-                    unit=e.unit,
-                    source=e.source or None,
-                )
-                for e in s.entries
-            ],
+            levels=[LevelCreate(**level_values(e)) for e in s.entries],
         )
         rows.append(_store_set(session, who, body))
     session.commit()

@@ -300,6 +300,8 @@ def _flag_read(flag: m.FlagRow, who: Principal) -> FlagRead:
     read = FlagRead.model_validate(
         {
             **{name: getattr(flag, name) for name in FlagRead.model_fields if hasattr(flag, name)},
+            "clinical_indication": (finding.subject or {}).get("clinical_indication"),
+            "patient_group": (finding.subject or {}).get("patient_group"),
             "note": finding.note,
             "status_by": finding.status_by,
             "status_at": finding.status_at,

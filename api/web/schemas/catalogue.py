@@ -181,13 +181,23 @@ Patterns = Annotated[
 ]
 
 
+#: a clinical indication: lower-case ``[a-z0-9_]`` (the review core's rule)
+IndicationCode = Annotated[
+    str,
+    StringConstraints(pattern=r"^[a-z0-9][a-z0-9_]*$", max_length=64),
+    Field(examples=["acute_stroke"]),
+]
+
+
 class MappingRuleCreate(InputModel):
-    """A rule: events whose fields match every pattern get ``exam_type`` (first rule wins)."""
+    """A rule: events whose fields match every pattern get ``exam_type`` (first rule wins), and
+    ``clinical_indication`` when the rule sets one."""
 
     priority: Priority
     exam_type: ExamTypeCode
     patterns: Patterns
     note: Text | None = None
+    clinical_indication: IndicationCode | None = None
 
 
 class MappingRuleUpdate(InputModel):
@@ -195,6 +205,7 @@ class MappingRuleUpdate(InputModel):
     exam_type: ExamTypeCode | None = None
     patterns: Patterns | None = None
     note: Text | None = None
+    clinical_indication: IndicationCode | None = None
 
     _not_null = not_null("priority", "exam_type", "patterns")
 
@@ -205,3 +216,4 @@ class MappingRuleRead(ReadModel):
     exam_type: str
     patterns: dict[str, str]
     note: str | None
+    clinical_indication: str | None

@@ -19,6 +19,7 @@ __all__ = [
     "AccumulatedDoseRead",
     "DoseComparison",
     "EventDetail",
+    "EventEffectiveDose",
     "EventFlag",
     "EventGeometry",
     "EventPage",
@@ -229,6 +230,9 @@ class EventDetail(ReadModel):
     body_part: str | None
     view_position: str | None
     event_type: str | None
+    clinical_indication: str | None = Field(
+        description="set with the exam type by the mapping rule that matched (acute_stroke)"
+    )
     stored_at: datetime
     patient: EventPatient
     technique: EventTechnique
@@ -236,6 +240,7 @@ class EventDetail(ReadModel):
     reported: EventReported
     reconstructed: EventReconstructed
     size: EventSize
+    effective_dose: EventEffectiveDose
     dose_breakdown: list[DoseComparison]
     recon_trail: dict[str, Any] | None = Field(
         description="how each reconstructed figure was made, step by step"
@@ -246,6 +251,15 @@ class EventDetail(ReadModel):
     notes: list[str]
     flags: list[EventFlag]
     caution: str
+
+
+class EventEffectiveDose(ReadModel):
+    """A population-average effective-dose estimate (ICRP 103 / ICRP 147: for comparing
+    protocols and summing exposures for quality assurance, never one patient's dose or risk)."""
+
+    effective_dose_msv: float | None = Field(description="null: no sourced coefficient applies")
+    effective_dose_source: str | None = Field(description="the coefficient's table and row")
+    effective_dose_reason: str | None = Field(description="why there is no estimate")
 
 
 class AccumulatedDoseRead(ReadModel):

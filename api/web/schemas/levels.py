@@ -37,6 +37,29 @@ class LevelCreate(InputModel):
     source: Text | None = Field(
         default=None, description="the published table and row it comes from"
     )
+    patient_group: str = Field(
+        default="",
+        max_length=64,
+        description="empty: adults; else a paediatric band (ICRP 135, EC RP 185), e.g. "
+        "weight_15_30kg",
+    )
+    clinical_indication: str = Field(
+        default="",
+        pattern=r"^([a-z0-9][a-z0-9_]*)?$",
+        max_length=64,
+        description="empty: every examination of the type; else one indication (acute_stroke)",
+    )
+
+    @field_validator("patient_group")
+    @classmethod
+    def _a_band(cls, value: str) -> str:
+        from beamaudit.api.review.bands import load_default_patient_groups
+
+        bands = load_default_patient_groups()
+        if value and value not in bands:
+            names = ", ".join(g.patient_group for g in bands)
+            raise ValueError(f"patient_group {value!r} is not a band (bands: {names})")
+        return value
 
     @model_validator(mode="after")
     def _own_unit(self) -> LevelCreate:
@@ -58,11 +81,15 @@ def _levels_consistent(
 ) -> list[LevelCreate] | None:
     if levels is None:
         return None
-    seen: set[tuple[str, str]] = set()
+    seen: set[tuple[str, str, str, str]] = set()
     for level in levels:
-        key = (level.exam_type, level.quantity)
+        key = (level.exam_type, level.quantity, level.patient_group, level.clinical_indication)
         if key in seen:
-            raise ValueError(f"{level.exam_type} {level.quantity} is given twice")
+            qualifier = " ".join(x for x in key[2:] if x)
+            raise ValueError(
+                f"{level.exam_type} {level.quantity}{' ' + qualifier if qualifier else ''} "
+                "is given twice"
+            )
         seen.add(key)
         if kind == "national" and not (level.source or "").strip():
             raise ValueError(
@@ -114,6 +141,8 @@ class LevelRead(ReadModel):
     value: float
     unit: str
     source: str | None
+    patient_group: str
+    clinical_indication: str
 
 
 class LevelSetRead(ReadModel):

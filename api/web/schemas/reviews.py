@@ -104,6 +104,12 @@ class FlagRead(ReadModel):
     )
     room: str | None
     exam_type: str | None
+    clinical_indication: str | None = Field(
+        default=None, description="the group's clinical indication, when it has one"
+    )
+    patient_group: str | None = Field(
+        default=None, description="the group's paediatric band (ICRP 135), when it has one"
+    )
     event_id: int | None
     study_instance_uid: str | None
     status: str = Field(description="the finding's: open, acknowledged or closed")
