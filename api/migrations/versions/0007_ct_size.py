@@ -1,7 +1,7 @@
 """ct size: the scanner's size figures and scan range, our Dw from the images and SSDE from it
 
-Revision ID: 0005_ct_size
-Revises: 0004_physics
+Revision ID: 0007_ct_size
+Revises: 0006_levels
 Create Date: 2026-12-05 05:00:00
 """
 
@@ -10,8 +10,8 @@ from __future__ import annotations
 import sqlalchemy as sa
 from alembic import op
 
-revision = "0005_ct_size"
-down_revision = "0004_physics"
+revision = "0007_ct_size"
+down_revision = "0006_levels"
 branch_labels = None
 depends_on = None
 
