@@ -155,7 +155,8 @@ def keep_frame_header(sizer: StudySizer, source: Any, metadata: Dataset, wado_ur
             raise IngestError(
                 "unreadable", f"frame retrieval failed ({type(exc).__name__})", wado_url
             ) from None
-        return ct_size_image_from_frame(metadata, frames[0], source=wado_url)
+        # dicomweb-client gives a bytearray, which pydicom would take for a list of values
+        return ct_size_image_from_frame(metadata, bytes(frames[0]), source=wado_url)
 
     sizer.add(header, read, wado_url)
 

@@ -192,3 +192,34 @@ def test_the_listener_measures_a_few_images_on_arrival_and_sizes_the_study(
     for event in _events(store):
         assert event.size_dw_mean_cm == pytest.approx(_dw_at(200.0), rel=3e-3)
         assert event.size_ssde_report == "AAPM Report 204 (2011)"
+
+
+def test_a_pull_fetches_the_frames_of_the_chosen_instances_only(store, tmp_path: Path) -> None:
+    from peers import orthanc_missing, require_peer, start_orthanc
+
+    from beamaudit.api.intake.pulling import pull_source
+    from beamaudit.ingest.pseudonym import Pseudonymiser
+
+    reason = orthanc_missing()
+    require_peer("Orthanc with DICOMweb", reason is None, reason or "")
+    paths = _series(tmp_path / "export")
+    peer = start_orthanc(tmp_path / "orthanc")
+    try:
+        for path in paths:
+            peer.upload(path.read_bytes())
+        outcome = pull_source(
+            store.session_factory,
+            url=peer.dicomweb_url,
+            since="2024-03-01",
+            modalities=["CT"],
+            pseudonymiser=Pseudonymiser(b"k" * 32),
+        )
+    finally:
+        peer.stop()
+    assert outcome.ct_size is not None, outcome.errors
+    assert outcome.ct_size["images_read"] == 9, (outcome.ct_size, outcome.errors)
+    assert outcome.ct_size["events_sized"] == 17
+    assert not outcome.errors
+    for event in _events(store):
+        assert event.size_dw_mean_cm == pytest.approx(_dw_at(200.0), rel=3e-3)
+        assert event.size_ssde_report == "AAPM Report 204 (2011)"
