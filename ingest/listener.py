@@ -176,6 +176,9 @@ class ReceivedObject:
         The sender's AE title and the one it called us by.
     peer_address : tuple[str, int]
         The sender's IP address and TCP port.
+    received_path : str or None
+        The received object's temporary file (pixel data included) while the handler runs,
+        when pynetdicom received it to a file; None when it came in memory.
     """
 
     dataset: Dataset
@@ -186,6 +189,9 @@ class ReceivedObject:
     calling_ae_title: str
     called_ae_title: str
     peer_address: tuple[str, int]
+    #: the whole object as pynetdicom received it to a file (pixel data included), when it did;
+    #: the file exists only while the handler runs (``encoded`` then stops before Pixel Data)
+    received_path: str | None = None
 
 
 @dataclass(frozen=True, slots=True)
@@ -489,8 +495,14 @@ def _decode(event: evt.Event) -> tuple[ReceivedObject | None, StoreOutcome | Non
         calling_ae_title=str(requestor.ae_title).strip(),
         called_ae_title=str(event.assoc.acceptor.ae_title).strip(),
         peer_address=(str(requestor.address), int(requestor.port)),
+        received_path=_received_path(event),
     )
     return received, None
+
+
+def _received_path(event: evt.Event) -> str | None:
+    path = getattr(event.request, "_dataset_path", None)
+    return None if path is None else str(path)
 
 
 def _handle_store(

@@ -32,6 +32,7 @@ def listen_command(
 
     from beamaudit.api.cli._store import open_store
     from beamaudit.api.cli.scan import pseudonym_key
+    from beamaudit.api.intake.ct_sizing import ArrivalSizer, StudySizer
     from beamaudit.api.intake.pipeline import Pipeline
     from beamaudit.api.intake.postprocess import Completion
     from beamaudit.api.intake.receiving import make_store_handler
@@ -59,9 +60,11 @@ def listen_command(
             network_timeout_s=cfg.idle_timeout_s,
             association_timeout_s=cfg.association_timeout_s,
         )
+        sizer = ArrivalSizer(StudySizer(store.sessions))
         handler = make_store_handler(
             Pipeline(store.sessions, completion=Completion()),
             Pseudonymiser(pseudonym_key(store.settings.secret_key_path)),
+            sizer=sizer,
         )
         listener = start_listener(config, handler)
     except IngestError as exc:
@@ -83,7 +86,10 @@ def listen_command(
         f"(database: {store.settings.backend}); Ctrl-C stops",
         highlight=False,
     )
-    listener.wait()
+    try:
+        listener.wait()
+    finally:
+        sizer.close()  # the studies still waiting for their quiet time are sized now
 
 
 def register(app: typer.Typer) -> None:

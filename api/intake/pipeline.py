@@ -381,6 +381,11 @@ class Pipeline:
         self._sessions = session_factory
         self.completion = completion
 
+    @property
+    def sessions(self) -> sessionmaker[Session]:
+        """The session factory the pipeline stores through."""
+        return self._sessions
+
     # -- errors ---------------------------------------------------------------------------
     def record_error(
         self,

@@ -2,9 +2,11 @@
 
 ``pull_source`` resolves ``--since`` (a date, or ``last`` = the source's
 watermark), pulls the instance metadata of the matching studies
-(:func:`beamaudit.ingest.dicomweb.pull`, never pixel data), parses and stores
+(:func:`beamaudit.ingest.dicomweb.pull`, metadata only), parses and stores
 each instance, records every unusable one as an ingest error, reconstructs the
-new events, then moves the source's watermark (held back to the oldest study
+new events, measures CT patients' size from the few chosen images' frames
+(:mod:`beamaudit.api.intake.ct_sizing`, WADO-RS frames of those instances only), then
+moves the source's watermark (held back to the oldest study
 the server failed to deliver). Instances already stored are not even fetched.
 
 A source's login is named, never stored: ``dicomweb_sources.credentials`` holds the name of a
@@ -23,6 +25,7 @@ from typing import Any
 from sqlalchemy import select
 from sqlalchemy.orm import Session, sessionmaker
 
+from beamaudit.api.intake.ct_sizing import CT_IMAGE_CLASSES, StudySizer, keep_frame_header
 from beamaudit.api.intake.pipeline import Pipeline
 from beamaudit.api.intake.postprocess import Completion
 from beamaudit.api.store import models as m
@@ -43,6 +46,8 @@ class PullOutcome:
     skipped_known: int = 0
     errors: list[dict[str, str]] = field(default_factory=list)
     watermark: date | None = None
+    #: what measuring CT patients' size did (``SizingSummary.as_dict``)
+    ct_size: dict[str, Any] | None = None
 
     def as_dict(self) -> dict[str, Any]:
         return {
@@ -55,6 +60,7 @@ class PullOutcome:
             "skipped_known": self.skipped_known,
             "errors": self.errors,
             "watermark": self.watermark.isoformat() if self.watermark else None,
+            **({"ct_size": self.ct_size} if self.ct_size is not None else {}),
         }
 
 
@@ -175,11 +181,15 @@ def pull_source(
                 is not None
             )
 
+    sizer = StudySizer(sessions)
+
     def on_instance(ds: Any, wado_url: str) -> None:
         result = read_dataset(ds, pseudonymiser=pseudonymiser, source=wado_url)
         stored = pipeline.store(result, received_via="pull", received_from=wado_url)
         if stored.status == "stored":
             outcome.events += stored.events
+            if result.source.sop_class_uid in CT_IMAGE_CLASSES:
+                keep_frame_header(sizer, client_source, ds, wado_url)
         elif stored.status == "duplicate":
             outcome.duplicates += 1
         else:
@@ -196,10 +206,13 @@ def pull_source(
         known_sop_instance_uids=known,
         sop_classes=set(ACCEPTED_SOP_CLASSES),
     )
+    sized = sizer.finish_all(received_via="pull")
+    outcome.ct_size = sized.as_dict()
     outcome.studies = report.studies
     outcome.instances = report.instances
     outcome.skipped_known = report.skipped_known
     outcome.errors = [{"source": p.source, "reason": p.reason} for p in report.errors]
+    outcome.errors += [{"source": e.source or "", "reason": e.reason} for e in sized.errors]
     if report.errors:
         pipeline.record_errors(
             [(IngestError("unreadable", p.reason, p.source), p.source) for p in report.errors],

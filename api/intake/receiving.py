@@ -18,6 +18,7 @@ from collections.abc import Callable
 
 from sqlalchemy.exc import SQLAlchemyError
 
+from beamaudit.api.intake.ct_sizing import CT_IMAGE_CLASSES, ArrivalSizer
 from beamaudit.api.intake.pipeline import Pipeline
 from beamaudit.ingest.errors import ErrorCode, IngestError
 from beamaudit.ingest.listener import ReceivedObject, RejectedObject, StoreOutcome
@@ -50,11 +51,14 @@ def make_store_handler(
     *,
     after_store: Callable[[list[int]], object] | None = None,
     received_via: str = "listen",
+    sizer: ArrivalSizer | None = None,
 ) -> StoreHandler:
     """A thread-safe handler bound to ``pipeline`` (dependencies bound here, no globals).
 
     ``after_store`` gets the ids of newly stored events (reconstruction); its
-    failure does not undo the stored object, which is already durable.
+    failure does not undo the stored object, which is already durable. ``sizer`` measures
+    CT patients' size from the stored CT images (:class:`~beamaudit.api.intake.ct_sizing.
+    ArrivalSizer`: a few images' pixels, decoded while the handler runs and dropped at once).
     """
     from beamaudit.ingest.reader import read_bytes
 
@@ -90,6 +94,16 @@ def make_store_handler(
             return StoreOutcome.cannot_understand(
                 outcome.reason or "conflicts with a stored object"
             )
+        is_ct_image = result.source.sop_class_uid in CT_IMAGE_CLASSES
+        if sizer is not None and outcome.status == "stored" and is_ct_image:
+            try:
+                sizer.received(
+                    received.dataset,
+                    encoded=received.received_path or received.encoded,
+                    source=source,
+                )
+            except Exception:  # the object is stored; its size can be measured again
+                log.exception("measuring %s failed", received.sop_instance_uid)
         if after_store is not None and outcome.event_ids:
             try:
                 after_store(outcome.event_ids)

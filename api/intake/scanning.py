@@ -18,10 +18,13 @@ from collections import Counter
 from collections.abc import Callable, Iterable, Iterator, Sequence
 from concurrent.futures import ProcessPoolExecutor
 from dataclasses import dataclass, field
+from functools import partial
 from pathlib import Path
 from typing import Any
 
+from beamaudit.api.intake.ct_sizing import CT_IMAGE_CLASSES, StudySizer, file_header
 from beamaudit.api.intake.pipeline import Pipeline, StoreOutcome, prepare
+from beamaudit.ingest.ct_images import read_ct_size_image
 from beamaudit.ingest.errors import IngestError
 from beamaudit.ingest.events import ParseResult
 from beamaudit.ingest.scrub import remove_values
@@ -44,6 +47,8 @@ class ScanSummary:
     skipped: int = 0  # DICOMDIR indexes
     errors: list[dict[str, str]] = field(default_factory=list)
     stored_event_ids: list[int] = field(default_factory=list)
+    #: what measuring CT patients' size did (``SizingSummary.as_dict``), when it ran
+    ct_size: dict[str, Any] | None = None
 
     def errors_by_reason(self) -> Counter[str]:
         return Counter(e["code"] for e in self.errors)
@@ -56,6 +61,7 @@ class ScanSummary:
             "duplicates": self.duplicates,
             "skipped": self.skipped,
             "errors": self.errors,
+            **({"ct_size": self.ct_size} if self.ct_size is not None else {}),
         }
 
 
@@ -156,6 +162,7 @@ def scan_paths(
     workers: int = 1,
     received_via: str = "scan",
     on_file: Callable[[str], None] | None = None,
+    ct_size: bool = True,
 ) -> ScanSummary:
     """Scan ``paths`` (files or folders, recursively) into the store.
 
@@ -171,18 +178,24 @@ def scan_paths(
         Parser processes (1: parse in this process).
     on_file
         Called once per file after it is handled (progress display).
+    ct_size
+        Measure CT patients' size from their images once the scan's objects are stored
+        (:mod:`beamaudit.api.intake.ct_sizing`: only the chosen images' pixels are read).
     """
     from beamaudit.ingest.folder import iter_candidate_files
 
     summary = ScanSummary()
     batch: list[tuple[ParseResult, str | None, str | None]] = []
     pending_errors: list[tuple[IngestError, str | None]] = []
+    sizer = StudySizer(pipeline.sessions) if ct_size else None
 
     def flush() -> None:
         if batch:
             outcomes = pipeline.store_many(batch, received_via=received_via, prepared=True)
-            for (_, source, _), outcome in zip(batch, outcomes, strict=True):
+            for (result, source, _), outcome in zip(batch, outcomes, strict=True):
                 _count(summary, outcome, source, pending_errors)
+                if sizer is not None and outcome.status == "stored" and source:
+                    _keep_ct_header(sizer, result, source, summary, pending_errors)
             batch.clear()
         if pending_errors:
             pipeline.record_errors(pending_errors, received_via=received_via)
@@ -217,7 +230,32 @@ def scan_paths(
             on_file(path_text)
     note_unreadable_folders()
     flush()
+    if sizer is not None:
+        sized = sizer.finish_all(received_via=received_via)
+        summary.ct_size = sized.as_dict()
+        summary.errors.extend(
+            {"source": e.source or "", "code": e.code, "reason": e.reason} for e in sized.errors
+        )
     return summary
+
+
+def _keep_ct_header(
+    sizer: StudySizer,
+    result: ParseResult,
+    path: str,
+    summary: ScanSummary,
+    pending_errors: list[tuple[IngestError, str | None]],
+) -> None:
+    """A stored CT image's size header, kept with how to read its pixels later."""
+    if result.source.sop_class_uid not in CT_IMAGE_CLASSES:
+        return
+    try:
+        header = file_header(path)
+    except IngestError as exc:
+        summary.errors.append({"source": path, "code": exc.code, "reason": exc.reason})
+        pending_errors.append((exc, path))
+        return
+    sizer.add(header, partial(read_ct_size_image, path), path)
 
 
 def _count(

@@ -267,6 +267,27 @@ class ExposureEventRow(Base):
     ct_phantom_diameter_cm: Mapped[float | None] = mapped_column(Float)
     water_equivalent_diameter_mm: Mapped[float | None] = mapped_column(Float)
     ssde_mgy: Mapped[float | None] = mapped_column(Float)
+    # the scanner's size figures as reported (CID 10024 / 10023 methods, TID 10013 dimensions)
+    water_equivalent_diameter_method: Mapped[str | None] = mapped_column(String)
+    ssde_method: Mapped[str | None] = mapped_column(String)
+    ct_lateral_dimension_mm: Mapped[float | None] = mapped_column(Float)
+    ct_ap_dimension_mm: Mapped[float | None] = mapped_column(Float)
+    effective_diameter_mm: Mapped[float | None] = mapped_column(Float)
+    # the acquisition's scan range (TID 10014) in patient coordinates of the frame of reference
+    ct_scan_z_top_mm: Mapped[float | None] = mapped_column(Float)
+    ct_scan_z_bottom_mm: Mapped[float | None] = mapped_column(Float)
+    frame_of_reference_uid: Mapped[str | None] = mapped_column(String)
+    # our water-equivalent diameter from the images (AAPM 220 / IEC 62985, api/intake/ct_sizing.py)
+    size_dw_mean_cm: Mapped[float | None] = mapped_column(Float)  # averaged over the scan range
+    size_dw_centre_cm: Mapped[float | None] = mapped_column(Float)  # at the centre of the range
+    size_method: Mapped[str | None] = mapped_column(String)  # axial_images | localizer
+    size_images_used: Mapped[int | None] = mapped_column(Integer)
+    size_truncated_share: Mapped[float | None] = mapped_column(Float)
+    size_trail: Mapped[dict[str, Any] | None] = mapped_column(JSONValue)
+    # SSDE from our Dw, beside the scanner's ssde_mgy
+    size_ssde_mgy: Mapped[float | None] = mapped_column(Float)
+    size_ssde_report: Mapped[str | None] = mapped_column(String)  # AAPM Report 204 / 293
+    ssde_ratio_reported_to_size: Mapped[float | None] = mapped_column(Float)
     ct_scan_length_mm: Mapped[float | None] = mapped_column(Float)
     ct_pitch_factor: Mapped[float | None] = mapped_column(Float)
     ct_total_collimation_mm: Mapped[float | None] = mapped_column(Float)

@@ -265,6 +265,42 @@ def why_steps(trail_steps: list[dict[str, Any]]) -> list[dict[str, Any]]:
     return steps
 
 
+def _size_figures(e: m.ExposureEventRow) -> dict[str, Any]:
+    """A CT event's patient size from the images and SSDE from it, beside the scanner's."""
+    out: dict[str, Any] = {}
+    if e.size_dw_mean_cm is not None:
+        how = (
+            f"AAPM Report 220 / IEC 62985, "
+            f"{(e.size_method or 'axial_images').replace('_', ' ')}: {e.size_images_used} used"
+            + (
+                f", {e.size_truncated_share:.0%} truncated (Dw too small there)"
+                if e.size_truncated_share
+                else ""
+            )
+        )
+        dw: dict[str, Any] = {"value": float(e.size_dw_mean_cm), "unit": "cm", "source": how}
+        if e.water_equivalent_diameter_mm:
+            dw["reported"] = e.water_equivalent_diameter_mm / 10.0
+            dw["ratio"] = dw["reported"] / dw["value"]
+        out["water_equivalent_diameter_cm"] = dw
+        if e.size_dw_centre_cm is not None:
+            out["water_equivalent_diameter_centre_cm"] = {
+                "value": float(e.size_dw_centre_cm), "unit": "cm", "source": how,
+            }  # fmt: skip
+    if e.size_ssde_mgy is not None:
+        ssde: dict[str, Any] = {
+            "value": float(e.size_ssde_mgy),
+            "source": f"{e.size_ssde_report}, from the scan-range average Dw",
+        }
+        if e.ssde_mgy is not None and e.size_ssde_mgy > 0:
+            ssde["reported"] = float(e.ssde_mgy)
+            ssde["ratio"] = float(e.ssde_mgy) / float(e.size_ssde_mgy)
+        out["ssde_mgy"] = ssde
+    elif e.ssde_mgy is not None:
+        out["ssde_mgy"] = {"value": float(e.ssde_mgy), "reported": float(e.ssde_mgy), "ratio": 1.0}
+    return out
+
+
 def _spectrum(event: m.ExposureEventRow) -> dict[str, Any] | None:
     """The beam of the event's stored recipe (never the room's current calibration)."""
     from beamaudit.api.intake.reconstruct import beam_for_event
@@ -338,6 +374,7 @@ def exam_record(
             value = getattr(e, attr)
             if value is not None:
                 dose[name] = {"value": float(value), "reported": float(value), "ratio": 1.0}
+        dose.update(_size_figures(e))
         if not dose and e.dap_gy_cm2 is not None:
             dose["dap_gy_cm2"] = {
                 "value": float(e.dap_gy_cm2),

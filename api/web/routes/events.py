@@ -40,6 +40,7 @@ from beamaudit.api.web.schemas.events import (
     EventPatient,
     EventReconstructed,
     EventReported,
+    EventSize,
     EventSummary,
     EventTechnique,
     ExamDetail,
@@ -64,13 +65,14 @@ _COMPARED: tuple[tuple[str, str, str | None, str, str | None], ...] = (
     ("entrance_dose_mgy", "mGy", None, "recon_entrance_dose_mgy", None),
     # mammography: the device's AGD (Organ Dose) beside our D_G (Dance method)
     ("agd_mgy", "mGy", "organ_dose_mgy", "recon_mgd_mgy", "recon_mgd_u_mgy"),
+    # CT: the scanner's SSDE beside SSDE from our Dw (api/intake/ct_sizing.py)
+    ("ssde_mgy", "mGy", "ssde_mgy", "size_ssde_mgy", None),
 )
 #: Reported-only quantities shown in the breakdown when present.
 _REPORTED_ONLY: tuple[tuple[str, str], ...] = (
     ("reference_point_air_kerma_mgy", "mGy"),
     ("ctdivol_mgy", "mGy"),
     ("dlp_mgy_cm", "mGy·cm"),
-    ("ssde_mgy", "mGy"),
 )
 
 
@@ -209,6 +211,8 @@ def dose_breakdown(row: m.ExposureEventRow) -> list[DoseComparison]:
             ratio = row.dap_ratio_reported_to_recon
         if quantity == "agd_mgy":
             ratio = row.agd_ratio_reported_to_recon  # None for a dose of another organ
+        if quantity == "ssde_mgy" and row.ssde_ratio_reported_to_size is not None:
+            ratio = row.ssde_ratio_reported_to_size
         out.append(
             DoseComparison(
                 quantity=quantity,
@@ -268,6 +272,26 @@ def event_mammography(row: m.ExposureEventRow) -> EventMammography:
     )
 
 
+def event_size(row: m.ExposureEventRow) -> EventSize:
+    """The patient size of ``row``: ours from the images beside the scanner's."""
+    return EventSize(
+        dw_mean_cm=row.size_dw_mean_cm,
+        dw_centre_cm=row.size_dw_centre_cm,
+        method=row.size_method,
+        images_used=row.size_images_used,
+        truncated_share=row.size_truncated_share,
+        ssde_mgy=row.size_ssde_mgy,
+        ssde_report=row.size_ssde_report,
+        ssde_ratio_reported_to_size=row.ssde_ratio_reported_to_size,
+        scanner_dw_mm=row.water_equivalent_diameter_mm,
+        scanner_dw_method=row.water_equivalent_diameter_method,
+        scanner_ssde_method=row.ssde_method,
+        scanner_effective_diameter_mm=row.effective_diameter_mm,
+        scan_z_top_mm=row.ct_scan_z_top_mm,
+        scan_z_bottom_mm=row.ct_scan_z_bottom_mm,
+    )
+
+
 def _group(model: type[Any], row: Any, prefix: str = "") -> Any:
     return model.model_validate({name: getattr(row, prefix + name) for name in model.model_fields})
 
@@ -303,6 +327,7 @@ def get_event(event_id: IdPath, session: DbSession, _: Physicist) -> EventDetail
         geometry=_group(EventGeometry, row),
         reported=_group(EventReported, row),
         reconstructed=_group(EventReconstructed, row, prefix="recon_"),
+        size=event_size(row),
         effective_dose=_group(EventEffectiveDose, row),
         dose_breakdown=dose_breakdown(row),
         mammography=event_mammography(row) if is_mammography(row) else None,

@@ -28,6 +28,7 @@ __all__ = [
     "EventPatient",
     "EventReconstructed",
     "EventReported",
+    "EventSize",
     "EventSummary",
     "EventTechnique",
     "ExamDetail",
@@ -168,6 +169,30 @@ class EventReconstructed(ReadModel):
     fsd_mm: float | None = Field(description="focus to skin distance used")
 
 
+class EventSize(ReadModel):
+    """A CT patient's size: ours from the images (AAPM Report 220 / IEC 62985) beside the
+    scanner's, and SSDE from ours (``size_*`` columns; null where no image was read)."""
+
+    dw_mean_cm: float | None = Field(
+        description="water-equivalent diameter averaged over the acquisition's scan range"
+    )
+    dw_centre_cm: float | None = Field(description="water-equivalent diameter at its centre")
+    method: str | None = Field(description="axial_images (localizers need a calibration)")
+    images_used: int | None = Field(description="images whose pixels gave the size")
+    truncated_share: float | None = Field(
+        description="share of those images with the patient on the edge of the field of view"
+    )
+    ssde_mgy: float | None = Field(description="SSDE from dw_mean_cm and the CTDIvol")
+    ssde_report: str | None = Field(description="whose fit: AAPM Report 204 (body) or 293 (head)")
+    ssde_ratio_reported_to_size: float | None = Field(description="the scanner's SSDE over ours")
+    scanner_dw_mm: float | None = Field(description="the scanner's water-equivalent diameter")
+    scanner_dw_method: str | None = Field(description="how the scanner got it (CID 10024)")
+    scanner_ssde_method: str | None = Field(description="how the scanner got its SSDE (CID 10023)")
+    scanner_effective_diameter_mm: float | None
+    scan_z_top_mm: float | None = Field(description="scan range as reported (TID 10014)")
+    scan_z_bottom_mm: float | None
+
+
 class DoseComparison(ReadModel):
     """One quantity, reported beside reconstructed."""
 
@@ -230,6 +255,7 @@ class EventDetail(ReadModel):
     geometry: EventGeometry
     reported: EventReported
     reconstructed: EventReconstructed
+    size: EventSize
     effective_dose: EventEffectiveDose
     dose_breakdown: list[DoseComparison]
     mammography: EventMammography | None = Field(

@@ -1,0 +1,503 @@
+"""CT patient size from the images, joined to the stored events (issue #27).
+
+The intake keeps, per study, the *headers* of its CT images (:class:`~beamaudit.ingest.
+ct_images.CtImageHeader`, a few numbers each) with a way to read each image's pixels later
+(a path, a WADO-RS frame, or nothing when the pixels were measured on arrival). Once a study's
+images are in (the end of a folder scan, a pull, the listener's association), :meth:`StudySizer.
+finish` chooses the images worth reading (``select_size_images``: every 50 mm of one series per
+acquisition, with its first, last and centre image), reads only those, one at a time, computes
+each one's water-equivalent diameter Dw (AAPM Report 220, eq. 2-3, ``model/ct_size.py``) and drops
+the pixels at once. Per acquisition it then writes onto the study's CT events:
+
+- ``size_dw_mean_cm`` (Dw averaged over the event's scan range: TID 10014's Top/Bottom Z Location
+  of Scanning Length when the event carries them in the images' frame of reference, else the range
+  of the acquisition's images) and ``size_dw_centre_cm`` (Dw at its centre), ``size_method``
+  (``axial_images``), ``size_images_used``, ``size_truncated_share`` (the share of the images used
+  whose patient touched the edge of the field of view), ``size_trail`` (the why trail);
+- ``size_ssde_mgy``: SSDE from that Dw (the scan-range average) and the event's CTDIvol, by AAPM
+  Report 204's body fit, or AAPM Report 293's head fit for a CTDIvol referred to the 16 cm phantom
+  (``size_ssde_report`` names which), and ``ssde_ratio_reported_to_size`` where the scanner's
+  own SSDE is known.
+
+Which events an acquisition's size goes to: the events whose Irradiation Event UID is the
+acquisition's, the image-header events of the acquisition's own images, and dose-report events
+whose scan range lies in the images' frame of reference and overlaps them. Localizers are chosen
+and counted but give no Dw here: the localizer method needs a calibration to water per scanner,
+kV and view that a physicist provides (``model/ct_localizer.py``); until one is stored, a
+localizer's pixels are not read.
+
+An image that cannot be read or measured becomes an ingest error with the reason; the study's
+events stay as they are stored.
+"""
+
+from __future__ import annotations
+
+import logging
+import math
+import threading
+import time
+from collections.abc import Callable
+from dataclasses import dataclass, field
+from typing import Any
+
+import numpy as np
+from pydicom import dcmread
+from pydicom.dataset import Dataset
+from pydicom.errors import InvalidDicomError
+from sqlalchemy import select, update
+from sqlalchemy.orm import Session, sessionmaker
+
+from beamaudit.api.store import models as m
+from beamaudit.ingest.ct_images import (
+    AxialImage,
+    CtImageHeader,
+    CtSizeImage,
+    ct_image_header,
+    ct_size_image_from_frame,
+    read_ct_size_image,
+    select_size_images,
+)
+from beamaudit.ingest.errors import IngestError
+from beamaudit.model.ct_size import axial_sizes, scan_range_size
+from beamaudit.model.errors import ModelError
+from beamaudit.model.ssde import size_specific_dose_estimate
+
+__all__ = [
+    "CT_IMAGE_CLASSES",
+    "ArrivalSizer",
+    "ImageSample",
+    "SizingSummary",
+    "StudySizer",
+    "file_header",
+    "keep_frame_header",
+    "measure_image",
+]
+
+#: the SOP classes whose images may carry a patient's size (CT, enhanced CT, legacy converted)
+CT_IMAGE_CLASSES = frozenset(
+    {"1.2.840.10008.5.1.4.1.1.2", "1.2.840.10008.5.1.4.1.1.2.1", "1.2.840.10008.5.1.4.1.1.2.2"}
+)
+
+log = logging.getLogger(__name__)
+
+#: reads one image's pixels when called (a path read, a WADO-RS frame fetched)
+PixelReader = Callable[[], CtSizeImage]
+
+
+@dataclass(frozen=True, slots=True)
+class ImageSample:
+    """One image's size, the pixels already dropped."""
+
+    sop_instance_uid: str
+    z_mm: float
+    dw_cm: float
+    truncated: bool
+    pixel_data_bytes: int
+
+
+@dataclass(slots=True)
+class SizingSummary:
+    """What sizing did: studies, images read and their pixel bytes, events given a size."""
+
+    studies: int = 0
+    images: int = 0
+    images_read: int = 0
+    pixel_data_bytes_read: int = 0
+    pixel_data_bytes_all: int = 0
+    events_sized: int = 0
+    seconds: float = 0.0
+    errors: list[IngestError] = field(default_factory=list)
+
+    def as_dict(self) -> dict[str, Any]:
+        return {
+            "studies": self.studies,
+            "images": self.images,
+            "images_read": self.images_read,
+            "pixel_data_bytes_read": self.pixel_data_bytes_read,
+            "pixel_data_bytes_all": self.pixel_data_bytes_all,
+            "events_sized": self.events_sized,
+            "seconds": round(self.seconds, 3),
+            "errors": len(self.errors),
+        }
+
+
+def file_header(path: str) -> CtImageHeader:
+    """A CT image file's size header, read without its pixel data."""
+    try:
+        ds = dcmread(path, stop_before_pixels=True, force=True)
+    except (OSError, ValueError, TypeError, EOFError, InvalidDicomError) as exc:
+        raise IngestError(
+            "unreadable", f"patient size: cannot read the header: {exc}", path
+        ) from None
+    return ct_image_header(ds, source=path)
+
+
+def keep_frame_header(sizer: StudySizer, source: Any, metadata: Dataset, wado_url: str) -> None:
+    """A pulled CT image's size header (from its metadata), its pixels to be fetched only if
+    chosen: frame 1 by WADO-RS (PS3.18 10.4.1.1.3), uncompressed (``application/octet-stream``)
+    through ``source`` (an ``ingest.dicomweb.DicomwebSource``: its limits and login)."""
+    try:
+        header = ct_image_header(metadata, source=wado_url)
+    except IngestError as exc:
+        sizer.record_errors([_sized_error(exc, wado_url)], "pull")
+        return
+    uids = (header.study_instance_uid, header.series_instance_uid, header.sop_instance_uid)
+
+    def read() -> CtSizeImage:
+        try:
+            frames = source.call(
+                source.client.retrieve_instance_frames, *uids, frame_numbers=[1],
+                media_types=("application/octet-stream",),
+            )  # fmt: skip
+        except IngestError:
+            raise
+        except Exception as exc:  # HTTP and decoding failures of the peer, one image
+            raise IngestError(
+                "unreadable", f"frame retrieval failed ({type(exc).__name__})", wado_url
+            ) from None
+        # dicomweb-client gives a bytearray, which pydicom would take for a list of values
+        return ct_size_image_from_frame(metadata, bytes(frames[0]), source=wado_url)
+
+    sizer.add(header, read, wado_url)
+
+
+def measure_image(image: CtSizeImage, header: CtImageHeader) -> ImageSample | None:
+    """Dw of one axial image (None for a localizer: no calibration to water here)."""
+    if not isinstance(image, AxialImage):
+        return None
+    if image.z_mm is None:
+        raise IngestError("missing_attribute", "an axial image without a table position")
+    try:
+        sizes = axial_sizes(image.ct_numbers_hu, pixel_spacing_mm=image.pixel_spacing_mm)
+    except ModelError as exc:
+        raise IngestError("bad_value", f"patient size not measurable: {exc}") from None
+    dw = float(sizes.water_equivalent_diameter_cm[0])
+    if not math.isfinite(dw):
+        raise IngestError("bad_value", "patient size not measurable: no patient in the image")
+    return ImageSample(
+        header.sop_instance_uid,
+        float(image.z_mm),
+        dw,
+        bool(sizes.truncated_fraction[0] > 0.0),
+        header.pixel_data_bytes,
+    )
+
+
+class StudySizer:
+    """Collects CT image headers per study; sizes a study when asked (module docstring)."""
+
+    def __init__(self, sessions: sessionmaker[Session], *, axial_spacing_mm: float = 50.0) -> None:
+        self._sessions = sessions
+        self._spacing = axial_spacing_mm
+        self._headers: dict[str, list[tuple[CtImageHeader, PixelReader | None, str]]] = {}
+        self._measured: dict[str, ImageSample] = {}
+        self.summary = SizingSummary()
+
+    @property
+    def studies(self) -> list[str]:
+        """Studies with headers waiting to be sized."""
+        return list(self._headers)
+
+    def add(self, header: CtImageHeader, reader: PixelReader | None, source: str) -> None:
+        """Keep one image's header and how to read its pixels (``source`` names it in errors)."""
+        if header.study_instance_uid and header.kind != "other":
+            self._headers.setdefault(header.study_instance_uid, []).append((header, reader, source))
+
+    def add_measured(self, header: CtImageHeader, sample: ImageSample | None, source: str) -> None:
+        """Keep a header whose pixels were measured on arrival, or not at all (the listener).
+
+        Measured samples all count at :meth:`finish`; no pixel data is kept."""
+        if sample is not None:
+            self._measured[header.sop_instance_uid] = sample
+        self.add(header, None, source)
+
+    def finish(self, study_instance_uid: str, *, received_via: str) -> int:
+        """Size one study: read the chosen images, store the sizes. Returns events sized."""
+        entries = self._headers.pop(study_instance_uid, [])
+        if not entries:
+            return 0
+        started = time.perf_counter()
+        by_uid = {h.sop_instance_uid: (h, reader, source) for h, reader, source in entries}
+        selection = select_size_images([h for h, _, _ in entries], axial_spacing_mm=self._spacing)
+        self.summary.studies += 1
+        self.summary.images += selection.images
+        self.summary.pixel_data_bytes_all += selection.pixel_data_bytes_all
+        errors: list[IngestError] = []
+        samples: dict[str, list[ImageSample]] = {}
+        for h, _, _ in entries:  # measured on arrival (the listener): every one counts
+            measured = self._measured.pop(h.sop_instance_uid, None)
+            if measured is not None:
+                samples.setdefault(h.acquisition_group, []).append(measured)
+        for chosen in selection.selected:
+            if chosen.kind != "axial":
+                continue  # localizers wait for a stored calibration (module docstring)
+            header, reader, source = by_uid[chosen.sop_instance_uid]
+            sample = None
+            if reader is not None:
+                try:
+                    sample = measure_image(reader(), header)
+                except IngestError as exc:
+                    errors.append(
+                        IngestError(exc.code, f"patient size: {exc.reason}", exc.source or source)
+                    )
+                    continue
+                self.summary.images_read += 1
+                self.summary.pixel_data_bytes_read += header.pixel_data_bytes
+            if sample is not None:
+                samples.setdefault(chosen.acquisition_group, []).append(sample)
+        sized = 0
+        if samples:
+            sized = self._store(study_instance_uid, entries, samples, errors)
+        self.summary.events_sized += sized
+        if errors:
+            self.record_errors(errors, received_via)
+        self.summary.seconds += time.perf_counter() - started
+        return sized
+
+    def finish_all(self, *, received_via: str) -> SizingSummary:
+        """Size every study collected so far."""
+        for study in self.studies:
+            try:
+                self.finish(study, received_via=received_via)
+            except Exception:  # one study's failure never stops the others; events stay
+                log.exception("sizing a CT study failed")
+        return self.summary
+
+    # -- storing ---------------------------------------------------------------------------
+    @property
+    def axial_spacing_mm(self) -> float:
+        """The sampling spacing along the table."""
+        return self._spacing
+
+    def record_errors(self, errors: list[IngestError], received_via: str) -> None:
+        """Store ingest errors of sizing (one transaction)."""
+        self.summary.errors.extend(errors)
+        with self._sessions.begin() as session:
+            for error in errors:
+                session.add(
+                    m.IngestError(
+                        received_via=received_via,
+                        source=error.source or "(unknown)",
+                        code=error.code,
+                        reason=error.reason,
+                    )
+                )
+
+    def _store(
+        self,
+        study_uid: str,
+        entries: list[tuple[CtImageHeader, PixelReader | None, str]],
+        samples: dict[str, list[ImageSample]],
+        errors: list[IngestError],
+    ) -> int:
+        groups: dict[str, list[CtImageHeader]] = {}
+        for h, _, _ in entries:
+            groups.setdefault(h.acquisition_group, []).append(h)
+        sized = 0
+        with self._sessions.begin() as session:
+            rows = session.execute(
+                select(
+                    m.ExposureEventRow.id,
+                    m.ExposureEventRow.irradiation_event_uid,
+                    m.ExposureEventRow.ctdivol_mgy,
+                    m.ExposureEventRow.ct_phantom_diameter_cm,
+                    m.ExposureEventRow.ssde_mgy,
+                    m.ExposureEventRow.ct_scan_z_top_mm,
+                    m.ExposureEventRow.ct_scan_z_bottom_mm,
+                    m.ExposureEventRow.frame_of_reference_uid,
+                    m.SourceObjectRow.sop_instance_uid,
+                )
+                .join(
+                    m.SourceObjectRow, m.SourceObjectRow.id == m.ExposureEventRow.source_object_id
+                )
+                .join(m.Study, m.Study.id == m.ExposureEventRow.study_id)
+                .where(m.Study.study_instance_uid == study_uid)
+                .where(m.ExposureEventRow.modality == "CT")
+            ).all()
+            done: set[int] = set()
+            for group, group_samples in samples.items():
+                headers = groups.get(group, [])
+                own = {h.sop_instance_uid for h in headers}
+                frames = {h.frame_of_reference_uid for h in headers if h.frame_of_reference_uid}
+                z_all = [h.z_mm for h in headers if h.z_mm is not None]
+                z_lo, z_hi = min(z_all), max(z_all)
+                for row in rows:
+                    if row.id in done:
+                        continue
+                    scan_range = _scan_range(row, frames)
+                    if not (
+                        row.irradiation_event_uid == group
+                        or row.sop_instance_uid in own
+                        or (scan_range and scan_range[0] <= z_hi and scan_range[1] >= z_lo)
+                    ):
+                        continue
+                    lo, hi = scan_range or (z_lo, z_hi)
+                    values = _event_size(group_samples, lo, hi, row, errors, study_uid)
+                    if values is None:
+                        continue
+                    session.execute(
+                        update(m.ExposureEventRow)
+                        .where(m.ExposureEventRow.id == row.id)
+                        .values(**values)
+                    )
+                    done.add(row.id)
+                    sized += 1
+        return sized
+
+
+def _scan_range(row: Any, frames: set[str]) -> tuple[float, float] | None:
+    """An event's own scan range (TID 10014) when it lies in the images' frame of reference."""
+    top, bottom = row.ct_scan_z_top_mm, row.ct_scan_z_bottom_mm
+    if top is None or bottom is None or row.frame_of_reference_uid not in frames:
+        return None
+    return (min(top, bottom), max(top, bottom))
+
+
+def _event_size(
+    samples: list[ImageSample],
+    z_start: float,
+    z_end: float,
+    row: Any,
+    errors: list[IngestError],
+    study_uid: str,
+) -> dict[str, Any] | None:
+    z = np.array([s.z_mm for s in samples])
+    dw = np.array([s.dw_cm for s in samples])
+    truncated = np.array([s.truncated for s in samples])
+    try:
+        size = scan_range_size(
+            z_mm=z, dw_cm=dw, z_start_mm=z_start, z_end_mm=z_end, truncated=truncated
+        )
+    except ModelError as exc:
+        errors.append(IngestError("bad_value", f"patient size: {exc}", f"study {study_uid}"))
+        return None
+    trail = [step.as_dict() for step in size.trail.steps]
+    values: dict[str, Any] = {
+        "size_dw_mean_cm": size.mean_dw_cm,
+        "size_dw_centre_cm": size.centre_dw_cm,
+        "size_method": "axial_images",
+        "size_images_used": size.n_samples,
+        "size_truncated_share": size.truncated_samples / size.n_samples,
+        "size_ssde_mgy": None,
+        "size_ssde_report": None,
+        "ssde_ratio_reported_to_size": None,
+    }
+    if row.ctdivol_mgy is not None:
+        phantom = row.ct_phantom_diameter_cm or 32.0
+        region = "head" if phantom == 16.0 else "body"
+        try:
+            ssde = size_specific_dose_estimate(
+                ctdivol_mgy=row.ctdivol_mgy,
+                diameter_cm=size.mean_dw_cm,
+                phantom_diameter_cm=phantom,
+                diameter_source="Dw from the images, averaged over the scan range",
+                body_region=region,
+            )
+        except ModelError as exc:
+            trail.append({"quantity": "ssde_mgy", "value": None, "note": str(exc)})
+        else:
+            values["size_ssde_mgy"] = ssde.ssde_mgy
+            values["size_ssde_report"] = ssde.report
+            trail.extend(step.as_dict() for step in ssde.trail.steps)
+            if row.ssde_mgy and ssde.ssde_mgy > 0:
+                values["ssde_ratio_reported_to_size"] = row.ssde_mgy / ssde.ssde_mgy
+    values["size_trail"] = {"steps": trail}
+    return values
+
+
+class ArrivalSizer:
+    """CT patient size for objects that arrive one by one (the C-STORE listener).
+
+    The listener holds each received dataset only while its handler runs, and the images of a
+    study come in no known order, so the choice is made on arrival: an axial image is measured
+    (its pixels decoded, its Dw computed, the pixels dropped before the handler returns) when
+    no image of its series measured so far lies closer than the sampling spacing (50 mm), so
+    a series sent in order is sampled every 50 mm from its first image (the range beyond the
+    last sample is held at its Dw, which the trail records); every other image stays
+    header-only. A study is sized ``quiet_s`` seconds after its last image (and at
+    :meth:`close`); thread-safe (one handler thread per association).
+    """
+
+    def __init__(
+        self, sizer: StudySizer, *, quiet_s: float = 30.0, received_via: str = "listen"
+    ) -> None:
+        self._sizer = sizer
+        self._quiet_s = quiet_s
+        self._via = received_via
+        self._lock = threading.Lock()
+        self._timers: dict[str, threading.Timer] = {}
+        self._taken: dict[str, list[float]] = {}
+
+    @property
+    def summary(self) -> SizingSummary:
+        return self._sizer.summary
+
+    def received(self, ds: Dataset, *, encoded: bytes | str, source: str) -> None:
+        """One stored CT image: keep its header (``ds``, read without pixels), and measure it
+        now, when it is worth it, from ``encoded``: the object as received (Part 10 bytes, or
+        the listener's file of it, which exists while the handler runs)."""
+        try:
+            header = ct_image_header(ds, source=source)
+        except IngestError as exc:
+            self._sizer.record_errors([_sized_error(exc, source)], self._via)
+            return
+        study = header.study_instance_uid
+        if not study or header.kind == "other":
+            return
+        sample = None
+        if self._worth_measuring(header):
+            try:
+                image = read_ct_size_image(encoded)
+                sample = measure_image(image, header)
+                del image  # the pixels go now; only the numbers stay
+            except IngestError as exc:
+                self._sizer.record_errors([_sized_error(exc, source)], self._via)
+            else:
+                with self._lock:
+                    summary = self._sizer.summary
+                    summary.images_read += 1
+                    summary.pixel_data_bytes_read += header.pixel_data_bytes
+        with self._lock:
+            self._sizer.add_measured(header, sample, source)
+            timer = self._timers.pop(study, None)
+            if timer is not None:
+                timer.cancel()
+            timer = threading.Timer(self._quiet_s, self._finish, args=(study,))
+            timer.daemon = True
+            self._timers[study] = timer
+            timer.start()
+
+    def _worth_measuring(self, header: CtImageHeader) -> bool:
+        if header.kind != "axial" or header.z_mm is None:
+            return False
+        key = header.series_instance_uid or header.acquisition_group
+        with self._lock:
+            taken = self._taken.setdefault(key, [])
+            if any(abs(z - header.z_mm) < self._sizer.axial_spacing_mm for z in taken):
+                return False
+            taken.append(header.z_mm)
+            return True
+
+    def _finish(self, study: str) -> None:
+        with self._lock:
+            self._timers.pop(study, None)
+            try:
+                self._sizer.finish(study, received_via=self._via)
+            except Exception:  # the events are stored; sizing can be redone
+                log.exception("sizing a CT study failed")
+
+    def close(self) -> SizingSummary:
+        """Size every study still waiting (the listener stops)."""
+        with self._lock:
+            for timer in self._timers.values():
+                timer.cancel()
+            studies = list(self._timers)
+            self._timers.clear()
+        for study in studies:
+            self._finish(study)
+        return self._sizer.summary
+
+
+def _sized_error(exc: IngestError, source: str) -> IngestError:
+    reason = exc.reason if exc.reason.startswith("patient size") else f"patient size: {exc.reason}"
+    return IngestError(exc.code, reason, exc.source or source)
