@@ -68,3 +68,17 @@ def test_serve_says_which_database_and_how_to_sign_in(tmp_path, capsys, monkeypa
     assert f"SQLite file {db}" in out
     assert "Sign in at http://127.0.0.1:8123/login" in out
     assert "beamaudit token create --role physicist" in out
+
+
+def test_exports_carry_the_states_in_the_pages_words_beside_the_codes() -> None:
+    import csv
+    import io
+
+    from beamaudit.api.review_export import groups_csv_text
+
+    result = {"groups": [{**GROUP, "reference_level": 0.4, "level_kind": "international",
+                          "status": "below_level", "ratio_to_level": 0.205}]}  # fmt: skip
+    row = next(csv.DictReader(io.StringIO(groups_csv_text(result))))
+    assert row["status"] == "below_level"  # the code, for programs
+    assert row["status_words"] == VOCABULARY["review status"]["below_level"]
+    assert row["level_kind_words"] == "International guidance"
