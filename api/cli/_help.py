@@ -51,8 +51,8 @@ def _metavar(param: Any) -> str:
             words = _WORDS.get(base, "TEXT") if isinstance(base, type) else "TEXT"
             if isinstance(base, type) and issubclass(base, PurePath):
                 words = "PATH"
-    elif getattr(kind, "choices", None):
-        words = "|".join(str(c) for c in kind.choices)
+    elif choices := getattr(kind, "choices", None):
+        words = "|".join(str(c) for c in choices)
     else:
         words = "TEXT"
     return words + ("..." if param.nargs == -1 and words else "")
