@@ -11,19 +11,29 @@ Every command and the web application call :func:`configure_logging` once. It
   (:func:`beamaudit.ingest.scrub.remove_values`), instead of printing them to stderr as they are.
 
 The filter is also put on the handlers already present (uvicorn's, when ``serve`` runs).
+
+``configure_logging(log_format="json")`` (``beamaudit --log-format json``) writes each record as
+one JSON object per line instead (:class:`JsonFormatter`: ``time``, ``level``, ``logger``,
+``message``, and ``exception`` with its values removed), after the same filter, so the same
+guarantee holds: no patient identifier or birth date in any line.
 """
 
 from __future__ import annotations
 
+import json
 import logging
 import warnings
-from typing import Any, TextIO
+from datetime import UTC, datetime
+from typing import Any, Literal, TextIO
 
 from beamaudit.ingest.scrub import escape_controls, remove_values
 
-__all__ = ["OneLineFilter", "configure_logging", "log_warning"]
+__all__ = ["LOG_FORMATS", "JsonFormatter", "OneLineFilter", "configure_logging", "log_warning"]
 
 FORMAT = "%(asctime)s %(levelname)s %(name)s: %(message)s"
+#: the formats ``--log-format`` takes
+LOG_FORMATS = ("text", "json")
+LogFormat = Literal["text", "json"]
 _WARNINGS = logging.getLogger("beamaudit.warnings")
 
 
@@ -91,22 +101,54 @@ class _StderrHandler(logging.StreamHandler):
         pass
 
 
+class JsonFormatter(logging.Formatter):
+    """One JSON object per record, on one line: ``time`` (UTC, ISO 8601), ``level``, ``logger``,
+    ``message`` (after :class:`OneLineFilter`) and, for a record with an exception, ``exception``
+    (the traceback with every quoted value and date-like number removed: an error's text may
+    quote a data value)."""
+
+    def format(self, record: logging.LogRecord) -> str:
+        body: dict[str, Any] = {
+            "time": datetime.fromtimestamp(record.created, UTC).isoformat(timespec="milliseconds"),
+            "level": record.levelname,
+            "logger": record.name,
+            "message": record.getMessage(),
+        }
+        if record.exc_info:
+            body["exception"] = remove_values(self.formatException(record.exc_info))
+        return json.dumps(body, ensure_ascii=False)
+
+
+def _formatter(log_format: str) -> logging.Formatter:
+    return JsonFormatter() if log_format == "json" else logging.Formatter(FORMAT)
+
+
 def _filtered(handler: logging.Handler) -> None:
     if not any(isinstance(f, OneLineFilter) for f in handler.filters):
         handler.addFilter(OneLineFilter())
 
 
-def configure_logging(level: int = logging.WARNING) -> None:
+def configure_logging(level: int = logging.WARNING, *, log_format: LogFormat | None = None) -> None:
     """Set up the root logger (idempotent; ``level`` lowers it, never raises it) and route
-    warnings through it (see the module docstring)."""
+    warnings through it (see the module docstring).
+
+    ``log_format`` ``"json"`` or ``"text"`` chooses the lines' format; ``None`` keeps the one
+    chosen before (text at first). The choice applies to uvicorn's handlers too.
+    """
     root = logging.getLogger()
-    if not any(getattr(h, "_beamaudit", False) for h in root.handlers):
+    ours = next((h for h in root.handlers if getattr(h, "_beamaudit", False)), None)
+    if ours is None:
         ours = _StderrHandler()
         ours.setFormatter(logging.Formatter(FORMAT))
         root.addHandler(ours)
+    if log_format is not None:
+        ours.setFormatter(_formatter(log_format))
+    chosen = "json" if isinstance(ours.formatter, JsonFormatter) else "text"
     if root.level > level:
         root.setLevel(level)
     for name in ("", "uvicorn", "uvicorn.error", "uvicorn.access"):
         for handler in logging.getLogger(name).handlers:
             _filtered(handler)
+            if chosen == "json" and handler is not ours:
+                handler.setFormatter(JsonFormatter())
     warnings.showwarning = log_warning

@@ -20,7 +20,7 @@ from __future__ import annotations
 import os
 import tomllib
 from pathlib import Path
-from typing import Any
+from typing import Any, Literal
 
 from pydantic import BaseModel, Field, SecretStr, ValidationError, field_validator, model_validator
 from pydantic_settings import (
@@ -30,18 +30,25 @@ from pydantic_settings import (
     TomlConfigSettingsSource,
 )
 
+from beamaudit.api.errors import ApiError
+
 __all__ = [
     "ApiSettings",
     "ListenerSettings",
+    "MetricsSettings",
+    "NotifyRecipient",
+    "NotifySettings",
     "PullCredentials",
     "PullSettings",
     "Settings",
     "SettingsError",
+    "SmtpSettings",
+    "WebhookSettings",
     "load",
 ]
 
 
-class SettingsError(ValueError):
+class SettingsError(ApiError, ValueError):
     """The configuration cannot be used; the message says which setting and why."""
 
 
@@ -142,6 +149,156 @@ class PullSettings(BaseModel):
     retry_attempts: int = Field(default=3, ge=1, le=10)
 
 
+def _read_secret(value: SecretStr | None, path: Path | None, what: str) -> str:
+    """A secret given in the settings (or environment), else read from its file."""
+    if value is not None:
+        return value.get_secret_value()
+    assert path is not None
+    try:
+        return path.read_text(encoding="utf-8").strip()
+    except OSError as exc:
+        raise SettingsError(f"cannot read the {what} file {path}: {exc.strerror}") from None
+
+
+class SmtpSettings(BaseModel):
+    """The mail server notifications go through (``[notify.smtp]``).
+
+    ``security`` ``starttls`` (port 587, the default) upgrades the connection before logging in;
+    ``tls`` speaks TLS from the start (port 465); ``none`` only for a relay on this machine. The
+    password comes from ``password`` (better: ``BEAMAUDIT_NOTIFY__SMTP__PASSWORD``) or
+    ``password_file``; it is never logged nor stored in a table.
+    """
+
+    host: str = Field(min_length=1)
+    port: int = Field(default=587, ge=1, le=65535)
+    security: Literal["starttls", "tls", "none"] = "starttls"
+    username: str | None = None
+    password: SecretStr | None = None
+    password_file: Path | None = None
+    #: the From address
+    sender: str = Field(min_length=3)
+    #: a CA certificate file to trust besides the system's (a hospital's own CA)
+    ca_file: Path | None = None
+    timeout_s: float = Field(default=30.0, gt=0, le=600)
+
+    @model_validator(mode="after")
+    def _login(self) -> SmtpSettings:
+        if self.username and self.password is None and self.password_file is None:
+            raise ValueError("a username needs password or password_file")
+        if self.password is not None and self.password_file is not None:
+            raise ValueError("give password or password_file, not both")
+        if self.security == "none" and self.username:
+            raise ValueError("security none would send the password in clear; use starttls")
+        return self
+
+    def secret(self) -> str | None:
+        """The password (None without a login)."""
+        if self.password is None and self.password_file is None:
+            return None
+        return _read_secret(self.password, self.password_file, "SMTP password")
+
+
+class WebhookSettings(BaseModel):
+    """A webhook a recipient's digests are POSTed to, signed with HMAC-SHA256.
+
+    ``secret`` (better: ``BEAMAUDIT_NOTIFY__RECIPIENTS__NAME__WEBHOOK__SECRET``) or
+    ``secret_file``; never logged nor stored in a table. The URL is HTTPS; plain HTTP only to a
+    loopback address (a relay on this machine).
+    """
+
+    url: str = Field(min_length=8)
+    secret: SecretStr | None = None
+    secret_file: Path | None = None
+    ca_file: Path | None = None
+    timeout_s: float = Field(default=10.0, gt=0, le=600)
+
+    @field_validator("url")
+    @classmethod
+    def _https(cls, value: str) -> str:
+        from urllib.parse import urlsplit
+
+        parts = urlsplit(value)
+        loopback = parts.hostname in {"127.0.0.1", "::1", "localhost"}
+        if parts.scheme != "https" and not (parts.scheme == "http" and loopback):
+            raise ValueError("a webhook URL must be https:// (http:// only to a loopback address)")
+        if parts.username or parts.password:
+            raise ValueError("no login inside a webhook URL; the body is signed with the secret")
+        return value
+
+    @model_validator(mode="after")
+    def _one_secret(self) -> WebhookSettings:
+        if (self.secret is None) == (self.secret_file is None):
+            raise ValueError("give exactly one of secret and secret_file")
+        return self
+
+    def key(self) -> bytes:
+        """The HMAC key."""
+        return _read_secret(self.secret, self.secret_file, "webhook secret").encode("utf-8")
+
+
+class NotifyRecipient(BaseModel):
+    """Who is told of new findings, how, and of which (``[notify.recipients.NAME]``)."""
+
+    #: a word for the role (``physicist``, ``committee``, ``room lead``...), shown in the digest
+    role: str | None = None
+    emails: list[str] = Field(default_factory=list)
+    webhook: WebhookSettings | None = None
+    #: only these kinds of finding (empty: every kind)
+    kinds: list[str] = Field(default_factory=list)
+    #: the least severe finding sent
+    min_severity: Literal["info", "warning", "action"] = "warning"
+    #: only findings of these rooms (empty: every room, and findings about no room)
+    rooms: list[str] = Field(default_factory=list)
+    #: send a short "nothing new" digest when nothing is new
+    quiet_digest: bool = False
+
+
+class NotifySettings(BaseModel):
+    """Notifications of new findings after ``nightly`` and after a review (``[notify]``).
+
+    A recipient with e-mail addresses is mailed through ``smtp``; with a ``webhook``, POSTed to.
+    Without a mail server (or without any recipient) the digest is written to ``outbox``, a file
+    of JSON lines, so it is never lost.
+    """
+
+    enabled: bool = True
+    #: the service's address as users reach it; links in the digest start with it
+    public_base_url: str = "http://127.0.0.1:8000"
+    smtp: SmtpSettings | None = None
+    recipients: dict[str, NotifyRecipient] = Field(default_factory=dict)
+    #: where digests go when no server is configured for them
+    outbox: Path = Path("beamaudit-outbox.jsonl")
+    #: attempts per delivery, waiting backoff_s, 2 x backoff_s, ... between them
+    attempts: int = Field(default=4, ge=1, le=10)
+    backoff_s: float = Field(default=2.0, ge=0, le=600)
+    #: findings listed in one digest (the rest counted, with a link)
+    max_items: int = Field(default=50, ge=1, le=1000)
+
+
+class MetricsSettings(BaseModel):
+    """``/metrics`` in the Prometheus text format (``[metrics]``).
+
+    Off by default. On, the service answers ``/metrics`` to an admin token; ``bind``
+    (``host:port``) serves it instead, without token, on an address of its own (``serve``), and
+    ``listener_bind`` the listener process's own (``listen``, with its association counts):
+    bind those to a private interface a scraper reaches.
+    """
+
+    enabled: bool = False
+    bind: str | None = None
+    listener_bind: str | None = None
+
+    @field_validator("bind", "listener_bind")
+    @classmethod
+    def _host_port(cls, value: str | None) -> str | None:
+        if value is None:
+            return None
+        host, sep, port = value.rpartition(":")
+        if not sep or not host or not port.isdigit() or not 0 < int(port) < 65536:
+            raise ValueError(f"{value!r} is not host:port")
+        return value
+
+
 class Settings(BaseSettings):
     """All of beamaudit's settings, validated when loaded."""
 
@@ -154,6 +311,8 @@ class Settings(BaseSettings):
     listener: ListenerSettings = Field(default_factory=ListenerSettings)
     api: ApiSettings = Field(default_factory=ApiSettings)
     pull: PullSettings = Field(default_factory=PullSettings)
+    notify: NotifySettings = Field(default_factory=NotifySettings)
+    metrics: MetricsSettings = Field(default_factory=MetricsSettings)
     standard_weight_kg: float = Field(default=70.0, gt=0)
     standard_weight_window_kg: float = Field(default=10.0, ge=0)
 

@@ -94,17 +94,32 @@ def _wait_dicom(port: int, timeout_s: float = 60.0) -> None:
     """Until a C-ECHO is answered (a bare TCP probe would hold an association slot a while)."""
     from pynetdicom import AE
 
+    from beamaudit.ingest.sender import open_association
+
     ae = AE(ae_title="LOADECHO")
     ae.add_requested_context("1.2.840.10008.1.1")  # Verification, PS3.4 Annex A
     deadline = time.monotonic() + timeout_s
     while time.monotonic() < deadline:
-        assoc = ae.associate(HOST, port, ae_title="BEAMAUDIT")
+        assoc = open_association(ae, HOST, port, ae_title="BEAMAUDIT")
         if assoc.is_established:
             assoc.send_c_echo()
             assoc.release()
             return
         time.sleep(0.2)
     raise SystemExit(f"no DICOM listener on {HOST}:{port}")
+
+
+def service_env(work: Path, database: str) -> tuple[dict[str, str], list[str]]:
+    """The environment of a benchmark's ``beamaudit`` processes, with their store migrated (the
+    SQLite file ``work/database``, or ``$BEAMAUDIT_BENCH_DATABASE_URL``), and the command."""
+    env = {k: v for k, v in os.environ.items() if not k.startswith("BEAMAUDIT_")}
+    env["BEAMAUDIT_DATABASE_URL"] = os.environ.get(
+        "BEAMAUDIT_BENCH_DATABASE_URL", f"sqlite:///{work / database}"
+    )
+    env["BEAMAUDIT_SECRET_KEY_PATH"] = str(work / "pseudonym.key")
+    beamaudit = [sys.executable, "-m", "beamaudit"]
+    subprocess.run([*beamaudit, "db", "upgrade"], env=env, check=True, capture_output=True)
+    return env, beamaudit
 
 
 def _percentile(values: list[float], q: float) -> float:
@@ -169,10 +184,12 @@ def _baseline(base: str) -> tuple[float, list[float]]:
 def _store_client(port: int, rec: Recorder, seed: int) -> None:
     from pynetdicom import AE
 
+    from beamaudit.ingest.sender import open_association
+
     rng = random.Random(seed)
     ae = AE(ae_title=f"LOAD{seed:02d}")
     ae.add_requested_context(DX, ExplicitVRLittleEndian)
-    assoc = ae.associate(HOST, port, ae_title="BEAMAUDIT")
+    assoc = open_association(ae, HOST, port, ae_title="BEAMAUDIT")
     if not assoc.is_established:
         rec.add(0.0, "association not established")
         return
@@ -202,13 +219,7 @@ def main(argv: list[str]) -> int:
     load_s = float(argv[1]) if len(argv) > 1 else LOAD_S
     with tempfile.TemporaryDirectory(prefix="beamaudit-bench-load-") as tmp:
         work = Path(tmp)
-        env = {k: v for k, v in os.environ.items() if not k.startswith("BEAMAUDIT_")}
-        env["BEAMAUDIT_DATABASE_URL"] = os.environ.get(
-            "BEAMAUDIT_BENCH_DATABASE_URL", f"sqlite:///{work / 'load.db'}"
-        )
-        env["BEAMAUDIT_SECRET_KEY_PATH"] = str(work / "pseudonym.key")
-        beamaudit = [sys.executable, "-m", "beamaudit"]
-        subprocess.run([*beamaudit, "db", "upgrade"], env=env, check=True, capture_output=True)
+        env, beamaudit = service_env(work, "load.db")
         made = subprocess.run(
             [*beamaudit, "token", "create", "--role", "physicist", "--name", "load test"],
             env=env, check=True, capture_output=True, text=True,

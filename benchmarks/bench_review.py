@@ -38,7 +38,7 @@ sys.path.insert(0, str(Path(__file__).parent))
 from review_data import fill
 
 from beamaudit.api.review import Period, ReviewParameters
-from beamaudit.api.reviews import execute_review
+from beamaudit.api.runs.reviews import execute_review
 from beamaudit.api.store import make_engine, make_session_factory, upgrade
 
 TARGET_S = 5.0

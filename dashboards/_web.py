@@ -59,6 +59,7 @@ ROUTES: dict[str, str] = {
     "report": "/reports/{period}",
     "ingest_errors": "/ingest-errors",
     "unmapped": "/unmapped",
+    "levels": "/levels",
     "login": "/login",
 }
 
@@ -66,6 +67,7 @@ _NAV = (
     ("/", "Overview", "overview"),
     ("/distributions", "Distributions", "distributions"),
     ("/flags", "Flags", "flags"),
+    ("/levels", "Reference levels", "levels"),
     ("/unmapped", "Unmapped protocols", "unmapped"),
     ("/ingest-errors", "Rejected files", "ingest_errors"),
 )

@@ -4,10 +4,12 @@ Every error this stage raises on bad input derives from :class:`DashboardError`,
 so the API can turn it into one clear message for the user.
 """
 
+from beamaudit.errors import BeamauditError
+
 __all__ = ["DashboardError", "TableError"]
 
 
-class DashboardError(ValueError):
+class DashboardError(BeamauditError, ValueError):
     """Base of every error raised by :mod:`beamaudit.dashboards`."""
 
 

@@ -20,6 +20,7 @@ import pandas as pd
 from beamaudit.dashboards import _exam_page, _history_figures, _rows, _web, figures
 from beamaudit.dashboards._heatmap_figure import heatmap_key
 from beamaudit.dashboards._intake_pages import render_ingest_errors, render_unmapped
+from beamaudit.dashboards._levels_page import render_levels
 from beamaudit.dashboards._web import (
     ROUTES,
     PageContext,
@@ -63,6 +64,7 @@ __all__ = [
     "render_exam",
     "render_flags",
     "render_ingest_errors",
+    "render_levels",
     "render_login",
     "render_overview",
     "render_room",

@@ -11,6 +11,8 @@ from __future__ import annotations
 
 from typing import Literal, get_args
 
+from beamaudit.errors import BeamauditError
+
 __all__ = ["ERROR_CODES", "ErrorCode", "IngestError"]
 
 ErrorCode = Literal[
@@ -28,7 +30,7 @@ ErrorCode = Literal[
 ERROR_CODES: frozenset[str] = frozenset(get_args(ErrorCode))
 
 
-class IngestError(Exception):
+class IngestError(BeamauditError):
     """An input ingest cannot use, with its source and the reason.
 
     Parameters

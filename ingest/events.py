@@ -9,7 +9,7 @@ is already converted once, here at the edge (see ``mapping.py``); every field
 that was read keeps its provenance (tag or concept code) in ``provenance``.
 
 These are plain dataclasses with no behaviour of the store or the model: the
-bridge in ``beamaudit.api.pipeline`` turns them into rows and model inputs.
+bridge in ``beamaudit.api.intake.pipeline`` turns them into rows and model inputs.
 """
 
 from __future__ import annotations

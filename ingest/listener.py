@@ -737,6 +737,11 @@ class Listener:
         """True once :meth:`stop` has run."""
         return self._stopped.is_set()
 
+    def bind(self, event: Any, handler: Callable[..., Any]) -> None:
+        """Add a pynetdicom event handler to the running server (a caller's counters, e.g. of
+        ``evt.EVT_ACCEPTED``); the listener's own handlers stay."""
+        self._server.bind(event, handler)
+
     def request_stop(self) -> None:
         """Ask whoever is in :meth:`wait` to stop the listener (safe in a signal handler)."""
         self._stop_requested.set()

@@ -21,6 +21,8 @@ from __future__ import annotations
 
 import re
 
+from .errors import IngestError
+
 __all__ = ["UnitError", "convert", "dimension_of", "known_units", "normalise_unit"]
 
 # unit -> (dimension, factor to the dimension's base unit). Exact decimal factors by
@@ -113,8 +115,20 @@ _ALIASES: dict[str, str] = {
 _ANNOTATION = re.compile(r"\{[^}]*\}")
 
 
-class UnitError(ValueError):
-    """A unit string we do not know, or a conversion across dimensions."""
+class UnitError(IngestError, ValueError):
+    """A unit string we do not know, or a conversion across dimensions (code ``bad_value``).
+
+    Its text is the message alone (no code), as callers quote it inside their own reasons.
+    """
+
+    def __init__(self, message: str) -> None:
+        super().__init__("bad_value", message)
+
+    def __str__(self) -> str:
+        return self.reason
+
+    def __reduce__(self) -> tuple[type[UnitError], tuple[str]]:  # type: ignore[override]
+        return (type(self), (self.reason,))
 
 
 def normalise_unit(unit: str) -> str:

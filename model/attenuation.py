@@ -267,6 +267,16 @@ def _incoherent_energy_transfer_cm2_g(z: int, energies: FloatArray) -> FloatArra
 
 
 def _element_mu_en_cm2_g(z: int, energies: FloatArray) -> FloatArray:
+    """One element's mass energy-absorption coefficient on ``energies``, kept per process for
+    each element and energy grid: the Compton term calls xraylib once per energy and angle node,
+    and every beam on the same grid (every beam of one kV) needs the same values."""
+    grid = np.ascontiguousarray(energies, dtype=np.float64)
+    return _element_mu_en_on_grid(z, grid.tobytes())
+
+
+@lru_cache(maxsize=512)
+def _element_mu_en_on_grid(z: int, grid: bytes) -> FloatArray:
+    energies = np.frombuffer(grid, dtype=np.float64)
     zs = np.array([z], dtype=np.int64)
     photo = xraylib_np.CS_Photo(zs, energies)[0]
     escape = np.zeros_like(energies)
@@ -279,6 +289,7 @@ def _element_mu_en_cm2_g(z: int, energies: FloatArray) -> FloatArray:
     absorbed: FloatArray = (photo - escape + _incoherent_energy_transfer_cm2_g(z, energies)) * (
         1.0 - RADIATIVE_YIELD_G
     )
+    absorbed.setflags(write=False)  # shared by every caller on this grid
     return absorbed
 
 

@@ -7,10 +7,12 @@ clear message for the user.
 
 from __future__ import annotations
 
+from beamaudit.errors import BeamauditError
+
 __all__ = ["ModelError"]
 
 
-class ModelError(ValueError):
+class ModelError(BeamauditError, ValueError):
     """Bad input to, or an impossible request of, a physics model of the model stage.
 
     Subclasses :class:`ValueError` because nearly every cause is an argument out of its physical or

@@ -200,14 +200,17 @@ def cumulative_effective_dose(
     cumulative = np.bincount(codes, weights=value * in_window, minlength=n_patients).astype(
         np.float64
     )
-    # worst window: exams sorted by (patient, time); for exam i the sum over (t_i - W, t_i]
-    t = when.astype(np.int64)
+    # worst window: exams sorted by (patient, time); for exam i the sum over (t_i - W, t_i].
+    # Times in whole seconds: patient code x span must fit in int64 (in nanoseconds a 5-year
+    # span times more than about 58 patients would overflow)
+    t = when.astype("datetime64[s]").astype(np.int64)
+    window_s = -(-window_ns // 10**9)  # the window rounded up to whole seconds
     order = np.lexsort((t, codes))
     t_sorted, codes_sorted = t[order], codes[order]
     running = np.concatenate(([0.0], np.cumsum(value[order])))
-    span = int(t_sorted.max() - t_sorted.min()) + window_ns + 1 if len(t) else 1
+    span = int(t_sorted.max() - t_sorted.min()) + window_s + 1 if len(t) else 1
     combined = codes_sorted.astype(np.int64) * span + (t_sorted - (t_sorted.min() if len(t) else 0))
-    first = np.searchsorted(combined, combined - window_ns, side="right")
+    first = np.searchsorted(combined, combined - window_s, side="right")
     last = np.searchsorted(combined, combined, side="right")  # same-time exams together
     sums = running[last] - running[first]
     peak = np.zeros(n_patients)

@@ -8,6 +8,7 @@ exit code 2; a command that finished but rejected some input exits 1.
 from __future__ import annotations
 
 import importlib
+import sys
 from pathlib import Path
 from typing import Annotated
 
@@ -25,12 +26,14 @@ COMMAND_MODULES = (
     "listen",
     "pull",
     "review",
+    "notify",
     "export",
     "explain",
     "beam",
     "dose",
     "mgd",
     "token",
+    "conformance",
     "demo",
 )
 
@@ -69,16 +72,29 @@ def _root(
         bool,
         typer.Option("--version", callback=_version, is_eager=True, help="Print the version."),
     ] = False,
+    log_format: Annotated[
+        str,
+        typer.Option(
+            "--log-format",
+            envvar="BEAMAUDIT_LOG_FORMAT",
+            help="Log lines as text or json (one JSON object a line); no patient data either way.",
+        ),
+    ] = "text",
 ) -> None:
-    from beamaudit.api.logs import configure_logging
+    from beamaudit.api.cli._common import fail
+    from beamaudit.api.logs import LOG_FORMATS, configure_logging
 
-    configure_logging()  # one line per record; library warnings without data values
+    if log_format not in LOG_FORMATS:
+        fail(f"--log-format must be one of {', '.join(LOG_FORMATS)}, not {log_format!r}")
+    # one line per record; library warnings without data values
+    configure_logging(log_format=log_format)  # type: ignore[arg-type]
     ctx.obj = {"config": config}
 
 
 def main(argv: list[str] | None = None) -> int:
     """Run the command line; returns the exit code (for tests: ``main(["--help"])``)."""
     from beamaudit.api.cli._help import plain_help
+    from beamaudit.errors import BeamauditError
 
     command = plain_help(typer.main.get_command(app))  # help in words, not Python types
     try:
@@ -86,6 +102,11 @@ def main(argv: list[str] | None = None) -> int:
     except SystemExit as exc:
         code = exc.code
         return code if isinstance(code, int) else (0 if code is None else 1)
+    except BeamauditError as exc:
+        # the last net under every command: an error of any stage is one line, never a traceback
+        message = " ".join(str(exc).split()) or type(exc).__name__
+        sys.stderr.write(f"error: {message}\n")
+        return 2
     return 0
 
 

@@ -25,7 +25,7 @@ def open_store(ctx: typer.Context | None, *, migrate: bool = True) -> OpenStore:
     """Settings, a reachable engine (migrated to head unless ``migrate`` is false), sessions.
 
     Opened to write (``migrate``), the store's review runs cut short (their process gone) are
-    marked failed first, with the reason (:func:`beamaudit.api.runs.fail_interrupted_runs`).
+    marked failed first, with the reason (:func:`beamaudit.api.runs.record.fail_interrupted_runs`).
     """
     from beamaudit.api.store import (
         StoreError,
@@ -45,7 +45,7 @@ def open_store(ctx: typer.Context | None, *, migrate: bool = True) -> OpenStore:
         fail(str(exc))
     sessions = make_session_factory(engine)
     if migrate:
-        from beamaudit.api.runs import fail_interrupted_runs
+        from beamaudit.api.runs.record import fail_interrupted_runs
 
         fail_interrupted_runs(sessions, started=ctx.command_path if ctx else "beamaudit")
     return OpenStore(settings, engine, sessions)

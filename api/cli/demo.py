@@ -37,10 +37,10 @@ def demo_command(
     """
     import shutil
 
-    from beamaudit.api.auth import create_token
     from beamaudit.api.demo.errors import DemoError
-    from beamaudit.api.demo_run import compare_with_plan, run_demo
+    from beamaudit.api.demo.run import compare_with_plan, run_demo
     from beamaudit.api.store import make_engine, make_session_factory, upgrade
+    from beamaudit.api.store.auth import create_token
     from beamaudit.ingest.pseudonym import load_or_create_key
 
     t0 = time.perf_counter()
@@ -75,6 +75,8 @@ def demo_command(
                     "timings_s": {k: round(v, 2) for k, v in outcome.timings.items()},
                     "scan": outcome.scan,
                     "cstore": outcome.cstore,
+                    "notifications": outcome.notifications,
+                    "outbox": str(outcome.outbox) if outcome.outbox else None,
                     "database": url,
                 },
                 indent=2,
@@ -92,8 +94,8 @@ def demo_command(
         console.print(f"\nDashboards: http://127.0.0.1:{port}/\n{sign_in}", highlight=False)
         import uvicorn
 
-        from beamaudit.api.app import create_app
         from beamaudit.api.settings import load
+        from beamaudit.api.web.app import create_app
 
         uvicorn.run(
             create_app(load(database_url=url), engine=engine),
@@ -154,6 +156,7 @@ def _print(outcome: Any, report: dict[str, Any], elapsed: float, db: Path) -> No
     for f in report["unplanted"][:10]:
         kind = words_for(FLAG_KIND_WORDS, f["kind"])
         console.print(_indented(f"{kind}: {f['reason']}", "  "), markup=False, highlight=False)
+    _print_notifications(outcome)
     console.print(
         f"\ndone in {elapsed:.0f} s; database: SQLite file {db.resolve()}. Where to look: the "
         "overview (/) opens with what needs attention in the newest month (the DAP-meter fault, "
@@ -164,6 +167,29 @@ def _print(outcome: Any, report: dict[str, Any], elapsed: float, db: Path) -> No
     phases = ", ".join(f"{k} {v:.1f}" for k, v in outcome.timings.items())
     console.print(f"[dim]seconds per phase: {phases}[/dim]", highlight=False)
     console.print(f"[dim]All data are invented. {CAUTION}[/dim]", highlight=False)
+
+
+def _print_notifications(outcome: Any) -> None:
+    """The nightly notification step: what was sent where, and the digest's first lines."""
+    import json
+
+    console.print("\nnightly notifications (no mail server or webhook configured: the outbox):")
+    if not outcome.notifications:
+        console.print("  nothing new to tell", highlight=False)
+        return
+    for d in outcome.notifications:
+        console.print(
+            f"  {d['recipient']}: {d['findings']} new findings, {d['status']} to {d['target']}",
+            markup=False, highlight=False,
+        )  # fmt: skip
+    lines = outcome.outbox.read_text(encoding="utf-8").splitlines() if outcome.outbox else []
+    if lines:
+        digest = json.loads(lines[-1])
+        console.print(f"  subject: {digest['subject']}", markup=False, highlight=False)
+        for item in digest["findings"][:3]:
+            line = _indented(f"[{item['severity']}] {item['reason']}", "    ")
+            console.print(line, markup=False, highlight=False)
+            console.print(f"      {item['link']}", markup=False, highlight=False)
 
 
 def register(app: typer.Typer) -> None:

@@ -102,7 +102,11 @@ def _room_beam(room: str) -> _RoomBeam:
 
     from beamaudit.api.cli._common import err_console
     from beamaudit.api.cli._store import open_store
-    from beamaudit.api.reconstruct import _anode_symbol, _patient_support, calibration_for_room
+    from beamaudit.api.intake.reconstruct import (
+        _anode_symbol,
+        _patient_support,
+        calibration_for_room,
+    )
     from beamaudit.api.store import models as m
     from beamaudit.model import FilterSpec
 

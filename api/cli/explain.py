@@ -15,8 +15,8 @@ __all__ = ["event_explanation", "register"]
 def event_explanation(event: Any, trail: dict[str, Any] | None = None) -> dict[str, Any]:
     """A JSON-ready explanation of one stored event (an ``ExposureEventRow``).
 
-    ``trail`` is the why trail of its figures (:func:`beamaudit.api.reconstruct.trail_for_event`);
-    the stored one when not given.
+    ``trail`` is the why trail of its figures
+    (:func:`beamaudit.api.intake.reconstruct.trail_for_event`); the stored one when not given.
     """
     reported = {
         name: getattr(event, name)
@@ -87,7 +87,7 @@ def explain_command(
 ) -> None:
     """Show one stored exposure: reported beside reconstructed, and how each figure was made."""
     from beamaudit.api.cli._store import open_store
-    from beamaudit.api.reconstruct import trail_for_event
+    from beamaudit.api.intake.reconstruct import trail_for_event
     from beamaudit.api.store import models as m
 
     store = open_store(ctx)

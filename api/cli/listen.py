@@ -32,10 +32,10 @@ def listen_command(
 
     from beamaudit.api.cli._store import open_store
     from beamaudit.api.cli.scan import pseudonym_key
+    from beamaudit.api.intake.pipeline import Pipeline
+    from beamaudit.api.intake.postprocess import Completion
+    from beamaudit.api.intake.receiving import make_store_handler
     from beamaudit.api.logs import configure_logging
-    from beamaudit.api.pipeline import Pipeline
-    from beamaudit.api.postprocess import Completion
-    from beamaudit.api.receiving import make_store_handler
     from beamaudit.ingest.errors import IngestError
     from beamaudit.ingest.listener import ListenerConfig, start_listener
     from beamaudit.ingest.pseudonym import Pseudonymiser
@@ -66,6 +66,18 @@ def listen_command(
         listener = start_listener(config, handler)
     except IngestError as exc:
         fail(exc.reason)
+    metrics = store.settings.metrics
+    if metrics.enabled and metrics.listener_bind:
+        from beamaudit.api.web.metrics import AssociationCounter, collector, start_metrics_server
+
+        counter = AssociationCounter()
+        counter.bind(listener)
+        try:
+            start_metrics_server(metrics.listener_bind, collector(store.sessions, counter.family))
+        except OSError as exc:
+            listener.stop()
+            fail(f"cannot serve /metrics on {metrics.listener_bind}: {exc.strerror or exc}")
+        console.print(f"metrics on http://{metrics.listener_bind}/metrics", highlight=False)
     console.print(
         f"listening as {config.ae_title} on {listener.address[0]}:{listener.port} "
         f"(database: {store.settings.backend}); Ctrl-C stops",

@@ -43,7 +43,7 @@ def pull_command(
     """
     from beamaudit.api.cli._store import open_store
     from beamaudit.api.cli.scan import pseudonym_key
-    from beamaudit.api.pulling import pull_source
+    from beamaudit.api.intake.pulling import pull_source
     from beamaudit.ingest.dicomweb import DicomwebSource
     from beamaudit.ingest.errors import IngestError
     from beamaudit.ingest.pseudonym import Pseudonymiser
@@ -99,10 +99,10 @@ def sources_add(
     """Add a DICOMweb source for the nightly pull (a login is named, never put in the URL)."""
     from sqlalchemy import select
 
-    from beamaudit.api.auth import record_change
     from beamaudit.api.cli._store import open_store
-    from beamaudit.api.pulling import source_login
+    from beamaudit.api.intake.pulling import source_login
     from beamaudit.api.store import models as m
+    from beamaudit.api.store.auth import record_change
     from beamaudit.ingest.dicomweb import DicomwebSource
     from beamaudit.ingest.errors import IngestError
 

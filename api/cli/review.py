@@ -50,7 +50,7 @@ def review_command(
     """
     from beamaudit.api.cli._store import open_store
     from beamaudit.api.review import ReviewError
-    from beamaudit.api.runs import NoEventsError
+    from beamaudit.api.runs.record import NoEventsError
 
     store = open_store(ctx)
     try:
@@ -70,9 +70,13 @@ def review_command(
     body = _stored_result(store, run_id)
     if body.get("status") == "failed":
         fail(f"review run {run_id} failed: {body.get('error')}")
+    from beamaudit.api.cli.notify import send_notifications
+
+    # a delivery that fails is one line on stderr; the review is stored whatever happens
+    send_notifications(store, trigger="nightly" if nightly else "review", review_run_id=run_id)
     result = body["result"]
     if csv_path is not None or xlsx_path is not None:
-        from beamaudit.api.review_export import write_csv, write_xlsx
+        from beamaudit.api.runs.export import write_csv, write_xlsx
 
         if csv_path is not None:
             write_csv(result, csv_path)
@@ -89,7 +93,7 @@ def review_command(
 
 def _monthly(store: Any, month: str, rooms: list[str] | None, exam_types: list[str] | None) -> int:
     from beamaudit.api.review import Period, ReviewParameters
-    from beamaudit.api.reviews import run_review
+    from beamaudit.api.runs.reviews import run_review
 
     period = Period.parse(month)
     params = ReviewParameters(
@@ -108,8 +112,8 @@ def _nightly(store: Any) -> tuple[int, int] | None:
     from sqlalchemy import select
 
     from beamaudit.api.review import Period, ReviewParameters
-    from beamaudit.api.reviews import run_review
-    from beamaudit.api.runs import NoEventsError
+    from beamaudit.api.runs.record import NoEventsError
+    from beamaudit.api.runs.reviews import run_review
     from beamaudit.api.store import models as m
 
     with store.sessions() as session:
@@ -141,7 +145,7 @@ def _nightly(store: Any) -> tuple[int, int] | None:
 def _stored_result(store: Any, run_id: int) -> dict[str, Any]:
     from sqlalchemy import select
 
-    from beamaudit.api.runs import scope_text
+    from beamaudit.api.runs.record import scope_text
     from beamaudit.api.store import models as m
 
     with store.sessions() as session:
@@ -254,15 +258,17 @@ def nightly_command(
     ctx: typer.Context,
     as_json: Annotated[bool, typer.Option("--json", help="Print the report as JSON.")] = False,
 ) -> None:
-    """Pull every configured DICOMweb source, then run the nightly review.
+    """Pull every configured DICOMweb source, run the nightly review, then send the digests of
+    new findings ([notify]; the outbox file when no server is configured).
 
-    Exit code 0: nothing new flagged; 1: new flags; 2: failure (a source or the review).
+    Exit code 0: nothing new flagged; 1: new flags; 2: failure (a source, the review or a
+    notification; the review is stored whatever a notification does).
     """
     from sqlalchemy import select
 
     from beamaudit.api.cli._store import open_store
     from beamaudit.api.cli.scan import pseudonym_key
-    from beamaudit.api.pulling import pull_source
+    from beamaudit.api.intake.pulling import pull_source
     from beamaudit.api.review import ReviewError
     from beamaudit.api.store import models as m
     from beamaudit.ingest.errors import IngestError
@@ -300,6 +306,17 @@ def nightly_command(
         report["failed"].append({"source": "review", "reason": str(exc)})
     report["review_run_id"] = run_id
     report["new_flags"] = new_flags
+    from beamaudit.api.runs.notify import notify_new_findings
+
+    deliveries = notify_new_findings(
+        store.sessions, store.settings.notify, trigger="nightly", review_run_id=run_id
+    )
+    report["notifications"] = [d.__dict__ for d in deliveries]
+    for d in deliveries:
+        if d.status != "sent":
+            report["failed"].append(
+                {"source": f"notify {d.recipient} by {d.channel}", "reason": d.error}
+            )
     if as_json:
         typer.echo(json.dumps(report, indent=2, default=str))
     else:
@@ -308,6 +325,9 @@ def nightly_command(
                 f"pulled {p['source']}: {p['events']} new events, {len(p['errors'])} rejected",
                 highlight=False,
             )
+        for d in deliveries:
+            if d.status == "sent":
+                console.print(d.line(), highlight=False, markup=False)
         for f in report["failed"]:
             err_console.print(f"failed: {f['source']}: {f['reason']}", markup=False)
         if run_id is None and not report["failed"]:
@@ -334,7 +354,8 @@ def levels_import(
     """Import reference-level set versions from a CSV file (all or none)."""
     from beamaudit.api.cli._store import open_store
     from beamaudit.api.review import CsvFormatError, ReviewError, read_levels_csv
-    from beamaudit.api.reviews import ensure_catalogue, store_level_sets
+    from beamaudit.api.runs.reviews import store_level_sets
+    from beamaudit.api.store.review_rows import ensure_catalogue
 
     if not path.is_file():
         fail(f"no such file: {path}")
@@ -363,7 +384,7 @@ def levels_export(
     """Export every stored reference-level set as CSV (the layout ``levels import`` reads)."""
     from beamaudit.api.cli._store import open_store
     from beamaudit.api.review import write_levels_csv
-    from beamaudit.api.routes._review_rows import level_sets_from_store
+    from beamaudit.api.store.review_rows import level_sets_from_store
 
     store = open_store(ctx)
     with store.sessions() as session:
@@ -403,7 +424,7 @@ def examtypes_export(
     """Export the exam-type catalogue or the mapping rules as CSV to standard output."""
     from beamaudit.api.cli._store import open_store
     from beamaudit.api.review import write_catalogue_csv, write_rules_csv
-    from beamaudit.api.reviews import ensure_catalogue
+    from beamaudit.api.store.review_rows import ensure_catalogue
 
     if what not in {"catalogue", "rules"}:
         fail(f"export what? catalogue or rules, not {what!r}")
@@ -419,7 +440,7 @@ def examtypes_export(
 def examtypes_remap(ctx: typer.Context) -> None:
     """Map every stored event to an exam type again (after the rules changed)."""
     from beamaudit.api.cli._store import open_store
-    from beamaudit.api.reviews import map_stored_events
+    from beamaudit.api.store.review_rows import map_stored_events
 
     store = open_store(ctx)
     with store.sessions.begin() as session:

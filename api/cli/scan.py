@@ -52,9 +52,9 @@ def scan_command(
     from rich.progress import BarColumn, MofNCompleteColumn, Progress, TextColumn, TimeElapsedColumn
 
     from beamaudit.api.cli._store import open_store
-    from beamaudit.api.pipeline import Pipeline
-    from beamaudit.api.postprocess import Completion
-    from beamaudit.api.scanning import default_workers, freeze_heap, scan_paths
+    from beamaudit.api.intake.pipeline import Pipeline
+    from beamaudit.api.intake.postprocess import Completion
+    from beamaudit.api.intake.scanning import default_workers, freeze_heap, scan_paths
 
     missing = [str(p) for p in paths if not p.exists()]
     if missing:

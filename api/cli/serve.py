@@ -22,10 +22,9 @@ def serve_command(
 
     import uvicorn
 
-    from beamaudit.api.app import create_app
     from beamaudit.api.cli._serving import database_words, sign_in_words, sqlite_file
     from beamaudit.api.logs import configure_logging
-    from beamaudit.api.runs import fail_interrupted_runs
+    from beamaudit.api.runs.record import fail_interrupted_runs
     from beamaudit.api.store import (
         StoreError,
         check_connection,
@@ -33,6 +32,7 @@ def serve_command(
         make_session_factory,
         upgrade,
     )
+    from beamaudit.api.web.app import create_app
 
     settings = load_settings(ctx)
     file = sqlite_file(settings.database_url)
@@ -57,6 +57,14 @@ def serve_command(
         highlight=False,
     )
     app = create_app(settings, engine=engine)
+    if settings.metrics.enabled and settings.metrics.bind:
+        from beamaudit.api.web.metrics import collector, start_metrics_server
+
+        try:
+            start_metrics_server(settings.metrics.bind, collector(app.state.session_factory))
+        except OSError as exc:
+            fail(f"cannot serve /metrics on {settings.metrics.bind}: {exc.strerror or exc}")
+        console.print(f"metrics on http://{settings.metrics.bind}/metrics", highlight=False)
     config = uvicorn.Config(app, host=host, port=port, log_level="info")
     server = uvicorn.Server(config)  # uvicorn's logging is set up now: filter its handlers too
     configure_logging(logging.INFO)

@@ -34,8 +34,8 @@ def create_command(
     """Make a token and print it once (only its hash is kept)."""
     from datetime import timedelta
 
-    from beamaudit.api.auth import ROLES, create_token
     from beamaudit.api.cli._store import open_store
+    from beamaudit.api.store.auth import ROLES, create_token
     from beamaudit.api.store.base import utcnow
 
     if role not in ROLES:
@@ -57,8 +57,8 @@ def revoke_command(
     ctx: typer.Context, token_id: Annotated[int, typer.Argument(metavar="ID")]
 ) -> None:
     """Revoke a token by its id."""
-    from beamaudit.api.auth import AuthError, revoke_token
     from beamaudit.api.cli._store import open_store
+    from beamaudit.api.store.auth import AuthError, revoke_token
 
     store = open_store(ctx)
     try:

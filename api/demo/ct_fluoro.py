@@ -23,7 +23,13 @@ import numpy as np
 from beamaudit.api.demo.context import SimulationContext, at
 from beamaudit.api.demo.physics import STANDARD_WEIGHT_KG, TubeOutput, exposure_dap_gy_cm2
 from beamaudit.api.demo.plants import OutlierPlan, PlantedPlan
-from beamaudit.api.demo.records import CtAcquisition, CtStudy, FluoroEvent, FluoroStudy
+from beamaudit.api.demo.records import (
+    CtAcquisition,
+    CtStudy,
+    FluoroEvent,
+    FluoroStudy,
+    Patient,
+)
 from beamaudit.api.demo.scenario import (
     CT_PROTOCOLS,
     FLUORO_PROTOCOLS,
@@ -95,8 +101,10 @@ def _ct_study(
     ctdivol_mgy: float | None = None,
     length_mm: float | None = None,
     modulation: bool = True,
+    patient: Patient | None = None,
 ) -> CtStudy:
-    patient = ctx.patients.patient(day, age_mean_y=room.age_mean_y, age_sd_y=room.age_sd_y)
+    if patient is None:
+        patient = ctx.patients.patient(day, age_mean_y=room.age_mean_y, age_sd_y=room.age_sd_y)
     accession = f"HB{day:%Y%m%d}5{seq:02d}"
     study_uid = ctx.uids.uid("study", room.key, accession)
     start = at(day, hour)
@@ -200,6 +208,37 @@ def _ct_outlier(
     return study
 
 
+#: the invented patient of the recurrent-exposure plant (never drawn by the patient factory)
+RECURRENT_PATIENT = Patient(
+    patient_id="HB0990001",
+    name="Thistlewood^Marlo",
+    sex="F",
+    birth_date=date(1961, 3, 14),
+    height_m=1.66,
+    weight_kg=70.0,
+)
+
+
+def _recurrent_studies(
+    room: RoomSpec, ctx: SimulationContext, rng: np.random.Generator, plan: PlantedPlan
+) -> list[CtStudy]:
+    """The recurrent patient's studies, spread evenly over the calendar's weekdays."""
+    protocol = next(p for p, _ in CT_PROTOCOLS if p.exam_type == "ct_abdomen_pelvis")
+    weekdays = [d for d in ctx.calendar.days() if d.weekday() < 5]
+    step = len(weekdays) / plan.recurrent_exams
+    studies = []
+    for i in range(plan.recurrent_exams):
+        day = weekdays[int(i * step)]
+        study = _ct_study(
+            room, ctx, rng, day, 11.5, protocol, 80 + i,
+            runs=plan.recurrent_phases, ctdivol_mgy=plan.recurrent_ctdivol_mgy,
+            length_mm=plan.recurrent_length_mm, patient=RECURRENT_PATIENT,
+        )  # fmt: skip
+        study.planted.append("recurrent_patient")
+        studies.append(study)
+    return studies
+
+
 def simulate_ct(room: RoomSpec, ctx: SimulationContext, plan: PlantedPlan) -> list[CtStudy]:
     """Every study of the CT scanner over the context's calendar, planted outliers in."""
     rng = ctx.rng(f"room:{room.key}")
@@ -216,6 +255,8 @@ def simulate_ct(room: RoomSpec, ctx: SimulationContext, plan: PlantedPlan) -> li
     for outlier in plan.outliers:
         if outlier.room == room.key:
             studies.append(_ct_outlier(room, ctx, rng, outlier))
+    if plan.recurrent_room == room.key:
+        studies += _recurrent_studies(room, ctx, ctx.rng("recurrent"), plan)
     studies.sort(key=lambda s: s.start)
     return studies
 

@@ -28,6 +28,8 @@ from typing import Any
 from pydicom.datadict import dictionary_VR, tag_for_keyword
 from pydicom.uid import PYDICOM_ROOT_UID, ExplicitVRLittleEndian, generate_uid
 
+from beamaudit.api.errors import ApiError
+
 __all__ = [
     "IMPLEMENTATION_CLASS_UID",
     "IMPLEMENTATION_VERSION_NAME",
@@ -95,7 +97,7 @@ _BINARY = {"US": "H", "UL": "I", "SS": "h", "SL": "i", "FL": "f", "FD": "d"}
 _VR_CHOICE = {"PixelData": "OW"}
 
 
-class EncodingError(ValueError):
+class EncodingError(ApiError, ValueError):
     """A value the encoder refuses to write (unknown keyword, bad length, bad type)."""
 
 

@@ -11,7 +11,8 @@ Written as ``<output>/manifest.json`` (UTF-8, sorted keys, 2-space indent); read
 * ``counts``: studies, files and events, per room and in total;
 * ``planted_findings``: one :class:`PlantedFinding` each, ``kind`` being the review's flag kind
   (``dap_ratio``, ``change_point``, ``exam_above_investigation_level``, ``no_dose_data``,
-  ``unmapped_protocol``) or ``ingest_error`` for a broken file;
+  ``unmapped_protocol``), ``ingest_error`` for a broken file, or ``recurrent_exposure`` for the
+  patient the recurrent-exposure list must name;
 * ``not_planted``: findings the scenario deliberately does **not** plant, with the numbers that
   keep them quiet (``group_above_level``...);
 * ``group_medians``: per room, exam type, month and reported quantity, the number of values, the
@@ -70,8 +71,8 @@ class RoomEntry:
     ``filtration`` is the total filtration, inherent first; ``inherent_filtration`` and
     ``added_filtration`` split it. Image headers and dose reports carry only the added filters
     (DICOM's X-Ray Filtration module and TID 10003B name the filters in the beam, not the tube's
-    inherent filtration). :mod:`beamaudit.api.reconstruct` adds each event's recorded filters to
-    the room's configured filtration, so configure the store's ``rooms.filtration`` with
+    inherent filtration). :mod:`beamaudit.api.intake.reconstruct` adds each event's recorded
+    filters to the room's configured filtration, so configure the store's ``rooms.filtration`` with
     ``inherent_filtration`` (configuring ``filtration`` would count the added filter twice).
     ``qa_measurements`` (RAD 1 only) list the added filter as their filtration: they carry HVLs,
     so the calibration fits the inherent filtration.
@@ -108,8 +109,9 @@ class RoomEntry:
 class PlantedFinding:
     """One finding the scenario plants.
 
-    ``kind`` is the review core's flag kind (:data:`beamaudit.api.review.flags.FLAG_KINDS`) or
-    ``ingest_error``. ``date`` is the first affected day (ISO), ``month`` its month; ``expected``
+    ``kind`` is the review core's flag kind (:data:`beamaudit.api.review.flags.FLAG_KINDS`),
+    ``ingest_error``, or ``recurrent_exposure`` (a patient the recurrent-exposure list must
+    name). ``date`` is the first affected day (ISO), ``month`` its month; ``expected``
     holds the numbers (computed from the generated data); ``study_instance_uids`` /
     ``sop_instance_uids`` list the objects concerned when they are few. ``consequence_of`` names
     the finding this one follows from (an outlier's deviation index, a meter fault's step in the

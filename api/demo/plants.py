@@ -71,6 +71,14 @@ class PlantedPlan:
     unmapped_protocol_name: str = "USER PROGRAM 14"
     unmapped_month_index: int = 1
     unmapped_day: int = 5
+    #: one invented patient scanned again and again (three-phase abdomen-pelvis CT about every
+    #: twelve days): a cumulative effective dose above 100 mSv within the demo's months, for the
+    #: recurrent-exposure list. Each study stays well within its levels (DLP ~1.3 x the strictest)
+    recurrent_room: str = "ct1"
+    recurrent_exams: int = 10
+    recurrent_phases: int = 3
+    recurrent_ctdivol_mgy: float = 5.9
+    recurrent_length_mm: float = 400.0
     outliers: tuple[OutlierPlan, ...] = (
         OutlierPlan(
             key="outlier_rad2_lspine_lat",

@@ -9,10 +9,12 @@ from __future__ import annotations
 
 from collections.abc import Sequence
 
+from beamaudit.api.errors import ApiError
+
 __all__ = ["CsvFormatError", "ReviewError", "ReviewInputError"]
 
 
-class ReviewError(ValueError):
+class ReviewError(ApiError, ValueError):
     """Bad input to, or an impossible request of, the review core."""
 
 

@@ -80,7 +80,6 @@ __all__ = [
     "check_level_sets",
     "levels_in_effect",
     "levels_table",
-    "levels_the_store_cannot_keep",
     "load_demo_local_levels",
     "load_national_levels",
     "read_levels_csv",
@@ -268,32 +267,6 @@ def _qualifier(patient_group: str, clinical_indication: str) -> str:
     parts = [f"patient group {patient_group}"] if patient_group else []
     parts += [f"indication {clinical_indication}"] if clinical_indication else []
     return f" ({', '.join(parts)})" if parts else ""
-
-
-def levels_the_store_cannot_keep(sets: Iterable[ReferenceLevelSet]) -> str | None:
-    """Why ``sets`` cannot go into the store yet, or ``None``.
-
-    The store keeps adult levels for every indication only; a level for a paediatric band or a
-    clinical indication stored without them would be applied to adults or to every indication, so
-    such files are refused whole (the review core reads them from files meanwhile).
-    """
-    qualified = [
-        f"{s.name} {s.version}: {e.exam_type} {e.quantity}"
-        f"{_qualifier(e.patient_group, e.clinical_indication)}"
-        for s in sets
-        for e in s.entries
-        if e.patient_group or e.clinical_indication
-    ]
-    if not qualified:
-        return None
-    shown = "; ".join(qualified[:5]) + (
-        f"; and {len(qualified) - 5} more" if len(qualified) > 5 else ""
-    )
-    return (
-        f"the store cannot keep levels for a patient group or clinical indication yet ({shown}): "
-        "stored without them they would apply to adults or to every indication, so nothing was "
-        "imported"
-    )
 
 
 def check_level_sets(sets: Iterable[ReferenceLevelSet]) -> None:

@@ -69,7 +69,6 @@ from typing import Literal
 
 import numpy as np
 import pandas as pd
-from scipy import stats as sps
 
 from beamaudit.api.review.errors import ReviewError
 
@@ -397,6 +396,8 @@ def quantile_ci_ranks(
         raise ReviewError(f"the quantile p must be between 0 and 1, got {p!r}")
     if not 0.0 < confidence_level < 1.0:
         raise ReviewError(f"confidence_level must be between 0 and 1, got {confidence_level!r}")
+    from scipy import stats as sps  # here, not at import: half a second a command rarely needs
+
     n_arr = np.atleast_1d(np.asarray(n, dtype=np.int64))
     if (n_arr < 0).any():
         raise ReviewError("sample sizes must not be negative")

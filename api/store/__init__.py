@@ -1,4 +1,4 @@
-"""The SQL store: tables, engines, migrations."""
+"""The SQL store: tables, engines, migrations, and every query more than one caller needs."""
 
 from beamaudit.api.store.base import Base, utcnow
 from beamaudit.api.store.engine import (

@@ -17,6 +17,8 @@ from sqlalchemy.engine import Engine, make_url
 from sqlalchemy.exc import ArgumentError, DBAPIError, NoSuchModuleError, OperationalError
 from sqlalchemy.orm import Session, sessionmaker
 
+from beamaudit.api.errors import ApiError
+
 __all__ = ["StoreError", "check_connection", "make_engine", "make_session_factory", "session_scope"]
 
 SQLITE_BUSY_TIMEOUT_MS = 30_000
@@ -25,7 +27,7 @@ POOL_MAX_OVERFLOW = 50
 POOL_TIMEOUT_S = 60
 
 
-class StoreError(RuntimeError):
+class StoreError(ApiError, RuntimeError):
     """The store cannot be reached or used; the message is one line for a user."""
 
 

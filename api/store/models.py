@@ -3,7 +3,7 @@
 Reported and reconstructed values sit side by side in ``exposure_events``:
 ``dap_gy_cm2`` is what the device said, ``recon_dap_gy_cm2`` what the beam and
 dose model made of the same exposure. API schemas live elsewhere
-(``beamaudit.api.schemas``); these classes are tables only.
+(``beamaudit.api.web.schemas``); these classes are tables only.
 """
 
 from __future__ import annotations
@@ -38,6 +38,7 @@ __all__ = [
     "FlagRow",
     "IngestError",
     "MappingRuleRow",
+    "NotificationDelivery",
     "QAMeasurementRow",
     "ReferenceLevelRow",
     "ReferenceLevelSetRow",
@@ -261,6 +262,13 @@ class ExposureEventRow(Base):
     pulse_rate_per_s: Mapped[float | None] = mapped_column(Float)
     number_of_pulses: Mapped[int | None] = mapped_column(Integer)
     irradiation_duration_s: Mapped[float | None] = mapped_column(Float)
+    #: set with the exam type by the mapping rule that matched (``acute_stroke``); null: none
+    clinical_indication: Mapped[str | None] = mapped_column(String)
+    #: population-average estimate (beamaudit.model.effective_dose), with the coefficient's
+    #: citation; null with the reason in ``effective_dose_reason`` where none is sourced
+    effective_dose_msv: Mapped[float | None] = mapped_column(Float)
+    effective_dose_source: Mapped[str | None] = mapped_column(Text)
+    effective_dose_reason: Mapped[str | None] = mapped_column(Text)
     # reconstructed by beamaudit.model (recon_*), beside the reported values above
     recon_status: Mapped[str | None] = mapped_column(String)  # ok | no_technique | failed
     recon_hvl1_mm_al: Mapped[float | None] = mapped_column(Float)
@@ -334,6 +342,8 @@ class MappingRuleRow(Base):
     exam_type: Mapped[str] = mapped_column(String)
     patterns: Mapped[dict[str, str]] = mapped_column(JSONValue, default=dict)
     note: Mapped[str | None] = mapped_column(Text)
+    #: the clinical indication the rule sets with the exam type (``acute_stroke``); null: none
+    clinical_indication: Mapped[str | None] = mapped_column(String)
 
 
 class ReferenceLevelSetRow(Base):
@@ -352,10 +362,21 @@ class ReferenceLevelSetRow(Base):
 
 
 class ReferenceLevelRow(Base):
-    """One level: exam type, quantity, value and unit, with its source."""
+    """One level: exam type, quantity, value and unit, with its source; for adults (empty
+    ``patient_group``) or a paediatric band, for every examination of the type (empty
+    ``clinical_indication``) or one indication."""
 
     __tablename__ = "reference_levels"
-    __table_args__ = (UniqueConstraint("set_id", "exam_type", "quantity"),)
+    __table_args__ = (
+        UniqueConstraint(
+            "set_id",
+            "exam_type",
+            "quantity",
+            "patient_group",
+            "clinical_indication",
+            name="uq_reference_levels_level",
+        ),
+    )
     id: Mapped[int] = mapped_column(primary_key=True)
     set_id: Mapped[int] = mapped_column(ForeignKey("reference_level_sets.id", ondelete="CASCADE"))
     exam_type: Mapped[str] = mapped_column(String)
@@ -363,6 +384,8 @@ class ReferenceLevelRow(Base):
     value: Mapped[float] = mapped_column(Float)
     unit: Mapped[str] = mapped_column(String)
     source: Mapped[str | None] = mapped_column(Text)
+    patient_group: Mapped[str] = mapped_column(String, default="", server_default="")
+    clinical_indication: Mapped[str] = mapped_column(String, default="", server_default="")
 
 
 class ReviewRun(Base):
@@ -406,7 +429,7 @@ class Finding(Base):
 
     A later run that finds it again adds a flag to the same finding, so its triage (status, who,
     when, a note) carries over; ``key`` is the SHA-256 of the identity
-    (:func:`beamaudit.api.findings.finding_key`).
+    (:func:`beamaudit.api.store.finding_identity.finding_key`).
     """
 
     __tablename__ = "findings"
@@ -511,3 +534,28 @@ class DicomwebSource(Base):
     enabled: Mapped[bool] = mapped_column(Boolean, default=True)
     # the name of a login in the settings (pull.credentials.NAME); never the login itself
     credentials: Mapped[str | None] = mapped_column(String)
+
+
+class NotificationDelivery(Base):
+    """One digest of new findings sent (or not) to one recipient: the delivery log.
+
+    ``last_finding_id`` is the newest finding the digest covered: the next digest to the same
+    recipient lists findings after the one last ``sent``, so a failed delivery loses nothing.
+    The secret a webhook is signed with and the mail server's password are never stored here.
+    """
+
+    __tablename__ = "notification_deliveries"
+    id: Mapped[int] = mapped_column(primary_key=True)
+    recipient: Mapped[str] = mapped_column(String, index=True)
+    channel: Mapped[str] = mapped_column(String)  # smtp | webhook | outbox
+    #: the addresses, the webhook URL or the outbox file
+    target: Mapped[str] = mapped_column(Text)
+    trigger: Mapped[str] = mapped_column(String)  # nightly | review | command | demo
+    review_run_id: Mapped[int | None] = mapped_column(Integer)
+    status: Mapped[str] = mapped_column(String)  # sent | failed
+    attempts: Mapped[int] = mapped_column(Integer, default=0)
+    error: Mapped[str | None] = mapped_column(Text)
+    findings: Mapped[int] = mapped_column(Integer, default=0)
+    last_finding_id: Mapped[int | None] = mapped_column(Integer)
+    digest_sha256: Mapped[str] = mapped_column(String)
+    created_at: Mapped[datetime] = mapped_column(UTCDateTime(), default=utcnow, index=True)

@@ -25,3 +25,10 @@ def test_demo_finds_what_was_planted_and_nothing_else(tmp_path, capsys) -> None:
     assert [f["reason"] for f in report["unplanted"]] == []
     assert code == 0
     assert report["cstore"].get("failure", 0) == 0
+    # the nightly notification step: the digest of the new findings, in the outbox file
+    [delivery] = report["notifications"]
+    assert (delivery["channel"], delivery["status"]) == ("outbox", "sent")
+    [line] = (tmp_path / "demo" / "outbox.jsonl").read_text().splitlines()
+    digest = json.loads(line)
+    assert digest["trigger"] == "nightly" and digest["new_findings"] == delivery["findings"] > 0
+    assert digest["outbox_reason"] == "no recipient configured"

@@ -13,15 +13,15 @@ from typing import Any
 import pytest
 from sqlalchemy import func, select
 
-import beamaudit.api.findings as findings
-from beamaudit.api.findings import (
+import beamaudit.api.runs.findings as findings
+from beamaudit.api.runs.findings import store_flags
+from beamaudit.api.store import models as m
+from beamaudit.api.store.finding_identity import (
     finding_key,
     finding_period,
     finding_subject,
     number_changes,
-    store_flags,
 )
-from beamaudit.api.store import models as m
 
 GROUP = {"site": "Hollowbrook (invented)", "room": "RAD A", "exam_type": "chest_pa",
          "quantity": "dap_gy_cm2"}  # fmt: skip

@@ -5,9 +5,9 @@ from __future__ import annotations
 from fastapi.testclient import TestClient
 
 from beamaudit import __version__
-from beamaudit.api.app import create_app
 from beamaudit.api.settings import load
 from beamaudit.api.store import make_engine
+from beamaudit.api.web.app import create_app
 
 
 def test_health_ok(store) -> None:

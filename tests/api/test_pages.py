@@ -12,12 +12,12 @@ import numpy as np
 import pytest
 from fastapi.testclient import TestClient
 
-from beamaudit.api.app import create_app
-from beamaudit.api.auth import create_token
-from beamaudit.api.pipeline import Pipeline
+from beamaudit.api.intake.pipeline import Pipeline
 from beamaudit.api.review import Period, ReviewParameters
-from beamaudit.api.reviews import run_review
+from beamaudit.api.runs.reviews import run_review
 from beamaudit.api.settings import load
+from beamaudit.api.store.auth import create_token
+from beamaudit.api.web.app import create_app
 from beamaudit.ingest.events import ExposureEvent, ParseResult, SourceObject
 
 CAUTION_WORDS = "estimate"
@@ -50,7 +50,7 @@ def _store_exams(store, n_per_month: int = 25) -> str:
                 )  # fmt: skip
                 src = SourceObject(sop, event.sop_class_uid, "image_header", "DX", study)
                 pipe.store(ParseResult(source=src, events=[event]), received_via="test")
-    from beamaudit.api.postprocess import process_new_events
+    from beamaudit.api.intake.postprocess import process_new_events
 
     with store.session_factory() as s:
         from sqlalchemy import select
@@ -60,7 +60,7 @@ def _store_exams(store, n_per_month: int = 25) -> str:
         ids = s.scalars(select(m.ExposureEventRow.id)).all()
     process_new_events(store.session_factory, ids)
     from beamaudit.api.review import LevelEntry, ReferenceLevelSet
-    from beamaudit.api.reviews import store_level_sets
+    from beamaudit.api.runs.reviews import store_level_sets
 
     local = ReferenceLevelSet(
         "Fernmoor local DRLs (invented)", "local", "2026-1", datetime(2026, 1, 1).date(), "",
@@ -98,7 +98,15 @@ def test_pages_without_a_token_go_to_login(site) -> None:
 
 @pytest.mark.parametrize(
     "path",
-    ["/", "/?period=2026-09", "/distributions", "/rooms/RAD%20A", "/flags", "/reports/2026-10"],
+    [
+        "/",
+        "/?period=2026-09",
+        "/distributions",
+        "/rooms/RAD%20A",
+        "/flags",
+        "/reports/2026-10",
+        "/levels",
+    ],
 )
 def test_each_page_renders_for_a_viewer(site, path) -> None:
     client, viewer, _, _ = site
@@ -106,6 +114,17 @@ def test_each_page_renders_for_a_viewer(site, path) -> None:
     assert r.status_code == 200, r.text[:500]
     assert CAUTION_WORDS in r.text.lower()
     assert '<script src="http' not in r.text  # no script from another host (no CDN)
+
+
+def test_the_levels_page_shows_typical_values_beside_the_levels_in_force(site) -> None:
+    client, viewer, physicist, _ = site
+    page = _get(client, "/levels", viewer).text
+    assert "Typical value" in page and "Proposed local DRL" in page
+    assert "none: 2 of 10 rooms needed" in page  # two rooms: a typical value, no proposal
+    assert "Fernmoor local DRLs (invented)" in page
+    assert "Recurrent exposure" not in page  # pseudonyms are for physicists
+    full = _get(client, "/levels", physicist).text
+    assert "Recurrent exposure" in full and "must never decide" in full
 
 
 def test_exam_drilldown_needs_the_physicist_role(site) -> None:
@@ -313,7 +332,7 @@ def test_a_physicist_triages_from_the_flags_page(site) -> None:
 
 
 def test_distributions_read_only_the_chosen_examination(site, store, monkeypatch) -> None:
-    import beamaudit.api.reviews as reviews
+    import beamaudit.api.runs.reviews as reviews
 
     client, viewer, _, _ = site
     asked: list[str] = []

@@ -8,7 +8,7 @@ from pathlib import Path
 import pytest
 from sqlalchemy import func, select
 
-from beamaudit.api.pipeline import (
+from beamaudit.api.intake.pipeline import (
     Pipeline,
     _make_printable,
     content_hash,

@@ -1,7 +1,7 @@
 """Events completed in the storing transaction equal events completed after storing.
 
-:class:`beamaudit.api.postprocess.Completion` maps and reconstructs rows before they are
-inserted; :func:`beamaudit.api.postprocess.process_new_events` does it to stored events. The
+:class:`beamaudit.api.intake.postprocess.Completion` maps and reconstructs rows before they are
+inserted; :func:`beamaudit.api.intake.postprocess.process_new_events` does it to stored events. The
 reference for the figures themselves is ``tests/api/test_reconstruct.py`` (the model one event
 at a time); here both paths must store the same columns, event for event, on each backend.
 """
@@ -13,8 +13,8 @@ from dataclasses import replace
 
 from sqlalchemy import select
 
-from beamaudit.api.pipeline import Pipeline
-from beamaudit.api.postprocess import Completion, process_new_events
+from beamaudit.api.intake.pipeline import Pipeline
+from beamaudit.api.intake.postprocess import Completion, process_new_events
 from beamaudit.api.store import models as m
 from beamaudit.ingest.events import ExposureEvent, FilterLayer, ParseResult, SourceObject
 

@@ -22,8 +22,8 @@ from fake_pacs import Study, dx_metadata, fake_pacs
 from procs import counts, every_value, shared_store
 from sqlalchemy import select
 
-from beamaudit.api.pipeline import Pipeline  # noqa: F401  (the store the pull writes through)
-from beamaudit.api.pulling import pull_source
+from beamaudit.api.intake.pipeline import Pipeline  # noqa: F401  (the store the pull writes through)
+from beamaudit.api.intake.pulling import pull_source
 from beamaudit.api.settings import load
 from beamaudit.api.store import models as m
 from beamaudit.ingest.dicomweb import DicomwebSource, PullError

@@ -14,8 +14,8 @@ from dataclasses import replace
 import pytest
 from sqlalchemy import select
 
-from beamaudit.api.pipeline import Pipeline
-from beamaudit.api.reconstruct import (
+from beamaudit.api.intake.pipeline import Pipeline
+from beamaudit.api.intake.reconstruct import (
     RECIPE_KIND,
     _BeamCache,
     _geometry,
@@ -71,7 +71,7 @@ def _store(store, events: list[ExposureEvent], sop: str = "1.2.3.100") -> list[i
 
 def _one_by_one(session, row: m.ExposureEventRow):
     """The figures of ``row`` from the model called for this one event (no store, no bulk)."""
-    from beamaudit.api.reconstruct import _event_beam
+    from beamaudit.api.intake.reconstruct import _event_beam
 
     room = session.get(m.Room, row.room_id)
     beam = _event_beam(row, room, None, _BeamCache())

@@ -1,4 +1,5 @@
-"""The store's events table for reviews (``beamaudit.api.reviews``) against a plain computation.
+"""The store's events table for reviews (``beamaudit.api.runs.reviews``) against a plain
+computation.
 
 ``review_events`` reads a period's events column by column, the sparse dose columns and the header
 text in queries of their own; here the same table is built the straightforward way (every stored
@@ -15,18 +16,16 @@ from typing import Any
 
 import numpy as np
 import pandas as pd
-import pytest
 from sqlalchemy import insert, select
 
 from beamaudit.api.review import Period, ReviewParameters, review
-from beamaudit.api.reviews import (
-    ensure_catalogue,
+from beamaudit.api.runs.reviews import (
     events_frame,
     execute_review,
     review_events,
 )
-from beamaudit.api.routes._review_rows import level_sets_from_store
 from beamaudit.api.store import models as m
+from beamaudit.api.store.review_rows import ensure_catalogue, level_sets_from_store
 
 START, END = date(2026, 3, 1), date(2026, 4, 1)
 MODALITIES = ("DX", "CR", "CT", "RF", "XA", "MG", None)
@@ -243,7 +242,7 @@ def test_the_arrow_copy_and_plain_reads_give_the_same_table(store, monkeypatch) 
     # the columns come through an ADBC driver (its own connection to the store); on PostgreSQL
     # the binary COPY through the session's connection is the next way, and plain rows the last:
     # each must give the very same table
-    import beamaudit.api.reviews as reviews
+    import beamaudit.api.runs.reviews as reviews
 
     _fill(store.session_factory, seed=5)
     taken: list[bool] = []
@@ -275,7 +274,7 @@ def test_the_arrow_copy_and_plain_reads_give_the_same_table(store, monkeypatch) 
 def test_an_empty_period_through_the_driver_is_the_plain_empty_table(store, monkeypatch) -> None:
     # a period without events (the change-point history of a new store): the driver's columns
     # come without a type; the table must still be the plain way's, without a second read
-    import beamaudit.api.reviews as reviews
+    import beamaudit.api.runs.reviews as reviews
 
     _fill(store.session_factory, n=60, seed=4)
     arrow = reviews._dense_by_arrow
@@ -301,7 +300,7 @@ def test_a_store_the_driver_cannot_reach_is_read_through_the_session(store, monk
     import adbc_driver_postgresql.dbapi
     from adbc_driver_manager import AdbcStatusCode, OperationalError
 
-    import beamaudit.api.reviews as reviews
+    import beamaudit.api.runs.reviews as reviews
 
     _fill(store.session_factory, n=90, seed=9)
     with store.session_factory() as session:
@@ -345,23 +344,28 @@ def test_events_the_session_has_not_committed_are_read_too(store) -> None:
     assert after["dap_gy_cm2"].iloc[-1] == 0.2
 
 
-def test_levels_the_store_cannot_keep_are_refused_whole(store) -> None:
-    # a paediatric band's level stored without its band would apply to adults: refused, nothing kept
-    from beamaudit.api.review import ReviewError
+def test_levels_for_a_band_and_an_indication_are_kept_with_them(store) -> None:
+    # a paediatric band's level stored without its band would apply to adults: the store keeps
+    # the band and the indication, and reads them back as they were
     from beamaudit.api.review.levels import LevelEntry, ReferenceLevelSet
-    from beamaudit.api.reviews import store_level_sets
+    from beamaudit.api.runs.reviews import store_level_sets
+    from beamaudit.api.store.review_rows import level_sets_from_store
 
-    band = LevelEntry("chest_pa", "dap_gy_cm2", 0.02, "Gy.cm2", patient_group="weight_15_30kg")
-    invented = ReferenceLevelSet(
-        "Paed (invented)", "local", "1", date(2026, 1, 1), "tests", (band,)
+    entries = (
+        LevelEntry("chest_pa", "dap_gy_cm2", 0.1, "Gy.cm2"),
+        LevelEntry("chest_pa", "dap_gy_cm2", 0.02, "Gy.cm2", patient_group="weight_15_30kg"),
+        LevelEntry("ct_head", "dlp_mgy_cm", 600.0, "mGy.cm", clinical_indication="acute_stroke"),
     )
-    with (
-        pytest.raises(ReviewError, match="cannot keep levels for a patient group"),
-        store.session_factory.begin() as session,
-    ):
+    invented = ReferenceLevelSet(
+        "Paed (invented)", "local", "1", date(2026, 1, 1), "tests", entries
+    )
+    with store.session_factory.begin() as session:
         store_level_sets(session, [invented])
     with store.session_factory() as session:
-        assert session.scalars(select(m.ReferenceLevelSetRow)).all() == []
+        ((_, back),) = level_sets_from_store(session)
+    assert sorted(e.key for e in back.entries) == sorted(e.key for e in entries)
+    assert back.get("chest_pa", "dap_gy_cm2", "weight_15_30kg").value == 0.02
+    assert back.get("chest_pa", "dap_gy_cm2").value == 0.1
 
 
 def _one_event(sessions: Any, event_id: int, when: datetime, **values: Any) -> None:
@@ -415,7 +419,7 @@ _ONE_LIBRARY = """
 import sys
 from datetime import date
 from pathlib import Path
-from beamaudit.api.reviews import review_events
+from beamaudit.api.runs.reviews import review_events
 from beamaudit.api.store import make_engine, make_session_factory
 engine = make_engine(sys.argv[1])
 with make_session_factory(engine)() as session:

@@ -17,8 +17,8 @@ from corpus import dx_header, encode
 from sqlalchemy import select
 
 import beamaudit.ingest.folder as folder
-from beamaudit.api.pipeline import Pipeline
-from beamaudit.api.scanning import scan_paths
+from beamaudit.api.intake.pipeline import Pipeline
+from beamaudit.api.intake.scanning import scan_paths
 from beamaudit.api.store import models as m
 from beamaudit.ingest.pseudonym import load_or_create_key
 

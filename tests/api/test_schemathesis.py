@@ -21,10 +21,10 @@ from schemathesis import GenerationMode
 from schemathesis.checks import not_a_server_error
 from schemathesis.specs.openapi.checks import response_schema_conformance
 
-from beamaudit.api.app import create_app
-from beamaudit.api.auth import hash_token
 from beamaudit.api.settings import load
 from beamaudit.api.store import models as m
+from beamaudit.api.store.auth import hash_token
+from beamaudit.api.web.app import create_app
 
 ADMIN_TOKEN = "bat_schemathesis-admin-token-for-tests-only"
 ADMIN_TOKEN_ID = 987_654

@@ -47,6 +47,7 @@ from beamaudit.dashboards import (
     render_exam,
     render_flags,
     render_ingest_errors,
+    render_levels,
     render_login,
     render_overview,
     render_room,
@@ -114,12 +115,30 @@ def _pages() -> dict[str, str]:
             make_unmapped(), period=PERIOD, periods=PERIODS, context=context
         ),
         "/ingest-errors": render_ingest_errors(errors, context=context),
+        "/levels": render_levels(
+            LEVEL_PROPOSALS, [], run_label="review run 41 of 2026-03", run_id=41,
+            can_adopt=True, adopt_path="/api/v1/local-level-proposals/adopt",
+            local_set_names=["Fernmoor local DRLs (invented)"], context=context,
+        ),
         "/login": render_login(error="That token was not accepted.", context=context),
         "/reports/2026-03": render_committee_report(
             groups, period=PERIOD, method=METHOD, software_version="0.1.0", events=events,
             flags=flags, attention=attention, exam_types=EXAM_TYPES, facility=FACILITY,
         ),
     }  # fmt: skip
+
+
+#: invented site values of one run: a proposal for adults and one for a paediatric band
+LEVEL_PROPOSALS = [
+    {"site": FACILITY, "exam_type": exam, "patient_group": group, "clinical_indication": None,
+     "quantity": "dap_gy_cm2", "unit": "Gy·cm²", "n_rooms": 11, "n_rooms_too_few_patients": 0,
+     "n_patients": 330, "typical_value": typical, "typical_ci_low": 0.9 * typical,
+     "typical_ci_high": 1.1 * typical, "proposal_status": "proposed",
+     "proposed_local_drl": 1.2 * typical, "proposed_ci_low": typical, "proposed_ci_high": None,
+     "min_rooms": 10, "local_level": 0.1 if group is None else None,
+     "local_level_set": "Fernmoor local DRLs (invented)" if group is None else None}
+    for exam, group, typical in (("chest_pa", None, 0.07), ("chest_pa", "weight_15_30kg", 0.02))
+]  # fmt: skip
 
 
 SHOT_NAMES = {
@@ -131,6 +150,7 @@ SHOT_NAMES = {
     "/flags": "flags",
     "/unmapped": "unmapped",
     "/ingest-errors": "ingest-errors",
+    "/levels": "levels",
     "/login": "login",
     "/reports/2026-03": "report",
 }
@@ -142,6 +162,8 @@ class _Site:
     requests: list[str] = field(default_factory=list)
     #: triage requests the page sent: (path, X-CSRF-Token header, JSON body)
     patches: list[tuple[str, str, dict[str, Any]]] = field(default_factory=list)
+    #: proposals adopted by the levels page: (path, X-CSRF-Token header, JSON body)
+    posts: list[tuple[str, str, dict[str, Any]]] = field(default_factory=list)
 
 
 def _triage_answer(path: str, body: dict[str, Any]) -> tuple[int, dict[str, Any]]:
@@ -182,6 +204,15 @@ def _handler(pages: dict[str, bytes], files: dict[str, bytes], site: _Site) -> t
             else:
                 status, answer = _triage_answer(self.path, body)
             self._send(status, json.dumps(answer).encode(), "application/json")
+
+        def do_POST(self) -> None:
+            length = int(self.headers.get("Content-Length") or 0)
+            body = json.loads(self.rfile.read(length) or b"{}")
+            site.posts.append((self.path, self.headers.get("X-CSRF-Token", ""), body))
+            answer = {"name": body.get("set_name"), "version": body.get("version"),
+                      "effective_from": body.get("effective_from"),
+                      "levels": body.get("choices") or []}  # fmt: skip
+            self._send(201, json.dumps(answer).encode(), "application/json")
 
         def _send(self, status: int, body: bytes, kind: str, *, cache: bool = False) -> None:
             self.send_response(status)
@@ -433,6 +464,30 @@ def test_a_refused_triage_says_why(context: Any, site: _Site) -> None:
         page.close()
 
 
+def test_a_physicist_adopts_a_ticked_proposal(context: Any, site: _Site) -> None:
+    page = _visit(context, site.base_url + "/levels").page
+    try:
+        site.posts.clear()
+        page.locator("input[name=choice]").nth(1).check()
+        page.fill("input[name=version]", "2026-2")
+        page.fill("input[name=effective_from]", "2026-05-01")
+        page.fill("input[name=source]", "dose committee, minute 12")
+        page.locator("fieldset.adopt button").click()
+        result = page.locator(".adopt-result")
+        page.wait_for_function(
+            "el => el.textContent.startsWith('Stored')", arg=result.element_handle()
+        )
+        ((path, token, body),) = site.posts
+        assert (path, token) == ("/api/v1/local-level-proposals/adopt", CSRF_TOKEN)
+        assert body["run_id"] == 41 and body["version"] == "2026-2"
+        assert body["choices"] == [
+            {"exam_type": "chest_pa", "quantity": "dap_gy_cm2",
+             "patient_group": "weight_15_30kg", "clinical_indication": ""}
+        ]  # fmt: skip
+    finally:
+        page.close()
+
+
 def test_overview_table_sorts_on_click(context: Any, site: _Site) -> None:
     page = _visit(context, site.base_url + "/").page
     try:
@@ -524,11 +579,11 @@ def demo(tmp_path_factory: pytest.TempPathFactory) -> Iterator[_Demo]:
 
     import uvicorn
 
-    from beamaudit.api.app import create_app
-    from beamaudit.api.auth import create_token
     from beamaudit.api.cli import main
     from beamaudit.api.settings import load
     from beamaudit.api.store import make_engine, make_session_factory
+    from beamaudit.api.store.auth import create_token
+    from beamaudit.api.web.app import create_app
 
     given = os.environ.get("BEAMAUDIT_TEST_DEMO_DIR")
     folder = Path(given) if given else tmp_path_factory.mktemp("demo")

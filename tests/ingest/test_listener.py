@@ -54,6 +54,7 @@ from beamaudit.ingest.listener import (
     start_listener,
     storage_contexts,
 )
+from beamaudit.ingest.sender import open_association
 
 CT_IMAGE_STORAGE = "1.2.840.10008.5.1.4.1.1.2"  # PS3.4 Table B.5-1
 CR_IMAGE_STORAGE = "1.2.840.10008.5.1.4.1.1.1"
@@ -396,7 +397,7 @@ def _associate(listener: Listener, *contexts: tuple[str, str]) -> Association:
     ae = AE("TESTSCU")
     for sop_class, syntax in contexts:
         ae.add_requested_context(sop_class, syntax)
-    assoc = ae.associate("127.0.0.1", listener.port, ae_title="BEAMAUDIT")
+    assoc = open_association(ae, "127.0.0.1", listener.port, ae_title="BEAMAUDIT")
     assert assoc.is_established
     return assoc
 

@@ -31,6 +31,7 @@ from beamaudit.ingest.listener import (
     StoreOutcome,
     start_listener,
 )
+from beamaudit.ingest.sender import open_association
 
 XRAY_DOSE_SR = next(iter(DOSE_REPORT_STORAGE_SOP_CLASSES))
 EXPLICIT_LE = "1.2.840.10008.1.2.1"
@@ -54,7 +55,7 @@ def listening(**settings: object) -> Iterator[tuple[int, list[ReceivedObject]]]:
 def _send(port: int, calling: str = "CT_MAIN", **sr: object) -> int | None:
     ae = AE(ae_title=calling)
     ae.add_requested_context(XRAY_DOSE_SR, EXPLICIT_LE)
-    assoc = ae.associate("127.0.0.1", port, ae_title="BEAMAUDIT")
+    assoc = open_association(ae, "127.0.0.1", port, ae_title="BEAMAUDIT")
     if not assoc.is_established:
         return None
     raw = assoc.dul.socket.socket if assoc.dul.socket else None
@@ -83,7 +84,7 @@ def test_idle_associations_of_one_ae_title_leave_room_for_the_others() -> None:
         for _ in range(10):
             ae = AE(ae_title="DR_ROOM1")
             ae.add_requested_context(XRAY_DOSE_SR, EXPLICIT_LE)
-            held.append(ae.associate("127.0.0.1", port, ae_title="BEAMAUDIT"))
+            held.append(open_association(ae, "127.0.0.1", port, ae_title="BEAMAUDIT"))
         try:
             assert sum(a.is_established for a in held) == 4  # the rest refused, transient
             assert _send(port, calling="CT_MAIN") == 0
@@ -108,7 +109,7 @@ def test_idle_associations_are_closed_after_the_network_timeout() -> None:
     with listening(network_timeout_s=0.5) as (port, _):
         ae = AE(ae_title="DR_ROOM1")
         ae.add_requested_context(XRAY_DOSE_SR, EXPLICIT_LE)
-        assoc = ae.associate("127.0.0.1", port, ae_title="BEAMAUDIT")
+        assoc = open_association(ae, "127.0.0.1", port, ae_title="BEAMAUDIT")
         assert assoc.is_established
         deadline = time.monotonic() + 10
         while assoc.is_established and time.monotonic() < deadline:
@@ -120,7 +121,7 @@ def test_an_association_is_cut_off_at_its_whole_lifetime() -> None:
     with listening(association_timeout_s=1.0, network_timeout_s=30) as (port, _):
         ae = AE(ae_title="DR_ROOM1")
         ae.add_requested_context("1.2.840.10008.1.1")  # Verification (C-ECHO), PS3.4 Annex A
-        assoc = ae.associate("127.0.0.1", port, ae_title="BEAMAUDIT")
+        assoc = open_association(ae, "127.0.0.1", port, ae_title="BEAMAUDIT")
         assert assoc.is_established
         deadline = time.monotonic() + 15
         while assoc.is_established and time.monotonic() < deadline:
@@ -134,7 +135,7 @@ def test_an_object_over_the_size_limit_aborts_its_association_and_leaves_no_file
     with listening(max_object_bytes=256 * 1024) as (port, received):
         ae = AE(ae_title="CT_MAIN")
         ae.add_requested_context(XRAY_DOSE_SR, EXPLICIT_LE)
-        assoc = ae.associate("127.0.0.1", port, ae_title="BEAMAUDIT")
+        assoc = open_association(ae, "127.0.0.1", port, ae_title="BEAMAUDIT")
         raw = assoc.dul.socket.socket  # pynetdicom leaves it open when the peer cut it off
         big = build_dose_sr()
         big.TextValue = "x" * (2 * 1024 * 1024)  # 2 MiB in one object

@@ -63,6 +63,20 @@ def test_cumulative_sum_over_five_years_worked_by_hand() -> None:
     assert result.window_start == datetime(2019, 12, 31, 23, 59, 59, 999999)
 
 
+def test_the_worst_window_holds_for_a_registry_of_many_patients() -> None:
+    # a site's CT registry has thousands of patients: the hand-made history of P1 among 2,000
+    # other invented ones (one 4 mSv exam each) keeps its worst window of 105 mSv
+    keys, when, dose = history()
+    others = np.array([f"{k:032x}" for k in range(2000)], dtype=object)
+    keys = np.concatenate([others, keys])
+    when = np.concatenate([np.full(2000, np.datetime64("2022-05-05T10:00", "ns")), when])
+    dose = np.concatenate([np.full(2000, 4.0), dose])
+    result = cumulative_effective_dose(keys, when, dose, as_of=date(2024, 12, 31))
+    records = {r["patient_key"]: r for r in result.to_records()}
+    assert records[P1]["peak_window_dose_msv"] == 105.0
+    assert records[f"{1999:032x}"]["peak_window_dose_msv"] == 4.0
+
+
 def test_the_list_above_a_level() -> None:
     result = cumulative_effective_dose(*history(), as_of=date(2024, 12, 31))
     assert len(result.above()) == 0  # 85 mSv in the window ending today

@@ -22,13 +22,14 @@ from pynetdicom import AE
 from sqlalchemy import func, select
 
 from beamaudit.api.cli import main
-from beamaudit.api.pipeline import Pipeline
-from beamaudit.api.receiving import make_store_handler
-from beamaudit.api.scanning import scan_paths
+from beamaudit.api.intake.pipeline import Pipeline
+from beamaudit.api.intake.receiving import make_store_handler
+from beamaudit.api.intake.scanning import scan_paths
 from beamaudit.api.store import models as m
 from beamaudit.ingest.errors import ERROR_CODES
 from beamaudit.ingest.listener import ListenerConfig, StoreStatus, start_listener
 from beamaudit.ingest.pseudonym import Pseudonymiser
+from beamaudit.ingest.sender import open_association
 
 KEY = b"reliability-corpus-key-32-bytes!"
 CONFLICT_REASON = "already stored with different content"
@@ -174,7 +175,7 @@ def test_listener_answers_and_records_every_case(store, tmp_path: Path, chunked_
     refused_at_negotiation: list[str] = []
     refused_by_sender: list[str] = []
     with start_listener(ListenerConfig(port=port), handler):
-        assoc = ae.associate("127.0.0.1", port, ae_title="BEAMAUDIT")
+        assoc = open_association(ae, "127.0.0.1", port, ae_title="BEAMAUDIT")
         assert assoc.is_established
         accepted = {(c.abstract_syntax, c.transfer_syntax[0]) for c in assoc.accepted_contexts}
         try:
@@ -204,7 +205,7 @@ def test_listener_answers_and_records_every_case(store, tmp_path: Path, chunked_
         finally:
             assoc.release()
         # the listener is still up and stores a good object after all that
-        assoc = ae.associate("127.0.0.1", port, ae_title="BEAMAUDIT")
+        assoc = open_association(ae, "127.0.0.1", port, ae_title="BEAMAUDIT")
         good = dx_header("after-the-corpus")
         assert assoc.send_c_store(good).Status == StoreStatus.SUCCESS
         assert assoc.send_c_echo().Status == 0

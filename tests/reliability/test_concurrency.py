@@ -31,8 +31,9 @@ from procs import SharedStore, beamaudit_process, counts, shared_store
 from pynetdicom import AE
 from sqlalchemy import select
 
-from beamaudit.api.auth import create_token
 from beamaudit.api.store import models as m
+from beamaudit.api.store.auth import create_token
+from beamaudit.ingest.sender import open_association
 
 DX_PRESENTATION = "1.2.840.10008.5.1.4.1.1.1.1"
 EXPLICIT_LE = "1.2.840.10008.1.2.1"
@@ -61,7 +62,7 @@ def _send(port: int, files: list[bytes], statuses: list[int]) -> None:
 
     ae = AE(ae_title="CONCURRENT")
     ae.add_requested_context(DX_PRESENTATION, EXPLICIT_LE)
-    assoc = ae.associate("127.0.0.1", port, ae_title="BEAMAUDIT")
+    assoc = open_association(ae, "127.0.0.1", port, ae_title="BEAMAUDIT")
     assert assoc.is_established
     try:
         for data in files:

@@ -20,7 +20,8 @@ from peers import free_port, wait_for_tcp
 from procs import beamaudit_process, counts, shared_store
 from pynetdicom import AE
 
-from beamaudit.api.scanning import BATCH_SIZE
+from beamaudit.api.intake.scanning import BATCH_SIZE
+from beamaudit.ingest.sender import open_association
 
 N_SCAN = BATCH_SIZE * 3 + 57  # several batches and a partial one
 N_SEND = 60
@@ -87,7 +88,7 @@ def _send_all(port: int, datasets, acknowledged: list[str], answered: list[str])
     """Send every data set on one association until it breaks; note what was answered."""
     ae = AE(ae_title="CRASHTEST")
     ae.add_requested_context(DX_PRESENTATION, EXPLICIT_LE)
-    assoc = ae.associate("127.0.0.1", port, ae_title="BEAMAUDIT")
+    assoc = open_association(ae, "127.0.0.1", port, ae_title="BEAMAUDIT")
     # pynetdicom leaves the socket of an association whose peer was killed to the garbage
     # collector: keep it, to close it here
     raw = assoc.dul.socket.socket if assoc.dul.socket is not None else None

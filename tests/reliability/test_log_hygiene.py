@@ -24,6 +24,8 @@ from peers import free_port, wait_for_tcp
 from procs import beamaudit_process, counts, every_value, shared_store
 from pynetdicom import AE
 
+from beamaudit.ingest.sender import open_association
+
 BIRTH_DATE = "1943-11-07"
 SPELLINGS = ("1943-11-07", "19431107", "1943/11/07", "1943.11.07")
 BACKENDS = ["sqlite", pytest.param("postgresql", marks=pytest.mark.postgres)]
@@ -73,7 +75,7 @@ def test_listener_logs_no_birth_date(backend: str, tmp_path: Path) -> None:
             assert wait_for_tcp(port, timeout_s=60)
             ae = AE(ae_title="DR_ROOM1")
             ae.add_requested_context(DX_PRESENTATION, EXPLICIT_LE)
-            assoc = ae.associate("127.0.0.1", port, ae_title="BEAMAUDIT")
+            assoc = open_association(ae, "127.0.0.1", port, ae_title="BEAMAUDIT")
             assert assoc.send_c_store(_header_with_birth_date("hygiene-listen")).Status == 0
             assoc.release()
         assert counts(store)["events"] == 1
@@ -124,7 +126,7 @@ def test_a_newline_in_a_logged_value_cannot_forge_a_log_line(
 
     configure_logging()
     forged = "2026-12-01 00:00:00,000 ERROR beamaudit: forged by the sender"
-    logging.getLogger("beamaudit.api.app").error(
+    logging.getLogger("beamaudit.api.web.app").error(
         "unexpected error answering %s %s", "GET", "/flags?room=RAD1\n" + forged
     )
     logging.getLogger("uvicorn.error").error("Invalid HTTP request: %r\r\n%s", "x", forged)

@@ -22,13 +22,14 @@ from procs import SharedStore, shared_store
 from pynetdicom import AE
 from sqlalchemy import String, cast, select
 
-from beamaudit.api.pipeline import Pipeline
-from beamaudit.api.receiving import make_store_handler
-from beamaudit.api.scanning import scan_paths
+from beamaudit.api.intake.pipeline import Pipeline
+from beamaudit.api.intake.receiving import make_store_handler
+from beamaudit.api.intake.scanning import scan_paths
 from beamaudit.api.store import Base
 from beamaudit.api.store.migrate import upgrade
 from beamaudit.ingest.listener import ListenerConfig, start_listener
 from beamaudit.ingest.pseudonym import Pseudonymiser, load_or_create_key
+from beamaudit.ingest.sender import open_association
 
 #: every spelling of the invented patient that must never leave ingest
 SECRETS = (
@@ -63,7 +64,7 @@ def _ingest_everywhere(store: SharedStore, tmp_path: Path) -> int:
     ):
         ae = AE(ae_title="PRIVACY")
         ae.add_requested_context(DX_PRESENTATION, EXPLICIT_LE)
-        assoc = ae.associate("127.0.0.1", port, ae_title="BEAMAUDIT")
+        assoc = open_association(ae, "127.0.0.1", port, ae_title="BEAMAUDIT")
         for i in range(3):
             assert assoc.send_c_store(dx_header(f"privacy-listen-{i}")).Status == 0
         bad = dx_header("privacy-listen-bad", KVP="900")  # an error that names the object

@@ -3,7 +3,7 @@
 Units (ingest/units.py): conversions within a dimension compose (a->b->c equals a->c), are
 linear (k*v converts to k*convert(v)), keep the sign, and agree with the SI prefixes as powers of
 ten (BIPM SI Brochure, 9th ed., Table 7); across dimensions, or with an unknown unit, they are
-refused. Fingerprint (api/pipeline.py): the same exposures give the same fingerprint whatever
+refused. Fingerprint (api/intake/pipeline.py): the same exposures give the same fingerprint whatever
 the transfer syntax they came in, the provenance and the notes; any change of an exposure value
 changes it.
 """
@@ -21,7 +21,7 @@ from hypothesis import strategies as st
 from pydicom import dcmread
 from pydicom.uid import ExplicitVRBigEndian, ExplicitVRLittleEndian, ImplicitVRLittleEndian
 
-from beamaudit.api.pipeline import printable, result_fingerprint
+from beamaudit.api.intake.pipeline import printable, result_fingerprint
 from beamaudit.ingest.pseudonym import Pseudonymiser
 from beamaudit.ingest.reader import read_bytes, read_dataset
 from beamaudit.ingest.units import UnitError, convert, dimension_of, known_units

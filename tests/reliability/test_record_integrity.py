@@ -31,10 +31,10 @@ from peers import free_port, wait_for_http
 from procs import SharedStore, beamaudit_process, shared_store, start_beamaudit
 from sqlalchemy import select
 
-from beamaudit.api.auth import create_token
 from beamaudit.api.review import Period, ReviewParameters
-from beamaudit.api.reviews import run_review
+from beamaudit.api.runs.reviews import run_review
 from beamaudit.api.store import models as m
+from beamaudit.api.store.auth import create_token
 
 BACKENDS = ["sqlite", pytest.param("postgresql", marks=pytest.mark.postgres)]
 MONTH = "2024-03"  # the corpus headers' study date is 2024-03-05
@@ -270,7 +270,7 @@ def _kill_a_running_review(store: SharedStore, tmp_path: Path) -> int:
 def test_a_review_killed_mid_way_is_marked_failed_when_the_service_next_starts(
     backend: str, tmp_path: Path
 ) -> None:
-    from beamaudit.api.runs import this_process
+    from beamaudit.api.runs.record import this_process
 
     with shared_store(backend, tmp_path) as store:
         _export(tmp_path / "first", [f"first-{i}" for i in range(24)] + ["first-odd"])

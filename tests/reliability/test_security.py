@@ -17,8 +17,9 @@ from procs import beamaudit_process, counts, shared_store
 from pynetdicom import AE
 from sqlalchemy import select
 
-import beamaudit.api.auth as auth
+import beamaudit.api.store.auth as auth
 from beamaudit.api.store import models as m
+from beamaudit.ingest.sender import open_association
 
 DX_PRESENTATION = "1.2.840.10008.5.1.4.1.1.1.1"
 EXPLICIT_LE = "1.2.840.10008.1.2.1"
@@ -114,7 +115,7 @@ def test_listener_accepts_only_the_configured_calling_ae_titles(tmp_path: Path) 
             for calling, allowed in (("INTRUDER", False), ("DR_ROOM1", True)):
                 ae = AE(ae_title=calling)
                 ae.add_requested_context(DX_PRESENTATION, EXPLICIT_LE)
-                assoc = ae.associate("127.0.0.1", port, ae_title="BEAMAUDIT")
+                assoc = open_association(ae, "127.0.0.1", port, ae_title="BEAMAUDIT")
                 assert assoc.is_established == allowed, calling
                 if allowed:
                     assert assoc.send_c_store(dx_header("from-dr-room1")).Status == 0
@@ -146,11 +147,11 @@ def test_listener_serves_a_legitimate_sender_under_idle_connections_and_associat
             for _ in range(10):
                 ae = AE(ae_title="DR_ROOM1")
                 ae.add_requested_context(DX_PRESENTATION, EXPLICIT_LE)
-                held.append(ae.associate("127.0.0.1", port, ae_title="BEAMAUDIT"))
+                held.append(open_association(ae, "127.0.0.1", port, ae_title="BEAMAUDIT"))
             try:
                 ae = AE(ae_title="CT_MAIN")
                 ae.add_requested_context(DX_PRESENTATION, EXPLICIT_LE)
-                assoc = ae.associate("127.0.0.1", port, ae_title="BEAMAUDIT")
+                assoc = open_association(ae, "127.0.0.1", port, ae_title="BEAMAUDIT")
                 assert assoc.is_established
                 assert assoc.send_c_store(dx_header("legitimate-under-load")).Status == 0
                 assoc.release()

@@ -83,13 +83,13 @@ def upgrade() -> None:
 
 def _runs_and_findings(bind: Any) -> None:
     """Bounds and scope of the stored runs; a finding for each stored flag."""
-    from beamaudit.api.findings import (
+    from beamaudit.api.store.base import utcnow
+    from beamaudit.api.store.finding_identity import (
         finding_key,
         finding_period,
         finding_subject,
         number_changes,
     )
-    from beamaudit.api.store.base import utcnow
 
     meta = sa.MetaData()
     runs = sa.Table("review_runs", meta, autoload_with=bind)

@@ -74,7 +74,7 @@ def test_exports_carry_the_states_in_the_pages_words_beside_the_codes() -> None:
     import csv
     import io
 
-    from beamaudit.api.review_export import groups_csv_text
+    from beamaudit.api.runs.export import groups_csv_text
 
     result = {"groups": [{**GROUP, "reference_level": 0.4, "level_kind": "international",
                           "status": "below_level", "ratio_to_level": 0.205}]}  # fmt: skip

@@ -19,9 +19,9 @@ from rdsr_builders import fluoroscopy_report
 from sqlalchemy import func, select
 
 from beamaudit.api.cli import main
-from beamaudit.api.pipeline import Pipeline
-from beamaudit.api.postprocess import process_new_events
-from beamaudit.api.receiving import make_store_handler
+from beamaudit.api.intake.pipeline import Pipeline
+from beamaudit.api.intake.postprocess import process_new_events
+from beamaudit.api.intake.receiving import make_store_handler
 from beamaudit.api.store import make_engine, make_session_factory, upgrade
 from beamaudit.api.store import models as m
 from beamaudit.ingest.listener import ListenerConfig, start_listener

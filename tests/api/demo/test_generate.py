@@ -432,7 +432,7 @@ def test_reported_dap_agrees_with_the_beam_model_except_the_planted_meter(
 def test_planted_findings_are_listed_with_review_kinds(demo: tuple[Path, ScenarioManifest]) -> None:
     _, manifest = demo
     kinds = Counter(f.kind for f in manifest.planted_findings if f.required)
-    assert set(kinds) <= set(FLAG_KINDS) | {"ingest_error"}
+    assert set(kinds) <= set(FLAG_KINDS) | {"ingest_error", "recurrent_exposure"}
     assert kinds == {
         "dap_ratio_out_of_tolerance": 1,
         "changepoint": 1,  # the meter fault's ratio step is optional (a 2-month baseline)
@@ -441,7 +441,13 @@ def test_planted_findings_are_listed_with_review_kinds(demo: tuple[Path, Scenari
         "no_dose_data": 1,
         "unmapped_events": 1,
         "ingest_error": 3,
+        "recurrent_exposure": 1,  # found on the recurrent-exposure list, not by a flag
     }
+    (recurrent,) = manifest.findings("recurrent_exposure")
+    assert recurrent.expected["studies"] == 10
+    # ten three-phase CTs of 3 x 5.9 mGy x 40 cm = 708 mGy.cm each, at k = 0.015 mSv/(mGy.cm)
+    # (AAPM Report 96 Table 4, adult abdomen-pelvis; from memory): 10.6 mSv each, 106 mSv in all
+    assert recurrent.expected["cumulative_effective_dose_msv"] == pytest.approx(106.2, abs=0.1)
     meter = manifest.findings("dap_ratio_out_of_tolerance")[0]
     assert meter.room == "RAD 1"
     assert meter.expected["reported_to_true_after"]["median"] == pytest.approx(1.35, abs=0.02)

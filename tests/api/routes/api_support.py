@@ -11,10 +11,10 @@ import httpx
 import pytest
 from fastapi.testclient import TestClient
 
-from beamaudit.api.app import create_app
-from beamaudit.api.auth import create_token
-from beamaudit.api.pipeline import Pipeline
+from beamaudit.api.intake.pipeline import Pipeline
 from beamaudit.api.settings import load
+from beamaudit.api.store.auth import create_token
+from beamaudit.api.web.app import create_app
 from beamaudit.ingest.events import ExposureEvent, FilterLayer, ParseResult, SourceObject
 
 PREFIX = "/api/v1"
@@ -70,6 +70,7 @@ class Api:
 
 
 def make_api(store: Any, tmp_path: Any, **settings: Any) -> Iterator[Api]:
+    settings.setdefault("notify", {"outbox": tmp_path / "outbox.jsonl"})  # digests stay here
     app = create_app(
         load(database_url=store.url, secret_key_path=tmp_path / "pseudonym.key", **settings),
         engine=store.engine,
@@ -160,7 +161,7 @@ def stored_run(store: Any, flags: list[dict[str, Any]], **fields: Any) -> int:
     defaults), with ``flags`` (the core's JSON) as occurrences of their findings; its id."""
     from datetime import date
 
-    from beamaudit.api.findings import store_flags
+    from beamaudit.api.runs.findings import store_flags
     from beamaudit.api.store import models as m
 
     with store.session_factory.begin() as session:

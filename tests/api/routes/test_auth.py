@@ -7,8 +7,8 @@ import re
 
 import pytest
 
-from beamaudit.api.auth import ROLES
-from beamaudit.api.routes._openapi import ApiOperation, api_operations
+from beamaudit.api.store.auth import ROLES
+from beamaudit.api.web.routes.openapi import ApiOperation, api_operations
 
 PUBLIC = {("GET", "/api/v1/health")}
 

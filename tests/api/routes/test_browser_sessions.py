@@ -15,8 +15,8 @@ from datetime import timedelta
 from corpus import dx_header, encode
 from sqlalchemy import select, update
 
-from beamaudit.api.auth import create_token
 from beamaudit.api.store import models as m
+from beamaudit.api.store.auth import create_token
 from beamaudit.api.store.base import utcnow
 
 OWN = "http://testserver"

@@ -171,11 +171,9 @@ def test_unknown_set_is_404_and_viewer_is_403(api) -> None:
     assert api.get("/level-sets", as_="viewer").status_code == 403
 
 
-def test_levels_for_a_band_or_an_indication_are_refused_whole_not_stored_as_adult(
-    api, catalogue
-) -> None:
-    # the store keeps no patient group or indication yet: storing such a level without them would
-    # apply a child's level to adults, so the file is refused with the reason and nothing is kept
+def test_levels_for_a_band_or_an_indication_are_kept_with_them(api, catalogue) -> None:
+    # a child's level stored without its band would apply to adults: the band and the
+    # indication are stored, shown, exported and read back as they were
     text = (
         "set_name,kind,version,effective_from,set_source,exam_type,quantity,value,unit,source,"
         "note,patient_group,clinical_indication\n"
@@ -184,7 +182,21 @@ def test_levels_for_a_band_or_an_indication_are_refused_whole_not_stored_as_adul
         "weight_15_30kg,\n"
     )
     response = api.post("/level-sets.csv", content=text.encode(), headers=CSV, as_="physicist")
+    assert response.status_code == 201, response.text
+    (stored,) = api.get("/level-sets").json()
+    assert [(x["patient_group"], x["value"]) for x in stored["levels"]] == [
+        ("", 0.1),
+        ("weight_15_30kg", 0.02),
+    ]
+    exported = api.get(f"/level-sets/{stored['id']}/levels.csv").text
+    assert "weight_15_30kg" in exported
+
+
+def test_a_level_for_an_unknown_band_is_422(api, catalogue) -> None:
+    level = {"exam_type": "chest_pa", "quantity": "dap_gy_cm2", "value": 0.1}
+    body = LOCAL | {"levels": [level | {"patient_group": "toddlers"}]}
+    response = api.post("/level-sets", json=body)
     assert response.status_code == 422
-    assert "cannot keep levels for a patient group" in response.text
-    assert "patient group weight_15_30kg" in response.text
-    assert api.get("/level-sets").json() == []
+    assert "is not a band" in response.text
+    twice = LOCAL | {"levels": [level, level | {"clinical_indication": "acute_stroke"}]}
+    assert api.post("/level-sets", json=twice).status_code == 201

@@ -68,6 +68,21 @@ def test_start_a_review_and_read_its_result(api, november) -> None:
     assert any(f["kind"] == "group_above_level" for f in result["flags"])
 
 
+def test_a_review_started_by_the_api_sends_the_digest_of_its_new_findings(
+    api, november, tmp_path
+) -> None:
+    import json
+
+    run_id = api.post("/reviews", json={"period": "2026-11"}).json()["id"]
+    flags = api.get(f"/reviews/{run_id}/flags").json()
+    lines = (tmp_path / "outbox.jsonl").read_text().splitlines()  # no server configured
+    [digest] = [json.loads(line) for line in lines]
+    assert (digest["trigger"], digest["review_run_id"]) == ("review", run_id)
+    assert digest["new_findings"] == len({f["finding_id"] for f in flags}) > 0
+    api.post("/reviews", json={"period": "2026-11"})  # found again: nothing new, no digest
+    assert len((tmp_path / "outbox.jsonl").read_text().splitlines()) == 1
+
+
 def test_result_as_csv_and_xlsx(api, november) -> None:
     run_id = api.post("/reviews", json={"period": "2026-11"}).json()["id"]
     response = api.get(f"/reviews/{run_id}/result.csv", as_="viewer")

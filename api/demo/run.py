@@ -1,0 +1,562 @@
+"""The end-to-end demo: an invented hospital's files through the real ingest paths.
+
+1. :func:`beamaudit.api.demo.generate.generate_scenario` writes the invented
+   scenario as DICOM files (``DIR/dicom``) and its manifest.
+2. The rooms' beam configurations and the QA measurements of the calibrated
+   rooms are stored (as a physicist would enter them), so reconstruction uses
+   them.
+3. Rooms delivered by "folder" are read by the folder scan; rooms delivered by
+   "cstore" are sent over DICOM C-STORE to listeners on free loopback ports
+   (two listener processes on the one database, as two ingest nodes); the
+   broken files go through the folder scan too.
+4. The national and the (invented) local reference-level sets are imported,
+   and a monthly review runs for every month of the scenario.
+5. The nightly notification step sends the digest of the new findings: with no mail server or
+   webhook configured (the demo never uses one), it is written to ``DIR/outbox.jsonl``.
+6. :func:`compare_with_plan` sets the flags beside the planted findings.
+
+Everything here is invented; nothing is a real patient, person or hospital.
+"""
+
+from __future__ import annotations
+
+import json
+import logging
+import multiprocessing
+import multiprocessing.context
+import time
+from collections import Counter
+from collections.abc import Iterator
+from concurrent.futures import ThreadPoolExecutor
+from contextlib import contextmanager
+from dataclasses import dataclass, field
+from datetime import date
+from multiprocessing.connection import Connection
+from multiprocessing.process import BaseProcess
+from pathlib import Path
+from typing import Any
+
+from sqlalchemy import select
+from sqlalchemy.orm import Session, sessionmaker
+
+from beamaudit.api.demo.errors import DemoError
+from beamaudit.api.store import models as m
+from beamaudit.api.store.auth import record_change
+
+__all__ = ["DemoOutcome", "compare_with_plan", "run_demo"]
+
+log = logging.getLogger(__name__)
+
+
+@dataclass
+class DemoOutcome:
+    manifest: dict[str, Any]
+    scan: dict[str, Any] = field(default_factory=dict)
+    cstore: dict[str, int] = field(default_factory=dict)
+    run_ids: dict[str, int] = field(default_factory=dict)
+    flags: list[dict[str, Any]] = field(default_factory=list)
+    ingest_errors: list[dict[str, str]] = field(default_factory=list)
+    #: the recurrent-exposure list at the end of the demo's months: pseudonyms, counts, sums
+    recurrent: list[dict[str, Any]] = field(default_factory=list)
+    #: the patient pseudonym of each study the scenario planted for that list
+    recurrent_planted: dict[str, str] = field(default_factory=dict)
+    #: seconds spent in each phase, in the order they ran (``generate``, ``scan``, ...)
+    timings: dict[str, float] = field(default_factory=dict)
+    #: the nightly notification step's deliveries (to the outbox file) and the file
+    notifications: list[dict[str, Any]] = field(default_factory=list)
+    outbox: Path | None = None
+
+
+def _phase_timer(timings: dict[str, float]) -> Any:
+    """``phase = _phase_timer(t)``; ``with phase("scan"):`` adds the block's seconds to ``t``."""
+
+    @contextmanager
+    def phase(name: str) -> Iterator[None]:
+        t0 = time.perf_counter()
+        try:
+            yield
+        finally:
+            elapsed = time.perf_counter() - t0
+            timings[name] = timings.get(name, 0.0) + elapsed
+            log.debug("demo phase %s: %.2f s", name, elapsed)
+
+    return phase
+
+
+def _setup_rooms(sessions: sessionmaker[Session], manifest: dict[str, Any]) -> None:
+    from beamaudit.model import FilterSpec, QAMeasurement, calibrate_room
+
+    with sessions.begin() as session:
+        for r in manifest["rooms"]:
+            site_name = r.get("site") or manifest["institution"]
+            site = session.scalar(select(m.Site).where(m.Site.name == site_name))
+            if site is None:
+                site = m.Site(name=site_name)
+                session.add(site)
+                session.flush()
+            room = m.Room(
+                site_id=site.id,
+                name=r["station_name"],
+                modality=r["modality"],
+                anode_material=r.get("anode_material") or "tungsten",
+                anode_angle_deg=float(r.get("anode_angle_deg") or 12.0),
+                ripple_percent=float(r.get("ripple_percent") or 0.0),
+                filtration=r.get("inherent_filtration") or None,
+                table_to_detector_mm=r.get("table_to_detector_mm"),
+            )
+            session.add(room)
+            session.flush()
+            session.add(
+                m.Device(
+                    room_id=room.id,
+                    station_name=r["station_name"],
+                    manufacturer=r["manufacturer"],
+                    model_name=r["model_name"],
+                    serial_number=r["serial_number"],
+                    device_observer_uid=r.get("device_observer_uid"),
+                    institution_name=site_name,
+                )
+            )
+            qa = r.get("qa_measurements") or []
+            for q in qa:
+                session.add(
+                    m.QAMeasurementRow(
+                        room_id=room.id,
+                        measured_on=date.fromisoformat(q["measured_on"]),
+                        kvp_kv=q["kvp_kv"],
+                        filtration=q.get("filtration"),
+                        distance_mm=q["distance_mm"],
+                        output_ugy_per_mas=q["output_ugy_per_mas"],
+                        hvl_mm_al=q.get("hvl_mm_al"),
+                        note=q.get("note"),
+                    )
+                )
+            if r.get("calibrated") and qa:
+                cal = calibrate_room(
+                    [
+                        QAMeasurement(
+                            kv=q["kvp_kv"],
+                            filters=tuple(
+                                FilterSpec(f["material"], f["thickness_mm"])
+                                for f in q.get("filtration") or []
+                            ),
+                            distance_mm=q["distance_mm"],
+                            measured_output_ugy_per_mas=q["output_ugy_per_mas"],
+                            measured_hvl_mm_al=q.get("hvl_mm_al"),
+                        )
+                        for q in qa
+                    ],
+                    anode="W",
+                    anode_angle_deg=room.anode_angle_deg,
+                    ripple_percent=room.ripple_percent,
+                )
+                session.add(
+                    m.RoomCalibrationRow(
+                        room_id=room.id,
+                        output_scale=cal.output_scale,
+                        output_scale_uncertainty_rel=cal.output_scale_uncertainty_rel,
+                        inherent_filtration_mm_al=cal.inherent_filtration_mm_al,
+                        residuals=[
+                            x.as_dict() if hasattr(x, "as_dict") else dict(x.__dict__)
+                            for x in cal.residuals
+                        ],
+                        n_measurements=len(qa),
+                    )
+                )
+            record_change(
+                session,
+                actor="demo",
+                action="create",
+                entity="room",
+                entity_id=room.id,
+                after={"name": room.name, "calibrated": bool(r.get("calibrated"))},
+            )
+
+
+#: Listener processes the C-STORE rooms are sent to, as a hospital runs several ingest nodes on
+#: one database (DEPLOYMENT.md): the listener parses in its association's thread, so one process
+#: uses one core, and the dose reports' parsing would otherwise leave the second core idle.
+CSTORE_NODES = 2
+_CALLING_AE = "DEMO_MODALITY"
+_CALLED_AE = "BEAMAUDIT"
+_NODE_TIMEOUT_S = 120.0
+
+
+def _node_context() -> (
+    multiprocessing.context.SpawnContext | multiprocessing.context.ForkServerContext
+):
+    """A fork server (the listener processes inherit no database connection of this one)."""
+    if "forkserver" not in multiprocessing.get_all_start_methods():
+        return multiprocessing.get_context("spawn")
+    return multiprocessing.get_context("forkserver")
+
+
+def _listener_node(database_url: str, key: bytes, conn: Connection) -> None:
+    """One ingest node: ``beamaudit listen``'s handler on its own engine, in its own process.
+
+    Sends ``("port", n)`` once listening (or ``("error", text)``), then stores what arrives until
+    anything is received on ``conn``, then sends ``("ids", event ids it stored)``.
+    """
+    from beamaudit.api.intake.pipeline import Pipeline
+    from beamaudit.api.intake.receiving import make_store_handler
+    from beamaudit.api.store import make_engine, make_session_factory
+    from beamaudit.ingest.listener import ListenerConfig, start_listener
+    from beamaudit.ingest.pseudonym import Pseudonymiser
+
+    try:
+        engine = make_engine(database_url)
+        received: list[int] = []
+        handler = make_store_handler(  # completed in one batch after the sends (below)
+            Pipeline(make_session_factory(engine)),
+            Pseudonymiser(key),
+            after_store=received.extend,
+        )
+        listener = start_listener(ListenerConfig(ae_title=_CALLED_AE, port=0), handler)
+    except Exception as exc:  # told to the demo, which ends with one line
+        conn.send(("error", f"{type(exc).__name__}: {exc}"))
+        return
+    with listener:
+        conn.send(("port", listener.port))
+        conn.recv()
+    engine.dispose()
+    conn.send(("ids", received))
+
+
+class _Nodes:
+    """Listener processes on free loopback ports; :meth:`stop` returns the stored event ids."""
+
+    def __init__(self, database_url: str, key: bytes, count: int) -> None:
+        context = _node_context()
+        self._procs: list[tuple[BaseProcess, Connection]] = []
+        self.ports: list[int] = []
+        try:
+            for _ in range(count):
+                ours, theirs = context.Pipe()
+                proc = context.Process(
+                    target=_listener_node, args=(database_url, key, theirs), daemon=True
+                )
+                proc.start()
+                theirs.close()
+                self._procs.append((proc, ours))
+            for _, conn in self._procs:
+                self.ports.append(int(self._answer(conn, "port")))
+        except BaseException:
+            self.close()
+            raise
+
+    @staticmethod
+    def _answer(conn: Connection, kind: str) -> Any:
+        if not conn.poll(_NODE_TIMEOUT_S):
+            raise DemoError(f"the demo's listener process gave no answer in {_NODE_TIMEOUT_S:g} s")
+        try:
+            got, value = conn.recv()
+        except EOFError:
+            raise DemoError("the demo's listener process ended unexpectedly") from None
+        if got != kind:
+            raise DemoError(f"the demo's listener process failed: {value}")
+        return value
+
+    def stop(self) -> list[int]:
+        ids: list[int] = []
+        try:
+            for _, conn in self._procs:
+                conn.send("stop")
+            for proc, conn in self._procs:
+                ids.extend(self._answer(conn, "ids"))
+                proc.join(_NODE_TIMEOUT_S)
+        finally:
+            self.close()
+        return ids
+
+    def close(self) -> None:
+        """End every listener process still running (after a failure)."""
+        for proc, conn in self._procs:
+            if proc.is_alive():
+                proc.terminate()
+                proc.join(10)
+            conn.close()
+
+
+@contextmanager
+def _files_sent_undecoded() -> Iterator[None]:
+    """Have pynetdicom send a file's data set as its bytes are (as a modality sends what it has
+    stored), not decoded into a pydicom Dataset and encoded again: for a dose report of a few
+    hundred content items that costs more than the listener's work. The flag is process-wide in
+    pynetdicom; it is put back afterwards."""
+    from pynetdicom import _config
+
+    before = _config.STORE_SEND_CHUNKED_DATASET
+    _config.STORE_SEND_CHUNKED_DATASET = True
+    try:
+        yield
+    finally:
+        _config.STORE_SEND_CHUNKED_DATASET = before
+
+
+def _send_cstore(files: list[Path], port: int, sop_classes: list[str]) -> Counter[str]:
+    """Send ``files`` (Explicit VR Little Endian Part 10 files) on one association."""
+    from pydicom.uid import ExplicitVRLittleEndian
+    from pynetdicom import AE
+
+    from beamaudit.ingest.sender import open_association
+
+    counts: Counter[str] = Counter()
+    if not files:
+        return counts
+    ae = AE(ae_title=_CALLING_AE)
+    for uid in sop_classes:
+        ae.add_requested_context(uid, [ExplicitVRLittleEndian])
+    assoc = open_association(ae, "127.0.0.1", port, ae_title=_CALLED_AE)
+    if not assoc.is_established:
+        raise DemoError("the demo could not open an association with its own listener")
+    try:
+        for path in files:
+            status = assoc.send_c_store(path)
+            code = int(getattr(status, "Status", 0xFFFF))
+            counts["success" if code == 0 else "failure"] += 1
+    finally:
+        assoc.release()
+    return counts
+
+
+def _send_all(files: list[Path], ports: list[int], sop_classes: list[str]) -> Counter[str]:
+    """Deal ``files`` over one association per port, all sending at once."""
+    streams = [files[i :: len(ports)] for i in range(len(ports))]
+    counts: Counter[str] = Counter()
+    with _files_sent_undecoded(), ThreadPoolExecutor(max_workers=len(ports)) as pool:
+        for c in pool.map(_send_cstore, streams, ports, [sop_classes] * len(ports)):
+            counts.update(c)
+    return counts
+
+
+def _database_url(sessions: sessionmaker[Session]) -> str | None:
+    """The URL another process can open the demo database with (None: an in-memory one)."""
+    bind = sessions.kw.get("bind")
+    url = getattr(bind, "url", None)
+    if url is None or (
+        url.get_backend_name() == "sqlite" and url.database in (None, "", ":memory:")
+    ):
+        return None
+    return str(url.render_as_string(hide_password=False))
+
+
+def run_demo(
+    sessions: sessionmaker[Session],
+    *,
+    output: Path,
+    months: int,
+    seed: int,
+    key: bytes,
+    end_month: str | None = None,
+    workers: int = 2,
+    cstore_nodes: int = CSTORE_NODES,
+) -> DemoOutcome:
+    """Generate, ingest through the real paths, import levels, review every month.
+
+    ``workers`` parser processes read the folder rooms; the C-STORE rooms go to
+    ``cstore_nodes`` listener processes on the same database (0, or an in-memory database: one
+    listener in this process). ``DemoOutcome.timings`` has the seconds of every phase.
+    """
+    from beamaudit.api.demo.generate import generate_scenario
+    from beamaudit.api.intake.pipeline import Pipeline
+    from beamaudit.api.intake.postprocess import Completion, process_new_events
+    from beamaudit.api.intake.receiving import make_store_handler
+    from beamaudit.api.intake.scanning import scan_paths
+    from beamaudit.api.review import (
+        Period,
+        ReviewParameters,
+        load_demo_local_levels,
+        load_national_levels,
+    )
+    from beamaudit.api.runs.reviews import run_review, store_level_sets
+    from beamaudit.api.store.review_rows import ensure_catalogue
+    from beamaudit.ingest.listener import ListenerConfig, start_listener
+    from beamaudit.ingest.pseudonym import Pseudonymiser
+
+    timings: dict[str, float] = {}
+    phase = _phase_timer(timings)
+    dicom = output / "dicom"
+    with phase("generate"):
+        generate_scenario(dicom, months=months, seed=seed, end_month=end_month)
+        manifest = json.loads((dicom / "manifest.json").read_text(encoding="utf-8"))
+    outcome = DemoOutcome(manifest=manifest, timings=timings)
+    with phase("setup"):
+        _setup_rooms(sessions, manifest)
+        with sessions.begin() as session:
+            ensure_catalogue(session, actor="demo")
+            store_level_sets(
+                session, [*load_national_levels(), *load_demo_local_levels()], actor="demo"
+            )
+    pipeline = Pipeline(sessions, completion=Completion())  # exam types and figures stored too
+    folders = [dicom / r["path"] for r in manifest["rooms"] if r["delivery"] == "folder"]
+    with phase("scan"):
+        summary = scan_paths(
+            [*folders, dicom / "broken"], pipeline=pipeline, key=key, workers=workers
+        )
+    outcome.scan = summary.as_dict()
+    cstore_rooms = [r for r in manifest["rooms"] if r["delivery"] == "cstore"]
+    files = [p for r in cstore_rooms for p in sorted((dicom / r["path"]).rglob("*")) if p.is_file()]
+    sop_classes = sorted({uid for r in cstore_rooms for uid in r["sop_classes"]})
+    url = _database_url(sessions) if cstore_nodes > 0 else None
+    with phase("cstore"):
+        # the listener processes store as they receive; their events are completed (exam
+        # types, figures) in one batch after the sends, the in-process listener's as it stores
+        if url is not None:
+            nodes = _Nodes(url, key, cstore_nodes)
+            try:
+                counts = _send_all(files, nodes.ports, sop_classes)
+            except BaseException:
+                nodes.close()
+                raise
+            received = nodes.stop()
+        else:  # an in-memory database: one listener in this process
+            received = []
+            handler = make_store_handler(pipeline, Pseudonymiser(key))
+            with start_listener(ListenerConfig(ae_title=_CALLED_AE, port=0), handler) as listener:
+                counts = _send_all(files, [listener.port], sop_classes)
+    outcome.cstore = dict(counts)
+    with phase("postprocess"):
+        process_new_events(sessions, received)
+    params = manifest.get("review_parameters") or {}
+    known = set(ReviewParameters.__dataclass_fields__)
+    overrides: dict[str, Any] = {
+        k: (tuple(v) if isinstance(v, list) else v) for k, v in params.items() if k in known
+    }
+    with phase("reviews"):
+        for month in manifest["months"]:
+            p = ReviewParameters(period=Period.parse(month), **overrides)
+            outcome.run_ids[month] = run_review(sessions, p, kind="monthly", actor="demo")
+    with phase("notify"):
+        from beamaudit.api.runs.notify import notify_new_findings
+        from beamaudit.api.settings import NotifySettings
+
+        # only the outbox: the demo's findings are invented and must reach no one's mailbox
+        outcome.outbox = output / "outbox.jsonl"
+        outcome.outbox.unlink(missing_ok=True)
+        notify = NotifySettings(outbox=outcome.outbox, recipients={})
+        deliveries = notify_new_findings(sessions, notify, trigger="nightly")
+        outcome.notifications = [d.__dict__ for d in deliveries]
+    with phase("collect"), sessions() as session:
+        for month, run_id in outcome.run_ids.items():
+            run = session.get(m.ReviewRun, run_id)
+            for f in (run.result or {}).get("flags", []) if run else []:
+                outcome.flags.append({**f, "period": month})
+        outcome.ingest_errors = [
+            {"source": e.source, "code": e.code, "reason": e.reason}
+            for e in session.scalars(select(m.IngestError).order_by(m.IngestError.id))
+        ]
+        _collect_recurrent(session, outcome)
+    return outcome
+
+
+def _collect_recurrent(session: Session, outcome: DemoOutcome) -> None:
+    """The recurrent-exposure list at the end of the months, and the planted studies' patient."""
+    from datetime import date, timedelta
+
+    from beamaudit.api.runs.recurrent import recurrent_exposure
+
+    last = max(outcome.manifest["months"])
+    year, month = (int(x) for x in last.split("-"))
+    end = date(year + month // 12, month % 12 + 1, 1) - timedelta(days=1)
+    outcome.recurrent = recurrent_exposure(session, as_of=end).patients
+    uids = [
+        u
+        for p in outcome.manifest["planted_findings"]
+        if p["kind"] == "recurrent_exposure"
+        for u in p.get("study_instance_uids") or []
+    ]
+    if uids:
+        outcome.recurrent_planted = {
+            uid: key or ""
+            for uid, key in session.execute(
+                select(m.Study.study_instance_uid, m.Study.patient_pseudo_id).where(
+                    m.Study.study_instance_uid.in_(uids)
+                )
+            )
+        }
+
+
+_KIND_OF_PLANT = {
+    "dap_ratio": "dap_ratio_out_of_tolerance",
+    "change_point": "changepoint",
+    "unmapped_protocol": "unmapped_events",
+}
+
+
+def _room_of(flag: dict[str, Any]) -> str | None:
+    return (flag.get("concerns") or {}).get("room")
+
+
+def compare_with_plan(outcome: DemoOutcome) -> dict[str, Any]:
+    """Each planted finding with the flags (or ingest errors) that found it; the unplanted flags."""
+    rooms = {r["name"]: r["station_name"] for r in outcome.manifest["rooms"]}
+    used: set[int] = set()
+    found = []
+    for plant in outcome.manifest["planted_findings"]:
+        kind = _KIND_OF_PLANT.get(plant["kind"], plant["kind"])
+        if kind == "recurrent_exposure":
+            keys = set(outcome.recurrent_planted.values())
+            hits = [p for p in outcome.recurrent if p["patient_key"] in keys]
+            found.append(
+                {
+                    "plant": plant["id"],
+                    "kind": kind,
+                    "found": len(keys) == 1 and bool(hits),
+                    "required": plant.get("required", True),
+                    "by": [
+                        f"{p['n_exams_in_window']} examinations, "
+                        f"{p['cumulative_dose_msv']:.0f} mSv (estimate)"
+                        for p in hits
+                    ],
+                }
+            )
+            continue
+        if kind == "ingest_error":
+            name = Path(plant.get("paths", [""])[0] or plant["id"]).name
+            hits = [e for e in outcome.ingest_errors if Path(e["source"]).name == name]
+            found.append(
+                {
+                    "plant": plant["id"],
+                    "kind": kind,
+                    "found": bool(hits),
+                    "by": [e["reason"] for e in hits],
+                }
+            )
+            continue
+        station = rooms.get(plant.get("room") or "", plant.get("station_name"))
+        uids = set(plant.get("study_instance_uids") or [])
+        hit_indices: list[int] = []
+        for i, f in enumerate(outcome.flags):
+            if f["kind"] != kind:
+                continue
+            where = f.get("concerns") or {}
+            if uids and where.get("study_uid") not in uids:
+                continue
+            if station and where.get("room") not in (station, None):
+                continue
+            if plant.get("exam_type") and where.get("exam_type") not in (plant["exam_type"], None):
+                continue
+            quantities = (plant.get("expected") or {}).get("quantities") or [plant.get("quantity")]
+            if (
+                kind == "changepoint"
+                and plant.get("quantity")
+                and where.get("quantity")
+                not in (
+                    *quantities,
+                    None,
+                )
+            ):
+                continue
+            hit_indices.append(i)
+        used.update(hit_indices)
+        found.append(
+            {
+                "plant": plant["id"],
+                "kind": kind,
+                "found": bool(hit_indices),
+                "required": plant.get("required", True),
+                "by": [outcome.flags[i]["reason"] for i in hit_indices[:3]],
+            }
+        )
+    unplanted = [f for i, f in enumerate(outcome.flags) if i not in used]
+    return {"planted": found, "unplanted": unplanted}

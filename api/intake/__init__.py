@@ -1,0 +1,1 @@
+"""Intake: parsed DICOM objects become stored events (folder scan, C-STORE, DICOMweb pull)."""

@@ -1,0 +1,1039 @@
+"""Reviews against reference levels, on the store: the bridge to :mod:`beamaudit.api.review`.
+
+* :func:`events_frame` reads the events of a period from the store into the
+  review core's input table (contract in :mod:`beamaudit.api.review.events`):
+  superseded image-header events (their study's dose report carries them) are
+  left out, and the images of one CT acquisition count once (the first image by
+  id stands for its acquisition: CTDIvol in CT headers is per acquisition and
+  is never summed over slices). ``esak_mgy`` is beamaudit's reconstructed
+  entrance surface air kerma; ``dap_gy_cm2`` the reported DAP and
+  ``recon_dap_gy_cm2`` the reconstructed one.
+* :func:`run_review` stores a :class:`~beamaudit.api.store.models.ReviewRun`
+  with its parameters, the reference-level set versions used and the software
+  version, runs the core, stores the result (JSON) and its flags, and returns
+  the run's id. History for change-points is the monthly medians of the
+  ``changepoint_lookback_months`` before the period, computed from the same
+  stored events by the same core, so a re-run gives the same result.
+* Catalogue and mapping rules live in the store; an empty store is seeded
+  with the shipped catalogue and rules on first use (and says so in the audit log).
+"""
+
+from __future__ import annotations
+
+import gc
+import json
+import logging
+from collections.abc import Callable, Iterator
+from contextlib import contextmanager
+from dataclasses import dataclass, replace
+from datetime import UTC, date, datetime
+from pathlib import Path
+from typing import Any
+
+import numpy as np
+import pandas as pd
+from sqlalchemy import (
+    Float,
+    String,
+    bindparam,
+    case,
+    cast,
+    func,
+    literal_column,
+    or_,
+    select,
+)
+from sqlalchemy.dialects.postgresql import ARRAY
+from sqlalchemy.orm import Session, sessionmaker
+
+from beamaudit import __version__
+from beamaudit.api.review import (
+    ExamCatalogue,
+    Period,
+    ReviewParameters,
+    ReviewResult,
+    review,
+)
+from beamaudit.api.runs.findings import store_flags
+from beamaudit.api.runs.record import (
+    NoEventsError,
+    UnknownNameError,
+    scope_of,
+    scope_words,
+    this_process,
+)
+from beamaudit.api.store import models as m
+from beamaudit.api.store.auth import record_change
+from beamaudit.api.store.base import utcnow
+from beamaudit.api.store.engine import SQLITE_BUSY_TIMEOUT_MS
+from beamaudit.api.store.review_rows import (
+    ensure_catalogue,
+    level_rows,
+    level_sets_from_store,
+    room_and_device_names,
+)
+
+__all__ = [
+    "events_frame",
+    "exam_type_events",
+    "month_period",
+    "period_conditions",
+    "review_events",
+    "run_review",
+    "stored_flags_frame",
+]
+
+
+log = logging.getLogger(__name__)
+
+_E = m.ExposureEventRow
+#: Columns every event has (or mostly has), read for every event of the period.
+_DENSE_SELECT: tuple[Any, ...] = (
+    _E.id.label("event_id"),
+    _E.study_id,
+    _E.room_id,
+    _E.device_id,
+    _E.modality,
+    _E.exam_type,
+    _E.patient_weight_kg,
+    _E.patient_age_years,
+    _E.dap_gy_cm2,
+    _E.recon_dap_gy_cm2,
+    _E.recon_esak_mgy.label("esak_mgy"),
+    _E.deviation_index,
+)
+#: Columns only some kinds of event carry: read for the events that have at least one of them.
+_SPARSE_COLUMNS: tuple[tuple[str, Any], ...] = (
+    ("ref_point_air_kerma_mgy", _E.reference_point_air_kerma_mgy),
+    ("ctdivol_mgy", _E.ctdivol_mgy),
+    ("dlp_mgy_cm", _E.dlp_mgy_cm),
+    ("agd_mgy", _E.organ_dose_mgy),
+    ("fluoro_time_s", case((_E.event_type == "fluoroscopy", _E.irradiation_duration_s))),
+)
+#: Header text: read only for the events still without an exam type (to map them).
+_TEXT_COLUMNS: tuple[tuple[str, Any], ...] = tuple(
+    (c.key, c)
+    for c in (
+        _E.study_description,
+        _E.series_description,
+        _E.protocol_name,
+        _E.body_part,
+        _E.view_position,
+    )
+)
+_FLOAT_NAMES = (
+    "patient_weight_kg",
+    "patient_age_years",
+    "dap_gy_cm2",
+    "recon_dap_gy_cm2",
+    "esak_mgy",
+    "deviation_index",
+)
+
+
+def month_period(text: str) -> Period:
+    """``YYYY-MM`` as a :class:`Period` (raises ``ReviewError`` on a bad month)."""
+    return Period.parse(text)
+
+
+def _as_utc(value: date) -> datetime:
+    return datetime(value.year, value.month, value.day, tzinfo=UTC)
+
+
+def _fetch(session: Session, stmt: Any, values: dict[str, Any]) -> np.ndarray:
+    """Run ``stmt`` on the raw DBAPI cursor; the rows as a 2-D object array (one column each).
+
+    One month of a large registry is a million rows: no SQLAlchemy row objects and no per-row
+    type processing, and the garbage collector paused while the row tuples are built (they hold
+    only numbers and strings, so there are no cycles to find; scanning a growing list of a million
+    tuples would cost more than reading them).
+    """
+    conn = session.connection()
+    compiled = stmt.compile(dialect=conn.dialect, compile_kwargs={"render_postcompile": True})
+    values = {**compiled.params, **values}  # literals of the statement, then the caller's values
+    args: Any = (
+        tuple(values[k] for k in compiled.positiontup or ()) if compiled.positional else values
+    )
+    dbapi_connection = conn.connection.dbapi_connection
+    assert dbapi_connection is not None  # a checked-out connection has its DBAPI connection
+    cursor = dbapi_connection.cursor()
+    paused = gc.isenabled()
+    gc.disable()
+    try:
+        cursor.execute(str(compiled), args)
+        width = len(cursor.description)
+        rows = cursor.fetchall()
+        table = np.array(rows, dtype=object) if rows else np.empty((0, width), dtype=object)
+        del rows
+    finally:
+        if paused:
+            gc.enable()
+        cursor.close()
+    return table.reshape(-1, width)
+
+
+def _period_conditions(
+    session: Session, *, start: date, end: date
+) -> tuple[list[Any], Any, dict[str, Any]]:
+    """The WHERE conditions of the events in ``[start, end)``, their time in seconds since the
+    epoch, and the values of the conditions' parameters."""
+    E = m.ExposureEventRow
+    when = func.coalesce(E.event_datetime, E.study_datetime)
+    sqlite = session.get_bind().dialect.name == "sqlite"
+    epoch = (
+        (func.julianday(when) - 2440587.5) * 86400.0
+        if sqlite
+        else cast(func.extract("epoch", when), Float)  # numeric would come as Decimal objects
+    )
+    first_slices = (
+        select(func.min(E.id))
+        .where(E.acquisition_key.is_not(None), E.source_kind == "image_header")
+        .group_by(E.acquisition_key)
+    )
+    conditions = [
+        E.superseded.is_(False),
+        when >= bindparam("t0"),
+        when < bindparam("t1"),
+        E.acquisition_key.is_(None) | (E.source_kind != "image_header") | E.id.in_(first_slices),
+    ]
+    t0, t1 = _as_utc(start), _as_utc(end)
+    if sqlite:  # stored as UTC wall time text
+        values: dict[str, Any] = {
+            "t0": t0.strftime("%Y-%m-%d %H:%M:%S.%f"),
+            "t1": t1.strftime("%Y-%m-%d %H:%M:%S.%f"),
+        }
+    else:
+        values = {"t0": t0, "t1": t1}
+    return conditions, epoch, values
+
+
+def period_conditions(
+    session: Session, *, start: date, end: date
+) -> tuple[list[Any], Any, dict[str, Any]]:
+    """The WHERE conditions of the events a review of ``[start, end)`` reads (superseded events
+    and repeated CT slices left out), their time as seconds since the epoch, and the values of
+    the conditions' parameters for the DBAPI cursor (pass typed datetimes to a session)."""
+    return _period_conditions(session, start=start, end=end)
+
+
+#: Ids per ``IN`` list (SQLite's default limit on parameters is 32766 since 3.32).
+_IDS_PER_QUERY = 5000
+
+
+def _positions(event_ids: np.ndarray, ids: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+    """Positions of ``ids`` in the sorted ``event_ids``, for those of ``ids`` found there."""
+    ids = ids.astype(np.int64)
+    if len(event_ids) == 0:
+        return np.zeros(0, dtype=np.int64), np.zeros(len(ids), dtype=bool)
+    at = np.minimum(np.searchsorted(event_ids, ids), len(event_ids) - 1)
+    found = event_ids[at] == ids
+    return at[found], found
+
+
+def _names_column(ids: np.ndarray, names: dict[int, str], missing: str) -> pd.Categorical:
+    """Names of the rows' ids (``missing`` for no id or an unknown one), as a categorical."""
+    keys = pd.Index(np.array(list(names), dtype=np.float64))
+    position = keys.get_indexer(ids)
+    labels = np.array([*names.values(), missing], dtype=object)
+    categories, label_code = np.unique(labels, return_inverse=True)
+    codes = label_code.reshape(-1)[np.where(position < 0, len(keys), position)]
+    return pd.Categorical.from_codes(codes, categories=categories)
+
+
+def _study_column(study_ids: np.ndarray, event_ids: np.ndarray) -> pd.Categorical:
+    """The study's id as text (it stands for its UID here; flags map it back), or
+    ``(event N)`` for an event without a study, as a categorical."""
+    has = ~np.isnan(study_ids)
+    codes = np.empty(len(study_ids), dtype=np.int64)
+    uniques, known = np.unique(study_ids[has], return_inverse=True)  # ids sorted: by id order
+    codes[has] = known.reshape(-1)
+    codes[~has] = len(uniques) + np.arange(int((~has).sum()))
+    labels = np.concatenate(
+        [
+            uniques.astype(np.int64).astype(str).astype(object),  # the ids' decimal digits
+            np.array([f"(event {i})" for i in event_ids[~has]], dtype=object),
+        ]
+    )
+    return pd.Categorical.from_codes(codes, categories=pd.Index(labels, dtype=object))
+
+
+def _text_categorical(values: np.ndarray) -> pd.Categorical:
+    return pd.Categorical(pd.Series(values, dtype=object))
+
+
+def _dense_by_rows(
+    session: Session, conditions: list[Any], epoch: Any, values: dict[str, Any]
+) -> dict[str, Any]:
+    """The dense columns from the rows of a plain query (any backend)."""
+    rows = _fetch(
+        session, select(*_DENSE_SELECT, epoch.label("epoch_s")).where(*conditions), values
+    )
+    names = [c.key for c in _DENSE_SELECT]
+    out: dict[str, Any] = {"event_id": rows[:, 0].astype(np.int64)}
+    for offset, name in enumerate(names[1:], start=1):
+        if name in ("modality", "exam_type"):
+            out[name] = _text_categorical(rows[:, offset])
+        else:
+            out[name] = rows[:, offset].astype(np.float64)
+    out["epoch_s"] = rows[:, len(names)].astype(np.float64)
+    return out
+
+
+_COPY_SIGNATURE = b"PGCOPY\n\xff\r\n\x00"
+
+
+def _dense_by_copy(
+    session: Session, conditions: list[Any], epoch: Any, values: dict[str, Any]
+) -> dict[str, Any] | None:
+    """The dense columns by one binary ``COPY`` (PostgreSQL), parsed as a NumPy record array:
+    the way through the session's own connection when the ADBC driver cannot connect.
+
+    Every column goes as ``float8`` (ids are far below 2**53, so exactly), NULL as NaN, and the
+    two text columns as positions in the lists of the period's distinct values, so that every
+    row has the same width and the whole result is one ``frombuffer``: no Python object per
+    value. None when a row is not as expected (a text value that was not in the lists because it
+    was committed in between): then the rows are read the plain way.
+    """
+    lists = _dense_lists(session, conditions, values)
+    nan: Any = literal_column("'NaN'::float8")
+
+    def number(column: Any) -> Any:
+        return func.coalesce(cast(column, Float), nan)
+
+    def position(column: Any, name: str) -> Any:  # 1-based; NaN for NULL, -1 if not listed
+        found = func.array_position(bindparam(f"{name}_list", type_=ARRAY(String)), column)
+        return func.coalesce(cast(found, Float), case((column.is_(None), nan), else_=-1.0))
+
+    selected = [position(c, c.key) if c.key in lists else number(c) for c in _DENSE_SELECT] + [
+        number(epoch)
+    ]
+    stmt = select(*selected).where(*conditions)
+    conn = session.connection()
+    compiled = stmt.compile(dialect=conn.dialect, compile_kwargs={"render_postcompile": True})
+    params = {**compiled.params, **values, **{f"{k}_list": v for k, v in lists.items()}}
+    dbapi_connection = conn.connection.dbapi_connection
+    assert dbapi_connection is not None
+    buffer = bytearray()
+    query = f"COPY ({compiled}) TO STDOUT (FORMAT BINARY)"
+    cursor: Any = dbapi_connection.cursor()  # psycopg's, which can COPY
+    with cursor, cursor.copy(query, params) as copy:
+        for block in copy:
+            buffer += block
+    width = len(selected)
+    # binary COPY: signature, flags (int32), header extension length (int32) and extension;
+    # per row the field count (int16), then per field its length (int32) and value; trailer -1
+    if buffer[:11] != _COPY_SIGNATURE:
+        return None
+    start = 19 + int.from_bytes(buffer[15:19], "big")
+    fields = [("n", ">i2")]
+    for j in range(width):
+        fields += [(f"length{j}", ">i4"), (f"value{j}", ">f8")]
+    row = np.dtype(fields)
+    body = memoryview(buffer)[start : len(buffer) - 2]
+    if len(body) % row.itemsize:
+        return None
+    table = np.frombuffer(body, dtype=row)
+    if not (table["n"] == width).all() or not all(
+        (table[f"length{j}"] == 8).all() for j in range(width)
+    ):
+        return None
+    return _dense_from_columns([table[f"value{j}"].astype(np.float64) for j in range(width)], lists)
+
+
+def _dense_lists(session: Session, conditions: list[Any], values: dict[str, Any]) -> dict[str, Any]:
+    """The period's distinct modalities and exam types, sorted: text columns travel as their
+    1-based positions in these lists."""
+    E = m.ExposureEventRow
+    pairs = _fetch(session, select(E.modality, E.exam_type).where(*conditions).distinct(), values)
+    return {
+        "modality": sorted({p for p in pairs[:, 0] if p is not None}),
+        "exam_type": sorted({p for p in pairs[:, 1] if p is not None}),
+    }
+
+
+def _dense_from_columns(column: list[np.ndarray], lists: dict[str, Any]) -> dict[str, Any] | None:
+    """The dense columns from the all-number form (ids and values as floats, NaN for NULL, text
+    as 1-based positions in ``lists``, -1 for a text not listed); None when a text was not
+    listed (it was committed after the lists were read)."""
+    width = len(column)
+    out: dict[str, Any] = {"event_id": column[0].astype(np.int64)}
+    for j, c in enumerate(_DENSE_SELECT[1:], start=1):
+        if c.key in lists:
+            codes = column[j]
+            if (codes == -1).any():
+                return None
+            categories = pd.Index(lists[c.key], dtype=object)
+            out[c.key] = pd.Categorical.from_codes(
+                np.where(np.isnan(codes), -1, codes - 1).astype(np.int64), categories=categories
+            )
+        else:
+            out[c.key] = column[j]
+    out["epoch_s"] = column[width - 1]
+    return out
+
+
+#: -DBL_MAX, the stand-in for NULL in the all-REAL reads from SQLite (SQLite has no NaN: it
+#: stores a NaN as NULL); no stored quantity, id or time comes near it
+_SQLITE_NULL = -1.7976931348623157e308
+
+
+def _sqlite_file(session: Session) -> str | None:
+    """The path of the session's SQLite database file, or None (another backend, in memory)."""
+    url = session.connection().engine.url
+    if url.get_backend_name() != "sqlite" or url.query:
+        return None
+    database = url.database or ""
+    if database in ("", ":memory:") or database.startswith("file:"):
+        return None
+    return database
+
+
+def _dense_by_arrow(
+    session: Session, conditions: list[Any], epoch: Any, values: dict[str, Any]
+) -> dict[str, Any] | None:
+    """The dense and the sparse columns in one read through an ADBC driver, as Arrow arrays.
+
+    The DBAPI drivers make a Python object of every value they return (twelve million for a
+    month of a million events); the ADBC drivers (Apache Arrow's database connectivity) write the
+    values into Arrow arrays in C, which NumPy and pandas take as they are. Every number is read
+    as a double and the two texts as texts ('' for NULL), so that every column has one type
+    whatever its first rows hold; the sparse columns come in the same read (a second pass over
+    the table costs more than carrying them).
+
+    * SQLite (a database file): the ADBC SQLite driver in a short-lived process of its own
+      (:mod:`beamaudit.api.store.sqlite_arrow`: the driver has its own copy of the SQLite library,
+      which must never open the file inside a process that uses Python's ``sqlite3`` on it), in two
+      threads (events of even and of odd id), numbers with ``_SQLITE_NULL`` for NULL (SQLite has
+      no NaN); the rows come back as an Arrow IPC stream.
+    * PostgreSQL: the ADBC PostgreSQL driver (binary ``COPY`` parsed in C), one connection (a
+      second one measured no faster: the server is the bound), NULL as Arrow's null.
+
+    The driver reads through a connection of its own: None (the rows are read another way) when
+    the store is not a plain file or the server refuses the driver's connection, when the driver
+    is missing, or when the events it sees are not the session's (the session holds uncommitted
+    events of its own, or events were committed in between: count and highest id differ).
+    """
+    reader = {"sqlite": _sqlite_arrow_reader, "postgresql": _postgres_arrow_reader}.get(
+        session.get_bind().dialect.name
+    )
+    source = reader(session) if reader is not None else None
+    if source is None:
+        return None
+    texts = ("modality", "exam_type")
+
+    def number(column: Any) -> Any:
+        as_float = cast(column, Float)
+        if source.null is None:
+            return as_float
+        return func.coalesce(as_float, literal_column(repr(source.null)))
+
+    selected = [
+        func.coalesce(c, "") if c.key in texts else number(c) for c in _DENSE_SELECT
+    ] + [number(epoch)] + [number(c) for _, c in _SPARSE_COLUMNS]  # fmt: skip
+    E = m.ExposureEventRow
+    census = select(func.count(), func.max(E.id))
+    expected = tuple(session.execute(census).one())
+    census_sql = str(census.compile(dialect=session.get_bind().dialect))
+    statements = source.statements(select(*selected).where(*conditions), values)
+    if statements is None:
+        return None
+    pieces = source.read(census_sql, expected, statements)
+    if pieces is None:
+        return None
+    import pyarrow
+
+    # one chunk per column (the drivers hand rows over in batches), in id order; a part without
+    # rows has columns without a type ('permissive' takes the other parts' types)
+    table = pyarrow.concat_tables(pieces, promote_options="permissive").combine_chunks()
+    ids = table.column(0).to_numpy(zero_copy_only=False)
+    if len(ids) > 1 and not (np.diff(ids) > 0).all():
+        table = table.take(np.argsort(ids, kind="stable"))  # sorted runs or none: merged
+    out: dict[str, Any] = {}
+    names = [c.key for c in _DENSE_SELECT] + ["epoch_s"] + [n for n, _ in _SPARSE_COLUMNS]
+    for j, name in enumerate(names):
+        column = table.column(j)
+        if len(column) == 0:  # no rows: SQLite's driver gives such columns no type
+            out[name] = (
+                pd.Categorical([], categories=pd.Index([], dtype=object))
+                if name in texts
+                else np.zeros(0, dtype=np.float64)
+            )
+            continue
+        if name in texts:
+            out[name] = _arrow_categorical(column)
+            continue
+        if not pyarrow.types.is_float64(column.type):  # double by the query: else not understood
+            return None
+        numbers = column.to_numpy(zero_copy_only=False)  # Arrow's nulls as NaN
+        out[name] = (
+            numbers if source.null is None else np.where(numbers == source.null, np.nan, numbers)
+        )
+    out["event_id"] = out["event_id"].astype(np.int64)
+    return out
+
+
+@dataclass(frozen=True)
+class _ArrowSource:
+    """How an ADBC driver reads the session's store."""
+
+    #: the statements (SQL with every value written in) that read the period, given the select
+    #: and its values; None when they cannot be written so
+    statements: Callable[[Any, dict[str, Any]], list[str] | None]
+    #: reads the statements (census checked against the expected one in the same snapshot):
+    #: their Arrow tables, or None (census differs, the driver cannot read the store)
+    read: Callable[[str, tuple[Any, ...], list[str]], list[Any] | None]
+    #: the number standing for NULL in number columns; None: Arrow's own null
+    null: float | None
+
+
+def _sqlite_literal(value: Any) -> str | None:
+    """``value`` as a SQLite literal (texts quoted, numbers as they are); None for other types."""
+    if isinstance(value, str):
+        return "'" + value.replace("'", "''") + "'"
+    if isinstance(value, int | float) and not isinstance(value, bool):
+        return repr(value)
+    return None
+
+
+def _sqlite_arrow_reader(session: Session) -> _ArrowSource | None:
+    """The ADBC SQLite driver on the session's database file, in a process of its own; None when
+    that cannot be done (the store is not a plain file).
+
+    Two statements, read in two threads of that process: the events of even and of odd id (each
+    pass tests every row, but decodes only its half, whatever ids the period holds). Numbers come
+    with ``_SQLITE_NULL`` for NULL (SQLite has no NaN). The values are written into the statements
+    (the period's bounds and constant texts, none from a user).
+    """
+    path = _sqlite_file(session)
+    if path is None:
+        return None
+    uri = Path(path).resolve().as_uri()
+    dialect = session.get_bind().dialect
+
+    def statements(stmt: Any, values: dict[str, Any]) -> list[str] | None:
+        out = []
+        for parity in (0, 1):
+            half = stmt.where(m.ExposureEventRow.id % 2 == parity)
+            compiled = half.compile(dialect=dialect, compile_kwargs={"render_postcompile": True})
+            params = {**compiled.params, **values}
+            literals = [_sqlite_literal(params[k]) for k in compiled.positiontup or ()]
+            pieces = str(compiled).split("?")
+            if len(pieces) != len(literals) + 1:
+                return None  # a '?' that is not a parameter
+            sql = pieces[0]
+            for literal, piece in zip(literals, pieces[1:], strict=True):
+                if literal is None:
+                    return None  # a value of another type
+                sql += literal + piece
+            out.append(sql)
+        return out
+
+    def read(census: str, expected: tuple[Any, ...], sqls: list[str]) -> list[Any] | None:
+        request = {
+            "uri": uri,
+            "busy_timeout_ms": SQLITE_BUSY_TIMEOUT_MS,
+            "census": census,
+            "expected": list(expected),
+            "statements": sqls,
+        }
+        table = _read_in_a_process(request)
+        return None if table is None else [table]
+
+    return _ArrowSource(statements, read, _SQLITE_NULL)
+
+
+def _read_in_a_process(request: dict[str, Any]) -> Any:
+    """Run :mod:`beamaudit.api.store.sqlite_arrow` on ``request``; its Arrow table, or None (the
+    driver is missing or could not read the file, or the census differed: the reason is logged)."""
+    import subprocess
+    import sys
+    import tempfile
+
+    import pyarrow
+    import pyarrow.ipc
+
+    command = [sys.executable, "-m", "beamaudit.api.store.sqlite_arrow"]
+    with (
+        tempfile.TemporaryFile() as errors,
+        subprocess.Popen(
+            command, stdin=subprocess.PIPE, stdout=subprocess.PIPE, stderr=errors
+        ) as child,
+    ):
+        assert child.stdin is not None and child.stdout is not None
+        try:
+            child.stdin.write(json.dumps(request).encode())
+            child.stdin.close()
+            table = pyarrow.ipc.open_stream(child.stdout).read_all()
+        except (OSError, pyarrow.ArrowInvalid):  # it ended without an answer
+            table = None
+        status = child.wait()
+        if status != 0 or table is None:
+            errors.seek(0)
+            reason = errors.read().decode(errors="replace").strip()
+            log.info("the review read the other way: the Arrow reader ended with status %s%s",
+                     status, f" ({reason.splitlines()[-1]})" if reason else "")  # fmt: skip
+            return None
+    return table
+
+
+def _postgres_arrow_reader(session: Session) -> _ArrowSource | None:
+    """The ADBC PostgreSQL driver on the session's database; None when the driver is missing.
+
+    Its own connection: the session's URL as a libpq URI, the session's ``search_path`` set,
+    census and read in one repeatable-read transaction. One statement, the values written
+    into it (the period's bounds and constant texts, none from a user): the driver runs a
+    statement without parameters as a binary COPY, a third faster than one with parameters.
+    """
+    try:
+        import adbc_driver_postgresql.dbapi as adbc
+        from adbc_driver_manager import Error as DriverError
+    except ImportError:
+        return None
+    url = session.connection().engine.url
+    uri = url.set(drivername="postgresql").render_as_string(hide_password=False)
+    search_path = session.execute(select(func.current_setting("search_path"))).scalar()
+    dialect = session.get_bind().dialect
+
+    @contextmanager
+    def connect() -> Iterator[Any]:
+        with adbc.connect(uri, autocommit=True) as arrow, arrow.cursor() as cursor:
+            cursor.execute("SELECT set_config('search_path', $1, false)", (search_path,))
+            cursor.fetchall()
+            cursor.execute("BEGIN ISOLATION LEVEL REPEATABLE READ READ ONLY")
+            try:
+                yield cursor
+            finally:
+                cursor.execute("ROLLBACK")
+
+    def statements(stmt: Any, values: dict[str, Any]) -> list[str] | None:
+        compiled = stmt.params(**values).compile(
+            dialect=dialect, compile_kwargs={"literal_binds": True}
+        )
+        return [str(compiled)]
+
+    def read(census: str, expected: tuple[Any, ...], sqls: list[str]) -> list[Any] | None:
+        def one(sql: str) -> Any:
+            with connect() as cursor:
+                cursor.execute(census)
+                if tuple(cursor.fetchone() or ()) != expected:
+                    return None
+                cursor.execute(sql)
+                return cursor.fetch_arrow_table()
+
+        try:
+            pieces = [one(sql) for sql in sqls]
+        except DriverError:  # the server refused the driver's connection: another way reads it
+            return None
+        return None if any(p is None for p in pieces) else pieces
+
+    return _ArrowSource(statements, read, None)
+
+
+def _arrow_categorical(column: Any) -> pd.Categorical:
+    """A text column read as Arrow ('' standing for NULL) as a categorical of its texts."""
+    encoded = column.combine_chunks().dictionary_encode()
+    categories = np.asarray(encoded.dictionary.to_pylist(), dtype=object)
+    codes = encoded.indices.to_numpy(zero_copy_only=False).astype(np.int64)
+    # categories sorted, '' (NULL) out, as pandas factorises the texts themselves
+    order = np.argsort(categories, kind="stable")
+    kept = order[categories[order] != ""]
+    recode = np.full(len(categories) + 1, -1, dtype=np.int64)  # the last: a null index
+    recode[kept] = np.arange(len(kept))
+    codes = recode[np.where(codes < 0, len(categories), codes)]
+    return pd.Categorical.from_codes(codes, categories=pd.Index(categories[kept], dtype=object))
+
+
+def review_events(session: Session, *, start: date, end: date) -> pd.DataFrame:
+    """The review core's events table for events in ``[start, end)`` (UTC dates), sorted by
+    ``event_id``, with the key columns (``site``, ``room``, ``device``, ``modality``,
+    ``exam_type``) and ``study_uid`` as categoricals.
+
+    Done in SQL where it is cheaper than in Python: the time comes as seconds since the epoch,
+    fluoroscopy time only for fluoroscopy events, and the repeated slices of a CT acquisition
+    (image headers sharing an acquisition key) are left out. Only the columns that (nearly) every
+    event has are read for every event; the dose columns only some kinds of event carry (K_a,r,
+    CT indices, glandular dose, fluoroscopy time) are read for the events that have one, and
+    header text for the events still without an exam type.
+    """
+    E = m.ExposureEventRow
+    conditions, epoch, values = _period_conditions(session, start=start, end=end)
+    dense = _dense_by_arrow(session, conditions, epoch, values)
+    if dense is None and session.get_bind().dialect.name == "postgresql":
+        dense = _dense_by_copy(session, conditions, epoch, values)
+    if dense is None:
+        dense = _dense_by_rows(session, conditions, epoch, values)
+    event_ids = dense["event_id"]
+    if len(event_ids) > 1 and not (np.diff(event_ids) > 0).all():
+        order = np.argsort(event_ids, kind="stable")
+        dense = {k: v[order] for k, v in dense.items()}
+        event_ids = dense["event_id"]
+    n = len(event_ids)
+    rooms, devices = room_and_device_names(session)
+    room_ids = dense["room_id"]
+    columns: dict[str, Any] = {
+        "event_id": event_ids,
+        "study_uid": _study_column(dense["study_id"], event_ids),
+        "event_datetime": pd.to_datetime(pd.Series(dense["epoch_s"]).round(3), unit="s", utc=True),
+        "site": _names_column(room_ids, {k: v[1] for k, v in rooms.items()}, "(no site)"),
+        "room": _names_column(room_ids, {k: v[0] for k, v in rooms.items()}, "(no room)"),
+        "device": _names_column(dense["device_id"], devices, "(unknown device)"),
+        "modality": dense["modality"],
+        "exam_type": dense["exam_type"],
+        **{name: dense[name] for name in _FLOAT_NAMES},
+    }
+    if all(name in dense for name, _ in _SPARSE_COLUMNS):  # read with the dense columns
+        columns.update((name, dense[name]) for name, _ in _SPARSE_COLUMNS)
+    else:
+        sparse = _fetch(
+            session,
+            select(E.id, *(c.label(name) for name, c in _SPARSE_COLUMNS)).where(
+                *conditions, or_(*(c.is_not(None) for _, c in _SPARSE_COLUMNS))
+            ),
+            values,
+        )
+        # (a later query may see events committed since the first: only those it read are kept)
+        at, found = _positions(event_ids, sparse[:, 0])
+        for offset, (name, _) in enumerate(_SPARSE_COLUMNS):
+            column = np.full(n, np.nan)
+            column[at] = sparse[found, 1 + offset].astype(np.float64)
+            columns[name] = column
+    del dense
+    # the clinical indication: few events carry one (a rule set it), read for those only
+    indication = np.full(n, None, dtype=object)
+    marked = _fetch(
+        session,
+        select(E.id, E.clinical_indication).where(*conditions, E.clinical_indication.is_not(None)),
+        values,
+    )
+    at, found = _positions(event_ids, marked[:, 0])
+    indication[at] = marked[found, 1]
+    columns["clinical_indication"] = indication
+    text_columns = {name: np.full(n, None, dtype=object) for name, _ in _TEXT_COLUMNS}
+    unmapped = event_ids[pd.isna(columns["exam_type"])]
+    for first in range(0, len(unmapped), _IDS_PER_QUERY):  # by id: exactly the events read
+        chunk = [int(i) for i in unmapped[first : first + _IDS_PER_QUERY]]
+        text = _fetch(
+            session, select(E.id, *(c for _, c in _TEXT_COLUMNS)).where(E.id.in_(chunk)), {}
+        )
+        at, found = _positions(event_ids, text[:, 0])
+        for offset, column in enumerate(text_columns.values()):
+            column[at] = text[found, 1 + offset]
+    columns.update(text_columns)
+    return pd.DataFrame(columns)
+
+
+def events_frame(session: Session, *, start: date, end: date) -> pd.DataFrame:
+    """The review core's events table for events in ``[start, end)`` (UTC dates), in plain
+    columns (text as objects, ``None`` where missing); :func:`review_events` is the same table
+    with categorical keys, as the review reads it."""
+    frame = review_events(session, start=start, end=end)
+    for c in ("study_uid", "site", "room", "device", "modality", "exam_type"):
+        values = frame[c].astype(object)
+        frame[c] = values.where(values.notna(), None)
+    return frame
+
+
+#: the columns of :func:`exam_type_events`, by name
+_EXAM_TYPE_COLUMNS: tuple[tuple[str, Any], ...] = (
+    ("event_id", _E.id),
+    ("study_id", _E.study_id),
+    ("room_id", _E.room_id),
+    ("exam_type", _E.exam_type),
+    ("patient_weight_kg", _E.patient_weight_kg),
+    ("kvp_kv", _E.kvp_kv),
+    ("exposure_mas", _E.exposure_mas),
+    ("dap_gy_cm2", _E.dap_gy_cm2),
+    ("recon_dap_gy_cm2", _E.recon_dap_gy_cm2),
+    ("esak_mgy", _E.recon_esak_mgy),
+    *_SPARSE_COLUMNS[:4],
+)
+
+
+def exam_type_events(session: Session, *, start: date, end: date, exam_type: str) -> pd.DataFrame:
+    """The events of one exam type in ``[start, end)`` (UTC dates), as the review reads them
+    (the same events: not superseded, one slice per CT acquisition), with the technique; read
+    by a plain query, for a page that shows one examination. ``study_uid`` is the study's id as
+    text, as in :func:`review_events`; ``room`` the room's name."""
+    conditions, epoch, values = _period_conditions(session, start=start, end=end)
+    stmt = select(*(c.label(n) for n, c in _EXAM_TYPE_COLUMNS), epoch.label("epoch_s")).where(
+        *conditions, _E.exam_type == bindparam("exam_type")
+    )
+    rows = _fetch(session, stmt, {**values, "exam_type": exam_type})
+    names = [n for n, _ in _EXAM_TYPE_COLUMNS]
+    frame = pd.DataFrame(rows, columns=[*names, "epoch_s"])
+    rooms, _ = room_and_device_names(session)
+    for name in names[4:]:
+        frame[name] = pd.to_numeric(frame[name], errors="coerce").astype(float)
+    frame["event_datetime"] = pd.to_datetime(
+        pd.to_numeric(frame["epoch_s"]).round(3), unit="s", utc=True
+    )
+    frame["room"] = [
+        rooms[int(r)][0] if r is not None and int(r) in rooms else "(no room)"
+        for r in frame["room_id"]
+    ]
+    frame["study_uid"] = [
+        str(int(s)) if s is not None and not pd.isna(s) else f"(event {int(e)})"
+        for s, e in zip(frame["study_id"], frame["event_id"], strict=True)
+    ]
+    frame["event_id"] = frame["event_id"].astype(np.int64)
+    return frame.drop(columns=["study_id", "room_id", "epoch_s"]).sort_values("event_id")
+
+
+def _lookback_start(period: Period, months: int) -> date:
+    y, mo = period.start.year, period.start.month - months
+    while mo <= 0:
+        mo += 12
+        y -= 1
+    return date(y, mo, 1)
+
+
+def _history(
+    session: Session, params: ReviewParameters, levels: list[Any], catalogue: ExamCatalogue
+) -> pd.DataFrame | None:
+    months = params.changepoint_lookback_months
+    if months <= 0:
+        return None
+    start = _lookback_start(params.period, months)
+    events = review_events(session, start=start, end=params.period.start)
+    if events.empty:
+        return None
+    earlier = replace(
+        params, period=Period(start, params.period.start), levels_on=params.period.start
+    )
+    result = review(events, levels=levels, params=earlier, catalogue=catalogue)
+    return result.monthly_df
+
+
+def execute_review(
+    session: Session, params: ReviewParameters
+) -> tuple[ReviewResult, list[dict[str, Any]]]:
+    """Run the review core on the store's events; returns the result and the level sets used."""
+    catalogue, rules = ensure_catalogue(session)
+    pairs = level_sets_from_store(session)
+    levels = [s for _, s in pairs]
+    events = review_events(session, start=params.period.start, end=params.period.end)
+    history = _history(session, params, levels, catalogue)
+    result = review(
+        events, levels=levels, params=params, history_df=history, catalogue=catalogue, rules=rules
+    )
+    used = [
+        {"id": row.id, "name": row.name, "version": row.version, "kind": row.kind,
+         "effective_from": row.effective_from.isoformat()}
+        for row, _ in pairs
+    ]  # fmt: skip
+    return result, used
+
+
+def _study_uids_in_flags(session: Session, flags: list[dict[str, Any]]) -> None:
+    """Put the Study Instance UID where the events table carried the study's id."""
+    concerns = [f.get("concerns") or {} for f in flags]
+    event_ids = {
+        int(c["event_id"]) for c in concerns if c.get("event_id") and not c.get("study_uid")
+    }
+    if event_ids:  # a flag on one exposure names its study too (the pages link to it)
+        study_of = dict(
+            session.execute(
+                select(m.ExposureEventRow.id, m.ExposureEventRow.study_id).where(
+                    m.ExposureEventRow.id.in_(event_ids)
+                )
+            ).all()
+        )
+        for c in concerns:
+            if c.get("event_id") and not c.get("study_uid") and study_of.get(int(c["event_id"])):
+                c["study_uid"] = str(study_of[int(c["event_id"])])
+    ids = {int(c["study_uid"]) for c in concerns if str(c.get("study_uid") or "").isdigit()}
+    if not ids:
+        return
+    uids = dict(
+        session.execute(
+            select(m.Study.id, m.Study.study_instance_uid).where(m.Study.id.in_(ids))
+        ).all()
+    )
+    for c in concerns:
+        value = str(c.get("study_uid") or "")
+        if value.isdigit():
+            c["study_uid"] = uids.get(int(value), value)
+
+
+def _check_scope(session: Session, params: ReviewParameters) -> dict[str, Any]:
+    """The scope's names checked against the store (:class:`UnknownNameError` for one it does
+    not know); the events' conditions the scope adds (on the room, device and exam type ids)."""
+    rooms, devices = room_and_device_names(session)
+    catalogue, _ = ensure_catalogue(session)
+    known = {
+        "sites": ("site", {site for _, site in rooms.values()}),
+        "rooms": ("room", {name for name, _ in rooms.values()}),
+        "devices": ("device", set(devices.values())),
+        "exam_types": ("exam type", {t.exam_type for t in catalogue.types}),
+    }
+    for key, (what, names) in known.items():
+        for name in getattr(params, key) or ():
+            if name not in names:
+                raise UnknownNameError(what, name, sorted(names))
+    E = m.ExposureEventRow
+    conditions: dict[str, Any] = {}
+    if params.sites:
+        conditions["sites"] = E.room_id.in_([i for i, (_, s) in rooms.items() if s in params.sites])
+    if params.rooms:
+        conditions["rooms"] = E.room_id.in_([i for i, (r, _) in rooms.items() if r in params.rooms])
+    if params.devices:
+        conditions["devices"] = E.device_id.in_(
+            [i for i, d in devices.items() if d in params.devices]
+        )
+    if params.exam_types:
+        conditions["exam_types"] = E.exam_type.in_(list(params.exam_types))
+    return conditions
+
+
+def _has_events(session: Session, params: ReviewParameters, scope: dict[str, Any]) -> bool:
+    """Whether the period holds at least one event in the scope."""
+    conditions, _, _ = _period_conditions(session, start=params.period.start, end=params.period.end)
+    stmt = select(m.ExposureEventRow.id).where(*conditions, *scope.values()).limit(1)
+    bounds = {"t0": _as_utc(params.period.start), "t1": _as_utc(params.period.end)}  # typed
+    return session.execute(stmt, bounds).first() is not None
+
+
+def run_review(
+    sessions: sessionmaker[Session],
+    params: ReviewParameters,
+    *,
+    kind: str = "monthly",
+    actor: str = "cli",
+) -> int:
+    """Run and store a review; returns the :class:`ReviewRun` id (status ``done`` or ``failed``).
+
+    The run keeps its scope (the filters of ``params``) and the process running it; its flags are
+    stored as occurrences of their findings (:func:`beamaudit.api.runs.findings.store_flags`).
+
+    Raises
+    ------
+    UnknownNameError
+        The scope names a room, site, device or exam type the store does not know.
+    NoEventsError
+        The period holds no event in the scope. Neither stores anything.
+    """
+    from beamaudit.api.review import ReviewError
+
+    with sessions.begin() as session:
+        scope = _check_scope(session, params)
+        parameters = params.to_json_dict()
+        if not _has_events(session, params, scope):
+            where = scope_words(scope_of(parameters))
+            raise NoEventsError(f"no events in {params.period.label} ({where}): no review stored")
+        run = m.ReviewRun(
+            kind=kind,
+            period=params.period.label,
+            period_start=params.period.start,
+            period_end=params.period.end,
+            scope=scope_of(parameters),
+            whole_site=not scope_of(parameters),
+            parameters=parameters,
+            software_version=__version__,
+            status="running",
+            runner=this_process(),
+        )
+        session.add(run)
+        session.flush()
+        run_id = run.id
+        record_change(session, actor=actor, action="start", entity="review_run", entity_id=run_id,
+                      after={"kind": kind, "period": run.period, "scope": run.scope})  # fmt: skip
+    try:
+        with sessions.begin() as session:
+            result, used = execute_review(session, params)
+            body = result.to_json_dict()
+            _study_uids_in_flags(session, body["flags"])
+            done = session.get(m.ReviewRun, run_id)
+            assert done is not None
+            done.level_sets = used
+            done.result = body
+            done.status = "done"
+            done.finished_at = utcnow()
+            counts = store_flags(session, done, body["flags"])
+            record_change(
+                session, actor=actor, action="finish", entity="review_run", entity_id=run_id,
+                after={"status": "done", "n_events": body["n_events"],
+                       "findings": counts.as_dict()},
+            )  # fmt: skip
+    except Exception as exc:  # recorded on the run, never left 'running'; only ReviewError is ours
+        with sessions.begin() as session:
+            failed = session.get(m.ReviewRun, run_id)
+            assert failed is not None
+            failed.status = "failed"
+            failed.error = (
+                str(exc) if isinstance(exc, ReviewError) else f"{type(exc).__name__}: {exc}"
+            )
+            failed.finished_at = utcnow()
+            record_change(
+                session, actor=actor, action="fail", entity="review_run", entity_id=run_id,
+                after={"status": "failed", "error": failed.error},
+            )  # fmt: skip
+        if not isinstance(exc, ReviewError):
+            raise
+    return run_id
+
+
+def stored_flags_frame(session: Session, run_id: int) -> pd.DataFrame:
+    """The flags of one stored run as a table."""
+    rows = session.scalars(select(m.FlagRow).where(m.FlagRow.review_run_id == run_id)).all()
+    return pd.DataFrame(
+        [
+            {
+                "flag_id": r.id,
+                "kind": r.kind,
+                "severity": r.severity,
+                "reason": r.reason,
+                "room": r.room,
+                "exam_type": r.exam_type,
+                "event_id": r.event_id,
+                "study_uid": r.study_instance_uid,
+                "status": r.status,
+            }
+            for r in rows
+        ]
+    )
+
+
+def store_level_sets(
+    session: Session, sets: list[Any], *, actor: str = "cli"
+) -> list[m.ReferenceLevelSetRow]:
+    """Add reference-level set versions (all or none; the caller owns the transaction).
+
+    Raises
+    ------
+    ReviewError
+        A set version that is stored already, or an exam type the catalogue lacks.
+    """
+    from beamaudit.api.review import ReviewError
+
+    catalogue, _ = ensure_catalogue(session)
+    known = {t.exam_type for t in catalogue.types}
+    rows = []
+    for s in sets:
+        unknown = sorted({e.exam_type for e in s.entries} - known)
+        if unknown:
+            raise ReviewError(
+                f"set {s.name!r} {s.version}: exam types not in the catalogue: {', '.join(unknown)}"
+            )
+        clash = session.scalar(
+            select(m.ReferenceLevelSetRow.id).where(
+                m.ReferenceLevelSetRow.name == s.name, m.ReferenceLevelSetRow.version == s.version
+            )
+        )
+        if clash is not None:
+            raise ReviewError(
+                f"set {s.name!r} version {s.version!r} is stored already (id {clash})"
+            )
+        row = m.ReferenceLevelSetRow(
+            name=s.name, kind=s.kind, version=s.version,
+            effective_from=s.effective_from, source=s.source or None,
+        )  # fmt: skip
+        session.add(row)
+        session.flush()
+        session.add_all(level_rows(row.id, s.entries))
+        record_change(
+            session, actor=actor, action="import", entity="reference_level_set", entity_id=row.id,
+            after={"name": s.name, "version": s.version, "kind": s.kind, "levels": len(s.entries)},
+        )  # fmt: skip
+        rows.append(row)
+    session.flush()
+    return rows

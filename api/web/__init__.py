@@ -1,0 +1,1 @@
+"""The HTTP side: the FastAPI application, its dependencies, pages, routes and schemas."""

@@ -1,0 +1,208 @@
+"""The web application: REST API under ``/api/v1`` and the dashboard pages.
+
+Build it with :func:`create_app`; nothing happens at import time.
+"""
+
+from __future__ import annotations
+
+import logging
+from typing import Any
+
+from fastapi import FastAPI, Request
+from fastapi.exceptions import RequestValidationError
+from fastapi.responses import JSONResponse, Response
+from sqlalchemy.engine import Engine
+from sqlalchemy.exc import OperationalError
+
+from beamaudit import __version__
+from beamaudit.api.settings import Settings
+from beamaudit.api.store import StoreError, check_connection, make_engine, make_session_factory
+
+__all__ = ["CAUTION", "create_app"]
+
+CAUTION = (
+    "Every dose figure here is an estimate, for quality assurance and optimisation. "
+    "Clinical decisions about a patient need a qualified medical physicist; local "
+    "regulations and licensed practice take precedence."
+)
+
+API_PREFIX = "/api/v1"
+
+log = logging.getLogger(__name__)
+
+
+async def _unexpected_error(request: Request, exc: Exception) -> JSONResponse:
+    """The last resort: log the traceback for the operator, never show it to the client."""
+    log.error("unexpected error answering %s %s", request.method, request.url.path, exc_info=exc)
+    return JSONResponse(
+        {"detail": "internal error; the server log has the details"}, status_code=500
+    )
+
+
+async def _invalid_request(request: Request, exc: Exception) -> Response:
+    """422 for a request that may be answered; who may not gets 401 or 403 first.
+
+    FastAPI decodes a JSON body before the route's dependencies run, so a malformed body would
+    otherwise be answered 422 before the token is looked at.
+    """
+    from fastapi.exception_handlers import request_validation_exception_handler
+    from fastapi.routing import APIRoute
+    from starlette.concurrency import run_in_threadpool
+
+    from beamaudit.api.store.auth import has_role
+    from beamaudit.api.web.deps import csrf_problem, identify
+    from beamaudit.api.web.pages import invalid_page, is_page
+    from beamaudit.api.web.routes.openapi import required_role
+
+    if is_page(request):  # a page's parameters: who may not see it was sent away before this
+        return invalid_page(exc)
+    route = request.scope.get("route")
+    role = required_role(route) if isinstance(route, APIRoute) else None
+    if role is not None:
+
+        def who() -> Any:
+            with request.app.state.session_factory() as session:
+                return identify(request, session)
+
+        identity = await run_in_threadpool(who)
+        if identity is None:
+            return JSONResponse(
+                {"detail": "a valid API token is required (Authorization: Bearer <token>)"},
+                status_code=401,
+                headers={"WWW-Authenticate": "Bearer"},
+            )
+        problem = csrf_problem(request, identity)
+        if problem is not None:
+            return JSONResponse({"detail": problem}, status_code=403)
+        principal = identity.principal
+        if not has_role(principal.role, role):
+            return JSONResponse(
+                {"detail": f"this needs the {role} role; the token has {principal.role}"},
+                status_code=403,
+            )
+    return await request_validation_exception_handler(request, exc)  # type: ignore[arg-type]
+
+
+async def _database_unavailable(request: Request, exc: Exception) -> JSONResponse:
+    """The database cannot be reached (or went away mid-request): 503, try again later."""
+    log.error("database error answering %s %s: %s", request.method, request.url.path, exc)
+    return JSONResponse({"detail": "the database is unavailable; try again later"}, status_code=503)
+
+
+def _add_docs(app: FastAPI) -> None:
+    """The interactive API docs at ``/api/v1/docs`` for signed-in users, with Swagger UI's
+    files (version 5: OpenAPI 3.1) served from the ``swagger-ui-py`` package (no public CDN)."""
+    from pathlib import Path
+
+    from fastapi import Depends, HTTPException
+    from fastapi.openapi.docs import get_swagger_ui_html
+    from fastapi.responses import FileResponse, HTMLResponse
+
+    from beamaudit.api.web.pages import page_viewer
+
+    files = {"swagger-ui-bundle.js": "application/javascript", "swagger-ui.css": "text/css"}
+
+    @app.get(f"{API_PREFIX}/docs", include_in_schema=False)
+    def docs(_: Any = Depends(page_viewer)) -> HTMLResponse:  # noqa: B008
+        return get_swagger_ui_html(
+            openapi_url=f"{API_PREFIX}/openapi.json",
+            title="beamaudit API",
+            swagger_js_url=f"{API_PREFIX}/docs/swagger-ui-bundle.js",
+            swagger_css_url=f"{API_PREFIX}/docs/swagger-ui.css",
+            swagger_favicon_url="data:,",
+        )
+
+    @app.get(f"{API_PREFIX}/docs/{{name}}", include_in_schema=False)
+    def docs_file(name: str) -> FileResponse:
+        import swagger_ui
+
+        if name not in files:  # a fixed list: no path from the request reaches the file system
+            raise HTTPException(404, "no such file")
+        path = Path(swagger_ui.__file__).parent / "static" / name
+        return FileResponse(path, media_type=files[name], headers={"Cache-Control": "max-age=3600"})
+
+
+def create_app(settings: Settings, *, engine: Engine | None = None) -> FastAPI:
+    """Assemble the application for ``settings`` (the engine is made if not given)."""
+    from beamaudit.api.logs import configure_logging
+
+    configure_logging()  # one line per record, library warnings without data values
+    engine = engine if engine is not None else make_engine(settings.database_url)
+    app = FastAPI(
+        title="beamaudit",
+        version=__version__,
+        description=(
+            "Patient-dose audit for x-ray examinations: exposure events, reconstructed "
+            "beam and dose figures, reviews against diagnostic reference levels.\n\n"
+            f"**Caution.** {CAUTION}"
+        ),
+        openapi_url=f"{API_PREFIX}/openapi.json",
+        docs_url=None,  # api.docs: served below with the service's own assets, signed in only
+        redoc_url=None,
+    )
+    app.state.settings = settings
+    from beamaudit.api.web.security_headers import SecurityHeaders
+
+    app.add_middleware(SecurityHeaders)
+    if settings.api.cors_origins:  # off unless origins are configured
+        from fastapi.middleware.cors import CORSMiddleware
+
+        app.add_middleware(
+            CORSMiddleware,
+            allow_origins=list(settings.api.cors_origins),
+            allow_methods=["GET", "POST", "PATCH", "PUT", "DELETE"],
+            allow_headers=["Authorization", "Content-Type"],
+        )
+    app.state.engine = engine
+    app.state.session_factory = make_session_factory(engine)
+
+    @app.get(
+        f"{API_PREFIX}/health",
+        operation_id="get_health",
+        tags=["health"],
+        responses={503: {"description": "The database cannot be reached."}},
+    )
+    def health() -> Any:
+        """Liveness and database reachability; the only route that needs no token."""
+        body: dict[str, Any] = {
+            "status": "ok",
+            "version": __version__,
+            "database": settings.backend,
+        }
+        try:
+            check_connection(engine)
+        except StoreError as exc:
+            body.update(status="unavailable", detail=str(exc))
+            return JSONResponse(body, status_code=503)
+        return body
+
+    from beamaudit.api.web.routes import api_router
+    from beamaudit.api.web.routes.openapi import customise_openapi
+
+    app.include_router(api_router(), prefix=API_PREFIX)
+    # -- dashboard pages
+    from starlette.exceptions import HTTPException as StarletteHTTPException
+
+    from beamaudit.api.web.pages import (
+        _LoginRedirect,
+        dashboard_error_handler,
+        http_error_handler,
+        login_redirect_handler,
+    )
+    from beamaudit.api.web.pages import router as pages_router
+    from beamaudit.dashboards import DashboardError
+
+    app.include_router(pages_router)
+    if settings.api.docs:
+        _add_docs(app)
+    from beamaudit.api.web.metrics import add_metrics_route
+
+    add_metrics_route(app, settings)  # [metrics]: off, admin token, or an address of its own
+    app.add_exception_handler(_LoginRedirect, login_redirect_handler)
+    app.add_exception_handler(StarletteHTTPException, http_error_handler)  # pages: HTML
+    app.add_exception_handler(DashboardError, dashboard_error_handler)
+    app.add_exception_handler(RequestValidationError, _invalid_request)
+    app.add_exception_handler(OperationalError, _database_unavailable)
+    app.add_exception_handler(Exception, _unexpected_error)
+    customise_openapi(app)
+    return app

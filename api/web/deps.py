@@ -1,0 +1,147 @@
+"""FastAPI dependencies: the session, the caller, and role checks.
+
+A caller presents its token as ``Authorization: Bearer <token>``, or the session cookie
+(``beamaudit_session``) that signing in on the login page sets: a browser session of its own
+(:func:`beamaudit.api.store.auth.open_browser_session`), never the token itself. No credentials or
+unknown ones answer 401; valid ones without the role answer 403.
+
+A change (POST, PUT, PATCH, DELETE) made with the cookie must also carry the session's CSRF
+token in the ``X-CSRF-Token`` header and come from the service's own origin (``Origin``, else
+``Referer``, equal to the request's own scheme and host, or listed in ``api.trusted_origins``):
+a page of another site or another port cannot make a signed-in browser change anything
+(403 otherwise). Requests with a bearer token carry no ambient credentials and need neither.
+"""
+
+from __future__ import annotations
+
+import hmac
+from collections.abc import Callable, Iterator
+from dataclasses import dataclass
+from typing import Annotated
+from urllib.parse import urlsplit
+
+from fastapi import Depends, HTTPException, Request, status
+from sqlalchemy.orm import Session
+
+from beamaudit.api.settings import Settings
+from beamaudit.api.store.auth import Principal, Role, authenticate, browser_identity, has_role
+
+__all__ = [
+    "CSRF_HEADER",
+    "SESSION_COOKIE",
+    "CurrentPrincipal",
+    "DbSession",
+    "Identity",
+    "get_session",
+    "get_settings",
+    "identify",
+    "require_role",
+]
+
+SESSION_COOKIE = "beamaudit_session"
+CSRF_HEADER = "X-CSRF-Token"
+SAFE_METHODS = frozenset({"GET", "HEAD", "OPTIONS"})
+
+
+def get_session(request: Request) -> Iterator[Session]:
+    """One session per request; the route commits what it changes."""
+    session: Session = request.app.state.session_factory()
+    try:
+        yield session
+    finally:
+        session.close()
+
+
+def get_settings(request: Request) -> Settings:
+    settings: Settings = request.app.state.settings
+    return settings
+
+
+DbSession = Annotated[Session, Depends(get_session)]
+
+
+def bearer_token(request: Request) -> str | None:
+    """The token of the Authorization header (``Bearer``), if any."""
+    header = request.headers.get("authorization", "")
+    scheme, _, value = header.partition(" ")
+    if scheme.lower() == "bearer" and value.strip():
+        return value.strip()
+    return None
+
+
+@dataclass(frozen=True, slots=True)
+class Identity:
+    """Who is calling, and how: ``csrf_token`` is set when by the session cookie."""
+
+    principal: Principal
+    csrf_token: str | None = None
+
+
+def identify(request: Request, session: Session) -> Identity | None:
+    """The caller by bearer token, else by session cookie; ``None`` when neither is valid."""
+    token = bearer_token(request)
+    if token is not None:
+        principal = authenticate(session, token)
+        return None if principal is None else Identity(principal)
+    found = browser_identity(session, request.cookies.get(SESSION_COOKIE))
+    return None if found is None else Identity(found.principal, found.csrf_token)
+
+
+def same_origin(request: Request) -> bool:
+    """Whether ``Origin`` (else ``Referer``) names this service (or a trusted origin)."""
+    claimed = request.headers.get("origin") or request.headers.get("referer")
+    if not claimed:
+        return False
+    parts = urlsplit(claimed)
+    origin = f"{parts.scheme}://{parts.netloc}".lower()
+    own = f"{request.url.scheme}://{request.url.netloc}".lower()
+    trusted = {o.rstrip("/").lower() for o in request.app.state.settings.api.trusted_origins}
+    return origin == own or origin in trusted
+
+
+def csrf_problem(request: Request, identity: Identity) -> str | None:
+    """Why a change made with the session cookie is refused, or ``None`` when it may go on."""
+    if identity.csrf_token is None or request.method in SAFE_METHODS:
+        return None
+    if not same_origin(request):
+        return "a change made with the session cookie must come from this site's own pages"
+    sent = request.headers.get(CSRF_HEADER, "")
+    if not sent or not hmac.compare_digest(sent, identity.csrf_token):
+        return f"a change made with the session cookie needs the {CSRF_HEADER} header"
+    return None
+
+
+def get_principal(request: Request, session: DbSession) -> Principal:
+    identity = identify(request, session)
+    if identity is None:
+        raise HTTPException(
+            status_code=status.HTTP_401_UNAUTHORIZED,
+            detail="a valid API token is required (Authorization: Bearer <token>)",
+            headers={"WWW-Authenticate": "Bearer"},
+        )
+    problem = csrf_problem(request, identity)
+    if problem is not None:
+        raise HTTPException(status_code=status.HTTP_403_FORBIDDEN, detail=problem)
+    return identity.principal
+
+
+CurrentPrincipal = Annotated[Principal, Depends(get_principal)]
+
+
+def require_role(role: Role) -> Callable[[Principal], Principal]:
+    """A dependency that lets through callers whose role includes ``role``."""
+
+    def check(principal: CurrentPrincipal) -> Principal:
+        if not has_role(principal.role, role):
+            raise HTTPException(
+                status_code=status.HTTP_403_FORBIDDEN,
+                detail=f"this needs the {role} role; the token has {principal.role}",
+            )
+        return principal
+
+    return check
+
+
+Viewer = Annotated[Principal, Depends(require_role("viewer"))]
+Physicist = Annotated[Principal, Depends(require_role("physicist"))]
+Admin = Annotated[Principal, Depends(require_role("admin"))]
