@@ -17,6 +17,7 @@ there is one), each as an HTML page; under ``/api/v1`` the same errors stay JSON
 
 from __future__ import annotations
 
+from collections.abc import Callable
 from datetime import date, timedelta
 from pathlib import Path
 from typing import Annotated, Any, NoReturn
@@ -210,6 +211,19 @@ def logout(request: Request, session: DbSession) -> Response:
     return response
 
 
+def _month_page(path: str, render: Callable[[Session, str | None, Any], str]) -> None:
+    """Serve ``render(session, period, context)`` at ``path``, for any signed-in user, with an
+    optional ``?period=YYYY-MM``."""
+
+    async def page(
+        request: Request, session: DbSession, who: PageViewer,
+        period: Annotated[str | None, Query(pattern=PERIOD_RE)] = None,
+    ) -> str:  # fmt: skip
+        return await run_in_threadpool(render, session, period, _context(request, who))
+
+    router.get(path, response_class=HTMLResponse, name=render.__name__.lstrip("_"))(page)
+
+
 def _overview(session: Session, period: str | None, ctx: Any) -> str:
     from beamaudit.api.web.page_data import (
         flags_table,
@@ -255,29 +269,33 @@ def _no_record(period: str, known: list[str]) -> str:
     )
 
 
-def _this_month() -> str:
-    today = date.today()
-    return f"{today.year:04d}-{today.month:02d}"
-
-
-@router.get("/", response_class=HTMLResponse)
-async def overview(
-    request: Request, session: DbSession, who: PageViewer,
-    period: Annotated[str | None, Query(pattern=PERIOD_RE)] = None,
-) -> str:  # fmt: skip
-    return await run_in_threadpool(_overview, session, period, _context(request, who))
-
-
-def _distributions(session: Session, period: str | None, exam_type: str | None,
-                   quantity: str | None, log_y: bool, ctx: Any) -> str:  # fmt: skip
-    from beamaudit.api.web.page_data import groups_table, latest_run, periods
-    from beamaudit.api.web.page_inputs import exam_events, exam_types_table
-    from beamaudit.dashboards import EVENT_QUANTITIES, pick_distribution, render_distributions
+def _site_record(session: Session, period: str | None) -> Any:
+    """The finished review of the whole site for ``period`` (the newest without one); 404 with
+    the months there are when there is none."""
+    from beamaudit.api.web.page_data import latest_run, periods
 
     run = latest_run(session, period)
     if run is None or not run.period:
         empty = "There is no finished review of the whole site to show yet."
         raise HTTPException(404, _no_record(period, periods(session)) if period else empty)
+    return run
+
+
+def _this_month() -> str:
+    today = date.today()
+    return f"{today.year:04d}-{today.month:02d}"
+
+
+_month_page("/", _overview)
+
+
+def _distributions(session: Session, period: str | None, exam_type: str | None,
+                   quantity: str | None, log_y: bool, ctx: Any) -> str:  # fmt: skip
+    from beamaudit.api.web.page_data import groups_table, periods
+    from beamaudit.api.web.page_inputs import exam_events, exam_types_table
+    from beamaudit.dashboards import EVENT_QUANTITIES, pick_distribution, render_distributions
+
+    run = _site_record(session, period)
     window = tuple((run.parameters or {}).get("weight_window_kg") or (50.0, 90.0))
     offered: dict[str, list[str]] = {}
     for g in (run.result or {}).get("groups", []):
@@ -478,31 +496,18 @@ def _ingest_errors(session: Session, period: str | None, ctx: Any) -> str:
     return render_ingest_errors(table, note=note, context=ctx)
 
 
-@router.get("/ingest-errors", response_class=HTMLResponse)
-async def ingest_errors_page(
-    request: Request, session: DbSession, who: PageViewer,
-    period: Annotated[str | None, Query(pattern=PERIOD_RE)] = None,
-) -> str:  # fmt: skip
-    return await run_in_threadpool(_ingest_errors, session, period, _context(request, who))
+_month_page("/ingest-errors", _ingest_errors)
 
 
 def _unmapped(session: Session, period: str | None, ctx: Any) -> str:
-    from beamaudit.api.web.page_data import latest_run, periods
+    from beamaudit.api.web.page_data import periods
     from beamaudit.api.web.page_inputs import unmapped_table
     from beamaudit.dashboards import render_unmapped
 
-    run = latest_run(session, period)
-    if run is None or not run.period:
-        empty = "There is no finished review of the whole site to show yet."
-        raise HTTPException(404, _no_record(period, periods(session)) if period else empty)
+    run = _site_record(session, period)
     return render_unmapped(
         unmapped_table(run), period=run.period, periods=periods(session), context=ctx
     )
 
 
-@router.get("/unmapped", response_class=HTMLResponse)
-async def unmapped_page(
-    request: Request, session: DbSession, who: PageViewer,
-    period: Annotated[str | None, Query(pattern=PERIOD_RE)] = None,
-) -> str:  # fmt: skip
-    return await run_in_threadpool(_unmapped, session, period, _context(request, who))
+_month_page("/unmapped", _unmapped)
