@@ -211,18 +211,15 @@ def build_overview_heatmap(
             **common,
         )
     )
-    for j, i in outlines:
-        fig.add_shape(
-            type="rect",
-            xref="x",
-            yref="y",
-            x0=j - 0.46,
-            x1=j + 0.46,
-            y0=i - 0.44,
-            y1=i + 0.44,
-            line={"color": _TOO_FEW_LINE, "width": 1, "dash": "dot"},
-            layer="above",
-        )
+    # one assignment: adding shapes one by one re-validates every earlier shape (quadratic)
+    fig.update_layout(
+        shapes=[
+            {"type": "rect", "xref": "x", "yref": "y", "x0": j - 0.46, "x1": j + 0.46,
+             "y0": i - 0.44, "y1": i + 0.44, "layer": "above",
+             "line": {"color": _TOO_FEW_LINE, "width": 1, "dash": "dot"}}
+            for j, i in outlines
+        ]
+    )  # fmt: skip
     _axes(fig, x_values, y_values, rooms_across=rooms_across, cell_px=cell_px)
     return fig
 

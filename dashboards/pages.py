@@ -180,6 +180,7 @@ def render_distributions(
     periods: Sequence[str] = (),
     log_y: bool = False,
     exam_types: TableLike | None = None,
+    offered: Mapping[str, Sequence[str]] | None = None,
     context: PageContext | None = None,
 ) -> str:
     """One distribution per room against the reference levels (served at ``/distributions``).
@@ -206,6 +207,9 @@ def render_distributions(
         Logarithmic dose axes (the form sends ``scale=log`` for this).
     exam_types : table, optional
         The ``EXAM_TYPES`` table: names, and which types are judged per examination.
+    offered : mapping, optional
+        Examination -> quantities the picker offers besides those of ``events`` (when
+        ``events`` holds only the chosen examination's events: the period's others).
     context : PageContext, optional
         Facility, version, user.
     """
@@ -222,6 +226,8 @@ def render_distributions(
         str(exam): [q for q in figures.EVENT_QUANTITIES if part[q].notna().any()]
         for exam, part in table.groupby("exam_type", sort=True)
     }
+    for exam, quantities in (offered or {}).items():
+        available.setdefault(exam, [q for q in quantities if q in figures.EVENT_QUANTITIES])
     chosen = pick_distribution(
         level_table, exam_type=exam_type, quantity=quantity, available=available
     )

@@ -93,10 +93,12 @@ def _root(
 
 def main(argv: list[str] | None = None) -> int:
     """Run the command line; returns the exit code (for tests: ``main(["--help"])``)."""
+    from beamaudit.api.cli._help import plain_help
     from beamaudit.errors import BeamauditError
 
+    command = plain_help(typer.main.get_command(app))  # help in words, not Python types
     try:
-        app(args=argv, prog_name="beamaudit", standalone_mode=True)
+        command.main(args=argv, prog_name="beamaudit", standalone_mode=True)
     except SystemExit as exc:
         code = exc.code
         return code if isinstance(code, int) else (0 if code is None else 1)

@@ -85,13 +85,13 @@ def demo_command(
         )
     else:
         _print(outcome, report, elapsed, db)
+    from beamaudit.api.cli._serving import sign_in_words
+
     if serve:
         with sessions.begin() as session:
             _, token = create_token(session, role="physicist", name="demo physicist", actor="demo")
-        console.print(
-            f"\nDashboards: http://127.0.0.1:{port}/  (sign in with this token: {token})",
-            highlight=False,
-        )
+        sign_in = sign_in_words("127.0.0.1", port, token=token)
+        console.print(f"\nDashboards: http://127.0.0.1:{port}/\n{sign_in}", highlight=False)
         import uvicorn
 
         from beamaudit.api.settings import load
@@ -104,11 +104,29 @@ def demo_command(
             log_level="warning",
         )
         return
+    if not as_json:  # how to look at it later
+        console.print(
+            f"\nTo look at it: BEAMAUDIT_DATABASE_URL={url} beamaudit serve --port {port}\n"
+            f"and in another terminal make a token: BEAMAUDIT_DATABASE_URL={url} beamaudit token "
+            f"create --role physicist\nthen sign in at http://127.0.0.1:{port}/login with it.",
+            highlight=False,
+            soft_wrap=True,
+        )
     if missed or report["unplanted"]:
         raise typer.Exit(EXIT_PARTIAL)
 
 
+def _indented(text: str, first: str = "         ") -> str:
+    """``text`` whole (never cut mid-word), wrapped to 80 columns under its heading."""
+    import textwrap
+
+    return "\n".join(textwrap.wrap(text, 80, initial_indent=first, subsequent_indent="         "))
+
+
 def _print(outcome: Any, report: dict[str, Any], elapsed: float, db: Path) -> None:
+    from beamaudit.dashboards import CAUTION
+    from beamaudit.dashboards.wording import FLAG_KIND_WORDS, words_for
+
     m = outcome.manifest
     console.print(
         f"[bold]{m['institution']}[/bold] (invented): {len(m['rooms'])} rooms, months "
@@ -130,22 +148,25 @@ def _print(outcome: Any, report: dict[str, Any], elapsed: float, db: Path) -> No
             mark = "[red]NOT FOUND[/red]"
         else:  # a consequence the review may or may not surface (see the demo's README)
             mark = "[dim]not seen (may fire)[/dim]"
-        console.print(f"  {mark}  {p['plant']} ({p['kind']})", highlight=False)
+        kind = words_for(FLAG_KIND_WORDS, p["kind"])
+        console.print(f"  {mark}  {p['plant']} ({kind})", highlight=False)
         if p["by"]:
-            console.print(f"         {p['by'][0][:160]}", markup=False, highlight=False)
+            console.print(_indented(p["by"][0]), markup=False, highlight=False)
     console.print(f"\nflags not planted by the scenario: {len(report['unplanted'])}")
     for f in report["unplanted"][:10]:
-        console.print(f"  [{f['kind']}] {f['reason'][:160]}", markup=False, highlight=False)
+        kind = words_for(FLAG_KIND_WORDS, f["kind"])
+        console.print(_indented(f"{kind}: {f['reason']}", "  "), markup=False, highlight=False)
     _print_notifications(outcome)
     console.print(
-        f"\ndone in {elapsed:.0f} s; database {db}. Where to look: the overview (/) for the "
-        "month, the room pages for the DAP-meter fault and the doubled exam, the flags page for "
-        "single exams.",
+        f"\ndone in {elapsed:.0f} s; database: SQLite file {db.resolve()}. Where to look: the "
+        "overview (/) opens with what needs attention in the newest month (the DAP-meter fault, "
+        "the doubled dose, the single exams above the investigation level); the flags page lists "
+        "every finding.",
         highlight=False,
     )
     phases = ", ".join(f"{k} {v:.1f}" for k, v in outcome.timings.items())
     console.print(f"[dim]seconds per phase: {phases}[/dim]", highlight=False)
-    console.print("[dim]All data are invented. Every dose figure is an estimate.[/dim]")
+    console.print(f"[dim]All data are invented. {CAUTION}[/dim]", highlight=False)
 
 
 def _print_notifications(outcome: Any) -> None:
@@ -166,9 +187,8 @@ def _print_notifications(outcome: Any) -> None:
         digest = json.loads(lines[-1])
         console.print(f"  subject: {digest['subject']}", markup=False, highlight=False)
         for item in digest["findings"][:3]:
-            console.print(
-                f"    [{item['severity']}] {item['reason'][:110]}", markup=False, highlight=False
-            )
+            line = _indented(f"[{item['severity']}] {item['reason']}", "    ")
+            console.print(line, markup=False, highlight=False)
             console.print(f"      {item['link']}", markup=False, highlight=False)
 
 

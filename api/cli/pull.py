@@ -28,7 +28,10 @@ def pull_command(
         str | None,
         typer.Option(
             "--credentials",
-            help="Name of the login in the settings ([pull.credentials.NAME]); kept on the source.",
+            help=(
+                "Name of the login in the settings (the table pull.credentials.NAME); kept on "
+                "the source."
+            ),
         ),
     ] = None,
 ) -> None:
@@ -88,7 +91,8 @@ def sources_add(
     credentials: Annotated[
         str | None,
         typer.Option(
-            "--credentials", help="Name of its login in the settings ([pull.credentials.NAME])."
+            "--credentials",
+            help="Name of its login in the settings (the table pull.credentials.NAME).",
         ),
     ] = None,
 ) -> None:

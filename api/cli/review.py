@@ -10,7 +10,6 @@ from typing import Annotated, Any
 
 import typer
 
-from beamaudit import CAUTION
 from beamaudit.api.cli._common import EXIT_PARTIAL, console, err_console, fail
 
 __all__ = ["register"]
@@ -89,7 +88,7 @@ def review_command(
             out["new_flags"] = new_flags
         typer.echo(json.dumps(out, indent=2, default=str))
     else:
-        _print(run_id, result, new_flags, body["scope_text"])
+        _print(run_id, result, new_flags, body["scope_text"], body["names"])
 
 
 def _monthly(store: Any, month: str, rooms: list[str] | None, exam_types: list[str] | None) -> int:
@@ -144,6 +143,8 @@ def _nightly(store: Any) -> tuple[int, int] | None:
 
 
 def _stored_result(store: Any, run_id: int) -> dict[str, Any]:
+    from sqlalchemy import select
+
     from beamaudit.api.runs.record import scope_text
     from beamaudit.api.store import models as m
 
@@ -156,6 +157,7 @@ def _stored_result(store: Any, run_id: int) -> dict[str, Any]:
             "result": run.result or {},
             "scope": run.scope or {},
             "scope_text": scope_text(run),
+            "names": dict(session.execute(select(m.ExamTypeRow.code, m.ExamTypeRow.name)).all()),
         }
 
 
@@ -180,51 +182,76 @@ def _json_summary(run_id: int, result: dict[str, Any], scope: dict[str, Any]) ->
     }
 
 
-STATUS_WORDS = {
-    "above_level": "above the level",
-    "possibly_above": "possibly above",
-    "below_level": "below the level",
-    "insufficient_sample": "too few patients",
-    "no_level": "no level",
-}
-
-
-def _print(run_id: int, result: dict[str, Any], new_flags: int | None, scope: str) -> None:
-    from rich.table import Table
+def _print(
+    run_id: int, result: dict[str, Any], new_flags: int | None, scope: str, names: dict[str, str]
+) -> None:
+    """The run in words that fit 80 columns: one block per room, examination and quantity, one
+    line per level it was compared with (local, national, international guidance), the states
+    in the words the pages use (:data:`beamaudit.dashboards.VOCABULARY`)."""
+    from beamaudit.dashboards import CAUTION
+    from beamaudit.dashboards.wording import FLAG_KIND_WORDS, words_for
 
     console.print(
         f"review run {run_id} ({scope}): {result['n_events']} events, "
         f"{len(result['groups'])} group rows, {len(result['flags'])} flags",
         highlight=False,
     )
-    table = Table(
-        "room", "exam type", "quantity", "n (std)", "median", "95% CI", "level", "ratio", "status"
-    )
-    for g in result["groups"]:
-        if g.get("reference_level") is None and g["status"] == "no_level":
-            continue
-        table.add_row(
-            str(g["room"]), str(g["exam_type"]), str(g["quantity"]),
-            f"{g['n']} ({g['n_standard']})", _f(g["median"]),
-            f"{_f(g['ci_low'])}-{_f(g['ci_high'])}", _f(g["reference_level"]),
-            _f(g["ratio_to_level"]), STATUS_WORDS.get(g["status"], g["status"]),
-        )  # fmt: skip
-    console.print(table)
-    for flag in result["flags"][:40]:
-        console.print(f"  [{flag['kind']}] {flag['reason']}", highlight=False, markup=False)
-    if len(result["flags"]) > 40:
-        console.print(f"  ... and {len(result['flags']) - 40} more (--json for all)")
+    for line in group_lines(result["groups"], names):
+        console.print(line, highlight=False, markup=False)
+    flags = result["flags"]
+    if flags:
+        console.print("\nflags:", highlight=False)
+    for flag in flags[:40]:
+        kind = words_for(FLAG_KIND_WORDS, flag["kind"])
+        console.print(f"- {kind}: {flag['reason']}", highlight=False, markup=False)
+    if len(flags) > 40:
+        console.print(f"... and {len(flags) - 40} more (--json for all)", highlight=False)
     if new_flags is not None:
-        console.print(f"new flags since the last nightly run: {new_flags}")
-    console.print(f"[dim]{CAUTION}[/dim]", soft_wrap=True)
+        console.print(f"new flags since the last nightly run: {new_flags}", highlight=False)
+    console.print(f"[dim]{CAUTION}[/dim]", soft_wrap=True, highlight=False)
 
 
-def _f(value: Any) -> str:
-    if value is None:
-        return "-"
-    if isinstance(value, float):
-        return f"{value:.3g}"
-    return str(value)
+def group_lines(groups: list[dict[str, Any]], names: dict[str, str] | None = None) -> list[str]:
+    """The groups that were compared with a level, as text lines of at most 80 characters
+    (examinations by their catalogue ``names``, where given)."""
+    import textwrap
+
+    from beamaudit.dashboards import VOCABULARY
+    from beamaudit.dashboards.rounding import format_level, format_number, format_quantity
+    from beamaudit.dashboards.wording import quantity_short, words_for
+
+    lines: list[str] = []
+    last: tuple[Any, ...] | None = None
+    for g in groups:
+        if g.get("reference_level") is None:
+            continue
+        q = str(g["quantity"])
+        key = (g.get("room"), g.get("exam_type"), q)
+        if key != last:
+            last = key
+            exam = (names or {}).get(str(g.get("exam_type"))) or g.get("exam_type")
+            head = f"{g.get('room')} · {exam} · {quantity_short(q)}"
+            lines += ["", *textwrap.wrap(head, 80)]
+            ci = ""
+            if g.get("ci_low") is not None and g.get("ci_high") is not None:
+                coverage = g.get("ci_coverage")
+                level = f"{float(coverage) * 100:.0f}% CI" if coverage else "CI"
+                ci = f" ({level} {format_number(g['ci_low'])}–{format_quantity(g['ci_high'], q)})"
+            n = int(g["n"])
+            lines += textwrap.wrap(
+                f"median {format_quantity(g.get('median'), q)}{ci}; {n} exam{'' if n == 1 else 's'}"
+                f", {g['n_standard']} standard-size",
+                80, initial_indent="  ", subsequent_indent="    ",
+            )  # fmt: skip
+        kind = words_for(VOCABULARY["level kind"], g.get("level_kind"))
+        status = words_for(VOCABULARY["review status"], g.get("status"))
+        ratio = format_number(g.get("ratio_to_level"))
+        lines += textwrap.wrap(
+            f"{kind} {format_level(g['reference_level'], q)} ({g.get('level_set')}): "
+            f"median ÷ level {ratio}, {status}",
+            80, initial_indent="  ", subsequent_indent="    ",
+        )  # fmt: skip
+    return lines
 
 
 def nightly_command(
@@ -317,7 +344,11 @@ def nightly_command(
 def levels_import(
     ctx: typer.Context,
     path: Annotated[
-        Path, typer.Argument(metavar="FILE.csv", help="Levels CSV (layout: api/data/README.md).")
+        Path,
+        typer.Argument(
+            metavar="FILE.csv",
+            help="Levels CSV: one row per value, the layout 'beamaudit levels export' writes.",
+        ),
     ],
 ) -> None:
     """Import reference-level set versions from a CSV file (all or none)."""

@@ -22,6 +22,7 @@ def serve_command(
 
     import uvicorn
 
+    from beamaudit.api.cli._serving import database_words, sign_in_words, sqlite_file
     from beamaudit.api.logs import configure_logging
     from beamaudit.api.runs.record import fail_interrupted_runs
     from beamaudit.api.store import (
@@ -34,6 +35,13 @@ def serve_command(
     from beamaudit.api.web.app import create_app
 
     settings = load_settings(ctx)
+    file = sqlite_file(settings.database_url)
+    if file is not None and not file.exists():
+        console.print(
+            f"the database file {file} does not exist: a new, empty one is made (to serve "
+            "another, set database_url in the settings file or BEAMAUDIT_DATABASE_URL)",
+            highlight=False,
+        )
     try:
         engine = make_engine(settings.database_url)
         check_connection(engine)
@@ -43,7 +51,11 @@ def serve_command(
     failed = fail_interrupted_runs(make_session_factory(engine), started="beamaudit serve")
     if failed:
         console.print(f"review runs cut short, now marked failed: {', '.join(map(str, failed))}")
-    console.print(f"beamaudit serving on http://{host}:{port}/ (database: {settings.backend})")
+    console.print(
+        f"beamaudit serving on http://{host}:{port}/\ndatabase: "
+        f"{database_words(settings.database_url)}\n{sign_in_words(host, port)}",
+        highlight=False,
+    )
     app = create_app(settings, engine=engine)
     if settings.metrics.enabled and settings.metrics.bind:
         from beamaudit.api.web.metrics import collector, start_metrics_server

@@ -179,6 +179,8 @@ def _setup_rooms(sessions: sessionmaker[Session], manifest: dict[str, Any]) -> N
 CSTORE_NODES = 2
 _CALLING_AE = "DEMO_MODALITY"
 _CALLED_AE = "BEAMAUDIT"
+#: seconds the demo's senders wait for a C-STORE response before they abort (pynetdicom's default)
+_DIMSE_TIMEOUT_S = 30.0
 _NODE_TIMEOUT_S = 120.0
 
 
@@ -293,8 +295,11 @@ def _files_sent_undecoded() -> Iterator[None]:
         _config.STORE_SEND_CHUNKED_DATASET = before
 
 
-def _send_cstore(files: list[Path], port: int, sop_classes: list[str]) -> Counter[str]:
-    """Send ``files`` (Explicit VR Little Endian Part 10 files) on one association."""
+def _send_cstore(
+    files: list[Path], port: int, sop_classes: list[str], rooms: dict[Path, str]
+) -> Counter[str]:
+    """Send ``files`` (Explicit VR Little Endian Part 10 files) on one association; ``rooms``
+    names each file's room. A send that fails is a :class:`DemoError` naming the room and why."""
     from pydicom.uid import ExplicitVRLittleEndian
     from pynetdicom import AE
 
@@ -304,27 +309,61 @@ def _send_cstore(files: list[Path], port: int, sop_classes: list[str]) -> Counte
     if not files:
         return counts
     ae = AE(ae_title=_CALLING_AE)
+    ae.dimse_timeout = _DIMSE_TIMEOUT_S
     for uid in sop_classes:
         ae.add_requested_context(uid, [ExplicitVRLittleEndian])
     assoc = open_association(ae, "127.0.0.1", port, ae_title=_CALLED_AE)
     if not assoc.is_established:
-        raise DemoError("the demo could not open an association with its own listener")
+        names = ", ".join(sorted({rooms.get(p, p.parent.name) for p in files}))
+        raise DemoError(
+            f"C-STORE from room(s) {names} failed: the demo's own listener on port {port} "
+            "refused or did not answer the association"
+        )
     try:
         for path in files:
-            status = assoc.send_c_store(path)
+            try:
+                status = assoc.send_c_store(path)
+            except (RuntimeError, OSError, ValueError) as exc:
+                raise DemoError(_send_failure(path, rooms, counts, assoc, exc)) from None
             code = int(getattr(status, "Status", 0xFFFF))
             counts["success" if code == 0 else "failure"] += 1
     finally:
-        assoc.release()
+        if assoc.is_established:
+            assoc.release()
     return counts
 
 
-def _send_all(files: list[Path], ports: list[int], sop_classes: list[str]) -> Counter[str]:
+def _send_failure(
+    path: Path, rooms: dict[Path, str], counts: Counter[str], assoc: Any, exc: Exception
+) -> str:
+    """One line: which room's send failed, after how many objects, and why."""
+    if assoc.is_aborted:
+        why = (
+            f"the association was aborted (no answer within {_DIMSE_TIMEOUT_S:g} s, or the "
+            "listener cut it off; on a heavily loaded machine, run the demo again when it is "
+            "quieter)"
+        )
+    elif assoc.is_released:
+        why = "the listener released the association before every object was sent"
+    else:
+        why = " ".join(str(exc).split()) or type(exc).__name__
+    sent = sum(counts.values())
+    room = rooms.get(path, path.parent.name)
+    return (
+        f"C-STORE from room {room} failed at {path.name} after {sent} objects on its "
+        f"association: {why}"
+    )
+
+
+def _send_all(
+    files: list[Path], ports: list[int], sop_classes: list[str], rooms: dict[Path, str]
+) -> Counter[str]:
     """Deal ``files`` over one association per port, all sending at once."""
     streams = [files[i :: len(ports)] for i in range(len(ports))]
     counts: Counter[str] = Counter()
     with _files_sent_undecoded(), ThreadPoolExecutor(max_workers=len(ports)) as pool:
-        for c in pool.map(_send_cstore, streams, ports, [sop_classes] * len(ports)):
+        n = len(ports)
+        for c in pool.map(_send_cstore, streams, ports, [sop_classes] * n, [rooms] * n):
             counts.update(c)
     return counts
 
@@ -396,7 +435,13 @@ def run_demo(
         )
     outcome.scan = summary.as_dict()
     cstore_rooms = [r for r in manifest["rooms"] if r["delivery"] == "cstore"]
-    files = [p for r in cstore_rooms for p in sorted((dicom / r["path"]).rglob("*")) if p.is_file()]
+    room_of = {
+        p: r["name"]
+        for r in cstore_rooms
+        for p in sorted((dicom / r["path"]).rglob("*"))
+        if p.is_file()
+    }
+    files = list(room_of)
     sop_classes = sorted({uid for r in cstore_rooms for uid in r["sop_classes"]})
     url = _database_url(sessions) if cstore_nodes > 0 else None
     with phase("cstore"):
@@ -405,7 +450,7 @@ def run_demo(
         if url is not None:
             nodes = _Nodes(url, key, cstore_nodes)
             try:
-                counts = _send_all(files, nodes.ports, sop_classes)
+                counts = _send_all(files, nodes.ports, sop_classes, room_of)
             except BaseException:
                 nodes.close()
                 raise
@@ -414,7 +459,7 @@ def run_demo(
             received = []
             handler = make_store_handler(pipeline, Pseudonymiser(key))
             with start_listener(ListenerConfig(ae_title=_CALLED_AE, port=0), handler) as listener:
-                counts = _send_all(files, [listener.port], sop_classes)
+                counts = _send_all(files, [listener.port], sop_classes, room_of)
     outcome.cstore = dict(counts)
     with phase("postprocess"):
         process_new_events(sessions, received)

@@ -26,7 +26,8 @@ Lines before the header that start with ``#`` are comments (kept on export).
 column          required  content
 ==============  ========  ==================================================================
 set_name        yes       name of the set, the same for all its versions
-kind            yes       ``national`` or ``local``
+kind            yes       ``local``, ``national`` or ``international`` (guidance such as IAEA
+                          Safety Series No. 115)
 version         yes       version label, unique within the set name (``2024-11-20``)
 effective_from  yes       ISO date the version takes effect (``2024-11-20``); unique within the
                           set name
@@ -38,7 +39,7 @@ value           yes       the reference level, a positive number
 unit            yes       its unit; converted on import to the quantity's own unit (Gy.cm2,
                           mGy, mGy.cm), e.g. ``mGy.cm2`` and ``cGy.cm2`` for DAP are accepted
 source          national  the published source of this value (table and row); required for
-                          national sets
+                          national and international sets
 note            no        free text (e.g. the clinical indication an NDRL is defined for)
 patient_group   no        empty for adults, or a paediatric band (``weight_15_30kg``)
 clinical_       no        empty, or the clinical indication the level is set for, lower-case
@@ -85,7 +86,18 @@ __all__ = [
     "write_levels_csv",
 ]
 
-LevelKind = Literal["national", "local"]
+LevelKind = Literal["national", "local", "international"]
+#: the kinds of level set: the hospital's own, its country's, and international guidance (such as
+#: IAEA Safety Series No. 115), a kind of its own
+LEVEL_KINDS: tuple[str, ...] = ("local", "national", "international")
+#: kinds whose every value needs its published source
+PUBLISHED_KINDS: tuple[str, ...] = ("national", "international")
+
+
+def _a(kind: str) -> str:
+    """``kind`` with its article: "a national", "an international"."""
+    return f"{'an' if kind[:1] in 'aeiou' else 'a'} {kind}"
+
 
 LEVEL_COLUMNS = (
     "set_name",
@@ -174,8 +186,10 @@ class ReferenceLevelSet:
     )
 
     def __post_init__(self) -> None:
-        if self.kind not in ("national", "local"):
-            raise ReviewError(f"level set {self.name!r}: kind must be 'national' or 'local'")
+        if self.kind not in LEVEL_KINDS:
+            raise ReviewError(
+                f"level set {self.name!r}: kind must be one of {', '.join(LEVEL_KINDS)}"
+            )
         index: dict[tuple[str, str, str, str], LevelEntry] = {}
         for e in self.entries:
             if e.quantity not in QUANTITIES or e.unit != QUANTITIES[e.quantity].unit:
@@ -410,8 +424,10 @@ def read_levels_csv(
         if not name or not version:
             problems.append((line, "set_name and version must not be empty"))
             continue
-        if row["kind"] not in ("national", "local"):
-            problems.append((line, f"kind must be 'national' or 'local', got {row['kind']!r}"))
+        if row["kind"] not in LEVEL_KINDS:
+            problems.append(
+                (line, f"kind must be one of {', '.join(LEVEL_KINDS)}, got {row['kind']!r}")
+            )
         if not _ISO_DATE.match(row["effective_from"]):
             problems.append(
                 (line, f"effective_from {row['effective_from']!r} is not a date YYYY-MM-DD")
@@ -471,9 +487,9 @@ def read_levels_csv(
             problems.append(
                 (line, f"clinical_indication {indication!r} must be lower-case [a-z0-9_]")
             )
-        if row["kind"] == "national" and not row["source"]:
+        if row["kind"] in PUBLISHED_KINDS and not row["source"]:
             problems.append(
-                (line, "a national level needs its published source in the source column")
+                (line, f"{_a(row['kind'])} level needs its published source in the source column")
             )
         entry_key = (name, version, exam_type, quantity, group, indication)
         if entry_key in seen_entries:

@@ -15,14 +15,43 @@ from typing import Any
 from beamaudit import CAUTION
 from beamaudit.api.review.spreadsheet import safe_cell
 
-__all__ = ["GROUP_EXPORT_COLUMNS", "groups_csv_text", "write_csv", "write_xlsx", "xlsx_bytes"]
+__all__ = [
+    "GROUP_EXPORT_COLUMNS",
+    "WORD_COLUMNS",
+    "groups_csv_text",
+    "write_csv",
+    "write_xlsx",
+    "xlsx_bytes",
+]
 
 GROUP_EXPORT_COLUMNS = (
     "site", "room", "device", "exam_type", "quantity", "unit", "n", "n_standard", "basis",
     "median", "q1", "q3", "mean", "ci_low", "ci_high", "ci_coverage", "reference_level",
     "level_set", "level_kind", "level_version", "level_source", "ratio_to_level", "status",
+    "status_words", "level_kind_words",
 )  # fmt: skip
-FLAG_EXPORT_COLUMNS = ("kind", "severity", "reason", "room", "exam_type", "event_id", "study_uid")
+FLAG_EXPORT_COLUMNS = ("kind", "severity", "reason", "room", "exam_type", "event_id", "study_uid",
+                       "kind_words", "severity_words")  # fmt: skip
+#: the columns written in words (:data:`beamaudit.dashboards.VOCABULARY`, as the pages and the
+#: command line say them) beside the codes a program reads: column -> (code column, vocabulary)
+WORD_COLUMNS = {
+    "status_words": ("status", "review status"),
+    "level_kind_words": ("level_kind", "level kind"),
+    "kind_words": ("kind", "finding kind"),
+    "severity_words": ("severity", "severity"),
+}
+
+
+def _with_words(row: dict[str, Any]) -> dict[str, Any]:
+    """``row`` with its states also in words."""
+    from beamaudit.dashboards import VOCABULARY
+
+    out = dict(row)
+    for column, (code, what) in WORD_COLUMNS.items():
+        value = row.get(code)
+        if value is not None:
+            out[column] = VOCABULARY[what].get(str(value), str(value))
+    return out
 
 
 def groups_csv_text(result: dict[str, Any]) -> str:
@@ -30,7 +59,7 @@ def groups_csv_text(result: dict[str, Any]) -> str:
     out = io.StringIO()
     writer = csv.writer(out, lineterminator="\n")
     writer.writerow(GROUP_EXPORT_COLUMNS)
-    for g in result.get("groups", []):
+    for g in map(_with_words, result.get("groups", [])):
         writer.writerow(
             ["" if g.get(c) is None else safe_cell(g.get(c)) for c in GROUP_EXPORT_COLUMNS]
         )
@@ -58,11 +87,11 @@ def xlsx_bytes(result: dict[str, Any]) -> bytes:
     _append(about, ["caution", CAUTION])
     groups = wb.create_sheet("groups")
     _append(groups, list(GROUP_EXPORT_COLUMNS))
-    for g in result.get("groups", []):
+    for g in map(_with_words, result.get("groups", [])):
         _append(groups, [g.get(c) for c in GROUP_EXPORT_COLUMNS])
     flags = wb.create_sheet("flags")
     _append(flags, list(FLAG_EXPORT_COLUMNS))
-    for f in result.get("flags", []):
+    for f in map(_with_words, result.get("flags", [])):
         _append(
             flags,
             [

@@ -75,6 +75,8 @@ from beamaudit.api.store.skin_doses import add_skin_dose_flags
 
 __all__ = [
     "events_frame",
+    "exam_type_events",
+    "period_conditions",
     "review_events",
     "run_review",
 ]
@@ -738,6 +740,52 @@ def events_frame(session: Session, *, start: date, end: date) -> pd.DataFrame:
         values = frame[c].astype(object)
         frame[c] = values.where(values.notna(), None)
     return frame
+
+
+#: the columns of :func:`exam_type_events`, by name
+_EXAM_TYPE_COLUMNS: tuple[tuple[str, Any], ...] = (
+    ("event_id", _E.id),
+    ("study_id", _E.study_id),
+    ("room_id", _E.room_id),
+    ("exam_type", _E.exam_type),
+    ("patient_weight_kg", _E.patient_weight_kg),
+    ("kvp_kv", _E.kvp_kv),
+    ("exposure_mas", _E.exposure_mas),
+    ("dap_gy_cm2", _E.dap_gy_cm2),
+    ("recon_dap_gy_cm2", _E.recon_dap_gy_cm2),
+    ("esak_mgy", _E.recon_esak_mgy),
+    *_SPARSE_COLUMNS[:4],
+)
+
+
+def exam_type_events(session: Session, *, start: date, end: date, exam_type: str) -> pd.DataFrame:
+    """The events of one exam type in ``[start, end)`` (UTC dates), as the review reads them
+    (the same events: not superseded, one slice per CT acquisition), with the technique; read
+    by a plain query, for a page that shows one examination. ``study_uid`` is the study's id as
+    text, as in :func:`review_events`; ``room`` the room's name."""
+    conditions, epoch, values = _period_conditions(session, start=start, end=end)
+    stmt = select(*(c.label(n) for n, c in _EXAM_TYPE_COLUMNS), epoch.label("epoch_s")).where(
+        *conditions, _E.exam_type == bindparam("exam_type")
+    )
+    rows = _fetch(session, stmt, {**values, "exam_type": exam_type})
+    names = [n for n, _ in _EXAM_TYPE_COLUMNS]
+    frame = pd.DataFrame(rows, columns=[*names, "epoch_s"])
+    rooms, _ = room_and_device_names(session)
+    for name in names[4:]:
+        frame[name] = pd.to_numeric(frame[name], errors="coerce").astype(float)
+    frame["event_datetime"] = pd.to_datetime(
+        pd.to_numeric(frame["epoch_s"]).round(3), unit="s", utc=True
+    )
+    frame["room"] = [
+        rooms[int(r)][0] if r is not None and int(r) in rooms else "(no room)"
+        for r in frame["room_id"]
+    ]
+    frame["study_uid"] = [
+        str(int(s)) if s is not None and not pd.isna(s) else f"(event {int(e)})"
+        for s, e in zip(frame["study_id"], frame["event_id"], strict=True)
+    ]
+    frame["event_id"] = frame["event_id"].astype(np.int64)
+    return frame.drop(columns=["study_id", "room_id", "epoch_s"]).sort_values("event_id")
 
 
 def _lookback_start(period: Period, months: int) -> date:

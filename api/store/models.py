@@ -448,7 +448,7 @@ class ReferenceLevelSetRow(Base):
     __table_args__ = (UniqueConstraint("name", "version"),)
     id: Mapped[int] = mapped_column(primary_key=True)
     name: Mapped[str] = mapped_column(String)
-    kind: Mapped[str] = mapped_column(String)  # local | national
+    kind: Mapped[str] = mapped_column(String)  # local | national | international
     version: Mapped[str] = mapped_column(String)
     effective_from: Mapped[date] = mapped_column(Date)
     source: Mapped[str | None] = mapped_column(Text)

@@ -107,7 +107,8 @@ def groups_table(run: m.ReviewRun) -> pd.DataFrame:
 
 
 FLAG_COLUMNS = ("flag_id", "kind", "severity", "reason", "room", "exam_type", "event_id",
-                "study_uid", "period", "status", "raised_at", "note", "changed")  # fmt: skip
+                "study_uid", "period", "status", "raised_at", "note", "changed", "run_id",
+                "quantity", "numbers")  # fmt: skip
 
 
 def flags_table(session: Session, run_ids: list[int] | None = None) -> pd.DataFrame:
@@ -128,6 +129,8 @@ def flags_table(session: Session, run_ids: list[int] | None = None) -> pd.DataFr
 
 
 def _flag_row(flag: m.FlagRow, period: str | None) -> dict[str, Any]:
+    from beamaudit.api.web.routes.reviews import for_viewer
+
     finding = flag.finding
     note = None
     if finding.note:
@@ -147,6 +150,10 @@ def _flag_row(flag: m.FlagRow, period: str | None) -> dict[str, Any]:
         "raised_at": flag.created_at,
         "note": note,
         "changed": changes_text(flag.changes),
+        "run_id": str(flag.review_run_id),
+        "quantity": (finding.subject or {}).get("quantity"),
+        # the figures its reason quotes (never an event or study identifier: pages are for viewers)
+        "numbers": for_viewer(dict(flag.numbers or {})),
     }
 
 

@@ -17,6 +17,7 @@ there is one), each as an HTML page; under ``/api/v1`` the same errors stay JSON
 
 from __future__ import annotations
 
+from collections.abc import Callable
 from datetime import date, timedelta
 from pathlib import Path
 from typing import Annotated, Any, NoReturn
@@ -210,6 +211,19 @@ def logout(request: Request, session: DbSession) -> Response:
     return response
 
 
+def _month_page(path: str, render: Callable[[Session, str | None, Any], str]) -> None:
+    """Serve ``render(session, period, context)`` at ``path``, for any signed-in user, with an
+    optional ``?period=YYYY-MM``."""
+
+    async def page(
+        request: Request, session: DbSession, who: PageViewer,
+        period: Annotated[str | None, Query(pattern=PERIOD_RE)] = None,
+    ) -> str:  # fmt: skip
+        return await run_in_threadpool(render, session, period, _context(request, who))
+
+    router.get(path, response_class=HTMLResponse, name=render.__name__.lstrip("_"))(page)
+
+
 def _overview(session: Session, period: str | None, ctx: Any) -> str:
     from beamaudit.api.web.page_data import (
         flags_table,
@@ -218,10 +232,12 @@ def _overview(session: Session, period: str | None, ctx: Any) -> str:
         period_runs,
         periods,
     )
+    from beamaudit.api.web.page_inputs import attention_table, exam_types_table
     from beamaudit.dashboards import render_overview
 
     run = latest_run(session, period)
     known = periods(session)
+    exam_types = exam_types_table(session)
     if run is None:
         if period:
             raise HTTPException(404, _no_record(period, known))
@@ -234,13 +250,15 @@ def _overview(session: Session, period: str | None, ctx: Any) -> str:
             period=_this_month(),
             periods=known,
             open_flags=0,
+            exam_types=exam_types,
             context=ctx,
         )
     flags = flags_table(session, [run.id])
     open_flags = int((flags["status"] == "open").sum()) if len(flags) else 0
     return render_overview(groups_table(run), period=run.period or "", periods=known,
+                           attention=attention_table(session, run, flags, exam_types),
                            open_flags=open_flags, runs=period_runs(session, run.period or ""),
-                           context=ctx)  # fmt: skip
+                           exam_types=exam_types, context=ctx)  # fmt: skip
 
 
 def _no_record(period: str, known: list[str]) -> str:
@@ -251,39 +269,53 @@ def _no_record(period: str, known: list[str]) -> str:
     )
 
 
-def _this_month() -> str:
-    today = date.today()
-    return f"{today.year:04d}-{today.month:02d}"
-
-
-@router.get("/", response_class=HTMLResponse)
-async def overview(
-    request: Request, session: DbSession, who: PageViewer,
-    period: Annotated[str | None, Query(pattern=PERIOD_RE)] = None,
-) -> str:  # fmt: skip
-    return await run_in_threadpool(_overview, session, period, _context(request, who))
-
-
-def _distributions(session: Session, period: str | None, exam_type: str | None,
-                   quantity: str | None, log_y: bool, ctx: Any) -> str:  # fmt: skip
-    from beamaudit.api.review import Period
-    from beamaudit.api.web.page_data import distribution_events, groups_table, latest_run, periods
-    from beamaudit.dashboards import render_distributions
+def _site_record(session: Session, period: str | None) -> Any:
+    """The finished review of the whole site for ``period`` (the newest without one); 404 with
+    the months there are when there is none."""
+    from beamaudit.api.web.page_data import latest_run, periods
 
     run = latest_run(session, period)
     if run is None or not run.period:
         empty = "There is no finished review of the whole site to show yet."
         raise HTTPException(404, _no_record(period, periods(session)) if period else empty)
-    p = Period.parse(run.period)
+    return run
+
+
+def _this_month() -> str:
+    today = date.today()
+    return f"{today.year:04d}-{today.month:02d}"
+
+
+_month_page("/", _overview)
+
+
+def _distributions(session: Session, period: str | None, exam_type: str | None,
+                   quantity: str | None, log_y: bool, ctx: Any) -> str:  # fmt: skip
+    from beamaudit.api.web.page_data import groups_table, periods
+    from beamaudit.api.web.page_inputs import exam_events, exam_types_table
+    from beamaudit.dashboards import EVENT_QUANTITIES, pick_distribution, render_distributions
+
+    run = _site_record(session, period)
     window = tuple((run.parameters or {}).get("weight_window_kg") or (50.0, 90.0))
-    events = distribution_events(session, start=p.start, end=p.end, window=window)
-    if exam_type and exam_type not in set(events["exam_type"]):
-        _unknown(
-            "exam type", exam_type, set(events["exam_type"]), f" in the review of {run.period}"
-        )
+    offered: dict[str, list[str]] = {}
+    for g in (run.result or {}).get("groups", []):
+        quantities = offered.setdefault(str(g.get("exam_type")), [])
+        if g.get("quantity") in EVENT_QUANTITIES and g["quantity"] not in quantities:
+            quantities.append(g["quantity"])
+    if exam_type and exam_type not in offered:
+        _unknown("exam type", exam_type, set(offered), f" in the review of {run.period}")
+    levels = groups_table(run)
+    chosen = pick_distribution(levels, exam_type=exam_type, quantity=quantity, available=offered)
+    # only the chosen examination's events are read: one chart, not the month's every event
+    events = exam_events(session, run, chosen[0], window=window) if chosen else None
+    if events is None:
+        from beamaudit.dashboards import EVENTS
+
+        events = EVENTS.validate([])
     return render_distributions(
-        events, levels=groups_table(run), exam_type=exam_type, quantity=quantity,
-        period=run.period, periods=periods(session), log_y=log_y, context=ctx,
+        events, levels=levels, exam_type=chosen[0] if chosen else None,
+        quantity=chosen[1] if chosen else quantity, period=run.period, periods=periods(session),
+        log_y=log_y, exam_types=exam_types_table(session), offered=offered, context=ctx,
     )  # fmt: skip
 
 
@@ -308,6 +340,7 @@ async def distributions(
 
 def _room(session: Session, room: str, ctx: Any) -> str:
     from beamaudit.api.web.page_data import flags_table, room_history
+    from beamaudit.api.web.page_inputs import exam_types_table
     from beamaudit.dashboards import render_room
 
     history = room_history(session, room)
@@ -318,7 +351,9 @@ def _room(session: Session, room: str, ctx: Any) -> str:
         if room not in known:
             _unknown("room", room, known)
         raise HTTPException(404, f"Room {room!r} has no reviewed data yet.")
-    return render_room(room, history, flags=flags, context=ctx)
+    return render_room(
+        room, history, flags=flags, exam_types=exam_types_table(session), context=ctx
+    )
 
 
 @router.get("/rooms/{room}", response_class=HTMLResponse)
@@ -337,12 +372,18 @@ def _room_names(session: Session) -> set[str]:
 def _exam(session: Session, study_uid: str, ctx: Any) -> str:
     from beamaudit.api.store.skin_doses import skin_page_record
     from beamaudit.api.web.page_data import exam_record
+    from beamaudit.api.web.page_inputs import exam_types_table
     from beamaudit.dashboards import render_exam
 
     record = exam_record(session, study_uid)
     if record is None:
         raise HTTPException(404, f"There is no study {study_uid!r} in the store.")
-    return render_exam(record, context=ctx, skin_dose=skin_page_record(session, study_uid))
+    return render_exam(
+        record,
+        exam_types=exam_types_table(session),
+        context=ctx,
+        skin_dose=skin_page_record(session, study_uid),
+    )
 
 
 @router.get("/exams/{study_uid}", response_class=HTMLResponse)
@@ -353,8 +394,10 @@ async def exam_page(
 
 
 def _flags(session: Session, kind: str | None, room: str | None, period: str | None,
-           status: str | None, ctx: Any, followup: Any = None) -> str:  # fmt: skip
+           status: str | None, can_triage: bool, ctx: Any,
+           followup: Any = None) -> str:  # fmt: skip
     from beamaudit.api.web.page_data import flags_table
+    from beamaudit.api.web.page_inputs import exam_types_table
     from beamaudit.dashboards import render_flags
 
     table = flags_table(session)
@@ -363,6 +406,7 @@ def _flags(session: Session, kind: str | None, room: str | None, period: str | N
         if room not in known:
             _unknown("room", room, known)
     return render_flags(table, kind=kind, room=room, period=period, status=status,
+                        can_triage=can_triage, exam_types=exam_types_table(session),
                         context=ctx, followup=followup)  # fmt: skip
 
 
@@ -378,6 +422,9 @@ async def flags_page(
 
     if kind and kind not in FLAG_KINDS:
         raise HTTPException(400, f"kind {kind!r} is not one of {', '.join(FLAG_KINDS)}.")
+    ctx = _context(request, who)
+    # triage from the page: physicists and admins signed in by a browser session (its CSRF token)
+    can_triage = has_role(who.role, "physicist") and bool(ctx.csrf_token)
     followup = None
     if has_role(who.role, "physicist"):  # rows about single patients: physicists only
         from beamaudit.api.store.skin_doses import followup_page_data
@@ -385,7 +432,7 @@ async def flags_page(
         window = request.app.state.settings.skin_dose_window_days
         followup = await run_in_threadpool(followup_page_data, session, window)
     return await run_in_threadpool(
-        _flags, session, kind, room, period, status, _context(request, who), followup
+        _flags, session, kind, room, period, status, can_triage, ctx, followup
     )
 
 
@@ -406,6 +453,7 @@ async def levels_page(request: Request, session: DbSession, who: PageViewer) -> 
 
 def _report(session: Session, period: str) -> str:
     from beamaudit.api.web.page_data import flags_table, groups_table, latest_run, periods
+    from beamaudit.api.web.page_inputs import attention_table, exam_types_table
     from beamaudit.dashboards import render_committee_report
 
     run = latest_run(session, period)
@@ -421,9 +469,12 @@ def _report(session: Session, period: str) -> str:
         "'possibly above'; groups below the minimum sample get no verdict. Reference-level "
         f"sets: {sets or 'none stored'}. Review run {run.id}, software {run.software_version}."
     )
+    flags = flags_table(session, [run.id])
+    exam_types = exam_types_table(session)
     return render_committee_report(
         groups_table(run), period=period, method=method, software_version=run.software_version,
-        flags=flags_table(session, [run.id]),
+        flags=flags, attention=attention_table(session, run, flags, exam_types),
+        exam_types=exam_types,
     )  # fmt: skip
 
 
@@ -434,3 +485,44 @@ async def report_page(period: str, session: DbSession, who: PageViewer) -> str:
     if not re.match(PERIOD_RE, period):
         raise HTTPException(400, f"A report's period is a month written YYYY-MM, not {period!r}.")
     return await run_in_threadpool(_report, session, period)
+
+
+def _ingest_errors(session: Session, period: str | None, ctx: Any) -> str:
+    from beamaudit.api.web.page_data import latest_run, periods
+    from beamaudit.api.web.page_inputs import ingest_errors_table, review_window
+    from beamaudit.dashboards import render_ingest_errors
+
+    since = until = None
+    note = "Every file and object refused at ingest, newest first."
+    if period:
+        run = latest_run(session, period)
+        if run is None:
+            raise HTTPException(404, _no_record(period, periods(session)))
+        since, until = review_window(run, newest=periods(session)[:1] == [period])
+        note = (
+            f"Files and objects refused from {since:%Y-%m-%d} until the review of {period} "
+            f"({until:%Y-%m-%d %H:%M} UTC), newest first."
+            if until is not None
+            else f"Files and objects refused since {since:%Y-%m-%d}, newest first."
+        )
+    table, total = ingest_errors_table(session, since=since, until=until)
+    if total > len(table):
+        note += f" The newest {len(table)} of {total} are listed."
+    return render_ingest_errors(table, note=note, context=ctx)
+
+
+_month_page("/ingest-errors", _ingest_errors)
+
+
+def _unmapped(session: Session, period: str | None, ctx: Any) -> str:
+    from beamaudit.api.web.page_data import periods
+    from beamaudit.api.web.page_inputs import unmapped_table
+    from beamaudit.dashboards import render_unmapped
+
+    run = _site_record(session, period)
+    return render_unmapped(
+        unmapped_table(run), period=run.period, periods=periods(session), context=ctx
+    )
+
+
+_month_page("/unmapped", _unmapped)

@@ -78,11 +78,20 @@ def test_config_file_sets_the_database(tmp_path, monkeypatch, capsys) -> None:
 def test_an_error_of_any_stage_is_one_line_and_exit_2(monkeypatch, capsys) -> None:
     """The command line's last net: an error a command did not turn into words itself (any stage's
     root derives from BeamauditError) still reaches the user as one line, exit 2, no traceback."""
+    import typer
+
     import beamaudit.api.cli as cli
     from beamaudit.model.errors import ModelError
 
-    def raising_app(**_kwargs: object) -> None:
+    raising_app = typer.Typer()
+
+    @raising_app.command("beam")
+    def beam() -> None:
         raise ModelError("tube voltage 0 kV is outside 20-150 kV\n(second line)")
+
+    @raising_app.command("other")
+    def other() -> None:  # two commands: "beam" stays a subcommand
+        pass
 
     monkeypatch.setattr(cli, "app", raising_app)
     assert cli.main(["beam"]) == 2

@@ -255,3 +255,96 @@ def test_exam_page_shows_b_with_its_source_and_uncertainty(site) -> None:
     assert "Monte Carlo backscatter kernels" in text
     row = text[text.index("Backscatter factor (B)") :][:600]
     assert " ± " in row  # the estimate with one standard uncertainty
+
+
+def _store_ingest_error(store, code: str = "not_dicom") -> None:
+    from beamaudit.api.store import models as m
+
+    with store.session_factory.begin() as s:
+        s.add(
+            m.IngestError(
+                received_via="scan", source="/incoming/readme.txt", code=code,
+                reason="not a DICOM file (no DICM prefix)",
+            )
+        )  # fmt: skip
+
+
+def test_rejected_files_and_unmapped_values_have_their_pages(site, store) -> None:
+    client, viewer, _, _ = site
+    _store_ingest_error(store)
+    errors = _get(client, "/ingest-errors", viewer)
+    assert errors.status_code == 200, errors.text[:300]
+    assert "/incoming/readme.txt" in errors.text and "no DICM prefix" in errors.text
+    unmapped = _get(client, "/unmapped?period=2026-10", viewer)
+    assert unmapped.status_code == 200, unmapped.text[:300]
+    assert "2026-10" in unmapped.text
+    assert _get(client, "/unmapped?period=2030-01", viewer).status_code == 404
+    assert _get(client, "/ingest-errors?period=2026-13", viewer).status_code == 400
+
+
+def test_overview_opens_with_what_needs_attention(site, store) -> None:
+    # the month's open findings, in words with their numbers, and the rejected files
+    client, viewer, _, _ = site
+    _store_ingest_error(store)
+    text = _get(client, "/?period=2026-10", viewer).text
+    main = text[text.index("<main") :]
+    assert "Chest PA" in main  # the catalogue's name, not the code chest_pa
+    assert "× the level" in main  # a group above the invented local level, with its factor
+    assert main.index("× the level") < main.index("overview-heatmap")
+    # the rejected files are a line of their own (ranked after these single exams: listed in full
+    # in the committee report)
+    report = _get(client, "/reports/2026-10", viewer).text
+    assert "1 file rejected at ingest: not DICOM" in report
+
+
+def _signed_in(client, token) -> str:
+    import re
+
+    client.post("/login", data={"token": token, "next": "/flags"})
+    page = client.get("/flags").text
+    found = re.search(r'<meta name="csrf-token" content="([^"]+)"', page)
+    return found.group(1) if found else ""
+
+
+def test_a_physicist_triages_from_the_flags_page(site) -> None:
+    # the page offers the form to a physicist signed in by a browser session; its PATCH, with the
+    # session's CSRF token, changes the finding; without the token it is refused
+    import re
+
+    client, viewer, physicist, _ = site
+    assert 'data-triage="' not in _get(client, "/flags", physicist).text  # a token: no session
+    csrf = _signed_in(client, physicist)
+    page = client.get("/flags?period=2026-10&status=open").text
+    assert csrf and 'data-triage="' in page
+    run_id, flag_id = re.search(r"/api/v1/reviews/(\d+)/flags/(\d+)", page).groups()
+    url = f"/api/v1/reviews/{run_id}/flags/{flag_id}"
+    body = {"status": "acknowledged", "note": "seen by the committee"}
+    origin = {"Origin": str(client.base_url)}
+    refused = client.patch(url, json=body, headers=origin)
+    assert refused.status_code == 403 and "X-CSRF-Token" in refused.json()["detail"]
+    done = client.patch(url, json=body, headers={**origin, "X-CSRF-Token": csrf})
+    assert done.status_code == 200, done.text
+    assert done.json()["status"] == "acknowledged"
+    assert "seen by the committee" in client.get("/flags?status=acknowledged").text
+    client.post("/logout")
+    _signed_in(client, viewer)
+    assert 'data-triage="' not in client.get("/flags").text  # a viewer reads, never triages
+
+
+def test_distributions_read_only_the_chosen_examination(site, store, monkeypatch) -> None:
+    import beamaudit.api.runs.reviews as reviews
+
+    client, viewer, _, _ = site
+    asked: list[str] = []
+    real = reviews.exam_type_events
+
+    def spy(session, **kw):
+        asked.append(kw["exam_type"])
+        return real(session, **kw)
+
+    monkeypatch.setattr(reviews, "exam_type_events", spy)
+    monkeypatch.setattr(reviews, "review_events", None)  # the month's every event: never read
+    r = _get(client, "/distributions?period=2026-10", viewer)
+    assert r.status_code == 200, r.text[:300]
+    assert asked == ["chest_pa"]
+    assert "Chest PA" in r.text

@@ -69,6 +69,8 @@ LAUNCH_ARGS = [
 ]
 SCREENSHOTS = Path(__file__).resolve().parents[2] / "artifacts" / "screenshots"
 PAGE_TIMEOUT_MS = 15_000
+#: the real service computes each page from its store (an exam page: every exposure's beam)
+SERVICE_TIMEOUT_MS = 90_000
 
 
 CSRF_TOKEN = "csrf-token-of-the-test-session"
@@ -271,10 +273,12 @@ class _Visit:
     errors: list[str]
 
 
-def _visit(context: Any, url: str, size: tuple[int, int] = (1400, 900)) -> _Visit:
+def _visit(
+    context: Any, url: str, size: tuple[int, int] = (1400, 900), timeout_ms: int = PAGE_TIMEOUT_MS
+) -> _Visit:
     page = context.new_page()
     page.set_viewport_size({"width": size[0], "height": size[1]})
-    page.set_default_timeout(PAGE_TIMEOUT_MS)
+    page.set_default_timeout(timeout_ms)
     errors: list[str] = []
     page.on("console", lambda m: errors.append(m.text) if m.type == "error" else None)
     page.on("pageerror", lambda e: errors.append(str(e)))
@@ -540,5 +544,221 @@ def test_report_asks_for_nothing_else_and_prints(context: Any, site: _Site) -> N
         assert pdf.startswith(b"%PDF")
         (SCREENSHOTS / "report.pdf").write_bytes(pdf)
         assert visit.errors == []
+    finally:
+        page.close()
+
+
+# ------------------------------------------------------------------ the real service on the demo
+#
+# ``beamaudit demo`` makes its invented hospital's database (DICOM files through the folder scan
+# and C-STORE, every month reviewed); the API serves it on loopback, a physicist signs in on the
+# login page, and every page is looked at as a committee member would. BEAMAUDIT_TEST_DEMO_DIR
+# may name the folder of an earlier ``beamaudit demo --no-serve`` run, to look at that one.
+
+
+@dataclass
+class _Demo:
+    base_url: str
+    physicist: str
+    viewer: str
+    url: str
+
+
+def _free_port() -> int:
+    import socket
+
+    with socket.socket() as s:
+        s.bind(("127.0.0.1", 0))
+        return int(s.getsockname()[1])
+
+
+@pytest.fixture(scope="module")
+def demo(tmp_path_factory: pytest.TempPathFactory) -> Iterator[_Demo]:
+    import os
+    import time
+
+    import uvicorn
+
+    from beamaudit.api.cli import main
+    from beamaudit.api.settings import load
+    from beamaudit.api.store import make_engine, make_session_factory
+    from beamaudit.api.store.auth import create_token
+    from beamaudit.api.web.app import create_app
+
+    given = os.environ.get("BEAMAUDIT_TEST_DEMO_DIR")
+    folder = Path(given) if given else tmp_path_factory.mktemp("demo")
+    if not given:
+        code = main(["demo", "--output", str(folder), "--no-serve", "--months", "4", "--seed", "0",
+                     "--json"])  # fmt: skip
+        assert code == 0, "the demo did not find what it planted"
+    url = f"sqlite:///{(folder / 'beamaudit-demo.db').resolve()}"
+    engine = make_engine(url)
+    with make_session_factory(engine).begin() as session:
+        _, physicist = create_token(session, role="physicist", name="committee physicist",
+                                    actor="test")  # fmt: skip
+        _, viewer = create_token(session, role="viewer", name="committee member", actor="test")
+    port = _free_port()
+    server = uvicorn.Server(
+        uvicorn.Config(create_app(load(database_url=url), engine=engine), host="127.0.0.1",
+                       port=port, log_level="warning")
+    )  # fmt: skip
+    thread = threading.Thread(target=server.run, daemon=True)
+    thread.start()
+    deadline = time.monotonic() + 30
+    while not server.started and time.monotonic() < deadline:
+        time.sleep(0.05)
+    assert server.started
+    try:
+        yield _Demo(f"http://127.0.0.1:{port}", physicist, viewer, url)
+    finally:
+        server.should_exit = True
+        thread.join(timeout=10)
+        engine.dispose()
+
+
+@pytest.fixture(scope="module")
+def signed_in(demo: _Demo) -> Iterator[Any]:
+    """A browser context signed in as a physicist on the demo's login page (a session cookie)."""
+    require_peer("Chromium", CHROMIUM.exists(), "apt-get install -y chromium")
+    from playwright.sync_api import sync_playwright
+
+    with sync_playwright() as pw:
+        chromium = pw.chromium.launch(
+            executable_path=str(CHROMIUM), headless=True, args=LAUNCH_ARGS
+        )
+        shared = chromium.new_context(viewport={"width": 1400, "height": 900})
+        page = shared.new_page()
+        page.goto(demo.base_url + "/login")
+        page.fill("input[name=token]", demo.physicist)
+        page.locator("form button[type=submit]").click()
+        page.wait_for_url(demo.base_url + "/")
+        page.close()
+        try:
+            yield shared
+        finally:
+            shared.close()
+            chromium.close()
+
+
+def _demo_paths(demo: _Demo) -> dict[str, str]:
+    """Every page of the demo, by screenshot name (the exam: a radiograph with a flag)."""
+    import re
+    import urllib.request
+
+    request = urllib.request.Request(
+        demo.base_url + "/flags?kind=deviation_index_out_of_range",  # a radiograph
+        headers={"Authorization": f"Bearer {demo.physicist}"},
+    )
+    with urllib.request.urlopen(request, timeout=60) as answer:
+        flags = answer.read().decode()
+    exam = re.search(r'href="(/exams/[^"]+)"', flags)
+    assert exam is not None
+    return {
+        "overview": "/",
+        "distributions": "/distributions",
+        "distributions-enema": "/distributions?exam_type=fluoro_barium_enema",
+        "room": "/rooms/HGH-RAD1",
+        "exam": exam.group(1),
+        "flags": "/flags",
+        "unmapped": "/unmapped",
+        "ingest-errors": "/ingest-errors",
+        "report": "/reports/" + re.search(r"Review of (\d{4}-\d{2})", _overview(demo)).group(1),
+    }
+
+
+def _overview(demo: _Demo) -> str:
+    import urllib.request
+
+    request = urllib.request.Request(
+        demo.base_url + "/", headers={"Authorization": f"Bearer {demo.viewer}"}
+    )
+    with urllib.request.urlopen(request, timeout=60) as answer:
+        return str(answer.read().decode())
+
+
+def test_demo_first_screen_names_the_dap_meter_fault_and_the_doubled_dose(
+    signed_in: Any, demo: _Demo
+) -> None:
+    # the planted findings of `beamaudit demo`, read from the overview's first screen of a
+    # 1400 x 900 window, above the heatmap, without scrolling
+    page = _visit(signed_in, demo.base_url + "/", timeout_ms=SERVICE_TIMEOUT_MS).page
+    try:
+        wanted = (
+            "HGH-RAD1: reported DAP",  # the DAP meter reading high
+            "check the DAP meter",
+            "Abdomen AP in HGH-RAD2: monthly median up 2",  # the AEC fault that doubled the dose
+        )
+        for words in wanted:
+            line = page.locator("ol.attention-list a.headline", has_text=words)
+            assert line.count() >= 1, words
+            box = line.first.bounding_box()
+            assert box is not None and box["y"] + box["height"] <= 900, (words, box)
+        heatmap = page.locator("#overview-heatmap").bounding_box()
+        first = page.locator("ol.attention-list li").first.bounding_box()
+        assert first is not None and heatmap is not None and first["y"] < heatmap["y"]
+    finally:
+        page.close()
+
+
+@pytest.mark.parametrize("size", SIZES, ids=lambda s: f"{s[0]}x{s[1]}")
+def test_every_demo_page_draws_fits_and_is_photographed(
+    signed_in: Any, demo: _Demo, size: tuple[int, int]
+) -> None:
+    SCREENSHOTS.mkdir(parents=True, exist_ok=True)
+    for name, path in _demo_paths(demo).items():
+        visit = _visit(signed_in, demo.base_url + path, size, SERVICE_TIMEOUT_MS)
+        page = visit.page
+        try:
+            _wait_for_figures(page, path)
+            assert CAUTION in page.inner_text("p.caution"), path
+            assert page.evaluate("document.documentElement.scrollWidth") <= size[0], path
+            shot = SCREENSHOTS / f"demo-{name}-{size[0]}x{size[1]}"
+            page.screenshot(path=f"{shot}.png", full_page=True)
+            page.screenshot(path=f"{shot}-first-screen.png")
+            assert visit.errors == [], (path, visit.errors)
+        finally:
+            page.close()
+
+
+def test_demo_pages_name_examinations_and_international_guidance(
+    signed_in: Any, demo: _Demo
+) -> None:
+    page = _visit(
+        signed_in,
+        demo.base_url + "/distributions?exam_type=chest_pa",
+        timeout_ms=SERVICE_TIMEOUT_MS,
+    ).page
+    try:
+        text = page.inner_text("main")
+        assert "Chest PA" in text and "chest_pa" not in text  # the catalogue's name
+        # IAEA BSS 115 is international guidance, never called a national level
+        assert "IAEA BSS 115" in text and "national level: iaea" not in text.lower()
+    finally:
+        page.close()
+
+
+def test_a_physicist_triages_a_demo_finding_through_the_api(signed_in: Any, demo: _Demo) -> None:
+    # the page's PATCH goes to the real API with the session's CSRF token; the finding changes
+    page = _visit(
+        signed_in, demo.base_url + "/flags?status=open", timeout_ms=SERVICE_TIMEOUT_MS
+    ).page
+    try:
+        flag_row_id = page.locator("tr.flag-open").first.get_attribute("id")
+        row = page.locator(f"tr#{flag_row_id}")  # by its id: its class changes with its status
+        row.locator("details.triage summary").click()
+        row.locator("textarea[name=note]").fill("AEC recalibrated by the vendor; follow up")
+        row.locator("form.triage-form button").click()
+        page.wait_for_function(
+            f"() => document.querySelector('tr#{flag_row_id} .flag-status').textContent === "
+            "'Acknowledged'"
+        )
+        assert "Saved" in row.locator(".triage-result").inner_text()
+        again = _visit(
+            signed_in, demo.base_url + "/flags?status=acknowledged", timeout_ms=SERVICE_TIMEOUT_MS
+        ).page
+        try:
+            assert "AEC recalibrated by the vendor" in again.inner_text("main")
+        finally:
+            again.close()
     finally:
         page.close()

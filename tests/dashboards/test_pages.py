@@ -381,10 +381,10 @@ def test_exam_page_keeps_developer_notes_from_readers(pages: dict[str, str]) -> 
 
 def test_exam_page_links(pages: dict[str, str], demo_exam: Any) -> None:
     page = _Page(pages["exam"])
-    nav = 6  # Overview, Distributions, Flags, Unmapped, Rejected files, and Sign out
+    nav = 7  # Overview, Distributions, Flags, Reference levels, Unmapped, Rejected files, Sign out
     assert page.links[nav : nav + 3] == ["/rooms/West%20DR%201", "/", "/rooms/West%20DR%201"]
     html = render_exam(demo_exam, back_href="/flags?status=open")
-    assert _Page(html).links[5] == "/flags?status=open"  # after the five navigation links
+    assert _Page(html).links[6] == "/flags?status=open"  # after the six navigation links
 
 
 # -------------------------------------------------------------------- flags

@@ -286,12 +286,13 @@ def update_level_set(
         if body.levels is not None
         else [LevelCreate.model_validate(x, from_attributes=True) for x in _levels(session, row.id)]
     )
-    if row.kind == "national":
+    if row.kind in ("national", "international"):
         missing = [f"{x.exam_type} {x.quantity}" for x in levels if not (x.source or "").strip()]
         if missing:
             invalid(
                 ("body", "levels"),
-                f"a national level needs its published source: {', '.join(missing)}",
+                f"{'an' if row.kind[0] == 'i' else 'a'} {row.kind} level needs its published "
+                f"source: {', '.join(missing)}",
             )
     candidate = LevelSetCreate(
         name=row.name,

@@ -91,16 +91,17 @@ def _levels_consistent(
                 "is given twice"
             )
         seen.add(key)
-        if kind == "national" and not (level.source or "").strip():
+        if kind in ("national", "international") and not (level.source or "").strip():
             raise ValueError(
-                f"{level.exam_type} {level.quantity}: a national level needs its published source"
+                f"{level.exam_type} {level.quantity}: {'an' if kind[0] == 'i' else 'a'} {kind} "
+                "level needs its published source"
             )
     return levels
 
 
 class LevelSetCreate(InputModel):
     name: Name = Field(description="the same for every version of the set")
-    kind: Literal["national", "local"]
+    kind: Literal["national", "local", "international"]
     version: Name = Field(examples=["2024-11-20"])
     effective_from: date
     source: Text | None = Field(

@@ -129,7 +129,8 @@ def test_bss_115_esd_guidance_levels(exam_type: str, value: float) -> None:
 def test_every_shipped_national_value_names_its_source_and_its_exam_type_exists() -> None:
     catalogue = load_default_catalogue()
     for s in load_national_levels():
-        assert s.kind == "national"
+        # IAEA Safety Series No. 115 is international guidance, a kind of its own
+        assert s.kind == ("international" if s.name == BSS else "national")
         assert s.source
         for e in s.entries:
             assert e.source, (s.name, e.exam_type, e.quantity)
@@ -239,7 +240,7 @@ def test_unit_helpers() -> None:
 @pytest.mark.parametrize(
     ("cells", "message"),
     [
-        ({"kind": "regional"}, "kind must be 'national' or 'local'"),
+        ({"kind": "regional"}, "kind must be one of local, national, international"),
         ({"effective_from": "01/02/2025"}, "is not a date YYYY-MM-DD"),
         ({"effective_from": "2025-02-30"}, "is not a valid date"),
         ({"quantity": "dap"}, "quantity 'dap' is not one of"),
@@ -248,7 +249,8 @@ def test_unit_helpers() -> None:
         ({"value": "0"}, "must be a positive number"),
         ({"unit": "mGy"}, "not a unit of dap_gy_cm2"),
         ({"exam_type": ""}, "exam_type is empty"),
-        ({"kind": "national"}, "needs its published source"),
+        ({"kind": "national"}, "a national level needs its published source"),
+        ({"kind": "international"}, "an? international level needs its published source"),
         ({"exam_type": "chest_xray"}, "not in the catalogue"),
         ({"set_name": ""}, "set_name and version must not be empty"),
     ],
