@@ -40,6 +40,7 @@ __all__ = [
 #: run (the review core's default of 6 months needs a longer history).
 DESIGN_CUSUM_BASELINE_MONTHS = 2
 _OUTLIER_TAG = "exam_above_investigation_level"
+_PAEDIATRIC_TAG = "paediatric_above_level"
 
 
 def design_parameters() -> dict[str, Any]:
@@ -108,6 +109,8 @@ def _exam_values(gen: Generated) -> Iterator[_Value]:
     for CT and fluoroscopy."""
     for key, studies in gen.radiography.items():
         for s in studies:
+            if _PAEDIATRIC_TAG in s.planted:
+                continue  # the children's own band group (_paediatric), never an adult group
             std = _standard(s.patient, s.weight_recorded)
             outlier = _outlier_key(s.planted)
             for v in s.views:
@@ -574,10 +577,63 @@ def expected_findings(
     for outlier in dates.plan.outliers:
         findings += _outlier(gen, outlier, ctx)
     findings += [_no_dose(gen, dates), _unmapped(gen, dates), _recurrent(gen, dates)]
+    findings.append(_paediatric(gen, ctx, dates))
     if gen.mammography:
         findings.append(_mammography_band(gen, ctx))
     findings += _skin_dose_plants(gen)
     return findings
+
+
+def _paediatric(gen: Generated, ctx: SimulationContext, dates: RadiographyPlan) -> PlantedFinding:
+    """The children's chest PA group of one ICRP 135 / EC RP 185 weight band above its level."""
+    from beamaudit.api.review.levels import applicable_levels, load_demo_local_levels
+
+    plan = dates.plan
+    room = gen.rooms[plan.paediatric_room]
+    studies = [s for s in gen.radiography[room.key] if _PAEDIATRIC_TAG in s.planted]
+    monthly: dict[str, list[float]] = defaultdict(list)
+    for s in studies:
+        if not s.weight_recorded:
+            continue  # a review counts them apart and never guesses them into a band
+        for v in s.views:
+            if v.exam_type == plan.paediatric_exam_type and v.dose_recorded:
+                monthly[_month(v.acquired.date())].append(v.dap_reported_gy_cm2)
+    first = studies[0].start.date()
+    found = applicable_levels(
+        load_demo_local_levels(),
+        plan.paediatric_exam_type,
+        "dap_gy_cm2",
+        first,
+        patient_group=plan.paediatric_group,
+    )
+    assert found, "the invented local set must hold the band's level"
+    level = found[0].value
+    by_month = _by_month(monthly)
+    low, high = plan.paediatric_weight_kg
+    return _finding(
+        gen,
+        room.key,
+        **{"date": first.isoformat(), "month": _month(first), "quantity": "dap_gy_cm2"},
+        id="paediatric_chest_above_band_level",
+        kind="group_above_level",
+        exam_type=plan.paediatric_exam_type,
+        description=(
+            f"Children of {low:g}-{high:g} kg sent to {room.name} for a chest PA are exposed on "
+            "the adult program (adult field and AEC dose level): every month the group of the "
+            f"ICRP 135 / EC RP 185 weight band {plan.paediatric_group} is above the invented "
+            "local paediatric level of that band."
+        ),
+        expected={
+            "patient_group": plan.paediatric_group,
+            "studies": len(studies),
+            "weight_not_recorded": sum(not s.weight_recorded for s in studies),
+            "levels": {found[0].set_name: level},
+            "by_month": by_month,
+            "median_to_level": {
+                m: round(r["median"] / level, 3) for m, r in by_month.items() if r["median"]
+            },
+        },
+    )
 
 
 def _mammography_band(gen: Generated, ctx: SimulationContext) -> PlantedFinding:
@@ -741,9 +797,10 @@ def quiet_numbers(
         {
             "kind": "group_above_level",
             "reason": "no group is planted above a level but the mammography room's CC views "
-            "in the thickness band: every monthly median of every radiography, CT and "
-            "fluoroscopy room and exam type stays below each shipped level (the doubled "
-            f"abdomen AP of {gen.rooms[dates.plan.change_room].name} included)",
+            "in the thickness band and the children's chest PA of one weight band: every "
+            "monthly median of every adult radiography, CT and fluoroscopy room and exam type "
+            "stays below each shipped level (the doubled abdomen AP of "
+            f"{gen.rooms[dates.plan.change_room].name} included)",
             "highest_standard_median_to_level": top,
         },
         {

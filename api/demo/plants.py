@@ -14,6 +14,8 @@ Planted, by review flag kind:
   index does not show it); its median stays below the level, so no ``group_above_level``;
 * ``exam_above_investigation_level``: five single exams at 6.5-9 times their level (two
   radiographs, two CT examinations by DLP, one barium enema);
+* ``group_above_level`` of a paediatric band: RAD 2's chest PA of children of 15-<30 kg, run on
+  the adult program, above the invented local level of that band;
 * ``no_dose_data``: six mobile examinations without kV, mAs, DAP or geometry;
 * ``unmapped_protocol``: CR 1's knee series under a new menu name with no body part;
 * ingest errors for three broken files (written by :mod:`beamaudit.api.demo.writer`).
@@ -79,6 +81,16 @@ class PlantedPlan:
     recurrent_phases: int = 3
     recurrent_ctdivol_mgy: float = 5.9
     recurrent_length_mm: float = 400.0
+    #: children of one ICRP 135 / EC RP 185 weight band sent to RAD 2 for a chest PA, exposed on
+    #: the adult program (adult field and AEC dose level): the band's monthly group runs above the
+    #: invented local paediatric level. Drawn from streams of their own, after the room's adults
+    paediatric_room: str = "rad2"
+    paediatric_procedure: str = "chest"
+    paediatric_exam_type: str = "chest_pa"
+    paediatric_group: str = "weight_15_30kg"
+    paediatric_weight_kg: tuple[float, float] = (17.0, 28.0)
+    paediatric_age_y: tuple[float, float] = (4.0, 10.0)
+    paediatric_per_weekday: float = 1.6
     outliers: tuple[OutlierPlan, ...] = (
         OutlierPlan(
             key="outlier_rad2_lspine_lat",

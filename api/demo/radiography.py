@@ -25,7 +25,7 @@ from beamaudit.api.demo.physics import (
     patient_thickness_mm,
 )
 from beamaudit.api.demo.plants import OutlierPlan, PlantedPlan
-from beamaudit.api.demo.records import RadiographStudy, RadiographView
+from beamaudit.api.demo.records import Patient, RadiographStudy, RadiographView
 from beamaudit.api.demo.scenario import PROCEDURES, RoomSpec, ViewProgram
 
 __all__ = ["RadiographyPlan", "simulate_radiography"]
@@ -229,10 +229,18 @@ class _RoomSimulator:
         )
 
     # --------------------------------------------------------------------------- one study
-    def study(self, day: date, hour: float, procedure_key: str, seq: int) -> RadiographStudy:
+    def study(
+        self,
+        day: date,
+        hour: float,
+        procedure_key: str,
+        seq: int,
+        patient: Patient | None = None,
+    ) -> RadiographStudy:
         room, rng, ctx = self.room, self.rng, self.ctx
         procedure = PROCEDURES[procedure_key]
-        patient = ctx.patients.patient(day, age_mean_y=room.age_mean_y, age_sd_y=room.age_sd_y)
+        if patient is None:
+            patient = ctx.patients.patient(day, age_mean_y=room.age_mean_y, age_sd_y=room.age_sd_y)
         accession = f"HB{day:%Y%m%d}{self.room_digit}{seq:02d}"
         study_uid = ctx.uids.uid("study", room.key, accession)
         study = RadiographStudy(
@@ -272,6 +280,8 @@ class _RoomSimulator:
                 studies.append(self._outlier(outlier))
         if room.key == self.plan.no_dose_room:
             self._plant_no_dose(studies)
+        if room.key == self.plan.paediatric_room:
+            studies += self._paediatric()
         studies.sort(key=lambda s: s.start)
         return studies
 
@@ -305,6 +315,28 @@ class _RoomSimulator:
         study.planted.append(outlier.key)
         return study
 
+    def _paediatric(self) -> list[RadiographStudy]:
+        """The planted children's chest PAs, from random streams of their own (the room's adult
+        studies and every other room keep their draws): weights uniform in the plan's band,
+        exposed on the adult program."""
+        plan, ctx = self.plan, self.ctx
+        adults_rng, self.rng = self.rng, ctx.rng(f"paediatric:{self.room.key}")
+        people = ctx.rng(f"paediatric_patients:{self.room.key}")
+        studies: list[RadiographStudy] = []
+        try:
+            for day in ctx.calendar.days():
+                if day.weekday() >= 5:
+                    continue
+                n = int(self.rng.poisson(plan.paediatric_per_weekday))
+                for i, hour in enumerate(np.sort(self.rng.uniform(15.0, 17.0, n))):
+                    patient = _child(people, day, plan, 1 + len(studies))
+                    study = self.study(day, float(hour), plan.paediatric_procedure, 60 + i, patient)
+                    study.planted.append("paediatric_above_level")
+                    studies.append(study)
+        finally:
+            self.rng = adults_rng
+        return studies
+
     def _plant_no_dose(self, studies: list[RadiographStudy]) -> None:
         """The dose link fails for ``no_dose_exams`` consecutive studies from the planned day."""
         start = self.dates.no_dose_date
@@ -316,6 +348,25 @@ class _RoomSimulator:
                 view.dose_recorded = False
                 view.exposure_index = view.target_exposure_index = view.deviation_index = None
                 view.planted.append("no_dose_data")
+
+
+def _child(rng: np.random.Generator, on: date, plan: PlantedPlan, number: int) -> Patient:
+    """An invented child of the plan's weight band and ages (names as obviously invented as the
+    adults')."""
+    from beamaudit.api.demo.context import _GIVEN_F, _GIVEN_M, _SURNAMES
+
+    female = bool(rng.random() < 0.5)
+    age_y = float(rng.uniform(*plan.paediatric_age_y))
+    weight = float(rng.uniform(*plan.paediatric_weight_kg))
+    given = (_GIVEN_F if female else _GIVEN_M)[int(rng.integers(15))]
+    return Patient(
+        patient_id=f"HBC{number:06d}",
+        name=f"{_SURNAMES[int(rng.integers(len(_SURNAMES)))]}^{given}",
+        sex="F" if female else "M",
+        birth_date=on - timedelta(days=int(age_y * 365.25)),
+        height_m=round(0.75 + 0.06 * age_y, 2),  # a rough growth line, invented
+        weight_kg=weight,
+    )
 
 
 def simulate_radiography(

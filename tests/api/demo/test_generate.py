@@ -474,7 +474,9 @@ def test_planted_findings_are_listed_with_review_kinds(demo: tuple[Path, Scenari
         "deviation_index_out_of_range": 2,
         "no_dose_data": 1,
         "unmapped_events": 1,
-        "group_above_level": 1,  # the mammography room's CC views in the 50-60 mm band
+        # the mammography room's CC views in the 50-60 mm band, and RAD 2's children of
+        # 15-<30 kg (ICRP 135 / EC RP 185 weight band) above the band's invented local level
+        "group_above_level": 2,
         "ingest_error": 3,
         "recurrent_exposure": 1,  # found on the recurrent-exposure list, not by a flag
         "srdl_exceeded": 2,  # the interventional room's two procedures (NCRP 168)
@@ -501,7 +503,12 @@ def test_planted_findings_are_listed_with_review_kinds(demo: tuple[Path, Scenari
     for outlier in manifest.findings("exam_above_investigation_level"):
         ratio = outlier.expected["values"][outlier.quantity]["ratio_to_strictest"]
         assert 5.0 <= ratio <= 10.0  # the brief: 5-10 times the reference level
-    no_dose = manifest.findings("no_dose_data")[0]
+    (children,) = [f for f in manifest.findings("group_above_level") if f.room == "RAD 2"]
+    assert children.expected["patient_group"] == "weight_15_30kg"
+    for month, numbers in children.expected["by_month"].items():
+        assert numbers["n"] >= 20, month  # ICRP 135: at least 20 patients for a verdict
+        assert 1.1 < children.expected["median_to_level"][month] < 1.6, month
+        no_dose = manifest.findings("no_dose_data")[0]
     assert len(no_dose.study_instance_uids) == 6
 
 

@@ -326,9 +326,12 @@ def test_qualified_levels_round_trip_and_plain_files_keep_their_layout() -> None
     text = write_levels_csv(sets) or ""
     assert text.splitlines()[0] == QUALIFIED
     assert read_levels_csv(io.StringIO(text))[0].entries == sets[0].entries
-    plain = write_levels_csv(load_demo_local_levels()) or ""
+    plain = write_levels_csv(load_national_levels()) or ""  # adult levels only
     header = next(line for line in plain.splitlines() if not line.startswith("#"))
     assert header == HEADER
+    # the demo's invented local set holds a band's level (RAD 2's children): the long layout
+    demo = write_levels_csv(load_demo_local_levels()) or ""
+    assert next(line for line in demo.splitlines() if not line.startswith("#")) == QUALIFIED
 
 
 @pytest.mark.parametrize(
