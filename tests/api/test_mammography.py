@@ -299,3 +299,28 @@ def test_explain_and_export_name_the_mammography_figures(settings_env, tmp_path,
     assert main(["explain", header["id"]]) == 0
     text = capsys.readouterr().out
     assert "mean glandular dose (AGD)" in text and "W/Rh" in text
+
+
+def test_stored_events_map_2d_and_tomosynthesis_by_their_acquisition(store, tmp_path) -> None:
+    """With descriptions that name no tomosynthesis, the stored ``mammography_acquisition``
+    still sends the report's sweep to the tomosynthesis exam type (a rule field, not a
+    description)."""
+    from sqlalchemy import update
+
+    from beamaudit.api.store.review_rows import map_stored_events
+
+    folder, _, _ = _objects(tmp_path)
+    _scan(store.session_factory, folder, tmp_path)
+    E = m.ExposureEventRow
+    with store.session_factory.begin() as s:
+        s.execute(update(E).values(study_description="Mammogram", series_description=None,
+                                   protocol_name=None, exam_type=None))  # fmt: skip
+        map_stored_events(s)
+    with store.session_factory() as s:
+        mapped = {
+            (r.view_position, r.mammography_acquisition, r.exam_type)
+            for r in s.scalars(select(E).where(E.source_kind != "image"))
+        }
+    assert ("CC", "tomosynthesis", "mammo_tomo_cc") in mapped
+    assert ("CC", "2d", "mammo_cc") in mapped
+    assert ("MLO", "2d", "mammo_mlo") in mapped
