@@ -46,6 +46,7 @@ from typing import Any
 __all__ = [
     "MAMMOGRAPHY_FIGURES_CLEARED",
     "is_mammography",
+    "mammography_beam",
     "mammography_figures",
     "mammography_trail",
     "official_coefficients",
@@ -238,6 +239,21 @@ def mammography_figures(event: Any, room: Any, calibration: Any, recipe: dict[st
         "agd_ratio_reported_to_recon": ratio,
         "recon_trail": recipe | ({"mammography": notes} if notes else {}),
     }
+
+
+def mammography_beam(event: Any, room: Any, calibration: Any) -> Any:
+    """The beam at the breast's upper surface (window, filters and paddle) the event's D_G was
+    made with, for ``room`` and ``calibration`` as the stored recipe keeps them.
+
+    Raises
+    ------
+    beamaudit.model.ModelError
+        As :func:`mammography_figures`.
+    """
+    from beamaudit.model.mammography import breast_beam
+
+    technique, _, _ = _inputs(event, room)
+    return breast_beam(technique, calibration=calibration).beam
 
 
 def mammography_trail(event: Any, room: Any, calibration: Any) -> dict[str, Any]:

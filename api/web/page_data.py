@@ -23,6 +23,7 @@ from beamaudit.api.web.mammography_record import mammography_exposure
 __all__ = [
     "changes_text",
     "exam_record",
+    "exam_type_names",
     "flags_table",
     "groups_table",
     "latest_run",
@@ -318,6 +319,12 @@ def _spectrum(event: m.ExposureEventRow) -> dict[str, Any] | None:
     }
 
 
+def exam_type_names(session: Session) -> pd.DataFrame:
+    """The stored catalogue's code and name of every exam type (the pages' ``EXAM_TYPES``)."""
+    rows = session.execute(select(m.ExamTypeRow.code, m.ExamTypeRow.name)).all()
+    return pd.DataFrame(rows, columns=["exam_type", "name"])
+
+
 def exam_record(
     session: Session, study_uid: str, *, standard_window_kg: tuple[float, float] = (50.0, 90.0)
 ) -> dict[str, Any] | None:
@@ -339,7 +346,9 @@ def exam_record(
         trail = trail_for_event(session, e) or {}
         if is_mammography(e) and e.recon_status == "ok":
             why = why_steps(trail.get("trail", []))
-            exposures.append(mammography_exposure(e, trail) | {"why": why})
+            exposures.append(
+                mammography_exposure(e, trail) | {"why": why, "spectrum": _spectrum(e)}
+            )
             continue
         comparisons = {c["quantity"]: c for c in trail.get("comparisons", [])}
         dose: dict[str, Any] = {}

@@ -336,13 +336,18 @@ def _room_names(session: Session) -> set[str]:
 
 def _exam(session: Session, study_uid: str, ctx: Any) -> str:
     from beamaudit.api.store.skin_doses import skin_page_record
-    from beamaudit.api.web.page_data import exam_record
+    from beamaudit.api.web.page_data import exam_record, exam_type_names
     from beamaudit.dashboards import render_exam
 
     record = exam_record(session, study_uid)
     if record is None:
         raise HTTPException(404, f"There is no study {study_uid!r} in the store.")
-    return render_exam(record, context=ctx, skin_dose=skin_page_record(session, study_uid))
+    return render_exam(
+        record,
+        context=ctx,
+        skin_dose=skin_page_record(session, study_uid),
+        exam_types=exam_type_names(session),  # the title names the exam type, not its code
+    )
 
 
 @router.get("/exams/{study_uid}", response_class=HTMLResponse)
