@@ -318,6 +318,10 @@ class Settings(BaseSettings):
     #: window of the cumulative skin dose of one patient's procedures, days (NCRP 168 asks for
     #: earlier procedures to be taken into account; 60 days: the issue's default, assumed)
     skin_dose_window_days: float = Field(default=60.0, gt=0, le=3650)
+    #: an official coefficient table of the Dance method (CSV, the layout of
+    #: ``beamaudit.model.dance_coefficients``) that takes precedence over the Monte Carlo's in
+    #: every mean glandular dose the store keeps; None: the Monte Carlo's tables
+    mammography_coefficients_file: Path | None = None
 
     @field_validator("database_url")
     @classmethod

@@ -36,6 +36,14 @@ def open_store(ctx: typer.Context | None, *, migrate: bool = True) -> OpenStore:
     )
 
     settings = load_settings(ctx)
+    if settings.mammography_coefficients_file is not None:
+        from beamaudit.api.intake.mammography import use_official_coefficients
+        from beamaudit.model import ModelError
+
+        try:
+            use_official_coefficients(settings.mammography_coefficients_file)
+        except ModelError as exc:
+            fail(f"mammography_coefficients_file: {exc}")
     try:
         engine = make_engine(settings.database_url)
         check_connection(engine)

@@ -24,6 +24,13 @@ What an event gives, and what is assumed when it does not (every assumption is i
   tomosynthesis event without them ``failed`` with that reason.
 * window, paddle and focus-to-support distance: the model's documented defaults, assumed.
 
+**Coefficients**: the project's Monte Carlo tables, unless the settings name an official table
+(``mammography_coefficients_file``, the layout of
+:func:`beamaudit.model.dance_coefficients.load_official_coefficients`): the process loads it once
+(:func:`use_official_coefficients`, called where the settings are read: the commands that open
+the store, the web application), and its g, c, s and T take precedence wherever it covers an
+exposure; ``recon_mgd_coefficients`` then names it (title, source, sha256).
+
 One dose per distinct beam and breast is computed for 1 mAs and scaled by each event's mAs
 (:math:`K` and :math:`D_G` are proportional to it). The per-event trail is not stored: like the
 other figures, ``recon_trail`` keeps the recipe and :func:`mammography_trail` makes the full
@@ -39,8 +46,11 @@ from typing import Any
 __all__ = [
     "MAMMOGRAPHY_FIGURES_CLEARED",
     "is_mammography",
+    "mammography_beam",
     "mammography_figures",
     "mammography_trail",
+    "official_coefficients",
+    "use_official_coefficients",
 ]
 
 #: the columns this module writes (beside recon_status, recon_calibrated and recon_trail)
@@ -66,6 +76,34 @@ METHOD_TOMO = METHOD + " T"
 _ANODES = {"tungsten": "W", "molybdenum": "Mo", "rhodium": "Rh", "silver": "Ag"}
 #: organs a reported Organ Dose of an MG image may be of; another (a phantom's) is no AGD
 _BREAST = frozenset({None, "", "BREAST"})
+
+
+#: the official coefficient table of this process (None: the Monte Carlo's), by its sha256
+_OFFICIAL: dict[str, Any] = {}
+
+
+def use_official_coefficients(path: Any) -> Any:
+    """Take the official coefficient table at ``path`` for every mammography dose this process
+    makes from now on (None: the Monte Carlo's tables again); returns the table (or None).
+
+    Raises
+    ------
+    beamaudit.model.ModelError
+        The file cannot be read or breaks the layout (one line, with the line number).
+    """
+    _OFFICIAL.clear()
+    if path is None:
+        return None
+    from beamaudit.model.dance_coefficients import load_official_coefficients
+
+    table = load_official_coefficients(path)
+    _OFFICIAL[table.sha256] = table
+    return table
+
+
+def official_coefficients() -> Any:
+    """The official coefficient table in use, or None (the Monte Carlo's)."""
+    return next(iter(_OFFICIAL.values()), None)
 
 
 def is_mammography(event: Any) -> bool:
@@ -127,13 +165,22 @@ def _inputs(event: Any, room: Any) -> tuple[Any, Any, list[str]]:
     return technique, tomo, notes
 
 
-@lru_cache(maxsize=2048)
 def _dose_per_mas(technique: Any, tomo: Any, age_years: float | None, calibration: Any) -> Any:
+    table = official_coefficients()
+    return _dose_per_mas_with(
+        technique, tomo, age_years, calibration, table.sha256 if table is not None else None
+    )
+
+
+@lru_cache(maxsize=2048)
+def _dose_per_mas_with(
+    technique: Any, tomo: Any, age_years: float | None, calibration: Any, table: str | None
+) -> Any:
     from beamaudit.model.glandular_dose import mean_glandular_dose
 
     return mean_glandular_dose(
         technique, exposure_mas=1.0, age_years=age_years, tomosynthesis=tomo,
-        calibration=calibration,
+        calibration=calibration, official=_OFFICIAL.get(table) if table else None,
     )  # fmt: skip
 
 
@@ -194,6 +241,21 @@ def mammography_figures(event: Any, room: Any, calibration: Any, recipe: dict[st
     }
 
 
+def mammography_beam(event: Any, room: Any, calibration: Any) -> Any:
+    """The beam at the breast's upper surface (window, filters and paddle) the event's D_G was
+    made with, for ``room`` and ``calibration`` as the stored recipe keeps them.
+
+    Raises
+    ------
+    beamaudit.model.ModelError
+        As :func:`mammography_figures`.
+    """
+    from beamaudit.model.mammography import breast_beam
+
+    technique, _, _ = _inputs(event, room)
+    return breast_beam(technique, calibration=calibration).beam
+
+
 def mammography_trail(event: Any, room: Any, calibration: Any) -> dict[str, Any]:
     """The full why trail of an event's mean glandular dose, made again (``as_dict()`` of the
     model's :class:`~beamaudit.model.glandular_dose.GlandularDose`, with what the event did not
@@ -203,7 +265,7 @@ def mammography_trail(event: Any, room: Any, calibration: Any) -> dict[str, Any]
     technique, tomo, notes = _inputs(event, room)
     dose = mean_glandular_dose(
         technique, exposure_mas=float(event.exposure_mas), age_years=_age(event),
-        tomosynthesis=tomo, calibration=calibration,
+        tomosynthesis=tomo, calibration=calibration, official=official_coefficients(),
     )  # fmt: skip
     out: dict[str, Any] = dose.as_dict()
     out["assumptions"] = [*notes, *out["assumptions"]]

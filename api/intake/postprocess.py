@@ -48,6 +48,7 @@ _RULE_INPUTS = (
     "study_description",
     "series_description",
     "protocol_name",
+    "mammography_acquisition",
 )
 
 

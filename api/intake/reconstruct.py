@@ -42,6 +42,7 @@ from sqlalchemy.orm import Session, sessionmaker
 from beamaudit.api.intake.mammography import (
     MAMMOGRAPHY_FIGURES_CLEARED,
     is_mammography,
+    mammography_beam,
     mammography_figures,
     mammography_trail,
 )
@@ -812,7 +813,9 @@ def beam_for_event(event: m.ExposureEventRow) -> Any:
 
     The room's beam configuration and calibration are those of the recipe, as they were when
     the figures were made, not the room's current ones: after a recalibration the exam page's
-    spectrum and HVL still agree with the stored figures and the why trail beside them. None
+    spectrum and HVL still agree with the stored figures and the why trail beside them. For a
+    mammography event, the beam at the breast's upper surface of the Dance method (its target,
+    K-edge filter and paddle: :func:`~beamaudit.api.intake.mammography.mammography_beam`). None
     without technique, for CT, or for an event without a recipe (not reconstructed).
     """
     from beamaudit.model import BeamSpec, ModelError, compute_beam
@@ -825,6 +828,8 @@ def beam_for_event(event: m.ExposureEventRow) -> Any:
     room = _room_from_snapshot(recipe.get("room"))
     calibration = _calibration_from_snapshot(recipe.get("calibration"), room)
     try:
+        if is_mammography(event):  # the breast beam of the Dance method: its target, paddle
+            return mammography_beam(event, room, calibration)
         return compute_beam(
             BeamSpec(
                 kv=round(event.kvp_kv, 1),

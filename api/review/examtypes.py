@@ -58,8 +58,10 @@ identifier), ``clinical_indication`` (optional, lower-case ``[a-z0-9_]``: the cl
 the rule sets with the exam type, e.g. ``acute_stroke`` for a head CT whose description names a
 stroke; a level may apply to an exam type and an indication), the pattern columns ``modality``,
 ``room``, ``body_part``, ``view_position``,
-``study_description``, ``series_description``, ``protocol_name``, ``any_description`` (all optional,
-empty = any), and ``note`` (optional free text).
+``study_description``, ``series_description``, ``protocol_name``, ``mammography_acquisition``
+(``2d`` or ``tomosynthesis``, as ingest read it from the image or the dose report: so 2D views and
+tomosynthesis sweeps are told apart whatever the descriptions say), ``any_description`` (all
+optional, empty = any), and ``note`` (optional free text).
 """
 
 from __future__ import annotations
@@ -85,6 +87,7 @@ __all__ = [
     "DEFAULT_AGGREGATION",
     "EVENT_FIELDS",
     "MODALITY_GROUPS",
+    "OPTIONAL_EVENT_FIELDS",
     "RULE_COLUMNS",
     "RULE_FIELDS",
     "ExamCatalogue",
@@ -153,7 +156,12 @@ EVENT_FIELDS = (
     "study_description",
     "series_description",
     "protocol_name",
+    "mammography_acquisition",
 )
+#: Fields a rule may look at that an events table may lack (then they count as not recorded):
+#: ``mammography_acquisition`` is ``2d`` or ``tomosynthesis`` as ingest read it (X-Ray 3D
+#: Acquisition Sequence, SOP Class and Image Type of an image; the event type of a dose report).
+OPTIONAL_EVENT_FIELDS = ("mammography_acquisition",)
 _DESCRIPTION_FIELDS = ("study_description", "series_description", "protocol_name")
 RULE_FIELDS = (*EVENT_FIELDS, "any_description")
 RULE_COLUMNS = ("priority", "exam_type", "clinical_indication", *RULE_FIELDS, "note")
@@ -593,12 +601,18 @@ def _combination_codes(frame: pd.DataFrame) -> tuple[np.ndarray, np.ndarray]:
 
 def _match_rule_index(events: pd.DataFrame, rules: MappingRules) -> np.ndarray:
     """Index into ``rules.rules`` of the first matching rule per event, -1 where none matches."""
-    missing = [c for c in EVENT_FIELDS if c not in events.columns]
+    missing = [
+        c for c in EVENT_FIELDS if c not in events.columns and c not in OPTIONAL_EVENT_FIELDS
+    ]
     if missing:
         raise ReviewInputError(f"the events table lacks the column(s) {', '.join(missing)}")
     if len(events) == 0:
         return np.zeros(0, dtype=np.int64)
-    raw = events.loc[:, list(EVENT_FIELDS)]
+    raw = events.loc[:, [c for c in EVENT_FIELDS if c in events.columns]]
+    for c in EVENT_FIELDS:  # an optional field the table lacks: not recorded
+        if c not in raw.columns:
+            raw = raw.assign(**{c: pd.Series(None, index=raw.index, dtype=object)})
+    raw = raw.loc[:, list(EVENT_FIELDS)]
     codes, first = _combination_codes(raw)
     # Per field: the distinct values among the distinct combinations, each tested once per pattern.
     distinct: dict[str, tuple[np.ndarray, list[str]]] = {}

@@ -259,6 +259,7 @@ def map_stored_events(session: Session, event_ids: list[int] | None = None) -> i
         m.ExposureEventRow.protocol_name,
         m.ExposureEventRow.body_part,
         m.ExposureEventRow.view_position,
+        m.ExposureEventRow.mammography_acquisition,
     ]
     stmt = select(*cols)
     if event_ids is not None:

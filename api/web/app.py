@@ -122,6 +122,15 @@ def create_app(settings: Settings, *, engine: Engine | None = None) -> FastAPI:
     from beamaudit.api.logs import configure_logging
 
     configure_logging()  # one line per record, library warnings without data values
+    if settings.mammography_coefficients_file is not None:  # an upload computes D_G too
+        from beamaudit.api.intake.mammography import use_official_coefficients
+        from beamaudit.api.settings import SettingsError
+        from beamaudit.model import ModelError
+
+        try:
+            use_official_coefficients(settings.mammography_coefficients_file)
+        except ModelError as exc:
+            raise SettingsError(f"mammography_coefficients_file: {exc}") from None
     engine = engine if engine is not None else make_engine(settings.database_url)
     app = FastAPI(
         title="beamaudit",

@@ -346,7 +346,9 @@ def exam_record(
         trail = trail_for_event(session, e) or {}
         if is_mammography(e) and e.recon_status == "ok":
             why = why_steps(trail.get("trail", []))
-            exposures.append(mammography_exposure(e, trail) | {"why": why})
+            exposures.append(
+                mammography_exposure(e, trail) | {"why": why, "spectrum": _spectrum(e)}
+            )
             continue
         comparisons = {c["quantity"]: c for c in trail.get("comparisons", [])}
         dose: dict[str, Any] = {}

@@ -11,6 +11,7 @@ MLO; TID 10005 per breast).
 from __future__ import annotations
 
 import subprocess
+from collections.abc import Iterator
 from pathlib import Path
 from types import SimpleNamespace
 from typing import Any
@@ -21,10 +22,12 @@ from rdsr_builders import mammography_report
 from sqlalchemy import select
 from test_mammography_paths import _mg_header
 
+from beamaudit.api.intake.mammography import official_coefficients, use_official_coefficients
 from beamaudit.api.intake.pipeline import Pipeline
 from beamaudit.api.intake.postprocess import Completion
 from beamaudit.api.intake.reconstruct import RoomBeams, figures, trail_for_event
 from beamaudit.api.intake.scanning import scan_paths
+from beamaudit.api.settings import SettingsError, load
 from beamaudit.api.store import models as m
 from beamaudit.ingest.pseudonym import Pseudonymiser, load_or_create_key
 from beamaudit.model import FilterSpec
@@ -299,3 +302,99 @@ def test_explain_and_export_name_the_mammography_figures(settings_env, tmp_path,
     assert main(["explain", header["id"]]) == 0
     text = capsys.readouterr().out
     assert "mean glandular dose (AGD)" in text and "W/Rh" in text
+
+
+def test_stored_events_map_2d_and_tomosynthesis_by_their_acquisition(store, tmp_path) -> None:
+    """With descriptions that name no tomosynthesis, the stored ``mammography_acquisition``
+    still sends the report's sweep to the tomosynthesis exam type (a rule field, not a
+    description)."""
+    from sqlalchemy import update
+
+    from beamaudit.api.store.review_rows import map_stored_events
+
+    folder, _, _ = _objects(tmp_path)
+    _scan(store.session_factory, folder, tmp_path)
+    E = m.ExposureEventRow
+    with store.session_factory.begin() as s:
+        s.execute(update(E).values(study_description="Mammogram", series_description=None,
+                                   protocol_name=None, exam_type=None))  # fmt: skip
+        map_stored_events(s)
+    with store.session_factory() as s:
+        mapped = {
+            (r.view_position, r.mammography_acquisition, r.exam_type)
+            for r in s.scalars(select(E).where(E.source_kind != "image"))
+        }
+    assert ("CC", "tomosynthesis", "mammo_tomo_cc") in mapped
+    assert ("CC", "2d", "mammo_cc") in mapped
+    assert ("MLO", "2d", "mammo_mlo") in mapped
+
+
+# ---- an official coefficient table named in the settings ---------------------------------------
+# The table below is a FORMAT TEST ONLY: its numbers are invented (g 0.5, c 1.0, s 1.0
+# everywhere), chosen so that the expected D_G is K x 0.5 exactly; they are no published values.
+# The layout is the one beamaudit.model.dance_coefficients.load_official_coefficients documents.
+TITLE = "FORMAT TEST ONLY: invented numbers, not a published table"
+
+
+def _table_text() -> str:
+    rows = ["factor,key,hvl_mm_al,thickness_mm,glandularity_percent,value"]
+    for hvl in (0.2, 1.0):
+        for t in (20, 110):
+            rows.append(f"g,,{hvl},{t},,0.5")
+            rows += [f"c,,{hvl},{t},{gl},1.0" for gl in (0.1, 100)]
+    rows += ["s,W/Rh,,,,1.0", "s,W/Ag,,,,1.0"]
+    header = f"# title: {TITLE}\n# source: invented for beamaudit's tests\n"
+    return header + "\n".join(rows) + "\n"
+
+
+@pytest.fixture
+def table(tmp_path: Path) -> Iterator[Path]:
+    path = tmp_path / "official.csv"
+    path.write_text(_table_text(), encoding="utf-8")
+    use_official_coefficients(path)
+    try:
+        yield path
+    finally:
+        use_official_coefficients(None)
+
+
+def test_the_official_table_takes_precedence_and_is_named(table: Path) -> None:
+    (values,) = figures([_event()], RoomBeams())
+    assert values["recon_status"] == "ok"
+    factors = (values["recon_mgd_g"], values["recon_mgd_c"], values["recon_mgd_s"])
+    assert factors == pytest.approx((0.5, 1.0, 1.0))
+    assert values["recon_mgd_mgy"] == pytest.approx(0.5 * values["recon_incident_air_kerma_mgy"])
+    assert values["recon_mgd_coefficients"].startswith(TITLE)
+
+
+def test_without_the_setting_the_monte_carlo_s_tables_are_used() -> None:
+    assert official_coefficients() is None
+    (values,) = figures([_event()], RoomBeams())
+    assert values["recon_mgd_coefficients"] == "beamaudit Monte Carlo"
+
+
+def test_scanned_views_store_which_table(store, table: Path, tmp_path: Path) -> None:
+    folder, _, _ = _objects(tmp_path)
+    _scan(store.session_factory, folder, tmp_path)
+    E = m.ExposureEventRow
+    with store.session_factory() as s:
+        stored = s.execute(
+            select(E.recon_mgd_coefficients, E.recon_mgd_g).where(E.recon_status == "ok")
+        ).all()
+    assert stored
+    assert all(name.startswith(TITLE) for name, _ in stored)
+    assert [g for _, g in stored] == pytest.approx([0.5] * len(stored))
+
+
+def test_a_broken_table_is_a_one_line_settings_error(tmp_path: Path) -> None:
+    from beamaudit.api.web.app import create_app
+
+    path = tmp_path / "broken.csv"
+    path.write_text("# title: x\nfactor,key,value\ng,,abc\n", encoding="utf-8")
+    settings = load(
+        database_url=f"sqlite:///{tmp_path / 'x.db'}", mammography_coefficients_file=path
+    )
+    with pytest.raises(SettingsError, match=r"^mammography_coefficients_file: ") as caught:
+        create_app(settings)
+    assert "\n" not in str(caught.value)
+    assert official_coefficients() is None

@@ -294,6 +294,50 @@ def test_shipped_rules_map_common_headers(fields: dict[str, str], expected: str 
     assert mapped.iloc[0] == expected
 
 
+@pytest.mark.parametrize(
+    ("fields", "expected"),
+    [
+        # 2D or tomosynthesis by the acquisition ingest read, whatever the descriptions say: a 2D
+        # view of a combined study named for tomosynthesis stays 2D, and a sweep whose
+        # descriptions name no tomosynthesis is still one
+        (
+            {"study_description": "Screening tomo", "mammography_acquisition": "2d"},
+            ("mammo_cc", "screening"),
+        ),
+        (
+            {"study_description": "Screening", "mammography_acquisition": "tomosynthesis"},
+            ("mammo_tomo_cc", "screening"),
+        ),
+        (
+            {"study_description": "Symptomatic", "mammography_acquisition": "tomosynthesis"},
+            ("mammo_tomo_cc", "diagnostic"),
+        ),
+        ({"mammography_acquisition": "tomosynthesis"}, ("mammo_tomo_cc", None)),
+        # acquisition not recorded: the descriptions decide, as before
+        ({"study_description": "Screening tomo"}, ("mammo_tomo_cc", "screening")),
+        ({"study_description": "Screening"}, ("mammo_cc", "screening")),
+    ],
+)
+def test_shipped_rules_tell_2d_from_tomosynthesis_by_the_acquisition(
+    fields: dict[str, str], expected: tuple[str, str | None]
+) -> None:
+    event = raw(modality="MG", view_position="CC", **fields)
+    mapped = map_events_with_indication(pd.DataFrame([event]), load_default_rules())
+    indication = mapped["clinical_indication"].iloc[0]
+    assert (mapped["exam_type"].iloc[0], indication or None) == expected
+
+
+def test_a_table_without_the_acquisition_column_maps_it_as_not_recorded() -> None:
+    rules = rules_from(
+        "priority,exam_type,modality,mammography_acquisition\n1,mammo_tomo_cc,MG,tomosynthesis\n"
+        "2,mammo_cc,MG,\n"
+    )
+    events = pd.DataFrame([raw(modality="MG")]).drop(columns=["mammography_acquisition"])
+    assert map_events(events, rules).tolist() == ["mammo_cc"]
+    events["mammography_acquisition"] = ["TOMOSYNTHESIS"]
+    assert map_events(events, rules).tolist() == ["mammo_tomo_cc"]
+
+
 def test_mapping_is_aligned_with_the_index_and_handles_many_rows() -> None:
     rows = [raw(modality="DX", body_part="CHEST", view_position="PA"), raw(modality="DX")] * 5000
     events = pd.DataFrame(rows, index=range(100, 10100))

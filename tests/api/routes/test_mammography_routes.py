@@ -85,3 +85,37 @@ def test_the_exam_page_shows_our_dose_beside_the_device_s(api, mg) -> None:
     assert "W/Rh" in text and "Compressed breast thickness" in text
     assert "Glandularity used" in text and "s (spectrum)" in text
     assert "1.31" in text  # the device's AGD beside ours
+
+
+def test_the_exam_page_draws_the_breast_beam_and_names_the_exam_type(api, mg) -> None:
+    """The view's spectrum is the beam its D_G was made with (from the stored recipe): a W
+    target, the 0.05 mm Rh filter and the paddle; its HVL is the stored one; the title gives
+    the catalogue's name of the exam type, not its code."""
+    from sqlalchemy import select
+
+    from beamaudit.api.store import models as m
+    from beamaudit.api.web.page_data import exam_record
+
+    header, _ = mg
+    with api.store.session_factory() as s:
+        record = exam_record(s, header.StudyInstanceUID)
+        row = s.scalars(
+            select(m.ExposureEventRow).where(m.ExposureEventRow.source_kind == "image_header")
+        ).one()
+    assert record is not None
+    (exposure,) = record["exposures"]
+    spectrum = exposure["spectrum"]
+    assert spectrum is not None
+    assert spectrum["hvl1_mm_al"] == pytest.approx(row.recon_hvl1_mm_al, rel=1e-9)
+    energies, fluence = spectrum["energies_kev"], spectrum["fluence_per_mas_1m"]
+    assert all(f == 0 for e, f in zip(energies, fluence, strict=True) if e > 28.5)  # 28 kV
+    # Rh K edge 23.22 keV (X-ray Data Booklet, from memory): the filter cuts the fluence just
+    # above it, so the spectrum falls across the edge
+    below = max(f for e, f in zip(energies, fluence, strict=True) if 22.5 <= e < 23.2)
+    above = max(f for e, f in zip(energies, fluence, strict=True) if 23.3 <= e < 24.0)
+    assert above < 0.5 * below
+    page = api.client.get(
+        f"/exams/{header.StudyInstanceUID}", headers=api.headers("physicist")
+    ).text
+    assert "<title>Mammography CC" in page and "mammo_cc" not in page.split("</title>")[0]
+    assert "Reconstructed spectrum, exposure 1" in page
