@@ -22,6 +22,7 @@ __all__ = [
     "CumulativeEntry",
     "add_skin_dose_flags",
     "cumulative_skin_doses",
+    "followup_in_period",
     "followup_page_data",
     "followup_rows",
     "set_followup",
@@ -92,6 +93,28 @@ def _followup_row(skin: m.SkinDoseRow, study: m.Study) -> dict[str, Any]:
         "followup_by": skin.followup_by,
         "followup_at": skin.followup_at,
     }
+
+
+def followup_in_period(session: Session, *, start: str, end: str) -> list[dict[str, Any]]:
+    """Procedures with an event in ``[start, end)`` (ISO dates, end exclusive, events judged by
+    their own time as the review does) that reached an NCRP 168 level, closed ones included,
+    oldest first: the committee report's follow-up section. Each row is a
+    :func:`followup_rows` row with the procedure's ``room`` (a room of its events)."""
+    query = (
+        select(m.SkinDoseRow, m.Study, m.ExposureEventRow.event_datetime, m.Room.name)
+        .join(m.Study, m.Study.id == m.SkinDoseRow.study_id)
+        .join(m.ExposureEventRow, m.ExposureEventRow.study_id == m.Study.id)
+        .outerjoin(m.Room, m.Room.id == m.ExposureEventRow.room_id)
+        .order_by(m.Study.study_datetime, m.Study.id)
+    )
+    out: dict[int, dict[str, Any]] = {}
+    for skin, study, when, room in session.execute(query).all():
+        if not skin.levels_crossed or study.id in out:
+            continue
+        if when is None or not (start <= when.date().isoformat() < end):
+            continue
+        out[study.id] = {**_followup_row(skin, study), "room": room}
+    return list(out.values())
 
 
 def cumulative_skin_doses(

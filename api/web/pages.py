@@ -405,6 +405,7 @@ async def levels_page(request: Request, session: DbSession, who: PageViewer) -> 
 
 
 def _report(session: Session, period: str) -> str:
+    from beamaudit.api.store.skin_doses import followup_in_period
     from beamaudit.api.web.page_data import flags_table, groups_table, latest_run, periods
     from beamaudit.dashboards import render_committee_report
 
@@ -421,10 +422,20 @@ def _report(session: Session, period: str) -> str:
         "'possibly above'; groups below the minimum sample get no verdict. Reference-level "
         f"sets: {sets or 'none stored'}. Review run {run.id}, software {run.software_version}."
     )
+    start, end = _period_bounds(period)
     return render_committee_report(
         groups_table(run), period=period, method=method, software_version=run.software_version,
         flags=flags_table(session, [run.id]),
+        followup=followup_in_period(session, start=start, end=end),
     )  # fmt: skip
+
+
+def _period_bounds(period: str) -> tuple[str, str]:
+    """A month ``YYYY-MM`` as ISO dates, the end exclusive."""
+    year, month = int(period[:4]), int(period[5:7])
+    start = date(year, month, 1)
+    end = date(year + month // 12, month % 12 + 1, 1)
+    return start.isoformat(), end.isoformat()
 
 
 @router.get("/reports/{period}", response_class=HTMLResponse)
