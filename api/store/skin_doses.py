@@ -6,7 +6,7 @@ ingest by :mod:`beamaudit.api.intake.skin`.
 
 from __future__ import annotations
 
-from collections.abc import Mapping
+from collections.abc import Collection, Mapping
 from dataclasses import dataclass
 from datetime import datetime, timedelta
 from typing import Any
@@ -25,6 +25,7 @@ __all__ = [
     "followup_in_period",
     "followup_page_data",
     "followup_rows",
+    "followup_states",
     "set_followup",
     "skin_page_record",
 ]
@@ -93,6 +94,19 @@ def _followup_row(skin: m.SkinDoseRow, study: m.Study) -> dict[str, Any]:
         "followup_by": skin.followup_by,
         "followup_at": skin.followup_at,
     }
+
+
+def followup_states(session: Session, study_uids: Collection[str]) -> dict[str, str]:
+    """The follow-up state of each of ``study_uids`` that has a skin-dose row (the flags page's
+    ``srdl_exceeded`` rows)."""
+    if not study_uids:
+        return {}
+    query = (
+        select(m.Study.study_instance_uid, m.SkinDoseRow.followup_status)
+        .join(m.SkinDoseRow, m.SkinDoseRow.study_id == m.Study.id)
+        .where(m.Study.study_instance_uid.in_(sorted(study_uids)))
+    )
+    return {uid: state for uid, state in session.execute(query).all() if state}
 
 
 def followup_in_period(session: Session, *, start: str, end: str) -> list[dict[str, Any]]:

@@ -354,6 +354,7 @@ async def exam_page(
 
 def _flags(session: Session, kind: str | None, room: str | None, period: str | None,
            status: str | None, ctx: Any, followup: Any = None) -> str:  # fmt: skip
+    from beamaudit.api.store.skin_doses import followup_states
     from beamaudit.api.web.page_data import flags_table
     from beamaudit.dashboards import render_flags
 
@@ -362,8 +363,10 @@ def _flags(session: Session, kind: str | None, room: str | None, period: str | N
         known = _room_names(session) | {r for r in table["room"] if r}
         if room not in known:
             _unknown("room", room, known)
+    srdl = table.loc[table["kind"] == "srdl_exceeded", "study_uid"] if len(table) else []
+    states = followup_states(session, {u for u in srdl if u})
     return render_flags(table, kind=kind, room=room, period=period, status=status,
-                        context=ctx, followup=followup)  # fmt: skip
+                        context=ctx, followup=followup, followup_states=states)  # fmt: skip
 
 
 @router.get("/flags", response_class=HTMLResponse)

@@ -113,3 +113,20 @@ def test_committee_report_lists_procedures_to_follow_up_without_pseudonym_or_not
     assert "9f3c0d7e5a1b4c2d" not in page and "told at discharge" not in page
     assert "None in this period." in report([])
     assert 'id="follow-up"' not in report(None)
+
+
+def test_flags_page_shows_the_follow_up_state_on_its_srdl_rows() -> None:
+    flag = {
+        "kind": "srdl_exceeded", "severity": "action", "period": "2026-10", "status": "open",
+        "room": "ANGIO 1", "exam_type": "angio_cardiac", "study_uid": "1.2.3.4",
+        "reason": "Study 1.2.3.4 exceeds the NCRP 168 substantial radiation dose level.",
+        "flag_id": "", "event_id": None, "raised_at": None, "note": None, "changed": None,
+        "run_id": None, "quantity": None, "numbers": {},
+    }  # fmt: skip
+    other = {**flag, "kind": "above_level", "study_uid": "1.2.3.5", "reason": "above"}
+    page = render_flags(
+        [flag, other], followup_states={"1.2.3.4": "follow_up_booked", "1.2.3.5": "closed"}
+    )
+    assert page.count("Patient follow-up:") == 1
+    assert "Patient follow-up: <strong>follow-up booked</strong>" in page
+    assert "Patient follow-up:" not in render_flags([flag])

@@ -96,6 +96,9 @@ def test_committee_report_lists_the_period_s_procedures_to_follow_up(api) -> Non
     assert "follow-up booked" in section and "peak skin dose" in section
     assert f"{high['peak_skin_dose_mgy']:,.0f} mGy" in section
     assert note not in page.text
+    # the flags page's own srdl_exceeded row of the procedure carries its follow-up state
+    flags_page = api.client.get("/flags", headers=viewer).text
+    assert "Patient follow-up: <strong>follow-up booked</strong>" in flags_page
     assert not any(p and p in page.text for p in pseudonyms)
     # closed procedures stay in their period's report
     closed = api.patch(
