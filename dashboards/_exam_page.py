@@ -6,7 +6,8 @@ Package-internal, used by :func:`beamaudit.dashboards.pages.render_exam`.
 from __future__ import annotations
 
 import math
-from collections.abc import Mapping
+from collections.abc import Mapping, Sequence
+from datetime import datetime
 from typing import Any
 
 import pandas as pd
@@ -202,28 +203,16 @@ def skin_view(skin: Mapping[str, Any]) -> dict[str, Any]:
 def followup_view(followup: Mapping[str, Any]) -> dict[str, Any]:
     """The flags page's follow-up section: one row per procedure, one per patient's total."""
 
-    def mgy(value: Any) -> str:
-        return "–" if value is None else f"{float(value):,.0f} mGy"
-
-    items = []
-    for item in followup.get("items") or []:
-        when = item.get("study_datetime")
-        items.append(
-            {
-                "study_uid": item["study_instance_uid"],
-                "when": when.strftime("%Y-%m-%d") if hasattr(when, "strftime") else "–",
-                "psd": mgy(item.get("peak_skin_dose_mgy")),
-                "levels": [c["text"] for c in item.get("level_checks") or [] if c.get("crossed")],
-                "status": FOLLOWUP_WORDS.get(str(item.get("followup_status")), "–"),
-                "note": item.get("followup_note") or "",
-            }
-        )
+    items = [
+        {**_followup_item(item), "note": item.get("followup_note") or ""}
+        for item in followup.get("items") or []
+    ]
     cumulative = [
         {
             "patient": c["patient_pseudo_id"],
             "procedures": c["procedures"],
-            "psd": mgy(c["peak_skin_dose_mgy"]),
-            "upper": mgy(c["upper_bound_mgy"]),
+            "psd": _mgy(c["peak_skin_dose_mgy"]),
+            "upper": _mgy(c["upper_bound_mgy"]),
             "added": "maps added" if str(c["method"]).startswith("maps_added") else "peaks added",
         }
         for c in followup.get("cumulative") or []
@@ -232,4 +221,45 @@ def followup_view(followup: Mapping[str, Any]) -> dict[str, Any]:
         "procedures": items,
         "cumulative": cumulative,
         "window_days": followup.get("window_days"),
+    }
+
+
+def followup_report_view(
+    items: Sequence[Mapping[str, Any]], names: Mapping[str, str] | None = None
+) -> list[dict[str, Any]]:
+    """The committee report's follow-up rows: procedure, room, examination, PSD, levels reached,
+    follow-up state and when it was last set; no pseudonym and no note (a note is free text)."""
+    rows = []
+    for item in items:
+        exam = item.get("exam_type")
+        u = item.get("uncertainty_pct")
+        rows.append(
+            {
+                **_followup_item(item),
+                "room": item.get("room") or "–",
+                "exam_name": ((names or {}).get(exam) or exam) if exam else "–",
+                "psd_u": "" if u is None or item.get("peak_skin_dose_mgy") is None
+                else f"± {float(u):.0f} %",
+                "status_since": _day(item.get("followup_at"), ""),
+            }
+        )  # fmt: skip
+    return rows
+
+
+def _day(value: Any, missing: str) -> str:
+    return value.strftime("%Y-%m-%d") if isinstance(value, datetime) else missing
+
+
+def _mgy(value: Any) -> str:
+    return "–" if value is None else f"{float(value):,.0f} mGy"
+
+
+def _followup_item(item: Mapping[str, Any]) -> dict[str, Any]:
+    """One procedure of a follow-up list in words (the flags page's and the report's rows)."""
+    return {
+        "study_uid": item["study_instance_uid"],
+        "when": _day(item.get("study_datetime"), "–"),
+        "psd": _mgy(item.get("peak_skin_dose_mgy")),
+        "levels": [c["text"] for c in item.get("level_checks") or [] if c.get("crossed")],
+        "status": FOLLOWUP_WORDS.get(str(item.get("followup_status")), "–"),
     }

@@ -156,9 +156,16 @@ def _flag_link(row: pd.Series, period: str | None) -> tuple[str, str]:
 
 
 def flag_rows(
-    table: pd.DataFrame, names: Mapping[str, str] | None = None, **only: str | None
+    table: pd.DataFrame,
+    names: Mapping[str, str] | None = None,
+    *,
+    followup: Mapping[str, str] | None = None,
+    **only: str | None,
 ) -> list[dict[str, Any]]:
-    """Display rows of a ``FLAGS`` table (filtered by the ``only`` columns' values), open first."""
+    """Display rows of a ``FLAGS`` table (filtered by the ``only`` columns' values), open first.
+
+    ``followup`` maps a Study Instance UID to its NCRP 168 follow-up state in words; an
+    ``srdl_exceeded`` row of such a study shows it."""
     for key, value in only.items():
         if value:
             table = table[table[key] == value]
@@ -199,6 +206,9 @@ def flag_rows(
                 "note": _text(r.get("note")),
                 "changed": _text(r.get("changed")),
                 "triage_href": _web.triage_href(run_id, flag_id) if run_id and flag_id else "",
+                "followup": (followup or {}).get(r["study_uid"] or "", "")
+                if r["kind"] == "srdl_exceeded"
+                else "",
             }
         )
     return out

@@ -409,6 +409,7 @@ def render_flags(
     exam_types: TableLike | None = None,
     context: PageContext | None = None,
     followup: Mapping[str, Any] | None = None,
+    followup_states: Mapping[str, str] | None = None,
 ) -> str:
     """The flags list with filters (served at ``/flags``), and triage for physicists.
 
@@ -436,6 +437,10 @@ def render_flags(
         ``followup_note``), ``window_days`` and ``cumulative`` (per pseudonymised patient:
         ``patient_pseudo_id``, ``procedures``, ``peak_skin_dose_mgy``, ``upper_bound_mgy``,
         ``method``).
+    followup_states : mapping, optional
+        Study Instance UID to the NCRP 168 follow-up state of its procedure (``open``,
+        ``patient_informed``, ``follow_up_booked``, ``closed``); each ``srdl_exceeded`` flag of
+        such a study shows it.
     """
     table = FLAGS.validate(flags)
     if status and status not in FLAG_STATUS_WORDS:
@@ -445,7 +450,13 @@ def render_flags(
     if period:
         _web.check_period(period)
     names = ExamTypes(exam_types).names
-    rows = _rows.flag_rows(table, names, kind=kind, room=room, period=period, status=status)
+    states = {
+        uid: _exam_page.FOLLOWUP_WORDS.get(state, state)
+        for uid, state in (followup_states or {}).items()
+    }
+    rows = _rows.flag_rows(
+        table, names, followup=states, kind=kind, room=room, period=period, status=status
+    )
 
     def choices(column: str) -> list[str]:
         return sorted({v for v in table[column] if v})

@@ -8,11 +8,13 @@ level sets, the software version and the caution about estimates.
 from __future__ import annotations
 
 import re
+from collections.abc import Mapping, Sequence
 from datetime import UTC, datetime
+from typing import Any
 
 import plotly.graph_objects as go
 
-from beamaudit.dashboards import _rows, _web, figures
+from beamaudit.dashboards import _exam_page, _rows, _web, figures
 from beamaudit.dashboards._heatmap_figure import heatmap_key
 from beamaudit.dashboards.attention import rank_attention
 from beamaudit.dashboards.distributions import ExamTypes
@@ -45,6 +47,7 @@ def render_committee_report(
     exam_types: TableLike | None = None,
     facility: str = "",
     generated_at: datetime | None = None,
+    followup: Sequence[Mapping[str, Any]] | None = None,
 ) -> str:
     """A self-contained committee report for one review period (served at ``/reports/{period}``).
 
@@ -77,6 +80,12 @@ def render_committee_report(
         Hospital or department name.
     generated_at : datetime, optional
         When the report was made (timezone-aware; shown in UTC); defaults to now.
+    followup : sequence of mappings, optional
+        Fluoroscopy and interventional procedures of the period at or above an NCRP 168
+        substantial radiation dose level, closed ones included (``study_instance_uid``,
+        ``study_datetime``, ``room``, ``exam_type``, ``peak_skin_dose_mgy``, ``uncertainty_pct``,
+        ``level_checks``, ``followup_status``, ``followup_at``); a section lists them with their
+        follow-up state. No pseudonym and no note is shown. None leaves the section out.
     """
     _web.check_period(period)
     if not method.strip():
@@ -157,6 +166,11 @@ def render_committee_report(
             for _, r in applied.iterrows()
         ],
         flag_rows=[r for r in period_flags if r["status"] != "closed"],
+        followup=(
+            _exam_page.followup_report_view(followup, catalogue.names)
+            if followup is not None
+            else None
+        ),
         flag_counts=[
             (words, sum(r["status"] == s for r in period_flags))
             for s, words in FLAG_STATUS_WORDS.items()

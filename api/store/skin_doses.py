@@ -6,7 +6,7 @@ ingest by :mod:`beamaudit.api.intake.skin`.
 
 from __future__ import annotations
 
-from collections.abc import Mapping
+from collections.abc import Collection, Mapping
 from dataclasses import dataclass
 from datetime import datetime, timedelta
 from typing import Any
@@ -22,8 +22,10 @@ __all__ = [
     "CumulativeEntry",
     "add_skin_dose_flags",
     "cumulative_skin_doses",
+    "followup_in_period",
     "followup_page_data",
     "followup_rows",
+    "followup_states",
     "set_followup",
     "skin_page_record",
 ]
@@ -92,6 +94,41 @@ def _followup_row(skin: m.SkinDoseRow, study: m.Study) -> dict[str, Any]:
         "followup_by": skin.followup_by,
         "followup_at": skin.followup_at,
     }
+
+
+def followup_states(session: Session, study_uids: Collection[str]) -> dict[str, str]:
+    """The follow-up state of each of ``study_uids`` that has a skin-dose row (the flags page's
+    ``srdl_exceeded`` rows)."""
+    if not study_uids:
+        return {}
+    query = (
+        select(m.Study.study_instance_uid, m.SkinDoseRow.followup_status)
+        .join(m.SkinDoseRow, m.SkinDoseRow.study_id == m.Study.id)
+        .where(m.Study.study_instance_uid.in_(sorted(study_uids)))
+    )
+    return {uid: state for uid, state in session.execute(query).all() if state}
+
+
+def followup_in_period(session: Session, *, start: str, end: str) -> list[dict[str, Any]]:
+    """Procedures with an event in ``[start, end)`` (ISO dates, end exclusive, events judged by
+    their own time as the review does) that reached an NCRP 168 level, closed ones included,
+    oldest first: the committee report's follow-up section. Each row is a
+    :func:`followup_rows` row with the procedure's ``room`` (a room of its events)."""
+    query = (
+        select(m.SkinDoseRow, m.Study, m.ExposureEventRow.event_datetime, m.Room.name)
+        .join(m.Study, m.Study.id == m.SkinDoseRow.study_id)
+        .join(m.ExposureEventRow, m.ExposureEventRow.study_id == m.Study.id)
+        .outerjoin(m.Room, m.Room.id == m.ExposureEventRow.room_id)
+        .order_by(m.Study.study_datetime, m.Study.id)
+    )
+    out: dict[int, dict[str, Any]] = {}
+    for skin, study, when, room in session.execute(query).all():
+        if not skin.levels_crossed or study.id in out:
+            continue
+        if when is None or not (start <= when.date().isoformat() < end):
+            continue
+        out[study.id] = {**_followup_row(skin, study), "room": room}
+    return list(out.values())
 
 
 def cumulative_skin_doses(

@@ -396,6 +396,7 @@ async def exam_page(
 def _flags(session: Session, kind: str | None, room: str | None, period: str | None,
            status: str | None, can_triage: bool, ctx: Any,
            followup: Any = None) -> str:  # fmt: skip
+    from beamaudit.api.store.skin_doses import followup_states
     from beamaudit.api.web.page_data import flags_table
     from beamaudit.api.web.page_inputs import exam_types_table
     from beamaudit.dashboards import render_flags
@@ -405,9 +406,11 @@ def _flags(session: Session, kind: str | None, room: str | None, period: str | N
         known = _room_names(session) | {r for r in table["room"] if r}
         if room not in known:
             _unknown("room", room, known)
+    srdl = table.loc[table["kind"] == "srdl_exceeded", "study_uid"] if len(table) else []
+    states = followup_states(session, {u for u in srdl if u})
     return render_flags(table, kind=kind, room=room, period=period, status=status,
                         can_triage=can_triage, exam_types=exam_types_table(session),
-                        context=ctx, followup=followup)  # fmt: skip
+                        context=ctx, followup=followup, followup_states=states)  # fmt: skip
 
 
 @router.get("/flags", response_class=HTMLResponse)
@@ -452,6 +455,7 @@ async def levels_page(request: Request, session: DbSession, who: PageViewer) -> 
 
 
 def _report(session: Session, period: str) -> str:
+    from beamaudit.api.store.skin_doses import followup_in_period
     from beamaudit.api.web.page_data import flags_table, groups_table, latest_run, periods
     from beamaudit.api.web.page_inputs import attention_table, exam_types_table
     from beamaudit.dashboards import render_committee_report
@@ -469,13 +473,23 @@ def _report(session: Session, period: str) -> str:
         "'possibly above'; groups below the minimum sample get no verdict. Reference-level "
         f"sets: {sets or 'none stored'}. Review run {run.id}, software {run.software_version}."
     )
+    start, end = _period_bounds(period)
     flags = flags_table(session, [run.id])
     exam_types = exam_types_table(session)
     return render_committee_report(
         groups_table(run), period=period, method=method, software_version=run.software_version,
         flags=flags, attention=attention_table(session, run, flags, exam_types),
         exam_types=exam_types,
+        followup=followup_in_period(session, start=start, end=end),
     )  # fmt: skip
+
+
+def _period_bounds(period: str) -> tuple[str, str]:
+    """A month ``YYYY-MM`` as ISO dates, the end exclusive."""
+    year, month = int(period[:4]), int(period[5:7])
+    start = date(year, month, 1)
+    end = date(year + month // 12, month % 12 + 1, 1)
+    return start.isoformat(), end.isoformat()
 
 
 @router.get("/reports/{period}", response_class=HTMLResponse)

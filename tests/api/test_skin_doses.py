@@ -241,3 +241,59 @@ def test_a_pulled_dose_report_gets_its_skin_dose(store) -> None:
     assert set(found) == {"996"}, outcome
     assert found["996"].peak_skin_dose_mgy > 3000.0
     assert "peak_skin_dose" in found["996"].levels_crossed
+
+
+@pytest.mark.peer
+@pytest.mark.slow
+@pytest.mark.parametrize(
+    "backend", ["sqlite", pytest.param("postgresql", marks=pytest.mark.postgres)]
+)
+def test_storescu_to_beamaudit_listen_stores_the_skin_dose(backend: str, tmp_path: Path) -> None:
+    # the command path end to end: dcmtk's storescu (Debian package dcmtk) sends a dose report
+    # with TID 10003 geometry to `beamaudit listen` running as its own process; the listener's
+    # completion in the storing transaction writes the skin_doses row
+    import os
+    import subprocess
+
+    from peers import free_port, require_peer, wait_for_tcp, which_or_none
+    from procs import beamaudit_process, shared_store
+
+    storescu = which_or_none("storescu")
+    require_peer("dcmtk storescu", storescu is not None, "apt-get install -y dcmtk")
+    folder = tmp_path / "in"
+    folder.mkdir()
+    # PSD above 3 Gy from two overlapping projections while K_a,r (4.4 Gy) stays below 5 Gy
+    hot = fluoroscopy_report(
+        [run(2.2, -2.0), run(2.2, 2.0)], study_uid="1.2.826.0.1.3680043.10.1.997"
+    )
+    (folder / "hot.dcm").write_bytes(to_bytes(hot))
+    port = free_port()
+    log = tmp_path / "listen.log"
+    with shared_store(backend, tmp_path) as shared:
+        args = ["listen", "--host", "127.0.0.1", "--port", str(port)]
+        with beamaudit_process(args, shared, log):
+            assert wait_for_tcp(port, timeout_s=60), log.read_text()[-3000:]
+            sent = subprocess.run(
+                [storescu, "-aec", "BEAMAUDIT", "+sd", "127.0.0.1", str(port), str(folder)],
+                capture_output=True, text=True, timeout=120,
+                env={"TCP_NODELAY": "1", "PATH": os.environ.get("PATH", "/usr/bin:/bin")},
+            )  # fmt: skip
+        assert sent.returncode == 0, sent.stderr
+        assert "Store Failed" not in sent.stderr
+        with shared.sessions() as s:
+            received = s.scalars(select(m.SourceObjectRow.received_via)).all()
+            found = s.execute(
+                select(m.Study.study_instance_uid, m.SkinDoseRow).join(
+                    m.SkinDoseRow, m.SkinDoseRow.study_id == m.Study.id
+                )
+            ).all()
+    assert received == ["listen"]
+    ((uid, skin),) = found
+    assert uid.endswith("997")
+    assert skin.status == "ok", skin.reason
+    # NCRP 168: PSD 3 Gy, K_a,r 5 Gy (from memory, medium-high; model/data)
+    assert skin.peak_skin_dose_mgy > 3000.0
+    assert skin.levels_crossed == ["peak_skin_dose"]
+    assert sorted(c["event_index"] for c in skin.events_at_peak) == [0, 1]
+    assert skin.followup_status == "open"
+    assert skin.record is not None and skin.record["map"]["dose_mgy"]

@@ -78,3 +78,55 @@ def test_flags_page_lists_patients_to_follow_up(demo_flags) -> None:
     assert "follow-up booked" in page and "dermatology in 3 weeks" in page
     assert "within 60 days" in page and "5,200 mGy" in page and "maps added" in page
     assert 'id="follow-up"' not in render_flags(demo_flags)
+
+
+def test_committee_report_lists_procedures_to_follow_up_without_pseudonym_or_note(
+    demo_groups,
+) -> None:
+    from beamaudit.dashboards import render_committee_report
+
+    item = {
+        "study_instance_uid": "1.2.3.4",
+        "study_datetime": datetime(2026, 10, 3, 10),
+        "room": "ANGIO 1",
+        "exam_type": "angio_cardiac",
+        "patient_pseudo_id": "9f3c0d7e5a1b4c2d",
+        "peak_skin_dose_mgy": 4000.0,
+        "uncertainty_pct": 48.0,
+        "level_checks": [LEVEL],
+        "followup_status": "patient_informed",
+        "followup_note": "told at discharge",
+        "followup_at": datetime(2026, 10, 5, 9),
+    }
+
+    def report(followup: Any) -> str:
+        return render_committee_report(
+            demo_groups, period="2026-10", method="ICRP 135.", software_version="1.0",
+            followup=followup,
+        )  # fmt: skip
+
+    page = report([item])
+    section = page.split('id="follow-up"', 1)[1].split("</section>", 1)[0]
+    assert "<code>1.2.3.4</code>" in section and "ANGIO 1" in section
+    assert "4,000 mGy" in section and "± 48 %" in section and LEVEL["text"] in section
+    assert "patient informed" in section and "since 2026-10-05" in section
+    assert "9f3c0d7e5a1b4c2d" not in page and "told at discharge" not in page
+    assert "None in this period." in report([])
+    assert 'id="follow-up"' not in report(None)
+
+
+def test_flags_page_shows_the_follow_up_state_on_its_srdl_rows() -> None:
+    flag = {
+        "kind": "srdl_exceeded", "severity": "action", "period": "2026-10", "status": "open",
+        "room": "ANGIO 1", "exam_type": "angio_cardiac", "study_uid": "1.2.3.4",
+        "reason": "Study 1.2.3.4 exceeds the NCRP 168 substantial radiation dose level.",
+        "flag_id": "", "event_id": None, "raised_at": None, "note": None, "changed": None,
+        "run_id": None, "quantity": None, "numbers": {},
+    }  # fmt: skip
+    other = {**flag, "kind": "above_level", "study_uid": "1.2.3.5", "reason": "above"}
+    page = render_flags(
+        [flag, other], followup_states={"1.2.3.4": "follow_up_booked", "1.2.3.5": "closed"}
+    )
+    assert page.count("Patient follow-up:") == 1
+    assert "Patient follow-up: <strong>follow-up booked</strong>" in page
+    assert "Patient follow-up:" not in render_flags([flag])

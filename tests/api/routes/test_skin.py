@@ -19,11 +19,16 @@ def _run(kar_gy: float, primary_deg: float) -> FluoroEvent:
     )
 
 
-def test_uploaded_report_has_a_skin_map_and_a_follow_up(api) -> None:
+def _upload_hot_and_light(api) -> None:
+    # two overlapping projections of 3 Gy K_a,r each, and one light run
     hot = to_bytes(fluoroscopy_report([_run(3.0, -4.0), _run(3.0, 4.0)]))
     light = to_bytes(fluoroscopy_report([_run(0.2, 0.0)]))
     for data in (hot, light):
         assert api.post("/upload", content=data, headers=DICOM, as_="physicist").status_code == 200
+
+
+def test_uploaded_report_has_a_skin_map_and_a_follow_up(api) -> None:
+    _upload_hot_and_light(api)
     exams = api.get("/exams", as_="physicist").json()["items"]
     records = {e["id"]: api.get(f"/exams/{e['id']}/skin-dose", as_="physicist") for e in exams}
     assert all(r.status_code == 200 for r in records.values())
@@ -54,3 +59,54 @@ def test_uploaded_report_has_a_skin_map_and_a_follow_up(api) -> None:
     assert closed.status_code == 200
     assert api.get("/skin-doses/follow-up", as_="physicist").json()["items"] == []
     assert api.get("/exams/999999/skin-dose", as_="physicist").status_code == 404
+
+
+def test_committee_report_lists_the_period_s_procedures_to_follow_up(api) -> None:
+    # the report's follow-up section: the procedure at an NCRP 168 level with its state, closed
+    # ones included; neither the pseudonym nor the free-text note is shown (viewers read it)
+    from sqlalchemy import select
+
+    from beamaudit.api.review import Period, ReviewParameters
+    from beamaudit.api.runs.reviews import run_review
+    from beamaudit.api.store import models as m
+
+    _upload_hot_and_light(api)
+    exams = api.get("/exams", as_="physicist").json()["items"]
+    skins = [api.get(f"/exams/{e['id']}/skin-dose", as_="physicist").json() for e in exams]
+    high = max(skins, key=lambda r: r["peak_skin_dose_mgy"])
+    low = min(skins, key=lambda r: r["peak_skin_dose_mgy"])
+    note = "told at discharge, dermatology in 3 weeks"
+    step = api.patch(
+        f"/exams/{high['exam_id']}/skin-dose/follow-up",
+        json={"status": "follow_up_booked", "note": note},
+        as_="physicist",
+    )
+    assert step.status_code == 200
+    with api.store.session_factory() as s:
+        when = s.scalar(select(m.ExposureEventRow.event_datetime))
+        pseudonyms = set(s.scalars(select(m.Study.patient_pseudo_id)))
+    period = Period.month(when.year, when.month)
+    run_review(api.store.session_factory, ReviewParameters(period=period))
+    month = f"{when.year:04d}-{when.month:02d}"
+    viewer = api.headers("viewer")
+    page = api.client.get(f"/reports/{month}", headers=viewer)
+    assert page.status_code == 200, page.text[:500]
+    section = page.text.split('id="follow-up"', 1)[1].split("</section>", 1)[0]
+    assert high["study_instance_uid"] in section and low["study_instance_uid"] not in section
+    assert "follow-up booked" in section and "peak skin dose" in section
+    assert f"{high['peak_skin_dose_mgy']:,.0f} mGy" in section
+    assert note not in page.text
+    # the flags page's own srdl_exceeded row of the procedure carries its follow-up state
+    flags_page = api.client.get("/flags", headers=viewer).text
+    assert "Patient follow-up: <strong>follow-up booked</strong>" in flags_page
+    assert not any(p and p in page.text for p in pseudonyms)
+    # closed procedures stay in their period's report
+    closed = api.patch(
+        f"/exams/{high['exam_id']}/skin-dose/follow-up",
+        json={"status": "closed", "note": "no skin effect at 6 weeks"},
+        as_="physicist",
+    )
+    assert closed.status_code == 200
+    page = api.client.get(f"/reports/{month}", headers=viewer).text
+    assert high["study_instance_uid"] in page.split('id="follow-up"', 1)[1]
+    assert ">closed<" in page.split('id="follow-up"', 1)[1]
