@@ -318,6 +318,9 @@ class Settings(BaseSettings):
     #: window of the cumulative skin dose of one patient's procedures, days (NCRP 168 asks for
     #: earlier procedures to be taken into account; 60 days: the issue's default, assumed)
     skin_dose_window_days: float = Field(default=60.0, gt=0, le=3650)
+    #: edges (cm) of the water-equivalent-diameter bands adult CT groups are reviewed in by
+    #: ``beamaudit review`` (empty: no size bands; no published edges: api/review/ct_size.py)
+    ct_size_band_edges_cm: list[float] = Field(default_factory=list, max_length=50)
 
     @field_validator("database_url")
     @classmethod
