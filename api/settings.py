@@ -75,6 +75,9 @@ class ListenerSettings(BaseModel):
     idle_timeout_s: float = Field(default=30.0, gt=0, le=86400)
     #: seconds an association may last in all
     association_timeout_s: float = Field(default=3600.0, gt=0, le=7 * 86400)
+    #: seconds after a CT study's last image before its patient size (Dw) is computed from the
+    #: images received (``beamaudit listen``; at its stop, every waiting study is sized)
+    size_quiet_s: float = Field(default=30.0, gt=0, le=3600)
 
 
 class ApiSettings(BaseModel):
