@@ -75,6 +75,9 @@ class ListenerSettings(BaseModel):
     idle_timeout_s: float = Field(default=30.0, gt=0, le=86400)
     #: seconds an association may last in all
     association_timeout_s: float = Field(default=3600.0, gt=0, le=7 * 86400)
+    #: seconds after a CT study's last image before its patient size (Dw) is computed from the
+    #: images received (``beamaudit listen``; at its stop, every waiting study is sized)
+    size_quiet_s: float = Field(default=30.0, gt=0, le=3600)
 
 
 class ApiSettings(BaseModel):
@@ -322,6 +325,9 @@ class Settings(BaseSettings):
     #: ``beamaudit.model.dance_coefficients``) that takes precedence over the Monte Carlo's in
     #: every mean glandular dose the store keeps; None: the Monte Carlo's tables
     mammography_coefficients_file: Path | None = None
+    #: edges (cm) of the water-equivalent-diameter bands adult CT groups are reviewed in by
+    #: ``beamaudit review`` (empty: no size bands; no published edges: api/review/ct_size.py)
+    ct_size_band_edges_cm: list[float] = Field(default_factory=list, max_length=50)
 
     @field_validator("database_url")
     @classmethod

@@ -60,7 +60,7 @@ def listen_command(
             network_timeout_s=cfg.idle_timeout_s,
             association_timeout_s=cfg.association_timeout_s,
         )
-        sizer = ArrivalSizer(StudySizer(store.sessions))
+        sizer = ArrivalSizer(StudySizer(store.sessions), quiet_s=cfg.size_quiet_s)
         handler = make_store_handler(
             Pipeline(store.sessions, completion=Completion()),
             Pseudonymiser(pseudonym_key(store.settings.secret_key_path)),

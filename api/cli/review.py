@@ -100,6 +100,7 @@ def _monthly(store: Any, month: str, rooms: list[str] | None, exam_types: list[s
         period=period,
         rooms=tuple(rooms) if rooms else None,
         exam_types=tuple(exam_types) if exam_types else None,
+        ct_size_band_edges_cm=tuple(store.settings.ct_size_band_edges_cm),
     )
     return run_review(store.sessions, params, kind="monthly")
 
@@ -127,7 +128,10 @@ def _nightly(store: Any) -> tuple[int, int] | None:
     start = today.replace(day=1)
     period = Period(start, today + timedelta(days=1))
     try:
-        run_id = run_review(store.sessions, ReviewParameters(period=period), kind="nightly")
+        params = ReviewParameters(
+            period=period, ct_size_band_edges_cm=tuple(store.settings.ct_size_band_edges_cm)
+        )
+        run_id = run_review(store.sessions, params, kind="nightly")
     except NoEventsError:
         return None
     with store.sessions() as session:

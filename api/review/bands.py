@@ -186,6 +186,10 @@ class PatientGroups:
         band = self.get(name)
         if band is None and is_thickness_group(name):
             return band_label(name)
+        if band is None and name.startswith("ct_dw_"):
+            from beamaudit.api.review.ct_size import size_band_label
+
+            return size_band_label(name)
         return f"children {band.label}" if band is not None else name
 
     def fingerprint(self) -> str:

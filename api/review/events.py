@@ -43,6 +43,8 @@ clinical_indication        str or None   the examination's clinical indication (
 breast_thickness_mm        float         mammography: the compressed breast thickness (NaN when not
                                          recorded); mammography groups are set by its band
                                          (:mod:`.mammography`)
+ct_dw_cm                   float         CT: the water-equivalent diameter, cm (NaN when not
+                                         known); CT groups may be set by its bands (:mod:`.ct_size`)
 =========================  ============  ==========================================================
 
 Units of analysis
@@ -111,7 +113,12 @@ FLOAT_COLUMNS = ("patient_weight_kg", *DOSE_COLUMNS, "deviation_index", "fluoro_
 _NON_NEGATIVE = (*DOSE_COLUMNS, "fluoro_time_s")
 EVENT_COLUMNS = ("event_id", "event_datetime", *TEXT_COLUMNS, *FLOAT_COLUMNS)
 #: Columns an events table may carry beyond :data:`EVENT_COLUMNS` (missing values when absent).
-OPTIONAL_COLUMNS = ("patient_age_years", "clinical_indication", "breast_thickness_mm")
+OPTIONAL_COLUMNS = (
+    "patient_age_years",
+    "clinical_indication",
+    "breast_thickness_mm",
+    "ct_dw_cm",
+)
 _LOCATION = ("site", "room", "device")
 
 #: Columns of :func:`build_units` (one row per examination value).
@@ -128,6 +135,7 @@ UNIT_COLUMNS = (
     "patient_age_years",
     "clinical_indication",
     "breast_thickness_mm",
+    "ct_dw_cm",
     "quantity",
     "value",
 )
@@ -209,7 +217,7 @@ def prepare_events(events: pd.DataFrame) -> pd.DataFrame:
         raise ReviewInputError(
             "study_uid is missing for event(s) " + _bad_ids(out, out["study_uid"].isna().to_numpy())
         )
-    for c in (*FLOAT_COLUMNS, "patient_age_years", "breast_thickness_mm"):
+    for c in (*FLOAT_COLUMNS, "patient_age_years", "breast_thickness_mm", "ct_dw_cm"):
         if c not in events.columns:
             out[c] = np.full(n_rows, np.nan)
             continue
@@ -224,7 +232,7 @@ def prepare_events(events: pd.DataFrame) -> pd.DataFrame:
             raise ReviewInputError(
                 f"{c} is infinite for event(s) {_bad_ids(out, np.isinf(values))}"
             )
-    for c in (*_NON_NEGATIVE, "patient_age_years", "breast_thickness_mm"):
+    for c in (*_NON_NEGATIVE, "patient_age_years", "breast_thickness_mm", "ct_dw_cm"):
         bad = out[c].to_numpy() < 0
         if bad.any():
             raise ReviewInputError(f"{c} is negative for event(s) {_bad_ids(out, bad)}")
@@ -364,6 +372,7 @@ def build_units(
         "patient_age_years",
         "clinical_indication",
         "breast_thickness_mm",
+        "ct_dw_cm",
     ]
 
     exams = events.loc[is_study]
@@ -379,6 +388,7 @@ def build_units(
             "patient_age_years",
             "clinical_indication",
             "breast_thickness_mm",
+            "ct_dw_cm",
         ]
     ].first()
     for c in firsts.columns:  # categoricals stay categoricals (with the events' categories)

@@ -41,7 +41,8 @@ unit            yes       its unit; converted on import to the quantity's own un
 source          national  the published source of this value (table and row); required for
                           national and international sets
 note            no        free text (e.g. the clinical indication an NDRL is defined for)
-patient_group   no        empty for adults, or a paediatric band (``weight_15_30kg``)
+patient_group   no        empty for adults, a paediatric band (``weight_15_30kg``), or for CT a
+                          size band (``ct_dw_20_25cm``: Dw 20-25 cm, :mod:`.ct_size`)
 clinical_       no        empty, or the clinical indication the level is set for, lower-case
 indication                ``[a-z0-9_]`` (``acute_stroke``)
 ==============  ========  ==================================================================
@@ -65,6 +66,7 @@ import pandas as pd
 
 from beamaudit.api.review._csv import CsvSource, read_table, write_table
 from beamaudit.api.review.bands import PatientGroups, load_default_patient_groups
+from beamaudit.api.review.ct_size import is_size_band
 from beamaudit.api.review.errors import CsvFormatError, ReviewError
 from beamaudit.api.review.examtypes import ExamCatalogue
 from beamaudit.api.review.quantities import QUANTITIES, to_canonical_unit
@@ -475,12 +477,13 @@ def read_levels_csv(
             except ReviewError as exc:
                 problems.append((line, str(exc)))
         group, indication = row["patient_group"], row["clinical_indication"]
-        if group and group not in bands:
+        if group and group not in bands and not is_size_band(group):
             problems.append(
                 (
                     line,
                     f"patient_group {group!r} is not a band of {bands.source} (bands: "
-                    f"{', '.join(g.patient_group for g in bands)})",
+                    f"{', '.join(g.patient_group for g in bands)}) nor a CT size band "
+                    "(ct_dw_20_25cm)",
                 )
             )
         if indication and not _IDENTIFIER.match(indication):

@@ -63,6 +63,12 @@ from beamaudit.api.review.bands import (
     assign_patient_groups,
     load_default_patient_groups,
 )
+from beamaudit.api.review.ct_size import (
+    SIZE_SPECIAL_GROUPS,
+    assign_size_bands,
+    check_edges,
+    size_band_names,
+)
 from beamaudit.api.review.errors import ReviewError, ReviewInputError
 from beamaudit.api.review.events import (
     DOSE_COLUMNS,
@@ -332,6 +338,9 @@ class ReviewParameters:
     low_dose_below_site_p25: bool = True
     #: mammography: the compressed-thickness band the views are compared in (mm, low <= t < high)
     breast_thickness_band_mm: tuple[float, float] = DEFAULT_THICKNESS_BAND_MM
+    #: CT: edges of the Dw bands adult CT groups are formed by (cm; empty: no size bands;
+    #: review/ct_size.py, no published edges)
+    ct_size_band_edges_cm: tuple[float, ...] = ()
 
     def __post_init__(self) -> None:
         problems = []
@@ -352,6 +361,14 @@ class ReviewParameters:
             problems.append("breast_thickness_band_mm must be (low, high) with 0 < low < high")
         else:
             object.__setattr__(self, "breast_thickness_band_mm", band)
+        edges = check_edges(self.ct_size_band_edges_cm)
+        if edges is None:
+            problems.append(
+                "ct_size_band_edges_cm must be empty or at least two increasing values in "
+                "(0, 100] cm"
+            )
+        else:
+            object.__setattr__(self, "ct_size_band_edges_cm", edges)
         if self.basis not in ("standard", "all"):
             problems.append("basis must be 'standard' or 'all'")
         for name, defaults in (
@@ -936,8 +953,17 @@ def review(
         thickness_mm=located["breast_thickness_mm"].to_numpy(dtype=np.float64),
         band_mm=params.breast_thickness_band_mm,
     )
+    if params.ct_size_band_edges_cm:  # adult CT groups by patient size (.ct_size)
+        ct = located["exam_type"].isin([t.exam_type for t in catalogue if t.modality_group == "ct"])
+        dw = located["ct_dw_cm"].to_numpy(dtype=np.float64)
+        edges = params.ct_size_band_edges_cm
+        groups_of_units = assign_size_bands(
+            groups_of_units, ct=ct.to_numpy(), dw_cm=dw, edges_cm=edges
+        )
     names = [g.patient_group for g in bands] + list(SPECIAL_GROUPS)  # grouped by their codes
     names += [band_name(params.breast_thickness_band_mm), *THICKNESS_SPECIAL_GROUPS]
+    if params.ct_size_band_edges_cm:
+        names += [*size_band_names(params.ct_size_band_edges_cm), *SIZE_SPECIAL_GROUPS]
     located["patient_group"] = pd.Categorical(groups_of_units, categories=names)
     units = _with_location_keys(located.copy(), params.group_by)
     groups, codes, upper = _group_table(units, level_rows, catalogue, params, bands)

@@ -109,6 +109,16 @@ _SPARSE_COLUMNS: tuple[tuple[str, Any], ...] = (
     ("fluoro_time_s", case((_E.event_type == "fluoroscopy", _E.irradiation_duration_s))),
     # mammography's groups are set by the compressed thickness (review/mammography.py)
     ("breast_thickness_mm", case((_E.modality == "MG", _E.body_part_thickness_mm))),
+    # CT size bands (review/ct_size.py): Dw from the images, else the scanner's reported Dw
+    (
+        "ct_dw_cm",
+        case(
+            (
+                _E.modality == "CT",
+                func.coalesce(_E.size_dw_mean_cm, _E.water_equivalent_diameter_mm / 10.0),
+            )
+        ),
+    ),
 )
 #: Header text: read only for the events still without an exam type (to map them).
 _TEXT_COLUMNS: tuple[tuple[str, Any], ...] = tuple(

@@ -161,37 +161,63 @@ def test_a_real_head_slice_scanned(store, tmp_path: Path) -> None:
     assert event.size_images_used == 1 and event.size_truncated_share == 0.0
 
 
-def test_the_listener_measures_a_few_images_on_arrival_and_sizes_the_study(
-    store, tmp_path: Path
-) -> None:
+def _send_to_listener(store, paths: list[Path], sizer, *, wait_for_events: int = 0) -> None:
+    """Send ``paths`` to a listener whose handler sizes with ``sizer``; with ``wait_for_events``,
+    keep the listener up until that many events are sized (at most 30 s)."""
+    import time
+
     from pydicom import dcmread
     from pynetdicom import AE
     from pynetdicom.sop_class import CTImageStorage
 
-    from beamaudit.api.intake.ct_sizing import ArrivalSizer, StudySizer
     from beamaudit.api.intake.receiving import make_store_handler
     from beamaudit.ingest.listener import ListenerConfig, start_listener
     from beamaudit.ingest.pseudonym import Pseudonymiser
+    from beamaudit.ingest.sender import open_association
 
-    paths = _series(tmp_path / "export")
-    sizer = ArrivalSizer(StudySizer(store.session_factory), quiet_s=60.0)
     handler = make_store_handler(
         Pipeline(store.session_factory), Pseudonymiser(b"k" * 32), sizer=sizer
     )
     with start_listener(ListenerConfig(port=0), handler) as listener:
         ae = AE(ae_title="CT_MAIN")
         ae.add_requested_context(CTImageStorage)
-        assoc = ae.associate("127.0.0.1", listener.port, ae_title="BEAMAUDIT")
+        assoc = open_association(ae, "127.0.0.1", listener.port, ae_title="BEAMAUDIT")
         assert assoc.is_established
         for path in paths:
             assert assoc.send_c_store(dcmread(path)).Status == 0x0000
         assoc.release()
+        deadline = time.monotonic() + 30.0
+        while sizer.summary.events_sized < wait_for_events and time.monotonic() < deadline:
+            time.sleep(0.05)
+
+
+def test_the_listener_measures_a_few_images_on_arrival_and_sizes_the_study(
+    store, tmp_path: Path
+) -> None:
+    from beamaudit.api.intake.ct_sizing import ArrivalSizer, StudySizer
+
+    sizer = ArrivalSizer(StudySizer(store.session_factory), quiet_s=60.0)
+    _send_to_listener(store, _series(tmp_path / "export"), sizer)
     summary = sizer.close()
     # in order along the table, one image in two is measured (every 50 mm); the rest header-only
     assert summary.images_read == 9 and summary.events_sized == 17
     for event in _events(store):
         assert event.size_dw_mean_cm == pytest.approx(_dw_at(200.0), rel=3e-3)
         assert event.size_ssde_report == "AAPM Report 204 (2011)"
+
+
+def test_the_listener_sizes_a_study_after_its_quiet_time_without_a_stop(
+    store, tmp_path: Path
+) -> None:
+    # the quiet time (setting `listener.size_quiet_s`) elapses: the study is sized before close()
+    from beamaudit.api.intake.ct_sizing import ArrivalSizer, StudySizer
+
+    sizer = ArrivalSizer(StudySizer(store.session_factory), quiet_s=3.0)
+    _send_to_listener(store, _series(tmp_path / "export"), sizer, wait_for_events=17)
+    assert sizer.summary.events_sized == 17
+    for event in _events(store):
+        assert event.size_dw_mean_cm == pytest.approx(_dw_at(200.0), rel=3e-3)
+    sizer.close()
 
 
 def test_a_pull_fetches_the_frames_of_the_chosen_instances_only(store, tmp_path: Path) -> None:

@@ -112,6 +112,8 @@ def _fill(sessions: Any, n: int = 400, seed: int = 7) -> None:
                     "dlp_mgy_cm": maybe(rng.uniform(10, 900), 0.2),
                     "organ_dose_mgy": maybe(rng.uniform(0.5, 3), 0.1),
                     "deviation_index": maybe(rng.uniform(-5, 5), 0.5),
+                    "size_dw_mean_cm": maybe(rng.uniform(12, 45), 0.4),
+                    "water_equivalent_diameter_mm": maybe(rng.uniform(120, 450), 0.4),
                     "provenance": {},
                     "notes": [],
                 }
@@ -183,6 +185,14 @@ def _plain_table(session: Any) -> pd.DataFrame:
                 "fluoro_time_s": number(e.irradiation_duration_s)
                 if e.event_type == "fluoroscopy"
                 else math.nan,
+                # CT size bands: Dw from the images, else the scanner's (review/ct_size.py)
+                "ct_dw_cm": (
+                    number(e.size_dw_mean_cm)
+                    if e.size_dw_mean_cm is not None
+                    else number(e.water_equivalent_diameter_mm) / 10.0
+                )
+                if e.modality == "CT"
+                else math.nan,
             }
         )
     return pd.DataFrame(out)
@@ -216,6 +226,7 @@ def test_review_on_the_store_equals_the_review_of_the_plain_table(store) -> None
         period=Period(START, END),
         changepoint_lookback_months=0,
         group_by=("site", "room", "device"),
+        ct_size_band_edges_cm=(15.0, 25.0, 35.0),  # CT groups by size too, through the store
     )
     with store.session_factory.begin() as session:
         result, _ = execute_review(session, params)

@@ -57,3 +57,15 @@ def test_bad_values_name_the_setting(tmp_path, monkeypatch, text, match) -> None
     cfg.write_text(text, encoding="utf-8")
     with pytest.raises(SettingsError, match=match):
         load(cfg)
+
+
+def test_the_listeners_quiet_time_before_ct_sizing_is_a_setting(tmp_path, monkeypatch) -> None:
+    monkeypatch.delenv("BEAMAUDIT_DATABASE_URL", raising=False)
+    monkeypatch.delenv("BEAMAUDIT_CONFIG", raising=False)
+    assert load().listener.size_quiet_s == 30.0
+    cfg = tmp_path / "c.toml"
+    cfg.write_text("[listener]\nsize_quiet_s = 5\n", encoding="utf-8")
+    assert load(cfg).listener.size_quiet_s == 5.0
+    cfg.write_text("[listener]\nsize_quiet_s = 0\n", encoding="utf-8")
+    with pytest.raises(SettingsError, match=r"listener\.size_quiet_s"):
+        load(cfg)

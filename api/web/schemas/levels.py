@@ -54,11 +54,15 @@ class LevelCreate(InputModel):
     @classmethod
     def _a_band(cls, value: str) -> str:
         from beamaudit.api.review.bands import load_default_patient_groups
+        from beamaudit.api.review.ct_size import is_size_band
 
         bands = load_default_patient_groups()
-        if value and value not in bands:
+        if value and value not in bands and not is_size_band(value):
             names = ", ".join(g.patient_group for g in bands)
-            raise ValueError(f"patient_group {value!r} is not a band (bands: {names})")
+            raise ValueError(
+                f"patient_group {value!r} is not a band (bands: {names}) nor a CT size band "
+                "(ct_dw_20_25cm)"
+            )
         return value
 
     @model_validator(mode="after")

@@ -71,3 +71,16 @@ def test_a_room_run_says_its_scope(cli_store, capsys) -> None:
     with cli_store.session_factory() as session:
         run = session.scalars(select(m.ReviewRun)).one()
         assert run.scope == {"rooms": ["RAD2"]} and not run.whole_site
+
+
+def test_the_ct_size_bands_are_a_setting_of_the_command(cli_store, capsys, monkeypatch) -> None:
+    # api/review/ct_size.py: the edges come from the settings and are kept with the run
+    monkeypatch.setenv("BEAMAUDIT_CT_SIZE_BAND_EDGES_CM", "[20, 25, 30]")
+    assert main(["review", "--month", "2026-11"]) == 0
+    with cli_store.session_factory() as session:
+        run = session.scalars(select(m.ReviewRun)).one()
+        assert run.parameters["ct_size_band_edges_cm"] == [20.0, 25.0, 30.0]
+    monkeypatch.setenv("BEAMAUDIT_CT_SIZE_BAND_EDGES_CM", "[30, 20]")
+    capsys.readouterr()
+    assert main(["review", "--month", "2026-11"]) == 2
+    assert "ct_size_band_edges_cm" in _one_line(capsys.readouterr().err)

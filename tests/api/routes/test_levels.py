@@ -219,3 +219,19 @@ def test_a_csv_version_clashing_with_a_stored_one_is_409_as_on_the_command_line(
     response = api.post("/level-sets.csv", content=both.encode(), headers=CSV)
     assert response.status_code == 422 and "both local and national" in response.text
     assert [s["version"] for s in api.get("/level-sets").json()] == ["v1"]
+
+
+def test_a_ct_level_may_carry_a_size_band_and_keeps_it(api, catalogue) -> None:
+    # CT levels by patient size (Dw bands, api/review/ct_size.py): stored, shown, read back
+    level = {"exam_type": "ct_chest", "quantity": "ctdivol_mgy", "value": 8.0}
+    body = LOCAL | {"levels": [level, level | {"value": 11.0, "patient_group": "ct_dw_25_30cm"}]}
+    response = api.post("/level-sets", json=body)
+    assert response.status_code == 201, response.text
+    (stored,) = api.get("/level-sets").json()
+    assert sorted((x["patient_group"], x["value"]) for x in stored["levels"]) == [
+        ("", 8.0),
+        ("ct_dw_25_30cm", 11.0),
+    ]
+    unknown = LOCAL | {"version": "9", "levels": [level | {"patient_group": "ct_dw_not_known"}]}
+    response = api.post("/level-sets", json=unknown)
+    assert response.status_code == 422 and "nor a CT size band" in response.text
