@@ -64,6 +64,7 @@ DRL (75th percentile of room medians); the ranks are those of
 from __future__ import annotations
 
 from dataclasses import dataclass
+from functools import lru_cache
 from types import MappingProxyType
 from typing import Literal
 
@@ -439,6 +440,22 @@ def quantile_ci_ranks(
     n_arr = np.atleast_1d(np.asarray(n, dtype=np.int64))
     if (n_arr < 0).any():
         raise ReviewError("sample sizes must not be negative")
+    if n_arr.size == 1:  # one group at a time: the ranks of a size are computed once a process
+        r1, s1, c1 = _ranks_of_one_size(int(n_arr[0]), float(p), float(confidence_level))
+        return np.array([r1]), np.array([s1]), np.array([c1])
+    return _ranks(n_arr, p, confidence_level)
+
+
+@lru_cache(maxsize=4096)
+def _ranks_of_one_size(n: int, p: float, confidence_level: float) -> tuple[int, int, float]:
+    r, s, coverage = _ranks(np.array([n], dtype=np.int64), p, confidence_level)
+    return int(r[0]), int(s[0]), float(coverage[0])
+
+
+def _ranks(
+    n_arr: np.ndarray, p: float, confidence_level: float
+) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+    """:func:`quantile_ci_ranks` of checked arguments."""
     half_alpha = (1.0 - confidence_level) / 2.0
     k = np.nan_to_num(_binom_ppf(half_alpha, n_arr, p), nan=-1.0).astype(np.int64)
     j = np.where(_binom_cdf(k, n_arr, p) <= half_alpha * (1.0 + _TAIL_RTOL), k, k - 1)
