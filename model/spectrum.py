@@ -367,10 +367,19 @@ def _k_ionisation_cm2(t_kev: FloatArray, edge_kev: float) -> FloatArray:
     return np.where(u > 1.0, sigma, 0.0)
 
 
+@lru_cache(maxsize=8)
+def _gauss_legendre(n: int) -> tuple[np.ndarray, np.ndarray]:
+    """Gauss-Legendre nodes and weights on [-1, 1], computed once per order (read-only)."""
+    nodes, weights = np.polynomial.legendre.leggauss(n)
+    nodes.flags.writeable = False
+    weights.flags.writeable = False
+    return nodes, weights
+
+
 def _direct_k_vacancies(t0_kev: float, a: Anode) -> float:
     if t0_kev <= a.k_edge_kev:
         return 0.0
-    nodes, weights = np.polynomial.legendre.leggauss(64)
+    nodes, weights = _gauss_legendre(64)
     half = 0.5 * (t0_kev - a.k_edge_kev)
     t = a.k_edge_kev + half * (nodes + 1.0)
     integrand = _k_ionisation_cm2(t, a.k_edge_kev) / collision_stopping_power_kev_cm2_g(t, anode=a)
@@ -512,7 +521,7 @@ def _characteristic(t0: float, a: Anode, sin_theta: float, self_absorption: bool
     energies, rates, mu_rho = (np.array(v) for v in _k_lines(a.key))
     if self_absorption:
         c = float(thomson_whiddington_constant_kev2_cm2_g(t0, anode=a))
-        nodes, weights = np.polynomial.legendre.leggauss(_K_DEPTH_NODES)
+        nodes, weights = _gauss_legendre(_K_DEPTH_NODES)
         half = 0.5 * (t0 - a.k_edge_kev)
         t = a.k_edge_kev + half * (nodes + 1.0)
         production = weights * _k_ionisation_cm2(t, a.k_edge_kev) * t  # per dT, dx/dT ~ T
@@ -573,7 +582,7 @@ def tube_spectrum(
     if ripple_percent == 0.0:
         voltages, phase_weights = np.array([kv]), np.array([1.0])
     else:
-        nodes, weights = np.polynomial.legendre.leggauss(RIPPLE_PHASE_NODES)
+        nodes, weights = _gauss_legendre(RIPPLE_PHASE_NODES)
         phase = 0.25 * math.pi * (nodes + 1.0)
         voltages = kv * (1.0 - ripple_percent / 100.0 * (1.0 - np.sin(phase)))
         phase_weights = weights / np.sum(weights)

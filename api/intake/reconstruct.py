@@ -128,10 +128,12 @@ def _anode_symbol(material: str | None) -> str:
 
 
 class _BeamCache:
-    """Beam inputs per distinct beam, computed once per batch."""
+    """Beam inputs per distinct beam, computed once per batch (or, bounded by ``limit``, once
+    per process: the beams of the why trails that the event pages make again)."""
 
-    def __init__(self) -> None:
+    def __init__(self, limit: int | None = None) -> None:
         self._cache: dict[tuple[Any, ...], Any] = {}
+        self._limit = limit
 
     def get(
         self,
@@ -159,6 +161,8 @@ class _BeamCache:
             notes,
         )
         if key not in self._cache:
+            if self._limit is not None and len(self._cache) >= self._limit:
+                self._cache.clear()  # a bound, not an LRU: few rooms make few distinct beams
             spec = BeamSpec(
                 kv=round(kvp_kv, 1),
                 filters=filters,
@@ -172,6 +176,11 @@ class _BeamCache:
             )
         return self._cache[key]
 
+
+#: The beams of the why trails made again for one event at a time (the event page, the REST
+#: event): the same beam inputs as a batch's, kept per process so that a page of a room's events
+#: computes each distinct beam once. Beam inputs are not changed by the dose model.
+_TRAIL_BEAMS = _BeamCache(limit=256)
 
 #: what the model assumes for an event that belongs to no room
 _NO_ROOM_NOTE = "no room known: a tungsten anode of 12 degrees at constant potential assumed"
@@ -732,7 +741,7 @@ def trail_for_event(session: Session, event: m.ExposureEventRow) -> dict[str, An
     if is_mammography(event):
         return _mammography_trail(event, room, calibration, stored)
     try:
-        beam = _event_beam(event, room, calibration, _BeamCache())
+        beam = _event_beam(event, room, calibration, _TRAIL_BEAMS)
         dose = dose_from_beam(
             beam,
             exposure_mas=event.exposure_mas,

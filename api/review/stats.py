@@ -64,6 +64,7 @@ DRL (75th percentile of room medians); the ranks are those of
 from __future__ import annotations
 
 from dataclasses import dataclass
+from functools import lru_cache
 from types import MappingProxyType
 from typing import Literal
 
@@ -110,6 +111,45 @@ PREFERRED_SAMPLES: MappingProxyType[str, int] = MappingProxyType(
 # Relative slack when comparing a binomial tail with alpha/2: the tails are dyadic rationals and
 # alpha/2 rarely is, so this only guards against rounding in scipy's cdf.
 _TAIL_RTOL = 1e-12
+
+
+def _binom_cdf(k: np.ndarray, n: np.ndarray, p: float) -> np.ndarray:
+    """P(X <= k) for X ~ Binomial(n, p), any integer ``k`` (0 below the support, 1 above).
+
+    From ``scipy.special.bdtr`` (what ``scipy.stats.binom.cdf`` computes too), without importing
+    ``scipy.stats``: a review command spent most of its start-up there.
+    """
+    from scipy import special
+
+    k, n = np.broadcast_arrays(np.asarray(k, dtype=np.int64), np.asarray(n, dtype=np.int64))
+    inside = special.bdtr(np.clip(k, 0, np.maximum(n, 0)), n, p)
+    return np.where(k < 0, 0.0, np.where(k >= n, 1.0, inside))
+
+
+def _binom_sf(k: np.ndarray, n: np.ndarray, p: float) -> np.ndarray:
+    """P(X > k) for X ~ Binomial(n, p) (``scipy.special.bdtrc``), any integer ``k``."""
+    from scipy import special
+
+    k, n = np.broadcast_arrays(np.asarray(k, dtype=np.int64), np.asarray(n, dtype=np.int64))
+    inside = special.bdtrc(np.clip(k, 0, np.maximum(n, 0)), n, p)
+    return np.where(k < 0, 1.0, np.where(k >= n, 0.0, inside))
+
+
+def _binom_ppf(q: float, n: np.ndarray, p: float) -> np.ndarray:
+    """The smallest ``k`` in 0..n with P(X <= k) >= ``q``, for 0 < q < 1 (the definition of
+    ``scipy.stats.binom.ppf``): a first guess from ``scipy.special.bdtrik``, then corrected."""
+    from scipy import special
+
+    n = np.asarray(n, dtype=np.int64)
+    guess = np.nan_to_num(np.ceil(special.bdtrik(q, n, p)), nan=0.0)
+    k = np.clip(guess, 0, np.maximum(n, 0)).astype(np.int64)
+    for _ in range(64):  # the guess is off by a rank at most; the loop only guards rounding
+        down = (k > 0) & (_binom_cdf(k - 1, n, p) >= q)
+        up = (k < n) & (_binom_cdf(k, n, p) < q)
+        if not (down.any() or up.any()):
+            break
+        k = k - down + up
+    return k
 
 
 def median_ci_ranks(
@@ -396,25 +436,40 @@ def quantile_ci_ranks(
         raise ReviewError(f"the quantile p must be between 0 and 1, got {p!r}")
     if not 0.0 < confidence_level < 1.0:
         raise ReviewError(f"confidence_level must be between 0 and 1, got {confidence_level!r}")
-    from scipy import stats as sps  # here, not at import: half a second a command rarely needs
 
     n_arr = np.atleast_1d(np.asarray(n, dtype=np.int64))
     if (n_arr < 0).any():
         raise ReviewError("sample sizes must not be negative")
+    if n_arr.size == 1:  # one group at a time: the ranks of a size are computed once a process
+        r1, s1, c1 = _ranks_of_one_size(int(n_arr[0]), float(p), float(confidence_level))
+        return np.array([r1]), np.array([s1]), np.array([c1])
+    return _ranks(n_arr, p, confidence_level)
+
+
+@lru_cache(maxsize=4096)
+def _ranks_of_one_size(n: int, p: float, confidence_level: float) -> tuple[int, int, float]:
+    r, s, coverage = _ranks(np.array([n], dtype=np.int64), p, confidence_level)
+    return int(r[0]), int(s[0]), float(coverage[0])
+
+
+def _ranks(
+    n_arr: np.ndarray, p: float, confidence_level: float
+) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+    """:func:`quantile_ci_ranks` of checked arguments."""
     half_alpha = (1.0 - confidence_level) / 2.0
-    k = np.nan_to_num(sps.binom.ppf(half_alpha, n_arr, p), nan=-1.0).astype(np.int64)
-    j = np.where(sps.binom.cdf(k, n_arr, p) <= half_alpha * (1.0 + _TAIL_RTOL), k, k - 1)
+    k = np.nan_to_num(_binom_ppf(half_alpha, n_arr, p), nan=-1.0).astype(np.int64)
+    j = np.where(_binom_cdf(k, n_arr, p) <= half_alpha * (1.0 + _TAIL_RTOL), k, k - 1)
     r = np.where((j >= 0) & (n_arr > 0), j + 1, 0)
     # smallest k with F(k) >= 1 - alpha/2; the upper bound is x_(k+1) when k + 1 <= n
-    upper_k = np.nan_to_num(sps.binom.ppf(1.0 - half_alpha, n_arr, p), nan=-1.0).astype(np.int64)
+    upper_k = np.nan_to_num(_binom_ppf(1.0 - half_alpha, n_arr, p), nan=-1.0).astype(np.int64)
     upper_k = np.where(
-        sps.binom.sf(upper_k - 1, n_arr, p) <= half_alpha * (1.0 + _TAIL_RTOL),
+        _binom_sf(upper_k - 1, n_arr, p) <= half_alpha * (1.0 + _TAIL_RTOL),
         upper_k - 1,
         upper_k,
     )  # guard against ppf rounding one rank too far
     s = np.where((upper_k + 1 <= n_arr) & (upper_k >= 0) & (n_arr > 0), upper_k + 1, 0)
-    lower_tail = np.where(r > 0, sps.binom.cdf(r - 1, n_arr, p), 0.0)
-    upper_mass = np.where(s > 0, sps.binom.cdf(s - 1, n_arr, p), 1.0)
+    lower_tail = np.where(r > 0, _binom_cdf(r - 1, n_arr, p), 0.0)
+    upper_mass = np.where(s > 0, _binom_cdf(s - 1, n_arr, p), 1.0)
     coverage = np.where((r > 0) | (s > 0), upper_mass - lower_tail, np.nan)
     return r, s, coverage
 

@@ -294,11 +294,18 @@ def paginate(
     stmt: Select[Any],
     id_column: InstrumentedAttribute[int],
     page: PageParams,
+    *,
+    columns: bool = False,
 ) -> tuple[list[Any], str | None]:
-    """Run ``stmt`` for one page, newest first; returns the rows and the next cursor."""
+    """Run ``stmt`` for one page, newest first; returns the rows and the next cursor.
+
+    ``columns``: ``stmt`` selects columns (one of them ``id_column``'s), not an entity; the rows
+    come back as rows.
+    """
     if page.before_id is not None:
         stmt = stmt.where(id_column < page.before_id)
-    rows = list(session.scalars(stmt.order_by(id_column.desc()).limit(page.limit + 1)))
+    ordered = stmt.order_by(id_column.desc()).limit(page.limit + 1)
+    rows = list(session.execute(ordered) if columns else session.scalars(ordered))
     if len(rows) > page.limit:
         rows = rows[: page.limit]
         return rows, encode_cursor(getattr(rows[-1], id_column.key))

@@ -127,8 +127,27 @@ def _in_period(column: Any, period: Period) -> list[ColumnElement[bool]]:
 
 
 # -- events ---------------------------------------------------------------------------------------
+#: The columns an event list needs: the summary's own columns (never the whole row with its JSON
+#: trail), the study's and source object's UIDs joined in the same query.
+_SUMMARY_UIDS = {"study_instance_uid", "sop_instance_uid"}
+
+
+def _summary_columns() -> list[Any]:
+    own = [E.__table__.c[name] for name in EventSummary.model_fields if name not in _SUMMARY_UIDS]
+    return [
+        *own,
+        m.Study.study_instance_uid.label("study_instance_uid"),
+        m.SourceObjectRow.sop_instance_uid.label("sop_instance_uid"),
+    ]
+
+
 def _events_query(f: EventFilters, period: Period, superseded: bool | None) -> Select[Any]:
-    stmt = select(E).where(*_event_conditions(f))
+    stmt = (
+        select(*_summary_columns())
+        .outerjoin(m.Study, m.Study.id == E.study_id)
+        .outerjoin(m.SourceObjectRow, m.SourceObjectRow.id == E.source_object_id)
+        .where(*_event_conditions(f))
+    )
     stmt = stmt.where(*_in_period(func.coalesce(E.event_datetime, E.study_datetime), period))
     if f.exam_type is not None:
         stmt = stmt.where(E.exam_type == f.exam_type)
@@ -164,32 +183,11 @@ def list_events(
     ] = None,
 ) -> EventPage:
     """Exposure events, newest first; the period applies to the event's time (else its study's)."""
-    rows, cursor = paginate(session, _events_query(filters, period, superseded), E.id, page)
-    studies = _uids(session, m.Study.id, m.Study.study_instance_uid, {r.study_id for r in rows})
-    sources = _uids(
-        session,
-        m.SourceObjectRow.id,
-        m.SourceObjectRow.sop_instance_uid,
-        {r.source_object_id for r in rows},
+    rows, cursor = paginate(
+        session, _events_query(filters, period, superseded), E.id, page, columns=True
     )
-    items = [
-        EventSummary.model_validate(r).model_copy(
-            update={
-                "study_instance_uid": studies.get(r.study_id),
-                "sop_instance_uid": sources.get(r.source_object_id),
-            }
-        )
-        for r in rows
-    ]
+    items = [EventSummary.model_validate(dict(r._mapping)) for r in rows]
     return EventPage(items=items, next_cursor=cursor)
-
-
-def _uids(session: Any, key: Any, uid: Any, ids: set[int | None]) -> dict[int, str]:
-    """The UIDs of a page's studies or source objects, by row id, in one query."""
-    wanted = [i for i in ids if i is not None]
-    if not wanted:
-        return {}
-    return {k: v for k, v in session.execute(select(key, uid).where(key.in_(wanted)))}
 
 
 def _ratio(reported: float | None, reconstructed: float | None) -> float | None:
