@@ -247,8 +247,9 @@ def site() -> Iterator[_Site]:
 
 
 @pytest.fixture(scope="module")
-def context() -> Iterator[Any]:
-    """A playwright browser context in Debian's Chromium."""
+def chromium_browser() -> Iterator[Any]:
+    """Debian's Chromium under playwright, one per module: the sync API allows one playwright at a
+    time in a thread, so every context of the module comes from this browser."""
     require_peer("Chromium", CHROMIUM.exists(), "apt-get install -y chromium")
     try:
         from playwright.sync_api import sync_playwright
@@ -259,12 +260,20 @@ def context() -> Iterator[Any]:
         chromium = pw.chromium.launch(
             executable_path=str(CHROMIUM), headless=True, args=LAUNCH_ARGS
         )
-        shared = chromium.new_context(viewport={"width": 1400, "height": 900})
         try:
-            yield shared  # one context for every page: plotly.js is fetched and parsed once
+            yield chromium
         finally:
-            shared.close()
             chromium.close()
+
+
+@pytest.fixture(scope="module")
+def context(chromium_browser: Any) -> Iterator[Any]:
+    """A playwright browser context in Debian's Chromium."""
+    shared = chromium_browser.new_context(viewport={"width": 1400, "height": 900})
+    try:
+        yield shared  # one context for every page: plotly.js is fetched and parsed once
+    finally:
+        shared.close()
 
 
 @dataclass
@@ -617,27 +626,19 @@ def demo(tmp_path_factory: pytest.TempPathFactory) -> Iterator[_Demo]:
 
 
 @pytest.fixture(scope="module")
-def signed_in(demo: _Demo) -> Iterator[Any]:
+def signed_in(demo: _Demo, chromium_browser: Any) -> Iterator[Any]:
     """A browser context signed in as a physicist on the demo's login page (a session cookie)."""
-    require_peer("Chromium", CHROMIUM.exists(), "apt-get install -y chromium")
-    from playwright.sync_api import sync_playwright
-
-    with sync_playwright() as pw:
-        chromium = pw.chromium.launch(
-            executable_path=str(CHROMIUM), headless=True, args=LAUNCH_ARGS
-        )
-        shared = chromium.new_context(viewport={"width": 1400, "height": 900})
-        page = shared.new_page()
-        page.goto(demo.base_url + "/login")
-        page.fill("input[name=token]", demo.physicist)
-        page.locator("form button[type=submit]").click()
-        page.wait_for_url(demo.base_url + "/")
-        page.close()
-        try:
-            yield shared
-        finally:
-            shared.close()
-            chromium.close()
+    shared = chromium_browser.new_context(viewport={"width": 1400, "height": 900})
+    page = shared.new_page()
+    page.goto(demo.base_url + "/login")
+    page.fill("input[name=token]", demo.physicist)
+    page.locator("form button[type=submit]").click()
+    page.wait_for_url(demo.base_url + "/")
+    page.close()
+    try:
+        yield shared
+    finally:
+        shared.close()
 
 
 def _demo_paths(demo: _Demo) -> dict[str, str]:
