@@ -159,6 +159,8 @@ def store_families(session: Session) -> list[Family]:
                     "Objects the last pull of each DICOMweb source could not use.")  # fmt: skip
     when = Family("beamaudit_pull_last_timestamp_seconds", "gauge",
                   "When each DICOMweb source was last pulled (Unix time).")  # fmt: skip
+    failed = Family("beamaudit_pull_failed", "gauge",
+                    "1 when the last pull of a source failed as a whole, else 0.")  # fmt: skip
     for name, at, report in session.execute(
         select(m.DicomwebSource.name, m.DicomwebSource.last_pull_at,
                m.DicomwebSource.last_pull_report)
@@ -168,9 +170,10 @@ def store_families(session: Session) -> list[Family]:
         report = report or {}
         when.add(at.timestamp(), source=name)
         errors.add(len(report.get("errors") or []), source=name)
+        failed.add(1 if report.get("failed") else 0, source=name)
         if report.get("duration_s") is not None:
             duration.add(float(report["duration_s"]), source=name)
-    fams += [duration, errors, when]
+    fams += [duration, errors, when, failed]
     fams.append(
         _counts(session, Family("beamaudit_notifications_total", "counter",
                                 "Digests of new findings, by channel and status (sent, failed)."),

@@ -85,6 +85,7 @@ def test_store_metrics_parse_as_prometheus_reads_them(store) -> None:
     assert samples[("beamaudit_findings", (("kind", "no_dose_data"), ("status", "open")))] == 1
     assert samples[("beamaudit_pull_duration_seconds", (("source", "main PACS"),))] == 3.5
     assert samples[("beamaudit_pull_errors", (("source", "main PACS"),))] == 1
+    assert samples[("beamaudit_pull_failed", (("source", "main PACS"),))] == 0
     sent = ("beamaudit_notifications_total", (("channel", "outbox"), ("status", "sent")))
     assert samples[sent] == 1
 
