@@ -621,8 +621,8 @@ def resolve_beams(
                 notes.add("K_a,r not recorded: DAP over the field at the reference point used")
             else:
                 kref = kar
-            row = (index, source_p, axis_p, e_u_p, e_v_p, sid, hw, hh, d_ref)
-            row += (kref * room.kar_calibration_factor / len(steps),)
+            kref *= room.kar_calibration_factor / len(steps)
+            row = (index, source_p, axis_p, e_u_p, e_v_p, sid, hw, hh, d_ref, kref)
             for key, value in zip(rows, row, strict=True):
                 rows[key].append(value)
     # the table in the patient frame: the plane under the patient, normal toward the patient
