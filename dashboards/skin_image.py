@@ -104,7 +104,9 @@ def render_skin_dose_png(
 
     data = _parse(record)
     width_px, height_px = SKIN_DOSE_PNG_SIZE_PX
-    fig = Figure(figsize=(width_px / SKIN_DOSE_PNG_DPI, height_px / SKIN_DOSE_PNG_DPI))
+    fig = Figure(
+        figsize=(width_px / SKIN_DOSE_PNG_DPI, height_px / SKIN_DOSE_PNG_DPI), dpi=SKIN_DOSE_PNG_DPI
+    )
     canvas = FigureCanvasAgg(fig)
     fig.set_facecolor("#ffffff")
     cmap = LinearSegmentedColormap.from_list(

@@ -4,7 +4,6 @@ these rows concern single patients."""
 
 from __future__ import annotations
 
-from dataclasses import asdict
 from typing import Annotated
 
 from fastapi import APIRouter, Depends
@@ -129,7 +128,7 @@ def list_skin_dose_follow_up(
         ],
         window_days=window,
         cumulative=[
-            CumulativeSkinDoseRead.model_validate(asdict(e))
+            CumulativeSkinDoseRead.model_validate(e.summary())
             for e in cumulative_skin_doses(session, window_days=window)
         ],
         caution=CAUTION,

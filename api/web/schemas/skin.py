@@ -73,10 +73,16 @@ class CumulativeSkinDoseRead(ReadModel):
 
     patient_pseudo_id: str
     study_uids: list[str]
+    exam_ids: list[int] = Field(description="the exams' ids, in the order of study_uids")
     peak_skin_dose_mgy: float
     lower_bound_mgy: float
     upper_bound_mgy: float
-    method: str
+    method: str = Field(
+        description="maps_added (the maps summed cell by cell on one patient-surface grid), "
+        "maps_added_assumed_alignment (the same, where a map's place along the body was "
+        "assumed), peaks_added (different patient models: the sum of the peaks, an upper "
+        "bound) or none"
+    )
     notes: list[str]
 
 

@@ -1,0 +1,132 @@
+"""The skin-dose map as a static PNG (dashboards/skin_image.py).
+
+The record is invented: a round patch on the skin of a 40 x 20 cm elliptical-cylinder patient
+(the MIRD adult trunk's cross-section, model/patient_model.py), peaked on one cell, shaped as
+beamaudit.model's SkinDoseMap.as_record() gives it. The PNG is read back with Pillow; the PNG
+signature is the one of ISO/IEC 15948 (PNG), section 5.2.
+"""
+
+from __future__ import annotations
+
+import io
+from typing import Any
+
+import numpy as np
+import pytest
+from PIL import Image
+
+from beamaudit.dashboards import TableError
+from beamaudit.dashboards.skin_image import SKIN_DOSE_PNG_SIZE_PX, render_skin_dose_png
+
+PNG_SIGNATURE = b"\x89PNG\r\n\x1a\n"  # ISO/IEC 15948 section 5.2
+PERIMETER_MM = 968.8
+N_AROUND, N_ALONG = 96, 174
+DARKEST = (0x2A, 0x1A, 0x4A)  # the top of the map's colour scale (dashboards/_skin_figure.py)
+
+
+def make_record(*, around_index: int, along_index: int, peak_mgy: float = 4000.0) -> dict[str, Any]:
+    cell = PERIMETER_MM / N_AROUND
+    around = -PERIMETER_MM / 4 + (np.arange(N_AROUND) + 0.5) * cell
+    along = (np.arange(N_ALONG) + 0.5) * 10.0
+    r2 = ((around[None, :] - around[around_index]) / 40.0) ** 2 + (
+        (along[:, None] - along[along_index]) / 40.0
+    ) ** 2
+    dose = peak_mgy * np.exp(-r2)
+    assert np.count_nonzero(dose == dose.max()) == 1  # one cell holds the peak
+    return {
+        "peak_skin_dose_mgy": float(dose.max()),
+        "isodose_levels_mgy": [2000.0, 3000.0, 5000.0],
+        "peak": {
+            "along_mm": float(along[along_index]),
+            "around_mm": float(around[around_index]),
+            "along_index": along_index,
+            "around_index": around_index,
+        },
+        "uncertainty_pct": 48.0,
+        "patient": {"height_mm": 1740.0},
+        "map": {
+            "around_mm": around.tolist(),
+            "along_mm": along.tolist(),
+            "dose_mgy": dose.tolist(),
+            "perimeter_mm": PERIMETER_MM,
+            "landmarks_mm": {},
+        },
+    }
+
+
+def decode(png: bytes) -> np.ndarray:
+    with Image.open(io.BytesIO(png)) as image:
+        image.verify()  # a valid PNG, chunk by chunk (CRCs)
+    with Image.open(io.BytesIO(png)) as image:
+        assert image.format == "PNG"
+        assert image.size == SKIN_DOSE_PNG_SIZE_PX
+        return np.asarray(image.convert("RGB"))
+
+
+def darkest_centre(pixels: np.ndarray) -> tuple[float, float]:
+    """Centre of the pixels of the scale's top colour on the two panels (the colour bar, right
+    of them from 69 % of the width on, has that colour too)."""
+    panels = pixels[:, : int(0.69 * pixels.shape[1])]
+    ys, xs = np.nonzero(np.all(panels == DARKEST, axis=-1))
+    assert xs.size > 0, "no pixel of the scale's top colour"
+    return float(xs.mean()), float(ys.mean())
+
+
+@pytest.mark.parametrize(
+    ("around_index", "along_index", "panel"),
+    [
+        (30, 50, "back"),  # the back, a little to the patient's left of the spine, chest height
+        (70, 120, "front"),  # the front, toward the patient's right, thigh height
+    ],
+)
+def test_the_png_is_valid_of_its_size_and_the_peak_is_drawn_on_the_maps_maximum(
+    around_index: int, along_index: int, panel: str
+) -> None:
+    record = make_record(around_index=around_index, along_index=along_index)
+    image = render_skin_dose_png(record, heading="Skin-dose map: patient P-TEST, exam 1")
+    assert image.png.startswith(PNG_SIGNATURE)
+    assert (image.width_px, image.height_px) == SKIN_DOSE_PNG_SIZE_PX
+    pixels = decode(image.png)
+    x, y = darkest_centre(pixels)
+    assert image.peak_px is not None
+    # the ring's centre is the cell painted with the top of the scale (a cell is ~6 px wide)
+    assert abs(image.peak_px[0] - x) < 3.0 and abs(image.peak_px[1] - y) < 3.0
+    # back panel on the left half of the page, front on the right of it
+    middle = SKIN_DOSE_PNG_SIZE_PX[0] * 0.37
+    assert (x < middle) == (panel == "back")
+    # further down the body is further down the page (the head at the top)
+    assert (y > SKIN_DOSE_PNG_SIZE_PX[1] / 2) == (along_index > N_ALONG / 2)
+
+
+def test_left_and_right_read_as_the_patient_frame_says() -> None:
+    # around grows toward the patient's left (model/patient_model.py). Seen from behind the
+    # patient's left is on the reader's left; seen from the front it is on the reader's right.
+    spine = N_AROUND // 4  # around = 0 lies between cells 23 and 24
+    back_left = darkest_centre(decode(render_skin_dose_png(
+        make_record(around_index=spine + 10, along_index=60)).png))  # fmt: skip
+    back_right = darkest_centre(decode(render_skin_dose_png(
+        make_record(around_index=spine - 10, along_index=60)).png))  # fmt: skip
+    assert back_left[0] < back_right[0]
+    front_mid = 3 * N_AROUND // 4  # around = P/2, the front's midline
+    front_left = darkest_centre(decode(render_skin_dose_png(
+        make_record(around_index=front_mid - 10, along_index=60)).png))  # fmt: skip
+    front_right = darkest_centre(decode(render_skin_dose_png(
+        make_record(around_index=front_mid + 10, along_index=60)).png))  # fmt: skip
+    assert front_left[0] > front_right[0]
+
+
+def test_a_map_with_no_dose_draws_no_peak() -> None:
+    record = make_record(around_index=30, along_index=50)
+    record["map"]["dose_mgy"] = np.zeros((N_ALONG, N_AROUND)).tolist()
+    record["peak_skin_dose_mgy"], record["peak"] = 0.0, None
+    image = render_skin_dose_png(record)
+    assert image.peak_px is None
+    decode(image.png)
+
+
+def test_a_bad_record_is_refused_in_one_line() -> None:
+    record = make_record(around_index=30, along_index=50)
+    record["map"]["dose_mgy"] = [[1.0, 2.0]]
+    with pytest.raises(TableError, match=r"^skin-dose map: map.dose_mgy: shape") as info:
+        render_skin_dose_png(record)
+    assert "\n" not in str(info.value)
