@@ -43,7 +43,10 @@ SKIN_DOSE_PNG_SIZE_PX = (1240, 1754)
 SKIN_DOSE_PNG_DPI = 150
 _INK = "#1d2a33"
 _OUTLINE_GREY = "#8C8C8C"
-_DASHES = {"dash": (0, (5, 3)), "solid": "solid"}
+_DASHES: dict[str, Any] = {"dash": (0, (5, 3)), "solid": "solid"}
+_GAP = 0.09  # between the panels, figure fraction
+#: lines of text under the heading that fit above the panels
+_MAX_LINES = 13
 
 
 @dataclass(frozen=True)
@@ -51,13 +54,15 @@ class SkinDoseImage:
     """A rendered map: the PNG's bytes, its size and where the peak is drawn.
 
     ``peak_px`` is the centre of the peak cell in image pixels (x from the left, y from the top),
-    None when no dose reached the skin.
+    None when no dose reached the skin; ``panels_px`` where the two panels are.
     """
 
     png: bytes
     width_px: int
     height_px: int
     peak_px: tuple[float, float] | None
+    #: the back's and the front's panel, (left, top, right, bottom) in image pixels
+    panels_px: tuple[tuple[float, float, float, float], ...] = ()
 
 
 def _edges(centres: NDArray[np.float64]) -> NDArray[np.float64]:
@@ -120,12 +125,12 @@ def render_skin_dose_png(
     height_cm = data["height_cm"]
     reached = [level for level in data["levels_gy"] if data["psd_gy"] >= level]
     # panels: [left, bottom, width, height] in figure fractions; equal scale on both axes
-    top, bottom = 0.80, 0.16
+    top, bottom = 0.76, 0.20
     panel_h = top - bottom
     panel_w = panel_h * (height_px / width_px) * (2.1 * quarter) / (height_cm * 1.04)
     axes = []
     for k, (side, cells) in enumerate((("back", slice(0, half)), ("front", slice(half, None)))):
-        ax = fig.add_axes((0.09 + k * (panel_w + 0.07), bottom, panel_w, panel_h))
+        ax = fig.add_axes((0.10 + k * (panel_w + _GAP), bottom, panel_w, panel_h))
         axes.append(ax)
         x = _panel_x(data["around_cm"][cells], data["perimeter_cm"], side)
         order = np.argsort(x)
@@ -155,11 +160,11 @@ def render_skin_dose_png(
         ax.set_ylim(height_cm * 1.02, -height_cm * 0.02)  # head at the top
         ax.set_aspect("equal", adjustable="box")
         ax.tick_params(labelsize=7, colors=_INK)
-        ax.set_xlabel("cm from the midline", fontsize=8, color=_INK)
+        ax.set_xlabel("cm from the midline", fontsize=8, color=_INK, labelpad=2)
         title = (
-            "BACK (posterior), seen from behind"
+            "BACK (posterior)\nseen from behind"
             if side == "back"
-            else "FRONT (anterior), seen from the front"
+            else "FRONT (anterior)\nseen from the front"
         )
         ax.set_title(title, fontsize=10, color=_INK, pad=16)
         # the patient's sides as the reader sees them (DEVELOPERS.md, skin-dose maps)
@@ -174,7 +179,7 @@ def render_skin_dose_png(
         ax.text(0.5, 0.005, "FEET", transform=ax.transAxes, ha="center", va="bottom",
                 fontsize=8, color=_INK, weight="bold")  # fmt: skip
     axes[0].set_ylabel("cm below the top of the head", fontsize=8, color=_INK)
-    cax = fig.add_axes((0.09 + 2 * panel_w + 0.07 + 0.04, bottom + 0.1, 0.022, panel_h - 0.2))
+    cax = fig.add_axes((0.10 + 2 * panel_w + _GAP + 0.05, bottom + 0.1, 0.022, panel_h - 0.2))
     bar = fig.colorbar(ScalarMappable(norm, cmap), cax=cax)
     bar.set_label("Skin dose (Gy)", fontsize=9, color=_INK)
     bar.ax.tick_params(labelsize=7)
@@ -189,11 +194,14 @@ def render_skin_dose_png(
                label=f"{v:g} Gy" + (f" ({_ISODOSE_WORDS.get(v)})" if _ISODOSE_WORDS.get(v) else ""))
         for v in data["levels_gy"]
     ] + [Line2D([], [], color=_OUTLINE_GREY, label="body outline (for orientation)")]  # fmt: skip
-    fig.legend(handles=handles, loc="upper left", bbox_to_anchor=(0.04, 0.895), ncol=2,
+    fig.legend(handles=handles, loc="upper left", bbox_to_anchor=(0.04, bottom - 0.04), ncol=2,
                fontsize=7.5, frameon=False, title="Isodose lines", title_fontsize=8,
                alignment="left")  # fmt: skip
     fig.text(0.05, 0.985, heading, fontsize=13, color=_INK, va="top", weight="bold")
-    fig.text(0.05, 0.962, _wrap("\n".join(lines), 110), fontsize=8.5, color=_INK, va="top")
+    text = _wrap("\n".join(line for line in lines if line), 112)
+    if text.count("\n") >= _MAX_LINES:
+        text = "\n".join([*text.split("\n")[: _MAX_LINES - 1], "..."])
+    fig.text(0.05, 0.962, text, fontsize=8.5, color=_INK, va="top")
     note = ""
     if data["levels_gy"] and not reached:
         note = f"No skin reached {min(data['levels_gy']):g} Gy. "
@@ -203,12 +211,16 @@ def render_skin_dose_png(
         "A patient model (an elliptical cylinder) unrolled: not the patient's own surface. "
         "The peak is ringed."
     )
-    fig.text(0.05, 0.115, _wrap(note, 120), fontsize=8, color=_INK, va="top")
-    fig.text(0.05, 0.075, _wrap(CAUTION, 120), fontsize=8, color=_INK, va="top", style="italic")
+    fig.text(0.05, 0.085, _wrap(note, 120), fontsize=8, color=_INK, va="top")
+    fig.text(0.05, 0.05, _wrap(CAUTION, 120), fontsize=8, color=_INK, va="top", style="italic")
     buffer = io.BytesIO()
     canvas.print_png(buffer)
     png = buffer.getvalue()
-    return SkinDoseImage(png=png, width_px=width_px, height_px=height_px, peak_px=peak_px)
+    boxes = tuple(
+        (float(b.x0), float(height_px - b.y1), float(b.x1), float(height_px - b.y0))
+        for b in (ax.get_window_extent() for ax in axes)
+    )
+    return SkinDoseImage(png, width_px, height_px, peak_px, boxes)
 
 
 def _mark_peak(
@@ -225,13 +237,11 @@ def _mark_peak(
     ax = axes[0] if side == "back" else axes[1]
     x = float(_panel_x(np.array([float(peak["around_mm"]) / 10.0]), data["perimeter_cm"], side)[0])
     y = float(peak["along_mm"]) / 10.0
-    ring = 3.0 * float(data["along_cm"][1] - data["along_cm"][0] if data["along_cm"].size > 1 else 1)
+    ring = 3.0 * float(
+        data["along_cm"][1] - data["along_cm"][0] if data["along_cm"].size > 1 else 1
+    )
     for colour, width in ((_INK, 3.2), (OKABE_ITO["yellow"], 1.6)):
-        ax.add_patch(
-            Circle(
-                (x, y), ring, fill=False, edgecolor=colour, linewidth=width, zorder=5
-            )
-        )
+        ax.add_patch(Circle((x, y), ring, fill=False, edgecolor=colour, linewidth=width, zorder=5))
     ax.annotate(
         f"Peak {data['psd_gy']:.2f} Gy",
         xy=(x + ring * 0.7, y - ring * 0.7),

@@ -22,11 +22,11 @@ __all__ = [
     "CumulativeEntry",
     "add_skin_dose_flags",
     "cumulative_skin_doses",
-    "patient_skin_dose",
     "followup_in_period",
     "followup_page_data",
     "followup_rows",
     "followup_states",
+    "patient_skin_dose",
     "set_followup",
     "skin_page_record",
 ]

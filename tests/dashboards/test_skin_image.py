@@ -16,7 +16,11 @@ import pytest
 from PIL import Image
 
 from beamaudit.dashboards import TableError
-from beamaudit.dashboards.skin_image import SKIN_DOSE_PNG_SIZE_PX, render_skin_dose_png
+from beamaudit.dashboards.skin_image import (
+    SKIN_DOSE_PNG_SIZE_PX,
+    SkinDoseImage,
+    render_skin_dose_png,
+)
 
 PNG_SIGNATURE = b"\x89PNG\r\n\x1a\n"  # ISO/IEC 15948 section 5.2
 PERIMETER_MM = 968.8
@@ -63,11 +67,14 @@ def decode(png: bytes) -> np.ndarray:
         return np.asarray(image.convert("RGB"))
 
 
-def darkest_centre(pixels: np.ndarray) -> tuple[float, float]:
-    """Centre of the pixels of the scale's top colour on the two panels (the colour bar, right
-    of them from 69 % of the width on, has that colour too)."""
-    panels = pixels[:, : int(0.69 * pixels.shape[1])]
-    ys, xs = np.nonzero(np.all(panels == DARKEST, axis=-1))
+def darkest_centre(image: SkinDoseImage) -> tuple[float, float]:
+    """Centre of the pixels of the scale's top colour inside the two panels (the colour bar
+    beside them has that colour too)."""
+    pixels = decode(image.png)
+    inside = np.zeros(pixels.shape[:2], dtype=bool)
+    for left, top, right, bottom in image.panels_px:
+        inside[int(top) : int(bottom), int(left) : int(right)] = True
+    ys, xs = np.nonzero(np.all(pixels == DARKEST, axis=-1) & inside)
     assert xs.size > 0, "no pixel of the scale's top colour"
     return float(xs.mean()), float(ys.mean())
 
@@ -86,14 +93,15 @@ def test_the_png_is_valid_of_its_size_and_the_peak_is_drawn_on_the_maps_maximum(
     image = render_skin_dose_png(record, heading="Skin-dose map: patient P-TEST, exam 1")
     assert image.png.startswith(PNG_SIGNATURE)
     assert (image.width_px, image.height_px) == SKIN_DOSE_PNG_SIZE_PX
-    pixels = decode(image.png)
-    x, y = darkest_centre(pixels)
+    x, y = darkest_centre(image)
     assert image.peak_px is not None
     # the ring's centre is the cell painted with the top of the scale (a cell is ~6 px wide)
     assert abs(image.peak_px[0] - x) < 3.0 and abs(image.peak_px[1] - y) < 3.0
-    # back panel on the left half of the page, front on the right of it
-    middle = SKIN_DOSE_PNG_SIZE_PX[0] * 0.37
-    assert (x < middle) == (panel == "back")
+    # back panel on the left, front on the right
+    back, front = image.panels_px
+    assert back[2] < front[0]
+    box = back if panel == "back" else front
+    assert box[0] <= x <= box[2] and box[1] <= y <= box[3]
     # further down the body is further down the page (the head at the top)
     assert (y > SKIN_DOSE_PNG_SIZE_PX[1] / 2) == (along_index > N_ALONG / 2)
 
@@ -102,16 +110,16 @@ def test_left_and_right_read_as_the_patient_frame_says() -> None:
     # around grows toward the patient's left (model/patient_model.py). Seen from behind the
     # patient's left is on the reader's left; seen from the front it is on the reader's right.
     spine = N_AROUND // 4  # around = 0 lies between cells 23 and 24
-    back_left = darkest_centre(decode(render_skin_dose_png(
-        make_record(around_index=spine + 10, along_index=60)).png))  # fmt: skip
-    back_right = darkest_centre(decode(render_skin_dose_png(
-        make_record(around_index=spine - 10, along_index=60)).png))  # fmt: skip
+    back_left = darkest_centre(render_skin_dose_png(make_record(around_index=spine + 10,
+                                                                along_index=60)))  # fmt: skip
+    back_right = darkest_centre(render_skin_dose_png(make_record(around_index=spine - 10,
+                                                                 along_index=60)))  # fmt: skip
     assert back_left[0] < back_right[0]
     front_mid = 3 * N_AROUND // 4  # around = P/2, the front's midline
-    front_left = darkest_centre(decode(render_skin_dose_png(
-        make_record(around_index=front_mid - 10, along_index=60)).png))  # fmt: skip
-    front_right = darkest_centre(decode(render_skin_dose_png(
-        make_record(around_index=front_mid + 10, along_index=60)).png))  # fmt: skip
+    front_left = darkest_centre(render_skin_dose_png(make_record(around_index=front_mid - 10,
+                                                                 along_index=60)))  # fmt: skip
+    front_right = darkest_centre(render_skin_dose_png(make_record(around_index=front_mid + 10,
+                                                                  along_index=60)))  # fmt: skip
     assert front_left[0] > front_right[0]
 
 

@@ -15,6 +15,7 @@ __all__ = [
     "FollowUpItem",
     "FollowUpList",
     "FollowUpUpdate",
+    "PatientSkinDoseRead",
     "SkinDoseRead",
 ]
 
@@ -84,6 +85,13 @@ class CumulativeSkinDoseRead(ReadModel):
         "bound) or none"
     )
     notes: list[str]
+
+
+class PatientSkinDoseRead(CumulativeSkinDoseRead):
+    """One pseudonymised patient's skin dose over the follow-up window (an estimate)."""
+
+    window_days: float
+    caution: str
 
 
 class FollowUpList(ReadModel):
