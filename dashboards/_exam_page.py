@@ -197,6 +197,11 @@ def skin_view(skin: Mapping[str, Any]) -> dict[str, Any]:
         "crossed": [c["text"] for c in skin.get("level_checks") or [] if c.get("crossed")],
         "assumptions": list((record or {}).get("assumptions") or []),
         "figure": figure,
+        "png_href": (
+            _web.SKIN_MAP_PNG_PATH.format(exam_id=int(skin["exam_id"]))
+            if figure is not None and skin.get("exam_id") is not None
+            else None
+        ),
     }
 
 

@@ -74,6 +74,8 @@ _NAV = (
 
 #: The API path a flag's triage is sent to (``PATCH``, JSON ``{"status": ..., "note": ...}``).
 TRIAGE_PATH = "/api/v1/reviews/{run_id}/flags/{flag_id}"
+#: where a procedure's skin-dose map is served as a PNG image
+SKIN_MAP_PNG_PATH = "/api/v1/exams/{exam_id}/skin-dose/map.png"
 
 
 @dataclass(frozen=True)

@@ -406,6 +406,7 @@ def skin_page_record(session: Session, study_uid: str) -> dict[str, Any] | None:
     if row is None:
         return None
     return {
+        "exam_id": row.study_id,
         "status": row.status,
         "reason": row.reason,
         "peak_skin_dose_mgy": row.peak_skin_dose_mgy,

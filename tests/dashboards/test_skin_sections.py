@@ -45,9 +45,17 @@ def test_exam_page_draws_the_map_and_names_the_levels_reached(demo_exam) -> None
 
 def test_exam_page_says_why_a_map_is_missing(demo_exam) -> None:
     page = render_exam(
-        demo_exam, skin_dose=skin(status="failed", reason="skin-dose map not computed: x")
+        demo_exam,
+        skin_dose=skin(status="failed", reason="skin-dose map not computed: x", exam_id=7),
     )
     assert "skin-dose map not computed: x" in page and 'data-figure="skin-map"' not in page
+    assert "map.png" not in page
+
+
+def test_exam_page_links_the_map_as_a_png_image(demo_exam) -> None:
+    page = render_exam(demo_exam, skin_dose=skin(exam_id=7))
+    assert 'href="/api/v1/exams/7/skin-dose/map.png" download' in page
+    assert "map.png" not in render_exam(demo_exam, skin_dose=skin())
 
 
 def test_flags_page_lists_patients_to_follow_up(demo_flags) -> None:
