@@ -1,8 +1,8 @@
 """The skin-dose map as a static PNG (dashboards/skin_image.py).
 
-The record is invented: a round patch on the skin of a 40 x 20 cm elliptical-cylinder patient
-(the MIRD adult trunk's cross-section, model/patient_model.py), peaked on one cell, shaped as
-beamaudit.model's SkinDoseMap.as_record() gives it. The PNG is read back with Pillow; the PNG
+The record is invented: the figure tests' round patch on the skin of a 40 x 20 cm
+elliptical-cylinder patient, moved to peak on one cell, shaped as beamaudit.model's
+SkinDoseMap.as_record() gives it. The PNG is read back with Pillow; the PNG
 signature is the one of ISO/IEC 15948 (PNG), section 5.2.
 """
 
@@ -14,6 +14,8 @@ from typing import Any
 import numpy as np
 import pytest
 from PIL import Image
+from test_skin_figure import N_ALONG, N_AROUND
+from test_skin_figure import make_record as figure_record
 
 from beamaudit.dashboards import TableError
 from beamaudit.dashboards.skin_image import (
@@ -23,39 +25,28 @@ from beamaudit.dashboards.skin_image import (
 )
 
 PNG_SIGNATURE = b"\x89PNG\r\n\x1a\n"  # ISO/IEC 15948 section 5.2
-PERIMETER_MM = 968.8
-N_AROUND, N_ALONG = 96, 174
 DARKEST = (0x2A, 0x1A, 0x4A)  # the top of the map's colour scale (dashboards/_skin_figure.py)
 
 
 def make_record(*, around_index: int, along_index: int, peak_mgy: float = 4000.0) -> dict[str, Any]:
-    cell = PERIMETER_MM / N_AROUND
-    around = -PERIMETER_MM / 4 + (np.arange(N_AROUND) + 0.5) * cell
-    along = (np.arange(N_ALONG) + 0.5) * 10.0
+    """The figure tests' record with its patch moved to be centred on one cell."""
+    record = figure_record(peak_mgy)
+    around = np.asarray(record["map"]["around_mm"])
+    along = np.asarray(record["map"]["along_mm"])
     r2 = ((around[None, :] - around[around_index]) / 40.0) ** 2 + (
         (along[:, None] - along[along_index]) / 40.0
     ) ** 2
     dose = peak_mgy * np.exp(-r2)
     assert np.count_nonzero(dose == dose.max()) == 1  # one cell holds the peak
-    return {
-        "peak_skin_dose_mgy": float(dose.max()),
-        "isodose_levels_mgy": [2000.0, 3000.0, 5000.0],
-        "peak": {
-            "along_mm": float(along[along_index]),
-            "around_mm": float(around[around_index]),
-            "along_index": along_index,
-            "around_index": around_index,
-        },
-        "uncertainty_pct": 48.0,
-        "patient": {"height_mm": 1740.0},
-        "map": {
-            "around_mm": around.tolist(),
-            "along_mm": along.tolist(),
-            "dose_mgy": dose.tolist(),
-            "perimeter_mm": PERIMETER_MM,
-            "landmarks_mm": {},
-        },
+    record["map"]["dose_mgy"] = dose.tolist()
+    record["peak_skin_dose_mgy"] = float(dose.max())
+    record["peak"] = {
+        "along_mm": float(along[along_index]),
+        "around_mm": float(around[around_index]),
+        "along_index": along_index,
+        "around_index": around_index,
     }
+    return record
 
 
 def decode(png: bytes) -> np.ndarray:
