@@ -85,6 +85,10 @@ def test_flags_page_lists_patients_to_follow_up(demo_flags) -> None:
     assert 'id="follow-up"' in page and 'href="/exams/1.2.3.4#skin-dose"' in page
     assert "follow-up booked" in page and "dermatology in 3 weeks" in page
     assert "within 60 days" in page and "5,200 mGy" in page and "maps added" in page
+    # the added map as a PNG; no link where only the peaks could be added
+    assert 'href="/api/v1/skin-doses/patients/P-1/map.png" download' in page
+    followup["cumulative"][0]["method"] = "peaks_added"
+    assert "map.png" not in render_flags(demo_flags, followup=followup)
     assert 'id="follow-up"' not in render_flags(demo_flags)
 
 
