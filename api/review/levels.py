@@ -33,8 +33,10 @@ effective_from  yes       ISO date the version takes effect (``2024-11-20``); un
                           set name
 set_source      no        the document the set comes from (or, for a local set, who decided it)
 exam_type       yes       an exam type of the catalogue (``ct_head``)
-quantity        yes       ``dap_gy_cm2``, ``esak_mgy``, ``ref_point_air_kerma_mgy``,
-                          ``ctdivol_mgy``, ``dlp_mgy_cm`` or ``agd_mgy``
+quantity        yes       ``dap_gy_cm2``, ``esak_mgy``, ``reference_point_air_kerma_mgy``,
+                          ``ctdivol_mgy``, ``dlp_mgy_cm`` or ``mgd_mgy``; the names earlier
+                          versions wrote (``ref_point_air_kerma_mgy``, ``agd_mgy``) are read
+                          as these (:data:`~.quantities.QUANTITY_ALIASES`)
 value           yes       the reference level, a positive number
 unit            yes       its unit; converted on import to the quantity's own unit (Gy.cm2,
                           mGy, mGy.cm), e.g. ``mGy.cm2`` and ``cGy.cm2`` for DAP are accepted
@@ -69,7 +71,7 @@ from beamaudit.api.review.bands import PatientGroups, load_default_patient_group
 from beamaudit.api.review.ct_size import is_size_band
 from beamaudit.api.review.errors import CsvFormatError, ReviewError
 from beamaudit.api.review.examtypes import ExamCatalogue
-from beamaudit.api.review.quantities import QUANTITIES, to_canonical_unit
+from beamaudit.api.review.quantities import QUANTITIES, quantity_name, to_canonical_unit
 
 __all__ = [
     "LEVELS_TABLE_COLUMNS",
@@ -456,7 +458,7 @@ def read_levels_csv(
                     )
         else:
             heads[key] = (line, head)
-        exam_type, quantity = row["exam_type"], row["quantity"]
+        exam_type, quantity = row["exam_type"], quantity_name(row["quantity"])
         if not exam_type:
             problems.append((line, "exam_type is empty"))
         elif catalogue is not None and exam_type not in catalogue:
