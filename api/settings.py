@@ -65,7 +65,7 @@ class ListenerSettings(BaseModel):
     max_associations_per_ae: int = Field(default=4, ge=1, le=1000)
     #: TCP connections at once, associated or not yet
     max_connections: int = Field(default=64, ge=1, le=10000)
-    #: received objects decoded and stored at once
+    #: received objects decoded and spooled at once
     max_objects_in_flight: int = Field(default=4, ge=1, le=100)
     #: largest object accepted (1 GiB: a breast tomosynthesis object fits; its pixels stay on disk)
     max_object_bytes: int = Field(default=1024 * 1024 * 1024, ge=1024)
