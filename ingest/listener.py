@@ -473,7 +473,10 @@ def _decode(
     requested_instance = str(getattr(request, "AffectedSOPInstanceUID", "") or "")
     try:
         dataset, encoded = _read_received(event)
-        dataset.file_meta = event.file_meta
+        if not getattr(dataset, "file_meta", None):
+            # (read from pynetdicom's file, the data set has the file meta pynetdicom wrote
+            # there from the same presentation context: not made a second time)
+            dataset.file_meta = event.file_meta
         if decode_values:
             # pydicom decodes values lazily: walk every element now, so a malformed data set is
             # refused here rather than half-read by the handler.

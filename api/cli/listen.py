@@ -28,21 +28,16 @@ def listen_command(
         typer.Option("--allow", help="Accept only this calling AE title (repeatable)."),
     ] = None,
 ) -> None:
-    """Receive images and dose reports by C-STORE; answer success only once stored."""
+    """Receive images and dose reports by C-STORE; answer success once an object is safe in the
+    listener's spool, and store it from there."""
     import logging
 
+    from beamaudit.api.cli._spool_worker import SpoolWorkerProcess
     from beamaudit.api.cli._store import open_store
     from beamaudit.api.cli.scan import pseudonym_key
-    from beamaudit.api.intake.ct_sizing import ArrivalSizer, StudySizer
     from beamaudit.api.intake.pipeline import Pipeline
     from beamaudit.api.intake.postprocess import Completion
-    from beamaudit.api.intake.spooling import (
-        Spool,
-        SpoolError,
-        SpoolWorker,
-        make_spooling_handler,
-        spool_path,
-    )
+    from beamaudit.api.intake.spooling import Spool, SpoolError, make_spooling_handler, spool_path
     from beamaudit.api.logs import configure_logging
     from beamaudit.ingest.errors import IngestError
     from beamaudit.ingest.listener import ListenerConfig, start_listener
@@ -68,17 +63,16 @@ def listen_command(
             association_timeout_s=cfg.association_timeout_s,
             decode_values=False,  # the spool's worker parses; what it cannot use is recorded
         )
-        sizer = ArrivalSizer(StudySizer(store.sessions), quiet_s=cfg.size_quiet_s)
         spool = Spool(
             spool_path(listen_spool_dir(store.settings), store.settings.database_url, config.port),
             synchronous=cfg.spool_synchronous,
         )
-        handler, store_batch, give_up = make_spooling_handler(
+        key = pseudonym_key(store.settings.secret_key_path)
+        handler, _, _ = make_spooling_handler(
             spool,
             Pipeline(store.sessions, completion=Completion()),
-            Pseudonymiser(pseudonym_key(store.settings.secret_key_path)),
+            Pseudonymiser(key),
             max_spooled=cfg.max_spooled,
-            sizer=sizer,
         )
         if spool.pending:
             console.print(
@@ -86,8 +80,18 @@ def listen_command(
                 highlight=False,
             )
         listener = start_listener(config, handler)
-        # started once the port is ours: no second worker drains another listener's spool
-        worker = SpoolWorker(spool, store_batch, give_up).start()
+        # started once the port is ours; it parses and stores in a process of its own
+        worker = SpoolWorkerProcess(
+            {
+                "spool": str(spool.path),
+                "synchronous": cfg.spool_synchronous,
+                "database_url": store.settings.database_url,
+                "key": key.hex(),
+                "size_quiet_s": cfg.size_quiet_s,
+                "max_spooled": cfg.max_spooled,
+                "log_format": _log_format(),
+            }
+        )
     except (IngestError, SpoolError) as exc:
         fail(exc.reason if isinstance(exc, IngestError) else str(exc))
     metrics = store.settings.metrics
@@ -108,6 +112,7 @@ def listen_command(
             )
         except OSError as exc:
             listener.stop()
+            worker.close()
             fail(f"cannot serve /metrics on {metrics.listener_bind}: {exc.strerror or exc}")
         console.print(f"metrics on http://{metrics.listener_bind}/metrics", highlight=False)
     console.print(
@@ -118,9 +123,20 @@ def listen_command(
     try:
         listener.wait()
     finally:
-        worker.close()  # what was acknowledged and is still spooled is stored now
+        # what was acknowledged and is still spooled is stored now, and the studies still
+        # waiting for their quiet time are sized
+        worker.close()
         spool.close()
-        sizer.close()  # the studies still waiting for their quiet time are sized now
+
+
+def _log_format() -> str:
+    """The format this process logs in (``--log-format``), for the worker process."""
+    import logging
+
+    from beamaudit.api.logs import JsonFormatter
+
+    json_lines = any(isinstance(h.formatter, JsonFormatter) for h in logging.getLogger().handlers)
+    return "json" if json_lines else "text"
 
 
 def listen_spool_dir(settings: Any) -> Path:

@@ -27,6 +27,7 @@ duplicate, never a second row).
 
 from __future__ import annotations
 
+import contextlib
 import hashlib
 import io
 import logging
@@ -69,6 +70,8 @@ _RETRY_S = 5.0
 #: a pause in arrivals after which the worker stores what it gathered, and the longest it
 #: gathers (the receiving threads keep the processor while objects stream in)
 _LULL_S, _GATHER_S = 0.05, 1.0
+#: seconds a count of the spool's objects is used before the file is counted again
+_COUNT_EVERY_S = 0.5
 
 Synchronous = Literal["normal", "full"]
 
@@ -142,15 +145,14 @@ class Spool:
             self._writer = self._connect(synchronous)
             self._writer.execute(_SCHEMA)
             self._reader = self._connect(synchronous)
-            self._pending = int(self._reader.execute("SELECT count(*) FROM received").fetchone()[0])
         except (OSError, sqlite3.Error) as exc:
             raise SpoolError(f"cannot open the listener's spool {path}: {exc}") from exc
         self._cond = threading.Condition()
         self._open = _Group()
         self._committing = False
-        self._count_lock = threading.Lock()
-        #: set after every commit (the worker waits on it)
-        self.arrived = threading.Event()
+        self._reader_lock = threading.Lock()
+        self._pending = self.count()
+        self._counted_at = time.monotonic()
 
     def _connect(self, synchronous: Synchronous) -> sqlite3.Connection:
         conn = sqlite3.connect(
@@ -161,9 +163,20 @@ class Spool:
         conn.execute("PRAGMA secure_delete=ON")
         return conn
 
+    def count(self) -> int:
+        """Objects spooled and not yet stored, counted in the file now."""
+        with self._reader_lock:
+            return int(self._reader.execute("SELECT count(*) FROM received").fetchone()[0])
+
     @property
     def pending(self) -> int:
-        """Objects spooled and not yet stored."""
+        """Objects spooled and not yet stored: counted in the file at most
+        :data:`_COUNT_EVERY_S` ago (another process's worker deletes), with this process's
+        own puts and deletes since."""
+        if time.monotonic() - self._counted_at > _COUNT_EVERY_S:
+            self._counted_at = time.monotonic()
+            with contextlib.suppress(sqlite3.Error):  # else the last count stands
+                self._pending = self.count()
         return self._pending
 
     def put(self, obj: SpooledObject) -> None:
@@ -190,7 +203,6 @@ class Spool:
                     self._cond.notify_all()
         if group.error is not None:
             raise SpoolError(f"spooling failed: {type(group.error).__name__}") from group.error
-        self.arrived.set()
 
     def _write(self, rows: list[SpooledObject]) -> None:
         now = time.time()
@@ -210,16 +222,16 @@ class Spool:
         except BaseException:
             conn.execute("ROLLBACK")
             raise
-        with self._count_lock:
-            self._pending += len(rows)
+        self._pending += len(rows)  # (under the commit's exclusivity)
 
     def take(self, limit: int = BATCH) -> list[SpooledObject]:
         """Up to ``limit`` spooled objects, oldest first (they stay spooled until :meth:`done`)."""
-        rows = self._reader.execute(
-            "SELECT id, received_at, calling_ae_title, peer_host, sop_class_uid,"
-            " sop_instance_uid, encoded FROM received ORDER BY id LIMIT ?",
-            (limit,),
-        ).fetchall()
+        with self._reader_lock:
+            rows = self._reader.execute(
+                "SELECT id, received_at, calling_ae_title, peer_host, sop_class_uid,"
+                " sop_instance_uid, encoded FROM received ORDER BY id LIMIT ?",
+                (limit,),
+            ).fetchall()
         return [
             SpooledObject(
                 id=row[0], received_at=row[1], calling_ae_title=row[2], peer_host=row[3],
@@ -233,15 +245,15 @@ class Spool:
         if not objects:
             return
         conn = self._reader
-        conn.execute("BEGIN IMMEDIATE")
-        try:
-            conn.executemany("DELETE FROM received WHERE id = ?", [(o.id,) for o in objects])
-            conn.execute("COMMIT")
-        except BaseException:
-            conn.execute("ROLLBACK")
-            raise
-        with self._count_lock:
-            self._pending -= len(objects)
+        with self._reader_lock:
+            conn.execute("BEGIN IMMEDIATE")
+            try:
+                conn.executemany("DELETE FROM received WHERE id = ?", [(o.id,) for o in objects])
+                conn.execute("COMMIT")
+            except BaseException:
+                conn.execute("ROLLBACK")
+                raise
+            self._pending = max(0, self._pending - len(objects))
 
     def close(self) -> None:
         """Close the file (what is still spooled stays for the next start)."""
@@ -278,30 +290,33 @@ class SpoolWorker:
         self._thread = threading.Thread(target=self._run, name="spool-worker", daemon=True)
 
     def start(self) -> SpoolWorker:
-        """Start draining (what an earlier run left spooled first)."""
+        """Drain on a thread of this process (what an earlier run left spooled first)."""
         self._thread.start()
         return self
 
     def _run(self) -> None:
-        arrived = self._spool.arrived
-        while not self._stop.is_set():
-            arrived.wait(timeout=1.0)
-            # gather a batch: objects that keep coming are stored together, once they pause
-            # (_LULL_S) or a batch is full, and at the latest _GATHER_S after the first
+        self.run(self._stop)
+
+    def run(self, stop: threading.Event) -> None:
+        """Store what arrives until ``stop`` is set: the spool is looked at every
+        :data:`_LULL_S`; objects that keep coming are gathered until they pause for that long,
+        a batch is full, or :data:`_GATHER_S` has passed since the first (the receiving side
+        keeps the processor while objects stream in), then stored as one batch."""
+        while not stop.is_set():
+            waiting = self._spool.count()
+            if not waiting:
+                stop.wait(_LULL_S)
+                continue
             started = time.monotonic()
-            while (
-                not self._stop.is_set()
-                and self._spool.pending < BATCH
-                and time.monotonic() - started < _GATHER_S
-            ):
-                arrived.clear()
-                if not arrived.wait(_LULL_S):
+            while waiting < BATCH and time.monotonic() - started < _GATHER_S:
+                if stop.wait(_LULL_S):
                     break
-            arrived.clear()
+                now = self._spool.count()
+                if now == waiting:
+                    break
+                waiting = now
             if self._store_next() is False:  # the store failed: wait, then try again
-                self._stop.wait(_RETRY_S)
-            elif self._spool.pending:
-                arrived.set()  # more to store: gather on from here
+                stop.wait(_RETRY_S)
 
     def drain(self) -> bool:
         """Store everything spooled now; False when the store failed (rows stay spooled)."""
@@ -348,7 +363,6 @@ class SpoolWorker:
     def close(self, timeout_s: float = 60.0) -> None:
         """Stop the thread, then store what is still spooled (the listener has stopped)."""
         self._stop.set()
-        self._spool.arrived.set()
         if self._thread.is_alive():
             self._thread.join(timeout_s)
         if not self.drain():
