@@ -1,11 +1,12 @@
 """The listener's spool: received objects made durable before their success is sent, stored after.
 
 ``beamaudit listen`` answers a C-STORE once the object is in the spool, a SQLite file of its own
-(WAL), and a worker thread parses, stores and completes the spooled objects in batches, then
-deletes them from the spool. An acknowledged object is therefore never lost: a listener killed
-after the answer finds the object in its spool when it starts again, and stores it then (the
-store's idempotence by SOP Instance UID makes a second pass over an object already stored a
-duplicate, never a second row).
+(WAL), and a worker (under ``beamaudit listen`` a process of its own,
+``api/cli/_spool_worker.py``; a thread with :meth:`SpoolWorker.start`) parses, stores and
+completes the spooled objects in batches, then deletes them from the spool. An acknowledged
+object is therefore never lost: a listener killed after the answer finds the object in its spool
+when it starts again, and stores it then (the store's idempotence by SOP Instance UID makes a
+second pass over an object already stored a duplicate, never a second row).
 
 - **Group commit.** :meth:`Spool.put` returns once the object's row is committed. The thread
   that finds no commit in progress commits every row queued so far in one transaction (it leads);
@@ -263,7 +264,8 @@ class Spool:
 
 
 class SpoolWorker:
-    """Stores what the spool holds, in batches, on a thread of its own.
+    """Stores what the spool holds, in batches: :meth:`run` in the calling thread (the worker
+    process of ``beamaudit listen``), or :meth:`start` on a thread of its own.
 
     Parameters
     ----------
