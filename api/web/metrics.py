@@ -19,9 +19,11 @@ beamaudit_pull_errors{source}               gauge    objects its last pull could
 beamaudit_pull_last_timestamp_seconds       gauge    when it last pulled (Unix time)
 beamaudit_notifications_total{channel,..}   counter  digests sent and failed (delivery log)
 beamaudit_listener_associations_total       counter  this listener process's associations
+beamaudit_listener_spooled                  gauge    objects it acknowledged, not yet stored
 ==========================================  =======  ==========================================
 
-The last is counted in the ``listen`` process itself (:class:`AssociationCounter`) and shown on
+The last two are counted in the ``listen`` process itself (:class:`AssociationCounter`, the
+spool's count: :func:`spooled_family`) and shown on
 the listener's own metrics address. No label carries a patient identifier, a URL or a secret:
 sources are named by their name.
 
@@ -214,6 +216,19 @@ class AssociationCounter:
             for result, n in self.counts.items():
                 fam.add(n, result=result)
         return fam
+
+
+def spooled_family(spool: Any) -> Callable[[], Family]:
+    """The listener's spool as a gauge: objects acknowledged (success answered) and not yet
+    stored; they count in ``beamaudit_objects_received_total`` once stored."""
+
+    def family() -> Family:
+        fam = Family("beamaudit_listener_spooled", "gauge",
+                     "Objects this listener acknowledged that are not stored yet.")  # fmt: skip
+        fam.add(int(spool.pending))
+        return fam
+
+    return family
 
 
 def collector(sessions: sessionmaker[Session], *extra: Callable[[], Family]) -> Callable[[], str]:

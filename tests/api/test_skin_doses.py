@@ -256,7 +256,7 @@ def test_storescu_to_beamaudit_listen_stores_the_skin_dose(backend: str, tmp_pat
     import subprocess
 
     from peers import free_port, require_peer, wait_for_tcp, which_or_none
-    from procs import beamaudit_process, shared_store
+    from procs import beamaudit_process, shared_store, wait_spool_drained
 
     storescu = which_or_none("storescu")
     require_peer("dcmtk storescu", storescu is not None, "apt-get install -y dcmtk")
@@ -278,6 +278,8 @@ def test_storescu_to_beamaudit_listen_stores_the_skin_dose(backend: str, tmp_pat
                 capture_output=True, text=True, timeout=120,
                 env={"TCP_NODELAY": "1", "PATH": os.environ.get("PATH", "/usr/bin:/bin")},
             )  # fmt: skip
+            if sent.returncode == 0:
+                wait_spool_drained(shared, port)  # stored after its answer, from the spool
         assert sent.returncode == 0, sent.stderr
         assert "Store Failed" not in sent.stderr
         with shared.sessions() as s:

@@ -132,3 +132,21 @@ def test_an_address_of_its_own_serves_without_token_and_counts_associations(stor
     assert samples[(key, (("result", "accepted"),))] == 1
     assert samples[(key, (("result", "released"),))] == 1
     assert samples[(key, (("result", "rejected"),))] == 0
+
+
+def test_the_listener_counts_what_its_spool_holds(tmp_path) -> None:
+    from corpus import dx_header, encode
+
+    from beamaudit.api.intake.spooling import Spool, SpooledObject
+    from beamaudit.api.web.metrics import render, spooled_family
+
+    spool = Spool(tmp_path / "spool.sqlite")
+    for i in range(3):
+        ds = dx_header(f"metrics-spooled-{i}")
+        spool.put(SpooledObject("DR_ROOM1", "127.0.0.1", str(ds.SOPClassUID),
+                                str(ds.SOPInstanceUID), encode(ds)))  # fmt: skip
+    samples = _samples(render([spooled_family(spool)()]))
+    assert samples[("beamaudit_listener_spooled", ())] == 3
+    spool.done(spool.take(limit=2))
+    assert _samples(render([spooled_family(spool)()]))[("beamaudit_listener_spooled", ())] == 1
+    spool.close()
