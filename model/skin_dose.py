@@ -248,6 +248,172 @@ def _entrance_distance(beams: ResolvedBeams, e: int, patient: PatientModel) -> f
     return float(root) if root > 0 else float(beams.reference_distance_mm[e])
 
 
+@dataclass(frozen=True)
+class _SkinPoints:
+    """The skin cells' centres and sub-points in the patient frame: around the body (l, a and
+    the outward normal) and along it (s = -depth below the vertex)."""
+
+    grid: SkinGrid
+    centre_xy: FloatArray
+    centre_s: FloatArray
+    sub_xy: FloatArray
+    sub_normal: FloatArray
+    sub_s: FloatArray
+    half_diagonal_mm: float
+
+
+def _skin_points(grid: SkinGrid, subcells: int) -> _SkinPoints:
+    centre_xy, _ = grid.surface_points(grid.around_mm)
+    offsets = _subpoint_offsets(subcells)
+    sub_xy, sub_normal = grid.surface_points(
+        grid.around_mm[:, None] + offsets[None, :] * grid.cell_around_mm
+    )
+    return _SkinPoints(
+        grid=grid,
+        centre_xy=centre_xy,
+        centre_s=-grid.along_mm,
+        sub_xy=sub_xy,
+        sub_normal=sub_normal,
+        sub_s=-(grid.along_mm[:, None] + offsets[None, :] * grid.cell_along_mm),
+        half_diagonal_mm=0.5 * math.hypot(grid.cell_around_mm, grid.cell_along_mm),
+    )
+
+
+@dataclass(frozen=True)
+class _BeamAtSkin:
+    """The cells a beam may reach (rows ``ia`` along, columns ``ja`` around) and their
+    sub-points relative to the focus, shape (cells, around sub, along sub)."""
+
+    ia: NDArray[np.intp]
+    ja: NDArray[np.intp]
+    pl: FloatArray
+    pa: FloatArray
+    ps: FloatArray
+    inside: NDArray[np.bool_]  # in the field and on the side of the skin facing the focus
+    dist2: FloatArray  # focus to sub-point, squared
+    n_around: int  # the grid's cells around the body (a cell's flat index: ia * n_around + ja)
+
+
+def _beam_at_skin(beams: ResolvedBeams, e: int, points: _SkinPoints) -> _BeamAtSkin | None:
+    """Where beam ``e`` meets the skin: the field projected from the focus onto the receptor
+    plane (a point is in the field when its projection is), cells first by their centres with
+    a margin, then by sub-points; ``None`` when no cell is near the field."""
+    src, axis, e_u, e_v = beams.source[e], beams.axis[e], beams.e_u[e], beams.e_v[e]
+    sid, hw, hh = beams.sid_mm[e], beams.half_width_mm[e], beams.half_height_mm[e]
+    # centres: distance along the axis and the projection onto the receptor
+    rl = points.centre_xy[:, 0] - src[0]
+    ra = points.centre_xy[:, 1] - src[2]
+    rs = points.centre_s - src[1]
+    r_d = rs[:, None] * axis[1] + (rl * axis[0] + ra * axis[2])[None, :]
+    with np.errstate(divide="ignore", invalid="ignore"):
+        scale = np.where(r_d > 0, sid / r_d, np.inf)
+        u = (rs[:, None] * e_u[1] + (rl * e_u[0] + ra * e_u[2])[None, :]) * scale
+        v = (rs[:, None] * e_v[1] + (rl * e_v[0] + ra * e_v[2])[None, :]) * scale
+        margin = 2.0 * points.half_diagonal_mm * scale
+        near = (r_d > 0) & (np.abs(u) <= hw + margin) & (np.abs(v) <= hh + margin)
+    ia, ja = np.nonzero(near)
+    if ia.size == 0:
+        return None
+    pl = points.sub_xy[ja, :, 0][:, :, None] - src[0]
+    pa = points.sub_xy[ja, :, 1][:, :, None] - src[2]
+    ps = points.sub_s[ia][:, None, :] - src[1]
+    nl = points.sub_normal[ja, :, 0][:, :, None]
+    na = points.sub_normal[ja, :, 1][:, :, None]
+    pd = pl * axis[0] + ps * axis[1] + pa * axis[2]
+    with np.errstate(divide="ignore", invalid="ignore"):
+        sc = np.where(pd > 0, sid / pd, np.inf)
+        pu = (pl * e_u[0] + ps * e_u[1] + pa * e_u[2]) * sc
+        pv = (pl * e_v[0] + ps * e_v[1] + pa * e_v[2]) * sc
+        inside = (pd > 0) & (np.abs(pu) <= hw) & (np.abs(pv) <= hh) & (nl * pl + na * pa < 0)
+    dist2 = pl * pl + pa * pa + ps * ps
+    return _BeamAtSkin(ia, ja, pl, pa, ps, inside, dist2, points.grid.shape[1])
+
+
+def _table_crossing(
+    beams: ResolvedBeams, e: int, at: _BeamAtSkin
+) -> tuple[NDArray[np.bool_], FloatArray]:
+    """Which sub-points beam ``e`` reaches through the table top (a focus beyond the table
+    plane, the ray crossing the plane within the table's width), and the ray's path length
+    through the top relative to the perpendicular one (1 where it does not cross)."""
+    n_t, q, src = beams.table_normal, beams.table_point, beams.source[e]
+    pl, ps, pa = at.pl, at.ps, at.pa
+    if float((src - q) @ n_t) >= 0:
+        return np.zeros_like(at.inside), np.ones_like(at.dist2)
+    r_n = pl * n_t[0] + ps * n_t[1] + pa * n_t[2]
+    with np.errstate(divide="ignore", invalid="ignore"):
+        lam = float((q - src) @ n_t) / r_n
+        across = beams.table_across
+        lateral = (
+            (src[0] - q[0] + lam * pl) * across[0]
+            + (src[1] - q[1] + lam * ps) * across[1]
+            + (src[2] - q[2] + lam * pa) * across[2]
+        )
+        crossed = at.inside & (r_n > 0) & (np.abs(lateral) <= beams.table_half_width_mm)
+        path = np.where(crossed, np.sqrt(at.dist2) / np.abs(r_n), 1.0)
+    return crossed, path
+
+
+def _event_dose(
+    beams: ResolvedBeams,
+    e: int,
+    at: _BeamAtSkin,
+    event: SkinEvent,
+    patient: PatientModel,
+    factors: BeamFactors,
+    sources: dict[str, None],
+) -> _EventAtCells | None:
+    """Beam ``e``'s dose at the cells it reaches (module docstring's equation): the kerma at
+    each sub-point by the inverse square from the reference point, through the table where it
+    crosses it, times backscatter and the tissue-to-air ratio, averaged over each cell's
+    sub-points; ``None`` when it reaches none. The factors' sources are added to ``sources``.
+
+    Raises
+    ------
+    ModelError
+        The event's beam factors cannot be computed.
+    """
+    parent = int(beams.parent[e])
+    sid, hw, hh = beams.sid_mm[e], beams.half_width_mm[e], beams.half_height_mm[e]
+    kerma = beams.kerma_at_reference_mgy[e] * beams.reference_distance_mm[e] ** 2 / at.dist2
+    crossed, path = _table_crossing(beams, e, at)
+    transmission = np.ones_like(kerma)
+    u_table = 0.0
+    field_side_cm = (
+        2.0 * (2 * hw) * (2 * hh) / (2 * hw + 2 * hh)
+        * _entrance_distance(beams, e, patient) / sid / 10.0
+    )  # fmt: skip
+    if np.any(crossed):
+        t_values = factors.table_transmission(parent, event, path[crossed])
+        transmission[crossed] = t_values.values
+        u_table = t_values.relative_standard_uncertainty
+        sources[t_values.source] = None
+    b = factors.backscatter(parent, event, field_side_cm)
+    f = factors.tissue_to_air(parent, event)
+    sources[b.source] = None
+    sources[f.source] = None
+    per_point = np.where(at.inside, kerma * transmission, 0.0) * (b.value * f.value)
+    cell_dose = per_point.mean(axis=(1, 2))
+    hit = cell_dose > 0
+    if not np.any(hit):
+        return None
+    dist = np.sqrt(at.dist2)
+    vert = beams.vertical
+    cos_v = -(at.pl * vert[0] + at.ps * vert[1] + at.pa * vert[2]) / dist
+    weight = np.where(at.inside, kerma, 0.0)
+    wsum = weight.sum(axis=(1, 2))[hit]
+    return _EventAtCells(
+        parent=parent,
+        cells=(at.ia * at.n_around + at.ja)[hit],
+        dose=cell_dose[hit],
+        distance_mm=(weight * dist).sum(axis=(1, 2))[hit] / wsum,
+        vertical_cosine=(weight * cos_v).sum(axis=(1, 2))[hit] / wsum,
+        crossed_table=np.any(crossed, axis=(1, 2))[hit],
+        u_backscatter=b.relative_standard_uncertainty,
+        u_tissue=f.relative_standard_uncertainty,
+        u_table=u_table,
+    )
+
+
 def skin_dose_map(
     events: Sequence[SkinEvent],
     *,
@@ -291,17 +457,8 @@ def skin_dose_map(
     factors = factors or SpectrumBeamFactors()
     grid = skin_grid(patient, cell_mm=cell_mm)
     beams = resolve_beams(events, patient=patient, room=room)
-    n_along, n_around = grid.shape
-    dose = np.zeros(n_along * n_around)
-    # cell centres and sub-points: around (l, a and the normal) and along (s = -depth)
-    centre_xy, _ = grid.surface_points(grid.around_mm)
-    offsets = _subpoint_offsets(subcells)
-    sub_xy, sub_normal = grid.surface_points(
-        grid.around_mm[:, None] + offsets[None, :] * grid.cell_around_mm
-    )
-    centre_s = -grid.along_mm
-    sub_s = -(grid.along_mm[:, None] + offsets[None, :] * grid.cell_along_mm)
-    half_diagonal = 0.5 * math.hypot(grid.cell_around_mm, grid.cell_along_mm)
+    points = _skin_points(grid, subcells)
+    dose = np.zeros(grid.shape[0] * grid.shape[1])
     records: list[_EventAtCells] = []
     sources: dict[str, None] = {}
     failed: dict[int, str] = {}
@@ -309,102 +466,18 @@ def skin_dose_map(
         parent = int(beams.parent[e])
         if parent in failed:
             continue
-        event = events[parent]
-        src, axis, e_u, e_v = beams.source[e], beams.axis[e], beams.e_u[e], beams.e_v[e]
-        sid, hw, hh = beams.sid_mm[e], beams.half_width_mm[e], beams.half_height_mm[e]
-        # centres: distance along the axis and the projection onto the receptor
-        rl = centre_xy[:, 0] - src[0]
-        ra = centre_xy[:, 1] - src[2]
-        rs = centre_s - src[1]
-        r_d = rs[:, None] * axis[1] + (rl * axis[0] + ra * axis[2])[None, :]
-        with np.errstate(divide="ignore", invalid="ignore"):
-            scale = np.where(r_d > 0, sid / r_d, np.inf)
-            u = (rs[:, None] * e_u[1] + (rl * e_u[0] + ra * e_u[2])[None, :]) * scale
-            v = (rs[:, None] * e_v[1] + (rl * e_v[0] + ra * e_v[2])[None, :]) * scale
-            margin = 2.0 * half_diagonal * scale
-            near = (r_d > 0) & (np.abs(u) <= hw + margin) & (np.abs(v) <= hh + margin)
-        ia, ja = np.nonzero(near)
-        if ia.size == 0:
+        at = _beam_at_skin(beams, e, points)
+        if at is None:
             continue
-        # sub-points of the candidate cells: shape (cells, around sub, along sub)
-        pl = sub_xy[ja, :, 0][:, :, None] - src[0]
-        pa = sub_xy[ja, :, 1][:, :, None] - src[2]
-        ps = sub_s[ia][:, None, :] - src[1]
-        nl = sub_normal[ja, :, 0][:, :, None]
-        na = sub_normal[ja, :, 1][:, :, None]
-        pd = pl * axis[0] + ps * axis[1] + pa * axis[2]
-        with np.errstate(divide="ignore", invalid="ignore"):
-            sc = np.where(pd > 0, sid / pd, np.inf)
-            pu = (pl * e_u[0] + ps * e_u[1] + pa * e_u[2]) * sc
-            pv = (pl * e_v[0] + ps * e_v[1] + pa * e_v[2]) * sc
-            inside = (pd > 0) & (np.abs(pu) <= hw) & (np.abs(pv) <= hh) & (nl * pl + na * pa < 0)
-        dist2 = pl * pl + pa * pa + ps * ps
-        kerma = beams.kerma_at_reference_mgy[e] * beams.reference_distance_mm[e] ** 2 / dist2
-        # the table: rays from a focus beyond the table plane that cross the table top
-        n_t, q = beams.table_normal, beams.table_point
-        transmission = np.ones_like(kerma)
-        crossed = np.zeros_like(inside)
-        u_table = 0.0
-        if float((src - q) @ n_t) < 0:
-            r_n = pl * n_t[0] + ps * n_t[1] + pa * n_t[2]
-            with np.errstate(divide="ignore", invalid="ignore"):
-                lam = float((q - src) @ n_t) / r_n
-                across = beams.table_across
-                lateral = (
-                    (src[0] - q[0] + lam * pl) * across[0]
-                    + (src[1] - q[1] + lam * ps) * across[1]
-                    + (src[2] - q[2] + lam * pa) * across[2]
-                )
-                crossed = inside & (r_n > 0) & (np.abs(lateral) <= beams.table_half_width_mm)
-                path = np.where(crossed, np.sqrt(dist2) / np.abs(r_n), 1.0)
-        field_side_cm = (
-            2.0
-            * (2 * hw)
-            * (2 * hh)
-            / (2 * hw + 2 * hh)
-            * _entrance_distance(beams, e, patient)
-            / sid
-            / 10.0
-        )
         try:
-            if np.any(crossed):
-                t_values = factors.table_transmission(parent, event, path[crossed])
-                transmission[crossed] = t_values.values
-                u_table = t_values.relative_standard_uncertainty
-                sources[t_values.source] = None
-            b = factors.backscatter(parent, event, field_side_cm)
-            f = factors.tissue_to_air(parent, event)
+            record = _event_dose(beams, e, at, events[parent], patient, factors, sources)
         except ModelError as exc:
             # the event's beam factors do not compute: the event is listed, never dropped
             failed.setdefault(parent, f"beam factors: {exc}")
             continue
-        sources[b.source] = None
-        sources[f.source] = None
-        per_point = np.where(inside, kerma * transmission, 0.0) * (b.value * f.value)
-        cell_dose = per_point.mean(axis=(1, 2))
-        hit = cell_dose > 0
-        if not np.any(hit):
-            continue
-        cells = (ia * n_around + ja)[hit]
-        np.add.at(dose, cells, cell_dose[hit])
-        dist = np.sqrt(dist2)
-        vert = beams.vertical
-        cos_v = -(pl * vert[0] + ps * vert[1] + pa * vert[2]) / dist
-        weight = np.where(inside, kerma, 0.0)
-        wsum = weight.sum(axis=(1, 2))[hit]
-        records.append(
-            _EventAtCells(
-                parent=parent,
-                cells=cells,
-                dose=cell_dose[hit],
-                distance_mm=(weight * dist).sum(axis=(1, 2))[hit] / wsum,
-                vertical_cosine=(weight * cos_v).sum(axis=(1, 2))[hit] / wsum,
-                crossed_table=np.any(crossed, axis=(1, 2))[hit],
-                u_backscatter=b.relative_standard_uncertainty,
-                u_tissue=f.relative_standard_uncertainty,
-                u_table=u_table,
-            )
-        )
+        if record is not None:
+            np.add.at(dose, record.cells, record.dose)
+            records.append(record)
     for parent, reason in failed.items():
         beams.skipped.append((parent, events[parent].label, reason))
     beams.skipped.sort()
