@@ -106,50 +106,12 @@ def _network_tables() -> dict[str, list[str]]:
         "limits": _table(
             ["setting (`[listener]`)", "default", "what it limits"],
             [
-                ("ae_title", defaults.ae_title, "the AE title beamaudit answers to"),
-                ("port", defaults.port, "TCP port of the Storage SCP"),
-                ("allowed_calling_aets", "(empty: any)", "calling AE titles accepted"),
-                ("max_associations", defaults.max_associations, "associations at once"),
                 (
-                    "max_associations_per_ae",
-                    defaults.max_associations_per_ae,
-                    "associations at once from one calling AE title",
-                ),
-                (
-                    "max_connections",
-                    defaults.max_connections,
-                    "TCP connections at once, associated or not yet",
-                ),
-                (
-                    "max_objects_in_flight",
-                    defaults.max_objects_in_flight,
-                    "objects decoded and spooled at once; others wait, then 0xA700",
-                ),
-                (
-                    "max_object_bytes",
-                    defaults.max_object_bytes,
-                    "largest object; a larger one has its association aborted",
-                ),
-                (
-                    "max_spooled",
-                    defaults.max_spooled,
-                    "objects acknowledged and not yet stored; past it, 0xA700",
-                ),
-                (
-                    "request_timeout_s",
-                    defaults.request_timeout_s,
-                    "seconds a new connection has to send A-ASSOCIATE-RQ (ARTIM)",
-                ),
-                (
-                    "idle_timeout_s",
-                    defaults.idle_timeout_s,
-                    "seconds an association may stay silent (DIMSE and network timeout)",
-                ),
-                (
-                    "association_timeout_s",
-                    defaults.association_timeout_s,
-                    "seconds an association may last in all",
-                ),
+                    name,
+                    "(empty: any)" if name == "allowed_calling_aets" else getattr(defaults, name),
+                    what,
+                )
+                for name, what in _LIMITS
             ],
         ),
         "identity": _table(
@@ -170,6 +132,25 @@ def _network_tables() -> dict[str, list[str]]:
         ),
     }
 
+
+#: The listener's settings the statement lists, with what each limits (defaults from the code).
+_LIMITS = (
+    ("ae_title", "the AE title beamaudit answers to"),
+    ("port", "TCP port of the Storage SCP"),
+    ("allowed_calling_aets", "calling AE titles accepted"),
+    ("max_associations", "associations at once"),
+    ("max_associations_per_ae", "associations at once from one calling AE title"),
+    ("max_connections", "TCP connections at once, associated or not yet"),
+    (
+        "max_objects_in_flight",
+        "objects decoded and spooled at once; others wait, then 0xA700",
+    ),
+    ("max_object_bytes", "largest object; a larger one has its association aborted"),
+    ("max_spooled", "objects acknowledged and not yet stored; past it, 0xA700"),
+    ("request_timeout_s", "seconds a new connection has to send A-ASSOCIATE-RQ (ARTIM)"),
+    ("idle_timeout_s", "seconds an association may stay silent (DIMSE and network timeout)"),
+    ("association_timeout_s", "seconds an association may last in all"),
+)
 
 _STATUS_WHEN = {
     "SUCCESS": "the object is committed to the listener's spool (stored from there; what "
@@ -243,6 +224,37 @@ def conformance_statement() -> str:
         "",
         _overview(n_classes),
         "",
+        *_networking(net),
+        *_media_and_reading(read),
+    ]
+    for context, title in _CONTEXT_NAMES.items():
+        parts += [f"**{title}**", "", *read[f"sr_{context}"], ""]
+    parts += [
+        "Patient's Name, Patient ID and Patient's Birth Date are read only to make a keyed "
+        "pseudonym and an age; neither is stored, logged or sent.",
+        "",
+        "## 5. Character sets",
+        "",
+        "Every Specific Character Set (0008,0005) that pydicom decodes is accepted; text is "
+        "stored as Unicode. Control characters in texts are replaced before storing.",
+        "",
+        "## 6. Security",
+        "",
+        "The listener speaks DICOM over plain TCP (no TLS secure transport connection profile): "
+        "put it on a network the hospital trusts or behind a TLS tunnel (DEPLOYMENT.md). Patient "
+        "identifiers are replaced by a keyed pseudonym on receipt (SECURITY.md).",
+        "",
+        "## 7. IHE Radiation Exposure Monitoring (REM) statement",
+        "",
+        _REM.format(rem_table="\n".join(_table(["IHE REM item", "beamaudit"], _REM_ROWS))),
+    ]
+    return "\n".join(parts).rstrip() + "\n"
+
+
+def _networking(net: dict[str, list[str]]) -> list[str]:
+    """Section 2: the listener's implementation model, SOP classes, association policies
+    and the DICOMweb user agent."""
+    return [
         "## 2. Networking",
         "",
         "### 2.1 Implementation model",
@@ -268,6 +280,14 @@ def conformance_statement() -> str:
         "context is answered *abstract syntax not supported*). `[listener]` settings cannot "
         "add classes; a deployment may narrow them only in code (`ListenerConfig.sop_classes`).",
         "",
+        *_association_policies(net),
+        *_dicomweb_agent(),
+    ]
+
+
+def _association_policies(net: dict[str, list[str]]) -> list[str]:
+    """Section 2.3: acceptance, limits, identity, presentation contexts and C-STORE answers."""
+    return [
         "### 2.3 Association policies",
         "",
         "**Acceptance.** Any calling AE title unless `allowed_calling_aets` lists some; then "
@@ -320,6 +340,12 @@ def conformance_statement() -> str:
         "before Pixel Data is read and spooled (a CT image's pixel data too, for the patient's "
         "size).",
         "",
+    ]
+
+
+def _dicomweb_agent() -> list[str]:
+    """Section 2.4: what the DICOMweb user agent asks an origin server for."""
+    return [
         "### 2.4 DICOMweb user agent (PS3.18)",
         "",
         "| service | request | what is asked for |",
@@ -338,6 +364,13 @@ def conformance_statement() -> str:
         "timeouts, answer-size limits and retries on 408, 429, 500, 502, 503 and 504 are "
         "DEPLOYMENT.md's subject. The same SOP classes as the listener's are retrieved.",
         "",
+    ]
+
+
+def _media_and_reading(read: dict[str, list[str]]) -> list[str]:
+    """Sections 3 and 4 up to the dose reports' context tables: media, and what is read
+    from each image."""
+    return [
         "## 3. Media interchange",
         "",
         "`beamaudit scan` reads DICOM Part 10 files (PS3.10) of the SOP classes in 2.2 from a "
@@ -367,28 +400,6 @@ def conformance_statement() -> str:
         "### 4.4 Radiation Dose SR (TID 10001 Projection X-Ray, TID 10011 CT)",
         "",
     ]
-    for context, title in _CONTEXT_NAMES.items():
-        parts += [f"**{title}**", "", *read[f"sr_{context}"], ""]
-    parts += [
-        "Patient's Name, Patient ID and Patient's Birth Date are read only to make a keyed "
-        "pseudonym and an age; neither is stored, logged or sent.",
-        "",
-        "## 5. Character sets",
-        "",
-        "Every Specific Character Set (0008,0005) that pydicom decodes is accepted; text is "
-        "stored as Unicode. Control characters in texts are replaced before storing.",
-        "",
-        "## 6. Security",
-        "",
-        "The listener speaks DICOM over plain TCP (no TLS secure transport connection profile): "
-        "put it on a network the hospital trusts or behind a TLS tunnel (DEPLOYMENT.md). Patient "
-        "identifiers are replaced by a keyed pseudonym on receipt (SECURITY.md).",
-        "",
-        "## 7. IHE Radiation Exposure Monitoring (REM) statement",
-        "",
-        _REM.format(rem_table="\n".join(_table(["IHE REM item", "beamaudit"], _REM_ROWS))),
-    ]
-    return "\n".join(parts).rstrip() + "\n"
 
 
 def _overview(n_classes: int) -> str:
