@@ -484,6 +484,64 @@ def skin_dose_map(
     return _summarise(events, grid, dose.reshape(grid.shape), beams, records, room, sources)
 
 
+def _at_the_peak(
+    records: list[_EventAtCells], peak_flat: int | None
+) -> tuple[dict[int, float], dict[str, float]]:
+    """Each event's dose at the peak cell, and the absolute uncertainty terms (mGy) of the
+    factors carried through it, added linearly over the events (fully correlated)."""
+    per_event: dict[int, float] = {}
+    terms = dict.fromkeys(
+        ("table_transmission", "backscatter", "tissue_to_air", "patient_position"), 0.0
+    )
+    if peak_flat is None:
+        return per_event, terms
+    u_z = vertical_uncertainty_mm()
+    for rec in records:
+        at = np.nonzero(rec.cells == peak_flat)[0]
+        if at.size == 0:
+            continue
+        d = float(rec.dose[at[0]])
+        per_event[rec.parent] = per_event.get(rec.parent, 0.0) + d
+        if rec.crossed_table[at[0]]:
+            terms["table_transmission"] += d * rec.u_table
+        terms["backscatter"] += d * rec.u_backscatter
+        terms["tissue_to_air"] += d * rec.u_tissue
+        # inverse square: dD/D = 2 dz cos / d for a shift dz of the patient along "up"
+        cosine, distance = float(rec.vertical_cosine[at[0]]), float(rec.distance_mm[at[0]])
+        terms["patient_position"] += d * 2.0 * abs(cosine) * u_z / distance
+    return per_event, terms
+
+
+def _peak_uncertainty(psd: float, terms: dict[str, float], room: SkinRoom) -> SkinDoseUncertainty:
+    """The peak's relative standard uncertainty: K_a,r's, each factor's term relative to the
+    peak, and the patient model's, added in quadrature."""
+    u_kar = room.kar_relative_standard_uncertainty
+    if u_kar is None:
+        u_kar = skin_default("kar_relative_uncertainty_uncalibrated").value
+    budget = {"reference_point_air_kerma": u_kar}
+    for name, value in terms.items():
+        budget[name] = value / psd if psd > 0 else 0.0
+    budget["patient_model"] = skin_default("patient_model_relative_uncertainty").value
+    return SkinDoseUncertainty(math.sqrt(sum(v * v for v in budget.values())), budget)
+
+
+def _areas_above(
+    dose: FloatArray, cell_area: float, big_u: float
+) -> tuple[dict[float, float], dict[float, tuple[float, float]]]:
+    """The skin area at or above each follow-up level (cm2), and its range when every cell's
+    dose moves by the expanded uncertainty down and up."""
+    areas = {}
+    ranges = {}
+    for level in FOLLOW_UP_LEVELS_MGY:
+        areas[level] = float(np.count_nonzero(dose >= level)) * cell_area
+        low = (
+            float(np.count_nonzero(dose * (1.0 - big_u) >= level)) * cell_area if big_u < 1 else 0.0
+        )
+        high = float(np.count_nonzero(dose * (1.0 + big_u) >= level)) * cell_area
+        ranges[level] = (low, high)
+    return areas, ranges
+
+
 def _summarise(
     events: Sequence[SkinEvent],
     grid: SkinGrid,
@@ -496,54 +554,9 @@ def _summarise(
     peak_flat = int(np.argmax(dose))
     psd = float(dose.flat[peak_flat])
     peak_cell = None if psd <= 0 else divmod(peak_flat, grid.shape[1])
-    # each event's dose at the peak and the uncertainty terms carried through it
-    per_event: dict[int, float] = {}
-    terms = {
-        "table_transmission": 0.0,
-        "backscatter": 0.0,
-        "tissue_to_air": 0.0,
-        "patient_position": 0.0,
-    }
-    u_z = vertical_uncertainty_mm()
-    if peak_cell is not None:
-        for rec in records:
-            at = np.nonzero(rec.cells == peak_flat)[0]
-            if at.size == 0:
-                continue
-            d = float(rec.dose[at[0]])
-            per_event[rec.parent] = per_event.get(rec.parent, 0.0) + d
-            if rec.crossed_table[at[0]]:
-                terms["table_transmission"] += d * rec.u_table
-            terms["backscatter"] += d * rec.u_backscatter
-            terms["tissue_to_air"] += d * rec.u_tissue
-            # inverse square: dD/D = 2 dz cos / d for a shift dz of the patient along "up"
-            terms["patient_position"] += (
-                d
-                * 2.0
-                * abs(float(rec.vertical_cosine[at[0]]))
-                * u_z
-                / float(rec.distance_mm[at[0]])
-            )
-    u_kar = room.kar_relative_standard_uncertainty
-    if u_kar is None:
-        u_kar = skin_default("kar_relative_uncertainty_uncalibrated").value
-    budget = {"reference_point_air_kerma": u_kar}
-    for name, value in terms.items():
-        budget[name] = value / psd if psd > 0 else 0.0
-    budget["patient_model"] = skin_default("patient_model_relative_uncertainty").value
-    u_rel = math.sqrt(sum(v * v for v in budget.values()))
-    uncertainty = SkinDoseUncertainty(u_rel, budget)
-    big_u = uncertainty.relative_expanded
-    cell_area = grid.cell_area_cm2
-    areas = {}
-    ranges = {}
-    for level in FOLLOW_UP_LEVELS_MGY:
-        areas[level] = float(np.count_nonzero(dose >= level)) * cell_area
-        low = (
-            float(np.count_nonzero(dose * (1.0 - big_u) >= level)) * cell_area if big_u < 1 else 0.0
-        )
-        high = float(np.count_nonzero(dose * (1.0 + big_u) >= level)) * cell_area
-        ranges[level] = (low, high)
+    per_event, terms = _at_the_peak(records, peak_flat if peak_cell is not None else None)
+    uncertainty = _peak_uncertainty(psd, terms, room)
+    areas, ranges = _areas_above(dose, grid.cell_area_cm2, uncertainty.relative_expanded)
     contributors = tuple(
         sorted(
             (
