@@ -20,17 +20,25 @@ from __future__ import annotations
 import time
 from dataclasses import dataclass, field
 from datetime import date
-from typing import Any
+from typing import TYPE_CHECKING, Any
 
 from sqlalchemy import select
 from sqlalchemy.orm import Session, sessionmaker
 
-from beamaudit.api.intake.ct_sizing import CT_IMAGE_CLASSES, StudySizer, keep_frame_header
+from beamaudit.api.intake.ct_sizing import (
+    CT_IMAGE_CLASSES,
+    SizingSummary,
+    StudySizer,
+    keep_frame_header,
+)
 from beamaudit.api.intake.pipeline import Pipeline
 from beamaudit.api.intake.postprocess import Completion
 from beamaudit.api.store import models as m
 from beamaudit.api.store.base import utcnow
 from beamaudit.ingest.errors import IngestError
+
+if TYPE_CHECKING:
+    from beamaudit.ingest.dicomweb import PullReport
 
 __all__ = ["PullOutcome", "get_or_create_source", "pull_limits", "pull_source", "source_login"]
 
@@ -152,7 +160,6 @@ def pull_source(
     from beamaudit.ingest.dicomweb import (
         DicomwebSource,
         PullLimits,
-        next_watermark,
         pull,
         resolve_since,
     )
@@ -213,6 +220,24 @@ def pull_source(
         _record_failed_pull(sessions, source_id, exc, time.monotonic() - started, watermark)
         raise
     sized = sizer.finish_all(received_via="pull")
+    _record_pull(sessions, source_id, outcome, report, sized, watermark, started, pipeline)
+    return outcome
+
+
+def _record_pull(
+    sessions: sessionmaker[Session],
+    source_id: int,
+    outcome: PullOutcome,
+    report: PullReport,
+    sized: SizingSummary,
+    watermark: date | None,
+    started: float,
+    pipeline: Pipeline,
+) -> None:
+    """Complete ``outcome`` from the pull's report and the CT sizing, record what could not be
+    used as ingest errors, and keep the pull on its source (watermark, time, report)."""
+    from beamaudit.ingest.dicomweb import next_watermark
+
     outcome.ct_size = sized.as_dict()
     outcome.studies = report.studies
     outcome.instances = report.instances
@@ -237,7 +262,6 @@ def pull_source(
         source.last_pull_report["watermark"] = (
             source.watermark_date.isoformat() if source.watermark_date else None
         )
-    return outcome
 
 
 def _record_failed_pull(
