@@ -18,7 +18,7 @@ from beamaudit import CAUTION, __version__
 from beamaudit.api.settings import Settings
 from beamaudit.api.store import StoreError, check_connection, make_engine, make_session_factory
 
-__all__ = ["CAUTION", "create_app"]
+__all__ = ["CAUTION", "create_app", "create_app_from_environment"]
 
 
 API_PREFIX = "/api/v1"
@@ -210,3 +210,11 @@ def create_app(settings: Settings, *, engine: Engine | None = None) -> FastAPI:
     app.add_exception_handler(Exception, _unexpected_error)
     customise_openapi(app)
     return app
+
+
+def create_app_from_environment() -> FastAPI:
+    """The app of one worker process of ``beamaudit serve --workers N``: the settings as the
+    command found them (``BEAMAUDIT_CONFIG`` and the ``BEAMAUDIT_*`` variables), its own engine."""
+    from beamaudit.api.settings import load
+
+    return create_app(load())
