@@ -516,9 +516,7 @@ def _ranks(
         s[small] = each[at.reshape(-1), 1].astype(np.int64)
         coverage[small] = each[at.reshape(-1), 2]
     if not small.all():
-        r[~small], s[~small], coverage[~small] = _ranks_by_scipy(
-            n_arr[~small], p, confidence_level
-        )
+        r[~small], s[~small], coverage[~small] = _ranks_by_scipy(n_arr[~small], p, confidence_level)
     return r, s, coverage
 
 

@@ -38,6 +38,8 @@ def _driver_for_any_store(monkeypatch) -> None:
     import beamaudit.api.runs.reviews as reviews
 
     monkeypatch.setattr(reviews, "_ARROW_MIN_EVENTS", 0)
+
+
 MODALITIES = ("DX", "CR", "CT", "RF", "XA", "MG", None)
 EXAMS = ("chest_pa", "abdomen_ap", "ct_head", "no_such_exam_type", None)
 
