@@ -1,12 +1,18 @@
 """Benchmark: one month of 1,000,000 stored events reviewed on SQLite and on PostgreSQL.
 
-Target (issue #6, "Reviews against diagnostic reference levels"): a month of 1,000,000 stored
-events reviewed in **under 5 s** on each backend; that absolute figure is the acceptance
-criterion and is printed as met or missed. Beside it, each figure is given as a ratio to a
-baseline measured in the same run on the same store: reading the same month's rows with a bare
-``SELECT`` of six columns into a DataFrame (``pandas.read_sql_query``), the least a review that
-reads its events must do. On a shared machine the ratio is the steadier figure; each figure is
-the best of ``--rounds`` rounds.
+Targets, each a ratio to a baseline measured in the same run on the same store (issue #24), each
+printed with its target and enforced (exit 1 when one is missed):
+
+* **SQLite**: the review <= 1.2x a bare read of the columns the review needs (the review's own
+  statement of the month's dense and sparse columns, rows fetched through Python's ``sqlite3``
+  cursor in this process): the review may cost little more than reading its events.
+* **PostgreSQL**: the review <= 5x PostgreSQL's own grouped ``percentile_cont(0.5)`` and
+  ``percentile_cont(0.75)`` of the DAP by room and exam type over the same rows (the month's
+  events, as the review selects them).
+
+The absolute figure of issue #6 (a month reviewed in under 5 s) is printed beside them for the
+record. On a shared machine the ratios are the steadier figures; each figure is the best of
+``--rounds`` rounds.
 
 The review runs with the default parameters, as ``beamaudit review --month`` does. The store holds
 the one month only: the change-point history (the monthly medians of the 24 months before) is
@@ -29,10 +35,11 @@ import tempfile
 import time
 from datetime import UTC, datetime
 from pathlib import Path
+from typing import Any
 
-import pandas as pd
-from sqlalchemy import make_url, text
+from sqlalchemy import func, make_url, text
 from sqlalchemy.engine import Engine
+from sqlalchemy.orm import Session
 
 sys.path.insert(0, str(Path(__file__).parent))
 from review_data import fill
@@ -42,12 +49,62 @@ from beamaudit.api.runs.reviews import execute_review
 from beamaudit.api.store import make_engine, make_session_factory, upgrade
 
 TARGET_S = 5.0
+#: issue #24: the review over its baseline, per backend
+TARGET_RATIO = {"SQLite": 1.2, "PostgreSQL": 5.0}
 MONTH = datetime(2026, 10, 1, tzinfo=UTC)
 BENCH_DATABASE = "beamaudit_bench"
-BASELINE_SQL = (
-    "SELECT id, room_id, exam_type, patient_weight_kg, dap_gy_cm2, event_datetime "
-    "FROM exposure_events"
-)
+
+
+def _review_statement(session: Session, params: ReviewParameters) -> tuple[Any, dict[str, Any]]:
+    """The month's events as the review selects them: the WHERE conditions and their values."""
+    from beamaudit.api.runs.reviews import period_conditions
+
+    conditions, epoch, values = period_conditions(
+        session, start=params.period.start, end=params.period.end
+    )
+    return (conditions, epoch), values
+
+
+def bare_read(engine: Engine, params: ReviewParameters) -> tuple[int, str]:
+    """SQLite's baseline: the columns the review needs for the month, fetched as rows."""
+    from sqlalchemy import select
+
+    from beamaudit.api.runs import reviews
+
+    sessions = make_session_factory(engine)
+    with sessions() as session:
+        (conditions, epoch), values = _review_statement(session, params)
+        columns = [*reviews._DENSE_SELECT, epoch, *(c for _, c in reviews._SPARSE_COLUMNS)]
+        rows = reviews._fetch(session, select(*columns).where(*conditions), values)
+    return len(rows), f"bare read of the review's {len(columns)} columns (sqlite3 rows)"
+
+
+def grouped_percentiles(engine: Engine, params: ReviewParameters) -> tuple[int, str]:
+    """PostgreSQL's baseline: its own grouped percentile_cont(0.5) and (0.75) of the DAP by room
+    and exam type over the month's events."""
+    from sqlalchemy import select
+
+    from beamaudit.api.store import models as m
+
+    E = m.ExposureEventRow
+    sessions = make_session_factory(engine)
+    with sessions() as session:
+        (conditions, _), values = _review_statement(session, params)
+        stmt = (
+            select(
+                E.room_id,
+                E.exam_type,
+                func.percentile_cont(0.5).within_group(E.dap_gy_cm2),
+                func.percentile_cont(0.75).within_group(E.dap_gy_cm2),
+            )
+            .where(*conditions)
+            .group_by(E.room_id, E.exam_type)
+        )
+        bounds = {"t0": datetime.combine(params.period.start, datetime.min.time(), UTC),
+                  "t1": datetime.combine(params.period.end, datetime.min.time(), UTC)}  # fmt: skip
+        n = len(session.execute(stmt, bounds).all())
+    del values
+    return n, "grouped percentile_cont(0.5), (0.75) of DAP by room and exam type"
 
 
 def measure(engine: Engine, label: str, rounds: int) -> bool:
@@ -57,12 +114,13 @@ def measure(engine: Engine, label: str, rounds: int) -> bool:
     params = ReviewParameters(period=Period.month(2026, 10))
     with sessions() as s:  # warm the caches the same way for both measurements
         s.execute(text("SELECT count(*) FROM exposure_events")).scalar()
+    baseline_of = bare_read if label == "SQLite" else grouped_percentiles
     baseline = elapsed = cpu = float("inf")
     n_rows = n_events = n_flags = 0
+    what = ""
     for _ in range(rounds):
         t0 = time.perf_counter()
-        with engine.connect() as conn:
-            n_rows = len(pd.read_sql_query(text(BASELINE_SQL), conn))
+        n_rows, what = baseline_of(engine, params)
         baseline = min(baseline, time.perf_counter() - t0)
         t0, c0 = time.perf_counter(), time.process_time()
         with sessions.begin() as s:
@@ -70,13 +128,16 @@ def measure(engine: Engine, label: str, rounds: int) -> bool:
         elapsed = min(elapsed, time.perf_counter() - t0)
         cpu = min(cpu, time.process_time() - c0)
         n_events, n_flags = result.n_events, len(result.flags)
-    ok = elapsed < TARGET_S
+    ratio = elapsed / baseline
+    target = TARGET_RATIO[label]
+    ok = ratio <= target
     print(
         f"{label}: {n_events:,} events reviewed in {elapsed:.2f} s (this process's CPU "
-        f"{cpu:.2f} s), {n_flags} flags; TARGET < {TARGET_S:.0f} s: {'MET' if ok else 'MISSED'}\n"
-        f"  baseline, bare SELECT of {n_rows:,} rows x 6 columns into a DataFrame: "
-        f"{baseline:.2f} s; ratio review / baseline {elapsed / baseline:.2f} "
-        f"(best of {rounds} rounds)"
+        f"{cpu:.2f} s), {n_flags} flags; issue #6's < {TARGET_S:.0f} s: "
+        f"{'met' if elapsed < TARGET_S else 'missed'}\n"
+        f"  baseline, {what}: {n_rows:,} rows in {baseline:.2f} s\n"
+        f"  ratio review / baseline {ratio:.2f}; TARGET <= {target:g}: "
+        f"{'MET' if ok else 'MISSED'} (best of {rounds} rounds)"
     )
     return ok
 

@@ -48,6 +48,7 @@ from __future__ import annotations
 
 import json
 import re
+import threading
 from dataclasses import dataclass
 from functools import lru_cache
 from importlib import resources
@@ -412,6 +413,11 @@ def energy_bin_centres_kev() -> FloatArray:
     return centres
 
 
+#: Held while a grid table is looked up or made: threads asking at once for a table not made yet
+#: (a burst of requests on a fresh server) wait for one thread to make it, not each make it.
+_GRID_LOCK = threading.RLock()
+
+
 @lru_cache(maxsize=64)
 def _grid_mu_per_mm(key: str) -> FloatArray:
     out = linear_attenuation_per_mm(key, energy_bin_centres_kev())
@@ -439,7 +445,9 @@ def grid_linear_attenuation_per_mm(name: str | Material) -> FloatArray:
     numpy.ndarray
         μ in 1/mm at :func:`energy_bin_centres_kev`.
     """
-    return _grid_mu_per_mm(material(name).key)
+    key = material(name).key
+    with _GRID_LOCK:
+        return _grid_mu_per_mm(key)
 
 
 def grid_mass_energy_absorption_cm2_g(name: str | Material) -> FloatArray:
@@ -455,7 +463,9 @@ def grid_mass_energy_absorption_cm2_g(name: str | Material) -> FloatArray:
     numpy.ndarray
         μen/ρ in cm²/g at :func:`energy_bin_centres_kev`.
     """
-    return _grid_mu_en(material(name).key)
+    key = material(name).key
+    with _GRID_LOCK:
+        return _grid_mu_en(key)
 
 
 def mu_en_ratio(

@@ -2,6 +2,7 @@
 
 from __future__ import annotations
 
+from pathlib import Path
 from typing import Annotated
 
 import typer
@@ -15,10 +16,20 @@ def serve_command(
     ctx: typer.Context,
     host: Annotated[str, typer.Option(help="Address to listen on.")] = "127.0.0.1",
     port: Annotated[int, typer.Option(min=1, max=65535, help="TCP port.")] = 8000,
+    workers: Annotated[
+        int | None,
+        typer.Option(
+            min=1,
+            max=64,
+            help="Server processes answering requests (default: one per core, at most 8; "
+            "always one for a database in memory).",
+        ),
+    ] = None,
 ) -> None:
     """Apply migrations, mark review runs cut short as failed, then serve the API (/api/v1) and
     the dashboards (/)."""
     import logging
+    import os
 
     import uvicorn
 
@@ -56,19 +67,43 @@ def serve_command(
         f"{database_words(settings.database_url)}\n{sign_in_words(host, port)}",
         highlight=False,
     )
-    app = create_app(settings, engine=engine)
+    n_workers = workers if workers is not None else min(os.cpu_count() or 1, 8)
+    if file is None and settings.backend == "sqlite":
+        n_workers = 1  # a database in memory lives in one process
     if settings.metrics.enabled and settings.metrics.bind:
         from beamaudit.api.web.metrics import collector, start_metrics_server
 
         try:
-            start_metrics_server(settings.metrics.bind, collector(app.state.session_factory))
+            start_metrics_server(settings.metrics.bind, collector(make_session_factory(engine)))
         except OSError as exc:
             fail(f"cannot serve /metrics on {settings.metrics.bind}: {exc.strerror or exc}")
         console.print(f"metrics on http://{settings.metrics.bind}/metrics", highlight=False)
-    config = uvicorn.Config(app, host=host, port=port, log_level="info")
+    if n_workers == 1:
+        app = create_app(settings, engine=engine)
+        config = uvicorn.Config(app, host=host, port=port, log_level="info")
+    else:
+        # each worker process makes the app from the same settings (its own engine and pool)
+        root = ctx.find_root()
+        config_file = root.obj.get("config") if isinstance(root.obj, dict) else None
+        if config_file is not None:
+            os.environ["BEAMAUDIT_CONFIG"] = str(Path(config_file).resolve())
+        engine.dispose()
+        config = uvicorn.Config(
+            "beamaudit.api.web.app:create_app_from_environment",
+            factory=True,
+            host=host,
+            port=port,
+            workers=n_workers,
+            log_level="info",
+        )
     server = uvicorn.Server(config)  # uvicorn's logging is set up now: filter its handlers too
     configure_logging(logging.INFO)
-    server.run()
+    if n_workers == 1:
+        server.run()
+    else:
+        from uvicorn.supervisors import Multiprocess
+
+        Multiprocess(config, sockets=[config.bind_socket()]).run()
 
 
 def register(app: typer.Typer) -> None:

@@ -31,6 +31,7 @@ from __future__ import annotations
 
 import logging
 import math
+import threading
 from collections.abc import Iterable, Sequence
 from dataclasses import dataclass
 from functools import cache, lru_cache
@@ -129,11 +130,16 @@ def _anode_symbol(material: str | None) -> str:
 
 class _BeamCache:
     """Beam inputs per distinct beam, computed once per batch (or, bounded by ``limit``, once
-    per process: the beams of the why trails that the event pages make again)."""
+    per process: the beams of the why trails that the event pages make again).
+
+    Threads share it (the API's thread pool): a beam not computed yet is computed by one thread
+    while the others that need it wait, rather than every request of a burst computing it again.
+    """
 
     def __init__(self, limit: int | None = None) -> None:
         self._cache: dict[tuple[Any, ...], Any] = {}
         self._limit = limit
+        self._lock = threading.Lock()
 
     def get(
         self,
@@ -160,21 +166,27 @@ class _BeamCache:
             support,
             notes,
         )
-        if key not in self._cache:
-            if self._limit is not None and len(self._cache) >= self._limit:
-                self._cache.clear()  # a bound, not an LRU: few rooms make few distinct beams
-            spec = BeamSpec(
-                kv=round(kvp_kv, 1),
-                filters=filters,
-                anode=anode,
-                anode_angle_deg=angle,
-                ripple_percent=ripple,
-            )
-            result = compute_beam(spec, calibration=calibration)
-            self._cache[key] = BeamInputs.from_beam_result(
-                result, patient_support=support, assumptions=notes
-            )
-        return self._cache[key]
+        found = self._cache.get(key)
+        if found is not None:
+            return found
+        with self._lock:  # one thread computes a beam; the others wait for it (GIL-bound work)
+            found = self._cache.get(key)
+            if found is None:
+                if self._limit is not None and len(self._cache) >= self._limit:
+                    self._cache.clear()  # a bound, not an LRU: few rooms make few distinct beams
+                spec = BeamSpec(
+                    kv=round(kvp_kv, 1),
+                    filters=filters,
+                    anode=anode,
+                    anode_angle_deg=angle,
+                    ripple_percent=ripple,
+                )
+                result = compute_beam(spec, calibration=calibration)
+                found = BeamInputs.from_beam_result(
+                    result, patient_support=support, assumptions=notes
+                )
+                self._cache[key] = found
+        return found
 
 
 #: The beams of the why trails made again for one event at a time (the event page, the REST

@@ -113,6 +113,7 @@ __all__ = [
     "Period",
     "ReviewParameters",
     "ReviewResult",
+    "monthly_history",
     "review",
 ]
 
@@ -868,53 +869,17 @@ def _studies_that_may_flag(events: pd.DataFrame, params: ReviewParameters) -> np
     return keep[study]
 
 
-def review(
+def _units(
     events: pd.DataFrame,
-    *,
-    levels: Sequence[ReferenceLevelSet],
     params: ReviewParameters,
-    history_df: pd.DataFrame | None = None,
-    catalogue: ExamCatalogue | None = None,
-    rules: MappingRules | None = None,
-    patient_groups: PatientGroups | None = None,
-) -> ReviewResult:
-    """Review the events of ``params.period`` against reference levels.
-
-    Parameters
-    ----------
-    events : DataFrame
-        The events table (contract in :mod:`beamaudit.api.review.events`); events outside the
-        period or scope are ignored, so a superset may be passed.
-    levels : sequence of ReferenceLevelSet
-        Every version of every set (local and national); those in effect are chosen here.
-    params : ReviewParameters
-        Every parameter of the run.
-    history_df : DataFrame, optional
-        Earlier months' medians (columns :data:`MONTHLY_COLUMNS`, e.g. earlier results'
-        ``monthly_df``) for change-points; months inside the period are ignored.
-    catalogue : ExamCatalogue, optional
-        Default: the shipped catalogue.
-    rules : MappingRules, optional
-        When given, events without an exam type are mapped with them first (mapped ones are kept),
-        and so is their clinical indication when the events carry none.
-    patient_groups : PatientGroups, optional
-        The paediatric bands. Default: the shipped ones (ICRP 135, EC RP 185).
-
-    Returns
-    -------
-    ReviewResult
-
-    Raises
-    ------
-    ReviewInputError
-        The events or history table breaks its contract.
-    ReviewError
-        Inconsistent level sets.
-    """
-    catalogue = catalogue or load_default_catalogue()
-    bands = patient_groups if patient_groups is not None else load_default_patient_groups()
-    in_effect = levels_in_effect(levels, params.effective_levels_on)
-    level_rows = levels_table(in_effect, params.effective_levels_on)
+    catalogue: ExamCatalogue,
+    rules: MappingRules | None,
+    bands: PatientGroups,
+) -> tuple[pd.DataFrame, pd.DataFrame, pd.DataFrame, pd.DataFrame]:
+    """The events of the period and scope, mapped, made into units (a study or an event) and
+    put in their patient groups: what the group table and the monthly medians are made from.
+    Returns the unmapped summary, the events in scope, the units with their location and the
+    units with their location keys."""
     prepared = _select(prepare_events(events), params)
     missing_type = prepared["exam_type"].isna().to_numpy()
     if rules is not None and missing_type.any():  # the rules map each event on its own values
@@ -966,6 +931,74 @@ def review(
         names += [*size_band_names(params.ct_size_band_edges_cm), *SIZE_SPECIAL_GROUPS]
     located["patient_group"] = pd.Categorical(groups_of_units, categories=names)
     units = _with_location_keys(located.copy(), params.group_by)
+    return unmapped, scoped, located, units
+
+
+def monthly_history(
+    events: pd.DataFrame,
+    *,
+    params: ReviewParameters,
+    catalogue: ExamCatalogue | None = None,
+    patient_groups: PatientGroups | None = None,
+) -> pd.DataFrame:
+    """The monthly medians of :func:`review`'s ``monthly_df`` alone (columns
+    :data:`MONTHLY_COLUMNS`): the history of earlier months for change-points, without the
+    group table, site values and flags a whole review makes (and so without levels)."""
+    catalogue = catalogue or load_default_catalogue()
+    bands = patient_groups if patient_groups is not None else load_default_patient_groups()
+    _, scoped, _, units = _units(events, params, catalogue, None, bands)
+    ratios = _dap_ratios(scoped, params.group_by)
+    return pd.concat([_monthly_medians(units, params), ratios], ignore_index=True)
+
+
+def review(
+    events: pd.DataFrame,
+    *,
+    levels: Sequence[ReferenceLevelSet],
+    params: ReviewParameters,
+    history_df: pd.DataFrame | None = None,
+    catalogue: ExamCatalogue | None = None,
+    rules: MappingRules | None = None,
+    patient_groups: PatientGroups | None = None,
+) -> ReviewResult:
+    """Review the events of ``params.period`` against reference levels.
+
+    Parameters
+    ----------
+    events : DataFrame
+        The events table (contract in :mod:`beamaudit.api.review.events`); events outside the
+        period or scope are ignored, so a superset may be passed.
+    levels : sequence of ReferenceLevelSet
+        Every version of every set (local and national); those in effect are chosen here.
+    params : ReviewParameters
+        Every parameter of the run.
+    history_df : DataFrame, optional
+        Earlier months' medians (columns :data:`MONTHLY_COLUMNS`, e.g. earlier results'
+        ``monthly_df``) for change-points; months inside the period are ignored.
+    catalogue : ExamCatalogue, optional
+        Default: the shipped catalogue.
+    rules : MappingRules, optional
+        When given, events without an exam type are mapped with them first (mapped ones are kept),
+        and so is their clinical indication when the events carry none.
+    patient_groups : PatientGroups, optional
+        The paediatric bands. Default: the shipped ones (ICRP 135, EC RP 185).
+
+    Returns
+    -------
+    ReviewResult
+
+    Raises
+    ------
+    ReviewInputError
+        The events or history table breaks its contract.
+    ReviewError
+        Inconsistent level sets.
+    """
+    catalogue = catalogue or load_default_catalogue()
+    bands = patient_groups if patient_groups is not None else load_default_patient_groups()
+    in_effect = levels_in_effect(levels, params.effective_levels_on)
+    level_rows = levels_table(in_effect, params.effective_levels_on)
+    unmapped, scoped, located, units = _units(events, params, catalogue, rules, bands)
     groups, codes, upper = _group_table(units, level_rows, catalogue, params, bands)
     sites = site_values(
         groups,

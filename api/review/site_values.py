@@ -29,6 +29,7 @@ levels stand beside it.
 from __future__ import annotations
 
 from collections.abc import Sequence
+from typing import Any
 
 import numpy as np
 import pandas as pd
@@ -68,12 +69,20 @@ SITE_VALUE_COLUMNS = (
 )
 
 
-def _strictest(frame: pd.DataFrame, kind: str) -> tuple[float, str | None]:
-    rows = frame.loc[frame["level_kind"] == kind]
-    if not len(rows):
+def _strictest(
+    kinds: np.ndarray, values: np.ndarray, sets: np.ndarray, kind: str
+) -> tuple[float, str | None]:
+    """The strictest level of ``kind`` among a group's rows: the lowest reference level, then
+    the first level set by name (missing values last, as a stable sort of the rows puts them)."""
+    best: tuple[Any, ...] | None = None
+    for value, name in zip(values[kinds == kind], sets[kinds == kind], strict=True):
+        missing, unnamed = bool(np.isnan(value)), bool(pd.isna(name))
+        key = (missing, 0.0 if missing else value, unnamed, "" if unnamed else name)
+        if best is None or key < best[0]:
+            best = (key, value, name)
+    if best is None:
         return float("nan"), None
-    best = rows.sort_values(["reference_level", "level_set"], kind="mergesort").iloc[0]
-    return float(best["reference_level"]), str(best["level_set"])
+    return float(best[1]), str(best[2])
 
 
 def site_values(
@@ -112,25 +121,49 @@ def site_values(
     rows = []
     banded = ~groups["patient_group"].isin(list(SPECIAL_GROUPS))
     frame = groups.loc[banded]
-    for key, part in frame.groupby(keys, dropna=False, sort=True):
-        rooms = part.drop_duplicates([*keys, *room_keys])
-        enough = rooms["n_used"].to_numpy() >= rooms["n_minimum"].to_numpy()
-        medians = rooms.loc[enough, "median"].to_numpy(dtype=np.float64)
+    # one pass over plain arrays: a group's rows are few, and pandas' selections per group cost
+    # more than the statistics
+    codes = frame.groupby(keys, dropna=False, sort=True).ngroup().to_numpy()
+    order = np.argsort(codes, kind="stable")
+    parts = np.split(order, np.flatnonzero(np.diff(codes[order])) + 1) if len(order) else []
+    key_values = [frame[k].to_numpy(dtype=object) for k in keys]
+    room_values = [frame[k].to_numpy(dtype=object) for k in room_keys]
+    n_used = frame["n_used"].to_numpy()
+    n_minimum = frame["n_minimum"].to_numpy()
+    group_medians = frame["median"].to_numpy(dtype=np.float64)
+    units = frame["unit"].to_numpy(dtype=object)
+    bases = frame["basis"].to_numpy(dtype=object)
+    kinds = frame["level_kind"].to_numpy(dtype=object)
+    level_values = frame["reference_level"].to_numpy(dtype=np.float64)
+    level_sets = frame["level_set"].to_numpy(dtype=object)
+    for part in parts:
+        seen: set[tuple[Any, ...]] = set()
+        first = []  # a room's first row (rows of one room differ only in their level)
+        for i in part:
+            room = tuple(None if pd.isna(v) else v for v in (c[i] for c in room_values))
+            if room not in seen:
+                seen.add(room)
+                first.append(i)
+        rooms = np.array(first, dtype=np.int64)
+        enough = n_used[rooms] >= n_minimum[rooms]
+        medians = group_medians[rooms[enough]]
         typical = quantile_ci(medians, 0.5, confidence_level)
         proposed = quantile_ci(medians, 0.75, confidence_level)
         can_propose = len(medians) >= min_rooms
         p25 = float(np.quantile(medians, 0.25)) if can_propose else float("nan")
-        local, local_set = _strictest(part, "local")
-        national, national_set = _strictest(part, "national")
+        local, local_set = _strictest(kinds[part], level_values[part], level_sets[part], "local")
+        national, national_set = _strictest(
+            kinds[part], level_values[part], level_sets[part], "national"
+        )
         nan = float("nan")
         rows.append(
             {
-                **dict(zip(keys, key, strict=True)),
-                "unit": rooms["unit"].iloc[0],
-                "basis": rooms["basis"].iloc[0],
+                **{k: values[part[0]] for k, values in zip(keys, key_values, strict=True)},
+                "unit": units[rooms[0]],
+                "basis": bases[rooms[0]],
                 "n_rooms": len(medians),
                 "n_rooms_too_few_patients": int((~enough).sum()),
-                "n_patients": int(rooms.loc[enough, "n_used"].sum()),
+                "n_patients": int(n_used[rooms[enough]].sum()),
                 "typical_value": typical.value,
                 "typical_ci_low": typical.low,
                 "typical_ci_high": typical.high,

@@ -446,16 +446,84 @@ def quantile_ci_ranks(
     return _ranks(n_arr, p, confidence_level)
 
 
+#: Sample sizes up to which the ranks are computed in exact integer arithmetic (no SciPy: a
+#: review whose groups are all this small, such as a month of one hospital, never imports it).
+_EXACT_RANKS_MAX_N = 400
+
+
 @lru_cache(maxsize=4096)
 def _ranks_of_one_size(n: int, p: float, confidence_level: float) -> tuple[int, int, float]:
-    r, s, coverage = _ranks(np.array([n], dtype=np.int64), p, confidence_level)
+    if n <= _EXACT_RANKS_MAX_N:
+        return _exact_ranks(n, p, confidence_level)
+    r, s, coverage = _ranks_by_scipy(np.array([n], dtype=np.int64), p, confidence_level)
     return int(r[0]), int(s[0]), float(coverage[0])
+
+
+def _exact_ranks(n: int, p: float, confidence_level: float) -> tuple[int, int, float]:
+    """The ranks of :func:`_ranks_by_scipy` for one sample size, with F the Binomial(n, p)
+    distribution function summed exactly: p, alpha/2 and the thresholds are the binary fractions
+    the floats are, each term C(n, i) a^i (b - a)^(n - i) / b^n an integer over b^n."""
+    from fractions import Fraction
+
+    half_alpha = (1.0 - confidence_level) / 2.0
+    a, b = Fraction(p).as_integer_ratio()
+    sums = []  # sums[k] = b^n F(k)
+    total, term = 0, (b - a) ** n  # i = 0
+    for i in range(n + 1):
+        total += term
+        sums.append(total)
+        if i < n:  # C(n, i+1) a^(i+1) (b-a)^(n-i-1) from C(n, i) a^i (b-a)^(n-i)
+            term = term * (n - i) * a // ((i + 1) * (b - a))
+    scale = b**n
+
+    def cdf(k: int) -> Fraction:
+        return Fraction(0) if k < 0 else Fraction(1) if k >= n else Fraction(sums[k], scale)
+
+    def ppf(q: float) -> int:  # the smallest k in 0..n with F(k) >= q
+        bound = Fraction(q)
+        return next((k for k in range(n + 1) if cdf(k) >= bound), n)
+
+    slack = Fraction(half_alpha * (1.0 + _TAIL_RTOL))
+    k = ppf(half_alpha)
+    j = k if cdf(k) <= slack else k - 1
+    r = j + 1 if j >= 0 and n > 0 else 0
+    upper_k = ppf(1.0 - half_alpha)
+    if 1 - cdf(upper_k - 1) <= slack:
+        upper_k -= 1
+    s = upper_k + 1 if upper_k + 1 <= n and upper_k >= 0 and n > 0 else 0
+    if not (r or s):
+        return r, s, float("nan")
+    lower_tail = cdf(r - 1) if r else Fraction(0)
+    upper_mass = cdf(s - 1) if s else Fraction(1)
+    return r, s, float(upper_mass - lower_tail)
 
 
 def _ranks(
     n_arr: np.ndarray, p: float, confidence_level: float
 ) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
-    """:func:`quantile_ci_ranks` of checked arguments."""
+    """:func:`quantile_ci_ranks` of checked arguments: small samples exactly (once a size and
+    process), the others through SciPy."""
+    r = np.zeros(len(n_arr), dtype=np.int64)
+    s = np.zeros(len(n_arr), dtype=np.int64)
+    coverage = np.full(len(n_arr), np.nan)
+    small = n_arr <= _EXACT_RANKS_MAX_N
+    sizes, at = np.unique(n_arr[small], return_inverse=True)
+    if len(sizes):
+        each = np.array(
+            [_ranks_of_one_size(int(n), float(p), float(confidence_level)) for n in sizes]
+        )
+        r[small] = each[at.reshape(-1), 0].astype(np.int64)
+        s[small] = each[at.reshape(-1), 1].astype(np.int64)
+        coverage[small] = each[at.reshape(-1), 2]
+    if not small.all():
+        r[~small], s[~small], coverage[~small] = _ranks_by_scipy(n_arr[~small], p, confidence_level)
+    return r, s, coverage
+
+
+def _ranks_by_scipy(
+    n_arr: np.ndarray, p: float, confidence_level: float
+) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+    """The ranks through SciPy's binomial functions (any sample size)."""
     half_alpha = (1.0 - confidence_level) / 2.0
     k = np.nan_to_num(_binom_ppf(half_alpha, n_arr, p), nan=-1.0).astype(np.int64)
     j = np.where(_binom_cdf(k, n_arr, p) <= half_alpha * (1.0 + _TAIL_RTOL), k, k - 1)

@@ -18,7 +18,7 @@ from beamaudit import CAUTION, __version__
 from beamaudit.api.settings import Settings
 from beamaudit.api.store import StoreError, check_connection, make_engine, make_session_factory
 
-__all__ = ["CAUTION", "create_app"]
+__all__ = ["CAUTION", "create_app", "create_app_from_environment"]
 
 
 API_PREFIX = "/api/v1"
@@ -210,3 +210,34 @@ def create_app(settings: Settings, *, engine: Engine | None = None) -> FastAPI:
     app.add_exception_handler(Exception, _unexpected_error)
     customise_openapi(app)
     return app
+
+
+def create_app_from_environment() -> FastAPI:
+    """The app of one worker process of ``beamaudit serve --workers N``: the settings as the
+    command found them (``BEAMAUDIT_CONFIG`` and the ``BEAMAUDIT_*`` variables), its own engine."""
+    from beamaudit.api.settings import load
+
+    _end_with_the_serving_process()
+    return create_app(load())
+
+
+def _end_with_the_serving_process() -> None:
+    """Linux: this worker is sent SIGTERM (a graceful stop) when the serving process ends, however
+    it ends: a serving process killed outright would otherwise leave its workers answering on its
+    port (``prctl(PR_SET_PDEATHSIG)``, see prctl(2))."""
+    import ctypes
+    import multiprocessing
+    import os
+    import signal
+    import sys
+
+    if not sys.platform.startswith("linux"):
+        return
+    try:
+        libc = ctypes.CDLL(None, use_errno=True)
+        libc.prctl(1, int(signal.SIGTERM))  # 1: PR_SET_PDEATHSIG
+    except (OSError, AttributeError):  # no prctl: the serving process stops its workers itself
+        return
+    parent = multiprocessing.parent_process()
+    if parent is not None and os.getppid() != parent.pid:  # it ended before the call above
+        os.kill(os.getpid(), signal.SIGTERM)

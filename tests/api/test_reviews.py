@@ -16,6 +16,7 @@ from typing import Any
 
 import numpy as np
 import pandas as pd
+import pytest
 from sqlalchemy import insert, select
 
 from beamaudit.api.review import Period, ReviewParameters, review
@@ -28,6 +29,17 @@ from beamaudit.api.store import models as m
 from beamaudit.api.store.review_rows import ensure_catalogue, level_sets_from_store
 
 START, END = date(2026, 3, 1), date(2026, 4, 1)
+
+
+@pytest.fixture(autouse=True)
+def _driver_for_any_store(monkeypatch) -> None:
+    # a store of fewer than _ARROW_MIN_EVENTS events is read as plain rows; these tests hold the
+    # driver's read on small stores too
+    import beamaudit.api.runs.reviews as reviews
+
+    monkeypatch.setattr(reviews, "_ARROW_MIN_EVENTS", 0)
+
+
 MODALITIES = ("DX", "CR", "CT", "RF", "XA", "MG", None)
 EXAMS = ("chest_pa", "abdomen_ap", "ct_head", "no_such_exam_type", None)
 
@@ -281,6 +293,23 @@ def test_the_arrow_copy_and_plain_reads_give_the_same_table(store, monkeypatch) 
         assert taken == [True]
         monkeypatch.setattr(reviews, "_dense_by_copy", lambda *args: None)
     pd.testing.assert_frame_equal(read(), through_arrow)
+
+
+def test_a_small_store_is_read_without_the_driver(store, monkeypatch) -> None:
+    # below _ARROW_MIN_EVENTS stored events the rows are read through the session (no process
+    # started for the driver), and the table is the driver's
+    import beamaudit.api.runs.reviews as reviews
+
+    _fill(store.session_factory, n=90, seed=6)
+    with store.session_factory() as session:
+        through_arrow = review_events(session, start=START, end=END)
+    monkeypatch.setattr(reviews, "_ARROW_MIN_EVENTS", 10**9)
+    readers: list[str] = []
+    for name in ("_sqlite_arrow_reader", "_postgres_arrow_reader"):
+        monkeypatch.setattr(reviews, name, lambda session, name=name: readers.append(name))
+    with store.session_factory() as session:
+        pd.testing.assert_frame_equal(review_events(session, start=START, end=END), through_arrow)
+    assert readers == []
 
 
 def test_an_empty_period_through_the_driver_is_the_plain_empty_table(store, monkeypatch) -> None:

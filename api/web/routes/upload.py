@@ -11,6 +11,7 @@ or error with the reason; errors and conflicts are also recorded as ingest error
 from __future__ import annotations
 
 import tempfile
+import threading
 from collections.abc import Awaitable, Callable
 from typing import IO, Any
 
@@ -33,6 +34,7 @@ MAX_FILES = 1000
 #: bytes of an upload kept in memory before it is spooled to a temporary file
 SPOOL_BYTES = 1024 * 1024
 DICOM_MEDIA_TYPE = "application/dicom"
+_COMPLETION_LOCK = threading.Lock()
 
 _REQUEST_BODY: dict[str, Any] = {
     "required": True,
@@ -108,13 +110,19 @@ def _pseudonymiser(request: Request) -> Any:
 
 
 def _ingest_one(request: Request, fh: IO[bytes], name: str, who: str) -> UploadFileResult:
-    """Parse and store one file (runs in the thread pool)."""
+    """Parse and store one file (runs in the thread pool), completed by the app's one
+    :class:`~beamaudit.api.intake.postprocess.Completion` (it reads the rules and rooms afresh
+    for each file, and keeps what it computed from them: a beam is computed once a process)."""
     from beamaudit.api.intake.pipeline import Pipeline
     from beamaudit.api.intake.postprocess import Completion
     from beamaudit.ingest.errors import IngestError
     from beamaudit.ingest.reader import read_open_file
 
-    pipeline = Pipeline(request.app.state.session_factory, completion=Completion())
+    state = request.app.state
+    with _COMPLETION_LOCK:  # one per app: the beams and exam types it computed are kept
+        if getattr(state, "completion", None) is None:
+            state.completion = Completion()
+    pipeline = Pipeline(state.session_factory, completion=state.completion)
     source = f"upload:{name}"
     try:
         parsed = read_open_file(fh, pseudonymiser=request.app.state.pseudonymiser, source=source)

@@ -255,3 +255,47 @@ def test_icrp_135_sample_checks() -> None:
     assert checks.tolist() == ["below_minimum", "below_preferred", "below_preferred", "ok"]
     assert PREFERRED_SAMPLES["radiography"] == 30 and PREFERRED_SAMPLES["mammography"] == 50
     assert all(PREFERRED_SAMPLES[g] >= DEFAULT_MINIMUM_SAMPLES[g] for g in PREFERRED_SAMPLES)
+
+
+@pytest.mark.parametrize("confidence", [0.9, 0.95, 0.99])
+@pytest.mark.parametrize("p", [0.1, 0.25, 0.5, 0.75])
+def test_exact_ranks_of_small_samples_equal_scipys(p: float, confidence: float) -> None:
+    # samples up to _EXACT_RANKS_MAX_N take their ranks from exact integer sums of the binomial
+    # terms (no SciPy import); SciPy's binomial functions give the same ranks and coverages
+    from beamaudit.api.review.stats import _EXACT_RANKS_MAX_N, _exact_ranks, _ranks_by_scipy
+
+    sizes = np.r_[0:121, 121:_EXACT_RANKS_MAX_N:13, _EXACT_RANKS_MAX_N]
+    r, s, coverage = _ranks_by_scipy(sizes, p, confidence)
+    for i, n in enumerate(sizes):
+        ours = _exact_ranks(int(n), p, confidence)
+        assert ours[:2] == (int(r[i]), int(s[i])), n
+        assert (math.isnan(ours[2]) and math.isnan(coverage[i])) or ours[2] == pytest.approx(
+            float(coverage[i]), rel=1e-9, abs=1e-12
+        ), n
+
+
+def test_ranks_of_mixed_sizes_are_each_sizes_own() -> None:
+    # one call over groups of small and large samples (exact and SciPy ways mixed)
+    from beamaudit.api.review.stats import _EXACT_RANKS_MAX_N
+
+    sizes = np.array([0, 5, 6, 40, _EXACT_RANKS_MAX_N, _EXACT_RANKS_MAX_N + 1, 5000, 40])
+    r, s, coverage = quantile_ci_ranks(sizes, 0.75)
+    for i, n in enumerate(sizes):
+        one = quantile_ci_ranks(int(n), 0.75)
+        assert (int(r[i]), int(s[i])) == (int(one[0][0]), int(one[1][0]))
+        assert (np.isnan(coverage[i]) and np.isnan(one[2][0])) or coverage[i] == one[2][0]
+
+
+def test_small_samples_need_no_scipy() -> None:
+    # a month of one hospital (groups of at most a few hundred) reviews without importing SciPy
+    import subprocess
+    import sys
+
+    code = (
+        "import sys, numpy as np\n"
+        "from beamaudit.api.review.stats import quantile_ci, median_ci_ranks\n"
+        "median_ci_ranks(np.arange(0, 300)); quantile_ci(np.arange(50.0), 0.75)\n"
+        "assert 'scipy' not in sys.modules, 'scipy imported'\n"
+    )
+    done = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True)
+    assert done.returncode == 0, done.stderr
