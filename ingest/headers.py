@@ -34,9 +34,12 @@ from .codes import (
     CT_PHANTOM_DIAMETERS_CM,
     ELEMENT_SYMBOLS,
     HEADER_MATERIALS,
+    MAMMOGRAPHY_DIAGNOSTIC_VIEW_MODIFIERS,
+    MAMMOGRAPHY_VIEW_MODIFIERS,
     WATER_EQUIVALENT_DIAMETER_METHODS,
     CodeKey,
     canonical,
+    intent_from_words,
     view_from_meaning,
 )
 from .errors import IngestError
@@ -480,7 +483,8 @@ def _read_ct_code(
 def _read_mammography(
     sink: FieldSink, views: list[ValueReader], reader: ValueReader, base: dict[str, object]
 ) -> None:
-    """Laterality, implant, 2D or tomosynthesis, and a tomosynthesis sweep's projections."""
+    """Laterality, implant, screening or diagnostic, 2D or tomosynthesis, and a tomosynthesis
+    sweep's projections."""
     by_field = header_rows_by_field()
     found = _string(views, by_field["image_laterality"])
     if found is not None:
@@ -499,6 +503,8 @@ def _read_mammography(
     assert acquisition_row.tag is not None and image_type_row.tag is not None
     acquisitions = reader.sequence(acquisition_row.tag)
     sop_class = str(base.get("sop_class_uid") or "")
+    if sop_class in _BREAST_SOP_CLASSES or str(base.get("modality") or "") == "MG":
+        _read_intent(sink, views)
     if acquisitions:
         sink.put("mammography_acquisition", "tomosynthesis", acquisition_row.label)
         _read_projections(sink, reader.child(acquisitions[0]))
@@ -515,6 +521,70 @@ def _read_mammography(
         sink.put("mammography_acquisition", "tomosynthesis", f"{image_type_row.label} {joined}")
     else:
         sink.put("mammography_acquisition", "2d", "(0008,0016) SOPClassUID, (0008,0008) ImageType")
+
+
+_VIEW_CODE_SEQUENCE = 0x00540220
+_REQUEST_ATTRIBUTES_SEQUENCE = 0x00400275
+
+
+def _code_items(views: list[ValueReader], tag: int, within: int | None = None) -> list[Dataset]:
+    """The items of sequence ``tag`` in the nearest view that has any, looked for at the view's
+    top level and in the items of sequence ``within``."""
+    for view in views:
+        items = list(view.sequence(tag))
+        if within is not None:
+            for outer in view.sequence(within):
+                items.extend(view.child(outer).sequence(tag))
+        if items:
+            return items
+    return []
+
+
+def _coded(item: Dataset) -> tuple[CodeKey, str] | None:
+    value = str(item.get("CodeValue") or item.get("LongCodeValue") or "").strip()
+    if not value:
+        return None
+    return canonical(value, str(item.get("CodingSchemeDesignator") or "")), str(
+        item.get("CodeMeaning") or ""
+    ).strip()
+
+
+def _read_intent(sink: FieldSink, views: list[ValueReader]) -> None:
+    """Screening or diagnostic, from the first of these clues that says one (the provenance
+    names it):
+
+    1. a View Modifier Code Sequence (0054,0222) item (in View Code Sequence (0054,0220), PS3.3
+       C.8.11.7 Mammography Image module) of a workup view of CID 4015 (magnification, spot
+       compression, rolled or tangential): diagnostic, whatever the procedure says;
+    2. the meaning of a Procedure Code Sequence (0008,1032) item (the procedure performed);
+    3. the meaning of a Requested Procedure Code Sequence (0032,1064) item (the procedure
+       asked for; also in Request Attributes Sequence (0040,0275)).
+
+    A procedure code whose meaning names both or neither says nothing; the mapping rules'
+    description fallbacks then decide (``api/data/mapping_rules.csv``)."""
+    modifier_row, procedure_row, requested_row = header_rows_by_field()["mammography_intent"]
+    assert modifier_row.tag is not None
+    for item in _code_items(views, modifier_row.tag, _VIEW_CODE_SEQUENCE):
+        found = _coded(item)
+        if found is not None and found[0] in MAMMOGRAPHY_DIAGNOSTIC_VIEW_MODIFIERS:
+            code, meaning = found
+            name = MAMMOGRAPHY_VIEW_MODIFIERS[code]
+            label = f"{modifier_row.label} ({code[0]}, {code[1]}) {meaning or name}"
+            sink.put("mammography_intent", "diagnostic", label)
+            return
+    for row, within in ((procedure_row, None), (requested_row, _REQUEST_ATTRIBUTES_SEQUENCE)):
+        assert row.tag is not None
+        for item in _code_items(views, row.tag, within):
+            found = _coded(item)
+            if found is None:
+                continue
+            intent = intent_from_words(found[1])
+            if intent is not None:
+                code, meaning = found
+                sink.put(
+                    "mammography_intent", intent, f"{row.label} ({code[0]}, {code[1]}) {meaning}"
+                )
+                return
 
 
 def _read_projections(sink: FieldSink, acquisition: ValueReader) -> None:
