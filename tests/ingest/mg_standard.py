@@ -1,7 +1,7 @@
 """A Digital Mammography X-Ray Image (For Presentation) built to the standard: the IOD of PS3.3
-A.27, its mandatory modules with every Type 1 and Type 2 attribute, and the dose-relevant modules the IOD allows (X-Ray Acquisition Dose, X-Ray
-Generation, X-Ray Filtration, X-Ray Grid: all their attributes are Type 3) filled with the values a
-W/Rh unit writes.
+A.27, its mandatory modules with every Type 1 and Type 2 attribute, and the dose-relevant modules
+the IOD allows (X-Ray Acquisition Dose, X-Ray Generation, X-Ray Filtration, X-Ray Grid: all their
+attributes are Type 3) filled with the values a W/Rh unit writes.
 
 **Standard-built, not a real file**: no MG object ships in pydicom, pydicom-data or highdicom's
 wheel (checked: ``pydicom.data.get_testdata_files()`` lists 261 files of modalities CT, OT, MR,
