@@ -19,7 +19,7 @@ def _intent(event: Any) -> str | None:
     if not event.mammography_intent:
         return None
     clue = (event.provenance or {}).get("mammography_intent")
-    return f"{event.mammography_intent} ({clue})" if clue else str(event.mammography_intent)
+    return f"{event.mammography_intent}, from {clue}" if clue else str(event.mammography_intent)
 
 
 def mammography_exposure(event: Any, trail: dict[str, Any]) -> dict[str, Any]:
