@@ -6,9 +6,10 @@ attributes are Type 3) filled with the values a W/Rh unit writes.
 **Standard-built, not a real file**: no MG object ships in pydicom, pydicom-data or highdicom's
 wheel (checked: ``pydicom.data.get_testdata_files()``, pydicom-data 1.0.0 installed, lists 261
 files of modalities CT, OT, MR, US, CR, RTDOSE, NM, RTPLAN, SEG, SR, RTSTRUCT and ECG, none of
-MG; DICOM-NOTES section 4), so the object is written here, every value invented (an invented hospital, patient and device). Its
-conformance is checked by ``tests/ingest/test_mg_standard_file.py`` against highdicom 0.28.2's
-tables of the standard and by dciodvfy (dicom3tools).
+MG; DICOM-NOTES section 4), so the object is written here, every value invented (an invented
+hospital, patient and device). Its conformance is checked by
+``tests/ingest/test_mg_standard_file.py`` against highdicom 0.28.2's tables of the standard and by
+dciodvfy (dicom3tools).
 """
 
 from __future__ import annotations
