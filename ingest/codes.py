@@ -307,37 +307,32 @@ PROCEDURE_INTENTS: dict[CodeKey, str] = {
 }
 
 # CID 4015 View Modifier for Mammography (PS3.16; codes and meanings as pydicom 3.0.2's CID
-# dictionary, generated from PS3.16, lists them), the meaning of each. The modifiers of a workup
-# view (magnification, spot compression, rolled and tangential views) belong to a diagnostic
-# examination and not to screening (common practice); the others (implant displaced, cleavage,
-# axillary tail, nipple in profile, ...) are taken in screening too and say neither.
-MAMMOGRAPHY_VIEW_MODIFIERS: dict[CodeKey, str] = {
-    ("399163009", "SCT"): "Magnification",
-    ("399055006", "SCT"): "Spot Compression",
-    ("399197002", "SCT"): "Rolled Lateral",
-    ("399226006", "SCT"): "Rolled Medial",
-    ("415670009", "SCT"): "Rolled Superior",
-    ("414493004", "SCT"): "Rolled Inferior",
-    ("399110001", "SCT"): "tangential",
-    ("399161006", "SCT"): "Cleavage",
-    ("399011000", "SCT"): "Axillary Tail",
-    ("399209000", "SCT"): "Implant Displaced",
-    ("442581004", "SCT"): "Nipple in profile",
-    ("441752004", "SCT"): "Anterior compression",
-    ("442593008", "SCT"): "Infra-mammary fold",
-    ("442580003", "SCT"): "Axillary tissue",
-}
+# dictionary, generated from PS3.16, lists them): (code, meaning, whether a workup view). The
+# modifiers of a workup view (magnification, spot compression, rolled and tangential views)
+# belong to a diagnostic examination and not to screening (common practice); the others (implant
+# displaced, cleavage, axillary tail, nipple in profile, ...) are taken in screening too and say
+# neither.
+_VIEW_MODIFIER_ROWS: tuple[tuple[CodeKey, str, bool], ...] = (
+    (("399163009", "SCT"), "Magnification", True),
+    (("399055006", "SCT"), "Spot Compression", True),
+    (("399197002", "SCT"), "Rolled Lateral", True),
+    (("399226006", "SCT"), "Rolled Medial", True),
+    (("415670009", "SCT"), "Rolled Superior", True),
+    (("414493004", "SCT"), "Rolled Inferior", True),
+    (("399110001", "SCT"), "tangential", True),
+    (("399161006", "SCT"), "Cleavage", False),
+    (("399011000", "SCT"), "Axillary Tail", False),
+    (("399209000", "SCT"), "Implant Displaced", False),
+    (("442581004", "SCT"), "Nipple in profile", False),
+    (("441752004", "SCT"), "Anterior compression", False),
+    (("442593008", "SCT"), "Infra-mammary fold", False),
+    (("442580003", "SCT"), "Axillary tissue", False),
+)
+#: every CID 4015 modifier, by code: its meaning
+MAMMOGRAPHY_VIEW_MODIFIERS: dict[CodeKey, str] = {c: m for c, m, _ in _VIEW_MODIFIER_ROWS}
 #: the CID 4015 modifiers of a diagnostic workup view (common practice)
 MAMMOGRAPHY_DIAGNOSTIC_VIEW_MODIFIERS: frozenset[CodeKey] = frozenset(
-    {
-        ("399163009", "SCT"),  # Magnification
-        ("399055006", "SCT"),  # Spot Compression
-        ("399197002", "SCT"),  # Rolled Lateral
-        ("399226006", "SCT"),  # Rolled Medial
-        ("415670009", "SCT"),  # Rolled Superior
-        ("414493004", "SCT"),  # Rolled Inferior
-        ("399110001", "SCT"),  # tangential
-    }
+    c for c, _, workup in _VIEW_MODIFIER_ROWS if workup
 )
 _SCREENING_WORDS = re.compile(r"screen", re.IGNORECASE)
 _DIAGNOSTIC_WORDS = re.compile(r"diagnos|symptom|assess|recall|work-?up", re.IGNORECASE)

@@ -66,7 +66,6 @@ def standard_mammogram(*, instance: int = 1) -> Dataset:
     ds.PatientID = "MG-STD-0001"
     ds.PatientBirthDate = "19670301"
     ds.PatientSex = "F"
-    ds.PatientAge = VALUES["PatientAge"]
     # General Study
     ds.StudyDate, ds.StudyTime = "20240312", "101500"
     ds.AccessionNumber = "ACC-MG-1"
@@ -106,11 +105,9 @@ def standard_mammogram(*, instance: int = 1) -> Dataset:
     ds.PresentationLUTShape = "IDENTITY"
     ds.PixelData = (np.arange(256, dtype=np.uint16) * 16).tobytes()
     # DX Anatomy Imaged, Mammography Image, DX Positioning
-    ds.ImageLaterality = VALUES["ImageLaterality"]
     ds.AnatomicRegionSequence = Sequence([_code("76752008", "SCT", "Breast")])  # CID 4013
     ds.PositionerType = "MAMMOGRAPHIC"
     ds.OrganExposed = "BREAST"
-    ds.BreastImplantPresent = VALUES["BreastImplantPresent"]
     view = _code("399162004", "SCT", "cranio-caudal")  # CID 4014
     view.ViewModifierCodeSequence = Sequence([])  # Type 2: no modifier
     ds.ViewCodeSequence = Sequence([view])  # (no View Position: its defined terms are DX's)
@@ -120,26 +117,11 @@ def standard_mammogram(*, instance: int = 1) -> Dataset:
     # Acquisition Context (Type 2: empty)
     ds.AcquisitionContextSequence = Sequence([])
     # X-Ray Acquisition Dose, X-Ray Generation, X-Ray Filtration, X-Ray Grid (all Type 3)
-    ds.KVP = VALUES["KVP"]
-    ds.ExposureInuAs = VALUES["ExposureInuAs"]
-    ds.Exposure = VALUES["Exposure"]
-    ds.ExposureTime = VALUES["ExposureTime"]
-    ds.XRayTubeCurrent = VALUES["XRayTubeCurrent"]
-    ds.AnodeTargetMaterial = VALUES["AnodeTargetMaterial"]
+    # and Patient Age (Patient Study), Image Laterality (DX Anatomy Imaged, Type 1) and Breast
+    # Implant Present (Mammography Image)
+    for keyword, value in VALUES.items():
+        setattr(ds, keyword, value)
     ds.ExposureControlMode = "AUTOMATIC"
-    ds.FilterMaterial = VALUES["FilterMaterial"]
-    ds.FilterThicknessMinimum = VALUES["FilterThicknessMinimum"]
-    ds.FilterThicknessMaximum = VALUES["FilterThicknessMaximum"]
-    ds.Grid = VALUES["Grid"]
-    ds.BodyPartThickness = VALUES["BodyPartThickness"]
-    ds.CompressionForce = VALUES["CompressionForce"]
-    ds.OrganDose = VALUES["OrganDose"]
-    ds.EntranceDoseInmGy = VALUES["EntranceDoseInmGy"]
-    ds.HalfValueLayer = VALUES["HalfValueLayer"]
-    ds.DistanceSourceToDetector = VALUES["DistanceSourceToDetector"]
-    meta = FileMetaDataset()
-    meta.MediaStorageSOPClassUID = ds.SOPClassUID
-    meta.MediaStorageSOPInstanceUID = ds.SOPInstanceUID
-    meta.TransferSyntaxUID = ExplicitVRLittleEndian
-    ds.file_meta = meta
+    ds.file_meta = FileMetaDataset()  # the rest is written from the dataset on saving
+    ds.file_meta.TransferSyntaxUID = ExplicitVRLittleEndian
     return ds
