@@ -46,7 +46,7 @@ from .errors import IngestError
 from .events import ExposureEvent, FilterLayer
 from .mapping import FieldMapping, header_rows_by_field
 
-__all__ = ["CT_SCAN_MODES", "header_events"]
+__all__ = ["CT_SCAN_MODES", "header_events", "procedure_intent"]
 
 # (0018,9302) AcquisitionType Defined Terms (PS3.3 C.8.15.3.2) and (0018,0022) ScanOptions
 # values seen in pydicom's test files (GE); anything else is kept unmapped, with a note.
@@ -524,16 +524,18 @@ def _read_mammography(
 
 
 _VIEW_CODE_SEQUENCE = 0x00540220
-_REQUEST_ATTRIBUTES_SEQUENCE = 0x00400275
+#: where a requested procedure code sits: an image's Request Attributes Sequence (General Series,
+#: Mammography Series modules), an SR document's Referenced Request Sequence (SR Document General)
+_REQUEST_SEQUENCES = (0x00400275, 0x0040A370)
 
 
-def _code_items(views: list[ValueReader], tag: int, within: int | None = None) -> list[Dataset]:
+def _code_items(views: list[ValueReader], tag: int, within: tuple[int, ...] = ()) -> list[Dataset]:
     """The items of sequence ``tag`` in the nearest view that has any, looked for at the view's
-    top level and in the items of sequence ``within``."""
+    top level and in the items of the sequences ``within``."""
     for view in views:
         items = list(view.sequence(tag))
-        if within is not None:
-            for outer in view.sequence(within):
+        for outer_tag in within:
+            for outer in view.sequence(outer_tag):
                 items.extend(view.child(outer).sequence(tag))
         if items:
             return items
@@ -556,15 +558,13 @@ def _read_intent(sink: FieldSink, views: list[ValueReader]) -> None:
     1. a View Modifier Code Sequence (0054,0222) item (in View Code Sequence (0054,0220), PS3.3
        C.8.11.7 Mammography Image module) of a workup view of CID 4015 (magnification, spot
        compression, rolled or tangential): diagnostic, whatever the procedure says;
-    2. the meaning of a Procedure Code Sequence (0008,1032) item (the procedure performed);
-    3. the meaning of a Requested Procedure Code Sequence (0032,1064) item (the procedure
-       asked for; also in Request Attributes Sequence (0040,0275)).
+    2. the procedure codes' meanings, :func:`procedure_intent`.
 
     A procedure code whose meaning names both or neither says nothing; the mapping rules'
     description fallbacks then decide (``api/data/mapping_rules.csv``)."""
-    modifier_row, procedure_row, requested_row = header_rows_by_field()["mammography_intent"]
-    assert modifier_row.tag is not None
-    for item in _code_items(views, modifier_row.tag, _VIEW_CODE_SEQUENCE):
+    modifier_row = header_rows_by_field()["mammography_intent"][0]
+    assert modifier_row.tag is not None and modifier_row.keyword == "ViewModifierCodeSequence"
+    for item in _code_items(views, modifier_row.tag, (_VIEW_CODE_SEQUENCE,)):
         found = _coded(item)
         if found is not None and found[0] in MAMMOGRAPHY_DIAGNOSTIC_VIEW_MODIFIERS:
             code, meaning = found
@@ -572,8 +572,21 @@ def _read_intent(sink: FieldSink, views: list[ValueReader]) -> None:
             label = f"{modifier_row.label} ({code[0]}, {code[1]}) {meaning or name}"
             sink.put("mammography_intent", "diagnostic", label)
             return
-    for row, within in ((procedure_row, None), (requested_row, _REQUEST_ATTRIBUTES_SEQUENCE)):
+    found_intent = procedure_intent(views)
+    if found_intent is not None:
+        sink.put("mammography_intent", *found_intent)
+
+
+def procedure_intent(views: list[ValueReader]) -> tuple[str, str] | None:
+    """``(intent, provenance)`` from the meaning of the first procedure code that says
+    screening or diagnostic (:func:`~beamaudit.ingest.codes.intent_from_words`), in this order:
+    Performed Procedure Code Sequence (0040,A372) (SR Document General module), Procedure Code
+    Sequence (0008,1032) (General Study), Requested Procedure Code Sequence (0032,1064) at the
+    top level or in Request Attributes Sequence (0040,0275) (an image's General Series) or
+    Referenced Request Sequence (0040,A370) (an SR document); None when none says one."""
+    for row in header_rows_by_field()["mammography_intent"][1:]:
         assert row.tag is not None
+        within = _REQUEST_SEQUENCES if row.keyword == "RequestedProcedureCodeSequence" else ()
         for item in _code_items(views, row.tag, within):
             found = _coded(item)
             if found is None:
@@ -581,10 +594,8 @@ def _read_intent(sink: FieldSink, views: list[ValueReader]) -> None:
             intent = intent_from_words(found[1])
             if intent is not None:
                 code, meaning = found
-                sink.put(
-                    "mammography_intent", intent, f"{row.label} ({code[0]}, {code[1]}) {meaning}"
-                )
-                return
+                return intent, f"{row.label} ({code[0]}, {code[1]}) {meaning}"
+    return None
 
 
 def _read_projections(sink: FieldSink, acquisition: ValueReader) -> None:

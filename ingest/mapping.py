@@ -291,11 +291,13 @@ MAPPING: tuple[FieldMapping, ...] = (
     _h("mammography_acquisition", "ImageType", 0x00080008, "CS", rank=1),
     # screening or diagnostic (ingest/headers.py::_read_intent, in this order): a CID 4015 view
     # modifier of a workup view (in View Code Sequence (0054,0220)), then the meaning of a
-    # performed, then of a requested procedure code (the latter also in Request Attributes
-    # Sequence (0040,0275))
+    # performed procedure code (an SR document's Performed Procedure Code Sequence, then the
+    # study's Procedure Code Sequence), then of a requested one (also in Request Attributes
+    # Sequence (0040,0275) of an image, Referenced Request Sequence (0040,A370) of an SR)
     _h("mammography_intent", "ViewModifierCodeSequence", 0x00540222, "SQ"),
-    _h("mammography_intent", "ProcedureCodeSequence", 0x00081032, "SQ", rank=1),
-    _h("mammography_intent", "RequestedProcedureCodeSequence", 0x00321064, "SQ", rank=2),
+    _h("mammography_intent", "PerformedProcedureCodeSequence", 0x0040A372, "SQ", rank=1),
+    _h("mammography_intent", "ProcedureCodeSequence", 0x00081032, "SQ", rank=2),
+    _h("mammography_intent", "RequestedProcedureCodeSequence", 0x00321064, "SQ", rank=3),
     # ---- dose report: document level (TID 10001 / 10011 and TID 1002 observer context)
     _c("document", "procedure_reported", "121058", "Procedure reported", "CODE"),
     # HAS CONCEPT MOD of Procedure reported (TID 10001 row 3), CID 3629: read below it

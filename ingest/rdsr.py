@@ -615,22 +615,24 @@ def rdsr_events(
         fields.update(values)
         fields["modality_family"] = family
         fields["modality"] = "CT" if family == "ct" else ("MG" if is_mammo else None)
+        event_prov = dict(provenance)
+        event_prov.update(sink.provenance)
         if is_mammo and family == "projection":
             _mammography_acquisition(fields, sink)
-            if "mammography_intent" not in values and "mammography_intent" in doc.values:
-                # an event's own workup-view modifier first, then the report's intent
+            event_prov.update(sink.provenance)
+            if fields.get("mammography_intent") is None and "mammography_intent" in doc.values:
+                # an event's own workup-view modifier first, then the report's procedure codes
+                # (in base, from its header), then its Has Intent
                 fields["mammography_intent"] = doc.values["mammography_intent"]
-                sink.provenance["mammography_intent"] = doc.provenance["mammography_intent"]
+                event_prov["mammography_intent"] = doc.provenance["mammography_intent"]
         else:
             fields.pop("mammography_intent", None)
-            sink.provenance.pop("mammography_intent", None)
+            event_prov.pop("mammography_intent", None)
         guided = fields.get("acquisition_device_type") == "fluoroscopy_guided"
         if fields["modality"] is None and (guided or fields.get("event_type") == "fluoroscopy"):
             # a fluoroscopy-guided system's report (CID 10032 113957): the room is RF/XA; RF is
             # what the mapping rules of fluoroscopic examinations look for
             fields["modality"] = "RF"
-        event_prov = dict(provenance)
-        event_prov.update(sink.provenance)
         events.append(
             ExposureEvent(
                 event_key=event_key,

@@ -212,3 +212,60 @@ def test_an_events_workup_view_modifier_comes_before_the_reports_intent() -> Non
     assert events[0].provenance["mammography_intent"] == (
         "(111032, DCM) Image View Modifier = (399055006, SCT) Spot Compression"
     )
+
+
+def _report_with(**attributes: object) -> list[ExposureEvent]:
+    ds = mammography_report(
+        [MammoEvent(), MammoEvent(view_modifiers=(SPOT_COMPRESSION,), left=False)],
+        intent=SCREENING_INTENT,
+    )
+    for keyword, value in attributes.items():
+        setattr(ds, keyword, value)
+    return read_dataset(ds, pseudonymiser=PSEUDONYMISER, source="direct").events
+
+
+def test_a_reports_performed_procedure_code_comes_before_its_has_intent() -> None:
+    # SR Document General module (PS3.3 C.17.2): Performed Procedure Code Sequence (0040,A372)
+    events = _report_with(
+        PerformedProcedureCodeSequence=Sequence([_code("MGD1", "99LOCAL", "Diagnostic mammogram")])
+    )
+    assert [e.mammography_intent for e in events] == ["diagnostic", "diagnostic"]
+    assert events[0].provenance["mammography_intent"] == (
+        "(0040,A372) PerformedProcedureCodeSequence (MGD1, 99LOCAL) Diagnostic mammogram"
+    )
+    assert "Spot Compression" in events[1].provenance["mammography_intent"]  # its own clue
+
+
+def test_a_reports_requested_procedure_in_its_referenced_request() -> None:
+    # SR Document General: Referenced Request Sequence (0040,A370) > Requested Procedure Code
+    # Sequence (0032,1064); Performed Procedure Code Sequence is Type 2 (present, empty)
+    request = Dataset()
+    request.StudyInstanceUID = "1.2.826.0.1.3680043.10.1407.9"
+    request.AccessionNumber = "A1"
+    request.RequestedProcedureDescription = "Mammography"
+    request.RequestedProcedureID = "RP1"
+    request.PlacerOrderNumberImagingServiceRequest = ""
+    request.FillerOrderNumberImagingServiceRequest = ""
+    request.RequestedProcedureCodeSequence = Sequence(
+        [_code("MGS1", "99LOCAL", "Symptomatic breast imaging")]
+    )
+    events = _report_with(
+        PerformedProcedureCodeSequence=Sequence([]),
+        ReferencedRequestSequence=Sequence([request]),
+    )
+    assert events[0].mammography_intent == "diagnostic"
+    assert (
+        events[0]
+        .provenance["mammography_intent"]
+        .startswith("(0032,1064) RequestedProcedureCodeSequence (MGS1, 99LOCAL)")
+    )
+
+
+def test_a_non_mammography_report_keeps_no_intent() -> None:
+    from rdsr_builders import radiography_report
+
+    ds = radiography_report()
+    ds.PerformedProcedureCodeSequence = Sequence([_code("X1", "99LOCAL", "Screening chest")])
+    events = read_dataset(ds, pseudonymiser=PSEUDONYMISER, source="direct").events
+    assert events and all(e.mammography_intent is None for e in events)
+    assert all("mammography_intent" not in e.provenance for e in events)
