@@ -65,7 +65,7 @@ class ListenerSettings(BaseModel):
     max_associations_per_ae: int = Field(default=4, ge=1, le=1000)
     #: TCP connections at once, associated or not yet
     max_connections: int = Field(default=64, ge=1, le=10000)
-    #: received objects decoded and stored at once
+    #: received objects decoded and spooled at once
     max_objects_in_flight: int = Field(default=4, ge=1, le=100)
     #: largest object accepted (1 GiB: a breast tomosynthesis object fits; its pixels stay on disk)
     max_object_bytes: int = Field(default=1024 * 1024 * 1024, ge=1024)
@@ -78,6 +78,14 @@ class ListenerSettings(BaseModel):
     #: seconds after a CT study's last image before its patient size (Dw) is computed from the
     #: images received (``beamaudit listen``; at its stop, every waiting study is sized)
     size_quiet_s: float = Field(default=30.0, gt=0, le=3600)
+    #: folder of the listener's spool (objects acknowledged, not yet stored); empty: beside the
+    #: SQLite database file, or beside the pseudonymisation key for PostgreSQL
+    spool_dir: Path | None = None
+    #: the spool's commits: "normal" keeps an acknowledged object through a crash of the
+    #: process (as the SQLite store's own commits), "full" through a crash of the machine too
+    spool_synchronous: Literal["normal", "full"] = "normal"
+    #: objects waiting in the spool past which new ones are refused (0xA700, sent again later)
+    max_spooled: int = Field(default=100_000, ge=1)
 
 
 class ApiSettings(BaseModel):

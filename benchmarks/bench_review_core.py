@@ -66,10 +66,10 @@ def synthetic_month(n: int) -> pd.DataFrame:
     frame["dap_gy_cm2"] = np.where(is_ct, np.nan, dap)
     frame["recon_dap_gy_cm2"] = frame["dap_gy_cm2"] * rng.normal(1.0, 0.08, n)
     frame["esak_mgy"] = np.where(is_ct, np.nan, dap * 1.3)
-    frame["ref_point_air_kerma_mgy"] = np.nan
+    frame["reference_point_air_kerma_mgy"] = np.nan
     frame["ctdivol_mgy"] = np.where(is_ct, rng.lognormal(np.log(30.0), 0.25, n), np.nan)
     frame["dlp_mgy_cm"] = np.where(is_ct, rng.lognormal(np.log(250.0), 0.3, n), np.nan)
-    frame["agd_mgy"] = np.nan
+    frame["mgd_mgy"] = np.nan
     frame["deviation_index"] = np.where(is_ct, np.nan, rng.normal(0.0, 1.0, n))
     frame["fluoro_time_s"] = np.nan
     return frame

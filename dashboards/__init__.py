@@ -46,6 +46,7 @@ from beamaudit.dashboards.pages import (
     unmapped_href,
 )
 from beamaudit.dashboards.records import parse_exam
+from beamaudit.dashboards.skin_image import SkinDoseImage, render_skin_dose_png
 from beamaudit.dashboards.tables import (
     ATTENTION,
     EVENTS,
@@ -79,6 +80,7 @@ __all__ = [
     "DashboardError",
     "ExamTypes",
     "PageContext",
+    "SkinDoseImage",
     "TableError",
     "TableSpec",
     "attention_from_flags",
@@ -105,6 +107,7 @@ __all__ = [
     "render_login",
     "render_overview",
     "render_room",
+    "render_skin_dose_png",
     "render_unmapped",
     "report_href",
     "room_href",

@@ -9,6 +9,7 @@ import math
 from collections.abc import Mapping, Sequence
 from datetime import datetime
 from typing import Any
+from urllib.parse import quote
 
 import pandas as pd
 
@@ -197,6 +198,11 @@ def skin_view(skin: Mapping[str, Any]) -> dict[str, Any]:
         "crossed": [c["text"] for c in skin.get("level_checks") or [] if c.get("crossed")],
         "assumptions": list((record or {}).get("assumptions") or []),
         "figure": figure,
+        "png_href": (
+            _web.SKIN_MAP_PNG_PATH.format(exam_id=int(skin["exam_id"]))
+            if figure is not None and skin.get("exam_id") is not None
+            else None
+        ),
     }
 
 
@@ -214,6 +220,13 @@ def followup_view(followup: Mapping[str, Any]) -> dict[str, Any]:
             "psd": _mgy(c["peak_skin_dose_mgy"]),
             "upper": _mgy(c["upper_bound_mgy"]),
             "added": "maps added" if str(c["method"]).startswith("maps_added") else "peaks added",
+            "map_href": (
+                _web.PATIENT_SKIN_MAP_PNG_PATH.format(
+                    patient=quote(str(c["patient_pseudo_id"]), safe="")
+                )
+                if str(c["method"]).startswith("maps_added")
+                else None
+            ),
         }
         for c in followup.get("cumulative") or []
     ]

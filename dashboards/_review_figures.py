@@ -22,8 +22,8 @@ EVENT_QUANTITIES: tuple[str, ...] = (
     "esak_mgy",
     "ctdivol_mgy",
     "dlp_mgy_cm",
-    "ref_point_air_kerma_mgy",
-    "agd_mgy",
+    "reference_point_air_kerma_mgy",
+    "mgd_mgy",
 )
 
 

@@ -74,6 +74,10 @@ _NAV = (
 
 #: The API path a flag's triage is sent to (``PATCH``, JSON ``{"status": ..., "note": ...}``).
 TRIAGE_PATH = "/api/v1/reviews/{run_id}/flags/{flag_id}"
+#: where a procedure's skin-dose map is served as a PNG image
+SKIN_MAP_PNG_PATH = "/api/v1/exams/{exam_id}/skin-dose/map.png"
+#: where a patient's cumulative skin-dose map is served as a PNG image (pseudonym URL-quoted)
+PATIENT_SKIN_MAP_PNG_PATH = "/api/v1/skin-doses/patients/{patient}/map.png"
 
 
 @dataclass(frozen=True)

@@ -35,8 +35,8 @@ DEFAULT_STUDY_RULES: dict[str, str] = {
     "dap_gy_cm2": "sum",
     "recon_dap_gy_cm2": "sum",
     "dlp_mgy_cm": "sum",
-    "ref_point_air_kerma_mgy": "sum",
-    "agd_mgy": "sum",
+    "reference_point_air_kerma_mgy": "sum",
+    "mgd_mgy": "sum",
     "ctdivol_mgy": "max",
     "esak_mgy": "max",
 }

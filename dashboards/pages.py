@@ -370,7 +370,8 @@ def render_exam(
         ``peak_skin_dose_mgy``, ``area_above_2gy_cm2`` / ``3gy`` / ``5gy``, ``uncertainty_pct``,
         ``events_used``, ``level_checks`` (each with ``crossed`` and ``text``),
         ``followup_status`` and ``record`` (the map record, drawn by
-        :func:`~beamaudit.dashboards.figures.build_skin_dose_map`).
+        :func:`~beamaudit.dashboards.figures.build_skin_dose_map`); with ``exam_id`` the
+        section links the map as a PNG image (``GET /api/v1/exams/{exam_id}/skin-dose/map.png``).
     """
     detail = parse_exam(exam)
     skin = _exam_page.skin_view(skin_dose) if skin_dose is not None else None

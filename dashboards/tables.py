@@ -57,8 +57,8 @@ The contracts
     ``event_datetime`` (UTC), ``room``, ``exam_type``, ``patient_weight_kg``,
     ``standard_patient`` (bool), ``kvp_kv``, ``exposure_mas``, ``dap_gy_cm2``
     (reported), ``recon_dap_gy_cm2`` (reconstructed), ``esak_mgy``,
-    ``ctdivol_mgy``, ``dlp_mgy_cm``, ``ref_point_air_kerma_mgy`` and optionally
-    ``agd_mgy`` (mean glandular dose); the dose columns may be empty where a
+    ``ctdivol_mgy``, ``dlp_mgy_cm``, ``reference_point_air_kerma_mgy`` and optionally
+    ``mgd_mgy`` (mean glandular dose); the dose columns may be empty where a
     modality does not give them.
 
 ``ROOM_HISTORY``
@@ -258,11 +258,11 @@ EVENTS = TableSpec(
         _dose("esak_mgy", "entrance surface air kerma"),
         _dose("ctdivol_mgy", "volume CT air kerma index"),
         _dose("dlp_mgy_cm", "CT air kerma-length product"),
-        _dose("ref_point_air_kerma_mgy", "air kerma at the reference point"),
+        _dose("reference_point_air_kerma_mgy", "air kerma at the reference point"),
         Column(
-            "agd_mgy",
+            "mgd_mgy",
             "float",
-            "agd_mgy",
+            "mgd_mgy",
             "mean glandular dose",
             required=False,
             nullable=True,

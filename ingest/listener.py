@@ -327,6 +327,13 @@ class ListenerConfig:
         aborted as soon as it passes the limit. Objects are received into temporary files
         (pynetdicom's chunked receiving), never whole into memory, and only the header before
         Pixel Data is read.
+    decode_values : bool
+        Decode every element's value before the handler runs, and answer 0xC000 for a value
+        that cannot be decoded. False leaves the values to the handler (which must then record
+        such an object itself): a handler that answers once the object is spooled and parses
+        it later saves the decoding, about as long as pynetdicom's own work on a small header.
+        The data set is always read to Pixel Data (a truncated or misframed one is refused)
+        and its UIDs checked.
     """
 
     ae_title: str = "BEAMAUDIT"
@@ -349,6 +356,7 @@ class ListenerConfig:
     max_connections: int = 64
     max_objects_in_flight: int = 4
     max_object_bytes: int = 1024 * 1024 * 1024
+    decode_values: bool = True
 
     def __post_init__(self) -> None:
         _check_ae_title(self.ae_title, "ae_title")
@@ -451,18 +459,29 @@ def _read_received(event: evt.Event) -> tuple[Dataset, bytes]:
     return dataset, encoded
 
 
-def _decode(event: evt.Event) -> tuple[ReceivedObject | None, StoreOutcome | None]:
-    """Decode the request into a ReceivedObject, or say why it cannot be understood."""
+def _decode(
+    event: evt.Event, decode_values: bool = True
+) -> tuple[ReceivedObject | None, StoreOutcome | None]:
+    """Decode the request into a ReceivedObject, or say why it cannot be understood.
+
+    The data set is read to Pixel Data (every element's tag, VR and length: a truncated or
+    misframed data set is refused) and its SOP Class and Instance UIDs checked; with
+    ``decode_values`` every element's value is decoded too (a value that cannot be is refused).
+    """
     request = event.request
     requested_class = str(getattr(request, "AffectedSOPClassUID", "") or "")
     requested_instance = str(getattr(request, "AffectedSOPInstanceUID", "") or "")
     try:
         dataset, encoded = _read_received(event)
-        dataset.file_meta = event.file_meta
-        # pydicom parses lazily: walk every element now, so a malformed data set is refused here
-        # rather than half-read by the handler.
-        for _ in dataset.iterall():
-            pass
+        if not getattr(dataset, "file_meta", None):
+            # (read from pynetdicom's file, the data set has the file meta pynetdicom wrote
+            # there from the same presentation context: not made a second time)
+            dataset.file_meta = event.file_meta
+        if decode_values:
+            # pydicom decodes values lazily: walk every element now, so a malformed data set is
+            # refused here rather than half-read by the handler.
+            for _ in dataset.iterall():
+                pass
         sop_class_uid = str(dataset.get("SOPClassUID", "") or "")
         sop_instance_uid = str(dataset.get("SOPInstanceUID", "") or "")
     except Exception as exc:  # any decoding failure of a peer's bytes is answered, not raised
@@ -514,6 +533,7 @@ def _handle_store(
     """EVT_C_STORE: decode, call the handler, map its outcome onto a C-STORE status."""
     if guard is None:
         return _store_one(event, handler, on_rejected)
+    decode_values = guard.config.decode_values
     guard.object_done(event.assoc)
     # half the idle limit: the refusal reaches the sender well before its association would
     # count as silent
@@ -523,7 +543,7 @@ def _handle_store(
                      guard.config.max_objects_in_flight)  # fmt: skip
         return _status_dataset(StoreOutcome.refused("busy: too many objects at once; retry"))
     try:
-        return _store_one(event, handler, on_rejected)
+        return _store_one(event, handler, on_rejected, decode_values)
     finally:
         guard.in_flight.release()
         _restart_idle_timer(event.assoc)
@@ -538,9 +558,12 @@ def _restart_idle_timer(assoc: Any) -> None:
 
 
 def _store_one(
-    event: evt.Event, handler: StoreHandler, on_rejected: RejectHandler | None
+    event: evt.Event,
+    handler: StoreHandler,
+    on_rejected: RejectHandler | None,
+    decode_values: bool = True,
 ) -> Dataset:
-    received, outcome = _decode(event)
+    received, outcome = _decode(event, decode_values)
     uid = str(getattr(event.request, "AffectedSOPInstanceUID", "") or "?")
     if received is None and on_rejected is not None and outcome is not None:
         _tell_rejected(event, outcome, on_rejected)

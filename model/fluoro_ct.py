@@ -153,25 +153,45 @@ def accumulate_projection_events(
             assumed=True,
             note=f"{untyped} event(s) without an event type counted as acquisitions",
         )
+    totals, missing = _event_totals(trail, checked, fluoro, acquisition)
+    comparisons = _compare_totals(
+        totals,
+        {
+            "dap_total_gy_cm2": reported_dap_total_gy_cm2,
+            "reference_point_air_kerma_total_mgy": reported_reference_point_air_kerma_total_mgy,
+            "fluoro_time_total_s": reported_fluoro_time_total_s,
+        },
+        reported_source,
+    )
+    return ProjectionAccumulation(
+        number_of_events=len(checked),
+        number_of_fluoro_events=len(fluoro),
+        number_of_acquisition_events=len(acquisition),
+        **totals,
+        missing=missing,
+        comparisons=comparisons,
+        trail=trail,
+    )
+
+
+def _event_totals(
+    trail: WhyTrail,
+    checked: list[ProjectionEvent],
+    fluoro: list[ProjectionEvent],
+    acquisition: list[ProjectionEvent],
+) -> tuple[dict[str, float | None], dict[str, int]]:
+    """Each total of :class:`ProjectionAccumulation` over the events that carry its value, with
+    the number of events that lack it (a total with missing events is a lower bound)."""
     missing: dict[str, int] = {}
     totals: dict[str, float | None] = {}
+    kar = "reference_point_air_kerma_mgy"
     specs = (
         ("dap_total_gy_cm2", checked, "dap_gy_cm2", "Gy·cm²"),
         ("fluoro_dap_total_gy_cm2", fluoro, "dap_gy_cm2", "Gy·cm²"),
         ("acquisition_dap_total_gy_cm2", acquisition, "dap_gy_cm2", "Gy·cm²"),
-        ("reference_point_air_kerma_total_mgy", checked, "reference_point_air_kerma_mgy", "mGy"),
-        (
-            "fluoro_reference_point_air_kerma_total_mgy",
-            fluoro,
-            "reference_point_air_kerma_mgy",
-            "mGy",
-        ),
-        (
-            "acquisition_reference_point_air_kerma_total_mgy",
-            acquisition,
-            "reference_point_air_kerma_mgy",
-            "mGy",
-        ),
+        ("reference_point_air_kerma_total_mgy", checked, kar, "mGy"),
+        ("fluoro_reference_point_air_kerma_total_mgy", fluoro, kar, "mGy"),
+        ("acquisition_reference_point_air_kerma_total_mgy", acquisition, kar, "mGy"),
         ("fluoro_time_total_s", fluoro, "irradiation_duration_s", "s"),
         ("acquisition_time_total_s", acquisition, "irradiation_duration_s", "s"),
     )
@@ -195,48 +215,37 @@ def accumulate_projection_events(
                 else None
             ),
         )
+    return totals, missing
+
+
+_TOTAL_UNITS = {
+    "dap_total_gy_cm2": "Gy·cm²",
+    "reference_point_air_kerma_total_mgy": "mGy",
+    "fluoro_time_total_s": "s",
+}
+
+
+def _compare_totals(
+    totals: dict[str, float | None],
+    reported_totals: dict[str, float | None],
+    reported_source: str,
+) -> list[ReportedVsReconstructed]:
+    """The report's own totals beside the sums over its events, where both are positive."""
     comparisons = []
-    for quantity, unit, reported, ours in (
-        ("dap_total_gy_cm2", "Gy·cm²", reported_dap_total_gy_cm2, totals["dap_total_gy_cm2"]),
-        (
-            "reference_point_air_kerma_total_mgy",
-            "mGy",
-            reported_reference_point_air_kerma_total_mgy,
-            totals["reference_point_air_kerma_total_mgy"],
-        ),
-        ("fluoro_time_total_s", "s", reported_fluoro_time_total_s, totals["fluoro_time_total_s"]),
-    ):
+    for quantity, reported in reported_totals.items():
+        ours = totals[quantity]
         if reported is not None and ours is not None and reported > 0 and ours > 0:
             comparisons.append(
                 compare_reported(
                     quantity=quantity,
-                    unit=unit,
+                    unit=_TOTAL_UNITS[quantity],
                     reported=reported,
                     reconstructed=ours,
                     reported_source=reported_source,
                     note="reconstructed = sum over the events",
                 )
             )
-    return ProjectionAccumulation(
-        number_of_events=len(checked),
-        number_of_fluoro_events=len(fluoro),
-        number_of_acquisition_events=len(acquisition),
-        dap_total_gy_cm2=totals["dap_total_gy_cm2"],
-        fluoro_dap_total_gy_cm2=totals["fluoro_dap_total_gy_cm2"],
-        acquisition_dap_total_gy_cm2=totals["acquisition_dap_total_gy_cm2"],
-        reference_point_air_kerma_total_mgy=totals["reference_point_air_kerma_total_mgy"],
-        fluoro_reference_point_air_kerma_total_mgy=totals[
-            "fluoro_reference_point_air_kerma_total_mgy"
-        ],
-        acquisition_reference_point_air_kerma_total_mgy=totals[
-            "acquisition_reference_point_air_kerma_total_mgy"
-        ],
-        fluoro_time_total_s=totals["fluoro_time_total_s"],
-        acquisition_time_total_s=totals["acquisition_time_total_s"],
-        missing=missing,
-        comparisons=comparisons,
-        trail=trail,
-    )
+    return comparisons
 
 
 @dataclass(frozen=True, slots=True)

@@ -366,6 +366,232 @@ def _normalised_angle(deg: float) -> float:
     return (deg + 180.0) % 360.0 - 180.0
 
 
+@dataclass(frozen=True)
+class _ProcedureFrame:
+    """What holds for every event of one procedure: the patient's position on the table, the
+    landmark at the isocentre, the tabletop and the table's reference positions."""
+
+    m: FloatArray  # columns: the room directions of the patient's l, s, a (untilted)
+    p0: FloatArray  # the isocentre's point in the patient frame at the reference position
+    vertical_patient: FloatArray  # room "up" in the patient frame, untilted
+    half_vertical_mm: float  # the body's half-size along room "up"
+    mattress_mm: float
+    table_top_ref_mm: float  # the tabletop's height at the reference table position
+    refs: dict[str, float | None]  # the table's reference positions (lateral, longitudinal, height)
+    table_width_mm: float
+    notes: list[str]
+
+
+def _patient_position_notes(events: Sequence[SkinEvent]) -> tuple[FloatArray, list[str]]:
+    """The patient's orientation matrix (from the first event that records a position), with
+    notes on upright patients and on events that record different positions."""
+    first = next((e for e in events if e.patient_table_relationship), None)
+    relationship = first.patient_table_relationship if first else None
+    first = next((e for e in events if e.patient_orientation_modifier), None)
+    modifier = first.patient_orientation_modifier if first else None
+    m, notes = orientation_matrix(relationship, modifier)
+    upright = sorted({e.patient_orientation or "" for e in events} & {"erect", "semi_erect"})
+    if upright:
+        notes.append(
+            f"patient recorded {' and '.join(upright).replace('_', '-')}: modelled lying on the "
+            "table all the same (no standing or sitting patient model)"
+        )
+    positions = {
+        (e.patient_table_relationship, e.patient_orientation_modifier)
+        for e in events
+        if e.patient_table_relationship or e.patient_orientation_modifier
+    }
+    if len(positions) > 1:
+        notes.append("the events record different patient positions: the first used")
+    return m, notes
+
+
+def _isocentre_landmark(events: Sequence[SkinEvent], room: SkinRoom, notes: list[str]) -> str:
+    """The body landmark taken to lie at the isocentre: the room's, else the target region's,
+    else the middle of the trunk (noted)."""
+    if room.isocenter_landmark is not None:
+        return room.isocenter_landmark
+    region = next((e.body_part for e in events if e.body_part), None)
+    landmark = landmark_for_region(region)
+    if landmark is None:
+        notes.append(
+            "no target region: the middle of the trunk taken to lie at the isocentre "
+            "(placing the map along the body only)"
+        )
+        return "trunk"
+    notes.append(
+        f"the {landmark} (target region {region}) taken to lie at the isocentre "
+        "at the reference table position (placing the map along the body only)"
+    )
+    return landmark
+
+
+def _procedure_frame(
+    events: Sequence[SkinEvent], patient: PatientModel, room: SkinRoom
+) -> _ProcedureFrame:
+    """The patient on the table for the whole procedure (module docstring, **Table**)."""
+    m, notes = _patient_position_notes(events)
+    landmark = _isocentre_landmark(events, room, notes)
+    y_land = body_landmark_fraction(landmark) * patient.height_mm
+    vertical_patient = m.T @ _Z
+    half_vertical = (
+        patient.half_thickness_mm if abs(vertical_patient[2]) > 0.5 else patient.half_width_mm
+    )
+    mattress = room.mattress_thickness_mm
+    if mattress is None:
+        default = skin_default("mattress_thickness_mm")
+        mattress = default.value
+        notes.append(
+            f"table pad thickness {default.value:g} mm assumed under the skin "
+            "(a thicker pad would lower the back's dose from an under-table tube)"
+        )
+    if room.table_top_below_isocenter_mm is None:
+        table_top_ref = -(half_vertical + mattress)
+        notes.append("patient taken as centred on the isocentre at the reference table position")
+    else:
+        table_top_ref = -room.table_top_below_isocenter_mm
+    refs: dict[str, float | None] = {
+        "longitudinal": room.reference_longitudinal_mm,
+        "lateral": room.reference_lateral_mm,
+        "height": room.reference_height_mm,
+    }
+    for axis, value in refs.items():
+        if value is None:
+            refs[axis] = _median([getattr(e, f"table_{axis}_position_mm") for e in events])
+            if refs[axis] is not None:
+                notes.append(
+                    f"table {axis} reference: the median over the procedure (the room gives none)"
+                )
+    return _ProcedureFrame(
+        m=m,
+        p0=np.array([0.0, -y_land, 0.0]),
+        vertical_patient=vertical_patient,
+        half_vertical_mm=half_vertical,
+        mattress_mm=mattress,
+        table_top_ref_mm=table_top_ref,
+        refs=refs,
+        table_width_mm=room.table_width_mm or skin_default("table_width_mm").value,
+        notes=notes,
+    )
+
+
+def _event_step_count(ev: SkinEvent, notes: _Notes) -> int:
+    """Into how many beams an event is cut: by its table travel and, for a rotational
+    acquisition, by its arc (the defaults' stepping and rotational steps)."""
+    steps_mm = skin_default("stepping_step_mm").value
+    n = max(
+        _steps(
+            getattr(ev, f"table_{a}_position_mm"),
+            getattr(ev, f"table_{a}_end_position_mm"),
+            steps_mm,
+        )
+        for a in ("longitudinal", "lateral", "height")
+    )
+    if ev.event_type == "rotational":
+        steps_deg = skin_default("rotational_step_deg").value
+        if ev.positioner_primary_end_angle_deg is None:
+            notes.add("rotational acquisition without an end angle: taken at its start angle")
+        for start, end in (
+            (ev.positioner_primary_angle_deg, ev.positioner_primary_end_angle_deg),
+            (ev.positioner_secondary_angle_deg, ev.positioner_secondary_end_angle_deg),
+        ):
+            n = max(n, _steps(start, end, steps_deg))
+    return n
+
+
+_Step = tuple[FloatArray, FloatArray, FloatArray, FloatArray, float]
+
+
+def _event_beam_at(
+    ev: SkinEvent,
+    frac: float,
+    *,
+    frame: _ProcedureFrame,
+    room: SkinRoom,
+    sod: float,
+    sid: float,
+    notes: _Notes,
+) -> _Step | str:
+    """One beam of an event at ``frac`` of its travel, in the patient frame: the focus, the
+    central ray, the receptor's axes and the focus to reference point distance; or the reason
+    the reference point cannot be placed."""
+    m = frame.m
+    alpha = _normalised_angle(
+        _lerp(ev.positioner_primary_angle_deg, ev.positioner_primary_end_angle_deg, frac) or 0.0
+    )
+    beta = (
+        _lerp(ev.positioner_secondary_angle_deg, ev.positioner_secondary_end_angle_deg, frac) or 0.0
+    )
+    u = detector_direction(alpha, beta)
+    e_u, e_v = detector_axes(alpha, beta)
+    d_room = m @ u
+    source_room = -sod * d_room
+    shift = []
+    for axis, sign in (
+        ("lateral", room.lateral_sign),
+        ("longitudinal", room.longitudinal_sign),
+        ("height", room.height_sign),
+    ):
+        pos = _lerp(
+            getattr(ev, f"table_{axis}_position_mm"),
+            getattr(ev, f"table_{axis}_end_position_mm"),
+            frac,
+        )
+        ref = frame.refs[axis]
+        shift.append(0.0 if pos is None or ref is None else sign * (pos - ref))
+    table_top = frame.table_top_ref_mm + shift[2]
+    if ev.source_to_table_mm is not None and abs(d_room[2]) >= math.cos(
+        math.radians(_VERTICAL_WITHIN_DEG)
+    ):
+        table_top = source_room[2] + ev.source_to_table_mm * d_room[2]
+        notes.add("tabletop placed by the Distance Source to Table Plane (113792, DCM)")
+    centre = np.array([shift[0], shift[1], table_top + frame.mattress_mm + frame.half_vertical_mm])
+    pivot = np.array([shift[0], shift[1], table_top])
+    tilt = _tilt(ev.table_head_tilt_angle_deg or 0.0)
+    # room -> patient frame: p = M^T (R^T (X - pivot) + pivot - centre) + p0
+    source_p = m.T @ (tilt.T @ (source_room - pivot) + pivot - centre) + frame.p0
+    to_patient = m.T @ tilt.T @ m
+    d_ref = _reference_distance(
+        ev, sod, sid, float(source_room[2]), float(d_room[2]), table_top, notes
+    )
+    if isinstance(d_ref, str):
+        return d_ref
+    if not (0.0 < d_ref < sid):
+        return (
+            f"reference point {d_ref:g} mm from the focus is not between the focus and the receptor"
+        )
+    return source_p, to_patient @ u, to_patient @ e_u, to_patient @ e_v, d_ref
+
+
+def _event_beams(
+    ev: SkinEvent, *, frame: _ProcedureFrame, room: SkinRoom, notes: _Notes
+) -> tuple[list[_Step], float, float, float] | str:
+    """An event's beams (one per step of its travel) with its focus-to-receptor distance and
+    field half-sides; or why the event cannot be placed."""
+    sod = _distance(
+        ev.source_to_isocenter_mm, room.source_to_isocenter_mm, "source_to_isocenter_mm", notes
+    )
+    sid = _distance(ev.sid_mm, room.sid_mm, "sid_mm", notes)
+    if sid <= sod:
+        return f"focus to receptor {sid:g} mm is not beyond the isocentre ({sod:g} mm)"
+    if ev.reference_point_air_kerma_mgy is None and not ev.dap_gy_cm2:
+        return "no K_a,r (113738, DCM) and no DAP"
+    if ev.positioner_primary_angle_deg is None or ev.positioner_secondary_angle_deg is None:
+        notes.add("positioner angles not recorded: 0° (receptor in front of the patient) assumed")
+    if ev.table_cradle_tilt_angle_deg or ev.table_horizontal_rotation_angle_deg:
+        notes.add("table cradle tilt and horizontal rotation not modelled")
+    n = _event_step_count(ev, notes)
+    steps: list[_Step] = []
+    for k in range(n):
+        frac = (k + 0.5) / n if n > 1 else 0.0
+        step = _event_beam_at(ev, frac, frame=frame, room=room, sod=sod, sid=sid, notes=notes)
+        if isinstance(step, str):
+            return step
+        steps.append(step)
+    hw, hh = _field_half_sides(ev, sid, steps[0][4], notes)
+    return steps, sid, hw, hh
+
+
 def resolve_beams(
     events: Sequence[SkinEvent], *, patient: PatientModel, room: SkinRoom
 ) -> ResolvedBeams:
@@ -375,184 +601,19 @@ def resolve_beams(
     point cannot be placed, are listed in ``skipped`` with the reason; never dropped silently.
     """
     notes = _Notes()
-    first = next((e for e in events if e.patient_table_relationship), None)
-    relationship = first.patient_table_relationship if first else None
-    first = next((e for e in events if e.patient_orientation_modifier), None)
-    modifier = first.patient_orientation_modifier if first else None
-    m, procedure_notes = orientation_matrix(relationship, modifier)
-    upright = sorted({e.patient_orientation or "" for e in events} & {"erect", "semi_erect"})
-    if upright:
-        procedure_notes.append(
-            f"patient recorded {' and '.join(upright).replace('_', '-')}: modelled lying on the "
-            "table all the same (no standing or sitting patient model)"
-        )
-    if (
-        len(
-            {
-                (e.patient_table_relationship, e.patient_orientation_modifier)
-                for e in events
-                if e.patient_table_relationship or e.patient_orientation_modifier
-            }
-        )
-        > 1
-    ):
-        procedure_notes.append("the events record different patient positions: the first used")
-    landmark = room.isocenter_landmark
-    if landmark is None:
-        region = next((e.body_part for e in events if e.body_part), None)
-        landmark = landmark_for_region(region)
-        if landmark is None:
-            landmark = "trunk"
-            procedure_notes.append(
-                "no target region: the middle of the trunk taken to lie at the isocentre "
-                "(placing the map along the body only)"
-            )
-        else:
-            procedure_notes.append(
-                f"the {landmark} (target region {region}) taken to lie at the isocentre "
-                "at the reference table position (placing the map along the body only)"
-            )
-    y_land = body_landmark_fraction(landmark) * patient.height_mm
-    vertical_patient = m.T @ _Z  # room "up" in the patient frame, untilted
-    half_vertical = (
-        patient.half_thickness_mm if abs(vertical_patient[2]) > 0.5 else patient.half_width_mm
-    )
-    mattress = room.mattress_thickness_mm
-    if mattress is None:
-        default = skin_default("mattress_thickness_mm")
-        mattress = default.value
-        procedure_notes.append(
-            f"table pad thickness {default.value:g} mm assumed under the skin "
-            "(a thicker pad would lower the back's dose from an under-table tube)"
-        )
-    if room.table_top_below_isocenter_mm is None:
-        table_top_ref = -(half_vertical + mattress)
-        procedure_notes.append(
-            "patient taken as centred on the isocentre at the reference table position"
-        )
-    else:
-        table_top_ref = -room.table_top_below_isocenter_mm
-    refs = {
-        "longitudinal": room.reference_longitudinal_mm,
-        "lateral": room.reference_lateral_mm,
-        "height": room.reference_height_mm,
-    }
-    for axis, value in refs.items():
-        if value is None:
-            refs[axis] = _median([getattr(e, f"table_{axis}_position_mm") for e in events])
-            if refs[axis] is not None:
-                procedure_notes.append(
-                    f"table {axis} reference: the median over the procedure (the room gives none)"
-                )
-    table_width = room.table_width_mm or skin_default("table_width_mm").value
-    p0 = np.array([0.0, -y_land, 0.0])
-    steps_deg = skin_default("rotational_step_deg").value
-    steps_mm = skin_default("stepping_step_mm").value
+    frame = _procedure_frame(events, patient, room)
     rows: dict[str, list[object]] = {
         k: [] for k in ("parent", "source", "axis", "e_u", "e_v", "sid", "hw", "hh", "dref", "kref")
     }
     skipped: list[tuple[int, str | None, str]] = []
     for index, ev in enumerate(events):
         notes.next_event()
-        sod = _distance(
-            ev.source_to_isocenter_mm, room.source_to_isocenter_mm, "source_to_isocenter_mm", notes
-        )
-        sid = _distance(ev.sid_mm, room.sid_mm, "sid_mm", notes)
-        if sid <= sod:
-            skipped.append(
-                (
-                    index,
-                    ev.label,
-                    f"focus to receptor {sid:g} mm is not beyond the isocentre ({sod:g} mm)",
-                )
-            )
+        beams = _event_beams(ev, frame=frame, room=room, notes=notes)
+        if isinstance(beams, str):
+            skipped.append((index, ev.label, beams))
             continue
+        steps, sid, hw, hh = beams
         kar = ev.reference_point_air_kerma_mgy
-        if kar is None and not ev.dap_gy_cm2:
-            skipped.append((index, ev.label, "no K_a,r (113738, DCM) and no DAP"))
-            continue
-        if ev.positioner_primary_angle_deg is None or ev.positioner_secondary_angle_deg is None:
-            notes.add(
-                "positioner angles not recorded: 0° (receptor in front of the patient) assumed"
-            )
-        if ev.table_cradle_tilt_angle_deg or ev.table_horizontal_rotation_angle_deg:
-            notes.add("table cradle tilt and horizontal rotation not modelled")
-        n = max(
-            _steps(
-                getattr(ev, f"table_{a}_position_mm"),
-                getattr(ev, f"table_{a}_end_position_mm"),
-                steps_mm,
-            )
-            for a in ("longitudinal", "lateral", "height")
-        )
-        if ev.event_type == "rotational":
-            if ev.positioner_primary_end_angle_deg is None:
-                notes.add("rotational acquisition without an end angle: taken at its start angle")
-            for start, end in (
-                (ev.positioner_primary_angle_deg, ev.positioner_primary_end_angle_deg),
-                (ev.positioner_secondary_angle_deg, ev.positioner_secondary_end_angle_deg),
-            ):
-                n = max(n, _steps(start, end, steps_deg))
-        tilt = _tilt(ev.table_head_tilt_angle_deg or 0.0)
-        steps: list[tuple[FloatArray, FloatArray, FloatArray, FloatArray, float]] = []
-        reason = None
-        for k in range(n):
-            frac = (k + 0.5) / n if n > 1 else 0.0
-            alpha = _normalised_angle(
-                _lerp(ev.positioner_primary_angle_deg, ev.positioner_primary_end_angle_deg, frac)
-                or 0.0
-            )
-            beta = (
-                _lerp(
-                    ev.positioner_secondary_angle_deg, ev.positioner_secondary_end_angle_deg, frac
-                )
-                or 0.0
-            )
-            u = detector_direction(alpha, beta)
-            e_u, e_v = detector_axes(alpha, beta)
-            d_room = m @ u
-            source_room = -sod * d_room
-            shift = []
-            for axis, sign in (
-                ("lateral", room.lateral_sign),
-                ("longitudinal", room.longitudinal_sign),
-                ("height", room.height_sign),
-            ):
-                pos = _lerp(
-                    getattr(ev, f"table_{axis}_position_mm"),
-                    getattr(ev, f"table_{axis}_end_position_mm"),
-                    frac,
-                )
-                ref = refs[axis]
-                shift.append(0.0 if pos is None or ref is None else sign * (pos - ref))
-            table_top = table_top_ref + shift[2]
-            if ev.source_to_table_mm is not None and abs(d_room[2]) >= math.cos(
-                math.radians(_VERTICAL_WITHIN_DEG)
-            ):
-                table_top = source_room[2] + ev.source_to_table_mm * d_room[2]
-                notes.add("tabletop placed by the Distance Source to Table Plane (113792, DCM)")
-            centre = np.array([shift[0], shift[1], table_top + mattress + half_vertical])
-            pivot = np.array([shift[0], shift[1], table_top])
-            # room -> patient frame: p = M^T (R^T (X - pivot) + pivot - centre) + p0
-            source_p = m.T @ (tilt.T @ (source_room - pivot) + pivot - centre) + p0
-            to_patient = m.T @ tilt.T @ m
-            d_ref = _reference_distance(
-                ev, sod, sid, float(source_room[2]), float(d_room[2]), table_top, notes
-            )
-            if isinstance(d_ref, str):
-                reason = d_ref
-                break
-            if not (0.0 < d_ref < sid):
-                reason = (
-                    f"reference point {d_ref:g} mm from the focus is not between the focus "
-                    "and the receptor"
-                )
-                break
-            steps.append((source_p, to_patient @ u, to_patient @ e_u, to_patient @ e_v, d_ref))
-        if reason is not None:
-            skipped.append((index, ev.label, reason))
-            continue
-        hw, hh = _field_half_sides(ev, sid, steps[0][4], notes)
         for source_p, axis_p, e_u_p, e_v_p, d_ref in steps:
             if kar is None:
                 area_ref = 4.0 * hw * hh * (d_ref / sid) ** 2 / 100.0  # cm2
@@ -560,22 +621,14 @@ def resolve_beams(
                 notes.add("K_a,r not recorded: DAP over the field at the reference point used")
             else:
                 kref = kar
-            rows["parent"].append(index)
-            rows["source"].append(source_p)
-            rows["axis"].append(axis_p)
-            rows["e_u"].append(e_u_p)
-            rows["e_v"].append(e_v_p)
-            rows["sid"].append(sid)
-            rows["hw"].append(hw)
-            rows["hh"].append(hh)
-            rows["dref"].append(d_ref)
-            rows["kref"].append(kref * room.kar_calibration_factor / n)
+            kref *= room.kar_calibration_factor / len(steps)
+            row = (index, source_p, axis_p, e_u_p, e_v_p, sid, hw, hh, d_ref, kref)
+            for key, value in zip(rows, row, strict=True):
+                rows[key].append(value)
     # the table in the patient frame: the plane under the patient, normal toward the patient
-    table_normal = vertical_patient
-    table_point = p0 - (half_vertical + mattress) * table_normal
-    table_across = m.T @ _X
-    total = len(events)
-    all_notes = [*procedure_notes, *notes.lines(total)]
+    table_normal = frame.vertical_patient
+    table_point = frame.p0 - (frame.half_vertical_mm + frame.mattress_mm) * table_normal
+    all_notes = [*frame.notes, *notes.lines(len(events))]
     if room.kar_calibration_factor != 1.0:
         all_notes.append(
             f"K_a,r multiplied by the room's calibration factor {room.kar_calibration_factor:g}"
@@ -599,9 +652,9 @@ def resolve_beams(
         kerma_at_reference_mgy=stack("kref"),
         table_point=table_point,
         table_normal=table_normal,
-        table_across=table_across,
-        table_half_width_mm=table_width / 2.0,
-        vertical=vertical_patient,
+        table_across=frame.m.T @ _X,
+        table_half_width_mm=frame.table_width_mm / 2.0,
+        vertical=frame.vertical_patient,
         skipped=skipped,
         notes=all_notes,
     )

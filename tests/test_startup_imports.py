@@ -9,7 +9,7 @@ from __future__ import annotations
 import subprocess
 import sys
 
-HEAVY = ("pandas", "scipy", "pydicom", "pynetdicom", "plotly", "alembic")
+HEAVY = ("pandas", "scipy", "pydicom", "pynetdicom", "plotly", "alembic", "matplotlib")
 
 
 def _imported_after(statement: str) -> list[str]:

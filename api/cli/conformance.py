@@ -123,12 +123,17 @@ def _network_tables() -> dict[str, list[str]]:
                 (
                     "max_objects_in_flight",
                     defaults.max_objects_in_flight,
-                    "objects decoded and stored at once; others wait, then 0xA700",
+                    "objects decoded and spooled at once; others wait, then 0xA700",
                 ),
                 (
                     "max_object_bytes",
                     defaults.max_object_bytes,
                     "largest object; a larger one has its association aborted",
+                ),
+                (
+                    "max_spooled",
+                    defaults.max_spooled,
+                    "objects acknowledged and not yet stored; past it, 0xA700",
                 ),
                 (
                     "request_timeout_s",
@@ -167,11 +172,13 @@ def _network_tables() -> dict[str, list[str]]:
 
 
 _STATUS_WHEN = {
-    "SUCCESS": "the object, or the events read from it, is committed to the store",
-    "OUT_OF_RESOURCES": "the store is unavailable, or too many objects are in flight: "
-    "the sender keeps the object and retries",
-    "CANNOT_UNDERSTAND": "the object cannot be used (the Error Comment says why, e.g. a value "
-    "out of its physical range); it is recorded as an ingest error",
+    "SUCCESS": "the object is committed to the listener's spool (stored from there; what "
+    "cannot be used is then recorded as an ingest error)",
+    "OUT_OF_RESOURCES": "the spool is unavailable or full (`max_spooled`), or too many objects "
+    "are in flight: the sender keeps the object and retries",
+    "CANNOT_UNDERSTAND": "the data set cannot be decoded to Pixel Data, or has no SOP Instance "
+    "UID, or another than the request's (the Error Comment says why); recorded as an ingest "
+    "error",
     "DATA_SET_DOES_NOT_MATCH_SOP_CLASS": "the data set's SOP Class differs from the request's",
     "DATA_SET_DOES_NOT_MATCH_SOP_CLASS_WARNING": "not sent by beamaudit",
     "COERCION_OF_DATA_ELEMENTS": "not sent by beamaudit",
@@ -242,8 +249,9 @@ def conformance_statement() -> str:
         "",
         "One Application Entity, the **listener** (`beamaudit listen`), is a Storage SCP: a "
         "modality, a dose reporter or a PACS pushes objects to it by C-STORE. Each object is "
-        "read (header, or dose report content), pseudonymised, mapped to irradiation events "
-        "and committed to the store before the C-STORE response is sent. A second, "
+        "committed to the listener's spool before the C-STORE response is sent, then read "
+        "(header, or dose report content), pseudonymised, mapped to irradiation events and "
+        "committed to the store, in batches, by the listener's worker. A second, "
         "non-DIMSE, role is the **DICOMweb user agent** (`beamaudit pull`, `beamaudit "
         "nightly`), which searches an origin server with QIDO-RS and retrieves instance "
         "metadata with WADO-RS (section 2.4). Folder scans (`beamaudit scan`) read Part 10 "
@@ -295,11 +303,22 @@ def conformance_statement() -> str:
         "",
         *net["statuses"],
         "",
-        "Success is sent only once the object is durable in the store: a sender may delete its "
-        "copy then. The same SOP Instance UID received twice with the same content is stored "
-        "once (the second C-STORE is answered success); with other content it is refused "
-        "(0xC000) and recorded. Objects are received into temporary files and only the "
-        "data before Pixel Data is read.",
+        "Success is sent only once the object is durable in the listener's spool (a SQLite "
+        "file, `spool_dir`; committed as `spool_synchronous` says: `normal` keeps it through "
+        "a crash of the process, `full` through a crash of the machine too): a sender may "
+        "delete its copy then. A listener stopped or killed stores what its spool holds when "
+        "it starts again. Before answering, the listener checks what is cheap to check: the "
+        "data set is read to Pixel Data (every element's tag, VR and length), and its SOP "
+        "Class and Instance UIDs must be there and agree with the request; failing that, the "
+        "object is refused as above and recorded. What only reading the object finds (a "
+        "value that cannot be decoded or is out of its physical range, a report that is not "
+        "a dose report, another object's SOP Instance UID with other content) was answered "
+        "success and is recorded as an ingest error when the worker stores the spool: the "
+        "ingest errors page lists it with its SOP Instance UID and reason. The same SOP "
+        "Instance UID received twice with the same content is stored once (both C-STOREs are "
+        "answered success). Objects are received into temporary files and only the data "
+        "before Pixel Data is read and spooled (a CT image's pixel data too, for the patient's "
+        "size).",
         "",
         "### 2.4 DICOMweb user agent (PS3.18)",
         "",

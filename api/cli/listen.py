@@ -2,7 +2,8 @@
 
 from __future__ import annotations
 
-from typing import Annotated
+from pathlib import Path
+from typing import Annotated, Any
 
 import typer
 
@@ -27,15 +28,16 @@ def listen_command(
         typer.Option("--allow", help="Accept only this calling AE title (repeatable)."),
     ] = None,
 ) -> None:
-    """Receive images and dose reports by C-STORE; answer success only once stored."""
+    """Receive images and dose reports by C-STORE; answer success once an object is safe in the
+    listener's spool, and store it from there."""
     import logging
 
+    from beamaudit.api.cli._spool_worker import SpoolWorkerProcess
     from beamaudit.api.cli._store import open_store
     from beamaudit.api.cli.scan import pseudonym_key
-    from beamaudit.api.intake.ct_sizing import ArrivalSizer, StudySizer
     from beamaudit.api.intake.pipeline import Pipeline
     from beamaudit.api.intake.postprocess import Completion
-    from beamaudit.api.intake.receiving import make_store_handler
+    from beamaudit.api.intake.spooling import Spool, SpoolError, make_spooling_handler, spool_path
     from beamaudit.api.logs import configure_logging
     from beamaudit.ingest.errors import IngestError
     from beamaudit.ingest.listener import ListenerConfig, start_listener
@@ -59,26 +61,58 @@ def listen_command(
             request_timeout_s=cfg.request_timeout_s,
             network_timeout_s=cfg.idle_timeout_s,
             association_timeout_s=cfg.association_timeout_s,
+            decode_values=False,  # the spool's worker parses; what it cannot use is recorded
         )
-        sizer = ArrivalSizer(StudySizer(store.sessions), quiet_s=cfg.size_quiet_s)
-        handler = make_store_handler(
+        spool = Spool(
+            spool_path(listen_spool_dir(store.settings), store.settings.database_url, config.port),
+            synchronous=cfg.spool_synchronous,
+        )
+        key = pseudonym_key(store.settings.secret_key_path)
+        handler, _, _ = make_spooling_handler(
+            spool,
             Pipeline(store.sessions, completion=Completion()),
-            Pseudonymiser(pseudonym_key(store.settings.secret_key_path)),
-            sizer=sizer,
+            Pseudonymiser(key),
+            max_spooled=cfg.max_spooled,
         )
+        if spool.pending:
+            console.print(
+                f"{spool.pending} objects received before the last stop are stored first",
+                highlight=False,
+            )
         listener = start_listener(config, handler)
-    except IngestError as exc:
-        fail(exc.reason)
+        # started once the port is ours; it parses and stores in a process of its own
+        worker = SpoolWorkerProcess(
+            {
+                "spool": str(spool.path),
+                "synchronous": cfg.spool_synchronous,
+                "database_url": store.settings.database_url,
+                "key": key.hex(),
+                "size_quiet_s": cfg.size_quiet_s,
+                "max_spooled": cfg.max_spooled,
+                "log_format": _log_format(),
+            }
+        )
+    except (IngestError, SpoolError) as exc:
+        fail(exc.reason if isinstance(exc, IngestError) else str(exc))
     metrics = store.settings.metrics
     if metrics.enabled and metrics.listener_bind:
-        from beamaudit.api.web.metrics import AssociationCounter, collector, start_metrics_server
+        from beamaudit.api.web.metrics import (
+            AssociationCounter,
+            collector,
+            spooled_family,
+            start_metrics_server,
+        )
 
         counter = AssociationCounter()
         counter.bind(listener)
         try:
-            start_metrics_server(metrics.listener_bind, collector(store.sessions, counter.family))
+            start_metrics_server(
+                metrics.listener_bind,
+                collector(store.sessions, counter.family, spooled_family(spool)),
+            )
         except OSError as exc:
             listener.stop()
+            worker.close()
             fail(f"cannot serve /metrics on {metrics.listener_bind}: {exc.strerror or exc}")
         console.print(f"metrics on http://{metrics.listener_bind}/metrics", highlight=False)
     console.print(
@@ -89,7 +123,32 @@ def listen_command(
     try:
         listener.wait()
     finally:
-        sizer.close()  # the studies still waiting for their quiet time are sized now
+        # what was acknowledged and is still spooled is stored now, and the studies still
+        # waiting for their quiet time are sized
+        worker.close()
+        spool.close()
+
+
+def _log_format() -> str:
+    """The format this process logs in (``--log-format``), for the worker process."""
+    import logging
+
+    from beamaudit.api.logs import JsonFormatter
+
+    json_lines = any(isinstance(h.formatter, JsonFormatter) for h in logging.getLogger().handlers)
+    return "json" if json_lines else "text"
+
+
+def listen_spool_dir(settings: Any) -> Path:
+    """The spool's folder: the setting, else beside the SQLite database file, else beside the
+    pseudonymisation key (a PostgreSQL store, an in-memory SQLite database)."""
+    if settings.listener.spool_dir is not None:
+        return Path(settings.listener.spool_dir)
+    url = str(settings.database_url)
+    database = url.removeprefix("sqlite:///").split("?", 1)[0]
+    if url.startswith("sqlite:///") and database and database != ":memory:":
+        return Path(database).resolve().parent
+    return Path(settings.secret_key_path).resolve().parent
 
 
 def register(app: typer.Typer) -> None:

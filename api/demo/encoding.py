@@ -29,6 +29,7 @@ from pydicom.datadict import dictionary_VR, tag_for_keyword
 from pydicom.uid import PYDICOM_ROOT_UID, ExplicitVRLittleEndian, generate_uid
 
 from beamaudit.api.errors import ApiError
+from beamaudit.ingest.sr_build import decimal_string
 
 __all__ = [
     "IMPLEMENTATION_CLASS_UID",
@@ -113,7 +114,8 @@ def _tag_vr(keyword: str) -> tuple[int, str]:
 
 
 def format_ds(value: float) -> str:
-    """``value`` as a Decimal String of at most 16 characters (PS3.5 6.2, DS).
+    """``value`` as a Decimal String of at most 16 characters (PS3.5 6.2, DS), as the SR
+    builder writes a NUM value (:func:`beamaudit.ingest.sr_build.decimal_string`).
 
     Examples
     --------
@@ -122,11 +124,10 @@ def format_ds(value: float) -> str:
     >>> format_ds(2.5)
     '2.5'
     """
-    for digits in range(12, 2, -1):
-        out = f"{value:.{digits}g}"
-        if len(out) <= 16:
-            return out
-    raise EncodingError(f"cannot write {value!r} as a DS")
+    try:
+        return decimal_string(value)
+    except ValueError as exc:
+        raise EncodingError(str(exc)) from None
 
 
 def _text(keyword: str, vr: str, value: Any) -> bytes:

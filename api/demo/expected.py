@@ -138,7 +138,13 @@ def _exam_values(gen: Generated) -> Iterator[_Value]:
             )
             yield _Value(key, f.exam_type, day, "dap_gy_cm2", f.dap_total_reported_gy_cm2, std, out)
             yield _Value(
-                key, f.exam_type, day, "ref_point_air_kerma_mgy", f.rp_total_reported_mgy, std, out
+                key,
+                f.exam_type,
+                day,
+                "reference_point_air_kerma_mgy",
+                f.rp_total_reported_mgy,
+                std,
+                out,
             )
 
 
@@ -427,8 +433,8 @@ def _outlier(gen: Generated, outlier: OutlierPlan, ctx: SimulationContext) -> li
         values["dap_gy_cm2"] = _strictest_ratio(
             ctx, outlier.exam_type, "dap_gy_cm2", day, fl.dap_total_reported_gy_cm2
         )
-        values["ref_point_air_kerma_mgy"] = _strictest_ratio(
-            ctx, outlier.exam_type, "ref_point_air_kerma_mgy", day, fl.rp_total_reported_mgy
+        values["reference_point_air_kerma_mgy"] = _strictest_ratio(
+            ctx, outlier.exam_type, "reference_point_air_kerma_mgy", day, fl.rp_total_reported_mgy
         )
         fluoro_s = sum(e.duration_s for e in fl.events if e.fluoroscopy)
         numbers.update(accession=fl.accession, fluoro_time_s=round(fluoro_s, 1))
@@ -646,9 +652,9 @@ def _mammography_band(gen: Generated, ctx: SimulationContext) -> PlantedFinding:
     for s in gen.mammography[room.key]:
         for v in s.views:
             if v.exam_type == plan.exam_type and low <= v.thickness_mm < high:
-                monthly[_month(v.acquired.date())].append(v.agd_mgy)
+                monthly[_month(v.acquired.date())].append(v.mgd_mgy)
     first = gen.mammography[room.key][0].start.date()
-    levels = ctx.levels(plan.exam_type, "agd_mgy", first)
+    levels = ctx.levels(plan.exam_type, "mgd_mgy", first)
     median = _median([x for values in monthly.values() for x in values]) or 0.0
     return _finding(
         gen,
@@ -656,7 +662,7 @@ def _mammography_band(gen: Generated, ctx: SimulationContext) -> PlantedFinding:
         id="mammography_cc_above_local_level",
         kind="group_above_level",
         exam_type=plan.exam_type,
-        quantity="agd_mgy",
+        quantity="mgd_mgy",
         date=first.isoformat(),
         month=_month(first),
         description=(
@@ -712,7 +718,7 @@ def _skin_dose_plants(gen: Generated) -> list[PlantedFinding]:
                     description=_SKIN_STORIES[plant],
                     expected={
                         "accession": f.accession,
-                        "ref_point_air_kerma_mgy": round(f.rp_total_reported_mgy, 1),
+                        "reference_point_air_kerma_mgy": round(f.rp_total_reported_mgy, 1),
                         "dap_gy_cm2": round(f.dap_total_reported_gy_cm2, 2),
                         "fluoro_time_s": round(fluoro_s, 1),
                         "events": len(f.events),
@@ -788,7 +794,7 @@ def quiet_numbers(
     ]  # the interventional room's two planted procedures are findings, not quiet numbers
     fluoro_max = {
         "dap_gy_cm2": max(f.dap_total_reported_gy_cm2 for f in quiet_fluoro),
-        "ref_point_air_kerma_mgy": max(f.rp_total_reported_mgy for f in quiet_fluoro),
+        "reference_point_air_kerma_mgy": max(f.rp_total_reported_mgy for f in quiet_fluoro),
         "fluoro_time_s": max(
             sum(e.duration_s for e in f.events if e.fluoroscopy) for f in quiet_fluoro
         ),

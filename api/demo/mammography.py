@@ -81,7 +81,7 @@ class MammoView:
     compression_force_n: float
     kvp_kv: float
     exposure_mas: float
-    agd_mgy: float  # the unit's own
+    mgd_mgy: float  # the unit's own
     planted: list[str] = field(default_factory=list)
 
 
@@ -158,7 +158,7 @@ def _view(
         compression_force_n=float(round(np.clip(rng.normal(95.0, 20.0), 40.0, 180.0))),
         kvp_kv=kv,
         exposure_mas=mas,
-        agd_mgy=round(agd, 3),
+        mgd_mgy=round(agd, 3),
         planted=planted,
     )
 
@@ -237,7 +237,7 @@ def mammogram(room: RoomSpec, study: MammoStudy, view: MammoView) -> dict[str, A
     ds["FilterMaterial"] = "RHODIUM"
     ds["FilterThicknessMinimum"] = "0.05"
     ds["FilterThicknessMaximum"] = "0.05"
-    ds["OrganDose"] = f"{view.agd_mgy / 100.0:.6g}"  # dGy (DICOM PS3.3)
+    ds["OrganDose"] = f"{view.mgd_mgy / 100.0:.6g}"  # dGy (DICOM PS3.3)
     ds["OrganExposed"] = "BREAST"
     ds["BreastImplantPresent"] = "NO"
     ds["ImageLaterality"] = view.laterality

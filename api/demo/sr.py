@@ -10,19 +10,20 @@ Parameters, CT X-Ray Source Parameters, CT Dose). Units are those PS3.16 names: 
 exposure time in s, CTDIvol in mGy, DLP in mGy.cm.
 
 Only the rows the demo needs are written; every row written is valid for its template. This module
-builds the content tree only, as plain :data:`~beamaudit.api.demo.encoding.Elements`; the dataset
-around it (patient, study, series, equipment, SR document modules) is
+builds the content tree only, from the items of ingest's SR builder
+(:mod:`beamaudit.ingest.sr_build`) as plain :data:`~beamaudit.api.demo.encoding.Elements`; the
+dataset around it (patient, study, series, equipment, SR document modules) is
 :mod:`beamaudit.api.demo.dicom_objects`'s.
 """
 
 from __future__ import annotations
 
-from collections.abc import Iterable, Sequence
+from collections.abc import Sequence
 from dataclasses import dataclass
 from datetime import datetime
 from typing import Any
 
-from beamaudit.api.demo.encoding import format_ds
+from beamaudit.ingest import sr_build as _sr
 
 __all__ = [
     "Concept",
@@ -41,7 +42,7 @@ __all__ = [
 ]
 
 #: A coded concept: (CodeValue, CodingSchemeDesignator, CodeMeaning).
-Concept = tuple[str, str, str]
+Concept = _sr.Concept
 
 
 def _dcm(value: str, meaning: str) -> Concept:
@@ -193,77 +194,19 @@ SOURCES = _unit("{X-Ray sources}", "X-Ray sources")
 
 
 # ------------------------------------------------------------------------------ content items
-Item = dict[str, Any]
-
-
-def _code_item(concept: Concept) -> Item:
-    value, scheme, meaning = concept
-    return {"CodeValue": value, "CodingSchemeDesignator": scheme, "CodeMeaning": meaning}
-
-
-def _item(relationship: str | None, value_type: str, concept: Concept) -> Item:
-    item: Item = {"ValueType": value_type, "ConceptNameCodeSequence": [_code_item(concept)]}
-    if relationship is not None:
-        item["RelationshipType"] = relationship
-    return item
-
-
-def container(
-    concept: Concept,
-    items: Iterable[Item],
-    *,
-    relationship: str | None = "CONTAINS",
-    template: str | None = None,
-) -> Item:
-    """A CONTAINER item (continuity SEPARATE) holding ``items``."""
-    item = _item(relationship, "CONTAINER", concept)
-    item["ContinuityOfContent"] = "SEPARATE"
-    if template is not None:
-        item["ContentTemplateSequence"] = [
-            {"MappingResource": "DCMR", "TemplateIdentifier": template}
-        ]
-    item["ContentSequence"] = list(items)
-    return item
+# The items are ingest's SR builder's (beamaudit.ingest.sr_build), as plain data; NUM values as a
+# Decimal String only, as the demo's devices write them.
+Item = _sr.Item
+container = _sr.container_content
+code = _sr.code_content
+text = _sr.text_content
+uidref = _sr.uidref_content
+datetime_item = _sr.datetime_content
 
 
 def num(concept: Concept, value: float, unit: Concept, *, relationship: str = "CONTAINS") -> Item:
     """A NUM item: the value as DS text (at most 16 characters) with its UCUM unit."""
-    item = _item(relationship, "NUM", concept)
-    item["MeasuredValueSequence"] = [
-        {
-            "NumericValue": format_ds(float(value)),
-            "MeasurementUnitsCodeSequence": [_code_item(unit)],
-        }
-    ]
-    return item
-
-
-def code(concept: Concept, value: Concept, *, relationship: str = "CONTAINS") -> Item:
-    """A CODE item."""
-    item = _item(relationship, "CODE", concept)
-    item["ConceptCodeSequence"] = [_code_item(value)]
-    return item
-
-
-def text(concept: Concept, value: str, *, relationship: str = "CONTAINS") -> Item:
-    """A TEXT item."""
-    item = _item(relationship, "TEXT", concept)
-    item["TextValue"] = value
-    return item
-
-
-def uidref(concept: Concept, uid: str, *, relationship: str = "CONTAINS") -> Item:
-    """A UIDREF item."""
-    item = _item(relationship, "UIDREF", concept)
-    item["UID"] = uid
-    return item
-
-
-def datetime_item(concept: Concept, when: datetime, *, relationship: str = "CONTAINS") -> Item:
-    """A DATETIME item (DT without time zone, as most modalities write it)."""
-    item = _item(relationship, "DATETIME", concept)
-    item["DateTime"] = when.strftime("%Y%m%d%H%M%S")
-    return item
+    return _sr.num_content(concept, value, unit, relationship=relationship, floating_point=False)
 
 
 # ----------------------------------------------------------------------------- observer context

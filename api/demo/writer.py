@@ -47,11 +47,11 @@ TRUTH_COLUMNS = (
     "output_ugy_per_mas_1m",
     "dap_true_gy_cm2",
     "dap_reported_gy_cm2",
-    "ref_point_air_kerma_mgy",
+    "reference_point_air_kerma_mgy",
     "ctdivol_mgy",
     "dlp_mgy_cm",
     "deviation_index",
-    "agd_reported_mgy",
+    "mgd_reported_mgy",
     "thickness_mm",
     "planted",
 )
@@ -142,7 +142,7 @@ class Writer:
                     protocol_name=f"{v.laterality}{v.view_position}",
                     kvp_kv=v.kvp_kv,
                     exposure_mas=v.exposure_mas,
-                    agd_reported_mgy=v.agd_mgy,
+                    mgd_reported_mgy=v.mgd_mgy,
                     thickness_mm=v.thickness_mm,
                     planted=";".join(v.planted),
                 )
@@ -196,7 +196,7 @@ class Writer:
                     output_ugy_per_mas_1m=round(e.output_ugy_per_mas_1m, 3),
                     dap_true_gy_cm2=round(e.dap_true_gy_cm2, 6),
                     dap_reported_gy_cm2=round(e.dap_reported_gy_cm2, 6),
-                    ref_point_air_kerma_mgy=round(e.dose_rp_reported_mgy, 4),
+                    reference_point_air_kerma_mgy=round(e.dose_rp_reported_mgy, 4),
                     planted=";".join(s.planted),
                 )
 

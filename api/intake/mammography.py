@@ -269,5 +269,5 @@ def mammography_trail(event: Any, room: Any, calibration: Any) -> dict[str, Any]
     )  # fmt: skip
     out: dict[str, Any] = dose.as_dict()
     out["assumptions"] = [*notes, *out["assumptions"]]
-    out["reported_agd_mgy"] = event.organ_dose_mgy
+    out["reported_mgd_mgy"] = event.organ_dose_mgy
     return out

@@ -197,15 +197,21 @@ def pull_source(
                 "bad_value", stored.reason or "conflicts with a stored object", wado_url
             )
 
-    report = pull(
-        client_source,
-        since=since_date,
-        until=until,
-        modalities=mods,
-        on_instance=on_instance,
-        known_sop_instance_uids=known,
-        sop_classes=set(ACCEPTED_SOP_CLASSES),
-    )
+    try:
+        report = pull(
+            client_source,
+            since=since_date,
+            until=until,
+            modalities=mods,
+            on_instance=on_instance,
+            known_sop_instance_uids=known,
+            sop_classes=set(ACCEPTED_SOP_CLASSES),
+        )
+    except IngestError as exc:
+        # the source could not be searched: the failure is kept on the source (the admin page
+        # and /metrics show it) and the watermark stays where it was
+        _record_failed_pull(sessions, source_id, exc, time.monotonic() - started, watermark)
+        raise
     sized = sizer.finish_all(received_via="pull")
     outcome.ct_size = sized.as_dict()
     outcome.studies = report.studies
@@ -232,3 +238,26 @@ def pull_source(
             source.watermark_date.isoformat() if source.watermark_date else None
         )
     return outcome
+
+
+def _record_failed_pull(
+    sessions: sessionmaker[Session],
+    source_id: int,
+    exc: IngestError,
+    duration_s: float,
+    watermark: date | None,
+) -> None:
+    """Keep a pull that failed as a whole on its source: when, why, and that nothing moved."""
+    with sessions.begin() as session:
+        source = session.get(m.DicomwebSource, source_id)
+        if source is None:  # removed while the pull ran
+            return
+        source.last_pull_at = utcnow()
+        source.last_pull_report = {
+            "source": source.url,
+            "failed": exc.reason,
+            "events": 0,
+            "errors": [{"source": exc.source or source.url, "reason": exc.reason}],
+            "duration_s": round(duration_s, 3),
+            "watermark": watermark.isoformat() if watermark else None,
+        }

@@ -24,7 +24,7 @@ from beamaudit.ingest.errors import ErrorCode, IngestError
 from beamaudit.ingest.listener import ReceivedObject, RejectedObject, StoreOutcome
 from beamaudit.ingest.pseudonym import Pseudonymiser
 
-__all__ = ["StoreHandler", "make_store_handler"]
+__all__ = ["StoreHandler", "make_store_handler", "record_rejected"]
 
 log = logging.getLogger(__name__)
 
@@ -112,15 +112,20 @@ def make_store_handler(
         return StoreOutcome.stored()
 
     def on_rejected(rejected: RejectedObject) -> None:
-        # undecodable, or of another class or instance than the request says; or no UID at all
-        code: ErrorCode = "missing_attribute" if "no SOP Instance UID" in rejected.reason else (
-            "bad_value")  # fmt: skip
-        source = f"c-store:{rejected.calling_ae_title}@{rejected.peer_address[0]}"
-        pipeline.record_error(
-            IngestError(code, f"refused by the listener: {rejected.reason}", source),
-            received_via=received_via,
-            source=source,
-            sop_instance_uid=rejected.sop_instance_uid or None,
-        )
+        record_rejected(pipeline, rejected, received_via)
 
     return StoreHandler(handle, on_rejected)
+
+
+def record_rejected(pipeline: Pipeline, rejected: RejectedObject, received_via: str) -> None:
+    """Record a request the listener refused before any handler saw it as an ingest error."""
+    # undecodable, or of another class or instance than the request says; or no UID at all
+    code: ErrorCode = "missing_attribute" if "no SOP Instance UID" in rejected.reason else (
+        "bad_value")  # fmt: skip
+    source = f"c-store:{rejected.calling_ae_title}@{rejected.peer_address[0]}"
+    pipeline.record_error(
+        IngestError(code, f"refused by the listener: {rejected.reason}", source),
+        received_via=received_via,
+        source=source,
+        sop_instance_uid=rejected.sop_instance_uid or None,
+    )

@@ -5,29 +5,34 @@ Input table contract
 One row per irradiation event (DICOM PS3.16: one continuous irradiation), with these columns
 (extra columns are ignored):
 
-=========================  ============  ==========================================================
-column                     type          content
-=========================  ============  ==========================================================
-event_id                   int           unique per event
-study_uid                  str           Study Instance UID (the examination); never missing
-event_datetime             datetime64    UTC; naive values are taken as UTC, aware ones converted
-site, room, device         str or None   where the event happened
-modality                   str or None   DICOM modality: CR, DX, MG, RF, XA, CT
-exam_type                  str or None   catalogue exam type; None = not mapped
-patient_weight_kg          float         NaN when not recorded
-study_description,         str or None   raw header values (for mapping and the unmapped list)
+=============================  ==========  ======================================================
+column                         type        content
+=============================  ==========  ======================================================
+event_id                       int         unique per event
+study_uid                      str         Study Instance UID (the examination); never missing
+event_datetime                 datetime64  UTC; naive values are taken as UTC, aware ones
+                                           converted
+site, room, device             str or None where the event happened
+modality                       str or None DICOM modality: CR, DX, MG, RF, XA, CT
+exam_type                      str or None catalogue exam type; None = not mapped
+patient_weight_kg              float       NaN when not recorded
+study_description,             str or None raw header values (for mapping and the unmapped list)
 series_description,
 protocol_name, body_part,
 view_position
-dap_gy_cm2                 float         reported air kerma-area product
-recon_dap_gy_cm2           float         DAP reconstructed by the beam model
-esak_mgy                   float         entrance surface air kerma
-ref_point_air_kerma_mgy    float         K_a,r
-ctdivol_mgy, dlp_mgy_cm    float         CT dose indices
-agd_mgy                    float         mean glandular dose
-deviation_index            float         IEC 62494-1 DI
-fluoro_time_s              float         fluoroscopy time of the event
-=========================  ============  ==========================================================
+dap_gy_cm2                     float       reported air kerma-area product
+recon_dap_gy_cm2               float       DAP reconstructed by the beam model
+esak_mgy                       float       entrance surface air kerma
+reference_point_air_kerma_mgy  float       K_a,r
+ctdivol_mgy, dlp_mgy_cm        float       CT dose indices
+mgd_mgy                        float       mean glandular dose
+deviation_index                float       IEC 62494-1 DI
+fluoro_time_s                  float       fluoroscopy time of the event
+=============================  ==========  ======================================================
+
+The dose columns are named by quantity (:data:`~beamaudit.api.review.quantities.QUANTITIES`);
+which stored column each is read from (``esak_mgy`` from beamaudit's ``recon_esak_mgy``,
+``mgd_mgy`` from the device's ``organ_dose_mgy``) is ``Quantity.column``, the one mapping.
 
 All float columns are NaN when absent. Doses, DAP, times and weights must not be negative (a
 negative value is rejected, never clamped).
@@ -104,10 +109,10 @@ DOSE_COLUMNS = (
     "dap_gy_cm2",
     "recon_dap_gy_cm2",
     "esak_mgy",
-    "ref_point_air_kerma_mgy",
+    "reference_point_air_kerma_mgy",
     "ctdivol_mgy",
     "dlp_mgy_cm",
-    "agd_mgy",
+    "mgd_mgy",
 )
 FLOAT_COLUMNS = ("patient_weight_kg", *DOSE_COLUMNS, "deviation_index", "fluoro_time_s")
 _NON_NEGATIVE = (*DOSE_COLUMNS, "fluoro_time_s")

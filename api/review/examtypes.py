@@ -40,7 +40,9 @@ dicom_modalities    yes       DICOM Modality values that produce it, separated b
                               (``CR DX``)
 level_applies_per   yes       ``projection`` or ``examination``
 quantities          yes       reviewed quantities separated by spaces (``dap_gy_cm2 esak_mgy``);
-                              names of :data:`~beamaudit.api.review.quantities.QUANTITIES`
+                              names of :data:`~beamaudit.api.review.quantities.QUANTITIES` (an
+                              earlier name of :data:`~.quantities.QUANTITY_ALIASES` is read as its
+                              quantity)
 aggregation         no        examination types only: ``quantity=rule`` pairs separated by
                               spaces, rule ``sum``, ``max`` or ``mean``, overriding
                               :data:`DEFAULT_AGGREGATION`
@@ -82,7 +84,7 @@ import pandas as pd
 
 from beamaudit.api.review._csv import CsvSource, read_table, write_table
 from beamaudit.api.review.errors import CsvFormatError, ReviewInputError
-from beamaudit.api.review.quantities import QUANTITIES
+from beamaudit.api.review.quantities import QUANTITIES, quantity_name
 
 __all__ = [
     "AGGREGATIONS",
@@ -128,8 +130,8 @@ DEFAULT_AGGREGATION: MappingProxyType[str, Aggregation] = MappingProxyType(
     {
         "dap_gy_cm2": "sum",
         "dlp_mgy_cm": "sum",
-        "ref_point_air_kerma_mgy": "sum",
-        "agd_mgy": "sum",
+        "reference_point_air_kerma_mgy": "sum",
+        "mgd_mgy": "sum",
         "ctdivol_mgy": "max",
         "esak_mgy": "max",
     }
@@ -301,7 +303,7 @@ def read_catalogue_csv(source: CsvSource) -> ExamCatalogue:
             problems.append(
                 (line, f"level_applies_per must be 'projection' or 'examination', got {per!r}")
             )
-        quantities = tuple(row["quantities"].split())
+        quantities = tuple(quantity_name(q) for q in row["quantities"].split())
         bad = [q for q in quantities if q not in QUANTITIES]
         if not quantities or bad:
             problems.append(
@@ -314,6 +316,7 @@ def read_catalogue_csv(source: CsvSource) -> ExamCatalogue:
         aggregation: list[tuple[str, Aggregation]] = []
         for token in row["aggregation"].split():
             quantity, _, rule = token.partition("=")
+            quantity = quantity_name(quantity)
             if quantity not in quantities or rule not in AGGREGATIONS:
                 problems.append(
                     (

@@ -113,11 +113,11 @@ DAP_RATIO_QUANTITY = "dap_ratio"
 #: K_a,r 5 Gy, P_KA 500 Gy·cm² (assumes a 100 cm² field at the skin), fluoroscopy time 60 min. The
 #: SRDL for peak skin dose (3 Gy) needs a skin-dose estimate the events table does not carry.
 NCRP168_SRDL: MappingProxyType[str, float] = MappingProxyType(
-    {"ref_point_air_kerma_mgy": 5000.0, "dap_gy_cm2": 500.0, "fluoro_time_s": 3600.0}
+    {"reference_point_air_kerma_mgy": 5000.0, "dap_gy_cm2": 500.0, "fluoro_time_s": 3600.0}
 )
 _SRDL_LABEL = MappingProxyType(
     {
-        "ref_point_air_kerma_mgy": ("K_a,r", "mGy"),
+        "reference_point_air_kerma_mgy": ("K_a,r", "mGy"),
         "dap_gy_cm2": ("DAP", "Gy·cm²"),
         "fluoro_time_s": ("fluoroscopy time", "s"),
     }

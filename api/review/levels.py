@@ -33,8 +33,10 @@ effective_from  yes       ISO date the version takes effect (``2024-11-20``); un
                           set name
 set_source      no        the document the set comes from (or, for a local set, who decided it)
 exam_type       yes       an exam type of the catalogue (``ct_head``)
-quantity        yes       ``dap_gy_cm2``, ``esak_mgy``, ``ref_point_air_kerma_mgy``,
-                          ``ctdivol_mgy``, ``dlp_mgy_cm`` or ``agd_mgy``
+quantity        yes       ``dap_gy_cm2``, ``esak_mgy``, ``reference_point_air_kerma_mgy``,
+                          ``ctdivol_mgy``, ``dlp_mgy_cm`` or ``mgd_mgy``; the names earlier
+                          versions wrote (``ref_point_air_kerma_mgy``, ``agd_mgy``) are read
+                          as these (:data:`~.quantities.QUANTITY_ALIASES`)
 value           yes       the reference level, a positive number
 unit            yes       its unit; converted on import to the quantity's own unit (Gy.cm2,
                           mGy, mGy.cm), e.g. ``mGy.cm2`` and ``cGy.cm2`` for DAP are accepted
@@ -69,7 +71,7 @@ from beamaudit.api.review.bands import PatientGroups, load_default_patient_group
 from beamaudit.api.review.ct_size import is_size_band
 from beamaudit.api.review.errors import CsvFormatError, ReviewError
 from beamaudit.api.review.examtypes import ExamCatalogue
-from beamaudit.api.review.quantities import QUANTITIES, to_canonical_unit
+from beamaudit.api.review.quantities import QUANTITIES, quantity_name, to_canonical_unit
 
 __all__ = [
     "LEVELS_TABLE_COLUMNS",
@@ -389,6 +391,90 @@ def levels_table(sets: Sequence[ReferenceLevelSet], on_date: date) -> pd.DataFra
 
 
 # ---------------------------------------------------------------------------------------- CSV files
+def _group_of(row: dict[str, str]) -> tuple[str, str]:
+    """A level row's patient group and clinical indication (empty: any)."""
+    return row["patient_group"], row["clinical_indication"]
+
+
+def _set_head_problems(
+    row: dict[str, str], line: int, heads: dict[tuple[str, str], tuple[int, dict[str, str]]]
+) -> list[str]:
+    """What is wrong with the set a level row belongs to: its kind, its date, and whether they
+    and its source agree with the set's first row (kept in ``heads``)."""
+    problems = []
+    if row["kind"] not in LEVEL_KINDS:
+        problems.append(f"kind must be one of {', '.join(LEVEL_KINDS)}, got {row['kind']!r}")
+    if not _ISO_DATE.match(row["effective_from"]):
+        problems.append(f"effective_from {row['effective_from']!r} is not a date YYYY-MM-DD")
+    else:
+        try:
+            date.fromisoformat(row["effective_from"])
+        except ValueError:
+            problems.append(f"effective_from {row['effective_from']!r} is not a valid date")
+    name, version = row["set_name"], row["version"]
+    head = {k: row[k] for k in ("kind", "effective_from", "set_source")}
+    if (name, version) not in heads:
+        heads[(name, version)] = (line, head)
+        return problems
+    first_line, first = heads[(name, version)]
+    problems += [
+        f"{k} {v!r} differs from {first[k]!r} on line {first_line} for "
+        f"set {name!r} version {version!r}"
+        for k, v in head.items()
+        if v != first[k]
+    ]
+    return problems
+
+
+def _level_entry(
+    row: dict[str, str], catalogue: ExamCatalogue | None, bands: PatientGroups
+) -> tuple[LevelEntry, list[str]]:
+    """A level row's entry (value in the quantity's own unit) and what is wrong with it; the
+    entry is only usable when nothing is."""
+    problems = []
+    exam_type, quantity = row["exam_type"], quantity_name(row["quantity"])
+    if not exam_type:
+        problems.append("exam_type is empty")
+    elif catalogue is not None and exam_type not in catalogue:
+        problems.append(f"exam_type {exam_type!r} is not in the catalogue")
+    if quantity not in QUANTITIES:
+        problems.append(f"quantity {quantity!r} is not one of {', '.join(QUANTITIES)}")
+    value = math.nan
+    try:
+        value = float(row["value"])
+    except ValueError:
+        problems.append(f"value {row['value']!r} is not a number")
+    else:
+        if not (math.isfinite(value) and value > 0):
+            problems.append(f"value {row['value']!r} must be a positive number")
+    if quantity in QUANTITIES and math.isfinite(value):
+        try:
+            value = to_canonical_unit(quantity, value, row["unit"])
+        except ReviewError as exc:
+            problems.append(str(exc))
+    group, indication = _group_of(row)
+    if group and group not in bands and not is_size_band(group):
+        problems.append(
+            f"patient_group {group!r} is not a band of {bands.source} (bands: "
+            f"{', '.join(g.patient_group for g in bands)}) nor a CT size band (ct_dw_20_25cm)"
+        )
+    if indication and not _IDENTIFIER.match(indication):
+        problems.append(f"clinical_indication {indication!r} must be lower-case [a-z0-9_]")
+    if row["kind"] in PUBLISHED_KINDS and not row["source"]:
+        problems.append(f"{_a(row['kind'])} level needs its published source in the source column")
+    entry = LevelEntry(
+        exam_type=exam_type,
+        quantity=quantity,
+        value=value,
+        unit=QUANTITIES[quantity].unit if quantity in QUANTITIES else row["unit"],
+        source=row["source"],
+        note=row["note"],
+        patient_group=group,
+        clinical_indication=indication,
+    )
+    return entry, problems
+
+
 def read_levels_csv(
     source: CsvSource,
     catalogue: ExamCatalogue | None = None,
@@ -424,102 +510,23 @@ def read_levels_csv(
     entries: dict[tuple[str, str], list[LevelEntry]] = {}
     seen_entries: dict[tuple[str, ...], int] = {}
     for line, row in table.rows:
-        n_before = len(problems)
         name, version = row["set_name"], row["version"]
         if not name or not version:
             problems.append((line, "set_name and version must not be empty"))
             continue
-        if row["kind"] not in LEVEL_KINDS:
-            problems.append(
-                (line, f"kind must be one of {', '.join(LEVEL_KINDS)}, got {row['kind']!r}")
-            )
-        if not _ISO_DATE.match(row["effective_from"]):
-            problems.append(
-                (line, f"effective_from {row['effective_from']!r} is not a date YYYY-MM-DD")
-            )
-        else:
-            try:
-                date.fromisoformat(row["effective_from"])
-            except ValueError:
-                problems.append(
-                    (line, f"effective_from {row['effective_from']!r} is not a valid date")
-                )
-        key = (name, version)
-        head = {k: row[k] for k in ("kind", "effective_from", "set_source")}
-        if key in heads:
-            first_line, first = heads[key]
-            for k, v in head.items():
-                if v != first[k]:
-                    problems.append(
-                        (
-                            line,
-                            f"{k} {v!r} differs from {first[k]!r} on line {first_line} for "
-                            f"set {name!r} version {version!r}",
-                        )
-                    )
-        else:
-            heads[key] = (line, head)
-        exam_type, quantity = row["exam_type"], row["quantity"]
-        if not exam_type:
-            problems.append((line, "exam_type is empty"))
-        elif catalogue is not None and exam_type not in catalogue:
-            problems.append((line, f"exam_type {exam_type!r} is not in the catalogue"))
-        if quantity not in QUANTITIES:
-            problems.append((line, f"quantity {quantity!r} is not one of {', '.join(QUANTITIES)}"))
-        value = math.nan
-        try:
-            value = float(row["value"])
-        except ValueError:
-            problems.append((line, f"value {row['value']!r} is not a number"))
-        else:
-            if not (math.isfinite(value) and value > 0):
-                problems.append((line, f"value {row['value']!r} must be a positive number"))
-        if quantity in QUANTITIES and math.isfinite(value):
-            try:
-                value = to_canonical_unit(quantity, value, row["unit"])
-            except ReviewError as exc:
-                problems.append((line, str(exc)))
-        group, indication = row["patient_group"], row["clinical_indication"]
-        if group and group not in bands and not is_size_band(group):
-            problems.append(
-                (
-                    line,
-                    f"patient_group {group!r} is not a band of {bands.source} (bands: "
-                    f"{', '.join(g.patient_group for g in bands)}) nor a CT size band "
-                    "(ct_dw_20_25cm)",
-                )
-            )
-        if indication and not _IDENTIFIER.match(indication):
-            problems.append(
-                (line, f"clinical_indication {indication!r} must be lower-case [a-z0-9_]")
-            )
-        if row["kind"] in PUBLISHED_KINDS and not row["source"]:
-            problems.append(
-                (line, f"{_a(row['kind'])} level needs its published source in the source column")
-            )
-        entry_key = (name, version, exam_type, quantity, group, indication)
+        row_problems = _set_head_problems(row, line, heads)
+        entry, entry_problems = _level_entry(row, catalogue, bands)
+        row_problems += entry_problems
+        entry_key = (name, version, row["exam_type"], entry.quantity, *_group_of(row))
         if entry_key in seen_entries:
-            problems.append(
-                (
-                    line,
-                    f"{exam_type} {quantity}{_qualifier(group, indication)} already given on "
-                    f"line {seen_entries[entry_key]} for set {name!r} version {version!r}",
-                )
+            row_problems.append(
+                f"{row['exam_type']} {entry.quantity}{_qualifier(*_group_of(row))} already "
+                f"given on line {seen_entries[entry_key]} for set {name!r} version {version!r}"
             )
         seen_entries.setdefault(entry_key, line)
-        if len(problems) == n_before:
-            entries.setdefault(key, []).append(
-                LevelEntry(
-                    exam_type=exam_type,
-                    quantity=quantity,
-                    value=value,
-                    unit=QUANTITIES[quantity].unit,
-                    source=row["source"],
-                    note=row["note"],
-                    patient_group=group,
-                    clinical_indication=indication,
-                )
-            )
+        problems += [(line, problem) for problem in row_problems]
+        if not row_problems:
+            entries.setdefault((name, version), []).append(entry)
     if problems:
         raise CsvFormatError(table.source, problems)
     sets = [

@@ -1,7 +1,12 @@
 """The dose quantities a review compares with reference levels, their units and unit conversions.
 
 The quantity names are the column names of the events table (see :mod:`beamaudit.api.review.run`)
-and carry their unit, as everywhere in beamaudit. Which quantity serves which modality follows
+and carry their unit, as everywhere in beamaudit. :data:`QUANTITIES` is the one mapping from a
+quantity's name to the stored column a review judges (``Quantity.column``) and to beamaudit's own
+estimate of it (``Quantity.reconstructed_column``); the store's read, the exports, the REST routes
+and the command line take the columns from here. Names that earlier versions wrote in level and
+exam-type files (``ref_point_air_kerma_mgy``, ``agd_mgy``) are read as :data:`QUANTITY_ALIASES`
+(:func:`quantity_name`). Which quantity serves which modality follows
 ICRP Publication 135 (2017), table of DRL quantities (radiography K_a,e or P_KA; mammography D_G and
 K_a,i or K_a,e; interventional fluoroscopy P_KA and K_a,r; CT CTDIvol and DLP).
 
@@ -18,7 +23,14 @@ from types import MappingProxyType
 
 from beamaudit.api.review.errors import ReviewError
 
-__all__ = ["QUANTITIES", "Quantity", "normalise_unit", "to_canonical_unit"]
+__all__ = [
+    "QUANTITIES",
+    "QUANTITY_ALIASES",
+    "Quantity",
+    "normalise_unit",
+    "quantity_name",
+    "to_canonical_unit",
+]
 
 
 @dataclass(frozen=True, slots=True)
@@ -37,6 +49,14 @@ class Quantity:
         A short name for sentences (``"DAP"``).
     description : str
         What the quantity is, with its ICRU symbol.
+    column : str
+        The column of ``exposure_events`` whose value a review judges: the reported value where
+        the device reports the quantity, else beamaudit's reconstruction.
+    reconstructed_column : str or None
+        The column of beamaudit's own estimate of the quantity (``recon_*``), None where there
+        is none.
+    aliases : tuple of str
+        Names earlier versions wrote for the quantity (read, never written).
     """
 
     name: str
@@ -44,6 +64,9 @@ class Quantity:
     display_unit: str
     label: str
     description: str
+    column: str = ""
+    reconstructed_column: str | None = None
+    aliases: tuple[str, ...] = ()
 
 
 QUANTITIES: MappingProxyType[str, Quantity] = MappingProxyType(
@@ -51,22 +74,78 @@ QUANTITIES: MappingProxyType[str, Quantity] = MappingProxyType(
         q.name: q
         for q in (
             Quantity(
-                "dap_gy_cm2", "Gy.cm2", "Gy·cm²", "DAP", "air kerma-area product P_KA (DAP, KAP)"
+                "dap_gy_cm2",
+                "Gy.cm2",
+                "Gy·cm²",
+                "DAP",
+                "air kerma-area product P_KA (DAP, KAP)",
+                column="dap_gy_cm2",
+                reconstructed_column="recon_dap_gy_cm2",
             ),
-            Quantity("esak_mgy", "mGy", "mGy", "ESAK", "entrance surface air kerma K_a,e"),
+            # no device reports K_a,e: the review judges beamaudit's reconstruction
             Quantity(
-                "ref_point_air_kerma_mgy",
+                "esak_mgy",
+                "mGy",
+                "mGy",
+                "ESAK",
+                "entrance surface air kerma K_a,e",
+                column="recon_esak_mgy",
+                reconstructed_column="recon_esak_mgy",
+            ),
+            Quantity(
+                "reference_point_air_kerma_mgy",
                 "mGy",
                 "mGy",
                 "K_a,r",
                 "air kerma at the patient entrance reference point K_a,r (IEC 60601-2-43)",
+                column="reference_point_air_kerma_mgy",
+                aliases=("ref_point_air_kerma_mgy",),
             ),
-            Quantity("ctdivol_mgy", "mGy", "mGy", "CTDIvol", "volume CT air kerma index C_VOL"),
-            Quantity("dlp_mgy_cm", "mGy.cm", "mGy·cm", "DLP", "CT air kerma-length product P_KL"),
-            Quantity("agd_mgy", "mGy", "mGy", "AGD", "mean glandular dose D_G"),
+            Quantity(
+                "ctdivol_mgy",
+                "mGy",
+                "mGy",
+                "CTDIvol",
+                "volume CT air kerma index C_VOL",
+                column="ctdivol_mgy",
+            ),
+            Quantity(
+                "dlp_mgy_cm",
+                "mGy.cm",
+                "mGy·cm",
+                "DLP",
+                "CT air kerma-length product P_KL",
+                column="dlp_mgy_cm",
+            ),
+            # the device's Average Glandular Dose is DICOM's Organ Dose of the breast
+            Quantity(
+                "mgd_mgy",
+                "mGy",
+                "mGy",
+                "AGD",
+                "mean glandular dose D_G",
+                column="organ_dose_mgy",
+                reconstructed_column="recon_mgd_mgy",
+                aliases=("agd_mgy",),
+            ),
         )
     }
 )
+
+#: Old name -> name, for level and exam-type files written by earlier versions.
+QUANTITY_ALIASES: MappingProxyType[str, str] = MappingProxyType(
+    {alias: q.name for q in QUANTITIES.values() for alias in q.aliases}
+)
+
+
+def quantity_name(name: str) -> str:
+    """The quantity's name for ``name`` (an old name read as its alias); any other text as it is.
+
+    >>> quantity_name("ref_point_air_kerma_mgy")
+    'reference_point_air_kerma_mgy'
+    """
+    return QUANTITY_ALIASES.get(name, name)
+
 
 # Factor that turns a value in the (normalised) unit on the left into the quantity's own unit.
 # Plain SI prefixes: d = 1e-1, c = 1e-2, m = 1e-3, u = 1e-6; 1 m² = 1e4 cm².
@@ -89,10 +168,10 @@ _CONVERSIONS = MappingProxyType(
     {
         "dap_gy_cm2": _DAP_TO_GY_CM2,
         "esak_mgy": _KERMA_TO_MGY,
-        "ref_point_air_kerma_mgy": _KERMA_TO_MGY,
+        "reference_point_air_kerma_mgy": _KERMA_TO_MGY,
         "ctdivol_mgy": _KERMA_TO_MGY,
         "dlp_mgy_cm": _DLP_TO_MGY_CM,
-        "agd_mgy": _KERMA_TO_MGY,
+        "mgd_mgy": _KERMA_TO_MGY,
     }
 )
 

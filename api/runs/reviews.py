@@ -5,9 +5,10 @@
   superseded image-header events (their study's dose report carries them) are
   left out, and the images of one CT acquisition count once (the first image by
   id stands for its acquisition: CTDIvol in CT headers is per acquisition and
-  is never summed over slices). ``esak_mgy`` is beamaudit's reconstructed
-  entrance surface air kerma; ``dap_gy_cm2`` the reported DAP and
-  ``recon_dap_gy_cm2`` the reconstructed one.
+  is never summed over slices). Each quantity's column is read from the stored
+  column :data:`~beamaudit.api.review.quantities.QUANTITIES` names (``esak_mgy``
+  from beamaudit's reconstructed ``recon_esak_mgy``, ``mgd_mgy`` from the
+  device's ``organ_dose_mgy``); ``recon_dap_gy_cm2`` is the reconstructed DAP.
 * :func:`run_review` stores a :class:`~beamaudit.api.store.models.ReviewRun`
   with its parameters, the reference-level set versions used and the software
   version, runs the core, stores the result (JSON) and its flags, and returns
@@ -54,6 +55,7 @@ from beamaudit.api.review import (
     ReviewResult,
     review,
 )
+from beamaudit.api.review.quantities import QUANTITIES
 from beamaudit.api.runs.findings import store_flags
 from beamaudit.api.runs.record import (
     NoEventsError,
@@ -97,15 +99,15 @@ _DENSE_SELECT: tuple[Any, ...] = (
     _E.patient_age_years,
     _E.dap_gy_cm2,
     _E.recon_dap_gy_cm2,
-    _E.recon_esak_mgy.label("esak_mgy"),
+    getattr(_E, QUANTITIES["esak_mgy"].column).label("esak_mgy"),
     _E.deviation_index,
 )
 #: Columns only some kinds of event carry: read for the events that have at least one of them.
 _SPARSE_COLUMNS: tuple[tuple[str, Any], ...] = (
-    ("ref_point_air_kerma_mgy", _E.reference_point_air_kerma_mgy),
-    ("ctdivol_mgy", _E.ctdivol_mgy),
-    ("dlp_mgy_cm", _E.dlp_mgy_cm),
-    ("agd_mgy", _E.organ_dose_mgy),
+    *(
+        (q, getattr(_E, QUANTITIES[q].column))
+        for q in ("reference_point_air_kerma_mgy", "ctdivol_mgy", "dlp_mgy_cm", "mgd_mgy")
+    ),
     ("fluoro_time_s", case((_E.event_type == "fluoroscopy", _E.irradiation_duration_s))),
     # mammography's groups are set by the compressed thickness (review/mammography.py)
     ("breast_thickness_mm", case((_E.modality == "MG", _E.body_part_thickness_mm))),
@@ -763,7 +765,7 @@ _EXAM_TYPE_COLUMNS: tuple[tuple[str, Any], ...] = (
     ("exposure_mas", _E.exposure_mas),
     ("dap_gy_cm2", _E.dap_gy_cm2),
     ("recon_dap_gy_cm2", _E.recon_dap_gy_cm2),
-    ("esak_mgy", _E.recon_esak_mgy),
+    ("esak_mgy", getattr(_E, QUANTITIES["esak_mgy"].column)),
     *_SPARSE_COLUMNS[:4],
 )
 

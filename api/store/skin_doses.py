@@ -7,7 +7,7 @@ ingest by :mod:`beamaudit.api.intake.skin`.
 from __future__ import annotations
 
 from collections.abc import Collection, Mapping
-from dataclasses import dataclass
+from dataclasses import dataclass, field, fields
 from datetime import datetime, timedelta
 from typing import Any
 
@@ -26,6 +26,7 @@ __all__ = [
     "followup_page_data",
     "followup_rows",
     "followup_states",
+    "patient_skin_dose",
     "set_followup",
     "skin_page_record",
 ]
@@ -49,7 +50,8 @@ def set_followup(
 
 @dataclass(frozen=True)
 class CumulativeEntry:
-    """One patient's procedures in a window and their cumulative peak skin dose."""
+    """One patient's procedures in a window and their cumulative peak skin dose (``method``:
+    how it was made, :func:`beamaudit.model.followup.cumulative_skin_dose`)."""
 
     patient_pseudo_id: str
     study_uids: tuple[str, ...]
@@ -58,6 +60,14 @@ class CumulativeEntry:
     upper_bound_mgy: float
     method: str
     notes: tuple[str, ...]
+    #: the exams' ids, in the order of ``study_uids``
+    exam_ids: tuple[int, ...] = ()
+    #: the added map (``SkinDoseMap.as_record()``'s shape), None when the peaks were added
+    map_record: dict[str, Any] | None = field(default=None, repr=False, compare=False)
+
+    def summary(self) -> dict[str, Any]:
+        """The entry without its map (the follow-up list's row)."""
+        return {f.name: getattr(self, f.name) for f in fields(self) if f.name != "map_record"}
 
 
 def followup_rows(session: Session, *, include_closed: bool = False) -> list[dict[str, Any]]:
@@ -135,45 +145,127 @@ def cumulative_skin_doses(
     session: Session, *, window_days: float, as_of: datetime | None = None
 ) -> list[CumulativeEntry]:
     """Cumulative peak skin dose of each pseudonymised patient with more than one procedure
-    within ``window_days`` before ``as_of`` (default now), from the stored maps
-    (:func:`beamaudit.model.followup.cumulative_skin_dose`: maps added where they share a frame,
-    else the sum of the peaks as an upper bound)."""
-    from beamaudit.model.followup import cumulative_skin_dose
+    within ``window_days`` before ``as_of`` (default now), highest first (:func:`patient_skin_dose`
+    for how each is made)."""
+    out = [
+        entry
+        for entry in _cumulative(session, window_days=window_days, as_of=as_of).values()
+        if len(entry.study_uids) > 1
+    ]
+    return sorted(out, key=lambda e: -e.peak_skin_dose_mgy)
 
+
+def patient_skin_dose(
+    session: Session, patient_pseudo_id: str, *, window_days: float, as_of: datetime | None = None
+) -> CumulativeEntry | None:
+    """One pseudonymised patient's skin dose over the procedures within ``window_days`` before
+    ``as_of`` (default now), or None when the patient has no skin-dose row in the window.
+
+    The stored maps are added cell by cell where they lie on one patient-surface grid (the same
+    patient model: :func:`beamaudit.model.followup.cumulative_skin_dose`, method ``maps_added``,
+    or ``maps_added_assumed_alignment`` where a map's place along the body was assumed); maps of
+    different patient models cannot be added, and the sum of the procedures' peaks is given as
+    the upper bound it is (``peaks_added``). A procedure in the window whose map could not be
+    computed is named in the notes, never dropped in silence. ``map_record`` is the added map in
+    the shape of ``SkinDoseMap.as_record()`` (None when the peaks were added).
+    """
+    found = _cumulative(session, window_days=window_days, as_of=as_of, patient=patient_pseudo_id)
+    return found.get(patient_pseudo_id)
+
+
+def _cumulative(
+    session: Session,
+    *,
+    window_days: float,
+    as_of: datetime | None,
+    patient: str | None = None,
+) -> dict[str, CumulativeEntry]:
     end = as_of or utcnow()
     start = end - timedelta(days=window_days)
     query = (
         select(m.SkinDoseRow, m.Study)
         .join(m.Study, m.Study.id == m.SkinDoseRow.study_id)
         .where(
-            m.SkinDoseRow.status == "ok",
             m.Study.patient_pseudo_id.is_not(None),
             m.Study.study_datetime >= start,
             m.Study.study_datetime <= end,
         )
-        .order_by(m.Study.patient_pseudo_id, m.Study.study_datetime)
+        .order_by(m.Study.patient_pseudo_id, m.Study.study_datetime, m.Study.id)
     )
+    if patient is not None:
+        query = query.where(m.Study.patient_pseudo_id == patient)
     by_patient: dict[str, list[tuple[m.SkinDoseRow, m.Study]]] = {}
     for skin, study in session.execute(query).all():
         by_patient.setdefault(str(study.patient_pseudo_id), []).append((skin, study))
-    out = []
-    for patient, pairs in by_patient.items():
-        if len(pairs) < 2:
-            continue
-        maps = [_map_from_record(skin.record or {}) for skin, _ in pairs]
-        result = cumulative_skin_dose(maps, window_days=window_days)
-        out.append(
-            CumulativeEntry(
-                patient_pseudo_id=patient,
-                study_uids=tuple(study.study_instance_uid for _, study in pairs),
-                peak_skin_dose_mgy=result.peak_skin_dose_mgy,
-                lower_bound_mgy=result.lower_bound_mgy,
-                upper_bound_mgy=result.upper_bound_mgy,
-                method=result.method,
-                notes=result.notes,
-            )
+    return {
+        key: _patient_entry(key, pairs, window_days=window_days)
+        for key, pairs in by_patient.items()
+    }
+
+
+def _patient_entry(
+    patient: str, pairs: list[tuple[m.SkinDoseRow, m.Study]], *, window_days: float
+) -> CumulativeEntry:
+    from beamaudit.model.followup import cumulative_skin_dose
+
+    usable = [(s, st) for s, st in pairs if s.status == "ok" and (s.record or {}).get("map")]
+    without = [st.study_instance_uid for s, st in pairs if (s, st) not in usable]
+    maps = [_map_from_record(skin.record or {}) for skin, _ in usable]
+    result = cumulative_skin_dose(maps, window_days=window_days)
+    notes = list(result.notes)
+    if without:
+        notes.append(
+            f"{len(without)} procedure(s) in the window without a skin-dose map "
+            f"({', '.join(without)}): not in the cumulative figure, which is a lower bound "
+            "for that reason"
         )
-    return sorted(out, key=lambda e: -e.peak_skin_dose_mgy)
+    record = None
+    if result.dose_mgy is not None and usable:
+        record = _added_record(usable[0][0].record or {}, result.dose_mgy)
+    return CumulativeEntry(
+        patient_pseudo_id=patient,
+        study_uids=tuple(study.study_instance_uid for _, study in pairs),
+        peak_skin_dose_mgy=result.peak_skin_dose_mgy,
+        lower_bound_mgy=result.lower_bound_mgy,
+        upper_bound_mgy=result.upper_bound_mgy,
+        method=result.method,
+        notes=tuple(notes),
+        exam_ids=tuple(int(study.id) for _, study in pairs),
+        map_record=record,
+    )
+
+
+def _added_record(first: Mapping[str, Any], dose: Any) -> dict[str, Any]:
+    """The added map in the shape of ``SkinDoseMap.as_record()``: the first map's grid and
+    patient, the summed dose, its peak and the areas above the follow-up levels."""
+    import numpy as np
+
+    grid = dict(first.get("map") or {})
+    total = np.asarray(dose, dtype=np.float64)
+    levels = [float(v) for v in first.get("isodose_levels_mgy") or ()]
+    cell_cm2 = float(grid.get("cell_around_mm") or 0.0) * float(grid.get("cell_along_mm") or 0.0)
+    peak = None
+    if total.size and float(total.max()) > 0:
+        i, j = (int(k) for k in np.unravel_index(int(np.argmax(total)), total.shape))
+        peak = {
+            "side": "back" if j < total.shape[1] // 2 else "front",
+            "along_mm": float(grid["along_mm"][i]),
+            "around_mm": float(grid["around_mm"][j]),
+            "along_index": i,
+            "around_index": j,
+        }
+    grid["dose_mgy"] = np.round(total, 3).tolist()
+    return {
+        "peak_skin_dose_mgy": float(total.max()) if total.size else 0.0,
+        "area_above_cm2": {
+            f"{v:g}": float(np.count_nonzero(total >= v)) * cell_cm2 / 100.0 for v in levels
+        },
+        "isodose_levels_mgy": levels,
+        "peak": peak,
+        "uncertainty_pct": None,
+        "patient": first.get("patient") or {},
+        "map": grid,
+    }
 
 
 def _map_from_record(record: Mapping[str, Any]) -> Any:
@@ -314,6 +406,7 @@ def skin_page_record(session: Session, study_uid: str) -> dict[str, Any] | None:
     if row is None:
         return None
     return {
+        "exam_id": row.study_id,
         "status": row.status,
         "reason": row.reason,
         "peak_skin_dose_mgy": row.peak_skin_dose_mgy,

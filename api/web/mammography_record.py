@@ -51,7 +51,7 @@ def mammography_exposure(event: Any, trail: dict[str, Any]) -> dict[str, Any]:
     if event.organ_dose_mgy is not None and event.agd_ratio_reported_to_recon is not None:
         agd["reported"] = float(event.organ_dose_mgy)
         agd["ratio"] = float(event.agd_ratio_reported_to_recon)
-    dose: dict[str, Any] = {"agd_mgy": agd}
+    dose: dict[str, Any] = {"mgd_mgy": agd}
     if event.recon_incident_air_kerma_mgy is not None:
         dose["incident_air_kerma_mgy"] = {
             "value": float(event.recon_incident_air_kerma_mgy),

@@ -19,9 +19,11 @@ beamaudit_pull_errors{source}               gauge    objects its last pull could
 beamaudit_pull_last_timestamp_seconds       gauge    when it last pulled (Unix time)
 beamaudit_notifications_total{channel,..}   counter  digests sent and failed (delivery log)
 beamaudit_listener_associations_total       counter  this listener process's associations
+beamaudit_listener_spooled                  gauge    objects it acknowledged, not yet stored
 ==========================================  =======  ==========================================
 
-The last is counted in the ``listen`` process itself (:class:`AssociationCounter`) and shown on
+The last two are counted in the ``listen`` process itself (:class:`AssociationCounter`, the
+spool's count: :func:`spooled_family`) and shown on
 the listener's own metrics address. No label carries a patient identifier, a URL or a secret:
 sources are named by their name.
 
@@ -159,6 +161,8 @@ def store_families(session: Session) -> list[Family]:
                     "Objects the last pull of each DICOMweb source could not use.")  # fmt: skip
     when = Family("beamaudit_pull_last_timestamp_seconds", "gauge",
                   "When each DICOMweb source was last pulled (Unix time).")  # fmt: skip
+    failed = Family("beamaudit_pull_failed", "gauge",
+                    "1 when the last pull of a source failed as a whole, else 0.")  # fmt: skip
     for name, at, report in session.execute(
         select(m.DicomwebSource.name, m.DicomwebSource.last_pull_at,
                m.DicomwebSource.last_pull_report)
@@ -168,9 +172,10 @@ def store_families(session: Session) -> list[Family]:
         report = report or {}
         when.add(at.timestamp(), source=name)
         errors.add(len(report.get("errors") or []), source=name)
+        failed.add(1 if report.get("failed") else 0, source=name)
         if report.get("duration_s") is not None:
             duration.add(float(report["duration_s"]), source=name)
-    fams += [duration, errors, when]
+    fams += [duration, errors, when, failed]
     fams.append(
         _counts(session, Family("beamaudit_notifications_total", "counter",
                                 "Digests of new findings, by channel and status (sent, failed)."),
@@ -211,6 +216,19 @@ class AssociationCounter:
             for result, n in self.counts.items():
                 fam.add(n, result=result)
         return fam
+
+
+def spooled_family(spool: Any) -> Callable[[], Family]:
+    """The listener's spool as a gauge: objects acknowledged (success answered) and not yet
+    stored; they count in ``beamaudit_objects_received_total`` once stored."""
+
+    def family() -> Family:
+        fam = Family("beamaudit_listener_spooled", "gauge",
+                     "Objects this listener acknowledged that are not stored yet.")  # fmt: skip
+        fam.add(int(spool.pending))
+        return fam
+
+    return family
 
 
 def collector(sessions: sessionmaker[Session], *extra: Callable[[], Family]) -> Callable[[], str]:

@@ -16,6 +16,7 @@ from sqlalchemy.orm import Session
 
 from beamaudit.api.intake.mammography import is_mammography
 from beamaudit.api.intake.reconstruct import trail_for_event
+from beamaudit.api.review.quantities import QUANTITIES
 from beamaudit.api.runs.record import record_periods, record_run, record_run_ids, scope_text
 from beamaudit.api.store import models as m
 from beamaudit.api.web.mammography_record import mammography_exposure
@@ -375,12 +376,8 @@ def exam_record(
                 "uncertainty": float(trail.get("backscatter_factor_standard_uncertainty") or 0),
                 "source": trail.get("backscatter_factor_source") or "",
             }
-        for name, attr in (
-            ("ctdivol_mgy", "ctdivol_mgy"),
-            ("dlp_mgy_cm", "dlp_mgy_cm"),
-            ("ref_point_air_kerma_mgy", "reference_point_air_kerma_mgy"),
-        ):
-            value = getattr(e, attr)
+        for name in ("ctdivol_mgy", "dlp_mgy_cm", "reference_point_air_kerma_mgy"):
+            value = getattr(e, QUANTITIES[name].column)
             if value is not None:
                 dose[name] = {"value": float(value), "reported": float(value), "ratio": 1.0}
         dose.update(_size_figures(e))

@@ -186,7 +186,7 @@ def test_the_trail_is_made_again_with_the_stored_figure(store, tmp_path) -> None
         trail = trail_for_event(s, row)
     assert trail is not None
     assert trail["mgd_mgy"] == pytest.approx(row.recon_mgd_mgy, rel=1e-9)
-    assert trail["reported_agd_mgy"] == pytest.approx(1.31)
+    assert trail["reported_mgd_mgy"] == pytest.approx(1.31)
     assert "notes" not in trail  # made by this version: nothing to say
 
 
@@ -267,7 +267,7 @@ def test_a_stored_review_groups_the_views_by_thickness_band(store, tmp_path) -> 
         groups = {
             (g["exam_type"], g["patient_group"]): g["n"]
             for g in run.result["groups"]
-            if g["quantity"] == "agd_mgy"
+            if g["quantity"] == "mgd_mgy"
         }
     # the report's views: CC 52 mm in the band, the sweep (protocol "Tomo CC": an exam type of
     # its own) 52 mm in the band, MLO 48 mm outside it
@@ -298,7 +298,7 @@ def test_explain_and_export_name_the_mammography_figures(settings_env, tmp_path,
     assert main(["explain", header["id"], "--json"]) == 0
     explained = json.loads(capsys.readouterr().out)
     assert explained["mammography"]["mgd_mgy"] == pytest.approx(float(header["recon_mgd_mgy"]))
-    assert explained["mammography"]["reported_agd_mgy"] == pytest.approx(1.31)
+    assert explained["mammography"]["reported_mgd_mgy"] == pytest.approx(1.31)
     assert main(["explain", header["id"]]) == 0
     text = capsys.readouterr().out
     assert "mean glandular dose (AGD)" in text and "W/Rh" in text

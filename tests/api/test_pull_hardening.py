@@ -75,6 +75,28 @@ def test_a_503_source_is_retried_a_bounded_number_of_times_then_one_clear_line(
         assert len(pacs.seen) == 2  # the first try and one retry, 1 s apart
 
 
+@pytest.mark.parametrize("backend", BACKENDS)
+def test_a_pull_that_fails_as_a_whole_is_kept_on_its_source(backend: str, tmp_path: Path) -> None:
+    """The admin page and /metrics must show that last night's pull failed, and why; the
+    watermark does not move."""
+    from beamaudit.api.web.metrics import collector
+
+    with fake_pacs(status=503) as pacs, shared_store(backend, tmp_path) as store:
+        with pytest.raises(PullError):
+            _pull(store, pacs.url, retry_attempts=1)
+        with store.sessions() as s:
+            source = s.scalars(select(m.DicomwebSource)).one()
+            report, at = source.last_pull_report, source.last_pull_at
+            assert source.watermark_date is None
+        assert at is not None
+        assert "503" in report["failed"] and report["events"] == 0
+        assert report["errors"][0]["reason"] == report["failed"]
+        metrics = collector(store.sessions)()
+        assert 'beamaudit_pull_failed{source="' in metrics
+        failed = [ln for ln in metrics.splitlines() if ln.startswith("beamaudit_pull_failed{")]
+        assert failed and failed[0].endswith(" 1"), failed
+
+
 @pytest.mark.slow
 @pytest.mark.parametrize("backend", BACKENDS)
 def test_nightly_goes_on_past_a_failed_source_and_exits_2(backend: str, tmp_path: Path) -> None:

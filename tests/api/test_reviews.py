@@ -177,10 +177,10 @@ def _plain_table(session: Any) -> pd.DataFrame:
                 "dap_gy_cm2": number(e.dap_gy_cm2),
                 "recon_dap_gy_cm2": number(e.recon_dap_gy_cm2),
                 "esak_mgy": number(e.recon_esak_mgy),
-                "ref_point_air_kerma_mgy": number(e.reference_point_air_kerma_mgy),
+                "reference_point_air_kerma_mgy": number(e.reference_point_air_kerma_mgy),
                 "ctdivol_mgy": number(e.ctdivol_mgy),
                 "dlp_mgy_cm": number(e.dlp_mgy_cm),
-                "agd_mgy": number(e.organ_dose_mgy),
+                "mgd_mgy": number(e.organ_dose_mgy),
                 "deviation_index": number(e.deviation_index),
                 "fluoro_time_s": number(e.irradiation_duration_s)
                 if e.event_type == "fluoroscopy"

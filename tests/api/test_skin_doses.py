@@ -256,7 +256,7 @@ def test_storescu_to_beamaudit_listen_stores_the_skin_dose(backend: str, tmp_pat
     import subprocess
 
     from peers import free_port, require_peer, wait_for_tcp, which_or_none
-    from procs import beamaudit_process, shared_store
+    from procs import beamaudit_process, shared_store, wait_spool_drained
 
     storescu = which_or_none("storescu")
     require_peer("dcmtk storescu", storescu is not None, "apt-get install -y dcmtk")
@@ -278,6 +278,8 @@ def test_storescu_to_beamaudit_listen_stores_the_skin_dose(backend: str, tmp_pat
                 capture_output=True, text=True, timeout=120,
                 env={"TCP_NODELAY": "1", "PATH": os.environ.get("PATH", "/usr/bin:/bin")},
             )  # fmt: skip
+            if sent.returncode == 0:
+                wait_spool_drained(shared, port)  # stored after its answer, from the spool
         assert sent.returncode == 0, sent.stderr
         assert "Store Failed" not in sent.stderr
         with shared.sessions() as s:
@@ -297,3 +299,59 @@ def test_storescu_to_beamaudit_listen_stores_the_skin_dose(backend: str, tmp_pat
     assert sorted(c["event_index"] for c in skin.events_at_peak) == [0, 1]
     assert skin.followup_status == "open"
     assert skin.record is not None and skin.record["map"]["dose_mgy"]
+
+
+def test_the_skin_command_writes_the_map_as_a_png(settings_env, tmp_path, capsys) -> None:
+    # the command line on SQLite; PNG signature ISO/IEC 15948 section 5.2
+    import io
+    import json
+    from datetime import timedelta
+
+    from PIL import Image
+    from sqlalchemy import create_engine
+
+    from beamaudit.api.cli import main
+    from beamaudit.api.store.base import utcnow
+    from beamaudit.dashboards.skin_image import SKIN_DOSE_PNG_SIZE_PX
+
+    write_reports(tmp_path / "in")
+    assert main(["scan", str(tmp_path / "in")]) == 0
+    engine = create_engine(f"sqlite:///{settings_env}")
+    with engine.begin() as conn:
+        uids = sorted(r[0] for r in conn.execute(select(m.Study.study_instance_uid)))
+        for k, uid in enumerate(uids):  # one patient's three procedures, this month
+            conn.execute(
+                m.Study.__table__.update()
+                .where(m.Study.study_instance_uid == uid)
+                .values(patient_pseudo_id="P-CLI", study_datetime=utcnow() - timedelta(days=k))
+            )
+    engine.dispose()
+    capsys.readouterr()
+    target = tmp_path / "map.png"
+    assert main(["skin", uids[0], "--png", str(target), "--json"]) == 0
+    data = json.loads(capsys.readouterr().out)
+    assert data["png"] == str(target)
+    assert target.read_bytes().startswith(b"\x89PNG\r\n\x1a\n")
+    with Image.open(target) as image:
+        assert image.size == SKIN_DOSE_PNG_SIZE_PX
+    both = tmp_path / "patient.png"
+    assert main(["skin", "--patient", "P-CLI", "--png", str(both)]) == 0
+    out = capsys.readouterr().out
+    assert "cumulative peak skin dose" in out and "maps added" in out
+    assert "qualified medical physicist" in out
+    with Image.open(io.BytesIO(both.read_bytes())) as image:
+        assert image.format == "PNG"
+    # bad arguments: one line each, exit 2, nothing written
+    for argv, words in (
+        (["skin", uids[0], "--png", str(tmp_path / "map.jpg")], "must end in .png"),
+        (["skin", uids[0], "--png", str(tmp_path / "no" / "map.png")], "no folder"),
+        (["skin"], "either STUDY or --patient"),
+        (["skin", uids[0], "--patient", "P-CLI"], "either STUDY or --patient"),
+        (["skin", "--patient", "P-NOBODY"], "no procedure"),
+        (["skin", "--patient", "P-CLI", "--window-days", "0"], "more than 0"),
+    ):
+        assert main(argv) == 2, argv
+        err = capsys.readouterr().err
+        assert words in err and "Traceback" not in err, (argv, err)
+        assert len(err.strip().splitlines()) == 1, err
+    assert not (tmp_path / "map.jpg").exists()

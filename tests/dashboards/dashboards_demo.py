@@ -48,7 +48,7 @@ EXAM_TYPES: list[dict[str, Any]] = [
         "exam_type": "fluoro_barium_enema",
         "name": "Barium enema",
         "level_applies_per": "examination",
-        "aggregation": "dap_gy_cm2=sum ref_point_air_kerma_mgy=sum",
+        "aggregation": "dap_gy_cm2=sum reference_point_air_kerma_mgy=sum",
     },
 ]
 EXAM_TYPES += [
@@ -122,7 +122,7 @@ def _event(i: int, when: Any, room: str, exam: str, weight: float, **doses: Any)
         "esak_mgy": None,
         "ctdivol_mgy": None,
         "dlp_mgy_cm": None,
-        "ref_point_air_kerma_mgy": None,
+        "reference_point_air_kerma_mgy": None,
     }
     row.update(doses)
     return row
@@ -195,7 +195,7 @@ def _fluoroscopy(rng: np.random.Generator, base: np.datetime64, start: int) -> l
                 dap = round(total * float(shares[k]), 4)
                 row = _event(i, start_at + np.timedelta64(20 * k, "s"), room, exam, weight,
                              kvp_kv=85.0, dap_gy_cm2=dap,
-                             ref_point_air_kerma_mgy=round(dap * 7.0, 2))  # fmt: skip
+                             reference_point_air_kerma_mgy=round(dap * 7.0, 2))  # fmt: skip
                 row["study_uid"] = uid
                 rows.append(row)
     return rows

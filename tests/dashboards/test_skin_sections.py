@@ -45,9 +45,17 @@ def test_exam_page_draws_the_map_and_names_the_levels_reached(demo_exam) -> None
 
 def test_exam_page_says_why_a_map_is_missing(demo_exam) -> None:
     page = render_exam(
-        demo_exam, skin_dose=skin(status="failed", reason="skin-dose map not computed: x")
+        demo_exam,
+        skin_dose=skin(status="failed", reason="skin-dose map not computed: x", exam_id=7),
     )
     assert "skin-dose map not computed: x" in page and 'data-figure="skin-map"' not in page
+    assert "map.png" not in page
+
+
+def test_exam_page_links_the_map_as_a_png_image(demo_exam) -> None:
+    page = render_exam(demo_exam, skin_dose=skin(exam_id=7))
+    assert 'href="/api/v1/exams/7/skin-dose/map.png" download' in page
+    assert "map.png" not in render_exam(demo_exam, skin_dose=skin())
 
 
 def test_flags_page_lists_patients_to_follow_up(demo_flags) -> None:
@@ -77,6 +85,10 @@ def test_flags_page_lists_patients_to_follow_up(demo_flags) -> None:
     assert 'id="follow-up"' in page and 'href="/exams/1.2.3.4#skin-dose"' in page
     assert "follow-up booked" in page and "dermatology in 3 weeks" in page
     assert "within 60 days" in page and "5,200 mGy" in page and "maps added" in page
+    # the added map as a PNG; no link where only the peaks could be added
+    assert 'href="/api/v1/skin-doses/patients/P-1/map.png" download' in page
+    followup["cumulative"][0]["method"] = "peaks_added"
+    assert "map.png" not in render_flags(demo_flags, followup=followup)
     assert 'id="follow-up"' not in render_flags(demo_flags)
 
 

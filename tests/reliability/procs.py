@@ -8,8 +8,10 @@ from __future__ import annotations
 
 import os
 import signal
+import sqlite3
 import subprocess
 import sys
+import time
 import uuid
 from collections.abc import Iterator, Sequence
 from contextlib import contextmanager
@@ -31,7 +33,9 @@ __all__ = [
     "counts",
     "every_value",
     "shared_store",
+    "spool_of",
     "start_beamaudit",
+    "wait_spool_drained",
 ]
 
 POSTGRES_ENV = "BEAMAUDIT_TEST_POSTGRES_URL"
@@ -149,3 +153,34 @@ def beamaudit_process(
         if process.poll() is None:
             os.kill(process.pid, signal.SIGKILL)
         process.wait(timeout=30)
+
+
+def spool_of(store: SharedStore, port: int) -> Path:
+    """The spool file of ``beamaudit listen --port PORT`` on ``store`` (settings by default)."""
+    from beamaudit.api.cli.listen import listen_spool_dir
+    from beamaudit.api.intake.spooling import spool_path
+    from beamaudit.api.settings import Settings
+
+    settings = Settings(database_url=store.url, secret_key_path=store.key_path)
+    return spool_path(listen_spool_dir(settings), store.url, port)
+
+
+def wait_spool_drained(store: SharedStore, port: int, timeout_s: float = 180.0) -> None:
+    """Wait until the listener on ``port`` has stored every object it acknowledged (its spool is
+    empty): it answers once an object is spooled and stores it after."""
+    path = spool_of(store, port)
+    deadline = time.monotonic() + timeout_s
+    left = -1
+    while time.monotonic() < deadline:
+        if path.exists():
+            conn = sqlite3.connect(f"file:{path}?mode=ro", uri=True, timeout=30)
+            try:
+                left = conn.execute("SELECT count(*) FROM received").fetchone()[0]
+            except sqlite3.OperationalError:  # the table is not there yet
+                left = -1
+            finally:
+                conn.close()
+            if left == 0:
+                return
+        time.sleep(0.1)
+    raise AssertionError(f"{left} objects still spooled in {path} after {timeout_s:g} s")

@@ -10,6 +10,7 @@ from __future__ import annotations
 
 import json
 import re
+from collections.abc import Callable
 from pathlib import Path
 
 import pytest
@@ -25,6 +26,7 @@ from beamaudit.api.cli import main
 from beamaudit.api.intake.pipeline import Pipeline
 from beamaudit.api.intake.receiving import make_store_handler
 from beamaudit.api.intake.scanning import scan_paths
+from beamaudit.api.intake.spooling import Spool, SpoolWorker, make_spooling_handler
 from beamaudit.api.store import models as m
 from beamaudit.ingest.errors import ERROR_CODES
 from beamaudit.ingest.listener import ListenerConfig, StoreStatus, start_listener
@@ -154,9 +156,24 @@ def _error_rows(store) -> list[m.IngestError]:
 
 
 @pytest.mark.slow
-def test_listener_answers_and_records_every_case(store, tmp_path: Path, chunked_sends) -> None:
+@pytest.mark.parametrize("spooled", [False, True], ids=["direct", "spooled"])
+def test_listener_answers_and_records_every_case(
+    store, tmp_path: Path, chunked_sends, spooled: bool
+) -> None:
+    """Every case of the corpus is answered and recorded once. Direct (the handler stores before
+    answering): refused with a failure status. Spooled (``beamaudit listen``): refused before the
+    answer when the listener's own checks find it (framing, UIDs, class), else answered success
+    once spooled and recorded as an ingest error when the worker stores the spool."""
     pipeline = Pipeline(store.session_factory)
-    handler = make_store_handler(pipeline, Pseudonymiser(KEY))
+    settle: Callable[[], object] = lambda: None  # noqa: E731
+    if spooled:
+        spool = Spool(tmp_path / "spool.sqlite")
+        handler, store_batch, give_up = make_spooling_handler(
+            spool, pipeline, Pseudonymiser(KEY), max_spooled=1000
+        )
+        settle = SpoolWorker(spool, store_batch, give_up).drain  # not started: drained here
+    else:
+        handler = make_store_handler(pipeline, Pseudonymiser(KEY))
     port = free_port()
     folder = tmp_path / "wire"
     folder.mkdir()
@@ -174,7 +191,8 @@ def test_listener_answers_and_records_every_case(store, tmp_path: Path, chunked_
     ae.add_requested_context("1.2.840.10008.1.1")  # Verification (C-ECHO), PS3.4 Annex A
     refused_at_negotiation: list[str] = []
     refused_by_sender: list[str] = []
-    with start_listener(ListenerConfig(port=port), handler):
+    accepted_then_recorded: list[str] = []
+    with start_listener(ListenerConfig(port=port, decode_values=not spooled), handler):
         assoc = open_association(ae, "127.0.0.1", port, ae_title="BEAMAUDIT")
         assert assoc.is_established
         accepted = {(c.abstract_syntax, c.transfer_syntax[0]) for c in assoc.accepted_contexts}
@@ -191,12 +209,15 @@ def test_listener_answers_and_records_every_case(store, tmp_path: Path, chunked_
                     refused_by_sender.append(case.id if case else path.name)
                     continue
                 assert "Status" in status, f"{path.name}: no answer"
+                settle()
                 rows = _error_rows(store)[before:]
                 if case is None:
                     assert status.Status == StoreStatus.SUCCESS, path.name
                     assert rows == []
                     continue
-                assert status.Status != StoreStatus.SUCCESS, case.id
+                if status.Status == StoreStatus.SUCCESS:
+                    assert spooled, f"{case.id}: answered success"
+                    accepted_then_recorded.append(case.id)
                 assert len(rows) == 1, f"{case.id}: {len(rows)} recorded errors"
                 assert rows[0].received_via == "listen"
                 assert rows[0].reason
@@ -210,7 +231,10 @@ def test_listener_answers_and_records_every_case(store, tmp_path: Path, chunked_
         assert assoc.send_c_store(good).Status == StoreStatus.SUCCESS
         assert assoc.send_c_echo().Status == 0
         assoc.release()
+        settle()
     assert refused_at_negotiation == ["sop-class-mr", "sop-class-junk"]
+    # what the listener's checks find is refused before the answer either way
+    assert spooled == bool(accepted_then_recorded)
     assert refused_by_sender == ["sop-instance-uid-5000"]
     with store.session_factory() as session:
         uids = session.scalars(select(m.SourceObjectRow.sop_instance_uid)).all()

@@ -27,7 +27,7 @@ from peers import (
     wait_for_http,
     wait_for_tcp,
 )
-from procs import SharedStore, beamaudit_process, counts, shared_store
+from procs import SharedStore, beamaudit_process, counts, shared_store, wait_spool_drained
 from pynetdicom import AE
 from sqlalchemy import select
 
@@ -153,6 +153,7 @@ def test_listener_pull_and_uploads_at_once_store_each_instance_once(
                 for thread in threads:
                     thread.join(timeout=240)
                 assert not any(t.is_alive() for t in threads)
+                wait_spool_drained(store, dicom_port)
             (pulled,) = pull_result
             assert pulled.returncode == 0, pulled.stdout + pulled.stderr
             assert statuses == [0x0000] * len(to_listener)
@@ -210,6 +211,8 @@ def test_two_listeners_and_two_scanners_on_one_postgresql(tmp_path: Path) -> Non
                 assert b.wait(timeout=240) == 0, logs[3].read_text()[-3000:]
                 for thread in senders:
                     thread.join(timeout=240)
+            for port in ports:
+                wait_spool_drained(store, port)
         final = counts(store)
         with store.sessions() as session:
             reasons = session.scalars(select(m.IngestError.reason)).all()

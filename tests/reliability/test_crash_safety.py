@@ -1,15 +1,18 @@
 """Crash safety: the scanner and the listener killed with SIGKILL mid-batch, then restarted.
 
 An acknowledged instance is one the store committed: for a scan, a committed batch; for the
-listener, an instance whose C-STORE the sender saw answered success. Each must be stored exactly
-once after the kill; nothing half-stored may remain (an object without its events); a re-run
-stores the rest, every instance once, without duplicates.
+listener, an instance whose C-STORE the sender saw answered success (the listener answers once
+the object is committed to its spool, and stores it from there: after a restart, when killed
+first). Each must be stored exactly once after the kill (and the listener's restart); nothing
+half-stored may remain (an object without its events); a re-run stores the rest, every instance
+once, without duplicates.
 """
 
 from __future__ import annotations
 
 import os
 import signal
+import sqlite3
 import threading
 import time
 from pathlib import Path
@@ -17,14 +20,21 @@ from pathlib import Path
 import pytest
 from corpus import dx_header, encode
 from peers import free_port, wait_for_tcp
-from procs import beamaudit_process, counts, shared_store
+from procs import (
+    SharedStore,
+    beamaudit_process,
+    counts,
+    shared_store,
+    spool_of,
+    wait_spool_drained,
+)
 from pynetdicom import AE
 
 from beamaudit.api.intake.scanning import BATCH_SIZE
 from beamaudit.ingest.sender import open_association
 
 N_SCAN = BATCH_SIZE * 3 + 57  # several batches and a partial one
-N_SEND = 60
+N_SEND = 150  # more than a fast listener acknowledges between the 20th answer and the kill
 DX_PRESENTATION = "1.2.840.10008.5.1.4.1.1.1.1"
 EXPLICIT_LE = "1.2.840.10008.1.2.1"
 
@@ -84,6 +94,17 @@ def test_scanner_killed_mid_batch_keeps_whole_batches_and_a_rerun_completes(
         assert final["errors"] == 0
 
 
+def _spooled_uids(store: SharedStore, port: int) -> list[str]:
+    path = spool_of(store, port)
+    if not path.exists():
+        return []
+    conn = sqlite3.connect(f"file:{path}?mode=ro", uri=True)
+    try:
+        return [row[0] for row in conn.execute("SELECT sop_instance_uid FROM received")]
+    finally:
+        conn.close()
+
+
 def _send_all(port: int, datasets, acknowledged: list[str], answered: list[str]) -> None:  # type: ignore[no-untyped-def]
     """Send every data set on one association until it breaks; note what was answered."""
     ae = AE(ae_title="CRASHTEST")
@@ -139,18 +160,29 @@ def test_listener_killed_mid_association_keeps_every_acknowledged_instance_once(
             sender.join(timeout=60)
         assert not sender.is_alive()
         assert 20 <= len(acknowledged) < N_SEND
+        # the listener answers once an object is in its spool and stores it after: every
+        # acknowledged instance is in the store or the spool; nothing is half-stored. (Its
+        # worker process may finish a batch meanwhile: stored, then deleted from the spool,
+        # so the spool is read first.)
+        spooled = _spooled_uids(store, port)
         after_kill = counts(store)
-        stored = after_kill["uids"]
-        assert after_kill["distinct"] == len(stored)
-        # every acknowledged instance is stored, once; at most the one in flight beyond them
-        assert set(acknowledged) <= set(stored)
-        assert len(stored) - len(acknowledged) <= 1
+        assert after_kill["distinct"] == len(after_kill["uids"])
         assert after_kill["objects_without_events"] == 0
-        # the sender sends everything again to the restarted listener: duplicates are success
+        assert set(acknowledged) <= set(after_kill["uids"]) | set(spooled)
         acknowledged_again: list[str] = []
         with beamaudit_process(args, store, log) as listener:
             assert wait_for_tcp(port, timeout_s=60), log.read_text()[-3000:]
+            wait_spool_drained(store, port)  # the restarted listener stores what is spooled
+            restarted = counts(store)
+            stored = restarted["uids"]
+            assert restarted["distinct"] == len(stored)
+            # every acknowledged instance is stored, once; at most the one in flight beyond them
+            assert set(acknowledged) <= set(stored)
+            assert len(stored) - len(acknowledged) <= 1
+            assert restarted["objects_without_events"] == 0
+            # the sender sends everything again: duplicates are success
             _send_all(port, datasets, acknowledged_again, [])
+            wait_spool_drained(store, port)
         assert sorted(acknowledged_again) == all_uids
         final = counts(store)
         assert sorted(final["uids"]) == all_uids

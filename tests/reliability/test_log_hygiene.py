@@ -21,7 +21,13 @@ from api_support import make_api
 from corpus import _raw, dx_header, encode
 from fake_pacs import Study, dx_metadata, fake_pacs
 from peers import free_port, wait_for_tcp
-from procs import beamaudit_process, counts, every_value, shared_store
+from procs import (
+    beamaudit_process,
+    counts,
+    every_value,
+    shared_store,
+    wait_spool_drained,
+)
 from pynetdicom import AE
 
 from beamaudit.ingest.sender import open_association
@@ -78,6 +84,7 @@ def test_listener_logs_no_birth_date(backend: str, tmp_path: Path) -> None:
             assoc = open_association(ae, "127.0.0.1", port, ae_title="BEAMAUDIT")
             assert assoc.send_c_store(_header_with_birth_date("hygiene-listen")).Status == 0
             assoc.release()
+            wait_spool_drained(store, port)
         assert counts(store)["events"] == 1
         _clean(every_value(store), "the store")
     text = log.read_text()

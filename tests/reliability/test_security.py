@@ -13,7 +13,7 @@ import pytest
 from api_support import make_api
 from corpus import dx_header, encode
 from peers import free_port, wait_for_tcp
-from procs import beamaudit_process, counts, shared_store
+from procs import beamaudit_process, counts, shared_store, wait_spool_drained
 from pynetdicom import AE
 from sqlalchemy import select
 
@@ -122,6 +122,7 @@ def test_listener_accepts_only_the_configured_calling_ae_titles(tmp_path: Path) 
                     assoc.release()
                 else:
                     assert assoc.is_rejected
+            wait_spool_drained(store, port)
         assert counts(store)["objects"] == 1
 
 
@@ -161,4 +162,5 @@ def test_listener_serves_a_legitimate_sender_under_idle_connections_and_associat
                         a.release()
                 for s in bare:
                     s.close()
+            wait_spool_drained(store, port)
         assert counts(store)["objects"] == 1

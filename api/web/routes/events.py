@@ -15,6 +15,7 @@ from sqlalchemy import ColumnElement, Select, and_, exists, func, or_, select
 from beamaudit import CAUTION
 from beamaudit.api.intake.mammography import is_mammography
 from beamaudit.api.intake.reconstruct import trail_for_event
+from beamaudit.api.review.quantities import QUANTITIES
 from beamaudit.api.store import models as m
 from beamaudit.api.web.deps import DbSession, Physicist
 from beamaudit.api.web.routes._common import (
@@ -55,25 +56,30 @@ router = APIRouter(tags=["events"], responses=AUTH_RESPONSES)
 
 E = m.ExposureEventRow
 
+
+def _reviewed(quantity: str, u_col: str | None) -> tuple[str, str, str | None, str, str | None]:
+    """A reviewed quantity's row of :data:`_COMPARED`, its columns from the one mapping."""
+    q = QUANTITIES[quantity]
+    assert q.reconstructed_column is not None
+    reported = q.column if q.column != q.reconstructed_column else None
+    return (quantity, q.display_unit, reported, q.reconstructed_column, u_col)
+
+
 #: (quantity, unit, reported column, reconstructed column, uncertainty column)
 _COMPARED: tuple[tuple[str, str, str | None, str, str | None], ...] = (
-    ("dap_gy_cm2", "Gy·cm²", "dap_gy_cm2", "recon_dap_gy_cm2", "recon_dap_u_gy_cm2"),
+    _reviewed("dap_gy_cm2", "recon_dap_u_gy_cm2"),
     ("hvl_mm_al", "mm Al", "hvl_mm_al", "recon_hvl1_mm_al", None),
     ("output_ugy_per_mas_1m", "µGy/mAs at 1 m", None, "recon_output_ugy_per_mas_1m", None),
     ("incident_air_kerma_mgy", "mGy", None, "recon_incident_air_kerma_mgy", None),
-    ("esak_mgy", "mGy", None, "recon_esak_mgy", "recon_esak_u_mgy"),
+    _reviewed("esak_mgy", "recon_esak_u_mgy"),
     ("entrance_dose_mgy", "mGy", None, "recon_entrance_dose_mgy", None),
     # mammography: the device's AGD (Organ Dose) beside our D_G (Dance method)
-    ("agd_mgy", "mGy", "organ_dose_mgy", "recon_mgd_mgy", "recon_mgd_u_mgy"),
+    _reviewed("mgd_mgy", "recon_mgd_u_mgy"),
     # CT: the scanner's SSDE beside SSDE from our Dw (api/intake/ct_sizing.py)
     ("ssde_mgy", "mGy", "ssde_mgy", "size_ssde_mgy", None),
 )
 #: Reported-only quantities shown in the breakdown when present.
-_REPORTED_ONLY: tuple[tuple[str, str], ...] = (
-    ("reference_point_air_kerma_mgy", "mGy"),
-    ("ctdivol_mgy", "mGy"),
-    ("dlp_mgy_cm", "mGy·cm"),
-)
+_REPORTED_ONLY = ("reference_point_air_kerma_mgy", "ctdivol_mgy", "dlp_mgy_cm")
 
 
 @dataclass(frozen=True, slots=True)
@@ -207,7 +213,7 @@ def dose_breakdown(row: m.ExposureEventRow) -> list[DoseComparison]:
         ratio = _ratio(reported, recon)
         if quantity == "dap_gy_cm2" and row.dap_ratio_reported_to_recon is not None:
             ratio = row.dap_ratio_reported_to_recon
-        if quantity == "agd_mgy":
+        if quantity == "mgd_mgy":
             ratio = row.agd_ratio_reported_to_recon  # None for a dose of another organ
         if quantity == "ssde_mgy" and row.ssde_ratio_reported_to_size is not None:
             ratio = row.ssde_ratio_reported_to_size
@@ -221,13 +227,13 @@ def dose_breakdown(row: m.ExposureEventRow) -> list[DoseComparison]:
                 ratio_reported_to_reconstructed=ratio,
             )
         )
-    for quantity, unit in _REPORTED_ONLY:
-        value = getattr(row, quantity)
+    for quantity in _REPORTED_ONLY:
+        value = getattr(row, QUANTITIES[quantity].column)
         if value is not None:
             out.append(
                 DoseComparison(
                     quantity=quantity,
-                    unit=unit,
+                    unit=QUANTITIES[quantity].display_unit,
                     reported=value,
                     reconstructed=None,
                     reconstructed_uncertainty=None,
@@ -256,7 +262,7 @@ def event_mammography(row: m.ExposureEventRow) -> EventMammography:
         organ_exposed=row.organ_exposed,
         tomo_scan_arc_deg=row.tomo_scan_arc_deg,
         tomo_projections=row.tomo_projections,
-        reported_agd_mgy=row.organ_dose_mgy,
+        reported_mgd_mgy=row.organ_dose_mgy,
         mgd_mgy=row.recon_mgd_mgy,
         mgd_u_mgy=row.recon_mgd_u_mgy,
         ratio_reported_to_reconstructed=row.agd_ratio_reported_to_recon,

@@ -4,17 +4,22 @@ these rows concern single patients."""
 
 from __future__ import annotations
 
-from dataclasses import asdict
-from typing import Annotated
+from typing import Annotated, Any
 
-from fastapi import APIRouter, Depends
+from fastapi import APIRouter, Depends, HTTPException, Path, Response, status
 from sqlalchemy import select
 
 from beamaudit import CAUTION
 from beamaudit.api.settings import Settings
 from beamaudit.api.store import models as m
 from beamaudit.api.store.auth import record_change
-from beamaudit.api.store.skin_doses import cumulative_skin_doses, followup_rows, set_followup
+from beamaudit.api.store.skin_doses import (
+    CumulativeEntry,
+    cumulative_skin_doses,
+    followup_rows,
+    patient_skin_dose,
+    set_followup,
+)
 from beamaudit.api.web.deps import DbSession, Physicist, get_settings
 from beamaudit.api.web.routes._common import (
     AUTH_RESPONSES,
@@ -23,13 +28,16 @@ from beamaudit.api.web.routes._common import (
     get_or_404,
     not_found,
 )
+from beamaudit.api.web.schemas.base import ErrorBody
 from beamaudit.api.web.schemas.skin import (
     CumulativeSkinDoseRead,
     FollowUpItem,
     FollowUpList,
     FollowUpUpdate,
+    PatientSkinDoseRead,
     SkinDoseRead,
 )
+from beamaudit.api.web.skin_image import SkinImageError, exam_skin_png, patient_skin_png
 
 __all__ = ["router"]
 
@@ -129,8 +137,105 @@ def list_skin_dose_follow_up(
         ],
         window_days=window,
         cumulative=[
-            CumulativeSkinDoseRead.model_validate(asdict(e))
+            CumulativeSkinDoseRead.model_validate(e.summary())
             for e in cumulative_skin_doses(session, window_days=window)
         ],
         caution=CAUTION,
     )
+
+
+#: the answer of a map image, for the OpenAPI schema
+PNG_ANSWER: dict[int | str, dict[str, Any]] = {
+    200: {
+        "content": {"image/png": {"schema": {"type": "string", "format": "binary"}}},
+        "description": "The skin-dose map as a PNG image (A4 upright, 150 dpi).",
+    },
+    409: {"model": ErrorBody, "description": "There is no map to draw; the reason."},
+}
+PatientPath = Annotated[
+    str, Path(min_length=1, max_length=128, description="pseudonymised patient id as stored")
+]
+
+
+def _png(data: bytes, filename: str) -> Response:
+    return Response(
+        data,
+        media_type="image/png",
+        headers={"Content-Disposition": f'inline; filename="{filename}"'},
+    )
+
+
+@router.get(
+    "/exams/{exam_id}/skin-dose/map.png",
+    operation_id="get_exam_skin_dose_map_png",
+    response_class=Response,
+    responses={**NOT_FOUND, **PNG_ANSWER},
+)
+def get_exam_skin_dose_map_png(exam_id: IdPath, session: DbSession, _: Physicist) -> Response:
+    """A procedure's skin-dose map as a PNG image for the patient's record or a follow-up letter:
+    back and front unrolled, dose in Gy, isodose lines at 2, 3 and 5 Gy, the peak marked,
+    orientation and the caution; the patient named by the pseudonymised id only. 409 when the
+    map could not be computed."""
+    skin, study = _skin(session, exam_id)
+    try:
+        data = exam_skin_png(skin, study)
+    except SkinImageError as exc:
+        raise HTTPException(status.HTTP_409_CONFLICT, detail=str(exc)) from None
+    return _png(data, f"skin-dose-map-exam-{study.id}.png")
+
+
+def _patient_entry(
+    session: DbSession, patient: str, settings: Settings
+) -> tuple[CumulativeEntry, float]:
+    window = settings.skin_dose_window_days
+    entry = patient_skin_dose(session, patient, window_days=window)
+    if entry is None:
+        raise HTTPException(
+            status.HTTP_404_NOT_FOUND,
+            detail=f"no procedure with a skin-dose estimate in the last {window:g} days "
+            "for this patient",
+        )
+    return entry, window
+
+
+@router.get(
+    "/skin-doses/patients/{patient_pseudo_id}",
+    operation_id="get_patient_skin_dose",
+    response_model=PatientSkinDoseRead,
+    responses=NOT_FOUND,
+)
+def get_patient_skin_dose(
+    patient_pseudo_id: PatientPath,
+    session: DbSession,
+    _: Physicist,
+    settings: Annotated[Settings, Depends(get_settings)],
+) -> PatientSkinDoseRead:
+    """One pseudonymised patient's cumulative peak skin dose over the follow-up window
+    (``skin_dose_window_days``), and how it was made (``method``, ``notes``)."""
+    entry, window = _patient_entry(session, patient_pseudo_id, settings)
+    return PatientSkinDoseRead.model_validate(
+        {**entry.summary(), "window_days": window, "caution": CAUTION}
+    )
+
+
+@router.get(
+    "/skin-doses/patients/{patient_pseudo_id}/map.png",
+    operation_id="get_patient_skin_dose_map_png",
+    response_class=Response,
+    responses={**NOT_FOUND, **PNG_ANSWER},
+)
+def get_patient_skin_dose_map_png(
+    patient_pseudo_id: PatientPath,
+    session: DbSession,
+    _: Physicist,
+    settings: Annotated[Settings, Depends(get_settings)],
+) -> Response:
+    """One pseudonymised patient's cumulative skin-dose map over the follow-up window as a PNG
+    image. 409 when the maps cannot be added (different patient models: the sum of the peaks
+    is given by ``GET /skin-doses/patients/{patient_pseudo_id}`` instead)."""
+    entry, window = _patient_entry(session, patient_pseudo_id, settings)
+    try:
+        data = patient_skin_png(entry, window_days=window)
+    except SkinImageError as exc:
+        raise HTTPException(status.HTTP_409_CONFLICT, detail=str(exc)) from None
+    return _png(data, "skin-dose-map-cumulative.png")

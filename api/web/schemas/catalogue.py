@@ -17,7 +17,7 @@ from beamaudit.api.review.examtypes import (
     RULE_FIELDS,
     compile_pattern,
 )
-from beamaudit.api.review.quantities import QUANTITIES
+from beamaudit.api.review.quantities import QUANTITIES, quantity_name
 from beamaudit.api.web.schemas.base import (
     InputModel,
     Name,
@@ -60,8 +60,12 @@ ModalityGroup = Annotated[
     Field(json_schema_extra={"enum": list(MODALITY_GROUPS)}),
     _one_of(MODALITY_GROUPS, "modality_group"),
 ]
+#: a quantity's name; an earlier version's name (``QUANTITY_ALIASES``) is taken as its quantity
 QuantityName = Annotated[
-    str, Field(json_schema_extra={"enum": list(QUANTITIES)}), _one_of(tuple(QUANTITIES), "quantity")
+    str,
+    Field(json_schema_extra={"enum": list(QUANTITIES)}),
+    AfterValidator(quantity_name),
+    _one_of(tuple(QUANTITIES), "quantity"),
 ]
 AggregationRule = Annotated[
     str,

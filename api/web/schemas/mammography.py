@@ -35,7 +35,7 @@ class EventMammography(ReadModel):
     organ_exposed: str | None = Field(description="what the reported organ dose is of")
     tomo_scan_arc_deg: float | None
     tomo_projections: int | None
-    reported_agd_mgy: float | None = Field(
+    reported_mgd_mgy: float | None = Field(
         description="the device's average glandular dose (Organ Dose (0040,0316) is in dGy, "
         "converted; or TID 10003 Average Glandular Dose)"
     )

@@ -15,6 +15,7 @@ __all__ = [
     "FollowUpItem",
     "FollowUpList",
     "FollowUpUpdate",
+    "PatientSkinDoseRead",
     "SkinDoseRead",
 ]
 
@@ -73,11 +74,24 @@ class CumulativeSkinDoseRead(ReadModel):
 
     patient_pseudo_id: str
     study_uids: list[str]
+    exam_ids: list[int] = Field(description="the exams' ids, in the order of study_uids")
     peak_skin_dose_mgy: float
     lower_bound_mgy: float
     upper_bound_mgy: float
-    method: str
+    method: str = Field(
+        description="maps_added (the maps summed cell by cell on one patient-surface grid), "
+        "maps_added_assumed_alignment (the same, where a map's place along the body was "
+        "assumed), peaks_added (different patient models: the sum of the peaks, an upper "
+        "bound) or none"
+    )
     notes: list[str]
+
+
+class PatientSkinDoseRead(CumulativeSkinDoseRead):
+    """One pseudonymised patient's skin dose over the follow-up window (an estimate)."""
+
+    window_days: float
+    caution: str
 
 
 class FollowUpList(ReadModel):

@@ -285,8 +285,8 @@ def test_ingest_reads_what_the_truth_table_says(
                 assert event.dap_gy_cm2 is None
             if row["ctdivol_mgy"]:
                 assert event.ctdivol_mgy == pytest.approx(float(row["ctdivol_mgy"]), rel=1e-3)
-            if row["agd_reported_mgy"]:  # Organ Dose (0040,0316) written in dGy (PS3.3)
-                assert event.organ_dose_mgy == pytest.approx(float(row["agd_reported_mgy"]))
+            if row["mgd_reported_mgy"]:  # Organ Dose (0040,0316) written in dGy (PS3.3)
+                assert event.organ_dose_mgy == pytest.approx(float(row["mgd_reported_mgy"]))
                 assert event.body_part_thickness_mm == float(row["thickness_mm"])
             if row["field_area_cm2"] and event.field_area_cm2 is not None:
                 assert event.field_area_cm2 == pytest.approx(float(row["field_area_cm2"]), rel=1e-3)
@@ -492,8 +492,8 @@ def test_planted_findings_are_listed_with_review_kinds(demo: tuple[Path, Scenari
     skin = {f.id: f for f in manifest.findings("srdl_exceeded")}
     assert set(skin) == {"skin_dose_overlapping", "skin_dose_spread"}
     # NCRP Report 168 (PUBLISHED-VALUES h): K_a,r 5000 mGy; the overlapping one stays below it
-    assert skin["skin_dose_overlapping"].expected["ref_point_air_kerma_mgy"] < 5000
-    assert skin["skin_dose_spread"].expected["ref_point_air_kerma_mgy"] > 5000
+    assert skin["skin_dose_overlapping"].expected["reference_point_air_kerma_mgy"] < 5000
+    assert skin["skin_dose_spread"].expected["reference_point_air_kerma_mgy"] > 5000
     assert all(f.room == "ANGIO 1" for f in skin.values())
     meter = manifest.findings("dap_ratio_out_of_tolerance")[0]
     assert meter.room == "RAD 1"
@@ -533,5 +533,5 @@ def test_nothing_unplanted_comes_near_a_threshold(demo: tuple[Path, ScenarioMani
         assert abs(ratio - 1.0) < 0.5 * design["dap_ratio_tolerance"]
     largest = quiet["srdl_exceeded"]["largest_study"]
     # NCRP Report 168 SRDLs (PUBLISHED-VALUES h): 500 Gy.cm2, 5000 mGy, 60 min
-    assert largest["dap_gy_cm2"] < 500 and largest["ref_point_air_kerma_mgy"] < 5000
+    assert largest["dap_gy_cm2"] < 500 and largest["reference_point_air_kerma_mgy"] < 5000
     assert largest["fluoro_time_s"] < 3600

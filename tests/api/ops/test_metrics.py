@@ -85,6 +85,7 @@ def test_store_metrics_parse_as_prometheus_reads_them(store) -> None:
     assert samples[("beamaudit_findings", (("kind", "no_dose_data"), ("status", "open")))] == 1
     assert samples[("beamaudit_pull_duration_seconds", (("source", "main PACS"),))] == 3.5
     assert samples[("beamaudit_pull_errors", (("source", "main PACS"),))] == 1
+    assert samples[("beamaudit_pull_failed", (("source", "main PACS"),))] == 0
     sent = ("beamaudit_notifications_total", (("channel", "outbox"), ("status", "sent")))
     assert samples[sent] == 1
 
@@ -131,3 +132,21 @@ def test_an_address_of_its_own_serves_without_token_and_counts_associations(stor
     assert samples[(key, (("result", "accepted"),))] == 1
     assert samples[(key, (("result", "released"),))] == 1
     assert samples[(key, (("result", "rejected"),))] == 0
+
+
+def test_the_listener_counts_what_its_spool_holds(tmp_path) -> None:
+    from corpus import dx_header, encode
+
+    from beamaudit.api.intake.spooling import Spool, SpooledObject
+    from beamaudit.api.web.metrics import render, spooled_family
+
+    spool = Spool(tmp_path / "spool.sqlite")
+    for i in range(3):
+        ds = dx_header(f"metrics-spooled-{i}")
+        spool.put(SpooledObject("DR_ROOM1", "127.0.0.1", str(ds.SOPClassUID),
+                                str(ds.SOPInstanceUID), encode(ds)))  # fmt: skip
+    samples = _samples(render([spooled_family(spool)()]))
+    assert samples[("beamaudit_listener_spooled", ())] == 3
+    spool.done(spool.take(limit=2))
+    assert _samples(render([spooled_family(spool)()]))[("beamaudit_listener_spooled", ())] == 1
+    spool.close()

@@ -73,9 +73,9 @@ def test_shipped_catalogue_covers_the_issue_list() -> None:
         # mammography D_G and K_a,i or K_a,e; interventional fluoroscopy P_KA and K_a,r;
         # CT CTDIvol and DLP (PUBLISHED-VALUES e, high)
         ("radiography", {"esak_mgy", "dap_gy_cm2"}),
-        ("mammography", {"agd_mgy", "esak_mgy"}),
-        ("interventional", {"dap_gy_cm2", "ref_point_air_kerma_mgy"}),
-        ("fluoroscopy", {"dap_gy_cm2", "ref_point_air_kerma_mgy"}),
+        ("mammography", {"mgd_mgy", "esak_mgy"}),
+        ("interventional", {"dap_gy_cm2", "reference_point_air_kerma_mgy"}),
+        ("fluoroscopy", {"dap_gy_cm2", "reference_point_air_kerma_mgy"}),
         ("ct", {"ctdivol_mgy", "dlp_mgy_cm"}),
     ],
 )
@@ -100,7 +100,7 @@ def test_default_aggregation_sums_additive_quantities_and_takes_the_largest_ctdi
     # DLP, DAP and K_a,r add over irradiation events; CTDIvol is an index per acquisition
     assert DEFAULT_AGGREGATION["dlp_mgy_cm"] == "sum"
     assert DEFAULT_AGGREGATION["dap_gy_cm2"] == "sum"
-    assert DEFAULT_AGGREGATION["ref_point_air_kerma_mgy"] == "sum"
+    assert DEFAULT_AGGREGATION["reference_point_air_kerma_mgy"] == "sum"
     assert DEFAULT_AGGREGATION["ctdivol_mgy"] == "max"
 
 

@@ -172,22 +172,22 @@ def studies_frame(**columns: list[float]) -> pd.DataFrame:
 def test_srdl_values_are_ncrp_168() -> None:
     # NCRP Report 168 (2010): K_a,r 5 Gy, P_KA 500 Gy·cm², fluoroscopy time 60 min (from memory,
     # PUBLISHED-VALUES h, high)
-    assert fl.NCRP168_SRDL["ref_point_air_kerma_mgy"] == 5000.0
+    assert fl.NCRP168_SRDL["reference_point_air_kerma_mgy"] == 5000.0
     assert fl.NCRP168_SRDL["dap_gy_cm2"] == 500.0
     assert fl.NCRP168_SRDL["fluoro_time_s"] == 3600.0
 
 
 def test_srdl_exceeded_by_each_trigger_and_not_at_or_below() -> None:
     frame = studies_frame(
-        ref_point_air_kerma_mgy=[5200.0, 5000.0, 100.0, math.nan],
+        reference_point_air_kerma_mgy=[5200.0, 5000.0, 100.0, math.nan],
         dap_gy_cm2=[100.0, 499.0, 510.0, math.nan],
         fluoro_time_s=[600.0, 3600.0, 3700.0, math.nan],
     )
     flags = fl.srdl_exceeded(frame, thresholds=fl.NCRP168_SRDL)
     assert [f.study_uid for f in flags] == ["st0", "st2"]
     assert flags[0].numbers == {
-        "ref_point_air_kerma_mgy": 5200.0,
-        "ref_point_air_kerma_mgy_srdl": 5000.0,
+        "reference_point_air_kerma_mgy": 5200.0,
+        "reference_point_air_kerma_mgy_srdl": 5000.0,
     }
     assert "K_a,r 5200 mGy > 5000 mGy" in flags[0].reason
     assert "DAP 510 Gy·cm² > 500 Gy·cm²" in flags[1].reason

@@ -19,7 +19,7 @@ MARCH = ReviewParameters.for_month(2025, 3)
 
 
 def _views(n: int, view: str, thickness: float | None, agd: float) -> list[dict[str, object]]:
-    row = {"exam_type": f"mammo_{view}", "modality": "MG", "agd_mgy": agd,
+    row = {"exam_type": f"mammo_{view}", "modality": "MG", "mgd_mgy": agd,
            "breast_thickness_mm": float("nan") if thickness is None else thickness}  # fmt: skip
     return [dict(row) for _ in range(n)]
 

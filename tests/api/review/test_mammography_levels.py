@@ -42,7 +42,7 @@ def test_every_shipped_mammography_value_names_its_source_and_confidence() -> No
     for s in sets:
         assert s.kind == "international" and s.source
         for e in s.entries:
-            assert e.exam_type in ("mammo_cc", "mammo_mlo") and e.quantity == "agd_mgy"
+            assert e.exam_type in ("mammo_cc", "mammo_mlo") and e.quantity == "mgd_mgy"
             assert not e.patient_group and not e.clinical_indication
             assert CONFIDENCE.search(e.source), e.source
             assert "standard breast" in e.note or "equivalent breast" in e.note
@@ -69,7 +69,7 @@ def test_shipped_level_files_by_name() -> None:
 
 
 def _views(n: int, view: str, thickness: float, agd: float) -> list[dict[str, object]]:
-    row = {"exam_type": f"mammo_{view}", "modality": "MG", "agd_mgy": agd,
+    row = {"exam_type": f"mammo_{view}", "modality": "MG", "mgd_mgy": agd,
            "breast_thickness_mm": thickness}  # fmt: skip
     return [dict(row) for _ in range(n)]
 

@@ -99,10 +99,10 @@ def test_icrp_135_minimum_sample_for_radiography(make_events, n: int, status: st
 def test_icrp_135_minimum_sample_for_mammography(make_events, n: int, status: str) -> None:
     # ICRP 135: 50 patients for mammography (from memory, medium); views of the 50-60 mm band
     rows = [
-        {"exam_type": "mammo_cc", "modality": "MG", "agd_mgy": 1.2, "breast_thickness_mm": 55.0}
+        {"exam_type": "mammo_cc", "modality": "MG", "mgd_mgy": 1.2, "breast_thickness_mm": 55.0}
     ] * n
     result = review(make_events(rows), levels=LEVELS, params=MARCH)
-    local = group(result, quantity="agd_mgy", level_kind="local")
+    local = group(result, quantity="mgd_mgy", level_kind="local")
     assert local.loc[0, "status"] == status
 
 
@@ -244,9 +244,24 @@ def test_investigation_level_flags_single_exams(make_events) -> None:
 def test_srdl_and_no_dose_and_deviation_index_through_review(make_events) -> None:
     pci = {"study_uid": "xa.1", "exam_type": "xa_pci", "modality": "XA", "room": "Cath"}
     rows = [
-        {**pci, "ref_point_air_kerma_mgy": 2000.0, "dap_gy_cm2": 60.0, "fluoro_time_s": 900.0},
-        {**pci, "ref_point_air_kerma_mgy": 2000.0, "dap_gy_cm2": 60.0, "fluoro_time_s": 900.0},
-        {**pci, "ref_point_air_kerma_mgy": 1500.0, "dap_gy_cm2": 60.0, "fluoro_time_s": 900.0},
+        {
+            **pci,
+            "reference_point_air_kerma_mgy": 2000.0,
+            "dap_gy_cm2": 60.0,
+            "fluoro_time_s": 900.0,
+        },
+        {
+            **pci,
+            "reference_point_air_kerma_mgy": 2000.0,
+            "dap_gy_cm2": 60.0,
+            "fluoro_time_s": 900.0,
+        },
+        {
+            **pci,
+            "reference_point_air_kerma_mgy": 1500.0,
+            "dap_gy_cm2": 60.0,
+            "fluoro_time_s": 900.0,
+        },
         {
             "study_uid": "rf.1",
             "modality": "RF",
@@ -260,8 +275,8 @@ def test_srdl_and_no_dose_and_deviation_index_through_review(make_events) -> Non
     (srdl,) = [f for f in result.flags if f.kind == "srdl_exceeded"]
     assert srdl.study_uid == "xa.1"
     assert srdl.numbers == {
-        "ref_point_air_kerma_mgy": 5500.0,
-        "ref_point_air_kerma_mgy_srdl": 5000.0,
+        "reference_point_air_kerma_mgy": 5500.0,
+        "reference_point_air_kerma_mgy_srdl": 5000.0,
     }
     (no_dose,) = [f for f in result.flags if f.kind == "no_dose_data"]
     assert no_dose.study_uid == "dx.1"

@@ -235,3 +235,18 @@ def test_a_ct_level_may_carry_a_size_band_and_keeps_it(api, catalogue) -> None:
     unknown = LOCAL | {"version": "9", "levels": [level | {"patient_group": "ct_dw_not_known"}]}
     response = api.post("/level-sets", json=unknown)
     assert response.status_code == 422 and "nor a CT size band" in response.text
+
+
+def test_old_quantity_names_are_taken_as_the_new_ones(api, catalogue) -> None:
+    # the names versions before one-name-per-quantity wrote (QUANTITY_ALIASES), in JSON and CSV
+    old = [
+        {"exam_type": "xa_pci", "quantity": "ref_point_air_kerma_mgy", "value": 1.4, "unit": "Gy"},
+        {"exam_type": "mammo_cc", "quantity": "agd_mgy", "value": 2.0},
+    ]
+    response = api.post("/level-sets", json=LOCAL | {"levels": old})
+    assert response.status_code == 201, response.text
+    stored = {(x["quantity"], x["value"]) for x in api.get("/level-sets").json()[0]["levels"]}
+    assert stored == {("reference_point_air_kerma_mgy", 1400.0), ("mgd_mgy", 2.0)}
+    exported = api.get("/level-sets.csv").text
+    assert "reference_point_air_kerma_mgy" in exported and "mgd_mgy" in exported
+    assert "ref_point_air_kerma_mgy" not in exported and "agd_mgy" not in exported

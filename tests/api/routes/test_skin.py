@@ -110,3 +110,64 @@ def test_committee_report_lists_the_period_s_procedures_to_follow_up(api) -> Non
     page = api.client.get(f"/reports/{month}", headers=viewer).text
     assert high["study_instance_uid"] in page.split('id="follow-up"', 1)[1]
     assert ">closed<" in page.split('id="follow-up"', 1)[1]
+
+
+def _one_patient_now(api) -> str:
+    """Both uploaded procedures made one pseudonymised patient's, this week."""
+    from datetime import timedelta
+
+    from sqlalchemy import select
+
+    from beamaudit.api.store import models as m
+    from beamaudit.api.store.base import utcnow
+
+    with api.store.session_factory.begin() as s:
+        for k, study in enumerate(s.scalars(select(m.Study).order_by(m.Study.id))):
+            study.patient_pseudo_id = "P-ROUTE"
+            study.study_datetime = utcnow() - timedelta(days=3 - k)
+    return "P-ROUTE"
+
+
+def test_the_map_as_a_png_for_an_exam_and_for_a_patient(api) -> None:
+    # PNG signature: ISO/IEC 15948 section 5.2; the size is the module's A4 at 150 dpi
+    import io
+
+    from PIL import Image
+
+    from beamaudit.dashboards.skin_image import SKIN_DOSE_PNG_SIZE_PX
+
+    _upload_hot_and_light(api)
+    exam = api.get("/exams", as_="physicist").json()["items"][0]["id"]
+    answer = api.get(f"/exams/{exam}/skin-dose/map.png", as_="physicist")
+    assert answer.status_code == 200 and answer.headers["content-type"] == "image/png"
+    assert answer.content.startswith(b"\x89PNG\r\n\x1a\n")
+    with Image.open(io.BytesIO(answer.content)) as image:
+        assert image.size == SKIN_DOSE_PNG_SIZE_PX
+    # as the JSON record: physicists only; an unknown exam is a 404
+    assert api.get(f"/exams/{exam}/skin-dose/map.png", as_="viewer").status_code == 403
+    assert api.get("/exams/999999/skin-dose/map.png", as_="physicist").status_code == 404
+    patient = _one_patient_now(api)
+    summary = api.get(f"/skin-doses/patients/{patient}", as_="physicist")
+    assert summary.status_code == 200
+    body = summary.json()
+    assert body["method"].startswith("maps_added") and len(body["exam_ids"]) == 2
+    assert body["lower_bound_mgy"] <= body["peak_skin_dose_mgy"] <= body["upper_bound_mgy"]
+    assert "physicist" in body["caution"] and body["window_days"] == 60.0
+    cumulative = api.get(f"/skin-doses/patients/{patient}/map.png", as_="physicist")
+    assert cumulative.status_code == 200 and cumulative.content.startswith(b"\x89PNG")
+    assert api.get("/skin-doses/patients/P-NOBODY/map.png", as_="physicist").status_code == 404
+    assert api.get(f"/skin-doses/patients/{patient}", as_="viewer").status_code == 403
+
+
+def test_a_failed_map_gives_409_not_an_empty_picture(api) -> None:
+    from sqlalchemy import select
+
+    from beamaudit.api.store import models as m
+
+    _upload_hot_and_light(api)
+    with api.store.session_factory.begin() as s:
+        skin = s.scalars(select(m.SkinDoseRow)).first()
+        skin.status, skin.reason, skin.record = "failed", "skin-dose map not computed: x", None
+        exam = skin.study_id
+    answer = api.get(f"/exams/{exam}/skin-dose/map.png", as_="physicist")
+    assert answer.status_code == 409 and "not computed" in answer.json()["detail"]

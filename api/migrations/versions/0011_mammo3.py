@@ -1,7 +1,7 @@
 """mammo3: screening or diagnostic as ingest read it from a mammography view or dose report
 
-Revision ID: 0010_mammo3
-Revises: 0009_ct_size
+Revision ID: 0011_mammo3
+Revises: 0010_names19
 Create Date: 2026-12-05 07:30:00
 """
 
@@ -10,8 +10,8 @@ from __future__ import annotations
 import sqlalchemy as sa
 from alembic import op
 
-revision = "0010_mammo3"
-down_revision = "0009_ct_size"
+revision = "0011_mammo3"
+down_revision = "0010_names19"
 branch_labels = None
 depends_on = None
 
