@@ -317,6 +317,7 @@ _LABELS: dict[str, str] = {
     "view_position": "View",
     "image_laterality": "Breast",
     "mammography_acquisition": "Acquisition",
+    "mammography_intent": "Screening or diagnostic",
     "glandularity": "Glandularity (mass fraction)",
     "glandularity_percent": "Glandularity used (%)",
     "g": "g (50 % glandular, reference beam)",

@@ -12,6 +12,8 @@ named beside each table.
 
 from __future__ import annotations
 
+import re
+
 __all__ = [
     "ACQUISITION_PLANES",
     "ANODE_MATERIALS",
@@ -25,15 +27,19 @@ __all__ = [
     "GRIDS",
     "HEADER_MATERIALS",
     "LATERALITIES",
+    "MAMMOGRAPHY_DIAGNOSTIC_VIEW_MODIFIERS",
+    "MAMMOGRAPHY_VIEW_MODIFIERS",
     "PATIENT_ORIENTATIONS",
     "PATIENT_ORIENTATION_MODIFIERS",
     "PATIENT_TABLE_RELATIONSHIPS",
     "PROCEDURE_FAMILIES",
+    "PROCEDURE_INTENTS",
     "REFERENCE_POINTS",
     "RETIRED_CODES",
     "VIEW_MEANINGS",
     "CodeKey",
     "canonical",
+    "intent_from_words",
     "material_from_meaning",
     "view_from_meaning",
 ]
@@ -81,6 +87,20 @@ RETIRED_CODES: dict[CodeKey, CodeKey] = {
     ("G-A102", "SRT"): ("51440002", "SCT"),  # Bilateral
     ("T-04020", "SRT"): ("73056007", "SCT"),  # Right breast
     ("T-04030", "SRT"): ("80248007", "SCT"),  # Left breast
+    # CID 3629 Procedure Intent and CID 4015 View Modifier for Mammography, read for screening
+    # or diagnostic
+    ("R-42453", "SRT"): ("360156006", "SCT"),  # Screening Intent
+    ("R-408C3", "SRT"): ("261004008", "SCT"),  # Diagnostic Intent
+    ("R-102D6", "SRT"): ("399163009", "SCT"),  # Magnification
+    ("R-102D7", "SRT"): ("399055006", "SCT"),  # Spot Compression
+    ("R-102D3", "SRT"): ("399197002", "SCT"),  # Rolled Lateral
+    ("R-102D4", "SRT"): ("399226006", "SCT"),  # Rolled Medial
+    ("R-102C9", "SRT"): ("415670009", "SCT"),  # Rolled Superior
+    ("R-102CA", "SRT"): ("414493004", "SCT"),  # Rolled Inferior
+    ("R-102C2", "SRT"): ("399110001", "SCT"),  # tangential
+    ("R-102D2", "SRT"): ("399161006", "SCT"),  # Cleavage
+    ("R-102D1", "SRT"): ("399011000", "SCT"),  # Axillary Tail
+    ("R-102D5", "SRT"): ("399209000", "SCT"),  # Implant Displaced
 }
 
 # the same SNOMED codes are written with scheme "SNM3" by some early writers
@@ -278,6 +298,65 @@ PROCEDURE_FAMILIES: dict[CodeKey, str] = {
     ("71651007", "SCT"): "projection",  # Mammography, reported with TID 10001
     ("77477000", "SCT"): "ct",
 }
+
+# CID 3629 Procedure Intent (the row "Has Intent" (363703001, SCT) under "Procedure reported" of
+# TID 10001): the two intents that say screening or diagnostic; every other intent says neither
+PROCEDURE_INTENTS: dict[CodeKey, str] = {
+    ("360156006", "SCT"): "screening",  # Screening Intent
+    ("261004008", "SCT"): "diagnostic",  # Diagnostic Intent
+}
+
+# CID 4015 View Modifier for Mammography (PS3.16; codes and meanings as pydicom 3.0.2's CID
+# dictionary, generated from PS3.16, lists them): (code, meaning, whether a workup view). The
+# modifiers of a workup view (magnification, spot compression, rolled and tangential views)
+# belong to a diagnostic examination and not to screening (common practice); the others (implant
+# displaced, cleavage, axillary tail, nipple in profile, ...) are taken in screening too and say
+# neither.
+_VIEW_MODIFIER_ROWS: tuple[tuple[CodeKey, str, bool], ...] = (
+    (("399163009", "SCT"), "Magnification", True),
+    (("399055006", "SCT"), "Spot Compression", True),
+    (("399197002", "SCT"), "Rolled Lateral", True),
+    (("399226006", "SCT"), "Rolled Medial", True),
+    (("415670009", "SCT"), "Rolled Superior", True),
+    (("414493004", "SCT"), "Rolled Inferior", True),
+    (("399110001", "SCT"), "tangential", True),
+    (("399161006", "SCT"), "Cleavage", False),
+    (("399011000", "SCT"), "Axillary Tail", False),
+    (("399209000", "SCT"), "Implant Displaced", False),
+    (("442581004", "SCT"), "Nipple in profile", False),
+    (("441752004", "SCT"), "Anterior compression", False),
+    (("442593008", "SCT"), "Infra-mammary fold", False),
+    (("442580003", "SCT"), "Axillary tissue", False),
+)
+#: every CID 4015 modifier, by code: its meaning
+MAMMOGRAPHY_VIEW_MODIFIERS: dict[CodeKey, str] = {c: m for c, m, _ in _VIEW_MODIFIER_ROWS}
+#: the CID 4015 modifiers of a diagnostic workup view (common practice)
+MAMMOGRAPHY_DIAGNOSTIC_VIEW_MODIFIERS: frozenset[CodeKey] = frozenset(
+    c for c, _, workup in _VIEW_MODIFIER_ROWS if workup
+)
+_SCREENING_WORDS = re.compile(r"screen", re.IGNORECASE)
+_DIAGNOSTIC_WORDS = re.compile(r"diagnos|symptom|assess|recall|work-?up", re.IGNORECASE)
+
+
+def intent_from_words(text: str) -> str | None:
+    """``screening`` or ``diagnostic`` when the code meaning ``text`` (a procedure code's, the
+    coding scheme's or a local one's) names one and not the other, else None.
+
+    Examples
+    --------
+    >>> intent_from_words("MG Breast Screening")
+    'screening'
+    >>> intent_from_words("Mammogram diagnostic bilateral")
+    'diagnostic'
+    >>> intent_from_words("MG Breast") is None
+    True
+    """
+    screening = bool(_SCREENING_WORDS.search(text))
+    diagnostic = bool(_DIAGNOSTIC_WORDS.search(text))
+    if screening == diagnostic:
+        return None
+    return "screening" if screening else "diagnostic"
+
 
 # CID 10032 Projection X-Ray Acquisition Device Types
 DEVICE_TYPES: dict[CodeKey, str] = {

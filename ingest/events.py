@@ -199,6 +199,9 @@ class ExposureEvent:
     breast_implant_present: bool | None = None
     organ_exposed: str | None = None  # (0040,0318), e.g. "BREAST": what organ_dose_mgy is of
     mammography_acquisition: str | None = None  # "2d" or "tomosynthesis"
+    # "screening" or "diagnostic", from the first clue of ingest/intent.py's order; its
+    # provenance names the clue (a view modifier, a procedure code, the report's intent)
+    mammography_intent: str | None = None
     tomo_scan_arc_deg: float | None = None  # total arc of the tube's sweep
     tomo_projections: int | None = None  # projections of the sweep
     # where every value came from: field -> "(0018,0060) KVP" or "(122130, DCM) Dose Area Product"

@@ -34,16 +34,19 @@ from .codes import (
     CT_PHANTOM_DIAMETERS_CM,
     ELEMENT_SYMBOLS,
     HEADER_MATERIALS,
+    MAMMOGRAPHY_DIAGNOSTIC_VIEW_MODIFIERS,
+    MAMMOGRAPHY_VIEW_MODIFIERS,
     WATER_EQUIVALENT_DIAMETER_METHODS,
     CodeKey,
     canonical,
+    intent_from_words,
     view_from_meaning,
 )
 from .errors import IngestError
 from .events import ExposureEvent, FilterLayer
 from .mapping import FieldMapping, header_rows_by_field
 
-__all__ = ["CT_SCAN_MODES", "header_events"]
+__all__ = ["CT_SCAN_MODES", "header_events", "procedure_intent"]
 
 # (0018,9302) AcquisitionType Defined Terms (PS3.3 C.8.15.3.2) and (0018,0022) ScanOptions
 # values seen in pydicom's test files (GE); anything else is kept unmapped, with a note.
@@ -480,7 +483,8 @@ def _read_ct_code(
 def _read_mammography(
     sink: FieldSink, views: list[ValueReader], reader: ValueReader, base: dict[str, object]
 ) -> None:
-    """Laterality, implant, 2D or tomosynthesis, and a tomosynthesis sweep's projections."""
+    """Laterality, implant, screening or diagnostic, 2D or tomosynthesis, and a tomosynthesis
+    sweep's projections."""
     by_field = header_rows_by_field()
     found = _string(views, by_field["image_laterality"])
     if found is not None:
@@ -499,6 +503,8 @@ def _read_mammography(
     assert acquisition_row.tag is not None and image_type_row.tag is not None
     acquisitions = reader.sequence(acquisition_row.tag)
     sop_class = str(base.get("sop_class_uid") or "")
+    if sop_class in _BREAST_SOP_CLASSES or str(base.get("modality") or "") == "MG":
+        _read_intent(sink, views)
     if acquisitions:
         sink.put("mammography_acquisition", "tomosynthesis", acquisition_row.label)
         _read_projections(sink, reader.child(acquisitions[0]))
@@ -515,6 +521,81 @@ def _read_mammography(
         sink.put("mammography_acquisition", "tomosynthesis", f"{image_type_row.label} {joined}")
     else:
         sink.put("mammography_acquisition", "2d", "(0008,0016) SOPClassUID, (0008,0008) ImageType")
+
+
+_VIEW_CODE_SEQUENCE = 0x00540220
+#: where a requested procedure code sits: an image's Request Attributes Sequence (General Series,
+#: Mammography Series modules), an SR document's Referenced Request Sequence (SR Document General)
+_REQUEST_SEQUENCES = (0x00400275, 0x0040A370)
+
+
+def _code_items(views: list[ValueReader], tag: int, within: tuple[int, ...] = ()) -> list[Dataset]:
+    """The items of sequence ``tag`` in the nearest view that has any, looked for at the view's
+    top level and in the items of the sequences ``within``."""
+    for view in views:
+        items = list(view.sequence(tag))
+        for outer_tag in within:
+            for outer in view.sequence(outer_tag):
+                items.extend(view.child(outer).sequence(tag))
+        if items:
+            return items
+    return []
+
+
+def _coded(item: Dataset) -> tuple[CodeKey, str] | None:
+    value = str(item.get("CodeValue") or item.get("LongCodeValue") or "").strip()
+    if not value:
+        return None
+    return canonical(value, str(item.get("CodingSchemeDesignator") or "")), str(
+        item.get("CodeMeaning") or ""
+    ).strip()
+
+
+def _read_intent(sink: FieldSink, views: list[ValueReader]) -> None:
+    """Screening or diagnostic, from the first of these clues that says one (the provenance
+    names it):
+
+    1. a View Modifier Code Sequence (0054,0222) item (in View Code Sequence (0054,0220), PS3.3
+       C.8.11.7 Mammography Image module) of a workup view of CID 4015 (magnification, spot
+       compression, rolled or tangential): diagnostic, whatever the procedure says;
+    2. the procedure codes' meanings, :func:`procedure_intent`.
+
+    A procedure code whose meaning names both or neither says nothing; the mapping rules'
+    description fallbacks then decide (``api/data/mapping_rules.csv``)."""
+    modifier_row = header_rows_by_field()["mammography_intent"][0]
+    assert modifier_row.tag is not None and modifier_row.keyword == "ViewModifierCodeSequence"
+    for item in _code_items(views, modifier_row.tag, (_VIEW_CODE_SEQUENCE,)):
+        found = _coded(item)
+        if found is not None and found[0] in MAMMOGRAPHY_DIAGNOSTIC_VIEW_MODIFIERS:
+            code, meaning = found
+            name = MAMMOGRAPHY_VIEW_MODIFIERS[code]
+            label = f"{modifier_row.label} ({code[0]}, {code[1]}) {meaning or name}"
+            sink.put("mammography_intent", "diagnostic", label)
+            return
+    found_intent = procedure_intent(views)
+    if found_intent is not None:
+        sink.put("mammography_intent", *found_intent)
+
+
+def procedure_intent(views: list[ValueReader]) -> tuple[str, str] | None:
+    """``(intent, provenance)`` from the meaning of the first procedure code that says
+    screening or diagnostic (:func:`~beamaudit.ingest.codes.intent_from_words`), in this order:
+    Performed Procedure Code Sequence (0040,A372) (SR Document General module), Procedure Code
+    Sequence (0008,1032) (General Study), Requested Procedure Code Sequence (0032,1064) at the
+    top level or in Request Attributes Sequence (0040,0275) (an image's General Series) or
+    Referenced Request Sequence (0040,A370) (an SR document); None when none says one."""
+    for row in header_rows_by_field()["mammography_intent"][1:]:
+        assert row.tag is not None
+        within = _REQUEST_SEQUENCES if row.keyword == "RequestedProcedureCodeSequence" else ()
+        for item in _code_items(views, row.tag, within):
+            found = _coded(item)
+            if found is None:
+                continue
+            intent = intent_from_words(found[1])
+            if intent is not None:
+                code, meaning = found
+                return intent, f"{row.label} ({code[0]}, {code[1]}) {meaning}"
+    return None
 
 
 def _read_projections(sink: FieldSink, acquisition: ValueReader) -> None:

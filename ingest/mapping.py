@@ -289,8 +289,20 @@ MAPPING: tuple[FieldMapping, ...] = (
     _h("tomo_projections", "PerProjectionAcquisitionSequence", 0x00189538, "SQ"),
     _h("mammography_acquisition", "XRay3DAcquisitionSequence", 0x00189507, "SQ"),
     _h("mammography_acquisition", "ImageType", 0x00080008, "CS", rank=1),
+    # screening or diagnostic (ingest/headers.py::_read_intent, in this order): a CID 4015 view
+    # modifier of a workup view (in View Code Sequence (0054,0220)), then the meaning of a
+    # performed procedure code (an SR document's Performed Procedure Code Sequence, then the
+    # study's Procedure Code Sequence), then of a requested one (also in Request Attributes
+    # Sequence (0040,0275) of an image, Referenced Request Sequence (0040,A370) of an SR)
+    _h("mammography_intent", "ViewModifierCodeSequence", 0x00540222, "SQ"),
+    _h("mammography_intent", "PerformedProcedureCodeSequence", 0x0040A372, "SQ", rank=1),
+    _h("mammography_intent", "ProcedureCodeSequence", 0x00081032, "SQ", rank=2),
+    _h("mammography_intent", "RequestedProcedureCodeSequence", 0x00321064, "SQ", rank=3),
     # ---- dose report: document level (TID 10001 / 10011 and TID 1002 observer context)
     _c("document", "procedure_reported", "121058", "Procedure reported", "CODE"),
+    # HAS CONCEPT MOD of Procedure reported (TID 10001 row 3), CID 3629: read below it
+    _c("document", "mammography_intent", "363703001", "Has intent (attribute)", "CODE",
+       scheme="SCT"),
     _c("document", "acquisition_device_type", "122142", "Acquisition Device Type", "CODE"),
     _c("document", "device_observer_uid", "121012", "Device Observer UID", "UIDREF"),
     _c("document", "station_name", "121013", "Device Observer Name", "TEXT"),
@@ -306,6 +318,8 @@ MAPPING: tuple[FieldMapping, ...] = (
     _c("projection_event", "protocol_name", "125203", "Acquisition Protocol", "TEXT"),
     _c("projection_event", "body_part", "123014", "Target Region", "CODE"),
     _c("projection_event", "view_position", "111031", "Image View", "CODE"),
+    # a CID 4015 modifier of a workup view (HAS CONCEPT MOD of Image View): diagnostic
+    _c("projection_event", "mammography_intent", "111032", "Image View Modifier", "CODE"),
     _c("projection_event", "dap_gy_cm2", "122130", "Dose Area Product", "NUM", "Gy.m2", "Gy.cm2"),
     _c("projection_event", "entrance_dose_mgy", "111636", "Entrance Exposure at RP", "NUM",
        "mGy", "mGy"),

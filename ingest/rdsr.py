@@ -37,10 +37,12 @@ from .codes import (
     FLUORO_MODES,
     GRIDS,
     LATERALITIES,
+    MAMMOGRAPHY_DIAGNOSTIC_VIEW_MODIFIERS,
     PATIENT_ORIENTATION_MODIFIERS,
     PATIENT_ORIENTATIONS,
     PATIENT_TABLE_RELATIONSHIPS,
     PROCEDURE_FAMILIES,
+    PROCEDURE_INTENTS,
     REFERENCE_POINTS,
     SSDE_METHODS,
     WATER_EQUIVALENT_DIAMETER_METHODS,
@@ -286,6 +288,9 @@ def _code_value(sink: FieldSink, name: str, hits: list[_Found]) -> None:
     if name == "size_method":
         _size_methods(sink, hits)
         return
+    if name == "mammography_intent":
+        _intent(sink, hits)
+        return
     hit = hits[0]
     coded = _coded(hit.item)
     if coded is None:
@@ -332,6 +337,31 @@ def _code_value(sink: FieldSink, name: str, hits: list[_Found]) -> None:
         sink.notes.append(f"{label}: value not mapped")
         return
     sink.put(name, value, label)
+
+
+def _intent(sink: FieldSink, hits: list[_Found]) -> None:
+    """Screening or diagnostic: an event's Image View Modifier (111032, DCM) of a CID 4015
+    workup view says diagnostic; the report's Has Intent (363703001, SCT) says screening when it
+    is Screening Intent (360156006, SCT). Diagnostic Intent there says nothing: TID 10001 row 3
+    is mandatory, and a device that knows nothing of the examination's purpose still has to
+    write one intent, Diagnostic Intent being the one written (common practice, from memory), so
+    taking it would turn screening rounds diagnostic; the descriptions then decide. Any other
+    code says neither (no note: a DX view's CID 4011 modifier is no mistake)."""
+    for hit in hits:
+        coded = _coded(hit.item)
+        if coded is None:
+            continue
+        code, meaning = coded
+        if code in MAMMOGRAPHY_DIAGNOSTIC_VIEW_MODIFIERS:
+            value: str | None = "diagnostic"
+        else:
+            intent = PROCEDURE_INTENTS.get(code) if hit.row.context == "document" else None
+            value = intent if intent == "screening" else None
+        if value is not None:
+            sink.put(
+                "mammography_intent", value, f"{hit.item.label} = ({code[0]}, {code[1]}) {meaning}"
+            )
+            return
 
 
 def _filters(sink: FieldSink, hits: list[_Found]) -> None:
@@ -487,6 +517,13 @@ def report_contents(ds: Dataset, *, warnings: list[str]) -> ReportContents:
         row = doc_rows.get(child.code) if child.code is not None else None
         if row is not None:
             doc_found.setdefault(row.field, []).append(_Found(row, child))
+            if row.field == "procedure_reported":  # its Has Intent (TID 10001 row 3)
+                for modifier in child.children:
+                    intent_row = doc_rows.get(modifier.code) if modifier.code else None
+                    if intent_row is not None and intent_row.field == "mammography_intent":
+                        doc_found.setdefault(intent_row.field, []).append(
+                            _Found(intent_row, modifier)
+                        )
     _fill(document, doc_found)
 
     events: list[tuple[str, FieldSink]] = []
@@ -578,15 +615,24 @@ def rdsr_events(
         fields.update(values)
         fields["modality_family"] = family
         fields["modality"] = "CT" if family == "ct" else ("MG" if is_mammo else None)
+        event_prov = dict(provenance)
+        event_prov.update(sink.provenance)
         if is_mammo and family == "projection":
             _mammography_acquisition(fields, sink)
+            event_prov.update(sink.provenance)
+            if fields.get("mammography_intent") is None and "mammography_intent" in doc.values:
+                # an event's own workup-view modifier first, then the report's procedure codes
+                # (in base, from its header), then its Has Intent
+                fields["mammography_intent"] = doc.values["mammography_intent"]
+                event_prov["mammography_intent"] = doc.provenance["mammography_intent"]
+        else:
+            fields.pop("mammography_intent", None)
+            event_prov.pop("mammography_intent", None)
         guided = fields.get("acquisition_device_type") == "fluoroscopy_guided"
         if fields["modality"] is None and (guided or fields.get("event_type") == "fluoroscopy"):
             # a fluoroscopy-guided system's report (CID 10032 113957): the room is RF/XA; RF is
             # what the mapping rules of fluoroscopic examinations look for
             fields["modality"] = "RF"
-        event_prov = dict(provenance)
-        event_prov.update(sink.provenance)
         events.append(
             ExposureEvent(
                 event_key=event_key,

@@ -34,7 +34,7 @@ from ._context import FieldSink, read_context
 from ._values import ValueReader
 from .errors import IngestError
 from .events import ParseResult, SourceObject
-from .headers import header_events
+from .headers import header_events, procedure_intent
 from .mapping import header_rows_by_field
 from .pseudonym import Pseudonymiser
 from .rdsr import is_dose_report_root, rdsr_events
@@ -208,6 +208,11 @@ def _parse(ds: Dataset, pseudonymiser: Pseudonymiser) -> ParseResult:
         series_instance_uid=series,
     )
     if is_report:
+        # screening or diagnostic from the report's own procedure codes (a mammography report's
+        # events take it where their own view modifiers say nothing: ingest/rdsr.py)
+        intent = procedure_intent([reader])
+        if intent is not None:
+            base["mammography_intent"], provenance["mammography_intent"] = intent
         events, accumulated = rdsr_events(
             ds, base=base, base_provenance=provenance, warnings=warnings
         )

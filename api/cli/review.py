@@ -348,26 +348,45 @@ def nightly_command(
 def levels_import(
     ctx: typer.Context,
     path: Annotated[
-        Path,
+        Path | None,
         typer.Argument(
             metavar="FILE.csv",
             help="Levels CSV: one row per value, the layout 'beamaudit levels export' writes.",
         ),
-    ],
+    ] = None,
+    shipped: Annotated[
+        str | None,
+        typer.Option(
+            "--shipped",
+            metavar="NAME",
+            help="Import a level file shipped with beamaudit instead of FILE.csv: 'national' "
+            "(values read in their published sources) or 'mammography' (mean glandular dose "
+            "per view for a standard breast, recalled: each value's source gives its confidence).",
+        ),
+    ] = None,
 ) -> None:
     """Import reference-level set versions from a CSV file (all or none)."""
     from beamaudit.api.cli._store import open_store
     from beamaudit.api.review import CsvFormatError, ReviewError, read_levels_csv
+    from beamaudit.api.review.levels import SHIPPED_LEVEL_FILES, load_shipped_levels
     from beamaudit.api.store.level_sets import add_level_sets
     from beamaudit.api.store.review_rows import ensure_catalogue
 
-    if not path.is_file():
+    if (path is None) == (shipped is None):
+        fail("give either FILE.csv or --shipped NAME")
+    if path is not None and not path.is_file():
         fail(f"no such file: {path}")
+    if shipped is not None and shipped not in SHIPPED_LEVEL_FILES:
+        fail(f"no shipped level file {shipped!r} (shipped: {', '.join(SHIPPED_LEVEL_FILES)})")
     store = open_store(ctx)
     try:
         with store.sessions.begin() as session:
             catalogue, _ = ensure_catalogue(session)
-            sets = read_levels_csv(path, catalogue)
+            sets = (
+                read_levels_csv(path, catalogue)
+                if path is not None
+                else load_shipped_levels(str(shipped))
+            )
             rows = add_level_sets(session, sets, actor="cli")
             names = [f"{r.name} {r.version}" for r in rows]
     except CsvFormatError as exc:

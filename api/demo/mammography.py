@@ -212,6 +212,15 @@ def mammogram(room: RoomSpec, study: MammoStudy, view: MammoView) -> dict[str, A
     ds["AcquisitionDateTime"] = when.strftime("%Y%m%d%H%M%S")
     ds["Modality"] = "MG"
     ds["PresentationIntentType"] = "FOR PRESENTATION"
+    # the procedure performed (General Study, Type 3): an invented local code whose meaning
+    # says screening, as ingest reads it (ingest/headers.py::_read_intent)
+    ds["ProcedureCodeSequence"] = [
+        {
+            "CodeValue": "MGSCR2",
+            "CodingSchemeDesignator": "99FERNMOOR",
+            "CodeMeaning": "Screening mammography, both breasts",
+        }
+    ]
     ds["SeriesDescription"] = f"{view.laterality}{view.view_position}"
     ds["IrradiationEventUID"] = view.event_uid
     ds["ImageComments"] = INVENTED_NOTICE

@@ -243,11 +243,21 @@ _DATETIME_FIELDS = ("study_datetime", "event_datetime")
 _SCALARS = (str, int, float, type(None), tuple)
 
 
+#: fields added to ExposureEvent after the versions that wrote every field's value (null
+#: included): those versions knew nothing of them, so they are left out while None
+_ADDED_AFTER_EVERY_FIELD = frozenset({"mammography_intent"})
+
+
 def _every_field_fingerprint(result: ParseResult) -> str:
-    """The fingerprint as versions before ``_FINGERPRINT_WHEN_SET`` wrote it: every field of
-    this version, null or not (only asked when the fingerprint differs from a stored one)."""
+    """The fingerprint as versions before ``_FINGERPRINT_WHEN_SET`` wrote it: every field those
+    versions had, null or not (only asked when the fingerprint differs from a stored one)."""
     payload: list[dict[str, Any]] = [
-        {k: v for k, v in e.as_dict().items() if k not in _FINGERPRINT_SKIP} for e in result.events
+        {
+            k: v
+            for k, v in e.as_dict().items()
+            if k not in _FINGERPRINT_SKIP and not (k in _ADDED_AFTER_EVERY_FIELD and v is None)
+        }
+        for e in result.events
     ]
     payload.append({"accumulated": [repr(a) for a in result.accumulated]})
     return content_hash(json.dumps(payload, sort_keys=True, default=str).encode("utf-8"))

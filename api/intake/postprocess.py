@@ -49,6 +49,7 @@ _RULE_INPUTS = (
     "series_description",
     "protocol_name",
     "mammography_acquisition",
+    "mammography_intent",
 )
 
 

@@ -62,8 +62,11 @@ stroke; a level may apply to an exam type and an indication), the pattern column
 ``room``, ``body_part``, ``view_position``,
 ``study_description``, ``series_description``, ``protocol_name``, ``mammography_acquisition``
 (``2d`` or ``tomosynthesis``, as ingest read it from the image or the dose report: so 2D views and
-tomosynthesis sweeps are told apart whatever the descriptions say), ``any_description`` (all
-optional, empty = any), and ``note`` (optional free text).
+tomosynthesis sweeps are told apart whatever the descriptions say), ``mammography_intent``
+(``screening`` or ``diagnostic``, as ingest read it from a view modifier, a procedure code or the
+dose report's intent: before any description), ``any_description`` (all optional, empty = any),
+and ``note`` (optional free text). A rules file without the ``mammography_intent`` column reads
+as before.
 """
 
 from __future__ import annotations
@@ -159,11 +162,15 @@ EVENT_FIELDS = (
     "series_description",
     "protocol_name",
     "mammography_acquisition",
+    "mammography_intent",
 )
 #: Fields a rule may look at that an events table may lack (then they count as not recorded):
 #: ``mammography_acquisition`` is ``2d`` or ``tomosynthesis`` as ingest read it (X-Ray 3D
-#: Acquisition Sequence, SOP Class and Image Type of an image; the event type of a dose report).
-OPTIONAL_EVENT_FIELDS = ("mammography_acquisition",)
+#: Acquisition Sequence, SOP Class and Image Type of an image; the event type of a dose report);
+#: ``mammography_intent`` is ``screening`` or ``diagnostic`` as ingest read it (a CID 4015 view
+#: modifier of a workup view, a performed or requested procedure code's meaning, the dose
+#: report's Has Intent).
+OPTIONAL_EVENT_FIELDS = ("mammography_acquisition", "mammography_intent")
 _DESCRIPTION_FIELDS = ("study_description", "series_description", "protocol_name")
 RULE_FIELDS = (*EVENT_FIELDS, "any_description")
 RULE_COLUMNS = ("priority", "exam_type", "clinical_indication", *RULE_FIELDS, "note")

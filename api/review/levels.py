@@ -77,6 +77,7 @@ __all__ = [
     "LEVELS_TABLE_COLUMNS",
     "LEVEL_COLUMNS",
     "LEVEL_OPTIONAL_COLUMNS",
+    "SHIPPED_LEVEL_FILES",
     "AppliedLevel",
     "LevelEntry",
     "ReferenceLevelSet",
@@ -85,7 +86,9 @@ __all__ = [
     "levels_in_effect",
     "levels_table",
     "load_demo_local_levels",
+    "load_mammography_levels",
     "load_national_levels",
+    "load_shipped_levels",
     "read_levels_csv",
     "write_levels_csv",
 ]
@@ -590,6 +593,34 @@ def load_national_levels() -> list[ReferenceLevelSet]:
     """The shipped national sets (``beamaudit/api/data/national_levels.csv``), each value with its
     published source."""
     return _load("national_levels.csv")
+
+
+def load_mammography_levels() -> list[ReferenceLevelSet]:
+    """The shipped mammography sets (``beamaudit/api/data/mammography_levels.csv``): mean
+    glandular dose per view for a standard breast, each value's source naming its confidence
+    (recalled, not read in the source: see the file's comments)."""
+    return _load("mammography_levels.csv")
+
+
+#: The level files shipped in ``beamaudit/api/data`` that ``beamaudit levels import --shipped
+#: NAME`` imports, by name (the demo's invented local set is not one of them).
+SHIPPED_LEVEL_FILES: MappingProxyType[str, str] = MappingProxyType(
+    {"national": "national_levels.csv", "mammography": "mammography_levels.csv"}
+)
+
+
+def load_shipped_levels(name: str) -> list[ReferenceLevelSet]:
+    """The sets of the shipped level file ``name`` (a key of :data:`SHIPPED_LEVEL_FILES`).
+
+    Raises
+    ------
+    ReviewError
+        ``name`` is no shipped level file.
+    """
+    if name not in SHIPPED_LEVEL_FILES:
+        known = ", ".join(SHIPPED_LEVEL_FILES)
+        raise ReviewError(f"no shipped level file {name!r} (shipped: {known})")
+    return _load(SHIPPED_LEVEL_FILES[name])
 
 
 def load_demo_local_levels() -> list[ReferenceLevelSet]:

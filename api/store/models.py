@@ -315,6 +315,9 @@ class ExposureEventRow(Base):
     breast_implant_present: Mapped[bool | None] = mapped_column(Boolean)
     organ_exposed: Mapped[str | None] = mapped_column(String)
     mammography_acquisition: Mapped[str | None] = mapped_column(String)  # 2d | tomosynthesis
+    #: screening | diagnostic as ingest read it (ingest/headers.py::_read_intent, the dose
+    #: report's intent); its provenance names the clue
+    mammography_intent: Mapped[str | None] = mapped_column(String)
     tomo_scan_arc_deg: Mapped[float | None] = mapped_column(Float)
     tomo_projections: Mapped[int | None] = mapped_column(Integer)
     # reconstructed by beamaudit.model (recon_*), beside the reported values above

@@ -260,6 +260,7 @@ def map_stored_events(session: Session, event_ids: list[int] | None = None) -> i
         m.ExposureEventRow.body_part,
         m.ExposureEventRow.view_position,
         m.ExposureEventRow.mammography_acquisition,
+        m.ExposureEventRow.mammography_intent,
     ]
     stmt = select(*cols)
     if event_ids is not None:

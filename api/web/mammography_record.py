@@ -13,6 +13,15 @@ _SIDES = {"L": "left", "R": "right", "B": "both"}
 _ACQUISITIONS = {"2d": "2D", "tomosynthesis": "tomosynthesis"}
 
 
+def _intent(event: Any) -> str | None:
+    """Screening or diagnostic as ingest read it, with the clue that decided (the field's
+    provenance: a view modifier, a procedure code, the dose report's intent)."""
+    if not event.mammography_intent:
+        return None
+    clue = (event.provenance or {}).get("mammography_intent")
+    return f"{event.mammography_intent}, from {clue}" if clue else str(event.mammography_intent)
+
+
 def mammography_exposure(event: Any, trail: dict[str, Any]) -> dict[str, Any]:
     """The exam record's exposure of a reconstructed mammography ``event`` (``why`` aside: the
     caller turns ``trail["trail"]`` into steps)."""
@@ -22,6 +31,7 @@ def mammography_exposure(event: Any, trail: dict[str, Any]) -> dict[str, Any]:
         "mammography_acquisition": _ACQUISITIONS.get(
             event.mammography_acquisition or "", event.mammography_acquisition
         ),
+        "mammography_intent": _intent(event),
         "target_filter": event.recon_target_filter,
         "kvp_kv": event.kvp_kv,
         "exposure_mas": event.exposure_mas,

@@ -37,6 +37,7 @@ CT_XRAY_SRT: Concept = ("P5-08000", "SRT", "Computed Tomography X-Ray")
 MAMMOGRAPHY: Concept = ("71651007", "SCT", "Mammography")
 HAS_INTENT: Concept = ("363703001", "SCT", "Has Intent")
 DIAGNOSTIC_INTENT: Concept = ("261004008", "SCT", "Diagnostic Intent")
+SCREENING_INTENT: Concept = ("360156006", "SCT", "Screening Intent")  # CID 3629
 DEVICE_TYPE: Concept = ("122142", "DCM", "Acquisition Device Type")
 FLUORO_GUIDED: Concept = ("113957", "DCM", "Fluoroscopy-Guided Projection Radiography System")
 INTEGRATED: Concept = ("113958", "DCM", "Integrated Projection Radiography System")
@@ -184,6 +185,10 @@ LEFT_BREAST: Concept = ("80248007", "SCT", "Left breast")
 RIGHT_BREAST: Concept = ("73056007", "SCT", "Right breast")
 LEFT_BREAST_SRT: Concept = ("T-04030", "SRT", "Left breast")
 IMAGE_VIEW: Concept = ("111031", "DCM", "Image View")
+IMAGE_VIEW_MODIFIER: Concept = ("111032", "DCM", "Image View Modifier")
+# CID 4015 View Modifier for Mammography (pydicom 3.0.2's PS3.16 CID dictionary)
+SPOT_COMPRESSION: Concept = ("399055006", "SCT", "Spot Compression")
+IMPLANT_DISPLACED: Concept = ("399209000", "SCT", "Implant Displaced")
 CRANIO_CAUDAL: Concept = ("399162004", "SCT", "cranio-caudal")
 MEDIO_LATERAL_OBLIQUE: Concept = ("399368009", "SCT", "medio-lateral oblique")
 COMPRESSION_THICKNESS: Concept = ("111633", "DCM", "Compression Thickness")
@@ -198,12 +203,16 @@ START = datetime(2024, 3, 5, 10, 15, 0, tzinfo=UTC)
 
 
 def _document_context(
-    procedure: Concept, study_uid: str, observer_uid: str, device_type: Concept | None
+    procedure: Concept,
+    study_uid: str,
+    observer_uid: str,
+    device_type: Concept | None,
+    intent: Concept = DIAGNOSTIC_INTENT,
 ) -> list[Dataset]:
     items = [
         code_item(
             PROCEDURE_REPORTED, procedure, relationship="HAS CONCEPT MOD",
-            children=[code_item(HAS_INTENT, DIAGNOSTIC_INTENT, relationship="HAS CONCEPT MOD")],
+            children=[code_item(HAS_INTENT, intent, relationship="HAS CONCEPT MOD")],
         ),
     ]  # fmt: skip
     if device_type is not None:
@@ -599,6 +608,8 @@ class MammoEvent:
     agd_mgy: float = 1.42
     hvl_mm: float = 0.52
     srt_codes: bool = False
+    #: CID 4015 modifiers of the Image View (HAS CONCEPT MOD of row Image View)
+    view_modifiers: tuple[Concept, ...] = ()
 
 
 def _mammography_event(index: int, ev: MammoEvent) -> Dataset:
@@ -612,7 +623,9 @@ def _mammography_event(index: int, ev: MammoEvent) -> Dataset:
         text(PROTOCOL, ("Tomo " if ev.tomosynthesis else "") + ev.view[2]),
         code_item(TARGET_REGION, BREAST, children=[
             code_item(laterality, side, relationship="HAS CONCEPT MOD")]),
-        code_item(IMAGE_VIEW, ev.view),
+        code_item(IMAGE_VIEW, ev.view, children=[
+            code_item(IMAGE_VIEW_MODIFIER, m, relationship="HAS CONCEPT MOD")
+            for m in ev.view_modifiers]),
         num(COMPRESSION_THICKNESS, ev.thickness_mm, "mm"),
         num(COMPRESSION_FORCE, ev.force_n, "N"),
         num(ENTRANCE_AT_RP, ev.entrance_mgy, "mGy"),
@@ -645,6 +658,7 @@ def mammography_report(
     study_uid: str | None = None,
     srt_codes: bool = False,
     accumulated_by_side: bool = True,
+    intent: Concept = DIAGNOSTIC_INTENT,
     **document: object,
 ) -> Dataset:
     """A TID 10001 mammography report (procedure (71651007, SCT)): by default a left CC, a
@@ -675,7 +689,8 @@ def mammography_report(
     )
     root = container(
         REPORT,
-        [*_document_context(MAMMOGRAPHY, study_uid, "1.2.826.0.1.3680043.10.1.9", INTEGRATED),
+        [*_document_context(MAMMOGRAPHY, study_uid, "1.2.826.0.1.3680043.10.1.9", INTEGRATED,
+                            intent),
          accumulated, *[_mammography_event(i, e) for i, e in enumerate(events)],
          code_item(SOURCE_OF_DOSE, AUTOMATED)],
         relationship=None,

@@ -249,6 +249,10 @@ def event_mammography(row: m.ExposureEventRow) -> EventMammography:
         view_position=row.view_position,
         image_laterality=row.image_laterality,
         acquisition=row.mammography_acquisition,
+        intent=row.mammography_intent,
+        intent_from=(row.provenance or {}).get("mammography_intent")
+        if row.mammography_intent
+        else None,
         compressed_thickness_mm=row.body_part_thickness_mm,
         compression_force_n=row.compression_force_n,
         compression_pressure_kpa=row.compression_pressure_kpa,

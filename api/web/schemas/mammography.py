@@ -16,6 +16,16 @@ class EventMammography(ReadModel):
     view_position: str | None = Field(description="CC, MLO, ... (View Code Sequence, 0018,5101)")
     image_laterality: str | None = Field(description="L, R or B (both)")
     acquisition: str | None = Field(description="2d or tomosynthesis")
+    intent: str | None = Field(
+        default=None,
+        description="screening or diagnostic as ingest read it (null: not recorded; the "
+        "mapping rules then read the descriptions)",
+    )
+    intent_from: str | None = Field(
+        default=None,
+        description="the clue that decided: a View Modifier Code Sequence item of a workup "
+        "view, a procedure code's meaning, or the dose report's Has Intent",
+    )
     compressed_thickness_mm: float | None = Field(description="(0018,11A0) or (111633, DCM)")
     compression_force_n: float | None
     compression_pressure_kpa: float | None

@@ -84,3 +84,35 @@ def test_what_levels_export_writes_levels_import_reads_again(cli_url, tmp_path, 
     assert main(["levels", "import", str(exported)]) == 2
     assert "stored already" in _one_line(capsys.readouterr().err)
     assert _sets(cli_url) == n
+
+
+def test_the_shipped_mammography_sets_import_and_show_on_the_levels_page(cli_url, capsys) -> None:
+    from fastapi.testclient import TestClient
+
+    from beamaudit.api.settings import load
+    from beamaudit.api.store.auth import create_token
+    from beamaudit.api.web.app import create_app
+
+    assert main(["levels", "import", "--shipped", "mammography"]) == 0, capsys.readouterr().err
+    assert _sets(cli_url) == [
+        "European guidelines acceptable dose (PMMA 45 mm) 2006 (4th ed.)",
+        "IAEA BSS 115 mammography guidance level 1996",
+    ]
+    with cli_url.session_factory.begin() as s:
+        _, viewer = create_token(s, role="viewer", name="committee")
+    app = create_app(load(database_url=cli_url.url), engine=cli_url.engine)
+    with TestClient(app) as client:
+        page = client.get("/levels", headers={"Authorization": f"Bearer {viewer}"}).text
+    assert "IAEA BSS 115 mammography guidance level" in page
+    assert "European guidelines acceptable dose (PMMA 45 mm)" in page
+    assert "From memory, confidence medium-high" in page
+
+
+def test_shipped_or_a_file_not_both_nor_an_unknown_name(cli_url, tmp_path, capsys) -> None:
+    path = tmp_path / "x.csv"
+    path.write_text(HEAD + LOCAL, encoding="utf-8")
+    assert main(["levels", "import", str(path), "--shipped", "national"]) == 2
+    assert "either FILE.csv or --shipped" in _one_line(capsys.readouterr().err)
+    assert main(["levels", "import", "--shipped", "demo"]) == 2
+    assert "no shipped level file 'demo'" in _one_line(capsys.readouterr().err)
+    assert _sets(cli_url) == []

@@ -315,6 +315,9 @@ def test_the_mammography_room_is_w_rh_with_its_band_planted(
         assert (event.modality, event.anode_material) == ("MG", "tungsten")
         assert [(f.material, f.thickness_mm) for f in event.filters] == [("rhodium", 0.05)]
         assert event.organ_exposed == "BREAST" and event.mammography_acquisition == "2d"
+        # screening from the study's procedure code (an invented local one), not its description
+        assert event.mammography_intent == "screening"
+        assert "(0008,1032) ProcedureCodeSequence" in event.provenance["mammography_intent"]
         assert event.image_laterality in ("L", "R") and 20 <= event.body_part_thickness_mm <= 100
         views[event.view_position] += 1
     assert set(views) == {"CC", "MLO"}

@@ -119,3 +119,32 @@ def test_the_exam_page_draws_the_breast_beam_and_names_the_exam_type(api, mg) ->
     ).text
     assert "<title>Mammography CC" in page and "mammo_cc" not in page.split("</title>")[0]
     assert "Reconstructed spectrum, exposure 1" in page
+
+
+def test_the_api_and_the_exam_page_say_screening_or_diagnostic_and_from_what(
+    api, tmp_path: Path
+) -> None:
+    """A magnification view (CID 4015, in View Code Sequence per PS3.3 C.8.11.7): diagnostic,
+    and the clue that decided is shown."""
+    from pydicom.dataset import Dataset
+    from pydicom.sequence import Sequence
+
+    header = _mg_header()
+    modifier = Dataset()
+    modifier.CodeValue, modifier.CodingSchemeDesignator = "399163009", "SCT"
+    modifier.CodeMeaning = "Magnification"
+    header.ViewCodeSequence[0].ViewModifierCodeSequence = Sequence([modifier])
+    folder = tmp_path / "in"
+    folder.mkdir()
+    header.save_as(folder / "magnified.dcm", enforce_file_format=True)
+    scan_paths(
+        [folder],
+        pipeline=Pipeline(api.store.session_factory, completion=Completion()),
+        key=load_or_create_key(tmp_path / "k.key"),
+    )
+    (item,) = api.get("/events", params={"modality": "MG"}, as_="physicist").json()["items"]
+    mammo = api.get(f"/events/{item['id']}", as_="physicist").json()["mammography"]
+    clue = "(0054,0222) ViewModifierCodeSequence (399163009, SCT) Magnification"
+    assert (mammo["intent"], mammo["intent_from"]) == ("diagnostic", clue)
+    page = api.client.get(f"/exams/{header.StudyInstanceUID}", headers=api.headers("physicist"))
+    assert "Screening or diagnostic" in page.text and f"diagnostic, from {clue}" in page.text
