@@ -571,12 +571,15 @@ def compare_with_plan(outcome: DemoOutcome) -> dict[str, Any]:
             continue
         station = rooms.get(plant.get("room") or "", plant.get("station_name"))
         uids = set(plant.get("study_instance_uids") or [])
+        months = set((plant.get("expected") or {}).get("months") or [])  # the low-dose plant's
         hit_indices: list[int] = []
         for i, f in enumerate(outcome.flags):
             if f["kind"] != kind:
                 continue
             where = f.get("concerns") or {}
             if uids and where.get("study_uid") not in uids:
+                continue
+            if months and f.get("period") not in months:
                 continue
             if station and where.get("room") not in (station, None):
                 continue

@@ -470,6 +470,7 @@ def test_planted_findings_are_listed_with_review_kinds(demo: tuple[Path, Scenari
     assert kinds == {
         "dap_ratio_out_of_tolerance": 1,
         "changepoint": 1,  # the meter fault's ratio step is optional (a 2-month baseline)
+        "low_dose_review": 1,  # RAD 2's abdomen AP before its doubling
         "exam_above_investigation_level": 5,
         "deviation_index_out_of_range": 2,
         "no_dose_data": 1,
@@ -500,6 +501,10 @@ def test_planted_findings_are_listed_with_review_kinds(demo: tuple[Path, Scenari
     assert (change.room, change.exam_type, change.month) == ("RAD 2", "abdomen_ap", "2026-02")
     assert 1.7 <= change.expected["standard_median_after_over_before"] <= 2.3
     assert change.expected["standard_median_after_to_level"] < 0.8  # below: no group flag
+    (low,) = manifest.findings("low_dose_review")
+    assert (low.room, low.exam_type, low.expected["months"]) == ("RAD 2", "abdomen_ap", ["2026-01"])
+    # before the doubling, far below half the level (the review's low_dose_fraction, 0.5)
+    assert all(r < 0.4 for r in low.expected["standard_median_to_level"].values())
     for outlier in manifest.findings("exam_above_investigation_level"):
         ratio = outlier.expected["values"][outlier.quantity]["ratio_to_strictest"]
         assert 5.0 <= ratio <= 10.0  # the brief: 5-10 times the reference level
@@ -512,18 +517,40 @@ def test_planted_findings_are_listed_with_review_kinds(demo: tuple[Path, Scenari
     assert len(no_dose.study_instance_uids) == 6
 
 
+#: how far every unplanted number keeps from a review threshold, the same factor on both sides:
+#: a judged group's median at least this factor above the low-dose bound (``low_dose_fraction``
+#: x its strictest level) and below each level; a healthy single exam this factor below the
+#: investigation level (``investigation_multiple`` x its strictest level)
+THRESHOLD_MARGIN = 1.15
+
+
 @pytest.mark.slow
 def test_nothing_unplanted_comes_near_a_threshold(demo: tuple[Path, ScenarioManifest]) -> None:
     _, manifest = demo
     design = manifest.review_parameters
     quiet = {q["kind"]: q for q in manifest.not_planted}
+    (low,) = manifest.findings("low_dose_review")
+    planted_low = {(low.room_key, low.exam_type, m) for m in low.expected["months"]}
+    low_bound = THRESHOLD_MARGIN * design["low_dose_fraction"]
+    judged = 0
     for group in manifest.group_medians:
-        if group["n_standard"] >= design["minimum_samples"].get("radiography", 20):
-            assert all(r < 0.8 for r in group["median_standard_to_level"].values()), group
+        ratios = group["median_standard_to_level"]
+        if group["n_standard"] < design["minimum_samples"].get("radiography", 20) or not ratios:
+            continue  # no verdict on fewer than 20 patients (ICRP 135)
+        judged += 1
+        assert all(r * THRESHOLD_MARGIN < 1.0 for r in ratios.values()), group
+        if (group["room_key"], group["exam_type"], group["month"]) in planted_low:
+            assert max(ratios.values()) * THRESHOLD_MARGIN < design["low_dose_fraction"], group
+        else:  # the strictest (lowest) level decides the low-dose review
+            assert max(ratios.values()) > low_bound, group
+    assert judged >= 20
+    lowest = quiet["low_dose_review"]["lowest_standard_median_to_strictest"]
+    assert lowest["ratio_to_strictest"] > low_bound
     highest = quiet["exam_above_investigation_level"]["highest_healthy_to_strictest"]
     assert all(
-        v["ratio_to_strictest"] < 0.8 * design["investigation_multiple"] for v in highest.values()
-    )
+        v["ratio_to_strictest"] * THRESHOLD_MARGIN < design["investigation_multiple"]
+        for v in highest.values()
+    ), highest
     assert quiet["deviation_index_out_of_range"]["largest_absolute"] < 2.0
     assert quiet["deviation_index_out_of_range"]["within_plus_minus_1"] > 0.95
     for ratio in quiet["dap_ratio_out_of_tolerance"]["reported_to_true_median"].values():
