@@ -352,7 +352,7 @@ def _change_point(gen: Generated, dates: RadiographyPlan, ctx: SimulationContext
 
 
 def _low_dose(gen: Generated, dates: RadiographyPlan, ctx: SimulationContext) -> PlantedFinding:
-    """RAD 2's abdomen AP before its dose was doubled: far below the level (image-quality review)."""
+    """RAD 2's abdomen AP before its dose was doubled: far below the level (image quality)."""
     plan = dates.plan
     room = gen.rooms[plan.change_room]
     assert room.programs is not None
@@ -877,8 +877,9 @@ def quiet_numbers(
         },
         {
             "kind": "low_dose_review",
-            "reason": f"no judged group is far below its strictest level but {changed.name}'s abdomen AP "
-            "before its doubling (planted): the lowest other standard-size median is listed "
+            "reason": "no judged group is far below its strictest level but "
+            f"{changed.name}'s abdomen AP before its doubling (planted): the lowest other "
+            "standard-size median is listed "
             "against its strictest level (the review flags below "
             f"{design_parameters()['low_dose_fraction']} of it)",
             "lowest_standard_median_to_strictest": lowest,
