@@ -381,10 +381,12 @@ ROOMS: tuple[RoomSpec, ...] = (
         procedures=(
             ("chest", 0.14),
             ("chest2", 0.06),
-            ("abdomen", 0.35),
+            ("abdomen", 0.39),
             ("pelvis", 0.10),
             ("hip", 0.07),
-            ("lspine", 0.12),
+            # fewer than 20 lumbar spines a month: the lateral view's ESAK spreads too widely
+            # (thick patients) for one level to sit far from both its half and twice a single exam
+            ("lspine", 0.08),
             ("tspine", 0.04),
             ("cspine", 0.05),
             ("skull", 0.02),
