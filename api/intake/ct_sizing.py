@@ -346,13 +346,21 @@ class StudySizer:
                 .where(m.Study.study_instance_uid == study_uid)
                 .where(m.ExposureEventRow.modality == "CT")
             ).all()
-            device = next((r.device_id for r in rows if r.device_id is not None), None)
+            device_of = {r.sop_instance_uid: r.device_id for r in rows}
+            first_device = next((r.device_id for r in rows if r.device_id is not None), None)
             new = [
                 _sample_row(study_uid, group, "axial_images", s, headers_of.get(group, []))
                 for group, group_samples in samples.items()
                 for s in group_samples
             ]
+            measured = {r.sop_instance_uid for r in new}
+            new += [  # the images left header-only: where they lie, for a later merge
+                _header_row(study_uid, h)
+                for h, _, _ in entries
+                if h.kind == "axial" and h.z_mm is not None and h.sop_instance_uid not in measured
+            ]
             for header, reader, source in localizers:
+                device = device_of.get(header.sop_instance_uid) or first_device
                 new += self._localizer_rows(
                     session, study_uid, device, header, reader, source, errors
                 )
@@ -428,21 +436,19 @@ class StudySizer:
         for row in stored:
             if row.method == "localizer":
                 localizer.append(row)
-            else:
+            else:  # measured axial images and those left header-only
                 axial.setdefault(row.acquisition_group, []).append(row)
         sized = 0
         for event in rows:
             values = None
             scan_range = None
-            for group, group_samples in axial.items():
-                own = {s.sop_instance_uid for s in group_samples}
-                own |= {h.sop_instance_uid for h in headers_of.get(group, [])}
-                frames = {
-                    s.frame_of_reference_uid for s in group_samples if s.frame_of_reference_uid
-                }
-                z_all = [s.z_mm for s in group_samples]
-                z_all += [h.z_mm for h in headers_of.get(group, []) if h.z_mm is not None]
-                z_lo, z_hi = min(z_all), max(z_all)
+            for group, members in axial.items():
+                own = {s.sop_instance_uid for s in members}
+                frames = {s.frame_of_reference_uid for s in members if s.frame_of_reference_uid}
+                z_lo, z_hi = min(s.z_mm for s in members), max(s.z_mm for s in members)
+                group_samples = [s for s in members if s.dw_cm is not None]
+                if not group_samples:
+                    continue
                 scan_range = _scan_range(event, frames)
                 if not (
                     event.irradiation_event_uid == group
@@ -510,6 +516,21 @@ def _localizer_view(header: CtImageHeader) -> str | None:
         return None
     normal = np.abs(np.cross(header.image_orientation[:3], header.image_orientation[3:]))
     return "frontal" if normal[1] >= normal[0] else "lateral"
+
+
+def _header_row(study_uid: str, header: CtImageHeader) -> m.CtSizeSampleRow:
+    assert header.z_mm is not None
+    return m.CtSizeSampleRow(
+        study_instance_uid=study_uid,
+        acquisition_group=header.acquisition_group,
+        sop_instance_uid=header.sop_instance_uid,
+        method="header",
+        frame_of_reference_uid=header.frame_of_reference_uid,
+        z_mm=header.z_mm,
+        dw_cm=None,
+        truncated=False,
+        pixel_data_bytes=header.pixel_data_bytes,
+    )
 
 
 def _sample_row(

@@ -165,8 +165,10 @@ class CtLocalizerCalibrationRow(Base):
 
 
 class CtSizeSampleRow(Base):
-    """One measured patient size of a CT study (an axial image's Dw, or one localizer row's),
-    kept so that images arriving after the study was sized are merged with the earlier ones."""
+    """Where one CT image of a study lies (acquisition, table position) and, when it was
+    measured, the patient's size there (an axial image's Dw, or one localizer row's; ``dw_cm``
+    null for an image left header-only), kept so that images arriving after the study was sized
+    are merged with the earlier ones."""
 
     __tablename__ = "ct_size_samples"
     __table_args__ = (UniqueConstraint("sop_instance_uid", "z_mm"),)
@@ -174,10 +176,10 @@ class CtSizeSampleRow(Base):
     study_instance_uid: Mapped[str] = mapped_column(String, index=True)
     acquisition_group: Mapped[str] = mapped_column(String)
     sop_instance_uid: Mapped[str] = mapped_column(String)
-    method: Mapped[str] = mapped_column(String)  # axial_images | localizer
+    method: Mapped[str] = mapped_column(String)  # axial_images | localizer | header
     frame_of_reference_uid: Mapped[str | None] = mapped_column(String)
     z_mm: Mapped[float] = mapped_column(Float)
-    dw_cm: Mapped[float] = mapped_column(Float)
+    dw_cm: Mapped[float | None] = mapped_column(Float)
     truncated: Mapped[bool] = mapped_column(Boolean, default=False)
     pixel_data_bytes: Mapped[int] = mapped_column(Integer, default=0)
     measured_at: Mapped[datetime] = mapped_column(UTCDateTime(), default=utcnow)

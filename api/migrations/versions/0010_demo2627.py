@@ -52,7 +52,7 @@ def upgrade() -> None:
         sa.Column("method", sa.String(), nullable=False),
         sa.Column("frame_of_reference_uid", sa.String(), nullable=True),
         sa.Column("z_mm", sa.Float(), nullable=False),
-        sa.Column("dw_cm", sa.Float(), nullable=False),
+        sa.Column("dw_cm", sa.Float(), nullable=True),
         sa.Column("truncated", sa.Boolean(), nullable=False),
         sa.Column("pixel_data_bytes", sa.Integer(), nullable=False),
         sa.Column("measured_at", UTCDateTime(), nullable=False),
