@@ -106,17 +106,32 @@ def _setup_rooms(sessions: sessionmaker[Session], manifest: dict[str, Any]) -> N
             )
             session.add(room)
             session.flush()
-            session.add(
-                m.Device(
-                    room_id=room.id,
-                    station_name=r["station_name"],
-                    manufacturer=r["manufacturer"],
-                    model_name=r["model_name"],
-                    serial_number=r["serial_number"],
-                    device_observer_uid=r.get("device_observer_uid"),
-                    institution_name=site_name,
-                )
+            device = m.Device(
+                room_id=room.id,
+                station_name=r["station_name"],
+                manufacturer=r["manufacturer"],
+                model_name=r["model_name"],
+                serial_number=r["serial_number"],
+                device_observer_uid=r.get("device_observer_uid"),
+                institution_name=site_name,
             )
+            session.add(device)
+            localizer = r.get("ct_localizer_calibration")
+            if localizer:  # the CT scanner's calibration to water, as its physicist stores it
+                from beamaudit.api.store.ct_calibrations import add_localizer_calibration
+
+                session.flush()
+                add_localizer_calibration(
+                    session,
+                    device_id=device.id,
+                    kvp_kv=localizer["kvp_kv"],
+                    view=localizer["view"],
+                    pixel_values=localizer["pixel_values"],
+                    water_thickness_mm=localizer["water_thickness_mm"],
+                    source=localizer["source"],
+                    measured_on=date.fromisoformat(localizer["measured_on"]),
+                    actor="demo",
+                )
             qa = r.get("qa_measurements") or []
             for q in qa:
                 session.add(
@@ -355,15 +370,26 @@ def _send_failure(
     )
 
 
+#: associations the demo opens to each listener at once: while one waits for its response
+#: (the listener storing the object), another's next object is on its way
+ASSOCIATIONS_PER_NODE = 3
+
+
 def _send_all(
-    files: list[Path], ports: list[int], sop_classes: list[str], rooms: dict[Path, str]
+    files: list[Path],
+    ports: list[int],
+    sop_classes: list[str],
+    rooms: dict[Path, str],
+    *,
+    per_port: int = ASSOCIATIONS_PER_NODE,
 ) -> Counter[str]:
-    """Deal ``files`` over one association per port, all sending at once."""
-    streams = [files[i :: len(ports)] for i in range(len(ports))]
+    """Deal ``files`` over ``per_port`` associations to each port, all sending at once."""
+    targets = [port for _ in range(per_port) for port in ports]
+    n = len(targets)
+    streams = [files[i::n] for i in range(n)]
     counts: Counter[str] = Counter()
-    with _files_sent_undecoded(), ThreadPoolExecutor(max_workers=len(ports)) as pool:
-        n = len(ports)
-        for c in pool.map(_send_cstore, streams, ports, [sop_classes] * n, [rooms] * n):
+    with _files_sent_undecoded(), ThreadPoolExecutor(max_workers=n) as pool:
+        for c in pool.map(_send_cstore, streams, targets, [sop_classes] * n, [rooms] * n):
             counts.update(c)
     return counts
 

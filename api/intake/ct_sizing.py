@@ -457,12 +457,12 @@ class StudySizer:
                 ):
                     continue
                 lo, hi = scan_range or (z_lo, z_hi)
-                if len({s.z_mm for s in group_samples}) >= 2 or not localizer:
+                if len({s.z_mm for s in group_samples}) < 2 and localizer:
+                    values = self._from_localizer(localizer, lo, hi, event, errors, study_uid)
+                if values is None:  # two or more table positions, or no localizer rows there
                     values = _event_size(
                         group_samples, lo, hi, event, errors, study_uid, "axial_images"
                     )
-                else:
-                    values = self._from_localizer(localizer, lo, hi, event, errors, study_uid)
                 break
             if values is None and localizer:  # no axial images: the event's own scan range
                 frames = {s.frame_of_reference_uid for s in localizer if s.frame_of_reference_uid}

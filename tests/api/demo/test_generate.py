@@ -22,6 +22,7 @@ from datetime import date
 from pathlib import Path
 from typing import Any
 
+import numpy as np
 import pandas as pd
 import pytest
 from pydicom import dcmread, dcmwrite
@@ -559,3 +560,41 @@ def test_nothing_unplanted_comes_near_a_threshold(demo: tuple[Path, ScenarioMani
     # NCRP Report 168 SRDLs (PUBLISHED-VALUES h): 500 Gy.cm2, 5000 mGy, 60 min
     assert largest["dap_gy_cm2"] < 500 and largest["ref_point_air_kerma_mgy"] < 5000
     assert largest["fluoro_time_s"] < 3600
+
+
+def test_the_ct_scanners_images_agree_on_the_patients_size(
+    demo: tuple[Path, ScenarioManifest],
+) -> None:
+    # the axial images (ellipses drawn with partial volume, on a table) and the localizer (the
+    # chords of the same ellipses through the forward model its calibration inverts) give the
+    # same water-equivalent diameter at the same table position (AAPM Report 220, eq. 2-3;
+    # IEC 62985's localizer method), within the sampling of the 96 x 96 images
+    from beamaudit.ingest.ct_images import AxialImage, LocalizerImage, read_ct_size_image
+    from beamaudit.model.ct_localizer import LocalizerCalibration, localizer_sizes
+    from beamaudit.model.ct_size import axial_sizes
+
+    root, manifest = demo
+    ct = manifest.room("ct1")
+    assert ct.ct_localizer_calibration is not None
+    cal = ct.ct_localizer_calibration
+    calibration = LocalizerCalibration(
+        tuple(cal["pixel_values"]), tuple(cal["water_thickness_mm"]), cal["source"]
+    )
+    localizers = sorted((root / ct.path).rglob("*_LOC.dcm"))
+    centres = {p.name.split("_")[0]: p for p in (root / ct.path).rglob("*_CT1.dcm")}
+    series = {p.name.split("_")[0] for p in (root / ct.path).rglob("*_CT1_2.dcm")}
+    assert len(series) >= 10 and len(localizers) >= 2 * len(series) * 0.7
+    checked = 0
+    for path in localizers[:12]:
+        localizer = read_ct_size_image(str(path))
+        centre = read_ct_size_image(str(centres[path.name.split("_")[0]]))
+        assert isinstance(localizer, LocalizerImage) and isinstance(centre, AxialImage)
+        assert localizer.view == "frontal" and localizer.row_z_mm is not None
+        rows = localizer_sizes(
+            localizer.values, column_spacing_mm=localizer.column_spacing_mm, calibration=calibration
+        ).water_equivalent_diameter_cm
+        row = int(np.argmin(np.abs(localizer.row_z_mm - centre.z_mm)))
+        axial = axial_sizes(centre.ct_numbers_hu, pixel_spacing_mm=centre.pixel_spacing_mm)
+        assert float(axial.water_equivalent_diameter_cm[0]) == pytest.approx(rows[row], rel=0.02)
+        checked += 1
+    assert checked >= 5
