@@ -6,7 +6,7 @@ on a carbon-fibre-like table (two 2 mm skins of +300 HU round a foam core of -90
 all), so that beamaudit finds the patient's water-equivalent diameter Dw (AAPM Report 220,
 eq. 2-3) from the images as it would on a scanner's. Matrices are small (96 x 96 axial images, a
 localizer of 4 mm pixels) to keep the demo fast; a reconstructed pixel averages its area
-(partial volume, 3 x 3 samples per pixel).
+(partial volume: a ramp one pixel wide across each edge; each localizer column averages 3 rays).
 
 The localizer is a frontal (AP) projection; its pixel value is ``1000 ln(I0 / I)`` of a
 two-energy beam (0.25 and 0.17 per cm of water: beam hardening makes it grow less than linearly)
@@ -66,12 +66,25 @@ def _half_axes_mm(patient: Patient, region: str, z_fraction: float) -> tuple[flo
     return (158.0 + 22.0 * z_fraction) * scale, (112.0 - 6.0 * z_fraction) * scale
 
 
-def _fraction_inside(
-    x_mm: NDArray[np.float64], y_mm: NDArray[np.float64], a: float, b: float, cx: float, cy: float
+def _ellipse_share(
+    x: NDArray[np.float64], y: NDArray[np.float64], a: float, b: float, cx: float, pixel: float
 ) -> NDArray[np.float64]:
-    inside = ((x_mm - cx) / a) ** 2 + ((y_mm - cy) / b) ** 2 < 1.0
-    n = inside.shape[0] // _SUPERSAMPLE
-    return inside.reshape(n, _SUPERSAMPLE, n, _SUPERSAMPLE).mean(axis=(1, 3))
+    """Share of each pixel (centres ``x``, ``y``) inside the ellipse: a ramp one pixel wide
+    across its edge, from the distance to the edge (the level set's value over its gradient)."""
+    u, v = (x - cx) / a, y / b
+    r = np.sqrt(u * u + v * v)
+    gradient = np.sqrt((u / a) ** 2 + (v / b) ** 2) / np.maximum(r, 1e-12)
+    distance = (r - 1.0) / np.maximum(gradient, 1e-12)
+    return np.clip(0.5 - distance / pixel, 0.0, 1.0)
+
+
+def _interval_share(
+    c: NDArray[np.float64], pixel: float, lo: float, hi: float
+) -> NDArray[np.float64]:
+    """Share of each pixel (centres ``c``) inside ``lo``..``hi`` along one axis."""
+    return np.clip(
+        (np.minimum(c + pixel / 2, hi) - np.maximum(c - pixel / 2, lo)) / pixel, 0.0, 1.0
+    )
 
 
 def axial_hu(
@@ -81,19 +94,19 @@ def axial_hu(
     ``chest`` or ``body``; ``z_fraction`` 0 at the start of the scan, 1 at its end."""
     n = AXIAL_MATRIX
     pixel = fov_mm / n
-    c = (np.arange(n * _SUPERSAMPLE) + 0.5) / _SUPERSAMPLE * pixel - fov_mm / 2.0
+    c = (np.arange(n) + 0.5) * pixel - fov_mm / 2.0
     x, y = c[np.newaxis, :], c[:, np.newaxis]
     image = np.full((n, n), _AIR_HU)
     a, b = _half_axes_mm(patient, region, z_fraction)
     centre_y = -10.0
     for ka, kb, kc, hu in _LAYERS[region]:
-        share = _fraction_inside(x, y, ka * a, kb * b, kc * a, centre_y)
+        share = _ellipse_share(x, y - centre_y, ka * a, kb * b, kc * a, pixel)
         image += share * (hu - image)
     top = centre_y + b  # the table touches the patient's back (rows run toward the back)
+    across = _interval_share(c, pixel, -200.0, 200.0)[np.newaxis, :]
     plates = ((top, top + 30.0, -900.0), (top, top + 2.0, 300.0), (top + 28.0, top + 30.0, 300.0))
     for y0, y1, hu in plates:
-        plate = (np.abs(x) < 200.0) & (y >= y0) & (y < y1) & np.ones_like(x, dtype=bool)
-        share = plate.reshape(n, _SUPERSAMPLE, n, _SUPERSAMPLE).mean(axis=(1, 3))
+        share = _interval_share(c, pixel, y0, y1)[:, np.newaxis] * across
         image += share * (hu - image)
     return image
 
@@ -110,18 +123,18 @@ def localizer_signal(
     ``width_mm``): ``1000 ln(I0/I)`` of each ray's water-equivalent path (module text)."""
     columns = round(width_mm / LOCALIZER_PIXEL_MM)
     x = (np.arange(columns * _SUPERSAMPLE) + 0.5) / _SUPERSAMPLE * LOCALIZER_PIXEL_MM
-    x -= columns * LOCALIZER_PIXEL_MM / 2.0
-    out = np.empty((rows, columns))
-    for r in range(rows):
-        a, b = _half_axes_mm(patient, region, r / max(rows - 1, 1))
-        water = np.zeros_like(x)
-        w0 = 1.0 + _LAYERS[region][0][3] / 1000.0  # every inner layer replaces the outer one
-        for i, (ka, kb, kc, hu) in enumerate(_LAYERS[region]):
-            u = (x - kc * a) / (ka * a)
-            chord = 2.0 * kb * b * np.sqrt(np.clip(1.0 - u * u, 0.0, None))
-            water += chord * (w0 if i == 0 else 1.0 + hu / 1000.0 - w0)
-        out[r] = _signal(water).reshape(columns, _SUPERSAMPLE).mean(axis=1)
-    return out
+    x = (x - columns * LOCALIZER_PIXEL_MM / 2.0)[np.newaxis, :]
+    axes = [_half_axes_mm(patient, region, r / max(rows - 1, 1)) for r in range(rows)]
+    a = np.array([ab[0] for ab in axes])[:, np.newaxis]
+    b = np.array([ab[1] for ab in axes])[:, np.newaxis]
+    layers = _LAYERS[region]
+    w0 = 1.0 + layers[0][3] / 1000.0  # every inner layer replaces the outer one
+    water = np.zeros((rows, x.shape[1]))
+    for i, (ka, kb, kc, hu) in enumerate(layers):
+        u = (x - kc * a) / (ka * a)
+        chord = 2.0 * kb * b * np.sqrt(np.clip(1.0 - u * u, 0.0, None))
+        water += chord * (w0 if i == 0 else 1.0 + hu / 1000.0 - w0)
+    return _signal(water).reshape(rows, columns, _SUPERSAMPLE).mean(axis=2)
 
 
 def localizer_calibration_points(max_mm: float = 700.0) -> tuple[list[float], list[float]]:

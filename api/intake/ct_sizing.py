@@ -54,11 +54,12 @@ import numpy as np
 from pydicom import dcmread
 from pydicom.dataset import Dataset
 from pydicom.errors import InvalidDicomError
-from sqlalchemy import delete, select, update
+from sqlalchemy import delete, insert, select, update
 from sqlalchemy.orm import Session, sessionmaker
 
 from beamaudit.api.store import models as m
 from beamaudit.api.store.auth import record_change
+from beamaudit.api.store.base import utcnow
 from beamaudit.api.store.ct_calibrations import find_localizer_calibration
 from beamaudit.ingest.ct_images import (
     AxialImage,
@@ -353,7 +354,7 @@ class StudySizer:
                 for group, group_samples in samples.items()
                 for s in group_samples
             ]
-            measured = {r.sop_instance_uid for r in new}
+            measured = {r["sop_instance_uid"] for r in new}
             new += [  # the images left header-only: where they lie, for a later merge
                 _header_row(study_uid, h)
                 for h, _, _ in entries
@@ -365,8 +366,8 @@ class StudySizer:
                     session, study_uid, device, header, reader, source, errors
                 )
             _keep_samples(session, new)
-            stored = session.scalars(
-                select(m.CtSizeSampleRow).where(m.CtSizeSampleRow.study_instance_uid == study_uid)
+            stored = session.execute(
+                select(*_SAMPLE_COLUMNS).where(m.CtSizeSampleRow.study_instance_uid == study_uid)
             ).all()
             return self._size_events(session, study_uid, rows, stored, headers_of, errors)
 
@@ -379,7 +380,7 @@ class StudySizer:
         reader: PixelReader,
         source: str,
         errors: list[IngestError],
-    ) -> list[m.CtSizeSampleRow]:
+    ) -> list[dict[str, Any]]:
         """One localizer's rows as samples, when its scanner has a stored calibration for the
         image's tube voltage (its view is read from the image)."""
         view = _localizer_view(header)
@@ -419,7 +420,7 @@ class StudySizer:
                     _sample_row(study_uid, header.acquisition_group, "localizer", sample, [header])
                 )
         if out:
-            out[0].pixel_data_bytes = header.pixel_data_bytes
+            out[0]["pixel_data_bytes"] = header.pixel_data_bytes
         return out
 
     def _size_events(
@@ -427,12 +428,12 @@ class StudySizer:
         session: Session,
         study_uid: str,
         rows: Sequence[Any],
-        stored: Sequence[m.CtSizeSampleRow],
+        stored: Sequence[Any],
         headers_of: dict[str, list[CtImageHeader]],
         errors: list[IngestError],
     ) -> int:
-        axial: dict[str, list[m.CtSizeSampleRow]] = {}
-        localizer: list[m.CtSizeSampleRow] = []
+        axial: dict[str, list[Any]] = {}
+        localizer: list[Any] = []
         for row in stored:
             if row.method == "localizer":
                 localizer.append(row)
@@ -496,7 +497,7 @@ class StudySizer:
 
     @staticmethod
     def _from_localizer(
-        localizer: list[m.CtSizeSampleRow],
+        localizer: list[Any],
         lo: float,
         hi: float,
         event: Any,
@@ -518,24 +519,37 @@ def _localizer_view(header: CtImageHeader) -> str | None:
     return "frontal" if normal[1] >= normal[0] else "lateral"
 
 
-def _header_row(study_uid: str, header: CtImageHeader) -> m.CtSizeSampleRow:
+#: the columns of ``ct_size_samples`` sizing reads
+_SAMPLE_COLUMNS = (
+    m.CtSizeSampleRow.acquisition_group,
+    m.CtSizeSampleRow.sop_instance_uid,
+    m.CtSizeSampleRow.method,
+    m.CtSizeSampleRow.frame_of_reference_uid,
+    m.CtSizeSampleRow.z_mm,
+    m.CtSizeSampleRow.dw_cm,
+    m.CtSizeSampleRow.truncated,
+)
+
+
+def _header_row(study_uid: str, header: CtImageHeader) -> dict[str, Any]:
     assert header.z_mm is not None
-    return m.CtSizeSampleRow(
-        study_instance_uid=study_uid,
-        acquisition_group=header.acquisition_group,
-        sop_instance_uid=header.sop_instance_uid,
-        method="header",
-        frame_of_reference_uid=header.frame_of_reference_uid,
-        z_mm=header.z_mm,
-        dw_cm=None,
-        truncated=False,
-        pixel_data_bytes=header.pixel_data_bytes,
-    )
+    return {
+        "study_instance_uid": study_uid,
+        "acquisition_group": header.acquisition_group,
+        "sop_instance_uid": header.sop_instance_uid,
+        "method": "header",
+        "frame_of_reference_uid": header.frame_of_reference_uid,
+        "z_mm": header.z_mm,
+        "dw_cm": None,
+        "truncated": False,
+        "pixel_data_bytes": header.pixel_data_bytes,
+        "measured_at": utcnow(),
+    }
 
 
 def _sample_row(
     study_uid: str, group: str, method: str, sample: ImageSample, headers: list[CtImageHeader]
-) -> m.CtSizeSampleRow:
+) -> dict[str, Any]:
     frame = next(
         (
             h.frame_of_reference_uid
@@ -544,27 +558,28 @@ def _sample_row(
         ),
         next((h.frame_of_reference_uid for h in headers if h.frame_of_reference_uid), None),
     )
-    return m.CtSizeSampleRow(
-        study_instance_uid=study_uid,
-        acquisition_group=group,
-        sop_instance_uid=sample.sop_instance_uid,
-        method=method,
-        frame_of_reference_uid=frame,
-        z_mm=sample.z_mm,
-        dw_cm=sample.dw_cm,
-        truncated=sample.truncated,
-        pixel_data_bytes=sample.pixel_data_bytes,
-    )
+    return {
+        "study_instance_uid": study_uid,
+        "acquisition_group": group,
+        "sop_instance_uid": sample.sop_instance_uid,
+        "method": method,
+        "frame_of_reference_uid": frame,
+        "z_mm": sample.z_mm,
+        "dw_cm": sample.dw_cm,
+        "truncated": sample.truncated,
+        "pixel_data_bytes": sample.pixel_data_bytes,
+        "measured_at": utcnow(),
+    }
 
 
-def _keep_samples(session: Session, new: list[m.CtSizeSampleRow]) -> None:
-    """Store new samples; an image measured again replaces its earlier samples."""
-    sops = {r.sop_instance_uid for r in new}
+def _keep_samples(session: Session, new: list[dict[str, Any]]) -> None:
+    """Store new samples; an image measured again replaces its earlier rows."""
+    sops = {r["sop_instance_uid"] for r in new}
     if not sops:
         return
-    session.execute(delete(m.CtSizeSampleRow).where(m.CtSizeSampleRow.sop_instance_uid.in_(sops)))
-    session.add_all(new)
-    session.flush()
+    table = m.CtSizeSampleRow.__table__
+    session.execute(delete(table).where(table.c.sop_instance_uid.in_(sops)))
+    session.execute(insert(table), new)
 
 
 def _changed(event: Any, values: dict[str, Any]) -> bool:
