@@ -285,6 +285,33 @@ def _size_region(study: CtStudy) -> str:
     return {"ct_head": "head", "ct_chest": "chest"}.get(study.exam_type, "body")
 
 
+def _ct_header(room: RoomSpec, study: CtStudy, acq: Any, image_type: str, sop_uid: str) -> Dataset:
+    """What every CT image of the demo scanner carries: patient, study, dates, event, notice."""
+    ds: Dataset = {}
+    _common(
+        ds,
+        room=room,
+        patient=study.patient,
+        study_uid=study.study_uid,
+        accession=study.accession,
+        study_description=study.study_description,
+        start=study.start,
+        weight_recorded=study.weight_recorded,
+    )
+    ds["ImageType"] = ["ORIGINAL", "PRIMARY", image_type]
+    ds["SOPClassUID"] = CT_IMAGE
+    ds["SOPInstanceUID"] = sop_uid
+    when = acq.started
+    ds["SeriesDate"] = ds["AcquisitionDate"] = ds["ContentDate"] = when.strftime("%Y%m%d")
+    ds["SeriesTime"] = ds["AcquisitionTime"] = ds["ContentTime"] = when.strftime("%H%M%S")
+    ds["Modality"] = "CT"
+    ds["IrradiationEventUID"] = acq.event_uid
+    ds["ImageComments"] = INVENTED_NOTICE
+    ds["BodyPartExamined"] = study.body_part
+    ds["ProtocolName"] = acq.protocol
+    return ds
+
+
 def ct_image(
     room: RoomSpec,
     study: CtStudy,
@@ -302,29 +329,8 @@ def ct_image(
     assert acq.ctdivol_mgy is not None and acq.image_sop_uid is not None
     if z_mm is None:
         z_mm = -acq.scanning_length_mm / 2
-    ds: Dataset = {}
-    _common(
-        ds,
-        room=room,
-        patient=study.patient,
-        study_uid=study.study_uid,
-        accession=study.accession,
-        study_description=study.study_description,
-        start=study.start,
-        weight_recorded=study.weight_recorded,
-    )
-    ds["ImageType"] = ["ORIGINAL", "PRIMARY", "AXIAL"]
-    ds["SOPClassUID"] = CT_IMAGE
-    ds["SOPInstanceUID"] = sop_uid or acq.image_sop_uid
-    when = acq.started
-    ds["SeriesDate"] = ds["AcquisitionDate"] = ds["ContentDate"] = when.strftime("%Y%m%d")
-    ds["SeriesTime"] = ds["AcquisitionTime"] = ds["ContentTime"] = when.strftime("%H%M%S")
-    ds["Modality"] = "CT"
+    ds = _ct_header(room, study, acq, "AXIAL", sop_uid or acq.image_sop_uid)
     ds["SeriesDescription"] = f"{acq.protocol} {acq.phase_label}".strip()
-    ds["IrradiationEventUID"] = acq.event_uid
-    ds["ImageComments"] = INVENTED_NOTICE
-    ds["BodyPartExamined"] = study.body_part
-    ds["ProtocolName"] = acq.protocol
     ds["ScanOptions"] = "HELICAL MODE"
     ds["AcquisitionType"] = "SPIRAL"
     ds["SliceThickness"] = "5"
@@ -393,29 +399,8 @@ def ct_localizer(room: RoomSpec, study: CtStudy, sop_uid: str) -> Dataset:
     the helical acquisitions: rows along the table (head first), columns across the patient."""
     acq = study.acquisitions[0]
     scan = max(a.scanning_length_mm for a in study.acquisitions[1:])
-    ds: Dataset = {}
-    _common(
-        ds,
-        room=room,
-        patient=study.patient,
-        study_uid=study.study_uid,
-        accession=study.accession,
-        study_description=study.study_description,
-        start=study.start,
-        weight_recorded=study.weight_recorded,
-    )
-    ds["ImageType"] = ["ORIGINAL", "PRIMARY", "LOCALIZER"]
-    ds["SOPClassUID"] = CT_IMAGE
-    ds["SOPInstanceUID"] = sop_uid
-    when = acq.started
-    ds["SeriesDate"] = ds["AcquisitionDate"] = ds["ContentDate"] = when.strftime("%Y%m%d")
-    ds["SeriesTime"] = ds["AcquisitionTime"] = ds["ContentTime"] = when.strftime("%H%M%S")
-    ds["Modality"] = "CT"
+    ds = _ct_header(room, study, acq, "LOCALIZER", sop_uid)
     ds["SeriesDescription"] = "TOPOGRAM AP"
-    ds["IrradiationEventUID"] = acq.event_uid
-    ds["ImageComments"] = INVENTED_NOTICE
-    ds["BodyPartExamined"] = study.body_part
-    ds["ProtocolName"] = acq.protocol
     ds["ScanOptions"] = "SURVIEW"
     ds["AcquisitionType"] = "CONSTANT_ANGLE"
     ds["KVP"] = f"{acq.kvp_kv:g}"

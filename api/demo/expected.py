@@ -293,7 +293,11 @@ def _dap_ratio(gen: Generated, dates: RadiographyPlan) -> list[PlantedFinding]:
     return [main, ratio_step, dap_steps]
 
 
-def _change_point(gen: Generated, dates: RadiographyPlan, ctx: SimulationContext) -> PlantedFinding:
+def _changed_program_dap(
+    gen: Generated, dates: RadiographyPlan
+) -> tuple[RoomSpec, str, dict[str, list[float]], dict[str, list[float]]]:
+    """The changed program's room and exam type, and its reported DAP by month: every patient,
+    and standard-size ones (the planted outlier left out)."""
     plan = dates.plan
     room = gen.rooms[plan.change_room]
     assert room.programs is not None
@@ -311,6 +315,12 @@ def _change_point(gen: Generated, dates: RadiographyPlan, ctx: SimulationContext
                 every[_month(v.acquired.date())].append(v.dap_reported_gy_cm2)
                 if std:
                     standard[_month(v.acquired.date())].append(v.dap_reported_gy_cm2)
+    return room, exam, every, standard
+
+
+def _change_point(gen: Generated, dates: RadiographyPlan, ctx: SimulationContext) -> PlantedFinding:
+    plan = dates.plan
+    room, exam, every, standard = _changed_program_dap(gen, dates)
     months = ctx.calendar.labels()
     first_changed = _month(dates.change_date)
     before = [x for m, vs in standard.items() if m < first_changed for x in vs]
@@ -354,22 +364,9 @@ def _change_point(gen: Generated, dates: RadiographyPlan, ctx: SimulationContext
 def _low_dose(gen: Generated, dates: RadiographyPlan, ctx: SimulationContext) -> PlantedFinding:
     """RAD 2's abdomen AP before its dose was doubled: far below the level (image quality)."""
     plan = dates.plan
-    room = gen.rooms[plan.change_room]
-    assert room.programs is not None
-    exam = room.programs[plan.change_program].exam_type
-    standard: dict[str, list[float]] = defaultdict(list)
-    for s in gen.radiography[room.key]:
-        if not _standard(s.patient, s.weight_recorded):
-            continue
-        for v in s.views:
-            if (
-                v.program == plan.change_program
-                and v.dose_recorded
-                and _OUTLIER_TAG not in v.planted
-                and v.acquired.date() < dates.change_date
-            ):
-                standard[_month(v.acquired.date())].append(v.dap_reported_gy_cm2)
-    by_month = _by_month(standard)
+    room, exam, _, standard = _changed_program_dap(gen, dates)
+    changed = _month(dates.change_date)  # the change comes on the first day of a month
+    by_month = _by_month({m: v for m, v in standard.items() if m < changed})
     first_month = min(by_month)
     first = date(int(first_month[:4]), int(first_month[5:]), 1)
     level = ctx.reference_level(exam, "dap_gy_cm2", first)
