@@ -340,7 +340,13 @@ def _send_cstore(
                 status = assoc.send_c_store(path)
             except (RuntimeError, OSError, ValueError) as exc:
                 raise DemoError(_send_failure(path, rooms, counts, assoc, exc)) from None
-            code = int(getattr(status, "Status", 0xFFFF))
+            if "Status" not in status:  # no response: aborted, or the wait ran out
+                deadline = time.monotonic() + 2.0  # the abort may still be on its way
+                while assoc.is_established and not assoc.is_aborted and time.monotonic() < deadline:
+                    time.sleep(0.05)
+                failure = RuntimeError("no response to the C-STORE request")
+                raise DemoError(_send_failure(path, rooms, counts, assoc, failure))
+            code = int(status.Status)
             counts["success" if code == 0 else "failure"] += 1
     finally:
         if assoc.is_established:
@@ -352,7 +358,7 @@ def _send_failure(
     path: Path, rooms: dict[Path, str], counts: Counter[str], assoc: Any, exc: Exception
 ) -> str:
     """One line: which room's send failed, after how many objects, and why."""
-    if assoc.is_aborted:
+    if assoc.is_aborted or not (assoc.is_established or assoc.is_released):
         why = (
             f"the association was aborted (no answer within {_DIMSE_TIMEOUT_S:g} s, or the "
             "listener cut it off; on a heavily loaded machine, run the demo again when it is "
