@@ -94,7 +94,7 @@ def axial_hu(
     ``chest`` or ``body``; ``z_fraction`` 0 at the start of the scan, 1 at its end."""
     n = AXIAL_MATRIX
     pixel = fov_mm / n
-    c = (np.arange(n) + 0.5) * pixel - fov_mm / 2.0
+    c: NDArray[np.float64] = (np.arange(n, dtype=np.float64) + 0.5) * pixel - fov_mm / 2.0
     x, y = c[np.newaxis, :], c[:, np.newaxis]
     image = np.full((n, n), _AIR_HU)
     a, b = _half_axes_mm(patient, region, z_fraction)

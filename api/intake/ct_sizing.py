@@ -577,8 +577,8 @@ def _keep_samples(session: Session, new: list[dict[str, Any]]) -> None:
     sops = {r["sop_instance_uid"] for r in new}
     if not sops:
         return
-    table = m.CtSizeSampleRow.__table__
-    session.execute(delete(table).where(table.c.sop_instance_uid.in_(sops)))
+    table = m.CtSizeSampleRow
+    session.execute(delete(table).where(table.sop_instance_uid.in_(sops)))
     session.execute(insert(table), new)
 
 
