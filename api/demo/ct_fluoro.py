@@ -282,7 +282,7 @@ _REFERENCE_POINT_MM = _SOURCE_TO_TABLE_MM + 10.0  # 1 cm above the tabletop
 _DETECTOR_CLEARANCE_MM = 150.0  # patient surface to the image receptor, on average
 _SPOT_MA = 300.0
 _FLUORO_SPREAD = 0.10
-_ABC_MAX_FACTOR = 1.4  # tube current limit of pulsed fluoroscopy, relative to the standard patient
+_ABC_MAX_FACTOR = 1.3  # tube current limit of pulsed fluoroscopy, relative to the standard patient
 _METER_SPREAD = 0.03
 
 
@@ -383,7 +383,7 @@ class _Fluoro:
                 np.clip(
                     total_s,
                     0.5 * protocol.fluoro_time_median_s,
-                    1.7 * protocol.fluoro_time_median_s,
+                    1.5 * protocol.fluoro_time_median_s,
                 )
             )
         n_runs = int(rng.integers(protocol.runs[0], protocol.runs[1] + 1))
