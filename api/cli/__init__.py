@@ -34,6 +34,7 @@ COMMAND_MODULES = (
     "skin",
     "mgd",
     "token",
+    "ctcal",
     "conformance",
     "demo",
 )

@@ -46,6 +46,12 @@ _CT_KV_EXPONENT = 2.5
 _CT_SPREAD = 0.08  # CTDIvol spread at a given weight (modulation, positioning)
 _LOCALIZER_KV, _LOCALIZER_MA, _LOCALIZER_SPEED_MM_S = 120.0, 35.0, 100.0
 _MODULATION_PEAK = 1.5  # maximum over mean tube current under modulation
+#: shares of CT studies whose localizer and axial images every 50 mm are sent ("series"), and
+#: whose localizer alone is ("localizer"); the scanner sends one centre image per acquisition
+#: of every study
+SIZE_SERIES_SHARE = 0.15
+LOCALIZER_ONLY_SHARE = 0.15
+SIZE_IMAGE_SPACING_MM = 50.0
 
 
 def _ct_acquisition(
@@ -258,6 +264,15 @@ def simulate_ct(room: RoomSpec, ctx: SimulationContext, plan: PlantedPlan) -> li
     if plan.recurrent_room == room.key:
         studies += _recurrent_studies(room, ctx, ctx.rng("recurrent"), plan)
     studies.sort(key=lambda s: s.start)
+    # which studies the scanner also sends its localizer and a sample of axial images for: a
+    # random stream of its own, so every other draw stays what it was
+    images = ctx.rng(f"ct_images:{room.key}")
+    for study in studies:
+        draw = float(images.random())
+        study.size_images = (
+            "series" if draw < SIZE_SERIES_SHARE
+            else "localizer" if draw < SIZE_SERIES_SHARE + LOCALIZER_ONLY_SHARE else ""
+        )  # fmt: skip
     return studies
 
 
@@ -267,7 +282,7 @@ _REFERENCE_POINT_MM = _SOURCE_TO_TABLE_MM + 10.0  # 1 cm above the tabletop
 _DETECTOR_CLEARANCE_MM = 150.0  # patient surface to the image receptor, on average
 _SPOT_MA = 300.0
 _FLUORO_SPREAD = 0.10
-_ABC_MAX_FACTOR = 1.6  # tube current limit of pulsed fluoroscopy, relative to the standard patient
+_ABC_MAX_FACTOR = 1.3  # tube current limit of pulsed fluoroscopy, relative to the standard patient
 _METER_SPREAD = 0.03
 
 
@@ -367,8 +382,8 @@ class _Fluoro:
             total_s = float(
                 np.clip(
                     total_s,
-                    0.4 * protocol.fluoro_time_median_s,
-                    2.2 * protocol.fluoro_time_median_s,
+                    0.5 * protocol.fluoro_time_median_s,
+                    1.5 * protocol.fluoro_time_median_s,
                 )
             )
         n_runs = int(rng.integers(protocol.runs[0], protocol.runs[1] + 1))

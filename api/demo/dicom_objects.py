@@ -22,6 +22,13 @@ from typing import Any
 
 import numpy as np
 
+from beamaudit.api.demo.ct_pixels import (
+    AXIAL_MATRIX,
+    LOCALIZER_PIXEL_MM,
+    axial_hu,
+    localizer_signal,
+    water_equivalent_diameter_cm,
+)
 from beamaudit.api.demo.encoding import part10_file
 from beamaudit.api.demo.records import (
     CtStudy,
@@ -46,6 +53,7 @@ __all__ = [
     "XRAY_DOSE_SR",
     "ct_dose_report",
     "ct_image",
+    "ct_localizer",
     "fluoro_dose_report",
     "part10_bytes",
     "radiograph",
@@ -240,10 +248,45 @@ def presentation_pixels(ds: Dataset, room: RoomSpec) -> None:
     _image_pixels(ds, rows, columns)
 
 
-def ct_image(room: RoomSpec, study: CtStudy, acquisition_index: int) -> Dataset:
-    """One axial CT image (the centre slice) of a helical acquisition, with its CTDIvol."""
-    acq = study.acquisitions[acquisition_index]
-    assert acq.ctdivol_mgy is not None and acq.image_sop_uid is not None
+#: the scanner's own Dw from its localizer reads this much above the drawn section's (an
+#: invented difference of method: its table handling and its rim)
+_SCANNER_DW_FACTOR = 1.04
+
+
+def _scanner_size(study: CtStudy, acq: Any) -> dict[str, Any]:
+    """TID 10014's scan range of a helical acquisition (z = 0 to z = -length in the study's
+    frame of reference), and the scanner's own Dw and SSDE where it sent a localizer."""
+    if not acq.spiral:
+        return {}
+    out: dict[str, Any] = {
+        "scan_z_top_mm": 0.0,
+        "scan_z_bottom_mm": -acq.scanning_length_mm,
+        "frame_of_reference_uid": study.frame_of_reference_uid,
+    }
+    if study.size_images and acq.ctdivol_mgy is not None:
+        from beamaudit.model.ssde import size_specific_dose_estimate
+
+        region = _size_region(study)
+        dw_cm = water_equivalent_diameter_cm(study.patient, region, z_fraction=0.5)
+        dw_cm *= _SCANNER_DW_FACTOR
+        ssde = size_specific_dose_estimate(
+            ctdivol_mgy=acq.ctdivol_mgy,
+            diameter_cm=dw_cm,
+            phantom_diameter_cm=16.0 if acq.head_phantom else 32.0,
+            body_region="head" if region == "head" else "body",
+            allow_extrapolation=True,
+        )
+        out["water_equivalent_diameter_mm"] = round(dw_cm * 10.0, 1)
+        out["ssde_mgy"] = round(ssde.ssde_mgy, 2)
+    return out
+
+
+def _size_region(study: CtStudy) -> str:
+    return {"ct_head": "head", "ct_chest": "chest"}.get(study.exam_type, "body")
+
+
+def _ct_header(room: RoomSpec, study: CtStudy, acq: Any, image_type: str, sop_uid: str) -> Dataset:
+    """What every CT image of the demo scanner carries: patient, study, dates, event, notice."""
     ds: Dataset = {}
     _common(
         ds,
@@ -255,24 +298,46 @@ def ct_image(room: RoomSpec, study: CtStudy, acquisition_index: int) -> Dataset:
         start=study.start,
         weight_recorded=study.weight_recorded,
     )
-    ds["ImageType"] = ["ORIGINAL", "PRIMARY", "AXIAL"]
+    ds["ImageType"] = ["ORIGINAL", "PRIMARY", image_type]
     ds["SOPClassUID"] = CT_IMAGE
-    ds["SOPInstanceUID"] = acq.image_sop_uid
+    ds["SOPInstanceUID"] = sop_uid
     when = acq.started
     ds["SeriesDate"] = ds["AcquisitionDate"] = ds["ContentDate"] = when.strftime("%Y%m%d")
     ds["SeriesTime"] = ds["AcquisitionTime"] = ds["ContentTime"] = when.strftime("%H%M%S")
     ds["Modality"] = "CT"
-    ds["SeriesDescription"] = f"{acq.protocol} {acq.phase_label}".strip()
     ds["IrradiationEventUID"] = acq.event_uid
     ds["ImageComments"] = INVENTED_NOTICE
     ds["BodyPartExamined"] = study.body_part
     ds["ProtocolName"] = acq.protocol
+    return ds
+
+
+def ct_image(
+    room: RoomSpec,
+    study: CtStudy,
+    acquisition_index: int,
+    *,
+    sop_uid: str | None = None,
+    z_mm: float | None = None,
+    instance_number: int = 1,
+) -> Dataset:
+    """One axial CT image of a helical acquisition, with its CTDIvol: the centre slice (its
+    ``image_sop_uid``), or the slice at table position ``z_mm`` (the scan runs from z = 0 to
+    z = -length) as ``sop_uid``. The pixels are the patient drawn as ellipses on the table
+    (:mod:`beamaudit.api.demo.ct_pixels`)."""
+    acq = study.acquisitions[acquisition_index]
+    assert acq.ctdivol_mgy is not None and acq.image_sop_uid is not None
+    if z_mm is None:
+        z_mm = -acq.scanning_length_mm / 2
+    ds = _ct_header(room, study, acq, "AXIAL", sop_uid or acq.image_sop_uid)
+    ds["SeriesDescription"] = f"{acq.protocol} {acq.phase_label}".strip()
     ds["ScanOptions"] = "HELICAL MODE"
     ds["AcquisitionType"] = "SPIRAL"
     ds["SliceThickness"] = "5"
     ds["KVP"] = f"{acq.kvp_kv:g}"
     ds["DataCollectionDiameter"] = "500"
-    ds["ReconstructionDiameter"] = "250" if acq.head_phantom else "380"
+    fov = 250 if acq.head_phantom else 450
+    ds["ReconstructionDiameter"] = str(fov)
     ds["DistanceSourceToDetector"] = "1085"
     ds["DistanceSourceToPatient"] = "595"
     ds["GantryDetectorTilt"] = "0"
@@ -306,21 +371,62 @@ def ct_image(room: RoomSpec, study: CtStudy, acquisition_index: int) -> Dataset:
     ds["SeriesInstanceUID"] = acq.series_uid
     ds["SeriesNumber"] = acquisition_index + 2
     ds["AcquisitionNumber"] = acquisition_index + 1
-    ds["InstanceNumber"] = 1
+    ds["InstanceNumber"] = instance_number
     ds["PatientOrientation"] = ""
     ds["FrameOfReferenceUID"] = study.frame_of_reference_uid
     ds["PositionReferenceIndicator"] = ""
-    ds["ImagePositionPatient"] = ["-125", "-125", f"{-acq.scanning_length_mm / 2:.1f}"]
+    size = AXIAL_MATRIX
+    pixel = fov / size
+    corner = f"{-fov / 2 + pixel / 2:.4g}"
+    ds["ImagePositionPatient"] = [corner, corner, f"{z_mm:.1f}"]
     ds["ImageOrientationPatient"] = ["1", "0", "0", "0", "1", "0"]
-    ds["SliceLocation"] = f"{-acq.scanning_length_mm / 2:.1f}"
-    size = 16
-    ds["PixelSpacing"] = [f"{(250 if acq.head_phantom else 380) / size:g}"] * 2
+    ds["SliceLocation"] = f"{z_mm:.1f}"
+    ds["PixelSpacing"] = [f"{pixel:.6g}"] * 2
     ds["RescaleIntercept"] = "-1024"
     ds["RescaleSlope"] = "1"
     ds["RescaleType"] = "HU"
     ds["WindowCenter"] = "40"
     ds["WindowWidth"] = "400"
     _image_pixels(ds, size, size)
+    fraction = min(max(-z_mm / acq.scanning_length_mm, 0.0), 1.0)
+    hu = axial_hu(study.patient, _size_region(study), z_fraction=fraction, fov_mm=fov)
+    ds["PixelData"] = np.clip(np.round(hu + 1024.0), 0, 4095).astype("<u2").tobytes()
+    return ds
+
+
+def ct_localizer(room: RoomSpec, study: CtStudy, sop_uid: str) -> Dataset:
+    """The frontal localizer of a CT study (its first acquisition), centred on the scan range of
+    the helical acquisitions: rows along the table (head first), columns across the patient."""
+    acq = study.acquisitions[0]
+    scan = max(a.scanning_length_mm for a in study.acquisitions[1:])
+    ds = _ct_header(room, study, acq, "LOCALIZER", sop_uid)
+    ds["SeriesDescription"] = "TOPOGRAM AP"
+    ds["ScanOptions"] = "SURVIEW"
+    ds["AcquisitionType"] = "CONSTANT_ANGLE"
+    ds["KVP"] = f"{acq.kvp_kv:g}"
+    ds["XRayTubeCurrent"] = round(acq.tube_current_ma)
+    ds["PatientPosition"] = "HFS"
+    ds["SeriesInstanceUID"] = acq.series_uid
+    ds["SeriesNumber"] = 1
+    ds["AcquisitionNumber"] = 1
+    ds["InstanceNumber"] = 1
+    ds["PatientOrientation"] = ["L", "F"]
+    ds["FrameOfReferenceUID"] = study.frame_of_reference_uid
+    ds["PositionReferenceIndicator"] = ""
+    width = 500.0
+    rows = round(acq.scanning_length_mm / LOCALIZER_PIXEL_MM)
+    top = -scan / 2 + rows * LOCALIZER_PIXEL_MM / 2
+    ds["ImagePositionPatient"] = [f"{-width / 2 + LOCALIZER_PIXEL_MM / 2:g}", "0", f"{top:.1f}"]
+    ds["ImageOrientationPatient"] = ["1", "0", "0", "0", "0", "-1"]  # coronal, head at the top
+    ds["PixelSpacing"] = [f"{LOCALIZER_PIXEL_MM:g}"] * 2
+    ds["RescaleIntercept"] = "0"
+    ds["RescaleSlope"] = "1"
+    ds["WindowCenter"] = "2000"
+    ds["WindowWidth"] = "4000"
+    signal = localizer_signal(study.patient, _size_region(study), rows=rows, width_mm=width)
+    _image_pixels(ds, rows, signal.shape[1])
+    ds["BitsStored"], ds["HighBit"] = 16, 15
+    ds["PixelData"] = np.clip(np.round(signal), 0, 65535).astype("<u2").tobytes()
     return ds
 
 
@@ -444,6 +550,7 @@ def ct_dose_report(room: RoomSpec, study: CtStudy, *, device_uid: str) -> Datase
             ctdivol_mgy=a.ctdivol_mgy,
             head_phantom=a.head_phantom,
             dlp_mgy_cm=a.dlp_mgy_cm,
+            **_scanner_size(study, a),
         )
         for a in study.acquisitions
     ]

@@ -57,13 +57,11 @@ def design_parameters() -> dict[str, Any]:
         "cusum_h": defaults.cusum_h,
         "cusum_baseline_months": DESIGN_CUSUM_BASELINE_MONTHS,
         "minimum_samples": {"radiography": 20, "fluoroscopy": 20, "ct": 20},
-        # the scenario predates the low-dose review: many of its groups sit at a fifth to a third
-        # of the invented local levels (seed 0: barium swallow 0.26, lumbar spine AP 0.26, chest
-        # lateral 0.27, abdomen AP 0.29 with 20-43 patients), so the rule at its default 0.5
-        # would flag them all. It stays off until the invented levels and rooms are redesigned
-        # around a planted low-dose group (issue 26's demo part, not done yet)
-        "low_dose_fraction": None,
-        "low_dose_below_site_p25": False,
+        # the low-dose review at its defaults: the invented levels sit at about 1.5-1.7 times
+        # the healthy medians, so only the planted group is far below one (the site's 25th
+        # percentile needs more rooms than the demo has)
+        "low_dose_fraction": defaults.low_dose_fraction,
+        "low_dose_below_site_p25": defaults.low_dose_below_site_p25,
     }
 
 
@@ -301,7 +299,11 @@ def _dap_ratio(gen: Generated, dates: RadiographyPlan) -> list[PlantedFinding]:
     return [main, ratio_step, dap_steps]
 
 
-def _change_point(gen: Generated, dates: RadiographyPlan, ctx: SimulationContext) -> PlantedFinding:
+def _changed_program_dap(
+    gen: Generated, dates: RadiographyPlan
+) -> tuple[RoomSpec, str, dict[str, list[float]], dict[str, list[float]]]:
+    """The changed program's room and exam type, and its reported DAP by month: every patient,
+    and standard-size ones (the planted outlier left out)."""
     plan = dates.plan
     room = gen.rooms[plan.change_room]
     assert room.programs is not None
@@ -319,6 +321,12 @@ def _change_point(gen: Generated, dates: RadiographyPlan, ctx: SimulationContext
                 every[_month(v.acquired.date())].append(v.dap_reported_gy_cm2)
                 if std:
                     standard[_month(v.acquired.date())].append(v.dap_reported_gy_cm2)
+    return room, exam, every, standard
+
+
+def _change_point(gen: Generated, dates: RadiographyPlan, ctx: SimulationContext) -> PlantedFinding:
+    plan = dates.plan
+    room, exam, every, standard = _changed_program_dap(gen, dates)
     months = ctx.calendar.labels()
     first_changed = _month(dates.change_date)
     before = [x for m, vs in standard.items() if m < first_changed for x in vs]
@@ -355,6 +363,46 @@ def _change_point(gen: Generated, dates: RadiographyPlan, ctx: SimulationContext
             ),
             "level": {"set": level[1], "value": level[0]},
             "standard_median_after_to_level": round(statistics.median(after) / level[0], 3),
+        },
+    )
+
+
+def _low_dose(gen: Generated, dates: RadiographyPlan, ctx: SimulationContext) -> PlantedFinding:
+    """RAD 2's abdomen AP before its dose was doubled: far below the level (image quality)."""
+    plan = dates.plan
+    room, exam, _, standard = _changed_program_dap(gen, dates)
+    changed = _month(dates.change_date)  # the change comes on the first day of a month
+    by_month = _by_month({m: v for m, v in standard.items() if m < changed})
+    first_month = min(by_month)
+    first = date(int(first_month[:4]), int(first_month[5:]), 1)
+    level = ctx.reference_level(exam, "dap_gy_cm2", first)
+    assert level is not None
+    fraction = design_parameters()["low_dose_fraction"]
+    ratios = {m: round(r["median"] / level[0], 3) for m, r in by_month.items() if r["median"]}
+    assert all(r < fraction for r in ratios.values()), "the low-dose plant must be far below"
+    return _finding(
+        gen,
+        room.key,
+        id="abdomen_far_below_level",
+        kind="low_dose_review",
+        exam_type=exam,
+        quantity="dap_gy_cm2",
+        date=first.isoformat(),
+        month=first_month,
+        description=(
+            f"Until {dates.change_date:%d %B %Y} {room.name}'s abdomen AP runs at about a third "
+            "of the invented local level (DAP and ESAK), far below half of it: the low-dose "
+            "review asks whether its images still answer the clinical question (the same noise "
+            "the radiologists later complained of). It does not ask for more dose by itself; the "
+            "doubling that followed (aec_dose_doubled) was made without that review."
+        ),
+        expected={
+            "quantities": list(plan.low_dose_quantities),
+            "low_dose_fraction": fraction,
+            "months": sorted(by_month),
+            "monthly_standard_median_dap_gy_cm2": by_month,
+            "level": {"set": level[1], "value": level[0]},
+            "standard_median_to_level": ratios,
         },
     )
 
@@ -579,7 +627,7 @@ def expected_findings(
     gen: Generated, ctx: SimulationContext, dates: RadiographyPlan
 ) -> list[PlantedFinding]:
     """Every planted finding with its expected numbers (broken files are added by the writer)."""
-    findings = [*_dap_ratio(gen, dates), _change_point(gen, dates, ctx)]
+    findings = [*_dap_ratio(gen, dates), _change_point(gen, dates, ctx), _low_dose(gen, dates, ctx)]
     for outlier in dates.plan.outliers:
         findings += _outlier(gen, outlier, ctx)
     findings += [_no_dose(gen, dates), _unmapped(gen, dates), _recurrent(gen, dates)]
@@ -760,7 +808,28 @@ def quiet_numbers(
 ) -> list[dict[str, Any]]:
     """The findings deliberately **not** planted, with the numbers that keep them quiet."""
     top: dict[str, dict[str, Any]] = {}
+    lowest: dict[str, Any] = {}
+    minimum = design_parameters()["minimum_samples"]
+    changed = gen.rooms[dates.plan.change_room]
+    assert changed.programs is not None
+    planted_low = {  # the planted low-dose group: the changed program before its change
+        (changed.key, changed.programs[dates.plan.change_program].exam_type, m)
+        for m in ctx.calendar.labels()
+        if m < _month(dates.change_date)
+    }
     for row in medians:
+        strictest = max(row["median_standard_to_level"].values(), default=None)
+        judged = row["n_standard"] >= minimum.get("radiography", 20)
+        if (
+            strictest is not None
+            and judged
+            and (row["room_key"], row["exam_type"], row["month"]) not in planted_low
+            and strictest < lowest.get("ratio_to_strictest", float("inf"))
+        ):
+            lowest = {
+                "ratio_to_strictest": strictest,
+                **{f: row[f] for f in ("room_key", "exam_type", "month", "quantity", "n_standard")},
+            }
         for set_name, ratio in row["median_standard_to_level"].items():
             if ratio > top.get(set_name, {"ratio": 0.0})["ratio"]:
                 top[set_name] = {
@@ -808,6 +877,15 @@ def quiet_numbers(
             "stays below each shipped level (the doubled abdomen AP of "
             f"{gen.rooms[dates.plan.change_room].name} included)",
             "highest_standard_median_to_level": top,
+        },
+        {
+            "kind": "low_dose_review",
+            "reason": "no judged group is far below its strictest level but "
+            f"{changed.name}'s abdomen AP before its doubling (planted): the lowest other "
+            "standard-size median is listed "
+            "against its strictest level (the review flags below "
+            f"{design_parameters()['low_dose_fraction']} of it)",
+            "lowest_standard_median_to_strictest": lowest,
         },
         {
             "kind": "exam_above_investigation_level",

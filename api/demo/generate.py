@@ -26,6 +26,7 @@ import numpy as np
 import beamaudit
 from beamaudit.api.demo.context import Calendar, SimulationContext, UidFactory, parse_month
 from beamaudit.api.demo.ct_fluoro import simulate_ct, simulate_fluoro
+from beamaudit.api.demo.ct_pixels import localizer_calibration_points
 from beamaudit.api.demo.dicom_objects import CR_IMAGE, CT_IMAGE, DX_PRESENTATION, XRAY_DOSE_SR
 from beamaudit.api.demo.errors import DemoError
 from beamaudit.api.demo.expected import (
@@ -160,7 +161,24 @@ def _room_entry(
         files=writer.files.get(room.key, 0),
         events=writer.events.get(room.key, 0),
         sop_classes=_SOP_CLASSES[room.kind],
+        ct_localizer_calibration=_localizer_calibration(room, ctx),
     )
+
+
+def _localizer_calibration(room: RoomSpec, ctx: SimulationContext) -> dict[str, Any] | None:
+    """The invented calibration of the CT scanner's frontal localizer at 120 kV, measured with
+    water cylinders on the table 41 days before the first month (as the QA of the X-ray rooms)."""
+    if room.kind != "ct":
+        return None
+    values, water = localizer_calibration_points()
+    return {
+        "kvp_kv": 120.0,
+        "view": "frontal",
+        "pixel_values": values,
+        "water_thickness_mm": water,
+        "measured_on": (ctx.calendar.start - timedelta(days=41)).isoformat(),
+        "source": "INVENTED: water cylinders of 10-50 cm on the table, frontal localizer, 120 kV",
+    }
 
 
 def _check_arguments(months: int, seed: int, end_month: str | None) -> str:

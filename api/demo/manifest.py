@@ -103,6 +103,10 @@ class RoomEntry:
     files: int
     events: int
     sop_classes: list[str]
+    #: the CT scanner's localizer calibration to water (IEC 62985), as its physicist measured
+    #: it: ``kvp_kv``, ``view``, ``pixel_values``, ``water_thickness_mm``, ``measured_on``,
+    #: ``source``; stored by the demo before the scan (``None``: not a CT scanner)
+    ct_localizer_calibration: dict[str, Any] | None = None
 
 
 @dataclass(slots=True)

@@ -9,6 +9,8 @@ Planted, by review flag kind:
 
 * ``dap_ratio``: RAD 1 (the calibrated room) reports 1.35 times the DAP it delivers from the 15th
   of the second month (a DAP chamber exchanged without its calibration factor);
+* ``low_dose_review``: before that change, RAD 2's abdomen AP runs at about a third of the
+  invented local level (DAP and ESAK), far below half of it: an image-quality review is due;
 * ``change_point``: RAD 2's abdomen AP doubles its tube charge, DAP and ESAK from the first day
   of the second-to-last month (AEC dose level and target EI raised together, so the deviation
   index does not show it); its median stays below the level, so no ``group_above_level``;
@@ -64,6 +66,8 @@ class PlantedPlan:
     change_program: str = "abdomen_ap"
     change_factor: float = 2.0
     change_month_index: int = -2
+    #: the same room and program run far below the level before the change (``low_dose_review``)
+    low_dose_quantities: tuple[str, ...] = ("dap_gy_cm2", "esak_mgy")
     no_dose_room: str = "mobile1"
     no_dose_exams: int = 6
     no_dose_month_index: int = -2

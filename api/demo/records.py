@@ -139,6 +139,10 @@ class CtStudy:
     report_series_uid: str
     acquisitions: list[CtAcquisition] = field(default_factory=list)
     planted: list[str] = field(default_factory=list)
+    #: what the scanner sends beside the dose report and the centre images: ``series`` (its
+    #: localizer and axial images every 50 mm of each helical acquisition), ``localizer``
+    #: (the localizer only) or ``""`` (nothing more)
+    size_images: str = ""
 
     @property
     def dlp_total_mgy_cm(self) -> float:

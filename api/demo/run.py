@@ -106,17 +106,32 @@ def _setup_rooms(sessions: sessionmaker[Session], manifest: dict[str, Any]) -> N
             )
             session.add(room)
             session.flush()
-            session.add(
-                m.Device(
-                    room_id=room.id,
-                    station_name=r["station_name"],
-                    manufacturer=r["manufacturer"],
-                    model_name=r["model_name"],
-                    serial_number=r["serial_number"],
-                    device_observer_uid=r.get("device_observer_uid"),
-                    institution_name=site_name,
-                )
+            device = m.Device(
+                room_id=room.id,
+                station_name=r["station_name"],
+                manufacturer=r["manufacturer"],
+                model_name=r["model_name"],
+                serial_number=r["serial_number"],
+                device_observer_uid=r.get("device_observer_uid"),
+                institution_name=site_name,
             )
+            session.add(device)
+            localizer = r.get("ct_localizer_calibration")
+            if localizer:  # the CT scanner's calibration to water, as its physicist stores it
+                from beamaudit.api.store.ct_calibrations import add_localizer_calibration
+
+                session.flush()
+                add_localizer_calibration(
+                    session,
+                    device_id=device.id,
+                    kvp_kv=localizer["kvp_kv"],
+                    view=localizer["view"],
+                    pixel_values=localizer["pixel_values"],
+                    water_thickness_mm=localizer["water_thickness_mm"],
+                    source=localizer["source"],
+                    measured_on=date.fromisoformat(localizer["measured_on"]),
+                    actor="demo",
+                )
             qa = r.get("qa_measurements") or []
             for q in qa:
                 session.add(
@@ -325,7 +340,13 @@ def _send_cstore(
                 status = assoc.send_c_store(path)
             except (RuntimeError, OSError, ValueError) as exc:
                 raise DemoError(_send_failure(path, rooms, counts, assoc, exc)) from None
-            code = int(getattr(status, "Status", 0xFFFF))
+            if "Status" not in status:  # no response: aborted, or the wait ran out
+                deadline = time.monotonic() + 2.0  # the abort may still be on its way
+                while assoc.is_established and not assoc.is_aborted and time.monotonic() < deadline:
+                    time.sleep(0.05)
+                failure = RuntimeError("no response to the C-STORE request")
+                raise DemoError(_send_failure(path, rooms, counts, assoc, failure))
+            code = int(status.Status)
             counts["success" if code == 0 else "failure"] += 1
     finally:
         if assoc.is_established:
@@ -337,7 +358,7 @@ def _send_failure(
     path: Path, rooms: dict[Path, str], counts: Counter[str], assoc: Any, exc: Exception
 ) -> str:
     """One line: which room's send failed, after how many objects, and why."""
-    if assoc.is_aborted:
+    if assoc.is_aborted or not (assoc.is_established or assoc.is_released):
         why = (
             f"the association was aborted (no answer within {_DIMSE_TIMEOUT_S:g} s, or the "
             "listener cut it off; on a heavily loaded machine, run the demo again when it is "
@@ -355,15 +376,26 @@ def _send_failure(
     )
 
 
+#: associations the demo opens to each listener at once: while one waits for its response
+#: (the listener storing the object), another's next object is on its way
+ASSOCIATIONS_PER_NODE = 3
+
+
 def _send_all(
-    files: list[Path], ports: list[int], sop_classes: list[str], rooms: dict[Path, str]
+    files: list[Path],
+    ports: list[int],
+    sop_classes: list[str],
+    rooms: dict[Path, str],
+    *,
+    per_port: int = ASSOCIATIONS_PER_NODE,
 ) -> Counter[str]:
-    """Deal ``files`` over one association per port, all sending at once."""
-    streams = [files[i :: len(ports)] for i in range(len(ports))]
+    """Deal ``files`` over ``per_port`` associations to each port, all sending at once."""
+    targets = [port for _ in range(per_port) for port in ports]
+    n = len(targets)
+    streams = [files[i::n] for i in range(n)]
     counts: Counter[str] = Counter()
-    with _files_sent_undecoded(), ThreadPoolExecutor(max_workers=len(ports)) as pool:
-        n = len(ports)
-        for c in pool.map(_send_cstore, streams, ports, [sop_classes] * n, [rooms] * n):
+    with _files_sent_undecoded(), ThreadPoolExecutor(max_workers=n) as pool:
+        for c in pool.map(_send_cstore, streams, targets, [sop_classes] * n, [rooms] * n):
             counts.update(c)
     return counts
 
@@ -571,12 +603,15 @@ def compare_with_plan(outcome: DemoOutcome) -> dict[str, Any]:
             continue
         station = rooms.get(plant.get("room") or "", plant.get("station_name"))
         uids = set(plant.get("study_instance_uids") or [])
+        months = set((plant.get("expected") or {}).get("months") or [])  # the low-dose plant's
         hit_indices: list[int] = []
         for i, f in enumerate(outcome.flags):
             if f["kind"] != kind:
                 continue
             where = f.get("concerns") or {}
             if uids and where.get("study_uid") not in uids:
+                continue
+            if months and f.get("period") not in months:
                 continue
             if station and where.get("room") not in (station, None):
                 continue

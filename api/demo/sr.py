@@ -138,6 +138,11 @@ SPIRAL = ("116152004", "SCT", "Spiral Acquisition")
 CONSTANT_ANGLE = _dcm("113805", "Constant Angle Acquisition")
 CT_PARAMETERS = _dcm("113822", "CT Acquisition Parameters")
 SCANNING_LENGTH = _dcm("113825", "Scanning Length")
+TOP_Z_SCANNING = _dcm("113897", "Top Z Location of Scanning Length")
+BOTTOM_Z_SCANNING = _dcm("113898", "Bottom Z Location of Scanning Length")
+FRAME_OF_REFERENCE = _dcm("112227", "Frame of Reference UID")
+SSDE = _dcm("113930", "Size Specific Dose Estimate")
+WATER_EQUIVALENT_DIAMETER = _dcm("113980", "Water Equivalent Diameter")
 SINGLE_COLLIMATION = _dcm("113826", "Nominal Single Collimation Width")
 TOTAL_COLLIMATION = _dcm("113827", "Nominal Total Collimation Width")
 PITCH_FACTOR = _dcm("113828", "Pitch Factor")
@@ -423,6 +428,13 @@ class CtAcquisitionContent:
     ctdivol_mgy: float | None
     head_phantom: bool
     dlp_mgy_cm: float | None
+    #: TID 10014: where the scan lies along the table, in the images' frame of reference
+    scan_z_top_mm: float | None = None
+    scan_z_bottom_mm: float | None = None
+    frame_of_reference_uid: str | None = None
+    #: the scanner's own size figures (from its localizer), when it reports them
+    ssde_mgy: float | None = None
+    water_equivalent_diameter_mm: float | None = None
 
 
 def _ct_acquisition(acq: CtAcquisitionContent) -> Item:
@@ -442,6 +454,13 @@ def _ct_acquisition(acq: CtAcquisitionContent) -> Item:
     ]
     if acq.pitch is not None:
         parameters.append(num(PITCH_FACTOR, acq.pitch, RATIO))
+    if acq.scan_z_top_mm is not None and acq.scan_z_bottom_mm is not None:
+        parameters += [
+            num(TOP_Z_SCANNING, acq.scan_z_top_mm, MM),
+            num(BOTTOM_Z_SCANNING, acq.scan_z_bottom_mm, MM),
+        ]
+        if acq.frame_of_reference_uid:
+            parameters.append(uidref(FRAME_OF_REFERENCE, acq.frame_of_reference_uid))
     parameters += [num(NUMBER_OF_SOURCES, 1, SOURCES), container(CT_SOURCE, source)]
     items = [
         text(ACQUISITION_PROTOCOL, acq.protocol),
@@ -459,6 +478,14 @@ def _ct_acquisition(acq: CtAcquisitionContent) -> Item:
                     num(MEAN_CTDIVOL, acq.ctdivol_mgy, MGY),
                     code(PHANTOM_TYPE, HEAD_PHANTOM if acq.head_phantom else BODY_PHANTOM),
                     num(DLP, acq.dlp_mgy_cm, MGY_CM),
+                    *(
+                        [
+                            num(SSDE, acq.ssde_mgy, MGY),
+                            num(WATER_EQUIVALENT_DIAMETER, acq.water_equivalent_diameter_mm, MM),
+                        ]
+                        if acq.ssde_mgy is not None and acq.water_equivalent_diameter_mm is not None
+                        else []
+                    ),
                 ],
             )
         )

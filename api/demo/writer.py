@@ -8,15 +8,18 @@ images, ``<accession>_SR.dcm`` for dose reports, ``<accession>_CT<n>.dcm`` for C
 from __future__ import annotations
 
 import csv
+import math
 from dataclasses import replace
 from pathlib import Path
 from typing import Any
 
 from beamaudit.api.demo.context import SimulationContext
+from beamaudit.api.demo.ct_fluoro import SIZE_IMAGE_SPACING_MM
 from beamaudit.api.demo.dicom_objects import (
     Dataset,
     ct_dose_report,
     ct_image,
+    ct_localizer,
     fluoro_dose_report,
     part10_bytes,
     radiograph,
@@ -66,6 +69,13 @@ def _view_ids(study: Any, view: Any) -> dict[str, Any]:
         "event_uid": view.event_uid,
         "event_datetime": view.acquired.isoformat(),
     }
+
+
+def _derived_uid(*parts: object) -> str:
+    """A UID made from ``parts`` (the same parts give the same UID)."""
+    from pydicom.uid import PYDICOM_ROOT_UID, generate_uid
+
+    return str(generate_uid(prefix=PYDICOM_ROOT_UID, entropy_srcs=[str(p) for p in parts]))
 
 
 def _blank(value: Any) -> Any:
@@ -153,9 +163,14 @@ class Writer:
             month = f"{s.start:%Y-%m}"
             report_ds = ct_dose_report(room, s, device_uid=device_uid)
             report = self._write(room, report_ds, f"{s.accession}_SR.dcm", month)
+            if s.size_images:
+                uid = _derived_uid(s.acquisitions[0].series_uid, "localizer")
+                self._write(room, ct_localizer(room, s, uid), f"{s.accession}_LOC.dcm", month)
             for i, a in enumerate(s.acquisitions):
                 if a.image_sop_uid is not None:
                     self._write(room, ct_image(room, s, i), f"{s.accession}_CT{i}.dcm", month)
+                    if s.size_images == "series":
+                        self._size_series(room, s, i, month)
                 self._truth(
                     room,
                     report,
@@ -171,6 +186,17 @@ class Writer:
                     dlp_mgy_cm=a.dlp_mgy_cm,
                     planted=";".join(s.planted),
                 )
+
+    def _size_series(self, room: RoomSpec, s: Any, index: int, month: str) -> None:
+        """Axial images every 50 mm of one helical acquisition, its first and last included
+        (the centre image is written apart, with the acquisition's own UID)."""
+        length = s.acquisitions[index].scanning_length_mm
+        steps = max(1, math.ceil(length / SIZE_IMAGE_SPACING_MM))
+        for k in range(steps + 1):
+            z = -min(k * SIZE_IMAGE_SPACING_MM, length)
+            uid = _derived_uid(s.acquisitions[index].series_uid, k)
+            ds = ct_image(room, s, index, sop_uid=uid, z_mm=z, instance_number=k + 2)
+            self._write(room, ds, f"{s.accession}_CT{index}_{k + 2}.dcm", month)
 
     def fluoro(self, room: RoomSpec, device_uid: str) -> None:
         """Every dose report of the fluoroscopy room."""

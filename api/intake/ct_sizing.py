@@ -21,10 +21,20 @@ the pixels at once. Per acquisition it then writes onto the study's CT events:
 
 Which events an acquisition's size goes to: the events whose Irradiation Event UID is the
 acquisition's, the image-header events of the acquisition's own images, and dose-report events
-whose scan range lies in the images' frame of reference and overlaps them. Localizers are chosen
-and counted but give no Dw here: the localizer method needs a calibration to water per scanner,
-kV and view that a physicist provides (``model/ct_localizer.py``); until one is stored, a
-localizer's pixels are not read.
+whose scan range lies in the images' frame of reference and overlaps them.
+
+**Localizers** (IEC 62985:2019's localizer method, ``model/ct_localizer.py``): a chosen localizer
+is read only when its scanner (the study's device) has a stored calibration to water for the
+image's tube voltage and view (``api/store/ct_calibrations.py``); each of its rows then gives a Dw
+at its table position. An acquisition with axial samples at two or more table positions is
+sized from them (``size_method`` ``axial_images``); one with fewer, or an event with only its
+TID 10014 scan range, from the localizer rows within its range (``localizer``).
+
+**Late images.** Every sample (an axial image's Dw, a localizer row's) is kept in
+``ct_size_samples``; sizing a study uses all its samples, earlier ones included, so images
+that arrive after the study was sized (another scan, another association after the listener's
+quiet time) are merged: the acquisition is sized again, and each event whose size changes gets
+an audit entry (``resize``, before and after).
 
 An image that cannot be read or measured becomes an ingest error with the reason; the study's
 events stay as they are stored.
@@ -36,7 +46,7 @@ import logging
 import math
 import threading
 import time
-from collections.abc import Callable
+from collections.abc import Callable, Sequence
 from dataclasses import dataclass, field
 from typing import Any
 
@@ -44,20 +54,25 @@ import numpy as np
 from pydicom import dcmread
 from pydicom.dataset import Dataset
 from pydicom.errors import InvalidDicomError
-from sqlalchemy import select, update
+from sqlalchemy import delete, insert, select, update
 from sqlalchemy.orm import Session, sessionmaker
 
 from beamaudit.api.store import models as m
+from beamaudit.api.store.auth import record_change
+from beamaudit.api.store.base import utcnow
+from beamaudit.api.store.ct_calibrations import find_localizer_calibration
 from beamaudit.ingest.ct_images import (
     AxialImage,
     CtImageHeader,
     CtSizeImage,
+    LocalizerImage,
     ct_image_header,
     ct_size_image_from_frame,
     read_ct_size_image,
     select_size_images,
 )
 from beamaudit.ingest.errors import IngestError
+from beamaudit.model.ct_localizer import localizer_sizes
 from beamaudit.model.ct_size import axial_sizes, scan_range_size
 from beamaudit.model.errors import ModelError
 from beamaudit.model.ssde import size_specific_dose_estimate
@@ -105,6 +120,10 @@ class SizingSummary:
     pixel_data_bytes_read: int = 0
     pixel_data_bytes_all: int = 0
     events_sized: int = 0
+    #: events sized again because images came after their study was sized (audited)
+    events_resized: int = 0
+    #: localizers chosen but not read: no calibration stored for their scanner, kV and view
+    localizers_uncalibrated: int = 0
     seconds: float = 0.0
     errors: list[IngestError] = field(default_factory=list)
 
@@ -116,6 +135,8 @@ class SizingSummary:
             "pixel_data_bytes_read": self.pixel_data_bytes_read,
             "pixel_data_bytes_all": self.pixel_data_bytes_all,
             "events_sized": self.events_sized,
+            "events_resized": self.events_resized,
+            "localizers_uncalibrated": self.localizers_uncalibrated,
             "seconds": round(self.seconds, 3),
             "errors": len(self.errors),
         }
@@ -228,10 +249,15 @@ class StudySizer:
             measured = self._measured.pop(h.sop_instance_uid, None)
             if measured is not None:
                 samples.setdefault(h.acquisition_group, []).append(measured)
+        localizers: list[tuple[CtImageHeader, PixelReader, str]] = []
         for chosen in selection.selected:
-            if chosen.kind != "axial":
-                continue  # localizers wait for a stored calibration (module docstring)
             header, reader, source = by_uid[chosen.sop_instance_uid]
+            if chosen.kind == "localizer":
+                if reader is not None:  # read only if a calibration is stored (_store)
+                    localizers.append((header, reader, source))
+                continue
+            if chosen.kind != "axial":
+                continue
             sample = None
             if reader is not None:
                 try:
@@ -246,8 +272,8 @@ class StudySizer:
             if sample is not None:
                 samples.setdefault(chosen.acquisition_group, []).append(sample)
         sized = 0
-        if samples:
-            sized = self._store(study_instance_uid, entries, samples, errors)
+        if samples or localizers:
+            sized = self._store(study_instance_uid, entries, samples, localizers, errors)
         self.summary.events_sized += sized
         if errors:
             self.record_errors(errors, received_via)
@@ -288,16 +314,20 @@ class StudySizer:
         study_uid: str,
         entries: list[tuple[CtImageHeader, PixelReader | None, str]],
         samples: dict[str, list[ImageSample]],
+        localizers: list[tuple[CtImageHeader, PixelReader, str]],
         errors: list[IngestError],
     ) -> int:
-        groups: dict[str, list[CtImageHeader]] = {}
+        """Keep the new samples, then size every CT event of the study from all its samples,
+        earlier ones included (images that arrive after a study was sized are merged: the
+        acquisition is sized again, and an event whose size changes is audited)."""
+        headers_of: dict[str, list[CtImageHeader]] = {}
         for h, _, _ in entries:
-            groups.setdefault(h.acquisition_group, []).append(h)
-        sized = 0
+            headers_of.setdefault(h.acquisition_group, []).append(h)
         with self._sessions.begin() as session:
             rows = session.execute(
                 select(
                     m.ExposureEventRow.id,
+                    m.ExposureEventRow.device_id,
                     m.ExposureEventRow.irradiation_event_uid,
                     m.ExposureEventRow.ctdivol_mgy,
                     m.ExposureEventRow.ct_phantom_diameter_cm,
@@ -305,6 +335,9 @@ class StudySizer:
                     m.ExposureEventRow.ct_scan_z_top_mm,
                     m.ExposureEventRow.ct_scan_z_bottom_mm,
                     m.ExposureEventRow.frame_of_reference_uid,
+                    m.ExposureEventRow.size_dw_mean_cm,
+                    m.ExposureEventRow.size_method,
+                    m.ExposureEventRow.size_images_used,
                     m.SourceObjectRow.sop_instance_uid,
                 )
                 .join(
@@ -314,35 +347,249 @@ class StudySizer:
                 .where(m.Study.study_instance_uid == study_uid)
                 .where(m.ExposureEventRow.modality == "CT")
             ).all()
-            done: set[int] = set()
-            for group, group_samples in samples.items():
-                headers = groups.get(group, [])
-                own = {h.sop_instance_uid for h in headers}
-                frames = {h.frame_of_reference_uid for h in headers if h.frame_of_reference_uid}
-                z_all = [h.z_mm for h in headers if h.z_mm is not None]
-                z_lo, z_hi = min(z_all), max(z_all)
-                for row in rows:
-                    if row.id in done:
-                        continue
-                    scan_range = _scan_range(row, frames)
-                    if not (
-                        row.irradiation_event_uid == group
-                        or row.sop_instance_uid in own
-                        or (scan_range and scan_range[0] <= z_hi and scan_range[1] >= z_lo)
-                    ):
-                        continue
-                    lo, hi = scan_range or (z_lo, z_hi)
-                    values = _event_size(group_samples, lo, hi, row, errors, study_uid)
-                    if values is None:
-                        continue
-                    session.execute(
-                        update(m.ExposureEventRow)
-                        .where(m.ExposureEventRow.id == row.id)
-                        .values(**values)
+            device_of = {r.sop_instance_uid: r.device_id for r in rows}
+            first_device = next((r.device_id for r in rows if r.device_id is not None), None)
+            new = [
+                _sample_row(study_uid, group, "axial_images", s, headers_of.get(group, []))
+                for group, group_samples in samples.items()
+                for s in group_samples
+            ]
+            measured = {r["sop_instance_uid"] for r in new}
+            new += [  # the images left header-only: where they lie, for a later merge
+                _header_row(study_uid, h)
+                for h, _, _ in entries
+                if h.kind == "axial" and h.z_mm is not None and h.sop_instance_uid not in measured
+            ]
+            for header, reader, source in localizers:
+                device = device_of.get(header.sop_instance_uid) or first_device
+                new += self._localizer_rows(
+                    session, study_uid, device, header, reader, source, errors
+                )
+            _keep_samples(session, new)
+            stored = session.execute(
+                select(*_SAMPLE_COLUMNS).where(m.CtSizeSampleRow.study_instance_uid == study_uid)
+            ).all()
+            return self._size_events(session, study_uid, rows, stored, headers_of, errors)
+
+    def _localizer_rows(
+        self,
+        session: Session,
+        study_uid: str,
+        device_id: int | None,
+        header: CtImageHeader,
+        reader: PixelReader,
+        source: str,
+        errors: list[IngestError],
+    ) -> list[dict[str, Any]]:
+        """One localizer's rows as samples, when its scanner has a stored calibration for the
+        image's tube voltage (its view is read from the image)."""
+        view = _localizer_view(header)
+        calibration = (
+            find_localizer_calibration(
+                session, device_id=device_id, kvp_kv=header.kvp_kv, view=view
+            )
+            if device_id is not None and header.kvp_kv is not None and view is not None
+            else None
+        )
+        if calibration is None:
+            self.summary.localizers_uncalibrated += 1
+            return []  # pixels not read: nothing to calibrate them with
+        try:
+            image = reader()
+        except IngestError as exc:
+            errors.append(_sized_error(exc, source))
+            return []
+        self.summary.images_read += 1
+        self.summary.pixel_data_bytes_read += header.pixel_data_bytes
+        if not isinstance(image, LocalizerImage) or image.row_z_mm is None:
+            return []
+        try:
+            sizes = localizer_sizes(
+                image.values, column_spacing_mm=image.column_spacing_mm, calibration=calibration
+            )
+        except ModelError as exc:
+            errors.append(IngestError("bad_value", f"patient size: localizer: {exc}", source))
+            return []
+        out = []
+        for z, dw, cut in zip(
+            image.row_z_mm, sizes.water_equivalent_diameter_cm, sizes.truncated, strict=True
+        ):
+            if math.isfinite(dw):
+                sample = ImageSample(header.sop_instance_uid, float(z), float(dw), bool(cut), 0)
+                out.append(
+                    _sample_row(study_uid, header.acquisition_group, "localizer", sample, [header])
+                )
+        if out:
+            out[0]["pixel_data_bytes"] = header.pixel_data_bytes
+        return out
+
+    def _size_events(
+        self,
+        session: Session,
+        study_uid: str,
+        rows: Sequence[Any],
+        stored: Sequence[Any],
+        headers_of: dict[str, list[CtImageHeader]],
+        errors: list[IngestError],
+    ) -> int:
+        axial: dict[str, list[Any]] = {}
+        localizer: list[Any] = []
+        for row in stored:
+            if row.method == "localizer":
+                localizer.append(row)
+            else:  # measured axial images and those left header-only
+                axial.setdefault(row.acquisition_group, []).append(row)
+        sized = 0
+        for event in rows:
+            values = None
+            scan_range = None
+            for group, members in axial.items():
+                own = {s.sop_instance_uid for s in members}
+                frames = {s.frame_of_reference_uid for s in members if s.frame_of_reference_uid}
+                z_lo, z_hi = min(s.z_mm for s in members), max(s.z_mm for s in members)
+                group_samples = [s for s in members if s.dw_cm is not None]
+                if not group_samples:
+                    continue
+                scan_range = _scan_range(event, frames)
+                if not (
+                    event.irradiation_event_uid == group
+                    or event.sop_instance_uid in own
+                    or (scan_range and scan_range[0] <= z_hi and scan_range[1] >= z_lo)
+                ):
+                    continue
+                lo, hi = scan_range or (z_lo, z_hi)
+                if len({s.z_mm for s in group_samples}) < 2 and localizer:
+                    values = self._from_localizer(localizer, lo, hi, event, errors, study_uid)
+                if values is None:  # two or more table positions, or no localizer rows there
+                    values = _event_size(
+                        group_samples, lo, hi, event, errors, study_uid, "axial_images"
                     )
-                    done.add(row.id)
-                    sized += 1
+                break
+            if values is None and localizer:  # no axial images: the event's own scan range
+                frames = {s.frame_of_reference_uid for s in localizer if s.frame_of_reference_uid}
+                scan_range = _scan_range(event, frames)
+                if scan_range is not None:
+                    values = self._from_localizer(localizer, *scan_range, event, errors, study_uid)
+            if values is None or not _changed(event, values):
+                continue
+            session.execute(
+                update(m.ExposureEventRow).where(m.ExposureEventRow.id == event.id).values(**values)
+            )
+            if event.size_dw_mean_cm is not None:  # sized before: later images merged in
+                record_change(
+                    session,
+                    actor="ct-sizing",
+                    action="resize",
+                    entity="exposure_event",
+                    entity_id=event.id,
+                    before={
+                        "size_dw_mean_cm": event.size_dw_mean_cm,
+                        "size_method": event.size_method,
+                        "size_images_used": event.size_images_used,
+                    },
+                    after={
+                        k: values[k] for k in ("size_dw_mean_cm", "size_method", "size_images_used")
+                    },
+                )
+                self.summary.events_resized += 1
+            sized += 1
         return sized
+
+    @staticmethod
+    def _from_localizer(
+        localizer: list[Any],
+        lo: float,
+        hi: float,
+        event: Any,
+        errors: list[IngestError],
+        study_uid: str,
+    ) -> dict[str, Any] | None:
+        """Dw over ``lo``..``hi`` from the localizer rows that lie in it (two or more)."""
+        inside = [s for s in localizer if lo - 1e-6 <= s.z_mm <= hi + 1e-6]
+        if len(inside) < 2:
+            return None
+        return _event_size(inside, lo, hi, event, errors, study_uid, "localizer")
+
+
+def _localizer_view(header: CtImageHeader) -> str | None:
+    """``frontal`` or ``lateral`` from the image plane (as ``ingest.ct_images`` turns it)."""
+    if header.image_orientation is None:
+        return None
+    normal = np.abs(np.cross(header.image_orientation[:3], header.image_orientation[3:]))
+    return "frontal" if normal[1] >= normal[0] else "lateral"
+
+
+#: the columns of ``ct_size_samples`` sizing reads
+_SAMPLE_COLUMNS = (
+    m.CtSizeSampleRow.acquisition_group,
+    m.CtSizeSampleRow.sop_instance_uid,
+    m.CtSizeSampleRow.method,
+    m.CtSizeSampleRow.frame_of_reference_uid,
+    m.CtSizeSampleRow.z_mm,
+    m.CtSizeSampleRow.dw_cm,
+    m.CtSizeSampleRow.truncated,
+)
+
+
+def _header_row(study_uid: str, header: CtImageHeader) -> dict[str, Any]:
+    assert header.z_mm is not None
+    return {
+        "study_instance_uid": study_uid,
+        "acquisition_group": header.acquisition_group,
+        "sop_instance_uid": header.sop_instance_uid,
+        "method": "header",
+        "frame_of_reference_uid": header.frame_of_reference_uid,
+        "z_mm": header.z_mm,
+        "dw_cm": None,
+        "truncated": False,
+        "pixel_data_bytes": header.pixel_data_bytes,
+        "measured_at": utcnow(),
+    }
+
+
+def _sample_row(
+    study_uid: str, group: str, method: str, sample: ImageSample, headers: list[CtImageHeader]
+) -> dict[str, Any]:
+    frame = next(
+        (
+            h.frame_of_reference_uid
+            for h in headers
+            if h.sop_instance_uid == sample.sop_instance_uid and h.frame_of_reference_uid
+        ),
+        next((h.frame_of_reference_uid for h in headers if h.frame_of_reference_uid), None),
+    )
+    return {
+        "study_instance_uid": study_uid,
+        "acquisition_group": group,
+        "sop_instance_uid": sample.sop_instance_uid,
+        "method": method,
+        "frame_of_reference_uid": frame,
+        "z_mm": sample.z_mm,
+        "dw_cm": sample.dw_cm,
+        "truncated": sample.truncated,
+        "pixel_data_bytes": sample.pixel_data_bytes,
+        "measured_at": utcnow(),
+    }
+
+
+def _keep_samples(session: Session, new: list[dict[str, Any]]) -> None:
+    """Store new samples; an image measured again replaces its earlier rows."""
+    sops = {r["sop_instance_uid"] for r in new}
+    if not sops:
+        return
+    table = m.CtSizeSampleRow
+    session.execute(delete(table).where(table.sop_instance_uid.in_(sops)))
+    session.execute(insert(table), new)
+
+
+def _changed(event: Any, values: dict[str, Any]) -> bool:
+    before = event.size_dw_mean_cm
+    return (
+        before is None
+        or abs(before - values["size_dw_mean_cm"]) > 1e-9
+        or event.size_method != values["size_method"]
+        or event.size_images_used != values["size_images_used"]
+    )
 
 
 def _scan_range(row: Any, frames: set[str]) -> tuple[float, float] | None:
@@ -354,13 +601,15 @@ def _scan_range(row: Any, frames: set[str]) -> tuple[float, float] | None:
 
 
 def _event_size(
-    samples: list[ImageSample],
+    samples: Sequence[Any],
     z_start: float,
     z_end: float,
     row: Any,
     errors: list[IngestError],
     study_uid: str,
+    method: str = "axial_images",
 ) -> dict[str, Any] | None:
+    """An event's size columns from samples (``z_mm``, ``dw_cm``, ``truncated`` each)."""
     z = np.array([s.z_mm for s in samples])
     dw = np.array([s.dw_cm for s in samples])
     truncated = np.array([s.truncated for s in samples])
@@ -375,7 +624,7 @@ def _event_size(
     values: dict[str, Any] = {
         "size_dw_mean_cm": size.mean_dw_cm,
         "size_dw_centre_cm": size.centre_dw_cm,
-        "size_method": "axial_images",
+        "size_method": method,
         "size_images_used": size.n_samples,
         "size_truncated_share": size.truncated_samples / size.n_samples,
         "size_ssde_mgy": None,
@@ -390,7 +639,12 @@ def _event_size(
                 ctdivol_mgy=row.ctdivol_mgy,
                 diameter_cm=size.mean_dw_cm,
                 phantom_diameter_cm=phantom,
-                diameter_source="Dw from the images, averaged over the scan range",
+                diameter_source=(
+                    "Dw from the localizer rows (a stored calibration to water)"
+                    if method == "localizer"
+                    else "Dw from the images"
+                )
+                + ", averaged over the scan range",
                 body_region=region,
             )
         except ModelError as exc:

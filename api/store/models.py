@@ -145,6 +145,46 @@ class RoomCalibrationRow(Base):
     active: Mapped[bool] = mapped_column(Boolean, default=True)
 
 
+class CtLocalizerCalibrationRow(Base):
+    """A CT scanner's localizer calibration to water (IEC 62985:2019), as a physicist measured it:
+    pixel value -> water-equivalent path length (mm), for one tube voltage and view (and filter,
+    when it matters; empty: any). The newest row of a device, kV, view and filter is used."""
+
+    __tablename__ = "ct_localizer_calibrations"
+    id: Mapped[int] = mapped_column(primary_key=True)
+    device_id: Mapped[int] = mapped_column(ForeignKey("devices.id"), index=True)
+    kvp_kv: Mapped[float] = mapped_column(Float)
+    view: Mapped[str] = mapped_column(String)  # frontal | lateral
+    filter_type: Mapped[str] = mapped_column(String, default="")
+    pixel_values: Mapped[list[float]] = mapped_column(JSONValue)
+    water_thickness_mm: Mapped[list[float]] = mapped_column(JSONValue)
+    source: Mapped[str] = mapped_column(Text)
+    measured_on: Mapped[date] = mapped_column(Date)
+    created_at: Mapped[datetime] = mapped_column(UTCDateTime(), default=utcnow)
+    created_by: Mapped[str] = mapped_column(String, default="")
+
+
+class CtSizeSampleRow(Base):
+    """Where one CT image of a study lies (acquisition, table position) and, when it was
+    measured, the patient's size there (an axial image's Dw, or one localizer row's; ``dw_cm``
+    null for an image left header-only), kept so that images arriving after the study was sized
+    are merged with the earlier ones."""
+
+    __tablename__ = "ct_size_samples"
+    __table_args__ = (UniqueConstraint("sop_instance_uid", "z_mm"),)
+    id: Mapped[int] = mapped_column(primary_key=True)
+    study_instance_uid: Mapped[str] = mapped_column(String, index=True)
+    acquisition_group: Mapped[str] = mapped_column(String)
+    sop_instance_uid: Mapped[str] = mapped_column(String)
+    method: Mapped[str] = mapped_column(String)  # axial_images | localizer | header
+    frame_of_reference_uid: Mapped[str | None] = mapped_column(String)
+    z_mm: Mapped[float] = mapped_column(Float)
+    dw_cm: Mapped[float | None] = mapped_column(Float)
+    truncated: Mapped[bool] = mapped_column(Boolean, default=False)
+    pixel_data_bytes: Mapped[int] = mapped_column(Integer, default=0)
+    measured_at: Mapped[datetime] = mapped_column(UTCDateTime(), default=utcnow)
+
+
 class Study(Base):
     """A study: the examination the reference levels per examination apply to."""
 

@@ -22,6 +22,7 @@ from datetime import date
 from pathlib import Path
 from typing import Any
 
+import numpy as np
 import pandas as pd
 import pytest
 from pydicom import dcmread, dcmwrite
@@ -214,8 +215,9 @@ def test_same_seed_gives_the_same_files_and_a_rerun_replaces_them(
     written |= {f"broken/{n}" for n in ("kvp_180.dcm", "not_dicom.dcm", "truncated_dx.dcm")}
     with (tmp_path / "truth_events.csv").open(encoding="utf-8") as handle:
         written |= {row["path"] for row in csv.DictReader(handle)}
-    # nothing of the first run is left behind (CT images are the only files outside the truth)
-    leftovers = {p for p in second if p not in written and "_CT" not in p}
+    # nothing of the first run is left behind (CT images and localizers are the only files
+    # outside the truth)
+    leftovers = {p for p in second if p not in written and "_CT" not in p and "_LOC" not in p}
     assert not leftovers
 
 
@@ -473,6 +475,7 @@ def test_planted_findings_are_listed_with_review_kinds(demo: tuple[Path, Scenari
     assert kinds == {
         "dap_ratio_out_of_tolerance": 1,
         "changepoint": 1,  # the meter fault's ratio step is optional (a 2-month baseline)
+        "low_dose_review": 1,  # RAD 2's abdomen AP before its doubling
         "exam_above_investigation_level": 5,
         "deviation_index_out_of_range": 2,
         "no_dose_data": 1,
@@ -503,6 +506,10 @@ def test_planted_findings_are_listed_with_review_kinds(demo: tuple[Path, Scenari
     assert (change.room, change.exam_type, change.month) == ("RAD 2", "abdomen_ap", "2026-02")
     assert 1.7 <= change.expected["standard_median_after_over_before"] <= 2.3
     assert change.expected["standard_median_after_to_level"] < 0.8  # below: no group flag
+    (low,) = manifest.findings("low_dose_review")
+    assert (low.room, low.exam_type, low.expected["months"]) == ("RAD 2", "abdomen_ap", ["2026-01"])
+    # before the doubling, far below half the level (the review's low_dose_fraction, 0.5)
+    assert all(r < 0.4 for r in low.expected["standard_median_to_level"].values())
     for outlier in manifest.findings("exam_above_investigation_level"):
         ratio = outlier.expected["values"][outlier.quantity]["ratio_to_strictest"]
         assert 5.0 <= ratio <= 10.0  # the brief: 5-10 times the reference level
@@ -515,18 +522,40 @@ def test_planted_findings_are_listed_with_review_kinds(demo: tuple[Path, Scenari
     assert len(no_dose.study_instance_uids) == 6
 
 
+#: how far every unplanted number keeps from a review threshold, the same factor on both sides:
+#: a judged group's median at least this factor above the low-dose bound (``low_dose_fraction``
+#: x its strictest level) and below each level; a healthy single exam this factor below the
+#: investigation level (``investigation_multiple`` x its strictest level)
+THRESHOLD_MARGIN = 1.15
+
+
 @pytest.mark.slow
 def test_nothing_unplanted_comes_near_a_threshold(demo: tuple[Path, ScenarioManifest]) -> None:
     _, manifest = demo
     design = manifest.review_parameters
     quiet = {q["kind"]: q for q in manifest.not_planted}
+    (low,) = manifest.findings("low_dose_review")
+    planted_low = {(low.room_key, low.exam_type, m) for m in low.expected["months"]}
+    low_bound = THRESHOLD_MARGIN * design["low_dose_fraction"]
+    judged = 0
     for group in manifest.group_medians:
-        if group["n_standard"] >= design["minimum_samples"].get("radiography", 20):
-            assert all(r < 0.8 for r in group["median_standard_to_level"].values()), group
+        ratios = group["median_standard_to_level"]
+        if group["n_standard"] < design["minimum_samples"].get("radiography", 20) or not ratios:
+            continue  # no verdict on fewer than 20 patients (ICRP 135)
+        judged += 1
+        assert all(r * THRESHOLD_MARGIN < 1.0 for r in ratios.values()), group
+        if (group["room_key"], group["exam_type"], group["month"]) in planted_low:
+            assert max(ratios.values()) * THRESHOLD_MARGIN < design["low_dose_fraction"], group
+        else:  # the strictest (lowest) level decides the low-dose review
+            assert max(ratios.values()) > low_bound, group
+    assert judged >= 20
+    lowest = quiet["low_dose_review"]["lowest_standard_median_to_strictest"]
+    assert lowest["ratio_to_strictest"] > low_bound
     highest = quiet["exam_above_investigation_level"]["highest_healthy_to_strictest"]
     assert all(
-        v["ratio_to_strictest"] < 0.8 * design["investigation_multiple"] for v in highest.values()
-    )
+        v["ratio_to_strictest"] * THRESHOLD_MARGIN < design["investigation_multiple"]
+        for v in highest.values()
+    ), highest
     assert quiet["deviation_index_out_of_range"]["largest_absolute"] < 2.0
     assert quiet["deviation_index_out_of_range"]["within_plus_minus_1"] > 0.95
     for ratio in quiet["dap_ratio_out_of_tolerance"]["reported_to_true_median"].values():
@@ -535,3 +564,41 @@ def test_nothing_unplanted_comes_near_a_threshold(demo: tuple[Path, ScenarioMani
     # NCRP Report 168 SRDLs (PUBLISHED-VALUES h): 500 Gy.cm2, 5000 mGy, 60 min
     assert largest["dap_gy_cm2"] < 500 and largest["reference_point_air_kerma_mgy"] < 5000
     assert largest["fluoro_time_s"] < 3600
+
+
+def test_the_ct_scanners_images_agree_on_the_patients_size(
+    demo: tuple[Path, ScenarioManifest],
+) -> None:
+    # the axial images (ellipses drawn with partial volume, on a table) and the localizer (the
+    # chords of the same ellipses through the forward model its calibration inverts) give the
+    # same water-equivalent diameter at the same table position (AAPM Report 220, eq. 2-3;
+    # IEC 62985's localizer method), within the sampling of the 96 x 96 images
+    from beamaudit.ingest.ct_images import AxialImage, LocalizerImage, read_ct_size_image
+    from beamaudit.model.ct_localizer import LocalizerCalibration, localizer_sizes
+    from beamaudit.model.ct_size import axial_sizes
+
+    root, manifest = demo
+    ct = manifest.room("ct1")
+    assert ct.ct_localizer_calibration is not None
+    cal = ct.ct_localizer_calibration
+    calibration = LocalizerCalibration(
+        tuple(cal["pixel_values"]), tuple(cal["water_thickness_mm"]), cal["source"]
+    )
+    localizers = sorted((root / ct.path).rglob("*_LOC.dcm"))
+    centres = {p.name.split("_")[0]: p for p in (root / ct.path).rglob("*_CT1.dcm")}
+    series = {p.name.split("_")[0] for p in (root / ct.path).rglob("*_CT1_2.dcm")}
+    assert len(series) >= 10 and len(localizers) >= 2 * len(series) * 0.7
+    checked = 0
+    for path in localizers[:12]:
+        localizer = read_ct_size_image(str(path))
+        centre = read_ct_size_image(str(centres[path.name.split("_")[0]]))
+        assert isinstance(localizer, LocalizerImage) and isinstance(centre, AxialImage)
+        assert localizer.view == "frontal" and localizer.row_z_mm is not None
+        rows = localizer_sizes(
+            localizer.values, column_spacing_mm=localizer.column_spacing_mm, calibration=calibration
+        ).water_equivalent_diameter_cm
+        row = int(np.argmin(np.abs(localizer.row_z_mm - centre.z_mm)))
+        axial = axial_sizes(centre.ct_numbers_hu, pixel_spacing_mm=centre.pixel_spacing_mm)
+        assert float(axial.water_equivalent_diameter_cm[0]) == pytest.approx(rows[row], rel=0.02)
+        checked += 1
+    assert checked >= 5

@@ -151,9 +151,9 @@ def test_newest_version_in_effect_is_chosen() -> None:
     sets = load_demo_local_levels()
     assert applicable_levels(sets, "chest_pa", "dap_gy_cm2", date(2023, 12, 31)) == []
     (v2024,) = applicable_levels(sets, "chest_pa", "dap_gy_cm2", date(2024, 6, 1))
-    assert (v2024.version, v2024.value) == ("2024", 0.12)
+    assert (v2024.version, v2024.value) == ("2024", 0.09)
     (v2025,) = applicable_levels(sets, "chest_pa", "dap_gy_cm2", date(2025, 1, 1))
-    assert (v2025.version, v2025.value) == ("2025", 0.10)
+    assert (v2025.version, v2025.value) == ("2025", 0.075)
 
 
 def test_a_newer_version_supersedes_without_falling_back() -> None:

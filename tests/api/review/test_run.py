@@ -3,6 +3,7 @@ effect, scope, every flag through :func:`review`, input checks and reproducibili
 
 from __future__ import annotations
 
+import io
 import json
 import math
 from datetime import date
@@ -18,13 +19,53 @@ from beamaudit.api.review import (
     ReviewInputError,
     ReviewParameters,
     load_default_rules,
-    load_demo_local_levels,
     load_national_levels,
+    read_levels_csv,
     review,
 )
 from beamaudit.api.review.run import GROUP_COLUMNS, MONTHLY_COLUMNS
 
-LEVELS = load_national_levels() + load_demo_local_levels()
+_LOCAL_NAME = "Hollowbrook General Hospital local DRLs (INVENTED)"
+#: the invented local levels the worked examples below were designed against, (exam type,
+#: quantity, unit, version 2024, version 2025); the demo's own set has since been tuned to its
+#: scenario, so these tests keep theirs
+_WORKED_LOCAL = (
+    ("chest_pa", "dap_gy_cm2", "Gy.cm2", 0.12, 0.10),
+    ("chest_pa", "esak_mgy", "mGy", 0.15, 0.13),
+    ("chest_lat", "dap_gy_cm2", "Gy.cm2", 0.35, 0.35),
+    ("abdomen_ap", "dap_gy_cm2", "Gy.cm2", 2.5, 2.2),
+    ("pelvis_ap", "dap_gy_cm2", "Gy.cm2", 2.2, 2.2),
+    ("lumbar_spine_ap", "dap_gy_cm2", "Gy.cm2", 1.6, 1.6),
+    ("lumbar_spine_lat", "dap_gy_cm2", "Gy.cm2", 2.6, 2.6),
+    ("knee_ap", "dap_gy_cm2", "Gy.cm2", 0.15, None),
+    ("mammo_cc", "mgd_mgy", "mGy", 2.0, 2.0),
+    ("ct_head", "ctdivol_mgy", "mGy", 55, 50),
+    ("ct_head", "dlp_mgy_cm", "mGy.cm", 900, 820),
+    ("ct_chest", "ctdivol_mgy", "mGy", 10, 10),
+    ("ct_chest", "dlp_mgy_cm", "mGy.cm", 350, 350),
+    ("ct_abdomen_pelvis", "ctdivol_mgy", "mGy", 12, 12),
+    ("ct_abdomen_pelvis", "dlp_mgy_cm", "mGy.cm", 600, 600),
+    ("fluoro_barium_swallow", "dap_gy_cm2", "Gy.cm2", 9.0, 9.0),
+    ("fluoro_barium_enema", "dap_gy_cm2", "Gy.cm2", 22.0, 22.0),
+)
+
+
+def _worked_local_levels() -> list[Any]:
+    lines = [
+        "set_name,kind,version,effective_from,set_source,exam_type,quantity,value,unit,source,"
+        "note,patient_group"
+    ]
+    for exam, quantity, unit, *values in _WORKED_LOCAL:
+        for version, value in zip(("2024", "2025"), values, strict=True):
+            if value is not None:
+                lines.append(
+                    f"{_LOCAL_NAME},local,{version},{version}-01-01,INVENTED for these tests,"
+                    f"{exam},{quantity},{value},{unit},,invented,"
+                )
+    return read_levels_csv(io.StringIO("\n".join(lines)))
+
+
+LEVELS = load_national_levels() + _worked_local_levels()
 MARCH = ReviewParameters.for_month(2025, 3)
 
 
