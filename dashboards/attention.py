@@ -160,11 +160,21 @@ def _factor(after: float | None, before: float | None) -> float:
     return ratio if ratio >= 1 else 1 / ratio
 
 
+def _group_label(row: Row) -> str:
+    """The patient group in words, or '' for the main (adult) group."""
+    label = row.get("patient_group_label")
+    return str(label) if isinstance(label, str) and label.strip() else ""
+
+
 def _place(row: Row, names: Mapping[str, str]) -> str:
     exam, room = row.get("exam_type"), row.get("room")
-    if exam and room:
-        return f"{exam_name(exam, names)} in {room}"
-    return exam_name(exam, names) if exam else (room or "The site")
+    group = _group_label(row)
+    what = exam_name(exam, names) if exam else ""
+    if what and group:
+        what = f"{what}, {group},"
+    if what and room:
+        return f"{what} in {room}"
+    return what.rstrip(",") if what else (room or "The site")
 
 
 def _item(row: Row, headline: str, href: str, size: float, *, count: int = 1,
@@ -180,6 +190,7 @@ def _item(row: Row, headline: str, href: str, size: float, *, count: int = 1,
         "room": row.get("room"),
         "exam_type": row.get("exam_type"),
         "detail": row.get("reason"),
+        "patient_group_label": _group_label(row) or None,
     }
 
 
@@ -213,7 +224,7 @@ def _groups(rows: list[Row], keys: tuple[str, ...]) -> list[list[Row]]:
 
 def _group_above_level(rows: list[Row], names: Mapping[str, str], period: str | None) -> list[Item]:
     items = []
-    for group in _groups(rows, ("room", "exam_type", "quantity")):
+    for group in _groups(rows, ("room", "exam_type", "patient_group", "quantity")):
         top = max(group, key=lambda r: _number(_numbers(r), "ratio_to_level") or 0.0)
         n = _numbers(top)
         ratio, median, level = (
@@ -489,6 +500,7 @@ def _rejected_files(errors: pd.DataFrame) -> list[Item]:
             "room": None,
             "exam_type": None,
             "detail": None,
+            "patient_group_label": None,
         }
     ]
 

@@ -375,7 +375,8 @@ def render_exam(
     detail = parse_exam(exam)
     skin = _exam_page.skin_view(skin_dose) if skin_dose is not None else None
     names = ExamTypes(exam_types).names
-    exposures = _exam_page.exposure_views(detail)
+    spectra = _exam_page.spectra_view(detail)
+    exposures = _exam_page.exposure_views(detail, spectra)
     title = exam_name(detail.exam_type, names)
     return _web.render_page(
         "exam.html",
@@ -383,6 +384,7 @@ def render_exam(
         page_title=f"{title}, {detail.room}",
         active="",
         has_figures=any(e["spectrum"] is not None for e in exposures)
+        or spectra is not None
         or (skin is not None and skin["figure"] is not None),
         skin=skin,
         exam=detail,
@@ -392,6 +394,7 @@ def render_exam(
         weight=_web.fmt(detail.patient_weight_kg) if detail.patient_weight_kg is not None else "–",
         standard=_exam_page.standard_words(detail.standard_patient),
         exposures=exposures,
+        spectra=spectra,
         flag_rows=_rows.flag_rows(detail.flags, names),
         back_href=back_href or room_href(detail.room),
         room_href=room_href(detail.room),

@@ -227,6 +227,10 @@ FLAGS = TableSpec(
         Column("run_id", "str", "", "the review run that raised the flag", **_TEXT),
         Column("quantity", "str", "", "the quantity it concerns (unit suffix)", **_TEXT),
         Column("numbers", "mapping", "", "the figures its reason quotes, by name", **_TEXT),
+        Column("patient_group", "str", "", "the group's patient group code, if any", **_TEXT),
+        Column(
+            "patient_group_label", "str", "", "the patient group in words, if any", **_TEXT
+        ),
     ),
     rules=(
         Rule(
@@ -376,6 +380,9 @@ ATTENTION = TableSpec(
         Column("room", "str", "", "room name", **_TEXT),
         Column("exam_type", "str", "", "examination type code", **_TEXT),
         Column("detail", "str", "", "a second line: the review's reason in full", **_TEXT),
+        Column(
+            "patient_group_label", "str", "", "the patient group in words, if any", **_TEXT
+        ),
     ),
 )  # fmt: skip
 

@@ -118,7 +118,8 @@ def _pages() -> dict[str, str]:
         "/levels": render_levels(
             LEVEL_PROPOSALS, [], run_label="review run 41 of 2026-03", run_id=41,
             can_adopt=True, adopt_path="/api/v1/local-level-proposals/adopt",
-            local_set_names=["Fernmoor local DRLs (invented)"], context=context,
+            local_set_names=["Fernmoor local DRLs (invented)"], exam_types=EXAM_TYPES,
+            context=context,
         ),
         "/login": render_login(error="That token was not accepted.", context=context),
         "/reports/2026-03": render_committee_report(
