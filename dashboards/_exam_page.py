@@ -183,6 +183,11 @@ def spectra_view(detail: ExamDetail) -> dict[str, Any] | None:
     chosen = sorted(by_beam, key=lambda k: (-len(by_beam[k]), by_beam[k][0]))[:SPECTRA_MAX_BEAMS]
     chosen.sort(key=lambda k: by_beam[k][0])
     beams = []
+    kvps = [
+        float(v)
+        for e in ordered
+        if is_number(v := dict(e.technique).get("kvp_kv")) and isinstance(v, int | float)
+    ]
     for key in chosen:
         spec = first[key].spectrum
         assert spec is not None
@@ -196,8 +201,12 @@ def spectra_view(detail: ExamDetail) -> dict[str, Any] | None:
         label = ", ".join(p for p in parts if p) + f" ({noun} {_numbers_text(numbers)})"
         beams.append((label, spec))
     figure = _web.figure_block(
-        figures.build_spectra(beams, title="Reconstructed spectra of the study's beams"),
-        "spectra",
+        figures.build_spectra(
+            beams,
+            kvp_kv=max(kvps) if kvps else None,
+            title="Reconstructed spectra of the study's beams",
+        ),
+        "spectra-chart",
     )
     return {
         "figure": figure,

@@ -93,7 +93,10 @@ def build_spectrum(
 
 
 def build_spectra(
-    beams: Sequence[tuple[str, Spectrum]], *, title: str = "Reconstructed spectra"
+    beams: Sequence[tuple[str, Spectrum]],
+    *,
+    kvp_kv: float | None = None,
+    title: str = "Reconstructed spectra",
 ) -> go.Figure:
     """The spectra of several beams of one study on one chart (a line each, no fill).
 
@@ -104,6 +107,8 @@ def build_spectra(
     ----------
     beams : sequence of (label, Spectrum)
         At most six, each labelled for the legend (kV, HVL and which exposures).
+    kvp_kv : float, optional
+        The highest tube voltage among them: the x axis ends a little past it.
     title : str
 
     Returns
@@ -111,11 +116,10 @@ def build_spectra(
     plotly.graph_objects.Figure
     """
     fig = go.Figure()
-    style(fig, title=title, x_title="Photon energy (keV)", y_title="Photon fluence<br>(per mAs at 1 m)")
-    top = 0.0
+    unit = beams[0][1].fluence_unit if beams else ""
+    style(fig, title=title, x_title="Photon energy (keV)", y_title=f"Photon fluence<br>({unit})")
     for (label, spec), colour in zip(beams, _BEAM_COLOURS, strict=False):
         energies = np.asarray(spec.energies_kev, dtype=float)
-        top = max(top, float(energies[-1]) if energies.size else 0.0)
         fig.add_trace(
             go.Scatter(
                 x=energies,
@@ -127,7 +131,7 @@ def build_spectra(
             )
         )
     fig.update_yaxes(rangemode="tozero", exponentformat="power")
-    if top:
-        fig.update_xaxes(range=[0, top * 1.05])
+    if kvp_kv:
+        fig.update_xaxes(range=[0, float(kvp_kv) * 1.08])
     fig.update_layout(legend={"orientation": "h", "yanchor": "top", "y": -0.22, "x": 0})
     return fig

@@ -36,7 +36,7 @@ import pandas as pd
 from beamaudit.dashboards import _web
 from beamaudit.dashboards.rounding import format_level, format_number, format_quantity, is_number
 from beamaudit.dashboards.tables import ATTENTION, EXAM_TYPES, FLAGS, INGEST_ERRORS, TableLike
-from beamaudit.dashboards.wording import exam_name, quantity_short, words_for
+from beamaudit.dashboards.wording import exam_name, quantity_short, short_group_label, words_for
 
 __all__ = ["KIND_TIERS", "SEVERITY_RANK", "attention_from_flags", "exam_names", "rank_attention"]
 
@@ -162,8 +162,7 @@ def _factor(after: float | None, before: float | None) -> float:
 
 def _group_label(row: Row) -> str:
     """The patient group in words, or '' for the main (adult) group."""
-    label = row.get("patient_group_label")
-    return str(label) if isinstance(label, str) and label.strip() else ""
+    return short_group_label(row.get("patient_group_label"))
 
 
 def _place(row: Row, names: Mapping[str, str]) -> str:

@@ -214,9 +214,7 @@ def _non_negative_numbers(values: Any, path: str) -> tuple[float, ...]:
         array = np.asarray(items, dtype=float)
         if array.size == 0 or (np.isfinite(array).all() and (array >= 0).all()):
             return tuple(array.tolist())
-    return tuple(
-        _number(v, f"{path}[{i}]", optional=False, minimum=0) for i, v in enumerate(items)
-    )
+    return tuple(_number(v, f"{path}[{i}]", optional=False, minimum=0) for i, v in enumerate(items))
 
 
 def parse_spectrum(raw: Mapping[str, Any], path: str = "spectrum") -> Spectrum:

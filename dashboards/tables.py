@@ -186,6 +186,13 @@ GROUPS = TableSpec(
         Column("ratio_to_level", "float", "1", "median / level", nullable=True, minimum=0),
         Column("status", "str", "", "review status", choices=_STATUSES),
         Column("status_reason", "str", "", "the review's reason", required=False, nullable=True),
+        Column(
+            "patient_group_label",
+            "str",
+            "",
+            "the group's patients in words (none: adults)",
+            **_TEXT,
+        ),
     ),
     rules=(
         _QUANTITY_HAS_UNIT,
@@ -228,9 +235,7 @@ FLAGS = TableSpec(
         Column("quantity", "str", "", "the quantity it concerns (unit suffix)", **_TEXT),
         Column("numbers", "mapping", "", "the figures its reason quotes, by name", **_TEXT),
         Column("patient_group", "str", "", "the group's patient group code, if any", **_TEXT),
-        Column(
-            "patient_group_label", "str", "", "the patient group in words, if any", **_TEXT
-        ),
+        Column("patient_group_label", "str", "", "the patient group in words, if any", **_TEXT),
     ),
     rules=(
         Rule(
@@ -315,6 +320,8 @@ LEVELS = TableSpec(
         Column("status", "str", "", "review status", required=False, nullable=True,
                choices=_STATUSES),
         Column("ratio_to_level", "float", "1", "median / level", **_OPTIONAL),
+        Column("patient_group_label", "str", "", "the level's patients in words (none: adults)",
+               **_TEXT),
     ),
     rules=(_QUANTITY_HAS_UNIT,),
 )  # fmt: skip

@@ -33,6 +33,7 @@ __all__ = [
     "quantity_label",
     "quantity_short",
     "quantity_unit",
+    "short_group_label",
     "split_unit",
     "user_text",
     "words_for",
@@ -249,6 +250,14 @@ def patient_group_words(code: str | None) -> str:
     if low_unit and unit and low_unit != unit:
         return f"children {low} {_BAND_UNITS[low_unit]}–< {high} {words}"
     return f"children {low}–< {high} {words}".rstrip()
+
+
+def short_group_label(label: object) -> str:
+    """A patient group's label for a chart or a headline: without its parenthesis, '' for none
+    (``compressed breast 50-60 mm (the band ...)`` -> ``compressed breast 50-60 mm``)."""
+    if not isinstance(label, str) or not label.strip():
+        return ""
+    return label.split(" (")[0].strip()
 
 
 #: Provenance phrases written for developers and the words a reader of a page gets instead

@@ -174,7 +174,7 @@ def beam_quality_uncertainty(
     ModelError
         A negative or non-finite uncertainty, or the calibration of another tube.
     """
-    cal, filters, assumed, _, fitted_u = _setup(spec, calibration, filtration_uncertainty_mm_al)
+    _, filters, assumed, _, fitted_u = _setup(spec, calibration, filtration_uncertainty_mm_al)
     kv_how = "as given"
     if kv_uncertainty_kv is None:
         kv_uncertainty_kv = kv_standard_uncertainty_kv(spec.kv)

@@ -103,8 +103,9 @@ def groups_table(run: m.ReviewRun) -> pd.DataFrame:
             continue
         row = {k: g.get(k) for k in GROUP_KEYS}
         row["status_reason"] = STATUS_REASON.get(g.get("status"), "")
+        row["patient_group_label"] = _group_label(g.get("patient_group"))
         rows.append(row)
-    frame = pd.DataFrame(rows, columns=[*GROUP_KEYS, "status_reason"])
+    frame = pd.DataFrame(rows, columns=[*GROUP_KEYS, "status_reason", "patient_group_label"])
     return frame
 
 
