@@ -201,7 +201,7 @@ def flag_rows(
                 "room_href": _web.room_href(r["room"]) if r["room"] else "",
                 "exam_type": r["exam_type"] or "",
                 "exam_name": exam_name(r["exam_type"], names, empty=""),
-                "group_label": _text(r.get("patient_group_label")),
+                "group_label": short_group_label(r.get("patient_group_label")),
                 "period": r["period"],
                 "status": r["status"],
                 "status_words": FLAG_STATUS_WORDS[r["status"]],

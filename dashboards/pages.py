@@ -321,7 +321,8 @@ def render_room(
     flag_rows = _rows.flag_rows(
         FLAGS.validate(flags if flags is not None else []), names, room=room
     )
-    changes = table[table["change_point"]].sort_values("month")
+    # a mask, even on a room with no history (an empty object column would select columns)
+    changes = table.loc[table["change_point"].astype(bool)].sort_values("month")
     return _web.render_page(
         "room.html",
         context=context,
@@ -340,6 +341,10 @@ def render_room(
         flag_rows=[r for r in flag_rows if r["status"] != "closed"],
         flags_href=flags_href(room=room),
     )
+
+
+#: The exam type of a drill-down record whose events map to no examination type.
+UNMAPPED_EXAM = "(unmapped)"
 
 
 def render_exam(
@@ -378,6 +383,9 @@ def render_exam(
     spectra = _exam_page.spectra_view(detail)
     exposures = _exam_page.exposure_views(detail, spectra)
     title = exam_name(detail.exam_type, names)
+    if detail.exam_type == UNMAPPED_EXAM:  # no examination type: its description says what it was
+        described = dict(detail.info).get("description") or ""
+        title = f"{described} (no examination type)" if described else "Examination of no type"
     return _web.render_page(
         "exam.html",
         context=context,

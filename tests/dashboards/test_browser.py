@@ -660,12 +660,31 @@ def _demo_paths(demo: _Demo) -> dict[str, str]:
         "distributions": "/distributions",
         "distributions-enema": "/distributions?exam_type=fluoro_barium_enema",
         "room": "/rooms/HGH-RAD1",
+        "room-angio": "/rooms/HGH-IR1",
         "exam": exam.group(1),
+        "exam-enema": _study_of(demo, "exam_above_investigation_level", "HGH-FL1"),
+        "exam-angio": _study_of(demo, "srdl_exceeded", "HGH-IR1"),
         "flags": "/flags",
+        "levels": "/levels",
         "unmapped": "/unmapped",
         "ingest-errors": "/ingest-errors",
         "report": "/reports/" + re.search(r"Review of (\d{4}-\d{2})", _overview(demo)).group(1),
     }
+
+
+def _study_of(demo: _Demo, kind: str, room: str) -> str:
+    """The exam page of the first study a finding of ``kind`` in ``room`` names."""
+    import re
+    import urllib.request
+
+    request = urllib.request.Request(
+        f"{demo.base_url}/flags?kind={kind}&room={room}",
+        headers={"Authorization": f"Bearer {demo.physicist}"},
+    )
+    with urllib.request.urlopen(request, timeout=60) as answer:
+        found = re.search(r'href="(/exams/[^"]+)"', answer.read().decode())
+    assert found is not None, (kind, room)
+    return found.group(1)
 
 
 def _overview(demo: _Demo) -> str:
@@ -762,5 +781,67 @@ def test_a_physicist_triages_a_demo_finding_through_the_api(signed_in: Any, demo
             assert "AEC recalibrated by the vendor" in again.inner_text("main")
         finally:
             again.close()
+    finally:
+        page.close()
+
+
+def _main_text(signed_in: Any, demo: _Demo, path: str) -> str:
+    page = _visit(signed_in, demo.base_url + path, timeout_ms=SERVICE_TIMEOUT_MS).page
+    try:
+        return str(page.inner_text("main"))
+    finally:
+        page.close()
+
+
+def test_demo_attention_names_the_paediatric_group(signed_in: Any, demo: _Demo) -> None:
+    # the demo's children of 15-30 kg on RAD 2 (ICRP 135 weight band): their line says so, on
+    # the overview's first screen and on the committee report
+    page = _visit(signed_in, demo.base_url + "/", timeout_ms=SERVICE_TIMEOUT_MS).page
+    try:
+        line = page.locator("ol.attention-list a.headline", has_text="Chest PA, children 15")
+        assert line.count() >= 1
+        box = line.first.bounding_box()
+        assert box is not None and box["y"] + box["height"] <= 900, box
+        assert "in HGH-RAD2" in line.first.inner_text()
+    finally:
+        page.close()
+    flags = _main_text(signed_in, demo, "/flags?kind=group_above_level&room=HGH-RAD2")
+    assert "children 15" in flags
+
+
+def test_demo_levels_page_shows_names_not_codes(signed_in: Any, demo: _Demo) -> None:
+    import re
+
+    text = _main_text(signed_in, demo, "/levels")
+    assert "Chest PA" in text and "DAP (Gy·cm²)" in text and "children 15" in text
+    codes = set(re.findall(r"\b[a-z0-9]+_[a-z0-9_]+\b", text))
+    assert not codes, codes  # chest_pa, dap_gy_cm2, weight_15_30kg ... never reach a reader
+
+
+def test_demo_exam_page_gives_the_hvl_a_real_uncertainty(signed_in: Any, demo: _Demo) -> None:
+    # the HVL's uncertainty propagated from kV, filtration and attenuation data (k = 2), with
+    # the method named in the trail; no figure of a radiograph says "not estimated"
+    text = _main_text(signed_in, demo, _demo_paths(demo)["exam"])
+    hvl = next(line for line in text.splitlines() if line.startswith("First half-value layer"))
+    assert "±" in hvl and "k = 2" in hvl, hvl
+    assert "GUM (JCGM 100:2008)" in text and "IEC 60601-2-54" in text
+    assert "not estimated" not in text
+
+
+def test_demo_fluoroscopy_exam_page_draws_one_chart_of_its_beams(
+    signed_in: Any, demo: _Demo
+) -> None:
+    # a study of tens of exposures: one chart of its distinct beams, each exposure naming its
+    # beam, instead of a chart per exposure (the page took over 15 s under load)
+    path = _demo_paths(demo)["exam-enema"]
+    page = _visit(signed_in, demo.base_url + path, timeout_ms=SERVICE_TIMEOUT_MS).page
+    try:
+        _wait_for_figures(page, path)
+        assert page.locator("#spectra div.figure").count() == 1
+        assert page.locator("section.exposure div.figure").count() == 0
+        exposures = page.locator("section.exposure").count()
+        assert exposures > 3
+        assert page.get_by_text("Its spectrum is beam").count() == exposures
+        assert "Reported by the modality" in page.inner_text("main")
     finally:
         page.close()
