@@ -130,11 +130,15 @@ def build_overview_heatmap(
     if table.empty:
         style(fig, title=title, x_title="", y_title="", legend=False)
         return no_data(fig, "No review groups with a reference level in this period")
+    # a patient group is named where an examination's quantity has groups of more than one
+    # (children of a band beside the adults), not where all its groups share one (mammography's
+    # thickness band): the labels stay short enough for the cells
+    groups = [short_group_label(g) for g in table["patient_group_label"]]
+    table["_group"] = groups
+    kinds = table.groupby(["exam_type", "quantity"])["_group"].transform("nunique")
     table["column"] = [
-        _label(e, q, exam_names, g)
-        for e, q, g in zip(
-            table["exam_type"], table["quantity"], table["patient_group_label"], strict=True
-        )
+        _label(e, q, exam_names, g if n > 1 else None)
+        for e, q, g, n in zip(table["exam_type"], table["quantity"], groups, kinds, strict=True)
     ]
     rooms = sorted(table["room"].unique())
     columns = sorted(table["column"].unique(), key=str.lower)
