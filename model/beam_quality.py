@@ -184,9 +184,9 @@ def beam_quality_uncertainty(
     elif fitted_u is not None:
         filtration_uncertainty_mm_al, filt_how = fitted_u, "fitted by the room calibration"
     else:
-        a = FILTRATION_ASSUMED_TOLERANCE_MM_AL if assumed else FILTRATION_STATED_TOLERANCE_MM_AL
-        filtration_uncertainty_mm_al = a / _SQRT3
-        filt_how = f"{'assumed' if assumed else 'stated'} filtration ± {a:g} mm Al, rectangular"
+        half = FILTRATION_ASSUMED_TOLERANCE_MM_AL if assumed else FILTRATION_STATED_TOLERANCE_MM_AL
+        filtration_uncertainty_mm_al = half / _SQRT3
+        filt_how = f"{'assumed' if assumed else 'stated'} filtration ± {half:g} mm Al, rectangular"
     for name, u in (
         ("tube voltage", kv_uncertainty_kv),
         ("filtration", filtration_uncertainty_mm_al),
@@ -218,7 +218,7 @@ def beam_quality_uncertainty(
             "effective_energy_kev": raw.effective_energy_kev,
         }
 
-    a = get_anode(spec.anode)
+    anode = get_anode(spec.anode)
     total_al = sum(f.thickness_mm for f in filters if f.material == "Al")
     nominal_inputs = {"kv": spec.kv, "filtration_mm_al": 0.0, "attenuation_rel": 0.0}
     nominal = figures(nominal_inputs)
@@ -231,7 +231,7 @@ def beam_quality_uncertainty(
         figures,
         nominal_inputs,
         inputs,
-        bounds={"kv": (a.kv_min, a.kv_max), "filtration_mm_al": (-total_al, math.inf)},
+        bounds={"kv": (anode.kv_min, anode.kv_max), "filtration_mm_al": (-total_al, math.inf)},
         nominal_outputs=nominal,
     )
     method = (
