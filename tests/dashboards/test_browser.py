@@ -845,3 +845,29 @@ def test_demo_fluoroscopy_exam_page_draws_one_chart_of_its_beams(
         assert "Reported by the modality" in page.inner_text("main")
     finally:
         page.close()
+
+
+def test_demo_pages_read_in_words_a_committee_uses(signed_in: Any, demo: _Demo) -> None:
+    # issue #23, page by page: no field names or 16-digit floats, no unit "1", no "Fsd", no
+    # "Beam model = –", one count of exposures, no developer notes, flag kinds in words, the
+    # report's navigation and one word per state
+    import re
+
+    paths = _demo_paths(demo)
+    exam = _main_text(signed_in, demo, paths["exam"])
+    assert not re.search(r"\b[a-z0-9]+_[a-z0-9_]+\s*=", exam)  # hvl1_mm_al = ...
+    assert not re.search(r"(?<![\d.])\d+\.\d{7,}(?![\d.])", exam)  # 3.4437997188749323, not UIDs
+    assert "Fsd" not in exam and "= –" not in exam and "(1)" not in exam
+    assert "from memory" not in exam and "cells written" not in exam
+    assert exam.count("Exposures") == 1 and "Events" not in exam
+    room = _main_text(signed_in, demo, paths["room"])
+    assert not re.search(r"\b(group_above_level|dap_ratio_out_of_tolerance|changepoint)\b", room)
+    report = _visit(signed_in, demo.base_url + paths["report"], timeout_ms=SERVICE_TIMEOUT_MS).page
+    try:
+        nav = report.inner_text("header")
+        assert "Overview of" in nav and "Distributions" in nav and "Flags of" in nav
+        text = report.inner_text("main")
+        assert re.search(r"Open \d+; Acknowledged \d+; Closed \d+", text)
+        assert "in hand" not in text and "seen," not in text
+    finally:
+        report.close()
