@@ -871,3 +871,17 @@ def test_demo_pages_read_in_words_a_committee_uses(signed_in: Any, demo: _Demo) 
         assert "in hand" not in text and "seen," not in text
     finally:
         report.close()
+
+
+def test_demo_flags_table_keeps_its_triage_column_on_screen(signed_in: Any, demo: _Demo) -> None:
+    # reasons quote Study Instance UIDs; they wrap, so the triage column stays in a 1400 px window
+    page = _visit(signed_in, demo.base_url + "/flags", timeout_ms=SERVICE_TIMEOUT_MS).page
+    try:
+        last = page.locator("table.flags thead th").last
+        assert last.inner_text().strip() == "Triage"
+        box = last.bounding_box()
+        assert box is not None and box["x"] + box["width"] <= 1400, box
+        link = page.locator("table.flags a", has_text="the exam").first.bounding_box()
+        assert link is not None and link["height"] < 30, link  # one line, not broken mid-word
+    finally:
+        page.close()
