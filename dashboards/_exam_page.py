@@ -24,13 +24,15 @@ from beamaudit.dashboards.rounding import (
 )
 from beamaudit.dashboards.wording import quantity_label, user_text
 
-__all__ = ["exposure_views", "info_lines", "standard_words"]
+__all__ = ["exposure_views", "info_lines", "spectra_view", "standard_words"]
 
 #: info keys that repeat what the page states itself (the number of exposures)
 _REPEATED_INFO = frozenset({"events", "exposures", "number of events", "number of exposures"})
 #: trail inputs that qualify the step's own value rather than name another quantity
 _UNCERTAINTY = "standard_uncertainty"
 _RELATIVE = "model_relative_uncertainty"
+_EXPANDED = "expanded_uncertainty_k2"
+_METHOD = "uncertainty_method"
 
 
 def _unit(unit: str) -> str:
@@ -104,14 +106,21 @@ def _step(s: WhyStep) -> dict[str, Any]:
     inputs = dict(s.inputs)
     u_text = inputs.pop(_UNCERTAINTY, None)
     u = _number_of(u_text) if u_text else None
+    expanded_text = inputs.pop(_EXPANDED, None)
+    expanded = _number_of(expanded_text) if expanded_text else None
+    method = inputs.pop(_METHOD, "")
     unit = _unit(s.unit)
     if s.value is None:
         value = ""
+    elif expanded is not None and expanded > 0:
+        value = format_estimate(s.value, expanded, s.unit) + (f" {unit}" if unit else "")
+        value += " (expanded uncertainty, k = 2)"
     else:
         value = format_estimate(s.value, u, s.unit) + (f" {unit}" if unit else "")
     return {
         "label": quantity_label(s.quantity, with_unit=False),
         "value": value,
+        "method": user_text(method) if method else "",
         "no_uncertainty": u is not None and u <= 0,
         "equation": s.equation,
         "source": user_text(s.source),
@@ -121,13 +130,115 @@ def _step(s: WhyStep) -> dict[str, Any]:
     }
 
 
-def exposure_views(detail: ExamDetail) -> list[dict[str, Any]]:
-    """The exposures in time order, each as the template shows it."""
+#: Up to this many exposures each draws its own spectrum; a study with more (fluoroscopy) gets one
+#: chart of its distinct beams instead: a chart per exposure made its page slow to make and read.
+SPECTRUM_PER_EXPOSURE_MAX = 3
+#: The most beams one study's chart draws (the most used first).
+SPECTRA_MAX_BEAMS = 6
+
+
+def _beam_key(exposure: Exposure) -> tuple[Any, ...] | None:
+    s = exposure.spectrum
+    if s is None:
+        return None
+    peak = max(s.energies_kev) if s.energies_kev else 0.0
+    return (
+        round(peak, 1),
+        None if s.hvl1_mm_al is None else round(s.hvl1_mm_al, 4),
+        None if s.output_ugy_per_mas_1m is None else round(s.output_ugy_per_mas_1m, 4),
+    )
+
+
+def _numbers_text(numbers: list[int]) -> str:
+    """Exposure numbers as runs: [1, 2, 3, 5] -> '1-3, 5'."""
+    runs: list[str] = []
+    start = prev = numbers[0]
+    for n in [*numbers[1:], None]:
+        if n is not None and n == prev + 1:
+            prev = n
+            continue
+        runs.append(str(start) if start == prev else f"{start}–{prev}")
+        if n is not None:
+            start = prev = n
+    return ", ".join(runs)
+
+
+def spectra_view(detail: ExamDetail) -> dict[str, Any] | None:
+    """One chart of the study's distinct beams, for a study of many exposures (else None).
+
+    Returns the figure block, the beams drawn (label and exposure numbers) and how many distinct
+    beams were left out; each exposure's view names its beam (:func:`exposure_views`)."""
+    ordered = _in_time_order(detail.exposures)
+    if len(ordered) <= SPECTRUM_PER_EXPOSURE_MAX:
+        return None
+    by_beam: dict[tuple[Any, ...], list[int]] = {}
+    first: dict[tuple[Any, ...], Exposure] = {}
+    for number, exposure in enumerate(ordered, start=1):
+        key = _beam_key(exposure)
+        if key is None:
+            continue
+        by_beam.setdefault(key, []).append(number)
+        first.setdefault(key, exposure)
+    if not by_beam:
+        return None
+    chosen = sorted(by_beam, key=lambda k: (-len(by_beam[k]), by_beam[k][0]))[:SPECTRA_MAX_BEAMS]
+    chosen.sort(key=lambda k: by_beam[k][0])
+    beams = []
+    kvps = [
+        float(v)
+        for e in ordered
+        if is_number(v := dict(e.technique).get("kvp_kv")) and isinstance(v, int | float)
+    ]
+    for key in chosen:
+        spec = first[key].spectrum
+        assert spec is not None
+        technique = dict(first[key].technique)
+        kvp = technique.get("kvp_kv")
+        parts = [format_quantity(kvp, "kvp_kv") if is_number(kvp) else ""]
+        if spec.hvl1_mm_al is not None:
+            parts.append(f"HVL₁ {format_quantity(spec.hvl1_mm_al, 'mm Al')}")
+        numbers = by_beam[key]
+        noun = "exposure" if len(numbers) == 1 else "exposures"
+        label = ", ".join(p for p in parts if p) + f" ({noun} {_numbers_text(numbers)})"
+        beams.append((label, spec))
+    figure = _web.figure_block(
+        figures.build_spectra(
+            beams,
+            kvp_kv=max(kvps) if kvps else None,
+            title="Reconstructed spectra of the study's beams",
+        ),
+        "spectra-chart",
+    )
+    return {
+        "figure": figure,
+        "n_beams": len(by_beam),
+        "n_drawn": len(chosen),
+        "drawn": {k: i + 1 for i, k in enumerate(chosen)},
+    }
+
+
+def exposure_views(
+    detail: ExamDetail, spectra: dict[str, Any] | None = None
+) -> list[dict[str, Any]]:
+    """The exposures in time order, each as the template shows it.
+
+    With ``spectra`` (:func:`spectra_view`), an exposure names its beam on the study's chart
+    instead of drawing its own."""
     views = []
+    drawn: dict[tuple[Any, ...], int] = (spectra or {}).get("drawn", {})
     for number, exposure in enumerate(_in_time_order(detail.exposures), start=1):
         technique = dict(exposure.technique)
         spectrum_block = None
-        if exposure.spectrum is not None:
+        beam_note = ""
+        if exposure.spectrum is not None and spectra is not None:
+            key = _beam_key(exposure)
+            beam_note = (
+                f"Its spectrum is beam {drawn[key]} of the study's chart above."
+                if key in drawn
+                else "Its beam is not among those drawn on the study's chart above "
+                f"(the {len(drawn)} most used)."
+            )
+        elif exposure.spectrum is not None:
             kvp = technique.get("kvp_kv")
             spectrum_block = _web.figure_block(
                 figures.build_spectrum(
@@ -148,6 +259,7 @@ def exposure_views(detail: ExamDetail) -> list[dict[str, Any]]:
                 "dose": [_dose(d) for d in exposure.dose],
                 "why": [_step(s) for s in exposure.why],
                 "spectrum": spectrum_block,
+                "beam_note": beam_note,
             }
         )
     return views

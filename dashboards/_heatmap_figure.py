@@ -16,6 +16,7 @@ from beamaudit.dashboards.wording import (
     STATUS_LOOK,
     exam_name,
     quantity_short,
+    short_group_label,
 )
 
 __all__ = ["RATIO_SCALE", "RATIO_TICKS", "TOO_FEW_FILL", "build_overview_heatmap", "heatmap_key"]
@@ -41,8 +42,9 @@ _JUDGED = frozenset({"above_level", "possibly_above", "below_level"})
 _FIGURE_WIDTH_PX = 1300  # a full-width card at 1400 px, for choosing the cell text's size
 
 
-def _label(exam: str, quantity: str, names: Mapping[str, str] | None) -> str:
-    return f"{exam_name(exam, names)} · {quantity_short(quantity)}"
+def _label(exam: str, quantity: str, names: Mapping[str, str] | None, group: object = None) -> str:
+    who = short_group_label(group)
+    return f"{exam_name(exam, names)}{', ' + who if who else ''} · {quantity_short(quantity)}"
 
 
 _EM = 0.62  # width of a character of the figures' font, in font sizes (DejaVu Sans, digits)
@@ -128,8 +130,15 @@ def build_overview_heatmap(
     if table.empty:
         style(fig, title=title, x_title="", y_title="", legend=False)
         return no_data(fig, "No review groups with a reference level in this period")
+    # a patient group is named where an examination's quantity has groups of more than one
+    # (children of a band beside the adults), not where all its groups share one (mammography's
+    # thickness band): the labels stay short enough for the cells
+    groups = [short_group_label(g) for g in table["patient_group_label"]]
+    table["_group"] = groups
+    kinds = table.groupby(["exam_type", "quantity"])["_group"].transform("nunique")
     table["column"] = [
-        _label(e, q, exam_names) for e, q in zip(table["exam_type"], table["quantity"], strict=True)
+        _label(e, q, exam_names, g if n > 1 else None)
+        for e, q, g, n in zip(table["exam_type"], table["quantity"], groups, kinds, strict=True)
     ]
     rooms = sorted(table["room"].unique())
     columns = sorted(table["column"].unique(), key=str.lower)

@@ -10,7 +10,10 @@ from collections.abc import Mapping, Sequence
 from typing import Any
 
 from beamaudit.dashboards import _web
+from beamaudit.dashboards.attention import exam_names
 from beamaudit.dashboards.rounding import format_level, format_number, is_number
+from beamaudit.dashboards.tables import TableLike
+from beamaudit.dashboards.wording import exam_name, patient_group_words, quantity_short
 
 __all__ = ["render_levels"]
 
@@ -18,7 +21,21 @@ EMPTY = "–"
 
 
 def _value(value: Any, unit: str) -> str:
-    return format_number(value, unit) if is_number(value) else EMPTY
+    return f"{format_number(value, unit)} {unit}".rstrip() if is_number(value) else EMPTY
+
+
+def _words(code: Any) -> str:
+    """A code (a clinical indication) in words: ``acute_stroke`` -> ``acute stroke``."""
+    return str(code).replace("_", " ") if code else ""
+
+
+def _quantity_label(r: Mapping[str, Any]) -> str:
+    return str(r.get("quantity_label") or quantity_short(str(r.get("quantity") or "")))
+
+
+def _group_label(r: Mapping[str, Any], label_key: str = "patient_group_label") -> str:
+    label = r.get(label_key)
+    return str(label) if label else patient_group_words(r.get("patient_group"))
 
 
 def _interval(low: Any, high: Any, unit: str) -> str:
@@ -30,7 +47,7 @@ def _interval(low: Any, high: Any, unit: str) -> str:
     return f"{lo} to {hi}"
 
 
-def _proposal_row(r: Mapping[str, Any], index: int) -> dict[str, Any]:
+def _proposal_row(r: Mapping[str, Any], index: int, names: Mapping[str, str]) -> dict[str, Any]:
     unit = str(r.get("unit") or "")
     proposed = r.get("proposal_status") == "proposed"
     ratio = r.get("proposed_to_local_ratio")
@@ -38,12 +55,13 @@ def _proposal_row(r: Mapping[str, Any], index: int) -> dict[str, Any]:
         "index": index,
         "site": r.get("site") or EMPTY,
         "exam_type": r.get("exam_type"),
-        "exam_name": r.get("exam_name") or r.get("exam_type"),
+        "exam_name": r.get("exam_name") or exam_name(r.get("exam_type"), names),
         "indication": r.get("clinical_indication") or "",
+        "indication_words": _words(r.get("clinical_indication")),
         "group": r.get("patient_group") or "",
-        "group_label": r.get("patient_group_label") or r.get("patient_group") or "adults",
+        "group_label": _group_label(r),
         "quantity": r.get("quantity"),
-        "quantity_label": r.get("quantity_label") or r.get("quantity"),
+        "quantity_label": _quantity_label(r),
         "unit": unit,
         "n_rooms": int(r.get("n_rooms") or 0),
         "n_rooms_short": int(r.get("n_rooms_too_few_patients") or 0),
@@ -76,6 +94,7 @@ def render_levels(
     adopt_path: str = "",
     local_set_names: Sequence[str] = (),
     recurrent: Mapping[str, Any] | None = None,
+    exam_types: TableLike | None = None,
     context: _web.PageContext | None = None,
 ) -> str:
     """The reference-levels page (served at ``/levels``).
@@ -102,14 +121,23 @@ def render_levels(
     recurrent : dict, optional
         The recurrent-exposure list (shown to physicists only): ``patients`` (pseudonym, counts,
         sums), ``window_years``, ``level_msv``, ``as_of``, the counts and ``caution``.
+    exam_types : table, optional
+        The ``EXAM_TYPES`` table: the catalogue's names where a row has no ``exam_name``
+        (quantities and patient groups are put in words from their names where a row has no
+        label; no code reaches the page).
     context : PageContext, optional
         Facility, version, user.
     """
-    rows = [_proposal_row(r, i) for i, r in enumerate(proposals)]
+    names = exam_names(exam_types)
+    rows = [_proposal_row(r, i, names) for i, r in enumerate(proposals)]
     n_proposed = sum(1 for r in rows if r["proposed"])
     level_rows = [
         {
             **dict(x),
+            "exam_name": x.get("exam_name") or exam_name(x.get("exam_type"), names),
+            "quantity_label": _quantity_label(x),
+            "patient_group": _group_label(x, "patient_group"),
+            "indication_words": _words(x.get("clinical_indication")),
             "value_text": format_level(x.get("value"), str(x.get("unit") or "")),
         }
         for x in levels

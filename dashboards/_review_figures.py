@@ -11,7 +11,12 @@ from beamaudit.dashboards._figstyle import INK, legend_below_when_long, no_data,
 from beamaudit.dashboards.distributions import study_values
 from beamaudit.dashboards.errors import TableError
 from beamaudit.dashboards.tables import EVENTS, LEVELS, TableLike
-from beamaudit.dashboards.wording import LEVEL_KIND_WORDS, quantity_short, quantity_unit
+from beamaudit.dashboards.wording import (
+    LEVEL_KIND_WORDS,
+    quantity_short,
+    quantity_unit,
+    short_group_label,
+)
 
 __all__ = ["EVENT_QUANTITIES", "LEVEL_DASH", "build_distribution"]
 
@@ -200,7 +205,12 @@ def _draw_levels(fig: go.Figure, table: pd.DataFrame, *, exam_type: str, quantit
         (table["exam_type"] == exam_type)
         & (table["quantity"] == quantity)
         & table["reference_level"].notna()
-    ].drop_duplicates(["reference_level", "level_kind", "level_set"])
+    ]
+    if "patient_group_label" not in mine.columns:
+        mine = mine.assign(patient_group_label=None)
+    mine = mine.drop_duplicates(
+        ["reference_level", "level_kind", "level_set", "patient_group_label"]
+    )
     unit = quantity_unit(quantity)
     for _, row in mine.sort_values("reference_level").iterrows():
         kind = LEVEL_KIND_WORDS.get(row["level_kind"], "Reference level")
@@ -210,6 +220,9 @@ def _draw_levels(fig: go.Figure, table: pd.DataFrame, *, exam_type: str, quantit
             y=float(row["reference_level"]), line=line, name=str(row["level_set"] or kind)
         )
         words = f"{kind} {row['reference_level']:.3g} {unit}"
+        who = short_group_label(row["patient_group_label"])
+        if who:
+            words += f", {who}"
         if row["level_set"]:
             words += f" ({row['level_set']})"
         fig.add_trace(_legend_entry(words, line=line))

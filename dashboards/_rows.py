@@ -22,6 +22,7 @@ from beamaudit.dashboards.wording import (
     STATUS_LOOK,
     exam_name,
     quantity_short,
+    short_group_label,
     words_for,
 )
 
@@ -62,7 +63,11 @@ def group_rows(
     Rows come most urgent first, then by ratio, room and examination.
     """
     rows = []
-    for (room, exam, quantity), part in table.groupby(["room", "exam_type", "quantity"], sort=True):
+    table = table.assign(
+        _group=[short_group_label(g) for g in table.get("patient_group_label", [None] * len(table))]
+    )
+    keys = ["room", "exam_type", "_group", "quantity"]
+    for (room, exam, group, quantity), part in table.groupby(keys, sort=True):
         part = part.assign(_rank=part["status"].map(lambda v: STATUS_LOOK[v].rank))
         part = part.sort_values(["_rank", "ratio_to_level"], ascending=[True, False])
         first = part.iloc[0]
@@ -75,6 +80,7 @@ def group_rows(
                 "room_href": _web.room_href(room),
                 "exam_type": exam,
                 "exam_name": exam_name(exam, names),
+                "group_label": group,
                 "exam_href": _web.distributions_href(
                     exam_type=exam, quantity=quantity, period=period
                 ),
@@ -195,6 +201,7 @@ def flag_rows(
                 "room_href": _web.room_href(r["room"]) if r["room"] else "",
                 "exam_type": r["exam_type"] or "",
                 "exam_name": exam_name(r["exam_type"], names, empty=""),
+                "group_label": short_group_label(r.get("patient_group_label")),
                 "period": r["period"],
                 "status": r["status"],
                 "status_words": FLAG_STATUS_WORDS[r["status"]],

@@ -36,7 +36,7 @@ import pandas as pd
 from beamaudit.dashboards import _web
 from beamaudit.dashboards.rounding import format_level, format_number, format_quantity, is_number
 from beamaudit.dashboards.tables import ATTENTION, EXAM_TYPES, FLAGS, INGEST_ERRORS, TableLike
-from beamaudit.dashboards.wording import exam_name, quantity_short, words_for
+from beamaudit.dashboards.wording import exam_name, quantity_short, short_group_label, words_for
 
 __all__ = ["KIND_TIERS", "SEVERITY_RANK", "attention_from_flags", "exam_names", "rank_attention"]
 
@@ -160,11 +160,20 @@ def _factor(after: float | None, before: float | None) -> float:
     return ratio if ratio >= 1 else 1 / ratio
 
 
+def _group_label(row: Row) -> str:
+    """The patient group in words, or '' for the main (adult) group."""
+    return short_group_label(row.get("patient_group_label"))
+
+
 def _place(row: Row, names: Mapping[str, str]) -> str:
     exam, room = row.get("exam_type"), row.get("room")
-    if exam and room:
-        return f"{exam_name(exam, names)} in {room}"
-    return exam_name(exam, names) if exam else (room or "The site")
+    group = _group_label(row)
+    what = exam_name(exam, names) if exam else ""
+    if what and group:
+        what = f"{what}, {group},"
+    if what and room:
+        return f"{what} in {room}"
+    return what.rstrip(",") if what else (room or "The site")
 
 
 def _item(row: Row, headline: str, href: str, size: float, *, count: int = 1,
@@ -180,6 +189,7 @@ def _item(row: Row, headline: str, href: str, size: float, *, count: int = 1,
         "room": row.get("room"),
         "exam_type": row.get("exam_type"),
         "detail": row.get("reason"),
+        "patient_group_label": _group_label(row) or None,
     }
 
 
@@ -213,7 +223,7 @@ def _groups(rows: list[Row], keys: tuple[str, ...]) -> list[list[Row]]:
 
 def _group_above_level(rows: list[Row], names: Mapping[str, str], period: str | None) -> list[Item]:
     items = []
-    for group in _groups(rows, ("room", "exam_type", "quantity")):
+    for group in _groups(rows, ("room", "exam_type", "patient_group", "quantity")):
         top = max(group, key=lambda r: _number(_numbers(r), "ratio_to_level") or 0.0)
         n = _numbers(top)
         ratio, median, level = (
@@ -489,6 +499,7 @@ def _rejected_files(errors: pd.DataFrame) -> list[Item]:
             "room": None,
             "exam_type": None,
             "detail": None,
+            "patient_group_label": None,
         }
     ]
 

@@ -14,6 +14,7 @@ builder                        table
 :func:`build_room_history`      ``ROOM_HISTORY`` of one room
 :func:`build_dap_ratio_history` ``ROOM_HISTORY`` of one room
 :func:`build_spectrum`          one exposure's spectrum mapping
+:func:`build_spectra`           the distinct beams of one study
 :func:`build_skin_dose_map`     one procedure's skin-dose map record
 =============================  ============================================
 """
@@ -26,7 +27,7 @@ from beamaudit.dashboards._history_figures import (
 )
 from beamaudit.dashboards._review_figures import EVENT_QUANTITIES, build_distribution
 from beamaudit.dashboards._skin_figure import build_skin_dose_map
-from beamaudit.dashboards._spectrum_figure import build_spectrum
+from beamaudit.dashboards._spectrum_figure import build_spectra, build_spectrum
 
 __all__ = [
     "EVENT_QUANTITIES",
@@ -36,5 +37,6 @@ __all__ = [
     "build_overview_heatmap",
     "build_room_history",
     "build_skin_dose_map",
+    "build_spectra",
     "build_spectrum",
 ]

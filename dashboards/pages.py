@@ -321,7 +321,8 @@ def render_room(
     flag_rows = _rows.flag_rows(
         FLAGS.validate(flags if flags is not None else []), names, room=room
     )
-    changes = table[table["change_point"]].sort_values("month")
+    # a mask, even on a room with no history (an empty object column would select columns)
+    changes = table.loc[table["change_point"].astype(bool)].sort_values("month")
     return _web.render_page(
         "room.html",
         context=context,
@@ -340,6 +341,10 @@ def render_room(
         flag_rows=[r for r in flag_rows if r["status"] != "closed"],
         flags_href=flags_href(room=room),
     )
+
+
+#: The exam type of a drill-down record whose events map to no examination type.
+UNMAPPED_EXAM = "(unmapped)"
 
 
 def render_exam(
@@ -376,14 +381,19 @@ def render_exam(
     detail = parse_exam(exam)
     skin = _exam_page.skin_view(skin_dose) if skin_dose is not None else None
     names = ExamTypes(exam_types).names
-    exposures = _exam_page.exposure_views(detail)
+    spectra = _exam_page.spectra_view(detail)
+    exposures = _exam_page.exposure_views(detail, spectra)
     title = exam_name(detail.exam_type, names)
+    if detail.exam_type == UNMAPPED_EXAM:  # no examination type: its description says what it was
+        described = dict(detail.info).get("description") or ""
+        title = f"{described} (no examination type)" if described else "Examination of no type"
     return _web.render_page(
         "exam.html",
         context=context,
         page_title=f"{title}, {detail.room}",
         active="",
         has_figures=any(e["spectrum"] is not None for e in exposures)
+        or spectra is not None
         or (skin is not None and skin["figure"] is not None),
         skin=skin,
         exam=detail,
@@ -393,6 +403,7 @@ def render_exam(
         weight=_web.fmt(detail.patient_weight_kg) if detail.patient_weight_kg is not None else "–",
         standard=_exam_page.standard_words(detail.standard_patient),
         exposures=exposures,
+        spectra=spectra,
         flag_rows=_rows.flag_rows(detail.flags, names),
         back_href=back_href or room_href(detail.room),
         room_href=room_href(detail.room),

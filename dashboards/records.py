@@ -56,6 +56,7 @@ from collections.abc import Mapping, Sequence
 from dataclasses import dataclass
 from typing import Any
 
+import numpy as np
 import pandas as pd
 
 from beamaudit.dashboards.errors import TableError
@@ -205,6 +206,17 @@ def _scalar(value: Any, path: str) -> Scalar:
     raise _fail(path, f"expected text, a number or true/false, got {type(value).__name__}")
 
 
+def _non_negative_numbers(values: Any, path: str) -> tuple[float, ...]:
+    """Finite numbers >= 0, checked at once (a spectrum has thousands); the first bad value,
+    if any, is named by the one-by-one check."""
+    items = _list(list(values), path)
+    if not any(isinstance(v, bool) or not isinstance(v, numbers.Real) for v in items):
+        array = np.asarray(items, dtype=float)
+        if array.size == 0 or (np.isfinite(array).all() and (array >= 0).all()):
+            return tuple(array.tolist())
+    return tuple(_number(v, f"{path}[{i}]", optional=False, minimum=0) for i, v in enumerate(items))
+
+
 def parse_spectrum(raw: Mapping[str, Any], path: str = "spectrum") -> Spectrum:
     """Check a spectrum mapping and return a :class:`Spectrum`.
 
@@ -218,14 +230,8 @@ def parse_spectrum(raw: Mapping[str, Any], path: str = "spectrum") -> Spectrum:
     for key in ("energies_kev", "fluence_per_mas_1m"):
         if key not in raw:
             raise _fail(path, f"missing '{key}'")
-    energies = tuple(
-        _number(v, f"{path}.energies_kev[{i}]", optional=False, minimum=0)
-        for i, v in enumerate(_list(list(raw["energies_kev"]), f"{path}.energies_kev"))
-    )
-    fluence = tuple(
-        _number(v, f"{path}.fluence_per_mas_1m[{i}]", optional=False, minimum=0)
-        for i, v in enumerate(_list(list(raw["fluence_per_mas_1m"]), f"{path}.fluence_per_mas_1m"))
-    )
+    energies = _non_negative_numbers(raw["energies_kev"], f"{path}.energies_kev")
+    fluence = _non_negative_numbers(raw["fluence_per_mas_1m"], f"{path}.fluence_per_mas_1m")
     if len(energies) != len(fluence):
         raise _fail(
             path,

@@ -186,6 +186,13 @@ GROUPS = TableSpec(
         Column("ratio_to_level", "float", "1", "median / level", nullable=True, minimum=0),
         Column("status", "str", "", "review status", choices=_STATUSES),
         Column("status_reason", "str", "", "the review's reason", required=False, nullable=True),
+        Column(
+            "patient_group_label",
+            "str",
+            "",
+            "the group's patients in words (none: adults)",
+            **_TEXT,
+        ),
     ),
     rules=(
         _QUANTITY_HAS_UNIT,
@@ -227,6 +234,8 @@ FLAGS = TableSpec(
         Column("run_id", "str", "", "the review run that raised the flag", **_TEXT),
         Column("quantity", "str", "", "the quantity it concerns (unit suffix)", **_TEXT),
         Column("numbers", "mapping", "", "the figures its reason quotes, by name", **_TEXT),
+        Column("patient_group", "str", "", "the group's patient group code, if any", **_TEXT),
+        Column("patient_group_label", "str", "", "the patient group in words, if any", **_TEXT),
     ),
     rules=(
         Rule(
@@ -311,6 +320,8 @@ LEVELS = TableSpec(
         Column("status", "str", "", "review status", required=False, nullable=True,
                choices=_STATUSES),
         Column("ratio_to_level", "float", "1", "median / level", **_OPTIONAL),
+        Column("patient_group_label", "str", "", "the level's patients in words (none: adults)",
+               **_TEXT),
     ),
     rules=(_QUANTITY_HAS_UNIT,),
 )  # fmt: skip
@@ -376,6 +387,9 @@ ATTENTION = TableSpec(
         Column("room", "str", "", "room name", **_TEXT),
         Column("exam_type", "str", "", "examination type code", **_TEXT),
         Column("detail", "str", "", "a second line: the review's reason in full", **_TEXT),
+        Column(
+            "patient_group_label", "str", "", "the patient group in words, if any", **_TEXT
+        ),
     ),
 )  # fmt: skip
 

@@ -29,9 +29,11 @@ __all__ = [
     "VOCABULARY",
     "StatusLook",
     "exam_name",
+    "patient_group_words",
     "quantity_label",
     "quantity_short",
     "quantity_unit",
+    "short_group_label",
     "split_unit",
     "user_text",
     "words_for",
@@ -210,6 +212,52 @@ def exam_name(code: str | None, names: Mapping[str, str] | None, *, empty: str =
     if not code:
         return empty
     return (names or {}).get(code) or code
+
+
+_BAND = re.compile(r"^(weight|age)_(\d+)(m|y)?_(\d+|up)(kg|m|y)?$")
+_BAND_UNITS = {"kg": "kg", "m": "months", "y": "years", None: ""}
+
+
+def patient_group_words(code: str | None) -> str:
+    """A patient group code in words, where the caller has no label from the review.
+
+    The API hands over the review's own label (``patient_group_label``); this reads the shape of
+    the shipped band codes so that a page never shows a code.
+
+    Examples
+    --------
+    >>> patient_group_words("weight_15_30kg")
+    'children 15–< 30 kg'
+    >>> patient_group_words("age_1_6y")
+    'children 1–< 6 years'
+    >>> patient_group_words(None)
+    'adults'
+    """
+    if not code:
+        return "adults"
+    size = re.match(r"^ct_dw_(\d+)_(\d+)cm$", code)
+    if size is not None:
+        return f"water-equivalent diameter {size.group(1)}–< {size.group(2)} cm"
+    match = _BAND.match(code)
+    if match is None:
+        return code.replace("_", " ")
+    _, low, low_unit, high, unit = match.groups()
+    words = _BAND_UNITS.get(unit or low_unit, "")
+    if high == "1" and words.endswith("s"):
+        words = words[:-1]
+    if high == "up":
+        return f"children from {low} {words}".rstrip()
+    if low_unit and unit and low_unit != unit:
+        return f"children {low} {_BAND_UNITS[low_unit]}–< {high} {words}"
+    return f"children {low}–< {high} {words}".rstrip()
+
+
+def short_group_label(label: object) -> str:
+    """A patient group's label for a chart or a headline: without its parenthesis, '' for none
+    (``compressed breast 50-60 mm (the band ...)`` -> ``compressed breast 50-60 mm``)."""
+    if not isinstance(label, str) or not label.strip():
+        return ""
+    return label.split(" (")[0].strip()
 
 
 #: Provenance phrases written for developers and the words a reader of a page gets instead

@@ -98,6 +98,9 @@ class BeamInputs:
         of what lies between the tube and the skin (1 for nothing), and its uncertainty.
     support : how that transmission was made, for the trail: a table top and mattress
         (:mod:`beamaudit.model.patient_support`); None: nothing in the beam.
+    hvl1_uncertainty_method : how the HVL's uncertainty was made, for the trail
+        (:func:`beamaudit.model.beam_quality.beam_quality_uncertainty`); empty: the beam
+        model's own budget.
     """
 
     kvp_kv: float
@@ -113,6 +116,7 @@ class BeamInputs:
     entrance_transmission: float = 1.0
     entrance_transmission_standard_uncertainty: float = 0.0
     support: SupportTransmission | None = None
+    hvl1_uncertainty_method: str = ""
 
     @classmethod
     def from_beam_result(
@@ -590,7 +594,15 @@ def _backscatter_figure(
         if not beam.calibrated
         else "beam model with the room calibration",
         source=beam.source,
-        inputs={"standard_uncertainty": beam.hvl1_standard_uncertainty_mm_al},
+        inputs={"standard_uncertainty": beam.hvl1_standard_uncertainty_mm_al}
+        | (
+            {
+                "expanded_uncertainty_k2": 2.0 * beam.hvl1_standard_uncertainty_mm_al,
+                "uncertainty_method": beam.hvl1_uncertainty_method,
+            }
+            if beam.hvl1_uncertainty_method
+            else {}
+        ),
     )
     trail.merge(geo.distance_trail)
     trail.merge(geo.field_trail)

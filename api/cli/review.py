@@ -212,7 +212,9 @@ def _print(
         console.print(f"... and {len(flags) - 40} more (--json for all)", highlight=False)
     if new_flags is not None:
         console.print(f"new flags since the last nightly run: {new_flags}", highlight=False)
-    console.print(f"[dim]{CAUTION}[/dim]", soft_wrap=True, highlight=False)
+    import textwrap
+
+    console.print(textwrap.fill(CAUTION, 80), style="dim", highlight=False, markup=False)
 
 
 def group_lines(groups: list[dict[str, Any]], names: dict[str, str] | None = None) -> list[str]:
@@ -222,7 +224,7 @@ def group_lines(groups: list[dict[str, Any]], names: dict[str, str] | None = Non
 
     from beamaudit.dashboards import VOCABULARY
     from beamaudit.dashboards.rounding import format_level, format_number, format_quantity
-    from beamaudit.dashboards.wording import quantity_short, words_for
+    from beamaudit.dashboards.wording import quantity_short, short_group_label, words_for
 
     lines: list[str] = []
     last: tuple[Any, ...] | None = None
@@ -230,11 +232,14 @@ def group_lines(groups: list[dict[str, Any]], names: dict[str, str] | None = Non
         if g.get("reference_level") is None:
             continue
         q = str(g["quantity"])
-        key = (g.get("room"), g.get("exam_type"), q)
+        # a paediatric band's group is its own block, named (ICRP 135 levels per band)
+        group = short_group_label(g.get("patient_group_label")) if g.get("patient_group") else ""
+        key = (g.get("room"), g.get("exam_type"), group, q)
         if key != last:
             last = key
             exam = (names or {}).get(str(g.get("exam_type"))) or g.get("exam_type")
-            head = f"{g.get('room')} · {exam} · {quantity_short(q)}"
+            who = f", {group}" if group else ""
+            head = f"{g.get('room')} · {exam}{who} · {quantity_short(q)}"
             lines += ["", *textwrap.wrap(head, 80)]
             ci = ""
             if g.get("ci_low") is not None and g.get("ci_high") is not None:

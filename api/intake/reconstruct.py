@@ -29,6 +29,7 @@ CTDIvol and DLP, reported by the scanner); a model failure is
 
 from __future__ import annotations
 
+import json
 import logging
 import math
 import threading
@@ -151,7 +152,10 @@ class _BeamCache:
         support: Any = None,
         notes: tuple[str, ...] = (),
     ) -> Any:
+        from dataclasses import replace
+
         from beamaudit.model import BeamInputs, BeamSpec, compute_beam
+        from beamaudit.model.beam_quality import beam_quality_uncertainty
 
         anode = _anode_symbol(room.anode_material if room else None)
         angle = room.anode_angle_deg if room else 12.0
@@ -182,8 +186,13 @@ class _BeamCache:
                     ripple_percent=ripple,
                 )
                 result = compute_beam(spec, calibration=calibration)
-                found = BeamInputs.from_beam_result(
-                    result, patient_support=support, assumptions=notes
+                # the HVL's uncertainty from the tube voltage, filtration and attenuation data
+                # (the beam model alone gives it none without them): it enters B's uncertainty
+                quality = beam_quality_uncertainty(spec, calibration=calibration)
+                found = replace(
+                    BeamInputs.from_beam_result(result, patient_support=support, assumptions=notes),
+                    hvl1_standard_uncertainty_mm_al=quality.standard_uncertainties["hvl1_mm_al"],
+                    hvl1_uncertainty_method=quality.method,
                 )
                 self._cache[key] = found
         return found
@@ -848,10 +857,20 @@ def beam_for_event(event: m.ExposureEventRow) -> Any:
         return None
     room = _room_from_snapshot(recipe.get("room"))
     calibration = _calibration_from_snapshot(recipe.get("calibration"), room)
+    mammography = is_mammography(event)
+    key = None
+    if not mammography:  # a fluoroscopy study's events share few beams: each made once
+        key = (
+            json.dumps(recipe, sort_keys=True, default=str),
+            round(event.kvp_kv, 1),
+            _filters_key(event.filters),
+        )
+        if key in _EVENT_BEAMS:
+            return _EVENT_BEAMS[key]
     try:
-        if is_mammography(event):  # the breast beam of the Dance method: its target, paddle
+        if mammography:  # the breast beam of the Dance method: its target, paddle
             return mammography_beam(event, room, calibration)
-        return compute_beam(
+        beam = compute_beam(
             BeamSpec(
                 kv=round(event.kvp_kv, 1),
                 filters=_filters(room, event, calibration)[0],
@@ -863,3 +882,13 @@ def beam_for_event(event: m.ExposureEventRow) -> Any:
         )
     except ModelError:
         return None
+    if len(_EVENT_BEAMS) >= _EVENT_BEAMS_LIMIT:
+        _EVENT_BEAMS.clear()  # a bound, not an LRU: few rooms make few distinct beams
+    _EVENT_BEAMS[key] = beam
+    return beam
+
+
+#: The beams of :func:`beam_for_event` kept per process (the exam page of a fluoroscopy study
+#: asks for one per event; its events share a few beams). A beam result is never changed.
+_EVENT_BEAMS: dict[Any, Any] = {}
+_EVENT_BEAMS_LIMIT = 256

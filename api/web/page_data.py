@@ -6,7 +6,9 @@ tables in the shapes :mod:`beamaudit.dashboards.tables` documents.
 
 from __future__ import annotations
 
+import math
 from datetime import date
+from functools import lru_cache
 from typing import Any
 
 import numpy as np
@@ -102,14 +104,15 @@ def groups_table(run: m.ReviewRun) -> pd.DataFrame:
             continue
         row = {k: g.get(k) for k in GROUP_KEYS}
         row["status_reason"] = STATUS_REASON.get(g.get("status"), "")
+        row["patient_group_label"] = _group_label(g.get("patient_group"))
         rows.append(row)
-    frame = pd.DataFrame(rows, columns=[*GROUP_KEYS, "status_reason"])
+    frame = pd.DataFrame(rows, columns=[*GROUP_KEYS, "status_reason", "patient_group_label"])
     return frame
 
 
 FLAG_COLUMNS = ("flag_id", "kind", "severity", "reason", "room", "exam_type", "event_id",
                 "study_uid", "period", "status", "raised_at", "note", "changed", "run_id",
-                "quantity", "numbers")  # fmt: skip
+                "quantity", "numbers", "patient_group", "patient_group_label")  # fmt: skip
 
 
 def flags_table(session: Session, run_ids: list[int] | None = None) -> pd.DataFrame:
@@ -133,6 +136,7 @@ def _flag_row(flag: m.FlagRow, period: str | None) -> dict[str, Any]:
     from beamaudit.api.web.routes.reviews import for_viewer
 
     finding = flag.finding
+    group = (finding.subject or {}).get("patient_group")
     note = None
     if finding.note:
         note = f"{finding.note} ({finding.status_by or 'unknown'}"
@@ -153,9 +157,23 @@ def _flag_row(flag: m.FlagRow, period: str | None) -> dict[str, Any]:
         "changed": changes_text(flag.changes),
         "run_id": str(flag.review_run_id),
         "quantity": (finding.subject or {}).get("quantity"),
+        "patient_group": group,
+        "patient_group_label": _group_label(group),
         # the figures its reason quotes (never an event or study identifier: pages are for viewers)
         "numbers": for_viewer(dict(flag.numbers or {})),
     }
+
+
+@lru_cache(maxsize=1)
+def _patient_groups() -> Any:
+    from beamaudit.api.review.bands import load_default_patient_groups
+
+    return load_default_patient_groups()
+
+
+def _group_label(group: Any) -> str | None:
+    """A patient group in words (None for the main group)."""
+    return _patient_groups().label(str(group)) if group else None
 
 
 def changes_text(changes: dict[str, Any] | None) -> str | None:
@@ -229,6 +247,15 @@ def room_history(session: Session, room: str, *, until: str | None = None) -> pd
     ]
     return frame.sort_values(["exam_type", "quantity", "month"]).reset_index(drop=True)
 
+
+#: The tolerance a standard sets on a displayed dose figure (relative half-width) and the
+#: standard: IEC 60601-2-43 ± 35 % on K_a,r (as model/skin_dose.py takes it), IEC 60601-2-44 ±
+#: 20 % on CTDIvol and DLP (from memory, medium confidence).
+_DISPLAY_TOLERANCE = {
+    "ref_point_air_kerma_mgy": (0.35, "IEC 60601-2-43"),
+    "ctdivol_mgy": (0.20, "IEC 60601-2-44"),
+    "dlp_mgy_cm": (0.20, "IEC 60601-2-44"),
+}
 
 _DOSE_FIGURES = (
     ("dap_gy_cm2", "dap_gy_cm2"),
@@ -379,7 +406,16 @@ def exam_record(
         for name in ("ctdivol_mgy", "dlp_mgy_cm", "reference_point_air_kerma_mgy"):
             value = getattr(e, QUANTITIES[name].column)
             if value is not None:
-                dose[name] = {"value": float(value), "reported": float(value), "ratio": 1.0}
+                tolerance, standard = _DISPLAY_TOLERANCE[name]
+                dose[name] = {
+                    "value": float(value),
+                    "reported": float(value),
+                    "ratio": 1.0,
+                    # the displayed value's tolerance as a rectangular distribution (GUM 4.3.7)
+                    "uncertainty": float(value) * tolerance / math.sqrt(3.0),
+                    "source": f"as the modality reported it; {standard} allows ± "
+                    f"{tolerance:.0%} on the displayed value (taken as rectangular, k = 1)",
+                }
         dose.update(_size_figures(e))
         if not dose and e.dap_gy_cm2 is not None:
             dose["dap_gy_cm2"] = {

@@ -137,3 +137,20 @@ def test_rank_attention_refuses_an_unknown_severity() -> None:
 def test_no_open_flag_makes_no_line() -> None:
     closed = [dict(f, status="closed") for f in make_flags()]
     assert attention_from_flags(closed).empty
+
+
+def test_a_patient_group_is_named_and_kept_apart() -> None:
+    """A paediatric band's group and the adults' group of the same examination are two lines,
+    the band's naming its patients (ICRP 135 sets levels per weight band)."""
+    adult = copy.deepcopy([f for f in make_flags() if f["flag_id"] == "102"])[0]
+    child = copy.deepcopy(adult) | {
+        "flag_id": "902",
+        "patient_group": "weight_15_30kg",
+        "patient_group_label": "children 15–< 30 kg",
+    }
+    lines = attention_from_flags([adult, child], exam_types=EXAM_TYPES)
+    assert len(lines) == 2
+    labelled = lines[lines["patient_group_label"].notna()].to_dict("records")
+    assert len(labelled) == 1
+    assert ", children 15–< 30 kg, in " in labelled[0]["headline"]
+    assert labelled[0]["patient_group_label"] == "children 15–< 30 kg"

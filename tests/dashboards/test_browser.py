@@ -118,7 +118,8 @@ def _pages() -> dict[str, str]:
         "/levels": render_levels(
             LEVEL_PROPOSALS, [], run_label="review run 41 of 2026-03", run_id=41,
             can_adopt=True, adopt_path="/api/v1/local-level-proposals/adopt",
-            local_set_names=["Fernmoor local DRLs (invented)"], context=context,
+            local_set_names=["Fernmoor local DRLs (invented)"], exam_types=EXAM_TYPES,
+            context=context,
         ),
         "/login": render_login(error="That token was not accepted.", context=context),
         "/reports/2026-03": render_committee_report(
@@ -659,12 +660,31 @@ def _demo_paths(demo: _Demo) -> dict[str, str]:
         "distributions": "/distributions",
         "distributions-enema": "/distributions?exam_type=fluoro_barium_enema",
         "room": "/rooms/HGH-RAD1",
+        "room-angio": "/rooms/HGH-IR1",
         "exam": exam.group(1),
+        "exam-enema": _study_of(demo, "exam_above_investigation_level", "HGH-FL1"),
+        "exam-angio": _study_of(demo, "srdl_exceeded", "HGH-IR1"),
         "flags": "/flags",
+        "levels": "/levels",
         "unmapped": "/unmapped",
         "ingest-errors": "/ingest-errors",
         "report": "/reports/" + re.search(r"Review of (\d{4}-\d{2})", _overview(demo)).group(1),
     }
+
+
+def _study_of(demo: _Demo, kind: str, room: str) -> str:
+    """The exam page of the first study a finding of ``kind`` in ``room`` names."""
+    import re
+    import urllib.request
+
+    request = urllib.request.Request(
+        f"{demo.base_url}/flags?kind={kind}&room={room}",
+        headers={"Authorization": f"Bearer {demo.physicist}"},
+    )
+    with urllib.request.urlopen(request, timeout=60) as answer:
+        found = re.search(r'href="(/exams/[^"]+)"', answer.read().decode())
+    assert found is not None, (kind, room)
+    return found.group(1)
 
 
 def _overview(demo: _Demo) -> str:
@@ -761,5 +781,107 @@ def test_a_physicist_triages_a_demo_finding_through_the_api(signed_in: Any, demo
             assert "AEC recalibrated by the vendor" in again.inner_text("main")
         finally:
             again.close()
+    finally:
+        page.close()
+
+
+def _main_text(signed_in: Any, demo: _Demo, path: str) -> str:
+    page = _visit(signed_in, demo.base_url + path, timeout_ms=SERVICE_TIMEOUT_MS).page
+    try:
+        return str(page.inner_text("main"))
+    finally:
+        page.close()
+
+
+def test_demo_attention_names_the_paediatric_group(signed_in: Any, demo: _Demo) -> None:
+    # the demo's children of 15-30 kg on RAD 2 (ICRP 135 weight band): their line says so, on
+    # the overview's first screen and on the committee report
+    page = _visit(signed_in, demo.base_url + "/", timeout_ms=SERVICE_TIMEOUT_MS).page
+    try:
+        line = page.locator("ol.attention-list a.headline", has_text="Chest PA, children 15")
+        assert line.count() >= 1
+        box = line.first.bounding_box()
+        assert box is not None and box["y"] + box["height"] <= 900, box
+        assert "in HGH-RAD2" in line.first.inner_text()
+    finally:
+        page.close()
+    flags = _main_text(signed_in, demo, "/flags?kind=group_above_level&room=HGH-RAD2")
+    assert "children 15" in flags
+
+
+def test_demo_levels_page_shows_names_not_codes(signed_in: Any, demo: _Demo) -> None:
+    import re
+
+    text = _main_text(signed_in, demo, "/levels")
+    assert "Chest PA" in text and "DAP (Gy·cm²)" in text and "children 15" in text
+    codes = set(re.findall(r"\b[a-z0-9]+_[a-z0-9_]+\b", text))
+    assert not codes, codes  # chest_pa, dap_gy_cm2, weight_15_30kg ... never reach a reader
+
+
+def test_demo_exam_page_gives_the_hvl_a_real_uncertainty(signed_in: Any, demo: _Demo) -> None:
+    # the HVL's uncertainty propagated from kV, filtration and attenuation data (k = 2), with
+    # the method named in the trail; no figure of a radiograph says "not estimated"
+    text = _main_text(signed_in, demo, _demo_paths(demo)["exam"])
+    hvl = next(line for line in text.splitlines() if line.startswith("First half-value layer"))
+    assert "±" in hvl and "k = 2" in hvl, hvl
+    assert "GUM (JCGM 100:2008)" in text and "IEC 60601-2-54" in text
+    assert "not estimated" not in text
+
+
+def test_demo_fluoroscopy_exam_page_draws_one_chart_of_its_beams(
+    signed_in: Any, demo: _Demo
+) -> None:
+    # a study of tens of exposures: one chart of its distinct beams, each exposure naming its
+    # beam, instead of a chart per exposure (the page took over 15 s under load)
+    path = _demo_paths(demo)["exam-enema"]
+    page = _visit(signed_in, demo.base_url + path, timeout_ms=SERVICE_TIMEOUT_MS).page
+    try:
+        _wait_for_figures(page, path)
+        assert page.locator("#spectra div.figure").count() == 1
+        assert page.locator("section.exposure div.figure").count() == 0
+        exposures = page.locator("section.exposure").count()
+        assert exposures > 3
+        assert page.get_by_text("Its spectrum is beam").count() == exposures
+        assert "Reported by the modality" in page.inner_text("main")
+    finally:
+        page.close()
+
+
+def test_demo_pages_read_in_words_a_committee_uses(signed_in: Any, demo: _Demo) -> None:
+    # issue #23, page by page: no field names or 16-digit floats, no unit "1", no "Fsd", no
+    # "Beam model = –", one count of exposures, no developer notes, flag kinds in words, the
+    # report's navigation and one word per state
+    import re
+
+    paths = _demo_paths(demo)
+    exam = _main_text(signed_in, demo, paths["exam"])
+    assert not re.search(r"\b[a-z0-9]+_[a-z0-9_]+\s*=", exam)  # hvl1_mm_al = ...
+    assert not re.search(r"(?<![\d.])\d+\.\d{7,}(?![\d.])", exam)  # 3.4437997188749323, not UIDs
+    assert "Fsd" not in exam and "= –" not in exam and "(1)" not in exam
+    assert "from memory" not in exam and "cells written" not in exam
+    assert exam.count("Exposures") == 1 and "Events" not in exam
+    room = _main_text(signed_in, demo, paths["room"])
+    assert not re.search(r"\b(group_above_level|dap_ratio_out_of_tolerance|changepoint)\b", room)
+    report = _visit(signed_in, demo.base_url + paths["report"], timeout_ms=SERVICE_TIMEOUT_MS).page
+    try:
+        nav = report.inner_text("header")
+        assert "Overview of" in nav and "Distributions" in nav and "Flags of" in nav
+        text = report.inner_text("main")
+        assert re.search(r"Open \d+; Acknowledged \d+; Closed \d+", text)
+        assert "in hand" not in text and "seen," not in text
+    finally:
+        report.close()
+
+
+def test_demo_flags_table_keeps_its_triage_column_on_screen(signed_in: Any, demo: _Demo) -> None:
+    # reasons quote Study Instance UIDs; they wrap, so the triage column stays in a 1400 px window
+    page = _visit(signed_in, demo.base_url + "/flags", timeout_ms=SERVICE_TIMEOUT_MS).page
+    try:
+        last = page.locator("table.flags thead th").last
+        assert last.inner_text().strip() == "Triage"
+        box = last.bounding_box()
+        assert box is not None and box["x"] + box["width"] <= 1400, box
+        link = page.locator("table.flags a", has_text="the exam").first.bounding_box()
+        assert link is not None and link["height"] < 30, link  # one line, not broken mid-word
     finally:
         page.close()

@@ -61,6 +61,17 @@ def test_heatmap_names_examinations_from_the_catalogue(demo_groups: Rows) -> Non
     assert "pelvis_ap · DAP (Gy·cm²)" in set(coded.data[0].y)
 
 
+def test_heatmap_keeps_a_paediatric_band_apart_and_names_it(demo_groups: Rows) -> None:
+    # ICRP 135: children of a weight band are judged against their band's level; their row is
+    # their own, named; a band every group of a quantity shares is not repeated on each row
+    pelvis = next(g for g in demo_groups if g["exam_type"] == "pelvis_ap")
+    band = {**pelvis, "patient_group_label": "children 15-<30 kg (ICRP 135 weight band)"}
+    labels = set(_heatmap([pelvis, band]).data[0].y)
+    assert labels == {PELVIS_DAP, PELVIS_DAP.replace(" ·", ", children 15-<30 kg ·", 1)}
+    alone = _heatmap([band]).data[0]
+    assert PELVIS_DAP in {*alone.x, *alone.y}
+
+
 def test_heatmap_cells_are_log2_of_the_largest_ratio(demo_groups: Rows) -> None:
     fig = _heatmap(demo_groups)
     rows = [

@@ -603,3 +603,11 @@ def test_static_files_cover_what_pages_reference(pages: dict[str, str]) -> None:
     assert referenced == {"beamaudit.css", "plotly.min.js"}
     assert referenced <= set(files)
     assert all(path.is_file() for path in files.values())
+
+
+def test_a_room_with_no_monthly_history_still_has_its_page() -> None:
+    # a room whose events the review put in no monthly series (a few unmapped angiographies)
+    from beamaudit.dashboards import render_room
+
+    html = render_room("Angio 9", [])
+    assert "Room Angio 9" in html

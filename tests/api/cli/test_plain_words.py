@@ -56,6 +56,21 @@ def test_review_lines_fit_80_columns_and_name_each_kind_of_level() -> None:
     assert "knee" not in text  # a group without a level is not listed
 
 
+def test_a_paediatric_band_is_a_block_of_its_own_named_by_its_patients() -> None:
+    # ICRP 135 sets paediatric levels per weight band: the band's group and the adults' group
+    # of one room, examination and quantity are two blocks, the band's saying who its patients are
+    adults = {**GROUP, "quantity": "dap_gy_cm2", "median": 0.0475, "reference_level": 0.1,
+              "level_kind": "local", "status": "below_level", "level_set": "local",
+              "ratio_to_level": 0.475}  # fmt: skip
+    children = {**adults, "median": 0.0228, "reference_level": 0.018, "ratio_to_level": 1.27,
+                "status": "above_level", "patient_group": "weight_15_30kg",
+                "patient_group_label": "children 15-<30 kg"}  # fmt: skip
+    text = "\n".join(group_lines([children, adults], {"chest_pa": "Chest PA"}))
+    assert "HGH-CR1 · Chest PA, children 15-<30 kg · DAP (Gy·cm²)" in text
+    assert "HGH-CR1 · Chest PA · DAP (Gy·cm²)" in text
+    assert "median 0.0475 Gy·cm²" in text and "median 0.0228 Gy·cm²" in text
+
+
 def test_serve_says_which_database_and_how_to_sign_in(tmp_path, capsys, monkeypatch) -> None:
     import uvicorn
 
