@@ -344,6 +344,17 @@ class ReviewParameters:
     ct_size_band_edges_cm: tuple[float, ...] = ()
 
     def __post_init__(self) -> None:
+        problems = [
+            *self._normalise_grouping(),
+            *self._merge_sample_counts(),
+            *self._check_limits(),
+            *self._normalise_flag_rules(),
+        ]
+        if problems:
+            raise ReviewError("bad review parameters: " + "; ".join(problems))
+
+    def _normalise_grouping(self) -> list[str]:
+        """Scope filters, group keys, weight window, size bands and basis: normalised; problems."""
         problems = []
         for name in ("sites", "rooms", "devices", "exam_types"):
             value = getattr(self, name)
@@ -372,6 +383,11 @@ class ReviewParameters:
             object.__setattr__(self, "ct_size_band_edges_cm", edges)
         if self.basis not in ("standard", "all"):
             problems.append("basis must be 'standard' or 'all'")
+        return problems
+
+    def _merge_sample_counts(self) -> list[str]:
+        """Minimum and preferred samples merged over their defaults; problems."""
+        problems = []
         for name, defaults in (
             ("minimum_samples", DEFAULT_MINIMUM_SAMPLES),
             ("preferred_samples", PREFERRED_SAMPLES),
@@ -385,6 +401,11 @@ class ReviewParameters:
                 else:
                     merged[group] = int(n)
             object.__setattr__(self, name, MappingProxyType(merged))
+        return problems
+
+    def _check_limits(self) -> list[str]:
+        """Problems of the numeric limits (age, standard weight, rooms, fractions, percentiles)."""
+        problems = []
         if not self.paediatric_age_limit_years > 0:
             problems.append("paediatric_age_limit_years must be positive")
         if not (self.standard_mean_weight_kg > 0 and self.standard_mean_weight_tolerance_kg >= 0):
@@ -409,6 +430,11 @@ class ReviewParameters:
             problems.append("dap_ratio_tolerance must be between 0 and 1")
         if self.dap_ratio_min_events < 1:
             problems.append("dap_ratio_min_events must be at least 1")
+        return problems
+
+    def _normalise_flag_rules(self) -> list[str]:
+        """DI range, SRDL thresholds and modalities, CUSUM: normalised; problems."""
+        problems = []
         di_low, di_high = (float(v) for v in self.di_range)
         if not di_low < di_high:
             problems.append("di_range must be (low, high) with low < high")
@@ -429,8 +455,7 @@ class ReviewParameters:
             problems.append("cusum_k and cusum_h must be positive")
         if self.cusum_baseline_months < 2 or self.changepoint_lookback_months < 0:
             problems.append("cusum_baseline_months must be >= 2, changepoint_lookback_months >= 0")
-        if problems:
-            raise ReviewError("bad review parameters: " + "; ".join(problems))
+        return problems
 
     @classmethod
     def for_month(cls, year: int, month: int, **kwargs: Any) -> ReviewParameters:
