@@ -627,16 +627,26 @@ def _group_table(
     bands: PatientGroups,
 ) -> tuple[pd.DataFrame, np.ndarray, np.ndarray]:
     """The group table, each unit's group code, and each group's upper percentile."""
-    keys = list(fl.GROUP_KEYS)
+    if len(units) == 0:
+        return pd.DataFrame(columns=list(GROUP_COLUMNS)), np.zeros(0, np.int64), np.zeros(0)
+    codes, table = group_codes(units, list(fl.GROUP_KEYS))
+    upper = _add_group_statistics(table, units, codes, params)
+    _add_sample_checks(table, catalogue, params)
+    _add_mean_weight_check(table, params, bands)
+    return _with_levels(table, levels), codes, upper
+
+
+def _add_group_statistics(
+    table: pd.DataFrame, units: pd.DataFrame, codes: np.ndarray, params: ReviewParameters
+) -> np.ndarray:
+    """Add the counts, the median statistics and the mean weight to ``table`` (in place);
+    return each group's upper percentile."""
+    n_groups = len(table)
     weight = units["patient_weight_kg"].to_numpy(dtype=np.float64)
     low, high = params.weight_window_kg
     standard = (weight >= low) & (weight <= high)
     banded = units["patient_group"].notna().to_numpy()
     used = (standard | banded) if params.basis == "standard" else np.ones(len(units), dtype=bool)
-    if len(units) == 0:
-        return pd.DataFrame(columns=list(GROUP_COLUMNS)), np.zeros(0, np.int64), np.zeros(0)
-    codes, table = group_codes(units, keys)
-    n_groups = len(table)
     table["n"] = np.bincount(codes, minlength=n_groups).astype(np.int64)
     values = units["value"].to_numpy(dtype=np.float64)
     stats = group_statistics(
@@ -664,6 +674,13 @@ def _group_table(
     weight_n = np.bincount(codes, weights=has_weight, minlength=n_groups)
     with np.errstate(invalid="ignore", divide="ignore"):
         table["mean_weight_kg"] = np.where(weight_n > 0, weight_sum / weight_n, np.nan)
+    return stats.upper
+
+
+def _add_sample_checks(
+    table: pd.DataFrame, catalogue: ExamCatalogue, params: ReviewParameters
+) -> None:
+    """Add each group's modality group, level basis, unit and sample-size check (in place)."""
     exam = {t.exam_type: t for t in catalogue}
     table["modality_group"] = table["exam_type"].map(lambda e: exam[e].modality_group)
     table["level_applies_per"] = table["exam_type"].map(lambda e: exam[e].level_applies_per)
@@ -676,6 +693,13 @@ def _group_table(
     table["sample_check"] = sample_checks(
         table["n_used"].to_numpy(), table["n_minimum"].to_numpy(), table["n_preferred"].to_numpy()
     )
+
+
+def _add_mean_weight_check(
+    table: pd.DataFrame, params: ReviewParameters, bands: PatientGroups
+) -> None:
+    """Add the mean-weight check against the standard patient and the patient group's label."""
+    group_banded = table["patient_group"].notna().to_numpy()
     mean_weight = table["mean_weight_kg"].to_numpy(dtype=np.float64)
     with np.errstate(invalid="ignore"):
         near = (
@@ -690,7 +714,11 @@ def _group_table(
     table["patient_group_label"] = [
         None if g is None else bands.label(g) for g in table["patient_group"].tolist()
     ]
-    table["_group"] = np.arange(n_groups)
+
+
+def _with_levels(table: pd.DataFrame, levels: pd.DataFrame) -> pd.DataFrame:
+    """One row per group and applicable level (local first), with its ratio and status."""
+    table["_group"] = np.arange(len(table))
     merged = table.merge(
         _applicable_levels(table, levels).drop(columns=["exam_type", "quantity"]),
         on="_group",
@@ -721,7 +749,7 @@ def _group_table(
         "level_clinical_indication",
     ):
         out[c] = out[c].astype(object).where(out[c].notna(), None)
-    return out, codes, stats.upper
+    return out
 
 
 def _applicable_levels(keys: pd.DataFrame, levels: pd.DataFrame) -> pd.DataFrame:
