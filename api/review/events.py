@@ -154,26 +154,8 @@ def _bad_ids(frame: pd.DataFrame, mask: np.ndarray) -> str:
     return ", ".join(str(i) for i in ids) + (f" and {more} more" if more > 0 else "")
 
 
-def prepare_events(events: pd.DataFrame) -> pd.DataFrame:
-    """Check ``events`` against the contract and return a typed copy sorted by ``event_id``.
-
-    Text columns become ``object`` with ``None`` for missing (the :data:`KEY_COLUMNS` become
-    categoricals, so that grouping on them is fast), float columns ``float64``,
-    ``event_datetime`` naive UTC ``datetime64[ns]``, plus an integer ``month_key``
-    (``year * 12 + month - 1``) and an integer ``study_code`` per study. Sorting by ``event_id``
-    makes every later step independent of the order rows arrive in, so the same events always give
-    the same review.
-
-    Raises
-    ------
-    ReviewInputError
-        Missing columns, missing or repeated event ids, missing study UIDs or times, non-numeric
-        or negative values (naming up to five offending event ids).
-    """
-    missing = [c for c in EVENT_COLUMNS if c not in events.columns]
-    if missing:
-        raise ReviewInputError(f"the events table lacks the column(s) {', '.join(missing)}")
-    out = pd.DataFrame(index=pd.RangeIndex(len(events)))
+def _add_ids_and_times(out: pd.DataFrame, events: pd.DataFrame) -> None:
+    """Add the checked ``event_id`` and ``event_datetime`` (naive UTC) columns to ``out``."""
     ids = pd.to_numeric(events["event_id"].reset_index(drop=True), errors="coerce")
     if ids.isna().any() or (len(ids) and not np.all(np.mod(ids.to_numpy(dtype=float), 1) == 0)):
         raise ReviewInputError("event_id must be an integer on every row")
@@ -191,6 +173,11 @@ def prepare_events(events: pd.DataFrame) -> pd.DataFrame:
             "event_datetime is missing for event(s) "
             + _bad_ids(out, out["event_datetime"].isna().to_numpy())
         )
+
+
+def _add_text_columns(out: pd.DataFrame, events: pd.DataFrame) -> np.ndarray | None:
+    """Add the text columns (keys as categoricals); return the study codes of an already
+    factorised ``study_uid`` column, else None."""
     study_codes = None
     n_rows = len(events)
     for c in (*TEXT_COLUMNS, "clinical_indication"):
@@ -218,10 +205,12 @@ def prepare_events(events: pd.DataFrame) -> pd.DataFrame:
         else:
             col = col.astype(object)
             out[c] = col.where(col.notna(), None)
-    if out["study_uid"].isna().any():
-        raise ReviewInputError(
-            "study_uid is missing for event(s) " + _bad_ids(out, out["study_uid"].isna().to_numpy())
-        )
+    return study_codes
+
+
+def _add_numbers(out: pd.DataFrame, events: pd.DataFrame) -> None:
+    """Add the float columns, checked numeric, finite, not negative, weights positive."""
+    n_rows = len(events)
     for c in (*FLOAT_COLUMNS, "patient_age_years", "breast_thickness_mm", "ct_dw_cm"):
         if c not in events.columns:
             out[c] = np.full(n_rows, np.nan)
@@ -246,6 +235,10 @@ def prepare_events(events: pd.DataFrame) -> pd.DataFrame:
         raise ReviewInputError(
             f"patient_weight_kg is not positive for event(s) {_bad_ids(out, bad)}"
         )
+
+
+def _sorted_by_event_id(out: pd.DataFrame, study_codes: np.ndarray | None) -> pd.DataFrame:
+    """Add ``month_key``, sort by ``event_id`` and add the integer ``study_code``."""
     dt = out["event_datetime"].dt
     out["month_key"] = (dt.year * 12 + dt.month - 1).astype(np.int64)
     ids = out["event_id"].to_numpy()
@@ -258,6 +251,36 @@ def prepare_events(events: pd.DataFrame) -> pd.DataFrame:
     by = out["study_uid"] if study_codes is None else study_codes  # same partition, faster
     out["study_code"] = pd.factorize(by)[0].astype(np.int64)
     return out
+
+
+def prepare_events(events: pd.DataFrame) -> pd.DataFrame:
+    """Check ``events`` against the contract and return a typed copy sorted by ``event_id``.
+
+    Text columns become ``object`` with ``None`` for missing (the :data:`KEY_COLUMNS` become
+    categoricals, so that grouping on them is fast), float columns ``float64``,
+    ``event_datetime`` naive UTC ``datetime64[ns]``, plus an integer ``month_key``
+    (``year * 12 + month - 1``) and an integer ``study_code`` per study. Sorting by ``event_id``
+    makes every later step independent of the order rows arrive in, so the same events always give
+    the same review.
+
+    Raises
+    ------
+    ReviewInputError
+        Missing columns, missing or repeated event ids, missing study UIDs or times, non-numeric
+        or negative values (naming up to five offending event ids).
+    """
+    missing = [c for c in EVENT_COLUMNS if c not in events.columns]
+    if missing:
+        raise ReviewInputError(f"the events table lacks the column(s) {', '.join(missing)}")
+    out = pd.DataFrame(index=pd.RangeIndex(len(events)))
+    _add_ids_and_times(out, events)
+    study_codes = _add_text_columns(out, events)
+    if out["study_uid"].isna().any():
+        raise ReviewInputError(
+            "study_uid is missing for event(s) " + _bad_ids(out, out["study_uid"].isna().to_numpy())
+        )
+    _add_numbers(out, events)
+    return _sorted_by_event_id(out, study_codes)
 
 
 def _is_text_categorical(col: pd.Series) -> bool:
