@@ -253,7 +253,7 @@ def room_history(session: Session, room: str, *, until: str | None = None) -> pd
 #: standard: IEC 60601-2-43 ± 35 % on K_a,r (as model/skin_dose.py takes it), IEC 60601-2-44 ±
 #: 20 % on CTDIvol and DLP (from memory, medium confidence).
 _DISPLAY_TOLERANCE = {
-    "ref_point_air_kerma_mgy": (0.35, "IEC 60601-2-43"),
+    "reference_point_air_kerma_mgy": (0.35, "IEC 60601-2-43"),
     "ctdivol_mgy": (0.20, "IEC 60601-2-44"),
     "dlp_mgy_cm": (0.20, "IEC 60601-2-44"),
 }

@@ -348,3 +348,22 @@ def test_distributions_read_only_the_chosen_examination(site, store, monkeypatch
     assert r.status_code == 200, r.text[:300]
     assert asked == ["chest_pa"]
     assert "Chest PA" in r.text
+
+
+def test_every_reported_figure_carries_its_display_tolerance() -> None:
+    """A reported CTDIvol, DLP or K_a,r on the exam page comes with the tolerance its standard
+    allows on the displayed value (IEC 60601-2-43: ±35 % for K_a,r; IEC 60601-2-44: ±20 % for
+    CTDIvol and DLP, from memory), under the quantity's one name."""
+    from types import SimpleNamespace
+
+    from beamaudit.api.review.quantities import QUANTITIES
+    from beamaudit.api.web import page_data
+
+    names = ("ctdivol_mgy", "dlp_mgy_cm", "reference_point_air_kerma_mgy")
+    row = SimpleNamespace(**{QUANTITIES[n].column: 10.0 for n in names})
+    figures = page_data._reported_figures(row)  # type: ignore[arg-type]
+    assert set(figures) == set(names)
+    assert "IEC 60601-2-43" in figures["reference_point_air_kerma_mgy"]["source"]
+    assert figures["reference_point_air_kerma_mgy"]["uncertainty"] == pytest.approx(
+        10.0 * 0.35 / 3**0.5
+    )
