@@ -533,8 +533,10 @@ def exams_above_investigation_level(
             f"patient weight {_fmt(weight)} kg" if not math.isnan(weight) else "weight not recorded"
         )
         reason = (
-            f"{_label(quantity)} {_fmt(row['value'])} {unit} of {what} ({_exam_text(row, exam_names)}"
-            f"{_where(row)}; {weight_text}) is " + " and ".join(reasons) + "."
+            f"{_label(quantity)} {_fmt(row['value'])} {unit} of {what} "
+            f"({_exam_text(row, exam_names)}{_where(row)}; {weight_text}) is "
+            + " and ".join(reasons)
+            + "."
         )
         flags.append(
             Flag(
