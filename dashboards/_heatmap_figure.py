@@ -4,6 +4,7 @@ from __future__ import annotations
 
 import math
 from collections.abc import Mapping
+from dataclasses import dataclass
 from typing import Any
 
 import pandas as pd
@@ -82,6 +83,129 @@ def _cell_hover(rows: pd.DataFrame, names: Mapping[str, str] | None) -> str:
     return "<br>".join(lines)
 
 
+@dataclass
+class _Cells:
+    """The grids of the two heatmap traces (rows are y values, columns x values)."""
+
+    z: list[list[Any]]
+    z_few: list[list[Any]]
+    text: list[list[Any]]
+    text_few: list[list[Any]]
+    hover: list[list[Any]]
+    outlines: list[tuple[int, int]]
+
+
+def _add_columns(table: pd.DataFrame, exam_names: Mapping[str, str] | None) -> None:
+    """Add each row's examination-axis label (``column``, with ``_group``) to ``table``."""
+    # a patient group is named where an examination's quantity has groups of more than one
+    # (children of a band beside the adults), not where all its groups share one (mammography's
+    # thickness band): the labels stay short enough for the cells
+    groups = [short_group_label(g) for g in table["patient_group_label"]]
+    table["_group"] = groups
+    kinds = table.groupby(["exam_type", "quantity"])["_group"].transform("nunique")
+    table["column"] = [
+        _label(e, q, exam_names, g if n > 1 else None)
+        for e, q, g, n in zip(table["exam_type"], table["quantity"], groups, kinds, strict=True)
+    ]
+
+
+def _cells(
+    table: pd.DataFrame,
+    x_values: list[Any],
+    y_values: list[Any],
+    *,
+    rooms_across: bool,
+    short: bool,
+    few_words: bool,
+    exam_names: Mapping[str, str] | None,
+) -> _Cells:
+    """Each cell's colour, text and hover: judged ones in the ratio grid, the rest outlined."""
+    shape = (len(y_values), len(x_values))
+    z, z_few = _grid(shape, None), _grid(shape, None)
+    text, text_few, hover = _grid(shape, ""), _grid(shape, ""), _grid(shape, "")
+    outlines = []
+    for (room, column), rows in table.groupby(["room", "column"], sort=False):
+        x, y = (room, column) if rooms_across else (column, room)
+        i, j = y_values.index(y), x_values.index(x)
+        ranked = rows.assign(
+            _rank=rows["status"].map(lambda v: STATUS_LOOK[v].rank),
+            _ratio=rows["ratio_to_level"].fillna(-1.0),
+        ).sort_values(["_rank", "_ratio"], ascending=[True, False])
+        pick = ranked.iloc[0]
+        hover[i][j] = _cell_hover(rows, exam_names)
+        if pick["status"] in _JUDGED and not pd.isna(pick["ratio_to_level"]):
+            ratio = max(float(ranked["ratio_to_level"].max()), 1e-6)
+            z[i][j] = max(-_RATIO_SPAN_LOG2, min(_RATIO_SPAN_LOG2, math.log2(ratio)))
+            text[i][j] = _cell_text(pick, short=short, words=True)
+        else:
+            z_few[i][j] = 0.0
+            text_few[i][j] = _cell_text(pick, short=short, words=few_words)
+            outlines.append((j, i))
+    return _Cells(z, z_few, text, text_few, hover, outlines)
+
+
+def _add_cell_traces(
+    fig: go.Figure,
+    cells: _Cells,
+    x_values: list[Any],
+    y_values: list[Any],
+    *,
+    font: int,
+    colour_bar: bool,
+) -> None:
+    """Add the ratio trace, the too-few trace and the too-few cells' dashed outlines."""
+    common = {
+        "x": x_values,
+        "y": y_values,
+        "customdata": cells.hover,
+        "texttemplate": "%{text}",
+        "hovertemplate": "%{customdata}<extra></extra>",
+        "xgap": 3,
+        "ygap": 3,
+    }
+    ticks = [math.log2(t) for t in RATIO_TICKS]
+    fig.add_trace(
+        go.Heatmap(
+            z=cells.z,
+            text=cells.text,
+            name="Median ÷ level",
+            colorscale=RATIO_SCALE,
+            zmin=-_RATIO_SPAN_LOG2,
+            zmax=_RATIO_SPAN_LOG2,
+            zmid=0.0,
+            showscale=colour_bar,
+            textfont={"size": font, "color": INK},
+            colorbar={
+                "title": {"text": "Median ÷ level", "side": "right"},
+                "tickvals": ticks,
+                "ticktext": [f"{t:g}×" for t in RATIO_TICKS],
+                "thickness": 14,
+            },
+            **common,
+        )
+    )
+    fig.add_trace(
+        go.Heatmap(
+            z=cells.z_few,
+            text=cells.text_few,
+            name="Too few patients",
+            colorscale=[[0.0, TOO_FEW_FILL], [1.0, TOO_FEW_FILL]],
+            showscale=False,
+            textfont={"size": font, "color": _TOO_FEW_TEXT},
+            **common,
+        )
+    )
+    # one assignment: adding shapes one by one re-validates every earlier shape (quadratic)
+    fig.update_layout(
+        shapes=[
+            {"type": "rect", "xref": "x", "yref": "y", "x0": j - 0.46, "x1": j + 0.46,
+             "y0": i - 0.44, "y1": i + 0.44, "layer": "above",
+             "line": {"color": _TOO_FEW_LINE, "width": 1, "dash": "dot"}}
+            for j, i in cells.outlines
+        ]
+    )  # fmt: skip
+
+
 def build_overview_heatmap(
     groups: TableLike,
     *,
@@ -130,16 +254,7 @@ def build_overview_heatmap(
     if table.empty:
         style(fig, title=title, x_title="", y_title="", legend=False)
         return no_data(fig, "No review groups with a reference level in this period")
-    # a patient group is named where an examination's quantity has groups of more than one
-    # (children of a band beside the adults), not where all its groups share one (mammography's
-    # thickness band): the labels stay short enough for the cells
-    groups = [short_group_label(g) for g in table["patient_group_label"]]
-    table["_group"] = groups
-    kinds = table.groupby(["exam_type", "quantity"])["_group"].transform("nunique")
-    table["column"] = [
-        _label(e, q, exam_names, g if n > 1 else None)
-        for e, q, g, n in zip(table["exam_type"], table["quantity"], groups, kinds, strict=True)
-    ]
+    _add_columns(table, exam_names)
     rooms = sorted(table["room"].unique())
     columns = sorted(table["column"].unique(), key=str.lower)
     if rooms_across is None:
@@ -158,77 +273,16 @@ def build_overview_heatmap(
     plot_px = max((width_px or _FIGURE_WIDTH_PX) - labels_px - (170 if colour_bar else 80), 120)
     cell_px = plot_px / len(x_values)
     font, short, few_words = _text_fit(cell_px)
-    shape = (len(y_values), len(x_values))
-    z, z_few = _grid(shape, None), _grid(shape, None)
-    text, text_few, hover = _grid(shape, ""), _grid(shape, ""), _grid(shape, "")
-    outlines = []
-    for (room, column), rows in table.groupby(["room", "column"], sort=False):
-        x, y = (room, column) if rooms_across else (column, room)
-        i, j = y_values.index(y), x_values.index(x)
-        ranked = rows.assign(
-            _rank=rows["status"].map(lambda v: STATUS_LOOK[v].rank),
-            _ratio=rows["ratio_to_level"].fillna(-1.0),
-        ).sort_values(["_rank", "_ratio"], ascending=[True, False])
-        pick = ranked.iloc[0]
-        hover[i][j] = _cell_hover(rows, exam_names)
-        if pick["status"] in _JUDGED and not pd.isna(pick["ratio_to_level"]):
-            ratio = max(float(ranked["ratio_to_level"].max()), 1e-6)
-            z[i][j] = max(-_RATIO_SPAN_LOG2, min(_RATIO_SPAN_LOG2, math.log2(ratio)))
-            text[i][j] = _cell_text(pick, short=short, words=True)
-        else:
-            z_few[i][j] = 0.0
-            text_few[i][j] = _cell_text(pick, short=short, words=few_words)
-            outlines.append((j, i))
-    common = {
-        "x": x_values,
-        "y": y_values,
-        "customdata": hover,
-        "texttemplate": "%{text}",
-        "hovertemplate": "%{customdata}<extra></extra>",
-        "xgap": 3,
-        "ygap": 3,
-    }
-    ticks = [math.log2(t) for t in RATIO_TICKS]
-    fig.add_trace(
-        go.Heatmap(
-            z=z,
-            text=text,
-            name="Median ÷ level",
-            colorscale=RATIO_SCALE,
-            zmin=-_RATIO_SPAN_LOG2,
-            zmax=_RATIO_SPAN_LOG2,
-            zmid=0.0,
-            showscale=colour_bar,
-            textfont={"size": font, "color": INK},
-            colorbar={
-                "title": {"text": "Median ÷ level", "side": "right"},
-                "tickvals": ticks,
-                "ticktext": [f"{t:g}×" for t in RATIO_TICKS],
-                "thickness": 14,
-            },
-            **common,
-        )
+    cells = _cells(
+        table,
+        x_values,
+        y_values,
+        rooms_across=rooms_across,
+        short=short,
+        few_words=few_words,
+        exam_names=exam_names,
     )
-    fig.add_trace(
-        go.Heatmap(
-            z=z_few,
-            text=text_few,
-            name="Too few patients",
-            colorscale=[[0.0, TOO_FEW_FILL], [1.0, TOO_FEW_FILL]],
-            showscale=False,
-            textfont={"size": font, "color": _TOO_FEW_TEXT},
-            **common,
-        )
-    )
-    # one assignment: adding shapes one by one re-validates every earlier shape (quadratic)
-    fig.update_layout(
-        shapes=[
-            {"type": "rect", "xref": "x", "yref": "y", "x0": j - 0.46, "x1": j + 0.46,
-             "y0": i - 0.44, "y1": i + 0.44, "layer": "above",
-             "line": {"color": _TOO_FEW_LINE, "width": 1, "dash": "dot"}}
-            for j, i in outlines
-        ]
-    )  # fmt: skip
+    _add_cell_traces(fig, cells, x_values, y_values, font=font, colour_bar=colour_bar)
     _axes(fig, x_values, y_values, rooms_across=rooms_across, cell_px=cell_px)
     return fig
 

@@ -12,6 +12,7 @@ from collections.abc import Mapping, Sequence
 from datetime import UTC, datetime
 from typing import Any
 
+import pandas as pd
 import plotly.graph_objects as go
 
 from beamaudit.dashboards import _exam_page, _rows, _web, figures
@@ -96,38 +97,9 @@ def render_committee_report(
     catalogue = ExamTypes(exam_types)
     rows = _rows.group_rows(table, None, catalogue.names)
     stamp = (generated_at or datetime.now(UTC)).astimezone(UTC)
-    applied = (
-        table[table["reference_level"].notna()]
-        .drop_duplicates(["level_set", "level_kind", "exam_type", "quantity", "reference_level"])
-        .assign(_name=lambda t: t["exam_type"].map(catalogue.name))
-        .sort_values(["level_kind", "level_set", "_name", "quantity"])
-    )
-    levelled = table[table["status"] != "no_level"]
-    heatmap = None
-    if not levelled.empty:
-        heatmap = _report_figure(
-            figures.build_overview_heatmap(
-                table,
-                title="Median ÷ reference level",
-                exam_names=catalogue.names,
-                width_px=_REPORT_WIDTH_PX,
-                colour_bar=False,  # the key above the figure names the colours
-            ),
-            "report-heatmap",
-        )
-    blocks: list[tuple[str, str, _web.FigureBlock]] = []
-    if events is not None:
-        event_table = EVENTS.validate(events)
-        concern = table[table["status"].isin(["above_level", "possibly_above"])]
-        pairs = sorted(set(zip(concern["exam_type"], concern["quantity"], strict=True)))
-        level_table = LEVELS.validate(table)
-        for k, (exam, q) in enumerate(p for p in pairs if p[1] in figures.EVENT_QUANTITIES):
-            block = _rows.distribution_block(
-                event_table, level_table, exam_type=exam, quantity=q, catalogue=catalogue,
-                log_y=False, static=True, width_px=_REPORT_WIDTH_PX, fig_id=f"report-dist-{k}",
-            )  # fmt: skip
-            if block is not None:
-                blocks.append((exam, q, block))
+    applied = _applied_levels(table, catalogue)
+    heatmap = _report_heatmap(table, catalogue)
+    blocks = _distribution_blocks(events, table, catalogue) if events is not None else []
     flag_table = FLAGS.validate(flags if flags is not None else [])
     period_flags = _rows.flag_rows(flag_table, catalogue.names, period=period)
     lines = None
@@ -155,16 +127,7 @@ def render_committee_report(
         key=heatmap_key(),
         blocks=blocks,
         attention=lines,
-        level_rows=[
-            {
-                "set": r["level_set"] or "(unnamed)",
-                "kind": LEVEL_KIND_WORDS.get(r["level_kind"], "–"),
-                "exam_type": catalogue.name(r["exam_type"]),
-                "quantity": quantity_short(r["quantity"]),
-                "value": format_level(r["reference_level"]),
-            }
-            for _, r in applied.iterrows()
-        ],
+        level_rows=_level_rows(applied, catalogue),
         flag_rows=[r for r in period_flags if r["status"] != "closed"],
         followup=(
             _exam_page.followup_report_view(followup, catalogue.names)
@@ -180,6 +143,66 @@ def render_committee_report(
         flags_href=_web.flags_href(period=period),
         distributions_href=_web.distributions_href(period=period),
     )
+
+
+def _applied_levels(table: pd.DataFrame, catalogue: ExamTypes) -> pd.DataFrame:
+    """One row per level applied in the period (by kind, set, examination name, quantity)."""
+    return (
+        table[table["reference_level"].notna()]
+        .drop_duplicates(["level_set", "level_kind", "exam_type", "quantity", "reference_level"])
+        .assign(_name=lambda t: t["exam_type"].map(catalogue.name))
+        .sort_values(["level_kind", "level_set", "_name", "quantity"])
+    )
+
+
+def _level_rows(applied: pd.DataFrame, catalogue: ExamTypes) -> list[dict[str, Any]]:
+    """The report's table of the levels applied, in words."""
+    return [
+        {
+            "set": r["level_set"] or "(unnamed)",
+            "kind": LEVEL_KIND_WORDS.get(r["level_kind"], "–"),
+            "exam_type": catalogue.name(r["exam_type"]),
+            "quantity": quantity_short(r["quantity"]),
+            "value": format_level(r["reference_level"]),
+        }
+        for _, r in applied.iterrows()
+    ]
+
+
+def _report_heatmap(table: pd.DataFrame, catalogue: ExamTypes) -> _web.FigureBlock | None:
+    """The median ÷ level heatmap at the report's width, or None when no group has a level."""
+    levelled = table[table["status"] != "no_level"]
+    if levelled.empty:
+        return None
+    return _report_figure(
+        figures.build_overview_heatmap(
+            table,
+            title="Median ÷ reference level",
+            exam_names=catalogue.names,
+            width_px=_REPORT_WIDTH_PX,
+            colour_bar=False,  # the key above the figure names the colours
+        ),
+        "report-heatmap",
+    )
+
+
+def _distribution_blocks(
+    events: TableLike, table: pd.DataFrame, catalogue: ExamTypes
+) -> list[tuple[str, str, _web.FigureBlock]]:
+    """A distribution figure per examination and quantity above, or possibly above, a level."""
+    blocks: list[tuple[str, str, _web.FigureBlock]] = []
+    event_table = EVENTS.validate(events)
+    concern = table[table["status"].isin(["above_level", "possibly_above"])]
+    pairs = sorted(set(zip(concern["exam_type"], concern["quantity"], strict=True)))
+    level_table = LEVELS.validate(table)
+    for k, (exam, q) in enumerate(p for p in pairs if p[1] in figures.EVENT_QUANTITIES):
+        block = _rows.distribution_block(
+            event_table, level_table, exam_type=exam, quantity=q, catalogue=catalogue,
+            log_y=False, static=True, width_px=_REPORT_WIDTH_PX, fig_id=f"report-dist-{k}",
+        )  # fmt: skip
+        if block is not None:
+            blocks.append((exam, q, block))
+    return blocks
 
 
 def _report_figure(fig: go.Figure, fig_id: str) -> _web.FigureBlock:

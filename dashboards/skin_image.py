@@ -102,10 +102,8 @@ def render_skin_dose_png(
         A record that does not meet the contract.
     """
     from matplotlib.backends.backend_agg import FigureCanvasAgg
-    from matplotlib.cm import ScalarMappable
     from matplotlib.colors import LinearSegmentedColormap, Normalize
     from matplotlib.figure import Figure
-    from matplotlib.lines import Line2D
 
     data = _parse(record)
     width_px, height_px = SKIN_DOSE_PNG_SIZE_PX
@@ -132,62 +130,111 @@ def render_skin_dose_png(
     for k, (side, cells) in enumerate((("back", slice(0, half)), ("front", slice(half, None)))):
         ax = fig.add_axes((0.10 + k * (panel_w + _GAP), bottom, panel_w, panel_h))
         axes.append(ax)
-        x = _panel_x(data["around_cm"][cells], data["perimeter_cm"], side)
-        order = np.argsort(x)
-        x = x[order]
-        z = data["dose_gy"][:, cells][:, order]
-        mesh = ax.pcolormesh(
-            _edges(x), _edges(data["along_cm"]), z, cmap=cmap, norm=norm, shading="flat"
-        )
-        mesh.set_rasterized(True)
-        for level in reached:
-            colour, dash, width = _ISODOSE_LOOK.get(level, _ISODOSE_LOOK[5.0])
-            if np.nanmax(z) < level:
-                continue
-            lines_ = ax.contour(
-                x,
-                data["along_cm"],
-                z,
-                levels=[level],
-                colors=[colour],
-                linewidths=[width * 0.8],
-                linestyles=[_DASHES.get(dash, "solid")],
-            )
-            ax.clabel(lines_, fmt=lambda v: f"{v:g} Gy", fontsize=7, inline=True)
-        ox, oy = _outline(quarter, height_cm)
-        ax.plot(ox, oy, color=_OUTLINE_GREY, linewidth=1.0)
-        ax.set_xlim(-quarter * 1.05, quarter * 1.05)
-        ax.set_ylim(height_cm * 1.02, -height_cm * 0.02)  # head at the top
-        ax.set_aspect("equal", adjustable="box")
-        ax.tick_params(labelsize=7, colors=_INK)
-        ax.set_xlabel("cm from the midline", fontsize=8, color=_INK, labelpad=2)
-        title = (
-            "BACK (posterior)\nseen from behind"
-            if side == "back"
-            else "FRONT (anterior)\nseen from the front"
-        )
-        ax.set_title(title, fontsize=10, color=_INK, pad=16)
-        # the patient's sides as the reader sees them (DEVELOPERS.md, skin-dose maps)
-        left_word, right_word = ("patient's LEFT", "patient's RIGHT")
-        if side == "front":
-            left_word, right_word = right_word, left_word
-        for xpos, word, align in ((0.0, left_word, "left"), (1.0, right_word, "right")):
-            ax.text(xpos, 1.005, word, transform=ax.transAxes, ha=align, va="bottom",
-                    fontsize=7.5, color=_INK)  # fmt: skip
-        ax.text(0.5, 0.995, "HEAD", transform=ax.transAxes, ha="center", va="top",
-                fontsize=8, color=_INK, weight="bold")  # fmt: skip
-        ax.text(0.5, 0.005, "FEET", transform=ax.transAxes, ha="center", va="bottom",
-                fontsize=8, color=_INK, weight="bold")  # fmt: skip
+        _draw_side(ax, side, data, cells, cmap=cmap, norm=norm, reached=reached)
     axes[0].set_ylabel("cm below the top of the head", fontsize=8, color=_INK)
     cax = fig.add_axes((0.10 + 2 * panel_w + _GAP + 0.05, bottom + 0.1, 0.022, panel_h - 0.2))
+    _draw_colour_bar(fig, cax, data["levels_gy"], cmap=cmap, norm=norm, zmax=zmax)
+    peak_px = _mark_peak(fig, axes, data, half, canvas)
+    _write_legend_and_words(fig, data, heading, lines, reached=reached, bottom=bottom)
+    buffer = io.BytesIO()
+    canvas.print_png(buffer)
+    png = buffer.getvalue()
+    boxes = tuple(
+        (float(b.x0), float(height_px - b.y1), float(b.x1), float(height_px - b.y0))
+        for b in (ax.get_window_extent() for ax in axes)
+    )
+    return SkinDoseImage(png, width_px, height_px, peak_px, boxes)
+
+
+def _draw_side(
+    ax: Any,
+    side: str,
+    data: dict[str, Any],
+    cells: slice,
+    *,
+    cmap: Any,
+    norm: Any,
+    reached: list[float],
+) -> None:
+    """One side of the body unrolled (``back`` seen from behind, ``front`` from the front):
+    the dose, the isodose lines the skin reached, the outline and the orientation words."""
+    quarter = data["perimeter_cm"] / 4.0
+    height_cm = data["height_cm"]
+    x = _panel_x(data["around_cm"][cells], data["perimeter_cm"], side)
+    order = np.argsort(x)
+    x = x[order]
+    z = data["dose_gy"][:, cells][:, order]
+    mesh = ax.pcolormesh(
+        _edges(x), _edges(data["along_cm"]), z, cmap=cmap, norm=norm, shading="flat"
+    )
+    mesh.set_rasterized(True)
+    for level in reached:
+        colour, dash, width = _ISODOSE_LOOK.get(level, _ISODOSE_LOOK[5.0])
+        if np.nanmax(z) < level:
+            continue
+        lines_ = ax.contour(
+            x,
+            data["along_cm"],
+            z,
+            levels=[level],
+            colors=[colour],
+            linewidths=[width * 0.8],
+            linestyles=[_DASHES.get(dash, "solid")],
+        )
+        ax.clabel(lines_, fmt=lambda v: f"{v:g} Gy", fontsize=7, inline=True)
+    ox, oy = _outline(quarter, height_cm)
+    ax.plot(ox, oy, color=_OUTLINE_GREY, linewidth=1.0)
+    ax.set_xlim(-quarter * 1.05, quarter * 1.05)
+    ax.set_ylim(height_cm * 1.02, -height_cm * 0.02)  # head at the top
+    ax.set_aspect("equal", adjustable="box")
+    ax.tick_params(labelsize=7, colors=_INK)
+    ax.set_xlabel("cm from the midline", fontsize=8, color=_INK, labelpad=2)
+    title = (
+        "BACK (posterior)\nseen from behind"
+        if side == "back"
+        else "FRONT (anterior)\nseen from the front"
+    )
+    ax.set_title(title, fontsize=10, color=_INK, pad=16)
+    # the patient's sides as the reader sees them (DEVELOPERS.md, skin-dose maps)
+    left_word, right_word = ("patient's LEFT", "patient's RIGHT")
+    if side == "front":
+        left_word, right_word = right_word, left_word
+    for xpos, word, align in ((0.0, left_word, "left"), (1.0, right_word, "right")):
+        ax.text(xpos, 1.005, word, transform=ax.transAxes, ha=align, va="bottom",
+                fontsize=7.5, color=_INK)  # fmt: skip
+    ax.text(0.5, 0.995, "HEAD", transform=ax.transAxes, ha="center", va="top",
+            fontsize=8, color=_INK, weight="bold")  # fmt: skip
+    ax.text(0.5, 0.005, "FEET", transform=ax.transAxes, ha="center", va="bottom",
+            fontsize=8, color=_INK, weight="bold")  # fmt: skip
+
+
+def _draw_colour_bar(
+    fig: Any, cax: Any, levels_gy: Sequence[float], *, cmap: Any, norm: Any, zmax: float
+) -> None:
+    """The colour scale in Gy, with the follow-up levels marked in their isodose colours."""
+    from matplotlib.cm import ScalarMappable
+
     bar = fig.colorbar(ScalarMappable(norm, cmap), cax=cax)
     bar.set_label("Skin dose (Gy)", fontsize=9, color=_INK)
     bar.ax.tick_params(labelsize=7)
-    for level in data["levels_gy"]:
+    for level in levels_gy:
         if level <= zmax:
             colour, _, _ = _ISODOSE_LOOK.get(level, _ISODOSE_LOOK[5.0])
             bar.ax.axhline(level, color=colour, linewidth=2.0)
-    peak_px = _mark_peak(fig, axes, data, half, canvas)
+
+
+def _write_legend_and_words(
+    fig: Any,
+    data: dict[str, Any],
+    heading: str,
+    lines: Sequence[str],
+    *,
+    reached: list[float],
+    bottom: float,
+) -> None:
+    """The isodose legend, the heading and its lines, the note on the model and the caution."""
+    from matplotlib.lines import Line2D
+
     handles = [
         Line2D([], [], color=_ISODOSE_LOOK.get(v, _ISODOSE_LOOK[5.0])[0],
                linestyle=_DASHES.get(_ISODOSE_LOOK.get(v, _ISODOSE_LOOK[5.0])[1], "solid"),
@@ -213,14 +260,6 @@ def render_skin_dose_png(
     )
     fig.text(0.05, 0.085, _wrap(note, 120), fontsize=8, color=_INK, va="top")
     fig.text(0.05, 0.05, _wrap(CAUTION, 120), fontsize=8, color=_INK, va="top", style="italic")
-    buffer = io.BytesIO()
-    canvas.print_png(buffer)
-    png = buffer.getvalue()
-    boxes = tuple(
-        (float(b.x0), float(height_px - b.y1), float(b.x1), float(height_px - b.y0))
-        for b in (ax.get_window_extent() for ax in axes)
-    )
-    return SkinDoseImage(png, width_px, height_px, peak_px, boxes)
 
 
 def _mark_peak(

@@ -416,6 +416,185 @@ def _official(notes: list[str], name: str, lookup: Any, *args: Any) -> float | N
     return float(value)
 
 
+@dataclass(frozen=True)
+class _Factors:
+    """The factors chosen for one exposure: official where covered, else the Monte Carlo's."""
+
+    g: float
+    c: float
+    s: float
+    tomo: float | None
+    official: tuple[float | None, float | None, float | None, float | None]  # g, c, s, T
+    notes: list[str]
+
+
+def _trail_technique(trail: WhyTrail, beam: BreastBeam) -> None:
+    """Record the technique, the beam model's assumptions and the first HVL in the trail."""
+    t = beam.technique
+    trail.add("kvp_kv", t.kv, "kV", equation="given", source="technique")
+    trail.add("target_filter", t.target_filter, "", equation="given", source="technique")
+    trail.add("thickness_mm", t.thickness_mm, "mm", equation="given", source="technique")
+    for note in beam.assumptions:
+        trail.add(
+            "beam_model",
+            None,
+            "",
+            equation="assumption of the beam model",
+            source="beamaudit.model.mammography",
+            assumed=True,
+            note=note,
+        )
+    trail.add(
+        "hvl1_mm_al",
+        beam.hvl1_mm_al,
+        "mm Al",
+        equation="first HVL of the spectrum with the paddle (root of K(t) = K(0)/2)",
+        source="beamaudit beam model",
+        inputs={"layers": [f.as_dict() for f in beam.layers]},
+    )
+
+
+def _incident_air_kerma(
+    beam: BreastBeam,
+    exposure_mas: float | None,
+    incident_air_kerma_mgy: float | None,
+    trail: WhyTrail,
+) -> tuple[float, float]:
+    """K and its standard uncertainty, mGy: given, or from the beam's output and the mAs."""
+    if incident_air_kerma_mgy is not None:
+        k = float(incident_air_kerma_mgy)
+        if not (math.isfinite(k) and k > 0):
+            raise ModelError(f"incident air kerma {incident_air_kerma_mgy} mGy is not positive")
+        trail.add("incident_air_kerma_mgy", k, "mGy", equation="given", source="caller")
+        return k, 0.0
+    if exposure_mas is None:
+        raise ModelError("either the exposure in mAs or the incident air kerma is needed")
+    mas = float(exposure_mas)
+    if not (math.isfinite(mas) and mas > 0):
+        raise ModelError(f"exposure {exposure_mas} mAs is not a positive number")
+    k = beam.air_kerma_per_mas_mgy * mas
+    u_k = beam.air_kerma_per_mas_uncertainty_mgy * mas
+    trail.add(
+        "incident_air_kerma_mgy",
+        k,
+        "mGy",
+        equation="K = Y(1 m) · mAs · (1000 mm / r_ref)², r_ref = √((d_support − T)² + 60²)",
+        source="inverse-square law; reference point of the UK and European protocols",
+        inputs={
+            "output_ugy_per_mas_1m": beam.beam.output_ugy_per_mas_1m,
+            "exposure_mas": mas,
+            "reference_distance_mm": beam.reference_distance_mm,
+            "standard_uncertainty_mgy": u_k,
+        },
+    )
+    return k, u_k
+
+
+def _choose_factors(
+    beam: BreastBeam,
+    mc: DanceFactors,
+    gw: float,
+    tomosynthesis: TomosynthesisAcquisition | None,
+    official: OfficialCoefficients | None,
+) -> _Factors:
+    """g, c, s (and T) from the official table where it covers them, else the Monte Carlo's."""
+    t = beam.technique
+    hvl = beam.hvl1_mm_al
+    notes: list[str] = []
+    g_off = c_off = s_off = t_off = None
+    if official is not None:
+        g_off = _official(notes, "g", official.g, hvl, t.thickness_mm)
+        c_off = _official(notes, "c", official.c, hvl, t.thickness_mm, gw)
+        s_off = _official(
+            notes, f"s of {t.target_filter}", official.s, t.target_filter, t.thickness_mm
+        )
+        if tomosynthesis is not None:
+            t_off = _official(
+                notes,
+                f"T of {tomosynthesis.label or 'the acquisition'}",
+                official.tomo_factor,
+                tomosynthesis.label,
+                t.thickness_mm,
+            )
+    return _Factors(
+        g=g_off if g_off is not None else mc.g,
+        c=c_off if c_off is not None else mc.c,
+        s=s_off if s_off is not None else mc.s,
+        tomo=None if tomosynthesis is None else (t_off if t_off is not None else mc.tomo),
+        official=(g_off, c_off, s_off, t_off),
+        notes=notes,
+    )
+
+
+def _trail_factors(
+    trail: WhyTrail,
+    factors: _Factors,
+    mc: DanceFactors,
+    gw: float,
+    hvl: float,
+    tomosynthesis: TomosynthesisAcquisition | None,
+    official: OfficialCoefficients | None,
+) -> None:
+    """Record g, c, s (and T) in the trail, each with its source and the Monte Carlo's value."""
+    g_off, c_off, s_off, t_off = factors.official
+    mc_source = (
+        f"beamaudit Monte Carlo (model/data/breast_dgn_mc.csv); reference {mc.reference_beam}"
+    )
+    for name, value, official_value, mc_value in (
+        ("g", factors.g, g_off, mc.g),
+        ("c", factors.c, c_off, mc.c),
+        ("s", factors.s, s_off, mc.s),
+    ):
+        trail.add(
+            name,
+            value,
+            "1",
+            equation={
+                "g": "D_G/K, 50 % glandular, reference beam of the same HVL",
+                "c": "D_G/K(glandularity) / D_G/K(50 %), reference beam",
+                "s": "D_G/K(this beam) / D_G/K(reference beam)",
+            }[name],
+            source=official.describe() if official_value is not None and official else mc_source,
+            inputs={"monte_carlo": mc_value, "glandularity": gw, "hvl1_mm_al": hvl},
+        )
+    if factors.tomo is not None:
+        assert tomosynthesis is not None
+        trail.add(
+            "tomo_factor",
+            factors.tomo,
+            "1",
+            equation="T = Σ α_i t(θ_i), t folded with the spectrum",
+            source=official.describe()
+            if t_off is not None and official
+            else "beamaudit Monte Carlo (model/data/breast_tomo_t_mc.csv), Dance et al. 2011",
+            inputs={
+                "angles_deg": list(tomosynthesis.angles_deg),
+                "shares": list(tomosynthesis.shares()),
+                "monte_carlo": mc.tomo,
+            },
+        )
+
+
+def _assumptions(trail: WhyTrail, notes: list[str], mc: DanceFactors) -> list[str]:
+    """The trail's assumptions, the official table's notes and the below-8-keV note."""
+    assumptions = list(trail.assumptions)
+    assumptions.extend(notes)
+    if mc.below_table_kerma_fraction > 1e-3:
+        assumptions.append(
+            f"{100 * mc.below_table_kerma_fraction:.1f} % of K is carried by photons below "
+            "8 keV, given the 8 keV coefficient (an upper bound)"
+        )
+    return assumptions
+
+
+def _monte_carlo_summary(mc: DanceFactors, k: float) -> dict[str, float]:
+    """The Monte Carlo's g, c, s, D_G (and T) to show beside the factors used."""
+    monte_carlo = {"g": mc.g, "c": mc.c, "s": mc.s, "mgd_mgy": k * mc.dgn * (mc.tomo or 1.0)}
+    if mc.tomo is not None:
+        monte_carlo["tomo_factor"] = mc.tomo
+    return monte_carlo
+
+
 def mean_glandular_dose(
     technique: MammographyTechnique,
     *,
@@ -458,160 +637,49 @@ def mean_glandular_dose(
     """
     trail = WhyTrail()
     beam = breast_beam(technique, calibration=calibration)
-    t = technique
-    trail.add("kvp_kv", t.kv, "kV", equation="given", source="technique")
-    trail.add("target_filter", t.target_filter, "", equation="given", source="technique")
-    trail.add("thickness_mm", t.thickness_mm, "mm", equation="given", source="technique")
-    for note in beam.assumptions:
-        trail.add(
-            "beam_model",
-            None,
-            "",
-            equation="assumption of the beam model",
-            source="beamaudit.model.mammography",
-            assumed=True,
-            note=note,
-        )
-    trail.add(
-        "hvl1_mm_al",
-        beam.hvl1_mm_al,
-        "mm Al",
-        equation="first HVL of the spectrum with the paddle (root of K(t) = K(0)/2)",
-        source="beamaudit beam model",
-        inputs={"layers": [f.as_dict() for f in beam.layers]},
-    )
-    if incident_air_kerma_mgy is not None:
-        k = float(incident_air_kerma_mgy)
-        if not (math.isfinite(k) and k > 0):
-            raise ModelError(f"incident air kerma {incident_air_kerma_mgy} mGy is not positive")
-        u_k = 0.0
-        trail.add("incident_air_kerma_mgy", k, "mGy", equation="given", source="caller")
-    else:
-        if exposure_mas is None:
-            raise ModelError("either the exposure in mAs or the incident air kerma is needed")
-        mas = float(exposure_mas)
-        if not (math.isfinite(mas) and mas > 0):
-            raise ModelError(f"exposure {exposure_mas} mAs is not a positive number")
-        k = beam.air_kerma_per_mas_mgy * mas
-        u_k = beam.air_kerma_per_mas_uncertainty_mgy * mas
-        trail.add(
-            "incident_air_kerma_mgy",
-            k,
-            "mGy",
-            equation="K = Y(1 m) · mAs · (1000 mm / r_ref)², r_ref = √((d_support − T)² + 60²)",
-            source="inverse-square law; reference point of the UK and European protocols",
-            inputs={
-                "output_ugy_per_mas_1m": beam.beam.output_ugy_per_mas_1m,
-                "exposure_mas": mas,
-                "reference_distance_mm": beam.reference_distance_mm,
-                "standard_uncertainty_mgy": u_k,
-            },
-        )
-    gw = _choose_glandularity(t.thickness_mm, glandularity, age_years, trail)
+    _trail_technique(trail, beam)
+    k, u_k = _incident_air_kerma(beam, exposure_mas, incident_air_kerma_mgy, trail)
+    gw = _choose_glandularity(technique.thickness_mm, glandularity, age_years, trail)
     mc = dance_factors(beam, glandularity=gw, tomosynthesis=tomosynthesis)
-    notes: list[str] = []
     hvl = beam.hvl1_mm_al
-    g_off = c_off = s_off = t_off = None
-    if official is not None:
-        g_off = _official(notes, "g", official.g, hvl, t.thickness_mm)
-        c_off = _official(notes, "c", official.c, hvl, t.thickness_mm, gw)
-        s_off = _official(
-            notes, f"s of {t.target_filter}", official.s, t.target_filter, t.thickness_mm
-        )
-        if tomosynthesis is not None:
-            t_off = _official(
-                notes,
-                f"T of {tomosynthesis.label or 'the acquisition'}",
-                official.tomo_factor,
-                tomosynthesis.label,
-                t.thickness_mm,
-            )
-    g = g_off if g_off is not None else mc.g
-    c = c_off if c_off is not None else mc.c
-    s = s_off if s_off is not None else mc.s
-    tomo = None if tomosynthesis is None else (t_off if t_off is not None else mc.tomo)
-    mc_source = (
-        f"beamaudit Monte Carlo (model/data/breast_dgn_mc.csv); reference {mc.reference_beam}"
-    )
-    for name, value, official_value, mc_value in (
-        ("g", g, g_off, mc.g),
-        ("c", c, c_off, mc.c),
-        ("s", s, s_off, mc.s),
-    ):
-        trail.add(
-            name,
-            value,
-            "1",
-            equation={
-                "g": "D_G/K, 50 % glandular, reference beam of the same HVL",
-                "c": "D_G/K(glandularity) / D_G/K(50 %), reference beam",
-                "s": "D_G/K(this beam) / D_G/K(reference beam)",
-            }[name],
-            source=official.describe() if official_value is not None and official else mc_source,
-            inputs={"monte_carlo": mc_value, "glandularity": gw, "hvl1_mm_al": hvl},
-        )
-    if tomo is not None:
-        assert tomosynthesis is not None
-        trail.add(
-            "tomo_factor",
-            tomo,
-            "1",
-            equation="T = Σ α_i t(θ_i), t folded with the spectrum",
-            source=official.describe()
-            if t_off is not None and official
-            else "beamaudit Monte Carlo (model/data/breast_tomo_t_mc.csv), Dance et al. 2011",
-            inputs={
-                "angles_deg": list(tomosynthesis.angles_deg),
-                "shares": list(tomosynthesis.shares()),
-                "monte_carlo": mc.tomo,
-            },
-        )
-    mgd = k * g * c * s * (tomo if tomo is not None else 1.0)
+    f = _choose_factors(beam, mc, gw, tomosynthesis, official)
+    _trail_factors(trail, f, mc, gw, hvl, tomosynthesis, official)
+    mgd = k * f.g * f.c * f.s * (f.tomo if f.tomo is not None else 1.0)
     rel = math.hypot(u_k / k if k else 0.0, mc.dgn_uncertainty / mc.dgn)
     trail.add(
         "mgd_mgy",
         mgd,
         "mGy",
-        equation="D_G = K g c s" + (" T" if tomo is not None else ""),
+        equation="D_G = K g c s" + (" T" if f.tomo is not None else ""),
         source=_METHOD,
         inputs={
             "incident_air_kerma_mgy": k,
-            "g": g,
-            "c": c,
-            "s": s,
-            "tomo_factor": tomo,
+            "g": f.g,
+            "c": f.c,
+            "s": f.s,
+            "tomo_factor": f.tomo,
             "relative_uncertainty": rel,
         },
     )
-    assumptions = list(trail.assumptions)
-    assumptions.extend(notes)
-    if mc.below_table_kerma_fraction > 1e-3:
-        assumptions.append(
-            f"{100 * mc.below_table_kerma_fraction:.1f} % of K is carried by photons below "
-            "8 keV, given the 8 keV coefficient (an upper bound)"
-        )
-    monte_carlo = {"g": mc.g, "c": mc.c, "s": mc.s, "mgd_mgy": k * mc.dgn * (mc.tomo or 1.0)}
-    if mc.tomo is not None:
-        monte_carlo["tomo_factor"] = mc.tomo
     return GlandularDose(
         mgd_mgy=mgd,
         mgd_uncertainty_mgy=mgd * rel,
         incident_air_kerma_mgy=k,
         incident_air_kerma_uncertainty_mgy=u_k,
         hvl1_mm_al=hvl,
-        g=g,
-        c=c,
-        s=s,
-        tomo_factor=tomo,
+        g=f.g,
+        c=f.c,
+        s=f.s,
+        tomo_factor=f.tomo,
         glandularity=gw,
-        thickness_mm=t.thickness_mm,
+        thickness_mm=technique.thickness_mm,
         coefficients=(
             official.describe()
-            if official is not None and any(v is not None for v in (g_off, c_off, s_off, t_off))
+            if official is not None and any(v is not None for v in f.official)
             else "beamaudit Monte Carlo"
         ),
-        monte_carlo=monte_carlo,
-        assumptions=assumptions,
+        monte_carlo=_monte_carlo_summary(mc, k),
+        assumptions=_assumptions(trail, f.notes, mc),
         trail=trail,
         beam=beam,
     )

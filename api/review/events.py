@@ -154,26 +154,8 @@ def _bad_ids(frame: pd.DataFrame, mask: np.ndarray) -> str:
     return ", ".join(str(i) for i in ids) + (f" and {more} more" if more > 0 else "")
 
 
-def prepare_events(events: pd.DataFrame) -> pd.DataFrame:
-    """Check ``events`` against the contract and return a typed copy sorted by ``event_id``.
-
-    Text columns become ``object`` with ``None`` for missing (the :data:`KEY_COLUMNS` become
-    categoricals, so that grouping on them is fast), float columns ``float64``,
-    ``event_datetime`` naive UTC ``datetime64[ns]``, plus an integer ``month_key``
-    (``year * 12 + month - 1``) and an integer ``study_code`` per study. Sorting by ``event_id``
-    makes every later step independent of the order rows arrive in, so the same events always give
-    the same review.
-
-    Raises
-    ------
-    ReviewInputError
-        Missing columns, missing or repeated event ids, missing study UIDs or times, non-numeric
-        or negative values (naming up to five offending event ids).
-    """
-    missing = [c for c in EVENT_COLUMNS if c not in events.columns]
-    if missing:
-        raise ReviewInputError(f"the events table lacks the column(s) {', '.join(missing)}")
-    out = pd.DataFrame(index=pd.RangeIndex(len(events)))
+def _add_ids_and_times(out: pd.DataFrame, events: pd.DataFrame) -> None:
+    """Add the checked ``event_id`` and ``event_datetime`` (naive UTC) columns to ``out``."""
     ids = pd.to_numeric(events["event_id"].reset_index(drop=True), errors="coerce")
     if ids.isna().any() or (len(ids) and not np.all(np.mod(ids.to_numpy(dtype=float), 1) == 0)):
         raise ReviewInputError("event_id must be an integer on every row")
@@ -191,6 +173,11 @@ def prepare_events(events: pd.DataFrame) -> pd.DataFrame:
             "event_datetime is missing for event(s) "
             + _bad_ids(out, out["event_datetime"].isna().to_numpy())
         )
+
+
+def _add_text_columns(out: pd.DataFrame, events: pd.DataFrame) -> np.ndarray | None:
+    """Add the text columns (keys as categoricals); return the study codes of an already
+    factorised ``study_uid`` column, else None."""
     study_codes = None
     n_rows = len(events)
     for c in (*TEXT_COLUMNS, "clinical_indication"):
@@ -218,10 +205,12 @@ def prepare_events(events: pd.DataFrame) -> pd.DataFrame:
         else:
             col = col.astype(object)
             out[c] = col.where(col.notna(), None)
-    if out["study_uid"].isna().any():
-        raise ReviewInputError(
-            "study_uid is missing for event(s) " + _bad_ids(out, out["study_uid"].isna().to_numpy())
-        )
+    return study_codes
+
+
+def _add_numbers(out: pd.DataFrame, events: pd.DataFrame) -> None:
+    """Add the float columns, checked numeric, finite, not negative, weights positive."""
+    n_rows = len(events)
     for c in (*FLOAT_COLUMNS, "patient_age_years", "breast_thickness_mm", "ct_dw_cm"):
         if c not in events.columns:
             out[c] = np.full(n_rows, np.nan)
@@ -246,6 +235,10 @@ def prepare_events(events: pd.DataFrame) -> pd.DataFrame:
         raise ReviewInputError(
             f"patient_weight_kg is not positive for event(s) {_bad_ids(out, bad)}"
         )
+
+
+def _sorted_by_event_id(out: pd.DataFrame, study_codes: np.ndarray | None) -> pd.DataFrame:
+    """Add ``month_key``, sort by ``event_id`` and add the integer ``study_code``."""
     dt = out["event_datetime"].dt
     out["month_key"] = (dt.year * 12 + dt.month - 1).astype(np.int64)
     ids = out["event_id"].to_numpy()
@@ -258,6 +251,36 @@ def prepare_events(events: pd.DataFrame) -> pd.DataFrame:
     by = out["study_uid"] if study_codes is None else study_codes  # same partition, faster
     out["study_code"] = pd.factorize(by)[0].astype(np.int64)
     return out
+
+
+def prepare_events(events: pd.DataFrame) -> pd.DataFrame:
+    """Check ``events`` against the contract and return a typed copy sorted by ``event_id``.
+
+    Text columns become ``object`` with ``None`` for missing (the :data:`KEY_COLUMNS` become
+    categoricals, so that grouping on them is fast), float columns ``float64``,
+    ``event_datetime`` naive UTC ``datetime64[ns]``, plus an integer ``month_key``
+    (``year * 12 + month - 1``) and an integer ``study_code`` per study. Sorting by ``event_id``
+    makes every later step independent of the order rows arrive in, so the same events always give
+    the same review.
+
+    Raises
+    ------
+    ReviewInputError
+        Missing columns, missing or repeated event ids, missing study UIDs or times, non-numeric
+        or negative values (naming up to five offending event ids).
+    """
+    missing = [c for c in EVENT_COLUMNS if c not in events.columns]
+    if missing:
+        raise ReviewInputError(f"the events table lacks the column(s) {', '.join(missing)}")
+    out = pd.DataFrame(index=pd.RangeIndex(len(events)))
+    _add_ids_and_times(out, events)
+    study_codes = _add_text_columns(out, events)
+    if out["study_uid"].isna().any():
+        raise ReviewInputError(
+            "study_uid is missing for event(s) " + _bad_ids(out, out["study_uid"].isna().to_numpy())
+        )
+    _add_numbers(out, events)
+    return _sorted_by_event_id(out, study_codes)
 
 
 def _is_text_categorical(col: pd.Series) -> bool:
@@ -340,6 +363,90 @@ def month_labels(month_keys: pd.Series | np.ndarray) -> np.ndarray:
     return labels[inverse]
 
 
+def _study_values(
+    events: pd.DataFrame, is_study: np.ndarray, catalogue: ExamCatalogue
+) -> pd.DataFrame:
+    """One row per study and exam type judged per examination, its quantities aggregated."""
+    quantity_columns = list(QUANTITIES)
+    exams = events.loc[is_study]
+    codes, studies = group_codes(exams, ["study_code", "exam_type"])
+    grouped = exams.groupby(codes, sort=True)
+    # groupby().first() skips missing values: the location comes from the first event that has it
+    firsts = grouped[
+        [
+            "study_uid",
+            *_LOCATION,
+            "month_key",
+            "patient_weight_kg",
+            "patient_age_years",
+            "clinical_indication",
+            "breast_thickness_mm",
+            "ct_dw_cm",
+        ]
+    ].first()
+    for c in firsts.columns:  # categoricals stay categoricals (with the events' categories)
+        column = firsts[c]
+        studies[c] = (
+            column.array if isinstance(column.dtype, pd.CategoricalDtype) else column.to_numpy()
+        )
+    sums = grouped[quantity_columns].sum(min_count=1)
+    maxima = grouped[quantity_columns].max()
+    means = grouped[quantity_columns].mean()
+    exam_codes, exam_names = pd.factorize(studies["exam_type"])
+    for q in quantity_columns:
+        rules = np.array([_aggregation(catalogue, e, q) for e in exam_names], dtype=object)
+        rule_of_row = rules[exam_codes] if len(exam_codes) else np.zeros(0, dtype=object)
+        studies[q] = np.select(
+            [rule_of_row == "sum", rule_of_row == "max"],
+            [sums[q].to_numpy(), maxima[q].to_numpy()],
+            default=means[q].to_numpy(),
+        )
+    for c in (*_LOCATION, "exam_type", "clinical_indication"):
+        if isinstance(events[c].dtype, pd.CategoricalDtype):  # keep the events' categories
+            studies[c] = pd.Categorical(studies[c], dtype=events[c].dtype)
+    return studies
+
+
+def _stacked_units(
+    projections: pd.DataFrame, studies: pd.DataFrame, catalogue: ExamCatalogue, base: list[str]
+) -> pd.DataFrame:
+    """The projections' and the studies' values stacked, one row per value that is not NaN."""
+    quantity_columns = list(QUANTITIES)
+    n_events = len(projections)
+    # the projections' rows, then the examinations' ("wide"), one column at a time
+    event_ids = np.concatenate(
+        [projections["event_id"].to_numpy(dtype=np.int64), np.full(len(studies), -1, np.int64)]
+    )
+    wide_exam_type = pd.Series(_stacked(projections["exam_type"], studies["exam_type"]))
+    # one row per (examination, quantity) with a value: positions into the wide rows
+    positions, quantity_codes, value_parts = [], [], []
+    for index, q in enumerate(quantity_columns):
+        with_q = [t.exam_type for t in catalogue if q in t.quantities]
+        wide_q = np.concatenate(
+            [projections[q].to_numpy(dtype=np.float64), studies[q].to_numpy(dtype=np.float64)]
+        )
+        rows = wide_exam_type.isin(with_q).to_numpy() & ~np.isnan(wide_q)
+        positions.append(np.flatnonzero(rows))
+        value_parts.append(wide_q[rows])
+        quantity_codes.append(np.full(int(rows.sum()), index, dtype=np.int64))
+    taken = np.concatenate(positions)
+    units = pd.DataFrame(
+        {c: _stacked(projections[c], studies[c], taken) for c in base},
+        index=pd.RangeIndex(len(taken)),
+    )
+    values = np.concatenate(value_parts)
+    from_event = taken < n_events
+    units.insert(
+        0, "unit_kind", pd.Categorical.from_codes(np.where(from_event, 0, 1), ["event", "study"])
+    )
+    ids = pd.array(event_ids[taken], dtype="Int64")
+    ids[~from_event] = pd.NA
+    units.insert(1, "event_id", ids)
+    units["quantity"] = pd.Categorical.from_codes(np.concatenate(quantity_codes), quantity_columns)
+    units["value"] = values
+    return units
+
+
 def build_units(
     events: pd.DataFrame, catalogue: ExamCatalogue, include: np.ndarray | None = None
 ) -> pd.DataFrame:
@@ -380,76 +487,9 @@ def build_units(
         "ct_dw_cm",
     ]
 
-    exams = events.loc[is_study]
-    codes, studies = group_codes(exams, ["study_code", "exam_type"])
-    grouped = exams.groupby(codes, sort=True)
-    # groupby().first() skips missing values: the location comes from the first event that has it
-    firsts = grouped[
-        [
-            "study_uid",
-            *_LOCATION,
-            "month_key",
-            "patient_weight_kg",
-            "patient_age_years",
-            "clinical_indication",
-            "breast_thickness_mm",
-            "ct_dw_cm",
-        ]
-    ].first()
-    for c in firsts.columns:  # categoricals stay categoricals (with the events' categories)
-        column = firsts[c]
-        studies[c] = (
-            column.array if isinstance(column.dtype, pd.CategoricalDtype) else column.to_numpy()
-        )
-    sums = grouped[quantity_columns].sum(min_count=1)
-    maxima = grouped[quantity_columns].max()
-    means = grouped[quantity_columns].mean()
-    exam_codes, exam_names = pd.factorize(studies["exam_type"])
-    for q in quantity_columns:
-        rules = np.array([_aggregation(catalogue, e, q) for e in exam_names], dtype=object)
-        rule_of_row = rules[exam_codes] if len(exam_codes) else np.zeros(0, dtype=object)
-        studies[q] = np.select(
-            [rule_of_row == "sum", rule_of_row == "max"],
-            [sums[q].to_numpy(), maxima[q].to_numpy()],
-            default=means[q].to_numpy(),
-        )
-    for c in (*_LOCATION, "exam_type", "clinical_indication"):
-        if isinstance(events[c].dtype, pd.CategoricalDtype):  # keep the events' categories
-            studies[c] = pd.Categorical(studies[c], dtype=events[c].dtype)
-
+    studies = _study_values(events, is_study, catalogue)
     projections = events.loc[is_event, ["event_id", *base, *quantity_columns]]
-    n_events = len(projections)
-    # the projections' rows, then the examinations' ("wide"), one column at a time
-    event_ids = np.concatenate(
-        [projections["event_id"].to_numpy(dtype=np.int64), np.full(len(studies), -1, np.int64)]
-    )
-    wide_exam_type = pd.Series(_stacked(projections["exam_type"], studies["exam_type"]))
-    # one row per (examination, quantity) with a value: positions into the wide rows
-    positions, quantity_codes, value_parts = [], [], []
-    for index, q in enumerate(quantity_columns):
-        with_q = [t.exam_type for t in catalogue if q in t.quantities]
-        wide_q = np.concatenate(
-            [projections[q].to_numpy(dtype=np.float64), studies[q].to_numpy(dtype=np.float64)]
-        )
-        rows = wide_exam_type.isin(with_q).to_numpy() & ~np.isnan(wide_q)
-        positions.append(np.flatnonzero(rows))
-        value_parts.append(wide_q[rows])
-        quantity_codes.append(np.full(int(rows.sum()), index, dtype=np.int64))
-    taken = np.concatenate(positions)
-    units = pd.DataFrame(
-        {c: _stacked(projections[c], studies[c], taken) for c in base},
-        index=pd.RangeIndex(len(taken)),
-    )
-    values = np.concatenate(value_parts)
-    from_event = taken < n_events
-    units.insert(
-        0, "unit_kind", pd.Categorical.from_codes(np.where(from_event, 0, 1), ["event", "study"])
-    )
-    ids = pd.array(event_ids[taken], dtype="Int64")
-    ids[~from_event] = pd.NA
-    units.insert(1, "event_id", ids)
-    units["quantity"] = pd.Categorical.from_codes(np.concatenate(quantity_codes), quantity_columns)
-    units["value"] = values
+    units = _stacked_units(projections, studies, catalogue, base)
     return units.loc[:, list(UNIT_COLUMNS)]
 
 

@@ -344,6 +344,17 @@ class ReviewParameters:
     ct_size_band_edges_cm: tuple[float, ...] = ()
 
     def __post_init__(self) -> None:
+        problems = [
+            *self._normalise_grouping(),
+            *self._merge_sample_counts(),
+            *self._check_limits(),
+            *self._normalise_flag_rules(),
+        ]
+        if problems:
+            raise ReviewError("bad review parameters: " + "; ".join(problems))
+
+    def _normalise_grouping(self) -> list[str]:
+        """Scope filters, group keys, weight window, size bands and basis: normalised; problems."""
         problems = []
         for name in ("sites", "rooms", "devices", "exam_types"):
             value = getattr(self, name)
@@ -372,6 +383,11 @@ class ReviewParameters:
             object.__setattr__(self, "ct_size_band_edges_cm", edges)
         if self.basis not in ("standard", "all"):
             problems.append("basis must be 'standard' or 'all'")
+        return problems
+
+    def _merge_sample_counts(self) -> list[str]:
+        """Minimum and preferred samples merged over their defaults; problems."""
+        problems = []
         for name, defaults in (
             ("minimum_samples", DEFAULT_MINIMUM_SAMPLES),
             ("preferred_samples", PREFERRED_SAMPLES),
@@ -385,6 +401,11 @@ class ReviewParameters:
                 else:
                     merged[group] = int(n)
             object.__setattr__(self, name, MappingProxyType(merged))
+        return problems
+
+    def _check_limits(self) -> list[str]:
+        """Problems of the numeric limits (age, standard weight, rooms, fractions, percentiles)."""
+        problems = []
         if not self.paediatric_age_limit_years > 0:
             problems.append("paediatric_age_limit_years must be positive")
         if not (self.standard_mean_weight_kg > 0 and self.standard_mean_weight_tolerance_kg >= 0):
@@ -409,6 +430,11 @@ class ReviewParameters:
             problems.append("dap_ratio_tolerance must be between 0 and 1")
         if self.dap_ratio_min_events < 1:
             problems.append("dap_ratio_min_events must be at least 1")
+        return problems
+
+    def _normalise_flag_rules(self) -> list[str]:
+        """DI range, SRDL thresholds and modalities, CUSUM: normalised; problems."""
+        problems = []
         di_low, di_high = (float(v) for v in self.di_range)
         if not di_low < di_high:
             problems.append("di_range must be (low, high) with low < high")
@@ -429,8 +455,7 @@ class ReviewParameters:
             problems.append("cusum_k and cusum_h must be positive")
         if self.cusum_baseline_months < 2 or self.changepoint_lookback_months < 0:
             problems.append("cusum_baseline_months must be >= 2, changepoint_lookback_months >= 0")
-        if problems:
-            raise ReviewError("bad review parameters: " + "; ".join(problems))
+        return problems
 
     @classmethod
     def for_month(cls, year: int, month: int, **kwargs: Any) -> ReviewParameters:
@@ -602,16 +627,26 @@ def _group_table(
     bands: PatientGroups,
 ) -> tuple[pd.DataFrame, np.ndarray, np.ndarray]:
     """The group table, each unit's group code, and each group's upper percentile."""
-    keys = list(fl.GROUP_KEYS)
+    if len(units) == 0:
+        return pd.DataFrame(columns=list(GROUP_COLUMNS)), np.zeros(0, np.int64), np.zeros(0)
+    codes, table = group_codes(units, list(fl.GROUP_KEYS))
+    upper = _add_group_statistics(table, units, codes, params)
+    _add_sample_checks(table, catalogue, params)
+    _add_mean_weight_check(table, params, bands)
+    return _with_levels(table, levels), codes, upper
+
+
+def _add_group_statistics(
+    table: pd.DataFrame, units: pd.DataFrame, codes: np.ndarray, params: ReviewParameters
+) -> np.ndarray:
+    """Add the counts, the median statistics and the mean weight to ``table`` (in place);
+    return each group's upper percentile."""
+    n_groups = len(table)
     weight = units["patient_weight_kg"].to_numpy(dtype=np.float64)
     low, high = params.weight_window_kg
     standard = (weight >= low) & (weight <= high)
     banded = units["patient_group"].notna().to_numpy()
     used = (standard | banded) if params.basis == "standard" else np.ones(len(units), dtype=bool)
-    if len(units) == 0:
-        return pd.DataFrame(columns=list(GROUP_COLUMNS)), np.zeros(0, np.int64), np.zeros(0)
-    codes, table = group_codes(units, keys)
-    n_groups = len(table)
     table["n"] = np.bincount(codes, minlength=n_groups).astype(np.int64)
     values = units["value"].to_numpy(dtype=np.float64)
     stats = group_statistics(
@@ -639,6 +674,13 @@ def _group_table(
     weight_n = np.bincount(codes, weights=has_weight, minlength=n_groups)
     with np.errstate(invalid="ignore", divide="ignore"):
         table["mean_weight_kg"] = np.where(weight_n > 0, weight_sum / weight_n, np.nan)
+    return stats.upper
+
+
+def _add_sample_checks(
+    table: pd.DataFrame, catalogue: ExamCatalogue, params: ReviewParameters
+) -> None:
+    """Add each group's modality group, level basis, unit and sample-size check (in place)."""
     exam = {t.exam_type: t for t in catalogue}
     table["modality_group"] = table["exam_type"].map(lambda e: exam[e].modality_group)
     table["level_applies_per"] = table["exam_type"].map(lambda e: exam[e].level_applies_per)
@@ -651,6 +693,13 @@ def _group_table(
     table["sample_check"] = sample_checks(
         table["n_used"].to_numpy(), table["n_minimum"].to_numpy(), table["n_preferred"].to_numpy()
     )
+
+
+def _add_mean_weight_check(
+    table: pd.DataFrame, params: ReviewParameters, bands: PatientGroups
+) -> None:
+    """Add the mean-weight check against the standard patient and the patient group's label."""
+    group_banded = table["patient_group"].notna().to_numpy()
     mean_weight = table["mean_weight_kg"].to_numpy(dtype=np.float64)
     with np.errstate(invalid="ignore"):
         near = (
@@ -665,7 +714,11 @@ def _group_table(
     table["patient_group_label"] = [
         None if g is None else bands.label(g) for g in table["patient_group"].tolist()
     ]
-    table["_group"] = np.arange(n_groups)
+
+
+def _with_levels(table: pd.DataFrame, levels: pd.DataFrame) -> pd.DataFrame:
+    """One row per group and applicable level (local first), with its ratio and status."""
+    table["_group"] = np.arange(len(table))
     merged = table.merge(
         _applicable_levels(table, levels).drop(columns=["exam_type", "quantity"]),
         on="_group",
@@ -696,7 +749,7 @@ def _group_table(
         "level_clinical_indication",
     ):
         out[c] = out[c].astype(object).where(out[c].notna(), None)
-    return out, codes, stats.upper
+    return out
 
 
 def _applicable_levels(keys: pd.DataFrame, levels: pd.DataFrame) -> pd.DataFrame:

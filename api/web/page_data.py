@@ -7,6 +7,7 @@ tables in the shapes :mod:`beamaudit.dashboards.tables` documents.
 from __future__ import annotations
 
 import math
+from collections.abc import Sequence
 from datetime import date
 from functools import lru_cache
 from typing import Any
@@ -353,6 +354,135 @@ def _spectrum(event: m.ExposureEventRow) -> dict[str, Any] | None:
     }
 
 
+def _room_name(session: Session, events: Sequence[m.ExposureEventRow]) -> str:
+    """The room of a study's first event, or ``(no room)``."""
+    room_name = "(no room)"
+    if events and events[0].room_id:
+        room = session.get(m.Room, events[0].room_id)
+        room_name = room.name if room else room_name
+    return room_name
+
+
+def _reconstructed_figures(trail: dict[str, Any]) -> dict[str, Any]:
+    """The reconstruction's dose figures of one event, with uncertainty and reported value."""
+    comparisons = {c["quantity"]: c for c in trail.get("comparisons", [])}
+    dose: dict[str, Any] = {}
+    for name, key in _DOSE_FIGURES:
+        value = trail.get(key)
+        if value is None:
+            continue
+        fig: dict[str, Any] = {"value": float(value)}
+        u = trail.get(
+            key.replace("_mgy", "_standard_uncertainty_mgy").replace(
+                "_gy_cm2", "_standard_uncertainty_gy_cm2"
+            )
+        )
+        if u is not None:
+            fig["uncertainty"] = float(u)
+        if name in comparisons:
+            fig["reported"] = float(comparisons[name]["reported"])
+            fig["ratio"] = float(comparisons[name]["ratio"])
+        dose[name] = fig
+    if trail.get("backscatter_factor") is not None:
+        dose["backscatter_factor"] = {
+            "value": float(trail["backscatter_factor"]),
+            "unit": "1",
+            "uncertainty": float(trail.get("backscatter_factor_standard_uncertainty") or 0),
+            "source": trail.get("backscatter_factor_source") or "",
+        }
+    return dose
+
+
+def _reported_figures(e: m.ExposureEventRow) -> dict[str, Any]:
+    """CTDIvol, DLP and reference-point air kerma as the modality reported them."""
+    dose: dict[str, Any] = {}
+    for name in ("ctdivol_mgy", "dlp_mgy_cm", "reference_point_air_kerma_mgy"):
+        value = getattr(e, QUANTITIES[name].column)
+        if value is not None:
+            tolerance, standard = _DISPLAY_TOLERANCE[name]
+            dose[name] = {
+                "value": float(value),
+                "reported": float(value),
+                "ratio": 1.0,
+                # the displayed value's tolerance as a rectangular distribution (GUM 4.3.7)
+                "uncertainty": float(value) * tolerance / math.sqrt(3.0),
+                "source": f"as the modality reported it; {standard} allows ± "
+                f"{tolerance:.0%} on the displayed value (taken as rectangular, k = 1)",
+            }
+    return dose
+
+
+def _exposure(session: Session, e: m.ExposureEventRow) -> dict[str, Any]:
+    """One exposure of the drill-down record: technique, dose figures, why-trail, spectrum."""
+    trail = trail_for_event(session, e) or {}
+    if is_mammography(e) and e.recon_status == "ok":
+        why = why_steps(trail.get("trail", []))
+        return mammography_exposure(e, trail) | {"why": why, "spectrum": _spectrum(e)}
+    dose = _reconstructed_figures(trail)
+    dose.update(_reported_figures(e))
+    dose.update(_size_figures(e))
+    if not dose and e.dap_gy_cm2 is not None:
+        dose["dap_gy_cm2"] = {
+            "value": float(e.dap_gy_cm2),
+            "reported": float(e.dap_gy_cm2),
+            "ratio": 1.0,
+        }
+    technique = {
+        k: getattr(e, k)
+        for k in ("kvp_kv", "exposure_mas", "tube_current_ma", "exposure_time_ms", "sid_mm",
+                  "body_part_thickness_mm", "deviation_index")
+        if getattr(e, k) is not None
+    }  # fmt: skip
+    return {
+        "event_id": str(e.id),
+        "event_datetime": e.event_datetime or e.study_datetime,
+        "technique": technique,
+        "dose": dose,
+        "why": _why(trail),
+        "spectrum": _spectrum(e) if e.recon_status == "ok" else None,
+    }
+
+
+def _study_flags(session: Session, study_uid: str) -> pd.DataFrame:
+    """The study's flags from the record runs of calendar months, with each run's period."""
+    records = list(record_run_ids(session).values())
+    flag_rows = session.execute(
+        select(m.FlagRow, m.ReviewRun.period)
+        .join(m.ReviewRun, m.ReviewRun.id == m.FlagRow.review_run_id)
+        .where(m.FlagRow.study_instance_uid == study_uid, m.ReviewRun.id.in_(records))
+        .order_by(m.FlagRow.id)
+    ).all()
+    flags = [f for f, period in flag_rows if _is_month(period)]
+    periods_of = {f.id: period for f, period in flag_rows}
+    return pd.DataFrame(
+        [
+            {
+                "kind": f.kind,
+                "severity": f.severity,
+                "reason": f.reason,
+                "room": f.room,
+                "exam_type": f.exam_type,
+                "event_id": None if f.event_id is None else str(f.event_id),
+                "study_uid": f.study_instance_uid,
+                "period": periods_of[f.id],
+                "status": f.status,
+            }
+            for f in flags
+        ],
+        columns=[
+            "kind",
+            "severity",
+            "reason",
+            "room",
+            "exam_type",
+            "event_id",
+            "study_uid",
+            "period",
+            "status",
+        ],
+    )
+
+
 def exam_record(
     session: Session, study_uid: str, *, standard_window_kg: tuple[float, float] = (50.0, 90.0)
 ) -> dict[str, Any] | None:
@@ -365,88 +495,10 @@ def exam_record(
         .where(m.ExposureEventRow.study_id == study.id)
         .order_by(m.ExposureEventRow.id)
     ).all()
-    room_name = "(no room)"
-    if events and events[0].room_id:
-        room = session.get(m.Room, events[0].room_id)
-        room_name = room.name if room else room_name
-    exposures = []
-    for e in events:
-        trail = trail_for_event(session, e) or {}
-        if is_mammography(e) and e.recon_status == "ok":
-            why = why_steps(trail.get("trail", []))
-            exposures.append(
-                mammography_exposure(e, trail) | {"why": why, "spectrum": _spectrum(e)}
-            )
-            continue
-        comparisons = {c["quantity"]: c for c in trail.get("comparisons", [])}
-        dose: dict[str, Any] = {}
-        for name, key in _DOSE_FIGURES:
-            value = trail.get(key)
-            if value is None:
-                continue
-            fig: dict[str, Any] = {"value": float(value)}
-            u = trail.get(
-                key.replace("_mgy", "_standard_uncertainty_mgy").replace(
-                    "_gy_cm2", "_standard_uncertainty_gy_cm2"
-                )
-            )
-            if u is not None:
-                fig["uncertainty"] = float(u)
-            if name in comparisons:
-                fig["reported"] = float(comparisons[name]["reported"])
-                fig["ratio"] = float(comparisons[name]["ratio"])
-            dose[name] = fig
-        if trail.get("backscatter_factor") is not None:
-            dose["backscatter_factor"] = {
-                "value": float(trail["backscatter_factor"]),
-                "unit": "1",
-                "uncertainty": float(trail.get("backscatter_factor_standard_uncertainty") or 0),
-                "source": trail.get("backscatter_factor_source") or "",
-            }
-        for name in ("ctdivol_mgy", "dlp_mgy_cm", "reference_point_air_kerma_mgy"):
-            value = getattr(e, QUANTITIES[name].column)
-            if value is not None:
-                tolerance, standard = _DISPLAY_TOLERANCE[name]
-                dose[name] = {
-                    "value": float(value),
-                    "reported": float(value),
-                    "ratio": 1.0,
-                    # the displayed value's tolerance as a rectangular distribution (GUM 4.3.7)
-                    "uncertainty": float(value) * tolerance / math.sqrt(3.0),
-                    "source": f"as the modality reported it; {standard} allows ± "
-                    f"{tolerance:.0%} on the displayed value (taken as rectangular, k = 1)",
-                }
-        dose.update(_size_figures(e))
-        if not dose and e.dap_gy_cm2 is not None:
-            dose["dap_gy_cm2"] = {
-                "value": float(e.dap_gy_cm2),
-                "reported": float(e.dap_gy_cm2),
-                "ratio": 1.0,
-            }
-        technique = {
-            k: getattr(e, k)
-            for k in ("kvp_kv", "exposure_mas", "tube_current_ma", "exposure_time_ms", "sid_mm",
-                      "body_part_thickness_mm", "deviation_index")
-            if getattr(e, k) is not None
-        }  # fmt: skip
-        exposures.append({
-            "event_id": str(e.id),
-            "event_datetime": e.event_datetime or e.study_datetime,
-            "technique": technique,
-            "dose": dose,
-            "why": _why(trail),
-            "spectrum": _spectrum(e) if e.recon_status == "ok" else None,
-        })  # fmt: skip
+    room_name = _room_name(session, events)
+    exposures = [_exposure(session, e) for e in events]
     weight = study.patient_weight_kg
-    records = list(record_run_ids(session).values())
-    flag_rows = session.execute(
-        select(m.FlagRow, m.ReviewRun.period)
-        .join(m.ReviewRun, m.ReviewRun.id == m.FlagRow.review_run_id)
-        .where(m.FlagRow.study_instance_uid == study_uid, m.ReviewRun.id.in_(records))
-        .order_by(m.FlagRow.id)
-    ).all()
-    flags = [f for f, period in flag_rows if _is_month(period)]
-    periods_of = {f.id: period for f, period in flag_rows}
+    flags = _study_flags(session, study_uid)
     return {
         "study_uid": study_uid,
         "room": room_name,
@@ -457,33 +509,7 @@ def exam_record(
         if weight is None
         else standard_window_kg[0] <= weight <= standard_window_kg[1],
         "info": {"description": study.study_description or "", "events": len(events)},
-        "flags": pd.DataFrame(
-            [
-                {
-                    "kind": f.kind,
-                    "severity": f.severity,
-                    "reason": f.reason,
-                    "room": f.room,
-                    "exam_type": f.exam_type,
-                    "event_id": None if f.event_id is None else str(f.event_id),
-                    "study_uid": f.study_instance_uid,
-                    "period": periods_of[f.id],
-                    "status": f.status,
-                }
-                for f in flags
-            ],
-            columns=[
-                "kind",
-                "severity",
-                "reason",
-                "room",
-                "exam_type",
-                "event_id",
-                "study_uid",
-                "period",
-                "status",
-            ],
-        ),
+        "flags": flags,
         "exposures": exposures,
     }
 

@@ -77,7 +77,9 @@ def test_serve_says_which_database_and_how_to_sign_in(tmp_path, capsys, monkeypa
     monkeypatch.setattr(uvicorn.Server, "run", lambda self: None)
     db = tmp_path / "nothing-here.db"
     monkeypatch.setenv("BEAMAUDIT_DATABASE_URL", f"sqlite:///{db}")
-    assert main(["serve", "--port", "8123"]) == 0
+    # one worker: the words come before the server starts, and with more than one uvicorn's
+    # supervisor would start real worker processes (tests/api/test_serve_workers.py has those)
+    assert main(["serve", "--port", "8123", "--workers", "1"]) == 0
     out = " ".join(capsys.readouterr().out.split())  # as read, wherever the terminal wrapped
     assert f"the database file {db} does not exist" in out
     assert f"SQLite file {db}" in out
