@@ -289,20 +289,33 @@ def _who(row: Mapping[str, Any]) -> str:
     return "standard-size patients" if row.get("basis") == "standard" else "patients"
 
 
-def _exam_text(row: Mapping[str, Any]) -> str:
-    """The exam type with its indication and patient group: ``ct_head (acute_stroke; children
-    1-<6 years)``."""
+def _exam_name(code: object, names: Mapping[str, str] | None) -> str | None:
+    """The catalogue's name of an exam type code (the code when the catalogue has no name)."""
+    text = _str_or_none(code)
+    if text is None:
+        return None
+    return (names or {}).get(text) or text
+
+
+def _exam_text(row: Mapping[str, Any], names: Mapping[str, str] | None = None) -> str:
+    """The examination by its catalogue name, with its clinical indication and patient group in
+    words: ``CT head (acute stroke; children 1-<6 years)``; ``exam type not mapped`` for an
+    event that maps to none. ``names`` maps exam type codes to the catalogue's names (without
+    it, or for a code it lacks, the code is shown); the patient group is the row's
+    ``patient_group_label`` (the review's label) where the row has a ``patient_group``."""
+    indication = _str_or_none(row.get("clinical_indication"))
     parts = [
         text
         for text in (
-            _str_or_none(row.get("clinical_indication")),
+            indication.replace("_", " ") if indication else None,
             _str_or_none(row.get("patient_group_label"))
             if _str_or_none(row.get("patient_group")) is not None
             else None,
         )
         if text
     ]
-    return f"{row['exam_type']}" + (f" ({'; '.join(parts)})" if parts else "")
+    name = _exam_name(row.get("exam_type"), names) or "exam type not mapped"
+    return name + (f" ({'; '.join(parts)})" if parts else "")
 
 
 def _records(frame: pd.DataFrame) -> list[dict[str, Any]]:
@@ -313,7 +326,9 @@ def _records(frame: pd.DataFrame) -> list[dict[str, Any]]:
 
 
 # --------------------------------------------------------------------------------------- the kinds
-def groups_above_level(groups: pd.DataFrame) -> list[Flag]:
+def groups_above_level(
+    groups: pd.DataFrame, *, exam_names: Mapping[str, str] | None = None
+) -> list[Flag]:
     """Groups whose median is above a reference level.
 
     Parameters
@@ -322,7 +337,10 @@ def groups_above_level(groups: pd.DataFrame) -> list[Flag]:
         The review's group table (:data:`beamaudit.api.review.run.GROUP_COLUMNS`); used columns:
         ``status``, ``site``/``room``/``device`` (those present), ``exam_type``, ``quantity``,
         ``basis``, ``n_used``, ``median``, ``ci_low``, ``ci_high``, ``ci_coverage``,
-        ``reference_level``, ``ratio_to_level``, ``level_set``, ``level_kind``, ``level_version``.
+        ``reference_level``, ``ratio_to_level``, ``level_set``, ``level_kind``, ``level_version``,
+        and ``clinical_indication``, ``patient_group`` with ``patient_group_label`` where present.
+    exam_names : mapping, optional
+        Exam type code -> the catalogue's name, for the reason (the code where it has none).
 
     Returns
     -------
@@ -357,7 +375,7 @@ def groups_above_level(groups: pd.DataFrame) -> list[Flag]:
                 )
             )
         reason = (
-            f"Median {_label(quantity)} {median} {unit} of {_exam_text(row)}"
+            f"Median {_label(quantity)} {median} {unit} of {_exam_text(row, exam_names)}"
             f"{_where(row)} ({row['n_used']} {who}) is {row['ratio_to_level']:.3g} × the "
             f"{row['level_kind']} level {level} {unit} "
             f"({row['level_set']}, version {row['level_version']}); {ci_text}."
@@ -406,19 +424,24 @@ def _limit_per_group(
 
 
 def _overflow_flags(
-    overflow: pd.DataFrame, kind: FlagKind, limit: int | None, what: str
+    overflow: pd.DataFrame,
+    kind: FlagKind,
+    limit: int | None,
+    what: str,
+    exam_names: Mapping[str, str] | None,
 ) -> list[Flag]:
     flags = []
     for row in _records(overflow):
         quantity = _str_or_none(row.get("quantity"))
-        exam = _str_or_none(row.get("exam_type")) or "unmapped events"
+        name = _exam_name(row.get("exam_type"), exam_names)
+        exam = f"examinations of {name}" if name else "examinations without an exam type"
         about = f" ({_label(quantity)})" if quantity else ""
         flags.append(
             Flag(
                 kind=kind,
                 severity="warning",
                 reason=(
-                    f"{int(row['n'])} examinations of {exam}{_where(row)}{about} {what}; the "
+                    f"{int(row['n'])} {exam}{_where(row)}{about} {what}; the "
                     f"{limit} most extreme are flagged one by one (limit per group: {limit})."
                 ),
                 numbers={"n_exceeding": int(row["n"]), "n_listed": limit},
@@ -435,6 +458,7 @@ def exams_above_investigation_level(
     multiple: float | None,
     above_percentile: bool,
     max_per_group: int | None = None,
+    exam_names: Mapping[str, str] | None = None,
 ) -> list[Flag]:
     """Single examinations above an investigation level.
 
@@ -449,7 +473,8 @@ def exams_above_investigation_level(
         ``event_id`` (for events, else NA), ``study_uid``, ``site``/``room``/``device`` (those
         present), ``patient_weight_kg``, ``level_value``, ``level_set``, ``level_version``
         (NaN/None without a level) and ``percentile_value`` with ``percentile`` (the group's
-        upper percentile and which percentile it is).
+        upper percentile and which percentile it is); ``clinical_indication``, ``patient_group``
+        and ``patient_group_label`` name the examination's group in the reason where present.
     multiple : float or None
         Multiple of the level; ``None`` switches the level rule off.
     above_percentile : bool
@@ -458,6 +483,8 @@ def exams_above_investigation_level(
         At most this many examinations per group (location, exam type, quantity) get a flag of
         their own, the highest values first; a group with more gets one more flag counting them.
         ``None``: no limit.
+    exam_names : mapping, optional
+        Exam type code -> the catalogue's name, for the reason (the code where it has none).
     """
     value = units["value"].to_numpy(dtype=np.float64)
     with np.errstate(invalid="ignore"):
@@ -476,7 +503,11 @@ def exams_above_investigation_level(
     keys = [c for c in ("site", "room", "device", "exam_type", "quantity") if c in units.columns]
     kept, overflow = _limit_per_group(exceeding, keys, value[hit], max_per_group)
     flags = _overflow_flags(
-        overflow, "exam_above_investigation_level", max_per_group, "exceed the investigation level"
+        overflow,
+        "exam_above_investigation_level",
+        max_per_group,
+        "exceed the investigation level",
+        exam_names,
     )
     for row, lvl, pct in zip(
         _records(exceeding.iloc[kept]), by_level[hit][kept], by_pct[hit][kept], strict=True
@@ -502,8 +533,10 @@ def exams_above_investigation_level(
             f"patient weight {_fmt(weight)} kg" if not math.isnan(weight) else "weight not recorded"
         )
         reason = (
-            f"{_label(quantity)} {_fmt(row['value'])} {unit} of {what} ({row['exam_type']}"
-            f"{_where(row)}; {weight_text}) is " + " and ".join(reasons) + "."
+            f"{_label(quantity)} {_fmt(row['value'])} {unit} of {what} "
+            f"({_exam_text(row, exam_names)}{_where(row)}; {weight_text}) is "
+            + " and ".join(reasons)
+            + "."
         )
         flags.append(
             Flag(
@@ -529,7 +562,12 @@ def exams_above_investigation_level(
     return flags
 
 
-def srdl_exceeded(studies: pd.DataFrame, *, thresholds: Mapping[str, float]) -> list[Flag]:
+def srdl_exceeded(
+    studies: pd.DataFrame,
+    *,
+    thresholds: Mapping[str, float],
+    exam_names: Mapping[str, str] | None = None,
+) -> list[Flag]:
     """Fluoroscopy studies above an NCRP 168 substantial radiation dose level.
 
     Parameters
@@ -540,6 +578,8 @@ def srdl_exceeded(studies: pd.DataFrame, *, thresholds: Mapping[str, float]) -> 
     thresholds : mapping
         Column name -> level, e.g. :data:`NCRP168_SRDL`; one flag per study lists every level
         exceeded (strictly above).
+    exam_names : mapping, optional
+        Exam type code -> the catalogue's name, for the reason (the code where it has none).
     """
     if len(studies) == 0 or not thresholds:
         return []
@@ -560,7 +600,7 @@ def srdl_exceeded(studies: pd.DataFrame, *, thresholds: Mapping[str, float]) -> 
             numbers[c] = float(row[c])
             numbers[f"{c}_srdl"] = float(thresholds[c])
         reason = (
-            f"Study {row['study_uid']} ({_str_or_none(row.get('exam_type')) or 'unmapped'}"
+            f"Study {row['study_uid']} ({_exam_text(row, exam_names)}"
             f"{_where(row)}) exceeds the NCRP 168 substantial radiation dose level: "
             + "; ".join(parts)
             + ". Follow the patient up for possible skin effects as local procedure requires."
@@ -631,6 +671,7 @@ def changepoints(
     h: float,
     baseline_points: int,
     min_relative_change: float = 0.0,
+    exam_names: Mapping[str, str] | None = None,
 ) -> list[Flag]:
     """Change-points by CUSUM (:func:`beamaudit.api.review.changepoint.cusum`) in monthly series.
 
@@ -648,6 +689,8 @@ def changepoints(
         A change whose level after differs from the level before by less than this fraction
         is not flagged: with a few months the robust SD is estimated from very few points and
         CUSUM alarms on shifts too small to matter to a dose audit.
+    exam_names : mapping, optional
+        Exam type code -> the catalogue's name, for the reason (the code where it has none).
     """
     flags: list[Flag] = []
     if len(monthly) == 0:
@@ -662,7 +705,7 @@ def changepoints(
         if quantity == DAP_RATIO_QUANTITY:
             what, unit = "median ratio of reported to reconstructed DAP", ""
         else:
-            what = f"monthly median {_label(quantity)} of {context.get('exam_type')}"
+            what = f"monthly median {_label(quantity)} of {_exam_text(context, exam_names)}"
             unit = " " + _unit(quantity)
         for change in result.changes:
             base = abs(change.before) if change.before else 0.0
@@ -702,7 +745,11 @@ def changepoints(
 
 
 def deviation_index_out_of_range(
-    events: pd.DataFrame, *, di_range: tuple[float, float], max_per_group: int | None = None
+    events: pd.DataFrame,
+    *,
+    di_range: tuple[float, float],
+    max_per_group: int | None = None,
+    exam_names: Mapping[str, str] | None = None,
 ) -> list[Flag]:
     """Exposures whose deviation index (IEC 62494-1) lies outside ``di_range``.
 
@@ -710,6 +757,7 @@ def deviation_index_out_of_range(
     location columns present. DI = 10 log10(EI/EI_T), so the detector received
     :math:`10^{DI/10}` times its target exposure. ``max_per_group`` limits the flags per location
     and exam type as in :func:`exams_above_investigation_level` (largest ``|DI|`` first).
+    ``exam_names`` maps exam type codes to the catalogue's names for the reason.
     """
     low, high = di_range
     di = events["deviation_index"].to_numpy(dtype=np.float64)
@@ -723,12 +771,13 @@ def deviation_index_out_of_range(
         "deviation_index_out_of_range",
         max_per_group,
         f"have a deviation index outside {low:+g} to {high:+g}",
+        exam_names,
     )
     for row in _records(outside.iloc[kept]):
         value = float(row["deviation_index"])
         factor = 10.0 ** (value / 10.0)
         reason = (
-            f"Exposure {int(row['event_id'])} ({_str_or_none(row.get('exam_type')) or 'unmapped'}"
+            f"Exposure {int(row['event_id'])} ({_exam_text(row, exam_names)}"
             f"{_where(row)}) has deviation index {value:+.1f}, outside {low:+g} to {high:+g}: the "
             f"detector received about {factor:.2g} × its target exposure "
             f"({'over' if value > high else 'under'}exposure)."
@@ -752,18 +801,21 @@ def deviation_index_out_of_range(
     return flags
 
 
-def no_dose_data(studies: pd.DataFrame) -> list[Flag]:
+def no_dose_data(
+    studies: pd.DataFrame, *, exam_names: Mapping[str, str] | None = None
+) -> list[Flag]:
     """Studies none of whose events carries any dose value.
 
     ``studies`` needs ``study_uid``, ``modality``, ``n_events``, ``has_dose`` (bool) and the
-    location and ``exam_type`` columns present.
+    location and ``exam_type`` columns present; ``exam_names`` maps exam type codes to the
+    catalogue's names for the reason.
     """
     flagged = studies[~studies["has_dose"].to_numpy(dtype=bool)]
     flags = []
     for row in _records(flagged):
         reason = (
             f"Study {row['study_uid']} ({_str_or_none(row.get('modality')) or 'modality unknown'}, "
-            f"{_str_or_none(row.get('exam_type')) or 'unmapped'}{_where(row)}) has "
+            f"{_exam_text(row, exam_names)}{_where(row)}) has "
             f"{int(row['n_events'])} event(s) and no dose value at all: check that the device "
             f"sends dose headers or a dose report."
         )
@@ -824,6 +876,7 @@ def low_dose_review(
     *,
     fraction: float | None,
     use_site_percentile: bool,
+    exam_names: Mapping[str, str] | None = None,
 ) -> list[Flag]:
     """Groups whose median is far below the levels or the site's other rooms: review image quality.
 
@@ -845,6 +898,8 @@ def low_dose_review(
         Fraction of a level below which a median is flagged; ``None`` switches the rule off.
     use_site_percentile : bool
         Switches the site's 25th-percentile rule on.
+    exam_names : mapping, optional
+        Exam type code -> the catalogue's name, for the reason (the code where it has none).
     """
     if len(groups) == 0:
         return []
@@ -919,7 +974,8 @@ def low_dose_review(
                 {"site_room_median_p25": float(percentile_value), "site_n_rooms": int(n_rooms)}
             )
         reason = (
-            f"Median {_label(quantity)} {_fmt(_float(row['median']))} {unit} of {_exam_text(row)}"
+            f"Median {_label(quantity)} {_fmt(_float(row['median']))} {unit} of "
+            f"{_exam_text(row, exam_names)}"
             f"{_where(row)} ({int(row['n_used'])} {_who(row)}) is " + " and ".join(parts) + ". "
             "Review the image quality of a sample of these examinations with the reporting "
             "radiologists: a low dose is not a fault in itself, and the protocol needs a change "

@@ -791,6 +791,14 @@ def _applicable_levels(keys: pd.DataFrame, levels: pd.DataFrame) -> pd.DataFrame
     return merged.drop(columns=["_pg", "_ind", "_specific"])
 
 
+def _group_labels(patient_groups: pd.Series, bands: PatientGroups) -> np.ndarray:
+    """The review's label of each row's patient group (None for the main group), each distinct
+    group labelled once."""
+    codes, uniques = pd.factorize(patient_groups.astype(object), use_na_sentinel=True)
+    labels = np.array([bands.label(str(g)) for g in uniques] + [None], dtype=object)
+    return labels[codes]
+
+
 def _investigation_units(
     units: pd.DataFrame,
     levels: pd.DataFrame,
@@ -1059,19 +1067,25 @@ def review(
         min_rooms=params.min_rooms_for_local_level,
         confidence_level=params.confidence_level,
     )
+    names = {t.exam_type: t.name for t in catalogue}  # the reasons name exams as people do
     flags: list[fl.Flag] = []
-    flags += fl.groups_above_level(groups)
+    flags += fl.groups_above_level(groups, exam_names=names)
+    investigated = _investigation_units(located, level_rows, upper, codes, params)
+    investigated = investigated.assign(
+        patient_group_label=_group_labels(investigated["patient_group"], bands)
+    )
     flags += fl.exams_above_investigation_level(
-        _investigation_units(located, level_rows, upper, codes, params),
+        investigated,
         multiple=params.investigation_multiple,
         above_percentile=params.investigate_above_percentile,
         max_per_group=params.max_exam_flags_per_group,
+        exam_names=names,
     )
     studies = study_table(
         scoped.loc[_studies_that_may_flag(scoped, params)], list(params.srdl_thresholds)
     )
     fluoro = studies.loc[studies["modality"].isin(list(params.srdl_modalities))]
-    flags += fl.srdl_exceeded(fluoro, thresholds=params.srdl_thresholds)
+    flags += fl.srdl_exceeded(fluoro, thresholds=params.srdl_thresholds, exam_names=names)
     ratios = _dap_ratios(scoped, params.group_by)
     flags += fl.dap_ratio_out_of_tolerance(
         ratios, tolerance=params.dap_ratio_tolerance, min_events=params.dap_ratio_min_events
@@ -1084,11 +1098,15 @@ def review(
         h=params.cusum_h,
         baseline_points=params.cusum_baseline_months,
         min_relative_change=params.changepoint_min_relative_change,
+        exam_names=names,
     )
     flags += fl.deviation_index_out_of_range(
-        scoped, di_range=params.di_range, max_per_group=params.max_exam_flags_per_group
+        scoped,
+        di_range=params.di_range,
+        max_per_group=params.max_exam_flags_per_group,
+        exam_names=names,
     )
-    flags += fl.no_dose_data(studies)
+    flags += fl.no_dose_data(studies, exam_names=names)
     flags += fl.unknown_exam_types(scoped, {t.exam_type for t in catalogue})
     flags += fl.unmapped_events(unmapped)
     flags += fl.low_dose_review(
@@ -1096,6 +1114,7 @@ def review(
         sites,
         fraction=params.low_dose_fraction,
         use_site_percentile=params.low_dose_below_site_p25,
+        exam_names=names,
     )
     return ReviewResult(
         period=params.period,

@@ -349,6 +349,7 @@ def add_skin_dose_flags(
         for f in flags
         if f.get("kind") == "srdl_exceeded"
     }
+    names = dict(session.execute(select(m.ExamTypeRow.code, m.ExamTypeRow.name)).all())
     added = 0
     for uid, (exam_type, psd, u_pct, room, site) in by_study.items():
         text = (
@@ -360,7 +361,7 @@ def add_skin_dose_flags(
                 "kind": "srdl_exceeded",
                 "severity": "action",
                 "reason": (
-                    f"Study {uid} ({exam_type or 'unmapped'}"
+                    f"Study {uid} ({names.get(exam_type) or exam_type or 'exam type not mapped'}"
                     f"{' in room ' + room if room else ''}) exceeds the NCRP 168 substantial "
                     f"radiation dose level: {text}. Follow the patient up for possible skin "
                     "effects as local procedure requires."

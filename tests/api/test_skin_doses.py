@@ -192,6 +192,7 @@ def test_a_review_flags_the_procedure_whose_psd_reached_3_gy(store, tmp_path) ->
     assert flag["concerns"]["study_uid"].endswith("994")
     assert flag["numbers"]["peak_skin_dose_mgy"] == pytest.approx(found.peak_skin_dose_mgy)
     assert "peak skin dose" in flag["reason"] and "Follow the patient up" in flag["reason"]
+    assert "(exam type not mapped in room ROOM1)" in flag["reason"]  # words, not a code
 
 
 def test_events_stored_without_completion_get_their_map_when_completed(store, tmp_path) -> None:

@@ -354,3 +354,61 @@ def test_flag_json_is_plain_and_sorting_is_stable() -> None:
     assert fl.sort_flags([flag, other]) == [other, flag]
     assert fl.FLAG_KINDS[0] == "group_above_level"
     assert np.all([k in fl.FLAG_KINDS for k in ("changepoint", "srdl_exceeded")])
+
+
+# ---------------------------------------------------------------- names a person reads (issue #23)
+#: exam type code -> the catalogue's name, as api/data/exam_types.csv has them
+NAMES = {"chest_pa": "Chest PA", "xa_pci": "Percutaneous coronary intervention"}
+
+
+def test_reasons_name_the_exam_by_its_catalogue_name_and_keep_the_code_in_concerns() -> None:
+    (group,) = fl.groups_above_level(groups_frame(), exam_names=NAMES)
+    assert group.reason.startswith("Median DAP 0.15 Gy·cm² of Chest PA in room R1, site S1 (")
+    assert group.exam_type == "chest_pa" and group.concerns()["exam_type"] == "chest_pa"
+    (exam,) = fl.exams_above_investigation_level(
+        units_frame([3.0]), multiple=2.0, above_percentile=False, exam_names=NAMES
+    )
+    assert "of exposure 1 (Chest PA in room R1, device D1, site S1;" in exam.reason
+    (srdl,) = fl.srdl_exceeded(
+        studies_frame(dap_gy_cm2=[510.0]), thresholds=fl.NCRP168_SRDL, exam_names=NAMES
+    )
+    assert srdl.reason.startswith("Study st0 (Percutaneous coronary intervention in room Cath 1,")
+    (di,) = fl.deviation_index_out_of_range(
+        events_frame([4.0]), di_range=(-3.0, 3.0), exam_names=NAMES
+    )
+    assert "(Chest PA in room R1, site S1)" in di.reason
+    for flag in (group, exam, srdl, di):
+        assert "chest_pa" not in flag.reason and "xa_pci" not in flag.reason
+        assert flag.to_json_dict()["concerns"]["exam_type"] in NAMES
+
+
+def test_a_code_the_names_lack_is_shown_as_it_is() -> None:
+    (group,) = fl.groups_above_level(groups_frame(exam_type=["local_exam"]), exam_names=NAMES)
+    assert " of local_exam in room R1" in group.reason
+
+
+def test_indication_and_patient_group_in_words() -> None:
+    frame = groups_frame(
+        clinical_indication=["acute_stroke"],
+        patient_group=["age_1_6y"],
+        patient_group_label=["children 1-<6 years"],
+    )
+    (group,) = fl.groups_above_level(frame, exam_names=NAMES)
+    assert " of Chest PA (acute stroke; children 1-<6 years) in room R1" in group.reason
+    assert group.concerns()["clinical_indication"] == "acute_stroke"
+    assert group.concerns()["patient_group"] == "age_1_6y"
+
+
+def test_unmapped_examinations_say_so_in_words() -> None:
+    (di,) = fl.deviation_index_out_of_range(
+        events_frame([4.0]).assign(exam_type=[None]), di_range=(-3.0, 3.0), exam_names=NAMES
+    )
+    assert "(exam type not mapped in room R1, site S1)" in di.reason
+    assert "unmapped" not in di.reason
+    over = fl.deviation_index_out_of_range(
+        events_frame([4.0, 5.0]).assign(exam_type=[None, None]),
+        di_range=(-3.0, 3.0),
+        max_per_group=1,
+    )
+    (summary,) = [f for f in over if f.event_id is None]
+    assert summary.reason.startswith("2 examinations without an exam type in room R1, site S1 ")

@@ -99,7 +99,7 @@ def test_a_level_for_an_indication_applies_to_its_groups_only(make_events) -> No
     (flag,) = [f for f in result.flags if f.kind == "group_above_level"]
     assert flag.clinical_indication == "acute_stroke"
     assert flag.concerns()["clinical_indication"] == "acute_stroke"
-    assert "ct_head (acute_stroke)" in flag.reason
+    assert "CT head (acute stroke)" in flag.reason  # the catalogue's name, the indication in words
 
 
 def test_rules_set_the_indication_of_unmapped_events(make_events) -> None:
