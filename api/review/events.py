@@ -126,14 +126,10 @@ OPTIONAL_COLUMNS = (
 )
 _LOCATION = ("site", "room", "device")
 
-#: Columns of :func:`build_units` (one row per examination value).
-UNIT_COLUMNS = (
-    "unit_kind",
-    "event_id",
+#: What a unit carries of its examination, per event or summed per study.
+_EXAM_COLUMNS = (
     "study_uid",
-    "site",
-    "room",
-    "device",
+    *_LOCATION,
     "exam_type",
     "month_key",
     "patient_weight_kg",
@@ -141,9 +137,10 @@ UNIT_COLUMNS = (
     "clinical_indication",
     "breast_thickness_mm",
     "ct_dw_cm",
-    "quantity",
-    "value",
 )
+
+#: Columns of :func:`build_units` (one row per examination value).
+UNIT_COLUMNS = ("unit_kind", "event_id", *_EXAM_COLUMNS, "quantity", "value")
 
 _SHOWN_IDS = 5
 
@@ -475,17 +472,7 @@ def build_units(
     is_study = use & events["exam_type"].isin(per_study).to_numpy()
     is_event = use & events["exam_type"].isin(per_event).to_numpy()
     quantity_columns = list(QUANTITIES)
-    base = [
-        "study_uid",
-        *_LOCATION,
-        "exam_type",
-        "month_key",
-        "patient_weight_kg",
-        "patient_age_years",
-        "clinical_indication",
-        "breast_thickness_mm",
-        "ct_dw_cm",
-    ]
+    base = list(_EXAM_COLUMNS)
 
     studies = _study_values(events, is_study, catalogue)
     projections = events.loc[is_event, ["event_id", *base, *quantity_columns]]
