@@ -58,11 +58,13 @@ from beamaudit.model.trail import WhyTrail
 
 __all__ = [
     "AAPM220_SOURCE",
+    "DW_METHOD_RELATIVE_UNCERTAINTY",
     "AxialSizes",
     "ContourMethod",
     "ScanRangeSize",
     "axial_sizes",
     "patient_mask",
+    "scan_range_dw_uncertainty",
     "scan_range_size",
 ]
 
@@ -500,3 +502,43 @@ def scan_range_size(
         truncated_samples=n_truncated,
         trail=trail,
     )
+
+
+#: Relative standard uncertainty of one Dw from the images, by method (from memory, low
+#: confidence): contouring and CT-number calibration of axial images give Dw within a few per
+#: cent of a phantom's known size (AAPM Report 220, 2014; IEC 62985:2019 phantom verification);
+#: a localizer row, through its calibration to water and the beam hardening it ignores, within
+#: about twice that. Each is taken here as a standard uncertainty.
+DW_METHOD_RELATIVE_UNCERTAINTY = {"axial_images": 0.02, "localizer": 0.05}
+
+
+def scan_range_dw_uncertainty(
+    *, dw_cm: ArrayLike, mean_dw_cm: float, method: str = "axial_images"
+) -> tuple[float, dict[str, float]]:
+    r"""Standard uncertainty of a scan-range mean :math:`\bar D_w` (cm), and its components.
+
+    Two independent components, added in quadrature (JCGM 100:2008, GUM, eq. 10):
+
+    .. math::
+
+        u(\bar D_w) = \sqrt{\left(\frac{s}{\sqrt{n}}\right)^2 + (r_m \bar D_w)^2}
+
+    - *sampling* :math:`s/\sqrt{n}`: the standard deviation :math:`s` of the :math:`n` samples'
+      :math:`D_w` over the square root of their number (GUM type A, eq. 5), which stands for
+      the size variation the sampling may have missed between samples; zero for one sample;
+    - *method* :math:`r_m \bar D_w`: the method's own relative uncertainty
+      (:data:`DW_METHOD_RELATIVE_UNCERTAINTY`, from memory).
+
+    A truncated patient (on the edge of the field of view) makes :math:`D_w` too small: that
+    bias is not in :math:`u`; the trail names the truncated samples.
+    """
+    if method not in DW_METHOD_RELATIVE_UNCERTAINTY:
+        known = ", ".join(DW_METHOD_RELATIVE_UNCERTAINTY)
+        raise ModelError(f"Dw method must be one of {known}, not {method!r}")
+    if not (math.isfinite(mean_dw_cm) and mean_dw_cm > 0):
+        raise ModelError(f"mean Dw must be a positive finite number, not {mean_dw_cm!r}")
+    dw = np.asarray(dw_cm, dtype=np.float64).ravel()
+    dw = dw[np.isfinite(dw) & (dw > 0)]
+    sampling = float(np.std(dw, ddof=1) / math.sqrt(dw.size)) if dw.size > 1 else 0.0
+    method_u = DW_METHOD_RELATIVE_UNCERTAINTY[method] * float(mean_dw_cm)
+    return math.hypot(sampling, method_u), {"sampling_cm": sampling, "method_cm": method_u}

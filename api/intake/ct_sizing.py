@@ -73,9 +73,10 @@ from beamaudit.ingest.ct_images import (
 )
 from beamaudit.ingest.errors import IngestError
 from beamaudit.model.ct_localizer import localizer_sizes
-from beamaudit.model.ct_size import axial_sizes, scan_range_size
+from beamaudit.model.ct_size import axial_sizes, scan_range_dw_uncertainty, scan_range_size
 from beamaudit.model.errors import ModelError
-from beamaudit.model.ssde import size_specific_dose_estimate
+from beamaudit.model.ssde import size_specific_dose_estimate, ssde_standard_uncertainty
+from beamaudit.model.trail import WhyTrail
 
 __all__ = [
     "CT_IMAGE_CLASSES",
@@ -620,7 +621,23 @@ def _event_size(
     except ModelError as exc:
         errors.append(IngestError("bad_value", f"patient size: {exc}", f"study {study_uid}"))
         return None
-    trail = [step.as_dict() for step in size.trail.steps]
+    u_dw, u_parts = scan_range_dw_uncertainty(dw_cm=dw, mean_dw_cm=size.mean_dw_cm, method=method)
+    steps = WhyTrail()
+    steps.add(
+        "water_equivalent_diameter_mean_standard_uncertainty_cm", u_dw, "cm",
+        equation="u = sqrt((s / sqrt(n))^2 + (r_method Dw)^2)",
+        source="JCGM 100:2008 (GUM) eq. 5 and 10; method share from memory (model/ct_size.py)",
+        inputs=u_parts | {"samples": int(dw.size)},
+    )  # fmt: skip
+    u_centre, _ = scan_range_dw_uncertainty(
+        dw_cm=[size.centre_dw_cm], mean_dw_cm=size.centre_dw_cm, method=method
+    )
+    steps.add(
+        "water_equivalent_diameter_centre_standard_uncertainty_cm", u_centre, "cm",
+        equation="u = r_method Dw (one position)",
+        source="the method share of model/ct_size.py (from memory)",
+    )  # fmt: skip
+    trail = [step.as_dict() for step in (*size.trail.steps, *steps.steps)]
     values: dict[str, Any] = {
         "size_dw_mean_cm": size.mean_dw_cm,
         "size_dw_centre_cm": size.centre_dw_cm,
@@ -653,10 +670,23 @@ def _event_size(
             values["size_ssde_mgy"] = ssde.ssde_mgy
             values["size_ssde_report"] = ssde.report
             trail.extend(step.as_dict() for step in ssde.trail.steps)
+            trail.append(_ssde_uncertainty_step(ssde, u_dw))
             if row.ssde_mgy and ssde.ssde_mgy > 0:
                 values["ssde_ratio_reported_to_size"] = row.ssde_mgy / ssde.ssde_mgy
     values["size_trail"] = {"steps": trail}
     return values
+
+
+def _ssde_uncertainty_step(ssde: Any, u_dw_cm: float) -> dict[str, Any]:
+    """The trail step of an SSDE's standard uncertainty (size and fit, ``model/ssde.py``)."""
+    steps = WhyTrail()
+    steps.add(
+        "ssde_standard_uncertainty_mgy", ssde_standard_uncertainty(ssde, u_dw_cm), "mGy",
+        equation="u(SSDE) / SSDE = sqrt((b u(Dw))^2 + u_f^2)",
+        source=f"{ssde.report} fit f = a exp(-b Dw); JCGM 100:2008 (GUM) eq. 10",
+        inputs={"dw_standard_uncertainty_cm": u_dw_cm},
+    )  # fmt: skip
+    return steps.steps[0].as_dict()
 
 
 class ArrivalSizer:
