@@ -53,8 +53,15 @@ def _flags() -> list[dict[str, Any]]:
 
 def _review(sessions: Any, flags: list[dict[str, Any]] | None = None) -> int:
     with sessions.begin() as session:
-        session.merge(m.ExamTypeRow(code="chest_pa", name="Chest PA", modality="DX",
-                                    level_applies_per="projection", quantities=["dap_gy_cm2"]))
+        session.merge(
+            m.ExamTypeRow(
+                code="chest_pa",
+                name="Chest PA",
+                modality="DX",
+                level_applies_per="projection",
+                quantities=["dap_gy_cm2"],
+            )
+        )
         run = m.ReviewRun(
             kind="monthly", period="2026-11", period_start=date(2026, 11, 1),
             period_end=date(2026, 12, 1), software_version="test", status="done",
