@@ -144,11 +144,7 @@ def listen_spool_dir(settings: Any) -> Path:
     pseudonymisation key (a PostgreSQL store, an in-memory SQLite database)."""
     if settings.listener.spool_dir is not None:
         return Path(settings.listener.spool_dir)
-    url = str(settings.database_url)
-    database = url.removeprefix("sqlite:///").split("?", 1)[0]
-    if url.startswith("sqlite:///") and database and database != ":memory:":
-        return Path(database).resolve().parent
-    return Path(settings.secret_key_path).resolve().parent
+    return Path(settings.store_folder())
 
 
 def register(app: typer.Typer) -> None:
