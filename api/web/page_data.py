@@ -451,7 +451,8 @@ def _exposure(session: Session, e: m.ExposureEventRow) -> dict[str, Any]:
         "event_datetime": e.event_datetime or e.study_datetime,
         "technique": technique,
         "dose": dose,
-        "why": _why(trail),
+        # a CT event's patient size and SSDE have a trail of their own (api/intake/ct_sizing.py)
+        "why": _why(trail) + why_steps((e.size_trail or {}).get("steps", [])),
         "spectrum": _spectrum(e) if e.recon_status == "ok" else None,
     }
 

@@ -113,6 +113,8 @@ def test_a_scanned_series_gets_its_dw_and_ssde_reading_only_the_chosen_images(
     assert dose["water_equivalent_diameter_cm"]["uncertainty"] == pytest.approx(u_dw, rel=1e-2)
     u_ssde = math.hypot(0.03671937 * u_dw, 0.10) * events[0].size_ssde_mgy
     assert dose["ssde_mgy"]["uncertainty"] == pytest.approx(u_ssde, rel=1e-2)
+    why = [step["quantity"] for step in record["exposures"][0]["why"]]
+    assert "water_equivalent_diameter_mean_cm" in why and "ssde_mgy" in why  # the size's trail
     centre = dose["water_equivalent_diameter_centre_cm"]
     assert centre["uncertainty"] == pytest.approx(0.02 * centre["value"], rel=1e-9)
     size = event_size(events[0])
