@@ -301,7 +301,7 @@ def test_explain_and_export_name_the_mammography_figures(settings_env, tmp_path,
     assert explained["mammography"]["reported_mgd_mgy"] == pytest.approx(1.31)
     assert main(["explain", header["id"]]) == 0
     text = capsys.readouterr().out
-    assert "mean glandular dose (AGD)" in text and "W/Rh" in text
+    assert "mean glandular dose (MGD)" in text and "W/Rh" in text
 
 
 def test_stored_events_map_2d_and_tomosynthesis_by_their_acquisition(store, tmp_path) -> None:

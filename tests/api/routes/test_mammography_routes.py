@@ -81,7 +81,7 @@ def test_the_exam_page_shows_our_dose_beside_the_device_s(api, mg) -> None:
     page = client.get(f"/exams/{header.StudyInstanceUID}", headers=api.headers("physicist"))
     assert page.status_code == 200, page.text[:300]
     text = page.text
-    assert "Mean glandular dose (AGD)" in text
+    assert "Mean glandular dose (MGD)" in text
     assert "W/Rh" in text and "Compressed breast thickness" in text
     assert "Glandularity used" in text and "s (spectrum)" in text
     assert "1.31" in text  # the device's AGD beside ours
