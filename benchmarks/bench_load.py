@@ -139,10 +139,13 @@ class Recorder:
         self.lock = threading.Lock()
         self.latencies: list[float] = []
         self.errors: list[str] = []
+        #: latencies by kind of request (list, one event, upload): where a slow tail comes from
+        self.by_kind: dict[str, list[float]] = {}
 
-    def add(self, seconds: float, error: str | None = None) -> None:
+    def add(self, seconds: float, error: str | None = None, kind: str = "") -> None:
         with self.lock:
             self.latencies.append(seconds)
+            self.by_kind.setdefault(kind, []).append(seconds)
             if error is not None:
                 self.errors.append(error)
 
@@ -170,7 +173,8 @@ def _api_client(base: str, token: str, until: float, rec: Recorder, seed: int) -
                 error = None if reply.is_success else f"{reply.status_code} {reply.text[:200]}"
             except httpx.HTTPError as exc:
                 error = f"{type(exc).__name__}: {exc}"
-            rec.add(time.perf_counter() - start, error)
+            kind = "upload" if choice < 0.1 else "one event" if choice < 0.3 else "lists"
+            rec.add(time.perf_counter() - start, error, kind)
 
 
 def _baseline(base: str) -> tuple[float, list[float]]:
@@ -265,6 +269,10 @@ def main(argv: list[str]) -> int:
             for thread in clients:
                 thread.join(timeout=load_s + 120)
             api_rate = _report(f"API, {API_CLIENTS} clients", api, time.monotonic() - started)
+            for kind, seconds in sorted(api.by_kind.items()):
+                print(f"  {kind}: {len(seconds)} requests, p50 "
+                      f"{_percentile(seconds, 0.5) * 1000:.0f} ms, p99 "
+                      f"{_percentile(seconds, 0.99) * 1000:.0f} ms")  # fmt: skip
             ratio = api_rate / baseline_rate
             p99_s = _percentile(api.latencies, 0.99) if api.latencies else float("inf")
             if ratio < TARGET_RATIO:

@@ -62,6 +62,7 @@ __all__ = [
     "reconstruct_events",
     "room_patient_support",
     "trail_for_event",
+    "warm_up",
 ]
 
 log = logging.getLogger(__name__)
@@ -742,6 +743,16 @@ def _finite_list(values: Any) -> list[float | None]:
 def _id_chunks(ids: list[int], size: int = 500) -> Iterable[list[int]]:
     for start in range(0, len(ids), size):
         yield ids[start : start + size]
+
+
+def warm_up() -> None:
+    """Load the model's data tables (attenuation, backscatter, spectra) by making one trail's beam
+    and dose, so that a serving process pays for them before its first request rather than
+    under its first burst of requests (about a second of CPU per process)."""
+    from beamaudit.model import GeometryInputs, dose_from_beam
+
+    beam = _TRAIL_BEAMS.get(kvp_kv=80.0, filters=None, room=None, calibration=None)
+    dose_from_beam(beam, exposure_mas=10.0, geometry=GeometryInputs(sid_mm=1000.0))
 
 
 def trail_for_event(session: Session, event: m.ExposureEventRow) -> dict[str, Any] | None:

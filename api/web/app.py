@@ -218,7 +218,20 @@ def create_app_from_environment() -> FastAPI:
     from beamaudit.api.settings import load
 
     _end_with_the_serving_process()
-    return create_app(load())
+    app = create_app(load())
+    warm_up_model()
+    return app
+
+
+def warm_up_model() -> None:
+    """The model's data tables loaded before the first request (a failure here is logged, and
+    the tables are then loaded by the first request that needs them)."""
+    from beamaudit.api.intake.reconstruct import warm_up
+
+    try:
+        warm_up()
+    except Exception:  # serving goes on; the first trail pays for the tables instead
+        log.exception("loading the model's data tables before serving failed")
 
 
 def _end_with_the_serving_process() -> None:
