@@ -292,7 +292,9 @@ class _RoomSimulator:
 
     def _labels(self, prog: ViewProgram, key: str, day: date, changed: bool) -> _Labels:
         """What the image header names the exposure, and the plants it carries."""
-        protocol, body_part, exam_type = prog.protocol_name, prog.body_part, prog.exam_type
+        protocol = prog.protocol_name
+        body_part: str | None = prog.body_part
+        exam_type: str | None = prog.exam_type
         planted: list[str] = []
         if self._unmapped(key, day):  # a new reader menu entry that fills no body part
             protocol = self.plan.unmapped_protocol_name
