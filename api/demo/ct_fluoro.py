@@ -441,9 +441,9 @@ class _Fluoro:
         return float(np.clip(total_s, 0.5 * median, 1.5 * median))
 
     def _geometry(self, protocol: FluoroProtocol, size: float) -> tuple[float, tuple[float, float]]:
-        """Source to image distance and field (mm) of one study: the
-        under-couch tube, the tabletop, the patient (``230 mm size**0.5``, invented) and the
-        detector clearance, with the operator's spread."""
+        """Source to image distance and field (mm) of one study: the under-couch tube, the
+        tabletop, the patient (``230 mm size**0.5``, invented) and the detector clearance, with
+        the operator's spread."""
         rng = self.rng
         thickness = 230.0 * size**0.5
         sid = float(
