@@ -10,7 +10,11 @@ import typer
 from beamaudit.api.cli._common import console, fail
 
 if TYPE_CHECKING:
-    from beamaudit.ingest.listener import ListenerConfig
+    from beamaudit.api.cli._spool_worker import SpoolWorkerProcess
+    from beamaudit.api.cli._store import OpenStore
+    from beamaudit.api.intake.spooling import Spool
+    from beamaudit.api.settings import ListenerSettings, Settings
+    from beamaudit.ingest.listener import Listener, ListenerConfig
 
 __all__ = ["register"]
 
@@ -87,7 +91,12 @@ def listen_command(
 
 
 def _listener_config(
-    cfg: Any, *, ae_title: str | None, host: str | None, port: int | None, allow: list[str] | None
+    cfg: ListenerSettings,
+    *,
+    ae_title: str | None,
+    host: str | None,
+    port: int | None,
+    allow: list[str] | None,
 ) -> ListenerConfig:
     """The listener's configuration: the command's options over the ``listener`` settings."""
     from beamaudit.ingest.listener import ListenerConfig
@@ -110,7 +119,7 @@ def _listener_config(
     )
 
 
-def _start_spool_worker(settings: Any, spool: Any, key: bytes) -> Any:
+def _start_spool_worker(settings: Settings, spool: Spool, key: bytes) -> SpoolWorkerProcess:
     """Start the process that parses and stores what the listener spooled."""
     from beamaudit.api.cli._spool_worker import SpoolWorkerProcess
 
@@ -128,7 +137,9 @@ def _start_spool_worker(settings: Any, spool: Any, key: bytes) -> Any:
     )
 
 
-def _serve_listener_metrics(store: Any, listener: Any, worker: Any, spool: Any) -> None:
+def _serve_listener_metrics(
+    store: OpenStore, listener: Listener, worker: SpoolWorkerProcess, spool: Spool
+) -> None:
     """Serve ``/metrics`` for the listener when the settings ask for it; a port we cannot bind
     stops the listener and its worker with a one-line error."""
     metrics = store.settings.metrics
