@@ -48,89 +48,92 @@ def _fill(sessions: Any, n: int = 400, seed: int = 7) -> None:
     """Events in and around March 2026 with every case the events table distinguishes."""
     rng = random.Random(seed)
     with sessions.begin() as s:
-        s.execute(
-            insert(m.Site), [{"id": 1, "name": "Site A (invented)"}, {"id": 2, "name": "Site B"}]
-        )
-        s.execute(
-            insert(m.Room),
-            [
-                {"id": 3, "site_id": 1, "name": "ROOM 3"},
-                {"id": 5, "site_id": 1, "name": "ROOM 5"},
-                {"id": 8, "site_id": 2, "name": "ROOM 3"},  # the same name in two sites
-            ],
-        )
-        s.execute(
-            insert(m.Device),
-            [
-                {"id": 2, "room_id": 3, "manufacturer": "Acme", "model_name": "X1"},
-                {"id": 4, "room_id": 5, "station_name": "STATION4"},
-            ],
-        )
-        s.execute(
-            insert(m.Study),
-            [{"id": i, "study_instance_uid": f"2.25.{i}"} for i in range(1, n // 3 + 1)],
-        )
-        s.execute(
-            insert(m.SourceObjectRow),
-            [
-                {"id": i, "sop_instance_uid": f"2.25.9{i}", "sop_class_uid": "1.2.3",
-                 "kind": "image_header", "received_via": "test"}
-                for i in range(1, n + 1)
-            ],
-        )  # fmt: skip
-        rows = []
+        _fill_places(s, n)
         ids = list(range(1, n + 1))
         rng.shuffle(ids)  # inserted out of id order
-        for i in ids:
-            start = datetime(2026, 2, 26, tzinfo=UTC)
-            when = (
-                start
-                + timedelta(seconds=rng.randrange(0, 40 * 86400))
-                + timedelta(microseconds=rng.randrange(0, 10**6))
-            )
+        s.execute(insert(m.ExposureEventRow), [_random_event(rng, i, n) for i in ids])
 
-            def maybe(value: float, p: float = 0.7) -> float | None:
-                return value if rng.random() < p else None
 
-            rows.append(
-                {
-                    "id": i,
-                    "event_key": f"k{i}",
-                    "source_object_id": i,
-                    "study_id": rng.choice([None, *range(1, n // 3 + 1)]),
-                    "room_id": rng.choice([None, 3, 5, 8]),
-                    "device_id": rng.choice([None, 2, 4]),
-                    "source_kind": rng.choice(["image_header", "image_header", "dose_report"]),
-                    "event_index": 0,
-                    "exam_type": rng.choice(EXAMS),
-                    "superseded": rng.random() < 0.1,
-                    "modality": rng.choice(MODALITIES),
-                    "acquisition_key": rng.choice([None, None, "a1", "a2", "a3"]),
-                    "event_datetime": when if rng.random() < 0.9 else None,
-                    "study_datetime": when - timedelta(minutes=5),
-                    "event_type": rng.choice([None, "fluoroscopy", "stationary"]),
-                    "irradiation_duration_s": maybe(rng.uniform(0, 600), 0.5),
-                    "study_description": rng.choice([None, "CHEST", "Abdomen"]),
-                    "series_description": rng.choice([None, "PA"]),
-                    "protocol_name": rng.choice([None, "P1"]),
-                    "body_part": rng.choice([None, "CHEST", "HEAD"]),
-                    "view_position": rng.choice([None, "PA", "AP"]),
-                    "patient_weight_kg": maybe(rng.uniform(20, 140)),
-                    "dap_gy_cm2": maybe(rng.lognormvariate(-1, 0.5)),
-                    "recon_dap_gy_cm2": maybe(rng.lognormvariate(-1, 0.5)),
-                    "recon_esak_mgy": maybe(rng.lognormvariate(0, 0.5)),
-                    "reference_point_air_kerma_mgy": maybe(rng.uniform(0, 50), 0.2),
-                    "ctdivol_mgy": maybe(rng.uniform(1, 60), 0.2),
-                    "dlp_mgy_cm": maybe(rng.uniform(10, 900), 0.2),
-                    "organ_dose_mgy": maybe(rng.uniform(0.5, 3), 0.1),
-                    "deviation_index": maybe(rng.uniform(-5, 5), 0.5),
-                    "size_dw_mean_cm": maybe(rng.uniform(12, 45), 0.4),
-                    "water_equivalent_diameter_mm": maybe(rng.uniform(120, 450), 0.4),
-                    "provenance": {},
-                    "notes": [],
-                }
-            )
-        s.execute(insert(m.ExposureEventRow), rows)
+def _fill_places(s: Any, n: int) -> None:
+    """Two sites, three rooms (one name in two sites), two devices, n/3 studies, n objects."""
+    s.execute(insert(m.Site), [{"id": 1, "name": "Site A (invented)"}, {"id": 2, "name": "Site B"}])
+    s.execute(
+        insert(m.Room),
+        [
+            {"id": 3, "site_id": 1, "name": "ROOM 3"},
+            {"id": 5, "site_id": 1, "name": "ROOM 5"},
+            {"id": 8, "site_id": 2, "name": "ROOM 3"},  # the same name in two sites
+        ],
+    )
+    s.execute(
+        insert(m.Device),
+        [
+            {"id": 2, "room_id": 3, "manufacturer": "Acme", "model_name": "X1"},
+            {"id": 4, "room_id": 5, "station_name": "STATION4"},
+        ],
+    )
+    s.execute(
+        insert(m.Study),
+        [{"id": i, "study_instance_uid": f"2.25.{i}"} for i in range(1, n // 3 + 1)],
+    )
+    s.execute(
+        insert(m.SourceObjectRow),
+        [
+            {"id": i, "sop_instance_uid": f"2.25.9{i}", "sop_class_uid": "1.2.3",
+             "kind": "image_header", "received_via": "test"}
+            for i in range(1, n + 1)
+        ],
+    )  # fmt: skip
+
+
+def _random_event(rng: random.Random, i: int, n: int) -> dict[str, Any]:
+    """Event ``i`` of ``n``: each column present, missing or varied at random."""
+    start = datetime(2026, 2, 26, tzinfo=UTC)
+    when = (
+        start
+        + timedelta(seconds=rng.randrange(0, 40 * 86400))
+        + timedelta(microseconds=rng.randrange(0, 10**6))
+    )
+
+    def maybe(value: float, p: float = 0.7) -> float | None:
+        return value if rng.random() < p else None
+
+    return {
+        "id": i,
+        "event_key": f"k{i}",
+        "source_object_id": i,
+        "study_id": rng.choice([None, *range(1, n // 3 + 1)]),
+        "room_id": rng.choice([None, 3, 5, 8]),
+        "device_id": rng.choice([None, 2, 4]),
+        "source_kind": rng.choice(["image_header", "image_header", "dose_report"]),
+        "event_index": 0,
+        "exam_type": rng.choice(EXAMS),
+        "superseded": rng.random() < 0.1,
+        "modality": rng.choice(MODALITIES),
+        "acquisition_key": rng.choice([None, None, "a1", "a2", "a3"]),
+        "event_datetime": when if rng.random() < 0.9 else None,
+        "study_datetime": when - timedelta(minutes=5),
+        "event_type": rng.choice([None, "fluoroscopy", "stationary"]),
+        "irradiation_duration_s": maybe(rng.uniform(0, 600), 0.5),
+        "study_description": rng.choice([None, "CHEST", "Abdomen"]),
+        "series_description": rng.choice([None, "PA"]),
+        "protocol_name": rng.choice([None, "P1"]),
+        "body_part": rng.choice([None, "CHEST", "HEAD"]),
+        "view_position": rng.choice([None, "PA", "AP"]),
+        "patient_weight_kg": maybe(rng.uniform(20, 140)),
+        "dap_gy_cm2": maybe(rng.lognormvariate(-1, 0.5)),
+        "recon_dap_gy_cm2": maybe(rng.lognormvariate(-1, 0.5)),
+        "recon_esak_mgy": maybe(rng.lognormvariate(0, 0.5)),
+        "reference_point_air_kerma_mgy": maybe(rng.uniform(0, 50), 0.2),
+        "ctdivol_mgy": maybe(rng.uniform(1, 60), 0.2),
+        "dlp_mgy_cm": maybe(rng.uniform(10, 900), 0.2),
+        "organ_dose_mgy": maybe(rng.uniform(0.5, 3), 0.1),
+        "deviation_index": maybe(rng.uniform(-5, 5), 0.5),
+        "size_dw_mean_cm": maybe(rng.uniform(12, 45), 0.4),
+        "water_equivalent_diameter_mm": maybe(rng.uniform(120, 450), 0.4),
+        "provenance": {},
+        "notes": [],
+    }
 
 
 def _plain_table(session: Any) -> pd.DataFrame:
