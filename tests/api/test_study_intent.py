@@ -148,8 +148,7 @@ def test_a_study_level_screening_code_keeps_the_plain_views_screening(store, tmp
     got = _stored(store)
     screening_clue = "(0008,1032) ProcedureCodeSequence (MGS2, 99LOCAL) Screening mammography"
     assert sorted((g[1], g[2], g[4]) for g in got) == sorted(
-        [("screening", "screening", screening_clue)] * 4
-        + [("diagnostic", "diagnostic", SPOT_CLUE)]
+        [("screening", "screening", screening_clue)] * 4 + [("diagnostic", "diagnostic", SPOT_CLUE)]
     )
 
 
