@@ -162,6 +162,7 @@ def settle_study_intents(session: Session, rows: list[dict[str, Any]]) -> list[i
         .where(ev.study_id.in_(sorted(batch)), ev.modality == "MG")
     ).all()  # fmt: skip
     for row_id, study_id, sop, index, intent, provenance in stored:
+        assert study_id is not None  # one of the batch's studies (the query's filter)
         reading = IntentReading(("id", row_id), sop, index, intent, dict(provenance or {}))
         batch[study_id].append(reading)
     changed: list[int] = []
