@@ -29,6 +29,9 @@ import math
 
 import numpy as np
 
+from beamaudit.api.review._band_names import band_bounds
+from beamaudit.api.review._band_names import band_name as _band_name
+
 __all__ = [
     "ANY_THICKNESS_BAND",
     "DEFAULT_THICKNESS_BAND_MM",
@@ -53,11 +56,7 @@ _PREFIX = "breast_"
 
 def band_name(band_mm: tuple[float, float]) -> str:
     """The group name of a band: ``breast_50_60mm`` (``breast_45p5_60mm`` for 45.5)."""
-    return f"{_PREFIX}{_number(band_mm[0])}_{_number(band_mm[1])}mm"
-
-
-def _number(value: float) -> str:
-    return f"{value:g}".replace(".", "p")
+    return _band_name(_PREFIX, band_mm[0], band_mm[1], "mm")
 
 
 def is_thickness_group(name: str | None) -> bool:
@@ -67,20 +66,8 @@ def is_thickness_group(name: str | None) -> bool:
 
 def thickness_band_bounds(name: str) -> tuple[float, float] | None:
     """``(low, high)`` mm of a band name in its one spelling (``breast_50_60mm``), else None
-    (the groups outside the band and not recorded are no band)."""
-    if not name.startswith(_PREFIX) or not name.endswith("mm"):
-        return None
-    parts = name.removeprefix(_PREFIX).removesuffix("mm").split("_")
-    if len(parts) != 2:
-        return None
-    try:
-        low, high = (float(p.replace("p", ".")) for p in parts)
-    except ValueError:
-        return None
-    band = check_band((low, high))
-    if band is None or band_name(band) != name:
-        return None
-    return band
+    (the groups outside the band and not recorded are no band; ``0 < low < high <= 200``)."""
+    return band_bounds(name, _PREFIX, "mm", 200.0)
 
 
 def is_thickness_band(name: str | None) -> bool:
