@@ -214,6 +214,9 @@ def _store_client(port: int, rec: Recorder, seed: int) -> None:
 
 
 def _report(name: str, rec: Recorder, seconds: float) -> float:
+    if not rec.latencies:
+        print(f"{name}: no request answered in {seconds:.1f} s; errors {len(rec.errors)}")
+        return 0.0
     rate = len(rec.latencies) / seconds
     p50 = _percentile(rec.latencies, 0.50) * 1000
     p99 = _percentile(rec.latencies, 0.99) * 1000
