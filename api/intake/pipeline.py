@@ -378,7 +378,7 @@ def _make_printable(obj: Any) -> None:
                 setattr(obj, f.name, cleaned)
 
 
-_WRITER_LOCKS: dict[str, threading.Lock] = {}
+_WRITER_LOCKS: dict[str, threading.RLock] = {}
 _WRITER_LOCKS_GUARD = threading.Lock()
 
 
@@ -397,7 +397,7 @@ def writer_turn(sessions: sessionmaker[Session]) -> contextlib.AbstractContextMa
         return contextlib.nullcontext()
     key = str(url)
     with _WRITER_LOCKS_GUARD:
-        return _WRITER_LOCKS.setdefault(key, threading.Lock())
+        return _WRITER_LOCKS.setdefault(key, threading.RLock())
 
 
 class Pipeline:

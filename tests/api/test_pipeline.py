@@ -392,7 +392,7 @@ def test_threads_of_one_process_take_turns_at_a_sqlite_writer(store) -> None:
 
     turn = writer_turn(store.session_factory)
     if store.backend == "sqlite":
-        assert isinstance(turn, type(threading.Lock()))
+        assert isinstance(turn, type(threading.RLock()))
         assert writer_turn(store.session_factory) is turn  # one per database
     else:  # PostgreSQL has row locks and many writers
         assert isinstance(turn, contextlib.nullcontext)
