@@ -270,22 +270,48 @@ def _study_uids(session: Session, ids: np.ndarray) -> np.ndarray:
     """The Study Instance UIDs of the studies ``ids`` (sorted), in one query over their range."""
     if not len(ids):
         return np.array([], dtype=object)
-    # the rows through the DBAPI cursor: half a million ORM rows cost seconds, these a few tenths
-    rows = _fetch(
-        session,
-        select(m.Study.id, m.Study.study_instance_uid).where(
-            m.Study.id.between(bindparam("first"), bindparam("last"))
-        ),
-        {"first": int(ids[0]), "last": int(ids[-1])},
+    stmt = select(m.Study.id, m.Study.study_instance_uid).where(
+        m.Study.id.between(bindparam("first"), bindparam("last"))
     )
-    study_ids = rows[:, 0].astype(np.int64)
-    order = np.argsort(study_ids, kind="stable")
-    at, found = _positions(study_ids[order], ids)
+    bounds = {"first": int(ids[0]), "last": int(ids[-1])}
+    found_rows = _study_rows_by_arrow(session, stmt, bounds, len(ids))
+    if found_rows is None:
+        # the rows through the DBAPI cursor: half a million ORM rows cost seconds, these tenths
+        rows = _fetch(session, stmt, bounds)
+        found_rows = rows[:, 0].astype(np.int64), rows[:, 1]
+    found_ids, found_uids = found_rows
+    order = np.argsort(found_ids, kind="stable")
+    at, found = _positions(found_ids[order], ids)
     out = np.empty(len(ids), dtype=object)
-    out[found] = rows[order[at], 1]
+    out[found] = found_uids[order[at]]
     for k in np.flatnonzero(~found):  # a study deleted since its events were read
         out[k] = f"(study {ids[k]})"
     return out
+
+
+def _study_rows_by_arrow(
+    session: Session, stmt: Any, values: dict[str, Any], n: int
+) -> tuple[np.ndarray, np.ndarray] | None:
+    """The studies' ids and UIDs of ``stmt`` through the ADBC PostgreSQL driver (the texts
+    made in C, not one DBAPI row each); None on another backend, for fewer than
+    ``_ARROW_MIN_EVENTS`` studies, or when the driver cannot read them as the session sees them."""
+    if n < _ARROW_MIN_EVENTS or session.get_bind().dialect.name != "postgresql":
+        return None
+    source = _postgres_arrow_reader(session)
+    if source is None:
+        return None
+    census = select(func.count(), func.max(m.Study.id))
+    expected = tuple(session.execute(census).one())
+    statements = source.statements(stmt, values)
+    census_sql = str(census.compile(dialect=session.get_bind().dialect))
+    pieces = source.read(census_sql, expected, statements) if statements else None
+    if not pieces:
+        return None
+    table = pieces[0]
+    return (
+        table.column(0).to_numpy(zero_copy_only=False).astype(np.int64),
+        table.column(1).to_numpy(zero_copy_only=False).astype(object),
+    )
 
 
 def _text_categorical(values: np.ndarray) -> pd.Categorical:
