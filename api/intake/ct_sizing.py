@@ -2,7 +2,8 @@
 
 The intake keeps, per study, the *headers* of its CT images (:class:`~beamaudit.ingest.
 ct_images.CtImageHeader`, a few numbers each) with a way to read each image's pixels later
-(a path, a WADO-RS frame, or nothing when the pixels were measured on arrival). Once a study's
+(a path, a WADO-RS frame, or nothing when the pixels were measured on arrival: the C-STORE
+listener, :class:`ArrivalSizer`). Once a study's
 images are in (the end of a folder scan, a pull, the listener's association), :meth:`StudySizer.
 finish` chooses the images worth reading (``select_size_images``: every 50 mm of one series per
 acquisition, with its first, last and centre image), reads only those, one at a time, computes
@@ -28,7 +29,12 @@ is read only when its scanner (the study's device) has a stored calibration to w
 image's tube voltage and view (``api/store/ct_calibrations.py``); each of its rows then gives a Dw
 at its table position. An acquisition with axial samples at two or more table positions is
 sized from them (``size_method`` ``axial_images``); one with fewer, or an event with only its
-TID 10014 scan range, from the localizer rows within its range (``localizer``).
+TID 10014 scan range, from the localizer rows within its range (``localizer``). The folder scan
+and the pull read a localizer when its study is sized; the listener, which keeps no pixels,
+when it arrives (:meth:`StudySizer.add_localizer_now`, after the localizer's own object is
+stored, so its device is known): its rows go into ``ct_size_samples`` at once and are used when
+the study is sized. Either way a localizer without a calibration is not read and counts in
+``localizers_uncalibrated``.
 
 **Late images.** Every sample (an axial image's Dw, a localizer row's) is kept in
 ``ct_size_samples``; sizing a study uses all its samples, earlier ones included, so images
@@ -48,6 +54,7 @@ import threading
 import time
 from collections.abc import Callable, Sequence
 from dataclasses import dataclass, field
+from functools import partial
 from typing import Any
 
 import numpy as np
@@ -212,6 +219,8 @@ class StudySizer:
         self._spacing = axial_spacing_mm
         self._headers: dict[str, list[tuple[CtImageHeader, PixelReader | None, str]]] = {}
         self._measured: dict[str, ImageSample] = {}
+        #: studies with localizer rows kept on arrival that no sizing has used yet
+        self._rows_kept: set[str] = set()
         self.summary = SizingSummary()
 
     @property
@@ -230,6 +239,25 @@ class StudySizer:
         Measured samples all count at :meth:`finish`; no pixel data is kept."""
         if sample is not None:
             self._measured[header.sop_instance_uid] = sample
+        self.add(header, None, source)
+
+    def add_localizer_now(
+        self, header: CtImageHeader, reader: PixelReader, source: str, *, received_via: str
+    ) -> None:
+        """Measure a localizer on arrival (the listener, which keeps no pixels): read it only
+        when its scanner (its stored event's device) has a calibration for its tube voltage
+        and view, keep its rows in ``ct_size_samples`` at once, and its header for
+        :meth:`finish`; without a calibration it counts in ``localizers_uncalibrated``."""
+        errors: list[IngestError] = []
+        study = header.study_instance_uid
+        with self._sessions.begin() as session:
+            scanner = _scanner_of(_study_ct_events(session, study), header)
+            new = self._localizer_rows(session, study, scanner, header, reader, source, errors)
+            _keep_samples(session, new)
+        if new:
+            self._rows_kept.add(study)
+        if errors:
+            self.record_errors(errors, received_via)
         self.add(header, None, source)
 
     def finish(self, study_instance_uid: str, *, received_via: str) -> int:
@@ -272,7 +300,9 @@ class StudySizer:
             if sample is not None:
                 samples.setdefault(chosen.acquisition_group, []).append(sample)
         sized = 0
-        if samples or localizers:
+        rows_kept = study_instance_uid in self._rows_kept
+        self._rows_kept.discard(study_instance_uid)
+        if samples or localizers or rows_kept:
             sized = self._store(study_instance_uid, entries, samples, localizers, errors)
         self.summary.events_sized += sized
         if errors:
@@ -324,31 +354,7 @@ class StudySizer:
         for h, _, _ in entries:
             headers_of.setdefault(h.acquisition_group, []).append(h)
         with self._sessions.begin() as session:
-            rows = session.execute(
-                select(
-                    m.ExposureEventRow.id,
-                    m.ExposureEventRow.device_id,
-                    m.ExposureEventRow.irradiation_event_uid,
-                    m.ExposureEventRow.ctdivol_mgy,
-                    m.ExposureEventRow.ct_phantom_diameter_cm,
-                    m.ExposureEventRow.ssde_mgy,
-                    m.ExposureEventRow.ct_scan_z_top_mm,
-                    m.ExposureEventRow.ct_scan_z_bottom_mm,
-                    m.ExposureEventRow.frame_of_reference_uid,
-                    m.ExposureEventRow.size_dw_mean_cm,
-                    m.ExposureEventRow.size_method,
-                    m.ExposureEventRow.size_images_used,
-                    m.SourceObjectRow.sop_instance_uid,
-                )
-                .join(
-                    m.SourceObjectRow, m.SourceObjectRow.id == m.ExposureEventRow.source_object_id
-                )
-                .join(m.Study, m.Study.id == m.ExposureEventRow.study_id)
-                .where(m.Study.study_instance_uid == study_uid)
-                .where(m.ExposureEventRow.modality == "CT")
-            ).all()
-            device_of = {r.sop_instance_uid: r.device_id for r in rows}
-            first_device = next((r.device_id for r in rows if r.device_id is not None), None)
+            rows = _study_ct_events(session, study_uid)
             new = [
                 _sample_row(study_uid, group, "axial_images", s, headers_of.get(group, []))
                 for group, group_samples in samples.items()
@@ -361,9 +367,8 @@ class StudySizer:
                 if h.kind == "axial" and h.z_mm is not None and h.sop_instance_uid not in measured
             ]
             for header, reader, source in localizers:
-                device = device_of.get(header.sop_instance_uid) or first_device
                 new += self._localizer_rows(
-                    session, study_uid, device, header, reader, source, errors
+                    session, study_uid, _scanner_of(rows, header), header, reader, source, errors
                 )
             _keep_samples(session, new)
             stored = session.execute(
@@ -509,6 +514,37 @@ class StudySizer:
         if len(inside) < 2:
             return None
         return _event_size(inside, lo, hi, event, errors, study_uid, "localizer")
+
+
+def _study_ct_events(session: Session, study_uid: str) -> Sequence[Any]:
+    """The study's stored CT events, with what sizing reads and writes of each."""
+    return session.execute(
+        select(
+            m.ExposureEventRow.id,
+            m.ExposureEventRow.device_id,
+            m.ExposureEventRow.irradiation_event_uid,
+            m.ExposureEventRow.ctdivol_mgy,
+            m.ExposureEventRow.ct_phantom_diameter_cm,
+            m.ExposureEventRow.ssde_mgy,
+            m.ExposureEventRow.ct_scan_z_top_mm,
+            m.ExposureEventRow.ct_scan_z_bottom_mm,
+            m.ExposureEventRow.frame_of_reference_uid,
+            m.ExposureEventRow.size_dw_mean_cm,
+            m.ExposureEventRow.size_method,
+            m.ExposureEventRow.size_images_used,
+            m.SourceObjectRow.sop_instance_uid,
+        )
+        .join(m.SourceObjectRow, m.SourceObjectRow.id == m.ExposureEventRow.source_object_id)
+        .join(m.Study, m.Study.id == m.ExposureEventRow.study_id)
+        .where(m.Study.study_instance_uid == study_uid)
+        .where(m.ExposureEventRow.modality == "CT")
+    ).all()
+
+
+def _scanner_of(rows: Sequence[Any], header: CtImageHeader) -> int | None:
+    """The device of an image: its own event's, else the first of its study's CT events."""
+    own = next((r.device_id for r in rows if r.sop_instance_uid == header.sop_instance_uid), None)
+    return own or next((r.device_id for r in rows if r.device_id is not None), None)
 
 
 def _localizer_view(header: CtImageHeader) -> str | None:
@@ -668,7 +704,9 @@ class ArrivalSizer:
     no image of its series measured so far lies closer than the sampling spacing (50 mm), so
     a series sent in order is sampled every 50 mm from its first image (the range beyond the
     last sample is held at its Dw, which the trail records); every other image stays
-    header-only. A study is sized ``quiet_s`` seconds after its last image (and at
+    header-only. A localizer is measured on arrival when its scanner has a stored calibration
+    for it (:meth:`StudySizer.add_localizer_now`: its rows kept, its pixels dropped), else
+    counted as uncalibrated. A study is sized ``quiet_s`` seconds after its last image (and at
     :meth:`close`); thread-safe (one handler thread per association).
     """
 
@@ -699,7 +737,7 @@ class ArrivalSizer:
         if not study or header.kind == "other":
             return
         sample = None
-        if self._worth_measuring(header):
+        if self._worth_measuring(header):  # axial images; a localizer is measured below
             try:
                 image = read_ct_size_image(encoded)
                 sample = measure_image(image, header)
@@ -712,7 +750,12 @@ class ArrivalSizer:
                     summary.images_read += 1
                     summary.pixel_data_bytes_read += header.pixel_data_bytes
         with self._lock:
-            self._sizer.add_measured(header, sample, source)
+            if header.kind == "localizer":
+                self._sizer.add_localizer_now(
+                    header, partial(read_ct_size_image, encoded), source, received_via=self._via
+                )
+            else:
+                self._sizer.add_measured(header, sample, source)
             timer = self._timers.pop(study, None)
             if timer is not None:
                 timer.cancel()
