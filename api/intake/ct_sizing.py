@@ -248,8 +248,10 @@ class StudySizer:
         when its scanner (its stored event's device) has a calibration for its tube voltage
         and view, keep its rows in ``ct_size_samples`` at once, and its header for
         :meth:`finish`; without a calibration it counts in ``localizers_uncalibrated``."""
-        errors: list[IngestError] = []
         study = header.study_instance_uid
+        if not study:  # no study to size it in (as :meth:`add`)
+            return
+        errors: list[IngestError] = []
         with self._sessions.begin() as session:
             scanner = _scanner_of(_study_ct_events(session, study), header)
             new = self._localizer_rows(session, study, scanner, header, reader, source, errors)

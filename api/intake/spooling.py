@@ -20,6 +20,9 @@ second pass over an object already stored a duplicate, never a second row).
   used (unparseable, not dose-bearing, another object's UID with other content) is recorded as an
   ingest error, as the synchronous handler records it; its C-STORE was answered success already.
   A store that fails (database down) leaves the rows in the spool; the worker tries again later.
+  Each CT image stored is then given to the :class:`~beamaudit.api.intake.ct_sizing.
+  ArrivalSizer` (patient size: a few axial images and calibrated localizers measured from the
+  spooled bytes, their pixels dropped).
 - **The file** is named after the listener's port and its database
   (:func:`spool_path`), so a listener started again on the same port and database finds it, and
   holds received objects as sent (patient identifiers included) until stored: it is created
