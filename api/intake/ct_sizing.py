@@ -79,6 +79,7 @@ from beamaudit.ingest.ct_images import (
     select_size_images,
 )
 from beamaudit.ingest.errors import IngestError
+from beamaudit.ingest.events import ParseResult
 from beamaudit.model.ct_localizer import localizer_sizes
 from beamaudit.model.ct_size import axial_sizes, scan_range_size
 from beamaudit.model.errors import ModelError
@@ -91,6 +92,7 @@ __all__ = [
     "SizingSummary",
     "StudySizer",
     "file_header",
+    "is_ct_report",
     "keep_frame_header",
     "measure_image",
 ]
@@ -147,6 +149,13 @@ class SizingSummary:
             "seconds": round(self.seconds, 3),
             "errors": len(self.errors),
         }
+
+
+def is_ct_report(result: ParseResult) -> bool:
+    """An object with CT irradiation events that is no CT image (a CT dose report)."""
+    return result.source.sop_class_uid not in CT_IMAGE_CLASSES and any(
+        e.modality_family == "ct" for e in result.events
+    )
 
 
 def file_header(path: str) -> CtImageHeader:
@@ -219,14 +228,15 @@ class StudySizer:
         self._spacing = axial_spacing_mm
         self._headers: dict[str, list[tuple[CtImageHeader, PixelReader | None, str]]] = {}
         self._measured: dict[str, ImageSample] = {}
-        #: studies with localizer rows kept on arrival that no sizing has used yet
-        self._rows_kept: set[str] = set()
+        #: studies to size even without new image headers: localizer rows kept on arrival
+        #: (:meth:`add_localizer_now`), a dose report stored after its images (:meth:`add_report`)
+        self._again: set[str] = set()
         self.summary = SizingSummary()
 
     @property
     def studies(self) -> list[str]:
-        """Studies with headers waiting to be sized."""
-        return list(self._headers)
+        """Studies with headers (or a new report) waiting to be sized."""
+        return [*self._headers, *(s for s in self._again if s not in self._headers)]
 
     def add(self, header: CtImageHeader, reader: PixelReader | None, source: str) -> None:
         """Keep one image's header and how to read its pixels (``source`` names it in errors)."""
@@ -240,6 +250,29 @@ class StudySizer:
         if sample is not None:
             self._measured[header.sop_instance_uid] = sample
         self.add(header, None, source)
+
+    def add_report(self, study_instance_uid: str | None) -> None:
+        """A stored CT object that is no image (a dose report): its study is sized again at
+        :meth:`finish` from the samples stored before, if it has any, so that a report that
+        comes after its images (a localizer sent when it was taken, the report at the end of
+        the examination) gets their size."""
+        if study_instance_uid:
+            self._again.add(study_instance_uid)
+
+    def _with_samples(self, studies: Sequence[str]) -> set[str]:
+        """Which of ``studies`` have size samples stored."""
+        table = m.CtSizeSampleRow
+        found: set[str] = set()
+        with self._sessions() as session:
+            for i in range(0, len(studies), 500):
+                found.update(
+                    session.scalars(
+                        select(table.study_instance_uid)
+                        .where(table.study_instance_uid.in_(studies[i : i + 500]))
+                        .distinct()
+                    )
+                )
+        return found
 
     def add_localizer_now(
         self, header: CtImageHeader, reader: PixelReader, source: str, *, received_via: str
@@ -257,7 +290,7 @@ class StudySizer:
             new = self._localizer_rows(session, study, scanner, header, reader, source, errors)
             _keep_samples(session, new)
         if new:
-            self._rows_kept.add(study)
+            self._again.add(study)
         if errors:
             self.record_errors(errors, received_via)
         self.add(header, None, source)
@@ -265,8 +298,10 @@ class StudySizer:
     def finish(self, study_instance_uid: str, *, received_via: str) -> int:
         """Size one study: read the chosen images, store the sizes. Returns events sized."""
         entries = self._headers.pop(study_instance_uid, [])
-        if not entries:
-            return 0
+        again = study_instance_uid in self._again
+        self._again.discard(study_instance_uid)
+        if not entries and not (again and self._with_samples([study_instance_uid])):
+            return 0  # nothing new, or a report of a study none of whose images came
         started = time.perf_counter()
         by_uid = {h.sop_instance_uid: (h, reader, source) for h, reader, source in entries}
         selection = select_size_images([h for h, _, _ in entries], axial_spacing_mm=self._spacing)
@@ -302,9 +337,7 @@ class StudySizer:
             if sample is not None:
                 samples.setdefault(chosen.acquisition_group, []).append(sample)
         sized = 0
-        rows_kept = study_instance_uid in self._rows_kept
-        self._rows_kept.discard(study_instance_uid)
-        if samples or localizers or rows_kept:
+        if samples or localizers or again:
             sized = self._store(study_instance_uid, entries, samples, localizers, errors)
         self.summary.events_sized += sized
         if errors:
@@ -314,6 +347,9 @@ class StudySizer:
 
     def finish_all(self, *, received_via: str) -> SizingSummary:
         """Size every study collected so far."""
+        reports_only = [s for s in self._again if s not in self._headers]
+        if reports_only:  # one look-up for all: most CT reports come without images
+            self._again.difference_update(set(reports_only) - self._with_samples(reports_only))
         for study in self.studies:
             try:
                 self.finish(study, received_via=received_via)
@@ -758,13 +794,28 @@ class ArrivalSizer:
                 )
             else:
                 self._sizer.add_measured(header, sample, source)
-            timer = self._timers.pop(study, None)
-            if timer is not None:
-                timer.cancel()
-            timer = threading.Timer(self._quiet_s, self._finish, args=(study,))
-            timer.daemon = True
-            self._timers[study] = timer
-            timer.start()
+            self._size_after_quiet_time(study)
+
+    def report_stored(self, result: ParseResult) -> None:
+        """One stored object that is no CT image: a CT dose report's study is sized again after
+        the quiet time (:meth:`StudySizer.add_report`), so that the report, sent at the end of
+        the examination, gets the size of the localizer or images that came before it."""
+        study = result.source.study_instance_uid
+        if not study or not is_ct_report(result):
+            return
+        with self._lock:
+            self._sizer.add_report(study)
+            self._size_after_quiet_time(study)
+
+    def _size_after_quiet_time(self, study: str) -> None:
+        """(Re)start the study's quiet time (the caller holds the lock)."""
+        timer = self._timers.pop(study, None)
+        if timer is not None:
+            timer.cancel()
+        timer = threading.Timer(self._quiet_s, self._finish, args=(study,))
+        timer.daemon = True
+        self._timers[study] = timer
+        timer.start()
 
     def _worth_measuring(self, header: CtImageHeader) -> bool:
         if header.kind != "axial" or header.z_mm is None:

@@ -454,9 +454,11 @@ def make_spooling_handler(
                 log.warning("spooled %s not stored: %s", obj.sop_instance_uid, outcome.reason)
                 continue
             event_ids.extend(outcome.event_ids)
-            is_ct_image = result.source.sop_class_uid in CT_IMAGE_CLASSES
-            if sizer is not None and outcome.status == "stored" and is_ct_image:
-                _size(sizer, obj)
+            if sizer is not None and outcome.status == "stored":
+                if result.source.sop_class_uid in CT_IMAGE_CLASSES:
+                    _size(sizer, obj)
+                else:
+                    sizer.report_stored(result)
         if parsed:
             log.info("stored %d spooled objects (%d events)", len(parsed), len(event_ids))
 

@@ -60,9 +60,15 @@ def _folder_result(folder: Path, tmp_path: Path) -> list[tuple]:
         other.engine.dispose()
 
 
-def _send(store, paths: list[Path], *, spooled: bool, tmp_path: Path) -> SizingSummary:
-    """Send ``paths`` on one association to a listener that sizes on arrival; stop the listener
-    (its worker stores what is spooled) and size what waits, as ``beamaudit listen`` stops."""
+def _send(
+    store, *associations: list[Path], spooled: bool, tmp_path: Path, quiet_s: float = 60.0
+) -> SizingSummary:
+    """Send each list of paths on an association of its own to a listener that sizes on
+    arrival, the next one once the study has been sized after the quiet time (``quiet_s``);
+    then stop the listener (its worker stores what is spooled) and size what waits, as
+    ``beamaudit listen`` stops."""
+    import time
+
     from pynetdicom import AE
 
     from beamaudit.api.intake.receiving import make_store_handler
@@ -70,7 +76,7 @@ def _send(store, paths: list[Path], *, spooled: bool, tmp_path: Path) -> SizingS
     from beamaudit.ingest.listener import ListenerConfig, start_listener
     from beamaudit.ingest.sender import open_association
 
-    sizer = ArrivalSizer(StudySizer(store.session_factory), quiet_s=60.0)
+    sizer = ArrivalSizer(StudySizer(store.session_factory), quiet_s=quiet_s)
     pipeline = Pipeline(store.session_factory)
     worker = spool = None
     if spooled:
@@ -81,17 +87,23 @@ def _send(store, paths: list[Path], *, spooled: bool, tmp_path: Path) -> SizingS
         worker = SpoolWorker(spool, store_batch, give_up).start()
     else:
         handler = make_store_handler(pipeline, Pseudonymiser(KEY), sizer=sizer)
-    datasets = [dcmread(p) for p in paths]
     try:
         with start_listener(ListenerConfig(port=0, decode_values=not spooled), handler) as lis:
-            ae = AE(ae_title="CT_MAIN")
-            for uid in sorted({str(ds.SOPClassUID) for ds in datasets}):
-                ae.add_requested_context(uid)
-            assoc = open_association(ae, "127.0.0.1", lis.port, ae_title="BEAMAUDIT")
-            assert assoc.is_established
-            for ds in datasets:
-                assert assoc.send_c_store(ds).Status == 0x0000
-            assoc.release()
+            for k, paths in enumerate(associations):
+                if k:  # the study sized after its quiet time before the next association
+                    deadline = time.monotonic() + 30.0
+                    while sizer.summary.studies < k and time.monotonic() < deadline:
+                        time.sleep(0.05)
+                    assert sizer.summary.studies == k
+                datasets = [dcmread(p) for p in paths]
+                ae = AE(ae_title="CT_MAIN")
+                for uid in sorted({str(ds.SOPClassUID) for ds in datasets}):
+                    ae.add_requested_context(uid)
+                assoc = open_association(ae, "127.0.0.1", lis.port, ae_title="BEAMAUDIT")
+                assert assoc.is_established
+                for ds in datasets:
+                    assert assoc.send_c_store(ds).Status == 0x0000
+                assoc.release()
     finally:
         if worker is not None and spool is not None:
             worker.close()  # what is spooled is stored (and measured) now
@@ -143,3 +155,42 @@ def test_a_localizer_received_without_a_calibration_is_counted_not_read(
     assert all(e.size_dw_mean_cm is None for e in _events(store))
     with store.session_factory() as s:
         assert s.scalar(select(func.count()).select_from(m.CtSizeSampleRow)) == 0
+
+
+@pytest.mark.parametrize("spooled", [True, False], ids=["spool", "store-then-answer"])
+def test_a_report_received_after_the_localizers_quiet_time_gets_its_size(
+    store, tmp_path: Path, spooled: bool
+) -> None:
+    # the localizer sent when it is taken, the dose report at the end of the examination: the
+    # study was sized (nothing to size yet) before the report came
+    _calibrate(store)
+    folder = tmp_path / "export"
+    _localizer_study(folder)
+    expected = _folder_result(folder, tmp_path)
+    summary = _send(
+        store, [folder / "localizer.dcm"], [folder / "report.dcm"], spooled=spooled,
+        tmp_path=tmp_path, quiet_s=0.5,
+    )  # fmt: skip
+    assert not summary.errors, summary.errors
+    assert summary.studies == 2 and summary.images_read == 1  # the localizer read once
+    assert summary.events_sized == 1 and summary.events_resized == 0
+    assert _sized(store) == expected
+
+
+def test_a_scan_of_a_report_after_its_localizer_was_scanned_gets_its_size(
+    store, tmp_path: Path
+) -> None:
+    _calibrate(store)
+    folder = tmp_path / "export"
+    _localizer_study(folder)
+    expected = _folder_result(folder, tmp_path)
+    first, later = tmp_path / "first", tmp_path / "later"
+    first.mkdir()
+    later.mkdir()
+    (folder / "localizer.dcm").rename(first / "localizer.dcm")
+    (folder / "report.dcm").rename(later / "report.dcm")
+    assert _scan(store, first, tmp_path).ct_size["events_sized"] == 0  # type: ignore[index]
+    summary = _scan(store, later, tmp_path).ct_size
+    assert summary is not None and summary["images_read"] == 0  # the rows stored are used
+    assert summary["events_sized"] == 1
+    assert _sized(store) == expected
