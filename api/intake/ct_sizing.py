@@ -40,7 +40,8 @@ the study is sized. Either way a localizer without a calibration is not read and
 ``ct_size_samples``; sizing a study uses all its samples, earlier ones included, so images
 that arrive after the study was sized (another scan, another association after the listener's
 quiet time) are merged: the acquisition is sized again, and each event whose size changes gets
-an audit entry (``resize``, before and after).
+an audit entry (``resize``, before and after). So is a CT dose report that comes after its study's
+images (:meth:`StudySizer.add_report`): the study is sized again from its stored samples.
 
 An image that cannot be read or measured becomes an ingest error with the reason; the study's
 events stay as they are stored.
@@ -744,8 +745,10 @@ class ArrivalSizer:
     last sample is held at its Dw, which the trail records); every other image stays
     header-only. A localizer is measured on arrival when its scanner has a stored calibration
     for it (:meth:`StudySizer.add_localizer_now`: its rows kept, its pixels dropped), else
-    counted as uncalibrated. A study is sized ``quiet_s`` seconds after its last image (and at
-    :meth:`close`); thread-safe (one handler thread per association).
+    counted as uncalibrated. A study is sized ``quiet_s`` seconds after its last image or CT
+    dose report (:meth:`report_stored`: a report that comes after the study was sized is given
+    the size of what came before), and at :meth:`close`; thread-safe (one handler thread per
+    association).
     """
 
     def __init__(
