@@ -60,6 +60,14 @@ def _folder_result(folder: Path, tmp_path: Path) -> list[tuple]:
         other.engine.dispose()
 
 
+def _calibrated_study(store, tmp_path: Path) -> tuple[Path, list[tuple]]:
+    """The scanner calibrated in ``store``, the localizer study's files, the folder scan's sizes."""
+    _calibrate(store)
+    folder = tmp_path / "export"
+    _localizer_study(folder)
+    return folder, _folder_result(folder, tmp_path)
+
+
 def _send(
     store, *associations: list[Path], spooled: bool, tmp_path: Path, quiet_s: float = 60.0
 ) -> SizingSummary:
@@ -115,10 +123,7 @@ def _send(
 def test_a_calibrated_localizer_received_is_measured_on_arrival_as_the_folder_scan_does(
     store, tmp_path: Path, spooled: bool
 ) -> None:
-    _calibrate(store)
-    folder = tmp_path / "export"
-    _localizer_study(folder)
-    expected = _folder_result(folder, tmp_path)
+    folder, expected = _calibrated_study(store, tmp_path)
     # the localizer first, as a scanner sends it: it arrives before the report's event exists
     summary = _send(
         store, [folder / "localizer.dcm", folder / "report.dcm"], spooled=spooled,
@@ -163,10 +168,7 @@ def test_a_report_received_after_the_localizers_quiet_time_gets_its_size(
 ) -> None:
     # the localizer sent when it is taken, the dose report at the end of the examination: the
     # study was sized (nothing to size yet) before the report came
-    _calibrate(store)
-    folder = tmp_path / "export"
-    _localizer_study(folder)
-    expected = _folder_result(folder, tmp_path)
+    folder, expected = _calibrated_study(store, tmp_path)
     summary = _send(
         store, [folder / "localizer.dcm"], [folder / "report.dcm"], spooled=spooled,
         tmp_path=tmp_path, quiet_s=0.5,
@@ -180,10 +182,7 @@ def test_a_report_received_after_the_localizers_quiet_time_gets_its_size(
 def test_a_scan_of_a_report_after_its_localizer_was_scanned_gets_its_size(
     store, tmp_path: Path
 ) -> None:
-    _calibrate(store)
-    folder = tmp_path / "export"
-    _localizer_study(folder)
-    expected = _folder_result(folder, tmp_path)
+    folder, expected = _calibrated_study(store, tmp_path)
     first, later = tmp_path / "first", tmp_path / "later"
     first.mkdir()
     later.mkdir()
@@ -194,3 +193,24 @@ def test_a_scan_of_a_report_after_its_localizer_was_scanned_gets_its_size(
     assert summary is not None and summary["images_read"] == 0  # the rows stored are used
     assert summary["events_sized"] == 1
     assert _sized(store) == expected
+
+
+def test_the_demos_listener_node_measures_a_calibrated_localizer(tmp_path: Path) -> None:
+    # the demo's ingest node (a process of its own, `beamaudit listen`'s handler), SQLite
+    from beamaudit.api.demo.run import _Nodes, _send_all
+
+    store = _Store(f"sqlite:///{tmp_path / 'node.db'}")
+    try:
+        folder, expected = _calibrated_study(store, tmp_path)
+        files = [folder / "localizer.dcm", folder / "report.dcm"]
+        classes = sorted({str(dcmread(p, stop_before_pixels=True).SOPClassUID) for p in files})
+        nodes = _Nodes(str(store.engine.url), KEY, 1)
+        try:
+            sent = _send_all(files, nodes.ports, classes, dict.fromkeys(files, "CT"), per_port=1)
+        except BaseException:
+            nodes.close()
+            raise
+        assert len(nodes.stop()) == 2 and sum(sent.values()) == 2  # one event each
+        assert _sized(store) == expected
+    finally:
+        store.engine.dispose()
