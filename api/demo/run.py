@@ -214,6 +214,7 @@ def _listener_node(database_url: str, key: bytes, conn: Connection) -> None:
     Sends ``("port", n)`` once listening (or ``("error", text)``), then stores what arrives until
     anything is received on ``conn``, then sends ``("ids", event ids it stored)``.
     """
+    from beamaudit.api.intake.ct_sizing import ArrivalSizer, StudySizer
     from beamaudit.api.intake.pipeline import Pipeline
     from beamaudit.api.intake.receiving import make_store_handler
     from beamaudit.api.store import make_engine, make_session_factory
@@ -222,11 +223,13 @@ def _listener_node(database_url: str, key: bytes, conn: Connection) -> None:
 
     try:
         engine = make_engine(database_url)
+        sessions = make_session_factory(engine)
         received: list[int] = []
+        # CT images and localizers sized on arrival as `beamaudit listen` sizes them (the demo's
+        # CT scanner is a folder room: none come here unless a scenario sends it by C-STORE)
+        sizer = ArrivalSizer(StudySizer(sessions))
         handler = make_store_handler(  # completed in one batch after the sends (below)
-            Pipeline(make_session_factory(engine)),
-            Pseudonymiser(key),
-            after_store=received.extend,
+            Pipeline(sessions), Pseudonymiser(key), after_store=received.extend, sizer=sizer
         )
         listener = start_listener(ListenerConfig(ae_title=_CALLED_AE, port=0), handler)
     except Exception as exc:  # told to the demo, which ends with one line
@@ -235,6 +238,7 @@ def _listener_node(database_url: str, key: bytes, conn: Connection) -> None:
     with listener:
         conn.send(("port", listener.port))
         conn.recv()
+    sizer.close()  # the studies still in their quiet time
     engine.dispose()
     conn.send(("ids", received))
 
@@ -429,6 +433,7 @@ def run_demo(
     listener in this process). ``DemoOutcome.timings`` has the seconds of every phase.
     """
     from beamaudit.api.demo.generate import generate_scenario
+    from beamaudit.api.intake.ct_sizing import ArrivalSizer, StudySizer
     from beamaudit.api.intake.pipeline import Pipeline
     from beamaudit.api.intake.postprocess import Completion, process_new_events
     from beamaudit.api.intake.receiving import make_store_handler
@@ -489,9 +494,11 @@ def run_demo(
             received = nodes.stop()
         else:  # an in-memory database: one listener in this process
             received = []
-            handler = make_store_handler(pipeline, Pseudonymiser(key))
+            sizer = ArrivalSizer(StudySizer(sessions))
+            handler = make_store_handler(pipeline, Pseudonymiser(key), sizer=sizer)
             with start_listener(ListenerConfig(ae_title=_CALLED_AE, port=0), handler) as listener:
                 counts = _send_all(files, [listener.port], sop_classes, room_of)
+            sizer.close()
     outcome.cstore = dict(counts)
     with phase("postprocess"):
         process_new_events(sessions, received)

@@ -22,7 +22,12 @@ from functools import partial
 from pathlib import Path
 from typing import Any
 
-from beamaudit.api.intake.ct_sizing import CT_IMAGE_CLASSES, StudySizer, file_header
+from beamaudit.api.intake.ct_sizing import (
+    CT_IMAGE_CLASSES,
+    StudySizer,
+    file_header,
+    is_ct_report,
+)
 from beamaudit.api.intake.pipeline import Pipeline, StoreOutcome, prepare
 from beamaudit.api.store.engine import database_files
 from beamaudit.ingest.ct_images import read_ct_size_image
@@ -260,8 +265,11 @@ def _keep_ct_header(
     summary: ScanSummary,
     pending_errors: list[tuple[IngestError, str | None]],
 ) -> None:
-    """A stored CT image's size header, kept with how to read its pixels later."""
+    """A stored CT image's size header, kept with how to read its pixels later (a CT dose
+    report: its study sized again from the samples stored before)."""
     if result.source.sop_class_uid not in CT_IMAGE_CLASSES:
+        if is_ct_report(result):
+            sizer.add_report(result.source.study_instance_uid)
         return
     try:
         header = file_header(path)
