@@ -438,6 +438,11 @@ class StudySizer:
         )
         if calibration is None:
             self.summary.localizers_uncalibrated += 1
+            log.info(
+                "CT localizer %s not measured: no calibration to water stored for its scanner "
+                "(device %s) at %s kV, %s view (beamaudit ct-calibration add)",
+                header.sop_instance_uid, device_id, _g(header.kvp_kv), view or "unknown",
+            )  # fmt: skip
             return []  # pixels not read: nothing to calibrate them with
         try:
             image = reader()
@@ -879,6 +884,10 @@ class ArrivalSizer:
         for study in studies:
             self._finish(study)
         return self._sizer.summary
+
+
+def _g(value: float | None) -> str:
+    return "unknown" if value is None else f"{value:g}"
 
 
 def _sized_error(exc: IngestError, source: str) -> IngestError:

@@ -147,14 +147,18 @@ def test_a_calibrated_localizer_received_is_measured_on_arrival_as_the_folder_sc
 
 
 def test_a_localizer_received_without_a_calibration_is_counted_not_read(
-    store, tmp_path: Path
+    store, tmp_path: Path, caplog: pytest.LogCaptureFixture
 ) -> None:
     folder = tmp_path / "export"
     _localizer_study(folder)
+    caplog.set_level("INFO", logger="beamaudit.api.intake.ct_sizing")
     summary = _send(
         store, [folder / "localizer.dcm", folder / "report.dcm"], spooled=True, tmp_path=tmp_path
     )
     assert summary.localizers_uncalibrated == 1
+    # the listener's log says why, and what a physicist can do about it
+    assert "not measured: no calibration to water" in caplog.text
+    assert "beamaudit ct-calibration add" in caplog.text
     assert summary.images_read == 0 and summary.pixel_data_bytes_read == 0
     assert not summary.errors and summary.events_sized == 0
     assert all(e.size_dw_mean_cm is None for e in _events(store))
