@@ -860,13 +860,18 @@ def _median_by(frame: pd.DataFrame, keys: list[str], column: str) -> pd.DataFram
 
 
 def _monthly_medians(units: pd.DataFrame, params: ReviewParameters) -> pd.DataFrame:
-    """Monthly medians of the main groups (children in bands have series of their own in no
-    history table yet)."""
-    units = units.loc[units["patient_group"].isna().to_numpy()]
-    low, high = params.weight_window_kg
+    """Monthly medians of the main groups: adults (standard-size ones under the ``standard``
+    basis) and, for mammography, the views in the review's compressed-thickness band (a
+    breast is compared by its thickness, not the patient's weight: ICRP 135). Children in
+    bands have series of their own in no history table yet."""
+    group = units["patient_group"].astype(object)
+    in_band = (group == band_name(params.breast_thickness_band_mm)).to_numpy()
+    main = group.isna().to_numpy() | in_band
     if params.basis == "standard":
+        low, high = params.weight_window_kg
         w = units["patient_weight_kg"].to_numpy(dtype=np.float64)
-        units = units.loc[(w >= low) & (w <= high)]
+        main &= ((w >= low) & (w <= high)) | in_band
+    units = units.loc[main]
     out = _median_by(units, [*LOCATION_KEYS, "exam_type", "quantity", "month_key"], "value")
     out["month"] = month_labels(out["month_key"])
     return out.loc[:, list(MONTHLY_COLUMNS)]

@@ -156,3 +156,28 @@ def test_a_level_file_names_a_band_in_its_one_spelling_only() -> None:
                  "breast_50.0_60mm", "breast_050_60mm", "breast_50_60"):  # fmt: skip
         with pytest.raises(ReviewError, match="nor a breast thickness band"):
             _band_levels(("A", name, "mammo_cc", "2.0"))
+
+
+def test_the_band_has_a_monthly_history_and_a_change_in_it_is_found(make_events) -> None:
+    # a mammography view's main group is its thickness band (the patient's weight is not
+    # recorded, nor needed: ICRP 135 compares a breast by its thickness), so the band has
+    # monthly medians like an adult group, and a change in them is a change point
+    import pandas as pd
+
+    rows = _views(50, "cc", 55.0, 1.5) + _views(10, "cc", 72.0, 3.0)
+    march = review(make_events(rows), levels=LEVELS, params=MARCH)
+    history = march.monthly_df
+    cc = history[(history["exam_type"] == "mammo_cc") & (history["quantity"] == "mgd_mgy")]
+    assert cc[["month", "n", "median"]].values.tolist() == [["2025-03", 50, 1.5]]  # band only
+    months = [history.assign(month=f"2024-{m:02d}") for m in range(6, 13)] + [
+        history.assign(month=f"2025-{m:02d}") for m in (1, 2)
+    ]
+    doubled = _views(50, "cc", 55.0, 3.0)
+    april = review(
+        make_events(doubled, event_datetime=pd.Timestamp("2025-04-02")),
+        levels=LEVELS,
+        params=ReviewParameters.for_month(2025, 4),
+        history_df=pd.concat([*months, history], ignore_index=True),
+    )
+    changes = [f for f in april.flags if f.kind == "changepoint"]
+    assert [(f.exam_type, f.quantity) for f in changes] == [("mammo_cc", "mgd_mgy")]
