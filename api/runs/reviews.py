@@ -143,6 +143,14 @@ _FLOAT_NAMES = (
 )
 
 
+def instants(epoch_s: Any) -> pd.Series:
+    """Times in UTC from seconds since 1970 (the stores' read), to the whole millisecond: the
+    seconds made integer milliseconds first, so that a stored time reads back as it was written
+    (``...45.145``, not ``...45.144999981``, which a conversion of float seconds gives)."""
+    milliseconds = (pd.Series(epoch_s, dtype="float64") * 1000.0).round().astype("Int64")
+    return pd.to_datetime(milliseconds, unit="ms", utc=True)
+
+
 def _as_utc(value: date) -> datetime:
     return datetime(value.year, value.month, value.day, tzinfo=UTC)
 
@@ -780,7 +788,7 @@ def review_events(session: Session, *, start: date, end: date) -> pd.DataFrame:
     columns: dict[str, Any] = {
         "event_id": event_ids,
         "study_uid": _study_column(session, dense["study_id"], event_ids),
-        "event_datetime": pd.to_datetime(pd.Series(dense["epoch_s"]).round(3), unit="s", utc=True),
+        "event_datetime": instants(dense["epoch_s"]),
         "site": _names_column(room_ids, {k: v[1] for k, v in rooms.items()}, "(no site)"),
         "room": _names_column(room_ids, {k: v[0] for k, v in rooms.items()}, "(no room)"),
         "device": _names_column(dense["device_id"], devices, "(unknown device)"),
@@ -871,9 +879,7 @@ def exam_type_events(session: Session, *, start: date, end: date, exam_type: str
     rooms, _ = room_and_device_names(session)
     for name in names[4:]:
         frame[name] = pd.to_numeric(frame[name], errors="coerce").astype(float)
-    frame["event_datetime"] = pd.to_datetime(
-        pd.to_numeric(frame["epoch_s"]).round(3), unit="s", utc=True
-    )
+    frame["event_datetime"] = instants(pd.to_numeric(frame["epoch_s"]))
     frame["room"] = [
         rooms[int(r)][0] if r is not None and int(r) in rooms else "(no room)"
         for r in frame["room_id"]

@@ -561,8 +561,10 @@ def _close(a: Any, b: Any, path: str = "") -> list[str]:
 
 
 def _in_milliseconds(frame: pd.DataFrame) -> pd.DataFrame:
+    from beamaudit.api.runs.reviews import instants
+
     seconds = frame["event_datetime"].map(lambda t: t.timestamp()).astype(float)
-    return frame.assign(event_datetime=pd.to_datetime(seconds.round(3), unit="s", utc=True))
+    return frame.assign(event_datetime=instants(seconds.to_numpy()))
 
 
 @pytest.mark.postgres
@@ -653,3 +655,15 @@ def test_the_core_quantiles_are_postgresql_percentile_cont() -> None:
                 theirs,
                 mine[g],
             )
+
+
+def test_stored_times_read_back_to_the_whole_millisecond() -> None:
+    # a time stored as epoch seconds reads back as written: 45.145 s, not 45.144999981 s (the
+    # float seconds' nearest double times 1e9 ns), and a missing time stays missing
+    import numpy as np
+
+    from beamaudit.api.runs.reviews import instants
+
+    times = instants(np.array([1773589485.145, np.nan]))
+    assert times[0].isoformat() == "2026-03-15T15:44:45.145000+00:00"
+    assert pd.isna(times[1])
