@@ -100,7 +100,9 @@ def main() -> int:
 
     signal.signal(signal.SIGINT, signal.SIG_IGN)  # Ctrl-C reaches the parent, which says stop
     config = json.loads(sys.stdin.readline())
-    configure_logging(logging.INFO, log_format=config["log_format"])
+    # INFO (each stored batch) for ``listen``'s operator; the demo asks for WARNING
+    level = logging.getLevelName(config.get("log_level", "INFO"))
+    configure_logging(level, log_format=config["log_format"])
     stop, parent_gone = threading.Event(), threading.Event()
     signal.signal(signal.SIGTERM, lambda signum, frame: stop.set())  # stop, after storing
     threading.Thread(target=_watch_parent, args=(sys.stdin, stop, parent_gone), daemon=True).start()
