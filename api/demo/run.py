@@ -37,7 +37,7 @@ from datetime import date
 from multiprocessing.connection import Connection
 from multiprocessing.process import BaseProcess
 from pathlib import Path
-from typing import Any
+from typing import TYPE_CHECKING, Any
 
 from sqlalchemy import select
 from sqlalchemy.orm import Session, sessionmaker
@@ -45,6 +45,9 @@ from sqlalchemy.orm import Session, sessionmaker
 from beamaudit.api.demo.errors import DemoError
 from beamaudit.api.store import models as m
 from beamaudit.api.store.auth import record_change
+
+if TYPE_CHECKING:
+    from beamaudit.api.intake.pipeline import Pipeline
 
 __all__ = ["DemoOutcome", "compare_with_plan", "run_demo"]
 
@@ -538,7 +541,7 @@ def _setup(sessions: sessionmaker[Session], manifest: dict[str, Any]) -> None:
 
 def _cstore(
     sessions: sessionmaker[Session],
-    pipeline: Any,
+    pipeline: Pipeline,
     dicom: Path,
     manifest: dict[str, Any],
     key: bytes,
