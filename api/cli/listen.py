@@ -32,11 +32,11 @@ def listen_command(
     listener's spool, and store it from there."""
     import logging
 
-    from beamaudit.api.cli._spool_worker import SpoolWorkerProcess
     from beamaudit.api.cli._store import open_store
     from beamaudit.api.cli.scan import pseudonym_key
     from beamaudit.api.intake.pipeline import Pipeline
     from beamaudit.api.intake.postprocess import Completion
+    from beamaudit.api.intake.spool_worker import SpoolWorkerProcess
     from beamaudit.api.intake.spooling import Spool, SpoolError, make_spooling_handler, spool_path
     from beamaudit.api.logs import configure_logging
     from beamaudit.ingest.errors import IngestError

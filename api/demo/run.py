@@ -246,15 +246,15 @@ def _node_context() -> (
 def _listener_node(database_url: str, key: bytes, spool: str, conn: Connection) -> None:
     """One ingest node as ``beamaudit listen`` runs it, in its own process: a listener that
     answers once an object is in its spool (the file ``spool``), and the spool's worker process
-    (``api/cli/_spool_worker.py``) that parses and stores it in batches, completed (exam types,
+    (``api/intake/spool_worker.py``) that parses and stores it in batches, completed (exam types,
     figures) as a folder scan's.
 
     Sends ``("port", n)`` once listening (or ``("error", text)``), then receives until anything
     is received on ``conn``; then the worker stores everything spooled and ends, and the node
     sends ``("left", objects still spooled)`` (0 unless storing failed).
     """
-    from beamaudit.api.cli._spool_worker import SpoolWorkerProcess
     from beamaudit.api.intake.pipeline import Pipeline
+    from beamaudit.api.intake.spool_worker import SpoolWorkerProcess
     from beamaudit.api.intake.spooling import Spool, make_spooling_handler
     from beamaudit.api.store import make_engine, make_session_factory
     from beamaudit.ingest.listener import ListenerConfig, start_listener
