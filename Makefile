@@ -23,9 +23,9 @@ serve: $(STAMP)
 	$(PY) -m beamaudit serve
 
 ## Test processes of `make test` (pytest-xdist): the suite is sized for a 2-core machine.
-## The tests of one xdist_group (the listener tests, the demo's) run in one of them (loadgroup).
+## A module's tests run in one of them; the listener tests and the demo's too (tests/conftest.py).
 TEST_WORKERS ?= 2
-XDIST := -n $(TEST_WORKERS) --dist loadgroup
+XDIST := -n $(TEST_WORKERS)
 
 ## The whole test suite (store tests on SQLite, and on PostgreSQL when BEAMAUDIT_TEST_POSTGRES_URL is set).
 test: $(STAMP)

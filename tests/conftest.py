@@ -47,21 +47,34 @@ LISTENER_MODULES = frozenset(
         "reliability/test_crash_safety.py",
     }
 )
+#: Modules whose tests run in one worker under ``pytest -n``: the listener tests, and the tests
+#: on the session's demo build (``demo_build``: built once in that worker).
+XDIST_GROUPS = {
+    "listener": LISTENER_MODULES,
+    "demo": frozenset({"api/test_demo_run.py", "dashboards/test_browser.py"}),
+}
 
 
-@pytest.hookimpl(tryfirst=True)  # before pytest-xdist reads the groups
-def pytest_collection_modifyitems(items: list[pytest.Item]) -> None:
-    """The xdist group of each test (``make test`` runs ``pytest -n 2 --dist loadgroup``): its
-    own ``xdist_group`` mark if it has one (the tests on the session's demo build); ``listener``
-    for the tests of :data:`LISTENER_MODULES`; else its module, so that a module's fixtures
-    (a built wheel, a generated scenario, a browser) are made once, as in a run without ``-n``,
-    and no two processes make them in the same place at once."""
-    for item in items:
-        if item.get_closest_marker("xdist_group") is not None:
-            continue
-        module = item.path.relative_to(_TESTS).as_posix()
-        group = "listener" if module in LISTENER_MODULES else module
-        item.add_marker(pytest.mark.xdist_group(group))
+def xdist_scope(nodeid: str) -> str:
+    """The unit of work of a test under ``pytest -n`` (``make test``): its group in
+    :data:`XDIST_GROUPS`, else its module, so that a module's fixtures (a built wheel, a
+    generated scenario, a browser) are made once, as in a run without ``-n``, and no two
+    processes make them in the same place at once."""
+    module = nodeid.split("::", 1)[0].removeprefix("tests/")
+    return next((g for g, modules in XDIST_GROUPS.items() if module in modules), module)
+
+
+def pytest_xdist_make_scheduler(config: pytest.Config, log: Any) -> Any:
+    """pytest-xdist's scheduling by scope, with :func:`xdist_scope` as the scope (its own
+    ``--dist loadgroup`` marks are not read under pytest 9: it renames the tests through an
+    attribute pytest 9 no longer uses)."""
+    from xdist.scheduler import LoadScopeScheduling
+
+    class ByGroup(LoadScopeScheduling):  # type: ignore[misc]
+        def _split_scope(self, nodeid: str) -> str:
+            return xdist_scope(nodeid)
+
+    return ByGroup(config, log)
 
 
 @pytest.fixture(params=["sqlite", pytest.param("postgresql", marks=pytest.mark.postgres)])
@@ -122,9 +135,9 @@ DEMO_ARGS = ["--no-serve", "--months", "4", "--end-month", "2026-10", "--seed", 
 @pytest.fixture(scope="session")
 def demo_build(tmp_path_factory: pytest.TempPathFactory) -> DemoBuild:
     """The invented hospital built once per test session (the longest step of the suite): the
-    tests that check its report and those that serve its database share it. Tests using it
-    carry ``pytest.mark.xdist_group("demo")``, so that under ``pytest -n`` they share one
-    build too. The tests that use it must not change what others read in it."""
+    tests that check its report and those that serve its database share it. Their modules
+    are in the ``demo`` group of :data:`XDIST_GROUPS`, so that under ``pytest -n`` they share
+    one build too. The tests that use it must not change what others read in it."""
     from beamaudit.api.cli import main
 
     folder = tmp_path_factory.mktemp("demo")

@@ -14,7 +14,6 @@ import pytest
 
 
 @pytest.mark.slow
-@pytest.mark.xdist_group("demo")
 def test_demo_finds_what_was_planted_and_nothing_else(demo_build) -> None:
     code, report = demo_build.code, demo_build.report
     missed = [p["plant"] for p in report["planted"] if not p["found"] and p["required"]]

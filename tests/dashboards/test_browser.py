@@ -56,8 +56,6 @@ from beamaudit.dashboards import (
 )
 
 pytestmark = [pytest.mark.peer, pytest.mark.slow]
-#: the tests on the session's demo build run in one xdist worker, beside the test of its report
-_ON_THE_DEMO = pytest.mark.xdist_group("demo")
 
 CHROMIUM = Path("/usr/bin/chromium")
 LAUNCH_ARGS = [
@@ -586,8 +584,8 @@ def _free_port() -> int:
 
 @pytest.fixture(scope="module")
 def demo(request: pytest.FixtureRequest) -> Iterator[_Demo]:
-    """The session's demo build (``demo_build``), served; the tests using it are in the
-    ``demo`` xdist group, beside the test of the build's report."""
+    """The session's demo build (``demo_build``), served (under ``pytest -n`` this module runs in
+    the worker of the test of the build's report: ``XDIST_GROUPS`` in ``tests/conftest.py``)."""
     import os
     import time
 
@@ -701,7 +699,6 @@ def _overview(demo: _Demo) -> str:
         return str(answer.read().decode())
 
 
-@_ON_THE_DEMO
 def test_demo_first_screen_names_the_dap_meter_fault_and_the_doubled_dose(
     signed_in: Any, demo: _Demo
 ) -> None:
@@ -726,7 +723,6 @@ def test_demo_first_screen_names_the_dap_meter_fault_and_the_doubled_dose(
         page.close()
 
 
-@_ON_THE_DEMO
 @pytest.mark.parametrize("size", SIZES, ids=lambda s: f"{s[0]}x{s[1]}")
 def test_every_demo_page_draws_fits_and_is_photographed(
     signed_in: Any, demo: _Demo, size: tuple[int, int]
@@ -747,7 +743,6 @@ def test_every_demo_page_draws_fits_and_is_photographed(
             page.close()
 
 
-@_ON_THE_DEMO
 def test_demo_pages_name_examinations_and_international_guidance(
     signed_in: Any, demo: _Demo
 ) -> None:
@@ -765,7 +760,6 @@ def test_demo_pages_name_examinations_and_international_guidance(
         page.close()
 
 
-@_ON_THE_DEMO
 def test_a_physicist_triages_a_demo_finding_through_the_api(signed_in: Any, demo: _Demo) -> None:
     # the page's PATCH goes to the real API with the session's CSRF token; the finding changes
     page = _visit(
@@ -801,7 +795,6 @@ def _main_text(signed_in: Any, demo: _Demo, path: str) -> str:
         page.close()
 
 
-@_ON_THE_DEMO
 def test_demo_attention_names_the_paediatric_group(signed_in: Any, demo: _Demo) -> None:
     # the demo's children of 15-30 kg on RAD 2 (ICRP 135 weight band): their line says so, on
     # the overview's first screen and on the committee report
@@ -818,7 +811,6 @@ def test_demo_attention_names_the_paediatric_group(signed_in: Any, demo: _Demo) 
     assert "children 15" in flags
 
 
-@_ON_THE_DEMO
 def test_demo_levels_page_shows_names_not_codes(signed_in: Any, demo: _Demo) -> None:
     import re
 
@@ -828,7 +820,6 @@ def test_demo_levels_page_shows_names_not_codes(signed_in: Any, demo: _Demo) -> 
     assert not codes, codes  # chest_pa, dap_gy_cm2, weight_15_30kg ... never reach a reader
 
 
-@_ON_THE_DEMO
 def test_demo_exam_page_gives_the_hvl_a_real_uncertainty(signed_in: Any, demo: _Demo) -> None:
     # the HVL's uncertainty propagated from kV, filtration and attenuation data (k = 2), with
     # the method named in the trail; no figure of a radiograph says "not estimated"
@@ -839,7 +830,6 @@ def test_demo_exam_page_gives_the_hvl_a_real_uncertainty(signed_in: Any, demo: _
     assert "not estimated" not in text
 
 
-@_ON_THE_DEMO
 def test_demo_fluoroscopy_exam_page_draws_one_chart_of_its_beams(
     signed_in: Any, demo: _Demo
 ) -> None:
@@ -859,7 +849,6 @@ def test_demo_fluoroscopy_exam_page_draws_one_chart_of_its_beams(
         page.close()
 
 
-@_ON_THE_DEMO
 def test_demo_pages_read_in_words_a_committee_uses(signed_in: Any, demo: _Demo) -> None:
     # issue #23, page by page: no field names or 16-digit floats, no unit "1", no "Fsd", no
     # "Beam model = –", one count of exposures, no developer notes, flag kinds in words, the
@@ -886,7 +875,6 @@ def test_demo_pages_read_in_words_a_committee_uses(signed_in: Any, demo: _Demo) 
         report.close()
 
 
-@_ON_THE_DEMO
 def test_demo_flags_table_keeps_its_triage_column_on_screen(signed_in: Any, demo: _Demo) -> None:
     # reasons quote Study Instance UIDs; they wrap, so the triage column stays in a 1400 px window
     page = _visit(signed_in, demo.base_url + "/flags", timeout_ms=SERVICE_TIMEOUT_MS).page
