@@ -277,8 +277,9 @@ class NotifySettings(BaseModel):
     public_base_url: str = "http://127.0.0.1:8000"
     smtp: SmtpSettings | None = None
     recipients: dict[str, NotifyRecipient] = Field(default_factory=dict)
-    #: where digests go when no server is configured for them
-    outbox: Path = Path("beamaudit-outbox.jsonl")
+    #: where digests go when no server is configured for them (default: beamaudit-outbox.jsonl
+    #: in the store's folder, :meth:`Settings.store_folder`, not wherever a command was started)
+    outbox: Path | None = None
     #: attempts per delivery, waiting backoff_s, 2 x backoff_s, ... between them
     attempts: int = Field(default=4, ge=1, le=10)
     backoff_s: float = Field(default=2.0, ge=0, le=600)
@@ -350,6 +351,22 @@ class Settings(BaseSettings):
     def backend(self) -> str:
         """``"sqlite"`` or ``"postgresql"``."""
         return "sqlite" if self.database_url.startswith("sqlite") else "postgresql"
+
+    def store_folder(self) -> Path:
+        """The folder of the service's own files by default (the listener's spool, the digest
+        outbox): the SQLite database file's folder, else the pseudonymisation key's (a
+        PostgreSQL store, an in-memory SQLite database)."""
+        url = str(self.database_url)
+        database = url.removeprefix("sqlite:///").split("?", 1)[0]
+        if url.startswith("sqlite:///") and database and database != ":memory:":
+            return Path(database).resolve().parent
+        return Path(self.secret_key_path).resolve().parent
+
+    @model_validator(mode="after")
+    def _outbox_beside_the_store(self) -> Settings:
+        if self.notify.outbox is None:
+            self.notify.outbox = self.store_folder() / "beamaudit-outbox.jsonl"
+        return self
 
     @classmethod
     def settings_customise_sources(

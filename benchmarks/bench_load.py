@@ -139,10 +139,13 @@ class Recorder:
         self.lock = threading.Lock()
         self.latencies: list[float] = []
         self.errors: list[str] = []
+        #: latencies by kind of request (list, one event, upload): where a slow tail comes from
+        self.by_kind: dict[str, list[float]] = {}
 
-    def add(self, seconds: float, error: str | None = None) -> None:
+    def add(self, seconds: float, error: str | None = None, kind: str = "") -> None:
         with self.lock:
             self.latencies.append(seconds)
+            self.by_kind.setdefault(kind, []).append(seconds)
             if error is not None:
                 self.errors.append(error)
 
@@ -170,7 +173,8 @@ def _api_client(base: str, token: str, until: float, rec: Recorder, seed: int) -
                 error = None if reply.is_success else f"{reply.status_code} {reply.text[:200]}"
             except httpx.HTTPError as exc:
                 error = f"{type(exc).__name__}: {exc}"
-            rec.add(time.perf_counter() - start, error)
+            kind = "upload" if choice < 0.1 else "one event" if choice < 0.3 else "lists"
+            rec.add(time.perf_counter() - start, error, kind)
 
 
 def _baseline(base: str) -> tuple[float, list[float]]:
@@ -210,6 +214,9 @@ def _store_client(port: int, rec: Recorder, seed: int) -> None:
 
 
 def _report(name: str, rec: Recorder, seconds: float) -> float:
+    if not rec.latencies:
+        print(f"{name}: no request answered in {seconds:.1f} s; errors {len(rec.errors)}")
+        return 0.0
     rate = len(rec.latencies) / seconds
     p50 = _percentile(rec.latencies, 0.50) * 1000
     p99 = _percentile(rec.latencies, 0.99) * 1000
@@ -220,23 +227,103 @@ def _report(name: str, rec: Recorder, seconds: float) -> float:
     return rate
 
 
+def _seed(work: Path, env: dict[str, str], beamaudit: list[str]) -> str:
+    """A physicist's token, and the store seeded with :data:`SEED_OBJECTS` invented headers."""
+    made = subprocess.run(
+        [*beamaudit, "token", "create", "--role", "physicist", "--name", "load test"],
+        env=env, check=True, capture_output=True, text=True,
+    )  # fmt: skip
+    token = next(w for w in made.stdout.split() if w.startswith("bat_"))
+    rng = random.Random(20240305)
+    seed_folder = work / "seed"
+    seed_folder.mkdir()
+    for i in range(SEED_OBJECTS):
+        _header(rng).save_as(seed_folder / f"IM{i:05d}", enforce_file_format=True)
+    subprocess.run([*beamaudit, "scan", str(seed_folder)], env=env, check=True,
+                   capture_output=True)  # fmt: skip
+    return token
+
+
+def _run_threads(threads: list[threading.Thread], timeout_s: float) -> None:
+    for thread in threads:
+        thread.start()
+    for thread in threads:
+        thread.join(timeout=timeout_s)
+
+
+def _api_load(base: str, token: str, load_s: float, missed: list[str]) -> Recorder:
+    """:data:`API_CLIENTS` clients for ``load_s`` against the same-run baseline; the targets
+    missed are added to ``missed``."""
+    baseline_rate, baseline_lat = _baseline(base)
+    print(f"baseline: one client on /api/v1/health: {baseline_rate:.1f}/s; "
+          f"p50 {_percentile(baseline_lat, 0.5) * 1000:.1f} ms")  # fmt: skip
+    api = Recorder()
+    until = time.monotonic() + load_s
+    started = time.monotonic()
+    _run_threads(
+        [
+            threading.Thread(target=_api_client, args=(base, token, until, api, i))
+            for i in range(API_CLIENTS)
+        ],
+        load_s + 120,
+    )
+    api_rate = _report(f"API, {API_CLIENTS} clients", api, time.monotonic() - started)
+    for kind, seconds in sorted(api.by_kind.items()):
+        print(f"  {kind}: {len(seconds)} requests, p50 {_percentile(seconds, 0.5) * 1000:.0f} ms, "
+              f"p99 {_percentile(seconds, 0.99) * 1000:.0f} ms")  # fmt: skip
+    ratio = api_rate / baseline_rate
+    p99_s = _percentile(api.latencies, 0.99) if api.latencies else float("inf")
+    if ratio < TARGET_RATIO:
+        missed.append("throughput")
+    if p99_s > TARGET_P99_S:
+        missed.append("p99")
+    print(f"ratio loaded API throughput / single-client health rate: {ratio:.2f} "
+          f"(target >= {TARGET_RATIO}: {'met' if ratio >= TARGET_RATIO else 'MISSED'}); "
+          f"p99 {p99_s:.2f} s (target <= {TARGET_P99_S:g} s: "
+          f"{'met' if p99_s <= TARGET_P99_S else 'MISSED'})")  # fmt: skip
+    return api
+
+
+def _store_load(dicom_port: int) -> Recorder:
+    """:data:`ASSOCIATIONS` concurrent associations of :data:`PER_ASSOCIATION` C-STOREs each."""
+    dicom = Recorder()
+    started = time.monotonic()
+    _run_threads(
+        [
+            threading.Thread(target=_store_client, args=(dicom_port, dicom, 100 + i))
+            for i in range(ASSOCIATIONS)
+        ],
+        300,
+    )
+    _report(f"C-STORE, {ASSOCIATIONS} associations", dicom, time.monotonic() - started)
+    return dicom
+
+
+def _stop(services: list[subprocess.Popen[bytes]]) -> None:
+    """Stop the services as Ctrl-C would; kill one that does not stop within 20 s."""
+    for process in services:
+        process.send_signal(signal.SIGINT)
+    for process in services:
+        try:
+            process.wait(timeout=20)
+        except subprocess.TimeoutExpired:
+            process.kill()
+            process.wait()
+
+
+def _print_last_traceback(log_path: Path) -> None:
+    text = log_path.read_text(errors="replace")
+    tracebacks = [block for block in text.split("\n\n") if "Traceback" in block]
+    print("the services' log, last traceback:")
+    print((tracebacks[-1] if tracebacks else text)[-4000:])
+
+
 def main(argv: list[str]) -> int:
     load_s = float(argv[1]) if len(argv) > 1 else LOAD_S
     with tempfile.TemporaryDirectory(prefix="beamaudit-bench-load-") as tmp:
         work = Path(tmp)
         env, beamaudit = service_env(work, "load.db")
-        made = subprocess.run(
-            [*beamaudit, "token", "create", "--role", "physicist", "--name", "load test"],
-            env=env, check=True, capture_output=True, text=True,
-        )  # fmt: skip
-        token = next(w for w in made.stdout.split() if w.startswith("bat_"))
-        rng = random.Random(20240305)
-        seed_folder = work / "seed"
-        seed_folder.mkdir()
-        for i in range(SEED_OBJECTS):
-            _header(rng).save_as(seed_folder / f"IM{i:05d}", enforce_file_format=True)
-        subprocess.run([*beamaudit, "scan", str(seed_folder)], env=env, check=True,
-                       capture_output=True)  # fmt: skip
+        token = _seed(work, env, beamaudit)
         api_port, dicom_port = _free_port(), _free_port()
         log = (work / "services.log").open("wb")
         services = [
@@ -249,63 +336,18 @@ def main(argv: list[str]) -> int:
         try:
             _wait_tcp(api_port)
             _wait_dicom(dicom_port)
-            base = f"http://{HOST}:{api_port}"
-            baseline_rate, baseline_lat = _baseline(base)
-            print(f"baseline: one client on /api/v1/health: {baseline_rate:.1f}/s; "
-                  f"p50 {_percentile(baseline_lat, 0.5) * 1000:.1f} ms")  # fmt: skip
-            api = Recorder()
-            until = time.monotonic() + load_s
-            started = time.monotonic()
-            clients = [
-                threading.Thread(target=_api_client, args=(base, token, until, api, i))
-                for i in range(API_CLIENTS)
-            ]
-            for thread in clients:
-                thread.start()
-            for thread in clients:
-                thread.join(timeout=load_s + 120)
-            api_rate = _report(f"API, {API_CLIENTS} clients", api, time.monotonic() - started)
-            ratio = api_rate / baseline_rate
-            p99_s = _percentile(api.latencies, 0.99) if api.latencies else float("inf")
-            if ratio < TARGET_RATIO:
-                missed.append("throughput")
-            if p99_s > TARGET_P99_S:
-                missed.append("p99")
-            print(f"ratio loaded API throughput / single-client health rate: {ratio:.2f} "
-                  f"(target >= {TARGET_RATIO}: {'met' if ratio >= TARGET_RATIO else 'MISSED'}); "
-                  f"p99 {p99_s:.2f} s (target <= {TARGET_P99_S:g} s: "
-                  f"{'met' if p99_s <= TARGET_P99_S else 'MISSED'})")  # fmt: skip
-            dicom = Recorder()
-            started = time.monotonic()
-            senders = [
-                threading.Thread(target=_store_client, args=(dicom_port, dicom, 100 + i))
-                for i in range(ASSOCIATIONS)
-            ]
-            for thread in senders:
-                thread.start()
-            for thread in senders:
-                thread.join(timeout=300)
-            _report(f"C-STORE, {ASSOCIATIONS} associations", dicom, time.monotonic() - started)
+            api = _api_load(f"http://{HOST}:{api_port}", token, load_s, missed)
+            dicom = _store_load(dicom_port)
             expected = ASSOCIATIONS * PER_ASSOCIATION
             if len(dicom.latencies) != expected:
                 print(f"only {len(dicom.latencies)} of {expected} C-STOREs were answered")
                 return 1
         finally:
-            for process in services:
-                process.send_signal(signal.SIGINT)
-            for process in services:
-                try:
-                    process.wait(timeout=20)
-                except subprocess.TimeoutExpired:
-                    process.kill()
-                    process.wait()
+            _stop(services)
             log.close()
         failed = bool(api.errors or dicom.errors)
         if failed:
-            text = (work / "services.log").read_text(errors="replace")
-            tracebacks = [block for block in text.split("\n\n") if "Traceback" in block]
-            print("the services' log, last traceback:")
-            print((tracebacks[-1] if tracebacks else text)[-4000:])
+            _print_last_traceback(work / "services.log")
     print("zero errors" if not failed else "ERRORS: the load test failed")
     if missed:
         print(f"TARGET MISSED: {', '.join(missed)} (on a loaded machine compare the ratio)")

@@ -278,6 +278,16 @@ FOLLOWUP_WORDS = {
 }
 
 
+def _followup_words(skin: Mapping[str, Any]) -> str:
+    """The follow-up state in words; an open one that no follow-up level asks for is "not
+    needed" (no level of ``level_checks`` crossed)."""
+    status = str(skin.get("followup_status"))
+    crossed = any(c.get("crossed") for c in skin.get("level_checks") or [])
+    if status == "open" and not crossed:
+        return "not needed (no follow-up level reached)"
+    return FOLLOWUP_WORDS.get(status, "–")
+
+
 def skin_view(skin: Mapping[str, Any]) -> dict[str, Any]:
     """The exam page's skin-dose section: figures in words and the map (or why there is none)."""
 
@@ -305,7 +315,7 @@ def skin_view(skin: Mapping[str, Any]) -> dict[str, Any]:
             ("Skin at or above 3 Gy", cm2(skin.get("area_above_3gy_cm2"))),
             ("Skin at or above 5 Gy", cm2(skin.get("area_above_5gy_cm2"))),
             ("Events in the map", str(skin.get("events_used") or "–")),
-            ("Follow-up", FOLLOWUP_WORDS.get(str(skin.get("followup_status")), "–")),
+            ("Follow-up", _followup_words(skin)),
         ],
         "crossed": [c["text"] for c in skin.get("level_checks") or [] if c.get("crossed")],
         "assumptions": list((record or {}).get("assumptions") or []),

@@ -238,35 +238,8 @@ def _dap_ratio_history(
         return no_data(fig, "No DAP comparisons")
     band = _monthly_band(table)
     if not band.empty:
-        fig.add_trace(
-            go.Scatter(
-                x=list(band["month"]),
-                y=list(band["tolerance_low"]),
-                mode="lines",
-                line={"color": "#9a9a9a", "width": 1, "dash": "dot"},
-                name="Tolerance band (lower edge)",
-                showlegend=False,
-                hovertemplate="lower edge %{y:.2f}<extra></extra>",
-            )
-        )
-        fig.add_trace(
-            go.Scatter(
-                x=list(band["month"]),
-                y=list(band["tolerance_high"]),
-                mode="lines",
-                line={"color": "#9a9a9a", "width": 1, "dash": "dot"},
-                fill="tonexty",
-                fillcolor="rgba(86,180,233,0.18)",
-                name="Tolerance band",
-                hovertemplate="upper edge %{y:.2f}<extra></extra>",
-            )
-        )
-    one_line = bool((rows.groupby("month")["dap_ratio_median"].nunique() <= 1).all())
-    groups = (
-        [("All examinations", rows.drop_duplicates("month"))]
-        if one_line
-        else list(rows.groupby("exam_type", sort=True))
-    )
+        _add_tolerance_band(fig, band)
+    groups = _dap_ratio_series(rows)
     for i, (name, part) in enumerate(groups):
         colour, symbol = series(i)
         name = exam_name(str(name), exam_names)
@@ -281,29 +254,8 @@ def _dap_ratio_history(
                 hovertemplate="%{x|%b %Y}: %{y:.3f}<extra>%{fullData.name}</extra>",
             )
         )
-    drawn = pd.concat([part for _, part in groups])
     if not band.empty:
-        merged = drawn.merge(band, on="month", suffixes=("_row", ""))
-        outside = merged[
-            (merged["dap_ratio_median"] < merged["tolerance_low"])
-            | (merged["dap_ratio_median"] > merged["tolerance_high"])
-        ]
-        if not outside.empty:
-            fig.add_trace(
-                go.Scatter(
-                    x=list(outside["month"]),
-                    y=list(outside["dap_ratio_median"]),
-                    mode="markers",
-                    name="Outside the band",
-                    marker={
-                        "symbol": "x-thin-open",
-                        "size": 16,
-                        "color": OKABE_ITO["vermillion"],
-                        "line": {"width": 3, "color": OKABE_ITO["vermillion"]},
-                    },
-                    hovertemplate="%{x|%b %Y}: %{y:.3f} is outside the band<extra></extra>",
-                )
-            )
+        _mark_outside_band(fig, pd.concat([part for _, part in groups]), band)
     fig.add_hline(
         y=1.0,
         line={"color": INK, "width": 1, "dash": "dot"},
@@ -317,3 +269,66 @@ def _dap_ratio_history(
     )
     _month_axis(fig, table["month"])
     return fig
+
+
+def _add_tolerance_band(fig: go.Figure, band: pd.DataFrame) -> None:
+    """Draw the monthly tolerance band of the DAP ratio: its lower edge, then its upper edge
+    filled down to the lower one."""
+    fig.add_trace(
+        go.Scatter(
+            x=list(band["month"]),
+            y=list(band["tolerance_low"]),
+            mode="lines",
+            line={"color": "#9a9a9a", "width": 1, "dash": "dot"},
+            name="Tolerance band (lower edge)",
+            showlegend=False,
+            hovertemplate="lower edge %{y:.2f}<extra></extra>",
+        )
+    )
+    fig.add_trace(
+        go.Scatter(
+            x=list(band["month"]),
+            y=list(band["tolerance_high"]),
+            mode="lines",
+            line={"color": "#9a9a9a", "width": 1, "dash": "dot"},
+            fill="tonexty",
+            fillcolor="rgba(86,180,233,0.18)",
+            name="Tolerance band",
+            hovertemplate="upper edge %{y:.2f}<extra></extra>",
+        )
+    )
+
+
+def _dap_ratio_series(rows: pd.DataFrame) -> list[tuple[object, pd.DataFrame]]:
+    """The lines to draw: one for all examinations when every month has one median, else one per
+    examination type."""
+    one_line = bool((rows.groupby("month")["dap_ratio_median"].nunique() <= 1).all())
+    if one_line:
+        return [("All examinations", rows.drop_duplicates("month"))]
+    return list(rows.groupby("exam_type", sort=True))
+
+
+def _mark_outside_band(fig: go.Figure, drawn: pd.DataFrame, band: pd.DataFrame) -> None:
+    """Cross the drawn monthly medians that fall outside that month's tolerance band."""
+    merged = drawn.merge(band, on="month", suffixes=("_row", ""))
+    outside = merged[
+        (merged["dap_ratio_median"] < merged["tolerance_low"])
+        | (merged["dap_ratio_median"] > merged["tolerance_high"])
+    ]
+    if outside.empty:
+        return
+    fig.add_trace(
+        go.Scatter(
+            x=list(outside["month"]),
+            y=list(outside["dap_ratio_median"]),
+            mode="markers",
+            name="Outside the band",
+            marker={
+                "symbol": "x-thin-open",
+                "size": 16,
+                "color": OKABE_ITO["vermillion"],
+                "line": {"width": 3, "color": OKABE_ITO["vermillion"]},
+            },
+            hovertemplate="%{x|%b %Y}: %{y:.3f} is outside the band<extra></extra>",
+        )
+    )

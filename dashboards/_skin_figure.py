@@ -178,69 +178,102 @@ def build_skin_dose_map(record: Mapping[str, Any], *, title: str | None = None) 
         order = np.argsort(x)
         x = x[order]
         z = data["dose_gy"][:, cells][:, order]
-        fig.add_trace(
-            go.Heatmap(
-                x=x.tolist(),
-                y=data["along_cm"].tolist(),
-                z=z.tolist(),
-                zmin=0.0,
-                zmax=zmax,
-                colorscale=SKIN_DOSE_COLOURS,
-                showscale=col == 1,
-                name=f"{side} skin dose",
-                colorbar={"title": {"text": "Skin dose (Gy)"}, "thickness": 14, "len": 0.75},
-                hovertemplate=(
-                    f"{side}: %{{x:.0f}} cm across, %{{y:.0f}} cm below the top of "
-                    "the head<br>%{z:.2f} Gy<extra></extra>"
-                ),
-            ),
-            row=1,
-            col=col,
-        )
+        _add_skin_heatmap(fig, x, data["along_cm"], z, col=col, side=side, zmax=zmax)
         for level in reached:
-            colour, dash, width = _ISODOSE_LOOK.get(level, _ISODOSE_LOOK[5.0])
-            words = _ISODOSE_WORDS.get(level, "")
-            fig.add_trace(
-                go.Contour(
-                    x=x.tolist(),
-                    y=data["along_cm"].tolist(),
-                    z=z.tolist(),
-                    contours={
-                        "coloring": "none",
-                        "start": level,
-                        "end": level,
-                        "size": 1.0,
-                        "showlabels": True,
-                        "labelfont": {"color": colour, "size": 11},
-                    },
-                    line={"color": colour, "dash": dash, "width": width},
-                    showscale=False,
-                    hoverinfo="skip",
-                    name=f"{level:g} Gy" + (f" ({words})" if words else ""),
-                    legendgroup=f"{level:g}",
-                    showlegend=col == 1,
-                ),
-                row=1,
-                col=col,
-            )
-        ox, oy = _outline(quarter, data["height_cm"])
-        fig.add_trace(
-            go.Scatter(
-                x=ox,
-                y=oy,
-                mode="lines",
-                line={"color": "#8C8C8C", "width": 1.2},
-                name="body outline (for orientation)",
-                hoverinfo="skip",
-                legendgroup="outline",
-                showlegend=col == 1,
-            ),
-            row=1,
-            col=col,
-        )
+            _add_isodose_line(fig, x, data["along_cm"], z, col=col, level=level)
+        _add_outline(fig, quarter, data["height_cm"], col=col)
     _mark_peak(fig, data, half)
     _style(fig, data, title, quarter, reached)
     return fig
+
+
+def _add_skin_heatmap(
+    fig: go.Figure,
+    x: NDArray[np.float64],
+    y: NDArray[np.float64],
+    z: NDArray[np.float64],
+    *,
+    col: int,
+    side: str,
+    zmax: float,
+) -> None:
+    """One panel's skin dose (Gy) as a heatmap; the colour bar once, beside the first panel."""
+    fig.add_trace(
+        go.Heatmap(
+            x=x.tolist(),
+            y=y.tolist(),
+            z=z.tolist(),
+            zmin=0.0,
+            zmax=zmax,
+            colorscale=SKIN_DOSE_COLOURS,
+            showscale=col == 1,
+            name=f"{side} skin dose",
+            colorbar={"title": {"text": "Skin dose (Gy)"}, "thickness": 14, "len": 0.75},
+            hovertemplate=(
+                f"{side}: %{{x:.0f}} cm across, %{{y:.0f}} cm below the top of "
+                "the head<br>%{z:.2f} Gy<extra></extra>"
+            ),
+        ),
+        row=1,
+        col=col,
+    )
+
+
+def _add_isodose_line(
+    fig: go.Figure,
+    x: NDArray[np.float64],
+    y: NDArray[np.float64],
+    z: NDArray[np.float64],
+    *,
+    col: int,
+    level: float,
+) -> None:
+    """The isodose contour of ``level`` Gy in one panel, in its own look and words; one legend
+    entry for both panels."""
+    colour, dash, width = _ISODOSE_LOOK.get(level, _ISODOSE_LOOK[5.0])
+    words = _ISODOSE_WORDS.get(level, "")
+    fig.add_trace(
+        go.Contour(
+            x=x.tolist(),
+            y=y.tolist(),
+            z=z.tolist(),
+            contours={
+                "coloring": "none",
+                "start": level,
+                "end": level,
+                "size": 1.0,
+                "showlabels": True,
+                "labelfont": {"color": colour, "size": 11},
+            },
+            line={"color": colour, "dash": dash, "width": width},
+            showscale=False,
+            hoverinfo="skip",
+            name=f"{level:g} Gy" + (f" ({words})" if words else ""),
+            legendgroup=f"{level:g}",
+            showlegend=col == 1,
+        ),
+        row=1,
+        col=col,
+    )
+
+
+def _add_outline(fig: go.Figure, quarter: float, height_cm: float, *, col: int) -> None:
+    """The body outline in one panel, for orientation; one legend entry for both panels."""
+    ox, oy = _outline(quarter, height_cm)
+    fig.add_trace(
+        go.Scatter(
+            x=ox,
+            y=oy,
+            mode="lines",
+            line={"color": "#8C8C8C", "width": 1.2},
+            name="body outline (for orientation)",
+            hoverinfo="skip",
+            legendgroup="outline",
+            showlegend=col == 1,
+        ),
+        row=1,
+        col=col,
+    )
 
 
 def _mark_peak(fig: go.Figure, data: dict[str, Any], half: int) -> None:

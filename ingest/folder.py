@@ -44,8 +44,16 @@ Classification = Literal["dicom", "dicomdir", "not_dicom"]
 def iter_candidate_files(
     paths: Iterable[str | os.PathLike[str]],
     on_unreadable: Callable[[IngestError], object] | None = None,
+    *,
+    skip: Iterable[str | os.PathLike[str]] = (),
+    on_skipped: Callable[[Path], object] | None = None,
 ) -> Iterator[Path]:
     """Every regular file under ``paths``, depth first, names sorted within each folder.
+
+    Files named in ``skip`` (the caller's own database and its journal files, say: a process
+    that holds SQLite locks on a file must not open and close it again, since closing any
+    descriptor of a file drops the process's POSIX locks on it) are never yielded, nor opened:
+    they are recognised by device and inode, and told to ``on_skipped``.
 
     Symbolic links are followed, but each folder and each file is visited once
     (by device and inode), so link loops end and a linked file is not counted
@@ -56,6 +64,29 @@ def iter_candidate_files(
     """
     seen_dirs: set[tuple[int, int]] = set()
     seen_files: set[tuple[int, int]] = set()
+    skipped = {key for key in map(_file_key, skip) if key is not None}
+    for found in _files(paths, on_unreadable, seen_dirs, seen_files):
+        if skipped and _file_key(found) in skipped:
+            if on_skipped is not None:
+                on_skipped(found)
+            continue
+        yield found
+
+
+def _file_key(path: str | os.PathLike[str]) -> tuple[int, int] | None:
+    try:
+        info = os.stat(path)
+    except OSError:
+        return None
+    return (info.st_dev, info.st_ino)
+
+
+def _files(
+    paths: Iterable[str | os.PathLike[str]],
+    on_unreadable: Callable[[IngestError], object] | None,
+    seen_dirs: set[tuple[int, int]],
+    seen_files: set[tuple[int, int]],
+) -> Iterator[Path]:
     for raw in paths:
         path = Path(raw)
         try:

@@ -43,6 +43,7 @@ __all__ = [
     "concept_rows",
     "header_rows",
     "header_rows_by_field",
+    "intent_clue_row",
 ]
 
 SrContext = Literal[
@@ -645,3 +646,16 @@ def concept_rows(context: SrContext) -> dict[tuple[str, str], FieldMapping]:
             assert row.code is not None
             out[row.code] = row
     return out
+
+
+def intent_clue_row(clue: str) -> FieldMapping | None:
+    """The row of :data:`MAPPING` that read a ``mammography_intent`` clue (the field's provenance:
+    ``"(0008,1032) ProcedureCodeSequence (MGS2, 99LOCAL) Screening mammography"``), or None.
+
+    The clue starts with its row's tag or concept code (``"(0008,1032)"``, ``"(363703001,
+    SCT)"``), which is unique among the rows of the field."""
+    head = clue.split(")", 1)[0] + ")"
+    for row in MAPPING:
+        if row.field == "mammography_intent" and row.label.startswith(head):
+            return row
+    return None

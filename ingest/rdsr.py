@@ -578,18 +578,7 @@ def rdsr_events(
     """
     contents = report_contents(ds, warnings=warnings)
     doc = contents.document
-    base = dict(base)
-    provenance = dict(base_provenance)
-    # equipment from the observer context where the header lacks it (General Equipment is Type 3
-    # for StationName; Enhanced General Equipment makes the others Type 1)
-    for name in ("station_name", "manufacturer", "model_name", "device_serial_number"):
-        if base.get(name) is None and name in doc.values:
-            base[name] = doc.values[name]
-            provenance[name] = doc.provenance[name]
-    for name in ("device_observer_uid", "acquisition_device_type"):
-        if name in doc.values:
-            base[name] = doc.values[name]
-            provenance[name] = doc.provenance[name]
+    base, provenance = _with_observer_equipment(base, base_provenance, doc)
     procedure_family = doc.values.get("procedure_reported")
     is_mammo = doc.values.get("procedure_code") == _MAMMOGRAPHY
     sop = str(base["sop_instance_uid"])
@@ -600,39 +589,10 @@ def rdsr_events(
             sink.notes.append(
                 f"a {family} event in a report of procedure family {procedure_family}"
             )
-        values = dict(sink.values)
-        uid = values.get("irradiation_event_uid")
-        if uid is None:
-            warnings.append(
-                f"irradiation event {index + 1} has no Irradiation Event UID (113769, DCM)"
-            )
-        elif uid in seen_uids:
-            warnings.append(f"irradiation event {index + 1} repeats Irradiation Event UID {uid}")
-        else:
-            seen_uids.add(uid)
+        uid = sink.values.get("irradiation_event_uid")
+        _check_event_uid(uid, index, seen_uids, warnings)
         event_key = uid if uid is not None else f"{sop}#{index}"
-        fields = dict(base)
-        fields.update(values)
-        fields["modality_family"] = family
-        fields["modality"] = "CT" if family == "ct" else ("MG" if is_mammo else None)
-        event_prov = dict(provenance)
-        event_prov.update(sink.provenance)
-        if is_mammo and family == "projection":
-            _mammography_acquisition(fields, sink)
-            event_prov.update(sink.provenance)
-            if fields.get("mammography_intent") is None and "mammography_intent" in doc.values:
-                # an event's own workup-view modifier first, then the report's procedure codes
-                # (in base, from its header), then its Has Intent
-                fields["mammography_intent"] = doc.values["mammography_intent"]
-                event_prov["mammography_intent"] = doc.provenance["mammography_intent"]
-        else:
-            fields.pop("mammography_intent", None)
-            event_prov.pop("mammography_intent", None)
-        guided = fields.get("acquisition_device_type") == "fluoroscopy_guided"
-        if fields["modality"] is None and (guided or fields.get("event_type") == "fluoroscopy"):
-            # a fluoroscopy-guided system's report (CID 10032 113957): the room is RF/XA; RF is
-            # what the mapping rules of fluoroscopic examinations look for
-            fields["modality"] = "RF"
+        fields, event_prov = _event_fields(family, sink, base, provenance, doc, is_mammo=is_mammo)
         events.append(
             ExposureEvent(
                 event_key=event_key,
@@ -643,30 +603,110 @@ def rdsr_events(
                 **fields,
             )
         )
-    accumulated: list[AccumulatedDose] = []
-    for family, sink in contents.accumulated:
-        values = dict(sink.values)
-        prov = dict(sink.provenance)
-        if family == "projection" and "number_of_events" not in values:
-            plane = values.get("acquisition_plane")
-            values["number_of_events"] = sum(
-                1
-                for e in events
-                if e.modality_family == "projection"
-                and (plane in (None, "all", "single") or e.acquisition_plane == plane)
-            )
-            prov["number_of_events"] = "counted: TID 10003 events of this plane in the report"
-        if family == "ct" and "dlp_total_mgy_cm" in values:
-            _check_dlp_total(values["dlp_total_mgy_cm"], events, warnings)
-        accumulated.append(
-            AccumulatedDose(
-                sop_instance_uid=sop,
-                study_instance_uid=base.get("study_instance_uid"),
-                provenance=prov,
-                **values,
-            )
-        )
+    accumulated = [
+        _accumulated_dose(family, sink, events, base=base, warnings=warnings)
+        for family, sink in contents.accumulated
+    ]
     return events, accumulated
+
+
+def _with_observer_equipment(
+    base: dict[str, Any], base_provenance: dict[str, str], doc: FieldSink
+) -> tuple[dict[str, Any], dict[str, str]]:
+    """Copies of the header's ``base`` fields and their provenance, with the equipment the
+    report's observer context names: where the header lacks it (General Equipment is Type 3 for
+    StationName; Enhanced General Equipment makes the others Type 1), and always for the device
+    observer UID and the acquisition device type."""
+    base = dict(base)
+    provenance = dict(base_provenance)
+    for name in ("station_name", "manufacturer", "model_name", "device_serial_number"):
+        if base.get(name) is None and name in doc.values:
+            base[name] = doc.values[name]
+            provenance[name] = doc.provenance[name]
+    for name in ("device_observer_uid", "acquisition_device_type"):
+        if name in doc.values:
+            base[name] = doc.values[name]
+            provenance[name] = doc.provenance[name]
+    return base, provenance
+
+
+def _check_event_uid(uid: Any, index: int, seen_uids: set[str], warnings: list[str]) -> None:
+    """Warn of an irradiation event without an Irradiation Event UID or repeating one; note a new
+    one in ``seen_uids``."""
+    if uid is None:
+        warnings.append(f"irradiation event {index + 1} has no Irradiation Event UID (113769, DCM)")
+    elif uid in seen_uids:
+        warnings.append(f"irradiation event {index + 1} repeats Irradiation Event UID {uid}")
+    else:
+        seen_uids.add(uid)
+
+
+def _event_fields(
+    family: str,
+    sink: FieldSink,
+    base: dict[str, Any],
+    provenance: dict[str, str],
+    doc: FieldSink,
+    *,
+    is_mammo: bool,
+) -> tuple[dict[str, Any], dict[str, str]]:
+    """One event's fields (the report's ``base`` joined with its own values) and their
+    provenance, with its modality: CT for a CT event, MG for an event of a mammography report,
+    RF for a fluoroscopy event or a fluoroscopy-guided system's report."""
+    fields = dict(base)
+    fields.update(dict(sink.values))
+    fields["modality_family"] = family
+    fields["modality"] = "CT" if family == "ct" else ("MG" if is_mammo else None)
+    event_prov = dict(provenance)
+    event_prov.update(sink.provenance)
+    if is_mammo and family == "projection":
+        _mammography_acquisition(fields, sink)
+        event_prov.update(sink.provenance)
+        if fields.get("mammography_intent") is None and "mammography_intent" in doc.values:
+            # an event's own workup-view modifier first, then the report's procedure codes
+            # (in base, from its header), then its Has Intent
+            fields["mammography_intent"] = doc.values["mammography_intent"]
+            event_prov["mammography_intent"] = doc.provenance["mammography_intent"]
+    else:
+        fields.pop("mammography_intent", None)
+        event_prov.pop("mammography_intent", None)
+    guided = fields.get("acquisition_device_type") == "fluoroscopy_guided"
+    if fields["modality"] is None and (guided or fields.get("event_type") == "fluoroscopy"):
+        # a fluoroscopy-guided system's report (CID 10032 113957): the room is RF/XA; RF is
+        # what the mapping rules of fluoroscopic examinations look for
+        fields["modality"] = "RF"
+    return fields, event_prov
+
+
+def _accumulated_dose(
+    family: str,
+    sink: FieldSink,
+    events: list[ExposureEvent],
+    *,
+    base: dict[str, Any],
+    warnings: list[str],
+) -> AccumulatedDose:
+    """One accumulation of the report; a projection accumulation without its number of events
+    counts the report's events of its plane, a CT total DLP is checked against the events'."""
+    values = dict(sink.values)
+    prov = dict(sink.provenance)
+    if family == "projection" and "number_of_events" not in values:
+        plane = values.get("acquisition_plane")
+        values["number_of_events"] = sum(
+            1
+            for e in events
+            if e.modality_family == "projection"
+            and (plane in (None, "all", "single") or e.acquisition_plane == plane)
+        )
+        prov["number_of_events"] = "counted: TID 10003 events of this plane in the report"
+    if family == "ct" and "dlp_total_mgy_cm" in values:
+        _check_dlp_total(values["dlp_total_mgy_cm"], events, warnings)
+    return AccumulatedDose(
+        sop_instance_uid=str(base["sop_instance_uid"]),
+        study_instance_uid=base.get("study_instance_uid"),
+        provenance=prov,
+        **values,
+    )
 
 
 def _mammography_acquisition(fields: dict[str, Any], sink: FieldSink) -> None:

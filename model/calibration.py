@@ -35,6 +35,7 @@ from __future__ import annotations
 
 import json
 import math
+from collections.abc import Callable
 from dataclasses import dataclass, field
 from functools import lru_cache
 from importlib import resources
@@ -280,45 +281,16 @@ def calibrate_room(
         return np.array(out)
 
     start_inherent = 1.0 if fit_filtration else None
-    first = predictions(start_inherent)
-    log_scale0 = float(
-        np.mean(
-            [
-                math.log(m.measured_output_ugy_per_mas / p[0])
-                for m, p in zip(items, first, strict=True)
-            ]
-        )
-    )
+    log_ratios = [
+        math.log(m.measured_output_ugy_per_mas / p[0])
+        for m, p in zip(items, predictions(start_inherent), strict=True)
+    ]
     if fit_filtration:
-        fit = least_squares(
-            residual_vector,
-            x0=np.array([log_scale0, 1.0]),
-            bounds=([-np.inf, 0.0], [np.inf, _MAX_INHERENT_MM_AL]),
-            x_scale=np.array([0.05, 0.5]),
-            diff_step=1e-4,
-        )
-        params = fit.x
-        jac = fit.jac
+        params, jac = _fit_scale_and_filtration(residual_vector, log_ratios)
     else:
-        # Only the scale: the weighted mean of the log ratios is the exact least-squares solution.
-        weights = np.array([1.0 / m.output_uncertainty_rel**2 for m in items])
-        logs = np.array(
-            [
-                math.log(m.measured_output_ugy_per_mas / p[0])
-                for m, p in zip(items, first, strict=True)
-            ]
-        )
-        params = np.array([float(np.sum(weights * logs) / np.sum(weights))])
-        jac = -np.array([[1.0 / m.output_uncertainty_rel] for m in items])
+        params, jac = _fit_scale(items, log_ratios)
     final = residual_vector(params if fit_filtration else np.array([params[0], 0.0]))
-    dof = final.size - params.size
-    birge = max(1.0, float(np.sum(final**2)) / dof) if dof > 0 else 1.0
-    try:
-        covariance = np.linalg.inv(jac.T @ jac) * birge
-    except np.linalg.LinAlgError:
-        raise ModelError(
-            "QA measurements do not determine the calibration (singular fit)"
-        ) from None
+    covariance = _fit_covariance(final, params, jac)
     inherent = float(params[1]) if fit_filtration else None
     residuals = _residual_records(items, predictions(inherent), math.exp(params[0]))
     return RoomCalibration(
@@ -333,6 +305,48 @@ def calibrate_room(
         source=f"least-squares fit to {len(items)} QA measurement(s)",
         **tube,
     )
+
+
+def _fit_scale_and_filtration(
+    residual_vector: Callable[[np.ndarray], np.ndarray], log_ratios: list[float]
+) -> tuple[np.ndarray, np.ndarray]:
+    """Log output scale and inherent filtration (mm Al) by bounded least squares on the
+    normalised residuals, from the mean log ratio of measured to predicted output and 1 mm Al;
+    the parameters and the Jacobian at them."""
+    fit = least_squares(
+        residual_vector,
+        x0=np.array([float(np.mean(log_ratios)), 1.0]),
+        bounds=([-np.inf, 0.0], [np.inf, _MAX_INHERENT_MM_AL]),
+        x_scale=np.array([0.05, 0.5]),
+        diff_step=1e-4,
+    )
+    return fit.x, fit.jac
+
+
+def _fit_scale(
+    items: tuple[QAMeasurement, ...], log_ratios: list[float]
+) -> tuple[np.ndarray, np.ndarray]:
+    """Only the log output scale: the weighted mean of the log ratios of measured to predicted
+    output (weights :math:`1/u_{rel}^2`) is the exact least-squares solution; the parameter and
+    the Jacobian of the normalised residuals."""
+    weights = np.array([1.0 / m.output_uncertainty_rel**2 for m in items])
+    logs = np.array(log_ratios)
+    params = np.array([float(np.sum(weights * logs) / np.sum(weights))])
+    jac = -np.array([[1.0 / m.output_uncertainty_rel] for m in items])
+    return params, jac
+
+
+def _fit_covariance(final: np.ndarray, params: np.ndarray, jac: np.ndarray) -> np.ndarray:
+    """Covariance of the fitted parameters, :math:`(J^T J)^{-1}` scaled by the Birge ratio
+    :math:`\\chi^2/\\nu` when above 1 (:math:`\\nu` the degrees of freedom)."""
+    dof = final.size - params.size
+    birge = max(1.0, float(np.sum(final**2)) / dof) if dof > 0 else 1.0
+    try:
+        return np.linalg.inv(jac.T @ jac) * birge
+    except np.linalg.LinAlgError:
+        raise ModelError(
+            "QA measurements do not determine the calibration (singular fit)"
+        ) from None
 
 
 def _residual_records(

@@ -58,11 +58,13 @@ from beamaudit.model.trail import WhyTrail
 
 __all__ = [
     "AAPM220_SOURCE",
+    "DW_METHOD_RELATIVE_UNCERTAINTY",
     "AxialSizes",
     "ContourMethod",
     "ScanRangeSize",
     "axial_sizes",
     "patient_mask",
+    "scan_range_dw_uncertainty",
     "scan_range_size",
 ]
 
@@ -441,29 +443,75 @@ def scan_range_size(
     ds = np.bincount(inverse, weights=dw[near]) / np.bincount(inverse)  # mean of equal z
     centre = 0.5 * (lo + hi)
     centre_dw = float(np.interp(centre, zs, ds))
-    if hi > lo:
-        knots = np.concatenate(([lo], zs[(zs > lo) & (zs < hi)], [hi]))
-        values = np.interp(knots, zs, ds)
-        mean_dw = float(np.sum(0.5 * (values[1:] + values[:-1]) * np.diff(knots)) / (hi - lo))
-        covered = (min(hi, zs[-1]) - max(lo, zs[0])) / (hi - lo)
-        covered = float(min(max(covered, 0.0), 1.0))
-        inside = np.concatenate(([max(lo, zs[0])], zs[(zs > lo) & (zs < hi)], [min(hi, zs[-1])]))
-        max_gap = float(np.max(np.diff(inside))) if inside.size > 1 else 0.0
-    else:
-        mean_dw = centre_dw
-        covered = 1.0 if zs[0] <= lo <= zs[-1] else 0.0
-        max_gap = 0.0
+    mean_dw, covered, max_gap = _range_mean(zs, ds, lo, hi, centre_dw=centre_dw)
     in_range = near & (z >= lo) & (z <= hi)
     n_truncated = int((flags & near).sum())
+    trail = _size_trail(
+        mean_dw=mean_dw,
+        centre_dw=centre_dw,
+        lo=lo,
+        hi=hi,
+        n_near=int(near.sum()),
+        n_in_range=int(in_range.sum()),
+        covered=covered,
+        n_truncated=n_truncated,
+        samples=samples,
+    )
+    return ScanRangeSize(
+        mean_dw_cm=mean_dw,
+        centre_dw_cm=centre_dw,
+        z_start_mm=lo,
+        z_end_mm=hi,
+        n_samples=int(near.sum()),
+        covered_fraction=covered,
+        max_gap_mm=max_gap,
+        truncated_samples=n_truncated,
+        trail=trail,
+    )
+
+
+def _range_mean(
+    zs: NDArray[np.float64], ds: NDArray[np.float64], lo: float, hi: float, *, centre_dw: float
+) -> tuple[float, float, float]:
+    """Mean :math:`D_w` over ``[lo, hi]`` of the samples ``ds`` at sorted, distinct ``zs``, by the
+    trapezoidal rule on :math:`D_w(z)` linear between samples (constant beyond them), the fraction
+    of the range the samples span, and the largest gap (mm) between samples within the range;
+    for a single position (``lo == hi``), :math:`D_w` there (``centre_dw``)."""
+    if not hi > lo:
+        return centre_dw, (1.0 if zs[0] <= lo <= zs[-1] else 0.0), 0.0
+    knots = np.concatenate(([lo], zs[(zs > lo) & (zs < hi)], [hi]))
+    values = np.interp(knots, zs, ds)
+    mean_dw = float(np.sum(0.5 * (values[1:] + values[:-1]) * np.diff(knots)) / (hi - lo))
+    covered = (min(hi, zs[-1]) - max(lo, zs[0])) / (hi - lo)
+    covered = float(min(max(covered, 0.0), 1.0))
+    inside = np.concatenate(([max(lo, zs[0])], zs[(zs > lo) & (zs < hi)], [min(hi, zs[-1])]))
+    max_gap = float(np.max(np.diff(inside))) if inside.size > 1 else 0.0
+    return mean_dw, covered, max_gap
+
+
+def _size_trail(
+    *,
+    mean_dw: float,
+    centre_dw: float,
+    lo: float,
+    hi: float,
+    n_near: int,
+    n_in_range: int,
+    covered: float,
+    n_truncated: int,
+    samples: str,
+) -> WhyTrail:
+    """The why trail of :func:`scan_range_size`: the mean and the centre :math:`D_w`, and the
+    truncated samples if any."""
     trail = WhyTrail()
-    inputs = {"z_start_mm": lo, "z_end_mm": hi, "samples": int(near.sum())}
+    inputs = {"z_start_mm": lo, "z_end_mm": hi, "samples": n_near}
     trail.add(
         "water_equivalent_diameter_mean_cm",
         mean_dw,
         "cm",
         equation="mean Dw = (1 / (z2 - z1)) ∫ Dw(z) dz, Dw(z) linear between samples",
         source=f"{AAPM220_SOURCE} per sample; IEC 62985:2019, Dw over the scan range; {samples}",
-        inputs=inputs | {"samples_in_range": int(in_range.sum())},
+        inputs=inputs | {"samples_in_range": n_in_range},
         assumed=covered < 0.999,
         note=(
             f"samples cover {covered:.0%} of the scan range; Dw held constant beyond them"
@@ -477,7 +525,7 @@ def scan_range_size(
         "cm",
         equation="Dw at z = (z1 + z2) / 2, linear between samples",
         source=f"AAPM Report 220 (2014), Dw at the centre of the scan range; {samples}",
-        inputs={"z_centre_mm": centre},
+        inputs={"z_centre_mm": 0.5 * (lo + hi)},
     )
     if n_truncated:
         trail.add(
@@ -487,16 +535,46 @@ def scan_range_size(
             equation="patient contour on the edge of the field of view",
             source="AAPM Report 220 (2014): a truncated patient gives too small a Dw",
             assumed=True,
-            note=f"{n_truncated} of {int(near.sum())} samples truncated: Dw underestimated there",
+            note=f"{n_truncated} of {n_near} samples truncated: Dw underestimated there",
         )
-    return ScanRangeSize(
-        mean_dw_cm=mean_dw,
-        centre_dw_cm=centre_dw,
-        z_start_mm=lo,
-        z_end_mm=hi,
-        n_samples=int(near.sum()),
-        covered_fraction=covered,
-        max_gap_mm=max_gap,
-        truncated_samples=n_truncated,
-        trail=trail,
-    )
+    return trail
+
+
+#: Relative standard uncertainty of one Dw from the images, by method (from memory, low
+#: confidence): contouring and CT-number calibration of axial images give Dw within a few per
+#: cent of a phantom's known size (AAPM Report 220, 2014; IEC 62985:2019 phantom verification);
+#: a localizer row, through its calibration to water and the beam hardening it ignores, within
+#: about twice that. Each is taken here as a standard uncertainty.
+DW_METHOD_RELATIVE_UNCERTAINTY = {"axial_images": 0.02, "localizer": 0.05}
+
+
+def scan_range_dw_uncertainty(
+    *, dw_cm: ArrayLike, mean_dw_cm: float, method: str = "axial_images"
+) -> tuple[float, dict[str, float]]:
+    r"""Standard uncertainty of a scan-range mean :math:`\bar D_w` (cm), and its components.
+
+    Two independent components, added in quadrature (JCGM 100:2008, GUM, eq. 10):
+
+    .. math::
+
+        u(\bar D_w) = \sqrt{\left(\frac{s}{\sqrt{n}}\right)^2 + (r_m \bar D_w)^2}
+
+    - *sampling* :math:`s/\sqrt{n}`: the standard deviation :math:`s` of the :math:`n` samples'
+      :math:`D_w` over the square root of their number (GUM type A, eq. 5), which stands for
+      the size variation the sampling may have missed between samples; zero for one sample;
+    - *method* :math:`r_m \bar D_w`: the method's own relative uncertainty
+      (:data:`DW_METHOD_RELATIVE_UNCERTAINTY`, from memory).
+
+    A truncated patient (on the edge of the field of view) makes :math:`D_w` too small: that
+    bias is not in :math:`u`; the trail names the truncated samples.
+    """
+    if method not in DW_METHOD_RELATIVE_UNCERTAINTY:
+        known = ", ".join(DW_METHOD_RELATIVE_UNCERTAINTY)
+        raise ModelError(f"Dw method must be one of {known}, not {method!r}")
+    if not (math.isfinite(mean_dw_cm) and mean_dw_cm > 0):
+        raise ModelError(f"mean Dw must be a positive finite number, not {mean_dw_cm!r}")
+    dw = np.asarray(dw_cm, dtype=np.float64).ravel()
+    dw = dw[np.isfinite(dw) & (dw > 0)]
+    sampling = float(np.std(dw, ddof=1) / math.sqrt(dw.size)) if dw.size > 1 else 0.0
+    method_u = DW_METHOD_RELATIVE_UNCERTAINTY[method] * float(mean_dw_cm)
+    return math.hypot(sampling, method_u), {"sampling_cm": sampling, "method_cm": method_u}

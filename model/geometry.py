@@ -224,6 +224,11 @@ def _positive(name: str, value: float | None) -> float | None:
     return number
 
 
+#: a field as :meth:`_Resolver.field` gives it: (area cm², relative u, width cm, height cm,
+#: plane mm, u plane mm, rule)
+_Field = tuple[float, float, float | None, float | None, float, float, str]
+
+
 class _Trail(Protocol):
     """What :class:`_Resolver` needs of a trail: a :class:`WhyTrail`, or one that keeps nothing."""
 
@@ -472,60 +477,81 @@ class _Resolver:
             return self._minus_thickness(support, rel * support, "source_to_patient_mm")
         table = _positive("source_to_table_mm", g.source_to_table_mm)
         if table is not None:
-            if g.tube_side == "above":
-                return self._minus_thickness(table, rel * table, "source_to_table_mm")
-            if g.tube_side != "below":
-                raise ModelError(f"tube_side must be 'above' or 'below', not {g.tube_side!r}")
-            trail.add(
-                "fsd_mm",
-                table,
-                "mm",
-                equation="FSD = focus to tabletop (tube below the table, patient on the tabletop)",
-                source=self.source_of("source_to_table_mm"),
-                inputs={"source_to_table_mm": table},
-                assumed=True,
-                note="tube below the table: entrance taken at the tabletop (the mattress's "
-                "thickness neglected)",
-            )
-            return table, rel * table, "source_to_table"
+            return self._fsd_from_table(table)
         iso = _positive("source_to_isocenter_mm", g.source_to_isocenter_mm)
         if iso is not None:
-            t, u_t = self.thickness(trail)
-            centring = dose_default("isocentre_centring_uncertainty_mm").value
-            fsd = iso - t / 2.0
-            self._check_fsd(fsd, f"source_to_isocenter_mm {iso:g} minus half the thickness {t:g}")
-            trail.add(
-                "fsd_mm",
-                fsd,
-                "mm",
-                equation="FSD = d_iso - t/2",
-                source=self.source_of("source_to_isocenter_mm"),
-                inputs={"source_to_isocenter_mm": iso, "body_part_thickness_mm": t},
-                assumed=True,
-                note="patient taken as centred on the isocentre",
-            )
-            u = math.sqrt((rel * iso) ** 2 + (u_t / 2.0) ** 2 + centring**2)
-            return fsd, u, "source_to_isocenter"
+            return self._fsd_from_isocentre(iso)
         m = _positive("magnification_factor", g.magnification_factor)
         sid_recorded = _positive("sid_mm", g.sid_mm)
         if m is not None and sid_recorded is not None:
-            if m < 1.0:
-                raise ModelError(f"magnification_factor must be at least 1, not {m:g}")
-            sid, u_sid = self.sid(trail)
-            sod = sid / m
-            trail.add(
-                "source_to_object_mm",
-                sod,
-                "mm",
-                equation="SOD = SID / M",
-                source=self.source_of("magnification_factor"),
-                inputs={"sid_mm": sid, "magnification_factor": m},
-                assumed=True,
-                note="object plane of the magnification factor taken as the patient support",
-            )
-            return self._minus_thickness(
-                sod, u_sid / m, "source_to_object_mm", rule="magnification"
-            )
+            return self._fsd_from_magnification(m)
+        return self._fsd_from_sid_gap()
+
+    def _fsd_from_table(self, table: float) -> tuple[float, float, str]:
+        """FSD from the focus-to-tabletop distance: minus the thickness with the tube above the
+        table, the tabletop itself with the tube below it."""
+        g, rel = self.g, self.recorded_rel
+        if g.tube_side == "above":
+            return self._minus_thickness(table, rel * table, "source_to_table_mm")
+        if g.tube_side != "below":
+            raise ModelError(f"tube_side must be 'above' or 'below', not {g.tube_side!r}")
+        self.distance_trail.add(
+            "fsd_mm",
+            table,
+            "mm",
+            equation="FSD = focus to tabletop (tube below the table, patient on the tabletop)",
+            source=self.source_of("source_to_table_mm"),
+            inputs={"source_to_table_mm": table},
+            assumed=True,
+            note="tube below the table: entrance taken at the tabletop (the mattress's "
+            "thickness neglected)",
+        )
+        return table, rel * table, "source_to_table"
+
+    def _fsd_from_isocentre(self, iso: float) -> tuple[float, float, str]:
+        """FSD = d_iso - t/2, the patient taken as centred on the isocentre; the centring's
+        uncertainty adds in quadrature to the distance's and half the thickness's."""
+        trail = self.distance_trail
+        t, u_t = self.thickness(trail)
+        centring = dose_default("isocentre_centring_uncertainty_mm").value
+        fsd = iso - t / 2.0
+        self._check_fsd(fsd, f"source_to_isocenter_mm {iso:g} minus half the thickness {t:g}")
+        trail.add(
+            "fsd_mm",
+            fsd,
+            "mm",
+            equation="FSD = d_iso - t/2",
+            source=self.source_of("source_to_isocenter_mm"),
+            inputs={"source_to_isocenter_mm": iso, "body_part_thickness_mm": t},
+            assumed=True,
+            note="patient taken as centred on the isocentre",
+        )
+        u = math.sqrt((self.recorded_rel * iso) ** 2 + (u_t / 2.0) ** 2 + centring**2)
+        return fsd, u, "source_to_isocenter"
+
+    def _fsd_from_magnification(self, m: float) -> tuple[float, float, str]:
+        """FSD from the magnification factor: SOD = SID / M, the object plane taken as the patient
+        support, minus the thickness."""
+        if m < 1.0:
+            raise ModelError(f"magnification_factor must be at least 1, not {m:g}")
+        trail = self.distance_trail
+        sid, u_sid = self.sid(trail)
+        sod = sid / m
+        trail.add(
+            "source_to_object_mm",
+            sod,
+            "mm",
+            equation="SOD = SID / M",
+            source=self.source_of("magnification_factor"),
+            inputs={"sid_mm": sid, "magnification_factor": m},
+            assumed=True,
+            note="object plane of the magnification factor taken as the patient support",
+        )
+        return self._minus_thickness(sod, u_sid / m, "source_to_object_mm", rule="magnification")
+
+    def _fsd_from_sid_gap(self) -> tuple[float, float, str]:
+        """FSD = SID - gap - t: a patient in front of the image receptor."""
+        trail = self.distance_trail
         sid, u_sid = self.sid(trail)
         gap, u_gap = self.gap(trail)
         t, u_t = self.thickness(trail)
@@ -569,75 +595,98 @@ class _Resolver:
             return d, self.recorded_rel * d
         return self.sid(self.field_trail)
 
-    def field(self) -> tuple[float, float, float | None, float | None, float, float, str]:
+    def field(self) -> _Field:
         """(area cm², relative u, width cm, height cm, plane mm, u plane mm, rule)."""
-        g, trail = self.g, self.field_trail
+        g = self.g
         area = _positive("field_area_cm2", g.field_area_cm2)
         if area is not None:
-            plane, u_plane = self.plane(g.field_area_plane_mm, "field_area_plane_mm")
-            rel = dose_default("reported_field_relative_uncertainty").value
-            trail.add(
-                "field_area_cm2",
-                area,
-                "cm²",
-                equation="recorded",
-                source=self.source_of("field_area_cm2"),
-                inputs={"plane_mm": plane},
-            )
-            return area, rel, None, None, plane, u_plane, "reported_area"
+            return self._reported_area(area)
         w = _positive("field_width_mm", g.field_width_mm)
         h = _positive("field_height_mm", g.field_height_mm)
         if w is not None and h is not None:
-            plane, u_plane = self.plane(g.field_plane_mm, "field_plane_mm")
-            rel = dose_default("reported_field_relative_uncertainty").value
-            area = w * h / _MM2_PER_CM2
-            trail.add(
-                "field_area_cm2",
-                area,
-                "cm²",
-                equation="A = w · h",
-                source=self.source_of("field_width_mm", "field_height_mm"),
-                inputs={"field_width_mm": w, "field_height_mm": h, "plane_mm": plane},
-            )
-            return area, rel, w / _MM_PER_CM, h / _MM_PER_CM, plane, u_plane, "reported_sides"
+            return self._reported_sides(w, h)
         from_edges = self._field_from_edges()
         if from_edges is not None:
-            w_mm, h_mm = from_edges
-            plane, u_plane = self.sid(trail)
-            rel = dose_default("collimator_edge_field_relative_uncertainty").value
-            area = w_mm * h_mm / _MM2_PER_CM2
-            trail.add(
-                "field_area_cm2",
-                area,
-                "cm²",
-                equation="w = (right - left + 1) · column spacing; h = (lower - upper + 1) · row "
-                "spacing; A = w · h",
-                source=self.source_of("collimator_edges_px", "imager_pixel_spacing_mm"),
-                inputs={
-                    "collimator_edges_px": list(g.collimator_edges_px or ()),
-                    "imager_pixel_spacing_mm": list(g.imager_pixel_spacing_mm or ()),
-                    "plane_mm": plane,
-                },
-            )
-            return area, rel, w_mm / 10, h_mm / 10, plane, u_plane, "collimator_edges"
+            return self._collimator_field(*from_edges)
         if g.detector_dimensions_mm is not None:
-            dw = _positive("detector width", g.detector_dimensions_mm[0])
-            dh = _positive("detector height", g.detector_dimensions_mm[1])
-            assert dw is not None and dh is not None
-            plane, u_plane = self.sid(trail)
-            rel = dose_default("detector_field_relative_uncertainty").value
-            area = dw * dh / _MM2_PER_CM2
-            trail.add(
-                "field_area_cm2",
-                area,
-                "cm²",
-                equation="A = detector width · height",
-                source=self.source_of("detector_dimensions_mm"),
-                inputs={"detector_dimensions_mm": [dw, dh], "plane_mm": plane},
-                assumed=True,
-                note="field taken as the whole detector (collimation fully open): an upper bound",
-            )
-            return area, rel, dw / 10, dh / 10, plane, u_plane, "detector_dimensions"
+            return self._detector_field(g.detector_dimensions_mm)
+        return self._exam_default_field()
+
+    def _reported_area(self, area: float) -> _Field:
+        """The recorded field area, at its recorded plane (else the SID)."""
+        plane, u_plane = self.plane(self.g.field_area_plane_mm, "field_area_plane_mm")
+        rel = dose_default("reported_field_relative_uncertainty").value
+        self.field_trail.add(
+            "field_area_cm2",
+            area,
+            "cm²",
+            equation="recorded",
+            source=self.source_of("field_area_cm2"),
+            inputs={"plane_mm": plane},
+        )
+        return area, rel, None, None, plane, u_plane, "reported_area"
+
+    def _reported_sides(self, w: float, h: float) -> _Field:
+        """A = w · h of the recorded field sides (mm), at their recorded plane (else the SID)."""
+        plane, u_plane = self.plane(self.g.field_plane_mm, "field_plane_mm")
+        rel = dose_default("reported_field_relative_uncertainty").value
+        area = w * h / _MM2_PER_CM2
+        self.field_trail.add(
+            "field_area_cm2",
+            area,
+            "cm²",
+            equation="A = w · h",
+            source=self.source_of("field_width_mm", "field_height_mm"),
+            inputs={"field_width_mm": w, "field_height_mm": h, "plane_mm": plane},
+        )
+        return area, rel, w / _MM_PER_CM, h / _MM_PER_CM, plane, u_plane, "reported_sides"
+
+    def _collimator_field(self, w_mm: float, h_mm: float) -> _Field:
+        """A = w · h of the sides the collimator edges give (:meth:`_field_from_edges`), at the
+        image receptor."""
+        g, trail = self.g, self.field_trail
+        plane, u_plane = self.sid(trail)
+        rel = dose_default("collimator_edge_field_relative_uncertainty").value
+        area = w_mm * h_mm / _MM2_PER_CM2
+        trail.add(
+            "field_area_cm2",
+            area,
+            "cm²",
+            equation="w = (right - left + 1) · column spacing; h = (lower - upper + 1) · row "
+            "spacing; A = w · h",
+            source=self.source_of("collimator_edges_px", "imager_pixel_spacing_mm"),
+            inputs={
+                "collimator_edges_px": list(g.collimator_edges_px or ()),
+                "imager_pixel_spacing_mm": list(g.imager_pixel_spacing_mm or ()),
+                "plane_mm": plane,
+            },
+        )
+        return area, rel, w_mm / 10, h_mm / 10, plane, u_plane, "collimator_edges"
+
+    def _detector_field(self, dimensions_mm: tuple[float, float]) -> _Field:
+        """The whole detector as the field (collimation fully open): an upper bound."""
+        trail = self.field_trail
+        dw = _positive("detector width", dimensions_mm[0])
+        dh = _positive("detector height", dimensions_mm[1])
+        assert dw is not None and dh is not None
+        plane, u_plane = self.sid(trail)
+        rel = dose_default("detector_field_relative_uncertainty").value
+        area = dw * dh / _MM2_PER_CM2
+        trail.add(
+            "field_area_cm2",
+            area,
+            "cm²",
+            equation="A = detector width · height",
+            source=self.source_of("detector_dimensions_mm"),
+            inputs={"detector_dimensions_mm": [dw, dh], "plane_mm": plane},
+            assumed=True,
+            note="field taken as the whole detector (collimation fully open): an upper bound",
+        )
+        return area, rel, dw / 10, dh / 10, plane, u_plane, "detector_dimensions"
+
+    def _exam_default_field(self) -> _Field:
+        """The exam type's default field at the image receptor (data/exam_defaults.csv)."""
+        trail = self.field_trail
         exam, generic = self.exam()
         row = exam_default(exam)
         plane, u_plane = self.sid(trail)

@@ -881,22 +881,16 @@ def simulate_backscatter(
     phantom = phantom or SlabPhantom()
     energies = np.asarray(energies_kev, dtype=np.float64)
     fluence = np.asarray(photon_fluence, dtype=np.float64)
-    if energies.shape != fluence.shape or energies.ndim != 1 or energies.size == 0:
-        raise ModelError("energies and photon fluence must be 1-d arrays of the same length")
-    if np.any(fluence < 0) or not np.any(fluence > 0) or not np.all(np.isfinite(fluence)):
-        raise ModelError("photon fluence must be finite, non-negative and not all zero")
-    if np.any(energies[fluence > 0] < GRID_MIN_KEV) or np.any(energies > GRID_MAX_KEV - 1):
-        raise ModelError(f"photon energies must lie in {GRID_MIN_KEV:g}-{GRID_MAX_KEV - 1:g} keV")
-    if not (math.isfinite(field_side_cm) and field_side_cm > 0):
-        raise ModelError(f"field side must be a positive number of cm, got {field_side_cm}")
-    if field_side_cm > min(phantom.width_cm, phantom.length_cm):
-        raise ModelError("the field must not be larger than the phantom's entrance surface")
-    if not (math.isfinite(fsd_cm) and fsd_cm > 0):
-        raise ModelError(f"focus-to-surface distance must be positive, got {fsd_cm}")
-    if n_photons < 2 or batch < 1:
-        raise ModelError("need at least 2 photons and a positive batch size")
-    if not (exclusion_radius_cm > 0 and disc_radius_cm > 0):
-        raise ModelError("estimator radii must be positive")
+    _check_spectrum(energies, fluence)
+    _check_run(
+        phantom,
+        field_side_cm=field_side_cm,
+        fsd_cm=fsd_cm,
+        n_photons=n_photons,
+        batch=batch,
+        exclusion_radius_cm=exclusion_radius_cm,
+        disc_radius_cm=disc_radius_cm,
+    )
     data = interaction_data(phantom.material, coherent=coherent, binding=binding)
     p = fluence / fluence.sum()
     cumulative = np.cumsum(p)
@@ -932,17 +926,7 @@ def simulate_backscatter(
     # the R0 bias grows as R0^2 (module docstring): B(R0) - B(0) ~ (B(2 R0) - B(R0)) / 3
     exclusion_bias = (s_point_2r0 - s_point) / primary / 3.0
     exclusion_bias_u = math.sqrt(max(cov[3, 3] + cov[2, 2] - 2 * cov[2, 3], 0.0)) / primary / 3
-    if p_disc > 0:
-        b_disc = 1.0 + s_disc / p_disc
-        # first-order propagation of q/p with covariance (JCGM 100:2008 eq. 13)
-        var_ratio = (
-            cov[1, 1] / p_disc**2
-            + s_disc**2 * cov[0, 0] / p_disc**4
-            - 2.0 * s_disc * cov[0, 1] / p_disc**3
-        )
-        u_disc = math.sqrt(max(var_ratio, 0.0))
-    else:
-        b_disc, u_disc = math.nan, math.nan
+    b_disc, u_disc = _disc_backscatter_factor(p_disc, s_disc, cov)
     return BackscatterSimulation(
         backscatter_factor=b,
         standard_uncertainty=u_b,
@@ -962,6 +946,59 @@ def simulate_backscatter(
         exclusion_bias_estimate=float(exclusion_bias),
         exclusion_bias_uncertainty=float(exclusion_bias_u),
     )
+
+
+def _check_spectrum(energies: FloatArray, fluence: FloatArray) -> None:
+    """A spectrum :func:`simulate_backscatter` can sample: 1-d bins of the same length, finite
+    non-negative photon numbers not all zero, energies with photons inside the grid."""
+    if energies.shape != fluence.shape or energies.ndim != 1 or energies.size == 0:
+        raise ModelError("energies and photon fluence must be 1-d arrays of the same length")
+    if np.any(fluence < 0) or not np.any(fluence > 0) or not np.all(np.isfinite(fluence)):
+        raise ModelError("photon fluence must be finite, non-negative and not all zero")
+    if np.any(energies[fluence > 0] < GRID_MIN_KEV) or np.any(energies > GRID_MAX_KEV - 1):
+        raise ModelError(f"photon energies must lie in {GRID_MIN_KEV:g}-{GRID_MAX_KEV - 1:g} keV")
+
+
+def _check_run(
+    phantom: SlabPhantom,
+    *,
+    field_side_cm: float,
+    fsd_cm: float,
+    n_photons: int,
+    batch: int,
+    exclusion_radius_cm: float,
+    disc_radius_cm: float,
+) -> None:
+    """A geometry and counts :func:`simulate_backscatter` can run: a positive field no larger than
+    the phantom's entrance surface, a positive distance, at least 2 photons, positive radii."""
+    if not (math.isfinite(field_side_cm) and field_side_cm > 0):
+        raise ModelError(f"field side must be a positive number of cm, got {field_side_cm}")
+    if field_side_cm > min(phantom.width_cm, phantom.length_cm):
+        raise ModelError("the field must not be larger than the phantom's entrance surface")
+    if not (math.isfinite(fsd_cm) and fsd_cm > 0):
+        raise ModelError(f"focus-to-surface distance must be positive, got {fsd_cm}")
+    if n_photons < 2 or batch < 1:
+        raise ModelError("need at least 2 photons and a positive batch size")
+    if not (exclusion_radius_cm > 0 and disc_radius_cm > 0):
+        raise ModelError("estimator radii must be positive")
+
+
+def _disc_backscatter_factor(p_disc: float, s_disc: float, cov: FloatArray) -> tuple[float, float]:
+    r"""The disc estimator's backscatter factor :math:`B = 1 + q/p` (scatter ``s_disc`` over
+    primary ``p_disc`` kerma through the disc) and its standard uncertainty, by first-order
+    propagation of :math:`q/p` with covariance (JCGM 100:2008 eq. 13):
+
+    .. math:: u^2(q/p) = u^2(q)/p^2 + q^2 u^2(p)/p^4 - 2 q\,u(p,q)/p^3
+
+    NaN for both without primary kerma through the disc."""
+    if not p_disc > 0:
+        return math.nan, math.nan
+    var_ratio = (
+        cov[1, 1] / p_disc**2
+        + s_disc**2 * cov[0, 0] / p_disc**4
+        - 2.0 * s_disc * cov[0, 1] / p_disc**3
+    )
+    return 1.0 + s_disc / p_disc, math.sqrt(max(var_ratio, 0.0))
 
 
 def spectrum_for_hvl(

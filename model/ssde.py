@@ -61,6 +61,7 @@ __all__ = [
     "effective_diameter_cm",
     "size_specific_dose_estimate",
     "ssde_conversion_factor",
+    "ssde_standard_uncertainty",
     "water_equivalent_diameter_cm",
     "water_equivalent_diameter_from_image_cm",
 ]
@@ -80,6 +81,10 @@ AAPM293_VALID_DIAMETER_CM = (6.0, 24.0)
 #: The report whose fit each region uses, for trails and records.
 SSDE_REPORT = {"body": "AAPM Report 204 (2011)", "head": "AAPM Report 293 (2019)"}
 _SHORT = {"body": "AAPM 204", "head": "AAPM 293"}
+#: Relative standard uncertainty of the conversion factor f itself, for a patient of known size
+#: (from memory, low confidence: AAPM 204 puts the spread of the four data sets behind its fit
+#: at roughly 10 to 20 %; the lower end is taken as a standard uncertainty).
+CONVERSION_FACTOR_RELATIVE_UNCERTAINTY = 0.10
 _MM2_PER_CM2 = 100.0
 
 
@@ -360,3 +365,26 @@ def _ssde_trail(
         inputs={"ctdivol_mgy": float(ctdivol_mgy), "ssde_conversion_factor": f},
     )
     return trail
+
+
+def ssde_standard_uncertainty(ssde: SizeSpecificDose, diameter_uncertainty_cm: float) -> float:
+    r"""Standard uncertainty of an SSDE (mGy) for a given CTDIvol, from the size and the fit.
+
+    With :math:`\mathrm{SSDE} = a e^{-bD}\,\mathrm{CTDI_{vol}}`, a size uncertainty
+    :math:`u(D)` gives :math:`u_D/\mathrm{SSDE} = b\,u(D)` (the fit's derivative; GUM eq. 10),
+    and the fit itself :data:`CONVERSION_FACTOR_RELATIVE_UNCERTAINTY`; in quadrature:
+
+    .. math::
+
+        \frac{u(\mathrm{SSDE})}{\mathrm{SSDE}} = \sqrt{(b\,u(D))^2 + u_f^2}
+
+    The CTDIvol is taken as the scanner reported it (its own display tolerance is not in
+    :math:`u`: the SSDE is compared with the scanner's SSDE for the same CTDIvol).
+    """
+    if not (math.isfinite(diameter_uncertainty_cm) and diameter_uncertainty_cm >= 0):
+        raise ModelError(
+            f"size uncertainty must be zero or a positive number, not {diameter_uncertainty_cm!r}"
+        )
+    _, b = _fit(ssde.phantom_diameter_cm, ssde.body_region)
+    relative = math.hypot(b * diameter_uncertainty_cm, CONVERSION_FACTOR_RELATIVE_UNCERTAINTY)
+    return relative * ssde.ssde_mgy

@@ -38,6 +38,7 @@ LISTENER_MODULES = frozenset(
     {
         "api/cli/test_scan_listen.py",
         "api/demo/test_cstore_failure.py",
+        "api/test_ct_sizing_arrival.py",
         "api/test_spooling.py",
         "ingest/test_listener.py",
         "ingest/test_listener_limits.py",

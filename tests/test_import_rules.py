@@ -187,6 +187,28 @@ def test_no_underscore_module_from_outside_its_package(stage: str) -> None:
     assert not bad, "underscore module imported from another package:\n" + "\n".join(bad)
 
 
+@pytest.mark.parametrize("stage", STAGES)
+def test_no_underscore_name_from_outside_its_package(stage: str) -> None:
+    """``from beamaudit.x.y import _name`` only inside the package ``beamaudit.x``."""
+    bad = []
+    for path in sorted((ROOT / stage).rglob("*.py")):
+        _, package = _module_name(path)
+        for node in ast.walk(ast.parse(path.read_text(encoding="utf-8"))):
+            if not (isinstance(node, ast.ImportFrom) and node.level == 0 and node.module):
+                continue
+            if _our_module_path(node.module) is None:
+                continue
+            owner = node.module.rpartition(".")[0]
+            private = [
+                a.name for a in node.names if a.name.startswith("_") and not a.name.startswith("__")
+            ]
+            if private and package not in (owner, node.module):
+                bad.append(
+                    f"{path.relative_to(ROOT)}:{node.lineno} imports {private} of {node.module}"
+                )
+    assert not bad, "underscore name imported from another package:\n" + "\n".join(bad)
+
+
 def test_one_error_root_per_stage_under_one_project_root() -> None:
     """Each stage's errors derive from its stage root, and every stage root from BeamauditError."""
     import importlib

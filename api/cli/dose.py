@@ -103,9 +103,9 @@ def _room_beam(room: str) -> _RoomBeam:
     from beamaudit.api.cli._common import err_console
     from beamaudit.api.cli._store import open_store
     from beamaudit.api.intake.reconstruct import (
-        _anode_symbol,
-        _patient_support,
+        anode_symbol,
         calibration_for_room,
+        room_patient_support,
     )
     from beamaudit.api.store import models as m
     from beamaudit.model import FilterSpec
@@ -127,11 +127,11 @@ def _room_beam(room: str) -> _RoomBeam:
         )
         beam = _RoomBeam(
             name=room,
-            anode=_anode_symbol(row.anode_material),
+            anode=anode_symbol(row.anode_material),
             anode_angle_deg=row.anode_angle_deg,
             ripple_percent=row.ripple_percent,
             filters=filters,
-            support=_patient_support(row, row.tube_side or "above"),
+            support=room_patient_support(row, row.tube_side or "above"),
             calibration=calibration,
         )
     if calibration is None:

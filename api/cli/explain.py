@@ -148,7 +148,7 @@ def _print(data: dict[str, Any]) -> None:
     )
     mammo = data.get("mammography")
     if mammo is not None:
-        rows += (("mean glandular dose (AGD)", mammo["reported_mgd_mgy"], mammo["mgd_mgy"], "mGy"),)
+        rows += (("mean glandular dose (MGD)", mammo["reported_mgd_mgy"], mammo["mgd_mgy"], "mGy"),)
     for name, reported, recon, unit in rows:
         ratio = reported / recon if reported and recon else None
         table.add_row(name, _fmt(reported), _fmt(recon), _fmt(ratio), unit)

@@ -3,11 +3,18 @@
 from __future__ import annotations
 
 from pathlib import Path
-from typing import Annotated, Any
+from typing import TYPE_CHECKING, Annotated, Any
 
 import typer
 
 from beamaudit.api.cli._common import console, fail
+
+if TYPE_CHECKING:
+    from beamaudit.api.cli._store import OpenStore
+    from beamaudit.api.intake.spool_worker import SpoolWorkerProcess
+    from beamaudit.api.intake.spooling import Spool
+    from beamaudit.api.settings import ListenerSettings, Settings
+    from beamaudit.ingest.listener import Listener, ListenerConfig
 
 __all__ = ["register"]
 
@@ -36,33 +43,17 @@ def listen_command(
     from beamaudit.api.cli.scan import pseudonym_key
     from beamaudit.api.intake.pipeline import Pipeline
     from beamaudit.api.intake.postprocess import Completion
-    from beamaudit.api.intake.spool_worker import SpoolWorkerProcess
     from beamaudit.api.intake.spooling import Spool, SpoolError, make_spooling_handler, spool_path
     from beamaudit.api.logs import configure_logging
     from beamaudit.ingest.errors import IngestError
-    from beamaudit.ingest.listener import ListenerConfig, start_listener
+    from beamaudit.ingest.listener import start_listener
     from beamaudit.ingest.pseudonym import Pseudonymiser
 
     configure_logging(logging.INFO)  # associations and stored objects, for the operator
     store = open_store(ctx)
     cfg = store.settings.listener
-    allowed = allow or cfg.allowed_calling_aets
     try:
-        config = ListenerConfig(
-            ae_title=ae_title or cfg.ae_title,
-            host=host or cfg.host,
-            port=port or cfg.port,
-            allowed_calling_aets=frozenset(allowed) if allowed else None,
-            max_associations=cfg.max_associations,
-            max_associations_per_ae=min(cfg.max_associations_per_ae, cfg.max_associations),
-            max_connections=cfg.max_connections,
-            max_objects_in_flight=cfg.max_objects_in_flight,
-            max_object_bytes=cfg.max_object_bytes,
-            request_timeout_s=cfg.request_timeout_s,
-            network_timeout_s=cfg.idle_timeout_s,
-            association_timeout_s=cfg.association_timeout_s,
-            decode_values=False,  # the spool's worker parses; what it cannot use is recorded
-        )
+        config = _listener_config(cfg, ae_title=ae_title, host=host, port=port, allow=allow)
         spool = Spool(
             spool_path(listen_spool_dir(store.settings), store.settings.database_url, config.port),
             synchronous=cfg.spool_synchronous,
@@ -81,40 +72,10 @@ def listen_command(
             )
         listener = start_listener(config, handler)
         # started once the port is ours; it parses and stores in a process of its own
-        worker = SpoolWorkerProcess(
-            {
-                "spool": str(spool.path),
-                "synchronous": cfg.spool_synchronous,
-                "database_url": store.settings.database_url,
-                "key": key.hex(),
-                "size_quiet_s": cfg.size_quiet_s,
-                "max_spooled": cfg.max_spooled,
-                "log_format": _log_format(),
-            }
-        )
+        worker = _start_spool_worker(store.settings, spool, key)
     except (IngestError, SpoolError) as exc:
         fail(exc.reason if isinstance(exc, IngestError) else str(exc))
-    metrics = store.settings.metrics
-    if metrics.enabled and metrics.listener_bind:
-        from beamaudit.api.web.metrics import (
-            AssociationCounter,
-            collector,
-            spooled_family,
-            start_metrics_server,
-        )
-
-        counter = AssociationCounter()
-        counter.bind(listener)
-        try:
-            start_metrics_server(
-                metrics.listener_bind,
-                collector(store.sessions, counter.family, spooled_family(spool)),
-            )
-        except OSError as exc:
-            listener.stop()
-            worker.close()
-            fail(f"cannot serve /metrics on {metrics.listener_bind}: {exc.strerror or exc}")
-        console.print(f"metrics on http://{metrics.listener_bind}/metrics", highlight=False)
+    _serve_listener_metrics(store, listener, worker, spool)
     console.print(
         f"listening as {config.ae_title} on {listener.address[0]}:{listener.port} "
         f"(database: {store.settings.backend}); Ctrl-C stops",
@@ -127,6 +88,82 @@ def listen_command(
         # waiting for their quiet time are sized
         worker.close()
         spool.close()
+
+
+def _listener_config(
+    cfg: ListenerSettings,
+    *,
+    ae_title: str | None,
+    host: str | None,
+    port: int | None,
+    allow: list[str] | None,
+) -> ListenerConfig:
+    """The listener's configuration: the command's options over the ``listener`` settings."""
+    from beamaudit.ingest.listener import ListenerConfig
+
+    allowed = allow or cfg.allowed_calling_aets
+    return ListenerConfig(
+        ae_title=ae_title or cfg.ae_title,
+        host=host or cfg.host,
+        port=port or cfg.port,
+        allowed_calling_aets=frozenset(allowed) if allowed else None,
+        max_associations=cfg.max_associations,
+        max_associations_per_ae=min(cfg.max_associations_per_ae, cfg.max_associations),
+        max_connections=cfg.max_connections,
+        max_objects_in_flight=cfg.max_objects_in_flight,
+        max_object_bytes=cfg.max_object_bytes,
+        request_timeout_s=cfg.request_timeout_s,
+        network_timeout_s=cfg.idle_timeout_s,
+        association_timeout_s=cfg.association_timeout_s,
+        decode_values=False,  # the spool's worker parses; what it cannot use is recorded
+    )
+
+
+def _start_spool_worker(settings: Settings, spool: Spool, key: bytes) -> SpoolWorkerProcess:
+    """Start the process that parses and stores what the listener spooled."""
+    from beamaudit.api.intake.spool_worker import SpoolWorkerProcess
+
+    cfg = settings.listener
+    return SpoolWorkerProcess(
+        {
+            "spool": str(spool.path),
+            "synchronous": cfg.spool_synchronous,
+            "database_url": settings.database_url,
+            "key": key.hex(),
+            "size_quiet_s": cfg.size_quiet_s,
+            "max_spooled": cfg.max_spooled,
+            "log_format": _log_format(),
+        }
+    )
+
+
+def _serve_listener_metrics(
+    store: OpenStore, listener: Listener, worker: SpoolWorkerProcess, spool: Spool
+) -> None:
+    """Serve ``/metrics`` for the listener when the settings ask for it; a port we cannot bind
+    stops the listener and its worker with a one-line error."""
+    metrics = store.settings.metrics
+    if not (metrics.enabled and metrics.listener_bind):
+        return
+    from beamaudit.api.web.metrics import (
+        AssociationCounter,
+        collector,
+        spooled_family,
+        start_metrics_server,
+    )
+
+    counter = AssociationCounter()
+    counter.bind(listener)
+    try:
+        start_metrics_server(
+            metrics.listener_bind,
+            collector(store.sessions, counter.family, spooled_family(spool)),
+        )
+    except OSError as exc:
+        listener.stop()
+        worker.close()
+        fail(f"cannot serve /metrics on {metrics.listener_bind}: {exc.strerror or exc}")
+    console.print(f"metrics on http://{metrics.listener_bind}/metrics", highlight=False)
 
 
 def _log_format() -> str:
@@ -144,11 +181,7 @@ def listen_spool_dir(settings: Any) -> Path:
     pseudonymisation key (a PostgreSQL store, an in-memory SQLite database)."""
     if settings.listener.spool_dir is not None:
         return Path(settings.listener.spool_dir)
-    url = str(settings.database_url)
-    database = url.removeprefix("sqlite:///").split("?", 1)[0]
-    if url.startswith("sqlite:///") and database and database != ":memory:":
-        return Path(database).resolve().parent
-    return Path(settings.secret_key_path).resolve().parent
+    return Path(settings.store_folder())
 
 
 def register(app: typer.Typer) -> None:

@@ -104,6 +104,8 @@ def _print_summary(summary, recon) -> None:
         f"DICOMDIR indexes skipped {summary.skipped}; rejected {len(summary.errors)}",
         highlight=False,
     )
+    for path in summary.store_files_skipped:
+        console.print(f"not read: {path} (this store's own database file)", markup=False)
     console.print(
         f"reconstructed {recon.reconstructed}; without technique {recon.no_technique}; "
         f"model failures {recon.failed}",

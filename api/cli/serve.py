@@ -79,7 +79,10 @@ def serve_command(
             fail(f"cannot serve /metrics on {settings.metrics.bind}: {exc.strerror or exc}")
         console.print(f"metrics on http://{settings.metrics.bind}/metrics", highlight=False)
     if n_workers == 1:
+        from beamaudit.api.web.app import warm_up_model
+
         app = create_app(settings, engine=engine)
+        warm_up_model()
         config = uvicorn.Config(app, host=host, port=port, log_level="info")
     else:
         # each worker process makes the app from the same settings (its own engine and pool)

@@ -16,7 +16,9 @@ The CT and fluoroscopy outliers of :data:`beamaudit.api.demo.plants.PLANTED` are
 from __future__ import annotations
 
 import math
+from dataclasses import dataclass
 from datetime import date, datetime, timedelta
+from typing import NamedTuple
 
 import numpy as np
 
@@ -286,6 +288,25 @@ _ABC_MAX_FACTOR = 1.3  # tube current limit of pulsed fluoroscopy, relative to t
 _METER_SPREAD = 0.03
 
 
+@dataclass(frozen=True)
+class _Beam:
+    """Technique and geometry that one fluoroscopy study keeps throughout."""
+
+    protocol: FluoroProtocol
+    size: float  # patient weight over the standard weight
+    kv: float
+    ma: float
+    sid_mm: float
+    field_mm: tuple[float, float]
+
+
+class _Timeline(NamedTuple):
+    """A study's events in order, and the clock after the last."""
+
+    events: list[FluoroEvent]
+    clock: datetime
+
+
 class _Fluoro:
     def __init__(self, room: RoomSpec, ctx: SimulationContext) -> None:
         self.room = room
@@ -364,28 +385,17 @@ class _Fluoro:
         fluoro_time_s: float | None = None,
         spots: int | None = None,
     ) -> FluoroStudy:
+        """One examination: pulsed fluoroscopy runs, each followed by its share of the spot
+        images, at the technique and geometry of one patient (``fluoro_time_s`` and ``spots``
+        fix what is otherwise drawn)."""
         room, rng, ctx = self.room, self.rng, self.ctx
         patient = ctx.patients.patient(day, age_mean_y=room.age_mean_y, age_sd_y=room.age_sd_y)
         accession = f"HB{day:%Y%m%d}6{seq:02d}"
         study_uid = ctx.uids.uid("study", room.key, accession)
         start = at(day, hour)
         size = patient.weight_kg / STANDARD_WEIGHT_KG
-        kv = float(round(np.clip(protocol.kv_ref * size**0.25, 65.0, 110.0)))
-        # automatic brightness control, up to the generator's pulsed-fluoroscopy limit
-        ma = protocol.ma_ref * min(size**1.5, _ABC_MAX_FACTOR)
-        ma *= math.exp(rng.normal(0.0, _FLUORO_SPREAD))
-        total_s = fluoro_time_s
-        if total_s is None:
-            total_s = protocol.fluoro_time_median_s * math.exp(
-                rng.normal(0.0, protocol.fluoro_time_sigma)
-            )
-            total_s = float(
-                np.clip(
-                    total_s,
-                    0.5 * protocol.fluoro_time_median_s,
-                    1.5 * protocol.fluoro_time_median_s,
-                )
-            )
+        kv, ma = self._abc_technique(protocol, size)
+        total_s = self._fluoro_time_s(protocol) if fluoro_time_s is None else fluoro_time_s
         n_runs = int(rng.integers(protocol.runs[0], protocol.runs[1] + 1))
         n_spots = (
             spots
@@ -393,6 +403,48 @@ class _Fluoro:
             else int(rng.integers(protocol.spots[0], protocol.spots[1] + 1))
         )
         run_times = rng.dirichlet(np.full(n_runs, 3.0)) * total_s
+        sid, field = self._geometry(protocol, size)
+        beam = _Beam(protocol, size=size, kv=kv, ma=ma, sid_mm=sid, field_mm=field)
+        events = self._events(study_uid, start + timedelta(minutes=2), beam, run_times, n_spots)
+        return FluoroStudy(
+            room=room.key,
+            study_uid=study_uid,
+            accession=accession,
+            patient=patient,
+            start=start,
+            end=events.clock + timedelta(minutes=1),
+            exam_type=protocol.exam_type,
+            study_description=protocol.study_description,
+            protocol_name=protocol.protocol_name,
+            target_region=protocol.target_region,
+            weight_recorded=bool(rng.random() < room.weight_recorded_fraction),
+            report_sop_uid=ctx.uids.uid("report", study_uid),
+            report_series_uid=ctx.uids.uid("report-series", study_uid),
+            events=events.events,
+        )
+
+    def _abc_technique(self, protocol: FluoroProtocol, size: float) -> tuple[float, float]:
+        """Tube voltage and current that automatic brightness control sets for a patient of
+        ``size`` times the standard weight: ``kV = kV_ref size**0.25`` (65-110 kV, whole kV) and
+        ``mA = mA_ref min(size**1.5, _ABC_MAX_FACTOR)`` with a spread, up to the generator's
+        pulsed-fluoroscopy limit (invented scalings of the usual shape)."""
+        kv = float(round(np.clip(protocol.kv_ref * size**0.25, 65.0, 110.0)))
+        ma = protocol.ma_ref * min(size**1.5, _ABC_MAX_FACTOR)
+        ma *= math.exp(self.rng.normal(0.0, _FLUORO_SPREAD))
+        return kv, ma
+
+    def _fluoro_time_s(self, protocol: FluoroProtocol) -> float:
+        """Total fluoroscopy time: log-normal about the protocol's median, kept within half and
+        one and a half times it."""
+        median = protocol.fluoro_time_median_s
+        total_s = median * math.exp(self.rng.normal(0.0, protocol.fluoro_time_sigma))
+        return float(np.clip(total_s, 0.5 * median, 1.5 * median))
+
+    def _geometry(self, protocol: FluoroProtocol, size: float) -> tuple[float, tuple[float, float]]:
+        """Source to image distance and field (mm) of one study: the under-couch tube, the
+        tabletop, the patient (``230 mm size**0.5``, invented) and the detector clearance, with
+        the operator's spread."""
+        rng = self.rng
         thickness = 230.0 * size**0.5
         sid = float(
             round(
@@ -407,68 +459,75 @@ class _Fluoro:
             round(protocol.field_cm[0] * 10.0 * math.exp(rng.normal(0.0, 0.05))),
             round(protocol.field_cm[1] * 10.0 * math.exp(rng.normal(0.0, 0.05))),
         )
-        # interleave: each run is followed by its share of the spot images
-        spots_after = np.array_split(np.arange(n_spots), n_runs)
+        return sid, field
+
+    def _events(
+        self,
+        study_uid: str,
+        clock: datetime,
+        beam: _Beam,
+        run_times: np.ndarray,
+        n_spots: int,
+    ) -> _Timeline:
+        """The study's events from ``clock`` on: each run is followed by its share of the spot
+        images (20 s after a run, 15 s after a spot)."""
+        spots_after = np.array_split(np.arange(n_spots), len(run_times))
         events: list[FluoroEvent] = []
-        clock = start + timedelta(minutes=2)
         for run, run_s in enumerate(run_times):
-            pulses = max(1, round(run_s * protocol.pulse_rate_per_s))
-            time_ms = pulses * protocol.pulse_width_ms
-            events.append(
-                self._event(
-                    study_uid,
-                    len(events),
-                    clock,
-                    fluoroscopy=True,
-                    kv=kv,
-                    ma=ma,
-                    mas=ma * time_ms / 1000.0,
-                    time_ms=time_ms,
-                    duration_s=float(run_s),
-                    pulses=pulses,
-                    protocol=protocol,
-                    sid=sid,
-                    field_mm=field,
-                )
-            )
+            events.append(self._run_event(study_uid, len(events), clock, beam, float(run_s)))
             clock += timedelta(seconds=float(run_s) + 20.0)
             for _ in spots_after[run]:
-                spot_mas = protocol.spot_mas * min(size**1.5, _ABC_MAX_FACTOR)
-                spot_mas *= math.exp(rng.normal(0.0, 0.1))
-                spot_ms = spot_mas / _SPOT_MA * 1000.0
-                events.append(
-                    self._event(
-                        study_uid,
-                        len(events),
-                        clock,
-                        fluoroscopy=False,
-                        kv=kv + 3.0,
-                        ma=_SPOT_MA,
-                        mas=spot_mas,
-                        time_ms=spot_ms,
-                        duration_s=spot_ms / 1000.0,
-                        pulses=None,
-                        protocol=protocol,
-                        sid=sid,
-                        field_mm=field,
-                    )
-                )
+                events.append(self._spot_event(study_uid, len(events), clock, beam))
                 clock += timedelta(seconds=15.0)
-        return FluoroStudy(
-            room=room.key,
-            study_uid=study_uid,
-            accession=accession,
-            patient=patient,
-            start=start,
-            end=clock + timedelta(minutes=1),
-            exam_type=protocol.exam_type,
-            study_description=protocol.study_description,
-            protocol_name=protocol.protocol_name,
-            target_region=protocol.target_region,
-            weight_recorded=bool(rng.random() < room.weight_recorded_fraction),
-            report_sop_uid=ctx.uids.uid("report", study_uid),
-            report_series_uid=ctx.uids.uid("report-series", study_uid),
-            events=events,
+        return _Timeline(events, clock)
+
+    def _run_event(
+        self, study_uid: str, index: int, started: datetime, beam: _Beam, run_s: float
+    ) -> FluoroEvent:
+        """One pulsed fluoroscopy run of ``run_s`` seconds: ``pulses = max(1, round(run_s
+        rate))``, beam-on time ``pulses * pulse width``, charge ``mA * time``."""
+        protocol = beam.protocol
+        pulses = max(1, round(run_s * protocol.pulse_rate_per_s))
+        time_ms = pulses * protocol.pulse_width_ms
+        return self._event(
+            study_uid,
+            index,
+            started,
+            fluoroscopy=True,
+            kv=beam.kv,
+            ma=beam.ma,
+            mas=beam.ma * time_ms / 1000.0,
+            time_ms=time_ms,
+            duration_s=run_s,
+            pulses=pulses,
+            protocol=protocol,
+            sid=beam.sid_mm,
+            field_mm=beam.field_mm,
+        )
+
+    def _spot_event(
+        self, study_uid: str, index: int, started: datetime, beam: _Beam
+    ) -> FluoroEvent:
+        """One spot image at 3 kV above fluoroscopy and ``_SPOT_MA``: the protocol's charge
+        scaled as the fluoroscopy current (``min(size**1.5, _ABC_MAX_FACTOR)``), with a spread."""
+        protocol = beam.protocol
+        spot_mas = protocol.spot_mas * min(beam.size**1.5, _ABC_MAX_FACTOR)
+        spot_mas *= math.exp(self.rng.normal(0.0, 0.1))
+        spot_ms = spot_mas / _SPOT_MA * 1000.0
+        return self._event(
+            study_uid,
+            index,
+            started,
+            fluoroscopy=False,
+            kv=beam.kv + 3.0,
+            ma=_SPOT_MA,
+            mas=spot_mas,
+            time_ms=spot_ms,
+            duration_s=spot_ms / 1000.0,
+            pulses=None,
+            protocol=protocol,
+            sid=beam.sid_mm,
+            field_mm=beam.field_mm,
         )
 
     def outlier(self, outlier: OutlierPlan) -> FluoroStudy:

@@ -23,7 +23,13 @@ from beamaudit.api.demo.interventional import INTERVENTIONAL_PLANTS
 from beamaudit.api.demo.manifest import PlantedFinding
 from beamaudit.api.demo.plants import OutlierPlan
 from beamaudit.api.demo.radiography import RadiographyPlan
-from beamaudit.api.demo.records import CtStudy, FluoroStudy, Patient, RadiographStudy
+from beamaudit.api.demo.records import (
+    CtStudy,
+    FluoroStudy,
+    Patient,
+    RadiographStudy,
+    RadiographView,
+)
 from beamaudit.api.demo.scenario import RoomSpec
 from beamaudit.api.review.run import ReviewParameters
 
@@ -198,35 +204,74 @@ def _finding(gen: Generated, room_key: str | None, **fields_: Any) -> PlantedFin
     )
 
 
-def _dap_ratio(gen: Generated, dates: RadiographyPlan) -> list[PlantedFinding]:
-    plan = dates.plan
-    room = gen.rooms[plan.dap_meter_room]
-    tolerance = design_parameters()["dap_ratio_tolerance"]
-    before: list[float] = []
-    after: list[float] = []
-    monthly: dict[str, list[float]] = defaultdict(list)
-    standard_dap: dict[tuple[str, str], list[float]] = defaultdict(list)
-    for s in gen.radiography[room.key]:
+@dataclass
+class _MeterRoom:
+    """The DAP meter room's records the fault is measured on: reported over delivered DAP of
+    the views whose technique is recorded (before and from the fault's day, and by month), and
+    the reported DAP of standard-size patients by exam type and month."""
+
+    tolerance: float
+    before: list[float] = field(default_factory=list)
+    after: list[float] = field(default_factory=list)
+    monthly: dict[str, list[float]] = field(default_factory=lambda: defaultdict(list))
+    standard_dap: dict[tuple[str, str], list[float]] = field(
+        default_factory=lambda: defaultdict(list)
+    )
+
+    def by_month(self) -> dict[str, Any]:
+        return _by_month(self.monthly)
+
+    def months_outside(self) -> list[str]:
+        """Months whose median ratio is further from 1 than the review's tolerance."""
+        return [m for m, r in self.by_month().items() if abs(r["median"] - 1.0) > self.tolerance]
+
+    def exam_types_with_full_series(self) -> list[str]:
+        """Exam types with enough standard-size patients in every month for a change-point."""
+        minimum = design_parameters()["minimum_samples"]["radiography"]
+        months = sorted(self.monthly)
+        exam_types = sorted({e for e, _ in self.standard_dap})
+        return [
+            e
+            for e in exam_types
+            if all(len(self.standard_dap.get((e, m), [])) >= minimum for m in months)
+        ]
+
+
+def _meter_room(gen: Generated, dates: RadiographyPlan) -> _MeterRoom:
+    """Reported over delivered DAP, ``DAP_reported / DAP_true``, of every dose-recorded view of
+    the DAP meter room, and its standard-size reported DAP."""
+    found = _MeterRoom(tolerance=design_parameters()["dap_ratio_tolerance"])
+    for s in gen.radiography[dates.plan.dap_meter_room]:
         std = _standard(s.patient, s.weight_recorded)
         for v in s.views:
             if v.exam_type is None or not v.dose_recorded:
                 continue
+            month = _month(v.acquired.date())
             if std:
-                standard_dap[(v.exam_type, _month(v.acquired.date()))].append(v.dap_reported_gy_cm2)
+                found.standard_dap[(v.exam_type, month)].append(v.dap_reported_gy_cm2)
             if not v.technique_recorded:
                 continue
             ratio = v.dap_reported_gy_cm2 / v.dap_true_gy_cm2
-            (after if v.acquired.date() >= dates.meter_date else before).append(ratio)
-            monthly[_month(v.acquired.date())].append(ratio)
-    by_month = _by_month(monthly)
-    outside = [m for m, r in by_month.items() if abs(r["median"] - 1.0) > tolerance]
-    months = sorted(monthly)
-    minimum = design_parameters()["minimum_samples"]["radiography"]
-    exam_types = sorted({e for e, _ in standard_dap})
-    stepping = [
-        e for e in exam_types if all(len(standard_dap.get((e, m), [])) >= minimum for m in months)
+            (found.after if v.acquired.date() >= dates.meter_date else found.before).append(ratio)
+            found.monthly[month].append(ratio)
+    return found
+
+
+def _dap_ratio(gen: Generated, dates: RadiographyPlan) -> list[PlantedFinding]:
+    """The DAP meter fault, and the steps it makes in the room's monthly medians."""
+    meter_room = _meter_room(gen, dates)
+    return [
+        _dap_meter_fault(gen, dates, meter_room),
+        _dap_ratio_step(gen, dates, meter_room),
+        _reported_dap_steps(gen, dates, meter_room),
     ]
-    main = _finding(
+
+
+def _dap_meter_fault(gen: Generated, dates: RadiographyPlan, found: _MeterRoom) -> PlantedFinding:
+    """The fault itself: the room reports a constant multiple of the DAP it delivers."""
+    plan = dates.plan
+    room = gen.rooms[plan.dap_meter_room]
+    return _finding(
         gen,
         room.key,
         id="dap_meter_fault",
@@ -244,16 +289,22 @@ def _dap_ratio(gen: Generated, dates: RadiographyPlan) -> list[PlantedFinding]:
         ),
         expected={
             "planted_factor": plan.dap_meter_factor,
-            "tolerance": tolerance,
-            "months_outside_tolerance": outside,
-            "reported_to_true_before": {"n": len(before), "median": _median(before)},
-            "reported_to_true_after": {"n": len(after), "median": _median(after)},
-            "reported_to_true_by_month": by_month,
+            "tolerance": found.tolerance,
+            "months_outside_tolerance": found.months_outside(),
+            "reported_to_true_before": {"n": len(found.before), "median": _median(found.before)},
+            "reported_to_true_after": {"n": len(found.after), "median": _median(found.after)},
+            "reported_to_true_by_month": found.by_month(),
             "note": "true = the DAP the room delivered, what a calibrated reconstruction should "
             "find within the model's uncertainty; RAD 1's QA measurements must be loaded",
         },
     )
-    ratio_step = _finding(
+
+
+def _dap_ratio_step(gen: Generated, dates: RadiographyPlan, found: _MeterRoom) -> PlantedFinding:
+    """The step of the monthly median DAP ratio, a change-point the review may find."""
+    room = gen.rooms[dates.plan.dap_meter_room]
+    outside = found.months_outside()
+    return _finding(
         gen,
         room.key,
         id="dap_meter_fault_ratio_step",
@@ -263,13 +314,22 @@ def _dap_ratio(gen: Generated, dates: RadiographyPlan) -> list[PlantedFinding]:
         date=f"{outside[0]}-01" if outside else None,
         month=outside[0] if outside else None,
         description=f"the monthly median DAP ratio of {room.name} steps up by the meter fault",
-        expected={"direction": "up", "by_month": by_month},
+        expected={"direction": "up", "by_month": found.by_month()},
         consequence_of="dap_meter_fault",
         # with one month before the fault, a CUSUM baseline of two months straddles the step and
         # may stay below its alarm; the fault itself is the required dap_ratio finding
         required=False,
     )
-    dap_steps = _finding(
+
+
+def _reported_dap_steps(
+    gen: Generated, dates: RadiographyPlan, found: _MeterRoom
+) -> PlantedFinding:
+    """The step of the reported-DAP medians, a change-point the review may find where every
+    month has enough standard-size patients."""
+    room = gen.rooms[dates.plan.dap_meter_room]
+    stepping = found.exam_types_with_full_series()
+    return _finding(
         gen,
         room.key,
         id="dap_meter_fault_reported_dap_steps",
@@ -285,18 +345,17 @@ def _dap_ratio(gen: Generated, dates: RadiographyPlan) -> list[PlantedFinding]:
         ),
         expected={
             "direction": "up",
-            "factor": plan.dap_meter_factor,
+            "factor": dates.plan.dap_meter_factor,
             "exam_types_with_full_monthly_series": stepping,
             "monthly_standard_median_dap_gy_cm2": {
                 f"{e} {m}": {"n": len(vs), "median": _median(vs)}
-                for (e, m), vs in sorted(standard_dap.items())
+                for (e, m), vs in sorted(found.standard_dap.items())
                 if e in stepping
             },
         },
         consequence_of="dap_meter_fault",
         required=False,
     )
-    return [main, ratio_step, dap_steps]
 
 
 def _changed_program_dap(
@@ -419,80 +478,38 @@ def _strictest_ratio(
     }
 
 
+@dataclass
+class _OutlierStudy:
+    """Where one planted outlier is and what it holds: its values against the levels, the
+    details the manifest lists, and the findings that follow from it."""
+
+    study_uid: str
+    sop_uids: list[str]
+    day: date
+    values: dict[str, dict[str, Any]]
+    details: dict[str, Any]
+    consequences: list[PlantedFinding] = field(default_factory=list)
+
+
 def _outlier(gen: Generated, outlier: OutlierPlan, ctx: SimulationContext) -> list[PlantedFinding]:
-    numbers: dict[str, Any] = {"target_ratio": outlier.target_ratio}
-    extra: list[PlantedFinding] = []
-    values: dict[str, dict[str, Any]] = {}
+    """One planted outlier far above its levels, and what follows from it."""
     if outlier.room in gen.radiography:
-        study = next(s for s in gen.radiography[outlier.room] if outlier.key in s.planted)
-        view = next(v for v in study.views if _OUTLIER_TAG in v.planted)
-        study_uid, sops, day = study.study_uid, [view.sop_uid], view.acquired.date()
-        values["dap_gy_cm2"] = _strictest_ratio(
-            ctx, outlier.exam_type, "dap_gy_cm2", day, view.dap_reported_gy_cm2
-        )
-        # the reconstructed ESAK is at least the incident air kerma (backscatter factor > 1)
-        kai = (
-            view.output_ugy_per_mas_1m
-            * view.exposure_mas
-            * (1000.0 / view.source_to_entrance_mm) ** 2
-            / 1000.0
-        )
-        values["esak_mgy"] = _strictest_ratio(ctx, outlier.exam_type, "esak_mgy", day, kai)
-        values["esak_mgy"]["note"] = "value = incident air kerma, a lower bound of the ESAK"
-        numbers.update(
-            accession=study.accession,
-            event_uid=view.event_uid,
-            exposure_mas=view.exposure_mas,
-            kvp_kv=view.kvp_kv,
-        )
-        di = round(view.deviation_index or 0.0, 1)
-        extra.append(
-            _finding(
-                gen,
-                outlier.room,
-                id=f"{outlier.key}_deviation_index",
-                kind="deviation_index_out_of_range",
-                exam_type=outlier.exam_type,
-                quantity=None,
-                date=day.isoformat(),
-                month=_month(day),
-                description=f"the same exposure overexposed the detector: DI {di:+.1f}",
-                expected={"deviation_index": di, "event_uid": view.event_uid},
-                study_instance_uids=[study_uid],
-                sop_instance_uids=sops,
-                paths=[gen.paths[s] for s in sops],
-                consequence_of=outlier.key,
-            )
-        )
+        found = _outlier_radiograph(gen, outlier, ctx)
     elif outlier.room in gen.ct:
-        ct = next(s for s in gen.ct[outlier.room] if outlier.key in s.planted)
-        study_uid, day = ct.study_uid, ct.start.date()
-        sops = [ct.report_sop_uid] + [a.image_sop_uid for a in ct.acquisitions if a.image_sop_uid]
-        values["dlp_mgy_cm"] = _strictest_ratio(
-            ctx, outlier.exam_type, "dlp_mgy_cm", day, ct.dlp_total_mgy_cm
-        )
-        values["ctdivol_mgy"] = _strictest_ratio(
-            ctx, outlier.exam_type, "ctdivol_mgy", day, ct.ctdivol_max_mgy
-        )
-        numbers.update(accession=ct.accession, acquisitions=len(ct.acquisitions))
+        found = _outlier_ct(gen, outlier, ctx)
     else:
-        fl = next(s for s in gen.fluoro[outlier.room] if outlier.key in s.planted)
-        study_uid, day, sops = fl.study_uid, fl.start.date(), [fl.report_sop_uid]
-        values["dap_gy_cm2"] = _strictest_ratio(
-            ctx, outlier.exam_type, "dap_gy_cm2", day, fl.dap_total_reported_gy_cm2
-        )
-        values["reference_point_air_kerma_mgy"] = _strictest_ratio(
-            ctx, outlier.exam_type, "reference_point_air_kerma_mgy", day, fl.rp_total_reported_mgy
-        )
-        fluoro_s = sum(e.duration_s for e in fl.events if e.fluoroscopy)
-        numbers.update(accession=fl.accession, fluoro_time_s=round(fluoro_s, 1))
+        found = _outlier_fluoro(gen, outlier, ctx)
     multiple = design_parameters()["investigation_multiple"]
-    numbers["values"] = values
-    numbers["quantities_above_investigation_level"] = sorted(
-        q
-        for q, v in values.items()
-        if v["ratio_to_strictest"] and v["ratio_to_strictest"] > multiple
-    )
+    numbers = {
+        "target_ratio": outlier.target_ratio,
+        **found.details,
+        "values": found.values,
+        "quantities_above_investigation_level": sorted(
+            q
+            for q, v in found.values.items()
+            if v["ratio_to_strictest"] and v["ratio_to_strictest"] > multiple
+        ),
+    }
     main = _finding(
         gen,
         outlier.room,
@@ -500,15 +517,123 @@ def _outlier(gen: Generated, outlier: OutlierPlan, ctx: SimulationContext) -> li
         kind=_OUTLIER_TAG,
         exam_type=outlier.exam_type,
         quantity=outlier.quantity,
-        date=day.isoformat(),
-        month=_month(day),
+        date=found.day.isoformat(),
+        month=_month(found.day),
         description=outlier.story,
         expected=numbers,
-        study_instance_uids=[study_uid],
-        sop_instance_uids=sops,
-        paths=[gen.paths[s] for s in sops],
+        study_instance_uids=[found.study_uid],
+        sop_instance_uids=found.sop_uids,
+        paths=[gen.paths[s] for s in found.sop_uids],
     )
-    return [main, *extra]
+    return [main, *found.consequences]
+
+
+def _outlier_radiograph(
+    gen: Generated, outlier: OutlierPlan, ctx: SimulationContext
+) -> _OutlierStudy:
+    """The overexposed view: its reported DAP and, as a lower bound of the reconstructed ESAK
+    (the backscatter factor is above 1), its incident air kerma
+    ``K_a,i = Y(kV) * mAs * (1000 mm / d_entrance)**2`` (inverse square law; ``Y`` in µGy/mAs
+    at 1 m, ``K_a,i`` in mGy)."""
+    study = next(s for s in gen.radiography[outlier.room] if outlier.key in s.planted)
+    view = next(v for v in study.views if _OUTLIER_TAG in v.planted)
+    day = view.acquired.date()
+    kai = (
+        view.output_ugy_per_mas_1m
+        * view.exposure_mas
+        * (1000.0 / view.source_to_entrance_mm) ** 2
+        / 1000.0
+    )
+    values = {
+        "dap_gy_cm2": _strictest_ratio(
+            ctx, outlier.exam_type, "dap_gy_cm2", day, view.dap_reported_gy_cm2
+        ),
+        "esak_mgy": _strictest_ratio(ctx, outlier.exam_type, "esak_mgy", day, kai),
+    }
+    values["esak_mgy"]["note"] = "value = incident air kerma, a lower bound of the ESAK"
+    return _OutlierStudy(
+        study_uid=study.study_uid,
+        sop_uids=[view.sop_uid],
+        day=day,
+        values=values,
+        details={
+            "accession": study.accession,
+            "event_uid": view.event_uid,
+            "exposure_mas": view.exposure_mas,
+            "kvp_kv": view.kvp_kv,
+        },
+        consequences=[_outlier_deviation_index(gen, outlier, study, view)],
+    )
+
+
+def _outlier_deviation_index(
+    gen: Generated, outlier: OutlierPlan, study: RadiographStudy, view: RadiographView
+) -> PlantedFinding:
+    """The outlier view's detector overexposure, a consequence of its charge."""
+    day = view.acquired.date()
+    di = round(view.deviation_index or 0.0, 1)
+    return _finding(
+        gen,
+        outlier.room,
+        id=f"{outlier.key}_deviation_index",
+        kind="deviation_index_out_of_range",
+        exam_type=outlier.exam_type,
+        quantity=None,
+        date=day.isoformat(),
+        month=_month(day),
+        description=f"the same exposure overexposed the detector: DI {di:+.1f}",
+        expected={"deviation_index": di, "event_uid": view.event_uid},
+        study_instance_uids=[study.study_uid],
+        sop_instance_uids=[view.sop_uid],
+        paths=[gen.paths[view.sop_uid]],
+        consequence_of=outlier.key,
+    )
+
+
+def _outlier_ct(gen: Generated, outlier: OutlierPlan, ctx: SimulationContext) -> _OutlierStudy:
+    """The CT study's total DLP and largest CTDIvol against their levels."""
+    ct = next(s for s in gen.ct[outlier.room] if outlier.key in s.planted)
+    day = ct.start.date()
+    return _OutlierStudy(
+        study_uid=ct.study_uid,
+        sop_uids=[ct.report_sop_uid]
+        + [a.image_sop_uid for a in ct.acquisitions if a.image_sop_uid],
+        day=day,
+        values={
+            "dlp_mgy_cm": _strictest_ratio(
+                ctx, outlier.exam_type, "dlp_mgy_cm", day, ct.dlp_total_mgy_cm
+            ),
+            "ctdivol_mgy": _strictest_ratio(
+                ctx, outlier.exam_type, "ctdivol_mgy", day, ct.ctdivol_max_mgy
+            ),
+        },
+        details={"accession": ct.accession, "acquisitions": len(ct.acquisitions)},
+    )
+
+
+def _outlier_fluoro(gen: Generated, outlier: OutlierPlan, ctx: SimulationContext) -> _OutlierStudy:
+    """The fluoroscopy study's total DAP and reference-point air kerma against their levels."""
+    fl = next(s for s in gen.fluoro[outlier.room] if outlier.key in s.planted)
+    day = fl.start.date()
+    fluoro_s = sum(e.duration_s for e in fl.events if e.fluoroscopy)
+    return _OutlierStudy(
+        study_uid=fl.study_uid,
+        sop_uids=[fl.report_sop_uid],
+        day=day,
+        values={
+            "dap_gy_cm2": _strictest_ratio(
+                ctx, outlier.exam_type, "dap_gy_cm2", day, fl.dap_total_reported_gy_cm2
+            ),
+            "reference_point_air_kerma_mgy": _strictest_ratio(
+                ctx,
+                outlier.exam_type,
+                "reference_point_air_kerma_mgy",
+                day,
+                fl.rp_total_reported_mgy,
+            ),
+        },
+        details={"accession": fl.accession, "fluoro_time_s": round(fluoro_s, 1)},
+    )
 
 
 def _no_dose(gen: Generated, dates: RadiographyPlan) -> PlantedFinding:
@@ -807,38 +932,108 @@ def quiet_numbers(
     dates: RadiographyPlan,
 ) -> list[dict[str, Any]]:
     """The findings deliberately **not** planted, with the numbers that keep them quiet."""
+    rows = list(medians)
+    return [
+        _quiet_group_above_level(gen, dates, rows),
+        _quiet_low_dose(gen, ctx, dates, rows),
+        {
+            "kind": "exam_above_investigation_level",
+            "reason": "only the planted outliers are far above their levels; the highest healthy "
+            "reported value per quantity is listed against its strictest level (an investigation "
+            "level must lie above these ratios; ESAK is reconstructed and not listed)",
+            "highest_healthy_to_strictest": _highest_healthy(gen, ctx),
+        },
+        _quiet_srdl(gen),
+        _quiet_deviation_index(gen),
+        _quiet_dap_ratio(gen, dates),
+        {
+            "kind": "unknown_exam_type",
+            "reason": "every mapped event's exam type is in the shipped catalogue",
+        },
+    ]
+
+
+#: What the quiet numbers name of a group median row.
+_GROUP_FIELDS = ("room_key", "exam_type", "month", "quantity", "n_standard")
+
+
+def _quiet_group_above_level(
+    gen: Generated, dates: RadiographyPlan, rows: list[dict[str, Any]]
+) -> dict[str, Any]:
+    """The highest standard-size median of any group, per level set, against its level."""
     top: dict[str, dict[str, Any]] = {}
-    lowest: dict[str, Any] = {}
-    minimum = design_parameters()["minimum_samples"]
+    for row in rows:
+        for set_name, ratio in row["median_standard_to_level"].items():
+            if ratio > top.get(set_name, {"ratio": 0.0})["ratio"]:
+                top[set_name] = {"ratio": ratio, **{f: row[f] for f in _GROUP_FIELDS}}
+    return {
+        "kind": "group_above_level",
+        "reason": "no group is planted above a level but the mammography room's CC views "
+        "in the thickness band and the children's chest PA of one weight band: every "
+        "monthly median of every adult radiography, CT and fluoroscopy room and exam type "
+        "stays below each shipped level (the doubled abdomen AP of "
+        f"{gen.rooms[dates.plan.change_room].name} included)",
+        "highest_standard_median_to_level": top,
+    }
+
+
+def _quiet_low_dose(
+    gen: Generated, ctx: SimulationContext, dates: RadiographyPlan, rows: list[dict[str, Any]]
+) -> dict[str, Any]:
+    """The lowest judged standard-size median against its strictest level (the largest of its
+    ratios to the levels), the planted low-dose group left out: the changed program before its
+    change."""
     changed = gen.rooms[dates.plan.change_room]
     assert changed.programs is not None
-    planted_low = {  # the planted low-dose group: the changed program before its change
+    planted_low = {
         (changed.key, changed.programs[dates.plan.change_program].exam_type, m)
         for m in ctx.calendar.labels()
         if m < _month(dates.change_date)
     }
-    for row in medians:
+    minimum = design_parameters()["minimum_samples"].get("radiography", 20)
+    lowest: dict[str, Any] = {}
+    for row in rows:
         strictest = max(row["median_standard_to_level"].values(), default=None)
-        judged = row["n_standard"] >= minimum.get("radiography", 20)
         if (
             strictest is not None
-            and judged
+            and row["n_standard"] >= minimum
             and (row["room_key"], row["exam_type"], row["month"]) not in planted_low
             and strictest < lowest.get("ratio_to_strictest", float("inf"))
         ):
-            lowest = {
-                "ratio_to_strictest": strictest,
-                **{f: row[f] for f in ("room_key", "exam_type", "month", "quantity", "n_standard")},
-            }
-        for set_name, ratio in row["median_standard_to_level"].items():
-            if ratio > top.get(set_name, {"ratio": 0.0})["ratio"]:
-                top[set_name] = {
-                    "ratio": ratio,
-                    **{
-                        f: row[f]
-                        for f in ("room_key", "exam_type", "month", "quantity", "n_standard")
-                    },
-                }
+            lowest = {"ratio_to_strictest": strictest, **{f: row[f] for f in _GROUP_FIELDS}}
+    return {
+        "kind": "low_dose_review",
+        "reason": "no judged group is far below its strictest level but "
+        f"{changed.name}'s abdomen AP before its doubling (planted): the lowest other "
+        "standard-size median is listed "
+        "against its strictest level (the review flags below "
+        f"{design_parameters()['low_dose_fraction']} of it)",
+        "lowest_standard_median_to_strictest": lowest,
+    }
+
+
+def _quiet_srdl(gen: Generated) -> dict[str, Any]:
+    """The largest total DAP, K_a,r and fluoroscopy time of any fluoroscopy study but the
+    interventional room's two planted procedures (findings, not quiet numbers)."""
+    quiet_fluoro = [f for ss in gen.fluoro.values() for f in ss if not _is_skin_plant(f.planted)]
+    fluoro_max = {
+        "dap_gy_cm2": max(f.dap_total_reported_gy_cm2 for f in quiet_fluoro),
+        "reference_point_air_kerma_mgy": max(f.rp_total_reported_mgy for f in quiet_fluoro),
+        "fluoro_time_s": max(
+            sum(e.duration_s for e in f.events if e.fluoroscopy) for f in quiet_fluoro
+        ),
+    }
+    return {
+        "kind": "srdl_exceeded",
+        "reason": "no fluoroscopy study reaches an NCRP 168 substantial radiation dose level "
+        "(500 Gy.cm2, 5000 mGy, 60 min), the planted enema included, but the two planted "
+        "interventional procedures",
+        "largest_study": {k: round(v, 2) for k, v in fluoro_max.items()},
+    }
+
+
+def _quiet_deviation_index(gen: Generated) -> dict[str, Any]:
+    """How the deviation indices of the healthy radiographs spread about 0."""
     di = [
         v.deviation_index
         for ss in gen.radiography.values()
@@ -846,6 +1041,18 @@ def quiet_numbers(
         for v in s.views
         if v.deviation_index is not None and _OUTLIER_TAG not in v.planted
     ]
+    return {
+        "kind": "deviation_index_out_of_range",
+        "reason": "deviation indices of healthy radiographs stay near 0 (AEC, or the "
+        "radiographer's judgement on the R10 mAs scale); only the two radiography outliers "
+        "are outside -3 to +3",
+        "within_plus_minus_1": round(sum(abs(x) <= 1.0 for x in di) / len(di), 4),
+        "largest_absolute": round(max(abs(x) for x in di), 2),
+    }
+
+
+def _quiet_dap_ratio(gen: Generated, dates: RadiographyPlan) -> dict[str, Any]:
+    """Median reported over delivered DAP of every radiography room but the faulty meter's."""
     meter_ratios = {
         key: _median(
             [
@@ -858,65 +1065,9 @@ def quiet_numbers(
         for key, studies in gen.radiography.items()
         if key != dates.plan.dap_meter_room
     }
-    quiet_fluoro = [
-        f for key, ss in gen.fluoro.items() for f in ss if not _is_skin_plant(f.planted)
-    ]  # the interventional room's two planted procedures are findings, not quiet numbers
-    fluoro_max = {
-        "dap_gy_cm2": max(f.dap_total_reported_gy_cm2 for f in quiet_fluoro),
-        "reference_point_air_kerma_mgy": max(f.rp_total_reported_mgy for f in quiet_fluoro),
-        "fluoro_time_s": max(
-            sum(e.duration_s for e in f.events if e.fluoroscopy) for f in quiet_fluoro
-        ),
+    return {
+        "kind": "dap_ratio_out_of_tolerance",
+        "reason": "the other radiography rooms' DAP meters read within a few percent of the "
+        "delivered DAP (reported / true, median over the period)",
+        "reported_to_true_median": meter_ratios,
     }
-    return [
-        {
-            "kind": "group_above_level",
-            "reason": "no group is planted above a level but the mammography room's CC views "
-            "in the thickness band and the children's chest PA of one weight band: every "
-            "monthly median of every adult radiography, CT and fluoroscopy room and exam type "
-            "stays below each shipped level (the doubled abdomen AP of "
-            f"{gen.rooms[dates.plan.change_room].name} included)",
-            "highest_standard_median_to_level": top,
-        },
-        {
-            "kind": "low_dose_review",
-            "reason": "no judged group is far below its strictest level but "
-            f"{changed.name}'s abdomen AP before its doubling (planted): the lowest other "
-            "standard-size median is listed "
-            "against its strictest level (the review flags below "
-            f"{design_parameters()['low_dose_fraction']} of it)",
-            "lowest_standard_median_to_strictest": lowest,
-        },
-        {
-            "kind": "exam_above_investigation_level",
-            "reason": "only the planted outliers are far above their levels; the highest healthy "
-            "reported value per quantity is listed against its strictest level (an investigation "
-            "level must lie above these ratios; ESAK is reconstructed and not listed)",
-            "highest_healthy_to_strictest": _highest_healthy(gen, ctx),
-        },
-        {
-            "kind": "srdl_exceeded",
-            "reason": "no fluoroscopy study reaches an NCRP 168 substantial radiation dose level "
-            "(500 Gy.cm2, 5000 mGy, 60 min), the planted enema included, but the two planted "
-            "interventional procedures",
-            "largest_study": {k: round(v, 2) for k, v in fluoro_max.items()},
-        },
-        {
-            "kind": "deviation_index_out_of_range",
-            "reason": "deviation indices of healthy radiographs stay near 0 (AEC, or the "
-            "radiographer's judgement on the R10 mAs scale); only the two radiography outliers "
-            "are outside -3 to +3",
-            "within_plus_minus_1": round(sum(abs(x) <= 1.0 for x in di) / len(di), 4),
-            "largest_absolute": round(max(abs(x) for x in di), 2),
-        },
-        {
-            "kind": "dap_ratio_out_of_tolerance",
-            "reason": "the other radiography rooms' DAP meters read within a few percent of the "
-            "delivered DAP (reported / true, median over the period)",
-            "reported_to_true_median": meter_ratios,
-        },
-        {
-            "kind": "unknown_exam_type",
-            "reason": "every mapped event's exam type is in the shipped catalogue",
-        },
-    ]

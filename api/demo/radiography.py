@@ -14,6 +14,7 @@ from __future__ import annotations
 import math
 from dataclasses import dataclass
 from datetime import date, timedelta
+from typing import NamedTuple
 
 import numpy as np
 
@@ -75,6 +76,33 @@ def _edges(extent_mm: float, detector_mm: float, spacing_mm: float) -> tuple[int
     return first, first + width_px - 1, width_px * spacing_mm
 
 
+@dataclass(frozen=True)
+class _Technique:
+    """Tube voltage and charge of one exposure: what the detector needs and what was given."""
+
+    kvp_kv: float
+    needed_mas: float
+    used_mas: float
+
+
+@dataclass(frozen=True)
+class _Field:
+    """The collimated field at the receptor: its edges (1-based pixels) and size."""
+
+    edges_px: tuple[int, int, int, int]
+    width_mm: float
+    height_mm: float
+
+
+class _Labels(NamedTuple):
+    """The names an image header gives one exposure, and the plants it carries."""
+
+    protocol_name: str
+    body_part: str | None
+    exam_type: str | None
+    planted: list[str]
+
+
 class _RoomSimulator:
     def __init__(self, room: RoomSpec, ctx: SimulationContext, dates: RadiographyPlan) -> None:
         assert room.programs is not None
@@ -101,26 +129,114 @@ class _RoomSimulator:
         laterality: str,
         technique_recorded: bool,
     ) -> RadiographView:
+        """One exposure of ``study`` on the room's program ``key``, the planted findings of its
+        day applied."""
         room, rng, day = self.room, self.rng, study.start.date()
         prog: ViewProgram = self.programs[key]
         mas_ref, ei_target = prog.mas_ref, room.target_exposure_index
-        changed = (
-            room.key == self.plan.change_room
-            and key == self.plan.change_program
-            and day >= self.dates.change_date
-        )
+        changed = self._dose_level_raised(key, day)
         if changed:  # AEC dose level and target EI raised together: DI stays near 0
             mas_ref *= self.plan.change_factor
             ei_target *= self.plan.change_factor
-        weight = study.patient.weight_kg
+        thickness = self._thickness_mm(prog, study.patient.weight_kg)
+        technique = self._technique(prog, mas_ref, thickness)
+        sid = self._sid_mm(prog)
+        to_patient = sid - RECEPTOR_GAP_MM[prog.receptor]
+        ma = _MOBILE_TUBE_CURRENT_MA if room.kind == "mobile" else _TUBE_CURRENT_MA[prog.receptor]
+        field = self._field(prog)
+        output = float(self.tube.output_ugy_per_mas_1m(technique.kvp_kv))
+        dap_true = float(
+            exposure_dap_gy_cm2(
+                output_ugy_per_mas_1m=output,
+                exposure_mas=technique.used_mas,
+                sid_mm=sid,
+                field_area_cm2=field.width_mm * field.height_mm / 100.0,
+            )
+        )
+        meter = self._meter_factor(day)
+        di = 10.0 * math.log10(technique.used_mas / technique.needed_mas)
+        di += _clipped(rng, _DI_NOISE_DB)
+        labels = self._labels(prog, key, day, changed)
+        when = study.start + timedelta(minutes=2 * index + float(rng.uniform(0, 1.5)))
+        return RadiographView(
+            index=index,
+            program=key,
+            exam_type=labels.exam_type,
+            protocol_name=labels.protocol_name,
+            series_description=labels.protocol_name,
+            body_part=labels.body_part,
+            view_position=prog.view_position,
+            laterality=laterality,
+            sop_uid=self.ctx.uids.uid("image", study.study_uid, index),
+            event_uid=self.ctx.uids.uid("event", study.study_uid, index),
+            acquired=when,
+            aec=prog.aec,
+            grid=prog.grid,
+            kvp_kv=technique.kvp_kv,
+            exposure_mas=technique.used_mas,
+            tube_current_ma=ma,
+            exposure_time_ms=technique.used_mas / ma * 1000.0,
+            sid_mm=sid,
+            source_to_patient_mm=to_patient,
+            source_to_entrance_mm=to_patient - thickness,
+            thickness_mm=thickness,
+            field_width_mm=field.width_mm,
+            field_height_mm=field.height_mm,
+            collimator_edges_px=field.edges_px,
+            output_ugy_per_mas_1m=output,
+            dap_true_gy_cm2=dap_true,
+            dap_reported_gy_cm2=dap_true * meter,
+            exposure_index=ei_target * 10.0 ** (di / 10.0),
+            target_exposure_index=ei_target,
+            deviation_index=di,
+            technique_recorded=technique_recorded,
+            planted=labels.planted,
+        )
+
+    def _dose_level_raised(self, key: str, day: date) -> bool:
+        """Whether the planted AEC change has raised program ``key``'s dose level by ``day``."""
+        return (
+            self.room.key == self.plan.change_room
+            and key == self.plan.change_program
+            and day >= self.dates.change_date
+        )
+
+    def _meter_faulty(self, day: date) -> bool:
+        """Whether the planted DAP meter fault is in this room on ``day``."""
+        return self.room.key == self.plan.dap_meter_room and day >= self.dates.meter_date
+
+    def _unmapped(self, key: str, day: date) -> bool:
+        """Whether program ``key`` is run under the planted unmapped menu entry on ``day``."""
+        return (
+            self.room.key == self.plan.unmapped_room
+            and key in self.plan.unmapped_programs
+            and day >= self.dates.unmapped_date
+        )
+
+    def _thickness_mm(self, prog: ViewProgram, weight_kg: float) -> float:
+        """The patient's thickness along the beam, whole mm: the program's thickness scaled by
+        weight (:func:`~beamaudit.api.demo.physics.patient_thickness_mm`), times the body build
+        spread."""
         thickness = float(
             patient_thickness_mm(
                 thickness_ref_mm=prog.thickness_ref_mm,
-                weight_kg=weight,
+                weight_kg=weight_kg,
                 exponent=prog.thickness_exponent,
             )
-        ) * math.exp(rng.normal(0.0, _THICKNESS_SPREAD))
-        thickness = round(thickness)
+        ) * math.exp(self.rng.normal(0.0, _THICKNESS_SPREAD))
+        return round(thickness)
+
+    def _technique(self, prog: ViewProgram, mas_ref: float, thickness: float) -> _Technique:
+        """Tube voltage and charge for a patient of ``thickness`` mm.
+
+        The charge the detector needs follows
+        :func:`~beamaudit.api.demo.physics.aec_exposure_mas`. Under AEC a large patient (above
+        ``_KV_STEP_ABOVE`` times the standard charge) gets ``_KV_STEP_KV`` more, and by the 15 %
+        rule the needed charge falls by ``2 ** (ΔkV / kV / 0.15)`` (common practice rule of
+        thumb); the AEC then terminates near the need. Without AEC the radiographer estimates the
+        need and sets the nearest step of the R10 mAs scale, ``10 ** (round(10 log10 mAs) / 10)``.
+        """
+        room, rng = self.room, self.rng
         needed = float(
             aec_exposure_mas(
                 mas_ref=mas_ref,
@@ -140,13 +256,20 @@ class _RoomSimulator:
         else:  # the radiographer's estimate of what is needed, set on the R10 mAs scale
             estimate = needed * math.exp(_clipped(rng, _ESTIMATE_SPREAD))
             used = 10.0 ** (round(10.0 * math.log10(estimate)) / 10.0)
-        used = round(used, 2)
-        sid = prog.sid_mm
-        if room.kind == "mobile":  # bedside: the unit measures the SID, never twice the same
-            sid = 5.0 * round(float(np.clip(rng.normal(prog.sid_mm, 40.0), 880.0, 1200.0)) / 5.0)
-        gap = RECEPTOR_GAP_MM[prog.receptor]
-        to_patient = sid - gap
-        ma = _MOBILE_TUBE_CURRENT_MA if room.kind == "mobile" else _TUBE_CURRENT_MA[prog.receptor]
+        return _Technique(kvp_kv=kv, needed_mas=needed, used_mas=round(used, 2))
+
+    def _sid_mm(self, prog: ViewProgram) -> float:
+        """Source to image receptor distance: the program's, or at the bedside as the mobile unit
+        measures it (880-1200 mm, to 5 mm, never twice the same)."""
+        if self.room.kind != "mobile":
+            return prog.sid_mm
+        drawn = float(np.clip(self.rng.normal(prog.sid_mm, 40.0), 880.0, 1200.0))
+        return 5.0 * round(drawn / 5.0)
+
+    def _field(self, prog: ViewProgram) -> _Field:
+        """The collimated field of one exposure: the program's field with the radiographer's
+        spread per side, centred on the detector and cut to its pixels."""
+        room, rng = self.room, self.rng
         left, right, width_mm = _edges(
             prog.field_cm[0] * 10.0 * math.exp(rng.normal(0.0, _FIELD_SPREAD)),
             room.detector_mm[0],
@@ -157,76 +280,31 @@ class _RoomSimulator:
             room.detector_mm[1],
             room.pixel_spacing_mm,
         )
-        output = float(self.tube.output_ugy_per_mas_1m(kv))
-        dap_true = float(
-            exposure_dap_gy_cm2(
-                output_ugy_per_mas_1m=output,
-                exposure_mas=used,
-                sid_mm=sid,
-                field_area_cm2=width_mm * height_mm / 100.0,
-            )
-        )
-        meter = room.dap_meter_factor * math.exp(rng.normal(0.0, _METER_SPREAD))
-        if room.key == self.plan.dap_meter_room and day >= self.dates.meter_date:
+        return _Field(edges_px=(left, right, upper, lower), width_mm=width_mm, height_mm=height_mm)
+
+    def _meter_factor(self, day: date) -> float:
+        """Reported over delivered DAP of one exposure: the room's meter with its reading
+        spread, times the planted fault's factor from its day."""
+        meter = self.room.dap_meter_factor * math.exp(self.rng.normal(0.0, _METER_SPREAD))
+        if self._meter_faulty(day):
             meter *= self.plan.dap_meter_factor
-        di = 10.0 * math.log10(used / needed) + _clipped(rng, _DI_NOISE_DB)
-        body_part: str | None
-        exam_type: str | None
-        protocol, series, body_part, exam_type = (
-            prog.protocol_name,
-            prog.protocol_name,
-            prog.body_part,
-            prog.exam_type,
-        )
+        return meter
+
+    def _labels(self, prog: ViewProgram, key: str, day: date, changed: bool) -> _Labels:
+        """What the image header names the exposure, and the plants it carries."""
+        protocol = prog.protocol_name
+        body_part: str | None = prog.body_part
+        exam_type: str | None = prog.exam_type
         planted: list[str] = []
-        unmapped = (
-            room.key == self.plan.unmapped_room
-            and key in self.plan.unmapped_programs
-            and day >= self.dates.unmapped_date
-        )
-        if unmapped:  # a new reader menu entry that fills no body part
-            protocol = series = self.plan.unmapped_protocol_name
+        if self._unmapped(key, day):  # a new reader menu entry that fills no body part
+            protocol = self.plan.unmapped_protocol_name
             body_part, exam_type = None, None
             planted.append("unmapped_protocol")
         if changed:
             planted.append("change_point")
-        if room.key == self.plan.dap_meter_room and day >= self.dates.meter_date:
+        if self._meter_faulty(day):
             planted.append("dap_ratio")
-        when = study.start + timedelta(minutes=2 * index + float(rng.uniform(0, 1.5)))
-        return RadiographView(
-            index=index,
-            program=key,
-            exam_type=exam_type,
-            protocol_name=protocol,
-            series_description=series,
-            body_part=body_part,
-            view_position=prog.view_position,
-            laterality=laterality,
-            sop_uid=self.ctx.uids.uid("image", study.study_uid, index),
-            event_uid=self.ctx.uids.uid("event", study.study_uid, index),
-            acquired=when,
-            aec=prog.aec,
-            grid=prog.grid,
-            kvp_kv=kv,
-            exposure_mas=used,
-            tube_current_ma=ma,
-            exposure_time_ms=used / ma * 1000.0,
-            sid_mm=sid,
-            source_to_patient_mm=to_patient,
-            source_to_entrance_mm=to_patient - thickness,
-            thickness_mm=thickness,
-            field_width_mm=width_mm,
-            field_height_mm=height_mm,
-            collimator_edges_px=(left, right, upper, lower),
-            output_ugy_per_mas_1m=output,
-            dap_true_gy_cm2=dap_true,
-            dap_reported_gy_cm2=dap_true * meter,
-            exposure_index=ei_target * 10.0 ** (di / 10.0),
-            target_exposure_index=ei_target,
-            deviation_index=di,
-            technique_recorded=technique_recorded,
-            planted=planted,
-        )
+        return _Labels(protocol, body_part, exam_type, planted)
 
     # --------------------------------------------------------------------------- one study
     def study(

@@ -281,7 +281,7 @@ def _listener_node(database_url: str, key: bytes, spool: str, conn: Connection) 
                 "synchronous": "normal",
                 "database_url": database_url,
                 "key": key.hex(),
-                "size_quiet_s": 1.0,
+                "size_quiet_s": 30.0,  # as `listen`; the worker sizes what is left when it ends
                 "max_spooled": _MAX_SPOOLED,
                 "log_format": "text",
                 "log_level": "WARNING",  # the demo prints its own summary
@@ -549,6 +549,7 @@ def _cstore(
 ) -> dict[str, int]:
     """Send the C-STORE rooms' files to the demo's listeners; the counts of the answers. Returns
     once every acknowledged object is stored."""
+    from beamaudit.api.intake.ct_sizing import ArrivalSizer, StudySizer
     from beamaudit.api.intake.receiving import make_store_handler
     from beamaudit.ingest.listener import ListenerConfig, start_listener
     from beamaudit.ingest.pseudonym import Pseudonymiser
@@ -564,9 +565,13 @@ def _cstore(
     sop_classes = sorted({uid for r in cstore_rooms for uid in r["sop_classes"]})
     url = _database_url(sessions) if nodes > 0 else None
     if url is None:  # an in-memory database: one listener in this process
-        handler = make_store_handler(pipeline, Pseudonymiser(key))
+        # CT images and localizers sized on arrival as `beamaudit listen` sizes them
+        sizer = ArrivalSizer(StudySizer(sessions))
+        handler = make_store_handler(pipeline, Pseudonymiser(key), sizer=sizer)
         with start_listener(ListenerConfig(ae_title=_CALLED_AE, port=0), handler) as listener:
-            return dict(_send_all(files, [listener.port], sop_classes, room_of))
+            counts = _send_all(files, [listener.port], sop_classes, room_of)
+        sizer.close()  # the studies still in their quiet time
+        return dict(counts)
     # the spools hold the objects as sent until stored: a folder of this run's own
     with tempfile.TemporaryDirectory(prefix="beamaudit-demo-spool-") as spool_dir:
         listeners = _Nodes(url, key, nodes, Path(spool_dir))

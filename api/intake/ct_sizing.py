@@ -2,7 +2,8 @@
 
 The intake keeps, per study, the *headers* of its CT images (:class:`~beamaudit.ingest.
 ct_images.CtImageHeader`, a few numbers each) with a way to read each image's pixels later
-(a path, a WADO-RS frame, or nothing when the pixels were measured on arrival). Once a study's
+(a path, a WADO-RS frame, or nothing when the pixels were measured on arrival: the C-STORE
+listener, :class:`ArrivalSizer`). Once a study's
 images are in (the end of a folder scan, a pull, the listener's association), :meth:`StudySizer.
 finish` chooses the images worth reading (``select_size_images``: every 50 mm of one series per
 acquisition, with its first, last and centre image), reads only those, one at a time, computes
@@ -28,13 +29,19 @@ is read only when its scanner (the study's device) has a stored calibration to w
 image's tube voltage and view (``api/store/ct_calibrations.py``); each of its rows then gives a Dw
 at its table position. An acquisition with axial samples at two or more table positions is
 sized from them (``size_method`` ``axial_images``); one with fewer, or an event with only its
-TID 10014 scan range, from the localizer rows within its range (``localizer``).
+TID 10014 scan range, from the localizer rows within its range (``localizer``). The folder scan
+and the pull read a localizer when its study is sized; the listener, which keeps no pixels,
+when it arrives (:meth:`StudySizer.add_localizer_now`, after the localizer's own object is
+stored, so its device is known): its rows go into ``ct_size_samples`` at once and are used when
+the study is sized. Either way a localizer without a calibration is not read and counts in
+``localizers_uncalibrated``.
 
 **Late images.** Every sample (an axial image's Dw, a localizer row's) is kept in
 ``ct_size_samples``; sizing a study uses all its samples, earlier ones included, so images
 that arrive after the study was sized (another scan, another association after the listener's
 quiet time) are merged: the acquisition is sized again, and each event whose size changes gets
-an audit entry (``resize``, before and after).
+an audit entry (``resize``, before and after). So is a CT dose report that comes after its study's
+images (:meth:`StudySizer.add_report`): the study is sized again from its stored samples.
 
 An image that cannot be read or measured becomes an ingest error with the reason; the study's
 events stay as they are stored.
@@ -48,6 +55,7 @@ import threading
 import time
 from collections.abc import Callable, Sequence
 from dataclasses import dataclass, field
+from functools import partial
 from typing import Any
 
 import numpy as np
@@ -72,10 +80,12 @@ from beamaudit.ingest.ct_images import (
     select_size_images,
 )
 from beamaudit.ingest.errors import IngestError
+from beamaudit.ingest.events import ParseResult
 from beamaudit.model.ct_localizer import localizer_sizes
-from beamaudit.model.ct_size import axial_sizes, scan_range_size
+from beamaudit.model.ct_size import axial_sizes, scan_range_dw_uncertainty, scan_range_size
 from beamaudit.model.errors import ModelError
-from beamaudit.model.ssde import size_specific_dose_estimate
+from beamaudit.model.ssde import size_specific_dose_estimate, ssde_standard_uncertainty
+from beamaudit.model.trail import WhyTrail
 
 __all__ = [
     "CT_IMAGE_CLASSES",
@@ -84,6 +94,7 @@ __all__ = [
     "SizingSummary",
     "StudySizer",
     "file_header",
+    "is_ct_report",
     "keep_frame_header",
     "measure_image",
 ]
@@ -140,6 +151,13 @@ class SizingSummary:
             "seconds": round(self.seconds, 3),
             "errors": len(self.errors),
         }
+
+
+def is_ct_report(result: ParseResult) -> bool:
+    """An object with CT irradiation events that is no CT image (a CT dose report)."""
+    return result.source.sop_class_uid not in CT_IMAGE_CLASSES and any(
+        e.modality_family == "ct" for e in result.events
+    )
 
 
 def file_header(path: str) -> CtImageHeader:
@@ -212,12 +230,15 @@ class StudySizer:
         self._spacing = axial_spacing_mm
         self._headers: dict[str, list[tuple[CtImageHeader, PixelReader | None, str]]] = {}
         self._measured: dict[str, ImageSample] = {}
+        #: studies to size even without new image headers: localizer rows kept on arrival
+        #: (:meth:`add_localizer_now`), a dose report stored after its images (:meth:`add_report`)
+        self._again: set[str] = set()
         self.summary = SizingSummary()
 
     @property
     def studies(self) -> list[str]:
-        """Studies with headers waiting to be sized."""
-        return list(self._headers)
+        """Studies with headers (or a new report) waiting to be sized."""
+        return [*self._headers, *(s for s in self._again if s not in self._headers)]
 
     def add(self, header: CtImageHeader, reader: PixelReader | None, source: str) -> None:
         """Keep one image's header and how to read its pixels (``source`` names it in errors)."""
@@ -232,11 +253,57 @@ class StudySizer:
             self._measured[header.sop_instance_uid] = sample
         self.add(header, None, source)
 
+    def add_report(self, study_instance_uid: str | None) -> None:
+        """A stored CT object that is no image (a dose report): its study is sized again at
+        :meth:`finish` from the samples stored before, if it has any, so that a report that
+        comes after its images (a localizer sent when it was taken, the report at the end of
+        the examination) gets their size."""
+        if study_instance_uid:
+            self._again.add(study_instance_uid)
+
+    def _with_samples(self, studies: Sequence[str]) -> set[str]:
+        """Which of ``studies`` have size samples stored."""
+        table = m.CtSizeSampleRow
+        found: set[str] = set()
+        with self._sessions() as session:
+            for i in range(0, len(studies), 500):
+                found.update(
+                    session.scalars(
+                        select(table.study_instance_uid)
+                        .where(table.study_instance_uid.in_(studies[i : i + 500]))
+                        .distinct()
+                    )
+                )
+        return found
+
+    def add_localizer_now(
+        self, header: CtImageHeader, reader: PixelReader, source: str, *, received_via: str
+    ) -> None:
+        """Measure a localizer on arrival (the listener, which keeps no pixels): read it only
+        when its scanner (its stored event's device) has a calibration for its tube voltage
+        and view, keep its rows in ``ct_size_samples`` at once, and its header for
+        :meth:`finish`; without a calibration it counts in ``localizers_uncalibrated``."""
+        study = header.study_instance_uid
+        if not study:  # no study to size it in (as :meth:`add`)
+            return
+        errors: list[IngestError] = []
+        with self._sessions.begin() as session:
+            scanner = _scanner_of(_study_ct_events(session, study), header)
+            new = self._localizer_rows(session, study, scanner, header, reader, source, errors)
+            _keep_samples(session, new)
+        if new:
+            self._again.add(study)
+        if errors:
+            self.record_errors(errors, received_via)
+        self.add(header, None, source)
+
     def finish(self, study_instance_uid: str, *, received_via: str) -> int:
         """Size one study: read the chosen images, store the sizes. Returns events sized."""
         entries = self._headers.pop(study_instance_uid, [])
-        if not entries:
-            return 0
+        again = study_instance_uid in self._again
+        self._again.discard(study_instance_uid)
+        if not entries and not (again and self._with_samples([study_instance_uid])):
+            return 0  # nothing new, or a report of a study none of whose images came
         started = time.perf_counter()
         by_uid = {h.sop_instance_uid: (h, reader, source) for h, reader, source in entries}
         selection = select_size_images([h for h, _, _ in entries], axial_spacing_mm=self._spacing)
@@ -272,7 +339,7 @@ class StudySizer:
             if sample is not None:
                 samples.setdefault(chosen.acquisition_group, []).append(sample)
         sized = 0
-        if samples or localizers:
+        if samples or localizers or again:
             sized = self._store(study_instance_uid, entries, samples, localizers, errors)
         self.summary.events_sized += sized
         if errors:
@@ -282,6 +349,9 @@ class StudySizer:
 
     def finish_all(self, *, received_via: str) -> SizingSummary:
         """Size every study collected so far."""
+        reports_only = [s for s in self._again if s not in self._headers]
+        if reports_only:  # one look-up for all: most CT reports come without images
+            self._again.difference_update(set(reports_only) - self._with_samples(reports_only))
         for study in self.studies:
             try:
                 self.finish(study, received_via=received_via)
@@ -324,31 +394,7 @@ class StudySizer:
         for h, _, _ in entries:
             headers_of.setdefault(h.acquisition_group, []).append(h)
         with self._sessions.begin() as session:
-            rows = session.execute(
-                select(
-                    m.ExposureEventRow.id,
-                    m.ExposureEventRow.device_id,
-                    m.ExposureEventRow.irradiation_event_uid,
-                    m.ExposureEventRow.ctdivol_mgy,
-                    m.ExposureEventRow.ct_phantom_diameter_cm,
-                    m.ExposureEventRow.ssde_mgy,
-                    m.ExposureEventRow.ct_scan_z_top_mm,
-                    m.ExposureEventRow.ct_scan_z_bottom_mm,
-                    m.ExposureEventRow.frame_of_reference_uid,
-                    m.ExposureEventRow.size_dw_mean_cm,
-                    m.ExposureEventRow.size_method,
-                    m.ExposureEventRow.size_images_used,
-                    m.SourceObjectRow.sop_instance_uid,
-                )
-                .join(
-                    m.SourceObjectRow, m.SourceObjectRow.id == m.ExposureEventRow.source_object_id
-                )
-                .join(m.Study, m.Study.id == m.ExposureEventRow.study_id)
-                .where(m.Study.study_instance_uid == study_uid)
-                .where(m.ExposureEventRow.modality == "CT")
-            ).all()
-            device_of = {r.sop_instance_uid: r.device_id for r in rows}
-            first_device = next((r.device_id for r in rows if r.device_id is not None), None)
+            rows = _study_ct_events(session, study_uid)
             new = [
                 _sample_row(study_uid, group, "axial_images", s, headers_of.get(group, []))
                 for group, group_samples in samples.items()
@@ -361,9 +407,8 @@ class StudySizer:
                 if h.kind == "axial" and h.z_mm is not None and h.sop_instance_uid not in measured
             ]
             for header, reader, source in localizers:
-                device = device_of.get(header.sop_instance_uid) or first_device
                 new += self._localizer_rows(
-                    session, study_uid, device, header, reader, source, errors
+                    session, study_uid, _scanner_of(rows, header), header, reader, source, errors
                 )
             _keep_samples(session, new)
             stored = session.execute(
@@ -393,6 +438,11 @@ class StudySizer:
         )
         if calibration is None:
             self.summary.localizers_uncalibrated += 1
+            log.info(
+                "CT localizer %s not measured: no calibration to water stored for its scanner "
+                "(device %s) at %s kV, %s view (beamaudit ct-calibration add)",
+                header.sop_instance_uid, device_id, _g(header.kvp_kv), view or "unknown",
+            )  # fmt: skip
             return []  # pixels not read: nothing to calibrate them with
         try:
             image = reader()
@@ -511,6 +561,37 @@ class StudySizer:
         return _event_size(inside, lo, hi, event, errors, study_uid, "localizer")
 
 
+def _study_ct_events(session: Session, study_uid: str) -> Sequence[Any]:
+    """The study's stored CT events, with what sizing reads and writes of each."""
+    return session.execute(
+        select(
+            m.ExposureEventRow.id,
+            m.ExposureEventRow.device_id,
+            m.ExposureEventRow.irradiation_event_uid,
+            m.ExposureEventRow.ctdivol_mgy,
+            m.ExposureEventRow.ct_phantom_diameter_cm,
+            m.ExposureEventRow.ssde_mgy,
+            m.ExposureEventRow.ct_scan_z_top_mm,
+            m.ExposureEventRow.ct_scan_z_bottom_mm,
+            m.ExposureEventRow.frame_of_reference_uid,
+            m.ExposureEventRow.size_dw_mean_cm,
+            m.ExposureEventRow.size_method,
+            m.ExposureEventRow.size_images_used,
+            m.SourceObjectRow.sop_instance_uid,
+        )
+        .join(m.SourceObjectRow, m.SourceObjectRow.id == m.ExposureEventRow.source_object_id)
+        .join(m.Study, m.Study.id == m.ExposureEventRow.study_id)
+        .where(m.Study.study_instance_uid == study_uid)
+        .where(m.ExposureEventRow.modality == "CT")
+    ).all()
+
+
+def _scanner_of(rows: Sequence[Any], header: CtImageHeader) -> int | None:
+    """The device of an image: its own event's, else the first of its study's CT events."""
+    own = next((r.device_id for r in rows if r.sop_instance_uid == header.sop_instance_uid), None)
+    return own or next((r.device_id for r in rows if r.device_id is not None), None)
+
+
 def _localizer_view(header: CtImageHeader) -> str | None:
     """``frontal`` or ``lateral`` from the image plane (as ``ingest.ct_images`` turns it)."""
     if header.image_orientation is None:
@@ -620,7 +701,23 @@ def _event_size(
     except ModelError as exc:
         errors.append(IngestError("bad_value", f"patient size: {exc}", f"study {study_uid}"))
         return None
-    trail = [step.as_dict() for step in size.trail.steps]
+    u_dw, u_parts = scan_range_dw_uncertainty(dw_cm=dw, mean_dw_cm=size.mean_dw_cm, method=method)
+    steps = WhyTrail()
+    steps.add(
+        "water_equivalent_diameter_mean_standard_uncertainty_cm", u_dw, "cm",
+        equation="u = sqrt((s / sqrt(n))^2 + (r_method Dw)^2)",
+        source="JCGM 100:2008 (GUM) eq. 5 and 10; method share from memory (model/ct_size.py)",
+        inputs=u_parts | {"samples": int(dw.size)},
+    )  # fmt: skip
+    u_centre, _ = scan_range_dw_uncertainty(
+        dw_cm=[size.centre_dw_cm], mean_dw_cm=size.centre_dw_cm, method=method
+    )
+    steps.add(
+        "water_equivalent_diameter_centre_standard_uncertainty_cm", u_centre, "cm",
+        equation="u = r_method Dw (one position)",
+        source="the method share of model/ct_size.py (from memory)",
+    )  # fmt: skip
+    trail = [step.as_dict() for step in (*size.trail.steps, *steps.steps)]
     values: dict[str, Any] = {
         "size_dw_mean_cm": size.mean_dw_cm,
         "size_dw_centre_cm": size.centre_dw_cm,
@@ -653,10 +750,23 @@ def _event_size(
             values["size_ssde_mgy"] = ssde.ssde_mgy
             values["size_ssde_report"] = ssde.report
             trail.extend(step.as_dict() for step in ssde.trail.steps)
+            trail.append(_ssde_uncertainty_step(ssde, u_dw))
             if row.ssde_mgy and ssde.ssde_mgy > 0:
                 values["ssde_ratio_reported_to_size"] = row.ssde_mgy / ssde.ssde_mgy
     values["size_trail"] = {"steps": trail}
     return values
+
+
+def _ssde_uncertainty_step(ssde: Any, u_dw_cm: float) -> dict[str, Any]:
+    """The trail step of an SSDE's standard uncertainty (size and fit, ``model/ssde.py``)."""
+    steps = WhyTrail()
+    steps.add(
+        "ssde_standard_uncertainty_mgy", ssde_standard_uncertainty(ssde, u_dw_cm), "mGy",
+        equation="u(SSDE) / SSDE = sqrt((b u(Dw))^2 + u_f^2)",
+        source=f"{ssde.report} fit f = a exp(-b Dw); JCGM 100:2008 (GUM) eq. 10",
+        inputs={"dw_standard_uncertainty_cm": u_dw_cm},
+    )  # fmt: skip
+    return steps.steps[0].as_dict()
 
 
 class ArrivalSizer:
@@ -668,8 +778,12 @@ class ArrivalSizer:
     no image of its series measured so far lies closer than the sampling spacing (50 mm), so
     a series sent in order is sampled every 50 mm from its first image (the range beyond the
     last sample is held at its Dw, which the trail records); every other image stays
-    header-only. A study is sized ``quiet_s`` seconds after its last image (and at
-    :meth:`close`); thread-safe (one handler thread per association).
+    header-only. A localizer is measured on arrival when its scanner has a stored calibration
+    for it (:meth:`StudySizer.add_localizer_now`: its rows kept, its pixels dropped), else
+    counted as uncalibrated. A study is sized ``quiet_s`` seconds after its last image or CT
+    dose report (:meth:`report_stored`: a report that comes after the study was sized is given
+    the size of what came before), and at :meth:`close`; thread-safe (one handler thread per
+    association).
     """
 
     def __init__(
@@ -699,7 +813,7 @@ class ArrivalSizer:
         if not study or header.kind == "other":
             return
         sample = None
-        if self._worth_measuring(header):
+        if self._worth_measuring(header):  # axial images; a localizer is measured below
             try:
                 image = read_ct_size_image(encoded)
                 sample = measure_image(image, header)
@@ -712,14 +826,34 @@ class ArrivalSizer:
                     summary.images_read += 1
                     summary.pixel_data_bytes_read += header.pixel_data_bytes
         with self._lock:
-            self._sizer.add_measured(header, sample, source)
-            timer = self._timers.pop(study, None)
-            if timer is not None:
-                timer.cancel()
-            timer = threading.Timer(self._quiet_s, self._finish, args=(study,))
-            timer.daemon = True
-            self._timers[study] = timer
-            timer.start()
+            if header.kind == "localizer":
+                self._sizer.add_localizer_now(
+                    header, partial(read_ct_size_image, encoded), source, received_via=self._via
+                )
+            else:
+                self._sizer.add_measured(header, sample, source)
+            self._size_after_quiet_time(study)
+
+    def report_stored(self, result: ParseResult) -> None:
+        """One stored object that is no CT image: a CT dose report's study is sized again after
+        the quiet time (:meth:`StudySizer.add_report`), so that the report, sent at the end of
+        the examination, gets the size of the localizer or images that came before it."""
+        study = result.source.study_instance_uid
+        if not study or not is_ct_report(result):
+            return
+        with self._lock:
+            self._sizer.add_report(study)
+            self._size_after_quiet_time(study)
+
+    def _size_after_quiet_time(self, study: str) -> None:
+        """(Re)start the study's quiet time (the caller holds the lock)."""
+        timer = self._timers.pop(study, None)
+        if timer is not None:
+            timer.cancel()
+        timer = threading.Timer(self._quiet_s, self._finish, args=(study,))
+        timer.daemon = True
+        self._timers[study] = timer
+        timer.start()
 
     def _worth_measuring(self, header: CtImageHeader) -> bool:
         if header.kind != "axial" or header.z_mm is None:
@@ -750,6 +884,10 @@ class ArrivalSizer:
         for study in studies:
             self._finish(study)
         return self._sizer.summary
+
+
+def _g(value: float | None) -> str:
+    return "unknown" if value is None else f"{value:g}"
 
 
 def _sized_error(exc: IngestError, source: str) -> IngestError:

@@ -37,12 +37,14 @@ JSON, and a stored value should never hide a character nobody can see.
 
 from __future__ import annotations
 
+import contextlib
 import dataclasses
 import hashlib
 import json
 import logging
 import operator
 import re
+import threading
 from collections.abc import Iterable
 from dataclasses import dataclass, field
 from typing import TYPE_CHECKING, Any, Literal, cast
@@ -376,6 +378,28 @@ def _make_printable(obj: Any) -> None:
                 setattr(obj, f.name, cleaned)
 
 
+_WRITER_LOCKS: dict[str, threading.RLock] = {}
+_WRITER_LOCKS_GUARD = threading.Lock()
+
+
+def writer_turn(sessions: sessionmaker[Session]) -> contextlib.AbstractContextManager[Any]:
+    """The turn of this process's threads at a SQLite store's one writer (a no-op elsewhere).
+
+    SQLite lets one transaction write at a time; a thread that finds the database locked waits
+    in SQLite's busy handler, which polls with growing sleeps (up to 100 ms each), so under a
+    burst of writers some wait many times the others' share (the uploads' tail in
+    ``bench_load.py``). Threads of one process take their turns here, in order, instead; only
+    other processes are left to the busy handler.
+    """
+    bind = sessions.kw.get("bind")
+    url = getattr(bind, "url", None)
+    if url is None or url.get_backend_name() != "sqlite":
+        return contextlib.nullcontext()
+    key = str(url)
+    with _WRITER_LOCKS_GUARD:
+        return _WRITER_LOCKS.setdefault(key, threading.RLock())
+
+
 class Pipeline:
     """Stores parsed objects; one instance per process, sharing one session factory.
 
@@ -465,7 +489,7 @@ class Pipeline:
         if len(items) == 1:
             return [self._store_alone(items[0], received_via)]
         try:
-            with self._sessions.begin() as session:
+            with writer_turn(self._sessions), self._sessions.begin() as session:
                 return _BatchWriter(session, received_via, self.completion).store(items)
         except IntegrityError:
             return [self._store_alone(item, received_via) for item in items]
@@ -484,7 +508,7 @@ class Pipeline:
         detail = ""
         for _ in range(_RACE_ATTEMPTS):
             try:
-                with self._sessions.begin() as session:
+                with writer_turn(self._sessions), self._sessions.begin() as session:
                     return _BatchWriter(session, received_via, self.completion).store([item])[0]
             except IntegrityError as exc:
                 detail = str(exc.orig).splitlines()[0] if exc.orig is not None else str(exc)

@@ -110,6 +110,15 @@ class Completion:
             self._complete(session, rows)
 
     def _complete(self, session: Session, rows: list[dict[str, Any]]) -> None:
+        from beamaudit.api.intake.study_intent import settle_study_intents
+
+        # screening or diagnostic for the whole study (a workup study is diagnostic as a whole);
+        # stored events of the study whose reading changed take their indication again
+        changed = settle_study_intents(session, rows)
+        if changed:
+            from beamaudit.api.store.review_rows import map_stored_events
+
+            map_stored_events(session, changed)
         room_ids = {r["room_id"] for r in rows if r["room_id"] is not None}
         self._map(session, rows, room_ids)
         rooms = RoomBeams()

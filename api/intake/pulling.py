@@ -29,6 +29,7 @@ from beamaudit.api.intake.ct_sizing import (
     CT_IMAGE_CLASSES,
     SizingSummary,
     StudySizer,
+    is_ct_report,
     keep_frame_header,
 )
 from beamaudit.api.intake.pipeline import Pipeline
@@ -197,6 +198,8 @@ def pull_source(
             outcome.events += stored.events
             if result.source.sop_class_uid in CT_IMAGE_CLASSES:
                 keep_frame_header(sizer, client_source, ds, wado_url)
+            elif is_ct_report(result):  # its study sized again from the samples stored before
+                sizer.add_report(result.source.study_instance_uid)
         elif stored.status == "duplicate":
             outcome.duplicates += 1
         else:

@@ -94,14 +94,16 @@ def make_store_handler(
             return StoreOutcome.cannot_understand(
                 outcome.reason or "conflicts with a stored object"
             )
-        is_ct_image = result.source.sop_class_uid in CT_IMAGE_CLASSES
-        if sizer is not None and outcome.status == "stored" and is_ct_image:
+        if sizer is not None and outcome.status == "stored":
             try:
-                sizer.received(
-                    received.dataset,
-                    encoded=received.received_path or received.encoded,
-                    source=source,
-                )
+                if result.source.sop_class_uid in CT_IMAGE_CLASSES:
+                    sizer.received(
+                        received.dataset,
+                        encoded=received.received_path or received.encoded,
+                        source=source,
+                    )
+                else:
+                    sizer.report_stored(result)
             except Exception:  # the object is stored; its size can be measured again
                 log.exception("measuring %s failed", received.sop_instance_uid)
         if after_store is not None and outcome.event_ids:

@@ -56,10 +56,13 @@ __all__ = [
     "RECIPE_KIND",
     "ReconSummary",
     "RoomBeams",
+    "anode_symbol",
     "calibration_for_room",
     "figures",
     "reconstruct_events",
+    "room_patient_support",
     "trail_for_event",
+    "warm_up",
 ]
 
 log = logging.getLogger(__name__)
@@ -114,7 +117,7 @@ def _calibration_from_row(row: m.RoomCalibrationRow | None, room: m.Room | None)
         output_scale=row.output_scale,
         inherent_filtration_mm_al=row.inherent_filtration_mm_al,
         calibrated=True,
-        anode=_anode_symbol(room.anode_material),
+        anode=anode_symbol(room.anode_material),
         anode_angle_deg=room.anode_angle_deg,
         ripple_percent=room.ripple_percent,
         source=f"room QA measurements (calibration {row.id}, {row.n_measurements} measurements)",
@@ -125,7 +128,8 @@ def _calibration_from_row(row: m.RoomCalibrationRow | None, room: m.Room | None)
 _ANODES = {"tungsten": "W", "molybdenum": "Mo", "rhodium": "Rh", "silver": "Ag"}
 
 
-def _anode_symbol(material: str | None) -> str:
+def anode_symbol(material: str | None) -> str:
+    """The anode's chemical symbol from the room's anode material (tungsten when not known)."""
     return _ANODES.get((material or "tungsten").lower(), material or "W")
 
 
@@ -157,7 +161,7 @@ class _BeamCache:
         from beamaudit.model import BeamInputs, BeamSpec, compute_beam
         from beamaudit.model.beam_quality import beam_quality_uncertainty
 
-        anode = _anode_symbol(room.anode_material if room else None)
+        anode = anode_symbol(room.anode_material if room else None)
         angle = room.anode_angle_deg if room else 12.0
         ripple = room.ripple_percent if room else 0.0
         key = (
@@ -267,7 +271,7 @@ def _tube_side(room: m.Room | None, event: Any) -> tuple[str, str | None]:
     return "above", None
 
 
-def _patient_support(room: m.Room | None, side: str) -> Any:
+def room_patient_support(room: m.Room | None, side: str) -> Any:
     """The room's table top and mattress in the beam of a tube below the table, or None."""
     from beamaudit.model import FilterSpec
     from beamaudit.model.patient_support import PatientSupport, default_patient_support
@@ -686,7 +690,7 @@ def _event_beam(event: Any, room: Any, calibration: Any, cache: _BeamCache) -> A
         filters=filters,
         room=room,
         calibration=calibration,
-        support=_patient_support(room, side),
+        support=room_patient_support(room, side),
         notes=notes + ((side_note,) if side_note else ()),
     )
 
@@ -739,6 +743,16 @@ def _finite_list(values: Any) -> list[float | None]:
 def _id_chunks(ids: list[int], size: int = 500) -> Iterable[list[int]]:
     for start in range(0, len(ids), size):
         yield ids[start : start + size]
+
+
+def warm_up() -> None:
+    """Load the model's data tables (attenuation, backscatter, spectra) by making one trail's beam
+    and dose, so that a serving process pays for them before its first request rather than
+    under its first burst of requests (about a second of CPU per process)."""
+    from beamaudit.model import GeometryInputs, dose_from_beam
+
+    beam = _TRAIL_BEAMS.get(kvp_kv=80.0, filters=None, room=None, calibration=None)
+    dose_from_beam(beam, exposure_mas=10.0, geometry=GeometryInputs(sid_mm=1000.0))
 
 
 def trail_for_event(session: Session, event: m.ExposureEventRow) -> dict[str, Any] | None:
@@ -874,7 +888,7 @@ def beam_for_event(event: m.ExposureEventRow) -> Any:
             BeamSpec(
                 kv=round(event.kvp_kv, 1),
                 filters=_filters(room, event, calibration)[0],
-                anode=_anode_symbol(room.anode_material if room else None),
+                anode=anode_symbol(room.anode_material if room else None),
                 anode_angle_deg=room.anode_angle_deg if room else 12.0,
                 ripple_percent=room.ripple_percent if room else 0.0,
             ),

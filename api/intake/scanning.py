@@ -22,8 +22,14 @@ from functools import partial
 from pathlib import Path
 from typing import Any
 
-from beamaudit.api.intake.ct_sizing import CT_IMAGE_CLASSES, StudySizer, file_header
+from beamaudit.api.intake.ct_sizing import (
+    CT_IMAGE_CLASSES,
+    StudySizer,
+    file_header,
+    is_ct_report,
+)
 from beamaudit.api.intake.pipeline import Pipeline, StoreOutcome, prepare
+from beamaudit.api.store.engine import database_files
 from beamaudit.ingest.ct_images import read_ct_size_image
 from beamaudit.ingest.errors import IngestError
 from beamaudit.ingest.events import ParseResult
@@ -45,6 +51,8 @@ class ScanSummary:
     events: int = 0
     duplicates: int = 0
     skipped: int = 0  # DICOMDIR indexes
+    #: the store's own database files found under the scanned paths (never opened)
+    store_files_skipped: list[str] = field(default_factory=list)
     errors: list[dict[str, str]] = field(default_factory=list)
     stored_event_ids: list[int] = field(default_factory=list)
     #: what measuring CT patients' size did (``SizingSummary.as_dict``), when it ran
@@ -61,6 +69,11 @@ class ScanSummary:
             "duplicates": self.duplicates,
             "skipped": self.skipped,
             "errors": self.errors,
+            **(
+                {"store_files_skipped": self.store_files_skipped}
+                if self.store_files_skipped
+                else {}
+            ),
             **({"ct_size": self.ct_size} if self.ct_size is not None else {}),
         }
 
@@ -211,7 +224,13 @@ def scan_paths(
             )
             pending_errors.append((error, error.source))
 
-    parsed = _parsed(iter_candidate_files(paths, unreadable.append), key, max(1, workers))
+    own = database_files(pipeline.sessions.kw.get("bind"))
+
+    def skip_own(path: Path) -> None:  # the store's own files: never opened, said so
+        summary.store_files_skipped.append(str(path))
+
+    files = iter_candidate_files(paths, unreadable.append, skip=own, on_skipped=skip_own)
+    parsed = _parsed(files, key, max(1, workers))
     for path_text, kind, result, fingerprint in parsed:
         note_unreadable_folders()
         summary.files += 1
@@ -246,8 +265,11 @@ def _keep_ct_header(
     summary: ScanSummary,
     pending_errors: list[tuple[IngestError, str | None]],
 ) -> None:
-    """A stored CT image's size header, kept with how to read its pixels later."""
+    """A stored CT image's size header, kept with how to read its pixels later (a CT dose
+    report: its study sized again from the samples stored before)."""
     if result.source.sop_class_uid not in CT_IMAGE_CLASSES:
+        if is_ct_report(result):
+            sizer.add_report(result.source.study_instance_uid)
         return
     try:
         header = file_header(path)

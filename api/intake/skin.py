@@ -25,7 +25,7 @@ from typing import Any
 from sqlalchemy import select
 from sqlalchemy.orm import Session
 
-from beamaudit.api.intake.reconstruct import _patient_support
+from beamaudit.api.intake.reconstruct import room_patient_support
 from beamaudit.api.store import models as m
 from beamaudit.api.store.base import utcnow
 
@@ -117,7 +117,7 @@ def _factors(room: m.Room | None) -> Any:
         if len(al) == len(room.filtration):
             inherent = sum(float(f["thickness_mm"]) for f in al)
     return SpectrumBeamFactors(
-        inherent_filtration_mm_al=inherent, patient_support=_patient_support(room, "below")
+        inherent_filtration_mm_al=inherent, patient_support=room_patient_support(room, "below")
     )
 
 

@@ -20,6 +20,9 @@ second pass over an object already stored a duplicate, never a second row).
   used (unparseable, not dose-bearing, another object's UID with other content) is recorded as an
   ingest error, as the synchronous handler records it; its C-STORE was answered success already.
   A store that fails (database down) leaves the rows in the spool; the worker tries again later.
+  Each CT image stored is then given to the :class:`~beamaudit.api.intake.ct_sizing.
+  ArrivalSizer` (patient size: a few axial images and calibrated localizers measured from the
+  spooled bytes, their pixels dropped).
 - **The file** is named after the listener's port and its database
   (:func:`spool_path`), so a listener started again on the same port and database finds it, and
   holds received objects as sent (patient identifiers included) until stored: it is created
@@ -451,9 +454,11 @@ def make_spooling_handler(
                 log.warning("spooled %s not stored: %s", obj.sop_instance_uid, outcome.reason)
                 continue
             event_ids.extend(outcome.event_ids)
-            is_ct_image = result.source.sop_class_uid in CT_IMAGE_CLASSES
-            if sizer is not None and outcome.status == "stored" and is_ct_image:
-                _size(sizer, obj)
+            if sizer is not None and outcome.status == "stored":
+                if result.source.sop_class_uid in CT_IMAGE_CLASSES:
+                    _size(sizer, obj)
+                else:
+                    sizer.report_stored(result)
         if parsed:
             log.info("stored %d spooled objects (%d events)", len(parsed), len(event_ids))
 

@@ -31,6 +31,8 @@ from collections.abc import Sequence
 
 import numpy as np
 
+from beamaudit.api.review._band_names import band_bounds, band_name
+
 __all__ = [
     "EXAMPLE_EDGES_CM",
     "OUTSIDE_SIZE_BANDS",
@@ -52,13 +54,9 @@ SIZE_SPECIAL_GROUPS = (OUTSIDE_SIZE_BANDS, SIZE_NOT_KNOWN)
 _PREFIX = "ct_dw_"
 
 
-def _number(value: float) -> str:
-    return f"{value:g}".replace(".", "p")
-
-
 def size_band_name(low_cm: float, high_cm: float) -> str:
     """The group name of a band: ``ct_dw_20_25cm`` (``ct_dw_22p5_25cm`` for 22.5)."""
-    return f"{_PREFIX}{_number(low_cm)}_{_number(high_cm)}cm"
+    return band_name(_PREFIX, low_cm, high_cm, "cm")
 
 
 def size_band_names(edges_cm: Sequence[float]) -> list[str]:
@@ -67,20 +65,7 @@ def size_band_names(edges_cm: Sequence[float]) -> list[str]:
 
 
 def _bounds(name: str) -> tuple[float, float] | None:
-    if not name.startswith(_PREFIX) or not name.endswith("cm"):
-        return None
-    parts = name.removeprefix(_PREFIX).removesuffix("cm").split("_")
-    if len(parts) != 2:
-        return None
-    try:
-        low, high = (float(p.replace("p", ".")) for p in parts)
-    except ValueError:
-        return None
-    if not (math.isfinite(low) and math.isfinite(high) and 0 < low < high <= 100):
-        return None
-    if size_band_name(low, high) != name:  # one spelling per band
-        return None
-    return low, high
+    return band_bounds(name, _PREFIX, "cm", 100.0)
 
 
 def is_size_band(name: str | None) -> bool:

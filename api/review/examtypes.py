@@ -269,88 +269,96 @@ def read_catalogue_csv(source: CsvSource) -> ExamCatalogue:
     types: list[ExamType] = []
     seen: dict[str, int] = {}
     for line, row in table.rows:
-        n_before = len(problems)
-        exam_type = row["exam_type"]
-        if not _IDENTIFIER.match(exam_type):
-            problems.append((line, f"exam_type {exam_type!r} must be lower-case [a-z0-9_]"))
-        elif exam_type in seen:
-            problems.append(
-                (line, f"exam_type {exam_type!r} already defined on line {seen[exam_type]}")
-            )
-        else:
-            seen[exam_type] = line
-        if not row["name"]:
-            problems.append((line, "name is empty"))
-        if row["modality_group"] not in MODALITY_GROUPS:
-            problems.append(
-                (
-                    line,
-                    f"modality_group {row['modality_group']!r} is not one of "
-                    f"{', '.join(MODALITY_GROUPS)}",
-                )
-            )
-        modalities = tuple(row["dicom_modalities"].upper().split())
-        if not modalities or not all(_DICOM_MODALITY.match(m) for m in modalities):
-            problems.append(
-                (
-                    line,
-                    f"dicom_modalities {row['dicom_modalities']!r} must be DICOM modality codes "
-                    "separated by spaces",
-                )
-            )
-        per = row["level_applies_per"]
-        if per not in ("projection", "examination"):
-            problems.append(
-                (line, f"level_applies_per must be 'projection' or 'examination', got {per!r}")
-            )
-        quantities = tuple(quantity_name(q) for q in row["quantities"].split())
-        bad = [q for q in quantities if q not in QUANTITIES]
-        if not quantities or bad:
-            problems.append(
-                (
-                    line,
-                    f"quantities {row['quantities']!r}: each must be one of "
-                    f"{', '.join(QUANTITIES)}",
-                )
-            )
-        aggregation: list[tuple[str, Aggregation]] = []
-        for token in row["aggregation"].split():
-            quantity, _, rule = token.partition("=")
-            quantity = quantity_name(quantity)
-            if quantity not in quantities or rule not in AGGREGATIONS:
-                problems.append(
-                    (
-                        line,
-                        f"aggregation {token!r} must be quantity=rule with one of this row's "
-                        f"quantities and a rule of {', '.join(AGGREGATIONS)}",
-                    )
-                )
-            else:
-                aggregation.append((quantity, cast(Aggregation, rule)))
-        if aggregation and per == "projection":
-            problems.append((line, "aggregation applies only to examination-level exam types"))
-        bands = row["paediatric_bands"]
-        if bands not in _PAEDIATRIC_BANDS:
-            problems.append(
-                (line, f"paediatric_bands must be 'weight', 'age' or empty, got {bands!r}")
-            )
-        if len(problems) == n_before:
-            types.append(
-                ExamType(
-                    exam_type=exam_type,
-                    name=row["name"],
-                    modality_group=row["modality_group"],
-                    dicom_modalities=modalities,
-                    level_applies_per=cast(LevelAppliesPer, per),
-                    quantities=quantities,
-                    aggregation=tuple(aggregation),
-                    description=row["description"],
-                    paediatric_bands=cast(PaediatricBands, bands),
-                )
-            )
+        exam_type, row_problems = _catalogue_row_type(row, line=line, seen=seen)
+        problems += [(line, problem) for problem in row_problems]
+        if exam_type is not None:
+            types.append(exam_type)
     if problems:
         raise CsvFormatError(table.source, problems)
     return ExamCatalogue(types=tuple(types), comments=table.comments)
+
+
+def _catalogue_row_type(
+    row: Mapping[str, str], *, line: int, seen: dict[str, int]
+) -> tuple[ExamType | None, list[str]]:
+    """The exam type of one catalogue row on ``line``, or ``None`` and the row's problems in the
+    order of its columns; ``seen`` (exam type -> its line) notes a new exam type."""
+    problems = _identity_problems(row, line=line, seen=seen)
+    modalities = tuple(row["dicom_modalities"].upper().split())
+    if not modalities or not all(_DICOM_MODALITY.match(m) for m in modalities):
+        problems.append(
+            f"dicom_modalities {row['dicom_modalities']!r} must be DICOM modality codes "
+            "separated by spaces"
+        )
+    per = row["level_applies_per"]
+    if per not in ("projection", "examination"):
+        problems.append(f"level_applies_per must be 'projection' or 'examination', got {per!r}")
+    quantities = tuple(quantity_name(q) for q in row["quantities"].split())
+    bad = [q for q in quantities if q not in QUANTITIES]
+    if not quantities or bad:
+        problems.append(
+            f"quantities {row['quantities']!r}: each must be one of {', '.join(QUANTITIES)}"
+        )
+    aggregation = _row_aggregation(row["aggregation"], quantities, problems)
+    if aggregation and per == "projection":
+        problems.append("aggregation applies only to examination-level exam types")
+    bands = row["paediatric_bands"]
+    if bands not in _PAEDIATRIC_BANDS:
+        problems.append(f"paediatric_bands must be 'weight', 'age' or empty, got {bands!r}")
+    if problems:
+        return None, problems
+    exam_type = ExamType(
+        exam_type=row["exam_type"],
+        name=row["name"],
+        modality_group=row["modality_group"],
+        dicom_modalities=modalities,
+        level_applies_per=cast(LevelAppliesPer, per),
+        quantities=quantities,
+        aggregation=aggregation,
+        description=row["description"],
+        paediatric_bands=cast(PaediatricBands, bands),
+    )
+    return exam_type, []
+
+
+def _identity_problems(row: Mapping[str, str], *, line: int, seen: dict[str, int]) -> list[str]:
+    """Problems of a catalogue row's code (lower-case, not defined on an earlier line), name
+    (not empty) and modality group (one of :data:`MODALITY_GROUPS`)."""
+    problems = []
+    exam_type = row["exam_type"]
+    if not _IDENTIFIER.match(exam_type):
+        problems.append(f"exam_type {exam_type!r} must be lower-case [a-z0-9_]")
+    elif exam_type in seen:
+        problems.append(f"exam_type {exam_type!r} already defined on line {seen[exam_type]}")
+    else:
+        seen[exam_type] = line
+    if not row["name"]:
+        problems.append("name is empty")
+    if row["modality_group"] not in MODALITY_GROUPS:
+        problems.append(
+            f"modality_group {row['modality_group']!r} is not one of {', '.join(MODALITY_GROUPS)}"
+        )
+    return problems
+
+
+def _row_aggregation(
+    text: str, quantities: tuple[str, ...], problems: list[str]
+) -> tuple[tuple[str, Aggregation], ...]:
+    """The ``aggregation`` column's ``quantity=rule`` tokens, each naming one of the row's
+    ``quantities`` and a rule of :data:`AGGREGATIONS`; a token that does not goes to
+    ``problems``."""
+    aggregation: list[tuple[str, Aggregation]] = []
+    for token in text.split():
+        quantity, _, rule = token.partition("=")
+        quantity = quantity_name(quantity)
+        if quantity not in quantities or rule not in AGGREGATIONS:
+            problems.append(
+                f"aggregation {token!r} must be quantity=rule with one of this row's "
+                f"quantities and a rule of {', '.join(AGGREGATIONS)}"
+            )
+        else:
+            aggregation.append((quantity, cast(Aggregation, rule)))
+    return tuple(aggregation)
 
 
 def write_catalogue_csv(

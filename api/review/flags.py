@@ -903,93 +903,125 @@ def low_dose_review(
     """
     if len(groups) == 0:
         return []
-    judged = groups.loc[groups["n_used"].to_numpy() >= groups["n_minimum"].to_numpy()]
-    group_keys = [c for c in GROUP_KEYS if c in judged.columns]
-    # one row per group: the strictest (lowest) level decides, so a group far below an old, high
-    # level but near the local one is not "far below the level" (levels sort before no level)
-    ordered = judged.sort_values(
-        [*group_keys, "reference_level", "level_set"], kind="mergesort", na_position="last"
-    )
-    rows = ordered.drop_duplicates(group_keys, keep="first").copy()
+    rows = _strictest_level_rows(groups)
     median = rows["median"].to_numpy(dtype=np.float64)
     level = rows["reference_level"].to_numpy(dtype=np.float64)
     with np.errstate(invalid="ignore"):
         below_level = (
             median < fraction * level if fraction is not None else np.zeros(len(rows), bool)
         )
-    site_keys = ["site", "exam_type", "clinical_indication", "patient_group", "quantity"]
     p25 = np.full(len(rows), np.nan)
     n_rooms_of = np.zeros(len(rows), dtype=np.int64)
     if use_site_percentile and len(site_values) and len(rows):
-
-        def key_frame(frame: pd.DataFrame) -> pd.DataFrame:
-            return pd.DataFrame(
-                {k: frame[k].astype(object).where(frame[k].notna(), "\x00") for k in site_keys}
-            )
-
-        lookup = key_frame(site_values)
-        lookup["_p25"] = site_values["room_median_p25"].to_numpy(dtype=np.float64)
-        lookup["_n_rooms"] = site_values["n_rooms"].to_numpy(dtype=np.int64)
-        merged = key_frame(rows).merge(lookup, on=site_keys, how="left", sort=False)
-        p25 = merged["_p25"].to_numpy(dtype=np.float64)
-        n_rooms_of = merged["_n_rooms"].fillna(0).to_numpy(dtype=np.int64)
+        p25, n_rooms_of = _site_room_median_p25(rows, site_values)
     with np.errstate(invalid="ignore"):
         below_p25 = median < p25
     flagged = below_level | below_p25
-    flags = []
-    for row, hit_level, hit_p25, percentile_value, n_rooms in zip(
-        _records(rows.loc[flagged]),
-        below_level[flagged],
-        below_p25[flagged],
-        p25[flagged],
-        n_rooms_of[flagged],
-        strict=True,
-    ):
-        quantity = row["quantity"]
-        unit = _unit(quantity)
-        parts = []
-        numbers: dict[str, Number] = {"median": _float(row["median"]), "n_used": int(row["n_used"])}
-        if hit_level:
-            lowest = row
-            parts.append(
-                f"{_float(lowest['ratio_to_level']):.2f} × the {lowest['level_kind']} level "
-                f"{_fmt(_float(lowest['reference_level']))} {unit} ({lowest['level_set']}, version "
-                f"{lowest['level_version']}), below {_fmt(fraction or 0)} × the level"
-            )
-            numbers.update(
-                {
-                    "reference_level": _float(lowest["reference_level"]),
-                    "ratio_to_level": _float(lowest["ratio_to_level"]),
-                    "level_set": str(lowest["level_set"]),
-                    "level_version": str(lowest["level_version"]),
-                    "low_dose_fraction": fraction,
-                }
-            )
-        if hit_p25:
-            parts.append(
-                f"below the 25th percentile {_fmt(percentile_value)} {unit} of the medians of "
-                f"the site's {n_rooms} rooms"
-            )
-            numbers.update(
-                {"site_room_median_p25": float(percentile_value), "site_n_rooms": int(n_rooms)}
-            )
-        reason = (
-            f"Median {_label(quantity)} {_fmt(_float(row['median']))} {unit} of "
-            f"{_exam_text(row, exam_names)}"
-            f"{_where(row)} ({int(row['n_used'])} {_who(row)}) is " + " and ".join(parts) + ". "
-            "Review the image quality of a sample of these examinations with the reporting "
-            "radiologists: a low dose is not a fault in itself, and the protocol needs a change "
-            "only if the images do not answer the clinical question (optimisation, IAEA GSR "
-            "Part 3)."
+    return [
+        _low_dose_flag(
+            row,
+            hit_level=hit_level,
+            fraction=fraction,
+            site_p25=percentile_value if hit_p25 else None,
+            n_rooms=int(n_rooms),
+            exam_names=exam_names,
         )
-        flags.append(
-            Flag(
-                kind="low_dose_review",
-                severity="info",
-                reason=reason,
-                numbers=numbers,
-                quantity=quantity,
-                **_concern(row),
-            )
+        for row, hit_level, hit_p25, percentile_value, n_rooms in zip(
+            _records(rows.loc[flagged]),
+            below_level[flagged],
+            below_p25[flagged],
+            p25[flagged],
+            n_rooms_of[flagged],
+            strict=True,
         )
-    return flags
+    ]
+
+
+def _strictest_level_rows(groups: pd.DataFrame) -> pd.DataFrame:
+    """One row per group that has a verdict (``n_used`` at least ``n_minimum``): its strictest
+    (lowest) level decides, so a group far below an old, high level but near the local one is not
+    "far below the level" (levels sort before no level)."""
+    judged = groups.loc[groups["n_used"].to_numpy() >= groups["n_minimum"].to_numpy()]
+    group_keys = [c for c in GROUP_KEYS if c in judged.columns]
+    ordered = judged.sort_values(
+        [*group_keys, "reference_level", "level_set"], kind="mergesort", na_position="last"
+    )
+    return ordered.drop_duplicates(group_keys, keep="first").copy()
+
+
+def _site_room_median_p25(
+    rows: pd.DataFrame, site_values: pd.DataFrame
+) -> tuple[np.ndarray, np.ndarray]:
+    """For each row, the 25th percentile of the room medians of its site (NaN where the site has
+    none) and the number of rooms it comes from (0 where none), matched on site, exam type,
+    clinical indication, patient group and quantity (a missing key matches a missing key)."""
+    site_keys = ["site", "exam_type", "clinical_indication", "patient_group", "quantity"]
+
+    def key_frame(frame: pd.DataFrame) -> pd.DataFrame:
+        return pd.DataFrame(
+            {k: frame[k].astype(object).where(frame[k].notna(), "\x00") for k in site_keys}
+        )
+
+    lookup = key_frame(site_values)
+    lookup["_p25"] = site_values["room_median_p25"].to_numpy(dtype=np.float64)
+    lookup["_n_rooms"] = site_values["n_rooms"].to_numpy(dtype=np.int64)
+    merged = key_frame(rows).merge(lookup, on=site_keys, how="left", sort=False)
+    p25 = merged["_p25"].to_numpy(dtype=np.float64)
+    n_rooms_of = merged["_n_rooms"].fillna(0).to_numpy(dtype=np.int64)
+    return p25, n_rooms_of
+
+
+def _low_dose_flag(
+    row: Mapping[str, Any],
+    *,
+    hit_level: bool,
+    fraction: float | None,
+    site_p25: float | None,
+    n_rooms: int,
+    exam_names: Mapping[str, str] | None,
+) -> Flag:
+    """The image-quality review flag of one group: below ``fraction`` x its strictest level
+    (``hit_level``), below its site's 25th percentile ``site_p25`` of ``n_rooms`` room medians
+    (not ``None``), or both."""
+    quantity = row["quantity"]
+    unit = _unit(quantity)
+    parts = []
+    numbers: dict[str, Number] = {"median": _float(row["median"]), "n_used": int(row["n_used"])}
+    if hit_level:
+        parts.append(
+            f"{_float(row['ratio_to_level']):.2f} × the {row['level_kind']} level "
+            f"{_fmt(_float(row['reference_level']))} {unit} ({row['level_set']}, version "
+            f"{row['level_version']}), below {_fmt(fraction or 0)} × the level"
+        )
+        numbers.update(
+            {
+                "reference_level": _float(row["reference_level"]),
+                "ratio_to_level": _float(row["ratio_to_level"]),
+                "level_set": str(row["level_set"]),
+                "level_version": str(row["level_version"]),
+                "low_dose_fraction": fraction,
+            }
+        )
+    if site_p25 is not None:
+        parts.append(
+            f"below the 25th percentile {_fmt(site_p25)} {unit} of the medians of "
+            f"the site's {n_rooms} rooms"
+        )
+        numbers.update({"site_room_median_p25": float(site_p25), "site_n_rooms": n_rooms})
+    reason = (
+        f"Median {_label(quantity)} {_fmt(_float(row['median']))} {unit} of "
+        f"{_exam_text(row, exam_names)}"
+        f"{_where(row)} ({int(row['n_used'])} {_who(row)}) is " + " and ".join(parts) + ". "
+        "Review the image quality of a sample of these examinations with the reporting "
+        "radiologists: a low dose is not a fault in itself, and the protocol needs a change "
+        "only if the images do not answer the clinical question (optimisation, IAEA GSR "
+        "Part 3)."
+    )
+    return Flag(
+        kind="low_dose_review",
+        severity="info",
+        reason=reason,
+        numbers=numbers,
+        quantity=quantity,
+        **_concern(row),
+    )

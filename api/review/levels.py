@@ -7,7 +7,10 @@ quantity, patient group and clinical indication.
 
 A level's **patient group** is empty for adults (the ICRP 135 standard-size patient) or names a
 paediatric band (:mod:`beamaudit.api.review.bands`: ``weight_15_30kg``, ``age_1_6y``); an adult
-level never applies to a band, nor a band's level to adults. Its **clinical indication** is empty
+level never applies to a band, nor a band's level to adults. A CT level may name a patient-size
+band (:mod:`.ct_size`: ``ct_dw_20_25cm``) and a mammography level the compressed-thickness band it
+is set for (:mod:`.mammography`: ``breast_50_60mm``, ``breast_45_55mm``), in the same column
+(:func:`patient_group_problem` checks all three kinds). Its **clinical indication** is empty
 (the level applies to every examination of the type) or names one (``acute_stroke``): it then
 applies only to examinations of that indication, and for those it takes the place of the same set's
 level without an indication.
@@ -43,8 +46,10 @@ unit            yes       its unit; converted on import to the quantity's own un
 source          national  the published source of this value (table and row); required for
                           national and international sets
 note            no        free text (e.g. the clinical indication an NDRL is defined for)
-patient_group   no        empty for adults, a paediatric band (``weight_15_30kg``), or for CT a
-                          size band (``ct_dw_20_25cm``: Dw 20-25 cm, :mod:`.ct_size`)
+patient_group   no        empty for adults, a paediatric band (``weight_15_30kg``), for CT a
+                          size band (``ct_dw_20_25cm``: Dw 20-25 cm, :mod:`.ct_size`), or for
+                          mammography a compressed-thickness band (``breast_50_60mm``:
+                          50-60 mm, :mod:`.mammography`)
 clinical_       no        empty, or the clinical indication the level is set for, lower-case
 indication                ``[a-z0-9_]`` (``acute_stroke``)
 ==============  ========  ==================================================================
@@ -71,6 +76,7 @@ from beamaudit.api.review.bands import PatientGroups, load_default_patient_group
 from beamaudit.api.review.ct_size import is_size_band
 from beamaudit.api.review.errors import CsvFormatError, ReviewError
 from beamaudit.api.review.examtypes import ExamCatalogue
+from beamaudit.api.review.mammography import is_thickness_band
 from beamaudit.api.review.quantities import QUANTITIES, quantity_name, to_canonical_unit
 
 __all__ = [
@@ -89,6 +95,7 @@ __all__ = [
     "load_mammography_levels",
     "load_national_levels",
     "load_shipped_levels",
+    "patient_group_problem",
     "read_levels_csv",
     "write_levels_csv",
 ]
@@ -396,6 +403,18 @@ def _group_of(row: dict[str, str]) -> tuple[str, str]:
     return row["patient_group"], row["clinical_indication"]
 
 
+def patient_group_problem(group: str, bands: PatientGroups) -> str | None:
+    """Why ``group`` cannot be a level's patient group, or None: empty (adults), a band of
+    ``bands``, a CT size band or a mammography compressed-thickness band."""
+    if not group or group in bands or is_size_band(group) or is_thickness_band(group):
+        return None
+    return (
+        f"patient_group {group!r} is not a band of {bands.source} (bands: "
+        f"{', '.join(g.patient_group for g in bands)}) nor a CT size band (ct_dw_20_25cm) nor a "
+        "breast thickness band (breast_50_60mm)"
+    )
+
+
 def _set_head_problems(
     row: dict[str, str], line: int, heads: dict[tuple[str, str], tuple[int, dict[str, str]]]
 ) -> list[str]:
@@ -453,11 +472,9 @@ def _level_entry(
         except ReviewError as exc:
             problems.append(str(exc))
     group, indication = _group_of(row)
-    if group and group not in bands and not is_size_band(group):
-        problems.append(
-            f"patient_group {group!r} is not a band of {bands.source} (bands: "
-            f"{', '.join(g.patient_group for g in bands)}) nor a CT size band (ct_dw_20_25cm)"
-        )
+    group_problem = patient_group_problem(group, bands)
+    if group_problem:
+        problems.append(group_problem)
     if indication and not _IDENTIFIER.match(indication):
         problems.append(f"clinical_indication {indication!r} must be lower-case [a-z0-9_]")
     if row["kind"] in PUBLISHED_KINDS and not row["source"]:

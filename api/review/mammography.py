@@ -11,8 +11,11 @@ compressed breast thickness (``breast_thickness_mm`` of the events table) and th
 
 * inside the band: the band's group (``breast_50_60mm``); every view of it is used (it plays for
   mammography the part the standard-size weight window plays elsewhere: weights are seldom
-  recorded), and the exam type's levels without a patient group apply to it, a national
-  mammography DRL being defined for that band;
+  recorded). A level may name the band it is set for in its ``patient_group``, as a CT level
+  names its size band (``breast_50_60mm``; ``breast_45_55mm`` for a set defined on 45-55 mm):
+  the band's own level applies to the group, and a level of another band does not; a level that
+  names no band applies to the review's band as before (a set's level of the band takes its
+  place: ``review/run.py::_applicable_levels``);
 * outside the band: :data:`OUTSIDE_THICKNESS_BAND`, counted and shown, no level;
 * no thickness recorded: :data:`THICKNESS_NOT_RECORDED`, likewise; never guessed into the band.
 
@@ -26,35 +29,50 @@ import math
 
 import numpy as np
 
+from beamaudit.api.review._band_names import band_bounds
+from beamaudit.api.review._band_names import band_name as _band_name
+
 __all__ = [
+    "ANY_THICKNESS_BAND",
     "DEFAULT_THICKNESS_BAND_MM",
     "OUTSIDE_THICKNESS_BAND",
     "THICKNESS_NOT_RECORDED",
     "assign_thickness_bands",
     "band_label",
     "band_name",
+    "is_thickness_band",
     "is_thickness_group",
+    "thickness_band_bounds",
 ]
 
 #: The band national surveys use (common practice), mm.
 DEFAULT_THICKNESS_BAND_MM = (50.0, 60.0)
 OUTSIDE_THICKNESS_BAND = "breast_outside_thickness_band"
+#: what a mammography level that names no band applies to (the levels page's words)
+ANY_THICKNESS_BAND = "compressed breast in the review's thickness band (no band named)"
 THICKNESS_NOT_RECORDED = "breast_thickness_not_recorded"
 _PREFIX = "breast_"
 
 
 def band_name(band_mm: tuple[float, float]) -> str:
     """The group name of a band: ``breast_50_60mm`` (``breast_45p5_60mm`` for 45.5)."""
-    return f"{_PREFIX}{_number(band_mm[0])}_{_number(band_mm[1])}mm"
-
-
-def _number(value: float) -> str:
-    return f"{value:g}".replace(".", "p")
+    return _band_name(_PREFIX, band_mm[0], band_mm[1], "mm")
 
 
 def is_thickness_group(name: str | None) -> bool:
     """Whether ``name`` is one of this module's groups."""
     return name is not None and name.startswith(_PREFIX)
+
+
+def thickness_band_bounds(name: str) -> tuple[float, float] | None:
+    """``(low, high)`` mm of a band name in its one spelling (``breast_50_60mm``), else None
+    (the groups outside the band and not recorded are no band; ``0 < low < high <= 200``)."""
+    return band_bounds(name, _PREFIX, "mm", 200.0)
+
+
+def is_thickness_band(name: str | None) -> bool:
+    """Whether ``name`` is a compressed-thickness band a level may carry."""
+    return name is not None and thickness_band_bounds(name) is not None
 
 
 def band_label(name: str) -> str:
@@ -63,11 +81,10 @@ def band_label(name: str) -> str:
         return "compressed breast outside the thickness band (no level applies)"
     if name == THICKNESS_NOT_RECORDED:
         return "compressed breast thickness not recorded (no level applies)"
-    low, high = name.removeprefix(_PREFIX).removesuffix("mm").replace("p", ".").split("_")
-    return (
-        f"compressed breast {low}-{high} mm (the band national mammography DRLs are set for, "
-        "per view)"
-    )
+    band = thickness_band_bounds(name)
+    if band is None:
+        return name
+    return f"compressed breast {band[0]:g}-{band[1]:g} mm (thickness band, per view)"
 
 
 def check_band(band_mm: tuple[float, float]) -> tuple[float, float] | None:

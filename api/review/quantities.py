@@ -122,7 +122,7 @@ QUANTITIES: MappingProxyType[str, Quantity] = MappingProxyType(
                 "mgd_mgy",
                 "mGy",
                 "mGy",
-                "AGD",
+                "MGD",
                 "mean glandular dose D_G",
                 column="organ_dose_mgy",
                 reconstructed_column="recon_mgd_mgy",

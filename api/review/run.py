@@ -760,19 +760,23 @@ def _applicable_levels(keys: pd.DataFrame, levels: pd.DataFrame) -> pd.DataFrame
     A level applies to its own patient group (an empty one to the main group, ``None``), and to
     every indication when it has none, or to its own; a set's level for the row's indication takes
     the place of the same set's level without one (``level_clinical_indication`` says which).
+    A mammography thickness band (:mod:`.mammography`) takes the levels of its own band, and the
+    levels without a patient group; a set's level of the band takes the place of the same set's
+    level without one (before the indication is asked); the groups outside the band take none.
     """
     frame = keys.loc[:, ["_group", "exam_type", "quantity"]].copy()
     frame["_pg"] = keys["patient_group"].astype(object).where(keys["patient_group"].notna(), "")
-    # a mammography band takes the exam type's levels without a patient group (module docstring
-    # of .mammography); the groups outside it take none
-    frame["_pg"] = frame["_pg"].where(
-        ~frame["_pg"].str.startswith("breast_", na=False)
-        | frame["_pg"].isin(THICKNESS_SPECIAL_GROUPS),
-        "",
+    frame["_band"] = 1
+    band = frame["_pg"].str.startswith("breast_", na=False) & ~frame["_pg"].isin(
+        THICKNESS_SPECIAL_GROUPS
     )
-    frame["_ind"] = (
-        keys["clinical_indication"].astype(object).where(keys["clinical_indication"].notna(), "")
-    )
+    # the band's rows once more, asking for the levels that name no band
+    frame = pd.concat([frame, frame.loc[band].assign(_pg="", _band=0)], ignore_index=True)
+    frame["_ind"] = pd.concat(
+        [keys["clinical_indication"], keys["clinical_indication"].loc[band.to_numpy()]],
+        ignore_index=True,
+    ).astype(object)
+    frame["_ind"] = frame["_ind"].where(frame["_ind"].notna(), "")
     for c in ("exam_type", "quantity"):
         frame[c] = frame[c].astype(object)
     lv = levels.rename(
@@ -783,12 +787,12 @@ def _applicable_levels(keys: pd.DataFrame, levels: pd.DataFrame) -> pd.DataFrame
     applies = (level_indication == "") | (level_indication == merged["_ind"])
     merged = merged.loc[applies.to_numpy()].copy()
     merged["_specific"] = (merged["level_clinical_indication"] != "").astype(int)
-    merged = merged.sort_values(["_group", "level_set", "_specific"], kind="mergesort")
+    merged = merged.sort_values(["_group", "level_set", "_band", "_specific"], kind="mergesort")
     merged = merged.drop_duplicates(["_group", "level_set"], keep="last")
     merged["level_clinical_indication"] = merged["level_clinical_indication"].where(
         merged["level_clinical_indication"] != "", None
     )
-    return merged.drop(columns=["_pg", "_ind", "_specific"])
+    return merged.drop(columns=["_pg", "_ind", "_specific", "_band"])
 
 
 def _group_labels(patient_groups: pd.Series, bands: PatientGroups) -> np.ndarray:

@@ -190,7 +190,9 @@ def _period_conditions(
     epoch = (
         (func.julianday(when) - 2440587.5) * 86400.0
         if sqlite
-        else cast(func.extract("epoch", when), Float)  # numeric would come as Decimal objects
+        # date_part is double precision (extract is numeric: Decimal objects, and slower for
+        # the server to write); the review rounds the seconds to milliseconds either way
+        else func.date_part("epoch", when, type_=Float)
     )
     first_slices = (
         select(func.min(E.id))
@@ -268,14 +270,48 @@ def _study_uids(session: Session, ids: np.ndarray) -> np.ndarray:
     """The Study Instance UIDs of the studies ``ids`` (sorted), in one query over their range."""
     if not len(ids):
         return np.array([], dtype=object)
-    found = dict(
-        session.execute(
-            select(m.Study.id, m.Study.study_instance_uid).where(
-                m.Study.id.between(int(ids[0]), int(ids[-1]))
-            )
-        ).all()
+    stmt = select(m.Study.id, m.Study.study_instance_uid).where(
+        m.Study.id.between(bindparam("first"), bindparam("last"))
     )
-    return np.array([found.get(int(i), f"(study {i})") for i in ids], dtype=object)
+    bounds = {"first": int(ids[0]), "last": int(ids[-1])}
+    found_rows = _study_rows_by_arrow(session, stmt, bounds, len(ids))
+    if found_rows is None:
+        # the rows through the DBAPI cursor: half a million ORM rows cost seconds, these tenths
+        rows = _fetch(session, stmt, bounds)
+        found_rows = rows[:, 0].astype(np.int64), rows[:, 1]
+    found_ids, found_uids = found_rows
+    order = np.argsort(found_ids, kind="stable")
+    at, found = _positions(found_ids[order], ids)
+    out = np.empty(len(ids), dtype=object)
+    out[found] = found_uids[order[at]]
+    for k in np.flatnonzero(~found):  # a study deleted since its events were read
+        out[k] = f"(study {ids[k]})"
+    return out
+
+
+def _study_rows_by_arrow(
+    session: Session, stmt: Any, values: dict[str, Any], n: int
+) -> tuple[np.ndarray, np.ndarray] | None:
+    """The studies' ids and UIDs of ``stmt`` through the ADBC PostgreSQL driver (the texts
+    made in C, not one DBAPI row each); None on another backend, for fewer than
+    ``_ARROW_MIN_EVENTS`` studies, or when the driver cannot read them as the session sees them."""
+    if n < _ARROW_MIN_EVENTS or session.get_bind().dialect.name != "postgresql":
+        return None
+    source = _postgres_arrow_reader(session)
+    if source is None:
+        return None
+    census = select(func.count(), func.max(m.Study.id))
+    expected = tuple(session.execute(census).one())
+    statements = source.statements(stmt, values)
+    census_sql = str(census.compile(dialect=session.get_bind().dialect))
+    pieces = source.read(census_sql, expected, statements) if statements else None
+    if not pieces:
+        return None
+    table = pieces[0]
+    return (
+        table.column(0).to_numpy(zero_copy_only=False).astype(np.int64),
+        table.column(1).to_numpy(zero_copy_only=False).astype(object),
+    )
 
 
 def _text_categorical(values: np.ndarray) -> pd.Categorical:
@@ -418,8 +454,10 @@ def _dense_by_arrow(
     month of a million events); the ADBC drivers (Apache Arrow's database connectivity) write the
     values into Arrow arrays in C, which NumPy and pandas take as they are. Every number is read
     as a double and the two texts as texts ('' for NULL), so that every column has one type
-    whatever its first rows hold; the sparse columns come in the same read (a second pass over
-    the table costs more than carrying them).
+    whatever its first rows hold. On SQLite the sparse columns come in the same read (a second
+    pass over the table costs more than carrying them); on PostgreSQL in a second read of the
+    events that have one (the server spends more on writing a million rows of empty columns
+    than on a second scan).
 
     * SQLite (a database file): the ADBC SQLite driver in a short-lived process of its own
       (:mod:`beamaudit.api.store.sqlite_arrow`: the driver has its own copy of the SQLite library,
@@ -446,7 +484,6 @@ def _dense_by_arrow(
     source = reader(session) if reader is not None else None
     if source is None:
         return None
-    texts = ("modality", "exam_type")
 
     def number(column: Any) -> Any:
         as_float = cast(column, Float)
@@ -454,11 +491,46 @@ def _dense_by_arrow(
             return as_float
         return func.coalesce(as_float, literal_column(repr(source.null)))
 
-    selected = [
-        func.coalesce(c, "") if c.key in texts else number(c) for c in _DENSE_SELECT
-    ] + [number(epoch)] + [number(c) for _, c in _SPARSE_COLUMNS]  # fmt: skip
+    dense = [func.coalesce(c, "") if c.key in _ARROW_TEXTS else number(c) for c in _DENSE_SELECT]
+    dense_names = [c.key for c in _DENSE_SELECT] + ["epoch_s"]
+    sparse = [number(c) for _, c in _SPARSE_COLUMNS]
+    sparse_names = [n for n, _ in _SPARSE_COLUMNS]
     census_sql = str(census.compile(dialect=session.get_bind().dialect))
-    statements = source.statements(select(*selected).where(*conditions), values)
+
+    def read(stmt: Any, names: list[str]) -> dict[str, Any] | None:
+        return _arrow_columns(source, census_sql, expected, stmt, values, names)
+
+    if not source.sparse_apart:
+        return read(
+            select(*dense, number(epoch), *sparse).where(*conditions), dense_names + sparse_names
+        )
+    out = read(select(*dense, number(epoch)).where(*conditions), dense_names)
+    having = or_(*(c.is_not(None) for _, c in _SPARSE_COLUMNS))
+    few = read(
+        select(number(E.id), *sparse).where(*conditions, having), ["event_id", *sparse_names]
+    )
+    if out is None or few is None:
+        return None
+    at, found = _positions(out["event_id"], few["event_id"])
+    for name in sparse_names:
+        column = np.full(len(out["event_id"]), np.nan)
+        column[at] = few[name][found]
+        out[name] = column
+    return out
+
+
+def _arrow_columns(
+    source: _ArrowSource,
+    census_sql: str,
+    expected: tuple[Any, ...],
+    stmt: Any,
+    values: dict[str, Any],
+    names: list[str],
+) -> dict[str, Any] | None:
+    """The columns ``names`` of ``stmt`` read by ``source``, in id order (the first column):
+    texts as categoricals, numbers as float arrays (NaN for NULL), ``event_id`` as integers;
+    None when the driver cannot read them or gives a column of another type."""
+    statements = source.statements(stmt, values)
     if statements is None:
         return None
     pieces = source.read(census_sql, expected, statements)
@@ -473,17 +545,16 @@ def _dense_by_arrow(
     if len(ids) > 1 and not (np.diff(ids) > 0).all():
         table = table.take(np.argsort(ids, kind="stable"))  # sorted runs or none: merged
     out: dict[str, Any] = {}
-    names = [c.key for c in _DENSE_SELECT] + ["epoch_s"] + [n for n, _ in _SPARSE_COLUMNS]
     for j, name in enumerate(names):
         column = table.column(j)
         if len(column) == 0:  # no rows: SQLite's driver gives such columns no type
             out[name] = (
                 pd.Categorical([], categories=pd.Index([], dtype=object))
-                if name in texts
+                if name in _ARROW_TEXTS
                 else np.zeros(0, dtype=np.float64)
             )
             continue
-        if name in texts:
+        if name in _ARROW_TEXTS:
             out[name] = _arrow_categorical(column)
             continue
         if not pyarrow.types.is_float64(column.type):  # double by the query: else not understood
@@ -495,6 +566,9 @@ def _dense_by_arrow(
     out["event_id"] = out["event_id"].astype(np.int64)
     return out
 
+
+#: The dense columns read as texts through an ADBC driver ('' for NULL)
+_ARROW_TEXTS = ("modality", "exam_type")
 
 #: Stored events below which a review reads plain rows rather than through an ADBC driver:
 #: starting the driver (on SQLite a process of its own with pyarrow, about 0.3-0.5 s of CPU)
@@ -514,6 +588,9 @@ class _ArrowSource:
     read: Callable[[str, tuple[Any, ...], list[str]], list[Any] | None]
     #: the number standing for NULL in number columns; None: Arrow's own null
     null: float | None
+    #: whether the sparse columns are read apart, for the events that have one (PostgreSQL:
+    #: writing a million rows of seven empty columns costs the server more than a second scan)
+    sparse_apart: bool = False
 
 
 def _sqlite_literal(value: Any) -> str | None:
@@ -656,7 +733,7 @@ def _postgres_arrow_reader(session: Session) -> _ArrowSource | None:
             return None
         return None if any(p is None for p in pieces) else pieces
 
-    return _ArrowSource(statements, read, None)
+    return _ArrowSource(statements, read, None, sparse_apart=True)
 
 
 def _arrow_categorical(column: Any) -> pd.Categorical:
@@ -817,16 +894,30 @@ def _lookback_start(period: Period, months: int) -> date:
     return date(y, mo, 1)
 
 
-def _history(
-    session: Session, params: ReviewParameters, catalogue: ExamCatalogue
-) -> pd.DataFrame | None:
+def _period_and_lookback(
+    session: Session, params: ReviewParameters
+) -> tuple[pd.DataFrame, pd.DataFrame | None]:
+    """The events of the period and those of the change-point lookback before it (None without
+    a lookback), read together: one pass over the events table rather than two."""
     months = params.changepoint_lookback_months
     if months <= 0:
+        return review_events(session, start=params.period.start, end=params.period.end), None
+    both = review_events(
+        session, start=_lookback_start(params.period, months), end=params.period.end
+    )
+    earlier = (both["event_datetime"] < pd.Timestamp(_as_utc(params.period.start))).to_numpy()
+    if not earlier.any():
+        return both, None
+    return both.loc[~earlier].reset_index(drop=True), both.loc[earlier].reset_index(drop=True)
+
+
+def _history(
+    events: pd.DataFrame | None, params: ReviewParameters, catalogue: ExamCatalogue
+) -> pd.DataFrame | None:
+    """The monthly medians of the lookback's ``events`` (the change-point history), or None."""
+    if events is None or events.empty:
         return None
-    start = _lookback_start(params.period, months)
-    events = review_events(session, start=start, end=params.period.start)
-    if events.empty:
-        return None
+    start = _lookback_start(params.period, params.changepoint_lookback_months)
     earlier = replace(
         params, period=Period(start, params.period.start), levels_on=params.period.start
     )
@@ -844,8 +935,8 @@ def execute_review(
     catalogue, rules = ensure_catalogue(session)
     pairs = level_sets_from_store(session)
     levels = [s for _, s in pairs]
-    events = review_events(session, start=params.period.start, end=params.period.end)
-    history = _history(session, params, catalogue)
+    events, before = _period_and_lookback(session, params)
+    history = _history(before, params, catalogue)
     result = review(
         events, levels=levels, params=params, history_df=history, catalogue=catalogue, rules=rules
     )

@@ -10,6 +10,7 @@ from __future__ import annotations
 
 from collections.abc import Iterator
 from contextlib import contextmanager
+from pathlib import Path
 from typing import Any
 
 from sqlalchemy import create_engine, event, text
@@ -19,7 +20,14 @@ from sqlalchemy.orm import Session, sessionmaker
 
 from beamaudit.api.errors import ApiError
 
-__all__ = ["StoreError", "check_connection", "make_engine", "make_session_factory", "session_scope"]
+__all__ = [
+    "StoreError",
+    "check_connection",
+    "database_files",
+    "make_engine",
+    "make_session_factory",
+    "session_scope",
+]
 
 SQLITE_BUSY_TIMEOUT_MS = 30_000
 POOL_SIZE = 10
@@ -38,6 +46,24 @@ def _sqlite_pragmas(dbapi_connection: Any, _record: Any) -> None:
     cursor.execute(f"PRAGMA busy_timeout={SQLITE_BUSY_TIMEOUT_MS}")
     cursor.execute("PRAGMA synchronous=NORMAL")
     cursor.close()
+
+
+#: the files SQLite keeps beside a database file (https://sqlite.org/tempfiles.html)
+SQLITE_SIDE_FILES = ("-wal", "-shm", "-journal")
+
+
+def database_files(engine: Engine | None) -> list[Path]:
+    """The files of a SQLite store (the database and its side files, whether they exist now
+    or not); none for another database or one in memory. A scan must not open them: this
+    process holds SQLite's POSIX locks on them, and closing any descriptor of a file drops
+    every lock the process holds on it."""
+    if engine is None or engine.url.get_backend_name() != "sqlite":
+        return []
+    database = engine.url.database
+    if database in (None, "", ":memory:"):
+        return []
+    path = Path(database).resolve()
+    return [path, *(path.with_name(path.name + side) for side in SQLITE_SIDE_FILES)]
 
 
 def make_engine(database_url: str, **kwargs: Any) -> Engine:

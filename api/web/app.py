@@ -6,6 +6,7 @@ Build it with :func:`create_app`; nothing happens at import time.
 from __future__ import annotations
 
 import logging
+from pathlib import Path
 from typing import Any
 
 from fastapi import FastAPI, Request
@@ -123,14 +124,7 @@ def create_app(settings: Settings, *, engine: Engine | None = None) -> FastAPI:
 
     configure_logging()  # one line per record, library warnings without data values
     if settings.mammography_coefficients_file is not None:  # an upload computes D_G too
-        from beamaudit.api.intake.mammography import use_official_coefficients
-        from beamaudit.api.settings import SettingsError
-        from beamaudit.model import ModelError
-
-        try:
-            use_official_coefficients(settings.mammography_coefficients_file)
-        except ModelError as exc:
-            raise SettingsError(f"mammography_coefficients_file: {exc}") from None
+        _use_mammography_coefficients(settings.mammography_coefficients_file)
     engine = engine if engine is not None else make_engine(settings.database_url)
     app = FastAPI(
         title="beamaudit",
@@ -145,6 +139,43 @@ def create_app(settings: Settings, *, engine: Engine | None = None) -> FastAPI:
         redoc_url=None,
     )
     app.state.settings = settings
+    _add_middleware(app, settings)
+    app.state.engine = engine
+    app.state.session_factory = make_session_factory(engine)
+    _add_health_route(app, settings, engine)
+    from beamaudit.api.web.routes import api_router
+    from beamaudit.api.web.routes.openapi import customise_openapi
+
+    app.include_router(api_router(), prefix=API_PREFIX)
+    # -- dashboard pages
+    from beamaudit.api.web.pages import router as pages_router
+
+    app.include_router(pages_router)
+    if settings.api.docs:
+        _add_docs(app)
+    from beamaudit.api.web.metrics import add_metrics_route
+
+    add_metrics_route(app, settings)  # [metrics]: off, admin token, or an address of its own
+    _add_exception_handlers(app)
+    customise_openapi(app)
+    return app
+
+
+def _use_mammography_coefficients(path: Path) -> None:
+    """Compute D_G on upload with the coefficient file ``path``; a file we cannot use is a
+    settings error."""
+    from beamaudit.api.intake.mammography import use_official_coefficients
+    from beamaudit.api.settings import SettingsError
+    from beamaudit.model import ModelError
+
+    try:
+        use_official_coefficients(path)
+    except ModelError as exc:
+        raise SettingsError(f"mammography_coefficients_file: {exc}") from None
+
+
+def _add_middleware(app: FastAPI, settings: Settings) -> None:
+    """The security headers on every answer; CORS only for the configured origins."""
     from beamaudit.api.web.security_headers import SecurityHeaders
 
     app.add_middleware(SecurityHeaders)
@@ -157,8 +188,10 @@ def create_app(settings: Settings, *, engine: Engine | None = None) -> FastAPI:
             allow_methods=["GET", "POST", "PATCH", "PUT", "DELETE"],
             allow_headers=["Authorization", "Content-Type"],
         )
-    app.state.engine = engine
-    app.state.session_factory = make_session_factory(engine)
+
+
+def _add_health_route(app: FastAPI, settings: Settings, engine: Engine) -> None:
+    """``GET /api/v1/health``: liveness and database reachability, without a token."""
 
     @app.get(
         f"{API_PREFIX}/health",
@@ -180,11 +213,10 @@ def create_app(settings: Settings, *, engine: Engine | None = None) -> FastAPI:
             return JSONResponse(body, status_code=503)
         return body
 
-    from beamaudit.api.web.routes import api_router
-    from beamaudit.api.web.routes.openapi import customise_openapi
 
-    app.include_router(api_router(), prefix=API_PREFIX)
-    # -- dashboard pages
+def _add_exception_handlers(app: FastAPI) -> None:
+    """Pages answer errors in HTML (a sign-in redirect, an error page), the API in JSON; a lost
+    database and an unexpected error each have one answer without a traceback."""
     from starlette.exceptions import HTTPException as StarletteHTTPException
 
     from beamaudit.api.web.pages import (
@@ -193,23 +225,14 @@ def create_app(settings: Settings, *, engine: Engine | None = None) -> FastAPI:
         http_error_handler,
         login_redirect_handler,
     )
-    from beamaudit.api.web.pages import router as pages_router
     from beamaudit.dashboards import DashboardError
 
-    app.include_router(pages_router)
-    if settings.api.docs:
-        _add_docs(app)
-    from beamaudit.api.web.metrics import add_metrics_route
-
-    add_metrics_route(app, settings)  # [metrics]: off, admin token, or an address of its own
     app.add_exception_handler(_LoginRedirect, login_redirect_handler)
     app.add_exception_handler(StarletteHTTPException, http_error_handler)  # pages: HTML
     app.add_exception_handler(DashboardError, dashboard_error_handler)
     app.add_exception_handler(RequestValidationError, _invalid_request)
     app.add_exception_handler(OperationalError, _database_unavailable)
     app.add_exception_handler(Exception, _unexpected_error)
-    customise_openapi(app)
-    return app
 
 
 def create_app_from_environment() -> FastAPI:
@@ -218,7 +241,20 @@ def create_app_from_environment() -> FastAPI:
     from beamaudit.api.settings import load
 
     _end_with_the_serving_process()
-    return create_app(load())
+    app = create_app(load())
+    warm_up_model()
+    return app
+
+
+def warm_up_model() -> None:
+    """The model's data tables loaded before the first request (a failure here is logged, and
+    the tables are then loaded by the first request that needs them)."""
+    from beamaudit.api.intake.reconstruct import warm_up
+
+    try:
+        warm_up()
+    except Exception:  # serving goes on; the first trail pays for the tables instead
+        log.exception("loading the model's data tables before serving failed")
 
 
 def _end_with_the_serving_process() -> None:

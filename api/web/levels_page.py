@@ -12,8 +12,9 @@ from typing import Any
 
 from sqlalchemy.orm import Session
 
-from beamaudit.api.review.bands import load_default_patient_groups
+from beamaudit.api.review.bands import PatientGroups, load_default_patient_groups
 from beamaudit.api.review.levels import levels_in_effect
+from beamaudit.api.review.mammography import ANY_THICKNESS_BAND
 from beamaudit.api.review.quantities import QUANTITIES
 from beamaudit.api.runs.local_levels import proposal_rows, record_run
 from beamaudit.api.store.review_rows import catalogue_from_store, level_sets_from_store
@@ -34,10 +35,19 @@ def _quantity_label(name: str) -> str:
     return f"{q.label} ({q.display_unit})" if q is not None else name
 
 
+def _level_group(bands: PatientGroups, group: str, *, mammography: bool) -> str:
+    """A level's patient group for people: a band's label; a mammography level that names no
+    band applies to the review's thickness band; "" for adults."""
+    if group:
+        return bands.label(group)
+    return ANY_THICKNESS_BAND if mammography else ""
+
+
 def levels_page_data(session: Session, *, physicist: bool, today: date) -> dict[str, Any]:
     """Keyword arguments of :func:`beamaudit.dashboards.render_levels` (context aside)."""
     catalogue = catalogue_from_store(session)
     names = {t.exam_type: t.name for t in catalogue.types}
+    mammography = {t.exam_type for t in catalogue.types if t.modality_group == "mammography"}
     bands = load_default_patient_groups()
     run = record_run(session)
     proposals = []
@@ -73,7 +83,9 @@ def levels_page_data(session: Session, *, physicist: bool, today: date) -> dict[
                     "exam_name": names.get(e.exam_type, e.exam_type),
                     "quantity": e.quantity,
                     "quantity_label": _quantity_label(e.quantity),
-                    "patient_group": bands.label(e.patient_group) if e.patient_group else "",
+                    "patient_group": _level_group(
+                        bands, e.patient_group, mammography=e.exam_type in mammography
+                    ),
                     "clinical_indication": e.clinical_indication,
                     "value": e.value,
                     "unit": _display_unit(e.quantity, e.unit),

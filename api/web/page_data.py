@@ -301,6 +301,15 @@ def why_steps(trail_steps: list[dict[str, Any]]) -> list[dict[str, Any]]:
     return steps
 
 
+def _trail_uncertainty(e: m.ExposureEventRow, quantity: str) -> dict[str, float]:
+    """``{"uncertainty": u}`` from the size trail's step ``quantity`` (empty when the event
+    was sized before uncertainties were estimated)."""
+    for step in (e.size_trail or {}).get("steps", []):
+        if step.get("quantity") == quantity and isinstance(step.get("value"), int | float):
+            return {"uncertainty": float(step["value"])}
+    return {}
+
+
 def _size_figures(e: m.ExposureEventRow) -> dict[str, Any]:
     """A CT event's patient size from the images and SSDE from it, beside the scanner's."""
     out: dict[str, Any] = {}
@@ -315,19 +324,23 @@ def _size_figures(e: m.ExposureEventRow) -> dict[str, Any]:
             )
         )
         dw: dict[str, Any] = {"value": float(e.size_dw_mean_cm), "unit": "cm", "source": how}
+        dw |= _trail_uncertainty(e, "water_equivalent_diameter_mean_standard_uncertainty_cm")
         if e.water_equivalent_diameter_mm:
             dw["reported"] = e.water_equivalent_diameter_mm / 10.0
             dw["ratio"] = dw["reported"] / dw["value"]
         out["water_equivalent_diameter_cm"] = dw
         if e.size_dw_centre_cm is not None:
-            out["water_equivalent_diameter_centre_cm"] = {
-                "value": float(e.size_dw_centre_cm), "unit": "cm", "source": how,
-            }  # fmt: skip
+            centre = {"value": float(e.size_dw_centre_cm), "unit": "cm", "source": how}
+            centre |= _trail_uncertainty(
+                e, "water_equivalent_diameter_centre_standard_uncertainty_cm"
+            )
+            out["water_equivalent_diameter_centre_cm"] = centre
     if e.size_ssde_mgy is not None:
         ssde: dict[str, Any] = {
             "value": float(e.size_ssde_mgy),
             "source": f"{e.size_ssde_report}, from the scan-range average Dw",
         }
+        ssde |= _trail_uncertainty(e, "ssde_standard_uncertainty_mgy")
         if e.ssde_mgy is not None and e.size_ssde_mgy > 0:
             ssde["reported"] = float(e.ssde_mgy)
             ssde["ratio"] = float(e.ssde_mgy) / float(e.size_ssde_mgy)
@@ -438,7 +451,8 @@ def _exposure(session: Session, e: m.ExposureEventRow) -> dict[str, Any]:
         "event_datetime": e.event_datetime or e.study_datetime,
         "technique": technique,
         "dose": dose,
-        "why": _why(trail),
+        # a CT event's patient size and SSDE have a trail of their own (api/intake/ct_sizing.py)
+        "why": _why(trail) + why_steps((e.size_trail or {}).get("steps", [])),
         "spectrum": _spectrum(e) if e.recon_status == "ok" else None,
     }
 

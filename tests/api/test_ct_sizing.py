@@ -104,6 +104,19 @@ def test_a_scanned_series_gets_its_dw_and_ssde_reading_only_the_chosen_images(
     assert dose["water_equivalent_diameter_cm"]["unit"] == "cm"
     assert "axial images: 9 used" in dose["water_equivalent_diameter_cm"]["source"]
     assert dose["ssde_mgy"]["source"].startswith("AAPM Report 204 (2011)")
+    # uncertainties worked by hand (GUM eq. 5 and 10): the 9 samples' spread over sqrt(9) and
+    # the axial method's 2 % in quadrature; the SSDE from b u(Dw) and the fit's 10 %
+    dws = [_dw_at(z) for z in range(0, 401, 50)]
+    mean = sum(dws) / 9
+    s_dw = math.sqrt(sum((d - mean) ** 2 for d in dws) / 8)
+    u_dw = math.hypot(s_dw / 3, 0.02 * events[0].size_dw_mean_cm)
+    assert dose["water_equivalent_diameter_cm"]["uncertainty"] == pytest.approx(u_dw, rel=1e-2)
+    u_ssde = math.hypot(0.03671937 * u_dw, 0.10) * events[0].size_ssde_mgy
+    assert dose["ssde_mgy"]["uncertainty"] == pytest.approx(u_ssde, rel=1e-2)
+    why = [step["quantity"] for step in record["exposures"][0]["why"]]
+    assert "water_equivalent_diameter_mean_cm" in why and "ssde_mgy" in why  # the size's trail
+    centre = dose["water_equivalent_diameter_centre_cm"]
+    assert centre["uncertainty"] == pytest.approx(0.02 * centre["value"], rel=1e-9)
     size = event_size(events[0])
     assert size.method == "axial_images" and size.ssde_report == "AAPM Report 204 (2011)"
     (ssde,) = [c for c in dose_breakdown(events[0]) if c.quantity == "ssde_mgy"]

@@ -12,6 +12,7 @@ from __future__ import annotations
 
 import subprocess
 from collections.abc import Iterator
+from datetime import datetime
 from pathlib import Path
 from types import SimpleNamespace
 from typing import Any
@@ -192,13 +193,21 @@ def test_the_trail_is_made_again_with_the_stored_figure(store, tmp_path) -> None
 
 @pytest.mark.peer
 def test_c_store_gives_the_columns_of_the_scan(store, tmp_path) -> None:
+    folder, _, _ = _objects(tmp_path)
+    _send_with_storescu(store, folder)
+    received = _stored(store.session_factory)
+    scanned_store = tmp_path / "scanned"
+    scanned_store.mkdir()
+    assert received == _scan_elsewhere(folder, scanned_store)
 
+
+def _send_with_storescu(store, folder: Path) -> None:
+    """Every file of ``folder`` from dcmtk's storescu to the listener, stored in ``store``."""
     from beamaudit.api.intake.receiving import make_store_handler
     from beamaudit.ingest.listener import ListenerConfig, start_listener
 
     storescu = which_or_none("storescu")
     require_peer("dcmtk storescu", storescu is not None, "apt-get install -y dcmtk")
-    folder, _, _ = _objects(tmp_path)
     handler = make_store_handler(
         Pipeline(store.session_factory, completion=Completion()), Pseudonymiser(b"k" * 32)
     )
@@ -209,10 +218,6 @@ def test_c_store_gives_the_columns_of_the_scan(store, tmp_path) -> None:
             capture_output=True, text=True, timeout=60, env={"TCP_NODELAY": "1"},
         )  # fmt: skip
     assert proc.returncode == 0, proc.stderr
-    received = _stored(store.session_factory)
-    scanned_store = tmp_path / "scanned"
-    scanned_store.mkdir()
-    assert received == _scan_elsewhere(folder, scanned_store)
 
 
 def _scan_elsewhere(folder: Path, tmp_path: Path) -> dict[tuple[Any, ...], dict[str, Any]]:
@@ -252,6 +257,67 @@ def test_a_dicomweb_pull_gives_the_columns_of_the_scan(backend: str, tmp_path: P
     scanned_store = tmp_path / "scanned"
     scanned_store.mkdir()
     assert pulled == _scan_elsewhere(folder, scanned_store)
+
+
+def _standard_objects(tmp_path: Path) -> Path:
+    """The standard-built Digital Mammography image (``tests/ingest/mg_standard.py``: PS3.3 A.27,
+    checked by dciodvfy) and a mammography dose report (TID 10001 with TID 10003 events and
+    TID 10005 per breast) of the same study, patient and device, as a site sends them."""
+    from mg_standard import standard_mammogram
+
+    image = standard_mammogram()
+    report = mammography_report(
+        study_uid=image.StudyInstanceUID, study_datetime=datetime(2024, 3, 12, 10, 20),
+        patient_id=image.PatientID, patient_age="057Y", manufacturer=image.Manufacturer,
+        model_name=image.ManufacturerModelName, device_serial_number=image.DeviceSerialNumber,
+        station_name=image.StationName, institution_name=image.InstitutionName,
+    )  # fmt: skip
+    folder = tmp_path / "standard"
+    folder.mkdir()
+    image.save_as(folder / "image.dcm", enforce_file_format=True)
+    report.save_as(folder / "report.dcm", enforce_file_format=True)
+    return folder
+
+
+@pytest.mark.peer
+def test_the_standard_built_image_and_a_report_by_c_store_as_scanned(store, tmp_path) -> None:
+    folder = _standard_objects(tmp_path)
+    _send_with_storescu(store, folder)
+    received = _stored(store.session_factory)
+    assert received[("image_header", "CC", "2d")]["organ_dose_mgy"] == pytest.approx(1.48)
+    assert received[("rdsr", "MLO", "2d")]["recon_status"] == "ok"
+    (tmp_path / "scanned").mkdir()
+    assert received == _scan_elsewhere(folder, tmp_path / "scanned")
+
+
+@pytest.mark.peer
+def test_the_standard_built_image_and_a_report_pulled_from_orthanc_as_scanned(
+    store, tmp_path
+) -> None:
+    # Orthanc with its DICOMweb plugin (Debian orthanc, orthanc-dicomweb) as the PACS: QIDO-RS
+    # and WADO-RS metadata, as a site's archive answers them
+    from peers import orthanc_missing, start_orthanc
+
+    from beamaudit.api.intake.pulling import pull_source
+
+    reason = orthanc_missing()
+    require_peer("Orthanc with DICOMweb", reason is None, reason or "")
+    folder = _standard_objects(tmp_path)
+    peer = start_orthanc(tmp_path / "orthanc")
+    try:
+        for path in sorted(folder.iterdir()):
+            peer.upload(path.read_bytes())
+        outcome = pull_source(
+            store.session_factory, url=peer.dicomweb_url, since="2024-03-01", modalities=None,
+            pseudonymiser=Pseudonymiser(b"k" * 32),
+        )  # fmt: skip
+    finally:
+        peer.stop()
+    assert not outcome.errors
+    pulled = _stored(store.session_factory)
+    assert pulled[("image_header", "CC", "2d")]["organ_dose_mgy"] == pytest.approx(1.48)
+    (tmp_path / "scanned").mkdir()
+    assert pulled == _scan_elsewhere(folder, tmp_path / "scanned")
 
 
 def test_a_stored_review_groups_the_views_by_thickness_band(store, tmp_path) -> None:
@@ -301,7 +367,7 @@ def test_explain_and_export_name_the_mammography_figures(settings_env, tmp_path,
     assert explained["mammography"]["reported_mgd_mgy"] == pytest.approx(1.31)
     assert main(["explain", header["id"]]) == 0
     text = capsys.readouterr().out
-    assert "mean glandular dose (AGD)" in text and "W/Rh" in text
+    assert "mean glandular dose (MGD)" in text and "W/Rh" in text
 
 
 def test_stored_events_map_2d_and_tomosynthesis_by_their_acquisition(store, tmp_path) -> None:

@@ -380,3 +380,19 @@ def test_a_header_with_a_reports_irradiation_event_uid_is_superseded_across_stud
             ).all()
         )
     assert superseded == {"1.2.3.11.1": True, "1.2.3.11.2": False, "1.2.3.11.9": False}
+
+
+def test_threads_of_one_process_take_turns_at_a_sqlite_writer(store) -> None:
+    # SQLite has one writer at a time (https://sqlite.org/lockingv3.html); a thread that finds
+    # it busy polls with sleeps of up to 100 ms, so threads of one process queue on one lock
+    import contextlib
+    import threading
+
+    from beamaudit.api.intake.pipeline import writer_turn
+
+    turn = writer_turn(store.session_factory)
+    if store.backend == "sqlite":
+        assert isinstance(turn, type(threading.RLock()))
+        assert writer_turn(store.session_factory) is turn  # one per database
+    else:  # PostgreSQL has row locks and many writers
+        assert isinstance(turn, contextlib.nullcontext)

@@ -336,3 +336,13 @@ def test_the_exam_page_draws_the_beam_of_the_recipe_after_a_recalibration(store)
     assert record is not None
     (exposure,) = record["exposures"]
     assert math.isclose(exposure["spectrum"]["hvl1_mm_al"], row.recon_hvl1_mm_al, rel_tol=1e-9)
+
+
+def test_warm_up_loads_the_model_tables_a_serving_process_needs() -> None:
+    # serve (one worker or many) calls it before its first request: the first trails of a
+    # burst of requests then cost what later ones cost (issue #24, bench_load's tail)
+    from beamaudit.api.intake import reconstruct
+
+    reconstruct.warm_up()
+    beam = reconstruct._TRAIL_BEAMS.get(kvp_kv=80.0, filters=None, room=None, calibration=None)
+    assert beam.hvl1_mm_al > 0

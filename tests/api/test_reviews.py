@@ -11,6 +11,7 @@ from __future__ import annotations
 
 import math
 import random
+from dataclasses import replace
 from datetime import UTC, date, datetime, timedelta
 from typing import Any
 
@@ -48,92 +49,95 @@ def _fill(sessions: Any, n: int = 400, seed: int = 7) -> None:
     """Events in and around March 2026 with every case the events table distinguishes."""
     rng = random.Random(seed)
     with sessions.begin() as s:
-        s.execute(
-            insert(m.Site), [{"id": 1, "name": "Site A (invented)"}, {"id": 2, "name": "Site B"}]
-        )
-        s.execute(
-            insert(m.Room),
-            [
-                {"id": 3, "site_id": 1, "name": "ROOM 3"},
-                {"id": 5, "site_id": 1, "name": "ROOM 5"},
-                {"id": 8, "site_id": 2, "name": "ROOM 3"},  # the same name in two sites
-            ],
-        )
-        s.execute(
-            insert(m.Device),
-            [
-                {"id": 2, "room_id": 3, "manufacturer": "Acme", "model_name": "X1"},
-                {"id": 4, "room_id": 5, "station_name": "STATION4"},
-            ],
-        )
-        s.execute(
-            insert(m.Study),
-            [{"id": i, "study_instance_uid": f"2.25.{i}"} for i in range(1, n // 3 + 1)],
-        )
-        s.execute(
-            insert(m.SourceObjectRow),
-            [
-                {"id": i, "sop_instance_uid": f"2.25.9{i}", "sop_class_uid": "1.2.3",
-                 "kind": "image_header", "received_via": "test"}
-                for i in range(1, n + 1)
-            ],
-        )  # fmt: skip
-        rows = []
+        _fill_places(s, n)
         ids = list(range(1, n + 1))
         rng.shuffle(ids)  # inserted out of id order
-        for i in ids:
-            start = datetime(2026, 2, 26, tzinfo=UTC)
-            when = (
-                start
-                + timedelta(seconds=rng.randrange(0, 40 * 86400))
-                + timedelta(microseconds=rng.randrange(0, 10**6))
-            )
-
-            def maybe(value: float, p: float = 0.7) -> float | None:
-                return value if rng.random() < p else None
-
-            rows.append(
-                {
-                    "id": i,
-                    "event_key": f"k{i}",
-                    "source_object_id": i,
-                    "study_id": rng.choice([None, *range(1, n // 3 + 1)]),
-                    "room_id": rng.choice([None, 3, 5, 8]),
-                    "device_id": rng.choice([None, 2, 4]),
-                    "source_kind": rng.choice(["image_header", "image_header", "dose_report"]),
-                    "event_index": 0,
-                    "exam_type": rng.choice(EXAMS),
-                    "superseded": rng.random() < 0.1,
-                    "modality": rng.choice(MODALITIES),
-                    "acquisition_key": rng.choice([None, None, "a1", "a2", "a3"]),
-                    "event_datetime": when if rng.random() < 0.9 else None,
-                    "study_datetime": when - timedelta(minutes=5),
-                    "event_type": rng.choice([None, "fluoroscopy", "stationary"]),
-                    "irradiation_duration_s": maybe(rng.uniform(0, 600), 0.5),
-                    "study_description": rng.choice([None, "CHEST", "Abdomen"]),
-                    "series_description": rng.choice([None, "PA"]),
-                    "protocol_name": rng.choice([None, "P1"]),
-                    "body_part": rng.choice([None, "CHEST", "HEAD"]),
-                    "view_position": rng.choice([None, "PA", "AP"]),
-                    "patient_weight_kg": maybe(rng.uniform(20, 140)),
-                    "dap_gy_cm2": maybe(rng.lognormvariate(-1, 0.5)),
-                    "recon_dap_gy_cm2": maybe(rng.lognormvariate(-1, 0.5)),
-                    "recon_esak_mgy": maybe(rng.lognormvariate(0, 0.5)),
-                    "reference_point_air_kerma_mgy": maybe(rng.uniform(0, 50), 0.2),
-                    "ctdivol_mgy": maybe(rng.uniform(1, 60), 0.2),
-                    "dlp_mgy_cm": maybe(rng.uniform(10, 900), 0.2),
-                    "organ_dose_mgy": maybe(rng.uniform(0.5, 3), 0.1),
-                    "deviation_index": maybe(rng.uniform(-5, 5), 0.5),
-                    "size_dw_mean_cm": maybe(rng.uniform(12, 45), 0.4),
-                    "water_equivalent_diameter_mm": maybe(rng.uniform(120, 450), 0.4),
-                    "provenance": {},
-                    "notes": [],
-                }
-            )
-        s.execute(insert(m.ExposureEventRow), rows)
+        s.execute(insert(m.ExposureEventRow), [_random_event(rng, i, n) for i in ids])
 
 
-def _plain_table(session: Any) -> pd.DataFrame:
+def _fill_places(s: Any, n: int) -> None:
+    """Two sites, three rooms (one name in two sites), two devices, n/3 studies, n objects."""
+    s.execute(insert(m.Site), [{"id": 1, "name": "Site A (invented)"}, {"id": 2, "name": "Site B"}])
+    s.execute(
+        insert(m.Room),
+        [
+            {"id": 3, "site_id": 1, "name": "ROOM 3"},
+            {"id": 5, "site_id": 1, "name": "ROOM 5"},
+            {"id": 8, "site_id": 2, "name": "ROOM 3"},  # the same name in two sites
+        ],
+    )
+    s.execute(
+        insert(m.Device),
+        [
+            {"id": 2, "room_id": 3, "manufacturer": "Acme", "model_name": "X1"},
+            {"id": 4, "room_id": 5, "station_name": "STATION4"},
+        ],
+    )
+    s.execute(
+        insert(m.Study),
+        [{"id": i, "study_instance_uid": f"2.25.{i}"} for i in range(1, n // 3 + 1)],
+    )
+    s.execute(
+        insert(m.SourceObjectRow),
+        [
+            {"id": i, "sop_instance_uid": f"2.25.9{i}", "sop_class_uid": "1.2.3",
+             "kind": "image_header", "received_via": "test"}
+            for i in range(1, n + 1)
+        ],
+    )  # fmt: skip
+
+
+def _random_event(rng: random.Random, i: int, n: int) -> dict[str, Any]:
+    """Event ``i`` of ``n``: each column present, missing or varied at random."""
+    start = datetime(2026, 2, 26, tzinfo=UTC)
+    when = (
+        start
+        + timedelta(seconds=rng.randrange(0, 40 * 86400))
+        + timedelta(microseconds=rng.randrange(0, 10**6))
+    )
+
+    def maybe(value: float, p: float = 0.7) -> float | None:
+        return value if rng.random() < p else None
+
+    return {
+        "id": i,
+        "event_key": f"k{i}",
+        "source_object_id": i,
+        "study_id": rng.choice([None, *range(1, n // 3 + 1)]),
+        "room_id": rng.choice([None, 3, 5, 8]),
+        "device_id": rng.choice([None, 2, 4]),
+        "source_kind": rng.choice(["image_header", "image_header", "dose_report"]),
+        "event_index": 0,
+        "exam_type": rng.choice(EXAMS),
+        "superseded": rng.random() < 0.1,
+        "modality": rng.choice(MODALITIES),
+        "acquisition_key": rng.choice([None, None, "a1", "a2", "a3"]),
+        "event_datetime": when if rng.random() < 0.9 else None,
+        "study_datetime": when - timedelta(minutes=5),
+        "event_type": rng.choice([None, "fluoroscopy", "stationary"]),
+        "irradiation_duration_s": maybe(rng.uniform(0, 600), 0.5),
+        "study_description": rng.choice([None, "CHEST", "Abdomen"]),
+        "series_description": rng.choice([None, "PA"]),
+        "protocol_name": rng.choice([None, "P1"]),
+        "body_part": rng.choice([None, "CHEST", "HEAD"]),
+        "view_position": rng.choice([None, "PA", "AP"]),
+        "patient_weight_kg": maybe(rng.uniform(20, 140)),
+        "dap_gy_cm2": maybe(rng.lognormvariate(-1, 0.5)),
+        "recon_dap_gy_cm2": maybe(rng.lognormvariate(-1, 0.5)),
+        "recon_esak_mgy": maybe(rng.lognormvariate(0, 0.5)),
+        "reference_point_air_kerma_mgy": maybe(rng.uniform(0, 50), 0.2),
+        "ctdivol_mgy": maybe(rng.uniform(1, 60), 0.2),
+        "dlp_mgy_cm": maybe(rng.uniform(10, 900), 0.2),
+        "organ_dose_mgy": maybe(rng.uniform(0.5, 3), 0.1),
+        "deviation_index": maybe(rng.uniform(-5, 5), 0.5),
+        "size_dw_mean_cm": maybe(rng.uniform(12, 45), 0.4),
+        "water_equivalent_diameter_mm": maybe(rng.uniform(120, 450), 0.4),
+        "provenance": {},
+        "notes": [],
+    }
+
+
+def _plain_table(session: Any, start: date = START, end: date = END) -> pd.DataFrame:
     """The events table by the contract, one stored event at a time."""
     events = session.scalars(select(m.ExposureEventRow)).all()
     first_slice: dict[str, int] = {}
@@ -144,7 +148,8 @@ def _plain_table(session: Any) -> pd.DataFrame:
     sites = {s.id: s.name for s in session.scalars(select(m.Site))}
     devices = {d.id: d for d in session.scalars(select(m.Device))}
     studies = {s.id: s.study_instance_uid for s in session.scalars(select(m.Study))}
-    t0, t1 = datetime(2026, 3, 1, tzinfo=UTC), datetime(2026, 4, 1, tzinfo=UTC)
+    t0 = datetime(start.year, start.month, start.day, tzinfo=UTC)
+    t1 = datetime(end.year, end.month, end.day, tzinfo=UTC)
     out = []
     for e in sorted(events, key=lambda e: e.id):
         when = e.event_datetime or e.study_datetime
@@ -503,3 +508,148 @@ def test_the_distribution_page_names_studies_by_their_study_instance_uid(store) 
     assert len(frame)
     assert all(u in uids or u.startswith("(event ") for u in frame["study_uid"])
     assert any(u in uids for u in frame["study_uid"])
+
+
+# ------------------------------------------------------------- the same review on either backend
+@pytest.fixture
+def both_stores(tmp_path) -> Any:
+    """A migrated SQLite store and a PostgreSQL one (a schema of its own), each empty."""
+    import uuid
+
+    from sqlalchemy import text
+    from store_support import _postgres_url
+
+    from beamaudit.api.store import make_engine, make_session_factory, upgrade
+
+    base_url = _postgres_url()  # skips without PostgreSQL, fails so with CI=true
+    assert base_url is not None
+    schema = f"t_{uuid.uuid4().hex[:12]}"
+    admin = make_engine(base_url)
+    with admin.begin() as conn:
+        conn.execute(text(f'CREATE SCHEMA "{schema}"'))
+    lite = make_engine(f"sqlite:///{tmp_path / 'store.db'}")
+    pg = make_engine(base_url, connect_args={"options": f"-csearch_path={schema}"})
+    try:
+        upgrade(lite)
+        upgrade(pg)
+        yield {"sqlite": make_session_factory(lite), "postgresql": make_session_factory(pg)}
+    finally:
+        lite.dispose()
+        pg.dispose()
+        with admin.begin() as conn:
+            conn.execute(text(f'DROP SCHEMA "{schema}" CASCADE'))
+        admin.dispose()
+
+
+def _close(a: Any, b: Any, path: str = "") -> list[str]:
+    """Where two JSON results differ: numbers beyond a relative 1e-9, anything else at all."""
+    if isinstance(a, dict) and isinstance(b, dict):
+        if a.keys() != b.keys():
+            return [f"{path}: keys {sorted(a)} != {sorted(b)}"]
+        return [d for k in a for d in _close(a[k], b[k], f"{path}.{k}")]
+    if isinstance(a, list) and isinstance(b, list):
+        if len(a) != len(b):
+            return [f"{path}: {len(a)} items != {len(b)}"]
+        return [
+            d
+            for i, (x, y) in enumerate(zip(a, b, strict=True))
+            for d in _close(x, y, f"{path}[{i}]")
+        ]
+    if isinstance(a, float) and isinstance(b, float | int) and not isinstance(b, bool):
+        return [] if math.isclose(a, b, rel_tol=1e-9, abs_tol=0.0) else [f"{path}: {a!r} != {b!r}"]
+    return [] if a == b else [f"{path}: {a!r} != {b!r}"]
+
+
+def _in_milliseconds(frame: pd.DataFrame) -> pd.DataFrame:
+    seconds = frame["event_datetime"].map(lambda t: t.timestamp()).astype(float)
+    return frame.assign(event_datetime=pd.to_datetime(seconds.round(3), unit="s", utc=True))
+
+
+@pytest.mark.postgres
+def test_a_review_is_the_same_on_sqlite_and_postgresql_and_in_the_core(both_stores) -> None:
+    # the same events stored in both backends (each read its own way: the ADBC driver in a
+    # process of its own on SQLite, in process with the sparse columns apart on PostgreSQL),
+    # reviewed with the change-point lookback on (February's events are the history): the results
+    # agree to 1e-9 with each other and with the core on the plain table of each store
+    from beamaudit.api.review.run import monthly_history
+
+    params = ReviewParameters(period=Period(START, END), group_by=("site", "room", "device"))
+    lookback = date(2024, 3, 1)
+    results = {}
+    for backend, sessions in both_stores.items():
+        _fill(sessions, n=1200, seed=23)
+        with sessions.begin() as session:
+            result, _ = execute_review(session, params)
+            catalogue, rules = ensure_catalogue(session)
+            levels = [s for _, s in level_sets_from_store(session)]
+            # times in milliseconds, as the store's read gives them (its epoch seconds rounded)
+            plain, earlier = (
+                _in_milliseconds(_plain_table(session, a, b))
+                for a, b in ((START, END), (lookback, START))
+            )
+        history = monthly_history(
+            earlier,
+            params=replace(params, period=Period(lookback, START), levels_on=START),
+            catalogue=catalogue,
+        )
+        assert len(history)  # February's events make a history
+        core = review(
+            plain, levels=levels, params=params, history_df=history, catalogue=catalogue,
+            rules=rules,
+        )  # fmt: skip
+        body = result.to_json_dict()
+        assert body["groups"] and body["monthly"] and body["flags"]
+        assert not _close(body, core.to_json_dict()), (
+            backend,
+            _close(body, core.to_json_dict())[:5],
+        )
+        results[backend] = body
+    differences = _close(results["sqlite"], results["postgresql"])
+    assert not differences, differences[:5]
+
+
+@pytest.mark.postgres
+def test_the_core_quantiles_are_postgresql_percentile_cont() -> None:
+    # The core's median, quartiles and upper percentile interpolate linearly between order
+    # statistics at h = (n - 1) p (Hyndman & Fan 1996, definition 7); PostgreSQL's
+    # percentile_cont interpolates between adjacent input items the same way (PostgreSQL
+    # documentation, ordered-set aggregates; from memory), so SQL could compute them unchanged.
+    from sqlalchemy import text
+    from store_support import _postgres_url
+
+    from beamaudit.api.review.stats import group_statistics
+    from beamaudit.api.store import make_engine
+
+    url = _postgres_url()
+    assert url is not None
+    rng = np.random.default_rng(5)
+    sizes = [1, 2, 3, 4, 5, 7, 10, 19, 20, 33, 100, 401]
+    codes = np.repeat(np.arange(len(sizes)), sizes)
+    values = np.round(rng.lognormal(0.0, 0.8, len(codes)), 3)  # rounded: ties within groups
+    ours = group_statistics(codes, values, len(sizes), upper_percentile=95.0)
+    engine = make_engine(url)
+    try:
+        with engine.connect() as conn:
+            rows = conn.execute(
+                text(
+                    "SELECT g, percentile_cont(ARRAY[0.25, 0.5, 0.75, 0.95]) "
+                    "WITHIN GROUP (ORDER BY v) FROM unnest(CAST(:g AS int[]), "
+                    "CAST(:v AS float8[])) AS t(g, v) GROUP BY g ORDER BY g"
+                ),
+                {"g": codes.tolist(), "v": values.tolist()},
+            ).all()
+    finally:
+        engine.dispose()
+    assert [g for g, _ in rows] == list(range(len(sizes)))
+    for g, (q1, median, q3, upper) in rows:
+        for theirs, mine in (
+            (q1, ours.q1),
+            (median, ours.median),
+            (q3, ours.q3),
+            (upper, ours.upper),
+        ):
+            assert math.isclose(theirs, mine[g], rel_tol=1e-9, abs_tol=0.0), (
+                sizes[g],
+                theirs,
+                mine[g],
+            )

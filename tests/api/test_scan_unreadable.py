@@ -82,3 +82,35 @@ def test_the_library_scan_reports_the_folder_too(tmp_path: Path, monkeypatch) ->
     errors = [o for o in outcomes if o.error is not None]
     assert [o.path for o in errors] == [locked]
     assert summary.errors == 1 and summary.parsed == 1
+
+
+def test_a_scan_never_opens_the_stores_own_database_files(store, tmp_path: Path) -> None:
+    # SQLite's locks are POSIX locks, per process: closing any descriptor of the database
+    # file drops them all (https://sqlite.org/howtocorrupt.html, section 2.2), so a scan of a
+    # folder that holds the store must not open the store's files, as it did before.
+    (tmp_path / "export").mkdir()
+    (tmp_path / "export" / "a.dcm").write_bytes(encode(dx_header("own-files-a")))
+    opened: list[str] = []
+    real = folder.scan_file
+
+    def scan_file(path: Path, pseudonymiser: object) -> object:
+        opened.append(path.name)
+        return real(path, pseudonymiser)  # type: ignore[arg-type]
+
+    with pytest.MonkeyPatch.context() as patch:
+        patch.setattr(folder, "scan_file", scan_file)
+        summary = scan_paths(
+            [tmp_path],
+            pipeline=Pipeline(store.session_factory),
+            key=load_or_create_key(tmp_path / "k.key"),
+        )
+    assert summary.objects == 1
+    with store.session_factory() as s:
+        assert s.scalar(select(m.ExposureEventRow.id)) is not None
+    if store.backend == "sqlite":
+        assert not any(name.startswith("store.db") for name in opened)
+        skipped = {Path(p).name for p in summary.store_files_skipped}
+        assert "store.db" in skipped and skipped <= {"store.db", "store.db-wal", "store.db-shm"}
+        assert summary.as_dict()["store_files_skipped"] == summary.store_files_skipped
+    else:
+        assert summary.store_files_skipped == []

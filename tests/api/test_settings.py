@@ -69,3 +69,19 @@ def test_the_listeners_quiet_time_before_ct_sizing_is_a_setting(tmp_path, monkey
     cfg.write_text("[listener]\nsize_quiet_s = 0\n", encoding="utf-8")
     with pytest.raises(SettingsError, match=r"listener\.size_quiet_s"):
         load(cfg)
+
+
+def test_the_digest_outbox_lies_beside_the_store_unless_set(tmp_path, monkeypatch) -> None:
+    monkeypatch.chdir(tmp_path)
+    for name in ("BEAMAUDIT_CONFIG", "BEAMAUDIT_DATABASE_URL", "BEAMAUDIT_NOTIFY__OUTBOX"):
+        monkeypatch.delenv(name, raising=False)
+    store = tmp_path / "data" / "dose.db"
+    settings = load(database_url=f"sqlite:///{store}")
+    assert settings.notify.outbox == store.parent / "beamaudit-outbox.jsonl"
+    key = tmp_path / "keys" / "k.key"
+    settings = load(
+        database_url="postgresql+psycopg://postgres@127.0.0.1:5432/test", secret_key_path=key
+    )
+    assert settings.notify.outbox == key.parent / "beamaudit-outbox.jsonl"
+    chosen = tmp_path / "digests.jsonl"
+    assert load(notify={"outbox": chosen}).notify.outbox == chosen

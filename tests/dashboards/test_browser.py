@@ -13,6 +13,7 @@ holds, log no console error and fit its window; screenshots of each, at
 
 from __future__ import annotations
 
+import contextlib
 import http.server
 import json
 import threading
@@ -828,6 +829,30 @@ def test_demo_exam_page_gives_the_hvl_a_real_uncertainty(signed_in: Any, demo: _
     assert "±" in hvl and "k = 2" in hvl, hvl
     assert "GUM (JCGM 100:2008)" in text and "IEC 60601-2-54" in text
     assert "not estimated" not in text
+
+
+def test_demo_ct_exam_page_gives_patient_size_and_ssde_real_uncertainties(
+    signed_in: Any, demo: _Demo
+) -> None:
+    # Dw from the demo scanner's images (AAPM Report 220) and SSDE from it (AAPM Report 204),
+    # each with a standard uncertainty (GUM) and the size's trail on the page
+    import sqlite3
+
+    database = demo.url.removeprefix("sqlite:///")
+    with contextlib.closing(sqlite3.connect(f"file:{database}?mode=ro", uri=True)) as db:
+        (study,) = db.execute(
+            "SELECT s.study_instance_uid FROM exposure_events e JOIN studies s"
+            " ON s.id = e.study_id WHERE e.size_ssde_mgy IS NOT NULL LIMIT 1"
+        ).fetchone()
+    text = _main_text(signed_in, demo, f"/exams/{study}")
+    import re
+
+    dw = re.search(
+        r"Water-equivalent diameter \(Dw\), scan-range average.{0,200}?[\d.]+ ± ", text, re.S
+    )
+    assert dw is not None, text[:2000]
+    assert "not estimated" not in text
+    assert "SSDE standard uncertainty" in text and "JCGM 100:2008" in text
 
 
 def test_demo_fluoroscopy_exam_page_draws_one_chart_of_its_beams(

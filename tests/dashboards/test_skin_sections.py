@@ -41,6 +41,14 @@ def test_exam_page_draws_the_map_and_names_the_levels_reached(demo_exam) -> None
     assert "4,000 mGy (± 48 %, k = 2)" in page
     assert "follow the patient up" in page and LEVEL["text"] in page
     assert render_exam(demo_exam).count('id="skin-dose"') == 0
+    assert "to follow up" in page
+
+
+def test_exam_page_says_no_follow_up_is_needed_below_every_level(demo_exam) -> None:
+    # NCRP Report 168 (2010): follow-up is asked for from a substantial radiation dose level
+    quiet = {**LEVEL, "crossed": False, "text": "peak skin dose 900 mGy, below 3000 mGy"}
+    page = render_exam(demo_exam, skin_dose=skin(peak_skin_dose_mgy=900.0, level_checks=[quiet]))
+    assert "not needed (no follow-up level reached)" in page and "to follow up" not in page
 
 
 def test_exam_page_says_why_a_map_is_missing(demo_exam) -> None:

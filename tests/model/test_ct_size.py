@@ -320,3 +320,19 @@ def test_single_position_acquisition() -> None:
 def test_scan_range_without_nearby_samples_is_refused() -> None:
     with pytest.raises(ModelError, match="no patient size sample"):
         scan_range_size(z_mm=[900.0], dw_cm=[20.0], z_start_mm=0.0, z_end_mm=100.0)
+
+
+def test_scan_range_dw_uncertainty_adds_sampling_and_method_in_quadrature() -> None:
+    # JCGM 100:2008 (GUM): type A standard uncertainty of a mean s / sqrt(n) (eq. 5) and the
+    # method's relative share (from memory: 2 % axial, 5 % localizer) combined by eq. 10
+    from beamaudit.model.ct_size import scan_range_dw_uncertainty
+
+    samples = [24.0, 26.0, 28.0, 30.0]
+    s = np.std(samples, ddof=1)
+    u, parts = scan_range_dw_uncertainty(dw_cm=samples, mean_dw_cm=27.0)
+    assert parts == pytest.approx({"sampling_cm": s / 2, "method_cm": 0.54})
+    assert u == pytest.approx(math.hypot(s / 2, 0.54))
+    u_one, parts_one = scan_range_dw_uncertainty(dw_cm=[27.0], mean_dw_cm=27.0, method="localizer")
+    assert parts_one["sampling_cm"] == 0.0 and u_one == pytest.approx(0.05 * 27.0)
+    with pytest.raises(ModelError, match="Dw method"):
+        scan_range_dw_uncertainty(dw_cm=samples, mean_dw_cm=27.0, method="guess")

@@ -227,3 +227,17 @@ def test_ct_acquisition_uses_the_head_fit_and_notes_an_unknown_region() -> None:
                       water_equivalent_diameter_mm=160.0, body_region="head")
     )  # fmt: skip
     assert refused.ssde is None
+
+
+def test_ssde_uncertainty_is_the_fit_derivative_and_the_fit_share_in_quadrature() -> None:
+    # AAPM Report 204 (2011) body fit, 32 cm phantom: b = 0.03671937 /cm; a 1 cm size
+    # uncertainty gives 3.67 % (df/dD = -b f), the fit's own 10 % (from memory) added in
+    # quadrature (JCGM 100:2008 eq. 10)
+    from beamaudit.model.ssde import ssde_standard_uncertainty
+
+    ssde = size_specific_dose_estimate(ctdivol_mgy=10.0, diameter_cm=28.0)
+    u = ssde_standard_uncertainty(ssde, 1.0)
+    assert u == pytest.approx(math.hypot(0.03671937, 0.10) * ssde.ssde_mgy, rel=1e-12)
+    assert ssde_standard_uncertainty(ssde, 0.0) == pytest.approx(0.10 * ssde.ssde_mgy)
+    with pytest.raises(ModelError, match="size uncertainty"):
+        ssde_standard_uncertainty(ssde, float("nan"))

@@ -16,6 +16,7 @@ import logging
 import time
 from collections.abc import Callable
 from dataclasses import dataclass
+from pathlib import Path
 
 from sqlalchemy.orm import Session, sessionmaker
 
@@ -55,6 +56,11 @@ class Delivery:
         )
 
 
+def outbox_file(notify: NotifySettings) -> Path:
+    """The outbox file: the setting (``Settings`` puts it beside the store by default)."""
+    return notify.outbox if notify.outbox is not None else Path("beamaudit-outbox.jsonl")
+
+
 def _routes(notify: NotifySettings, rule: NotifyRecipient) -> list[tuple[str, str]]:
     """(channel, target) pairs of one recipient."""
     routes: list[tuple[str, str]] = []
@@ -62,11 +68,11 @@ def _routes(notify: NotifySettings, rule: NotifyRecipient) -> list[tuple[str, st
         if notify.smtp is not None:
             routes.append(("smtp", ", ".join(rule.emails)))
         else:
-            routes.append(("outbox", str(notify.outbox)))
+            routes.append(("outbox", str(outbox_file(notify))))
     if rule.webhook is not None:
         routes.append(("webhook", rule.webhook.url.split("?", 1)[0]))
     if not routes:
-        routes.append(("outbox", str(notify.outbox)))
+        routes.append(("outbox", str(outbox_file(notify))))
     return routes
 
 
@@ -175,4 +181,4 @@ def _sender(
     reason = (
         "no mail server configured ([notify.smtp])" if rule.emails else "no recipient configured"
     )
-    return lambda: write_outbox(notify.outbox, digest, reason=reason)
+    return lambda: write_outbox(outbox_file(notify), digest, reason=reason)

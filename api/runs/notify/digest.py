@@ -54,6 +54,8 @@ class DigestItem:
     status: str
     first_seen: str
     link: str
+    #: the catalogue's name of ``exam_type`` (its code where the catalogue has none)
+    exam_name: str | None = None
 
     def as_dict(self) -> dict[str, Any]:
         return dict(self.__dict__)
@@ -119,13 +121,10 @@ class Digest:
         if self.quiet:
             lines.append("No new finding since the last digest.")
         for item in self.items:
-            where = ", ".join(x for x in (item.room, item.exam_type, item.quantity) if x)
-            lines.append(
-                f"[{item.severity}] {item.kind} ({item.period}){': ' + where if where else ''}"
-            )
+            lines.append(_heading(item))
             lines.append(f"  {item.reason}")
             if item.numbers:
-                numbers = ", ".join(f"{k} {_number(v)}" for k, v in item.numbers.items())
+                numbers = "; ".join(f"{_key(k)} {_number(v)}" for k, v in item.numbers.items())
                 lines.append(f"  numbers: {numbers}")
             lines.append(f"  {item.link}")
             lines.append("")
@@ -139,6 +138,28 @@ class Digest:
         lines.append("")
         lines.append(self.caution)
         return "\n".join(lines) + "\n"
+
+
+def _heading(item: DigestItem) -> str:
+    """One finding's first line in words: severity, kind, period, room, examination, quantity
+    (``[Action] Median above a level (November 2026): RAD A, Chest PA, DAP (Gy·cm²)``)."""
+    from beamaudit.dashboards.wording import FLAG_KIND_WORDS, SEVERITY_WORDS, quantity_short
+    from beamaudit.dashboards.wording import words_for as words
+
+    period = item.period
+    if _MONTH.fullmatch(period):
+        period = datetime.strptime(period, "%Y-%m").strftime("%B %Y")
+    quantity = quantity_short(item.quantity) if item.quantity else None
+    where = ", ".join(x for x in (item.room, item.exam_name or item.exam_type, quantity) if x)
+    kind = words(FLAG_KIND_WORDS, item.kind)
+    severity = words(SEVERITY_WORDS, item.severity)
+    return f"[{severity}] {kind} ({period})" + (f": {where}" if where else "")
+
+
+def _key(name: str) -> str:
+    from beamaudit.dashboards.wording import words_for
+
+    return words_for({}, name).lower()
 
 
 def _number(value: Any) -> str:
@@ -193,6 +214,8 @@ def build_digest(
         .order_by(m.Finding.id)
     ).all()
     newest = max((finding.id for _, finding in rows), default=None)
+    catalogue = session.execute(select(m.ExamTypeRow.code, m.ExamTypeRow.name))
+    exam_names = {code: name for code, name in catalogue}
     base = base_url.rstrip("/")
     items: list[DigestItem] = []
     for flag, finding in rows:
@@ -211,6 +234,7 @@ def build_digest(
                 period=finding.period,
                 room=flag.room,
                 exam_type=flag.exam_type,
+                exam_name=exam_names.get(flag.exam_type or "") or flag.exam_type,
                 quantity=(finding.subject or {}).get("quantity"),
                 reason=_UID.sub("(a study: see the link)", flag.reason),
                 numbers=dict(flag.numbers or {}),

@@ -41,7 +41,8 @@ class LevelCreate(InputModel):
         default="",
         max_length=64,
         description="empty: adults; else a paediatric band (ICRP 135, EC RP 185), e.g. "
-        "weight_15_30kg",
+        "weight_15_30kg, a CT size band (ct_dw_20_25cm) or a mammography compressed-thickness "
+        "band (breast_50_60mm)",
     )
     clinical_indication: str = Field(
         default="",
@@ -54,15 +55,11 @@ class LevelCreate(InputModel):
     @classmethod
     def _a_band(cls, value: str) -> str:
         from beamaudit.api.review.bands import load_default_patient_groups
-        from beamaudit.api.review.ct_size import is_size_band
+        from beamaudit.api.review.levels import patient_group_problem
 
-        bands = load_default_patient_groups()
-        if value and value not in bands and not is_size_band(value):
-            names = ", ".join(g.patient_group for g in bands)
-            raise ValueError(
-                f"patient_group {value!r} is not a band (bands: {names}) nor a CT size band "
-                "(ct_dw_20_25cm)"
-            )
+        problem = patient_group_problem(value, load_default_patient_groups())
+        if problem:
+            raise ValueError(problem)
         return value
 
     @model_validator(mode="after")

@@ -86,23 +86,28 @@ def test_what_levels_export_writes_levels_import_reads_again(cli_url, tmp_path, 
     assert _sets(cli_url) == n
 
 
-def test_the_shipped_mammography_sets_import_and_show_on_the_levels_page(cli_url, capsys) -> None:
+def _levels_page(cli_url) -> str:
+    """The levels page as a viewer sees it."""
     from fastapi.testclient import TestClient
 
     from beamaudit.api.settings import load
     from beamaudit.api.store.auth import create_token
     from beamaudit.api.web.app import create_app
 
+    with cli_url.session_factory.begin() as s:
+        _, viewer = create_token(s, role="viewer", name="committee")
+    app = create_app(load(database_url=cli_url.url), engine=cli_url.engine)
+    with TestClient(app) as client:
+        return client.get("/levels", headers={"Authorization": f"Bearer {viewer}"}).text
+
+
+def test_the_shipped_mammography_sets_import_and_show_on_the_levels_page(cli_url, capsys) -> None:
     assert main(["levels", "import", "--shipped", "mammography"]) == 0, capsys.readouterr().err
     assert _sets(cli_url) == [
         "European guidelines acceptable dose (PMMA 45 mm) 2006 (4th ed.)",
         "IAEA BSS 115 mammography guidance level 1996",
     ]
-    with cli_url.session_factory.begin() as s:
-        _, viewer = create_token(s, role="viewer", name="committee")
-    app = create_app(load(database_url=cli_url.url), engine=cli_url.engine)
-    with TestClient(app) as client:
-        page = client.get("/levels", headers={"Authorization": f"Bearer {viewer}"}).text
+    page = _levels_page(cli_url)
     assert "IAEA BSS 115 mammography guidance level" in page
     assert "European guidelines acceptable dose (PMMA 45 mm)" in page
     assert "From memory, confidence medium-high" in page
@@ -116,3 +121,28 @@ def test_shipped_or_a_file_not_both_nor_an_unknown_name(cli_url, tmp_path, capsy
     assert main(["levels", "import", "--shipped", "demo"]) == 2
     assert "no shipped level file 'demo'" in _one_line(capsys.readouterr().err)
     assert _sets(cli_url) == []
+
+
+def test_a_mammography_levels_thickness_band_round_trips_and_shows(cli_url, tmp_path, capsys):
+    head = HEAD.rstrip("\n") + ",patient_group,clinical_indication\n"
+    rows = (
+        "M (invented),local,v1,2025-01-01,tests,mammo_cc,mgd_mgy,2.0,mGy,,,breast_45_55mm,\n"
+        "M (invented),local,v1,2025-01-01,tests,mammo_mlo,mgd_mgy,2.4,mGy,,,,\n"
+    )
+    first = tmp_path / "bands.csv"
+    first.write_text(head + rows, encoding="utf-8")
+    assert main(["levels", "import", str(first)]) == 0, capsys.readouterr().err
+    exported = tmp_path / "exported.csv"
+    assert main(["levels", "export", "--output", str(exported)]) == 0
+    text = exported.read_text(encoding="utf-8")
+    assert ",breast_45_55mm," in text
+    with cli_url.session_factory.begin() as session:
+        session.query(m.ReferenceLevelRow).delete()
+        session.query(m.ReferenceLevelSetRow).delete()
+    assert main(["levels", "import", str(exported)]) == 0, capsys.readouterr().err
+    again = tmp_path / "again.csv"
+    assert main(["levels", "export", "--output", str(again)]) == 0
+    assert again.read_text(encoding="utf-8") == text
+    page = _levels_page(cli_url)
+    assert "compressed breast 45-55 mm" in page
+    assert "in the review&#39;s thickness band" in page or "in the review's thickness band" in page

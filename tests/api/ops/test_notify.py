@@ -53,6 +53,15 @@ def _flags() -> list[dict[str, Any]]:
 
 def _review(sessions: Any, flags: list[dict[str, Any]] | None = None) -> int:
     with sessions.begin() as session:
+        session.merge(
+            m.ExamTypeRow(
+                code="chest_pa",
+                name="Chest PA",
+                modality="DX",
+                level_applies_per="projection",
+                quantities=["dap_gy_cm2"],
+            )
+        )
         run = m.ReviewRun(
             kind="monthly", period="2026-11", period_start=date(2026, 11, 1),
             period_end=date(2026, 12, 1), software_version="test", status="done",
@@ -130,7 +139,8 @@ def test_smtp_with_starttls_and_login_on_loopback(store, tmp_path, caplog):
     mail = message_from_bytes(envelope.content, policy=policy.default)
     assert mail["Subject"] == "beamaudit: 2 new findings, 1 needing action"
     text = mail.get_body(("plain",)).get_content()
-    assert "[action] group_above_level (2026-11): RAD A, chest_pa, dap_gy_cm2" in text
+    assert "[Action] Median above a level (November 2026): RAD A, Chest PA, DAP (Gy·cm²)" in text
+    assert "numbers: median 0.21; level 0.15; level set Local" in text
     assert "https://dose.hollowbrook.example/flags?" in text
     [attachment] = list(mail.iter_attachments())
     assert json.loads(attachment.get_content())["new_findings"] == 2

@@ -98,3 +98,61 @@ def test_shipped_rules_keep_2d_and_tomosynthesis_screening_and_diagnostic_apart(
     )  # fmt: skip
     mapped = map_events_with_indication(frame, load_default_rules())
     assert (mapped["exam_type"][0], mapped["clinical_indication"][0]) == expected
+
+
+# ---- a level may name the compressed-thickness band it is set for
+def _band_levels(*rows: tuple[str, str, str, str]) -> list:
+    """Levels of invented sets: ``(set name, patient_group, exam_type, value in mGy)``."""
+    import io
+
+    from beamaudit.api.review.levels import LEVEL_COLUMNS, LEVEL_OPTIONAL_COLUMNS, read_levels_csv
+
+    columns = (*LEVEL_COLUMNS, *LEVEL_OPTIONAL_COLUMNS)
+    lines = [",".join(columns)]
+    for name, group, exam_type, value in rows:
+        cells = {
+            "set_name": name, "kind": "local", "version": "1", "effective_from": "2025-01-01",
+            "set_source": "committee (invented)", "exam_type": exam_type, "quantity": "mgd_mgy",
+            "value": value, "unit": "mGy", "source": "", "note": "", "patient_group": group,
+            "clinical_indication": "",
+        }  # fmt: skip
+        lines.append(",".join(cells[c] for c in columns))
+    return read_levels_csv(io.StringIO("\n".join(lines) + "\n"))
+
+
+def test_a_band_takes_its_own_level_and_not_another_bands(make_events) -> None:
+    levels = _band_levels(
+        ("A", "", "mammo_cc", "3.0"),  # names no band: the review's band, as before
+        ("A", "breast_50_60mm", "mammo_cc", "2.0"),  # the band's own: takes A's place
+        ("B", "breast_45_55mm", "mammo_cc", "1.5"),  # another band: not for 50-60 mm
+    )
+    groups = review(make_events(_views(50, "cc", 55.0, 2.4)), levels=levels, params=MARCH)
+    (row,) = [r for r in groups.groups_df.to_dict("records") if r["level_set"] is not None]
+    assert (row["patient_group"], row["level_set"], row["reference_level"]) == (
+        "breast_50_60mm",
+        "A",
+        2.0,
+    )
+    assert row["status"] == "above_level"
+
+
+def test_a_review_in_another_band_takes_that_bands_level(make_events) -> None:
+    levels = _band_levels(
+        ("A", "breast_50_60mm", "mammo_cc", "2.0"),
+        ("B", "breast_45_55mm", "mammo_cc", "1.5"),
+    )
+    params = ReviewParameters.for_month(2025, 3, breast_thickness_band_mm=(45, 55))
+    result = review(make_events(_views(50, "cc", 50.0, 1.2)), levels=levels, params=params)
+    rows = [r for r in result.groups_df.to_dict("records") if r["level_set"] is not None]
+    assert [(r["patient_group"], r["level_set"], r["reference_level"]) for r in rows] == [
+        ("breast_45_55mm", "B", 1.5)
+    ]
+
+
+def test_a_level_file_names_a_band_in_its_one_spelling_only() -> None:
+    (level_set,) = _band_levels(("A", "breast_45p5_55mm", "mammo_mlo", "2.0"))
+    assert level_set.entries[0].patient_group == "breast_45p5_55mm"
+    for name in (OUTSIDE_THICKNESS_BAND, THICKNESS_NOT_RECORDED, "breast_60_50mm",
+                 "breast_50.0_60mm", "breast_050_60mm", "breast_50_60"):  # fmt: skip
+        with pytest.raises(ReviewError, match="nor a breast thickness band"):
+            _band_levels(("A", name, "mammo_cc", "2.0"))

@@ -237,6 +237,24 @@ def test_a_ct_level_may_carry_a_size_band_and_keeps_it(api, catalogue) -> None:
     assert response.status_code == 422 and "nor a CT size band" in response.text
 
 
+def test_a_mammography_level_may_carry_a_thickness_band_and_keeps_it(api, catalogue) -> None:
+    # mammography levels per compressed-thickness band (api/review/mammography.py), in the same
+    # column as a CT level's size band
+    level = {"exam_type": "mammo_cc", "quantity": "mgd_mgy", "value": 2.5}
+    body = LOCAL | {"levels": [level, level | {"value": 2.0, "patient_group": "breast_45_55mm"}]}
+    response = api.post("/level-sets", json=body)
+    assert response.status_code == 201, response.text
+    (stored,) = api.get("/level-sets").json()
+    assert sorted((x["patient_group"], x["value"]) for x in stored["levels"]) == [
+        ("", 2.5),
+        ("breast_45_55mm", 2.0),
+    ]
+    for name in ("breast_outside_thickness_band", "breast_55_45mm"):
+        bad = LOCAL | {"version": "9", "levels": [level | {"patient_group": name}]}
+        response = api.post("/level-sets", json=bad)
+        assert response.status_code == 422 and "nor a breast thickness band" in response.text
+
+
 def test_old_quantity_names_are_taken_as_the_new_ones(api, catalogue) -> None:
     # the names versions before one-name-per-quantity wrote (QUANTITY_ALIASES), in JSON and CSV
     old = [

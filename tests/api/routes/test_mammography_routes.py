@@ -81,7 +81,7 @@ def test_the_exam_page_shows_our_dose_beside_the_device_s(api, mg) -> None:
     page = client.get(f"/exams/{header.StudyInstanceUID}", headers=api.headers("physicist"))
     assert page.status_code == 200, page.text[:300]
     text = page.text
-    assert "Mean glandular dose (AGD)" in text
+    assert "Mean glandular dose (MGD)" in text
     assert "W/Rh" in text and "Compressed breast thickness" in text
     assert "Glandularity used" in text and "s (spectrum)" in text
     assert "1.31" in text  # the device's AGD beside ours
@@ -148,3 +148,28 @@ def test_the_api_and_the_exam_page_say_screening_or_diagnostic_and_from_what(
     assert (mammo["intent"], mammo["intent_from"]) == ("diagnostic", clue)
     page = api.client.get(f"/exams/{header.StudyInstanceUID}", headers=api.headers("physicist"))
     assert "Screening or diagnostic" in page.text and f"diagnostic, from {clue}" in page.text
+
+
+def test_a_workup_study_shows_which_view_made_each_view_diagnostic(api, tmp_path: Path) -> None:
+    # four plain views and a spot compression view (tests/api/test_study_intent.py): the API and
+    # the exam page give each plain view's intent with the study's clue and the deciding object
+    from test_study_intent import SPOT_CLUE, _four_views, _spot
+
+    study = "1.2.826.0.1.3680043.10.1407.81"
+    folder = tmp_path / "workup"
+    folder.mkdir()
+    for k, ds in enumerate([*_four_views(study), _spot(study)]):
+        ds.save_as(folder / f"{k}.dcm", enforce_file_format=True)
+    scan_paths(
+        [folder],
+        pipeline=Pipeline(api.store.session_factory, completion=Completion()),
+        key=load_or_create_key(tmp_path / "k.key"),
+    )
+    items = api.get("/events", params={"modality": "MG"}, as_="physicist").json()["items"]
+    intents = [api.get(f"/events/{i['id']}", as_="physicist").json()["mammography"] for i in items]
+    assert {m["intent"] for m in intents} == {"diagnostic"}
+    froms = sorted(m["intent_from"] for m in intents)
+    assert froms[0] == SPOT_CLUE  # the spot view's own clue
+    assert all(f.startswith(f"the study: {SPOT_CLUE}, of object ") for f in froms[1:])
+    page = api.client.get(f"/exams/{study}", headers=api.headers("physicist")).text
+    assert "diagnostic, from the study: " in page
