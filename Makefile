@@ -22,13 +22,18 @@ demo: $(STAMP)
 serve: $(STAMP)
 	$(PY) -m beamaudit serve
 
+## Test processes of `make test` (pytest-xdist): the suite is sized for a 2-core machine.
+## A module's tests run in one of them; the listener tests and the demo's too (tests/conftest.py).
+TEST_WORKERS ?= 2
+XDIST := -n $(TEST_WORKERS)
+
 ## The whole test suite (store tests on SQLite, and on PostgreSQL when BEAMAUDIT_TEST_POSTGRES_URL is set).
 test: $(STAMP)
-	$(PY) -m pytest
+	$(PY) -m pytest $(XDIST)
 
 ## Everything but the slow and peer-dependent tests.
 test-fast: $(STAMP)
-	$(PY) -m pytest -m "not slow and not peer"
+	$(PY) -m pytest $(XDIST) -m "not slow and not peer"
 
 lint: $(STAMP)
 	$(VENV)/bin/ruff check .

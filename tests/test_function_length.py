@@ -24,9 +24,6 @@ LONG_ON_PURPOSE = {
     # migrations are a record of the schema as it was made: never edited once released
     "api/migrations/versions/0001_first_tables.py::upgrade": "released migration",
     "api/migrations/versions/0002_record.py::_runs_and_findings": "released migration",
-    # the demo's runner is being split into shorter functions; these entries go when it is
-    "api/demo/run.py::_setup_rooms": "demo generator, being split",
-    "api/demo/run.py::run_demo": "demo generator, being split",
 }
 
 

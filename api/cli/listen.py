@@ -10,8 +10,8 @@ import typer
 from beamaudit.api.cli._common import console, fail
 
 if TYPE_CHECKING:
-    from beamaudit.api.cli._spool_worker import SpoolWorkerProcess
     from beamaudit.api.cli._store import OpenStore
+    from beamaudit.api.intake.spool_worker import SpoolWorkerProcess
     from beamaudit.api.intake.spooling import Spool
     from beamaudit.api.settings import ListenerSettings, Settings
     from beamaudit.ingest.listener import Listener, ListenerConfig
@@ -121,7 +121,7 @@ def _listener_config(
 
 def _start_spool_worker(settings: Settings, spool: Spool, key: bytes) -> SpoolWorkerProcess:
     """Start the process that parses and stores what the listener spooled."""
-    from beamaudit.api.cli._spool_worker import SpoolWorkerProcess
+    from beamaudit.api.intake.spool_worker import SpoolWorkerProcess
 
     cfg = settings.listener
     return SpoolWorkerProcess(

@@ -2,7 +2,7 @@
 
 ``beamaudit listen`` answers a C-STORE once the object is in the spool, a SQLite file of its own
 (WAL), and a worker (under ``beamaudit listen`` a process of its own,
-``api/cli/_spool_worker.py``; a thread with :meth:`SpoolWorker.start`) parses, stores and
+``api/intake/spool_worker.py``; a thread with :meth:`SpoolWorker.start`) parses, stores and
 completes the spooled objects in batches, then deletes them from the spool. An acknowledged
 object is therefore never lost: a listener killed after the answer finds the object in its spool
 when it starts again, and stores it then (the store's idempotence by SOP Instance UID makes a

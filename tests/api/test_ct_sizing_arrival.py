@@ -208,13 +208,18 @@ def test_the_demos_listener_node_measures_a_calibrated_localizer(tmp_path: Path)
         folder, expected = _calibrated_study(store, tmp_path)
         files = [folder / "localizer.dcm", folder / "report.dcm"]
         classes = sorted({str(dcmread(p, stop_before_pixels=True).SOPClassUID) for p in files})
-        nodes = _Nodes(str(store.engine.url), KEY, 1)
+        spools = tmp_path / "spools"
+        spools.mkdir()
+        nodes = _Nodes(str(store.engine.url), KEY, 1, spools)
         try:
             sent = _send_all(files, nodes.ports, classes, dict.fromkeys(files, "CT"), per_port=1)
         except BaseException:
             nodes.close()
             raise
-        assert len(nodes.stop()) == 2 and sum(sent.values()) == 2  # one event each
+        nodes.stop()  # returns once the node's spool worker has stored everything received
+        with store.session_factory() as session:
+            stored = session.scalar(select(func.count()).select_from(m.ExposureEventRow))
+        assert stored == 2 and sum(sent.values()) == 2  # one event each
         assert _sized(store) == expected
     finally:
         store.engine.dispose()

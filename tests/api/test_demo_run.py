@@ -1,7 +1,9 @@
 """``beamaudit demo --no-serve``: every planted finding is found, nothing unplanted is flagged.
 
 The scenario is invented (a fictional hospital); its manifest lists the planted
-findings and the margins of everything else (see ``beamaudit.api.demo``).
+findings and the margins of everything else (see ``beamaudit.api.demo``). The demo is the
+session's one build (``demo_build`` in ``tests/conftest.py``: ``beamaudit demo --no-serve
+--months 4 --end-month 2026-10 --seed 0 --json``), which the browser tests serve too.
 """
 
 from __future__ import annotations
@@ -10,16 +12,10 @@ import json
 
 import pytest
 
-from beamaudit.api.cli import main
-
 
 @pytest.mark.slow
-def test_demo_finds_what_was_planted_and_nothing_else(tmp_path, capsys) -> None:
-    code = main(
-        ["demo", "--output", str(tmp_path / "demo"), "--no-serve", "--months", "4",
-         "--end-month", "2026-10", "--seed", "0", "--json"]
-    )  # fmt: skip
-    report = json.loads(capsys.readouterr().out)
+def test_demo_finds_what_was_planted_and_nothing_else(demo_build) -> None:
+    code, report = demo_build.code, demo_build.report
     missed = [p["plant"] for p in report["planted"] if not p["found"] and p["required"]]
     assert missed == []
     # the interventional room's two procedures at an NCRP 168 level (api/demo/interventional.py):
@@ -35,7 +31,7 @@ def test_demo_finds_what_was_planted_and_nothing_else(tmp_path, capsys) -> None:
     # the nightly notification step: the digest of the new findings, in the outbox file
     [delivery] = report["notifications"]
     assert (delivery["channel"], delivery["status"]) == ("outbox", "sent")
-    [line] = (tmp_path / "demo" / "outbox.jsonl").read_text().splitlines()
+    [line] = (demo_build.folder / "outbox.jsonl").read_text().splitlines()
     digest = json.loads(line)
     assert digest["trigger"] == "nightly" and digest["new_findings"] == delivery["findings"] > 0
     assert digest["outbox_reason"] == "no recipient configured"

@@ -584,24 +584,26 @@ def _free_port() -> int:
 
 
 @pytest.fixture(scope="module")
-def demo(tmp_path_factory: pytest.TempPathFactory) -> Iterator[_Demo]:
+def demo(request: pytest.FixtureRequest) -> Iterator[_Demo]:
+    """The session's demo build (``demo_build``), served (under ``pytest -n`` this module runs in
+    the worker of the test of the build's report: ``XDIST_GROUPS`` in ``tests/conftest.py``)."""
     import os
     import time
 
     import uvicorn
 
-    from beamaudit.api.cli import main
     from beamaudit.api.settings import load
     from beamaudit.api.store import make_engine, make_session_factory
     from beamaudit.api.store.auth import create_token
     from beamaudit.api.web.app import create_app
 
     given = os.environ.get("BEAMAUDIT_TEST_DEMO_DIR")
-    folder = Path(given) if given else tmp_path_factory.mktemp("demo")
-    if not given:
-        code = main(["demo", "--output", str(folder), "--no-serve", "--months", "4", "--seed", "0",
-                     "--json"])  # fmt: skip
-        assert code == 0, "the demo did not find what it planted"
+    if given:
+        folder = Path(given)
+    else:
+        build = request.getfixturevalue("demo_build")
+        assert build.code == 0, "the demo did not find what it planted"
+        folder = build.folder
     url = f"sqlite:///{(folder / 'beamaudit-demo.db').resolve()}"
     engine = make_engine(url)
     with make_session_factory(engine).begin() as session:

@@ -18,6 +18,7 @@ import threading
 import time
 from collections.abc import Iterator
 from contextlib import contextmanager
+from pathlib import Path
 
 import pytest
 from net_samples import build_dose_sr
@@ -130,8 +131,15 @@ def test_an_association_is_cut_off_at_its_whole_lifetime() -> None:
         assert assoc.is_aborted or not assoc.is_established
 
 
-def test_an_object_over_the_size_limit_aborts_its_association_and_leaves_no_file() -> None:
+def test_an_object_over_the_size_limit_aborts_its_association_and_leaves_no_file(
+    tmp_path: Path, monkeypatch: pytest.MonkeyPatch
+) -> None:
+    # pynetdicom receives a large object into a temporary file (tempfile.NamedTemporaryFile):
+    # here in a folder of this test's own, so that other tests running at the same time
+    # (pytest -n) cannot add files to what is compared
+    monkeypatch.setattr(tempfile, "tempdir", str(tmp_path))
     before = set(glob.glob(os.path.join(tempfile.gettempdir(), "*.dcm")))
+    assert before == set()
     with listening(max_object_bytes=256 * 1024) as (port, received):
         ae = AE(ae_title="CT_MAIN")
         ae.add_requested_context(XRAY_DOSE_SR, EXPLICIT_LE)

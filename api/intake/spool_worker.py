@@ -1,4 +1,5 @@
-"""The process that stores ``beamaudit listen``'s spool (started by ``listen``, never by hand).
+"""The process that stores a listener's spool (started by ``beamaudit listen`` and by the demo's
+listener process, never by hand).
 
 The listener's process receives and spools; this one, a child of it, parses and stores, so the
 two use two cores and storing a batch never holds up an association's answer. It reads one JSON
@@ -7,7 +8,7 @@ line of settings on standard input, then stores what the spool holds until its p
 parent is gone: it finishes the batch in hand and exits; the next listener stores the rest).
 One worker per spool at a time: it holds an exclusive lock on ``<spool>.lock``.
 
-Run as ``python -m beamaudit.api.cli._spool_worker`` (see :class:`SpoolWorkerProcess`).
+Run as ``python -m beamaudit.api.intake.spool_worker`` (see :class:`SpoolWorkerProcess`).
 """
 
 from __future__ import annotations
@@ -42,7 +43,7 @@ class SpoolWorkerProcess:
 
     def _spawn(self) -> subprocess.Popen[bytes]:
         process = subprocess.Popen(
-            [sys.executable, "-m", "beamaudit.api.cli._spool_worker"], stdin=subprocess.PIPE
+            [sys.executable, "-m", "beamaudit.api.intake.spool_worker"], stdin=subprocess.PIPE
         )
         stdin = process.stdin
         assert stdin is not None
@@ -100,7 +101,9 @@ def main() -> int:
 
     signal.signal(signal.SIGINT, signal.SIG_IGN)  # Ctrl-C reaches the parent, which says stop
     config = json.loads(sys.stdin.readline())
-    configure_logging(logging.INFO, log_format=config["log_format"])
+    # INFO (each stored batch) for ``listen``'s operator; the demo asks for WARNING
+    level = logging.getLevelName(config.get("log_level", "INFO"))
+    configure_logging(level, log_format=config["log_format"])
     stop, parent_gone = threading.Event(), threading.Event()
     signal.signal(signal.SIGTERM, lambda signum, frame: stop.set())  # stop, after storing
     threading.Thread(target=_watch_parent, args=(sys.stdin, stop, parent_gone), daemon=True).start()
