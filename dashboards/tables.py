@@ -287,7 +287,14 @@ ROOM_HISTORY = TableSpec(
     "room history",
     (
         Column("month", "month", "", "calendar month, YYYY-MM"),
-        Column("exam_type", "str", "", "examination type"),
+        Column(
+            "exam_type",
+            "str",
+            "",
+            "examination type (empty on a row that only carries the "
+            "room's ratios of a month without medians)",
+            nullable=True,
+        ),
         Column("quantity", "str", "", _QUANTITY),
         Column("median", "float", "quantity", "monthly median", nullable=True, minimum=0),
         Column("n", "int", "1", "examinations in the month", minimum=0),

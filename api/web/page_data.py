@@ -243,6 +243,15 @@ def room_history(session: Session, room: str, *, until: str | None = None) -> pd
                 "tolerance_low": 1.0 - tol, "tolerance_high": 1.0 + tol,
                 **mgd.get(x["month"], {}),
             })  # fmt: skip
+    # a mammography room's months have no main-group medians (its views are grouped by thickness
+    # band): its AGD ratio gets a row of its own, with no median to draw
+    shown = {r["month"] for r in rows}
+    rows += [
+        {"month": month, "exam_type": None, "quantity": "mgd_mgy", "median": np.nan, "n": 0,
+         "dap_ratio_median": np.nan, **values}
+        for month, values in mgd.items()
+        if month not in shown
+    ]  # fmt: skip
     frame = pd.DataFrame(
         rows,
         columns=["month", "exam_type", "quantity", "median", "n", "dap_ratio_median",
@@ -258,18 +267,18 @@ def room_history(session: Session, room: str, *, until: str | None = None) -> pd
 _MGD_COLUMNS = ("mgd_ratio_median", "mgd_band_low", "mgd_band_high")
 
 
-def _mgd_ratio_band(runs: Sequence[tuple[str, Any]], room: str) -> dict[str, dict[str, float]]:
+def _mgd_ratio_band(runs: Sequence[tuple[Any, Any]], room: str) -> dict[str, dict[str, float]]:
     """Month -> the room's median AGD ratio and the band the review judged it by: the room's
     usual ratio (:func:`~beamaudit.api.review.ratio_baseline.ratio_baselines` over the judged
     months, as the review's ``mgd_ratio_off_baseline`` flag) ± ``mgd_ratio_tolerance``, each
     month with its own run's parameters; no band where the room has too little history."""
-    defaults = ReviewParameters.__dataclass_fields__
-    points, months = [], defaults["mgd_ratio_baseline_months"].default
+    defaults = ReviewParameters.for_month(2000, 1)  # any month: only the defaults are read
+    points, months = [], defaults.mgd_ratio_baseline_months
     for _period, run in runs:
         params = (run.result or {}).get("parameters") or {}
         months = int(params.get("mgd_ratio_baseline_months") or months)
-        least = int(params.get("mgd_ratio_min_events") or defaults["mgd_ratio_min_events"].default)
-        tol = float(params.get("mgd_ratio_tolerance") or defaults["mgd_ratio_tolerance"].default)
+        least = int(params.get("mgd_ratio_min_events") or defaults.mgd_ratio_min_events)
+        tol = float(params.get("mgd_ratio_tolerance") or defaults.mgd_ratio_tolerance)
         points += [
             {"room": room, "month": x["month"], "median": x["median"], "n": x["n"], "least": least,
              "tol": tol}
