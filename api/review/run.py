@@ -892,6 +892,22 @@ def _ratios(events: pd.DataFrame, group_by: Sequence[str]) -> pd.DataFrame:
     return pd.concat(parts, ignore_index=True)
 
 
+def _ratio_flags(
+    ratios: pd.DataFrame, series: pd.DataFrame, params: ReviewParameters
+) -> list[fl.Flag]:
+    """The reported / reconstructed ratio flags: the period's DAP ratios against 1, the MGD
+    ratios against their room's baseline (from ``series``, the change-point series)."""
+    return fl.dap_ratio_out_of_tolerance(
+        ratios.loc[(ratios["quantity"] == fl.DAP_RATIO_QUANTITY).to_numpy()],
+        tolerance=params.dap_ratio_tolerance,
+        min_events=params.dap_ratio_min_events,
+    ) + fl.mgd_ratio_off_baseline(
+        _mgd_ratio_baselines(series, params),
+        tolerance=params.mgd_ratio_tolerance,
+        min_events=params.mgd_ratio_min_events,
+    )
+
+
 def _mgd_ratio_baselines(series: pd.DataFrame, params: ReviewParameters) -> pd.DataFrame:
     """The period's MGD-ratio months with their room's baseline (:mod:`.ratio_baseline`), from
     the change-point series (history and period, thin months dropped)."""
@@ -1149,18 +1165,9 @@ def review(
     fluoro = studies.loc[studies["modality"].isin(list(params.srdl_modalities))]
     flags += fl.srdl_exceeded(fluoro, thresholds=params.srdl_thresholds, exam_names=names)
     ratios = _ratios(scoped, params.group_by)
-    flags += fl.dap_ratio_out_of_tolerance(
-        ratios.loc[(ratios["quantity"] == fl.DAP_RATIO_QUANTITY).to_numpy()],
-        tolerance=params.dap_ratio_tolerance,
-        min_events=params.dap_ratio_min_events,
-    )
     monthly = pd.concat([_monthly_medians(units, params), ratios], ignore_index=True)
     series = _changepoint_series(monthly, history_df, catalogue, params)
-    flags += fl.mgd_ratio_off_baseline(
-        _mgd_ratio_baselines(series, params),
-        tolerance=params.mgd_ratio_tolerance,
-        min_events=params.mgd_ratio_min_events,
-    )
+    flags += _ratio_flags(ratios, series, params)
     flags += fl.changepoints(
         series,
         series_keys=[*LOCATION_KEYS, "exam_type", "quantity"],
