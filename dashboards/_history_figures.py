@@ -5,6 +5,8 @@ from __future__ import annotations
 import math
 from collections.abc import Mapping
 from dataclasses import dataclass
+from functools import partial
+from typing import Literal
 
 import pandas as pd
 import plotly.graph_objects as go
@@ -24,7 +26,7 @@ from beamaudit.dashboards.wording import OKABE_ITO, exam_name, quantity_short
 __all__ = [
     "LOG_AXIS_SPAN",
     "build_dap_ratio_history",
-    "build_mgd_ratio_history",
+    "build_ratio_history",
     "build_room_history",
 ]
 
@@ -208,24 +210,34 @@ def _monthly_band(rows: pd.DataFrame, ratio: _Ratio) -> pd.DataFrame:
     return band.groupby("month")[edges].first().reset_index()
 
 
-def build_dap_ratio_history(
+def build_ratio_history(
     history: TableLike,
     *,
+    ratio: Literal["dap_ratio", "mgd_ratio"] = "dap_ratio",
     room: str | None = None,
     title: str | None = None,
     exam_names: Mapping[str, str] | None = None,
 ) -> go.Figure:
-    """The median ratio of reported to reconstructed DAP per month, with its band.
+    """A room's monthly median ratio of a reported dose figure to its reconstruction, with its
+    band.
 
-    A ratio of 1 means the modality's DAP and the reconstruction agree. The
-    shaded band is the accepted tolerance; months outside it get a large
-    cross. If every row of a month carries the same ratio, one line is drawn
-    for the room; otherwise one per examination type.
+    ``dap_ratio``: reported ÷ reconstructed DAP (``dap_ratio_median``); a ratio
+    of 1 means the modality's DAP and the reconstruction agree, and the shaded
+    band (``tolerance_low``, ``tolerance_high``) is the accepted tolerance.
+    ``mgd_ratio``: a mammography unit's AGD ÷ the reconstructed D_G
+    (``mgd_ratio_median``); vendors' dosimetry methods differ, so the ratio is
+    not expected to be 1 (no line at 1), and the band (``mgd_band_low``,
+    ``mgd_band_high``) is the room's usual ratio ± the tolerance. Months
+    outside the band get a large cross. If every row of a month carries the
+    same ratio, one line is drawn for the room; otherwise one per examination
+    type.
 
     Parameters
     ----------
     history : table
         The ``ROOM_HISTORY`` table of one room.
+    ratio : {"dap_ratio", "mgd_ratio"}
+        Which ratio.
     room : str, optional
         Room name, for the default title.
     title : str, optional
@@ -235,57 +247,22 @@ def build_dap_ratio_history(
     -------
     plotly.graph_objects.Figure
         Traces in order: band lower edge, band upper edge (filled, named
-        ``"Tolerance band"``), the ratio line(s), ``"Outside the band"`` markers.
+        ``"Tolerance band"`` or ``"Room's usual ratio ± tolerance"``), the
+        ratio line(s), ``"Outside the band"`` markers.
 
     Raises
     ------
     TableError
         The table breaks its contract, or the band differs within a month.
     """
+    spec = {"dap_ratio": DAP_RATIO, "mgd_ratio": MGD_RATIO}[ratio]
     return _ratio_history(
-        ROOM_HISTORY.validate(history), DAP_RATIO, room=room, title=title, exam_names=exam_names
+        ROOM_HISTORY.validate(history), spec, room=room, title=title, exam_names=exam_names
     )
 
 
-def build_mgd_ratio_history(
-    history: TableLike,
-    *,
-    room: str | None = None,
-    title: str | None = None,
-    exam_names: Mapping[str, str] | None = None,
-) -> go.Figure:
-    """The median ratio of a mammography unit's AGD to the reconstructed D_G per month.
-
-    Vendors' dosimetry methods differ, so the ratio is not expected to be 1;
-    the shaded band is the room's usual ratio (the median of its preceding
-    months) ± the tolerance, and months outside it get a large cross. Lines as
-    in :func:`build_dap_ratio_history`.
-
-    Parameters
-    ----------
-    history : table
-        The ``ROOM_HISTORY`` table of one room (``mgd_ratio_median``,
-        ``mgd_band_low``, ``mgd_band_high``).
-    room : str, optional
-        Room name, for the default title.
-    title : str, optional
-        Figure title.
-
-    Returns
-    -------
-    plotly.graph_objects.Figure
-        Traces in order: band lower edge, band upper edge (filled, named
-        ``"Room's usual ratio ± tolerance"``), the ratio line(s),
-        ``"Outside the band"`` markers.
-
-    Raises
-    ------
-    TableError
-        The table breaks its contract, or the band differs within a month.
-    """
-    return _ratio_history(
-        ROOM_HISTORY.validate(history), MGD_RATIO, room=room, title=title, exam_names=exam_names
-    )
+#: :func:`build_ratio_history` of the DAP ratio (its name before the AGD ratio came).
+build_dap_ratio_history = partial(build_ratio_history, ratio="dap_ratio")
 
 
 def _ratio_history(

@@ -21,8 +21,8 @@ from beamaudit.dashboards import (
     TableError,
     build_dap_ratio_history,
     build_distribution,
-    build_mgd_ratio_history,
     build_overview_heatmap,
+    build_ratio_history,
     build_room_history,
     build_spectrum,
 )
@@ -483,7 +483,7 @@ def test_mgd_ratio_history_bands_the_rooms_usual_ratio_not_one() -> None:
         for mo, r, lo, hi in zip(months, [1.1, 1.12, 1.09, 1.5], [None, 0.88, 0.88, 0.88],
                                  [None, 1.32, 1.32, 1.32], strict=True)
     ]  # fmt: skip
-    fig = build_mgd_ratio_history(rows, room="Breast 1")
+    fig = build_ratio_history(rows, ratio="mgd_ratio", room="Breast 1")
     lower, upper, line, outside = fig.data
     assert upper.name == "Room's usual ratio ± tolerance" and upper.fill == "tonexty"
     assert list(lower.y) == [0.88] * 3 and list(upper.y) == [1.32] * 3

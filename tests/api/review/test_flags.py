@@ -200,17 +200,18 @@ def test_srdl_on_nothing() -> None:
 
 
 # ------------------------------------------------------------------------------------- DAP ratio
+def ratios_frame(n: list[int], median: list[float], **more: list[object]) -> pd.DataFrame:
+    """One month (2025-03) of rooms R1, R2... of site S1, with their ``n`` and ``median``."""
+    rooms = len(n)
+    return pd.DataFrame(
+        {"site": ["S1"] * rooms, "room": [f"R{i + 1}" for i in range(rooms)],
+         "device": [None] * rooms, "month": ["2025-03"] * rooms, "n": n, "median": median,
+         **more}
+    )  # fmt: skip
+
+
 def test_dap_ratio_outside_tolerance() -> None:
-    ratios = pd.DataFrame(
-        {
-            "site": ["S1"] * 4,
-            "room": ["R1", "R2", "R3", "R4"],
-            "device": [None] * 4,
-            "month": ["2025-03"] * 4,
-            "n": [40, 40, 40, 5],
-            "median": [1.30, 1.20, 0.70, 2.0],
-        }
-    )
+    ratios = ratios_frame([40, 40, 40, 5], [1.30, 1.20, 0.70, 2.0])
     flags = fl.dap_ratio_out_of_tolerance(ratios, tolerance=0.25, min_events=20)
     assert [(f.room, f.numbers["median_ratio"]) for f in flags] == [("R1", 1.3), ("R3", 0.7)]
     assert flags[0].date == "2025-03"
@@ -222,17 +223,11 @@ def test_dap_ratio_outside_tolerance() -> None:
 def test_mgd_ratio_is_judged_against_the_rooms_usual_ratio_not_one() -> None:
     # invented rooms: R1's unit reads 1.10 x the Dance D_G as a rule and 1.45 x this month; R2's
     # reads 0.80 x as a rule (its own method: no finding); R3 too few views; R4 no baseline yet
-    ratios = pd.DataFrame(
-        {
-            "site": ["S1"] * 4,
-            "room": ["R1", "R2", "R3", "R4"],
-            "device": [None] * 4,
-            "month": ["2025-03"] * 4,
-            "n": [40, 40, 5, 40],
-            "median": [1.45, 0.80, 2.0, 3.0],
-            "baseline": [1.10, 0.80, 1.0, np.nan],
-            "baseline_months": [6, 6, 6, 2],
-        }
+    ratios = ratios_frame(
+        [40, 40, 5, 40],
+        [1.45, 0.80, 2.0, 3.0],
+        baseline=[1.10, 0.80, 1.0, np.nan],
+        baseline_months=[6, 6, 6, 2],
     )
     (flag,) = fl.mgd_ratio_off_baseline(ratios, tolerance=0.2, min_events=20)
     assert (flag.room, flag.quantity, flag.date) == ("R1", fl.MGD_RATIO_QUANTITY, "2025-03")
