@@ -243,8 +243,8 @@ def room_history(session: Session, room: str, *, until: str | None = None) -> pd
                 "tolerance_low": 1.0 - tol, "tolerance_high": 1.0 + tol,
                 **mgd.get(x["month"], {}),
             })  # fmt: skip
-    # a mammography room's months have no main-group medians (its views are grouped by thickness
-    # band): its AGD ratio gets a row of its own, with no median to draw
+    # a month with an AGD ratio and no monthly median of the room (e.g. its views all outside
+    # the groups that have medians) gets a row of its own, with no median to draw
     shown = {r["month"] for r in rows}
     rows += [
         {"month": month, "exam_type": None, "quantity": "mgd_mgy", "median": np.nan, "n": 0,
