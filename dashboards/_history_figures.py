@@ -1,9 +1,12 @@
-"""Figures of one room over time: monthly medians, reported against reconstructed DAP."""
+"""Figures of one room over time: monthly medians, reported against reconstructed DAP and AGD."""
 
 from __future__ import annotations
 
 import math
 from collections.abc import Mapping
+from dataclasses import dataclass
+from functools import partial
+from typing import Literal
 
 import pandas as pd
 import plotly.graph_objects as go
@@ -20,7 +23,12 @@ from beamaudit.dashboards.errors import TableError
 from beamaudit.dashboards.tables import ROOM_HISTORY, TableLike
 from beamaudit.dashboards.wording import OKABE_ITO, exam_name, quantity_short
 
-__all__ = ["LOG_AXIS_SPAN", "build_dap_ratio_history", "build_room_history"]
+__all__ = [
+    "LOG_AXIS_SPAN",
+    "build_dap_ratio_history",
+    "build_ratio_history",
+    "build_room_history",
+]
 
 #: Span of medians (max / min) over which a room history gets a log axis by default.
 LOG_AXIS_SPAN = 10.0
@@ -165,37 +173,71 @@ def _log_ticks(values: pd.Series) -> list[float]:
     return [t for t in ticks if lo <= t <= hi]
 
 
-def _monthly_band(rows: pd.DataFrame) -> pd.DataFrame:
-    band = rows.dropna(subset=["tolerance_low", "tolerance_high"])
-    spread = band.groupby("month")[["tolerance_low", "tolerance_high"]].nunique()
+@dataclass(frozen=True)
+class _Ratio:
+    """One reported ÷ reconstructed series of ``ROOM_HISTORY``: its columns and its words."""
+
+    column: str
+    low: str
+    high: str
+    label: str  # the axis title, "Reported ÷ reconstructed DAP"
+    none: str  # the empty figure's text
+    band: str  # what the band is, for the legend
+    one: bool  # draw the line "reported = reconstructed" at 1
+
+
+DAP_RATIO = _Ratio(
+    "dap_ratio_median", "tolerance_low", "tolerance_high", "Reported ÷ reconstructed DAP",
+    "No DAP comparisons", "Tolerance band", one=True,
+)  # fmt: skip
+MGD_RATIO = _Ratio(
+    "mgd_ratio_median", "mgd_band_low", "mgd_band_high", "Unit's AGD ÷ reconstructed D_G",
+    "No AGD comparisons", "Room's usual ratio ± tolerance", one=False,
+)  # fmt: skip
+
+
+def _monthly_band(rows: pd.DataFrame, ratio: _Ratio) -> pd.DataFrame:
+    edges = [ratio.low, ratio.high]
+    band = rows.dropna(subset=edges)
+    spread = band.groupby("month")[edges].nunique()
     clash = spread[(spread > 1).any(axis=1)]
     if not clash.empty:
         months = ", ".join(m.strftime("%Y-%m") for m in clash.index[:3])
         raise TableError(
-            f"room history table: the DAP tolerance band differs between rows of the same month "
-            f"({months}); it is a property of the room and month"
+            f"room history table: the {ratio.band.lower()} differs between rows of the same "
+            f"month ({months}); it is a property of the room and month"
         )
-    return band.groupby("month")[["tolerance_low", "tolerance_high"]].first().reset_index()
+    return band.groupby("month")[edges].first().reset_index()
 
 
-def build_dap_ratio_history(
+def build_ratio_history(
     history: TableLike,
     *,
+    ratio: Literal["dap_ratio", "mgd_ratio"] = "dap_ratio",
     room: str | None = None,
     title: str | None = None,
     exam_names: Mapping[str, str] | None = None,
 ) -> go.Figure:
-    """The median ratio of reported to reconstructed DAP per month, with its band.
+    """A room's monthly median ratio of a reported dose figure to its reconstruction, with its
+    band.
 
-    A ratio of 1 means the modality's DAP and the reconstruction agree. The
-    shaded band is the accepted tolerance; months outside it get a large
-    cross. If every row of a month carries the same ratio, one line is drawn
-    for the room; otherwise one per examination type.
+    ``dap_ratio``: reported ÷ reconstructed DAP (``dap_ratio_median``); a ratio
+    of 1 means the modality's DAP and the reconstruction agree, and the shaded
+    band (``tolerance_low``, ``tolerance_high``) is the accepted tolerance.
+    ``mgd_ratio``: a mammography unit's AGD ÷ the reconstructed D_G
+    (``mgd_ratio_median``); vendors' dosimetry methods differ, so the ratio is
+    not expected to be 1 (no line at 1), and the band (``mgd_band_low``,
+    ``mgd_band_high``) is the room's usual ratio ± the tolerance. Months
+    outside the band get a large cross. If every row of a month carries the
+    same ratio, one line is drawn for the room; otherwise one per examination
+    type.
 
     Parameters
     ----------
     history : table
         The ``ROOM_HISTORY`` table of one room.
+    ratio : {"dap_ratio", "mgd_ratio"}
+        Which ratio.
     room : str, optional
         Room name, for the default title.
     title : str, optional
@@ -205,48 +247,50 @@ def build_dap_ratio_history(
     -------
     plotly.graph_objects.Figure
         Traces in order: band lower edge, band upper edge (filled, named
-        ``"Tolerance band"``), the ratio line(s), ``"Outside the band"`` markers.
+        ``"Tolerance band"`` or ``"Room's usual ratio ± tolerance"``), the
+        ratio line(s), ``"Outside the band"`` markers.
 
     Raises
     ------
     TableError
         The table breaks its contract, or the band differs within a month.
     """
-    return _dap_ratio_history(
-        ROOM_HISTORY.validate(history), room=room, title=title, exam_names=exam_names
+    spec = {"dap_ratio": DAP_RATIO, "mgd_ratio": MGD_RATIO}[ratio]
+    return _ratio_history(
+        ROOM_HISTORY.validate(history), spec, room=room, title=title, exam_names=exam_names
     )
 
 
-def _dap_ratio_history(
+#: :func:`build_ratio_history` of the DAP ratio (its name before the AGD ratio came).
+build_dap_ratio_history = partial(build_ratio_history, ratio="dap_ratio")
+
+
+def _ratio_history(
     table: pd.DataFrame,
+    ratio: _Ratio,
     *,
     room: str | None = None,
     title: str | None = None,
     exam_names: Mapping[str, str] | None = None,
 ) -> go.Figure:
-    """:func:`build_dap_ratio_history` on a ``ROOM_HISTORY`` table already validated."""
-    rows = table[table["dap_ratio_median"].notna()].sort_values("month")
-    default = f"{room + ': ' if room else ''}reported ÷ reconstructed DAP"
+    """A ratio series of a validated ``ROOM_HISTORY`` table, with its band and crosses."""
+    rows = table[table[ratio.column].notna()].sort_values("month")
+    default = f"{room + ': ' if room else ''}{ratio.label[0].lower()}{ratio.label[1:]}"
     fig = go.Figure()
-    style(
-        fig,
-        title=title if title is not None else default,
-        x_title="Month",
-        y_title="Reported ÷ reconstructed DAP",
-    )
+    style(fig, title=title if title is not None else default, x_title="Month", y_title=ratio.label)
     if rows.empty:
-        return no_data(fig, "No DAP comparisons")
-    band = _monthly_band(table)
+        return no_data(fig, ratio.none)
+    band = _monthly_band(table, ratio)
     if not band.empty:
-        _add_tolerance_band(fig, band)
-    groups = _dap_ratio_series(rows)
+        _add_tolerance_band(fig, band, ratio)
+    groups = _ratio_series(rows, ratio.column)
     for i, (name, part) in enumerate(groups):
         colour, symbol = series(i)
         name = exam_name(str(name), exam_names)
         fig.add_trace(
             go.Scatter(
                 x=list(part["month"]),
-                y=list(part["dap_ratio_median"]),
+                y=list(part[ratio.column]),
                 mode="lines+markers",
                 name=str(name),
                 line={"color": colour, "width": 2},
@@ -255,32 +299,33 @@ def _dap_ratio_history(
             )
         )
     if not band.empty:
-        _mark_outside_band(fig, pd.concat([part for _, part in groups]), band)
-    fig.add_hline(
-        y=1.0,
-        line={"color": INK, "width": 1, "dash": "dot"},
-        annotation={
-            "text": "reported = reconstructed",
-            "xanchor": "right",
-            "x": 1.0,
-            "yanchor": "top",
-            "font": {"size": 11},
-        },
-    )
+        _mark_outside_band(fig, pd.concat([part for _, part in groups]), band, ratio)
+    if ratio.one:
+        fig.add_hline(
+            y=1.0,
+            line={"color": INK, "width": 1, "dash": "dot"},
+            annotation={
+                "text": "reported = reconstructed",
+                "xanchor": "right",
+                "x": 1.0,
+                "yanchor": "top",
+                "font": {"size": 11},
+            },
+        )
     _month_axis(fig, table["month"])
     return fig
 
 
-def _add_tolerance_band(fig: go.Figure, band: pd.DataFrame) -> None:
-    """Draw the monthly tolerance band of the DAP ratio: its lower edge, then its upper edge
-    filled down to the lower one."""
+def _add_tolerance_band(fig: go.Figure, band: pd.DataFrame, ratio: _Ratio) -> None:
+    """Draw the monthly band of a ratio: its lower edge, then its upper edge filled down to the
+    lower one."""
     fig.add_trace(
         go.Scatter(
             x=list(band["month"]),
-            y=list(band["tolerance_low"]),
+            y=list(band[ratio.low]),
             mode="lines",
             line={"color": "#9a9a9a", "width": 1, "dash": "dot"},
-            name="Tolerance band (lower edge)",
+            name=f"{ratio.band} (lower edge)",
             showlegend=False,
             hovertemplate="lower edge %{y:.2f}<extra></extra>",
         )
@@ -288,39 +333,40 @@ def _add_tolerance_band(fig: go.Figure, band: pd.DataFrame) -> None:
     fig.add_trace(
         go.Scatter(
             x=list(band["month"]),
-            y=list(band["tolerance_high"]),
+            y=list(band[ratio.high]),
             mode="lines",
             line={"color": "#9a9a9a", "width": 1, "dash": "dot"},
             fill="tonexty",
             fillcolor="rgba(86,180,233,0.18)",
-            name="Tolerance band",
+            name=ratio.band,
             hovertemplate="upper edge %{y:.2f}<extra></extra>",
         )
     )
 
 
-def _dap_ratio_series(rows: pd.DataFrame) -> list[tuple[object, pd.DataFrame]]:
+def _ratio_series(rows: pd.DataFrame, column: str) -> list[tuple[object, pd.DataFrame]]:
     """The lines to draw: one for all examinations when every month has one median, else one per
     examination type."""
-    one_line = bool((rows.groupby("month")["dap_ratio_median"].nunique() <= 1).all())
+    one_line = bool((rows.groupby("month")[column].nunique() <= 1).all())
     if one_line:
         return [("All examinations", rows.drop_duplicates("month"))]
     return list(rows.groupby("exam_type", sort=True))
 
 
-def _mark_outside_band(fig: go.Figure, drawn: pd.DataFrame, band: pd.DataFrame) -> None:
-    """Cross the drawn monthly medians that fall outside that month's tolerance band."""
+def _mark_outside_band(
+    fig: go.Figure, drawn: pd.DataFrame, band: pd.DataFrame, ratio: _Ratio
+) -> None:
+    """Cross the drawn monthly medians that fall outside that month's band."""
     merged = drawn.merge(band, on="month", suffixes=("_row", ""))
     outside = merged[
-        (merged["dap_ratio_median"] < merged["tolerance_low"])
-        | (merged["dap_ratio_median"] > merged["tolerance_high"])
+        (merged[ratio.column] < merged[ratio.low]) | (merged[ratio.column] > merged[ratio.high])
     ]
     if outside.empty:
         return
     fig.add_trace(
         go.Scatter(
             x=list(outside["month"]),
-            y=list(outside["dap_ratio_median"]),
+            y=list(outside[ratio.column]),
             mode="markers",
             name="Outside the band",
             marker={

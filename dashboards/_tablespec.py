@@ -200,7 +200,7 @@ def _coerce(table: str, col: Column, raw: pd.Series) -> pd.Series:
     if not col.nullable and empty.any():
         raise _where(table, col, empty, "empty value")
     if col.kind == "str":
-        bad = ~empty & ~raw.map(lambda v: isinstance(v, str))
+        bad = ~empty & ~raw.map(lambda v: isinstance(v, str)).astype(bool)  # bool when empty too
         if bad.any():
             raise _where(table, col, bad, "not text")
         values = raw.astype(object).where(~empty, None)

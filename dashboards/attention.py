@@ -45,6 +45,7 @@ KIND_TIERS: dict[str, int] = {
     "srdl_exceeded": 0,
     "group_above_level": 1,
     "dap_ratio_out_of_tolerance": 1,
+    "mgd_ratio_off_baseline": 1,
     "changepoint": 1,
     "exam_above_investigation_level": 2,
     "no_dose_data": 3,
@@ -55,6 +56,12 @@ KIND_TIERS: dict[str, int] = {
     "low_dose_review": 4,
 }
 _OTHER_TIER = 3
+
+#: The reported ÷ reconstructed ratio series of the monthly tables, in words.
+_RATIO_WORDS = {
+    "dap_ratio": "reported ÷ reconstructed DAP",
+    "mgd_ratio": "the unit's AGD ÷ reconstructed D_G",
+}
 
 #: Severities, most serious first.
 SEVERITY_RANK: dict[str, int] = {"action": 0, "warning": 1, "info": 2}
@@ -326,33 +333,55 @@ def _srdl(rows: list[Row], names: Mapping[str, str], period: str | None) -> list
     return items
 
 
-def _dap_ratio(rows: list[Row], names: Mapping[str, str], period: str | None) -> list[Item]:
-    items = []
-    for group in _groups(rows, ("room",)):
-        top = max(group, key=lambda r: _factor(_number(_numbers(r), "median_ratio"), 1.0))
-        n = _numbers(top)
-        ratio, tolerance = _number(n, "median_ratio"), _number(n, "tolerance")
-        if ratio is None:
-            items += _by_reason([top], names, period)
-            continue
-        band = (
-            f"; accepted {format_level(1 - tolerance)}–{format_level(1 + tolerance)}"
-            if tolerance is not None
-            else ""
-        )
-        exposures = _number(n, "n")
-        over = f"median of {int(exposures)} exposures" if exposures is not None else "median"
-        headline = (
-            f"{top.get('room') or 'A room'}: reported DAP {format_number(ratio)} × the "
-            f"reconstruction ({over}{band}): check the DAP meter"
-        )
-        href = (
-            _web.room_href(top["room"]) + "#dap-ratio"
-            if top.get("room")
-            else _flags_link(top, period)
-        )
-        items.append(_item(top, headline, href, _factor(ratio, 1.0), count=len(group)))
-    return items
+def _ratio(
+    figure: str, views: str, check: str, anchor: str, baseline: bool
+) -> Callable[[list[Row], Mapping[str, str], str | None], list[Item]]:
+    """Lines of a room's reported ÷ reconstructed ratio flags, one per room (its worst month):
+    ``figure`` names the two figures, ``views`` what the median is over, ``check`` what to
+    check, ``anchor`` the room page's figure; the reference is 1, or with ``baseline`` the
+    room's usual ratio (the flag's ``baseline_ratio``)."""
+
+    def reference(row: Row) -> float | None:
+        return _number(_numbers(row), "baseline_ratio") if baseline else 1.0
+
+    def size(row: Row) -> float:
+        return _factor(_number(_numbers(row), "median_ratio"), reference(row))
+
+    def write(rows: list[Row], names: Mapping[str, str], period: str | None) -> list[Item]:
+        items = []
+        for group in _groups(rows, ("room",)):
+            top = max(group, key=size)
+            n = _numbers(top)
+            ratio, tolerance, usual = (
+                _number(n, "median_ratio"),
+                _number(n, "tolerance"),
+                reference(top),
+            )
+            if ratio is None or usual is None:
+                items += _by_reason([top], names, period)
+                continue
+            band = (
+                f"; accepted {format_level(usual * (1 - tolerance))}–"
+                f"{format_level(usual * (1 + tolerance))}"
+                if tolerance is not None
+                else ""
+            )
+            counted = _number(n, "n")
+            over = f"median of {int(counted)} {views}" if counted is not None else "median"
+            were = f", usually {format_number(usual)}" if baseline else ""
+            headline = (
+                f"{top.get('room') or 'A room'}: {figure} {format_number(ratio)} × the "
+                f"reconstruction{were} ({over}{band}): {check}"
+            )
+            href = (
+                _web.room_href(top["room"]) + anchor
+                if top.get("room")
+                else _flags_link(top, period)
+            )
+            items.append(_item(top, headline, href, size(top), count=len(group)))
+        return items
+
+    return write
 
 
 def _changepoint(rows: list[Row], names: Mapping[str, str], period: str | None) -> list[Item]:
@@ -366,8 +395,8 @@ def _changepoint(rows: list[Row], names: Mapping[str, str], period: str | None) 
             if before is None or after is None or not quantity:
                 continue
             size = max(size, _factor(after, before))
-            if quantity == "dap_ratio":
-                what = "reported ÷ reconstructed DAP"
+            if quantity in _RATIO_WORDS:
+                what = _RATIO_WORDS[quantity]
                 steps.append(f"{what} {format_number(before)} → {format_number(after)}")
             else:
                 steps.append(
@@ -508,7 +537,12 @@ _WRITERS: dict[str, Callable[[list[Row], Mapping[str, str], str | None], list[It
     "group_above_level": _group_above_level,
     "exam_above_investigation_level": _exam_above,
     "srdl_exceeded": _srdl,
-    "dap_ratio_out_of_tolerance": _dap_ratio,
+    "dap_ratio_out_of_tolerance": _ratio(
+        "reported DAP", "exposures", "check the DAP meter", "#dap-ratio", baseline=False
+    ),
+    "mgd_ratio_off_baseline": _ratio(
+        "the unit's AGD", "views", "check the unit's dosimetry", "#mgd-ratio", baseline=True
+    ),
     "changepoint": _changepoint,
     "deviation_index_out_of_range": _counted("with a deviation index out of range", "exposure"),
     "no_dose_data": _counted("without any dose value", "examination"),

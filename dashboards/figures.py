@@ -13,6 +13,7 @@ builder                        table
 :func:`build_distribution`      ``EVENTS`` (and ``LEVELS``)
 :func:`build_room_history`      ``ROOM_HISTORY`` of one room
 :func:`build_dap_ratio_history` ``ROOM_HISTORY`` of one room
+:func:`build_ratio_history`     ``ROOM_HISTORY`` of one room (DAP or AGD ratio)
 :func:`build_spectrum`          one exposure's spectrum mapping
 :func:`build_spectra`           the distinct beams of one study
 :func:`build_skin_dose_map`     one procedure's skin-dose map record
@@ -23,6 +24,7 @@ from beamaudit.dashboards._heatmap_figure import build_overview_heatmap
 from beamaudit.dashboards._history_figures import (
     LOG_AXIS_SPAN,
     build_dap_ratio_history,
+    build_ratio_history,
     build_room_history,
 )
 from beamaudit.dashboards._review_figures import EVENT_QUANTITIES, build_distribution
@@ -35,6 +37,7 @@ __all__ = [
     "build_dap_ratio_history",
     "build_distribution",
     "build_overview_heatmap",
+    "build_ratio_history",
     "build_room_history",
     "build_skin_dose_map",
     "build_spectra",

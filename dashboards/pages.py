@@ -313,11 +313,15 @@ def render_room(
             f"history-{i}",
         )
         blocks.append((block, lines > _LINES_IN_HALF_CARD))
-    ratio_block = None
-    if table["dap_ratio_median"].notna().any():
-        ratio_block = _web.figure_block(
-            _history_figures._dap_ratio_history(table, room=room, exam_names=names), "dap-ratio"
+    ratio_block, mgd_block = (
+        _web.figure_block(
+            _history_figures._ratio_history(table, ratio, room=room, exam_names=names), anchor
         )
+        if table[ratio.column].notna().any()
+        else None
+        for ratio, anchor in ((_history_figures.DAP_RATIO, "dap-ratio"),
+                              (_history_figures.MGD_RATIO, "mgd-ratio"))
+    )  # fmt: skip
     flag_rows = _rows.flag_rows(
         FLAGS.validate(flags if flags is not None else []), names, room=room
     )
@@ -328,10 +332,11 @@ def render_room(
         context=context,
         page_title=f"Room {room}",
         active="",
-        has_figures=bool(blocks) or ratio_block is not None,
+        has_figures=bool(blocks) or ratio_block is not None or mgd_block is not None,
         room=room,
         blocks=blocks,
         ratio_block=ratio_block,
+        mgd_block=mgd_block,
         changes=[
             (m.strftime("%B %Y"), exam_name(e, names), quantity_short(q))
             for m, e, q in zip(

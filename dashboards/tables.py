@@ -67,8 +67,11 @@ The contracts
     unit), ``n``, ``change_point`` (bool: a change detected at this month),
     ``dap_ratio_median`` (median of reported / reconstructed DAP, 1),
     ``tolerance_low`` and ``tolerance_high`` (1, the accepted band for that
-    ratio). The ratio and its band may be repeated on every row of a month or
-    given on some rows only.
+    ratio), and optionally, for a mammography room, ``mgd_ratio_median``
+    (median of the unit's AGD / reconstructed D_G, 1) with ``mgd_band_low``
+    and ``mgd_band_high`` (1, the room's usual ratio ± the tolerance). Each
+    ratio and its band may be repeated on every row of a month or given on some
+    rows only.
 
 ``LEVELS``
     Reference levels to draw on distributions: ``exam_type``, ``quantity``,
@@ -284,7 +287,14 @@ ROOM_HISTORY = TableSpec(
     "room history",
     (
         Column("month", "month", "", "calendar month, YYYY-MM"),
-        Column("exam_type", "str", "", "examination type"),
+        Column(
+            "exam_type",
+            "str",
+            "",
+            "examination type (empty on a row that only carries the "
+            "room's ratios of a month without medians)",
+            nullable=True,
+        ),
         Column("quantity", "str", "", _QUANTITY),
         Column("median", "float", "quantity", "monthly median", nullable=True, minimum=0),
         Column("n", "int", "1", "examinations in the month", minimum=0),
@@ -299,12 +309,29 @@ ROOM_HISTORY = TableSpec(
         ),
         Column("tolerance_low", "float", "1", "lower edge of the accepted ratio", nullable=True),
         Column("tolerance_high", "float", "1", "upper edge of the accepted ratio", nullable=True),
+        Column(
+            "mgd_ratio_median",
+            "float",
+            "1",
+            "median of the unit's AGD / reconstructed D_G",
+            **_OPTIONAL,
+        ),
+        Column(
+            "mgd_band_low", "float", "1", "lower edge of the room's usual AGD ratio", **_OPTIONAL
+        ),
+        Column(
+            "mgd_band_high", "float", "1", "upper edge of the room's usual AGD ratio", **_OPTIONAL
+        ),
     ),
     rules=(
         _QUANTITY_HAS_UNIT,
         Rule(
             "tolerance_low must not exceed tolerance_high",
             lambda t: t["tolerance_low"] > t["tolerance_high"],
+        ),
+        Rule(
+            "mgd_band_low must not exceed mgd_band_high",
+            lambda t: t["mgd_band_low"] > t["mgd_band_high"],
         ),
     ),
 )

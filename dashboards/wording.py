@@ -162,6 +162,7 @@ FLAG_KIND_WORDS: dict[str, str] = {
     "exam_above_investigation_level": "Single exam above the investigation level",
     "srdl_exceeded": "Substantial radiation dose level exceeded",
     "dap_ratio_out_of_tolerance": "Reported DAP off the reconstruction",
+    "mgd_ratio_off_baseline": "Reported AGD off the room's usual ratio",
     "changepoint": "Change in a monthly median",
     "deviation_index_out_of_range": "Deviation index out of range",
     "no_dose_data": "Exam without dose values",

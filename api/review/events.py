@@ -50,6 +50,8 @@ breast_thickness_mm        float         mammography: the compressed breast thic
                                          (:mod:`.mammography`)
 ct_dw_cm                   float         CT: the water-equivalent diameter, cm (NaN when not
                                          known); CT groups may be set by its bands (:mod:`.ct_size`)
+recon_mgd_mgy              float         mammography: beamaudit's reconstructed D_G (NaN when not
+                                         made); a room's ratio of ``mgd_mgy`` to it is watched
 =========================  ============  ==========================================================
 
 Units of analysis
@@ -123,8 +125,10 @@ OPTIONAL_COLUMNS = (
     "clinical_indication",
     "breast_thickness_mm",
     "ct_dw_cm",
+    "recon_mgd_mgy",
 )
 _LOCATION = ("site", "room", "device")
+_OPTIONAL_FLOATS = ("patient_age_years", "breast_thickness_mm", "ct_dw_cm", "recon_mgd_mgy")
 
 #: What a unit carries of its examination, per event or summed per study.
 _EXAM_COLUMNS = (
@@ -208,7 +212,7 @@ def _add_text_columns(out: pd.DataFrame, events: pd.DataFrame) -> np.ndarray | N
 def _add_numbers(out: pd.DataFrame, events: pd.DataFrame) -> None:
     """Add the float columns, checked numeric, finite, not negative, weights positive."""
     n_rows = len(events)
-    for c in (*FLOAT_COLUMNS, "patient_age_years", "breast_thickness_mm", "ct_dw_cm"):
+    for c in (*FLOAT_COLUMNS, *_OPTIONAL_FLOATS):
         if c not in events.columns:
             out[c] = np.full(n_rows, np.nan)
             continue
@@ -223,7 +227,7 @@ def _add_numbers(out: pd.DataFrame, events: pd.DataFrame) -> None:
             raise ReviewInputError(
                 f"{c} is infinite for event(s) {_bad_ids(out, np.isinf(values))}"
             )
-    for c in (*_NON_NEGATIVE, "patient_age_years", "breast_thickness_mm", "ct_dw_cm"):
+    for c in (*_NON_NEGATIVE, *_OPTIONAL_FLOATS):
         bad = out[c].to_numpy() < 0
         if bad.any():
             raise ReviewInputError(f"{c} is negative for event(s) {_bad_ids(out, bad)}")

@@ -19,7 +19,11 @@ kind                               severity  fires when
 ``dap_ratio_out_of_tolerance``     warning   a room's monthly median of reported / reconstructed
                                              DAP is outside 1 +/- tolerance (a meter or
                                              configuration fault)
-``changepoint``                    warning   a CUSUM change in a room's monthly median or DAP ratio
+``mgd_ratio_off_baseline``         warning   a mammography room's monthly median of the device's AGD
+                                             / reconstructed D_G is far from the room's own usual
+                                             ratio (a change in the unit's dosimetry or beam)
+``changepoint``                    warning   a CUSUM change in a room's monthly median, DAP ratio
+                                             or MGD ratio
 ``deviation_index_out_of_range``   warning   an exposure's deviation index outside the range
 ``no_dose_data``                   warning   a study whose events carry no dose value at all
 ``unknown_exam_type``              warning   events carry an exam type the catalogue does not know
@@ -37,7 +41,7 @@ Flags about a group carry its clinical indication and patient group (``clinical_
 from __future__ import annotations
 
 import math
-from collections.abc import Mapping, Sequence
+from collections.abc import Callable, Mapping, Sequence
 from dataclasses import dataclass, field
 from types import MappingProxyType
 from typing import Any, Literal
@@ -53,6 +57,7 @@ __all__ = [
     "DAP_RATIO_QUANTITY",
     "FLAG_KINDS",
     "GROUP_KEYS",
+    "MGD_RATIO_QUANTITY",
     "NCRP168_SRDL",
     "TG116_DI_RANGE",
     "Flag",
@@ -62,6 +67,7 @@ __all__ = [
     "exams_above_investigation_level",
     "groups_above_level",
     "low_dose_review",
+    "mgd_ratio_off_baseline",
     "no_dose_data",
     "sort_flags",
     "srdl_exceeded",
@@ -74,6 +80,7 @@ FlagKind = Literal[
     "exam_above_investigation_level",
     "srdl_exceeded",
     "dap_ratio_out_of_tolerance",
+    "mgd_ratio_off_baseline",
     "changepoint",
     "deviation_index_out_of_range",
     "no_dose_data",
@@ -86,6 +93,7 @@ FLAG_KINDS: tuple[FlagKind, ...] = (
     "exam_above_investigation_level",
     "srdl_exceeded",
     "dap_ratio_out_of_tolerance",
+    "mgd_ratio_off_baseline",
     "changepoint",
     "deviation_index_out_of_range",
     "no_dose_data",
@@ -108,6 +116,15 @@ GROUP_KEYS = (
 
 #: Name of the reported / reconstructed DAP ratio series in monthly tables.
 DAP_RATIO_QUANTITY = "dap_ratio"
+#: Name of the device's AGD / reconstructed D_G ratio series (mammography) in monthly tables.
+MGD_RATIO_QUANTITY = "mgd_ratio"
+#: What a ratio series compares, for the reasons.
+_RATIO_WHAT = MappingProxyType(
+    {
+        DAP_RATIO_QUANTITY: "median ratio of reported to reconstructed DAP",
+        MGD_RATIO_QUANTITY: "median ratio of the device's AGD to the reconstructed D_G",
+    }
+)
 
 #: NCRP Report 168 (2010) substantial radiation dose levels, from memory (PUBLISHED-VALUES h, high):
 #: K_a,r 5 Gy, P_KA 500 Gy·cm² (assumes a 100 cm² field at the skin), fluoroscopy time 60 min. The
@@ -633,28 +650,113 @@ def dap_ratio_out_of_tolerance(
     min_events : int
         Months with fewer events are not judged.
     """
-    median = ratios["median"].to_numpy(dtype=np.float64)
-    n = ratios["n"].to_numpy()
-    with np.errstate(invalid="ignore"):
-        hit = (n >= min_events) & (np.abs(median - 1.0) > tolerance)
-    flags = []
-    for row in _records(ratios[hit]):
-        m = float(row["median"])
-        reason = (
+
+    def reason(row: Mapping[str, Any], m: float) -> str:
+        return (
             f"Median ratio of reported to reconstructed DAP{_where(row)} in {row['month']} is "
             f"{m:.2f} over {int(row['n'])} exposures, outside 1 ± {tolerance:.2f}: the reported "
             f"DAP is {'higher' if m > 1 else 'lower'} than the beam model predicts; check the DAP "
-            f"meter's "
-            f"calibration and the room's model configuration (filtration, tube output)."
+            f"meter's calibration and the room's model configuration (filtration, tube output)."
         )
+
+    return _ratio_flags(
+        ratios.assign(reference=1.0),
+        kind="dap_ratio_out_of_tolerance",
+        quantity=DAP_RATIO_QUANTITY,
+        tolerance=tolerance,
+        min_events=min_events,
+        reason=reason,
+    )
+
+
+def mgd_ratio_off_baseline(
+    ratios: pd.DataFrame, *, tolerance: float, min_events: int
+) -> list[Flag]:
+    """Mammography rooms whose monthly median of the device's AGD / reconstructed D_G is far from
+    the room's own usual ratio.
+
+    Units use different dosimetry methods for the average glandular dose they report (Dance's
+    g, c, s with different tables or spectra, other breast models), so the ratio of their figure
+    to beamaudit's Dance-method D_G is not 1 and differs between vendors; what matters is that it
+    stays put. The reference is therefore the room's own baseline (see
+    :func:`beamaudit.api.review.ratio_baseline.ratio_baselines`: the median of its preceding
+    judged months), not 1. A month is flagged when
+
+    .. math:: |r_m / r_b - 1| > t
+
+    with :math:`r_m` the month's median ratio, :math:`r_b` the baseline and :math:`t` the
+    tolerance (**project choice**, see ``ReviewParameters.mgd_ratio_tolerance``).
+
+    Parameters
+    ----------
+    ratios : DataFrame
+        One row per room (and the other group keys present) and month with ``month``
+        (``YYYY-MM``), ``n`` (events with both values), ``median``, ``baseline`` (NaN: not
+        judged, too little history) and ``baseline_months`` (months the baseline is made of).
+    tolerance : float
+        Allowed relative deviation of the month's median from the baseline.
+    min_events : int
+        Months with fewer events are not judged.
+    """
+
+    def reason(row: Mapping[str, Any], m: float) -> str:
+        base = float(row["reference"])
+        return (
+            f"Median ratio of the device's AGD to the reconstructed D_G{_where(row)} in "
+            f"{row['month']} is {m:.2f} over {int(row['n'])} views, "
+            f"{'above' if m > base else 'below'} the room's usual {base:.2f} (median of its "
+            f"{int(row['baseline_months'])} preceding months) by more than "
+            f"{100 * tolerance:.0f} %: the unit's dose figure or its beam changed against the "
+            f"model; check the unit's dosimetry settings, a recent service or software update, "
+            f"and the room's model configuration (target, filter, tube output)."
+        )
+
+    return _ratio_flags(
+        ratios.assign(reference=ratios["baseline"]),
+        kind="mgd_ratio_off_baseline",
+        quantity=MGD_RATIO_QUANTITY,
+        tolerance=tolerance,
+        min_events=min_events,
+        reason=reason,
+        numbers=lambda row: {
+            "baseline_ratio": float(row["reference"]),
+            "baseline_months": int(row["baseline_months"]),
+        },
+    )
+
+
+def _ratio_flags(
+    ratios: pd.DataFrame,
+    *,
+    kind: FlagKind,
+    quantity: str,
+    tolerance: float,
+    min_events: int,
+    reason: Callable[[Mapping[str, Any], float], str],
+    numbers: Callable[[Mapping[str, Any]], dict[str, Number]] | None = None,
+) -> list[Flag]:
+    """One flag per row (room and month) whose ``median`` is off its ``reference`` by more than
+    ``tolerance`` (relative), with at least ``min_events`` events; ``reason(row, median)`` words
+    it and ``numbers(row)`` adds to its numbers. The reference is 1 for the DAP ratio and the
+    room's baseline for the MGD ratio."""
+    median = ratios["median"].to_numpy(dtype=np.float64)
+    reference = ratios["reference"].to_numpy(dtype=np.float64)
+    n = ratios["n"].to_numpy()
+    with np.errstate(invalid="ignore", divide="ignore"):
+        hit = (n >= min_events) & (reference > 0) & (np.abs(median / reference - 1.0) > tolerance)
+    flags = []
+    for row in _records(ratios[hit]):
+        m = float(row["median"])
+        figures: dict[str, Number] = {"median_ratio": m, "n": int(row["n"]), "tolerance": tolerance}
+        figures.update(numbers(row) if numbers else {})
         flags.append(
             Flag(
-                kind="dap_ratio_out_of_tolerance",
+                kind=kind,
                 severity="warning",
-                reason=reason,
-                numbers={"median_ratio": m, "n": int(row["n"]), "tolerance": tolerance},
+                reason=reason(row, m),
+                numbers=figures,
                 date=str(row["month"]),
-                quantity=DAP_RATIO_QUANTITY,
+                quantity=quantity,
                 site=_str_or_none(row.get("site")),
                 room=_str_or_none(row.get("room")),
                 device=_str_or_none(row.get("device")),
@@ -680,7 +782,7 @@ def changepoints(
     monthly : DataFrame
         One row per series and month: the ``series_keys`` columns, ``month`` (``YYYY-MM``) and
         ``median``. Months too thin to use must already be dropped. ``quantity`` equal to
-        :data:`DAP_RATIO_QUANTITY` marks a DAP-ratio series.
+        :data:`DAP_RATIO_QUANTITY` or :data:`MGD_RATIO_QUANTITY` marks a ratio series.
     series_keys : sequence of str
         Columns that identify a series (e.g. site, room, exam_type, quantity).
     k, h, baseline_points
@@ -702,8 +804,8 @@ def changepoints(
         result = cusum(values, k=k, h=h, baseline_points=baseline_points)
         context = dict(zip(series_keys, key if isinstance(key, tuple) else (key,), strict=True))
         quantity = str(context.get("quantity"))
-        if quantity == DAP_RATIO_QUANTITY:
-            what, unit = "median ratio of reported to reconstructed DAP", ""
+        if quantity in _RATIO_WHAT:
+            what, unit = _RATIO_WHAT[quantity], ""
         else:
             what = f"monthly median {_label(quantity)} of {_exam_text(context, exam_names)}"
             unit = " " + _unit(quantity)

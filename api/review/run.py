@@ -96,6 +96,7 @@ from beamaudit.api.review.mammography import (
     check_band,
 )
 from beamaudit.api.review.quantities import QUANTITIES
+from beamaudit.api.review.ratio_baseline import ratio_baselines
 from beamaudit.api.review.site_values import SITE_VALUE_COLUMNS as _SITE_VALUE_COLUMNS
 from beamaudit.api.review.site_values import site_values
 from beamaudit.api.review.stats import (
@@ -158,8 +159,9 @@ GROUP_COLUMNS = (
 )
 
 #: Columns of :attr:`ReviewResult.monthly_df` and of the ``history_df`` table :func:`review` takes:
-#: one row per series and month (``YYYY-MM``); ``quantity`` is a quantity name or ``"dap_ratio"``
-#: (reported / reconstructed DAP, ``exam_type`` None); ``n`` values and their ``median``.
+#: one row per series and month (``YYYY-MM``); ``quantity`` is a quantity name, ``"dap_ratio"``
+#: (reported / reconstructed DAP) or ``"mgd_ratio"`` (the device's AGD / reconstructed D_G), both
+#: with ``exam_type`` None; ``n`` values and their ``median``.
 MONTHLY_COLUMNS = ("month", "site", "room", "device", "exam_type", "quantity", "n", "median")
 
 _MONTH = re.compile(r"^(\d{4})-(\d{2})$")
@@ -265,6 +267,17 @@ class ReviewParameters:
         read in the standard).
     dap_ratio_min_events : int
         Months with fewer events having both DAPs are not judged (default 20).
+    mgd_ratio_tolerance : float
+        Allowed relative deviation of a mammography room's monthly median of the device's AGD /
+        reconstructed D_G from the room's own baseline (:mod:`.ratio_baseline`). Default 0.2,
+        a **project choice**: vendors' dosimetry methods differ, so there is no standard's
+        tolerance around 1 to borrow; 20 % is the shift the change-points also take as worth a
+        look, well above the month-to-month scatter of a median of tens of views.
+    mgd_ratio_min_events : int
+        Months with fewer views having both figures are not judged (default 20, as for DAP).
+    mgd_ratio_baseline_months : int
+        The baseline is the median of at most this many preceding judged months, and needs at
+        least 3 (default 6, the CUSUM baseline's length; **project choice**).
     di_range : (float, float)
         Deviation-index range; exposures outside are flagged. Default ±3, the AAPM TG-116 action
         limits (from memory, medium confidence).
@@ -322,6 +335,9 @@ class ReviewParameters:
     max_exam_flags_per_group: int | None = 50
     dap_ratio_tolerance: float = 0.25
     dap_ratio_min_events: int = 20
+    mgd_ratio_tolerance: float = 0.2
+    mgd_ratio_min_events: int = 20
+    mgd_ratio_baseline_months: int = 6
     di_range: tuple[float, float] = fl.TG116_DI_RANGE
     srdl_thresholds: Mapping[str, float] = field(default_factory=lambda: dict(fl.NCRP168_SRDL))
     srdl_modalities: tuple[str, ...] = ("RF", "XA")
@@ -426,10 +442,15 @@ class ReviewParameters:
             problems.append("max_exam_flags_per_group must be at least 1 or None")
         if not 0 < self.upper_percentile < 100:
             problems.append("upper_percentile must be between 0 and 100")
-        if not 0 < self.dap_ratio_tolerance < 1:
-            problems.append("dap_ratio_tolerance must be between 0 and 1")
-        if self.dap_ratio_min_events < 1:
-            problems.append("dap_ratio_min_events must be at least 1")
+        for name in ("dap_ratio", "mgd_ratio"):
+            if not 0 < getattr(self, f"{name}_tolerance") < 1:
+                problems.append(f"{name}_tolerance must be between 0 and 1")
+            if getattr(self, f"{name}_min_events") < 1:
+                problems.append(f"{name}_min_events must be at least 1")
+        if self.mgd_ratio_baseline_months < MGD_RATIO_MIN_BASELINE_MONTHS:
+            problems.append(
+                f"mgd_ratio_baseline_months must be at least {MGD_RATIO_MIN_BASELINE_MONTHS}"
+            )
         return problems
 
     def _normalise_flag_rules(self) -> list[str]:
@@ -837,18 +858,67 @@ def _investigation_units(
     return frame
 
 
-def _dap_ratios(events: pd.DataFrame, group_by: Sequence[str]) -> pd.DataFrame:
-    dap = events["dap_gy_cm2"].to_numpy(dtype=np.float64)
-    recon = events["recon_dap_gy_cm2"].to_numpy(dtype=np.float64)
-    both = (dap > 0) & (recon > 0)
-    frame = events.loc[both, [*LOCATION_KEYS, "month_key"]].copy()
-    frame["ratio"] = dap[both] / recon[both]
-    frame = _with_location_keys(frame, group_by)
-    out = _median_by(frame, [*LOCATION_KEYS, "month_key"], "ratio")
-    out["month"] = month_labels(out["month_key"])
-    out["exam_type"] = None
-    out["quantity"] = fl.DAP_RATIO_QUANTITY
-    return out.loc[:, list(MONTHLY_COLUMNS)]
+#: Ratio series -> (reported column, reconstructed column) of the events table: the device's
+#: DAP over the beam model's, the device's AGD (Organ Dose of the breast) over the Dance D_G.
+RATIO_COLUMNS: MappingProxyType[str, tuple[str, str]] = MappingProxyType(
+    {
+        fl.DAP_RATIO_QUANTITY: ("dap_gy_cm2", "recon_dap_gy_cm2"),
+        fl.MGD_RATIO_QUANTITY: ("mgd_mgy", "recon_mgd_mgy"),
+    }
+)
+#: The fewest preceding months an MGD-ratio baseline is made of (:mod:`.ratio_baseline`).
+MGD_RATIO_MIN_BASELINE_MONTHS = 3
+
+
+def _ratios(events: pd.DataFrame, group_by: Sequence[str]) -> pd.DataFrame:
+    """Monthly medians of reported / reconstructed per location, one series per
+    :data:`RATIO_COLUMNS` entry (``exam_type`` None); events lacking either figure are left out.
+
+    .. math:: r_{room, month} = \\operatorname{median}_i (x_{reported,i} / x_{reconstructed,i})
+    """
+    parts = []
+    for quantity, (reported, reconstructed) in RATIO_COLUMNS.items():
+        x = events[reported].to_numpy(dtype=np.float64)
+        recon = events[reconstructed].to_numpy(dtype=np.float64)
+        both = (x > 0) & (recon > 0)
+        frame = events.loc[both, [*LOCATION_KEYS, "month_key"]].copy()
+        frame["ratio"] = x[both] / recon[both]
+        frame = _with_location_keys(frame, group_by)
+        out = _median_by(frame, [*LOCATION_KEYS, "month_key"], "ratio")
+        out["month"] = month_labels(out["month_key"])
+        out["exam_type"] = None
+        out["quantity"] = quantity
+        parts.append(out.loc[:, list(MONTHLY_COLUMNS)])
+    return pd.concat(parts, ignore_index=True)
+
+
+def _ratio_flags(
+    ratios: pd.DataFrame, series: pd.DataFrame, params: ReviewParameters
+) -> list[fl.Flag]:
+    """The reported / reconstructed ratio flags: the period's DAP ratios against 1, the MGD
+    ratios against their room's baseline (from ``series``, the change-point series)."""
+    return fl.dap_ratio_out_of_tolerance(
+        ratios.loc[(ratios["quantity"] == fl.DAP_RATIO_QUANTITY).to_numpy()],
+        tolerance=params.dap_ratio_tolerance,
+        min_events=params.dap_ratio_min_events,
+    ) + fl.mgd_ratio_off_baseline(
+        _mgd_ratio_baselines(series, params),
+        tolerance=params.mgd_ratio_tolerance,
+        min_events=params.mgd_ratio_min_events,
+    )
+
+
+def _mgd_ratio_baselines(series: pd.DataFrame, params: ReviewParameters) -> pd.DataFrame:
+    """The period's MGD-ratio months with their room's baseline (:mod:`.ratio_baseline`), from
+    the change-point series (history and period, thin months dropped)."""
+    mgd = series.loc[(series["quantity"] == fl.MGD_RATIO_QUANTITY).to_numpy()]
+    mgd = ratio_baselines(
+        mgd,
+        keys=list(LOCATION_KEYS),
+        months=params.mgd_ratio_baseline_months,
+        min_months=MGD_RATIO_MIN_BASELINE_MONTHS,
+    )
+    return mgd.loc[(mgd["month"] >= f"{params.period.start:%Y-%m}").to_numpy()]
 
 
 def _median_by(frame: pd.DataFrame, keys: list[str], column: str) -> pd.DataFrame:
@@ -916,8 +986,12 @@ def _changepoint_series(
     minimum = dict(params.minimum_samples)
     # months thinner than the group's minimum sample (unknown exam types: never enough) are dropped
     needed = series["exam_type"].map(group_of).map(minimum).fillna(np.iinfo(np.int64).max)
-    is_ratio = (series["quantity"] == fl.DAP_RATIO_QUANTITY).to_numpy()
-    needed = np.where(is_ratio, params.dap_ratio_min_events, needed.to_numpy(dtype=np.float64))
+    needed = needed.to_numpy(dtype=np.float64)
+    for quantity, least in (
+        (fl.DAP_RATIO_QUANTITY, params.dap_ratio_min_events),
+        (fl.MGD_RATIO_QUANTITY, params.mgd_ratio_min_events),
+    ):
+        needed = np.where((series["quantity"] == quantity).to_numpy(), least, needed)
     series = series.loc[series["n"].to_numpy() >= needed]
     return series.drop_duplicates([*LOCATION_KEYS, "exam_type", "quantity", "month"], keep="last")
 
@@ -1017,7 +1091,7 @@ def monthly_history(
     catalogue = catalogue or load_default_catalogue()
     bands = patient_groups if patient_groups is not None else load_default_patient_groups()
     _, scoped, _, units = _units(events, params, catalogue, None, bands)
-    ratios = _dap_ratios(scoped, params.group_by)
+    ratios = _ratios(scoped, params.group_by)
     return pd.concat([_monthly_medians(units, params), ratios], ignore_index=True)
 
 
@@ -1095,13 +1169,12 @@ def review(
     )
     fluoro = studies.loc[studies["modality"].isin(list(params.srdl_modalities))]
     flags += fl.srdl_exceeded(fluoro, thresholds=params.srdl_thresholds, exam_names=names)
-    ratios = _dap_ratios(scoped, params.group_by)
-    flags += fl.dap_ratio_out_of_tolerance(
-        ratios, tolerance=params.dap_ratio_tolerance, min_events=params.dap_ratio_min_events
-    )
+    ratios = _ratios(scoped, params.group_by)
     monthly = pd.concat([_monthly_medians(units, params), ratios], ignore_index=True)
+    series = _changepoint_series(monthly, history_df, catalogue, params)
+    flags += _ratio_flags(ratios, series, params)
     flags += fl.changepoints(
-        _changepoint_series(monthly, history_df, catalogue, params),
+        series,
         series_keys=[*LOCATION_KEYS, "exam_type", "quantity"],
         k=params.cusum_k,
         h=params.cusum_h,

@@ -121,6 +121,8 @@ _SPARSE_COLUMNS: tuple[tuple[str, Any], ...] = (
             )
         ),
     ),
+    # mammography: the reconstructed D_G beside the device's AGD (a room's ratio is watched)
+    ("recon_mgd_mgy", _E.recon_mgd_mgy),
 )
 #: Header text: read only for the events still without an exam type (to map them).
 _TEXT_COLUMNS: tuple[tuple[str, Any], ...] = tuple(

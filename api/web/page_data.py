@@ -19,7 +19,10 @@ from sqlalchemy.orm import Session
 
 from beamaudit.api.intake.mammography import is_mammography
 from beamaudit.api.intake.reconstruct import trail_for_event
+from beamaudit.api.review import ReviewParameters
 from beamaudit.api.review.quantities import QUANTITIES
+from beamaudit.api.review.ratio_baseline import ratio_baselines
+from beamaudit.api.review.run import MGD_RATIO_MIN_BASELINE_MONTHS
 from beamaudit.api.runs.record import record_periods, record_run, record_run_ids, scope_text
 from beamaudit.api.store import models as m
 from beamaudit.api.web.mammography_record import mammography_exposure
@@ -205,6 +208,8 @@ def room_history(session: Session, room: str, *, until: str | None = None) -> pd
 
     Each period's medians come from its record's ``monthly`` table; the DAP
     ratio (reported / reconstructed) and its tolerance band from the same run;
+    the MGD ratio (the unit's AGD / reconstructed D_G) with the room's usual
+    ratio ± tolerance as the review judges it (:func:`_mgd_ratio_band`);
     change points from the runs' ``changepoint`` flags.
     """
     records = record_run_ids(session)
@@ -216,9 +221,9 @@ def room_history(session: Session, room: str, *, until: str | None = None) -> pd
     }
     rows: list[dict[str, Any]] = []
     change: set[tuple[str, str | None, str | None]] = set()
-    for period, run in sorted(runs.items()):
-        if until and period and period > until:
-            continue
+    kept = [(p, r) for p, r in sorted(runs.items()) if not (until and p and p > until)]
+    mgd = _mgd_ratio_band(kept, room)
+    for _period, run in kept:
         result = run.result or {}
         tol = float((result.get("parameters") or {}).get("dap_ratio_tolerance") or 0.25)
         monthly = [x for x in result.get("monthly", []) if x.get("room") == room]
@@ -229,24 +234,75 @@ def room_history(session: Session, room: str, *, until: str | None = None) -> pd
                 month = str(where.get("date") or "")[:7]
                 change.add((month, where.get("exam_type"), where.get("quantity")))
         for x in monthly:
-            if x.get("quantity") == "dap_ratio" or not x.get("exam_type"):
+            if x.get("quantity") in ("dap_ratio", "mgd_ratio") or not x.get("exam_type"):
                 continue
             rows.append({
                 "month": x["month"], "exam_type": x["exam_type"], "quantity": x["quantity"],
                 "median": x["median"], "n": x["n"],
                 "dap_ratio_median": ratio.get(x["month"], np.nan),
                 "tolerance_low": 1.0 - tol, "tolerance_high": 1.0 + tol,
+                **mgd.get(x["month"], {}),
             })  # fmt: skip
+    # a month with an AGD ratio and no monthly median of the room (e.g. its views all outside
+    # the groups that have medians) gets a row of its own, with no median to draw
+    shown = {r["month"] for r in rows}
+    rows += [
+        {"month": month, "exam_type": None, "quantity": "mgd_mgy", "median": np.nan, "n": 0,
+         "dap_ratio_median": np.nan, **values}
+        for month, values in mgd.items()
+        if month not in shown
+    ]  # fmt: skip
     frame = pd.DataFrame(
         rows,
         columns=["month", "exam_type", "quantity", "median", "n", "dap_ratio_median",
-                 "tolerance_low", "tolerance_high"],
+                 "tolerance_low", "tolerance_high", *_MGD_COLUMNS],
     )  # fmt: skip
     frame["change_point"] = [
         (mo, ex, q) in change
         for mo, ex, q in zip(frame["month"], frame["exam_type"], frame["quantity"], strict=True)
     ]
     return frame.sort_values(["exam_type", "quantity", "month"]).reset_index(drop=True)
+
+
+_MGD_COLUMNS = ("mgd_ratio_median", "mgd_band_low", "mgd_band_high")
+
+
+def _mgd_ratio_band(runs: Sequence[tuple[Any, Any]], room: str) -> dict[str, dict[str, float]]:
+    """Month -> the room's median AGD ratio and the band the review judged it by: the room's
+    usual ratio (:func:`~beamaudit.api.review.ratio_baseline.ratio_baselines` over the judged
+    months, as the review's ``mgd_ratio_off_baseline`` flag) ± ``mgd_ratio_tolerance``, each
+    month with its own run's parameters; no band where the room has too little history."""
+    defaults = ReviewParameters.for_month(2000, 1)  # any month: only the defaults are read
+    points, months = [], defaults.mgd_ratio_baseline_months
+    for _period, run in runs:
+        params = (run.result or {}).get("parameters") or {}
+        months = int(params.get("mgd_ratio_baseline_months") or months)
+        least = int(params.get("mgd_ratio_min_events") or defaults.mgd_ratio_min_events)
+        tol = float(params.get("mgd_ratio_tolerance") or defaults.mgd_ratio_tolerance)
+        points += [
+            {"room": room, "month": x["month"], "median": x["median"], "n": x["n"], "least": least,
+             "tol": tol}
+            for x in (run.result or {}).get("monthly", [])
+            if x.get("room") == room and x.get("quantity") == "mgd_ratio"
+        ]  # fmt: skip
+    if not points:
+        return {}
+    table = pd.DataFrame(points).drop_duplicates("month", keep="last")
+    judged = ratio_baselines(
+        table.loc[table["n"] >= table["least"]],
+        keys=["room"],
+        months=months,
+        min_months=MGD_RATIO_MIN_BASELINE_MONTHS,
+    ).set_index("month")
+    out = {}
+    for x in table.itertuples():
+        base = judged["baseline"].get(x.month, np.nan)
+        out[str(x.month)] = {
+            "mgd_ratio_median": float(x.median),
+            "mgd_band_low": base * (1.0 - x.tol),
+            "mgd_band_high": base * (1.0 + x.tol),
+        }
+    return out
 
 
 #: The tolerance a standard sets on a displayed dose figure (relative half-width) and the

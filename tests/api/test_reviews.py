@@ -132,6 +132,7 @@ def _random_event(rng: random.Random, i: int, n: int) -> dict[str, Any]:
         "deviation_index": maybe(rng.uniform(-5, 5), 0.5),
         "size_dw_mean_cm": maybe(rng.uniform(12, 45), 0.4),
         "water_equivalent_diameter_mm": maybe(rng.uniform(120, 450), 0.4),
+        "recon_mgd_mgy": maybe(rng.uniform(0.5, 3), 0.1),
         "provenance": {},
         "notes": [],
     }
@@ -210,6 +211,7 @@ def _plain_table(session: Any, start: date = START, end: date = END) -> pd.DataF
                 )
                 if e.modality == "CT"
                 else math.nan,
+                "recon_mgd_mgy": number(e.recon_mgd_mgy),
             }
         )
     return pd.DataFrame(out)

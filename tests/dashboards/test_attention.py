@@ -154,3 +154,20 @@ def test_a_patient_group_is_named_and_kept_apart() -> None:
     assert len(labelled) == 1
     assert ", children 15–< 30 kg, in " in labelled[0]["headline"]
     assert labelled[0]["patient_group_label"] == "children 15–< 30 kg"
+
+
+def test_an_agd_ratio_off_the_rooms_usual_is_a_line_to_its_room_figure() -> None:
+    # invented: a unit that reads 1.10 x the Dance D_G as a rule, 1.45 x this month
+    (flag,) = [f for f in make_flags() if f["flag_id"] == "104"]
+    flag = {**flag, "kind": "mgd_ratio_off_baseline", "room": "Breast 1", "quantity": "mgd_ratio",
+            "reason": "Median ratio of the device's AGD to the reconstructed D_G ...",
+            "numbers": {"median_ratio": 1.45, "n": 96, "tolerance": 0.2, "baseline_ratio": 1.1,
+                        "baseline_months": 6}}  # fmt: skip
+    (line,) = attention_from_flags([flag]).to_dict("records")
+    assert line["headline"] == (
+        "Breast 1: the unit's AGD 1.45 × the reconstruction, usually 1.10 (median of 96 views; "
+        "accepted 0.88–1.32): check the unit's dosimetry"
+    )
+    assert line["href"] == "/rooms/Breast%201#mgd-ratio"
+    assert line["size"] == pytest.approx(1.45 / 1.1)
+    assert line["tier"] == 1

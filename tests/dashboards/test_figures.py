@@ -22,6 +22,7 @@ from beamaudit.dashboards import (
     build_dap_ratio_history,
     build_distribution,
     build_overview_heatmap,
+    build_ratio_history,
     build_room_history,
     build_spectrum,
 )
@@ -469,3 +470,24 @@ def test_every_colour_is_okabe_ito_or_grey(
             colour = getattr(getattr(trace, "marker", None), "color", None)
             if isinstance(colour, str):
                 assert colour.lower() in allowed or colour.startswith("#1d2a33"), colour
+
+
+def test_mgd_ratio_history_bands_the_rooms_usual_ratio_not_one() -> None:
+    # invented: a unit at 1.10 x the Dance D_G, then 1.50 x; the band is the usual ratio ± 20 %
+    months = ["2025-10", "2025-11", "2025-12", "2026-01"]
+    rows = [
+        {"month": mo, "exam_type": None, "quantity": "mgd_mgy", "median": None, "n": 0,
+         "change_point": False, "dap_ratio_median": None, "tolerance_low": None,
+         "tolerance_high": None, "mgd_ratio_median": r, "mgd_band_low": lo,
+         "mgd_band_high": hi}
+        for mo, r, lo, hi in zip(months, [1.1, 1.12, 1.09, 1.5], [None, 0.88, 0.88, 0.88],
+                                 [None, 1.32, 1.32, 1.32], strict=True)
+    ]  # fmt: skip
+    fig = build_ratio_history(rows, ratio="mgd_ratio", room="Breast 1")
+    lower, upper, line, outside = fig.data
+    assert upper.name == "Room's usual ratio ± tolerance" and upper.fill == "tonexty"
+    assert list(lower.y) == [0.88] * 3 and list(upper.y) == [1.32] * 3
+    assert list(line.y) == [1.1, 1.12, 1.09, 1.5]
+    assert [pd.Timestamp(x).strftime("%Y-%m") for x in outside.x] == ["2026-01"]
+    assert fig.layout.yaxis.title.text == "Unit's AGD ÷ reconstructed D_G"
+    assert not fig.layout.shapes  # no line at 1: vendors' methods differ

@@ -55,8 +55,9 @@ def test_every_flag_kind_of_the_review_has_words() -> None:
     # the kinds of beamaudit.api.review.flags.FLAG_KINDS, written here as data (no import)
     review_kinds = {
         "group_above_level", "exam_above_investigation_level", "srdl_exceeded",
-        "dap_ratio_out_of_tolerance", "changepoint", "deviation_index_out_of_range",
-        "no_dose_data", "unknown_exam_type", "unmapped_events", "low_dose_review",
+        "dap_ratio_out_of_tolerance", "mgd_ratio_off_baseline", "changepoint",
+        "deviation_index_out_of_range", "no_dose_data", "unknown_exam_type", "unmapped_events",
+        "low_dose_review",
     }  # fmt: skip
     assert review_kinds <= set(FLAG_KIND_WORDS)
     assert words_for(FLAG_KIND_WORDS, "some_new_kind") == "Some new kind"

@@ -200,22 +200,54 @@ def test_srdl_on_nothing() -> None:
 
 
 # ------------------------------------------------------------------------------------- DAP ratio
+def ratios_frame(n: list[int], median: list[float], **more: list[object]) -> pd.DataFrame:
+    """One month (2025-03) of rooms R1, R2... of site S1, with their ``n`` and ``median``."""
+    rooms = len(n)
+    return pd.DataFrame(
+        {"site": ["S1"] * rooms, "room": [f"R{i + 1}" for i in range(rooms)],
+         "device": [None] * rooms, "month": ["2025-03"] * rooms, "n": n, "median": median,
+         **more}
+    )  # fmt: skip
+
+
 def test_dap_ratio_outside_tolerance() -> None:
-    ratios = pd.DataFrame(
-        {
-            "site": ["S1"] * 4,
-            "room": ["R1", "R2", "R3", "R4"],
-            "device": [None] * 4,
-            "month": ["2025-03"] * 4,
-            "n": [40, 40, 40, 5],
-            "median": [1.30, 1.20, 0.70, 2.0],
-        }
-    )
+    ratios = ratios_frame([40, 40, 40, 5], [1.30, 1.20, 0.70, 2.0])
     flags = fl.dap_ratio_out_of_tolerance(ratios, tolerance=0.25, min_events=20)
     assert [(f.room, f.numbers["median_ratio"]) for f in flags] == [("R1", 1.3), ("R3", 0.7)]
     assert flags[0].date == "2025-03"
     assert "reported DAP is higher than the beam model predicts" in flags[0].reason
     assert "lower" in flags[1].reason
+
+
+# ------------------------------------------------------------------------------------- MGD ratio
+def test_mgd_ratio_is_judged_against_the_rooms_usual_ratio_not_one() -> None:
+    # invented rooms: R1's unit reads 1.10 x the Dance D_G as a rule and 1.45 x this month; R2's
+    # reads 0.80 x as a rule (its own method: no finding); R3 too few views; R4 no baseline yet
+    ratios = ratios_frame(
+        [40, 40, 5, 40],
+        [1.45, 0.80, 2.0, 3.0],
+        baseline=[1.10, 0.80, 1.0, np.nan],
+        baseline_months=[6, 6, 6, 2],
+    )
+    (flag,) = fl.mgd_ratio_off_baseline(ratios, tolerance=0.2, min_events=20)
+    assert (flag.room, flag.quantity, flag.date) == ("R1", fl.MGD_RATIO_QUANTITY, "2025-03")
+    assert flag.numbers == {
+        "median_ratio": 1.45, "n": 40, "tolerance": 0.2, "baseline_ratio": 1.1,
+        "baseline_months": 6,
+    }  # fmt: skip
+    assert "above the room's usual 1.10 (median of its 6 preceding months)" in flag.reason
+
+
+def test_mgd_ratio_within_the_tolerance_of_its_baseline_is_quiet() -> None:
+    ratios = pd.DataFrame(
+        {"room": ["R1", "R1"], "month": ["2025-03", "2025-04"], "n": [40, 40],
+         "median": [1.31, 0.89], "baseline": [1.10, 1.10], "baseline_months": [6, 6]}
+    )  # fmt: skip
+    # |1.31 / 1.10 - 1| = 0.19 and |0.89 / 1.10 - 1| = 0.19: inside 20 %
+    assert fl.mgd_ratio_off_baseline(ratios, tolerance=0.2, min_events=20) == []
+    below = fl.mgd_ratio_off_baseline(ratios, tolerance=0.15, min_events=20)
+    assert [f.date for f in below] == ["2025-03", "2025-04"]
+    assert "below the room's usual" in below[1].reason
 
 
 # ---------------------------------------------------------------------------------- change-points
@@ -259,6 +291,14 @@ def test_changepoint_in_the_dap_ratio_and_none_without_a_change() -> None:
     assert (
         fl.changepoints(monthly(BASE * 2), series_keys=KEYS, k=0.5, h=5.0, baseline_points=6) == []
     )
+
+
+def test_changepoint_in_the_mgd_ratio_is_worded_as_the_agd_ratio() -> None:
+    ratio = monthly([1.1, 1.11, 1.09, 1.1, 1.12, 1.08, 1.1, 1.5, 1.51], fl.MGD_RATIO_QUANTITY)
+    ratio["exam_type"] = None
+    (flag,) = fl.changepoints(ratio, series_keys=KEYS, k=0.5, h=5.0, baseline_points=6)
+    assert (flag.quantity, flag.date) == (fl.MGD_RATIO_QUANTITY, "2024-08")
+    assert "ratio of the device's AGD to the reconstructed D_G" in flag.reason
 
 
 def test_changepoint_series_are_kept_apart() -> None:
