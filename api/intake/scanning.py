@@ -13,6 +13,8 @@ import itertools
 import multiprocessing
 import multiprocessing.context
 import os
+import threading
+import time
 import warnings
 from collections import Counter
 from collections.abc import Callable, Iterable, Iterator, Sequence
@@ -78,12 +80,40 @@ class ScanSummary:
         }
 
 
-def _init_worker(key: bytes) -> None:
+def _init_worker(key: bytes, scanner_pid: int | None = None) -> None:
     global _worker_pseudonymiser
     from beamaudit.ingest.pseudonym import Pseudonymiser
 
     _worker_pseudonymiser = Pseudonymiser(key)
+    if scanner_pid is not None:
+        _end_with(scanner_pid)
     freeze_heap()
+
+
+#: seconds between a parser process's looks at whether its scanning process still runs
+_ORPHAN_CHECK_S = 1.0
+
+
+def _end_with(scanner_pid: int) -> None:
+    """End this parser process once the scanning process ``scanner_pid`` is gone.
+
+    A parser is a child of the fork server, not of the scan, and waits for work on a queue whose
+    write end it holds itself, and it holds the fork server's "alive" pipe: a scan killed
+    outright (SIGKILL, the out-of-memory killer) would leave the parsers and the fork server
+    waiting for ever. A daemon thread looks every second whether the scan still runs.
+    """
+
+    def watch() -> None:
+        while True:
+            time.sleep(_ORPHAN_CHECK_S)
+            try:
+                os.kill(scanner_pid, 0)
+            except ProcessLookupError:
+                os._exit(0)
+            except PermissionError:  # the number is another user's process now: ours is gone
+                os._exit(0)
+
+    threading.Thread(target=watch, name="end-with-the-scan", daemon=True).start()
 
 
 def freeze_heap() -> None:
@@ -146,7 +176,7 @@ def _parsed(
         max_workers=workers,
         mp_context=_parser_context(),
         initializer=_init_worker,
-        initargs=(key,),
+        initargs=(key, os.getpid()),
     ) as pool:
         yield from pool.map(_parse_one, itertools.chain(head, names), chunksize=64)
 
@@ -158,7 +188,8 @@ def _parser_context() -> multiprocessing.context.BaseContext:
     this process would leave parsers holding the socket of its open transaction (PostgreSQL
     then keeps its locks, and the next scan waits on them), and sibling parsers holding each
     other's pipes alive. Children of the fork server (started once per process, with the
-    parsing modules imported) inherit neither, and exit when this process goes.
+    parsing modules imported) inherit neither, and exit when this process goes
+    (:func:`_end_with`; then the fork server too).
     """
     if "forkserver" not in multiprocessing.get_all_start_methods():
         return multiprocessing.get_context("spawn")

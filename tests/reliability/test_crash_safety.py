@@ -75,9 +75,13 @@ def test_scanner_killed_mid_batch_keeps_whole_batches_and_a_rerun_completes(
             # kill it once the first batch is committed, while the next one is being stored
             _wait_for(lambda: counts(store)["objects"] >= BATCH_SIZE, 120, "a first batch",
                       scanner)  # fmt: skip
+            helpers = _descendants(scanner.pid)  # the fork server and its parser processes
+            assert helpers, "the scan started no parser process"
             os.kill(scanner.pid, signal.SIGKILL)
             scanner.wait(timeout=30)
         assert scanner.returncode == -signal.SIGKILL
+        # the scan's parser processes and fork server end with it (each looks every second)
+        _wait_for(lambda: not any(_alive(pid) for pid in helpers), 30, "the parsers to end")
         after_kill = counts(store)
         assert after_kill["objects"] % BATCH_SIZE == 0  # a batch is one transaction
         assert 0 < after_kill["objects"] < N_SCAN
@@ -92,6 +96,29 @@ def test_scanner_killed_mid_batch_keeps_whole_batches_and_a_rerun_completes(
         assert final["events"] == N_SCAN
         assert final["objects_without_events"] == 0
         assert final["errors"] == 0
+
+
+def _descendants(pid: int) -> list[int]:
+    """The processes below ``pid`` (Linux /proc), children before grandchildren."""
+    found: list[int] = []
+    parents = [pid]
+    while parents:
+        parent = parents.pop(0)
+        try:
+            children = Path(f"/proc/{parent}/task/{parent}/children").read_text().split()
+        except OSError:
+            continue
+        found += [int(c) for c in children]
+        parents += [int(c) for c in children]
+    return found
+
+
+def _alive(pid: int) -> bool:
+    try:
+        state = Path(f"/proc/{pid}/stat").read_text().rsplit(")", 1)[1].split()[0]
+    except OSError:
+        return False
+    return state != "Z"  # a zombie has ended; its new parent reaps it
 
 
 def _spooled_uids(store: SharedStore, port: int) -> list[str]:
