@@ -27,7 +27,7 @@ whose scan range lies in the images' frame of reference and overlaps them.
 **Localizers** (IEC 62985:2019's localizer method, ``model/ct_localizer.py``): a chosen localizer
 is read only when its scanner (the study's device) has a stored calibration to water for the
 image's tube voltage and view (``api/store/ct_calibrations.py``); each of its rows then gives a Dw
-at its table position. An acquisition with axial samples at two or more table positions is
+at its table position (kept as samples :data:`LOCALIZER_ROW_SPACING_MM` apart). An acquisition with axial samples at two or more table positions is
 sized from them (``size_method`` ``axial_images``); one with fewer, or an event with only its
 TID 10014 scan range, from the localizer rows within its range (``localizer``). The folder scan
 and the pull read a localizer when its study is sized; the listener, which keeps no pixels,
@@ -461,14 +461,12 @@ class StudySizer:
             errors.append(IngestError("bad_value", f"patient size: localizer: {exc}", source))
             return []
         out = []
-        for z, dw, cut in zip(
-            image.row_z_mm, sizes.water_equivalent_diameter_cm, sizes.truncated, strict=True
-        ):
-            if math.isfinite(dw):
-                sample = ImageSample(header.sop_instance_uid, float(z), float(dw), bool(cut), 0)
-                out.append(
-                    _sample_row(study_uid, header.acquisition_group, "localizer", sample, [header])
-                )
+        rows = zip(image.row_z_mm, sizes.water_equivalent_diameter_cm, sizes.truncated, strict=True)
+        for z, dw, cut in _rows_apart(rows, LOCALIZER_ROW_SPACING_MM):
+            sample = ImageSample(header.sop_instance_uid, z, dw, cut, 0)
+            out.append(
+                _sample_row(study_uid, header.acquisition_group, "localizer", sample, [header])
+            )
         if out:
             out[0]["pixel_data_bytes"] = header.pixel_data_bytes
         return out
@@ -884,6 +882,26 @@ class ArrivalSizer:
         for study in studies:
             self._finish(study)
         return self._sizer.summary
+
+
+#: Localizer rows kept as samples at least this far apart along the table (mm; a project
+#: choice): a localizer has a row every millimetre or so, a patient's Dw changes over
+#: centimetres, and each kept row is a stored sample (ct_size_samples); the axial images are
+#: sampled every 50 mm. The first and the last row with a size are always kept.
+LOCALIZER_ROW_SPACING_MM = 5.0
+
+
+def _rows_apart(rows: Any, spacing_mm: float) -> list[tuple[float, float, bool]]:
+    """The localizer rows (``z``, ``dw``, ``truncated``) with a size, each at least
+    ``spacing_mm`` from the one kept before it, and the last one."""
+    sized = [(float(z), float(dw), bool(cut)) for z, dw, cut in rows if math.isfinite(dw)]
+    kept: list[tuple[float, float, bool]] = []
+    for row in sized:
+        if not kept or abs(row[0] - kept[-1][0]) >= spacing_mm - 1e-6:
+            kept.append(row)
+    if sized and kept[-1] is not sized[-1]:
+        kept.append(sized[-1])
+    return kept
 
 
 def _g(value: float | None) -> str:

@@ -191,3 +191,18 @@ def test_images_arriving_after_the_study_was_sized_are_merged_and_audited(
     for entry in audit:
         assert entry.before["size_dw_mean_cm"] == pytest.approx(_dw_at(100.0), rel=3e-3)
         assert entry.after["size_dw_mean_cm"] == pytest.approx(_dw_at(200.0), rel=3e-3)
+
+
+def test_localizer_rows_are_kept_5_mm_apart_with_the_last() -> None:
+    # a localizer row every millimetre: samples kept every 5 mm (a project choice), the rows
+    # without a size (no patient) left out, the last row with a size always kept
+    from beamaudit.api.intake.ct_sizing import LOCALIZER_ROW_SPACING_MM, _rows_apart
+
+    z = -np.arange(0.0, 23.0, 1.0)
+    dw = np.full(z.shape, 25.0)
+    dw[:2] = np.nan
+    kept = _rows_apart(zip(z, dw, [False] * z.size, strict=True), LOCALIZER_ROW_SPACING_MM)
+    assert [k[0] for k in kept] == [-2.0, -7.0, -12.0, -17.0, -22.0]
+    kept = _rows_apart(zip(z[:21], dw[:21], [False] * 21, strict=True), 5.0)
+    assert [k[0] for k in kept] == [-2.0, -7.0, -12.0, -17.0, -20.0]
+    assert _rows_apart(iter([]), 5.0) == []
