@@ -27,8 +27,9 @@ whose scan range lies in the images' frame of reference and overlaps them.
 **Localizers** (IEC 62985:2019's localizer method, ``model/ct_localizer.py``): a chosen localizer
 is read only when its scanner (the study's device) has a stored calibration to water for the
 image's tube voltage and view (``api/store/ct_calibrations.py``); each of its rows then gives a Dw
-at its table position (kept as samples :data:`LOCALIZER_ROW_SPACING_MM` apart). An acquisition with axial samples at two or more table positions is
-sized from them (``size_method`` ``axial_images``); one with fewer, or an event with only its
+at its table position (kept as samples :data:`LOCALIZER_ROW_SPACING_MM` apart). An acquisition
+with axial samples at two or more table positions is sized from them (``size_method``
+``axial_images``); one with fewer, or an event with only its
 TID 10014 scan range, from the localizer rows within its range (``localizer``). The folder scan
 and the pull read a localizer when its study is sized; the listener, which keeps no pixels,
 when it arrives (:meth:`StudySizer.add_localizer_now`, after the localizer's own object is
