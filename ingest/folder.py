@@ -62,15 +62,20 @@ def iter_candidate_files(
     told to ``on_unreadable`` as an ``unreadable`` error naming the folder and
     the reason, since its files are not scanned; the walk goes on.
     """
-    seen_dirs: set[tuple[int, int]] = set()
-    seen_files: set[tuple[int, int]] = set()
-    skipped = {key for key in map(_file_key, skip) if key is not None}
-    for found in _files(paths, on_unreadable, seen_dirs, seen_files):
-        if skipped and _file_key(found) in skipped:
-            if on_skipped is not None:
-                on_skipped(found)
+    seen = _Seen(
+        skip={key for key in map(_file_key, skip) if key is not None}, on_skipped=on_skipped
+    )
+    for raw in paths:
+        path = Path(raw)
+        try:
+            info = path.stat()
+        except OSError:
+            yield path
             continue
-        yield found
+        if stat.S_ISDIR(info.st_mode):
+            yield from _walk(path, info, seen, on_unreadable)
+        elif stat.S_ISREG(info.st_mode) and seen.new_file((info.st_dev, info.st_ino), path):
+            yield path
 
 
 def _file_key(path: str | os.PathLike[str]) -> tuple[int, int] | None:
@@ -81,39 +86,40 @@ def _file_key(path: str | os.PathLike[str]) -> tuple[int, int] | None:
     return (info.st_dev, info.st_ino)
 
 
-def _files(
-    paths: Iterable[str | os.PathLike[str]],
-    on_unreadable: Callable[[IngestError], object] | None,
-    seen_dirs: set[tuple[int, int]],
-    seen_files: set[tuple[int, int]],
-) -> Iterator[Path]:
-    for raw in paths:
-        path = Path(raw)
-        try:
-            info = path.stat()
-        except OSError:
-            yield path
-            continue
-        if stat.S_ISDIR(info.st_mode):
-            yield from _walk(path, info, seen_dirs, seen_files, on_unreadable)
-        elif stat.S_ISREG(info.st_mode):
-            key = (info.st_dev, info.st_ino)
-            if key not in seen_files:
-                seen_files.add(key)
-                yield path
+class _Seen:
+    """What a walk has visited, by device and inode, and the files it must not yield."""
+
+    def __init__(
+        self, *, skip: set[tuple[int, int]], on_skipped: Callable[[Path], object] | None
+    ) -> None:
+        self.dirs: set[tuple[int, int]] = set()
+        self.files: set[tuple[int, int]] = set()
+        self._skip = skip
+        self._on_skipped = on_skipped
+
+    def new_file(self, key: tuple[int, int], path: Path) -> bool:
+        """True the first time a file to yield is met; a file to skip is told once, never
+        yielded."""
+        if key in self.files:
+            return False
+        self.files.add(key)
+        if key in self._skip:
+            if self._on_skipped is not None:
+                self._on_skipped(path)
+            return False
+        return True
 
 
 def _walk(
     root: Path,
     info: os.stat_result,
-    seen_dirs: set[tuple[int, int]],
-    seen_files: set[tuple[int, int]],
+    seen: _Seen,
     on_unreadable: Callable[[IngestError], object] | None,
 ) -> Iterator[Path]:
     key = (info.st_dev, info.st_ino)
-    if key in seen_dirs:
+    if key in seen.dirs:
         return
-    seen_dirs.add(key)
+    seen.dirs.add(key)
     try:
         with os.scandir(root) as entries:
             names = sorted(entries, key=lambda e: e.name)
@@ -133,21 +139,18 @@ def _walk(
         try:
             if not entry.is_symlink() and entry.is_file(follow_symlinks=False):
                 # a plain file lives on its folder's device; inode() needs no system call
-                file_key = (info.st_dev, entry.inode())
-                if file_key not in seen_files:
-                    seen_files.add(file_key)
+                if seen.new_file((info.st_dev, entry.inode()), child):
                     yield child
                 continue
             entry_info = entry.stat(follow_symlinks=True)
         except OSError:
             continue  # dangling link, or the entry vanished
         if stat.S_ISDIR(entry_info.st_mode):
-            yield from _walk(child, entry_info, seen_dirs, seen_files, on_unreadable)
-        elif stat.S_ISREG(entry_info.st_mode):
-            file_key = (entry_info.st_dev, entry_info.st_ino)
-            if file_key not in seen_files:
-                seen_files.add(file_key)
-                yield child
+            yield from _walk(child, entry_info, seen, on_unreadable)
+        elif stat.S_ISREG(entry_info.st_mode) and seen.new_file(
+            (entry_info.st_dev, entry_info.st_ino), child
+        ):
+            yield child
 
 
 def classify(path: str | os.PathLike[str]) -> Classification:
