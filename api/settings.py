@@ -33,6 +33,7 @@ from pydantic_settings import (
 from beamaudit.api.errors import ApiError
 
 __all__ = [
+    "OUTBOX_NAME",
     "ApiSettings",
     "ListenerSettings",
     "MetricsSettings",
@@ -264,6 +265,10 @@ class NotifyRecipient(BaseModel):
     quiet_digest: bool = False
 
 
+#: the digest outbox's file name, in the store's folder unless ``notify.outbox`` names a file
+OUTBOX_NAME = "beamaudit-outbox.jsonl"
+
+
 class NotifySettings(BaseModel):
     """Notifications of new findings after ``nightly`` and after a review (``[notify]``).
 
@@ -365,7 +370,7 @@ class Settings(BaseSettings):
     @model_validator(mode="after")
     def _outbox_beside_the_store(self) -> Settings:
         if self.notify.outbox is None:
-            self.notify.outbox = self.store_folder() / "beamaudit-outbox.jsonl"
+            self.notify.outbox = self.store_folder() / OUTBOX_NAME
         return self
 
     @classmethod

@@ -22,7 +22,7 @@ from sqlalchemy.orm import Session, sessionmaker
 
 from beamaudit.api.runs.notify.channels import DeliveryError, post_webhook, send_smtp, write_outbox
 from beamaudit.api.runs.notify.digest import Digest, build_digest
-from beamaudit.api.settings import NotifyRecipient, NotifySettings
+from beamaudit.api.settings import OUTBOX_NAME, NotifyRecipient, NotifySettings
 from beamaudit.api.store import models as m
 
 __all__ = ["OUTBOX_RECIPIENT", "Delivery", "notify_and_log", "notify_new_findings"]
@@ -58,7 +58,7 @@ class Delivery:
 
 def outbox_file(notify: NotifySettings) -> Path:
     """The outbox file: the setting (``Settings`` puts it beside the store by default)."""
-    return notify.outbox if notify.outbox is not None else Path("beamaudit-outbox.jsonl")
+    return notify.outbox if notify.outbox is not None else Path(OUTBOX_NAME)
 
 
 def _routes(notify: NotifySettings, rule: NotifyRecipient) -> list[tuple[str, str]]:
