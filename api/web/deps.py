@@ -15,13 +15,14 @@ a page of another site or another port cannot make a signed-in browser change an
 from __future__ import annotations
 
 import hmac
-from collections.abc import Callable, Iterator
+from collections.abc import AsyncIterator, Callable
 from dataclasses import dataclass
 from typing import Annotated
 from urllib.parse import urlsplit
 
 from fastapi import Depends, HTTPException, Request, status
 from sqlalchemy.orm import Session
+from starlette.concurrency import run_in_threadpool
 
 from beamaudit.api.settings import Settings
 from beamaudit.api.store.auth import Principal, Role, authenticate, browser_identity, has_role
@@ -43,19 +44,26 @@ CSRF_HEADER = "X-CSRF-Token"
 SAFE_METHODS = frozenset({"GET", "HEAD", "OPTIONS"})
 
 
-def get_session(request: Request) -> Iterator[Session]:
-    """One session per request; the route commits what it changes."""
+async def get_session(request: Request) -> AsyncIterator[Session]:
+    """One session per request; the route commits what it changes.
+
+    Made in the event loop (no I/O until a query); closed in a worker thread when it holds a
+    connection (closing rolls back and returns it to the pool: I/O on PostgreSQL), else here.
+    """
     session: Session = request.app.state.session_factory()
     try:
         yield session
     finally:
-        session.close()
+        if session.in_transaction():
+            await run_in_threadpool(session.close)
+        else:
+            session.close()
 
 
 DbSession = Annotated[Session, Depends(get_session)]
 
 
-def get_settings(request: Request) -> Settings:
+async def get_settings(request: Request) -> Settings:
     """The application's settings (a dependency)."""
     settings: Settings = request.app.state.settings
     return settings
@@ -132,7 +140,7 @@ CurrentPrincipal = Annotated[Principal, Depends(get_principal)]
 def require_role(role: Role) -> Callable[[Principal], Principal]:
     """A dependency that lets through callers whose role includes ``role``."""
 
-    def check(principal: CurrentPrincipal) -> Principal:
+    async def check(principal: CurrentPrincipal) -> Principal:
         if not has_role(principal.role, role):
             raise HTTPException(
                 status_code=status.HTTP_403_FORBIDDEN,

@@ -23,7 +23,7 @@ from pathlib import Path
 from typing import Annotated, Any, NoReturn
 from urllib.parse import quote
 
-from fastapi import APIRouter, Depends, Form, HTTPException, Query, Request
+from fastapi import Depends, Form, HTTPException, Query, Request
 from fastapi.concurrency import run_in_threadpool
 from fastapi.responses import FileResponse, HTMLResponse, RedirectResponse, Response
 from sqlalchemy.orm import Session
@@ -37,10 +37,11 @@ from beamaudit.api.store.auth import (
     open_browser_session,
 )
 from beamaudit.api.web.deps import SESSION_COOKIE, DbSession, identify, same_origin
+from beamaudit.api.web.routing import Router
 
 __all__ = ["router"]
 
-router = APIRouter(include_in_schema=False)
+router = Router(include_in_schema=False)
 
 PERIOD_RE = r"^\d{4}-(0[1-9]|1[0-2])$"
 

@@ -1,16 +1,16 @@
 """The REST API's routes under ``/api/v1``, one module per resource.
 
-:func:`api_router` assembles them; :data:`ROUTE_MODULES` lists them in the order the schema shows
-them.
+:func:`include_api_routes` adds them to the app; :data:`ROUTE_MODULES` lists them in the order the
+schema shows them.
 """
 
 from __future__ import annotations
 
 import importlib
 
-from fastapi import APIRouter
+from fastapi import FastAPI
 
-__all__ = ["ROUTE_MODULES", "api_router"]
+__all__ = ["ROUTE_MODULES", "include_api_routes"]
 
 #: route modules of this package, each with a module-level ``router``
 ROUTE_MODULES = (
@@ -29,10 +29,9 @@ ROUTE_MODULES = (
 )
 
 
-def api_router() -> APIRouter:
-    """One router holding every route module's routes (mount it under ``/api/v1``)."""
-    router = APIRouter()
+def include_api_routes(app: FastAPI, *, prefix: str) -> None:
+    """Each route module's router included in ``app`` under ``prefix``, one level deep (a request
+    is matched against one list of routers, not a router of routers)."""
     for name in ROUTE_MODULES:
         module = importlib.import_module(f"beamaudit.api.web.routes.{name}")
-        router.include_router(module.router)
-    return router
+        app.include_router(module.router, prefix=prefix)

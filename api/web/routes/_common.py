@@ -64,7 +64,7 @@ CONFLICT: dict[int | str, dict[str, Any]] = {
 IdPath = Annotated[int, Path(ge=1, le=MAX_ID, description="row id")]
 
 
-def get_session_factory(request: Request) -> sessionmaker[Session]:
+async def get_session_factory(request: Request) -> sessionmaker[Session]:
     """The app's session factory, for work that runs its own transactions (reviews)."""
     factory: sessionmaker[Session] = request.app.state.session_factory
     return factory
@@ -277,7 +277,7 @@ class PageParams:
     before_id: int | None
 
 
-def page_params(
+async def page_params(
     limit: Annotated[
         int, Query(ge=1, le=MAX_LIMIT, description=f"items per page, at most {MAX_LIMIT}")
     ] = DEFAULT_LIMIT,
@@ -325,7 +325,7 @@ def _day_start(day: date) -> datetime:
     return datetime.combine(day, time(0), tzinfo=UTC)
 
 
-def period_params(
+async def period_params(
     period: Annotated[
         str | None,
         Query(

@@ -8,7 +8,7 @@ from __future__ import annotations
 
 from typing import Annotated
 
-from fastapi import APIRouter, Depends, Query, status
+from fastapi import Depends, Query, status
 from sqlalchemy import select
 
 from beamaudit.api.store import models as m
@@ -25,6 +25,7 @@ from beamaudit.api.web.routes._common import (
     paginate,
     period_params,
 )
+from beamaudit.api.web.routing import Router
 from beamaudit.api.web.schemas.admin import (
     AuditEntryRead,
     AuditPage,
@@ -36,7 +37,7 @@ from beamaudit.api.web.schemas.base import ShortText
 
 __all__ = ["router"]
 
-router = APIRouter(responses=AUTH_RESPONSES)
+router = Router(responses=AUTH_RESPONSES)
 
 
 @router.get("/tokens", operation_id="list_tokens", response_model=list[TokenRead], tags=["admin"])

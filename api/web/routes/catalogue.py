@@ -10,7 +10,7 @@ import io
 from datetime import UTC, datetime
 from typing import Annotated, Any, cast
 
-from fastapi import APIRouter, Depends, HTTPException, Path, Query, Request, status
+from fastapi import Depends, HTTPException, Path, Query, Request, status
 from fastapi.concurrency import run_in_threadpool
 from fastapi.responses import Response
 from sqlalchemy import func, select
@@ -53,6 +53,7 @@ from beamaudit.api.web.routes._common import (
     revalidate,
     snapshot,
 )
+from beamaudit.api.web.routing import Router
 from beamaudit.api.web.schemas.catalogue import (
     ExamTypeCreate,
     ExamTypeRead,
@@ -81,7 +82,7 @@ def catalogue_session(session: DbSession, who: Physicist) -> Session:
 CatalogueSession = Annotated[Session, Depends(catalogue_session)]
 
 
-router = APIRouter(tags=["catalogue"], responses=AUTH_RESPONSES)
+router = Router(tags=["catalogue"], responses=AUTH_RESPONSES)
 
 T = m.ExamTypeRow
 R = m.MappingRuleRow

@@ -9,7 +9,7 @@ from __future__ import annotations
 from dataclasses import dataclass
 from typing import Annotated, Any
 
-from fastapi import APIRouter, Depends, Query
+from fastapi import Depends, Query
 from sqlalchemy import ColumnElement, Select, and_, exists, func, or_, select
 
 from beamaudit import CAUTION
@@ -29,6 +29,7 @@ from beamaudit.api.web.routes._common import (
     paginate,
     period_params,
 )
+from beamaudit.api.web.routing import Router
 from beamaudit.api.web.schemas.base import Id, ShortText
 from beamaudit.api.web.schemas.events import (
     AccumulatedDoseRead,
@@ -52,7 +53,7 @@ from beamaudit.api.web.schemas.mammography import EventMammography
 
 __all__ = ["router"]
 
-router = APIRouter(tags=["events"], responses=AUTH_RESPONSES)
+router = Router(tags=["events"], responses=AUTH_RESPONSES)
 
 E = m.ExposureEventRow
 
@@ -92,7 +93,7 @@ class EventFilters:
     modality: str | None
 
 
-def event_filters(
+async def event_filters(
     site_id: Annotated[Id | None, Query(description="site (hospital) id")] = None,
     room_id: Annotated[Id | None, Query(description="room id")] = None,
     device_id: Annotated[Id | None, Query(description="device id")] = None,

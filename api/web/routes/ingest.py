@@ -7,7 +7,7 @@ from __future__ import annotations
 
 from typing import Annotated
 
-from fastapi import APIRouter, Depends, Query
+from fastapi import Depends, Query
 from sqlalchemy import select
 
 from beamaudit.api.store import models as m
@@ -23,12 +23,13 @@ from beamaudit.api.web.routes._common import (
     paginate,
     period_params,
 )
+from beamaudit.api.web.routing import Router
 from beamaudit.api.web.schemas.base import ShortText
 from beamaudit.api.web.schemas.ingest import IngestErrorPage, IngestErrorRead
 
 __all__ = ["router"]
 
-router = APIRouter(tags=["ingest"], responses=AUTH_RESPONSES)
+router = Router(tags=["ingest"], responses=AUTH_RESPONSES)
 
 I = m.IngestError  # noqa: E741
 

@@ -11,7 +11,7 @@ from __future__ import annotations
 import io
 from typing import Annotated, Any, cast
 
-from fastapi import APIRouter, HTTPException, Query, Request, status
+from fastapi import HTTPException, Query, Request, status
 from fastapi.concurrency import run_in_threadpool
 from fastapi.responses import Response
 from sqlalchemy import delete, select
@@ -56,6 +56,7 @@ from beamaudit.api.web.routes._common import (
     read_csv_body,
 )
 from beamaudit.api.web.routes.catalogue import CatalogueSession
+from beamaudit.api.web.routing import Router
 from beamaudit.api.web.schemas.base import ShortText
 from beamaudit.api.web.schemas.levels import (
     LevelCreate,
@@ -67,7 +68,7 @@ from beamaudit.api.web.schemas.levels import (
 
 __all__ = ["router"]
 
-router = APIRouter(tags=["levels"], responses=AUTH_RESPONSES)
+router = Router(tags=["levels"], responses=AUTH_RESPONSES)
 
 S = m.ReferenceLevelSetRow
 L = m.ReferenceLevelRow

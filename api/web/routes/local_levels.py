@@ -12,7 +12,7 @@ from __future__ import annotations
 from datetime import date
 from typing import Annotated
 
-from fastapi import APIRouter, HTTPException, Query, status
+from fastapi import HTTPException, Query, status
 
 from beamaudit import CAUTION
 from beamaudit.api.runs.local_levels import (
@@ -24,13 +24,14 @@ from beamaudit.api.runs.local_levels import (
 )
 from beamaudit.api.web.deps import DbSession, Physicist, Viewer
 from beamaudit.api.web.routes._common import AUTH_RESPONSES, CONFLICT, NOT_FOUND, invalid
+from beamaudit.api.web.routing import Router
 from beamaudit.api.web.schemas.base import EARLIEST_DATE, LATEST_DATE, MAX_ID
 from beamaudit.api.web.schemas.levels import LevelSetRead
 from beamaudit.api.web.schemas.local_levels import ProposalAdopt, ProposalsRead, RecurrentRead
 
 __all__ = ["router"]
 
-router = APIRouter(tags=["levels"], responses=AUTH_RESPONSES)
+router = Router(tags=["levels"], responses=AUTH_RESPONSES)
 
 
 @router.get(

@@ -8,7 +8,7 @@ from __future__ import annotations
 
 from typing import Any
 
-from fastapi import APIRouter, status
+from fastapi import status
 from sqlalchemy import select, update
 
 from beamaudit.api.store import models as m
@@ -24,6 +24,7 @@ from beamaudit.api.web.routes._common import (
     not_found,
     snapshot,
 )
+from beamaudit.api.web.routing import Router
 from beamaudit.api.web.schemas.rooms import (
     CalibrationCreate,
     CalibrationRead,
@@ -34,7 +35,7 @@ from beamaudit.api.web.schemas.rooms import (
 
 __all__ = ["router"]
 
-router = APIRouter(tags=["rooms"], responses=AUTH_RESPONSES)
+router = Router(tags=["rooms"], responses=AUTH_RESPONSES)
 
 QA_FIELDS = (
     "room_id",

@@ -21,7 +21,7 @@ from __future__ import annotations
 from datetime import date
 from typing import Annotated, Any
 
-from fastapi import APIRouter, BackgroundTasks, Depends, HTTPException, Query, Request, status
+from fastapi import BackgroundTasks, Depends, HTTPException, Query, Request, status
 from fastapi.responses import Response
 from sqlalchemy import func, select
 
@@ -43,6 +43,7 @@ from beamaudit.api.web.routes._common import (
     page_params,
     paginate,
 )
+from beamaudit.api.web.routing import Router
 from beamaudit.api.web.schemas.base import EARLIEST_DATE, LATEST_DATE, ErrorBody, ShortText, Text
 from beamaudit.api.web.schemas.reviews import (
     FlagRead,
@@ -56,7 +57,7 @@ from beamaudit.api.web.schemas.reviews import (
 
 __all__ = ["VIEWER_HIDDEN_KEYS", "for_viewer", "router"]
 
-router = APIRouter(tags=["reviews"], responses=AUTH_RESPONSES)
+router = Router(tags=["reviews"], responses=AUTH_RESPONSES)
 
 RUN = m.ReviewRun
 F = m.FlagRow

@@ -9,7 +9,7 @@ from __future__ import annotations
 
 from typing import Annotated
 
-from fastapi import APIRouter, Query, status
+from fastapi import Query, status
 from sqlalchemy import func, select, update
 
 from beamaudit.api.store import models as m
@@ -24,6 +24,7 @@ from beamaudit.api.web.routes._common import (
     get_or_404,
     snapshot,
 )
+from beamaudit.api.web.routing import Router
 from beamaudit.api.web.schemas.base import Id
 from beamaudit.api.web.schemas.rooms import (
     CalibrationRead,
@@ -39,7 +40,7 @@ from beamaudit.api.web.schemas.rooms import (
 
 __all__ = ["ROOM_FIELDS", "router"]
 
-router = APIRouter(tags=["rooms"], responses=AUTH_RESPONSES)
+router = Router(tags=["rooms"], responses=AUTH_RESPONSES)
 
 #: what the audit log keeps of a room
 ROOM_FIELDS = (

@@ -6,7 +6,7 @@ from __future__ import annotations
 
 from typing import Annotated, Any
 
-from fastapi import APIRouter, Depends, HTTPException, Path, Response, status
+from fastapi import Depends, HTTPException, Path, Response, status
 from sqlalchemy import select
 
 from beamaudit import CAUTION
@@ -28,6 +28,7 @@ from beamaudit.api.web.routes._common import (
     get_or_404,
     not_found,
 )
+from beamaudit.api.web.routing import Router
 from beamaudit.api.web.schemas.base import ErrorBody
 from beamaudit.api.web.schemas.skin import (
     CumulativeSkinDoseRead,
@@ -41,7 +42,7 @@ from beamaudit.api.web.skin_image import SkinImageError, exam_skin_png, patient_
 
 __all__ = ["router"]
 
-router = APIRouter(tags=["skin dose"], responses=AUTH_RESPONSES)
+router = Router(tags=["skin dose"], responses=AUTH_RESPONSES)
 
 
 def _read(skin: m.SkinDoseRow, study: m.Study) -> SkinDoseRead:

@@ -2,7 +2,7 @@
 
 from __future__ import annotations
 
-from fastapi import APIRouter, status
+from fastapi import status
 from sqlalchemy import select
 
 from beamaudit.api.store import models as m
@@ -17,11 +17,12 @@ from beamaudit.api.web.routes._common import (
     get_or_404,
     snapshot,
 )
+from beamaudit.api.web.routing import Router
 from beamaudit.api.web.schemas.admin import SourceCreate, SourceRead, SourceUpdate
 
 __all__ = ["router"]
 
-router = APIRouter(tags=["sources"], responses=AUTH_RESPONSES)
+router = Router(tags=["sources"], responses=AUTH_RESPONSES)
 
 SOURCE_FIELDS = ("name", "url", "credentials", "modalities", "enabled", "watermark_date")
 S = m.DicomwebSource

@@ -15,19 +15,20 @@ import threading
 from collections.abc import Awaitable, Callable
 from typing import IO, Any
 
-from fastapi import APIRouter, HTTPException, Request, status
+from fastapi import HTTPException, Request, status
 from fastapi.concurrency import run_in_threadpool
 from starlette.datastructures import UploadFile
 from starlette.types import Message
 
 from beamaudit.api.web.deps import Physicist
 from beamaudit.api.web.routes._common import AUTH_RESPONSES, invalid
+from beamaudit.api.web.routing import Router
 from beamaudit.api.web.schemas.base import ErrorBody
 from beamaudit.api.web.schemas.ingest import UploadFileResult, UploadResult
 
 __all__ = ["MAX_FILES", "router"]
 
-router = APIRouter(tags=["ingest"], responses=AUTH_RESPONSES)
+router = Router(tags=["ingest"], responses=AUTH_RESPONSES)
 
 #: files in one multipart upload
 MAX_FILES = 1000
