@@ -105,6 +105,9 @@ class ApiSettings(BaseModel):
     max_csv_bytes: int = Field(default=8 * 1024 * 1024, ge=1024)
     max_csv_columns: int = Field(default=64, ge=2, le=10000)
     max_csv_row_chars: int = Field(default=16384, ge=256)
+    #: threads per serving process for the routes' blocking work (the database, parsing): more
+    #: than a few only make them wait on each other (one interpreter lock, one SQLite writer)
+    worker_threads: int = Field(default=8, ge=1, le=200)
 
 
 class PullCredentials(BaseModel):
