@@ -12,11 +12,12 @@ databases go through Core unchanged; PostgreSQL keeps SQLAlchemy's multi-row ``V
 
 from __future__ import annotations
 
+import functools
 from collections.abc import Callable, Sequence
 from typing import Any
 
 from sqlalchemy import JSON, Table, bindparam, insert, update
-from sqlalchemy.engine import Connection
+from sqlalchemy.engine import Connection, Dialect
 
 from beamaudit.api.store.base import UTCDateTime
 
@@ -79,16 +80,8 @@ def _fast(
     """Whether the driver may take these rows directly."""
     if conn.dialect.name != "sqlite" or conn.dialect.paramstyle != "qmark":
         return False
-    if any(n not in table.c for n in names):
+    if not _columns_suffice(table, tuple(names), defaults_needed):
         return False
-    # columns left out that SQLAlchemy would fill in (on insert its defaults, on update its
-    # onupdate values): let it
-    given = set(names)
-    for column in table.columns:
-        if column.name in given or column.primary_key:
-            continue
-        if (column.default if defaults_needed else column.onupdate) is not None:
-            return False
     keys = rows[0].keys()
     if len(keys) != len(names) or any(n not in keys for n in names):
         return False
@@ -98,23 +91,51 @@ def _fast(
 def _tuples(
     conn: Connection, table: Table, rows: Sequence[dict[str, Any]], names: list[str]
 ) -> list[tuple[Any, ...]]:
-    dialect = conn.dialect
-    processors: list[_Processor] = [
-        table.c[n].type.dialect_impl(dialect).bind_processor(dialect) for n in names
-    ]
     columns: list[list[Any]] = []
-    for name, process in zip(names, processors, strict=True):
+    for name, (process, convert) in zip(
+        names, _processors(conn.dialect, table, tuple(names)), strict=True
+    ):
         values = [row[name] for row in rows]
         if process is not None:
-            kind = table.c[name].type
-            if isinstance(kind, JSON):
-                values = _processed_documents(values, process)
-            elif isinstance(kind, UTCDateTime):
-                values = _processed_by_value(values, process)
-            else:
-                values = _processed(values, process)
+            values = convert(values, process)
         columns.append(values)
     return list(zip(*columns, strict=True))
+
+
+@functools.lru_cache(maxsize=256)
+def _columns_suffice(table: Table, names: tuple[str, ...], defaults_needed: bool) -> bool:
+    """Whether ``names`` are columns of ``table`` and no column left out needs SQLAlchemy to
+    fill it in (on insert its default, on update its onupdate value). Kept per table and set
+    of names: a single-row insert would otherwise walk every column each time."""
+    if any(n not in table.c for n in names):
+        return False
+    given = set(names)
+    for column in table.columns:
+        if column.name in given or column.primary_key:
+            continue
+        if (column.default if defaults_needed else column.onupdate) is not None:
+            return False
+    return True
+
+
+@functools.lru_cache(maxsize=256)
+def _processors(
+    dialect: Dialect, table: Table, names: tuple[str, ...]
+) -> tuple[tuple[_Processor, Callable[[list[Any], Callable[[Any], Any]], list[Any]]], ...]:
+    """Each column's bind processor (the one SQLAlchemy would use) and how a batch's values go
+    through it; made once per dialect, table and columns (a row's hundred-odd columns each
+    asked their type for it cost more than a single-row insert itself)."""
+    out = []
+    for name in names:
+        kind = table.c[name].type
+        process = kind.dialect_impl(dialect).bind_processor(dialect)
+        if isinstance(kind, JSON):
+            out.append((process, _processed_documents))
+        elif isinstance(kind, UTCDateTime):
+            out.append((process, _processed_by_value))
+        else:
+            out.append((process, _processed))
+    return tuple(out)
 
 
 def _processed(values: list[Any], process: Callable[[Any], Any]) -> list[Any]:
