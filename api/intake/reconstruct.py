@@ -747,12 +747,16 @@ def _id_chunks(ids: list[int], size: int = 500) -> Iterable[list[int]]:
 
 def warm_up() -> None:
     """Load the model's data tables (attenuation, backscatter, spectra) by making one trail's beam
-    and dose, so that a serving process pays for them before its first request rather than
-    under its first burst of requests (about a second of CPU per process)."""
+    and dose, and set up the store's ORM mappings, so that a serving process pays for them before
+    its first request rather than under its first burst of requests (about a second of CPU per
+    process)."""
+    from sqlalchemy.orm import configure_mappers
+
     from beamaudit.model import GeometryInputs, dose_from_beam
 
     beam = _TRAIL_BEAMS.get(kvp_kv=80.0, filters=None, room=None, calibration=None)
     dose_from_beam(beam, exposure_mas=10.0, geometry=GeometryInputs(sid_mm=1000.0))
+    configure_mappers()  # the store's ORM classes, otherwise set up by the first query
 
 
 def trail_for_event(session: Session, event: m.ExposureEventRow) -> dict[str, Any] | None:
