@@ -39,14 +39,18 @@ from __future__ import annotations
 
 import contextlib
 import dataclasses
+import fcntl
 import hashlib
 import json
 import logging
 import operator
+import os
 import re
 import threading
+import time
 from collections.abc import Iterable
 from dataclasses import dataclass, field
+from pathlib import Path
 from typing import TYPE_CHECKING, Any, Literal, cast
 
 from sqlalchemy import Table, or_, select, update
@@ -57,6 +61,11 @@ from beamaudit.api.intake.skin import skin_geometry_of, studies_with_geometry, u
 from beamaudit.api.store import models as m
 from beamaudit.api.store.base import utcnow
 from beamaudit.api.store.bulk import insert_rows, update_rows
+from beamaudit.api.store.engine import (
+    SQLITE_BUSY_TIMEOUT_MS,
+    WRITER_LOCK_SUFFIX,
+    database_files,
+)
 from beamaudit.ingest.errors import IngestError
 from beamaudit.ingest.events import AccumulatedDose, ExposureEvent, FilterLayer, ParseResult
 from beamaudit.ingest.linking import link_header_events_to_reports, report_covers
@@ -378,26 +387,97 @@ def _make_printable(obj: Any) -> None:
                 setattr(obj, f.name, cleaned)
 
 
-_WRITER_LOCKS: dict[str, threading.RLock] = {}
-_WRITER_LOCKS_GUARD = threading.Lock()
+_WRITER_TURNS: dict[str, WriterTurn] = {}
+_WRITER_TURNS_GUARD = threading.Lock()
+#: longest sleep between two looks at a busy writer's lock (SQLite's own handler sleeps 100 ms)
+_TURN_POLL_MAX_S = 0.005
+
+
+class WriterTurn:
+    """The turn at one SQLite database's writer: this process's threads in order (a re-entrant
+    lock), and the processes in turn by an exclusive ``flock(2)`` on a file of their own beside
+    the database (``<database>-writer.lock``).
+
+    ``flock`` belongs to the open file, never to the database's own files: SQLite's POSIX locks
+    on those are the process's, and a second descriptor of them closed would drop them. A
+    process that ends, however it ends, lets go of its turn (the kernel closes its files). A
+    turn waited for longer than SQLite's busy timeout is given up, and SQLite's own handler
+    decides; so is the file lock when the file cannot be made (a read-only folder).
+    """
+
+    def __init__(self, database: Path | None) -> None:
+        #: the lock file; ``None`` for a database in memory (one process: its threads' lock only)
+        self.path = database.with_name(database.name + WRITER_LOCK_SUFFIX) if database else None
+        self._threads = threading.RLock()
+        self._depth = 0
+        self._fd: int | None = None
+        self._pid = 0
+        self._locked = False
+
+    def __enter__(self) -> WriterTurn:
+        self._threads.acquire()
+        if self._depth == 0:
+            self._locked = self._take_file()
+        self._depth += 1
+        return self
+
+    def __exit__(self, *exc: object) -> None:
+        self._depth -= 1
+        if self._depth == 0 and self._locked and self._fd is not None:
+            fcntl.flock(self._fd, fcntl.LOCK_UN)
+            self._locked = False
+        self._threads.release()
+
+    def _descriptor(self) -> int | None:
+        if self.path is None:
+            return None
+        if self._fd is None or self._pid != os.getpid():  # a forked child opens its own
+            try:
+                self._fd = os.open(self.path, os.O_RDWR | os.O_CREAT | os.O_CLOEXEC, 0o600)
+            except OSError as exc:
+                log.warning("writers take turns by SQLite alone: cannot open %s (%s)",
+                            self.path, exc.strerror or exc)  # fmt: skip
+                self._fd = None
+            self._pid = os.getpid()
+        return self._fd
+
+    def _take_file(self) -> bool:
+        fd = self._descriptor()
+        if fd is None:
+            return False
+        deadline = time.monotonic() + SQLITE_BUSY_TIMEOUT_MS / 1000
+        pause = 0.0005
+        while True:
+            try:
+                fcntl.flock(fd, fcntl.LOCK_EX | fcntl.LOCK_NB)
+                return True
+            except BlockingIOError:
+                if time.monotonic() >= deadline:
+                    return False
+                time.sleep(pause)
+                pause = min(pause * 2, _TURN_POLL_MAX_S)
 
 
 def writer_turn(sessions: sessionmaker[Session]) -> contextlib.AbstractContextManager[Any]:
-    """The turn of this process's threads at a SQLite store's one writer (a no-op elsewhere).
+    """The turn of this process at a SQLite store's one writer (a no-op elsewhere).
 
-    SQLite lets one transaction write at a time; a thread that finds the database locked waits
+    SQLite lets one transaction write at a time; a writer that finds the database locked waits
     in SQLite's busy handler, which polls with growing sleeps (up to 100 ms each), so under a
     burst of writers some wait many times the others' share (the uploads' tail in
-    ``bench_load.py``). Threads of one process take their turns here, in order, instead; only
-    other processes are left to the busy handler.
+    ``bench_load.py``). Writers that store objects take their turns here instead
+    (:class:`WriterTurn`): threads of one process in order, processes by a file lock they wait
+    on in steps of at most 5 ms. A database in memory has one process: its threads' lock only.
     """
     bind = sessions.kw.get("bind")
     url = getattr(bind, "url", None)
     if url is None or url.get_backend_name() != "sqlite":
         return contextlib.nullcontext()
     key = str(url)
-    with _WRITER_LOCKS_GUARD:
-        return _WRITER_LOCKS.setdefault(key, threading.RLock())
+    with _WRITER_TURNS_GUARD:
+        if key not in _WRITER_TURNS:
+            files = database_files(bind)
+            _WRITER_TURNS[key] = WriterTurn(files[0] if files else None)
+        return _WRITER_TURNS[key]
 
 
 class Pipeline:

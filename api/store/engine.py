@@ -50,20 +50,24 @@ def _sqlite_pragmas(dbapi_connection: Any, _record: Any) -> None:
 
 #: the files SQLite keeps beside a database file (https://sqlite.org/tempfiles.html)
 SQLITE_SIDE_FILES = ("-wal", "-shm", "-journal")
+#: beamaudit's own file beside a SQLite database: the processes storing objects take turns at
+#: its lock (``flock(2)``; :class:`beamaudit.api.intake.pipeline.WriterTurn`)
+WRITER_LOCK_SUFFIX = "-writer.lock"
 
 
 def database_files(engine: Engine | None) -> list[Path]:
-    """The files of a SQLite store (the database and its side files, whether they exist now
-    or not); none for another database or one in memory. A scan must not open them: this
-    process holds SQLite's POSIX locks on them, and closing any descriptor of a file drops
-    every lock the process holds on it."""
+    """The files of a SQLite store (the database, SQLite's side files and the writers' lock
+    file, whether they exist now or not); none for another database or one in memory. A scan
+    must not open them: this process holds SQLite's POSIX locks on them, and closing any
+    descriptor of a file drops every lock the process holds on it."""
     if engine is None or engine.url.get_backend_name() != "sqlite":
         return []
     database = engine.url.database
     if database in (None, "", ":memory:"):
         return []
     path = Path(database).resolve()
-    return [path, *(path.with_name(path.name + side) for side in SQLITE_SIDE_FILES)]
+    sides = (*SQLITE_SIDE_FILES, WRITER_LOCK_SUFFIX)
+    return [path, *(path.with_name(path.name + side) for side in sides)]
 
 
 def make_engine(database_url: str, **kwargs: Any) -> Engine:

@@ -388,11 +388,89 @@ def test_threads_of_one_process_take_turns_at_a_sqlite_writer(store) -> None:
     import contextlib
     import threading
 
-    from beamaudit.api.intake.pipeline import writer_turn
+    from beamaudit.api.intake.pipeline import WriterTurn, writer_turn
 
     turn = writer_turn(store.session_factory)
-    if store.backend == "sqlite":
-        assert isinstance(turn, type(threading.RLock()))
-        assert writer_turn(store.session_factory) is turn  # one per database
-    else:  # PostgreSQL has row locks and many writers
+    if store.backend != "sqlite":  # PostgreSQL has row locks and many writers
         assert isinstance(turn, contextlib.nullcontext)
+        return
+    assert isinstance(turn, WriterTurn)
+    assert writer_turn(store.session_factory) is turn  # one per database
+    order: list[str] = []
+    with turn, turn:  # re-entrant
+        other = threading.Thread(target=lambda: (turn.__enter__(), order.append("other"),
+                                                 turn.__exit__(None, None, None)))  # fmt: skip
+        other.start()
+        other.join(0.2)
+        assert other.is_alive()  # waits for this thread's turn
+        order.append("first")
+    other.join(5)
+    assert order == ["first", "other"]
+
+
+_HOLD_THE_TURN = """
+import sys, time
+from pathlib import Path
+from beamaudit.api.intake.pipeline import WriterTurn
+turn = WriterTurn(Path(sys.argv[1]))
+turn.__enter__()
+print("holding", flush=True)
+time.sleep(float(sys.argv[2]))
+turn.__exit__(None, None, None)
+print("released", time.time(), flush=True)
+time.sleep(30)
+"""
+
+
+def _holder(database: Path, hold_s: float):
+    import subprocess
+    import sys
+
+    holder = subprocess.Popen(
+        [sys.executable, "-c", _HOLD_THE_TURN, str(database), str(hold_s)],
+        stdout=subprocess.PIPE, text=True,
+    )  # fmt: skip
+    assert holder.stdout is not None and holder.stdout.readline().strip() == "holding"
+    return holder
+
+
+def test_processes_take_turns_at_a_sqlite_writer_by_a_file_lock(tmp_path: Path) -> None:
+    # Before, writers of two processes met only in SQLite's busy handler, which sleeps up to
+    # 100 ms between looks: an upload waited for the other serving process in 100 ms steps.
+    import time
+
+    from beamaudit.api.intake.pipeline import WriterTurn
+
+    database = tmp_path / "store.db"
+    holder = _holder(database, 0.5)
+    try:
+        started = time.time()
+        with WriterTurn(database):
+            entered = time.time()
+        assert holder.stdout is not None
+        words = holder.stdout.readline().split()
+        assert words[0] == "released"
+        assert entered - started >= 0.4  # it waited for the other process's turn
+        assert entered - float(words[1]) < 0.05  # and took it within a few ms of its end
+    finally:
+        holder.kill()
+        holder.wait()
+        holder.stdout.close()
+    assert (tmp_path / "store.db-writer.lock").exists()
+    assert not database.exists()  # the database's own files are never opened by the turn
+
+
+def test_a_process_killed_in_its_turn_lets_the_others_write(tmp_path: Path) -> None:
+    import signal
+    import time
+
+    from beamaudit.api.intake.pipeline import WriterTurn
+
+    database = tmp_path / "store.db"
+    holder = _holder(database, 60)
+    holder.send_signal(signal.SIGKILL)
+    holder.wait()
+    holder.stdout.close()
+    started = time.monotonic()
+    with WriterTurn(database):
+        assert time.monotonic() - started < 1

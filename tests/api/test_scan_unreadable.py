@@ -110,7 +110,12 @@ def test_a_scan_never_opens_the_stores_own_database_files(store, tmp_path: Path)
     if store.backend == "sqlite":
         assert not any(name.startswith("store.db") for name in opened)
         skipped = {Path(p).name for p in summary.store_files_skipped}
-        assert "store.db" in skipped and skipped <= {"store.db", "store.db-wal", "store.db-shm"}
+        assert "store.db" in skipped and skipped <= {
+            "store.db",
+            "store.db-wal",
+            "store.db-shm",
+            "store.db-writer.lock",
+        }
         assert summary.as_dict()["store_files_skipped"] == summary.store_files_skipped
     else:
         assert summary.store_files_skipped == []
