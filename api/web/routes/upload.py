@@ -154,10 +154,18 @@ def _ingest_one(request: Request, fh: IO[bytes], name: str, who: str) -> UploadF
 
 
 async def _spool_body(request: Request) -> IO[bytes]:
+    """The body in a spool: in memory up to :data:`SPOOL_BYTES` (written here: no disk), then
+    in a temporary file (written in a worker thread)."""
     spool: IO[bytes] = tempfile.SpooledTemporaryFile(max_size=SPOOL_BYTES)  # noqa: SIM115
+    size = 0
     try:
         async for chunk in request.stream():
-            if chunk:
+            if not chunk:
+                continue
+            size += len(chunk)
+            if size <= SPOOL_BYTES:  # the spool stays in memory (it rolls over past max_size)
+                spool.write(chunk)
+            else:
                 await run_in_threadpool(spool.write, chunk)
     except BaseException:
         spool.close()
@@ -195,7 +203,8 @@ async def upload_dicom(request: Request, who: Physicist) -> UploadResult:
             status.HTTP_415_UNSUPPORTED_MEDIA_TYPE,
             detail="send application/dicom (one file) or multipart/form-data (fields 'files')",
         )
-    await run_in_threadpool(_pseudonymiser, request)
+    if getattr(request.app.state, "pseudonymiser", None) is None:  # the key is read once
+        await run_in_threadpool(_pseudonymiser, request)
     limited = Request(request.scope, _counting(request.receive, limit))
     files: list[tuple[str, IO[bytes]]] = []
     form = None
