@@ -29,11 +29,13 @@ CTDIvol and DLP, reported by the scanner); a model failure is
 
 from __future__ import annotations
 
+import copy
 import json
 import logging
 import math
 import threading
-from collections.abc import Iterable, Sequence
+from collections import OrderedDict
+from collections.abc import Callable, Iterable, Sequence
 from dataclasses import dataclass
 from functools import cache, lru_cache
 from typing import Any, cast
@@ -768,8 +770,6 @@ def trail_for_event(session: Session, event: m.ExposureEventRow) -> dict[str, An
     result differ from what is stored (another software version made the figures), the trail
     says so in its ``notes``. Events reconstructed with a stored trail return it as it is.
     """
-    from beamaudit.model import ModelError, dose_from_beam
-
     stored = event.recon_trail
     if not stored or stored.get("kind") != RECIPE_KIND:
         return stored
@@ -779,6 +779,15 @@ def trail_for_event(session: Session, event: m.ExposureEventRow) -> dict[str, An
     calibration = _calibration_from_snapshot(stored.get("calibration"), room)
     if is_mammography(event):
         return _mammography_trail(event, room, calibration, stored)
+    return _TRAILS.made(event, lambda: _trail_made_again(event, room, calibration, stored))
+
+
+def _trail_made_again(
+    event: m.ExposureEventRow, room: m.Room | None, calibration: Any, stored: dict[str, Any]
+) -> dict[str, Any]:
+    """The trail of a radiograph or fluoroscopy event made again from its recipe."""
+    from beamaudit.model import ModelError, dose_from_beam
+
     try:
         beam = _event_beam(event, room, calibration, _TRAIL_BEAMS)
         dose = dose_from_beam(
@@ -805,6 +814,46 @@ def trail_for_event(session: Session, event: m.ExposureEventRow) -> dict[str, An
                 f"{stored.get('software_version')}; this trail, made now, gives {now:.6g} {unit}"
             )
     return out
+
+
+class _TrailsMade:
+    """Trails made again, kept per process for the events last shown (a page or an API client
+    asks for the same event again): keyed by the event's every stored value, so a changed
+    event (reconstructed again, completed, another recipe) is made again; each caller gets its
+    own copy. The model's data tables do not change while a process runs."""
+
+    def __init__(self, size: int) -> None:
+        self._size = size
+        self._kept: OrderedDict[tuple[Any, ...], dict[str, Any]] = OrderedDict()
+        self._lock = threading.Lock()
+
+    @staticmethod
+    def key(event: m.ExposureEventRow) -> tuple[Any, ...]:
+        values: list[Any] = []
+        for column in event.__table__.columns:
+            value = getattr(event, column.key)
+            if isinstance(value, dict | list):
+                value = json.dumps(value, sort_keys=True, default=str)
+            values.append(value)
+        return tuple(values)
+
+    def made(self, event: m.ExposureEventRow, make: Callable[[], dict[str, Any]]) -> dict[str, Any]:
+        key = self.key(event)
+        with self._lock:
+            kept = self._kept.get(key)
+            if kept is not None:
+                self._kept.move_to_end(key)
+                return copy.deepcopy(kept)
+        trail = make()
+        with self._lock:
+            self._kept[key] = copy.deepcopy(trail)
+            while len(self._kept) > self._size:
+                self._kept.popitem(last=False)
+        return trail
+
+
+#: the trails of the last 512 events shown
+_TRAILS = _TrailsMade(512)
 
 
 def _mammography_trail(

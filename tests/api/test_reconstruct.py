@@ -346,3 +346,24 @@ def test_warm_up_loads_the_model_tables_a_serving_process_needs() -> None:
     reconstruct.warm_up()
     beam = reconstruct._TRAIL_BEAMS.get(kvp_kv=80.0, filters=None, room=None, calibration=None)
     assert beam.hvl1_mm_al > 0
+
+
+def test_a_trail_made_again_is_kept_for_the_event_as_it_is_stored(store) -> None:
+    """A page or client asking for the same event again gets the trail kept from the first
+    time (the model is not run again), its own copy; a changed event gets a new trail."""
+    from unittest import mock
+
+    from beamaudit.api.intake import reconstruct
+
+    ids = _store(store, [_event("1.2.3.103", 0)], "1.2.3.103")
+    reconstruct_events(store.session_factory, ids)
+    with store.session_factory() as s:
+        row = s.get(m.ExposureEventRow, ids[0])
+        first = trail_for_event(s, row)
+        first["dap_gy_cm2"] = -1.0  # the caller's copy: the kept trail does not change
+        with mock.patch.object(reconstruct, "_trail_made_again", side_effect=AssertionError):
+            again = trail_for_event(s, row)
+        assert math.isclose(again["dap_gy_cm2"], row.recon_dap_gy_cm2, rel_tol=1e-12)
+        row.exposure_mas = row.exposure_mas * 2  # another stored value: made again
+        changed = trail_for_event(s, row)
+        assert math.isclose(changed["dap_gy_cm2"], 2 * row.recon_dap_gy_cm2, rel_tol=1e-9)
