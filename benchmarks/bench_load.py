@@ -251,10 +251,40 @@ def _run_threads(threads: list[threading.Thread], timeout_s: float) -> None:
         thread.join(timeout=timeout_s)
 
 
-def _api_load(base: str, token: str, load_s: float, missed: list[str]) -> Recorder:
+def process_tree_cpu_s(root_pid: int) -> float:
+    """CPU seconds (user + system) of a process and its descendants, from Linux's ``/proc``
+    (0 elsewhere): what the serving processes spent, whatever else the machine runs."""
+    proc = Path("/proc")
+    if not proc.is_dir():
+        return 0.0
+    children: dict[int, list[int]] = {}
+    times: dict[int, float] = {}
+    tick = os.sysconf("SC_CLK_TCK")
+    for entry in proc.iterdir():
+        if not entry.name.isdigit():
+            continue
+        try:  # fields after the command's closing parenthesis: state, ppid, ..., utime, stime
+            fields = (entry / "stat").read_text().rsplit(")", 1)[1].split()
+        except OSError:  # ended meanwhile
+            continue
+        children.setdefault(int(fields[1]), []).append(int(entry.name))
+        times[int(entry.name)] = (int(fields[11]) + int(fields[12])) / tick
+    total, todo = 0.0, [root_pid]
+    while todo:
+        pid = todo.pop()
+        total += times.get(pid, 0.0)
+        todo += children.get(pid, [])
+    return total
+
+
+def _api_load(
+    base: str, token: str, load_s: float, missed: list[str], server_pid: int | None = None
+) -> Recorder:
     """:data:`API_CLIENTS` clients for ``load_s`` against the same-run baseline; the targets
-    missed are added to ``missed``."""
+    missed are added to ``missed``. With ``server_pid``, the serving processes' CPU per request
+    is printed too (steady on a loaded machine, where the wall-clock ratio is not)."""
     baseline_rate, baseline_lat = _baseline(base)
+    cpu_before = process_tree_cpu_s(server_pid) if server_pid else 0.0
     print(f"baseline: one client on /api/v1/health: {baseline_rate:.1f}/s; "
           f"p50 {_percentile(baseline_lat, 0.5) * 1000:.1f} ms")  # fmt: skip
     api = Recorder()
@@ -271,6 +301,9 @@ def _api_load(base: str, token: str, load_s: float, missed: list[str]) -> Record
     for kind, seconds in sorted(api.by_kind.items()):
         print(f"  {kind}: {len(seconds)} requests, p50 {_percentile(seconds, 0.5) * 1000:.0f} ms, "
               f"p99 {_percentile(seconds, 0.99) * 1000:.0f} ms")  # fmt: skip
+    if server_pid and api.latencies:
+        cpu_ms = (process_tree_cpu_s(server_pid) - cpu_before) / len(api.latencies) * 1000
+        print(f"  the serving processes' CPU: {cpu_ms:.2f} ms a request")
     ratio = api_rate / baseline_rate
     p99_s = _percentile(api.latencies, 0.99) if api.latencies else float("inf")
     if ratio < TARGET_RATIO:
@@ -336,7 +369,9 @@ def main(argv: list[str]) -> int:
         try:
             _wait_tcp(api_port)
             _wait_dicom(dicom_port)
-            api = _api_load(f"http://{HOST}:{api_port}", token, load_s, missed)
+            api = _api_load(
+                f"http://{HOST}:{api_port}", token, load_s, missed, server_pid=services[0].pid
+            )
             dicom = _store_load(dicom_port)
             expected = ASSOCIATIONS * PER_ASSOCIATION
             if len(dicom.latencies) != expected:
