@@ -779,20 +779,26 @@ def trail_for_event(session: Session, event: m.ExposureEventRow) -> dict[str, An
     calibration = _calibration_from_snapshot(stored.get("calibration"), room)
     if is_mammography(event):
         return _mammography_trail(event, room, calibration, stored)
-    return _TRAILS.made(event, lambda: _trail_made_again(event, room, calibration, stored))
+    mas = event.exposure_mas
+    return _TRAILS.made(event, lambda: _trail_made_again(event, mas, room, calibration, stored))
 
 
 def _trail_made_again(
-    event: m.ExposureEventRow, room: m.Room | None, calibration: Any, stored: dict[str, Any]
+    event: m.ExposureEventRow,
+    exposure_mas: float,
+    room: m.Room | None,
+    calibration: Any,
+    stored: dict[str, Any],
 ) -> dict[str, Any]:
-    """The trail of a radiograph or fluoroscopy event made again from its recipe."""
+    """The trail of a radiograph or fluoroscopy event made again from its recipe (its
+    ``exposure_mas`` given: the caller checked that it has one)."""
     from beamaudit.model import ModelError, dose_from_beam
 
     try:
         beam = _event_beam(event, room, calibration, _TRAIL_BEAMS)
         dose = dose_from_beam(
             beam,
-            exposure_mas=event.exposure_mas,
+            exposure_mas=exposure_mas,
             geometry=_geometry(event, room),
             reported_dap_gy_cm2=event.dap_gy_cm2,
             reported_entrance_dose_mgy=event.entrance_dose_mgy,

@@ -15,7 +15,7 @@ a page of another site or another port cannot make a signed-in browser change an
 from __future__ import annotations
 
 import hmac
-from collections.abc import AsyncIterator, Callable
+from collections.abc import AsyncIterator, Awaitable, Callable
 from dataclasses import dataclass
 from typing import Annotated
 from urllib.parse import urlsplit
@@ -137,7 +137,7 @@ def get_principal(request: Request, session: DbSession) -> Principal:
 CurrentPrincipal = Annotated[Principal, Depends(get_principal)]
 
 
-def require_role(role: Role) -> Callable[[Principal], Principal]:
+def require_role(role: Role) -> Callable[[Principal], Awaitable[Principal]]:
     """A dependency that lets through callers whose role includes ``role``."""
 
     async def check(principal: CurrentPrincipal) -> Principal:
