@@ -431,9 +431,10 @@ def _stacked_units(
         value_parts.append(wide_q[rows])
         quantity_codes.append(np.full(int(rows.sum()), index, dtype=np.int64))
     taken = np.concatenate(positions)
-    units = pd.DataFrame(
+    units = pd.DataFrame(  # fresh arrays: taken as they are, not copied into blocks
         {c: _stacked(projections[c], studies[c], taken) for c in base},
         index=pd.RangeIndex(len(taken)),
+        copy=False,
     )
     values = np.concatenate(value_parts)
     from_event = taken < n_events

@@ -832,7 +832,7 @@ def _investigation_units(
     params: ReviewParameters,
 ) -> pd.DataFrame:
     """Units with their strictest applicable level and their group's upper percentile."""
-    frame = units.copy()
+    frame = units.copy(deep=False)  # new columns only: the units' own stay shared (copy on write)
     frame["percentile_value"] = upper[codes] if len(codes) else np.zeros(0)
     frame["percentile"] = params.upper_percentile
     # the strictest applicable level of each distinct (exam type, quantity, group, indication)
@@ -941,8 +941,8 @@ def _monthly_medians(units: pd.DataFrame, params: ReviewParameters) -> pd.DataFr
         low, high = params.weight_window_kg
         w = units["patient_weight_kg"].to_numpy(dtype=np.float64)
         main &= ((w >= low) & (w <= high)) | in_band
-    units = units.loc[main]
-    out = _median_by(units, [*LOCATION_KEYS, "exam_type", "quantity", "month_key"], "value")
+    keys = [*LOCATION_KEYS, "exam_type", "quantity", "month_key"]
+    out = _median_by(units.loc[main, [*keys, "value"]], keys, "value")
     out["month"] = month_labels(out["month_key"])
     return out.loc[:, list(MONTHLY_COLUMNS)]
 
@@ -1074,7 +1074,7 @@ def _units(
     if params.ct_size_band_edges_cm:
         names += [*size_band_names(params.ct_size_band_edges_cm), *SIZE_SPECIAL_GROUPS]
     located["patient_group"] = pd.Categorical(groups_of_units, categories=names)
-    units = _with_location_keys(located.copy(), params.group_by)
+    units = _with_location_keys(located.copy(deep=False), params.group_by)  # (copy on write)
     return unmapped, scoped, located, units
 
 

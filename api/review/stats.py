@@ -249,17 +249,30 @@ class GroupStatistics:
         )
 
 
-def _group_order(codes: np.ndarray, values: np.ndarray, n_groups: int) -> np.ndarray:
-    """The order that sorts by group, then by value within a group (ties by position).
+#: groups above which the values are sorted in two passes over all of them, not group by group
+_GROUPS_SORTED_ONE_BY_ONE = 20_000
 
-    The same order as ``np.lexsort((values, codes))`` in two stable passes, values first: a
-    stable sort keeps the value order within each group, and small group codes sort by radix.
+
+def _grouped_sorted_values(codes: np.ndarray, values: np.ndarray, n_groups: int) -> np.ndarray:
+    """The values sorted by group, then by value within a group: ``values[np.lexsort((values,
+    codes))]``.
+
+    The values are put in group order by a stable sort of the codes (by radix for small codes),
+    then each group's run is sorted in place. With more groups than
+    ``_GROUPS_SORTED_ONE_BY_ONE`` (a Python step per group would cost more) the order is made in
+    two stable passes over all values instead, values first, then codes.
     """
-    by_value = np.argsort(values, kind="stable")
-    grouped = codes[by_value]
-    if n_groups <= np.iinfo(np.int16).max:
-        grouped = grouped.astype(np.int16)
-    return by_value[np.argsort(grouped, kind="stable")]
+    small = codes.astype(np.int16) if n_groups <= np.iinfo(np.int16).max else codes
+    if n_groups > _GROUPS_SORTED_ONE_BY_ONE:
+        by_value = np.argsort(values, kind="stable")
+        return values[by_value[np.argsort(small[by_value], kind="stable")]]
+    out = values[np.argsort(small, kind="stable")]
+    ends = np.cumsum(np.bincount(codes, minlength=n_groups))
+    starts = np.concatenate(([0], ends[:-1])) if len(ends) else ends
+    for start, end in zip(starts.tolist(), ends.tolist(), strict=True):
+        if end - start > 1:
+            out[start:end].sort()
+    return out
 
 
 def group_statistics(
@@ -304,7 +317,7 @@ def group_statistics(
     codes, values = codes[keep], values[keep]
     if len(codes) and (codes.min() < 0 or codes.max() >= n_groups):
         raise ReviewError("group codes out of range")
-    sorted_values = values[_group_order(codes, values, n_groups)]
+    sorted_values = _grouped_sorted_values(codes, values, n_groups)
     n = np.bincount(codes, minlength=n_groups).astype(np.int64)
     starts = np.cumsum(n) - n
     has = n > 0

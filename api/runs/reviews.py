@@ -905,7 +905,9 @@ def review_events(session: Session, *, start: date, end: date) -> pd.DataFrame:
         for offset, column in enumerate(text_columns.values()):
             column[at] = text[found, 1 + offset]
     columns.update(text_columns)
-    return pd.DataFrame(columns)
+    # the columns as they are, not copied into one block per type (a frame the review
+    # reads, never writes: copying twenty columns of a million rows cost a tenth of the read)
+    return pd.DataFrame(columns, copy=False)
 
 
 def events_frame(session: Session, *, start: date, end: date) -> pd.DataFrame:
