@@ -595,8 +595,9 @@ def _arrow_table_columns(
     # rows has columns without a type ('permissive' takes the other parts' types)
     table = pyarrow.concat_tables(pieces, promote_options="permissive").combine_chunks()
     ids = table.column(0).to_numpy(zero_copy_only=False)
-    if len(ids) > 1 and not (np.diff(ids) > 0).all():
-        table = table.take(np.argsort(ids, kind="stable"))  # sorted runs or none: merged
+    order = None  # the rows in id order (sorted runs, or a parallel scan's rows): as NumPy
+    if len(ids) > 1 and not (np.diff(ids) > 0).all():  # arrays (a take of Arrow's texts costs)
+        order = np.argsort(ids, kind="stable")
     out: dict[str, Any] = {}
     for j, name in enumerate(names):
         column = table.column(j)
@@ -608,11 +609,12 @@ def _arrow_table_columns(
             )
             continue
         if name in _ARROW_TEXTS:
-            out[name] = _arrow_categorical(column)
+            out[name] = _arrow_categorical(column, order)
             continue
         if not pyarrow.types.is_float64(column.type):  # double by the query: else not understood
             return None
         numbers = column.to_numpy(zero_copy_only=False)  # Arrow's nulls as NaN
+        numbers = numbers if order is None else numbers[order]
         out[name] = (
             numbers if source.null is None else np.where(numbers == source.null, np.nan, numbers)
         )
@@ -809,11 +811,14 @@ def _postgres_arrow_reader(session: Session) -> _ArrowSource | None:
     return _ArrowSource(statements, read, None, sparse_apart=True)
 
 
-def _arrow_categorical(column: Any) -> pd.Categorical:
-    """A text column read as Arrow ('' standing for NULL) as a categorical of its texts."""
+def _arrow_categorical(column: Any, rows: np.ndarray | None = None) -> pd.Categorical:
+    """A text column read as Arrow ('' standing for NULL) as a categorical of its texts, its
+    ``rows`` in that order when given."""
     encoded = column.combine_chunks().dictionary_encode()
     categories = np.asarray(encoded.dictionary.to_pylist(), dtype=object)
     codes = encoded.indices.to_numpy(zero_copy_only=False).astype(np.int64)
+    if rows is not None:
+        codes = codes[rows]
     # categories sorted, '' (NULL) out, as pandas factorises the texts themselves
     order = np.argsort(categories, kind="stable")
     kept = order[categories[order] != ""]
