@@ -103,6 +103,7 @@ from beamaudit.api.review.stats import (
     DEFAULT_MINIMUM_SAMPLES,
     PREFERRED_SAMPLES,
     classify_status,
+    group_medians,
     group_statistics,
     sample_checks,
 )
@@ -922,10 +923,14 @@ def _mgd_ratio_baselines(series: pd.DataFrame, params: ReviewParameters) -> pd.D
 
 
 def _median_by(frame: pd.DataFrame, keys: list[str], column: str) -> pd.DataFrame:
+    """The number of rows and the median of ``column`` per distinct ``keys``."""
     codes, table = group_codes(frame, keys)
-    grouped = frame[column].groupby(codes, sort=True)
-    table["n"] = grouped.size().to_numpy(dtype=np.int64)
-    table["median"] = grouped.median().to_numpy(dtype=np.float64)
+    values = frame[column].to_numpy(dtype=np.float64)
+    table["n"] = np.bincount(codes, minlength=len(table)).astype(np.int64)
+    if np.isnan(values).any():  # the median leaves NaN out (the units and ratios have none)
+        table["median"] = pd.Series(values).groupby(codes, sort=True).median().to_numpy()
+    else:
+        table["median"] = group_medians(codes, values, len(table))
     return table
 
 

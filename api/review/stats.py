@@ -81,6 +81,7 @@ __all__ = [
     "MedianCI",
     "QuantileCI",
     "classify_status",
+    "group_medians",
     "group_statistics",
     "median_ci",
     "median_ci_ranks",
@@ -273,6 +274,26 @@ def _grouped_sorted_values(codes: np.ndarray, values: np.ndarray, n_groups: int)
         if end - start > 1:
             out[start:end].sort()
     return out
+
+
+def group_medians(codes: np.ndarray, values: np.ndarray, n_groups: int) -> np.ndarray:
+    """The sample median of each group's values: the middle value of the sorted values, or the
+    mean of the two middle ones for an even count, ``(x_(n/2) + x_(n/2+1)) / 2`` (as pandas'
+    ``groupby().median()`` gives it, to the bit); NaN for a group without values.
+
+    ``values`` must hold no NaN (the caller leaves them out); ``codes`` are in
+    ``0 .. n_groups - 1``.
+    """
+    values = np.asarray(values, dtype=np.float64)
+    n = np.bincount(codes, minlength=n_groups)
+    ordered = _grouped_sorted_values(codes, values, n_groups)
+    starts = np.cumsum(n) - n
+    has = n > 0
+    if not len(ordered):
+        return np.full(n_groups, np.nan)
+    low = ordered[np.where(has, starts + (n - 1) // 2, 0)]
+    high = ordered[np.where(has, starts + n // 2, 0)]
+    return np.where(has, (low + high) / 2, np.nan)
 
 
 def group_statistics(

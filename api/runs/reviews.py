@@ -271,8 +271,10 @@ def _study_column(
     ``rows``, the ids and UIDs of the studies already read, when given)."""
     has = ~np.isnan(study_ids)
     codes = np.empty(len(study_ids), dtype=np.int64)
-    uniques, known = np.unique(study_ids[has], return_inverse=True)  # ids sorted: by id order
-    codes[has] = known.reshape(-1)
+    # the distinct ids sorted, each event's position among them (np.unique's, by hashing)
+    known, uniques = pd.factorize(study_ids[has], sort=True)
+    uniques = np.asarray(uniques, dtype=np.float64)
+    codes[has] = known
     codes[~has] = len(uniques) + np.arange(int((~has).sum()))
     labels = np.concatenate(
         [
