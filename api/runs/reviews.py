@@ -527,10 +527,13 @@ def _dense_by_arrow(
     def read(stmt: Any, names: list[str]) -> dict[str, Any] | None:
         return _arrow_columns(source, census_sql, expected, stmt, values, names)
 
-    if not source.sparse_apart:
-        return read(
-            select(*dense, number(epoch), *sparse).where(*conditions), dense_names + sparse_names
+    if not source.sparse_apart:  # the indications too ('=' before each, '' for none): no scan
+        indication = func.coalesce(literal_column("'='", String).concat(E.clinical_indication), "")
+        out = read(
+            select(*dense, number(epoch), *sparse, indication).where(*conditions),
+            [*dense_names, *sparse_names, "clinical_indication"],
         )
+        return None if out is None else _indications_apart(out)
     having = or_(*(c.is_not(None) for _, c in _SPARSE_COLUMNS))
     apart = {  # each read on a connection of its own, all in one snapshot
         "dense": select(*dense, number(epoch)).where(*conditions),
@@ -624,8 +627,20 @@ def _arrow_table_columns(
     return out
 
 
-#: The dense columns read as texts through an ADBC driver ('' for NULL)
-_ARROW_TEXTS = ("modality", "exam_type")
+#: The columns read as texts through an ADBC driver ('' for NULL)
+_ARROW_TEXTS = ("modality", "exam_type", "clinical_indication")
+
+
+def _indications_apart(out: dict[str, Any]) -> dict[str, Any]:
+    """The clinical indications read as a column of every event ('=' before each text, ''
+    for none) as the ids and texts of the events that have one, as they are read apart."""
+    marked = out.pop("clinical_indication")
+    labels = np.array([c[1:] for c in marked.categories] + [None], dtype=object)
+    codes = np.asarray(marked.codes, dtype=np.int64)
+    has = codes >= 0
+    out["indication"] = out["event_id"][has], labels[codes[has]]
+    return out
+
 
 #: Stored events below which a review reads plain rows rather than through an ADBC driver:
 #: starting the driver (on SQLite a process of its own with pyarrow, about 0.3-0.5 s of CPU)
