@@ -619,10 +619,13 @@ def _arrow_table_columns(
         if not pyarrow.types.is_float64(column.type):  # double by the query: else not understood
             return None
         numbers = column.to_numpy(zero_copy_only=False)  # Arrow's nulls as NaN
-        numbers = numbers if order is None else numbers[order]
-        out[name] = (
-            numbers if source.null is None else np.where(numbers == source.null, np.nan, numbers)
-        )
+        if order is not None:
+            numbers = numbers[order]  # (a new array: its stand-ins for NULL replaced in place)
+            if source.null is not None:
+                numbers[numbers == source.null] = np.nan
+        elif source.null is not None:
+            numbers = np.where(numbers == source.null, np.nan, numbers)
+        out[name] = numbers
     out["event_id"] = out["event_id"].astype(np.int64)
     return out
 
