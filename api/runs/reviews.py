@@ -476,19 +476,22 @@ def _dense_by_arrow(
     The DBAPI drivers make a Python object of every value they return (twelve million for a
     month of a million events); the ADBC drivers (Apache Arrow's database connectivity) write the
     values into Arrow arrays in C, which NumPy and pandas take as they are. Every number is read
-    as a double and the two texts as texts ('' for NULL), so that every column has one type
-    whatever its first rows hold. On SQLite the sparse columns come in the same read (a second
-    pass over the table costs more than carrying them); on PostgreSQL in a second read of the
-    events that have one (the server spends more on writing a million rows of empty columns
-    than on a second scan).
+    as a double and the texts as texts ('' for NULL), so that every column has one type
+    whatever its first rows hold. On SQLite the sparse columns and the clinical indications come
+    in the same read (a second pass over the table costs more than carrying them); on
+    PostgreSQL in reads of their own beside it, of the events that have one (the server spends
+    more on writing a million rows of empty columns than on a second scan), with the period's
+    study UIDs: the result then carries ``indication`` and ``studies``, each a pair of arrays
+    (ids, texts), which :func:`review_events` takes instead of reading them itself.
 
     * SQLite (a database file): the ADBC SQLite driver in a short-lived process of its own
       (:mod:`beamaudit.api.store.sqlite_arrow`: the driver has its own copy of the SQLite library,
       which must never open the file inside a process that uses Python's ``sqlite3`` on it), in two
       threads (events of even and of odd id), numbers with ``_SQLITE_NULL`` for NULL (SQLite has
       no NaN); the rows come back as an Arrow IPC stream.
-    * PostgreSQL: the ADBC PostgreSQL driver (binary ``COPY`` parsed in C), one connection (a
-      second one measured no faster: the server is the bound), NULL as Arrow's null.
+    * PostgreSQL: the ADBC PostgreSQL driver (binary ``COPY`` parsed in C), the four reads at
+      once, each on a connection of its own, all in one snapshot (:func:`_postgres_arrow_reader`),
+      NULL as Arrow's null.
 
     The driver reads through a connection of its own: None (the rows are read another way) when
     the store is not a plain file or the server refuses the driver's connection, when the driver
@@ -658,8 +661,9 @@ class _ArrowSource:
     #: the statements (SQL with every value written in) that read the period, given the select
     #: and its values; None when they cannot be written so
     statements: Callable[[Any, dict[str, Any]], list[str] | None]
-    #: reads the statements (census checked against the expected one in the same snapshot):
-    #: their Arrow tables, or None (census differs, the driver cannot read the store)
+    #: reads the statements (census checked against the expected one in the same snapshot as
+    #: every statement): their Arrow tables, or None (census differs, the driver cannot read the
+    #: store)
     read: Callable[[str, tuple[Any, ...], list[str]], list[Any] | None]
     #: the number standing for NULL in number columns; None: Arrow's own null
     null: float | None
@@ -765,10 +769,17 @@ _SNAPSHOT_NAME = re.compile(r"[0-9A-Fa-f]+(-[0-9A-Fa-f]+)+")
 def _postgres_arrow_reader(session: Session) -> _ArrowSource | None:
     """The ADBC PostgreSQL driver on the session's database; None when the driver is missing.
 
-    Its own connection: the session's URL as a libpq URI, the session's ``search_path`` set,
-    census and read in one repeatable-read transaction. One statement, the values written
-    into it (the period's bounds and constant texts, none from a user): the driver runs a
-    statement without parameters as a binary COPY, a third faster than one with parameters.
+    Connections of its own: the session's URL as a libpq URI, the session's ``search_path``
+    set, each in a repeatable-read transaction, one per statement, each in a thread of its own
+    (the server works in a backend process per connection, the driver leaves the GIL while it
+    waits and parses). The first connection exports its snapshot (``pg_export_snapshot()``),
+    checks the census and reads the first statement; the others take that snapshot (``SET
+    TRANSACTION SNAPSHOT``), so every statement reads the same rows as the census counted, and
+    the first keeps its transaction open until they are done. Synchronised scans are off, so
+    that a scan does not start where another one is (its rows would come in two runs). The
+    values are written into the statements (the period's bounds and constant texts, none from a
+    user): the driver runs a statement without parameters as a binary COPY, a third faster than
+    one with parameters.
     """
     try:
         import adbc_driver_postgresql.dbapi as adbc
