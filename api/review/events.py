@@ -327,15 +327,17 @@ def group_codes(frame: pd.DataFrame, keys: Sequence[str]) -> tuple[np.ndarray, p
     for column in keys:
         series = frame[column]
         if isinstance(series.dtype, pd.CategoricalDtype):  # already factorised: its codes
-            codes = series.cat.codes.to_numpy(dtype=np.int64)
+            codes = series.cat.codes.to_numpy()  # (its own small integers: no copy)
             size = len(series.cat.categories)
         else:
-            raw_codes, uniques = pd.factorize(series, use_na_sentinel=True)
-            codes, size = raw_codes.astype(np.int64), len(uniques)
+            codes, uniques = pd.factorize(series, use_na_sentinel=True)
+            size = len(uniques)
         if key_size * (size + 1) >= 2**62:  # keep the mixed-radix key inside int64
             key = pd.factorize(key)[0].astype(np.int64)
             key_size = int(key.max()) + 1 if n else 1
-        key = key * (size + 1) + (codes + 1)
+        key *= size + 1  # key * (size + 1) + (codes + 1), in place: no array per step
+        key += codes
+        key += 1
         key_size *= size + 1
     if n == 0:
         empty = pd.DataFrame({c: pd.Series([], dtype=object) for c in keys})
@@ -431,9 +433,10 @@ def _stacked_units(
         value_parts.append(wide_q[rows])
         quantity_codes.append(np.full(int(rows.sum()), index, dtype=np.int64))
     taken = np.concatenate(positions)
-    units = pd.DataFrame(
+    units = pd.DataFrame(  # fresh arrays: taken as they are, not copied into blocks
         {c: _stacked(projections[c], studies[c], taken) for c in base},
         index=pd.RangeIndex(len(taken)),
+        copy=False,
     )
     values = np.concatenate(value_parts)
     from_event = taken < n_events

@@ -103,6 +103,7 @@ from beamaudit.api.review.stats import (
     DEFAULT_MINIMUM_SAMPLES,
     PREFERRED_SAMPLES,
     classify_status,
+    group_medians,
     group_statistics,
     sample_checks,
 )
@@ -832,7 +833,7 @@ def _investigation_units(
     params: ReviewParameters,
 ) -> pd.DataFrame:
     """Units with their strictest applicable level and their group's upper percentile."""
-    frame = units.copy()
+    frame = units.copy(deep=False)  # new columns only: the units' own stay shared (copy on write)
     frame["percentile_value"] = upper[codes] if len(codes) else np.zeros(0)
     frame["percentile"] = params.upper_percentile
     # the strictest applicable level of each distinct (exam type, quantity, group, indication)
@@ -922,10 +923,14 @@ def _mgd_ratio_baselines(series: pd.DataFrame, params: ReviewParameters) -> pd.D
 
 
 def _median_by(frame: pd.DataFrame, keys: list[str], column: str) -> pd.DataFrame:
+    """The number of rows and the median of ``column`` per distinct ``keys``."""
     codes, table = group_codes(frame, keys)
-    grouped = frame[column].groupby(codes, sort=True)
-    table["n"] = grouped.size().to_numpy(dtype=np.int64)
-    table["median"] = grouped.median().to_numpy(dtype=np.float64)
+    values = frame[column].to_numpy(dtype=np.float64)
+    table["n"] = np.bincount(codes, minlength=len(table)).astype(np.int64)
+    if np.isnan(values).any():  # the median leaves NaN out (the units and ratios have none)
+        table["median"] = pd.Series(values).groupby(codes, sort=True).median().to_numpy()
+    else:
+        table["median"] = group_medians(codes, values, len(table))
     return table
 
 
@@ -941,8 +946,8 @@ def _monthly_medians(units: pd.DataFrame, params: ReviewParameters) -> pd.DataFr
         low, high = params.weight_window_kg
         w = units["patient_weight_kg"].to_numpy(dtype=np.float64)
         main &= ((w >= low) & (w <= high)) | in_band
-    units = units.loc[main]
-    out = _median_by(units, [*LOCATION_KEYS, "exam_type", "quantity", "month_key"], "value")
+    keys = [*LOCATION_KEYS, "exam_type", "quantity", "month_key"]
+    out = _median_by(units.loc[main, [*keys, "value"]], keys, "value")
     out["month"] = month_labels(out["month_key"])
     return out.loc[:, list(MONTHLY_COLUMNS)]
 
@@ -1074,7 +1079,7 @@ def _units(
     if params.ct_size_band_edges_cm:
         names += [*size_band_names(params.ct_size_band_edges_cm), *SIZE_SPECIAL_GROUPS]
     located["patient_group"] = pd.Categorical(groups_of_units, categories=names)
-    units = _with_location_keys(located.copy(), params.group_by)
+    units = _with_location_keys(located.copy(deep=False), params.group_by)  # (copy on write)
     return unmapped, scoped, located, units
 
 

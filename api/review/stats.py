@@ -81,6 +81,7 @@ __all__ = [
     "MedianCI",
     "QuantileCI",
     "classify_status",
+    "group_medians",
     "group_statistics",
     "median_ci",
     "median_ci_ranks",
@@ -249,17 +250,50 @@ class GroupStatistics:
         )
 
 
-def _group_order(codes: np.ndarray, values: np.ndarray, n_groups: int) -> np.ndarray:
-    """The order that sorts by group, then by value within a group (ties by position).
+#: groups above which the values are sorted in two passes over all of them, not group by group
+_GROUPS_SORTED_ONE_BY_ONE = 20_000
 
-    The same order as ``np.lexsort((values, codes))`` in two stable passes, values first: a
-    stable sort keeps the value order within each group, and small group codes sort by radix.
+
+def _grouped_sorted_values(codes: np.ndarray, values: np.ndarray, n_groups: int) -> np.ndarray:
+    """The values sorted by group, then by value within a group: ``values[np.lexsort((values,
+    codes))]``.
+
+    The values are put in group order by a stable sort of the codes (by radix for small codes),
+    then each group's run is sorted in place. With more groups than
+    ``_GROUPS_SORTED_ONE_BY_ONE`` (a Python step per group would cost more) the order is made in
+    two stable passes over all values instead, values first, then codes.
     """
-    by_value = np.argsort(values, kind="stable")
-    grouped = codes[by_value]
-    if n_groups <= np.iinfo(np.int16).max:
-        grouped = grouped.astype(np.int16)
-    return by_value[np.argsort(grouped, kind="stable")]
+    small = codes.astype(np.int16) if n_groups <= np.iinfo(np.int16).max else codes
+    if n_groups > _GROUPS_SORTED_ONE_BY_ONE:
+        by_value = np.argsort(values, kind="stable")
+        return values[by_value[np.argsort(small[by_value], kind="stable")]]
+    out = values[np.argsort(small, kind="stable")]
+    ends = np.cumsum(np.bincount(codes, minlength=n_groups))
+    starts = np.concatenate(([0], ends[:-1])) if len(ends) else ends
+    for start, end in zip(starts.tolist(), ends.tolist(), strict=True):
+        if end - start > 1:
+            out[start:end].sort()
+    return out
+
+
+def group_medians(codes: np.ndarray, values: np.ndarray, n_groups: int) -> np.ndarray:
+    """The sample median of each group's values: the middle value of the sorted values, or the
+    mean of the two middle ones for an even count, ``(x_(n/2) + x_(n/2+1)) / 2`` (as pandas'
+    ``groupby().median()`` gives it, to the bit); NaN for a group without values.
+
+    ``values`` must hold no NaN (the caller leaves them out); ``codes`` are in
+    ``0 .. n_groups - 1``.
+    """
+    values = np.asarray(values, dtype=np.float64)
+    n = np.bincount(codes, minlength=n_groups)
+    ordered = _grouped_sorted_values(codes, values, n_groups)
+    starts = np.cumsum(n) - n
+    has = n > 0
+    if not len(ordered):
+        return np.full(n_groups, np.nan)
+    low = ordered[np.where(has, starts + (n - 1) // 2, 0)]
+    high = ordered[np.where(has, starts + n // 2, 0)]
+    return np.where(has, (low + high) / 2, np.nan)
 
 
 def group_statistics(
@@ -304,7 +338,7 @@ def group_statistics(
     codes, values = codes[keep], values[keep]
     if len(codes) and (codes.min() < 0 or codes.max() >= n_groups):
         raise ReviewError("group codes out of range")
-    sorted_values = values[_group_order(codes, values, n_groups)]
+    sorted_values = _grouped_sorted_values(codes, values, n_groups)
     n = np.bincount(codes, minlength=n_groups).astype(np.int64)
     starts = np.cumsum(n) - n
     has = n > 0

@@ -133,6 +133,8 @@ def _random_event(rng: random.Random, i: int, n: int) -> dict[str, Any]:
         "size_dw_mean_cm": maybe(rng.uniform(12, 45), 0.4),
         "water_equivalent_diameter_mm": maybe(rng.uniform(120, 450), 0.4),
         "recon_mgd_mgy": maybe(rng.uniform(0.5, 3), 0.1),
+        # a few carry a clinical indication (a rule's), one an empty text
+        "clinical_indication": rng.choice([None] * 6 + ["acute_stroke", "trauma", ""]),
         "provenance": {},
         "notes": [],
     }
@@ -212,6 +214,7 @@ def _plain_table(session: Any, start: date = START, end: date = END) -> pd.DataF
                 if e.modality == "CT"
                 else math.nan,
                 "recon_mgd_mgy": number(e.recon_mgd_mgy),
+                "clinical_indication": e.clinical_indication,
             }
         )
     return pd.DataFrame(out)

@@ -195,14 +195,17 @@ def test_status_rules() -> None:
 
 
 @pytest.mark.parametrize("n_groups", [1, 7, 40_000])
-def test_group_order_is_numpy_lexsort(n_groups: int) -> None:
-    # the two-pass order must be numpy's lexsort((values, codes)) exactly, ties included
-    from beamaudit.api.review.stats import _group_order
+def test_grouped_sorted_values_are_numpy_lexsort_order(n_groups: int) -> None:
+    # group by group (7 groups) or in two passes over all values (40,000 groups: more than
+    # are sorted one by one), the values must be those of numpy's lexsort((values, codes))
+    from beamaudit.api.review.stats import _grouped_sorted_values
 
     rng = np.random.default_rng(n_groups)
     codes = rng.integers(0, n_groups, 20_000)
     values = np.round(rng.lognormal(0.0, 1.0, 20_000), 1)  # rounded: many ties
-    assert np.array_equal(_group_order(codes, values, n_groups), np.lexsort((values, codes)))
+    assert np.array_equal(
+        _grouped_sorted_values(codes, values, n_groups), values[np.lexsort((values, codes))]
+    )
 
 
 # ------------------------------------------------------------------------ any quantile's interval
@@ -299,3 +302,19 @@ def test_small_samples_need_no_scipy() -> None:
     )
     done = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True)
     assert done.returncode == 0, done.stderr
+
+
+@pytest.mark.parametrize("n_groups", [1, 7, 40_000])
+def test_group_medians_are_pandas_groupby_medians(n_groups: int) -> None:
+    # the sample median (the middle value, or the mean of the two middle ones) per group, to the
+    # bit as pandas' groupby().median() and numpy's median give it; a group without values NaN
+    from beamaudit.api.review.stats import group_medians
+
+    rng = np.random.default_rng(n_groups + 1)
+    codes = rng.integers(0, n_groups, 20_000)
+    values = np.round(rng.lognormal(0.0, 1.0, 20_000), 2)
+    ours = group_medians(codes, values, n_groups + 1)  # the last group has no values
+    theirs = pd.Series(values).groupby(codes).median()
+    assert np.array_equal(ours[theirs.index.to_numpy()], theirs.to_numpy())
+    assert np.isnan(ours[-1])
+    assert ours[codes[0]] == np.median(values[codes == codes[0]])
