@@ -47,14 +47,16 @@ SAFE_METHODS = frozenset({"GET", "HEAD", "OPTIONS"})
 async def get_session(request: Request) -> AsyncIterator[Session]:
     """One session per request; the route commits what it changes.
 
-    Made in the event loop (no I/O until a query); closed in a worker thread when it holds a
-    connection (closing rolls back and returns it to the pool: I/O on PostgreSQL), else here.
+    Made in the event loop (no I/O until a query). Closing it rolls back and returns its
+    connection to the pool: a round trip to a PostgreSQL server, done in a worker thread; on
+    SQLite a call into the library on a local file (nothing to undo after a route's reads, its
+    own writes already committed), done here.
     """
     session: Session = request.app.state.session_factory()
     try:
         yield session
     finally:
-        if session.in_transaction():
+        if session.in_transaction() and session.get_bind().dialect.name != "sqlite":
             await run_in_threadpool(session.close)
         else:
             session.close()
