@@ -38,11 +38,7 @@ def insert_rows(conn: Connection, table: Table, rows: Sequence[dict[str, Any]]) 
     if not _fast(conn, table, rows, names, defaults_needed=True):
         conn.execute(insert(table), list(rows))
         return
-    quote = conn.dialect.identifier_preparer.quote
-    sql = (
-        f"INSERT INTO {conn.dialect.identifier_preparer.format_table(table)} "
-        f"({', '.join(quote(n) for n in names)}) VALUES ({', '.join('?' for _ in names)})"
-    )
+    sql = _insert_sql(conn.dialect, table, tuple(names))
     conn.exec_driver_sql(sql, _tuples(conn, table, rows, names))
 
 
@@ -61,12 +57,28 @@ def update_rows(
         )
         conn.execute(statement, [{f"b_{k}": v for k, v in row.items()} for row in rows])
         return
-    quote = conn.dialect.identifier_preparer.quote
-    sql = (
-        f"UPDATE {conn.dialect.identifier_preparer.format_table(table)} SET "
+    sql = _update_sql(conn.dialect, table, tuple(names), key)
+    conn.exec_driver_sql(sql, _tuples(conn, table, rows, [*names, key]))
+
+
+@functools.lru_cache(maxsize=256)
+def _insert_sql(dialect: Dialect, table: Table, names: tuple[str, ...]) -> str:
+    """The ``INSERT`` of ``names`` into ``table`` with ``?`` placeholders, made once."""
+    quote = dialect.identifier_preparer.quote
+    return (
+        f"INSERT INTO {dialect.identifier_preparer.format_table(table)} "
+        f"({', '.join(quote(n) for n in names)}) VALUES ({', '.join('?' for _ in names)})"
+    )
+
+
+@functools.lru_cache(maxsize=256)
+def _update_sql(dialect: Dialect, table: Table, names: tuple[str, ...], key: str) -> str:
+    """The ``UPDATE`` of ``names`` of the ``table`` row whose ``key`` is given, made once."""
+    quote = dialect.identifier_preparer.quote
+    return (
+        f"UPDATE {dialect.identifier_preparer.format_table(table)} SET "
         f"{', '.join(f'{quote(n)} = ?' for n in names)} WHERE {quote(key)} = ?"
     )
-    conn.exec_driver_sql(sql, _tuples(conn, table, rows, [*names, key]))
 
 
 def _fast(
