@@ -32,7 +32,7 @@ def _demo_folder(argv: list[str], work: Path) -> Path:
         return Path(given)
     folder = work / "demo"
     subprocess.run(
-        [sys.executable, "-m", "beamaudit", "demo", "--no-serve", "--months", "1", "--seed", "0",
+        [sys.executable, "-m", "beamaudit", "demo", "--no-serve", "--months", "4", "--seed", "0",
          "--output", str(folder)],
         check=True, capture_output=True,
     )  # fmt: skip
