@@ -200,9 +200,9 @@ def _add_skin_heatmap(
     """One panel's skin dose (Gy) as a heatmap; the colour bar once, beside the first panel."""
     fig.add_trace(
         go.Heatmap(
-            x=x.tolist(),
-            y=y.tolist(),
-            z=z.tolist(),
+            x=x,
+            y=y,
+            z=z,
             zmin=0.0,
             zmax=zmax,
             colorscale=SKIN_DOSE_COLOURS,
@@ -234,9 +234,9 @@ def _add_isodose_line(
     words = _ISODOSE_WORDS.get(level, "")
     fig.add_trace(
         go.Contour(
-            x=x.tolist(),
-            y=y.tolist(),
-            z=z.tolist(),
+            x=x,
+            y=y,
+            z=z,
             contours={
                 "coloring": "none",
                 "start": level,
