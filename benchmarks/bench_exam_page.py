@@ -5,8 +5,9 @@ beam computed per exposure. Now a study of many exposures gets one chart of its 
 and the beams are kept per process. On the demo's store (``beamaudit demo --no-serve``; give its
 folder as the argument, or ``$BEAMAUDIT_BENCH_DEMO_DIR``; without one the four-month demo is
 made first, about a minute), the page of every ANGIO 1 study (``HGH-IR1``, skin-dose map
-included) and of the demo's 34-exposure barium enema is made in process, warm (after one making each), and
-timed against the page of a one-exposure radiograph made in the same run (the baseline).
+included) and of the demo's 34-exposure barium enema is made in process, warm (after one
+making each), and timed against the page of a one-exposure radiograph made in the same run (the
+baseline).
 
 Target: each fluoroscopy page within 4 x the radiograph's (a few hundred ms on a free core).
 Plain script: ``python benchmarks/bench_exam_page.py [DEMO_DIR]``.
