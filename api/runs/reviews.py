@@ -24,9 +24,7 @@ from __future__ import annotations
 import gc
 import json
 import logging
-import re
-from collections.abc import Callable, Iterator
-from contextlib import contextmanager
+from collections.abc import Callable
 from dataclasses import dataclass, replace
 from datetime import UTC, date, datetime
 from pathlib import Path
@@ -35,6 +33,7 @@ from typing import Any
 import numpy as np
 import pandas as pd
 from sqlalchemy import (
+    Column,
     Float,
     String,
     bindparam,
@@ -47,6 +46,8 @@ from sqlalchemy import (
 )
 from sqlalchemy.dialects.postgresql import ARRAY
 from sqlalchemy.orm import Session, sessionmaker
+from sqlalchemy.sql import util as sql_util
+from sqlalchemy.sql import visitors
 
 from beamaudit import __version__
 from beamaudit.api.review import (
@@ -58,6 +59,14 @@ from beamaudit.api.review import (
 )
 from beamaudit.api.review.quantities import QUANTITIES
 from beamaudit.api.runs.findings import store_flags
+from beamaudit.api.runs.packed_columns import (
+    PACKED_PARTS,
+    packed_number,
+    packed_text,
+    read_in_the_session_snapshot,
+    unpacked_numbers,
+    unpacked_texts,
+)
 from beamaudit.api.runs.record import (
     NoEventsError,
     UnknownNameError,
@@ -125,6 +134,17 @@ _SPARSE_COLUMNS: tuple[tuple[str, Any], ...] = (
     # mammography: the reconstructed D_G beside the device's AGD (a room's ratio is watched)
     ("recon_mgd_mgy", _E.recon_mgd_mgy),
 )
+#: The stored columns the sparse columns' values come from: an event with none of them has no
+#: sparse value (the others they are made of, ``event_type`` and ``modality``, only choose).
+_SPARSE_SOURCES: tuple[Any, ...] = (
+    *(getattr(_E, QUANTITIES[q].column) for q in ("reference_point_air_kerma_mgy", "ctdivol_mgy",
+                                                  "dlp_mgy_cm", "mgd_mgy")),
+    _E.irradiation_duration_s,
+    _E.body_part_thickness_mm,
+    _E.size_dw_mean_cm,
+    _E.water_equivalent_diameter_mm,
+    _E.recon_mgd_mgy,
+)  # fmt: skip
 #: Header text: read only for the events still without an exam type (to map them).
 _TEXT_COLUMNS: tuple[tuple[str, Any], ...] = tuple(
     (c.key, c)
@@ -297,7 +317,7 @@ def _study_uids(
     )
     bounds = {"first": int(ids[0]), "last": int(ids[-1])}
     if found_rows is None:
-        found_rows = _study_rows_by_arrow(session, stmt, bounds, len(ids))
+        found_rows = _study_rows_packed(session, stmt, bounds, len(ids))
     if found_rows is None:
         # the rows through the DBAPI cursor: half a million ORM rows cost seconds, these tenths
         rows = _fetch(session, stmt, bounds)
@@ -312,28 +332,24 @@ def _study_uids(
     return out
 
 
-def _study_rows_by_arrow(
+def _study_rows_packed(
     session: Session, stmt: Any, values: dict[str, Any], n: int
 ) -> tuple[np.ndarray, np.ndarray] | None:
-    """The studies' ids and UIDs of ``stmt`` through the ADBC PostgreSQL driver (the texts
-    made in C, not one DBAPI row each); None on another backend, for fewer than
-    ``_ARROW_MIN_EVENTS`` studies, or when the driver cannot read them as the session sees them."""
+    """The studies' ids and UIDs of ``stmt`` (a select of ``Study.id`` and the UID) on
+    PostgreSQL, packed by the server into one row (:mod:`.packed_columns`: no row per study
+    for the server to write and the driver to parse); None on another backend and for fewer
+    than ``_ARROW_MIN_EVENTS`` studies."""
     if n < _ARROW_MIN_EVENTS or session.get_bind().dialect.name != "postgresql":
         return None
-    source = _postgres_arrow_reader(session)
-    if source is None:
+    ids, lengths, texts = session.execute(
+        stmt.with_only_columns(packed_number(m.Study.id), *packed_text(m.Study.study_instance_uid)),
+        values,
+    ).one()
+    uids = unpacked_texts(lengths, (texts or "").encode())
+    if uids is None:
         return None
-    census = select(func.count(), func.max(m.Study.id))
-    expected = tuple(session.execute(census).one())
-    statements = source.statements(stmt, values)
-    census_sql = str(census.compile(dialect=session.get_bind().dialect))
-    pieces = source.read(census_sql, expected, statements) if statements else None
-    if not pieces:
-        return None
-    table = pieces[0]
-    return (
-        table.column(0).to_numpy(zero_copy_only=False).astype(np.int64),
-        table.column(1).to_numpy(zero_copy_only=False).astype(object),
+    return unpacked_numbers(ids).astype(np.int64), uids.to_numpy(zero_copy_only=False).astype(
+        object
     )
 
 
@@ -489,9 +505,11 @@ def _dense_by_arrow(
       which must never open the file inside a process that uses Python's ``sqlite3`` on it), in two
       threads (events of even and of odd id), numbers with ``_SQLITE_NULL`` for NULL (SQLite has
       no NaN); the rows come back as an Arrow IPC stream.
-    * PostgreSQL: the ADBC PostgreSQL driver (binary ``COPY`` parsed in C), the four reads at
-      once, each on a connection of its own, all in one snapshot (:func:`_postgres_arrow_reader`),
-      NULL as Arrow's null.
+    * PostgreSQL: the ADBC PostgreSQL driver, each column packed by the server into one value
+      (:func:`_packed_read`: a few large values instead of a million rows to write and parse),
+      the dense columns in two statements, the sparse ones, the indications and the study UIDs
+      in one each, all at once, each on a connection of its own, all in one snapshot
+      (:func:`_postgres_arrow_reader`).
 
     The driver reads through a connection of its own: None (the rows are read another way) when
     the store is not a plain file or the server refuses the driver's connection, when the driver
@@ -500,20 +518,32 @@ def _dense_by_arrow(
     for a store of fewer than ``_ARROW_MIN_EVENTS`` events.
     """
     E = m.ExposureEventRow
-    census = select(func.count(), func.max(E.id))
     backend = session.get_bind().dialect.name
-    if backend == "postgresql":  # the studies are read in the same snapshot: counted too
-        census = census.add_columns(
-            select(func.count()).select_from(m.Study).scalar_subquery(),
-            select(func.max(m.Study.id)).scalar_subquery(),
-        )
+    if backend == "postgresql":
+        return _packed_read(session, conditions, epoch, values)
+    census = select(func.count(), func.max(E.id))
     expected = tuple(session.execute(census).one())
     if (expected[0] or 0) < _ARROW_MIN_EVENTS:
         return None  # a small store: reading its rows costs less than starting the driver
-    reader = {"sqlite": _sqlite_arrow_reader, "postgresql": _postgres_arrow_reader}.get(backend)
-    source = reader(session) if reader is not None else None
+    source = _sqlite_arrow_reader(session) if backend == "sqlite" else None
     if source is None:
         return None
+
+    census_sql = str(census.compile(dialect=session.get_bind().dialect))
+    return _one_read(source, census_sql, expected, conditions, epoch, values)
+
+
+def _one_read(
+    source: _ArrowSource,
+    census_sql: str,
+    expected: tuple[Any, ...],
+    conditions: list[Any],
+    epoch: Any,
+    values: dict[str, Any],
+) -> dict[str, Any] | None:
+    """The period's dense and sparse columns and its indications in one read (SQLite), numbers
+    with ``source.null`` for NULL; the indications as :func:`_indications_apart` gives them."""
+    E = m.ExposureEventRow
 
     def number(column: Any) -> Any:
         as_float = cast(column, Float)
@@ -522,53 +552,134 @@ def _dense_by_arrow(
         return func.coalesce(as_float, literal_column(repr(source.null)))
 
     dense = [func.coalesce(c, "") if c.key in _ARROW_TEXTS else number(c) for c in _DENSE_SELECT]
-    dense_names = [c.key for c in _DENSE_SELECT] + ["epoch_s"]
+    names = [c.key for c in _DENSE_SELECT] + ["epoch_s"] + [n for n, _ in _SPARSE_COLUMNS]
     sparse = [number(c) for _, c in _SPARSE_COLUMNS]
-    sparse_names = [n for n, _ in _SPARSE_COLUMNS]
-    census_sql = str(census.compile(dialect=session.get_bind().dialect))
+    # the indications too ('=' before each, '' for none): no scan of their own
+    indication = func.coalesce(literal_column("'='", String).concat(E.clinical_indication), "")
+    out = _arrow_columns(
+        source,
+        census_sql,
+        expected,
+        select(*dense, number(epoch), *sparse, indication).where(*conditions),
+        values,
+        [*names, "clinical_indication"],
+    )
+    return None if out is None else _indications_apart(out)
 
-    def read(stmt: Any, names: list[str]) -> dict[str, Any] | None:
-        return _arrow_columns(source, census_sql, expected, stmt, values, names)
 
-    if not source.sparse_apart:  # the indications too ('=' before each, '' for none): no scan
-        indication = func.coalesce(literal_column("'='", String).concat(E.clinical_indication), "")
-        out = read(
-            select(*dense, number(epoch), *sparse, indication).where(*conditions),
-            [*dense_names, *sparse_names, "clinical_indication"],
-        )
-        return None if out is None else _indications_apart(out)
-    having = or_(*(c.is_not(None) for _, c in _SPARSE_COLUMNS))
-    apart = {  # each read on a connection of its own, all in one snapshot
-        "dense": select(*dense, number(epoch)).where(*conditions),
-        "sparse": select(number(E.id), *sparse).where(*conditions, having),
-        "indication": select(E.id, E.clinical_indication).where(
-            *conditions, E.clinical_indication.is_not(None)
-        ),
-        "studies": select(m.Study.id, m.Study.study_instance_uid).where(
-            m.Study.id.in_(select(E.study_id).where(*conditions))
-        ),
-    }
-    statements = [source.statements(stmt, values) for stmt in apart.values()]
-    if any(s is None or len(s) != 1 for s in statements):
+def _packed_read(
+    session: Session, conditions: list[Any], epoch: Any, values: dict[str, Any]
+) -> dict[str, Any] | None:
+    """The period's columns from PostgreSQL, each packed by the server into one value
+    (:mod:`.packed_columns`), in ``PACKED_PARTS`` statements (the events of id ``j`` modulo
+    that) read at once in the session's snapshot: the dense columns, and in the same pass the
+    sparse columns and the indications of the events that have one. The same columns as
+    :func:`_arrow_table_columns` gives, with ``indication`` (a pair of arrays: ids, texts);
+    None when they cannot be read so (then the session reads them), and for a store whose
+    highest event id is below ``_ARROW_MIN_EVENTS`` (reading its rows costs less than the
+    driver's connections)."""
+    E = m.ExposureEventRow
+    if (session.execute(select(func.max(E.id))).scalar() or 0) < _ARROW_MIN_EVENTS:
         return None
-    parts = source.read(census_sql, expected, [s[0] for s in statements if s is not None])
+    names = [c.key for c in _DENSE_SELECT] + ["epoch_s"]
+    parts = read_in_the_session_snapshot(
+        session,
+        [_packed_part(conditions, epoch, j).params(**values) for j in range(PACKED_PARTS)],
+    )
     if parts is None:
         return None
-    out = _arrow_table_columns(source, [parts[0]], dense_names)
-    few = _arrow_table_columns(source, [parts[1]], ["event_id", *sparse_names])
-    if out is None or few is None:
+    rows = [[table.column(j)[0] for j in range(table.num_columns)] for table in parts]
+    unpacked = [_unpacked_part(row, names) for row in rows[:PACKED_PARTS]]
+    if any(u is None for u in unpacked):
         return None
-    at, found = _positions(out["event_id"], few["event_id"])
-    for name in sparse_names:
+    out = _arrow_table_columns(None, [u[0] for u in unpacked], names)
+    if out is None:
+        return None
+    few = [np.concatenate(c) for c in zip(*(u[1] for u in unpacked), strict=True)]
+    at, found = _positions(out["event_id"], few[0])
+    for (name, _), values_of in zip(_SPARSE_COLUMNS, few[1:], strict=True):
         column = np.full(len(out["event_id"]), np.nan)
-        column[at] = few[name][found]
+        column[at] = values_of[found]
         out[name] = column
-    for name, table in zip(("indication", "studies"), parts[2:], strict=True):
-        out[name] = (
-            table.column(0).to_numpy(zero_copy_only=False).astype(np.int64),
-            table.column(1).to_numpy(zero_copy_only=False).astype(object),
-        )
+    out["indication"] = tuple(
+        np.concatenate(c) for c in zip(*(u[2] for u in unpacked), strict=True)
+    )
     return out
+
+
+def _sparse_stored_columns() -> list[Any]:
+    """The stored columns the sparse columns are made of (their values and conditions)."""
+    found: dict[str, Any] = {}
+    for _, expression in _SPARSE_COLUMNS:
+        for element in visitors.iterate(expression.__clause_element__()):
+            if isinstance(element, Column) and element.table is m.ExposureEventRow.__table__:
+                found.setdefault(element.key, element)
+    return list(found.values())
+
+
+def _packed_part(conditions: list[Any], epoch: Any, part: int) -> Any:
+    """The statement of part ``part`` of :func:`_packed_read`: the events of that id modulo
+    ``PACKED_PARTS``, each column packed; the sparse columns and the indications of the events
+    that have one. The rows are selected with their columns and marks in a subquery the planner
+    keeps apart (``OFFSET 0``), so that each mark is evaluated once a row, not once for each
+    aggregate it filters."""
+    E = m.ExposureEventRow
+    sparse = [c.__clause_element__() for _, c in _SPARSE_COLUMNS]
+    dense_keys = {c.key for c in _DENSE_SELECT}
+    rows = (
+        select(
+            *_DENSE_SELECT,
+            epoch.label("epoch_s"),
+            *(c for c in _sparse_stored_columns() if c.key not in dense_keys),
+            or_(*(c.is_not(None) for c in _SPARSE_SOURCES)).label("has_sparse"),
+            E.clinical_indication,
+        )
+        .where(*conditions, func.mod(E.id, PACKED_PARTS) == part)
+        .offset(0)
+        .subquery()
+    )
+    columns: list[Any] = []
+    for c in _DENSE_SELECT:
+        column = rows.c[c.key]
+        columns += list(packed_text(column)) if c.key in _ARROW_TEXTS else [packed_number(column)]
+    columns.append(packed_number(rows.c.epoch_s))
+    # the sparse columns made of the subquery's columns, for its rows that may have one
+    on_rows = sql_util.ClauseAdapter(rows)
+    having = rows.c.has_sparse
+    columns += [packed_number(c, having) for c in (rows.c.event_id, *map(on_rows.traverse, sparse))]
+    marked = rows.c.clinical_indication.is_not(None)
+    columns += [
+        packed_number(rows.c.event_id, marked),
+        *packed_text(rows.c.clinical_indication, marked),
+    ]
+    return select(*columns)
+
+
+def _unpacked_part(row: list[Any], names: list[str]) -> Any:
+    """One part of :func:`_packed_read`: the dense columns ``names`` as an Arrow table, the
+    sparse columns' (ids, values...) and the indications' (ids, texts); None when a text
+    column does not unpack."""
+    import pyarrow
+
+    dense, j = [], 0
+    for name in names:
+        if name in _ARROW_TEXTS:
+            dense.append(unpacked_texts(row[j], row[j + 1]))
+            j += 2
+        else:
+            dense.append(pyarrow.array(unpacked_numbers(row[j])))
+            j += 1
+    n_sparse = 1 + len(_SPARSE_COLUMNS)
+    sparse = [unpacked_numbers(v) for v in row[j : j + n_sparse]]
+    ids, lengths, texts = row[j + n_sparse :]
+    labels = unpacked_texts(lengths, texts)
+    if labels is None or any(c is None for c in dense):
+        return None
+    indications = (
+        unpacked_numbers(ids).astype(np.int64),
+        labels.to_numpy(zero_copy_only=False).astype(object),
+    )
+    return pyarrow.table(dense, names=names), sparse, indications
 
 
 def _arrow_columns(
@@ -588,11 +699,11 @@ def _arrow_columns(
     pieces = source.read(census_sql, expected, statements)
     if pieces is None:
         return None
-    return _arrow_table_columns(source, pieces, names)
+    return _arrow_table_columns(source.null, pieces, names)
 
 
 def _arrow_table_columns(
-    source: _ArrowSource, pieces: list[Any], names: list[str]
+    null: float | None, pieces: list[Any], names: list[str]
 ) -> dict[str, Any] | None:
     """The columns ``names`` of the Arrow tables ``pieces`` (parts of one read), in id order (the
     first column): texts as categoricals, numbers as float arrays (NaN for NULL), ``event_id`` as
@@ -624,10 +735,10 @@ def _arrow_table_columns(
         numbers = column.to_numpy(zero_copy_only=False)  # Arrow's nulls as NaN
         if order is not None:
             numbers = numbers[order]  # (a new array: its stand-ins for NULL replaced in place)
-            if source.null is not None:
-                numbers[numbers == source.null] = np.nan
-        elif source.null is not None:
-            numbers = np.where(numbers == source.null, np.nan, numbers)
+            if null is not None:
+                numbers[numbers == null] = np.nan
+        elif null is not None:
+            numbers = np.where(numbers == null, np.nan, numbers)
         out[name] = numbers
     out["event_id"] = out["event_id"].astype(np.int64)
     return out
@@ -667,9 +778,6 @@ class _ArrowSource:
     read: Callable[[str, tuple[Any, ...], list[str]], list[Any] | None]
     #: the number standing for NULL in number columns; None: Arrow's own null
     null: float | None
-    #: whether the sparse columns are read apart, for the events that have one (PostgreSQL:
-    #: writing a million rows of seven empty columns costs the server more than a second scan)
-    sparse_apart: bool = False
 
 
 def _sqlite_literal(value: Any) -> str | None:
@@ -760,86 +868,6 @@ def _read_in_a_process(request: dict[str, Any]) -> Any:
                      status, f" ({reason.splitlines()[-1]})" if reason else "")  # fmt: skip
             return None
     return table
-
-
-#: a snapshot's name as ``pg_export_snapshot()`` gives it (hexadecimal parts and dashes)
-_SNAPSHOT_NAME = re.compile(r"[0-9A-Fa-f]+(-[0-9A-Fa-f]+)+")
-
-
-def _postgres_arrow_reader(session: Session) -> _ArrowSource | None:
-    """The ADBC PostgreSQL driver on the session's database; None when the driver is missing.
-
-    Connections of its own: the session's URL as a libpq URI, the session's ``search_path``
-    set, each in a repeatable-read transaction, one per statement, each in a thread of its own
-    (the server works in a backend process per connection, the driver leaves the GIL while it
-    waits and parses). The first connection exports its snapshot (``pg_export_snapshot()``),
-    checks the census and reads the first statement; the others take that snapshot (``SET
-    TRANSACTION SNAPSHOT``), so every statement reads the same rows as the census counted, and
-    the first keeps its transaction open until they are done. Synchronised scans are off, so
-    that a scan does not start where another one is (its rows would come in two runs). The
-    values are written into the statements (the period's bounds and constant texts, none from a
-    user): the driver runs a statement without parameters as a binary COPY, a third faster than
-    one with parameters.
-    """
-    try:
-        import adbc_driver_postgresql.dbapi as adbc
-        from adbc_driver_manager import Error as DriverError
-    except ImportError:
-        return None
-    url = session.connection().engine.url
-    uri = url.set(drivername="postgresql").render_as_string(hide_password=False)
-    search_path = session.execute(select(func.current_setting("search_path"))).scalar()
-    dialect = session.get_bind().dialect
-
-    @contextmanager
-    def connect(snapshot: str | None = None) -> Iterator[Any]:
-        with adbc.connect(uri, autocommit=True) as arrow, arrow.cursor() as cursor:
-            cursor.execute("SELECT set_config('search_path', $1, false)", (search_path,))
-            cursor.fetchall()
-            # every scan from the table's start: a scan joining another one under way would
-            # give the rows in two runs, to be sorted by id again
-            cursor.execute("SET synchronize_seqscans = off")
-            cursor.execute("BEGIN ISOLATION LEVEL REPEATABLE READ READ ONLY")
-            if snapshot is not None:  # the lead connection's, checked to be a name (read)
-                cursor.execute(f"SET TRANSACTION SNAPSHOT '{snapshot}'")
-            try:
-                yield cursor
-            finally:
-                cursor.execute("ROLLBACK")
-
-    def statements(stmt: Any, values: dict[str, Any]) -> list[str] | None:
-        compiled = stmt.params(**values).compile(
-            dialect=dialect, compile_kwargs={"literal_binds": True}
-        )
-        return [str(compiled)]
-
-    def one(sql: str, snapshot: str) -> Any:
-        with connect(snapshot) as cursor:
-            cursor.execute(sql)
-            return cursor.fetch_arrow_table()
-
-    def read(census: str, expected: tuple[Any, ...], sqls: list[str]) -> list[Any] | None:
-        from concurrent.futures import ThreadPoolExecutor
-
-        try:
-            with connect() as lead, ThreadPoolExecutor(max(1, len(sqls) - 1)) as pool:
-                lead.execute("SELECT pg_export_snapshot()")
-                snapshot = str((lead.fetchone() or ("",))[0])
-                if not _SNAPSHOT_NAME.fullmatch(snapshot):  # such as 00000003-0000001B-1
-                    return None
-                others = [pool.submit(one, sql, snapshot) for sql in sqls[1:]]
-                lead.execute(census)
-                same = tuple(lead.fetchone() or ()) == expected
-                first = None
-                if same:
-                    lead.execute(sqls[0])
-                    first = lead.fetch_arrow_table()
-                rest = [part.result() for part in others]  # before the lead's snapshot ends
-        except DriverError:  # the server refused the driver's connection: another way reads it
-            return None
-        return [first, *rest] if same else None
-
-    return _ArrowSource(statements, read, None, sparse_apart=True)
 
 
 def _arrow_categorical(column: Any, rows: np.ndarray | None = None) -> pd.Categorical:
