@@ -27,6 +27,7 @@ A packed value is one ``bytea`` or ``text`` of PostgreSQL: at most 1 GB, so at m
 from __future__ import annotations
 
 import re
+from collections.abc import Callable
 from typing import Any
 
 import numpy as np
@@ -35,9 +36,10 @@ from sqlalchemy.orm import Session
 
 __all__ = [
     "PACKED_PARTS",
+    "SnapshotReads",
     "packed_number",
     "packed_text",
-    "read_in_the_session_snapshot",
+    "session_snapshot",
     "unpacked_numbers",
     "unpacked_texts",
 ]
@@ -114,26 +116,85 @@ def unpacked_texts(lengths: Any, texts: Any) -> Any:
 _SNAPSHOT_NAME = re.compile(r"[0-9A-Fa-f]+(-[0-9A-Fa-f]+)+")
 
 
-def read_in_the_session_snapshot(session: Session, statements: list[Any]) -> list[Any] | None:
-    """Each of ``statements`` (SQLAlchemy selects) read through the ADBC PostgreSQL driver on a
-    connection of its own, all at once, in the session's own snapshot: their Arrow tables in
-    order, or None (the rows are then read through the session) when the driver is missing or
-    the server refuses its connection, when the session's transaction has written (its rows
-    are not in any other transaction's snapshot), or when the server cannot export a snapshot
-    (a standby in recovery).
+class SnapshotReads:
+    """Statements read through the ADBC PostgreSQL driver in a session's snapshot
+    (:func:`session_snapshot`), each on a connection of its own.
 
-    The session's transaction exports its snapshot (``pg_export_snapshot()``) and every
-    connection takes it (``SET TRANSACTION SNAPSHOT``, in a read-only repeatable-read
-    transaction), so that every statement reads exactly the rows the session sees. Each
-    connection has the session's URL (as a libpq URI) and ``search_path``, and runs its
-    statement in one server process without parallel workers (the statements themselves run in
-    parallel; workers would only pass the rows among processes). The values are written into
-    the statements (the period's bounds and constant texts, none from a user); the connections
-    wait and read in threads of their own (the driver leaves the GIL while it waits).
+    Each connection has the session's URL (as a libpq URI) and ``search_path``, takes the
+    snapshot (``SET TRANSACTION SNAPSHOT`` in a read-only repeatable-read transaction) and runs
+    its statement in one server process without parallel workers (the statements themselves
+    run in parallel; workers would only pass the rows among processes). The values are written
+    into the statements (the period's bounds and constant texts, none from a user); the
+    connections wait and read in threads of their own (the driver leaves the GIL meanwhile).
+    The snapshot lasts while the session's transaction does: read before it ends.
     """
-    try:
+
+    def __init__(self, session: Session, snapshot: str) -> None:
+        url = session.connection().engine.url
+        self._uri = url.set(drivername="postgresql").render_as_string(hide_password=False)
+        self._search_path = session.execute(select(func.current_setting("search_path"))).scalar()
+        self._dialect = session.get_bind().dialect
+        self._snapshot = snapshot
+
+    def _one(self, statement: Any) -> Any:
         import adbc_driver_postgresql.dbapi as adbc
+
+        sql = str(statement.compile(dialect=self._dialect, compile_kwargs={"literal_binds": True}))
+        with adbc.connect(self._uri, autocommit=True) as arrow, arrow.cursor() as cursor:
+            cursor.execute("SELECT set_config('search_path', $1, false)", (self._search_path,))
+            cursor.fetchall()
+            cursor.execute("SET max_parallel_workers_per_gather = 0")
+            cursor.execute("BEGIN ISOLATION LEVEL REPEATABLE READ READ ONLY")
+            cursor.execute(f"SET TRANSACTION SNAPSHOT '{self._snapshot}'")  # a name (checked)
+            try:
+                cursor.execute(sql)
+                return cursor.fetch_arrow_table()
+            finally:
+                cursor.execute("ROLLBACK")
+
+    def read(self, statements: list[Any]) -> list[Any] | None:
+        """The Arrow tables of ``statements``, read at once; None when the server refuses the
+        driver's connection (another way reads them)."""
+        from concurrent.futures import ThreadPoolExecutor
+
         from adbc_driver_manager import Error as DriverError
+
+        try:
+            with ThreadPoolExecutor(len(statements)) as pool:
+                return list(pool.map(self._one, statements))
+        except DriverError:
+            return None
+
+    def start(self, statement: Any) -> Callable[[], Any]:
+        """Start reading ``statement`` in a thread of its own; returns the function that waits
+        for its Arrow table (None when the driver could not read it)."""
+        from concurrent.futures import ThreadPoolExecutor
+
+        from adbc_driver_manager import Error as DriverError
+
+        pool = ThreadPoolExecutor(1)
+        future = pool.submit(self._one, statement)
+        pool.shutdown(wait=False)
+
+        def result() -> Any:
+            try:
+                return future.result()
+            except DriverError:
+                return None
+
+        return result
+
+
+def session_snapshot(session: Session) -> SnapshotReads | None:
+    """Reads in the session's own snapshot (:class:`SnapshotReads`), so that every statement
+    reads exactly the rows the session sees: the session's transaction exports its snapshot
+    (``pg_export_snapshot()``). None (the rows are then read through the session) when the
+    ADBC driver is missing, when the session's transaction has written (its rows are in no other
+    transaction's snapshot), or when the server cannot export a snapshot (a standby in
+    recovery)."""
+    try:
+        import adbc_driver_manager  # noqa: F401
+        import adbc_driver_postgresql.dbapi  # noqa: F401
     except ImportError:
         return None
     state = session.execute(select(func.txid_current_if_assigned(), func.pg_is_in_recovery())).one()
@@ -142,32 +203,4 @@ def read_in_the_session_snapshot(session: Session, statements: list[Any]) -> lis
     snapshot = str(session.execute(select(func.pg_export_snapshot())).scalar())
     if not _SNAPSHOT_NAME.fullmatch(snapshot):  # such as 00000003-0000001B-1
         return None
-    url = session.connection().engine.url
-    uri = url.set(drivername="postgresql").render_as_string(hide_password=False)
-    search_path = session.execute(select(func.current_setting("search_path"))).scalar()
-    dialect = session.get_bind().dialect
-    sqls = [
-        str(stmt.compile(dialect=dialect, compile_kwargs={"literal_binds": True}))
-        for stmt in statements
-    ]
-
-    def one(sql: str) -> Any:
-        with adbc.connect(uri, autocommit=True) as arrow, arrow.cursor() as cursor:
-            cursor.execute("SELECT set_config('search_path', $1, false)", (search_path,))
-            cursor.fetchall()
-            cursor.execute("SET max_parallel_workers_per_gather = 0")
-            cursor.execute("BEGIN ISOLATION LEVEL REPEATABLE READ READ ONLY")
-            cursor.execute(f"SET TRANSACTION SNAPSHOT '{snapshot}'")  # a name (checked)
-            try:
-                cursor.execute(sql)
-                return cursor.fetch_arrow_table()
-            finally:
-                cursor.execute("ROLLBACK")
-
-    from concurrent.futures import ThreadPoolExecutor
-
-    try:
-        with ThreadPoolExecutor(len(sqls)) as pool:
-            return list(pool.map(one, sqls))
-    except DriverError:  # the server refused the driver's connection: another way reads it
-        return None
+    return SnapshotReads(session, snapshot)

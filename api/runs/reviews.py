@@ -27,6 +27,7 @@ import logging
 from collections.abc import Callable
 from dataclasses import dataclass, replace
 from datetime import UTC, date, datetime
+from functools import partial
 from pathlib import Path
 from typing import Any
 
@@ -63,7 +64,7 @@ from beamaudit.api.runs.packed_columns import (
     PACKED_PARTS,
     packed_number,
     packed_text,
-    read_in_the_session_snapshot,
+    session_snapshot,
     unpacked_numbers,
     unpacked_texts,
 )
@@ -284,11 +285,11 @@ def _study_column(
     session: Session,
     study_ids: np.ndarray,
     event_ids: np.ndarray,
-    rows: tuple[np.ndarray, np.ndarray] | None = None,
+    rows: Callable[[], tuple[np.ndarray, np.ndarray] | None] | None = None,
 ) -> pd.Categorical:
     """The study's Study Instance UID, or ``(event N)`` for an event without a study, as a
     categorical (the events carry the study's id: each distinct study is looked up once, or in
-    ``rows``, the ids and UIDs of the studies already read, when given)."""
+    what ``rows`` gives when given: the ids and UIDs of the studies read beside the events)."""
     has = ~np.isnan(study_ids)
     codes = np.empty(len(study_ids), dtype=np.int64)
     # the distinct ids sorted, each event's position among them (np.unique's, by hashing)
@@ -306,12 +307,15 @@ def _study_column(
 
 
 def _study_uids(
-    session: Session, ids: np.ndarray, found_rows: tuple[np.ndarray, np.ndarray] | None = None
+    session: Session,
+    ids: np.ndarray,
+    read: Callable[[], tuple[np.ndarray, np.ndarray] | None] | None = None,
 ) -> np.ndarray:
-    """The Study Instance UIDs of the studies ``ids`` (sorted), from ``found_rows`` (ids and
-    UIDs) when given, else in one query over their range."""
+    """The Study Instance UIDs of the studies ``ids`` (sorted), from what ``read`` gives (ids
+    and UIDs, or None) when given, else in one query over their range."""
     if not len(ids):
         return np.array([], dtype=object)
+    found_rows = None if read is None else read()
     stmt = select(m.Study.id, m.Study.study_instance_uid).where(
         m.Study.id.between(bindparam("first"), bindparam("last"))
     )
@@ -582,14 +586,28 @@ def _packed_read(
     if (session.execute(select(func.max(E.id))).scalar() or 0) < _ARROW_MIN_EVENTS:
         return None
     names = [c.key for c in _DENSE_SELECT] + ["epoch_s"]
-    parts = read_in_the_session_snapshot(
-        session,
-        [_packed_part(conditions, epoch, j).params(**values) for j in range(PACKED_PARTS)],
+    reads = session_snapshot(session)
+    if reads is None:
+        return None
+    parts = reads.read(
+        [_packed_part(conditions, epoch, j).params(**values) for j in range(PACKED_PARTS)]
     )
     if parts is None:
         return None
     rows = [[table.column(j)[0] for j in range(table.num_columns)] for table in parts]
-    unpacked = [_unpacked_part(row, names) for row in rows[:PACKED_PARTS]]
+    # the UIDs of the studies in the parts' range of study ids, read while the parts are unpacked
+    bounds = [b.as_py() for row in rows for b in row[-2:] if b.is_valid]
+    Study = m.Study
+    studies = (
+        reads.start(
+            select(packed_number(Study.id), *packed_text(Study.study_instance_uid)).where(
+                Study.id.between(int(min(bounds)), int(max(bounds)))
+            )
+        )
+        if bounds
+        else None
+    )
+    unpacked = [_unpacked_part(row[:-2], names) for row in rows]
     if any(u is None for u in unpacked):
         return None
     out = _arrow_table_columns(None, [u[0] for u in unpacked], names)
@@ -604,7 +622,23 @@ def _packed_read(
     out["indication"] = tuple(
         np.concatenate(c) for c in zip(*(u[2] for u in unpacked), strict=True)
     )
+    out["studies"] = None if studies is None else partial(_unpacked_studies, studies)
     return out
+
+
+def _unpacked_studies(read: Callable[[], Any]) -> tuple[np.ndarray, np.ndarray] | None:
+    """The studies' ids and UIDs of a packed read of studies, when it has come (None when the
+    driver could not read them)."""
+    table = read()
+    if table is None:
+        return None
+    ids, lengths, texts = (table.column(j)[0] for j in range(3))
+    uids = unpacked_texts(lengths, texts)
+    if uids is None:
+        return None
+    return unpacked_numbers(ids).astype(np.int64), uids.to_numpy(zero_copy_only=False).astype(
+        object
+    )
 
 
 def _sparse_stored_columns() -> list[Any]:
@@ -651,6 +685,8 @@ def _packed_part(conditions: list[Any], epoch: Any, part: int) -> Any:
     columns += [
         packed_number(rows.c.event_id, marked),
         *packed_text(rows.c.clinical_indication, marked),
+        func.min(rows.c.study_id),  # the range of the studies to look up
+        func.max(rows.c.study_id),
     ]
     return select(*columns)
 
@@ -906,7 +942,7 @@ def review_events(session: Session, *, start: date, end: date) -> pd.DataFrame:
         dense = _dense_by_copy(session, conditions, epoch, values)
     if dense is None:
         dense = _dense_by_rows(session, conditions, epoch, values)
-    # read beside the columns on PostgreSQL: the indications' and the studies' rows
+    # read beside the columns on PostgreSQL: the indications' rows, and the studies' (coming)
     indications, studies = dense.pop("indication", None), dense.pop("studies", None)
     event_ids = dense["event_id"]
     if len(event_ids) > 1 and not (np.diff(event_ids) > 0).all():
@@ -918,7 +954,7 @@ def review_events(session: Session, *, start: date, end: date) -> pd.DataFrame:
     room_ids = dense["room_id"]
     columns: dict[str, Any] = {
         "event_id": event_ids,
-        "study_uid": _study_column(session, dense["study_id"], event_ids, studies),
+        "study_uid": None,  # last: the studies' read beside it goes on meanwhile
         "event_datetime": instants(dense["epoch_s"]),
         "site": _names_column(room_ids, {k: v[1] for k, v in rooms.items()}, "(no site)"),
         "room": _names_column(room_ids, {k: v[0] for k, v in rooms.items()}, "(no room)"),
@@ -943,6 +979,7 @@ def review_events(session: Session, *, start: date, end: date) -> pd.DataFrame:
             column = np.full(n, np.nan)
             column[at] = sparse[found, 1 + offset].astype(np.float64)
             columns[name] = column
+    study_ids = dense["study_id"]
     del dense
     # the clinical indication: few events carry one (a rule set it), read for those only
     indication = np.full(n, None, dtype=object)
@@ -969,6 +1006,7 @@ def review_events(session: Session, *, start: date, end: date) -> pd.DataFrame:
         for offset, column in enumerate(text_columns.values()):
             column[at] = text[found, 1 + offset]
     columns.update(text_columns)
+    columns["study_uid"] = _study_column(session, study_ids, event_ids, studies)
     # the columns as they are, not copied into one block per type (a frame the review
     # reads, never writes: copying twenty columns of a million rows cost a tenth of the read)
     return pd.DataFrame(columns, copy=False)

@@ -317,7 +317,7 @@ def test_a_small_store_is_read_without_the_driver(store, monkeypatch) -> None:
         through_arrow = review_events(session, start=START, end=END)
     monkeypatch.setattr(reviews, "_ARROW_MIN_EVENTS", 10**9)
     readers: list[str] = []
-    for name in ("_sqlite_arrow_reader", "read_in_the_session_snapshot"):
+    for name in ("_sqlite_arrow_reader", "session_snapshot"):
         monkeypatch.setattr(reviews, name, lambda *args, name=name: readers.append(name))
     with store.session_factory() as session:
         pd.testing.assert_frame_equal(review_events(session, start=START, end=END), through_arrow)
