@@ -349,12 +349,7 @@ def _study_rows_packed(
         stmt.with_only_columns(packed_number(m.Study.id), *packed_text(m.Study.study_instance_uid)),
         values,
     ).one()
-    uids = unpacked_texts(lengths, (texts or "").encode())
-    if uids is None:
-        return None
-    return unpacked_numbers(ids).astype(np.int64), uids.to_numpy(zero_copy_only=False).astype(
-        object
-    )
+    return _ids_and_texts(ids, lengths, (texts or "").encode())
 
 
 def _text_categorical(values: np.ndarray) -> pd.Categorical:
@@ -497,29 +492,25 @@ def _dense_by_arrow(
     month of a million events); the ADBC drivers (Apache Arrow's database connectivity) write the
     values into Arrow arrays in C, which NumPy and pandas take as they are. Every number is read
     as a double and the texts as texts ('' for NULL), so that every column has one type
-    whatever its first rows hold. On SQLite the sparse columns and the clinical indications come
-    in the same read (a second pass over the table costs more than carrying them); on
-    PostgreSQL in reads of their own beside it, of the events that have one (the server spends
-    more on writing a million rows of empty columns than on a second scan), with the period's
-    study UIDs: the result then carries ``indication`` and ``studies``, each a pair of arrays
-    (ids, texts), which :func:`review_events` takes instead of reading them itself.
+    whatever its first rows hold. The sparse columns and the clinical indications come in the
+    same read (a second pass over the table costs more than carrying them); on PostgreSQL the
+    result also carries ``indication`` (ids, texts) and ``studies`` (what gives the period's
+    studies' ids and UIDs), which :func:`review_events` takes instead of reading them itself.
 
     * SQLite (a database file): the ADBC SQLite driver in a short-lived process of its own
       (:mod:`beamaudit.api.store.sqlite_arrow`: the driver has its own copy of the SQLite library,
       which must never open the file inside a process that uses Python's ``sqlite3`` on it), in two
       threads (events of even and of odd id), numbers with ``_SQLITE_NULL`` for NULL (SQLite has
-      no NaN); the rows come back as an Arrow IPC stream.
+      no NaN); the rows come back as an Arrow IPC stream. Used only when the driver sees the
+      events the session sees (the session holds no uncommitted events of its own and none were
+      committed in between: count and highest id equal).
     * PostgreSQL: the ADBC PostgreSQL driver, each column packed by the server into one value
       (:func:`_packed_read`: a few large values instead of a million rows to write and parse),
-      the dense columns in two statements, the sparse ones, the indications and the study UIDs
-      in one each, all at once, each on a connection of its own, all in one snapshot
-      (:func:`_postgres_arrow_reader`).
+      in two statements at once, each on a connection of its own, in the session's own snapshot.
 
-    The driver reads through a connection of its own: None (the rows are read another way) when
-    the store is not a plain file or the server refuses the driver's connection, when the driver
-    is missing, or when the events it sees are not the session's (the session holds uncommitted
-    events of its own, or events were committed in between: count and highest id differ); and
-    for a store of fewer than ``_ARROW_MIN_EVENTS`` events.
+    None (the rows are read another way) when the store is not a plain file, the driver is
+    missing or the server refuses its connection, or when the reader cannot see what the session
+    sees; and for a store of fewer than ``_ARROW_MIN_EVENTS`` events.
     """
     E = m.ExposureEventRow
     backend = session.get_bind().dialect.name
@@ -630,14 +621,18 @@ def _unpacked_studies(read: Callable[[], Any]) -> tuple[np.ndarray, np.ndarray] 
     """The studies' ids and UIDs of a packed read of studies, when it has come (None when the
     driver could not read them)."""
     table = read()
-    if table is None:
+    return None if table is None else _ids_and_texts(*(table.column(j)[0] for j in range(3)))
+
+
+def _ids_and_texts(ids: Any, lengths: Any, texts: Any) -> tuple[np.ndarray, np.ndarray] | None:
+    """Packed ids and texts (:func:`packed_number`, :func:`packed_text`) as arrays of integers
+    and of Python texts; None when the texts do not unpack."""
+    labels = unpacked_texts(lengths, texts)
+    if labels is None:
         return None
-    ids, lengths, texts = (table.column(j)[0] for j in range(3))
-    uids = unpacked_texts(lengths, texts)
-    if uids is None:
-        return None
-    return unpacked_numbers(ids).astype(np.int64), uids.to_numpy(zero_copy_only=False).astype(
-        object
+    return (
+        unpacked_numbers(ids).astype(np.int64),
+        labels.to_numpy(zero_copy_only=False).astype(object),
     )
 
 
@@ -707,14 +702,9 @@ def _unpacked_part(row: list[Any], names: list[str]) -> Any:
             j += 1
     n_sparse = 1 + len(_SPARSE_COLUMNS)
     sparse = [unpacked_numbers(v) for v in row[j : j + n_sparse]]
-    ids, lengths, texts = row[j + n_sparse :]
-    labels = unpacked_texts(lengths, texts)
-    if labels is None or any(c is None for c in dense):
+    indications = _ids_and_texts(*row[j + n_sparse :])
+    if indications is None or any(c is None for c in dense):
         return None
-    indications = (
-        unpacked_numbers(ids).astype(np.int64),
-        labels.to_numpy(zero_copy_only=False).astype(object),
-    )
     return pyarrow.table(dense, names=names), sparse, indications
 
 
