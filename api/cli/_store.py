@@ -21,11 +21,15 @@ class OpenStore:
     sessions: sessionmaker[Session]
 
 
-def open_store(ctx: typer.Context | None, *, migrate: bool = True) -> OpenStore:
+def open_store(
+    ctx: typer.Context | None, *, migrate: bool = True, writes: bool = True
+) -> OpenStore:
     """Settings, a reachable engine (migrated to head unless ``migrate`` is false), sessions.
 
-    Opened to write (``migrate``), the store's review runs cut short (their process gone) are
-    marked failed first, with the reason (:func:`beamaudit.api.runs.record.fail_interrupted_runs`).
+    Opened by a command that writes (``migrate`` and ``writes``), the store's review runs cut
+    short (their process gone) are marked failed first, with the reason
+    (:func:`beamaudit.api.runs.record.fail_interrupted_runs`); a listing (``writes`` false)
+    leaves that to the next command that writes.
     """
     from beamaudit.api.store import (
         StoreError,
@@ -52,7 +56,7 @@ def open_store(ctx: typer.Context | None, *, migrate: bool = True) -> OpenStore:
     except StoreError as exc:
         fail(str(exc))
     sessions = make_session_factory(engine)
-    if migrate:
+    if migrate and writes:
         from beamaudit.api.runs.record import fail_interrupted_runs
 
         fail_interrupted_runs(sessions, started=ctx.command_path if ctx else "beamaudit")

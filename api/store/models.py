@@ -6,8 +6,6 @@ dose model made of the same exposure. API schemas live elsewhere
 (``beamaudit.api.web.schemas``); these classes are tables only.
 """
 
-from __future__ import annotations
-
 from datetime import date, datetime
 from typing import Any
 

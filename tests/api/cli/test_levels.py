@@ -146,3 +146,27 @@ def test_a_mammography_levels_thickness_band_round_trips_and_shows(cli_url, tmp_
     page = _levels_page(cli_url)
     assert "compressed breast 45-55 mm" in page
     assert "in the review&#39;s thickness band" in page or "in the review's thickness band" in page
+
+
+def test_levels_list_shows_each_stored_version_and_which_are_retired(
+    cli_url, tmp_path, capsys
+) -> None:
+    # the listing reads the table with a plain statement (no ORM mapping at start-up): the same
+    # columns as stored, on both backends
+    from datetime import UTC, datetime
+
+    two = tmp_path / "two.csv"
+    two.write_text(HEAD + LOCAL + LOCAL.replace("v1,2025-01-01", "v2,2026-03-01"), encoding="utf-8")
+    assert main(["levels", "import", str(two)]) == 0
+    with cli_url.session_factory.begin() as session:
+        first = session.scalars(
+            select(m.ReferenceLevelSetRow).where(m.ReferenceLevelSetRow.version == "v1")
+        ).one()
+        first.retired_at = datetime(2026, 3, 1, tzinfo=UTC)
+    capsys.readouterr()
+    assert main(["levels", "list"]) == 0
+    rows = [line for line in capsys.readouterr().out.splitlines() if "v1" in line or "v2" in line]
+    assert len(rows) == 2
+    v1, v2 = sorted(rows, key=lambda line: "v2" in line)
+    assert "2025-01-01" in v1 and "yes" in v1 and "local" in v1
+    assert "2026-03-01" in v2 and "yes" not in v2
