@@ -1,7 +1,9 @@
 """The REST API's routes under ``/api/v1``, one module per resource.
 
 :func:`include_api_routes` adds them to the app; :data:`ROUTE_MODULES` lists them in the order the
-schema shows them.
+schema shows them, which is the order a request is matched in: the routes most requests go to
+(events and exams, ingest errors, uploads) first. FastAPI tries each route in turn, at several
+microseconds a route; an upload once went through some sixty routes before its own.
 """
 
 from __future__ import annotations
@@ -15,6 +17,8 @@ __all__ = ["ROUTE_MODULES", "include_api_routes"]
 #: route modules of this package, each with a module-level ``router``
 ROUTE_MODULES = (
     "events",
+    "ingest",
+    "upload",
     "skin",
     "rooms",
     "qa",
@@ -22,8 +26,6 @@ ROUTE_MODULES = (
     "levels",
     "local_levels",
     "reviews",
-    "ingest",
-    "upload",
     "sources",
     "admin",
 )
