@@ -29,7 +29,7 @@ from beamaudit.api.web.routes._common import (
     paginate,
     period_params,
 )
-from beamaudit.api.web.routing import Router
+from beamaudit.api.web.routing import Router, reads_only
 from beamaudit.api.web.schemas.base import Id, ShortText
 from beamaudit.api.web.schemas.events import (
     AccumulatedDoseRead,
@@ -178,6 +178,7 @@ def _events_query(f: EventFilters, period: Period, superseded: bool | None) -> S
 
 
 @router.get("/events", operation_id="list_events", response_model=EventPage)
+@reads_only
 def list_events(
     session: DbSession,
     _: Physicist,
@@ -308,6 +309,7 @@ def _group(model: type[Any], row: Any, prefix: str = "") -> Any:
 @router.get(
     "/events/{event_id}", operation_id="get_event", response_model=EventDetail, responses=NOT_FOUND
 )
+@reads_only
 def get_event(event_id: IdPath, session: DbSession, _: Physicist) -> EventDetail:
     """One exposure event: reported beside reconstructed, the ratio, and the why trail."""
     row = get_or_404(session, E, event_id, "exposure event")
@@ -376,6 +378,7 @@ def _exams_query(f: EventFilters, period: Period) -> Select[Any]:
 
 
 @router.get("/exams", operation_id="list_exams", response_model=ExamPage)
+@reads_only
 def list_exams(
     session: DbSession, _: Physicist, filters: Filters, period: Periods, page: Pages
 ) -> ExamPage:
@@ -390,6 +393,7 @@ def list_exams(
 @router.get(
     "/exams/{exam_id}", operation_id="get_exam", response_model=ExamDetail, responses=NOT_FOUND
 )
+@reads_only
 def get_exam(exam_id: IdPath, session: DbSession, _: Physicist) -> ExamDetail:
     """One examination with its events and a dose report's accumulated totals."""
     study = get_or_404(session, m.Study, exam_id, "exam")

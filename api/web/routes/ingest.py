@@ -23,7 +23,7 @@ from beamaudit.api.web.routes._common import (
     paginate,
     period_params,
 )
-from beamaudit.api.web.routing import Router
+from beamaudit.api.web.routing import Router, reads_only
 from beamaudit.api.web.schemas.base import ShortText
 from beamaudit.api.web.schemas.ingest import IngestErrorPage, IngestErrorRead
 
@@ -35,6 +35,7 @@ I = m.IngestError  # noqa: E741
 
 
 @router.get("/ingest-errors", operation_id="list_ingest_errors", response_model=IngestErrorPage)
+@reads_only
 def list_ingest_errors(
     session: DbSession,
     _: Physicist,
@@ -71,6 +72,7 @@ def list_ingest_errors(
     response_model=IngestErrorRead,
     responses=NOT_FOUND,
 )
+@reads_only
 def get_ingest_error(error_id: IdPath, session: DbSession, _: Physicist) -> IngestErrorRead:
     """One ingest error."""
     return IngestErrorRead.model_validate(get_or_404(session, I, error_id, "ingest error"))

@@ -15,8 +15,10 @@ from typing import Any
 
 import pytest
 from api_support import make_api, validation_only
+from fastapi import Depends
 from fastapi.routing import APIRoute, iter_route_contexts
 from fastapi.testclient import TestClient
+from sqlalchemy.orm import Session
 
 from beamaudit.api.web.deps import get_session, get_settings, require_role
 from beamaudit.api.web.routes._common import get_session_factory, page_params, period_params
@@ -97,3 +99,54 @@ def test_the_worker_threads_default_and_bounds() -> None:
     for bad in (0, 1000):
         with pytest.raises(ValidationError):
             ApiSettings(worker_threads=bad)
+
+
+def test_a_read_only_body_runs_in_the_loop_on_sqlite_and_in_a_thread_on_postgresql(store) -> None:
+    """A route marked reads_only, on SQLite, runs where its async dependencies ran (a local
+    read is CPU work, which holds the GIL in a thread as well); on PostgreSQL, where the body
+    waits for the server, in a worker thread."""
+    from fastapi import FastAPI
+    from sqlalchemy import text
+
+    from beamaudit.api.web.routing import reads_only
+
+    seen: dict[str, Any] = {}
+
+    async def loop_thread() -> int:
+        return threading.get_ident()
+
+    def session() -> Any:
+        with store.session_factory() as s:
+            yield s
+
+    router = Router()
+
+    @router.get("/count")
+    @reads_only
+    def count(
+        s: Session = Depends(session),  # noqa: B008 (local dependencies: not in the annotations)
+        loop: int = Depends(loop_thread),
+    ) -> dict[str, int]:
+        seen["body"], seen["loop"] = threading.get_ident(), loop
+        return {"n": int(s.execute(text("SELECT count(*) FROM exposure_events")).scalar_one())}
+
+    app = FastAPI()
+    app.include_router(router)
+    with TestClient(app) as client:
+        assert client.get("/count").json() == {"n": 0}
+    assert (seen["body"] == seen["loop"]) is (store.backend == "sqlite")
+
+
+def test_the_busiest_read_routes_are_marked_read_only_and_async_ones_cannot_be() -> None:
+    from beamaudit.api.web.routes import events, ingest
+    from beamaudit.api.web.routing import _READS_ONLY, reads_only
+
+    for endpoint in (events.list_events, events.get_event, events.list_exams, events.get_exam,
+                     ingest.list_ingest_errors, ingest.get_ingest_error):  # fmt: skip
+        assert getattr(endpoint, _READS_ONLY, False), endpoint.__name__
+
+    async def already_in_the_loop() -> None:
+        return None
+
+    with pytest.raises(TypeError):
+        reads_only(already_in_the_loop)
