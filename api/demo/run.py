@@ -7,7 +7,7 @@
    them.
 3. Rooms delivered by "folder" are read by the folder scan; rooms delivered by
    "cstore" are sent over DICOM C-STORE to listeners on free loopback ports
-   (a listener process on the one database, as an ingest node: :data:`CSTORE_NODES`),
+   (:data:`CSTORE_NODES` listener processes on the one database, as ingest nodes),
    answering once an object is in its spool while its worker process stores
    the spool in batches, as ``beamaudit listen`` does; the broken files go
    through the folder scan too.
@@ -217,12 +217,14 @@ def _calibration_row(room: m.Room, qa: list[dict[str, Any]]) -> m.RoomCalibratio
 
 #: Listener processes the C-STORE rooms are sent to (a hospital may run several ingest nodes on
 #: one database, DEPLOYMENT.md). Each runs as ``beamaudit listen`` does: it answers once an
-#: object is in its spool, and a worker process of its own stores the spool in batches. One:
-#: receiving into the spool is cheap, and the worker's batches are the work; a second node and
-#: worker cost their start-up and share the database's one writer (the demo's C-STORE phase,
-#: 1,994 objects, in CPU seconds of all its processes: 117 s storing before each answer on two
-#: nodes, 59 s spooled on two, 46 s spooled on one).
-CSTORE_NODES = 1
+#: object is in its spool, and a worker process of its own stores the spool in batches. The
+#: workers' batches are the work, and most of it is reading the dose reports (pydicom's parse of
+#: their content trees, seven tenths of a worker's time), which two workers do at once on two
+#: cores; they take turns only to write. The demo's C-STORE phase, 1,994 objects: in CPU
+#: seconds of all its processes, 117 s storing before each answer on two nodes, 59 s spooled
+#: on two, 46 s spooled on one; in wall-clock seconds (2026-12-05, the one worker busy on one
+#: core while the other idled) 34.5-36 s on one node, 21.7 s on two.
+CSTORE_NODES = 2
 _CALLING_AE = "DEMO_MODALITY"
 _CALLED_AE = "BEAMAUDIT"
 #: seconds the demo's senders wait for a C-STORE response before they abort (pynetdicom's default)
