@@ -153,17 +153,10 @@ class SnapshotReads:
                 cursor.execute("ROLLBACK")
 
     def read(self, statements: list[Any]) -> list[Any] | None:
-        """The Arrow tables of ``statements``, read at once; None when the server refuses the
-        driver's connection (another way reads them)."""
-        from concurrent.futures import ThreadPoolExecutor
-
-        from adbc_driver_manager import Error as DriverError
-
-        try:
-            with ThreadPoolExecutor(len(statements)) as pool:
-                return list(pool.map(self._one, statements))
-        except DriverError:
-            return None
+        """The Arrow tables of ``statements``, read at once (each :meth:`start` ed); None when
+        the driver could not read one (another way reads them)."""
+        tables = [result() for result in [self.start(s) for s in statements]]
+        return None if any(t is None for t in tables) else tables
 
     def start(self, statement: Any) -> Callable[[], Any]:
         """Start reading ``statement`` in a thread of its own; returns the function that waits

@@ -336,6 +336,13 @@ def _study_uids(
     return out
 
 
+def _packed_studies(stmt: Any) -> Any:
+    """``stmt`` (a select of studies) selecting their ids and UIDs, packed."""
+    return stmt.with_only_columns(
+        packed_number(m.Study.id), *packed_text(m.Study.study_instance_uid)
+    )
+
+
 def _study_rows_packed(
     session: Session, stmt: Any, values: dict[str, Any], n: int
 ) -> tuple[np.ndarray, np.ndarray] | None:
@@ -345,10 +352,7 @@ def _study_rows_packed(
     than ``_ARROW_MIN_EVENTS`` studies."""
     if n < _ARROW_MIN_EVENTS or session.get_bind().dialect.name != "postgresql":
         return None
-    ids, lengths, texts = session.execute(
-        stmt.with_only_columns(packed_number(m.Study.id), *packed_text(m.Study.study_instance_uid)),
-        values,
-    ).one()
+    ids, lengths, texts = session.execute(_packed_studies(stmt), values).one()
     return _ids_and_texts(ids, lengths, (texts or "").encode())
 
 
@@ -591,8 +595,8 @@ def _packed_read(
     Study = m.Study
     studies = (
         reads.start(
-            select(packed_number(Study.id), *packed_text(Study.study_instance_uid)).where(
-                Study.id.between(int(min(bounds)), int(max(bounds)))
+            _packed_studies(
+                select(Study.id).where(Study.id.between(int(min(bounds)), int(max(bounds))))
             )
         )
         if bounds
