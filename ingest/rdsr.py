@@ -22,6 +22,7 @@ from __future__ import annotations
 from dataclasses import dataclass, field
 from typing import Any
 
+from pydicom.dataelem import RawDataElement
 from pydicom.dataset import Dataset
 
 from ._context import FieldSink
@@ -99,18 +100,65 @@ class ContentItem:
         return f"({self.code[0]}, {self.code[1]}) {self.meaning}"
 
 
+#: the elements of a content item read here (PS3.3 C.17.3 SR Document Content, C.18 Content
+#: Item and Attribute Descriptions; tags from PS3.6)
+_TAGS = {
+    "CodeValue": 0x00080100,
+    "CodingSchemeDesignator": 0x00080102,
+    "CodeMeaning": 0x00080104,
+    "LongCodeValue": 0x00080119,
+    "URNCodeValue": 0x00080120,
+    "RelationshipType": 0x0040A010,
+    "ValueType": 0x0040A040,
+    "ConceptNameCodeSequence": 0x0040A043,
+    "FloatingPointValue": 0x0040A161,
+    "ConceptCodeSequence": 0x0040A168,
+    "MeasuredValueSequence": 0x0040A300,
+    "NumericValue": 0x0040A30A,
+    "ContentSequence": 0x0040A730,
+    "MeasurementUnitsCodeSequence": 0x004008EA,
+}
+#: the short texts of a content item: codes, their meanings, value and relationship types
+_SHORT_TEXT_VRS = frozenset({"SH", "LO", "CS"})
+
+
+def _get(ds: Dataset, keyword: str) -> Any:
+    """``ds.get(keyword)`` for the elements of :data:`_TAGS`, a short text (SH, LO, CS) of one
+    value in plain ASCII read straight from its bytes.
+
+    A dose report of a fluoroscopy study holds thousands of content items, each named by a code
+    of three short texts; pydicom's conversion of each element (its hooks, the character set's
+    decoder, the value's validation) was a third of reading such a report. ASCII bytes are the
+    same text in every DICOM character set (PS3.5 6.1: the default repertoire is the G0 set of
+    each; an escape byte, which ISO 2022 code extensions start with, or a backslash, which
+    separates values, is left to pydicom), and the padding is removed as pydicom removes it
+    (trailing spaces and NULs), so the value equals pydicom's (held so in the tests on sample
+    files and on reports in several character sets)."""
+    tag = _TAGS[keyword]
+    raw = ds.get_item(tag)
+    if raw is None:
+        return None
+    if isinstance(raw, RawDataElement) and raw.VR in _SHORT_TEXT_VRS:
+        value = raw.value
+        if value is not None and value.isascii() and b"\\" not in value and b"\x1b" not in value:
+            return value.decode("ascii").rstrip(" \x00")
+    return ds[tag].value
+
+
 def _code_of(seq_item: Dataset) -> tuple[CodeKey, str]:
     value = (
-        seq_item.get("CodeValue") or seq_item.get("LongCodeValue") or seq_item.get("URNCodeValue")
+        _get(seq_item, "CodeValue")
+        or _get(seq_item, "LongCodeValue")
+        or _get(seq_item, "URNCodeValue")
     )
-    scheme = seq_item.get("CodingSchemeDesignator") or ""
+    scheme = _get(seq_item, "CodingSchemeDesignator") or ""
     if not value:
         raise IngestError("broken_template", "a coded concept has no code value")
-    return canonical(str(value), str(scheme)), str(seq_item.get("CodeMeaning") or "")
+    return canonical(str(value), str(scheme)), str(_get(seq_item, "CodeMeaning") or "")
 
 
 def _concept(ds: Dataset) -> tuple[CodeKey | None, str]:
-    seq = ds.get("ConceptNameCodeSequence")
+    seq = _get(ds, "ConceptNameCodeSequence")
     if not seq:
         return None, ""
     return _code_of(seq[0])
@@ -131,11 +179,11 @@ def content_tree(ds: Dataset, *, depth: int = 0) -> ContentItem:
     item = ContentItem(
         code,
         meaning,
-        str(ds.get("ValueType") or ""),
-        str(ds.get("RelationshipType") or ""),
+        str(_get(ds, "ValueType") or ""),
+        str(_get(ds, "RelationshipType") or ""),
         ds,
     )
-    for child in ds.get("ContentSequence") or ():
+    for child in _get(ds, "ContentSequence") or ():
         item.children.append(content_tree(child, depth=depth + 1))
     return item
 
@@ -146,18 +194,18 @@ def is_dose_report_root(ds: Dataset) -> bool:
         code, _ = _concept(ds)
     except IngestError:
         return False
-    return code == DOSE_REPORT_ROOT and str(ds.get("ValueType") or "") == "CONTAINER"
+    return code == DOSE_REPORT_ROOT and str(_get(ds, "ValueType") or "") == "CONTAINER"
 
 
 # ---- values of content items ---------------------------------------------------------------
 def _num(item: ContentItem) -> tuple[float, str] | None:
-    seq = item.ds.get("MeasuredValueSequence")
+    seq = _get(item.ds, "MeasuredValueSequence")
     if not seq:
         return None  # value absent (a NumericValueQualifierCodeSequence may say why)
     measured = seq[0]
-    raw: Any = measured.get("FloatingPointValue")
+    raw: Any = _get(measured, "FloatingPointValue")
     if raw is None:
-        raw = measured.get("NumericValue")
+        raw = _get(measured, "NumericValue")
     if raw is None or raw == "":
         return None
     try:
@@ -166,14 +214,14 @@ def _num(item: ContentItem) -> tuple[float, str] | None:
         raise IngestError("bad_value", f"{item.label}: {raw!r} is not a number") from None
     if value != value or value in (float("inf"), float("-inf")):
         raise IngestError("bad_value", f"{item.label} is not finite")
-    units = measured.get("MeasurementUnitsCodeSequence")
+    units = _get(measured, "MeasurementUnitsCodeSequence")
     if not units or not units[0].get("CodeValue"):
         raise IngestError("broken_template", f"{item.label} has no measurement unit")
     return value, str(units[0].CodeValue)
 
 
 def _coded(item: ContentItem) -> tuple[CodeKey, str] | None:
-    seq = item.ds.get("ConceptCodeSequence")
+    seq = _get(item.ds, "ConceptCodeSequence")
     if not seq:
         return None
     return _code_of(seq[0])

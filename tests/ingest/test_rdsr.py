@@ -452,3 +452,78 @@ def test_mammography_protocol_decides_tomosynthesis_without_an_event_type() -> N
     (parsed,) = parse(ds).events
     assert parsed.mammography_acquisition == "tomosynthesis"
     assert any("inferred from the acquisition protocol" in n for n in parsed.notes)
+
+
+# -- the content items' short texts read from their bytes -----------------------------------------
+def _items(ds: Any) -> Any:
+    """Every dataset of a content tree: the items, their codes and measured values."""
+    yield ds
+    for keyword in ("ContentSequence", "ConceptNameCodeSequence", "ConceptCodeSequence",
+                    "MeasuredValueSequence", "MeasurementUnitsCodeSequence"):  # fmt: skip
+        for child in ds.get(keyword) or ():
+            yield from _items(child)
+
+
+def _reads_equal_pydicom(ds: Any) -> int:
+    """Each element of ``rdsr._TAGS`` of each item read by ``rdsr._get`` (first, while the
+    element is still raw) and by pydicom: the same value, of the same type; the reads made."""
+    from beamaudit.ingest import rdsr
+
+    reads = 0
+    for item in _items(ds):
+        for keyword in rdsr._TAGS:
+            ours, theirs = rdsr._get(item, keyword), item.get(keyword)
+            assert type(ours) is type(theirs) and ours == theirs, (keyword, ours, theirs)
+            reads += 1
+    return reads
+
+
+@pytest.mark.parametrize("name", ["reportsi.dcm", "reportsi_with_empty_number_tags.dcm",
+                                  "test-SR.dcm"])  # fmt: skip
+def test_content_item_texts_read_from_bytes_equal_pydicom_on_sample_files(name: str) -> None:
+    # real SR files shipped with pydicom (DICOM-NOTES section 4): Basic Text SR in implicit VR,
+    # one with empty number elements, a Comprehensive SR in explicit VR
+    from ingest_samples import sample
+    from pydicom import dcmread
+
+    assert _reads_equal_pydicom(dcmread(sample(name))) > 100
+
+
+@pytest.mark.parametrize("charset", [None, "ISO_IR 100", "ISO_IR 192", "ISO 2022 IR 87"])
+@pytest.mark.parametrize("implicit", [False, True])
+def test_content_item_texts_read_from_bytes_equal_pydicom_in_each_character_set(
+    charset: str | None, implicit: bool
+) -> None:
+    """Padding kept and removed as pydicom does (a leading space stays), several values, a text
+    that is not ASCII (left to pydicom), in the character sets of PS3.3 C.12.1.1.2."""
+    import io
+
+    from pydicom.filebase import DicomBytesIO
+    from pydicom.filereader import read_dataset
+    from pydicom.filewriter import write_dataset
+
+    report = fluoroscopy_report()
+    item = report.ContentSequence[0].ConceptNameCodeSequence[0]
+    item.CodeMeaning = "Dose (RP) in µGy  " if charset in ("ISO_IR 100", "ISO_IR 192") else "RP\0"
+    item.CodeValue = " 113 "
+    item.CodingSchemeDesignator = "DCM\\99LOCAL"
+    report.ContentSequence[0].ValueType = " CODE "
+    if charset is not None:
+        report.SpecificCharacterSet = charset
+    del report.file_meta
+    encoded = DicomBytesIO()
+    encoded.is_little_endian, encoded.is_implicit_VR = True, implicit
+    write_dataset(encoded, report)
+    back = read_dataset(io.BytesIO(encoded.getvalue()), implicit, True)
+    assert _reads_equal_pydicom(back) > 500
+    assert back.ContentSequence[0].ConceptNameCodeSequence[0].CodeValue == " 113"
+
+
+def test_a_report_reads_the_same_through_pydicom_alone(monkeypatch: pytest.MonkeyPatch) -> None:
+    from beamaudit.ingest import rdsr
+
+    report = to_bytes(fluoroscopy_report())
+    fast = read_bytes(report, pseudonymiser=PSEUDONYMISER, source="rdsr-test")
+    monkeypatch.setattr(rdsr, "_SHORT_TEXT_VRS", frozenset())  # every value through pydicom
+    plain = read_bytes(report, pseudonymiser=PSEUDONYMISER, source="rdsr-test")
+    assert fast.events == plain.events and fast.warnings == plain.warnings
