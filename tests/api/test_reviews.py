@@ -674,3 +674,28 @@ def test_stored_times_read_back_to_the_whole_millisecond() -> None:
     times = instants(np.array([1773589485.145, np.nan]))
     assert times[0].isoformat() == "2026-03-15T15:44:45.145000+00:00"
     assert pd.isna(times[1])
+
+
+# -- ids looked up through an array over their span ------------------------------------------------
+@pytest.mark.parametrize("seed", range(6))
+def test_ids_looked_up_over_their_span_as_pandas_looks_them_up(seed: int) -> None:
+    """``_positions_among`` is ``Index.get_indexer`` and ``_sorted_distinct`` is
+    ``pd.factorize(sort=True)``, with missing ids, ids no key has, fractions, and spans too wide
+    for the array (then pandas itself answers)."""
+    from beamaudit.api.runs import reviews
+
+    rng = np.random.default_rng(seed)
+    span = [40, 5_000, 2**25][seed % 3]
+    keys = rng.choice(np.arange(-3, span), size=min(span, 30), replace=False).astype(np.int64)
+    ids = rng.integers(-5, span + 5, size=2_000).astype(np.float64)
+    ids[rng.random(2_000) < 0.1] = np.nan
+    if seed >= 3:
+        ids[:3] = [0.5, keys[0] + 0.25, -0.0]
+    expected = pd.Index(keys.astype(np.float64)).get_indexer(ids)
+    assert (reviews._positions_among(ids, keys) == expected).all()
+    assert (reviews._positions_among(ids, keys[:0]) == -1).all()
+    whole = ids[~np.isnan(ids)]
+    codes, uniques = reviews._sorted_distinct(whole)
+    want_codes, want_uniques = pd.factorize(whole, sort=True)
+    assert (codes == want_codes).all() and (uniques == np.asarray(want_uniques)).all()
+    assert reviews._sorted_distinct(whole[:0])[0].size == 0
