@@ -154,9 +154,10 @@ def _note_use(session: Session, row: m.ApiToken, now: datetime) -> None:
         session.rollback()
 
 
-def authenticate(session: Session, token: str | None) -> Principal | None:
+def authenticate(session: Session, token: str | None, *, note_use: bool = True) -> Principal | None:
     """The principal a presented token stands for, or ``None`` (unknown, revoked, expired,
-    malformed). Notes the use in ``last_used_at``."""
+    malformed). Notes the use in ``last_used_at`` (with ``note_use=False`` only reads: the
+    caller notes it with :func:`note_token_use` when :func:`token_use_due` says so)."""
     if not token or not token.startswith(TOKEN_PREFIX) or len(token) > 200:
         return None
     digest = hash_token(token)
@@ -165,8 +166,27 @@ def authenticate(session: Session, token: str | None) -> Principal | None:
     if row is None or not hmac.compare_digest(row.token_hash, digest) or not _usable(row, now):
         return None
     principal = Principal(token_id=row.id, name=row.name, role=row.role)  # type: ignore[arg-type]
-    _note_use(session, row, now)
+    if note_use:
+        _note_use(session, row, now)
     return principal
+
+
+def token_use_due(session: Session, token_id: int) -> bool:
+    """Whether a use of the token just read in ``session`` (:func:`authenticate`,
+    :func:`browser_identity`) is to be noted: its ``last_used_at`` is older than
+    :data:`LAST_USED_RESOLUTION`. Reads nothing from the store (the session holds the row)."""
+    row = session.get(m.ApiToken, token_id)
+    if row is None:
+        return False
+    return row.last_used_at is None or utcnow() - row.last_used_at >= LAST_USED_RESOLUTION
+
+
+def note_token_use(session: Session, token_id: int) -> None:
+    """Note a use of the token in ``last_used_at`` (a write: in a short transaction of its own,
+    skipped when the database is busy)."""
+    row = session.get(m.ApiToken, token_id)
+    if row is not None:
+        _note_use(session, row, utcnow())
 
 
 @dataclass(frozen=True, slots=True)
@@ -200,9 +220,11 @@ def open_browser_session(
     return cookie, csrf
 
 
-def browser_identity(session: Session, cookie: str | None) -> BrowserIdentity | None:
+def browser_identity(
+    session: Session, cookie: str | None, *, note_use: bool = True
+) -> BrowserIdentity | None:
     """The identity of a session cookie, or ``None`` (unknown, ended, expired, or its token
-    revoked or expired)."""
+    revoked or expired); its token's use noted as :func:`authenticate` notes it."""
     if not cookie or len(cookie) > 200:
         return None
     digest = hash_token(cookie)
@@ -220,7 +242,8 @@ def browser_identity(session: Session, cookie: str | None) -> BrowserIdentity | 
         return None
     principal = Principal(token_id=token.id, name=token.name, role=token.role)  # type: ignore[arg-type]
     identity = BrowserIdentity(principal, row.csrf_token, row.id)
-    _note_use(session, token, now)
+    if note_use:
+        _note_use(session, token, now)
     return identity
 
 

@@ -25,7 +25,15 @@ from sqlalchemy.orm import Session
 from starlette.concurrency import run_in_threadpool
 
 from beamaudit.api.settings import Settings
-from beamaudit.api.store.auth import Principal, Role, authenticate, browser_identity, has_role
+from beamaudit.api.store.auth import (
+    Principal,
+    Role,
+    authenticate,
+    browser_identity,
+    has_role,
+    note_token_use,
+    token_use_due,
+)
 
 __all__ = [
     "CSRF_HEADER",
@@ -88,13 +96,15 @@ class Identity:
     csrf_token: str | None = None
 
 
-def identify(request: Request, session: Session) -> Identity | None:
-    """The caller by bearer token, else by session cookie; ``None`` when neither is valid."""
+def identify(request: Request, session: Session, *, note_use: bool = True) -> Identity | None:
+    """The caller by bearer token, else by session cookie; ``None`` when neither is valid.
+    ``note_use=False``: only reads (the token's use is not noted)."""
     token = bearer_token(request)
     if token is not None:
-        principal = authenticate(session, token)
+        principal = authenticate(session, token, note_use=note_use)
         return None if principal is None else Identity(principal)
-    found = browser_identity(session, request.cookies.get(SESSION_COOKIE))
+    cookie = request.cookies.get(SESSION_COOKIE)
+    found = browser_identity(session, cookie, note_use=note_use)
     return None if found is None else Identity(found.principal, found.csrf_token)
 
 
@@ -122,8 +132,19 @@ def csrf_problem(request: Request, identity: Identity) -> str | None:
     return None
 
 
-def get_principal(request: Request, session: DbSession) -> Principal:
-    identity = identify(request, session)
+async def get_principal(request: Request, session: DbSession) -> Principal:
+    """The caller (401 without valid credentials, 403 for a change the cookie may not make).
+
+    On SQLite the credentials are read in the event loop (a read of a local file is CPU work,
+    as :mod:`.routing` says of reads-only routes), and the token's use, written at most once a
+    minute, is noted in a worker thread (a write may wait for SQLite's lock); on PostgreSQL
+    both in a worker thread."""
+    if session.get_bind().dialect.name == "sqlite":
+        identity = identify(request, session, note_use=False)
+        if identity is not None and token_use_due(session, identity.principal.token_id):
+            await run_in_threadpool(note_token_use, session, identity.principal.token_id)
+    else:
+        identity = await run_in_threadpool(identify, request, session)
     if identity is None:
         raise HTTPException(
             status_code=status.HTTP_401_UNAUTHORIZED,

@@ -15,12 +15,12 @@ from typing import Any
 
 import pytest
 from api_support import make_api, validation_only
-from fastapi import Depends
+from fastapi import Depends, Request
 from fastapi.routing import APIRoute, iter_route_contexts
 from fastapi.testclient import TestClient
 from sqlalchemy.orm import Session
 
-from beamaudit.api.web.deps import get_session, get_settings, require_role
+from beamaudit.api.web.deps import get_principal, get_session, get_settings, require_role
 from beamaudit.api.web.routes._common import get_session_factory, page_params, period_params
 from beamaudit.api.web.routes.events import event_filters
 from beamaudit.api.web.routing import Router
@@ -42,7 +42,7 @@ def test_every_route_body_runs_off_the_event_loop_in_one_hop(api) -> None:
 
 def test_dependencies_without_blocking_work_run_in_the_loop() -> None:
     for dependency in (page_params, period_params, event_filters, get_settings,
-                       get_session_factory, require_role("viewer")):  # fmt: skip
+                       get_session_factory, require_role("viewer"), get_principal):  # fmt: skip
         assert inspect.iscoroutinefunction(dependency), dependency
     assert inspect.isasyncgenfunction(get_session)
 
@@ -150,3 +150,67 @@ def test_the_busiest_read_routes_are_marked_read_only_and_async_ones_cannot_be()
 
     with pytest.raises(TypeError):
         reads_only(already_in_the_loop)
+
+
+def test_the_caller_is_read_in_the_loop_on_sqlite_and_its_use_noted_in_a_thread(
+    store, monkeypatch: pytest.MonkeyPatch
+) -> None:
+    """The token is read where the async dependencies run on SQLite (in a worker thread on
+    PostgreSQL); its last use, written at most once a minute, is noted in a worker thread."""
+    from datetime import timedelta
+
+    from fastapi import FastAPI
+    from sqlalchemy import select
+
+    from beamaudit.api.store import auth
+    from beamaudit.api.store import models as m
+    from beamaudit.api.web import deps
+
+    with store.session_factory.begin() as s:
+        _, token = auth.create_token(s, role="viewer", name="reader", actor="test")
+    seen: dict[str, list[int]] = {"read": [], "noted": []}
+    authenticate, note = auth.authenticate, auth.note_token_use
+
+    def read(*args: Any, **kwargs: Any) -> Any:
+        seen["read"].append(threading.get_ident())
+        return authenticate(*args, **kwargs)
+
+    def noted(*args: Any) -> None:
+        seen["noted"].append(threading.get_ident())
+        note(*args)
+
+    monkeypatch.setattr(deps, "authenticate", read)
+    monkeypatch.setattr(deps, "note_token_use", noted)
+
+    async def loop_thread() -> int:
+        return threading.get_ident()
+
+    def session() -> Any:
+        with store.session_factory() as s:
+            yield s
+
+    app = FastAPI()
+
+    @app.get("/who")
+    async def who(
+        request: Request,
+        s: Session = Depends(session),  # noqa: B008 (local dependencies: not in the annotations)
+        loop: int = Depends(loop_thread),
+    ) -> dict[str, Any]:
+        principal = await deps.get_principal(request, s)
+        return {"name": principal.name, "loop": loop}
+
+    headers = {"Authorization": f"Bearer {token}"}
+    with TestClient(app) as client:
+        first = client.get("/who", headers=headers).json()
+        client.get("/who", headers=headers)  # used again within the minute: nothing to note
+        refused = client.get("/who", headers={"Authorization": "Bearer bat_x"})
+        assert refused.status_code == 401, refused.text
+    assert first["name"] == "reader"
+    in_loop = [ident == first["loop"] for ident in seen["read"]]
+    assert in_loop == [store.backend == "sqlite"] * 3
+    with store.session_factory() as s:
+        used = s.scalar(select(m.ApiToken.last_used_at).where(m.ApiToken.name == "reader"))
+    assert used is not None and auth.utcnow() - used < timedelta(minutes=1)
+    if store.backend == "sqlite":
+        assert len(seen["noted"]) == 1 and seen["noted"][0] != first["loop"]
