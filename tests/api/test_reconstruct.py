@@ -117,6 +117,12 @@ def test_bulk_figures_equal_the_model_one_by_one(store) -> None:
             assert math.isclose(trail["dap_gy_cm2"], row.recon_dap_gy_cm2, rel_tol=1e-12)
             assert trail["recipe"]["room"]["id"] == row.room_id
             assert not any("software version" in n for n in trail.get("notes", []))
+            # asked again: the kept trail, each caller with a copy of its own
+            again = trail_for_event(s, row)
+            assert again == trail and again is not trail
+            again["recipe"]["room"]["id"] = -1
+            again.setdefault("notes", []).append("changed by a caller")
+            assert trail_for_event(s, row) == trail
 
 
 def test_trail_uses_the_calibration_that_made_the_figures(store) -> None:
