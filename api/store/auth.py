@@ -22,7 +22,7 @@ from dataclasses import dataclass
 from datetime import datetime, timedelta
 from typing import Any, Literal
 
-from sqlalchemy import select, update
+from sqlalchemy import bindparam, select, update
 from sqlalchemy.orm import Session
 
 from beamaudit.api.errors import ApiError
@@ -143,7 +143,7 @@ def _usable(row: m.ApiToken | None, now: datetime) -> bool:
 
 def _note_use(session: Session, row: m.ApiToken, now: datetime) -> None:
     """Keep ``last_used_at`` to the minute, in a short transaction of its own."""
-    if row.last_used_at is not None and now - row.last_used_at < LAST_USED_RESOLUTION:
+    if not _use_is_due(row, now):
         return
     from sqlalchemy.exc import OperationalError
 
@@ -154,6 +154,28 @@ def _note_use(session: Session, row: m.ApiToken, now: datetime) -> None:
         session.rollback()
 
 
+#: the token of a hash, and the browser session of one: statements made once, not for every
+#: request
+_TOKEN_BY_HASH = select(m.ApiToken).where(m.ApiToken.token_hash == bindparam("digest"))
+_BROWSER_SESSION_BY_HASH = select(m.BrowserSession).where(
+    m.BrowserSession.session_hash == bindparam("digest")
+)
+#: ``session.info`` key: the ids of the tokens read in the session whose use is to be noted
+_USE_DUE = "beamaudit.token_use_due"
+
+
+def _use_is_due(row: m.ApiToken, now: datetime) -> bool:
+    return row.last_used_at is None or now - row.last_used_at >= LAST_USED_RESOLUTION
+
+
+def _read_use(session: Session, row: m.ApiToken, now: datetime, note_use: bool) -> None:
+    """Note the use of ``row`` now, or (``note_use=False``) keep in the session that it is due."""
+    if note_use:
+        _note_use(session, row, now)
+    elif _use_is_due(row, now):
+        session.info.setdefault(_USE_DUE, set()).add(row.id)
+
+
 def authenticate(session: Session, token: str | None, *, note_use: bool = True) -> Principal | None:
     """The principal a presented token stands for, or ``None`` (unknown, revoked, expired,
     malformed). Notes the use in ``last_used_at`` (with ``note_use=False`` only reads: the
@@ -161,29 +183,26 @@ def authenticate(session: Session, token: str | None, *, note_use: bool = True) 
     if not token or not token.startswith(TOKEN_PREFIX) or len(token) > 200:
         return None
     digest = hash_token(token)
-    row = session.scalar(select(m.ApiToken).where(m.ApiToken.token_hash == digest))
+    row = session.scalar(_TOKEN_BY_HASH, {"digest": digest})
     now = utcnow()
     if row is None or not hmac.compare_digest(row.token_hash, digest) or not _usable(row, now):
         return None
     principal = Principal(token_id=row.id, name=row.name, role=row.role)  # type: ignore[arg-type]
-    if note_use:
-        _note_use(session, row, now)
+    _read_use(session, row, now, note_use)
     return principal
 
 
 def token_use_due(session: Session, token_id: int) -> bool:
-    """Whether a use of the token just read in ``session`` (:func:`authenticate`,
-    :func:`browser_identity`) is to be noted: its ``last_used_at`` is older than
-    :data:`LAST_USED_RESOLUTION`. Reads nothing from the store (the session holds the row)."""
-    row = session.get(m.ApiToken, token_id)
-    if row is None:
-        return False
-    return row.last_used_at is None or utcnow() - row.last_used_at >= LAST_USED_RESOLUTION
+    """Whether a use of the token read in ``session`` with ``note_use=False``
+    (:func:`authenticate`, :func:`browser_identity`) is to be noted: its ``last_used_at`` was
+    older than :data:`LAST_USED_RESOLUTION`. Asks nothing of the store."""
+    return token_id in session.info.get(_USE_DUE, ())
 
 
 def note_token_use(session: Session, token_id: int) -> None:
     """Note a use of the token in ``last_used_at`` (a write: in a short transaction of its own,
     skipped when the database is busy)."""
+    session.info.get(_USE_DUE, set()).discard(token_id)
     row = session.get(m.ApiToken, token_id)
     if row is not None:
         _note_use(session, row, utcnow())
@@ -228,7 +247,7 @@ def browser_identity(
     if not cookie or len(cookie) > 200:
         return None
     digest = hash_token(cookie)
-    row = session.scalar(select(m.BrowserSession).where(m.BrowserSession.session_hash == digest))
+    row = session.scalar(_BROWSER_SESSION_BY_HASH, {"digest": digest})
     now = utcnow()
     if (
         row is None
@@ -242,8 +261,7 @@ def browser_identity(
         return None
     principal = Principal(token_id=token.id, name=token.name, role=token.role)  # type: ignore[arg-type]
     identity = BrowserIdentity(principal, row.csrf_token, row.id)
-    if note_use:
-        _note_use(session, token, now)
+    _read_use(session, token, now, note_use)
     return identity
 
 
