@@ -440,15 +440,22 @@ def _where(exc: BaseException) -> str:
 
 
 def _read_received(event: evt.Event) -> tuple[Dataset, bytes]:
-    """The received data set and its Part 10 bytes, up to Pixel Data when received to a file.
+    """The received data set (with its file meta) and its Part 10 bytes, up to Pixel Data when
+    received to a file.
 
     With pynetdicom's chunked receiving the object sits in a temporary file: only the part
     before Pixel Data (7FE0,0010) is read, so an image of hundreds of megabytes costs the
-    header's memory. Otherwise the object came in memory and is taken whole.
+    header's memory. Otherwise the object came in memory and is taken whole, its file meta
+    made once (pynetdicom's ``event.file_meta`` makes a new one at each use) and encoded by
+    :func:`part10_preamble_and_meta`.
     """
     path = getattr(event.request, "_dataset_path", None)
     if path is None:
-        return event.dataset, event.encoded_dataset()
+        meta = event.file_meta
+        dataset = event.dataset
+        dataset.file_meta = meta
+        stream = event.encoded_dataset(include_meta=False)
+        return dataset, part10_preamble_and_meta(meta) + stream
     from pydicom import dcmread
 
     with open(path, "rb") as fh:
@@ -457,6 +464,48 @@ def _read_received(event: evt.Event) -> tuple[Dataset, bytes]:
         fh.seek(0)
         encoded = fh.read(end)
     return dataset, encoded
+
+
+#: the File Meta Information elements pynetdicom gives a received object (PS3.10 7.1), in tag
+#: order, with their VR and the byte a value of odd length is padded with (PS3.5 6.2)
+_META_ELEMENTS = (
+    (0x0002, 0x0002, b"UI", b"\0", "MediaStorageSOPClassUID"),
+    (0x0002, 0x0003, b"UI", b"\0", "MediaStorageSOPInstanceUID"),
+    (0x0002, 0x0010, b"UI", b"\0", "TransferSyntaxUID"),
+    (0x0002, 0x0012, b"UI", b"\0", "ImplementationClassUID"),
+    (0x0002, 0x0013, b"SH", b" ", "ImplementationVersionName"),
+)
+#: the tags of pynetdicom's file meta: the group length, the version and the five above
+_META_TAGS = frozenset({0x00020000, 0x00020001, *((g << 16) | e for g, e, *_ in _META_ELEMENTS)})
+
+
+def part10_preamble_and_meta(meta: Dataset) -> bytes:
+    """The 128-byte preamble, ``DICM`` and the File Meta Information ``meta`` encoded as PS3.10
+    7.1 says: Explicit VR Little Endian, the group length first.
+
+    pynetdicom's file meta for a received object (the version and the five texts of
+    :data:`_META_ELEMENTS`) is written directly: the same bytes as pynetdicom's
+    ``encode_file_meta`` (held so in the tests), which went through pydicom's writer and its
+    checks of every value, a twentieth of the listener's time for a small header. Any other
+    file meta goes through ``encode_file_meta``."""
+    import struct
+
+    from pynetdicom.dsutils import encode_file_meta
+
+    start = b"\x00" * 128 + b"DICM"
+    if set(meta.keys()) != _META_TAGS or meta.get("FileMetaInformationVersion") != b"\x00\x01":
+        return start + encode_file_meta(meta)
+    body = [b"\x02\x00\x01\x00OB\x00\x00" + struct.pack("<I", 2) + b"\x00\x01"]
+    for group, element, vr, pad, keyword in _META_ELEMENTS:
+        try:
+            value = str(meta.get(keyword) or "").encode("ascii")
+        except UnicodeEncodeError:
+            return start + encode_file_meta(meta)
+        if len(value) % 2:
+            value += pad
+        body.append(struct.pack("<HH", group, element) + vr + struct.pack("<H", len(value)) + value)
+    encoded = b"".join(body)
+    return start + b"\x02\x00\x00\x00UL\x04\x00" + struct.pack("<I", len(encoded)) + encoded
 
 
 def _decode(

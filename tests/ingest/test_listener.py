@@ -224,6 +224,13 @@ def test_storescu_ct_image_is_stored_then_acknowledged(
     assert obj.peer_address[0] == "127.0.0.1"
     assert obj.dataset.file_meta.TransferSyntaxUID == obj.transfer_syntax_uid
     assert obj.dataset.file_meta.MediaStorageSOPInstanceUID == original.SOPInstanceUID
+    # the Part 10 bytes kept: pynetdicom's own encoding of the file meta, then the data set
+    # as sent
+    from pynetdicom.dsutils import encode_file_meta
+
+    meta = encode_file_meta(obj.dataset.file_meta)
+    assert obj.encoded[:132] == b"\x00" * 128 + b"DICM"
+    assert obj.encoded[132 : 132 + len(meta)] == meta
 
 
 @pytest.mark.peer
@@ -508,3 +515,28 @@ def test_concurrent_senders_each_get_their_answer(listener: Listener, handler: D
         thread.join(timeout=30)
     assert results == [0x0000] * 12
     assert len(handler.stored_files()) == 12
+
+
+@pytest.mark.parametrize("transfer_syntax", [ExplicitVRLittleEndian, DeflatedExplicitVRLittleEndian,
+                                             UID("1.2.840.10008.1.2.4.50")])  # fmt: skip
+@pytest.mark.parametrize("extra", ["", "1", "12"])
+def test_the_received_file_meta_is_encoded_as_pynetdicom_encodes_it(
+    transfer_syntax: UID, extra: str
+) -> None:
+    """PS3.10 7.1 File Meta Information (UIDs of odd and even length, padded with NUL; the
+    version name padded with a space), byte for byte pynetdicom's ``encode_file_meta``; a file
+    meta of other elements goes through pynetdicom."""
+    from pynetdicom.dsutils import create_file_meta, encode_file_meta
+
+    from beamaudit.ingest.listener import part10_preamble_and_meta
+
+    for sop_class in ("1.2.840.10008.5.1.4.1.1.88.67", "1.2.840.10008.5.1.4.1.1.1.1"):
+        meta = create_file_meta(
+            sop_class_uid=UID(sop_class),
+            sop_instance_uid=UID("1.2.826.0.1.3680043.10.1." + extra),
+            transfer_syntax=transfer_syntax,
+        )
+        expected = b"\x00" * 128 + b"DICM" + encode_file_meta(meta)
+        assert part10_preamble_and_meta(meta) == expected
+        meta.SourceApplicationEntityTitle = "ROOM1"  # another element: pynetdicom encodes it
+        assert part10_preamble_and_meta(meta) == b"\x00" * 128 + b"DICM" + encode_file_meta(meta)
