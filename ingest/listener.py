@@ -41,7 +41,7 @@ from enum import IntEnum
 from types import TracebackType
 from typing import Any
 
-from pydicom.dataset import Dataset
+from pydicom.dataset import Dataset, FileMetaDataset
 from pynetdicom import AE, ALL_TRANSFER_SYNTAXES, build_context, evt
 from pynetdicom.events import EventHandlerType
 from pynetdicom.presentation import PresentationContext
@@ -479,7 +479,7 @@ _META_ELEMENTS = (
 _META_TAGS = frozenset({0x00020000, 0x00020001, *((g << 16) | e for g, e, *_ in _META_ELEMENTS)})
 
 
-def part10_preamble_and_meta(meta: Dataset) -> bytes:
+def part10_preamble_and_meta(meta: FileMetaDataset) -> bytes:
     """The 128-byte preamble, ``DICM`` and the File Meta Information ``meta`` encoded as PS3.10
     7.1 says: Explicit VR Little Endian, the group length first.
 
