@@ -152,22 +152,53 @@ def _label_max(
     return out[1:]
 
 
+def _box(mask: NDArray[np.bool_], margin: tuple[int, int]) -> tuple[slice, slice]:
+    """The rows and columns of ``mask``'s pixels, widened by ``margin`` (rows, columns) and kept
+    inside the image."""
+    rows = np.flatnonzero(mask.any(axis=1))
+    cols = np.flatnonzero(mask.any(axis=0))
+    return (
+        slice(max(int(rows[0]) - margin[0], 0), min(int(rows[-1]) + margin[0] + 1, mask.shape[0])),
+        slice(max(int(cols[0]) - margin[1], 0), min(int(cols[-1]) + margin[1] + 1, mask.shape[1])),
+    )
+
+
 def _distance_to(inside: NDArray[np.bool_], spacing: tuple[float, float]) -> NDArray[np.float64]:
     """Distance (mm) from each pixel of ``inside`` to the nearest pixel outside it, the image
-    border counting as outside (0 outside)."""
-    padded = np.pad(inside, 1, constant_values=False)
-    depth = ndimage.distance_transform_edt(padded, sampling=spacing)
-    return np.asarray(depth, dtype=np.float64)[1:-1, 1:-1]
+    border counting as outside (0 outside).
+
+    Computed on ``inside``'s bounding box widened by one pixel (and the border beyond the image):
+    the same distances, since that ring is all outside and any pixel beyond it is farther than
+    its nearest point on the ring, along each axis (a patient smaller than the field costs the
+    transform of its box only)."""
+    depth = np.zeros(inside.shape, dtype=np.float64)
+    if not inside.any():
+        return depth
+    box = _box(inside, (1, 1))
+    padded = np.pad(inside[box], 1, constant_values=False)
+    depth[box] = ndimage.distance_transform_edt(padded, sampling=spacing)[1:-1, 1:-1]
+    return depth
 
 
 def _within(
     region: NDArray[np.bool_], distance_mm: float, spacing: tuple[float, float]
 ) -> NDArray[np.bool_]:
-    """Pixels within ``distance_mm`` of ``region`` (a Euclidean dilation)."""
+    """Pixels within ``distance_mm`` of ``region`` (a Euclidean dilation).
+
+    Computed on ``region``'s bounding box widened by ``distance_mm`` and a pixel: every pixel
+    beyond lies farther from it, and every pixel of ``region`` lies in the box, so the distances
+    in the box are the whole image's."""
     if not region.any():
         return region.copy()
-    gap = ndimage.distance_transform_edt(~region, sampling=spacing)
-    return np.asarray(gap <= distance_mm + 1e-9)
+    margin = (
+        math.ceil(distance_mm / spacing[0]) + 1,
+        math.ceil(distance_mm / spacing[1]) + 1,
+    )
+    box = _box(region, margin)
+    out = np.zeros(region.shape, dtype=bool)
+    gap = ndimage.distance_transform_edt(~region[box], sampling=spacing)
+    out[box] = gap <= distance_mm + 1e-9
+    return out
 
 
 def _mask_and_truncation(

@@ -336,3 +336,31 @@ def test_scan_range_dw_uncertainty_adds_sampling_and_method_in_quadrature() -> N
     assert parts_one["sampling_cm"] == 0.0 and u_one == pytest.approx(0.05 * 27.0)
     with pytest.raises(ModelError, match="Dw method"):
         scan_range_dw_uncertainty(dw_cm=samples, mean_dw_cm=27.0, method="guess")
+
+
+@pytest.mark.parametrize("seed", range(3))
+def test_distances_on_the_mask_box_equal_the_whole_image_transform(seed: int) -> None:
+    """The depth and the dilation computed on the mask's bounding box (widened) are the whole
+    image's Euclidean distance transform's, exactly: masks touching the border, several parts,
+    scattered pixels, anisotropic pixels, empty masks."""
+    from scipy import ndimage
+
+    from beamaudit.model import ct_size
+
+    rng = np.random.default_rng(seed)
+    for case in range(100):
+        shape = (int(rng.integers(5, 90)), int(rng.integers(5, 90)))
+        mask = np.zeros(shape, dtype=bool)
+        for _ in range(int(rng.integers(0, 4))):
+            r, c = int(rng.integers(0, shape[0])), int(rng.integers(0, shape[1]))
+            rows = slice(max(0, r - int(rng.integers(0, 15))), r + int(rng.integers(1, 15)))
+            cols = slice(max(0, c - int(rng.integers(0, 15))), c + int(rng.integers(1, 15)))
+            mask[rows, cols] = True
+        mask |= rng.random(shape) < 0.01 * (case % 3)
+        spacing = (float(rng.uniform(0.3, 2.0)), float(rng.uniform(0.3, 2.0)))
+        distance = float(rng.uniform(0.0, 30.0))
+        whole = ndimage.distance_transform_edt(np.pad(mask, 1), sampling=spacing)[1:-1, 1:-1]
+        assert np.array_equal(ct_size._distance_to(mask, spacing), whole)
+        near = ndimage.distance_transform_edt(~mask, sampling=spacing) <= distance + 1e-9
+        expected = near if mask.any() else mask
+        assert np.array_equal(ct_size._within(mask, distance, spacing), expected)
