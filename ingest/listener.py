@@ -33,6 +33,7 @@ from __future__ import annotations
 import logging
 import re
 import signal
+import struct
 import threading
 import traceback
 from collections.abc import Callable, Iterable
@@ -43,6 +44,7 @@ from typing import Any
 
 from pydicom.dataset import Dataset, FileMetaDataset
 from pynetdicom import AE, ALL_TRANSFER_SYNTAXES, build_context, evt
+from pynetdicom.dsutils import encode_file_meta
 from pynetdicom.events import EventHandlerType
 from pynetdicom.presentation import PresentationContext
 
@@ -488,10 +490,6 @@ def part10_preamble_and_meta(meta: FileMetaDataset) -> bytes:
     ``encode_file_meta`` (held so in the tests), which went through pydicom's writer and its
     checks of every value, a twentieth of the listener's time for a small header. Any other
     file meta goes through ``encode_file_meta``."""
-    import struct
-
-    from pynetdicom.dsutils import encode_file_meta
-
     start = b"\x00" * 128 + b"DICM"
     if set(meta.keys()) != _META_TAGS or meta.get("FileMetaInformationVersion") != b"\x00\x01":
         return start + encode_file_meta(meta)
